@@ -1,0 +1,124 @@
+//! Behaviour: from an appliance's description to its [`Timeline`], the
+//! event-driven list of (start, end, state, scale) segments over the run.
+//!
+//! Each behaviour kind is one file with one `generate` function; `timeline`
+//! below is its registration.
+
+mod cycle;
+pub mod dist;
+pub mod habit;
+mod markov;
+mod modulating;
+mod program;
+mod steady;
+
+use crate::rng::stream;
+use crate::scenario::{Appliance, Behaviour, Scenario};
+
+/// A run of steps in one state. Steps are counted from the start of the run.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Segment {
+    pub start: u64,
+    pub end: u64,
+    pub state: u16,
+    /// Multiplies every draw of the state (jitter, modulation, taper).
+    pub scale: f32,
+}
+
+/// Contiguous segments covering steps `0..steps` of the run.
+#[derive(Clone, Debug, Default)]
+pub struct Timeline {
+    pub segments: Vec<Segment>,
+}
+
+/// What a behaviour needs to know of the run, in steps.
+pub struct Clock<'a> {
+    pub steps: u64,
+    pub step_s: f64,
+    pub start_utc_ms: i64,
+    pub tz: &'a jiff::tz::TimeZone,
+}
+
+impl Clock<'_> {
+    /// A duration in whole steps, at least one.
+    pub fn steps_of(&self, seconds: f64) -> u64 {
+        ((seconds / self.step_s).round() as u64).max(1)
+    }
+}
+
+/// Collects segments, merging nothing, clipping at the end of the run.
+pub struct Builder {
+    steps: u64,
+    t: u64,
+    segments: Vec<Segment>,
+}
+
+impl Builder {
+    pub fn new(steps: u64) -> Self {
+        Builder { steps, t: 0, segments: Vec::new() }
+    }
+    pub fn now(&self) -> u64 {
+        self.t
+    }
+    pub fn done(&self) -> bool {
+        self.t >= self.steps
+    }
+    /// Appends `len` steps of `state`; returns false once the run is full.
+    pub fn push(&mut self, state: usize, len: u64, scale: f64) -> bool {
+        if self.t >= self.steps || len == 0 {
+            return !self.done();
+        }
+        let end = (self.t + len).min(self.steps);
+        self.segments.push(Segment { start: self.t, end, state: state as u16, scale: scale as f32 });
+        self.t = end;
+        !self.done()
+    }
+    /// Fills up to step `until` (clipped) with `state`.
+    pub fn fill_to(&mut self, state: usize, until: u64, scale: f64) {
+        if until > self.t {
+            self.push(state, until - self.t, scale);
+        }
+    }
+    pub fn finish(mut self, state: usize) -> Timeline {
+        let n = self.steps;
+        self.fill_to(state, n, 1.0);
+        Timeline { segments: self.segments }
+    }
+}
+
+/// Generates the timeline of one appliance. Draws come from the stream
+/// (seed, appliance id, "behaviour") only.
+pub fn timeline(app: &Appliance, clock: &Clock, seed: u64) -> Timeline {
+    let mut rng = stream(seed, &app.id, "behaviour");
+    match &app.behaviour {
+        Behaviour::Cycle { dwell, extra } => cycle::generate(dwell, extra.as_ref(), clock, &mut rng),
+        Behaviour::Program { habit, lengths } => program::generate(habit, lengths, clock, &mut rng),
+        Behaviour::Markov { dwell, next } => markov::generate(dwell, next, clock, &mut rng),
+        Behaviour::Steady { jitter, every_s } => steady::generate(*jitter, *every_s, clock, &mut rng),
+        Behaviour::Modulating { min, wander, every_s, session } => {
+            modulating::generate(app.states.len() - 1, *min, *wander, *every_s, session.as_ref(), clock, &mut rng)
+        }
+    }
+}
+
+/// Timelines of every appliance of a scenario, with the run's clock.
+pub fn timelines(s: &Scenario, steps: u64) -> Vec<Timeline> {
+    let tz = jiff::tz::TimeZone::get(&s.home.timezone).expect("checked when parsed");
+    let clock = Clock { steps, step_s: s.run.step_s, start_utc_ms: s.run.start_utc_ms, tz: &tz };
+    s.appliances.iter().map(|a| timeline(a, &clock, s.run.seed)).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn builder_clips_and_covers_the_run() {
+        let mut b = Builder::new(10);
+        assert!(b.push(1, 4, 1.0));
+        assert!(!b.push(0, 100, 1.0));
+        let t = b.finish(0);
+        assert_eq!(t.segments.len(), 2);
+        assert_eq!(t.segments[1].end, 10);
+    }
+}

@@ -1,0 +1,158 @@
+//! `manifest.json`: what a reader needs to trust and use the dataset without
+//! the scenario: the resolved scenario, supply, appliances with their nominal
+//! per-conductor split, meter settings, faults, files with row counts and
+//! sha256, and a summary.
+
+use super::schema::{line_name, Col, FORMAT};
+use super::sink::Format;
+use super::tables::Tables;
+use crate::electrical::{elems_of, nominal_phasors, C64};
+use crate::scenario::{Appliance, Scenario, State, NEUTRAL};
+use crate::simulate::Outcome;
+use serde_json::{json, Map, Value};
+use sha2::{Digest, Sha256};
+use std::io::{self, Read};
+use std::path::Path;
+
+fn sha256_file(path: &Path) -> io::Result<String> {
+    let mut f = std::fs::File::open(path)?;
+    let mut h = Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let n = f.read(&mut buf)?;
+        if n == 0 {
+            break;
+        }
+        h.update(&buf[..n]);
+    }
+    Ok(h.finalize().iter().map(|b| format!("{b:02x}")).collect())
+}
+
+/// Nominal P and Q of a state on each line (at nominal, balanced voltage):
+/// line-to-line draws split by the two-wattmeter relation (equal halves on
+/// split-phase), three-phase draws a third on each line.
+pub fn state_split(s: &Scenario, st: &State) -> Vec<(usize, f64, f64)> {
+    let e = nominal_phasors(&s.home);
+    let mut per = [C64::ZERO; 3];
+    for d in &st.draws {
+        for el in elems_of(d.wiring, d.p_w, d.q_var, d.zip_p, d.zip_q, d.nominal_v) {
+            let ua = if el.a == NEUTRAL { C64::ZERO } else { e[el.a as usize] };
+            let ub = if el.b == NEUTRAL { C64::ZERO } else { e[el.b as usize] };
+            let i = (C64::new(el.p_w, el.q_var) / (ua - ub)).conj();
+            if el.a != NEUTRAL {
+                per[el.a as usize] += ua * i.conj();
+            }
+            if el.b != NEUTRAL {
+                per[el.b as usize] += -(ub * i.conj());
+            }
+        }
+    }
+    (0..s.home.supply.lines()).map(|x| (x, per[x].re, per[x].im)).collect()
+}
+
+fn appliance_json(s: &Scenario, a: &Appliance, o: &Outcome, k: usize) -> Value {
+    let lines = a.lines();
+    let states: Vec<Value> = a
+        .states
+        .iter()
+        .map(|st| {
+            let mut split = Map::new();
+            for (x, p, q) in state_split(s, st) {
+                if lines.contains(&x) {
+                    split.insert(line_name(x), json!({ "p_w": p, "q_var": q }));
+                }
+            }
+            json!({
+                "name": st.name,
+                "p_w": st.p_w(),
+                "q_var": st.q_var(),
+                "draws": st.draws.iter().map(|d| json!({ "wiring": d.wiring.name(), "p_w": d.p_w, "q_var": d.q_var, "load": d.load, "zip_p": d.zip_p, "zip_q": d.zip_q, "nominal_v": d.nominal_v })).collect::<Vec<_>>(),
+                "per_conductor": split,
+            })
+        })
+        .collect();
+    json!({
+        "id": a.id,
+        "label": a.label,
+        "template": a.template,
+        "behaviour": a.behaviour.name(),
+        "wiring": a.wiring.name(),
+        "connections": a.connections().iter().map(|c| c.name()).collect::<Vec<_>>(),
+        "conductors": lines.iter().map(|&x| line_name(x)).collect::<Vec<_>>(),
+        "line_to_line": a.connections().iter().any(|c| c.is_line_to_line() || *c == crate::scenario::Connection::ThreePhase),
+        "on_threshold_w": a.on_threshold_w,
+        "states": states,
+        "energy_kwh": o.summary.app_energy_j[k] / 3.6e6,
+        "peak_w": o.summary.app_peak_w[k],
+    })
+}
+
+fn columns_json(cols: &[Col]) -> Value {
+    Value::Array(cols.iter().map(|c| json!({ "name": c.name, "unit": c.unit })).collect())
+}
+
+pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: &[(&str, u64)], dir: &Path) -> io::Result<Value> {
+    let lines = s.home.supply.lines();
+    let mut file_map = Map::new();
+    for (name, rows) in files {
+        let fname = format!("{name}.{}", format.ext());
+        let path = dir.join(&fname);
+        file_map.insert(fname, json!({ "rows": rows, "bytes": std::fs::metadata(&path)?.len(), "sha256": sha256_file(&path)? }));
+    }
+    let ll_v = match s.home.supply {
+        crate::scenario::SupplyKind::SplitPhase => 2.0 * s.home.voltage_v,
+        crate::scenario::SupplyKind::ThreePhase => 3f64.sqrt() * s.home.voltage_v,
+        crate::scenario::SupplyKind::SinglePhase => s.home.voltage_v,
+    };
+    let days = s.run.length_s / 86400.0;
+    let total_kwh: f64 = o.summary.app_energy_j.iter().sum::<f64>() / 3.6e6;
+    let ll_kwh: f64 = s
+        .appliances
+        .iter()
+        .enumerate()
+        .filter(|(_, a)| a.connections().iter().any(|c| c.is_line_to_line() || *c == crate::scenario::Connection::ThreePhase))
+        .map(|(k, _)| o.summary.app_energy_j[k] / 3.6e6)
+        .sum();
+    Ok(json!({
+        "format": FORMAT,
+        "generator": { "name": "loadloom", "version": env!("CARGO_PKG_VERSION") },
+        "seed": s.run.seed,
+        "scenario": s,
+        "supply": {
+            "kind": s.home.supply.name(),
+            "conductors": (0..lines).map(line_name).chain(std::iter::once("n".to_string())).collect::<Vec<_>>(),
+            "voltage_ln_v": s.home.voltage_v,
+            "voltage_ll_v": ll_v,
+            "frequency_hz": s.home.frequency_hz,
+            "service_a": s.home.service_a,
+            "phase_angles_deg": s.home.supply.angles_deg(),
+        },
+        "time": {
+            "timezone": s.home.timezone,
+            "start_local": s.run.start_local,
+            "start_utc_ms": s.run.start_utc_ms,
+            "step_s": s.run.step_s,
+            "interval_s": s.meter.interval_s,
+            "rows": s.intervals(),
+            "row_time": "start of the reporting interval",
+        },
+        "meter": s.meter,
+        "faults": [],
+        "appliances": s.appliances.iter().enumerate().map(|(k, a)| appliance_json(s, a, o, k)).collect::<Vec<_>>(),
+        "columns": {
+            "meters": columns_json(&tables.meters),
+            "truth": columns_json(&tables.truth),
+            "events": columns_json(&tables.events),
+        },
+        "files": file_map,
+        "summary": {
+            "days": days,
+            "energy_kwh": total_kwh,
+            "energy_kwh_per_day": total_kwh / days,
+            "line_to_line_energy_share": if total_kwh > 0.0 { ll_kwh / total_kwh } else { 0.0 },
+            "conductor_energy_kwh": (0..lines).map(|x| (line_name(x), json!(o.summary.line_energy_j[x] / 3.6e6))).collect::<Map<_, _>>(),
+            "conductor_peak_current_a": (0..lines).map(|x| (line_name(x), json!(o.summary.line_peak_a[x]))).chain(std::iter::once(("n".to_string(), json!(o.summary.neutral_peak_a)))).collect::<Map<_, _>>(),
+            "events": o.events.len(),
+        },
+    }))
+}

@@ -1,0 +1,88 @@
+//! The dataset writer: one folder per run with `manifest.json`,
+//! `meters.*`, `truth.*` and `events.*` (DESIGN.md, "Dataset contract").
+//! Everything is written under a temporary name and renamed when complete,
+//! so a failed run leaves nothing half-written.
+
+pub mod manifest;
+pub mod schema;
+pub mod sink;
+pub mod tables;
+
+use crate::behaviour::timelines;
+use crate::scenario::Scenario;
+use crate::simulate::{simulate, Outcome};
+pub use sink::Format;
+use sink::Sink;
+use std::io;
+use std::path::{Path, PathBuf};
+use tables::Tables;
+
+/// Rows per chunk handed from the simulator to the writers.
+pub const CHUNK_ROWS: usize = 65_536;
+
+/// What happened, for the command-line summary.
+pub struct Written {
+    pub dir: PathBuf,
+    pub rows: u64,
+    pub outcome: Outcome,
+}
+
+/// Simulates `s` and writes its dataset to `out_root/<scenario name>/`.
+/// `progress` is called with the share done (0…1) after every chunk.
+pub fn write(s: &Scenario, out_root: &Path, format: Format, progress: &mut dyn FnMut(f64)) -> io::Result<Written> {
+    std::fs::create_dir_all(out_root)?;
+    let dest = out_root.join(&s.name);
+    let tmp = out_root.join(format!(".{}.partial-{}", s.name, std::process::id()));
+    if tmp.exists() {
+        std::fs::remove_dir_all(&tmp)?;
+    }
+    std::fs::create_dir(&tmp)?;
+    match write_into(s, &tmp, format, progress) {
+        Ok((rows, outcome)) => {
+            replace_dir(&tmp, &dest)?;
+            Ok(Written { dir: dest, rows, outcome })
+        }
+        Err(e) => {
+            let _ = std::fs::remove_dir_all(&tmp);
+            Err(e)
+        }
+    }
+}
+
+/// Moves `tmp` to `dest`, replacing an older dataset there.
+fn replace_dir(tmp: &Path, dest: &Path) -> io::Result<()> {
+    if dest.exists() {
+        let old = dest.with_file_name(format!(".{}.old-{}", dest.file_name().unwrap().to_string_lossy(), std::process::id()));
+        std::fs::rename(dest, &old)?;
+        std::fs::rename(tmp, dest)?;
+        std::fs::remove_dir_all(&old)
+    } else {
+        std::fs::rename(tmp, dest)
+    }
+}
+
+fn write_into(s: &Scenario, dir: &Path, format: Format, progress: &mut dyn FnMut(f64)) -> io::Result<(u64, Outcome)> {
+    let tables = Tables::new(s);
+    let ext = format.ext();
+    let tz = &s.home.timezone;
+    let intervals = s.intervals();
+    let tl = timelines(s, s.run.steps());
+    let mut meters = Sink::create(&dir.join(format!("meters.{ext}")), format, tables.meters_schema.clone(), tz)?;
+    let mut truth = Sink::create(&dir.join(format!("truth.{ext}")), format, tables.truth_schema.clone(), tz)?;
+    let outcome = simulate(s, &tl, intervals, CHUNK_ROWS, |chunk| -> io::Result<()> {
+        meters.write(&tables.meters_batch(chunk))?;
+        truth.write(&tables.truth_batch(chunk))?;
+        progress((chunk.first_row + chunk.readings.rows() as u64) as f64 / intervals as f64);
+        Ok(())
+    })?;
+    meters.close()?;
+    truth.close()?;
+    let mut events = Sink::create(&dir.join(format!("events.{ext}")), format, tables.events_schema.clone(), tz)?;
+    events.write(&tables.events_batch(s, &outcome.events, s.run.step_s))?;
+    events.close()?;
+    let files = [("meters", intervals), ("truth", intervals), ("events", outcome.events.len() as u64)];
+    let m = manifest::build(s, &tables, format, &outcome, &files, dir)?;
+    let text = serde_json::to_string_pretty(&m).map_err(io::Error::other)?;
+    std::fs::write(dir.join("manifest.json"), text + "\n")?;
+    Ok((intervals, outcome))
+}

@@ -1,0 +1,97 @@
+//! The dataset contract (`loadloom-dataset/1`), declared once: the columns of
+//! each table with their unit. Parquet and CSV writers both follow it.
+
+use crate::scenario::Scenario;
+use arrow_schema::{DataType, Field, Schema, TimeUnit};
+use std::collections::HashMap;
+use std::sync::Arc;
+
+pub const FORMAT: &str = "loadloom-dataset/1";
+
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum ColKind {
+    /// Instant in ms since 1970-01-01 UTC, with the home's time zone attached.
+    Time,
+    F32,
+    F64,
+    /// Dictionary-encoded string (state names, appliance ids).
+    Dict,
+    Str,
+}
+
+#[derive(Clone, Debug)]
+pub struct Col {
+    pub name: String,
+    pub unit: &'static str,
+    pub kind: ColKind,
+}
+
+fn col(name: impl Into<String>, unit: &'static str, kind: ColKind) -> Col {
+    Col { name: name.into(), unit, kind }
+}
+
+pub fn line_name(x: usize) -> String {
+    format!("l{}", x + 1)
+}
+
+/// `meters`: one row per reporting interval.
+pub fn meters(s: &Scenario) -> Vec<Col> {
+    let mut c = vec![col("time", "ms", ColKind::Time)];
+    for x in 0..s.home.supply.lines() {
+        let l = line_name(x);
+        c.push(col(format!("{l}_p_w"), "W", ColKind::F32));
+        c.push(col(format!("{l}_q_var"), "var", ColKind::F32));
+        c.push(col(format!("{l}_v_v"), "V", ColKind::F32));
+        c.push(col(format!("{l}_i_a"), "A", ColKind::F32));
+    }
+    c.push(col("n_i_a", "A", ColKind::F32));
+    c.push(col("total_p_w", "W", ColKind::F32));
+    c.push(col("total_q_var", "var", ColKind::F32));
+    c
+}
+
+/// `truth`: the same rows as `meters`, exact (no meter noise).
+pub fn truth(s: &Scenario) -> Vec<Col> {
+    let mut c = vec![col("time", "ms", ColKind::Time)];
+    for a in &s.appliances {
+        c.push(col(format!("{}_p_w", a.id), "W", ColKind::F32));
+        c.push(col(format!("{}_q_var", a.id), "var", ColKind::F32));
+        c.push(col(format!("{}_state", a.id), "", ColKind::Dict));
+        for x in a.lines() {
+            c.push(col(format!("{}_{}_p_w", a.id, line_name(x)), "W", ColKind::F32));
+        }
+    }
+    c.push(col("unmetered_p_w", "W", ColKind::F32));
+    c
+}
+
+/// `events`: one row per state segment of each appliance.
+pub fn events() -> Vec<Col> {
+    vec![
+        col("appliance", "", ColKind::Dict),
+        col("state", "", ColKind::Str),
+        col("start", "ms", ColKind::Time),
+        col("end", "ms", ColKind::Time),
+        col("mean_p_w", "W", ColKind::F64),
+        col("energy_wh", "Wh", ColKind::F64),
+    ]
+}
+
+/// The Arrow schema of a table; each field carries its `unit` in metadata.
+pub fn arrow_schema(cols: &[Col], timezone: &str) -> Arc<Schema> {
+    let fields: Vec<Field> = cols
+        .iter()
+        .map(|c| {
+            let dt = match c.kind {
+                ColKind::Time => DataType::Timestamp(TimeUnit::Millisecond, Some(timezone.into())),
+                ColKind::F32 => DataType::Float32,
+                ColKind::F64 => DataType::Float64,
+                ColKind::Dict => DataType::Dictionary(Box::new(DataType::Int16), Box::new(DataType::Utf8)),
+                ColKind::Str => DataType::Utf8,
+            };
+            let nullable = false;
+            Field::new(&c.name, dt, nullable).with_metadata(HashMap::from([("unit".to_string(), c.unit.to_string())]))
+        })
+        .collect();
+    Arc::new(Schema::new(fields))
+}

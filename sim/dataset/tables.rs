@@ -1,0 +1,107 @@
+//! Simulation chunks and events as Arrow record batches, in the column order
+//! of [`super::schema`].
+
+use super::schema::{self, Col};
+use crate::scenario::Scenario;
+use crate::simulate::{Chunk, Event};
+use arrow_array::types::Int16Type;
+use arrow_array::{ArrayRef, DictionaryArray, Float32Array, Float64Array, Int16Array, RecordBatch, StringArray, TimestampMillisecondArray};
+use arrow_schema::Schema;
+use std::sync::Arc;
+
+pub struct Tables {
+    pub meters: Vec<Col>,
+    pub truth: Vec<Col>,
+    pub events: Vec<Col>,
+    pub meters_schema: Arc<Schema>,
+    pub truth_schema: Arc<Schema>,
+    pub events_schema: Arc<Schema>,
+    tz: Arc<str>,
+    interval_ms: i64,
+    start_ms: i64,
+    step_ms: i64,
+    state_names: Vec<ArrayRef>,
+    app_ids: ArrayRef,
+}
+
+fn f32s(v: &[f32]) -> ArrayRef {
+    Arc::new(Float32Array::from(v.to_vec()))
+}
+
+impl Tables {
+    pub fn new(s: &Scenario) -> Self {
+        let (meters, truth, events) = (schema::meters(s), schema::truth(s), schema::events());
+        let tz = &s.home.timezone;
+        Tables {
+            meters_schema: schema::arrow_schema(&meters, tz),
+            truth_schema: schema::arrow_schema(&truth, tz),
+            events_schema: schema::arrow_schema(&events, tz),
+            meters,
+            truth,
+            events,
+            tz: tz.as_str().into(),
+            interval_ms: (s.meter.interval_s * 1000.0).round() as i64,
+            start_ms: s.run.start_utc_ms,
+            step_ms: (s.run.step_s * 1000.0).round() as i64,
+            state_names: s
+                .appliances
+                .iter()
+                .map(|a| Arc::new(StringArray::from(a.states.iter().map(|st| st.name.clone()).collect::<Vec<_>>())) as ArrayRef)
+                .collect(),
+            app_ids: Arc::new(StringArray::from(s.appliances.iter().map(|a| a.id.clone()).collect::<Vec<_>>())),
+        }
+    }
+
+    fn times(&self, ms: impl Iterator<Item = i64>) -> ArrayRef {
+        Arc::new(TimestampMillisecondArray::from(ms.collect::<Vec<_>>()).with_timezone(self.tz.clone()))
+    }
+
+    /// Start of reporting interval `row`, ms since 1970 UTC.
+    pub fn row_time_ms(&self, row: u64) -> i64 {
+        self.start_ms + row as i64 * self.interval_ms
+    }
+
+    pub fn step_time_ms(&self, step: u64) -> i64 {
+        self.start_ms + step as i64 * self.step_ms
+    }
+
+    pub fn meters_batch(&self, c: &Chunk) -> RecordBatch {
+        let r = &c.readings;
+        let mut cols = vec![self.times((0..r.rows() as u64).map(|i| self.row_time_ms(c.first_row + i)))];
+        for x in 0..r.line_p.len() {
+            cols.extend([f32s(&r.line_p[x]), f32s(&r.line_q[x]), f32s(&r.line_v[x]), f32s(&r.line_i[x])]);
+        }
+        cols.extend([f32s(&r.n_i), f32s(&r.total_p), f32s(&r.total_q)]);
+        RecordBatch::try_new(self.meters_schema.clone(), cols).expect("columns follow the meters schema")
+    }
+
+    pub fn truth_batch(&self, c: &Chunk) -> RecordBatch {
+        let t = &c.truth;
+        let rows = c.readings.rows() as u64;
+        let mut cols = vec![self.times((0..rows).map(|i| self.row_time_ms(c.first_row + i)))];
+        for k in 0..t.app_p.len() {
+            cols.push(f32s(&t.app_p[k]));
+            cols.push(f32s(&t.app_q[k]));
+            let keys = Int16Array::from(t.app_state[k].iter().map(|&s| s as i16).collect::<Vec<_>>());
+            cols.push(Arc::new(DictionaryArray::<Int16Type>::try_new(keys, self.state_names[k].clone()).expect("state index in range")));
+            for lp in &t.app_line_p[k] {
+                cols.push(f32s(lp));
+            }
+        }
+        cols.push(f32s(&t.unmetered_p));
+        RecordBatch::try_new(self.truth_schema.clone(), cols).expect("columns follow the truth schema")
+    }
+
+    pub fn events_batch(&self, s: &Scenario, events: &[Event], step_s: f64) -> RecordBatch {
+        let keys = Int16Array::from(events.iter().map(|e| e.app as i16).collect::<Vec<_>>());
+        let cols: Vec<ArrayRef> = vec![
+            Arc::new(DictionaryArray::<Int16Type>::try_new(keys, self.app_ids.clone()).expect("app index in range")),
+            Arc::new(StringArray::from(events.iter().map(|e| s.appliances[e.app].states[e.state as usize].name.clone()).collect::<Vec<_>>())),
+            self.times(events.iter().map(|e| self.step_time_ms(e.start_step))),
+            self.times(events.iter().map(|e| self.step_time_ms(e.end_step))),
+            Arc::new(Float64Array::from(events.iter().map(|e| e.energy_j / ((e.end_step - e.start_step) as f64 * step_s)).collect::<Vec<_>>())),
+            Arc::new(Float64Array::from(events.iter().map(|e| e.energy_j / 3600.0).collect::<Vec<_>>())),
+        ];
+        RecordBatch::try_new(self.events_schema.clone(), cols).expect("columns follow the events schema")
+    }
+}

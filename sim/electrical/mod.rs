@@ -1,0 +1,211 @@
+//! The electrical model: phasor currents per conductor, neutral current by
+//! Kirchhoff, terminal voltages that sag through a source impedance, and
+//! voltage-dependent (ZIP) loads.
+//!
+//! Potentials are taken against the source's neutral. With E_x the source
+//! phasor of line x, I_x the current into the home on line x, Z_L and Z_N the
+//! line and neutral impedances:
+//!   u_x = E_x − Z_L·I_x,   u_N = Z_N·Σ_x I_x,   V_x = u_x − u_N,
+//! and the neutral carries I_N = −Σ_x I_x (Kirchhoff's current law).
+//! A draw between terminals a and b sees u_a − u_b and takes
+//! I = conj(S / (u_a − u_b)). A meter on line x reads S_x = V_x·conj(I_x);
+//! then Σ_x S_x = Σ_draws S exactly (Tellegen's theorem), whatever the split.
+
+pub mod complex;
+pub mod source;
+
+use crate::scenario::{Connection, Home, Inrush, Scenario, Zip, NEUTRAL};
+pub use complex::C64;
+
+/// One draw as the solver uses it. A three-phase draw is held as three
+/// line-to-line draws of a third each (the delta equivalent of a balanced
+/// load), so its line currents sum to zero and no neutral current flows.
+#[derive(Clone, Debug)]
+pub struct Elem {
+    pub a: u8,
+    pub b: u8,
+    pub p_w: f64,
+    pub q_var: f64,
+    pub zip_p: Zip,
+    pub zip_q: Zip,
+    pub nominal_v: f64,
+}
+
+/// Splits a draw into solver elements.
+pub fn elems_of(wiring: Connection, p_w: f64, q_var: f64, zip_p: Zip, zip_q: Zip, nominal_v: f64) -> Vec<Elem> {
+    match wiring {
+        Connection::Pair(a, b) => vec![Elem { a, b, p_w, q_var, zip_p, zip_q, nominal_v }],
+        Connection::ThreePhase => [(0u8, 1u8), (1, 2), (2, 0)]
+            .iter()
+            .map(|&(a, b)| Elem { a, b, p_w: p_w / 3.0, q_var: q_var / 3.0, zip_p, zip_q, nominal_v })
+            .collect(),
+    }
+}
+
+pub struct AppModel {
+    /// Elements of each state.
+    pub states: Vec<Vec<Elem>>,
+    pub inrush: Vec<Option<Inrush>>,
+    /// The lines this appliance takes current from (its per-conductor truth columns).
+    pub lines: Vec<usize>,
+}
+
+pub struct Network {
+    pub lines: usize,
+    /// Source line-to-neutral phasors at nominal magnitude.
+    pub e_nominal: [C64; 3],
+    pub z_line: C64,
+    pub z_neutral: C64,
+    pub apps: Vec<AppModel>,
+}
+
+/// Nominal line-to-neutral phasors of a supply.
+pub fn nominal_phasors(home: &Home) -> [C64; 3] {
+    let mut e = [C64::ZERO; 3];
+    for (k, deg) in home.supply.angles_deg().iter().enumerate() {
+        e[k] = C64::polar(home.voltage_v, *deg);
+    }
+    e
+}
+
+impl Network {
+    pub fn new(s: &Scenario) -> Network {
+        let apps = s
+            .appliances
+            .iter()
+            .map(|a| AppModel {
+                states: a
+                    .states
+                    .iter()
+                    .map(|st| st.draws.iter().flat_map(|d| elems_of(d.wiring, d.p_w, d.q_var, d.zip_p, d.zip_q, d.nominal_v)).collect())
+                    .collect(),
+                inrush: a.states.iter().map(|st| st.inrush).collect(),
+                lines: a.lines(),
+            })
+            .collect();
+        let src = &s.home.source;
+        Network {
+            lines: s.home.supply.lines(),
+            e_nominal: nominal_phasors(&s.home),
+            z_line: C64::new(src.line_r_ohm, src.line_x_ohm),
+            z_neutral: C64::new(src.neutral_r_ohm, src.neutral_x_ohm),
+            apps,
+        }
+    }
+}
+
+/// Terminal potentials of the home against the source neutral.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct Terminals {
+    pub u: [C64; 3],
+    pub u_n: C64,
+}
+
+impl Terminals {
+    fn at(&self, t: u8) -> C64 {
+        if t == NEUTRAL {
+            self.u_n
+        } else {
+            self.u[t as usize]
+        }
+    }
+    /// Line-to-neutral voltage at the home's terminals.
+    pub fn v_ln(&self, x: usize) -> C64 {
+        self.u[x] - self.u_n
+    }
+}
+
+/// What one step of the solver yields.
+pub struct StepOut {
+    pub i_line: [C64; 3],
+    pub v_ln: [C64; 3],
+    /// Per appliance: P, Q, and P on each of its lines (in `AppModel::lines` order).
+    pub app_p: Vec<f64>,
+    pub app_q: Vec<f64>,
+    pub app_line_p: Vec<[f64; 3]>,
+}
+
+impl StepOut {
+    pub fn new(n_apps: usize) -> Self {
+        StepOut { i_line: [C64::ZERO; 3], v_ln: [C64::ZERO; 3], app_p: vec![0.0; n_apps], app_q: vec![0.0; n_apps], app_line_p: vec![[0.0; 3]; n_apps] }
+    }
+}
+
+impl Network {
+    /// Terminal potentials for source phasors `e` and line currents `i`.
+    pub fn terminals(&self, e: &[C64; 3], i: &[C64; 3]) -> Terminals {
+        let mut t = Terminals::default();
+        let mut sum = C64::ZERO;
+        for x in 0..self.lines {
+            t.u[x] = e[x] - self.z_line * i[x];
+            sum += i[x];
+        }
+        t.u_n = self.z_neutral * sum;
+        t
+    }
+
+    /// Line currents of the active states at terminal potentials `t`.
+    /// `active[k] = (state, multiplier)` for appliance k.
+    pub fn currents(&self, t: &Terminals, active: &[(usize, f64)]) -> [C64; 3] {
+        let mut i = [C64::ZERO; 3];
+        for (app, &(state, mult)) in self.apps.iter().zip(active) {
+            for el in &app.states[state] {
+                let (cur, _, _) = el.current(t, mult);
+                add_current(&mut i, el, cur);
+            }
+        }
+        i
+    }
+
+    /// Full step: currents, and each appliance's P, Q and per-line P.
+    pub fn solve(&self, t: &Terminals, active: &[(usize, f64)], out: &mut StepOut) {
+        out.i_line = [C64::ZERO; 3];
+        for x in 0..self.lines {
+            out.v_ln[x] = t.v_ln(x);
+        }
+        for (k, (app, &(state, mult))) in self.apps.iter().zip(active).enumerate() {
+            let (mut p, mut q) = (0.0, 0.0);
+            let mut lp = [0.0; 3];
+            for el in &app.states[state] {
+                let (cur, pe, qe) = el.current(t, mult);
+                add_current(&mut out.i_line, el, cur);
+                p += pe;
+                q += qe;
+                // This draw's share of each line's reading: Re(V_x · conj(±I)).
+                if el.a != NEUTRAL {
+                    lp[el.a as usize] += (out.v_ln[el.a as usize] * cur.conj()).re;
+                }
+                if el.b != NEUTRAL {
+                    lp[el.b as usize] -= (out.v_ln[el.b as usize] * cur.conj()).re;
+                }
+            }
+            out.app_p[k] = p;
+            out.app_q[k] = q;
+            out.app_line_p[k] = lp;
+        }
+    }
+}
+
+fn add_current(i: &mut [C64; 3], el: &Elem, cur: C64) {
+    if el.a != NEUTRAL {
+        i[el.a as usize] += cur;
+    }
+    if el.b != NEUTRAL {
+        i[el.b as usize] += -cur;
+    }
+}
+
+impl Elem {
+    /// Current from terminal a to b, and the P, Q drawn, at potentials `t`.
+    #[inline]
+    pub fn current(&self, t: &Terminals, mult: f64) -> (C64, f64, f64) {
+        let v = t.at(self.a) - t.at(self.b);
+        let u = v.abs() / self.nominal_v;
+        let p = mult * self.p_w * self.zip_p.factor(u);
+        let q = mult * self.q_var * self.zip_q.factor(u);
+        if p == 0.0 && q == 0.0 {
+            return (C64::ZERO, 0.0, 0.0);
+        }
+        ((C64::new(p, q) / v).conj(), p, q)
+    }
+}

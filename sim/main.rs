@@ -1,0 +1,139 @@
+//! The `loadloom` binary: parses arguments and calls the libraries.
+
+use clap::{Parser, Subcommand, ValueEnum};
+use loadloom::dataset::{self, Format};
+use loadloom::scenario::{self, Scenario};
+use loadloom::units::{parse_quantity, Kind};
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+#[derive(Parser)]
+#[command(name = "loadloom", version, about = "Household load data per conductor, with exact per-appliance truth")]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+enum FormatArg {
+    Parquet,
+    Csv,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Simulate a scenario and write its dataset folder, OUT/<scenario name>/.
+    Run {
+        /// The scenario file (TOML).
+        scenario: PathBuf,
+        /// Folder that receives the dataset folder.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+        /// Replace the scenario's seed.
+        #[arg(long)]
+        seed: Option<u64>,
+        /// Replace the run length, e.g. 30d or "12 h".
+        #[arg(long)]
+        length: Option<String>,
+        /// Table format.
+        #[arg(long, value_enum, default_value = "parquet")]
+        format: FormatArg,
+    },
+    /// Parse and check a scenario; print what it will produce, write nothing.
+    Validate {
+        /// The scenario file (TOML).
+        scenario: PathBuf,
+    },
+}
+
+/// Exit codes (DESIGN.md): 0 success, 1 a run that failed, 2 bad input.
+const BAD_INPUT: u8 = 2;
+const FAILED: u8 = 1;
+
+fn load(path: &Path) -> Result<Scenario, ExitCode> {
+    scenario::load(path).map_err(|e| {
+        eprintln!("{e}");
+        ExitCode::from(BAD_INPUT)
+    })
+}
+
+/// `--length 30d` or `--length "12 h"`: a duration with its unit.
+fn apply_length(s: &mut Scenario, text: &str) -> Result<(), String> {
+    let spaced = match text.find(|c: char| c.is_ascii_alphabetic()) {
+        Some(i) if !text[..i].ends_with(' ') => format!("{} {}", &text[..i], &text[i..]),
+        _ => text.to_string(),
+    };
+    let len = parse_quantity(&spaced, Kind::Duration)?;
+    if len <= 0.0 {
+        return Err("the length must be greater than zero".into());
+    }
+    let per = s.meter.interval_s;
+    if ((len / per).round() - len / per).abs() > 1e-6 {
+        return Err(format!("{text} is not a whole number of reporting intervals ({per} s)"));
+    }
+    s.run.length_s = len;
+    Ok(())
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    match cli.command {
+        Command::Validate { scenario } => {
+            let s = match load(&scenario) {
+                Ok(s) => s,
+                Err(c) => return c,
+            };
+            let f = loadloom::summary::figures(&s);
+            print!("{}", loadloom::summary::render(&s, &f));
+            ExitCode::SUCCESS
+        }
+        Command::Run { scenario, out, seed, length, format } => {
+            let mut s = match load(&scenario) {
+                Ok(s) => s,
+                Err(c) => return c,
+            };
+            if let Some(seed) = seed {
+                s.run.seed = seed;
+            }
+            if let Some(l) = length {
+                if let Err(m) = apply_length(&mut s, &l) {
+                    eprintln!("error: --length {l}: {m}\n  = help: write a duration such as 7d, 30d or \"12 h\" that the reporting interval divides");
+                    return ExitCode::from(BAD_INPUT);
+                }
+            }
+            let format = match format {
+                FormatArg::Parquet => Format::Parquet,
+                FormatArg::Csv => Format::Csv,
+            };
+            let tty = std::io::stderr().is_terminal();
+            let started = std::time::Instant::now();
+            let mut progress = |f: f64| {
+                if tty {
+                    let el = started.elapsed().as_secs_f64();
+                    let left = if f > 0.0 { el * (1.0 - f) / f } else { 0.0 };
+                    eprint!("\r  simulating {:5.1}%  {:6.1} s elapsed, ~{:.0} s left   ", 100.0 * f, el, left);
+                }
+            };
+            match dataset::write(&s, &out, format, &mut progress) {
+                Ok(w) => {
+                    if tty {
+                        eprintln!();
+                    }
+                    let secs = started.elapsed().as_secs_f64();
+                    println!("wrote {} ({} rows, {} events) in {:.1} s", w.dir.display(), w.rows, w.outcome.events.len(), secs);
+                    let width = s.appliances.iter().map(|a| a.id.len()).max().unwrap_or(9).max(9);
+                    println!("{:<width$}  {:>10}  {:>9}", "appliance", "kWh", "peak W");
+                    for (k, a) in s.appliances.iter().enumerate() {
+                        println!("{:<width$}  {:>10.3}  {:>9.0}", a.id, w.outcome.summary.app_energy_j[k] / 3.6e6, w.outcome.summary.app_peak_w[k]);
+                    }
+                    ExitCode::SUCCESS
+                }
+                Err(e) => {
+                    eprintln!("error: writing the dataset under {} failed: {e}\n  = help: check free space and permissions; nothing was left behind", out.display());
+                    ExitCode::from(FAILED)
+                }
+            }
+        }
+    }
+}

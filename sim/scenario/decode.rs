@@ -1,0 +1,736 @@
+//! From the [`Node`] tree to a resolved [`Scenario`]: units to SI, defaults
+//! filled in, templates merged, every rule checked with its place named.
+
+use super::library;
+use super::model::*;
+use super::reader::{Ctx, Table};
+use super::source::{parse_toml, Entry, Error, Node, Sources, Val};
+use crate::units::Kind;
+use std::path::{Path, PathBuf};
+
+/// Reads and checks a scenario file (and the templates it uses).
+pub fn load(path: &Path) -> Result<Scenario, Error> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| Error::file(path, format!("cannot read the scenario: {e}"), "check the path"))?;
+    load_str(path, text)
+}
+
+/// Like [`load`], with the text given; `path` names it in errors and decides
+/// where templates are looked up.
+pub fn load_str(path: &Path, text: String) -> Result<Scenario, Error> {
+    let mut sources = Sources::default();
+    let file = sources.add(path, text);
+    let root = parse_toml(&sources, file)?;
+    let library_dirs = library_dirs(path, &root, &sources)?;
+    // Templates are read into `sources` first, so errors can point into them.
+    let mut templates: Vec<(String, usize, Node)> = Vec::new();
+    collect_templates(&root, &library_dirs, &mut sources, &mut templates)?;
+    let ctx = Ctx { sources: &sources };
+    let name = path.file_stem().map(|s| s.to_string_lossy().to_string()).unwrap_or_else(|| "scenario".into());
+    decode(&ctx, &root, name, &templates)
+}
+
+fn library_dirs(path: &Path, root: &Node, sources: &Sources) -> Result<Vec<PathBuf>, Error> {
+    let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    let mut dirs = Vec::new();
+    if let Val::Table(entries) = &root.v {
+        if let Some(e) = entries.iter().find(|e| e.key == "library") {
+            let ctx = Ctx { sources };
+            dirs.push(base.join(ctx.string(&e.node, "library")?));
+        }
+    }
+    dirs.push(base.join("library"));
+    Ok(dirs)
+}
+
+fn collect_templates(root: &Node, dirs: &[PathBuf], sources: &mut Sources, out: &mut Vec<(String, usize, Node)>) -> Result<(), Error> {
+    let Val::Table(entries) = &root.v else { return Ok(()) };
+    let Some(apps) = entries.iter().find(|e| e.key == "appliance") else { return Ok(()) };
+    let Val::Arr(list) = &apps.node.v else { return Ok(()) };
+    for (i, app) in list.iter().enumerate() {
+        let Val::Table(fields) = &app.v else { continue };
+        let Some(t) = fields.iter().find(|e| e.key == "template") else { continue };
+        let Val::Str(name) = &t.node.v else { continue };
+        if out.iter().any(|(n, _, _)| n == name) {
+            continue;
+        }
+        let found = dirs.iter().map(|d| d.join(format!("{name}.toml"))).find(|p| p.is_file());
+        let (tpath, text) = match found {
+            Some(p) => {
+                let text = std::fs::read_to_string(&p)
+                    .map_err(|e| Error::file(&p, format!("cannot read the template: {e}"), "check its permissions"))?;
+                (p, text)
+            }
+            None => match library::builtin(name) {
+                Some(text) => (PathBuf::from(format!("<built-in library>/{name}.toml")), text.to_string()),
+                None => {
+                    let ctx = Ctx { sources };
+                    return Err(ctx.err(
+                        &t.node,
+                        &format!("appliance[{i}].template"),
+                        format!("no template named \"{name}\""),
+                        format!("templates built in: {}; or put {name}.toml in {}", library::names().join(", "), dirs[0].display()),
+                    ));
+                }
+            },
+        };
+        let file = sources.add(&tpath, text);
+        let node = parse_toml(sources, file)?;
+        out.push((name.clone(), file, node));
+    }
+    Ok(())
+}
+
+/// Overlays `over` on `base`: keys of `over` win; tables merge key by key.
+fn merge(base: &Node, over: &Node) -> Node {
+    match (&base.v, &over.v) {
+        (Val::Table(b), Val::Table(o)) => {
+            let mut out: Vec<Entry> = b.clone();
+            for e in o {
+                if let Some(slot) = out.iter_mut().find(|x| x.key == e.key) {
+                    slot.node = merge(&slot.node, &e.node);
+                    slot.key_src = e.key_src.clone();
+                } else {
+                    out.push(e.clone());
+                }
+            }
+            Node { v: Val::Table(out), src: over.src.clone() }
+        }
+        _ => over.clone(),
+    }
+}
+
+fn decode(ctx: &Ctx, root: &Node, name: String, templates: &[(String, usize, Node)]) -> Result<Scenario, Error> {
+    let top = ctx.table(root, "")?;
+    let _ = top.opt("library");
+    let home = decode_home(ctx, top.req("home", "the [home] section: supply, voltage, timezone")?)?;
+    let run = decode_run(ctx, top.req("run", "the [run] section: start and length")?, &home)?;
+    let meter = match top.opt("meter") {
+        Some(n) => decode_meter(ctx, n, &run)?,
+        None => Meter { interval_s: run.step_s, noise_relative: 0.0, noise_floor_w: 0.0, resolution_w: 0.0 },
+    };
+    let apps_node = top.req("appliance", "one [[appliance]] section per appliance")?;
+    let list = ctx.array(apps_node, "appliance")?;
+    if list.is_empty() {
+        return Err(ctx.err(apps_node, "appliance", "a home needs at least one appliance", "add an [[appliance]] section"));
+    }
+    let mut appliances: Vec<Appliance> = Vec::new();
+    for (i, node) in list.iter().enumerate() {
+        let path = format!("appliance[{i}]");
+        let merged;
+        let mut node = node;
+        let mut template = None;
+        if let Val::Table(fields) = &node.v {
+            if let Some(t) = fields.iter().find(|e| e.key == "template") {
+                if let Val::Str(tname) = &t.node.v {
+                    let (_, _, tnode) = templates.iter().find(|(n, _, _)| n == tname).expect("templates collected");
+                    let tt = ctx.table(tnode, tname)?;
+                    let inner = tt.req("appliance", "the template's [appliance] section")?;
+                    tt.finish()?;
+                    merged = merge(inner, node);
+                    node = &merged;
+                    template = Some(tname.clone());
+                }
+            }
+        }
+        let app = decode_appliance(ctx, node, &path, &home, template)?;
+        if let Some(prev) = appliances.iter().position(|a| a.id == app.id) {
+            let id_node = ctx.table(node, &path)?.opt("id").unwrap_or(node);
+            return Err(ctx.err(id_node, &format!("{path}.id"), format!("id \"{}\" is already used by appliance[{prev}]", app.id), "give every appliance its own id"));
+        }
+        appliances.push(app);
+    }
+    top.finish()?;
+    Ok(Scenario { name, home, run, meter, appliances })
+}
+
+fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
+    let t = ctx.table(node, "home")?;
+    let label = t.string("label")?.unwrap_or("").to_string();
+    let supply_node = t.req("supply", "split-phase, three-phase or single-phase")?;
+    let supply = match ctx.string(supply_node, "home.supply")? {
+        "split-phase" => SupplyKind::SplitPhase,
+        "three-phase" => SupplyKind::ThreePhase,
+        "single-phase" => SupplyKind::SinglePhase,
+        other => {
+            return Err(ctx.err(supply_node, "home.supply", format!("unknown supply \"{other}\""), "write \"split-phase\", \"three-phase\" or \"single-phase\""))
+        }
+    };
+    let voltage_v = match t.positive("voltage", Kind::Voltage)? {
+        Some(v) => v,
+        None => match supply {
+            SupplyKind::SplitPhase => 120.0,
+            _ => 230.0,
+        },
+    };
+    let frequency_hz = match t.opt("frequency") {
+        Some(n) => {
+            let f = ctx.positive(n, "home.frequency", Kind::Frequency)?;
+            if f != 50.0 && f != 60.0 {
+                return Err(ctx.err(n, "home.frequency", format!("{f} Hz is not a mains frequency"), "write \"50 Hz\" or \"60 Hz\""));
+            }
+            f
+        }
+        // 120 V and 277 V systems are North American (60 Hz); 230 V ones 50 Hz.
+        None if voltage_v < 200.0 || (voltage_v - 277.0).abs() < 1.0 => 60.0,
+        None => 50.0,
+    };
+    let service_a = t.positive("service", Kind::Current)?.unwrap_or(100.0);
+    let tz_node = t.req("timezone", "an IANA time zone such as \"America/Chicago\" or \"Europe/Berlin\"")?;
+    let timezone = ctx.string(tz_node, "home.timezone")?.to_string();
+    if jiff::tz::TimeZone::get(&timezone).is_err() {
+        return Err(ctx.err(tz_node, "home.timezone", format!("unknown time zone \"{timezone}\""), "write an IANA time zone name such as \"America/Chicago\" or \"Europe/Berlin\""));
+    }
+    // Normal band: ANSI C84.1 Range A is ±5 % around 120 V (114–126 V); IEC 60038
+    // allows ±10 % around 230 V (both from memory).
+    let band_default = if frequency_hz == 60.0 { 0.05 } else { 0.10 };
+    // Source impedance defaults: for 230 V the IEC 60725 reference impedance
+    // (0.24 + j0.15 Ω phase, 0.16 + j0.10 Ω neutral, from memory); for 60 Hz
+    // services a stiffer illustrative 0.05 + j0.03 Ω (common practice, no source).
+    let (lr, lx, nr, nx) = if frequency_hz == 50.0 { (0.24, 0.15, 0.16, 0.10) } else { (0.05, 0.03, 0.05, 0.03) };
+    let source = match t.opt("source") {
+        None => Source { variation: 0.01, variation_time_s: 1800.0, band: band_default, line_r_ohm: lr, line_x_ohm: lx, neutral_r_ohm: nr, neutral_x_ohm: nx },
+        Some(n) => {
+            let s = ctx.table(n, "home.source")?;
+            let src = Source {
+                variation: s.non_negative("variation", Kind::Fraction)?.unwrap_or(0.01),
+                variation_time_s: s.positive("period", Kind::Duration)?.unwrap_or(1800.0),
+                band: s.non_negative("band", Kind::Fraction)?.unwrap_or(band_default),
+                line_r_ohm: s.non_negative("r", Kind::Impedance)?.unwrap_or(lr),
+                line_x_ohm: s.non_negative("x", Kind::Impedance)?.unwrap_or(lx),
+                neutral_r_ohm: s.non_negative("neutral_r", Kind::Impedance)?.unwrap_or(nr),
+                neutral_x_ohm: s.non_negative("neutral_x", Kind::Impedance)?.unwrap_or(nx),
+            };
+            s.finish()?;
+            src
+        }
+    };
+    t.finish()?;
+    Ok(Home { label, supply, voltage_v, frequency_hz, service_a, timezone, source })
+}
+
+fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
+    let t = ctx.table(node, "run")?;
+    let start_node = t.req("start", "the local start time, e.g. \"2027-01-04T00:00\"")?;
+    let start_local = match &start_node.v {
+        Val::Str(s) | Val::Date(s) => s.clone(),
+        _ => return Err(ctx.err(start_node, "run.start", "expected a local date-time", "write \"2027-01-04T00:00\"")),
+    };
+    let civil: jiff::civil::DateTime = start_local.parse().map_err(|e| {
+        ctx.err(start_node, "run.start", format!("\"{start_local}\" is not a local date-time ({e})"), "write \"YYYY-MM-DDTHH:MM\", in the home's time zone, without an offset")
+    })?;
+    let tz = jiff::tz::TimeZone::get(&home.timezone).expect("checked in home");
+    let zoned = civil.to_zoned(tz).map_err(|e| ctx.err(start_node, "run.start", format!("cannot place {start_local} in {}: {e}", home.timezone), "choose another start time"))?;
+    let start_utc_ms = zoned.timestamp().as_millisecond();
+    let step_s = t.positive("step", Kind::Duration)?.unwrap_or(1.0);
+    let step_node = t.opt("step").unwrap_or(node);
+    if (step_s * 1000.0).fract().abs() > 1e-9 || step_s > 60.0 {
+        return Err(ctx.err(step_node, "run.step", format!("step {step_s} s is not a whole number of milliseconds up to a minute"), "write \"1 s\" (the usual) or another step from \"100 ms\" to \"1 min\""));
+    }
+    let length_node = t.req("length", "how long to simulate, e.g. \"7 d\"")?;
+    let length_s = ctx.positive(length_node, "run.length", Kind::Duration)?;
+    if ((length_s / step_s).round() - length_s / step_s).abs() > 1e-6 {
+        return Err(ctx.err(length_node, "run.length", "the length is not a whole number of steps", format!("make it a multiple of the step ({step_s} s)")));
+    }
+    let seed = match t.opt("seed") {
+        Some(n) => match n.v {
+            Val::Int(i) if i >= 0 => i as u64,
+            _ => return Err(ctx.err(n, "run.seed", "expected a whole number zero or more", "write seed = 7")),
+        },
+        None => 1,
+    };
+    t.finish()?;
+    Ok(Run { start_local, start_utc_ms, length_s, step_s, seed })
+}
+
+fn decode_meter(ctx: &Ctx, node: &Node, run: &Run) -> Result<Meter, Error> {
+    let t = ctx.table(node, "meter")?;
+    let interval_s = t.positive("interval", Kind::Duration)?.unwrap_or(run.step_s);
+    let inode = t.opt("interval").unwrap_or(node);
+    let k = interval_s / run.step_s;
+    if (k.round() - k).abs() > 1e-9 || !(1.0..=3600.0).contains(&interval_s) && interval_s < run.step_s || interval_s > 3600.0 {
+        return Err(ctx.err(inode, "meter.interval", format!("reporting interval {interval_s} s must be a whole number of steps ({} s), at most 1 h", run.step_s), "write \"1 s\", \"10 s\", \"1 min\", \"15 min\" or \"1 h\""));
+    }
+    if ((run.length_s / interval_s).round() - run.length_s / interval_s).abs() > 1e-6 {
+        return Err(ctx.err(inode, "meter.interval", "the run length is not a whole number of reporting intervals", "choose an interval that divides the run length"));
+    }
+    let (mut rel, mut floor) = (0.0, 0.0);
+    if let Some(n) = t.opt("noise") {
+        let nt = ctx.table(n, "meter.noise")?;
+        rel = nt.non_negative("relative", Kind::Fraction)?.unwrap_or(0.0);
+        floor = nt.non_negative("floor", Kind::Power)?.unwrap_or(0.0);
+        nt.finish()?;
+    }
+    let resolution_w = t.non_negative("resolution", Kind::Power)?.unwrap_or(0.0);
+    t.finish()?;
+    Ok(Meter { interval_s, noise_relative: rel, noise_floor_w: floor, resolution_w })
+}
+
+fn check_id(ctx: &Ctx, node: &Node, path: &str, id: &str) -> Result<(), Error> {
+    let ok = id.chars().next().is_some_and(|c| c.is_ascii_lowercase()) && id.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
+    if !ok {
+        return Err(ctx.err(node, path, format!("\"{id}\" is not a valid id"), "ids start with a lower-case letter and hold only a-z, 0-9 and _ (e.g. \"water_heater\")"));
+    }
+    if id == "unmetered" || id == "total" || id == "time" {
+        return Err(ctx.err(node, path, format!("\"{id}\" is reserved"), "choose another id"));
+    }
+    Ok(())
+}
+
+/// Parses a wiring such as `L1-N`, `L2-L3` or `3P` and checks the supply has it.
+pub fn parse_wiring(ctx: &Ctx, node: &Node, path: &str, supply: SupplyKind) -> Result<Connection, Error> {
+    let text = ctx.string(node, path)?;
+    let n = supply.lines();
+    let accepted = accepted_wirings(supply);
+    let bad = |msg: String| ctx.err(node, path, msg, format!("a {} supply accepts: {}", supply.name(), accepted.join(", ")));
+    if text == "3P" {
+        if n != 3 {
+            return Err(bad(format!("\"3P\" needs a three-phase supply; this home is {}", supply.name())));
+        }
+        return Ok(Connection::ThreePhase);
+    }
+    let term = |s: &str| -> Option<u8> {
+        match s {
+            "N" => Some(NEUTRAL),
+            "L1" => Some(0),
+            "L2" => Some(1),
+            "L3" => Some(2),
+            _ => None,
+        }
+    };
+    let parts: Vec<&str> = text.split('-').collect();
+    if parts.len() != 2 {
+        return Err(bad(format!("\"{text}\" is not a wiring")));
+    }
+    let (Some(a), Some(b)) = (term(parts[0]), term(parts[1])) else {
+        return Err(bad(format!("\"{text}\" is not a wiring")));
+    };
+    if a == b {
+        return Err(bad(format!("\"{text}\" connects a terminal to itself")));
+    }
+    for t in [a, b] {
+        if t != NEUTRAL && t as usize >= n {
+            return Err(bad(format!("{} does not exist on a {} supply", terminal_name(t), supply.name())));
+        }
+    }
+    // Canonical order: neutral last; line pairs in the cyclic order L1-L2, L2-L3, L3-L1.
+    let c = match (a, b) {
+        (NEUTRAL, x) => Connection::Pair(x, NEUTRAL),
+        (x, NEUTRAL) => Connection::Pair(x, NEUTRAL),
+        _ if n == 2 => Connection::Pair(0, 1),
+        (x, y) if (x + 1) % (n as u8) == y => Connection::Pair(x, y),
+        (x, y) => Connection::Pair(y, x),
+    };
+    Ok(c)
+}
+
+fn accepted_wirings(supply: SupplyKind) -> Vec<&'static str> {
+    match supply {
+        SupplyKind::SinglePhase => vec!["L1-N"],
+        SupplyKind::SplitPhase => vec!["L1-N", "L2-N", "L1-L2"],
+        SupplyKind::ThreePhase => vec!["L1-N", "L2-N", "L3-N", "L1-L2", "L2-L3", "L3-L1", "3P"],
+    }
+}
+
+/// Nominal voltage across a connection: V_LN to neutral; between two lines
+/// 2·V_LN on split-phase and √3·V_LN on a wye supply (IEC 60038, ANSI C84.1).
+pub fn connection_voltage(home: &Home, c: Connection) -> f64 {
+    match c {
+        Connection::ThreePhase => home.voltage_v * 3f64.sqrt(),
+        Connection::Pair(_, NEUTRAL) => home.voltage_v,
+        Connection::Pair(_, _) => match home.supply {
+            SupplyKind::SplitPhase => 2.0 * home.voltage_v,
+            _ => home.voltage_v * 3f64.sqrt(),
+        },
+    }
+}
+
+struct DrawDefaults {
+    wiring: Connection,
+    load: LoadKind,
+}
+
+fn decode_app_load(ctx: &Ctx, t: &Table, default: LoadKind) -> Result<LoadKind, Error> {
+    match t.opt("load") {
+        None => Ok(default),
+        Some(n) => {
+            let s = ctx.string(n, &t.path_of("load"))?;
+            LoadKind::ALL.iter().find(|(name, _)| *name == s).map(|x| x.1).ok_or_else(|| {
+                ctx.err(n, &t.path_of("load"), format!("unknown load kind \"{s}\""), "write \"resistive\", \"motor\", \"electronic\" or \"lighting\" (or give zip = { z, i, p })")
+            })
+        }
+    }
+}
+
+fn decode_zip(ctx: &Ctx, t: &Table, key: &'static str, default: Zip) -> Result<Zip, Error> {
+    let Some(n) = t.opt(key) else { return Ok(default) };
+    let path = t.path_of(key);
+    let zt = ctx.table(n, &path)?;
+    let z = zt.number("z")?.unwrap_or(0.0);
+    let i = zt.number("i")?.unwrap_or(0.0);
+    let p = zt.number("p")?.unwrap_or(0.0);
+    zt.finish()?;
+    if (z + i + p - 1.0).abs() > 1e-6 {
+        return Err(ctx.err(n, &path, format!("ZIP fractions sum to {}, not 1", z + i + p), "make z + i + p = 1 (for example { z = 0.5, i = 0.2, p = 0.3 })"));
+    }
+    Ok(Zip { z, i, p })
+}
+
+/// Reads the keys of one draw (power, pf or q, wiring, load, zip, rated) from `t`.
+fn decode_draw_fields(ctx: &Ctx, t: &Table, home: &Home, defaults: &DrawDefaults) -> Result<Draw, Error> {
+    let wiring = match t.opt("wiring") {
+        Some(n) => parse_wiring(ctx, n, &t.path_of("wiring"), home.supply)?,
+        None => defaults.wiring,
+    };
+    let load = decode_app_load(ctx, t, defaults.load)?;
+    let zip_p = decode_zip(ctx, t, "zip", load.default_zip_p())?;
+    let zip_q = decode_zip(ctx, t, "zip_q", if t.has("zip") { zip_p } else { load.default_zip_q() })?;
+    let pnode = t.req("power", "the real power, e.g. \"1.5 kW\"")?;
+    let mut p_w = ctx.non_negative(pnode, &t.path_of("power"), Kind::Power)?;
+    let mut q_var = match (t.opt("pf"), t.opt("q")) {
+        (Some(n), Some(_)) => return Err(ctx.err(n, &t.path_of("pf"), "both pf and q are given", "give either pf (0 < pf ≤ 1, lagging) or q (reactive power with its sign)")),
+        (Some(n), None) => {
+            let pf = ctx.number(n, &t.path_of("pf"))?;
+            if !(pf > 0.0 && pf <= 1.0) {
+                return Err(ctx.err(n, &t.path_of("pf"), format!("power factor {pf} is outside (0, 1]"), "write a power factor such as 0.85 (lagging); for a leading load give q with a negative sign"));
+            }
+            p_w * (1.0 - pf * pf).sqrt() / pf
+        }
+        (None, Some(n)) => ctx.quantity(n, &t.path_of("q"), Kind::Reactive)?,
+        (None, None) => 0.0,
+    };
+    let nominal_v = connection_voltage(home, wiring);
+    // A draw rated at another voltage (a 240 V water heater on a 208 V
+    // apartment's two lines) gives its power at that voltage; at this
+    // connection's nominal voltage it draws what its ZIP model says.
+    if let Some(n) = t.opt("rated") {
+        let rated = ctx.positive(n, &t.path_of("rated"), Kind::Voltage)?;
+        let u = nominal_v / rated;
+        p_w *= zip_p.factor(u);
+        q_var *= zip_q.factor(u);
+    }
+    Ok(Draw { wiring, p_w, q_var, load, zip_p, zip_q, nominal_v })
+}
+
+/// Reads a state's draws: either a `draws` array or the draw keys on the state itself.
+fn decode_draws(ctx: &Ctx, t: &Table, home: &Home, defaults: &DrawDefaults) -> Result<Vec<Draw>, Error> {
+    if let Some(n) = t.opt("draws") {
+        for k in ["power", "pf", "q", "wiring", "zip", "zip_q", "rated", "load"] {
+            if t.has(k) {
+                let e = t.entries().iter().find(|e| e.key == k).unwrap();
+                return Err(Error::at(ctx.sources, &e.key_src, &t.path_of(k), format!("`{k}` given beside `draws`"), "put it inside each entry of `draws`"));
+            }
+        }
+        let list = ctx.array(n, &t.path_of("draws"))?;
+        if list.is_empty() {
+            return Err(ctx.err(n, &t.path_of("draws"), "`draws` is empty", "list at least one draw, or write power = \"0 W\""));
+        }
+        let mut out = Vec::new();
+        for (j, d) in list.iter().enumerate() {
+            let dt = ctx.table(d, &format!("{}[{j}]", t.path_of("draws")))?;
+            out.push(decode_draw_fields(ctx, &dt, home, defaults)?);
+            dt.finish()?;
+        }
+        Ok(out)
+    } else {
+        Ok(vec![decode_draw_fields(ctx, t, home, defaults)?])
+    }
+}
+
+fn decode_inrush(ctx: &Ctx, t: &Table) -> Result<Option<Inrush>, Error> {
+    let Some(n) = t.opt("inrush") else { return Ok(None) };
+    let path = t.path_of("inrush");
+    let it = ctx.table(n, &path)?;
+    let pnode = it.req("peak", "the multiple of steady power at switch-on, e.g. 5.0")?;
+    let peak = ctx.number(pnode, &it.path_of("peak"))?;
+    if !(1.0..=20.0).contains(&peak) {
+        return Err(ctx.err(pnode, &it.path_of("peak"), format!("inrush peak {peak} is outside 1 … 20"), "write the multiple of steady power, e.g. peak = 5.0"));
+    }
+    let decay_s = ctx.positive(it.req("decay", "the decay time constant, e.g. \"1.5 s\"")?, &it.path_of("decay"), Kind::Duration)?;
+    it.finish()?;
+    Ok(Some(Inrush { peak, decay_s }))
+}
+
+pub fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Error> {
+    if let Val::Str(_) = node.v {
+        return Ok(Dist::Fixed { value_s: ctx.positive(node, path, Kind::Duration)? });
+    }
+    let t = ctx.table(node, path)?;
+    let help = "write a duration (\"13 min\"), { median = \"13 min\", spread = 0.25 } (lognormal), { min = \"5 min\", max = \"9 min\" } (uniform) or { mean = \"40 min\", shape = 4 } (gamma)";
+    let d = if t.has("median") {
+        let median_s = t.positive("median", Kind::Duration)?.unwrap();
+        let sn = t.req("spread", "the standard deviation of ln(duration), e.g. 0.25")?;
+        let spread = ctx.number(sn, &t.path_of("spread"))?;
+        if spread <= 0.0 {
+            return Err(ctx.err(sn, &t.path_of("spread"), "spread must be greater than zero", "write the standard deviation of ln(duration), e.g. spread = 0.25"));
+        }
+        Dist::Lognormal { median_s, spread }
+    } else if t.has("min") || t.has("max") {
+        let min_s = t.positive("min", Kind::Duration)?.ok_or_else(|| ctx.err(node, path, "uniform needs `min`", help))?;
+        let max_s = t.positive("max", Kind::Duration)?.ok_or_else(|| ctx.err(node, path, "uniform needs `max`", help))?;
+        if max_s <= min_s {
+            return Err(ctx.err(node, path, "max must be greater than min", help));
+        }
+        Dist::Uniform { min_s, max_s }
+    } else if t.has("mean") {
+        let mean_s = t.positive("mean", Kind::Duration)?.unwrap();
+        let sn = t.req("shape", "the gamma shape k, e.g. 4")?;
+        let shape = ctx.number(sn, &t.path_of("shape"))?;
+        if shape <= 0.0 {
+            return Err(ctx.err(sn, &t.path_of("shape"), "shape must be greater than zero", "write the gamma shape k, e.g. shape = 4"));
+        }
+        Dist::Gamma { mean_s, shape }
+    } else if t.has("fixed") {
+        Dist::Fixed { value_s: t.positive("fixed", Kind::Duration)?.unwrap() }
+    } else {
+        return Err(ctx.err(node, path, "not a duration distribution", help));
+    };
+    t.finish()?;
+    Ok(d)
+}
+
+fn parse_hours(ctx: &Ctx, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
+    let help = "write hours = \"17-22\" (local hours 17:00 to 22:00), \"6-9,17-22\", or 24 weights [w0, …, w23]";
+    let mut w = vec![0.0; 24];
+    match &node.v {
+        Val::Str(s) => {
+            for part in s.split(',') {
+                let (a, b) = part.trim().split_once('-').ok_or_else(|| ctx.err(node, path, format!("\"{part}\" is not an hour range"), help))?;
+                let a: usize = a.trim().parse().map_err(|_| ctx.err(node, path, format!("\"{a}\" is not an hour"), help))?;
+                let b: usize = b.trim().parse().map_err(|_| ctx.err(node, path, format!("\"{b}\" is not an hour"), help))?;
+                if a > 23 || b > 24 || a == b {
+                    return Err(ctx.err(node, path, format!("\"{part}\" is not a range of hours within 0 … 24"), help));
+                }
+                // A range that wraps past midnight ("22-6") is allowed.
+                let len = if b > a { b - a } else { b + 24 - a };
+                for k in 0..len {
+                    w[(a + k) % 24] = 1.0;
+                }
+            }
+        }
+        Val::Arr(list) => {
+            if list.len() != 24 {
+                return Err(ctx.err(node, path, format!("{} weights given, 24 needed", list.len()), help));
+            }
+            for (i, n) in list.iter().enumerate() {
+                let x = ctx.number(n, &format!("{path}[{i}]"))?;
+                if x < 0.0 {
+                    return Err(ctx.err(n, &format!("{path}[{i}]"), "a weight cannot be negative", help));
+                }
+                w[i] = x;
+            }
+        }
+        _ => return Err(ctx.err(node, path, format!("expected an hour range or 24 weights, found {}", node.type_name()), help)),
+    }
+    let sum: f64 = w.iter().sum();
+    if sum <= 0.0 {
+        return Err(ctx.err(node, path, "no hour has any weight", help));
+    }
+    Ok(w.iter().map(|x| x / sum).collect())
+}
+
+fn decode_habit(ctx: &Ctx, node: &Node, path: &str) -> Result<Habit, Error> {
+    let t = ctx.table(node, path)?;
+    let sn = t.req("starts_per_day", "the mean number of starts per day, e.g. 0.6")?;
+    let starts = ctx.number(sn, &t.path_of("starts_per_day"))?;
+    if !(0.0..=100.0).contains(&starts) {
+        return Err(ctx.err(sn, &t.path_of("starts_per_day"), "starts per day must be within 0 … 100", "write e.g. starts_per_day = 0.6"));
+    }
+    let weekend = match t.opt("weekend_starts_per_day") {
+        Some(n) => {
+            let w = ctx.number(n, &t.path_of("weekend_starts_per_day"))?;
+            if !(0.0..=100.0).contains(&w) {
+                return Err(ctx.err(n, &t.path_of("weekend_starts_per_day"), "starts per day must be within 0 … 100", "write e.g. weekend_starts_per_day = 1.2"));
+            }
+            w
+        }
+        None => starts,
+    };
+    let hour_weights = match t.opt("hours") {
+        Some(n) => parse_hours(ctx, n, &t.path_of("hours"))?,
+        None => vec![1.0 / 24.0; 24],
+    };
+    t.finish()?;
+    Ok(Habit { starts_per_day: starts, weekend_starts_per_day: weekend, hour_weights })
+}
+
+fn state_name(ctx: &Ctx, t: &Table, fallback: &str) -> Result<String, Error> {
+    let name = t.string("name")?.unwrap_or(fallback).to_string();
+    if name.is_empty() {
+        return Err(ctx.err(t.node, &t.path_of("name"), "a state name cannot be empty", "write name = \"on\""));
+    }
+    Ok(name)
+}
+
+fn read_state<'n, 's, 'c>(ctx: &'c Ctx<'s>, n: &'n Node, p: String, fallback: &str, home: &Home, defaults: &DrawDefaults) -> Result<(State, Table<'n, 's, 'c>), Error> {
+    let st = ctx.table(n, &p)?;
+    let name = state_name(ctx, &st, fallback)?;
+    let draws = decode_draws(ctx, &st, home, defaults)?;
+    let inrush = decode_inrush(ctx, &st)?;
+    Ok((State { name, draws, inrush }, st))
+}
+
+fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: Option<String>) -> Result<Appliance, Error> {
+    let t = ctx.table(node, path)?;
+    let _ = t.opt("template");
+    let id_node = t.req("id", "a short id such as \"fridge\"")?;
+    let id = ctx.string(id_node, &t.path_of("id"))?.to_string();
+    check_id(ctx, id_node, &t.path_of("id"), &id)?;
+    let path = format!("appliance[{id}]");
+    let t = Table::rebase(t, path.clone());
+    let label = t.string("label")?.unwrap_or(&id).to_string();
+    let wnode = t.req("wiring", "where it is connected, e.g. \"L1-N\", \"L1-L2\" or \"3P\"")?;
+    let wiring = parse_wiring(ctx, wnode, &t.path_of("wiring"), home.supply)?;
+    let load = decode_app_load(ctx, &t, LoadKind::Resistive)?;
+    let defaults = DrawDefaults { wiring, load };
+    let bnode = t.req("behaviour", "cycle, program, markov, steady or modulating")?;
+    let bname = ctx.string(bnode, &t.path_of("behaviour"))?;
+
+    let read_state = |n, p, fallback: String| read_state(ctx, n, p, &fallback, home, &defaults);
+    let states_list = |key: &'static str| -> Result<&[Node], Error> {
+        let n = t.req(key, "a list of states")?;
+        let l = ctx.array(n, &t.path_of(key))?;
+        if l.is_empty() {
+            return Err(ctx.err(n, &t.path_of(key), format!("`{key}` is empty"), "list at least one"));
+        }
+        Ok(l)
+    };
+
+    let mut states: Vec<State> = Vec::new();
+    let behaviour = match bname {
+        "cycle" => {
+            let list = states_list("states")?;
+            let mut dwell = Vec::new();
+            for (i, n) in list.iter().enumerate() {
+                let (s, st) = read_state(n, format!("{path}.states[{i}]"), format!("s{i}"))?;
+                dwell.push(decode_dist(ctx, st.req("dwell", "how long it stays in this state")?, &st.path_of("dwell"))?);
+                st.finish()?;
+                states.push(s);
+            }
+            let extra = match t.opt("extra") {
+                None => None,
+                Some(n) => {
+                    let (s, st) = read_state(n, t.path_of("extra"), "extra".into())?;
+                    let length = decode_dist(ctx, st.req("length", "how long the extra state lasts")?, &st.path_of("length"))?;
+                    let every_s = ctx.positive(st.req("every", "how often it comes, e.g. \"8 h\"")?, &st.path_of("every"), Kind::Duration)?;
+                    st.finish()?;
+                    states.push(s);
+                    Some(Extra { state: states.len() - 1, length, every_s })
+                }
+            };
+            Behaviour::Cycle { dwell, extra }
+        }
+        "program" => {
+            let habit = decode_habit(ctx, t.req("use", "the usage habit, e.g. { starts_per_day = 0.6, hours = \"17-22\" }")?, &t.path_of("use"))?;
+            states.push(State { name: "off".into(), draws: vec![], inrush: None });
+            let mut lengths = Vec::new();
+            for (i, n) in states_list("phases")?.iter().enumerate() {
+                let (s, st) = read_state(n, format!("{path}.phases[{i}]"), format!("phase{i}"))?;
+                lengths.push(decode_dist(ctx, st.req("length", "how long this phase lasts")?, &st.path_of("length"))?);
+                st.finish()?;
+                states.push(s);
+            }
+            Behaviour::Program { habit, lengths }
+        }
+        "markov" => {
+            let list = states_list("states")?;
+            let mut dwell = Vec::new();
+            let mut next_nodes = Vec::new();
+            for (i, n) in list.iter().enumerate() {
+                let (s, st) = read_state(n, format!("{path}.states[{i}]"), format!("s{i}"))?;
+                dwell.push(decode_dist(ctx, st.req("dwell", "how long it stays in this state")?, &st.path_of("dwell"))?);
+                let nn = st.req("next", "the probabilities of the next state, e.g. { idle = 0.7, busy = 0.3 }")?;
+                next_nodes.push((nn, st.path_of("next")));
+                st.finish()?;
+                states.push(s);
+            }
+            let mut next = Vec::new();
+            for (nn, p) in next_nodes {
+                let nt = ctx.table(nn, &p)?;
+                nt.all_keys_known();
+                let mut row = vec![0.0; states.len()];
+                for e in nt.entries() {
+                    let j = states.iter().position(|s| s.name == e.key).ok_or_else(|| {
+                        Error::at(ctx.sources, &e.key_src, &format!("{p}.{}", e.key), format!("no state named \"{}\"", e.key), format!("states here: {}", states.iter().map(|s| s.name.as_str()).collect::<Vec<_>>().join(", ")))
+                    })?;
+                    let x = ctx.number(&e.node, &format!("{p}.{}", e.key))?;
+                    if !(0.0..=1.0).contains(&x) {
+                        return Err(ctx.err(&e.node, &format!("{p}.{}", e.key), format!("probability {x} is outside 0 … 1"), "write a probability between 0 and 1"));
+                    }
+                    row[j] = x;
+                }
+                let sum: f64 = row.iter().sum();
+                if (sum - 1.0).abs() > 1e-6 {
+                    return Err(ctx.err(nn, &p, format!("the probabilities sum to {sum}, not 1"), "make the probabilities of the next state add up to 1"));
+                }
+                next.push(row);
+                nt.finish()?;
+            }
+            Behaviour::Markov { dwell, next }
+        }
+        "steady" => {
+            let list = states_list("states")?;
+            if list.len() != 1 {
+                return Err(ctx.err(t.opt("states").unwrap(), &t.path_of("states"), "a steady appliance has exactly one state", "list one state, or use behaviour = \"cycle\" or \"markov\""));
+            }
+            let (s, st) = read_state(&list[0], format!("{path}.states[0]"), "on".into())?;
+            st.finish()?;
+            states.push(s);
+            let jitter = t.non_negative("jitter", Kind::Fraction)?.unwrap_or(0.0);
+            let every_s = t.positive("every", Kind::Duration)?.unwrap_or(60.0);
+            Behaviour::Steady { jitter, every_s }
+        }
+        "modulating" => {
+            let list = states_list("states")?;
+            if list.len() > 2 {
+                return Err(ctx.err(t.opt("states").unwrap(), &t.path_of("states"), "a modulating appliance has one state (running) or two (resting, running)", "list the running state last"));
+            }
+            if list.len() == 1 {
+                states.push(State { name: "off".into(), draws: vec![], inrush: None });
+            }
+            for (i, n) in list.iter().enumerate() {
+                let (s, st) = read_state(n, format!("{path}.states[{i}]"), if i + 1 == list.len() { "run" } else { "rest" }.into())?;
+                st.finish()?;
+                states.push(s);
+            }
+            let min = t.non_negative("min", Kind::Fraction)?.unwrap_or(0.3);
+            if min > 1.0 {
+                return Err(ctx.err(t.opt("min").unwrap(), &t.path_of("min"), "min is a share of full power and cannot exceed 100 %", "write e.g. min = \"30 %\""));
+            }
+            let wander = t.non_negative("wander", Kind::Fraction)?.unwrap_or(0.05);
+            let every_s = t.positive("every", Kind::Duration)?.unwrap_or(60.0);
+            let session = match t.opt("use") {
+                None => None,
+                Some(u) => {
+                    let habit = decode_habit(ctx, u, &t.path_of("use"))?;
+                    let length = decode_dist(ctx, t.req("session", "how long a session lasts")?, &t.path_of("session"))?;
+                    let taper_s = t.non_negative("taper", Kind::Duration)?.unwrap_or(0.0);
+                    Some(Session { habit, length, taper_s })
+                }
+            };
+            Behaviour::Modulating { min, wander, every_s, session }
+        }
+        other => {
+            return Err(ctx.err(bnode, &t.path_of("behaviour"), format!("unknown behaviour \"{other}\""), "write \"cycle\", \"program\", \"markov\", \"steady\" or \"modulating\""));
+        }
+    };
+    let on_threshold_w = match t.non_negative("on_threshold", Kind::Power)? {
+        Some(x) => x,
+        None => default_threshold(&states),
+    };
+    t.finish()?;
+    Ok(Appliance { id, label, template, wiring, behaviour, states, on_threshold_w })
+}
+
+/// Default on/off threshold: halfway from the lowest state's power to the
+/// lowest state above it, but never more than 30 W above the lowest
+/// (common practice in on/off scoring, no source).
+fn default_threshold(states: &[State]) -> f64 {
+    let mut p: Vec<f64> = states.iter().map(|s| s.p_w()).collect();
+    p.sort_by(|a, b| a.partial_cmp(b).unwrap());
+    let low = p[0];
+    match p.iter().find(|&&x| x > low + 1e-9) {
+        Some(&next) => low + (0.5 * (next - low)).min(30.0),
+        None => low.max(0.0) * 0.5,
+    }
+}

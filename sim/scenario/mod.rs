@@ -1,0 +1,11 @@
+//! The scenario language: TOML with units, parsed into a resolved [`Scenario`].
+
+pub mod decode;
+pub mod library;
+pub mod model;
+pub mod reader;
+pub mod source;
+
+pub use decode::{connection_voltage, load, load_str};
+pub use model::*;
+pub use source::Error;

@@ -1,0 +1,357 @@
+//! `Scenario`: the resolved home, SI units inside, every default filled in.
+//! This is the boundary type between the scenario language and the simulator.
+
+use serde::Serialize;
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum SupplyKind {
+    SplitPhase,
+    ThreePhase,
+    SinglePhase,
+}
+
+impl SupplyKind {
+    pub fn lines(self) -> usize {
+        match self {
+            SupplyKind::SplitPhase => 2,
+            SupplyKind::ThreePhase => 3,
+            SupplyKind::SinglePhase => 1,
+        }
+    }
+    pub fn name(self) -> &'static str {
+        match self {
+            SupplyKind::SplitPhase => "split-phase",
+            SupplyKind::ThreePhase => "three-phase",
+            SupplyKind::SinglePhase => "single-phase",
+        }
+    }
+    /// Line-to-neutral phase angles in degrees.
+    /// Split-phase legs are 180° apart (ANSI C84.1, common practice); a wye
+    /// supply has L2 at −120° and L3 at +120° (positive sequence L1-L2-L3).
+    pub fn angles_deg(self) -> &'static [f64] {
+        match self {
+            SupplyKind::SplitPhase => &[0.0, 180.0],
+            SupplyKind::ThreePhase => &[0.0, -120.0, 120.0],
+            SupplyKind::SinglePhase => &[0.0],
+        }
+    }
+}
+
+/// Two terminals of the supply a draw sits between, or all three lines.
+/// Terminals are line indices 0..3; `NEUTRAL` stands for N.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Connection {
+    Pair(u8, u8),
+    ThreePhase,
+}
+
+pub const NEUTRAL: u8 = 9;
+
+impl Connection {
+    pub fn name(self) -> String {
+        match self {
+            Connection::ThreePhase => "3P".into(),
+            Connection::Pair(a, b) => format!("{}-{}", terminal_name(a), terminal_name(b)),
+        }
+    }
+    pub fn is_line_to_line(self) -> bool {
+        matches!(self, Connection::Pair(a, b) if a != NEUTRAL && b != NEUTRAL)
+    }
+    /// Line indices this connection draws current from.
+    pub fn lines(self) -> Vec<usize> {
+        match self {
+            Connection::ThreePhase => vec![0, 1, 2],
+            Connection::Pair(a, b) => [a, b].iter().filter(|&&t| t != NEUTRAL).map(|&t| t as usize).collect(),
+        }
+    }
+}
+
+impl Serialize for Connection {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(&self.name())
+    }
+}
+
+pub fn terminal_name(t: u8) -> String {
+    if t == NEUTRAL {
+        "N".into()
+    } else {
+        format!("L{}", t + 1)
+    }
+}
+
+/// Constant impedance / current / power fractions of a voltage-dependent load
+/// (ZIP model, Bokhari et al., IEEE Trans. Power Delivery 29(3), 2014):
+/// P(V) = P0 · (z·(V/V0)² + i·(V/V0) + p), with z + i + p = 1.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Zip {
+    pub z: f64,
+    pub i: f64,
+    pub p: f64,
+}
+
+impl Zip {
+    pub fn factor(&self, u: f64) -> f64 {
+        self.z * u * u + self.i * u + self.p
+    }
+}
+
+/// Kinds of load, each with default ZIP fractions. The defaults are rounded,
+/// illustrative values (from memory, in the spirit of the measured fits of
+/// Bokhari et al. 2014): heaters are constant impedance, switch-mode supplies
+/// hold their power, motors sit in between.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum LoadKind {
+    Resistive,
+    Motor,
+    Electronic,
+    Lighting,
+}
+
+impl LoadKind {
+    pub const ALL: [(&'static str, LoadKind); 4] = [
+        ("resistive", LoadKind::Resistive),
+        ("motor", LoadKind::Motor),
+        ("electronic", LoadKind::Electronic),
+        ("lighting", LoadKind::Lighting),
+    ];
+    pub fn default_zip_p(self) -> Zip {
+        match self {
+            LoadKind::Resistive => Zip { z: 1.0, i: 0.0, p: 0.0 },
+            LoadKind::Motor => Zip { z: 0.2, i: 0.3, p: 0.5 },
+            LoadKind::Electronic => Zip { z: 0.0, i: 0.0, p: 1.0 },
+            LoadKind::Lighting => Zip { z: 0.2, i: 0.4, p: 0.4 },
+        }
+    }
+    pub fn default_zip_q(self) -> Zip {
+        match self {
+            LoadKind::Resistive => Zip { z: 1.0, i: 0.0, p: 0.0 },
+            // Magnetising current grows faster than V: a larger z share.
+            LoadKind::Motor => Zip { z: 0.8, i: 0.2, p: 0.0 },
+            LoadKind::Electronic => Zip { z: 0.0, i: 0.0, p: 1.0 },
+            LoadKind::Lighting => Zip { z: 0.2, i: 0.4, p: 0.4 },
+        }
+    }
+}
+
+/// One load inside a state: complex power at the connection's nominal voltage.
+#[derive(Clone, Debug, Serialize)]
+pub struct Draw {
+    pub wiring: Connection,
+    pub p_w: f64,
+    pub q_var: f64,
+    pub load: LoadKind,
+    pub zip_p: Zip,
+    pub zip_q: Zip,
+    /// Nominal voltage across this draw's connection, V.
+    pub nominal_v: f64,
+}
+
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct Inrush {
+    /// Multiple of the steady power at switch-on.
+    pub peak: f64,
+    /// Time constant of the exponential decay, s.
+    pub decay_s: f64,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct State {
+    pub name: String,
+    pub draws: Vec<Draw>,
+    pub inrush: Option<Inrush>,
+}
+
+impl State {
+    pub fn p_w(&self) -> f64 {
+        self.draws.iter().map(|d| d.p_w).sum()
+    }
+    pub fn q_var(&self) -> f64 {
+        self.draws.iter().map(|d| d.q_var).sum()
+    }
+}
+
+/// A length or dwell distribution, in seconds.
+#[derive(Clone, Copy, Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "lowercase")]
+pub enum Dist {
+    Fixed { value_s: f64 },
+    Uniform { min_s: f64, max_s: f64 },
+    /// ln(X) ~ Normal(ln(median), spread²).
+    Lognormal { median_s: f64, spread: f64 },
+    /// Shape k and mean; scale = mean / k.
+    Gamma { mean_s: f64, shape: f64 },
+}
+
+impl Dist {
+    pub fn mean_s(&self) -> f64 {
+        match *self {
+            Dist::Fixed { value_s } => value_s,
+            Dist::Uniform { min_s, max_s } => 0.5 * (min_s + max_s),
+            Dist::Lognormal { median_s, spread } => median_s * (0.5 * spread * spread).exp(),
+            Dist::Gamma { mean_s, .. } => mean_s,
+        }
+    }
+}
+
+/// When a person starts something: starts per local day and the weight of
+/// each local hour.
+#[derive(Clone, Debug, Serialize)]
+pub struct Habit {
+    pub starts_per_day: f64,
+    pub weekend_starts_per_day: f64,
+    /// 24 non-negative weights, one per local hour, summing to 1.
+    pub hour_weights: Vec<f64>,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Extra {
+    /// Index into the appliance's states.
+    pub state: usize,
+    pub length: Dist,
+    pub every_s: f64,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Session {
+    pub habit: Habit,
+    pub length: Dist,
+    pub taper_s: f64,
+}
+
+/// How an appliance moves between its states.
+#[derive(Clone, Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "lowercase")]
+pub enum Behaviour {
+    /// Thermostatic: visits the listed states in order, each for a dwell,
+    /// with an optional periodic extra state (defrost).
+    Cycle { dwell: Vec<Dist>, extra: Option<Extra> },
+    /// Ordered phases started by a habit; state 0 is the implicit `off`.
+    Program { habit: Habit, lengths: Vec<Dist> },
+    /// Dwell per state, then a jump with the given probabilities.
+    Markov { dwell: Vec<Dist>, next: Vec<Vec<f64>> },
+    /// Always on, power scaled by (1 + jitter·N(0,1)) every `every_s`.
+    Steady { jitter: f64, every_s: f64 },
+    /// Power wanders in [min, 1] of the running state's draws, updated every
+    /// `every_s` by a reflected random walk of step `wander`; optionally only
+    /// during sessions started by a habit, tapering to `min` at their end.
+    Modulating { min: f64, wander: f64, every_s: f64, session: Option<Session> },
+}
+
+impl Behaviour {
+    pub fn name(&self) -> &'static str {
+        match self {
+            Behaviour::Cycle { .. } => "cycle",
+            Behaviour::Program { .. } => "program",
+            Behaviour::Markov { .. } => "markov",
+            Behaviour::Steady { .. } => "steady",
+            Behaviour::Modulating { .. } => "modulating",
+        }
+    }
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Appliance {
+    pub id: String,
+    pub label: String,
+    pub template: Option<String>,
+    pub wiring: Connection,
+    pub behaviour: Behaviour,
+    pub states: Vec<State>,
+    /// Power above which the appliance counts as on, W.
+    pub on_threshold_w: f64,
+}
+
+impl Appliance {
+    /// Every connection any of its draws uses, in first-seen order.
+    pub fn connections(&self) -> Vec<Connection> {
+        let mut v: Vec<Connection> = Vec::new();
+        for s in &self.states {
+            for d in &s.draws {
+                if !v.contains(&d.wiring) {
+                    v.push(d.wiring);
+                }
+            }
+        }
+        v
+    }
+    /// Line indices any of its draws takes current from, sorted.
+    pub fn lines(&self) -> Vec<usize> {
+        let mut v: Vec<usize> = self.connections().iter().flat_map(|c| c.lines()).collect();
+        v.sort();
+        v.dedup();
+        v
+    }
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Source {
+    /// Standard deviation of the slow source-voltage variation, fraction of nominal.
+    pub variation: f64,
+    /// Correlation time of that variation, s.
+    pub variation_time_s: f64,
+    /// Limit of the variation, fraction of nominal (the supply's normal band).
+    pub band: f64,
+    pub line_r_ohm: f64,
+    pub line_x_ohm: f64,
+    pub neutral_r_ohm: f64,
+    pub neutral_x_ohm: f64,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Home {
+    pub label: String,
+    pub supply: SupplyKind,
+    /// Line-to-neutral nominal voltage, V.
+    pub voltage_v: f64,
+    pub frequency_hz: f64,
+    pub service_a: f64,
+    pub timezone: String,
+    pub source: Source,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Run {
+    /// Local start time as written, in the home's time zone.
+    pub start_local: String,
+    /// The same instant in milliseconds since 1970-01-01 UTC.
+    pub start_utc_ms: i64,
+    pub length_s: f64,
+    pub step_s: f64,
+    pub seed: u64,
+}
+
+impl Run {
+    pub fn steps(&self) -> u64 {
+        (self.length_s / self.step_s).round() as u64
+    }
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Meter {
+    pub interval_s: f64,
+    pub noise_relative: f64,
+    pub noise_floor_w: f64,
+    /// Quantisation step of P and Q readings, W (0 = none).
+    pub resolution_w: f64,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Scenario {
+    pub name: String,
+    pub home: Home,
+    pub run: Run,
+    pub meter: Meter,
+    pub appliances: Vec<Appliance>,
+}
+
+impl Scenario {
+    pub fn steps_per_interval(&self) -> u64 {
+        (self.meter.interval_s / self.run.step_s).round() as u64
+    }
+    pub fn intervals(&self) -> u64 {
+        self.run.steps() / self.steps_per_interval()
+    }
+}

@@ -1,0 +1,164 @@
+//! Typed reading of a [`Node`] tree: every key that is read is remembered, so
+//! a key nobody asked for is reported as unknown, with the keys that would be
+//! accepted.
+
+use super::source::{Entry, Error, Node, Sources, Val};
+use crate::units::{parse_quantity, Kind};
+use std::cell::RefCell;
+
+pub struct Ctx<'s> {
+    pub sources: &'s Sources,
+}
+
+impl<'s> Ctx<'s> {
+    pub fn err(&self, node: &Node, path: &str, msg: impl Into<String>, help: impl Into<String>) -> Error {
+        Error::at(self.sources, &node.src, path, msg, help)
+    }
+
+    pub fn table<'n>(&self, node: &'n Node, path: &str) -> Result<Table<'n, 's, '_>, Error> {
+        match &node.v {
+            Val::Table(entries) => Ok(Table { ctx: self, node, entries, path: path.to_string(), asked: RefCell::new(Vec::new()) }),
+            _ => Err(self.err(node, path, format!("expected a table here, found {}", node.type_name()), "write `{ key = value, ... }` or a [section]")),
+        }
+    }
+
+    pub fn array<'n>(&self, node: &'n Node, path: &str) -> Result<&'n [Node], Error> {
+        match &node.v {
+            Val::Arr(a) => Ok(a),
+            _ => Err(self.err(node, path, format!("expected an array here, found {}", node.type_name()), "write `[ ..., ... ]`")),
+        }
+    }
+
+    pub fn string<'n>(&self, node: &'n Node, path: &str) -> Result<&'n str, Error> {
+        match &node.v {
+            Val::Str(s) => Ok(s),
+            _ => Err(self.err(node, path, format!("expected a string, found {}", node.type_name()), "put the value in double quotes")),
+        }
+    }
+
+    pub fn number(&self, node: &Node, path: &str) -> Result<f64, Error> {
+        match node.v {
+            Val::Int(i) => Ok(i as f64),
+            Val::Float(f) if f.is_finite() => Ok(f),
+            _ => Err(self.err(node, path, format!("expected a number, found {}", node.type_name()), "write a plain number such as 0.6")),
+        }
+    }
+
+    pub fn quantity(&self, node: &Node, path: &str, kind: Kind) -> Result<f64, Error> {
+        match &node.v {
+            Val::Str(s) => parse_quantity(s, kind).map_err(|m| self.err(node, path, m, format!("write {}", kind.example()))),
+            Val::Int(_) | Val::Float(_) if kind == Kind::Fraction => self.number(node, path),
+            Val::Int(_) | Val::Float(_) => Err(self.err(
+                node,
+                path,
+                format!("a {} needs a unit", kind.name()),
+                format!("write {}", kind.example()),
+            )),
+            _ => Err(self.err(node, path, format!("expected {}, found {}", kind.example(), node.type_name()), format!("write {}", kind.example()))),
+        }
+    }
+
+    /// A quantity that must be strictly positive.
+    pub fn positive(&self, node: &Node, path: &str, kind: Kind) -> Result<f64, Error> {
+        let v = self.quantity(node, path, kind)?;
+        if v <= 0.0 {
+            return Err(self.err(node, path, format!("a {} here must be greater than zero", kind.name()), format!("write {}", kind.example())));
+        }
+        Ok(v)
+    }
+
+    /// A quantity that must be zero or more.
+    pub fn non_negative(&self, node: &Node, path: &str, kind: Kind) -> Result<f64, Error> {
+        let v = self.quantity(node, path, kind)?;
+        if v < 0.0 {
+            return Err(self.err(node, path, format!("a {} here cannot be negative", kind.name()), format!("write {}", kind.example())));
+        }
+        Ok(v)
+    }
+}
+
+/// A table being read; `finish` reports the keys nobody asked for.
+pub struct Table<'n, 's, 'c> {
+    pub ctx: &'c Ctx<'s>,
+    pub node: &'n Node,
+    entries: &'n [Entry],
+    pub path: String,
+    asked: RefCell<Vec<&'static str>>,
+}
+
+impl<'n, 's, 'c> Table<'n, 's, 'c> {
+    pub fn path_of(&self, key: &str) -> String {
+        if self.path.is_empty() {
+            key.to_string()
+        } else {
+            format!("{}.{key}", self.path)
+        }
+    }
+
+    /// The same table under another path (once the appliance id is known).
+    pub fn rebase(self, path: String) -> Self {
+        Table { path, ..self }
+    }
+
+    pub fn opt(&self, key: &'static str) -> Option<&'n Node> {
+        self.asked.borrow_mut().push(key);
+        self.entries.iter().find(|e| e.key == key).map(|e| &e.node)
+    }
+
+    pub fn has(&self, key: &str) -> bool {
+        self.entries.iter().any(|e| e.key == key)
+    }
+
+    pub fn req(&self, key: &'static str, what: &str) -> Result<&'n Node, Error> {
+        self.opt(key).ok_or_else(|| {
+            self.ctx.err(self.node, &self.path, format!("missing key `{key}`"), format!("add `{key} = ...` ({what})"))
+        })
+    }
+
+    pub fn entries(&self) -> &'n [Entry] {
+        self.entries
+    }
+
+    /// Marks every key as read (for tables whose keys are names, like `next`).
+    pub fn all_keys_known(&self) {
+        self.asked.borrow_mut().push("*");
+    }
+
+    pub fn finish(self) -> Result<(), Error> {
+        let asked = self.asked.borrow();
+        if asked.contains(&"*") {
+            return Ok(());
+        }
+        for e in self.entries {
+            if !asked.iter().any(|a| *a == e.key) {
+                let mut accepted: Vec<&str> = asked.clone();
+                accepted.sort();
+                accepted.dedup();
+                return Err(Error::at(
+                    self.ctx.sources,
+                    &e.key_src,
+                    &self.path_of(&e.key),
+                    format!("unknown key `{}`", e.key),
+                    format!("keys accepted here: {}", accepted.join(", ")),
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    pub fn quantity(&self, key: &'static str, kind: Kind) -> Result<Option<f64>, Error> {
+        self.opt(key).map(|n| self.ctx.quantity(n, &self.path_of(key), kind)).transpose()
+    }
+    pub fn positive(&self, key: &'static str, kind: Kind) -> Result<Option<f64>, Error> {
+        self.opt(key).map(|n| self.ctx.positive(n, &self.path_of(key), kind)).transpose()
+    }
+    pub fn non_negative(&self, key: &'static str, kind: Kind) -> Result<Option<f64>, Error> {
+        self.opt(key).map(|n| self.ctx.non_negative(n, &self.path_of(key), kind)).transpose()
+    }
+    pub fn string(&self, key: &'static str) -> Result<Option<&'n str>, Error> {
+        self.opt(key).map(|n| self.ctx.string(n, &self.path_of(key))).transpose()
+    }
+    pub fn number(&self, key: &'static str) -> Result<Option<f64>, Error> {
+        self.opt(key).map(|n| self.ctx.number(n, &self.path_of(key))).transpose()
+    }
+}

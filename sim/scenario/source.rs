@@ -1,0 +1,224 @@
+//! The scenario text as a tree of values that remember where they were written,
+//! and the error type that points back at that place (file:line:column, key
+//! path, the offending text underlined, and what would be accepted).
+
+use std::fmt;
+use std::ops::Range;
+use std::path::{Path, PathBuf};
+
+/// The files read for one scenario: the scenario itself and any templates.
+#[derive(Default)]
+pub struct Sources {
+    files: Vec<(PathBuf, String)>,
+}
+
+impl Sources {
+    pub fn add(&mut self, path: &Path, text: String) -> usize {
+        self.files.push((path.to_path_buf(), text));
+        self.files.len() - 1
+    }
+    pub fn path(&self, file: usize) -> &Path {
+        &self.files[file].0
+    }
+    pub fn text(&self, file: usize) -> &str {
+        &self.files[file].1
+    }
+}
+
+/// Where a value was written: a file index into [`Sources`] and a byte range.
+#[derive(Clone, Debug, Default)]
+pub struct Src {
+    pub file: usize,
+    pub span: Range<usize>,
+}
+
+#[derive(Clone, Debug)]
+pub enum Val {
+    Str(String),
+    Int(i64),
+    Float(f64),
+    Bool(bool),
+    /// A TOML date-time, kept as its text.
+    Date(String),
+    Arr(Vec<Node>),
+    Table(Vec<Entry>),
+}
+
+#[derive(Clone, Debug)]
+pub struct Node {
+    pub v: Val,
+    pub src: Src,
+}
+
+#[derive(Clone, Debug)]
+pub struct Entry {
+    pub key: String,
+    pub key_src: Src,
+    pub node: Node,
+}
+
+impl Node {
+    pub fn type_name(&self) -> &'static str {
+        match self.v {
+            Val::Str(_) => "a string",
+            Val::Int(_) => "an integer",
+            Val::Float(_) => "a number",
+            Val::Bool(_) => "true/false",
+            Val::Date(_) => "a date-time",
+            Val::Arr(_) => "an array",
+            Val::Table(_) => "a table",
+        }
+    }
+}
+
+/// Parses TOML text into a [`Node`] tree; syntax errors carry their place.
+pub fn parse_toml(sources: &Sources, file: usize) -> Result<Node, Error> {
+    let text = sources.text(file);
+    let doc = toml_edit::ImDocument::parse(text.to_string()).map_err(|e| {
+        let span = e.span().unwrap_or(0..0);
+        Error::at(
+            sources,
+            &Src { file, span },
+            "",
+            format!("this is not valid TOML: {}", e.message()),
+            "check quoting, brackets and `=` on this line (quantities with units are strings: power = \"1.5 kW\")",
+        )
+    })?;
+    let whole = Src { file, span: 0..text.len() };
+    Ok(table_node(doc.as_table(), file, &whole))
+}
+
+fn src_of(span: Option<Range<usize>>, file: usize, fallback: &Src) -> Src {
+    match span {
+        Some(s) => Src { file, span: s },
+        None => fallback.clone(),
+    }
+}
+
+fn table_node(t: &toml_edit::Table, file: usize, fallback: &Src) -> Node {
+    let here = src_of(t.span(), file, fallback);
+    let mut entries = Vec::new();
+    for (k, item) in t.iter() {
+        let key_src = src_of(t.key(k).and_then(|k| k.span()), file, &here);
+        let node = match item {
+            toml_edit::Item::None => continue,
+            toml_edit::Item::Value(v) => value_node(v, file, &key_src),
+            toml_edit::Item::Table(t) => table_node(t, file, &key_src),
+            toml_edit::Item::ArrayOfTables(a) => {
+                let arr_src = src_of(a.span(), file, &key_src);
+                Node {
+                    v: Val::Arr(a.iter().map(|t| table_node(t, file, &arr_src)).collect()),
+                    src: arr_src,
+                }
+            }
+        };
+        entries.push(Entry { key: k.to_string(), key_src, node });
+    }
+    Node { v: Val::Table(entries), src: here }
+}
+
+fn value_node(v: &toml_edit::Value, file: usize, fallback: &Src) -> Node {
+    use toml_edit::Value as V;
+    let src = src_of(v.span(), file, fallback);
+    let v = match v {
+        V::String(s) => Val::Str(s.value().clone()),
+        V::Integer(i) => Val::Int(*i.value()),
+        V::Float(f) => Val::Float(*f.value()),
+        V::Boolean(b) => Val::Bool(*b.value()),
+        V::Datetime(d) => Val::Date(d.value().to_string()),
+        V::Array(a) => Val::Arr(a.iter().map(|x| value_node(x, file, &src)).collect()),
+        V::InlineTable(t) => {
+            let mut entries = Vec::new();
+            for (k, x) in t.iter() {
+                let key_src = src_of(t.key(k).and_then(|k| k.span()), file, &src);
+                entries.push(Entry { key: k.to_string(), key_src, node: value_node(x, file, &src) });
+            }
+            Val::Table(entries)
+        }
+    };
+    Node { v, src }
+}
+
+/// A bad-input error that names the file, line, column and key path, shows the
+/// offending text and says what would be accepted.
+#[derive(Debug, Clone)]
+pub struct Error {
+    pub file: PathBuf,
+    pub line: usize,
+    pub column: usize,
+    pub path: String,
+    pub message: String,
+    pub help: String,
+    pub excerpt: String,
+    pub underline: (usize, usize),
+}
+
+impl Error {
+    pub fn at(sources: &Sources, src: &Src, path: &str, message: impl Into<String>, help: impl Into<String>) -> Error {
+        let text = sources.text(src.file);
+        let start = src.span.start.min(text.len());
+        let line_start = text[..start].rfind('\n').map(|i| i + 1).unwrap_or(0);
+        let line_end = text[start..].find('\n').map(|i| start + i).unwrap_or(text.len());
+        let line = text[..start].matches('\n').count() + 1;
+        let column = text[line_start..start].chars().count() + 1;
+        let end = src.span.end.clamp(start, line_end);
+        let width = text[start..end].chars().count().max(1);
+        Error {
+            file: sources.path(src.file).to_path_buf(),
+            line,
+            column,
+            path: path.to_string(),
+            message: message.into(),
+            help: help.into(),
+            excerpt: text[line_start..line_end].trim_end().to_string(),
+            underline: (column, width),
+        }
+    }
+
+    /// An error about a whole file (it cannot be read, say), with no place inside.
+    pub fn file(path: &Path, message: impl Into<String>, help: impl Into<String>) -> Error {
+        Error {
+            file: path.to_path_buf(),
+            line: 0,
+            column: 0,
+            path: String::new(),
+            message: message.into(),
+            help: help.into(),
+            excerpt: String::new(),
+            underline: (0, 0),
+        }
+    }
+}
+
+impl fmt::Display for Error {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        writeln!(f, "error: {}", self.message)?;
+        if self.line == 0 {
+            write!(f, "  --> {}", self.file.display())?;
+        } else {
+            write!(f, "  --> {}:{}:{}", self.file.display(), self.line, self.column)?;
+        }
+        if !self.path.is_empty() {
+            write!(f, " (at {})", self.path)?;
+        }
+        writeln!(f)?;
+        if self.line > 0 {
+            let n = self.line.to_string();
+            let pad = " ".repeat(n.len());
+            writeln!(f, "{pad} |")?;
+            writeln!(f, "{n} | {}", self.excerpt)?;
+            writeln!(
+                f,
+                "{pad} | {}{}",
+                " ".repeat(self.underline.0.saturating_sub(1)),
+                "^".repeat(self.underline.1)
+            )?;
+        }
+        if !self.help.is_empty() {
+            write!(f, "  = help: {}", self.help)?;
+        }
+        Ok(())
+    }
+}
+
+impl std::error::Error for Error {}

@@ -1,0 +1,124 @@
+//! `loadloom validate`: what a scenario will produce, without writing data.
+//! Per appliance: expected energy per day, duty and peak, from its behaviour
+//! over up to 28 days at nominal voltage; per conductor: the coincident peak
+//! current (every appliance in its largest state at once, an upper bound)
+//! against the service rating.
+
+use crate::behaviour::timelines;
+use crate::dataset::manifest::state_split;
+use crate::dataset::schema::line_name;
+use crate::scenario::Scenario;
+
+/// Printed wherever loadloom speaks of wiring, loading or breakers.
+pub const CAUTION: &str = "Caution: this is an analysis of data, not an inspection of the installation. \
+Local electrical codes (for example the NEC in the US, IEC 60364 and national rules in Europe) and a \
+licensed electrician decide what is safe and allowed.";
+
+pub struct AppFigures {
+    pub id: String,
+    pub behaviour: &'static str,
+    pub wiring: String,
+    pub kwh_per_day: f64,
+    pub duty: f64,
+    pub peak_w: f64,
+}
+
+pub struct LineFigures {
+    pub name: String,
+    pub peak_a: f64,
+}
+
+pub struct Figures {
+    pub days: f64,
+    pub apps: Vec<AppFigures>,
+    pub lines: Vec<LineFigures>,
+    pub service_a: f64,
+}
+
+pub fn figures(s: &Scenario) -> Figures {
+    let days = (s.run.length_s / 86400.0).min(28.0);
+    let steps = ((days * 86400.0) / s.run.step_s).round() as u64;
+    let tl = timelines(s, steps);
+    let mut apps = Vec::new();
+    for (a, t) in s.appliances.iter().zip(&tl) {
+        let (mut e, mut on, mut peak) = (0.0, 0u64, 0.0f64);
+        for seg in &t.segments {
+            let p = a.states[seg.state as usize].p_w() * seg.scale as f64;
+            let len = seg.end - seg.start;
+            e += p * len as f64 * s.run.step_s;
+            if p > a.on_threshold_w {
+                on += len;
+            }
+            peak = peak.max(p);
+        }
+        apps.push(AppFigures {
+            id: a.id.clone(),
+            behaviour: a.behaviour.name(),
+            wiring: a.connections().iter().map(|c| c.name()).collect::<Vec<_>>().join("+"),
+            kwh_per_day: e / 3.6e6 / days,
+            duty: on as f64 / steps as f64,
+            peak_w: peak,
+        });
+    }
+    let n = s.home.supply.lines();
+    let mut peak_a = vec![0.0; n];
+    for a in &s.appliances {
+        let mut worst = vec![0.0f64; n];
+        for st in &a.states {
+            for (x, p, q) in state_split(s, st) {
+                // |I_x| = |S_x| / V_LN at nominal voltage.
+                worst[x] = worst[x].max((p * p + q * q).sqrt() / s.home.voltage_v);
+            }
+        }
+        for x in 0..n {
+            peak_a[x] += worst[x];
+        }
+    }
+    Figures {
+        days,
+        apps,
+        lines: (0..n).map(|x| LineFigures { name: line_name(x).to_uppercase(), peak_a: peak_a[x] }).collect(),
+        service_a: s.home.service_a,
+    }
+}
+
+/// The validate report as aligned text.
+pub fn render(s: &Scenario, f: &Figures) -> String {
+    let mut o = String::new();
+    let label = if s.home.label.is_empty() { s.name.clone() } else { format!("{} ({})", s.home.label, s.name) };
+    o += &format!(
+        "{label}: {} supply, {} V line-to-neutral, {} Hz, {} A service, {} appliances\n",
+        s.home.supply.name(),
+        s.home.voltage_v,
+        s.home.frequency_hz,
+        s.home.service_a,
+        s.appliances.len()
+    );
+    o += &format!(
+        "run: {} ({}) for {}, step {} s, meter interval {} s, seed {}\n\n",
+        s.run.start_local,
+        s.home.timezone,
+        crate::units::human_duration(s.run.length_s),
+        s.run.step_s,
+        s.meter.interval_s,
+        s.run.seed
+    );
+    let w = f.apps.iter().map(|a| a.id.len()).max().unwrap_or(2).max(9);
+    let ww = f.apps.iter().map(|a| a.wiring.len()).max().unwrap_or(6).max(6);
+    o += &format!("{:<w$}  {:<10}  {:<ww$}  {:>10}  {:>6}  {:>9}\n", "appliance", "behaviour", "wiring", "kWh/day", "duty", "peak W");
+    let mut total = 0.0;
+    for a in &f.apps {
+        total += a.kwh_per_day;
+        o += &format!("{:<w$}  {:<10}  {:<ww$}  {:>10.3}  {:>5.1}%  {:>9.0}\n", a.id, a.behaviour, a.wiring, a.kwh_per_day, 100.0 * a.duty, a.peak_w);
+    }
+    o += &format!("{:<w$}  {:<10}  {:<ww$}  {:>10.3}\n", "total", "", "", total);
+    o += &format!("(expected from {:.0} simulated days of behaviour at nominal voltage)\n\n", f.days);
+    o += &format!("{:<9}  {:>22}  {:>15}\n", "conductor", "coincident peak (A)", "of service");
+    for l in &f.lines {
+        o += &format!("{:<9}  {:>22.1}  {:>14.0}%\n", l.name, l.peak_a, 100.0 * l.peak_a / f.service_a);
+    }
+    o += "(coincident peak: every appliance in its largest state at once, an upper bound)\n\n";
+    o += CAUTION;
+    o += "\n";
+    o
+}

@@ -1,0 +1,174 @@
+//! Quantities written with units (`"1.5 kW"`, `"13 min"`, `"2 %"`), parsed to SI.
+//!
+//! Everything inside loadloom is SI (W, var, V, A, s, Hz, ohm); units appear
+//! only here, at the edge where people write scenarios.
+
+/// What a quantity measures; decides which units are accepted.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Kind {
+    Power,
+    Reactive,
+    Voltage,
+    Current,
+    Frequency,
+    Duration,
+    Impedance,
+    /// A share: `"2 %"` or a plain fraction such as `0.02`.
+    Fraction,
+}
+
+impl Kind {
+    /// Units accepted for this kind, with their factor to SI.
+    pub fn units(self) -> &'static [(&'static str, f64)] {
+        match self {
+            Kind::Power => &[("W", 1.0), ("kW", 1e3), ("MW", 1e6)],
+            Kind::Reactive => &[("var", 1.0), ("kvar", 1e3), ("VAr", 1.0), ("kVAr", 1e3)],
+            Kind::Voltage => &[("V", 1.0), ("kV", 1e3)],
+            Kind::Current => &[("A", 1.0), ("mA", 1e-3)],
+            Kind::Frequency => &[("Hz", 1.0)],
+            Kind::Duration => &[
+                ("ms", 1e-3),
+                ("s", 1.0),
+                ("min", 60.0),
+                ("h", 3600.0),
+                ("d", 86400.0),
+                ("w", 604800.0),
+            ],
+            Kind::Impedance => &[("ohm", 1.0), ("mohm", 1e-3), ("Ω", 1.0), ("mΩ", 1e-3)],
+            Kind::Fraction => &[("%", 0.01)],
+        }
+    }
+
+    /// A phrase for error messages: what would be accepted.
+    pub fn example(self) -> &'static str {
+        match self {
+            Kind::Power => "a power such as \"350 W\" or \"1.5 kW\"",
+            Kind::Reactive => "a reactive power such as \"120 var\" or \"0.4 kvar\"",
+            Kind::Voltage => "a voltage such as \"120 V\" or \"230 V\"",
+            Kind::Current => "a current such as \"200 A\"",
+            Kind::Frequency => "a frequency such as \"60 Hz\"",
+            Kind::Duration => "a duration such as \"90 s\", \"13 min\", \"2 h\" or \"7 d\"",
+            Kind::Impedance => "an impedance such as \"0.05 ohm\" or \"40 mohm\"",
+            Kind::Fraction => "a share such as \"2 %\" or a fraction such as 0.02",
+        }
+    }
+
+    pub fn name(self) -> &'static str {
+        match self {
+            Kind::Power => "power",
+            Kind::Reactive => "reactive power",
+            Kind::Voltage => "voltage",
+            Kind::Current => "current",
+            Kind::Frequency => "frequency",
+            Kind::Duration => "duration",
+            Kind::Impedance => "impedance",
+            Kind::Fraction => "share",
+        }
+    }
+}
+
+/// Parses `"<number> <unit>"` (the space is optional) into SI.
+///
+/// ```
+/// use loadloom::units::{parse_quantity, Kind};
+/// assert_eq!(parse_quantity("1.5 kW", Kind::Power), Ok(1500.0));
+/// assert_eq!(parse_quantity("13 min", Kind::Duration), Ok(780.0));
+/// assert!(parse_quantity("1.5 kw", Kind::Power).unwrap_err().contains("kW"));
+/// ```
+pub fn parse_quantity(text: &str, kind: Kind) -> Result<f64, String> {
+    let t = text.trim();
+    let split = number_prefix_len(t);
+    let (num, unit) = t.split_at(split);
+    let unit = unit.trim();
+    let value: f64 = num
+        .replace('_', "")
+        .parse()
+        .map_err(|_| format!("\"{text}\" does not start with a number; expected {}", kind.example()))?;
+    if !value.is_finite() {
+        return Err(format!("\"{text}\" is not a finite number"));
+    }
+    if unit.is_empty() {
+        return Err(format!("\"{text}\" has no unit; expected {}", kind.example()));
+    }
+    for &(u, f) in kind.units() {
+        if u == unit {
+            return Ok(value * f);
+        }
+    }
+    let known: Vec<&str> = kind.units().iter().map(|u| u.0).collect();
+    let near = kind
+        .units()
+        .iter()
+        .find(|u| u.0.eq_ignore_ascii_case(unit))
+        .map(|u| format!(" (did you mean \"{}\"?)", u.0))
+        .unwrap_or_default();
+    Err(format!(
+        "\"{unit}\" is not a unit of {}{near}; accepted: {}",
+        kind.name(),
+        known.join(", ")
+    ))
+}
+
+/// Length in bytes of the leading number: sign, digits, `_`, `.`, exponent.
+fn number_prefix_len(t: &str) -> usize {
+    let b = t.as_bytes();
+    let mut i = 0;
+    if i < b.len() && (b[i] == b'-' || b[i] == b'+') {
+        i += 1;
+    }
+    while i < b.len() && (b[i].is_ascii_digit() || b[i] == b'.' || b[i] == b'_') {
+        i += 1;
+    }
+    // An exponent only when digits follow it, so "5 e" stays a unit error.
+    if i > 0 && i < b.len() && (b[i] == b'e' || b[i] == b'E') {
+        let mut j = i + 1;
+        if j < b.len() && (b[j] == b'-' || b[j] == b'+') {
+            j += 1;
+        }
+        if j < b.len() && b[j].is_ascii_digit() {
+            while j < b.len() && b[j].is_ascii_digit() {
+                j += 1;
+            }
+            i = j;
+        }
+    }
+    i
+}
+
+/// Formats seconds as a short human duration for reports.
+pub fn human_duration(s: f64) -> String {
+    if s >= 86400.0 && (s / 86400.0).fract() == 0.0 {
+        format!("{} d", s / 86400.0)
+    } else if s >= 3600.0 {
+        format!("{:.1} h", s / 3600.0)
+    } else if s >= 60.0 {
+        format!("{:.1} min", s / 60.0)
+    } else {
+        format!("{s} s")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn parses_units_to_si() {
+        assert_eq!(parse_quantity("118 W", Kind::Power).unwrap(), 118.0);
+        assert_eq!(parse_quantity("0.4 kvar", Kind::Reactive).unwrap(), 400.0);
+        assert_eq!(parse_quantity("7 d", Kind::Duration).unwrap(), 604800.0);
+        assert_eq!(parse_quantity("230V", Kind::Voltage).unwrap(), 230.0);
+        assert!((parse_quantity("2 %", Kind::Fraction).unwrap() - 0.02).abs() < 1e-15);
+        assert_eq!(parse_quantity("-350 W", Kind::Power).unwrap(), -350.0);
+        assert_eq!(parse_quantity("1e3 W", Kind::Power).unwrap(), 1000.0);
+    }
+
+    #[test]
+    fn rejects_bad_units_with_a_hint() {
+        let e = parse_quantity("1.5 kw", Kind::Power).unwrap_err();
+        assert!(e.contains("did you mean \"kW\""), "{e}");
+        assert!(parse_quantity("fast", Kind::Duration).is_err());
+        assert!(parse_quantity("12", Kind::Duration).unwrap_err().contains("no unit"));
+        assert!(parse_quantity("3 V", Kind::Power).is_err());
+    }
+}

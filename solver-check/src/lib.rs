@@ -1,0 +1,1 @@
+//! solver-check: everything that reads loadloom datasets from files only.

@@ -1,0 +1,15 @@
+#!/usr/bin/env bash
+# Runs every test of loadloom, setting up what they need first:
+#   - a Python virtual environment (.venv) with the pinned reference libraries
+#     of tests/requirements.txt, for the cross-checks;
+#   - the release build, the one profile tests, benchmarks and the demo share.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+
+python3 -m venv .venv
+.venv/bin/pip install --quiet --disable-pip-version-check -r tests/requirements.txt
+
+cargo build --release --workspace
+cargo test --release --workspace
+
+LOADLOOM_BIN="$PWD/target/release/loadloom" .venv/bin/python -m pytest -q tests/python
