@@ -109,6 +109,12 @@ impl Terminals {
             self.u[t as usize]
         }
     }
+    /// Whether `other` is within a nanovolt of these potentials on every terminal.
+    pub fn settled(&self, other: &Terminals, lines: usize) -> bool {
+        let near = |a: C64, b: C64| (a - b).norm_sqr() < 1e-18;
+        (0..lines).all(|x| near(self.u[x], other.u[x])) && near(self.u_n, other.u_n)
+    }
+
     /// Line-to-neutral voltage at the home's terminals.
     pub fn v_ln(&self, x: usize) -> C64 {
         self.u[x] - self.u_n
