@@ -197,3 +197,25 @@ fn validate_prints_figures_and_the_caution() {
     }
     assert!(!d.join("out").exists(), "validate writes nothing");
 }
+
+#[test]
+fn solver_check_opens_and_verifies_a_written_dataset() {
+    let d = scratch("solver-check");
+    let p = write(&d, "home.toml", BASE);
+    let o = run(&["run", p.to_str().unwrap(), "--out", d.join("out").to_str().unwrap(), "--length", "6h"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let ds = solver_check::Dataset::open(&d.join("out/home")).unwrap();
+    assert_eq!(ds.rows, 6 * 360);
+    assert_eq!(ds.lines, ["l1", "l2"]);
+    assert_eq!(ds.appliances.iter().map(|a| a.id.as_str()).collect::<Vec<_>>(), ["fridge", "washer", "tv"]);
+    ds.verify().unwrap();
+    // A changed file is caught.
+    let truth = d.join("out/home/truth.parquet");
+    let mut bytes = std::fs::read(&truth).unwrap();
+    let mid = bytes.len() / 2;
+    bytes[mid] ^= 0xff;
+    std::fs::write(&truth, bytes).unwrap();
+    let e = ds.verify().unwrap_err();
+    assert!(e.to_string().contains("sha256"), "{e}");
+    assert!(e.to_string().contains("truth.parquet"), "{e}");
+}
