@@ -40,6 +40,28 @@ enum Command {
         #[arg(long, value_enum, default_value = "parquet")]
         format: FormatArg,
     },
+    /// Score an estimate (Parquet or CSV, wide or long) against a dataset's truth.
+    Score {
+        /// The dataset folder (from `loadloom run`).
+        #[arg(long)]
+        truth: PathBuf,
+        /// The estimate: `time` and `{id}_p_w` per appliance (optional
+        /// `{id}_on`, `{id}_{conductor}_p_w`), or long `time, appliance, p_w`.
+        #[arg(long)]
+        estimate: PathBuf,
+        /// Print the JSON report (format loadloom-score/1).
+        #[arg(long, conflicts_with = "markdown")]
+        json: bool,
+        /// Print a Markdown table.
+        #[arg(long)]
+        markdown: bool,
+        /// Score only the appliances the estimate gives.
+        #[arg(long)]
+        partial: bool,
+        /// On-threshold for an appliance, replacing the manifest's: ID=WATTS (repeatable).
+        #[arg(long, value_name = "ID=W")]
+        threshold: Vec<String>,
+    },
     /// Parse and check a scenario; print what it will produce, write nothing.
     Validate {
         /// The scenario file (TOML).
@@ -76,9 +98,49 @@ fn apply_length(s: &mut Scenario, text: &str) -> Result<(), String> {
     Ok(())
 }
 
+/// `fridge=20` or `fridge=20W`.
+fn parse_threshold(t: &str) -> Result<(String, f64), String> {
+    let (id, w) = t.split_once('=').ok_or_else(|| format!("--threshold {t}: expected ID=WATTS, e.g. fridge=20"))?;
+    let w = w.trim().trim_end_matches('W').trim();
+    let v: f64 = w.parse().map_err(|_| format!("--threshold {t}: \"{w}\" is not a number of watts"))?;
+    if !(v >= 0.0 && v.is_finite()) {
+        return Err(format!("--threshold {t}: the threshold must be zero or more"));
+    }
+    Ok((id.to_string(), v))
+}
+
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
+        Command::Score { truth, estimate, json, markdown, partial, threshold } => {
+            let mut thresholds = Vec::new();
+            for t in &threshold {
+                match parse_threshold(t) {
+                    Ok(x) => thresholds.push(x),
+                    Err(m) => {
+                        eprintln!("error: {m}");
+                        return ExitCode::from(BAD_INPUT);
+                    }
+                }
+            }
+            let opts = solver_check::score::Options { partial, thresholds };
+            match solver_check::score::score(&truth, &estimate, &opts) {
+                Ok(r) => {
+                    if json {
+                        println!("{}", serde_json::to_string_pretty(&r.to_json()).expect("JSON"));
+                    } else if markdown {
+                        print!("{}", r.to_markdown());
+                    } else {
+                        print!("{}", r.to_text());
+                    }
+                    ExitCode::SUCCESS
+                }
+                Err(e) => {
+                    eprintln!("{e}");
+                    ExitCode::from(BAD_INPUT)
+                }
+            }
+        }
         Command::Validate { scenario } => {
             let s = match load(&scenario) {
                 Ok(s) => s,

@@ -2,10 +2,18 @@
 //! it works on any data in the dataset format, including real measurements
 //! converted to it. It never depends on the simulator.
 //!
-//! This first part opens a dataset folder: it reads `manifest.json`, checks
-//! the format, and verifies each data file against the size and sha256 the
-//! manifest records.
+//! - [`dataset`]: open a dataset folder, check its manifest and files;
+//! - [`table`]: read Parquet or CSV tables;
+//! - [`estimate`]: read and check an estimate (wide or long);
+//! - [`align`]: match the estimate's intervals with the truth's;
+//! - [`metrics`]: the scores, each formula with its source;
+//! - [`score`]: all of it together, and the reports.
 
+pub mod align;
 pub mod dataset;
+pub mod estimate;
+pub mod metrics;
+pub mod score;
+pub mod table;
 
 pub use dataset::{Dataset, DatasetError};

@@ -1,0 +1,128 @@
+//! Aligning an estimate's times with the truth's reporting intervals.
+//! Same interval: rows matched by time. Coarser estimate: the truth averaged
+//! to its intervals (energy-consistent). Finer estimate: averaged down to the
+//! truth's intervals. Only whole intervals both sides cover are scored.
+
+use crate::table::{table_err, TableError};
+use std::path::Path;
+
+/// The scored intervals and where they sit in the truth and the estimate.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Plan {
+    pub start_ms: i64,
+    pub interval_ms: i64,
+    pub rows: usize,
+    /// First truth row and truth rows per scored interval.
+    pub truth_first: usize,
+    pub truth_per: usize,
+    /// First estimate row and estimate rows per scored interval.
+    pub est_first: usize,
+    pub est_per: usize,
+}
+
+/// Checks times are strictly increasing and evenly spaced; returns the spacing.
+pub fn spacing(path: &Path, t: &[i64], fallback_ms: i64) -> Result<i64, TableError> {
+    for r in 1..t.len() {
+        if t[r] == t[r - 1] {
+            return Err(table_err(path, Some("time"), Some(r), "duplicate time", "give each interval one row"));
+        }
+        if t[r] < t[r - 1] {
+            return Err(table_err(path, Some("time"), Some(r), "times are not sorted (this row is earlier than the one before)", "sort the rows by time"));
+        }
+    }
+    if t.len() < 2 {
+        return Ok(fallback_ms);
+    }
+    let d = t[1] - t[0];
+    for r in 2..t.len() {
+        if t[r] - t[r - 1] != d {
+            return Err(table_err(path, Some("time"), Some(r), format!("the spacing changes from {} s to {} s here (a gap or an irregular row)", d as f64 / 1000.0, (t[r] - t[r - 1]) as f64 / 1000.0), "give an evenly spaced series without gaps (0 W where the appliance is off)"));
+        }
+    }
+    Ok(d)
+}
+
+/// Plans the comparison of an estimate (times `est`) with truth rows
+/// starting at `t0` every `dt` ms (`n` rows).
+pub fn plan(path: &Path, est: &[i64], t0: i64, dt: i64, n: usize) -> Result<Plan, TableError> {
+    let de = spacing(path, est, dt)?;
+    let t_end = t0 + n as i64 * dt;
+    let none = || table_err(path, Some("time"), None, format!("the estimate's times do not overlap the truth's ({} to {} ms UTC)", t0, t_end), "estimate the dataset's period");
+    if est.is_empty() {
+        return Err(none());
+    }
+    let off = est[0] - t0;
+    let (interval, truth_per, est_per) = if de == dt {
+        (dt, 1, 1)
+    } else if de > dt && de % dt == 0 {
+        (de, (de / dt) as usize, 1)
+    } else if de < dt && dt % de == 0 {
+        (dt, 1, (dt / de) as usize)
+    } else {
+        return Err(table_err(path, Some("time"), None, format!("the estimate's interval ({} s) and the truth's ({} s) are not multiples of each other", de as f64 / 1000.0, dt as f64 / 1000.0), "resample the estimate to a multiple or a divisor of the truth's interval"));
+    };
+    // Interval boundaries must fall on each other.
+    let grid = de.min(dt);
+    if off.rem_euclid(grid) != 0 {
+        return Err(table_err(path, Some("time"), Some(0), format!("the first time is {} s off the truth's interval starts", off.rem_euclid(grid) as f64 / 1000.0), "give interval-start times on the same grid as the truth's `time`"));
+    }
+    // First scored interval: the first start ≥ both series' starts on the scored grid.
+    let first = t0.max(est[0]);
+    let first = t0 + (first - t0 + interval - 1).div_euclid(interval) * interval;
+    let first = if est_per > 1 { first } else { first.max(est[0]) };
+    let est_end = est[est.len() - 1] + de;
+    let last = t_end.min(est_end);
+    if last <= first {
+        return Err(none());
+    }
+    let rows = ((last - first) / interval) as usize;
+    if rows == 0 {
+        return Err(none());
+    }
+    Ok(Plan {
+        start_ms: first,
+        interval_ms: interval,
+        rows,
+        truth_first: ((first - t0) / dt) as usize,
+        truth_per,
+        est_first: ((first - est[0]) / de) as usize,
+        est_per,
+    })
+}
+
+/// Means over `per` rows from `first`, `rows` times.
+pub fn means(v: &[f64], first: usize, per: usize, rows: usize) -> Vec<f64> {
+    if per == 1 {
+        return v[first..first + rows].to_vec();
+    }
+    (0..rows).map(|j| v[first + j * per..first + (j + 1) * per].iter().sum::<f64>() / per as f64).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn coarser_and_finer_estimates_align() {
+        let p = Path::new("e.csv");
+        // Truth at 1 s from 0; estimate at 10 s from 20 s.
+        let est: Vec<i64> = (2..8).map(|k| k * 10_000).collect();
+        let pl = plan(p, &est, 0, 1000, 100).unwrap();
+        assert_eq!((pl.rows, pl.truth_first, pl.truth_per, pl.est_first), (6, 20, 10, 0));
+        // Truth at 10 s; estimate at 1 s from 5 s: the first whole interval starts at 10 s.
+        let est: Vec<i64> = (5..95).map(|k| k * 1000).collect();
+        let pl = plan(p, &est, 0, 10_000, 10).unwrap();
+        assert_eq!((pl.start_ms, pl.rows, pl.est_first, pl.est_per), (10_000, 8, 5, 10));
+        assert_eq!(means(&[1.0, 3.0, 5.0, 7.0], 0, 2, 2), vec![2.0, 6.0]);
+    }
+
+    #[test]
+    fn bad_times_are_named() {
+        let p = Path::new("e.csv");
+        assert!(spacing(p, &[0, 1000, 1000], 1000).unwrap_err().message.contains("duplicate"));
+        assert_eq!(spacing(p, &[0, 2000, 1000], 1000).unwrap_err().row, Some(2));
+        assert!(spacing(p, &[0, 1000, 3000], 1000).unwrap_err().message.contains("gap"));
+        assert!(plan(p, &[500_000, 501_000], 0, 1000, 100).unwrap_err().message.contains("overlap"));
+        assert!(plan(p, &[0, 1500], 0, 1000, 100).unwrap_err().message.contains("multiples"));
+    }
+}
