@@ -20,38 +20,66 @@ pub struct Plan {
     pub est_per: usize,
 }
 
+/// Checks times batch by batch: strictly increasing and evenly spaced.
+#[derive(Default)]
+pub struct TimeScan {
+    pub first: Option<i64>,
+    pub spacing: Option<i64>,
+    pub rows: usize,
+    last: i64,
+}
+
+impl TimeScan {
+    /// Feeds the times of rows `first_row ..`.
+    pub fn feed(&mut self, path: &Path, first_row: usize, t: &[i64]) -> Result<(), TableError> {
+        for (k, &x) in t.iter().enumerate() {
+            let r = first_row + k;
+            if self.first.is_none() {
+                self.first = Some(x);
+            } else {
+                let d = x - self.last;
+                if d == 0 {
+                    return Err(table_err(path, Some("time"), Some(r), "duplicate time", "give each interval one row"));
+                }
+                if d < 0 {
+                    return Err(table_err(path, Some("time"), Some(r), "times are not sorted (this row is earlier than the one before)", "sort the rows by time"));
+                }
+                match self.spacing {
+                    None => self.spacing = Some(d),
+                    Some(s) if s != d => {
+                        return Err(table_err(path, Some("time"), Some(r), format!("the spacing changes from {} s to {} s here (a gap or an irregular row)", s as f64 / 1000.0, d as f64 / 1000.0), "give an evenly spaced series without gaps (0 W where the appliance is off)"));
+                    }
+                    _ => {}
+                }
+            }
+            self.last = x;
+            self.rows += 1;
+        }
+        Ok(())
+    }
+}
+
 /// Checks times are strictly increasing and evenly spaced; returns the spacing.
 pub fn spacing(path: &Path, t: &[i64], fallback_ms: i64) -> Result<i64, TableError> {
-    for r in 1..t.len() {
-        if t[r] == t[r - 1] {
-            return Err(table_err(path, Some("time"), Some(r), "duplicate time", "give each interval one row"));
-        }
-        if t[r] < t[r - 1] {
-            return Err(table_err(path, Some("time"), Some(r), "times are not sorted (this row is earlier than the one before)", "sort the rows by time"));
-        }
-    }
-    if t.len() < 2 {
-        return Ok(fallback_ms);
-    }
-    let d = t[1] - t[0];
-    for r in 2..t.len() {
-        if t[r] - t[r - 1] != d {
-            return Err(table_err(path, Some("time"), Some(r), format!("the spacing changes from {} s to {} s here (a gap or an irregular row)", d as f64 / 1000.0, (t[r] - t[r - 1]) as f64 / 1000.0), "give an evenly spaced series without gaps (0 W where the appliance is off)"));
-        }
-    }
-    Ok(d)
+    let mut s = TimeScan::default();
+    s.feed(path, 0, t)?;
+    Ok(s.spacing.unwrap_or(fallback_ms))
 }
 
 /// Plans the comparison of an estimate (times `est`) with truth rows
 /// starting at `t0` every `dt` ms (`n` rows).
 pub fn plan(path: &Path, est: &[i64], t0: i64, dt: i64, n: usize) -> Result<Plan, TableError> {
     let de = spacing(path, est, dt)?;
+    plan_from(path, est.first().copied(), de, est.len(), t0, dt, n)
+}
+
+/// Plans from an estimate's first time, spacing `de` and row count.
+pub fn plan_from(path: &Path, est_first: Option<i64>, de: i64, est_rows: usize, t0: i64, dt: i64, n: usize) -> Result<Plan, TableError> {
     let t_end = t0 + n as i64 * dt;
-    let none = || table_err(path, Some("time"), None, format!("the estimate's times do not overlap the truth's ({} to {} ms UTC)", t0, t_end), "estimate the dataset's period");
-    if est.is_empty() {
-        return Err(none());
-    }
-    let off = est[0] - t0;
+    let iso = |ms: i64| jiff::Timestamp::from_millisecond(ms).map(|t| t.to_string()).unwrap_or_default();
+    let none = || table_err(path, Some("time"), None, format!("the estimate's times do not overlap the truth's ({} to {})", iso(t0), iso(t_end)), "estimate the dataset's period");
+    let Some(e0) = est_first else { return Err(none()) };
+    let off = e0 - t0;
     let (interval, truth_per, est_per) = if de == dt {
         (dt, 1, 1)
     } else if de > dt && de % dt == 0 {
@@ -67,10 +95,9 @@ pub fn plan(path: &Path, est: &[i64], t0: i64, dt: i64, n: usize) -> Result<Plan
         return Err(table_err(path, Some("time"), Some(0), format!("the first time is {} s off the truth's interval starts", off.rem_euclid(grid) as f64 / 1000.0), "give interval-start times on the same grid as the truth's `time`"));
     }
     // First scored interval: the first start ≥ both series' starts on the scored grid.
-    let first = t0.max(est[0]);
-    let first = t0 + (first - t0 + interval - 1).div_euclid(interval) * interval;
-    let first = if est_per > 1 { first } else { first.max(est[0]) };
-    let est_end = est[est.len() - 1] + de;
+    let first = t0.max(e0);
+    let first = if est_per > 1 || truth_per == 1 { t0 + (first - t0 + interval - 1).div_euclid(interval) * interval } else { e0 + (first - e0 + interval - 1).div_euclid(interval) * interval };
+    let est_end = e0 + est_rows as i64 * de;
     let last = t_end.min(est_end);
     if last <= first {
         return Err(none());
@@ -85,7 +112,7 @@ pub fn plan(path: &Path, est: &[i64], t0: i64, dt: i64, n: usize) -> Result<Plan
         rows,
         truth_first: ((first - t0) / dt) as usize,
         truth_per,
-        est_first: ((first - est[0]) / de) as usize,
+        est_first: ((first - e0) / de) as usize,
         est_per,
     })
 }

@@ -1,92 +1,81 @@
 //! An estimate file: Parquet or CSV, wide (`time`, `{id}_p_w`, optional
 //! `{id}_on` and `{id}_{conductor}_p_w`) or long (`time`, `appliance`, `p_w`).
+//! Its columns are checked against the dataset here; its values are checked
+//! as they stream past (see `values_check`).
 
 use crate::dataset::Dataset;
+use crate::stream::{header, in_memory, Batch, Header};
 use crate::table::{read, table_err, Column, Table, TableError};
 use std::path::Path;
 
+/// The columns that hold one appliance's estimate.
 #[derive(Clone, Debug)]
-pub struct ApplianceEstimate {
+pub struct AppColumns {
     pub id: String,
-    pub p_w: Vec<f64>,
-    pub on: Option<Vec<bool>>,
-    /// (conductor, P) for each `{id}_{conductor}_p_w` given.
-    pub per_conductor: Vec<(String, Vec<f64>)>,
+    pub p: String,
+    pub on: Option<String>,
+    /// (conductor, column) for each `{id}_{conductor}_p_w` given.
+    pub per_conductor: Vec<(String, String)>,
 }
 
-#[derive(Clone, Debug)]
-pub struct Estimate {
-    pub time_ms: Vec<i64>,
-    pub appliances: Vec<ApplianceEstimate>,
+/// An opened estimate: its table header and which columns mean what.
+pub struct EstimateFile {
+    pub header: Header,
+    pub apps: Vec<AppColumns>,
 }
 
-fn check_finite(path: &Path, col: &str, v: &[f64], non_negative: bool) -> Result<(), TableError> {
-    if let Some(r) = v.iter().position(|x| !x.is_finite()) {
-        return Err(table_err(path, Some(col), Some(r), format!("value {} is not a finite number", v[r]), "give every row a finite power in W (0 where the appliance is off)"));
+impl EstimateFile {
+    /// Every column to stream, in a fixed order: per appliance p, on, conductors.
+    pub fn columns(&self) -> Vec<String> {
+        self.apps.iter().flat_map(|a| std::iter::once(a.p.clone()).chain(a.on.clone()).chain(a.per_conductor.iter().map(|(_, c)| c.clone()))).collect()
     }
-    if non_negative {
-        if let Some(r) = v.iter().position(|x| *x < 0.0) {
-            return Err(table_err(path, Some(col), Some(r), format!("power {} W is negative; an appliance's own power cannot be", v[r]), "clip the estimate at 0 W"));
-        }
-    }
-    Ok(())
 }
 
-/// Reads and checks an estimate against the dataset's appliances and time zone.
-/// With `partial`, appliances the estimate lacks are left out of the scores.
-pub fn read_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimate, TableError> {
-    let t = read(path, None)?;
-    if let Some(tz) = &t.time_zone {
+/// Opens and checks an estimate against the dataset's appliances and time
+/// zone. With `partial`, appliances the estimate lacks are left out.
+pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<EstimateFile, TableError> {
+    let mut h = header(path)?;
+    if let Some(tz) = &h.time_zone {
         if *tz != ds.timezone {
             return Err(table_err(path, Some("time"), None, format!("time zone \"{tz}\" differs from the dataset's \"{}\"", ds.timezone), format!("convert the times to the dataset's zone (pandas: .dt.tz_convert(\"{}\"))", ds.timezone)));
         }
     } else if path.extension().is_some_and(|e| e == "parquet") {
         return Err(table_err(path, Some("time"), None, "`time` has no time zone", format!("store tz-aware times (pandas: .dt.tz_localize(\"UTC\").dt.tz_convert(\"{}\")); time zones are never guessed", ds.timezone)));
     }
-    let wide = if t.has("appliance") && t.has("p_w") { long_to_wide(&t, ds)? } else { t };
+    if h.has("appliance") && h.has("p_w") {
+        h = in_memory(long_to_wide(&read(path, None)?, ds)?);
+    }
     let known = |id: &str| ds.appliances.iter().any(|a| a.id == id);
-    let mut apps: Vec<ApplianceEstimate> = Vec::new();
-    // First the appliance columns, then the per-conductor and on columns.
-    for (name, col) in &wide.columns {
-        let Some(id) = name.strip_suffix("_p_w") else { continue };
-        if known(id) {
-            let Column::Num(v) = col else { return Err(table_err(path, Some(name), None, "not a numeric column", "store powers as numbers in W")) };
-            check_finite(path, name, v, true)?;
-            apps.push(ApplianceEstimate { id: id.to_string(), p_w: v.clone(), on: None, per_conductor: Vec::new() });
+    let mut apps: Vec<AppColumns> = Vec::new();
+    for (name, _) in &h.columns {
+        if let Some(id) = name.strip_suffix("_p_w").filter(|id| known(id)) {
+            apps.push(AppColumns { id: id.to_string(), p: name.clone(), on: None, per_conductor: Vec::new() });
         }
     }
-    for (name, col) in &wide.columns {
+    for (name, text) in &h.columns {
+        if name.strip_suffix("_p_w").is_some_and(known) {
+            if *text {
+                return Err(table_err(path, Some(name), None, "not a numeric column", "store powers as numbers in W"));
+            }
+            continue;
+        }
         let per = name.strip_suffix("_p_w").and_then(|stem| {
             let (id, line) = stem.rsplit_once('_')?;
             (known(id) && ds.lines.iter().any(|l| l == line)).then(|| (id.to_string(), line.to_string()))
         });
-        if let Some(id) = name.strip_suffix("_p_w") {
-            if known(id) {
-                continue;
-            }
-        }
         if let Some((id, line)) = per {
-            let Column::Num(v) = col else { return Err(table_err(path, Some(name), None, "not a numeric column", "store powers as numbers in W")) };
-            // Per-conductor power may be negative (two-wattmeter split).
-            check_finite(path, name, v, false)?;
             let Some(a) = apps.iter_mut().find(|a| a.id == id) else {
                 return Err(table_err(path, Some(name), None, format!("per-conductor column without `{id}_p_w`"), format!("add `{id}_p_w`, the appliance's total")));
             };
-            a.per_conductor.push((line, v.clone()));
+            a.per_conductor.push((line, name.clone()));
             continue;
         }
-        if let Some(id) = name.strip_suffix("_on") {
-            if known(id) {
-                let Column::Num(v) = col else { return Err(table_err(path, Some(name), None, "not a 0/1 column", "store on-states as 0/1 or booleans")) };
-                if let Some(r) = v.iter().position(|x| *x != 0.0 && *x != 1.0) {
-                    return Err(table_err(path, Some(name), Some(r), format!("on-state {} is neither 0 nor 1", v[r]), "store on-states as 0/1 or booleans"));
-                }
-                let Some(a) = apps.iter_mut().find(|a| a.id == id) else {
-                    return Err(table_err(path, Some(name), None, format!("on-state column without `{id}_p_w`"), format!("add `{id}_p_w`")));
-                };
-                a.on = Some(v.iter().map(|x| *x == 1.0).collect());
-                continue;
-            }
+        if let Some(id) = name.strip_suffix("_on").filter(|id| known(id)) {
+            let Some(a) = apps.iter_mut().find(|a| a.id == id) else {
+                return Err(table_err(path, Some(name), None, format!("on-state column without `{id}_p_w`"), format!("add `{id}_p_w`")));
+            };
+            a.on = Some(name.clone());
+            continue;
         }
         let ids: Vec<&str> = ds.appliances.iter().map(|a| a.id.as_str()).collect();
         return Err(table_err(path, Some(name), None, format!("`{name}` is not an appliance column of this dataset"), format!("columns are `{{id}}_p_w`, `{{id}}_on` or `{{id}}_{{conductor}}_p_w` with ids: {}", ids.join(", "))));
@@ -100,7 +89,45 @@ pub fn read_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
     if apps.is_empty() {
         return Err(table_err(path, None, None, "the estimate has no appliance columns", "add `{id}_p_w` columns (W)"));
     }
-    Ok(Estimate { time_ms: wide.time_ms, appliances: apps })
+    Ok(EstimateFile { header: h, apps })
+}
+
+/// What each streamed column must hold: appliance power finite and ≥ 0,
+/// per-conductor power finite (it may be negative: the two-wattmeter split),
+/// on-states 0 or 1.
+#[derive(Clone, Copy, PartialEq)]
+pub enum Rule {
+    Power,
+    Conductor,
+    OnState,
+}
+
+pub fn rules(e: &EstimateFile) -> Vec<Rule> {
+    e.apps.iter().flat_map(|a| std::iter::once(Rule::Power).chain(a.on.iter().map(|_| Rule::OnState)).chain(a.per_conductor.iter().map(|_| Rule::Conductor))).collect()
+}
+
+/// Checks one streamed batch against the rules, naming the first bad row.
+pub fn values_check(path: &Path, names: &[String], rules: &[Rule], b: &Batch) -> Result<(), TableError> {
+    for (c, v) in b.cols.iter().enumerate() {
+        let name = &names[c];
+        if let Some(r) = v.iter().position(|x| !x.is_finite()) {
+            return Err(table_err(path, Some(name), Some(b.first + r), format!("value {} is not a finite number", v[r]), "give every row a finite value (0 W where the appliance is off)"));
+        }
+        match rules[c] {
+            Rule::Power => {
+                if let Some(r) = v.iter().position(|x| *x < 0.0) {
+                    return Err(table_err(path, Some(name), Some(b.first + r), format!("power {} W is negative; an appliance's own power cannot be", v[r]), "clip the estimate at 0 W"));
+                }
+            }
+            Rule::OnState => {
+                if let Some(r) = v.iter().position(|x| *x != 0.0 && *x != 1.0) {
+                    return Err(table_err(path, Some(name), Some(b.first + r), format!("on-state {} is neither 0 nor 1", v[r]), "store on-states as 0/1 or booleans"));
+                }
+            }
+            Rule::Conductor => {}
+        }
+    }
+    Ok(())
 }
 
 /// Long form (`time`, `appliance`, `p_w`) to wide: every appliance must give

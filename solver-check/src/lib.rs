@@ -3,7 +3,8 @@
 //! converted to it. It never depends on the simulator.
 //!
 //! - [`dataset`]: open a dataset folder, check its manifest and files;
-//! - [`table`]: read Parquet or CSV tables;
+//! - [`table`]: read Parquet or CSV tables whole (small ones);
+//! - [`stream`]: stream their numeric columns batch by batch;
 //! - [`estimate`]: read and check an estimate (wide or long);
 //! - [`align`]: match the estimate's intervals with the truth's;
 //! - [`metrics`]: the scores, each formula with its source;
@@ -14,6 +15,7 @@ pub mod dataset;
 pub mod estimate;
 pub mod metrics;
 pub mod score;
+pub mod stream;
 pub mod table;
 
 pub use dataset::{Dataset, DatasetError};

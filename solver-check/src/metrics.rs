@@ -42,10 +42,11 @@ pub fn prf(tp: u64, fp: u64, fneg: u64) -> (f64, f64, f64) {
     (p, r, f)
 }
 
-/// Sums a series needs; adding accumulators pools several appliances.
-#[derive(Clone, Debug, Default)]
-pub struct Acc {
-    pub n: usize,
+/// The sums every score is computed from; adding them pools rows, days or
+/// appliances, so a bootstrap over days needs only these per day.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct Sums {
+    pub n: u64,
     pub sum_y: f64,
     pub sum_yhat: f64,
     pub abs_err: f64,
@@ -56,72 +57,112 @@ pub struct Acc {
     pub tp: u64,
     pub fp: u64,
     pub fneg: u64,
-    /// Per local day: (Σy, Σŷ).
-    pub days: Vec<(f64, f64)>,
+}
+
+impl Sums {
+    pub fn merge(&mut self, o: &Sums) {
+        self.n += o.n;
+        self.sum_y += o.sum_y;
+        self.sum_yhat += o.sum_yhat;
+        self.abs_err += o.abs_err;
+        self.sq_err += o.sq_err;
+        self.sq_y += o.sq_y;
+        self.sum_min += o.sum_min;
+        self.sum_max += o.sum_max;
+        self.tp += o.tp;
+        self.fp += o.fp;
+        self.fneg += o.fneg;
+    }
+}
+
+/// Per local day sums of one series (or of several pooled).
+#[derive(Clone, Debug, Default)]
+pub struct Acc {
+    pub days: Vec<Sums>,
 }
 
 impl Acc {
-    /// Accumulates `y` (truth) and `yhat` (estimate) over rows; `day[t]` is the
-    /// local day index of row t; `on_y`/`on_hat` the on-states.
-    pub fn add(&mut self, y: &[f64], yhat: &[f64], on_y: &[bool], on_hat: &[bool], day: &[u32]) {
-        let ndays = day.last().map(|d| *d as usize + 1).unwrap_or(0);
-        if self.days.len() < ndays {
-            self.days.resize(ndays, (0.0, 0.0));
+    /// Accumulates `y` (truth) and `yhat` (estimate); `day[t]` is the local
+    /// day index of row t; `on` the on-states of truth and estimate, if scored.
+    pub fn add(&mut self, y: &[f64], yhat: &[f64], on: Option<(&[bool], &[bool])>, day: &[u32]) {
+        if let Some(&last) = day.last() {
+            if self.days.len() <= last as usize {
+                self.days.resize(last as usize + 1, Sums::default());
+            }
         }
         for t in 0..y.len() {
             let (a, b) = (y[t], yhat[t]);
             let e = b - a;
-            self.sum_y += a;
-            self.sum_yhat += b;
-            self.abs_err += e.abs();
-            self.sq_err += e * e;
-            self.sq_y += a * a;
-            self.sum_min += a.min(b);
-            self.sum_max += a.max(b);
-            match (on_y[t], on_hat[t]) {
-                (true, true) => self.tp += 1,
-                (false, true) => self.fp += 1,
-                (true, false) => self.fneg += 1,
-                _ => {}
-            }
             let d = &mut self.days[day[t] as usize];
-            d.0 += a;
-            d.1 += b;
+            d.n += 1;
+            d.sum_y += a;
+            d.sum_yhat += b;
+            d.abs_err += e.abs();
+            d.sq_err += e * e;
+            d.sq_y += a * a;
+            d.sum_min += a.min(b);
+            d.sum_max += a.max(b);
+            if let Some((on_y, on_hat)) = on {
+                match (on_y[t], on_hat[t]) {
+                    (true, true) => d.tp += 1,
+                    (false, true) => d.fp += 1,
+                    (true, false) => d.fneg += 1,
+                    _ => {}
+                }
+            }
         }
-        self.n += y.len();
+    }
+
+    pub fn merge(&mut self, o: &Acc) {
+        if self.days.len() < o.days.len() {
+            self.days.resize(o.days.len(), Sums::default());
+        }
+        for (a, b) in self.days.iter_mut().zip(&o.days) {
+            a.merge(b);
+        }
     }
 
     pub fn scores(&self, interval_s: f64) -> Scores {
-        let n = self.n.max(1) as f64;
-        let (precision, recall, f1) = prf(self.tp, self.fp, self.fneg);
-        let day_abs: f64 = self.days.iter().map(|(a, b)| (b - a).abs()).sum();
-        Scores {
-            n: self.n,
-            truth_kwh: self.sum_y * interval_s / 3.6e6,
-            estimate_kwh: self.sum_yhat * interval_s / 3.6e6,
-            // MAE = (1/T)·Σ|ŷ − y|, RMSE = √((1/T)·Σ(ŷ − y)²): as scikit-learn's
-            // mean_absolute_error and mean_squared_error.
-            mae_w: self.abs_err / n,
-            rmse_w: (self.sq_err / n).sqrt(),
-            // NDE = Σ(y − ŷ)² / Σy² — Zhong, Goddard, Sutton, "Signal aggregate
-            // constraints in additive factorial HMMs", NIPS 2014.
-            nde: ratio(self.sq_err, self.sq_y),
-            // SAE = |Σŷ − Σy| / Σy — as used in Zhang et al., "Sequence-to-point
-            // learning with neural networks for NILM", AAAI 2018.
-            sae: ratio((self.sum_yhat - self.sum_y).abs(), self.sum_y),
-            // Daily SAE: Σ_d |ê_d − e_d| / Σ_d e_d over the home's local days
-            // (our aggregation of the same idea; days with no truth count too).
-            sae_day: ratio(day_abs, self.sum_y),
-            energy_error_pct: ratio(100.0 * (self.sum_yhat - self.sum_y), self.sum_y),
-            precision,
-            recall,
-            f1,
-            // Estimated accuracy = 1 − Σ_t Σ_i |ŷ − y| / (2·Σ_t Σ_i y) — Kolter &
-            // Johnson, KDD workshop on data mining applications in sustainability, 2011.
-            accuracy: ratio(self.abs_err, 2.0 * self.sum_y).map(|r| 1.0 - r),
-            // Match rate = Σ min(y, ŷ) / Σ max(y, ŷ) — Mayhorn et al., PNNL, 2016.
-            match_rate: ratio(self.sum_min, self.sum_max),
-        }
+        scores_of(self.days.iter(), interval_s)
+    }
+}
+
+/// Scores from the sums of a set of days (repeats allowed, as in a bootstrap).
+pub fn scores_of<'a>(days: impl Iterator<Item = &'a Sums>, interval_s: f64) -> Scores {
+    let mut s = Sums::default();
+    let mut day_abs = 0.0;
+    for d in days {
+        s.merge(d);
+        day_abs += (d.sum_yhat - d.sum_y).abs();
+    }
+    let n = s.n.max(1) as f64;
+    let (precision, recall, f1) = prf(s.tp, s.fp, s.fneg);
+    Scores {
+        n: s.n as usize,
+        truth_kwh: s.sum_y * interval_s / 3.6e6,
+        estimate_kwh: s.sum_yhat * interval_s / 3.6e6,
+        // MAE = (1/T)·Σ|ŷ − y|, RMSE = √((1/T)·Σ(ŷ − y)²): as scikit-learn's
+        // mean_absolute_error and mean_squared_error.
+        mae_w: s.abs_err / n,
+        rmse_w: (s.sq_err / n).sqrt(),
+        // NDE = Σ(y − ŷ)² / Σy² — Zhong, Goddard, Sutton, "Signal aggregate
+        // constraints in additive factorial HMMs", NIPS 2014.
+        nde: ratio(s.sq_err, s.sq_y),
+        // SAE = |Σŷ − Σy| / Σy — as used in Zhang et al., "Sequence-to-point
+        // learning with neural networks for NILM", AAAI 2018.
+        sae: ratio((s.sum_yhat - s.sum_y).abs(), s.sum_y),
+        // Daily SAE: Σ_d |ê_d − e_d| / Σ_d e_d over the home's local days
+        // (our aggregation of the same idea; days with no truth count too).
+        sae_day: ratio(day_abs, s.sum_y),
+        energy_error_pct: ratio(100.0 * (s.sum_yhat - s.sum_y), s.sum_y),
+        precision,
+        recall,
+        f1,
+        // Estimated accuracy = 1 − Σ_t Σ_i |ŷ − y| / (2·Σ_t Σ_i y) — Kolter &
+        // Johnson, KDD workshop on data mining applications in sustainability, 2011.
+        accuracy: ratio(s.abs_err, 2.0 * s.sum_y).map(|r| 1.0 - r),
+        // Match rate = Σ min(y, ŷ) / Σ max(y, ŷ) — Mayhorn et al., PNNL, 2016.
+        match_rate: ratio(s.sum_min, s.sum_max),
     }
 }
 
@@ -154,7 +195,7 @@ mod tests {
         let on_y: Vec<bool> = y.iter().map(|v| *v > thr).collect();
         let on_h: Vec<bool> = yhat.iter().map(|v| *v > thr).collect();
         let mut a = Acc::default();
-        a.add(y, yhat, &on_y, &on_h, &vec![0; y.len()]);
+        a.add(y, yhat, Some((&on_y, &on_h)), &vec![0; y.len()]);
         a.scores(3600.0)
     }
 

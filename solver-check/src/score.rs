@@ -1,11 +1,12 @@
 //! `loadloom score`: an estimate against a dataset's truth, per appliance,
 //! per conductor and overall, as a table, JSON (`loadloom-score/1`) or Markdown.
 
-use crate::align::{means, plan, Plan};
+use crate::align::{plan_from, Plan, TimeScan};
 use crate::dataset::{Dataset, DatasetError};
-use crate::estimate::{read_estimate, Estimate};
+use crate::estimate::{open_estimate, rules, values_check};
 use crate::metrics::{Acc, Scores};
-use crate::table::{read, table_err, TableError};
+use crate::stream::{header, Cursor};
+use crate::table::{table_err, TableError};
 use serde_json::{json, Value};
 use std::fmt;
 use std::path::Path;
@@ -49,8 +50,11 @@ pub struct ApplianceReport {
     pub id: String,
     pub threshold_w: f64,
     pub scores: Scores,
-    /// (conductor, MAE, RMSE, NDE) where the estimate gives that conductor.
-    pub conductors: Vec<(String, f64, f64, Option<f64>)>,
+    /// Per local day sums, for comparisons.
+    pub acc: Acc,
+    /// (conductor, scores) where the estimate gives that conductor; only
+    /// MAE, RMSE and NDE are meaningful for signed per-conductor power.
+    pub conductors: Vec<(String, Scores)>,
 }
 
 pub struct Report {
@@ -61,25 +65,41 @@ pub struct Report {
     pub timezone: String,
     pub appliances: Vec<ApplianceReport>,
     pub overall: Scores,
+    pub overall_acc: Acc,
 }
 
-/// Local day index (0-based) of each scored interval start, in the home's zone.
-fn day_index(plan: &Plan, tz: &str) -> Vec<u32> {
-    let tz = jiff::tz::TimeZone::get(tz).unwrap_or(jiff::tz::TimeZone::UTC);
-    let start = jiff::Timestamp::from_millisecond(plan.start_ms).unwrap_or(jiff::Timestamp::UNIX_EPOCH).to_zoned(tz.clone());
-    let mut next_midnight = start.date().tomorrow().ok().and_then(|d| d.to_zoned(tz.clone()).ok()).map(|z| z.timestamp().as_millisecond()).unwrap_or(i64::MAX);
-    let mut day = 0u32;
-    (0..plan.rows)
-        .map(|j| {
-            let t = plan.start_ms + j as i64 * plan.interval_ms;
-            while t >= next_midnight {
-                day += 1;
-                let z = jiff::Timestamp::from_millisecond(next_midnight).unwrap().to_zoned(tz.clone());
-                next_midnight = z.date().tomorrow().ok().and_then(|d| d.to_zoned(tz.clone()).ok()).map(|z| z.timestamp().as_millisecond()).unwrap_or(i64::MAX);
+/// Local day indices (0-based, in the home's zone) of consecutive scored
+/// intervals, handed out block by block.
+struct Days {
+    tz: jiff::tz::TimeZone,
+    next_midnight: i64,
+    day: u32,
+    t: i64,
+    step: i64,
+}
+
+impl Days {
+    fn new(plan: &Plan, tz: &str) -> Days {
+        let tz = jiff::tz::TimeZone::get(tz).unwrap_or(jiff::tz::TimeZone::UTC);
+        let mut d = Days { tz, next_midnight: 0, day: 0, t: plan.start_ms, step: plan.interval_ms };
+        d.next_midnight = d.midnight_after(plan.start_ms);
+        d
+    }
+    fn midnight_after(&self, ms: i64) -> i64 {
+        let z = jiff::Timestamp::from_millisecond(ms).unwrap_or(jiff::Timestamp::UNIX_EPOCH).to_zoned(self.tz.clone());
+        z.date().tomorrow().ok().and_then(|d| d.to_zoned(self.tz.clone()).ok()).map(|z| z.timestamp().as_millisecond()).unwrap_or(i64::MAX)
+    }
+    fn take(&mut self, n: usize, out: &mut Vec<u32>) {
+        out.clear();
+        for _ in 0..n {
+            while self.t >= self.next_midnight {
+                self.day += 1;
+                self.next_midnight = self.midnight_after(self.next_midnight);
             }
-            day
-        })
-        .collect()
+            out.push(self.day);
+            self.t += self.step;
+        }
+    }
 }
 
 fn truth_path(ds: &Dataset) -> Result<std::path::PathBuf, DatasetError> {
@@ -91,74 +111,122 @@ fn truth_path(ds: &Dataset) -> Result<std::path::PathBuf, DatasetError> {
     Err(DatasetError { file: ds.dir.join("manifest.json"), message: "the manifest lists no truth file".into(), help: "point --truth at a dataset folder written by `loadloom run`".into() })
 }
 
-/// Scores `estimate` against the dataset in `dataset`.
+/// Scored intervals per block: the unit of streaming.
+const BLOCK: usize = 8192;
+
+/// Scores `estimate` against the dataset in `dataset`, streaming both.
 pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, ScoreError> {
     let ds = Dataset::open(dataset)?;
-    let est: Estimate = read_estimate(estimate, &ds, opts.partial)?;
-    let tpath = truth_path(&ds)?;
-    let wanted_cols: Vec<String> = est.appliances.iter().flat_map(|a| std::iter::once(format!("{}_p_w", a.id)).chain(a.per_conductor.iter().map(|(l, _)| format!("{}_{l}_p_w", a.id)))).collect();
-    let wanted = |name: &str| wanted_cols.iter().any(|w| w == name);
-    let truth = read(&tpath, Some(&wanted))?;
+    let ef = open_estimate(estimate, &ds, opts.partial)?;
     let dt = (ds.interval_s * 1000.0).round() as i64;
-    let t0 = *truth.time_ms.first().ok_or_else(|| table_err(&tpath, Some("time"), None, "the truth has no rows", "rewrite the dataset"))?;
-    let plan = plan(estimate, &est.time_ms, t0, dt, truth.time_ms.len())?;
-    let days = day_index(&plan, &ds.timezone);
-    let interval_s = plan.interval_ms as f64 / 1000.0;
-    let mut overall = Acc::default();
-    let mut reports = Vec::new();
-    let (mut sum_p, mut sum_r, mut sum_f) = (0.0, 0.0, 0.0);
-    for a in &est.appliances {
-        let info = ds.appliances.iter().find(|x| x.id == a.id).expect("checked when read");
-        let threshold_w = opts.thresholds.iter().find(|(id, _)| *id == a.id).map(|t| t.1).unwrap_or(info.on_threshold_w);
-        let tcol = truth.num(&format!("{}_p_w", a.id)).ok_or_else(|| table_err(&tpath, Some(&format!("{}_p_w", a.id)), None, "missing from the truth", "rewrite the dataset"))?;
-        let y = means(tcol, plan.truth_first, plan.truth_per, plan.rows);
-        let yhat = means(&a.p_w, plan.est_first, plan.est_per, plan.rows);
-        let on_y: Vec<bool> = y.iter().map(|v| *v > threshold_w).collect();
-        let on_hat: Vec<bool> = match &a.on {
-            // An on-state column: on for the interval when on for most of it.
-            Some(on) => means(&on.iter().map(|b| *b as u8 as f64).collect::<Vec<_>>(), plan.est_first, plan.est_per, plan.rows).iter().map(|v| *v > 0.5).collect(),
-            None => yhat.iter().map(|v| *v > threshold_w).collect(),
-        };
-        let mut acc = Acc::default();
-        acc.add(&y, &yhat, &on_y, &on_hat, &days);
-        overall.add(&y, &yhat, &on_y, &on_hat, &days);
-        let scores = acc.scores(interval_s);
-        sum_p += scores.precision;
-        sum_r += scores.recall;
-        sum_f += scores.f1;
-        let mut conductors = Vec::new();
-        for (line, v) in &a.per_conductor {
-            let name = format!("{}_{line}_p_w", a.id);
-            let Some(tc) = truth.num(&name) else {
-                return Err(table_err(estimate, Some(&name), None, format!("appliance {} draws nothing on {line}", a.id), "drop the column, or check the wiring").into());
-            };
-            let y = means(tc, plan.truth_first, plan.truth_per, plan.rows);
-            let yh = means(v, plan.est_first, plan.est_per, plan.rows);
-            let n = y.len().max(1) as f64;
-            let abs: f64 = y.iter().zip(&yh).map(|(a, b)| (b - a).abs()).sum();
-            let sq: f64 = y.iter().zip(&yh).map(|(a, b)| (b - a) * (b - a)).sum();
-            let sy: f64 = y.iter().map(|a| a * a).sum();
-            conductors.push((line.clone(), abs / n, (sq / n).sqrt(), (sy > 0.0).then(|| sq / sy)));
-        }
-        reports.push(ApplianceReport { id: a.id.clone(), threshold_w, scores, conductors });
+    let t0 = ds.manifest["time"]["start_utc_ms"].as_i64().ok_or_else(|| DatasetError { file: ds.dir.join("manifest.json"), message: "the manifest lacks time.start_utc_ms".into(), help: "rewrite the dataset with `loadloom run`".into() })?;
+
+    // Pass 1: the estimate's times.
+    let mut scan = TimeScan::default();
+    let mut st = ef.header.stream(&[])?;
+    while let Some(b) = st.next()? {
+        scan.feed(estimate, b.first, &b.time_ms)?;
     }
-    // Overall: errors and energies pooled over appliances and time; precision,
-    // recall and F1 averaged over appliances (macro average).
-    let mut overall = overall.scores(interval_s);
-    let k = reports.len().max(1) as f64;
-    overall.n = plan.rows;
-    overall.precision = sum_p / k;
-    overall.recall = sum_r / k;
-    overall.f1 = sum_f / k;
+    let plan = plan_from(estimate, scan.first, scan.spacing.unwrap_or(dt), scan.rows, t0, dt, ds.rows as usize)?;
+
+    // Pass 2: truth and estimate side by side, block by block.
+    let tpath = truth_path(&ds)?;
+    let th = header(&tpath)?;
+    let mut tcols: Vec<String> = Vec::new();
+    for a in &ef.apps {
+        tcols.push(format!("{}_p_w", a.id));
+        for (line, col) in &a.per_conductor {
+            let name = format!("{}_{line}_p_w", a.id);
+            if !th.has(&name) {
+                return Err(table_err(estimate, Some(col), None, format!("appliance {} draws nothing on {line}", a.id), "drop the column, or check the wiring").into());
+            }
+            tcols.push(name);
+        }
+    }
+    let ecols = ef.columns();
+    let rules = rules(&ef);
+    let mut tc = Cursor::new(th.stream(&tcols)?, Box::new(|_| Ok(())));
+    let mut ec = Cursor::new(ef.header.stream(&ecols)?, Box::new(|b| values_check(estimate, &ecols, &rules, b)));
+    tc.skip(plan.truth_first)?;
+    ec.skip(plan.est_first)?;
+
+    let thresholds: Vec<f64> = ef
+        .apps
+        .iter()
+        .map(|a| opts.thresholds.iter().find(|(id, _)| *id == a.id).map(|t| t.1).unwrap_or_else(|| ds.appliances.iter().find(|x| x.id == a.id).map(|x| x.on_threshold_w).unwrap_or(0.0)))
+        .collect();
+    let mut accs: Vec<Acc> = vec![Acc::default(); ef.apps.len()];
+    let mut cond_accs: Vec<Vec<Acc>> = ef.apps.iter().map(|a| vec![Acc::default(); a.per_conductor.len()]).collect();
+    let mut days = Days::new(&plan, &ds.timezone);
+    let mut day = Vec::with_capacity(BLOCK);
+    let mut y: Vec<Vec<f64>> = vec![Vec::with_capacity(BLOCK); tcols.len()];
+    let mut yh: Vec<Vec<f64>> = vec![Vec::with_capacity(BLOCK); ecols.len()];
+    let (mut on_y, mut on_hat) = (Vec::with_capacity(BLOCK), Vec::with_capacity(BLOCK));
+    let mut done = 0;
+    while done < plan.rows {
+        let count = BLOCK.min(plan.rows - done);
+        y.iter_mut().chain(yh.iter_mut()).for_each(Vec::clear);
+        tc.means(plan.truth_per, count, &mut y)?;
+        ec.means(plan.est_per, count, &mut yh)?;
+        days.take(count, &mut day);
+        let (mut ti, mut ei) = (0, 0);
+        for (k, a) in ef.apps.iter().enumerate() {
+            let thr = thresholds[k];
+            on_y.clear();
+            on_y.extend(y[ti].iter().map(|v| *v > thr));
+            on_hat.clear();
+            match a.on {
+                // An on-state column: on for the interval when on for most of it.
+                Some(_) => on_hat.extend(yh[ei + 1].iter().map(|v| *v > 0.5)),
+                None => on_hat.extend(yh[ei].iter().map(|v| *v > thr)),
+            }
+            accs[k].add(&y[ti], &yh[ei], Some((&on_y, &on_hat)), &day);
+            let e_cond = ei + 1 + a.on.is_some() as usize;
+            for c in 0..a.per_conductor.len() {
+                cond_accs[k][c].add(&y[ti + 1 + c], &yh[e_cond + c], None, &day);
+            }
+            ti += 1 + a.per_conductor.len();
+            ei = e_cond + a.per_conductor.len();
+        }
+        done += count;
+    }
+
+    let interval_s = plan.interval_ms as f64 / 1000.0;
+    let mut overall_acc = Acc::default();
+    let mut reports = Vec::new();
+    for (k, a) in ef.apps.iter().enumerate() {
+        overall_acc.merge(&accs[k]);
+        reports.push(ApplianceReport {
+            id: a.id.clone(),
+            threshold_w: thresholds[k],
+            scores: accs[k].scores(interval_s),
+            conductors: a.per_conductor.iter().zip(&cond_accs[k]).map(|((l, _), acc)| (l.clone(), acc.scores(interval_s))).collect(),
+            acc: std::mem::take(&mut accs[k]),
+        });
+    }
+    let overall = overall_scores(&overall_acc, &reports, interval_s, plan.rows);
     Ok(Report {
         dataset: dataset.display().to_string(),
         estimate: estimate.display().to_string(),
         plan,
-        truth_rows: truth.time_ms.len(),
+        truth_rows: ds.rows as usize,
         timezone: ds.timezone.clone(),
         appliances: reports,
         overall,
+        overall_acc,
     })
+}
+
+/// Overall: errors and energies pooled over appliances and time; precision,
+/// recall and F1 averaged over appliances (macro average).
+pub fn overall_scores(pooled: &Acc, apps: &[ApplianceReport], interval_s: f64, rows: usize) -> Scores {
+    let mut o = pooled.scores(interval_s);
+    let k = apps.len().max(1) as f64;
+    o.n = rows;
+    o.precision = apps.iter().map(|a| a.scores.precision).sum::<f64>() / k;
+    o.recall = apps.iter().map(|a| a.scores.recall).sum::<f64>() / k;
+    o.f1 = apps.iter().map(|a| a.scores.f1).sum::<f64>() / k;
+    o
 }
 
 fn iso(ms: i64, tz: &str) -> String {
@@ -184,7 +252,7 @@ impl Report {
                 let o = v.as_object_mut().unwrap();
                 o.insert("id".into(), json!(a.id));
                 o.insert("on_threshold_w".into(), json!(a.threshold_w));
-                o.insert("conductors".into(), Value::Array(a.conductors.iter().map(|(l, mae, rmse, nde)| json!({ "conductor": l, "mae_w": mae, "rmse_w": rmse, "nde": nde })).collect()));
+                o.insert("conductors".into(), Value::Array(a.conductors.iter().map(|(l, s)| json!({ "conductor": l, "mae_w": s.mae_w, "rmse_w": s.rmse_w, "nde": s.nde })).collect()));
                 v
             }).collect::<Vec<_>>(),
             "overall": self.overall.to_json(),
@@ -239,8 +307,8 @@ impl Report {
             o += "\n";
         }
         for a in &self.appliances {
-            for (l, mae, rmse, nde) in &a.conductors {
-                o += &format!("  {} on {}: MAE {:.1} W, RMSE {:.1} W, NDE {}\n", a.id, l.to_uppercase(), mae, rmse, nde.map(|v| format!("{v:.3}")).unwrap_or_else(|| "–".into()));
+            for (l, s) in &a.conductors {
+                o += &format!("  {} on {}: MAE {:.1} W, RMSE {:.1} W, NDE {}\n", a.id, l.to_uppercase(), s.mae_w, s.rmse_w, s.nde.map(|v| format!("{v:.3}")).unwrap_or_else(|| "–".into()));
             }
         }
         o

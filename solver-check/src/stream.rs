@@ -1,0 +1,308 @@
+//! Streaming numeric columns of a Parquet or CSV table in batches of rows,
+//! so scoring a year at 1 s never holds a whole table in memory.
+
+use crate::table::{table_err, Table, TableError, Column};
+use arrow_array::cast::AsArray;
+use arrow_array::types::{Float32Type, Float64Type, Int32Type, Int64Type};
+use arrow_array::{Array, ArrayRef};
+use arrow_schema::{DataType, TimeUnit};
+use parquet::arrow::arrow_reader::{ParquetRecordBatchReader, ParquetRecordBatchReaderBuilder};
+use parquet::arrow::ProjectionMask;
+use std::io::{BufRead, BufReader};
+use std::path::{Path, PathBuf};
+
+pub const BATCH_ROWS: usize = 1 << 16;
+
+/// Rows `first..first + time_ms.len()` of the requested columns.
+pub struct Batch {
+    pub first: usize,
+    pub time_ms: Vec<i64>,
+    pub cols: Vec<Vec<f64>>,
+}
+
+/// What a table holds, read from its schema or header.
+pub struct Header {
+    pub file: PathBuf,
+    /// Every column but `time`, with whether it is text.
+    pub columns: Vec<(String, bool)>,
+    pub time_zone: Option<String>,
+    kind: Kind,
+}
+
+enum Kind {
+    Parquet { time_index: usize, unit: TimeUnit },
+    Csv { time_index: usize, header: Vec<String> },
+    Mem(Table),
+}
+
+impl Header {
+    pub fn names(&self) -> impl Iterator<Item = &str> {
+        self.columns.iter().map(|(n, _)| n.as_str())
+    }
+    pub fn has(&self, name: &str) -> bool {
+        self.columns.iter().any(|(n, _)| n == name)
+    }
+}
+
+/// Reads the schema (Parquet) or header (CSV) of `path`.
+pub fn header(path: &Path) -> Result<Header, TableError> {
+    match path.extension().and_then(|e| e.to_str()) {
+        Some("parquet") => {
+            let file = std::fs::File::open(path).map_err(|e| table_err(path, None, None, format!("cannot open it: {e}"), "check the path"))?;
+            let b = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| table_err(path, None, None, format!("not a readable Parquet file: {e}"), "write it with pyarrow, pandas or polars (to_parquet)"))?;
+            let schema = b.schema();
+            let ti = schema.index_of("time").map_err(|_| table_err(path, Some("time"), None, "there is no `time` column", "add a `time` column (timestamps of the interval starts)"))?;
+            let (unit, tz) = match schema.field(ti).data_type() {
+                DataType::Timestamp(u, tz) => (*u, tz.as_ref().map(|t| t.to_string())),
+                other => return Err(table_err(path, Some("time"), None, format!("`time` is {other}, not a timestamp"), "store `time` as a timestamp with its time zone (pandas: tz-aware datetime64)")),
+            };
+            let columns = schema
+                .fields()
+                .iter()
+                .enumerate()
+                .filter(|(i, _)| *i != ti)
+                .map(|(_, f)| (f.name().clone(), matches!(f.data_type(), DataType::Utf8 | DataType::LargeUtf8 | DataType::Dictionary(_, _))))
+                .collect();
+            Ok(Header { file: path.to_path_buf(), columns, time_zone: tz, kind: Kind::Parquet { time_index: ti, unit } })
+        }
+        Some("csv") => {
+            let file = std::fs::File::open(path).map_err(|e| table_err(path, None, None, format!("cannot open it: {e}"), "check the path"))?;
+            let mut first = String::new();
+            BufReader::new(file).read_line(&mut first).map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
+            let header: Vec<String> = first.trim_end().split(',').map(|h| h.trim().trim_matches('"').to_string()).collect();
+            let ti = header.iter().position(|h| h == "time").ok_or_else(|| table_err(path, Some("time"), None, "there is no `time` column", "add a `time` column of ISO-8601 times with their UTC offset"))?;
+            let columns = header.iter().enumerate().filter(|(i, _)| *i != ti).map(|(_, h)| (h.clone(), false)).collect();
+            Ok(Header { file: path.to_path_buf(), columns, time_zone: None, kind: Kind::Csv { time_index: ti, header } })
+        }
+        _ => Err(table_err(path, None, None, "unknown file type", "give a .parquet or .csv file")),
+    }
+}
+
+/// A header over a table already in memory (a long estimate turned wide).
+pub fn in_memory(t: Table) -> Header {
+    Header {
+        file: t.file.clone(),
+        columns: t.columns.iter().map(|(n, c)| (n.clone(), matches!(c, Column::Text(_)))).collect(),
+        time_zone: t.time_zone.clone(),
+        kind: Kind::Mem(t),
+    }
+}
+
+pub struct Stream<'h> {
+    h: &'h Header,
+    cols: Vec<String>,
+    row: usize,
+    inner: Inner,
+}
+
+enum Inner {
+    Parquet(ParquetRecordBatchReader, Vec<usize>),
+    Csv(std::io::Lines<BufReader<std::fs::File>>, usize, Vec<usize>),
+    Mem,
+}
+
+fn time_ms(a: &ArrayRef, unit: TimeUnit) -> Vec<i64> {
+    use arrow_array::types::*;
+    match unit {
+        TimeUnit::Second => a.as_primitive::<TimestampSecondType>().values().iter().map(|v| v * 1000).collect(),
+        TimeUnit::Millisecond => a.as_primitive::<TimestampMillisecondType>().values().to_vec(),
+        TimeUnit::Microsecond => a.as_primitive::<TimestampMicrosecondType>().values().iter().map(|v| v.div_euclid(1000)).collect(),
+        TimeUnit::Nanosecond => a.as_primitive::<TimestampNanosecondType>().values().iter().map(|v| v.div_euclid(1_000_000)).collect(),
+    }
+}
+
+impl Header {
+    /// Streams `time` and the numeric columns `cols` (in that order).
+    pub fn stream(&self, cols: &[String]) -> Result<Stream<'_>, TableError> {
+        let path = &self.file;
+        let inner = match &self.kind {
+            Kind::Parquet { time_index, .. } => {
+                let file = std::fs::File::open(path).map_err(|e| table_err(path, None, None, e.to_string(), "check the path"))?;
+                let b = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
+                let schema = b.schema().clone();
+                let mut leaves = vec![*time_index];
+                for c in cols {
+                    leaves.push(schema.index_of(c).map_err(|_| table_err(path, Some(c), None, "no such column", "check the column names"))?);
+                }
+                let mask = ProjectionMask::roots(b.parquet_schema(), leaves.clone());
+                let r = b.with_projection(mask).with_batch_size(BATCH_ROWS).build().map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
+                // The projected batch keeps the file's column order.
+                let mut sorted = leaves.clone();
+                sorted.sort();
+                let pos = leaves.iter().map(|l| sorted.iter().position(|s| s == l).unwrap()).collect();
+                Inner::Parquet(r, pos)
+            }
+            Kind::Csv { time_index, header } => {
+                let file = std::fs::File::open(path).map_err(|e| table_err(path, None, None, e.to_string(), "check the path"))?;
+                let mut lines = BufReader::with_capacity(1 << 20, file).lines();
+                lines.next();
+                let idx = cols.iter().map(|c| header.iter().position(|h| h == c).ok_or_else(|| table_err(path, Some(c), None, "no such column", "check the column names"))).collect::<Result<Vec<_>, _>>()?;
+                Inner::Csv(lines, *time_index, idx)
+            }
+            Kind::Mem(_) => Inner::Mem,
+        };
+        Ok(Stream { h: self, cols: cols.to_vec(), row: 0, inner })
+    }
+}
+
+impl Stream<'_> {
+    /// The next batch, or None at the end.
+    pub fn next(&mut self) -> Result<Option<Batch>, TableError> {
+        let path = &self.h.file;
+        let first = self.row;
+        let batch = match &mut self.inner {
+            Inner::Parquet(r, pos) => {
+                let Some(b) = r.next() else { return Ok(None) };
+                let b = b.map_err(|e| table_err(path, None, Some(first), e.to_string(), "check the file"))?;
+                let Kind::Parquet { unit, .. } = &self.h.kind else { unreachable!() };
+                let t = b.column(pos[0]);
+                if t.null_count() > 0 {
+                    let r = (0..t.len()).find(|&r| t.is_null(r)).unwrap();
+                    return Err(table_err(path, Some("time"), Some(first + r), "a time is missing (null)", "give every row its time"));
+                }
+                let mut cols = Vec::with_capacity(self.cols.len());
+                for (j, name) in self.cols.iter().enumerate() {
+                    let a = b.column(pos[j + 1]);
+                    let v: Vec<f64> = match a.data_type() {
+                        DataType::Float64 => a.as_primitive::<Float64Type>().iter().map(|v| v.unwrap_or(f64::NAN)).collect(),
+                        DataType::Float32 => a.as_primitive::<Float32Type>().iter().map(|v| v.map_or(f64::NAN, |x| x as f64)).collect(),
+                        DataType::Int64 => a.as_primitive::<Int64Type>().iter().map(|v| v.map_or(f64::NAN, |x| x as f64)).collect(),
+                        DataType::Int32 => a.as_primitive::<Int32Type>().iter().map(|v| v.map_or(f64::NAN, |x| x as f64)).collect(),
+                        DataType::Boolean => a.as_boolean().iter().map(|v| v.map_or(f64::NAN, |b| b as u8 as f64)).collect(),
+                        other => return Err(table_err(path, Some(name), None, format!("column type {other} is not numeric"), "store powers as float32 or float64")),
+                    };
+                    cols.push(v);
+                }
+                Batch { first, time_ms: time_ms(t, *unit), cols }
+            }
+            Inner::Csv(lines, ti, idx) => {
+                let mut time = Vec::new();
+                let mut cols: Vec<Vec<f64>> = vec![Vec::new(); idx.len()];
+                let Kind::Csv { header, .. } = &self.h.kind else { unreachable!() };
+                while time.len() < BATCH_ROWS {
+                    let Some(line) = lines.next() else { break };
+                    let line = line.map_err(|e| table_err(path, None, Some(first + time.len()), e.to_string(), "check the file"))?;
+                    if line.trim().is_empty() {
+                        continue;
+                    }
+                    let r = first + time.len();
+                    let cells: Vec<&str> = line.split(',').collect();
+                    if cells.len() != header.len() {
+                        return Err(table_err(path, None, Some(r), format!("{} cells, the header has {}", cells.len(), header.len()), "give every row one value per column"));
+                    }
+                    let ts: jiff::Timestamp = cells[*ti].trim().parse().map_err(|_| {
+                        table_err(path, Some("time"), Some(r), format!("\"{}\" is not a time with its UTC offset", cells[*ti]), "write ISO-8601 with an offset, e.g. 2027-03-13T00:00:00-06:00 or 2027-03-13T06:00:00Z (time zones are never guessed)")
+                    })?;
+                    time.push(ts.as_millisecond());
+                    for (j, &i) in idx.iter().enumerate() {
+                        let s = cells[i].trim();
+                        let v = if s.is_empty() {
+                            f64::NAN
+                        } else {
+                            match s {
+                                "true" | "True" => 1.0,
+                                "false" | "False" => 0.0,
+                                _ => s.parse().map_err(|_| table_err(path, Some(&header[i]), Some(r), format!("\"{s}\" is not a number"), "give powers as numbers in W"))?,
+                            }
+                        };
+                        cols[j].push(v);
+                    }
+                }
+                if time.is_empty() {
+                    return Ok(None);
+                }
+                Batch { first, time_ms: time, cols }
+            }
+            Inner::Mem => {
+                let Kind::Mem(t) = &self.h.kind else { unreachable!() };
+                if first >= t.time_ms.len() {
+                    return Ok(None);
+                }
+                let end = (first + BATCH_ROWS).min(t.time_ms.len());
+                let cols = self.cols.iter().map(|c| t.num(c).map(|v| v[first..end].to_vec()).ok_or_else(|| table_err(path, Some(c), None, "not a numeric column", "store powers as numbers in W"))).collect::<Result<Vec<_>, _>>()?;
+                Batch { first, time_ms: t.time_ms[first..end].to_vec(), cols }
+            }
+        };
+        self.row += batch.time_ms.len();
+        Ok(Some(batch))
+    }
+}
+
+/// Pulls means over groups of rows from a stream, batch by batch.
+pub struct Cursor<'h> {
+    stream: Stream<'h>,
+    batch: Option<Batch>,
+    pos: usize,
+    /// Called on every batch as it arrives (validation of raw values).
+    check: Box<dyn Fn(&Batch) -> Result<(), TableError> + 'h>,
+}
+
+impl<'h> Cursor<'h> {
+    pub fn new(stream: Stream<'h>, check: Box<dyn Fn(&Batch) -> Result<(), TableError> + 'h>) -> Self {
+        Cursor { stream, batch: None, pos: 0, check }
+    }
+
+    fn fill(&mut self) -> Result<bool, TableError> {
+        while self.batch.as_ref().is_none_or(|b| self.pos >= b.time_ms.len()) {
+            match self.stream.next()? {
+                Some(b) => {
+                    (self.check)(&b)?;
+                    self.batch = Some(b);
+                    self.pos = 0;
+                }
+                None => return Ok(false),
+            }
+        }
+        Ok(true)
+    }
+
+    pub fn skip(&mut self, mut n: usize) -> Result<(), TableError> {
+        while n > 0 {
+            if !self.fill()? {
+                return Ok(());
+            }
+            let b = self.batch.as_ref().unwrap();
+            let k = n.min(b.time_ms.len() - self.pos);
+            self.pos += k;
+            n -= k;
+        }
+        Ok(())
+    }
+
+    /// Appends to `out[c]` the means of `count` groups of `per` rows.
+    pub fn means(&mut self, per: usize, count: usize, out: &mut [Vec<f64>]) -> Result<(), TableError> {
+        let mut acc = vec![0.0; out.len()];
+        let mut k = 0;
+        let mut groups = 0;
+        while groups < count {
+            if !self.fill()? {
+                return Err(table_err(&self.stream.h.file, None, Some(self.stream.row), "the table ended early", "rewrite it"));
+            }
+            let b = self.batch.as_ref().unwrap();
+            let avail = b.time_ms.len() - self.pos;
+            if per == 1 {
+                let take = avail.min(count - groups);
+                for (c, o) in out.iter_mut().enumerate() {
+                    o.extend_from_slice(&b.cols[c][self.pos..self.pos + take]);
+                }
+                self.pos += take;
+                groups += take;
+                continue;
+            }
+            for (c, a) in acc.iter_mut().enumerate() {
+                *a += b.cols[c][self.pos];
+            }
+            self.pos += 1;
+            k += 1;
+            if k == per {
+                for (c, o) in out.iter_mut().enumerate() {
+                    o.push(acc[c] / per as f64);
+                    acc[c] = 0.0;
+                }
+                k = 0;
+                groups += 1;
+            }
+        }
+        Ok(())
+    }
+}
