@@ -39,10 +39,22 @@ impl TimeScan {
             } else {
                 let d = x - self.last;
                 if d == 0 {
-                    return Err(table_err(path, Some("time"), Some(r), "duplicate time", "give each interval one row"));
+                    return Err(table_err(
+                        path,
+                        Some("time"),
+                        Some(r),
+                        "duplicate time",
+                        "give each interval one row",
+                    ));
                 }
                 if d < 0 {
-                    return Err(table_err(path, Some("time"), Some(r), "times are not sorted (this row is earlier than the one before)", "sort the rows by time"));
+                    return Err(table_err(
+                        path,
+                        Some("time"),
+                        Some(r),
+                        "times are not sorted (this row is earlier than the one before)",
+                        "sort the rows by time",
+                    ));
                 }
                 match self.spacing {
                     None => self.spacing = Some(d),
@@ -74,11 +86,37 @@ pub fn plan(path: &Path, est: &[i64], t0: i64, dt: i64, n: usize) -> Result<Plan
 }
 
 /// Plans from an estimate's first time, spacing `de` and row count.
-pub fn plan_from(path: &Path, est_first: Option<i64>, de: i64, est_rows: usize, t0: i64, dt: i64, n: usize) -> Result<Plan, TableError> {
+pub fn plan_from(
+    path: &Path,
+    est_first: Option<i64>,
+    de: i64,
+    est_rows: usize,
+    t0: i64,
+    dt: i64,
+    n: usize,
+) -> Result<Plan, TableError> {
     let t_end = t0 + n as i64 * dt;
-    let iso = |ms: i64| jiff::Timestamp::from_millisecond(ms).map(|t| t.to_string()).unwrap_or_default();
-    let none = || table_err(path, Some("time"), None, format!("the estimate's times do not overlap the truth's ({} to {})", iso(t0), iso(t_end)), "estimate the dataset's period");
-    let Some(e0) = est_first else { return Err(none()) };
+    let iso = |ms: i64| {
+        jiff::Timestamp::from_millisecond(ms)
+            .map(|t| t.to_string())
+            .unwrap_or_default()
+    };
+    let none = || {
+        table_err(
+            path,
+            Some("time"),
+            None,
+            format!(
+                "the estimate's times do not overlap the truth's ({} to {})",
+                iso(t0),
+                iso(t_end)
+            ),
+            "estimate the dataset's period",
+        )
+    };
+    let Some(e0) = est_first else {
+        return Err(none());
+    };
     let off = e0 - t0;
     let (interval, truth_per, est_per) = if de == dt {
         (dt, 1, 1)
@@ -92,11 +130,24 @@ pub fn plan_from(path: &Path, est_first: Option<i64>, de: i64, est_rows: usize, 
     // Interval boundaries must fall on each other.
     let grid = de.min(dt);
     if off.rem_euclid(grid) != 0 {
-        return Err(table_err(path, Some("time"), Some(0), format!("the first time is {} s off the truth's interval starts", off.rem_euclid(grid) as f64 / 1000.0), "give interval-start times on the same grid as the truth's `time`"));
+        return Err(table_err(
+            path,
+            Some("time"),
+            Some(0),
+            format!(
+                "the first time is {} s off the truth's interval starts",
+                off.rem_euclid(grid) as f64 / 1000.0
+            ),
+            "give interval-start times on the same grid as the truth's `time`",
+        ));
     }
     // First scored interval: the first start ≥ both series' starts on the scored grid.
     let first = t0.max(e0);
-    let first = if est_per > 1 || truth_per == 1 { t0 + (first - t0 + interval - 1).div_euclid(interval) * interval } else { e0 + (first - e0 + interval - 1).div_euclid(interval) * interval };
+    let first = if est_per > 1 || truth_per == 1 {
+        t0 + (first - t0 + interval - 1).div_euclid(interval) * interval
+    } else {
+        e0 + (first - e0 + interval - 1).div_euclid(interval) * interval
+    };
     let est_end = e0 + est_rows as i64 * de;
     let last = t_end.min(est_end);
     if last <= first {
@@ -122,7 +173,14 @@ pub fn means(v: &[f64], first: usize, per: usize, rows: usize) -> Vec<f64> {
     if per == 1 {
         return v[first..first + rows].to_vec();
     }
-    (0..rows).map(|j| v[first + j * per..first + (j + 1) * per].iter().sum::<f64>() / per as f64).collect()
+    (0..rows)
+        .map(|j| {
+            v[first + j * per..first + (j + 1) * per]
+                .iter()
+                .sum::<f64>()
+                / per as f64
+        })
+        .collect()
 }
 
 #[cfg(test)]
@@ -135,21 +193,39 @@ mod tests {
         // Truth at 1 s from 0; estimate at 10 s from 20 s.
         let est: Vec<i64> = (2..8).map(|k| k * 10_000).collect();
         let pl = plan(p, &est, 0, 1000, 100).unwrap();
-        assert_eq!((pl.rows, pl.truth_first, pl.truth_per, pl.est_first), (6, 20, 10, 0));
+        assert_eq!(
+            (pl.rows, pl.truth_first, pl.truth_per, pl.est_first),
+            (6, 20, 10, 0)
+        );
         // Truth at 10 s; estimate at 1 s from 5 s: the first whole interval starts at 10 s.
         let est: Vec<i64> = (5..95).map(|k| k * 1000).collect();
         let pl = plan(p, &est, 0, 10_000, 10).unwrap();
-        assert_eq!((pl.start_ms, pl.rows, pl.est_first, pl.est_per), (10_000, 8, 5, 10));
+        assert_eq!(
+            (pl.start_ms, pl.rows, pl.est_first, pl.est_per),
+            (10_000, 8, 5, 10)
+        );
         assert_eq!(means(&[1.0, 3.0, 5.0, 7.0], 0, 2, 2), vec![2.0, 6.0]);
     }
 
     #[test]
     fn bad_times_are_named() {
         let p = Path::new("e.csv");
-        assert!(spacing(p, &[0, 1000, 1000], 1000).unwrap_err().message.contains("duplicate"));
+        assert!(spacing(p, &[0, 1000, 1000], 1000)
+            .unwrap_err()
+            .message
+            .contains("duplicate"));
         assert_eq!(spacing(p, &[0, 2000, 1000], 1000).unwrap_err().row, Some(2));
-        assert!(spacing(p, &[0, 1000, 3000], 1000).unwrap_err().message.contains("gap"));
-        assert!(plan(p, &[500_000, 501_000], 0, 1000, 100).unwrap_err().message.contains("overlap"));
-        assert!(plan(p, &[0, 1500], 0, 1000, 100).unwrap_err().message.contains("multiples"));
+        assert!(spacing(p, &[0, 1000, 3000], 1000)
+            .unwrap_err()
+            .message
+            .contains("gap"));
+        assert!(plan(p, &[500_000, 501_000], 0, 1000, 100)
+            .unwrap_err()
+            .message
+            .contains("overlap"));
+        assert!(plan(p, &[0, 1500], 0, 1000, 100)
+            .unwrap_err()
+            .message
+            .contains("multiples"));
     }
 }

@@ -27,7 +27,14 @@ pub struct EstimateFile {
 impl EstimateFile {
     /// Every column to stream, in a fixed order: per appliance p, on, conductors.
     pub fn columns(&self) -> Vec<String> {
-        self.apps.iter().flat_map(|a| std::iter::once(a.p.clone()).chain(a.on.clone()).chain(a.per_conductor.iter().map(|(_, c)| c.clone()))).collect()
+        self.apps
+            .iter()
+            .flat_map(|a| {
+                std::iter::once(a.p.clone())
+                    .chain(a.on.clone())
+                    .chain(a.per_conductor.iter().map(|(_, c)| c.clone()))
+            })
+            .collect()
     }
 }
 
@@ -37,7 +44,19 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
     let mut h = header(path)?;
     if let Some(tz) = &h.time_zone {
         if *tz != ds.timezone {
-            return Err(table_err(path, Some("time"), None, format!("time zone \"{tz}\" differs from the dataset's \"{}\"", ds.timezone), format!("convert the times to the dataset's zone (pandas: .dt.tz_convert(\"{}\"))", ds.timezone)));
+            return Err(table_err(
+                path,
+                Some("time"),
+                None,
+                format!(
+                    "time zone \"{tz}\" differs from the dataset's \"{}\"",
+                    ds.timezone
+                ),
+                format!(
+                    "convert the times to the dataset's zone (pandas: .dt.tz_convert(\"{}\"))",
+                    ds.timezone
+                ),
+            ));
         }
     } else if path.extension().is_some_and(|e| e == "parquet") {
         return Err(table_err(path, Some("time"), None, "`time` has no time zone", format!("store tz-aware times (pandas: .dt.tz_localize(\"UTC\").dt.tz_convert(\"{}\")); time zones are never guessed", ds.timezone)));
@@ -49,45 +68,89 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
     let mut apps: Vec<AppColumns> = Vec::new();
     for (name, _) in &h.columns {
         if let Some(id) = name.strip_suffix("_p_w").filter(|id| known(id)) {
-            apps.push(AppColumns { id: id.to_string(), p: name.clone(), on: None, per_conductor: Vec::new() });
+            apps.push(AppColumns {
+                id: id.to_string(),
+                p: name.clone(),
+                on: None,
+                per_conductor: Vec::new(),
+            });
         }
     }
     for (name, text) in &h.columns {
         if name.strip_suffix("_p_w").is_some_and(known) {
             if *text {
-                return Err(table_err(path, Some(name), None, "not a numeric column", "store powers as numbers in W"));
+                return Err(table_err(
+                    path,
+                    Some(name),
+                    None,
+                    "not a numeric column",
+                    "store powers as numbers in W",
+                ));
             }
             continue;
         }
         let per = name.strip_suffix("_p_w").and_then(|stem| {
             let (id, line) = stem.rsplit_once('_')?;
-            (known(id) && ds.lines.iter().any(|l| l == line)).then(|| (id.to_string(), line.to_string()))
+            (known(id) && ds.lines.iter().any(|l| l == line))
+                .then(|| (id.to_string(), line.to_string()))
         });
         if let Some((id, line)) = per {
             let Some(a) = apps.iter_mut().find(|a| a.id == id) else {
-                return Err(table_err(path, Some(name), None, format!("per-conductor column without `{id}_p_w`"), format!("add `{id}_p_w`, the appliance's total")));
+                return Err(table_err(
+                    path,
+                    Some(name),
+                    None,
+                    format!("per-conductor column without `{id}_p_w`"),
+                    format!("add `{id}_p_w`, the appliance's total"),
+                ));
             };
             a.per_conductor.push((line, name.clone()));
             continue;
         }
         if let Some(id) = name.strip_suffix("_on").filter(|id| known(id)) {
             let Some(a) = apps.iter_mut().find(|a| a.id == id) else {
-                return Err(table_err(path, Some(name), None, format!("on-state column without `{id}_p_w`"), format!("add `{id}_p_w`")));
+                return Err(table_err(
+                    path,
+                    Some(name),
+                    None,
+                    format!("on-state column without `{id}_p_w`"),
+                    format!("add `{id}_p_w`"),
+                ));
             };
             a.on = Some(name.clone());
             continue;
         }
         let ids: Vec<&str> = ds.appliances.iter().map(|a| a.id.as_str()).collect();
-        return Err(table_err(path, Some(name), None, format!("`{name}` is not an appliance column of this dataset"), format!("columns are `{{id}}_p_w`, `{{id}}_on` or `{{id}}_{{conductor}}_p_w` with ids: {}", ids.join(", "))));
+        return Err(table_err(
+            path,
+            Some(name),
+            None,
+            format!("`{name}` is not an appliance column of this dataset"),
+            format!(
+                "columns are `{{id}}_p_w`, `{{id}}_on` or `{{id}}_{{conductor}}_p_w` with ids: {}",
+                ids.join(", ")
+            ),
+        ));
     }
     if !partial {
-        let missing: Vec<&str> = ds.appliances.iter().map(|a| a.id.as_str()).filter(|id| !apps.iter().any(|a| a.id == *id)).collect();
+        let missing: Vec<&str> = ds
+            .appliances
+            .iter()
+            .map(|a| a.id.as_str())
+            .filter(|id| !apps.iter().any(|a| a.id == *id))
+            .collect();
         if !missing.is_empty() {
             return Err(table_err(path, None, None, format!("no estimate for {}", missing.join(", ")), "add a `{id}_p_w` column for each, or pass --partial to score only the appliances given"));
         }
     }
     if apps.is_empty() {
-        return Err(table_err(path, None, None, "the estimate has no appliance columns", "add `{id}_p_w` columns (W)"));
+        return Err(table_err(
+            path,
+            None,
+            None,
+            "the estimate has no appliance columns",
+            "add `{id}_p_w` columns (W)",
+        ));
     }
     Ok(EstimateFile { header: h, apps })
 }
@@ -103,25 +166,58 @@ pub enum Rule {
 }
 
 pub fn rules(e: &EstimateFile) -> Vec<Rule> {
-    e.apps.iter().flat_map(|a| std::iter::once(Rule::Power).chain(a.on.iter().map(|_| Rule::OnState)).chain(a.per_conductor.iter().map(|_| Rule::Conductor))).collect()
+    e.apps
+        .iter()
+        .flat_map(|a| {
+            std::iter::once(Rule::Power)
+                .chain(a.on.iter().map(|_| Rule::OnState))
+                .chain(a.per_conductor.iter().map(|_| Rule::Conductor))
+        })
+        .collect()
 }
 
 /// Checks one streamed batch against the rules, naming the first bad row.
-pub fn values_check(path: &Path, names: &[String], rules: &[Rule], b: &Batch) -> Result<(), TableError> {
+pub fn values_check(
+    path: &Path,
+    names: &[String],
+    rules: &[Rule],
+    b: &Batch,
+) -> Result<(), TableError> {
     for (c, v) in b.cols.iter().enumerate() {
         let name = &names[c];
         if let Some(r) = v.iter().position(|x| !x.is_finite()) {
-            return Err(table_err(path, Some(name), Some(b.first + r), format!("value {} is not a finite number", v[r]), "give every row a finite value (0 W where the appliance is off)"));
+            return Err(table_err(
+                path,
+                Some(name),
+                Some(b.first + r),
+                format!("value {} is not a finite number", v[r]),
+                "give every row a finite value (0 W where the appliance is off)",
+            ));
         }
         match rules[c] {
             Rule::Power => {
                 if let Some(r) = v.iter().position(|x| *x < 0.0) {
-                    return Err(table_err(path, Some(name), Some(b.first + r), format!("power {} W is negative; an appliance's own power cannot be", v[r]), "clip the estimate at 0 W"));
+                    return Err(table_err(
+                        path,
+                        Some(name),
+                        Some(b.first + r),
+                        format!(
+                            "power {} W is negative; an appliance's own power cannot be",
+                            v[r]
+                        ),
+                        "clip the estimate at 0 W",
+                    ));
                 }
             }
             Rule::OnState => {
                 if let Some(r) = v.iter().position(|x| *x != 0.0 && *x != 1.0) {
-                    return Err(table_err(path, Some(name), Some(b.first + r), format!("on-state {} is neither 0 nor 1", v[r]), "store on-states as 0/1 or booleans"));
+                    return Err(table_err(
+                        path,
+                        Some(name),
+                        Some(b.first + r),
+                        format!("on-state {} is neither 0 nor 1", v[r]),
+                        "store on-states as 0/1 or booleans",
+                    ));
                 }
             }
             Rule::Conductor => {}
@@ -134,11 +230,33 @@ pub fn values_check(path: &Path, names: &[String], rules: &[Rule], b: &Batch) ->
 /// the same times, in order.
 fn long_to_wide(t: &Table, ds: &Dataset) -> Result<Table, TableError> {
     let path = &t.file;
-    let ids = t.text("appliance").ok_or_else(|| table_err(path, Some("appliance"), None, "`appliance` is not a text column", "store appliance ids as strings"))?;
-    let p = t.num("p_w").ok_or_else(|| table_err(path, Some("p_w"), None, "`p_w` is not numeric", "store powers as numbers in W"))?;
+    let ids = t.text("appliance").ok_or_else(|| {
+        table_err(
+            path,
+            Some("appliance"),
+            None,
+            "`appliance` is not a text column",
+            "store appliance ids as strings",
+        )
+    })?;
+    let p = t.num("p_w").ok_or_else(|| {
+        table_err(
+            path,
+            Some("p_w"),
+            None,
+            "`p_w` is not numeric",
+            "store powers as numbers in W",
+        )
+    })?;
     for (name, _) in &t.columns {
         if name != "appliance" && name != "p_w" {
-            return Err(table_err(path, Some(name), None, format!("unexpected column `{name}` in a long estimate"), "a long estimate has exactly time, appliance, p_w"));
+            return Err(table_err(
+                path,
+                Some(name),
+                None,
+                format!("unexpected column `{name}` in a long estimate"),
+                "a long estimate has exactly time, appliance, p_w",
+            ));
         }
     }
     let mut order: Vec<String> = Vec::new();
@@ -147,7 +265,13 @@ fn long_to_wide(t: &Table, ds: &Dataset) -> Result<Table, TableError> {
         let id = &ids[r];
         if !ds.appliances.iter().any(|a| &a.id == id) {
             let all: Vec<&str> = ds.appliances.iter().map(|a| a.id.as_str()).collect();
-            return Err(table_err(path, Some("appliance"), Some(r), format!("\"{id}\" is not an appliance of this dataset"), format!("ids: {}", all.join(", "))));
+            return Err(table_err(
+                path,
+                Some("appliance"),
+                Some(r),
+                format!("\"{id}\" is not an appliance of this dataset"),
+                format!("ids: {}", all.join(", ")),
+            ));
         }
         let k = match order.iter().position(|o| o == id) {
             Some(k) => k,
@@ -163,13 +287,26 @@ fn long_to_wide(t: &Table, ds: &Dataset) -> Result<Table, TableError> {
     let times = cols.first().map(|c| c.0.clone()).unwrap_or_default();
     for (k, c) in cols.iter().enumerate() {
         if c.0 != times {
-            return Err(table_err(path, Some("time"), None, format!("appliance \"{}\" has other times than \"{}\"", order[k], order[0]), "give every appliance a row at each time"));
+            return Err(table_err(
+                path,
+                Some("time"),
+                None,
+                format!(
+                    "appliance \"{}\" has other times than \"{}\"",
+                    order[k], order[0]
+                ),
+                "give every appliance a row at each time",
+            ));
         }
     }
     Ok(Table {
         file: t.file.clone(),
         time_ms: times,
         time_zone: t.time_zone.clone(),
-        columns: order.into_iter().zip(cols).map(|(id, c)| (format!("{id}_p_w"), Column::Num(c.1))).collect(),
+        columns: order
+            .into_iter()
+            .zip(cols)
+            .map(|(id, c)| (format!("{id}_p_w"), Column::Num(c.1)))
+            .collect(),
     })
 }

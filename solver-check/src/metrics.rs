@@ -90,26 +90,31 @@ impl Acc {
                 self.days.resize(last as usize + 1, Sums::default());
             }
         }
-        for t in 0..y.len() {
-            let (a, b) = (y[t], yhat[t]);
-            let e = b - a;
-            let d = &mut self.days[day[t] as usize];
-            d.n += 1;
-            d.sum_y += a;
-            d.sum_yhat += b;
-            d.abs_err += e.abs();
-            d.sq_err += e * e;
-            d.sq_y += a * a;
-            d.sum_min += a.min(b);
-            d.sum_max += a.max(b);
+        // Runs of rows on the same local day, summed in registers.
+        let mut start = 0;
+        while start < y.len() {
+            let d = day[start];
+            let end = start + day[start..].iter().position(|&x| x != d).unwrap_or(y.len() - start);
+            let mut s = Sums { n: (end - start) as u64, ..Sums::default() };
+            for (&a, &b) in y[start..end].iter().zip(&yhat[start..end]) {
+                let e = b - a;
+                s.sum_y += a;
+                s.sum_yhat += b;
+                s.abs_err += e.abs();
+                s.sq_err += e * e;
+                s.sq_y += a * a;
+                s.sum_min += a.min(b);
+                s.sum_max += a.max(b);
+            }
             if let Some((on_y, on_hat)) = on {
-                match (on_y[t], on_hat[t]) {
-                    (true, true) => d.tp += 1,
-                    (false, true) => d.fp += 1,
-                    (true, false) => d.fneg += 1,
-                    _ => {}
+                for (&a, &b) in on_y[start..end].iter().zip(&on_hat[start..end]) {
+                    s.tp += (a & b) as u64;
+                    s.fp += (!a & b) as u64;
+                    s.fneg += (a & !b) as u64;
                 }
             }
+            self.days[d as usize].merge(&s);
+            start = end;
         }
     }
 

@@ -5,7 +5,7 @@ use crate::align::{plan_from, Plan, TimeScan};
 use crate::dataset::{Dataset, DatasetError};
 use crate::estimate::{open_estimate, rules, values_check};
 use crate::metrics::{Acc, Scores};
-use crate::stream::{header, Cursor};
+use crate::stream::{header, read_ahead, Cursor};
 use crate::table::{table_err, TableError};
 use serde_json::{json, Value};
 use std::fmt;
@@ -81,13 +81,26 @@ struct Days {
 impl Days {
     fn new(plan: &Plan, tz: &str) -> Days {
         let tz = jiff::tz::TimeZone::get(tz).unwrap_or(jiff::tz::TimeZone::UTC);
-        let mut d = Days { tz, next_midnight: 0, day: 0, t: plan.start_ms, step: plan.interval_ms };
+        let mut d = Days {
+            tz,
+            next_midnight: 0,
+            day: 0,
+            t: plan.start_ms,
+            step: plan.interval_ms,
+        };
         d.next_midnight = d.midnight_after(plan.start_ms);
         d
     }
     fn midnight_after(&self, ms: i64) -> i64 {
-        let z = jiff::Timestamp::from_millisecond(ms).unwrap_or(jiff::Timestamp::UNIX_EPOCH).to_zoned(self.tz.clone());
-        z.date().tomorrow().ok().and_then(|d| d.to_zoned(self.tz.clone()).ok()).map(|z| z.timestamp().as_millisecond()).unwrap_or(i64::MAX)
+        let z = jiff::Timestamp::from_millisecond(ms)
+            .unwrap_or(jiff::Timestamp::UNIX_EPOCH)
+            .to_zoned(self.tz.clone());
+        z.date()
+            .tomorrow()
+            .ok()
+            .and_then(|d| d.to_zoned(self.tz.clone()).ok())
+            .map(|z| z.timestamp().as_millisecond())
+            .unwrap_or(i64::MAX)
     }
     fn take(&mut self, n: usize, out: &mut Vec<u32>) {
         out.clear();
@@ -108,7 +121,11 @@ fn truth_path(ds: &Dataset) -> Result<std::path::PathBuf, DatasetError> {
             return Ok(ds.dir.join(name));
         }
     }
-    Err(DatasetError { file: ds.dir.join("manifest.json"), message: "the manifest lists no truth file".into(), help: "point --truth at a dataset folder written by `loadloom run`".into() })
+    Err(DatasetError {
+        file: ds.dir.join("manifest.json"),
+        message: "the manifest lists no truth file".into(),
+        help: "point --truth at a dataset folder written by `loadloom run`".into(),
+    })
 }
 
 /// Scored intervals per block: the unit of streaming.
@@ -119,7 +136,13 @@ pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, 
     let ds = Dataset::open(dataset)?;
     let ef = open_estimate(estimate, &ds, opts.partial)?;
     let dt = (ds.interval_s * 1000.0).round() as i64;
-    let t0 = ds.manifest["time"]["start_utc_ms"].as_i64().ok_or_else(|| DatasetError { file: ds.dir.join("manifest.json"), message: "the manifest lacks time.start_utc_ms".into(), help: "rewrite the dataset with `loadloom run`".into() })?;
+    let t0 = ds.manifest["time"]["start_utc_ms"]
+        .as_i64()
+        .ok_or_else(|| DatasetError {
+            file: ds.dir.join("manifest.json"),
+            message: "the manifest lacks time.start_utc_ms".into(),
+            help: "rewrite the dataset with `loadloom run`".into(),
+        })?;
 
     // Pass 1: the estimate's times.
     let mut scan = TimeScan::default();
@@ -127,7 +150,15 @@ pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, 
     while let Some(b) = st.next()? {
         scan.feed(estimate, b.first, &b.time_ms)?;
     }
-    let plan = plan_from(estimate, scan.first, scan.spacing.unwrap_or(dt), scan.rows, t0, dt, ds.rows as usize)?;
+    let plan = plan_from(
+        estimate,
+        scan.first,
+        scan.spacing.unwrap_or(dt),
+        scan.rows,
+        t0,
+        dt,
+        ds.rows as usize,
+    )?;
 
     // Pass 2: truth and estimate side by side, block by block.
     let tpath = truth_path(&ds)?;
@@ -138,88 +169,128 @@ pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, 
         for (line, col) in &a.per_conductor {
             let name = format!("{}_{line}_p_w", a.id);
             if !th.has(&name) {
-                return Err(table_err(estimate, Some(col), None, format!("appliance {} draws nothing on {line}", a.id), "drop the column, or check the wiring").into());
+                return Err(table_err(
+                    estimate,
+                    Some(col),
+                    None,
+                    format!("appliance {} draws nothing on {line}", a.id),
+                    "drop the column, or check the wiring",
+                )
+                .into());
             }
             tcols.push(name);
         }
     }
     let ecols = ef.columns();
     let rules = rules(&ef);
-    let mut tc = Cursor::new(th.stream(&tcols)?, Box::new(|_| Ok(())));
-    let mut ec = Cursor::new(ef.header.stream(&ecols)?, Box::new(|b| values_check(estimate, &ecols, &rules, b)));
-    tc.skip(plan.truth_first)?;
-    ec.skip(plan.est_first)?;
+    let tstream = th.stream(&tcols)?;
+    let estream = ef.header.stream(&ecols)?;
+    std::thread::scope(|scope| -> Result<Report, ScoreError> {
+        let mut tc = Cursor::new(Box::new(read_ahead(scope, tstream)), Box::new(|_| Ok(())));
+        let mut ec = Cursor::new(
+            Box::new(estream),
+            Box::new(|b| values_check(estimate, &ecols, &rules, b)),
+        );
+        tc.skip(plan.truth_first)?;
+        ec.skip(plan.est_first)?;
 
-    let thresholds: Vec<f64> = ef
-        .apps
-        .iter()
-        .map(|a| opts.thresholds.iter().find(|(id, _)| *id == a.id).map(|t| t.1).unwrap_or_else(|| ds.appliances.iter().find(|x| x.id == a.id).map(|x| x.on_threshold_w).unwrap_or(0.0)))
-        .collect();
-    let mut accs: Vec<Acc> = vec![Acc::default(); ef.apps.len()];
-    let mut cond_accs: Vec<Vec<Acc>> = ef.apps.iter().map(|a| vec![Acc::default(); a.per_conductor.len()]).collect();
-    let mut days = Days::new(&plan, &ds.timezone);
-    let mut day = Vec::with_capacity(BLOCK);
-    let mut y: Vec<Vec<f64>> = vec![Vec::with_capacity(BLOCK); tcols.len()];
-    let mut yh: Vec<Vec<f64>> = vec![Vec::with_capacity(BLOCK); ecols.len()];
-    let (mut on_y, mut on_hat) = (Vec::with_capacity(BLOCK), Vec::with_capacity(BLOCK));
-    let mut done = 0;
-    while done < plan.rows {
-        let count = BLOCK.min(plan.rows - done);
-        y.iter_mut().chain(yh.iter_mut()).for_each(Vec::clear);
-        tc.means(plan.truth_per, count, &mut y)?;
-        ec.means(plan.est_per, count, &mut yh)?;
-        days.take(count, &mut day);
-        let (mut ti, mut ei) = (0, 0);
-        for (k, a) in ef.apps.iter().enumerate() {
-            let thr = thresholds[k];
-            on_y.clear();
-            on_y.extend(y[ti].iter().map(|v| *v > thr));
-            on_hat.clear();
-            match a.on {
-                // An on-state column: on for the interval when on for most of it.
-                Some(_) => on_hat.extend(yh[ei + 1].iter().map(|v| *v > 0.5)),
-                None => on_hat.extend(yh[ei].iter().map(|v| *v > thr)),
+        let thresholds: Vec<f64> = ef
+            .apps
+            .iter()
+            .map(|a| {
+                opts.thresholds
+                    .iter()
+                    .find(|(id, _)| *id == a.id)
+                    .map(|t| t.1)
+                    .unwrap_or_else(|| {
+                        ds.appliances
+                            .iter()
+                            .find(|x| x.id == a.id)
+                            .map(|x| x.on_threshold_w)
+                            .unwrap_or(0.0)
+                    })
+            })
+            .collect();
+        let mut accs: Vec<Acc> = vec![Acc::default(); ef.apps.len()];
+        let mut cond_accs: Vec<Vec<Acc>> = ef
+            .apps
+            .iter()
+            .map(|a| vec![Acc::default(); a.per_conductor.len()])
+            .collect();
+        let mut days = Days::new(&plan, &ds.timezone);
+        let mut day = Vec::with_capacity(BLOCK);
+        let mut y: Vec<Vec<f64>> = vec![Vec::with_capacity(BLOCK); tcols.len()];
+        let mut yh: Vec<Vec<f64>> = vec![Vec::with_capacity(BLOCK); ecols.len()];
+        let (mut on_y, mut on_hat) = (Vec::with_capacity(BLOCK), Vec::with_capacity(BLOCK));
+        let mut done = 0;
+        while done < plan.rows {
+            let count = BLOCK.min(plan.rows - done);
+            y.iter_mut().chain(yh.iter_mut()).for_each(Vec::clear);
+            tc.means(plan.truth_per, count, &mut y)?;
+            ec.means(plan.est_per, count, &mut yh)?;
+            days.take(count, &mut day);
+            let (mut ti, mut ei) = (0, 0);
+            for (k, a) in ef.apps.iter().enumerate() {
+                let thr = thresholds[k];
+                on_y.clear();
+                on_y.extend(y[ti].iter().map(|v| *v > thr));
+                on_hat.clear();
+                match a.on {
+                    // An on-state column: on for the interval when on for most of it.
+                    Some(_) => on_hat.extend(yh[ei + 1].iter().map(|v| *v > 0.5)),
+                    None => on_hat.extend(yh[ei].iter().map(|v| *v > thr)),
+                }
+                accs[k].add(&y[ti], &yh[ei], Some((&on_y, &on_hat)), &day);
+                let e_cond = ei + 1 + a.on.is_some() as usize;
+                for c in 0..a.per_conductor.len() {
+                    cond_accs[k][c].add(&y[ti + 1 + c], &yh[e_cond + c], None, &day);
+                }
+                ti += 1 + a.per_conductor.len();
+                ei = e_cond + a.per_conductor.len();
             }
-            accs[k].add(&y[ti], &yh[ei], Some((&on_y, &on_hat)), &day);
-            let e_cond = ei + 1 + a.on.is_some() as usize;
-            for c in 0..a.per_conductor.len() {
-                cond_accs[k][c].add(&y[ti + 1 + c], &yh[e_cond + c], None, &day);
-            }
-            ti += 1 + a.per_conductor.len();
-            ei = e_cond + a.per_conductor.len();
+            done += count;
         }
-        done += count;
-    }
 
-    let interval_s = plan.interval_ms as f64 / 1000.0;
-    let mut overall_acc = Acc::default();
-    let mut reports = Vec::new();
-    for (k, a) in ef.apps.iter().enumerate() {
-        overall_acc.merge(&accs[k]);
-        reports.push(ApplianceReport {
-            id: a.id.clone(),
-            threshold_w: thresholds[k],
-            scores: accs[k].scores(interval_s),
-            conductors: a.per_conductor.iter().zip(&cond_accs[k]).map(|((l, _), acc)| (l.clone(), acc.scores(interval_s))).collect(),
-            acc: std::mem::take(&mut accs[k]),
-        });
-    }
-    let overall = overall_scores(&overall_acc, &reports, interval_s, plan.rows);
-    Ok(Report {
-        dataset: dataset.display().to_string(),
-        estimate: estimate.display().to_string(),
-        plan,
-        truth_rows: ds.rows as usize,
-        timezone: ds.timezone.clone(),
-        appliances: reports,
-        overall,
-        overall_acc,
+        let interval_s = plan.interval_ms as f64 / 1000.0;
+        let mut overall_acc = Acc::default();
+        let mut reports = Vec::new();
+        for (k, a) in ef.apps.iter().enumerate() {
+            overall_acc.merge(&accs[k]);
+            reports.push(ApplianceReport {
+                id: a.id.clone(),
+                threshold_w: thresholds[k],
+                scores: accs[k].scores(interval_s),
+                conductors: a
+                    .per_conductor
+                    .iter()
+                    .zip(&cond_accs[k])
+                    .map(|((l, _), acc)| (l.clone(), acc.scores(interval_s)))
+                    .collect(),
+                acc: std::mem::take(&mut accs[k]),
+            });
+        }
+        let overall = overall_scores(&overall_acc, &reports, interval_s, plan.rows);
+        Ok(Report {
+            dataset: dataset.display().to_string(),
+            estimate: estimate.display().to_string(),
+            plan,
+            truth_rows: ds.rows as usize,
+            timezone: ds.timezone.clone(),
+            appliances: reports,
+            overall,
+            overall_acc,
+        })
     })
 }
 
 /// Overall: errors and energies pooled over appliances and time; precision,
 /// recall and F1 averaged over appliances (macro average).
-pub fn overall_scores(pooled: &Acc, apps: &[ApplianceReport], interval_s: f64, rows: usize) -> Scores {
+pub fn overall_scores(
+    pooled: &Acc,
+    apps: &[ApplianceReport],
+    interval_s: f64,
+    rows: usize,
+) -> Scores {
     let mut o = pooled.scores(interval_s);
     let k = apps.len().max(1) as f64;
     o.n = rows;
@@ -231,7 +302,9 @@ pub fn overall_scores(pooled: &Acc, apps: &[ApplianceReport], interval_s: f64, r
 
 fn iso(ms: i64, tz: &str) -> String {
     let tz = jiff::tz::TimeZone::get(tz).unwrap_or(jiff::tz::TimeZone::UTC);
-    jiff::Timestamp::from_millisecond(ms).map(|t| t.to_zoned(tz).strftime("%Y-%m-%dT%H:%M:%S%:z").to_string()).unwrap_or_default()
+    jiff::Timestamp::from_millisecond(ms)
+        .map(|t| t.to_zoned(tz).strftime("%Y-%m-%dT%H:%M:%S%:z").to_string())
+        .unwrap_or_default()
 }
 
 impl Report {
@@ -260,7 +333,8 @@ impl Report {
     }
 
     fn rows(&self) -> Vec<Vec<String>> {
-        let f = |x: Option<f64>, d: usize| x.map(|v| format!("{v:.d$}")).unwrap_or_else(|| "–".into());
+        let f =
+            |x: Option<f64>, d: usize| x.map(|v| format!("{v:.d$}")).unwrap_or_else(|| "–".into());
         let row = |name: &str, s: &Scores| {
             vec![
                 name.to_string(),
@@ -279,18 +353,56 @@ impl Report {
                 f(s.match_rate, 3),
             ]
         };
-        let mut out: Vec<Vec<String>> = self.appliances.iter().map(|a| row(&a.id, &a.scores)).collect();
+        let mut out: Vec<Vec<String>> = self
+            .appliances
+            .iter()
+            .map(|a| row(&a.id, &a.scores))
+            .collect();
         out.push(row("overall", &self.overall));
         out
     }
 
-    const HEAD: [&'static str; 14] = ["appliance", "truth kWh", "est kWh", "MAE W", "RMSE W", "NDE", "SAE", "SAE/day", "energy %", "precision", "recall", "F1", "accuracy", "match"];
+    const HEAD: [&'static str; 14] = [
+        "appliance",
+        "truth kWh",
+        "est kWh",
+        "MAE W",
+        "RMSE W",
+        "NDE",
+        "SAE",
+        "SAE/day",
+        "energy %",
+        "precision",
+        "recall",
+        "F1",
+        "accuracy",
+        "match",
+    ];
 
     pub fn to_text(&self) -> String {
         let rows = self.rows();
-        let widths: Vec<usize> = (0..Self::HEAD.len()).map(|c| rows.iter().map(|r| r[c].chars().count()).chain([Self::HEAD[c].len()]).max().unwrap()).collect();
+        let widths: Vec<usize> = (0..Self::HEAD.len())
+            .map(|c| {
+                rows.iter()
+                    .map(|r| r[c].chars().count())
+                    .chain([Self::HEAD[c].len()])
+                    .max()
+                    .unwrap()
+            })
+            .collect();
         let line = |cells: &[String]| -> String {
-            cells.iter().enumerate().map(|(c, s)| if c == 0 { format!("{s:<w$}", w = widths[c]) } else { format!("{s:>w$}", w = widths[c]) }).collect::<Vec<_>>().join("  ")
+            cells
+                .iter()
+                .enumerate()
+                .map(|(c, s)| {
+                    if c == 0 {
+                        format!("{s:<w$}", w = widths[c])
+                    } else {
+                        format!("{s:>w$}", w = widths[c])
+                    }
+                })
+                .collect::<Vec<_>>()
+                .join("  ")
         };
         let mut o = format!(
             "{} scored against {}: {} intervals of {} s from {}\n\n",
@@ -308,7 +420,16 @@ impl Report {
         }
         for a in &self.appliances {
             for (l, s) in &a.conductors {
-                o += &format!("  {} on {}: MAE {:.1} W, RMSE {:.1} W, NDE {}\n", a.id, l.to_uppercase(), s.mae_w, s.rmse_w, s.nde.map(|v| format!("{v:.3}")).unwrap_or_else(|| "–".into()));
+                o += &format!(
+                    "  {} on {}: MAE {:.1} W, RMSE {:.1} W, NDE {}\n",
+                    a.id,
+                    l.to_uppercase(),
+                    s.mae_w,
+                    s.rmse_w,
+                    s.nde
+                        .map(|v| format!("{v:.3}"))
+                        .unwrap_or_else(|| "–".into())
+                );
             }
         }
         o
@@ -316,9 +437,22 @@ impl Report {
 
     pub fn to_markdown(&self) -> String {
         let rows = self.rows();
-        let mut o = format!("Scores of `{}` against `{}` ({} intervals of {} s).\n\n", self.estimate, self.dataset, self.plan.rows, self.plan.interval_ms as f64 / 1000.0);
+        let mut o = format!(
+            "Scores of `{}` against `{}` ({} intervals of {} s).\n\n",
+            self.estimate,
+            self.dataset,
+            self.plan.rows,
+            self.plan.interval_ms as f64 / 1000.0
+        );
         o += &format!("| {} |\n", Self::HEAD.join(" | "));
-        o += &format!("|{}\n", Self::HEAD.iter().enumerate().map(|(i, _)| if i == 0 { "---|" } else { "---:|" }).collect::<String>());
+        o += &format!(
+            "|{}\n",
+            Self::HEAD
+                .iter()
+                .enumerate()
+                .map(|(i, _)| if i == 0 { "---|" } else { "---:|" })
+                .collect::<String>()
+        );
         for r in &rows {
             o += &format!("| {} |\n", r.join(" | "));
         }

@@ -1,7 +1,7 @@
 //! Streaming numeric columns of a Parquet or CSV table in batches of rows,
 //! so scoring a year at 1 s never holds a whole table in memory.
 
-use crate::table::{table_err, Table, TableError, Column};
+use crate::table::{table_err, Column, Table, TableError};
 use arrow_array::cast::AsArray;
 use arrow_array::types::{Float32Type, Float64Type, Int32Type, Int64Type};
 use arrow_array::{Array, ArrayRef};
@@ -30,8 +30,14 @@ pub struct Header {
 }
 
 enum Kind {
-    Parquet { time_index: usize, unit: TimeUnit },
-    Csv { time_index: usize, header: Vec<String> },
+    Parquet {
+        time_index: usize,
+        unit: TimeUnit,
+    },
+    Csv {
+        time_index: usize,
+        header: Vec<String>,
+    },
     Mem(Table),
 }
 
@@ -48,33 +54,120 @@ impl Header {
 pub fn header(path: &Path) -> Result<Header, TableError> {
     match path.extension().and_then(|e| e.to_str()) {
         Some("parquet") => {
-            let file = std::fs::File::open(path).map_err(|e| table_err(path, None, None, format!("cannot open it: {e}"), "check the path"))?;
-            let b = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| table_err(path, None, None, format!("not a readable Parquet file: {e}"), "write it with pyarrow, pandas or polars (to_parquet)"))?;
+            let file = std::fs::File::open(path).map_err(|e| {
+                table_err(
+                    path,
+                    None,
+                    None,
+                    format!("cannot open it: {e}"),
+                    "check the path",
+                )
+            })?;
+            let b = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| {
+                table_err(
+                    path,
+                    None,
+                    None,
+                    format!("not a readable Parquet file: {e}"),
+                    "write it with pyarrow, pandas or polars (to_parquet)",
+                )
+            })?;
             let schema = b.schema();
-            let ti = schema.index_of("time").map_err(|_| table_err(path, Some("time"), None, "there is no `time` column", "add a `time` column (timestamps of the interval starts)"))?;
+            let ti = schema.index_of("time").map_err(|_| {
+                table_err(
+                    path,
+                    Some("time"),
+                    None,
+                    "there is no `time` column",
+                    "add a `time` column (timestamps of the interval starts)",
+                )
+            })?;
             let (unit, tz) = match schema.field(ti).data_type() {
                 DataType::Timestamp(u, tz) => (*u, tz.as_ref().map(|t| t.to_string())),
-                other => return Err(table_err(path, Some("time"), None, format!("`time` is {other}, not a timestamp"), "store `time` as a timestamp with its time zone (pandas: tz-aware datetime64)")),
+                other => return Err(table_err(
+                    path,
+                    Some("time"),
+                    None,
+                    format!("`time` is {other}, not a timestamp"),
+                    "store `time` as a timestamp with its time zone (pandas: tz-aware datetime64)",
+                )),
             };
             let columns = schema
                 .fields()
                 .iter()
                 .enumerate()
                 .filter(|(i, _)| *i != ti)
-                .map(|(_, f)| (f.name().clone(), matches!(f.data_type(), DataType::Utf8 | DataType::LargeUtf8 | DataType::Dictionary(_, _))))
+                .map(|(_, f)| {
+                    (
+                        f.name().clone(),
+                        matches!(
+                            f.data_type(),
+                            DataType::Utf8 | DataType::LargeUtf8 | DataType::Dictionary(_, _)
+                        ),
+                    )
+                })
                 .collect();
-            Ok(Header { file: path.to_path_buf(), columns, time_zone: tz, kind: Kind::Parquet { time_index: ti, unit } })
+            Ok(Header {
+                file: path.to_path_buf(),
+                columns,
+                time_zone: tz,
+                kind: Kind::Parquet {
+                    time_index: ti,
+                    unit,
+                },
+            })
         }
         Some("csv") => {
-            let file = std::fs::File::open(path).map_err(|e| table_err(path, None, None, format!("cannot open it: {e}"), "check the path"))?;
+            let file = std::fs::File::open(path).map_err(|e| {
+                table_err(
+                    path,
+                    None,
+                    None,
+                    format!("cannot open it: {e}"),
+                    "check the path",
+                )
+            })?;
             let mut first = String::new();
-            BufReader::new(file).read_line(&mut first).map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
-            let header: Vec<String> = first.trim_end().split(',').map(|h| h.trim().trim_matches('"').to_string()).collect();
-            let ti = header.iter().position(|h| h == "time").ok_or_else(|| table_err(path, Some("time"), None, "there is no `time` column", "add a `time` column of ISO-8601 times with their UTC offset"))?;
-            let columns = header.iter().enumerate().filter(|(i, _)| *i != ti).map(|(_, h)| (h.clone(), false)).collect();
-            Ok(Header { file: path.to_path_buf(), columns, time_zone: None, kind: Kind::Csv { time_index: ti, header } })
+            BufReader::new(file)
+                .read_line(&mut first)
+                .map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
+            let header: Vec<String> = first
+                .trim_end()
+                .split(',')
+                .map(|h| h.trim().trim_matches('"').to_string())
+                .collect();
+            let ti = header.iter().position(|h| h == "time").ok_or_else(|| {
+                table_err(
+                    path,
+                    Some("time"),
+                    None,
+                    "there is no `time` column",
+                    "add a `time` column of ISO-8601 times with their UTC offset",
+                )
+            })?;
+            let columns = header
+                .iter()
+                .enumerate()
+                .filter(|(i, _)| *i != ti)
+                .map(|(_, h)| (h.clone(), false))
+                .collect();
+            Ok(Header {
+                file: path.to_path_buf(),
+                columns,
+                time_zone: None,
+                kind: Kind::Csv {
+                    time_index: ti,
+                    header,
+                },
+            })
         }
-        _ => Err(table_err(path, None, None, "unknown file type", "give a .parquet or .csv file")),
+        _ => Err(table_err(
+            path,
+            None,
+            None,
+            "unknown file type",
+            "give a .parquet or .csv file",
+        )),
     }
 }
 
@@ -82,7 +175,11 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
 pub fn in_memory(t: Table) -> Header {
     Header {
         file: t.file.clone(),
-        columns: t.columns.iter().map(|(n, c)| (n.clone(), matches!(c, Column::Text(_)))).collect(),
+        columns: t
+            .columns
+            .iter()
+            .map(|(n, c)| (n.clone(), matches!(c, Column::Text(_))))
+            .collect(),
         time_zone: t.time_zone.clone(),
         kind: Kind::Mem(t),
     }
@@ -104,10 +201,28 @@ enum Inner {
 fn time_ms(a: &ArrayRef, unit: TimeUnit) -> Vec<i64> {
     use arrow_array::types::*;
     match unit {
-        TimeUnit::Second => a.as_primitive::<TimestampSecondType>().values().iter().map(|v| v * 1000).collect(),
-        TimeUnit::Millisecond => a.as_primitive::<TimestampMillisecondType>().values().to_vec(),
-        TimeUnit::Microsecond => a.as_primitive::<TimestampMicrosecondType>().values().iter().map(|v| v.div_euclid(1000)).collect(),
-        TimeUnit::Nanosecond => a.as_primitive::<TimestampNanosecondType>().values().iter().map(|v| v.div_euclid(1_000_000)).collect(),
+        TimeUnit::Second => a
+            .as_primitive::<TimestampSecondType>()
+            .values()
+            .iter()
+            .map(|v| v * 1000)
+            .collect(),
+        TimeUnit::Millisecond => a
+            .as_primitive::<TimestampMillisecondType>()
+            .values()
+            .to_vec(),
+        TimeUnit::Microsecond => a
+            .as_primitive::<TimestampMicrosecondType>()
+            .values()
+            .iter()
+            .map(|v| v.div_euclid(1000))
+            .collect(),
+        TimeUnit::Nanosecond => a
+            .as_primitive::<TimestampNanosecondType>()
+            .values()
+            .iter()
+            .map(|v| v.div_euclid(1_000_000))
+            .collect(),
     }
 }
 
@@ -117,31 +232,67 @@ impl Header {
         let path = &self.file;
         let inner = match &self.kind {
             Kind::Parquet { time_index, .. } => {
-                let file = std::fs::File::open(path).map_err(|e| table_err(path, None, None, e.to_string(), "check the path"))?;
-                let b = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
+                let file = std::fs::File::open(path)
+                    .map_err(|e| table_err(path, None, None, e.to_string(), "check the path"))?;
+                let b = ParquetRecordBatchReaderBuilder::try_new(file)
+                    .map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
                 let schema = b.schema().clone();
                 let mut leaves = vec![*time_index];
                 for c in cols {
-                    leaves.push(schema.index_of(c).map_err(|_| table_err(path, Some(c), None, "no such column", "check the column names"))?);
+                    leaves.push(schema.index_of(c).map_err(|_| {
+                        table_err(
+                            path,
+                            Some(c),
+                            None,
+                            "no such column",
+                            "check the column names",
+                        )
+                    })?);
                 }
                 let mask = ProjectionMask::roots(b.parquet_schema(), leaves.clone());
-                let r = b.with_projection(mask).with_batch_size(BATCH_ROWS).build().map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
+                let r = b
+                    .with_projection(mask)
+                    .with_batch_size(BATCH_ROWS)
+                    .build()
+                    .map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
                 // The projected batch keeps the file's column order.
                 let mut sorted = leaves.clone();
                 sorted.sort();
-                let pos = leaves.iter().map(|l| sorted.iter().position(|s| s == l).unwrap()).collect();
+                let pos = leaves
+                    .iter()
+                    .map(|l| sorted.iter().position(|s| s == l).unwrap())
+                    .collect();
                 Inner::Parquet(r, pos)
             }
             Kind::Csv { time_index, header } => {
-                let file = std::fs::File::open(path).map_err(|e| table_err(path, None, None, e.to_string(), "check the path"))?;
+                let file = std::fs::File::open(path)
+                    .map_err(|e| table_err(path, None, None, e.to_string(), "check the path"))?;
                 let mut lines = BufReader::with_capacity(1 << 20, file).lines();
                 lines.next();
-                let idx = cols.iter().map(|c| header.iter().position(|h| h == c).ok_or_else(|| table_err(path, Some(c), None, "no such column", "check the column names"))).collect::<Result<Vec<_>, _>>()?;
+                let idx = cols
+                    .iter()
+                    .map(|c| {
+                        header.iter().position(|h| h == c).ok_or_else(|| {
+                            table_err(
+                                path,
+                                Some(c),
+                                None,
+                                "no such column",
+                                "check the column names",
+                            )
+                        })
+                    })
+                    .collect::<Result<Vec<_>, _>>()?;
                 Inner::Csv(lines, *time_index, idx)
             }
             Kind::Mem(_) => Inner::Mem,
         };
-        Ok(Stream { h: self, cols: cols.to_vec(), row: 0, inner })
+        Ok(Stream {
+            h: self,
+            cols: cols.to_vec(),
+            row: 0,
+            inner,
+        })
     }
 }
 
@@ -153,42 +304,110 @@ impl Stream<'_> {
         let batch = match &mut self.inner {
             Inner::Parquet(r, pos) => {
                 let Some(b) = r.next() else { return Ok(None) };
-                let b = b.map_err(|e| table_err(path, None, Some(first), e.to_string(), "check the file"))?;
-                let Kind::Parquet { unit, .. } = &self.h.kind else { unreachable!() };
+                let b = b.map_err(|e| {
+                    table_err(path, None, Some(first), e.to_string(), "check the file")
+                })?;
+                let Kind::Parquet { unit, .. } = &self.h.kind else {
+                    unreachable!()
+                };
                 let t = b.column(pos[0]);
                 if t.null_count() > 0 {
                     let r = (0..t.len()).find(|&r| t.is_null(r)).unwrap();
-                    return Err(table_err(path, Some("time"), Some(first + r), "a time is missing (null)", "give every row its time"));
+                    return Err(table_err(
+                        path,
+                        Some("time"),
+                        Some(first + r),
+                        "a time is missing (null)",
+                        "give every row its time",
+                    ));
                 }
                 let mut cols = Vec::with_capacity(self.cols.len());
                 for (j, name) in self.cols.iter().enumerate() {
                     let a = b.column(pos[j + 1]);
                     let v: Vec<f64> = match a.data_type() {
-                        DataType::Float64 => a.as_primitive::<Float64Type>().iter().map(|v| v.unwrap_or(f64::NAN)).collect(),
-                        DataType::Float32 => a.as_primitive::<Float32Type>().iter().map(|v| v.map_or(f64::NAN, |x| x as f64)).collect(),
-                        DataType::Int64 => a.as_primitive::<Int64Type>().iter().map(|v| v.map_or(f64::NAN, |x| x as f64)).collect(),
-                        DataType::Int32 => a.as_primitive::<Int32Type>().iter().map(|v| v.map_or(f64::NAN, |x| x as f64)).collect(),
-                        DataType::Boolean => a.as_boolean().iter().map(|v| v.map_or(f64::NAN, |b| b as u8 as f64)).collect(),
-                        other => return Err(table_err(path, Some(name), None, format!("column type {other} is not numeric"), "store powers as float32 or float64")),
+                        // Without nulls, straight from the values buffer (the hot path).
+                        DataType::Float64 if a.null_count() == 0 => {
+                            a.as_primitive::<Float64Type>().values().to_vec()
+                        }
+                        DataType::Float32 if a.null_count() == 0 => a
+                            .as_primitive::<Float32Type>()
+                            .values()
+                            .iter()
+                            .map(|&x| x as f64)
+                            .collect(),
+                        DataType::Float64 => a
+                            .as_primitive::<Float64Type>()
+                            .iter()
+                            .map(|v| v.unwrap_or(f64::NAN))
+                            .collect(),
+                        DataType::Float32 => a
+                            .as_primitive::<Float32Type>()
+                            .iter()
+                            .map(|v| v.map_or(f64::NAN, |x| x as f64))
+                            .collect(),
+                        DataType::Int64 => a
+                            .as_primitive::<Int64Type>()
+                            .iter()
+                            .map(|v| v.map_or(f64::NAN, |x| x as f64))
+                            .collect(),
+                        DataType::Int32 => a
+                            .as_primitive::<Int32Type>()
+                            .iter()
+                            .map(|v| v.map_or(f64::NAN, |x| x as f64))
+                            .collect(),
+                        DataType::Boolean => a
+                            .as_boolean()
+                            .iter()
+                            .map(|v| v.map_or(f64::NAN, |b| b as u8 as f64))
+                            .collect(),
+                        other => {
+                            return Err(table_err(
+                                path,
+                                Some(name),
+                                None,
+                                format!("column type {other} is not numeric"),
+                                "store powers as float32 or float64",
+                            ))
+                        }
                     };
                     cols.push(v);
                 }
-                Batch { first, time_ms: time_ms(t, *unit), cols }
+                Batch {
+                    first,
+                    time_ms: time_ms(t, *unit),
+                    cols,
+                }
             }
             Inner::Csv(lines, ti, idx) => {
                 let mut time = Vec::new();
                 let mut cols: Vec<Vec<f64>> = vec![Vec::new(); idx.len()];
-                let Kind::Csv { header, .. } = &self.h.kind else { unreachable!() };
+                let Kind::Csv { header, .. } = &self.h.kind else {
+                    unreachable!()
+                };
                 while time.len() < BATCH_ROWS {
                     let Some(line) = lines.next() else { break };
-                    let line = line.map_err(|e| table_err(path, None, Some(first + time.len()), e.to_string(), "check the file"))?;
+                    let line = line.map_err(|e| {
+                        table_err(
+                            path,
+                            None,
+                            Some(first + time.len()),
+                            e.to_string(),
+                            "check the file",
+                        )
+                    })?;
                     if line.trim().is_empty() {
                         continue;
                     }
                     let r = first + time.len();
                     let cells: Vec<&str> = line.split(',').collect();
                     if cells.len() != header.len() {
-                        return Err(table_err(path, None, Some(r), format!("{} cells, the header has {}", cells.len(), header.len()), "give every row one value per column"));
+                        return Err(table_err(
+                            path,
+                            None,
+                            Some(r),
+                            format!("{} cells, the header has {}", cells.len(), header.len()),
+                            "give every row one value per column",
+                        ));
                     }
                     let ts: jiff::Timestamp = cells[*ti].trim().parse().map_err(|_| {
                         table_err(path, Some("time"), Some(r), format!("\"{}\" is not a time with its UTC offset", cells[*ti]), "write ISO-8601 with an offset, e.g. 2027-03-13T00:00:00-06:00 or 2027-03-13T06:00:00Z (time zones are never guessed)")
@@ -202,7 +421,15 @@ impl Stream<'_> {
                             match s {
                                 "true" | "True" => 1.0,
                                 "false" | "False" => 0.0,
-                                _ => s.parse().map_err(|_| table_err(path, Some(&header[i]), Some(r), format!("\"{s}\" is not a number"), "give powers as numbers in W"))?,
+                                _ => s.parse().map_err(|_| {
+                                    table_err(
+                                        path,
+                                        Some(&header[i]),
+                                        Some(r),
+                                        format!("\"{s}\" is not a number"),
+                                        "give powers as numbers in W",
+                                    )
+                                })?,
                             }
                         };
                         cols[j].push(v);
@@ -211,16 +438,40 @@ impl Stream<'_> {
                 if time.is_empty() {
                     return Ok(None);
                 }
-                Batch { first, time_ms: time, cols }
+                Batch {
+                    first,
+                    time_ms: time,
+                    cols,
+                }
             }
             Inner::Mem => {
-                let Kind::Mem(t) = &self.h.kind else { unreachable!() };
+                let Kind::Mem(t) = &self.h.kind else {
+                    unreachable!()
+                };
                 if first >= t.time_ms.len() {
                     return Ok(None);
                 }
                 let end = (first + BATCH_ROWS).min(t.time_ms.len());
-                let cols = self.cols.iter().map(|c| t.num(c).map(|v| v[first..end].to_vec()).ok_or_else(|| table_err(path, Some(c), None, "not a numeric column", "store powers as numbers in W"))).collect::<Result<Vec<_>, _>>()?;
-                Batch { first, time_ms: t.time_ms[first..end].to_vec(), cols }
+                let cols = self
+                    .cols
+                    .iter()
+                    .map(|c| {
+                        t.num(c).map(|v| v[first..end].to_vec()).ok_or_else(|| {
+                            table_err(
+                                path,
+                                Some(c),
+                                None,
+                                "not a numeric column",
+                                "store powers as numbers in W",
+                            )
+                        })
+                    })
+                    .collect::<Result<Vec<_>, _>>()?;
+                Batch {
+                    first,
+                    time_ms: t.time_ms[first..end].to_vec(),
+                    cols,
+                }
             }
         };
         self.row += batch.time_ms.len();
@@ -228,9 +479,59 @@ impl Stream<'_> {
     }
 }
 
+/// Where a cursor gets its batches: a stream read here, or one read by
+/// another thread (so truth and estimate decode on two cores).
+pub trait Batches {
+    fn next_batch(&mut self) -> Result<Option<Batch>, TableError>;
+    fn file(&self) -> &Path;
+}
+
+impl Batches for Stream<'_> {
+    fn next_batch(&mut self) -> Result<Option<Batch>, TableError> {
+        self.next()
+    }
+    fn file(&self) -> &Path {
+        &self.h.file
+    }
+}
+
+/// Batches read ahead by another thread (see [`read_ahead`]).
+pub struct ReadAhead {
+    rx: std::sync::mpsc::Receiver<Result<Option<Batch>, TableError>>,
+    file: PathBuf,
+}
+
+impl Batches for ReadAhead {
+    fn next_batch(&mut self) -> Result<Option<Batch>, TableError> {
+        self.rx.recv().unwrap_or(Ok(None))
+    }
+    fn file(&self) -> &Path {
+        &self.file
+    }
+}
+
+/// Moves `stream` to a thread of `scope` that reads a few batches ahead.
+pub fn read_ahead<'scope, 'h: 'scope>(
+    scope: &'scope std::thread::Scope<'scope, '_>,
+    mut stream: Stream<'h>,
+) -> ReadAhead {
+    let (tx, rx) = std::sync::mpsc::sync_channel(4);
+    let file = stream.h.file.clone();
+    scope.spawn(move || loop {
+        let r = stream.next();
+        let end = !matches!(r, Ok(Some(_)));
+        // A closed receiver means the reader stopped early (an error): stop too.
+        if tx.send(r).is_err() || end {
+            break;
+        }
+    });
+    ReadAhead { rx, file }
+}
+
 /// Pulls means over groups of rows from a stream, batch by batch.
 pub struct Cursor<'h> {
-    stream: Stream<'h>,
+    stream: Box<dyn Batches + 'h>,
+    row: usize,
     batch: Option<Batch>,
     pos: usize,
     /// Called on every batch as it arrives (validation of raw values).
@@ -238,15 +539,29 @@ pub struct Cursor<'h> {
 }
 
 impl<'h> Cursor<'h> {
-    pub fn new(stream: Stream<'h>, check: Box<dyn Fn(&Batch) -> Result<(), TableError> + 'h>) -> Self {
-        Cursor { stream, batch: None, pos: 0, check }
+    pub fn new(
+        stream: Box<dyn Batches + 'h>,
+        check: Box<dyn Fn(&Batch) -> Result<(), TableError> + 'h>,
+    ) -> Self {
+        Cursor {
+            stream,
+            row: 0,
+            batch: None,
+            pos: 0,
+            check,
+        }
     }
 
     fn fill(&mut self) -> Result<bool, TableError> {
-        while self.batch.as_ref().is_none_or(|b| self.pos >= b.time_ms.len()) {
-            match self.stream.next()? {
+        while self
+            .batch
+            .as_ref()
+            .is_none_or(|b| self.pos >= b.time_ms.len())
+        {
+            match self.stream.next_batch()? {
                 Some(b) => {
                     (self.check)(&b)?;
+                    self.row = b.first + b.time_ms.len();
                     self.batch = Some(b);
                     self.pos = 0;
                 }
@@ -270,13 +585,24 @@ impl<'h> Cursor<'h> {
     }
 
     /// Appends to `out[c]` the means of `count` groups of `per` rows.
-    pub fn means(&mut self, per: usize, count: usize, out: &mut [Vec<f64>]) -> Result<(), TableError> {
+    pub fn means(
+        &mut self,
+        per: usize,
+        count: usize,
+        out: &mut [Vec<f64>],
+    ) -> Result<(), TableError> {
         let mut acc = vec![0.0; out.len()];
         let mut k = 0;
         let mut groups = 0;
         while groups < count {
             if !self.fill()? {
-                return Err(table_err(&self.stream.h.file, None, Some(self.stream.row), "the table ended early", "rewrite it"));
+                return Err(table_err(
+                    self.stream.file(),
+                    None,
+                    Some(self.row),
+                    "the table ended early",
+                    "rewrite it",
+                ));
             }
             let b = self.batch.as_ref().unwrap();
             let avail = b.time_ms.len() - self.pos;
