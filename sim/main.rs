@@ -61,6 +61,16 @@ enum Command {
         /// On-threshold for an appliance, replacing the manifest's: ID=WATTS (repeatable).
         #[arg(long, value_name = "ID=W")]
         threshold: Vec<String>,
+        /// Another estimate: report each score's difference with a 95 %
+        /// interval from a paired bootstrap over days.
+        #[arg(long, value_name = "OTHER_ESTIMATE")]
+        against: Option<PathBuf>,
+        /// Bootstrap resamples for --against.
+        #[arg(long, default_value_t = 1000, requires = "against")]
+        resamples: usize,
+        /// Seed of the bootstrap for --against.
+        #[arg(long, default_value_t = 0, requires = "against")]
+        bootstrap_seed: u64,
     },
     /// Parse and check a scenario; print what it will produce, write nothing.
     Validate {
@@ -112,7 +122,7 @@ fn parse_threshold(t: &str) -> Result<(String, f64), String> {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
-        Command::Score { truth, estimate, json, markdown, partial, threshold } => {
+        Command::Score { truth, estimate, json, markdown, partial, threshold, against, resamples, bootstrap_seed } => {
             let mut thresholds = Vec::new();
             for t in &threshold {
                 match parse_threshold(t) {
@@ -124,6 +134,32 @@ fn main() -> ExitCode {
                 }
             }
             let opts = solver_check::score::Options { partial, thresholds };
+            if let Some(other) = against {
+                let scored = solver_check::score::score(&truth, &estimate, &opts).and_then(|a| Ok((a, solver_check::score::score(&truth, &other, &opts)?)));
+                let (a, b) = match scored {
+                    Ok(x) => x,
+                    Err(e) => {
+                        eprintln!("{e}");
+                        return ExitCode::from(BAD_INPUT);
+                    }
+                };
+                return match solver_check::compare::compare(&a, &b, resamples.max(1), bootstrap_seed) {
+                    Ok(c) => {
+                        if json {
+                            println!("{}", serde_json::to_string_pretty(&c.to_json()).expect("JSON"));
+                        } else if markdown {
+                            print!("{}", c.to_markdown());
+                        } else {
+                            print!("{}", c.to_text());
+                        }
+                        ExitCode::SUCCESS
+                    }
+                    Err(m) => {
+                        eprintln!("error: {m}\n  --> {} and {}", estimate.display(), other.display());
+                        ExitCode::from(BAD_INPUT)
+                    }
+                };
+            }
             match solver_check::score::score(&truth, &estimate, &opts) {
                 Ok(r) => {
                     if json {

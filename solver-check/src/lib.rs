@@ -8,9 +8,11 @@
 //! - [`estimate`]: read and check an estimate (wide or long);
 //! - [`align`]: match the estimate's intervals with the truth's;
 //! - [`metrics`]: the scores, each formula with its source;
-//! - [`score`]: all of it together, and the reports.
+//! - [`score`]: all of it together, and the reports;
+//! - [`compare`]: two estimates, with a paired bootstrap over days.
 
 pub mod align;
+pub mod compare;
 pub mod dataset;
 pub mod estimate;
 pub mod metrics;
