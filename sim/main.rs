@@ -21,6 +21,13 @@ enum FormatArg {
     Csv,
 }
 
+#[derive(Clone, Copy, ValueEnum)]
+enum RevealArg {
+    Ids,
+    Wiring,
+    States,
+}
+
 #[derive(Subcommand)]
 enum Command {
     /// Simulate a scenario and write its dataset folder, OUT/<scenario name>/.
@@ -72,6 +79,42 @@ enum Command {
         #[arg(long, default_value_t = 0, requires = "against")]
         bootstrap_seed: u64,
     },
+    /// Generate a task from a scenario, run a disaggregator on it, score its estimate.
+    Roundtrip {
+        /// The scenario file (TOML).
+        scenario: PathBuf,
+        /// `builtin:mean`, `builtin:co`, `builtin:co-conductor`, or a command
+        /// holding {task} and {estimate}, e.g. "python3 mine.py {task} {estimate}" (run without a shell).
+        #[arg(long)]
+        solver: String,
+        /// Length of the training period (meters and truth handed over).
+        #[arg(long, default_value = "14d")]
+        train: String,
+        /// Length of the test period (meters only; scored).
+        #[arg(long, default_value = "7d")]
+        test: String,
+        /// How much of the appliances' description the task reveals.
+        #[arg(long, value_enum, default_value = "wiring")]
+        reveal: RevealArg,
+        /// Time limit for the solver.
+        #[arg(long, default_value = "10m")]
+        timeout: String,
+        /// Folder that receives OUT/<scenario name>-roundtrip/.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+        /// Replace the scenario's seed.
+        #[arg(long)]
+        seed: Option<u64>,
+        /// The estimate file the solver writes: Parquet or CSV.
+        #[arg(long, value_enum, default_value = "parquet")]
+        estimate_format: FormatArg,
+        /// Print the JSON score report.
+        #[arg(long, conflicts_with = "markdown")]
+        json: bool,
+        /// Print a Markdown table.
+        #[arg(long)]
+        markdown: bool,
+    },
     /// Parse and check a scenario; print what it will produce, write nothing.
     Validate {
         /// The scenario file (TOML).
@@ -90,13 +133,20 @@ fn load(path: &Path) -> Result<Scenario, ExitCode> {
     })
 }
 
-/// `--length 30d` or `--length "12 h"`: a duration with its unit.
-fn apply_length(s: &mut Scenario, text: &str) -> Result<(), String> {
-    let spaced = match text.find(|c: char| c.is_ascii_alphabetic()) {
-        Some(i) if !text[..i].ends_with(' ') => format!("{} {}", &text[..i], &text[i..]),
-        _ => text.to_string(),
+/// `30d`, `"12 h"` or `90s`: a duration with its unit, in seconds.
+fn cli_duration(text: &str) -> Result<f64, String> {
+    let (num, unit) = match text.find(|c: char| c.is_ascii_alphabetic()) {
+        Some(i) => (text[..i].trim(), text[i..].trim()),
+        None => (text.trim(), ""),
     };
-    let len = parse_quantity(&spaced, Kind::Duration)?;
+    // On the command line `10m` means ten minutes, as in most tools.
+    let unit = if unit == "m" { "min" } else { unit };
+    parse_quantity(&format!("{num} {unit}"), Kind::Duration)
+}
+
+/// `--length 30d` or `--length "12 h"`.
+fn apply_length(s: &mut Scenario, text: &str) -> Result<(), String> {
+    let len = cli_duration(text)?;
     if len <= 0.0 {
         return Err("the length must be greater than zero".into());
     }
@@ -122,6 +172,79 @@ fn parse_threshold(t: &str) -> Result<(String, f64), String> {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
+        Command::Roundtrip { scenario, solver, train, test, reveal, timeout, out, seed, estimate_format, json, markdown } => {
+            let bad = |m: String| {
+                eprintln!("error: {m}");
+                ExitCode::from(BAD_INPUT)
+            };
+            let solver = match solver_check::roundtrip::Solver::parse(&solver) {
+                Ok(s) => s,
+                Err(m) => return bad(format!("--solver: {m}")),
+            };
+            let mut s = match load(&scenario) {
+                Ok(s) => s,
+                Err(c) => return c,
+            };
+            if let Some(seed) = seed {
+                s.run.seed = seed;
+            }
+            let per = s.meter.interval_s;
+            let whole = |name: &str, text: &str, min: f64| -> Result<f64, String> {
+                let v = cli_duration(text).map_err(|m| format!("--{name} {text}: {m}"))?;
+                if v < min || ((v / per).round() - v / per).abs() > 1e-6 {
+                    return Err(format!("--{name} {text}: must be a whole number of reporting intervals ({per} s){}", if min > 0.0 { ", more than zero" } else { "" }));
+                }
+                Ok(v)
+            };
+            let (train_s, test_s, limit) = match (whole("train", &train, 0.0), whole("test", &test, per), cli_duration(&timeout)) {
+                (Ok(a), Ok(b), Ok(t)) if t > 0.0 => (a, b, t),
+                (Err(m), _, _) | (_, Err(m), _) => return bad(m),
+                _ => return bad(format!("--timeout {timeout}: write a duration such as 10m or 90s")),
+            };
+            s.run.length_s = train_s + test_s;
+            let work = out.join(format!("{}-roundtrip", s.name));
+            let written = match dataset::write(&s, &work, Format::Parquet, &mut |_| {}) {
+                Ok(w) => w,
+                Err(e) => {
+                    eprintln!("error: writing the dataset under {} failed: {e}", work.display());
+                    return ExitCode::from(FAILED);
+                }
+            };
+            let reveal = match reveal {
+                RevealArg::Ids => solver_check::roundtrip::Reveal::Ids,
+                RevealArg::Wiring => solver_check::roundtrip::Reveal::Wiring,
+                RevealArg::States => solver_check::roundtrip::Reveal::States,
+            };
+            let est_name = match estimate_format {
+                FormatArg::Parquet => "estimate.parquet",
+                FormatArg::Csv => "estimate.csv",
+            };
+            let train_rows = (train_s / per).round() as usize;
+            let o = match solver_check::roundtrip::run(&written.dir, &work, train_rows, reveal, &solver, std::time::Duration::from_secs_f64(limit), est_name) {
+                Ok(o) => o,
+                Err(e) => {
+                    eprintln!("error: preparing the task under {} failed: {e}", work.display());
+                    return ExitCode::from(FAILED);
+                }
+            };
+            match o.result {
+                Ok(r) => {
+                    if json {
+                        let mut v = r.to_json();
+                        v["solver"] = serde_json::json!({ "command": o.solver, "seconds": o.seconds, "task": o.task_dir, "log": o.log });
+                        println!("{}", serde_json::to_string_pretty(&v).expect("JSON"));
+                    } else {
+                        println!("solver {} finished in {:.1} s (task {}, log {})", o.solver, o.seconds, o.task_dir.display(), o.log.display());
+                        print!("{}", if markdown { r.to_markdown() } else { r.to_text() });
+                    }
+                    ExitCode::SUCCESS
+                }
+                Err(f) => {
+                    eprintln!("error: solver {}: {f}\n  --> task {}, log {}\n  = help: run the solver by hand on the task folder to see what went wrong; no score was given", o.solver, o.task_dir.display(), o.log.display());
+                    ExitCode::from(FAILED)
+                }
+            }
+        }
         Command::Score { truth, estimate, json, markdown, partial, threshold, against, resamples, bootstrap_seed } => {
             let mut thresholds = Vec::new();
             for t in &threshold {
@@ -133,7 +256,7 @@ fn main() -> ExitCode {
                     }
                 }
             }
-            let opts = solver_check::score::Options { partial, thresholds };
+            let opts = solver_check::score::Options { partial, thresholds, window: None };
             if let Some(other) = against {
                 let scored = solver_check::score::score(&truth, &estimate, &opts).and_then(|a| Ok((a, solver_check::score::score(&truth, &other, &opts)?)));
                 let (a, b) = match scored {

@@ -9,15 +9,19 @@
 //! - [`align`]: match the estimate's intervals with the truth's;
 //! - [`metrics`]: the scores, each formula with its source;
 //! - [`score`]: all of it together, and the reports;
-//! - [`compare`]: two estimates, with a paired bootstrap over days.
+//! - [`compare`]: two estimates, with a paired bootstrap over days;
+//! - [`roundtrip`]: task folder, solver run, score; [`solvers`]: the built-in ones.
 
 pub mod align;
 pub mod compare;
 pub mod dataset;
 pub mod estimate;
 pub mod metrics;
+pub mod roundtrip;
 pub mod score;
+pub mod solvers;
 pub mod stream;
 pub mod table;
+pub mod taskio;
 
 pub use dataset::{Dataset, DatasetError};

@@ -44,6 +44,9 @@ pub struct Options {
     pub partial: bool,
     /// On-thresholds (W) replacing the manifest's.
     pub thresholds: Vec<(String, f64)>,
+    /// Score only truth rows `first .. first + rows` (the test period of a
+    /// round trip).
+    pub window: Option<(usize, usize)>,
 }
 
 pub struct ApplianceReport {

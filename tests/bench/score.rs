@@ -52,7 +52,7 @@ fn prepare(days: f64, dir: &Path) -> (PathBuf, PathBuf, usize, u64) {
 fn main() {
     let args: Vec<String> = std::env::args().collect();
     if let Some(i) = args.iter().position(|a| a == "--child") {
-        let opts = solver_check::score::Options { partial: false, thresholds: vec![] };
+        let opts = solver_check::score::Options { partial: false, thresholds: vec![], window: None };
         let t = Instant::now();
         let r = solver_check::score::score(Path::new(&args[i + 1]), Path::new(&args[i + 2]), &opts).expect("score");
         println!("{} {} {}", t.elapsed().as_secs_f64(), peak_mb(), r.overall.mae_w);

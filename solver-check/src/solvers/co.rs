@@ -1,0 +1,225 @@
+//! `builtin:co`: combinatorial optimisation (Hart, "Nonintrusive appliance
+//! load monitoring", Proc. IEEE 80(12), 1992): at each interval, the
+//! combination of appliance levels whose sum is closest to the measured
+//! total, ties broken by how common the levels were in training.
+//!
+//! The combinations are not enumerated per interval: the sums are binned
+//! (5 W) and a knapsack-style dynamic programme over appliances finds, once,
+//! the most probable combination reaching every reachable sum. Each interval
+//! is then a look-up of the best reachable sum near its measurement.
+//!
+//! `builtin:co-conductor`: the same per conductor. Appliances on one line
+//! get a programme per line; those drawing from several lines (line-to-line,
+//! three-phase, several draws) are enumerated jointly (the most probable 4096
+//! combinations) with their learned per-line split, and each combination is
+//! scored by the per-line look-ups of what it leaves.
+
+use super::states::{learn, Level};
+use super::Task;
+use std::collections::HashMap;
+
+const BIN_W: f64 = 5.0;
+/// Weight of improbability against mismatch: W per nat of −log prior.
+const PRIOR_W: f64 = 2.0;
+/// How far from the measurement a reachable sum is searched, in bins.
+const WINDOW: i64 = 80;
+
+/// Best combinations of a group of appliances for every binned sum.
+struct Knapsack {
+    origin: i64,
+    /// choice[i][b]: level of appliance i in the best combination of the
+    /// first i + 1 appliances summing to bin b.
+    choice: Vec<Vec<u8>>,
+    /// For each measured bin: the target bin and its cost (W).
+    target: Vec<(u32, f64)>,
+    steps: Vec<Vec<i64>>,
+}
+
+impl Knapsack {
+    /// `powers[i][l]`: power of appliance i at level l; `priors` likewise.
+    fn new(powers: &[Vec<f64>], priors: &[Vec<f64>]) -> Knapsack {
+        let steps: Vec<Vec<i64>> = powers.iter().map(|p| p.iter().map(|w| (w / BIN_W).round() as i64).collect()).collect();
+        let lo: i64 = steps.iter().map(|s| s.iter().copied().min().unwrap_or(0).min(0)).sum();
+        let hi: i64 = steps.iter().map(|s| s.iter().copied().max().unwrap_or(0).max(0)).sum();
+        let bins = (hi - lo + 1) as usize;
+        let mut cur = vec![f64::NEG_INFINITY; bins];
+        cur[(-lo) as usize] = 0.0;
+        let mut choice = Vec::with_capacity(powers.len());
+        for (i, st) in steps.iter().enumerate() {
+            let mut next = vec![f64::NEG_INFINITY; bins];
+            let mut ch = vec![u8::MAX; bins];
+            for b in 0..bins {
+                if cur[b] == f64::NEG_INFINITY {
+                    continue;
+                }
+                for (l, s) in st.iter().enumerate() {
+                    let nb = b as i64 + s;
+                    if nb < 0 || nb >= bins as i64 {
+                        continue;
+                    }
+                    let v = cur[b] + priors[i][l].ln();
+                    if v > next[nb as usize] {
+                        next[nb as usize] = v;
+                        ch[nb as usize] = l as u8;
+                    }
+                }
+            }
+            choice.push(ch);
+            cur = next;
+        }
+        let target = (0..bins as i64)
+            .map(|m| {
+                let mut best = (u32::MAX, f64::INFINITY);
+                for b in (m - WINDOW).max(0)..(m + WINDOW + 1).min(bins as i64) {
+                    if cur[b as usize] > f64::NEG_INFINITY {
+                        let c = (b - m).abs() as f64 * BIN_W - PRIOR_W * cur[b as usize];
+                        if c < best.1 {
+                            best = (b as u32, c);
+                        }
+                    }
+                }
+                if best.0 == u32::MAX {
+                    // Nothing reachable nearby: the nearest reachable sum.
+                    let b = (0..bins).filter(|&b| cur[b] > f64::NEG_INFINITY).min_by_key(|&b| (b as i64 - m).abs()).unwrap_or(0);
+                    best = (b as u32, (b as i64 - m).abs() as f64 * BIN_W - PRIOR_W * cur[b]);
+                }
+                best
+            })
+            .collect();
+        Knapsack { origin: lo, choice, target, steps }
+    }
+
+    /// Target bin and cost for a measured power.
+    fn look(&self, w: f64) -> (u32, f64) {
+        let m = (w / BIN_W).round() as i64 - self.origin;
+        let n = self.target.len() as i64;
+        let mc = m.clamp(0, n - 1);
+        let (b, c) = self.target[mc as usize];
+        (b, c + (m - mc).abs() as f64 * BIN_W)
+    }
+
+    /// Levels of the best combination summing to bin `b`.
+    fn levels(&self, mut b: u32, out: &mut [usize]) {
+        for i in (0..self.choice.len()).rev() {
+            let l = self.choice[i][b as usize] as usize;
+            out[i] = l;
+            b = (b as i64 - self.steps[i][l]) as u32;
+        }
+    }
+}
+
+type Estimate = (Vec<i64>, Vec<(String, Vec<f64>)>);
+
+pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
+    let lines = &task.lines;
+    let mut want: Vec<String> = task.ids.iter().map(|id| format!("{id}_p_w")).collect();
+    for id in &task.ids {
+        for l in lines {
+            want.push(format!("{id}_{l}_p_w"));
+        }
+    }
+    let train = task.train_truth(&want)?;
+    // Levels per appliance, with their split over the lines they draw from.
+    let mut apps: Vec<(String, Vec<usize>, Vec<Level>)> = Vec::new();
+    for id in &task.ids {
+        let p = train.num(&format!("{id}_p_w")).ok_or_else(|| format!("the training truth lacks {id}_p_w"))?;
+        let on: Vec<usize> = (0..lines.len()).filter(|&x| train.has(&format!("{id}_{}_p_w", lines[x]))).collect();
+        let per: Vec<&[f64]> = on.iter().map(|&x| train.num(&format!("{id}_{}_p_w", lines[x])).unwrap()).collect();
+        apps.push((id.clone(), on, learn(p, &per)));
+    }
+    let meter_cols: Vec<String> = if per_conductor { lines.iter().map(|l| format!("{l}_p_w")).collect() } else { vec!["total_p_w".into()] };
+    let test = task.test_meters(&meter_cols)?;
+    let n = test.time_ms.len();
+    let mut level_of: Vec<Vec<usize>> = vec![vec![0; n]; apps.len()];
+
+    if !per_conductor {
+        let ks = Knapsack::new(&apps.iter().map(|a| a.2.iter().map(|l| l.p_w).collect()).collect::<Vec<_>>(), &apps.iter().map(|a| a.2.iter().map(|l| l.prior).collect()).collect::<Vec<_>>());
+        let total = test.num("total_p_w").ok_or("the test meters lack total_p_w")?;
+        let mut lv = vec![0; apps.len()];
+        for t in 0..n {
+            ks.levels(ks.look(total[t]).0, &mut lv);
+            for (k, l) in lv.iter().enumerate() {
+                level_of[k][t] = *l;
+            }
+        }
+    } else {
+        // One programme per line over the appliances on that line only.
+        let single: Vec<Vec<usize>> = (0..lines.len()).map(|x| (0..apps.len()).filter(|&k| apps[k].1 == [x]).collect()).collect();
+        let multi: Vec<usize> = (0..apps.len()).filter(|&k| apps[k].1.len() != 1).collect();
+        let ks: Vec<Knapsack> = single
+            .iter()
+            .map(|group| {
+                Knapsack::new(&group.iter().map(|&k| apps[k].2.iter().map(|l| l.split[0]).collect()).collect::<Vec<_>>(), &group.iter().map(|&k| apps[k].2.iter().map(|l| l.prior).collect()).collect::<Vec<_>>())
+            })
+            .collect();
+        // Joint combinations of the multi-line appliances, most probable first.
+        let mut combos: Vec<(Vec<usize>, Vec<f64>, f64)> = vec![(vec![], vec![0.0; lines.len()], 0.0)];
+        for &k in &multi {
+            let mut next = Vec::new();
+            for (ls, v, lp) in &combos {
+                for (l, lev) in apps[k].2.iter().enumerate() {
+                    let mut v2 = v.clone();
+                    for (j, &x) in apps[k].1.iter().enumerate() {
+                        v2[x] += lev.split[j];
+                    }
+                    let mut ls2 = ls.clone();
+                    ls2.push(l);
+                    next.push((ls2, v2, lp + lev.prior.ln()));
+                }
+            }
+            next.sort_by(|a, b| b.2.partial_cmp(&a.2).unwrap());
+            next.truncate(4096);
+            combos = next;
+        }
+        let meas: Vec<&[f64]> = meter_cols.iter().map(|c| test.num(c).ok_or_else(|| format!("the test meters lack {c}"))).collect::<Result<_, _>>()?;
+        let mut cache: HashMap<Vec<i64>, (usize, Vec<u32>)> = HashMap::new();
+        let mut lv = vec![0; apps.len()];
+        for t in 0..n {
+            let key: Vec<i64> = meas.iter().map(|m| (m[t] / BIN_W).round() as i64).collect();
+            let (ci, targets) = cache
+                .entry(key)
+                .or_insert_with_key(|key| {
+                    let mut best = (0usize, f64::INFINITY, vec![0u32; lines.len()]);
+                    let mut tg = vec![0u32; lines.len()];
+                    for (ci, (_, v, lp)) in combos.iter().enumerate() {
+                        let mut cost = -PRIOR_W * lp;
+                        for x in 0..lines.len() {
+                            let (b, c) = ks[x].look(key[x] as f64 * BIN_W - v[x]);
+                            tg[x] = b;
+                            cost += c;
+                            if cost >= best.1 {
+                                break;
+                            }
+                        }
+                        if cost < best.1 {
+                            best = (ci, cost, tg.clone());
+                        }
+                    }
+                    (best.0, best.2)
+                })
+                .clone();
+            for (j, &k) in multi.iter().enumerate() {
+                level_of[k][t] = combos[ci].0[j];
+            }
+            for x in 0..lines.len() {
+                let mut out = vec![0; single[x].len()];
+                ks[x].levels(targets[x], &mut out);
+                for (j, &k) in single[x].iter().enumerate() {
+                    lv[k] = out[j];
+                    level_of[k][t] = out[j];
+                }
+            }
+        }
+    }
+
+    let mut cols = Vec::new();
+    for (k, (id, on, levels)) in apps.iter().enumerate() {
+        cols.push((format!("{id}_p_w"), level_of[k].iter().map(|&l| levels[l].p_w.max(0.0)).collect()));
+        if per_conductor {
+            for (j, &x) in on.iter().enumerate() {
+                cols.push((format!("{id}_{}_p_w", lines[x]), level_of[k].iter().map(|&l| levels[l].split[j]).collect()));
+            }
+        }
+    }
+    Ok((test.time_ms, cols))
+}

@@ -1,0 +1,18 @@
+//! `builtin:mean`: every appliance at its training mean, all the time. The
+//! floor any real method must beat.
+
+use super::Task;
+
+pub fn solve(task: &Task) -> Result<(Vec<i64>, Vec<(String, Vec<f64>)>), String> {
+    let cols: Vec<String> = task.ids.iter().map(|id| format!("{id}_p_w")).collect();
+    let train = task.train_truth(&cols)?;
+    let test = task.test_meters(&[])?;
+    let n = test.time_ms.len();
+    let mut out = Vec::new();
+    for c in &cols {
+        let v = train.num(c).ok_or_else(|| format!("the training truth lacks {c}"))?;
+        let mean = if v.is_empty() { 0.0 } else { v.iter().sum::<f64>() / v.len() as f64 };
+        out.push((c.clone(), vec![mean; n]));
+    }
+    Ok((test.time_ms, out))
+}
