@@ -237,6 +237,23 @@ pub fn run(dataset: &Path, work: &Path, train_rows: usize, reveal: Reveal, solve
     Ok(Outcome { task_dir, estimate, log, solver: solver.describe(), seconds, result })
 }
 
+/// Stops the child and every process of its group (it was made leader of
+/// its own group when spawned, so this reaches nothing else).
+fn stop_group(child: &mut std::process::Child) {
+    #[cfg(unix)]
+    {
+        let pgid = child.id() as i32;
+        if pgid > 1 {
+            // SAFETY: kill(2) with a negative pid signals exactly that
+            // process group; pgid > 1 rules out "every process" (-1).
+            unsafe {
+                libc::kill(-pgid, libc::SIGKILL);
+            }
+        }
+    }
+    let _ = child.kill();
+}
+
 fn run_child(argv: &[String], task: &Path, estimate: &Path, log: &Path, timeout: Duration) -> Result<(), Failure> {
     let sub = |a: &String| a.replace("{task}", &task.display().to_string()).replace("{estimate}", &estimate.display().to_string());
     let args: Vec<String> = argv.iter().map(sub).collect();
@@ -258,9 +275,7 @@ fn run_child(argv: &[String], task: &Path, estimate: &Path, log: &Path, timeout:
                 return if status.success() { Ok(()) } else { Err(Failure::Crashed { status: status.to_string(), tail: tail(log, 10) }) };
             }
             Ok(None) if started.elapsed() >= timeout => {
-                #[cfg(unix)]
-                let _ = Command::new("kill").arg("-KILL").arg(format!("-{}", child.id())).status();
-                let _ = child.kill();
+                stop_group(&mut child);
                 let _ = child.wait();
                 return Err(Failure::TimedOut { after: timeout, tail: tail(log, 10) });
             }

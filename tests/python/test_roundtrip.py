@@ -1,0 +1,76 @@
+"""The round trip end to end: an external Python solver and every built-in
+solver on every demo scenario; solvers that crash, hang, stay silent or write
+a malformed estimate get a report (exit 1), never a score."""
+import json
+import pathlib
+import sys
+import time
+
+import pytest
+
+from conftest import ROOT, loadloom
+
+HERE = pathlib.Path(__file__).parent
+DEMOS = sorted((ROOT / "scenarios").glob("*.toml"))
+PY = sys.executable
+
+
+def roundtrip(scenario, solver, out, *extra, check=True):
+    return loadloom("roundtrip", scenario, "--solver", solver, "--train", "2d", "--test", "1d", "--out", out, *extra, check=check)
+
+
+@pytest.mark.parametrize("demo", DEMOS, ids=[d.stem for d in DEMOS])
+@pytest.mark.parametrize("solver", ["builtin:mean", "builtin:co", "builtin:co-conductor", "python"])
+def test_every_solver_on_every_demo(demo, solver, tmp_path):
+    cmd = f"{PY} {HERE / 'solvers' / 'share.py'} {{task}} {{estimate}}" if solver == "python" else solver
+    p = roundtrip(demo, cmd, tmp_path, "--json")
+    r = json.loads(p.stdout)
+    work = tmp_path / f"{demo.stem}-roundtrip"
+    task = json.loads((work / "task" / "task.json").read_text())
+    assert task["format"] == "loadloom-task/1" and task["train"]["rows"] == 2 * 86400 and task["test"]["rows"] == 86400
+    assert r["period"]["rows"] == 86400, "only the test day is scored"
+    assert r["period"]["start"] == task["test"]["start"]
+    assert len(r["appliances"]) == len(task["appliances"]) >= 15
+    o = r["overall"]
+    assert 0 <= o["f1"] <= 1 and o["mae_w"] >= 0
+    if solver != "builtin:mean":
+        # Every solver that follows the measured total gets the energy nearly right.
+        assert abs(o["energy_error_pct"]) < 15, o
+
+
+def test_reveal_levels_hide_what_they_should(tmp_path):
+    demo = ROOT / "scenarios" / "three-phase-house.toml"
+    for level, keys in [("ids", {"id"}), ("wiring", {"id", "label", "wiring", "connections", "conductors"}), ("states", {"id", "label", "wiring", "connections", "conductors", "on_threshold_w", "states"})]:
+        roundtrip(demo, "builtin:mean", tmp_path, "--reveal", level)
+        task = json.loads((tmp_path / "three-phase-house-roundtrip" / "task" / "task.json").read_text())
+        assert task["reveal"] == level
+        assert all(set(a) == keys for a in task["appliances"]), level
+    assert not (tmp_path / "three-phase-house-roundtrip" / "task" / "test" / "truth.parquet").exists()
+
+
+def test_csv_estimates_from_an_external_solver(tmp_path):
+    demo = ROOT / "scenarios" / "apartment-208.toml"
+    p = roundtrip(demo, f"{PY} {HERE / 'solvers' / 'share.py'} {{task}} {{estimate}}", tmp_path, "--estimate-format", "csv", "--json")
+    assert json.loads(p.stdout)["period"]["rows"] == 86400
+
+
+@pytest.mark.parametrize("mode,needle", [("crash", "exit status: 3"), ("silent", "without writing its estimate"), ("malformed", "malformed"), ("hang", "time limit")])
+def test_misbehaving_solvers_get_a_report_not_a_score(tmp_path, mode, needle):
+    demo = ROOT / "scenarios" / "split-phase-house.toml"
+    cmd = f"{PY} {HERE / 'solvers' / 'misbehave.py'} {mode} {{task}} {{estimate}}"
+    t = time.time()
+    p = roundtrip(demo, cmd, tmp_path, "--timeout", "3s", check=False)
+    assert p.returncode == 1, p.stdout
+    assert needle in p.stderr, p.stderr
+    assert "no score" in p.stderr and "MAE" not in p.stdout
+    if mode == "crash":
+        assert "about to fail" in p.stderr, "the log's last lines are shown"
+    if mode == "hang":
+        assert time.time() - t < 60
+
+
+def test_bad_solver_commands_exit_2(tmp_path):
+    demo = ROOT / "scenarios" / "split-phase-house.toml"
+    for cmd, needle in [("builtin:magic", "no built-in solver"), ("python3 mine.py", "{task} and {estimate}"), ("'unclosed {task} {estimate}", "unclosed quote")]:
+        p = roundtrip(demo, cmd, tmp_path, check=False)
+        assert p.returncode == 2 and needle in p.stderr, p.stderr
