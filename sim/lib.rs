@@ -15,3 +15,4 @@ pub mod meter;
 pub mod simulate;
 pub mod dataset;
 pub mod summary;
+pub mod roundtrip;

@@ -81,8 +81,8 @@ enum Command {
     },
     /// Generate a task from a scenario, run a disaggregator on it, score its estimate.
     Roundtrip {
-        /// The scenario file (TOML).
-        scenario: PathBuf,
+        /// The scenario file (TOML); with --suite, a folder of them (default scenarios/).
+        scenario: Option<PathBuf>,
         /// `builtin:mean`, `builtin:co`, `builtin:co-conductor`, or a command
         /// holding {task} and {estimate}, e.g. "python3 mine.py {task} {estimate}" (run without a shell).
         #[arg(long)]
@@ -114,6 +114,10 @@ enum Command {
         /// Print a Markdown table.
         #[arg(long)]
         markdown: bool,
+        /// Run the solver on every scenario and a ladder of difficulty (more
+        /// meter noise, coarser intervals); print how the scores degrade.
+        #[arg(long)]
+        suite: bool,
     },
     /// Parse and check a scenario; print what it will produce, write nothing.
     Validate {
@@ -172,7 +176,7 @@ fn parse_threshold(t: &str) -> Result<(String, f64), String> {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
-        Command::Roundtrip { scenario, solver, train, test, reveal, timeout, out, seed, estimate_format, json, markdown } => {
+        Command::Roundtrip { scenario, solver, train, test, reveal, timeout, out, seed, estimate_format, json, markdown, suite } => {
             let bad = |m: String| {
                 eprintln!("error: {m}");
                 ExitCode::from(BAD_INPUT)
@@ -181,49 +185,101 @@ fn main() -> ExitCode {
                 Ok(s) => s,
                 Err(m) => return bad(format!("--solver: {m}")),
             };
-            let mut s = match load(&scenario) {
-                Ok(s) => s,
-                Err(c) => return c,
+            // The suite takes every scenario of a folder (default scenarios/).
+            let paths: Vec<PathBuf> = match (&scenario, suite) {
+                (Some(p), false) => vec![p.clone()],
+                (None, false) => return bad("give a SCENARIO, or --suite to run the demo scenarios".into()),
+                (p, true) => {
+                    let p = p.clone().unwrap_or_else(|| PathBuf::from("scenarios"));
+                    if p.is_dir() {
+                        let mut v: Vec<PathBuf> = std::fs::read_dir(&p).map(|r| r.filter_map(|e| e.ok()).map(|e| e.path()).filter(|x| x.extension().is_some_and(|e| e == "toml")).collect()).unwrap_or_default();
+                        v.sort();
+                        v
+                    } else {
+                        vec![p]
+                    }
+                }
             };
-            if let Some(seed) = seed {
-                s.run.seed = seed;
+            let mut scenarios = Vec::new();
+            for p in &paths {
+                match load(p) {
+                    Ok(mut s) => {
+                        if let Some(seed) = seed {
+                            s.run.seed = seed;
+                        }
+                        scenarios.push(s);
+                    }
+                    Err(c) => return c,
+                }
             }
-            let per = s.meter.interval_s;
-            let whole = |name: &str, text: &str, min: f64| -> Result<f64, String> {
-                let v = cli_duration(text).map_err(|m| format!("--{name} {text}: {m}"))?;
-                if v < min || ((v / per).round() - v / per).abs() > 1e-6 {
-                    return Err(format!("--{name} {text}: must be a whole number of reporting intervals ({per} s){}", if min > 0.0 { ", more than zero" } else { "" }));
+            if scenarios.is_empty() {
+                return bad("no scenario files found for the suite".into());
+            }
+            let (train_s, test_s, limit) = match (cli_duration(&train), cli_duration(&test), cli_duration(&timeout)) {
+                (Ok(a), Ok(b), Ok(t)) if a >= 0.0 && b > 0.0 && t > 0.0 => (a, b, t),
+                _ => return bad(format!("--train {train} --test {test} --timeout {timeout}: write durations such as 14d, 7d and 10m (test and timeout above zero)")),
+            };
+            for s in &scenarios {
+                // Every rung's interval (up to 1 min) must divide both periods.
+                let per = if suite { 60.0f64.max(s.meter.interval_s) } else { s.meter.interval_s };
+                for (name, v) in [("train", train_s), ("test", test_s)] {
+                    if ((v / per).round() - v / per).abs() > 1e-6 {
+                        return bad(format!("--{name}: must be a whole number of reporting intervals ({per} s) for {}", s.name));
+                    }
                 }
-                Ok(v)
+            }
+            let plan = loadloom::roundtrip::Plan {
+                train_s,
+                test_s,
+                reveal: match reveal {
+                    RevealArg::Ids => solver_check::roundtrip::Reveal::Ids,
+                    RevealArg::Wiring => solver_check::roundtrip::Reveal::Wiring,
+                    RevealArg::States => solver_check::roundtrip::Reveal::States,
+                },
+                solver,
+                limit: std::time::Duration::from_secs_f64(limit),
+                estimate_name: match estimate_format {
+                    FormatArg::Parquet => "estimate.parquet",
+                    FormatArg::Csv => "estimate.csv",
+                },
             };
-            let (train_s, test_s, limit) = match (whole("train", &train, 0.0), whole("test", &test, per), cli_duration(&timeout)) {
-                (Ok(a), Ok(b), Ok(t)) if t > 0.0 => (a, b, t),
-                (Err(m), _, _) | (_, Err(m), _) => return bad(m),
-                _ => return bad(format!("--timeout {timeout}: write a duration such as 10m or 90s")),
-            };
-            s.run.length_s = train_s + test_s;
+            if suite {
+                let tty = std::io::stderr().is_terminal();
+                let rows = loadloom::roundtrip::suite(&scenarios, &out, &plan, &mut |s, r| {
+                    if tty {
+                        eprint!("\r  {s}: {r}                    ");
+                    }
+                });
+                if tty {
+                    eprintln!();
+                }
+                return match rows {
+                    Ok(rows) => {
+                        if json {
+                            println!("{}", serde_json::to_string_pretty(&loadloom::roundtrip::render_json(&rows)).expect("JSON"));
+                        } else if markdown {
+                            print!("{}", loadloom::roundtrip::render_markdown(&rows));
+                        } else {
+                            print!("{}", loadloom::roundtrip::render_text(&rows));
+                        }
+                        if rows.iter().any(|r| r.result.is_err()) {
+                            ExitCode::from(FAILED)
+                        } else {
+                            ExitCode::SUCCESS
+                        }
+                    }
+                    Err(m) => {
+                        eprintln!("error: {m}");
+                        ExitCode::from(FAILED)
+                    }
+                };
+            }
+            let s = &scenarios[0];
             let work = out.join(format!("{}-roundtrip", s.name));
-            let written = match dataset::write(&s, &work, Format::Parquet, &mut |_| {}) {
-                Ok(w) => w,
-                Err(e) => {
-                    eprintln!("error: writing the dataset under {} failed: {e}", work.display());
-                    return ExitCode::from(FAILED);
-                }
-            };
-            let reveal = match reveal {
-                RevealArg::Ids => solver_check::roundtrip::Reveal::Ids,
-                RevealArg::Wiring => solver_check::roundtrip::Reveal::Wiring,
-                RevealArg::States => solver_check::roundtrip::Reveal::States,
-            };
-            let est_name = match estimate_format {
-                FormatArg::Parquet => "estimate.parquet",
-                FormatArg::Csv => "estimate.csv",
-            };
-            let train_rows = (train_s / per).round() as usize;
-            let o = match solver_check::roundtrip::run(&written.dir, &work, train_rows, reveal, &solver, std::time::Duration::from_secs_f64(limit), est_name) {
+            let o = match loadloom::roundtrip::once(s, &work, &plan) {
                 Ok(o) => o,
-                Err(e) => {
-                    eprintln!("error: preparing the task under {} failed: {e}", work.display());
+                Err(m) => {
+                    eprintln!("error: {m}");
                     return ExitCode::from(FAILED);
                 }
             };

@@ -74,3 +74,17 @@ def test_bad_solver_commands_exit_2(tmp_path):
     for cmd, needle in [("builtin:magic", "no built-in solver"), ("python3 mine.py", "{task} and {estimate}"), ("'unclosed {task} {estimate}", "unclosed quote")]:
         p = roundtrip(demo, cmd, tmp_path, check=False)
         assert p.returncode == 2 and needle in p.stderr, p.stderr
+
+
+def test_suite_prints_how_scores_degrade(tmp_path):
+    demo = ROOT / "scenarios" / "three-phase-house.toml"
+    p = loadloom("roundtrip", demo, "--suite", "--solver", "builtin:co", "--train", "1d", "--test", "1d", "--out", tmp_path, "--json")
+    r = json.loads(p.stdout)
+    assert r["format"] == "loadloom-suite/1"
+    rungs = [x["rung"] for x in r["rows"]]
+    assert rungs == ["as written", "noise 1 % + 5 W", "noise 3 % + 15 W", "interval 10 s", "interval 1 min"]
+    acc = [x["overall"]["accuracy"] for x in r["rows"]]
+    # Much more meter noise cannot make a combinatorial solver better.
+    assert acc[2] <= acc[0] + 1e-9
+    text = loadloom("roundtrip", demo, "--suite", "--solver", "builtin:mean", "--train", "1d", "--test", "1d", "--out", tmp_path).stdout
+    assert "accuracy vs as written" in text and "interval 1 min" in text

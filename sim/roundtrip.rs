@@ -1,0 +1,132 @@
+//! Glue of the round trip: generate the dataset with the simulator, then hand
+//! it to `solver_check::roundtrip` (which reads files only). The suite runs
+//! one solver over many scenarios and a ladder of difficulty.
+
+use crate::dataset::{self, Format};
+use crate::scenario::Scenario;
+use serde_json::{json, Value};
+use solver_check::roundtrip::{Outcome, Reveal, Solver};
+use solver_check::score::Report;
+use std::path::Path;
+use std::time::Duration;
+
+pub struct Plan {
+    pub train_s: f64,
+    pub test_s: f64,
+    pub reveal: Reveal,
+    pub solver: Solver,
+    pub limit: Duration,
+    pub estimate_name: &'static str,
+}
+
+/// Simulates `s` over train + test, writes the task, runs the solver, scores.
+/// Err is an I/O failure of our own (writing the dataset or the task).
+pub fn once(s: &Scenario, work: &Path, p: &Plan) -> Result<Outcome, String> {
+    let mut s = s.clone();
+    s.run.length_s = p.train_s + p.test_s;
+    let written = dataset::write(&s, work, Format::Parquet, &mut |_| {}).map_err(|e| format!("writing the dataset under {} failed: {e}", work.display()))?;
+    let train_rows = (p.train_s / s.meter.interval_s).round() as usize;
+    solver_check::roundtrip::run(&written.dir, work, train_rows, p.reveal, &p.solver, p.limit, p.estimate_name).map_err(|e| format!("preparing the task under {} failed: {e}", work.display()))
+}
+
+/// A rung of the difficulty ladder: a name and what it changes.
+pub struct Rung {
+    pub name: &'static str,
+    pub apply: fn(&mut Scenario),
+}
+
+/// The ladder: the scenario as written, then more meter noise, then coarser
+/// reporting intervals.
+pub const LADDER: [Rung; 5] = [
+    Rung { name: "as written", apply: |_| {} },
+    Rung {
+        name: "noise 1 % + 5 W",
+        apply: |s| {
+            s.meter.noise_relative = 0.01;
+            s.meter.noise_floor_w = 5.0;
+        },
+    },
+    Rung {
+        name: "noise 3 % + 15 W",
+        apply: |s| {
+            s.meter.noise_relative = 0.03;
+            s.meter.noise_floor_w = 15.0;
+        },
+    },
+    Rung { name: "interval 10 s", apply: |s| s.meter.interval_s = s.meter.interval_s.max(10.0) },
+    Rung { name: "interval 1 min", apply: |s| s.meter.interval_s = s.meter.interval_s.max(60.0) },
+];
+
+pub struct SuiteRow {
+    pub scenario: String,
+    pub rung: &'static str,
+    pub result: Result<Report, String>,
+}
+
+/// Runs the plan on every scenario at every rung of the ladder.
+pub fn suite(scenarios: &[Scenario], out: &Path, p: &Plan, progress: &mut dyn FnMut(&str, &str)) -> Result<Vec<SuiteRow>, String> {
+    let mut rows = Vec::new();
+    for s in scenarios {
+        for rung in &LADDER {
+            progress(&s.name, rung.name);
+            let mut v = s.clone();
+            (rung.apply)(&mut v);
+            let work = out.join(format!("{}-suite", v.name));
+            let o = once(&v, &work, p)?;
+            rows.push(SuiteRow { scenario: s.name.clone(), rung: rung.name, result: o.result.map_err(|f| f.to_string()) });
+        }
+    }
+    Ok(rows)
+}
+
+const HEAD: [&str; 8] = ["scenario", "rung", "MAE W", "NDE", "F1", "accuracy", "match", "accuracy vs as written"];
+
+fn cells(rows: &[SuiteRow]) -> Vec<Vec<String>> {
+    let f = |x: Option<f64>| x.map(|v| format!("{v:.3}")).unwrap_or_else(|| "–".into());
+    let mut base: Option<f64> = None;
+    rows.iter()
+        .map(|r| match &r.result {
+            Ok(rep) => {
+                let o = &rep.overall;
+                if r.rung == LADDER[0].name {
+                    base = o.accuracy;
+                }
+                let delta = match (o.accuracy, base) {
+                    (Some(a), Some(b)) if r.rung != LADDER[0].name => format!("{:+.3}", a - b),
+                    _ => String::new(),
+                };
+                vec![r.scenario.clone(), r.rung.to_string(), format!("{:.1}", o.mae_w), f(o.nde), format!("{:.3}", o.f1), f(o.accuracy), f(o.match_rate), delta]
+            }
+            Err(e) => vec![r.scenario.clone(), r.rung.to_string(), "failed".into(), String::new(), String::new(), String::new(), String::new(), e.lines().next().unwrap_or("").to_string()],
+        })
+        .collect()
+}
+
+pub fn render_text(rows: &[SuiteRow]) -> String {
+    let c = cells(rows);
+    let w: Vec<usize> = (0..HEAD.len()).map(|k| c.iter().map(|r| r[k].chars().count()).chain([HEAD[k].len()]).max().unwrap()).collect();
+    let line = |r: &[String]| r.iter().enumerate().map(|(k, s)| if k < 2 { format!("{s:<w$}", w = w[k]) } else { format!("{s:>w$}", w = w[k]) }).collect::<Vec<_>>().join("  ") + "\n";
+    let mut o = line(&HEAD.map(String::from));
+    for r in &c {
+        o += &line(r);
+    }
+    o
+}
+
+pub fn render_markdown(rows: &[SuiteRow]) -> String {
+    let mut o = format!("| {} |\n|{}\n", HEAD.join(" | "), HEAD.iter().enumerate().map(|(k, _)| if k < 2 { "---|" } else { "---:|" }).collect::<String>());
+    for r in cells(rows) {
+        o += &format!("| {} |\n", r.join(" | "));
+    }
+    o
+}
+
+pub fn render_json(rows: &[SuiteRow]) -> Value {
+    json!({
+        "format": "loadloom-suite/1",
+        "rows": rows.iter().map(|r| match &r.result {
+            Ok(rep) => json!({ "scenario": r.scenario, "rung": r.rung, "overall": rep.overall.to_json() }),
+            Err(e) => json!({ "scenario": r.scenario, "rung": r.rung, "failure": e }),
+        }).collect::<Vec<_>>(),
+    })
+}
