@@ -11,7 +11,15 @@ use crate::score::Report;
 use serde_json::{json, Value};
 
 /// A score, and whether lower values are better.
-pub const METRICS: [(&str, bool); 7] = [("mae_w", true), ("rmse_w", true), ("nde", true), ("sae", true), ("f1", false), ("accuracy", false), ("match_rate", false)];
+pub const METRICS: [(&str, bool); 7] = [
+    ("mae_w", true),
+    ("rmse_w", true),
+    ("nde", true),
+    ("sae", true),
+    ("f1", false),
+    ("accuracy", false),
+    ("match_rate", false),
+];
 
 fn get(s: &Scores, m: &str) -> Option<f64> {
     match m {
@@ -40,10 +48,26 @@ pub struct Diff {
 impl Diff {
     /// "better", "worse" or "no clear difference" for the estimate.
     pub fn verdict(&self) -> &'static str {
-        let lower_better = METRICS.iter().find(|m| m.0 == self.metric).map(|m| m.1).unwrap_or(true);
+        let lower_better = METRICS
+            .iter()
+            .find(|m| m.0 == self.metric)
+            .map(|m| m.1)
+            .unwrap_or(true);
         match (self.lo, self.hi) {
-            (Some(lo), Some(_)) if lo > 0.0 => if lower_better { "worse" } else { "better" },
-            (Some(_), Some(hi)) if hi < 0.0 => if lower_better { "better" } else { "worse" },
+            (Some(lo), Some(_)) if lo > 0.0 => {
+                if lower_better {
+                    "worse"
+                } else {
+                    "better"
+                }
+            }
+            (Some(_), Some(hi)) if hi < 0.0 => {
+                if lower_better {
+                    "better"
+                } else {
+                    "worse"
+                }
+            }
             _ => "no clear difference",
         }
     }
@@ -80,32 +104,60 @@ fn quantile(sorted: &[f64], q: f64) -> Option<f64> {
     }
     let x = q * (sorted.len() - 1) as f64;
     let (i, f) = (x.floor() as usize, x.fract());
-    Some(if i + 1 < sorted.len() { sorted[i] * (1.0 - f) + sorted[i + 1] * f } else { sorted[i] })
+    Some(if i + 1 < sorted.len() {
+        sorted[i] * (1.0 - f) + sorted[i + 1] * f
+    } else {
+        sorted[i]
+    })
 }
 
 /// Compares two reports over the same period and appliances.
 pub fn compare(a: &Report, b: &Report, resamples: usize, seed: u64) -> Result<Comparison, String> {
-    let period = |r: &Report| (r.plan.start_ms, r.plan.start_ms + r.plan.rows as i64 * r.plan.interval_ms);
+    let period = |r: &Report| {
+        (
+            r.plan.start_ms,
+            r.plan.start_ms + r.plan.rows as i64 * r.plan.interval_ms,
+        )
+    };
     if period(a) != period(b) {
-        return Err("the two estimates cover different periods; give both the same period to compare them".into());
+        return Err(
+            "the two estimates cover different periods; give both the same period to compare them"
+                .into(),
+        );
     }
-    let ids = |r: &Report| r.appliances.iter().map(|x| x.id.clone()).collect::<Vec<_>>();
+    let ids = |r: &Report| {
+        r.appliances
+            .iter()
+            .map(|x| x.id.clone())
+            .collect::<Vec<_>>()
+    };
     if ids(a) != ids(b) {
         return Err(format!("the two estimates give different appliances ({} against {}); compare the same appliances (or use --partial on both)", ids(a).join(", "), ids(b).join(", ")));
     }
     let days = a.overall_acc.days.len().max(b.overall_acc.days.len());
-    let (ia, ib) = (a.plan.interval_ms as f64 / 1000.0, b.plan.interval_ms as f64 / 1000.0);
+    let (ia, ib) = (
+        a.plan.interval_ms as f64 / 1000.0,
+        b.plan.interval_ms as f64 / 1000.0,
+    );
     let n_apps = a.appliances.len();
     // samples[row][metric]: bootstrap deltas; row n_apps is overall.
-    let mut samples: Vec<Vec<Vec<f64>>> = vec![vec![Vec::with_capacity(resamples); METRICS.len()]; n_apps + 1];
+    let mut samples: Vec<Vec<Vec<f64>>> =
+        vec![vec![Vec::with_capacity(resamples); METRICS.len()]; n_apps + 1];
     let mut rng = SplitMix(seed);
     let empty = crate::metrics::Sums::default();
     let mut idx = vec![0usize; days];
     for _ in 0..resamples {
         idx.iter_mut().for_each(|i| *i = rng.below(days));
-        let pick = |acc: &crate::metrics::Acc| idx.iter().map(|&d| acc.days.get(d).copied().unwrap_or(empty)).collect::<Vec<_>>();
+        let pick = |acc: &crate::metrics::Acc| {
+            idx.iter()
+                .map(|&d| acc.days.get(d).copied().unwrap_or(empty))
+                .collect::<Vec<_>>()
+        };
         let mut f1 = (0.0, 0.0);
-        let (mut pa, mut pb) = (crate::metrics::Acc::default(), crate::metrics::Acc::default());
+        let (mut pa, mut pb) = (
+            crate::metrics::Acc::default(),
+            crate::metrics::Acc::default(),
+        );
         for k in 0..n_apps {
             let (da, db) = (pick(&a.appliances[k].acc), pick(&b.appliances[k].acc));
             let (sa, sb) = (scores_of(da.iter(), ia), scores_of(db.iter(), ib));
@@ -130,7 +182,15 @@ pub fn compare(a: &Report, b: &Report, resamples: usize, seed: u64) -> Result<Co
     }
     let mut rows = Vec::new();
     for k in 0..=n_apps {
-        let (sa, sb, name) = if k < n_apps { (&a.appliances[k].scores, &b.appliances[k].scores, a.appliances[k].id.clone()) } else { (&a.overall, &b.overall, "overall".to_string()) };
+        let (sa, sb, name) = if k < n_apps {
+            (
+                &a.appliances[k].scores,
+                &b.appliances[k].scores,
+                a.appliances[k].id.clone(),
+            )
+        } else {
+            (&a.overall, &b.overall, "overall".to_string())
+        };
         let diffs = METRICS
             .iter()
             .enumerate()
@@ -138,12 +198,25 @@ pub fn compare(a: &Report, b: &Report, resamples: usize, seed: u64) -> Result<Co
                 let s = &mut samples[k][m];
                 s.sort_by(|x, y| x.partial_cmp(y).unwrap());
                 let (ea, eb) = (get(sa, metric), get(sb, metric));
-                Diff { metric, estimate: ea, against: eb, delta: ea.zip(eb).map(|(x, y)| x - y), lo: quantile(s, 0.025), hi: quantile(s, 0.975) }
+                Diff {
+                    metric,
+                    estimate: ea,
+                    against: eb,
+                    delta: ea.zip(eb).map(|(x, y)| x - y),
+                    lo: quantile(s, 0.025),
+                    hi: quantile(s, 0.975),
+                }
             })
             .collect();
         rows.push((name, diffs));
     }
-    Ok(Comparison { estimate: a.estimate.clone(), against: b.estimate.clone(), days, resamples, rows })
+    Ok(Comparison {
+        estimate: a.estimate.clone(),
+        against: b.estimate.clone(),
+        days,
+        resamples,
+        rows,
+    })
 }
 
 fn num(x: Option<f64>) -> String {
@@ -170,11 +243,27 @@ impl Comparison {
     }
 
     fn table(&self, md: bool) -> String {
-        let head = ["appliance", "score", "estimate", "against", "difference", "95 % interval", "verdict"];
+        let head = [
+            "appliance",
+            "score",
+            "estimate",
+            "against",
+            "difference",
+            "95 % interval",
+            "verdict",
+        ];
         let mut rows: Vec<Vec<String>> = Vec::new();
         for (id, diffs) in &self.rows {
             for d in diffs {
-                rows.push(vec![id.clone(), d.metric.to_string(), num(d.estimate), num(d.against), num(d.delta), format!("[{}, {}]", num(d.lo), num(d.hi)), d.verdict().to_string()]);
+                rows.push(vec![
+                    id.clone(),
+                    d.metric.to_string(),
+                    num(d.estimate),
+                    num(d.against),
+                    num(d.delta),
+                    format!("[{}, {}]", num(d.lo), num(d.hi)),
+                    d.verdict().to_string(),
+                ]);
             }
         }
         let mut o = format!(
@@ -182,13 +271,38 @@ impl Comparison {
             self.estimate, self.against, self.days, self.resamples
         );
         if md {
-            o += &format!("| {} |\n|{}\n", head.join(" | "), head.iter().map(|_| "---|").collect::<String>());
+            o += &format!(
+                "| {} |\n|{}\n",
+                head.join(" | "),
+                head.iter().map(|_| "---|").collect::<String>()
+            );
             for r in &rows {
                 o += &format!("| {} |\n", r.join(" | "));
             }
         } else {
-            let w: Vec<usize> = (0..head.len()).map(|c| rows.iter().map(|r| r[c].chars().count()).chain([head[c].len()]).max().unwrap()).collect();
-            let line = |r: Vec<String>| r.iter().enumerate().map(|(c, s)| if c < 2 || c == 6 { format!("{s:<w$}", w = w[c]) } else { format!("{s:>w$}", w = w[c]) }).collect::<Vec<_>>().join("  ") + "\n";
+            let w: Vec<usize> = (0..head.len())
+                .map(|c| {
+                    rows.iter()
+                        .map(|r| r[c].chars().count())
+                        .chain([head[c].len()])
+                        .max()
+                        .unwrap()
+                })
+                .collect();
+            let line = |r: Vec<String>| {
+                r.iter()
+                    .enumerate()
+                    .map(|(c, s)| {
+                        if c < 2 || c == 6 {
+                            format!("{s:<w$}", w = w[c])
+                        } else {
+                            format!("{s:>w$}", w = w[c])
+                        }
+                    })
+                    .collect::<Vec<_>>()
+                    .join("  ")
+                    + "\n"
+            };
             o += &line(head.iter().map(|s| s.to_string()).collect());
             for r in rows {
                 o += &line(r);

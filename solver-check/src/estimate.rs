@@ -62,7 +62,7 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
         return Err(table_err(path, Some("time"), None, "`time` has no time zone", format!("store tz-aware times (pandas: .dt.tz_localize(\"UTC\").dt.tz_convert(\"{}\")); time zones are never guessed", ds.timezone)));
     }
     if h.has("appliance") && h.has("p_w") {
-        h = in_memory(long_to_wide(&read(path, None)?, ds)?);
+        h = in_memory(long_to_wide(&read(path, None, &["appliance"])?, ds)?);
     }
     let known = |id: &str| ds.appliances.iter().any(|a| a.id == id);
     let mut apps: Vec<AppColumns> = Vec::new();

@@ -36,9 +36,21 @@ fn ratio(a: f64, b: f64) -> Option<f64> {
 /// Precision, recall and F1 from counts; 0 where a denominator is 0, as
 /// scikit-learn's `precision_recall_fscore_support` does (zero_division=0).
 pub fn prf(tp: u64, fp: u64, fneg: u64) -> (f64, f64, f64) {
-    let p = if tp + fp > 0 { tp as f64 / (tp + fp) as f64 } else { 0.0 };
-    let r = if tp + fneg > 0 { tp as f64 / (tp + fneg) as f64 } else { 0.0 };
-    let f = if p + r > 0.0 { 2.0 * p * r / (p + r) } else { 0.0 };
+    let p = if tp + fp > 0 {
+        tp as f64 / (tp + fp) as f64
+    } else {
+        0.0
+    };
+    let r = if tp + fneg > 0 {
+        tp as f64 / (tp + fneg) as f64
+    } else {
+        0.0
+    };
+    let f = if p + r > 0.0 {
+        2.0 * p * r / (p + r)
+    } else {
+        0.0
+    };
     (p, r, f)
 }
 
@@ -94,8 +106,15 @@ impl Acc {
         let mut start = 0;
         while start < y.len() {
             let d = day[start];
-            let end = start + day[start..].iter().position(|&x| x != d).unwrap_or(y.len() - start);
-            let mut s = Sums { n: (end - start) as u64, ..Sums::default() };
+            let end = start
+                + day[start..]
+                    .iter()
+                    .position(|&x| x != d)
+                    .unwrap_or(y.len() - start);
+            let mut s = Sums {
+                n: (end - start) as u64,
+                ..Sums::default()
+            };
             for (&a, &b) in y[start..end].iter().zip(&yhat[start..end]) {
                 let e = b - a;
                 s.sum_y += a;
@@ -210,7 +229,10 @@ mod tests {
         // an all-zero estimate scores recall 0 and SAE 1.
         let y = [0.0, 100.0, 100.0, 0.0, 50.0];
         let s = run(&y, &y, 10.0);
-        assert_eq!((s.mae_w, s.f1, s.accuracy, s.match_rate, s.nde), (0.0, 1.0, Some(1.0), Some(1.0), Some(0.0)));
+        assert_eq!(
+            (s.mae_w, s.f1, s.accuracy, s.match_rate, s.nde),
+            (0.0, 1.0, Some(1.0), Some(1.0), Some(0.0))
+        );
         let z = run(&y, &[0.0; 5], 10.0);
         assert_eq!((z.recall, z.sae, z.accuracy), (0.0, Some(1.0), Some(0.5)));
         assert!((z.truth_kwh - 0.25).abs() < 1e-12);

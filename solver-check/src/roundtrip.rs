@@ -45,7 +45,10 @@ impl Solver {
     pub fn parse(text: &str) -> Result<Solver, String> {
         if let Some(name) = text.strip_prefix("builtin:") {
             if !crate::solvers::NAMES.contains(&name) {
-                return Err(format!("no built-in solver \"{name}\"; built in: {}", crate::solvers::NAMES.join(", ")));
+                return Err(format!(
+                    "no built-in solver \"{name}\"; built in: {}",
+                    crate::solvers::NAMES.join(", ")
+                ));
             }
             return Ok(Solver::Builtin(name.to_string()));
         }
@@ -53,7 +56,9 @@ impl Solver {
         if argv.is_empty() {
             return Err("the solver command is empty".into());
         }
-        if !argv.iter().any(|a| a.contains("{task}")) || !argv.iter().any(|a| a.contains("{estimate}")) {
+        if !argv.iter().any(|a| a.contains("{task}"))
+            || !argv.iter().any(|a| a.contains("{estimate}"))
+        {
             return Err(format!("the solver command must contain {{task}} and {{estimate}}, e.g. \"python3 my_solver.py {{task}} {{estimate}}\"; got \"{text}\""));
         }
         Ok(Solver::Command(argv))
@@ -79,7 +84,11 @@ pub fn split_words(s: &str) -> Result<Vec<String>, String> {
         match (quote, c) {
             (Some(q), c) if c == q => quote = None,
             (Some(_), '\\') | (None, '\\') => {
-                cur.push(chars.next().ok_or("a trailing backslash in the solver command")?);
+                cur.push(
+                    chars
+                        .next()
+                        .ok_or("a trailing backslash in the solver command")?,
+                );
                 in_word = true;
             }
             (Some(_), c) => cur.push(c),
@@ -121,13 +130,33 @@ pub enum Failure {
 
 impl std::fmt::Display for Failure {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        let tail = |t: &str| if t.trim().is_empty() { "(the solver printed nothing)".to_string() } else { format!("last lines of its log:\n{t}") };
+        let tail = |t: &str| {
+            if t.trim().is_empty() {
+                "(the solver printed nothing)".to_string()
+            } else {
+                format!("last lines of its log:\n{t}")
+            }
+        };
         match self {
             Failure::Spawn(e) => write!(f, "the solver could not be started: {e}"),
-            Failure::Crashed { status, tail: t } => write!(f, "the solver failed ({status}); {}", tail(t)),
-            Failure::TimedOut { after, tail: t } => write!(f, "the solver was stopped after the time limit of {:.0} s; {}", after.as_secs_f64(), tail(t)),
-            Failure::NoEstimate { tail: t } => write!(f, "the solver ended without writing its estimate; {}", tail(t)),
-            Failure::Malformed(e) => write!(f, "the solver's estimate is malformed, so it gets no score:\n{e}"),
+            Failure::Crashed { status, tail: t } => {
+                write!(f, "the solver failed ({status}); {}", tail(t))
+            }
+            Failure::TimedOut { after, tail: t } => write!(
+                f,
+                "the solver was stopped after the time limit of {:.0} s; {}",
+                after.as_secs_f64(),
+                tail(t)
+            ),
+            Failure::NoEstimate { tail: t } => write!(
+                f,
+                "the solver ended without writing its estimate; {}",
+                tail(t)
+            ),
+            Failure::Malformed(e) => write!(
+                f,
+                "the solver's estimate is malformed, so it gets no score:\n{e}"
+            ),
             Failure::Builtin(e) => write!(f, "the built-in solver failed: {e}"),
         }
     }
@@ -144,12 +173,20 @@ pub struct Outcome {
 
 fn iso(ms: i64, tz: &str) -> String {
     let tz = jiff::tz::TimeZone::get(tz).unwrap_or(jiff::tz::TimeZone::UTC);
-    jiff::Timestamp::from_millisecond(ms).map(|t| t.to_zoned(tz).strftime("%Y-%m-%dT%H:%M:%S%:z").to_string()).unwrap_or_default()
+    jiff::Timestamp::from_millisecond(ms)
+        .map(|t| t.to_zoned(tz).strftime("%Y-%m-%dT%H:%M:%S%:z").to_string())
+        .unwrap_or_default()
 }
 
 /// Writes the task folder for `ds` with the first `train_rows` rows as
 /// training; returns its path.
-pub fn write_task(ds: &Dataset, dir: &Path, train_rows: usize, reveal: Reveal, estimate_name: &str) -> std::io::Result<PathBuf> {
+pub fn write_task(
+    ds: &Dataset,
+    dir: &Path,
+    train_rows: usize,
+    reveal: Reveal,
+    estimate_name: &str,
+) -> std::io::Result<PathBuf> {
     let _ = std::fs::remove_dir_all(dir);
     std::fs::create_dir_all(dir.join("test"))?;
     let rows = ds.rows as usize;
@@ -159,13 +196,28 @@ pub fn write_task(ds: &Dataset, dir: &Path, train_rows: usize, reveal: Reveal, e
     let at = |r: usize| iso(t0 + r as i64 * dt, &ds.timezone);
     let train = if train_rows > 0 {
         std::fs::create_dir_all(dir.join("train"))?;
-        copy_rows(&ds.dir.join("meters.parquet"), &dir.join("train/meters.parquet"), 0, train_rows)?;
-        copy_rows(&ds.dir.join("truth.parquet"), &dir.join("train/truth.parquet"), 0, train_rows)?;
+        copy_rows(
+            &ds.dir.join("meters.parquet"),
+            &dir.join("train/meters.parquet"),
+            0,
+            train_rows,
+        )?;
+        copy_rows(
+            &ds.dir.join("truth.parquet"),
+            &dir.join("train/truth.parquet"),
+            0,
+            train_rows,
+        )?;
         json!({ "meters": "train/meters.parquet", "truth": "train/truth.parquet", "start": at(0), "end": at(train_rows), "rows": train_rows })
     } else {
         Value::Null
     };
-    copy_rows(&ds.dir.join("meters.parquet"), &dir.join("test/meters.parquet"), train_rows, rows)?;
+    copy_rows(
+        &ds.dir.join("meters.parquet"),
+        &dir.join("test/meters.parquet"),
+        train_rows,
+        rows,
+    )?;
     let apps: Vec<Value> = m["appliances"]
         .as_array()
         .map(|list| {
@@ -201,18 +253,33 @@ pub fn write_task(ds: &Dataset, dir: &Path, train_rows: usize, reveal: Reveal, e
             "format": "Parquet or CSV, as the file name's extension says",
         },
     });
-    std::fs::write(dir.join("task.json"), serde_json::to_string_pretty(&task).expect("JSON") + "\n")?;
+    std::fs::write(
+        dir.join("task.json"),
+        serde_json::to_string_pretty(&task).expect("JSON") + "\n",
+    )?;
     Ok(dir.to_path_buf())
 }
 
 fn tail(path: &Path, lines: usize) -> String {
     let text = std::fs::read_to_string(path).unwrap_or_default();
     let all: Vec<&str> = text.lines().collect();
-    all[all.len().saturating_sub(lines)..].iter().map(|l| format!("    {l}")).collect::<Vec<_>>().join("\n")
+    all[all.len().saturating_sub(lines)..]
+        .iter()
+        .map(|l| format!("    {l}"))
+        .collect::<Vec<_>>()
+        .join("\n")
 }
 
 /// Runs the solver on the task, then scores its estimate on the test rows.
-pub fn run(dataset: &Path, work: &Path, train_rows: usize, reveal: Reveal, solver: &Solver, timeout: Duration, estimate_name: &str) -> std::io::Result<Outcome> {
+pub fn run(
+    dataset: &Path,
+    work: &Path,
+    train_rows: usize,
+    reveal: Reveal,
+    solver: &Solver,
+    timeout: Duration,
+    estimate_name: &str,
+) -> std::io::Result<Outcome> {
     let ds = Dataset::open(dataset).map_err(|e| std::io::Error::other(e.to_string()))?;
     let task_dir = write_task(&ds, &work.join("task"), train_rows, reveal, estimate_name)?;
     let estimate = work.join(estimate_name);
@@ -229,12 +296,25 @@ pub fn run(dataset: &Path, work: &Path, train_rows: usize, reveal: Reveal, solve
     let seconds = started.elapsed().as_secs_f64();
     let result = ran.and_then(|_| {
         if !estimate.exists() {
-            return Err(Failure::NoEstimate { tail: tail(&log, 10) });
+            return Err(Failure::NoEstimate {
+                tail: tail(&log, 10),
+            });
         }
-        let opts = Options { partial: false, thresholds: vec![], window: Some((train_rows, ds.rows as usize - train_rows)) };
+        let opts = Options {
+            partial: false,
+            thresholds: vec![],
+            window: Some((train_rows, ds.rows as usize - train_rows)),
+        };
         score(dataset, &estimate, &opts).map_err(|e| Failure::Malformed(e.to_string()))
     });
-    Ok(Outcome { task_dir, estimate, log, solver: solver.describe(), seconds, result })
+    Ok(Outcome {
+        task_dir,
+        estimate,
+        log,
+        solver: solver.describe(),
+        seconds,
+        result,
+    })
 }
 
 /// Stops the child and every process of its group (it was made leader of
@@ -254,30 +334,57 @@ fn stop_group(child: &mut std::process::Child) {
     let _ = child.kill();
 }
 
-fn run_child(argv: &[String], task: &Path, estimate: &Path, log: &Path, timeout: Duration) -> Result<(), Failure> {
-    let sub = |a: &String| a.replace("{task}", &task.display().to_string()).replace("{estimate}", &estimate.display().to_string());
+fn run_child(
+    argv: &[String],
+    task: &Path,
+    estimate: &Path,
+    log: &Path,
+    timeout: Duration,
+) -> Result<(), Failure> {
+    let sub = |a: &String| {
+        a.replace("{task}", &task.display().to_string())
+            .replace("{estimate}", &estimate.display().to_string())
+    };
     let args: Vec<String> = argv.iter().map(sub).collect();
-    let out = std::fs::File::create(log).map_err(|e| Failure::Spawn(format!("cannot create {}: {e}", log.display())))?;
+    let out = std::fs::File::create(log)
+        .map_err(|e| Failure::Spawn(format!("cannot create {}: {e}", log.display())))?;
     let err = out.try_clone().map_err(|e| Failure::Spawn(e.to_string()))?;
     let mut cmd = Command::new(&args[0]);
-    cmd.args(&args[1..]).stdin(Stdio::null()).stdout(out).stderr(err).env("LOADLOOM_TASK", task).env("LOADLOOM_ESTIMATE", estimate);
+    cmd.args(&args[1..])
+        .stdin(Stdio::null())
+        .stdout(out)
+        .stderr(err)
+        .env("LOADLOOM_TASK", task)
+        .env("LOADLOOM_ESTIMATE", estimate);
     #[cfg(unix)]
     {
         use std::os::unix::process::CommandExt;
         // Its own process group, so a time-out stops its children too.
         cmd.process_group(0);
     }
-    let mut child = cmd.spawn().map_err(|e| Failure::Spawn(format!("{}: {e}", args[0])))?;
+    let mut child = cmd
+        .spawn()
+        .map_err(|e| Failure::Spawn(format!("{}: {e}", args[0])))?;
     let started = Instant::now();
     loop {
         match child.try_wait() {
             Ok(Some(status)) => {
-                return if status.success() { Ok(()) } else { Err(Failure::Crashed { status: status.to_string(), tail: tail(log, 10) }) };
+                return if status.success() {
+                    Ok(())
+                } else {
+                    Err(Failure::Crashed {
+                        status: status.to_string(),
+                        tail: tail(log, 10),
+                    })
+                };
             }
             Ok(None) if started.elapsed() >= timeout => {
                 stop_group(&mut child);
                 let _ = child.wait();
-                return Err(Failure::TimedOut { after: timeout, tail: tail(log, 10) });
+                return Err(Failure::TimedOut {
+                    after: timeout,
+                    tail: tail(log, 10),
+                });
             }
             Ok(None) => std::thread::sleep(Duration::from_millis(20)),
             Err(e) => return Err(Failure::Spawn(e.to_string())),

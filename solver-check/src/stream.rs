@@ -18,6 +18,8 @@ pub struct Batch {
     pub first: usize,
     pub time_ms: Vec<i64>,
     pub cols: Vec<Vec<f64>>,
+    /// The text columns asked for with [`Header::stream_with_text`].
+    pub texts: Vec<Vec<String>>,
 }
 
 /// What a table holds, read from its schema or header.
@@ -188,14 +190,71 @@ pub fn in_memory(t: Table) -> Header {
 pub struct Stream<'h> {
     h: &'h Header,
     cols: Vec<String>,
+    texts: Vec<String>,
     row: usize,
     inner: Inner,
 }
 
+/// Where the asked columns sit: Parquet positions in the projected batch
+/// (time, numeric..., text...), CSV cell indices (time, numeric..., text...).
 enum Inner {
     Parquet(ParquetRecordBatchReader, Vec<usize>),
-    Csv(std::io::Lines<BufReader<std::fs::File>>, usize, Vec<usize>),
+    Csv(std::io::Lines<BufReader<std::fs::File>>, Vec<usize>),
     Mem,
+}
+
+/// A text column of a Parquet batch as strings.
+fn texts_of(a: &ArrayRef, path: &Path, name: &str) -> Result<Vec<String>, TableError> {
+    use arrow_array::types::{Int16Type, Int8Type, UInt8Type};
+    use arrow_buffer::ArrowNativeType;
+    fn dict<K: arrow_array::types::ArrowDictionaryKeyType>(a: &ArrayRef) -> Vec<String> {
+        let d = a.as_dictionary::<K>();
+        let s = d.values().as_string::<i32>();
+        d.keys()
+            .iter()
+            .map(|k| {
+                k.and_then(|k| k.to_usize())
+                    .map(|k| s.value(k).to_string())
+                    .unwrap_or_default()
+            })
+            .collect()
+    }
+    Ok(match a.data_type() {
+        DataType::Utf8 => a
+            .as_string::<i32>()
+            .iter()
+            .map(|v| v.unwrap_or("").to_string())
+            .collect(),
+        DataType::LargeUtf8 => a
+            .as_string::<i64>()
+            .iter()
+            .map(|v| v.unwrap_or("").to_string())
+            .collect(),
+        DataType::Dictionary(k, v) if **v == DataType::Utf8 => match **k {
+            DataType::Int8 => dict::<Int8Type>(a),
+            DataType::Int16 => dict::<Int16Type>(a),
+            DataType::Int32 => dict::<Int32Type>(a),
+            DataType::UInt8 => dict::<UInt8Type>(a),
+            _ => {
+                return Err(table_err(
+                    path,
+                    Some(name),
+                    None,
+                    format!("unsupported dictionary column {}", a.data_type()),
+                    "store it as plain strings",
+                ))
+            }
+        },
+        other => {
+            return Err(table_err(
+                path,
+                Some(name),
+                None,
+                format!("column type {other} is not text"),
+                "store it as strings",
+            ))
+        }
+    })
 }
 
 fn time_ms(a: &ArrayRef, unit: TimeUnit) -> Vec<i64> {
@@ -229,7 +288,17 @@ fn time_ms(a: &ArrayRef, unit: TimeUnit) -> Vec<i64> {
 impl Header {
     /// Streams `time` and the numeric columns `cols` (in that order).
     pub fn stream(&self, cols: &[String]) -> Result<Stream<'_>, TableError> {
+        self.stream_with_text(cols, &[])
+    }
+
+    /// Streams `time`, the numeric columns `cols` and the text columns `texts`.
+    pub fn stream_with_text(
+        &self,
+        cols: &[String],
+        texts: &[String],
+    ) -> Result<Stream<'_>, TableError> {
         let path = &self.file;
+        let all: Vec<&String> = cols.iter().chain(texts).collect();
         let inner = match &self.kind {
             Kind::Parquet { time_index, .. } => {
                 let file = std::fs::File::open(path)
@@ -238,7 +307,7 @@ impl Header {
                     .map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
                 let schema = b.schema().clone();
                 let mut leaves = vec![*time_index];
-                for c in cols {
+                for c in &all {
                     leaves.push(schema.index_of(c).map_err(|_| {
                         table_err(
                             path,
@@ -269,10 +338,9 @@ impl Header {
                     .map_err(|e| table_err(path, None, None, e.to_string(), "check the path"))?;
                 let mut lines = BufReader::with_capacity(1 << 20, file).lines();
                 lines.next();
-                let idx = cols
-                    .iter()
-                    .map(|c| {
-                        header.iter().position(|h| h == c).ok_or_else(|| {
+                let idx = std::iter::once(Ok(*time_index))
+                    .chain(all.iter().map(|c| {
+                        header.iter().position(|h| h == *c).ok_or_else(|| {
                             table_err(
                                 path,
                                 Some(c),
@@ -281,15 +349,16 @@ impl Header {
                                 "check the column names",
                             )
                         })
-                    })
+                    }))
                     .collect::<Result<Vec<_>, _>>()?;
-                Inner::Csv(lines, *time_index, idx)
+                Inner::Csv(lines, idx)
             }
             Kind::Mem(_) => Inner::Mem,
         };
         Ok(Stream {
             h: self,
             cols: cols.to_vec(),
+            texts: texts.to_vec(),
             row: 0,
             inner,
         })
@@ -372,15 +441,29 @@ impl Stream<'_> {
                     };
                     cols.push(v);
                 }
+                let n = self.cols.len();
+                let texts = self
+                    .texts
+                    .iter()
+                    .enumerate()
+                    .map(|(j, name)| texts_of(b.column(pos[1 + n + j]), path, name))
+                    .collect::<Result<Vec<_>, _>>()?;
                 Batch {
                     first,
                     time_ms: time_ms(t, *unit),
                     cols,
+                    texts,
                 }
             }
-            Inner::Csv(lines, ti, idx) => {
+            Inner::Csv(lines, idx) => {
+                let (ti, nums, txts) = (
+                    idx[0],
+                    &idx[1..1 + self.cols.len()],
+                    &idx[1 + self.cols.len()..],
+                );
                 let mut time = Vec::new();
-                let mut cols: Vec<Vec<f64>> = vec![Vec::new(); idx.len()];
+                let mut cols: Vec<Vec<f64>> = vec![Vec::new(); nums.len()];
+                let mut texts: Vec<Vec<String>> = vec![Vec::new(); txts.len()];
                 let Kind::Csv { header, .. } = &self.h.kind else {
                     unreachable!()
                 };
@@ -409,11 +492,14 @@ impl Stream<'_> {
                             "give every row one value per column",
                         ));
                     }
-                    let ts: jiff::Timestamp = cells[*ti].trim().parse().map_err(|_| {
-                        table_err(path, Some("time"), Some(r), format!("\"{}\" is not a time with its UTC offset", cells[*ti]), "write ISO-8601 with an offset, e.g. 2027-03-13T00:00:00-06:00 or 2027-03-13T06:00:00Z (time zones are never guessed)")
+                    let ts: jiff::Timestamp = cells[ti].trim().parse().map_err(|_| {
+                        table_err(path, Some("time"), Some(r), format!("\"{}\" is not a time with its UTC offset", cells[ti]), "write ISO-8601 with an offset, e.g. 2027-03-13T00:00:00-06:00 or 2027-03-13T06:00:00Z (time zones are never guessed)")
                     })?;
                     time.push(ts.as_millisecond());
-                    for (j, &i) in idx.iter().enumerate() {
+                    for (j, &i) in txts.iter().enumerate() {
+                        texts[j].push(cells[i].trim().trim_matches('"').to_string());
+                    }
+                    for (j, &i) in nums.iter().enumerate() {
                         let s = cells[i].trim();
                         let v = if s.is_empty() {
                             f64::NAN
@@ -442,6 +528,7 @@ impl Stream<'_> {
                     first,
                     time_ms: time,
                     cols,
+                    texts,
                 }
             }
             Inner::Mem => {
@@ -467,10 +554,20 @@ impl Stream<'_> {
                         })
                     })
                     .collect::<Result<Vec<_>, _>>()?;
+                let texts = self
+                    .texts
+                    .iter()
+                    .map(|c| {
+                        t.text(c)
+                            .map(|v| v[first..end].to_vec())
+                            .unwrap_or_default()
+                    })
+                    .collect();
                 Batch {
                     first,
                     time_ms: t.time_ms[first..end].to_vec(),
                     cols,
+                    texts,
                 }
             }
         };

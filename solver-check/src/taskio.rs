@@ -19,7 +19,12 @@ pub fn copy_rows(src: &Path, dst: &Path, from: usize, to: usize) -> io::Result<u
     let b = ParquetRecordBatchReaderBuilder::try_new(std::fs::File::open(src)?).map_err(io_err)?;
     let schema = b.schema().clone();
     let reader = b.with_batch_size(1 << 16).build().map_err(io_err)?;
-    let mut w = ArrowWriter::try_new(std::io::BufWriter::new(std::fs::File::create(dst)?), schema, None).map_err(io_err)?;
+    let mut w = ArrowWriter::try_new(
+        std::io::BufWriter::new(std::fs::File::create(dst)?),
+        schema,
+        None,
+    )
+    .map_err(io_err)?;
     let mut row = 0;
     let mut written = 0;
     for batch in reader {
@@ -40,7 +45,12 @@ pub fn copy_rows(src: &Path, dst: &Path, from: usize, to: usize) -> io::Result<u
 }
 
 /// Writes a wide estimate: `time` (ms UTC, in `tz`) and one column per name.
-pub fn write_estimate(path: &Path, tz: &str, time_ms: &[i64], cols: &[(String, Vec<f64>)]) -> io::Result<()> {
+pub fn write_estimate(
+    path: &Path,
+    tz: &str,
+    time_ms: &[i64],
+    cols: &[(String, Vec<f64>)],
+) -> io::Result<()> {
     let tmp = path.with_extension("partial");
     if path.extension().is_some_and(|e| e == "csv") {
         let mut f = std::io::BufWriter::new(std::fs::File::create(&tmp)?);
@@ -51,7 +61,9 @@ pub fn write_estimate(path: &Path, tz: &str, time_ms: &[i64], cols: &[(String, V
         }
         writeln!(f)?;
         for (r, &t) in time_ms.iter().enumerate() {
-            let z = jiff::Timestamp::from_millisecond(t).map_err(io_err)?.to_zoned(tzz.clone());
+            let z = jiff::Timestamp::from_millisecond(t)
+                .map_err(io_err)?
+                .to_zoned(tzz.clone());
             write!(f, "{}", z.strftime("%Y-%m-%dT%H:%M:%S%.3f%:z"))?;
             for (_, v) in cols {
                 write!(f, ",{}", v[r])?;
@@ -60,17 +72,31 @@ pub fn write_estimate(path: &Path, tz: &str, time_ms: &[i64], cols: &[(String, V
         }
         f.flush()?;
     } else {
-        let mut fields = vec![Field::new("time", DataType::Timestamp(TimeUnit::Millisecond, Some(tz.into())), false)];
-        fields.extend(cols.iter().map(|(n, _)| Field::new(n, DataType::Float64, false)));
+        let mut fields = vec![Field::new(
+            "time",
+            DataType::Timestamp(TimeUnit::Millisecond, Some(tz.into())),
+            false,
+        )];
+        fields.extend(
+            cols.iter()
+                .map(|(n, _)| Field::new(n, DataType::Float64, false)),
+        );
         let schema = Arc::new(Schema::new(fields));
-        let mut w = ArrowWriter::try_new(std::fs::File::create(&tmp)?, schema.clone(), None).map_err(io_err)?;
+        let mut w = ArrowWriter::try_new(std::fs::File::create(&tmp)?, schema.clone(), None)
+            .map_err(io_err)?;
         let step = 1 << 16;
         let mut a = 0;
         while a < time_ms.len() {
             let z = (a + step).min(time_ms.len());
-            let mut arrays: Vec<ArrayRef> = vec![Arc::new(TimestampMillisecondArray::from(time_ms[a..z].to_vec()).with_timezone(tz))];
-            arrays.extend(cols.iter().map(|(_, v)| Arc::new(Float64Array::from(v[a..z].to_vec())) as ArrayRef));
-            w.write(&RecordBatch::try_new(schema.clone(), arrays).map_err(io_err)?).map_err(io_err)?;
+            let mut arrays: Vec<ArrayRef> = vec![Arc::new(
+                TimestampMillisecondArray::from(time_ms[a..z].to_vec()).with_timezone(tz),
+            )];
+            arrays.extend(
+                cols.iter()
+                    .map(|(_, v)| Arc::new(Float64Array::from(v[a..z].to_vec())) as ArrayRef),
+            );
+            w.write(&RecordBatch::try_new(schema.clone(), arrays).map_err(io_err)?)
+                .map_err(io_err)?;
             a = z;
         }
         w.close().map_err(io_err)?;

@@ -38,9 +38,18 @@ struct Knapsack {
 impl Knapsack {
     /// `powers[i][l]`: power of appliance i at level l; `priors` likewise.
     fn new(powers: &[Vec<f64>], priors: &[Vec<f64>]) -> Knapsack {
-        let steps: Vec<Vec<i64>> = powers.iter().map(|p| p.iter().map(|w| (w / BIN_W).round() as i64).collect()).collect();
-        let lo: i64 = steps.iter().map(|s| s.iter().copied().min().unwrap_or(0).min(0)).sum();
-        let hi: i64 = steps.iter().map(|s| s.iter().copied().max().unwrap_or(0).max(0)).sum();
+        let steps: Vec<Vec<i64>> = powers
+            .iter()
+            .map(|p| p.iter().map(|w| (w / BIN_W).round() as i64).collect())
+            .collect();
+        let lo: i64 = steps
+            .iter()
+            .map(|s| s.iter().copied().min().unwrap_or(0).min(0))
+            .sum();
+        let hi: i64 = steps
+            .iter()
+            .map(|s| s.iter().copied().max().unwrap_or(0).max(0))
+            .sum();
         let bins = (hi - lo + 1) as usize;
         let mut cur = vec![f64::NEG_INFINITY; bins];
         cur[(-lo) as usize] = 0.0;
@@ -80,13 +89,24 @@ impl Knapsack {
                 }
                 if best.0 == u32::MAX {
                     // Nothing reachable nearby: the nearest reachable sum.
-                    let b = (0..bins).filter(|&b| cur[b] > f64::NEG_INFINITY).min_by_key(|&b| (b as i64 - m).abs()).unwrap_or(0);
-                    best = (b as u32, (b as i64 - m).abs() as f64 * BIN_W - PRIOR_W * cur[b]);
+                    let b = (0..bins)
+                        .filter(|&b| cur[b] > f64::NEG_INFINITY)
+                        .min_by_key(|&b| (b as i64 - m).abs())
+                        .unwrap_or(0);
+                    best = (
+                        b as u32,
+                        (b as i64 - m).abs() as f64 * BIN_W - PRIOR_W * cur[b],
+                    );
                 }
                 best
             })
             .collect();
-        Knapsack { origin: lo, choice, target, steps }
+        Knapsack {
+            origin: lo,
+            choice,
+            target,
+            steps,
+        }
     }
 
     /// Target bin and cost for a measured power.
@@ -122,19 +142,41 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
     // Levels per appliance, with their split over the lines they draw from.
     let mut apps: Vec<(String, Vec<usize>, Vec<Level>)> = Vec::new();
     for id in &task.ids {
-        let p = train.num(&format!("{id}_p_w")).ok_or_else(|| format!("the training truth lacks {id}_p_w"))?;
-        let on: Vec<usize> = (0..lines.len()).filter(|&x| train.has(&format!("{id}_{}_p_w", lines[x]))).collect();
-        let per: Vec<&[f64]> = on.iter().map(|&x| train.num(&format!("{id}_{}_p_w", lines[x])).unwrap()).collect();
+        let p = train
+            .num(&format!("{id}_p_w"))
+            .ok_or_else(|| format!("the training truth lacks {id}_p_w"))?;
+        let on: Vec<usize> = (0..lines.len())
+            .filter(|&x| train.has(&format!("{id}_{}_p_w", lines[x])))
+            .collect();
+        let per: Vec<&[f64]> = on
+            .iter()
+            .map(|&x| train.num(&format!("{id}_{}_p_w", lines[x])).unwrap())
+            .collect();
         apps.push((id.clone(), on, learn(p, &per)));
     }
-    let meter_cols: Vec<String> = if per_conductor { lines.iter().map(|l| format!("{l}_p_w")).collect() } else { vec!["total_p_w".into()] };
+    let meter_cols: Vec<String> = if per_conductor {
+        lines.iter().map(|l| format!("{l}_p_w")).collect()
+    } else {
+        vec!["total_p_w".into()]
+    };
     let test = task.test_meters(&meter_cols)?;
     let n = test.time_ms.len();
     let mut level_of: Vec<Vec<usize>> = vec![vec![0; n]; apps.len()];
 
     if !per_conductor {
-        let ks = Knapsack::new(&apps.iter().map(|a| a.2.iter().map(|l| l.p_w).collect()).collect::<Vec<_>>(), &apps.iter().map(|a| a.2.iter().map(|l| l.prior).collect()).collect::<Vec<_>>());
-        let total = test.num("total_p_w").ok_or("the test meters lack total_p_w")?;
+        let ks = Knapsack::new(
+            &apps
+                .iter()
+                .map(|a| a.2.iter().map(|l| l.p_w).collect())
+                .collect::<Vec<_>>(),
+            &apps
+                .iter()
+                .map(|a| a.2.iter().map(|l| l.prior).collect())
+                .collect::<Vec<_>>(),
+        );
+        let total = test
+            .num("total_p_w")
+            .ok_or("the test meters lack total_p_w")?;
         let mut lv = vec![0; apps.len()];
         for t in 0..n {
             ks.levels(ks.look(total[t]).0, &mut lv);
@@ -144,16 +186,28 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
         }
     } else {
         // One programme per line over the appliances on that line only.
-        let single: Vec<Vec<usize>> = (0..lines.len()).map(|x| (0..apps.len()).filter(|&k| apps[k].1 == [x]).collect()).collect();
+        let single: Vec<Vec<usize>> = (0..lines.len())
+            .map(|x| (0..apps.len()).filter(|&k| apps[k].1 == [x]).collect())
+            .collect();
         let multi: Vec<usize> = (0..apps.len()).filter(|&k| apps[k].1.len() != 1).collect();
         let ks: Vec<Knapsack> = single
             .iter()
             .map(|group| {
-                Knapsack::new(&group.iter().map(|&k| apps[k].2.iter().map(|l| l.split[0]).collect()).collect::<Vec<_>>(), &group.iter().map(|&k| apps[k].2.iter().map(|l| l.prior).collect()).collect::<Vec<_>>())
+                Knapsack::new(
+                    &group
+                        .iter()
+                        .map(|&k| apps[k].2.iter().map(|l| l.split[0]).collect())
+                        .collect::<Vec<_>>(),
+                    &group
+                        .iter()
+                        .map(|&k| apps[k].2.iter().map(|l| l.prior).collect())
+                        .collect::<Vec<_>>(),
+                )
             })
             .collect();
         // Joint combinations of the multi-line appliances, most probable first.
-        let mut combos: Vec<(Vec<usize>, Vec<f64>, f64)> = vec![(vec![], vec![0.0; lines.len()], 0.0)];
+        let mut combos: Vec<(Vec<usize>, Vec<f64>, f64)> =
+            vec![(vec![], vec![0.0; lines.len()], 0.0)];
         for &k in &multi {
             let mut next = Vec::new();
             for (ls, v, lp) in &combos {
@@ -171,7 +225,13 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
             next.truncate(4096);
             combos = next;
         }
-        let meas: Vec<&[f64]> = meter_cols.iter().map(|c| test.num(c).ok_or_else(|| format!("the test meters lack {c}"))).collect::<Result<_, _>>()?;
+        let meas: Vec<&[f64]> = meter_cols
+            .iter()
+            .map(|c| {
+                test.num(c)
+                    .ok_or_else(|| format!("the test meters lack {c}"))
+            })
+            .collect::<Result<_, _>>()?;
         let mut cache: HashMap<Vec<i64>, (usize, Vec<u32>)> = HashMap::new();
         let mut lv = vec![0; apps.len()];
         for t in 0..n {
@@ -214,10 +274,19 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
 
     let mut cols = Vec::new();
     for (k, (id, on, levels)) in apps.iter().enumerate() {
-        cols.push((format!("{id}_p_w"), level_of[k].iter().map(|&l| levels[l].p_w.max(0.0)).collect()));
+        cols.push((
+            format!("{id}_p_w"),
+            level_of[k]
+                .iter()
+                .map(|&l| levels[l].p_w.max(0.0))
+                .collect(),
+        ));
         if per_conductor {
             for (j, &x) in on.iter().enumerate() {
-                cols.push((format!("{id}_{}_p_w", lines[x]), level_of[k].iter().map(|&l| levels[l].split[j]).collect()));
+                cols.push((
+                    format!("{id}_{}_p_w", lines[x]),
+                    level_of[k].iter().map(|&l| levels[l].split[j]).collect(),
+                ));
             }
         }
     }

@@ -10,8 +10,14 @@ pub fn solve(task: &Task) -> Result<(Vec<i64>, Vec<(String, Vec<f64>)>), String>
     let n = test.time_ms.len();
     let mut out = Vec::new();
     for c in &cols {
-        let v = train.num(c).ok_or_else(|| format!("the training truth lacks {c}"))?;
-        let mean = if v.is_empty() { 0.0 } else { v.iter().sum::<f64>() / v.len() as f64 };
+        let v = train
+            .num(c)
+            .ok_or_else(|| format!("the training truth lacks {c}"))?;
+        let mean = if v.is_empty() {
+            0.0
+        } else {
+            v.iter().sum::<f64>() / v.len() as f64
+        };
         out.push((c.clone(), vec![mean; n]));
     }
     Ok((test.time_ms, out))

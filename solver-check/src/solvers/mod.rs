@@ -21,12 +21,35 @@ pub struct Task {
 
 impl Task {
     pub fn open(dir: &Path) -> Result<Task, String> {
-        let text = std::fs::read_to_string(dir.join("task.json")).map_err(|e| format!("cannot read {}: {e}", dir.join("task.json").display()))?;
+        let text = std::fs::read_to_string(dir.join("task.json"))
+            .map_err(|e| format!("cannot read {}: {e}", dir.join("task.json").display()))?;
         let json: Value = serde_json::from_str(&text).map_err(|e| format!("task.json: {e}"))?;
-        let ids = json["appliances"].as_array().map(|a| a.iter().filter_map(|x| x["id"].as_str().map(str::to_string)).collect()).unwrap_or_default();
+        let ids = json["appliances"]
+            .as_array()
+            .map(|a| {
+                a.iter()
+                    .filter_map(|x| x["id"].as_str().map(str::to_string))
+                    .collect()
+            })
+            .unwrap_or_default();
         let timezone = json["timezone"].as_str().unwrap_or("UTC").to_string();
-        let lines = json["supply"]["conductors"].as_array().map(|a| a.iter().filter_map(|c| c.as_str()).filter(|c| *c != "n").map(str::to_string).collect()).unwrap_or_default();
-        Ok(Task { dir: dir.to_path_buf(), json, ids, timezone, lines })
+        let lines = json["supply"]["conductors"]
+            .as_array()
+            .map(|a| {
+                a.iter()
+                    .filter_map(|c| c.as_str())
+                    .filter(|c| *c != "n")
+                    .map(str::to_string)
+                    .collect()
+            })
+            .unwrap_or_default();
+        Ok(Task {
+            dir: dir.to_path_buf(),
+            json,
+            ids,
+            timezone,
+            lines,
+        })
     }
 
     fn file(&self, part: &str, table: &str) -> Option<PathBuf> {
@@ -35,15 +58,19 @@ impl Task {
 
     /// Training truth columns (whole), or an error if the task has no training period.
     pub fn train_truth(&self, cols: &[String]) -> Result<crate::table::Table, String> {
-        let p = self.file("train", "truth").ok_or("this solver needs a training period (--train)")?;
+        let p = self
+            .file("train", "truth")
+            .ok_or("this solver needs a training period (--train)")?;
         let keep = |n: &str| cols.iter().any(|c| c == n);
-        read(&p, Some(&keep)).map_err(|e: TableError| e.to_string())
+        read(&p, Some(&keep), &[]).map_err(|e: TableError| e.to_string())
     }
 
     pub fn test_meters(&self, cols: &[String]) -> Result<crate::table::Table, String> {
-        let p = self.file("test", "meters").ok_or("task.json names no test meters")?;
+        let p = self
+            .file("test", "meters")
+            .ok_or("task.json names no test meters")?;
         let keep = |n: &str| cols.iter().any(|c| c == n);
-        read(&p, Some(&keep)).map_err(|e: TableError| e.to_string())
+        read(&p, Some(&keep), &[]).map_err(|e: TableError| e.to_string())
     }
 }
 
@@ -57,7 +84,13 @@ pub fn run(name: &str, task_dir: &Path, estimate: &Path) -> Result<(), String> {
         "mean" => mean::solve(&task)?,
         "co" => co::solve(&task, false)?,
         "co-conductor" => co::solve(&task, true)?,
-        _ => return Err(format!("no built-in solver \"{name}\"; built in: {}", NAMES.join(", "))),
+        _ => {
+            return Err(format!(
+                "no built-in solver \"{name}\"; built in: {}",
+                NAMES.join(", ")
+            ))
+        }
     };
-    crate::taskio::write_estimate(estimate, &task.timezone, &time, &cols).map_err(|e| format!("writing {}: {e}", estimate.display()))
+    crate::taskio::write_estimate(estimate, &task.timezone, &time, &cols)
+        .map_err(|e| format!("writing {}: {e}", estimate.display()))
 }

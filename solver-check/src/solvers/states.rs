@@ -15,7 +15,11 @@ pub struct Level {
 /// conductor x at row t (may be empty).
 pub fn learn(p: &[f64], per_line: &[&[f64]]) -> Vec<Level> {
     if p.is_empty() {
-        return vec![Level { p_w: 0.0, prior: 1.0, split: vec![0.0; per_line.len()] }];
+        return vec![Level {
+            p_w: 0.0,
+            prior: 1.0,
+            split: vec![0.0; per_line.len()],
+        }];
     }
     // A sample of at most 200 000 rows keeps learning fast on long training.
     let stride = (p.len() / 200_000).max(1);
@@ -32,7 +36,9 @@ pub fn learn(p: &[f64], per_line: &[&[f64]]) -> Vec<Level> {
             sum[k] += x;
             n[k] += 1;
         }
-        let next: Vec<f64> = (0..c.len()).map(|k| if n[k] > 0 { sum[k] / n[k] as f64 } else { c[k] }).collect();
+        let next: Vec<f64> = (0..c.len())
+            .map(|k| if n[k] > 0 { sum[k] / n[k] as f64 } else { c[k] })
+            .collect();
         if next == c {
             break;
         }
@@ -40,7 +46,14 @@ pub fn learn(p: &[f64], per_line: &[&[f64]]) -> Vec<Level> {
     }
     c.sort_by(|a, b| a.partial_cmp(b).unwrap());
     c.dedup_by(|a, b| (*a - *b).abs() < 15.0);
-    let mut levels: Vec<Level> = c.iter().map(|&p| Level { p_w: p, prior: 0.0, split: vec![0.0; per_line.len()] }).collect();
+    let mut levels: Vec<Level> = c
+        .iter()
+        .map(|&p| Level {
+            p_w: p,
+            prior: 0.0,
+            split: vec![0.0; per_line.len()],
+        })
+        .collect();
     let mut n = vec![0usize; levels.len()];
     for (t, &x) in p.iter().enumerate().step_by(stride) {
         let k = nearest(&c, x);
