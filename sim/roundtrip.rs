@@ -35,9 +35,35 @@ pub struct Rung {
     pub apply: fn(&mut Scenario),
 }
 
-/// The ladder: the scenario as written, then more meter noise, then coarser
-/// reporting intervals.
-pub const LADDER: [Rung; 5] = [
+/// Adds unlisted background loads, one per line, so that they draw `share`
+/// of the home's energy: modulating, constant-power, a reflected walk within
+/// [50 %, 100 %] of their rating (mean 75 %), updated every 5 min.
+pub fn add_background(s: &mut Scenario, share: f64) {
+    use crate::scenario::{connection_voltage, Appliance, Behaviour, Connection, Draw, LoadKind, State, NEUTRAL};
+    let f = crate::summary::figures(s);
+    let mean_w: f64 = f.apps.iter().map(|a| a.kwh_per_day).sum::<f64>() * 1000.0 / 24.0;
+    let target_w = mean_w * share / (1.0 - share);
+    let n = s.home.supply.lines();
+    for x in 0..n {
+        let wiring = Connection::Pair(x as u8, NEUTRAL);
+        let rated = target_w / n as f64 / 0.75;
+        let k = LoadKind::Electronic;
+        let draw = Draw { wiring, p_w: rated, q_var: 0.2 * rated, load: k, zip_p: k.default_zip_p(), zip_q: k.default_zip_q(), nominal_v: connection_voltage(&s.home, wiring) };
+        s.unmetered.push(Appliance {
+            id: format!("background_l{}", x + 1),
+            label: "unlisted background loads".into(),
+            template: None,
+            wiring,
+            behaviour: Behaviour::Modulating { min: 0.5, wander: 0.05, every_s: 300.0, session: None },
+            states: vec![State { name: "off".into(), draws: vec![], inrush: None }, State { name: "on".into(), draws: vec![draw], inrush: None }],
+            on_threshold_w: 0.0,
+        });
+    }
+}
+
+/// The ladder: the scenario as written, then more meter noise, a larger
+/// unmetered background load, then coarser reporting intervals.
+pub const LADDER: [Rung; 6] = [
     Rung { name: "as written", apply: |_| {} },
     Rung {
         name: "noise 1 % + 5 W",
@@ -53,6 +79,7 @@ pub const LADDER: [Rung; 5] = [
             s.meter.noise_floor_w = 15.0;
         },
     },
+    Rung { name: "unmetered 20 %", apply: |s| add_background(s, 0.2) },
     Rung { name: "interval 10 s", apply: |s| s.meter.interval_s = s.meter.interval_s.max(10.0) },
     Rung { name: "interval 1 min", apply: |s| s.meter.interval_s = s.meter.interval_s.max(60.0) },
 ];
@@ -71,7 +98,8 @@ pub fn suite(scenarios: &[Scenario], out: &Path, p: &Plan, progress: &mut dyn Fn
             progress(&s.name, rung.name);
             let mut v = s.clone();
             (rung.apply)(&mut v);
-            let work = out.join(format!("{}-suite", v.name));
+            let slug: String = rung.name.chars().map(|c| if c.is_ascii_alphanumeric() { c } else { '-' }).collect::<String>().split('-').filter(|p| !p.is_empty()).collect::<Vec<_>>().join("-");
+            let work = out.join(format!("{}-suite", v.name)).join(slug);
             let o = once(&v, &work, p)?;
             rows.push(SuiteRow { scenario: s.name.clone(), rung: rung.name, result: o.result.map_err(|f| f.to_string()) });
         }

@@ -20,13 +20,14 @@ pub struct Truth {
 }
 
 impl Truth {
-    fn new(net: &Network) -> Self {
-        let n = net.apps.len();
+    /// Columns for the first `metered` loads of the network (the appliances).
+    fn new(net: &Network, metered: usize) -> Self {
+        let n = metered;
         Truth {
             app_p: vec![Vec::new(); n],
             app_q: vec![Vec::new(); n],
             app_state: vec![Vec::new(); n],
-            app_line_p: net.apps.iter().map(|a| vec![Vec::new(); a.lines.len()]).collect(),
+            app_line_p: net.apps[..n].iter().map(|a| vec![Vec::new(); a.lines.len()]).collect(),
             unmetered_p: Vec::new(),
         }
     }
@@ -56,7 +57,8 @@ pub struct Event {
     pub energy_j: f64,
 }
 
-/// Figures gathered along the way, for the manifest's summary.
+/// Figures gathered along the way, for the manifest's summary. Per-load
+/// vectors hold the appliances, then the unmetered loads.
 #[derive(Clone, Debug, Default)]
 pub struct Summary {
     pub app_energy_j: Vec<f64>,
@@ -88,7 +90,8 @@ pub fn simulate<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_r
     let k_int = s.steps_per_interval();
     let mut source = SourceVoltage::new(&s.home.source, dt, s.run.seed);
     let mut meter = MeterModel::new(&s.meter, lines, s.home.voltage_v, s.run.seed);
-    let mut chunk = Chunk { first_row: 0, readings: Readings::new(lines), truth: Truth::new(&net) };
+    let metered = s.appliances.len();
+    let mut chunk = Chunk { first_row: 0, readings: Readings::new(lines), truth: Truth::new(&net, metered) };
     let mut out = StepOut::new(n_apps);
 
     let mut pos = vec![0usize; n_apps];
@@ -183,7 +186,16 @@ pub fn simulate<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_r
             let kf = k_int as f64;
             meter.emit(&mut chunk.readings);
             let tr = &mut chunk.truth;
-            for k in 0..n_apps {
+            // Unmetered loads are in the meters; in truth only as their sum.
+            let mut unmetered = 0.0;
+            for k in metered..n_apps {
+                unmetered += sum_p[k] / kf;
+                sum_p[k] = 0.0;
+                sum_q[k] = 0.0;
+                sum_lp[k] = [0.0; 3];
+                occupancy[k * max_states..(k + 1) * max_states].iter_mut().for_each(|c| *c = 0);
+            }
+            for k in 0..metered {
                 tr.app_p[k].push((sum_p[k] / kf) as f32);
                 tr.app_q[k].push((sum_q[k] / kf) as f32);
                 for (j, &x) in net.apps[k].lines.iter().enumerate() {
@@ -203,7 +215,7 @@ pub fn simulate<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_r
                 sum_q[k] = 0.0;
                 sum_lp[k] = [0.0; 3];
             }
-            tr.unmetered_p.push(0.0);
+            tr.unmetered_p.push(unmetered as f32);
             let r = chunk.readings.rows() - 1;
             for x in 0..lines {
                 summary.line_peak_a[x] = summary.line_peak_a[x].max(chunk.readings.line_i[x][r] as f64);
@@ -221,6 +233,7 @@ pub fn simulate<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_r
         ev.end_step = total_steps;
         events.push(ev);
     }
+    events.retain(|e| e.app < metered);
     events.sort_by_key(|e| (e.app, e.start_step));
     summary.line_energy_j = meter.line_energy_j;
     Ok(Outcome { events, summary })

@@ -40,7 +40,7 @@ pub fn figures(s: &Scenario) -> Figures {
     let steps = ((days * 86400.0) / s.run.step_s).round() as u64;
     let tl = timelines(s, steps);
     let mut apps = Vec::new();
-    for (a, t) in s.appliances.iter().zip(&tl) {
+    for (k, (a, t)) in s.loads().zip(&tl).enumerate() {
         let (mut e, mut on, mut peak) = (0.0, 0u64, 0.0f64);
         for seg in &t.segments {
             let p = a.states[seg.state as usize].p_w() * seg.scale as f64;
@@ -52,7 +52,7 @@ pub fn figures(s: &Scenario) -> Figures {
             peak = peak.max(p);
         }
         apps.push(AppFigures {
-            id: a.id.clone(),
+            id: if k < s.appliances.len() { a.id.clone() } else { format!("{} (unmetered)", a.id) },
             behaviour: a.behaviour.name(),
             wiring: a.connections().iter().map(|c| c.name()).collect::<Vec<_>>().join("+"),
             kwh_per_day: e / 3.6e6 / days,
@@ -62,7 +62,7 @@ pub fn figures(s: &Scenario) -> Figures {
     }
     let n = s.home.supply.lines();
     let mut peak_a = vec![0.0; n];
-    for a in &s.appliances {
+    for a in s.loads() {
         let mut worst = vec![0.0f64; n];
         for st in &a.states {
             for (x, p, q) in state_split(s, st) {

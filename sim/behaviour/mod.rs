@@ -101,11 +101,11 @@ pub fn timeline(app: &Appliance, clock: &Clock, seed: u64) -> Timeline {
     }
 }
 
-/// Timelines of every appliance of a scenario, with the run's clock.
+/// Timelines of every load of a scenario (appliances, then unmetered loads).
 pub fn timelines(s: &Scenario, steps: u64) -> Vec<Timeline> {
     let tz = jiff::tz::TimeZone::get(&s.home.timezone).expect("checked when parsed");
     let clock = Clock { steps, step_s: s.run.step_s, start_utc_ms: s.run.start_utc_ms, tz: &tz };
-    s.appliances.iter().map(|a| timeline(a, &clock, s.run.seed)).collect()
+    s.loads().map(|a| timeline(a, &clock, s.run.seed)).collect()
 }
 
 #[cfg(test)]

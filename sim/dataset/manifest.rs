@@ -106,6 +106,7 @@ pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: 
     };
     let days = s.run.length_s / 86400.0;
     let total_kwh: f64 = o.summary.app_energy_j.iter().sum::<f64>() / 3.6e6;
+    let unmetered_kwh: f64 = o.summary.app_energy_j[s.appliances.len()..].iter().sum::<f64>() / 3.6e6;
     let ll_kwh: f64 = s
         .appliances
         .iter()
@@ -139,6 +140,10 @@ pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: 
         "meter": s.meter,
         "faults": [],
         "appliances": s.appliances.iter().enumerate().map(|(k, a)| appliance_json(s, a, o, k)).collect::<Vec<_>>(),
+        "unmetered": s.unmetered.iter().enumerate().map(|(j, a)| {
+            let k = s.appliances.len() + j;
+            json!({ "id": a.id, "label": a.label, "behaviour": a.behaviour.name(), "connections": a.connections().iter().map(|c| c.name()).collect::<Vec<_>>(), "energy_kwh": o.summary.app_energy_j[k] / 3.6e6, "peak_w": o.summary.app_peak_w[k] })
+        }).collect::<Vec<_>>(),
         "columns": {
             "meters": columns_json(&tables.meters),
             "truth": columns_json(&tables.truth),
@@ -150,6 +155,7 @@ pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: 
             "energy_kwh": total_kwh,
             "energy_kwh_per_day": total_kwh / days,
             "line_to_line_energy_share": if total_kwh > 0.0 { ll_kwh / total_kwh } else { 0.0 },
+            "unmetered_energy_share": if total_kwh > 0.0 { unmetered_kwh / total_kwh } else { 0.0 },
             "conductor_energy_kwh": (0..lines).map(|x| (line_name(x), json!(o.summary.line_energy_j[x] / 3.6e6))).collect::<Map<_, _>>(),
             "conductor_peak_current_a": (0..lines).map(|x| (line_name(x), json!(o.summary.line_peak_a[x]))).chain(std::iter::once(("n".to_string(), json!(o.summary.neutral_peak_a)))).collect::<Map<_, _>>(),
             "events": o.events.len(),

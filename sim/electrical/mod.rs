@@ -71,8 +71,7 @@ pub fn nominal_phasors(home: &Home) -> [C64; 3] {
 impl Network {
     pub fn new(s: &Scenario) -> Network {
         let apps = s
-            .appliances
-            .iter()
+            .loads()
             .map(|a| AppModel {
                 states: a
                     .states

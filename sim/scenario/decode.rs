@@ -45,9 +45,11 @@ fn library_dirs(path: &Path, root: &Node, sources: &Sources) -> Result<Vec<PathB
 
 fn collect_templates(root: &Node, dirs: &[PathBuf], sources: &mut Sources, out: &mut Vec<(String, usize, Node)>) -> Result<(), Error> {
     let Val::Table(entries) = &root.v else { return Ok(()) };
-    let Some(apps) = entries.iter().find(|e| e.key == "appliance") else { return Ok(()) };
-    let Val::Arr(list) = &apps.node.v else { return Ok(()) };
-    for (i, app) in list.iter().enumerate() {
+    let lists = entries.iter().filter(|e| e.key == "appliance" || e.key == "unmetered");
+    for (key, app, i) in lists.flat_map(|e| match &e.node.v {
+        Val::Arr(list) => list.iter().enumerate().map(|(i, a)| (e.key.as_str(), a, i)).collect::<Vec<_>>(),
+        _ => vec![],
+    }) {
         let Val::Table(fields) = &app.v else { continue };
         let Some(t) = fields.iter().find(|e| e.key == "template") else { continue };
         let Val::Str(name) = &t.node.v else { continue };
@@ -67,7 +69,7 @@ fn collect_templates(root: &Node, dirs: &[PathBuf], sources: &mut Sources, out: 
                     let ctx = Ctx { sources };
                     return Err(ctx.err(
                         &t.node,
-                        &format!("appliance[{i}].template"),
+                        &format!("{key}[{i}].template"),
                         format!("no template named \"{name}\""),
                         format!("templates built in: {}; or put {name}.toml in {}", library::names().join(", "), dirs[0].display()),
                     ));
@@ -110,13 +112,27 @@ fn decode(ctx: &Ctx, root: &Node, name: String, templates: &[(String, usize, Nod
         None => Meter { interval_s: run.step_s, noise_relative: 0.0, noise_floor_w: 0.0, resolution_w: 0.0 },
     };
     let apps_node = top.req("appliance", "one [[appliance]] section per appliance")?;
-    let list = ctx.array(apps_node, "appliance")?;
-    if list.is_empty() {
+    if ctx.array(apps_node, "appliance")?.is_empty() {
         return Err(ctx.err(apps_node, "appliance", "a home needs at least one appliance", "add an [[appliance]] section"));
     }
     let mut appliances: Vec<Appliance> = Vec::new();
+    decode_list(ctx, apps_node, "appliance", &home, templates, &mut appliances)?;
+    // Unmetered loads: in the meters' aggregate, in truth only as their sum
+    // `unmetered_p_w`; the same language as appliances.
+    let metered = appliances.len();
+    if let Some(n) = top.opt("unmetered") {
+        decode_list(ctx, n, "unmetered", &home, templates, &mut appliances)?;
+    }
+    let unmetered = appliances.split_off(metered);
+    top.finish()?;
+    Ok(Scenario { name, home, run, meter, appliances, unmetered })
+}
+
+/// Decodes the `[[key]]` list into `out`; ids must be unique across all of `out`.
+fn decode_list(ctx: &Ctx, list_node: &Node, key: &str, home: &Home, templates: &[(String, usize, Node)], out: &mut Vec<Appliance>) -> Result<(), Error> {
+    let list = ctx.array(list_node, key)?;
     for (i, node) in list.iter().enumerate() {
-        let path = format!("appliance[{i}]");
+        let path = format!("{key}[{i}]");
         let merged;
         let mut node = node;
         let mut template = None;
@@ -133,15 +149,14 @@ fn decode(ctx: &Ctx, root: &Node, name: String, templates: &[(String, usize, Nod
                 }
             }
         }
-        let app = decode_appliance(ctx, node, &path, &home, template)?;
-        if let Some(prev) = appliances.iter().position(|a| a.id == app.id) {
+        let app = decode_appliance(ctx, node, &path, home, template)?;
+        if let Some(prev) = out.iter().position(|a| a.id == app.id) {
             let id_node = ctx.table(node, &path)?.opt("id").unwrap_or(node);
-            return Err(ctx.err(id_node, &format!("{path}.id"), format!("id \"{}\" is already used by appliance[{prev}]", app.id), "give every appliance its own id"));
+            return Err(ctx.err(id_node, &format!("{path}.id"), format!("id \"{}\" is already used by load {prev}", app.id), "give every appliance and unmetered load its own id"));
         }
-        appliances.push(app);
+        out.push(app);
     }
-    top.finish()?;
-    Ok(Scenario { name, home, run, meter, appliances })
+    Ok(())
 }
 
 fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {

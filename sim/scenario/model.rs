@@ -345,9 +345,15 @@ pub struct Scenario {
     pub run: Run,
     pub meter: Meter,
     pub appliances: Vec<Appliance>,
+    /// Loads nobody listed: in the meters, in truth only as `unmetered_p_w`.
+    pub unmetered: Vec<Appliance>,
 }
 
 impl Scenario {
+    /// Every load the simulator drives: the appliances, then the unmetered ones.
+    pub fn loads(&self) -> impl Iterator<Item = &Appliance> {
+        self.appliances.iter().chain(&self.unmetered)
+    }
     pub fn steps_per_interval(&self) -> u64 {
         (self.meter.interval_s / self.run.step_s).round() as u64
     }

@@ -130,3 +130,37 @@ def test_every_ready_scenario_writes_a_valid_dataset(simulate, path):
     d = simulate(path=path, extra=("--length", "1d"))
     m = check_dataset(d)
     assert len(m["appliances"]) >= 15
+
+
+def test_unmetered_loads_are_in_the_meters_and_only_summed_in_truth(simulate):
+    text = home("split") + """
+[[unmetered]]
+id = "garage_freezer"
+wiring = "L2-N"
+behaviour = "cycle"
+load = "electronic"
+states = [ { name = "off", power = "0 W", dwell = "7 min" }, { name = "on", power = "150 W", dwell = "5 min" } ]
+
+[[unmetered]]
+id = "pond_pump"
+wiring = "L1-N"
+behaviour = "steady"
+load = "electronic"
+states = [ { power = "60 W" } ]
+"""
+    d = simulate(text, name="unmetered")
+    m = check_dataset(d)
+    truth = pq.read_table(d / "truth.parquet").to_pandas()
+    meters = pq.read_table(d / "meters.parquet").to_pandas()
+    assert not any(c.startswith(("garage_freezer", "pond_pump")) for c in truth.columns)
+    assert [u["id"] for u in m["unmetered"]] == ["garage_freezer", "pond_pump"]
+    u = truth["unmetered_p_w"].astype(float)
+    # Constant-power loads: 60 W always, 210 W with the freezer running.
+    assert u.min() >= 60 - 1e-3 and u.max() > 150
+    listed = sum(truth[f"{a['id']}_p_w"].astype(float) for a in m["appliances"])
+    # Conservation with the noise of the meter (0.2 % + 1 W per line).
+    resid = meters["total_p_w"].astype(float) - listed - u
+    assert abs(resid.mean()) < 1.0 and resid.abs().max() < 0.01 * meters["total_p_w"].max() + 10
+    share = u.sum() / (listed.sum() + u.sum())
+    assert abs(m["summary"]["unmetered_energy_share"] - share) < 1e-3
+    assert not (pq.read_table(d / "events.parquet").to_pandas()["appliance"].isin(["garage_freezer", "pond_pump"])).any()

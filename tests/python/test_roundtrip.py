@@ -82,9 +82,16 @@ def test_suite_prints_how_scores_degrade(tmp_path):
     r = json.loads(p.stdout)
     assert r["format"] == "loadloom-suite/1"
     rungs = [x["rung"] for x in r["rows"]]
-    assert rungs == ["as written", "noise 1 % + 5 W", "noise 3 % + 15 W", "interval 10 s", "interval 1 min"]
+    assert rungs == ["as written", "noise 1 % + 5 W", "noise 3 % + 15 W", "unmetered 20 %", "interval 10 s", "interval 1 min"]
     acc = [x["overall"]["accuracy"] for x in r["rows"]]
-    # Much more meter noise cannot make a combinatorial solver better.
-    assert acc[2] <= acc[0] + 1e-9
+    # Much more meter noise, or a fifth of the energy unlisted, cannot make a
+    # combinatorial solver better.
+    assert acc[2] <= acc[0] + 0.01 and acc[3] < acc[0] - 0.02
+    # Each rung keeps its own folder; the unmetered rung's background draws
+    # about a fifth of the energy.
+    suite = tmp_path / "three-phase-house-suite"
+    m = json.loads((suite / "unmetered-20" / "three-phase-house" / "manifest.json").read_text())
+    assert abs(m["summary"]["unmetered_energy_share"] - 0.2) < 0.06, m["summary"]
+    assert json.loads((suite / "interval-1-min" / "three-phase-house" / "manifest.json").read_text())["meter"]["interval_s"] == 60
     text = loadloom("roundtrip", demo, "--suite", "--solver", "builtin:mean", "--train", "1d", "--test", "1d", "--out", tmp_path).stdout
     assert "accuracy vs as written" in text and "interval 1 min" in text
