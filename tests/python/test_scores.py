@@ -204,3 +204,28 @@ def test_partial_scores_only_the_given_appliances(data, tmp_path):
     f = _write(est, tmp_path / "part.parquet")
     r = score(d, f, "--partial")
     assert [a["id"] for a in r["appliances"]] == ["kettle", "fridge"]
+
+
+def test_per_conductor_columns_and_on_states(data, tmp_path):
+    d, m, truth = data
+    est = noisy_estimate(m, truth)
+    # The oven sits on L2-L3 of a wye: per-conductor truth splits it by the
+    # two-wattmeter relation; give the exact split for L2, a biased one for L3.
+    est["oven_l2_p_w"] = truth["oven_l2_p_w"].astype(float)
+    est["oven_l3_p_w"] = truth["oven_l3_p_w"].astype(float) + 10.0
+    # An on-state column replaces "estimate above threshold" for the kettle.
+    on = (truth["kettle_p_w"].astype(float) > 0.5 * 2200).astype(int)
+    est["kettle_on"] = on
+    r = score(d, _write(est, tmp_path / "cond.parquet"))
+    oven = next(a for a in r["appliances"] if a["id"] == "oven")
+    c = {x["conductor"]: x for x in oven["conductors"]}
+    assert c["l2"]["mae_w"] == 0 and c["l2"]["nde"] == 0
+    assert c["l3"]["mae_w"] == pytest.approx(10.0, rel=1e-6)
+    kettle = next(a for a in r["appliances"] if a["id"] == "kettle")
+    y_on = truth["kettle_p_w"].astype(float) > kettle["on_threshold_w"]
+    p, rc, f, _ = precision_recall_fscore_support(y_on, on.astype(bool), average="binary", zero_division=0)
+    assert kettle["f1"] == pytest.approx(f, rel=1e-12) and kettle["precision"] == pytest.approx(p, rel=1e-12)
+    # A per-conductor column on a line the appliance does not draw from is refused.
+    est["kettle_l3_p_w"] = 0.0
+    p = score(d, _write(est, tmp_path / "bad.parquet"), check=False)
+    assert p.returncode == 2 and "draws nothing on l3" in p.stderr
