@@ -3,14 +3,21 @@
 //! the interval; then noise (relative + floor, Gaussian) and quantisation are
 //! applied to each conductor's reading, and totals are the sums of the
 //! conductor readings, as a real monitor adds its channels.
+//!
+//! Faults (`[faults]`, recorded in the manifest) act where they would in a
+//! real monitor: CT gain, phase, reversal and placement on the current each
+//! step; a missing CT, exchanged channels and dropouts on the readings; a
+//! clock error on the time labels (see `dataset::tables`).
 
+use crate::behaviour::dist::sample;
 use crate::electrical::C64;
 use crate::rng::{stream, Stream};
-use crate::scenario::Meter;
+use crate::scenario::{Faults, Meter};
 use rand::Rng;
 use rand_distr::StandardNormal;
 
 /// Meter readings for a run of consecutive reporting intervals (columnar).
+/// A null reading is NaN here and null in the files.
 #[derive(Default)]
 pub struct Readings {
     pub line_p: Vec<Vec<f32>>,
@@ -20,6 +27,10 @@ pub struct Readings {
     pub n_i: Vec<f32>,
     pub total_p: Vec<f32>,
     pub total_q: Vec<f32>,
+    /// Cumulative energy register per line, Wh (with `faults.register`).
+    pub energy: Vec<Vec<f64>>,
+    /// False for intervals lost to a dropout.
+    pub present: Vec<bool>,
 }
 
 impl Readings {
@@ -29,6 +40,7 @@ impl Readings {
             line_q: vec![Vec::new(); lines],
             line_v: vec![Vec::new(); lines],
             line_i: vec![Vec::new(); lines],
+            energy: vec![Vec::new(); lines],
             ..Default::default()
         }
     }
@@ -39,16 +51,48 @@ impl Readings {
         for v in self.line_p.iter_mut().chain(&mut self.line_q).chain(&mut self.line_v).chain(&mut self.line_i) {
             v.clear();
         }
+        self.energy.iter_mut().for_each(Vec::clear);
         self.n_i.clear();
         self.total_p.clear();
         self.total_q.clear();
+        self.present.clear();
     }
+}
+
+/// Intervals lost to dropouts: (first row, rows), sorted, from the stream
+/// (seed, "meter", "dropouts"). Up-times are exponential with the mean that
+/// makes the expected lost share equal `rate`; gap lengths follow the
+/// declared distribution, rounded to whole intervals (at least one).
+pub fn dropout_gaps(faults: &Faults, interval_s: f64, rows: u64, seed: u64) -> Vec<(u64, u64)> {
+    let Some(d) = &faults.dropouts else { return Vec::new() };
+    if d.rate <= 0.0 {
+        return Vec::new();
+    }
+    let mut rng = stream(seed, "meter", "dropouts");
+    let mean_gap_rows = (d.length.mean_s() / interval_s).max(1.0);
+    let mean_up_rows = mean_gap_rows * (1.0 - d.rate) / d.rate;
+    let mut gaps = Vec::new();
+    // Positions in rows kept as reals and rounded, so rounding adds no bias.
+    let mut t = mean_up_rows * -(1.0 - rng.random::<f64>()).ln();
+    loop {
+        let start = t.round() as u64;
+        if start >= rows {
+            break;
+        }
+        let len = (((sample(&d.length, &mut rng) / interval_s).round() as u64).max(1)).min(rows - start);
+        gaps.push((start, len));
+        t = (start + len) as f64 + (mean_up_rows * -(1.0 - rng.random::<f64>()).ln()).max(1.0);
+    }
+    gaps
 }
 
 pub struct MeterModel {
     lines: usize,
     settings: Meter,
+    faults: Faults,
     nominal_v: f64,
+    /// Per line: (conductor whose current the CT sees, factor applied).
+    ct: [(usize, C64); 3],
     p: [f64; 3],
     q: [f64; 3],
     v2: [f64; 3],
@@ -56,14 +100,46 @@ pub struct MeterModel {
     n2: f64,
     count: u32,
     noise: Vec<Stream>,
-    /// Exact (noise-free) energy per line so far, J.
+    /// Exact (noise-free, fault-free) energy per line so far, J.
     pub line_energy_j: [f64; 3],
+    /// What the meter's register counts (after CT faults), J.
+    register_j: [f64; 3],
+    gaps: Vec<(u64, u64)>,
+    gap: usize,
+    row: u64,
 }
 
 impl MeterModel {
-    pub fn new(settings: &Meter, lines: usize, nominal_v: f64, seed: u64) -> Self {
+    pub fn new(settings: &Meter, faults: &Faults, lines: usize, nominal_v: f64, seed: u64, rows: u64) -> Self {
         let noise = (0..lines).map(|x| stream(seed, "meter", &format!("noise-l{}", x + 1))).collect();
-        MeterModel { lines, settings: settings.clone(), nominal_v, p: [0.0; 3], q: [0.0; 3], v2: [0.0; 3], i2: [0.0; 3], n2: 0.0, count: 0, noise, line_energy_j: [0.0; 3] }
+        let mut ct = [(0, C64::new(1.0, 0.0)), (1, C64::new(1.0, 0.0)), (2, C64::new(1.0, 0.0))];
+        for f in &faults.ct {
+            let sign = if f.reversed { -1.0 } else { 1.0 };
+            ct[f.line] = (f.on.unwrap_or(f.line), C64::polar(sign * (1.0 + f.gain), f.phase_deg));
+        }
+        MeterModel {
+            lines,
+            settings: settings.clone(),
+            faults: faults.clone(),
+            nominal_v,
+            ct,
+            p: [0.0; 3],
+            q: [0.0; 3],
+            v2: [0.0; 3],
+            i2: [0.0; 3],
+            n2: 0.0,
+            count: 0,
+            noise,
+            line_energy_j: [0.0; 3],
+            register_j: [0.0; 3],
+            gaps: dropout_gaps(faults, settings.interval_s, rows, seed),
+            gap: 0,
+            row: 0,
+        }
+    }
+
+    pub fn gaps(&self) -> &[(u64, u64)] {
+        &self.gaps
     }
 
     /// Adds one simulation step of terminal voltages and line currents.
@@ -71,12 +147,18 @@ impl MeterModel {
     pub fn add(&mut self, v: &[C64; 3], i: &[C64; 3], step_s: f64) {
         let mut n = C64::ZERO;
         for x in 0..self.lines {
-            let s = v[x] * i[x].conj();
+            let exact = v[x] * i[x].conj();
+            self.line_energy_j[x] += exact.re * step_s;
+            // What the CT of channel x delivers: the current of the conductor
+            // it is clamped on, with its gain, phase and orientation.
+            let (on, k) = self.ct[x];
+            let im = i[on] * k;
+            let s = v[x] * im.conj();
             self.p[x] += s.re;
             self.q[x] += s.im;
             self.v2[x] += v[x].norm_sqr();
-            self.i2[x] += i[x].norm_sqr();
-            self.line_energy_j[x] += s.re * step_s;
+            self.i2[x] += im.norm_sqr();
+            self.register_j[x] += s.re * step_s;
             n += i[x];
         }
         // Kirchhoff: the neutral returns minus the sum of the line currents.
@@ -105,33 +187,58 @@ impl MeterModel {
     /// Closes the interval and appends its readings.
     pub fn emit(&mut self, out: &mut Readings) {
         let k = self.count as f64;
-        let (mut tp, mut tq) = (0.0, 0.0);
         let floor_i = self.settings.noise_floor_w / self.nominal_v;
         let mut noise = std::mem::take(&mut self.noise);
+        let mut vals = [[0.0f64; 4]; 3];
         for x in 0..self.lines {
             let rng = &mut noise[x];
             let p = self.quantise(self.noisy(self.p[x] / k, self.settings.noise_floor_w, rng));
             let q = self.quantise(self.noisy(self.q[x] / k, self.settings.noise_floor_w, rng));
             let v = self.noisy((self.v2[x] / k).sqrt(), 0.0, rng);
             let i = self.noisy((self.i2[x] / k).sqrt(), floor_i, rng).abs();
-            out.line_p[x].push(p as f32);
-            out.line_q[x].push(q as f32);
-            out.line_v[x].push(v as f32);
-            out.line_i[x].push(i as f32);
-            tp += p;
-            tq += q;
+            vals[x] = [p, q, v, i];
         }
         let n = (self.n2 / k).sqrt();
         let n = self.noisy(n, floor_i, &mut noise[0]).abs();
         self.noise = noise;
-        out.n_i.push(n as f32);
-        out.total_p.push(tp as f32);
-        out.total_q.push(tq as f32);
+        let mut energy = [self.register_j[0] / 3600.0, self.register_j[1] / 3600.0, self.register_j[2] / 3600.0];
+        if let Some(x) = self.faults.no_ct {
+            vals[x] = [f64::NAN, f64::NAN, vals[x][2], f64::NAN];
+            energy[x] = f64::NAN;
+        }
+        if let Some((a, b)) = self.faults.swap {
+            vals.swap(a, b);
+            energy.swap(a, b);
+        }
+        // A dropout loses the whole interval.
+        while self.gap < self.gaps.len() && self.gaps[self.gap].0 + self.gaps[self.gap].1 <= self.row {
+            self.gap += 1;
+        }
+        let lost = self.gaps.get(self.gap).is_some_and(|&(a, l)| self.row >= a && self.row < a + l);
+        let (mut tp, mut tq) = (0.0, 0.0);
+        for x in 0..self.lines {
+            let [p, q, v, i] = if lost { [f64::NAN; 4] } else { vals[x] };
+            out.line_p[x].push(p as f32);
+            out.line_q[x].push(q as f32);
+            out.line_v[x].push(v as f32);
+            out.line_i[x].push(i as f32);
+            out.energy[x].push(if lost { f64::NAN } else { energy[x] });
+            // The total adds the channels that read something.
+            if !p.is_nan() {
+                tp += p;
+                tq += q;
+            }
+        }
+        out.n_i.push(if lost { f32::NAN } else { n as f32 });
+        out.total_p.push(if lost { f32::NAN } else { tp as f32 });
+        out.total_q.push(if lost { f32::NAN } else { tq as f32 });
+        out.present.push(!lost);
         self.p = [0.0; 3];
         self.q = [0.0; 3];
         self.v2 = [0.0; 3];
         self.i2 = [0.0; 3];
         self.n2 = 0.0;
         self.count = 0;
+        self.row += 1;
     }
 }

@@ -71,6 +71,8 @@ pub struct Summary {
 pub struct Outcome {
     pub events: Vec<Event>,
     pub summary: Summary,
+    /// Reporting intervals lost to dropouts: (first row, rows).
+    pub dropouts: Vec<(u64, u64)>,
 }
 
 /// Mean inrush multiple over step k after switch-on: the step average of
@@ -89,7 +91,7 @@ pub fn simulate<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_r
     let dt = s.run.step_s;
     let k_int = s.steps_per_interval();
     let mut source = SourceVoltage::new(&s.home.source, dt, s.run.seed);
-    let mut meter = MeterModel::new(&s.meter, lines, s.home.voltage_v, s.run.seed);
+    let mut meter = MeterModel::new(&s.meter, &s.faults, lines, s.home.voltage_v, s.run.seed, intervals);
     let metered = s.appliances.len();
     let mut chunk = Chunk { first_row: 0, readings: Readings::new(lines), truth: Truth::new(&net, metered) };
     let mut out = StepOut::new(n_apps);
@@ -236,7 +238,7 @@ pub fn simulate<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_r
     events.retain(|e| e.app < metered);
     events.sort_by_key(|e| (e.app, e.start_step));
     summary.line_energy_j = meter.line_energy_j;
-    Ok(Outcome { events, summary })
+    Ok(Outcome { events, summary, dropouts: meter.gaps().to_vec() })
 }
 
 #[cfg(test)]

@@ -15,6 +15,8 @@ pub enum Kind {
     Impedance,
     /// A share: `"2 %"` or a plain fraction such as `0.02`.
     Fraction,
+    /// An angle in degrees.
+    Angle,
 }
 
 impl Kind {
@@ -35,7 +37,8 @@ impl Kind {
                 ("w", 604800.0),
             ],
             Kind::Impedance => &[("ohm", 1.0), ("mohm", 1e-3), ("Ω", 1.0), ("mΩ", 1e-3)],
-            Kind::Fraction => &[("%", 0.01)],
+            Kind::Fraction => &[("%", 0.01), ("ppm", 1e-6)],
+            Kind::Angle => &[("deg", 1.0), ("°", 1.0)],
         }
     }
 
@@ -49,7 +52,8 @@ impl Kind {
             Kind::Frequency => "a frequency such as \"60 Hz\"",
             Kind::Duration => "a duration such as \"90 s\", \"13 min\", \"2 h\" or \"7 d\"",
             Kind::Impedance => "an impedance such as \"0.05 ohm\" or \"40 mohm\"",
-            Kind::Fraction => "a share such as \"2 %\" or a fraction such as 0.02",
+            Kind::Fraction => "a share such as \"2 %\", \"20 ppm\" or a fraction such as 0.02",
+            Kind::Angle => "an angle such as \"1.5 deg\"",
         }
     }
 
@@ -63,6 +67,7 @@ impl Kind {
             Kind::Duration => "duration",
             Kind::Impedance => "impedance",
             Kind::Fraction => "share",
+            Kind::Angle => "angle",
         }
     }
 }

@@ -91,6 +91,36 @@ fn columns_json(cols: &[Col]) -> Value {
     Value::Array(cols.iter().map(|c| json!({ "name": c.name, "unit": c.unit })).collect())
 }
 
+/// The faults of the scenario as records, with what the dropouts realised.
+fn faults_json(s: &Scenario, tables: &Tables, o: &Outcome) -> Value {
+    let f = &s.faults;
+    let mut v = Vec::new();
+    for c in &f.ct {
+        v.push(json!({ "kind": "ct", "conductor": line_name(c.line), "gain": c.gain, "phase_deg": c.phase_deg, "reversed": c.reversed, "clamped_on": c.on.map(line_name) }));
+    }
+    if let Some((a, b)) = f.swap {
+        v.push(json!({ "kind": "swap", "conductors": [line_name(a), line_name(b)], "effect": "every column of one line appears under the other's name" }));
+    }
+    if let Some(x) = f.no_ct {
+        v.push(json!({ "kind": "no_ct", "conductor": line_name(x), "effect": "P, Q and I of this line are null; totals lack it" }));
+    }
+    if let Some(d) = &f.dropouts {
+        let lost: u64 = o.dropouts.iter().map(|g| g.1).sum();
+        v.push(json!({
+            "kind": "dropouts", "rate": d.rate, "length": d.length, "form": d.mode,
+            "gaps": o.dropouts.len(), "rows_lost": lost, "share_lost": lost as f64 / s.intervals().max(1) as f64,
+            "intervals": o.dropouts.iter().map(|&(r, n)| json!({ "first_row": r, "rows": n, "start_ms": tables.row_time_ms(r) })).collect::<Vec<_>>(),
+        }));
+    }
+    if f.clock_offset_s != 0.0 || f.clock_drift != 0.0 {
+        v.push(json!({ "kind": "clock", "offset_s": f.clock_offset_s, "drift": f.clock_drift, "effect": "meters.time = true time + offset + drift × elapsed; truth keeps the true time" }));
+    }
+    if f.register {
+        v.push(json!({ "kind": "register", "effect": "cumulative energy per line, Wh, as the meter counts it (after CT faults)" }));
+    }
+    Value::Array(v)
+}
+
 pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: &[(&str, u64)], dir: &Path) -> io::Result<Value> {
     let lines = s.home.supply.lines();
     let mut file_map = Map::new();
@@ -138,7 +168,7 @@ pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: 
             "row_time": "start of the reporting interval",
         },
         "meter": s.meter,
-        "faults": [],
+        "faults": faults_json(s, tables, o),
         "appliances": s.appliances.iter().enumerate().map(|(k, a)| appliance_json(s, a, o, k)).collect::<Vec<_>>(),
         "unmetered": s.unmetered.iter().enumerate().map(|(j, a)| {
             let k = s.appliances.len() + j;

@@ -24,10 +24,16 @@ pub struct Col {
     pub name: String,
     pub unit: &'static str,
     pub kind: ColKind,
+    /// Meter readings may be null (dropouts, a line without CT).
+    pub nullable: bool,
 }
 
 fn col(name: impl Into<String>, unit: &'static str, kind: ColKind) -> Col {
-    Col { name: name.into(), unit, kind }
+    Col { name: name.into(), unit, kind, nullable: false }
+}
+
+fn reading(name: impl Into<String>, unit: &'static str, kind: ColKind) -> Col {
+    Col { name: name.into(), unit, kind, nullable: true }
 }
 
 pub fn line_name(x: usize) -> String {
@@ -39,14 +45,19 @@ pub fn meters(s: &Scenario) -> Vec<Col> {
     let mut c = vec![col("time", "ms", ColKind::Time)];
     for x in 0..s.home.supply.lines() {
         let l = line_name(x);
-        c.push(col(format!("{l}_p_w"), "W", ColKind::F32));
-        c.push(col(format!("{l}_q_var"), "var", ColKind::F32));
-        c.push(col(format!("{l}_v_v"), "V", ColKind::F32));
-        c.push(col(format!("{l}_i_a"), "A", ColKind::F32));
+        c.push(reading(format!("{l}_p_w"), "W", ColKind::F32));
+        c.push(reading(format!("{l}_q_var"), "var", ColKind::F32));
+        c.push(reading(format!("{l}_v_v"), "V", ColKind::F32));
+        c.push(reading(format!("{l}_i_a"), "A", ColKind::F32));
     }
-    c.push(col("n_i_a", "A", ColKind::F32));
-    c.push(col("total_p_w", "W", ColKind::F32));
-    c.push(col("total_q_var", "var", ColKind::F32));
+    c.push(reading("n_i_a", "A", ColKind::F32));
+    c.push(reading("total_p_w", "W", ColKind::F32));
+    c.push(reading("total_q_var", "var", ColKind::F32));
+    if s.faults.register {
+        for x in 0..s.home.supply.lines() {
+            c.push(reading(format!("{}_energy_wh", line_name(x)), "Wh", ColKind::F64));
+        }
+    }
     c
 }
 
@@ -89,8 +100,7 @@ pub fn arrow_schema(cols: &[Col], timezone: &str) -> Arc<Schema> {
                 ColKind::Dict => DataType::Dictionary(Box::new(DataType::Int16), Box::new(DataType::Utf8)),
                 ColKind::Str => DataType::Utf8,
             };
-            let nullable = false;
-            Field::new(&c.name, dt, nullable).with_metadata(HashMap::from([("unit".to_string(), c.unit.to_string())]))
+            Field::new(&c.name, dt, c.nullable).with_metadata(HashMap::from([("unit".to_string(), c.unit.to_string())]))
         })
         .collect();
     Arc::new(Schema::new(fields))

@@ -93,6 +93,10 @@ fn write_csv(out: &mut BufWriter<File>, tz: &jiff::tz::TimeZone, b: &RecordBatch
             if j > 0 {
                 out.write_all(b",")?;
             }
+            // A null reading is an empty cell.
+            if c.is_null(r) {
+                continue;
+            }
             match c.data_type() {
                 DataType::Timestamp(_, _) => {
                     let ms = c.as_primitive::<TimestampMillisecondType>().value(r);

@@ -20,12 +20,24 @@ pub struct Tables {
     interval_ms: i64,
     start_ms: i64,
     step_ms: i64,
+    clock_offset_s: f64,
+    clock_drift: f64,
+    drop_rows: bool,
     state_names: Vec<ArrayRef>,
     app_ids: ArrayRef,
 }
 
 fn f32s(v: &[f32]) -> ArrayRef {
     Arc::new(Float32Array::from(v.to_vec()))
+}
+
+/// Readings: NaN stands for null.
+fn f32_readings(v: &[f32], keep: &[bool]) -> ArrayRef {
+    Arc::new(v.iter().zip(keep).filter(|(_, k)| **k).map(|(x, _)| (!x.is_nan()).then_some(*x)).collect::<Float32Array>())
+}
+
+fn f64_readings(v: &[f64], keep: &[bool]) -> ArrayRef {
+    Arc::new(v.iter().zip(keep).filter(|(_, k)| **k).map(|(x, _)| (!x.is_nan()).then_some(*x)).collect::<Float64Array>())
 }
 
 impl Tables {
@@ -43,6 +55,9 @@ impl Tables {
             interval_ms: (s.meter.interval_s * 1000.0).round() as i64,
             start_ms: s.run.start_utc_ms,
             step_ms: (s.run.step_s * 1000.0).round() as i64,
+            clock_offset_s: s.faults.clock_offset_s,
+            clock_drift: s.faults.clock_drift,
+            drop_rows: s.faults.dropouts.as_ref().is_some_and(|d| d.mode == crate::scenario::DropMode::Missing),
             state_names: s
                 .appliances
                 .iter()
@@ -61,17 +76,31 @@ impl Tables {
         self.start_ms + row as i64 * self.interval_ms
     }
 
+    /// The meter's label for row `row`: its clock's offset and drift added.
+    pub fn meter_time_ms(&self, row: u64) -> i64 {
+        let elapsed_s = row as f64 * self.interval_ms as f64 / 1000.0;
+        self.row_time_ms(row) + ((self.clock_offset_s + self.clock_drift * elapsed_s) * 1000.0).round() as i64
+    }
+
     pub fn step_time_ms(&self, step: u64) -> i64 {
         self.start_ms + step as i64 * self.step_ms
     }
 
     pub fn meters_batch(&self, c: &Chunk) -> RecordBatch {
         let r = &c.readings;
-        let mut cols = vec![self.times((0..r.rows() as u64).map(|i| self.row_time_ms(c.first_row + i)))];
+        // Rows lost to a dropout in the "missing" form are left out.
+        let keep: Vec<bool> = if self.drop_rows { r.present.clone() } else { vec![true; r.rows()] };
+        let times = (0..r.rows() as u64).filter(|&i| keep[i as usize]).map(|i| self.meter_time_ms(c.first_row + i));
+        let mut cols = vec![self.times(times)];
         for x in 0..r.line_p.len() {
-            cols.extend([f32s(&r.line_p[x]), f32s(&r.line_q[x]), f32s(&r.line_v[x]), f32s(&r.line_i[x])]);
+            cols.extend([f32_readings(&r.line_p[x], &keep), f32_readings(&r.line_q[x], &keep), f32_readings(&r.line_v[x], &keep), f32_readings(&r.line_i[x], &keep)]);
         }
-        cols.extend([f32s(&r.n_i), f32s(&r.total_p), f32s(&r.total_q)]);
+        cols.extend([f32_readings(&r.n_i, &keep), f32_readings(&r.total_p, &keep), f32_readings(&r.total_q, &keep)]);
+        if self.meters.iter().any(|c| c.name.ends_with("_energy_wh")) {
+            for e in &r.energy {
+                cols.push(f64_readings(e, &keep));
+            }
+        }
         RecordBatch::try_new(self.meters_schema.clone(), cols).expect("columns follow the meters schema")
     }
 

@@ -124,8 +124,12 @@ fn decode(ctx: &Ctx, root: &Node, name: String, templates: &[(String, usize, Nod
         decode_list(ctx, n, "unmetered", &home, templates, &mut appliances)?;
     }
     let unmetered = appliances.split_off(metered);
+    let faults = match top.opt("faults") {
+        Some(n) => decode_faults(ctx, n, &home, &meter)?,
+        None => Faults::default(),
+    };
     top.finish()?;
-    Ok(Scenario { name, home, run, meter, appliances, unmetered })
+    Ok(Scenario { name, home, run, meter, appliances, unmetered, faults })
 }
 
 /// Decodes the `[[key]]` list into `out`; ids must be unique across all of `out`.
@@ -279,6 +283,108 @@ fn decode_meter(ctx: &Ctx, node: &Node, run: &Run) -> Result<Meter, Error> {
     let resolution_w = t.non_negative("resolution", Kind::Power)?.unwrap_or(0.0);
     t.finish()?;
     Ok(Meter { interval_s, noise_relative: rel, noise_floor_w: floor, resolution_w })
+}
+
+/// A line of the supply, `L1` … `L3`, as an index.
+fn parse_line(ctx: &Ctx, node: &Node, path: &str, supply: SupplyKind) -> Result<usize, Error> {
+    let text = ctx.string(node, path)?;
+    let lines: Vec<String> = (0..supply.lines()).map(|x| format!("L{}", x + 1)).collect();
+    lines.iter().position(|l| l == text).ok_or_else(|| {
+        ctx.err(node, path, format!("\"{text}\" is not a line of this {} supply", supply.name()), format!("write one of {}", lines.join(", ")))
+    })
+}
+
+fn decode_faults(ctx: &Ctx, node: &Node, home: &Home, meter: &Meter) -> Result<Faults, Error> {
+    let t = ctx.table(node, "faults")?;
+    let supply = home.supply;
+    let mut f = Faults::default();
+    if let Some(list) = t.opt("ct") {
+        for (i, n) in ctx.array(list, "faults.ct")?.iter().enumerate() {
+            let path = format!("faults.ct[{i}]");
+            let c = ctx.table(n, &path)?;
+            let line = parse_line(ctx, c.req("conductor", "the channel's line, e.g. \"L1\"")?, &c.path_of("conductor"), supply)?;
+            let gain = c.quantity("gain", Kind::Fraction)?.unwrap_or(0.0);
+            if gain.abs() > 0.5 {
+                return Err(ctx.err(c.opt("gain").unwrap(), &c.path_of("gain"), format!("a gain error of {:.0} % is not a CT that works", gain * 100.0), "write an error within ±50 %, e.g. gain = \"1.5 %\""));
+            }
+            let phase_deg = c.quantity("phase", Kind::Angle)?.unwrap_or(0.0);
+            if phase_deg.abs() > 30.0 {
+                return Err(ctx.err(c.opt("phase").unwrap(), &c.path_of("phase"), format!("a phase error of {phase_deg} deg is outside ±30 deg"), "write e.g. phase = \"1.2 deg\""));
+            }
+            let reversed = match c.opt("reversed") {
+                Some(n) => match n.v {
+                    Val::Bool(b) => b,
+                    _ => return Err(ctx.err(n, &c.path_of("reversed"), "expected true or false", "write reversed = true")),
+                },
+                None => false,
+            };
+            let on = match c.opt("on") {
+                Some(n) => {
+                    let x = parse_line(ctx, n, &c.path_of("on"), supply)?;
+                    if x == line {
+                        return Err(ctx.err(n, &c.path_of("on"), "the CT is on its own conductor", "name another line, or leave `on` out"));
+                    }
+                    Some(x)
+                }
+                None => None,
+            };
+            c.finish()?;
+            if f.ct.iter().any(|x| x.line == line) {
+                return Err(ctx.err(n, &path, "this channel already has a CT fault", "give each channel one entry"));
+            }
+            f.ct.push(CtFault { line, gain, phase_deg, reversed, on });
+        }
+    }
+    if let Some(n) = t.opt("swap") {
+        let l = ctx.array(n, "faults.swap")?;
+        if l.len() != 2 {
+            return Err(ctx.err(n, "faults.swap", "a swap names two lines", "write swap = [\"L1\", \"L2\"]"));
+        }
+        let (a, b) = (parse_line(ctx, &l[0], "faults.swap[0]", supply)?, parse_line(ctx, &l[1], "faults.swap[1]", supply)?);
+        if a == b {
+            return Err(ctx.err(n, "faults.swap", "a line cannot be swapped with itself", "name two different lines"));
+        }
+        f.swap = Some((a.min(b), a.max(b)));
+    }
+    if let Some(n) = t.opt("no_ct") {
+        f.no_ct = Some(parse_line(ctx, n, "faults.no_ct", supply)?);
+    }
+    if let Some(n) = t.opt("dropouts") {
+        let d = ctx.table(n, "faults.dropouts")?;
+        let rn = d.req("rate", "the share of intervals lost, e.g. \"1 %\"")?;
+        let rate = ctx.quantity(rn, "faults.dropouts.rate", Kind::Fraction)?;
+        if !(0.0..=0.5).contains(&rate) {
+            return Err(ctx.err(rn, "faults.dropouts.rate", format!("a dropout rate of {} % is outside 0 … 50 %", rate * 100.0), "write e.g. rate = \"1 %\""));
+        }
+        let length = match d.opt("length") {
+            Some(n) => decode_dist(ctx, n, "faults.dropouts.length")?,
+            None => Dist::Fixed { value_s: meter.interval_s },
+        };
+        let mode = match d.string("as")? {
+            None | Some("null") => DropMode::Null,
+            Some("missing") => DropMode::Missing,
+            Some(other) => return Err(ctx.err(d.opt("as").unwrap(), "faults.dropouts.as", format!("unknown dropout form \"{other}\""), "write as = \"null\" (rows kept, values null) or \"missing\" (rows absent)")),
+        };
+        d.finish()?;
+        f.dropouts = Some(Dropouts { rate, length, mode });
+    }
+    if let Some(n) = t.opt("clock") {
+        let c = ctx.table(n, "faults.clock")?;
+        f.clock_offset_s = c.quantity("offset", Kind::Duration)?.unwrap_or(0.0);
+        f.clock_drift = c.quantity("drift", Kind::Fraction)?.unwrap_or(0.0);
+        if f.clock_offset_s.abs() > 86400.0 || f.clock_drift.abs() > 0.01 {
+            return Err(ctx.err(n, "faults.clock", "a clock off by more than a day, or drifting by more than 1 %, is not a meter clock", "write e.g. clock = { offset = \"2.5 s\", drift = \"20 ppm\" }"));
+        }
+        c.finish()?;
+    }
+    if let Some(n) = t.opt("register") {
+        f.register = match n.v {
+            Val::Bool(b) => b,
+            _ => return Err(ctx.err(n, "faults.register", "expected true or false", "write register = true")),
+        };
+    }
+    t.finish()?;
+    Ok(f)
 }
 
 fn check_id(ctx: &Ctx, node: &Node, path: &str, id: &str) -> Result<(), Error> {

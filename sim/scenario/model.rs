@@ -338,6 +338,60 @@ pub struct Meter {
     pub resolution_w: f64,
 }
 
+/// A current transformer that misreads its conductor.
+#[derive(Clone, Debug, Serialize)]
+pub struct CtFault {
+    /// The monitor's channel (line index).
+    pub line: usize,
+    /// Relative gain error: reads I·(1 + gain).
+    pub gain: f64,
+    /// Phase-angle error, degrees: reads I rotated by this angle.
+    pub phase_deg: f64,
+    /// Clamped the wrong way round: reads −I.
+    pub reversed: bool,
+    /// Clamped on another conductor (line index) than its channel's.
+    pub on: Option<usize>,
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum DropMode {
+    /// Rows kept, meter values null.
+    Null,
+    /// Rows absent from the meters table (truth keeps every row).
+    Missing,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Dropouts {
+    /// Expected share of reporting intervals lost.
+    pub rate: f64,
+    pub length: Dist,
+    pub mode: DropMode,
+}
+
+/// Meter faults, each recorded in the manifest.
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct Faults {
+    pub ct: Vec<CtFault>,
+    /// Two channels exchanged (CT and voltage reference, or their labels).
+    pub swap: Option<(usize, usize)>,
+    /// A line with no CT: its P, Q and I are null; totals lack it.
+    pub no_ct: Option<usize>,
+    pub dropouts: Option<Dropouts>,
+    /// The meter's clock: offset (s) and drift (fraction, e.g. 20e-6).
+    pub clock_offset_s: f64,
+    pub clock_drift: f64,
+    /// Cumulative energy register per line, Wh.
+    pub register: bool,
+}
+
+impl Faults {
+    pub fn is_empty(&self) -> bool {
+        self.ct.is_empty() && self.swap.is_none() && self.no_ct.is_none() && self.dropouts.is_none() && self.clock_offset_s == 0.0 && self.clock_drift == 0.0 && !self.register
+    }
+}
+
 #[derive(Clone, Debug, Serialize)]
 pub struct Scenario {
     pub name: String,
@@ -347,6 +401,7 @@ pub struct Scenario {
     pub appliances: Vec<Appliance>,
     /// Loads nobody listed: in the meters, in truth only as `unmetered_p_w`.
     pub unmetered: Vec<Appliance>,
+    pub faults: Faults,
 }
 
 impl Scenario {
