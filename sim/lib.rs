@@ -16,3 +16,4 @@ pub mod simulate;
 pub mod dataset;
 pub mod summary;
 pub mod roundtrip;
+pub mod waveform;

@@ -46,6 +46,13 @@ enum Command {
         /// Table format.
         #[arg(long, value_enum, default_value = "parquet")]
         format: FormatArg,
+        /// Also write a waveform window, START/LENGTH in local time, e.g.
+        /// 2027-01-04T18:00/10s (repeatable).
+        #[arg(long, value_name = "START/LENGTH")]
+        waveform: Vec<String>,
+        /// Sample rate of the waveforms, e.g. 12.8kHz.
+        #[arg(long, value_name = "RATE")]
+        waveform_rate: Option<String>,
     },
     /// Score an estimate (Parquet or CSV, wide or long) against a dataset's truth.
     Score {
@@ -159,6 +166,32 @@ fn apply_length(s: &mut Scenario, text: &str) -> Result<(), String> {
         return Err(format!("{text} is not a whole number of reporting intervals ({per} s)"));
     }
     s.run.length_s = len;
+    Ok(())
+}
+
+/// `--waveform START/LENGTH` and `--waveform-rate`; also re-checks the
+/// scenario's own windows against a changed run length.
+fn apply_waveforms(s: &mut Scenario, windows: &[String], rate: Option<&str>) -> Result<(), String> {
+    if let Some(r) = rate {
+        let (num, unit) = match r.find(|c: char| c.is_ascii_alphabetic()) {
+            Some(i) => (r[..i].trim(), r[i..].trim()),
+            None => (r.trim(), ""),
+        };
+        let hz = parse_quantity(&format!("{num} {unit}"), Kind::Frequency).map_err(|m| format!("--waveform-rate {r}: {m}"))?;
+        scenario::decode::check_wave_rate(hz, &s.run, &s.home).map_err(|m| format!("--waveform-rate {r}: {m}"))?;
+        s.waveforms.rate_hz = hz;
+    }
+    for w in &s.waveforms.windows {
+        if w.offset_s + w.length_s > s.run.length_s + 1e-9 {
+            return Err(format!("the scenario's waveform window {} + {} s lies outside the run of {} s", w.start_local, w.length_s, s.run.length_s));
+        }
+    }
+    for text in windows {
+        let (start, len) = text.split_once('/').ok_or_else(|| format!("--waveform {text}: expected START/LENGTH"))?;
+        let len_s = cli_duration(len).map_err(|m| format!("--waveform {text}: {m}"))?;
+        let w = scenario::decode::place_window(start, len_s, &s.run, &s.home).map_err(|m| format!("--waveform {text}: {m}"))?;
+        s.waveforms.windows.push(w);
+    }
     Ok(())
 }
 
@@ -365,7 +398,7 @@ fn main() -> ExitCode {
             print!("{}", loadloom::summary::render(&s, &f));
             ExitCode::SUCCESS
         }
-        Command::Run { scenario, out, seed, length, format } => {
+        Command::Run { scenario, out, seed, length, format, waveform, waveform_rate } => {
             let mut s = match load(&scenario) {
                 Ok(s) => s,
                 Err(c) => return c,
@@ -378,6 +411,10 @@ fn main() -> ExitCode {
                     eprintln!("error: --length {l}: {m}\n  = help: write a duration such as 7d, 30d or \"12 h\" that the reporting interval divides");
                     return ExitCode::from(BAD_INPUT);
                 }
+            }
+            if let Err(m) = apply_waveforms(&mut s, &waveform, waveform_rate.as_deref()) {
+                eprintln!("error: {m}\n  = help: give --waveform START/LENGTH inside the run, e.g. {}/10s, and a rate such as 12.8kHz", s.run.start_local);
+                return ExitCode::from(BAD_INPUT);
             }
             let format = match format {
                 FormatArg::Parquet => Format::Parquet,

@@ -1,6 +1,6 @@
 //! The meter: what a whole-home monitor reports per reporting interval.
-//! P and Q are interval means (energy-consistent); V and I are true RMS over
-//! the interval; then noise (relative + floor, Gaussian) and quantisation are
+//! P and Q are interval means (energy-consistent); V and I are the RMS over
+//! the interval of their fundamental (harmonics live in the waveforms); then noise (relative + floor, Gaussian) and quantisation are
 //! applied to each conductor's reading, and totals are the sums of the
 //! conductor readings, as a real monitor adds its channels.
 //!

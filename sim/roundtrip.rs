@@ -48,7 +48,7 @@ pub fn add_background(s: &mut Scenario, share: f64) {
         let wiring = Connection::Pair(x as u8, NEUTRAL);
         let rated = target_w / n as f64 / 0.75;
         let k = LoadKind::Electronic;
-        let draw = Draw { wiring, p_w: rated, q_var: 0.2 * rated, load: k, zip_p: k.default_zip_p(), zip_q: k.default_zip_q(), nominal_v: connection_voltage(&s.home, wiring) };
+        let draw = Draw { wiring, p_w: rated, q_var: 0.2 * rated, load: k, zip_p: k.default_zip_p(), zip_q: k.default_zip_q(), nominal_v: connection_voltage(&s.home, wiring), harmonics: k.default_harmonics() };
         s.unmetered.push(Appliance {
             id: format!("background_l{}", x + 1),
             label: "unlisted background loads".into(),

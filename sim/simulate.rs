@@ -84,7 +84,12 @@ fn inrush_mult(peak: f64, tau: f64, k: u64, dt: f64) -> f64 {
 
 /// Runs the simulation over `intervals` reporting intervals, handing each
 /// chunk of at most `chunk_rows` rows to `sink`.
-pub fn simulate<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_rows: usize, mut sink: impl FnMut(&Chunk) -> Result<(), E>) -> Result<Outcome, E> {
+pub fn simulate<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_rows: usize, sink: impl FnMut(&Chunk) -> Result<(), E>) -> Result<Outcome, E> {
+    simulate_with(s, timelines, intervals, chunk_rows, sink, None)
+}
+
+/// [`simulate`], also writing the waveform windows to `recorder`.
+pub fn simulate_with<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_rows: usize, mut sink: impl FnMut(&Chunk) -> Result<(), E>, mut recorder: Option<&mut crate::waveform::Recorder>) -> Result<Outcome, E> {
     let net = Network::new(s);
     let n_apps = net.apps.len();
     let lines = net.lines;
@@ -166,6 +171,12 @@ pub fn simulate<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_r
             net.solve(&t, &active, &mut out);
             i_prev = out.i_line;
             t_prev = t;
+        }
+        if let Some(rec) = recorder.as_deref_mut() {
+            if rec.wants(step) {
+                let ir: Vec<_> = (0..n_apps).map(|k| inrush_from[k].and_then(|f| net.apps[k].inrush[state[k]].map(|i| (f, i)))).collect();
+                rec.record(step, &net, &t_prev, &state, &scale, &ir);
+            }
         }
         meter.add(&out.v_ln, &out.i_line, dt);
         for k in 0..n_apps {

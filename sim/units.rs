@@ -27,7 +27,7 @@ impl Kind {
             Kind::Reactive => &[("var", 1.0), ("kvar", 1e3), ("VAr", 1.0), ("kVAr", 1e3)],
             Kind::Voltage => &[("V", 1.0), ("kV", 1e3)],
             Kind::Current => &[("A", 1.0), ("mA", 1e-3)],
-            Kind::Frequency => &[("Hz", 1.0)],
+            Kind::Frequency => &[("Hz", 1.0), ("kHz", 1e3)],
             Kind::Duration => &[
                 ("ms", 1e-3),
                 ("s", 1.0),

@@ -35,7 +35,7 @@ pub fn state_split(s: &Scenario, st: &State) -> Vec<(usize, f64, f64)> {
     let e = nominal_phasors(&s.home);
     let mut per = [C64::ZERO; 3];
     for d in &st.draws {
-        for el in elems_of(d.wiring, d.p_w, d.q_var, d.zip_p, d.zip_q, d.nominal_v) {
+        for el in elems_of(d) {
             let ua = if el.a == NEUTRAL { C64::ZERO } else { e[el.a as usize] };
             let ub = if el.b == NEUTRAL { C64::ZERO } else { e[el.b as usize] };
             let i = (C64::new(el.p_w, el.q_var) / (ua - ub)).conj();
@@ -121,13 +121,17 @@ fn faults_json(s: &Scenario, tables: &Tables, o: &Outcome) -> Value {
     Value::Array(v)
 }
 
-pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: &[(&str, u64)], dir: &Path) -> io::Result<Value> {
+pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: &[(&str, u64)], waves: &[(String, Value)], dir: &Path) -> io::Result<Value> {
     let lines = s.home.supply.lines();
     let mut file_map = Map::new();
     for (name, rows) in files {
         let fname = format!("{name}.{}", format.ext());
         let path = dir.join(&fname);
         file_map.insert(fname, json!({ "rows": rows, "bytes": std::fs::metadata(&path)?.len(), "sha256": sha256_file(&path)? }));
+    }
+    for (name, w) in waves {
+        let path = dir.join(name);
+        file_map.insert(name.clone(), json!({ "frames": w["frames"], "bytes": std::fs::metadata(&path)?.len(), "sha256": sha256_file(&path)? }));
     }
     let ll_v = match s.home.supply {
         crate::scenario::SupplyKind::SplitPhase => 2.0 * s.home.voltage_v,
@@ -169,6 +173,7 @@ pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: 
         },
         "meter": s.meter,
         "faults": faults_json(s, tables, o),
+        "waveforms": waves.iter().map(|(_, w)| w.clone()).collect::<Vec<_>>(),
         "appliances": s.appliances.iter().enumerate().map(|(k, a)| appliance_json(s, a, o, k)).collect::<Vec<_>>(),
         "unmetered": s.unmetered.iter().enumerate().map(|(j, a)| {
             let k = s.appliances.len() + j;

@@ -10,7 +10,7 @@ pub mod tables;
 
 use crate::behaviour::timelines;
 use crate::scenario::Scenario;
-use crate::simulate::{simulate, Outcome};
+use crate::simulate::{simulate_with, Outcome};
 pub use sink::Format;
 use sink::Sink;
 use std::io;
@@ -70,21 +70,26 @@ fn write_into(s: &Scenario, dir: &Path, format: Format, progress: &mut dyn FnMut
     let mut meters = Sink::create(&dir.join(format!("meters.{ext}")), format, tables.meters_schema.clone(), tz)?;
     let mut truth = Sink::create(&dir.join(format!("truth.{ext}")), format, tables.truth_schema.clone(), tz)?;
     let mut meter_rows = 0u64;
-    let outcome = simulate(s, &tl, intervals, CHUNK_ROWS, |chunk| -> io::Result<()> {
+    let mut recorder = if s.waveforms.windows.is_empty() { None } else { Some(crate::waveform::Recorder::new(s, dir)?) };
+    let outcome = simulate_with(s, &tl, intervals, CHUNK_ROWS, |chunk| -> io::Result<()> {
         let batch = tables.meters_batch(chunk);
         meter_rows += batch.num_rows() as u64;
         meters.write(&batch)?;
         truth.write(&tables.truth_batch(chunk))?;
         progress((chunk.first_row + chunk.readings.rows() as u64) as f64 / intervals as f64);
         Ok(())
-    })?;
+    }, recorder.as_mut())?;
+    let waves = match recorder {
+        Some(r) => r.finish(s)?,
+        None => Vec::new(),
+    };
     meters.close()?;
     truth.close()?;
     let mut events = Sink::create(&dir.join(format!("events.{ext}")), format, tables.events_schema.clone(), tz)?;
     events.write(&tables.events_batch(s, &outcome.events, s.run.step_s))?;
     events.close()?;
     let files = [("meters", meter_rows), ("truth", intervals), ("events", outcome.events.len() as u64)];
-    let m = manifest::build(s, &tables, format, &outcome, &files, dir)?;
+    let m = manifest::build(s, &tables, format, &outcome, &files, &waves, dir)?;
     let text = serde_json::to_string_pretty(&m).map_err(io::Error::other)?;
     std::fs::write(dir.join("manifest.json"), text + "\n")?;
     Ok((intervals, outcome))

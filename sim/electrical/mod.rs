@@ -14,7 +14,7 @@
 pub mod complex;
 pub mod source;
 
-use crate::scenario::{Connection, Home, Inrush, Scenario, Zip, NEUTRAL};
+use crate::scenario::{Connection, Harmonic, Home, Inrush, Scenario, Zip, NEUTRAL};
 pub use complex::C64;
 
 /// One draw as the solver uses it. A three-phase draw is held as three
@@ -29,16 +29,16 @@ pub struct Elem {
     pub zip_p: Zip,
     pub zip_q: Zip,
     pub nominal_v: f64,
+    /// Harmonic signature of its current (used by the waveform writer only).
+    pub harmonics: Vec<Harmonic>,
 }
 
 /// Splits a draw into solver elements.
-pub fn elems_of(wiring: Connection, p_w: f64, q_var: f64, zip_p: Zip, zip_q: Zip, nominal_v: f64) -> Vec<Elem> {
-    match wiring {
-        Connection::Pair(a, b) => vec![Elem { a, b, p_w, q_var, zip_p, zip_q, nominal_v }],
-        Connection::ThreePhase => [(0u8, 1u8), (1, 2), (2, 0)]
-            .iter()
-            .map(|&(a, b)| Elem { a, b, p_w: p_w / 3.0, q_var: q_var / 3.0, zip_p, zip_q, nominal_v })
-            .collect(),
+pub fn elems_of(d: &crate::scenario::Draw) -> Vec<Elem> {
+    let el = |a, b, k: f64| Elem { a, b, p_w: d.p_w * k, q_var: d.q_var * k, zip_p: d.zip_p, zip_q: d.zip_q, nominal_v: d.nominal_v, harmonics: d.harmonics.clone() };
+    match d.wiring {
+        Connection::Pair(a, b) => vec![el(a, b, 1.0)],
+        Connection::ThreePhase => [(0u8, 1u8), (1, 2), (2, 0)].iter().map(|&(a, b)| el(a, b, 1.0 / 3.0)).collect(),
     }
 }
 
@@ -76,7 +76,7 @@ impl Network {
                 states: a
                     .states
                     .iter()
-                    .map(|st| st.draws.iter().flat_map(|d| elems_of(d.wiring, d.p_w, d.q_var, d.zip_p, d.zip_q, d.nominal_v)).collect())
+                    .map(|st| st.draws.iter().flat_map(elems_of).collect())
                     .collect(),
                 inrush: a.states.iter().map(|st| st.inrush).collect(),
                 lines: a.lines(),
@@ -101,7 +101,7 @@ pub struct Terminals {
 }
 
 impl Terminals {
-    fn at(&self, t: u8) -> C64 {
+    pub fn at(&self, t: u8) -> C64 {
         if t == NEUTRAL {
             self.u_n
         } else {

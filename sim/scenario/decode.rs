@@ -124,12 +124,16 @@ fn decode(ctx: &Ctx, root: &Node, name: String, templates: &[(String, usize, Nod
         decode_list(ctx, n, "unmetered", &home, templates, &mut appliances)?;
     }
     let unmetered = appliances.split_off(metered);
+    let waveforms = match top.opt("waveform") {
+        Some(n) => decode_waveforms(ctx, n, &home, &run)?,
+        None => Waveforms { rate_hz: DEFAULT_WAVE_RATE_HZ, windows: vec![] },
+    };
     let faults = match top.opt("faults") {
         Some(n) => decode_faults(ctx, n, &home, &meter)?,
         None => Faults::default(),
     };
     top.finish()?;
-    Ok(Scenario { name, home, run, meter, appliances, unmetered, faults })
+    Ok(Scenario { name, home, run, meter, appliances, unmetered, faults, waveforms })
 }
 
 /// Decodes the `[[key]]` list into `out`; ids must be unique across all of `out`.
@@ -283,6 +287,94 @@ fn decode_meter(ctx: &Ctx, node: &Node, run: &Run) -> Result<Meter, Error> {
     let resolution_w = t.non_negative("resolution", Kind::Power)?.unwrap_or(0.0);
     t.finish()?;
     Ok(Meter { interval_s, noise_relative: rel, noise_floor_w: floor, resolution_w })
+}
+
+pub const DEFAULT_WAVE_RATE_HZ: f64 = 12_800.0;
+
+/// Checks a waveform rate: whole samples per step, at least 20 per cycle.
+pub fn check_wave_rate(rate: f64, run: &Run, home: &Home) -> Result<(), String> {
+    let per_step = rate * run.step_s;
+    if (per_step.round() - per_step).abs() > 1e-6 || rate < 20.0 * home.frequency_hz || rate > 1e6 {
+        return Err(format!("{rate} Hz is not a usable waveform rate here: it needs a whole number of samples per {} s step and at least 20 per cycle, at most 1 MHz", run.step_s));
+    }
+    Ok(())
+}
+
+/// Places a waveform window (local start, length) in the run; None if outside.
+pub fn place_window(start_local: &str, length_s: f64, run: &Run, home: &Home) -> Result<WaveWindow, String> {
+    let civil: jiff::civil::DateTime = start_local.parse().map_err(|e| format!("\"{start_local}\" is not a local date-time ({e})"))?;
+    let tz = jiff::tz::TimeZone::get(&home.timezone).map_err(|e| e.to_string())?;
+    let ms = civil.to_zoned(tz).map_err(|e| e.to_string())?.timestamp().as_millisecond();
+    let offset_s = (ms - run.start_utc_ms) as f64 / 1000.0;
+    if offset_s < 0.0 || offset_s + length_s > run.length_s + 1e-9 {
+        return Err(format!("the window {start_local} + {length_s} s lies outside the run ({} for {} s)", run.start_local, run.length_s));
+    }
+    if ((offset_s / run.step_s).round() - offset_s / run.step_s).abs() > 1e-9 || ((length_s / run.step_s).round() - length_s / run.step_s).abs() > 1e-9 {
+        return Err(format!("the window must start and end on whole steps ({} s)", run.step_s));
+    }
+    if length_s <= 0.0 || length_s > 3600.0 {
+        return Err("a window is longer than zero and at most 1 h".into());
+    }
+    Ok(WaveWindow { start_local: start_local.to_string(), offset_s, length_s })
+}
+
+fn decode_waveforms(ctx: &Ctx, node: &Node, home: &Home, run: &Run) -> Result<Waveforms, Error> {
+    let t = ctx.table(node, "waveform")?;
+    let rate_hz = t.positive("rate", Kind::Frequency)?.unwrap_or(DEFAULT_WAVE_RATE_HZ);
+    check_wave_rate(rate_hz, run, home).map_err(|m| ctx.err(t.opt("rate").unwrap_or(node), "waveform.rate", m, "write e.g. rate = \"12.8 kHz\""))?;
+    let mut windows = Vec::new();
+    if let Some(list) = t.opt("windows") {
+        for (i, n) in ctx.array(list, "waveform.windows")?.iter().enumerate() {
+            let path = format!("waveform.windows[{i}]");
+            let w = ctx.table(n, &path)?;
+            let sn = w.req("start", "the local start time, e.g. \"2027-01-04T18:00\"")?;
+            let start = match &sn.v {
+                Val::Str(s) | Val::Date(s) => s.clone(),
+                _ => return Err(ctx.err(sn, &w.path_of("start"), "expected a local date-time", "write \"2027-01-04T18:00\"")),
+            };
+            let length = ctx.positive(w.req("length", "how long, e.g. \"10 s\"")?, &w.path_of("length"), Kind::Duration)?;
+            w.finish()?;
+            windows.push(place_window(&start, length, run, home).map_err(|m| ctx.err(n, &path, m, "choose a window inside the run"))?);
+        }
+    }
+    t.finish()?;
+    Ok(Waveforms { rate_hz, windows })
+}
+
+fn decode_harmonics(ctx: &Ctx, t: &Table, load: LoadKind) -> Result<Vec<Harmonic>, Error> {
+    let Some(n) = t.opt("harmonics") else { return Ok(load.default_harmonics()) };
+    let path = t.path_of("harmonics");
+    let help = "write a preset (\"resistive\", \"motor\", \"rectifier\", \"led\") or a list [ { order = 3, magnitude = \"80 %\", phase = \"180 deg\" }, … ]";
+    match &n.v {
+        Val::Str(s) => match s.as_str() {
+            "resistive" | "none" => Ok(vec![]),
+            "motor" => Ok(LoadKind::Motor.default_harmonics()),
+            "rectifier" | "electronic" => Ok(LoadKind::Electronic.default_harmonics()),
+            "led" | "lighting" => Ok(LoadKind::Lighting.default_harmonics()),
+            other => Err(ctx.err(n, &path, format!("unknown harmonic preset \"{other}\""), help)),
+        },
+        Val::Arr(list) => {
+            let mut out = Vec::new();
+            for (i, h) in list.iter().enumerate() {
+                let ht = ctx.table(h, &format!("{path}[{i}]"))?;
+                let on = ht.req("order", "an odd order, 3 … 49")?;
+                let order = match on.v {
+                    Val::Int(o) if o >= 3 && o <= 49 && o % 2 == 1 => o as u32,
+                    _ => return Err(ctx.err(on, &ht.path_of("order"), "the order must be an odd whole number from 3 to 49", help)),
+                };
+                let mn = ht.req("magnitude", "relative to the fundamental, e.g. \"80 %\"")?;
+                let magnitude = ctx.non_negative(mn, &ht.path_of("magnitude"), Kind::Fraction)?;
+                if magnitude > 2.0 {
+                    return Err(ctx.err(mn, &ht.path_of("magnitude"), "a harmonic above 200 % of the fundamental", help));
+                }
+                let phase_deg = ht.quantity("phase", Kind::Angle)?.unwrap_or(0.0);
+                ht.finish()?;
+                out.push(Harmonic { order, magnitude, phase_deg });
+            }
+            Ok(out)
+        }
+        _ => Err(ctx.err(n, &path, format!("expected a preset or a list, found {}", n.type_name()), help)),
+    }
 }
 
 /// A line of the supply, `L1` … `L3`, as an index.
@@ -521,6 +613,7 @@ fn decode_draw_fields(ctx: &Ctx, t: &Table, home: &Home, defaults: &DrawDefaults
         (None, None) => 0.0,
     };
     let nominal_v = connection_voltage(home, wiring);
+    let harmonics = decode_harmonics(ctx, t, load)?;
     // A draw rated at another voltage (a 240 V water heater on a 208 V
     // apartment's two lines) gives its power at that voltage; at this
     // connection's nominal voltage it draws what its ZIP model says.
@@ -530,13 +623,13 @@ fn decode_draw_fields(ctx: &Ctx, t: &Table, home: &Home, defaults: &DrawDefaults
         p_w *= zip_p.factor(u);
         q_var *= zip_q.factor(u);
     }
-    Ok(Draw { wiring, p_w, q_var, load, zip_p, zip_q, nominal_v })
+    Ok(Draw { wiring, p_w, q_var, load, zip_p, zip_q, nominal_v, harmonics })
 }
 
 /// Reads a state's draws: either a `draws` array or the draw keys on the state itself.
 fn decode_draws(ctx: &Ctx, t: &Table, home: &Home, defaults: &DrawDefaults) -> Result<Vec<Draw>, Error> {
     if let Some(n) = t.opt("draws") {
-        for k in ["power", "pf", "q", "wiring", "zip", "zip_q", "rated", "load"] {
+        for k in ["power", "pf", "q", "wiring", "zip", "zip_q", "rated", "load", "harmonics"] {
             if t.has(k) {
                 let e = t.entries().iter().find(|e| e.key == k).unwrap();
                 return Err(Error::at(ctx.sources, &e.key_src, &t.path_of(k), format!("`{k}` given beside `draws`"), "put it inside each entry of `draws`"));

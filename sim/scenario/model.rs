@@ -125,6 +125,21 @@ impl LoadKind {
             LoadKind::Lighting => Zip { z: 0.2, i: 0.4, p: 0.4 },
         }
     }
+    /// Default harmonic signature (odd orders: magnitude relative to the
+    /// fundamental, phase in degrees). Rounded illustrative shapes, from
+    /// memory: a capacitor-input rectifier draws current pulses at the
+    /// voltage peaks (strong 3rd and 5th, alternating signs); an LED driver
+    /// with partial correction less; a motor almost none.
+    pub fn default_harmonics(self) -> Vec<Harmonic> {
+        let h = |order: u32, magnitude: f64, phase_deg: f64| Harmonic { order, magnitude, phase_deg };
+        match self {
+            LoadKind::Resistive => vec![],
+            LoadKind::Motor => vec![h(3, 0.03, 0.0), h(5, 0.02, 0.0)],
+            LoadKind::Electronic => vec![h(3, 0.80, 180.0), h(5, 0.55, 0.0), h(7, 0.30, 180.0), h(9, 0.12, 0.0), h(11, 0.06, 180.0)],
+            LoadKind::Lighting => vec![h(3, 0.40, 180.0), h(5, 0.20, 0.0), h(7, 0.10, 180.0)],
+        }
+    }
+
     pub fn default_zip_q(self) -> Zip {
         match self {
             LoadKind::Resistive => Zip { z: 1.0, i: 0.0, p: 0.0 },
@@ -134,6 +149,14 @@ impl LoadKind {
             LoadKind::Lighting => Zip { z: 0.2, i: 0.4, p: 0.4 },
         }
     }
+}
+
+/// One odd harmonic of a draw's current, relative to its fundamental.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Harmonic {
+    pub order: u32,
+    pub magnitude: f64,
+    pub phase_deg: f64,
 }
 
 /// One load inside a state: complex power at the connection's nominal voltage.
@@ -147,6 +170,8 @@ pub struct Draw {
     pub zip_q: Zip,
     /// Nominal voltage across this draw's connection, V.
     pub nominal_v: f64,
+    /// Harmonic signature of its current (waveforms only).
+    pub harmonics: Vec<Harmonic>,
 }
 
 #[derive(Clone, Copy, Debug, Serialize)]
@@ -392,6 +417,21 @@ impl Faults {
     }
 }
 
+/// A window of high-rate waveforms to write.
+#[derive(Clone, Debug, Serialize)]
+pub struct WaveWindow {
+    pub start_local: String,
+    /// Offset from the start of the run, s.
+    pub offset_s: f64,
+    pub length_s: f64,
+}
+
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct Waveforms {
+    pub rate_hz: f64,
+    pub windows: Vec<WaveWindow>,
+}
+
 #[derive(Clone, Debug, Serialize)]
 pub struct Scenario {
     pub name: String,
@@ -402,6 +442,7 @@ pub struct Scenario {
     /// Loads nobody listed: in the meters, in truth only as `unmetered_p_w`.
     pub unmetered: Vec<Appliance>,
     pub faults: Faults,
+    pub waveforms: Waveforms,
 }
 
 impl Scenario {
