@@ -17,3 +17,4 @@ pub mod dataset;
 pub mod summary;
 pub mod roundtrip;
 pub mod waveform;
+pub mod difficulty;

@@ -30,6 +30,7 @@ pub struct LineFigures {
 
 pub struct Figures {
     pub days: f64,
+    pub difficulty: crate::difficulty::Difficulty,
     pub apps: Vec<AppFigures>,
     pub lines: Vec<LineFigures>,
     pub service_a: f64,
@@ -40,6 +41,7 @@ pub fn figures(s: &Scenario) -> Figures {
     let steps = ((days * 86400.0) / s.run.step_s).round() as u64;
     let tl = timelines(s, steps);
     let mut apps = Vec::new();
+    let mut energy_j = Vec::new();
     for (k, (a, t)) in s.loads().zip(&tl).enumerate() {
         let (mut e, mut on, mut peak) = (0.0, 0u64, 0.0f64);
         for seg in &t.segments {
@@ -51,6 +53,7 @@ pub fn figures(s: &Scenario) -> Figures {
             }
             peak = peak.max(p);
         }
+        energy_j.push(e);
         apps.push(AppFigures {
             id: if k < s.appliances.len() { a.id.clone() } else { format!("{} (unmetered)", a.id) },
             behaviour: a.behaviour.name(),
@@ -76,6 +79,7 @@ pub fn figures(s: &Scenario) -> Figures {
     }
     Figures {
         days,
+        difficulty: crate::difficulty::card(s, &tl, &energy_j),
         apps,
         lines: (0..n).map(|x| LineFigures { name: line_name(x).to_uppercase(), peak_a: peak_a[x] }).collect(),
         service_a: s.home.service_a,
@@ -118,6 +122,8 @@ pub fn render(s: &Scenario, f: &Figures) -> String {
         o += &format!("{:<9}  {:>22.1}  {:>14.0}%\n", l.name, l.peak_a, 100.0 * l.peak_a / f.service_a);
     }
     o += "(coincident peak: every appliance in its largest state at once, an upper bound)\n\n";
+    o += &f.difficulty.render(s);
+    o += "\n";
     o += CAUTION;
     o += "\n";
     o

@@ -89,7 +89,9 @@ fn write_into(s: &Scenario, dir: &Path, format: Format, progress: &mut dyn FnMut
     events.write(&tables.events_batch(s, &outcome.events, s.run.step_s))?;
     events.close()?;
     let files = [("meters", meter_rows), ("truth", intervals), ("events", outcome.events.len() as u64)];
-    let m = manifest::build(s, &tables, format, &outcome, &files, &waves, dir)?;
+    let card = crate::difficulty::card(s, &tl, &outcome.summary.app_energy_j);
+    let mut m = manifest::build(s, &tables, format, &outcome, &files, &waves, dir)?;
+    m["summary"]["difficulty"] = card.to_json(s);
     let text = serde_json::to_string_pretty(&m).map_err(io::Error::other)?;
     std::fs::write(dir.join("manifest.json"), text + "\n")?;
     Ok((intervals, outcome))
