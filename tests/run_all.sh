@@ -11,5 +11,7 @@ python3 -m venv .venv
 
 cargo build --release --workspace
 cargo test --release --workspace
+# The benchmarks must keep compiling (they share the release build's artifacts).
+cargo bench --workspace --no-run
 
 LOADLOOM_BIN="$PWD/target/release/loadloom" .venv/bin/python -m pytest -q tests/python

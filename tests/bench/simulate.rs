@@ -41,7 +41,7 @@ fn floor(s: &Scenario, out: &Path) {
     let outcome = loadloom::simulate::simulate(&short, &tl, short.intervals(), CHUNK_ROWS, |c| -> Result<(), ()> {
         kept = Some(loadloom::simulate::Chunk {
             first_row: 0,
-            readings: loadloom::meter::Readings { line_p: c.readings.line_p.clone(), line_q: c.readings.line_q.clone(), line_v: c.readings.line_v.clone(), line_i: c.readings.line_i.clone(), n_i: c.readings.n_i.clone(), total_p: c.readings.total_p.clone(), total_q: c.readings.total_q.clone() },
+            readings: loadloom::meter::Readings { line_p: c.readings.line_p.clone(), line_q: c.readings.line_q.clone(), line_v: c.readings.line_v.clone(), line_i: c.readings.line_i.clone(), n_i: c.readings.n_i.clone(), total_p: c.readings.total_p.clone(), total_q: c.readings.total_q.clone(), energy: c.readings.energy.clone(), present: c.readings.present.clone() },
             truth: loadloom::simulate::Truth { app_p: c.truth.app_p.clone(), app_q: c.truth.app_q.clone(), app_state: c.truth.app_state.clone(), app_line_p: c.truth.app_line_p.clone(), unmetered_p: c.truth.unmetered_p.clone() },
         });
         Ok(())
@@ -64,6 +64,8 @@ fn floor(s: &Scenario, out: &Path) {
             for v in [&mut chunk.readings.n_i, &mut chunk.readings.total_p, &mut chunk.readings.total_q, &mut chunk.truth.unmetered_p] {
                 v.truncate(n);
             }
+            chunk.readings.energy.iter_mut().for_each(|v| v.truncate(n));
+            chunk.readings.present.truncate(n);
             chunk.truth.app_p.iter_mut().chain(&mut chunk.truth.app_q).chain(chunk.truth.app_line_p.iter_mut().flatten()).for_each(|v| v.truncate(n));
             chunk.truth.app_state.iter_mut().for_each(|v| v.truncate(n));
         }
