@@ -1,5 +1,5 @@
 """Waveforms checked with numpy and scipy (CHECKS.md, "waveform harmonics"):
-scipy.io.wavfile reads rate, channels and length; numpy.fft finds the
+scipy.io.wavfile and soundfile read rate, channels and length; numpy.fft finds the
 declared harmonic magnitudes and THD; mean(v·i) over whole cycles equals the
 meters' P; i_n = −Σ i_line sample by sample; the two-wattmeter relation holds
 in the waveforms too; impossible windows are refused."""
@@ -8,6 +8,7 @@ import json
 import numpy as np
 import pyarrow.parquet as pq
 import pytest
+import soundfile
 from scipy.io import wavfile
 
 from conftest import loadloom
@@ -69,6 +70,11 @@ def test_wav_reads_with_the_declared_rate_channels_and_length(simulate):
     assert data.shape == (20 * 12800, 7) and w["frames"] == data.shape[0]
     assert [c["name"] for c in w["channels"]] == ["l1_v", "l2_v", "l3_v", "l1_i", "l2_i", "l3_i", "n_i"]
     assert np.abs(data).max() < 1.0
+    # A second reader (libsndfile through soundfile) agrees on rate, channels and length.
+    info = soundfile.info(str(d / "waveform-1.wav"))
+    assert (info.samplerate, info.channels, info.frames, info.subtype) == (12800, 7, 20 * 12800, "FLOAT")
+    sf_data, _ = soundfile.read(str(d / "waveform-1.wav"), dtype="float32")
+    assert (sf_data == data).all()
     # RMS of the voltage is the line-to-neutral voltage.
     v = ch["l1_v"]
     assert np.sqrt(np.mean(v**2)) == pytest.approx(230, rel=0.01)
