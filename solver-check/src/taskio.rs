@@ -44,13 +44,12 @@ pub fn copy_rows(src: &Path, dst: &Path, from: usize, to: usize) -> io::Result<u
     Ok(written)
 }
 
+/// A column of an estimate, produced row by row (so a month at 1 s is never
+/// held as f64 columns).
+pub type EstimateColumn = (String, Box<dyn Fn(usize) -> f64>);
+
 /// Writes a wide estimate: `time` (ms UTC, in `tz`) and one column per name.
-pub fn write_estimate(
-    path: &Path,
-    tz: &str,
-    time_ms: &[i64],
-    cols: &[(String, Vec<f64>)],
-) -> io::Result<()> {
+pub fn write_estimate(path: &Path, tz: &str, time_ms: &[i64], cols: &[EstimateColumn]) -> io::Result<()> {
     let tmp = path.with_extension("partial");
     if path.extension().is_some_and(|e| e == "csv") {
         let mut f = std::io::BufWriter::new(std::fs::File::create(&tmp)?);
@@ -66,7 +65,7 @@ pub fn write_estimate(
                 .to_zoned(tzz.clone());
             write!(f, "{}", z.strftime("%Y-%m-%dT%H:%M:%S%.3f%:z"))?;
             for (_, v) in cols {
-                write!(f, ",{}", v[r])?;
+                write!(f, ",{}", v(r))?;
             }
             writeln!(f)?;
         }
@@ -93,7 +92,7 @@ pub fn write_estimate(
             )];
             arrays.extend(
                 cols.iter()
-                    .map(|(_, v)| Arc::new(Float64Array::from(v[a..z].to_vec())) as ArrayRef),
+                    .map(|(_, v)| Arc::new((a..z).map(|r| v(r)).collect::<Float64Array>()) as ArrayRef),
             );
             w.write(&RecordBatch::try_new(schema.clone(), arrays).map_err(io_err)?)
                 .map_err(io_err)?;

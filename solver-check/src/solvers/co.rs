@@ -128,7 +128,7 @@ impl Knapsack {
     }
 }
 
-type Estimate = (Vec<i64>, Vec<(String, Vec<f64>)>);
+type Estimate = (Vec<i64>, Vec<crate::taskio::EstimateColumn>);
 
 pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
     let lines = &task.lines;
@@ -161,7 +161,8 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
     };
     let test = task.test_meters(&meter_cols)?;
     let n = test.time_ms.len();
-    let mut level_of: Vec<Vec<usize>> = vec![vec![0; n]; apps.len()];
+    // Level index per appliance and row (at most four levels: one byte).
+    let mut level_of: Vec<Vec<u8>> = vec![vec![0; n]; apps.len()];
 
     if !per_conductor {
         let ks = Knapsack::new(
@@ -181,7 +182,7 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
         for t in 0..n {
             ks.levels(ks.look(total[t]).0, &mut lv);
             for (k, l) in lv.iter().enumerate() {
-                level_of[k][t] = *l;
+                level_of[k][t] = *l as u8;
             }
         }
     } else {
@@ -259,34 +260,30 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
                 })
                 .clone();
             for (j, &k) in multi.iter().enumerate() {
-                level_of[k][t] = combos[ci].0[j];
+                level_of[k][t] = combos[ci].0[j] as u8;
             }
             for x in 0..lines.len() {
                 let mut out = vec![0; single[x].len()];
                 ks[x].levels(targets[x], &mut out);
                 for (j, &k) in single[x].iter().enumerate() {
                     lv[k] = out[j];
-                    level_of[k][t] = out[j];
+                    level_of[k][t] = out[j] as u8;
                 }
             }
         }
     }
 
-    let mut cols = Vec::new();
-    for (k, (id, on, levels)) in apps.iter().enumerate() {
-        cols.push((
-            format!("{id}_p_w"),
-            level_of[k]
-                .iter()
-                .map(|&l| levels[l].p_w.max(0.0))
-                .collect(),
-        ));
+    let mut cols: Vec<crate::taskio::EstimateColumn> = Vec::new();
+    for ((id, on, levels), lv) in apps.iter().zip(level_of) {
+        let lv = std::rc::Rc::new(lv);
+        let p: Vec<f64> = levels.iter().map(|l| l.p_w.max(0.0)).collect();
+        let l2 = lv.clone();
+        cols.push((format!("{id}_p_w"), Box::new(move |t| p[l2[t] as usize])));
         if per_conductor {
             for (j, &x) in on.iter().enumerate() {
-                cols.push((
-                    format!("{id}_{}_p_w", lines[x]),
-                    level_of[k].iter().map(|&l| levels[l].split[j]).collect(),
-                ));
+                let split: Vec<f64> = levels.iter().map(|l| l.split[j]).collect();
+                let l2 = lv.clone();
+                cols.push((format!("{id}_{}_p_w", lines[x]), Box::new(move |t| split[l2[t] as usize])));
             }
         }
     }
