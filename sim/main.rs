@@ -195,6 +195,17 @@ fn apply_waveforms(s: &mut Scenario, windows: &[String], rate: Option<&str>) -> 
     Ok(())
 }
 
+/// Prints a report in the form asked for: JSON, Markdown or the terminal table.
+fn print_report(json: bool, markdown: bool, as_json: impl FnOnce() -> serde_json::Value, as_markdown: impl FnOnce() -> String, as_text: impl FnOnce() -> String) {
+    if json {
+        println!("{}", serde_json::to_string_pretty(&as_json()).expect("JSON"));
+    } else if markdown {
+        print!("{}", as_markdown());
+    } else {
+        print!("{}", as_text());
+    }
+}
+
 /// `fridge=20` or `fridge=20W`.
 fn parse_threshold(t: &str) -> Result<(String, f64), String> {
     let (id, w) = t.split_once('=').ok_or_else(|| format!("--threshold {t}: expected ID=WATTS, e.g. fridge=20"))?;
@@ -288,13 +299,7 @@ fn main() -> ExitCode {
                 }
                 return match rows {
                     Ok(rows) => {
-                        if json {
-                            println!("{}", serde_json::to_string_pretty(&loadloom::roundtrip::render_json(&rows)).expect("JSON"));
-                        } else if markdown {
-                            print!("{}", loadloom::roundtrip::render_markdown(&rows));
-                        } else {
-                            print!("{}", loadloom::roundtrip::render_text(&rows));
-                        }
+                        print_report(json, markdown, || loadloom::roundtrip::render_json(&rows), || loadloom::roundtrip::render_markdown(&rows), || loadloom::roundtrip::render_text(&rows));
                         if rows.iter().any(|r| r.result.is_err()) {
                             ExitCode::from(FAILED)
                         } else {
@@ -357,13 +362,7 @@ fn main() -> ExitCode {
                 };
                 return match solver_check::compare::compare(&a, &b, resamples.max(1), bootstrap_seed) {
                     Ok(c) => {
-                        if json {
-                            println!("{}", serde_json::to_string_pretty(&c.to_json()).expect("JSON"));
-                        } else if markdown {
-                            print!("{}", c.to_markdown());
-                        } else {
-                            print!("{}", c.to_text());
-                        }
+                        print_report(json, markdown, || c.to_json(), || c.to_markdown(), || c.to_text());
                         ExitCode::SUCCESS
                     }
                     Err(m) => {
@@ -374,13 +373,7 @@ fn main() -> ExitCode {
             }
             match solver_check::score::score(&truth, &estimate, &opts) {
                 Ok(r) => {
-                    if json {
-                        println!("{}", serde_json::to_string_pretty(&r.to_json()).expect("JSON"));
-                    } else if markdown {
-                        print!("{}", r.to_markdown());
-                    } else {
-                        print!("{}", r.to_text());
-                    }
+                    print_report(json, markdown, || r.to_json(), || r.to_markdown(), || r.to_text());
                     ExitCode::SUCCESS
                 }
                 Err(e) => {

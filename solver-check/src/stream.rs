@@ -52,19 +52,23 @@ impl Header {
     }
 }
 
+fn open(path: &Path) -> Result<std::fs::File, TableError> {
+    std::fs::File::open(path).map_err(|e| {
+        table_err(
+            path,
+            None,
+            None,
+            format!("cannot open it: {e}"),
+            "check the path",
+        )
+    })
+}
+
 /// Reads the schema (Parquet) or header (CSV) of `path`.
 pub fn header(path: &Path) -> Result<Header, TableError> {
     match path.extension().and_then(|e| e.to_str()) {
         Some("parquet") => {
-            let file = std::fs::File::open(path).map_err(|e| {
-                table_err(
-                    path,
-                    None,
-                    None,
-                    format!("cannot open it: {e}"),
-                    "check the path",
-                )
-            })?;
+            let file = open(path)?;
             let b = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| {
                 table_err(
                     path,
@@ -120,15 +124,7 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
             })
         }
         Some("csv") => {
-            let file = std::fs::File::open(path).map_err(|e| {
-                table_err(
-                    path,
-                    None,
-                    None,
-                    format!("cannot open it: {e}"),
-                    "check the path",
-                )
-            })?;
+            let file = open(path)?;
             let mut first = String::new();
             BufReader::new(file)
                 .read_line(&mut first)
@@ -301,8 +297,7 @@ impl Header {
         let all: Vec<&String> = cols.iter().chain(texts).collect();
         let inner = match &self.kind {
             Kind::Parquet { time_index, .. } => {
-                let file = std::fs::File::open(path)
-                    .map_err(|e| table_err(path, None, None, e.to_string(), "check the path"))?;
+                let file = open(path)?;
                 let b = ParquetRecordBatchReaderBuilder::try_new(file)
                     .map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
                 let schema = b.schema().clone();
@@ -334,8 +329,7 @@ impl Header {
                 Inner::Parquet(r, pos)
             }
             Kind::Csv { time_index, header } => {
-                let file = std::fs::File::open(path)
-                    .map_err(|e| table_err(path, None, None, e.to_string(), "check the path"))?;
+                let file = open(path)?;
                 let mut lines = BufReader::with_capacity(1 << 20, file).lines();
                 lines.next();
                 let idx = std::iter::once(Ok(*time_index))

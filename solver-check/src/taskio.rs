@@ -49,7 +49,12 @@ pub fn copy_rows(src: &Path, dst: &Path, from: usize, to: usize) -> io::Result<u
 pub type EstimateColumn = (String, Box<dyn Fn(usize) -> f64>);
 
 /// Writes a wide estimate: `time` (ms UTC, in `tz`) and one column per name.
-pub fn write_estimate(path: &Path, tz: &str, time_ms: &[i64], cols: &[EstimateColumn]) -> io::Result<()> {
+pub fn write_estimate(
+    path: &Path,
+    tz: &str,
+    time_ms: &[i64],
+    cols: &[EstimateColumn],
+) -> io::Result<()> {
     let tmp = path.with_extension("partial");
     if path.extension().is_some_and(|e| e == "csv") {
         let mut f = std::io::BufWriter::new(std::fs::File::create(&tmp)?);
@@ -90,10 +95,9 @@ pub fn write_estimate(path: &Path, tz: &str, time_ms: &[i64], cols: &[EstimateCo
             let mut arrays: Vec<ArrayRef> = vec![Arc::new(
                 TimestampMillisecondArray::from(time_ms[a..z].to_vec()).with_timezone(tz),
             )];
-            arrays.extend(
-                cols.iter()
-                    .map(|(_, v)| Arc::new((a..z).map(|r| v(r)).collect::<Float64Array>()) as ArrayRef),
-            );
+            arrays.extend(cols.iter().map(|(_, v)| {
+                Arc::new((a..z).map(|r| v(r)).collect::<Float64Array>()) as ArrayRef
+            }));
             w.write(&RecordBatch::try_new(schema.clone(), arrays).map_err(io_err)?)
                 .map_err(io_err)?;
             a = z;

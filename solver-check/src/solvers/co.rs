@@ -283,7 +283,10 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
             for (j, &x) in on.iter().enumerate() {
                 let split: Vec<f64> = levels.iter().map(|l| l.split[j]).collect();
                 let l2 = lv.clone();
-                cols.push((format!("{id}_{}_p_w", lines[x]), Box::new(move |t| split[l2[t] as usize])));
+                cols.push((
+                    format!("{id}_{}_p_w", lines[x]),
+                    Box::new(move |t| split[l2[t] as usize]),
+                ));
             }
         }
     }

@@ -17,7 +17,10 @@ pub fn solve(task: &Task) -> Result<(Vec<i64>, Vec<crate::taskio::EstimateColumn
         } else {
             v.iter().sum::<f64>() / v.len() as f64
         };
-        out.push((c.clone(), Box::new(move |_| mean) as Box<dyn Fn(usize) -> f64>));
+        out.push((
+            c.clone(),
+            Box::new(move |_| mean) as Box<dyn Fn(usize) -> f64>,
+        ));
     }
     Ok((test.time_ms, out))
 }
