@@ -126,6 +126,29 @@ enum Command {
         #[arg(long)]
         suite: bool,
     },
+    /// Print shell completions for SHELL (bash, zsh, fish, elvish, powershell).
+    Completions {
+        shell: clap_complete::Shell,
+    },
+    /// Print the man page (roff), generated from the same definition of the flags.
+    Man,
+    /// Draw a dataset: per conductor its measured power and each appliance's share.
+    Plot {
+        /// The dataset folder.
+        dataset: PathBuf,
+        /// Window start, local time (default: the busiest local day).
+        #[arg(long)]
+        from: Option<String>,
+        /// Window end, local time.
+        #[arg(long)]
+        to: Option<String>,
+        /// Output file (.svg).
+        #[arg(long, default_value = "plot.svg")]
+        out: PathBuf,
+        /// Picture size in pixels, WIDTHxHEIGHT.
+        #[arg(long, default_value = "1400x900")]
+        size: String,
+    },
     /// Parse and check a scenario; print what it will produce, write nothing.
     Validate {
         /// The scenario file (TOML).
@@ -220,6 +243,39 @@ fn parse_threshold(t: &str) -> Result<(String, f64), String> {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
+        Command::Completions { shell } => {
+            let mut cmd = <Cli as clap::CommandFactory>::command();
+            clap_complete::generate(shell, &mut cmd, "loadloom", &mut std::io::stdout());
+            ExitCode::SUCCESS
+        }
+        Command::Man => {
+            let cmd = <Cli as clap::CommandFactory>::command();
+            match clap_mangen::Man::new(cmd).render(&mut std::io::stdout()) {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(e) => {
+                    eprintln!("error: {e}");
+                    ExitCode::from(FAILED)
+                }
+            }
+        }
+        Command::Plot { dataset, from, to, out, size } => {
+            let dims = size.split_once('x').and_then(|(w, h)| Some((w.parse::<u32>().ok()?, h.parse::<u32>().ok()?)));
+            let Some((w, h)) = dims.filter(|(w, h)| (300..=10000).contains(w) && (200..=10000).contains(h)) else {
+                eprintln!("error: --size {size}: expected WIDTHxHEIGHT in pixels, e.g. 1400x900 (300 … 10000 by 200 … 10000)");
+                return ExitCode::from(BAD_INPUT);
+            };
+            let opts = solver_check::plot::PlotOptions { from, to, width: w, height: h };
+            match solver_check::plot::plot(&dataset, &out, &opts) {
+                Ok(p) => {
+                    println!("wrote {} ({}x{} px, {} to {}, {} appliances in the legend)", out.display(), w, h, p.from, p.to, p.legend.len());
+                    ExitCode::SUCCESS
+                }
+                Err(e) => {
+                    eprintln!("{e}");
+                    ExitCode::from(BAD_INPUT)
+                }
+            }
+        }
         Command::Roundtrip { scenario, solver, train, test, reveal, timeout, out, seed, estimate_format, json, markdown, suite } => {
             let bad = |m: String| {
                 eprintln!("error: {m}");

@@ -10,6 +10,7 @@
 //! - [`metrics`]: the scores, each formula with its source;
 //! - [`score`]: all of it together, and the reports;
 //! - [`compare`]: two estimates, with a paired bootstrap over days;
+//! - [`plot`]: a picture of a dataset's conductors and appliances (SVG);
 //! - [`roundtrip`]: task folder, solver run, score; [`solvers`]: the built-in ones.
 
 pub mod align;
@@ -17,6 +18,7 @@ pub mod compare;
 pub mod dataset;
 pub mod estimate;
 pub mod metrics;
+pub mod plot;
 pub mod roundtrip;
 pub mod score;
 pub mod solvers;

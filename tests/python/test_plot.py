@@ -1,0 +1,68 @@
+"""Plots: each is a valid SVG of the requested size (parsed with Python's
+xml.etree), its legend lists every appliance that drew power in the window,
+line-to-line appliances show on both of their lines; completions and the man
+page come from the one definition of the flags."""
+import json
+import xml.etree.ElementTree as ET
+
+import pandas as pd
+import pyarrow.parquet as pq
+import pytest
+
+from conftest import ROOT, loadloom
+
+NS = {"s": "http://www.w3.org/2000/svg"}
+DEMOS = sorted((ROOT / "scenarios").glob("*.toml"))
+
+
+@pytest.mark.parametrize("demo", DEMOS, ids=[d.stem for d in DEMOS])
+def test_plot_of_each_demo(demo, simulate, tmp_path):
+    d = simulate(path=demo, extra=("--length", "2d"))
+    out = tmp_path / "p.svg"
+    loadloom("plot", d, "--out", out, "--size", "1200x800")
+    root = ET.parse(out).getroot()
+    assert root.tag == "{http://www.w3.org/2000/svg}svg"
+    assert (root.get("width"), root.get("height")) == ("1200", "800")
+    m = json.loads((d / "manifest.json").read_text())
+    lines = [c for c in m["supply"]["conductors"] if c != "n"]
+    panels = root.findall("s:g[@class='panel']", NS)
+    assert [p.get("data-conductor") for p in panels] == lines
+    for p in panels:
+        assert p.find("s:path[@class='measured']", NS) is not None
+    legend = [t.text for t in root.iter("{http://www.w3.org/2000/svg}text") if t.get("class") == "legend"]
+    # The default window is the busiest local day; every appliance with energy in it is listed.
+    truth = pq.read_table(d / "truth.parquet").to_pandas()
+    tz = m["time"]["timezone"]
+    meters = pq.read_table(d / "meters.parquet").to_pandas()
+    day = meters["time"].dt.tz_convert(tz).dt.date
+    busiest = meters["total_p_w"].groupby(day).sum().idxmax()
+    sel = truth["time"].dt.tz_convert(tz).dt.date == busiest
+    drew = {a["id"] for a in m["appliances"] if sum(truth.loc[sel, f"{a['id']}_{c}_p_w"].abs().sum() for c in a["conductors"]) > 0}
+    assert set(legend) == drew, set(legend) ^ drew
+    # A line-to-line appliance is drawn on both of its lines.
+    ll = [a for a in m["appliances"] if a["line_to_line"] and a["id"] in drew and len(a["conductors"]) >= 2]
+    assert ll, "the demos have line-to-line appliances"
+    for a in ll:
+        shown = {p.get("data-conductor") for p in panels if p.find(f"s:polygon[@data-appliance='{a['id']}']", NS) is not None}
+        assert set(a["conductors"]) <= shown, (a["id"], shown)
+
+
+def test_plot_window_and_bad_input(simulate, tmp_path):
+    d = simulate(path=ROOT / "scenarios" / "three-phase-house.toml", extra=("--length", "1d"))
+    out = tmp_path / "w.svg"
+    p = loadloom("plot", d, "--from", "2027-01-04T06:00", "--to", "2027-01-04T09:00", "--out", out)
+    assert "2027-01-04T06:00" in p.stdout and "2027-01-04T09:00" in p.stdout
+    ET.parse(out)
+    bad = loadloom("plot", d, "--from", "2030-01-01", "--out", tmp_path / "x.svg", check=False)
+    assert bad.returncode == 2 and "outside the dataset" in bad.stderr and not (tmp_path / "x.svg").exists()
+    bad = loadloom("plot", d, "--size", "12x8", "--out", tmp_path / "y.svg", check=False)
+    assert bad.returncode == 2 and "--size" in bad.stderr
+
+
+def test_completions_and_man_page_come_from_the_flags():
+    for shell in ["bash", "zsh", "fish"]:
+        out = loadloom("completions", shell).stdout
+        assert "roundtrip" in out and "waveform-rate" in out, shell
+    man = loadloom("man").stdout
+    assert man.startswith(".ie") or ".TH" in man
+    assert "roundtrip" in man and "validate" in man
