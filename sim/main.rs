@@ -53,6 +53,12 @@ enum Command {
         /// Sample rate of the waveforms, e.g. 12.8kHz.
         #[arg(long, value_name = "RATE")]
         waveform_rate: Option<String>,
+        /// Print a JSON summary instead of the table.
+        #[arg(long, conflicts_with = "quiet")]
+        json: bool,
+        /// Print nothing on success (errors still go to stderr).
+        #[arg(long)]
+        quiet: bool,
     },
     /// Score an estimate (Parquet or CSV, wide or long) against a dataset's truth.
     Score {
@@ -153,6 +159,12 @@ enum Command {
     Validate {
         /// The scenario file (TOML).
         scenario: PathBuf,
+        /// Print the figures as JSON.
+        #[arg(long, conflicts_with = "quiet")]
+        json: bool,
+        /// Print nothing; the exit status says whether the scenario is valid.
+        #[arg(long)]
+        quiet: bool,
     },
 }
 
@@ -241,6 +253,13 @@ fn parse_threshold(t: &str) -> Result<(String, f64), String> {
 }
 
 fn main() -> ExitCode {
+    // Output piped into `head` should end the program quietly, as other
+    // command-line tools do, not panic on a broken pipe.
+    #[cfg(unix)]
+    // SAFETY: restoring the default action of SIGPIPE before any thread starts.
+    unsafe {
+        libc::signal(libc::SIGPIPE, libc::SIG_DFL);
+    }
     let cli = Cli::parse();
     match cli.command {
         Command::Completions { shell } => {
@@ -438,16 +457,23 @@ fn main() -> ExitCode {
                 }
             }
         }
-        Command::Validate { scenario } => {
+        Command::Validate { scenario, json, quiet } => {
             let s = match load(&scenario) {
                 Ok(s) => s,
                 Err(c) => return c,
             };
+            if quiet {
+                return ExitCode::SUCCESS;
+            }
             let f = loadloom::summary::figures(&s);
-            print!("{}", loadloom::summary::render(&s, &f));
+            if json {
+                println!("{}", serde_json::to_string_pretty(&loadloom::summary::to_json(&s, &f)).expect("JSON"));
+            } else {
+                print!("{}", loadloom::summary::render(&s, &f));
+            }
             ExitCode::SUCCESS
         }
-        Command::Run { scenario, out, seed, length, format, waveform, waveform_rate } => {
+        Command::Run { scenario, out, seed, length, format, waveform, waveform_rate, json, quiet } => {
             let mut s = match load(&scenario) {
                 Ok(s) => s,
                 Err(c) => return c,
@@ -469,7 +495,7 @@ fn main() -> ExitCode {
                 FormatArg::Parquet => Format::Parquet,
                 FormatArg::Csv => Format::Csv,
             };
-            let tty = std::io::stderr().is_terminal();
+            let tty = std::io::stderr().is_terminal() && !quiet && !json;
             let started = std::time::Instant::now();
             let mut progress = |f: f64| {
                 if tty {
@@ -484,6 +510,14 @@ fn main() -> ExitCode {
                         eprintln!();
                     }
                     let secs = started.elapsed().as_secs_f64();
+                    if quiet {
+                        return ExitCode::SUCCESS;
+                    }
+                    if json {
+                        let apps: Vec<serde_json::Value> = s.appliances.iter().enumerate().map(|(k, a)| serde_json::json!({ "id": a.id, "energy_kwh": w.outcome.summary.app_energy_j[k] / 3.6e6, "peak_w": w.outcome.summary.app_peak_w[k] })).collect();
+                        println!("{}", serde_json::to_string_pretty(&serde_json::json!({ "dataset": w.dir, "rows": w.rows, "events": w.outcome.events.len(), "seconds": secs, "appliances": apps })).expect("JSON"));
+                        return ExitCode::SUCCESS;
+                    }
                     println!("wrote {} ({} rows, {} events) in {:.1} s", w.dir.display(), w.rows, w.outcome.events.len(), secs);
                     let width = s.appliances.iter().map(|a| a.id.len()).max().unwrap_or(9).max(9);
                     println!("{:<width$}  {:>10}  {:>9}", "appliance", "kWh", "peak W");

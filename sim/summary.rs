@@ -128,3 +128,17 @@ pub fn render(s: &Scenario, f: &Figures) -> String {
     o += "\n";
     o
 }
+
+/// The validate figures as JSON (for scripts), with the caution.
+pub fn to_json(s: &Scenario, f: &Figures) -> serde_json::Value {
+    serde_json::json!({
+        "scenario": s.name,
+        "supply": s.home.supply.name(),
+        "days_simulated": f.days,
+        "appliances": f.apps.iter().map(|a| serde_json::json!({ "id": a.id, "behaviour": a.behaviour, "wiring": a.wiring, "kwh_per_day": a.kwh_per_day, "duty": a.duty, "peak_w": a.peak_w })).collect::<Vec<_>>(),
+        "conductors": f.lines.iter().map(|l| serde_json::json!({ "conductor": l.name, "coincident_peak_a": l.peak_a, "share_of_service": l.peak_a / f.service_a })).collect::<Vec<_>>(),
+        "service_a": f.service_a,
+        "difficulty": f.difficulty.to_json(s),
+        "caution": CAUTION,
+    })
+}
