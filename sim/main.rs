@@ -91,6 +91,10 @@ enum Command {
         /// Seed of the bootstrap for --against.
         #[arg(long, default_value_t = 0, requires = "against")]
         bootstrap_seed: u64,
+        /// Also draw truth against estimate per appliance, and bars of the
+        /// scores, to this SVG file.
+        #[arg(long, value_name = "FILE.svg", conflicts_with = "against")]
+        plot: Option<PathBuf>,
     },
     /// Generate a task from a scenario, run a disaggregator on it, score its estimate.
     Roundtrip {
@@ -414,7 +418,7 @@ fn main() -> ExitCode {
                 }
             }
         }
-        Command::Score { truth, estimate, json, markdown, partial, threshold, against, resamples, bootstrap_seed } => {
+        Command::Score { truth, estimate, json, markdown, partial, threshold, against, resamples, bootstrap_seed, plot } => {
             let mut thresholds = Vec::new();
             for t in &threshold {
                 match parse_threshold(t) {
@@ -448,6 +452,12 @@ fn main() -> ExitCode {
             }
             match solver_check::score::score(&truth, &estimate, &opts) {
                 Ok(r) => {
+                    if let Some(p) = &plot {
+                        if let Err(m) = solver_check::plot::plot_scores(&r, &truth, &estimate, p) {
+                            eprintln!("{m}");
+                            return ExitCode::from(FAILED);
+                        }
+                    }
                     print_report(json, markdown, || r.to_json(), || r.to_markdown(), || r.to_text());
                     ExitCode::SUCCESS
                 }

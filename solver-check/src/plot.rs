@@ -266,3 +266,99 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
     std::fs::write(&tmp, svg).and_then(|_| std::fs::rename(&tmp, out)).map_err(|e| err(out, format!("cannot write the plot: {e}"), "check the folder"))?;
     Ok(Plotted { from: fmt(w0, "%Y-%m-%dT%H:%M%:z"), to: fmt(w1, "%Y-%m-%dT%H:%M%:z"), legend })
 }
+
+/// Means per time bucket of some columns of a table, within [w0, w1).
+fn bucket_means(h: &crate::stream::Header, cols: &[String], w0: i64, w1: i64, buckets: usize) -> Result<Vec<Vec<Option<f64>>>, String> {
+    let mut sum = vec![vec![0.0f64; buckets]; cols.len()];
+    let mut n = vec![vec![0u32; buckets]; cols.len()];
+    let mut st = h.stream(cols).map_err(|e| e.to_string())?;
+    while let Some(b) = st.next().map_err(|e| e.to_string())? {
+        for (k, &t) in b.time_ms.iter().enumerate() {
+            if t < w0 || t >= w1 {
+                continue;
+            }
+            let j = ((((t - w0) as f64) / (w1 - w0) as f64) * buckets as f64) as usize;
+            for c in 0..cols.len() {
+                let v = b.cols[c][k];
+                if !v.is_nan() {
+                    sum[c][j.min(buckets - 1)] += v;
+                    n[c][j.min(buckets - 1)] += 1;
+                }
+            }
+        }
+    }
+    Ok((0..cols.len()).map(|c| (0..buckets).map(|j| (n[c][j] > 0).then(|| sum[c][j] / n[c][j] as f64)).collect()).collect())
+}
+
+/// `score --plot`: per appliance, truth (filled) and estimate (line) over the
+/// busiest local day of the scored period, and bars of each appliance's F1
+/// and estimated accuracy. SVG.
+pub fn plot_scores(report: &crate::score::Report, dataset: &Path, estimate: &Path, out: &Path) -> Result<(), String> {
+    let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
+    let tz = jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| e.to_string())?;
+    let plan = &report.plan;
+    let p_end = plan.start_ms + plan.rows as i64 * plan.interval_ms;
+    // The busiest local day: the largest true energy over the appliances.
+    let days = report.overall_acc.days.len();
+    let best = (0..days).max_by(|&a, &b| report.overall_acc.days[a].sum_y.partial_cmp(&report.overall_acc.days[b].sum_y).unwrap()).unwrap_or(0);
+    let start_day = jiff::Timestamp::from_millisecond(plan.start_ms).map_err(|e| e.to_string())?.to_zoned(tz.clone()).date();
+    let mut day = start_day;
+    for _ in 0..best {
+        day = day.tomorrow().map_err(|e| e.to_string())?;
+    }
+    let ms = |d: jiff::civil::Date| d.to_zoned(tz.clone()).map(|z| z.timestamp().as_millisecond()).map_err(|e| e.to_string());
+    let (w0, w1) = (ms(day)?.max(plan.start_ms), ms(day.tomorrow().map_err(|e| e.to_string())?)?.min(p_end));
+    let ids: Vec<String> = report.appliances.iter().map(|a| a.id.clone()).collect();
+    let cols: Vec<String> = ids.iter().map(|i| format!("{i}_p_w")).collect();
+    let truth_file = if ds.manifest["files"].get("truth.parquet").is_some() { "truth.parquet" } else { "truth.csv" };
+    let bw = 420usize;
+    let y = bucket_means(&header(&dataset.join(truth_file)).map_err(|e| e.to_string())?, &cols, w0, w1, bw)?;
+    let yh = bucket_means(&header(estimate).map_err(|e| e.to_string())?, &cols, w0, w1, bw)?;
+    let (pw, ph, gap) = (bw as f64, 90.0, 38.0);
+    let per_row = 2;
+    let rows = ids.len().div_ceil(per_row);
+    let width = 60.0 + per_row as f64 * (pw + 60.0);
+    let bars_h = 40.0 + ids.len() as f64 * 16.0;
+    let height = 60.0 + rows as f64 * (ph + gap) + bars_h + 40.0;
+    let mut svg = String::new();
+    let _ = write!(svg, r#"<svg xmlns="http://www.w3.org/2000/svg" width="{:.0}" height="{:.0}" viewBox="0 0 {:.0} {:.0}" font-family="sans-serif" font-size="11"><rect width="100%" height="100%" fill="white"/>"#, width, height, width, height);
+    let fmt = |ms: i64| jiff::Timestamp::from_millisecond(ms).map(|t| t.to_zoned(tz.clone()).strftime("%Y-%m-%d %H:%M").to_string()).unwrap_or_default();
+    let _ = write!(svg, r#"<text x="20" y="24" font-size="14" font-weight="bold">{} against the truth, {} to {} ({}): truth filled, estimate as a line</text>"#, escape(&estimate.file_name().map(|f| f.to_string_lossy().to_string()).unwrap_or_default()), fmt(w0), fmt(w1), escape(&ds.timezone));
+    for (k, id) in ids.iter().enumerate() {
+        let (cx, cy) = (40.0 + (k % per_row) as f64 * (pw + 60.0), 50.0 + (k / per_row) as f64 * (ph + gap));
+        let hi = y[k].iter().chain(&yh[k]).flatten().fold(1.0f64, |a, b| a.max(*b)) * 1.05;
+        let yp = |v: f64| cy + ph - v / hi * ph;
+        let _ = write!(svg, r##"<g class="appliance" data-appliance="{id}"><rect x="{cx}" y="{cy}" width="{pw}" height="{ph}" fill="#fafafa" stroke="#aaa"/><text x="{cx}" y="{:.1}" font-weight="bold">{id}</text><text x="{:.1}" y="{:.1}" text-anchor="end" font-size="9">{:.0} W</text>"##, cy - 4.0, cx + pw, cy - 4.0, hi / 1.05);
+        let mut pts = format!("{cx:.1},{:.1} ", cy + ph);
+        for j in 0..bw {
+            let _ = write!(pts, "{:.1},{:.1} ", cx + j as f64, yp(y[k][j].unwrap_or(0.0)));
+        }
+        let _ = write!(pts, "{:.1},{:.1}", cx + pw, cy + ph);
+        let _ = write!(svg, r##"<polygon class="truth" points="{pts}" fill="#9fc4e8"/>"##);
+        let mut d = String::new();
+        let mut pen = false;
+        for j in 0..bw {
+            match yh[k][j] {
+                Some(v) => {
+                    let _ = write!(d, "{}{:.1},{:.1} ", if pen { "L" } else { "M" }, cx + j as f64, yp(v));
+                    pen = true;
+                }
+                None => pen = false,
+            }
+        }
+        let _ = write!(svg, r##"<path class="estimate" d="{}" fill="none" stroke="#d13b3b" stroke-width="1"/></g>"##, d.trim_end());
+    }
+    // Bars: F1 and estimated accuracy per appliance.
+    let by = 50.0 + rows as f64 * (ph + gap) + 10.0;
+    let _ = write!(svg, r##"<g class="bars"><text x="40" y="{by:.1}" font-weight="bold">per appliance: F1 (blue) and estimated accuracy (orange), 0 … 1</text>"##);
+    let bar_w = width - 330.0;
+    for (k, a) in report.appliances.iter().enumerate() {
+        let yy = by + 14.0 + k as f64 * 16.0;
+        let acc = a.scores.accuracy.unwrap_or(0.0).max(0.0);
+        let _ = write!(svg, r##"<text class="bar-label" x="150" y="{:.1}" text-anchor="end">{}</text><rect x="160" y="{:.1}" width="{:.1}" height="6" fill="#1f6fb4"/><rect x="160" y="{:.1}" width="{:.1}" height="6" fill="#f28e2b"/><text x="{:.1}" y="{:.1}" font-size="9">F1 {:.2}, accuracy {}</text>"##,
+            yy + 4.0, escape(&a.id), yy - 6.0, a.scores.f1 * bar_w, yy, acc.min(1.0) * bar_w, 165.0 + bar_w, yy + 4.0, a.scores.f1, a.scores.accuracy.map(|v| format!("{v:.2}")).unwrap_or_else(|| "–".into()));
+    }
+    svg += "</g></svg>\n";
+    let tmp = out.with_extension("svg.partial");
+    std::fs::write(&tmp, svg).and_then(|_| std::fs::rename(&tmp, out)).map_err(|e| err(out, format!("cannot write the plot: {e}"), "check the folder"))
+}

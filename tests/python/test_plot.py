@@ -66,3 +66,22 @@ def test_completions_and_man_page_come_from_the_flags():
     man = loadloom("man").stdout
     assert man.startswith(".ie") or ".TH" in man
     assert "roundtrip" in man and "validate" in man
+
+
+def test_score_plot_shows_truth_estimate_and_score_bars(simulate, tmp_path):
+    d = simulate(path=ROOT / "scenarios" / "apartment-208.toml", extra=("--length", "2d"))
+    m = json.loads((d / "manifest.json").read_text())
+    truth = pq.read_table(d / "truth.parquet").to_pandas()
+    est = pd.DataFrame({"time": truth["time"]})
+    for a in m["appliances"]:
+        est[f"{a['id']}_p_w"] = truth[f"{a['id']}_p_w"].astype(float) * 0.9
+    est.to_parquet(tmp_path / "e.parquet")
+    out = tmp_path / "s.svg"
+    loadloom("score", "--truth", d, "--estimate", tmp_path / "e.parquet", "--plot", out)
+    root = ET.parse(out).getroot()
+    groups = root.findall("s:g[@class='appliance']", NS)
+    assert [g.get("data-appliance") for g in groups] == [a["id"] for a in m["appliances"]]
+    for g in groups:
+        assert g.find("s:polygon[@class='truth']", NS) is not None and g.find("s:path[@class='estimate']", NS) is not None
+    labels = [t.text for t in root.iter("{http://www.w3.org/2000/svg}text") if t.get("class") == "bar-label"]
+    assert labels == [a["id"] for a in m["appliances"]]
