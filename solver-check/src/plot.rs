@@ -31,6 +31,35 @@ fn err(path: &Path, msg: impl std::fmt::Display, help: &str) -> String {
     format!("error: {msg}\n  --> {}\n  = help: {help}", path.display())
 }
 
+/// Writes the picture as SVG, or as PNG rendered from the same SVG (pure
+/// Rust: resvg with the system's fonts), by the file name's extension;
+/// under a temporary name, renamed when complete.
+pub fn write_picture(svg: &str, out: &Path) -> Result<(), String> {
+    let ext = out.extension().and_then(|e| e.to_str()).unwrap_or("");
+    let tmp = out.with_extension(format!("{ext}.partial"));
+    let bytes = match ext {
+        "svg" => svg.as_bytes().to_vec(),
+        "png" => {
+            let mut opt = resvg::usvg::Options::default();
+            let db = opt.fontdb_mut();
+            db.load_system_fonts();
+            // "sans-serif" maps to whatever sans family the system has (fontdb
+            // assumes Arial otherwise); without fonts the text is left out.
+            let family = db.faces().flat_map(|f| f.families.iter().map(|(n, _)| n.clone())).find(|n| n.contains("Sans") && !n.contains("Mono"));
+            if let Some(f) = family {
+                db.set_sans_serif_family(f);
+            }
+            let tree = resvg::usvg::Tree::from_str(svg, &opt).map_err(|e| err(out, format!("cannot render the plot: {e}"), "report this as a bug"))?;
+            let size = tree.size().to_int_size();
+            let mut pixmap = resvg::tiny_skia::Pixmap::new(size.width(), size.height()).ok_or_else(|| err(out, "the picture has no size", "give --size"))?;
+            resvg::render(&tree, resvg::tiny_skia::Transform::default(), &mut pixmap.as_mut());
+            pixmap.encode_png().map_err(|e| err(out, format!("cannot encode the PNG: {e}"), "report this as a bug"))?
+        }
+        _ => return Err(err(out, "the plot file must end in .svg or .png", "write e.g. --out plot.svg or --out plot.png")),
+    };
+    std::fs::write(&tmp, bytes).and_then(|_| std::fs::rename(&tmp, out)).map_err(|e| err(out, format!("cannot write the plot: {e}"), "check the folder"))
+}
+
 fn local_ms(text: &str, tz: &jiff::tz::TimeZone) -> Option<i64> {
     let c: jiff::civil::DateTime = text.parse().ok().or_else(|| text.parse::<jiff::civil::Date>().ok().map(|d| d.at(0, 0, 0, 0)))?;
     c.to_zoned(tz.clone()).ok().map(|z| z.timestamp().as_millisecond())
@@ -262,8 +291,7 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
     }
     let _ = write!(svg, r#"<text x="{lx}" y="{:.1}" font-size="10">black line: measured</text></g>"#, top + 20.0 + legend.len() as f64 * 16.0 + 6.0);
     svg += "</svg>\n";
-    let tmp = out.with_extension("svg.partial");
-    std::fs::write(&tmp, svg).and_then(|_| std::fs::rename(&tmp, out)).map_err(|e| err(out, format!("cannot write the plot: {e}"), "check the folder"))?;
+    write_picture(&svg, out)?;
     Ok(Plotted { from: fmt(w0, "%Y-%m-%dT%H:%M%:z"), to: fmt(w1, "%Y-%m-%dT%H:%M%:z"), legend })
 }
 
@@ -359,6 +387,5 @@ pub fn plot_scores(report: &crate::score::Report, dataset: &Path, estimate: &Pat
             yy + 4.0, escape(&a.id), yy - 6.0, a.scores.f1 * bar_w, yy, acc.min(1.0) * bar_w, 165.0 + bar_w, yy + 4.0, a.scores.f1, a.scores.accuracy.map(|v| format!("{v:.2}")).unwrap_or_else(|| "–".into()));
     }
     svg += "</g></svg>\n";
-    let tmp = out.with_extension("svg.partial");
-    std::fs::write(&tmp, svg).and_then(|_| std::fs::rename(&tmp, out)).map_err(|e| err(out, format!("cannot write the plot: {e}"), "check the folder"))
+    write_picture(&svg, out)
 }

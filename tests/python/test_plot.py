@@ -85,3 +85,31 @@ def test_score_plot_shows_truth_estimate_and_score_bars(simulate, tmp_path):
         assert g.find("s:polygon[@class='truth']", NS) is not None and g.find("s:path[@class='estimate']", NS) is not None
     labels = [t.text for t in root.iter("{http://www.w3.org/2000/svg}text") if t.get("class") == "bar-label"]
     assert labels == [a["id"] for a in m["appliances"]]
+
+
+def png_size(path):
+    # PNG signature, then the IHDR chunk: width and height, big-endian (PNG specification, ISO/IEC 15948).
+    data = path.read_bytes()
+    assert data[:8] == b"\x89PNG\r\n\x1a\n" and data[12:16] == b"IHDR"
+    return int.from_bytes(data[16:20], "big"), int.from_bytes(data[20:24], "big")
+
+
+def test_png_plots_of_the_requested_size(simulate, tmp_path):
+    import zlib
+    d = simulate(path=ROOT / "scenarios" / "split-phase-house.toml", extra=("--length", "1d"))
+    out = tmp_path / "p.png"
+    loadloom("plot", d, "--out", out, "--size", "1000x700")
+    assert png_size(out) == (1000, 700)
+    # The image holds a drawing, not a blank page: decompress the IDAT data
+    # (zlib, as the PNG specification says) and find more than one byte value.
+    data = out.read_bytes()
+    idat, pos = b"", 8
+    while pos < len(data):
+        n = int.from_bytes(data[pos:pos + 4], "big")
+        if data[pos + 4:pos + 8] == b"IDAT":
+            idat += data[pos + 8:pos + 8 + n]
+        pos += 12 + n
+    raw = zlib.decompress(idat)
+    assert len(set(raw[:200000])) > 10
+    bad = loadloom("plot", d, "--out", tmp_path / "p.jpg", check=False)
+    assert bad.returncode == 2 and ".svg or .png" in bad.stderr
