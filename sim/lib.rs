@@ -18,3 +18,4 @@ pub mod summary;
 pub mod roundtrip;
 pub mod waveform;
 pub mod difficulty;
+pub mod fleet;

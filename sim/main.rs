@@ -136,6 +136,25 @@ enum Command {
         #[arg(long)]
         suite: bool,
     },
+    /// Many homes from a population file, in parallel, Hive-partitioned
+    /// (OUT/home=00042/…), resumable, shardable across a cluster.
+    Fleet {
+        /// The population file (TOML).
+        population: PathBuf,
+        /// How many homes the fleet has.
+        #[arg(long)]
+        homes: u64,
+        /// The fleet's folder.
+        #[arg(long)]
+        out: PathBuf,
+        /// Homes simulated at once (default: the machine's cores).
+        #[arg(long)]
+        jobs: Option<usize>,
+        /// Make only shard I of N (homes with index % N == I), or `auto` from
+        /// a Slurm array or a Kubernetes Indexed Job.
+        #[arg(long, value_name = "I/N|auto")]
+        shard: Option<String>,
+    },
     /// Print shell completions for SHELL (bash, zsh, fish, elvish, powershell).
     Completions {
         shell: clap_complete::Shell,
@@ -266,6 +285,67 @@ fn main() -> ExitCode {
     }
     let cli = Cli::parse();
     match cli.command {
+        Command::Fleet { population, homes, out, jobs, shard } => {
+            let pop = match loadloom::fleet::load(&population) {
+                Ok(p) => p,
+                Err(e) => {
+                    eprintln!("{e}");
+                    return ExitCode::from(BAD_INPUT);
+                }
+            };
+            if homes == 0 || homes > 99_999 {
+                eprintln!("error: --homes {homes}: a fleet has 1 … 99 999 homes");
+                return ExitCode::from(BAD_INPUT);
+            }
+            let shard = match shard.as_deref().map(|t| loadloom::fleet::Shard::parse(t, &|k| std::env::var(k).ok())) {
+                None => loadloom::fleet::Shard { index: 0, count: 1 },
+                Some(Ok(s)) => s,
+                Some(Err(m)) => {
+                    eprintln!("error: {m}");
+                    return ExitCode::from(BAD_INPUT);
+                }
+            };
+            let jobs = jobs.unwrap_or_else(|| std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1));
+            let tty = std::io::stderr().is_terminal();
+            let started = std::time::Instant::now();
+            let last = std::sync::atomic::AtomicU64::new(0);
+            let progress = |done: u64, total: u64| {
+                let el = started.elapsed().as_secs_f64();
+                let rate = done as f64 / el.max(1e-9);
+                let left = (total - done) as f64 / rate.max(1e-9);
+                if tty {
+                    eprint!("\r  homes {done}/{total}  {:.2} homes/s  ~{:.0} s left   ", rate, left);
+                } else {
+                    // Plain lines when piped: one per tenth of the way.
+                    let tenth = done * 10 / total.max(1);
+                    if last.fetch_max(tenth, std::sync::atomic::Ordering::Relaxed) < tenth {
+                        eprintln!("homes {done}/{total} ({:.2} homes/s, ~{:.0} s left)", rate, left);
+                    }
+                }
+            };
+            match loadloom::fleet::run(&pop, homes, &out, jobs, shard, &progress) {
+                Ok(r) => {
+                    if tty {
+                        eprintln!();
+                    }
+                    println!(
+                        "fleet {}: made {} homes, {} already complete (shard {}/{}), in {:.1} s{}",
+                        out.display(),
+                        r.made,
+                        r.skipped,
+                        shard.index,
+                        shard.count,
+                        started.elapsed().as_secs_f64(),
+                        if r.index_written { "; homes.parquet and fleet.json written" } else { "; the index waits for the other shards" }
+                    );
+                    ExitCode::SUCCESS
+                }
+                Err(m) => {
+                    eprintln!("error: {m}");
+                    ExitCode::from(FAILED)
+                }
+            }
+        }
         Command::Completions { shell } => {
             let mut cmd = <Cli as clap::CommandFactory>::command();
             clap_complete::generate(shell, &mut cmd, "loadloom", &mut std::io::stdout());

@@ -92,6 +92,10 @@ fn write_into(s: &Scenario, dir: &Path, format: Format, progress: &mut dyn FnMut
     let card = crate::difficulty::card(s, &tl, &outcome.summary.app_energy_j);
     let mut m = manifest::build(s, &tables, format, &outcome, &files, &waves, dir)?;
     m["summary"]["difficulty"] = card.to_json(s);
+    if let Some(toml) = &s.source_toml {
+        std::fs::write(dir.join("scenario.toml"), toml)?;
+        m["scenario_toml"] = serde_json::Value::String("scenario.toml".into());
+    }
     let text = serde_json::to_string_pretty(&m).map_err(io::Error::other)?;
     std::fs::write(dir.join("manifest.json"), text + "\n")?;
     Ok((intervals, outcome))

@@ -133,7 +133,7 @@ fn decode(ctx: &Ctx, root: &Node, name: String, templates: &[(String, usize, Nod
         None => Faults::default(),
     };
     top.finish()?;
-    Ok(Scenario { name, home, run, meter, appliances, unmetered, faults, waveforms })
+    Ok(Scenario { name, home, run, meter, appliances, unmetered, faults, waveforms, source_toml: None })
 }
 
 /// Decodes the `[[key]]` list into `out`; ids must be unique across all of `out`.
@@ -928,12 +928,54 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
             return Err(ctx.err(bnode, &t.path_of("behaviour"), format!("unknown behaviour \"{other}\""), "write \"cycle\", \"program\", \"markov\", \"steady\" or \"modulating\""));
         }
     };
+    // Home-to-home variation (fleets): every draw's power, and every duration
+    // of the behaviour, multiplied.
+    let mut states = states;
+    let mut behaviour = behaviour;
+    for (key, what) in [("power_scale", "power"), ("time_scale", "time")] {
+        if let Some(n) = t.opt(key) {
+            let k = ctx.number(n, &t.path_of(key))?;
+            if !(0.1..=10.0).contains(&k) {
+                return Err(ctx.err(n, &t.path_of(key), format!("a {what} scale of {k} is outside 0.1 … 10"), "write a factor such as 1.1"));
+            }
+            if key == "power_scale" {
+                for d in states.iter_mut().flat_map(|s| s.draws.iter_mut()) {
+                    d.p_w *= k;
+                    d.q_var *= k;
+                }
+            } else {
+                scale_times(&mut behaviour, k);
+            }
+        }
+    }
     let on_threshold_w = match t.non_negative("on_threshold", Kind::Power)? {
         Some(x) => x,
         None => default_threshold(&states),
     };
     t.finish()?;
     Ok(Appliance { id, label, template, wiring, behaviour, states, on_threshold_w })
+}
+
+fn scale_times(b: &mut Behaviour, k: f64) {
+    match b {
+        Behaviour::Cycle { dwell, extra } => {
+            dwell.iter_mut().for_each(|d| *d = d.scaled(k));
+            if let Some(e) = extra {
+                e.length = e.length.scaled(k);
+                e.every_s *= k;
+            }
+        }
+        Behaviour::Program { lengths, .. } => lengths.iter_mut().for_each(|d| *d = d.scaled(k)),
+        Behaviour::Markov { dwell, .. } => dwell.iter_mut().for_each(|d| *d = d.scaled(k)),
+        Behaviour::Steady { every_s, .. } => *every_s *= k,
+        Behaviour::Modulating { every_s, session, .. } => {
+            *every_s *= k;
+            if let Some(s) = session {
+                s.length = s.length.scaled(k);
+                s.taper_s *= k;
+            }
+        }
+    }
 }
 
 /// Default on/off threshold: halfway from the lowest state's power to the

@@ -211,6 +211,16 @@ pub enum Dist {
 }
 
 impl Dist {
+    /// The same shape with every duration multiplied by `k`.
+    pub fn scaled(self, k: f64) -> Dist {
+        match self {
+            Dist::Fixed { value_s } => Dist::Fixed { value_s: value_s * k },
+            Dist::Uniform { min_s, max_s } => Dist::Uniform { min_s: min_s * k, max_s: max_s * k },
+            Dist::Lognormal { median_s, spread } => Dist::Lognormal { median_s: median_s * k, spread },
+            Dist::Gamma { mean_s, shape } => Dist::Gamma { mean_s: mean_s * k, shape },
+        }
+    }
+
     pub fn mean_s(&self) -> f64 {
         match *self {
             Dist::Fixed { value_s } => value_s,
@@ -443,6 +453,10 @@ pub struct Scenario {
     pub unmetered: Vec<Appliance>,
     pub faults: Faults,
     pub waveforms: Waveforms,
+    /// The scenario text itself when it was generated (a fleet's home), so
+    /// the dataset carries what rebuilds it alone with `loadloom run`.
+    #[serde(skip)]
+    pub source_toml: Option<String>,
 }
 
 impl Scenario {

@@ -1,0 +1,446 @@
+//! Fleets: a population file resolved, home by home, into scenarios, and the
+//! homes simulated in parallel into a Hive-partitioned folder
+//! (`home=00042/…`), with a `homes.parquet` index and a `fleet.json` summary.
+//!
+//! Each home's scenario is resolved from (population seed, home index) alone,
+//! so any shard of the fleet computes exactly its homes, and any home can be
+//! rebuilt with `loadloom run home=00042/scenario.toml`.
+
+use crate::behaviour::dist::categorical;
+use crate::rng::stream;
+use crate::scenario::reader::Ctx;
+use crate::scenario::source::{parse_toml, Error, Node, Sources, Val};
+use crate::scenario::{library, Scenario};
+use crate::units::Kind;
+use rand::Rng;
+use serde_json::{json, Value};
+use std::path::{Path, PathBuf};
+
+#[derive(Clone, Debug)]
+pub struct HomeKind {
+    pub name: String,
+    pub weight: f64,
+    /// The `[home]` keys, written into each scenario as they are.
+    pub home_toml: String,
+    pub supply: crate::scenario::SupplyKind,
+}
+
+#[derive(Clone, Debug)]
+pub struct Ownership {
+    pub template: String,
+    pub probability: f64,
+    pub count: (u32, u32),
+    /// Kinds that may own it (empty: all).
+    pub kinds: Vec<String>,
+    /// Wiring choices per kind (absent: the template's own wiring).
+    pub wiring: Vec<(String, Vec<String>)>,
+    pub power: f64,
+    pub time: f64,
+}
+
+#[derive(Clone, Debug)]
+pub struct Population {
+    pub path: PathBuf,
+    pub label: String,
+    pub seed: u64,
+    pub run_toml: String,
+    pub meter_toml: String,
+    pub kinds: Vec<HomeKind>,
+    pub owns: Vec<Ownership>,
+}
+
+/// A TOML value written back as text (strings quoted; inline tables and arrays).
+fn toml_text(n: &Node) -> String {
+    match &n.v {
+        Val::Str(s) => format!("{s:?}"),
+        Val::Int(i) => i.to_string(),
+        Val::Float(f) => format!("{f:?}"),
+        Val::Bool(b) => b.to_string(),
+        Val::Date(d) => format!("{d:?}"),
+        Val::Arr(a) => format!("[{}]", a.iter().map(toml_text).collect::<Vec<_>>().join(", ")),
+        Val::Table(t) => format!("{{ {} }}", t.iter().map(|e| format!("{} = {}", e.key, toml_text(&e.node))).collect::<Vec<_>>().join(", ")),
+    }
+}
+
+fn section(n: &Node) -> String {
+    match &n.v {
+        Val::Table(t) => t.iter().map(|e| format!("{} = {}\n", e.key, toml_text(&e.node))).collect(),
+        _ => String::new(),
+    }
+}
+
+/// Reads and checks a population file; every rule is checked before any home is made.
+pub fn load(path: &Path) -> Result<Population, Error> {
+    let text = std::fs::read_to_string(path).map_err(|e| Error::file(path, format!("cannot read the population: {e}"), "check the path"))?;
+    let mut sources = Sources::default();
+    let file = sources.add(path, text);
+    let root = parse_toml(&sources, file)?;
+    let ctx = Ctx { sources: &sources };
+    let top = ctx.table(&root, "")?;
+    let f = ctx.table(top.req("fleet", "the [fleet] section: label and seed")?, "fleet")?;
+    let label = f.string("label")?.unwrap_or("fleet").to_string();
+    let seed = match f.opt("seed") {
+        Some(n) => match n.v {
+            Val::Int(i) if i >= 0 => i as u64,
+            _ => return Err(ctx.err(n, "fleet.seed", "expected a whole number zero or more", "write seed = 42")),
+        },
+        None => 1,
+    };
+    f.finish()?;
+    let run = top.req("run", "the [run] section every home shares: start, length, step")?;
+    let run_t = ctx.table(run, "run")?;
+    if run_t.has("seed") {
+        return Err(ctx.err(run, "run.seed", "a home's seed comes from the fleet's seed and its index", "set [fleet] seed instead"));
+    }
+    let _ = (run_t.opt("start"), run_t.opt("length"), run_t.opt("step"));
+    run_t.finish()?;
+    let meter_toml = top.opt("meter").map(section).unwrap_or_default();
+    let kinds_node = top.req("kind", "one [[kind]] per home type: name, weight and its [home] keys")?;
+    let mut kinds = Vec::new();
+    for (i, n) in ctx.array(kinds_node, "kind")?.iter().enumerate() {
+        let path = format!("kind[{i}]");
+        let t = ctx.table(n, &path)?;
+        let name = t.string("name")?.ok_or_else(|| ctx.err(n, &path, "missing key `name`", "add name = \"house\""))?.to_string();
+        let wn = t.req("weight", "its share of the fleet, e.g. 3")?;
+        let weight = ctx.number(wn, &t.path_of("weight"))?;
+        if !(weight > 0.0) {
+            return Err(ctx.err(wn, &t.path_of("weight"), "a weight must be greater than zero", "write weight = 1"));
+        }
+        let supply_node = t.req("supply", "split-phase, three-phase or single-phase")?;
+        let supply = match ctx.string(supply_node, &t.path_of("supply"))? {
+            "split-phase" => crate::scenario::SupplyKind::SplitPhase,
+            "three-phase" => crate::scenario::SupplyKind::ThreePhase,
+            "single-phase" => crate::scenario::SupplyKind::SinglePhase,
+            other => return Err(ctx.err(supply_node, &t.path_of("supply"), format!("unknown supply \"{other}\""), "write \"split-phase\", \"three-phase\" or \"single-phase\"")),
+        };
+        let mut home = String::new();
+        if let Val::Table(entries) = &n.v {
+            for e in entries.iter().filter(|e| e.key != "name" && e.key != "weight") {
+                home += &format!("{} = {}\n", e.key, toml_text(&e.node));
+            }
+        }
+        // The other keys are [home] keys; the scenario check of each home reads them.
+        t.all_keys_known();
+        t.finish()?;
+        kinds.push(HomeKind { name, weight, home_toml: home, supply });
+    }
+    let mut owns = Vec::new();
+    if let Some(list) = top.opt("owns") {
+        for (i, n) in ctx.array(list, "owns")?.iter().enumerate() {
+            let path = format!("owns[{i}]");
+            let t = ctx.table(n, &path)?;
+            let tn = t.req("template", "a template of the library, e.g. \"fridge\"")?;
+            let template = ctx.string(tn, &t.path_of("template"))?.to_string();
+            let dir = path_parent(&ctx, path_of_file(&ctx)).join("library");
+            if !dir.join(format!("{template}.toml")).is_file() && library::builtin(&template).is_none() {
+                return Err(ctx.err(tn, &t.path_of("template"), format!("no template named \"{template}\""), format!("templates built in: {}", library::names().join(", "))));
+            }
+            let pn = t.req("probability", "the share of homes that own it, 0 … 1")?;
+            let probability = ctx.number(pn, &t.path_of("probability"))?;
+            if !(0.0..=1.0).contains(&probability) {
+                return Err(ctx.err(pn, &t.path_of("probability"), format!("probability {probability} is outside 0 … 1"), "write a probability such as 0.6"));
+            }
+            let count = match t.opt("count") {
+                None => (1, 1),
+                Some(c) => match &c.v {
+                    Val::Int(k) if *k >= 1 => (*k as u32, *k as u32),
+                    Val::Arr(a) if a.len() == 2 => match (&a[0].v, &a[1].v) {
+                        (Val::Int(lo), Val::Int(hi)) if *lo >= 1 && hi >= lo && *hi <= 9 => (*lo as u32, *hi as u32),
+                        _ => return Err(ctx.err(c, &t.path_of("count"), "a count range is [least, most], 1 … 9", "write count = [1, 2]")),
+                    },
+                    _ => return Err(ctx.err(c, &t.path_of("count"), "expected a count or a range [least, most]", "write count = 2 or count = [1, 2]")),
+                },
+            };
+            let kind_names: Vec<String> = match t.opt("kinds") {
+                None => vec![],
+                Some(k) => ctx.array(k, &t.path_of("kinds"))?.iter().map(|x| ctx.string(x, &t.path_of("kinds")).map(str::to_string)).collect::<Result<_, _>>()?,
+            };
+            for k in &kind_names {
+                if !kinds.iter().any(|x| &x.name == k) {
+                    return Err(ctx.err(t.opt("kinds").unwrap(), &t.path_of("kinds"), format!("no home kind named \"{k}\""), format!("kinds: {}", kinds.iter().map(|x| x.name.as_str()).collect::<Vec<_>>().join(", "))));
+                }
+            }
+            let mut wiring = Vec::new();
+            if let Some(w) = t.opt("wiring") {
+                let wt = ctx.table(w, &t.path_of("wiring"))?;
+                wt.all_keys_known();
+                for e in wt.entries() {
+                    let kind = kinds.iter().find(|x| x.name == e.key).ok_or_else(|| ctx.err(&e.node, &format!("{}.{}", t.path_of("wiring"), e.key), format!("no home kind named \"{}\"", e.key), "name a [[kind]]"))?;
+                    let mut choices = Vec::new();
+                    for c in ctx.array(&e.node, &e.key)? {
+                        let p = format!("{}.{}", t.path_of("wiring"), e.key);
+                        crate::scenario::decode::parse_wiring(&ctx, c, &p, kind.supply)?;
+                        choices.push(ctx.string(c, &p)?.to_string());
+                    }
+                    wiring.push((e.key.clone(), choices));
+                }
+                wt.finish()?;
+            }
+            let power = t.non_negative("power", Kind::Fraction)?.unwrap_or(0.0);
+            let time = t.non_negative("time", Kind::Fraction)?.unwrap_or(0.0);
+            if power > 0.5 || time > 0.5 {
+                return Err(ctx.err(n, &path, "variation above ±50 % of a template", "write e.g. power = \"10 %\", time = \"15 %\""));
+            }
+            t.finish()?;
+            owns.push(Ownership { template, probability, count, kinds: kind_names, wiring, power, time });
+        }
+    }
+    let run_toml = section(run);
+    top.finish()?;
+    let pop = Population { path: path.to_path_buf(), label, seed, run_toml, meter_toml, kinds, owns };
+    // A population that cannot produce a valid home fails here, before any
+    // home is written: home 0 of every kind with every template it may own.
+    for (k, kind) in pop.kinds.iter().enumerate() {
+        let text = pop.scenario_text_all(k);
+        crate::scenario::load_str(&pop.home_path(0), text).map_err(|mut e| {
+            e.message = format!("home kind \"{}\" cannot host the population's appliances: {}", kind.name, e.message);
+            e
+        })?;
+    }
+    Ok(pop)
+}
+
+fn path_of_file<'a>(ctx: &'a Ctx) -> &'a Path {
+    ctx.sources.path(0)
+}
+
+fn path_parent(_ctx: &Ctx, p: &Path) -> PathBuf {
+    p.parent().map(Path::to_path_buf).unwrap_or_default()
+}
+
+impl Population {
+    fn home_path(&self, i: u64) -> PathBuf {
+        let stem = self.path.file_stem().map(|s| s.to_string_lossy().to_string()).unwrap_or_default();
+        self.path.with_file_name(format!("{stem}.home-{i:05}.toml"))
+    }
+
+    fn header(&self, kind: &HomeKind, i: u64, seed: u64) -> String {
+        format!("[home]\nlabel = {:?}\n{}\n[run]\n{}seed = {seed}\n\n[meter]\n{}\n", format!("{} home {i:05}", self.label), kind.home_toml, self.run_toml, self.meter_toml)
+    }
+
+    /// Every template a kind may own, once, unvaried (the up-front check).
+    fn scenario_text_all(&self, k: usize) -> String {
+        let kind = &self.kinds[k];
+        let mut t = self.header(kind, 0, 1);
+        for (j, o) in self.owns.iter().enumerate() {
+            if !o.kinds.is_empty() && !o.kinds.contains(&kind.name) {
+                continue;
+            }
+            t += &format!("[[appliance]]\nid = \"a{j}\"\ntemplate = {:?}\n", o.template);
+            if let Some((_, w)) = o.wiring.iter().find(|(n, _)| *n == kind.name) {
+                t += &format!("wiring = {:?}\n", w[0]);
+            }
+        }
+        if !t.contains("[[appliance]]") {
+            t += "[[appliance]]\nid = \"none\"\nwiring = \"L1-N\"\nbehaviour = \"steady\"\nstates = [{ power = \"0 W\" }]\n";
+        }
+        t
+    }
+
+    /// The scenario of home `i`, from (population seed, home index) alone.
+    pub fn home(&self, i: u64) -> Result<(Scenario, String), Error> {
+        let id = format!("home-{i:05}");
+        let mut rng = stream(self.seed, &id, "population");
+        let weights: Vec<f64> = self.kinds.iter().map(|k| k.weight).collect();
+        let k = categorical(&weights, &mut rng);
+        let kind = &self.kinds[k];
+        // 63 bits: a TOML integer is signed.
+        let seed: u64 = stream(self.seed, &id, "seed").random::<u64>() >> 1;
+        let mut t = self.header(kind, i, seed);
+        let mut n_apps = 0;
+        for o in &self.owns {
+            // Every template draws the same numbers whether or not the kind
+            // may own it, so one template's change leaves the others alone.
+            let u: f64 = rng.random();
+            let count = rng.random_range(o.count.0..=o.count.1);
+            let allowed = o.kinds.is_empty() || o.kinds.contains(&kind.name);
+            for c in 0..o.count.1 {
+                let w: f64 = rng.random();
+                let ps: f64 = rng.random_range(-1.0..=1.0);
+                let ts: f64 = rng.random_range(-1.0..=1.0);
+                if !allowed || u >= o.probability || c >= count {
+                    continue;
+                }
+                let app_id = if c == 0 { o.template.clone() } else { format!("{}_{}", o.template, c + 1) };
+                t += &format!("\n[[appliance]]\nid = {app_id:?}\ntemplate = {:?}\n", o.template);
+                if let Some((_, choices)) = o.wiring.iter().find(|(n, _)| *n == kind.name) {
+                    t += &format!("wiring = {:?}\n", choices[((w * choices.len() as f64) as usize).min(choices.len() - 1)]);
+                }
+                if o.power > 0.0 {
+                    t += &format!("power_scale = {:.4}\n", 1.0 + o.power * ps);
+                }
+                if o.time > 0.0 {
+                    t += &format!("time_scale = {:.4}\n", 1.0 + o.time * ts);
+                }
+                n_apps += 1;
+            }
+        }
+        if n_apps == 0 {
+            // A home owns at least its standby: nothing at all is no home.
+            t += "\n[[appliance]]\nid = \"standby\"\ntemplate = \"standby\"\n";
+        }
+        let mut s = crate::scenario::load_str(&self.home_path(i), t.clone())?;
+        s.name = format!("home={i:05}");
+        s.source_toml = Some(format!("# Home {i} of the population {} (kind \"{}\"), resolved by loadloom.\n{t}", self.path.display(), kind.name));
+        Ok((s, kind.name.clone()))
+    }
+}
+
+/// Which homes this run makes: all, or shard I of N (homes with index % N == I).
+#[derive(Clone, Copy, Debug)]
+pub struct Shard {
+    pub index: u64,
+    pub count: u64,
+}
+
+impl Shard {
+    /// `I/N`, or `auto` from a Slurm job array (SLURM_ARRAY_TASK_ID,
+    /// SLURM_ARRAY_TASK_COUNT, SLURM_ARRAY_TASK_MIN) or a Kubernetes Indexed
+    /// Job (JOB_COMPLETION_INDEX, with the count in LOADLOOM_SHARDS).
+    pub fn parse(text: &str, env: &dyn Fn(&str) -> Option<String>) -> Result<Shard, String> {
+        let num = |s: &str| s.trim().parse::<u64>().map_err(|_| format!("\"{s}\" is not a whole number"));
+        let (i, n) = if text == "auto" {
+            if let Some(id) = env("SLURM_ARRAY_TASK_ID") {
+                let min = env("SLURM_ARRAY_TASK_MIN").map(|m| num(&m)).transpose()?.unwrap_or(0);
+                let count = env("SLURM_ARRAY_TASK_COUNT").ok_or("SLURM_ARRAY_TASK_ID is set but SLURM_ARRAY_TASK_COUNT is not")?;
+                (num(&id)?.checked_sub(min).ok_or("SLURM_ARRAY_TASK_ID is below SLURM_ARRAY_TASK_MIN")?, num(&count)?)
+            } else if let Some(id) = env("JOB_COMPLETION_INDEX") {
+                let count = env("LOADLOOM_SHARDS").ok_or("JOB_COMPLETION_INDEX is set: give the number of shards in LOADLOOM_SHARDS (the Job's completions)")?;
+                (num(&id)?, num(&count)?)
+            } else {
+                return Err("--shard auto found neither a Slurm array (SLURM_ARRAY_TASK_ID) nor a Kubernetes Indexed Job (JOB_COMPLETION_INDEX)".into());
+            }
+        } else {
+            let (a, b) = text.split_once('/').ok_or_else(|| format!("--shard {text}: expected I/N, e.g. 0/4, or auto"))?;
+            (num(a)?, num(b)?)
+        };
+        if n == 0 || i >= n {
+            return Err(format!("shard {i} of {n} does not exist: I runs from 0 to N − 1"));
+        }
+        Ok(Shard { index: i, count: n })
+    }
+}
+
+fn home_dir(out: &Path, i: u64) -> PathBuf {
+    out.join(format!("home={i:05}"))
+}
+
+/// Whether home `i` is written completely (its files match its manifest).
+pub fn is_complete(out: &Path, i: u64) -> bool {
+    solver_check::Dataset::open(&home_dir(out, i)).is_ok_and(|d| d.verify().is_ok())
+}
+
+pub struct FleetRun {
+    pub made: u64,
+    pub skipped: u64,
+    pub index_written: bool,
+}
+
+/// Makes the homes of `shard` among `homes`, `jobs` at a time; skips homes
+/// already complete; writes the index when every home of the fleet is there.
+pub fn run(pop: &Population, homes: u64, out: &Path, jobs: usize, shard: Shard, progress: &(dyn Fn(u64, u64) + Sync)) -> Result<FleetRun, String> {
+    std::fs::create_dir_all(out).map_err(|e| format!("cannot create {}: {e}", out.display()))?;
+    // Partial folders of an interrupted run are redone.
+    if let Ok(rd) = std::fs::read_dir(out) {
+        for e in rd.flatten() {
+            let n = e.file_name().to_string_lossy().to_string();
+            if n.starts_with(".home=") && (n.contains(".partial-") || n.contains(".old-")) {
+                let _ = std::fs::remove_dir_all(e.path());
+            }
+        }
+    }
+    let mine: Vec<u64> = (0..homes).filter(|i| i % shard.count == shard.index).collect();
+    let todo: Vec<u64> = mine.iter().copied().filter(|&i| !is_complete(out, i)).collect();
+    let skipped = (mine.len() - todo.len()) as u64;
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let done = std::sync::atomic::AtomicU64::new(0);
+    let failure: std::sync::Mutex<Option<String>> = std::sync::Mutex::new(None);
+    std::thread::scope(|sc| {
+        for _ in 0..jobs.max(1) {
+            sc.spawn(|| loop {
+                let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                if k >= todo.len() || failure.lock().unwrap().is_some() {
+                    break;
+                }
+                let i = todo[k];
+                let r = pop.home(i).map_err(|e| e.to_string()).and_then(|(s, _)| crate::dataset::write(&s, out, crate::dataset::Format::Parquet, &mut |_| {}).map(|_| ()).map_err(|e| format!("home {i}: {e}")));
+                if let Err(e) = r {
+                    *failure.lock().unwrap() = Some(e);
+                    break;
+                }
+                progress(done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1, todo.len() as u64);
+            });
+        }
+    });
+    if let Some(e) = failure.into_inner().unwrap() {
+        return Err(e);
+    }
+    let all = (0..homes).all(|i| home_dir(out, i).join("manifest.json").is_file());
+    if all {
+        write_index(pop, homes, out)?;
+    }
+    Ok(FleetRun { made: todo.len() as u64, skipped, index_written: all })
+}
+
+/// `homes.parquet` (one row per home, from the homes' manifests) and `fleet.json`.
+fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
+    use arrow_array::{ArrayRef, Float64Array, Int64Array, RecordBatch, StringArray};
+    use arrow_schema::{DataType, Field, Schema};
+    use std::sync::Arc;
+    let (mut ids, mut kinds, mut supplies, mut apps, mut counts, mut kwh, mut rows) = (vec![], vec![], vec![], vec![], vec![], vec![], vec![]);
+    let mut owned: std::collections::BTreeMap<String, u64> = Default::default();
+    for i in 0..homes {
+        let m: Value = serde_json::from_str(&std::fs::read_to_string(home_dir(out, i).join("manifest.json")).map_err(|e| e.to_string())?).map_err(|e| e.to_string())?;
+        let list: Vec<String> = m["appliances"].as_array().map(|a| a.iter().filter_map(|x| x["id"].as_str().map(str::to_string)).collect()).unwrap_or_default();
+        let mut templates: Vec<String> = m["appliances"].as_array().map(|a| a.iter().filter_map(|x| x["template"].as_str().map(str::to_string)).collect()).unwrap_or_default();
+        templates.dedup();
+        for t in templates {
+            *owned.entry(t).or_default() += 1;
+        }
+        ids.push(format!("{i:05}"));
+        let (_, kind) = pop.home(i).map_err(|e| e.to_string())?;
+        kinds.push(kind);
+        supplies.push(m["supply"]["kind"].as_str().unwrap_or("").to_string());
+        counts.push(list.len() as i64);
+        apps.push(list.join(","));
+        kwh.push(m["summary"]["energy_kwh"].as_f64().unwrap_or(0.0));
+        rows.push(m["files"]["meters.parquet"]["rows"].as_i64().unwrap_or(0));
+    }
+    let schema = Arc::new(Schema::new(vec![
+        Field::new("home", DataType::Utf8, false),
+        Field::new("kind", DataType::Utf8, false),
+        Field::new("supply", DataType::Utf8, false),
+        Field::new("appliances", DataType::Int64, false),
+        Field::new("appliance_ids", DataType::Utf8, false),
+        Field::new("energy_kwh", DataType::Float64, false),
+        Field::new("meter_rows", DataType::Int64, false),
+    ]));
+    let cols: Vec<ArrayRef> = vec![
+        Arc::new(StringArray::from(ids)),
+        Arc::new(StringArray::from(kinds.clone())),
+        Arc::new(StringArray::from(supplies)),
+        Arc::new(Int64Array::from(counts)),
+        Arc::new(StringArray::from(apps)),
+        Arc::new(Float64Array::from(kwh.clone())),
+        Arc::new(Int64Array::from(rows)),
+    ];
+    let batch = RecordBatch::try_new(schema.clone(), cols).map_err(|e| e.to_string())?;
+    let tmp = out.join(".homes.parquet.partial");
+    let mut w = parquet::arrow::ArrowWriter::try_new(std::fs::File::create(&tmp).map_err(|e| e.to_string())?, schema, None).map_err(|e| e.to_string())?;
+    w.write(&batch).map_err(|e| e.to_string())?;
+    w.close().map_err(|e| e.to_string())?;
+    std::fs::rename(&tmp, out.join("homes.parquet")).map_err(|e| e.to_string())?;
+    let kind_counts: serde_json::Map<String, Value> = pop.kinds.iter().map(|k| (k.name.clone(), json!(kinds.iter().filter(|x| **x == k.name).count()))).collect();
+    let summary = json!({
+        "format": "loadloom-fleet/1",
+        "population": pop.path.display().to_string(),
+        "label": pop.label,
+        "seed": pop.seed,
+        "homes": homes,
+        "kinds": kind_counts,
+        "ownership": owned.iter().map(|(t, n)| (t.clone(), json!({ "homes": n, "share": *n as f64 / homes as f64 }))).collect::<serde_json::Map<_, _>>(),
+        "energy_kwh": kwh.iter().sum::<f64>(),
+        "layout": "home=NNNNN/{meters,truth,events}.parquet, manifest.json, scenario.toml (Hive-partitioned by home)",
+    });
+    std::fs::write(out.join("fleet.json"), serde_json::to_string_pretty(&summary).expect("JSON") + "\n").map_err(|e| e.to_string())
+}
