@@ -36,6 +36,16 @@ pub struct Ownership {
     pub wiring: Vec<(String, Vec<String>)>,
     pub power: f64,
     pub time: f64,
+    /// Habits shifted by a uniform amount within ±`shift_h` hours.
+    pub shift_h: f64,
+}
+
+#[derive(Clone, Debug)]
+pub struct Occupancy {
+    pub name: String,
+    pub weight: f64,
+    /// The `[home] away` value (weekday hours nobody is home), if any.
+    pub away: Option<String>,
 }
 
 #[derive(Clone, Debug)]
@@ -47,6 +57,7 @@ pub struct Population {
     pub meter_toml: String,
     pub kinds: Vec<HomeKind>,
     pub owns: Vec<Ownership>,
+    pub occupancy: Vec<Occupancy>,
 }
 
 /// A TOML value written back as text (strings quoted; inline tables and arrays).
@@ -176,18 +187,38 @@ pub fn load(path: &Path) -> Result<Population, Error> {
                 }
                 wt.finish()?;
             }
+            let shift_h = t.non_negative("shift", Kind::Duration)?.unwrap_or(0.0) / 3600.0;
+            if shift_h > 12.0 {
+                return Err(ctx.err(t.opt("shift").unwrap(), &t.path_of("shift"), "habits shifted by more than 12 hours", "write e.g. shift = \"1 h\""));
+            }
             let power = t.non_negative("power", Kind::Fraction)?.unwrap_or(0.0);
             let time = t.non_negative("time", Kind::Fraction)?.unwrap_or(0.0);
             if power > 0.5 || time > 0.5 {
                 return Err(ctx.err(n, &path, "variation above ±50 % of a template", "write e.g. power = \"10 %\", time = \"15 %\""));
             }
             t.finish()?;
-            owns.push(Ownership { template, probability, count, kinds: kind_names, wiring, power, time });
+            owns.push(Ownership { template, probability, count, kinds: kind_names, wiring, power, time, shift_h });
+        }
+    }
+    let mut occupancy = Vec::new();
+    if let Some(list) = top.opt("occupancy") {
+        for (i, n) in ctx.array(list, "occupancy")?.iter().enumerate() {
+            let path = format!("occupancy[{i}]");
+            let t = ctx.table(n, &path)?;
+            let name = t.string("name")?.unwrap_or("occupancy").to_string();
+            let wn = t.req("weight", "its share of the homes, e.g. 2")?;
+            let weight = ctx.number(wn, &t.path_of("weight"))?;
+            if !(weight > 0.0) {
+                return Err(ctx.err(wn, &t.path_of("weight"), "a weight must be greater than zero", "write weight = 1"));
+            }
+            let away = t.string("away")?.map(str::to_string);
+            t.finish()?;
+            occupancy.push(Occupancy { name, weight, away });
         }
     }
     let run_toml = section(run);
     top.finish()?;
-    let pop = Population { path: path.to_path_buf(), label, seed, run_toml, meter_toml, kinds, owns };
+    let pop = Population { path: path.to_path_buf(), label, seed, run_toml, meter_toml, kinds, owns, occupancy };
     // A population that cannot produce a valid home fails here, before any
     // home is written: home 0 of every kind with every template it may own.
     for (k, kind) in pop.kinds.iter().enumerate() {
@@ -214,14 +245,15 @@ impl Population {
         self.path.with_file_name(format!("{stem}.home-{i:05}.toml"))
     }
 
-    fn header(&self, kind: &HomeKind, i: u64, seed: u64) -> String {
-        format!("[home]\nlabel = {:?}\n{}\n[run]\n{}seed = {seed}\n\n[meter]\n{}\n", format!("{} home {i:05}", self.label), kind.home_toml, self.run_toml, self.meter_toml)
+    fn header(&self, kind: &HomeKind, away: Option<&str>, i: u64, seed: u64) -> String {
+        let away = away.map(|a| format!("away = {a:?}\n")).unwrap_or_default();
+        format!("[home]\nlabel = {:?}\n{}{away}\n[run]\n{}seed = {seed}\n\n[meter]\n{}\n", format!("{} home {i:05}", self.label), kind.home_toml, self.run_toml, self.meter_toml)
     }
 
     /// Every template a kind may own, once, unvaried (the up-front check).
     fn scenario_text_all(&self, k: usize) -> String {
         let kind = &self.kinds[k];
-        let mut t = self.header(kind, 0, 1);
+        let mut t = self.header(kind, self.occupancy.iter().find_map(|o| o.away.as_deref()), 0, 1);
         for (j, o) in self.owns.iter().enumerate() {
             if !o.kinds.is_empty() && !o.kinds.contains(&kind.name) {
                 continue;
@@ -246,7 +278,13 @@ impl Population {
         let kind = &self.kinds[k];
         // 63 bits: a TOML integer is signed.
         let seed: u64 = stream(self.seed, &id, "seed").random::<u64>() >> 1;
-        let mut t = self.header(kind, i, seed);
+        let occ = if self.occupancy.is_empty() {
+            None
+        } else {
+            let w: Vec<f64> = self.occupancy.iter().map(|o| o.weight).collect();
+            Some(&self.occupancy[categorical(&w, &mut stream(self.seed, &id, "occupancy"))])
+        };
+        let mut t = self.header(kind, occ.and_then(|o| o.away.as_deref()), i, seed);
         let mut n_apps = 0;
         for o in &self.owns {
             // Every template draws the same numbers whether or not the kind
@@ -258,6 +296,7 @@ impl Population {
                 let w: f64 = rng.random();
                 let ps: f64 = rng.random_range(-1.0..=1.0);
                 let ts: f64 = rng.random_range(-1.0..=1.0);
+                let hs: f64 = rng.random_range(-1.0..=1.0);
                 if !allowed || u >= o.probability || c >= count {
                     continue;
                 }
@@ -272,6 +311,9 @@ impl Population {
                 if o.time > 0.0 {
                     t += &format!("time_scale = {:.4}\n", 1.0 + o.time * ts);
                 }
+                if o.shift_h > 0.0 {
+                    t += &format!("habit_shift = {:.3}\n", o.shift_h * hs);
+                }
                 n_apps += 1;
             }
         }
@@ -281,7 +323,8 @@ impl Population {
         }
         let mut s = crate::scenario::load_str(&self.home_path(i), t.clone())?;
         s.name = format!("home={i:05}");
-        s.source_toml = Some(format!("# Home {i} of the population {} (kind \"{}\"), resolved by loadloom.\n{t}", self.path.display(), kind.name));
+        let occ_name = occ.map(|o| format!(", occupancy \"{}\"", o.name)).unwrap_or_default();
+        s.source_toml = Some(format!("# Home {i} of the population {} (kind \"{}\"{occ_name}), resolved by loadloom.\n{t}", self.path.display(), kind.name));
         Ok((s, kind.name.clone()))
     }
 }

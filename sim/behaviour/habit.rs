@@ -27,7 +27,7 @@ pub fn starts(h: &Habit, clock: &Clock, rng: &mut Stream) -> Vec<u64> {
         let rate = if weekend { h.weekend_starts_per_day } else { h.starts_per_day };
         let n = if rate > 0.0 { Poisson::new(rate).expect("rate checked").sample(rng) as u64 } else { 0 };
         for _ in 0..n {
-            let hour = categorical(&h.hour_weights, rng);
+            let hour = categorical(if weekend { &h.weekend_hour_weights } else { &h.hour_weights }, rng);
             let secs = rng.random_range(0.0..3600.0);
             let local = day.at(hour as i8, 0, 0, 0);
             let Ok(z) = local.to_zoned(clock.tz.clone()) else { continue };

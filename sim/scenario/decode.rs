@@ -123,6 +123,13 @@ fn decode(ctx: &Ctx, root: &Node, name: String, templates: &[(String, usize, Nod
     if let Some(n) = top.opt("unmetered") {
         decode_list(ctx, n, "unmetered", &home, templates, &mut appliances)?;
     }
+    if let Some(away) = home.away {
+        for a in appliances.iter_mut() {
+            for h in a.behaviour.habits_mut() {
+                h.mask_weekdays(&away);
+            }
+        }
+    }
     let unmetered = appliances.split_off(metered);
     let waveforms = match top.opt("waveform") {
         Some(n) => decode_waveforms(ctx, n, &home, &run)?,
@@ -228,8 +235,22 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
             src
         }
     };
+    let away = match t.opt("away") {
+        Some(n) => {
+            let w = parse_hours(ctx, n, "home.away")?;
+            let mut a = [false; 24];
+            for h in 0..24 {
+                a[h] = w[h] > 0.0;
+            }
+            if a.iter().all(|x| *x) {
+                return Err(ctx.err(n, "home.away", "away all day leaves no hour to start anything", "write the hours nobody is home, e.g. away = \"8-17\""));
+            }
+            Some(a)
+        }
+        None => None,
+    };
     t.finish()?;
-    Ok(Home { label, supply, voltage_v, frequency_hz, service_a, timezone, source })
+    Ok(Home { label, supply, voltage_v, frequency_hz, service_a, timezone, source, away })
 }
 
 fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
@@ -765,7 +786,7 @@ fn decode_habit(ctx: &Ctx, node: &Node, path: &str) -> Result<Habit, Error> {
         None => vec![1.0 / 24.0; 24],
     };
     t.finish()?;
-    Ok(Habit { starts_per_day: starts, weekend_starts_per_day: weekend, hour_weights })
+    Ok(Habit { starts_per_day: starts, weekend_starts_per_day: weekend, weekend_hour_weights: hour_weights.clone(), hour_weights })
 }
 
 fn state_name(ctx: &Ctx, t: &Table, fallback: &str) -> Result<String, Error> {
@@ -932,6 +953,15 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
     // of the behaviour, multiplied.
     let mut states = states;
     let mut behaviour = behaviour;
+    if let Some(n) = t.opt("habit_shift") {
+        let hours = ctx.number(n, &t.path_of("habit_shift"))?;
+        if hours.abs() > 12.0 {
+            return Err(ctx.err(n, &t.path_of("habit_shift"), "a habit shifted by more than 12 hours", "write hours within ±12, e.g. habit_shift = 1.5"));
+        }
+        for h in behaviour.habits_mut() {
+            h.shift(hours);
+        }
+    }
     for (key, what) in [("power_scale", "power"), ("time_scale", "time")] {
         if let Some(n) = t.opt(key) {
             let k = ctx.number(n, &t.path_of(key))?;

@@ -237,8 +237,39 @@ impl Dist {
 pub struct Habit {
     pub starts_per_day: f64,
     pub weekend_starts_per_day: f64,
-    /// 24 non-negative weights, one per local hour, summing to 1.
+    /// 24 non-negative weights, one per local hour, summing to 1 (weekdays).
     pub hour_weights: Vec<f64>,
+    /// The same for Saturdays and Sundays.
+    pub weekend_hour_weights: Vec<f64>,
+}
+
+impl Habit {
+    /// Shifts both weight vectors later by `hours` (fractions interpolated).
+    pub fn shift(&mut self, hours: f64) {
+        let rot = |w: &[f64]| -> Vec<f64> {
+            let k = hours.floor();
+            let f = hours - k;
+            (0..24)
+                .map(|h| {
+                    let a = (h as i64 - k as i64).rem_euclid(24) as usize;
+                    let b = (h as i64 - k as i64 - 1).rem_euclid(24) as usize;
+                    (1.0 - f) * w[a] + f * w[b]
+                })
+                .collect()
+        };
+        self.hour_weights = rot(&self.hour_weights);
+        self.weekend_hour_weights = rot(&self.weekend_hour_weights);
+    }
+
+    /// Nobody is home on weekdays in the `away` hours: nothing starts then
+    /// (unless nothing else remains).
+    pub fn mask_weekdays(&mut self, away: &[bool; 24]) {
+        let w: Vec<f64> = self.hour_weights.iter().enumerate().map(|(h, x)| if away[h] { 0.0 } else { *x }).collect();
+        let sum: f64 = w.iter().sum();
+        if sum > 0.0 {
+            self.hour_weights = w.iter().map(|x| x / sum).collect();
+        }
+    }
 }
 
 #[derive(Clone, Debug, Serialize)]
@@ -276,6 +307,15 @@ pub enum Behaviour {
 }
 
 impl Behaviour {
+    /// The habits of this behaviour (programs, sessions).
+    pub fn habits_mut(&mut self) -> Vec<&mut Habit> {
+        match self {
+            Behaviour::Program { habit, .. } => vec![habit],
+            Behaviour::Modulating { session: Some(s), .. } => vec![&mut s.habit],
+            _ => vec![],
+        }
+    }
+
     pub fn name(&self) -> &'static str {
         match self {
             Behaviour::Cycle { .. } => "cycle",
@@ -345,6 +385,8 @@ pub struct Home {
     pub service_a: f64,
     pub timezone: String,
     pub source: Source,
+    /// Weekday hours when nobody is home (an occupancy pattern).
+    pub away: Option<[bool; 24]>,
 }
 
 #[derive(Clone, Debug, Serialize)]

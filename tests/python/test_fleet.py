@@ -134,3 +134,54 @@ def test_bad_populations_exit_2_before_any_home(tmp_path, change, place):
     r = loadloom("fleet", p, "--homes", "5", "--out", tmp_path / "out", check=False)
     assert r.returncode == 2 and place in r.stderr and "street.toml:" in r.stderr, r.stderr
     assert not (tmp_path / "out").exists()
+
+
+HABITS = """
+[home]
+supply = "single-phase"
+timezone = "Europe/Dublin"
+{away}
+[run]
+start = "2027-03-01T00:00"
+length = "28 d"
+[meter]
+interval = "1 min"
+
+[[appliance]]
+id = "kettle"
+wiring = "L1-N"
+behaviour = "program"
+habit_shift = {shift}
+use = {{ starts_per_day = 4, hours = "{hours}" }}
+phases = [ {{ name = "boil", length = "3 min", power = "2 kW" }} ]
+"""
+
+
+def start_hours(simulate, name, **kw):
+    d = simulate(HABITS.format(**kw), name=name)
+    ev = pq.read_table(d / "events.parquet").to_pandas()
+    s = ev[ev["state"] == "boil"]["start"].dt.tz_convert("Europe/Dublin")
+    return s.dt.hour, s.dt.weekday
+
+
+def test_habit_shift_and_occupancy(simulate):
+    h, _ = start_hours(simulate, "plain", away="", shift=0, hours="7-8")
+    assert set(h) == {7}
+    h, _ = start_hours(simulate, "shifted", away="", shift=2, hours="7-8")
+    assert set(h) == {9}, "a shift of 2 h moves the 07:00 habit to 09:00"
+    h, _ = start_hours(simulate, "half", away="", shift=0.5, hours="7-8")
+    assert set(h) == {7, 8} and 0.3 < (h == 8).mean() < 0.7
+    h, wd = start_hours(simulate, "away", away='away = "8-17"', shift=0, hours="0-24")
+    weekday = wd < 5
+    assert not ((h[weekday] >= 8) & (h[weekday] < 17)).any(), "nobody starts the kettle while away"
+    assert ((h[~weekday] >= 8) & (h[~weekday] < 17)).any(), "weekends are not affected"
+
+
+def test_population_occupancy_is_written_into_each_home(tmp_path):
+    pop = short(tmp_path, length="10 min")
+    out = tmp_path / "o"
+    loadloom("fleet", pop, "--homes", "60", "--out", out)
+    texts = [(out / f"home={i:05}" / "scenario.toml").read_text() for i in range(60)]
+    away = sum('away = "8-17"' in t for t in texts)
+    assert stats.binomtest(away, 60, 3 / 5).pvalue > 1e-3
+    assert any("habit_shift" in t for t in texts)
