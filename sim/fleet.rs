@@ -90,13 +90,7 @@ pub fn load(path: &Path) -> Result<Population, Error> {
     let top = ctx.table(&root, "")?;
     let f = ctx.table(top.req("fleet", "the [fleet] section: label and seed")?, "fleet")?;
     let label = f.string("label")?.unwrap_or("fleet").to_string();
-    let seed = match f.opt("seed") {
-        Some(n) => match n.v {
-            Val::Int(i) if i >= 0 => i as u64,
-            _ => return Err(ctx.err(n, "fleet.seed", "expected a whole number zero or more", "write seed = 42")),
-        },
-        None => 1,
-    };
+    let seed = f.opt("seed").map(|n| ctx.whole(n, "fleet.seed")).transpose()?.unwrap_or(1);
     f.finish()?;
     let run = top.req("run", "the [run] section every home shares: start, length, step")?;
     let run_t = ctx.table(run, "run")?;
@@ -142,7 +136,7 @@ pub fn load(path: &Path) -> Result<Population, Error> {
             let t = ctx.table(n, &path)?;
             let tn = t.req("template", "a template of the library, e.g. \"fridge\"")?;
             let template = ctx.string(tn, &t.path_of("template"))?.to_string();
-            let dir = path_parent(&ctx, path_of_file(&ctx)).join("library");
+            let dir = ctx.sources.path(0).parent().map(Path::to_path_buf).unwrap_or_default().join("library");
             if !dir.join(format!("{template}.toml")).is_file() && library::builtin(&template).is_none() {
                 return Err(ctx.err(tn, &t.path_of("template"), format!("no template named \"{template}\""), format!("templates built in: {}", library::names().join(", "))));
             }
@@ -229,14 +223,6 @@ pub fn load(path: &Path) -> Result<Population, Error> {
         })?;
     }
     Ok(pop)
-}
-
-fn path_of_file<'a>(ctx: &'a Ctx) -> &'a Path {
-    ctx.sources.path(0)
-}
-
-fn path_parent(_ctx: &Ctx, p: &Path) -> PathBuf {
-    p.parent().map(Path::to_path_buf).unwrap_or_default()
 }
 
 impl Population {

@@ -276,13 +276,7 @@ fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
     if ((length_s / step_s).round() - length_s / step_s).abs() > 1e-6 {
         return Err(ctx.err(length_node, "run.length", "the length is not a whole number of steps", format!("make it a multiple of the step ({step_s} s)")));
     }
-    let seed = match t.opt("seed") {
-        Some(n) => match n.v {
-            Val::Int(i) if i >= 0 => i as u64,
-            _ => return Err(ctx.err(n, "run.seed", "expected a whole number zero or more", "write seed = 7")),
-        },
-        None => 1,
-    };
+    let seed = t.opt("seed").map(|n| ctx.whole(n, "run.seed")).transpose()?.unwrap_or(1);
     t.finish()?;
     Ok(Run { start_local, start_utc_ms, length_s, step_s, seed })
 }

@@ -44,6 +44,14 @@ impl<'s> Ctx<'s> {
         }
     }
 
+    /// A whole number zero or more (seeds).
+    pub fn whole(&self, node: &Node, path: &str) -> Result<u64, Error> {
+        match node.v {
+            Val::Int(i) if i >= 0 => Ok(i as u64),
+            _ => Err(self.err(node, path, "expected a whole number zero or more", "write e.g. seed = 7")),
+        }
+    }
+
     pub fn quantity(&self, node: &Node, path: &str, kind: Kind) -> Result<f64, Error> {
         match &node.v {
             Val::Str(s) => parse_quantity(s, kind).map_err(|m| self.err(node, path, m, format!("write {}", kind.example()))),

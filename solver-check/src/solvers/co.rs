@@ -234,7 +234,6 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
             })
             .collect::<Result<_, _>>()?;
         let mut cache: HashMap<Vec<i64>, (usize, Vec<u32>)> = HashMap::new();
-        let mut lv = vec![0; apps.len()];
         for t in 0..n {
             let key: Vec<i64> = meas.iter().map(|m| (m[t] / BIN_W).round() as i64).collect();
             let (ci, targets) = cache
@@ -266,7 +265,6 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
                 let mut out = vec![0; single[x].len()];
                 ks[x].levels(targets[x], &mut out);
                 for (j, &k) in single[x].iter().enumerate() {
-                    lv[k] = out[j];
                     level_of[k][t] = out[j] as u8;
                 }
             }
