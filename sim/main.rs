@@ -155,6 +155,19 @@ enum Command {
         #[arg(long, value_name = "I/N|auto")]
         shard: Option<String>,
     },
+    /// Loading of each line from the meters: peak and 15-minute demand current
+    /// against the service rating, imbalance, neutral current. (Checks of
+    /// declared wiring are to come.)
+    Audit {
+        /// The dataset folder (or a real measurement converted to the dataset format).
+        dataset: PathBuf,
+        /// Print JSON (format loadloom-audit/1).
+        #[arg(long, conflicts_with = "markdown")]
+        json: bool,
+        /// Print Markdown.
+        #[arg(long)]
+        markdown: bool,
+    },
     /// Print shell completions for SHELL (bash, zsh, fish, elvish, powershell).
     Completions {
         shell: clap_complete::Shell,
@@ -285,6 +298,16 @@ fn main() -> ExitCode {
     }
     let cli = Cli::parse();
     match cli.command {
+        Command::Audit { dataset, json, markdown } => match solver_check::audit::loading(&dataset) {
+            Ok(l) => {
+                print_report(json, markdown, || l.to_json(), || l.to_markdown(), || l.to_text());
+                ExitCode::SUCCESS
+            }
+            Err(m) => {
+                eprintln!("{m}");
+                ExitCode::from(BAD_INPUT)
+            }
+        },
         Command::Fleet { population, homes, out, jobs, shard } => {
             let pop = match loadloom::fleet::load(&population) {
                 Ok(p) => p,

@@ -2,6 +2,7 @@
 //! it works on any data in the dataset format, including real measurements
 //! converted to it. It never depends on the simulator.
 //!
+//! - [`audit`]: the loading picture of a dataset (the wiring checks are to come);
 //! - [`dataset`]: open a dataset folder, check its manifest and files;
 //! - [`table`]: read Parquet or CSV tables whole (small ones);
 //! - [`stream`]: stream their numeric columns batch by batch;
@@ -14,6 +15,7 @@
 //! - [`roundtrip`]: task folder, solver run, score; [`solvers`]: the built-in ones.
 
 pub mod align;
+pub mod audit;
 pub mod compare;
 pub mod dataset;
 pub mod estimate;

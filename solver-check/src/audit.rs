@@ -1,0 +1,184 @@
+//! `loadloom audit`, first part: the loading picture of a dataset, from its
+//! meters alone. Per line: the peak current, the 15-minute demand current
+//! (the largest mean over clock quarter-hours, as demand meters integrate),
+//! the mean, each against the service rating; the imbalance between lines;
+//! and the neutral current, measured and estimated from the line readings.
+//!
+//! An analysis of data, not an inspection: see [`CAUTION`].
+
+use crate::dataset::Dataset;
+use crate::stream::header;
+use serde_json::{json, Value};
+use std::path::Path;
+
+pub const CAUTION: &str = "Caution: this is an analysis of data, not an inspection of the installation. Local electrical codes (for example the NEC in the US, IEC 60364 and national rules in Europe) and a licensed electrician decide what is safe and allowed.";
+
+pub struct LineLoading {
+    pub line: String,
+    pub peak_a: f64,
+    pub demand_15min_a: f64,
+    pub mean_a: f64,
+}
+
+pub struct Loading {
+    pub service_a: f64,
+    pub lines: Vec<LineLoading>,
+    /// Largest deviation of a line's mean current from the lines' average,
+    /// over that average (common practice, no source).
+    pub imbalance: Option<f64>,
+    pub neutral_peak_measured_a: Option<f64>,
+    pub neutral_peak_estimated_a: f64,
+}
+
+/// Line-to-neutral phase angles of the supply, degrees (from the manifest).
+fn angles(ds: &Dataset) -> Vec<f64> {
+    ds.manifest["supply"]["phase_angles_deg"].as_array().map(|a| a.iter().filter_map(|x| x.as_f64()).collect()).unwrap_or_default()
+}
+
+pub fn loading(dataset: &Path) -> Result<Loading, String> {
+    let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
+    let service_a = ds.manifest["supply"]["service_a"].as_f64().unwrap_or(0.0);
+    let file = ["meters.parquet", "meters.csv"].into_iter().find(|f| ds.manifest["files"].get(*f).is_some()).ok_or("the manifest lists no meters file")?;
+    let h = header(&dataset.join(file)).map_err(|e| e.to_string())?;
+    let n = ds.lines.len();
+    let mut cols = Vec::new();
+    for l in &ds.lines {
+        for q in ["i_a", "p_w", "q_var", "v_v"] {
+            cols.push(format!("{l}_{q}"));
+        }
+    }
+    let has_n = h.has("n_i_a");
+    if has_n {
+        cols.push("n_i_a".into());
+    }
+    let ang = angles(&ds);
+    let (mut peak, mut sum, mut count) = (vec![0.0f64; n], vec![0.0f64; n], vec![0u64; n]);
+    let (mut n_peak, mut n_est_peak) = (None::<f64>, 0.0f64);
+    // 15-minute demand: means over clock quarter-hours (UTC quarter-hours are
+    // local ones too for every zone offset in whole quarter-hours).
+    let (mut q_key, mut q_sum, mut q_n, mut demand) = (i64::MIN, vec![0.0f64; n], 0u64, vec![0.0f64; n]);
+    let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
+    while let Some(b) = st.next().map_err(|e| e.to_string())? {
+        for (k, &t) in b.time_ms.iter().enumerate() {
+            let key = t.div_euclid(900_000);
+            if key != q_key {
+                if q_n > 0 {
+                    for x in 0..n {
+                        demand[x] = demand[x].max(q_sum[x] / q_n as f64);
+                    }
+                }
+                q_key = key;
+                q_sum.iter_mut().for_each(|v| *v = 0.0);
+                q_n = 0;
+            }
+            let (mut re, mut im, mut any) = (0.0, 0.0, false);
+            for x in 0..n {
+                let (i, p, q, v) = (b.cols[4 * x][k], b.cols[4 * x + 1][k], b.cols[4 * x + 2][k], b.cols[4 * x + 3][k]);
+                if i.is_nan() {
+                    continue;
+                }
+                any = true;
+                peak[x] = peak[x].max(i);
+                sum[x] += i;
+                count[x] += 1;
+                q_sum[x] += i;
+                // The line's current phasor from its readings: I = conj(S / V),
+                // with V at the supply's angle for that line.
+                if v > 0.0 && !p.is_nan() && !q.is_nan() {
+                    let a = ang.get(x).copied().unwrap_or(0.0).to_radians();
+                    let (ir, ii) = (p / v, -q / v); // conj(S)/|V| relative to V
+                    re += ir * a.cos() - ii * a.sin();
+                    im += ir * a.sin() + ii * a.cos();
+                }
+            }
+            if any {
+                q_n += 1;
+                // Kirchhoff: the neutral returns minus the sum of the line currents.
+                n_est_peak = n_est_peak.max((re * re + im * im).sqrt());
+            }
+            if has_n {
+                let v = b.cols[4 * n][k];
+                if !v.is_nan() {
+                    n_peak = Some(n_peak.unwrap_or(0.0).max(v));
+                }
+            }
+        }
+    }
+    if q_n > 0 {
+        for x in 0..n {
+            demand[x] = demand[x].max(q_sum[x] / q_n as f64);
+        }
+    }
+    let lines: Vec<LineLoading> = (0..n).map(|x| LineLoading { line: ds.lines[x].clone(), peak_a: peak[x], demand_15min_a: demand[x], mean_a: if count[x] > 0 { sum[x] / count[x] as f64 } else { 0.0 } }).collect();
+    let means: Vec<f64> = lines.iter().filter(|l| l.mean_a > 0.0).map(|l| l.mean_a).collect();
+    let imbalance = (means.len() >= 2).then(|| {
+        let avg = means.iter().sum::<f64>() / means.len() as f64;
+        means.iter().map(|m| (m - avg).abs()).fold(0.0, f64::max) / avg
+    });
+    Ok(Loading { service_a, lines, imbalance, neutral_peak_measured_a: n_peak, neutral_peak_estimated_a: n_est_peak })
+}
+
+impl Loading {
+    pub fn to_json(&self) -> Value {
+        json!({
+            "format": "loadloom-audit/1",
+            "service_a": self.service_a,
+            "lines": self.lines.iter().map(|l| json!({
+                "conductor": l.line, "peak_a": l.peak_a, "demand_15min_a": l.demand_15min_a, "mean_a": l.mean_a,
+                "peak_share_of_service": if self.service_a > 0.0 { l.peak_a / self.service_a } else { 0.0 },
+                "demand_share_of_service": if self.service_a > 0.0 { l.demand_15min_a / self.service_a } else { 0.0 },
+            })).collect::<Vec<_>>(),
+            "imbalance": self.imbalance,
+            "neutral_peak_measured_a": self.neutral_peak_measured_a,
+            "neutral_peak_estimated_a": self.neutral_peak_estimated_a,
+            "caution": CAUTION,
+        })
+    }
+
+    fn rows(&self) -> Vec<[String; 6]> {
+        let pct = |a: f64| if self.service_a > 0.0 { format!("{:.0} %", 100.0 * a / self.service_a) } else { "–".into() };
+        self.lines.iter().map(|l| [l.line.to_uppercase(), format!("{:.1}", l.peak_a), pct(l.peak_a), format!("{:.1}", l.demand_15min_a), pct(l.demand_15min_a), format!("{:.1}", l.mean_a)]).collect()
+    }
+
+    const HEAD: [&'static str; 6] = ["line", "peak A", "of service", "15-min demand A", "of service", "mean A"];
+
+    fn tail(&self) -> String {
+        let mut o = String::new();
+        if let Some(i) = self.imbalance {
+            o += &format!("imbalance between lines (largest deviation of a mean from the average): {:.0} %\n", 100.0 * i);
+        }
+        match self.neutral_peak_measured_a {
+            Some(m) => o += &format!("neutral current: peak {m:.1} A measured, {:.1} A estimated from the line readings\n", self.neutral_peak_estimated_a),
+            None => o += &format!("neutral current: peak {:.1} A estimated from the line readings\n", self.neutral_peak_estimated_a),
+        }
+        o
+    }
+
+    pub fn to_text(&self) -> String {
+        let rows = self.rows();
+        let w: Vec<usize> = (0..6).map(|c| rows.iter().map(|r| r[c].len()).chain([Self::HEAD[c].len()]).max().unwrap()).collect();
+        let line = |r: &[String]| r.iter().enumerate().map(|(c, s)| if c == 0 { format!("{s:<w$}", w = w[c]) } else { format!("{s:>w$}", w = w[c]) }).collect::<Vec<_>>().join("  ") + "\n";
+        let mut o = format!("loading against the {} A service rating\n\n", self.service_a);
+        o += &line(&Self::HEAD.map(String::from));
+        for r in &rows {
+            o += &line(r);
+        }
+        o += "\n";
+        o += &self.tail();
+        o += "\n";
+        o += CAUTION;
+        o += "\n";
+        o
+    }
+
+    pub fn to_markdown(&self) -> String {
+        let mut o = format!("Loading against the {} A service rating.\n\n| {} |\n|---|---:|---:|---:|---:|---:|\n", self.service_a, Self::HEAD.join(" | "));
+        for r in self.rows() {
+            o += &format!("| {} |\n", r.join(" | "));
+        }
+        o += "\n";
+        o += &self.tail().replace('\n', "\n\n");
+        o += &format!("> {CAUTION}\n");
+        o
+    }
+}
