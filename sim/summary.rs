@@ -9,10 +9,9 @@ use crate::dataset::manifest::state_split;
 use crate::dataset::schema::line_name;
 use crate::scenario::Scenario;
 
-/// Printed wherever loadloom speaks of wiring, loading or breakers.
-pub const CAUTION: &str = "Caution: this is an analysis of data, not an inspection of the installation. \
-Local electrical codes (for example the NEC in the US, IEC 60364 and national rules in Europe) and a \
-licensed electrician decide what is safe and allowed.";
+/// Printed wherever loadloom speaks of wiring, loading or breakers (one text
+/// for the whole project, kept with the audit).
+pub use solver_check::audit::CAUTION;
 
 pub struct AppFigures {
     pub id: String,

@@ -121,7 +121,8 @@ fn faults_json(s: &Scenario, tables: &Tables, o: &Outcome) -> Value {
     Value::Array(v)
 }
 
-pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: &[(&str, u64)], waves: &[(String, Value)], dir: &Path) -> io::Result<Value> {
+#[allow(clippy::too_many_arguments)]
+pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, card: &crate::difficulty::Difficulty, files: &[(&str, u64)], waves: &[(String, Value)], dir: &Path) -> io::Result<Value> {
     let lines = s.home.supply.lines();
     let mut file_map = Map::new();
     for (name, rows) in files {
@@ -140,14 +141,6 @@ pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: 
     };
     let days = s.run.length_s / 86400.0;
     let total_kwh: f64 = o.summary.app_energy_j.iter().sum::<f64>() / 3.6e6;
-    let unmetered_kwh: f64 = o.summary.app_energy_j[s.appliances.len()..].iter().sum::<f64>() / 3.6e6;
-    let ll_kwh: f64 = s
-        .appliances
-        .iter()
-        .enumerate()
-        .filter(|(_, a)| a.connections().iter().any(|c| c.is_line_to_line() || *c == crate::scenario::Connection::ThreePhase))
-        .map(|(k, _)| o.summary.app_energy_j[k] / 3.6e6)
-        .sum();
     Ok(json!({
         "format": FORMAT,
         "generator": { "name": "loadloom", "version": env!("CARGO_PKG_VERSION") },
@@ -189,8 +182,9 @@ pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, files: 
             "days": days,
             "energy_kwh": total_kwh,
             "energy_kwh_per_day": total_kwh / days,
-            "line_to_line_energy_share": if total_kwh > 0.0 { ll_kwh / total_kwh } else { 0.0 },
-            "unmetered_energy_share": if total_kwh > 0.0 { unmetered_kwh / total_kwh } else { 0.0 },
+            "line_to_line_energy_share": card.line_to_line_share,
+            "unmetered_energy_share": card.unmetered_share,
+            "difficulty": card.to_json(s),
             "conductor_energy_kwh": (0..lines).map(|x| (line_name(x), json!(o.summary.line_energy_j[x] / 3.6e6))).collect::<Map<_, _>>(),
             "conductor_peak_current_a": (0..lines).map(|x| (line_name(x), json!(o.summary.line_peak_a[x]))).chain(std::iter::once(("n".to_string(), json!(o.summary.neutral_peak_a)))).collect::<Map<_, _>>(),
             "events": o.events.len(),

@@ -90,8 +90,7 @@ fn write_into(s: &Scenario, dir: &Path, format: Format, progress: &mut dyn FnMut
     events.close()?;
     let files = [("meters", meter_rows), ("truth", intervals), ("events", outcome.events.len() as u64)];
     let card = crate::difficulty::card(s, &tl, &outcome.summary.app_energy_j);
-    let mut m = manifest::build(s, &tables, format, &outcome, &files, &waves, dir)?;
-    m["summary"]["difficulty"] = card.to_json(s);
+    let mut m = manifest::build(s, &tables, format, &outcome, &card, &files, &waves, dir)?;
     if let Some(toml) = &s.source_toml {
         std::fs::write(dir.join("scenario.toml"), toml)?;
         m["scenario_toml"] = serde_json::Value::String("scenario.toml".into());
