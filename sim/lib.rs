@@ -19,3 +19,4 @@ pub mod roundtrip;
 pub mod waveform;
 pub mod difficulty;
 pub mod fleet;
+pub mod audit;

@@ -159,8 +159,32 @@ enum Command {
     /// against the service rating, imbalance, neutral current. (Checks of
     /// declared wiring are to come.)
     Audit {
-        /// The dataset folder (or a real measurement converted to the dataset format).
-        dataset: PathBuf,
+        /// The dataset folder, or a meters file in the dataset format (real
+        /// measurements converted to it work too).
+        #[arg(required_unless_present = "matrix")]
+        dataset: Option<PathBuf>,
+        /// What the installer declares: supply, [metering] and appliances
+        /// with their wiring, in the scenario language (a scenario file is
+        /// accepted; its [run] may be left out). Without it, only the
+        /// loading picture is printed.
+        #[arg(long, value_name = "DECLARED.toml")]
+        declared: Option<PathBuf>,
+        /// Run the fault matrix instead: inject known mistakes into the demo
+        /// scenarios, simulate, audit, and print recall and false alarms.
+        #[arg(long, conflicts_with_all = ["dataset", "declared"])]
+        matrix: bool,
+        /// Matrix: folder whose *.toml scenarios are the homes.
+        #[arg(long, default_value = "scenarios", requires = "matrix")]
+        scenarios: PathBuf,
+        /// Matrix: days simulated per case.
+        #[arg(long, default_value_t = 3.0, requires = "matrix")]
+        days: f64,
+        /// Matrix: clean simulations per scenario.
+        #[arg(long, default_value_t = 8, requires = "matrix")]
+        runs: usize,
+        /// Matrix: measuring variants to run (1s, 10s, noise, dropouts, background, all).
+        #[arg(long, default_value = "1s", requires = "matrix")]
+        variant: Vec<String>,
         /// Print JSON (format loadloom-audit/1).
         #[arg(long, conflicts_with = "markdown")]
         json: bool,
@@ -267,6 +291,85 @@ fn apply_waveforms(s: &mut Scenario, windows: &[String], rate: Option<&str>) -> 
 }
 
 /// Prints a report in the form asked for: JSON, Markdown or the terminal table.
+/// `loadloom audit --matrix`.
+fn audit_matrix(dir: &Path, days: f64, runs: usize, variants: &[String], json: bool, markdown: bool) -> ExitCode {
+    use loadloom::audit::{run_matrix, score, MatrixOptions, VARIANTS};
+    let keys = ["1s", "10s", "noise", "dropouts", "background"];
+    let mut chosen = Vec::new();
+    for v in variants {
+        if v == "all" {
+            chosen.extend(0..VARIANTS.len());
+        } else if let Some(i) = keys.iter().position(|k| k == v) {
+            chosen.push(i);
+        } else {
+            eprintln!("error: --variant {v}: unknown variant\n  = help: write one of {}, or all", keys.join(", "));
+            return ExitCode::from(BAD_INPUT);
+        }
+    }
+    if !(days >= 0.5 && days <= 60.0) || runs == 0 {
+        eprintln!("error: --days {days} --runs {runs}: the matrix needs 0.5 … 60 days and at least one clean run");
+        return ExitCode::from(BAD_INPUT);
+    }
+    let mut files: Vec<PathBuf> = match std::fs::read_dir(dir) {
+        Ok(rd) => rd.filter_map(|e| e.ok().map(|e| e.path())).filter(|p| p.extension().is_some_and(|x| x == "toml")).collect(),
+        Err(e) => {
+            eprintln!("error: cannot read {}: {e}\n  = help: run from the project folder or give --scenarios DIR", dir.display());
+            return ExitCode::from(BAD_INPUT);
+        }
+    };
+    files.sort();
+    let mut homes = Vec::new();
+    for f in &files {
+        match load(f) {
+            Ok(s) => homes.push((f.file_stem().unwrap().to_string_lossy().to_string(), s)),
+            Err(c) => return c,
+        }
+    }
+    if homes.is_empty() {
+        eprintln!("error: {} holds no scenario (*.toml)\n  = help: give --scenarios DIR", dir.display());
+        return ExitCode::from(BAD_INPUT);
+    }
+    let opts = MatrixOptions { days, clean_runs: runs };
+    let mut out_json = Vec::new();
+    let mut out_text = String::new();
+    let mut base_found: Option<Vec<Vec<(String, String)>>> = None;
+    for &i in &chosen {
+        let v = &VARIANTS[i];
+        let cases = run_matrix(&homes, &opts, v, &mut |m| eprint!("\r\x1b[2K{}: {m}", v.name));
+        eprint!("\r\x1b[2K");
+        let sc = score(&cases);
+        let keys: Vec<Vec<(String, String)>> = cases.iter().map(|c| {
+            let mut k: Vec<(String, String)> = c.found.iter().map(|f| (f.0.clone(), f.1.clone())).collect();
+            k.sort();
+            k
+        }).collect();
+        let same = base_found.as_ref().map(|b| b.iter().zip(&keys).filter(|(a, b)| a == b).count());
+        let mut j = sc.to_json(v.name);
+        j["cases_with_findings_as_first_variant"] = serde_json::json!(same);
+        j["case_list"] = serde_json::json!(cases.iter().map(|c| serde_json::json!({
+            "scenario": c.scenario, "case": c.name,
+            "injected": c.mistakes.iter().map(|m| format!("{} {}", m.kind, m.subject)).collect::<Vec<_>>(),
+            "found": c.found.iter().map(|f| format!("{} {}", f.0, f.1)).collect::<Vec<_>>(),
+        })).collect::<Vec<_>>());
+        out_json.push(j);
+        out_text += &sc.to_markdown(v.name);
+        if let Some(n) = same {
+            out_text += &format!("\nCases whose findings equal those of the first variant: {n} of {}.\n", cases.len());
+        }
+        out_text += "\n";
+        if base_found.is_none() {
+            base_found = Some(keys);
+        }
+    }
+    if json {
+        println!("{}", serde_json::to_string_pretty(&serde_json::Value::Array(out_json)).expect("JSON"));
+    } else {
+        let _ = markdown;
+        print!("{out_text}");
+    }
+    ExitCode::SUCCESS
+}
+
 fn print_report(json: bool, markdown: bool, as_json: impl FnOnce() -> serde_json::Value, as_markdown: impl FnOnce() -> String, as_text: impl FnOnce() -> String) {
     if json {
         println!("{}", serde_json::to_string_pretty(&as_json()).expect("JSON"));
@@ -298,16 +401,28 @@ fn main() -> ExitCode {
     }
     let cli = Cli::parse();
     match cli.command {
-        Command::Audit { dataset, json, markdown } => match solver_check::audit::loading(&dataset) {
-            Ok(l) => {
-                print_report(json, markdown, || l.to_json(), || l.to_markdown(), || l.to_text());
-                ExitCode::SUCCESS
+        Command::Audit { dataset, declared, matrix, scenarios, days, runs, variant, json, markdown } => {
+            if matrix {
+                return audit_matrix(&scenarios, days, runs, &variant, json, markdown);
             }
-            Err(m) => {
-                eprintln!("{m}");
-                ExitCode::from(BAD_INPUT)
+            let dataset = dataset.expect("clap requires it");
+            let result = match &declared {
+                None => solver_check::audit::loading(&dataset).map(|l| {
+                    print_report(json, markdown, || l.to_json(), || l.to_markdown(), || l.to_text() + "\n(give --declared DECLARED.toml to check the wiring and metering too)\n");
+                }),
+                Some(p) => match loadloom::audit::load_declaration(p) {
+                    Err(e) => Err(e.to_string()),
+                    Ok(d) => solver_check::audit::audit(&dataset, &d).map(|a| print_report(json, markdown, || a.to_json(), || a.to_markdown(), || a.to_text())),
+                },
+            };
+            match result {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(m) => {
+                    eprintln!("{m}");
+                    ExitCode::from(BAD_INPUT)
+                }
             }
-        },
+        }
         Command::Fleet { population, homes, out, jobs, shard } => {
             let pop = match loadloom::fleet::load(&population) {
                 Ok(p) => p,

@@ -139,8 +139,12 @@ fn decode(ctx: &Ctx, root: &Node, name: String, templates: &[(String, usize, Nod
         Some(n) => decode_faults(ctx, n, &home, &meter)?,
         None => Faults::default(),
     };
+    let metering = match top.opt("metering") {
+        Some(n) => decode_metering(ctx, n, &home)?,
+        None => (0..home.supply.lines()).map(|x| MeterChannel { conductor: Some(x), reversed: false }).collect(),
+    };
     top.finish()?;
-    Ok(Scenario { name, home, run, meter, appliances, unmetered, faults, waveforms, source_toml: None })
+    Ok(Scenario { name, home, run, meter, appliances, unmetered, faults, metering, waveforms, source_toml: None })
 }
 
 /// Decodes the `[[key]]` list into `out`; ids must be unique across all of `out`.
@@ -250,7 +254,9 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
         None => None,
     };
     t.finish()?;
-    Ok(Home { label, supply, voltage_v, frequency_hz, service_a, timezone, source, away })
+    let at = ctx.err(supply_node, "home.supply", "", "");
+    let supply_at = format!("{}:{}:{}", at.file.display(), at.line, at.column);
+    Ok(Home { label, supply, voltage_v, frequency_hz, service_a, timezone, source, away, supply_at })
 }
 
 fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
@@ -399,6 +405,36 @@ fn parse_line(ctx: &Ctx, node: &Node, path: &str, supply: SupplyKind) -> Result<
     lines.iter().position(|l| l == text).ok_or_else(|| {
         ctx.err(node, path, format!("\"{text}\" is not a line of this {} supply", supply.name()), format!("write one of {}", lines.join(", ")))
     })
+}
+
+/// `[metering]`: per channel `l1 = { conductor = "L1", orientation = "to-load" }`;
+/// conductor "none" for a channel with no CT. Channels not written have
+/// their own line's CT, facing the load.
+fn decode_metering(ctx: &Ctx, node: &Node, home: &Home) -> Result<Vec<MeterChannel>, Error> {
+    let t = ctx.table(node, "metering")?;
+    let n = home.supply.lines();
+    let mut out: Vec<MeterChannel> = (0..n).map(|x| MeterChannel { conductor: Some(x), reversed: false }).collect();
+    for (x, key) in ["l1", "l2", "l3"].into_iter().enumerate() {
+        let Some(cn) = t.opt(key) else { continue };
+        let path = format!("metering.{key}");
+        if x >= n {
+            return Err(ctx.err(cn, &path, format!("a {} supply has no channel {key}", home.supply.name()), format!("declare channels l1 … l{n} only")));
+        }
+        let c = ctx.table(cn, &path)?;
+        if let Some(v) = c.opt("conductor") {
+            out[x].conductor = if ctx.string(v, &c.path_of("conductor"))? == "none" { None } else { Some(parse_line(ctx, v, &c.path_of("conductor"), home.supply)?) };
+        }
+        if let Some(v) = c.opt("orientation") {
+            out[x].reversed = match ctx.string(v, &c.path_of("orientation"))? {
+                "to-load" => false,
+                "to-source" => true,
+                other => return Err(ctx.err(v, &c.path_of("orientation"), format!("unknown orientation \"{other}\""), "write \"to-load\" (the arrow on the CT points at the load) or \"to-source\"")),
+            };
+        }
+        c.finish()?;
+    }
+    t.finish()?;
+    Ok(out)
 }
 
 fn decode_faults(ctx: &Ctx, node: &Node, home: &Home, meter: &Meter) -> Result<Faults, Error> {

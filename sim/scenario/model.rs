@@ -387,6 +387,9 @@ pub struct Home {
     pub source: Source,
     /// Weekday hours when nobody is home (an occupancy pattern).
     pub away: Option<[bool; 24]>,
+    /// Where the supply is written ("file:line:col"), for messages.
+    #[serde(skip)]
+    pub supply_at: String,
 }
 
 #[derive(Clone, Debug, Serialize)]
@@ -469,6 +472,16 @@ impl Faults {
     }
 }
 
+/// One monitor channel as the installer declares it (`[metering]`): the
+/// conductor its CT is clamped on (None: no CT fitted) and whether it is
+/// clamped facing the source instead of the load. The simulator does not
+/// use it (what really happens is `[faults]`); the audit checks it.
+#[derive(Clone, Debug, Serialize)]
+pub struct MeterChannel {
+    pub conductor: Option<usize>,
+    pub reversed: bool,
+}
+
 /// A window of high-rate waveforms to write.
 #[derive(Clone, Debug, Serialize)]
 pub struct WaveWindow {
@@ -494,6 +507,8 @@ pub struct Scenario {
     /// Loads nobody listed: in the meters, in truth only as `unmetered_p_w`.
     pub unmetered: Vec<Appliance>,
     pub faults: Faults,
+    /// The metering as declared, one entry per line channel.
+    pub metering: Vec<MeterChannel>,
     pub waveforms: Waveforms,
     /// The scenario text itself when it was generated (a fleet's home), so
     /// the dataset carries what rebuilds it alone with `loadloom run`.

@@ -1,4 +1,4 @@
-//! `loadloom audit`, first part: the loading picture of a dataset, from its
+//! The loading picture of a dataset, from its
 //! meters alone. Per line: the peak current, the 15-minute demand current
 //! (the largest mean over clock quarter-hours, as demand meters integrate),
 //! the mean, each against the service rating; the imbalance between lines;
@@ -7,7 +7,7 @@
 //! An analysis of data, not an inspection: see [`CAUTION`].
 
 use crate::dataset::Dataset;
-use crate::stream::header;
+use crate::stream::{header, Header};
 use serde_json::{json, Value};
 use std::path::Path;
 
@@ -38,11 +38,15 @@ fn angles(ds: &Dataset) -> Vec<f64> {
 pub fn loading(dataset: &Path) -> Result<Loading, String> {
     let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
     let service_a = ds.manifest["supply"]["service_a"].as_f64().unwrap_or(0.0);
-    let file = ["meters.parquet", "meters.csv"].into_iter().find(|f| ds.manifest["files"].get(*f).is_some()).ok_or("the manifest lists no meters file")?;
-    let h = header(&dataset.join(file)).map_err(|e| e.to_string())?;
-    let n = ds.lines.len();
+    let h = header(&super::meters_file(dataset)?).map_err(|e| e.to_string())?;
+    loading_of(&h, &ds.lines, &angles(&ds), service_a)
+}
+
+/// The loading picture of a meters table with these line channels.
+pub fn loading_of(h: &Header, lines: &[String], ang: &[f64], service_a: f64) -> Result<Loading, String> {
+    let n = lines.len();
     let mut cols = Vec::new();
-    for l in &ds.lines {
+    for l in lines {
         for q in ["i_a", "p_w", "q_var", "v_v"] {
             cols.push(format!("{l}_{q}"));
         }
@@ -51,7 +55,6 @@ pub fn loading(dataset: &Path) -> Result<Loading, String> {
     if has_n {
         cols.push("n_i_a".into());
     }
-    let ang = angles(&ds);
     let (mut peak, mut sum, mut count) = (vec![0.0f64; n], vec![0.0f64; n], vec![0u64; n]);
     let (mut n_peak, mut n_est_peak) = (None::<f64>, 0.0f64);
     // 15-minute demand: means over clock quarter-hours (UTC quarter-hours are
@@ -109,7 +112,7 @@ pub fn loading(dataset: &Path) -> Result<Loading, String> {
             demand[x] = demand[x].max(q_sum[x] / q_n as f64);
         }
     }
-    let lines: Vec<LineLoading> = (0..n).map(|x| LineLoading { line: ds.lines[x].clone(), peak_a: peak[x], demand_15min_a: demand[x], mean_a: if count[x] > 0 { sum[x] / count[x] as f64 } else { 0.0 } }).collect();
+    let lines: Vec<LineLoading> = (0..n).map(|x| LineLoading { line: lines[x].clone(), peak_a: peak[x], demand_15min_a: demand[x], mean_a: if count[x] > 0 { sum[x] / count[x] as f64 } else { 0.0 } }).collect();
     let means: Vec<f64> = lines.iter().filter(|l| l.mean_a > 0.0).map(|l| l.mean_a).collect();
     let imbalance = (means.len() >= 2).then(|| {
         let avg = means.iter().sum::<f64>() / means.len() as f64;

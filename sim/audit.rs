@@ -1,0 +1,424 @@
+//! The audit's side in the simulator crate: a declaration read in the
+//! scenario language and turned into the auditor's terms, and the fault
+//! matrix that injects known installer mistakes into the demo homes,
+//! simulates them, audits them and scores the findings against the truth.
+
+use crate::behaviour::timelines;
+use crate::scenario::{self, Behaviour, Connection, DropMode, Dropouts, Dist, Scenario, NEUTRAL};
+use crate::simulate::simulate;
+use serde_json::{json, Value};
+use solver_check::audit::check::{self, Outcome};
+use solver_check::audit::decl::{Cx, DeclAppliance, DeclChannel, DeclDraw, Declared, Steps, Supply, Wiring};
+use solver_check::audit::events::{ChannelStats, Detector, Event};
+use std::path::Path;
+
+/// Reads a declaration: a scenario file, whose `[run]` may be left out.
+pub fn load_declaration(path: &Path) -> Result<Declared, scenario::Error> {
+    let text = std::fs::read_to_string(path).map_err(|e| scenario::Error::file(path, format!("cannot read the declaration: {e}"), "check the path"))?;
+    let has_run = text.parse::<toml_edit::DocumentMut>().map(|d| d.contains_key("run")).unwrap_or(true);
+    // A declaration need not say when to simulate: a placeholder run, after
+    // the text so every position in errors stays the file's own.
+    let text = if has_run { text } else { format!("{text}\n[run]\nstart = \"2001-01-01T00:00\"\nlength = \"1 d\"\n") };
+    let s = scenario::load_str(path, text)?;
+    Ok(declared(&s))
+}
+
+fn wiring(c: Connection) -> Wiring {
+    match c {
+        Connection::ThreePhase => Wiring::ThreePhase,
+        Connection::Pair(a, b) if a == NEUTRAL => Wiring::LineNeutral(b as usize),
+        Connection::Pair(a, b) if b == NEUTRAL => Wiring::LineNeutral(a as usize),
+        Connection::Pair(a, b) => Wiring::LineLine(a as usize, b as usize),
+    }
+}
+
+/// The declaration a scenario makes: its supply, its `[metering]` and its
+/// appliances (not its unmetered loads, which nobody listed, nor its
+/// faults, which are what really happened).
+pub fn declared(s: &Scenario) -> Declared {
+    let supply = Supply { kind: s.home.supply.name().into(), angles_deg: s.home.supply.angles_deg().to_vec(), voltage_v: s.home.voltage_v, service_a: s.home.service_a };
+    let appliances = s
+        .appliances
+        .iter()
+        .map(|a| {
+            let states = a.states.iter().map(|st| st.draws.iter().map(|d| DeclDraw { wiring: wiring(d.wiring), s: Cx::new(d.p_w, d.q_var) }).collect()).collect();
+            let n = a.states.len();
+            let steps = match &a.behaviour {
+                Behaviour::Cycle { dwell, extra } => {
+                    // The states in order; the extra one after the last.
+                    let m = dwell.len();
+                    let mut j: Vec<(usize, usize, f64, f64)> = (0..m).map(|i| (i, (i + 1) % m, 1.0, 1.0)).collect();
+                    if let Some(e) = extra {
+                        j.push((m - 1, e.state, 1.0, 1.0));
+                        j.push((e.state, 0, 1.0, 1.0));
+                    }
+                    Steps::Jumps(j)
+                }
+                Behaviour::Program { .. } => Steps::Jumps((0..n).map(|i| (i, (i + 1) % n, 1.0, 1.0)).collect()),
+                Behaviour::Markov { next, .. } => Steps::Jumps(next.iter().enumerate().flat_map(|(i, row)| row.iter().enumerate().filter(|(_, p)| **p > 0.0).map(move |(k, _)| (i, k, 1.0, 1.0))).collect()),
+                Behaviour::Steady { .. } => Steps::None("always on"),
+                // A wandering change is a few random-walk steps at most
+                // between two steady stretches: 4 standard deviations.
+                Behaviour::Modulating { session: Some(_), min, wander, .. } => Steps::Wanders { state: n - 1, max: (4.0 * wander).min(1.0), jumps: vec![(0, n - 1, 1.0, 1.0), (n - 1, 0, 1.0, *min)] },
+                Behaviour::Modulating { session: None, wander, .. } => Steps::Wanders { state: n - 1, max: (4.0 * wander).min(1.0), jumps: vec![] },
+            };
+            DeclAppliance { id: a.id.clone(), label: a.label.clone(), states, steps }
+        })
+        .collect();
+    Declared {
+        file: s.home.supply_at.split(':').next().unwrap_or("").to_string(),
+        supply_at: s.home.supply_at.clone(),
+        supply,
+        channels: s.metering.iter().map(|m| DeclChannel { conductor: m.conductor, reversed: m.reversed }).collect(),
+        appliances,
+    }
+}
+
+/// What a simulation shows the audit, and how often each appliance changed
+/// state in truth.
+pub struct Observed {
+    pub events: Vec<Event>,
+    pub stats: Vec<ChannelStats>,
+    pub changes: Vec<usize>,
+}
+
+/// Simulates `s` in memory and finds its steps, as the audit would from
+/// its meters file.
+pub fn observe(s: &Scenario) -> Observed {
+    let tl = timelines(s, s.run.steps());
+    let mut det = Detector::new(s.home.supply.angles_deg(), s.meter.interval_s);
+    let interval_ms = (s.meter.interval_s * 1000.0).round() as i64;
+    let missing = s.faults.dropouts.as_ref().is_some_and(|d| d.mode == DropMode::Missing);
+    let n = s.home.supply.lines();
+    let (mut p, mut q) = (vec![0.0; n], vec![0.0; n]);
+    let out = simulate(s, &tl, s.intervals(), 65_536, |c| -> Result<(), ()> {
+        let r = &c.readings;
+        for i in 0..r.rows() {
+            if missing && !r.present[i] {
+                continue;
+            }
+            for x in 0..n {
+                p[x] = r.line_p[x][i] as f64;
+                q[x] = r.line_q[x][i] as f64;
+            }
+            det.push(s.run.start_utc_ms + (c.first_row + i as u64) as i64 * interval_ms, &p, &q);
+        }
+        Ok(())
+    });
+    let mut changes = vec![0usize; s.appliances.len()];
+    if let Ok(o) = out {
+        for e in &o.events {
+            if e.app < changes.len() && e.start_step > 0 {
+                changes[e.app] += 1;
+            }
+        }
+    }
+    let (events, stats) = det.finish();
+    Observed { events, stats, changes }
+}
+
+/// Audits a scenario's simulated meters against a declaration.
+pub fn audit_scenario(s: &Scenario, d: &Declared) -> Outcome {
+    let o = observe(s);
+    check::check(d, &o.events, &o.stats, s.meter.interval_s)
+}
+
+// ---- the fault matrix ----------------------------------------------------
+
+/// A way of measuring the homes: the demo's own meter, or one made harder.
+pub struct Variant {
+    pub name: &'static str,
+    pub apply: fn(&mut Scenario),
+}
+
+pub const VARIANTS: [Variant; 5] = [
+    Variant { name: "1 s", apply: |_| {} },
+    Variant { name: "10 s", apply: |s| s.meter.interval_s = 10.0 },
+    Variant {
+        name: "noise 1 %",
+        apply: |s| {
+            s.meter.noise_relative = 0.01;
+            s.meter.noise_floor_w = s.meter.noise_floor_w.max(2.0);
+        },
+    },
+    Variant { name: "dropouts 5 %", apply: |s| s.faults.dropouts = Some(Dropouts { rate: 0.05, length: Dist::Lognormal { median_s: 60.0, spread: 1.0 }, mode: DropMode::Null }) },
+    Variant { name: "background 20 %", apply: |s| crate::roundtrip::add_background(s, 0.2) },
+];
+
+/// One injected mistake: its kind and subject as a finding would name them.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Mistake {
+    pub kind: &'static str,
+    pub subject: String,
+    /// For an undeclared load: its connection and largest real-power step.
+    pub load: Option<(String, f64)>,
+}
+
+/// State changes an appliance needs in a run before a mistake about it
+/// counts as shown by the data (three starts and three stops).
+pub const EXERCISED: usize = 6;
+
+pub struct Case {
+    pub scenario: String,
+    pub name: String,
+    pub mistakes: Vec<Mistake>,
+    /// (kind, subject) of every finding.
+    pub found: Vec<(String, String, Value)>,
+    /// Targets the audit called undecidable.
+    pub undecidable: Vec<String>,
+    /// Mistakes about appliances that changed state fewer than
+    /// [`EXERCISED`] times in the run: not counted in recall.
+    pub unexercised: Vec<String>,
+}
+
+fn chan(c: usize) -> String {
+    format!("l{}", c + 1)
+}
+
+/// Lines some declared appliance draws through.
+fn loaded_lines(d: &Declared) -> Vec<usize> {
+    let n = d.supply.lines();
+    (0..n).filter(|&c| d.appliances.iter().any(|a| a.wirings().iter().any(|w| w.lines(n).contains(&c)))).collect()
+}
+
+/// Meter faults to inject: (name, mistake, how).
+fn meter_faults(d: &Declared) -> Vec<(String, Mistake, Box<dyn Fn(&mut Scenario)>)> {
+    use crate::scenario::CtFault;
+    let lines = loaded_lines(d);
+    let mut v: Vec<(String, Mistake, Box<dyn Fn(&mut Scenario)>)> = Vec::new();
+    let ct = |line: usize, reversed: bool, on: Option<usize>| CtFault { line, gain: 0.0, phase_deg: 0.0, reversed, on };
+    for &x in &lines {
+        v.push((format!("CT {} reversed", chan(x)), Mistake { kind: "reversed-ct", subject: chan(x), load: None }, Box::new(move |s| s.faults.ct.push(ct(x, true, None)))));
+    }
+    for &a in &lines {
+        for &b in &lines {
+            if a != b {
+                v.push((format!("CT {} on L{}", chan(a), b + 1), Mistake { kind: "ct-on-other-conductor", subject: chan(a), load: None }, Box::new(move |s| s.faults.ct.push(ct(a, false, Some(b))))));
+            }
+        }
+    }
+    for (i, &a) in lines.iter().enumerate() {
+        for &b in &lines[i + 1..] {
+            let pair = format!("{}+{}", chan(a), chan(b));
+            v.push((format!("CTs {pair} exchanged"), Mistake { kind: "cts-exchanged", subject: pair.clone(), load: None }, Box::new(move |s| {
+                s.faults.ct.push(ct(a, false, Some(b)));
+                s.faults.ct.push(ct(b, false, Some(a)));
+            })));
+            v.push((format!("channels {pair} exchanged"), Mistake { kind: "channels-exchanged", subject: pair, load: None }, Box::new(move |s| s.faults.swap = Some((a, b)))));
+        }
+    }
+    for &x in &lines {
+        v.push((format!("no CT on {}", chan(x)), Mistake { kind: "no-ct", subject: chan(x), load: None }, Box::new(move |s| s.faults.no_ct = Some(x))));
+    }
+    v
+}
+
+/// Declaration mistakes possible for appliance `j`: (name, mistake, declaration).
+fn declaration_mistakes(d: &Declared, j: usize) -> Vec<(String, Mistake, Declared)> {
+    let a = &d.appliances[j];
+    let n = d.supply.lines();
+    let lines = loaded_lines(d);
+    let mut v = Vec::new();
+    if check::uncheckable(a).is_some() {
+        return v;
+    }
+    let ws = a.wirings();
+    let with = |w: Wiring| {
+        let mut e = d.clone();
+        e.appliances[j] = a.rewired(|_| w);
+        e
+    };
+    let next = |x: usize| lines[(lines.iter().position(|&l| l == x).unwrap_or(0) + 1) % lines.len()];
+    if ws.len() == 1 {
+        match ws[0] {
+            Wiring::LineNeutral(x) if lines.len() > 1 => {
+                let y = next(x);
+                v.push((format!("{} declared on L{}-N", a.id, y + 1), Mistake { kind: "wrong-line", subject: a.id.clone(), load: None }, with(Wiring::LineNeutral(y))));
+                v.push((format!("{} declared L{}-L{}", a.id, x.min(y) + 1, x.max(y) + 1), Mistake { kind: "declared-ll-seen-ln", subject: a.id.clone(), load: None }, with(Wiring::LineLine(x.min(y), x.max(y)))));
+            }
+            Wiring::LineLine(x, y) => {
+                v.push((format!("{} declared L{}-N", a.id, x + 1), Mistake { kind: "declared-ln-seen-ll", subject: a.id.clone(), load: None }, with(Wiring::LineNeutral(x))));
+                if n == 3 && lines.len() == 3 {
+                    let z = 3 - x - y;
+                    let w = Wiring::LineLine(y.min(z), y.max(z));
+                    v.push((format!("{} declared {}", a.id, w.name()), Mistake { kind: "wrong-line", subject: a.id.clone(), load: None }, with(w)));
+                }
+            }
+            _ => {}
+        }
+    }
+    if a.largest_step_w() >= 1000.0 {
+        let mut e = d.clone();
+        e.appliances.remove(j);
+        let main = ws.iter().find(|w| w.is_line_to_line() || **w == Wiring::ThreePhase).copied().unwrap_or(ws[0]);
+        v.push((format!("{} left out of the declaration", a.id), Mistake { kind: "undeclared-load", subject: a.id.clone(), load: Some((main.name(), a.largest_step_w())) }, e));
+    }
+    v
+}
+
+fn found_of(o: &Outcome) -> Vec<(String, String, Value)> {
+    o.findings.iter().map(|f| (f.kind.to_string(), f.subject.clone(), f.evidence.clone())).collect()
+}
+
+/// Whether a finding is the injected mistake.
+fn hits(m: &Mistake, f: &(String, String, Value)) -> bool {
+    if f.0 != m.kind {
+        return false;
+    }
+    match &m.load {
+        None => f.1 == m.subject,
+        Some((w, p)) => f.2["wiring"].as_str() == Some(w) && f.2["p_w"].as_f64().is_some_and(|x| (x - p).abs() <= 0.2 * p),
+    }
+}
+
+/// Settings of a matrix run.
+pub struct MatrixOptions {
+    pub days: f64,
+    /// Clean simulations per scenario (each also carries declaration mistakes).
+    pub clean_runs: usize,
+}
+
+/// Runs the matrix over `scenarios` under `variant`.
+pub fn run_matrix(scenarios: &[(String, Scenario)], opts: &MatrixOptions, variant: &Variant, progress: &mut dyn FnMut(&str)) -> Vec<Case> {
+    let mut cases = Vec::new();
+    for (name, base) in scenarios {
+        let mut base = base.clone();
+        base.run.length_s = opts.days * 86_400.0;
+        base.unmetered.clear();
+        base.faults = Default::default();
+        base.waveforms.windows.clear();
+        (variant.apply)(&mut base);
+        let d = declared(&base);
+        let targets: Vec<usize> = (0..d.appliances.len()).filter(|&j| !declaration_mistakes(&d, j).is_empty()).collect();
+        let all_mistakes: Vec<(String, Mistake, Declared)> = targets.iter().flat_map(|&j| declaration_mistakes(&d, j)).collect();
+        let mut next_mistake = 0usize;
+        let mut take = |k: usize| -> Vec<(String, Mistake, Declared)> {
+            (0..k).map(|_| {
+                let m = all_mistakes[next_mistake % all_mistakes.len()].clone();
+                next_mistake += 1;
+                m
+            }).collect()
+        };
+        let per_clean = (all_mistakes.len() as f64 / opts.clean_runs as f64).ceil().max(1.0) as usize;
+        for r in 0..opts.clean_runs {
+            let mut s = base.clone();
+            s.run.seed = base.run.seed.wrapping_add(1000 + r as u64);
+            progress(&format!("{name}: clean run {}", r + 1));
+            let ob = observe(&s);
+            let o = check::check(&d, &ob.events, &ob.stats, s.meter.interval_s);
+            cases.push(case_of(name, &format!("clean, seed {}", s.run.seed), vec![], &o, &d, &ob));
+            for (mname, m, dm) in take(per_clean) {
+                let o = check::check(&dm, &ob.events, &ob.stats, s.meter.interval_s);
+                cases.push(case_of(name, &mname, vec![m], &o, &d, &ob));
+            }
+        }
+        for (i, (fname, fm, apply)) in meter_faults(&d).into_iter().enumerate() {
+            let mut s = base.clone();
+            s.run.seed = base.run.seed.wrapping_add(2000 + i as u64);
+            apply(&mut s);
+            progress(&format!("{name}: {fname}"));
+            let ob = observe(&s);
+            let o = check::check(&d, &ob.events, &ob.stats, s.meter.interval_s);
+            cases.push(case_of(name, &fname, vec![fm.clone()], &o, &d, &ob));
+            // The same fault with a declaration mistake on top.
+            for (mname, m, dm) in take(1) {
+                let o = check::check(&dm, &ob.events, &ob.stats, s.meter.interval_s);
+                cases.push(case_of(name, &format!("{fname}; {mname}"), vec![fm.clone(), m], &o, &d, &ob));
+            }
+        }
+    }
+    cases
+}
+
+fn case_of(scenario: &str, name: &str, mistakes: Vec<Mistake>, o: &Outcome, d: &Declared, ob: &Observed) -> Case {
+    let undecidable = mistakes.iter().filter(|m| o.appliances.iter().any(|a| a.id == m.subject && a.verdict == "undecidable")).map(|m| m.subject.clone()).collect();
+    let unexercised = mistakes.iter().filter(|m| d.appliances.iter().position(|a| a.id == m.subject).is_some_and(|j| ob.changes[j] < EXERCISED)).map(|m| m.subject.clone()).collect();
+    Case { scenario: scenario.into(), name: name.into(), mistakes, found: found_of(o), undecidable, unexercised }
+}
+
+/// Per kind: injected, found, undecidable; findings of the kind, true ones.
+#[derive(Default, Clone)]
+pub struct KindScore {
+    pub injected: usize,
+    /// Injected about appliances the run hardly switched (not in recall).
+    pub unexercised: usize,
+    pub found: usize,
+    pub undecidable: usize,
+    pub reported: usize,
+    pub correct: usize,
+}
+
+pub struct MatrixScore {
+    pub cases: usize,
+    pub clean: usize,
+    pub clean_with_findings: usize,
+    pub kinds: Vec<(&'static str, KindScore)>,
+}
+
+pub fn score(cases: &[Case]) -> MatrixScore {
+    let mut kinds: Vec<(&'static str, KindScore)> = check::KINDS.iter().map(|k| (*k, KindScore::default())).collect();
+    let (mut clean, mut clean_bad) = (0, 0);
+    for c in cases {
+        if c.mistakes.is_empty() {
+            clean += 1;
+            clean_bad += (!c.found.is_empty()) as usize;
+        }
+        for m in &c.mistakes {
+            let k = &mut kinds.iter_mut().find(|k| k.0 == m.kind).unwrap().1;
+            if c.unexercised.contains(&m.subject) {
+                k.unexercised += 1;
+                continue;
+            }
+            k.injected += 1;
+            if c.found.iter().any(|f| hits(m, f)) {
+                k.found += 1;
+            } else if c.undecidable.contains(&m.subject) {
+                k.undecidable += 1;
+            }
+        }
+        for f in &c.found {
+            if let Some(k) = kinds.iter_mut().find(|k| k.0 == f.0) {
+                k.1.reported += 1;
+                // A finding about an appliance whose mistake the run did not
+                // exercise, if right, is neither counted for nor against.
+                let right = c.mistakes.iter().any(|m| hits(m, f));
+                if right && c.unexercised.contains(&f.1) {
+                    k.1.reported -= 1;
+                }
+                k.1.correct += (right && !c.unexercised.contains(&f.1)) as usize;
+            }
+        }
+    }
+    MatrixScore { cases: cases.len(), clean, clean_with_findings: clean_bad, kinds }
+}
+
+/// Fraction, or None for 0/0.
+fn ratio(a: usize, b: usize) -> Option<f64> {
+    (b > 0).then(|| a as f64 / b as f64)
+}
+
+impl MatrixScore {
+    pub fn to_json(&self, variant: &str) -> Value {
+        json!({
+            "variant": variant,
+            "cases": self.cases,
+            "clean_cases": self.clean,
+            "clean_cases_with_findings": self.clean_with_findings,
+            "false_alarm_rate": ratio(self.clean_with_findings, self.clean),
+            "kinds": self.kinds.iter().filter(|k| k.1.injected + k.1.reported > 0).map(|(k, s)| json!({
+                "kind": k, "injected": s.injected, "not_exercised": s.unexercised, "found": s.found, "undecidable": s.undecidable,
+                "recall": ratio(s.found, s.injected), "reported": s.reported, "precision": ratio(s.correct, s.reported),
+            })).collect::<Vec<_>>(),
+        })
+    }
+
+    pub fn to_markdown(&self, variant: &str) -> String {
+        let pct = |x: Option<f64>| x.map(|v| format!("{:.1} %", 100.0 * v)).unwrap_or_else(|| "–".into());
+        let mut o = format!("Fault matrix, {variant}: {} cases, {} clean; clean cases with a false finding: {} ({}).\n\n", self.cases, self.clean, self.clean_with_findings, pct(ratio(self.clean_with_findings, self.clean)));
+        o += "| mistake | injected | not exercised | found | undecidable | recall | findings | precision |\n|---|---:|---:|---:|---:|---:|---:|---:|\n";
+        for (k, s) in self.kinds.iter().filter(|k| k.1.injected + k.1.reported > 0) {
+            o += &format!("| {k} | {} | {} | {} | {} | {} | {} | {} |\n", s.injected, s.unexercised, s.found, s.undecidable, pct(ratio(s.found, s.injected)), s.reported, pct(ratio(s.correct, s.reported)));
+        }
+        o
+    }
+}

@@ -1,0 +1,659 @@
+//! From the steps and the declaration to findings, with no training data.
+//!
+//! 1. Metering. Each way the CTs could really sit is a hypothesis: channel c
+//!    reads k·u·S_b, the power of conductor b seen with channel c's voltage
+//!    (u = V_c/V_b, a CT clamped on another line than its channel's: −1 on
+//!    a split-phase supply, e^{±j120°} on a wye) and sign k (a CT clamped the
+//!    wrong way round); or the channels exchanged whole (labels, or CT and
+//!    voltage lead together: u = 1). A hypothesis is admissible when the
+//!    conductor powers it implies are not negative (a home that only
+//!    consumes; stated in the report). Among the admissible ones, the one
+//!    under which the declared appliances' steps explain the most observed
+//!    steps wins; the declared metering, then the simplest, wins ties.
+//! 2. Appliances. Under that metering, each appliance's steps are predicted
+//!    for its declared wiring and for every other one; the steps that fit
+//!    one and no other declared appliance are counted for each. A wiring
+//!    that explains several times more steps than the declared one is a
+//!    finding; too few steps, or steps that other appliances would explain
+//!    as well, is reported as undecidable.
+//! 3. Large recurring steps no declared appliance explains are clustered;
+//!    their connection is the one whose split fits them best (least squares
+//!    over the channels).
+
+use super::decl::{Cx, DeclAppliance, Declared, Wiring};
+use super::events::{ChannelStats, Event};
+use serde_json::{json, Value};
+
+/// How one channel reads: the conductor, the sign, and whether the power
+/// is turned by the angle between the channel's voltage and that conductor's.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct ChanMap {
+    pub src: usize,
+    pub k: f64,
+    pub turned: bool,
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub struct Metering {
+    pub map: Vec<ChanMap>,
+    /// Channels that read nothing (no CT): left out of every comparison.
+    pub absent: Vec<bool>,
+}
+
+impl Metering {
+    /// Complex factor from conductor power to channel reading.
+    fn factor(&self, d: &Declared, c: usize) -> Cx {
+        let m = self.map[c];
+        let u = if m.turned { d.supply.unit(c).div(d.supply.unit(m.src)) } else { Cx::new(1.0, 0.0) };
+        u.scale(m.k)
+    }
+    /// Channel readings of per-conductor powers `t` (None: channel absent).
+    pub fn read(&self, d: &Declared, t: &[Cx]) -> Vec<Option<Cx>> {
+        (0..self.map.len()).map(|c| (!self.absent[c]).then(|| t[self.map[c].src] * self.factor(d, c))).collect()
+    }
+}
+
+/// A kind of installer mistake, as findings and the fault matrix name them.
+pub const KINDS: [&str; 10] = [
+    "wrong-line",
+    "declared-ll-seen-ln",
+    "declared-ln-seen-ll",
+    "wrong-connection",
+    "reversed-ct",
+    "ct-on-other-conductor",
+    "cts-exchanged",
+    "channels-exchanged",
+    "no-ct",
+    "undeclared-load",
+];
+
+#[derive(Clone, Debug)]
+pub struct Finding {
+    pub kind: &'static str,
+    /// The appliance id, channel(s) ("l1", "l1+l2") or cluster the finding is about.
+    pub subject: String,
+    pub message: String,
+    pub confidence: f64,
+    pub evidence: Value,
+}
+
+#[derive(Clone, Debug)]
+pub struct ApplianceCheck {
+    pub id: String,
+    pub declared: String,
+    /// "as declared", "finding" or "undecidable".
+    pub verdict: &'static str,
+    pub seen: Option<String>,
+    pub reason: String,
+    pub steps_declared: usize,
+    pub steps_best_other: usize,
+}
+
+#[derive(Clone, Debug)]
+pub struct Outcome {
+    pub findings: Vec<Finding>,
+    pub appliances: Vec<ApplianceCheck>,
+    pub metering: Metering,
+    pub steps: usize,
+    pub steps_explained: usize,
+    pub notes: Vec<String>,
+}
+
+/// Steps smaller than this (largest channel, VA) are not used to decide.
+const USE_STEP: f64 = 100.0;
+/// Tolerance of a predicted step: 30 W plus 10 % of its size per channel
+/// (a constant-impedance load moves ±10 % across a ±5 % supply band;
+/// common practice, no source).
+fn tol(size: f64) -> f64 {
+    TOL_ABS_W + TOL_REL * size
+}
+
+pub const TOL_ABS_W: f64 = 30.0;
+pub const TOL_REL: f64 = 0.10;
+
+/// How far a step is from a predicted one, in tolerances (≤ 1 fits),
+/// either way round (a start or a stop).
+fn dist(e: &Event, r: &[Option<Cx>]) -> f64 {
+    let size = r.iter().flatten().map(|c| c.abs()).fold(0.0, f64::max);
+    if size < USE_STEP {
+        return f64::INFINITY;
+    }
+    let t = tol(size);
+    let one = |sign: f64| r.iter().zip(&e.delta).filter_map(|(r, d)| r.map(|r| (*d - r.scale(sign)).abs() / t)).fold(0.0, f64::max);
+    one(1.0).min(one(-1.0))
+}
+
+fn fits(e: &Event, r: &[Option<Cx>]) -> bool {
+    dist(e, r) <= 1.0
+}
+
+fn dist_all(e: &Event, sigs: &[Vec<Option<Cx>>]) -> f64 {
+    sigs.iter().map(|r| dist(e, r)).fold(f64::INFINITY, f64::min)
+}
+
+/// One appliance's predicted channel steps under a metering.
+fn predicted(d: &Declared, m: &Metering, a: &DeclAppliance) -> Vec<Vec<Option<Cx>>> {
+    d.signatures(a).iter().map(|t| m.read(d, t)).collect()
+}
+
+fn any_fits(e: &Event, sigs: &[Vec<Option<Cx>>]) -> bool {
+    sigs.iter().any(|r| fits(e, r))
+}
+
+fn visible(sigs: &[Vec<Option<Cx>>]) -> bool {
+    sigs.iter().any(|r| r.iter().flatten().map(|c| c.abs()).fold(0.0, f64::max) >= USE_STEP)
+}
+
+/// The metering as declared.
+pub fn declared_metering(d: &Declared, absent: &[bool]) -> Metering {
+    let map = d.channels.iter().enumerate().map(|(c, ch)| ChanMap { src: ch.conductor.unwrap_or(c), k: if ch.reversed { -1.0 } else { 1.0 }, turned: true }).collect();
+    Metering { map, absent: absent.to_vec() }
+}
+
+fn permutations(n: usize) -> Vec<Vec<usize>> {
+    match n {
+        1 => vec![vec![0]],
+        2 => vec![vec![0, 1], vec![1, 0]],
+        _ => vec![vec![0, 1, 2], vec![0, 2, 1], vec![1, 0, 2], vec![1, 2, 0], vec![2, 0, 1], vec![2, 1, 0]],
+    }
+}
+
+/// Every metering hypothesis with its cost (mistakes it supposes against
+/// the declaration).
+fn hypotheses(d: &Declared, absent: &[bool]) -> Vec<(Metering, usize)> {
+    let n = d.supply.lines();
+    let decl = declared_metering(d, absent);
+    let mut out = Vec::new();
+    let per: Vec<(usize, f64)> = (0..n).flat_map(|b| [(b, 1.0), (b, -1.0)]).collect();
+    let mut idx = vec![0usize; n];
+    loop {
+        let map: Vec<ChanMap> = idx.iter().map(|&i| ChanMap { src: per[i].0, k: per[i].1, turned: true }).collect();
+        let cost = map.iter().zip(&decl.map).enumerate().filter(|(c, _)| !absent[*c]).map(|(_, (m, dm))| (m.src != dm.src) as usize + (m.k != dm.k) as usize).sum();
+        out.push((Metering { map, absent: absent.to_vec() }, cost));
+        let mut c = 0;
+        loop {
+            if c == n {
+                break;
+            }
+            idx[c] += 1;
+            if idx[c] < per.len() {
+                break;
+            }
+            idx[c] = 0;
+            c += 1;
+        }
+        if c == n {
+            break;
+        }
+    }
+    for p in permutations(n).into_iter().skip(1) {
+        let map = p.iter().enumerate().map(|(c, &s)| ChanMap { src: s, k: decl.map[c].k, turned: false }).collect();
+        out.push((Metering { map, absent: absent.to_vec() }, 1));
+    }
+    out
+}
+
+/// Share of rows where the conductor power a channel implies under `m` is
+/// clearly negative; the largest over channels.
+fn negative_share(d: &Declared, m: &Metering, stats: &[ChannelStats]) -> f64 {
+    (0..m.map.len())
+        .filter(|&c| !m.absent[c])
+        .map(|c| {
+            let mm = m.map[c];
+            let st = &stats[c];
+            let read = (st.rows - st.null).max(1) as f64;
+            let b = if mm.turned { mm.src } else { c };
+            let _ = d;
+            st.negative[b][if mm.k > 0.0 { 0 } else { 1 }] as f64 / read
+        })
+        .fold(0.0, f64::max)
+}
+
+/// Largest share of rows with a negative implied power that still counts as
+/// a consuming home (noise around zero, brief export).
+const NEGATIVE_OK: f64 = 0.05;
+
+/// A wandering appliance's shape under a metering.
+fn shape_of(d: &Declared, m: &Metering, a: &DeclAppliance) -> Option<Vec<Option<Cx>>> {
+    d.shape(a).map(|t| m.read(d, &t))
+}
+
+fn fits_shape(e: &Event, r: &[Option<Cx>]) -> bool {
+    dist_shape(e, r) <= 1.0
+}
+
+/// Distance of a step from the nearest real multiple λ ∈ [−1, 1] of a shape.
+fn dist_shape(e: &Event, r: &[Option<Cx>]) -> f64 {
+    let (mut num, mut den) = (0.0, 0.0);
+    for (r, x) in r.iter().zip(&e.delta) {
+        if let Some(r) = r {
+            num += r.re * x.re + r.im * x.im;
+            den += r.abs().powi(2);
+        }
+    }
+    if den == 0.0 {
+        return f64::INFINITY;
+    }
+    let lam = (num / den).clamp(-1.0, 1.0);
+    let size = r.iter().flatten().map(|c| c.abs()).fold(0.0, f64::max) * lam.abs();
+    if size < USE_STEP * 0.5 {
+        return f64::INFINITY;
+    }
+    let t = tol(size);
+    r.iter().zip(&e.delta).filter_map(|(r, d)| r.map(|r| (*d - r.scale(lam)).abs() / t)).fold(0.0, f64::max)
+}
+
+/// Steps the declared appliances explain under `m`: their jumps, and the
+/// wandering of those whose power wanders.
+/// Returns (appliances with at least two fitting steps, steps explained).
+fn explained(d: &Declared, m: &Metering, events: &[&Event]) -> (usize, usize) {
+    let sigs: Vec<Vec<Vec<Option<Cx>>>> = d.appliances.iter().map(|a| predicted(d, m, a)).collect();
+    let shapes: Vec<Vec<Option<Cx>>> = d.appliances.iter().filter_map(|a| shape_of(d, m, a)).collect();
+    let mut per = vec![0usize; sigs.len()];
+    let mut n = 0;
+    for e in events {
+        let mut any = false;
+        for (j, s) in sigs.iter().enumerate() {
+            if any_fits(e, s) {
+                per[j] += 1;
+                any = true;
+            }
+        }
+        if any || shapes.iter().any(|r| fits_shape(e, r)) {
+            n += 1;
+        }
+    }
+    (per.iter().filter(|&&k| k >= 2).count(), n)
+}
+
+/// Least-squares fit of a step to each connection: (wiring, complex power,
+/// relative residual), best first.
+pub fn connection_of(d: &Declared, m: &Metering, delta: &[Cx]) -> Vec<(Wiring, Cx, f64)> {
+    let n = d.supply.lines();
+    let norm: f64 = delta.iter().enumerate().filter(|(c, _)| !m.absent[*c]).map(|(_, x)| x.abs().powi(2)).sum::<f64>().sqrt();
+    let mut v: Vec<(Wiring, Cx, f64)> = Wiring::all(n)
+        .into_iter()
+        .map(|w| {
+            let g = m.read(d, &d.supply.split(w, Cx::new(1.0, 0.0)));
+            let (mut num, mut den) = (Cx::ZERO, 0.0);
+            for (gc, e) in g.iter().zip(delta) {
+                if let Some(gc) = gc {
+                    num = num + gc.conj() * *e;
+                    den += gc.abs().powi(2);
+                }
+            }
+            if den == 0.0 {
+                return (w, Cx::ZERO, f64::INFINITY);
+            }
+            let s = num.scale(1.0 / den);
+            let res: f64 = g.iter().zip(delta).filter_map(|(gc, e)| gc.map(|gc| (*e - s * gc).abs().powi(2))).sum::<f64>().sqrt();
+            (w, s, if norm > 0.0 { res / norm } else { f64::INFINITY })
+        })
+        .collect();
+    v.sort_by(|a, b| a.2.total_cmp(&b.2));
+    v
+}
+
+fn chan(c: usize) -> String {
+    format!("l{}", c + 1)
+}
+
+fn line(c: usize) -> String {
+    format!("L{}", c + 1)
+}
+
+/// Other wirings an appliance could have: for one connection, every other
+/// one of the supply; for several, the lines renamed.
+fn alternatives(d: &Declared, a: &DeclAppliance) -> Vec<(String, DeclAppliance)> {
+    let n = d.supply.lines();
+    let ws = a.wirings();
+    if ws.len() == 1 {
+        Wiring::all(n).into_iter().filter(|w| *w != ws[0]).map(|w| (w.name(), a.rewired(|_| w))).collect()
+    } else {
+        permutations(n)
+            .into_iter()
+            .skip(1)
+            .map(|p| {
+                let b = a.rewired(|w| w.permuted(&p));
+                (b.wirings().iter().map(|w| w.name()).collect::<Vec<_>>().join(" + "), b)
+            })
+            .collect()
+    }
+}
+
+fn wiring_names(a: &DeclAppliance) -> String {
+    a.wirings().iter().map(|w| w.name()).collect::<Vec<_>>().join(" + ")
+}
+
+fn kind_of(decl: &DeclAppliance, seen: &DeclAppliance) -> &'static str {
+    let (dw, sw) = (decl.wirings(), seen.wirings());
+    let ll = |v: &[Wiring]| v.iter().any(|w| w.is_line_to_line());
+    let tp = |v: &[Wiring]| v.contains(&Wiring::ThreePhase);
+    if tp(&dw) || tp(&sw) {
+        "wrong-connection"
+    } else if ll(&dw) && !ll(&sw) {
+        "declared-ll-seen-ln"
+    } else if !ll(&dw) && ll(&sw) {
+        "declared-ln-seen-ll"
+    } else {
+        "wrong-line"
+    }
+}
+
+/// Why an appliance cannot be checked from the declaration alone, if so:
+/// no fixed step, or a step too small. (Used to pick fault-matrix targets.)
+pub fn uncheckable(a: &DeclAppliance) -> Option<String> {
+    match &a.steps {
+        super::decl::Steps::None(why) => Some((*why).into()),
+        super::decl::Steps::Wanders { jumps, .. } if jumps.is_empty() => Some("its power wanders continuously".into()),
+        _ if a.largest_step_w() < 300.0 => Some(format!("its largest step, {:.0} W, is below the 300 W the audit decides on", a.largest_step_w())),
+        _ => None,
+    }
+}
+
+/// The channel stats say a channel has no CT: null nearly always, or nothing
+/// at all while declared loads draw through its conductor.
+fn absent_channels(d: &Declared, stats: &[ChannelStats]) -> Vec<bool> {
+    stats
+        .iter()
+        .enumerate()
+        .map(|(c, st)| {
+            let read = st.rows.max(1) as f64;
+            st.null as f64 / read > 0.9 || d.channels[c].conductor.is_none()
+        })
+        .collect()
+}
+
+pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s: f64) -> Outcome {
+    let n = d.supply.lines();
+    let absent = absent_channels(d, stats);
+    let mut findings = Vec::new();
+    let mut notes = Vec::new();
+    for c in 0..n {
+        let st = &stats[c];
+        let read = st.rows.max(1) as f64;
+        let loaded = d.appliances.iter().any(|a| a.wirings().iter().any(|w| w.lines(n).contains(&c)));
+        if d.channels[c].conductor.is_some() && (st.null as f64 / read > 0.9 || (loaded && st.zero as f64 / read > 0.98)) {
+            findings.push(Finding {
+                kind: "no-ct",
+                subject: chan(c),
+                message: format!("channel {} reads no current although a CT on {} is declared: {:.0} % of its rows are empty, {:.0} % read nothing; line-to-line loads show at half power on the other line only", chan(c), line(d.channels[c].conductor.unwrap_or(c)), 100.0 * st.null as f64 / read, 100.0 * st.zero as f64 / read),
+                confidence: (st.null.max(st.zero) as f64 / read).min(1.0),
+                evidence: json!({ "rows": st.rows, "null_rows": st.null, "zero_rows": st.zero }),
+            });
+        }
+    }
+    let absent: Vec<bool> = (0..n).map(|c| absent[c] || findings.iter().any(|f| f.subject == chan(c))).collect();
+    let big: Vec<&Event> = events.iter().filter(|e| e.size() >= 150.0).collect();
+    // 1. Metering.
+    let decl_m = declared_metering(d, &absent);
+    let hyps = hypotheses(d, &absent);
+    // (index, appliances fitted, steps explained, negative share, cost)
+    let scored: Vec<(usize, usize, usize, f64, usize)> = hyps
+        .iter()
+        .enumerate()
+        .map(|(i, (m, cost))| {
+            let neg = negative_share(d, m, stats);
+            let (apps, ex) = if neg <= NEGATIVE_OK { explained(d, m, &big) } else { (0, 0) };
+            (i, apps, ex, neg, *cost)
+        })
+        .collect();
+    let decl_i = hyps.iter().position(|(m, _)| *m == decl_m).unwrap_or(0);
+    let ok = |s: &&(usize, usize, usize, f64, usize)| s.3 <= NEGATIVE_OK;
+    let best_apps = scored.iter().filter(ok).map(|s| s.1).max().unwrap_or(0);
+    let (decl_apps, decl_ex, decl_neg) = (scored[decl_i].1, scored[decl_i].2, scored[decl_i].3);
+    // The declared metering stands while it is admissible and explains at
+    // least 90 % of the steps the best admissible one explains; otherwise
+    // the cheapest admissible hypothesis within 95 % of the best.
+    let best_ex = scored.iter().filter(ok).map(|s| s.2).max().unwrap_or(0);
+    let _ = best_apps;
+    let chosen = if decl_neg <= NEGATIVE_OK && decl_ex as f64 >= 0.9 * best_ex as f64 {
+        decl_i
+    } else {
+        scored.iter().filter(ok).filter(|s| s.2 as f64 >= 0.95 * best_ex as f64).min_by_key(|s| (s.4, usize::MAX - s.2)).map(|s| s.0).unwrap_or(decl_i)
+    };
+    let m = hyps[chosen].0.clone();
+    let (ch_apps, ch_ex) = (scored[chosen].1, scored[chosen].2);
+    if chosen != decl_i {
+        let by_apps = 1.0 - (decl_apps as f64 + 1.0) / (ch_apps as f64 + 1.0);
+        let conf = if decl_neg > NEGATIVE_OK { decl_neg.max(by_apps) } else { by_apps };
+        let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg });
+        metering_findings(d, &decl_m, &m, conf.clamp(0.0, 1.0), ev, &mut findings);
+    }
+    notes.push(format!("metering: {ch_apps} appliances and {ch_ex} of {} steps of 150 VA or more fit under the metering found ({decl_apps} and {decl_ex} as declared)", big.len()));
+    // 2. Appliances.
+    let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
+    let (checks, placed) = place(d, &m, &used, &mut findings);
+    // 3. Undeclared recurring loads.
+    let explain: Vec<Vec<Vec<Option<Cx>>>> = placed.iter().map(|a| predicted(d, &m, a)).collect();
+    let total_wh: f64 = stats.iter().enumerate().filter(|(c, _)| !absent[*c]).map(|(_, s)| s.sum_p).sum::<f64>() * interval_s / 3600.0;
+    let shapes: Vec<Vec<Option<Cx>>> = d.appliances.iter().filter_map(|a| shape_of(d, &m, a)).collect();
+    undeclared(d, &m, events, &explain, &shapes, total_wh, &mut findings);
+    let steps_explained = used.iter().filter(|e| explain.iter().any(|s| any_fits(e, s)) || shapes.iter().any(|r| fits_shape(e, r))).count();
+    Outcome { findings, appliances: checks, metering: m, steps: used.len(), steps_explained, notes }
+}
+
+fn metering_findings(d: &Declared, decl: &Metering, m: &Metering, confidence: f64, evidence: Value, out: &mut Vec<Finding>) {
+    let n = d.supply.lines();
+    let mut push = |kind: &'static str, subject: String, message: String| out.push(Finding { kind, subject, message, confidence, evidence: evidence.clone() });
+    if m.map.iter().any(|c| !c.turned) {
+        let moved: Vec<usize> = (0..n).filter(|&c| m.map[c].src != c).collect();
+        let names: Vec<String> = moved.iter().map(|&c| chan(c)).collect();
+        let reads: Vec<String> = moved.iter().map(|&c| format!("{} reads {}", chan(c), line(m.map[c].src))).collect();
+        push("channels-exchanged", names.join("+"), format!("channels {} are exchanged, CT and voltage together (or their labels): {}", names.join(" and "), reads.join(", ")));
+        return;
+    }
+    let mut done = vec![false; n];
+    for a in 0..n {
+        let b = m.map[a].src;
+        if done[a] || m.absent[a] || b == decl.map[a].src {
+            continue;
+        }
+        if b != a && m.map[b].src == a && decl.map[b].src == b && !m.absent[b] {
+            done[a] = true;
+            done[b] = true;
+            push("cts-exchanged", format!("{}+{}", chan(a.min(b)), chan(a.max(b))), format!("the CTs of channels {} and {} are exchanged: each sits on the other's conductor", chan(a), chan(b)));
+        } else {
+            done[a] = true;
+            push("ct-on-other-conductor", chan(a), format!("the CT of channel {} is on conductor {}, not {}", chan(a), line(b), line(decl.map[a].src)));
+        }
+    }
+    for c in 0..n {
+        if !m.absent[c] && m.map[c].k != decl.map[c].k {
+            push("reversed-ct", chan(c), format!("the CT of channel {} reads reversed: the power it implies is negative{}", chan(c), if decl.map[c].k < 0.0 { " unless it is clamped as it should be (declared reversed)" } else { "" }));
+        }
+    }
+}
+
+fn undeclared(d: &Declared, m: &Metering, events: &[Event], explain: &[Vec<Vec<Option<Cx>>>], shapes: &[Vec<Option<Cx>>], total_wh: f64, out: &mut Vec<Finding>) {
+    struct Cluster {
+        wiring: Wiring,
+        s: Cx,
+        on: Vec<i64>,
+        off: Vec<i64>,
+    }
+    let mut cl: Vec<Cluster> = Vec::new();
+    for e in events.iter().filter(|e| e.size() >= 400.0) {
+        if explain.iter().any(|s| any_fits(e, s)) || shapes.iter().any(|r| fits_shape(e, r)) {
+            continue;
+        }
+        let fit = connection_of(d, m, &e.delta);
+        let (w, s, res) = fit[0];
+        if res > 0.2 {
+            continue;
+        }
+        let (s, on) = if s.re >= 0.0 { (s, true) } else { (-s, false) };
+        if s.re < 500.0 {
+            continue;
+        }
+        let k = match cl.iter().position(|c| c.wiring == w && (c.s - s).abs() <= 0.1 * c.s.abs() + 50.0) {
+            Some(k) => k,
+            None => {
+                cl.push(Cluster { wiring: w, s, on: vec![], off: vec![] });
+                cl.len() - 1
+            }
+        };
+        let c = &mut cl[k];
+        let cnt = (c.on.len() + c.off.len()) as f64;
+        c.s = (c.s.scale(cnt) + s).scale(1.0 / (cnt + 1.0));
+        if on {
+            c.on.push(e.time_ms);
+        } else {
+            c.off.push(e.time_ms);
+        }
+    }
+    // Recurring: seen at least six times, three of them the same way (a
+    // load that stops by tapering off shows its starts only).
+    for c in cl.iter().filter(|c| c.on.len() + c.off.len() >= 6 && c.on.len().max(c.off.len()) >= 3) {
+        // Energy: each start paired with the next stop within 12 h.
+        let mut wh = 0.0;
+        let mut j = 0;
+        for &t in &c.on {
+            while j < c.off.len() && c.off[j] <= t {
+                j += 1;
+            }
+            if j < c.off.len() && c.off[j] - t <= 12 * 3_600_000 {
+                wh += c.s.re * (c.off[j] - t) as f64 / 3_600_000.0;
+                j += 1;
+            }
+        }
+        let share = if total_wh > 0.0 { wh / total_wh } else { 0.0 };
+        out.push(Finding {
+            kind: "undeclared-load",
+            subject: format!("{:.0} W on {}", c.s.re, c.wiring.name()),
+            message: format!("a recurring load of about {:.0} W (pf {:.2}) on {} that no declared appliance explains: started {} times, stopped {} times, about {:.1} % of the energy", c.s.re, c.s.re / c.s.abs(), c.wiring.name(), c.on.len(), c.off.len(), 100.0 * share),
+            confidence: ((c.on.len().min(c.off.len())) as f64 / 10.0).min(1.0),
+            evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring.name(), "energy_share": share }),
+        });
+    }
+}
+
+/// Places every appliance: its wiring as declared, or another one the
+/// steps support much better. Greedy: the best-supported finding is taken
+/// first and the appliance moved before the others are weighed again, so
+/// steps one misdeclared appliance leaves behind are not pinned on another.
+/// Returns the checks and the appliances as placed.
+fn place(d: &Declared, m: &Metering, used: &[&Event], findings: &mut Vec<Finding>) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>) {
+    let na = d.appliances.len();
+    let n = d.supply.lines();
+    // Conductors some working channel reads; a wiring through another one
+    // cannot be told from the data.
+    let seen: Vec<bool> = (0..n).map(|b| (0..n).any(|c| !m.absent[c] && m.map[c].src == b)).collect();
+    let blind = |a: &DeclAppliance| a.wirings().iter().flat_map(|w| w.lines(n)).find(|&x| !seen[x]);
+    let mut placed: Vec<DeclAppliance> = d.appliances.clone();
+    let mut moved = vec![false; na];
+    loop {
+        let sigs: Vec<Vec<Vec<Option<Cx>>>> = placed.iter().map(|a| predicted(d, m, a)).collect();
+        let shapes: Vec<Option<Vec<Option<Cx>>>> = placed.iter().map(|a| shape_of(d, m, a)).collect();
+        // Each step's distance from each appliance as placed (jumps or wander).
+        let dj: Vec<Vec<f64>> = used
+            .iter()
+            .map(|e| (0..na).map(|j| dist_all(e, &sigs[j]).min(shapes[j].as_ref().map(|r| dist_shape(e, r)).unwrap_or(f64::INFINITY))).collect())
+            .collect();
+        // Steps that fit a wiring of appliance j better than any other
+        // appliance (exclusive), all that fit, and who else fits.
+        let excl = |j: usize, sg: &[Vec<Option<Cx>>]| -> (usize, usize, Vec<usize>) {
+            let (mut x, mut all, mut who) = (0, 0, Vec::new());
+            for (k, e) in used.iter().enumerate() {
+                let me = dist_all(e, sg);
+                if me <= 1.0 {
+                    all += 1;
+                    let rival = (0..na).filter(|&o| o != j).min_by(|&a, &b| dj[k][a].total_cmp(&dj[k][b]));
+                    match rival {
+                        Some(o) if dj[k][o] <= me => who.push(o),
+                        _ => x += 1,
+                    }
+                }
+            }
+            (x, all, who)
+        };
+        let mut checks = Vec::new();
+        let mut best_finding: Option<(usize, usize, DeclAppliance, Finding)> = None;
+        for (j, a) in placed.iter().enumerate() {
+            let decl = &d.appliances[j];
+            let declared = wiring_names(decl);
+            let mut ck = ApplianceCheck { id: a.id.clone(), declared: declared.clone(), verdict: "undecidable", seen: None, reason: String::new(), steps_declared: 0, steps_best_other: 0 };
+            if a.steps.jumps().is_empty() {
+                ck.reason = match &a.steps {
+                    super::decl::Steps::None(why) => format!("{why}: no step to recognise"),
+                    _ => "its power wanders continuously: no fixed step to place it by".into(),
+                };
+                checks.push(ck);
+                continue;
+            }
+            if moved[j] {
+                let seen = wiring_names(a);
+                let (n_a, _, _) = excl(j, &sigs[j]);
+                ck.verdict = "finding";
+                ck.reason = format!("{n_a} steps fit it on {seen}");
+                ck.seen = Some(seen);
+                ck.steps_best_other = n_a;
+                checks.push(ck);
+                continue;
+            }
+            if let Some(x) = blind(a) {
+                ck.reason = format!("its wiring goes through L{}, which no working CT reads", x + 1);
+                checks.push(ck);
+                continue;
+            }
+            if let Some(why) = uncheckable(a) {
+                ck.reason = why;
+                checks.push(ck);
+                continue;
+            }
+            if !visible(&sigs[j]) {
+                ck.reason = "its steps are too small to see".into();
+                checks.push(ck);
+                continue;
+            }
+            let (n_d, _, _) = excl(j, &sigs[j]);
+            let mut best: Option<(usize, usize, String, DeclAppliance, Vec<usize>)> = None;
+            for (name, alt) in alternatives(d, a) {
+                let sg = predicted(d, m, &alt);
+                if !visible(&sg) || blind(&alt).is_some() {
+                    continue;
+                }
+                let (x, all, who) = excl(j, &sg);
+                if best.as_ref().is_none_or(|b| (x, all) > (b.0, b.1)) {
+                    best = Some((x, all, name, alt, who));
+                }
+            }
+            ck.steps_declared = n_d;
+            let (n_a, all_a, name_a, alt, who) = best.unwrap_or((0, 0, String::new(), a.clone(), vec![]));
+            ck.steps_best_other = n_a;
+            if n_a >= 3 && n_a >= 3 * n_d + 2 {
+                let step_w: f64 = d.signatures(&alt).iter().map(|t| t.iter().map(|c| c.re).sum::<f64>().abs()).fold(0.0, f64::max);
+                let f = Finding {
+                    kind: kind_of(a, &alt),
+                    subject: a.id.clone(),
+                    message: format!("{} ({}) is declared on {declared} but its steps show on {name_a}", a.id, a.label),
+                    confidence: n_a as f64 / (n_a + n_d + 1) as f64,
+                    evidence: json!({ "steps_as_declared": n_d, "steps_as_found": n_a, "declared": declared, "found": name_a, "step_w": step_w }),
+                };
+                if best_finding.as_ref().is_none_or(|b| n_a > b.1) {
+                    best_finding = Some((j, n_a, alt, f));
+                }
+                ck.reason = format!("{n_a} steps fit it on {name_a}, {n_d} on {declared}");
+            } else if n_d >= 2 {
+                ck.verdict = "as declared";
+                ck.reason = format!("{n_d} steps fit it as declared, at most {n_a} on any other connection");
+            } else if all_a >= 3 {
+                let mut who: Vec<String> = who.iter().map(|&o| placed[o].id.clone()).collect();
+                who.sort();
+                who.dedup();
+                ck.reason = format!("{all_a} steps would fit it on {name_a}, but they fit {} as well", who.join(", "));
+            } else {
+                ck.reason = format!("seen switching {n_d} times as declared and {n_a} times otherwise: too few to decide");
+            }
+            checks.push(ck);
+        }
+        match best_finding {
+            Some((j, _, alt, f)) => {
+                placed[j] = alt;
+                moved[j] = true;
+                findings.push(f);
+            }
+            None => return (checks, placed),
+        }
+    }
+}

@@ -1,0 +1,330 @@
+//! What an installer declares, in the audit's own terms: the supply, the
+//! metering (which conductor each channel's CT is on, which way round) and
+//! each appliance's states with their believed wiring and power. The
+//! simulator's scenario language is turned into this by the `loadloom`
+//! crate; this crate never reads scenarios itself.
+
+use std::ops::{Add, Mul, Neg, Sub};
+
+/// A complex number (phasor or complex power).
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+pub struct Cx {
+    pub re: f64,
+    pub im: f64,
+}
+
+impl Cx {
+    pub const ZERO: Cx = Cx { re: 0.0, im: 0.0 };
+    pub fn new(re: f64, im: f64) -> Cx {
+        Cx { re, im }
+    }
+    pub fn polar_deg(r: f64, deg: f64) -> Cx {
+        let a = deg.to_radians();
+        Cx { re: r * a.cos(), im: r * a.sin() }
+    }
+    pub fn abs(self) -> f64 {
+        self.re.hypot(self.im)
+    }
+    pub fn conj(self) -> Cx {
+        Cx { re: self.re, im: -self.im }
+    }
+    pub fn div(self, o: Cx) -> Cx {
+        let d = o.re * o.re + o.im * o.im;
+        Cx { re: (self.re * o.re + self.im * o.im) / d, im: (self.im * o.re - self.re * o.im) / d }
+    }
+    pub fn scale(self, k: f64) -> Cx {
+        Cx { re: self.re * k, im: self.im * k }
+    }
+}
+
+impl Add for Cx {
+    type Output = Cx;
+    fn add(self, o: Cx) -> Cx {
+        Cx { re: self.re + o.re, im: self.im + o.im }
+    }
+}
+impl Sub for Cx {
+    type Output = Cx;
+    fn sub(self, o: Cx) -> Cx {
+        Cx { re: self.re - o.re, im: self.im - o.im }
+    }
+}
+impl Mul for Cx {
+    type Output = Cx;
+    fn mul(self, o: Cx) -> Cx {
+        Cx { re: self.re * o.re - self.im * o.im, im: self.re * o.im + self.im * o.re }
+    }
+}
+impl Neg for Cx {
+    type Output = Cx;
+    fn neg(self) -> Cx {
+        Cx { re: -self.re, im: -self.im }
+    }
+}
+
+/// Where a load is connected: one line to neutral, two lines, or all three.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum Wiring {
+    LineNeutral(usize),
+    LineLine(usize, usize),
+    ThreePhase,
+}
+
+impl Wiring {
+    pub fn name(self) -> String {
+        match self {
+            Wiring::LineNeutral(a) => format!("L{}-N", a + 1),
+            Wiring::LineLine(a, b) => format!("L{}-L{}", a.min(b) + 1, a.max(b) + 1),
+            Wiring::ThreePhase => "3P".into(),
+        }
+    }
+    pub fn is_line_to_line(self) -> bool {
+        matches!(self, Wiring::LineLine(..))
+    }
+    pub fn lines(self, n: usize) -> Vec<usize> {
+        match self {
+            Wiring::LineNeutral(a) => vec![a],
+            Wiring::LineLine(a, b) => vec![a, b],
+            Wiring::ThreePhase => (0..n).collect(),
+        }
+    }
+    /// Every connection a supply of `n` lines offers.
+    pub fn all(n: usize) -> Vec<Wiring> {
+        let mut v: Vec<Wiring> = (0..n).map(Wiring::LineNeutral).collect();
+        for a in 0..n {
+            for b in a + 1..n {
+                v.push(Wiring::LineLine(a, b));
+            }
+        }
+        if n == 3 {
+            v.push(Wiring::ThreePhase);
+        }
+        v
+    }
+    /// The same connection with its lines renamed by `perm` (line x → perm[x]).
+    pub fn permuted(self, perm: &[usize]) -> Wiring {
+        match self {
+            Wiring::LineNeutral(a) => Wiring::LineNeutral(perm[a]),
+            Wiring::LineLine(a, b) => Wiring::LineLine(perm[a], perm[b]),
+            Wiring::ThreePhase => Wiring::ThreePhase,
+        }
+    }
+}
+
+#[derive(Clone, Debug)]
+pub struct Supply {
+    /// "split-phase", "three-phase", "single-phase".
+    pub kind: String,
+    /// Line-to-neutral phase angles, degrees, one per line.
+    pub angles_deg: Vec<f64>,
+    pub voltage_v: f64,
+    pub service_a: f64,
+}
+
+impl Supply {
+    pub fn lines(&self) -> usize {
+        self.angles_deg.len()
+    }
+    /// Unit phasor of line x's voltage.
+    pub fn unit(&self, x: usize) -> Cx {
+        Cx::polar_deg(1.0, self.angles_deg[x])
+    }
+
+    /// How a draw of complex power `s` on `w` shows on each line's meter
+    /// channel, S_x = V_x · conj(I_x). Line-to-neutral: all on its line.
+    /// Line-to-line between x and y: I = conj(s / (V_x − V_y)) leaves by x
+    /// and returns by y, so S_x = s · V_x / (V_x − V_y) and
+    /// S_y = −s · V_y / (V_x − V_y): the equal split s/2 + s/2 on a
+    /// split-phase supply, and s/√3 · e^{∓j30°} on a wye, which is the
+    /// two-wattmeter method (Blondel's theorem; any textbook on three-phase
+    /// power measurement). Three-phase: a balanced load, s/3 per line.
+    pub fn split(&self, w: Wiring, s: Cx) -> Vec<Cx> {
+        let n = self.lines();
+        let mut out = vec![Cx::ZERO; n];
+        match w {
+            Wiring::LineNeutral(a) => out[a] = s,
+            Wiring::LineLine(a, b) => {
+                let (va, vb) = (self.unit(a), self.unit(b));
+                let d = va - vb;
+                out[a] = s * va.div(d);
+                out[b] = -(s * vb.div(d));
+            }
+            Wiring::ThreePhase => out.iter_mut().for_each(|o| *o = s.scale(1.0 / n as f64)),
+        }
+        out
+    }
+}
+
+/// One load inside a state.
+#[derive(Clone, Debug)]
+pub struct DeclDraw {
+    pub wiring: Wiring,
+    /// Complex power at nominal voltage, W + j var.
+    pub s: Cx,
+}
+
+/// How an appliance changes state, as far as steps go.
+#[derive(Clone, Debug)]
+pub enum Steps {
+    /// Jumps between states: (from, to, scale of `to`'s power, scale of
+    /// `from`'s power), e.g. a modulating load starting at full power and
+    /// stopping from its minimum.
+    Jumps(Vec<(usize, usize, f64, f64)>),
+    /// Its power wanders: steps of any size up to the whole of `state`'s
+    /// power, always in that state's proportions between the lines; and
+    /// the jumps it makes at the start and end of a session, if any.
+    /// `max`: the largest single change, as a share of that power.
+    Wanders { state: usize, max: f64, jumps: Vec<(usize, usize, f64, f64)> },
+    /// Never switches (always on).
+    None(&'static str),
+}
+
+impl Steps {
+    pub fn jumps(&self) -> &[(usize, usize, f64, f64)] {
+        match self {
+            Steps::Jumps(j) | Steps::Wanders { jumps: j, .. } => j,
+            Steps::None(_) => &[],
+        }
+    }
+}
+
+#[derive(Clone, Debug)]
+pub struct DeclAppliance {
+    pub id: String,
+    pub label: String,
+    /// Draws of each state.
+    pub states: Vec<Vec<DeclDraw>>,
+    pub steps: Steps,
+}
+
+impl DeclAppliance {
+    /// Every connection its draws use, first-seen order.
+    pub fn wirings(&self) -> Vec<Wiring> {
+        let mut v = Vec::new();
+        for st in &self.states {
+            for d in st {
+                if !v.contains(&d.wiring) {
+                    v.push(d.wiring);
+                }
+            }
+        }
+        v
+    }
+    /// The same appliance wired otherwise: every draw moved by `f`.
+    pub fn rewired(&self, f: impl Fn(Wiring) -> Wiring) -> DeclAppliance {
+        let mut a = self.clone();
+        for st in a.states.iter_mut() {
+            for d in st.iter_mut() {
+                d.wiring = f(d.wiring);
+            }
+        }
+        a
+    }
+    /// Largest real-power step any of its jumps makes, W.
+    pub fn largest_step_w(&self) -> f64 {
+        self.steps
+            .jumps()
+            .iter()
+                .map(|&(a, b, kb, ka)| {
+                    let pa: f64 = self.states[a].iter().map(|d| d.s.re).sum();
+                    let pb: f64 = self.states[b].iter().map(|d| d.s.re).sum();
+                    (pb * kb - pa * ka).abs()
+                })
+                .fold(0.0, f64::max)
+    }
+}
+
+/// One meter channel as declared: the conductor its CT is on (None: no CT
+/// fitted) and whether it is declared clamped the wrong way round.
+#[derive(Clone, Debug)]
+pub struct DeclChannel {
+    pub conductor: Option<usize>,
+    pub reversed: bool,
+}
+
+#[derive(Clone, Debug)]
+pub struct Declared {
+    /// The declaration's file, for messages.
+    pub file: String,
+    /// Where the supply is declared ("file:line:col").
+    pub supply_at: String,
+    pub supply: Supply,
+    pub channels: Vec<DeclChannel>,
+    pub appliances: Vec<DeclAppliance>,
+}
+
+impl Declared {
+    /// Per-line complex power of state `k` of appliance `a`, at nominal voltage.
+    pub fn state_split(&self, a: &DeclAppliance, k: usize) -> Vec<Cx> {
+        let mut out = vec![Cx::ZERO; self.supply.lines()];
+        for d in &a.states[k] {
+            for (o, s) in out.iter_mut().zip(self.supply.split(d.wiring, d.s)) {
+                *o = *o + s;
+            }
+        }
+        out
+    }
+
+    /// The per-line steps an appliance makes (one vector per jump), at the
+    /// conductors (before any metering).
+    pub fn signatures(&self, a: &DeclAppliance) -> Vec<Vec<Cx>> {
+        let mut v: Vec<Vec<Cx>> = Vec::new();
+        for &(from, to, kt, kf) in a.steps.jumps() {
+            let (sf, st) = (self.state_split(a, from), self.state_split(a, to));
+            let d: Vec<Cx> = st.iter().zip(&sf).map(|(t, f)| t.scale(kt) - f.scale(kf)).collect();
+            let size = d.iter().map(|c| c.abs()).fold(0.0, f64::max);
+            if size > 0.0 && !v.iter().any(|w| w.iter().zip(&d).all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)) {
+                v.push(d);
+            }
+        }
+        v
+    }
+}
+
+impl Declared {
+    /// The per-line proportions of a wandering appliance's steps, if it wanders.
+    pub fn shape(&self, a: &DeclAppliance) -> Option<Vec<Cx>> {
+        match a.steps {
+            Steps::Wanders { state, max, .. } => Some(self.state_split(a, state).iter().map(|c| c.scale(max)).collect()),
+            _ => None,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn supply(kind: &str, angles: &[f64]) -> Supply {
+        Supply { kind: kind.into(), angles_deg: angles.to_vec(), voltage_v: 230.0, service_a: 63.0 }
+    }
+
+    /// Two-wattmeter method (Blondel's theorem; any textbook on three-phase
+    /// power measurement): two meters with the line currents of L1 and L2
+    /// read P = W1 + W2 and Q = √3 (W1 − W2) of a load between those lines
+    /// (with the meters referred to the neutral, each reads a third of that
+    /// imbalance: W1 − W2 = Q/√3).
+    #[test]
+    fn a_line_to_line_load_on_a_wye_splits_as_two_wattmeters_read() {
+        let s = supply("three-phase", &[0.0, -120.0, 120.0]);
+        let load = Cx::new(2000.0, 900.0);
+        let r = s.split(Wiring::LineLine(0, 1), load);
+        assert!((r[0].re + r[1].re - 2000.0).abs() < 1e-9);
+        assert!((r[0].im + r[1].im - 900.0).abs() < 1e-9);
+        assert!(((r[0].re - r[1].re) * 3f64.sqrt() - 900.0).abs() < 1e-9);
+        assert_eq!(r[2], Cx::ZERO);
+        // Each line carries |S|/√3 at ∓30° from the load's angle.
+        assert!((r[0].abs() - load.abs() / 3f64.sqrt()).abs() < 1e-9);
+    }
+
+    /// Split-phase: the legs are 180° apart, so a 240 V load shows half its
+    /// power on each leg (common practice, no source).
+    #[test]
+    fn a_line_to_line_load_on_split_phase_splits_equally() {
+        let s = supply("split-phase", &[0.0, 180.0]);
+        let r = s.split(Wiring::LineLine(0, 1), Cx::new(4500.0, 300.0));
+        for x in &r {
+            assert!((x.re - 2250.0).abs() < 1e-9 && (x.im - 150.0).abs() < 1e-9);
+        }
+    }
+}

@@ -1,0 +1,260 @@
+//! `loadloom audit`: an installer's declared wiring and metering checked
+//! against what the conductors show, with no training data, and the loading
+//! picture of the lines against the service.
+//!
+//! - [`decl`]: the declaration in the audit's terms (and the line split of
+//!   a load, the two-wattmeter relation);
+//! - [`events`]: step changes found on all channels together;
+//! - [`check`]: metering hypotheses, appliance wirings, undeclared loads;
+//! - loading: peak and demand current per line, imbalance, neutral.
+//!
+//! An analysis of data, not an inspection: see [`CAUTION`].
+
+pub mod check;
+pub mod decl;
+pub mod events;
+mod loading;
+
+pub use loading::*;
+
+use crate::dataset::Dataset;
+use crate::stream::{header, Header};
+use check::Outcome;
+use decl::Declared;
+use serde_json::{json, Value};
+use std::path::{Path, PathBuf};
+
+/// The meters file of a dataset folder, or the path itself when it is a file.
+pub fn meters_file(data: &Path) -> Result<PathBuf, String> {
+    if data.is_file() {
+        return Ok(data.to_path_buf());
+    }
+    ["meters.parquet", "meters.csv"]
+        .iter()
+        .map(|f| data.join(f))
+        .find(|p| p.is_file())
+        .ok_or_else(|| format!("error: {} holds no meters.parquet or meters.csv\n  = help: give a dataset folder or a meters file in the dataset format", data.display()))
+}
+
+/// What the audit concluded, with the loading picture.
+pub struct Audit {
+    pub data: String,
+    pub declared_file: String,
+    pub interval_s: f64,
+    pub rows: u64,
+    pub loading: Loading,
+    pub outcome: Outcome,
+    pub declared: Declared,
+}
+
+/// Line channels in a meters table: `l1`, `l2`, … in order, as long as
+/// their `_p_w` column exists.
+fn channels(h: &Header) -> Vec<String> {
+    (1..=3).map(|k| format!("l{k}")).take_while(|l| h.has(&format!("{l}_p_w"))).collect()
+}
+
+/// The declaration must describe the channels the data has.
+fn fit(d: &Declared, h: &Header, have: &[String]) -> Result<(), String> {
+    let n = d.supply.lines();
+    let want: Vec<String> = (0..n).filter(|&c| d.channels[c].conductor.is_some()).map(|c| format!("l{}", c + 1)).collect();
+    let missing: Vec<&String> = want.iter().filter(|w| !have.contains(w)).collect();
+    if missing.is_empty() && have.len() <= n {
+        return Ok(());
+    }
+    let lines: Vec<String> = (1..=n).map(|k| format!("L{k}")).collect();
+    let help = if have.len() > n {
+        format!("declare the supply the data was measured on: {} channels need a supply with {} lines", have.len(), have.len())
+    } else {
+        format!(
+            "declare the supply the data was measured on, or declare the channel{} without a CT under [metering], e.g. {} = {{ conductor = \"none\" }}",
+            if missing.len() > 1 { "s" } else { "" },
+            missing[0]
+        )
+    };
+    Err(format!(
+        "error: the declaration does not fit the data\n  --> {} (home.supply)\n  = the declaration has a {} supply, {}, with a CT on {}; {} has channel{} {}\n  = help: {help}",
+        d.supply_at,
+        d.supply.kind,
+        lines.join(", "),
+        if want.is_empty() { "none".into() } else { want.join(", ") },
+        h.file.display(),
+        if have.len() == 1 { "" } else { "s" },
+        if have.is_empty() { "none".into() } else { have.join(", ") },
+    ))
+}
+
+/// Audits the meters of `data` (a dataset folder or meters file) against `d`.
+pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
+    if data.is_dir() {
+        Dataset::open(data).map_err(|e| e.to_string())?;
+    }
+    let file = meters_file(data)?;
+    let h = header(&file).map_err(|e| e.to_string())?;
+    let have = channels(&h);
+    fit(d, &h, &have)?;
+    let n = d.supply.lines();
+    let mut cols = Vec::new();
+    for c in 0..n {
+        let l = format!("l{}", c + 1);
+        if have.contains(&l) {
+            cols.push(format!("{l}_p_w"));
+            cols.push(format!("{l}_q_var"));
+        }
+    }
+    let present: Vec<bool> = (0..n).map(|c| have.contains(&format!("l{}", c + 1))).collect();
+    let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
+    let mut det: Option<events::Detector> = None;
+    let mut interval_s = 0.0;
+    let (mut p, mut q) = (vec![f64::NAN; n], vec![f64::NAN; n]);
+    let mut rows = 0u64;
+    while let Some(b) = st.next().map_err(|e| e.to_string())? {
+        if det.is_none() {
+            interval_s = interval_of(&b.time_ms).ok_or_else(|| format!("error: {} has fewer than two rows\n  = help: the audit needs a meters table over days", file.display()))?;
+            det = Some(events::Detector::new(&d.supply.angles_deg, interval_s));
+        }
+        let det = det.as_mut().unwrap();
+        for (k, &t) in b.time_ms.iter().enumerate() {
+            let mut j = 0;
+            for c in 0..n {
+                if present[c] {
+                    p[c] = b.cols[j][k];
+                    q[c] = b.cols[j + 1][k];
+                    j += 2;
+                }
+            }
+            det.push(t, &p, &q);
+            rows += 1;
+        }
+    }
+    let det = det.ok_or_else(|| format!("error: {} has no rows\n  = help: the audit needs a meters table over days", file.display()))?;
+    let (evs, stats) = det.finish();
+    let outcome = check::check(d, &evs, &stats, interval_s);
+    let h2 = header(&file).map_err(|e| e.to_string())?;
+    let loading = loading_of(&h2, &have, &d.supply.angles_deg, d.supply.service_a)?;
+    Ok(Audit { data: data.display().to_string(), declared_file: d.file.clone(), interval_s, rows, loading, outcome, declared: d.clone() })
+}
+
+/// The reporting interval: the most common step between the first rows.
+pub fn interval_of(t: &[i64]) -> Option<f64> {
+    let mut d: Vec<i64> = t.windows(2).take(4000).map(|w| w[1] - w[0]).filter(|&x| x > 0).collect();
+    if d.is_empty() {
+        return None;
+    }
+    d.sort();
+    let (mut best, mut run, mut best_run) = (d[0], 0, 0);
+    for (i, &x) in d.iter().enumerate() {
+        run = if i > 0 && d[i - 1] == x { run + 1 } else { 1 };
+        if run > best_run {
+            best_run = run;
+            best = x;
+        }
+    }
+    Some(best as f64 / 1000.0)
+}
+
+/// What the audit takes for granted, printed with every report.
+pub const ASSUMPTIONS: [&str; 3] = [
+    "the home only consumes: a conductor power the metering implies must not be negative (a home with generation needs it declared, which this audit does not yet read)",
+    "appliances switch between the declared states; loads whose power wanders or never switches cannot be placed from steps and are reported as undecidable",
+    "steps are matched within 30 W plus 10 % of their size per channel (check::TOL_ABS_W, check::TOL_REL)",
+];
+
+impl Audit {
+    fn channel_rows(&self) -> Vec<[String; 3]> {
+        let m = &self.outcome.metering;
+        (0..m.map.len())
+            .map(|c| {
+                let dc = &self.declared.channels[c];
+                let declared = match dc.conductor {
+                    None => "no CT".to_string(),
+                    Some(b) => format!("CT on L{}{}", b + 1, if dc.reversed { ", reversed" } else { "" }),
+                };
+                let found = if m.absent[c] {
+                    "reads nothing".to_string()
+                } else {
+                    let mm = m.map[c];
+                    let mut s = if mm.turned { format!("CT on L{}", mm.src + 1) } else { format!("channel of L{}", mm.src + 1) };
+                    if mm.k < 0.0 {
+                        s += ", reversed";
+                    }
+                    s
+                };
+                [format!("l{}", c + 1), declared, found]
+            })
+            .collect()
+    }
+
+    pub fn to_json(&self) -> Value {
+        let mut loading = self.loading.to_json();
+        if let Some(o) = loading.as_object_mut() {
+            o.remove("format");
+            o.remove("caution");
+        }
+        json!({
+            "format": "loadloom-audit/1",
+            "data": self.data,
+            "declared": self.declared_file,
+            "interval_s": self.interval_s,
+            "rows": self.rows,
+            "metering": self.channel_rows().iter().map(|r| json!({ "channel": r[0], "declared": r[1], "found": r[2] })).collect::<Vec<_>>(),
+            "findings": self.outcome.findings.iter().map(|f| json!({ "kind": f.kind, "subject": f.subject, "message": f.message, "confidence": (f.confidence * 100.0).round() / 100.0, "evidence": f.evidence })).collect::<Vec<_>>(),
+            "appliances": self.outcome.appliances.iter().map(|a| json!({ "id": a.id, "declared": a.declared, "verdict": a.verdict, "seen": a.seen, "reason": a.reason, "steps_as_declared": a.steps_declared, "steps_best_other": a.steps_best_other })).collect::<Vec<_>>(),
+            "steps": { "used": self.outcome.steps, "explained": self.outcome.steps_explained },
+            "notes": self.outcome.notes,
+            "assumptions": ASSUMPTIONS,
+            "loading": loading,
+            "caution": CAUTION,
+        })
+    }
+
+    fn findings_text(&self, bullet: &str) -> String {
+        let f = &self.outcome.findings;
+        let mut o = if f.is_empty() { "no findings: the data fits the declaration\n".to_string() } else { format!("{} finding{}\n", f.len(), if f.len() == 1 { "" } else { "s" }) };
+        for x in f {
+            o += &format!("{bullet}[{}] {} (confidence {:.2})\n", x.kind, x.message, x.confidence);
+        }
+        o
+    }
+
+    pub fn to_text(&self) -> String {
+        let mut o = format!("audit of {} against {} ({} rows at {} s)\n\n", self.data, self.declared_file, self.rows, self.interval_s);
+        o += &self.findings_text("  ");
+        o += "\nmetering (channel, declared, found):\n";
+        for r in self.channel_rows() {
+            o += &format!("  {:<4} {:<22} {}\n", r[0], r[1], r[2]);
+        }
+        o += "\nappliances:\n";
+        let w = self.outcome.appliances.iter().map(|a| a.id.len()).max().unwrap_or(2);
+        for a in &self.outcome.appliances {
+            o += &format!("  {:<w$}  {:<14} {:<12} {}\n", a.id, a.declared, a.verdict, a.reason);
+        }
+        o += &format!("\n{} of {} steps of 100 VA or more are explained by the appliances as found\n", self.outcome.steps_explained, self.outcome.steps);
+        o += "assumptions:\n";
+        for a in ASSUMPTIONS {
+            o += &format!("  - {a}\n");
+        }
+        o += "\n";
+        o += &self.loading.to_text();
+        o
+    }
+
+    pub fn to_markdown(&self) -> String {
+        let mut o = format!("## Audit of `{}` against `{}`\n\n{} rows at {} s.\n\n", self.data, self.declared_file, self.rows, self.interval_s);
+        o += &self.findings_text("- ");
+        o += "\n| channel | declared | found |\n|---|---|---|\n";
+        for r in self.channel_rows() {
+            o += &format!("| {} | {} | {} |\n", r[0], r[1], r[2]);
+        }
+        o += "\n| appliance | declared | verdict | why |\n|---|---|---|---|\n";
+        for a in &self.outcome.appliances {
+            o += &format!("| {} | {} | {} | {} |\n", a.id, a.declared, a.verdict, a.reason);
+        }
+        o += "\nAssumptions:\n\n";
+        for a in ASSUMPTIONS {
+            o += &format!("- {a}\n");
+        }
+        o += "\n";
+        o += &self.loading.to_markdown();
+        o
+    }
+}
