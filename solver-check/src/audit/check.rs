@@ -195,7 +195,7 @@ fn hypotheses(d: &Declared, absent: &[bool]) -> Vec<(Metering, usize)> {
 
 /// Share of rows where the conductor power a channel implies under `m` is
 /// clearly negative; the largest over channels.
-fn negative_share(d: &Declared, m: &Metering, stats: &[ChannelStats]) -> f64 {
+fn negative_share(m: &Metering, stats: &[ChannelStats]) -> f64 {
     (0..m.map.len())
         .filter(|&c| !m.absent[c])
         .map(|c| {
@@ -203,7 +203,6 @@ fn negative_share(d: &Declared, m: &Metering, stats: &[ChannelStats]) -> f64 {
             let st = &stats[c];
             let read = (st.rows - st.null).max(1) as f64;
             let b = if mm.turned { mm.src } else { c };
-            let _ = d;
             st.negative[b][if mm.k > 0.0 { 0 } else { 1 }] as f64 / read
         })
         .fold(0.0, f64::max)
@@ -393,20 +392,18 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
         .iter()
         .enumerate()
         .map(|(i, (m, cost))| {
-            let neg = negative_share(d, m, stats);
+            let neg = negative_share(m, stats);
             let (apps, ex) = if neg <= NEGATIVE_OK { explained(d, m, &big) } else { (0, 0) };
             (i, apps, ex, neg, *cost)
         })
         .collect();
     let decl_i = hyps.iter().position(|(m, _)| *m == decl_m).unwrap_or(0);
     let ok = |s: &&(usize, usize, usize, f64, usize)| s.3 <= NEGATIVE_OK;
-    let best_apps = scored.iter().filter(ok).map(|s| s.1).max().unwrap_or(0);
     let (decl_apps, decl_ex, decl_neg) = (scored[decl_i].1, scored[decl_i].2, scored[decl_i].3);
     // The declared metering stands while it is admissible and explains at
     // least 90 % of the steps the best admissible one explains; otherwise
     // the cheapest admissible hypothesis within 95 % of the best.
     let best_ex = scored.iter().filter(ok).map(|s| s.2).max().unwrap_or(0);
-    let _ = best_apps;
     let chosen = if decl_neg <= NEGATIVE_OK && decl_ex as f64 >= 0.9 * best_ex as f64 {
         decl_i
     } else {

@@ -125,8 +125,9 @@ impl Detector {
         }
     }
 
-    fn emit(&mut self, seg: &Seg) {
-        if let Some(before) = &seg.pending {
+    /// Records the step into `seg`, if it waits, from the head seen so far.
+    fn emit(&mut self, seg: &mut Seg) {
+        if let Some(before) = seg.pending.take() {
             if seg.head_n > 0 {
                 let head: Vec<f64> = seg.head_sum.iter().map(|s| s / seg.head_n as f64).collect();
                 let delta: Vec<Cx> = (0..self.n).map(|c| Cx::new(head[2 * c] - before[2 * c], head[2 * c + 1] - before[2 * c + 1])).collect();
@@ -139,8 +140,8 @@ impl Detector {
     }
 
     fn close(&mut self) {
-        if let Some(seg) = self.seg.take() {
-            self.emit(&seg);
+        if let Some(mut seg) = self.seg.take() {
+            self.emit(&mut seg);
         }
         self.cand.clear();
     }
@@ -159,8 +160,7 @@ impl Detector {
             seg.head_sum.iter_mut().zip(&r).for_each(|(a, b)| *a += b);
             seg.head_n += 1;
             if seg.head_n == self.k {
-                let s = Seg { tail: VecDeque::new(), tail_sum: vec![], head_sum: seg.head_sum.clone(), head_n: seg.head_n, start_ms: seg.start_ms, pending: seg.pending.take() };
-                self.emit(&s);
+                self.emit(seg);
             }
         }
         seg.tail_sum.iter_mut().zip(&r).for_each(|(a, b)| *a += b);
@@ -238,8 +238,8 @@ impl Detector {
         if self.cand.len() >= self.l {
             let rows = std::mem::take(&mut self.cand);
             let before = match self.seg.take() {
-                Some(old) => {
-                    self.emit(&old);
+                Some(mut old) => {
+                    self.emit(&mut old);
                     before
                 }
                 None => None,
