@@ -32,6 +32,10 @@ fn wiring(c: Connection) -> Wiring {
     }
 }
 
+fn zip(z: crate::scenario::Zip) -> solver_check::audit::decl::Zip {
+    solver_check::audit::decl::Zip { z: z.z, i: z.i, p: z.p }
+}
+
 /// The declaration a scenario makes: its supply, its `[metering]` and its
 /// appliances (not its unmetered loads, which nobody listed, nor its
 /// faults, which are what really happened).
@@ -41,7 +45,7 @@ pub fn declared(s: &Scenario) -> Declared {
         .appliances
         .iter()
         .map(|a| {
-            let states = a.states.iter().map(|st| st.draws.iter().map(|d| DeclDraw { wiring: wiring(d.wiring), s: Cx::new(d.p_w, d.q_var) }).collect()).collect();
+            let states = a.states.iter().map(|st| st.draws.iter().map(|d| DeclDraw { wiring: wiring(d.wiring), s: Cx::new(d.p_w, d.q_var), zip_p: zip(d.zip_p), zip_q: zip(d.zip_q) }).collect()).collect();
             let n = a.states.len();
             let steps = match &a.behaviour {
                 Behaviour::Cycle { dwell, extra } => {
@@ -90,7 +94,7 @@ pub fn observe(s: &Scenario) -> Observed {
     let interval_ms = (s.meter.interval_s * 1000.0).round() as i64;
     let missing = s.faults.dropouts.as_ref().is_some_and(|d| d.mode == DropMode::Missing);
     let n = s.home.supply.lines();
-    let (mut p, mut q) = (vec![0.0; n], vec![0.0; n]);
+    let (mut p, mut q, mut v) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
     let out = simulate(s, &tl, s.intervals(), 65_536, |c| -> Result<(), ()> {
         let r = &c.readings;
         for i in 0..r.rows() {
@@ -100,16 +104,27 @@ pub fn observe(s: &Scenario) -> Observed {
             for x in 0..n {
                 p[x] = r.line_p[x][i] as f64;
                 q[x] = r.line_q[x][i] as f64;
+                v[x] = r.line_v[x][i] as f64;
             }
-            det.push(s.run.start_utc_ms + (c.first_row + i as u64) as i64 * interval_ms, &p, &q);
+            det.push(s.run.start_utc_ms + (c.first_row + i as u64) as i64 * interval_ms, &p, &q, &v);
         }
         Ok(())
     });
+    // Changes of state whose step the audit could use (a level that
+    // wanders within one state is not a change).
+    let d = declared(s);
     let mut changes = vec![0usize; s.appliances.len()];
-    if let Ok(o) = out {
-        for e in &o.events {
-            if e.app < changes.len() && e.start_step > 0 {
-                changes[e.app] += 1;
+    if let Ok(mut o) = out {
+        o.events.sort_by_key(|e| (e.app, e.start_step));
+        for w in o.events.windows(2) {
+            let (a, b) = (&w[0], &w[1]);
+            if a.app != b.app || b.app >= changes.len() || a.state == b.state {
+                continue;
+            }
+            let app = &d.appliances[b.app];
+            let (sa, sb) = (d.state_split(app, a.state as usize), d.state_split(app, b.state as usize));
+            if sa.iter().zip(&sb).map(|(x, y)| (*y - *x).abs()).fold(0.0, f64::max) >= check::USE_STEP {
+                changes[b.app] += 1;
             }
         }
     }
@@ -150,12 +165,14 @@ pub const VARIANTS: [Variant; 5] = [
 pub struct Mistake {
     pub kind: &'static str,
     pub subject: String,
-    /// For an undeclared load: its connection and largest real-power step.
-    pub load: Option<(String, f64)>,
+    /// For an undeclared load: its connections and the real power of each
+    /// of its steps of 500 W or more (a finding names one of them).
+    pub load: Option<(Vec<String>, Vec<f64>)>,
 }
 
-/// State changes an appliance needs in a run before a mistake about it
-/// counts as shown by the data (three starts and three stops).
+/// State changes with a step the audit uses (100 VA or more on a line) an
+/// appliance needs in a run before a mistake about it counts as shown by
+/// the data (three starts and three stops).
 pub const EXERCISED: usize = 6;
 
 pub struct Case {
@@ -169,6 +186,8 @@ pub struct Case {
     /// Mistakes about appliances that changed state fewer than
     /// [`EXERCISED`] times in the run: not counted in recall.
     pub unexercised: Vec<String>,
+    /// The audit's verdict and reason for each appliance a mistake is about.
+    pub why: Vec<String>,
 }
 
 fn chan(c: usize) -> String {
@@ -250,8 +269,8 @@ fn declaration_mistakes(d: &Declared, j: usize) -> Vec<(String, Mistake, Declare
     if a.largest_step_w() >= 1000.0 {
         let mut e = d.clone();
         e.appliances.remove(j);
-        let main = ws.iter().find(|w| w.is_line_to_line() || **w == Wiring::ThreePhase).copied().unwrap_or(ws[0]);
-        v.push((format!("{} left out of the declaration", a.id), Mistake { kind: "undeclared-load", subject: a.id.clone(), load: Some((main.name(), a.largest_step_w())) }, e));
+        let steps: Vec<f64> = d.signatures(a).iter().map(|t| t.iter().map(|c| c.re).sum::<f64>().abs()).filter(|p| *p >= 500.0).collect();
+        v.push((format!("{} left out of the declaration", a.id), Mistake { kind: "undeclared-load", subject: a.id.clone(), load: Some((ws.iter().map(|w| w.name()).collect(), steps)) }, e));
     }
     v
 }
@@ -267,7 +286,7 @@ fn hits(m: &Mistake, f: &(String, String, Value)) -> bool {
     }
     match &m.load {
         None => f.1 == m.subject,
-        Some((w, p)) => f.2["wiring"].as_str() == Some(w) && f.2["p_w"].as_f64().is_some_and(|x| (x - p).abs() <= 0.2 * p),
+        Some((ws, ps)) => f.2["wiring"].as_str().is_some_and(|w| ws.iter().any(|x| x == w)) && f.2["p_w"].as_f64().is_some_and(|x| ps.iter().any(|p| (x - p).abs() <= 0.2 * p)),
     }
 }
 
@@ -333,7 +352,12 @@ pub fn run_matrix(scenarios: &[(String, Scenario)], opts: &MatrixOptions, varian
 fn case_of(scenario: &str, name: &str, mistakes: Vec<Mistake>, o: &Outcome, d: &Declared, ob: &Observed) -> Case {
     let undecidable = mistakes.iter().filter(|m| o.appliances.iter().any(|a| a.id == m.subject && a.verdict == "undecidable")).map(|m| m.subject.clone()).collect();
     let unexercised = mistakes.iter().filter(|m| d.appliances.iter().position(|a| a.id == m.subject).is_some_and(|j| ob.changes[j] < EXERCISED)).map(|m| m.subject.clone()).collect();
-    Case { scenario: scenario.into(), name: name.into(), mistakes, found: found_of(o), undecidable, unexercised }
+    let why = mistakes
+        .iter()
+        .filter_map(|m| o.appliances.iter().find(|a| a.id == m.subject))
+        .map(|a| format!("{}: {}: {} (state changes with a usable step in the run: {})", a.id, a.verdict, a.reason, d.appliances.iter().position(|x| x.id == a.id).map(|j| ob.changes[j]).unwrap_or(0)))
+        .collect();
+    Case { scenario: scenario.into(), name: name.into(), mistakes, found: found_of(o), undecidable, unexercised, why }
 }
 
 /// Per kind: injected, found, undecidable; findings of the kind, true ones.
@@ -407,7 +431,8 @@ impl MatrixScore {
             "false_alarm_rate": ratio(self.clean_with_findings, self.clean),
             "kinds": self.kinds.iter().filter(|k| k.1.injected + k.1.reported > 0).map(|(k, s)| json!({
                 "kind": k, "injected": s.injected, "not_exercised": s.unexercised, "found": s.found, "undecidable": s.undecidable,
-                "recall": ratio(s.found, s.injected), "reported": s.reported, "precision": ratio(s.correct, s.reported),
+                "decided": s.injected - s.undecidable, "recall": ratio(s.found, s.injected - s.undecidable), "found_of_injected": ratio(s.found, s.injected),
+                "reported": s.reported, "precision": ratio(s.correct, s.reported),
             })).collect::<Vec<_>>(),
         })
     }
@@ -415,9 +440,10 @@ impl MatrixScore {
     pub fn to_markdown(&self, variant: &str) -> String {
         let pct = |x: Option<f64>| x.map(|v| format!("{:.1} %", 100.0 * v)).unwrap_or_else(|| "–".into());
         let mut o = format!("Fault matrix, {variant}: {} cases, {} clean; clean cases with a false finding: {} ({}).\n\n", self.cases, self.clean, self.clean_with_findings, pct(ratio(self.clean_with_findings, self.clean)));
-        o += "| mistake | injected | not exercised | found | undecidable | recall | findings | precision |\n|---|---:|---:|---:|---:|---:|---:|---:|\n";
+        o += "| mistake | injected | not exercised | undecidable | decided | found | recall | findings | precision |\n|---|---:|---:|---:|---:|---:|---:|---:|---:|\n";
         for (k, s) in self.kinds.iter().filter(|k| k.1.injected + k.1.reported > 0) {
-            o += &format!("| {k} | {} | {} | {} | {} | {} | {} | {} |\n", s.injected, s.unexercised, s.found, s.undecidable, pct(ratio(s.found, s.injected)), s.reported, pct(ratio(s.correct, s.reported)));
+            let decided = s.injected - s.undecidable;
+            o += &format!("| {k} | {} | {} | {} | {decided} | {} | {} | {} | {} |\n", s.injected, s.unexercised, s.undecidable, s.found, pct(ratio(s.found, decided)), s.reported, pct(ratio(s.correct, s.reported)));
         }
         o
     }

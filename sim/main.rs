@@ -350,6 +350,8 @@ fn audit_matrix(dir: &Path, days: f64, runs: usize, variants: &[String], json: b
             "scenario": c.scenario, "case": c.name,
             "injected": c.mistakes.iter().map(|m| format!("{} {}", m.kind, m.subject)).collect::<Vec<_>>(),
             "found": c.found.iter().map(|f| format!("{} {}", f.0, f.1)).collect::<Vec<_>>(),
+            "undecidable": c.undecidable, "not_exercised": c.unexercised,
+            "appliances": c.why,
         })).collect::<Vec<_>>());
         out_json.push(j);
         out_text += &sc.to_markdown(v.name);

@@ -20,7 +20,7 @@
 //!    their connection is the one whose split fits them best (least squares
 //!    over the channels).
 
-use super::decl::{Cx, DeclAppliance, Declared, Wiring};
+use super::decl::{Cx, DeclAppliance, DeclDraw, Declared, Wiring};
 use super::events::{ChannelStats, Event};
 use serde_json::{json, Value};
 
@@ -100,7 +100,7 @@ pub struct Outcome {
 }
 
 /// Steps smaller than this (largest channel, VA) are not used to decide.
-const USE_STEP: f64 = 100.0;
+pub const USE_STEP: f64 = 100.0;
 /// Tolerance of a predicted step: 30 W plus 10 % of its size per channel
 /// (a constant-impedance load moves ±10 % across a ±5 % supply band;
 /// common practice, no source).
@@ -129,6 +129,176 @@ fn fits(e: &Event, r: &[Option<Cx>]) -> bool {
 
 fn dist_all(e: &Event, sigs: &[Vec<Option<Cx>>]) -> f64 {
     sigs.iter().map(|r| dist(e, r)).fold(f64::INFINITY, f64::min)
+}
+
+// ---- expected steps at an event's measured voltages ----------------------
+
+/// One draw's part in a jump: its power counts `k` times, at the voltage
+/// after the step (`after`) or before it.
+#[derive(Clone)]
+struct Term {
+    draw: DeclDraw,
+    k: f64,
+    after: bool,
+}
+
+/// An appliance's jumps, each as the draws it adds and removes, so its
+/// step can be computed at the voltages around any one event.
+#[derive(Clone)]
+pub struct Model {
+    jumps: Vec<Vec<Term>>,
+}
+
+impl Model {
+    pub fn of(d: &Declared, a: &DeclAppliance) -> Model {
+        let mut jumps: Vec<Vec<Term>> = Vec::new();
+        let mut seen: Vec<Vec<Cx>> = Vec::new();
+        for &(from, to, kt, kf) in a.steps.jumps() {
+            let (sf, st) = (d.state_split(a, from), d.state_split(a, to));
+            let nom: Vec<Cx> = st.iter().zip(&sf).map(|(t, f)| t.scale(kt) - f.scale(kf)).collect();
+            if nom.iter().all(|c| c.abs() == 0.0) || seen.iter().any(|w| w.iter().zip(&nom).all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)) {
+                continue;
+            }
+            seen.push(nom);
+            let mut t: Vec<Term> = a.states[to].iter().map(|dr| Term { draw: dr.clone(), k: kt, after: true }).collect();
+            t.extend(a.states[from].iter().map(|dr| Term { draw: dr.clone(), k: -kf, after: false }));
+            jumps.push(t);
+        }
+        Model { jumps }
+    }
+}
+
+/// What an event's voltages say, under a metering: each conductor's
+/// voltage before and after (None: not measured), and per channel the
+/// change the other loads make as the voltage moves.
+pub struct Ctx {
+    vb: Vec<f64>,
+    va: Vec<f64>,
+    known: bool,
+    /// Expected change of the channel's other loads: their level times the
+    /// relative voltage change (a constant-current mean of constant
+    /// impedance and constant power), and as much again of slack.
+    react: Vec<Cx>,
+    slack: Vec<f64>,
+}
+
+impl Ctx {
+    pub fn of(d: &Declared, m: &Metering, e: &Event) -> Ctx {
+        let n = d.supply.lines();
+        // Voltage leads stay on their channels' lines unless the channels
+        // are exchanged whole.
+        let lead = |b: usize| (0..n).find(|&c| !m.map[c].turned && m.map[c].src == b).unwrap_or(b);
+        let vb: Vec<f64> = (0..n).map(|b| e.v_before.get(lead(b)).copied().unwrap_or(f64::NAN)).collect();
+        let va: Vec<f64> = (0..n).map(|b| e.v_after.get(lead(b)).copied().unwrap_or(f64::NAN)).collect();
+        let known = vb.iter().chain(&va).all(|v| v.is_finite() && *v > 0.0);
+        let (mut react, mut slack) = (vec![Cx::ZERO; n], vec![0.0; n]);
+        if known {
+            for c in 0..n {
+                let (b, a) = (e.v_before.get(c).copied().unwrap_or(f64::NAN), e.v_after.get(c).copied().unwrap_or(f64::NAN));
+                if b.is_finite() && a.is_finite() && b > 0.0 {
+                    let dv = a / b - 1.0;
+                    react[c] = e.before[c].scale(dv);
+                    slack[c] = e.before[c].abs() * dv.abs();
+                }
+            }
+        }
+        Ctx { vb, va, known, react, slack }
+    }
+
+    fn u(&self, d: &Declared, w: super::decl::Wiring, after: bool) -> f64 {
+        if !self.known {
+            return 1.0;
+        }
+        d.supply.ratio_across(w, if after { &self.va } else { &self.vb }).unwrap_or(1.0)
+    }
+}
+
+/// Tolerance of an expected step with measured voltages: 20 W plus 3 % of
+/// its size (the rest of a constant-impedance load's ±10 % over the
+/// supply band is predicted from the voltage; common practice, no source).
+pub const TOL_ABS_V_W: f64 = 20.0;
+pub const TOL_REL_V: f64 = 0.03;
+
+/// Distance of an event from an appliance's jumps at the event's voltages,
+/// in tolerances (≤ 1 fits), either way round.
+/// With `shapes`, a jump together with part of the wander of a wandering
+/// appliance in the same interval also fits (a step and a modulating
+/// load's change a second apart make one event).
+/// Returns (alone, with a wander).
+fn dist_model(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model, shapes: &[Vec<Option<Cx>>]) -> (f64, f64) {
+    let n = d.supply.lines();
+    let mut best = f64::INFINITY;
+    let mut comp = f64::INFINITY;
+    for j in &md.jumps {
+        for fwd in [true, false] {
+            // Forward: the jump's draws as given, "after" at the voltage
+            // after. Backward (the jump undone): every sign turned and the
+            // voltages exchanged.
+            let mut t = vec![Cx::ZERO; n];
+            for term in j {
+                let after = if fwd { term.after } else { !term.after };
+                let s = term.draw.at(cx.u(d, term.draw.wiring, after)).scale(if fwd { term.k } else { -term.k });
+                for (o, x) in t.iter_mut().zip(d.supply.split(term.draw.wiring, s)) {
+                    *o = *o + x;
+                }
+            }
+            let r = m.read(d, &t);
+            let size = r.iter().flatten().map(|c| c.abs()).fold(0.0, f64::max);
+            if size < USE_STEP {
+                continue;
+            }
+            let rel = if cx.known { TOL_REL_V } else { TOL_REL };
+            let abs = if cx.known { TOL_ABS_V_W } else { TOL_ABS_W };
+            let tol: Vec<f64> = (0..n).map(|c| abs + rel * size + 3.0 * e.se[c] + cx.slack[c]).collect();
+            let res: Vec<Option<Cx>> = (0..n).map(|c| r[c].map(|rc| e.delta[c] - rc - cx.react[c])).collect();
+            let worst = (0..n).filter_map(|c| res[c].map(|x| x.abs() / tol[c])).fold(0.0, f64::max);
+            best = best.min(worst);
+            if worst > 1.0 {
+                for sh in shapes {
+                    let (mut num, mut den) = (0.0, 0.0);
+                    for c in 0..n {
+                        if let (Some(x), Some(g)) = (res[c], sh[c]) {
+                            num += (g.re * x.re + g.im * x.im) / (tol[c] * tol[c]);
+                            den += g.abs().powi(2) / (tol[c] * tol[c]);
+                        }
+                    }
+                    if den == 0.0 {
+                        continue;
+                    }
+                    let lam = (num / den).clamp(-1.0, 1.0);
+                    let w = (0..n).filter_map(|c| res[c].map(|x| (x - sh[c].unwrap_or(Cx::ZERO).scale(lam)).abs() / tol[c])).fold(0.0, f64::max);
+                    comp = comp.min(w);
+                }
+            }
+        }
+    }
+    (best, comp.min(best))
+}
+
+/// An appliance's expected steps under a metering: at nominal voltage (a
+/// quick first test) and as a model for the voltages of each event.
+struct Pred {
+    nom: Vec<Vec<Option<Cx>>>,
+    model: Model,
+}
+
+impl Pred {
+    fn of(d: &Declared, m: &Metering, a: &DeclAppliance) -> Pred {
+        Pred { nom: predicted(d, m, a), model: Model::of(d, a) }
+    }
+    /// Distance of event `e` (with its voltages `cx`) from these steps:
+    /// alone, and (with `shapes`) alone or together with part of a wander.
+    fn dist2(&self, d: &Declared, m: &Metering, e: &Event, cx: &Ctx, shapes: &[Vec<Option<Cx>>]) -> (f64, f64) {
+        // Far off even at nominal voltage and the wide tolerance: no need
+        // to work out the voltages.
+        if dist_all(e, &self.nom) > if shapes.is_empty() { 2.5 } else { 5.0 } {
+            return (f64::INFINITY, f64::INFINITY);
+        }
+        dist_model(d, m, e, cx, &self.model, shapes)
+    }
+    fn dist(&self, d: &Declared, m: &Metering, e: &Event, cx: &Ctx) -> f64 {
+        self.dist2(d, m, e, cx, &[]).0
+    }
 }
 
 /// One appliance's predicted channel steps under a metering.
@@ -420,13 +590,16 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     notes.push(format!("metering: {ch_apps} appliances and {ch_ex} of {} steps of 150 VA or more fit under the metering found ({decl_apps} and {decl_ex} as declared)", big.len()));
     // 2. Appliances.
     let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
-    let (checks, placed) = place(d, &m, &used, &mut findings);
+    let cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
+    let (checks, placed) = place(d, &m, &used, &cxs, &mut findings);
     // 3. Undeclared recurring loads.
-    let explain: Vec<Vec<Vec<Option<Cx>>>> = placed.iter().map(|a| predicted(d, &m, a)).collect();
+    let explain: Vec<Pred> = placed.iter().map(|a| Pred::of(d, &m, a)).collect();
+    let own: Vec<Option<Vec<Option<Cx>>>> = placed.iter().map(|a| shape_of(d, &m, a)).collect();
+    let dj = distances(d, &m, &used, &cxs, &explain, &own);
+    let fit: Vec<bool> = dj.iter().map(|r| r.iter().any(|x| *x <= 1.0)).collect();
     let total_wh: f64 = stats.iter().enumerate().filter(|(c, _)| !absent[*c]).map(|(_, s)| s.sum_p).sum::<f64>() * interval_s / 3600.0;
-    let shapes: Vec<Vec<Option<Cx>>> = d.appliances.iter().filter_map(|a| shape_of(d, &m, a)).collect();
-    undeclared(d, &m, events, &explain, &shapes, total_wh, &mut findings);
-    let steps_explained = used.iter().filter(|e| explain.iter().any(|s| any_fits(e, s)) || shapes.iter().any(|r| fits_shape(e, r))).count();
+    undeclared(d, &m, &used, &fit, total_wh, &mut findings);
+    let steps_explained = fit.iter().filter(|x| **x).count();
     Outcome { findings, appliances: checks, metering: m, steps: used.len(), steps_explained, notes }
 }
 
@@ -462,7 +635,14 @@ fn metering_findings(d: &Declared, decl: &Metering, m: &Metering, confidence: f6
     }
 }
 
-fn undeclared(d: &Declared, m: &Metering, events: &[Event], explain: &[Vec<Vec<Option<Cx>>>], shapes: &[Vec<Option<Cx>>], total_wh: f64, out: &mut Vec<Finding>) {
+/// The first few of some event times, as UTC timestamps (evidence a user
+/// can look up in the data).
+fn first(ms: &[i64]) -> Vec<String> {
+    ms.iter().take(5).map(|&t| jiff::Timestamp::from_millisecond(t).map(|t| t.to_string()).unwrap_or_default()).collect()
+}
+
+#[allow(clippy::too_many_arguments)]
+fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool], total_wh: f64, out: &mut Vec<Finding>) {
     struct Cluster {
         wiring: Wiring,
         s: Cx,
@@ -470,10 +650,7 @@ fn undeclared(d: &Declared, m: &Metering, events: &[Event], explain: &[Vec<Vec<O
         off: Vec<i64>,
     }
     let mut cl: Vec<Cluster> = Vec::new();
-    for e in events.iter().filter(|e| e.size() >= 400.0) {
-        if explain.iter().any(|s| any_fits(e, s)) || shapes.iter().any(|r| fits_shape(e, r)) {
-            continue;
-        }
+    for (e, _) in events.iter().zip(explained).filter(|(e, x)| e.size() >= 400.0 && !**x) {
         let fit = connection_of(d, m, &e.delta);
         let (w, s, res) = fit[0];
         if res > 0.2 {
@@ -520,9 +697,33 @@ fn undeclared(d: &Declared, m: &Metering, events: &[Event], explain: &[Vec<Vec<O
             subject: format!("{:.0} W on {}", c.s.re, c.wiring.name()),
             message: format!("a recurring load of about {:.0} W (pf {:.2}) on {} that no declared appliance explains: started {} times, stopped {} times, about {:.1} % of the energy", c.s.re, c.s.re / c.s.abs(), c.wiring.name(), c.on.len(), c.off.len(), 100.0 * share),
             confidence: ((c.on.len().min(c.off.len())) as f64 / 10.0).min(1.0),
-            evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring.name(), "energy_share": share }),
+            evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring.name(), "energy_share": share, "first_starts": first(&c.on), "first_stops": first(&c.off) }),
         });
     }
+}
+
+/// Each event's distance from each appliance's steps (rows: events). A
+/// jump together with part of a wander in the same interval is a
+/// coincidence, so it counts only for an appliance that needs it rarely:
+/// at most a quarter as often as its steps fit alone, plus two (a load
+/// nobody declared must not pass as a declared one plus a wander each
+/// time). An appliance that wanders also fits its own wander steps.
+fn distances(d: &Declared, m: &Metering, events: &[&Event], cxs: &[Ctx], preds: &[Pred], own: &[Option<Vec<Option<Cx>>>]) -> Vec<Vec<f64>> {
+    let shapes: Vec<Vec<Option<Cx>>> = own.iter().flatten().cloned().collect();
+    let na = preds.len();
+    let pairs: Vec<Vec<(f64, f64)>> = events.iter().zip(cxs).map(|(e, cx)| preds.iter().map(|p| p.dist2(d, m, e, cx, &shapes)).collect()).collect();
+    let plausible: Vec<bool> = (0..na)
+        .map(|j| {
+            let alone = pairs.iter().filter(|r| r[j].0 <= 1.0).count();
+            let with = pairs.iter().filter(|r| r[j].0 > 1.0 && r[j].1 <= 1.0).count();
+            with as f64 <= 0.25 * alone as f64 + 2.0
+        })
+        .collect();
+    pairs
+        .iter()
+        .zip(events)
+        .map(|(r, e)| (0..na).map(|j| if plausible[j] { r[j].1 } else { r[j].0 }.min(own[j].as_ref().map(|sh| dist_shape(e, sh)).unwrap_or(f64::INFINITY))).collect())
+        .collect()
 }
 
 /// Places every appliance: its wiring as declared, or another one the
@@ -530,7 +731,7 @@ fn undeclared(d: &Declared, m: &Metering, events: &[Event], explain: &[Vec<Vec<O
 /// first and the appliance moved before the others are weighed again, so
 /// steps one misdeclared appliance leaves behind are not pinned on another.
 /// Returns the checks and the appliances as placed.
-fn place(d: &Declared, m: &Metering, used: &[&Event], findings: &mut Vec<Finding>) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>) {
+fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], findings: &mut Vec<Finding>) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>) {
     let na = d.appliances.len();
     let n = d.supply.lines();
     // Conductors some working channel reads; a wiring through another one
@@ -540,24 +741,23 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], findings: &mut Vec<Finding
     let mut placed: Vec<DeclAppliance> = d.appliances.clone();
     let mut moved = vec![false; na];
     loop {
-        let sigs: Vec<Vec<Vec<Option<Cx>>>> = placed.iter().map(|a| predicted(d, m, a)).collect();
+        let sigs: Vec<Pred> = placed.iter().map(|a| Pred::of(d, m, a)).collect();
         let shapes: Vec<Option<Vec<Option<Cx>>>> = placed.iter().map(|a| shape_of(d, m, a)).collect();
-        // Each step's distance from each appliance as placed (jumps or wander).
-        let dj: Vec<Vec<f64>> = used
-            .iter()
-            .map(|e| (0..na).map(|j| dist_all(e, &sigs[j]).min(shapes[j].as_ref().map(|r| dist_shape(e, r)).unwrap_or(f64::INFINITY))).collect())
-            .collect();
-        // Steps that fit a wiring of appliance j better than any other
-        // appliance (exclusive), all that fit, and who else fits.
-        let excl = |j: usize, sg: &[Vec<Option<Cx>>]| -> (usize, usize, Vec<usize>) {
+        let dj = distances(d, m, used, cxs, &sigs, &shapes);
+        // Steps that fit a wiring of appliance j and no other appliance as
+        // placed (exclusive), all that fit, and who else fits.
+        let excl = |j: usize, sg: &Pred| -> (usize, usize, Vec<usize>) {
             let (mut x, mut all, mut who) = (0, 0, Vec::new());
             for (k, e) in used.iter().enumerate() {
-                let me = dist_all(e, sg);
+                let me = sg.dist(d, m, e, &cxs[k]);
                 if me <= 1.0 {
                     all += 1;
                     let rival = (0..na).filter(|&o| o != j).min_by(|&a, &b| dj[k][a].total_cmp(&dj[k][b]));
+                    if std::env::var("LOADLOOM_TRACE").is_ok_and(|v| v == placed[j].id) {
+                        eprintln!("{} me {me:.2} rival {:?} {:.2} delta {:?} se {:?}", e.time_ms, rival.map(|o| placed[o].id.clone()), rival.map(|o| dj[k][o]).unwrap_or(0.0), e.delta.iter().map(|c| (c.re.round(), c.im.round())).collect::<Vec<_>>(), e.se.iter().map(|x| x.round()).collect::<Vec<_>>());
+                    }
                     match rival {
-                        Some(o) if dj[k][o] <= me => who.push(o),
+                        Some(o) if dj[k][o] <= 1.0 => who.push(o),
                         _ => x += 1,
                     }
                 }
@@ -598,7 +798,7 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], findings: &mut Vec<Finding
                 checks.push(ck);
                 continue;
             }
-            if !visible(&sigs[j]) {
+            if !visible(&sigs[j].nom) {
                 ck.reason = "its steps are too small to see".into();
                 checks.push(ck);
                 continue;
@@ -606,8 +806,8 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], findings: &mut Vec<Finding
             let (n_d, _, _) = excl(j, &sigs[j]);
             let mut best: Option<(usize, usize, String, DeclAppliance, Vec<usize>)> = None;
             for (name, alt) in alternatives(d, a) {
-                let sg = predicted(d, m, &alt);
-                if !visible(&sg) || blind(&alt).is_some() {
+                let sg = Pred::of(d, m, &alt);
+                if !visible(&sg.nom) || blind(&alt).is_some() {
                     continue;
                 }
                 let (x, all, who) = excl(j, &sg);

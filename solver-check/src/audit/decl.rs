@@ -130,6 +130,30 @@ impl Supply {
         Cx::polar_deg(1.0, self.angles_deg[x])
     }
 
+    /// Nominal voltage across a connection: line to neutral, between two
+    /// legs of a split-phase supply (twice that), between two lines of a
+    /// wye (√3 times); a three-phase load as its delta equivalent, line to line.
+    pub fn nominal_across(&self, w: Wiring) -> f64 {
+        match w {
+            Wiring::LineNeutral(_) => self.voltage_v,
+            _ => (self.unit(0) - self.unit(1)).abs() * self.voltage_v,
+        }
+    }
+
+    /// Voltage across a connection, as a multiple of its nominal, from the
+    /// measured line-to-neutral magnitudes `vm` at the supply's nominal
+    /// angles; a three-phase load gets the mean over its three line pairs.
+    /// None when a voltage it needs is not measured.
+    pub fn ratio_across(&self, w: Wiring, vm: &[f64]) -> Option<f64> {
+        let pair = |a: usize, b: usize| (self.unit(a).scale(vm[a]) - self.unit(b).scale(vm[b])).abs();
+        let r = match w {
+            Wiring::LineNeutral(a) => vm[a] / self.voltage_v,
+            Wiring::LineLine(a, b) => pair(a, b) / self.nominal_across(w),
+            Wiring::ThreePhase => (pair(0, 1) + pair(1, 2) + pair(2, 0)) / (3.0 * self.nominal_across(w)),
+        };
+        (r.is_finite() && r > 0.5 && r < 1.5).then_some(r)
+    }
+
     /// How a draw of complex power `s` on `w` shows on each line's meter
     /// channel, S_x = V_x · conj(I_x). Line-to-neutral: all on its line.
     /// Line-to-line between x and y: I = conj(s / (V_x − V_y)) leaves by x
@@ -155,12 +179,40 @@ impl Supply {
     }
 }
 
+/// How a load's power follows its voltage: constant impedance, current and
+/// power fractions (ZIP model, Bokhari et al., IEEE Trans. Power Delivery
+/// 29(3), 2014): P(V) = P0 · (z·(V/V0)² + i·(V/V0) + p).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Zip {
+    pub z: f64,
+    pub i: f64,
+    pub p: f64,
+}
+
+impl Zip {
+    /// Constant power: no dependence on voltage.
+    pub const POWER: Zip = Zip { z: 0.0, i: 0.0, p: 1.0 };
+    pub fn factor(&self, u: f64) -> f64 {
+        self.z * u * u + self.i * u + self.p
+    }
+}
+
 /// One load inside a state.
 #[derive(Clone, Debug)]
 pub struct DeclDraw {
     pub wiring: Wiring,
-    /// Complex power at nominal voltage, W + j var.
+    /// Complex power at the connection's nominal voltage, W + j var.
     pub s: Cx,
+    /// Voltage dependence of P and of Q.
+    pub zip_p: Zip,
+    pub zip_q: Zip,
+}
+
+impl DeclDraw {
+    /// Its complex power at `u` times the connection's nominal voltage.
+    pub fn at(&self, u: f64) -> Cx {
+        Cx::new(self.s.re * self.zip_p.factor(u), self.s.im * self.zip_q.factor(u))
+    }
 }
 
 /// How an appliance changes state, as far as steps go.

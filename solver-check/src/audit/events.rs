@@ -23,6 +23,12 @@ pub struct Event {
     pub delta: Vec<Cx>,
     /// Each channel's level just before the step.
     pub before: Vec<Cx>,
+    /// Each channel's voltage before and after the step, V (NaN: not measured).
+    pub v_before: Vec<f64>,
+    pub v_after: Vec<f64>,
+    /// Standard error of each channel's change from the spread of the rows
+    /// it is the difference of means of, VA.
+    pub se: Vec<f64>,
 }
 
 impl Event {
@@ -56,14 +62,38 @@ pub struct ChannelStats {
     pub negative: Vec<[u64; 2]>,
 }
 
+/// Mean and variance of some rows (P, Q per channel, then V per channel).
+#[derive(Clone)]
+struct Level {
+    mean: Vec<f64>,
+    var: Vec<f64>,
+    n: usize,
+}
+
+impl Level {
+    fn of(sum: &[f64], sq: &[f64], n: usize) -> Level {
+        let mean: Vec<f64> = sum.iter().map(|s| s / n as f64).collect();
+        let var = sq.iter().zip(&mean).map(|(q, m)| if n > 1 { ((q / n as f64 - m * m) * n as f64 / (n - 1) as f64).max(0.0) } else { 0.0 }).collect();
+        Level { mean, var, n }
+    }
+}
+
 struct Seg {
     tail: VecDeque<Vec<f64>>,
     tail_sum: Vec<f64>,
+    tail_sq: Vec<f64>,
     head_sum: Vec<f64>,
+    head_sq: Vec<f64>,
     head_n: usize,
     start_ms: i64,
-    /// The step into this stretch, waiting for its head mean.
-    pending: Option<Vec<f64>>,
+    /// The level before the step into this stretch, waiting for its head mean.
+    pending: Option<Level>,
+}
+
+impl Seg {
+    fn tail_level(&self) -> Level {
+        Level::of(&self.tail_sum, &self.tail_sq, self.tail.len())
+    }
 }
 
 pub struct Detector {
@@ -73,6 +103,7 @@ pub struct Detector {
     l: usize,
     interval_ms: i64,
     last_ms: Option<i64>,
+    last_v: Vec<f64>,
     seg: Option<Seg>,
     cand: Vec<Vec<f64>>,
     cand_ms: i64,
@@ -80,8 +111,11 @@ pub struct Detector {
     pub stats: Vec<ChannelStats>,
 }
 
+/// Whether a row (P, Q per channel; the voltages after them are not
+/// compared) stays within the tolerance of a mean.
 fn fits(x: &[f64], mean: &[f64]) -> bool {
-    x.chunks(2).zip(mean.chunks(2)).all(|(a, m)| {
+    let pq = 2 * (x.len() / 3);
+    x[..pq].chunks(2).zip(mean[..pq].chunks(2)).all(|(a, m)| {
         let tol = ABS_TOL_W + REL_TOL * m[0].hypot(m[1]);
         (a[0] - m[0]).abs() <= tol && (a[1] - m[1]).abs() <= tol
     })
@@ -117,6 +151,7 @@ impl Detector {
             l,
             interval_ms: (interval_s * 1000.0).round() as i64,
             last_ms: None,
+            last_v: vec![f64::NAN; n],
             seg: None,
             cand: Vec::new(),
             cand_ms: 0,
@@ -127,13 +162,15 @@ impl Detector {
 
     /// Records the step into `seg`, if it waits, from the head seen so far.
     fn emit(&mut self, seg: &mut Seg) {
-        if let Some(before) = seg.pending.take() {
+        if let Some(b) = seg.pending.take() {
             if seg.head_n > 0 {
-                let head: Vec<f64> = seg.head_sum.iter().map(|s| s / seg.head_n as f64).collect();
-                let delta: Vec<Cx> = (0..self.n).map(|c| Cx::new(head[2 * c] - before[2 * c], head[2 * c + 1] - before[2 * c + 1])).collect();
+                let n = self.n;
+                let h = Level::of(&seg.head_sum, &seg.head_sq, seg.head_n);
+                let delta: Vec<Cx> = (0..n).map(|c| Cx::new(h.mean[2 * c] - b.mean[2 * c], h.mean[2 * c + 1] - b.mean[2 * c + 1])).collect();
                 if delta.iter().any(|d| d.abs() >= MIN_STEP_W) {
-                    let before = (0..self.n).map(|c| Cx::new(before[2 * c], before[2 * c + 1])).collect();
-                    self.events.push(Event { time_ms: seg.start_ms, delta, before });
+                    let se = (0..n).map(|c| (2 * c..2 * c + 2).map(|i| h.var[i] / h.n as f64 + b.var[i] / b.n as f64).sum::<f64>().sqrt()).collect();
+                    let before = (0..n).map(|c| Cx::new(b.mean[2 * c], b.mean[2 * c + 1])).collect();
+                    self.events.push(Event { time_ms: seg.start_ms, delta, before, v_before: b.mean[2 * n..].to_vec(), v_after: h.mean[2 * n..].to_vec(), se });
                 }
             }
         }
@@ -146,9 +183,9 @@ impl Detector {
         self.cand.clear();
     }
 
-    fn start(&mut self, rows: Vec<Vec<f64>>, start_ms: i64, before: Option<Vec<f64>>) {
+    fn start(&mut self, rows: Vec<Vec<f64>>, start_ms: i64, before: Option<Level>) {
         let dim = rows[0].len();
-        let mut seg = Seg { tail: VecDeque::new(), tail_sum: vec![0.0; dim], head_sum: vec![0.0; dim], head_n: 0, start_ms, pending: before };
+        let mut seg = Seg { tail: VecDeque::new(), tail_sum: vec![0.0; dim], tail_sq: vec![0.0; dim], head_sum: vec![0.0; dim], head_sq: vec![0.0; dim], head_n: 0, start_ms, pending: before };
         for r in rows {
             self.push_into(&mut seg, r);
         }
@@ -158,21 +195,25 @@ impl Detector {
     fn push_into(&mut self, seg: &mut Seg, r: Vec<f64>) {
         if seg.head_n < self.k {
             seg.head_sum.iter_mut().zip(&r).for_each(|(a, b)| *a += b);
+            seg.head_sq.iter_mut().zip(&r).for_each(|(a, b)| *a += b * b);
             seg.head_n += 1;
             if seg.head_n == self.k {
                 self.emit(seg);
             }
         }
         seg.tail_sum.iter_mut().zip(&r).for_each(|(a, b)| *a += b);
+        seg.tail_sq.iter_mut().zip(&r).for_each(|(a, b)| *a += b * b);
         seg.tail.push_back(r);
         if seg.tail.len() > self.k {
             let old = seg.tail.pop_front().unwrap();
             seg.tail_sum.iter_mut().zip(&old).for_each(|(a, b)| *a -= b);
+            seg.tail_sq.iter_mut().zip(&old).for_each(|(a, b)| *a -= b * b);
         }
     }
 
-    /// Adds one reporting interval: P and Q per channel, NaN when null.
-    pub fn push(&mut self, time_ms: i64, p: &[f64], q: &[f64]) {
+    /// Adds one reporting interval: P, Q and voltage per channel, NaN when
+    /// null (voltage NaN: not measured).
+    pub fn push(&mut self, time_ms: i64, p: &[f64], q: &[f64], v: &[f64]) {
         let n = self.n;
         if p.iter().all(|x| x.is_nan()) {
             self.close();
@@ -185,7 +226,15 @@ impl Detector {
             }
         }
         self.last_ms = Some(time_ms);
-        let mut row = vec![0.0; 2 * n];
+        let mut row = vec![0.0; 3 * n];
+        // A voltage missing from a row is the last one read (a sum with a
+        // NaN in it would stay NaN); never read, NaN throughout.
+        for c in 0..n {
+            if v[c].is_finite() {
+                self.last_v[c] = v[c];
+            }
+            row[2 * n + c] = self.last_v[c];
+        }
         for c in 0..n {
             let st = &mut self.stats[c];
             st.rows += 1;
@@ -215,8 +264,8 @@ impl Detector {
             self.candidate(row, time_ms, None);
             return;
         };
-        let tail_mean: Vec<f64> = seg.tail_sum.iter().map(|s| s / seg.tail.len() as f64).collect();
-        if fits(&row, &tail_mean) {
+        let tail = seg.tail_level();
+        if fits(&row, &tail.mean) {
             // Back on the stretch: whatever was pending was a transient.
             self.cand.clear();
             self.push_into(&mut seg, row);
@@ -224,10 +273,10 @@ impl Detector {
             return;
         }
         self.seg = Some(seg);
-        self.candidate(row, time_ms, Some(tail_mean));
+        self.candidate(row, time_ms, Some(tail));
     }
 
-    fn candidate(&mut self, row: Vec<f64>, time_ms: i64, before: Option<Vec<f64>>) {
+    fn candidate(&mut self, row: Vec<f64>, time_ms: i64, before: Option<Level>) {
         if !self.cand.is_empty() && !fits(&row, &mean(&self.cand)) {
             self.cand.clear();
         }

@@ -101,11 +101,18 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
             cols.push(format!("{l}_q_var"));
         }
     }
+    // Voltages where the table has them (they sharpen the expected steps).
+    let with_v: Vec<bool> = (0..n).map(|c| have.contains(&format!("l{}", c + 1)) && h.has(&format!("l{}_v_v", c + 1))).collect();
+    for c in 0..n {
+        if with_v[c] {
+            cols.push(format!("l{}_v_v", c + 1));
+        }
+    }
     let present: Vec<bool> = (0..n).map(|c| have.contains(&format!("l{}", c + 1))).collect();
     let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
     let mut det: Option<events::Detector> = None;
     let mut interval_s = 0.0;
-    let (mut p, mut q) = (vec![f64::NAN; n], vec![f64::NAN; n]);
+    let (mut p, mut q, mut v) = (vec![f64::NAN; n], vec![f64::NAN; n], vec![f64::NAN; n]);
     let mut rows = 0u64;
     while let Some(b) = st.next().map_err(|e| e.to_string())? {
         if det.is_none() {
@@ -122,7 +129,13 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
                     j += 2;
                 }
             }
-            det.push(t, &p, &q);
+            for c in 0..n {
+                if with_v[c] {
+                    v[c] = b.cols[j][k];
+                    j += 1;
+                }
+            }
+            det.push(t, &p, &q, &v);
             rows += 1;
         }
     }
