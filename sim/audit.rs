@@ -286,7 +286,7 @@ fn hits(m: &Mistake, f: &(String, String, Value)) -> bool {
     }
     match &m.load {
         None => f.1 == m.subject,
-        Some((ws, ps)) => f.2["wiring"].as_str().is_some_and(|w| ws.iter().any(|x| x == w)) && f.2["p_w"].as_f64().is_some_and(|x| ps.iter().any(|p| (x - p).abs() <= 0.2 * p)),
+        Some((ws, ps)) => f.2["wiring"].as_str().is_some_and(|w| w.split(" + ").all(|part| ws.iter().any(|x| x == part))) && f.2["p_w"].as_f64().is_some_and(|x| ps.iter().any(|p| (x - p).abs() <= 0.2 * p)),
     }
 }
 
@@ -350,7 +350,16 @@ pub fn run_matrix(scenarios: &[(String, Scenario)], opts: &MatrixOptions, varian
 }
 
 fn case_of(scenario: &str, name: &str, mistakes: Vec<Mistake>, o: &Outcome, d: &Declared, ob: &Observed) -> Case {
-    let undecidable = mistakes.iter().filter(|m| o.appliances.iter().any(|a| a.id == m.subject && a.verdict == "undecidable")).map(|m| m.subject.clone()).collect();
+    // A load left out of the declaration cannot be seen when it draws
+    // through a conductor no working CT reads, or when its steps are those
+    // of another declared appliance.
+    let n = d.supply.lines();
+    let read: Vec<bool> = (0..n).map(|b| (0..n).any(|c| !o.metering.absent[c] && o.metering.map[c].src == b)).collect();
+    let hidden = |m: &Mistake| {
+        m.kind == "undeclared-load"
+            && d.appliances.iter().position(|a| a.id == m.subject).is_some_and(|j| d.appliances[j].wirings().iter().any(|w| w.lines(n).iter().any(|&x| !read[x])) || check::indistinct(d, j).is_some())
+    };
+    let undecidable = mistakes.iter().filter(|m| hidden(m) || o.appliances.iter().any(|a| a.id == m.subject && a.verdict == "undecidable")).map(|m| m.subject.clone()).collect();
     let unexercised = mistakes.iter().filter(|m| d.appliances.iter().position(|a| a.id == m.subject).is_some_and(|j| ob.changes[j] < EXERCISED)).map(|m| m.subject.clone()).collect();
     let why = mistakes
         .iter()

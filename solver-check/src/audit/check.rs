@@ -520,6 +520,27 @@ pub fn uncheckable(a: &DeclAppliance) -> Option<String> {
     }
 }
 
+/// Whether every step of 500 W or more of appliance `j` is, at nominal
+/// voltage, within twice the voltage-aware tolerance of a step of one
+/// other declared appliance (either way round): then the data cannot tell
+/// the two apart, and leaving one out of the declaration cannot be seen.
+/// Returns that other appliance's id.
+pub fn indistinct(d: &Declared, j: usize) -> Option<String> {
+    let own: Vec<Vec<Cx>> = d.signatures(&d.appliances[j]).into_iter().filter(|t| t.iter().map(|c| c.re).sum::<f64>().abs() >= 500.0).collect();
+    if own.is_empty() {
+        return None;
+    }
+    let close = |a: &[Cx], b: &[Cx]| {
+        let size = a.iter().map(|c| c.abs()).fold(0.0, f64::max);
+        let tol = 2.0 * (TOL_ABS_V_W + TOL_REL_V * size);
+        a.iter().zip(b).all(|(x, y)| (*x - *y).abs() <= tol) || a.iter().zip(b).all(|(x, y)| (*x + *y).abs() <= tol)
+    };
+    d.appliances.iter().enumerate().filter(|(k, _)| *k != j).find(|(_, o)| {
+        let theirs = d.signatures(o);
+        own.iter().all(|t| theirs.iter().any(|u| close(t, u)))
+    }).map(|(_, o)| o.id.clone())
+}
+
 /// The channel stats say a channel has no CT: null nearly always, or nothing
 /// at all while declared loads draw through its conductor.
 fn absent_channels(d: &Declared, stats: &[ChannelStats]) -> Vec<bool> {
@@ -588,6 +609,11 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
         metering_findings(d, &decl_m, &m, conf.clamp(0.0, 1.0), ev, &mut findings);
     }
     notes.push(format!("metering: {ch_apps} appliances and {ch_ex} of {} steps of 150 VA or more fit under the metering found ({decl_apps} and {decl_ex} as declared)", big.len()));
+    for j in 0..d.appliances.len() {
+        if let Some(o) = indistinct(d, j) {
+            notes.push(format!("{}: its steps of 500 W or more are those of {o} as well; the data cannot tell the two apart", d.appliances[j].id));
+        }
+    }
     // 2. Appliances.
     let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
     let cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
@@ -644,7 +670,9 @@ fn first(ms: &[i64]) -> Vec<String> {
 #[allow(clippy::too_many_arguments)]
 fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool], total_wh: f64, out: &mut Vec<Finding>) {
     struct Cluster {
-        wiring: Wiring,
+        wiring: String,
+        /// Mean channel step, as a start.
+        v: Vec<Cx>,
         s: Cx,
         on: Vec<i64>,
         off: Vec<i64>,
@@ -653,32 +681,47 @@ fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool],
     for (e, _) in events.iter().zip(explained).filter(|(e, x)| e.size() >= 400.0 && !**x) {
         let fit = connection_of(d, m, &e.delta);
         let (w, s, res) = fit[0];
-        if res > 0.2 {
-            continue;
-        }
-        let (s, on) = if s.re >= 0.0 { (s, true) } else { (-s, false) };
+        // One connection, or (an appliance with draws on several lines)
+        // its part on each line, each as a line-to-neutral draw.
+        let (label, s) = if res <= 0.2 {
+            (w.name(), s)
+        } else {
+            let parts: Vec<(Wiring, Cx)> = fit.iter().filter(|f| matches!(f.0, Wiring::LineNeutral(_)) && f.1.abs() >= USE_STEP).map(|f| (f.0, f.1)).collect();
+            if parts.len() < 2 {
+                continue;
+            }
+            let mut ws: Vec<Wiring> = parts.iter().map(|p| p.0).collect();
+            ws.sort_by_key(|w| w.name());
+            (ws.iter().map(|w| w.name()).collect::<Vec<_>>().join(" + "), parts.iter().fold(Cx::ZERO, |a, p| a + p.1))
+        };
+        let on = s.re >= 0.0;
+        let (s, v): (Cx, Vec<Cx>) = if on { (s, e.delta.clone()) } else { (-s, e.delta.iter().map(|x| -*x).collect()) };
         if s.re < 500.0 {
             continue;
         }
-        let k = match cl.iter().position(|c| c.wiring == w && (c.s - s).abs() <= 0.1 * c.s.abs() + 50.0) {
+        let close = |c: &Cluster| c.wiring == label && c.v.iter().zip(&v).all(|(a, b)| (*a - *b).abs() <= 0.1 * a.abs() + 50.0);
+        let k = match cl.iter().position(close) {
             Some(k) => k,
             None => {
-                cl.push(Cluster { wiring: w, s, on: vec![], off: vec![] });
+                cl.push(Cluster { wiring: label.clone(), v: v.clone(), s, on: vec![], off: vec![] });
                 cl.len() - 1
             }
         };
         let c = &mut cl[k];
         let cnt = (c.on.len() + c.off.len()) as f64;
         c.s = (c.s.scale(cnt) + s).scale(1.0 / (cnt + 1.0));
+        for (a, b) in c.v.iter_mut().zip(&v) {
+            *a = (a.scale(cnt) + *b).scale(1.0 / (cnt + 1.0));
+        }
         if on {
             c.on.push(e.time_ms);
         } else {
             c.off.push(e.time_ms);
         }
     }
-    // Recurring: seen at least six times, three of them the same way (a
-    // load that stops by tapering off shows its starts only).
-    for c in cl.iter().filter(|c| c.on.len() + c.off.len() >= 6 && c.on.len().max(c.off.len()) >= 3) {
+    // Recurring: started three times or more, or stopped (a load that
+    // stops by tapering off shows its starts only).
+    for c in cl.iter().filter(|c| c.on.len().max(c.off.len()) >= 3) {
         // Energy: each start paired with the next stop within 12 h.
         let mut wh = 0.0;
         let mut j = 0;
@@ -694,10 +737,10 @@ fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool],
         let share = if total_wh > 0.0 { wh / total_wh } else { 0.0 };
         out.push(Finding {
             kind: "undeclared-load",
-            subject: format!("{:.0} W on {}", c.s.re, c.wiring.name()),
-            message: format!("a recurring load of about {:.0} W (pf {:.2}) on {} that no declared appliance explains: started {} times, stopped {} times, about {:.1} % of the energy", c.s.re, c.s.re / c.s.abs(), c.wiring.name(), c.on.len(), c.off.len(), 100.0 * share),
+            subject: format!("{:.0} W on {}", c.s.re, c.wiring),
+            message: format!("a recurring load of about {:.0} W (pf {:.2}) on {} that no declared appliance explains: started {} times, stopped {} times, about {:.1} % of the energy", c.s.re, c.s.re / c.s.abs(), c.wiring, c.on.len(), c.off.len(), 100.0 * share),
             confidence: ((c.on.len().min(c.off.len())) as f64 / 10.0).min(1.0),
-            evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring.name(), "energy_share": share, "first_starts": first(&c.on), "first_stops": first(&c.off) }),
+            evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring, "energy_share": share, "first_starts": first(&c.on), "first_stops": first(&c.off) }),
         });
     }
 }
