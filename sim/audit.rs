@@ -84,6 +84,9 @@ pub struct Observed {
     pub events: Vec<Event>,
     pub stats: Vec<ChannelStats>,
     pub changes: Vec<usize>,
+    /// The same, counting only changes of 500 W or more of real power (the
+    /// smallest step an undeclared load is looked for by).
+    pub big_changes: Vec<usize>,
 }
 
 /// Simulates `s` in memory and finds its steps, as the audit would from
@@ -114,6 +117,7 @@ pub fn observe(s: &Scenario) -> Observed {
     // wanders within one state is not a change).
     let d = declared(s);
     let mut changes = vec![0usize; s.appliances.len()];
+    let mut big_changes = vec![0usize; s.appliances.len()];
     if let Ok(mut o) = out {
         o.events.sort_by_key(|e| (e.app, e.start_step));
         for w in o.events.windows(2) {
@@ -126,10 +130,13 @@ pub fn observe(s: &Scenario) -> Observed {
             if sa.iter().zip(&sb).map(|(x, y)| (*y - *x).abs()).fold(0.0, f64::max) >= check::USE_STEP {
                 changes[b.app] += 1;
             }
+            if sa.iter().zip(&sb).map(|(x, y)| y.re - x.re).sum::<f64>().abs() >= 500.0 {
+                big_changes[b.app] += 1;
+            }
         }
     }
     let (events, stats) = det.finish();
-    Observed { events, stats, changes }
+    Observed { events, stats, changes, big_changes }
 }
 
 /// Audits a scenario's simulated meters against a declaration.
@@ -360,7 +367,11 @@ fn case_of(scenario: &str, name: &str, mistakes: Vec<Mistake>, o: &Outcome, d: &
             && d.appliances.iter().position(|a| a.id == m.subject).is_some_and(|j| d.appliances[j].wirings().iter().any(|w| w.lines(n).iter().any(|&x| !read[x])) || check::indistinct(d, j).is_some())
     };
     let undecidable = mistakes.iter().filter(|m| hidden(m) || o.appliances.iter().any(|a| a.id == m.subject && a.verdict == "undecidable")).map(|m| m.subject.clone()).collect();
-    let unexercised = mistakes.iter().filter(|m| d.appliances.iter().position(|a| a.id == m.subject).is_some_and(|j| ob.changes[j] < EXERCISED)).map(|m| m.subject.clone()).collect();
+    let unexercised = mistakes
+        .iter()
+        .filter(|m| d.appliances.iter().position(|a| a.id == m.subject).is_some_and(|j| if m.kind == "undeclared-load" { ob.big_changes[j] } else { ob.changes[j] } < EXERCISED))
+        .map(|m| m.subject.clone())
+        .collect();
     let why = mistakes
         .iter()
         .filter_map(|m| o.appliances.iter().find(|a| a.id == m.subject))

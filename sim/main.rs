@@ -155,9 +155,7 @@ enum Command {
         #[arg(long, value_name = "I/N|auto")]
         shard: Option<String>,
     },
-    /// Loading of each line from the meters: peak and 15-minute demand current
-    /// against the service rating, imbalance, neutral current. (Checks of
-    /// declared wiring are to come.)
+    /// Check an installer's declared metering and wiring against the conductors (no training data), and the loading of each line: peak and 15-minute demand current against the service, imbalance, neutral current; --matrix scores the checks on injected mistakes
     Audit {
         /// The dataset folder, or a meters file in the dataset format (real
         /// measurements converted to it work too).

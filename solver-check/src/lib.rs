@@ -2,7 +2,7 @@
 //! it works on any data in the dataset format, including real measurements
 //! converted to it. It never depends on the simulator.
 //!
-//! - [`audit`]: the loading picture of a dataset (the wiring checks are to come);
+//! - [`audit`]: checks of declared metering and wiring against the conductors, and the loading picture of a dataset;
 //! - [`dataset`]: open a dataset folder, check its manifest and files;
 //! - [`table`]: read Parquet or CSV tables whole (small ones);
 //! - [`stream`]: stream their numeric columns batch by batch;

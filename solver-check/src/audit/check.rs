@@ -796,9 +796,6 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], findings: &mu
                 if me <= 1.0 {
                     all += 1;
                     let rival = (0..na).filter(|&o| o != j).min_by(|&a, &b| dj[k][a].total_cmp(&dj[k][b]));
-                    if std::env::var("LOADLOOM_TRACE").is_ok_and(|v| v == placed[j].id) {
-                        eprintln!("{} me {me:.2} rival {:?} {:.2} delta {:?} se {:?}", e.time_ms, rival.map(|o| placed[o].id.clone()), rival.map(|o| dj[k][o]).unwrap_or(0.0), e.delta.iter().map(|c| (c.re.round(), c.im.round())).collect::<Vec<_>>(), e.se.iter().map(|x| x.round()).collect::<Vec<_>>());
-                    }
                     match rival {
                         Some(o) if dj[k][o] <= 1.0 => who.push(o),
                         _ => x += 1,
