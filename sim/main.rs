@@ -178,7 +178,7 @@ enum Command {
         #[arg(long, default_value_t = 3.0, requires = "matrix")]
         days: f64,
         /// Matrix: clean simulations per scenario.
-        #[arg(long, default_value_t = 8, requires = "matrix")]
+        #[arg(long, default_value_t = 12, requires = "matrix")]
         runs: usize,
         /// Matrix: measuring variants to run (1s, 10s, noise, dropouts, background, all).
         #[arg(long, default_value = "1s", requires = "matrix")]
