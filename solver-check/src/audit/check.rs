@@ -152,14 +152,7 @@ pub struct Model {
 impl Model {
     pub fn of(d: &Declared, a: &DeclAppliance) -> Model {
         let mut jumps: Vec<Vec<Term>> = Vec::new();
-        let mut seen: Vec<Vec<Cx>> = Vec::new();
-        for &(from, to, kt, kf) in a.steps.jumps() {
-            let (sf, st) = (d.state_split(a, from), d.state_split(a, to));
-            let nom: Vec<Cx> = st.iter().zip(&sf).map(|(t, f)| t.scale(kt) - f.scale(kf)).collect();
-            if nom.iter().all(|c| c.abs() == 0.0) || seen.iter().any(|w| w.iter().zip(&nom).all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)) {
-                continue;
-            }
-            seen.push(nom);
+        for ((from, to, kt, kf), _) in d.distinct_jumps(a) {
             let mut t: Vec<Term> = a.states[to].iter().map(|dr| Term { draw: dr.clone(), k: kt, after: true }).collect();
             t.extend(a.states[from].iter().map(|dr| Term { draw: dr.clone(), k: -kf, after: false }));
             jumps.push(t);

@@ -320,13 +320,20 @@ impl Declared {
     /// The per-line steps an appliance makes (one vector per jump), at the
     /// conductors (before any metering).
     pub fn signatures(&self, a: &DeclAppliance) -> Vec<Vec<Cx>> {
-        let mut v: Vec<Vec<Cx>> = Vec::new();
+        self.distinct_jumps(a).into_iter().map(|(_, d)| d).collect()
+    }
+
+    /// The jumps that make a step of their own (a jump and its reverse, or
+    /// two jumps with the same step, count once), each with its per-line
+    /// step at nominal voltage.
+    pub fn distinct_jumps(&self, a: &DeclAppliance) -> Vec<((usize, usize, f64, f64), Vec<Cx>)> {
+        let mut v: Vec<((usize, usize, f64, f64), Vec<Cx>)> = Vec::new();
         for &(from, to, kt, kf) in a.steps.jumps() {
             let (sf, st) = (self.state_split(a, from), self.state_split(a, to));
             let d: Vec<Cx> = st.iter().zip(&sf).map(|(t, f)| t.scale(kt) - f.scale(kf)).collect();
             let size = d.iter().map(|c| c.abs()).fold(0.0, f64::max);
-            if size > 0.0 && !v.iter().any(|w| w.iter().zip(&d).all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)) {
-                v.push(d);
+            if size > 0.0 && !v.iter().any(|(_, w)| w.iter().zip(&d).all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)) {
+                v.push(((from, to, kt, kf), d));
             }
         }
         v
@@ -367,6 +374,24 @@ mod tests {
         assert_eq!(r[2], Cx::ZERO);
         // Each line carries |S|/√3 at ∓30° from the load's angle.
         assert!((r[0].abs() - load.abs() / 3f64.sqrt()).abs() < 1e-9);
+    }
+
+    /// Voltage across a connection: between the legs of a split-phase
+    /// supply twice the line-to-neutral voltage, between two lines of a wye
+    /// √3 times it (textbook relations of the 120/240 V and 230/400 V
+    /// supplies).
+    #[test]
+    fn voltage_across_a_connection_follows_the_supply() {
+        let sp = Supply { voltage_v: 120.0, ..supply("split-phase", &[0.0, 180.0]) };
+        assert!((sp.nominal_across(Wiring::LineLine(0, 1)) - 240.0).abs() < 1e-9);
+        let wye = supply("three-phase", &[0.0, -120.0, 120.0]);
+        assert!((wye.nominal_across(Wiring::LineLine(0, 1)) - 230.0 * 3f64.sqrt()).abs() < 1e-9);
+        // 2 % low on L1 and 2 % high on L2: the line-to-line magnitude
+        // |0.98∠0° − 1.02∠−120°| = √(0.98² + 0.98·1.02 + 1.02²) / √3.
+        let r = wye.ratio_across(Wiring::LineLine(0, 1), &[0.98 * 230.0, 1.02 * 230.0, 230.0]).unwrap();
+        assert!((r - (0.98f64 * 0.98 + 0.98 * 1.02 + 1.02 * 1.02).sqrt() / 3f64.sqrt()).abs() < 1e-12);
+        assert!((wye.ratio_across(Wiring::LineNeutral(2), &[230.0, 230.0, 0.95 * 230.0]).unwrap() - 0.95).abs() < 1e-12);
+        assert_eq!(wye.ratio_across(Wiring::LineNeutral(0), &[f64::NAN, 230.0, 230.0]), None);
     }
 
     /// Split-phase: the legs are 180° apart, so a 240 V load shows half its
