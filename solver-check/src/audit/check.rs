@@ -216,7 +216,9 @@ pub const TOL_REL_V: f64 = 0.03;
 /// in tolerances (≤ 1 fits), either way round.
 /// With `shapes`, a jump together with part of the wander of a wandering
 /// appliance in the same interval also fits (a step and a modulating
-/// load's change a second apart make one event).
+/// load's change a second apart make one event), within half the
+/// tolerance: the wander's share is fitted to the step, so a jump of
+/// another size must not pass as this one plus whatever wander closes the gap.
 /// Returns (alone, with a wander).
 fn dist_model(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model, shapes: &[Vec<Option<Cx>>]) -> (f64, f64) {
     let n = d.supply.lines();
@@ -260,7 +262,7 @@ fn dist_model(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model, shape
                     }
                     let lam = (num / den).clamp(-1.0, 1.0);
                     let w = (0..n).filter_map(|c| res[c].map(|x| (x - sh[c].unwrap_or(Cx::ZERO).scale(lam)).abs() / tol[c])).fold(0.0, f64::max);
-                    comp = comp.min(w);
+                    comp = comp.min(2.0 * w);
                 }
             }
         }
@@ -610,11 +612,11 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     // 2. Appliances.
     let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
     let cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
-    let (checks, placed) = place(d, &m, &used, &cxs, &mut findings);
+    let (checks, placed) = place(d, &m, &used, &cxs, interval_s, &mut findings);
     // 3. Undeclared recurring loads.
     let explain: Vec<Pred> = placed.iter().map(|a| Pred::of(d, &m, a)).collect();
     let own: Vec<Option<Vec<Option<Cx>>>> = placed.iter().map(|a| shape_of(d, &m, a)).collect();
-    let dj = distances(d, &m, &used, &cxs, &explain, &own);
+    let dj = distances(d, &m, &used, &cxs, &explain, &own, interval_s);
     let fit: Vec<bool> = dj.iter().map(|r| r.iter().any(|x| *x <= 1.0)).collect();
     let total_wh: f64 = stats.iter().enumerate().filter(|(c, _)| !absent[*c]).map(|(_, s)| s.sum_p).sum::<f64>() * interval_s / 3600.0;
     undeclared(d, &m, &used, &fit, total_wh, &mut findings);
@@ -738,13 +740,22 @@ fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool],
     }
 }
 
+/// How often, against its steps that fit alone, an appliance's steps may
+/// need part of a wander to fit: a quarter at 1 s, growing with the
+/// interval (the chance that a wander change falls into the rows either
+/// side of a step grows with their length), all of them from 4 s.
+fn coincidence_share(interval_s: f64) -> f64 {
+    (0.25 * interval_s).clamp(0.25, 1.0)
+}
+
 /// Each event's distance from each appliance's steps (rows: events). A
 /// jump together with part of a wander in the same interval is a
 /// coincidence, so it counts only for an appliance that needs it rarely:
-/// at most a quarter as often as its steps fit alone, plus two (a load
+/// at most `coincidence_share` as often as its steps fit alone, plus two (a load
 /// nobody declared must not pass as a declared one plus a wander each
 /// time). An appliance that wanders also fits its own wander steps.
-fn distances(d: &Declared, m: &Metering, events: &[&Event], cxs: &[Ctx], preds: &[Pred], own: &[Option<Vec<Option<Cx>>>]) -> Vec<Vec<f64>> {
+fn distances(d: &Declared, m: &Metering, events: &[&Event], cxs: &[Ctx], preds: &[Pred], own: &[Option<Vec<Option<Cx>>>], interval_s: f64) -> Vec<Vec<f64>> {
+    let share = coincidence_share(interval_s);
     let shapes: Vec<Vec<Option<Cx>>> = own.iter().flatten().cloned().collect();
     let na = preds.len();
     let pairs: Vec<Vec<(f64, f64)>> = events.iter().zip(cxs).map(|(e, cx)| preds.iter().map(|p| p.dist2(d, m, e, cx, &shapes)).collect()).collect();
@@ -752,7 +763,7 @@ fn distances(d: &Declared, m: &Metering, events: &[&Event], cxs: &[Ctx], preds: 
         .map(|j| {
             let alone = pairs.iter().filter(|r| r[j].0 <= 1.0).count();
             let with = pairs.iter().filter(|r| r[j].0 > 1.0 && r[j].1 <= 1.0).count();
-            with as f64 <= 0.25 * alone as f64 + 2.0
+            with as f64 <= share * alone as f64 + 2.0
         })
         .collect();
     pairs
@@ -767,7 +778,7 @@ fn distances(d: &Declared, m: &Metering, events: &[&Event], cxs: &[Ctx], preds: 
 /// first and the appliance moved before the others are weighed again, so
 /// steps one misdeclared appliance leaves behind are not pinned on another.
 /// Returns the checks and the appliances as placed.
-fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], findings: &mut Vec<Finding>) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>) {
+fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], interval_s: f64, findings: &mut Vec<Finding>) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>) {
     let na = d.appliances.len();
     let n = d.supply.lines();
     // Conductors some working channel reads; a wiring through another one
@@ -779,7 +790,7 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], findings: &mu
     loop {
         let sigs: Vec<Pred> = placed.iter().map(|a| Pred::of(d, m, a)).collect();
         let shapes: Vec<Option<Vec<Option<Cx>>>> = placed.iter().map(|a| shape_of(d, m, a)).collect();
-        let dj = distances(d, m, used, cxs, &sigs, &shapes);
+        let dj = distances(d, m, used, cxs, &sigs, &shapes, interval_s);
         // Steps that fit a wiring of appliance j and no other appliance as
         // placed (exclusive), all that fit, and who else fits.
         let excl = |j: usize, sg: &Pred| -> (usize, usize, Vec<usize>) {

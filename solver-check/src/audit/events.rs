@@ -107,6 +107,12 @@ pub struct Detector {
     seg: Option<Seg>,
     cand: Vec<Vec<f64>>,
     cand_ms: i64,
+    /// At long intervals: the rows between the last stretch and the
+    /// candidate, each a split interval, an inrush, or a level of its own.
+    inter: Vec<(i64, Vec<f64>)>,
+    /// Whether a single row may stand as a level (intervals of 5 s or more,
+    /// where an appliance can run for one row and a second one switch in the next).
+    short_levels: bool,
     pub events: Vec<Event>,
     pub stats: Vec<ChannelStats>,
 }
@@ -119,6 +125,29 @@ fn fits(x: &[f64], mean: &[f64]) -> bool {
         let tol = ABS_TOL_W + REL_TOL * m[0].hypot(m[1]);
         (a[0] - m[0]).abs() <= tol && (a[1] - m[1]).abs() <= tol
     })
+}
+
+/// Whether row `x` lies, within the stretch tolerance in every P and Q, on
+/// the line `a + t · (b − a)` for one `t` in `0 … t_max`.
+fn on_line(x: &[f64], a: &[f64], b: &[f64], t_max: f64) -> bool {
+    let pq = 2 * (x.len() / 3);
+    let (mut lo, mut hi) = (0.0_f64, t_max);
+    for c in 0..pq / 2 {
+        let tol = ABS_TOL_W + REL_TOL * x[2 * c].hypot(x[2 * c + 1]);
+        for i in 2 * c..2 * c + 2 {
+            let (off, d) = (x[i] - a[i], b[i] - a[i]);
+            if d.abs() < 1e-9 {
+                if off.abs() > tol {
+                    return false;
+                }
+                continue;
+            }
+            let (t1, t2) = ((off - tol) / d, (off + tol) / d);
+            lo = lo.max(t1.min(t2));
+            hi = hi.min(t1.max(t2));
+        }
+    }
+    lo <= hi
 }
 
 fn mean(rows: &[Vec<f64>]) -> Vec<f64> {
@@ -155,6 +184,8 @@ impl Detector {
             seg: None,
             cand: Vec::new(),
             cand_ms: 0,
+            inter: Vec::new(),
+            short_levels: interval_s >= 5.0,
             events: Vec::new(),
             stats: vec![ChannelStats { negative: vec![[0, 0]; n], ..Default::default() }; n],
         }
@@ -164,16 +195,40 @@ impl Detector {
     fn emit(&mut self, seg: &mut Seg) {
         if let Some(b) = seg.pending.take() {
             if seg.head_n > 0 {
-                let n = self.n;
                 let h = Level::of(&seg.head_sum, &seg.head_sq, seg.head_n);
-                let delta: Vec<Cx> = (0..n).map(|c| Cx::new(h.mean[2 * c] - b.mean[2 * c], h.mean[2 * c + 1] - b.mean[2 * c + 1])).collect();
-                if delta.iter().any(|d| d.abs() >= MIN_STEP_W) {
-                    let se = (0..n).map(|c| (2 * c..2 * c + 2).map(|i| h.var[i] / h.n as f64 + b.var[i] / b.n as f64).sum::<f64>().sqrt()).collect();
-                    let before = (0..n).map(|c| Cx::new(b.mean[2 * c], b.mean[2 * c + 1])).collect();
-                    self.events.push(Event { time_ms: seg.start_ms, delta, before, v_before: b.mean[2 * n..].to_vec(), v_after: h.mean[2 * n..].to_vec(), se });
-                }
+                self.step(seg.start_ms, &b, &h);
             }
         }
+    }
+
+    /// Records the step from level `b` to level `h` at `time_ms`, unless
+    /// it is below `MIN_STEP_W` on every channel.
+    fn step(&mut self, time_ms: i64, b: &Level, h: &Level) {
+        let n = self.n;
+        let delta: Vec<Cx> = (0..n).map(|c| Cx::new(h.mean[2 * c] - b.mean[2 * c], h.mean[2 * c + 1] - b.mean[2 * c + 1])).collect();
+        if delta.iter().any(|d| d.abs() >= MIN_STEP_W) {
+            let se = (0..n).map(|c| (2 * c..2 * c + 2).map(|i| h.var[i] / h.n as f64 + b.var[i] / b.n as f64).sum::<f64>().sqrt()).collect();
+            let before = (0..n).map(|c| Cx::new(b.mean[2 * c], b.mean[2 * c + 1])).collect();
+            self.events.push(Event { time_ms, delta, before, v_before: b.mean[2 * n..].to_vec(), v_after: h.mean[2 * n..].to_vec(), se });
+        }
+    }
+
+    /// The one-row levels among the rows between the stretch `before` and
+    /// the new one starting at `next`: a row on the line from the level
+    /// before it to the row after it (between them: an interval the
+    /// switching split; up to three times past: the inrush of a starting
+    /// motor) is no level; any other row is one. Each one-row level takes
+    /// its spread from the stretch before (the meter's noise is the same).
+    fn short_levels(&self, before: &Level, next: &[f64]) -> Vec<(i64, Level)> {
+        let mut out: Vec<(i64, Level)> = Vec::new();
+        for (i, (t, r)) in self.inter.iter().enumerate() {
+            let prev = out.last().map(|(_, l)| &l.mean).unwrap_or(&before.mean);
+            let after = self.inter.get(i + 1).map(|(_, r)| r.as_slice()).unwrap_or(next);
+            if !on_line(r, prev, after, 3.0) {
+                out.push((*t, Level { mean: r.clone(), var: before.var.clone(), n: 1 }));
+            }
+        }
+        out
     }
 
     fn close(&mut self) {
@@ -181,6 +236,7 @@ impl Detector {
             self.emit(&mut seg);
         }
         self.cand.clear();
+        self.inter.clear();
     }
 
     fn start(&mut self, rows: Vec<Vec<f64>>, start_ms: i64, before: Option<Level>) {
@@ -268,6 +324,7 @@ impl Detector {
         if fits(&row, &tail.mean) {
             // Back on the stretch: whatever was pending was a transient.
             self.cand.clear();
+            self.inter.clear();
             self.push_into(&mut seg, row);
             self.seg = Some(seg);
             return;
@@ -278,6 +335,12 @@ impl Detector {
 
     fn candidate(&mut self, row: Vec<f64>, time_ms: i64, before: Option<Level>) {
         if !self.cand.is_empty() && !fits(&row, &mean(&self.cand)) {
+            if self.short_levels && self.seg.is_some() && self.cand.len() == 1 {
+                let r = self.cand.pop().expect("one row");
+                self.inter.push((self.cand_ms, r));
+            } else {
+                self.inter.clear();
+            }
             self.cand.clear();
         }
         if self.cand.is_empty() {
@@ -286,13 +349,23 @@ impl Detector {
         self.cand.push(row);
         if self.cand.len() >= self.l {
             let rows = std::mem::take(&mut self.cand);
-            let before = match self.seg.take() {
-                Some(mut old) => {
+            let before = match (self.seg.take(), before) {
+                (Some(mut old), Some(before)) => {
                     self.emit(&mut old);
-                    before
+                    let mut last = before;
+                    for (t, level) in self.short_levels(&last, &mean(&rows)) {
+                        self.step(t, &last, &level);
+                        last = level;
+                    }
+                    Some(last)
                 }
-                None => None,
+                (Some(mut old), None) => {
+                    self.emit(&mut old);
+                    None
+                }
+                (None, _) => None,
             };
+            self.inter.clear();
             self.start(rows, self.cand_ms, before);
         }
     }
@@ -300,5 +373,73 @@ impl Detector {
     pub fn finish(mut self) -> (Vec<Event>, Vec<ChannelStats>) {
         self.close();
         (self.events, self.stats)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Runs a split-phase detector over rows of (L1 P, L2 P), Q zero, and
+    /// returns the steps as (row index, L1 ΔP, L2 ΔP).
+    fn steps(interval_s: f64, rows: &[(f64, f64)]) -> Vec<(i64, f64, f64)> {
+        let mut d = Detector::new(&[0.0, 180.0], interval_s);
+        let ms = (interval_s * 1000.0) as i64;
+        for (i, (a, b)) in rows.iter().enumerate() {
+            d.push(i as i64 * ms, &[*a, *b], &[0.0, 0.0], &[120.0, 120.0]);
+        }
+        let (ev, _) = d.finish();
+        ev.iter().map(|e| (e.time_ms / ms, e.delta[0].re, e.delta[1].re)).collect()
+    }
+
+    fn run(parts: &[(f64, f64, usize)]) -> Vec<(f64, f64)> {
+        parts.iter().flat_map(|&(a, b, n)| std::iter::repeat_n((a, b), n)).collect()
+    }
+
+    fn near(x: f64, y: f64) -> bool {
+        (x - y).abs() < 1e-6
+    }
+
+    /// A 10 s row the switching splits (part old, part new level on both
+    /// lines alike) is neither level: one step, the whole of it.
+    #[test]
+    fn a_split_interval_is_left_out_of_both_levels() {
+        let rows = run(&[(100.0, 50.0, 8), (600.0, 550.0, 1), (1100.0, 1050.0, 8)]);
+        let s = steps(10.0, &rows);
+        assert_eq!(s.len(), 1, "{s:?}");
+        assert_eq!(s[0].0, 9);
+        assert!(near(s[0].1, 1000.0) && near(s[0].2, 1000.0), "{s:?}");
+    }
+
+    /// At 10 s a load that starts one row after another is a level of its
+    /// own for that row: two steps, not their sum.
+    #[test]
+    fn a_one_row_level_between_two_switchings_gives_two_steps() {
+        let rows = run(&[(100.0, 50.0, 8), (1100.0, 50.0, 1), (1100.0, 500.0, 8)]);
+        let s = steps(10.0, &rows);
+        assert_eq!(s.len(), 2, "{s:?}");
+        assert_eq!((s[0].0, s[1].0), (8, 9));
+        assert!(near(s[0].1, 1000.0) && near(s[0].2, 0.0), "{s:?}");
+        assert!(near(s[1].1, 0.0) && near(s[1].2, 450.0), "{s:?}");
+    }
+
+    /// A row above the new level in the step's own proportions is a
+    /// starting motor's inrush, not a level.
+    #[test]
+    fn an_inrush_row_is_no_level() {
+        let rows = run(&[(100.0, 50.0, 8), (1400.0, 50.0, 1), (1100.0, 50.0, 8)]);
+        let s = steps(10.0, &rows);
+        assert_eq!(s.len(), 1, "{s:?}");
+        assert!(near(s[0].1, 1000.0), "{s:?}");
+    }
+
+    /// At 1 s a single row is too short to stand as a level (three rows
+    /// start a stretch): the two switchings make one step.
+    #[test]
+    fn at_one_second_a_single_row_is_no_level() {
+        let rows = run(&[(100.0, 50.0, 30), (1100.0, 50.0, 1), (1100.0, 500.0, 30)]);
+        let s = steps(1.0, &rows);
+        assert_eq!(s.len(), 1, "{s:?}");
+        assert!(near(s[0].1, 1000.0) && near(s[0].2, 450.0), "{s:?}");
     }
 }
