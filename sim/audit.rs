@@ -36,6 +36,10 @@ fn zip(z: crate::scenario::Zip) -> solver_check::audit::decl::Zip {
     solver_check::audit::decl::Zip { z: z.z, i: z.i, p: z.p }
 }
 
+/// A program phase no longer than this may be passed over at long
+/// intervals (it can fit inside the rows either side of a step), s.
+pub const SHORT_PHASE_S: f64 = 30.0;
+
 /// The declaration a scenario makes: its supply, its `[metering]` and its
 /// appliances (not its unmetered loads, which nobody listed, nor its
 /// faults, which are what really happened).
@@ -58,7 +62,17 @@ pub fn declared(s: &Scenario) -> Declared {
                     }
                     Steps::Jumps(j)
                 }
-                Behaviour::Program { .. } => Steps::Jumps((0..n).map(|i| (i, (i + 1) % n, 1.0, 1.0)).collect()),
+                Behaviour::Program { lengths, .. } => {
+                    let mut j: Vec<(usize, usize, f64, f64)> = (0..n).map(|i| (i, (i + 1) % n, 1.0, 1.0)).collect();
+                    // A phase of seconds can fall inside a long interval or
+                    // two: the program is then seen to go past it.
+                    for (i, d) in lengths.iter().enumerate() {
+                        if d.upper_s() <= SHORT_PHASE_S {
+                            j.push((i, (i + 2) % n, 1.0, 1.0));
+                        }
+                    }
+                    Steps::Jumps(j)
+                }
                 Behaviour::Markov { next, .. } => Steps::Jumps(next.iter().enumerate().flat_map(|(i, row)| row.iter().enumerate().filter(|(_, p)| **p > 0.0).map(move |(k, _)| (i, k, 1.0, 1.0))).collect()),
                 Behaviour::Steady { .. } => Steps::None("always on"),
                 // A wandering change is a few random-walk steps at most

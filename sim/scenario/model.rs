@@ -221,6 +221,18 @@ impl Dist {
         }
     }
 
+    /// A duration rarely exceeded: the largest for fixed and uniform
+    /// lengths, about the 98th percentile otherwise (two standard
+    /// deviations; for a gamma length, of the normal approximation).
+    pub fn upper_s(&self) -> f64 {
+        match *self {
+            Dist::Fixed { value_s } => value_s,
+            Dist::Uniform { max_s, .. } => max_s,
+            Dist::Lognormal { median_s, spread } => median_s * (2.0 * spread).exp(),
+            Dist::Gamma { mean_s, shape } => mean_s * (1.0 + 2.0 / shape.sqrt()),
+        }
+    }
+
     pub fn mean_s(&self) -> f64 {
         match *self {
             Dist::Fixed { value_s } => value_s,

@@ -715,11 +715,16 @@ fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool],
         }
     }
     // Recurring: started three times or more, or stopped (a load that
-    // stops by tapering off shows its starts only).
+    // stops by tapering off shows its starts only); and a load, so it
+    // stops after it starts: at least two starts each followed by a stop
+    // within 12 h, unless it is seen one way only. Steps of two appliances
+    // that happened to switch together fall into such a cluster in any
+    // order.
     for c in cl.iter().filter(|c| c.on.len().max(c.off.len()) >= 3) {
         // Energy: each start paired with the next stop within 12 h.
         let mut wh = 0.0;
         let mut j = 0;
+        let mut paired = 0;
         for &t in &c.on {
             while j < c.off.len() && c.off[j] <= t {
                 j += 1;
@@ -727,7 +732,11 @@ fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool],
             if j < c.off.len() && c.off[j] - t <= 12 * 3_600_000 {
                 wh += c.s.re * (c.off[j] - t) as f64 / 3_600_000.0;
                 j += 1;
+                paired += 1;
             }
+        }
+        if paired < 2 && !c.on.is_empty() && !c.off.is_empty() {
+            continue;
         }
         let share = if total_wh > 0.0 { wh / total_wh } else { 0.0 };
         out.push(Finding {
