@@ -300,6 +300,30 @@ fn found_of(o: &Outcome) -> Vec<(String, String, Value)> {
     o.findings.iter().map(|f| (f.kind.to_string(), f.subject.clone(), f.evidence.clone())).collect()
 }
 
+/// Whether two cases' findings are the same: the same kinds about the same
+/// subjects, a left-out load being the same on the same connection within
+/// 10 % of its power (its measured size moves with noise and voltage).
+pub fn same_findings(a: &[(String, String, Value)], b: &[(String, String, Value)]) -> bool {
+    let same = |x: &(String, String, Value), y: &(String, String, Value)| {
+        x.0 == y.0
+            && if x.0 == "undeclared-load" {
+                let (px, py) = (x.2["p_w"].as_f64().unwrap_or(f64::NAN), y.2["p_w"].as_f64().unwrap_or(f64::NAN));
+                x.2["wiring"] == y.2["wiring"] && (px - py).abs() <= 0.1 * px.abs().max(py.abs())
+            } else {
+                x.1 == y.1
+            }
+    };
+    let mut used = vec![false; b.len()];
+    a.len() == b.len()
+        && a.iter().all(|x| match (0..b.len()).find(|&i| !used[i] && same(x, &b[i])) {
+            Some(i) => {
+                used[i] = true;
+                true
+            }
+            None => false,
+        })
+}
+
 /// Whether a finding is the injected mistake.
 fn hits(m: &Mistake, f: &(String, String, Value)) -> bool {
     if f.0 != m.kind {
@@ -480,5 +504,29 @@ impl MatrixScore {
             o += &format!("| {k} | {} | {} | {} | {decided} | {} | {} | {} | {} |\n", s.injected, s.unexercised, s.undecidable, s.found, pct(ratio(s.found, decided)), s.reported, pct(ratio(s.correct, s.reported)));
         }
         o
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn f(kind: &str, subject: &str, ev: Value) -> (String, String, Value) {
+        (kind.into(), subject.into(), ev)
+    }
+
+    /// Left-out loads are the same on the same connection within 10 % of
+    /// their power; other findings by kind and subject, in any order.
+    #[test]
+    fn findings_compare_by_kind_subject_and_left_out_load_size() {
+        let a = vec![f("reversed-ct", "l1", json!({})), f("undeclared-load", "4862 W on L1-L2", json!({ "p_w": 4862.0, "wiring": "L1-L2" }))];
+        let b = vec![f("undeclared-load", "4780 W on L1-L2", json!({ "p_w": 4780.0, "wiring": "L1-L2" })), f("reversed-ct", "l1", json!({}))];
+        assert!(same_findings(&a, &b));
+        let c = vec![f("reversed-ct", "l1", json!({})), f("undeclared-load", "4000 W on L1-L2", json!({ "p_w": 4000.0, "wiring": "L1-L2" }))];
+        assert!(!same_findings(&a, &c));
+        let e = vec![f("reversed-ct", "l1", json!({})), f("undeclared-load", "4862 W on L1-N", json!({ "p_w": 4862.0, "wiring": "L1-N" }))];
+        assert!(!same_findings(&a, &e));
+        assert!(!same_findings(&a, &a[..1]));
+        assert!(!same_findings(&[f("reversed-ct", "l1", json!({}))], &[f("reversed-ct", "l2", json!({}))]));
     }
 }

@@ -330,18 +330,14 @@ fn audit_matrix(dir: &Path, days: f64, runs: usize, variants: &[String], json: b
     let opts = MatrixOptions { days, clean_runs: runs };
     let mut out_json = Vec::new();
     let mut out_text = String::new();
-    let mut base_found: Option<Vec<Vec<(String, String)>>> = None;
+    let mut base_found: Option<Vec<Vec<(String, String, serde_json::Value)>>> = None;
     for &i in &chosen {
         let v = &VARIANTS[i];
         let cases = run_matrix(&homes, &opts, v, &mut |m| eprint!("\r\x1b[2K{}: {m}", v.name));
         eprint!("\r\x1b[2K");
         let sc = score(&cases);
-        let keys: Vec<Vec<(String, String)>> = cases.iter().map(|c| {
-            let mut k: Vec<(String, String)> = c.found.iter().map(|f| (f.0.clone(), f.1.clone())).collect();
-            k.sort();
-            k
-        }).collect();
-        let same = base_found.as_ref().map(|b| b.iter().zip(&keys).filter(|(a, b)| a == b).count());
+        let keys: Vec<Vec<(String, String, serde_json::Value)>> = cases.iter().map(|c| c.found.clone()).collect();
+        let same = base_found.as_ref().map(|b| b.iter().zip(&keys).filter(|(a, b)| loadloom::audit::same_findings(a, b)).count());
         let mut j = sc.to_json(v.name);
         j["cases_with_findings_as_first_variant"] = serde_json::json!(same);
         j["case_list"] = serde_json::json!(cases.iter().map(|c| serde_json::json!({

@@ -224,6 +224,35 @@ fn dist_model(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model, shape
     let n = d.supply.lines();
     let mut best = f64::INFINITY;
     let mut comp = f64::INFINITY;
+    for (res, tol, worst) in jump_residuals(d, m, e, cx, md) {
+        best = best.min(worst);
+        if worst > 1.0 {
+            for sh in shapes {
+                let (mut num, mut den) = (0.0, 0.0);
+                for c in 0..n {
+                    if let (Some(x), Some(g)) = (res[c], sh[c]) {
+                        num += (g.re * x.re + g.im * x.im) / (tol[c] * tol[c]);
+                        den += g.abs().powi(2) / (tol[c] * tol[c]);
+                    }
+                }
+                if den == 0.0 {
+                    continue;
+                }
+                let lam = (num / den).clamp(-1.0, 1.0);
+                let w = (0..n).filter_map(|c| res[c].map(|x| (x - sh[c].unwrap_or(Cx::ZERO).scale(lam)).abs() / tol[c])).fold(0.0, f64::max);
+                comp = comp.min(2.0 * w);
+            }
+        }
+    }
+    (best, comp.min(best))
+}
+
+/// For each of an appliance's jumps, forward and undone, at an event's
+/// voltages: the event's remainder per channel (None: channel absent),
+/// the tolerance per channel, and the worst remainder in tolerances.
+fn jump_residuals(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model) -> Vec<(Vec<Option<Cx>>, Vec<f64>, f64)> {
+    let n = d.supply.lines();
+    let mut out = Vec::new();
     for j in &md.jumps {
         for fwd in [true, false] {
             // Forward: the jump's draws as given, "after" at the voltage
@@ -247,27 +276,10 @@ fn dist_model(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model, shape
             let tol: Vec<f64> = (0..n).map(|c| abs + rel * size + 3.0 * e.se[c] + cx.slack[c]).collect();
             let res: Vec<Option<Cx>> = (0..n).map(|c| r[c].map(|rc| e.delta[c] - rc - cx.react[c])).collect();
             let worst = (0..n).filter_map(|c| res[c].map(|x| x.abs() / tol[c])).fold(0.0, f64::max);
-            best = best.min(worst);
-            if worst > 1.0 {
-                for sh in shapes {
-                    let (mut num, mut den) = (0.0, 0.0);
-                    for c in 0..n {
-                        if let (Some(x), Some(g)) = (res[c], sh[c]) {
-                            num += (g.re * x.re + g.im * x.im) / (tol[c] * tol[c]);
-                            den += g.abs().powi(2) / (tol[c] * tol[c]);
-                        }
-                    }
-                    if den == 0.0 {
-                        continue;
-                    }
-                    let lam = (num / den).clamp(-1.0, 1.0);
-                    let w = (0..n).filter_map(|c| res[c].map(|x| (x - sh[c].unwrap_or(Cx::ZERO).scale(lam)).abs() / tol[c])).fold(0.0, f64::max);
-                    comp = comp.min(2.0 * w);
-                }
-            }
+            out.push((res, tol, worst));
         }
     }
-    (best, comp.min(best))
+    out
 }
 
 /// An appliance's expected steps under a metering: at nominal voltage (a
@@ -662,6 +674,31 @@ fn first(ms: &[i64]) -> Vec<String> {
     ms.iter().take(5).map(|&t| jiff::Timestamp::from_millisecond(t).map(|t| t.to_string()).unwrap_or_default()).collect()
 }
 
+/// Each start (ms, in order) paired with the next stop within 12 h.
+fn start_stop_pairs(on: &[i64], off: &[i64]) -> Vec<(i64, i64)> {
+    let mut out = Vec::new();
+    let mut j = 0;
+    for &t in on {
+        while j < off.len() && off[j] <= t {
+            j += 1;
+        }
+        if j < off.len() && off[j] - t <= 12 * 3_600_000 {
+            out.push((t, off[j]));
+            j += 1;
+        }
+    }
+    out
+}
+
+/// Whether recurring steps behave as one load's: started or stopped three
+/// times or more, and stopping after starting (two starts each followed
+/// by a stop within 12 h) unless seen one way only (a load that tapers
+/// off shows its starts alone). Steps of two appliances that happened to
+/// switch together, or of one with a wander, fall in any order.
+fn behaves_as_a_load(on: &[i64], off: &[i64]) -> bool {
+    on.len().max(off.len()) >= 3 && (on.is_empty() || off.is_empty() || start_stop_pairs(on, off).len() >= 2)
+}
+
 #[allow(clippy::too_many_arguments)]
 fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool], total_wh: f64, out: &mut Vec<Finding>) {
     struct Cluster {
@@ -714,30 +751,11 @@ fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool],
             c.off.push(e.time_ms);
         }
     }
-    // Recurring: started three times or more, or stopped (a load that
-    // stops by tapering off shows its starts only); and a load, so it
-    // stops after it starts: at least two starts each followed by a stop
-    // within 12 h, unless it is seen one way only. Steps of two appliances
-    // that happened to switch together fall into such a cluster in any
-    // order.
-    for c in cl.iter().filter(|c| c.on.len().max(c.off.len()) >= 3) {
+    // Recurring, and as one load behaves.
+    for c in cl.iter().filter(|c| behaves_as_a_load(&c.on, &c.off)) {
         // Energy: each start paired with the next stop within 12 h.
-        let mut wh = 0.0;
-        let mut j = 0;
-        let mut paired = 0;
-        for &t in &c.on {
-            while j < c.off.len() && c.off[j] <= t {
-                j += 1;
-            }
-            if j < c.off.len() && c.off[j] - t <= 12 * 3_600_000 {
-                wh += c.s.re * (c.off[j] - t) as f64 / 3_600_000.0;
-                j += 1;
-                paired += 1;
-            }
-        }
-        if paired < 2 && !c.on.is_empty() && !c.off.is_empty() {
-            continue;
-        }
+        let pairs = start_stop_pairs(&c.on, &c.off);
+        let wh: f64 = pairs.iter().map(|(a, b)| c.s.re * (b - a) as f64 / 3_600_000.0).sum();
         let share = if total_wh > 0.0 { wh / total_wh } else { 0.0 };
         out.push(Finding {
             kind: "undeclared-load",
@@ -905,5 +923,40 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], interval_s: f
             }
             None => return (checks, placed),
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const H: i64 = 3_600_000;
+
+    /// Starts each followed by a stop within 12 h pair up; a stop before
+    /// any start, or one more than 12 h later, does not.
+    #[test]
+    fn starts_pair_with_the_next_stop_within_twelve_hours() {
+        assert_eq!(start_stop_pairs(&[0, 2 * H, 30 * H], &[H, 3 * H, 50 * H]), vec![(0, H), (2 * H, 3 * H)]);
+        assert_eq!(start_stop_pairs(&[5 * H], &[H]), vec![]);
+    }
+
+    /// A load stops after it starts: three stops then two starts are no
+    /// load's; a load seen one way only (it tapers off) still is.
+    #[test]
+    fn steps_in_any_order_do_not_make_a_load() {
+        assert!(!behaves_as_a_load(&[40 * H, 45 * H], &[H, 10 * H, 20 * H]));
+        assert!(behaves_as_a_load(&[0, 10 * H, 20 * H], &[H, 11 * H, 21 * H]));
+        assert!(behaves_as_a_load(&[0, 10 * H, 20 * H], &[]));
+        assert!(!behaves_as_a_load(&[0, 10 * H], &[H, 11 * H]));
+    }
+
+    /// The allowance for steps that need a wander to fit grows with the
+    /// interval and stays within a quarter and all of them.
+    #[test]
+    fn the_wander_allowance_grows_with_the_interval() {
+        assert_eq!(coincidence_share(1.0), 0.25);
+        assert_eq!(coincidence_share(2.0), 0.5);
+        assert_eq!(coincidence_share(10.0), 1.0);
+        assert_eq!(coincidence_share(0.1), 0.25);
     }
 }
