@@ -515,6 +515,18 @@ mod tests {
         (kind.into(), subject.into(), ev)
     }
 
+    /// A length rarely exceeded: two standard deviations up (Φ(2) = 0.977,
+    /// any table of the normal distribution) of ln X for a lognormal, of
+    /// the normal approximation for a gamma; the bound for the others.
+    #[test]
+    fn a_phase_length_rarely_exceeded() {
+        assert_eq!(Dist::Fixed { value_s: 5.0 }.upper_s(), 5.0);
+        assert_eq!(Dist::Uniform { min_s: 10.0, max_s: 14.0 }.upper_s(), 14.0);
+        assert!((Dist::Lognormal { median_s: 10.0, spread: 0.5 }.upper_s() - 10.0 * 1.0_f64.exp()).abs() < 1e-9);
+        assert!((Dist::Gamma { mean_s: 20.0, shape: 4.0 }.upper_s() - 40.0).abs() < 1e-9);
+        assert!(Dist::Fixed { value_s: 5.0 }.upper_s() <= SHORT_PHASE_S && Dist::Uniform { min_s: 60.0, max_s: 180.0 }.upper_s() > SHORT_PHASE_S);
+    }
+
     /// Left-out loads are the same on the same connection within 10 % of
     /// their power; other findings by kind and subject, in any order.
     #[test]

@@ -10,7 +10,9 @@
 //! rows of the one before. Means over the adjacent rows only, so slow drift
 //! (supply voltage, thermostatic creep) does not add up into false steps;
 //! rows between two stretches (inrush, an interval split by a switching)
-//! are left out; a lone row off the mean (noise) does not end a stretch;
+//! are left out, except that at intervals of 5 s or more a row that is
+//! neither (not on the line from the level before to the row after) is a
+//! level of its own, one row long; a lone row off the mean (noise) does not end a stretch;
 //! a change across missing rows is dropped, since several may hide in it.
 
 use super::decl::Cx;
