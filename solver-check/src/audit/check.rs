@@ -224,35 +224,6 @@ fn dist_model(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model, shape
     let n = d.supply.lines();
     let mut best = f64::INFINITY;
     let mut comp = f64::INFINITY;
-    for (res, tol, worst) in jump_residuals(d, m, e, cx, md) {
-        best = best.min(worst);
-        if worst > 1.0 {
-            for sh in shapes {
-                let (mut num, mut den) = (0.0, 0.0);
-                for c in 0..n {
-                    if let (Some(x), Some(g)) = (res[c], sh[c]) {
-                        num += (g.re * x.re + g.im * x.im) / (tol[c] * tol[c]);
-                        den += g.abs().powi(2) / (tol[c] * tol[c]);
-                    }
-                }
-                if den == 0.0 {
-                    continue;
-                }
-                let lam = (num / den).clamp(-1.0, 1.0);
-                let w = (0..n).filter_map(|c| res[c].map(|x| (x - sh[c].unwrap_or(Cx::ZERO).scale(lam)).abs() / tol[c])).fold(0.0, f64::max);
-                comp = comp.min(2.0 * w);
-            }
-        }
-    }
-    (best, comp.min(best))
-}
-
-/// For each of an appliance's jumps, forward and undone, at an event's
-/// voltages: the event's remainder per channel (None: channel absent),
-/// the tolerance per channel, and the worst remainder in tolerances.
-fn jump_residuals(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model) -> Vec<(Vec<Option<Cx>>, Vec<f64>, f64)> {
-    let n = d.supply.lines();
-    let mut out = Vec::new();
     for j in &md.jumps {
         for fwd in [true, false] {
             // Forward: the jump's draws as given, "after" at the voltage
@@ -276,10 +247,27 @@ fn jump_residuals(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model) -
             let tol: Vec<f64> = (0..n).map(|c| abs + rel * size + 3.0 * e.se[c] + cx.slack[c]).collect();
             let res: Vec<Option<Cx>> = (0..n).map(|c| r[c].map(|rc| e.delta[c] - rc - cx.react[c])).collect();
             let worst = (0..n).filter_map(|c| res[c].map(|x| x.abs() / tol[c])).fold(0.0, f64::max);
-            out.push((res, tol, worst));
+            best = best.min(worst);
+            if worst > 1.0 {
+                for sh in shapes {
+                    let (mut num, mut den) = (0.0, 0.0);
+                    for c in 0..n {
+                        if let (Some(x), Some(g)) = (res[c], sh[c]) {
+                            num += (g.re * x.re + g.im * x.im) / (tol[c] * tol[c]);
+                            den += g.abs().powi(2) / (tol[c] * tol[c]);
+                        }
+                    }
+                    if den == 0.0 {
+                        continue;
+                    }
+                    let lam = (num / den).clamp(-1.0, 1.0);
+                    let w = (0..n).filter_map(|c| res[c].map(|x| (x - sh[c].unwrap_or(Cx::ZERO).scale(lam)).abs() / tol[c])).fold(0.0, f64::max);
+                    comp = comp.min(2.0 * w);
+                }
+            }
         }
     }
-    out
+    (best, comp.min(best))
 }
 
 /// An appliance's expected steps under a metering: at nominal voltage (a

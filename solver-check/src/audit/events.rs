@@ -114,7 +114,7 @@ pub struct Detector {
     inter: Vec<(i64, Vec<f64>)>,
     /// Whether a single row may stand as a level (intervals of 5 s or more,
     /// where an appliance can run for one row and a second one switch in the next).
-    short_levels: bool,
+    one_row_levels: bool,
     pub events: Vec<Event>,
     pub stats: Vec<ChannelStats>,
 }
@@ -187,7 +187,7 @@ impl Detector {
             cand: Vec::new(),
             cand_ms: 0,
             inter: Vec::new(),
-            short_levels: interval_s >= 5.0,
+            one_row_levels: interval_s >= 5.0,
             events: Vec::new(),
             stats: vec![ChannelStats { negative: vec![[0, 0]; n], ..Default::default() }; n],
         }
@@ -337,7 +337,7 @@ impl Detector {
 
     fn candidate(&mut self, row: Vec<f64>, time_ms: i64, before: Option<Level>) {
         if !self.cand.is_empty() && !fits(&row, &mean(&self.cand)) {
-            if self.short_levels && self.seg.is_some() && self.cand.len() == 1 {
+            if self.one_row_levels && self.seg.is_some() && self.cand.len() == 1 {
                 let r = self.cand.pop().expect("one row");
                 self.inter.push((self.cand_ms, r));
             } else {
