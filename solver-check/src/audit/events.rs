@@ -161,6 +161,12 @@ fn mean(rows: &[Vec<f64>]) -> Vec<f64> {
     m
 }
 
+/// Rows a new steady stretch needs: 3 at short intervals, 2 at long ones.
+/// Two switchings fewer rows apart than this come out as one step.
+pub fn level_rows(interval_s: f64) -> usize {
+    if interval_s >= 5.0 { 2 } else { 3 }
+}
+
 impl Detector {
     /// `angles_deg`: the supply's line angles (for the orientation counts).
     pub fn new(angles_deg: &[f64], interval_s: f64) -> Detector {
@@ -168,7 +174,7 @@ impl Detector {
         // Rows averaged either side of a step: about 20 s, 2 to 10 rows;
         // rows a new stretch needs: 3 at short intervals, 2 at long ones.
         let k = ((20.0 / interval_s).round() as usize).clamp(2, 10);
-        let l = if interval_s >= 5.0 { 2 } else { 3 };
+        let l = level_rows(interval_s);
         let units = (0..n)
             .map(|c| (0..n).map(|b| {
                 let u = Cx::polar_deg(1.0, angles_deg[c] - angles_deg[b]);
