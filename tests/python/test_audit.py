@@ -170,6 +170,73 @@ def test_each_kind_of_mistake_is_found(simulate, tmp_path):
     assert ev["starts"] >= 3 and 0 < ev["energy_share"] < 1
 
 
+def test_one_busy_misdeclared_appliance_is_not_taken_for_a_metering_fault(simulate, tmp_path):
+    """The kiln cycles every 9 minutes, so it makes more steps than the other
+    two 120 V loads together; declared on L2-N, exchanged channels would
+    explain more steps than the declared metering. One appliance on another
+    line is the simpler mistake and explains them all, so it is the finding
+    (common practice, no source: prefer the explanation with fewer faults)."""
+    busy = wired().replace(
+        'dwell = { median = "40 min", spread = 0.4 } }, { name = "on", power = "1400 W", dwell = { median = "12 min"',
+        'dwell = { median = "6 min", spread = 0.4 } }, { name = "on", power = "1400 W", dwell = { median = "3 min"',
+    )
+    assert busy != wired()
+    d = simulate(busy)
+    decl = busy.replace('id = "kiln"\nwiring = "L1-N"', 'id = "kiln"\nwiring = "L2-N"')
+    r, f = findings(d, decl, tmp_path)
+    assert f == [("wrong-line", "kiln")]
+    assert [m["found"] for m in r["metering"]] == ["CT on L1", "CT on L2"]
+
+
+def test_of_two_appliances_with_a_step_of_one_size_the_one_whose_other_steps_are_there_moves(simulate, tmp_path):
+    """A hair dryer (2200 W, then 1100 W) and a kettle (2200 W) on L1-N, a
+    brewer (1100 W) on L2-N, the brewer declared on L1-N. The brewer's steps
+    on L2-N fit a brewer or a hair dryer moved there; on L1-N the hair
+    dryer's half-heat steps fit the brewer as declared and its full-heat
+    steps the kettle, so neither keeps steps of its own as declared. Only
+    the brewer has all its step sizes on L2-N (no 2200 W step is there), so
+    it is the one that moved (common practice, no source: the account that
+    explains all of an appliance's steps)."""
+    rest = """[[appliance]]
+id = "kettle"
+wiring = "L1-N"
+load = "resistive"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "40 min", spread = 0.4 } }, { name = "on", power = "2200 W", dwell = { median = "3 min", spread = 0.4 } } ]
+
+[[appliance]]
+id = "dryer"
+wiring = "L1-N"
+load = "resistive"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "50 min", spread = 0.4 } }, { name = "high", power = "2200 W", dwell = { median = "4 min", spread = 0.4 } }, { name = "low", power = "1100 W", dwell = { median = "2 min", spread = 0.4 } } ]
+
+[[appliance]]
+id = "brewer"
+wiring = "L2-N"
+load = "resistive"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "60 min", spread = 0.4 } }, { name = "on", power = "1100 W", dwell = { median = "6 min", spread = 0.4 } } ]
+"""
+    d = simulate(wired(rest=rest))
+    decl = wired(rest=rest.replace('id = "brewer"\nwiring = "L2-N"', 'id = "brewer"\nwiring = "L1-N"'))
+    assert findings(d, decl, tmp_path)[1] == [("wrong-line", "brewer")]
+
+
+def test_an_appliance_declared_on_a_line_without_a_ct_is_placed_by_its_steps_elsewhere(simulate, tmp_path):
+    """No CT on L2: the toaster, declared on L2-N, cannot be missed there,
+    but its steps show on L1-N, where no other appliance explains them."""
+    d = simulate(wired(rest='[faults]\nno_ct = "L2"\n'))
+    decl = wired().replace('id = "toaster"\nwiring = "L1-N"', 'id = "toaster"\nwiring = "L2-N"')
+    r, f = findings(d, decl, tmp_path)
+    assert f == [("no-ct", "l2"), ("wrong-line", "toaster")]
+    [w] = [x for x in r["findings"] if x["kind"] == "wrong-line"]
+    assert w["evidence"]["steps_as_declared"] is None and w["evidence"]["steps_as_found"] >= 12
+    assert "no working CT reads" in w["message"] and w["confidence"] < 0.9
+    # Declared where it is, nothing is found about it.
+    assert findings(d, wired(), tmp_path)[1] == [("no-ct", "l2")]
+
+
 @pytest.mark.parametrize(
     "fault, expected",
     [
