@@ -315,28 +315,54 @@ fn found_of(o: &Outcome) -> Vec<(String, String, Value)> {
     o.findings.iter().map(|f| (f.kind.to_string(), f.subject.clone(), f.evidence.clone())).collect()
 }
 
-/// Whether two cases' findings are the same: the same kinds about the same
-/// subjects, a left-out load being the same on the same connection within
-/// 10 % of its power (its measured size moves with noise and voltage).
-pub fn same_findings(a: &[(String, String, Value)], b: &[(String, String, Value)]) -> bool {
-    let same = |x: &(String, String, Value), y: &(String, String, Value)| {
-        x.0 == y.0
-            && if x.0 == "undeclared-load" {
-                let (px, py) = (x.2["p_w"].as_f64().unwrap_or(f64::NAN), y.2["p_w"].as_f64().unwrap_or(f64::NAN));
-                x.2["wiring"] == y.2["wiring"] && (px - py).abs() <= 0.1 * px.abs().max(py.abs())
-            } else {
-                x.1 == y.1
-            }
-    };
+/// Two findings alike: the same kind about the same subject, a left-out load
+/// being the same on the same connection within 10 % of its power (its
+/// measured size moves with noise and voltage).
+fn alike(x: &(String, String, Value), y: &(String, String, Value)) -> bool {
+    x.0 == y.0
+        && if x.0 == "undeclared-load" {
+            let (px, py) = (x.2["p_w"].as_f64().unwrap_or(f64::NAN), y.2["p_w"].as_f64().unwrap_or(f64::NAN));
+            x.2["wiring"] == y.2["wiring"] && (px - py).abs() <= 0.1 * px.abs().max(py.abs())
+        } else {
+            x.1 == y.1
+        }
+}
+
+/// The findings of `a` and of `b` left over once each is matched one to
+/// one with an alike finding of the other.
+fn unmatched(a: &[(String, String, Value)], b: &[(String, String, Value)]) -> (Vec<usize>, Vec<usize>) {
     let mut used = vec![false; b.len()];
-    a.len() == b.len()
-        && a.iter().all(|x| match (0..b.len()).find(|&i| !used[i] && same(x, &b[i])) {
-            Some(i) => {
-                used[i] = true;
-                true
-            }
-            None => false,
-        })
+    let mut left_a = Vec::new();
+    for (i, x) in a.iter().enumerate() {
+        match (0..b.len()).find(|&k| !used[k] && alike(x, &b[k])) {
+            Some(k) => used[k] = true,
+            None => left_a.push(i),
+        }
+    }
+    (left_a, (0..b.len()).filter(|&k| !used[k]).collect())
+}
+
+/// Whether two cases' findings are the same (see [`alike`]).
+pub fn same_findings(a: &[(String, String, Value)], b: &[(String, String, Value)]) -> bool {
+    let (x, y) = unmatched(a, b);
+    x.is_empty() && y.is_empty()
+}
+
+/// Whether two runs of one case differ only in what one of them calls
+/// undecidable: every finding the other lacks is about a mistake's subject
+/// (for a left-out load: a left-out appliance) the other reports as
+/// undecidable, with its reason. The data of one way of measuring may not
+/// show what another does; saying so is not a changed finding.
+pub fn differ_only_where_undecidable(a: &Case, b: &Case) -> bool {
+    let (left_a, left_b) = unmatched(&a.found, &b.found);
+    let excused = |f: &(String, String, Value), other: &Case| {
+        if f.0 == "undeclared-load" {
+            other.mistakes.iter().any(|m| m.kind == "undeclared-load" && other.undecidable.contains(&m.subject))
+        } else {
+            other.undecidable.contains(&f.1)
+        }
+    };
+    left_a.iter().all(|&i| excused(&a.found[i], b)) && left_b.iter().all(|&k| excused(&b.found[k], a))
 }
 
 /// Whether a finding is the injected mistake.
@@ -555,5 +581,32 @@ mod tests {
         assert!(!same_findings(&a, &e));
         assert!(!same_findings(&a, &a[..1]));
         assert!(!same_findings(&[f("reversed-ct", "l1", json!({}))], &[f("reversed-ct", "l2", json!({}))]));
+    }
+
+    /// A finding one run lacks is excused only where that run calls the
+    /// subject undecidable; a left-out load where it calls the left-out
+    /// appliance undecidable.
+    #[test]
+    fn cases_differ_only_where_undecidable() {
+        let case = |found: Vec<(String, String, Value)>, undecidable: &[&str], mistakes: &[(&'static str, &str)]| Case {
+            scenario: "s".into(),
+            name: "c".into(),
+            mistakes: mistakes.iter().map(|(k, s)| Mistake { kind: k, subject: s.to_string(), load: None }).collect(),
+            found,
+            undecidable: undecidable.iter().map(|s| s.to_string()).collect(),
+            unexercised: vec![],
+            why: vec![],
+        };
+        let m = [("wrong-line", "washer")];
+        let found = case(vec![f("wrong-line", "washer", json!({}))], &[], &m);
+        assert!(differ_only_where_undecidable(&found, &case(vec![], &["washer"], &m)));
+        assert!(differ_only_where_undecidable(&case(vec![], &["washer"], &m), &found));
+        assert!(!differ_only_where_undecidable(&found, &case(vec![], &[], &m)), "missed, not undecidable");
+        assert!(!differ_only_where_undecidable(&found, &case(vec![f("wrong-line", "dryer", json!({}))], &["washer"], &m)), "a finding of its own");
+        let u = [("undeclared-load", "range")];
+        let two = case(vec![f("undeclared-load", "1550 W on L1-L2", json!({ "p_w": 1550.0, "wiring": "L1-L2" })), f("undeclared-load", "2160 W on L1-L2", json!({ "p_w": 2160.0, "wiring": "L1-L2" }))], &[], &u);
+        let one = |und: &[&str]| case(vec![f("undeclared-load", "2182 W on L1-L2", json!({ "p_w": 2182.0, "wiring": "L1-L2" }))], und, &u);
+        assert!(differ_only_where_undecidable(&two, &one(&["range"])));
+        assert!(!differ_only_where_undecidable(&two, &one(&[])));
     }
 }

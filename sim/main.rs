@@ -330,16 +330,17 @@ fn audit_matrix(dir: &Path, days: f64, runs: usize, variants: &[String], json: b
     let opts = MatrixOptions { days, clean_runs: runs };
     let mut out_json = Vec::new();
     let mut out_text = String::new();
-    let mut base_found: Option<Vec<Vec<(String, String, serde_json::Value)>>> = None;
+    let mut base: Option<Vec<loadloom::audit::Case>> = None;
     for &i in &chosen {
         let v = &VARIANTS[i];
         let cases = run_matrix(&homes, &opts, v, &mut |m| eprint!("\r\x1b[2K{}: {m}", v.name));
         eprint!("\r\x1b[2K");
         let sc = score(&cases);
-        let keys: Vec<Vec<(String, String, serde_json::Value)>> = cases.iter().map(|c| c.found.clone()).collect();
-        let same = base_found.as_ref().map(|b| b.iter().zip(&keys).filter(|(a, b)| loadloom::audit::same_findings(a, b)).count());
+        let same = base.as_ref().map(|b| b.iter().zip(&cases).filter(|(a, c)| loadloom::audit::same_findings(&a.found, &c.found)).count());
+        let agree = base.as_ref().map(|b| b.iter().zip(&cases).filter(|(a, c)| loadloom::audit::differ_only_where_undecidable(a, c)).count());
         let mut j = sc.to_json(v.name);
         j["cases_with_findings_as_first_variant"] = serde_json::json!(same);
+        j["cases_differing_from_first_variant_only_where_undecidable"] = serde_json::json!(agree.zip(same).map(|(a, s)| a - s));
         j["case_list"] = serde_json::json!(cases.iter().map(|c| serde_json::json!({
             "scenario": c.scenario, "case": c.name,
             "injected": c.mistakes.iter().map(|m| format!("{} {}", m.kind, m.subject)).collect::<Vec<_>>(),
@@ -349,12 +350,12 @@ fn audit_matrix(dir: &Path, days: f64, runs: usize, variants: &[String], json: b
         })).collect::<Vec<_>>());
         out_json.push(j);
         out_text += &sc.to_markdown(v.name);
-        if let Some(n) = same {
-            out_text += &format!("\nCases whose findings equal those of the first variant: {n} of {}.\n", cases.len());
+        if let (Some(n), Some(a)) = (same, agree) {
+            out_text += &format!("\nCases whose findings equal those of the first variant: {n} of {}; differing only where one of the two calls the subject undecidable: {}.\n", cases.len(), a - n);
         }
         out_text += "\n";
-        if base_found.is_none() {
-            base_found = Some(keys);
+        if base.is_none() {
+            base = Some(cases);
         }
     }
     if json {

@@ -311,3 +311,19 @@ def test_the_fault_matrix_finds_metering_mistakes():
         assert kinds[k]["injected"] >= 4 and kinds[k]["recall"] >= 0.95, kinds[k]
     # Every case names what was injected and what was found.
     assert all("injected" in c and "found" in c for c in r["case_list"])
+
+
+def test_the_fault_matrix_compares_ways_of_measuring():
+    """Two variants over the same cases: the second counts the cases whose
+    findings equal the first's, and those differing only where one calls the
+    subject undecidable; the sum can be no more than the cases."""
+    root = pathlib.Path(__file__).resolve().parents[2]
+    p = loadloom("audit", "--matrix", "--scenarios", root / "scenarios", "--runs", "1", "--days", "0.5", "--variant", "1s", "--variant", "dropouts", "--json")
+    first, second = json.loads(p.stdout)
+    assert first["cases_with_findings_as_first_variant"] is None
+    same, excused = second["cases_with_findings_as_first_variant"], second["cases_differing_from_first_variant_only_where_undecidable"]
+    assert 0 < same and 0 <= excused and same + excused <= second["cases"]
+    n = sum(1 for a, b in zip(first["case_list"], second["case_list"]) if sorted(a["found"]) == sorted(b["found"]))
+    assert same >= n, "equal finding lists are the same findings"
+    md = loadloom("audit", "--matrix", "--scenarios", root / "scenarios", "--runs", "1", "--days", "0.5", "--variant", "1s", "--variant", "dropouts", "--markdown").stdout
+    assert f"Cases whose findings equal those of the first variant: {same} of {second['cases']}; differing only where one of the two calls the subject undecidable: {excused}." in md
