@@ -223,6 +223,35 @@ states = [ { name = "off", power = "0 W", dwell = { median = "60 min", spread = 
     assert findings(d, decl, tmp_path)[1] == [("wrong-line", "brewer")]
 
 
+def test_an_appliance_is_not_placed_by_steps_of_one_of_its_sizes_alone(simulate, tmp_path):
+    """A 1.6 kW grill on L1-N nobody declared; declared instead, a press on
+    L2-N that never runs, with steps of 400, 1200 and 1600 W. Moved to L1-N
+    the press would fit every grill step, but its 400 W and 1200 W steps
+    never show there: the grill is a left-out load, not the press on
+    another line."""
+    grill = """[[appliance]]
+id = "grill"
+wiring = "L1-N"
+load = "resistive"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "30 min", spread = 0.4 } }, { name = "on", power = "1600 W", dwell = { median = "6 min", spread = 0.4 } } ]
+"""
+    press = """[[appliance]]
+id = "press"
+wiring = "L2-N"
+load = "resistive"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "30 min", spread = 0.4 } }, { name = "low", power = "400 W", dwell = { median = "5 min", spread = 0.4 } }, { name = "high", power = "1600 W", dwell = { median = "5 min", spread = 0.4 } } ]
+"""
+    d = simulate(wired(rest=grill))
+    r, f = findings(d, wired(rest=press), tmp_path)
+    assert [k for k, _ in f] == ["undeclared-load"], f
+    assert r["findings"][0]["evidence"]["wiring"] == "L1-N"
+    assert r["findings"][0]["evidence"]["p_w"] == pytest.approx(1600, rel=0.05)
+    [p] = [a for a in r["appliances"] if a["id"] == "press"]
+    assert p["verdict"] == "undecidable" and "not every one of its main step sizes" in p["reason"], p
+
+
 def test_an_appliance_declared_on_a_line_without_a_ct_is_placed_by_its_steps_elsewhere(simulate, tmp_path):
     """No CT on L2: the toaster, declared on L2-N, cannot be missed there,
     but its steps show on L1-N, where no other appliance explains them."""

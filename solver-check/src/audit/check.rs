@@ -961,21 +961,31 @@ fn move_finding(d: &Declared, a: &DeclAppliance, alt: &DeclAppliance, found: &st
     }
 }
 
+/// An appliance placed on another wiring must show there, among all the
+/// steps that fit it, each of its step sizes of this share of its largest
+/// or more: a dryer that never ran is not placed on a line by three washer
+/// steps of about its main step's size (measured in the fault matrix with
+/// 1 % noise). Smaller steps (a washer's 150 VA drain pump beside its
+/// 1 kW heater) may hide among other loads' changes.
+const WHOLE_SHARE: f64 = 0.25;
+
 /// Share of an appliance's step sizes (its distinct jumps of `USE_STEP`
-/// or more) that at least one of the steps `mine` fits, under `a`'s wiring:
+/// or more, and of `share` of its largest or more) that at least one of
+/// `steps` fits, under `a`'s wiring:
 /// a hair dryer whose half-heat steps fit but whose full-heat step is never
 /// seen is a poor account of those steps.
-fn coverage(d: &Declared, m: &Metering, a: &DeclAppliance, used: &[&Event], cxs: &[Ctx], mine: &[usize]) -> f64 {
+fn coverage(d: &Declared, m: &Metering, a: &DeclAppliance, used: &[&Event], cxs: &[Ctx], steps: &[usize], share: f64) -> f64 {
     let model = Model::of(d, a);
     let sizes: Vec<f64> = d.signatures(a).iter().map(|t| t.iter().map(|c| c.abs()).fold(0.0, f64::max)).collect();
+    let top = sizes.iter().cloned().fold(0.0, f64::max);
     let (mut big, mut seen) = (0, 0);
     for (jump, size) in model.jumps.iter().zip(sizes) {
-        if size < USE_STEP {
+        if size < USE_STEP || size < share * top {
             continue;
         }
         big += 1;
         let one = Model { jumps: vec![jump.clone()] };
-        seen += mine.iter().any(|&k| dist_model(d, m, used[k], &cxs[k], &one, &[]).0 <= 1.0) as usize;
+        seen += steps.iter().any(|&k| dist_model(d, m, used[k], &cxs[k], &one, &[]).0 <= 1.0) as usize;
     }
     if big == 0 { 1.0 } else { seen as f64 / big as f64 }
 }
@@ -1016,12 +1026,12 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], interval_s: f
         let dj = distances(d, m, used, cxs, &sigs, &shapes, interval_s);
         // Steps that fit a wiring of appliance j and no other appliance as
         // placed nearly as well (exclusive), all that fit, and who else fits.
-        let excl = |j: usize, sg: &Pred| -> (usize, usize, Vec<usize>, Vec<usize>) {
-            let (mut x, mut all, mut who, mut mine) = (0, 0, Vec::new(), Vec::new());
+        let excl = |j: usize, sg: &Pred| -> (usize, Vec<usize>, Vec<usize>, Vec<usize>) {
+            let (mut x, mut all, mut who, mut mine) = (0, Vec::new(), Vec::new(), Vec::new());
             for (k, e) in used.iter().enumerate() {
                 let me = sg.dist(d, m, e, &cxs[k]);
                 if me <= 1.0 {
-                    all += 1;
+                    all.push(k);
                     let rival = (0..na).filter(|&o| o != j && shares(me, dj[k][o])).min_by(|&a, &b| dj[k][a].total_cmp(&dj[k][b]));
                     match rival {
                         Some(o) => who.push(o),
@@ -1063,28 +1073,28 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], interval_s: f
             // Its best other wiring that a working CT reads: (steps it
             // alone fits, steps that fit, who else fits, its steps, name, wiring).
             let best_other = || {
-                let mut best: Option<(usize, usize, Vec<usize>, Vec<usize>, String, DeclAppliance)> = None;
+                let mut best: Option<(usize, Vec<usize>, Vec<usize>, Vec<usize>, String, DeclAppliance)> = None;
                 for (name, alt) in alternatives(d, a) {
                     let sg = Pred::of(d, m, &alt);
                     if !visible(&sg.nom) || blind(&alt).is_some() {
                         continue;
                     }
                     let (x, all, who, mine) = excl(j, &sg);
-                    if best.as_ref().is_none_or(|b| (x, all) > (b.0, b.1)) {
+                    if best.as_ref().is_none_or(|b| (x, all.len()) > (b.0, b.1.len())) {
                         best = Some((x, all, who, mine, name, alt));
                     }
                 }
-                best.unwrap_or((0, 0, vec![], vec![], String::new(), a.clone()))
+                best.unwrap_or((0, vec![], vec![], vec![], String::new(), a.clone()))
             };
             if let Some(x) = blind(a) {
                 ck.reason = format!("its wiring goes through L{}, which no working CT reads", x + 1);
                 // Its absence there cannot be seen, but its steps elsewhere
                 // can: many of them, fitting no other appliance, place it.
                 if uncheckable(a).is_none() {
-                    let (n_a, _, _, mine, name_a, alt) = best_other();
-                    if n_a >= BLIND_MOVE {
+                    let (n_a, all_a, _, mine, name_a, alt) = best_other();
+                    if n_a >= BLIND_MOVE && coverage(d, m, &alt, used, cxs, &all_a, WHOLE_SHARE) >= 1.0 {
                         let f = move_finding(d, a, &alt, &name_a, None, n_a);
-                        let cover = coverage(d, m, &alt, used, cxs, &mine);
+                        let cover = coverage(d, m, &alt, used, cxs, &mine, 0.0);
                         candidates.push((j, n_a, alt, f, mine, cover));
                         ck.reason = format!("{n_a} steps fit it on {name_a}; its declared wiring goes through L{}, which no working CT reads", x + 1);
                     } else if n_a > 0 {
@@ -1108,19 +1118,23 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], interval_s: f
             ck.steps_declared = n_d;
             let (n_a, all_a, who, mine, name_a, alt) = best_other();
             ck.steps_best_other = n_a;
-            if n_a >= 3 && n_a >= 3 * n_d + 2 {
+            let moves = n_a >= 3 && n_a >= 3 * n_d + 2;
+            let whole = moves && coverage(d, m, &alt, used, cxs, &all_a, WHOLE_SHARE) >= 1.0;
+            if whole {
                 let f = move_finding(d, a, &alt, &name_a, Some(n_d), n_a);
-                let cover = coverage(d, m, &alt, used, cxs, &mine);
+                let cover = coverage(d, m, &alt, used, cxs, &mine, 0.0);
                 candidates.push((j, n_a, alt, f, mine, cover));
                 ck.reason = format!("{n_a} steps fit it on {name_a}, {n_d} on {declared}");
+            } else if moves {
+                ck.reason = format!("{n_a} steps fit it on {name_a} and no other appliance, {n_d} on {declared}, but not every one of its main step sizes shows there: too little to place it");
             } else if n_d >= 2 {
                 ck.verdict = "as declared";
                 ck.reason = format!("{n_d} steps fit it as declared, at most {n_a} on any other connection");
-            } else if all_a >= 3 {
+            } else if all_a.len() >= 3 {
                 let mut who: Vec<String> = who.iter().map(|&o| placed[o].id.clone()).collect();
                 who.sort();
                 who.dedup();
-                ck.reason = format!("{all_a} steps would fit it on {name_a}, but they fit {} as well", who.join(", "));
+                ck.reason = format!("{} steps would fit it on {name_a}, but they fit {} as well", all_a.len(), who.join(", "));
             } else {
                 ck.reason = format!("seen switching {n_d} times as declared and {n_a} times otherwise: too few to decide");
             }
