@@ -643,9 +643,9 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     let dj = distances(d, &m, &used, &cxs, &explain, &own, interval_s);
     let mut fit: Vec<bool> = dj.iter().map(|r| r.iter().any(|x| *x <= 1.0)).collect();
     // A step whose part on the channels it mainly changes (a quarter of its
-    // largest or more) is a declared appliance's, with a smaller change on
-    // another channel in the same interval, is that appliance's and
-    // another load's (common at 10 s): explained, not a load of its own.
+    // largest or more) fits a declared appliance, the rest being a smaller
+    // change on another channel in the same interval, is that appliance's
+    // and another load's (common at 10 s): explained, not a load of its own.
     for (k, e) in used.iter().enumerate() {
         if fit[k] || e.size() < 400.0 {
             continue;
@@ -1190,12 +1190,6 @@ mod tests {
         assert!(!shares(0.2, 1.05));
     }
 
-    /// Two 120 V heaters on L1-N, each switched 100 times in 100 h of 10 s
-    /// rows. Among n₁ and n₂ independent uniform times in T, the expected
-    /// number of pairs closer than τ is n₁ n₂ 2τ / T (τ ≪ T; any text on
-    /// Poisson coincidences), half of them the same way round; two steps
-    /// merge when closer than two 10 s rows, so 2τ = 40 s:
-    /// 100 · 100 · 40 / (2 · 360 000) = 0.556 for the 1.5 kW sum.
     /// An appliance that is off or draws `s` from line `line` to neutral.
     fn on_off(id: &str, line: usize, s: Cx) -> DeclAppliance {
         use super::super::decl::{DeclDraw, Steps, Zip};
@@ -1219,6 +1213,12 @@ mod tests {
         }
     }
 
+    /// Two 120 V heaters on L1-N, each switched 100 times in 100 h of 10 s
+    /// rows. Among n₁ and n₂ independent uniform times in T, the expected
+    /// number of pairs closer than τ is n₁ n₂ 2τ / T (τ ≪ T; any text on
+    /// Poisson coincidences), half of them the same way round; two steps
+    /// merge when closer than two 10 s rows, so 2τ = 40 s:
+    /// 100 · 100 · 40 / (2 · 360 000) = 0.556 for the 1.5 kW sum.
     #[test]
     fn coincidences_of_two_heaters_are_expected_at_the_poisson_rate() {
         let heater = |id: &str, w: f64| on_off(id, 0, Cx::new(w, 0.0));
