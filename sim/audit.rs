@@ -349,19 +349,14 @@ pub fn same_findings(a: &[(String, String, Value)], b: &[(String, String, Value)
 }
 
 /// Whether two runs of one case differ only in what one of them calls
-/// undecidable: every finding the other lacks is about a mistake's subject
-/// (for a left-out load: a left-out appliance) the other reports as
-/// undecidable, with its reason. The data of one way of measuring may not
-/// show what another does; saying so is not a changed finding.
+/// undecidable: every finding the other lacks is an injected mistake (for
+/// a left-out load: the left-out appliance, on its connection and of one
+/// of its sizes) whose subject the other reports as undecidable, with its
+/// reason. The data of one way of measuring may not show what another
+/// does; saying so is not a changed finding.
 pub fn differ_only_where_undecidable(a: &Case, b: &Case) -> bool {
     let (left_a, left_b) = unmatched(&a.found, &b.found);
-    let excused = |f: &(String, String, Value), other: &Case| {
-        if f.0 == "undeclared-load" {
-            other.mistakes.iter().any(|m| m.kind == "undeclared-load" && other.undecidable.contains(&m.subject))
-        } else {
-            other.undecidable.contains(&f.1)
-        }
-    };
+    let excused = |f: &(String, String, Value), other: &Case| other.mistakes.iter().any(|m| hits(m, f) && other.undecidable.contains(&m.subject));
     left_a.iter().all(|&i| excused(&a.found[i], b)) && left_b.iter().all(|&k| excused(&b.found[k], a))
 }
 
@@ -588,25 +583,30 @@ mod tests {
     /// appliance undecidable.
     #[test]
     fn cases_differ_only_where_undecidable() {
-        let case = |found: Vec<(String, String, Value)>, undecidable: &[&str], mistakes: &[(&'static str, &str)]| Case {
+        let case = |found: Vec<(String, String, Value)>, undecidable: &[&str], mistakes: Vec<Mistake>| Case {
             scenario: "s".into(),
             name: "c".into(),
-            mistakes: mistakes.iter().map(|(k, s)| Mistake { kind: k, subject: s.to_string(), load: None }).collect(),
+            mistakes,
             found,
             undecidable: undecidable.iter().map(|s| s.to_string()).collect(),
             unexercised: vec![],
             why: vec![],
         };
-        let m = [("wrong-line", "washer")];
-        let found = case(vec![f("wrong-line", "washer", json!({}))], &[], &m);
-        assert!(differ_only_where_undecidable(&found, &case(vec![], &["washer"], &m)));
-        assert!(differ_only_where_undecidable(&case(vec![], &["washer"], &m), &found));
-        assert!(!differ_only_where_undecidable(&found, &case(vec![], &[], &m)), "missed, not undecidable");
-        assert!(!differ_only_where_undecidable(&found, &case(vec![f("wrong-line", "dryer", json!({}))], &["washer"], &m)), "a finding of its own");
-        let u = [("undeclared-load", "range")];
-        let two = case(vec![f("undeclared-load", "1550 W on L1-L2", json!({ "p_w": 1550.0, "wiring": "L1-L2" })), f("undeclared-load", "2160 W on L1-L2", json!({ "p_w": 2160.0, "wiring": "L1-L2" }))], &[], &u);
-        let one = |und: &[&str]| case(vec![f("undeclared-load", "2182 W on L1-L2", json!({ "p_w": 2182.0, "wiring": "L1-L2" }))], und, &u);
+        let m = || vec![Mistake { kind: "wrong-line", subject: "washer".into(), load: None }];
+        let found = case(vec![f("wrong-line", "washer", json!({}))], &[], m());
+        assert!(differ_only_where_undecidable(&found, &case(vec![], &["washer"], m())));
+        assert!(differ_only_where_undecidable(&case(vec![], &["washer"], m()), &found));
+        assert!(!differ_only_where_undecidable(&found, &case(vec![], &[], m())), "missed, not undecidable");
+        assert!(!differ_only_where_undecidable(&found, &case(vec![f("wrong-line", "dryer", json!({}))], &["washer"], m())), "a finding of its own");
+        let other_kind = case(vec![f("declared-ll-seen-ln", "washer", json!({}))], &[], m());
+        assert!(!differ_only_where_undecidable(&other_kind, &case(vec![], &["washer"], m())), "not the injected mistake");
+        let u = || vec![Mistake { kind: "undeclared-load", subject: "range".into(), load: Some((vec!["L1-L2".into()], vec![1550.0, 2160.0])) }];
+        let load = |w: f64, on: &str| f("undeclared-load", &format!("{w} W on {on}"), json!({ "p_w": w, "wiring": on }));
+        let two = case(vec![load(1550.0, "L1-L2"), load(2160.0, "L1-L2")], &[], u());
+        let one = |und: &[&str]| case(vec![load(2182.0, "L1-L2")], und, u());
         assert!(differ_only_where_undecidable(&two, &one(&["range"])));
         assert!(!differ_only_where_undecidable(&two, &one(&[])));
+        let elsewhere = case(vec![load(1550.0, "L1-N"), load(2160.0, "L1-L2")], &[], u());
+        assert!(!differ_only_where_undecidable(&elsewhere, &one(&["range"])), "a load on another connection is not the range");
     }
 }

@@ -1092,11 +1092,15 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], interval_s: f
                 // can: many of them, fitting no other appliance, place it.
                 if uncheckable(a).is_none() {
                     let (n_a, all_a, _, mine, name_a, alt) = best_other();
-                    if n_a >= BLIND_MOVE && coverage(d, m, &alt, used, cxs, &all_a, WHOLE_SHARE) >= 1.0 {
+                    ck.steps_best_other = n_a;
+                    let whole = n_a >= BLIND_MOVE && coverage(d, m, &alt, used, cxs, &all_a, WHOLE_SHARE) >= 1.0;
+                    if whole {
                         let f = move_finding(d, a, &alt, &name_a, None, n_a);
                         let cover = coverage(d, m, &alt, used, cxs, &mine, 0.0);
                         candidates.push((j, n_a, alt, f, mine, cover));
                         ck.reason = format!("{n_a} steps fit it on {name_a}; its declared wiring goes through L{}, which no working CT reads", x + 1);
+                    } else if n_a >= BLIND_MOVE {
+                        ck.reason += &format!(" ({n_a} steps fit it on {name_a} and no other appliance, but not every one of its main step sizes shows there)");
                     } else if n_a > 0 {
                         ck.reason += &format!(" ({n_a} steps fit it on {name_a} and no other appliance; {BLIND_MOVE} would place it there)");
                     }
@@ -1257,6 +1261,25 @@ mod tests {
         assert_eq!(found, [("undeclared-load", "1100 W on L1-N")], "{:?}", o.findings.iter().map(|f| &f.message).collect::<Vec<_>>());
         assert_eq!((o.findings[0].evidence["starts"].as_u64(), o.findings[0].evidence["stops"].as_u64()), (Some(4), Some(4)));
         assert_eq!(o.steps_explained, 8, "the pump's starts and stops");
+    }
+
+    /// Of moves claiming mostly the same steps, the one showing more of its
+    /// own step sizes is made; otherwise the one with the most steps, the
+    /// earlier appliance on a tie.
+    #[test]
+    fn the_move_made_first() {
+        let cand = |j: usize, steps: Vec<usize>, cover: f64| {
+            let a = on_off(&format!("a{j}"), 0, Cx::new(1000.0, 0.0));
+            let f = Finding { kind: "wrong-line", subject: a.id.clone(), message: String::new(), confidence: 0.5, evidence: json!({}) };
+            (j, steps.len(), a, f, steps, cover)
+        };
+        let pick = |c: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)>| contest(c).map(|x| x.0);
+        assert_eq!(pick(vec![]), None);
+        assert_eq!(pick(vec![cand(0, vec![1, 2, 3], 1.0), cand(1, vec![4, 5, 6, 7], 1.0)]), Some(1), "most steps");
+        assert_eq!(pick(vec![cand(0, vec![1, 2, 3], 1.0), cand(1, vec![4, 5, 6], 1.0)]), Some(0), "a tie: the earlier");
+        assert_eq!(pick(vec![cand(0, vec![1, 2, 3, 4, 5, 6], 2.0 / 3.0), cand(1, vec![1, 2, 3, 4, 5, 6], 1.0)]), Some(1), "the same steps: the whole account");
+        assert_eq!(pick(vec![cand(0, vec![1, 2, 3, 4, 5, 6], 0.5), cand(1, vec![4, 5, 6, 9], 1.0)]), Some(1), "half of the fewer shared");
+        assert_eq!(pick(vec![cand(0, vec![1, 2, 3, 4, 5, 6], 0.5), cand(1, vec![6, 7, 8, 9], 1.0)]), Some(0), "other steps: not a rival");
     }
 
     /// Reference: scipy.stats.poisson.sf(k - 1, mean), scipy 1.14.1.
