@@ -328,18 +328,26 @@ fn alike(x: &(String, String, Value), y: &(String, String, Value)) -> bool {
         }
 }
 
-/// The findings of `a` and of `b` left over once each is matched one to
-/// one with an alike finding of the other.
+/// The findings of `a` and of `b` left over once as many as can be are
+/// matched one to one with an alike finding of the other (a maximum
+/// matching by augmenting paths: the 10 % size rule is not transitive, so
+/// first fit could leave a pair unmatched that another order matches).
 fn unmatched(a: &[(String, String, Value)], b: &[(String, String, Value)]) -> (Vec<usize>, Vec<usize>) {
-    let mut used = vec![false; b.len()];
-    let mut left_a = Vec::new();
-    for (i, x) in a.iter().enumerate() {
-        match (0..b.len()).find(|&k| !used[k] && alike(x, &b[k])) {
-            Some(k) => used[k] = true,
-            None => left_a.push(i),
+    fn augment(i: usize, a: &[(String, String, Value)], b: &[(String, String, Value)], seen: &mut [bool], owner: &mut [Option<usize>]) -> bool {
+        for k in 0..b.len() {
+            if !seen[k] && alike(&a[i], &b[k]) {
+                seen[k] = true;
+                if owner[k].is_none_or(|o| augment(o, a, b, seen, owner)) {
+                    owner[k] = Some(i);
+                    return true;
+                }
+            }
         }
+        false
     }
-    (left_a, (0..b.len()).filter(|&k| !used[k]).collect())
+    let mut owner: Vec<Option<usize>> = vec![None; b.len()];
+    let left_a = (0..a.len()).filter(|&i| !augment(i, a, b, &mut vec![false; b.len()], &mut owner)).collect();
+    (left_a, (0..b.len()).filter(|&k| owner[k].is_none()).collect())
 }
 
 /// Whether two cases' findings are the same (see [`alike`]).
@@ -576,6 +584,10 @@ mod tests {
         assert!(!same_findings(&a, &e));
         assert!(!same_findings(&a, &a[..1]));
         assert!(!same_findings(&[f("reversed-ct", "l1", json!({}))], &[f("reversed-ct", "l2", json!({}))]));
+        // 1050 W is alike both 1000 and 1140 W, 960 W only 1000 W: first fit
+        // would pair 1050 with 1000 and leave 960 alone.
+        let load = |w: f64| f("undeclared-load", &format!("{w} W on L1-N"), json!({ "p_w": w, "wiring": "L1-N" }));
+        assert!(same_findings(&[load(1050.0), load(960.0)], &[load(1000.0), load(1140.0)]));
     }
 
     /// A finding one run lacks is excused only where that run calls the
