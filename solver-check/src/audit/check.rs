@@ -415,23 +415,30 @@ fn dist_shape(e: &Event, r: &[Option<Cx>]) -> f64 {
 /// wandering of those whose power wanders.
 /// Returns (appliances with at least two fitting steps, steps explained).
 fn explained(d: &Declared, m: &Metering, events: &[&Event]) -> (usize, usize) {
-    let sigs: Vec<Vec<Vec<Option<Cx>>>> = d.appliances.iter().map(|a| predicted(d, m, a)).collect();
-    let shapes: Vec<Vec<Option<Cx>>> = d.appliances.iter().filter_map(|a| shape_of(d, m, a)).collect();
-    let mut per = vec![0usize; sigs.len()];
-    let mut n = 0;
-    for e in events {
-        let mut any = false;
-        for (j, s) in sigs.iter().enumerate() {
-            if any_fits(e, s) {
-                per[j] += 1;
-                any = true;
-            }
-        }
-        if any || shapes.iter().any(|r| fits_shape(e, r)) {
-            n += 1;
-        }
+    let fits: Vec<Fits> = d.appliances.iter().map(|a| fits_of(d, m, a, events)).collect();
+    let apps = fits.iter().filter(|f| f.jump.iter().filter(|&&x| x).count() >= 2).count();
+    (apps, steps_explained(&fits, events.len()))
+}
+
+/// Per step, whether one of an appliance's jumps fits it, and whether part
+/// of its wander does (an appliance that wanders).
+struct Fits {
+    jump: Vec<bool>,
+    wander: Vec<bool>,
+}
+
+fn fits_of(d: &Declared, m: &Metering, a: &DeclAppliance, events: &[&Event]) -> Fits {
+    let sig = predicted(d, m, a);
+    let shape = shape_of(d, m, a);
+    Fits {
+        jump: events.iter().map(|e| any_fits(e, &sig)).collect(),
+        wander: events.iter().map(|e| shape.as_ref().is_some_and(|r| fits_shape(e, r))).collect(),
     }
-    (per.iter().filter(|&&k| k >= 2).count(), n)
+}
+
+/// Steps some appliance's jump or wander fits.
+fn steps_explained<'a>(fits: impl IntoIterator<Item = &'a Fits> + Clone, n: usize) -> usize {
+    (0..n).filter(|&k| fits.clone().into_iter().any(|f| f.jump[k] || f.wander[k])).count()
 }
 
 /// Least-squares fit of a step to each connection: (wiring, complex power,
@@ -606,14 +613,15 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     // can otherwise tip the choice; a lower bar, 90 %, kept the declared
     // metering where two channels were in fact exchanged.)
     let chosen = if chosen != decl_i && decl_neg <= NEGATIVE_OK {
-        let mut dd = d.clone();
+        // The other appliances' fits stay as they are while one is moved.
+        let fits: Vec<Fits> = d.appliances.iter().map(|a| fits_of(d, &decl_m, a, &big)).collect();
         let mut most = decl_ex;
-        for j in 0..d.appliances.len() {
-            for (_, alt) in alternatives(d, &d.appliances[j]) {
-                dd.appliances[j] = alt;
-                most = most.max(explained(&dd, &decl_m, &big).1);
+        for (j, a) in d.appliances.iter().enumerate() {
+            for (_, alt) in alternatives(d, a) {
+                let moved = fits_of(d, &decl_m, &alt, &big);
+                let others = fits.iter().enumerate().filter(|(o, _)| *o != j).map(|(_, f)| f);
+                most = most.max(steps_explained(others.chain([&moved]), big.len()));
             }
-            dd.appliances[j] = d.appliances[j].clone();
         }
         if most >= scored[chosen].2 { decl_i } else { chosen }
     } else {
