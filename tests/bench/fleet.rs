@@ -10,10 +10,9 @@ use std::path::Path;
 use std::process::Command;
 use std::time::Instant;
 
-fn peak_mb() -> f64 {
-    let s = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
-    s.lines().find(|l| l.starts_with("VmHWM:")).and_then(|l| l.split_whitespace().nth(1)).and_then(|v| v.parse::<f64>().ok()).unwrap_or(0.0) / 1024.0
-}
+#[path = "common.rs"]
+mod common;
+use common::peak_mb;
 
 fn child(pop: &Path, homes: u64, jobs: usize, out: &Path) {
     let p = loadloom::fleet::load(pop).expect("population");

@@ -15,10 +15,9 @@ use std::process::Command;
 use std::sync::Arc;
 use std::time::Instant;
 
-fn peak_mb() -> f64 {
-    let status = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
-    status.lines().find(|l| l.starts_with("VmHWM:")).and_then(|l| l.split_whitespace().nth(1)).and_then(|v| v.parse::<f64>().ok()).unwrap_or(0.0) / 1024.0
-}
+#[path = "common.rs"]
+mod common;
+use common::peak_mb;
 
 fn prepare(days: f64, dir: &Path) -> (PathBuf, PathBuf, usize, u64) {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
