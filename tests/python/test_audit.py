@@ -128,6 +128,13 @@ states = [ { name = "off", power = "0 W", dwell = { median = "50 min", spread = 
 """
 
 
+def cycler(id, wiring, *states):
+    """A resistive appliance cycling through `states`, each (name, watts,
+    median dwell), in a home's scenario text."""
+    listed = ", ".join(f'{{ name = "{n}", power = "{w} W", dwell = {{ median = "{m}", spread = 0.4 }} }}' for n, w, m in states)
+    return f'[[appliance]]\nid = "{id}"\nwiring = "{wiring}"\nload = "resistive"\nbehaviour = "cycle"\nstates = [ {listed} ]\n'
+
+
 def wired(pump_wiring="L2-N", heater=True, meter_extra="", rest=""):
     return WIRED.format(pump_wiring=pump_wiring, heater=HEATER if heater else "", meter_extra=meter_extra, rest=rest)
 
@@ -197,27 +204,11 @@ def test_of_two_appliances_with_a_step_of_one_size_the_one_whose_other_steps_are
     the brewer has all its step sizes on L2-N (no 2200 W step is there), so
     it is the one that moved (common practice, no source: the account that
     explains all of an appliance's steps)."""
-    rest = """[[appliance]]
-id = "kettle"
-wiring = "L1-N"
-load = "resistive"
-behaviour = "cycle"
-states = [ { name = "off", power = "0 W", dwell = { median = "40 min", spread = 0.4 } }, { name = "on", power = "2200 W", dwell = { median = "3 min", spread = 0.4 } } ]
-
-[[appliance]]
-id = "dryer"
-wiring = "L1-N"
-load = "resistive"
-behaviour = "cycle"
-states = [ { name = "off", power = "0 W", dwell = { median = "50 min", spread = 0.4 } }, { name = "high", power = "2200 W", dwell = { median = "4 min", spread = 0.4 } }, { name = "low", power = "1100 W", dwell = { median = "2 min", spread = 0.4 } } ]
-
-[[appliance]]
-id = "brewer"
-wiring = "L2-N"
-load = "resistive"
-behaviour = "cycle"
-states = [ { name = "off", power = "0 W", dwell = { median = "60 min", spread = 0.4 } }, { name = "on", power = "1100 W", dwell = { median = "6 min", spread = 0.4 } } ]
-"""
+    rest = "\n".join([
+        cycler("kettle", "L1-N", ("off", 0, "40 min"), ("on", 2200, "3 min")),
+        cycler("dryer", "L1-N", ("off", 0, "50 min"), ("high", 2200, "4 min"), ("low", 1100, "2 min")),
+        cycler("brewer", "L2-N", ("off", 0, "60 min"), ("on", 1100, "6 min")),
+    ])
     d = simulate(wired(rest=rest))
     decl = wired(rest=rest.replace('id = "brewer"\nwiring = "L2-N"', 'id = "brewer"\nwiring = "L1-N"'))
     assert findings(d, decl, tmp_path)[1] == [("wrong-line", "brewer")]
@@ -229,20 +220,8 @@ def test_an_appliance_is_not_placed_by_steps_of_one_of_its_sizes_alone(simulate,
     the press would fit every grill step, but its 400 W and 1200 W steps
     never show there: the grill is a left-out load, not the press on
     another line."""
-    grill = """[[appliance]]
-id = "grill"
-wiring = "L1-N"
-load = "resistive"
-behaviour = "cycle"
-states = [ { name = "off", power = "0 W", dwell = { median = "30 min", spread = 0.4 } }, { name = "on", power = "1600 W", dwell = { median = "6 min", spread = 0.4 } } ]
-"""
-    press = """[[appliance]]
-id = "press"
-wiring = "L2-N"
-load = "resistive"
-behaviour = "cycle"
-states = [ { name = "off", power = "0 W", dwell = { median = "30 min", spread = 0.4 } }, { name = "low", power = "400 W", dwell = { median = "5 min", spread = 0.4 } }, { name = "high", power = "1600 W", dwell = { median = "5 min", spread = 0.4 } } ]
-"""
+    grill = cycler("grill", "L1-N", ("off", 0, "30 min"), ("on", 1600, "6 min"))
+    press = cycler("press", "L2-N", ("off", 0, "30 min"), ("low", 400, "5 min"), ("high", 1600, "5 min"))
     d = simulate(wired(rest=grill))
     r, f = findings(d, wired(rest=press), tmp_path)
     assert [k for k, _ in f] == ["undeclared-load"], f
