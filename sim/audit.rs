@@ -4,21 +4,36 @@
 //! simulates them, audits them and scores the findings against the truth.
 
 use crate::behaviour::timelines;
-use crate::scenario::{self, Behaviour, Connection, DropMode, Dropouts, Dist, Scenario, NEUTRAL};
+use crate::scenario::{self, Behaviour, Connection, Dist, DropMode, Dropouts, Scenario, NEUTRAL};
 use crate::simulate::simulate;
 use serde_json::{json, Value};
 use solver_check::audit::check::{self, Outcome};
-use solver_check::audit::decl::{Cx, DeclAppliance, DeclChannel, DeclDraw, Declared, Steps, Supply, Wiring};
+use solver_check::audit::decl::{
+    Cx, DeclAppliance, DeclChannel, DeclDraw, Declared, Steps, Supply, Wiring,
+};
 use solver_check::audit::events::{ChannelStats, Detector, Event};
 use std::path::Path;
 
 /// Reads a declaration: a scenario file, whose `[run]` may be left out.
 pub fn load_declaration(path: &Path) -> Result<Declared, scenario::Error> {
-    let text = std::fs::read_to_string(path).map_err(|e| scenario::Error::file(path, format!("cannot read the declaration: {e}"), "check the path"))?;
-    let has_run = text.parse::<toml_edit::DocumentMut>().map(|d| d.contains_key("run")).unwrap_or(true);
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        scenario::Error::file(
+            path,
+            format!("cannot read the declaration: {e}"),
+            "check the path",
+        )
+    })?;
+    let has_run = text
+        .parse::<toml_edit::DocumentMut>()
+        .map(|d| d.contains_key("run"))
+        .unwrap_or(true);
     // A declaration need not say when to simulate: a placeholder run, after
     // the text so every position in errors stays the file's own.
-    let text = if has_run { text } else { format!("{text}\n[run]\nstart = \"2001-01-01T00:00\"\nlength = \"1 d\"\n") };
+    let text = if has_run {
+        text
+    } else {
+        format!("{text}\n[run]\nstart = \"2001-01-01T00:00\"\nlength = \"1 d\"\n")
+    };
     let s = scenario::load_str(path, text)?;
     Ok(declared(&s))
 }
@@ -33,7 +48,11 @@ fn wiring(c: Connection) -> Wiring {
 }
 
 fn zip(z: crate::scenario::Zip) -> solver_check::audit::decl::Zip {
-    solver_check::audit::decl::Zip { z: z.z, i: z.i, p: z.p }
+    solver_check::audit::decl::Zip {
+        z: z.z,
+        i: z.i,
+        p: z.p,
+    }
 }
 
 /// A program phase no longer than this may be passed over at long
@@ -44,18 +63,38 @@ pub const SHORT_PHASE_S: f64 = 30.0;
 /// appliances (not its unmetered loads, which nobody listed, nor its
 /// faults, which are what really happened).
 pub fn declared(s: &Scenario) -> Declared {
-    let supply = Supply { kind: s.home.supply.name().into(), angles_deg: s.home.supply.angles_deg().to_vec(), voltage_v: s.home.voltage_v, service_a: s.home.service_a };
+    let supply = Supply {
+        kind: s.home.supply.name().into(),
+        angles_deg: s.home.supply.angles_deg().to_vec(),
+        voltage_v: s.home.voltage_v,
+        service_a: s.home.service_a,
+    };
     let appliances = s
         .appliances
         .iter()
         .map(|a| {
-            let states = a.states.iter().map(|st| st.draws.iter().map(|d| DeclDraw { wiring: wiring(d.wiring), s: Cx::new(d.p_w, d.q_var), zip_p: zip(d.zip_p), zip_q: zip(d.zip_q) }).collect()).collect();
+            let states = a
+                .states
+                .iter()
+                .map(|st| {
+                    st.draws
+                        .iter()
+                        .map(|d| DeclDraw {
+                            wiring: wiring(d.wiring),
+                            s: Cx::new(d.p_w, d.q_var),
+                            zip_p: zip(d.zip_p),
+                            zip_q: zip(d.zip_q),
+                        })
+                        .collect()
+                })
+                .collect();
             let n = a.states.len();
             let steps = match &a.behaviour {
                 Behaviour::Cycle { dwell, extra } => {
                     // The states in order; the extra one after the last.
                     let m = dwell.len();
-                    let mut j: Vec<(usize, usize, f64, f64)> = (0..m).map(|i| (i, (i + 1) % m, 1.0, 1.0)).collect();
+                    let mut j: Vec<(usize, usize, f64, f64)> =
+                        (0..m).map(|i| (i, (i + 1) % m, 1.0, 1.0)).collect();
                     if let Some(e) = extra {
                         j.push((m - 1, e.state, 1.0, 1.0));
                         j.push((e.state, 0, 1.0, 1.0));
@@ -63,7 +102,8 @@ pub fn declared(s: &Scenario) -> Declared {
                     Steps::Jumps(j)
                 }
                 Behaviour::Program { lengths, .. } => {
-                    let mut j: Vec<(usize, usize, f64, f64)> = (0..n).map(|i| (i, (i + 1) % n, 1.0, 1.0)).collect();
+                    let mut j: Vec<(usize, usize, f64, f64)> =
+                        (0..n).map(|i| (i, (i + 1) % n, 1.0, 1.0)).collect();
                     // A phase of seconds can fall inside a long interval or
                     // two: the program is then seen to go past it.
                     for (i, d) in lengths.iter().enumerate() {
@@ -73,21 +113,60 @@ pub fn declared(s: &Scenario) -> Declared {
                     }
                     Steps::Jumps(j)
                 }
-                Behaviour::Markov { next, .. } => Steps::Jumps(next.iter().enumerate().flat_map(|(i, row)| row.iter().enumerate().filter(|(_, p)| **p > 0.0).map(move |(k, _)| (i, k, 1.0, 1.0))).collect()),
+                Behaviour::Markov { next, .. } => Steps::Jumps(
+                    next.iter()
+                        .enumerate()
+                        .flat_map(|(i, row)| {
+                            row.iter()
+                                .enumerate()
+                                .filter(|(_, p)| **p > 0.0)
+                                .map(move |(k, _)| (i, k, 1.0, 1.0))
+                        })
+                        .collect(),
+                ),
                 Behaviour::Steady { .. } => Steps::None("always on"),
                 // A wandering change is a few random-walk steps at most
                 // between two steady stretches: 4 standard deviations.
-                Behaviour::Modulating { session: Some(_), min, wander, .. } => Steps::Wanders { state: n - 1, max: (4.0 * wander).min(1.0), jumps: vec![(0, n - 1, 1.0, 1.0), (n - 1, 0, 1.0, *min)] },
-                Behaviour::Modulating { session: None, wander, .. } => Steps::Wanders { state: n - 1, max: (4.0 * wander).min(1.0), jumps: vec![] },
+                Behaviour::Modulating {
+                    session: Some(_),
+                    min,
+                    wander,
+                    ..
+                } => Steps::Wanders {
+                    state: n - 1,
+                    max: (4.0 * wander).min(1.0),
+                    jumps: vec![(0, n - 1, 1.0, 1.0), (n - 1, 0, 1.0, *min)],
+                },
+                Behaviour::Modulating {
+                    session: None,
+                    wander,
+                    ..
+                } => Steps::Wanders {
+                    state: n - 1,
+                    max: (4.0 * wander).min(1.0),
+                    jumps: vec![],
+                },
             };
-            DeclAppliance { id: a.id.clone(), label: a.label.clone(), states, steps }
+            DeclAppliance {
+                id: a.id.clone(),
+                label: a.label.clone(),
+                states,
+                steps,
+            }
         })
         .collect();
     Declared {
         file: s.home.supply_at.split(':').next().unwrap_or("").to_string(),
         supply_at: s.home.supply_at.clone(),
         supply,
-        channels: s.metering.iter().map(|m| DeclChannel { conductor: m.conductor, reversed: m.reversed }).collect(),
+        channels: s
+            .metering
+            .iter()
+            .map(|m| DeclChannel {
+                conductor: m.conductor,
+                reversed: m.reversed,
+            })
+            .collect(),
         appliances,
     }
 }
@@ -113,7 +192,11 @@ pub fn observe(s: &Scenario) -> Observed {
     let tl = timelines(s, s.run.steps());
     let mut det = Detector::new(s.home.supply.angles_deg(), s.meter.interval_s);
     let interval_ms = (s.meter.interval_s * 1000.0).round() as i64;
-    let missing = s.faults.dropouts.as_ref().is_some_and(|d| d.mode == DropMode::Missing);
+    let missing = s
+        .faults
+        .dropouts
+        .as_ref()
+        .is_some_and(|d| d.mode == DropMode::Missing);
     let n = s.home.supply.lines();
     let (mut p, mut q, mut v) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
     let out = simulate(s, &tl, s.intervals(), 65_536, |c| -> Result<(), ()> {
@@ -127,7 +210,12 @@ pub fn observe(s: &Scenario) -> Observed {
                 q[x] = r.line_q[x][i] as f64;
                 v[x] = r.line_v[x][i] as f64;
             }
-            det.push(s.run.start_utc_ms + (c.first_row + i as u64) as i64 * interval_ms, &p, &q, &v);
+            det.push(
+                s.run.start_utc_ms + (c.first_row + i as u64) as i64 * interval_ms,
+                &p,
+                &q,
+                &v,
+            );
         }
         Ok(())
     });
@@ -145,20 +233,54 @@ pub fn observe(s: &Scenario) -> Observed {
                 continue;
             }
             let app = &d.appliances[b.app];
-            let (sa, sb) = (d.state_split(app, a.state as usize), d.state_split(app, b.state as usize));
-            if sa.iter().zip(&sb).map(|(x, y)| (*y - *x).abs()).fold(0.0, f64::max) >= check::USE_STEP {
+            let (sa, sb) = (
+                d.state_split(app, a.state as usize),
+                d.state_split(app, b.state as usize),
+            );
+            if sa
+                .iter()
+                .zip(&sb)
+                .map(|(x, y)| (*y - *x).abs())
+                .fold(0.0, f64::max)
+                >= check::USE_STEP
+            {
                 changes[b.app] += 1;
             }
-            if sa.iter().zip(&sb).map(|(x, y)| y.re - x.re).sum::<f64>().abs() >= 500.0 {
+            if sa
+                .iter()
+                .zip(&sb)
+                .map(|(x, y)| y.re - x.re)
+                .sum::<f64>()
+                .abs()
+                >= 500.0
+            {
                 big_changes[b.app] += 1;
                 jumps[b.app].push(sa.iter().zip(&sb).map(|(x, y)| y.re - x.re).sum::<f64>());
             }
         }
     }
     // The most of them of one size (within 10 %), the same way.
-    let recurring = jumps.iter().map(|v| v.iter().map(|x| v.iter().filter(|y| y.signum() == x.signum() && (*y - x).abs() <= 0.1 * x.abs()).count()).max().unwrap_or(0)).collect();
+    let recurring = jumps
+        .iter()
+        .map(|v| {
+            v.iter()
+                .map(|x| {
+                    v.iter()
+                        .filter(|y| y.signum() == x.signum() && (*y - x).abs() <= 0.1 * x.abs())
+                        .count()
+                })
+                .max()
+                .unwrap_or(0)
+        })
+        .collect();
     let (events, stats) = det.finish();
-    Observed { events, stats, changes, big_changes, recurring }
+    Observed {
+        events,
+        stats,
+        changes,
+        big_changes,
+        recurring,
+    }
 }
 
 /// Audits a scenario's simulated meters against a declaration.
@@ -176,8 +298,14 @@ pub struct Variant {
 }
 
 pub const VARIANTS: [Variant; 5] = [
-    Variant { name: "1 s", apply: |_| {} },
-    Variant { name: "10 s", apply: |s| s.meter.interval_s = 10.0 },
+    Variant {
+        name: "1 s",
+        apply: |_| {},
+    },
+    Variant {
+        name: "10 s",
+        apply: |s| s.meter.interval_s = 10.0,
+    },
     Variant {
         name: "noise 1 %",
         apply: |s| {
@@ -185,8 +313,23 @@ pub const VARIANTS: [Variant; 5] = [
             s.meter.noise_floor_w = s.meter.noise_floor_w.max(2.0);
         },
     },
-    Variant { name: "dropouts 5 %", apply: |s| s.faults.dropouts = Some(Dropouts { rate: 0.05, length: Dist::Lognormal { median_s: 60.0, spread: 1.0 }, mode: DropMode::Null }) },
-    Variant { name: "background 20 %", apply: |s| crate::roundtrip::add_background(s, 0.2) },
+    Variant {
+        name: "dropouts 5 %",
+        apply: |s| {
+            s.faults.dropouts = Some(Dropouts {
+                rate: 0.05,
+                length: Dist::Lognormal {
+                    median_s: 60.0,
+                    spread: 1.0,
+                },
+                mode: DropMode::Null,
+            })
+        },
+    },
+    Variant {
+        name: "background 20 %",
+        apply: |s| crate::roundtrip::add_background(s, 0.2),
+    },
 ];
 
 /// One injected mistake: its kind and subject as a finding would name them.
@@ -233,7 +376,13 @@ fn chan(c: usize) -> String {
 /// Lines some declared appliance draws through.
 fn loaded_lines(d: &Declared) -> Vec<usize> {
     let n = d.supply.lines();
-    (0..n).filter(|&c| d.appliances.iter().any(|a| a.wirings().iter().any(|w| w.lines(n).contains(&c)))).collect()
+    (0..n)
+        .filter(|&c| {
+            d.appliances
+                .iter()
+                .any(|a| a.wirings().iter().any(|w| w.lines(n).contains(&c)))
+        })
+        .collect()
 }
 
 /// Meter faults to inject: (name, mistake, how).
@@ -241,29 +390,75 @@ fn meter_faults(d: &Declared) -> Vec<(String, Mistake, Box<dyn Fn(&mut Scenario)
     use crate::scenario::CtFault;
     let lines = loaded_lines(d);
     let mut v: Vec<(String, Mistake, Box<dyn Fn(&mut Scenario)>)> = Vec::new();
-    let ct = |line: usize, reversed: bool, on: Option<usize>| CtFault { line, gain: 0.0, phase_deg: 0.0, reversed, on };
+    let ct = |line: usize, reversed: bool, on: Option<usize>| CtFault {
+        line,
+        gain: 0.0,
+        phase_deg: 0.0,
+        reversed,
+        on,
+    };
     for &x in &lines {
-        v.push((format!("CT {} reversed", chan(x)), Mistake { kind: "reversed-ct", subject: chan(x), load: None }, Box::new(move |s| s.faults.ct.push(ct(x, true, None)))));
+        v.push((
+            format!("CT {} reversed", chan(x)),
+            Mistake {
+                kind: "reversed-ct",
+                subject: chan(x),
+                load: None,
+            },
+            Box::new(move |s| s.faults.ct.push(ct(x, true, None))),
+        ));
     }
     for &a in &lines {
         for &b in &lines {
             if a != b {
-                v.push((format!("CT {} on L{}", chan(a), b + 1), Mistake { kind: "ct-on-other-conductor", subject: chan(a), load: None }, Box::new(move |s| s.faults.ct.push(ct(a, false, Some(b))))));
+                v.push((
+                    format!("CT {} on L{}", chan(a), b + 1),
+                    Mistake {
+                        kind: "ct-on-other-conductor",
+                        subject: chan(a),
+                        load: None,
+                    },
+                    Box::new(move |s| s.faults.ct.push(ct(a, false, Some(b)))),
+                ));
             }
         }
     }
     for (i, &a) in lines.iter().enumerate() {
         for &b in &lines[i + 1..] {
             let pair = format!("{}+{}", chan(a), chan(b));
-            v.push((format!("CTs {pair} exchanged"), Mistake { kind: "cts-exchanged", subject: pair.clone(), load: None }, Box::new(move |s| {
-                s.faults.ct.push(ct(a, false, Some(b)));
-                s.faults.ct.push(ct(b, false, Some(a)));
-            })));
-            v.push((format!("channels {pair} exchanged"), Mistake { kind: "channels-exchanged", subject: pair, load: None }, Box::new(move |s| s.faults.swap = Some((a, b)))));
+            v.push((
+                format!("CTs {pair} exchanged"),
+                Mistake {
+                    kind: "cts-exchanged",
+                    subject: pair.clone(),
+                    load: None,
+                },
+                Box::new(move |s| {
+                    s.faults.ct.push(ct(a, false, Some(b)));
+                    s.faults.ct.push(ct(b, false, Some(a)));
+                }),
+            ));
+            v.push((
+                format!("channels {pair} exchanged"),
+                Mistake {
+                    kind: "channels-exchanged",
+                    subject: pair,
+                    load: None,
+                },
+                Box::new(move |s| s.faults.swap = Some((a, b))),
+            ));
         }
     }
     for &x in &lines {
-        v.push((format!("no CT on {}", chan(x)), Mistake { kind: "no-ct", subject: chan(x), load: None }, Box::new(move |s| s.faults.no_ct = Some(x))));
+        v.push((
+            format!("no CT on {}", chan(x)),
+            Mistake {
+                kind: "no-ct",
+                subject: chan(x),
+                load: None,
+            },
+            Box::new(move |s| s.faults.no_ct = Some(x)),
+        ));
     }
     v
 }
@@ -283,20 +478,53 @@ fn declaration_mistakes(d: &Declared, j: usize) -> Vec<(String, Mistake, Declare
         e.appliances[j] = a.rewired(|_| w);
         e
     };
-    let next = |x: usize| lines[(lines.iter().position(|&l| l == x).unwrap_or(0) + 1) % lines.len()];
+    let next =
+        |x: usize| lines[(lines.iter().position(|&l| l == x).unwrap_or(0) + 1) % lines.len()];
     if ws.len() == 1 {
         match ws[0] {
             Wiring::LineNeutral(x) if lines.len() > 1 => {
                 let y = next(x);
-                v.push((format!("{} declared on L{}-N", a.id, y + 1), Mistake { kind: "wrong-line", subject: a.id.clone(), load: None }, with(Wiring::LineNeutral(y))));
-                v.push((format!("{} declared L{}-L{}", a.id, x.min(y) + 1, x.max(y) + 1), Mistake { kind: "declared-ll-seen-ln", subject: a.id.clone(), load: None }, with(Wiring::LineLine(x.min(y), x.max(y)))));
+                v.push((
+                    format!("{} declared on L{}-N", a.id, y + 1),
+                    Mistake {
+                        kind: "wrong-line",
+                        subject: a.id.clone(),
+                        load: None,
+                    },
+                    with(Wiring::LineNeutral(y)),
+                ));
+                v.push((
+                    format!("{} declared L{}-L{}", a.id, x.min(y) + 1, x.max(y) + 1),
+                    Mistake {
+                        kind: "declared-ll-seen-ln",
+                        subject: a.id.clone(),
+                        load: None,
+                    },
+                    with(Wiring::LineLine(x.min(y), x.max(y))),
+                ));
             }
             Wiring::LineLine(x, y) => {
-                v.push((format!("{} declared L{}-N", a.id, x + 1), Mistake { kind: "declared-ln-seen-ll", subject: a.id.clone(), load: None }, with(Wiring::LineNeutral(x))));
+                v.push((
+                    format!("{} declared L{}-N", a.id, x + 1),
+                    Mistake {
+                        kind: "declared-ln-seen-ll",
+                        subject: a.id.clone(),
+                        load: None,
+                    },
+                    with(Wiring::LineNeutral(x)),
+                ));
                 if n == 3 && lines.len() == 3 {
                     let z = 3 - x - y;
                     let w = Wiring::LineLine(y.min(z), y.max(z));
-                    v.push((format!("{} declared {}", a.id, w.name()), Mistake { kind: "wrong-line", subject: a.id.clone(), load: None }, with(w)));
+                    v.push((
+                        format!("{} declared {}", a.id, w.name()),
+                        Mistake {
+                            kind: "wrong-line",
+                            subject: a.id.clone(),
+                            load: None,
+                        },
+                        with(w),
+                    ));
                 }
             }
             _ => {}
@@ -305,14 +533,30 @@ fn declaration_mistakes(d: &Declared, j: usize) -> Vec<(String, Mistake, Declare
     if a.largest_step_w() >= 1000.0 {
         let mut e = d.clone();
         e.appliances.remove(j);
-        let steps: Vec<f64> = d.signatures(a).iter().map(|t| t.iter().map(|c| c.re).sum::<f64>().abs()).filter(|p| *p >= 500.0).collect();
-        v.push((format!("{} left out of the declaration", a.id), Mistake { kind: "undeclared-load", subject: a.id.clone(), load: Some((ws.iter().map(|w| w.name()).collect(), steps)) }, e));
+        let steps: Vec<f64> = d
+            .signatures(a)
+            .iter()
+            .map(|t| t.iter().map(|c| c.re).sum::<f64>().abs())
+            .filter(|p| *p >= 500.0)
+            .collect();
+        v.push((
+            format!("{} left out of the declaration", a.id),
+            Mistake {
+                kind: "undeclared-load",
+                subject: a.id.clone(),
+                load: Some((ws.iter().map(|w| w.name()).collect(), steps)),
+            },
+            e,
+        ));
     }
     v
 }
 
 fn found_of(o: &Outcome) -> Vec<(String, String, Value)> {
-    o.findings.iter().map(|f| (f.kind.to_string(), f.subject.clone(), f.evidence.clone())).collect()
+    o.findings
+        .iter()
+        .map(|f| (f.kind.to_string(), f.subject.clone(), f.evidence.clone()))
+        .collect()
 }
 
 /// Two findings alike: the same kind about the same subject, a left-out load
@@ -321,7 +565,10 @@ fn found_of(o: &Outcome) -> Vec<(String, String, Value)> {
 fn alike(x: &(String, String, Value), y: &(String, String, Value)) -> bool {
     x.0 == y.0
         && if x.0 == "undeclared-load" {
-            let (px, py) = (x.2["p_w"].as_f64().unwrap_or(f64::NAN), y.2["p_w"].as_f64().unwrap_or(f64::NAN));
+            let (px, py) = (
+                x.2["p_w"].as_f64().unwrap_or(f64::NAN),
+                y.2["p_w"].as_f64().unwrap_or(f64::NAN),
+            );
             x.2["wiring"] == y.2["wiring"] && (px - py).abs() <= 0.1 * px.abs().max(py.abs())
         } else {
             x.1 == y.1
@@ -332,8 +579,17 @@ fn alike(x: &(String, String, Value), y: &(String, String, Value)) -> bool {
 /// matched one to one with an alike finding of the other (a maximum
 /// matching by augmenting paths: the 10 % size rule is not transitive, so
 /// first fit could leave a pair unmatched that another order matches).
-fn unmatched(a: &[(String, String, Value)], b: &[(String, String, Value)]) -> (Vec<usize>, Vec<usize>) {
-    fn augment(i: usize, a: &[(String, String, Value)], b: &[(String, String, Value)], seen: &mut [bool], owner: &mut [Option<usize>]) -> bool {
+fn unmatched(
+    a: &[(String, String, Value)],
+    b: &[(String, String, Value)],
+) -> (Vec<usize>, Vec<usize>) {
+    fn augment(
+        i: usize,
+        a: &[(String, String, Value)],
+        b: &[(String, String, Value)],
+        seen: &mut [bool],
+        owner: &mut [Option<usize>],
+    ) -> bool {
         for k in 0..b.len() {
             if !seen[k] && alike(&a[i], &b[k]) {
                 seen[k] = true;
@@ -346,8 +602,13 @@ fn unmatched(a: &[(String, String, Value)], b: &[(String, String, Value)]) -> (V
         false
     }
     let mut owner: Vec<Option<usize>> = vec![None; b.len()];
-    let left_a = (0..a.len()).filter(|&i| !augment(i, a, b, &mut vec![false; b.len()], &mut owner)).collect();
-    (left_a, (0..b.len()).filter(|&k| owner[k].is_none()).collect())
+    let left_a = (0..a.len())
+        .filter(|&i| !augment(i, a, b, &mut vec![false; b.len()], &mut owner))
+        .collect();
+    (
+        left_a,
+        (0..b.len()).filter(|&k| owner[k].is_none()).collect(),
+    )
 }
 
 /// Whether two cases' findings are the same (see [`alike`]).
@@ -364,8 +625,14 @@ pub fn same_findings(a: &[(String, String, Value)], b: &[(String, String, Value)
 /// does; saying so is not a changed finding.
 pub fn differ_only_where_undecidable(a: &Case, b: &Case) -> bool {
     let (left_a, left_b) = unmatched(&a.found, &b.found);
-    let excused = |f: &(String, String, Value), other: &Case| other.mistakes.iter().any(|m| hits(m, f) && other.undecidable.contains(&m.subject));
-    left_a.iter().all(|&i| excused(&a.found[i], b)) && left_b.iter().all(|&k| excused(&b.found[k], a))
+    let excused = |f: &(String, String, Value), other: &Case| {
+        other
+            .mistakes
+            .iter()
+            .any(|m| hits(m, f) && other.undecidable.contains(&m.subject))
+    };
+    left_a.iter().all(|&i| excused(&a.found[i], b))
+        && left_b.iter().all(|&k| excused(&b.found[k], a))
 }
 
 /// Whether a finding is the injected mistake.
@@ -375,7 +642,14 @@ fn hits(m: &Mistake, f: &(String, String, Value)) -> bool {
     }
     match &m.load {
         None => f.1 == m.subject,
-        Some((ws, ps)) => f.2["wiring"].as_str().is_some_and(|w| w.split(" + ").all(|part| ws.iter().any(|x| x == part))) && f.2["p_w"].as_f64().is_some_and(|x| ps.iter().any(|p| (x - p).abs() <= 0.2 * p)),
+        Some((ws, ps)) => {
+            f.2["wiring"]
+                .as_str()
+                .is_some_and(|w| w.split(" + ").all(|part| ws.iter().any(|x| x == part)))
+                && f.2["p_w"]
+                    .as_f64()
+                    .is_some_and(|x| ps.iter().any(|p| (x - p).abs() <= 0.2 * p))
+        }
     }
 }
 
@@ -387,7 +661,12 @@ pub struct MatrixOptions {
 }
 
 /// Runs the matrix over `scenarios` under `variant`.
-pub fn run_matrix(scenarios: &[(String, Scenario)], opts: &MatrixOptions, variant: &Variant, progress: &mut dyn FnMut(&str)) -> Vec<Case> {
+pub fn run_matrix(
+    scenarios: &[(String, Scenario)],
+    opts: &MatrixOptions,
+    variant: &Variant,
+    progress: &mut dyn FnMut(&str),
+) -> Vec<Case> {
     let mut cases = Vec::new();
     for (name, base) in scenarios {
         let mut base = base.clone();
@@ -397,24 +676,40 @@ pub fn run_matrix(scenarios: &[(String, Scenario)], opts: &MatrixOptions, varian
         base.waveforms.windows.clear();
         (variant.apply)(&mut base);
         let d = declared(&base);
-        let targets: Vec<usize> = (0..d.appliances.len()).filter(|&j| !declaration_mistakes(&d, j).is_empty()).collect();
-        let all_mistakes: Vec<(String, Mistake, Declared)> = targets.iter().flat_map(|&j| declaration_mistakes(&d, j)).collect();
+        let targets: Vec<usize> = (0..d.appliances.len())
+            .filter(|&j| !declaration_mistakes(&d, j).is_empty())
+            .collect();
+        let all_mistakes: Vec<(String, Mistake, Declared)> = targets
+            .iter()
+            .flat_map(|&j| declaration_mistakes(&d, j))
+            .collect();
         let mut next_mistake = 0usize;
         let mut take = |k: usize| -> Vec<(String, Mistake, Declared)> {
-            (0..k).map(|_| {
-                let m = all_mistakes[next_mistake % all_mistakes.len()].clone();
-                next_mistake += 1;
-                m
-            }).collect()
+            (0..k)
+                .map(|_| {
+                    let m = all_mistakes[next_mistake % all_mistakes.len()].clone();
+                    next_mistake += 1;
+                    m
+                })
+                .collect()
         };
-        let per_clean = (all_mistakes.len() as f64 / opts.clean_runs as f64).ceil().max(1.0) as usize;
+        let per_clean = (all_mistakes.len() as f64 / opts.clean_runs as f64)
+            .ceil()
+            .max(1.0) as usize;
         for r in 0..opts.clean_runs {
             let mut s = base.clone();
             s.run.seed = base.run.seed.wrapping_add(1000 + r as u64);
             progress(&format!("{name}: clean run {}", r + 1));
             let ob = observe(&s);
             let o = check::check(&d, &ob.events, &ob.stats, s.meter.interval_s);
-            cases.push(case_of(name, &format!("clean, seed {}", s.run.seed), vec![], &o, &d, &ob));
+            cases.push(case_of(
+                name,
+                &format!("clean, seed {}", s.run.seed),
+                vec![],
+                &o,
+                &d,
+                &ob,
+            ));
             for (mname, m, dm) in take(per_clean) {
                 let o = check::check(&dm, &ob.events, &ob.stats, s.meter.interval_s);
                 cases.push(case_of(name, &mname, vec![m], &o, &d, &ob));
@@ -431,35 +726,100 @@ pub fn run_matrix(scenarios: &[(String, Scenario)], opts: &MatrixOptions, varian
             // The same fault with a declaration mistake on top.
             for (mname, m, dm) in take(1) {
                 let o = check::check(&dm, &ob.events, &ob.stats, s.meter.interval_s);
-                cases.push(case_of(name, &format!("{fname}; {mname}"), vec![fm.clone(), m], &o, &d, &ob));
+                cases.push(case_of(
+                    name,
+                    &format!("{fname}; {mname}"),
+                    vec![fm.clone(), m],
+                    &o,
+                    &d,
+                    &ob,
+                ));
             }
         }
     }
     cases
 }
 
-fn case_of(scenario: &str, name: &str, mistakes: Vec<Mistake>, o: &Outcome, d: &Declared, ob: &Observed) -> Case {
+fn case_of(
+    scenario: &str,
+    name: &str,
+    mistakes: Vec<Mistake>,
+    o: &Outcome,
+    d: &Declared,
+    ob: &Observed,
+) -> Case {
     // A load left out of the declaration cannot be seen when it draws
     // through a conductor no working CT reads, or when its steps are those
     // of another declared appliance.
     let n = d.supply.lines();
-    let read: Vec<bool> = (0..n).map(|b| (0..n).any(|c| !o.metering.absent[c] && o.metering.map[c].src == b)).collect();
+    let read: Vec<bool> = (0..n)
+        .map(|b| (0..n).any(|c| !o.metering.absent[c] && o.metering.map[c].src == b))
+        .collect();
     let hidden = |m: &Mistake| {
         m.kind == "undeclared-load"
-            && d.appliances.iter().position(|a| a.id == m.subject).is_some_and(|j| d.appliances[j].wirings().iter().any(|w| w.lines(n).iter().any(|&x| !read[x])) || check::indistinct(d, j).is_some())
+            && d.appliances
+                .iter()
+                .position(|a| a.id == m.subject)
+                .is_some_and(|j| {
+                    d.appliances[j]
+                        .wirings()
+                        .iter()
+                        .any(|w| w.lines(n).iter().any(|&x| !read[x]))
+                        || check::indistinct(d, j).is_some()
+                })
     };
-    let undecidable = mistakes.iter().filter(|m| hidden(m) || o.appliances.iter().any(|a| a.id == m.subject && a.verdict == "undecidable")).map(|m| m.subject.clone()).collect();
+    let undecidable = mistakes
+        .iter()
+        .filter(|m| {
+            hidden(m)
+                || o.appliances
+                    .iter()
+                    .any(|a| a.id == m.subject && a.verdict == "undecidable")
+        })
+        .map(|m| m.subject.clone())
+        .collect();
     let unexercised = mistakes
         .iter()
-        .filter(|m| d.appliances.iter().position(|a| a.id == m.subject).is_some_and(|j| if m.kind == "undeclared-load" { ob.big_changes[j] < EXERCISED || ob.recurring[j] < RECURS } else { ob.changes[j] < EXERCISED }))
+        .filter(|m| {
+            d.appliances
+                .iter()
+                .position(|a| a.id == m.subject)
+                .is_some_and(|j| {
+                    if m.kind == "undeclared-load" {
+                        ob.big_changes[j] < EXERCISED || ob.recurring[j] < RECURS
+                    } else {
+                        ob.changes[j] < EXERCISED
+                    }
+                })
+        })
         .map(|m| m.subject.clone())
         .collect();
     let why = mistakes
         .iter()
         .filter_map(|m| o.appliances.iter().find(|a| a.id == m.subject))
-        .map(|a| format!("{}: {}: {} (state changes with a usable step in the run: {})", a.id, a.verdict, a.reason, d.appliances.iter().position(|x| x.id == a.id).map(|j| ob.changes[j]).unwrap_or(0)))
+        .map(|a| {
+            format!(
+                "{}: {}: {} (state changes with a usable step in the run: {})",
+                a.id,
+                a.verdict,
+                a.reason,
+                d.appliances
+                    .iter()
+                    .position(|x| x.id == a.id)
+                    .map(|j| ob.changes[j])
+                    .unwrap_or(0)
+            )
+        })
         .collect();
-    Case { scenario: scenario.into(), name: name.into(), mistakes, found: found_of(o), undecidable, unexercised, why }
+    Case {
+        scenario: scenario.into(),
+        name: name.into(),
+        mistakes,
+        found: found_of(o),
+        undecidable,
+        unexercised,
+        why,
+    }
 }
 
 /// Per kind: injected, found, undecidable; findings of the kind, true ones.
@@ -482,7 +842,10 @@ pub struct MatrixScore {
 }
 
 pub fn score(cases: &[Case]) -> MatrixScore {
-    let mut kinds: Vec<(&'static str, KindScore)> = check::KINDS.iter().map(|k| (*k, KindScore::default())).collect();
+    let mut kinds: Vec<(&'static str, KindScore)> = check::KINDS
+        .iter()
+        .map(|k| (*k, KindScore::default()))
+        .collect();
     let (mut clean, mut clean_bad) = (0, 0);
     for c in cases {
         if c.mistakes.is_empty() {
@@ -515,7 +878,12 @@ pub fn score(cases: &[Case]) -> MatrixScore {
             }
         }
     }
-    MatrixScore { cases: cases.len(), clean, clean_with_findings: clean_bad, kinds }
+    MatrixScore {
+        cases: cases.len(),
+        clean,
+        clean_with_findings: clean_bad,
+        kinds,
+    }
 }
 
 /// Fraction, or None for 0/0.
@@ -540,12 +908,28 @@ impl MatrixScore {
     }
 
     pub fn to_markdown(&self, variant: &str) -> String {
-        let pct = |x: Option<f64>| x.map(|v| format!("{:.1} %", 100.0 * v)).unwrap_or_else(|| "–".into());
+        let pct = |x: Option<f64>| {
+            x.map(|v| format!("{:.1} %", 100.0 * v))
+                .unwrap_or_else(|| "–".into())
+        };
         let mut o = format!("Fault matrix, {variant}: {} cases, {} clean; clean cases with a false finding: {} ({}).\n\n", self.cases, self.clean, self.clean_with_findings, pct(ratio(self.clean_with_findings, self.clean)));
         o += "| mistake | injected | not exercised | undecidable | decided | found | recall | findings | precision |\n|---|---:|---:|---:|---:|---:|---:|---:|---:|\n";
-        for (k, s) in self.kinds.iter().filter(|k| k.1.injected + k.1.reported > 0) {
+        for (k, s) in self
+            .kinds
+            .iter()
+            .filter(|k| k.1.injected + k.1.reported > 0)
+        {
             let decided = s.injected - s.undecidable;
-            o += &format!("| {k} | {} | {} | {} | {decided} | {} | {} | {} | {} |\n", s.injected, s.unexercised, s.undecidable, s.found, pct(ratio(s.found, decided)), s.reported, pct(ratio(s.correct, s.reported)));
+            o += &format!(
+                "| {k} | {} | {} | {} | {decided} | {} | {} | {} | {} |\n",
+                s.injected,
+                s.unexercised,
+                s.undecidable,
+                s.found,
+                pct(ratio(s.found, decided)),
+                s.reported,
+                pct(ratio(s.correct, s.reported))
+            );
         }
         o
     }
@@ -565,29 +949,102 @@ mod tests {
     #[test]
     fn a_phase_length_rarely_exceeded() {
         assert_eq!(Dist::Fixed { value_s: 5.0 }.upper_s(), 5.0);
-        assert_eq!(Dist::Uniform { min_s: 10.0, max_s: 14.0 }.upper_s(), 14.0);
-        assert!((Dist::Lognormal { median_s: 10.0, spread: 0.5 }.upper_s() - 10.0 * 1.0_f64.exp()).abs() < 1e-9);
-        assert!((Dist::Gamma { mean_s: 20.0, shape: 4.0 }.upper_s() - 40.0).abs() < 1e-9);
-        assert!(Dist::Fixed { value_s: 5.0 }.upper_s() <= SHORT_PHASE_S && Dist::Uniform { min_s: 60.0, max_s: 180.0 }.upper_s() > SHORT_PHASE_S);
+        assert_eq!(
+            Dist::Uniform {
+                min_s: 10.0,
+                max_s: 14.0
+            }
+            .upper_s(),
+            14.0
+        );
+        assert!(
+            (Dist::Lognormal {
+                median_s: 10.0,
+                spread: 0.5
+            }
+            .upper_s()
+                - 10.0 * 1.0_f64.exp())
+            .abs()
+                < 1e-9
+        );
+        assert!(
+            (Dist::Gamma {
+                mean_s: 20.0,
+                shape: 4.0
+            }
+            .upper_s()
+                - 40.0)
+                .abs()
+                < 1e-9
+        );
+        assert!(
+            Dist::Fixed { value_s: 5.0 }.upper_s() <= SHORT_PHASE_S
+                && Dist::Uniform {
+                    min_s: 60.0,
+                    max_s: 180.0
+                }
+                .upper_s()
+                    > SHORT_PHASE_S
+        );
     }
 
     /// Left-out loads are the same on the same connection within 10 % of
     /// their power; other findings by kind and subject, in any order.
     #[test]
     fn findings_compare_by_kind_subject_and_left_out_load_size() {
-        let a = vec![f("reversed-ct", "l1", json!({})), f("undeclared-load", "4862 W on L1-L2", json!({ "p_w": 4862.0, "wiring": "L1-L2" }))];
-        let b = vec![f("undeclared-load", "4780 W on L1-L2", json!({ "p_w": 4780.0, "wiring": "L1-L2" })), f("reversed-ct", "l1", json!({}))];
+        let a = vec![
+            f("reversed-ct", "l1", json!({})),
+            f(
+                "undeclared-load",
+                "4862 W on L1-L2",
+                json!({ "p_w": 4862.0, "wiring": "L1-L2" }),
+            ),
+        ];
+        let b = vec![
+            f(
+                "undeclared-load",
+                "4780 W on L1-L2",
+                json!({ "p_w": 4780.0, "wiring": "L1-L2" }),
+            ),
+            f("reversed-ct", "l1", json!({})),
+        ];
         assert!(same_findings(&a, &b));
-        let c = vec![f("reversed-ct", "l1", json!({})), f("undeclared-load", "4000 W on L1-L2", json!({ "p_w": 4000.0, "wiring": "L1-L2" }))];
+        let c = vec![
+            f("reversed-ct", "l1", json!({})),
+            f(
+                "undeclared-load",
+                "4000 W on L1-L2",
+                json!({ "p_w": 4000.0, "wiring": "L1-L2" }),
+            ),
+        ];
         assert!(!same_findings(&a, &c));
-        let e = vec![f("reversed-ct", "l1", json!({})), f("undeclared-load", "4862 W on L1-N", json!({ "p_w": 4862.0, "wiring": "L1-N" }))];
+        let e = vec![
+            f("reversed-ct", "l1", json!({})),
+            f(
+                "undeclared-load",
+                "4862 W on L1-N",
+                json!({ "p_w": 4862.0, "wiring": "L1-N" }),
+            ),
+        ];
         assert!(!same_findings(&a, &e));
         assert!(!same_findings(&a, &a[..1]));
-        assert!(!same_findings(&[f("reversed-ct", "l1", json!({}))], &[f("reversed-ct", "l2", json!({}))]));
+        assert!(!same_findings(
+            &[f("reversed-ct", "l1", json!({}))],
+            &[f("reversed-ct", "l2", json!({}))]
+        ));
         // 1050 W is alike both 1000 and 1140 W, 960 W only 1000 W: first fit
         // would pair 1050 with 1000 and leave 960 alone.
-        let load = |w: f64| f("undeclared-load", &format!("{w} W on L1-N"), json!({ "p_w": w, "wiring": "L1-N" }));
-        assert!(same_findings(&[load(1050.0), load(960.0)], &[load(1000.0), load(1140.0)]));
+        let load = |w: f64| {
+            f(
+                "undeclared-load",
+                &format!("{w} W on L1-N"),
+                json!({ "p_w": w, "wiring": "L1-N" }),
+            )
+        };
+        assert!(same_findings(
+            &[load(1050.0), load(960.0)],
+            &[load(1000.0), load(1140.0)]
+        ));
     }
 
     /// A finding one run lacks is excused only where that run calls the
@@ -595,7 +1052,9 @@ mod tests {
     /// appliance undecidable.
     #[test]
     fn cases_differ_only_where_undecidable() {
-        let case = |found: Vec<(String, String, Value)>, undecidable: &[&str], mistakes: Vec<Mistake>| Case {
+        let case = |found: Vec<(String, String, Value)>,
+                    undecidable: &[&str],
+                    mistakes: Vec<Mistake>| Case {
             scenario: "s".into(),
             name: "c".into(),
             mistakes,
@@ -604,21 +1063,64 @@ mod tests {
             unexercised: vec![],
             why: vec![],
         };
-        let m = || vec![Mistake { kind: "wrong-line", subject: "washer".into(), load: None }];
+        let m = || {
+            vec![Mistake {
+                kind: "wrong-line",
+                subject: "washer".into(),
+                load: None,
+            }]
+        };
         let found = case(vec![f("wrong-line", "washer", json!({}))], &[], m());
-        assert!(differ_only_where_undecidable(&found, &case(vec![], &["washer"], m())));
-        assert!(differ_only_where_undecidable(&case(vec![], &["washer"], m()), &found));
-        assert!(!differ_only_where_undecidable(&found, &case(vec![], &[], m())), "missed, not undecidable");
-        assert!(!differ_only_where_undecidable(&found, &case(vec![f("wrong-line", "dryer", json!({}))], &["washer"], m())), "a finding of its own");
-        let other_kind = case(vec![f("declared-ll-seen-ln", "washer", json!({}))], &[], m());
-        assert!(!differ_only_where_undecidable(&other_kind, &case(vec![], &["washer"], m())), "not the injected mistake");
-        let u = || vec![Mistake { kind: "undeclared-load", subject: "range".into(), load: Some((vec!["L1-L2".into()], vec![1550.0, 2160.0])) }];
-        let load = |w: f64, on: &str| f("undeclared-load", &format!("{w} W on {on}"), json!({ "p_w": w, "wiring": on }));
+        assert!(differ_only_where_undecidable(
+            &found,
+            &case(vec![], &["washer"], m())
+        ));
+        assert!(differ_only_where_undecidable(
+            &case(vec![], &["washer"], m()),
+            &found
+        ));
+        assert!(
+            !differ_only_where_undecidable(&found, &case(vec![], &[], m())),
+            "missed, not undecidable"
+        );
+        assert!(
+            !differ_only_where_undecidable(
+                &found,
+                &case(vec![f("wrong-line", "dryer", json!({}))], &["washer"], m())
+            ),
+            "a finding of its own"
+        );
+        let other_kind = case(
+            vec![f("declared-ll-seen-ln", "washer", json!({}))],
+            &[],
+            m(),
+        );
+        assert!(
+            !differ_only_where_undecidable(&other_kind, &case(vec![], &["washer"], m())),
+            "not the injected mistake"
+        );
+        let u = || {
+            vec![Mistake {
+                kind: "undeclared-load",
+                subject: "range".into(),
+                load: Some((vec!["L1-L2".into()], vec![1550.0, 2160.0])),
+            }]
+        };
+        let load = |w: f64, on: &str| {
+            f(
+                "undeclared-load",
+                &format!("{w} W on {on}"),
+                json!({ "p_w": w, "wiring": on }),
+            )
+        };
         let two = case(vec![load(1550.0, "L1-L2"), load(2160.0, "L1-L2")], &[], u());
         let one = |und: &[&str]| case(vec![load(2182.0, "L1-L2")], und, u());
         assert!(differ_only_where_undecidable(&two, &one(&["range"])));
         assert!(!differ_only_where_undecidable(&two, &one(&[])));
         let elsewhere = case(vec![load(1550.0, "L1-N"), load(2160.0, "L1-L2")], &[], u());
-        assert!(!differ_only_where_undecidable(&elsewhere, &one(&["range"])), "a load on another connection is not the range");
+        assert!(
+            !differ_only_where_undecidable(&elsewhere, &one(&["range"])),
+            "a load on another connection is not the range"
+        );
     }
 }

@@ -52,21 +52,34 @@ pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficult
     let (mut any, mut multi) = (0u64, 0u64);
     let mut i = 0;
     while i < changes.len() {
-        let j = i + changes[i..].iter().position(|&c| c != changes[i]).unwrap_or(changes.len() - i);
+        let j = i + changes[i..]
+            .iter()
+            .position(|&c| c != changes[i])
+            .unwrap_or(changes.len() - i);
         any += 1;
         if j - i >= 2 {
             multi += 1;
         }
         i = j;
     }
-    let intervals = timelines.first().and_then(|t| t.segments.last()).map(|l| l.end / k).unwrap_or(1).max(1);
+    let intervals = timelines
+        .first()
+        .and_then(|t| t.segments.last())
+        .map(|l| l.end / k)
+        .unwrap_or(1)
+        .max(1);
 
     // Steps of every non-lowest state on each line it draws from.
     let mut steps: Vec<(usize, usize, String, f64, f64)> = Vec::new(); // (line, app, state, ΔP, ΔQ)
     for (ai, a) in s.appliances.iter().enumerate() {
-        let splits: Vec<Vec<(usize, f64, f64)>> = a.states.iter().map(|st| state_split(s, st)).collect();
+        let splits: Vec<Vec<(usize, f64, f64)>> =
+            a.states.iter().map(|st| state_split(s, st)).collect();
         for x in a.lines() {
-            let base = splits.iter().map(|sp| sp[x]).min_by(|u, v| u.1.abs().partial_cmp(&v.1.abs()).unwrap()).unwrap();
+            let base = splits
+                .iter()
+                .map(|sp| sp[x])
+                .min_by(|u, v| u.1.abs().partial_cmp(&v.1.abs()).unwrap())
+                .unwrap();
             for (si, sp) in splits.iter().enumerate() {
                 let (dp, dq) = (sp[x].1 - base.1, sp[x].2 - base.2);
                 if dp.abs() > 1.0 {
@@ -84,7 +97,11 @@ pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficult
             }
             let tol = tolerance(s, u.3.abs().max(v.3.abs()));
             if (u.3 - v.3).abs() <= tol && (u.4 - v.4).abs() <= tol {
-                ambiguous.push(Ambiguous { line: u.0, a: (s.appliances[u.1].id.clone(), u.2.clone(), u.3), b: (s.appliances[v.1].id.clone(), v.2.clone(), v.3) });
+                ambiguous.push(Ambiguous {
+                    line: u.0,
+                    a: (s.appliances[u.1].id.clone(), u.2.clone(), u.3),
+                    b: (s.appliances[v.1].id.clone(), v.2.clone(), v.3),
+                });
             }
         }
     }
@@ -93,7 +110,11 @@ pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficult
         .appliances
         .iter()
         .zip(energy_j)
-        .filter(|(a, _)| a.connections().iter().any(|c| c.is_line_to_line() || *c == Connection::ThreePhase))
+        .filter(|(a, _)| {
+            a.connections()
+                .iter()
+                .any(|c| c.is_line_to_line() || *c == Connection::ThreePhase)
+        })
         .map(|(_, e)| e)
         .sum();
     let unmetered: f64 = energy_j[s.appliances.len()..].iter().sum();
@@ -101,7 +122,11 @@ pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficult
     let share = |x: f64| if total > 0.0 { x / total + 0.0 } else { 0.0 };
     Difficulty {
         switching_share: any as f64 / intervals as f64,
-        coincident_share: if any > 0 { multi as f64 / any as f64 } else { 0.0 },
+        coincident_share: if any > 0 {
+            multi as f64 / any as f64
+        } else {
+            0.0
+        },
         ambiguous,
         line_to_line_share: share(ll),
         unmetered_share: share(unmetered),
@@ -110,7 +135,14 @@ pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficult
 
 impl Difficulty {
     pub fn to_json(&self, s: &Scenario) -> Value {
-        let per_line: serde_json::Map<String, Value> = (0..s.home.supply.lines()).map(|x| (line_name(x), json!(self.ambiguous.iter().filter(|a| a.line == x).count()))).collect();
+        let per_line: serde_json::Map<String, Value> = (0..s.home.supply.lines())
+            .map(|x| {
+                (
+                    line_name(x),
+                    json!(self.ambiguous.iter().filter(|a| a.line == x).count()),
+                )
+            })
+            .collect();
         json!({
             "switching_interval_share": self.switching_share,
             "coincident_switching_share": self.coincident_share,
@@ -128,14 +160,35 @@ impl Difficulty {
 
     pub fn render(&self, s: &Scenario) -> String {
         let mut o = String::from("difficulty:\n");
-        o += &format!("  intervals with a switch        {:>6.2} %  (of all reporting intervals)\n", 100.0 * self.switching_share);
-        o += &format!("  ... with two or more switching {:>6.2} %  (of those)\n", 100.0 * self.coincident_share);
-        o += &format!("  energy drawn line-to-line      {:>6.1} %\n", 100.0 * self.line_to_line_share);
-        o += &format!("  energy unmetered               {:>6.1} %\n", 100.0 * self.unmetered_share);
+        o += &format!(
+            "  intervals with a switch        {:>6.2} %  (of all reporting intervals)\n",
+            100.0 * self.switching_share
+        );
+        o += &format!(
+            "  ... with two or more switching {:>6.2} %  (of those)\n",
+            100.0 * self.coincident_share
+        );
+        o += &format!(
+            "  energy drawn line-to-line      {:>6.1} %\n",
+            100.0 * self.line_to_line_share
+        );
+        o += &format!(
+            "  energy unmetered               {:>6.1} %\n",
+            100.0 * self.unmetered_share
+        );
         for x in 0..s.home.supply.lines() {
             let here: Vec<&Ambiguous> = self.ambiguous.iter().filter(|a| a.line == x).collect();
             o += &format!("  ambiguous state pairs on L{}    {:>6}", x + 1, here.len());
-            let show: Vec<String> = here.iter().take(3).map(|a| format!("{}:{} {:.0} W ~ {}:{} {:.0} W", a.a.0, a.a.1, a.a.2, a.b.0, a.b.1, a.b.2)).collect();
+            let show: Vec<String> = here
+                .iter()
+                .take(3)
+                .map(|a| {
+                    format!(
+                        "{}:{} {:.0} W ~ {}:{} {:.0} W",
+                        a.a.0, a.a.1, a.a.2, a.b.0, a.b.1, a.b.2
+                    )
+                })
+                .collect();
             if !show.is_empty() {
                 o += &format!("  e.g. {}", show.join("; "));
             }

@@ -68,66 +68,125 @@ fn toml_text(n: &Node) -> String {
         Val::Float(f) => format!("{f:?}"),
         Val::Bool(b) => b.to_string(),
         Val::Date(d) => format!("{d:?}"),
-        Val::Arr(a) => format!("[{}]", a.iter().map(toml_text).collect::<Vec<_>>().join(", ")),
-        Val::Table(t) => format!("{{ {} }}", t.iter().map(|e| format!("{} = {}", e.key, toml_text(&e.node))).collect::<Vec<_>>().join(", ")),
+        Val::Arr(a) => format!(
+            "[{}]",
+            a.iter().map(toml_text).collect::<Vec<_>>().join(", ")
+        ),
+        Val::Table(t) => format!(
+            "{{ {} }}",
+            t.iter()
+                .map(|e| format!("{} = {}", e.key, toml_text(&e.node)))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
     }
 }
 
 fn section(n: &Node) -> String {
     match &n.v {
-        Val::Table(t) => t.iter().map(|e| format!("{} = {}\n", e.key, toml_text(&e.node))).collect(),
+        Val::Table(t) => t
+            .iter()
+            .map(|e| format!("{} = {}\n", e.key, toml_text(&e.node)))
+            .collect(),
         _ => String::new(),
     }
 }
 
 /// Reads and checks a population file; every rule is checked before any home is made.
 pub fn load(path: &Path) -> Result<Population, Error> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::file(path, format!("cannot read the population: {e}"), "check the path"))?;
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        Error::file(
+            path,
+            format!("cannot read the population: {e}"),
+            "check the path",
+        )
+    })?;
     let mut sources = Sources::default();
     let file = sources.add(path, text);
     let root = parse_toml(&sources, file)?;
     let ctx = Ctx { sources: &sources };
     let top = ctx.table(&root, "")?;
-    let f = ctx.table(top.req("fleet", "the [fleet] section: label and seed")?, "fleet")?;
+    let f = ctx.table(
+        top.req("fleet", "the [fleet] section: label and seed")?,
+        "fleet",
+    )?;
     let label = f.string("label")?.unwrap_or("fleet").to_string();
-    let seed = f.opt("seed").map(|n| ctx.whole(n, "fleet.seed")).transpose()?.unwrap_or(1);
+    let seed = f
+        .opt("seed")
+        .map(|n| ctx.whole(n, "fleet.seed"))
+        .transpose()?
+        .unwrap_or(1);
     f.finish()?;
-    let run = top.req("run", "the [run] section every home shares: start, length, step")?;
+    let run = top.req(
+        "run",
+        "the [run] section every home shares: start, length, step",
+    )?;
     let run_t = ctx.table(run, "run")?;
     if run_t.has("seed") {
-        return Err(ctx.err(run, "run.seed", "a home's seed comes from the fleet's seed and its index", "set [fleet] seed instead"));
+        return Err(ctx.err(
+            run,
+            "run.seed",
+            "a home's seed comes from the fleet's seed and its index",
+            "set [fleet] seed instead",
+        ));
     }
     let _ = (run_t.opt("start"), run_t.opt("length"), run_t.opt("step"));
     run_t.finish()?;
     let meter_toml = top.opt("meter").map(section).unwrap_or_default();
-    let kinds_node = top.req("kind", "one [[kind]] per home type: name, weight and its [home] keys")?;
+    let kinds_node = top.req(
+        "kind",
+        "one [[kind]] per home type: name, weight and its [home] keys",
+    )?;
     let mut kinds = Vec::new();
     for (i, n) in ctx.array(kinds_node, "kind")?.iter().enumerate() {
         let path = format!("kind[{i}]");
         let t = ctx.table(n, &path)?;
-        let name = t.string("name")?.ok_or_else(|| ctx.err(n, &path, "missing key `name`", "add name = \"house\""))?.to_string();
+        let name = t
+            .string("name")?
+            .ok_or_else(|| ctx.err(n, &path, "missing key `name`", "add name = \"house\""))?
+            .to_string();
         let wn = t.req("weight", "its share of the fleet, e.g. 3")?;
         let weight = ctx.number(wn, &t.path_of("weight"))?;
         if !(weight > 0.0) {
-            return Err(ctx.err(wn, &t.path_of("weight"), "a weight must be greater than zero", "write weight = 1"));
+            return Err(ctx.err(
+                wn,
+                &t.path_of("weight"),
+                "a weight must be greater than zero",
+                "write weight = 1",
+            ));
         }
         let supply_node = t.req("supply", "split-phase, three-phase or single-phase")?;
         let supply = match ctx.string(supply_node, &t.path_of("supply"))? {
             "split-phase" => crate::scenario::SupplyKind::SplitPhase,
             "three-phase" => crate::scenario::SupplyKind::ThreePhase,
             "single-phase" => crate::scenario::SupplyKind::SinglePhase,
-            other => return Err(ctx.err(supply_node, &t.path_of("supply"), format!("unknown supply \"{other}\""), "write \"split-phase\", \"three-phase\" or \"single-phase\"")),
+            other => {
+                return Err(ctx.err(
+                    supply_node,
+                    &t.path_of("supply"),
+                    format!("unknown supply \"{other}\""),
+                    "write \"split-phase\", \"three-phase\" or \"single-phase\"",
+                ))
+            }
         };
         let mut home = String::new();
         if let Val::Table(entries) = &n.v {
-            for e in entries.iter().filter(|e| e.key != "name" && e.key != "weight") {
+            for e in entries
+                .iter()
+                .filter(|e| e.key != "name" && e.key != "weight")
+            {
                 home += &format!("{} = {}\n", e.key, toml_text(&e.node));
             }
         }
         // The other keys are [home] keys; the scenario check of each home reads them.
         t.all_keys_known();
         t.finish()?;
-        kinds.push(HomeKind { name, weight, home_toml: home, supply });
+        kinds.push(HomeKind {
+            name,
+            weight,
+            home_toml: home,
+            supply,
+        });
     }
     let mut owns = Vec::new();
     if let Some(list) = top.opt("owns") {
@@ -136,33 +195,83 @@ pub fn load(path: &Path) -> Result<Population, Error> {
             let t = ctx.table(n, &path)?;
             let tn = t.req("template", "a template of the library, e.g. \"fridge\"")?;
             let template = ctx.string(tn, &t.path_of("template"))?.to_string();
-            let dir = ctx.sources.path(0).parent().map(Path::to_path_buf).unwrap_or_default().join("library");
-            if !dir.join(format!("{template}.toml")).is_file() && library::builtin(&template).is_none() {
-                return Err(ctx.err(tn, &t.path_of("template"), format!("no template named \"{template}\""), format!("templates built in: {}", library::names().join(", "))));
+            let dir = ctx
+                .sources
+                .path(0)
+                .parent()
+                .map(Path::to_path_buf)
+                .unwrap_or_default()
+                .join("library");
+            if !dir.join(format!("{template}.toml")).is_file()
+                && library::builtin(&template).is_none()
+            {
+                return Err(ctx.err(
+                    tn,
+                    &t.path_of("template"),
+                    format!("no template named \"{template}\""),
+                    format!("templates built in: {}", library::names().join(", ")),
+                ));
             }
             let pn = t.req("probability", "the share of homes that own it, 0 … 1")?;
             let probability = ctx.number(pn, &t.path_of("probability"))?;
             if !(0.0..=1.0).contains(&probability) {
-                return Err(ctx.err(pn, &t.path_of("probability"), format!("probability {probability} is outside 0 … 1"), "write a probability such as 0.6"));
+                return Err(ctx.err(
+                    pn,
+                    &t.path_of("probability"),
+                    format!("probability {probability} is outside 0 … 1"),
+                    "write a probability such as 0.6",
+                ));
             }
             let count = match t.opt("count") {
                 None => (1, 1),
                 Some(c) => match &c.v {
                     Val::Int(k) if *k >= 1 => (*k as u32, *k as u32),
                     Val::Arr(a) if a.len() == 2 => match (&a[0].v, &a[1].v) {
-                        (Val::Int(lo), Val::Int(hi)) if *lo >= 1 && hi >= lo && *hi <= 9 => (*lo as u32, *hi as u32),
-                        _ => return Err(ctx.err(c, &t.path_of("count"), "a count range is [least, most], 1 … 9", "write count = [1, 2]")),
+                        (Val::Int(lo), Val::Int(hi)) if *lo >= 1 && hi >= lo && *hi <= 9 => {
+                            (*lo as u32, *hi as u32)
+                        }
+                        _ => {
+                            return Err(ctx.err(
+                                c,
+                                &t.path_of("count"),
+                                "a count range is [least, most], 1 … 9",
+                                "write count = [1, 2]",
+                            ))
+                        }
                     },
-                    _ => return Err(ctx.err(c, &t.path_of("count"), "expected a count or a range [least, most]", "write count = 2 or count = [1, 2]")),
+                    _ => {
+                        return Err(ctx.err(
+                            c,
+                            &t.path_of("count"),
+                            "expected a count or a range [least, most]",
+                            "write count = 2 or count = [1, 2]",
+                        ))
+                    }
                 },
             };
             let kind_names: Vec<String> = match t.opt("kinds") {
                 None => vec![],
-                Some(k) => ctx.array(k, &t.path_of("kinds"))?.iter().map(|x| ctx.string(x, &t.path_of("kinds")).map(str::to_string)).collect::<Result<_, _>>()?,
+                Some(k) => ctx
+                    .array(k, &t.path_of("kinds"))?
+                    .iter()
+                    .map(|x| ctx.string(x, &t.path_of("kinds")).map(str::to_string))
+                    .collect::<Result<_, _>>()?,
             };
             for k in &kind_names {
                 if !kinds.iter().any(|x| &x.name == k) {
-                    return Err(ctx.err(t.opt("kinds").unwrap(), &t.path_of("kinds"), format!("no home kind named \"{k}\""), format!("kinds: {}", kinds.iter().map(|x| x.name.as_str()).collect::<Vec<_>>().join(", "))));
+                    return Err(ctx.err(
+                        t.opt("kinds").unwrap(),
+                        &t.path_of("kinds"),
+                        format!("no home kind named \"{k}\""),
+                        format!(
+                            "kinds: {}",
+                            kinds
+                                .iter()
+                                .map(|x| x.name.as_str())
+                                .collect::<Vec<_>>()
+                                .join(", ")
+                        ),
+                    ));
                 }
             }
             let mut wiring = Vec::new();
@@ -170,7 +279,14 @@ pub fn load(path: &Path) -> Result<Population, Error> {
                 let wt = ctx.table(w, &t.path_of("wiring"))?;
                 wt.all_keys_known();
                 for e in wt.entries() {
-                    let kind = kinds.iter().find(|x| x.name == e.key).ok_or_else(|| ctx.err(&e.node, &format!("{}.{}", t.path_of("wiring"), e.key), format!("no home kind named \"{}\"", e.key), "name a [[kind]]"))?;
+                    let kind = kinds.iter().find(|x| x.name == e.key).ok_or_else(|| {
+                        ctx.err(
+                            &e.node,
+                            &format!("{}.{}", t.path_of("wiring"), e.key),
+                            format!("no home kind named \"{}\"", e.key),
+                            "name a [[kind]]",
+                        )
+                    })?;
                     let mut choices = Vec::new();
                     for c in ctx.array(&e.node, &e.key)? {
                         let p = format!("{}.{}", t.path_of("wiring"), e.key);
@@ -183,15 +299,34 @@ pub fn load(path: &Path) -> Result<Population, Error> {
             }
             let shift_h = t.non_negative("shift", Kind::Duration)?.unwrap_or(0.0) / 3600.0;
             if shift_h > 12.0 {
-                return Err(ctx.err(t.opt("shift").unwrap(), &t.path_of("shift"), "habits shifted by more than 12 hours", "write e.g. shift = \"1 h\""));
+                return Err(ctx.err(
+                    t.opt("shift").unwrap(),
+                    &t.path_of("shift"),
+                    "habits shifted by more than 12 hours",
+                    "write e.g. shift = \"1 h\"",
+                ));
             }
             let power = t.non_negative("power", Kind::Fraction)?.unwrap_or(0.0);
             let time = t.non_negative("time", Kind::Fraction)?.unwrap_or(0.0);
             if power > 0.5 || time > 0.5 {
-                return Err(ctx.err(n, &path, "variation above ±50 % of a template", "write e.g. power = \"10 %\", time = \"15 %\""));
+                return Err(ctx.err(
+                    n,
+                    &path,
+                    "variation above ±50 % of a template",
+                    "write e.g. power = \"10 %\", time = \"15 %\"",
+                ));
             }
             t.finish()?;
-            owns.push(Ownership { template, probability, count, kinds: kind_names, wiring, power, time, shift_h });
+            owns.push(Ownership {
+                template,
+                probability,
+                count,
+                kinds: kind_names,
+                wiring,
+                power,
+                time,
+                shift_h,
+            });
         }
     }
     let mut occupancy = Vec::new();
@@ -203,7 +338,12 @@ pub fn load(path: &Path) -> Result<Population, Error> {
             let wn = t.req("weight", "its share of the homes, e.g. 2")?;
             let weight = ctx.number(wn, &t.path_of("weight"))?;
             if !(weight > 0.0) {
-                return Err(ctx.err(wn, &t.path_of("weight"), "a weight must be greater than zero", "write weight = 1"));
+                return Err(ctx.err(
+                    wn,
+                    &t.path_of("weight"),
+                    "a weight must be greater than zero",
+                    "write weight = 1",
+                ));
             }
             let away = t.string("away")?.map(str::to_string);
             t.finish()?;
@@ -212,13 +352,25 @@ pub fn load(path: &Path) -> Result<Population, Error> {
     }
     let run_toml = section(run);
     top.finish()?;
-    let pop = Population { path: path.to_path_buf(), label, seed, run_toml, meter_toml, kinds, owns, occupancy };
+    let pop = Population {
+        path: path.to_path_buf(),
+        label,
+        seed,
+        run_toml,
+        meter_toml,
+        kinds,
+        owns,
+        occupancy,
+    };
     // A population that cannot produce a valid home fails here, before any
     // home is written: home 0 of every kind with every template it may own.
     for (k, kind) in pop.kinds.iter().enumerate() {
         let text = pop.scenario_text_all(k);
         crate::scenario::load_str(&pop.home_path(0), text).map_err(|mut e| {
-            e.message = format!("home kind \"{}\" cannot host the population's appliances: {}", kind.name, e.message);
+            e.message = format!(
+                "home kind \"{}\" cannot host the population's appliances: {}",
+                kind.name, e.message
+            );
             e
         })?;
     }
@@ -227,24 +379,42 @@ pub fn load(path: &Path) -> Result<Population, Error> {
 
 impl Population {
     fn home_path(&self, i: u64) -> PathBuf {
-        let stem = self.path.file_stem().map(|s| s.to_string_lossy().to_string()).unwrap_or_default();
+        let stem = self
+            .path
+            .file_stem()
+            .map(|s| s.to_string_lossy().to_string())
+            .unwrap_or_default();
         self.path.with_file_name(format!("{stem}.home-{i:05}.toml"))
     }
 
     fn header(&self, kind: &HomeKind, away: Option<&str>, i: u64, seed: u64) -> String {
         let away = away.map(|a| format!("away = {a:?}\n")).unwrap_or_default();
-        format!("[home]\nlabel = {:?}\n{}{away}\n[run]\n{}seed = {seed}\n\n[meter]\n{}\n", format!("{} home {i:05}", self.label), kind.home_toml, self.run_toml, self.meter_toml)
+        format!(
+            "[home]\nlabel = {:?}\n{}{away}\n[run]\n{}seed = {seed}\n\n[meter]\n{}\n",
+            format!("{} home {i:05}", self.label),
+            kind.home_toml,
+            self.run_toml,
+            self.meter_toml
+        )
     }
 
     /// Every template a kind may own, once, unvaried (the up-front check).
     fn scenario_text_all(&self, k: usize) -> String {
         let kind = &self.kinds[k];
-        let mut t = self.header(kind, self.occupancy.iter().find_map(|o| o.away.as_deref()), 0, 1);
+        let mut t = self.header(
+            kind,
+            self.occupancy.iter().find_map(|o| o.away.as_deref()),
+            0,
+            1,
+        );
         for (j, o) in self.owns.iter().enumerate() {
             if !o.kinds.is_empty() && !o.kinds.contains(&kind.name) {
                 continue;
             }
-            t += &format!("[[appliance]]\nid = \"a{j}\"\ntemplate = {:?}\n", o.template);
+            t += &format!(
+                "[[appliance]]\nid = \"a{j}\"\ntemplate = {:?}\n",
+                o.template
+            );
             if let Some((_, w)) = o.wiring.iter().find(|(n, _)| *n == kind.name) {
                 t += &format!("wiring = {:?}\n", w[0]);
             }
@@ -286,10 +456,20 @@ impl Population {
                 if !allowed || u >= o.probability || c >= count {
                     continue;
                 }
-                let app_id = if c == 0 { o.template.clone() } else { format!("{}_{}", o.template, c + 1) };
-                t += &format!("\n[[appliance]]\nid = {app_id:?}\ntemplate = {:?}\n", o.template);
+                let app_id = if c == 0 {
+                    o.template.clone()
+                } else {
+                    format!("{}_{}", o.template, c + 1)
+                };
+                t += &format!(
+                    "\n[[appliance]]\nid = {app_id:?}\ntemplate = {:?}\n",
+                    o.template
+                );
                 if let Some((_, choices)) = o.wiring.iter().find(|(n, _)| *n == kind.name) {
-                    t += &format!("wiring = {:?}\n", choices[((w * choices.len() as f64) as usize).min(choices.len() - 1)]);
+                    t += &format!(
+                        "wiring = {:?}\n",
+                        choices[((w * choices.len() as f64) as usize).min(choices.len() - 1)]
+                    );
                 }
                 if o.power > 0.0 {
                     t += &format!("power_scale = {:.4}\n", 1.0 + o.power * ps);
@@ -309,8 +489,14 @@ impl Population {
         }
         let mut s = crate::scenario::load_str(&self.home_path(i), t.clone())?;
         s.name = format!("home={i:05}");
-        let occ_name = occ.map(|o| format!(", occupancy \"{}\"", o.name)).unwrap_or_default();
-        s.source_toml = Some(format!("# Home {i} of the population {} (kind \"{}\"{occ_name}), resolved by loadloom.\n{t}", self.path.display(), kind.name));
+        let occ_name = occ
+            .map(|o| format!(", occupancy \"{}\"", o.name))
+            .unwrap_or_default();
+        s.source_toml = Some(format!(
+            "# Home {i} of the population {} (kind \"{}\"{occ_name}), resolved by loadloom.\n{t}",
+            self.path.display(),
+            kind.name
+        ));
         Ok((s, kind.name.clone()))
     }
 }
@@ -327,12 +513,25 @@ impl Shard {
     /// SLURM_ARRAY_TASK_COUNT, SLURM_ARRAY_TASK_MIN) or a Kubernetes Indexed
     /// Job (JOB_COMPLETION_INDEX, with the count in LOADLOOM_SHARDS).
     pub fn parse(text: &str, env: &dyn Fn(&str) -> Option<String>) -> Result<Shard, String> {
-        let num = |s: &str| s.trim().parse::<u64>().map_err(|_| format!("\"{s}\" is not a whole number"));
+        let num = |s: &str| {
+            s.trim()
+                .parse::<u64>()
+                .map_err(|_| format!("\"{s}\" is not a whole number"))
+        };
         let (i, n) = if text == "auto" {
             if let Some(id) = env("SLURM_ARRAY_TASK_ID") {
-                let min = env("SLURM_ARRAY_TASK_MIN").map(|m| num(&m)).transpose()?.unwrap_or(0);
-                let count = env("SLURM_ARRAY_TASK_COUNT").ok_or("SLURM_ARRAY_TASK_ID is set but SLURM_ARRAY_TASK_COUNT is not")?;
-                (num(&id)?.checked_sub(min).ok_or("SLURM_ARRAY_TASK_ID is below SLURM_ARRAY_TASK_MIN")?, num(&count)?)
+                let min = env("SLURM_ARRAY_TASK_MIN")
+                    .map(|m| num(&m))
+                    .transpose()?
+                    .unwrap_or(0);
+                let count = env("SLURM_ARRAY_TASK_COUNT")
+                    .ok_or("SLURM_ARRAY_TASK_ID is set but SLURM_ARRAY_TASK_COUNT is not")?;
+                (
+                    num(&id)?
+                        .checked_sub(min)
+                        .ok_or("SLURM_ARRAY_TASK_ID is below SLURM_ARRAY_TASK_MIN")?,
+                    num(&count)?,
+                )
             } else if let Some(id) = env("JOB_COMPLETION_INDEX") {
                 let count = env("LOADLOOM_SHARDS").ok_or("JOB_COMPLETION_INDEX is set: give the number of shards in LOADLOOM_SHARDS (the Job's completions)")?;
                 (num(&id)?, num(&count)?)
@@ -340,11 +539,15 @@ impl Shard {
                 return Err("--shard auto found neither a Slurm array (SLURM_ARRAY_TASK_ID) nor a Kubernetes Indexed Job (JOB_COMPLETION_INDEX)".into());
             }
         } else {
-            let (a, b) = text.split_once('/').ok_or_else(|| format!("--shard {text}: expected I/N, e.g. 0/4, or auto"))?;
+            let (a, b) = text
+                .split_once('/')
+                .ok_or_else(|| format!("--shard {text}: expected I/N, e.g. 0/4, or auto"))?;
             (num(a)?, num(b)?)
         };
         if n == 0 || i >= n {
-            return Err(format!("shard {i} of {n} does not exist: I runs from 0 to N − 1"));
+            return Err(format!(
+                "shard {i} of {n} does not exist: I runs from 0 to N − 1"
+            ));
         }
         Ok(Shard { index: i, count: n })
     }
@@ -367,7 +570,14 @@ pub struct FleetRun {
 
 /// Makes the homes of `shard` among `homes`, `jobs` at a time; skips homes
 /// already complete; writes the index when every home of the fleet is there.
-pub fn run(pop: &Population, homes: u64, out: &Path, jobs: usize, shard: Shard, progress: &(dyn Fn(u64, u64) + Sync)) -> Result<FleetRun, String> {
+pub fn run(
+    pop: &Population,
+    homes: u64,
+    out: &Path,
+    jobs: usize,
+    shard: Shard,
+    progress: &(dyn Fn(u64, u64) + Sync),
+) -> Result<FleetRun, String> {
     std::fs::create_dir_all(out).map_err(|e| format!("cannot create {}: {e}", out.display()))?;
     // Partial folders of an interrupted run are redone.
     if let Ok(rd) = std::fs::read_dir(out) {
@@ -378,8 +588,14 @@ pub fn run(pop: &Population, homes: u64, out: &Path, jobs: usize, shard: Shard, 
             }
         }
     }
-    let mine: Vec<u64> = (0..homes).filter(|i| i % shard.count == shard.index).collect();
-    let todo: Vec<u64> = mine.iter().copied().filter(|&i| !is_complete(out, i)).collect();
+    let mine: Vec<u64> = (0..homes)
+        .filter(|i| i % shard.count == shard.index)
+        .collect();
+    let todo: Vec<u64> = mine
+        .iter()
+        .copied()
+        .filter(|&i| !is_complete(out, i))
+        .collect();
     let skipped = (mine.len() - todo.len()) as u64;
     let next = std::sync::atomic::AtomicUsize::new(0);
     let done = std::sync::atomic::AtomicU64::new(0);
@@ -392,12 +608,19 @@ pub fn run(pop: &Population, homes: u64, out: &Path, jobs: usize, shard: Shard, 
                     break;
                 }
                 let i = todo[k];
-                let r = pop.home(i).map_err(|e| e.to_string()).and_then(|(s, _)| crate::dataset::write(&s, out, crate::dataset::Format::Parquet, &mut |_| {}).map(|_| ()).map_err(|e| format!("home {i}: {e}")));
+                let r = pop.home(i).map_err(|e| e.to_string()).and_then(|(s, _)| {
+                    crate::dataset::write(&s, out, crate::dataset::Format::Parquet, &mut |_| {})
+                        .map(|_| ())
+                        .map_err(|e| format!("home {i}: {e}"))
+                });
                 if let Err(e) = r {
                     *failure.lock().unwrap() = Some(e);
                     break;
                 }
-                progress(done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1, todo.len() as u64);
+                progress(
+                    done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1,
+                    todo.len() as u64,
+                );
             });
         }
     });
@@ -408,7 +631,11 @@ pub fn run(pop: &Population, homes: u64, out: &Path, jobs: usize, shard: Shard, 
     if all {
         write_index(pop, homes, out)?;
     }
-    Ok(FleetRun { made: todo.len() as u64, skipped, index_written: all })
+    Ok(FleetRun {
+        made: todo.len() as u64,
+        skipped,
+        index_written: all,
+    })
 }
 
 /// `homes.parquet` (one row per home, from the homes' manifests) and `fleet.json`.
@@ -416,12 +643,31 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
     use arrow_array::{ArrayRef, Float64Array, Int64Array, RecordBatch, StringArray};
     use arrow_schema::{DataType, Field, Schema};
     use std::sync::Arc;
-    let (mut ids, mut kinds, mut supplies, mut apps, mut counts, mut kwh, mut rows) = (vec![], vec![], vec![], vec![], vec![], vec![], vec![]);
+    let (mut ids, mut kinds, mut supplies, mut apps, mut counts, mut kwh, mut rows) =
+        (vec![], vec![], vec![], vec![], vec![], vec![], vec![]);
     let mut owned: std::collections::BTreeMap<String, u64> = Default::default();
     for i in 0..homes {
-        let m: Value = serde_json::from_str(&std::fs::read_to_string(home_dir(out, i).join("manifest.json")).map_err(|e| e.to_string())?).map_err(|e| e.to_string())?;
-        let list: Vec<String> = m["appliances"].as_array().map(|a| a.iter().filter_map(|x| x["id"].as_str().map(str::to_string)).collect()).unwrap_or_default();
-        let mut templates: Vec<String> = m["appliances"].as_array().map(|a| a.iter().filter_map(|x| x["template"].as_str().map(str::to_string)).collect()).unwrap_or_default();
+        let m: Value = serde_json::from_str(
+            &std::fs::read_to_string(home_dir(out, i).join("manifest.json"))
+                .map_err(|e| e.to_string())?,
+        )
+        .map_err(|e| e.to_string())?;
+        let list: Vec<String> = m["appliances"]
+            .as_array()
+            .map(|a| {
+                a.iter()
+                    .filter_map(|x| x["id"].as_str().map(str::to_string))
+                    .collect()
+            })
+            .unwrap_or_default();
+        let mut templates: Vec<String> = m["appliances"]
+            .as_array()
+            .map(|a| {
+                a.iter()
+                    .filter_map(|x| x["template"].as_str().map(str::to_string))
+                    .collect()
+            })
+            .unwrap_or_default();
         templates.dedup();
         for t in templates {
             *owned.entry(t).or_default() += 1;
@@ -455,11 +701,25 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
     ];
     let batch = RecordBatch::try_new(schema.clone(), cols).map_err(|e| e.to_string())?;
     let tmp = out.join(".homes.parquet.partial");
-    let mut w = parquet::arrow::ArrowWriter::try_new(std::fs::File::create(&tmp).map_err(|e| e.to_string())?, schema, None).map_err(|e| e.to_string())?;
+    let mut w = parquet::arrow::ArrowWriter::try_new(
+        std::fs::File::create(&tmp).map_err(|e| e.to_string())?,
+        schema,
+        None,
+    )
+    .map_err(|e| e.to_string())?;
     w.write(&batch).map_err(|e| e.to_string())?;
     w.close().map_err(|e| e.to_string())?;
     std::fs::rename(&tmp, out.join("homes.parquet")).map_err(|e| e.to_string())?;
-    let kind_counts: serde_json::Map<String, Value> = pop.kinds.iter().map(|k| (k.name.clone(), json!(kinds.iter().filter(|x| **x == k.name).count()))).collect();
+    let kind_counts: serde_json::Map<String, Value> = pop
+        .kinds
+        .iter()
+        .map(|k| {
+            (
+                k.name.clone(),
+                json!(kinds.iter().filter(|x| **x == k.name).count()),
+            )
+        })
+        .collect();
     let summary = json!({
         "format": "loadloom-fleet/1",
         "population": pop.path.display().to_string(),
@@ -471,5 +731,9 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
         "energy_kwh": kwh.iter().sum::<f64>(),
         "layout": "home=NNNNN/{meters,truth,events}.parquet, manifest.json, scenario.toml (Hive-partitioned by home)",
     });
-    std::fs::write(out.join("fleet.json"), serde_json::to_string_pretty(&summary).expect("JSON") + "\n").map_err(|e| e.to_string())
+    std::fs::write(
+        out.join("fleet.json"),
+        serde_json::to_string_pretty(&summary).expect("JSON") + "\n",
+    )
+    .map_err(|e| e.to_string())
 }

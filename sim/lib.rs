@@ -6,17 +6,17 @@
 //! (phasors per step) → [`meter`] (readings per reporting interval) →
 //! [`dataset`] (files).
 
-pub mod scenario;
-pub mod units;
-pub mod behaviour;
-pub mod rng;
-pub mod electrical;
-pub mod meter;
-pub mod simulate;
-pub mod dataset;
-pub mod summary;
-pub mod roundtrip;
-pub mod waveform;
-pub mod difficulty;
-pub mod fleet;
 pub mod audit;
+pub mod behaviour;
+pub mod dataset;
+pub mod difficulty;
+pub mod electrical;
+pub mod fleet;
+pub mod meter;
+pub mod rng;
+pub mod roundtrip;
+pub mod scenario;
+pub mod simulate;
+pub mod summary;
+pub mod units;
+pub mod waveform;

@@ -9,7 +9,11 @@ use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 #[derive(Parser)]
-#[command(name = "loadloom", version, about = "Household load data per conductor, with exact per-appliance truth")]
+#[command(
+    name = "loadloom",
+    version,
+    about = "Household load data per conductor, with exact per-appliance truth"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -191,9 +195,7 @@ enum Command {
         markdown: bool,
     },
     /// Print shell completions for SHELL (bash, zsh, fish, elvish, powershell).
-    Completions {
-        shell: clap_complete::Shell,
-    },
+    Completions { shell: clap_complete::Shell },
     /// Print the man page (roff), generated from the same definition of the flags.
     Man,
     /// Draw a dataset: per conductor its measured power and each appliance's share.
@@ -256,7 +258,9 @@ fn apply_length(s: &mut Scenario, text: &str) -> Result<(), String> {
     }
     let per = s.meter.interval_s;
     if ((len / per).round() - len / per).abs() > 1e-6 {
-        return Err(format!("{text} is not a whole number of reporting intervals ({per} s)"));
+        return Err(format!(
+            "{text} is not a whole number of reporting intervals ({per} s)"
+        ));
     }
     s.run.length_s = len;
     Ok(())
@@ -270,19 +274,27 @@ fn apply_waveforms(s: &mut Scenario, windows: &[String], rate: Option<&str>) -> 
             Some(i) => (r[..i].trim(), r[i..].trim()),
             None => (r.trim(), ""),
         };
-        let hz = parse_quantity(&format!("{num} {unit}"), Kind::Frequency).map_err(|m| format!("--waveform-rate {r}: {m}"))?;
-        scenario::decode::check_wave_rate(hz, &s.run, &s.home).map_err(|m| format!("--waveform-rate {r}: {m}"))?;
+        let hz = parse_quantity(&format!("{num} {unit}"), Kind::Frequency)
+            .map_err(|m| format!("--waveform-rate {r}: {m}"))?;
+        scenario::decode::check_wave_rate(hz, &s.run, &s.home)
+            .map_err(|m| format!("--waveform-rate {r}: {m}"))?;
         s.waveforms.rate_hz = hz;
     }
     for w in &s.waveforms.windows {
         if w.offset_s + w.length_s > s.run.length_s + 1e-9 {
-            return Err(format!("the scenario's waveform window {} + {} s lies outside the run of {} s", w.start_local, w.length_s, s.run.length_s));
+            return Err(format!(
+                "the scenario's waveform window {} + {} s lies outside the run of {} s",
+                w.start_local, w.length_s, s.run.length_s
+            ));
         }
     }
     for text in windows {
-        let (start, len) = text.split_once('/').ok_or_else(|| format!("--waveform {text}: expected START/LENGTH"))?;
+        let (start, len) = text
+            .split_once('/')
+            .ok_or_else(|| format!("--waveform {text}: expected START/LENGTH"))?;
         let len_s = cli_duration(len).map_err(|m| format!("--waveform {text}: {m}"))?;
-        let w = scenario::decode::place_window(start, len_s, &s.run, &s.home).map_err(|m| format!("--waveform {text}: {m}"))?;
+        let w = scenario::decode::place_window(start, len_s, &s.run, &s.home)
+            .map_err(|m| format!("--waveform {text}: {m}"))?;
         s.waveforms.windows.push(w);
     }
     Ok(())
@@ -290,7 +302,14 @@ fn apply_waveforms(s: &mut Scenario, windows: &[String], rate: Option<&str>) -> 
 
 /// Prints a report in the form asked for: JSON, Markdown or the terminal table.
 /// `loadloom audit --matrix`.
-fn audit_matrix(dir: &Path, days: f64, runs: usize, variants: &[String], json: bool, markdown: bool) -> ExitCode {
+fn audit_matrix(
+    dir: &Path,
+    days: f64,
+    runs: usize,
+    variants: &[String],
+    json: bool,
+    markdown: bool,
+) -> ExitCode {
     use loadloom::audit::{run_matrix, score, MatrixOptions, VARIANTS};
     let keys = ["1s", "10s", "noise", "dropouts", "background"];
     let mut chosen = Vec::new();
@@ -300,7 +319,10 @@ fn audit_matrix(dir: &Path, days: f64, runs: usize, variants: &[String], json: b
         } else if let Some(i) = keys.iter().position(|k| k == v) {
             chosen.push(i);
         } else {
-            eprintln!("error: --variant {v}: unknown variant\n  = help: write one of {}, or all", keys.join(", "));
+            eprintln!(
+                "error: --variant {v}: unknown variant\n  = help: write one of {}, or all",
+                keys.join(", ")
+            );
             return ExitCode::from(BAD_INPUT);
         }
     }
@@ -309,7 +331,10 @@ fn audit_matrix(dir: &Path, days: f64, runs: usize, variants: &[String], json: b
         return ExitCode::from(BAD_INPUT);
     }
     let mut files: Vec<PathBuf> = match std::fs::read_dir(dir) {
-        Ok(rd) => rd.filter_map(|e| e.ok().map(|e| e.path())).filter(|p| p.extension().is_some_and(|x| x == "toml")).collect(),
+        Ok(rd) => rd
+            .filter_map(|e| e.ok().map(|e| e.path()))
+            .filter(|p| p.extension().is_some_and(|x| x == "toml"))
+            .collect(),
         Err(e) => {
             eprintln!("error: cannot read {}: {e}\n  = help: run from the project folder or give --scenarios DIR", dir.display());
             return ExitCode::from(BAD_INPUT);
@@ -324,23 +349,42 @@ fn audit_matrix(dir: &Path, days: f64, runs: usize, variants: &[String], json: b
         }
     }
     if homes.is_empty() {
-        eprintln!("error: {} holds no scenario (*.toml)\n  = help: give --scenarios DIR", dir.display());
+        eprintln!(
+            "error: {} holds no scenario (*.toml)\n  = help: give --scenarios DIR",
+            dir.display()
+        );
         return ExitCode::from(BAD_INPUT);
     }
-    let opts = MatrixOptions { days, clean_runs: runs };
+    let opts = MatrixOptions {
+        days,
+        clean_runs: runs,
+    };
     let mut out_json = Vec::new();
     let mut out_text = String::new();
     let mut base: Option<Vec<loadloom::audit::Case>> = None;
     for &i in &chosen {
         let v = &VARIANTS[i];
-        let cases = run_matrix(&homes, &opts, v, &mut |m| eprint!("\r\x1b[2K{}: {m}", v.name));
+        let cases = run_matrix(&homes, &opts, v, &mut |m| {
+            eprint!("\r\x1b[2K{}: {m}", v.name)
+        });
         eprint!("\r\x1b[2K");
         let sc = score(&cases);
-        let same = base.as_ref().map(|b| b.iter().zip(&cases).filter(|(a, c)| loadloom::audit::same_findings(&a.found, &c.found)).count());
-        let agree = base.as_ref().map(|b| b.iter().zip(&cases).filter(|(a, c)| loadloom::audit::differ_only_where_undecidable(a, c)).count());
+        let same = base.as_ref().map(|b| {
+            b.iter()
+                .zip(&cases)
+                .filter(|(a, c)| loadloom::audit::same_findings(&a.found, &c.found))
+                .count()
+        });
+        let agree = base.as_ref().map(|b| {
+            b.iter()
+                .zip(&cases)
+                .filter(|(a, c)| loadloom::audit::differ_only_where_undecidable(a, c))
+                .count()
+        });
         let mut j = sc.to_json(v.name);
         j["cases_with_findings_as_first_variant"] = serde_json::json!(same);
-        j["cases_differing_from_first_variant_only_where_undecidable"] = serde_json::json!(agree.zip(same).map(|(a, s)| a - s));
+        j["cases_differing_from_first_variant_only_where_undecidable"] =
+            serde_json::json!(agree.zip(same).map(|(a, s)| a - s));
         j["case_list"] = serde_json::json!(cases.iter().map(|c| serde_json::json!({
             "scenario": c.scenario, "case": c.name,
             "injected": c.mistakes.iter().map(|m| format!("{} {}", m.kind, m.subject)).collect::<Vec<_>>(),
@@ -359,7 +403,10 @@ fn audit_matrix(dir: &Path, days: f64, runs: usize, variants: &[String], json: b
         }
     }
     if json {
-        println!("{}", serde_json::to_string_pretty(&serde_json::Value::Array(out_json)).expect("JSON"));
+        println!(
+            "{}",
+            serde_json::to_string_pretty(&serde_json::Value::Array(out_json)).expect("JSON")
+        );
     } else {
         let _ = markdown;
         print!("{out_text}");
@@ -367,9 +414,18 @@ fn audit_matrix(dir: &Path, days: f64, runs: usize, variants: &[String], json: b
     ExitCode::SUCCESS
 }
 
-fn print_report(json: bool, markdown: bool, as_json: impl FnOnce() -> serde_json::Value, as_markdown: impl FnOnce() -> String, as_text: impl FnOnce() -> String) {
+fn print_report(
+    json: bool,
+    markdown: bool,
+    as_json: impl FnOnce() -> serde_json::Value,
+    as_markdown: impl FnOnce() -> String,
+    as_text: impl FnOnce() -> String,
+) {
     if json {
-        println!("{}", serde_json::to_string_pretty(&as_json()).expect("JSON"));
+        println!(
+            "{}",
+            serde_json::to_string_pretty(&as_json()).expect("JSON")
+        );
     } else if markdown {
         print!("{}", as_markdown());
     } else {
@@ -379,11 +435,17 @@ fn print_report(json: bool, markdown: bool, as_json: impl FnOnce() -> serde_json
 
 /// `fridge=20` or `fridge=20W`.
 fn parse_threshold(t: &str) -> Result<(String, f64), String> {
-    let (id, w) = t.split_once('=').ok_or_else(|| format!("--threshold {t}: expected ID=WATTS, e.g. fridge=20"))?;
+    let (id, w) = t
+        .split_once('=')
+        .ok_or_else(|| format!("--threshold {t}: expected ID=WATTS, e.g. fridge=20"))?;
     let w = w.trim().trim_end_matches('W').trim();
-    let v: f64 = w.parse().map_err(|_| format!("--threshold {t}: \"{w}\" is not a number of watts"))?;
+    let v: f64 = w
+        .parse()
+        .map_err(|_| format!("--threshold {t}: \"{w}\" is not a number of watts"))?;
     if !(v >= 0.0 && v.is_finite()) {
-        return Err(format!("--threshold {t}: the threshold must be zero or more"));
+        return Err(format!(
+            "--threshold {t}: the threshold must be zero or more"
+        ));
     }
     Ok((id.to_string(), v))
 }
@@ -398,7 +460,17 @@ fn main() -> ExitCode {
     }
     let cli = Cli::parse();
     match cli.command {
-        Command::Audit { dataset, declared, matrix, scenarios, days, runs, variant, json, markdown } => {
+        Command::Audit {
+            dataset,
+            declared,
+            matrix,
+            scenarios,
+            days,
+            runs,
+            variant,
+            json,
+            markdown,
+        } => {
             if matrix {
                 return audit_matrix(&scenarios, days, runs, &variant, json, markdown);
             }
@@ -420,7 +492,13 @@ fn main() -> ExitCode {
                 }
             }
         }
-        Command::Fleet { population, homes, out, jobs, shard } => {
+        Command::Fleet {
+            population,
+            homes,
+            out,
+            jobs,
+            shard,
+        } => {
             let pop = match loadloom::fleet::load(&population) {
                 Ok(p) => p,
                 Err(e) => {
@@ -432,7 +510,10 @@ fn main() -> ExitCode {
                 eprintln!("error: --homes {homes}: a fleet has 1 … 99 999 homes");
                 return ExitCode::from(BAD_INPUT);
             }
-            let shard = match shard.as_deref().map(|t| loadloom::fleet::Shard::parse(t, &|k| std::env::var(k).ok())) {
+            let shard = match shard
+                .as_deref()
+                .map(|t| loadloom::fleet::Shard::parse(t, &|k| std::env::var(k).ok()))
+            {
                 None => loadloom::fleet::Shard { index: 0, count: 1 },
                 Some(Ok(s)) => s,
                 Some(Err(m)) => {
@@ -440,7 +521,11 @@ fn main() -> ExitCode {
                     return ExitCode::from(BAD_INPUT);
                 }
             };
-            let jobs = jobs.unwrap_or_else(|| std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1));
+            let jobs = jobs.unwrap_or_else(|| {
+                std::thread::available_parallelism()
+                    .map(|n| n.get())
+                    .unwrap_or(1)
+            });
             let tty = std::io::stderr().is_terminal();
             let started = std::time::Instant::now();
             let last = std::sync::atomic::AtomicU64::new(0);
@@ -449,12 +534,18 @@ fn main() -> ExitCode {
                 let rate = done as f64 / el.max(1e-9);
                 let left = (total - done) as f64 / rate.max(1e-9);
                 if tty {
-                    eprint!("\r  homes {done}/{total}  {:.2} homes/s  ~{:.0} s left   ", rate, left);
+                    eprint!(
+                        "\r  homes {done}/{total}  {:.2} homes/s  ~{:.0} s left   ",
+                        rate, left
+                    );
                 } else {
                     // Plain lines when piped: one per tenth of the way.
                     let tenth = done * 10 / total.max(1);
                     if last.fetch_max(tenth, std::sync::atomic::Ordering::Relaxed) < tenth {
-                        eprintln!("homes {done}/{total} ({:.2} homes/s, ~{:.0} s left)", rate, left);
+                        eprintln!(
+                            "homes {done}/{total} ({:.2} homes/s, ~{:.0} s left)",
+                            rate, left
+                        );
                     }
                 }
             };
@@ -471,7 +562,11 @@ fn main() -> ExitCode {
                         shard.index,
                         shard.count,
                         started.elapsed().as_secs_f64(),
-                        if r.index_written { "; homes.parquet and fleet.json written" } else { "; the index waits for the other shards" }
+                        if r.index_written {
+                            "; homes.parquet and fleet.json written"
+                        } else {
+                            "; the index waits for the other shards"
+                        }
                     );
                     ExitCode::SUCCESS
                 }
@@ -496,16 +591,39 @@ fn main() -> ExitCode {
                 }
             }
         }
-        Command::Plot { dataset, from, to, out, size } => {
-            let dims = size.split_once('x').and_then(|(w, h)| Some((w.parse::<u32>().ok()?, h.parse::<u32>().ok()?)));
-            let Some((w, h)) = dims.filter(|(w, h)| (300..=10000).contains(w) && (200..=10000).contains(h)) else {
+        Command::Plot {
+            dataset,
+            from,
+            to,
+            out,
+            size,
+        } => {
+            let dims = size
+                .split_once('x')
+                .and_then(|(w, h)| Some((w.parse::<u32>().ok()?, h.parse::<u32>().ok()?)));
+            let Some((w, h)) =
+                dims.filter(|(w, h)| (300..=10000).contains(w) && (200..=10000).contains(h))
+            else {
                 eprintln!("error: --size {size}: expected WIDTHxHEIGHT in pixels, e.g. 1400x900 (300 … 10000 by 200 … 10000)");
                 return ExitCode::from(BAD_INPUT);
             };
-            let opts = solver_check::plot::PlotOptions { from, to, width: w, height: h };
+            let opts = solver_check::plot::PlotOptions {
+                from,
+                to,
+                width: w,
+                height: h,
+            };
             match solver_check::plot::plot(&dataset, &out, &opts) {
                 Ok(p) => {
-                    println!("wrote {} ({}x{} px, {} to {}, {} appliances in the legend)", out.display(), w, h, p.from, p.to, p.legend.len());
+                    println!(
+                        "wrote {} ({}x{} px, {} to {}, {} appliances in the legend)",
+                        out.display(),
+                        w,
+                        h,
+                        p.from,
+                        p.to,
+                        p.legend.len()
+                    );
                     ExitCode::SUCCESS
                 }
                 Err(e) => {
@@ -514,7 +632,20 @@ fn main() -> ExitCode {
                 }
             }
         }
-        Command::Roundtrip { scenario, solver, train, test, reveal, timeout, out, seed, estimate_format, json, markdown, suite } => {
+        Command::Roundtrip {
+            scenario,
+            solver,
+            train,
+            test,
+            reveal,
+            timeout,
+            out,
+            seed,
+            estimate_format,
+            json,
+            markdown,
+            suite,
+        } => {
             let bad = |m: String| {
                 eprintln!("error: {m}");
                 ExitCode::from(BAD_INPUT)
@@ -526,11 +657,20 @@ fn main() -> ExitCode {
             // The suite takes every scenario of a folder (default scenarios/).
             let paths: Vec<PathBuf> = match (&scenario, suite) {
                 (Some(p), false) => vec![p.clone()],
-                (None, false) => return bad("give a SCENARIO, or --suite to run the demo scenarios".into()),
+                (None, false) => {
+                    return bad("give a SCENARIO, or --suite to run the demo scenarios".into())
+                }
                 (p, true) => {
                     let p = p.clone().unwrap_or_else(|| PathBuf::from("scenarios"));
                     if p.is_dir() {
-                        let mut v: Vec<PathBuf> = std::fs::read_dir(&p).map(|r| r.filter_map(|e| e.ok()).map(|e| e.path()).filter(|x| x.extension().is_some_and(|e| e == "toml")).collect()).unwrap_or_default();
+                        let mut v: Vec<PathBuf> = std::fs::read_dir(&p)
+                            .map(|r| {
+                                r.filter_map(|e| e.ok())
+                                    .map(|e| e.path())
+                                    .filter(|x| x.extension().is_some_and(|e| e == "toml"))
+                                    .collect()
+                            })
+                            .unwrap_or_default();
                         v.sort();
                         v
                     } else {
@@ -559,7 +699,11 @@ fn main() -> ExitCode {
             };
             for s in &scenarios {
                 // Every rung's interval (up to 1 min) must divide both periods.
-                let per = if suite { 60.0f64.max(s.meter.interval_s) } else { s.meter.interval_s };
+                let per = if suite {
+                    60.0f64.max(s.meter.interval_s)
+                } else {
+                    s.meter.interval_s
+                };
                 for (name, v) in [("train", train_s), ("test", test_s)] {
                     if ((v / per).round() - v / per).abs() > 1e-6 {
                         return bad(format!("--{name}: must be a whole number of reporting intervals ({per} s) for {}", s.name));
@@ -593,7 +737,13 @@ fn main() -> ExitCode {
                 }
                 return match rows {
                     Ok(rows) => {
-                        print_report(json, markdown, || loadloom::roundtrip::render_json(&rows), || loadloom::roundtrip::render_markdown(&rows), || loadloom::roundtrip::render_text(&rows));
+                        print_report(
+                            json,
+                            markdown,
+                            || loadloom::roundtrip::render_json(&rows),
+                            || loadloom::roundtrip::render_markdown(&rows),
+                            || loadloom::roundtrip::render_text(&rows),
+                        );
                         if rows.iter().any(|r| r.result.is_err()) {
                             ExitCode::from(FAILED)
                         } else {
@@ -622,8 +772,21 @@ fn main() -> ExitCode {
                         v["solver"] = serde_json::json!({ "command": o.solver, "seconds": o.seconds, "task": o.task_dir, "log": o.log });
                         println!("{}", serde_json::to_string_pretty(&v).expect("JSON"));
                     } else {
-                        println!("solver {} finished in {:.1} s (task {}, log {})", o.solver, o.seconds, o.task_dir.display(), o.log.display());
-                        print!("{}", if markdown { r.to_markdown() } else { r.to_text() });
+                        println!(
+                            "solver {} finished in {:.1} s (task {}, log {})",
+                            o.solver,
+                            o.seconds,
+                            o.task_dir.display(),
+                            o.log.display()
+                        );
+                        print!(
+                            "{}",
+                            if markdown {
+                                r.to_markdown()
+                            } else {
+                                r.to_text()
+                            }
+                        );
                     }
                     ExitCode::SUCCESS
                 }
@@ -633,7 +796,18 @@ fn main() -> ExitCode {
                 }
             }
         }
-        Command::Score { truth, estimate, json, markdown, partial, threshold, against, resamples, bootstrap_seed, plot } => {
+        Command::Score {
+            truth,
+            estimate,
+            json,
+            markdown,
+            partial,
+            threshold,
+            against,
+            resamples,
+            bootstrap_seed,
+            plot,
+        } => {
             let mut thresholds = Vec::new();
             for t in &threshold {
                 match parse_threshold(t) {
@@ -644,9 +818,14 @@ fn main() -> ExitCode {
                     }
                 }
             }
-            let opts = solver_check::score::Options { partial, thresholds, window: None };
+            let opts = solver_check::score::Options {
+                partial,
+                thresholds,
+                window: None,
+            };
             if let Some(other) = against {
-                let scored = solver_check::score::score(&truth, &estimate, &opts).and_then(|a| Ok((a, solver_check::score::score(&truth, &other, &opts)?)));
+                let scored = solver_check::score::score(&truth, &estimate, &opts)
+                    .and_then(|a| Ok((a, solver_check::score::score(&truth, &other, &opts)?)));
                 let (a, b) = match scored {
                     Ok(x) => x,
                     Err(e) => {
@@ -654,13 +833,28 @@ fn main() -> ExitCode {
                         return ExitCode::from(BAD_INPUT);
                     }
                 };
-                return match solver_check::compare::compare(&a, &b, resamples.max(1), bootstrap_seed) {
+                return match solver_check::compare::compare(
+                    &a,
+                    &b,
+                    resamples.max(1),
+                    bootstrap_seed,
+                ) {
                     Ok(c) => {
-                        print_report(json, markdown, || c.to_json(), || c.to_markdown(), || c.to_text());
+                        print_report(
+                            json,
+                            markdown,
+                            || c.to_json(),
+                            || c.to_markdown(),
+                            || c.to_text(),
+                        );
                         ExitCode::SUCCESS
                     }
                     Err(m) => {
-                        eprintln!("error: {m}\n  --> {} and {}", estimate.display(), other.display());
+                        eprintln!(
+                            "error: {m}\n  --> {} and {}",
+                            estimate.display(),
+                            other.display()
+                        );
                         ExitCode::from(BAD_INPUT)
                     }
                 };
@@ -673,7 +867,13 @@ fn main() -> ExitCode {
                             return ExitCode::from(FAILED);
                         }
                     }
-                    print_report(json, markdown, || r.to_json(), || r.to_markdown(), || r.to_text());
+                    print_report(
+                        json,
+                        markdown,
+                        || r.to_json(),
+                        || r.to_markdown(),
+                        || r.to_text(),
+                    );
                     ExitCode::SUCCESS
                 }
                 Err(e) => {
@@ -682,7 +882,11 @@ fn main() -> ExitCode {
                 }
             }
         }
-        Command::Validate { scenario, json, quiet } => {
+        Command::Validate {
+            scenario,
+            json,
+            quiet,
+        } => {
             let s = match load(&scenario) {
                 Ok(s) => s,
                 Err(c) => return c,
@@ -692,13 +896,27 @@ fn main() -> ExitCode {
             }
             let f = loadloom::summary::figures(&s);
             if json {
-                println!("{}", serde_json::to_string_pretty(&loadloom::summary::to_json(&s, &f)).expect("JSON"));
+                println!(
+                    "{}",
+                    serde_json::to_string_pretty(&loadloom::summary::to_json(&s, &f))
+                        .expect("JSON")
+                );
             } else {
                 print!("{}", loadloom::summary::render(&s, &f));
             }
             ExitCode::SUCCESS
         }
-        Command::Run { scenario, out, seed, length, format, waveform, waveform_rate, json, quiet } => {
+        Command::Run {
+            scenario,
+            out,
+            seed,
+            length,
+            format,
+            waveform,
+            waveform_rate,
+            json,
+            quiet,
+        } => {
             let mut s = match load(&scenario) {
                 Ok(s) => s,
                 Err(c) => return c,
@@ -726,7 +944,12 @@ fn main() -> ExitCode {
                 if tty {
                     let el = started.elapsed().as_secs_f64();
                     let left = if f > 0.0 { el * (1.0 - f) / f } else { 0.0 };
-                    eprint!("\r  simulating {:5.1}%  {:6.1} s elapsed, ~{:.0} s left   ", 100.0 * f, el, left);
+                    eprint!(
+                        "\r  simulating {:5.1}%  {:6.1} s elapsed, ~{:.0} s left   ",
+                        100.0 * f,
+                        el,
+                        left
+                    );
                 }
             };
             match dataset::write(&s, &out, format, &mut progress) {
@@ -743,11 +966,28 @@ fn main() -> ExitCode {
                         println!("{}", serde_json::to_string_pretty(&serde_json::json!({ "dataset": w.dir, "rows": w.rows, "events": w.outcome.events.len(), "seconds": secs, "appliances": apps })).expect("JSON"));
                         return ExitCode::SUCCESS;
                     }
-                    println!("wrote {} ({} rows, {} events) in {:.1} s", w.dir.display(), w.rows, w.outcome.events.len(), secs);
-                    let width = s.appliances.iter().map(|a| a.id.len()).max().unwrap_or(9).max(9);
+                    println!(
+                        "wrote {} ({} rows, {} events) in {:.1} s",
+                        w.dir.display(),
+                        w.rows,
+                        w.outcome.events.len(),
+                        secs
+                    );
+                    let width = s
+                        .appliances
+                        .iter()
+                        .map(|a| a.id.len())
+                        .max()
+                        .unwrap_or(9)
+                        .max(9);
                     println!("{:<width$}  {:>10}  {:>9}", "appliance", "kWh", "peak W");
                     for (k, a) in s.appliances.iter().enumerate() {
-                        println!("{:<width$}  {:>10.3}  {:>9.0}", a.id, w.outcome.summary.app_energy_j[k] / 3.6e6, w.outcome.summary.app_peak_w[k]);
+                        println!(
+                            "{:<width$}  {:>10.3}  {:>9.0}",
+                            a.id,
+                            w.outcome.summary.app_energy_j[k] / 3.6e6,
+                            w.outcome.summary.app_peak_w[k]
+                        );
                     }
                     ExitCode::SUCCESS
                 }

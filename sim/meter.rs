@@ -48,7 +48,13 @@ impl Readings {
         self.n_i.len()
     }
     pub fn clear(&mut self) {
-        for v in self.line_p.iter_mut().chain(&mut self.line_q).chain(&mut self.line_v).chain(&mut self.line_i) {
+        for v in self
+            .line_p
+            .iter_mut()
+            .chain(&mut self.line_q)
+            .chain(&mut self.line_v)
+            .chain(&mut self.line_i)
+        {
             v.clear();
         }
         self.energy.iter_mut().for_each(Vec::clear);
@@ -64,7 +70,9 @@ impl Readings {
 /// makes the expected lost share equal `rate`; gap lengths follow the
 /// declared distribution, rounded to whole intervals (at least one).
 pub fn dropout_gaps(faults: &Faults, interval_s: f64, rows: u64, seed: u64) -> Vec<(u64, u64)> {
-    let Some(d) = &faults.dropouts else { return Vec::new() };
+    let Some(d) = &faults.dropouts else {
+        return Vec::new();
+    };
     if d.rate <= 0.0 {
         return Vec::new();
     }
@@ -79,7 +87,8 @@ pub fn dropout_gaps(faults: &Faults, interval_s: f64, rows: u64, seed: u64) -> V
         if start >= rows {
             break;
         }
-        let len = (((sample(&d.length, &mut rng) / interval_s).round() as u64).max(1)).min(rows - start);
+        let len =
+            (((sample(&d.length, &mut rng) / interval_s).round() as u64).max(1)).min(rows - start);
         gaps.push((start, len));
         t = (start + len) as f64 + (mean_up_rows * -(1.0 - rng.random::<f64>()).ln()).max(1.0);
     }
@@ -110,12 +119,28 @@ pub struct MeterModel {
 }
 
 impl MeterModel {
-    pub fn new(settings: &Meter, faults: &Faults, lines: usize, nominal_v: f64, seed: u64, rows: u64) -> Self {
-        let noise = (0..lines).map(|x| stream(seed, "meter", &format!("noise-l{}", x + 1))).collect();
-        let mut ct = [(0, C64::new(1.0, 0.0)), (1, C64::new(1.0, 0.0)), (2, C64::new(1.0, 0.0))];
+    pub fn new(
+        settings: &Meter,
+        faults: &Faults,
+        lines: usize,
+        nominal_v: f64,
+        seed: u64,
+        rows: u64,
+    ) -> Self {
+        let noise = (0..lines)
+            .map(|x| stream(seed, "meter", &format!("noise-l{}", x + 1)))
+            .collect();
+        let mut ct = [
+            (0, C64::new(1.0, 0.0)),
+            (1, C64::new(1.0, 0.0)),
+            (2, C64::new(1.0, 0.0)),
+        ];
         for f in &faults.ct {
             let sign = if f.reversed { -1.0 } else { 1.0 };
-            ct[f.line] = (f.on.unwrap_or(f.line), C64::polar(sign * (1.0 + f.gain), f.phase_deg));
+            ct[f.line] = (
+                f.on.unwrap_or(f.line),
+                C64::polar(sign * (1.0 + f.gain), f.phase_deg),
+            );
         }
         MeterModel {
             lines,
@@ -201,7 +226,11 @@ impl MeterModel {
         let n = (self.n2 / k).sqrt();
         let n = self.noisy(n, floor_i, &mut noise[0]).abs();
         self.noise = noise;
-        let mut energy = [self.register_j[0] / 3600.0, self.register_j[1] / 3600.0, self.register_j[2] / 3600.0];
+        let mut energy = [
+            self.register_j[0] / 3600.0,
+            self.register_j[1] / 3600.0,
+            self.register_j[2] / 3600.0,
+        ];
         if let Some(x) = self.faults.no_ct {
             vals[x] = [f64::NAN, f64::NAN, vals[x][2], f64::NAN];
             energy[x] = f64::NAN;
@@ -211,10 +240,15 @@ impl MeterModel {
             energy.swap(a, b);
         }
         // A dropout loses the whole interval.
-        while self.gap < self.gaps.len() && self.gaps[self.gap].0 + self.gaps[self.gap].1 <= self.row {
+        while self.gap < self.gaps.len()
+            && self.gaps[self.gap].0 + self.gaps[self.gap].1 <= self.row
+        {
             self.gap += 1;
         }
-        let lost = self.gaps.get(self.gap).is_some_and(|&(a, l)| self.row >= a && self.row < a + l);
+        let lost = self
+            .gaps
+            .get(self.gap)
+            .is_some_and(|&(a, l)| self.row >= a && self.row < a + l);
         let (mut tp, mut tq) = (0.0, 0.0);
         for x in 0..self.lines {
             let [p, q, v, i] = if lost { [f64::NAN; 4] } else { vals[x] };

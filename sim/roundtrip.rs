@@ -24,9 +24,19 @@ pub struct Plan {
 pub fn once(s: &Scenario, work: &Path, p: &Plan) -> Result<Outcome, String> {
     let mut s = s.clone();
     s.run.length_s = p.train_s + p.test_s;
-    let written = dataset::write(&s, work, Format::Parquet, &mut |_| {}).map_err(|e| format!("writing the dataset under {} failed: {e}", work.display()))?;
+    let written = dataset::write(&s, work, Format::Parquet, &mut |_| {})
+        .map_err(|e| format!("writing the dataset under {} failed: {e}", work.display()))?;
     let train_rows = (p.train_s / s.meter.interval_s).round() as usize;
-    solver_check::roundtrip::run(&written.dir, work, train_rows, p.reveal, &p.solver, p.limit, p.estimate_name).map_err(|e| format!("preparing the task under {} failed: {e}", work.display()))
+    solver_check::roundtrip::run(
+        &written.dir,
+        work,
+        train_rows,
+        p.reveal,
+        &p.solver,
+        p.limit,
+        p.estimate_name,
+    )
+    .map_err(|e| format!("preparing the task under {} failed: {e}", work.display()))
 }
 
 /// A rung of the difficulty ladder: a name and what it changes.
@@ -39,7 +49,9 @@ pub struct Rung {
 /// of the home's energy: modulating, constant-power, a reflected walk within
 /// [50 %, 100 %] of their rating (mean 75 %), updated every 5 min.
 pub fn add_background(s: &mut Scenario, share: f64) {
-    use crate::scenario::{connection_voltage, Appliance, Behaviour, Connection, Draw, LoadKind, State, NEUTRAL};
+    use crate::scenario::{
+        connection_voltage, Appliance, Behaviour, Connection, Draw, LoadKind, State, NEUTRAL,
+    };
     let f = crate::summary::figures(s);
     let mean_w: f64 = f.apps.iter().map(|a| a.kwh_per_day).sum::<f64>() * 1000.0 / 24.0;
     let target_w = mean_w * share / (1.0 - share);
@@ -48,14 +60,39 @@ pub fn add_background(s: &mut Scenario, share: f64) {
         let wiring = Connection::Pair(x as u8, NEUTRAL);
         let rated = target_w / n as f64 / 0.75;
         let k = LoadKind::Electronic;
-        let draw = Draw { wiring, p_w: rated, q_var: 0.2 * rated, load: k, zip_p: k.default_zip_p(), zip_q: k.default_zip_q(), nominal_v: connection_voltage(&s.home, wiring), harmonics: k.default_harmonics() };
+        let draw = Draw {
+            wiring,
+            p_w: rated,
+            q_var: 0.2 * rated,
+            load: k,
+            zip_p: k.default_zip_p(),
+            zip_q: k.default_zip_q(),
+            nominal_v: connection_voltage(&s.home, wiring),
+            harmonics: k.default_harmonics(),
+        };
         s.unmetered.push(Appliance {
             id: format!("background_l{}", x + 1),
             label: "unlisted background loads".into(),
             template: None,
             wiring,
-            behaviour: Behaviour::Modulating { min: 0.5, wander: 0.05, every_s: 300.0, session: None },
-            states: vec![State { name: "off".into(), draws: vec![], inrush: None }, State { name: "on".into(), draws: vec![draw], inrush: None }],
+            behaviour: Behaviour::Modulating {
+                min: 0.5,
+                wander: 0.05,
+                every_s: 300.0,
+                session: None,
+            },
+            states: vec![
+                State {
+                    name: "off".into(),
+                    draws: vec![],
+                    inrush: None,
+                },
+                State {
+                    name: "on".into(),
+                    draws: vec![draw],
+                    inrush: None,
+                },
+            ],
             on_threshold_w: 0.0,
         });
     }
@@ -64,7 +101,10 @@ pub fn add_background(s: &mut Scenario, share: f64) {
 /// The ladder: the scenario as written, then more meter noise, a larger
 /// unmetered background load, then coarser reporting intervals.
 pub const LADDER: [Rung; 6] = [
-    Rung { name: "as written", apply: |_| {} },
+    Rung {
+        name: "as written",
+        apply: |_| {},
+    },
     Rung {
         name: "noise 1 % + 5 W",
         apply: |s| {
@@ -79,9 +119,18 @@ pub const LADDER: [Rung; 6] = [
             s.meter.noise_floor_w = 15.0;
         },
     },
-    Rung { name: "unmetered 20 %", apply: |s| add_background(s, 0.2) },
-    Rung { name: "interval 10 s", apply: |s| s.meter.interval_s = s.meter.interval_s.max(10.0) },
-    Rung { name: "interval 1 min", apply: |s| s.meter.interval_s = s.meter.interval_s.max(60.0) },
+    Rung {
+        name: "unmetered 20 %",
+        apply: |s| add_background(s, 0.2),
+    },
+    Rung {
+        name: "interval 10 s",
+        apply: |s| s.meter.interval_s = s.meter.interval_s.max(10.0),
+    },
+    Rung {
+        name: "interval 1 min",
+        apply: |s| s.meter.interval_s = s.meter.interval_s.max(60.0),
+    },
 ];
 
 pub struct SuiteRow {
@@ -91,23 +140,49 @@ pub struct SuiteRow {
 }
 
 /// Runs the plan on every scenario at every rung of the ladder.
-pub fn suite(scenarios: &[Scenario], out: &Path, p: &Plan, progress: &mut dyn FnMut(&str, &str)) -> Result<Vec<SuiteRow>, String> {
+pub fn suite(
+    scenarios: &[Scenario],
+    out: &Path,
+    p: &Plan,
+    progress: &mut dyn FnMut(&str, &str),
+) -> Result<Vec<SuiteRow>, String> {
     let mut rows = Vec::new();
     for s in scenarios {
         for rung in &LADDER {
             progress(&s.name, rung.name);
             let mut v = s.clone();
             (rung.apply)(&mut v);
-            let slug: String = rung.name.chars().map(|c| if c.is_ascii_alphanumeric() { c } else { '-' }).collect::<String>().split('-').filter(|p| !p.is_empty()).collect::<Vec<_>>().join("-");
+            let slug: String = rung
+                .name
+                .chars()
+                .map(|c| if c.is_ascii_alphanumeric() { c } else { '-' })
+                .collect::<String>()
+                .split('-')
+                .filter(|p| !p.is_empty())
+                .collect::<Vec<_>>()
+                .join("-");
             let work = out.join(format!("{}-suite", v.name)).join(slug);
             let o = once(&v, &work, p)?;
-            rows.push(SuiteRow { scenario: s.name.clone(), rung: rung.name, result: o.result.map_err(|f| f.to_string()) });
+            rows.push(SuiteRow {
+                scenario: s.name.clone(),
+                rung: rung.name,
+                result: o.result.map_err(|f| f.to_string()),
+            });
         }
     }
     Ok(rows)
 }
 
-const HEAD: [&str; 8] = ["scenario", "rung", "MAE W", "NDE", "F1", "accuracy", "match", "accuracy vs as written"];
+const HEAD: [&str; 8] = [
+    "scenario",
+    "rung",
+    "MAE W",
+    "NDE",
+    "F1",
+    "accuracy",
+    "match",
+    "accuracy vs as written",
+];
 
 fn cells(rows: &[SuiteRow]) -> Vec<Vec<String>> {
     let f = |x: Option<f64>| x.map(|v| format!("{v:.3}")).unwrap_or_else(|| "–".into());
@@ -123,17 +198,56 @@ fn cells(rows: &[SuiteRow]) -> Vec<Vec<String>> {
                     (Some(a), Some(b)) if r.rung != LADDER[0].name => format!("{:+.3}", a - b),
                     _ => String::new(),
                 };
-                vec![r.scenario.clone(), r.rung.to_string(), format!("{:.1}", o.mae_w), f(o.nde), format!("{:.3}", o.f1), f(o.accuracy), f(o.match_rate), delta]
+                vec![
+                    r.scenario.clone(),
+                    r.rung.to_string(),
+                    format!("{:.1}", o.mae_w),
+                    f(o.nde),
+                    format!("{:.3}", o.f1),
+                    f(o.accuracy),
+                    f(o.match_rate),
+                    delta,
+                ]
             }
-            Err(e) => vec![r.scenario.clone(), r.rung.to_string(), "failed".into(), String::new(), String::new(), String::new(), String::new(), e.lines().next().unwrap_or("").to_string()],
+            Err(e) => vec![
+                r.scenario.clone(),
+                r.rung.to_string(),
+                "failed".into(),
+                String::new(),
+                String::new(),
+                String::new(),
+                String::new(),
+                e.lines().next().unwrap_or("").to_string(),
+            ],
         })
         .collect()
 }
 
 pub fn render_text(rows: &[SuiteRow]) -> String {
     let c = cells(rows);
-    let w: Vec<usize> = (0..HEAD.len()).map(|k| c.iter().map(|r| r[k].chars().count()).chain([HEAD[k].len()]).max().unwrap()).collect();
-    let line = |r: &[String]| r.iter().enumerate().map(|(k, s)| if k < 2 { format!("{s:<w$}", w = w[k]) } else { format!("{s:>w$}", w = w[k]) }).collect::<Vec<_>>().join("  ") + "\n";
+    let w: Vec<usize> = (0..HEAD.len())
+        .map(|k| {
+            c.iter()
+                .map(|r| r[k].chars().count())
+                .chain([HEAD[k].len()])
+                .max()
+                .unwrap()
+        })
+        .collect();
+    let line = |r: &[String]| {
+        r.iter()
+            .enumerate()
+            .map(|(k, s)| {
+                if k < 2 {
+                    format!("{s:<w$}", w = w[k])
+                } else {
+                    format!("{s:>w$}", w = w[k])
+                }
+            })
+            .collect::<Vec<_>>()
+            .join("  ")
+            + "\n"
+    };
     let mut o = line(&HEAD.map(String::from));
     for r in &c {
         o += &line(r);
@@ -142,7 +256,14 @@ pub fn render_text(rows: &[SuiteRow]) -> String {
 }
 
 pub fn render_markdown(rows: &[SuiteRow]) -> String {
-    let mut o = format!("| {} |\n|{}\n", HEAD.join(" | "), HEAD.iter().enumerate().map(|(k, _)| if k < 2 { "---|" } else { "---:|" }).collect::<String>());
+    let mut o = format!(
+        "| {} |\n|{}\n",
+        HEAD.join(" | "),
+        HEAD.iter()
+            .enumerate()
+            .map(|(k, _)| if k < 2 { "---|" } else { "---:|" })
+            .collect::<String>()
+    );
     for r in cells(rows) {
         o += &format!("| {} |\n", r.join(" | "));
     }

@@ -27,12 +27,18 @@ impl Truth {
             app_p: vec![Vec::new(); n],
             app_q: vec![Vec::new(); n],
             app_state: vec![Vec::new(); n],
-            app_line_p: net.apps[..n].iter().map(|a| vec![Vec::new(); a.lines.len()]).collect(),
+            app_line_p: net.apps[..n]
+                .iter()
+                .map(|a| vec![Vec::new(); a.lines.len()])
+                .collect(),
             unmetered_p: Vec::new(),
         }
     }
     fn clear(&mut self) {
-        self.app_p.iter_mut().chain(&mut self.app_q).for_each(Vec::clear);
+        self.app_p
+            .iter_mut()
+            .chain(&mut self.app_q)
+            .for_each(Vec::clear);
         self.app_state.iter_mut().for_each(Vec::clear);
         self.app_line_p.iter_mut().flatten().for_each(Vec::clear);
         self.unmetered_p.clear();
@@ -84,38 +90,82 @@ fn inrush_mult(peak: f64, tau: f64, k: u64, dt: f64) -> f64 {
 
 /// Runs the simulation over `intervals` reporting intervals, handing each
 /// chunk of at most `chunk_rows` rows to `sink`.
-pub fn simulate<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_rows: usize, sink: impl FnMut(&Chunk) -> Result<(), E>) -> Result<Outcome, E> {
+pub fn simulate<E>(
+    s: &Scenario,
+    timelines: &[Timeline],
+    intervals: u64,
+    chunk_rows: usize,
+    sink: impl FnMut(&Chunk) -> Result<(), E>,
+) -> Result<Outcome, E> {
     simulate_with(s, timelines, intervals, chunk_rows, sink, None)
 }
 
 /// [`simulate`], also writing the waveform windows to `recorder`.
-pub fn simulate_with<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, chunk_rows: usize, mut sink: impl FnMut(&Chunk) -> Result<(), E>, mut recorder: Option<&mut crate::waveform::Recorder>) -> Result<Outcome, E> {
+pub fn simulate_with<E>(
+    s: &Scenario,
+    timelines: &[Timeline],
+    intervals: u64,
+    chunk_rows: usize,
+    mut sink: impl FnMut(&Chunk) -> Result<(), E>,
+    mut recorder: Option<&mut crate::waveform::Recorder>,
+) -> Result<Outcome, E> {
     let net = Network::new(s);
     let n_apps = net.apps.len();
     let lines = net.lines;
     let dt = s.run.step_s;
     let k_int = s.steps_per_interval();
     let mut source = SourceVoltage::new(&s.home.source, dt, s.run.seed);
-    let mut meter = MeterModel::new(&s.meter, &s.faults, lines, s.home.voltage_v, s.run.seed, intervals);
+    let mut meter = MeterModel::new(
+        &s.meter,
+        &s.faults,
+        lines,
+        s.home.voltage_v,
+        s.run.seed,
+        intervals,
+    );
     let metered = s.appliances.len();
-    let mut chunk = Chunk { first_row: 0, readings: Readings::new(lines), truth: Truth::new(&net, metered) };
+    let mut chunk = Chunk {
+        first_row: 0,
+        readings: Readings::new(lines),
+        truth: Truth::new(&net, metered),
+    };
     let mut out = StepOut::new(n_apps);
 
     let mut pos = vec![0usize; n_apps];
-    let mut state: Vec<usize> = timelines.iter().map(|t| t.segments[0].state as usize).collect();
-    let mut scale: Vec<f64> = timelines.iter().map(|t| t.segments[0].scale as f64).collect();
+    let mut state: Vec<usize> = timelines
+        .iter()
+        .map(|t| t.segments[0].state as usize)
+        .collect();
+    let mut scale: Vec<f64> = timelines
+        .iter()
+        .map(|t| t.segments[0].scale as f64)
+        .collect();
     // Inrush: the step the current state was entered, if it has inrush.
-    let mut inrush_from: Vec<Option<u64>> = (0..n_apps).map(|k| net.apps[k].inrush[state[k]].map(|_| 0)).collect();
+    let mut inrush_from: Vec<Option<u64>> = (0..n_apps)
+        .map(|k| net.apps[k].inrush[state[k]].map(|_| 0))
+        .collect();
     let mut active: Vec<(usize, f64)> = vec![(0, 1.0); n_apps];
     let mut events: Vec<Event> = Vec::new();
-    let mut open: Vec<Event> = (0..n_apps).map(|k| Event { app: k, state: state[k] as u16, start_step: 0, end_step: 0, energy_j: 0.0 }).collect();
+    let mut open: Vec<Event> = (0..n_apps)
+        .map(|k| Event {
+            app: k,
+            state: state[k] as u16,
+            start_step: 0,
+            end_step: 0,
+            energy_j: 0.0,
+        })
+        .collect();
 
     let mut sum_p = vec![0.0f64; n_apps];
     let mut sum_q = vec![0.0f64; n_apps];
     let mut sum_lp: Vec<[f64; 3]> = vec![[0.0; 3]; n_apps];
     let max_states = net.apps.iter().map(|a| a.states.len()).max().unwrap_or(1);
     let mut occupancy = vec![0u32; n_apps * max_states];
-    let mut summary = Summary { app_energy_j: vec![0.0; n_apps], app_peak_w: vec![0.0; n_apps], ..Default::default() };
+    let mut summary = Summary {
+        app_energy_j: vec![0.0; n_apps],
+        app_peak_w: vec![0.0; n_apps],
+        ..Default::default()
+    };
     let mut i_prev = [C64::ZERO; 3];
     let mut t_prev = crate::electrical::Terminals::default();
     let mut e = [C64::ZERO; 3];
@@ -138,7 +188,13 @@ pub fn simulate_with<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, ch
                     let mut ev = open[k].clone();
                     ev.end_step = step;
                     events.push(ev);
-                    open[k] = Event { app: k, state: seg.state, start_step: step, end_step: 0, energy_j: 0.0 };
+                    open[k] = Event {
+                        app: k,
+                        state: seg.state,
+                        start_step: step,
+                        end_step: 0,
+                        energy_j: 0.0,
+                    };
                     state[k] = seg.state as usize;
                     inrush_from[k] = net.apps[k].inrush[state[k]].map(|_| step);
                 }
@@ -174,7 +230,11 @@ pub fn simulate_with<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, ch
         }
         if let Some(rec) = recorder.as_deref_mut() {
             if rec.wants(step) {
-                let ir: Vec<_> = (0..n_apps).map(|k| inrush_from[k].and_then(|f| net.apps[k].inrush[state[k]].map(|i| (f, i)))).collect();
+                let ir: Vec<_> = (0..n_apps)
+                    .map(|k| {
+                        inrush_from[k].and_then(|f| net.apps[k].inrush[state[k]].map(|i| (f, i)))
+                    })
+                    .collect();
                 rec.record(step, &net, &t_prev, &state, &scale, &ir);
             }
         }
@@ -206,7 +266,9 @@ pub fn simulate_with<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, ch
                 sum_p[k] = 0.0;
                 sum_q[k] = 0.0;
                 sum_lp[k] = [0.0; 3];
-                occupancy[k * max_states..(k + 1) * max_states].iter_mut().for_each(|c| *c = 0);
+                occupancy[k * max_states..(k + 1) * max_states]
+                    .iter_mut()
+                    .for_each(|c| *c = 0);
             }
             for k in 0..metered {
                 tr.app_p[k].push((sum_p[k] / kf) as f32);
@@ -217,7 +279,9 @@ pub fn simulate_with<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, ch
                 // The state held for the greater part of the interval.
                 let st = if k_int > 1 {
                     let occ = &mut occupancy[k * max_states..(k + 1) * max_states];
-                    let best = (0..max_states).max_by_key(|&j| (occ[j], std::cmp::Reverse(j))).unwrap_or(0);
+                    let best = (0..max_states)
+                        .max_by_key(|&j| (occ[j], std::cmp::Reverse(j)))
+                        .unwrap_or(0);
                     occ.iter_mut().for_each(|c| *c = 0);
                     best
                 } else {
@@ -231,7 +295,8 @@ pub fn simulate_with<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, ch
             tr.unmetered_p.push(unmetered as f32);
             let r = chunk.readings.rows() - 1;
             for x in 0..lines {
-                summary.line_peak_a[x] = summary.line_peak_a[x].max(chunk.readings.line_i[x][r] as f64);
+                summary.line_peak_a[x] =
+                    summary.line_peak_a[x].max(chunk.readings.line_i[x][r] as f64);
             }
             summary.neutral_peak_a = summary.neutral_peak_a.max(chunk.readings.n_i[r] as f64);
             if chunk.readings.rows() == chunk_rows || step + 1 == total_steps {
@@ -249,7 +314,11 @@ pub fn simulate_with<E>(s: &Scenario, timelines: &[Timeline], intervals: u64, ch
     events.retain(|e| e.app < metered);
     events.sort_by_key(|e| (e.app, e.start_step));
     summary.line_energy_j = meter.line_energy_j;
-    Ok(Outcome { events, summary, dropouts: meter.gaps().to_vec() })
+    Ok(Outcome {
+        events,
+        summary,
+        dropouts: meter.gaps().to_vec(),
+    })
 }
 
 #[cfg(test)]
@@ -260,7 +329,9 @@ mod tests {
     fn inrush_step_means_integrate_to_the_exponential() {
         // ∫0^∞ (peak − 1)·e^(−t/τ) dt = (peak − 1)·τ.
         let (peak, tau, dt) = (6.0, 1.5, 1.0);
-        let extra: f64 = (0..200).map(|k| (inrush_mult(peak, tau, k, dt) - 1.0) * dt).sum();
+        let extra: f64 = (0..200)
+            .map(|k| (inrush_mult(peak, tau, k, dt) - 1.0) * dt)
+            .sum();
         assert!((extra - (peak - 1.0) * tau).abs() < 1e-9);
     }
 }

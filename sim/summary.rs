@@ -54,9 +54,18 @@ pub fn figures(s: &Scenario) -> Figures {
         }
         energy_j.push(e);
         apps.push(AppFigures {
-            id: if k < s.appliances.len() { a.id.clone() } else { format!("{} (unmetered)", a.id) },
+            id: if k < s.appliances.len() {
+                a.id.clone()
+            } else {
+                format!("{} (unmetered)", a.id)
+            },
             behaviour: a.behaviour.name(),
-            wiring: a.connections().iter().map(|c| c.name()).collect::<Vec<_>>().join("+"),
+            wiring: a
+                .connections()
+                .iter()
+                .map(|c| c.name())
+                .collect::<Vec<_>>()
+                .join("+"),
             kwh_per_day: e / 3.6e6 / days,
             duty: on as f64 / steps as f64,
             peak_w: peak,
@@ -80,7 +89,12 @@ pub fn figures(s: &Scenario) -> Figures {
         days,
         difficulty: crate::difficulty::card(s, &tl, &energy_j),
         apps,
-        lines: (0..n).map(|x| LineFigures { name: line_name(x).to_uppercase(), peak_a: peak_a[x] }).collect(),
+        lines: (0..n)
+            .map(|x| LineFigures {
+                name: line_name(x).to_uppercase(),
+                peak_a: peak_a[x],
+            })
+            .collect(),
         service_a: s.home.service_a,
     }
 }
@@ -88,7 +102,11 @@ pub fn figures(s: &Scenario) -> Figures {
 /// The validate report as aligned text.
 pub fn render(s: &Scenario, f: &Figures) -> String {
     let mut o = String::new();
-    let label = if s.home.label.is_empty() { s.name.clone() } else { format!("{} ({})", s.home.label, s.name) };
+    let label = if s.home.label.is_empty() {
+        s.name.clone()
+    } else {
+        format!("{} ({})", s.home.label, s.name)
+    };
     o += &format!(
         "{label}: {} supply, {} V line-to-neutral, {} Hz, {} A service, {} appliances\n",
         s.home.supply.name(),
@@ -107,18 +125,49 @@ pub fn render(s: &Scenario, f: &Figures) -> String {
         s.run.seed
     );
     let w = f.apps.iter().map(|a| a.id.len()).max().unwrap_or(2).max(9);
-    let ww = f.apps.iter().map(|a| a.wiring.len()).max().unwrap_or(6).max(6);
-    o += &format!("{:<w$}  {:<10}  {:<ww$}  {:>10}  {:>6}  {:>9}\n", "appliance", "behaviour", "wiring", "kWh/day", "duty", "peak W");
+    let ww = f
+        .apps
+        .iter()
+        .map(|a| a.wiring.len())
+        .max()
+        .unwrap_or(6)
+        .max(6);
+    o += &format!(
+        "{:<w$}  {:<10}  {:<ww$}  {:>10}  {:>6}  {:>9}\n",
+        "appliance", "behaviour", "wiring", "kWh/day", "duty", "peak W"
+    );
     let mut total = 0.0;
     for a in &f.apps {
         total += a.kwh_per_day;
-        o += &format!("{:<w$}  {:<10}  {:<ww$}  {:>10.3}  {:>5.1}%  {:>9.0}\n", a.id, a.behaviour, a.wiring, a.kwh_per_day, 100.0 * a.duty, a.peak_w);
+        o += &format!(
+            "{:<w$}  {:<10}  {:<ww$}  {:>10.3}  {:>5.1}%  {:>9.0}\n",
+            a.id,
+            a.behaviour,
+            a.wiring,
+            a.kwh_per_day,
+            100.0 * a.duty,
+            a.peak_w
+        );
     }
-    o += &format!("{:<w$}  {:<10}  {:<ww$}  {:>10.3}\n", "total", "", "", total);
-    o += &format!("(expected from {:.0} simulated days of behaviour at nominal voltage)\n\n", f.days);
-    o += &format!("{:<9}  {:>22}  {:>15}\n", "conductor", "coincident peak (A)", "of service");
+    o += &format!(
+        "{:<w$}  {:<10}  {:<ww$}  {:>10.3}\n",
+        "total", "", "", total
+    );
+    o += &format!(
+        "(expected from {:.0} simulated days of behaviour at nominal voltage)\n\n",
+        f.days
+    );
+    o += &format!(
+        "{:<9}  {:>22}  {:>15}\n",
+        "conductor", "coincident peak (A)", "of service"
+    );
     for l in &f.lines {
-        o += &format!("{:<9}  {:>22.1}  {:>14.0}%\n", l.name, l.peak_a, 100.0 * l.peak_a / f.service_a);
+        o += &format!(
+            "{:<9}  {:>22.1}  {:>14.0}%\n",
+            l.name,
+            l.peak_a,
+            100.0 * l.peak_a / f.service_a
+        );
     }
     o += "(coincident peak: every appliance in its largest state at once, an upper bound)\n\n";
     o += &f.difficulty.render(s);

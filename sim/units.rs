@@ -85,15 +85,20 @@ pub fn parse_quantity(text: &str, kind: Kind) -> Result<f64, String> {
     let split = number_prefix_len(t);
     let (num, unit) = t.split_at(split);
     let unit = unit.trim();
-    let value: f64 = num
-        .replace('_', "")
-        .parse()
-        .map_err(|_| format!("\"{text}\" does not start with a number; expected {}", kind.example()))?;
+    let value: f64 = num.replace('_', "").parse().map_err(|_| {
+        format!(
+            "\"{text}\" does not start with a number; expected {}",
+            kind.example()
+        )
+    })?;
     if !value.is_finite() {
         return Err(format!("\"{text}\" is not a finite number"));
     }
     if unit.is_empty() {
-        return Err(format!("\"{text}\" has no unit; expected {}", kind.example()));
+        return Err(format!(
+            "\"{text}\" has no unit; expected {}",
+            kind.example()
+        ));
     }
     for &(u, f) in kind.units() {
         if u == unit {
@@ -173,7 +178,9 @@ mod tests {
         let e = parse_quantity("1.5 kw", Kind::Power).unwrap_err();
         assert!(e.contains("did you mean \"kW\""), "{e}");
         assert!(parse_quantity("fast", Kind::Duration).is_err());
-        assert!(parse_quantity("12", Kind::Duration).unwrap_err().contains("no unit"));
+        assert!(parse_quantity("12", Kind::Duration)
+            .unwrap_err()
+            .contains("no unit"));
         assert!(parse_quantity("3 V", Kind::Power).is_err());
     }
 }

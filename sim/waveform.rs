@@ -69,11 +69,30 @@ impl Recorder {
             let name = format!("waveform-{}.wav", k + 1);
             let file = dir.join(&name);
             let mut out = BufWriter::with_capacity(1 << 20, std::fs::File::create(&file)?);
-            header(&mut out, (2 * lines + 1) as u16, s.waveforms.rate_hz as u32, 0)?;
+            header(
+                &mut out,
+                (2 * lines + 1) as u16,
+                s.waveforms.rate_hz as u32,
+                0,
+            )?;
             let first = (w.offset_s / s.run.step_s).round() as u64;
-            windows.push(Window { first, end: first + (w.length_s / s.run.step_s).round() as u64, file, name, start_local: w.start_local.clone(), out, samples: 0 });
+            windows.push(Window {
+                first,
+                end: first + (w.length_s / s.run.step_s).round() as u64,
+                file,
+                name,
+                start_local: w.start_local.clone(),
+                out,
+                samples: 0,
+            });
         }
-        let max_order = s.loads().flat_map(|a| a.states.iter()).flat_map(|st| st.draws.iter()).flat_map(|d| d.harmonics.iter().map(|h| h.order as usize)).max().unwrap_or(1);
+        let max_order = s
+            .loads()
+            .flat_map(|a| a.states.iter())
+            .flat_map(|st| st.draws.iter())
+            .flat_map(|d| d.harmonics.iter().map(|h| h.order as usize))
+            .max()
+            .unwrap_or(1);
         Ok(Recorder {
             windows,
             rate: s.waveforms.rate_hz,
@@ -97,7 +116,15 @@ impl Recorder {
     /// Writes the samples of `step`: the terminals `t` it was solved at, each
     /// appliance's state and scale (without inrush), and its inrush (the step
     /// it began, its shape) if any.
-    pub fn record(&mut self, step: u64, net: &Network, t: &Terminals, state: &[usize], scale: &[f64], inrush: &[Option<(u64, Inrush)>]) {
+    pub fn record(
+        &mut self,
+        step: u64,
+        net: &Network,
+        t: &Terminals,
+        state: &[usize],
+        scale: &[f64],
+        inrush: &[Option<(u64, Inrush)>],
+    ) {
         if self.error.is_some() {
             return;
         }
@@ -110,7 +137,11 @@ impl Recorder {
         for (k, app) in net.apps.iter().enumerate() {
             let target = match inrush[k] {
                 Some((from, ir)) => {
-                    moving.push((from as f64 * self.step_s, ir, vec![vec![C64::ZERO; n_orders]; 3]));
+                    moving.push((
+                        from as f64 * self.step_s,
+                        ir,
+                        vec![vec![C64::ZERO; n_orders]; 3],
+                    ));
                     &mut moving.last_mut().unwrap().2
                 }
                 None => &mut steady,
@@ -174,7 +205,11 @@ impl Recorder {
             self.buf.push((-i_sum / self.scale_i) as f32);
         }
         let bytes: Vec<u8> = self.buf.iter().flat_map(|x| x.to_le_bytes()).collect();
-        for w in self.windows.iter_mut().filter(|w| step >= w.first && step < w.end) {
+        for w in self
+            .windows
+            .iter_mut()
+            .filter(|w| step >= w.first && step < w.end)
+        {
             if let Err(err) = w.out.write_all(&bytes) {
                 self.error = Some(err);
                 return;
@@ -200,7 +235,12 @@ impl Recorder {
         for w in self.windows {
             let mut f = w.out.into_inner().map_err(|e| e.into_error())?;
             f.seek(SeekFrom::Start(0))?;
-            header(&mut f, names.len() as u16, self.rate as u32, w.samples as u32)?;
+            header(
+                &mut f,
+                names.len() as u16,
+                self.rate as u32,
+                w.samples as u32,
+            )?;
             f.sync_all()?;
             let _ = &w.file;
             out.push((

@@ -83,10 +83,16 @@ fn assert_bad(name: &str, text: &str, line: usize, needle: &str) {
     let o = run(&["run", p.to_str().unwrap(), "--out", out.to_str().unwrap()]);
     let e = stderr(&o);
     assert_eq!(o.status.code(), Some(2), "{name}: {e}");
-    assert!(e.contains(&format!("home.toml:{line}:")), "{name}: place not named in\n{e}");
+    assert!(
+        e.contains(&format!("home.toml:{line}:")),
+        "{name}: place not named in\n{e}"
+    );
     assert!(e.contains(needle), "{name}: `{needle}` not in\n{e}");
     assert!(e.contains("help:"), "{name}: no fix suggested in\n{e}");
-    assert!(!out.exists() || std::fs::read_dir(&out).unwrap().next().is_none(), "{name}: output left behind");
+    assert!(
+        !out.exists() || std::fs::read_dir(&out).unwrap().next().is_none(),
+        "{name}: output left behind"
+    );
     let v = run(&["validate", p.to_str().unwrap()]);
     assert_eq!(v.status.code(), Some(2), "{name}: validate");
 }
@@ -98,7 +104,12 @@ fn line_of(text: &str, needle: &str) -> usize {
 #[test]
 fn bad_input_syntax() {
     let t = BASE.replace("length = \"2 d\"", "length = \"2 d");
-    assert_bad("syntax", &t, line_of(&t, "length = \"2 d"), "not valid TOML");
+    assert_bad(
+        "syntax",
+        &t,
+        line_of(&t, "length = \"2 d"),
+        "not valid TOML",
+    );
 }
 
 #[test]
@@ -115,42 +126,87 @@ fn bad_input_bad_unit() {
 
 #[test]
 fn bad_input_wiring_the_supply_lacks() {
-    let t = BASE.replace("wiring = \"L2-N\"\nbehaviour = \"program\"", "wiring = \"L3-N\"\nbehaviour = \"program\"");
-    assert_bad("wiring", &t, line_of(&t, "L3-N"), "L3 does not exist on a split-phase supply");
+    let t = BASE.replace(
+        "wiring = \"L2-N\"\nbehaviour = \"program\"",
+        "wiring = \"L3-N\"\nbehaviour = \"program\"",
+    );
+    assert_bad(
+        "wiring",
+        &t,
+        line_of(&t, "L3-N"),
+        "L3 does not exist on a split-phase supply",
+    );
 }
 
 #[test]
 fn bad_input_zero_and_negative_durations() {
     let t = BASE.replace("length = \"8 min\"", "length = \"0 min\"");
-    assert_bad("zero-duration", &t, line_of(&t, "\"0 min\""), "greater than zero");
+    assert_bad(
+        "zero-duration",
+        &t,
+        line_of(&t, "\"0 min\""),
+        "greater than zero",
+    );
     let t = BASE.replace("median = \"1 h\"", "median = \"-1 h\"");
-    assert_bad("negative-duration", &t, line_of(&t, "-1 h"), "greater than zero");
+    assert_bad(
+        "negative-duration",
+        &t,
+        line_of(&t, "-1 h"),
+        "greater than zero",
+    );
 }
 
 #[test]
 fn bad_input_duplicate_ids() {
     let t = BASE.replace("id = \"tv\"", "id = \"fridge\"");
-    let second = t.lines().collect::<Vec<_>>().iter().rposition(|l| l.contains("id = \"fridge\"")).unwrap() + 1;
+    let second = t
+        .lines()
+        .collect::<Vec<_>>()
+        .iter()
+        .rposition(|l| l.contains("id = \"fridge\""))
+        .unwrap()
+        + 1;
     assert_bad("duplicate", &t, second, "already used");
 }
 
 #[test]
 fn bad_input_probabilities_that_do_not_sum_to_one() {
     let t = BASE.replace("next = { on = 1.0 }", "next = { on = 0.7, standby = 0.2 }");
-    assert_bad("probabilities", &t, line_of(&t, "on = 0.7"), "sum to 0.8999");
+    assert_bad(
+        "probabilities",
+        &t,
+        line_of(&t, "on = 0.7"),
+        "sum to 0.8999",
+    );
 }
 
 #[test]
 fn bad_length_option() {
     let d = scratch("length-option");
     let p = write(&d, "home.toml", BASE);
-    let o = run(&["run", p.to_str().unwrap(), "--out", d.join("out").to_str().unwrap(), "--length", "7 s"]);
+    let o = run(&[
+        "run",
+        p.to_str().unwrap(),
+        "--out",
+        d.join("out").to_str().unwrap(),
+        "--length",
+        "7 s",
+    ]);
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("--length 7 s"), "{}", stderr(&o));
 }
 
 fn files(dir: &Path) -> Vec<(String, Vec<u8>)> {
-    let mut v: Vec<_> = std::fs::read_dir(dir).unwrap().map(|e| e.unwrap()).map(|e| (e.file_name().to_string_lossy().to_string(), std::fs::read(e.path()).unwrap())).collect();
+    let mut v: Vec<_> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap())
+        .map(|e| {
+            (
+                e.file_name().to_string_lossy().to_string(),
+                std::fs::read(e.path()).unwrap(),
+            )
+        })
+        .collect();
     v.sort();
     v
 }
@@ -161,13 +217,34 @@ fn same_seed_identical_bytes_other_seed_differs() {
     let d = scratch("determinism");
     let p = write(&d, "home.toml", BASE);
     for (out, seed) in [("a", "11"), ("b", "11"), ("c", "12")] {
-        let o = run(&["run", p.to_str().unwrap(), "--out", d.join(out).to_str().unwrap(), "--seed", seed]);
+        let o = run(&[
+            "run",
+            p.to_str().unwrap(),
+            "--out",
+            d.join(out).to_str().unwrap(),
+            "--seed",
+            seed,
+        ]);
         assert!(o.status.success(), "{}", stderr(&o));
     }
     let a = files(&d.join("a/home"));
-    assert_eq!(a.iter().map(|f| f.0.as_str()).collect::<Vec<_>>(), ["events.parquet", "manifest.json", "meters.parquet", "truth.parquet"]);
-    assert!(a == files(&d.join("b/home")), "same seed must give identical bytes");
-    assert!(a[2] != files(&d.join("c/home"))[2], "another seed must give other meter data");
+    assert_eq!(
+        a.iter().map(|f| f.0.as_str()).collect::<Vec<_>>(),
+        [
+            "events.parquet",
+            "manifest.json",
+            "meters.parquet",
+            "truth.parquet"
+        ]
+    );
+    assert!(
+        a == files(&d.join("b/home")),
+        "same seed must give identical bytes"
+    );
+    assert!(
+        a[2] != files(&d.join("c/home"))[2],
+        "another seed must give other meter data"
+    );
     // No temporary folders are left beside the dataset.
     assert_eq!(std::fs::read_dir(d.join("a")).unwrap().count(), 1);
 }
@@ -176,12 +253,24 @@ fn same_seed_identical_bytes_other_seed_differs() {
 fn csv_format_writes_the_same_tables() {
     let d = scratch("csv");
     let p = write(&d, "home.toml", BASE);
-    let o = run(&["run", p.to_str().unwrap(), "--out", d.join("out").to_str().unwrap(), "--format", "csv", "--length", "1d"]);
+    let o = run(&[
+        "run",
+        p.to_str().unwrap(),
+        "--out",
+        d.join("out").to_str().unwrap(),
+        "--format",
+        "csv",
+        "--length",
+        "1d",
+    ]);
     assert!(o.status.success(), "{}", stderr(&o));
     let meters = std::fs::read_to_string(d.join("out/home/meters.csv")).unwrap();
     let mut lines = meters.lines();
     assert_eq!(lines.next().unwrap(), "time,l1_p_w,l1_q_var,l1_v_v,l1_i_a,l2_p_w,l2_q_var,l2_v_v,l2_i_a,n_i_a,total_p_w,total_q_var");
-    assert!(lines.next().unwrap().starts_with("2027-03-13T00:00:00.000-06:00,"));
+    assert!(lines
+        .next()
+        .unwrap()
+        .starts_with("2027-03-13T00:00:00.000-06:00,"));
     assert_eq!(meters.lines().count(), 1 + 8640);
 }
 
@@ -192,7 +281,15 @@ fn validate_prints_figures_and_the_caution() {
     let o = run(&["validate", p.to_str().unwrap()]);
     assert!(o.status.success(), "{}", stderr(&o));
     let s = String::from_utf8_lossy(&o.stdout);
-    for needle in ["fridge", "washer", "tv", "kWh/day", "coincident peak", "not an inspection", "licensed electrician"] {
+    for needle in [
+        "fridge",
+        "washer",
+        "tv",
+        "kWh/day",
+        "coincident peak",
+        "not an inspection",
+        "licensed electrician",
+    ] {
         assert!(s.contains(needle), "`{needle}` missing from\n{s}");
     }
     assert!(!d.join("out").exists(), "validate writes nothing");
@@ -202,12 +299,25 @@ fn validate_prints_figures_and_the_caution() {
 fn solver_check_opens_and_verifies_a_written_dataset() {
     let d = scratch("solver-check");
     let p = write(&d, "home.toml", BASE);
-    let o = run(&["run", p.to_str().unwrap(), "--out", d.join("out").to_str().unwrap(), "--length", "6h"]);
+    let o = run(&[
+        "run",
+        p.to_str().unwrap(),
+        "--out",
+        d.join("out").to_str().unwrap(),
+        "--length",
+        "6h",
+    ]);
     assert!(o.status.success(), "{}", stderr(&o));
     let ds = solver_check::Dataset::open(&d.join("out/home")).unwrap();
     assert_eq!(ds.rows, 6 * 360);
     assert_eq!(ds.lines, ["l1", "l2"]);
-    assert_eq!(ds.appliances.iter().map(|a| a.id.as_str()).collect::<Vec<_>>(), ["fridge", "washer", "tv"]);
+    assert_eq!(
+        ds.appliances
+            .iter()
+            .map(|a| a.id.as_str())
+            .collect::<Vec<_>>(),
+        ["fridge", "washer", "tv"]
+    );
     ds.verify().unwrap();
     // A changed file is caught.
     let truth = d.join("out/home/truth.parquet");

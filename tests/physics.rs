@@ -22,9 +22,19 @@ fn run(toml: &str) -> (Scenario, Run) {
     let s = load_str(Path::new("test.toml"), toml.to_string()).unwrap_or_else(|e| panic!("{e}"));
     let tl = loadloom::behaviour::timelines(&s, s.run.steps());
     let lines = s.home.supply.lines();
-    let mut r = Run { line_p: vec![vec![]; lines], line_q: vec![vec![]; lines], line_v: vec![vec![]; lines], line_i: vec![vec![]; lines], ..Default::default() };
+    let mut r = Run {
+        line_p: vec![vec![]; lines],
+        line_q: vec![vec![]; lines],
+        line_v: vec![vec![]; lines],
+        line_i: vec![vec![]; lines],
+        ..Default::default()
+    };
     r.app_p = vec![vec![]; s.appliances.len()];
-    r.app_line_p = s.appliances.iter().map(|a| vec![vec![]; a.lines().len()]).collect();
+    r.app_line_p = s
+        .appliances
+        .iter()
+        .map(|a| vec![vec![]; a.lines().len()])
+        .collect();
     let f = |v: &Vec<f32>| v.iter().map(|&x| x as f64).collect::<Vec<_>>();
     simulate(&s, &tl, s.intervals(), 1000, |c| -> Result<(), ()> {
         for x in 0..lines {
@@ -82,16 +92,31 @@ fn supply_voltages_and_the_sqrt3_relation() {
         ("three-phase", "120 V", 208.0, 0.005),
         ("three-phase", "277 V", 480.0, 0.005),
     ] {
-        let (s, _) = run(&stiff(supply, v_ln, &steady("a", "L1-N", "1 W", 1.0, "resistive")));
+        let (s, _) = run(&stiff(
+            supply,
+            v_ln,
+            &steady("a", "L1-N", "1 W", 1.0, "resistive"),
+        ));
         let e = nominal_phasors(&s.home);
         let v_ll = (e[0] - e[1]).abs();
-        assert!(close(v_ll, v_ll_nominal, tol), "{supply} {v_ln}: |V1 - V2| = {v_ll}");
-        assert!(close(connection_voltage(&s.home, Connection::Pair(0, 1)), v_ll, 1e-12));
+        assert!(
+            close(v_ll, v_ll_nominal, tol),
+            "{supply} {v_ln}: |V1 - V2| = {v_ll}"
+        );
+        assert!(close(
+            connection_voltage(&s.home, Connection::Pair(0, 1)),
+            v_ll,
+            1e-12
+        ));
         if supply == "three-phase" {
             assert!(close(v_ll, 3f64.sqrt() * s.home.voltage_v, 1e-12));
-            assert!(close((e[1] - e[2]).abs(), v_ll, 1e-12) && close((e[2] - e[0]).abs(), v_ll, 1e-12));
+            assert!(
+                close((e[1] - e[2]).abs(), v_ll, 1e-12) && close((e[2] - e[0]).abs(), v_ll, 1e-12)
+            );
         } else {
-            let angle = (e[1].im.atan2(e[1].re) - e[0].im.atan2(e[0].re)).to_degrees().abs();
+            let angle = (e[1].im.atan2(e[1].re) - e[0].im.atan2(e[0].re))
+                .to_degrees()
+                .abs();
             assert!(close(angle, 180.0, 1e-12));
         }
     }
@@ -103,7 +128,11 @@ fn two_wattmeter_split_of_a_three_phase_line_to_line_load() {
     // between L1 and L2 with angle φ reads P1 = V_LN·I·cos(φ − 30°) on L1 and
     // P2 = V_LN·I·cos(φ + 30°) on L2; P1 + P2 = P; P2 < 0 below pf 0.5.
     for pf in [1.0, 0.866, 0.7, 0.5, 0.3] {
-        let (s, r) = run(&stiff("three-phase", "230 V", &steady("motor", "L1-L2", "3 kW", pf, "resistive")));
+        let (s, r) = run(&stiff(
+            "three-phase",
+            "230 V",
+            &steady("motor", "L1-L2", "3 kW", pf, "resistive"),
+        ));
         let phi = f64::acos(pf);
         let i = 3000.0 / pf / (3f64.sqrt() * 230.0);
         let p1 = 230.0 * i * (phi - 30f64.to_radians()).cos();
@@ -126,28 +155,45 @@ fn two_wattmeter_split_of_a_three_phase_line_to_line_load() {
 fn split_phase_line_to_line_load_splits_equally() {
     // Common practice: a 240 V load on split-phase draws the same current out
     // of L1 and back on L2, so each leg reads half its P and half its Q.
-    let (_, r) = run(&stiff("split-phase", "120 V", &steady("heater", "L1-L2", "4.5 kW", 0.9, "resistive")));
+    let (_, r) = run(&stiff(
+        "split-phase",
+        "120 V",
+        &steady("heater", "L1-L2", "4.5 kW", 0.9, "resistive"),
+    ));
     let q = 4500.0 * (1.0f64 - 0.81).sqrt() / 0.9;
     assert!(close(r.line_p[0][3], 2250.0, 1e-5) && close(r.line_p[1][3], 2250.0, 1e-5));
     assert!(close(r.line_q[0][3], q / 2.0, 1e-5) && close(r.line_q[1][3], q / 2.0, 1e-5));
-    assert!(r.n_i[3] < 1e-4, "no neutral current for a 240 V load, got {}", r.n_i[3]);
+    assert!(
+        r.n_i[3] < 1e-4,
+        "no neutral current for a 240 V load, got {}",
+        r.n_i[3]
+    );
 }
 
 #[test]
 fn neutral_current_balanced_three_phase_and_split_phase() {
     // Kirchhoff's current law: a balanced three-phase load returns nothing on
     // the neutral; resistive split-phase loads leave abs(I_L1 − I_L2) on it.
-    let (_, r) = run(&stiff("three-phase", "230 V", &steady("pump", "3P", "9 kW", 0.85, "motor")));
+    let (_, r) = run(&stiff(
+        "three-phase",
+        "230 V",
+        &steady("pump", "3P", "9 kW", 0.85, "motor"),
+    ));
     assert!(r.n_i[4] < 1e-4 * r.line_i[0][4], "neutral {} A", r.n_i[4]);
     let i = 9000.0 / 0.85 / (3.0 * 230.0);
     for x in 0..3 {
         assert!(close(r.line_i[x][4], i, 1e-5));
         assert!(close(r.line_p[x][4], 3000.0, 1e-5));
     }
-    let apps = steady("a", "L1-N", "1200 W", 1.0, "resistive") + &steady("b", "L2-N", "600 W", 1.0, "resistive");
+    let apps = steady("a", "L1-N", "1200 W", 1.0, "resistive")
+        + &steady("b", "L2-N", "600 W", 1.0, "resistive");
     let (_, r) = run(&stiff("split-phase", "120 V", &apps));
     assert!(close(r.line_i[0][2], 10.0, 1e-5) && close(r.line_i[1][2], 5.0, 1e-5));
-    assert!(close(r.n_i[2], (r.line_i[0][2] - r.line_i[1][2]).abs(), 1e-5));
+    assert!(close(
+        r.n_i[2],
+        (r.line_i[0][2] - r.line_i[1][2]).abs(),
+        1e-5
+    ));
 }
 
 #[test]
@@ -224,11 +270,27 @@ length = "10 s"
     );
     let (_, r) = run(&toml);
     let u = r.line_v[0][5] / 230.0;
-    assert!(u < 0.93, "the load must sag the voltage noticeably, u = {u}");
-    assert!(close(r.app_p[1][5], 1000.0 * u * u, 1e-5), "resistive: {} vs {}", r.app_p[1][5], 1000.0 * u * u);
-    assert!(close(r.app_p[2][5], 200.0, 1e-5), "constant power holds: {}", r.app_p[2][5]);
+    assert!(
+        u < 0.93,
+        "the load must sag the voltage noticeably, u = {u}"
+    );
+    assert!(
+        close(r.app_p[1][5], 1000.0 * u * u, 1e-5),
+        "resistive: {} vs {}",
+        r.app_p[1][5],
+        1000.0 * u * u
+    );
+    assert!(
+        close(r.app_p[2][5], 200.0, 1e-5),
+        "constant power holds: {}",
+        r.app_p[2][5]
+    );
     let zip = 500.0 * (0.5 * u * u + 0.3 * u + 0.2);
-    assert!(close(r.app_p[3][5], zip, 1e-5), "mixed ZIP: {} vs {zip}", r.app_p[3][5]);
+    assert!(
+        close(r.app_p[3][5], zip, 1e-5),
+        "mixed ZIP: {} vs {zip}",
+        r.app_p[3][5]
+    );
     // And the source is the terminal voltage plus the drop over line and
     // neutral: E = V + (Z_L + Z_N)·I, with I in phase with V (unity pf loads),
     // Z_N being the 50 Hz default 0.16 + j0.10 Ω.
@@ -260,8 +322,14 @@ states = [{ power = "1 W" }]
 "#;
     let (_, r) = run(toml);
     for x in 0..2 {
-        let (lo, hi) = r.line_v[x].iter().fold((f64::MAX, f64::MIN), |(a, b), &v| (a.min(v), b.max(v)));
-        assert!(lo >= 114.0 - 0.01 && hi <= 126.0 + 0.01, "L{}: {lo}..{hi}", x + 1);
+        let (lo, hi) = r.line_v[x]
+            .iter()
+            .fold((f64::MAX, f64::MIN), |(a, b), &v| (a.min(v), b.max(v)));
+        assert!(
+            lo >= 114.0 - 0.01 && hi <= 126.0 + 0.01,
+            "L{}: {lo}..{hi}",
+            x + 1
+        );
         assert!(hi - lo > 3.0, "the source voltage does vary: {lo}..{hi}");
     }
 }

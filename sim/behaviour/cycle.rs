@@ -8,7 +8,12 @@ use crate::rng::Stream;
 use crate::scenario::{Dist, Extra};
 use rand::Rng;
 
-pub fn generate(dwell: &[Dist], extra: Option<&Extra>, clock: &Clock, rng: &mut Stream) -> Timeline {
+pub fn generate(
+    dwell: &[Dist],
+    extra: Option<&Extra>,
+    clock: &Clock,
+    rng: &mut Stream,
+) -> Timeline {
     let n = dwell.len();
     let mut b = Builder::new(clock.steps);
     // Start in a state chosen by its share of the mean cycle, part-way through
@@ -16,7 +21,9 @@ pub fn generate(dwell: &[Dist], extra: Option<&Extra>, clock: &Clock, rng: &mut 
     let means: Vec<f64> = dwell.iter().map(|d| d.mean_s()).collect();
     let mut idx = super::dist::categorical(&means, rng);
     let mut len = clock.steps_of(sample(&dwell[idx], rng) * rng.random::<f64>());
-    let mut since_extra = extra.map(|e| e.every_s * rng.random::<f64>()).unwrap_or(0.0);
+    let mut since_extra = extra
+        .map(|e| e.every_s * rng.random::<f64>())
+        .unwrap_or(0.0);
     while b.push(idx, len, 1.0) {
         since_extra += len as f64 * clock.step_s;
         idx = (idx + 1) % n;

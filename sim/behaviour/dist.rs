@@ -10,8 +10,12 @@ pub fn sample(d: &Dist, rng: &mut Stream) -> f64 {
     match *d {
         Dist::Fixed { value_s } => value_s,
         Dist::Uniform { min_s, max_s } => rng.random_range(min_s..max_s),
-        Dist::Lognormal { median_s, spread } => LogNormal::new(median_s.ln(), spread).expect("checked when parsed").sample(rng),
-        Dist::Gamma { mean_s, shape } => Gamma::new(shape, mean_s / shape).expect("checked when parsed").sample(rng),
+        Dist::Lognormal { median_s, spread } => LogNormal::new(median_s.ln(), spread)
+            .expect("checked when parsed")
+            .sample(rng),
+        Dist::Gamma { mean_s, shape } => Gamma::new(shape, mean_s / shape)
+            .expect("checked when parsed")
+            .sample(rng),
     }
 }
 

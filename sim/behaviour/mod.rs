@@ -55,7 +55,11 @@ pub struct Builder {
 
 impl Builder {
     pub fn new(steps: u64) -> Self {
-        Builder { steps, t: 0, segments: Vec::new() }
+        Builder {
+            steps,
+            t: 0,
+            segments: Vec::new(),
+        }
     }
     pub fn now(&self) -> u64 {
         self.t
@@ -69,7 +73,12 @@ impl Builder {
             return !self.done();
         }
         let end = (self.t + len).min(self.steps);
-        self.segments.push(Segment { start: self.t, end, state: state as u16, scale: scale as f32 });
+        self.segments.push(Segment {
+            start: self.t,
+            end,
+            state: state as u16,
+            scale: scale as f32,
+        });
         self.t = end;
         !self.done()
     }
@@ -82,7 +91,9 @@ impl Builder {
     pub fn finish(mut self, state: usize) -> Timeline {
         let n = self.steps;
         self.fill_to(state, n, 1.0);
-        Timeline { segments: self.segments }
+        Timeline {
+            segments: self.segments,
+        }
     }
 }
 
@@ -91,20 +102,40 @@ impl Builder {
 pub fn timeline(app: &Appliance, clock: &Clock, seed: u64) -> Timeline {
     let mut rng = stream(seed, &app.id, "behaviour");
     match &app.behaviour {
-        Behaviour::Cycle { dwell, extra } => cycle::generate(dwell, extra.as_ref(), clock, &mut rng),
+        Behaviour::Cycle { dwell, extra } => {
+            cycle::generate(dwell, extra.as_ref(), clock, &mut rng)
+        }
         Behaviour::Program { habit, lengths } => program::generate(habit, lengths, clock, &mut rng),
         Behaviour::Markov { dwell, next } => markov::generate(dwell, next, clock, &mut rng),
-        Behaviour::Steady { jitter, every_s } => steady::generate(*jitter, *every_s, clock, &mut rng),
-        Behaviour::Modulating { min, wander, every_s, session } => {
-            modulating::generate(app.states.len() - 1, *min, *wander, *every_s, session.as_ref(), clock, &mut rng)
+        Behaviour::Steady { jitter, every_s } => {
+            steady::generate(*jitter, *every_s, clock, &mut rng)
         }
+        Behaviour::Modulating {
+            min,
+            wander,
+            every_s,
+            session,
+        } => modulating::generate(
+            app.states.len() - 1,
+            *min,
+            *wander,
+            *every_s,
+            session.as_ref(),
+            clock,
+            &mut rng,
+        ),
     }
 }
 
 /// Timelines of every load of a scenario (appliances, then unmetered loads).
 pub fn timelines(s: &Scenario, steps: u64) -> Vec<Timeline> {
     let tz = jiff::tz::TimeZone::get(&s.home.timezone).expect("checked when parsed");
-    let clock = Clock { steps, step_s: s.run.step_s, start_utc_ms: s.run.start_utc_ms, tz: &tz };
+    let clock = Clock {
+        steps,
+        step_s: s.run.step_s,
+        start_utc_ms: s.run.start_utc_ms,
+        tz: &tz,
+    };
     s.loads().map(|a| timeline(a, &clock, s.run.seed)).collect()
 }
 

@@ -25,11 +25,20 @@ fn reflect(x: f64, lo: f64) -> f64 {
     x.clamp(lo, 1.0)
 }
 
-pub fn generate(run: usize, min: f64, wander: f64, every_s: f64, session: Option<&Session>, clock: &Clock, rng: &mut Stream) -> Timeline {
+pub fn generate(
+    run: usize,
+    min: f64,
+    wander: f64,
+    every_s: f64,
+    session: Option<&Session>,
+    clock: &Clock,
+    rng: &mut Stream,
+) -> Timeline {
     let every = clock.steps_of(every_s);
     let mut b = Builder::new(clock.steps);
     let mut x = rng.random_range(min..=1.0);
-    let step = |x: f64, rng: &mut Stream| reflect(x + wander * rng.sample::<f64, _>(StandardNormal), min);
+    let step =
+        |x: f64, rng: &mut Stream| reflect(x + wander * rng.sample::<f64, _>(StandardNormal), min);
     let Some(sess) = session else {
         while b.push(run, every, x) {
             x = step(x, rng);
@@ -44,7 +53,11 @@ pub fn generate(run: usize, min: f64, wander: f64, every_s: f64, session: Option
         b.fill_to(rest, s, 1.0);
         let total = clock.steps_of(sample(&sess.length, rng));
         let taper = clock.steps_of(sess.taper_s).min(total);
-        let flat = if sess.taper_s > 0.0 { total - taper } else { total };
+        let flat = if sess.taper_s > 0.0 {
+            total - taper
+        } else {
+            total
+        };
         x = 1.0;
         let mut done = 0;
         while done < flat {

@@ -36,8 +36,16 @@ pub fn state_split(s: &Scenario, st: &State) -> Vec<(usize, f64, f64)> {
     let mut per = [C64::ZERO; 3];
     for d in &st.draws {
         for el in elems_of(d) {
-            let ua = if el.a == NEUTRAL { C64::ZERO } else { e[el.a as usize] };
-            let ub = if el.b == NEUTRAL { C64::ZERO } else { e[el.b as usize] };
+            let ua = if el.a == NEUTRAL {
+                C64::ZERO
+            } else {
+                e[el.a as usize]
+            };
+            let ub = if el.b == NEUTRAL {
+                C64::ZERO
+            } else {
+                e[el.b as usize]
+            };
             let i = (C64::new(el.p_w, el.q_var) / (ua - ub)).conj();
             if el.a != NEUTRAL {
                 per[el.a as usize] += ua * i.conj();
@@ -47,7 +55,9 @@ pub fn state_split(s: &Scenario, st: &State) -> Vec<(usize, f64, f64)> {
             }
         }
     }
-    (0..s.home.supply.lines()).map(|x| (x, per[x].re, per[x].im)).collect()
+    (0..s.home.supply.lines())
+        .map(|x| (x, per[x].re, per[x].im))
+        .collect()
 }
 
 fn appliance_json(s: &Scenario, a: &Appliance, o: &Outcome, k: usize) -> Value {
@@ -88,7 +98,11 @@ fn appliance_json(s: &Scenario, a: &Appliance, o: &Outcome, k: usize) -> Value {
 }
 
 fn columns_json(cols: &[Col]) -> Value {
-    Value::Array(cols.iter().map(|c| json!({ "name": c.name, "unit": c.unit })).collect())
+    Value::Array(
+        cols.iter()
+            .map(|c| json!({ "name": c.name, "unit": c.unit }))
+            .collect(),
+    )
 }
 
 /// The faults of the scenario as records, with what the dropouts realised.
@@ -122,7 +136,16 @@ fn faults_json(s: &Scenario, tables: &Tables, o: &Outcome) -> Value {
 }
 
 #[allow(clippy::too_many_arguments)]
-pub fn build(s: &Scenario, tables: &Tables, format: Format, o: &Outcome, card: &crate::difficulty::Difficulty, files: &[(&str, u64)], waves: &[(String, Value)], dir: &Path) -> io::Result<Value> {
+pub fn build(
+    s: &Scenario,
+    tables: &Tables,
+    format: Format,
+    o: &Outcome,
+    card: &crate::difficulty::Difficulty,
+    files: &[(&str, u64)],
+    waves: &[(String, Value)],
+    dir: &Path,
+) -> io::Result<Value> {
     let lines = s.home.supply.lines();
     let mut file_map = Map::new();
     for (name, rows) in files {

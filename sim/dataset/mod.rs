@@ -29,7 +29,12 @@ pub struct Written {
 
 /// Simulates `s` and writes its dataset to `out_root/<scenario name>/`.
 /// `progress` is called with the share done (0…1) after every chunk.
-pub fn write(s: &Scenario, out_root: &Path, format: Format, progress: &mut dyn FnMut(f64)) -> io::Result<Written> {
+pub fn write(
+    s: &Scenario,
+    out_root: &Path,
+    format: Format,
+    progress: &mut dyn FnMut(f64),
+) -> io::Result<Written> {
     std::fs::create_dir_all(out_root)?;
     let dest = out_root.join(&s.name);
     let tmp = out_root.join(format!(".{}.partial-{}", s.name, std::process::id()));
@@ -40,7 +45,11 @@ pub fn write(s: &Scenario, out_root: &Path, format: Format, progress: &mut dyn F
     match write_into(s, &tmp, format, progress) {
         Ok((rows, outcome)) => {
             replace_dir(&tmp, &dest)?;
-            Ok(Written { dir: dest, rows, outcome })
+            Ok(Written {
+                dir: dest,
+                rows,
+                outcome,
+            })
         }
         Err(e) => {
             let _ = std::fs::remove_dir_all(&tmp);
@@ -52,7 +61,11 @@ pub fn write(s: &Scenario, out_root: &Path, format: Format, progress: &mut dyn F
 /// Moves `tmp` to `dest`, replacing an older dataset there.
 fn replace_dir(tmp: &Path, dest: &Path) -> io::Result<()> {
     if dest.exists() {
-        let old = dest.with_file_name(format!(".{}.old-{}", dest.file_name().unwrap().to_string_lossy(), std::process::id()));
+        let old = dest.with_file_name(format!(
+            ".{}.old-{}",
+            dest.file_name().unwrap().to_string_lossy(),
+            std::process::id()
+        ));
         std::fs::rename(dest, &old)?;
         std::fs::rename(tmp, dest)?;
         std::fs::remove_dir_all(&old)
@@ -61,34 +74,69 @@ fn replace_dir(tmp: &Path, dest: &Path) -> io::Result<()> {
     }
 }
 
-fn write_into(s: &Scenario, dir: &Path, format: Format, progress: &mut dyn FnMut(f64)) -> io::Result<(u64, Outcome)> {
+fn write_into(
+    s: &Scenario,
+    dir: &Path,
+    format: Format,
+    progress: &mut dyn FnMut(f64),
+) -> io::Result<(u64, Outcome)> {
     let tables = Tables::new(s);
     let ext = format.ext();
     let tz = &s.home.timezone;
     let intervals = s.intervals();
     let tl = timelines(s, s.run.steps());
-    let mut meters = Sink::create(&dir.join(format!("meters.{ext}")), format, tables.meters_schema.clone(), tz)?;
-    let mut truth = Sink::create(&dir.join(format!("truth.{ext}")), format, tables.truth_schema.clone(), tz)?;
+    let mut meters = Sink::create(
+        &dir.join(format!("meters.{ext}")),
+        format,
+        tables.meters_schema.clone(),
+        tz,
+    )?;
+    let mut truth = Sink::create(
+        &dir.join(format!("truth.{ext}")),
+        format,
+        tables.truth_schema.clone(),
+        tz,
+    )?;
     let mut meter_rows = 0u64;
-    let mut recorder = if s.waveforms.windows.is_empty() { None } else { Some(crate::waveform::Recorder::new(s, dir)?) };
-    let outcome = simulate_with(s, &tl, intervals, CHUNK_ROWS, |chunk| -> io::Result<()> {
-        let batch = tables.meters_batch(chunk);
-        meter_rows += batch.num_rows() as u64;
-        meters.write(&batch)?;
-        truth.write(&tables.truth_batch(chunk))?;
-        progress((chunk.first_row + chunk.readings.rows() as u64) as f64 / intervals as f64);
-        Ok(())
-    }, recorder.as_mut())?;
+    let mut recorder = if s.waveforms.windows.is_empty() {
+        None
+    } else {
+        Some(crate::waveform::Recorder::new(s, dir)?)
+    };
+    let outcome = simulate_with(
+        s,
+        &tl,
+        intervals,
+        CHUNK_ROWS,
+        |chunk| -> io::Result<()> {
+            let batch = tables.meters_batch(chunk);
+            meter_rows += batch.num_rows() as u64;
+            meters.write(&batch)?;
+            truth.write(&tables.truth_batch(chunk))?;
+            progress((chunk.first_row + chunk.readings.rows() as u64) as f64 / intervals as f64);
+            Ok(())
+        },
+        recorder.as_mut(),
+    )?;
     let waves = match recorder {
         Some(r) => r.finish(s)?,
         None => Vec::new(),
     };
     meters.close()?;
     truth.close()?;
-    let mut events = Sink::create(&dir.join(format!("events.{ext}")), format, tables.events_schema.clone(), tz)?;
+    let mut events = Sink::create(
+        &dir.join(format!("events.{ext}")),
+        format,
+        tables.events_schema.clone(),
+        tz,
+    )?;
     events.write(&tables.events_batch(s, &outcome.events, s.run.step_s))?;
     events.close()?;
-    let files = [("meters", meter_rows), ("truth", intervals), ("events", outcome.events.len() as u64)];
+    let files = [
+        ("meters", meter_rows),
+        ("truth", intervals),
+        ("events", outcome.events.len() as u64),
+    ];
     let card = crate::difficulty::card(s, &tl, &outcome.summary.app_energy_j);
     let mut m = manifest::build(s, &tables, format, &outcome, &card, &files, &waves, dir)?;
     if let Some(toml) = &s.source_toml {

@@ -29,11 +29,21 @@ pub struct Col {
 }
 
 fn col(name: impl Into<String>, unit: &'static str, kind: ColKind) -> Col {
-    Col { name: name.into(), unit, kind, nullable: false }
+    Col {
+        name: name.into(),
+        unit,
+        kind,
+        nullable: false,
+    }
 }
 
 fn reading(name: impl Into<String>, unit: &'static str, kind: ColKind) -> Col {
-    Col { name: name.into(), unit, kind, nullable: true }
+    Col {
+        name: name.into(),
+        unit,
+        kind,
+        nullable: true,
+    }
 }
 
 pub fn line_name(x: usize) -> String {
@@ -55,7 +65,11 @@ pub fn meters(s: &Scenario) -> Vec<Col> {
     c.push(reading("total_q_var", "var", ColKind::F32));
     if s.faults.register {
         for x in 0..s.home.supply.lines() {
-            c.push(reading(format!("{}_energy_wh", line_name(x)), "Wh", ColKind::F64));
+            c.push(reading(
+                format!("{}_energy_wh", line_name(x)),
+                "Wh",
+                ColKind::F64,
+            ));
         }
     }
     c
@@ -69,7 +83,11 @@ pub fn truth(s: &Scenario) -> Vec<Col> {
         c.push(col(format!("{}_q_var", a.id), "var", ColKind::F32));
         c.push(col(format!("{}_state", a.id), "", ColKind::Dict));
         for x in a.lines() {
-            c.push(col(format!("{}_{}_p_w", a.id, line_name(x)), "W", ColKind::F32));
+            c.push(col(
+                format!("{}_{}_p_w", a.id, line_name(x)),
+                "W",
+                ColKind::F32,
+            ));
         }
     }
     c.push(col("unmetered_p_w", "W", ColKind::F32));
@@ -97,10 +115,13 @@ pub fn arrow_schema(cols: &[Col], timezone: &str) -> Arc<Schema> {
                 ColKind::Time => DataType::Timestamp(TimeUnit::Millisecond, Some(timezone.into())),
                 ColKind::F32 => DataType::Float32,
                 ColKind::F64 => DataType::Float64,
-                ColKind::Dict => DataType::Dictionary(Box::new(DataType::Int16), Box::new(DataType::Utf8)),
+                ColKind::Dict => {
+                    DataType::Dictionary(Box::new(DataType::Int16), Box::new(DataType::Utf8))
+                }
                 ColKind::Str => DataType::Utf8,
             };
-            Field::new(&c.name, dt, c.nullable).with_metadata(HashMap::from([("unit".to_string(), c.unit.to_string())]))
+            Field::new(&c.name, dt, c.nullable)
+                .with_metadata(HashMap::from([("unit".to_string(), c.unit.to_string())]))
         })
         .collect();
     Arc::new(Schema::new(fields))

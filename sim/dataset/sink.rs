@@ -30,7 +30,10 @@ impl Format {
 
 pub enum Sink {
     Parquet(ArrowWriter<BufWriter<File>>),
-    Csv { out: BufWriter<File>, tz: jiff::tz::TimeZone },
+    Csv {
+        out: BufWriter<File>,
+        tz: jiff::tz::TimeZone,
+    },
 }
 
 fn to_io(e: impl std::fmt::Display) -> io::Error {
@@ -38,20 +41,33 @@ fn to_io(e: impl std::fmt::Display) -> io::Error {
 }
 
 impl Sink {
-    pub fn create(path: &Path, format: Format, schema: Arc<Schema>, timezone: &str) -> io::Result<Sink> {
+    pub fn create(
+        path: &Path,
+        format: Format,
+        schema: Arc<Schema>,
+        timezone: &str,
+    ) -> io::Result<Sink> {
         let file = BufWriter::with_capacity(1 << 20, File::create(path)?);
         match format {
             Format::Parquet => {
                 // Row groups of 128 Ki rows keep the writer's buffers small
                 // (memory independent of the run length).
-                let props = WriterProperties::builder().set_compression(Compression::SNAPPY).set_max_row_group_row_count(Some(128 * 1024)).build();
-                Ok(Sink::Parquet(ArrowWriter::try_new(file, schema, Some(props)).map_err(to_io)?))
+                let props = WriterProperties::builder()
+                    .set_compression(Compression::SNAPPY)
+                    .set_max_row_group_row_count(Some(128 * 1024))
+                    .build();
+                Ok(Sink::Parquet(
+                    ArrowWriter::try_new(file, schema, Some(props)).map_err(to_io)?,
+                ))
             }
             Format::Csv => {
                 let mut out = file;
                 let names: Vec<&str> = schema.fields().iter().map(|f| f.name().as_str()).collect();
                 writeln!(out, "{}", names.join(","))?;
-                Ok(Sink::Csv { out, tz: jiff::tz::TimeZone::get(timezone).map_err(to_io)? })
+                Ok(Sink::Csv {
+                    out,
+                    tz: jiff::tz::TimeZone::get(timezone).map_err(to_io)?,
+                })
             }
         }
     }
@@ -86,7 +102,11 @@ fn csv_text(out: &mut impl Write, s: &str) -> io::Result<()> {
     }
 }
 
-fn write_csv(out: &mut BufWriter<File>, tz: &jiff::tz::TimeZone, b: &RecordBatch) -> io::Result<()> {
+fn write_csv(
+    out: &mut BufWriter<File>,
+    tz: &jiff::tz::TimeZone,
+    b: &RecordBatch,
+) -> io::Result<()> {
     let cols = b.columns();
     for r in 0..b.num_rows() {
         for (j, c) in cols.iter().enumerate() {
@@ -100,7 +120,9 @@ fn write_csv(out: &mut BufWriter<File>, tz: &jiff::tz::TimeZone, b: &RecordBatch
             match c.data_type() {
                 DataType::Timestamp(_, _) => {
                     let ms = c.as_primitive::<TimestampMillisecondType>().value(r);
-                    let z = jiff::Timestamp::from_millisecond(ms).map_err(to_io)?.to_zoned(tz.clone());
+                    let z = jiff::Timestamp::from_millisecond(ms)
+                        .map_err(to_io)?
+                        .to_zoned(tz.clone());
                     write!(out, "{}", z.strftime("%Y-%m-%dT%H:%M:%S%.3f%:z"))?;
                 }
                 DataType::Float32 => write!(out, "{}", c.as_primitive::<Float32Type>().value(r))?,

@@ -5,7 +5,10 @@ use super::schema::{self, Col};
 use crate::scenario::Scenario;
 use crate::simulate::{Chunk, Event};
 use arrow_array::types::Int16Type;
-use arrow_array::{ArrayRef, DictionaryArray, Float32Array, Float64Array, Int16Array, RecordBatch, StringArray, TimestampMillisecondArray};
+use arrow_array::{
+    ArrayRef, DictionaryArray, Float32Array, Float64Array, Int16Array, RecordBatch, StringArray,
+    TimestampMillisecondArray,
+};
 use arrow_schema::Schema;
 use std::sync::Arc;
 
@@ -33,11 +36,23 @@ fn f32s(v: &[f32]) -> ArrayRef {
 
 /// Readings: NaN stands for null.
 fn f32_readings(v: &[f32], keep: &[bool]) -> ArrayRef {
-    Arc::new(v.iter().zip(keep).filter(|(_, k)| **k).map(|(x, _)| (!x.is_nan()).then_some(*x)).collect::<Float32Array>())
+    Arc::new(
+        v.iter()
+            .zip(keep)
+            .filter(|(_, k)| **k)
+            .map(|(x, _)| (!x.is_nan()).then_some(*x))
+            .collect::<Float32Array>(),
+    )
 }
 
 fn f64_readings(v: &[f64], keep: &[bool]) -> ArrayRef {
-    Arc::new(v.iter().zip(keep).filter(|(_, k)| **k).map(|(x, _)| (!x.is_nan()).then_some(*x)).collect::<Float64Array>())
+    Arc::new(
+        v.iter()
+            .zip(keep)
+            .filter(|(_, k)| **k)
+            .map(|(x, _)| (!x.is_nan()).then_some(*x))
+            .collect::<Float64Array>(),
+    )
 }
 
 impl Tables {
@@ -57,18 +72,36 @@ impl Tables {
             step_ms: (s.run.step_s * 1000.0).round() as i64,
             clock_offset_s: s.faults.clock_offset_s,
             clock_drift: s.faults.clock_drift,
-            drop_rows: s.faults.dropouts.as_ref().is_some_and(|d| d.mode == crate::scenario::DropMode::Missing),
+            drop_rows: s
+                .faults
+                .dropouts
+                .as_ref()
+                .is_some_and(|d| d.mode == crate::scenario::DropMode::Missing),
             state_names: s
                 .appliances
                 .iter()
-                .map(|a| Arc::new(StringArray::from(a.states.iter().map(|st| st.name.clone()).collect::<Vec<_>>())) as ArrayRef)
+                .map(|a| {
+                    Arc::new(StringArray::from(
+                        a.states
+                            .iter()
+                            .map(|st| st.name.clone())
+                            .collect::<Vec<_>>(),
+                    )) as ArrayRef
+                })
                 .collect(),
-            app_ids: Arc::new(StringArray::from(s.appliances.iter().map(|a| a.id.clone()).collect::<Vec<_>>())),
+            app_ids: Arc::new(StringArray::from(
+                s.appliances
+                    .iter()
+                    .map(|a| a.id.clone())
+                    .collect::<Vec<_>>(),
+            )),
         }
     }
 
     fn times(&self, ms: impl Iterator<Item = i64>) -> ArrayRef {
-        Arc::new(TimestampMillisecondArray::from(ms.collect::<Vec<_>>()).with_timezone(self.tz.clone()))
+        Arc::new(
+            TimestampMillisecondArray::from(ms.collect::<Vec<_>>()).with_timezone(self.tz.clone()),
+        )
     }
 
     /// Start of reporting interval `row`, ms since 1970 UTC.
@@ -79,7 +112,8 @@ impl Tables {
     /// The meter's label for row `row`: its clock's offset and drift added.
     pub fn meter_time_ms(&self, row: u64) -> i64 {
         let elapsed_s = row as f64 * self.interval_ms as f64 / 1000.0;
-        self.row_time_ms(row) + ((self.clock_offset_s + self.clock_drift * elapsed_s) * 1000.0).round() as i64
+        self.row_time_ms(row)
+            + ((self.clock_offset_s + self.clock_drift * elapsed_s) * 1000.0).round() as i64
     }
 
     pub fn step_time_ms(&self, step: u64) -> i64 {
@@ -89,19 +123,35 @@ impl Tables {
     pub fn meters_batch(&self, c: &Chunk) -> RecordBatch {
         let r = &c.readings;
         // Rows lost to a dropout in the "missing" form are left out.
-        let keep: Vec<bool> = if self.drop_rows { r.present.clone() } else { vec![true; r.rows()] };
-        let times = (0..r.rows() as u64).filter(|&i| keep[i as usize]).map(|i| self.meter_time_ms(c.first_row + i));
+        let keep: Vec<bool> = if self.drop_rows {
+            r.present.clone()
+        } else {
+            vec![true; r.rows()]
+        };
+        let times = (0..r.rows() as u64)
+            .filter(|&i| keep[i as usize])
+            .map(|i| self.meter_time_ms(c.first_row + i));
         let mut cols = vec![self.times(times)];
         for x in 0..r.line_p.len() {
-            cols.extend([f32_readings(&r.line_p[x], &keep), f32_readings(&r.line_q[x], &keep), f32_readings(&r.line_v[x], &keep), f32_readings(&r.line_i[x], &keep)]);
+            cols.extend([
+                f32_readings(&r.line_p[x], &keep),
+                f32_readings(&r.line_q[x], &keep),
+                f32_readings(&r.line_v[x], &keep),
+                f32_readings(&r.line_i[x], &keep),
+            ]);
         }
-        cols.extend([f32_readings(&r.n_i, &keep), f32_readings(&r.total_p, &keep), f32_readings(&r.total_q, &keep)]);
+        cols.extend([
+            f32_readings(&r.n_i, &keep),
+            f32_readings(&r.total_p, &keep),
+            f32_readings(&r.total_q, &keep),
+        ]);
         if self.meters.iter().any(|c| c.name.ends_with("_energy_wh")) {
             for e in &r.energy {
                 cols.push(f64_readings(e, &keep));
             }
         }
-        RecordBatch::try_new(self.meters_schema.clone(), cols).expect("columns follow the meters schema")
+        RecordBatch::try_new(self.meters_schema.clone(), cols)
+            .expect("columns follow the meters schema")
     }
 
     pub fn truth_batch(&self, c: &Chunk) -> RecordBatch {
@@ -111,26 +161,50 @@ impl Tables {
         for k in 0..t.app_p.len() {
             cols.push(f32s(&t.app_p[k]));
             cols.push(f32s(&t.app_q[k]));
-            let keys = Int16Array::from(t.app_state[k].iter().map(|&s| s as i16).collect::<Vec<_>>());
-            cols.push(Arc::new(DictionaryArray::<Int16Type>::try_new(keys, self.state_names[k].clone()).expect("state index in range")));
+            let keys =
+                Int16Array::from(t.app_state[k].iter().map(|&s| s as i16).collect::<Vec<_>>());
+            cols.push(Arc::new(
+                DictionaryArray::<Int16Type>::try_new(keys, self.state_names[k].clone())
+                    .expect("state index in range"),
+            ));
             for lp in &t.app_line_p[k] {
                 cols.push(f32s(lp));
             }
         }
         cols.push(f32s(&t.unmetered_p));
-        RecordBatch::try_new(self.truth_schema.clone(), cols).expect("columns follow the truth schema")
+        RecordBatch::try_new(self.truth_schema.clone(), cols)
+            .expect("columns follow the truth schema")
     }
 
     pub fn events_batch(&self, s: &Scenario, events: &[Event], step_s: f64) -> RecordBatch {
         let keys = Int16Array::from(events.iter().map(|e| e.app as i16).collect::<Vec<_>>());
         let cols: Vec<ArrayRef> = vec![
-            Arc::new(DictionaryArray::<Int16Type>::try_new(keys, self.app_ids.clone()).expect("app index in range")),
-            Arc::new(StringArray::from(events.iter().map(|e| s.appliances[e.app].states[e.state as usize].name.clone()).collect::<Vec<_>>())),
+            Arc::new(
+                DictionaryArray::<Int16Type>::try_new(keys, self.app_ids.clone())
+                    .expect("app index in range"),
+            ),
+            Arc::new(StringArray::from(
+                events
+                    .iter()
+                    .map(|e| s.appliances[e.app].states[e.state as usize].name.clone())
+                    .collect::<Vec<_>>(),
+            )),
             self.times(events.iter().map(|e| self.step_time_ms(e.start_step))),
             self.times(events.iter().map(|e| self.step_time_ms(e.end_step))),
-            Arc::new(Float64Array::from(events.iter().map(|e| e.energy_j / ((e.end_step - e.start_step) as f64 * step_s)).collect::<Vec<_>>())),
-            Arc::new(Float64Array::from(events.iter().map(|e| e.energy_j / 3600.0).collect::<Vec<_>>())),
+            Arc::new(Float64Array::from(
+                events
+                    .iter()
+                    .map(|e| e.energy_j / ((e.end_step - e.start_step) as f64 * step_s))
+                    .collect::<Vec<_>>(),
+            )),
+            Arc::new(Float64Array::from(
+                events
+                    .iter()
+                    .map(|e| e.energy_j / 3600.0)
+                    .collect::<Vec<_>>(),
+            )),
         ];
-        RecordBatch::try_new(self.events_schema.clone(), cols).expect("columns follow the events schema")
+        RecordBatch::try_new(self.events_schema.clone(), cols)
+            .expect("columns follow the events schema")
     }
 }

@@ -35,10 +35,22 @@ pub struct Elem {
 
 /// Splits a draw into solver elements.
 pub fn elems_of(d: &crate::scenario::Draw) -> Vec<Elem> {
-    let el = |a, b, k: f64| Elem { a, b, p_w: d.p_w * k, q_var: d.q_var * k, zip_p: d.zip_p, zip_q: d.zip_q, nominal_v: d.nominal_v, harmonics: d.harmonics.clone() };
+    let el = |a, b, k: f64| Elem {
+        a,
+        b,
+        p_w: d.p_w * k,
+        q_var: d.q_var * k,
+        zip_p: d.zip_p,
+        zip_q: d.zip_q,
+        nominal_v: d.nominal_v,
+        harmonics: d.harmonics.clone(),
+    };
     match d.wiring {
         Connection::Pair(a, b) => vec![el(a, b, 1.0)],
-        Connection::ThreePhase => [(0u8, 1u8), (1, 2), (2, 0)].iter().map(|&(a, b)| el(a, b, 1.0 / 3.0)).collect(),
+        Connection::ThreePhase => [(0u8, 1u8), (1, 2), (2, 0)]
+            .iter()
+            .map(|&(a, b)| el(a, b, 1.0 / 3.0))
+            .collect(),
     }
 }
 
@@ -132,7 +144,13 @@ pub struct StepOut {
 
 impl StepOut {
     pub fn new(n_apps: usize) -> Self {
-        StepOut { i_line: [C64::ZERO; 3], v_ln: [C64::ZERO; 3], app_p: vec![0.0; n_apps], app_q: vec![0.0; n_apps], app_line_p: vec![[0.0; 3]; n_apps] }
+        StepOut {
+            i_line: [C64::ZERO; 3],
+            v_ln: [C64::ZERO; 3],
+            app_p: vec![0.0; n_apps],
+            app_q: vec![0.0; n_apps],
+            app_line_p: vec![[0.0; 3]; n_apps],
+        }
     }
 }
 

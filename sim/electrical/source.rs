@@ -32,7 +32,18 @@ impl SourceVoltage {
         // Start from the stationary distribution.
         let c = src.variation * rng.sample::<f64, _>(StandardNormal);
         let d = [0, 1, 2].map(|_| src.variation / 3.0 * rng.sample::<f64, _>(StandardNormal));
-        SourceVoltage { every, count: 0, held: [1.0; 3], a, kick_c: src.variation * k, kick_d: src.variation / 3.0 * k, band: src.band, c, d, rng }
+        SourceVoltage {
+            every,
+            count: 0,
+            held: [1.0; 3],
+            a,
+            kick_c: src.variation * k,
+            kick_d: src.variation / 3.0 * k,
+            band: src.band,
+            c,
+            d,
+            rng,
+        }
     }
 
     /// Advances one step; returns the per-line magnitude factors and whether
@@ -45,7 +56,8 @@ impl SourceVoltage {
         self.c = self.a * self.c + self.kick_c * self.rng.sample::<f64, _>(StandardNormal);
         let mut f = [1.0; 3];
         for x in 0..lines {
-            self.d[x] = self.a * self.d[x] + self.kick_d * self.rng.sample::<f64, _>(StandardNormal);
+            self.d[x] =
+                self.a * self.d[x] + self.kick_d * self.rng.sample::<f64, _>(StandardNormal);
             f[x] = 1.0 + (self.c + self.d[x]).clamp(-self.band, self.band);
         }
         self.held = f;

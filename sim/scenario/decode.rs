@@ -10,8 +10,13 @@ use std::path::{Path, PathBuf};
 
 /// Reads and checks a scenario file (and the templates it uses).
 pub fn load(path: &Path) -> Result<Scenario, Error> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| Error::file(path, format!("cannot read the scenario: {e}"), "check the path"))?;
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        Error::file(
+            path,
+            format!("cannot read the scenario: {e}"),
+            "check the path",
+        )
+    })?;
     load_str(path, text)
 }
 
@@ -26,7 +31,10 @@ pub fn load_str(path: &Path, text: String) -> Result<Scenario, Error> {
     let mut templates: Vec<(String, usize, Node)> = Vec::new();
     collect_templates(&root, &library_dirs, &mut sources, &mut templates)?;
     let ctx = Ctx { sources: &sources };
-    let name = path.file_stem().map(|s| s.to_string_lossy().to_string()).unwrap_or_else(|| "scenario".into());
+    let name = path
+        .file_stem()
+        .map(|s| s.to_string_lossy().to_string())
+        .unwrap_or_else(|| "scenario".into());
     decode(&ctx, &root, name, &templates)
 }
 
@@ -43,35 +51,65 @@ fn library_dirs(path: &Path, root: &Node, sources: &Sources) -> Result<Vec<PathB
     Ok(dirs)
 }
 
-fn collect_templates(root: &Node, dirs: &[PathBuf], sources: &mut Sources, out: &mut Vec<(String, usize, Node)>) -> Result<(), Error> {
-    let Val::Table(entries) = &root.v else { return Ok(()) };
-    let lists = entries.iter().filter(|e| e.key == "appliance" || e.key == "unmetered");
+fn collect_templates(
+    root: &Node,
+    dirs: &[PathBuf],
+    sources: &mut Sources,
+    out: &mut Vec<(String, usize, Node)>,
+) -> Result<(), Error> {
+    let Val::Table(entries) = &root.v else {
+        return Ok(());
+    };
+    let lists = entries
+        .iter()
+        .filter(|e| e.key == "appliance" || e.key == "unmetered");
     for (key, app, i) in lists.flat_map(|e| match &e.node.v {
-        Val::Arr(list) => list.iter().enumerate().map(|(i, a)| (e.key.as_str(), a, i)).collect::<Vec<_>>(),
+        Val::Arr(list) => list
+            .iter()
+            .enumerate()
+            .map(|(i, a)| (e.key.as_str(), a, i))
+            .collect::<Vec<_>>(),
         _ => vec![],
     }) {
         let Val::Table(fields) = &app.v else { continue };
-        let Some(t) = fields.iter().find(|e| e.key == "template") else { continue };
+        let Some(t) = fields.iter().find(|e| e.key == "template") else {
+            continue;
+        };
         let Val::Str(name) = &t.node.v else { continue };
         if out.iter().any(|(n, _, _)| n == name) {
             continue;
         }
-        let found = dirs.iter().map(|d| d.join(format!("{name}.toml"))).find(|p| p.is_file());
+        let found = dirs
+            .iter()
+            .map(|d| d.join(format!("{name}.toml")))
+            .find(|p| p.is_file());
         let (tpath, text) = match found {
             Some(p) => {
-                let text = std::fs::read_to_string(&p)
-                    .map_err(|e| Error::file(&p, format!("cannot read the template: {e}"), "check its permissions"))?;
+                let text = std::fs::read_to_string(&p).map_err(|e| {
+                    Error::file(
+                        &p,
+                        format!("cannot read the template: {e}"),
+                        "check its permissions",
+                    )
+                })?;
                 (p, text)
             }
             None => match library::builtin(name) {
-                Some(text) => (PathBuf::from(format!("<built-in library>/{name}.toml")), text.to_string()),
+                Some(text) => (
+                    PathBuf::from(format!("<built-in library>/{name}.toml")),
+                    text.to_string(),
+                ),
                 None => {
                     let ctx = Ctx { sources };
                     return Err(ctx.err(
                         &t.node,
                         &format!("{key}[{i}].template"),
                         format!("no template named \"{name}\""),
-                        format!("templates built in: {}; or put {name}.toml in {}", library::names().join(", "), dirs[0].display()),
+                        format!(
+                            "templates built in: {}; or put {name}.toml in {}",
+                            library::names().join(", "),
+                            dirs[0].display()
+                        ),
                     ));
                 }
             },
@@ -96,27 +134,59 @@ fn merge(base: &Node, over: &Node) -> Node {
                     out.push(e.clone());
                 }
             }
-            Node { v: Val::Table(out), src: over.src.clone() }
+            Node {
+                v: Val::Table(out),
+                src: over.src.clone(),
+            }
         }
         _ => over.clone(),
     }
 }
 
-fn decode(ctx: &Ctx, root: &Node, name: String, templates: &[(String, usize, Node)]) -> Result<Scenario, Error> {
+fn decode(
+    ctx: &Ctx,
+    root: &Node,
+    name: String,
+    templates: &[(String, usize, Node)],
+) -> Result<Scenario, Error> {
     let top = ctx.table(root, "")?;
     let _ = top.opt("library");
-    let home = decode_home(ctx, top.req("home", "the [home] section: supply, voltage, timezone")?)?;
-    let run = decode_run(ctx, top.req("run", "the [run] section: start and length")?, &home)?;
+    let home = decode_home(
+        ctx,
+        top.req("home", "the [home] section: supply, voltage, timezone")?,
+    )?;
+    let run = decode_run(
+        ctx,
+        top.req("run", "the [run] section: start and length")?,
+        &home,
+    )?;
     let meter = match top.opt("meter") {
         Some(n) => decode_meter(ctx, n, &run)?,
-        None => Meter { interval_s: run.step_s, noise_relative: 0.0, noise_floor_w: 0.0, resolution_w: 0.0 },
+        None => Meter {
+            interval_s: run.step_s,
+            noise_relative: 0.0,
+            noise_floor_w: 0.0,
+            resolution_w: 0.0,
+        },
     };
     let apps_node = top.req("appliance", "one [[appliance]] section per appliance")?;
     if ctx.array(apps_node, "appliance")?.is_empty() {
-        return Err(ctx.err(apps_node, "appliance", "a home needs at least one appliance", "add an [[appliance]] section"));
+        return Err(ctx.err(
+            apps_node,
+            "appliance",
+            "a home needs at least one appliance",
+            "add an [[appliance]] section",
+        ));
     }
     let mut appliances: Vec<Appliance> = Vec::new();
-    decode_list(ctx, apps_node, "appliance", &home, templates, &mut appliances)?;
+    decode_list(
+        ctx,
+        apps_node,
+        "appliance",
+        &home,
+        templates,
+        &mut appliances,
+    )?;
     // Unmetered loads: in the meters' aggregate, in truth only as their sum
     // `unmetered_p_w`; the same language as appliances.
     let metered = appliances.len();
@@ -133,7 +203,10 @@ fn decode(ctx: &Ctx, root: &Node, name: String, templates: &[(String, usize, Nod
     let unmetered = appliances.split_off(metered);
     let waveforms = match top.opt("waveform") {
         Some(n) => decode_waveforms(ctx, n, &home, &run)?,
-        None => Waveforms { rate_hz: DEFAULT_WAVE_RATE_HZ, windows: vec![] },
+        None => Waveforms {
+            rate_hz: DEFAULT_WAVE_RATE_HZ,
+            windows: vec![],
+        },
     };
     let faults = match top.opt("faults") {
         Some(n) => decode_faults(ctx, n, &home, &meter)?,
@@ -141,14 +214,37 @@ fn decode(ctx: &Ctx, root: &Node, name: String, templates: &[(String, usize, Nod
     };
     let metering = match top.opt("metering") {
         Some(n) => decode_metering(ctx, n, &home)?,
-        None => (0..home.supply.lines()).map(|x| MeterChannel { conductor: Some(x), reversed: false }).collect(),
+        None => (0..home.supply.lines())
+            .map(|x| MeterChannel {
+                conductor: Some(x),
+                reversed: false,
+            })
+            .collect(),
     };
     top.finish()?;
-    Ok(Scenario { name, home, run, meter, appliances, unmetered, faults, metering, waveforms, source_toml: None })
+    Ok(Scenario {
+        name,
+        home,
+        run,
+        meter,
+        appliances,
+        unmetered,
+        faults,
+        metering,
+        waveforms,
+        source_toml: None,
+    })
 }
 
 /// Decodes the `[[key]]` list into `out`; ids must be unique across all of `out`.
-fn decode_list(ctx: &Ctx, list_node: &Node, key: &str, home: &Home, templates: &[(String, usize, Node)], out: &mut Vec<Appliance>) -> Result<(), Error> {
+fn decode_list(
+    ctx: &Ctx,
+    list_node: &Node,
+    key: &str,
+    home: &Home,
+    templates: &[(String, usize, Node)],
+    out: &mut Vec<Appliance>,
+) -> Result<(), Error> {
     let list = ctx.array(list_node, key)?;
     for (i, node) in list.iter().enumerate() {
         let path = format!("{key}[{i}]");
@@ -158,7 +254,10 @@ fn decode_list(ctx: &Ctx, list_node: &Node, key: &str, home: &Home, templates: &
         if let Val::Table(fields) = &node.v {
             if let Some(t) = fields.iter().find(|e| e.key == "template") {
                 if let Val::Str(tname) = &t.node.v {
-                    let (_, _, tnode) = templates.iter().find(|(n, _, _)| n == tname).expect("templates collected");
+                    let (_, _, tnode) = templates
+                        .iter()
+                        .find(|(n, _, _)| n == tname)
+                        .expect("templates collected");
                     let tt = ctx.table(tnode, tname)?;
                     let inner = tt.req("appliance", "the template's [appliance] section")?;
                     tt.finish()?;
@@ -171,7 +270,12 @@ fn decode_list(ctx: &Ctx, list_node: &Node, key: &str, home: &Home, templates: &
         let app = decode_appliance(ctx, node, &path, home, template)?;
         if let Some(prev) = out.iter().position(|a| a.id == app.id) {
             let id_node = ctx.table(node, &path)?.opt("id").unwrap_or(node);
-            return Err(ctx.err(id_node, &format!("{path}.id"), format!("id \"{}\" is already used by load {prev}", app.id), "give every appliance and unmetered load its own id"));
+            return Err(ctx.err(
+                id_node,
+                &format!("{path}.id"),
+                format!("id \"{}\" is already used by load {prev}", app.id),
+                "give every appliance and unmetered load its own id",
+            ));
         }
         out.push(app);
     }
@@ -187,7 +291,12 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
         "three-phase" => SupplyKind::ThreePhase,
         "single-phase" => SupplyKind::SinglePhase,
         other => {
-            return Err(ctx.err(supply_node, "home.supply", format!("unknown supply \"{other}\""), "write \"split-phase\", \"three-phase\" or \"single-phase\""))
+            return Err(ctx.err(
+                supply_node,
+                "home.supply",
+                format!("unknown supply \"{other}\""),
+                "write \"split-phase\", \"three-phase\" or \"single-phase\"",
+            ))
         }
     };
     let voltage_v = match t.positive("voltage", Kind::Voltage)? {
@@ -201,7 +310,12 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
         Some(n) => {
             let f = ctx.positive(n, "home.frequency", Kind::Frequency)?;
             if f != 50.0 && f != 60.0 {
-                return Err(ctx.err(n, "home.frequency", format!("{f} Hz is not a mains frequency"), "write \"50 Hz\" or \"60 Hz\""));
+                return Err(ctx.err(
+                    n,
+                    "home.frequency",
+                    format!("{f} Hz is not a mains frequency"),
+                    "write \"50 Hz\" or \"60 Hz\"",
+                ));
             }
             f
         }
@@ -210,10 +324,18 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
         None => 50.0,
     };
     let service_a = t.positive("service", Kind::Current)?.unwrap_or(100.0);
-    let tz_node = t.req("timezone", "an IANA time zone such as \"America/Chicago\" or \"Europe/Berlin\"")?;
+    let tz_node = t.req(
+        "timezone",
+        "an IANA time zone such as \"America/Chicago\" or \"Europe/Berlin\"",
+    )?;
     let timezone = ctx.string(tz_node, "home.timezone")?.to_string();
     if jiff::tz::TimeZone::get(&timezone).is_err() {
-        return Err(ctx.err(tz_node, "home.timezone", format!("unknown time zone \"{timezone}\""), "write an IANA time zone name such as \"America/Chicago\" or \"Europe/Berlin\""));
+        return Err(ctx.err(
+            tz_node,
+            "home.timezone",
+            format!("unknown time zone \"{timezone}\""),
+            "write an IANA time zone name such as \"America/Chicago\" or \"Europe/Berlin\"",
+        ));
     }
     // Normal band: ANSI C84.1 Range A is ±5 % around 120 V (114–126 V); IEC 60038
     // allows ±10 % around 230 V (both from memory).
@@ -221,15 +343,29 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
     // Source impedance defaults: for 230 V the IEC 60725 reference impedance
     // (0.24 + j0.15 Ω phase, 0.16 + j0.10 Ω neutral, from memory); for 60 Hz
     // services a stiffer illustrative 0.05 + j0.03 Ω (common practice, no source).
-    let (lr, lx, nr, nx) = if frequency_hz == 50.0 { (0.24, 0.15, 0.16, 0.10) } else { (0.05, 0.03, 0.05, 0.03) };
+    let (lr, lx, nr, nx) = if frequency_hz == 50.0 {
+        (0.24, 0.15, 0.16, 0.10)
+    } else {
+        (0.05, 0.03, 0.05, 0.03)
+    };
     let source = match t.opt("source") {
-        None => Source { variation: 0.01, variation_time_s: 1800.0, band: band_default, line_r_ohm: lr, line_x_ohm: lx, neutral_r_ohm: nr, neutral_x_ohm: nx },
+        None => Source {
+            variation: 0.01,
+            variation_time_s: 1800.0,
+            band: band_default,
+            line_r_ohm: lr,
+            line_x_ohm: lx,
+            neutral_r_ohm: nr,
+            neutral_x_ohm: nx,
+        },
         Some(n) => {
             let s = ctx.table(n, "home.source")?;
             let src = Source {
                 variation: s.non_negative("variation", Kind::Fraction)?.unwrap_or(0.01),
                 variation_time_s: s.positive("period", Kind::Duration)?.unwrap_or(1800.0),
-                band: s.non_negative("band", Kind::Fraction)?.unwrap_or(band_default),
+                band: s
+                    .non_negative("band", Kind::Fraction)?
+                    .unwrap_or(band_default),
                 line_r_ohm: s.non_negative("r", Kind::Impedance)?.unwrap_or(lr),
                 line_x_ohm: s.non_negative("x", Kind::Impedance)?.unwrap_or(lx),
                 neutral_r_ohm: s.non_negative("neutral_r", Kind::Impedance)?.unwrap_or(nr),
@@ -247,7 +383,12 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
                 a[h] = w[h] > 0.0;
             }
             if a.iter().all(|x| *x) {
-                return Err(ctx.err(n, "home.away", "away all day leaves no hour to start anything", "write the hours nobody is home, e.g. away = \"8-17\""));
+                return Err(ctx.err(
+                    n,
+                    "home.away",
+                    "away all day leaves no hour to start anything",
+                    "write the hours nobody is home, e.g. away = \"8-17\"",
+                ));
             }
             Some(a)
         }
@@ -256,7 +397,17 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
     t.finish()?;
     let at = ctx.err(supply_node, "home.supply", "", "");
     let supply_at = format!("{}:{}:{}", at.file.display(), at.line, at.column);
-    Ok(Home { label, supply, voltage_v, frequency_hz, service_a, timezone, source, away, supply_at })
+    Ok(Home {
+        label,
+        supply,
+        voltage_v,
+        frequency_hz,
+        service_a,
+        timezone,
+        source,
+        away,
+        supply_at,
+    })
 }
 
 fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
@@ -264,39 +415,85 @@ fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
     let start_node = t.req("start", "the local start time, e.g. \"2027-01-04T00:00\"")?;
     let start_local = match &start_node.v {
         Val::Str(s) | Val::Date(s) => s.clone(),
-        _ => return Err(ctx.err(start_node, "run.start", "expected a local date-time", "write \"2027-01-04T00:00\"")),
+        _ => {
+            return Err(ctx.err(
+                start_node,
+                "run.start",
+                "expected a local date-time",
+                "write \"2027-01-04T00:00\"",
+            ))
+        }
     };
     let civil: jiff::civil::DateTime = start_local.parse().map_err(|e| {
-        ctx.err(start_node, "run.start", format!("\"{start_local}\" is not a local date-time ({e})"), "write \"YYYY-MM-DDTHH:MM\", in the home's time zone, without an offset")
+        ctx.err(
+            start_node,
+            "run.start",
+            format!("\"{start_local}\" is not a local date-time ({e})"),
+            "write \"YYYY-MM-DDTHH:MM\", in the home's time zone, without an offset",
+        )
     })?;
     let tz = jiff::tz::TimeZone::get(&home.timezone).expect("checked in home");
-    let zoned = civil.to_zoned(tz).map_err(|e| ctx.err(start_node, "run.start", format!("cannot place {start_local} in {}: {e}", home.timezone), "choose another start time"))?;
+    let zoned = civil.to_zoned(tz).map_err(|e| {
+        ctx.err(
+            start_node,
+            "run.start",
+            format!("cannot place {start_local} in {}: {e}", home.timezone),
+            "choose another start time",
+        )
+    })?;
     let start_utc_ms = zoned.timestamp().as_millisecond();
     let step_s = t.positive("step", Kind::Duration)?.unwrap_or(1.0);
     let step_node = t.opt("step").unwrap_or(node);
     if (step_s * 1000.0).fract().abs() > 1e-9 || step_s > 60.0 {
-        return Err(ctx.err(step_node, "run.step", format!("step {step_s} s is not a whole number of milliseconds up to a minute"), "write \"1 s\" (the usual) or another step from \"100 ms\" to \"1 min\""));
+        return Err(ctx.err(
+            step_node,
+            "run.step",
+            format!("step {step_s} s is not a whole number of milliseconds up to a minute"),
+            "write \"1 s\" (the usual) or another step from \"100 ms\" to \"1 min\"",
+        ));
     }
     let length_node = t.req("length", "how long to simulate, e.g. \"7 d\"")?;
     let length_s = ctx.positive(length_node, "run.length", Kind::Duration)?;
     if ((length_s / step_s).round() - length_s / step_s).abs() > 1e-6 {
-        return Err(ctx.err(length_node, "run.length", "the length is not a whole number of steps", format!("make it a multiple of the step ({step_s} s)")));
+        return Err(ctx.err(
+            length_node,
+            "run.length",
+            "the length is not a whole number of steps",
+            format!("make it a multiple of the step ({step_s} s)"),
+        ));
     }
-    let seed = t.opt("seed").map(|n| ctx.whole(n, "run.seed")).transpose()?.unwrap_or(1);
+    let seed = t
+        .opt("seed")
+        .map(|n| ctx.whole(n, "run.seed"))
+        .transpose()?
+        .unwrap_or(1);
     t.finish()?;
-    Ok(Run { start_local, start_utc_ms, length_s, step_s, seed })
+    Ok(Run {
+        start_local,
+        start_utc_ms,
+        length_s,
+        step_s,
+        seed,
+    })
 }
 
 fn decode_meter(ctx: &Ctx, node: &Node, run: &Run) -> Result<Meter, Error> {
     let t = ctx.table(node, "meter")?;
-    let interval_s = t.positive("interval", Kind::Duration)?.unwrap_or(run.step_s);
+    let interval_s = t
+        .positive("interval", Kind::Duration)?
+        .unwrap_or(run.step_s);
     let inode = t.opt("interval").unwrap_or(node);
     let k = interval_s / run.step_s;
     if k < 1.0 - 1e-9 || (k.round() - k).abs() > 1e-9 || interval_s > 3600.0 {
         return Err(ctx.err(inode, "meter.interval", format!("reporting interval {interval_s} s must be a whole number of steps ({} s), at most 1 h", run.step_s), "write \"1 s\", \"10 s\", \"1 min\", \"15 min\" or \"1 h\""));
     }
     if ((run.length_s / interval_s).round() - run.length_s / interval_s).abs() > 1e-6 {
-        return Err(ctx.err(inode, "meter.interval", "the run length is not a whole number of reporting intervals", "choose an interval that divides the run length"));
+        return Err(ctx.err(
+            inode,
+            "meter.interval",
+            "the run length is not a whole number of reporting intervals",
+            "choose an interval that divides the run length",
+        ));
     }
     let (mut rel, mut floor) = (0.0, 0.0);
     if let Some(n) = t.opt("noise") {
@@ -307,7 +504,12 @@ fn decode_meter(ctx: &Ctx, node: &Node, run: &Run) -> Result<Meter, Error> {
     }
     let resolution_w = t.non_negative("resolution", Kind::Power)?.unwrap_or(0.0);
     t.finish()?;
-    Ok(Meter { interval_s, noise_relative: rel, noise_floor_w: floor, resolution_w })
+    Ok(Meter {
+        interval_s,
+        noise_relative: rel,
+        noise_floor_w: floor,
+        resolution_w,
+    })
 }
 
 pub const DEFAULT_WAVE_RATE_HZ: f64 = 12_800.0;
@@ -322,27 +524,59 @@ pub fn check_wave_rate(rate: f64, run: &Run, home: &Home) -> Result<(), String> 
 }
 
 /// Places a waveform window (local start, length) in the run; None if outside.
-pub fn place_window(start_local: &str, length_s: f64, run: &Run, home: &Home) -> Result<WaveWindow, String> {
-    let civil: jiff::civil::DateTime = start_local.parse().map_err(|e| format!("\"{start_local}\" is not a local date-time ({e})"))?;
+pub fn place_window(
+    start_local: &str,
+    length_s: f64,
+    run: &Run,
+    home: &Home,
+) -> Result<WaveWindow, String> {
+    let civil: jiff::civil::DateTime = start_local
+        .parse()
+        .map_err(|e| format!("\"{start_local}\" is not a local date-time ({e})"))?;
     let tz = jiff::tz::TimeZone::get(&home.timezone).map_err(|e| e.to_string())?;
-    let ms = civil.to_zoned(tz).map_err(|e| e.to_string())?.timestamp().as_millisecond();
+    let ms = civil
+        .to_zoned(tz)
+        .map_err(|e| e.to_string())?
+        .timestamp()
+        .as_millisecond();
     let offset_s = (ms - run.start_utc_ms) as f64 / 1000.0;
     if offset_s < 0.0 || offset_s + length_s > run.length_s + 1e-9 {
-        return Err(format!("the window {start_local} + {length_s} s lies outside the run ({} for {} s)", run.start_local, run.length_s));
+        return Err(format!(
+            "the window {start_local} + {length_s} s lies outside the run ({} for {} s)",
+            run.start_local, run.length_s
+        ));
     }
-    if ((offset_s / run.step_s).round() - offset_s / run.step_s).abs() > 1e-9 || ((length_s / run.step_s).round() - length_s / run.step_s).abs() > 1e-9 {
-        return Err(format!("the window must start and end on whole steps ({} s)", run.step_s));
+    if ((offset_s / run.step_s).round() - offset_s / run.step_s).abs() > 1e-9
+        || ((length_s / run.step_s).round() - length_s / run.step_s).abs() > 1e-9
+    {
+        return Err(format!(
+            "the window must start and end on whole steps ({} s)",
+            run.step_s
+        ));
     }
     if length_s <= 0.0 || length_s > 3600.0 {
         return Err("a window is longer than zero and at most 1 h".into());
     }
-    Ok(WaveWindow { start_local: start_local.to_string(), offset_s, length_s })
+    Ok(WaveWindow {
+        start_local: start_local.to_string(),
+        offset_s,
+        length_s,
+    })
 }
 
 fn decode_waveforms(ctx: &Ctx, node: &Node, home: &Home, run: &Run) -> Result<Waveforms, Error> {
     let t = ctx.table(node, "waveform")?;
-    let rate_hz = t.positive("rate", Kind::Frequency)?.unwrap_or(DEFAULT_WAVE_RATE_HZ);
-    check_wave_rate(rate_hz, run, home).map_err(|m| ctx.err(t.opt("rate").unwrap_or(node), "waveform.rate", m, "write e.g. rate = \"12.8 kHz\""))?;
+    let rate_hz = t
+        .positive("rate", Kind::Frequency)?
+        .unwrap_or(DEFAULT_WAVE_RATE_HZ);
+    check_wave_rate(rate_hz, run, home).map_err(|m| {
+        ctx.err(
+            t.opt("rate").unwrap_or(node),
+            "waveform.rate",
+            m,
+            "write e.g. rate = \"12.8 kHz\"",
+        )
+    })?;
     let mut windows = Vec::new();
     if let Some(list) = t.opt("windows") {
         for (i, n) in ctx.array(list, "waveform.windows")?.iter().enumerate() {
@@ -351,11 +585,25 @@ fn decode_waveforms(ctx: &Ctx, node: &Node, home: &Home, run: &Run) -> Result<Wa
             let sn = w.req("start", "the local start time, e.g. \"2027-01-04T18:00\"")?;
             let start = match &sn.v {
                 Val::Str(s) | Val::Date(s) => s.clone(),
-                _ => return Err(ctx.err(sn, &w.path_of("start"), "expected a local date-time", "write \"2027-01-04T18:00\"")),
+                _ => {
+                    return Err(ctx.err(
+                        sn,
+                        &w.path_of("start"),
+                        "expected a local date-time",
+                        "write \"2027-01-04T18:00\"",
+                    ))
+                }
             };
-            let length = ctx.positive(w.req("length", "how long, e.g. \"10 s\"")?, &w.path_of("length"), Kind::Duration)?;
+            let length = ctx.positive(
+                w.req("length", "how long, e.g. \"10 s\"")?,
+                &w.path_of("length"),
+                Kind::Duration,
+            )?;
             w.finish()?;
-            windows.push(place_window(&start, length, run, home).map_err(|m| ctx.err(n, &path, m, "choose a window inside the run"))?);
+            windows.push(
+                place_window(&start, length, run, home)
+                    .map_err(|m| ctx.err(n, &path, m, "choose a window inside the run"))?,
+            );
         }
     }
     t.finish()?;
@@ -363,7 +611,9 @@ fn decode_waveforms(ctx: &Ctx, node: &Node, home: &Home, run: &Run) -> Result<Wa
 }
 
 fn decode_harmonics(ctx: &Ctx, t: &Table, load: LoadKind) -> Result<Vec<Harmonic>, Error> {
-    let Some(n) = t.opt("harmonics") else { return Ok(load.default_harmonics()) };
+    let Some(n) = t.opt("harmonics") else {
+        return Ok(load.default_harmonics());
+    };
     let path = t.path_of("harmonics");
     let help = "write a preset (\"resistive\", \"motor\", \"rectifier\", \"led\") or a list [ { order = 3, magnitude = \"80 %\", phase = \"180 deg\" }, … ]";
     match &n.v {
@@ -372,7 +622,12 @@ fn decode_harmonics(ctx: &Ctx, t: &Table, load: LoadKind) -> Result<Vec<Harmonic
             "motor" => Ok(LoadKind::Motor.default_harmonics()),
             "rectifier" | "electronic" => Ok(LoadKind::Electronic.default_harmonics()),
             "led" | "lighting" => Ok(LoadKind::Lighting.default_harmonics()),
-            other => Err(ctx.err(n, &path, format!("unknown harmonic preset \"{other}\""), help)),
+            other => Err(ctx.err(
+                n,
+                &path,
+                format!("unknown harmonic preset \"{other}\""),
+                help,
+            )),
         },
         Val::Arr(list) => {
             let mut out = Vec::new();
@@ -381,20 +636,41 @@ fn decode_harmonics(ctx: &Ctx, t: &Table, load: LoadKind) -> Result<Vec<Harmonic
                 let on = ht.req("order", "an odd order, 3 … 49")?;
                 let order = match on.v {
                     Val::Int(o) if o >= 3 && o <= 49 && o % 2 == 1 => o as u32,
-                    _ => return Err(ctx.err(on, &ht.path_of("order"), "the order must be an odd whole number from 3 to 49", help)),
+                    _ => {
+                        return Err(ctx.err(
+                            on,
+                            &ht.path_of("order"),
+                            "the order must be an odd whole number from 3 to 49",
+                            help,
+                        ))
+                    }
                 };
                 let mn = ht.req("magnitude", "relative to the fundamental, e.g. \"80 %\"")?;
                 let magnitude = ctx.non_negative(mn, &ht.path_of("magnitude"), Kind::Fraction)?;
                 if magnitude > 2.0 {
-                    return Err(ctx.err(mn, &ht.path_of("magnitude"), "a harmonic above 200 % of the fundamental", help));
+                    return Err(ctx.err(
+                        mn,
+                        &ht.path_of("magnitude"),
+                        "a harmonic above 200 % of the fundamental",
+                        help,
+                    ));
                 }
                 let phase_deg = ht.quantity("phase", Kind::Angle)?.unwrap_or(0.0);
                 ht.finish()?;
-                out.push(Harmonic { order, magnitude, phase_deg });
+                out.push(Harmonic {
+                    order,
+                    magnitude,
+                    phase_deg,
+                });
             }
             Ok(out)
         }
-        _ => Err(ctx.err(n, &path, format!("expected a preset or a list, found {}", n.type_name()), help)),
+        _ => Err(ctx.err(
+            n,
+            &path,
+            format!("expected a preset or a list, found {}", n.type_name()),
+            help,
+        )),
     }
 }
 
@@ -403,7 +679,12 @@ fn parse_line(ctx: &Ctx, node: &Node, path: &str, supply: SupplyKind) -> Result<
     let text = ctx.string(node, path)?;
     let lines: Vec<String> = (0..supply.lines()).map(|x| format!("L{}", x + 1)).collect();
     lines.iter().position(|l| l == text).ok_or_else(|| {
-        ctx.err(node, path, format!("\"{text}\" is not a line of this {} supply", supply.name()), format!("write one of {}", lines.join(", ")))
+        ctx.err(
+            node,
+            path,
+            format!("\"{text}\" is not a line of this {} supply", supply.name()),
+            format!("write one of {}", lines.join(", ")),
+        )
     })
 }
 
@@ -413,22 +694,41 @@ fn parse_line(ctx: &Ctx, node: &Node, path: &str, supply: SupplyKind) -> Result<
 fn decode_metering(ctx: &Ctx, node: &Node, home: &Home) -> Result<Vec<MeterChannel>, Error> {
     let t = ctx.table(node, "metering")?;
     let n = home.supply.lines();
-    let mut out: Vec<MeterChannel> = (0..n).map(|x| MeterChannel { conductor: Some(x), reversed: false }).collect();
+    let mut out: Vec<MeterChannel> = (0..n)
+        .map(|x| MeterChannel {
+            conductor: Some(x),
+            reversed: false,
+        })
+        .collect();
     for (x, key) in ["l1", "l2", "l3"].into_iter().enumerate() {
         let Some(cn) = t.opt(key) else { continue };
         let path = format!("metering.{key}");
         if x >= n {
-            return Err(ctx.err(cn, &path, format!("a {} supply has no channel {key}", home.supply.name()), format!("declare channels l1 … l{n} only")));
+            return Err(ctx.err(
+                cn,
+                &path,
+                format!("a {} supply has no channel {key}", home.supply.name()),
+                format!("declare channels l1 … l{n} only"),
+            ));
         }
         let c = ctx.table(cn, &path)?;
         if let Some(v) = c.opt("conductor") {
-            out[x].conductor = if ctx.string(v, &c.path_of("conductor"))? == "none" { None } else { Some(parse_line(ctx, v, &c.path_of("conductor"), home.supply)?) };
+            out[x].conductor = if ctx.string(v, &c.path_of("conductor"))? == "none" {
+                None
+            } else {
+                Some(parse_line(ctx, v, &c.path_of("conductor"), home.supply)?)
+            };
         }
         if let Some(v) = c.opt("orientation") {
             out[x].reversed = match ctx.string(v, &c.path_of("orientation"))? {
                 "to-load" => false,
                 "to-source" => true,
-                other => return Err(ctx.err(v, &c.path_of("orientation"), format!("unknown orientation \"{other}\""), "write \"to-load\" (the arrow on the CT points at the load) or \"to-source\"")),
+                other => return Err(ctx.err(
+                    v,
+                    &c.path_of("orientation"),
+                    format!("unknown orientation \"{other}\""),
+                    "write \"to-load\" (the arrow on the CT points at the load) or \"to-source\"",
+                )),
             };
         }
         c.finish()?;
@@ -445,19 +745,44 @@ fn decode_faults(ctx: &Ctx, node: &Node, home: &Home, meter: &Meter) -> Result<F
         for (i, n) in ctx.array(list, "faults.ct")?.iter().enumerate() {
             let path = format!("faults.ct[{i}]");
             let c = ctx.table(n, &path)?;
-            let line = parse_line(ctx, c.req("conductor", "the channel's line, e.g. \"L1\"")?, &c.path_of("conductor"), supply)?;
+            let line = parse_line(
+                ctx,
+                c.req("conductor", "the channel's line, e.g. \"L1\"")?,
+                &c.path_of("conductor"),
+                supply,
+            )?;
             let gain = c.quantity("gain", Kind::Fraction)?.unwrap_or(0.0);
             if gain.abs() > 0.5 {
-                return Err(ctx.err(c.opt("gain").unwrap(), &c.path_of("gain"), format!("a gain error of {:.0} % is not a CT that works", gain * 100.0), "write an error within ±50 %, e.g. gain = \"1.5 %\""));
+                return Err(ctx.err(
+                    c.opt("gain").unwrap(),
+                    &c.path_of("gain"),
+                    format!(
+                        "a gain error of {:.0} % is not a CT that works",
+                        gain * 100.0
+                    ),
+                    "write an error within ±50 %, e.g. gain = \"1.5 %\"",
+                ));
             }
             let phase_deg = c.quantity("phase", Kind::Angle)?.unwrap_or(0.0);
             if phase_deg.abs() > 30.0 {
-                return Err(ctx.err(c.opt("phase").unwrap(), &c.path_of("phase"), format!("a phase error of {phase_deg} deg is outside ±30 deg"), "write e.g. phase = \"1.2 deg\""));
+                return Err(ctx.err(
+                    c.opt("phase").unwrap(),
+                    &c.path_of("phase"),
+                    format!("a phase error of {phase_deg} deg is outside ±30 deg"),
+                    "write e.g. phase = \"1.2 deg\"",
+                ));
             }
             let reversed = match c.opt("reversed") {
                 Some(n) => match n.v {
                     Val::Bool(b) => b,
-                    _ => return Err(ctx.err(n, &c.path_of("reversed"), "expected true or false", "write reversed = true")),
+                    _ => {
+                        return Err(ctx.err(
+                            n,
+                            &c.path_of("reversed"),
+                            "expected true or false",
+                            "write reversed = true",
+                        ))
+                    }
                 },
                 None => false,
             };
@@ -465,7 +790,12 @@ fn decode_faults(ctx: &Ctx, node: &Node, home: &Home, meter: &Meter) -> Result<F
                 Some(n) => {
                     let x = parse_line(ctx, n, &c.path_of("on"), supply)?;
                     if x == line {
-                        return Err(ctx.err(n, &c.path_of("on"), "the CT is on its own conductor", "name another line, or leave `on` out"));
+                        return Err(ctx.err(
+                            n,
+                            &c.path_of("on"),
+                            "the CT is on its own conductor",
+                            "name another line, or leave `on` out",
+                        ));
                     }
                     Some(x)
                 }
@@ -473,19 +803,43 @@ fn decode_faults(ctx: &Ctx, node: &Node, home: &Home, meter: &Meter) -> Result<F
             };
             c.finish()?;
             if f.ct.iter().any(|x| x.line == line) {
-                return Err(ctx.err(n, &path, "this channel already has a CT fault", "give each channel one entry"));
+                return Err(ctx.err(
+                    n,
+                    &path,
+                    "this channel already has a CT fault",
+                    "give each channel one entry",
+                ));
             }
-            f.ct.push(CtFault { line, gain, phase_deg, reversed, on });
+            f.ct.push(CtFault {
+                line,
+                gain,
+                phase_deg,
+                reversed,
+                on,
+            });
         }
     }
     if let Some(n) = t.opt("swap") {
         let l = ctx.array(n, "faults.swap")?;
         if l.len() != 2 {
-            return Err(ctx.err(n, "faults.swap", "a swap names two lines", "write swap = [\"L1\", \"L2\"]"));
+            return Err(ctx.err(
+                n,
+                "faults.swap",
+                "a swap names two lines",
+                "write swap = [\"L1\", \"L2\"]",
+            ));
         }
-        let (a, b) = (parse_line(ctx, &l[0], "faults.swap[0]", supply)?, parse_line(ctx, &l[1], "faults.swap[1]", supply)?);
+        let (a, b) = (
+            parse_line(ctx, &l[0], "faults.swap[0]", supply)?,
+            parse_line(ctx, &l[1], "faults.swap[1]", supply)?,
+        );
         if a == b {
-            return Err(ctx.err(n, "faults.swap", "a line cannot be swapped with itself", "name two different lines"));
+            return Err(ctx.err(
+                n,
+                "faults.swap",
+                "a line cannot be swapped with itself",
+                "name two different lines",
+            ));
         }
         f.swap = Some((a.min(b), a.max(b)));
     }
@@ -497,16 +851,30 @@ fn decode_faults(ctx: &Ctx, node: &Node, home: &Home, meter: &Meter) -> Result<F
         let rn = d.req("rate", "the share of intervals lost, e.g. \"1 %\"")?;
         let rate = ctx.quantity(rn, "faults.dropouts.rate", Kind::Fraction)?;
         if !(0.0..=0.5).contains(&rate) {
-            return Err(ctx.err(rn, "faults.dropouts.rate", format!("a dropout rate of {} % is outside 0 … 50 %", rate * 100.0), "write e.g. rate = \"1 %\""));
+            return Err(ctx.err(
+                rn,
+                "faults.dropouts.rate",
+                format!("a dropout rate of {} % is outside 0 … 50 %", rate * 100.0),
+                "write e.g. rate = \"1 %\"",
+            ));
         }
         let length = match d.opt("length") {
             Some(n) => decode_dist(ctx, n, "faults.dropouts.length")?,
-            None => Dist::Fixed { value_s: meter.interval_s },
+            None => Dist::Fixed {
+                value_s: meter.interval_s,
+            },
         };
         let mode = match d.string("as")? {
             None | Some("null") => DropMode::Null,
             Some("missing") => DropMode::Missing,
-            Some(other) => return Err(ctx.err(d.opt("as").unwrap(), "faults.dropouts.as", format!("unknown dropout form \"{other}\""), "write as = \"null\" (rows kept, values null) or \"missing\" (rows absent)")),
+            Some(other) => {
+                return Err(ctx.err(
+                    d.opt("as").unwrap(),
+                    "faults.dropouts.as",
+                    format!("unknown dropout form \"{other}\""),
+                    "write as = \"null\" (rows kept, values null) or \"missing\" (rows absent)",
+                ))
+            }
         };
         d.finish()?;
         f.dropouts = Some(Dropouts { rate, length, mode });
@@ -523,7 +891,14 @@ fn decode_faults(ctx: &Ctx, node: &Node, home: &Home, meter: &Meter) -> Result<F
     if let Some(n) = t.opt("register") {
         f.register = match n.v {
             Val::Bool(b) => b,
-            _ => return Err(ctx.err(n, "faults.register", "expected true or false", "write register = true")),
+            _ => {
+                return Err(ctx.err(
+                    n,
+                    "faults.register",
+                    "expected true or false",
+                    "write register = true",
+                ))
+            }
         };
     }
     t.finish()?;
@@ -531,25 +906,52 @@ fn decode_faults(ctx: &Ctx, node: &Node, home: &Home, meter: &Meter) -> Result<F
 }
 
 fn check_id(ctx: &Ctx, node: &Node, path: &str, id: &str) -> Result<(), Error> {
-    let ok = id.chars().next().is_some_and(|c| c.is_ascii_lowercase()) && id.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
+    let ok = id.chars().next().is_some_and(|c| c.is_ascii_lowercase())
+        && id
+            .chars()
+            .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
     if !ok {
         return Err(ctx.err(node, path, format!("\"{id}\" is not a valid id"), "ids start with a lower-case letter and hold only a-z, 0-9 and _ (e.g. \"water_heater\")"));
     }
     if id == "unmetered" || id == "total" || id == "time" {
-        return Err(ctx.err(node, path, format!("\"{id}\" is reserved"), "choose another id"));
+        return Err(ctx.err(
+            node,
+            path,
+            format!("\"{id}\" is reserved"),
+            "choose another id",
+        ));
     }
     Ok(())
 }
 
 /// Parses a wiring such as `L1-N`, `L2-L3` or `3P` and checks the supply has it.
-pub fn parse_wiring(ctx: &Ctx, node: &Node, path: &str, supply: SupplyKind) -> Result<Connection, Error> {
+pub fn parse_wiring(
+    ctx: &Ctx,
+    node: &Node,
+    path: &str,
+    supply: SupplyKind,
+) -> Result<Connection, Error> {
     let text = ctx.string(node, path)?;
     let n = supply.lines();
     let accepted = accepted_wirings(supply);
-    let bad = |msg: String| ctx.err(node, path, msg, format!("a {} supply accepts: {}", supply.name(), accepted.join(", ")));
+    let bad = |msg: String| {
+        ctx.err(
+            node,
+            path,
+            msg,
+            format!(
+                "a {} supply accepts: {}",
+                supply.name(),
+                accepted.join(", ")
+            ),
+        )
+    };
     if text == "3P" {
         if n != 3 {
-            return Err(bad(format!("\"3P\" needs a three-phase supply; this home is {}", supply.name())));
+            return Err(bad(format!(
+                "\"3P\" needs a three-phase supply; this home is {}",
+                supply.name()
+            )));
         }
         return Ok(Connection::ThreePhase);
     }
@@ -574,7 +976,11 @@ pub fn parse_wiring(ctx: &Ctx, node: &Node, path: &str, supply: SupplyKind) -> R
     }
     for t in [a, b] {
         if t != NEUTRAL && t as usize >= n {
-            return Err(bad(format!("{} does not exist on a {} supply", terminal_name(t), supply.name())));
+            return Err(bad(format!(
+                "{} does not exist on a {} supply",
+                terminal_name(t),
+                supply.name()
+            )));
         }
     }
     // Canonical order: neutral last; line pairs in the cyclic order L1-L2, L2-L3, L3-L1.
@@ -627,7 +1033,9 @@ fn decode_app_load(ctx: &Ctx, t: &Table, default: LoadKind) -> Result<LoadKind, 
 }
 
 fn decode_zip(ctx: &Ctx, t: &Table, key: &'static str, default: Zip) -> Result<Zip, Error> {
-    let Some(n) = t.opt(key) else { return Ok(default) };
+    let Some(n) = t.opt(key) else {
+        return Ok(default);
+    };
     let path = t.path_of(key);
     let zt = ctx.table(n, &path)?;
     let z = zt.number("z")?.unwrap_or(0.0);
@@ -635,24 +1043,50 @@ fn decode_zip(ctx: &Ctx, t: &Table, key: &'static str, default: Zip) -> Result<Z
     let p = zt.number("p")?.unwrap_or(0.0);
     zt.finish()?;
     if (z + i + p - 1.0).abs() > 1e-6 {
-        return Err(ctx.err(n, &path, format!("ZIP fractions sum to {}, not 1", z + i + p), "make z + i + p = 1 (for example { z = 0.5, i = 0.2, p = 0.3 })"));
+        return Err(ctx.err(
+            n,
+            &path,
+            format!("ZIP fractions sum to {}, not 1", z + i + p),
+            "make z + i + p = 1 (for example { z = 0.5, i = 0.2, p = 0.3 })",
+        ));
     }
     Ok(Zip { z, i, p })
 }
 
 /// Reads the keys of one draw (power, pf or q, wiring, load, zip, rated) from `t`.
-fn decode_draw_fields(ctx: &Ctx, t: &Table, home: &Home, defaults: &DrawDefaults) -> Result<Draw, Error> {
+fn decode_draw_fields(
+    ctx: &Ctx,
+    t: &Table,
+    home: &Home,
+    defaults: &DrawDefaults,
+) -> Result<Draw, Error> {
     let wiring = match t.opt("wiring") {
         Some(n) => parse_wiring(ctx, n, &t.path_of("wiring"), home.supply)?,
         None => defaults.wiring,
     };
     let load = decode_app_load(ctx, t, defaults.load)?;
     let zip_p = decode_zip(ctx, t, "zip", load.default_zip_p())?;
-    let zip_q = decode_zip(ctx, t, "zip_q", if t.has("zip") { zip_p } else { load.default_zip_q() })?;
+    let zip_q = decode_zip(
+        ctx,
+        t,
+        "zip_q",
+        if t.has("zip") {
+            zip_p
+        } else {
+            load.default_zip_q()
+        },
+    )?;
     let pnode = t.req("power", "the real power, e.g. \"1.5 kW\"")?;
     let mut p_w = ctx.non_negative(pnode, &t.path_of("power"), Kind::Power)?;
     let mut q_var = match (t.opt("pf"), t.opt("q")) {
-        (Some(n), Some(_)) => return Err(ctx.err(n, &t.path_of("pf"), "both pf and q are given", "give either pf (0 < pf ≤ 1, lagging) or q (reactive power with its sign)")),
+        (Some(n), Some(_)) => {
+            return Err(ctx.err(
+                n,
+                &t.path_of("pf"),
+                "both pf and q are given",
+                "give either pf (0 < pf ≤ 1, lagging) or q (reactive power with its sign)",
+            ))
+        }
         (Some(n), None) => {
             let pf = ctx.number(n, &t.path_of("pf"))?;
             if !(pf > 0.0 && pf <= 1.0) {
@@ -674,21 +1108,56 @@ fn decode_draw_fields(ctx: &Ctx, t: &Table, home: &Home, defaults: &DrawDefaults
         p_w *= zip_p.factor(u);
         q_var *= zip_q.factor(u);
     }
-    Ok(Draw { wiring, p_w, q_var, load, zip_p, zip_q, nominal_v, harmonics })
+    Ok(Draw {
+        wiring,
+        p_w,
+        q_var,
+        load,
+        zip_p,
+        zip_q,
+        nominal_v,
+        harmonics,
+    })
 }
 
 /// Reads a state's draws: either a `draws` array or the draw keys on the state itself.
-fn decode_draws(ctx: &Ctx, t: &Table, home: &Home, defaults: &DrawDefaults) -> Result<Vec<Draw>, Error> {
+fn decode_draws(
+    ctx: &Ctx,
+    t: &Table,
+    home: &Home,
+    defaults: &DrawDefaults,
+) -> Result<Vec<Draw>, Error> {
     if let Some(n) = t.opt("draws") {
-        for k in ["power", "pf", "q", "wiring", "zip", "zip_q", "rated", "load", "harmonics"] {
+        for k in [
+            "power",
+            "pf",
+            "q",
+            "wiring",
+            "zip",
+            "zip_q",
+            "rated",
+            "load",
+            "harmonics",
+        ] {
             if t.has(k) {
                 let e = t.entries().iter().find(|e| e.key == k).unwrap();
-                return Err(Error::at(ctx.sources, &e.key_src, &t.path_of(k), format!("`{k}` given beside `draws`"), "put it inside each entry of `draws`"));
+                return Err(Error::at(
+                    ctx.sources,
+                    &e.key_src,
+                    &t.path_of(k),
+                    format!("`{k}` given beside `draws`"),
+                    "put it inside each entry of `draws`",
+                ));
             }
         }
         let list = ctx.array(n, &t.path_of("draws"))?;
         if list.is_empty() {
-            return Err(ctx.err(n, &t.path_of("draws"), "`draws` is empty", "list at least one draw, or write power = \"0 W\""));
+            return Err(ctx.err(
+                n,
+                &t.path_of("draws"),
+                "`draws` is empty",
+                "list at least one draw, or write power = \"0 W\"",
+            ));
         }
         let mut out = Vec::new();
         for (j, d) in list.iter().enumerate() {
@@ -703,36 +1172,64 @@ fn decode_draws(ctx: &Ctx, t: &Table, home: &Home, defaults: &DrawDefaults) -> R
 }
 
 fn decode_inrush(ctx: &Ctx, t: &Table) -> Result<Option<Inrush>, Error> {
-    let Some(n) = t.opt("inrush") else { return Ok(None) };
+    let Some(n) = t.opt("inrush") else {
+        return Ok(None);
+    };
     let path = t.path_of("inrush");
     let it = ctx.table(n, &path)?;
-    let pnode = it.req("peak", "the multiple of steady power at switch-on, e.g. 5.0")?;
+    let pnode = it.req(
+        "peak",
+        "the multiple of steady power at switch-on, e.g. 5.0",
+    )?;
     let peak = ctx.number(pnode, &it.path_of("peak"))?;
     if !(1.0..=20.0).contains(&peak) {
-        return Err(ctx.err(pnode, &it.path_of("peak"), format!("inrush peak {peak} is outside 1 … 20"), "write the multiple of steady power, e.g. peak = 5.0"));
+        return Err(ctx.err(
+            pnode,
+            &it.path_of("peak"),
+            format!("inrush peak {peak} is outside 1 … 20"),
+            "write the multiple of steady power, e.g. peak = 5.0",
+        ));
     }
-    let decay_s = ctx.positive(it.req("decay", "the decay time constant, e.g. \"1.5 s\"")?, &it.path_of("decay"), Kind::Duration)?;
+    let decay_s = ctx.positive(
+        it.req("decay", "the decay time constant, e.g. \"1.5 s\"")?,
+        &it.path_of("decay"),
+        Kind::Duration,
+    )?;
     it.finish()?;
     Ok(Some(Inrush { peak, decay_s }))
 }
 
 pub fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Error> {
     if let Val::Str(_) = node.v {
-        return Ok(Dist::Fixed { value_s: ctx.positive(node, path, Kind::Duration)? });
+        return Ok(Dist::Fixed {
+            value_s: ctx.positive(node, path, Kind::Duration)?,
+        });
     }
     let t = ctx.table(node, path)?;
     let help = "write a duration (\"13 min\"), { median = \"13 min\", spread = 0.25 } (lognormal), { min = \"5 min\", max = \"9 min\" } (uniform) or { mean = \"40 min\", shape = 4 } (gamma)";
     let d = if t.has("median") {
         let median_s = t.positive("median", Kind::Duration)?.unwrap();
-        let sn = t.req("spread", "the standard deviation of ln(duration), e.g. 0.25")?;
+        let sn = t.req(
+            "spread",
+            "the standard deviation of ln(duration), e.g. 0.25",
+        )?;
         let spread = ctx.number(sn, &t.path_of("spread"))?;
         if spread <= 0.0 {
-            return Err(ctx.err(sn, &t.path_of("spread"), "spread must be greater than zero", "write the standard deviation of ln(duration), e.g. spread = 0.25"));
+            return Err(ctx.err(
+                sn,
+                &t.path_of("spread"),
+                "spread must be greater than zero",
+                "write the standard deviation of ln(duration), e.g. spread = 0.25",
+            ));
         }
         Dist::Lognormal { median_s, spread }
     } else if t.has("min") || t.has("max") {
-        let min_s = t.positive("min", Kind::Duration)?.ok_or_else(|| ctx.err(node, path, "uniform needs `min`", help))?;
-        let max_s = t.positive("max", Kind::Duration)?.ok_or_else(|| ctx.err(node, path, "uniform needs `max`", help))?;
+        let min_s = t
+            .positive("min", Kind::Duration)?
+            .ok_or_else(|| ctx.err(node, path, "uniform needs `min`", help))?;
+        let max_s = t
+            .positive("max", Kind::Duration)?
+            .ok_or_else(|| ctx.err(node, path, "uniform needs `max`", help))?;
         if max_s <= min_s {
             return Err(ctx.err(node, path, "max must be greater than min", help));
         }
@@ -742,11 +1239,18 @@ pub fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Error> {
         let sn = t.req("shape", "the gamma shape k, e.g. 4")?;
         let shape = ctx.number(sn, &t.path_of("shape"))?;
         if shape <= 0.0 {
-            return Err(ctx.err(sn, &t.path_of("shape"), "shape must be greater than zero", "write the gamma shape k, e.g. shape = 4"));
+            return Err(ctx.err(
+                sn,
+                &t.path_of("shape"),
+                "shape must be greater than zero",
+                "write the gamma shape k, e.g. shape = 4",
+            ));
         }
         Dist::Gamma { mean_s, shape }
     } else if t.has("fixed") {
-        Dist::Fixed { value_s: t.positive("fixed", Kind::Duration)?.unwrap() }
+        Dist::Fixed {
+            value_s: t.positive("fixed", Kind::Duration)?.unwrap(),
+        }
     } else {
         return Err(ctx.err(node, path, "not a duration distribution", help));
     };
@@ -760,11 +1264,24 @@ fn parse_hours(ctx: &Ctx, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
     match &node.v {
         Val::Str(s) => {
             for part in s.split(',') {
-                let (a, b) = part.trim().split_once('-').ok_or_else(|| ctx.err(node, path, format!("\"{part}\" is not an hour range"), help))?;
-                let a: usize = a.trim().parse().map_err(|_| ctx.err(node, path, format!("\"{a}\" is not an hour"), help))?;
-                let b: usize = b.trim().parse().map_err(|_| ctx.err(node, path, format!("\"{b}\" is not an hour"), help))?;
+                let (a, b) = part.trim().split_once('-').ok_or_else(|| {
+                    ctx.err(node, path, format!("\"{part}\" is not an hour range"), help)
+                })?;
+                let a: usize = a
+                    .trim()
+                    .parse()
+                    .map_err(|_| ctx.err(node, path, format!("\"{a}\" is not an hour"), help))?;
+                let b: usize = b
+                    .trim()
+                    .parse()
+                    .map_err(|_| ctx.err(node, path, format!("\"{b}\" is not an hour"), help))?;
                 if a > 23 || b > 24 || a == b {
-                    return Err(ctx.err(node, path, format!("\"{part}\" is not a range of hours within 0 … 24"), help));
+                    return Err(ctx.err(
+                        node,
+                        path,
+                        format!("\"{part}\" is not a range of hours within 0 … 24"),
+                        help,
+                    ));
                 }
                 // A range that wraps past midnight ("22-6") is allowed.
                 let len = if b > a { b - a } else { b + 24 - a };
@@ -775,17 +1292,37 @@ fn parse_hours(ctx: &Ctx, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
         }
         Val::Arr(list) => {
             if list.len() != 24 {
-                return Err(ctx.err(node, path, format!("{} weights given, 24 needed", list.len()), help));
+                return Err(ctx.err(
+                    node,
+                    path,
+                    format!("{} weights given, 24 needed", list.len()),
+                    help,
+                ));
             }
             for (i, n) in list.iter().enumerate() {
                 let x = ctx.number(n, &format!("{path}[{i}]"))?;
                 if x < 0.0 {
-                    return Err(ctx.err(n, &format!("{path}[{i}]"), "a weight cannot be negative", help));
+                    return Err(ctx.err(
+                        n,
+                        &format!("{path}[{i}]"),
+                        "a weight cannot be negative",
+                        help,
+                    ));
                 }
                 w[i] = x;
             }
         }
-        _ => return Err(ctx.err(node, path, format!("expected an hour range or 24 weights, found {}", node.type_name()), help)),
+        _ => {
+            return Err(ctx.err(
+                node,
+                path,
+                format!(
+                    "expected an hour range or 24 weights, found {}",
+                    node.type_name()
+                ),
+                help,
+            ))
+        }
     }
     let sum: f64 = w.iter().sum();
     if sum <= 0.0 {
@@ -796,16 +1333,29 @@ fn parse_hours(ctx: &Ctx, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
 
 fn decode_habit(ctx: &Ctx, node: &Node, path: &str) -> Result<Habit, Error> {
     let t = ctx.table(node, path)?;
-    let sn = t.req("starts_per_day", "the mean number of starts per day, e.g. 0.6")?;
+    let sn = t.req(
+        "starts_per_day",
+        "the mean number of starts per day, e.g. 0.6",
+    )?;
     let starts = ctx.number(sn, &t.path_of("starts_per_day"))?;
     if !(0.0..=100.0).contains(&starts) {
-        return Err(ctx.err(sn, &t.path_of("starts_per_day"), "starts per day must be within 0 … 100", "write e.g. starts_per_day = 0.6"));
+        return Err(ctx.err(
+            sn,
+            &t.path_of("starts_per_day"),
+            "starts per day must be within 0 … 100",
+            "write e.g. starts_per_day = 0.6",
+        ));
     }
     let weekend = match t.opt("weekend_starts_per_day") {
         Some(n) => {
             let w = ctx.number(n, &t.path_of("weekend_starts_per_day"))?;
             if !(0.0..=100.0).contains(&w) {
-                return Err(ctx.err(n, &t.path_of("weekend_starts_per_day"), "starts per day must be within 0 … 100", "write e.g. weekend_starts_per_day = 1.2"));
+                return Err(ctx.err(
+                    n,
+                    &t.path_of("weekend_starts_per_day"),
+                    "starts per day must be within 0 … 100",
+                    "write e.g. weekend_starts_per_day = 1.2",
+                ));
             }
             w
         }
@@ -816,26 +1366,56 @@ fn decode_habit(ctx: &Ctx, node: &Node, path: &str) -> Result<Habit, Error> {
         None => vec![1.0 / 24.0; 24],
     };
     t.finish()?;
-    Ok(Habit { starts_per_day: starts, weekend_starts_per_day: weekend, weekend_hour_weights: hour_weights.clone(), hour_weights })
+    Ok(Habit {
+        starts_per_day: starts,
+        weekend_starts_per_day: weekend,
+        weekend_hour_weights: hour_weights.clone(),
+        hour_weights,
+    })
 }
 
 fn state_name(ctx: &Ctx, t: &Table, fallback: &str) -> Result<String, Error> {
     let name = t.string("name")?.unwrap_or(fallback).to_string();
     if name.is_empty() {
-        return Err(ctx.err(t.node, &t.path_of("name"), "a state name cannot be empty", "write name = \"on\""));
+        return Err(ctx.err(
+            t.node,
+            &t.path_of("name"),
+            "a state name cannot be empty",
+            "write name = \"on\"",
+        ));
     }
     Ok(name)
 }
 
-fn read_state<'n, 's, 'c>(ctx: &'c Ctx<'s>, n: &'n Node, p: String, fallback: &str, home: &Home, defaults: &DrawDefaults) -> Result<(State, Table<'n, 's, 'c>), Error> {
+fn read_state<'n, 's, 'c>(
+    ctx: &'c Ctx<'s>,
+    n: &'n Node,
+    p: String,
+    fallback: &str,
+    home: &Home,
+    defaults: &DrawDefaults,
+) -> Result<(State, Table<'n, 's, 'c>), Error> {
     let st = ctx.table(n, &p)?;
     let name = state_name(ctx, &st, fallback)?;
     let draws = decode_draws(ctx, &st, home, defaults)?;
     let inrush = decode_inrush(ctx, &st)?;
-    Ok((State { name, draws, inrush }, st))
+    Ok((
+        State {
+            name,
+            draws,
+            inrush,
+        },
+        st,
+    ))
 }
 
-fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: Option<String>) -> Result<Appliance, Error> {
+fn decode_appliance(
+    ctx: &Ctx,
+    node: &Node,
+    path: &str,
+    home: &Home,
+    template: Option<String>,
+) -> Result<Appliance, Error> {
     let t = ctx.table(node, path)?;
     let _ = t.opt("template");
     let id_node = t.req("id", "a short id such as \"fridge\"")?;
@@ -844,7 +1424,10 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
     let path = format!("appliance[{id}]");
     let t = Table::rebase(t, path.clone());
     let label = t.string("label")?.unwrap_or(&id).to_string();
-    let wnode = t.req("wiring", "where it is connected, e.g. \"L1-N\", \"L1-L2\" or \"3P\"")?;
+    let wnode = t.req(
+        "wiring",
+        "where it is connected, e.g. \"L1-N\", \"L1-L2\" or \"3P\"",
+    )?;
     let wiring = parse_wiring(ctx, wnode, &t.path_of("wiring"), home.supply)?;
     let load = decode_app_load(ctx, &t, LoadKind::Resistive)?;
     let defaults = DrawDefaults { wiring, load };
@@ -856,7 +1439,12 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
         let n = t.req(key, "a list of states")?;
         let l = ctx.array(n, &t.path_of(key))?;
         if l.is_empty() {
-            return Err(ctx.err(n, &t.path_of(key), format!("`{key}` is empty"), "list at least one"));
+            return Err(ctx.err(
+                n,
+                &t.path_of(key),
+                format!("`{key}` is empty"),
+                "list at least one",
+            ));
         }
         Ok(l)
     };
@@ -868,7 +1456,11 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
             let mut dwell = Vec::new();
             for (i, n) in list.iter().enumerate() {
                 let (s, st) = read_state(n, format!("{path}.states[{i}]"), format!("s{i}"))?;
-                dwell.push(decode_dist(ctx, st.req("dwell", "how long it stays in this state")?, &st.path_of("dwell"))?);
+                dwell.push(decode_dist(
+                    ctx,
+                    st.req("dwell", "how long it stays in this state")?,
+                    &st.path_of("dwell"),
+                )?);
                 st.finish()?;
                 states.push(s);
             }
@@ -876,22 +1468,49 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
                 None => None,
                 Some(n) => {
                     let (s, st) = read_state(n, t.path_of("extra"), "extra".into())?;
-                    let length = decode_dist(ctx, st.req("length", "how long the extra state lasts")?, &st.path_of("length"))?;
-                    let every_s = ctx.positive(st.req("every", "how often it comes, e.g. \"8 h\"")?, &st.path_of("every"), Kind::Duration)?;
+                    let length = decode_dist(
+                        ctx,
+                        st.req("length", "how long the extra state lasts")?,
+                        &st.path_of("length"),
+                    )?;
+                    let every_s = ctx.positive(
+                        st.req("every", "how often it comes, e.g. \"8 h\"")?,
+                        &st.path_of("every"),
+                        Kind::Duration,
+                    )?;
                     st.finish()?;
                     states.push(s);
-                    Some(Extra { state: states.len() - 1, length, every_s })
+                    Some(Extra {
+                        state: states.len() - 1,
+                        length,
+                        every_s,
+                    })
                 }
             };
             Behaviour::Cycle { dwell, extra }
         }
         "program" => {
-            let habit = decode_habit(ctx, t.req("use", "the usage habit, e.g. { starts_per_day = 0.6, hours = \"17-22\" }")?, &t.path_of("use"))?;
-            states.push(State { name: "off".into(), draws: vec![], inrush: None });
+            let habit = decode_habit(
+                ctx,
+                t.req(
+                    "use",
+                    "the usage habit, e.g. { starts_per_day = 0.6, hours = \"17-22\" }",
+                )?,
+                &t.path_of("use"),
+            )?;
+            states.push(State {
+                name: "off".into(),
+                draws: vec![],
+                inrush: None,
+            });
             let mut lengths = Vec::new();
             for (i, n) in states_list("phases")?.iter().enumerate() {
                 let (s, st) = read_state(n, format!("{path}.phases[{i}]"), format!("phase{i}"))?;
-                lengths.push(decode_dist(ctx, st.req("length", "how long this phase lasts")?, &st.path_of("length"))?);
+                lengths.push(decode_dist(
+                    ctx,
+                    st.req("length", "how long this phase lasts")?,
+                    &st.path_of("length"),
+                )?);
                 st.finish()?;
                 states.push(s);
             }
@@ -903,8 +1522,15 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
             let mut next_nodes = Vec::new();
             for (i, n) in list.iter().enumerate() {
                 let (s, st) = read_state(n, format!("{path}.states[{i}]"), format!("s{i}"))?;
-                dwell.push(decode_dist(ctx, st.req("dwell", "how long it stays in this state")?, &st.path_of("dwell"))?);
-                let nn = st.req("next", "the probabilities of the next state, e.g. { idle = 0.7, busy = 0.3 }")?;
+                dwell.push(decode_dist(
+                    ctx,
+                    st.req("dwell", "how long it stays in this state")?,
+                    &st.path_of("dwell"),
+                )?);
+                let nn = st.req(
+                    "next",
+                    "the probabilities of the next state, e.g. { idle = 0.7, busy = 0.3 }",
+                )?;
                 next_nodes.push((nn, st.path_of("next")));
                 st.finish()?;
                 states.push(s);
@@ -916,17 +1542,40 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
                 let mut row = vec![0.0; states.len()];
                 for e in nt.entries() {
                     let j = states.iter().position(|s| s.name == e.key).ok_or_else(|| {
-                        Error::at(ctx.sources, &e.key_src, &format!("{p}.{}", e.key), format!("no state named \"{}\"", e.key), format!("states here: {}", states.iter().map(|s| s.name.as_str()).collect::<Vec<_>>().join(", ")))
+                        Error::at(
+                            ctx.sources,
+                            &e.key_src,
+                            &format!("{p}.{}", e.key),
+                            format!("no state named \"{}\"", e.key),
+                            format!(
+                                "states here: {}",
+                                states
+                                    .iter()
+                                    .map(|s| s.name.as_str())
+                                    .collect::<Vec<_>>()
+                                    .join(", ")
+                            ),
+                        )
                     })?;
                     let x = ctx.number(&e.node, &format!("{p}.{}", e.key))?;
                     if !(0.0..=1.0).contains(&x) {
-                        return Err(ctx.err(&e.node, &format!("{p}.{}", e.key), format!("probability {x} is outside 0 … 1"), "write a probability between 0 and 1"));
+                        return Err(ctx.err(
+                            &e.node,
+                            &format!("{p}.{}", e.key),
+                            format!("probability {x} is outside 0 … 1"),
+                            "write a probability between 0 and 1",
+                        ));
                     }
                     row[j] = x;
                 }
                 let sum: f64 = row.iter().sum();
                 if (sum - 1.0).abs() > 1e-6 {
-                    return Err(ctx.err(nn, &p, format!("the probabilities sum to {sum}, not 1"), "make the probabilities of the next state add up to 1"));
+                    return Err(ctx.err(
+                        nn,
+                        &p,
+                        format!("the probabilities sum to {sum}, not 1"),
+                        "make the probabilities of the next state add up to 1",
+                    ));
                 }
                 next.push(row);
                 nt.finish()?;
@@ -936,7 +1585,12 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
         "steady" => {
             let list = states_list("states")?;
             if list.len() != 1 {
-                return Err(ctx.err(t.opt("states").unwrap(), &t.path_of("states"), "a steady appliance has exactly one state", "list one state, or use behaviour = \"cycle\" or \"markov\""));
+                return Err(ctx.err(
+                    t.opt("states").unwrap(),
+                    &t.path_of("states"),
+                    "a steady appliance has exactly one state",
+                    "list one state, or use behaviour = \"cycle\" or \"markov\"",
+                ));
             }
             let (s, st) = read_state(&list[0], format!("{path}.states[0]"), "on".into())?;
             st.finish()?;
@@ -948,19 +1602,37 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
         "modulating" => {
             let list = states_list("states")?;
             if list.len() > 2 {
-                return Err(ctx.err(t.opt("states").unwrap(), &t.path_of("states"), "a modulating appliance has one state (running) or two (resting, running)", "list the running state last"));
+                return Err(ctx.err(
+                    t.opt("states").unwrap(),
+                    &t.path_of("states"),
+                    "a modulating appliance has one state (running) or two (resting, running)",
+                    "list the running state last",
+                ));
             }
             if list.len() == 1 {
-                states.push(State { name: "off".into(), draws: vec![], inrush: None });
+                states.push(State {
+                    name: "off".into(),
+                    draws: vec![],
+                    inrush: None,
+                });
             }
             for (i, n) in list.iter().enumerate() {
-                let (s, st) = read_state(n, format!("{path}.states[{i}]"), if i + 1 == list.len() { "run" } else { "rest" }.into())?;
+                let (s, st) = read_state(
+                    n,
+                    format!("{path}.states[{i}]"),
+                    if i + 1 == list.len() { "run" } else { "rest" }.into(),
+                )?;
                 st.finish()?;
                 states.push(s);
             }
             let min = t.non_negative("min", Kind::Fraction)?.unwrap_or(0.3);
             if min > 1.0 {
-                return Err(ctx.err(t.opt("min").unwrap(), &t.path_of("min"), "min is a share of full power and cannot exceed 100 %", "write e.g. min = \"30 %\""));
+                return Err(ctx.err(
+                    t.opt("min").unwrap(),
+                    &t.path_of("min"),
+                    "min is a share of full power and cannot exceed 100 %",
+                    "write e.g. min = \"30 %\"",
+                ));
             }
             let wander = t.non_negative("wander", Kind::Fraction)?.unwrap_or(0.05);
             let every_s = t.positive("every", Kind::Duration)?.unwrap_or(60.0);
@@ -968,15 +1640,33 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
                 None => None,
                 Some(u) => {
                     let habit = decode_habit(ctx, u, &t.path_of("use"))?;
-                    let length = decode_dist(ctx, t.req("session", "how long a session lasts")?, &t.path_of("session"))?;
+                    let length = decode_dist(
+                        ctx,
+                        t.req("session", "how long a session lasts")?,
+                        &t.path_of("session"),
+                    )?;
                     let taper_s = t.non_negative("taper", Kind::Duration)?.unwrap_or(0.0);
-                    Some(Session { habit, length, taper_s })
+                    Some(Session {
+                        habit,
+                        length,
+                        taper_s,
+                    })
                 }
             };
-            Behaviour::Modulating { min, wander, every_s, session }
+            Behaviour::Modulating {
+                min,
+                wander,
+                every_s,
+                session,
+            }
         }
         other => {
-            return Err(ctx.err(bnode, &t.path_of("behaviour"), format!("unknown behaviour \"{other}\""), "write \"cycle\", \"program\", \"markov\", \"steady\" or \"modulating\""));
+            return Err(ctx.err(
+                bnode,
+                &t.path_of("behaviour"),
+                format!("unknown behaviour \"{other}\""),
+                "write \"cycle\", \"program\", \"markov\", \"steady\" or \"modulating\"",
+            ));
         }
     };
     // Home-to-home variation (fleets): every draw's power, and every duration
@@ -986,7 +1676,12 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
     if let Some(n) = t.opt("habit_shift") {
         let hours = ctx.number(n, &t.path_of("habit_shift"))?;
         if hours.abs() > 12.0 {
-            return Err(ctx.err(n, &t.path_of("habit_shift"), "a habit shifted by more than 12 hours", "write hours within ±12, e.g. habit_shift = 1.5"));
+            return Err(ctx.err(
+                n,
+                &t.path_of("habit_shift"),
+                "a habit shifted by more than 12 hours",
+                "write hours within ±12, e.g. habit_shift = 1.5",
+            ));
         }
         for h in behaviour.habits_mut() {
             h.shift(hours);
@@ -996,7 +1691,12 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
         if let Some(n) = t.opt(key) {
             let k = ctx.number(n, &t.path_of(key))?;
             if !(0.1..=10.0).contains(&k) {
-                return Err(ctx.err(n, &t.path_of(key), format!("a {what} scale of {k} is outside 0.1 … 10"), "write a factor such as 1.1"));
+                return Err(ctx.err(
+                    n,
+                    &t.path_of(key),
+                    format!("a {what} scale of {k} is outside 0.1 … 10"),
+                    "write a factor such as 1.1",
+                ));
             }
             if key == "power_scale" {
                 for d in states.iter_mut().flat_map(|s| s.draws.iter_mut()) {
@@ -1013,7 +1713,15 @@ fn decode_appliance(ctx: &Ctx, node: &Node, path: &str, home: &Home, template: O
         None => default_threshold(&states),
     };
     t.finish()?;
-    Ok(Appliance { id, label, template, wiring, behaviour, states, on_threshold_w })
+    Ok(Appliance {
+        id,
+        label,
+        template,
+        wiring,
+        behaviour,
+        states,
+        on_threshold_w,
+    })
 }
 
 fn scale_times(b: &mut Behaviour, k: f64) {
@@ -1028,7 +1736,9 @@ fn scale_times(b: &mut Behaviour, k: f64) {
         Behaviour::Program { lengths, .. } => lengths.iter_mut().for_each(|d| *d = d.scaled(k)),
         Behaviour::Markov { dwell, .. } => dwell.iter_mut().for_each(|d| *d = d.scaled(k)),
         Behaviour::Steady { every_s, .. } => *every_s *= k,
-        Behaviour::Modulating { every_s, session, .. } => {
+        Behaviour::Modulating {
+            every_s, session, ..
+        } => {
             *every_s *= k;
             if let Some(s) = session {
                 s.length = s.length.scaled(k);

@@ -10,7 +10,33 @@ macro_rules! templates {
     };
 }
 
-templates!("baseboard_heater", "clothes_dryer", "coffee_maker", "computer", "dehumidifier", "dishwasher", "electric_range", "ev_charger", "freezer", "fridge", "furnace_blower", "game_console", "hair_dryer", "heat_pump", "heat_pump_water_heater", "induction_hob", "kettle", "led_lighting", "microwave", "router", "standby", "sump_pump", "tv", "washing_machine", "water_heater");
+templates!(
+    "baseboard_heater",
+    "clothes_dryer",
+    "coffee_maker",
+    "computer",
+    "dehumidifier",
+    "dishwasher",
+    "electric_range",
+    "ev_charger",
+    "freezer",
+    "fridge",
+    "furnace_blower",
+    "game_console",
+    "hair_dryer",
+    "heat_pump",
+    "heat_pump_water_heater",
+    "induction_hob",
+    "kettle",
+    "led_lighting",
+    "microwave",
+    "router",
+    "standby",
+    "sump_pump",
+    "tv",
+    "washing_machine",
+    "water_heater"
+);
 
 /// The text of a built-in template.
 pub fn builtin(name: &str) -> Option<&'static str> {

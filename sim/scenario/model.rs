@@ -62,7 +62,11 @@ impl Connection {
     pub fn lines(self) -> Vec<usize> {
         match self {
             Connection::ThreePhase => vec![0, 1, 2],
-            Connection::Pair(a, b) => [a, b].iter().filter(|&&t| t != NEUTRAL).map(|&t| t as usize).collect(),
+            Connection::Pair(a, b) => [a, b]
+                .iter()
+                .filter(|&&t| t != NEUTRAL)
+                .map(|&t| t as usize)
+                .collect(),
         }
     }
 }
@@ -119,10 +123,26 @@ impl LoadKind {
     ];
     pub fn default_zip_p(self) -> Zip {
         match self {
-            LoadKind::Resistive => Zip { z: 1.0, i: 0.0, p: 0.0 },
-            LoadKind::Motor => Zip { z: 0.2, i: 0.3, p: 0.5 },
-            LoadKind::Electronic => Zip { z: 0.0, i: 0.0, p: 1.0 },
-            LoadKind::Lighting => Zip { z: 0.2, i: 0.4, p: 0.4 },
+            LoadKind::Resistive => Zip {
+                z: 1.0,
+                i: 0.0,
+                p: 0.0,
+            },
+            LoadKind::Motor => Zip {
+                z: 0.2,
+                i: 0.3,
+                p: 0.5,
+            },
+            LoadKind::Electronic => Zip {
+                z: 0.0,
+                i: 0.0,
+                p: 1.0,
+            },
+            LoadKind::Lighting => Zip {
+                z: 0.2,
+                i: 0.4,
+                p: 0.4,
+            },
         }
     }
     /// Default harmonic signature (odd orders: magnitude relative to the
@@ -131,22 +151,48 @@ impl LoadKind {
     /// voltage peaks (strong 3rd and 5th, alternating signs); an LED driver
     /// with partial correction less; a motor almost none.
     pub fn default_harmonics(self) -> Vec<Harmonic> {
-        let h = |order: u32, magnitude: f64, phase_deg: f64| Harmonic { order, magnitude, phase_deg };
+        let h = |order: u32, magnitude: f64, phase_deg: f64| Harmonic {
+            order,
+            magnitude,
+            phase_deg,
+        };
         match self {
             LoadKind::Resistive => vec![],
             LoadKind::Motor => vec![h(3, 0.03, 0.0), h(5, 0.02, 0.0)],
-            LoadKind::Electronic => vec![h(3, 0.80, 180.0), h(5, 0.55, 0.0), h(7, 0.30, 180.0), h(9, 0.12, 0.0), h(11, 0.06, 180.0)],
+            LoadKind::Electronic => vec![
+                h(3, 0.80, 180.0),
+                h(5, 0.55, 0.0),
+                h(7, 0.30, 180.0),
+                h(9, 0.12, 0.0),
+                h(11, 0.06, 180.0),
+            ],
             LoadKind::Lighting => vec![h(3, 0.40, 180.0), h(5, 0.20, 0.0), h(7, 0.10, 180.0)],
         }
     }
 
     pub fn default_zip_q(self) -> Zip {
         match self {
-            LoadKind::Resistive => Zip { z: 1.0, i: 0.0, p: 0.0 },
+            LoadKind::Resistive => Zip {
+                z: 1.0,
+                i: 0.0,
+                p: 0.0,
+            },
             // Magnetising current grows faster than V: a larger z share.
-            LoadKind::Motor => Zip { z: 0.8, i: 0.2, p: 0.0 },
-            LoadKind::Electronic => Zip { z: 0.0, i: 0.0, p: 1.0 },
-            LoadKind::Lighting => Zip { z: 0.2, i: 0.4, p: 0.4 },
+            LoadKind::Motor => Zip {
+                z: 0.8,
+                i: 0.2,
+                p: 0.0,
+            },
+            LoadKind::Electronic => Zip {
+                z: 0.0,
+                i: 0.0,
+                p: 1.0,
+            },
+            LoadKind::Lighting => Zip {
+                z: 0.2,
+                i: 0.4,
+                p: 0.4,
+            },
         }
     }
 }
@@ -202,22 +248,44 @@ impl State {
 #[derive(Clone, Copy, Debug, Serialize)]
 #[serde(tag = "kind", rename_all = "lowercase")]
 pub enum Dist {
-    Fixed { value_s: f64 },
-    Uniform { min_s: f64, max_s: f64 },
+    Fixed {
+        value_s: f64,
+    },
+    Uniform {
+        min_s: f64,
+        max_s: f64,
+    },
     /// ln(X) ~ Normal(ln(median), spread²).
-    Lognormal { median_s: f64, spread: f64 },
+    Lognormal {
+        median_s: f64,
+        spread: f64,
+    },
     /// Shape k and mean; scale = mean / k.
-    Gamma { mean_s: f64, shape: f64 },
+    Gamma {
+        mean_s: f64,
+        shape: f64,
+    },
 }
 
 impl Dist {
     /// The same shape with every duration multiplied by `k`.
     pub fn scaled(self, k: f64) -> Dist {
         match self {
-            Dist::Fixed { value_s } => Dist::Fixed { value_s: value_s * k },
-            Dist::Uniform { min_s, max_s } => Dist::Uniform { min_s: min_s * k, max_s: max_s * k },
-            Dist::Lognormal { median_s, spread } => Dist::Lognormal { median_s: median_s * k, spread },
-            Dist::Gamma { mean_s, shape } => Dist::Gamma { mean_s: mean_s * k, shape },
+            Dist::Fixed { value_s } => Dist::Fixed {
+                value_s: value_s * k,
+            },
+            Dist::Uniform { min_s, max_s } => Dist::Uniform {
+                min_s: min_s * k,
+                max_s: max_s * k,
+            },
+            Dist::Lognormal { median_s, spread } => Dist::Lognormal {
+                median_s: median_s * k,
+                spread,
+            },
+            Dist::Gamma { mean_s, shape } => Dist::Gamma {
+                mean_s: mean_s * k,
+                shape,
+            },
         }
     }
 
@@ -276,7 +344,12 @@ impl Habit {
     /// Nobody is home on weekdays in the `away` hours: nothing starts then
     /// (unless nothing else remains).
     pub fn mask_weekdays(&mut self, away: &[bool; 24]) {
-        let w: Vec<f64> = self.hour_weights.iter().enumerate().map(|(h, x)| if away[h] { 0.0 } else { *x }).collect();
+        let w: Vec<f64> = self
+            .hour_weights
+            .iter()
+            .enumerate()
+            .map(|(h, x)| if away[h] { 0.0 } else { *x })
+            .collect();
         let sum: f64 = w.iter().sum();
         if sum > 0.0 {
             self.hour_weights = w.iter().map(|x| x / sum).collect();
@@ -305,17 +378,28 @@ pub struct Session {
 pub enum Behaviour {
     /// Thermostatic: visits the listed states in order, each for a dwell,
     /// with an optional periodic extra state (defrost).
-    Cycle { dwell: Vec<Dist>, extra: Option<Extra> },
+    Cycle {
+        dwell: Vec<Dist>,
+        extra: Option<Extra>,
+    },
     /// Ordered phases started by a habit; state 0 is the implicit `off`.
     Program { habit: Habit, lengths: Vec<Dist> },
     /// Dwell per state, then a jump with the given probabilities.
-    Markov { dwell: Vec<Dist>, next: Vec<Vec<f64>> },
+    Markov {
+        dwell: Vec<Dist>,
+        next: Vec<Vec<f64>>,
+    },
     /// Always on, power scaled by (1 + jitter·N(0,1)) every `every_s`.
     Steady { jitter: f64, every_s: f64 },
     /// Power wanders in [min, 1] of the running state's draws, updated every
     /// `every_s` by a reflected random walk of step `wander`; optionally only
     /// during sessions started by a habit, tapering to `min` at their end.
-    Modulating { min: f64, wander: f64, every_s: f64, session: Option<Session> },
+    Modulating {
+        min: f64,
+        wander: f64,
+        every_s: f64,
+        session: Option<Session>,
+    },
 }
 
 impl Behaviour {
@@ -323,7 +407,9 @@ impl Behaviour {
     pub fn habits_mut(&mut self) -> Vec<&mut Habit> {
         match self {
             Behaviour::Program { habit, .. } => vec![habit],
-            Behaviour::Modulating { session: Some(s), .. } => vec![&mut s.habit],
+            Behaviour::Modulating {
+                session: Some(s), ..
+            } => vec![&mut s.habit],
             _ => vec![],
         }
     }
@@ -480,7 +566,13 @@ pub struct Faults {
 
 impl Faults {
     pub fn is_empty(&self) -> bool {
-        self.ct.is_empty() && self.swap.is_none() && self.no_ct.is_none() && self.dropouts.is_none() && self.clock_offset_s == 0.0 && self.clock_drift == 0.0 && !self.register
+        self.ct.is_empty()
+            && self.swap.is_none()
+            && self.no_ct.is_none()
+            && self.dropouts.is_none()
+            && self.clock_offset_s == 0.0
+            && self.clock_drift == 0.0
+            && !self.register
     }
 }
 

@@ -11,28 +11,55 @@ pub struct Ctx<'s> {
 }
 
 impl<'s> Ctx<'s> {
-    pub fn err(&self, node: &Node, path: &str, msg: impl Into<String>, help: impl Into<String>) -> Error {
+    pub fn err(
+        &self,
+        node: &Node,
+        path: &str,
+        msg: impl Into<String>,
+        help: impl Into<String>,
+    ) -> Error {
         Error::at(self.sources, &node.src, path, msg, help)
     }
 
     pub fn table<'n>(&self, node: &'n Node, path: &str) -> Result<Table<'n, 's, '_>, Error> {
         match &node.v {
-            Val::Table(entries) => Ok(Table { ctx: self, node, entries, path: path.to_string(), asked: RefCell::new(Vec::new()) }),
-            _ => Err(self.err(node, path, format!("expected a table here, found {}", node.type_name()), "write `{ key = value, ... }` or a [section]")),
+            Val::Table(entries) => Ok(Table {
+                ctx: self,
+                node,
+                entries,
+                path: path.to_string(),
+                asked: RefCell::new(Vec::new()),
+            }),
+            _ => Err(self.err(
+                node,
+                path,
+                format!("expected a table here, found {}", node.type_name()),
+                "write `{ key = value, ... }` or a [section]",
+            )),
         }
     }
 
     pub fn array<'n>(&self, node: &'n Node, path: &str) -> Result<&'n [Node], Error> {
         match &node.v {
             Val::Arr(a) => Ok(a),
-            _ => Err(self.err(node, path, format!("expected an array here, found {}", node.type_name()), "write `[ ..., ... ]`")),
+            _ => Err(self.err(
+                node,
+                path,
+                format!("expected an array here, found {}", node.type_name()),
+                "write `[ ..., ... ]`",
+            )),
         }
     }
 
     pub fn string<'n>(&self, node: &'n Node, path: &str) -> Result<&'n str, Error> {
         match &node.v {
             Val::Str(s) => Ok(s),
-            _ => Err(self.err(node, path, format!("expected a string, found {}", node.type_name()), "put the value in double quotes")),
+            _ => Err(self.err(
+                node,
+                path,
+                format!("expected a string, found {}", node.type_name()),
+                "put the value in double quotes",
+            )),
         }
     }
 
@@ -40,7 +67,12 @@ impl<'s> Ctx<'s> {
         match node.v {
             Val::Int(i) => Ok(i as f64),
             Val::Float(f) if f.is_finite() => Ok(f),
-            _ => Err(self.err(node, path, format!("expected a number, found {}", node.type_name()), "write a plain number such as 0.6")),
+            _ => Err(self.err(
+                node,
+                path,
+                format!("expected a number, found {}", node.type_name()),
+                "write a plain number such as 0.6",
+            )),
         }
     }
 
@@ -48,13 +80,19 @@ impl<'s> Ctx<'s> {
     pub fn whole(&self, node: &Node, path: &str) -> Result<u64, Error> {
         match node.v {
             Val::Int(i) if i >= 0 => Ok(i as u64),
-            _ => Err(self.err(node, path, "expected a whole number zero or more", "write e.g. seed = 7")),
+            _ => Err(self.err(
+                node,
+                path,
+                "expected a whole number zero or more",
+                "write e.g. seed = 7",
+            )),
         }
     }
 
     pub fn quantity(&self, node: &Node, path: &str, kind: Kind) -> Result<f64, Error> {
         match &node.v {
-            Val::Str(s) => parse_quantity(s, kind).map_err(|m| self.err(node, path, m, format!("write {}", kind.example()))),
+            Val::Str(s) => parse_quantity(s, kind)
+                .map_err(|m| self.err(node, path, m, format!("write {}", kind.example()))),
             Val::Int(_) | Val::Float(_) if kind == Kind::Fraction => self.number(node, path),
             Val::Int(_) | Val::Float(_) => Err(self.err(
                 node,
@@ -62,7 +100,12 @@ impl<'s> Ctx<'s> {
                 format!("a {} needs a unit", kind.name()),
                 format!("write {}", kind.example()),
             )),
-            _ => Err(self.err(node, path, format!("expected {}, found {}", kind.example(), node.type_name()), format!("write {}", kind.example()))),
+            _ => Err(self.err(
+                node,
+                path,
+                format!("expected {}, found {}", kind.example(), node.type_name()),
+                format!("write {}", kind.example()),
+            )),
         }
     }
 
@@ -70,7 +113,12 @@ impl<'s> Ctx<'s> {
     pub fn positive(&self, node: &Node, path: &str, kind: Kind) -> Result<f64, Error> {
         let v = self.quantity(node, path, kind)?;
         if v <= 0.0 {
-            return Err(self.err(node, path, format!("a {} here must be greater than zero", kind.name()), format!("write {}", kind.example())));
+            return Err(self.err(
+                node,
+                path,
+                format!("a {} here must be greater than zero", kind.name()),
+                format!("write {}", kind.example()),
+            ));
         }
         Ok(v)
     }
@@ -79,7 +127,12 @@ impl<'s> Ctx<'s> {
     pub fn non_negative(&self, node: &Node, path: &str, kind: Kind) -> Result<f64, Error> {
         let v = self.quantity(node, path, kind)?;
         if v < 0.0 {
-            return Err(self.err(node, path, format!("a {} here cannot be negative", kind.name()), format!("write {}", kind.example())));
+            return Err(self.err(
+                node,
+                path,
+                format!("a {} here cannot be negative", kind.name()),
+                format!("write {}", kind.example()),
+            ));
         }
         Ok(v)
     }
@@ -119,7 +172,12 @@ impl<'n, 's, 'c> Table<'n, 's, 'c> {
 
     pub fn req(&self, key: &'static str, what: &str) -> Result<&'n Node, Error> {
         self.opt(key).ok_or_else(|| {
-            self.ctx.err(self.node, &self.path, format!("missing key `{key}`"), format!("add `{key} = ...` ({what})"))
+            self.ctx.err(
+                self.node,
+                &self.path,
+                format!("missing key `{key}`"),
+                format!("add `{key} = ...` ({what})"),
+            )
         })
     }
 
@@ -155,18 +213,28 @@ impl<'n, 's, 'c> Table<'n, 's, 'c> {
     }
 
     pub fn quantity(&self, key: &'static str, kind: Kind) -> Result<Option<f64>, Error> {
-        self.opt(key).map(|n| self.ctx.quantity(n, &self.path_of(key), kind)).transpose()
+        self.opt(key)
+            .map(|n| self.ctx.quantity(n, &self.path_of(key), kind))
+            .transpose()
     }
     pub fn positive(&self, key: &'static str, kind: Kind) -> Result<Option<f64>, Error> {
-        self.opt(key).map(|n| self.ctx.positive(n, &self.path_of(key), kind)).transpose()
+        self.opt(key)
+            .map(|n| self.ctx.positive(n, &self.path_of(key), kind))
+            .transpose()
     }
     pub fn non_negative(&self, key: &'static str, kind: Kind) -> Result<Option<f64>, Error> {
-        self.opt(key).map(|n| self.ctx.non_negative(n, &self.path_of(key), kind)).transpose()
+        self.opt(key)
+            .map(|n| self.ctx.non_negative(n, &self.path_of(key), kind))
+            .transpose()
     }
     pub fn string(&self, key: &'static str) -> Result<Option<&'n str>, Error> {
-        self.opt(key).map(|n| self.ctx.string(n, &self.path_of(key))).transpose()
+        self.opt(key)
+            .map(|n| self.ctx.string(n, &self.path_of(key)))
+            .transpose()
     }
     pub fn number(&self, key: &'static str) -> Result<Option<f64>, Error> {
-        self.opt(key).map(|n| self.ctx.number(n, &self.path_of(key))).transpose()
+        self.opt(key)
+            .map(|n| self.ctx.number(n, &self.path_of(key)))
+            .transpose()
     }
 }

@@ -84,7 +84,10 @@ pub fn parse_toml(sources: &Sources, file: usize) -> Result<Node, Error> {
             "check quoting, brackets and `=` on this line (quantities with units are strings: power = \"1.5 kW\")",
         )
     })?;
-    let whole = Src { file, span: 0..text.len() };
+    let whole = Src {
+        file,
+        span: 0..text.len(),
+    };
     Ok(table_node(doc.as_table(), file, &whole))
 }
 
@@ -112,9 +115,16 @@ fn table_node(t: &toml_edit::Table, file: usize, fallback: &Src) -> Node {
                 }
             }
         };
-        entries.push(Entry { key: k.to_string(), key_src, node });
+        entries.push(Entry {
+            key: k.to_string(),
+            key_src,
+            node,
+        });
     }
-    Node { v: Val::Table(entries), src: here }
+    Node {
+        v: Val::Table(entries),
+        src: here,
+    }
 }
 
 fn value_node(v: &toml_edit::Value, file: usize, fallback: &Src) -> Node {
@@ -131,7 +141,11 @@ fn value_node(v: &toml_edit::Value, file: usize, fallback: &Src) -> Node {
             let mut entries = Vec::new();
             for (k, x) in t.iter() {
                 let key_src = src_of(t.key(k).and_then(|k| k.span()), file, &src);
-                entries.push(Entry { key: k.to_string(), key_src, node: value_node(x, file, &src) });
+                entries.push(Entry {
+                    key: k.to_string(),
+                    key_src,
+                    node: value_node(x, file, &src),
+                });
             }
             Val::Table(entries)
         }
@@ -154,11 +168,20 @@ pub struct Error {
 }
 
 impl Error {
-    pub fn at(sources: &Sources, src: &Src, path: &str, message: impl Into<String>, help: impl Into<String>) -> Error {
+    pub fn at(
+        sources: &Sources,
+        src: &Src,
+        path: &str,
+        message: impl Into<String>,
+        help: impl Into<String>,
+    ) -> Error {
         let text = sources.text(src.file);
         let start = src.span.start.min(text.len());
         let line_start = text[..start].rfind('\n').map(|i| i + 1).unwrap_or(0);
-        let line_end = text[start..].find('\n').map(|i| start + i).unwrap_or(text.len());
+        let line_end = text[start..]
+            .find('\n')
+            .map(|i| start + i)
+            .unwrap_or(text.len());
         let line = text[..start].matches('\n').count() + 1;
         let column = text[line_start..start].chars().count() + 1;
         let end = src.span.end.clamp(start, line_end);
@@ -196,7 +219,13 @@ impl fmt::Display for Error {
         if self.line == 0 {
             write!(f, "  --> {}", self.file.display())?;
         } else {
-            write!(f, "  --> {}:{}:{}", self.file.display(), self.line, self.column)?;
+            write!(
+                f,
+                "  --> {}:{}:{}",
+                self.file.display(),
+                self.line,
+                self.column
+            )?;
         }
         if !self.path.is_empty() {
             write!(f, " (at {})", self.path)?;

@@ -23,7 +23,8 @@ pub struct Plotted {
 
 /// Distinct colours (a qualitative palette of our own choosing).
 const PALETTE: [&str; 20] = [
-    "#1f6fb4", "#f28e2b", "#3a9d3a", "#d13b3b", "#8c62b8", "#8c564b", "#e377c2", "#6b6b6b", "#b5b82a", "#17b3c7", "#9fc4e8", "#ffbf80", "#96d98a", "#ff9b96", "#c5b0d5", "#c49c94",
+    "#1f6fb4", "#f28e2b", "#3a9d3a", "#d13b3b", "#8c62b8", "#8c564b", "#e377c2", "#6b6b6b",
+    "#b5b82a", "#17b3c7", "#9fc4e8", "#ffbf80", "#96d98a", "#ff9b96", "#c5b0d5", "#c49c94",
     "#f7b6d2", "#c7c7c7", "#dbdb8d", "#9edae5",
 ];
 
@@ -45,28 +46,71 @@ pub fn write_picture(svg: &str, out: &Path) -> Result<(), String> {
             db.load_system_fonts();
             // "sans-serif" maps to whatever sans family the system has (fontdb
             // assumes Arial otherwise); without fonts the text is left out.
-            let family = db.faces().flat_map(|f| f.families.iter().map(|(n, _)| n.clone())).find(|n| n.contains("Sans") && !n.contains("Mono"));
+            let family = db
+                .faces()
+                .flat_map(|f| f.families.iter().map(|(n, _)| n.clone()))
+                .find(|n| n.contains("Sans") && !n.contains("Mono"));
             if let Some(f) = family {
                 db.set_sans_serif_family(f);
             }
-            let tree = resvg::usvg::Tree::from_str(svg, &opt).map_err(|e| err(out, format!("cannot render the plot: {e}"), "report this as a bug"))?;
+            let tree = resvg::usvg::Tree::from_str(svg, &opt).map_err(|e| {
+                err(
+                    out,
+                    format!("cannot render the plot: {e}"),
+                    "report this as a bug",
+                )
+            })?;
             let size = tree.size().to_int_size();
-            let mut pixmap = resvg::tiny_skia::Pixmap::new(size.width(), size.height()).ok_or_else(|| err(out, "the picture has no size", "give --size"))?;
-            resvg::render(&tree, resvg::tiny_skia::Transform::default(), &mut pixmap.as_mut());
-            pixmap.encode_png().map_err(|e| err(out, format!("cannot encode the PNG: {e}"), "report this as a bug"))?
+            let mut pixmap = resvg::tiny_skia::Pixmap::new(size.width(), size.height())
+                .ok_or_else(|| err(out, "the picture has no size", "give --size"))?;
+            resvg::render(
+                &tree,
+                resvg::tiny_skia::Transform::default(),
+                &mut pixmap.as_mut(),
+            );
+            pixmap.encode_png().map_err(|e| {
+                err(
+                    out,
+                    format!("cannot encode the PNG: {e}"),
+                    "report this as a bug",
+                )
+            })?
         }
-        _ => return Err(err(out, "the plot file must end in .svg or .png", "write e.g. --out plot.svg or --out plot.png")),
+        _ => {
+            return Err(err(
+                out,
+                "the plot file must end in .svg or .png",
+                "write e.g. --out plot.svg or --out plot.png",
+            ))
+        }
     };
-    std::fs::write(&tmp, bytes).and_then(|_| std::fs::rename(&tmp, out)).map_err(|e| err(out, format!("cannot write the plot: {e}"), "check the folder"))
+    std::fs::write(&tmp, bytes)
+        .and_then(|_| std::fs::rename(&tmp, out))
+        .map_err(|e| {
+            err(
+                out,
+                format!("cannot write the plot: {e}"),
+                "check the folder",
+            )
+        })
 }
 
 fn local_ms(text: &str, tz: &jiff::tz::TimeZone) -> Option<i64> {
-    let c: jiff::civil::DateTime = text.parse().ok().or_else(|| text.parse::<jiff::civil::Date>().ok().map(|d| d.at(0, 0, 0, 0)))?;
-    c.to_zoned(tz.clone()).ok().map(|z| z.timestamp().as_millisecond())
+    let c: jiff::civil::DateTime = text.parse().ok().or_else(|| {
+        text.parse::<jiff::civil::Date>()
+            .ok()
+            .map(|d| d.at(0, 0, 0, 0))
+    })?;
+    c.to_zoned(tz.clone())
+        .ok()
+        .map(|z| z.timestamp().as_millisecond())
 }
 
 fn escape(s: &str) -> String {
-    s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;")
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
 }
 
 /// Draws `dataset` to `out` (SVG).
@@ -76,7 +120,16 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
     let t0 = ds.manifest["time"]["start_utc_ms"].as_i64().unwrap_or(0);
     let dt = (ds.interval_s * 1000.0).round() as i64;
     let end = t0 + ds.rows as i64 * dt;
-    let meters_file = ["meters.parquet", "meters.csv"].into_iter().find(|f| ds.manifest["files"].get(*f).is_some()).ok_or_else(|| err(dataset, "the manifest lists no meters file", "plot a folder written by `loadloom run`"))?;
+    let meters_file = ["meters.parquet", "meters.csv"]
+        .into_iter()
+        .find(|f| ds.manifest["files"].get(*f).is_some())
+        .ok_or_else(|| {
+            err(
+                dataset,
+                "the manifest lists no meters file",
+                "plot a folder written by `loadloom run`",
+            )
+        })?;
     let truth_file = meters_file.replace("meters", "truth");
     let mh = header(&dataset.join(meters_file)).map_err(|e| e.to_string())?;
     let lines: Vec<String> = ds.lines.clone();
@@ -84,23 +137,46 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
     // The window: as given, or the busiest local day by measured energy.
     let (w0, w1) = match (&o.from, &o.to) {
         (Some(f), t) => {
-            let a = local_ms(f, &tz).ok_or_else(|| err(dataset, format!("--from {f} is not a local date-time"), "write e.g. 2027-01-05T06:00 or 2027-01-05"))?;
+            let a = local_ms(f, &tz).ok_or_else(|| {
+                err(
+                    dataset,
+                    format!("--from {f} is not a local date-time"),
+                    "write e.g. 2027-01-05T06:00 or 2027-01-05",
+                )
+            })?;
             let b = match t {
-                Some(t) => local_ms(t, &tz).ok_or_else(|| err(dataset, format!("--to {t} is not a local date-time"), "write e.g. 2027-01-05T18:00"))?,
+                Some(t) => local_ms(t, &tz).ok_or_else(|| {
+                    err(
+                        dataset,
+                        format!("--to {t} is not a local date-time"),
+                        "write e.g. 2027-01-05T18:00",
+                    )
+                })?,
                 None => a + 86_400_000,
             };
             (a, b)
         }
         (None, Some(t)) => {
-            let b = local_ms(t, &tz).ok_or_else(|| err(dataset, format!("--to {t} is not a local date-time"), "write e.g. 2027-01-05T18:00"))?;
+            let b = local_ms(t, &tz).ok_or_else(|| {
+                err(
+                    dataset,
+                    format!("--to {t} is not a local date-time"),
+                    "write e.g. 2027-01-05T18:00",
+                )
+            })?;
             (b - 86_400_000, b)
         }
         (None, None) => {
-            let mut st = mh.stream(&["total_p_w".to_string()]).map_err(|e| e.to_string())?;
+            let mut st = mh
+                .stream(&["total_p_w".to_string()])
+                .map_err(|e| e.to_string())?;
             let mut days: Vec<(jiff::civil::Date, f64)> = Vec::new();
             while let Some(b) = st.next().map_err(|e| e.to_string())? {
                 for (k, &t) in b.time_ms.iter().enumerate() {
-                    let d = jiff::Timestamp::from_millisecond(t).map_err(|e| e.to_string())?.to_zoned(tz.clone()).date();
+                    let d = jiff::Timestamp::from_millisecond(t)
+                        .map_err(|e| e.to_string())?
+                        .to_zoned(tz.clone())
+                        .date();
                     let p = b.cols[0][k];
                     match days.last_mut() {
                         Some((dd, e)) if *dd == d => *e += if p.is_nan() { 0.0 } else { p },
@@ -108,15 +184,33 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
                     }
                 }
             }
-            let best = days.iter().max_by(|a, b| a.1.partial_cmp(&b.1).unwrap()).map(|d| d.0).ok_or_else(|| err(dataset, "the meters have no rows", "rewrite the dataset"))?;
-            let a = best.to_zoned(tz.clone()).map_err(|e| e.to_string())?.timestamp().as_millisecond();
-            let b = best.tomorrow().map_err(|e| e.to_string())?.to_zoned(tz.clone()).map_err(|e| e.to_string())?.timestamp().as_millisecond();
+            let best = days
+                .iter()
+                .max_by(|a, b| a.1.partial_cmp(&b.1).unwrap())
+                .map(|d| d.0)
+                .ok_or_else(|| err(dataset, "the meters have no rows", "rewrite the dataset"))?;
+            let a = best
+                .to_zoned(tz.clone())
+                .map_err(|e| e.to_string())?
+                .timestamp()
+                .as_millisecond();
+            let b = best
+                .tomorrow()
+                .map_err(|e| e.to_string())?
+                .to_zoned(tz.clone())
+                .map_err(|e| e.to_string())?
+                .timestamp()
+                .as_millisecond();
             (a, b)
         }
     };
     let (w0, w1) = (w0.max(t0), w1.min(end));
     if w1 <= w0 {
-        return Err(err(dataset, "the window lies outside the dataset", "choose --from/--to inside the run"));
+        return Err(err(
+            dataset,
+            "the window lies outside the dataset",
+            "choose --from/--to inside the run",
+        ));
     }
 
     // Buckets of the plot's width; each the mean of its rows.
@@ -170,8 +264,16 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
             }
         }
     }
-    let mean = |c: usize, j: usize| if counts[j] > 0 { sums[c][j] / counts[j] as f64 } else { 0.0 };
-    let energy: Vec<f64> = (0..tcols.len()).map(|c| (0..buckets).map(|j| mean(c, j).abs()).sum()).collect();
+    let mean = |c: usize, j: usize| {
+        if counts[j] > 0 {
+            sums[c][j] / counts[j] as f64
+        } else {
+            0.0
+        }
+    };
+    let energy: Vec<f64> = (0..tcols.len())
+        .map(|c| (0..buckets).map(|j| mean(c, j).abs()).sum())
+        .collect();
     let mut legend: Vec<String> = Vec::new();
     for (x, id, c) in &series {
         let _ = x;
@@ -190,11 +292,35 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
 
     let mut svg = String::new();
     let (w, h) = (o.width as f64, o.height as f64);
-    let _ = write!(svg, r#"<svg xmlns="http://www.w3.org/2000/svg" width="{}" height="{}" viewBox="0 0 {} {}" font-family="sans-serif" font-size="12">"#, o.width, o.height, o.width, o.height);
+    let _ = write!(
+        svg,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{}" height="{}" viewBox="0 0 {} {}" font-family="sans-serif" font-size="12">"#,
+        o.width, o.height, o.width, o.height
+    );
     let _ = write!(svg, r#"<rect width="{w}" height="{h}" fill="white"/>"#);
-    let label = ds.manifest["scenario"]["home"]["label"].as_str().filter(|l| !l.is_empty()).map(str::to_string).unwrap_or_else(|| dataset.file_name().map(|f| f.to_string_lossy().to_string()).unwrap_or_default());
-    let fmt = |ms: i64, f: &str| jiff::Timestamp::from_millisecond(ms).map(|t| t.to_zoned(tz.clone()).strftime(f).to_string()).unwrap_or_default();
-    let _ = write!(svg, r#"<text x="{left}" y="22" font-size="15" font-weight="bold">{} — {} to {} ({})</text>"#, escape(&label), fmt(w0, "%Y-%m-%d %H:%M"), fmt(w1, "%Y-%m-%d %H:%M"), escape(&ds.timezone));
+    let label = ds.manifest["scenario"]["home"]["label"]
+        .as_str()
+        .filter(|l| !l.is_empty())
+        .map(str::to_string)
+        .unwrap_or_else(|| {
+            dataset
+                .file_name()
+                .map(|f| f.to_string_lossy().to_string())
+                .unwrap_or_default()
+        });
+    let fmt = |ms: i64, f: &str| {
+        jiff::Timestamp::from_millisecond(ms)
+            .map(|t| t.to_zoned(tz.clone()).strftime(f).to_string())
+            .unwrap_or_default()
+    };
+    let _ = write!(
+        svg,
+        r#"<text x="{left}" y="22" font-size="15" font-weight="bold">{} — {} to {} ({})</text>"#,
+        escape(&label),
+        fmt(w0, "%Y-%m-%d %H:%M"),
+        fmt(w1, "%Y-%m-%d %H:%M"),
+        escape(&ds.timezone)
+    );
     let panel_h = (h - top - bottom) / lines.len() as f64;
     let xpos = |j: f64| left + j / buckets as f64 * plot_w;
     for (x, l) in lines.iter().enumerate() {
@@ -213,11 +339,27 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
                 }
             }
         }
-        let m: Vec<Option<f64>> = meas[x].iter().map(|(s, n)| (*n > 0).then(|| s / *n as f64)).collect();
-        let hi = pos.iter().copied().chain(m.iter().flatten().copied()).fold(1.0f64, f64::max) * 1.05;
-        let lo = neg.iter().copied().chain(m.iter().flatten().copied()).fold(0.0f64, f64::min) * 1.05;
+        let m: Vec<Option<f64>> = meas[x]
+            .iter()
+            .map(|(s, n)| (*n > 0).then(|| s / *n as f64))
+            .collect();
+        let hi = pos
+            .iter()
+            .copied()
+            .chain(m.iter().flatten().copied())
+            .fold(1.0f64, f64::max)
+            * 1.05;
+        let lo = neg
+            .iter()
+            .copied()
+            .chain(m.iter().flatten().copied())
+            .fold(0.0f64, f64::min)
+            * 1.05;
         let ypos = |v: f64| y0 + (hi - v) / (hi - lo) * ph;
-        let _ = write!(svg, r##"<g class="panel" data-conductor="{l}"><rect x="{left}" y="{y0}" width="{plot_w}" height="{ph}" fill="#fafafa" stroke="#999"/>"##);
+        let _ = write!(
+            svg,
+            r##"<g class="panel" data-conductor="{l}"><rect x="{left}" y="{y0}" width="{plot_w}" height="{ph}" fill="#fafafa" stroke="#999"/>"##
+        );
         // Stacked shares: positive parts upwards from zero, negative ones
         // (two-wattmeter readings below pf 0.5) downwards.
         let mut below_pos = vec![0.0f64; buckets];
@@ -227,18 +369,38 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
                 continue;
             }
             for (sign, below) in [(1.0, &mut below_pos), (-1.0, &mut below_neg)] {
-                let vals: Vec<f64> = (0..buckets).map(|j| { let v = mean(s.2, j); if v * sign > 0.0 { v } else { 0.0 } }).collect();
+                let vals: Vec<f64> = (0..buckets)
+                    .map(|j| {
+                        let v = mean(s.2, j);
+                        if v * sign > 0.0 {
+                            v
+                        } else {
+                            0.0
+                        }
+                    })
+                    .collect();
                 if vals.iter().all(|v| *v == 0.0) {
                     continue;
                 }
                 let mut pts = String::new();
                 for j in 0..buckets {
-                    let _ = write!(pts, "{:.1},{:.1} ", xpos(j as f64), ypos(below[j] + vals[j]));
+                    let _ = write!(
+                        pts,
+                        "{:.1},{:.1} ",
+                        xpos(j as f64),
+                        ypos(below[j] + vals[j])
+                    );
                 }
                 for j in (0..buckets).rev() {
                     let _ = write!(pts, "{:.1},{:.1} ", xpos(j as f64), ypos(below[j]));
                 }
-                let _ = write!(svg, r#"<polygon class="share" data-appliance="{}" points="{}" fill="{}" fill-opacity="0.85"/>"#, s.1, pts.trim_end(), colour(&s.1));
+                let _ = write!(
+                    svg,
+                    r#"<polygon class="share" data-appliance="{}" points="{}" fill="{}" fill-opacity="0.85"/>"#,
+                    s.1,
+                    pts.trim_end(),
+                    colour(&s.1)
+                );
                 for j in 0..buckets {
                     below[j] += vals[j];
                 }
@@ -250,53 +412,136 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
         for (j, v) in m.iter().enumerate() {
             match v {
                 Some(v) => {
-                    let _ = write!(d, "{}{:.1},{:.1} ", if pen { "L" } else { "M" }, xpos(j as f64 + 0.5), ypos(*v));
+                    let _ = write!(
+                        d,
+                        "{}{:.1},{:.1} ",
+                        if pen { "L" } else { "M" },
+                        xpos(j as f64 + 0.5),
+                        ypos(*v)
+                    );
                     pen = true;
                 }
                 None => pen = false,
             }
         }
-        let _ = write!(svg, r#"<path class="measured" d="{}" fill="none" stroke="black" stroke-width="1"/>"#, d.trim_end());
-        let _ = write!(svg, r##"<line x1="{left}" x2="{}" y1="{:.1}" y2="{:.1}" stroke="#555" stroke-dasharray="2,2"/>"##, left + plot_w, ypos(0.0), ypos(0.0));
-        let _ = write!(svg, r#"<text x="8" y="{:.1}" font-weight="bold">{}</text>"#, y0 + 14.0, l.to_uppercase());
+        let _ = write!(
+            svg,
+            r#"<path class="measured" d="{}" fill="none" stroke="black" stroke-width="1"/>"#,
+            d.trim_end()
+        );
+        let _ = write!(
+            svg,
+            r##"<line x1="{left}" x2="{}" y1="{:.1}" y2="{:.1}" stroke="#555" stroke-dasharray="2,2"/>"##,
+            left + plot_w,
+            ypos(0.0),
+            ypos(0.0)
+        );
+        let _ = write!(
+            svg,
+            r#"<text x="8" y="{:.1}" font-weight="bold">{}</text>"#,
+            y0 + 14.0,
+            l.to_uppercase()
+        );
         for (v, name) in [(hi / 1.05, "max"), (0.0, "0")] {
             let _ = name;
-            let _ = write!(svg, r#"<text x="{:.1}" y="{:.1}" text-anchor="end" font-size="10">{:.0} W</text>"#, left - 4.0, ypos(v) + 3.0, v);
+            let _ = write!(
+                svg,
+                r#"<text x="{:.1}" y="{:.1}" text-anchor="end" font-size="10">{:.0} W</text>"#,
+                left - 4.0,
+                ypos(v) + 3.0,
+                v
+            );
         }
         if lo < 0.0 {
-            let _ = write!(svg, r#"<text x="{:.1}" y="{:.1}" text-anchor="end" font-size="10">{:.0} W</text>"#, left - 4.0, ypos(lo / 1.05) + 3.0, lo / 1.05);
+            let _ = write!(
+                svg,
+                r#"<text x="{:.1}" y="{:.1}" text-anchor="end" font-size="10">{:.0} W</text>"#,
+                left - 4.0,
+                ypos(lo / 1.05) + 3.0,
+                lo / 1.05
+            );
         }
         // Local time ticks.
         let span_h = (w1 - w0) as f64 / 3.6e6;
-        let step_h: i64 = if span_h <= 6.0 { 1 } else if span_h <= 30.0 { 3 } else if span_h <= 96.0 { 12 } else { 24 };
-        let first = jiff::Timestamp::from_millisecond(w0).map_err(|e| e.to_string())?.to_zoned(tz.clone());
-        let mut tick = first.date().to_zoned(tz.clone()).map_err(|e| e.to_string())?;
+        let step_h: i64 = if span_h <= 6.0 {
+            1
+        } else if span_h <= 30.0 {
+            3
+        } else if span_h <= 96.0 {
+            12
+        } else {
+            24
+        };
+        let first = jiff::Timestamp::from_millisecond(w0)
+            .map_err(|e| e.to_string())?
+            .to_zoned(tz.clone());
+        let mut tick = first
+            .date()
+            .to_zoned(tz.clone())
+            .map_err(|e| e.to_string())?;
         while tick.timestamp().as_millisecond() < w1 {
             let ms = tick.timestamp().as_millisecond();
             if ms >= w0 {
                 let px = left + (ms - w0) as f64 / (w1 - w0) as f64 * plot_w;
-                let _ = write!(svg, r##"<line x1="{px:.1}" x2="{px:.1}" y1="{y0}" y2="{:.1}" stroke="#ddd"/>"##, y0 + ph);
-                let _ = write!(svg, r#"<text x="{px:.1}" y="{:.1}" text-anchor="middle" font-size="10">{}</text>"#, y0 + ph + 12.0, tick.strftime(if tick.hour() == 0 { "%m-%d" } else { "%H:%M" }));
+                let _ = write!(
+                    svg,
+                    r##"<line x1="{px:.1}" x2="{px:.1}" y1="{y0}" y2="{:.1}" stroke="#ddd"/>"##,
+                    y0 + ph
+                );
+                let _ = write!(
+                    svg,
+                    r#"<text x="{px:.1}" y="{:.1}" text-anchor="middle" font-size="10">{}</text>"#,
+                    y0 + ph + 12.0,
+                    tick.strftime(if tick.hour() == 0 { "%m-%d" } else { "%H:%M" })
+                );
             }
-            tick = tick.checked_add(jiff::Span::new().hours(step_h)).map_err(|e| e.to_string())?;
+            tick = tick
+                .checked_add(jiff::Span::new().hours(step_h))
+                .map_err(|e| e.to_string())?;
         }
         svg += "</g>";
     }
     // Legend: every appliance that drew power in the window.
     let lx = o.width as f64 - right_legend + 15.0;
-    let _ = write!(svg, r#"<g class="legend-box"><text x="{lx}" y="{}" font-weight="bold">appliances</text>"#, top + 4.0);
+    let _ = write!(
+        svg,
+        r#"<g class="legend-box"><text x="{lx}" y="{}" font-weight="bold">appliances</text>"#,
+        top + 4.0
+    );
     for (i, id) in legend.iter().enumerate() {
         let y = top + 20.0 + i as f64 * 16.0;
-        let _ = write!(svg, r#"<rect x="{lx}" y="{:.1}" width="11" height="11" fill="{}"/><text class="legend" x="{}" y="{:.1}">{}</text>"#, y - 9.0, colour(id), lx + 16.0, y, escape(id));
+        let _ = write!(
+            svg,
+            r#"<rect x="{lx}" y="{:.1}" width="11" height="11" fill="{}"/><text class="legend" x="{}" y="{:.1}">{}</text>"#,
+            y - 9.0,
+            colour(id),
+            lx + 16.0,
+            y,
+            escape(id)
+        );
     }
-    let _ = write!(svg, r#"<text x="{lx}" y="{:.1}" font-size="10">black line: measured</text></g>"#, top + 20.0 + legend.len() as f64 * 16.0 + 6.0);
+    let _ = write!(
+        svg,
+        r#"<text x="{lx}" y="{:.1}" font-size="10">black line: measured</text></g>"#,
+        top + 20.0 + legend.len() as f64 * 16.0 + 6.0
+    );
     svg += "</svg>\n";
     write_picture(&svg, out)?;
-    Ok(Plotted { from: fmt(w0, "%Y-%m-%dT%H:%M%:z"), to: fmt(w1, "%Y-%m-%dT%H:%M%:z"), legend })
+    Ok(Plotted {
+        from: fmt(w0, "%Y-%m-%dT%H:%M%:z"),
+        to: fmt(w1, "%Y-%m-%dT%H:%M%:z"),
+        legend,
+    })
 }
 
 /// Means per time bucket of some columns of a table, within [w0, w1).
-fn bucket_means(h: &crate::stream::Header, cols: &[String], w0: i64, w1: i64, buckets: usize) -> Result<Vec<Vec<Option<f64>>>, String> {
+fn bucket_means(
+    h: &crate::stream::Header,
+    cols: &[String],
+    w0: i64,
+    w1: i64,
+    buckets: usize,
+) -> Result<Vec<Vec<Option<f64>>>, String> {
     let mut sum = vec![vec![0.0f64; buckets]; cols.len()];
     let mut n = vec![vec![0u32; buckets]; cols.len()];
     let mut st = h.stream(cols).map_err(|e| e.to_string())?;
@@ -315,33 +560,77 @@ fn bucket_means(h: &crate::stream::Header, cols: &[String], w0: i64, w1: i64, bu
             }
         }
     }
-    Ok((0..cols.len()).map(|c| (0..buckets).map(|j| (n[c][j] > 0).then(|| sum[c][j] / n[c][j] as f64)).collect()).collect())
+    Ok((0..cols.len())
+        .map(|c| {
+            (0..buckets)
+                .map(|j| (n[c][j] > 0).then(|| sum[c][j] / n[c][j] as f64))
+                .collect()
+        })
+        .collect())
 }
 
 /// `score --plot`: per appliance, truth (filled) and estimate (line) over the
 /// busiest local day of the scored period, and bars of each appliance's F1
 /// and estimated accuracy. SVG.
-pub fn plot_scores(report: &crate::score::Report, dataset: &Path, estimate: &Path, out: &Path) -> Result<(), String> {
+pub fn plot_scores(
+    report: &crate::score::Report,
+    dataset: &Path,
+    estimate: &Path,
+    out: &Path,
+) -> Result<(), String> {
     let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
     let tz = jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| e.to_string())?;
     let plan = &report.plan;
     let p_end = plan.start_ms + plan.rows as i64 * plan.interval_ms;
     // The busiest local day: the largest true energy over the appliances.
     let days = report.overall_acc.days.len();
-    let best = (0..days).max_by(|&a, &b| report.overall_acc.days[a].sum_y.partial_cmp(&report.overall_acc.days[b].sum_y).unwrap()).unwrap_or(0);
-    let start_day = jiff::Timestamp::from_millisecond(plan.start_ms).map_err(|e| e.to_string())?.to_zoned(tz.clone()).date();
+    let best = (0..days)
+        .max_by(|&a, &b| {
+            report.overall_acc.days[a]
+                .sum_y
+                .partial_cmp(&report.overall_acc.days[b].sum_y)
+                .unwrap()
+        })
+        .unwrap_or(0);
+    let start_day = jiff::Timestamp::from_millisecond(plan.start_ms)
+        .map_err(|e| e.to_string())?
+        .to_zoned(tz.clone())
+        .date();
     let mut day = start_day;
     for _ in 0..best {
         day = day.tomorrow().map_err(|e| e.to_string())?;
     }
-    let ms = |d: jiff::civil::Date| d.to_zoned(tz.clone()).map(|z| z.timestamp().as_millisecond()).map_err(|e| e.to_string());
-    let (w0, w1) = (ms(day)?.max(plan.start_ms), ms(day.tomorrow().map_err(|e| e.to_string())?)?.min(p_end));
+    let ms = |d: jiff::civil::Date| {
+        d.to_zoned(tz.clone())
+            .map(|z| z.timestamp().as_millisecond())
+            .map_err(|e| e.to_string())
+    };
+    let (w0, w1) = (
+        ms(day)?.max(plan.start_ms),
+        ms(day.tomorrow().map_err(|e| e.to_string())?)?.min(p_end),
+    );
     let ids: Vec<String> = report.appliances.iter().map(|a| a.id.clone()).collect();
     let cols: Vec<String> = ids.iter().map(|i| format!("{i}_p_w")).collect();
-    let truth_file = if ds.manifest["files"].get("truth.parquet").is_some() { "truth.parquet" } else { "truth.csv" };
+    let truth_file = if ds.manifest["files"].get("truth.parquet").is_some() {
+        "truth.parquet"
+    } else {
+        "truth.csv"
+    };
     let bw = 420usize;
-    let y = bucket_means(&header(&dataset.join(truth_file)).map_err(|e| e.to_string())?, &cols, w0, w1, bw)?;
-    let yh = bucket_means(&header(estimate).map_err(|e| e.to_string())?, &cols, w0, w1, bw)?;
+    let y = bucket_means(
+        &header(&dataset.join(truth_file)).map_err(|e| e.to_string())?,
+        &cols,
+        w0,
+        w1,
+        bw,
+    )?;
+    let yh = bucket_means(
+        &header(estimate).map_err(|e| e.to_string())?,
+        &cols,
+        w0,
+        w1,
+        bw,
+    )?;
     let (pw, ph, gap) = (bw as f64, 90.0, 38.0);
     let per_row = 2;
     let rows = ids.len().div_ceil(per_row);
@@ -349,42 +638,117 @@ pub fn plot_scores(report: &crate::score::Report, dataset: &Path, estimate: &Pat
     let bars_h = 40.0 + ids.len() as f64 * 16.0;
     let height = 60.0 + rows as f64 * (ph + gap) + bars_h + 40.0;
     let mut svg = String::new();
-    let _ = write!(svg, r#"<svg xmlns="http://www.w3.org/2000/svg" width="{:.0}" height="{:.0}" viewBox="0 0 {:.0} {:.0}" font-family="sans-serif" font-size="11"><rect width="100%" height="100%" fill="white"/>"#, width, height, width, height);
-    let fmt = |ms: i64| jiff::Timestamp::from_millisecond(ms).map(|t| t.to_zoned(tz.clone()).strftime("%Y-%m-%d %H:%M").to_string()).unwrap_or_default();
-    let _ = write!(svg, r#"<text x="20" y="24" font-size="14" font-weight="bold">{} against the truth, {} to {} ({}): truth filled, estimate as a line</text>"#, escape(&estimate.file_name().map(|f| f.to_string_lossy().to_string()).unwrap_or_default()), fmt(w0), fmt(w1), escape(&ds.timezone));
+    let _ = write!(
+        svg,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{:.0}" height="{:.0}" viewBox="0 0 {:.0} {:.0}" font-family="sans-serif" font-size="11"><rect width="100%" height="100%" fill="white"/>"#,
+        width, height, width, height
+    );
+    let fmt = |ms: i64| {
+        jiff::Timestamp::from_millisecond(ms)
+            .map(|t| {
+                t.to_zoned(tz.clone())
+                    .strftime("%Y-%m-%d %H:%M")
+                    .to_string()
+            })
+            .unwrap_or_default()
+    };
+    let _ = write!(
+        svg,
+        r#"<text x="20" y="24" font-size="14" font-weight="bold">{} against the truth, {} to {} ({}): truth filled, estimate as a line</text>"#,
+        escape(
+            &estimate
+                .file_name()
+                .map(|f| f.to_string_lossy().to_string())
+                .unwrap_or_default()
+        ),
+        fmt(w0),
+        fmt(w1),
+        escape(&ds.timezone)
+    );
     for (k, id) in ids.iter().enumerate() {
-        let (cx, cy) = (40.0 + (k % per_row) as f64 * (pw + 60.0), 50.0 + (k / per_row) as f64 * (ph + gap));
-        let hi = y[k].iter().chain(&yh[k]).flatten().fold(1.0f64, |a, b| a.max(*b)) * 1.05;
+        let (cx, cy) = (
+            40.0 + (k % per_row) as f64 * (pw + 60.0),
+            50.0 + (k / per_row) as f64 * (ph + gap),
+        );
+        let hi = y[k]
+            .iter()
+            .chain(&yh[k])
+            .flatten()
+            .fold(1.0f64, |a, b| a.max(*b))
+            * 1.05;
         let yp = |v: f64| cy + ph - v / hi * ph;
-        let _ = write!(svg, r##"<g class="appliance" data-appliance="{id}"><rect x="{cx}" y="{cy}" width="{pw}" height="{ph}" fill="#fafafa" stroke="#aaa"/><text x="{cx}" y="{:.1}" font-weight="bold">{id}</text><text x="{:.1}" y="{:.1}" text-anchor="end" font-size="9">{:.0} W</text>"##, cy - 4.0, cx + pw, cy - 4.0, hi / 1.05);
+        let _ = write!(
+            svg,
+            r##"<g class="appliance" data-appliance="{id}"><rect x="{cx}" y="{cy}" width="{pw}" height="{ph}" fill="#fafafa" stroke="#aaa"/><text x="{cx}" y="{:.1}" font-weight="bold">{id}</text><text x="{:.1}" y="{:.1}" text-anchor="end" font-size="9">{:.0} W</text>"##,
+            cy - 4.0,
+            cx + pw,
+            cy - 4.0,
+            hi / 1.05
+        );
         let mut pts = format!("{cx:.1},{:.1} ", cy + ph);
         for j in 0..bw {
-            let _ = write!(pts, "{:.1},{:.1} ", cx + j as f64, yp(y[k][j].unwrap_or(0.0)));
+            let _ = write!(
+                pts,
+                "{:.1},{:.1} ",
+                cx + j as f64,
+                yp(y[k][j].unwrap_or(0.0))
+            );
         }
         let _ = write!(pts, "{:.1},{:.1}", cx + pw, cy + ph);
-        let _ = write!(svg, r##"<polygon class="truth" points="{pts}" fill="#9fc4e8"/>"##);
+        let _ = write!(
+            svg,
+            r##"<polygon class="truth" points="{pts}" fill="#9fc4e8"/>"##
+        );
         let mut d = String::new();
         let mut pen = false;
         for j in 0..bw {
             match yh[k][j] {
                 Some(v) => {
-                    let _ = write!(d, "{}{:.1},{:.1} ", if pen { "L" } else { "M" }, cx + j as f64, yp(v));
+                    let _ = write!(
+                        d,
+                        "{}{:.1},{:.1} ",
+                        if pen { "L" } else { "M" },
+                        cx + j as f64,
+                        yp(v)
+                    );
                     pen = true;
                 }
                 None => pen = false,
             }
         }
-        let _ = write!(svg, r##"<path class="estimate" d="{}" fill="none" stroke="#d13b3b" stroke-width="1"/></g>"##, d.trim_end());
+        let _ = write!(
+            svg,
+            r##"<path class="estimate" d="{}" fill="none" stroke="#d13b3b" stroke-width="1"/></g>"##,
+            d.trim_end()
+        );
     }
     // Bars: F1 and estimated accuracy per appliance.
     let by = 50.0 + rows as f64 * (ph + gap) + 10.0;
-    let _ = write!(svg, r##"<g class="bars"><text x="40" y="{by:.1}" font-weight="bold">per appliance: F1 (blue) and estimated accuracy (orange), 0 … 1</text>"##);
+    let _ = write!(
+        svg,
+        r##"<g class="bars"><text x="40" y="{by:.1}" font-weight="bold">per appliance: F1 (blue) and estimated accuracy (orange), 0 … 1</text>"##
+    );
     let bar_w = width - 330.0;
     for (k, a) in report.appliances.iter().enumerate() {
         let yy = by + 14.0 + k as f64 * 16.0;
         let acc = a.scores.accuracy.unwrap_or(0.0).max(0.0);
-        let _ = write!(svg, r##"<text class="bar-label" x="150" y="{:.1}" text-anchor="end">{}</text><rect x="160" y="{:.1}" width="{:.1}" height="6" fill="#1f6fb4"/><rect x="160" y="{:.1}" width="{:.1}" height="6" fill="#f28e2b"/><text x="{:.1}" y="{:.1}" font-size="9">F1 {:.2}, accuracy {}</text>"##,
-            yy + 4.0, escape(&a.id), yy - 6.0, a.scores.f1 * bar_w, yy, acc.min(1.0) * bar_w, 165.0 + bar_w, yy + 4.0, a.scores.f1, a.scores.accuracy.map(|v| format!("{v:.2}")).unwrap_or_else(|| "–".into()));
+        let _ = write!(
+            svg,
+            r##"<text class="bar-label" x="150" y="{:.1}" text-anchor="end">{}</text><rect x="160" y="{:.1}" width="{:.1}" height="6" fill="#1f6fb4"/><rect x="160" y="{:.1}" width="{:.1}" height="6" fill="#f28e2b"/><text x="{:.1}" y="{:.1}" font-size="9">F1 {:.2}, accuracy {}</text>"##,
+            yy + 4.0,
+            escape(&a.id),
+            yy - 6.0,
+            a.scores.f1 * bar_w,
+            yy,
+            acc.min(1.0) * bar_w,
+            165.0 + bar_w,
+            yy + 4.0,
+            a.scores.f1,
+            a.scores
+                .accuracy
+                .map(|v| format!("{v:.2}"))
+                .unwrap_or_else(|| "–".into())
+        );
     }
     svg += "</g></svg>\n";
     write_picture(&svg, out)

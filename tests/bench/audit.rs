@@ -24,8 +24,12 @@ use common::peak_mb;
 fn main() {
     let args: Vec<String> = std::env::args().collect();
     if let Some(i) = args.iter().position(|a| a == "--floor") {
-        let h = solver_check::stream::header(&Path::new(&args[i + 1]).join("meters.parquet")).expect("meters");
-        let cols: Vec<String> = (1..=3).flat_map(|c| ["p_w", "q_var", "v_v"].map(|x| format!("l{c}_{x}"))).filter(|c| h.has(c)).collect();
+        let h = solver_check::stream::header(&Path::new(&args[i + 1]).join("meters.parquet"))
+            .expect("meters");
+        let cols: Vec<String> = (1..=3)
+            .flat_map(|c| ["p_w", "q_var", "v_v"].map(|x| format!("l{c}_{x}")))
+            .filter(|c| h.has(c))
+            .collect();
         let t = Instant::now();
         let mut st = h.stream(&cols).expect("stream");
         let (mut rows, mut sum) = (0usize, 0.0);
@@ -33,27 +37,50 @@ fn main() {
             rows += b.time_ms.len();
             sum += b.cols.iter().flatten().sum::<f64>();
         }
-        println!("{} {} {rows} {}", t.elapsed().as_secs_f64(), peak_mb(), sum.is_finite() as u8);
+        println!(
+            "{} {} {rows} {}",
+            t.elapsed().as_secs_f64(),
+            peak_mb(),
+            sum.is_finite() as u8
+        );
         return;
     }
     if let Some(i) = args.iter().position(|a| a == "--child") {
-        let d = loadloom::audit::load_declaration(Path::new(&args[i + 2])).expect("the demo parses");
+        let d =
+            loadloom::audit::load_declaration(Path::new(&args[i + 2])).expect("the demo parses");
         let t = Instant::now();
         let a = solver_check::audit::audit(Path::new(&args[i + 1]), &d).expect("audit");
-        println!("{} {} {} {}", t.elapsed().as_secs_f64(), peak_mb(), a.rows, a.outcome.findings.len());
+        println!(
+            "{} {} {} {}",
+            t.elapsed().as_secs_f64(),
+            peak_mb(),
+            a.rows,
+            a.outcome.findings.len()
+        );
         return;
     }
-    let days: f64 = std::env::var("LOADLOOM_BENCH_DAYS").ok().and_then(|v| v.parse().ok()).unwrap_or(30.0);
+    let days: f64 = std::env::var("LOADLOOM_BENCH_DAYS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(30.0);
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
     let dir = std::env::temp_dir().join(format!("loadloom-bench-audit-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
     println!("auditing {days} d at 1 s of each demo home, declared as simulated, then one with a fault and a mistake (best of 3):");
     let text = std::fs::read_to_string(root.join("scenarios/split-phase-house.toml")).unwrap();
     let misdeclared = dir.join("misdeclared.toml");
-    let moved = text.replace("id = \"garage_door\"\nlabel = \"Garage door opener\"\nwiring = \"L1-N\"", "id = \"garage_door\"\nlabel = \"Garage door opener\"\nwiring = \"L2-N\"");
+    let moved = text.replace(
+        "id = \"garage_door\"\nlabel = \"Garage door opener\"\nwiring = \"L1-N\"",
+        "id = \"garage_door\"\nlabel = \"Garage door opener\"\nwiring = \"L2-N\"",
+    );
     assert_ne!(moved, text, "the demo's garage door is on L1-N");
     std::fs::write(&misdeclared, moved).unwrap();
-    let cases = [("apartment-208", None), ("split-phase-house", None), ("three-phase-house", None), ("split-phase-house", Some(misdeclared))];
+    let cases = [
+        ("apartment-208", None),
+        ("split-phase-house", None),
+        ("three-phase-house", None),
+        ("split-phase-house", Some(misdeclared)),
+    ];
     let mut secs = Vec::new();
     for (home, declared) in cases {
         let file = root.join(format!("scenarios/{home}.toml"));
@@ -70,13 +97,29 @@ fn main() {
         // Best of 3 of (seconds, peak MB, rows, findings), the runs
         // alternating between the audit and the floor.
         let run = |args: &[&str]| -> Vec<f64> {
-            let o = Command::new(std::env::current_exe().unwrap()).args(args).output().unwrap();
+            let o = Command::new(std::env::current_exe().unwrap())
+                .args(args)
+                .output()
+                .unwrap();
             assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-            String::from_utf8_lossy(&o.stdout).split_whitespace().map(|x| x.parse().unwrap()).collect()
+            String::from_utf8_lossy(&o.stdout)
+                .split_whitespace()
+                .map(|x| x.parse().unwrap())
+                .collect()
         };
         let (mut audit, mut floor) = (vec![f64::MAX, 0.0, 0.0, 0.0], vec![f64::MAX, 0.0, 0.0, 0.0]);
         for _ in 0..3 {
-            for (best, args) in [(&mut audit, vec!["--child", w.dir.to_str().unwrap(), declared.to_str().unwrap()]), (&mut floor, vec!["--floor", w.dir.to_str().unwrap()])] {
+            for (best, args) in [
+                (
+                    &mut audit,
+                    vec![
+                        "--child",
+                        w.dir.to_str().unwrap(),
+                        declared.to_str().unwrap(),
+                    ],
+                ),
+                (&mut floor, vec!["--floor", w.dir.to_str().unwrap()]),
+            ] {
                 let v = run(&args);
                 best[0] = best[0].min(v[0]);
                 best[1] = best[1].max(v[1]);
@@ -85,9 +128,16 @@ fn main() {
         }
         assert_eq!(audit[2], floor[2], "the floor reads every row");
         secs.push(audit[0]);
-        let what = if faulty { format!("{home}, channels exchanged, one appliance misdeclared") } else { home.to_string() };
+        let what = if faulty {
+            format!("{home}, channels exchanged, one appliance misdeclared")
+        } else {
+            home.to_string()
+        };
         println!("  {what}, {} appliances: {:.2} s against a floor of {:.2} s, ratio {:.2}; peak memory {:.0} MB (floor {:.0} MB); {:.2} million rows per second; {} findings", s.appliances.len(), audit[0], floor[0], audit[0] / floor[0], audit[1], floor[1], audit[2] / audit[0] / 1e6, audit[3]);
     }
-    println!("  split-phase-house faulted and misdeclared against as simulated: ratio {:.2}", secs[3] / secs[1]);
+    println!(
+        "  split-phase-house faulted and misdeclared against as simulated: ratio {:.2}",
+        secs[3] / secs[1]
+    );
     let _ = std::fs::remove_dir_all(&dir);
 }

@@ -18,14 +18,20 @@ use std::time::Instant;
 
 fn scenario(days: f64) -> Scenario {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
-    let mut s = loadloom::scenario::load(&root.join("scenarios/split-phase-house.toml")).expect("demo parses");
+    let mut s = loadloom::scenario::load(&root.join("scenarios/split-phase-house.toml"))
+        .expect("demo parses");
     s.run.length_s = days * 86400.0;
     s
 }
 
 fn peak_kb() -> u64 {
     let status = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
-    status.lines().find(|l| l.starts_with("VmHWM:")).and_then(|l| l.split_whitespace().nth(1)).and_then(|v| v.parse().ok()).unwrap_or(0)
+    status
+        .lines()
+        .find(|l| l.starts_with("VmHWM:"))
+        .and_then(|l| l.split_whitespace().nth(1))
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(0)
 }
 
 fn sim(s: &Scenario, out: &Path) {
@@ -38,35 +44,87 @@ fn floor(s: &Scenario, out: &Path) {
     short.run.length_s = CHUNK_ROWS as f64 * s.meter.interval_s;
     let tl = loadloom::behaviour::timelines(&short, short.run.steps());
     let mut kept = None;
-    let outcome = loadloom::simulate::simulate(&short, &tl, short.intervals(), CHUNK_ROWS, |c| -> Result<(), ()> {
-        kept = Some(loadloom::simulate::Chunk {
-            first_row: 0,
-            readings: loadloom::meter::Readings { line_p: c.readings.line_p.clone(), line_q: c.readings.line_q.clone(), line_v: c.readings.line_v.clone(), line_i: c.readings.line_i.clone(), n_i: c.readings.n_i.clone(), total_p: c.readings.total_p.clone(), total_q: c.readings.total_q.clone(), energy: c.readings.energy.clone(), present: c.readings.present.clone() },
-            truth: loadloom::simulate::Truth { app_p: c.truth.app_p.clone(), app_q: c.truth.app_q.clone(), app_state: c.truth.app_state.clone(), app_line_p: c.truth.app_line_p.clone(), unmetered_p: c.truth.unmetered_p.clone() },
-        });
-        Ok(())
-    })
+    let outcome = loadloom::simulate::simulate(
+        &short,
+        &tl,
+        short.intervals(),
+        CHUNK_ROWS,
+        |c| -> Result<(), ()> {
+            kept = Some(loadloom::simulate::Chunk {
+                first_row: 0,
+                readings: loadloom::meter::Readings {
+                    line_p: c.readings.line_p.clone(),
+                    line_q: c.readings.line_q.clone(),
+                    line_v: c.readings.line_v.clone(),
+                    line_i: c.readings.line_i.clone(),
+                    n_i: c.readings.n_i.clone(),
+                    total_p: c.readings.total_p.clone(),
+                    total_q: c.readings.total_q.clone(),
+                    energy: c.readings.energy.clone(),
+                    present: c.readings.present.clone(),
+                },
+                truth: loadloom::simulate::Truth {
+                    app_p: c.truth.app_p.clone(),
+                    app_q: c.truth.app_q.clone(),
+                    app_state: c.truth.app_state.clone(),
+                    app_line_p: c.truth.app_line_p.clone(),
+                    unmetered_p: c.truth.unmetered_p.clone(),
+                },
+            });
+            Ok(())
+        },
+    )
     .unwrap();
     let mut chunk = kept.unwrap();
     let started = Instant::now();
     std::fs::create_dir_all(out).unwrap();
     let tables = Tables::new(s);
     let tz = &s.home.timezone;
-    let mut meters = Sink::create(&out.join("meters.parquet"), Format::Parquet, tables.meters_schema.clone(), tz).unwrap();
-    let mut truth = Sink::create(&out.join("truth.parquet"), Format::Parquet, tables.truth_schema.clone(), tz).unwrap();
+    let mut meters = Sink::create(
+        &out.join("meters.parquet"),
+        Format::Parquet,
+        tables.meters_schema.clone(),
+        tz,
+    )
+    .unwrap();
+    let mut truth = Sink::create(
+        &out.join("truth.parquet"),
+        Format::Parquet,
+        tables.truth_schema.clone(),
+        tz,
+    )
+    .unwrap();
     let rows = s.intervals();
     while chunk.first_row < rows {
         let n = (rows - chunk.first_row).min(CHUNK_ROWS as u64) as usize;
         if n < CHUNK_ROWS {
-            for v in chunk.readings.line_p.iter_mut().chain(&mut chunk.readings.line_q).chain(&mut chunk.readings.line_v).chain(&mut chunk.readings.line_i) {
+            for v in chunk
+                .readings
+                .line_p
+                .iter_mut()
+                .chain(&mut chunk.readings.line_q)
+                .chain(&mut chunk.readings.line_v)
+                .chain(&mut chunk.readings.line_i)
+            {
                 v.truncate(n);
             }
-            for v in [&mut chunk.readings.n_i, &mut chunk.readings.total_p, &mut chunk.readings.total_q, &mut chunk.truth.unmetered_p] {
+            for v in [
+                &mut chunk.readings.n_i,
+                &mut chunk.readings.total_p,
+                &mut chunk.readings.total_q,
+                &mut chunk.truth.unmetered_p,
+            ] {
                 v.truncate(n);
             }
             chunk.readings.energy.iter_mut().for_each(|v| v.truncate(n));
             chunk.readings.present.truncate(n);
-            chunk.truth.app_p.iter_mut().chain(&mut chunk.truth.app_q).chain(chunk.truth.app_line_p.iter_mut().flatten()).for_each(|v| v.truncate(n));
+            chunk
+                .truth
+                .app_p
+                .iter_mut()
+                .chain(&mut chunk.truth.app_q)
+                .chain(chunk.truth.app_line_p.iter_mut().flatten())
+                .for_each(|v| v.truncate(n));
             chunk.truth.app_state.iter_mut().for_each(|v| v.truncate(n));
         }
         meters.write(&tables.meters_batch(&chunk)).unwrap();
@@ -75,10 +133,21 @@ fn floor(s: &Scenario, out: &Path) {
     }
     meters.close().unwrap();
     truth.close().unwrap();
-    let mut events = Sink::create(&out.join("events.parquet"), Format::Parquet, tables.events_schema.clone(), tz).unwrap();
-    events.write(&tables.events_batch(s, &outcome.events, s.run.step_s)).unwrap();
+    let mut events = Sink::create(
+        &out.join("events.parquet"),
+        Format::Parquet,
+        tables.events_schema.clone(),
+        tz,
+    )
+    .unwrap();
+    events
+        .write(&tables.events_batch(s, &outcome.events, s.run.step_s))
+        .unwrap();
     events.close().unwrap();
-    eprintln!("floor: precomputing took no part in the {:.1} s", started.elapsed().as_secs_f64());
+    eprintln!(
+        "floor: precomputing took no part in the {:.1} s",
+        started.elapsed().as_secs_f64()
+    );
 }
 
 fn child(mode: &str, days: f64, dir: &Path) {
@@ -94,24 +163,53 @@ fn child(mode: &str, days: f64, dir: &Path) {
 
 fn measure(mode: &str, days: f64, dir: &Path) -> (f64, f64) {
     let exe = std::env::current_exe().unwrap();
-    let o = Command::new(exe).args(["--child", mode, &days.to_string(), dir.to_str().unwrap()]).output().unwrap();
-    assert!(o.status.success(), "{mode}: {}", String::from_utf8_lossy(&o.stderr));
-    let line = String::from_utf8_lossy(&o.stdout).lines().last().unwrap().to_string();
+    let o = Command::new(exe)
+        .args(["--child", mode, &days.to_string(), dir.to_str().unwrap()])
+        .output()
+        .unwrap();
+    assert!(
+        o.status.success(),
+        "{mode}: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let line = String::from_utf8_lossy(&o.stdout)
+        .lines()
+        .last()
+        .unwrap()
+        .to_string();
     let mut it = line.split_whitespace();
-    (it.next().unwrap().parse().unwrap(), it.next().unwrap().parse::<f64>().unwrap() / 1024.0)
+    (
+        it.next().unwrap().parse().unwrap(),
+        it.next().unwrap().parse::<f64>().unwrap() / 1024.0,
+    )
 }
 
 fn dir_bytes(d: &Path) -> u64 {
-    std::fs::read_dir(d).map(|r| r.filter_map(|e| e.ok()).filter_map(|e| e.metadata().ok()).filter(|m| m.is_file()).map(|m| m.len()).sum()).unwrap_or(0)
+    std::fs::read_dir(d)
+        .map(|r| {
+            r.filter_map(|e| e.ok())
+                .filter_map(|e| e.metadata().ok())
+                .filter(|m| m.is_file())
+                .map(|m| m.len())
+                .sum()
+        })
+        .unwrap_or(0)
 }
 
 fn main() {
     let args: Vec<String> = std::env::args().collect();
     if let Some(i) = args.iter().position(|a| a == "--child") {
-        child(&args[i + 1], args[i + 2].parse().unwrap(), Path::new(&args[i + 3]));
+        child(
+            &args[i + 1],
+            args[i + 2].parse().unwrap(),
+            Path::new(&args[i + 3]),
+        );
         return;
     }
-    let days: f64 = std::env::var("LOADLOOM_BENCH_DAYS").ok().and_then(|v| v.parse().ok()).unwrap_or(365.0);
+    let days: f64 = std::env::var("LOADLOOM_BENCH_DAYS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(365.0);
     let dir: PathBuf = std::env::temp_dir().join(format!("loadloom-bench-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
     let s = scenario(days);
@@ -120,9 +218,19 @@ fn main() {
     let floor_bytes = dir_bytes(&dir.join("floor"));
     let (t_sim, m_sim) = measure("sim", days, &dir);
     let sim_bytes = dir_bytes(&dir.join(&s.name));
-    println!("split-phase demo, {days} d at 1 s, {} appliances, {} rows", s.appliances.len(), s.intervals());
+    println!(
+        "split-phase demo, {days} d at 1 s, {} appliances, {} rows",
+        s.appliances.len(),
+        s.intervals()
+    );
     println!("simulate + write all files: {t_sim:8.1} s  peak {m_sim:6.0} MB  {:.1} MB written  {:.2e} appliance-samples/s", sim_bytes as f64 / 1e6, samples / t_sim);
-    println!("floor (precomputed values): {t_floor:8.1} s  peak {m_floor:6.0} MB  {:.1} MB written", floor_bytes as f64 / 1e6);
-    println!("ratio simulate / floor:     {:8.2}   (target ≤ 1.5; peak memory target < 512 MB)", t_sim / t_floor);
+    println!(
+        "floor (precomputed values): {t_floor:8.1} s  peak {m_floor:6.0} MB  {:.1} MB written",
+        floor_bytes as f64 / 1e6
+    );
+    println!(
+        "ratio simulate / floor:     {:8.2}   (target ≤ 1.5; peak memory target < 512 MB)",
+        t_sim / t_floor
+    );
     let _ = std::fs::remove_dir_all(&dir);
 }

@@ -10,7 +10,8 @@ use std::time::Instant;
 
 fn main() {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
-    let mut s = loadloom::scenario::load(&root.join("scenarios/three-phase-house.toml")).expect("demo parses");
+    let mut s = loadloom::scenario::load(&root.join("scenarios/three-phase-house.toml"))
+        .expect("demo parses");
     s.run.length_s = 3600.0;
     let dir = std::env::temp_dir().join(format!("loadloom-bench-wave-{}", std::process::id()));
     let time = |s: &loadloom::scenario::Scenario| {
@@ -24,14 +25,29 @@ fn main() {
         best
     };
     let plain = time(&s);
-    let w = loadloom::scenario::decode::place_window(&format!("{}:00", s.run.start_local), 600.0, &s.run, &s.home).expect("window");
+    let w = loadloom::scenario::decode::place_window(
+        &format!("{}:00", s.run.start_local),
+        600.0,
+        &s.run,
+        &s.home,
+    )
+    .expect("window");
     s.waveforms.windows.push(w);
     s.waveforms.rate_hz = 12_800.0;
     let with = time(&s);
-    let bytes = std::fs::metadata(dir.join(&s.name).join("waveform-1.wav")).map(|m| m.len()).unwrap_or(0);
+    let bytes = std::fs::metadata(dir.join(&s.name).join("waveform-1.wav"))
+        .map(|m| m.len())
+        .unwrap_or(0);
     let frames = 600.0 * 12_800.0;
     println!("three-phase demo, 1 h at 1 s, plus a 10-minute waveform at 12.8 kHz (7 channels), best of 3:");
-    println!("  without the waveform: {plain:.2} s; with it: {with:.2} s; the waveform adds {:.2} s", with - plain);
-    println!("  waveform file: {:.1} MB, {:.1} million frames per second of writing", bytes as f64 / 1e6, frames / (with - plain).max(1e-9) / 1e6);
+    println!(
+        "  without the waveform: {plain:.2} s; with it: {with:.2} s; the waveform adds {:.2} s",
+        with - plain
+    );
+    println!(
+        "  waveform file: {:.1} MB, {:.1} million frames per second of writing",
+        bytes as f64 / 1e6,
+        frames / (with - plain).max(1e-9) / 1e6
+    );
     let _ = std::fs::remove_dir_all(&dir);
 }

@@ -44,12 +44,18 @@ impl Metering {
     /// Complex factor from conductor power to channel reading.
     fn factor(&self, d: &Declared, c: usize) -> Cx {
         let m = self.map[c];
-        let u = if m.turned { d.supply.unit(c).div(d.supply.unit(m.src)) } else { Cx::new(1.0, 0.0) };
+        let u = if m.turned {
+            d.supply.unit(c).div(d.supply.unit(m.src))
+        } else {
+            Cx::new(1.0, 0.0)
+        };
         u.scale(m.k)
     }
     /// Channel readings of per-conductor powers `t` (None: channel absent).
     pub fn read(&self, d: &Declared, t: &[Cx]) -> Vec<Option<Cx>> {
-        (0..self.map.len()).map(|c| (!self.absent[c]).then(|| t[self.map[c].src] * self.factor(d, c))).collect()
+        (0..self.map.len())
+            .map(|c| (!self.absent[c]).then(|| t[self.map[c].src] * self.factor(d, c)))
+            .collect()
     }
 }
 
@@ -123,7 +129,12 @@ fn dist_delta(delta: &[Cx], r: &[Option<Cx>]) -> f64 {
         return f64::INFINITY;
     }
     let t = tol(size);
-    let one = |sign: f64| r.iter().zip(delta).filter_map(|(r, d)| r.map(|r| (*d - r.scale(sign)).abs() / t)).fold(0.0, f64::max);
+    let one = |sign: f64| {
+        r.iter()
+            .zip(delta)
+            .filter_map(|(r, d)| r.map(|r| (*d - r.scale(sign)).abs() / t))
+            .fold(0.0, f64::max)
+    };
     one(1.0).min(one(-1.0))
 }
 
@@ -132,7 +143,9 @@ fn fits(e: &Event, r: &[Option<Cx>]) -> bool {
 }
 
 fn dist_all(e: &Event, sigs: &[Vec<Option<Cx>>]) -> f64 {
-    sigs.iter().map(|r| dist(e, r)).fold(f64::INFINITY, f64::min)
+    sigs.iter()
+        .map(|r| dist(e, r))
+        .fold(f64::INFINITY, f64::min)
 }
 
 // ---- expected steps at an event's measured voltages ----------------------
@@ -157,8 +170,19 @@ impl Model {
     pub fn of(d: &Declared, a: &DeclAppliance) -> Model {
         let mut jumps: Vec<Vec<Term>> = Vec::new();
         for ((from, to, kt, kf), _) in d.distinct_jumps(a) {
-            let mut t: Vec<Term> = a.states[to].iter().map(|dr| Term { draw: dr.clone(), k: kt, after: true }).collect();
-            t.extend(a.states[from].iter().map(|dr| Term { draw: dr.clone(), k: -kf, after: false }));
+            let mut t: Vec<Term> = a.states[to]
+                .iter()
+                .map(|dr| Term {
+                    draw: dr.clone(),
+                    k: kt,
+                    after: true,
+                })
+                .collect();
+            t.extend(a.states[from].iter().map(|dr| Term {
+                draw: dr.clone(),
+                k: -kf,
+                after: false,
+            }));
             jumps.push(t);
         }
         Model { jumps }
@@ -184,14 +208,25 @@ impl Ctx {
         let n = d.supply.lines();
         // Voltage leads stay on their channels' lines unless the channels
         // are exchanged whole.
-        let lead = |b: usize| (0..n).find(|&c| !m.map[c].turned && m.map[c].src == b).unwrap_or(b);
-        let vb: Vec<f64> = (0..n).map(|b| e.v_before.get(lead(b)).copied().unwrap_or(f64::NAN)).collect();
-        let va: Vec<f64> = (0..n).map(|b| e.v_after.get(lead(b)).copied().unwrap_or(f64::NAN)).collect();
+        let lead = |b: usize| {
+            (0..n)
+                .find(|&c| !m.map[c].turned && m.map[c].src == b)
+                .unwrap_or(b)
+        };
+        let vb: Vec<f64> = (0..n)
+            .map(|b| e.v_before.get(lead(b)).copied().unwrap_or(f64::NAN))
+            .collect();
+        let va: Vec<f64> = (0..n)
+            .map(|b| e.v_after.get(lead(b)).copied().unwrap_or(f64::NAN))
+            .collect();
         let known = vb.iter().chain(&va).all(|v| v.is_finite() && *v > 0.0);
         let (mut react, mut slack) = (vec![Cx::ZERO; n], vec![0.0; n]);
         if known {
             for c in 0..n {
-                let (b, a) = (e.v_before.get(c).copied().unwrap_or(f64::NAN), e.v_after.get(c).copied().unwrap_or(f64::NAN));
+                let (b, a) = (
+                    e.v_before.get(c).copied().unwrap_or(f64::NAN),
+                    e.v_after.get(c).copied().unwrap_or(f64::NAN),
+                );
                 if b.is_finite() && a.is_finite() && b > 0.0 {
                     let dv = a / b - 1.0;
                     react[c] = e.before[c].scale(dv);
@@ -199,14 +234,22 @@ impl Ctx {
                 }
             }
         }
-        Ctx { vb, va, known, react, slack }
+        Ctx {
+            vb,
+            va,
+            known,
+            react,
+            slack,
+        }
     }
 
     fn u(&self, d: &Declared, w: super::decl::Wiring, after: bool) -> f64 {
         if !self.known {
             return 1.0;
         }
-        d.supply.ratio_across(w, if after { &self.va } else { &self.vb }).unwrap_or(1.0)
+        d.supply
+            .ratio_across(w, if after { &self.va } else { &self.vb })
+            .unwrap_or(1.0)
     }
 }
 
@@ -224,7 +267,14 @@ pub const TOL_REL_V: f64 = 0.03;
 /// tolerance: the wander's share is fitted to the step, so a jump of
 /// another size must not pass as this one plus whatever wander closes the gap.
 /// Returns (alone, with a wander).
-fn dist_model(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model, shapes: &[Vec<Option<Cx>>]) -> (f64, f64) {
+fn dist_model(
+    d: &Declared,
+    m: &Metering,
+    e: &Event,
+    cx: &Ctx,
+    md: &Model,
+    shapes: &[Vec<Option<Cx>>],
+) -> (f64, f64) {
     let n = d.supply.lines();
     let mut best = f64::INFINITY;
     let mut comp = f64::INFINITY;
@@ -236,7 +286,10 @@ fn dist_model(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model, shape
             let mut t = vec![Cx::ZERO; n];
             for term in j {
                 let after = if fwd { term.after } else { !term.after };
-                let s = term.draw.at(cx.u(d, term.draw.wiring, after)).scale(if fwd { term.k } else { -term.k });
+                let s = term
+                    .draw
+                    .at(cx.u(d, term.draw.wiring, after))
+                    .scale(if fwd { term.k } else { -term.k });
                 for (o, x) in t.iter_mut().zip(d.supply.split(term.draw.wiring, s)) {
                     *o = *o + x;
                 }
@@ -248,9 +301,15 @@ fn dist_model(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model, shape
             }
             let rel = if cx.known { TOL_REL_V } else { TOL_REL };
             let abs = if cx.known { TOL_ABS_V_W } else { TOL_ABS_W };
-            let tol: Vec<f64> = (0..n).map(|c| abs + rel * size + 3.0 * e.se[c] + cx.slack[c]).collect();
-            let res: Vec<Option<Cx>> = (0..n).map(|c| r[c].map(|rc| e.delta[c] - rc - cx.react[c])).collect();
-            let worst = (0..n).filter_map(|c| res[c].map(|x| x.abs() / tol[c])).fold(0.0, f64::max);
+            let tol: Vec<f64> = (0..n)
+                .map(|c| abs + rel * size + 3.0 * e.se[c] + cx.slack[c])
+                .collect();
+            let res: Vec<Option<Cx>> = (0..n)
+                .map(|c| r[c].map(|rc| e.delta[c] - rc - cx.react[c]))
+                .collect();
+            let worst = (0..n)
+                .filter_map(|c| res[c].map(|x| x.abs() / tol[c]))
+                .fold(0.0, f64::max);
             best = best.min(worst);
             if worst > 1.0 {
                 for sh in shapes {
@@ -265,7 +324,12 @@ fn dist_model(d: &Declared, m: &Metering, e: &Event, cx: &Ctx, md: &Model, shape
                         continue;
                     }
                     let lam = (num / den).clamp(-1.0, 1.0);
-                    let w = (0..n).filter_map(|c| res[c].map(|x| (x - sh[c].unwrap_or(Cx::ZERO).scale(lam)).abs() / tol[c])).fold(0.0, f64::max);
+                    let w = (0..n)
+                        .filter_map(|c| {
+                            res[c]
+                                .map(|x| (x - sh[c].unwrap_or(Cx::ZERO).scale(lam)).abs() / tol[c])
+                        })
+                        .fold(0.0, f64::max);
                     comp = comp.min(2.0 * w);
                 }
             }
@@ -283,11 +347,21 @@ struct Pred {
 
 impl Pred {
     fn of(d: &Declared, m: &Metering, a: &DeclAppliance) -> Pred {
-        Pred { nom: predicted(d, m, a), model: Model::of(d, a) }
+        Pred {
+            nom: predicted(d, m, a),
+            model: Model::of(d, a),
+        }
     }
     /// Distance of event `e` (with its voltages `cx`) from these steps:
     /// alone, and (with `shapes`) alone or together with part of a wander.
-    fn dist2(&self, d: &Declared, m: &Metering, e: &Event, cx: &Ctx, shapes: &[Vec<Option<Cx>>]) -> (f64, f64) {
+    fn dist2(
+        &self,
+        d: &Declared,
+        m: &Metering,
+        e: &Event,
+        cx: &Ctx,
+        shapes: &[Vec<Option<Cx>>],
+    ) -> (f64, f64) {
         // Far off even at nominal voltage and the wide tolerance: no need
         // to work out the voltages.
         if dist_all(e, &self.nom) > if shapes.is_empty() { 2.5 } else { 5.0 } {
@@ -310,20 +384,40 @@ fn any_fits(e: &Event, sigs: &[Vec<Option<Cx>>]) -> bool {
 }
 
 fn visible(sigs: &[Vec<Option<Cx>>]) -> bool {
-    sigs.iter().any(|r| r.iter().flatten().map(|c| c.abs()).fold(0.0, f64::max) >= USE_STEP)
+    sigs.iter()
+        .any(|r| r.iter().flatten().map(|c| c.abs()).fold(0.0, f64::max) >= USE_STEP)
 }
 
 /// The metering as declared.
 pub fn declared_metering(d: &Declared, absent: &[bool]) -> Metering {
-    let map = d.channels.iter().enumerate().map(|(c, ch)| ChanMap { src: ch.conductor.unwrap_or(c), k: if ch.reversed { -1.0 } else { 1.0 }, turned: true }).collect();
-    Metering { map, absent: absent.to_vec() }
+    let map = d
+        .channels
+        .iter()
+        .enumerate()
+        .map(|(c, ch)| ChanMap {
+            src: ch.conductor.unwrap_or(c),
+            k: if ch.reversed { -1.0 } else { 1.0 },
+            turned: true,
+        })
+        .collect();
+    Metering {
+        map,
+        absent: absent.to_vec(),
+    }
 }
 
 fn permutations(n: usize) -> Vec<Vec<usize>> {
     match n {
         1 => vec![vec![0]],
         2 => vec![vec![0, 1], vec![1, 0]],
-        _ => vec![vec![0, 1, 2], vec![0, 2, 1], vec![1, 0, 2], vec![1, 2, 0], vec![2, 0, 1], vec![2, 1, 0]],
+        _ => vec![
+            vec![0, 1, 2],
+            vec![0, 2, 1],
+            vec![1, 0, 2],
+            vec![1, 2, 0],
+            vec![2, 0, 1],
+            vec![2, 1, 0],
+        ],
     }
 }
 
@@ -336,9 +430,28 @@ fn hypotheses(d: &Declared, absent: &[bool]) -> Vec<(Metering, usize)> {
     let per: Vec<(usize, f64)> = (0..n).flat_map(|b| [(b, 1.0), (b, -1.0)]).collect();
     let mut idx = vec![0usize; n];
     loop {
-        let map: Vec<ChanMap> = idx.iter().map(|&i| ChanMap { src: per[i].0, k: per[i].1, turned: true }).collect();
-        let cost = map.iter().zip(&decl.map).enumerate().filter(|(c, _)| !absent[*c]).map(|(_, (m, dm))| (m.src != dm.src) as usize + (m.k != dm.k) as usize).sum();
-        out.push((Metering { map, absent: absent.to_vec() }, cost));
+        let map: Vec<ChanMap> = idx
+            .iter()
+            .map(|&i| ChanMap {
+                src: per[i].0,
+                k: per[i].1,
+                turned: true,
+            })
+            .collect();
+        let cost = map
+            .iter()
+            .zip(&decl.map)
+            .enumerate()
+            .filter(|(c, _)| !absent[*c])
+            .map(|(_, (m, dm))| (m.src != dm.src) as usize + (m.k != dm.k) as usize)
+            .sum();
+        out.push((
+            Metering {
+                map,
+                absent: absent.to_vec(),
+            },
+            cost,
+        ));
         let mut c = 0;
         loop {
             if c == n {
@@ -356,8 +469,22 @@ fn hypotheses(d: &Declared, absent: &[bool]) -> Vec<(Metering, usize)> {
         }
     }
     for p in permutations(n).into_iter().skip(1) {
-        let map = p.iter().enumerate().map(|(c, &s)| ChanMap { src: s, k: decl.map[c].k, turned: false }).collect();
-        out.push((Metering { map, absent: absent.to_vec() }, 1));
+        let map = p
+            .iter()
+            .enumerate()
+            .map(|(c, &s)| ChanMap {
+                src: s,
+                k: decl.map[c].k,
+                turned: false,
+            })
+            .collect();
+        out.push((
+            Metering {
+                map,
+                absent: absent.to_vec(),
+            },
+            1,
+        ));
     }
     out
 }
@@ -408,15 +535,25 @@ fn dist_shape(e: &Event, r: &[Option<Cx>]) -> f64 {
         return f64::INFINITY;
     }
     let t = tol(size);
-    r.iter().zip(&e.delta).filter_map(|(r, d)| r.map(|r| (*d - r.scale(lam)).abs() / t)).fold(0.0, f64::max)
+    r.iter()
+        .zip(&e.delta)
+        .filter_map(|(r, d)| r.map(|r| (*d - r.scale(lam)).abs() / t))
+        .fold(0.0, f64::max)
 }
 
 /// Steps the declared appliances explain under `m`: their jumps, and the
 /// wandering of those whose power wanders.
 /// Returns (appliances with at least two fitting steps, steps explained).
 fn explained(d: &Declared, m: &Metering, events: &[&Event]) -> (usize, usize) {
-    let fits: Vec<Fits> = d.appliances.iter().map(|a| fits_of(d, m, a, events)).collect();
-    let apps = fits.iter().filter(|f| f.jump.iter().filter(|&&x| x).count() >= 2).count();
+    let fits: Vec<Fits> = d
+        .appliances
+        .iter()
+        .map(|a| fits_of(d, m, a, events))
+        .collect();
+    let apps = fits
+        .iter()
+        .filter(|f| f.jump.iter().filter(|&&x| x).count() >= 2)
+        .count();
     (apps, steps_explained(&fits, events.len()))
 }
 
@@ -432,20 +569,31 @@ fn fits_of(d: &Declared, m: &Metering, a: &DeclAppliance, events: &[&Event]) -> 
     let shape = shape_of(d, m, a);
     Fits {
         jump: events.iter().map(|e| any_fits(e, &sig)).collect(),
-        wander: events.iter().map(|e| shape.as_ref().is_some_and(|r| fits_shape(e, r))).collect(),
+        wander: events
+            .iter()
+            .map(|e| shape.as_ref().is_some_and(|r| fits_shape(e, r)))
+            .collect(),
     }
 }
 
 /// Steps some appliance's jump or wander fits.
 fn steps_explained<'a>(fits: impl IntoIterator<Item = &'a Fits> + Clone, n: usize) -> usize {
-    (0..n).filter(|&k| fits.clone().into_iter().any(|f| f.jump[k] || f.wander[k])).count()
+    (0..n)
+        .filter(|&k| fits.clone().into_iter().any(|f| f.jump[k] || f.wander[k]))
+        .count()
 }
 
 /// Least-squares fit of a step to each connection: (wiring, complex power,
 /// relative residual), best first.
 pub fn connection_of(d: &Declared, m: &Metering, delta: &[Cx]) -> Vec<(Wiring, Cx, f64)> {
     let n = d.supply.lines();
-    let norm: f64 = delta.iter().enumerate().filter(|(c, _)| !m.absent[*c]).map(|(_, x)| x.abs().powi(2)).sum::<f64>().sqrt();
+    let norm: f64 = delta
+        .iter()
+        .enumerate()
+        .filter(|(c, _)| !m.absent[*c])
+        .map(|(_, x)| x.abs().powi(2))
+        .sum::<f64>()
+        .sqrt();
     let mut v: Vec<(Wiring, Cx, f64)> = Wiring::all(n)
         .into_iter()
         .map(|w| {
@@ -461,8 +609,21 @@ pub fn connection_of(d: &Declared, m: &Metering, delta: &[Cx]) -> Vec<(Wiring, C
                 return (w, Cx::ZERO, f64::INFINITY);
             }
             let s = num.scale(1.0 / den);
-            let res: f64 = g.iter().zip(delta).filter_map(|(gc, e)| gc.map(|gc| (*e - s * gc).abs().powi(2))).sum::<f64>().sqrt();
-            (w, s, if norm > 0.0 { res / norm } else { f64::INFINITY })
+            let res: f64 = g
+                .iter()
+                .zip(delta)
+                .filter_map(|(gc, e)| gc.map(|gc| (*e - s * gc).abs().powi(2)))
+                .sum::<f64>()
+                .sqrt();
+            (
+                w,
+                s,
+                if norm > 0.0 {
+                    res / norm
+                } else {
+                    f64::INFINITY
+                },
+            )
         })
         .collect();
     v.sort_by(|a, b| a.2.total_cmp(&b.2));
@@ -483,21 +644,36 @@ fn alternatives(d: &Declared, a: &DeclAppliance) -> Vec<(String, DeclAppliance)>
     let n = d.supply.lines();
     let ws = a.wirings();
     if ws.len() == 1 {
-        Wiring::all(n).into_iter().filter(|w| *w != ws[0]).map(|w| (w.name(), a.rewired(|_| w))).collect()
+        Wiring::all(n)
+            .into_iter()
+            .filter(|w| *w != ws[0])
+            .map(|w| (w.name(), a.rewired(|_| w)))
+            .collect()
     } else {
         permutations(n)
             .into_iter()
             .skip(1)
             .map(|p| {
                 let b = a.rewired(|w| w.permuted(&p));
-                (b.wirings().iter().map(|w| w.name()).collect::<Vec<_>>().join(" + "), b)
+                (
+                    b.wirings()
+                        .iter()
+                        .map(|w| w.name())
+                        .collect::<Vec<_>>()
+                        .join(" + "),
+                    b,
+                )
             })
             .collect()
     }
 }
 
 fn wiring_names(a: &DeclAppliance) -> String {
-    a.wirings().iter().map(|w| w.name()).collect::<Vec<_>>().join(" + ")
+    a.wirings()
+        .iter()
+        .map(|w| w.name())
+        .collect::<Vec<_>>()
+        .join(" + ")
 }
 
 fn kind_of(decl: &DeclAppliance, seen: &DeclAppliance) -> &'static str {
@@ -520,8 +696,13 @@ fn kind_of(decl: &DeclAppliance, seen: &DeclAppliance) -> &'static str {
 pub fn uncheckable(a: &DeclAppliance) -> Option<String> {
     match &a.steps {
         super::decl::Steps::None(why) => Some((*why).into()),
-        super::decl::Steps::Wanders { jumps, .. } if jumps.is_empty() => Some("its power wanders continuously".into()),
-        _ if a.largest_step_w() < 300.0 => Some(format!("its largest step, {:.0} W, is below the 300 W the audit decides on", a.largest_step_w())),
+        super::decl::Steps::Wanders { jumps, .. } if jumps.is_empty() => {
+            Some("its power wanders continuously".into())
+        }
+        _ if a.largest_step_w() < 300.0 => Some(format!(
+            "its largest step, {:.0} W, is below the 300 W the audit decides on",
+            a.largest_step_w()
+        )),
         _ => None,
     }
 }
@@ -532,19 +713,29 @@ pub fn uncheckable(a: &DeclAppliance) -> Option<String> {
 /// the two apart, and leaving one out of the declaration cannot be seen.
 /// Returns that other appliance's id.
 pub fn indistinct(d: &Declared, j: usize) -> Option<String> {
-    let own: Vec<Vec<Cx>> = d.signatures(&d.appliances[j]).into_iter().filter(|t| t.iter().map(|c| c.re).sum::<f64>().abs() >= 500.0).collect();
+    let own: Vec<Vec<Cx>> = d
+        .signatures(&d.appliances[j])
+        .into_iter()
+        .filter(|t| t.iter().map(|c| c.re).sum::<f64>().abs() >= 500.0)
+        .collect();
     if own.is_empty() {
         return None;
     }
     let close = |a: &[Cx], b: &[Cx]| {
         let size = a.iter().map(|c| c.abs()).fold(0.0, f64::max);
         let tol = 2.0 * (TOL_ABS_V_W + TOL_REL_V * size);
-        a.iter().zip(b).all(|(x, y)| (*x - *y).abs() <= tol) || a.iter().zip(b).all(|(x, y)| (*x + *y).abs() <= tol)
+        a.iter().zip(b).all(|(x, y)| (*x - *y).abs() <= tol)
+            || a.iter().zip(b).all(|(x, y)| (*x + *y).abs() <= tol)
     };
-    d.appliances.iter().enumerate().filter(|(k, _)| *k != j).find(|(_, o)| {
-        let theirs = d.signatures(o);
-        own.iter().all(|t| theirs.iter().any(|u| close(t, u)))
-    }).map(|(_, o)| o.id.clone())
+    d.appliances
+        .iter()
+        .enumerate()
+        .filter(|(k, _)| *k != j)
+        .find(|(_, o)| {
+            let theirs = d.signatures(o);
+            own.iter().all(|t| theirs.iter().any(|u| close(t, u)))
+        })
+        .map(|(_, o)| o.id.clone())
 }
 
 /// The channel stats say a channel has no CT: null nearly always, or nothing
@@ -568,8 +759,13 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     for c in 0..n {
         let st = &stats[c];
         let read = st.rows.max(1) as f64;
-        let loaded = d.appliances.iter().any(|a| a.wirings().iter().any(|w| w.lines(n).contains(&c)));
-        if d.channels[c].conductor.is_some() && (st.null as f64 / read > 0.9 || (loaded && st.zero as f64 / read > 0.98)) {
+        let loaded = d
+            .appliances
+            .iter()
+            .any(|a| a.wirings().iter().any(|w| w.lines(n).contains(&c)));
+        if d.channels[c].conductor.is_some()
+            && (st.null as f64 / read > 0.9 || (loaded && st.zero as f64 / read > 0.98))
+        {
             findings.push(Finding {
                 kind: "no-ct",
                 subject: chan(c),
@@ -579,7 +775,9 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
             });
         }
     }
-    let absent: Vec<bool> = (0..n).map(|c| absent[c] || findings.iter().any(|f| f.subject == chan(c))).collect();
+    let absent: Vec<bool> = (0..n)
+        .map(|c| absent[c] || findings.iter().any(|f| f.subject == chan(c)))
+        .collect();
     let big: Vec<&Event> = events.iter().filter(|e| e.size() >= 150.0).collect();
     // 1. Metering.
     let decl_m = declared_metering(d, &absent);
@@ -590,7 +788,11 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
         .enumerate()
         .map(|(i, (m, cost))| {
             let neg = negative_share(m, stats);
-            let (apps, ex) = if neg <= NEGATIVE_OK { explained(d, m, &big) } else { (0, 0) };
+            let (apps, ex) = if neg <= NEGATIVE_OK {
+                explained(d, m, &big)
+            } else {
+                (0, 0)
+            };
             (i, apps, ex, neg, *cost)
         })
         .collect();
@@ -604,7 +806,13 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     let chosen = if decl_neg <= NEGATIVE_OK && decl_ex as f64 >= 0.9 * best_ex as f64 {
         decl_i
     } else {
-        scored.iter().filter(ok).filter(|s| s.2 as f64 >= 0.95 * best_ex as f64).min_by_key(|s| (s.4, usize::MAX - s.2)).map(|s| s.0).unwrap_or(decl_i)
+        scored
+            .iter()
+            .filter(ok)
+            .filter(|s| s.2 as f64 >= 0.95 * best_ex as f64)
+            .min_by_key(|s| (s.4, usize::MAX - s.2))
+            .map(|s| s.0)
+            .unwrap_or(decl_i)
     };
     // One appliance on another connection is a simpler mistake than a
     // metering fault: the declared metering stands when, with the one
@@ -614,16 +822,28 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     // metering where two channels were in fact exchanged.)
     let chosen = if chosen != decl_i && decl_neg <= NEGATIVE_OK {
         // The other appliances' fits stay as they are while one is moved.
-        let fits: Vec<Fits> = d.appliances.iter().map(|a| fits_of(d, &decl_m, a, &big)).collect();
+        let fits: Vec<Fits> = d
+            .appliances
+            .iter()
+            .map(|a| fits_of(d, &decl_m, a, &big))
+            .collect();
         let mut most = decl_ex;
         for (j, a) in d.appliances.iter().enumerate() {
             for (_, alt) in alternatives(d, a) {
                 let moved = fits_of(d, &decl_m, &alt, &big);
-                let others = fits.iter().enumerate().filter(|(o, _)| *o != j).map(|(_, f)| f);
+                let others = fits
+                    .iter()
+                    .enumerate()
+                    .filter(|(o, _)| *o != j)
+                    .map(|(_, f)| f);
                 most = most.max(steps_explained(others.chain([&moved]), big.len()));
             }
         }
-        if most >= scored[chosen].2 { decl_i } else { chosen }
+        if most >= scored[chosen].2 {
+            decl_i
+        } else {
+            chosen
+        }
     } else {
         chosen
     };
@@ -631,7 +851,11 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     let (ch_apps, ch_ex) = (scored[chosen].1, scored[chosen].2);
     if chosen != decl_i {
         let by_apps = 1.0 - (decl_apps as f64 + 1.0) / (ch_apps as f64 + 1.0);
-        let conf = if decl_neg > NEGATIVE_OK { decl_neg.max(by_apps) } else { by_apps };
+        let conf = if decl_neg > NEGATIVE_OK {
+            decl_neg.max(by_apps)
+        } else {
+            by_apps
+        };
         let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg });
         metering_findings(d, &decl_m, &m, conf.clamp(0.0, 1.0), ev, &mut findings);
     }
@@ -669,22 +893,62 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
         }
         fit[k] = minor && explain.iter().any(|p| p.dist(d, &m, &main, &cxs[k]) <= 1.0);
     }
-    let total_wh: f64 = stats.iter().enumerate().filter(|(c, _)| !absent[*c]).map(|(_, s)| s.sum_p).sum::<f64>() * interval_s / 3600.0;
+    let total_wh: f64 = stats
+        .iter()
+        .enumerate()
+        .filter(|(c, _)| !absent[*c])
+        .map(|(_, s)| s.sum_p)
+        .sum::<f64>()
+        * interval_s
+        / 3600.0;
     let hours = stats.iter().map(|s| s.rows).max().unwrap_or(0) as f64 * interval_s / 3600.0;
     let sums = coincidences(d, &m, &placed, &used, interval_s, hours);
     undeclared(d, &m, &used, &fit, &sums, total_wh, &mut findings);
     let steps_explained = fit.iter().filter(|x| **x).count();
-    Outcome { findings, appliances: checks, metering: m, steps: used.len(), steps_explained, notes }
+    Outcome {
+        findings,
+        appliances: checks,
+        metering: m,
+        steps: used.len(),
+        steps_explained,
+        notes,
+    }
 }
 
-fn metering_findings(d: &Declared, decl: &Metering, m: &Metering, confidence: f64, evidence: Value, out: &mut Vec<Finding>) {
+fn metering_findings(
+    d: &Declared,
+    decl: &Metering,
+    m: &Metering,
+    confidence: f64,
+    evidence: Value,
+    out: &mut Vec<Finding>,
+) {
     let n = d.supply.lines();
-    let mut push = |kind: &'static str, subject: String, message: String| out.push(Finding { kind, subject, message, confidence, evidence: evidence.clone() });
+    let mut push = |kind: &'static str, subject: String, message: String| {
+        out.push(Finding {
+            kind,
+            subject,
+            message,
+            confidence,
+            evidence: evidence.clone(),
+        })
+    };
     if m.map.iter().any(|c| !c.turned) {
         let moved: Vec<usize> = (0..n).filter(|&c| m.map[c].src != c).collect();
         let names: Vec<String> = moved.iter().map(|&c| chan(c)).collect();
-        let reads: Vec<String> = moved.iter().map(|&c| format!("{} reads {}", chan(c), line(m.map[c].src))).collect();
-        push("channels-exchanged", names.join("+"), format!("channels {} are exchanged, CT and voltage together (or their labels): {}", names.join(" and "), reads.join(", ")));
+        let reads: Vec<String> = moved
+            .iter()
+            .map(|&c| format!("{} reads {}", chan(c), line(m.map[c].src)))
+            .collect();
+        push(
+            "channels-exchanged",
+            names.join("+"),
+            format!(
+                "channels {} are exchanged, CT and voltage together (or their labels): {}",
+                names.join(" and "),
+                reads.join(", ")
+            ),
+        );
         return;
     }
     let mut done = vec![false; n];
@@ -699,12 +963,33 @@ fn metering_findings(d: &Declared, decl: &Metering, m: &Metering, confidence: f6
             push("cts-exchanged", format!("{}+{}", chan(a.min(b)), chan(a.max(b))), format!("the CTs of channels {} and {} are exchanged: each sits on the other's conductor", chan(a), chan(b)));
         } else {
             done[a] = true;
-            push("ct-on-other-conductor", chan(a), format!("the CT of channel {} is on conductor {}, not {}", chan(a), line(b), line(decl.map[a].src)));
+            push(
+                "ct-on-other-conductor",
+                chan(a),
+                format!(
+                    "the CT of channel {} is on conductor {}, not {}",
+                    chan(a),
+                    line(b),
+                    line(decl.map[a].src)
+                ),
+            );
         }
     }
     for c in 0..n {
         if !m.absent[c] && m.map[c].k != decl.map[c].k {
-            push("reversed-ct", chan(c), format!("the CT of channel {} reads reversed: the power it implies is negative{}", chan(c), if decl.map[c].k < 0.0 { " unless it is clamped as it should be (declared reversed)" } else { "" }));
+            push(
+                "reversed-ct",
+                chan(c),
+                format!(
+                    "the CT of channel {} reads reversed: the power it implies is negative{}",
+                    chan(c),
+                    if decl.map[c].k < 0.0 {
+                        " unless it is clamped as it should be (declared reversed)"
+                    } else {
+                        ""
+                    }
+                ),
+            );
         }
     }
 }
@@ -712,7 +997,14 @@ fn metering_findings(d: &Declared, decl: &Metering, m: &Metering, confidence: f6
 /// The first few of some event times, as UTC timestamps (evidence a user
 /// can look up in the data).
 fn first(ms: &[i64]) -> Vec<String> {
-    ms.iter().take(5).map(|&t| jiff::Timestamp::from_millisecond(t).map(|t| t.to_string()).unwrap_or_default()).collect()
+    ms.iter()
+        .take(5)
+        .map(|&t| {
+            jiff::Timestamp::from_millisecond(t)
+                .map(|t| t.to_string())
+                .unwrap_or_default()
+        })
+        .collect()
 }
 
 /// Each start (ms, in order) paired with the next stop within 12 h.
@@ -752,7 +1044,14 @@ fn behaves_as_a_load(on: &[i64], off: &[i64]) -> bool {
 /// (closer than `level_rows` either way), and half the pairs the same way
 /// round (independent switching: the rate of Poisson coincidences; common
 /// practice, no source).
-fn coincidences(d: &Declared, m: &Metering, placed: &[DeclAppliance], events: &[&Event], interval_s: f64, hours: f64) -> Vec<(Vec<Option<Cx>>, f64)> {
+fn coincidences(
+    d: &Declared,
+    m: &Metering,
+    placed: &[DeclAppliance],
+    events: &[&Event],
+    interval_s: f64,
+    hours: f64,
+) -> Vec<(Vec<Option<Cx>>, f64)> {
     let jumps: Vec<(usize, Vec<Option<Cx>>, usize)> = placed
         .iter()
         .enumerate()
@@ -776,10 +1075,14 @@ fn coincidences(d: &Declared, m: &Metering, placed: &[DeclAppliance], events: &[
             }
             let rate = (*na * *nb) as f64 * w / (2.0 * t_s);
             for sign in [1.0, -1.0] {
-                let sum: Vec<Option<Cx>> = ra.iter().zip(rb).map(|(a, b)| match (a, b) {
-                    (Some(a), Some(b)) => Some(*a + b.scale(sign)),
-                    _ => None,
-                }).collect();
+                let sum: Vec<Option<Cx>> = ra
+                    .iter()
+                    .zip(rb)
+                    .map(|(a, b)| match (a, b) {
+                        (Some(a), Some(b)) => Some(*a + b.scale(sign)),
+                        _ => None,
+                    })
+                    .collect();
                 out.push((sum, rate));
             }
         }
@@ -808,7 +1111,15 @@ fn poisson_tail(mean: f64, k: usize) -> f64 {
 /// where 0.97 were expected (p 0.05 %), is a load.
 const COINCIDENCE_P: f64 = 0.001;
 
-fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool], sums: &[(Vec<Option<Cx>>, f64)], total_wh: f64, out: &mut Vec<Finding>) {
+fn undeclared(
+    d: &Declared,
+    m: &Metering,
+    events: &[&Event],
+    explained: &[bool],
+    sums: &[(Vec<Option<Cx>>, f64)],
+    total_wh: f64,
+    out: &mut Vec<Finding>,
+) {
     struct Cluster {
         wiring: String,
         /// Mean channel step, as a start.
@@ -818,7 +1129,11 @@ fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool],
         off: Vec<i64>,
     }
     let mut cl: Vec<Cluster> = Vec::new();
-    for (e, _) in events.iter().zip(explained).filter(|(e, x)| e.size() >= 400.0 && !**x) {
+    for (e, _) in events
+        .iter()
+        .zip(explained)
+        .filter(|(e, x)| e.size() >= 400.0 && !**x)
+    {
         let fit = connection_of(d, m, &e.delta);
         let (w, s, res) = fit[0];
         // One connection, or (an appliance with draws on several lines)
@@ -826,16 +1141,27 @@ fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool],
         let (label, s) = if res <= 0.2 {
             (w.name(), s)
         } else {
-            let parts: Vec<(Wiring, Cx)> = fit.iter().filter(|f| matches!(f.0, Wiring::LineNeutral(_)) && f.1.abs() >= USE_STEP).map(|f| (f.0, f.1)).collect();
+            let parts: Vec<(Wiring, Cx)> = fit
+                .iter()
+                .filter(|f| matches!(f.0, Wiring::LineNeutral(_)) && f.1.abs() >= USE_STEP)
+                .map(|f| (f.0, f.1))
+                .collect();
             if parts.len() < 2 {
                 continue;
             }
             let mut ws: Vec<Wiring> = parts.iter().map(|p| p.0).collect();
             ws.sort_by_key(|w| w.name());
-            (ws.iter().map(|w| w.name()).collect::<Vec<_>>().join(" + "), parts.iter().fold(Cx::ZERO, |a, p| a + p.1))
+            (
+                ws.iter().map(|w| w.name()).collect::<Vec<_>>().join(" + "),
+                parts.iter().fold(Cx::ZERO, |a, p| a + p.1),
+            )
         };
         let on = s.re >= 0.0;
-        let (s, v): (Cx, Vec<Cx>) = if on { (s, e.delta.clone()) } else { (-s, e.delta.iter().map(|x| -*x).collect()) };
+        let (s, v): (Cx, Vec<Cx>) = if on {
+            (s, e.delta.clone())
+        } else {
+            (-s, e.delta.iter().map(|x| -*x).collect())
+        };
         if s.re < 500.0 {
             continue;
         }
@@ -845,12 +1171,23 @@ fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool],
         // often shares its row with a change on the other line).
         let close = |c: &Cluster| {
             let top = c.v.iter().map(|a| a.abs()).fold(0.0, f64::max);
-            c.wiring == label && c.v.iter().zip(&v).filter(|(a, _)| a.abs() >= 0.25 * top).all(|(a, b)| (*a - *b).abs() <= 0.1 * a.abs() + 50.0)
+            c.wiring == label
+                && c.v
+                    .iter()
+                    .zip(&v)
+                    .filter(|(a, _)| a.abs() >= 0.25 * top)
+                    .all(|(a, b)| (*a - *b).abs() <= 0.1 * a.abs() + 50.0)
         };
         let k = match cl.iter().position(close) {
             Some(k) => k,
             None => {
-                cl.push(Cluster { wiring: label.clone(), v: v.clone(), s, on: vec![], off: vec![] });
+                cl.push(Cluster {
+                    wiring: label.clone(),
+                    v: v.clone(),
+                    s,
+                    on: vec![],
+                    off: vec![],
+                });
                 cl.len() - 1
             }
         };
@@ -870,13 +1207,20 @@ fn undeclared(d: &Declared, m: &Metering, events: &[&Event], explained: &[bool],
     for c in cl.iter().filter(|c| behaves_as_a_load(&c.on, &c.off)) {
         // As many coincidences of two declared appliances this size as
         // seen are not unlikely: not a load of its own.
-        let expected: f64 = sums.iter().filter(|(r, _)| dist_delta(&c.v, r) <= 1.0).map(|(_, rate)| rate).sum();
+        let expected: f64 = sums
+            .iter()
+            .filter(|(r, _)| dist_delta(&c.v, r) <= 1.0)
+            .map(|(_, rate)| rate)
+            .sum();
         if poisson_tail(expected, c.on.len() + c.off.len()) > COINCIDENCE_P {
             continue;
         }
         // Energy: each start paired with the next stop within 12 h.
         let pairs = start_stop_pairs(&c.on, &c.off);
-        let wh: f64 = pairs.iter().map(|(a, b)| c.s.re * (b - a) as f64 / 3_600_000.0).sum();
+        let wh: f64 = pairs
+            .iter()
+            .map(|(a, b)| c.s.re * (b - a) as f64 / 3_600_000.0)
+            .sum();
         let share = if total_wh > 0.0 { wh / total_wh } else { 0.0 };
         out.push(Finding {
             kind: "undeclared-load",
@@ -906,22 +1250,53 @@ fn coincidence_share(interval_s: f64) -> f64 {
 /// at most `coincidence_share` as often as its steps fit alone, plus two (a load
 /// nobody declared must not pass as a declared one plus a wander each
 /// time). An appliance that wanders also fits its own wander steps.
-fn distances(d: &Declared, m: &Metering, events: &[&Event], cxs: &[Ctx], preds: &[Pred], own: &[Option<Vec<Option<Cx>>>], interval_s: f64) -> Vec<Vec<f64>> {
+fn distances(
+    d: &Declared,
+    m: &Metering,
+    events: &[&Event],
+    cxs: &[Ctx],
+    preds: &[Pred],
+    own: &[Option<Vec<Option<Cx>>>],
+    interval_s: f64,
+) -> Vec<Vec<f64>> {
     let share = coincidence_share(interval_s);
     let shapes: Vec<Vec<Option<Cx>>> = own.iter().flatten().cloned().collect();
     let na = preds.len();
-    let pairs: Vec<Vec<(f64, f64)>> = events.iter().zip(cxs).map(|(e, cx)| preds.iter().map(|p| p.dist2(d, m, e, cx, &shapes)).collect()).collect();
+    let pairs: Vec<Vec<(f64, f64)>> = events
+        .iter()
+        .zip(cxs)
+        .map(|(e, cx)| {
+            preds
+                .iter()
+                .map(|p| p.dist2(d, m, e, cx, &shapes))
+                .collect()
+        })
+        .collect();
     let plausible: Vec<bool> = (0..na)
         .map(|j| {
             let alone = pairs.iter().filter(|r| r[j].0 <= 1.0).count();
-            let with = pairs.iter().filter(|r| r[j].0 > 1.0 && r[j].1 <= 1.0).count();
+            let with = pairs
+                .iter()
+                .filter(|r| r[j].0 > 1.0 && r[j].1 <= 1.0)
+                .count();
             with as f64 <= share * alone as f64 + 2.0
         })
         .collect();
     pairs
         .iter()
         .zip(events)
-        .map(|(r, e)| (0..na).map(|j| if plausible[j] { r[j].1 } else { r[j].0 }.min(own[j].as_ref().map(|sh| dist_shape(e, sh)).unwrap_or(f64::INFINITY))).collect())
+        .map(|(r, e)| {
+            (0..na)
+                .map(|j| {
+                    if plausible[j] { r[j].1 } else { r[j].0 }.min(
+                        own[j]
+                            .as_ref()
+                            .map(|sh| dist_shape(e, sh))
+                            .unwrap_or(f64::INFINITY),
+                    )
+                })
+                .collect()
+        })
         .collect()
 }
 
@@ -953,9 +1328,20 @@ const BLIND_MOVE: usize = 12;
 /// fit it there, `n_d` as declared (None: the declared wiring goes through
 /// a conductor no working CT reads, and counts as `BLIND_MOVE` steps of
 /// doubt in the confidence).
-fn move_finding(d: &Declared, a: &DeclAppliance, alt: &DeclAppliance, found: &str, n_d: Option<usize>, n_a: usize) -> Finding {
+fn move_finding(
+    d: &Declared,
+    a: &DeclAppliance,
+    alt: &DeclAppliance,
+    found: &str,
+    n_d: Option<usize>,
+    n_a: usize,
+) -> Finding {
     let declared = wiring_names(a);
-    let step_w = d.signatures(alt).iter().map(|t| t.iter().map(|c| c.re).sum::<f64>().abs()).fold(0.0, f64::max);
+    let step_w = d
+        .signatures(alt)
+        .iter()
+        .map(|t| t.iter().map(|c| c.re).sum::<f64>().abs())
+        .fold(0.0, f64::max);
     let message = match n_d {
         Some(_) => format!("{} ({}) is declared on {declared} but its steps show on {found}", a.id, a.label),
         None => format!("{} ({}) is declared on {declared}, which no working CT reads, but {n_a} steps of its size that no other appliance explains show on {found}", a.id, a.label),
@@ -982,9 +1368,21 @@ const WHOLE_SHARE: f64 = 0.25;
 /// `steps` fits, under `a`'s wiring:
 /// a hair dryer whose half-heat steps fit but whose full-heat step is never
 /// seen is a poor account of those steps.
-fn coverage(d: &Declared, m: &Metering, a: &DeclAppliance, used: &[&Event], cxs: &[Ctx], steps: &[usize], share: f64) -> f64 {
+fn coverage(
+    d: &Declared,
+    m: &Metering,
+    a: &DeclAppliance,
+    used: &[&Event],
+    cxs: &[Ctx],
+    steps: &[usize],
+    share: f64,
+) -> f64 {
     let model = Model::of(d, a);
-    let sizes: Vec<f64> = d.signatures(a).iter().map(|t| t.iter().map(|c| c.abs()).fold(0.0, f64::max)).collect();
+    let sizes: Vec<f64> = d
+        .signatures(a)
+        .iter()
+        .map(|t| t.iter().map(|c| c.abs()).fold(0.0, f64::max))
+        .collect();
     let top = sizes.iter().cloned().fold(0.0, f64::max);
     let (mut big, mut seen) = (0, 0);
     for (jump, size) in model.jumps.iter().zip(sizes) {
@@ -992,10 +1390,19 @@ fn coverage(d: &Declared, m: &Metering, a: &DeclAppliance, used: &[&Event], cxs:
             continue;
         }
         big += 1;
-        let one = Model { jumps: vec![jump.clone()] };
-        seen += steps.iter().any(|&k| dist_model(d, m, used[k], &cxs[k], &one, &[]).0 <= 1.0) as usize;
+        let one = Model {
+            jumps: vec![jump.clone()],
+        };
+        seen += steps
+            .iter()
+            .any(|&k| dist_model(d, m, used[k], &cxs[k], &one, &[]).0 <= 1.0)
+            as usize;
     }
-    if big == 0 { 1.0 } else { seen as f64 / big as f64 }
+    if big == 0 {
+        1.0
+    } else {
+        seen as f64 / big as f64
+    }
 }
 
 /// The move to make first among candidate findings (appliance, steps,
@@ -1005,12 +1412,18 @@ fn coverage(d: &Declared, m: &Metering, a: &DeclAppliance, used: &[&Event], cxs:
 /// step of one size, one misdeclared, both fit the misdeclared one's steps
 /// on its true line; the one whose other steps are there too is the one
 /// that is there (common practice, no source).
-fn contest(mut c: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)>) -> Option<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)> {
+fn contest(
+    mut c: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)>,
+) -> Option<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)> {
     // Most steps first; the earlier appliance on a tie.
     c.sort_by_key(|x| (usize::MAX - x.1, x.0));
     let top = c.first()?;
-    let overlap = |x: &[usize], y: &[usize]| x.iter().filter(|k| y.contains(k)).count() * 2 >= x.len().min(y.len());
-    let pick = (0..c.len()).filter(|&i| i == 0 || overlap(&c[i].4, &top.4)).max_by(|&i, &k| c[i].5.total_cmp(&c[k].5).then(k.cmp(&i)))?;
+    let overlap = |x: &[usize], y: &[usize]| {
+        x.iter().filter(|k| y.contains(k)).count() * 2 >= x.len().min(y.len())
+    };
+    let pick = (0..c.len())
+        .filter(|&i| i == 0 || overlap(&c[i].4, &top.4))
+        .max_by(|&i, &k| c[i].5.total_cmp(&c[k].5).then(k.cmp(&i)))?;
     Some(c.swap_remove(pick))
 }
 
@@ -1019,18 +1432,33 @@ fn contest(mut c: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)>) 
 /// first and the appliance moved before the others are weighed again, so
 /// steps one misdeclared appliance leaves behind are not pinned on another.
 /// Returns the checks and the appliances as placed.
-fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], interval_s: f64, findings: &mut Vec<Finding>) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>) {
+fn place(
+    d: &Declared,
+    m: &Metering,
+    used: &[&Event],
+    cxs: &[Ctx],
+    interval_s: f64,
+    findings: &mut Vec<Finding>,
+) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>) {
     let na = d.appliances.len();
     let n = d.supply.lines();
     // Conductors some working channel reads; a wiring through another one
     // cannot be told from the data.
-    let seen: Vec<bool> = (0..n).map(|b| (0..n).any(|c| !m.absent[c] && m.map[c].src == b)).collect();
-    let blind = |a: &DeclAppliance| a.wirings().iter().flat_map(|w| w.lines(n)).find(|&x| !seen[x]);
+    let seen: Vec<bool> = (0..n)
+        .map(|b| (0..n).any(|c| !m.absent[c] && m.map[c].src == b))
+        .collect();
+    let blind = |a: &DeclAppliance| {
+        a.wirings()
+            .iter()
+            .flat_map(|w| w.lines(n))
+            .find(|&x| !seen[x])
+    };
     let mut placed: Vec<DeclAppliance> = d.appliances.clone();
     let mut moved = vec![false; na];
     loop {
         let sigs: Vec<Pred> = placed.iter().map(|a| Pred::of(d, m, a)).collect();
-        let shapes: Vec<Option<Vec<Option<Cx>>>> = placed.iter().map(|a| shape_of(d, m, a)).collect();
+        let shapes: Vec<Option<Vec<Option<Cx>>>> =
+            placed.iter().map(|a| shape_of(d, m, a)).collect();
         let dj = distances(d, m, used, cxs, &sigs, &shapes, interval_s);
         // Steps that fit a wiring of appliance j and no other appliance as
         // placed nearly as well (exclusive), all that fit, and who else fits.
@@ -1040,7 +1468,9 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], interval_s: f
                 let me = sg.dist(d, m, e, &cxs[k]);
                 if me <= 1.0 {
                     all.push(k);
-                    let rival = (0..na).filter(|&o| o != j && shares(me, dj[k][o])).min_by(|&a, &b| dj[k][a].total_cmp(&dj[k][b]));
+                    let rival = (0..na)
+                        .filter(|&o| o != j && shares(me, dj[k][o]))
+                        .min_by(|&a, &b| dj[k][a].total_cmp(&dj[k][b]));
                     match rival {
                         Some(o) => who.push(o),
                         None => {
@@ -1055,11 +1485,20 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], interval_s: f
         let mut checks = Vec::new();
         // Candidate moves: (appliance, steps, wiring, finding, the steps,
         // share of its step sizes among them).
-        let mut candidates: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)> = Vec::new();
+        let mut candidates: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)> =
+            Vec::new();
         for (j, a) in placed.iter().enumerate() {
             let decl = &d.appliances[j];
             let declared = wiring_names(decl);
-            let mut ck = ApplianceCheck { id: a.id.clone(), declared: declared.clone(), verdict: "undecidable", seen: None, reason: String::new(), steps_declared: 0, steps_best_other: 0 };
+            let mut ck = ApplianceCheck {
+                id: a.id.clone(),
+                declared: declared.clone(),
+                verdict: "undecidable",
+                seen: None,
+                reason: String::new(),
+                steps_declared: 0,
+                steps_best_other: 0,
+            };
             if a.steps.jumps().is_empty() {
                 ck.reason = match &a.steps {
                     super::decl::Steps::None(why) => format!("{why}: no step to recognise"),
@@ -1081,27 +1520,41 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], interval_s: f
             // Its best other wiring that a working CT reads: (steps it
             // alone fits, steps that fit, who else fits, its steps, name, wiring).
             let best_other = || {
-                let mut best: Option<(usize, Vec<usize>, Vec<usize>, Vec<usize>, String, DeclAppliance)> = None;
+                let mut best: Option<(
+                    usize,
+                    Vec<usize>,
+                    Vec<usize>,
+                    Vec<usize>,
+                    String,
+                    DeclAppliance,
+                )> = None;
                 for (name, alt) in alternatives(d, a) {
                     let sg = Pred::of(d, m, &alt);
                     if !visible(&sg.nom) || blind(&alt).is_some() {
                         continue;
                     }
                     let (x, all, who, mine) = excl(j, &sg);
-                    if best.as_ref().is_none_or(|b| (x, all.len()) > (b.0, b.1.len())) {
+                    if best
+                        .as_ref()
+                        .is_none_or(|b| (x, all.len()) > (b.0, b.1.len()))
+                    {
                         best = Some((x, all, who, mine, name, alt));
                     }
                 }
                 best.unwrap_or((0, vec![], vec![], vec![], String::new(), a.clone()))
             };
             if let Some(x) = blind(a) {
-                ck.reason = format!("its wiring goes through L{}, which no working CT reads", x + 1);
+                ck.reason = format!(
+                    "its wiring goes through L{}, which no working CT reads",
+                    x + 1
+                );
                 // Its absence there cannot be seen, but its steps elsewhere
                 // can: many of them, fitting no other appliance, place it.
                 if uncheckable(a).is_none() {
                     let (n_a, all_a, _, mine, name_a, alt) = best_other();
                     ck.steps_best_other = n_a;
-                    let whole = n_a >= BLIND_MOVE && coverage(d, m, &alt, used, cxs, &all_a, WHOLE_SHARE) >= 1.0;
+                    let whole = n_a >= BLIND_MOVE
+                        && coverage(d, m, &alt, used, cxs, &all_a, WHOLE_SHARE) >= 1.0;
                     if whole {
                         let f = move_finding(d, a, &alt, &name_a, None, n_a);
                         let cover = coverage(d, m, &alt, used, cxs, &mine, 0.0);
@@ -1141,12 +1594,18 @@ fn place(d: &Declared, m: &Metering, used: &[&Event], cxs: &[Ctx], interval_s: f
                 ck.reason = format!("{n_a} steps fit it on {name_a} and no other appliance, {n_d} on {declared}, but not every one of its main step sizes shows there: too little to place it");
             } else if n_d >= 2 {
                 ck.verdict = "as declared";
-                ck.reason = format!("{n_d} steps fit it as declared, at most {n_a} on any other connection");
+                ck.reason = format!(
+                    "{n_d} steps fit it as declared, at most {n_a} on any other connection"
+                );
             } else if all_a.len() >= 3 {
                 let mut who: Vec<String> = who.iter().map(|&o| placed[o].id.clone()).collect();
                 who.sort();
                 who.dedup();
-                ck.reason = format!("{} steps would fit it on {name_a}, but they fit {} as well", all_a.len(), who.join(", "));
+                ck.reason = format!(
+                    "{} steps would fit it on {name_a}, but they fit {} as well",
+                    all_a.len(),
+                    who.join(", ")
+                );
             } else {
                 ck.reason = format!("seen switching {n_d} times as declared and {n_a} times otherwise: too few to decide");
             }
@@ -1173,7 +1632,10 @@ mod tests {
     /// any start, or one more than 12 h later, does not.
     #[test]
     fn starts_pair_with_the_next_stop_within_twelve_hours() {
-        assert_eq!(start_stop_pairs(&[0, 2 * H, 30 * H], &[H, 3 * H, 50 * H]), vec![(0, H), (2 * H, 3 * H)]);
+        assert_eq!(
+            start_stop_pairs(&[0, 2 * H, 30 * H], &[H, 3 * H, 50 * H]),
+            vec![(0, H), (2 * H, 3 * H)]
+        );
         assert_eq!(start_stop_pairs(&[5 * H], &[H]), vec![]);
     }
 
@@ -1182,12 +1644,18 @@ mod tests {
     #[test]
     fn steps_in_any_order_do_not_make_a_load() {
         assert!(!behaves_as_a_load(&[40 * H, 45 * H], &[H, 10 * H, 20 * H]));
-        assert!(behaves_as_a_load(&[0, 10 * H, 20 * H], &[H, 11 * H, 21 * H]));
+        assert!(behaves_as_a_load(
+            &[0, 10 * H, 20 * H],
+            &[H, 11 * H, 21 * H]
+        ));
         assert!(behaves_as_a_load(&[0, 10 * H, 20 * H], &[]));
         assert!(!behaves_as_a_load(&[0, 10 * H], &[H, 11 * H]));
         // Mostly one way: five starts, one stop (at 10 s a heat strip's
         // stops pass for a declared dryer element's with a wander).
-        assert!(behaves_as_a_load(&[0, 10 * H, 20 * H, 30 * H, 40 * H], &[45 * H]));
+        assert!(behaves_as_a_load(
+            &[0, 10 * H, 20 * H, 30 * H, 40 * H],
+            &[45 * H]
+        ));
         assert!(!behaves_as_a_load(&[0, 10 * H, 20 * H], &[45 * H]));
     }
 
@@ -1208,7 +1676,15 @@ mod tests {
         DeclAppliance {
             id: id.into(),
             label: id.into(),
-            states: vec![vec![], vec![DeclDraw { wiring: Wiring::LineNeutral(line), s, zip_p: Zip::POWER, zip_q: Zip::POWER }]],
+            states: vec![
+                vec![],
+                vec![DeclDraw {
+                    wiring: Wiring::LineNeutral(line),
+                    s,
+                    zip_p: Zip::POWER,
+                    zip_q: Zip::POWER,
+                }],
+            ],
             steps: Steps::Jumps(vec![(0, 1, 1.0, 1.0), (1, 0, 1.0, 1.0)]),
         }
     }
@@ -1219,8 +1695,22 @@ mod tests {
         Declared {
             file: "t.toml".into(),
             supply_at: "t.toml:1:1".into(),
-            supply: Supply { kind: "split-phase".into(), angles_deg: vec![0.0, 180.0], voltage_v: 120.0, service_a: 200.0 },
-            channels: vec![DeclChannel { conductor: Some(0), reversed: false }, DeclChannel { conductor: Some(1), reversed: false }],
+            supply: Supply {
+                kind: "split-phase".into(),
+                angles_deg: vec![0.0, 180.0],
+                voltage_v: 120.0,
+                service_a: 200.0,
+            },
+            channels: vec![
+                DeclChannel {
+                    conductor: Some(0),
+                    reversed: false,
+                },
+                DeclChannel {
+                    conductor: Some(1),
+                    reversed: false,
+                },
+            ],
             appliances,
         }
     }
@@ -1236,13 +1726,40 @@ mod tests {
         let heater = |id: &str, w: f64| on_off(id, 0, Cx::new(w, 0.0));
         let d = split_phase(vec![heater("a", 1000.0), heater("b", 500.0)]);
         let m = declared_metering(&d, &[false, false]);
-        let step = |t: i64, w: f64| Event { time_ms: t, delta: vec![Cx::new(w, 0.0), Cx::ZERO], before: vec![Cx::ZERO; 2], v_before: vec![120.0; 2], v_after: vec![120.0; 2], se: vec![0.0; 2] };
-        let events: Vec<Event> = (0..100).flat_map(|i| [step(i * H, if i % 2 == 0 { 1000.0 } else { -1000.0 }), step(i * H + H / 2, if i % 2 == 0 { 500.0 } else { -500.0 })]).collect();
+        let step = |t: i64, w: f64| Event {
+            time_ms: t,
+            delta: vec![Cx::new(w, 0.0), Cx::ZERO],
+            before: vec![Cx::ZERO; 2],
+            v_before: vec![120.0; 2],
+            v_after: vec![120.0; 2],
+            se: vec![0.0; 2],
+        };
+        let events: Vec<Event> = (0..100)
+            .flat_map(|i| {
+                [
+                    step(i * H, if i % 2 == 0 { 1000.0 } else { -1000.0 }),
+                    step(i * H + H / 2, if i % 2 == 0 { 500.0 } else { -500.0 }),
+                ]
+            })
+            .collect();
         let refs: Vec<&Event> = events.iter().collect();
         let sums = coincidences(&d, &m, &d.appliances, &refs, 10.0, 100.0);
-        let rate = |w: f64| sums.iter().filter(|(r, _)| dist_delta(&[Cx::new(w, 0.0), Cx::ZERO], r) <= 0.2).map(|(_, x)| *x).sum::<f64>();
-        assert!((rate(1500.0) - 100.0 * 100.0 * 40.0 / (2.0 * 360_000.0)).abs() < 1e-9, "{}", rate(1500.0));
-        assert!((rate(500.0) - rate(1500.0)).abs() < 1e-9, "the opposite way round: {}", rate(500.0));
+        let rate = |w: f64| {
+            sums.iter()
+                .filter(|(r, _)| dist_delta(&[Cx::new(w, 0.0), Cx::ZERO], r) <= 0.2)
+                .map(|(_, x)| *x)
+                .sum::<f64>()
+        };
+        assert!(
+            (rate(1500.0) - 100.0 * 100.0 * 40.0 / (2.0 * 360_000.0)).abs() < 1e-9,
+            "{}",
+            rate(1500.0)
+        );
+        assert!(
+            (rate(500.0) - rate(1500.0)).abs() < 1e-9,
+            "the opposite way round: {}",
+            rate(500.0)
+        );
         assert_eq!(rate(2000.0), 0.0);
     }
 
@@ -1252,22 +1769,57 @@ mod tests {
     #[test]
     fn a_change_on_another_channel_in_the_same_interval_is_another_loads() {
         let d = split_phase(vec![on_off("pump", 1, Cx::new(600.0, 450.0))]);
-        let step = |t: i64, l1: Cx, l2: Cx| Event { time_ms: t, delta: vec![l1, l2], before: vec![Cx::new(300.0, 0.0); 2], v_before: vec![120.0; 2], v_after: vec![120.0; 2], se: vec![2.0; 2] };
+        let step = |t: i64, l1: Cx, l2: Cx| Event {
+            time_ms: t,
+            delta: vec![l1, l2],
+            before: vec![Cx::new(300.0, 0.0); 2],
+            v_before: vec![120.0; 2],
+            v_after: vec![120.0; 2],
+            se: vec![2.0; 2],
+        };
         let (heat, other) = (Cx::new(1100.0, 0.0), Cx::new(140.0, 0.0));
         let (run, blip) = (Cx::new(600.0, 450.0), Cx::new(100.0, 0.0));
         let mut events = Vec::new();
         for i in 0..4 {
             let t = i * 6 * H;
             events.push(step(t, heat, Cx::ZERO));
-            events.push(step(t + H / 4, -heat, if i % 2 == 0 { -other } else { other }));
+            events.push(step(
+                t + H / 4,
+                -heat,
+                if i % 2 == 0 { -other } else { other },
+            ));
             events.push(step(t + 3 * H, blip, run));
             events.push(step(t + 3 * H + H / 8, Cx::ZERO, -run));
         }
-        let stats = vec![ChannelStats { rows: 86_400, null: 0, zero: 0, sum_p: 300.0 * 86_400.0, negative: vec![[0, 86_400]; 2] }; 2];
+        let stats = vec![
+            ChannelStats {
+                rows: 86_400,
+                null: 0,
+                zero: 0,
+                sum_p: 300.0 * 86_400.0,
+                negative: vec![[0, 86_400]; 2]
+            };
+            2
+        ];
         let o = check(&d, &events, &stats, 10.0);
-        let found: Vec<(&str, &str)> = o.findings.iter().map(|f| (f.kind, f.subject.as_str())).collect();
-        assert_eq!(found, [("undeclared-load", "1100 W on L1-N")], "{:?}", o.findings.iter().map(|f| &f.message).collect::<Vec<_>>());
-        assert_eq!((o.findings[0].evidence["starts"].as_u64(), o.findings[0].evidence["stops"].as_u64()), (Some(4), Some(4)));
+        let found: Vec<(&str, &str)> = o
+            .findings
+            .iter()
+            .map(|f| (f.kind, f.subject.as_str()))
+            .collect();
+        assert_eq!(
+            found,
+            [("undeclared-load", "1100 W on L1-N")],
+            "{:?}",
+            o.findings.iter().map(|f| &f.message).collect::<Vec<_>>()
+        );
+        assert_eq!(
+            (
+                o.findings[0].evidence["starts"].as_u64(),
+                o.findings[0].evidence["stops"].as_u64()
+            ),
+            (Some(4), Some(4))
+        );
         assert_eq!(o.steps_explained, 8, "the pump's starts and stops");
     }
 
@@ -1278,23 +1830,76 @@ mod tests {
     fn the_move_made_first() {
         let cand = |j: usize, steps: Vec<usize>, cover: f64| {
             let a = on_off(&format!("a{j}"), 0, Cx::new(1000.0, 0.0));
-            let f = Finding { kind: "wrong-line", subject: a.id.clone(), message: String::new(), confidence: 0.5, evidence: json!({}) };
+            let f = Finding {
+                kind: "wrong-line",
+                subject: a.id.clone(),
+                message: String::new(),
+                confidence: 0.5,
+                evidence: json!({}),
+            };
             (j, steps.len(), a, f, steps, cover)
         };
-        let pick = |c: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)>| contest(c).map(|x| x.0);
+        let pick = |c: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)>| {
+            contest(c).map(|x| x.0)
+        };
         assert_eq!(pick(vec![]), None);
-        assert_eq!(pick(vec![cand(0, vec![1, 2, 3], 1.0), cand(1, vec![4, 5, 6, 7], 1.0)]), Some(1), "most steps");
-        assert_eq!(pick(vec![cand(0, vec![1, 2, 3], 1.0), cand(1, vec![4, 5, 6], 1.0)]), Some(0), "a tie: the earlier");
-        assert_eq!(pick(vec![cand(0, vec![1, 2, 3, 4, 5, 6], 2.0 / 3.0), cand(1, vec![1, 2, 3, 4, 5, 6], 1.0)]), Some(1), "the same steps: the whole account");
-        assert_eq!(pick(vec![cand(0, vec![1, 2, 3, 4, 5, 6], 0.5), cand(1, vec![4, 5, 6, 9], 1.0)]), Some(1), "half of the fewer shared");
-        assert_eq!(pick(vec![cand(0, vec![1, 2, 3, 4, 5, 6], 0.5), cand(1, vec![6, 7, 8, 9], 1.0)]), Some(0), "other steps: not a rival");
+        assert_eq!(
+            pick(vec![
+                cand(0, vec![1, 2, 3], 1.0),
+                cand(1, vec![4, 5, 6, 7], 1.0)
+            ]),
+            Some(1),
+            "most steps"
+        );
+        assert_eq!(
+            pick(vec![
+                cand(0, vec![1, 2, 3], 1.0),
+                cand(1, vec![4, 5, 6], 1.0)
+            ]),
+            Some(0),
+            "a tie: the earlier"
+        );
+        assert_eq!(
+            pick(vec![
+                cand(0, vec![1, 2, 3, 4, 5, 6], 2.0 / 3.0),
+                cand(1, vec![1, 2, 3, 4, 5, 6], 1.0)
+            ]),
+            Some(1),
+            "the same steps: the whole account"
+        );
+        assert_eq!(
+            pick(vec![
+                cand(0, vec![1, 2, 3, 4, 5, 6], 0.5),
+                cand(1, vec![4, 5, 6, 9], 1.0)
+            ]),
+            Some(1),
+            "half of the fewer shared"
+        );
+        assert_eq!(
+            pick(vec![
+                cand(0, vec![1, 2, 3, 4, 5, 6], 0.5),
+                cand(1, vec![6, 7, 8, 9], 1.0)
+            ]),
+            Some(0),
+            "other steps: not a rival"
+        );
     }
 
     /// Reference: scipy.stats.poisson.sf(k - 1, mean), scipy 1.14.1.
     #[test]
     fn the_poisson_tail_is_scipys() {
-        for (mean, k, sf) in [(1.0, 1, 0.6321205588285577), (3.5, 8, 0.026738922091319697), (0.844, 5, 0.0017794855370407824), (0.968, 6, 0.000502179831641417), (20.0, 10, 0.9950045876916924)] {
-            assert!((poisson_tail(mean, k) - sf).abs() < 1e-12, "{mean} {k}: {}", poisson_tail(mean, k));
+        for (mean, k, sf) in [
+            (1.0, 1, 0.6321205588285577),
+            (3.5, 8, 0.026738922091319697),
+            (0.844, 5, 0.0017794855370407824),
+            (0.968, 6, 0.000502179831641417),
+            (20.0, 10, 0.9950045876916924),
+        ] {
+            assert!(
+                (poisson_tail(mean, k) - sf).abs() < 1e-12,
+                "{mean} {k}: {}",
+                poisson_tail(mean, k)
+            );
         }
         assert_eq!(poisson_tail(0.0, 1), 0.0);
         assert_eq!(poisson_tail(2.0, 0), 1.0);

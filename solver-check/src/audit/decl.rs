@@ -20,45 +20,69 @@ impl Cx {
     }
     pub fn polar_deg(r: f64, deg: f64) -> Cx {
         let a = deg.to_radians();
-        Cx { re: r * a.cos(), im: r * a.sin() }
+        Cx {
+            re: r * a.cos(),
+            im: r * a.sin(),
+        }
     }
     pub fn abs(self) -> f64 {
         self.re.hypot(self.im)
     }
     pub fn conj(self) -> Cx {
-        Cx { re: self.re, im: -self.im }
+        Cx {
+            re: self.re,
+            im: -self.im,
+        }
     }
     pub fn div(self, o: Cx) -> Cx {
         let d = o.re * o.re + o.im * o.im;
-        Cx { re: (self.re * o.re + self.im * o.im) / d, im: (self.im * o.re - self.re * o.im) / d }
+        Cx {
+            re: (self.re * o.re + self.im * o.im) / d,
+            im: (self.im * o.re - self.re * o.im) / d,
+        }
     }
     pub fn scale(self, k: f64) -> Cx {
-        Cx { re: self.re * k, im: self.im * k }
+        Cx {
+            re: self.re * k,
+            im: self.im * k,
+        }
     }
 }
 
 impl Add for Cx {
     type Output = Cx;
     fn add(self, o: Cx) -> Cx {
-        Cx { re: self.re + o.re, im: self.im + o.im }
+        Cx {
+            re: self.re + o.re,
+            im: self.im + o.im,
+        }
     }
 }
 impl Sub for Cx {
     type Output = Cx;
     fn sub(self, o: Cx) -> Cx {
-        Cx { re: self.re - o.re, im: self.im - o.im }
+        Cx {
+            re: self.re - o.re,
+            im: self.im - o.im,
+        }
     }
 }
 impl Mul for Cx {
     type Output = Cx;
     fn mul(self, o: Cx) -> Cx {
-        Cx { re: self.re * o.re - self.im * o.im, im: self.re * o.im + self.im * o.re }
+        Cx {
+            re: self.re * o.re - self.im * o.im,
+            im: self.re * o.im + self.im * o.re,
+        }
     }
 }
 impl Neg for Cx {
     type Output = Cx;
     fn neg(self) -> Cx {
-        Cx { re: -self.re, im: -self.im }
+        Cx {
+            re: -self.re,
+            im: -self.im,
+        }
     }
 }
 
@@ -145,11 +169,14 @@ impl Supply {
     /// angles; a three-phase load gets the mean over its three line pairs.
     /// None when a voltage it needs is not measured.
     pub fn ratio_across(&self, w: Wiring, vm: &[f64]) -> Option<f64> {
-        let pair = |a: usize, b: usize| (self.unit(a).scale(vm[a]) - self.unit(b).scale(vm[b])).abs();
+        let pair =
+            |a: usize, b: usize| (self.unit(a).scale(vm[a]) - self.unit(b).scale(vm[b])).abs();
         let r = match w {
             Wiring::LineNeutral(a) => vm[a] / self.voltage_v,
             Wiring::LineLine(a, b) => pair(a, b) / self.nominal_across(w),
-            Wiring::ThreePhase => (pair(0, 1) + pair(1, 2) + pair(2, 0)) / (3.0 * self.nominal_across(w)),
+            Wiring::ThreePhase => {
+                (pair(0, 1) + pair(1, 2) + pair(2, 0)) / (3.0 * self.nominal_across(w))
+            }
         };
         (r.is_finite() && r > 0.5 && r < 1.5).then_some(r)
     }
@@ -191,7 +218,11 @@ pub struct Zip {
 
 impl Zip {
     /// Constant power: no dependence on voltage.
-    pub const POWER: Zip = Zip { z: 0.0, i: 0.0, p: 1.0 };
+    pub const POWER: Zip = Zip {
+        z: 0.0,
+        i: 0.0,
+        p: 1.0,
+    };
     pub fn factor(&self, u: f64) -> f64 {
         self.z * u * u + self.i * u + self.p
     }
@@ -211,7 +242,10 @@ pub struct DeclDraw {
 impl DeclDraw {
     /// Its complex power at `u` times the connection's nominal voltage.
     pub fn at(&self, u: f64) -> Cx {
-        Cx::new(self.s.re * self.zip_p.factor(u), self.s.im * self.zip_q.factor(u))
+        Cx::new(
+            self.s.re * self.zip_p.factor(u),
+            self.s.im * self.zip_q.factor(u),
+        )
     }
 }
 
@@ -226,7 +260,11 @@ pub enum Steps {
     /// power, always in that state's proportions between the lines; and
     /// the jumps it makes at the start and end of a session, if any.
     /// `max`: the largest single change, as a share of that power.
-    Wanders { state: usize, max: f64, jumps: Vec<(usize, usize, f64, f64)> },
+    Wanders {
+        state: usize,
+        max: f64,
+        jumps: Vec<(usize, usize, f64, f64)>,
+    },
     /// Never switches (always on).
     None(&'static str),
 }
@@ -277,12 +315,12 @@ impl DeclAppliance {
         self.steps
             .jumps()
             .iter()
-                .map(|&(a, b, kb, ka)| {
-                    let pa: f64 = self.states[a].iter().map(|d| d.s.re).sum();
-                    let pb: f64 = self.states[b].iter().map(|d| d.s.re).sum();
-                    (pb * kb - pa * ka).abs()
-                })
-                .fold(0.0, f64::max)
+            .map(|&(a, b, kb, ka)| {
+                let pa: f64 = self.states[a].iter().map(|d| d.s.re).sum();
+                let pb: f64 = self.states[b].iter().map(|d| d.s.re).sum();
+                (pb * kb - pa * ka).abs()
+            })
+            .fold(0.0, f64::max)
     }
 }
 
@@ -330,9 +368,19 @@ impl Declared {
         let mut v: Vec<((usize, usize, f64, f64), Vec<Cx>)> = Vec::new();
         for &(from, to, kt, kf) in a.steps.jumps() {
             let (sf, st) = (self.state_split(a, from), self.state_split(a, to));
-            let d: Vec<Cx> = st.iter().zip(&sf).map(|(t, f)| t.scale(kt) - f.scale(kf)).collect();
+            let d: Vec<Cx> = st
+                .iter()
+                .zip(&sf)
+                .map(|(t, f)| t.scale(kt) - f.scale(kf))
+                .collect();
             let size = d.iter().map(|c| c.abs()).fold(0.0, f64::max);
-            if size > 0.0 && !v.iter().any(|(_, w)| w.iter().zip(&d).all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)) {
+            if size > 0.0
+                && !v.iter().any(|(_, w)| {
+                    w.iter()
+                        .zip(&d)
+                        .all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)
+                })
+            {
                 v.push(((from, to, kt, kf), d));
             }
         }
@@ -344,7 +392,12 @@ impl Declared {
     /// The per-line proportions of a wandering appliance's steps, if it wanders.
     pub fn shape(&self, a: &DeclAppliance) -> Option<Vec<Cx>> {
         match a.steps {
-            Steps::Wanders { state, max, .. } => Some(self.state_split(a, state).iter().map(|c| c.scale(max)).collect()),
+            Steps::Wanders { state, max, .. } => Some(
+                self.state_split(a, state)
+                    .iter()
+                    .map(|c| c.scale(max))
+                    .collect(),
+            ),
             _ => None,
         }
     }
@@ -355,7 +408,12 @@ mod tests {
     use super::*;
 
     fn supply(kind: &str, angles: &[f64]) -> Supply {
-        Supply { kind: kind.into(), angles_deg: angles.to_vec(), voltage_v: 230.0, service_a: 63.0 }
+        Supply {
+            kind: kind.into(),
+            angles_deg: angles.to_vec(),
+            voltage_v: 230.0,
+            service_a: 63.0,
+        }
     }
 
     /// Two-wattmeter method (Blondel's theorem; any textbook on three-phase
@@ -382,16 +440,32 @@ mod tests {
     /// supplies).
     #[test]
     fn voltage_across_a_connection_follows_the_supply() {
-        let sp = Supply { voltage_v: 120.0, ..supply("split-phase", &[0.0, 180.0]) };
+        let sp = Supply {
+            voltage_v: 120.0,
+            ..supply("split-phase", &[0.0, 180.0])
+        };
         assert!((sp.nominal_across(Wiring::LineLine(0, 1)) - 240.0).abs() < 1e-9);
         let wye = supply("three-phase", &[0.0, -120.0, 120.0]);
         assert!((wye.nominal_across(Wiring::LineLine(0, 1)) - 230.0 * 3f64.sqrt()).abs() < 1e-9);
         // 2 % low on L1 and 2 % high on L2: the line-to-line magnitude
         // |0.98∠0° − 1.02∠−120°| = √(0.98² + 0.98·1.02 + 1.02²) / √3.
-        let r = wye.ratio_across(Wiring::LineLine(0, 1), &[0.98 * 230.0, 1.02 * 230.0, 230.0]).unwrap();
-        assert!((r - (0.98f64 * 0.98 + 0.98 * 1.02 + 1.02 * 1.02).sqrt() / 3f64.sqrt()).abs() < 1e-12);
-        assert!((wye.ratio_across(Wiring::LineNeutral(2), &[230.0, 230.0, 0.95 * 230.0]).unwrap() - 0.95).abs() < 1e-12);
-        assert_eq!(wye.ratio_across(Wiring::LineNeutral(0), &[f64::NAN, 230.0, 230.0]), None);
+        let r = wye
+            .ratio_across(Wiring::LineLine(0, 1), &[0.98 * 230.0, 1.02 * 230.0, 230.0])
+            .unwrap();
+        assert!(
+            (r - (0.98f64 * 0.98 + 0.98 * 1.02 + 1.02 * 1.02).sqrt() / 3f64.sqrt()).abs() < 1e-12
+        );
+        assert!(
+            (wye.ratio_across(Wiring::LineNeutral(2), &[230.0, 230.0, 0.95 * 230.0])
+                .unwrap()
+                - 0.95)
+                .abs()
+                < 1e-12
+        );
+        assert_eq!(
+            wye.ratio_across(Wiring::LineNeutral(0), &[f64::NAN, 230.0, 230.0]),
+            None
+        );
     }
 
     /// Split-phase: the legs are 180° apart, so a 240 V load shows half its

@@ -75,7 +75,17 @@ struct Level {
 impl Level {
     fn of(sum: &[f64], sq: &[f64], n: usize) -> Level {
         let mean: Vec<f64> = sum.iter().map(|s| s / n as f64).collect();
-        let var = sq.iter().zip(&mean).map(|(q, m)| if n > 1 { ((q / n as f64 - m * m) * n as f64 / (n - 1) as f64).max(0.0) } else { 0.0 }).collect();
+        let var = sq
+            .iter()
+            .zip(&mean)
+            .map(|(q, m)| {
+                if n > 1 {
+                    ((q / n as f64 - m * m) * n as f64 / (n - 1) as f64).max(0.0)
+                } else {
+                    0.0
+                }
+            })
+            .collect();
         Level { mean, var, n }
     }
 }
@@ -164,7 +174,11 @@ fn mean(rows: &[Vec<f64>]) -> Vec<f64> {
 /// Rows a new steady stretch needs: 3 at short intervals, 2 at long ones.
 /// Two switchings fewer rows apart than this come out as one step.
 pub fn level_rows(interval_s: f64) -> usize {
-    if interval_s >= 5.0 { 2 } else { 3 }
+    if interval_s >= 5.0 {
+        2
+    } else {
+        3
+    }
 }
 
 impl Detector {
@@ -176,10 +190,14 @@ impl Detector {
         let k = ((20.0 / interval_s).round() as usize).clamp(2, 10);
         let l = level_rows(interval_s);
         let units = (0..n)
-            .map(|c| (0..n).map(|b| {
-                let u = Cx::polar_deg(1.0, angles_deg[c] - angles_deg[b]);
-                [u, -u]
-            }).collect())
+            .map(|c| {
+                (0..n)
+                    .map(|b| {
+                        let u = Cx::polar_deg(1.0, angles_deg[c] - angles_deg[b]);
+                        [u, -u]
+                    })
+                    .collect()
+            })
             .collect();
         Detector {
             n,
@@ -195,7 +213,13 @@ impl Detector {
             inter: Vec::new(),
             one_row_levels: interval_s >= 5.0,
             events: Vec::new(),
-            stats: vec![ChannelStats { negative: vec![[0, 0]; n], ..Default::default() }; n],
+            stats: vec![
+                ChannelStats {
+                    negative: vec![[0, 0]; n],
+                    ..Default::default()
+                };
+                n
+            ],
         }
     }
 
@@ -213,11 +237,34 @@ impl Detector {
     /// it is below `MIN_STEP_W` on every channel.
     fn step(&mut self, time_ms: i64, b: &Level, h: &Level) {
         let n = self.n;
-        let delta: Vec<Cx> = (0..n).map(|c| Cx::new(h.mean[2 * c] - b.mean[2 * c], h.mean[2 * c + 1] - b.mean[2 * c + 1])).collect();
+        let delta: Vec<Cx> = (0..n)
+            .map(|c| {
+                Cx::new(
+                    h.mean[2 * c] - b.mean[2 * c],
+                    h.mean[2 * c + 1] - b.mean[2 * c + 1],
+                )
+            })
+            .collect();
         if delta.iter().any(|d| d.abs() >= MIN_STEP_W) {
-            let se = (0..n).map(|c| (2 * c..2 * c + 2).map(|i| h.var[i] / h.n as f64 + b.var[i] / b.n as f64).sum::<f64>().sqrt()).collect();
-            let before = (0..n).map(|c| Cx::new(b.mean[2 * c], b.mean[2 * c + 1])).collect();
-            self.events.push(Event { time_ms, delta, before, v_before: b.mean[2 * n..].to_vec(), v_after: h.mean[2 * n..].to_vec(), se });
+            let se = (0..n)
+                .map(|c| {
+                    (2 * c..2 * c + 2)
+                        .map(|i| h.var[i] / h.n as f64 + b.var[i] / b.n as f64)
+                        .sum::<f64>()
+                        .sqrt()
+                })
+                .collect();
+            let before = (0..n)
+                .map(|c| Cx::new(b.mean[2 * c], b.mean[2 * c + 1]))
+                .collect();
+            self.events.push(Event {
+                time_ms,
+                delta,
+                before,
+                v_before: b.mean[2 * n..].to_vec(),
+                v_after: h.mean[2 * n..].to_vec(),
+                se,
+            });
         }
     }
 
@@ -231,9 +278,20 @@ impl Detector {
         let mut out: Vec<(i64, Level)> = Vec::new();
         for (i, (t, r)) in self.inter.iter().enumerate() {
             let prev = out.last().map(|(_, l)| &l.mean).unwrap_or(&before.mean);
-            let after = self.inter.get(i + 1).map(|(_, r)| r.as_slice()).unwrap_or(next);
+            let after = self
+                .inter
+                .get(i + 1)
+                .map(|(_, r)| r.as_slice())
+                .unwrap_or(next);
             if !on_line(r, prev, after, 3.0) {
-                out.push((*t, Level { mean: r.clone(), var: before.var.clone(), n: 1 }));
+                out.push((
+                    *t,
+                    Level {
+                        mean: r.clone(),
+                        var: before.var.clone(),
+                        n: 1,
+                    },
+                ));
             }
         }
         out
@@ -249,7 +307,16 @@ impl Detector {
 
     fn start(&mut self, rows: Vec<Vec<f64>>, start_ms: i64, before: Option<Level>) {
         let dim = rows[0].len();
-        let mut seg = Seg { tail: VecDeque::new(), tail_sum: vec![0.0; dim], tail_sq: vec![0.0; dim], head_sum: vec![0.0; dim], head_sq: vec![0.0; dim], head_n: 0, start_ms, pending: before };
+        let mut seg = Seg {
+            tail: VecDeque::new(),
+            tail_sum: vec![0.0; dim],
+            tail_sq: vec![0.0; dim],
+            head_sum: vec![0.0; dim],
+            head_sq: vec![0.0; dim],
+            head_n: 0,
+            start_ms,
+            pending: before,
+        };
         for r in rows {
             self.push_into(&mut seg, r);
         }
@@ -259,19 +326,28 @@ impl Detector {
     fn push_into(&mut self, seg: &mut Seg, r: Vec<f64>) {
         if seg.head_n < self.k {
             seg.head_sum.iter_mut().zip(&r).for_each(|(a, b)| *a += b);
-            seg.head_sq.iter_mut().zip(&r).for_each(|(a, b)| *a += b * b);
+            seg.head_sq
+                .iter_mut()
+                .zip(&r)
+                .for_each(|(a, b)| *a += b * b);
             seg.head_n += 1;
             if seg.head_n == self.k {
                 self.emit(seg);
             }
         }
         seg.tail_sum.iter_mut().zip(&r).for_each(|(a, b)| *a += b);
-        seg.tail_sq.iter_mut().zip(&r).for_each(|(a, b)| *a += b * b);
+        seg.tail_sq
+            .iter_mut()
+            .zip(&r)
+            .for_each(|(a, b)| *a += b * b);
         seg.tail.push_back(r);
         if seg.tail.len() > self.k {
             let old = seg.tail.pop_front().unwrap();
             seg.tail_sum.iter_mut().zip(&old).for_each(|(a, b)| *a -= b);
-            seg.tail_sq.iter_mut().zip(&old).for_each(|(a, b)| *a -= b * b);
+            seg.tail_sq
+                .iter_mut()
+                .zip(&old)
+                .for_each(|(a, b)| *a -= b * b);
         }
     }
 
@@ -397,11 +473,16 @@ mod tests {
             d.push(i as i64 * ms, &[*a, *b], &[0.0, 0.0], &[120.0, 120.0]);
         }
         let (ev, _) = d.finish();
-        ev.iter().map(|e| (e.time_ms / ms, e.delta[0].re, e.delta[1].re)).collect()
+        ev.iter()
+            .map(|e| (e.time_ms / ms, e.delta[0].re, e.delta[1].re))
+            .collect()
     }
 
     fn run(parts: &[(f64, f64, usize)]) -> Vec<(f64, f64)> {
-        parts.iter().flat_map(|&(a, b, n)| std::iter::repeat_n((a, b), n)).collect()
+        parts
+            .iter()
+            .flat_map(|&(a, b, n)| std::iter::repeat_n((a, b), n))
+            .collect()
     }
 
     fn near(x: f64, y: f64) -> bool {

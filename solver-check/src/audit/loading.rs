@@ -32,7 +32,10 @@ pub struct Loading {
 
 /// Line-to-neutral phase angles of the supply, degrees (from the manifest).
 fn angles(ds: &Dataset) -> Vec<f64> {
-    ds.manifest["supply"]["phase_angles_deg"].as_array().map(|a| a.iter().filter_map(|x| x.as_f64()).collect()).unwrap_or_default()
+    ds.manifest["supply"]["phase_angles_deg"]
+        .as_array()
+        .map(|a| a.iter().filter_map(|x| x.as_f64()).collect())
+        .unwrap_or_default()
 }
 
 pub fn loading(dataset: &Path) -> Result<Loading, String> {
@@ -43,7 +46,12 @@ pub fn loading(dataset: &Path) -> Result<Loading, String> {
 }
 
 /// The loading picture of a meters table with these line channels.
-pub fn loading_of(h: &Header, lines: &[String], ang: &[f64], service_a: f64) -> Result<Loading, String> {
+pub fn loading_of(
+    h: &Header,
+    lines: &[String],
+    ang: &[f64],
+    service_a: f64,
+) -> Result<Loading, String> {
     let n = lines.len();
     let mut cols = Vec::new();
     for l in lines {
@@ -59,7 +67,8 @@ pub fn loading_of(h: &Header, lines: &[String], ang: &[f64], service_a: f64) -> 
     let (mut n_peak, mut n_est_peak) = (None::<f64>, 0.0f64);
     // 15-minute demand: means over clock quarter-hours (UTC quarter-hours are
     // local ones too for every zone offset in whole quarter-hours).
-    let (mut q_key, mut q_sum, mut q_n, mut demand) = (i64::MIN, vec![0.0f64; n], 0u64, vec![0.0f64; n]);
+    let (mut q_key, mut q_sum, mut q_n, mut demand) =
+        (i64::MIN, vec![0.0f64; n], 0u64, vec![0.0f64; n]);
     let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
     while let Some(b) = st.next().map_err(|e| e.to_string())? {
         for (k, &t) in b.time_ms.iter().enumerate() {
@@ -76,7 +85,12 @@ pub fn loading_of(h: &Header, lines: &[String], ang: &[f64], service_a: f64) -> 
             }
             let (mut re, mut im, mut any) = (0.0, 0.0, false);
             for x in 0..n {
-                let (i, p, q, v) = (b.cols[4 * x][k], b.cols[4 * x + 1][k], b.cols[4 * x + 2][k], b.cols[4 * x + 3][k]);
+                let (i, p, q, v) = (
+                    b.cols[4 * x][k],
+                    b.cols[4 * x + 1][k],
+                    b.cols[4 * x + 2][k],
+                    b.cols[4 * x + 3][k],
+                );
                 if i.is_nan() {
                     continue;
                 }
@@ -112,13 +126,34 @@ pub fn loading_of(h: &Header, lines: &[String], ang: &[f64], service_a: f64) -> 
             demand[x] = demand[x].max(q_sum[x] / q_n as f64);
         }
     }
-    let lines: Vec<LineLoading> = (0..n).map(|x| LineLoading { line: lines[x].clone(), peak_a: peak[x], demand_15min_a: demand[x], mean_a: if count[x] > 0 { sum[x] / count[x] as f64 } else { 0.0 } }).collect();
-    let means: Vec<f64> = lines.iter().filter(|l| l.mean_a > 0.0).map(|l| l.mean_a).collect();
+    let lines: Vec<LineLoading> = (0..n)
+        .map(|x| LineLoading {
+            line: lines[x].clone(),
+            peak_a: peak[x],
+            demand_15min_a: demand[x],
+            mean_a: if count[x] > 0 {
+                sum[x] / count[x] as f64
+            } else {
+                0.0
+            },
+        })
+        .collect();
+    let means: Vec<f64> = lines
+        .iter()
+        .filter(|l| l.mean_a > 0.0)
+        .map(|l| l.mean_a)
+        .collect();
     let imbalance = (means.len() >= 2).then(|| {
         let avg = means.iter().sum::<f64>() / means.len() as f64;
         means.iter().map(|m| (m - avg).abs()).fold(0.0, f64::max) / avg
     });
-    Ok(Loading { service_a, lines, imbalance, neutral_peak_measured_a: n_peak, neutral_peak_estimated_a: n_est_peak })
+    Ok(Loading {
+        service_a,
+        lines,
+        imbalance,
+        neutral_peak_measured_a: n_peak,
+        neutral_peak_estimated_a: n_est_peak,
+    })
 }
 
 impl Loading {
@@ -139,16 +174,44 @@ impl Loading {
     }
 
     fn rows(&self) -> Vec<[String; 6]> {
-        let pct = |a: f64| if self.service_a > 0.0 { format!("{:.0} %", 100.0 * a / self.service_a) } else { "–".into() };
-        self.lines.iter().map(|l| [l.line.to_uppercase(), format!("{:.1}", l.peak_a), pct(l.peak_a), format!("{:.1}", l.demand_15min_a), pct(l.demand_15min_a), format!("{:.1}", l.mean_a)]).collect()
+        let pct = |a: f64| {
+            if self.service_a > 0.0 {
+                format!("{:.0} %", 100.0 * a / self.service_a)
+            } else {
+                "–".into()
+            }
+        };
+        self.lines
+            .iter()
+            .map(|l| {
+                [
+                    l.line.to_uppercase(),
+                    format!("{:.1}", l.peak_a),
+                    pct(l.peak_a),
+                    format!("{:.1}", l.demand_15min_a),
+                    pct(l.demand_15min_a),
+                    format!("{:.1}", l.mean_a),
+                ]
+            })
+            .collect()
     }
 
-    const HEAD: [&'static str; 6] = ["line", "peak A", "of service", "15-min demand A", "of service", "mean A"];
+    const HEAD: [&'static str; 6] = [
+        "line",
+        "peak A",
+        "of service",
+        "15-min demand A",
+        "of service",
+        "mean A",
+    ];
 
     fn tail(&self) -> String {
         let mut o = String::new();
         if let Some(i) = self.imbalance {
-            o += &format!("imbalance between lines (largest deviation of a mean from the average): {:.0} %\n", 100.0 * i);
+            o += &format!(
+                "imbalance between lines (largest deviation of a mean from the average): {:.0} %\n",
+                100.0 * i
+            );
         }
         match self.neutral_peak_measured_a {
             Some(m) => o += &format!("neutral current: peak {m:.1} A measured, {:.1} A estimated from the line readings\n", self.neutral_peak_estimated_a),
@@ -159,9 +222,33 @@ impl Loading {
 
     pub fn to_text(&self) -> String {
         let rows = self.rows();
-        let w: Vec<usize> = (0..6).map(|c| rows.iter().map(|r| r[c].len()).chain([Self::HEAD[c].len()]).max().unwrap()).collect();
-        let line = |r: &[String]| r.iter().enumerate().map(|(c, s)| if c == 0 { format!("{s:<w$}", w = w[c]) } else { format!("{s:>w$}", w = w[c]) }).collect::<Vec<_>>().join("  ") + "\n";
-        let mut o = format!("loading against the {} A service rating\n\n", self.service_a);
+        let w: Vec<usize> = (0..6)
+            .map(|c| {
+                rows.iter()
+                    .map(|r| r[c].len())
+                    .chain([Self::HEAD[c].len()])
+                    .max()
+                    .unwrap()
+            })
+            .collect();
+        let line = |r: &[String]| {
+            r.iter()
+                .enumerate()
+                .map(|(c, s)| {
+                    if c == 0 {
+                        format!("{s:<w$}", w = w[c])
+                    } else {
+                        format!("{s:>w$}", w = w[c])
+                    }
+                })
+                .collect::<Vec<_>>()
+                .join("  ")
+                + "\n"
+        };
+        let mut o = format!(
+            "loading against the {} A service rating\n\n",
+            self.service_a
+        );
         o += &line(&Self::HEAD.map(String::from));
         for r in &rows {
             o += &line(r);
@@ -175,7 +262,11 @@ impl Loading {
     }
 
     pub fn to_markdown(&self) -> String {
-        let mut o = format!("Loading against the {} A service rating.\n\n| {} |\n|---|---:|---:|---:|---:|---:|\n", self.service_a, Self::HEAD.join(" | "));
+        let mut o = format!(
+            "Loading against the {} A service rating.\n\n| {} |\n|---|---:|---:|---:|---:|---:|\n",
+            self.service_a,
+            Self::HEAD.join(" | ")
+        );
         for r in self.rows() {
             o += &format!("| {} |\n", r.join(" | "));
         }

@@ -50,20 +50,30 @@ pub struct Audit {
 /// Line channels in a meters table: `l1`, `l2`, … in order, as long as
 /// their `_p_w` column exists.
 fn channels(h: &Header) -> Vec<String> {
-    (1..=3).map(|k| format!("l{k}")).take_while(|l| h.has(&format!("{l}_p_w"))).collect()
+    (1..=3)
+        .map(|k| format!("l{k}"))
+        .take_while(|l| h.has(&format!("{l}_p_w")))
+        .collect()
 }
 
 /// The declaration must describe the channels the data has.
 fn fit(d: &Declared, h: &Header, have: &[String]) -> Result<(), String> {
     let n = d.supply.lines();
-    let want: Vec<String> = (0..n).filter(|&c| d.channels[c].conductor.is_some()).map(|c| format!("l{}", c + 1)).collect();
+    let want: Vec<String> = (0..n)
+        .filter(|&c| d.channels[c].conductor.is_some())
+        .map(|c| format!("l{}", c + 1))
+        .collect();
     let missing: Vec<&String> = want.iter().filter(|w| !have.contains(w)).collect();
     if missing.is_empty() && have.len() <= n {
         return Ok(());
     }
     let lines: Vec<String> = (1..=n).map(|k| format!("L{k}")).collect();
     let help = if have.len() > n {
-        format!("declare the supply the data was measured on: {} channels need a supply with {} lines", have.len(), have.len())
+        format!(
+            "declare the supply the data was measured on: {} channels need a supply with {} lines",
+            have.len(),
+            have.len()
+        )
     } else {
         format!(
             "declare the supply the data was measured on, or declare the channel{} without a CT under [metering], e.g. {} = {{ conductor = \"none\" }}",
@@ -102,13 +112,17 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
         }
     }
     // Voltages where the table has them (they sharpen the expected steps).
-    let with_v: Vec<bool> = (0..n).map(|c| have.contains(&format!("l{}", c + 1)) && h.has(&format!("l{}_v_v", c + 1))).collect();
+    let with_v: Vec<bool> = (0..n)
+        .map(|c| have.contains(&format!("l{}", c + 1)) && h.has(&format!("l{}_v_v", c + 1)))
+        .collect();
     for c in 0..n {
         if with_v[c] {
             cols.push(format!("l{}_v_v", c + 1));
         }
     }
-    let present: Vec<bool> = (0..n).map(|c| have.contains(&format!("l{}", c + 1))).collect();
+    let present: Vec<bool> = (0..n)
+        .map(|c| have.contains(&format!("l{}", c + 1)))
+        .collect();
     let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
     let mut det: Option<events::Detector> = None;
     let mut interval_s = 0.0;
@@ -139,17 +153,35 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
             rows += 1;
         }
     }
-    let det = det.ok_or_else(|| format!("error: {} has no rows\n  = help: the audit needs a meters table over days", file.display()))?;
+    let det = det.ok_or_else(|| {
+        format!(
+            "error: {} has no rows\n  = help: the audit needs a meters table over days",
+            file.display()
+        )
+    })?;
     let (evs, stats) = det.finish();
     let outcome = check::check(d, &evs, &stats, interval_s);
     let h2 = header(&file).map_err(|e| e.to_string())?;
     let loading = loading_of(&h2, &have, &d.supply.angles_deg, d.supply.service_a)?;
-    Ok(Audit { data: data.display().to_string(), declared_file: d.file.clone(), interval_s, rows, loading, outcome, declared: d.clone() })
+    Ok(Audit {
+        data: data.display().to_string(),
+        declared_file: d.file.clone(),
+        interval_s,
+        rows,
+        loading,
+        outcome,
+        declared: d.clone(),
+    })
 }
 
 /// The reporting interval: the most common step between the first rows.
 pub fn interval_of(t: &[i64]) -> Option<f64> {
-    let mut d: Vec<i64> = t.windows(2).take(4000).map(|w| w[1] - w[0]).filter(|&x| x > 0).collect();
+    let mut d: Vec<i64> = t
+        .windows(2)
+        .take(4000)
+        .map(|w| w[1] - w[0])
+        .filter(|&x| x > 0)
+        .collect();
     if d.is_empty() {
         return None;
     }
@@ -180,13 +212,21 @@ impl Audit {
                 let dc = &self.declared.channels[c];
                 let declared = match dc.conductor {
                     None => "no CT".to_string(),
-                    Some(b) => format!("CT on L{}{}", b + 1, if dc.reversed { ", reversed" } else { "" }),
+                    Some(b) => format!(
+                        "CT on L{}{}",
+                        b + 1,
+                        if dc.reversed { ", reversed" } else { "" }
+                    ),
                 };
                 let found = if m.absent[c] {
                     "reads nothing".to_string()
                 } else {
                     let mm = m.map[c];
-                    let mut s = if mm.turned { format!("CT on L{}", mm.src + 1) } else { format!("channel of L{}", mm.src + 1) };
+                    let mut s = if mm.turned {
+                        format!("CT on L{}", mm.src + 1)
+                    } else {
+                        format!("channel of L{}", mm.src + 1)
+                    };
                     if mm.k < 0.0 {
                         s += ", reversed";
                     }
@@ -222,26 +262,52 @@ impl Audit {
 
     fn findings_text(&self, bullet: &str) -> String {
         let f = &self.outcome.findings;
-        let mut o = if f.is_empty() { "no findings: the data fits the declaration\n".to_string() } else { format!("{} finding{}\n", f.len(), if f.len() == 1 { "" } else { "s" }) };
+        let mut o = if f.is_empty() {
+            "no findings: the data fits the declaration\n".to_string()
+        } else {
+            format!(
+                "{} finding{}\n",
+                f.len(),
+                if f.len() == 1 { "" } else { "s" }
+            )
+        };
         for x in f {
-            o += &format!("{bullet}[{}] {} (confidence {:.2})\n", x.kind, x.message, x.confidence);
+            o += &format!(
+                "{bullet}[{}] {} (confidence {:.2})\n",
+                x.kind, x.message, x.confidence
+            );
         }
         o
     }
 
     pub fn to_text(&self) -> String {
-        let mut o = format!("audit of {} against {} ({} rows at {} s)\n\n", self.data, self.declared_file, self.rows, self.interval_s);
+        let mut o = format!(
+            "audit of {} against {} ({} rows at {} s)\n\n",
+            self.data, self.declared_file, self.rows, self.interval_s
+        );
         o += &self.findings_text("  ");
         o += "\nmetering (channel, declared, found):\n";
         for r in self.channel_rows() {
             o += &format!("  {:<4} {:<22} {}\n", r[0], r[1], r[2]);
         }
         o += "\nappliances:\n";
-        let w = self.outcome.appliances.iter().map(|a| a.id.len()).max().unwrap_or(2);
+        let w = self
+            .outcome
+            .appliances
+            .iter()
+            .map(|a| a.id.len())
+            .max()
+            .unwrap_or(2);
         for a in &self.outcome.appliances {
-            o += &format!("  {:<w$}  {:<14} {:<12} {}\n", a.id, a.declared, a.verdict, a.reason);
+            o += &format!(
+                "  {:<w$}  {:<14} {:<12} {}\n",
+                a.id, a.declared, a.verdict, a.reason
+            );
         }
-        o += &format!("\n{} of {} steps of 100 VA or more are explained by the appliances as found\n", self.outcome.steps_explained, self.outcome.steps);
+        o += &format!(
+            "\n{} of {} steps of 100 VA or more are explained by the appliances as found\n",
+            self.outcome.steps_explained, self.outcome.steps
+        );
         o += "assumptions:\n";
         for a in ASSUMPTIONS {
             o += &format!("  - {a}\n");
@@ -252,7 +318,10 @@ impl Audit {
     }
 
     pub fn to_markdown(&self) -> String {
-        let mut o = format!("## Audit of `{}` against `{}`\n\n{} rows at {} s.\n\n", self.data, self.declared_file, self.rows, self.interval_s);
+        let mut o = format!(
+            "## Audit of `{}` against `{}`\n\n{} rows at {} s.\n\n",
+            self.data, self.declared_file, self.rows, self.interval_s
+        );
         o += &self.findings_text("- ");
         o += "\n| channel | declared | found |\n|---|---|---|\n";
         for r in self.channel_rows() {
@@ -260,7 +329,10 @@ impl Audit {
         }
         o += "\n| appliance | declared | verdict | why |\n|---|---|---|---|\n";
         for a in &self.outcome.appliances {
-            o += &format!("| {} | {} | {} | {} |\n", a.id, a.declared, a.verdict, a.reason);
+            o += &format!(
+                "| {} | {} | {} | {} |\n",
+                a.id, a.declared, a.verdict, a.reason
+            );
         }
         o += "\nAssumptions:\n\n";
         for a in ASSUMPTIONS {
