@@ -385,11 +385,14 @@ fn loaded_lines(d: &Declared) -> Vec<usize> {
         .collect()
 }
 
-/// Meter faults to inject: (name, mistake, how).
-fn meter_faults(d: &Declared) -> Vec<(String, Mistake, Box<dyn Fn(&mut Scenario)>)> {
+/// A meter fault to inject: (name, mistake, how).
+type Injection = (String, Mistake, Box<dyn Fn(&mut Scenario)>);
+
+/// Meter faults to inject.
+fn meter_faults(d: &Declared) -> Vec<Injection> {
     use crate::scenario::CtFault;
     let lines = loaded_lines(d);
-    let mut v: Vec<(String, Mistake, Box<dyn Fn(&mut Scenario)>)> = Vec::new();
+    let mut v: Vec<Injection> = Vec::new();
     let ct = |line: usize, reversed: bool, on: Option<usize>| CtFault {
         line,
         gain: 0.0,

@@ -147,7 +147,7 @@ pub fn load(path: &Path) -> Result<Population, Error> {
             .to_string();
         let wn = t.req("weight", "its share of the fleet, e.g. 3")?;
         let weight = ctx.number(wn, &t.path_of("weight"))?;
-        if !(weight > 0.0) {
+        if !weight.is_finite() || weight <= 0.0 {
             return Err(ctx.err(
                 wn,
                 &t.path_of("weight"),
@@ -337,7 +337,7 @@ pub fn load(path: &Path) -> Result<Population, Error> {
             let name = t.string("name")?.unwrap_or("occupancy").to_string();
             let wn = t.req("weight", "its share of the homes, e.g. 2")?;
             let weight = ctx.number(wn, &t.path_of("weight"))?;
-            if !(weight > 0.0) {
+            if !weight.is_finite() || weight <= 0.0 {
                 return Err(ctx.err(
                     wn,
                     &t.path_of("weight"),

@@ -326,7 +326,7 @@ fn audit_matrix(
             return ExitCode::from(BAD_INPUT);
         }
     }
-    if !(days >= 0.5 && days <= 60.0) || runs == 0 {
+    if !(0.5..=60.0).contains(&days) || runs == 0 {
         eprintln!("error: --days {days} --runs {runs}: the matrix needs 0.5 … 60 days and at least one clean run");
         return ExitCode::from(BAD_INPUT);
     }

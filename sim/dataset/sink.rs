@@ -29,7 +29,7 @@ impl Format {
 }
 
 pub enum Sink {
-    Parquet(ArrowWriter<BufWriter<File>>),
+    Parquet(Box<ArrowWriter<BufWriter<File>>>),
     Csv {
         out: BufWriter<File>,
         tz: jiff::tz::TimeZone,
@@ -56,9 +56,9 @@ impl Sink {
                     .set_compression(Compression::SNAPPY)
                     .set_max_row_group_row_count(Some(128 * 1024))
                     .build();
-                Ok(Sink::Parquet(
+                Ok(Sink::Parquet(Box::new(
                     ArrowWriter::try_new(file, schema, Some(props)).map_err(to_io)?,
-                ))
+                )))
             }
             Format::Csv => {
                 let mut out = file;

@@ -50,7 +50,7 @@ impl SourceVoltage {
     /// they changed since the previous step.
     pub fn next(&mut self, lines: usize) -> ([f64; 3], bool) {
         self.count += 1;
-        if self.count > 1 && (self.count - 1) % self.every != 0 {
+        if self.count > 1 && !(self.count - 1).is_multiple_of(self.every) {
             return (self.held, false);
         }
         self.c = self.a * self.c + self.kick_c * self.rng.sample::<f64, _>(StandardNormal);

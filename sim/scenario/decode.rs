@@ -635,7 +635,7 @@ fn decode_harmonics(ctx: &Ctx, t: &Table, load: LoadKind) -> Result<Vec<Harmonic
                 let ht = ctx.table(h, &format!("{path}[{i}]"))?;
                 let on = ht.req("order", "an odd order, 3 … 49")?;
                 let order = match on.v {
-                    Val::Int(o) if o >= 3 && o <= 49 && o % 2 == 1 => o as u32,
+                    Val::Int(o) if (3..=49).contains(&o) && o % 2 == 1 => o as u32,
                     _ => {
                         return Err(ctx.err(
                             on,
@@ -1260,7 +1260,7 @@ pub fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Error> {
 
 fn parse_hours(ctx: &Ctx, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
     let help = "write hours = \"17-22\" (local hours 17:00 to 22:00), \"6-9,17-22\", or 24 weights [w0, …, w23]";
-    let mut w = vec![0.0; 24];
+    let mut w = [0.0; 24];
     match &node.v {
         Val::Str(s) => {
             for part in s.split(',') {
@@ -1450,7 +1450,7 @@ fn decode_appliance(
     };
 
     let mut states: Vec<State> = Vec::new();
-    let behaviour = match bname {
+    let mut behaviour = match bname {
         "cycle" => {
             let list = states_list("states")?;
             let mut dwell = Vec::new();
@@ -1671,8 +1671,6 @@ fn decode_appliance(
     };
     // Home-to-home variation (fleets): every draw's power, and every duration
     // of the behaviour, multiplied.
-    let mut states = states;
-    let mut behaviour = behaviour;
     if let Some(n) = t.opt("habit_shift") {
         let hours = ctx.number(n, &t.path_of("habit_shift"))?;
         if hours.abs() > 12.0 {

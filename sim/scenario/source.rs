@@ -154,17 +154,43 @@ fn value_node(v: &toml_edit::Value, file: usize, fallback: &Src) -> Node {
 }
 
 /// A bad-input error that names the file, line, column and key path, shows the
-/// offending text and says what would be accepted.
+/// offending text and says what would be accepted. Boxed, so a `Result` carrying
+/// it stays one pointer wide on the happy path.
 #[derive(Debug, Clone)]
-pub struct Error {
+pub struct Error(Box<Diagnostic>);
+
+/// What an [`Error`] says: where, what, and how to fix it.
+#[derive(Debug, Clone)]
+pub struct Diagnostic {
+    /// The file the error is in.
     pub file: PathBuf,
+    /// 1-based line, or 0 for an error about the whole file.
     pub line: usize,
+    /// 1-based column in characters, or 0 for an error about the whole file.
     pub column: usize,
+    /// The key path inside the file (`appliance[2].states[0].power`), or empty.
     pub path: String,
+    /// What is wrong.
     pub message: String,
+    /// What would be accepted.
     pub help: String,
+    /// The offending line of text.
     pub excerpt: String,
+    /// Column and width of the underline below the excerpt.
     pub underline: (usize, usize),
+}
+
+impl std::ops::Deref for Error {
+    type Target = Diagnostic;
+    fn deref(&self) -> &Diagnostic {
+        &self.0
+    }
+}
+
+impl std::ops::DerefMut for Error {
+    fn deref_mut(&mut self) -> &mut Diagnostic {
+        &mut self.0
+    }
 }
 
 impl Error {
@@ -186,7 +212,7 @@ impl Error {
         let column = text[line_start..start].chars().count() + 1;
         let end = src.span.end.clamp(start, line_end);
         let width = text[start..end].chars().count().max(1);
-        Error {
+        Error(Box::new(Diagnostic {
             file: sources.path(src.file).to_path_buf(),
             line,
             column,
@@ -195,12 +221,12 @@ impl Error {
             help: help.into(),
             excerpt: text[line_start..line_end].trim_end().to_string(),
             underline: (column, width),
-        }
+        }))
     }
 
     /// An error about a whole file (it cannot be read, say), with no place inside.
     pub fn file(path: &Path, message: impl Into<String>, help: impl Into<String>) -> Error {
-        Error {
+        Error(Box::new(Diagnostic {
             file: path.to_path_buf(),
             line: 0,
             column: 0,
@@ -209,7 +235,7 @@ impl Error {
             help: help.into(),
             excerpt: String::new(),
             underline: (0, 0),
-        }
+        }))
     }
 }
 

@@ -171,7 +171,7 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
                 .stream(&["total_p_w".to_string()])
                 .map_err(|e| e.to_string())?;
             let mut days: Vec<(jiff::civil::Date, f64)> = Vec::new();
-            while let Some(b) = st.next().map_err(|e| e.to_string())? {
+            while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
                 for (k, &t) in b.time_ms.iter().enumerate() {
                     let d = jiff::Timestamp::from_millisecond(t)
                         .map_err(|e| e.to_string())?
@@ -221,7 +221,7 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
     let mut meas = vec![vec![(0.0f64, 0u32); buckets]; lines.len()];
     let mcols: Vec<String> = lines.iter().map(|l| format!("{l}_p_w")).collect();
     let mut st = mh.stream(&mcols).map_err(|e| e.to_string())?;
-    while let Some(b) = st.next().map_err(|e| e.to_string())? {
+    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
         for (k, &t) in b.time_ms.iter().enumerate() {
             if t < w0 || t >= w1 {
                 continue;
@@ -252,7 +252,7 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
     let mut sums = vec![vec![0.0f64; buckets]; tcols.len()];
     let mut counts = vec![0u32; buckets];
     let mut st = th.stream(&tcols).map_err(|e| e.to_string())?;
-    while let Some(b) = st.next().map_err(|e| e.to_string())? {
+    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
         for (k, &t) in b.time_ms.iter().enumerate() {
             if t < w0 || t >= w1 {
                 continue;
@@ -545,7 +545,7 @@ fn bucket_means(
     let mut sum = vec![vec![0.0f64; buckets]; cols.len()];
     let mut n = vec![vec![0u32; buckets]; cols.len()];
     let mut st = h.stream(cols).map_err(|e| e.to_string())?;
-    while let Some(b) = st.next().map_err(|e| e.to_string())? {
+    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
         for (k, &t) in b.time_ms.iter().enumerate() {
             if t < w0 || t >= w1 {
                 continue;

@@ -150,7 +150,7 @@ pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, 
     // Pass 1: the estimate's times.
     let mut scan = TimeScan::default();
     let mut st = ef.header.stream(&[])?;
-    while let Some(b) = st.next()? {
+    while let Some(b) = st.next_batch()? {
         scan.feed(estimate, b.first, &b.time_ms)?;
     }
     let plan = plan_from(

@@ -361,7 +361,7 @@ impl Header {
 
 impl Stream<'_> {
     /// The next batch, or None at the end.
-    pub fn next(&mut self) -> Result<Option<Batch>, TableError> {
+    pub fn next_batch(&mut self) -> Result<Option<Batch>, TableError> {
         let path = &self.h.file;
         let first = self.row;
         let batch = match &mut self.inner {
@@ -579,7 +579,7 @@ pub trait Batches {
 
 impl Batches for Stream<'_> {
     fn next_batch(&mut self) -> Result<Option<Batch>, TableError> {
-        self.next()
+        Stream::next_batch(self)
     }
     fn file(&self) -> &Path {
         &self.h.file
@@ -609,7 +609,7 @@ pub fn read_ahead<'scope, 'h: 'scope>(
     let (tx, rx) = std::sync::mpsc::sync_channel(4);
     let file = stream.h.file.clone();
     scope.spawn(move || loop {
-        let r = stream.next();
+        let r = stream.next_batch();
         let end = !matches!(r, Ok(Some(_)));
         // A closed receiver means the reader stopped early (an error): stop too.
         if tx.send(r).is_err() || end {
@@ -626,14 +626,14 @@ pub struct Cursor<'h> {
     batch: Option<Batch>,
     pos: usize,
     /// Called on every batch as it arrives (validation of raw values).
-    check: Box<dyn Fn(&Batch) -> Result<(), TableError> + 'h>,
+    check: BatchCheck<'h>,
 }
 
+/// A check run on every batch as it arrives.
+pub type BatchCheck<'h> = Box<dyn Fn(&Batch) -> Result<(), TableError> + 'h>;
+
 impl<'h> Cursor<'h> {
-    pub fn new(
-        stream: Box<dyn Batches + 'h>,
-        check: Box<dyn Fn(&Batch) -> Result<(), TableError> + 'h>,
-    ) -> Self {
+    pub fn new(stream: Box<dyn Batches + 'h>, check: BatchCheck<'h>) -> Self {
         Cursor {
             stream,
             row: 0,

@@ -115,7 +115,7 @@ pub fn read(
     let mut text_cols: Vec<Vec<String>> = vec![Vec::new(); texts.len()];
     let mut time_ms = Vec::new();
     let mut st = h.stream_with_text(&nums, &texts)?;
-    while let Some(b) = st.next()? {
+    while let Some(b) = st.next_batch()? {
         time_ms.extend_from_slice(&b.time_ms);
         for (c, v) in num_cols.iter_mut().zip(b.cols) {
             c.extend(v);

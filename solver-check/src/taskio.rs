@@ -95,9 +95,10 @@ pub fn write_estimate(
             let mut arrays: Vec<ArrayRef> = vec![Arc::new(
                 TimestampMillisecondArray::from(time_ms[a..z].to_vec()).with_timezone(tz),
             )];
-            arrays.extend(cols.iter().map(|(_, v)| {
-                Arc::new((a..z).map(|r| v(r)).collect::<Float64Array>()) as ArrayRef
-            }));
+            arrays.extend(
+                cols.iter()
+                    .map(|(_, v)| Arc::new((a..z).map(v).collect::<Float64Array>()) as ArrayRef),
+            );
             w.write(&RecordBatch::try_new(schema.clone(), arrays).map_err(io_err)?)
                 .map_err(io_err)?;
             a = z;

@@ -33,7 +33,7 @@ fn main() {
         let t = Instant::now();
         let mut st = h.stream(&cols).expect("stream");
         let (mut rows, mut sum) = (0usize, 0.0);
-        while let Some(b) = st.next().expect("read") {
+        while let Some(b) = st.next_batch().expect("read") {
             rows += b.time_ms.len();
             sum += b.cols.iter().flatten().sum::<f64>();
         }

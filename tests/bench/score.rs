@@ -52,7 +52,7 @@ fn prepare(days: f64, dir: &Path) -> (PathBuf, PathBuf, usize, u64) {
     let est = dir.join("estimate.parquet");
     let mut wr =
         ArrowWriter::try_new(std::fs::File::create(&est).unwrap(), schema.clone(), None).unwrap();
-    while let Some(b) = st.next().unwrap() {
+    while let Some(b) = st.next_batch().unwrap() {
         let mut arrays: Vec<ArrayRef> = vec![Arc::new(
             TimestampMillisecondArray::from(b.time_ms.clone()).with_timezone(ds.timezone.as_str()),
         )];

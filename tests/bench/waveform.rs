@@ -15,14 +15,13 @@ fn main() {
     s.run.length_s = 3600.0;
     let dir = std::env::temp_dir().join(format!("loadloom-bench-wave-{}", std::process::id()));
     let time = |s: &loadloom::scenario::Scenario| {
-        let best = (0..3)
+        (0..3)
             .map(|_| {
                 let t = Instant::now();
                 dataset::write(s, &dir, Format::Parquet, &mut |_| {}).expect("write");
                 t.elapsed().as_secs_f64()
             })
-            .fold(f64::MAX, f64::min);
-        best
+            .fold(f64::MAX, f64::min)
     };
     let plain = time(&s);
     let w = loadloom::scenario::decode::place_window(

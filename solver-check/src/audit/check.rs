@@ -45,7 +45,7 @@ impl Metering {
     fn factor(&self, d: &Declared, c: usize) -> Cx {
         let m = self.map[c];
         let u = if m.turned {
-            d.supply.unit(c).div(d.supply.unit(m.src))
+            d.supply.unit(c) / d.supply.unit(m.src)
         } else {
             Cx::new(1.0, 0.0)
         };
@@ -750,6 +750,17 @@ fn absent_channels(d: &Declared, stats: &[ChannelStats]) -> Vec<bool> {
         })
         .collect()
 }
+
+/// An appliance's fit on another wiring: (steps it alone fits, steps that
+/// fit, who else fits, its steps, the wiring's name, the appliance so wired).
+type OtherFit = (
+    usize,
+    Vec<usize>,
+    Vec<usize>,
+    Vec<usize>,
+    String,
+    DeclAppliance,
+);
 
 pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s: f64) -> Outcome {
     let n = d.supply.lines();
@@ -1517,17 +1528,9 @@ fn place(
                 checks.push(ck);
                 continue;
             }
-            // Its best other wiring that a working CT reads: (steps it
-            // alone fits, steps that fit, who else fits, its steps, name, wiring).
+            // Its best other wiring that a working CT reads.
             let best_other = || {
-                let mut best: Option<(
-                    usize,
-                    Vec<usize>,
-                    Vec<usize>,
-                    Vec<usize>,
-                    String,
-                    DeclAppliance,
-                )> = None;
+                let mut best: Option<OtherFit> = None;
                 for (name, alt) in alternatives(d, a) {
                     let sg = Pred::of(d, m, &alt);
                     if !visible(&sg.nom) || blind(&alt).is_some() {

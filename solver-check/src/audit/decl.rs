@@ -34,13 +34,6 @@ impl Cx {
             im: -self.im,
         }
     }
-    pub fn div(self, o: Cx) -> Cx {
-        let d = o.re * o.re + o.im * o.im;
-        Cx {
-            re: (self.re * o.re + self.im * o.im) / d,
-            im: (self.im * o.re - self.re * o.im) / d,
-        }
-    }
     pub fn scale(self, k: f64) -> Cx {
         Cx {
             re: self.re * k,
@@ -64,6 +57,16 @@ impl Sub for Cx {
         Cx {
             re: self.re - o.re,
             im: self.im - o.im,
+        }
+    }
+}
+impl std::ops::Div for Cx {
+    type Output = Cx;
+    fn div(self, o: Cx) -> Cx {
+        let d = o.re * o.re + o.im * o.im;
+        Cx {
+            re: (self.re * o.re + self.im * o.im) / d,
+            im: (self.im * o.re - self.re * o.im) / d,
         }
     }
 }
@@ -197,8 +200,8 @@ impl Supply {
             Wiring::LineLine(a, b) => {
                 let (va, vb) = (self.unit(a), self.unit(b));
                 let d = va - vb;
-                out[a] = s * va.div(d);
-                out[b] = -(s * vb.div(d));
+                out[a] = s * (va / d);
+                out[b] = -(s * (vb / d));
             }
             Wiring::ThreePhase => out.iter_mut().for_each(|o| *o = s.scale(1.0 / n as f64)),
         }
@@ -249,13 +252,17 @@ impl DeclDraw {
     }
 }
 
+/// A jump between states: (from, to, scale of `to`'s power, scale of
+/// `from`'s power).
+pub type Jump = (usize, usize, f64, f64);
+
 /// How an appliance changes state, as far as steps go.
 #[derive(Clone, Debug)]
 pub enum Steps {
     /// Jumps between states: (from, to, scale of `to`'s power, scale of
     /// `from`'s power), e.g. a modulating load starting at full power and
     /// stopping from its minimum.
-    Jumps(Vec<(usize, usize, f64, f64)>),
+    Jumps(Vec<Jump>),
     /// Its power wanders: steps of any size up to the whole of `state`'s
     /// power, always in that state's proportions between the lines; and
     /// the jumps it makes at the start and end of a session, if any.
@@ -263,14 +270,14 @@ pub enum Steps {
     Wanders {
         state: usize,
         max: f64,
-        jumps: Vec<(usize, usize, f64, f64)>,
+        jumps: Vec<Jump>,
     },
     /// Never switches (always on).
     None(&'static str),
 }
 
 impl Steps {
-    pub fn jumps(&self) -> &[(usize, usize, f64, f64)] {
+    pub fn jumps(&self) -> &[Jump] {
         match self {
             Steps::Jumps(j) | Steps::Wanders { jumps: j, .. } => j,
             Steps::None(_) => &[],
@@ -364,8 +371,8 @@ impl Declared {
     /// The jumps that make a step of their own (a jump and its reverse, or
     /// two jumps with the same step, count once), each with its per-line
     /// step at nominal voltage.
-    pub fn distinct_jumps(&self, a: &DeclAppliance) -> Vec<((usize, usize, f64, f64), Vec<Cx>)> {
-        let mut v: Vec<((usize, usize, f64, f64), Vec<Cx>)> = Vec::new();
+    pub fn distinct_jumps(&self, a: &DeclAppliance) -> Vec<(Jump, Vec<Cx>)> {
+        let mut v: Vec<(Jump, Vec<Cx>)> = Vec::new();
         for &(from, to, kt, kf) in a.steps.jumps() {
             let (sf, st) = (self.state_split(a, from), self.state_split(a, to));
             let d: Vec<Cx> = st

@@ -70,7 +70,7 @@ pub fn loading_of(
     let (mut q_key, mut q_sum, mut q_n, mut demand) =
         (i64::MIN, vec![0.0f64; n], 0u64, vec![0.0f64; n]);
     let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
-    while let Some(b) = st.next().map_err(|e| e.to_string())? {
+    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
         for (k, &t) in b.time_ms.iter().enumerate() {
             let key = t.div_euclid(900_000);
             if key != q_key {

@@ -128,7 +128,7 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
     let mut interval_s = 0.0;
     let (mut p, mut q, mut v) = (vec![f64::NAN; n], vec![f64::NAN; n], vec![f64::NAN; n]);
     let mut rows = 0u64;
-    while let Some(b) = st.next().map_err(|e| e.to_string())? {
+    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
         if det.is_none() {
             interval_s = interval_of(&b.time_ms).ok_or_else(|| format!("error: {} has fewer than two rows\n  = help: the audit needs a meters table over days", file.display()))?;
             det = Some(events::Detector::new(&d.supply.angles_deg, interval_s));
