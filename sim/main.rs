@@ -891,10 +891,12 @@ fn main() -> ExitCode {
                 Ok(s) => s,
                 Err(c) => return c,
             };
+            // `--quiet` computes everything plain `validate` does, so it
+            // accepts no scenario that `validate` would refuse.
+            let f = loadloom::summary::figures(&s);
             if quiet {
                 return ExitCode::SUCCESS;
             }
-            let f = loadloom::summary::figures(&s);
             if json {
                 println!(
                     "{}",

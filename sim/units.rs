@@ -57,6 +57,41 @@ impl Kind {
         }
     }
 
+    /// The magnitudes loadloom computes with, in SI: a value other than zero
+    /// must lie within `smallest ..= largest` (in size, either sign). Beyond
+    /// them no household quantity lives, and the arithmetic downstream (powers
+    /// of voltages, ratios of powers) would lose its digits or overflow.
+    /// Narrower ranges of single keys (the home's voltage, the step) are
+    /// checked where those keys are read.
+    pub fn limits(self) -> (f64, f64) {
+        match self {
+            Kind::Power | Kind::Reactive => (1e-3, 1e6),
+            Kind::Voltage => (1e-3, 1e5),
+            Kind::Current => (1e-3, 1e5),
+            Kind::Frequency => (1e-3, 1e7),
+            // The longest run: 3 years of 366 days.
+            Kind::Duration => (1e-3, MAX_DURATION_S),
+            Kind::Impedance => (1e-6, 1e3),
+            Kind::Fraction => (1e-9, 100.0),
+            Kind::Angle => (1e-6, 360.0),
+        }
+    }
+
+    /// The SI unit a value of this kind is held in, for messages.
+    pub fn si_unit(self) -> &'static str {
+        match self {
+            Kind::Power => "W",
+            Kind::Reactive => "var",
+            Kind::Voltage => "V",
+            Kind::Current => "A",
+            Kind::Frequency => "Hz",
+            Kind::Duration => "s",
+            Kind::Impedance => "ohm",
+            Kind::Fraction => "(as a fraction)",
+            Kind::Angle => "deg",
+        }
+    }
+
     pub fn name(self) -> &'static str {
         match self {
             Kind::Power => "power",
@@ -102,7 +137,7 @@ pub fn parse_quantity(text: &str, kind: Kind) -> Result<f64, String> {
     }
     for &(u, f) in kind.units() {
         if u == unit {
-            return Ok(value * f);
+            return within_limits(text, value * f, kind);
         }
     }
     let known: Vec<&str> = kind.units().iter().map(|u| u.0).collect();
@@ -116,6 +151,24 @@ pub fn parse_quantity(text: &str, kind: Kind) -> Result<f64, String> {
         "\"{unit}\" is not a unit of {}{near}; accepted: {}",
         kind.name(),
         known.join(", ")
+    ))
+}
+
+/// The longest duration anywhere in a scenario (and the longest run): three
+/// years of 366 days.
+pub const MAX_DURATION_S: f64 = 3.0 * 366.0 * 86400.0;
+
+/// `si` if it is zero or within [`Kind::limits`], else the reason.
+fn within_limits(text: &str, si: f64, kind: Kind) -> Result<f64, String> {
+    let (lo, hi) = kind.limits();
+    let size = si.abs();
+    if si == 0.0 || (lo..=hi).contains(&size) {
+        return Ok(si);
+    }
+    Err(format!(
+        "\"{text}\" is outside the range of a {}: zero, or {lo:e} … {hi:e} {} in size",
+        kind.name(),
+        kind.si_unit()
     ))
 }
 
@@ -182,5 +235,24 @@ mod tests {
             .unwrap_err()
             .contains("no unit"));
         assert!(parse_quantity("3 V", Kind::Power).is_err());
+    }
+
+    #[test]
+    fn refuses_magnitudes_beyond_the_limits() {
+        // Issue 18: these reached the physics and came out as inf or NaN.
+        for (text, kind) in [
+            ("1e308 kW", Kind::Power),
+            ("1e-320 V", Kind::Voltage),
+            ("1e30 h", Kind::Duration),
+            ("1e-30 s", Kind::Duration),
+            ("5e-324 ohm", Kind::Impedance),
+            ("1e308 %", Kind::Fraction),
+        ] {
+            let e = parse_quantity(text, kind).unwrap_err();
+            assert!(e.contains("outside the range"), "{text}: {e}");
+        }
+        assert_eq!(parse_quantity("0 W", Kind::Power), Ok(0.0));
+        assert_eq!(parse_quantity("-0.5 MW", Kind::Power), Ok(-5e5));
+        assert_eq!(parse_quantity("100 ms", Kind::Duration), Ok(0.1));
     }
 }

@@ -299,8 +299,8 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
             ))
         }
     };
-    let voltage_v = match t.positive("voltage", Kind::Voltage)? {
-        Some(v) => v,
+    let voltage_v = match t.opt("voltage") {
+        Some(n) => in_range(ctx, n, "home.voltage", Kind::Voltage, LINE_TO_NEUTRAL_V)?,
         None => match supply {
             SupplyKind::SplitPhase => 120.0,
             _ => 230.0,
@@ -323,7 +323,10 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
         None if voltage_v < 200.0 || (voltage_v - 277.0).abs() < 1.0 => 60.0,
         None => 50.0,
     };
-    let service_a = t.positive("service", Kind::Current)?.unwrap_or(100.0);
+    let service_a = match t.opt("service") {
+        Some(n) => in_range(ctx, n, "home.service", Kind::Current, SERVICE_A)?,
+        None => 100.0,
+    };
     let tz_node = t.req(
         "timezone",
         "an IANA time zone such as \"America/Chicago\" or \"Europe/Berlin\"",
@@ -444,11 +447,11 @@ fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
     let start_utc_ms = zoned.timestamp().as_millisecond();
     let step_s = t.positive("step", Kind::Duration)?.unwrap_or(1.0);
     let step_node = t.opt("step").unwrap_or(node);
-    if (step_s * 1000.0).fract().abs() > 1e-9 || step_s > 60.0 {
+    if (step_s * 1000.0).fract().abs() > 1e-9 || !(STEP_S.0..=STEP_S.1).contains(&step_s) {
         return Err(ctx.err(
             step_node,
             "run.step",
-            format!("step {step_s} s is not a whole number of milliseconds up to a minute"),
+            format!("step {step_s} s is not a whole number of milliseconds from 100 ms to 1 min"),
             "write \"1 s\" (the usual) or another step from \"100 ms\" to \"1 min\"",
         ));
     }
@@ -905,6 +908,55 @@ fn decode_faults(ctx: &Ctx, node: &Node, home: &Home, meter: &Meter) -> Result<F
     Ok(f)
 }
 
+/// Ids that name a column of their own in the truth table (`time`,
+/// `unmetered_p_w`) or of the meters (`total_p_w`).
+const RESERVED_IDS: [&str; 3] = ["unmetered", "total", "time"];
+
+/// Endings of truth columns that name a conductor (`dryer_l1_p_w`): an id
+/// ending so would make two columns read alike.
+const CONDUCTOR_ENDINGS: [&str; 4] = ["_l1", "_l2", "_l3", "_n"];
+
+/// The longest id or state name, in characters.
+pub const MAX_NAME_CHARS: usize = 64;
+
+/// The home's line-to-neutral voltage, V.
+pub const LINE_TO_NEUTRAL_V: (f64, f64) = (50.0, 1000.0);
+/// A draw's rated voltage (line to neutral or line to line), V.
+pub const RATED_V: (f64, f64) = (50.0, 2000.0);
+/// The service rating, A.
+pub const SERVICE_A: (f64, f64) = (1.0, 10_000.0);
+/// The simulation step, s.
+pub const STEP_S: (f64, f64) = (0.1, 60.0);
+/// The largest lognormal spread (σ of ln): beyond it one draw in a few
+/// spans more than the longest run.
+pub const MAX_SPREAD: f64 = 5.0;
+/// The range of a gamma shape k.
+pub const MIN_SHAPE: f64 = 0.05;
+/// See [`MIN_SHAPE`].
+pub const MAX_SHAPE: f64 = 1000.0;
+/// The lowest power factor a draw may have.
+pub const MIN_PF: f64 = 0.05;
+
+/// A quantity within `range` (inclusive, SI), or an error naming the range.
+fn in_range(ctx: &Ctx, n: &Node, path: &str, kind: Kind, range: (f64, f64)) -> Result<f64, Error> {
+    let v = ctx.quantity(n, path, kind)?;
+    if !(range.0..=range.1).contains(&v) {
+        return Err(ctx.err(
+            n,
+            path,
+            format!(
+                "{v} {} is outside {} … {} {}",
+                kind.si_unit(),
+                range.0,
+                range.1,
+                kind.si_unit()
+            ),
+            format!("write {} within that range", kind.example()),
+        ));
+    }
+    Ok(v)
+}
+
 fn check_id(ctx: &Ctx, node: &Node, path: &str, id: &str) -> Result<(), Error> {
     let ok = id.chars().next().is_some_and(|c| c.is_ascii_lowercase())
         && id
@@ -913,12 +965,32 @@ fn check_id(ctx: &Ctx, node: &Node, path: &str, id: &str) -> Result<(), Error> {
     if !ok {
         return Err(ctx.err(node, path, format!("\"{id}\" is not a valid id"), "ids start with a lower-case letter and hold only a-z, 0-9 and _ (e.g. \"water_heater\")"));
     }
-    if id == "unmetered" || id == "total" || id == "time" {
+    if id.len() > MAX_NAME_CHARS {
         return Err(ctx.err(
             node,
             path,
-            format!("\"{id}\" is reserved"),
-            "choose another id",
+            format!(
+                "an id has at most {MAX_NAME_CHARS} characters, this one {}",
+                id.len()
+            ),
+            "choose a shorter id such as \"water_heater\"",
+        ));
+    }
+    if RESERVED_IDS.contains(&id) {
+        return Err(ctx.err(
+            node,
+            path,
+            format!("\"{id}\" is reserved: the truth table has a column `{id}` or `{id}_p_w` of its own"),
+            "choose another id, e.g. \"{id}_load\"",
+        ));
+    }
+    if let Some(end) = CONDUCTOR_ENDINGS.iter().find(|e| id.ends_with(*e)) {
+        let stem = &id[..id.len() - end.len()];
+        return Err(ctx.err(
+            node,
+            path,
+            format!("\"{id}\" ends like a conductor ({end}): its truth column {id}_p_w would read as appliance \"{stem}\"'s share on {}", end[1..].to_uppercase()),
+            format!("choose an id that does not end in _l1, _l2, _l3 or _n, e.g. \"{stem}_{}\"", if end == &"_n" { "neutral".to_string() } else { format!("leg{}", &end[2..]) }),
         ));
     }
     Ok(())
@@ -1089,8 +1161,8 @@ fn decode_draw_fields(
         }
         (Some(n), None) => {
             let pf = ctx.number(n, &t.path_of("pf"))?;
-            if !(pf > 0.0 && pf <= 1.0) {
-                return Err(ctx.err(n, &t.path_of("pf"), format!("power factor {pf} is outside (0, 1]"), "write a power factor such as 0.85 (lagging); for a leading load give q with a negative sign"));
+            if !(MIN_PF..=1.0).contains(&pf) {
+                return Err(ctx.err(n, &t.path_of("pf"), format!("power factor {pf} is outside {MIN_PF} … 1"), "write a power factor such as 0.85 (lagging); for a leading load give q with a negative sign"));
             }
             p_w * (1.0 - pf * pf).sqrt() / pf
         }
@@ -1103,7 +1175,7 @@ fn decode_draw_fields(
     // apartment's two lines) gives its power at that voltage; at this
     // connection's nominal voltage it draws what its ZIP model says.
     if let Some(n) = t.opt("rated") {
-        let rated = ctx.positive(n, &t.path_of("rated"), Kind::Voltage)?;
+        let rated = in_range(ctx, n, &t.path_of("rated"), Kind::Voltage, RATED_V)?;
         let u = nominal_v / rated;
         p_w *= zip_p.factor(u);
         q_var *= zip_q.factor(u);
@@ -1214,11 +1286,11 @@ pub fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Error> {
             "the standard deviation of ln(duration), e.g. 0.25",
         )?;
         let spread = ctx.number(sn, &t.path_of("spread"))?;
-        if spread <= 0.0 {
+        if !(spread > 0.0 && spread <= MAX_SPREAD) {
             return Err(ctx.err(
                 sn,
                 &t.path_of("spread"),
-                "spread must be greater than zero",
+                format!("spread must be greater than zero and at most {MAX_SPREAD}"),
                 "write the standard deviation of ln(duration), e.g. spread = 0.25",
             ));
         }
@@ -1238,11 +1310,11 @@ pub fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Error> {
         let mean_s = t.positive("mean", Kind::Duration)?.unwrap();
         let sn = t.req("shape", "the gamma shape k, e.g. 4")?;
         let shape = ctx.number(sn, &t.path_of("shape"))?;
-        if shape <= 0.0 {
+        if !(MIN_SHAPE..=MAX_SHAPE).contains(&shape) {
             return Err(ctx.err(
                 sn,
                 &t.path_of("shape"),
-                "shape must be greater than zero",
+                format!("shape must lie within {MIN_SHAPE} … {MAX_SHAPE}"),
                 "write the gamma shape k, e.g. shape = 4",
             ));
         }
@@ -1376,12 +1448,13 @@ fn decode_habit(ctx: &Ctx, node: &Node, path: &str) -> Result<Habit, Error> {
 
 fn state_name(ctx: &Ctx, t: &Table, fallback: &str) -> Result<String, Error> {
     let name = t.string("name")?.unwrap_or(fallback).to_string();
-    if name.is_empty() {
+    if name.is_empty() || name.chars().count() > MAX_NAME_CHARS {
+        let at = t.opt("name").unwrap_or(t.node);
         return Err(ctx.err(
-            t.node,
+            at,
             &t.path_of("name"),
-            "a state name cannot be empty",
-            "write name = \"on\"",
+            format!("a state name has 1 … {MAX_NAME_CHARS} characters"),
+            "write a short name such as name = \"on\"",
         ));
     }
     Ok(name)

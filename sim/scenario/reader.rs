@@ -6,6 +6,10 @@ use super::source::{Entry, Error, Node, Sources, Val};
 use crate::units::{parse_quantity, Kind};
 use std::cell::RefCell;
 
+/// Sizes of a plain number other than zero (no key needs more, and beyond
+/// them the arithmetic downstream loses its digits or overflows).
+pub const PLAIN_LIMITS: (f64, f64) = (1e-9, 1e6);
+
 pub struct Ctx<'s> {
     pub sources: &'s Sources,
 }
@@ -63,10 +67,19 @@ impl<'s> Ctx<'s> {
         }
     }
 
+    /// A plain number (a power factor, a spread, a probability): finite, and
+    /// zero or within [`PLAIN_LIMITS`] in size.
     pub fn number(&self, node: &Node, path: &str) -> Result<f64, Error> {
+        let (lo, hi) = PLAIN_LIMITS;
         match node.v {
-            Val::Int(i) => Ok(i as f64),
-            Val::Float(f) if f.is_finite() => Ok(f),
+            Val::Int(i) if i == 0 || (lo..=hi).contains(&(i as f64).abs()) => Ok(i as f64),
+            Val::Float(f) if f == 0.0 || (lo..=hi).contains(&f.abs()) => Ok(f),
+            Val::Int(_) | Val::Float(_) => Err(self.err(
+                node,
+                path,
+                format!("this number is outside the range loadloom accepts: zero, or {lo:e} … {hi:e} in size"),
+                "write a plain number such as 0.6",
+            )),
             _ => Err(self.err(
                 node,
                 path,

@@ -1,0 +1,241 @@
+//! Hostile input (issue 18): extreme numbers, absurd sizes and names that
+//! would make two columns read alike. Each must end in exit status 2 with
+//! the file and line named, in `validate`, `validate --quiet` and `run`
+//! alike, and leave nothing behind; never a panic (exit 101) or a hang.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn bin() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_loadloom"))
+}
+
+fn scratch(name: &str) -> PathBuf {
+    let d = std::env::temp_dir().join(format!("loadloom-hostile-{name}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+/// A small home; the tests below replace one piece of it.
+const BASE: &str = r#"
+[home]
+supply = "split-phase"
+voltage = "120 V"
+service = "200 A"
+timezone = "America/Chicago"
+
+[run]
+start = "2027-03-10T00:00"
+length = "1 h"
+step = "1 s"
+seed = 5
+
+[meter]
+interval = "10 s"
+
+[[appliance]]
+id = "fridge"
+wiring = "L1-N"
+behaviour = "cycle"
+load = "motor"
+states = [
+  { name = "idle", power = "3 W", dwell = { median = "25 min", spread = 0.3 } },
+  { name = "cooling", power = "110 W", pf = 0.8, dwell = { median = "12 min", spread = 0.2 } },
+]
+
+[[appliance]]
+id = "heater"
+wiring = "L1-L2"
+behaviour = "steady"
+jitter = 0.01
+every = "1 min"
+states = [ { name = "on", power = "1.5 kW", load = "resistive", rated = "240 V" } ]
+"#;
+
+fn run(args: &[&str]) -> Output {
+    bin().args(args).output().unwrap()
+}
+
+fn line_of(text: &str, needle: &str) -> usize {
+    text.lines().position(|l| l.contains(needle)).unwrap() + 1
+}
+
+/// `BASE` with `from` replaced by `to` must be refused with exit 2 by
+/// `validate`, `validate --quiet` and `run`, naming the line of `to` and
+/// saying `needle`; `run` leaves nothing behind.
+fn assert_refused(name: &str, from: &str, to: &str, needle: &str) {
+    assert!(BASE.contains(from), "{name}: {from} not in BASE");
+    let text = BASE.replacen(from, to, 1);
+    let d = scratch(name);
+    let p = d.join("home.toml");
+    std::fs::write(&p, &text).unwrap();
+    let place = format!("home.toml:{}:", line_of(&text, to.lines().next().unwrap()));
+    let out = d.join("out");
+    let path = p.to_str().unwrap();
+    for args in [
+        vec!["validate", path],
+        vec!["validate", "--quiet", path],
+        vec!["run", path, "--out", out.to_str().unwrap()],
+    ] {
+        let o = run(&args);
+        let e = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{name}: {args:?}: {e}");
+        if args.contains(&"--quiet") {
+            continue;
+        }
+        assert!(e.contains(&place), "{name}: {place} not named in\n{e}");
+        assert!(e.contains(needle), "{name}: `{needle}` not in\n{e}");
+    }
+    let left = std::fs::read_dir(&out).map(|r| r.count()).unwrap_or(0);
+    assert_eq!(left, 0, "{name}: output left behind");
+    let _ = std::fs::remove_dir_all(&d);
+}
+
+#[test]
+fn extreme_numbers_are_refused_with_their_place() {
+    for (name, from, to, needle) in [
+        ("volt-huge", "\"120 V\"", "\"1e308 V\"", "outside the range"),
+        (
+            "volt-tiny",
+            "\"120 V\"",
+            "\"1e-320 V\"",
+            "outside the range",
+        ),
+        (
+            "volt-edge",
+            "\"120 V\"",
+            "\"1001 V\"",
+            "outside 50 … 1000 V",
+        ),
+        ("volt-low", "\"120 V\"", "\"49 V\"", "outside 50 … 1000 V"),
+        (
+            "rated-tiny",
+            "\"240 V\"",
+            "\"1e-320 V\"",
+            "outside the range",
+        ),
+        ("rated-low", "\"240 V\"", "\"20 V\"", "outside 50 … 2000 V"),
+        (
+            "power-huge",
+            "\"1.5 kW\"",
+            "\"1e308 W\"",
+            "outside the range",
+        ),
+        (
+            "power-overflow",
+            "\"1.5 kW\"",
+            "\"1e308 kW\"",
+            "outside the range",
+        ),
+        ("pf-tiny", "pf = 0.8", "pf = 1e-320", "outside the range"),
+        ("pf-low", "pf = 0.8", "pf = 0.01", "outside 0.05 … 1"),
+        (
+            "spread-huge",
+            "spread = 0.3",
+            "spread = 1e5",
+            "spread must be",
+        ),
+        (
+            "service-tiny",
+            "\"200 A\"",
+            "\"1e-320 A\"",
+            "outside the range",
+        ),
+        (
+            "service-huge",
+            "\"200 A\"",
+            "\"20000 A\"",
+            "outside 1 … 10000 A",
+        ),
+        (
+            "step-tiny",
+            "step = \"1 s\"",
+            "step = \"1e-30 s\"",
+            "outside the range",
+        ),
+        (
+            "step-10ms",
+            "step = \"1 s\"",
+            "step = \"10 ms\"",
+            "from 100 ms to 1 min",
+        ),
+        ("length-huge", "\"1 h\"", "\"1e30 h\"", "outside the range"),
+        (
+            "jitter-huge",
+            "jitter = 0.01",
+            "jitter = 1e300",
+            "outside the range",
+        ),
+    ] {
+        assert_refused(name, from, to, needle);
+    }
+}
+
+#[test]
+fn the_edges_of_the_ranges_are_accepted() {
+    let d = scratch("edges");
+    let text = BASE
+        .replace("\"120 V\"", "\"50 V\"")
+        .replace("step = \"1 s\"", "step = \"100 ms\"")
+        .replace("pf = 0.8", "pf = 0.05")
+        .replace("\"200 A\"", "\"10000 A\"");
+    let p = d.join("home.toml");
+    std::fs::write(&p, text).unwrap();
+    let o = run(&["validate", "--quiet", p.to_str().unwrap()]);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let _ = std::fs::remove_dir_all(&d);
+}
+
+#[test]
+fn long_ids_and_state_names_are_refused() {
+    let long = "a".repeat(70_000);
+    assert_refused(
+        "long-id",
+        "id = \"fridge\"",
+        &format!("id = \"{long}\""),
+        "at most 64 characters",
+    );
+    assert_refused(
+        "long-state",
+        "name = \"idle\"",
+        &format!("name = \"{}\"", "b".repeat(65)),
+        "1 … 64 characters",
+    );
+}
+
+#[test]
+fn ids_that_read_as_a_conductor_or_a_column_are_refused() {
+    for (id, needle) in [
+        ("standby_l1", "ends like a conductor (_l1)"),
+        ("fridge_l3", "ends like a conductor (_l3)"),
+        ("pump_n", "ends like a conductor (_n)"),
+        ("unmetered", "reserved"),
+        ("total", "reserved"),
+        ("time", "reserved"),
+    ] {
+        assert_refused(
+            &format!("id-{id}"),
+            "id = \"fridge\"",
+            &format!("id = \"{id}\""),
+            needle,
+        );
+    }
+}
+
+#[test]
+fn the_demo_scenarios_have_no_conductor_like_ids() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios");
+    for f in std::fs::read_dir(&root).unwrap() {
+        let p = f.unwrap().path();
+        if p.extension().is_some_and(|e| e == "toml") {
+            let o = run(&["validate", "--quiet", p.to_str().unwrap()]);
+            assert_eq!(o.status.code(), Some(0), "{}", p.display());
+        }
+    }
+}

@@ -1,0 +1,226 @@
+"""A hostile tester for the loadloom binary: mutated demo scenarios and
+population files, run through `validate`, `validate --quiet`, `run` and
+`fleet`, each checked for what issue 18 asks of bad input.
+
+Every case must end with exit status 0 or 2 (never 101, a panic, nor a
+signal), within a time limit (no hang), leave no `.NAME.partial-PID/` folder
+behind, and when it succeeds, write only finite numbers (read back with
+pyarrow, a reference library from the registry, not with our reader).
+`validate` and `validate --quiet` must agree on the exit status.
+
+The mutations are made on the TOML text with regular expressions and share
+no code with the scenario decoder. Seeded: the same seed gives the same
+cases.
+
+    LOADLOOM_BIN=target/release/loadloom .venv/bin/python tests/python/hostile.py --cases 500 --seed 1
+
+prints the counts (cases, panics, hangs, non-finite, leftovers, quiet
+mismatches) and the first failures with the mutation that made them.
+"""
+
+import argparse
+import math
+import os
+import pathlib
+import random
+import re
+import subprocess
+import sys
+import tempfile
+
+import pyarrow.parquet as pq
+
+ROOT = pathlib.Path(__file__).resolve().parents[2]
+SCENARIOS = ["split-phase-house.toml", "three-phase-house.toml", "apartment-208.toml"]
+POPULATION = ROOT / "scenarios" / "fleet" / "mixed-street.toml"
+
+# Extreme numbers a hostile file would hold (issue 18's list and its kin).
+EXTREMES = [
+    "1e308", "1e-320", "-1", "0", "-0", "1e30", "1e-30", "nan", "inf", "-inf",
+    "4294967296", "9.999999e99", "0.000001", "123456789012345678901234567890",
+    "1e-7", "5e-324", "1.7976931348623157e308",
+]
+UNITS = ["W", "kW", "V", "kV", "A", "mA", "s", "ms", "min", "h", "d", "Hz", "%", "ohm", "var", "MW"]
+QUANTITY = re.compile(r'"(-?[0-9][0-9.eE+-]*)\s*([A-Za-z%]+)"')
+BARE = re.compile(r"(=\s*)(-?[0-9][0-9._eE+-]*)(\s*[,}\n#])")
+IDLINE = re.compile(r'^(\s*(?:id|name)\s*=\s*)"([^"]*)"', re.M)
+
+
+def mutate_quantity(text, rng):
+    hits = list(QUANTITY.finditer(text))
+    if not hits:
+        return text, "none"
+    m = rng.choice(hits)
+    num = rng.choice(EXTREMES)
+    unit = m.group(2) if rng.random() < 0.8 else rng.choice(UNITS)
+    new = f'"{num} {unit}"'
+    return text[: m.start()] + new + text[m.end():], f"{m.group(0)} -> {new}"
+
+
+def mutate_bare(text, rng):
+    hits = list(BARE.finditer(text))
+    if not hits:
+        return text, "none"
+    m = rng.choice(hits)
+    num = rng.choice(EXTREMES + ["1e-320", "1e308"])
+    if num in ("nan", "inf", "-inf") and rng.random() < 0.5:
+        num = "+" + num.lstrip("-") if num != "-inf" else num
+    new = m.group(1) + num + m.group(3)
+    return text[: m.start()] + new + text[m.end():], f"{m.group(2)} -> {num}"
+
+
+def mutate_name(text, rng):
+    hits = list(IDLINE.finditer(text))
+    if not hits:
+        return text, "none"
+    m = rng.choice(hits)
+    choice = rng.choice(["long", "long", "conductor", "reserved", "empty", "unicode", "64", "65"])
+    name = {
+        "long": "a" * 70000,
+        "conductor": m.group(2) + rng.choice(["_l1", "_l2", "_l3", "_n"]),
+        "reserved": rng.choice(["unmetered", "total", "time"]),
+        "empty": "",
+        "unicode": "kühl\u202e",
+        "64": "a" * 64,
+        "65": "a" * 65,
+    }[choice]
+    return text[: m.start(2)] + name + text[m.end(2):], f"{m.group(1).strip()} {choice}"
+
+
+SETTINGS = [
+    ('step = "1 s"', ['step = "10 ms"', 'step = "1e-30 s"', 'step = "2 min"', 'step = "0.1 s"']),
+    ('start = "2027-01-04T00:00"', ['start = "2027-03-14T02:30"', 'start = "2027-01-04T00:00+05:00"',
+                                    'start = "2027-01-04T00:00Z"', 'start = "9999-12-31T23:00"',
+                                    'start = "2027-02-30T00:00"']),
+    ('timezone = "', ['timezone = "Nowhere/Atlantis', 'timezone = "UTC', 'timezone = "Etc/GMT+14']),
+    ('service = "', ['service = "1e-320 A', 'service = "1 A']),
+]
+
+
+def mutate_setting(text, rng):
+    old, news = rng.choice(SETTINGS)
+    if old not in text:
+        return text, "none"
+    if old.endswith('"') and old.count('"') == 1:  # a prefix: replace the value up to its quote
+        i = text.index(old)
+        j = text.index('"', i + len(old))
+        new = rng.choice(news)
+        return text[:i] + new + text[j:], new
+    new = rng.choice(news)
+    return text.replace(old, new, 1), new
+
+
+def mutate_source(text, rng):
+    imp = rng.choice(["5 ohm", "50 ohm", "1e308 ohm", "1e-320 ohm", "0.5 ohm", "2 ohm"])
+    line = f'source = {{ r = "{imp}", x = "{imp}" }}'
+    if re.search(r"^source = .*$", text, re.M):
+        return re.sub(r"^source = .*$", line, text, count=1, flags=re.M), line
+    return text.replace("[home]\n", "[home]\n" + line + "\n", 1), line
+
+
+def mutate_lines(text, rng):
+    lines = text.split("\n")
+    k = rng.randrange(len(lines))
+    how = rng.choice(["delete", "duplicate", "bytes", "truncate"])
+    if how == "delete":
+        del lines[k]
+    elif how == "duplicate":
+        lines.insert(k, lines[k])
+    elif how == "truncate":
+        return "\n".join(lines[:k]), f"truncate at line {k + 1}"
+    else:
+        lines[k] = lines[k] + "\udcff\udcfe"  # surrogate-escaped: invalid UTF-8 bytes
+    return "\n".join(lines), f"{how} line {k + 1}"
+
+
+MUTATORS = [mutate_quantity, mutate_quantity, mutate_quantity, mutate_bare, mutate_bare,
+            mutate_name, mutate_setting, mutate_source, mutate_lines]
+
+
+def make_case(rng):
+    base = rng.choice(SCENARIOS)
+    text = (ROOT / "scenarios" / base).read_text()
+    # Short runs keep a case cheap; a mutation may still change the length.
+    text = re.sub(r'^length = ".*"', 'length = "2 h"', text, count=1, flags=re.M)
+    what = [base]
+    for _ in range(rng.choice([1, 1, 1, 2, 3])):
+        text, w = rng.choice(MUTATORS)(text, rng)
+        what.append(w)
+    return text, what
+
+
+def finite_dataset(folder):
+    """The first non-finite number of any Parquet table, or None."""
+    for f in sorted(folder.glob("*.parquet")):
+        t = pq.read_table(f)
+        for name, col in zip(t.column_names, t.columns):
+            if not (col.type.id in range(2, 13) or str(col.type).startswith(("float", "double", "int"))):
+                continue
+            for v in col.to_pylist():
+                if v is not None and isinstance(v, float) and not math.isfinite(v):
+                    return f"{f.name}:{name} = {v}"
+    return None
+
+
+def run(bin_, args, timeout):
+    try:
+        p = subprocess.run([bin_, *args], capture_output=True, timeout=timeout)
+        return p.returncode, p.stderr.decode("utf-8", "replace")
+    except subprocess.TimeoutExpired:
+        return None, "hang"
+
+
+def check_case(bin_, text, work, timeout):
+    """The faults of one case, as a list of (kind, detail)."""
+    src = work / "home.toml"
+    src.write_bytes(text.encode("utf-8", "surrogateescape"))
+    faults = []
+    codes = {}
+    for mode in (["validate"], ["validate", "--quiet"], ["run", "--out", str(work / "out"), "--quiet"]):
+        code, err = run(bin_, [*mode, str(src)], timeout)
+        codes[" ".join(mode[:2])] = code
+        if code is None:
+            faults.append(("hang", " ".join(mode)))
+        elif code not in (0, 2):
+            faults.append(("panic" if code == 101 or "panicked" in err else f"exit {code}", " ".join(mode) + ": " + err[-300:]))
+    if codes.get("validate") is not None and codes.get("validate --quiet") is not None:
+        if codes["validate"] != codes["validate --quiet"]:
+            faults.append(("quiet", f"validate {codes['validate']} vs --quiet {codes['validate --quiet']}"))
+    out = work / "out"
+    if out.exists():
+        left = [p.name for p in out.iterdir() if ".partial" in p.name]
+        if left:
+            faults.append(("leftover", str(left)))
+        if codes.get("run --out") == 0:
+            bad = finite_dataset(out / "home")
+            if bad:
+                faults.append(("non-finite", bad))
+    return faults
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--cases", type=int, default=200)
+    ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--timeout", type=float, default=60)
+    ap.add_argument("--show", type=int, default=12)
+    a = ap.parse_args()
+    bin_ = os.environ.get("LOADLOOM_BIN", str(ROOT / "target" / "release" / "loadloom"))
+    rng = random.Random(a.seed)
+    tally = {}
+    shown = 0
+    for i in range(a.cases):
+        text, what = make_case(rng)
+        with tempfile.TemporaryDirectory() as d:
+            faults = check_case(bin_, text, pathlib.Path(d), a.timeout)
+        for kind, detail in faults:
+            tally[kind] = tally.get(kind, 0) + 1
+            if shown < a.show:
+                shown += 1
+                print(f"case {i} {what}: {kind}: {detail.strip()[:400]}", flush=True)
+    print(f"cases {a.cases} seed {a.seed}: " + ", ".join(f"{k} {v}" for k, v in sorted(tally.items())) or "no faults")
+    return 1 if tally else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
