@@ -12,7 +12,7 @@ use crate::behaviour::timelines;
 use crate::scenario::Scenario;
 use crate::simulate::{simulate_with, Outcome};
 pub use sink::Format;
-use sink::Sink;
+use sink::{Sink, Values};
 use std::io;
 use std::path::{Path, PathBuf};
 use tables::Tables;
@@ -90,12 +90,14 @@ fn write_into(
         format,
         tables.meters_schema.clone(),
         tz,
+        Values::Noisy,
     )?;
     let mut truth = Sink::create(
         &dir.join(format!("truth.{ext}")),
         format,
         tables.truth_schema.clone(),
         tz,
+        Values::Stepwise,
     )?;
     let mut meter_rows = 0u64;
     let mut recorder = if s.waveforms.windows.is_empty() {
@@ -129,6 +131,7 @@ fn write_into(
         format,
         tables.events_schema.clone(),
         tz,
+        Values::Stepwise,
     )?;
     events.write(&tables.events_batch(s, &outcome.events, s.run.step_s))?;
     events.close()?;

@@ -8,7 +8,7 @@
 //!
 //! Each run is a child process of its own, so peak memory (VmHWM) is its own.
 
-use loadloom::dataset::sink::{Format, Sink};
+use loadloom::dataset::sink::{Format, Sink, Values};
 use loadloom::dataset::tables::Tables;
 use loadloom::dataset::{self, CHUNK_ROWS};
 use loadloom::scenario::Scenario;
@@ -85,6 +85,7 @@ fn floor(s: &Scenario, out: &Path) {
         Format::Parquet,
         tables.meters_schema.clone(),
         tz,
+        Values::Noisy,
     )
     .unwrap();
     let mut truth = Sink::create(
@@ -92,6 +93,7 @@ fn floor(s: &Scenario, out: &Path) {
         Format::Parquet,
         tables.truth_schema.clone(),
         tz,
+        Values::Stepwise,
     )
     .unwrap();
     let rows = s.intervals();
@@ -138,6 +140,7 @@ fn floor(s: &Scenario, out: &Path) {
         Format::Parquet,
         tables.events_schema.clone(),
         tz,
+        Values::Stepwise,
     )
     .unwrap();
     events
