@@ -94,13 +94,7 @@ fn section(n: &Node) -> String {
 
 /// Reads and checks a population file; every rule is checked before any home is made.
 pub fn load(path: &Path) -> Result<Population, Error> {
-    let text = std::fs::read_to_string(path).map_err(|e| {
-        Error::file(
-            path,
-            format!("cannot read the population: {e}"),
-            "check the path",
-        )
-    })?;
+    let text = crate::scenario::source::read_source(path, "population")?;
     let mut sources = Sources::default();
     let file = sources.add(path, text);
     let root = parse_toml(&sources, file)?;

@@ -239,3 +239,76 @@ fn the_demo_scenarios_have_no_conductor_like_ids() {
         }
     }
 }
+
+/// Runs `validate` on `path` and returns its stderr, asserting exit 2 within
+/// a few seconds (a FIFO would block a reader forever).
+fn refused_quickly(path: &Path) -> String {
+    let mut child = bin()
+        .args(["validate", path.to_str().unwrap()])
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let start = std::time::Instant::now();
+    while child.try_wait().unwrap().is_none() {
+        if start.elapsed().as_secs() > 20 {
+            child.kill().unwrap();
+            panic!("{}: validate hangs", path.display());
+        }
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    let o = child.wait_with_output().unwrap();
+    assert_eq!(o.status.code(), Some(2), "{}", path.display());
+    String::from_utf8_lossy(&o.stderr).to_string()
+}
+
+#[test]
+fn absurd_files_fail_fast() {
+    let d = scratch("files");
+    // A FIFO: opening it for reading would wait for a writer forever.
+    let fifo = d.join("pipe.toml");
+    let c = std::ffi::CString::new(fifo.to_str().unwrap()).unwrap();
+    // SAFETY: a valid NUL-terminated path.
+    assert_eq!(unsafe { libc::mkfifo(c.as_ptr(), 0o600) }, 0);
+    assert!(refused_quickly(&fifo).contains("not a regular file"));
+    assert!(refused_quickly(Path::new("/dev/zero")).contains("not a regular file"));
+    assert!(refused_quickly(&d).contains("not a regular file"));
+    // Larger than 4 MiB: refused before it is parsed.
+    let big = d.join("big.toml");
+    let pad = format!("{BASE}\n{}", "# padding\n".repeat(500_000));
+    std::fs::write(&big, pad).unwrap();
+    assert!(refused_quickly(&big).contains("larger than 4 MiB"));
+    let _ = std::fs::remove_dir_all(&d);
+}
+
+#[test]
+fn a_library_that_is_not_a_folder_is_refused() {
+    let d = scratch("library");
+    std::fs::write(d.join("lib.toml"), "").unwrap();
+    for (value, needle) in [
+        ("nowhere", "does not exist"),
+        ("lib.toml", "is not a folder"),
+    ] {
+        let text = format!("library = \"{value}\"\n{BASE}");
+        let p = d.join("home.toml");
+        std::fs::write(&p, &text).unwrap();
+        let e = refused_quickly(&p);
+        assert!(e.contains(needle) && e.contains("home.toml:1:"), "{e}");
+    }
+    let _ = std::fs::remove_dir_all(&d);
+}
+
+#[test]
+fn invalid_utf8_is_reported_with_line_and_column() {
+    let d = scratch("utf8");
+    let p = d.join("home.toml");
+    let mut bytes = BASE.as_bytes().to_vec();
+    // `id = "fr<0xff>idge"`: line of the fridge's id, column 9 (after `id = "fr`).
+    let at = BASE.find("id = \"fridge\"").unwrap() + "id = \"fr".len();
+    bytes.insert(at, 0xff);
+    std::fs::write(&p, bytes).unwrap();
+    let e = refused_quickly(&p);
+    let line = line_of(BASE, "id = \"fridge\"");
+    assert!(e.contains(&format!("home.toml:{line}:9")), "{e}");
+    assert!(e.contains("not valid UTF-8"), "{e}");
+    let _ = std::fs::remove_dir_all(&d);
+}

@@ -4,20 +4,13 @@
 use super::library;
 use super::model::*;
 use super::reader::{Ctx, Table};
-use super::source::{parse_toml, Entry, Error, Node, Sources, Val};
+use super::source::{parse_toml, read_source, Entry, Error, Node, Sources, Val};
 use crate::units::Kind;
 use std::path::{Path, PathBuf};
 
 /// Reads and checks a scenario file (and the templates it uses).
 pub fn load(path: &Path) -> Result<Scenario, Error> {
-    let text = std::fs::read_to_string(path).map_err(|e| {
-        Error::file(
-            path,
-            format!("cannot read the scenario: {e}"),
-            "check the path",
-        )
-    })?;
-    load_str(path, text)
+    load_str(path, read_source(path, "scenario")?)
 }
 
 /// Like [`load`], with the text given; `path` names it in errors and decides
@@ -44,7 +37,21 @@ fn library_dirs(path: &Path, root: &Node, sources: &Sources) -> Result<Vec<PathB
     if let Val::Table(entries) = &root.v {
         if let Some(e) = entries.iter().find(|e| e.key == "library") {
             let ctx = Ctx { sources };
-            dirs.push(base.join(ctx.string(&e.node, "library")?));
+            let dir = base.join(ctx.string(&e.node, "library")?);
+            if !dir.is_dir() {
+                let what = if dir.exists() {
+                    "is not a folder"
+                } else {
+                    "does not exist"
+                };
+                return Err(ctx.err(
+                    &e.node,
+                    "library",
+                    format!("the library folder {} {what}", dir.display()),
+                    "name a folder of templates (NAME.toml), relative to the scenario, or leave `library` out to use the built-in templates",
+                ));
+            }
+            dirs.push(dir);
         }
     }
     dirs.push(base.join("library"));
@@ -85,13 +92,7 @@ fn collect_templates(
             .find(|p| p.is_file());
         let (tpath, text) = match found {
             Some(p) => {
-                let text = std::fs::read_to_string(&p).map_err(|e| {
-                    Error::file(
-                        &p,
-                        format!("cannot read the template: {e}"),
-                        "check its permissions",
-                    )
-                })?;
+                let text = read_source(&p, "template")?;
                 (p, text)
             }
             None => match library::builtin(name) {

@@ -3,6 +3,7 @@
 //! path, the offending text underlined, and what would be accepted).
 
 use std::fmt;
+use std::io::Read;
 use std::ops::Range;
 use std::path::{Path, PathBuf};
 
@@ -69,6 +70,77 @@ impl Node {
             Val::Table(_) => "a table",
         }
     }
+}
+
+/// The largest scenario, template or population file read, in bytes: the
+/// demo scenarios are under 20 kB; a file a thousand times larger is not a
+/// home description, and reading it would only delay the error.
+pub const MAX_SOURCE_BYTES: u64 = 4 << 20;
+
+/// Reads a scenario, template or population file (`what` names it in errors):
+/// a regular file (a FIFO or device would block or never end), at most
+/// [`MAX_SOURCE_BYTES`], in UTF-8 (a bad byte is reported with its line and
+/// column).
+pub fn read_source(path: &Path, what: &str) -> Result<String, Error> {
+    let fail = |m: String, help: &str| Error::file(path, m, help);
+    let meta = std::fs::metadata(path)
+        .map_err(|e| fail(format!("cannot read the {what}: {e}"), "check the path"))?;
+    if !meta.is_file() {
+        return Err(fail(
+            format!("the {what} is not a regular file (a folder, FIFO or device)"),
+            "give the path of a .toml file",
+        ));
+    }
+    let too_big = || {
+        fail(
+            format!("the {what} is larger than {} MiB", MAX_SOURCE_BYTES >> 20),
+            "a scenario describes one home in a few kB; check that this is the right file",
+        )
+    };
+    if meta.len() > MAX_SOURCE_BYTES {
+        return Err(too_big());
+    }
+    let mut bytes = Vec::new();
+    std::fs::File::open(path)
+        .and_then(|f| f.take(MAX_SOURCE_BYTES + 1).read_to_end(&mut bytes))
+        .map_err(|e| {
+            fail(
+                format!("cannot read the {what}: {e}"),
+                "check its permissions",
+            )
+        })?;
+    if bytes.len() as u64 > MAX_SOURCE_BYTES {
+        return Err(too_big());
+    }
+    String::from_utf8(bytes).map_err(|e| not_utf8(path, what, e.as_bytes(), e.utf8_error()))
+}
+
+/// The error for a file that is not UTF-8, at the line and column of the
+/// first bad byte.
+fn not_utf8(path: &Path, what: &str, bytes: &[u8], e: std::str::Utf8Error) -> Error {
+    let good = &bytes[..e.valid_up_to()];
+    let line_start = good.iter().rposition(|b| *b == b'\n').map_or(0, |i| i + 1);
+    let prefix = std::str::from_utf8(&good[line_start..]).unwrap_or("");
+    let line_end = bytes[line_start..]
+        .iter()
+        .position(|b| *b == b'\n')
+        .map_or(bytes.len(), |i| line_start + i);
+    let column = prefix.chars().count() + 1;
+    Error(Box::new(Diagnostic {
+        file: path.to_path_buf(),
+        line: good.iter().filter(|b| **b == b'\n').count() + 1,
+        column,
+        path: String::new(),
+        message: format!(
+            "the {what} is not valid UTF-8: byte 0x{:02x} cannot start or continue a character",
+            bytes[e.valid_up_to()]
+        ),
+        help: "save the file as UTF-8 (TOML files are UTF-8 text)".into(),
+        excerpt: String::from_utf8_lossy(&bytes[line_start..line_end])
+            .trim_end()
+            .to_string(),
+        underline: (column, 1),
+    }))
 }
 
 /// Parses TOML text into a [`Node`] tree; syntax errors carry their place.
