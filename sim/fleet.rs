@@ -360,7 +360,8 @@ pub fn load(path: &Path) -> Result<Population, Error> {
     // home is written: home 0 of every kind with every template it may own.
     for (k, kind) in pop.kinds.iter().enumerate() {
         let text = pop.scenario_text_all(k);
-        crate::scenario::load_str(&pop.home_path(0), text).map_err(|mut e| {
+        crate::scenario::load_str(&pop.home_path(0), text).map_err(|e| {
+            let mut e = population_place(&ctx, &root, k, &pop.home_path(0), e);
             e.message = format!(
                 "home kind \"{}\" cannot host the population's appliances: {}",
                 kind.name, e.message
@@ -369,6 +370,52 @@ pub fn load(path: &Path) -> Result<Population, Error> {
         })?;
     }
     Ok(pop)
+}
+
+/// The entry `key` of a table node, or item `index` of an array node.
+fn child<'n>(n: &'n Node, key: &str, index: Option<usize>) -> Option<&'n Node> {
+    match (&n.v, index) {
+        (Val::Table(entries), _) => entries.iter().find(|e| e.key == key).map(|e| &e.node),
+        (Val::Arr(items), Some(i)) => items.get(i),
+        _ => None,
+    }
+}
+
+/// An error in the scenario generated for home kind `k` (a file that does
+/// not exist, `generated`), moved to the population's own line that wrote
+/// the offending key: `[run]` and `[meter]` keys to those sections, `[home]`
+/// keys to the kind, an appliance (`a{j}`) to its `[[owns]]` entry.
+fn population_place(ctx: &Ctx, root: &Node, k: usize, generated: &Path, e: Error) -> Error {
+    if e.file != generated {
+        return e; // an error inside a template names the template's own file
+    }
+    let mut parts = e.path.split(['.', '[', ']']).filter(|p| !p.is_empty());
+    let (head, key) = (parts.next().unwrap_or(""), parts.next().unwrap_or(""));
+    let kind = child(root, "kind", None).and_then(|n| child(n, "", Some(k)));
+    let (node, path) = match head {
+        "run" | "meter" => match child(root, head, None) {
+            Some(sec) => match child(sec, key, None) {
+                Some(n) => (Some(n), format!("{head}.{key}")),
+                None => (Some(sec), head.to_string()),
+            },
+            None => (kind, format!("kind[{k}]")),
+        },
+        "appliance" => {
+            let j = key.strip_prefix('a').and_then(|j| j.parse().ok());
+            match child(root, "owns", None).and_then(|n| child(n, "", j)) {
+                Some(n) => (Some(n), format!("owns[{}]", j.unwrap_or(0))),
+                None => (kind, format!("kind[{k}]")),
+            }
+        }
+        _ => match kind.and_then(|n| child(n, key, None)) {
+            Some(n) => (Some(n), format!("kind[{k}].{key}")),
+            None => (kind, format!("kind[{k}]")),
+        },
+    };
+    match node {
+        Some(n) => ctx.err(n, &path, e.message.clone(), e.help.clone()),
+        None => e,
+    }
 }
 
 impl Population {
@@ -551,9 +598,16 @@ fn home_dir(out: &Path, i: u64) -> PathBuf {
     out.join(format!("home={i:05}"))
 }
 
-/// Whether home `i` is written completely (its files match its manifest).
-pub fn is_complete(out: &Path, i: u64) -> bool {
-    solver_check::Dataset::open(&home_dir(out, i)).is_ok_and(|d| d.verify().is_ok())
+/// Whether home `i` is written completely: its files match its manifest,
+/// and its `scenario.toml` is the one the population gives home `i` (a
+/// damaged or missing one makes the home be redone).
+pub fn is_complete(pop: &Population, out: &Path, i: u64) -> bool {
+    let dir = home_dir(out, i);
+    let data_ok = solver_check::Dataset::open(&dir).is_ok_and(|d| d.verify().is_ok());
+    data_ok
+        && pop.home(i).is_ok_and(|(s, _)| {
+            std::fs::read_to_string(dir.join("scenario.toml")).ok() == s.source_toml
+        })
 }
 
 pub struct FleetRun {
@@ -573,22 +627,16 @@ pub fn run(
     progress: &(dyn Fn(u64, u64) + Sync),
 ) -> Result<FleetRun, String> {
     std::fs::create_dir_all(out).map_err(|e| format!("cannot create {}: {e}", out.display()))?;
-    // Partial folders of an interrupted run are redone.
-    if let Ok(rd) = std::fs::read_dir(out) {
-        for e in rd.flatten() {
-            let n = e.file_name().to_string_lossy().to_string();
-            if n.starts_with(".home=") && (n.contains(".partial-") || n.contains(".old-")) {
-                let _ = std::fs::remove_dir_all(e.path());
-            }
-        }
-    }
+    // Partial folders of an interrupted run are redone; those of another
+    // shard still running in the same folder are its own.
+    crate::dataset::folder::sweep_stale(out);
     let mine: Vec<u64> = (0..homes)
         .filter(|i| i % shard.count == shard.index)
         .collect();
     let todo: Vec<u64> = mine
         .iter()
         .copied()
-        .filter(|&i| !is_complete(out, i))
+        .filter(|&i| !is_complete(pop, out, i))
         .collect();
     let skipped = (mine.len() - todo.len()) as u64;
     let next = std::sync::atomic::AtomicUsize::new(0);
@@ -694,16 +742,14 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
         Arc::new(Int64Array::from(rows)),
     ];
     let batch = RecordBatch::try_new(schema.clone(), cols).map_err(|e| e.to_string())?;
-    let tmp = out.join(".homes.parquet.partial");
-    let mut w = parquet::arrow::ArrowWriter::try_new(
-        std::fs::File::create(&tmp).map_err(|e| e.to_string())?,
-        schema,
-        None,
-    )
-    .map_err(|e| e.to_string())?;
+    let mut bytes = Vec::new();
+    let mut w = parquet::arrow::ArrowWriter::try_new(&mut bytes, schema, None)
+        .map_err(|e| e.to_string())?;
     w.write(&batch).map_err(|e| e.to_string())?;
     w.close().map_err(|e| e.to_string())?;
-    std::fs::rename(&tmp, out.join("homes.parquet")).map_err(|e| e.to_string())?;
+    // Never through a link planted in the output folder.
+    crate::dataset::folder::write_file(&out.join("homes.parquet"), &bytes)
+        .map_err(|e| e.to_string())?;
     let kind_counts: serde_json::Map<String, Value> = pop
         .kinds
         .iter()
@@ -725,9 +771,7 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
         "energy_kwh": kwh.iter().sum::<f64>(),
         "layout": "home=NNNNN/{meters,truth,events}.parquet, manifest.json, scenario.toml (Hive-partitioned by home)",
     });
-    std::fs::write(
-        out.join("fleet.json"),
-        serde_json::to_string_pretty(&summary).expect("JSON") + "\n",
-    )
-    .map_err(|e| e.to_string())
+    let text = serde_json::to_string_pretty(&summary).map_err(|e| e.to_string())? + "\n";
+    crate::dataset::folder::write_file(&out.join("fleet.json"), text.as_bytes())
+        .map_err(|e| e.to_string())
 }

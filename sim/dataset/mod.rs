@@ -3,6 +3,7 @@
 //! Everything is written under a temporary name and renamed when complete,
 //! so a failed run leaves nothing half-written.
 
+pub mod folder;
 pub mod manifest;
 pub mod schema;
 pub mod sink;
@@ -36,26 +37,22 @@ pub fn write(
     progress: &mut dyn FnMut(f64),
 ) -> io::Result<Written> {
     std::fs::create_dir_all(out_root)?;
+    folder::sweep_stale(out_root);
     let dest = out_root.join(&s.name);
-    let tmp = out_root.join(format!(".{}.partial-{}", s.name, std::process::id()));
-    if tmp.exists() {
-        std::fs::remove_dir_all(&tmp)?;
-    }
-    std::fs::create_dir(&tmp)?;
-    match write_into(s, &tmp, format, progress) {
-        Ok((rows, outcome)) => {
-            replace_dir(&tmp, &dest)?;
-            Ok(Written {
-                dir: dest,
-                rows,
-                outcome,
-            })
-        }
-        Err(e) => {
-            let _ = std::fs::remove_dir_all(&tmp);
-            Err(e)
-        }
-    }
+    // Removed on every way out but the rename below (an error, a panic).
+    let tmp = folder::PartialDir::create(out_root.join(format!(
+        ".{}.partial-{}",
+        s.name,
+        std::process::id()
+    )))?;
+    let (rows, outcome) = write_into(s, tmp.path(), format, progress)?;
+    replace_dir(tmp.path(), &dest)?;
+    tmp.keep();
+    Ok(Written {
+        dir: dest,
+        rows,
+        outcome,
+    })
 }
 
 /// Moves `tmp` to `dest`, replacing an older dataset there.

