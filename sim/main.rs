@@ -2,6 +2,7 @@
 
 use clap::{Parser, Subcommand, ValueEnum};
 use loadloom::dataset::{self, Format};
+use loadloom::electrical::settle::Diverged;
 use loadloom::scenario::{self, Scenario};
 use loadloom::units::{parse_quantity, Kind};
 use std::io::IsTerminal;
@@ -993,10 +994,17 @@ fn main() -> ExitCode {
                     }
                     ExitCode::SUCCESS
                 }
-                Err(e) => {
-                    eprintln!("error: writing the dataset under {} failed: {e}\n  = help: check free space and permissions; nothing was left behind", out.display());
-                    ExitCode::from(FAILED)
-                }
+                Err(e) => match e.get_ref().and_then(|i| i.downcast_ref::<Diverged>()) {
+                    // Physics with no plausible answer: bad input, said as such.
+                    Some(d) => {
+                        eprintln!("{d}\n  = nothing was written");
+                        ExitCode::from(BAD_INPUT)
+                    }
+                    None => {
+                        eprintln!("error: writing the dataset under {} failed: {e}\n  = help: check free space and permissions; nothing was left behind", out.display());
+                        ExitCode::from(FAILED)
+                    }
+                },
             }
         }
     }

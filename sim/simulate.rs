@@ -3,6 +3,7 @@
 //! with the length of the run.
 
 use crate::behaviour::Timeline;
+use crate::electrical::settle::{diverged, Diverged};
 use crate::electrical::source::SourceVoltage;
 use crate::electrical::{Network, StepOut, C64};
 use crate::meter::{MeterModel, Readings};
@@ -88,6 +89,32 @@ fn inrush_mult(peak: f64, tau: f64, k: u64, dt: f64) -> f64 {
     1.0 + (peak - 1.0) * tau / dt * ((-t0 / tau).exp() - (-(t0 + dt) / tau).exp())
 }
 
+/// Settles the step's solution and checks its voltages are plausible;
+/// otherwise the run stops with what went wrong and what would work.
+fn check_solution(
+    s: &Scenario,
+    net: &Network,
+    e: &[C64; 3],
+    active: &[(usize, f64)],
+    step: u64,
+    t: &mut crate::electrical::Terminals,
+    out: &mut StepOut,
+) -> Result<(), Diverged> {
+    let v = s.home.voltage_v;
+    if let Err(last) = net.settle(e, active, v, t, out) {
+        let what = format!("the terminals still move by {last:.3e} V after {} passes (the iteration diverges or oscillates)", crate::electrical::settle::MAX_PASSES);
+        return Err(diverged(s, net, active, step, what));
+    }
+    if let Some((x, vx)) = net.implausible(out, v) {
+        let what = format!(
+            "the L{} voltage would be {vx:.4e} V against {v} V nominal",
+            x + 1
+        );
+        return Err(diverged(s, net, active, step, what));
+    }
+    Ok(())
+}
+
 /// Runs the simulation over `intervals` reporting intervals, handing each
 /// chunk of at most `chunk_rows` rows to `sink`.
 pub fn simulate<E>(
@@ -96,7 +123,10 @@ pub fn simulate<E>(
     intervals: u64,
     chunk_rows: usize,
     sink: impl FnMut(&Chunk) -> Result<(), E>,
-) -> Result<Outcome, E> {
+) -> Result<Outcome, E>
+where
+    E: From<Diverged>,
+{
     simulate_with(s, timelines, intervals, chunk_rows, sink, None)
 }
 
@@ -108,7 +138,10 @@ pub fn simulate_with<E>(
     chunk_rows: usize,
     mut sink: impl FnMut(&Chunk) -> Result<(), E>,
     mut recorder: Option<&mut crate::waveform::Recorder>,
-) -> Result<Outcome, E> {
+) -> Result<Outcome, E>
+where
+    E: From<Diverged>,
+{
     let net = Network::new(s);
     let n_apps = net.apps.len();
     let lines = net.lines;
@@ -225,6 +258,7 @@ pub fn simulate_with<E>(
         // a nanovolt), the last step's solution still holds: skip the solve.
         if changed || source_moved || !t_prev.settled(&t, lines) {
             net.solve(&t, &active, &mut out);
+            check_solution(s, &net, &e, &active, step, &mut t, &mut out)?;
             i_prev = out.i_line;
             t_prev = t;
         }

@@ -169,12 +169,32 @@ pub fn render(s: &Scenario, f: &Figures) -> String {
             100.0 * l.peak_a / f.service_a
         );
     }
-    o += "(coincident peak: every appliance in its largest state at once, an upper bound)\n\n";
+    o += "(coincident peak: every appliance in its largest state at once, an upper bound)\n";
+    for w in warnings(f) {
+        o += &format!("warning: {w}\n");
+    }
+    o += "\n";
     o += &f.difficulty.render(s);
     o += "\n";
     o += CAUTION;
     o += "\n";
     o
+}
+
+/// What a run would rather not meet: a conductor whose coincident peak
+/// exceeds the service rating (the terminal voltage sags with it; a run
+/// stops if it leaves 0.5 … 1.5 of nominal).
+pub fn warnings(f: &Figures) -> Vec<String> {
+    f.lines
+        .iter()
+        .filter(|l| l.peak_a > f.service_a)
+        .map(|l| {
+            format!(
+                "{}'s coincident peak of {:.1} A exceeds the {} A service: if these loads ran at once the voltage would sag through the source impedance; raise `service`, or give fewer or smaller loads on {}",
+                l.name, l.peak_a, f.service_a, l.name
+            )
+        })
+        .collect()
 }
 
 /// The validate figures as JSON (for scripts), with the caution.
@@ -186,6 +206,7 @@ pub fn to_json(s: &Scenario, f: &Figures) -> serde_json::Value {
         "appliances": f.apps.iter().map(|a| serde_json::json!({ "id": a.id, "behaviour": a.behaviour, "wiring": a.wiring, "kwh_per_day": a.kwh_per_day, "duty": a.duty, "peak_w": a.peak_w })).collect::<Vec<_>>(),
         "conductors": f.lines.iter().map(|l| serde_json::json!({ "conductor": l.name, "coincident_peak_a": l.peak_a, "share_of_service": l.peak_a / f.service_a })).collect::<Vec<_>>(),
         "service_a": f.service_a,
+        "warnings": warnings(f),
         "difficulty": f.difficulty.to_json(s),
         "caution": CAUTION,
     })

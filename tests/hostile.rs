@@ -312,3 +312,67 @@ fn invalid_utf8_is_reported_with_line_and_column() {
     assert!(e.contains("not valid UTF-8"), "{e}");
     let _ = std::fs::remove_dir_all(&d);
 }
+
+#[test]
+fn a_voltage_solve_without_a_plausible_answer_stops_with_its_place() {
+    // 50 ohm in each line: the fixed point of V(I) and I(V) oscillates once
+    // the fridge cools (before: NaN and kV-sized voltages with exit 0).
+    let line = "source = { r = \"50 ohm\", x = \"50 ohm\" }";
+    let text = BASE.replacen(
+        "timezone = \"America/Chicago\"",
+        &format!("timezone = \"America/Chicago\"\n{line}"),
+        1,
+    );
+    let d = scratch("diverge");
+    let p = d.join("home.toml");
+    std::fs::write(&p, &text).unwrap();
+    let out = d.join("out");
+    let o = run(&["run", p.to_str().unwrap(), "--out", out.to_str().unwrap()]);
+    let e = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{e}");
+    assert!(
+        e.contains(&format!("home.toml:{}:", line_of(&text, line))),
+        "{e}"
+    );
+    assert!(e.contains("lower the source impedance to at most"), "{e}");
+    assert_eq!(std::fs::read_dir(&out).map(|r| r.count()).unwrap_or(0), 0);
+    // A plausible impedance still runs.
+    let ok = text.replace("50 ohm", "0.1 ohm");
+    std::fs::write(&p, ok).unwrap();
+    let o = run(&[
+        "run",
+        p.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let _ = std::fs::remove_dir_all(&d);
+}
+
+#[test]
+fn validate_warns_when_the_coincident_peak_exceeds_the_service() {
+    let d = scratch("service");
+    let p = d.join("home.toml");
+    // The 1.5 kW heater across 240 V draws 6.25 A per leg: over a 5 A service.
+    std::fs::write(&p, BASE.replace("\"200 A\"", "\"5 A\"")).unwrap();
+    let o = run(&["validate", p.to_str().unwrap()]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert_eq!(o.status.code(), Some(0));
+    assert!(
+        text.contains("warning: L1's coincident peak") && text.contains("exceeds the 5 A service"),
+        "{text}"
+    );
+    let o = run(&["validate", "--json", p.to_str().unwrap()]);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["warnings"].as_array().unwrap().len(), 2);
+    std::fs::write(&p, BASE).unwrap();
+    let o = run(&["validate", p.to_str().unwrap()]);
+    assert!(!String::from_utf8_lossy(&o.stdout).contains("warning:"));
+    let _ = std::fs::remove_dir_all(&d);
+}

@@ -70,6 +70,7 @@ impl Sink {
     }
 
     pub fn write(&mut self, batch: &RecordBatch) -> io::Result<()> {
+        super::finite::check(batch)?;
         match self {
             Sink::Parquet(w) => w.write(batch).map_err(to_io),
             Sink::Csv { out, tz } => write_csv(out, tz, batch),

@@ -12,6 +12,7 @@
 //! then Σ_x S_x = Σ_draws S exactly (Tellegen's theorem), whatever the split.
 
 pub mod complex;
+pub mod settle;
 pub mod source;
 
 use crate::scenario::{Connection, Harmonic, Home, Inrush, Scenario, Zip, NEUTRAL};

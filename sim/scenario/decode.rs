@@ -398,9 +398,14 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
         }
         None => None,
     };
+    let source_node = t.opt("source");
     t.finish()?;
-    let at = ctx.err(supply_node, "home.supply", "", "");
-    let supply_at = format!("{}:{}:{}", at.file.display(), at.line, at.column);
+    let place = |n: &Node| {
+        let at = ctx.err(n, "", "", "");
+        format!("{}:{}:{}", at.file.display(), at.line, at.column)
+    };
+    let supply_at = place(supply_node);
+    let source_at = source_node.map_or_else(|| supply_at.clone(), place);
     Ok(Home {
         label,
         supply,
@@ -411,6 +416,7 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
         source,
         away,
         supply_at,
+        source_at,
     })
 }
 

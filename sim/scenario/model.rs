@@ -488,6 +488,10 @@ pub struct Home {
     /// Where the supply is written ("file:line:col"), for messages.
     #[serde(skip)]
     pub supply_at: String,
+    /// Where the source impedance is written (or, when it is the default,
+    /// the supply), "file:line:col", for messages.
+    #[serde(skip)]
+    pub source_at: String,
 }
 
 #[derive(Clone, Debug, Serialize)]

@@ -78,3 +78,16 @@ def test_a_population_error_points_at_the_population_line(tmp_path):
     assert r.returncode == 2, r.stderr
     assert f"street.toml:{line}:" in r.stderr and "home-0000" not in r.stderr, r.stderr
 
+
+
+def test_seeded_hostile_batch_through_the_binary():
+    # A few hundred cases in CI; LOADLOOM_HOSTILE_CASES asks for more.
+    cases = int(os.environ.get("LOADLOOM_HOSTILE_CASES", "150"))
+    rng = random.Random(18)
+    faults = []
+    for i in range(cases):
+        text, what = hostile.make_case(rng)
+        with tempfile.TemporaryDirectory() as d:
+            for kind, detail in hostile.check_case(BIN, text, pathlib.Path(d), timeout=60):
+                faults.append((i, what, kind, detail[:300]))
+    assert not faults, "\n".join(map(str, faults[:10]))
