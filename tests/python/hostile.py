@@ -218,7 +218,8 @@ def main():
             if shown < a.show:
                 shown += 1
                 print(f"case {i} {what}: {kind}: {detail.strip()[:400]}", flush=True)
-    print(f"cases {a.cases} seed {a.seed}: " + ", ".join(f"{k} {v}" for k, v in sorted(tally.items())) or "no faults")
+    counts = ", ".join(f"{k} {v}" for k, v in sorted(tally.items()))
+    print(f"cases {a.cases} seed {a.seed}: {counts or 'no faults'}")
     return 1 if tally else 0
 
 
