@@ -651,6 +651,9 @@ fn main() -> ExitCode {
                 eprintln!("error: {m}");
                 ExitCode::from(BAD_INPUT)
             };
+            // Orphans of a solver (even one that called setsid) are handed
+            // to this process, so none outlives the round trip.
+            solver_check::child::become_subreaper();
             let solver = match solver_check::roundtrip::Solver::parse(&solver) {
                 Ok(s) => s,
                 Err(m) => return bad(format!("--solver: {m}")),
@@ -770,15 +773,17 @@ fn main() -> ExitCode {
                 Ok(r) => {
                     if json {
                         let mut v = r.to_json();
-                        v["solver"] = serde_json::json!({ "command": o.solver, "seconds": o.seconds, "task": o.task_dir, "log": o.log });
+                        v["solver"] = serde_json::json!({ "command": o.solver, "seconds": o.seconds, "task": o.task_dir, "estimate": o.estimate, "log": o.log, "confinement": o.confinement, "leftovers_stopped": o.leftovers });
                         println!("{}", serde_json::to_string_pretty(&v).expect("JSON"));
                     } else {
                         println!(
-                            "solver {} finished in {:.1} s (task {}, log {})",
+                            "solver {} finished in {:.1} s (task {}, log {}); {}{}",
                             o.solver,
                             o.seconds,
                             o.task_dir.display(),
-                            o.log.display()
+                            o.log.display(),
+                            o.confinement,
+                            leftovers_note(o.leftovers)
                         );
                         print!(
                             "{}",
@@ -792,7 +797,7 @@ fn main() -> ExitCode {
                     ExitCode::SUCCESS
                 }
                 Err(f) => {
-                    eprintln!("error: solver {}: {f}\n  --> task {}, log {}\n  = help: run the solver by hand on the task folder to see what went wrong; no score was given", o.solver, o.task_dir.display(), o.log.display());
+                    eprintln!("error: solver {}: {f}\n  --> task {}, log {} ({}{})\n  = help: run the solver by hand on the task folder to see what went wrong; no score was given", o.solver, o.task_dir.display(), o.log.display(), o.confinement, leftovers_note(o.leftovers));
                     ExitCode::from(FAILED)
                 }
             }
@@ -822,7 +827,6 @@ fn main() -> ExitCode {
             let opts = solver_check::score::Options {
                 partial,
                 thresholds,
-                window: None,
             };
             if let Some(other) = against {
                 let scored = solver_check::score::score(&truth, &estimate, &opts)
@@ -1007,5 +1011,14 @@ fn main() -> ExitCode {
                 },
             }
         }
+    }
+}
+
+/// The round trip's note on processes a solver left running.
+fn leftovers_note(n: usize) -> String {
+    match n {
+        0 => String::new(),
+        1 => "; 1 process it left running was stopped".into(),
+        n => format!("; {n} processes it left running were stopped"),
     }
 }

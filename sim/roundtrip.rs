@@ -27,10 +27,14 @@ pub fn once(s: &Scenario, work: &Path, p: &Plan) -> Result<Outcome, String> {
     let written = dataset::write(&s, work, Format::Parquet, &mut |_| {})
         .map_err(|e| format!("writing the dataset under {} failed: {e}", work.display()))?;
     let train_rows = (p.train_s / s.meter.interval_s).round() as usize;
+    let split = solver_check::roundtrip::Split {
+        train: 0..train_rows,
+        test: train_rows..written.rows as usize,
+    };
     solver_check::roundtrip::run(
         &written.dir,
         work,
-        train_rows,
+        &split,
         p.reveal,
         &p.solver,
         p.limit,

@@ -168,6 +168,90 @@ pub fn plan_from(
     })
 }
 
+/// Requires the estimate to cover exactly the truth's period, `t0 ..
+/// t0 + n·dt`: every scored row, no other. An estimate that starts late or
+/// ends early misses rows; one that starts early or runs on has extra rows
+/// (training times, say). The error names the first missing or extra time.
+#[allow(clippy::too_many_arguments)]
+pub fn exact_cover(
+    path: &Path,
+    est_first: Option<i64>,
+    de: i64,
+    est_rows: usize,
+    t0: i64,
+    dt: i64,
+    n: usize,
+    tz: &str,
+) -> Result<(), TableError> {
+    let zone = jiff::tz::TimeZone::get(tz).unwrap_or(jiff::tz::TimeZone::UTC);
+    let at = |ms: i64| {
+        jiff::Timestamp::from_millisecond(ms)
+            .map(|t| {
+                t.to_zoned(zone.clone())
+                    .strftime("%Y-%m-%dT%H:%M:%S%.f%:z")
+                    .to_string()
+            })
+            .unwrap_or_else(|_| format!("{ms} ms"))
+    };
+    let t_end = t0 + n as i64 * dt;
+    let period = format!(
+        "{} to {} ({n} rows of {} s)",
+        at(t0),
+        at(t_end),
+        dt as f64 / 1000.0
+    );
+    let help = "give one row per interval of the scored period, no other rows (a round trip scores exactly the test period of task.json)";
+    let Some(e0) = est_first else {
+        return Err(table_err(
+            path,
+            Some("time"),
+            None,
+            format!("the estimate has no rows; it must cover {period}"),
+            help,
+        ));
+    };
+    let e_end = e0 + est_rows as i64 * de;
+    if e0 >= t_end || e_end <= t0 {
+        return Err(table_err(path, Some("time"), Some(0), format!("missing time {}: the estimate's times ({} to {}) do not overlap the scored period {period}", at(t0), at(e0), at(e_end)), help));
+    }
+    if e0 < t0 {
+        return Err(table_err(
+            path,
+            Some("time"),
+            Some(0),
+            format!("extra time {}: before the scored period {period}", at(e0)),
+            help,
+        ));
+    }
+    if e0 > t0 {
+        return Err(table_err(
+            path,
+            Some("time"),
+            Some(0),
+            format!(
+                "missing time {}: the estimate starts at {}; the scored period is {period}",
+                at(t0),
+                at(e0)
+            ),
+            help,
+        ));
+    }
+    if e_end > t_end {
+        let row = ((t_end - e0) / de.max(1)) as usize;
+        return Err(table_err(
+            path,
+            Some("time"),
+            Some(row),
+            format!("extra time {}: after the scored period {period}", at(t_end)),
+            help,
+        ));
+    }
+    if e_end < t_end {
+        return Err(table_err(path, Some("time"), None, format!("missing time {}: the estimate ends there ({est_rows} rows); the scored period is {period}", at(e_end)), help));
+    }
+    Ok(())
+}
+
 /// Means over `per` rows from `first`, `rows` times.
 pub fn means(v: &[f64], first: usize, per: usize, rows: usize) -> Vec<f64> {
     if per == 1 {
@@ -205,6 +289,49 @@ mod tests {
             (10_000, 8, 5, 10)
         );
         assert_eq!(means(&[1.0, 3.0, 5.0, 7.0], 0, 2, 2), vec![2.0, 6.0]);
+    }
+
+    #[test]
+    fn only_the_exact_period_is_accepted() {
+        let p = Path::new("e.csv");
+        let ok = |e0, de, n| exact_cover(p, Some(e0), de, n, 10_000, 1000, 100, "UTC");
+        assert!(ok(10_000, 1000, 100).is_ok());
+        assert!(
+            ok(10_000, 10_000, 10).is_ok(),
+            "a coarser estimate of the same period"
+        );
+        assert!(ok(10_000, 500, 200).is_ok(), "a finer one");
+        // Training rows before the period, one row, ten rows short, an hour late.
+        let e = ok(0, 1000, 110).unwrap_err();
+        assert!(
+            e.message.starts_with("extra time 1970-01-01T00:00:00"),
+            "{}",
+            e.message
+        );
+        let e = ok(10_000, 1000, 1).unwrap_err();
+        assert!(
+            e.message.starts_with("missing time 1970-01-01T00:00:11"),
+            "{}",
+            e.message
+        );
+        assert!(ok(10_000, 1000, 90)
+            .unwrap_err()
+            .message
+            .contains("missing time"));
+        let e = ok(10_000, 1000, 101).unwrap_err();
+        assert!(
+            e.message.starts_with("extra time 1970-01-01T00:01:50"),
+            "{}",
+            e.message
+        );
+        assert_eq!(e.row, Some(100));
+        let e = ok(3_610_000, 1000, 100).unwrap_err();
+        assert!(
+            e.message.starts_with("missing time 1970-01-01T00:00:10"),
+            "{}",
+            e.message
+        );
+        assert!(exact_cover(p, None, 1000, 0, 0, 1000, 5, "UTC").is_err());
     }
 
     #[test]

@@ -147,55 +147,132 @@ impl Dataset {
 
     /// Checks every file the manifest lists against its size and sha256.
     pub fn verify(&self) -> Result<(), DatasetError> {
-        let files = self.manifest["files"].as_object().ok_or_else(|| {
+        for (name, entry) in self.files()? {
+            self.verify_file(
+                name,
+                entry,
+                "the file was changed or cut short; rewrite the dataset",
+            )?;
+        }
+        Ok(())
+    }
+
+    /// Checks the truth files (those a score is computed against) before
+    /// scoring: size, sha256 and rows against the manifest, and the
+    /// manifest's own row counts against each other. A score against a truth
+    /// that changed after it was written would mean nothing.
+    pub fn verify_truth(&self) -> Result<(), DatasetError> {
+        let mpath = self.dir.join("manifest.json");
+        let mut any = false;
+        for (name, entry) in self.files()? {
+            if !name.starts_with("truth.") {
+                continue;
+            }
+            any = true;
+            let path = self.dir.join(name);
+            if entry["rows"].as_u64() != Some(self.rows) {
+                return Err(err(
+                    &mpath,
+                    format!(
+                        "the manifest's row counts disagree: files.\"{name}\".rows is {}, time.rows is {}",
+                        entry["rows"], self.rows
+                    ),
+                    "the manifest was edited; rewrite the dataset with `loadloom run`",
+                ));
+            }
+            self.verify_file(name, entry, "the truth file changed after it was written; rewrite the dataset with `loadloom run` (a score against it would mean nothing)")?;
+            let rows = table_rows(&path)?;
+            if rows != self.rows {
+                return Err(err(
+                    &path,
+                    format!("it holds {rows} rows, the manifest says {}", self.rows),
+                    "the truth file changed after it was written; rewrite the dataset",
+                ));
+            }
+        }
+        if !any {
+            return Err(err(
+                &mpath,
+                "the manifest lists no truth file",
+                "point at a dataset folder written by `loadloom run`",
+            ));
+        }
+        Ok(())
+    }
+
+    fn files(&self) -> Result<&serde_json::Map<String, Value>, DatasetError> {
+        self.manifest["files"].as_object().ok_or_else(|| {
             err(
                 &self.dir.join("manifest.json"),
                 "the manifest lists no files",
                 "rewrite the dataset with `loadloom run`",
             )
+        })
+    }
+
+    fn verify_file(&self, name: &str, entry: &Value, help: &str) -> Result<(), DatasetError> {
+        let path = self.dir.join(name);
+        let meta = std::fs::metadata(&path).map_err(|e| {
+            err(
+                &path,
+                format!("cannot read it: {e}"),
+                "the dataset is incomplete; rewrite it with `loadloom run`",
+            )
         })?;
-        for (name, entry) in files {
-            let path = self.dir.join(name);
-            let meta = std::fs::metadata(&path).map_err(|e| {
-                err(
-                    &path,
-                    format!("cannot read it: {e}"),
-                    "the dataset is incomplete; rewrite it with `loadloom run`",
-                )
-            })?;
-            if Some(meta.len()) != entry["bytes"].as_u64() {
-                return Err(err(
-                    &path,
-                    format!(
-                        "it has {} bytes, the manifest says {}",
-                        meta.len(),
-                        entry["bytes"]
-                    ),
-                    "the file was changed or cut short; rewrite the dataset",
-                ));
-            }
-            let mut f = std::fs::File::open(&path)
-                .map_err(|e| err(&path, e.to_string(), "check permissions"))?;
-            let mut h = Sha256::new();
-            let mut buf = vec![0u8; 1 << 20];
-            loop {
-                let n = f
-                    .read(&mut buf)
-                    .map_err(|e| err(&path, e.to_string(), "check the disk"))?;
-                if n == 0 {
-                    break;
-                }
-                h.update(&buf[..n]);
-            }
-            let hex: String = h.finalize().iter().map(|b| format!("{b:02x}")).collect();
-            if Some(hex.as_str()) != entry["sha256"].as_str() {
-                return Err(err(
-                    &path,
-                    "its sha256 differs from the manifest's",
-                    "the file was changed after it was written; rewrite the dataset",
-                ));
-            }
+        if Some(meta.len()) != entry["bytes"].as_u64() {
+            return Err(err(
+                &path,
+                format!(
+                    "it has {} bytes, the manifest says {}",
+                    meta.len(),
+                    entry["bytes"]
+                ),
+                help,
+            ));
+        }
+        if Some(sha256_hex(&path)?.as_str()) != entry["sha256"].as_str() {
+            return Err(err(&path, "its sha256 differs from the manifest's", help));
         }
         Ok(())
     }
+}
+
+/// The sha256 of a file, as lowercase hex.
+pub fn sha256_hex(path: &Path) -> Result<String, DatasetError> {
+    let mut f =
+        std::fs::File::open(path).map_err(|e| err(path, e.to_string(), "check permissions"))?;
+    let mut h = Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let n = f
+            .read(&mut buf)
+            .map_err(|e| err(path, e.to_string(), "check the disk"))?;
+        if n == 0 {
+            break;
+        }
+        h.update(&buf[..n]);
+    }
+    Ok(h.finalize().iter().map(|b| format!("{b:02x}")).collect())
+}
+
+/// Rows of a table file: the Parquet footer's count, or a CSV's records.
+fn table_rows(path: &Path) -> Result<u64, DatasetError> {
+    let bad = |e: String| err(path, e, "rewrite the dataset with `loadloom run`");
+    if path.extension().is_some_and(|e| e == "parquet") {
+        let f = std::fs::File::open(path).map_err(|e| bad(e.to_string()))?;
+        let r = parquet::file::reader::SerializedFileReader::new(f)
+            .map_err(|e| bad(format!("not a readable Parquet file: {e}")))?;
+        use parquet::file::reader::FileReader;
+        return Ok(r.metadata().file_metadata().num_rows().max(0) as u64);
+    }
+    let mut r = csv::Reader::from_path(path).map_err(|e| bad(e.to_string()))?;
+    let mut n = 0u64;
+    let mut rec = csv::ByteRecord::new();
+    while r
+        .read_byte_record(&mut rec)
+        .map_err(|e| bad(e.to_string()))?
+    {
+        n += 1;
+    }
+    Ok(n)
 }

@@ -12,11 +12,14 @@
 //! - [`score`]: all of it together, and the reports;
 //! - [`compare`]: two estimates, with a paired bootstrap over days;
 //! - [`plot`]: a picture of a dataset's conductors and appliances (SVG);
-//! - [`roundtrip`]: task folder, solver run, score; [`solvers`]: the built-in ones.
+//! - [`roundtrip`]: task folder, solver run, score; [`solvers`]: the built-in ones;
+//!   [`confine`]: Landlock rules for a solver; [`child`]: running it and stopping what it leaves.
 
 pub mod align;
 pub mod audit;
+pub mod child;
 pub mod compare;
+pub mod confine;
 pub mod dataset;
 pub mod estimate;
 pub mod metrics;

@@ -1,15 +1,22 @@
 //! The round trip: a dataset split into a training period (meters and
 //! truth) and a test period (meters only), handed to a solver as a task
-//! folder, the solver run as a child process (or a built-in one), and its
-//! estimate scored on the test period. A solver that crashes, hangs, writes
-//! nothing or writes a malformed estimate gets a report, never a score.
+//! folder, the solver run as a confined child process (or a built-in one),
+//! and its estimate scored on exactly the test period. A solver that
+//! crashes, hangs, writes nothing, writes a malformed estimate or touches
+//! the truth gets a report, never a score.
+//!
+//! The work folder holds, side by side, the dataset, `task/` (what the
+//! solver may read), `test-truth/` (the scored rows, a dataset of their own
+//! with their sha256 in its manifest) and `solver/` (the estimate and a
+//! `scratch/` folder: all the solver may write).
 
+use crate::confine::{program_paths, Access, Sandbox};
 use crate::dataset::Dataset;
-use crate::score::{score, Options, Report};
-use crate::taskio::copy_rows;
+use crate::score::{score, Options, Report, ScoreError};
+use crate::taskio::{copy_rows, copy_rows_hashed, create_fresh};
 use serde_json::{json, Value};
+use std::ops::Range;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -121,11 +128,21 @@ pub fn split_words(s: &str) -> Result<Vec<String>, String> {
 #[derive(Debug)]
 pub enum Failure {
     Spawn(String),
-    Crashed { status: String, tail: String },
-    TimedOut { after: Duration, tail: String },
-    NoEstimate { tail: String },
+    Crashed {
+        status: String,
+        tail: String,
+    },
+    TimedOut {
+        after: Duration,
+        tail: String,
+    },
+    NoEstimate {
+        tail: String,
+    },
     Malformed(String),
     Builtin(String),
+    /// The scored truth changed while the solver ran.
+    Truth(String),
 }
 
 impl std::fmt::Display for Failure {
@@ -158,16 +175,27 @@ impl std::fmt::Display for Failure {
                 "the solver's estimate is malformed, so it gets no score:\n{e}"
             ),
             Failure::Builtin(e) => write!(f, "the built-in solver failed: {e}"),
+            Failure::Truth(e) => write!(
+                f,
+                "the truth file changed after it was written, so no score is given:\n{e}"
+            ),
         }
     }
 }
 
+/// One solver's run on a prepared task.
 pub struct Outcome {
     pub task_dir: PathBuf,
+    /// The scored truth (a dataset of the test rows only).
+    pub truth_dir: PathBuf,
     pub estimate: PathBuf,
     pub log: PathBuf,
     pub solver: String,
     pub seconds: f64,
+    /// "confined by Landlock …" or "not confined: …".
+    pub confinement: String,
+    /// Processes the solver left behind that were stopped.
+    pub leftovers: usize,
     pub result: Result<Report, Failure>,
 }
 
@@ -178,47 +206,28 @@ fn iso(ms: i64, tz: &str) -> String {
         .unwrap_or_default()
 }
 
-/// Writes the task folder for `ds` with the first `train_rows` rows as
-/// training; returns its path.
-pub fn write_task(
-    ds: &Dataset,
-    dir: &Path,
-    train_rows: usize,
-    reveal: Reveal,
-    estimate_name: &str,
-) -> std::io::Result<PathBuf> {
-    let _ = std::fs::remove_dir_all(dir);
-    std::fs::create_dir_all(dir.join("test"))?;
-    let rows = ds.rows as usize;
-    let m = &ds.manifest;
-    let t0 = m["time"]["start_utc_ms"].as_i64().unwrap_or(0);
-    let dt = (ds.interval_s * 1000.0).round() as i64;
-    let at = |r: usize| iso(t0 + r as i64 * dt, &ds.timezone);
-    let train = if train_rows > 0 {
-        std::fs::create_dir_all(dir.join("train"))?;
-        copy_rows(
-            &ds.dir.join("meters.parquet"),
-            &dir.join("train/meters.parquet"),
-            0,
-            train_rows,
-        )?;
-        copy_rows(
-            &ds.dir.join("truth.parquet"),
-            &dir.join("train/truth.parquet"),
-            0,
-            train_rows,
-        )?;
-        json!({ "meters": "train/meters.parquet", "truth": "train/truth.parquet", "start": at(0), "end": at(train_rows), "rows": train_rows })
-    } else {
-        Value::Null
-    };
-    copy_rows(
-        &ds.dir.join("meters.parquet"),
-        &dir.join("test/meters.parquet"),
-        train_rows,
-        rows,
-    )?;
-    let apps: Vec<Value> = m["appliances"]
+/// Rows of the dataset handed over with truth (train) and scored (test).
+#[derive(Clone, Debug)]
+pub struct Split {
+    pub train: Range<usize>,
+    pub test: Range<usize>,
+}
+
+/// A task written once, for any number of solvers.
+pub struct Prepared {
+    pub dataset: PathBuf,
+    pub work: PathBuf,
+    pub task_dir: PathBuf,
+    pub truth_dir: PathBuf,
+    /// sha256 of `truth_dir/truth.parquet` as written, kept in memory.
+    truth_sha: String,
+    pub estimate_name: String,
+    /// Whether external solvers will be confined (LOADLOOM_CONFINE=off turns it off).
+    pub confine: bool,
+}
+
+fn appliances_revealed(m: &Value, reveal: Reveal) -> Vec<Value> {
+    m["appliances"]
         .as_array()
         .map(|list| {
             list.iter()
@@ -233,7 +242,59 @@ pub fn write_task(
                 })
                 .collect()
         })
-        .unwrap_or_default();
+        .unwrap_or_default()
+}
+
+/// What external solvers will get, for task.json and the reports.
+pub fn confinement_line(confine: bool) -> String {
+    let abi = crate::confine::landlock_abi();
+    if !confine {
+        "not confined: confinement was turned off (LOADLOOM_CONFINE=off)".into()
+    } else if abi == 0 {
+        "not confined: this system offers no Landlock".into()
+    } else {
+        format!("confined by Landlock (ABI {abi}): reads its task folder, its program and the system's libraries; writes only its estimate folder")
+    }
+}
+
+/// Writes the task folder for `ds`: training rows `split.train` with
+/// truth, test rows `split.test` with meters only; returns its path.
+pub fn write_task(
+    ds: &Dataset,
+    dir: &Path,
+    split: &Split,
+    reveal: Reveal,
+    estimate_name: &str,
+    confinement: &str,
+) -> std::io::Result<PathBuf> {
+    let _ = std::fs::remove_dir_all(dir);
+    std::fs::create_dir_all(dir.join("test"))?;
+    let m = &ds.manifest;
+    let t0 = m["time"]["start_utc_ms"].as_i64().unwrap_or(0);
+    let dt = (ds.interval_s * 1000.0).round() as i64;
+    let at = |r: usize| iso(t0 + r as i64 * dt, &ds.timezone);
+    let (train, test) = (&split.train, &split.test);
+    let train_json = if !train.is_empty() {
+        std::fs::create_dir_all(dir.join("train"))?;
+        for table in ["meters", "truth"] {
+            let src = ds.dir.join(format!("{table}.parquet"));
+            copy_rows(
+                &src,
+                &dir.join(format!("train/{table}.parquet")),
+                train.start,
+                train.end,
+            )?;
+        }
+        json!({ "meters": "train/meters.parquet", "truth": "train/truth.parquet", "start": at(train.start), "end": at(train.end), "rows": train.len() })
+    } else {
+        Value::Null
+    };
+    copy_rows(
+        &ds.dir.join("meters.parquet"),
+        &dir.join("test/meters.parquet"),
+        test.start,
+        test.end,
+    )?;
     let task = json!({
         "format": "loadloom-task/1",
         "reveal": reveal.name(),
@@ -243,21 +304,102 @@ pub fn write_task(
             "kind": m["supply"]["kind"], "conductors": m["supply"]["conductors"],
             "voltage_ln_v": m["supply"]["voltage_ln_v"], "voltage_ll_v": m["supply"]["voltage_ll_v"], "frequency_hz": m["supply"]["frequency_hz"],
         },
-        "train": train,
-        "test": { "meters": "test/meters.parquet", "start": at(train_rows), "end": at(rows), "rows": rows - train_rows },
-        "appliances": apps,
+        "train": train_json,
+        "test": { "meters": "test/meters.parquet", "start": at(test.start), "end": at(test.end), "rows": test.len() },
+        "appliances": appliances_revealed(m, reveal),
         "estimate": {
             "file": estimate_name,
-            "rows": "one per row of test/meters.parquet, with its `time` (interval start, tz-aware)",
+            "rows": "exactly one per row of test/meters.parquet, with its `time` (interval start, tz-aware); no other rows",
             "columns": "time, then {id}_p_w for every appliance (W, ≥ 0); optional {id}_on (0/1) and {id}_{conductor}_p_w",
             "format": "Parquet or CSV, as the file name's extension says",
+            "scratch": "a folder for temporary files: $LOADLOOM_SCRATCH (also $TMPDIR)",
         },
+        "log": confinement,
     });
-    std::fs::write(
-        dir.join("task.json"),
-        serde_json::to_string_pretty(&task).expect("JSON") + "\n",
+    let mut f = create_fresh(&dir.join("task.json"))?;
+    std::io::Write::write_all(
+        &mut f,
+        (serde_json::to_string_pretty(&task).expect("JSON") + "\n").as_bytes(),
     )?;
     Ok(dir.to_path_buf())
+}
+
+/// Writes the scored truth: rows `test` of the dataset's truth as a dataset
+/// of their own (manifest with their time, rows and sha256). Returns the
+/// sha256.
+fn write_test_truth(ds: &Dataset, dir: &Path, test: &Range<usize>) -> std::io::Result<String> {
+    let _ = std::fs::remove_dir_all(dir);
+    std::fs::create_dir_all(dir)?;
+    let src = ds.dir.join("truth.parquet");
+    if !src.exists() {
+        return Err(std::io::Error::other(format!(
+            "{}: a round trip needs a Parquet dataset (write it with --format parquet)",
+            src.display()
+        )));
+    }
+    let (rows, sha, bytes) =
+        copy_rows_hashed(&src, &dir.join("truth.parquet"), test.start, test.end)?;
+    let mut m = ds.manifest.clone();
+    let t0 = m["time"]["start_utc_ms"].as_i64().unwrap_or(0);
+    let start = t0 + test.start as i64 * (ds.interval_s * 1000.0).round() as i64;
+    m["time"]["start_utc_ms"] = json!(start);
+    m["time"]["start_local"] = json!(iso(start, &ds.timezone));
+    m["time"]["rows"] = json!(rows);
+    m["files"] = json!({ "truth.parquet": { "rows": rows, "bytes": bytes, "sha256": sha } });
+    if let Some(o) = m.as_object_mut() {
+        // Energies of the whole run would not describe these rows.
+        o.remove("summary");
+        o.insert(
+            "test_period_of".into(),
+            json!({ "dataset": ds.dir, "first_row": test.start }),
+        );
+    }
+    let mut f = create_fresh(&dir.join("manifest.json"))?;
+    std::io::Write::write_all(
+        &mut f,
+        (serde_json::to_string_pretty(&m).expect("JSON") + "\n").as_bytes(),
+    )?;
+    Ok(sha)
+}
+
+/// Writes the task and the scored truth under `work`, for any number of solvers.
+pub fn prepare(
+    dataset: &Path,
+    work: &Path,
+    split: &Split,
+    reveal: Reveal,
+    estimate_name: &str,
+) -> std::io::Result<Prepared> {
+    let ds = Dataset::open(dataset).map_err(|e| std::io::Error::other(e.to_string()))?;
+    if split.test.is_empty()
+        || split.test.end > ds.rows as usize
+        || split.train.end > split.test.start
+    {
+        return Err(std::io::Error::other(format!(
+            "rows {:?} (train) and {:?} (test) do not fit the dataset's {} rows",
+            split.train, split.test, ds.rows
+        )));
+    }
+    let confine = std::env::var("LOADLOOM_CONFINE").map_or(true, |v| v != "off");
+    let task_dir = write_task(
+        &ds,
+        &work.join("task"),
+        split,
+        reveal,
+        estimate_name,
+        &confinement_line(confine),
+    )?;
+    let truth_dir = work.join("test-truth");
+    let truth_sha = write_test_truth(&ds, &truth_dir, &split.test)?;
+    Ok(Prepared {
+        dataset: dataset.to_path_buf(),
+        work: work.to_path_buf(),
+        task_dir,
+        truth_dir,
+        truth_sha,
+        estimate_name: estimate_name.to_string(),
+        confine,
+    })
 }
 
 fn tail(path: &Path, lines: usize) -> String {
@@ -274,120 +416,210 @@ fn tail(path: &Path, lines: usize) -> String {
 pub fn run(
     dataset: &Path,
     work: &Path,
-    train_rows: usize,
+    split: &Split,
     reveal: Reveal,
     solver: &Solver,
     timeout: Duration,
     estimate_name: &str,
 ) -> std::io::Result<Outcome> {
-    let ds = Dataset::open(dataset).map_err(|e| std::io::Error::other(e.to_string()))?;
-    let task_dir = write_task(&ds, &work.join("task"), train_rows, reveal, estimate_name)?;
-    let estimate = work.join(estimate_name);
-    let log = work.join("solver.log");
-    let _ = std::fs::remove_file(&estimate);
+    let p = prepare(dataset, work, split, reveal, estimate_name)?;
+    run_solver(&p, solver, work, timeout, &[])
+}
+
+/// Runs one solver on a prepared task with its own folder `slot` (the log
+/// `slot/solver.log`, the estimate and scratch under `slot/solver/`), then
+/// scores it. `extra_read` are folders the solver may read besides its own.
+pub fn run_solver(
+    p: &Prepared,
+    solver: &Solver,
+    slot: &Path,
+    timeout: Duration,
+    extra_read: &[PathBuf],
+) -> std::io::Result<Outcome> {
+    let out_dir = slot.join("solver");
+    let _ = std::fs::remove_dir_all(&out_dir);
+    std::fs::create_dir_all(out_dir.join("scratch"))?;
+    let estimate = out_dir.join(&p.estimate_name);
+    let log = slot.join("solver.log");
     let started = Instant::now();
-    let ran: Result<(), Failure> = match solver {
+    let (ran, confinement, leftovers) = match solver {
         Solver::Builtin(name) => {
-            std::fs::write(&log, format!("builtin:{name}\n"))?;
-            crate::solvers::run(name, &task_dir, &estimate).map_err(Failure::Builtin)
+            let line = "not confined: a built-in solver runs inside loadloom".to_string();
+            let mut f = create_fresh(&log)?;
+            std::io::Write::write_all(&mut f, format!("builtin:{name}; {line}\n").as_bytes())?;
+            let r = crate::solvers::run(name, &p.task_dir, &estimate).map_err(Failure::Builtin);
+            (r, line, 0)
         }
-        Solver::Command(argv) => run_child(argv, &task_dir, &estimate, &log, timeout),
+        Solver::Command(argv) => {
+            let mut access = Access {
+                read: vec![p.task_dir.clone()],
+                write: vec![out_dir.clone()],
+            };
+            access.read.extend(program_paths(argv));
+            access.read.extend(extra_read.iter().cloned());
+            let sandbox = Sandbox::new(&access, &p.work, p.confine);
+            let r = run_child(argv, p, &out_dir, &estimate, &log, &sandbox, timeout);
+            let (r, left) = match r {
+                Ok(left) => (Ok(()), left),
+                Err((f, left)) => (Err(f), left),
+            };
+            (r, sandbox.status.clone(), left)
+        }
     };
     let seconds = started.elapsed().as_secs_f64();
-    let result = ran.and_then(|_| {
-        if !estimate.exists() {
-            return Err(Failure::NoEstimate {
-                tail: tail(&log, 10),
-            });
-        }
-        let opts = Options {
-            partial: false,
-            thresholds: vec![],
-            window: Some((train_rows, ds.rows as usize - train_rows)),
-        };
-        score(dataset, &estimate, &opts).map_err(|e| Failure::Malformed(e.to_string()))
-    });
+    let result = ran.and_then(|_| score_estimate(p, &estimate, &log));
     Ok(Outcome {
-        task_dir,
+        task_dir: p.task_dir.clone(),
+        truth_dir: p.truth_dir.clone(),
         estimate,
         log,
         solver: solver.describe(),
         seconds,
+        confinement,
+        leftovers,
         result,
     })
 }
 
-/// Stops the child and every process of its group (it was made leader of
-/// its own group when spawned, so this reaches nothing else).
-fn stop_group(child: &mut std::process::Child) {
+/// Scores the estimate against the scored truth, once both are checked:
+/// the estimate a plain file of its own (not a link to anything), the
+/// truth unchanged since it was written (its manifest's sha256 the one
+/// kept in memory, the file's the manifest's).
+fn score_estimate(p: &Prepared, estimate: &Path, log: &Path) -> Result<Report, Failure> {
+    let meta = match std::fs::symlink_metadata(estimate) {
+        Err(_) => {
+            return Err(Failure::NoEstimate {
+                tail: tail(log, 10),
+            })
+        }
+        Ok(m) => m,
+    };
     #[cfg(unix)]
-    {
-        let pgid = child.id() as i32;
-        if pgid > 1 {
-            // SAFETY: kill(2) with a negative pid signals exactly that
-            // process group; pgid > 1 rules out "every process" (-1).
-            unsafe {
-                libc::kill(-pgid, libc::SIGKILL);
+    let links = std::os::unix::fs::MetadataExt::nlink(&meta);
+    #[cfg(not(unix))]
+    let links = 1;
+    if !meta.file_type().is_file() || links != 1 {
+        return Err(Failure::Malformed(format!("error: the estimate is a link, not a file of its own\n  --> {}\n  = help: write the estimate itself to the path given", estimate.display())));
+    }
+    let mpath = p.truth_dir.join("manifest.json");
+    let recorded = std::fs::read_to_string(&mpath)
+        .ok()
+        .and_then(|t| serde_json::from_str::<Value>(&t).ok())
+        .and_then(|m| {
+            m["files"]["truth.parquet"]["sha256"]
+                .as_str()
+                .map(str::to_string)
+        });
+    if recorded.as_deref() != Some(p.truth_sha.as_str()) {
+        return Err(Failure::Truth(format!(
+            "  --> {}: its sha256 is not the one written",
+            mpath.display()
+        )));
+    }
+    let opts = Options {
+        partial: false,
+        thresholds: vec![],
+    };
+    score(&p.truth_dir, estimate, &opts).map_err(|e| match e {
+        ScoreError::Dataset(d) => Failure::Truth(d.to_string()),
+        ScoreError::Table(t) => Failure::Malformed(t.to_string()),
+    })
+}
+
+/// Replaces `{task}`, `{estimate}` and `{scratch}` in one pass, so a path
+/// that itself holds a placeholder's text is never substituted again.
+pub fn substitute(arg: &str, values: &[(&str, &str)]) -> String {
+    let mut out = String::with_capacity(arg.len());
+    let mut rest = arg;
+    'scan: while !rest.is_empty() {
+        for (key, value) in values {
+            if let Some(after) = rest.strip_prefix(key) {
+                out.push_str(value);
+                rest = after;
+                continue 'scan;
             }
         }
+        let c = rest.chars().next().expect("not empty");
+        out.push(c);
+        rest = &rest[c.len_utf8()..];
     }
-    let _ = child.kill();
+    out
 }
+
+type ChildResult = Result<usize, (Failure, usize)>;
 
 fn run_child(
     argv: &[String],
-    task: &Path,
+    p: &Prepared,
+    out_dir: &Path,
     estimate: &Path,
     log: &Path,
+    sandbox: &Sandbox,
     timeout: Duration,
-) -> Result<(), Failure> {
-    let sub = |a: &String| {
-        a.replace("{task}", &task.display().to_string())
-            .replace("{estimate}", &estimate.display().to_string())
-    };
-    let args: Vec<String> = argv.iter().map(sub).collect();
-    let out = std::fs::File::create(log)
-        .map_err(|e| Failure::Spawn(format!("cannot create {}: {e}", log.display())))?;
-    let err = out.try_clone().map_err(|e| Failure::Spawn(e.to_string()))?;
-    let mut cmd = Command::new(&args[0]);
-    cmd.args(&args[1..])
-        .stdin(Stdio::null())
-        .stdout(out)
-        .stderr(err)
-        .env("LOADLOOM_TASK", task)
-        .env("LOADLOOM_ESTIMATE", estimate);
-    #[cfg(unix)]
-    {
-        use std::os::unix::process::CommandExt;
-        // Its own process group, so a time-out stops its children too.
-        cmd.process_group(0);
+) -> ChildResult {
+    let scratch = out_dir.join("scratch");
+    let (t, e, s) = (
+        p.task_dir.display().to_string(),
+        estimate.display().to_string(),
+        scratch.display().to_string(),
+    );
+    let values = [
+        ("{task}", t.as_str()),
+        ("{estimate}", e.as_str()),
+        ("{scratch}", s.as_str()),
+    ];
+    let args: Vec<String> = argv.iter().map(|a| substitute(a, &values)).collect();
+    let mut f = create_fresh(log).map_err(|e| {
+        (
+            Failure::Spawn(format!("cannot create {}: {e}", log.display())),
+            0,
+        )
+    })?;
+    let head = format!("loadloom: solver {}; {}\n", argv.join(" "), sandbox.status);
+    std::io::Write::write_all(&mut f, head.as_bytes())
+        .map_err(|e| (Failure::Spawn(e.to_string()), 0))?;
+    let env = [
+        ("LOADLOOM_TASK", p.task_dir.as_path()),
+        ("LOADLOOM_ESTIMATE", estimate),
+        ("LOADLOOM_SCRATCH", scratch.as_path()),
+        ("TMPDIR", scratch.as_path()),
+    ];
+    let (ended, left) =
+        crate::child::run(&args, &env, f, sandbox, timeout).map_err(|e| (Failure::Spawn(e), 0))?;
+    match ended {
+        crate::child::Ended::Exited(status) if status.success() => Ok(left),
+        crate::child::Ended::Exited(status) => Err((
+            Failure::Crashed {
+                status: status.to_string(),
+                tail: tail(log, 10),
+            },
+            left,
+        )),
+        crate::child::Ended::TimedOut => Err((
+            Failure::TimedOut {
+                after: timeout,
+                tail: tail(log, 10),
+            },
+            left,
+        )),
     }
-    let mut child = cmd
-        .spawn()
-        .map_err(|e| Failure::Spawn(format!("{}: {e}", args[0])))?;
-    let started = Instant::now();
-    loop {
-        match child.try_wait() {
-            Ok(Some(status)) => {
-                return if status.success() {
-                    Ok(())
-                } else {
-                    Err(Failure::Crashed {
-                        status: status.to_string(),
-                        tail: tail(log, 10),
-                    })
-                };
-            }
-            Ok(None) if started.elapsed() >= timeout => {
-                stop_group(&mut child);
-                let _ = child.wait();
-                return Err(Failure::TimedOut {
-                    after: timeout,
-                    tail: tail(log, 10),
-                });
-            }
-            Ok(None) => std::thread::sleep(Duration::from_millis(20)),
-            Err(e) => return Err(Failure::Spawn(e.to_string())),
-        }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn placeholders_are_substituted_in_one_pass() {
+        let v = [
+            ("{task}", "/w/{estimate}/task"),
+            ("{estimate}", "/o/{task}.parquet"),
+        ];
+        assert_eq!(substitute("{task}", &v), "/w/{estimate}/task");
+        assert_eq!(
+            substitute("--out={estimate},{task}", &v),
+            "--out=/o/{task}.parquet,/w/{estimate}/task"
+        );
+        assert_eq!(substitute("{tas}k {}", &v), "{tas}k {}");
     }
 }

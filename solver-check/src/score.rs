@@ -1,7 +1,7 @@
 //! `loadloom score`: an estimate against a dataset's truth, per appliance,
 //! per conductor and overall, as a table, JSON (`loadloom-score/1`) or Markdown.
 
-use crate::align::{plan_from, Plan, TimeScan};
+use crate::align::{exact_cover, plan_from, Plan, TimeScan};
 use crate::dataset::{Dataset, DatasetError};
 use crate::estimate::{open_estimate, rules, values_check};
 use crate::metrics::{Acc, Scores};
@@ -44,9 +44,6 @@ pub struct Options {
     pub partial: bool,
     /// On-thresholds (W) replacing the manifest's.
     pub thresholds: Vec<(String, f64)>,
-    /// Score only truth rows `first .. first + rows` (the test period of a
-    /// round trip).
-    pub window: Option<(usize, usize)>,
 }
 
 pub struct ApplianceReport {
@@ -137,6 +134,7 @@ const BLOCK: usize = 8192;
 /// Scores `estimate` against the dataset in `dataset`, streaming both.
 pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, ScoreError> {
     let ds = Dataset::open(dataset)?;
+    ds.verify_truth()?;
     let ef = open_estimate(estimate, &ds, opts.partial)?;
     let dt = (ds.interval_s * 1000.0).round() as i64;
     let t0 = ds.manifest["time"]["start_utc_ms"]
@@ -153,6 +151,19 @@ pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, 
     while let Some(b) = st.next_batch()? {
         scan.feed(estimate, b.first, &b.time_ms)?;
     }
+    // Every row of the dataset is scored, no other: an estimate of other
+    // times (training, say) or of part of the period gets no score.
+    let de = scan.spacing.unwrap_or(dt);
+    exact_cover(
+        estimate,
+        scan.first,
+        de,
+        scan.rows,
+        t0,
+        dt,
+        ds.rows as usize,
+        &ds.timezone,
+    )?;
     let plan = plan_from(
         estimate,
         scan.first,

@@ -6,9 +6,52 @@ use arrow_array::{ArrayRef, Float64Array, RecordBatch, TimestampMillisecondArray
 use arrow_schema::{DataType, Field, Schema, TimeUnit};
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 use parquet::arrow::ArrowWriter;
+use sha2::{Digest, Sha256};
 use std::io::{self, Write};
 use std::path::Path;
 use std::sync::Arc;
+
+/// Creates `path` as a new file: whatever is there (a file, or a symbolic
+/// link planted to send our writes elsewhere) is removed first, and the
+/// file is opened create-new and without following links, so a write can
+/// never land outside the folder.
+pub fn create_fresh(path: &Path) -> io::Result<std::fs::File> {
+    match std::fs::remove_file(path) {
+        Err(e) if e.kind() != io::ErrorKind::NotFound => return Err(e),
+        _ => {}
+    }
+    let mut o = std::fs::OpenOptions::new();
+    o.write(true).create_new(true);
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::OpenOptionsExt;
+        o.custom_flags(libc::O_NOFOLLOW);
+    }
+    o.open(path)
+}
+
+/// A writer that hashes (sha256) and counts what passes through it; the
+/// tally is shared, so it can be read once the Parquet writer has closed.
+struct Hashing<W: Write> {
+    inner: W,
+    tally: Arc<std::sync::Mutex<(Sha256, u64)>>,
+}
+
+impl<W: Write> Write for Hashing<W> {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        let n = self.inner.write(buf)?;
+        let mut t = self
+            .tally
+            .lock()
+            .map_err(|_| io::Error::other("hash poisoned"))?;
+        t.0.update(&buf[..n]);
+        t.1 += n as u64;
+        Ok(n)
+    }
+    fn flush(&mut self) -> io::Result<()> {
+        self.inner.flush()
+    }
+}
 
 fn io_err(e: impl std::fmt::Display) -> io::Error {
     io::Error::other(e.to_string())
@@ -16,15 +59,26 @@ fn io_err(e: impl std::fmt::Display) -> io::Error {
 
 /// Copies rows `from..to` of a Parquet table to `dst`, schema and units kept.
 pub fn copy_rows(src: &Path, dst: &Path, from: usize, to: usize) -> io::Result<usize> {
+    copy_rows_hashed(src, dst, from, to).map(|(rows, _, _)| rows)
+}
+
+/// As [`copy_rows`], also returning the sha256 (hex) and size of what was
+/// written, hashed on the way out (no second read).
+pub fn copy_rows_hashed(
+    src: &Path,
+    dst: &Path,
+    from: usize,
+    to: usize,
+) -> io::Result<(usize, String, u64)> {
     let b = ParquetRecordBatchReaderBuilder::try_new(std::fs::File::open(src)?).map_err(io_err)?;
     let schema = b.schema().clone();
     let reader = b.with_batch_size(1 << 16).build().map_err(io_err)?;
-    let mut w = ArrowWriter::try_new(
-        std::io::BufWriter::new(std::fs::File::create(dst)?),
-        schema,
-        None,
-    )
-    .map_err(io_err)?;
+    let tally = Arc::new(std::sync::Mutex::new((Sha256::new(), 0u64)));
+    let out = Hashing {
+        inner: std::io::BufWriter::new(create_fresh(dst)?),
+        tally: tally.clone(),
+    };
+    let mut w = ArrowWriter::try_new(out, schema, None).map_err(io_err)?;
     let mut row = 0;
     let mut written = 0;
     for batch in reader {
@@ -40,8 +94,11 @@ pub fn copy_rows(src: &Path, dst: &Path, from: usize, to: usize) -> io::Result<u
             break;
         }
     }
+    // Closing flushes the buffer through the hashing writer, then drops it.
     w.close().map_err(io_err)?;
-    Ok(written)
+    let (hash, bytes) = std::mem::take(&mut *tally.lock().map_err(|_| io_err("hash poisoned"))?);
+    let hex = hash.finalize().iter().map(|b| format!("{b:02x}")).collect();
+    Ok((written, hex, bytes))
 }
 
 /// A column of an estimate, produced row by row (so a month at 1 s is never
@@ -57,7 +114,7 @@ pub fn write_estimate(
 ) -> io::Result<()> {
     let tmp = path.with_extension("partial");
     if path.extension().is_some_and(|e| e == "csv") {
-        let mut f = std::io::BufWriter::new(std::fs::File::create(&tmp)?);
+        let mut f = std::io::BufWriter::new(create_fresh(&tmp)?);
         let tzz = jiff::tz::TimeZone::get(tz).map_err(io_err)?;
         write!(f, "time")?;
         for (n, _) in cols {
@@ -86,8 +143,8 @@ pub fn write_estimate(
                 .map(|(n, _)| Field::new(n, DataType::Float64, false)),
         );
         let schema = Arc::new(Schema::new(fields));
-        let mut w = ArrowWriter::try_new(std::fs::File::create(&tmp)?, schema.clone(), None)
-            .map_err(io_err)?;
+        let mut w =
+            ArrowWriter::try_new(create_fresh(&tmp)?, schema.clone(), None).map_err(io_err)?;
         let step = 1 << 16;
         let mut a = 0;
         while a < time_ms.len() {

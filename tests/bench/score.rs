@@ -77,7 +77,6 @@ fn main() {
         let opts = solver_check::score::Options {
             partial: false,
             thresholds: vec![],
-            window: None,
         };
         let t = Instant::now();
         let r = solver_check::score::score(Path::new(&args[i + 1]), Path::new(&args[i + 2]), &opts)

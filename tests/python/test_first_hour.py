@@ -32,4 +32,4 @@ def test_the_first_hour_runs_as_written(tmp_path):
         else:
             p = subprocess.run([sys.executable, "-c", code], cwd=cwd, env=env, capture_output=True, text=True)
         assert p.returncode == 0, f"block {k} ({kind}) failed:\n{code}\n--- stdout\n{p.stdout}\n--- stderr\n{p.stderr}"
-    assert (cwd / "cottage.svg").exists() and (cwd / "out" / "cottage-roundtrip" / "estimate.parquet").exists()
+    assert (cwd / "cottage.svg").exists() and (cwd / "out" / "cottage-roundtrip" / "solver" / "estimate.parquet").exists()
