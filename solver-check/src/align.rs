@@ -212,7 +212,12 @@ pub fn exact_cover(
     };
     let e_end = e0 + est_rows as i64 * de;
     if e0 >= t_end || e_end <= t0 {
-        return Err(table_err(path, Some("time"), Some(0), format!("missing time {}: the estimate's times ({} to {}) do not overlap the scored period {period}", at(t0), at(e0), at(e_end)), help));
+        let first = if e0 < t0 {
+            format!("extra time {}", at(e0))
+        } else {
+            format!("missing time {}", at(t0))
+        };
+        return Err(table_err(path, Some("time"), Some(0), format!("{first}: the estimate's times ({} to {}) do not overlap the scored period {period}", at(e0), at(e_end)), help));
     }
     if e0 < t0 {
         return Err(table_err(
