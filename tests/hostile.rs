@@ -376,3 +376,31 @@ fn validate_warns_when_the_coincident_peak_exceeds_the_service() {
     assert!(!String::from_utf8_lossy(&o.stdout).contains("warning:"));
     let _ = std::fs::remove_dir_all(&d);
 }
+
+#[test]
+fn a_start_with_an_offset_or_in_a_clock_change_is_refused() {
+    let from = "start = \"2027-03-10T00:00\"";
+    for (name, to, needle) in [
+        (
+            "offset",
+            "start = \"2027-03-10T00:00+05:00\"",
+            "carries a UTC offset",
+        ),
+        (
+            "zulu",
+            "start = \"2027-03-10T00:00Z\"",
+            "carries a UTC offset",
+        ),
+        (
+            "toml-offset",
+            "start = 2027-03-10T00:00:00-06:00",
+            "carries a UTC offset",
+        ),
+        // America/Chicago skips 02:00-03:00 on 14 March 2027 and repeats
+        // 01:00-02:00 on 7 November 2027 (US rule since 2007, from memory).
+        ("gap", "start = \"2027-03-14T02:30\"", "daylight-saving gap"),
+        ("fold", "start = \"2027-11-07T01:30\"", "repeat it"),
+    ] {
+        assert_refused(name, from, to, needle);
+    }
+}

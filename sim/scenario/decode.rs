@@ -420,6 +420,65 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
     })
 }
 
+/// Whether a date-time's time part carries a UTC offset or `Z`.
+fn has_offset(text: &str) -> bool {
+    let time = text.split_once(['T', 't', ' ']).map_or("", |(_, t)| t);
+    time.contains(['+', '-', 'Z', 'z'])
+}
+
+/// `start` is a local time in the home's zone, whose rules give its UTC
+/// offset: a written offset (`+05:00`) or `Z` would either repeat those rules
+/// or contradict them, so both are refused alike.
+fn refuse_offset(ctx: &Ctx, n: &Node, start: &str, zone: &str) -> Result<(), Error> {
+    if !has_offset(start) {
+        return Ok(());
+    }
+    Err(ctx.err(
+        n,
+        "run.start",
+        format!("\"{start}\" carries a UTC offset; `start` is the local time in the home's time zone ({zone}), whose rules give the offset"),
+        "write the local time without an offset or Z, e.g. \"2027-01-04T00:00\"",
+    ))
+}
+
+/// The local start placed in the home's zone; a time that the zone skips
+/// (a daylight-saving gap) or shows twice (the hour repeated in autumn) is
+/// refused, since the run would otherwise start at a time not asked for.
+fn place_start(
+    ctx: &Ctx,
+    n: &Node,
+    civil: jiff::civil::DateTime,
+    zone: &str,
+) -> Result<jiff::Zoned, Error> {
+    let tz = jiff::tz::TimeZone::get(zone).expect("checked in home");
+    let amb = tz.to_ambiguous_zoned(civil);
+    let why = match amb.offset() {
+        jiff::tz::AmbiguousOffset::Unambiguous { .. } => None,
+        jiff::tz::AmbiguousOffset::Gap { .. } => {
+            Some("does not exist there: the clocks skip it (a daylight-saving gap)")
+        }
+        jiff::tz::AmbiguousOffset::Fold { .. } => {
+            Some("happens twice there: the clocks repeat it (the end of daylight saving)")
+        }
+    };
+    match why {
+        None => amb.unambiguous().map_err(|e| {
+            ctx.err(
+                n,
+                "run.start",
+                format!("cannot place {civil} in {zone}: {e}"),
+                "choose another start time",
+            )
+        }),
+        Some(why) => Err(ctx.err(
+            n,
+            "run.start",
+            format!("the local time {civil} in {zone} {why}"),
+            "start an hour earlier or later, or at midnight",
+        )),
+    }
+}
+
 fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
     let t = ctx.table(node, "run")?;
     let start_node = t.req("start", "the local start time, e.g. \"2027-01-04T00:00\"")?;
@@ -434,6 +493,7 @@ fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
             ))
         }
     };
+    refuse_offset(ctx, start_node, &start_local, &home.timezone)?;
     let civil: jiff::civil::DateTime = start_local.parse().map_err(|e| {
         ctx.err(
             start_node,
@@ -442,15 +502,7 @@ fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
             "write \"YYYY-MM-DDTHH:MM\", in the home's time zone, without an offset",
         )
     })?;
-    let tz = jiff::tz::TimeZone::get(&home.timezone).expect("checked in home");
-    let zoned = civil.to_zoned(tz).map_err(|e| {
-        ctx.err(
-            start_node,
-            "run.start",
-            format!("cannot place {start_local} in {}: {e}", home.timezone),
-            "choose another start time",
-        )
-    })?;
+    let zoned = place_start(ctx, start_node, civil, &home.timezone)?;
     let start_utc_ms = zoned.timestamp().as_millisecond();
     let step_s = t.positive("step", Kind::Duration)?.unwrap_or(1.0);
     let step_node = t.opt("step").unwrap_or(node);
@@ -540,6 +592,9 @@ pub fn place_window(
     run: &Run,
     home: &Home,
 ) -> Result<WaveWindow, String> {
+    if has_offset(start_local) {
+        return Err(format!("\"{start_local}\" carries a UTC offset; a window starts at a local time in the home's time zone ({}), without an offset or Z", home.timezone));
+    }
     let civil: jiff::civil::DateTime = start_local
         .parse()
         .map_err(|e| format!("\"{start_local}\" is not a local date-time ({e})"))?;
