@@ -1004,6 +1004,11 @@ fn main() -> ExitCode {
                         eprintln!("{d}\n  = nothing was written");
                         ExitCode::from(BAD_INPUT)
                     }
+                    // A setting the run cannot use (LOADLOOM_THREADS).
+                    None if e.kind() == std::io::ErrorKind::InvalidInput => {
+                        eprintln!("error: {e}\n  = nothing was written");
+                        ExitCode::from(BAD_INPUT)
+                    }
                     None => {
                         eprintln!("error: writing the dataset under {} failed: {e}\n  = help: check free space and permissions; nothing was left behind", out.display());
                         ExitCode::from(FAILED)

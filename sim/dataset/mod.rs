@@ -6,6 +6,7 @@
 pub mod finite;
 pub mod folder;
 pub mod manifest;
+pub mod parquet;
 pub mod schema;
 pub mod sink;
 pub mod tables;
@@ -13,6 +14,7 @@ pub mod tables;
 use crate::behaviour::timelines;
 use crate::scenario::Scenario;
 use crate::simulate::{simulate_with, Outcome};
+use arrow_array::RecordBatch;
 pub use sink::Format;
 use sink::{Sink, Values};
 use std::io;
@@ -72,6 +74,40 @@ fn replace_dir(tmp: &Path, dest: &Path) -> io::Result<()> {
     }
 }
 
+/// Threads that encode one home's tables: `LOADLOOM_THREADS` if set, else
+/// the machine's cores. The bytes written do not depend on it.
+pub fn threads() -> io::Result<usize> {
+    match std::env::var("LOADLOOM_THREADS") {
+        Ok(v) => v
+            .trim()
+            .parse::<usize>()
+            .ok()
+            .filter(|n| (1..=1024).contains(n))
+            .ok_or_else(|| {
+                io::Error::new(
+                    io::ErrorKind::InvalidInput,
+                    format!("LOADLOOM_THREADS={v:?} is not a number of threads from 1 to 1024; unset it to use every core"),
+                )
+            }),
+        Err(_) => Ok(std::thread::available_parallelism().map_or(1, |n| n.get())),
+    }
+}
+
+/// Writes each chunk's meters and truth batches as they arrive, then
+/// finishes both files.
+fn encode_rows(
+    rx: std::sync::mpsc::Receiver<[RecordBatch; 2]>,
+    mut meters: Sink,
+    mut truth: Sink,
+    threads: usize,
+) -> io::Result<()> {
+    for [m, t] in rx {
+        sink::write_all(vec![(&mut meters, m), (&mut truth, t)], threads)?;
+    }
+    meters.close(threads)?;
+    truth.close(threads)
+}
+
 fn write_into(
     s: &Scenario,
     dir: &Path,
@@ -83,47 +119,60 @@ fn write_into(
     let tz = &s.home.timezone;
     let intervals = s.intervals();
     let tl = timelines(s, s.run.steps());
-    let mut meters = Sink::create(
+    let meters = Sink::create(
         &dir.join(format!("meters.{ext}")),
         format,
         tables.meters_schema.clone(),
         tz,
         Values::Noisy,
     )?;
-    let mut truth = Sink::create(
+    let truth = Sink::create(
         &dir.join(format!("truth.{ext}")),
         format,
         tables.truth_schema.clone(),
         tz,
         Values::Stepwise,
     )?;
-    let mut meter_rows = 0u64;
     let mut recorder = if s.waveforms.windows.is_empty() {
         None
     } else {
         Some(crate::waveform::Recorder::new(s, dir)?)
     };
-    let outcome = simulate_with(
-        s,
-        &tl,
-        intervals,
-        CHUNK_ROWS,
-        |chunk| -> io::Result<()> {
-            let batch = tables.meters_batch(chunk);
-            meter_rows += batch.num_rows() as u64;
-            meters.write(&batch)?;
-            truth.write(&tables.truth_batch(chunk))?;
-            progress((chunk.first_row + chunk.readings.rows() as u64) as f64 / intervals as f64);
-            Ok(())
-        },
-        recorder.as_mut(),
-    )?;
+    let threads = threads()?;
+    // The simulation runs on this thread; a second one takes each chunk's
+    // tables and encodes their columns on `threads` threads meanwhile.
+    let (outcome, meter_rows) = std::thread::scope(|sc| -> io::Result<(Outcome, u64)> {
+        let (tx, rx) = std::sync::mpsc::sync_channel::<[RecordBatch; 2]>(2);
+        let writer = sc.spawn(move || encode_rows(rx, meters, truth, threads));
+        let mut meter_rows = 0u64;
+        let simulated = simulate_with(
+            s,
+            &tl,
+            intervals,
+            CHUNK_ROWS,
+            |chunk| -> io::Result<()> {
+                let batch = tables.meters_batch(chunk);
+                meter_rows += batch.num_rows() as u64;
+                tx.send([batch, tables.truth_batch(chunk)])
+                    .map_err(|_| io::Error::other("the table writer stopped"))?;
+                progress(
+                    (chunk.first_row + chunk.readings.rows() as u64) as f64 / intervals as f64,
+                );
+                Ok(())
+            },
+            recorder.as_mut(),
+        );
+        drop(tx);
+        // The writer's error first: when sending failed, it is the cause.
+        writer
+            .join()
+            .unwrap_or_else(|panic| std::panic::resume_unwind(panic))?;
+        Ok((simulated?, meter_rows))
+    })?;
     let waves = match recorder {
         Some(r) => r.finish(s)?,
         None => Vec::new(),
     };
-    meters.close()?;
-    truth.close()?;
     let mut events = Sink::create(
         &dir.join(format!("events.{ext}")),
         format,
@@ -131,8 +180,11 @@ fn write_into(
         tz,
         Values::Stepwise,
     )?;
-    events.write(&tables.events_batch(s, &outcome.events, s.run.step_s))?;
-    events.close()?;
+    events.write(
+        &tables.events_batch(s, &outcome.events, s.run.step_s),
+        threads,
+    )?;
+    events.close(threads)?;
     let files = [
         ("meters", meter_rows),
         ("truth", intervals),

@@ -5,7 +5,6 @@ use arrow_array::cast::AsArray;
 use arrow_array::types::{Float32Type, Float64Type, Int16Type, TimestampMillisecondType};
 use arrow_array::{Array, RecordBatch};
 use arrow_schema::{DataType, Schema};
-use parquet::arrow::ArrowWriter;
 use parquet::basic::{Compression, Encoding, ZstdLevel};
 use parquet::file::properties::WriterProperties;
 use parquet::schema::types::ColumnPath;
@@ -30,7 +29,7 @@ impl Format {
 }
 
 pub enum Sink {
-    Parquet(Box<ArrowWriter<BufWriter<File>>>),
+    Parquet(Box<super::parquet::Table>),
     Csv {
         out: BufWriter<File>,
         tz: jiff::tz::TimeZone,
@@ -53,9 +52,9 @@ impl Sink {
         match format {
             Format::Parquet => {
                 let props = writer_properties(&schema, values);
-                Ok(Sink::Parquet(Box::new(
-                    ArrowWriter::try_new(file, schema, Some(props)).map_err(to_io)?,
-                )))
+                Ok(Sink::Parquet(Box::new(super::parquet::Table::create(
+                    file, schema, props,
+                )?)))
             }
             Format::Csv => {
                 let mut out = file;
@@ -69,27 +68,38 @@ impl Sink {
         }
     }
 
-    pub fn write(&mut self, batch: &RecordBatch) -> io::Result<()> {
-        super::finite::check(batch)?;
-        match self {
-            Sink::Parquet(w) => w.write(batch).map_err(to_io),
-            Sink::Csv { out, tz } => write_csv(out, tz, batch),
-        }
+    /// Writes `batch`; a Parquet table's columns are encoded on `threads`
+    /// threads.
+    pub fn write(&mut self, batch: &RecordBatch, threads: usize) -> io::Result<()> {
+        write_all(vec![(self, batch.clone())], threads)
     }
 
-    pub fn close(self) -> io::Result<()> {
+    /// Finishes the file (Parquet: the last row group and the footer) and
+    /// syncs it.
+    pub fn close(self, threads: usize) -> io::Result<()> {
         match self {
-            Sink::Parquet(w) => {
-                let mut inner = w.into_inner().map_err(to_io)?;
-                inner.flush()?;
-                inner.get_ref().sync_all()
-            }
+            Sink::Parquet(t) => t.close(threads),
             Sink::Csv { mut out, .. } => {
                 out.flush()?;
                 out.get_ref().sync_all()
             }
         }
     }
+}
+
+/// Writes each batch to its sink: the columns of all the Parquet tables
+/// among them are encoded together on `threads` threads; CSV is written
+/// as text, one sink after the other.
+pub fn write_all(writes: Vec<(&mut Sink, RecordBatch)>, threads: usize) -> io::Result<()> {
+    let mut tables = Vec::new();
+    for (sink, batch) in writes {
+        super::finite::check(&batch)?;
+        match sink {
+            Sink::Parquet(t) => tables.push((&mut **t, batch)),
+            Sink::Csv { out, tz } => write_csv(out, tz, &batch)?,
+        }
+    }
+    super::parquet::write(&mut tables, threads)
 }
 
 /// How a table's values vary, which decides its Parquet page size.

@@ -4,11 +4,12 @@
 use super::schema::{self, Col};
 use crate::scenario::Scenario;
 use crate::simulate::{Chunk, Event};
-use arrow_array::types::Int16Type;
+use arrow_array::types::{Float32Type, Float64Type, Int16Type};
 use arrow_array::{
-    ArrayRef, DictionaryArray, Float32Array, Float64Array, Int16Array, RecordBatch, StringArray,
-    TimestampMillisecondArray,
+    ArrayRef, ArrowPrimitiveType, DictionaryArray, Float32Array, Float64Array, Int16Array,
+    PrimitiveArray, RecordBatch, StringArray, TimestampMillisecondArray,
 };
+use arrow_buffer::NullBuffer;
 use arrow_schema::Schema;
 use std::sync::Arc;
 
@@ -34,25 +35,49 @@ fn f32s(v: &[f32]) -> ArrayRef {
     Arc::new(Float32Array::from(v.to_vec()))
 }
 
-/// Readings: NaN stands for null.
-fn f32_readings(v: &[f32], keep: &[bool]) -> ArrayRef {
-    Arc::new(
-        v.iter()
-            .zip(keep)
+/// Readings: NaN stands for null. `keep` (when rows are dropped) says
+/// which rows stay. Built from the slice in one pass, with a null mask only
+/// when there is a null (this runs on the simulation's thread).
+fn readings<T: ArrowPrimitiveType>(v: &[T::Native], keep: Option<&[bool]>) -> ArrayRef
+where
+    T::Native: Nan,
+{
+    let mut values: Vec<T::Native> = match keep {
+        None => v.to_vec(),
+        Some(k) => v
+            .iter()
+            .zip(k)
             .filter(|(_, k)| **k)
-            .map(|(x, _)| (!x.is_nan()).then_some(*x))
-            .collect::<Float32Array>(),
-    )
+            .map(|(x, _)| *x)
+            .collect(),
+    };
+    let nulls = values.iter().any(|x| x.nan()).then(|| {
+        let mask = NullBuffer::from_iter(values.iter().map(|x| !x.nan()));
+        // A null's slot holds zero, as an Arrow builder leaves it.
+        values
+            .iter_mut()
+            .filter(|x| x.nan())
+            .for_each(|x| *x = Default::default());
+        mask
+    });
+    Arc::new(PrimitiveArray::<T>::new(values.into(), nulls))
 }
 
-fn f64_readings(v: &[f64], keep: &[bool]) -> ArrayRef {
-    Arc::new(
-        v.iter()
-            .zip(keep)
-            .filter(|(_, k)| **k)
-            .map(|(x, _)| (!x.is_nan()).then_some(*x))
-            .collect::<Float64Array>(),
-    )
+/// The one float test [`readings`] needs, for f32 and f64.
+trait Nan: Copy + Default {
+    fn nan(self) -> bool;
+}
+
+impl Nan for f32 {
+    fn nan(self) -> bool {
+        self.is_nan()
+    }
+}
+
+impl Nan for f64 {
+    fn nan(self) -> bool {
+        self.is_nan()
+    }
 }
 
 impl Tables {
@@ -123,31 +148,27 @@ impl Tables {
     pub fn meters_batch(&self, c: &Chunk) -> RecordBatch {
         let r = &c.readings;
         // Rows lost to a dropout in the "missing" form are left out.
-        let keep: Vec<bool> = if self.drop_rows {
-            r.present.clone()
-        } else {
-            vec![true; r.rows()]
-        };
+        let keep = self.drop_rows.then_some(r.present.as_slice());
         let times = (0..r.rows() as u64)
-            .filter(|&i| keep[i as usize])
+            .filter(|&i| keep.is_none_or(|k| k[i as usize]))
             .map(|i| self.meter_time_ms(c.first_row + i));
         let mut cols = vec![self.times(times)];
         for x in 0..r.line_p.len() {
             cols.extend([
-                f32_readings(&r.line_p[x], &keep),
-                f32_readings(&r.line_q[x], &keep),
-                f32_readings(&r.line_v[x], &keep),
-                f32_readings(&r.line_i[x], &keep),
+                readings::<Float32Type>(&r.line_p[x], keep),
+                readings::<Float32Type>(&r.line_q[x], keep),
+                readings::<Float32Type>(&r.line_v[x], keep),
+                readings::<Float32Type>(&r.line_i[x], keep),
             ]);
         }
         cols.extend([
-            f32_readings(&r.n_i, &keep),
-            f32_readings(&r.total_p, &keep),
-            f32_readings(&r.total_q, &keep),
+            readings::<Float32Type>(&r.n_i, keep),
+            readings::<Float32Type>(&r.total_p, keep),
+            readings::<Float32Type>(&r.total_q, keep),
         ]);
         if self.meters.iter().any(|c| c.name.ends_with("_energy_wh")) {
             for e in &r.energy {
-                cols.push(f64_readings(e, &keep));
+                cols.push(readings::<Float64Type>(e, keep));
             }
         }
         RecordBatch::try_new(self.meters_schema.clone(), cols)

@@ -77,6 +77,7 @@ fn floor(s: &Scenario, out: &Path) {
     .unwrap();
     let mut chunk = kept.unwrap();
     let started = Instant::now();
+    let threads = dataset::threads().unwrap();
     std::fs::create_dir_all(out).unwrap();
     let tables = Tables::new(s);
     let tz = &s.home.timezone;
@@ -129,12 +130,18 @@ fn floor(s: &Scenario, out: &Path) {
                 .for_each(|v| v.truncate(n));
             chunk.truth.app_state.iter_mut().for_each(|v| v.truncate(n));
         }
-        meters.write(&tables.meters_batch(&chunk)).unwrap();
-        truth.write(&tables.truth_batch(&chunk)).unwrap();
+        loadloom::dataset::sink::write_all(
+            vec![
+                (&mut meters, tables.meters_batch(&chunk)),
+                (&mut truth, tables.truth_batch(&chunk)),
+            ],
+            threads,
+        )
+        .unwrap();
         chunk.first_row += n as u64;
     }
-    meters.close().unwrap();
-    truth.close().unwrap();
+    meters.close(threads).unwrap();
+    truth.close(threads).unwrap();
     let mut events = Sink::create(
         &out.join("events.parquet"),
         Format::Parquet,
@@ -144,9 +151,12 @@ fn floor(s: &Scenario, out: &Path) {
     )
     .unwrap();
     events
-        .write(&tables.events_batch(s, &outcome.events, s.run.step_s))
+        .write(
+            &tables.events_batch(s, &outcome.events, s.run.step_s),
+            threads,
+        )
         .unwrap();
-    events.close().unwrap();
+    events.close(threads).unwrap();
     eprintln!(
         "floor: precomputing took no part in the {:.1} s",
         started.elapsed().as_secs_f64()

@@ -1,0 +1,160 @@
+//! Parquet tables whose columns are encoded in parallel.
+//!
+//! Each column of the open row group has its own `ArrowColumnWriter` (the
+//! parquet crate's low-level column API); every batch is cut at row-group
+//! boundaries and each column's slice goes to that column's writer, on
+//! whichever thread is free. A writer sees the same slices in the same order
+//! whatever the number of threads, and finished column chunks are spliced
+//! into the file in column order, so the bytes do not depend on it.
+
+use super::sink::ROW_GROUP_ROWS;
+use arrow_array::{ArrayRef, RecordBatch};
+use arrow_schema::{FieldRef, SchemaRef};
+use parquet::arrow::arrow_writer::{compute_leaves, ArrowColumnWriter, ArrowRowGroupWriterFactory};
+use parquet::arrow::ArrowWriter;
+use parquet::file::properties::WriterProperties;
+use parquet::file::writer::SerializedFileWriter;
+use std::fs::File;
+use std::io::{self, BufWriter, Write};
+use std::sync::Mutex;
+
+fn to_io(e: impl std::fmt::Display) -> io::Error {
+    io::Error::other(e.to_string())
+}
+
+/// One Parquet file being written.
+pub struct Table {
+    file: SerializedFileWriter<BufWriter<File>>,
+    factory: ArrowRowGroupWriterFactory,
+    schema: SchemaRef,
+    /// The open row group's column writers; empty when none is open.
+    open: Vec<ArrowColumnWriter>,
+    row_groups: usize,
+    /// Rows in the open row group.
+    rows: usize,
+}
+
+impl Table {
+    /// Starts the file (its Arrow schema goes into the footer's metadata).
+    pub fn create(
+        out: BufWriter<File>,
+        schema: SchemaRef,
+        props: WriterProperties,
+    ) -> io::Result<Table> {
+        let writer = ArrowWriter::try_new(out, schema.clone(), Some(props)).map_err(to_io)?;
+        let (file, factory) = writer.into_serialized_writer().map_err(to_io)?;
+        Ok(Table {
+            file,
+            factory,
+            schema,
+            open: Vec::new(),
+            row_groups: 0,
+            rows: 0,
+        })
+    }
+
+    /// Closes the open row group: its column chunks are finished on
+    /// `threads` threads and appended in column order.
+    fn flush(&mut self, threads: usize) -> io::Result<()> {
+        let writers = std::mem::take(&mut self.open);
+        let chunks = parallel(writers, threads, |w| w.close());
+        let mut group = self.file.next_row_group().map_err(to_io)?;
+        for chunk in chunks {
+            chunk
+                .map_err(to_io)?
+                .append_to_row_group(&mut group)
+                .map_err(to_io)?;
+        }
+        group.close().map_err(to_io)?;
+        self.row_groups += 1;
+        self.rows = 0;
+        Ok(())
+    }
+
+    /// Writes the last row group and the footer, and syncs the file.
+    pub fn close(mut self, threads: usize) -> io::Result<()> {
+        if self.rows > 0 {
+            self.flush(threads)?;
+        }
+        let mut out = self.file.into_inner().map_err(to_io)?;
+        out.flush()?;
+        out.get_ref().sync_all()
+    }
+}
+
+/// One column's slice for one column writer.
+type Task<'a> = (&'a mut ArrowColumnWriter, FieldRef, ArrayRef);
+
+/// Writes each batch to its table; the columns of all of them are encoded
+/// on `threads` threads.
+pub fn write(tables: &mut [(&mut Table, RecordBatch)], threads: usize) -> io::Result<()> {
+    loop {
+        // A round: each table takes what fits in its open row group.
+        let mut tasks: Vec<Task> = Vec::new();
+        for (t, batch) in tables.iter_mut() {
+            let n = batch.num_rows().min(ROW_GROUP_ROWS - t.rows);
+            if n == 0 {
+                continue;
+            }
+            let piece = batch.slice(0, n);
+            *batch = batch.slice(n, batch.num_rows() - n);
+            if t.open.is_empty() {
+                t.open = t
+                    .factory
+                    .create_column_writers(t.row_groups)
+                    .map_err(to_io)?;
+            }
+            t.rows += n;
+            let fields = t.schema.fields().iter().cloned();
+            for ((w, f), c) in t.open.iter_mut().zip(fields).zip(piece.columns()) {
+                tasks.push((w, f, c.clone()));
+            }
+        }
+        if tasks.is_empty() {
+            return Ok(());
+        }
+        let done = parallel(tasks, threads, |(w, f, c)| -> parquet::errors::Result<()> {
+            for leaf in compute_leaves(&f, &c)? {
+                w.write(&leaf)?;
+            }
+            Ok(())
+        });
+        done.into_iter().collect::<Result<(), _>>().map_err(to_io)?;
+        for (t, _) in tables.iter_mut() {
+            if t.rows == ROW_GROUP_ROWS {
+                t.flush(threads)?;
+            }
+        }
+    }
+}
+
+/// `f` applied to every item on `threads` threads (the caller's thread when
+/// 1); results in the order of the items.
+pub fn parallel<T: Send, R: Send>(
+    items: Vec<T>,
+    threads: usize,
+    f: impl Fn(T) -> R + Sync,
+) -> Vec<R> {
+    let n = items.len();
+    if threads <= 1 || n <= 1 {
+        return items.into_iter().map(f).collect();
+    }
+    let queue = Mutex::new(items.into_iter().enumerate());
+    let results: Mutex<Vec<Option<R>>> = Mutex::new((0..n).map(|_| None).collect());
+    std::thread::scope(|s| {
+        for _ in 0..threads.min(n) {
+            s.spawn(|| loop {
+                let next = queue.lock().expect("no worker panics").next();
+                let Some((i, item)) = next else { break };
+                let r = f(item);
+                results.lock().expect("no worker panics")[i] = Some(r);
+            });
+        }
+    });
+    results
+        .into_inner()
+        .expect("no worker panics")
+        .into_iter()
+        .map(|r| r.expect("every item ran"))
+        .collect()
+}
