@@ -13,6 +13,7 @@ pub mod difficulty;
 pub mod electrical;
 pub mod fleet;
 pub mod meter;
+pub mod progress;
 pub mod rng;
 pub mod roundtrip;
 pub mod scenario;

@@ -3,9 +3,9 @@
 use clap::{Parser, Subcommand, ValueEnum};
 use loadloom::dataset::{self, Format};
 use loadloom::electrical::settle::Diverged;
+use loadloom::progress::Progress;
 use loadloom::scenario::{self, Scenario};
 use loadloom::units::{parse_quantity, Kind};
-use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -365,10 +365,11 @@ fn audit_matrix(
     let mut base: Option<Vec<loadloom::audit::Case>> = None;
     for &i in &chosen {
         let v = &VARIANTS[i];
+        let bar = Progress::messages();
         let cases = run_matrix(&homes, &opts, v, &mut |m| {
-            eprint!("\r\x1b[2K{}: {m}", v.name)
+            bar.say(format!("{}: {m}", v.name))
         });
-        eprint!("\r\x1b[2K");
+        bar.finish();
         let sc = score(&cases);
         let same = base.as_ref().map(|b| {
             b.iter()
@@ -527,34 +528,12 @@ fn main() -> ExitCode {
                     .map(|n| n.get())
                     .unwrap_or(1)
             });
-            let tty = std::io::stderr().is_terminal();
+            let bar = Progress::counter("homes");
             let started = std::time::Instant::now();
-            let last = std::sync::atomic::AtomicU64::new(0);
-            let progress = |done: u64, total: u64| {
-                let el = started.elapsed().as_secs_f64();
-                let rate = done as f64 / el.max(1e-9);
-                let left = (total - done) as f64 / rate.max(1e-9);
-                if tty {
-                    eprint!(
-                        "\r  homes {done}/{total}  {:.2} homes/s  ~{:.0} s left   ",
-                        rate, left
-                    );
-                } else {
-                    // Plain lines when piped: one per tenth of the way.
-                    let tenth = done * 10 / total.max(1);
-                    if last.fetch_max(tenth, std::sync::atomic::Ordering::Relaxed) < tenth {
-                        eprintln!(
-                            "homes {done}/{total} ({:.2} homes/s, ~{:.0} s left)",
-                            rate, left
-                        );
-                    }
-                }
-            };
+            let progress = |done: u64, total: u64| bar.count(done, total);
             match loadloom::fleet::run(&pop, homes, &out, jobs, shard, &progress) {
                 Ok(r) => {
-                    if tty {
-                        eprintln!();
-                    }
+                    bar.finish();
                     println!(
                         "fleet {}: made {} homes, {} already complete (shard {}/{}), in {:.1} s{}",
                         out.display(),
@@ -572,6 +551,7 @@ fn main() -> ExitCode {
                     ExitCode::SUCCESS
                 }
                 Err(m) => {
+                    bar.finish();
                     eprintln!("error: {m}");
                     ExitCode::from(FAILED)
                 }
@@ -730,15 +710,11 @@ fn main() -> ExitCode {
                 },
             };
             if suite {
-                let tty = std::io::stderr().is_terminal();
+                let bar = Progress::messages();
                 let rows = loadloom::roundtrip::suite(&scenarios, &out, &plan, &mut |s, r| {
-                    if tty {
-                        eprint!("\r  {s}: {r}                    ");
-                    }
+                    bar.say(format!("{s}: {r}"))
                 });
-                if tty {
-                    eprintln!();
-                }
+                bar.finish();
                 return match rows {
                     Ok(rows) => {
                         print_report(
@@ -945,25 +921,16 @@ fn main() -> ExitCode {
                 FormatArg::Parquet => Format::Parquet,
                 FormatArg::Csv => Format::Csv,
             };
-            let tty = std::io::stderr().is_terminal() && !quiet && !json;
-            let started = std::time::Instant::now();
-            let mut progress = |f: f64| {
-                if tty {
-                    let el = started.elapsed().as_secs_f64();
-                    let left = if f > 0.0 { el * (1.0 - f) / f } else { 0.0 };
-                    eprint!(
-                        "\r  simulating {:5.1}%  {:6.1} s elapsed, ~{:.0} s left   ",
-                        100.0 * f,
-                        el,
-                        left
-                    );
-                }
+            let bar = if quiet || json {
+                Progress::hidden()
+            } else {
+                Progress::share("simulating")
             };
+            let started = std::time::Instant::now();
+            let mut progress = |f: f64| bar.fraction(f);
             match dataset::write(&s, &out, format, &mut progress) {
                 Ok(w) => {
-                    if tty {
-                        eprintln!();
-                    }
+                    bar.finish();
                     let secs = started.elapsed().as_secs_f64();
                     if quiet {
                         return ExitCode::SUCCESS;
@@ -998,22 +965,25 @@ fn main() -> ExitCode {
                     }
                     ExitCode::SUCCESS
                 }
-                Err(e) => match e.get_ref().and_then(|i| i.downcast_ref::<Diverged>()) {
-                    // Physics with no plausible answer: bad input, said as such.
-                    Some(d) => {
-                        eprintln!("{d}\n  = nothing was written");
-                        ExitCode::from(BAD_INPUT)
+                Err(e) => {
+                    bar.finish();
+                    match e.get_ref().and_then(|i| i.downcast_ref::<Diverged>()) {
+                        // Physics with no plausible answer: bad input, said as such.
+                        Some(d) => {
+                            eprintln!("{d}\n  = nothing was written");
+                            ExitCode::from(BAD_INPUT)
+                        }
+                        // A setting the run cannot use (LOADLOOM_THREADS).
+                        None if e.kind() == std::io::ErrorKind::InvalidInput => {
+                            eprintln!("error: {e}\n  = nothing was written");
+                            ExitCode::from(BAD_INPUT)
+                        }
+                        None => {
+                            eprintln!("error: writing the dataset under {} failed: {e}\n  = help: check free space and permissions; nothing was left behind", out.display());
+                            ExitCode::from(FAILED)
+                        }
                     }
-                    // A setting the run cannot use (LOADLOOM_THREADS).
-                    None if e.kind() == std::io::ErrorKind::InvalidInput => {
-                        eprintln!("error: {e}\n  = nothing was written");
-                        ExitCode::from(BAD_INPUT)
-                    }
-                    None => {
-                        eprintln!("error: writing the dataset under {} failed: {e}\n  = help: check free space and permissions; nothing was left behind", out.display());
-                        ExitCode::from(FAILED)
-                    }
-                },
+                }
             }
         }
     }

@@ -12,7 +12,7 @@
 use crate::electrical::{Network, Terminals, C64};
 use crate::scenario::{Inrush, Scenario, NEUTRAL};
 use serde_json::{json, Value};
-use std::io::{self, BufWriter, Seek, SeekFrom, Write};
+use std::io::{self, BufWriter};
 use std::path::{Path, PathBuf};
 
 struct Window {
@@ -21,7 +21,7 @@ struct Window {
     file: PathBuf,
     name: String,
     start_local: String,
-    out: BufWriter<std::fs::File>,
+    out: WavOut,
     samples: u64,
 }
 
@@ -39,25 +39,16 @@ pub struct Recorder {
     buf: Vec<f32>,
 }
 
-/// RIFF/WAVE header for IEEE float samples (format 3) with a `fact` chunk.
-fn header(out: &mut impl Write, channels: u16, rate: u32, frames: u32) -> io::Result<()> {
-    let data = frames * channels as u32 * 4;
-    out.write_all(b"RIFF")?;
-    out.write_all(&(4 + 26 + 12 + 8 + data).to_le_bytes())?;
-    out.write_all(b"WAVEfmt ")?;
-    out.write_all(&18u32.to_le_bytes())?;
-    out.write_all(&3u16.to_le_bytes())?;
-    out.write_all(&channels.to_le_bytes())?;
-    out.write_all(&rate.to_le_bytes())?;
-    out.write_all(&(rate * channels as u32 * 4).to_le_bytes())?;
-    out.write_all(&(channels * 4).to_le_bytes())?;
-    out.write_all(&32u16.to_le_bytes())?;
-    out.write_all(&0u16.to_le_bytes())?;
-    out.write_all(b"fact")?;
-    out.write_all(&4u32.to_le_bytes())?;
-    out.write_all(&frames.to_le_bytes())?;
-    out.write_all(b"data")?;
-    out.write_all(&data.to_le_bytes())
+/// One WAV file being written: 32-bit IEEE float samples, interleaved, one
+/// channel per conductor quantity (`hound` writes the header and completes
+/// the sizes when finalized).
+type WavOut = hound::WavWriter<BufWriter<std::fs::File>>;
+
+fn wav_error(e: hound::Error) -> io::Error {
+    match e {
+        hound::Error::IoError(e) => e,
+        other => io::Error::other(other.to_string()),
+    }
 }
 
 impl Recorder {
@@ -68,13 +59,14 @@ impl Recorder {
         for (k, w) in s.waveforms.windows.iter().enumerate() {
             let name = format!("waveform-{}.wav", k + 1);
             let file = dir.join(&name);
-            let mut out = BufWriter::with_capacity(1 << 20, std::fs::File::create(&file)?);
-            header(
-                &mut out,
-                (2 * lines + 1) as u16,
-                s.waveforms.rate_hz as u32,
-                0,
-            )?;
+            let spec = hound::WavSpec {
+                channels: (2 * lines + 1) as u16,
+                sample_rate: s.waveforms.rate_hz as u32,
+                bits_per_sample: 32,
+                sample_format: hound::SampleFormat::Float,
+            };
+            let sink = BufWriter::with_capacity(1 << 20, std::fs::File::create(&file)?);
+            let out = hound::WavWriter::new(sink, spec).map_err(wav_error)?;
             let first = (w.offset_s / s.run.step_s).round() as u64;
             windows.push(Window {
                 first,
@@ -204,14 +196,13 @@ impl Recorder {
             // Kirchhoff, sample by sample: the neutral returns the rest.
             self.buf.push((-i_sum / self.scale_i) as f32);
         }
-        let bytes: Vec<u8> = self.buf.iter().flat_map(|x| x.to_le_bytes()).collect();
         for w in self
             .windows
             .iter_mut()
             .filter(|w| step >= w.first && step < w.end)
         {
-            if let Err(err) = w.out.write_all(&bytes) {
-                self.error = Some(err);
+            if let Some(err) = self.buf.iter().find_map(|&x| w.out.write_sample(x).err()) {
+                self.error = Some(wav_error(err));
                 return;
             }
             w.samples += self.per_step as u64;
@@ -233,16 +224,8 @@ impl Recorder {
         names.push(("n_i".into(), "A", self.scale_i));
         let mut out = Vec::new();
         for w in self.windows {
-            let mut f = w.out.into_inner().map_err(|e| e.into_error())?;
-            f.seek(SeekFrom::Start(0))?;
-            header(
-                &mut f,
-                names.len() as u16,
-                self.rate as u32,
-                w.samples as u32,
-            )?;
-            f.sync_all()?;
-            let _ = &w.file;
+            w.out.finalize().map_err(wav_error)?;
+            std::fs::File::open(&w.file)?.sync_all()?;
             out.push((
                 w.name.clone(),
                 json!({
