@@ -96,9 +96,10 @@ enum Command {
         /// Seed of the bootstrap for --against.
         #[arg(long, default_value_t = 0, requires = "against")]
         bootstrap_seed: u64,
-        /// Also draw truth against estimate per appliance, and bars of the
-        /// scores, to this SVG file.
-        #[arg(long, value_name = "FILE.svg", conflicts_with = "against")]
+        /// Also draw truth against estimate per appliance over the busiest
+        /// scored day (local time), and bars of the scores, to this file
+        /// (.svg or .png, by its extension).
+        #[arg(long, value_name = "FILE.svg|FILE.png", conflicts_with = "against")]
         plot: Option<PathBuf>,
     },
     /// Generate a task from a scenario, run a disaggregator on it, score its estimate.
@@ -199,7 +200,8 @@ enum Command {
     Completions { shell: clap_complete::Shell },
     /// Print the man page (roff), generated from the same definition of the flags.
     Man,
-    /// Draw a dataset: per conductor its measured power and each appliance's share.
+    /// Draw a dataset: per conductor its measured power and each appliance's
+    /// share; or, with --monthly, its energy per local month by appliance.
     Plot {
         /// The dataset folder.
         dataset: PathBuf,
@@ -209,8 +211,12 @@ enum Command {
         /// Window end, local time.
         #[arg(long)]
         to: Option<String>,
-        /// Output file (.svg).
-        #[arg(long, default_value = "plot.svg")]
+        /// Instead: one bar per local calendar month, stacked by appliance
+        /// (kWh, from the truth), the whole dataset.
+        #[arg(long, conflicts_with_all = ["from", "to"])]
+        monthly: bool,
+        /// Output file (.svg or .png, by its extension).
+        #[arg(long, default_value = "plot.svg", value_name = "FILE.svg|FILE.png")]
         out: PathBuf,
         /// Picture size in pixels, WIDTHxHEIGHT.
         #[arg(long, default_value = "1400x900")]
@@ -576,6 +582,7 @@ fn main() -> ExitCode {
             dataset,
             from,
             to,
+            monthly,
             out,
             size,
         } => {
@@ -588,6 +595,9 @@ fn main() -> ExitCode {
                 eprintln!("error: --size {size}: expected WIDTHxHEIGHT in pixels, e.g. 1400x900 (300 … 10000 by 200 … 10000)");
                 return ExitCode::from(BAD_INPUT);
             };
+            if monthly {
+                return plot_monthly(&dataset, &out, (w, h));
+            }
             let opts = solver_check::plot::PlotOptions {
                 from,
                 to,
@@ -995,5 +1005,33 @@ fn leftovers_note(n: usize) -> String {
         0 => String::new(),
         1 => "; 1 process it left running was stopped".into(),
         n => format!("; {n} processes it left running were stopped"),
+    }
+}
+
+/// `plot --monthly`: the picture, then one line saying what it shows.
+fn plot_monthly(dataset: &Path, out: &Path, (w, h): (u32, u32)) -> ExitCode {
+    match solver_check::plot::plot_monthly(dataset, out, w, h) {
+        Ok(m) => {
+            println!(
+                "wrote {} ({}x{} px, {} months from {} to {}, {} appliances{})",
+                out.display(),
+                w,
+                h,
+                m.months.len(),
+                m.months.first().map(String::as_str).unwrap_or("-"),
+                m.months.last().map(String::as_str).unwrap_or("-"),
+                m.shown.len(),
+                if m.others > 0 {
+                    format!(" and {} others together", m.others)
+                } else {
+                    String::new()
+                }
+            );
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("{e}");
+            ExitCode::from(BAD_INPUT)
+        }
     }
 }

@@ -68,14 +68,20 @@ def test_completions_and_man_page_come_from_the_flags():
     assert "roundtrip" in man and "validate" in man
 
 
-def test_score_plot_shows_truth_estimate_and_score_bars(simulate, tmp_path):
-    d = simulate(path=ROOT / "scenarios" / "apartment-208.toml", extra=("--length", "2d"))
+def scaled_estimate(d, path, factor):
+    """Writes an estimate that is the truth times `factor`; returns the manifest and the truth."""
     m = json.loads((d / "manifest.json").read_text())
     truth = pq.read_table(d / "truth.parquet").to_pandas()
     est = pd.DataFrame({"time": truth["time"]})
     for a in m["appliances"]:
-        est[f"{a['id']}_p_w"] = truth[f"{a['id']}_p_w"].astype(float) * 0.9
-    est.to_parquet(tmp_path / "e.parquet")
+        est[f"{a['id']}_p_w"] = truth[f"{a['id']}_p_w"].astype(float) * factor
+    est.to_parquet(path)
+    return m, truth
+
+
+def test_score_plot_shows_truth_estimate_and_score_bars(simulate, tmp_path):
+    d = simulate(path=ROOT / "scenarios" / "apartment-208.toml", extra=("--length", "2d"))
+    m, truth = scaled_estimate(d, tmp_path / "e.parquet", 0.9)
     out = tmp_path / "s.svg"
     loadloom("score", "--truth", d, "--estimate", tmp_path / "e.parquet", "--plot", out)
     root = ET.parse(out).getroot()
@@ -113,3 +119,85 @@ def test_png_plots_of_the_requested_size(simulate, tmp_path):
     assert len(set(raw[:200000])) > 10
     bad = loadloom("plot", d, "--out", tmp_path / "p.jpg", check=False)
     assert bad.returncode == 2 and ".svg or .png" in bad.stderr
+
+
+def texts(root, cls):
+    return [t.text for t in root.iter("{http://www.w3.org/2000/svg}text") if t.get("class") == cls]
+
+
+def test_both_plots_have_local_time_ticks_and_axis_titles_with_units(simulate, tmp_path):
+    d = simulate(path=ROOT / "scenarios" / "apartment-208.toml", extra=("--length", "2d"))
+    m, truth = scaled_estimate(d, tmp_path / "e.parquet", 1.0)
+    loadloom("score", "--truth", d, "--estimate", tmp_path / "e.parquet", "--plot", tmp_path / "s.svg")
+    loadloom("plot", d, "--out", tmp_path / "p.svg")
+    tz = m["time"]["timezone"]
+    for name in ["s.svg", "p.svg"]:
+        root = ET.parse(tmp_path / name).getroot()
+        titles = texts(root, "axis-title")
+        assert "power (W)" in titles, (name, titles)
+        assert any(t.startswith("local time") for t in titles), (name, titles)
+        # Tick labels are whole local hours ("HH:00") or local midnights ("MM-DD"),
+        # placed where pandas puts that local time within the drawn window.
+        ticks = texts(root, "tick-label")
+        assert len(ticks) >= 4, (name, ticks)
+        for t in ticks:
+            assert t.endswith(":00") or len(t) == 5 and t[2] == "-", (name, t)
+    # In the score plot each panel spans one local day: its first tick is local midnight.
+    root = ET.parse(tmp_path / "s.svg").getroot()
+    first = root.find("s:g[@class='appliance']", NS)
+    labels = [t.text for t in first.iter("{http://www.w3.org/2000/svg}text") if t.get("class") == "tick-label"]
+    day = pd.Timestamp(truth["time"].iloc[0]).tz_convert(tz).normalize()
+    assert labels[0] in {(day + pd.Timedelta(days=k)).strftime("%m-%d") for k in range(3)}, labels
+    assert labels[1:] == [f"{h:02d}:00" for h in range(3, 24, 3)], labels
+
+
+def test_monthly_energy_bars_match_the_truth(tmp_path):
+    # A home with a coarse step, run across a month's end: the bars' energies
+    # are the truth's per appliance, summed per local month by pandas.
+    text = (ROOT / "scenarios" / "apartment-208.toml").read_text()
+    src = tmp_path / "flat.toml"
+    src.write_text(
+        text.replace('start = "2027-01-04T00:00"', 'start = "2027-01-28T00:00"')
+        .replace('step = "1 s"', 'step = "10 s"')
+        .replace('interval = "1 s"', 'interval = "10 s"')
+    )
+    loadloom("run", src, "--out", tmp_path / "out", "--length", "9d", "--seed", "3")
+    d = tmp_path / "out" / "flat"
+    m = json.loads((d / "manifest.json").read_text())
+    out = tmp_path / "m.svg"
+    p = loadloom("plot", d, "--monthly", "--out", out, "--size", "900x500")
+    assert "wrote" in p.stdout
+    root = ET.parse(out).getroot()
+    parts = [r for r in root.iter("{http://www.w3.org/2000/svg}rect") if r.get("class") == "part"]
+    tz = m["time"]["timezone"]
+    truth = pq.read_table(d / "truth.parquet").to_pandas()
+    month = truth["time"].dt.tz_convert(tz).dt.strftime("%Y-%m")
+    dt_h = m["time"]["interval_s"] / 3600.0
+    ids = [a["id"] for a in m["appliances"]]
+    want = truth[[f"{i}_p_w" for i in ids]].groupby(month).sum() * dt_h / 1000.0  # kWh
+    months = sorted(set(month))
+    assert sorted({r.get("data-month") for r in parts}) == months
+    assert set(texts(root, "month")) == set(months)
+    shown = {r.get("data-appliance") for r in parts}
+    for r in parts:
+        a, mo, kwh = r.get("data-appliance"), r.get("data-month"), float(r.get("data-kwh"))
+        if a in ids:
+            assert kwh == pytest.approx(want.loc[mo, f"{a}_p_w"], rel=1e-6, abs=1e-6), (a, mo)
+        else:
+            # The rest together: every appliance not drawn on its own.
+            rest = [i for i in ids if i not in shown]
+            assert a == f"{len(rest)} others"
+            assert kwh == pytest.approx(sum(want.loc[mo, f"{i}_p_w"] for i in rest), rel=1e-6, abs=1e-6)
+    # Each month's bar adds up to the whole home's appliance energy (positive parts).
+    for mo in months:
+        total = sum(float(r.get("data-kwh")) for r in parts if r.get("data-month") == mo)
+        assert total == pytest.approx(want.loc[mo].clip(lower=0).sum(), rel=1e-6)
+    assert "energy (kWh)" in texts(root, "axis-title")
+    bad = loadloom("plot", d, "--monthly", "--from", "2027-01-04", check=False)
+    assert bad.returncode == 2
+
+
+def test_help_texts_name_both_picture_formats():
+    for cmd in (["plot", "--help"], ["score", "--help"]):
+        out = loadloom(*cmd).stdout
+        assert ".svg" in out and ".png" in out, cmd

@@ -3,8 +3,17 @@
 //! own colour, with a legend; the time axis in the home's local time. Drawn
 //! as SVG by hand (no browser, no Python).
 
+mod axis;
+mod monthly;
+pub mod palette;
+mod scores;
+
 use crate::dataset::Dataset;
 use crate::stream::header;
+use axis::Frame;
+pub use monthly::{plot_monthly, Monthly};
+use palette::{FRAME, INK, PANEL_FILL, ZERO_LINE};
+pub use scores::plot_scores;
 use std::fmt::Write as _;
 use std::path::Path;
 
@@ -20,13 +29,6 @@ pub struct Plotted {
     pub to: String,
     pub legend: Vec<String>,
 }
-
-/// Distinct colours (a qualitative palette of our own choosing).
-const PALETTE: [&str; 20] = [
-    "#1f6fb4", "#f28e2b", "#3a9d3a", "#d13b3b", "#8c62b8", "#8c564b", "#e377c2", "#6b6b6b",
-    "#b5b82a", "#17b3c7", "#9fc4e8", "#ffbf80", "#96d98a", "#ff9b96", "#c5b0d5", "#c49c94",
-    "#f7b6d2", "#c7c7c7", "#dbdb8d", "#9edae5",
-];
 
 fn err(path: &Path, msg: impl std::fmt::Display, help: &str) -> String {
     format!("error: {msg}\n  --> {}\n  = help: {help}", path.display())
@@ -104,6 +106,36 @@ fn local_ms(text: &str, tz: &jiff::tz::TimeZone) -> Option<i64> {
     c.to_zoned(tz.clone())
         .ok()
         .map(|z| z.timestamp().as_millisecond())
+}
+
+/// "x,y x,y …" to one decimal, leaving out the inner points of horizontal
+/// runs (they add bytes, not shape: the pictures stay small enough to keep
+/// in the repository).
+fn points(pts: &[(f64, f64)]) -> String {
+    let r: Vec<(String, String)> = pts
+        .iter()
+        .map(|(x, y)| (format!("{x:.1}"), format!("{y:.1}")))
+        .collect();
+    let mut out = String::new();
+    for (j, (x, y)) in r.iter().enumerate() {
+        let inner = j > 0 && j + 1 < r.len() && r[j - 1].1 == *y && r[j + 1].1 == *y;
+        if !inner {
+            let sep = if out.is_empty() { "" } else { " " };
+            let _ = write!(out, "{sep}{x},{y}");
+        }
+    }
+    out
+}
+
+/// An SVG path through the points, lifting the pen over gaps (`None`).
+fn path(pts: &[Option<(f64, f64)>]) -> String {
+    let mut d = String::new();
+    for run in pts.split(|p| p.is_none()).filter(|r| !r.is_empty()) {
+        let run: Vec<(f64, f64)> = run.iter().flatten().copied().collect();
+        let sep = if d.is_empty() { "" } else { " " };
+        let _ = write!(d, "{sep}M{}", points(&run).replace(' ', " L"));
+    }
+    d
 }
 
 fn escape(s: &str) -> String {
@@ -214,7 +246,7 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
     }
 
     // Buckets of the plot's width; each the mean of its rows.
-    let (left, right_legend, top, bottom) = (70.0, 190.0, 40.0, 40.0);
+    let (left, right_legend, top, bottom) = (80.0, 190.0, 40.0, 50.0);
     let plot_w = o.width as f64 - left - right_legend;
     let buckets = (plot_w as usize).clamp(10, 4000);
     let bucket_of = |t: i64| (((t - w0) as f64 / (w1 - w0) as f64) * buckets as f64) as usize;
@@ -281,15 +313,9 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
             legend.push(id.clone());
         }
     }
-    // Past the palette, hues spaced by the golden angle keep neighbours apart.
-    let colour = |id: &str| {
-        let i = ds.appliances.iter().position(|a| a.id == id).unwrap_or(0);
-        match PALETTE.get(i) {
-            Some(c) => c.to_string(),
-            None => format!("hsl({:.0},55%,45%)", (i as f64 * 137.508) % 360.0),
-        }
-    };
-
+    // Fills by place in the legend, so the appliances drawn get the most
+    // distinct ones.
+    let colour = |id: &str| palette::fill(legend.iter().position(|l| l == id).unwrap_or(0));
     let mut svg = String::new();
     let (w, h) = (o.width as f64, o.height as f64);
     let _ = write!(
@@ -298,6 +324,7 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
         o.width, o.height, o.width, o.height
     );
     let _ = write!(svg, r#"<rect width="{w}" height="{h}" fill="white"/>"#);
+    svg += &palette::defs(legend.len());
     let label = ds.manifest["scenario"]["home"]["label"]
         .as_str()
         .filter(|l| !l.is_empty())
@@ -315,11 +342,10 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
     };
     let _ = write!(
         svg,
-        r#"<text x="{left}" y="22" font-size="15" font-weight="bold">{} — {} to {} ({})</text>"#,
+        r#"<text x="{left}" y="22" font-size="15" font-weight="bold" fill="{INK}">{} — {} to {}</text>"#,
         escape(&label),
         fmt(w0, "%Y-%m-%d %H:%M"),
         fmt(w1, "%Y-%m-%d %H:%M"),
-        escape(&ds.timezone)
     );
     let panel_h = (h - top - bottom) / lines.len() as f64;
     let xpos = |j: f64| left + j / buckets as f64 * plot_w;
@@ -358,8 +384,16 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
         let ypos = |v: f64| y0 + (hi - v) / (hi - lo) * ph;
         let _ = write!(
             svg,
-            r##"<g class="panel" data-conductor="{l}"><rect x="{left}" y="{y0}" width="{plot_w}" height="{ph}" fill="#fafafa" stroke="#999"/>"##
+            r#"<g class="panel" data-conductor="{l}"><rect x="{left}" y="{y0}" width="{plot_w}" height="{ph}" fill="{PANEL_FILL}" stroke="{FRAME}"/>"#
         );
+        let frame = Frame {
+            x: left,
+            y: y0,
+            w: plot_w,
+            h: ph,
+        };
+        // Grid and ticks first, so the shares draw over them.
+        axis::time_ticks(&mut svg, &tz, (w0, w1), frame, (plot_w / 70.0) as usize)?;
         // Stacked shares: positive parts upwards from zero, negative ones
         // (two-wattmeter readings below pf 0.5) downwards.
         let mut below_pos = vec![0.0f64; buckets];
@@ -382,23 +416,19 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
                 if vals.iter().all(|v| *v == 0.0) {
                     continue;
                 }
-                let mut pts = String::new();
-                for j in 0..buckets {
-                    let _ = write!(
-                        pts,
-                        "{:.1},{:.1} ",
-                        xpos(j as f64),
-                        ypos(below[j] + vals[j])
-                    );
-                }
-                for j in (0..buckets).rev() {
-                    let _ = write!(pts, "{:.1},{:.1} ", xpos(j as f64), ypos(below[j]));
-                }
+                let upper: Vec<(f64, f64)> = (0..buckets)
+                    .map(|j| (xpos(j as f64), ypos(below[j] + vals[j])))
+                    .collect();
+                let lower: Vec<(f64, f64)> = (0..buckets)
+                    .rev()
+                    .map(|j| (xpos(j as f64), ypos(below[j])))
+                    .collect();
+                let pts = format!("{} {}", points(&upper), points(&lower));
                 let _ = write!(
                     svg,
                     r#"<polygon class="share" data-appliance="{}" points="{}" fill="{}" fill-opacity="0.85"/>"#,
                     s.1,
-                    pts.trim_end(),
+                    pts,
                     colour(&s.1)
                 );
                 for j in 0..buckets {
@@ -407,39 +437,28 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
             }
         }
         // The measured power of the conductor.
-        let mut d = String::new();
-        let mut pen = false;
-        for (j, v) in m.iter().enumerate() {
-            match v {
-                Some(v) => {
-                    let _ = write!(
-                        d,
-                        "{}{:.1},{:.1} ",
-                        if pen { "L" } else { "M" },
-                        xpos(j as f64 + 0.5),
-                        ypos(*v)
-                    );
-                    pen = true;
-                }
-                None => pen = false,
-            }
-        }
+        let measured: Vec<Option<(f64, f64)>> = m
+            .iter()
+            .enumerate()
+            .map(|(j, v)| v.map(|v| (xpos(j as f64 + 0.5), ypos(v))))
+            .collect();
+        let d = path(&measured);
         let _ = write!(
             svg,
-            r#"<path class="measured" d="{}" fill="none" stroke="black" stroke-width="1"/>"#,
+            r#"<path class="measured" d="{}" fill="none" stroke="{INK}" stroke-width="1"/>"#,
             d.trim_end()
         );
         let _ = write!(
             svg,
-            r##"<line x1="{left}" x2="{}" y1="{:.1}" y2="{:.1}" stroke="#555" stroke-dasharray="2,2"/>"##,
+            r#"<line x1="{left}" x2="{}" y1="{:.1}" y2="{:.1}" stroke="{ZERO_LINE}" stroke-dasharray="2,2"/>"#,
             left + plot_w,
             ypos(0.0),
             ypos(0.0)
         );
         let _ = write!(
             svg,
-            r#"<text x="8" y="{:.1}" font-weight="bold">{}</text>"#,
-            y0 + 14.0,
+            r#"<text x="6" y="{:.1}" font-weight="bold">{}</text>"#,
+            y0 + 12.0,
             l.to_uppercase()
         );
         for (v, name) in [(hi / 1.05, "max"), (0.0, "0")] {
@@ -452,7 +471,8 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
                 v
             );
         }
-        if lo < 0.0 {
+        // The lowest value, where it is a negative reading worth a label.
+        if lo / 1.05 <= -0.5 {
             let _ = write!(
                 svg,
                 r#"<text x="{:.1}" y="{:.1}" text-anchor="end" font-size="10">{:.0} W</text>"#,
@@ -461,43 +481,9 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
                 lo / 1.05
             );
         }
-        // Local time ticks.
-        let span_h = (w1 - w0) as f64 / 3.6e6;
-        let step_h: i64 = if span_h <= 6.0 {
-            1
-        } else if span_h <= 30.0 {
-            3
-        } else if span_h <= 96.0 {
-            12
-        } else {
-            24
-        };
-        let first = jiff::Timestamp::from_millisecond(w0)
-            .map_err(|e| e.to_string())?
-            .to_zoned(tz.clone());
-        let mut tick = first
-            .date()
-            .to_zoned(tz.clone())
-            .map_err(|e| e.to_string())?;
-        while tick.timestamp().as_millisecond() < w1 {
-            let ms = tick.timestamp().as_millisecond();
-            if ms >= w0 {
-                let px = left + (ms - w0) as f64 / (w1 - w0) as f64 * plot_w;
-                let _ = write!(
-                    svg,
-                    r##"<line x1="{px:.1}" x2="{px:.1}" y1="{y0}" y2="{:.1}" stroke="#ddd"/>"##,
-                    y0 + ph
-                );
-                let _ = write!(
-                    svg,
-                    r#"<text x="{px:.1}" y="{:.1}" text-anchor="middle" font-size="10">{}</text>"#,
-                    y0 + ph + 12.0,
-                    tick.strftime(if tick.hour() == 0 { "%m-%d" } else { "%H:%M" })
-                );
-            }
-            tick = tick
-                .checked_add(jiff::Span::new().hours(step_h))
-                .map_err(|e| e.to_string())?;
+        axis::y_title(&mut svg, frame, "power (W)", 52.0);
+        if x + 1 == lines.len() {
+            axis::x_title(&mut svg, frame, &format!("local time ({})", ds.timezone));
         }
         svg += "</g>";
     }
@@ -522,7 +508,7 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
     }
     let _ = write!(
         svg,
-        r#"<text x="{lx}" y="{:.1}" font-size="10">black line: measured</text></g>"#,
+        r#"<text x="{lx}" y="{:.1}" font-size="10">dark line: measured power</text></g>"#,
         top + 20.0 + legend.len() as f64 * 16.0 + 6.0
     );
     svg += "</svg>\n";
@@ -532,224 +518,4 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
         to: fmt(w1, "%Y-%m-%dT%H:%M%:z"),
         legend,
     })
-}
-
-/// Means per time bucket of some columns of a table, within [w0, w1).
-fn bucket_means(
-    h: &crate::stream::Header,
-    cols: &[String],
-    w0: i64,
-    w1: i64,
-    buckets: usize,
-) -> Result<Vec<Vec<Option<f64>>>, String> {
-    let mut sum = vec![vec![0.0f64; buckets]; cols.len()];
-    let mut n = vec![vec![0u32; buckets]; cols.len()];
-    let mut st = h.stream(cols).map_err(|e| e.to_string())?;
-    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
-        for (k, &t) in b.time_ms.iter().enumerate() {
-            if t < w0 || t >= w1 {
-                continue;
-            }
-            let j = ((((t - w0) as f64) / (w1 - w0) as f64) * buckets as f64) as usize;
-            for c in 0..cols.len() {
-                let v = b.cols[c][k];
-                if !v.is_nan() {
-                    sum[c][j.min(buckets - 1)] += v;
-                    n[c][j.min(buckets - 1)] += 1;
-                }
-            }
-        }
-    }
-    Ok((0..cols.len())
-        .map(|c| {
-            (0..buckets)
-                .map(|j| (n[c][j] > 0).then(|| sum[c][j] / n[c][j] as f64))
-                .collect()
-        })
-        .collect())
-}
-
-/// `score --plot`: per appliance, truth (filled) and estimate (line) over the
-/// busiest local day of the scored period, and bars of each appliance's F1
-/// and estimated accuracy. SVG.
-pub fn plot_scores(
-    report: &crate::score::Report,
-    dataset: &Path,
-    estimate: &Path,
-    out: &Path,
-) -> Result<(), String> {
-    let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
-    let tz = jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| e.to_string())?;
-    let plan = &report.plan;
-    let p_end = plan.start_ms + plan.rows as i64 * plan.interval_ms;
-    // The busiest local day: the largest true energy over the appliances.
-    let days = report.overall_acc.days.len();
-    let best = (0..days)
-        .max_by(|&a, &b| {
-            report.overall_acc.days[a]
-                .sum_y
-                .partial_cmp(&report.overall_acc.days[b].sum_y)
-                .unwrap()
-        })
-        .unwrap_or(0);
-    let start_day = jiff::Timestamp::from_millisecond(plan.start_ms)
-        .map_err(|e| e.to_string())?
-        .to_zoned(tz.clone())
-        .date();
-    let mut day = start_day;
-    for _ in 0..best {
-        day = day.tomorrow().map_err(|e| e.to_string())?;
-    }
-    let ms = |d: jiff::civil::Date| {
-        d.to_zoned(tz.clone())
-            .map(|z| z.timestamp().as_millisecond())
-            .map_err(|e| e.to_string())
-    };
-    let (w0, w1) = (
-        ms(day)?.max(plan.start_ms),
-        ms(day.tomorrow().map_err(|e| e.to_string())?)?.min(p_end),
-    );
-    let ids: Vec<String> = report.appliances.iter().map(|a| a.id.clone()).collect();
-    let cols: Vec<String> = ids.iter().map(|i| format!("{i}_p_w")).collect();
-    let truth_file = if ds.manifest["files"].get("truth.parquet").is_some() {
-        "truth.parquet"
-    } else {
-        "truth.csv"
-    };
-    let bw = 420usize;
-    let y = bucket_means(
-        &header(&dataset.join(truth_file)).map_err(|e| e.to_string())?,
-        &cols,
-        w0,
-        w1,
-        bw,
-    )?;
-    let yh = bucket_means(
-        &header(estimate).map_err(|e| e.to_string())?,
-        &cols,
-        w0,
-        w1,
-        bw,
-    )?;
-    let (pw, ph, gap) = (bw as f64, 90.0, 38.0);
-    let per_row = 2;
-    let rows = ids.len().div_ceil(per_row);
-    let width = 60.0 + per_row as f64 * (pw + 60.0);
-    let bars_h = 40.0 + ids.len() as f64 * 16.0;
-    let height = 60.0 + rows as f64 * (ph + gap) + bars_h + 40.0;
-    let mut svg = String::new();
-    let _ = write!(
-        svg,
-        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{:.0}" height="{:.0}" viewBox="0 0 {:.0} {:.0}" font-family="sans-serif" font-size="11"><rect width="100%" height="100%" fill="white"/>"#,
-        width, height, width, height
-    );
-    let fmt = |ms: i64| {
-        jiff::Timestamp::from_millisecond(ms)
-            .map(|t| {
-                t.to_zoned(tz.clone())
-                    .strftime("%Y-%m-%d %H:%M")
-                    .to_string()
-            })
-            .unwrap_or_default()
-    };
-    let _ = write!(
-        svg,
-        r#"<text x="20" y="24" font-size="14" font-weight="bold">{} against the truth, {} to {} ({}): truth filled, estimate as a line</text>"#,
-        escape(
-            &estimate
-                .file_name()
-                .map(|f| f.to_string_lossy().to_string())
-                .unwrap_or_default()
-        ),
-        fmt(w0),
-        fmt(w1),
-        escape(&ds.timezone)
-    );
-    for (k, id) in ids.iter().enumerate() {
-        let (cx, cy) = (
-            40.0 + (k % per_row) as f64 * (pw + 60.0),
-            50.0 + (k / per_row) as f64 * (ph + gap),
-        );
-        let hi = y[k]
-            .iter()
-            .chain(&yh[k])
-            .flatten()
-            .fold(1.0f64, |a, b| a.max(*b))
-            * 1.05;
-        let yp = |v: f64| cy + ph - v / hi * ph;
-        let _ = write!(
-            svg,
-            r##"<g class="appliance" data-appliance="{id}"><rect x="{cx}" y="{cy}" width="{pw}" height="{ph}" fill="#fafafa" stroke="#aaa"/><text x="{cx}" y="{:.1}" font-weight="bold">{id}</text><text x="{:.1}" y="{:.1}" text-anchor="end" font-size="9">{:.0} W</text>"##,
-            cy - 4.0,
-            cx + pw,
-            cy - 4.0,
-            hi / 1.05
-        );
-        let mut pts = format!("{cx:.1},{:.1} ", cy + ph);
-        for j in 0..bw {
-            let _ = write!(
-                pts,
-                "{:.1},{:.1} ",
-                cx + j as f64,
-                yp(y[k][j].unwrap_or(0.0))
-            );
-        }
-        let _ = write!(pts, "{:.1},{:.1}", cx + pw, cy + ph);
-        let _ = write!(
-            svg,
-            r##"<polygon class="truth" points="{pts}" fill="#9fc4e8"/>"##
-        );
-        let mut d = String::new();
-        let mut pen = false;
-        for j in 0..bw {
-            match yh[k][j] {
-                Some(v) => {
-                    let _ = write!(
-                        d,
-                        "{}{:.1},{:.1} ",
-                        if pen { "L" } else { "M" },
-                        cx + j as f64,
-                        yp(v)
-                    );
-                    pen = true;
-                }
-                None => pen = false,
-            }
-        }
-        let _ = write!(
-            svg,
-            r##"<path class="estimate" d="{}" fill="none" stroke="#d13b3b" stroke-width="1"/></g>"##,
-            d.trim_end()
-        );
-    }
-    // Bars: F1 and estimated accuracy per appliance.
-    let by = 50.0 + rows as f64 * (ph + gap) + 10.0;
-    let _ = write!(
-        svg,
-        r##"<g class="bars"><text x="40" y="{by:.1}" font-weight="bold">per appliance: F1 (blue) and estimated accuracy (orange), 0 … 1</text>"##
-    );
-    let bar_w = width - 330.0;
-    for (k, a) in report.appliances.iter().enumerate() {
-        let yy = by + 14.0 + k as f64 * 16.0;
-        let acc = a.scores.accuracy.unwrap_or(0.0).max(0.0);
-        let _ = write!(
-            svg,
-            r##"<text class="bar-label" x="150" y="{:.1}" text-anchor="end">{}</text><rect x="160" y="{:.1}" width="{:.1}" height="6" fill="#1f6fb4"/><rect x="160" y="{:.1}" width="{:.1}" height="6" fill="#f28e2b"/><text x="{:.1}" y="{:.1}" font-size="9">F1 {:.2}, accuracy {}</text>"##,
-            yy + 4.0,
-            escape(&a.id),
-            yy - 6.0,
-            a.scores.f1 * bar_w,
-            yy,
-            acc.min(1.0) * bar_w,
-            165.0 + bar_w,
-            yy + 4.0,
-            a.scores.f1,
-            a.scores
-                .accuracy
-                .map(|v| format!("{v:.2}"))
-                .unwrap_or_else(|| "–".into())
-        );
-    }
-    svg += "</g></svg>\n";
-    write_picture(&svg, out)
 }

@@ -1,0 +1,283 @@
+//! `loadloom plot --monthly`: the energy of each local calendar month as a
+//! bar, stacked by appliance from the truth (the largest consumers each in a
+//! fill of their own, the rest together), for year reports.
+
+use super::axis::{self, Frame};
+use super::palette::{self, FRAME, INK, PANEL_FILL};
+use super::{err, escape, write_picture};
+use crate::dataset::Dataset;
+use crate::stream::header;
+use std::fmt::Write as _;
+use std::path::Path;
+
+/// What was drawn.
+pub struct Monthly {
+    /// The local months, `YYYY-MM`.
+    pub months: Vec<String>,
+    /// The appliances with a bar part of their own, largest first.
+    pub shown: Vec<String>,
+    /// How many appliances were summed as "others".
+    pub others: usize,
+}
+
+/// Appliances drawn on their own; the rest share one grey part.
+const OWN_PARTS: usize = 12;
+
+/// One local month: its label, its UTC span and the days of it in the data.
+struct Month {
+    label: String,
+    end_ms: i64,
+    days: f64,
+}
+
+/// The local calendar months that [t0, t1) touches.
+fn months(tz: &jiff::tz::TimeZone, t0: i64, t1: i64) -> Result<Vec<Month>, String> {
+    let e = |e: jiff::Error| e.to_string();
+    let mut first = jiff::Timestamp::from_millisecond(t0)
+        .map_err(e)?
+        .to_zoned(tz.clone())
+        .date()
+        .first_of_month();
+    let mut out = Vec::new();
+    let mut start = t0;
+    while start < t1 {
+        let next = first.checked_add(jiff::Span::new().months(1)).map_err(e)?;
+        let end_ms = next
+            .to_zoned(tz.clone())
+            .map_err(e)?
+            .timestamp()
+            .as_millisecond();
+        out.push(Month {
+            label: first.strftime("%Y-%m").to_string(),
+            end_ms,
+            days: (end_ms.min(t1) - start) as f64 / 8.64e7,
+        });
+        start = end_ms;
+        first = next;
+    }
+    Ok(out)
+}
+
+/// kWh per month (rows) and appliance (columns) from the truth's `ID_p_w`.
+fn energies(ds: &Dataset, months: &[Month], ids: &[String]) -> Result<Vec<Vec<f64>>, String> {
+    let truth = ["truth.parquet", "truth.csv"]
+        .into_iter()
+        .find(|f| ds.manifest["files"].get(*f).is_some())
+        .ok_or_else(|| {
+            err(
+                &ds.dir,
+                "the manifest lists no truth file",
+                "plot a folder written by `loadloom run`",
+            )
+        })?;
+    let cols: Vec<String> = ids.iter().map(|i| format!("{i}_p_w")).collect();
+    let h = header(&ds.dir.join(truth)).map_err(|e| e.to_string())?;
+    let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
+    let kwh_per_w_row = ds.interval_s / 3.6e6;
+    let mut kwh = vec![vec![0.0f64; ids.len()]; months.len()];
+    let mut m = 0;
+    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
+        for (k, &t) in b.time_ms.iter().enumerate() {
+            // Rows come in time order, so the month only moves forward.
+            while m + 1 < months.len() && t >= months[m].end_ms {
+                m += 1;
+            }
+            for (c, col) in b.cols.iter().enumerate() {
+                if col[k].is_finite() {
+                    kwh[m][c] += col[k] * kwh_per_w_row;
+                }
+            }
+        }
+    }
+    Ok(kwh)
+}
+
+/// A round step for `ticks` or so ticks up to `hi`: 1, 2 or 5 × 10^k.
+fn nice_step(hi: f64, ticks: f64) -> f64 {
+    let raw = (hi / ticks).max(1e-9);
+    let mag = 10f64.powf(raw.log10().floor());
+    [1.0, 2.0, 5.0, 10.0]
+        .into_iter()
+        .map(|m| m * mag)
+        .find(|s| *s >= raw)
+        .unwrap_or(10.0 * mag)
+}
+
+/// The largest consumers (by their total), at most [`OWN_PARTS`]; the rest
+/// are summed. Returns (indices shown, indices summed).
+fn split_parts(kwh: &[Vec<f64>], n: usize) -> (Vec<usize>, Vec<usize>) {
+    let total = |c: usize| kwh.iter().map(|m| m[c]).sum::<f64>();
+    let mut order: Vec<usize> = (0..n).filter(|&c| total(c) > 0.0).collect();
+    order.sort_by(|&a, &b| total(b).total_cmp(&total(a)));
+    if order.len() > OWN_PARTS {
+        let rest = order.split_off(OWN_PARTS - 1);
+        (order, rest)
+    } else {
+        (order, Vec::new())
+    }
+}
+
+/// Stacks one month's parts upward from zero.
+fn bar(
+    svg: &mut String,
+    x: f64,
+    bw: f64,
+    yp: &dyn Fn(f64) -> f64,
+    parts: &[(String, String, f64)],
+    month: &str,
+) {
+    let mut below = 0.0;
+    for (id, fill, e) in parts.iter().filter(|p| p.2 > 0.0) {
+        let _ = write!(
+            svg,
+            r#"<rect class="part" data-month="{month}" data-appliance="{}" data-kwh="{e:.6}" x="{x:.1}" y="{:.1}" width="{bw:.1}" height="{:.1}" fill="{fill}"/>"#,
+            escape(id),
+            yp(below + e),
+            yp(below) - yp(below + e),
+        );
+        below += e;
+    }
+}
+
+/// Draws the monthly energy of `dataset` to `out` (.svg or .png).
+pub fn plot_monthly(
+    dataset: &Path,
+    out: &Path,
+    width: u32,
+    height: u32,
+) -> Result<Monthly, String> {
+    let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
+    let tz = jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| e.to_string())?;
+    let t0 = ds.manifest["time"]["start_utc_ms"].as_i64().unwrap_or(0);
+    let t1 = t0 + (ds.rows as f64 * ds.interval_s * 1000.0).round() as i64;
+    let ms = months(&tz, t0, t1)?;
+    let ids: Vec<String> = ds.appliances.iter().map(|a| a.id.clone()).collect();
+    let kwh = energies(&ds, &ms, &ids)?;
+    let (shown, rest) = split_parts(&kwh, ids.len());
+    let parts_of = |m: usize| {
+        let mut p: Vec<(String, String, f64)> = shown
+            .iter()
+            .enumerate()
+            .map(|(r, &c)| (ids[c].clone(), palette::fill(r), kwh[m][c]))
+            .collect();
+        if !rest.is_empty() {
+            let e = rest.iter().map(|&c| kwh[m][c]).sum();
+            p.push((format!("{} others", rest.len()), FRAME.to_string(), e));
+        }
+        p
+    };
+    let (w, h) = (width as f64, height as f64);
+    let f = Frame {
+        x: 80.0,
+        y: 50.0,
+        w: w - 80.0 - 230.0,
+        h: h - 50.0 - 70.0,
+    };
+    let top = (0..ms.len())
+        .map(|m| parts_of(m).iter().map(|p| p.2.max(0.0)).sum::<f64>())
+        .fold(0.0f64, f64::max);
+    let step = nice_step(top.max(1e-6), 6.0);
+    let hi = (top / step).ceil().max(1.0) * step;
+    let yp = |v: f64| f.y + f.h - v / hi * f.h;
+    let mut svg = String::new();
+    let _ = write!(
+        svg,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height}" viewBox="0 0 {width} {height}" font-family="sans-serif" font-size="12"><rect width="{w}" height="{h}" fill="white"/>{}"#,
+        palette::defs(shown.len())
+    );
+    let label = ds.manifest["scenario"]["home"]["label"]
+        .as_str()
+        .unwrap_or("");
+    let _ = write!(
+        svg,
+        r#"<text x="{}" y="24" font-size="15" font-weight="bold" fill="{INK}">{} — energy per local month by appliance (truth)</text><rect x="{}" y="{}" width="{}" height="{}" fill="{PANEL_FILL}" stroke="{FRAME}"/>"#,
+        f.x,
+        escape(if label.is_empty() {
+            &ds.timezone
+        } else {
+            label
+        }),
+        f.x,
+        f.y,
+        f.w,
+        f.h
+    );
+    let mut v = 0.0;
+    while v <= hi + step / 2.0 {
+        let _ = write!(
+            svg,
+            r#"<line class="tick" x1="{}" x2="{}" y1="{y:.1}" y2="{y:.1}" stroke="{}"/><text class="tick-label" x="{}" y="{:.1}" text-anchor="end" font-size="10" fill="{INK}">{v}</text>"#,
+            f.x,
+            f.x + f.w,
+            palette::GRID,
+            f.x - 4.0,
+            yp(v) + 3.0,
+            y = yp(v)
+        );
+        v += step;
+    }
+    let slot = f.w / ms.len() as f64;
+    for (m, month) in ms.iter().enumerate() {
+        let x = f.x + m as f64 * slot;
+        bar(
+            &mut svg,
+            x + slot * 0.15,
+            slot * 0.7,
+            &yp,
+            &parts_of(m),
+            &month.label,
+        );
+        let days = if (month.days - month.days.round()).abs() < 1e-6 {
+            format!("{:.0} d", month.days)
+        } else {
+            format!("{:.1} d", month.days)
+        };
+        let _ = write!(
+            svg,
+            r#"<text class="month" x="{:.1}" y="{:.1}" text-anchor="middle" font-size="10" fill="{INK}">{}</text><text x="{:.1}" y="{:.1}" text-anchor="middle" font-size="9" fill="{INK}">{days}</text>"#,
+            x + slot / 2.0,
+            f.y + f.h + 13.0,
+            month.label,
+            x + slot / 2.0,
+            f.y + f.h + 25.0,
+        );
+    }
+    axis::y_title(&mut svg, f, "energy (kWh)", 55.0);
+    let below = Frame { h: f.h + 15.0, ..f };
+    axis::x_title(
+        &mut svg,
+        below,
+        &format!(
+            "local month ({}), with the days of it simulated",
+            ds.timezone
+        ),
+    );
+    legend(&mut svg, w - 215.0, f.y, &parts_of(0));
+    svg += "</svg>\n";
+    write_picture(&svg, out)?;
+    Ok(Monthly {
+        months: ms.into_iter().map(|m| m.label).collect(),
+        shown: shown.iter().map(|&c| ids[c].clone()).collect(),
+        others: rest.len(),
+    })
+}
+
+/// The legend: top part of the stack first, as the bars read.
+fn legend(svg: &mut String, lx: f64, top: f64, parts: &[(String, String, f64)]) {
+    let _ = write!(
+        svg,
+        r#"<g class="legend-box"><text x="{lx}" y="{}" font-weight="bold" fill="{INK}">appliances</text>"#,
+        top + 4.0
+    );
+    for (i, (id, fill, _)) in parts.iter().rev().enumerate() {
+        let y = top + 20.0 + i as f64 * 16.0;
+        let _ = write!(
+            svg,
+            r#"<rect x="{lx}" y="{:.1}" width="11" height="11" fill="{fill}"/><text class="legend" x="{}" y="{y:.1}" fill="{INK}">{}</text>"#,
+            y - 9.0,
+            lx + 16.0,
+            escape(id)
+        );
+    }
+    svg.push_str("</g>");
+}
