@@ -4,7 +4,7 @@
 //! as they stream past (see `values_check`).
 
 use crate::dataset::Dataset;
-use crate::stream::{header, in_memory, Batch, Header};
+use crate::stream::{header, in_memory, localise_hint, Batch, Header};
 use crate::table::{read, table_err, Column, Table, TableError};
 use std::path::Path;
 
@@ -42,24 +42,18 @@ impl EstimateFile {
 /// zone. With `partial`, appliances the estimate lacks are left out.
 pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<EstimateFile, TableError> {
     let mut h = header(path)?;
-    if let Some(tz) = &h.time_zone {
-        if *tz != ds.timezone {
-            return Err(table_err(
-                path,
-                Some("time"),
-                None,
-                format!(
-                    "time zone \"{tz}\" differs from the dataset's \"{}\"",
-                    ds.timezone
-                ),
-                format!(
-                    "convert the times to the dataset's zone (pandas: .dt.tz_convert(\"{}\"))",
-                    ds.timezone
-                ),
-            ));
-        }
-    } else if path.extension().is_some_and(|e| e == "parquet") {
-        return Err(table_err(path, Some("time"), None, "`time` has no time zone", format!("store tz-aware times (pandas: .dt.tz_localize(\"UTC\").dt.tz_convert(\"{}\")); time zones are never guessed", ds.timezone)));
+    // Times are instants: a Parquet timestamp in any zone (the home's, UTC,
+    // a fixed offset) or a CSV time with any UTC offset compares as the
+    // same instant. Naive times are refused: zones are never guessed.
+    h.zone_hint = Some(ds.timezone.clone());
+    if h.time_zone.is_none() && path.extension().is_some_and(|e| e == "parquet") {
+        return Err(table_err(
+            path,
+            Some("time"),
+            None,
+            "`time` has no time zone (naive timestamps)",
+            localise_hint(Some(&ds.timezone)),
+        ));
     }
     if h.has("appliance") && h.has("p_w") {
         h = in_memory(long_to_wide(&read(path, None, &["appliance"])?, ds)?);

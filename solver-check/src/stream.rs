@@ -8,7 +8,6 @@ use arrow_array::{Array, ArrayRef};
 use arrow_schema::{DataType, TimeUnit};
 use parquet::arrow::arrow_reader::{ParquetRecordBatchReader, ParquetRecordBatchReaderBuilder};
 use parquet::arrow::ProjectionMask;
-use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
 
 pub const BATCH_ROWS: usize = 1 << 16;
@@ -28,6 +27,8 @@ pub struct Header {
     /// Every column but `time`, with whether it is text.
     pub columns: Vec<(String, bool)>,
     pub time_zone: Option<String>,
+    /// The zone to name when naive times must be localised (the dataset's).
+    pub zone_hint: Option<String>,
     kind: Kind,
 }
 
@@ -50,6 +51,41 @@ impl Header {
     pub fn has(&self, name: &str) -> bool {
         self.columns.iter().any(|(n, _)| n == name)
     }
+}
+
+/// A CSV reader as spreadsheets and data-frame libraries write: quoted
+/// fields (commas and quotes inside), a byte-order mark, CRLF or LF.
+fn csv_reader(path: &Path) -> Result<csv::Reader<std::fs::File>, TableError> {
+    Ok(csv::ReaderBuilder::new()
+        .has_headers(true)
+        .buffer_capacity(1 << 20)
+        .from_reader(open(path)?))
+}
+
+fn csv_err(path: &Path, e: csv::Error) -> TableError {
+    let row = e
+        .position()
+        .map(|p| (p.record() as usize).saturating_sub(1));
+    let help = match e.kind() {
+        csv::ErrorKind::UnequalLengths { .. } => "give every row one value per column",
+        csv::ErrorKind::Utf8 { .. } => "save the file as UTF-8",
+        _ => "check the file",
+    };
+    let message = match e.kind() {
+        csv::ErrorKind::UnequalLengths {
+            expected_len, len, ..
+        } => {
+            format!("{len} cells, the header has {expected_len}")
+        }
+        _ => e.to_string(),
+    };
+    table_err(path, None, row, message, help)
+}
+
+/// The one line of pandas that gives naive times their zone.
+pub fn localise_hint(zone: Option<&str>) -> String {
+    let z = zone.unwrap_or("America/New_York");
+    format!("time zones are never guessed; localise the times to the home's zone before writing, e.g. in pandas: df[\"time\"] = pd.to_datetime(df[\"time\"]).dt.tz_localize(\"{z}\")")
 }
 
 fn open(path: &Path) -> Result<std::fs::File, TableError> {
@@ -117,6 +153,7 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
                 file: path.to_path_buf(),
                 columns,
                 time_zone: tz,
+                zone_hint: None,
                 kind: Kind::Parquet {
                     time_index: ti,
                     unit,
@@ -124,15 +161,12 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
             })
         }
         Some("csv") => {
-            let file = open(path)?;
-            let mut first = String::new();
-            BufReader::new(file)
-                .read_line(&mut first)
-                .map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
-            let header: Vec<String> = first
-                .trim_end()
-                .split(',')
-                .map(|h| h.trim().trim_matches('"').to_string())
+            let mut r = csv_reader(path)?;
+            let header: Vec<String> = r
+                .headers()
+                .map_err(|e| csv_err(path, e))?
+                .iter()
+                .map(|h| h.trim().trim_start_matches('\u{feff}').to_string())
                 .collect();
             let ti = header.iter().position(|h| h == "time").ok_or_else(|| {
                 table_err(
@@ -153,6 +187,7 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
                 file: path.to_path_buf(),
                 columns,
                 time_zone: None,
+                zone_hint: None,
                 kind: Kind::Csv {
                     time_index: ti,
                     header,
@@ -179,6 +214,7 @@ pub fn in_memory(t: Table) -> Header {
             .map(|(n, c)| (n.clone(), matches!(c, Column::Text(_))))
             .collect(),
         time_zone: t.time_zone.clone(),
+        zone_hint: None,
         kind: Kind::Mem(t),
     }
 }
@@ -195,7 +231,7 @@ pub struct Stream<'h> {
 /// (time, numeric..., text...), CSV cell indices (time, numeric..., text...).
 enum Inner {
     Parquet(ParquetRecordBatchReader, Vec<usize>),
-    Csv(std::io::Lines<BufReader<std::fs::File>>, Vec<usize>),
+    Csv(csv::Reader<std::fs::File>, csv::StringRecord, Vec<usize>),
     Mem,
 }
 
@@ -329,9 +365,8 @@ impl Header {
                 Inner::Parquet(r, pos)
             }
             Kind::Csv { time_index, header } => {
-                let file = open(path)?;
-                let mut lines = BufReader::with_capacity(1 << 20, file).lines();
-                lines.next();
+                let mut r = csv_reader(path)?;
+                r.headers().map_err(|e| csv_err(path, e))?;
                 let idx = std::iter::once(Ok(*time_index))
                     .chain(all.iter().map(|c| {
                         header.iter().position(|h| h == *c).ok_or_else(|| {
@@ -345,7 +380,7 @@ impl Header {
                         })
                     }))
                     .collect::<Result<Vec<_>, _>>()?;
-                Inner::Csv(lines, idx)
+                Inner::Csv(r, csv::StringRecord::new(), idx)
             }
             Kind::Mem(_) => Inner::Mem,
         };
@@ -357,6 +392,74 @@ impl Header {
             inner,
         })
     }
+}
+
+/// Time, numeric and text cells of one CSV batch.
+type CsvCells = (Vec<i64>, Vec<Vec<f64>>, Vec<Vec<String>>);
+
+/// Reads up to [`BATCH_ROWS`] records: the time (an instant: any UTC
+/// offset; naive times refused), numbers, texts.
+fn csv_batch(
+    path: &Path,
+    first: usize,
+    r: &mut csv::Reader<std::fs::File>,
+    rec: &mut csv::StringRecord,
+    idx: &[usize],
+    n_num: usize,
+    zone: Option<&str>,
+) -> Result<CsvCells, TableError> {
+    let (ti, nums, txts) = (idx[0], &idx[1..1 + n_num], &idx[1 + n_num..]);
+    let header = r.headers().map_err(|e| csv_err(path, e))?.clone();
+    let mut time = Vec::new();
+    let mut cols: Vec<Vec<f64>> = vec![Vec::new(); nums.len()];
+    let mut texts: Vec<Vec<String>> = vec![Vec::new(); txts.len()];
+    while time.len() < BATCH_ROWS && r.read_record(rec).map_err(|e| csv_err(path, e))? {
+        let row = first + time.len();
+        if rec.len() == 1 && rec[0].trim().is_empty() {
+            continue;
+        }
+        time.push(csv_time(path, row, rec[ti].trim(), zone)?);
+        for (j, &i) in txts.iter().enumerate() {
+            texts[j].push(rec[i].trim().to_string());
+        }
+        for (j, &i) in nums.iter().enumerate() {
+            let s = rec[i].trim();
+            let v = match s {
+                "" => f64::NAN,
+                "true" | "True" | "TRUE" => 1.0,
+                "false" | "False" | "FALSE" => 0.0,
+                _ => s.parse().map_err(|_| {
+                    table_err(
+                        path,
+                        Some(&header[i]),
+                        Some(row),
+                        format!("\"{s}\" is not a number"),
+                        "give powers as numbers in W",
+                    )
+                })?,
+            };
+            cols[j].push(v);
+        }
+    }
+    Ok((time, cols, texts))
+}
+
+/// A CSV time as an instant (ms since 1970 UTC); a time without its UTC
+/// offset is refused with the line of pandas that localises it.
+fn csv_time(path: &Path, row: usize, s: &str, zone: Option<&str>) -> Result<i64, TableError> {
+    if let Ok(t) = s.parse::<jiff::Timestamp>() {
+        return Ok(t.as_millisecond());
+    }
+    if s.parse::<jiff::civil::DateTime>().is_ok() {
+        return Err(table_err(
+            path,
+            Some("time"),
+            Some(row),
+            format!("\"{s}\" is a naive time (no UTC offset)"),
+            localise_hint(zone),
+        ));
+    }
+    Err(table_err(path, Some("time"), Some(row), format!("\"{s}\" is not a time with its UTC offset"), "write ISO-8601 with an offset, e.g. 2027-03-13T00:00:00-06:00 or 2027-03-13T06:00:00Z (time zones are never guessed)"))
 }
 
 impl Stream<'_> {
@@ -449,72 +552,10 @@ impl Stream<'_> {
                     texts,
                 }
             }
-            Inner::Csv(lines, idx) => {
-                let (ti, nums, txts) = (
-                    idx[0],
-                    &idx[1..1 + self.cols.len()],
-                    &idx[1 + self.cols.len()..],
-                );
-                let mut time = Vec::new();
-                let mut cols: Vec<Vec<f64>> = vec![Vec::new(); nums.len()];
-                let mut texts: Vec<Vec<String>> = vec![Vec::new(); txts.len()];
-                let Kind::Csv { header, .. } = &self.h.kind else {
-                    unreachable!()
-                };
-                while time.len() < BATCH_ROWS {
-                    let Some(line) = lines.next() else { break };
-                    let line = line.map_err(|e| {
-                        table_err(
-                            path,
-                            None,
-                            Some(first + time.len()),
-                            e.to_string(),
-                            "check the file",
-                        )
-                    })?;
-                    if line.trim().is_empty() {
-                        continue;
-                    }
-                    let r = first + time.len();
-                    let cells: Vec<&str> = line.split(',').collect();
-                    if cells.len() != header.len() {
-                        return Err(table_err(
-                            path,
-                            None,
-                            Some(r),
-                            format!("{} cells, the header has {}", cells.len(), header.len()),
-                            "give every row one value per column",
-                        ));
-                    }
-                    let ts: jiff::Timestamp = cells[ti].trim().parse().map_err(|_| {
-                        table_err(path, Some("time"), Some(r), format!("\"{}\" is not a time with its UTC offset", cells[ti]), "write ISO-8601 with an offset, e.g. 2027-03-13T00:00:00-06:00 or 2027-03-13T06:00:00Z (time zones are never guessed)")
-                    })?;
-                    time.push(ts.as_millisecond());
-                    for (j, &i) in txts.iter().enumerate() {
-                        texts[j].push(cells[i].trim().trim_matches('"').to_string());
-                    }
-                    for (j, &i) in nums.iter().enumerate() {
-                        let s = cells[i].trim();
-                        let v = if s.is_empty() {
-                            f64::NAN
-                        } else {
-                            match s {
-                                "true" | "True" => 1.0,
-                                "false" | "False" => 0.0,
-                                _ => s.parse().map_err(|_| {
-                                    table_err(
-                                        path,
-                                        Some(&header[i]),
-                                        Some(r),
-                                        format!("\"{s}\" is not a number"),
-                                        "give powers as numbers in W",
-                                    )
-                                })?,
-                            }
-                        };
-                        cols[j].push(v);
-                    }
-                }
+            Inner::Csv(r, rec, idx) => {
+                let zone = self.h.zone_hint.as_deref();
+                let (time, cols, texts) =
+                    csv_batch(path, first, r, rec, idx, self.cols.len(), zone)?;
                 if time.is_empty() {
                     return Ok(None);
                 }
