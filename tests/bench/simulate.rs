@@ -1,12 +1,26 @@
-//! Benchmark: one year at 1 s of the split-phase demo, all files written,
-//! against a floor run that writes the same columns and rows of precomputed
-//! values to Parquet. Prints wall time, peak memory, appliance-samples per
-//! second and the ratio. Targets: ratio ≤ 1.5, peak memory < 512 MB.
+//! Benchmark, two parts.
 //!
-//!     cargo bench --bench simulate            # one year (about 5 minutes)
-//!     LOADLOOM_BENCH_DAYS=30 cargo bench --bench simulate
+//! 1. Against pyarrow: 30 days at 1 s of the split-phase demo, simulated and
+//!    written by loadloom (the whole run), then the same tables, read into
+//!    memory first, written by pyarrow at loadloom's settings
+//!    (`tests/bench/pyarrow_write.py`, the test virtual environment's
+//!    python; only its write is timed). Prints per round and overall:
+//!    loadloom whole run / pyarrow write alone (target ≤ 1.0) and loadloom
+//!    bytes / pyarrow bytes (target ≤ 1.05). Skipped, saying so, without
+//!    `.venv`.
+//! 2. One year at 1 s (LOADLOOM_BENCH_DAYS), all files written, against a
+//!    floor run that writes the same columns and rows of precomputed values;
+//!    peak memory (target < 512 MB) and the ratio (target ≤ 1.5).
+//!
+//! ```text
+//! cargo bench --bench simulate            # about 5 minutes
+//! LOADLOOM_BENCH_DAYS=30 LOADLOOM_BENCH_ROUNDS=5 cargo bench --bench simulate
+//! ```
 //!
 //! Each run is a child process of its own, so peak memory (VmHWM) is its own.
+
+#[path = "common.rs"]
+mod common;
 
 use loadloom::dataset::sink::{Format, Sink, Values};
 use loadloom::dataset::tables::Tables;
@@ -22,16 +36,6 @@ fn scenario(days: f64) -> Scenario {
         .expect("demo parses");
     s.run.length_s = days * 86400.0;
     s
-}
-
-fn peak_kb() -> u64 {
-    let status = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
-    status
-        .lines()
-        .find(|l| l.starts_with("VmHWM:"))
-        .and_then(|l| l.split_whitespace().nth(1))
-        .and_then(|v| v.parse().ok())
-        .unwrap_or(0)
 }
 
 fn sim(s: &Scenario, out: &Path) {
@@ -163,6 +167,15 @@ fn floor(s: &Scenario, out: &Path) {
     );
 }
 
+/// CPU time of this process, all threads, user + system (getrusage(2)).
+fn cpu_seconds() -> f64 {
+    // SAFETY: getrusage fills the struct it is given; a zeroed one is valid.
+    let mut u: libc::rusage = unsafe { std::mem::zeroed() };
+    unsafe { libc::getrusage(libc::RUSAGE_SELF, &mut u) };
+    let t = |v: libc::timeval| v.tv_sec as f64 + v.tv_usec as f64 / 1e6;
+    t(u.ru_utime) + t(u.ru_stime)
+}
+
 fn child(mode: &str, days: f64, dir: &Path) {
     let s = scenario(days);
     let started = Instant::now();
@@ -171,10 +184,11 @@ fn child(mode: &str, days: f64, dir: &Path) {
         _ => floor(&s, &dir.join("floor")),
     }
     let wall = started.elapsed().as_secs_f64();
-    println!("{wall} {}", peak_kb());
+    println!("{wall} {} {}", common::peak_mb(), cpu_seconds());
 }
 
-fn measure(mode: &str, days: f64, dir: &Path) -> (f64, f64) {
+/// Runs a child: (wall s, peak MB, CPU s).
+fn measure(mode: &str, days: f64, dir: &Path) -> (f64, f64, f64) {
     let exe = std::env::current_exe().unwrap();
     let o = Command::new(exe)
         .args(["--child", mode, &days.to_string(), dir.to_str().unwrap()])
@@ -191,10 +205,8 @@ fn measure(mode: &str, days: f64, dir: &Path) -> (f64, f64) {
         .unwrap()
         .to_string();
     let mut it = line.split_whitespace();
-    (
-        it.next().unwrap().parse().unwrap(),
-        it.next().unwrap().parse::<f64>().unwrap() / 1024.0,
-    )
+    let mut next = || it.next().unwrap().parse::<f64>().unwrap();
+    (next(), next(), next())
 }
 
 fn dir_bytes(d: &Path) -> u64 {
@@ -207,6 +219,90 @@ fn dir_bytes(d: &Path) -> u64 {
                 .sum()
         })
         .unwrap_or(0)
+}
+
+/// Bytes of the dataset's Parquet files (the tables both writers write).
+fn parquet_bytes(d: &Path) -> u64 {
+    ["meters", "truth", "events"]
+        .iter()
+        .map(|t| {
+            std::fs::metadata(d.join(format!("{t}.parquet")))
+                .unwrap()
+                .len()
+        })
+        .sum()
+}
+
+/// pyarrow writing the tables of `dataset` again: (wall s, CPU s, bytes).
+fn pyarrow(python: &Path, dataset: &Path, out: &Path) -> (f64, f64, u64) {
+    let script = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/bench/pyarrow_write.py");
+    let o = Command::new(python)
+        .arg(script)
+        .args([dataset, out])
+        .output()
+        .unwrap();
+    assert!(
+        o.status.success(),
+        "pyarrow: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    (
+        v["seconds"].as_f64().unwrap(),
+        v["cpu_seconds"].as_f64().unwrap(),
+        v["bytes"].as_u64().unwrap(),
+    )
+}
+
+/// Part 1: rounds of loadloom's whole run then pyarrow's write alone.
+fn against_pyarrow(dir: &Path) {
+    let python = Path::new(env!("CARGO_MANIFEST_DIR")).join(".venv/bin/python");
+    if !python.exists() {
+        println!(
+            "against pyarrow: SKIPPED, {} not found (make it: python3 -m venv .venv && .venv/bin/pip install -r tests/requirements.txt)",
+            python.display()
+        );
+        return;
+    }
+    let rounds: usize = std::env::var("LOADLOOM_BENCH_ROUNDS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(3);
+    let threads = loadloom::dataset::threads().unwrap();
+    let days = 30.0;
+    let s = scenario(days);
+    println!(
+        "against pyarrow: split-phase demo, {days} d at 1 s, {} rows, {threads} encoding threads, {rounds} rounds",
+        s.intervals()
+    );
+    let (mut time_ratios, mut byte_ratios) = (Vec::new(), Vec::new());
+    for r in 0..rounds {
+        let d = dir.join(format!("round{r}"));
+        let (t_sim, m_sim, c_sim) = measure("sim", days, &d);
+        let b_sim = parquet_bytes(&d.join(&s.name));
+        let (t_pa, c_pa, b_pa) = pyarrow(&python, &d.join(&s.name), &d.join("pyarrow"));
+        let (tr, br) = (t_sim / t_pa, b_sim as f64 / b_pa as f64);
+        println!(
+            "  round {}: loadloom {t_sim:5.2} s (CPU {c_sim:5.2} s, peak {m_sim:4.0} MB) {:5.1} MB | pyarrow write {t_pa:5.2} s (CPU {c_pa:5.2} s) {:5.1} MB | time {tr:4.2}  bytes {br:5.3}",
+            r + 1,
+            b_sim as f64 / 1e6,
+            b_pa as f64 / 1e6
+        );
+        time_ratios.push(tr);
+        byte_ratios.push(br);
+        let _ = std::fs::remove_dir_all(&d);
+    }
+    time_ratios.sort_by(f64::total_cmp);
+    println!(
+        "ratio loadloom whole run / pyarrow write alone: median {:.2}, best {:.2}, worst {:.2}   (target ≤ 1.0)",
+        time_ratios[time_ratios.len() / 2],
+        time_ratios[0],
+        time_ratios[time_ratios.len() - 1]
+    );
+    println!(
+        "ratio loadloom bytes / pyarrow bytes:           {:.3}   (target ≤ 1.05)",
+        byte_ratios[0]
+    );
 }
 
 fn main() {
@@ -225,11 +321,12 @@ fn main() {
         .unwrap_or(365.0);
     let dir: PathBuf = std::env::temp_dir().join(format!("loadloom-bench-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
+    against_pyarrow(&dir);
     let s = scenario(days);
     let samples = s.run.steps() as f64 * s.appliances.len() as f64;
-    let (t_floor, m_floor) = measure("floor", days, &dir);
+    let (t_floor, m_floor, _) = measure("floor", days, &dir);
     let floor_bytes = dir_bytes(&dir.join("floor"));
-    let (t_sim, m_sim) = measure("sim", days, &dir);
+    let (t_sim, m_sim, _) = measure("sim", days, &dir);
     let sim_bytes = dir_bytes(&dir.join(&s.name));
     println!(
         "split-phase demo, {days} d at 1 s, {} appliances, {} rows",
