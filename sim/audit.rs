@@ -16,13 +16,8 @@ use std::path::Path;
 
 /// Reads a declaration: a scenario file, whose `[run]` may be left out.
 pub fn load_declaration(path: &Path) -> Result<Declared, scenario::Error> {
-    let text = std::fs::read_to_string(path).map_err(|e| {
-        scenario::Error::file(
-            path,
-            format!("cannot read the declaration: {e}"),
-            "check the path",
-        )
-    })?;
+    // A regular file of bounded size in UTF-8, as every scenario.
+    let text = scenario::source::read_source(path, "declaration")?;
     let has_run = text
         .parse::<toml_edit::DocumentMut>()
         .map(|d| d.contains_key("run"))

@@ -404,3 +404,34 @@ fn a_start_with_an_offset_or_in_a_clock_change_is_refused() {
         assert_refused(name, from, to, needle);
     }
 }
+
+#[test]
+fn a_declaration_that_is_a_fifo_is_refused_at_once() {
+    let d = scratch("declared");
+    let fifo = d.join("declared.toml");
+    let c = std::ffi::CString::new(fifo.to_str().unwrap()).unwrap();
+    // SAFETY: a valid NUL-terminated path.
+    assert_eq!(unsafe { libc::mkfifo(c.as_ptr(), 0o600) }, 0);
+    let mut child = bin()
+        .args([
+            "audit",
+            d.to_str().unwrap(),
+            "--declared",
+            fifo.to_str().unwrap(),
+        ])
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let start = std::time::Instant::now();
+    while child.try_wait().unwrap().is_none() {
+        if start.elapsed().as_secs() > 20 {
+            child.kill().unwrap();
+            panic!("audit --declared FIFO hangs");
+        }
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    let o = child.wait_with_output().unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("not a regular file"));
+    let _ = std::fs::remove_dir_all(&d);
+}

@@ -82,7 +82,7 @@ def test_a_population_error_points_at_the_population_line(tmp_path):
 
 def test_seeded_hostile_batch_through_the_binary():
     # A few hundred cases in CI; LOADLOOM_HOSTILE_CASES asks for more.
-    cases = int(os.environ.get("LOADLOOM_HOSTILE_CASES", "150"))
+    cases = int(os.environ.get("LOADLOOM_HOSTILE_CASES", "300"))
     rng = random.Random(18)
     faults = []
     for i in range(cases):
