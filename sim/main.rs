@@ -106,7 +106,7 @@ enum Command {
     Roundtrip {
         /// The scenario file (TOML); with --suite, a folder of them (default scenarios/).
         scenario: Option<PathBuf>,
-        /// `builtin:mean`, `builtin:co`, `builtin:co-conductor`, or a command
+        /// `builtin:training-mean`, `builtin:combinatorial`, `builtin:combinatorial-per-line`, or a command
         /// holding {task} and {estimate}, e.g. "python3 mine.py {task} {estimate}" (run without a shell).
         #[arg(long)]
         solver: String,
@@ -644,6 +644,9 @@ fn main() -> ExitCode {
             // Orphans of a solver (even one that called setsid) are handed
             // to this process, so none outlives the round trip.
             solver_check::child::become_subreaper();
+            if let Some(w) = solver_check::roundtrip::Solver::deprecation(&solver) {
+                eprintln!("{w}");
+            }
             let solver = match solver_check::roundtrip::Solver::parse(&solver) {
                 Ok(s) => s,
                 Err(m) => return bad(format!("--solver: {m}")),

@@ -51,6 +51,10 @@ impl Solver {
     /// no expansion); it must hold `{task}` and `{estimate}`.
     pub fn parse(text: &str) -> Result<Solver, String> {
         if let Some(name) = text.strip_prefix("builtin:") {
+            let name = crate::solvers::OLD_NAMES
+                .iter()
+                .find(|(old, _)| *old == name)
+                .map_or(name, |(_, new)| new);
             if !crate::solvers::NAMES.contains(&name) {
                 return Err(format!(
                     "no built-in solver \"{name}\"; built in: {}",
@@ -69,6 +73,13 @@ impl Solver {
             return Err(format!("the solver command must contain {{task}} and {{estimate}}, e.g. \"python3 my_solver.py {{task}} {{estimate}}\"; got \"{text}\""));
         }
         Ok(Solver::Command(argv))
+    }
+
+    /// The deprecation line for a built-in id of the previous release.
+    pub fn deprecation(text: &str) -> Option<String> {
+        let name = text.strip_prefix("builtin:")?;
+        let (old, new) = crate::solvers::OLD_NAMES.iter().find(|(o, _)| *o == name)?;
+        Some(format!("warning: builtin:{old} is renamed builtin:{new}; the old id is accepted in this release only"))
     }
 
     pub fn describe(&self) -> String {

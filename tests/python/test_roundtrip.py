@@ -20,7 +20,7 @@ def roundtrip(scenario, solver, out, *extra, check=True):
 
 
 @pytest.mark.parametrize("demo", DEMOS, ids=[d.stem for d in DEMOS])
-@pytest.mark.parametrize("solver", ["builtin:mean", "builtin:co", "builtin:co-conductor", "python"])
+@pytest.mark.parametrize("solver", ["builtin:training-mean", "builtin:combinatorial", "builtin:combinatorial-per-line", "python"])
 def test_every_solver_on_every_demo(demo, solver, tmp_path):
     cmd = f"{PY} {HERE / 'solvers' / 'share.py'} {{task}} {{estimate}}" if solver == "python" else solver
     p = roundtrip(demo, cmd, tmp_path, "--json")
@@ -33,7 +33,7 @@ def test_every_solver_on_every_demo(demo, solver, tmp_path):
     assert len(r["appliances"]) == len(task["appliances"]) >= 15
     o = r["overall"]
     assert 0 <= o["f1"] <= 1 and o["mae_w"] >= 0
-    if solver != "builtin:mean":
+    if solver != "builtin:training-mean":
         # Every solver that follows the measured total gets the energy nearly right.
         assert abs(o["energy_error_pct"]) < 15, o
 
@@ -41,7 +41,7 @@ def test_every_solver_on_every_demo(demo, solver, tmp_path):
 def test_reveal_levels_hide_what_they_should(tmp_path):
     demo = ROOT / "scenarios" / "three-phase-house.toml"
     for level, keys in [("ids", {"id"}), ("wiring", {"id", "label", "wiring", "connections", "conductors"}), ("states", {"id", "label", "wiring", "connections", "conductors", "on_threshold_w", "states"})]:
-        roundtrip(demo, "builtin:mean", tmp_path, "--reveal", level)
+        roundtrip(demo, "builtin:training-mean", tmp_path, "--reveal", level)
         task = json.loads((tmp_path / "three-phase-house-roundtrip" / "task" / "task.json").read_text())
         assert task["reveal"] == level
         assert all(set(a) == keys for a in task["appliances"]), level
@@ -78,7 +78,7 @@ def test_bad_solver_commands_exit_2(tmp_path):
 
 def test_suite_prints_how_scores_degrade(tmp_path):
     demo = ROOT / "scenarios" / "three-phase-house.toml"
-    p = loadloom("roundtrip", demo, "--suite", "--solver", "builtin:co", "--train", "1d", "--test", "1d", "--out", tmp_path, "--json")
+    p = loadloom("roundtrip", demo, "--suite", "--solver", "builtin:combinatorial", "--train", "1d", "--test", "1d", "--out", tmp_path, "--json")
     r = json.loads(p.stdout)
     assert r["format"] == "loadloom-suite/1"
     rungs = [x["rung"] for x in r["rows"]]
@@ -93,5 +93,15 @@ def test_suite_prints_how_scores_degrade(tmp_path):
     m = json.loads((suite / "unmetered-20" / "three-phase-house" / "manifest.json").read_text())
     assert abs(m["summary"]["unmetered_energy_share"] - 0.2) < 0.06, m["summary"]
     assert json.loads((suite / "interval-1-min" / "three-phase-house" / "manifest.json").read_text())["meter"]["interval_s"] == 60
-    text = loadloom("roundtrip", demo, "--suite", "--solver", "builtin:mean", "--train", "1d", "--test", "1d", "--out", tmp_path).stdout
+    text = loadloom("roundtrip", demo, "--suite", "--solver", "builtin:training-mean", "--train", "1d", "--test", "1d", "--out", tmp_path).stdout
     assert "accuracy vs as written" in text and "interval 1 min" in text
+
+
+def test_old_builtin_ids_work_for_one_release_with_a_deprecation_line(tmp_path):
+    demo = ROOT / "scenarios" / "apartment-208.toml"
+    for old, new in [("mean", "training-mean"), ("co", "combinatorial"), ("co-conductor", "combinatorial-per-line")]:
+        p = roundtrip(demo, f"builtin:{old}", tmp_path, "--json")
+        assert f"builtin:{old} is renamed builtin:{new}" in p.stderr, p.stderr
+        assert json.loads(p.stdout)["solver"]["command"] == f"builtin:{new}"
+    p = roundtrip(demo, "builtin:combinatorial", tmp_path, "--json")
+    assert "renamed" not in p.stderr

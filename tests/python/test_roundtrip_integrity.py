@@ -110,7 +110,7 @@ def test_a_planted_log_link_is_not_written_through(tmp_path):
     work = tmp_path / "out" / "apartment-208-roundtrip"
     work.mkdir(parents=True)
     (work / "solver.log").symlink_to(victim)
-    for solver in [cheat("honest"), "builtin:mean"]:
+    for solver in [cheat("honest"), "builtin:training-mean"]:
         score_of(roundtrip(solver, tmp_path / "out", "--json"))
         assert victim.read_text() == "keep me\n"
         assert not (work / "solver.log").is_symlink()

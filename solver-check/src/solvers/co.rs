@@ -1,4 +1,4 @@
-//! `builtin:co`: combinatorial optimisation (Hart, "Nonintrusive appliance
+//! `builtin:combinatorial`: combinatorial optimisation (Hart, "Nonintrusive appliance
 //! load monitoring", Proc. IEEE 80(12), 1992): at each interval, the
 //! combination of appliance levels whose sum is closest to the measured
 //! total, ties broken by how common the levels were in training.
@@ -8,7 +8,7 @@
 //! the most probable combination reaching every reachable sum. Each interval
 //! is then a look-up of the best reachable sum near its measurement.
 //!
-//! `builtin:co-conductor`: the same per conductor. Appliances on one line
+//! `builtin:combinatorial-per-line`: the same per conductor. Appliances on one line
 //! get a programme per line; those drawing from several lines (line-to-line,
 //! three-phase, several draws) are enumerated jointly (the most probable 4096
 //! combinations) with their learned per-line split, and each combination is

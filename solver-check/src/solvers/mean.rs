@@ -1,4 +1,4 @@
-//! `builtin:mean`: every appliance at its training mean, all the time. The
+//! `builtin:training-mean`: every appliance at its training mean, all the time. The
 //! floor any real method must beat.
 
 use super::Task;

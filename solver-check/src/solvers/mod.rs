@@ -75,15 +75,23 @@ impl Task {
 }
 
 /// Names of the built-in solvers.
-pub const NAMES: [&str; 3] = ["mean", "co", "co-conductor"];
+pub const NAMES: [&str; 3] = ["training-mean", "combinatorial", "combinatorial-per-line"];
+
+/// Ids of the previous release, accepted for one more with a deprecation
+/// line: (old, new).
+pub const OLD_NAMES: [(&str, &str); 3] = [
+    ("mean", "training-mean"),
+    ("co", "combinatorial"),
+    ("co-conductor", "combinatorial-per-line"),
+];
 
 /// Runs built-in solver `name` on the task folder, writing `estimate`.
 pub fn run(name: &str, task_dir: &Path, estimate: &Path) -> Result<(), String> {
     let task = Task::open(task_dir)?;
     let (time, cols) = match name {
-        "mean" => mean::solve(&task)?,
-        "co" => co::solve(&task, false)?,
-        "co-conductor" => co::solve(&task, true)?,
+        "training-mean" => mean::solve(&task)?,
+        "combinatorial" => co::solve(&task, false)?,
+        "combinatorial-per-line" => co::solve(&task, true)?,
         _ => {
             return Err(format!(
                 "no built-in solver \"{name}\"; built in: {}",
