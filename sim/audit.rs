@@ -14,23 +14,35 @@ use solver_check::audit::decl::{
 use solver_check::audit::events::{ChannelStats, Detector, Event};
 use std::path::Path;
 
-/// Reads a declaration: a scenario file, whose `[run]` may be left out.
+/// Reads a declaration: a scenario file, whose `[run]` may be left out,
+/// whose appliances may be short entries (`id`, `power`, `wiring`, and
+/// optionally `pf` or `q`, `rated`, `load`, `label`: an appliance that is
+/// off or on at that power), and which may say `[declaration] partial =
+/// true` when it lists only some appliances.
 pub fn load_declaration(path: &Path) -> Result<Declared, scenario::Error> {
     // A regular file of bounded size in UTF-8, as every scenario.
     let text = scenario::source::read_source(path, "declaration")?;
-    let has_run = text
+    let prep = crate::declaration::prepare(path, text)?;
+    let has_run = prep
+        .text
         .parse::<toml_edit::DocumentMut>()
         .map(|d| d.contains_key("run"))
         .unwrap_or(true);
     // A declaration need not say when to simulate: a placeholder run, after
     // the text so every position in errors stays the file's own.
-    let text = if has_run {
-        text
-    } else {
-        format!("{text}\n[run]\nstart = \"2001-01-01T00:00\"\nlength = \"1 d\"\n")
-    };
+    let mut text = prep.text;
+    if !has_run {
+        text += "\n[run]\nstart = \"2001-01-01T00:00\"\nlength = \"1 d\"\n";
+    }
     let s = scenario::load_str(path, text)?;
-    Ok(declared(&s))
+    let mut d = declared(&s);
+    d.appliances
+        .retain(|a| a.id != crate::declaration::PLACEHOLDER);
+    for e in &prep.shorts {
+        d.appliances.push(e.appliance(&d.supply));
+    }
+    d.partial = prep.partial;
+    Ok(d)
 }
 
 fn wiring(c: Connection) -> Wiring {
@@ -79,6 +91,7 @@ pub fn declared(s: &Scenario) -> Declared {
                             s: Cx::new(d.p_w, d.q_var),
                             zip_p: zip(d.zip_p),
                             zip_q: zip(d.zip_q),
+                            rated_v: d.rated_v,
                         })
                         .collect()
                 })
@@ -163,6 +176,8 @@ pub fn declared(s: &Scenario) -> Declared {
             })
             .collect(),
         appliances,
+        partial: false,
+        real_only: false,
     }
 }
 

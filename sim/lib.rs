@@ -9,6 +9,7 @@
 pub mod audit;
 pub mod behaviour;
 pub mod dataset;
+pub mod declaration;
 pub mod difficulty;
 pub mod electrical;
 pub mod fleet;

@@ -72,6 +72,7 @@ pub fn add_background(s: &mut Scenario, share: f64) {
             zip_p: k.default_zip_p(),
             zip_q: k.default_zip_q(),
             nominal_v: connection_voltage(&s.home, wiring),
+            rated_v: None,
             harmonics: k.default_harmonics(),
         };
         s.unmetered.push(Appliance {

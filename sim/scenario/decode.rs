@@ -1236,11 +1236,13 @@ fn decode_draw_fields(
     // A draw rated at another voltage (a 240 V water heater on a 208 V
     // apartment's two lines) gives its power at that voltage; at this
     // connection's nominal voltage it draws what its ZIP model says.
+    let mut rated_v = None;
     if let Some(n) = t.opt("rated") {
         let rated = in_range(ctx, n, &t.path_of("rated"), Kind::Voltage, RATED_V)?;
         let u = nominal_v / rated;
         p_w *= zip_p.factor(u);
         q_var *= zip_q.factor(u);
+        rated_v = Some(rated);
     }
     Ok(Draw {
         wiring,
@@ -1250,6 +1252,7 @@ fn decode_draw_fields(
         zip_p,
         zip_q,
         nominal_v,
+        rated_v,
         harmonics,
     })
 }

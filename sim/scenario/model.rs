@@ -216,6 +216,10 @@ pub struct Draw {
     pub zip_q: Zip,
     /// Nominal voltage across this draw's connection, V.
     pub nominal_v: f64,
+    /// The voltage `rated` gave its power at, if any (`p_w` is already
+    /// rescaled to `nominal_v`); the audit rescales it on other connections.
+    #[serde(skip)]
+    pub rated_v: Option<f64>,
     /// Harmonic signature of its current (waveforms only).
     pub harmonics: Vec<Harmonic>,
 }

@@ -54,7 +54,16 @@ impl Metering {
     /// Channel readings of per-conductor powers `t` (None: channel absent).
     pub fn read(&self, d: &Declared, t: &[Cx]) -> Vec<Option<Cx>> {
         (0..self.map.len())
-            .map(|c| (!self.absent[c]).then(|| t[self.map[c].src] * self.factor(d, c)))
+            .map(|c| {
+                (!self.absent[c]).then(|| {
+                    let r = t[self.map[c].src] * self.factor(d, c);
+                    if d.real_only {
+                        Cx::new(r.re, 0.0)
+                    } else {
+                        r
+                    }
+                })
+            })
             .collect()
     }
 }
@@ -97,13 +106,22 @@ pub struct ApplianceCheck {
 
 #[derive(Clone, Debug)]
 pub struct Outcome {
+    /// Findings of confidence `POSSIBLE` or more.
     pub findings: Vec<Finding>,
+    /// Findings below that: listed apart, as what an installer may look at.
+    pub possible: Vec<Finding>,
     pub appliances: Vec<ApplianceCheck>,
     pub metering: Metering,
     pub steps: usize,
     pub steps_explained: usize,
     pub notes: Vec<String>,
 }
+
+/// Findings below this confidence are listed apart as "possible". A
+/// finding's confidence is the share of the evidence that speaks for it
+/// against the declaration (steps or appliances that only the finding
+/// explains, or the share of negative power the declaration implies).
+pub const POSSIBLE: f64 = 0.5;
 
 /// Steps smaller than this (largest channel, VA) are not used to decide.
 pub const USE_STEP: f64 = 100.0;
@@ -647,14 +665,14 @@ fn alternatives(d: &Declared, a: &DeclAppliance) -> Vec<(String, DeclAppliance)>
         Wiring::all(n)
             .into_iter()
             .filter(|w| *w != ws[0])
-            .map(|w| (w.name(), a.rewired(|_| w)))
+            .map(|w| (w.name(), a.rewired_on(&d.supply, |_| w)))
             .collect()
     } else {
         permutations(n)
             .into_iter()
             .skip(1)
             .map(|p| {
-                let b = a.rewired(|w| w.permuted(&p));
+                let b = a.rewired_on(&d.supply, |w| w.permuted(&p));
                 (
                     b.wirings()
                         .iter()
@@ -831,7 +849,7 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     // metering chosen above. (A misdeclared appliance that switches often
     // can otherwise tip the choice; a lower bar, 90 %, kept the declared
     // metering where two channels were in fact exchanged.)
-    let chosen = if chosen != decl_i && decl_neg <= NEGATIVE_OK {
+    let mut chosen = if chosen != decl_i && decl_neg <= NEGATIVE_OK {
         // The other appliances' fits stay as they are while one is moved.
         let fits: Vec<Fits> = d
             .appliances
@@ -858,28 +876,51 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     } else {
         chosen
     };
-    let m = hyps[chosen].0.clone();
+    // 2. Appliances, under the metering chosen; several appliances moved
+    // where one metering fault explains as much is the less simple account.
+    let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
+    let mut m = hyps[chosen].0.clone();
+    let mut cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
+    let mut moves = Vec::new();
+    let (mut checks, mut placed) = place(d, &m, &used, &cxs, interval_s, &mut moves);
+    let mut replaced = 0;
+    if chosen == decl_i && moves.len() >= 2 {
+        if let Some(alt) = simpler_metering(d, &decl_m, &placed, &big, &scored, decl_i) {
+            (chosen, replaced) = (alt, moves.len());
+            m = hyps[chosen].0.clone();
+            cxs = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
+            moves.clear();
+            (checks, placed) = place(d, &m, &used, &cxs, interval_s, &mut moves);
+        }
+    }
     let (ch_apps, ch_ex) = (scored[chosen].1, scored[chosen].2);
     if chosen != decl_i {
+        // The share of the steps the declared metering leaves unexplained
+        // that the metering found explains, of the appliances only it fits,
+        // of the appliance moves it replaces, or of negative power the
+        // declared one implies: whichever says most.
         let by_apps = 1.0 - (decl_apps as f64 + 1.0) / (ch_apps as f64 + 1.0);
-        let conf = if decl_neg > NEGATIVE_OK {
-            decl_neg.max(by_apps)
+        let by_steps = ch_ex.saturating_sub(decl_ex) as f64
+            / (big.len().saturating_sub(decl_ex) as f64).max(1.0);
+        let by_moves = if replaced > 0 {
+            1.0 - 1.0 / replaced as f64
         } else {
-            by_apps
+            0.0
         };
-        let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg });
+        let mut conf = by_apps.max(by_steps).max(by_moves);
+        if decl_neg > NEGATIVE_OK {
+            conf = conf.max(decl_neg);
+        }
+        let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg, "appliance_moves_replaced": replaced });
         metering_findings(d, &decl_m, &m, conf.clamp(0.0, 1.0), ev, &mut findings);
     }
+    findings.extend(moves);
     notes.push(format!("metering: {ch_apps} appliances and {ch_ex} of {} steps of 150 VA or more fit under the metering found ({decl_apps} and {decl_ex} as declared)", big.len()));
     for j in 0..d.appliances.len() {
         if let Some(o) = indistinct(d, j) {
             notes.push(format!("{}: its steps of 500 W or more are those of {o} as well; the data cannot tell the two apart", d.appliances[j].id));
         }
     }
-    // 2. Appliances.
-    let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
-    let cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
-    let (checks, placed) = place(d, &m, &used, &cxs, interval_s, &mut findings);
     // 3. Undeclared recurring loads.
     let explain: Vec<Pred> = placed.iter().map(|a| Pred::of(d, &m, a)).collect();
     let own: Vec<Option<Vec<Option<Cx>>>> = placed.iter().map(|a| shape_of(d, &m, a)).collect();
@@ -916,14 +957,42 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     let sums = coincidences(d, &m, &placed, &used, interval_s, hours);
     undeclared(d, &m, &used, &fit, &sums, total_wh, &mut findings);
     let steps_explained = fit.iter().filter(|x| **x).count();
+    let (findings, possible) = findings.into_iter().partition(|f| f.confidence >= POSSIBLE);
     Outcome {
         findings,
+        possible,
         appliances: checks,
         metering: m,
         steps: used.len(),
         steps_explained,
         notes,
     }
+}
+
+/// The metering hypothesis (index into `scored`: index, appliances,
+/// steps explained, negative share, cost) that explains, with every
+/// appliance as declared, at least as many of `big` as the declared
+/// metering does with the appliances `placed` (moved): one metering fault
+/// is a simpler account than several appliances moved.
+fn simpler_metering(
+    d: &Declared,
+    decl_m: &Metering,
+    placed: &[DeclAppliance],
+    big: &[&Event],
+    scored: &[(usize, usize, usize, f64, usize)],
+    decl_i: usize,
+) -> Option<usize> {
+    let dp = Declared {
+        appliances: placed.to_vec(),
+        ..d.clone()
+    };
+    let (_, with_moves) = explained(&dp, decl_m, big);
+    scored
+        .iter()
+        .filter(|s| s.0 != decl_i && s.3 <= NEGATIVE_OK)
+        .max_by_key(|s| (s.2, usize::MAX - s.4))
+        .filter(|s| s.2 >= with_moves)
+        .map(|s| s.0)
 }
 
 fn metering_findings(
@@ -1022,16 +1091,33 @@ fn first(ms: &[i64]) -> Vec<String> {
 fn start_stop_pairs(on: &[i64], off: &[i64]) -> Vec<(i64, i64)> {
     let mut out = Vec::new();
     let mut j = 0;
-    for &t in on {
+    for (i, &t) in on.iter().enumerate() {
         while j < off.len() && off[j] <= t {
             j += 1;
         }
-        if j < off.len() && off[j] - t <= 12 * 3_600_000 {
+        // The stop must come before the load's next start: a start whose
+        // stop was not seen (it fell among other changes) does not borrow
+        // a later cycle's stop.
+        let next = on.get(i + 1).copied().unwrap_or(i64::MAX);
+        if j < off.len() && off[j] - t <= 12 * 3_600_000 && off[j] < next {
             out.push((t, off[j]));
             j += 1;
         }
     }
     out
+}
+
+/// The energy of a load of `p_w` started at `on` and stopped at `off`,
+/// Wh, as a share of `total_wh` (None when no start pairs with a stop):
+/// the mean length of the runs seen whole, for every start.
+fn energy_share(p_w: f64, on: &[i64], off: &[i64], total_wh: f64) -> Option<f64> {
+    let pairs = start_stop_pairs(on, off);
+    if pairs.is_empty() || total_wh <= 0.0 {
+        return None;
+    }
+    let mean_h =
+        pairs.iter().map(|(a, b)| (b - a) as f64).sum::<f64>() / pairs.len() as f64 / 3_600_000.0;
+    Some((p_w * mean_h * on.len() as f64 / total_wh).clamp(0.0, 1.0))
 }
 
 /// Whether recurring steps behave as one load's: started or stopped three
@@ -1226,18 +1312,24 @@ fn undeclared(
         if poisson_tail(expected, c.on.len() + c.off.len()) > COINCIDENCE_P {
             continue;
         }
-        // Energy: each start paired with the next stop within 12 h.
-        let pairs = start_stop_pairs(&c.on, &c.off);
-        let wh: f64 = pairs
-            .iter()
-            .map(|(a, b)| c.s.re * (b - a) as f64 / 3_600_000.0)
-            .sum();
-        let share = if total_wh > 0.0 { wh / total_wh } else { 0.0 };
+        let share = energy_share(c.s.re, &c.on, &c.off, total_wh);
+        let share_text = match share {
+            Some(x) => format!("about {:.1} % of the energy", 100.0 * x),
+            None => "its share of the energy unknown (no run seen whole)".into(),
+        };
+        // `+ 0.0` turns a negative zero into zero (never "-0.0" printed).
+        let expected = expected.max(0.0) + 0.0;
         out.push(Finding {
             kind: "undeclared-load",
             subject: format!("{:.0} W on {}", c.s.re, c.wiring),
-            message: format!("a recurring load of about {:.0} W (pf {:.2}) on {} that no declared appliance explains: started {} times, stopped {} times (two declared appliances switching together would make about {:.1} such steps), about {:.1} % of the energy", c.s.re, c.s.re / c.s.abs(), c.wiring, c.on.len(), c.off.len(), expected, 100.0 * share),
-            confidence: ((c.on.len().min(c.off.len())) as f64 / 10.0).min(1.0),
+            message: format!("a recurring load of about {:.0} W (pf {:.2}) on {} that no declared appliance explains: started {} times, stopped {} times (two declared appliances switching together would make about {:.1} such steps), {share_text}", c.s.re, c.s.re / c.s.abs(), c.wiring, c.on.len(), c.off.len(), expected),
+            // Runs seen whole, n, as n / (n + 2): a load seen to start
+            // and stop twice is as likely there as not; steps seen one way
+            // only (a start without its stop) count for nothing.
+            confidence: {
+                let n = start_stop_pairs(&c.on, &c.off).len() as f64;
+                n / (n + 2.0)
+            },
             evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "coincidences_expected": expected, "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring, "energy_share": share, "first_starts": first(&c.on), "first_stops": first(&c.off) }),
         });
     }
@@ -1365,6 +1457,13 @@ fn move_finding(
         evidence: json!({ "steps_as_declared": n_d, "steps_as_found": n_a, "declared": declared, "found": found, "step_w": step_w }),
     }
 }
+
+/// Steps that fit an appliance as declared and no other appliance, each
+/// of its main step sizes among them, that keep it where it is declared
+/// however many steps of its size show elsewhere (an undeclared load of the
+/// same size on another line): two runs seen whole where declared (common
+/// practice, no source).
+const SHOWS_AS_DECLARED: usize = 4;
 
 /// An appliance placed on another wiring must show there, among all the
 /// steps that fit it, each of its step sizes of this share of its largest
@@ -1586,7 +1685,15 @@ fn place(
             ck.steps_declared = n_d;
             let (n_a, all_a, who, mine, name_a, alt) = best_other();
             ck.steps_best_other = n_a;
-            let moves = n_a >= 3 && n_a >= 3 * n_d + 2;
+            // An appliance that shows where declared, each of its main
+            // step sizes there, stays there: steps of its size elsewhere
+            // are another load's (left to the undeclared loads), not a
+            // reason to move it.
+            let stays = n_d >= SHOWS_AS_DECLARED && {
+                let (.., mine_d) = excl(j, &sigs[j]);
+                coverage(d, m, a, used, cxs, &mine_d, WHOLE_SHARE) >= 1.0
+            };
+            let moves = !stays && n_a >= 3 && n_a >= 3 * n_d + 2;
             let whole = moves && coverage(d, m, &alt, used, cxs, &all_a, WHOLE_SHARE) >= 1.0;
             if whole {
                 let f = move_finding(d, a, &alt, &name_a, Some(n_d), n_a);
@@ -1640,6 +1747,24 @@ mod tests {
             vec![(0, H), (2 * H, 3 * H)]
         );
         assert_eq!(start_stop_pairs(&[5 * H], &[H]), vec![]);
+        // A start whose stop was not seen does not take the next run's stop.
+        assert_eq!(
+            start_stop_pairs(&[0, 2 * H], &[2 * H + H / 2]),
+            vec![(2 * H, 2 * H + H / 2)]
+        );
+    }
+
+    /// A load of 1 kW seen to start four times, with two runs of 30 min
+    /// seen whole, used 4 × 0.5 h × 1 kW = 2 kWh (the mean run for every
+    /// start); never more than all the energy, nothing when no run is whole.
+    #[test]
+    fn energy_share_counts_every_start_at_the_mean_run() {
+        let on = [0, 2 * H, 4 * H, 6 * H];
+        let off = [H / 2, 6 * H + H / 2];
+        let s = energy_share(1000.0, &on, &off, 20_000.0).unwrap();
+        assert!((s - 0.1).abs() < 1e-12, "{s}");
+        assert_eq!(energy_share(1000.0, &on, &off, 100.0), Some(1.0));
+        assert_eq!(energy_share(1000.0, &on, &[], 20_000.0), None);
     }
 
     /// A load stops after it starts: three stops then two starts are no
@@ -1686,6 +1811,7 @@ mod tests {
                     s,
                     zip_p: Zip::POWER,
                     zip_q: Zip::POWER,
+                    rated_v: None,
                 }],
             ],
             steps: Steps::Jumps(vec![(0, 1, 1.0, 1.0), (1, 0, 1.0, 1.0)]),
@@ -1715,6 +1841,8 @@ mod tests {
                 },
             ],
             appliances,
+            partial: false,
+            real_only: false,
         }
     }
 

@@ -240,6 +240,10 @@ pub struct DeclDraw {
     /// Voltage dependence of P and of Q.
     pub zip_p: Zip,
     pub zip_q: Zip,
+    /// The voltage its power was given at, when the declaration rates it
+    /// (a 240 V element): on another connection it draws what its ZIP
+    /// model gives at that connection's voltage, not the same power.
+    pub rated_v: Option<f64>,
 }
 
 impl DeclDraw {
@@ -317,6 +321,31 @@ impl DeclAppliance {
         }
         a
     }
+    /// The same appliance wired otherwise on `supply`: every draw moved by
+    /// `f`, and a rated draw's power rescaled to its new connection's
+    /// nominal voltage (a 4.5 kW, 240 V element declared line-to-neutral
+    /// at 120 V is taken at 1.1 kW there, and is 4.5 kW again across the
+    /// two lines).
+    pub fn rewired_on(&self, supply: &Supply, f: impl Fn(Wiring) -> Wiring) -> DeclAppliance {
+        let mut a = self.clone();
+        for st in a.states.iter_mut() {
+            for d in st.iter_mut() {
+                let to = f(d.wiring);
+                if let Some(r) = d.rated_v {
+                    let (u0, u1) = (
+                        supply.nominal_across(d.wiring) / r,
+                        supply.nominal_across(to) / r,
+                    );
+                    d.s = Cx::new(
+                        d.s.re * d.zip_p.factor(u1) / d.zip_p.factor(u0),
+                        d.s.im * d.zip_q.factor(u1) / d.zip_q.factor(u0),
+                    );
+                }
+                d.wiring = to;
+            }
+        }
+        a
+    }
     /// Largest real-power step any of its jumps makes, W.
     pub fn largest_step_w(&self) -> f64 {
         self.steps
@@ -348,6 +377,12 @@ pub struct Declared {
     pub supply: Supply,
     pub channels: Vec<DeclChannel>,
     pub appliances: Vec<DeclAppliance>,
+    /// The declaration lists only some of the appliances (`[declaration]
+    /// partial = true`): loads it does not list are expected, not mistakes.
+    pub partial: bool,
+    /// The meter reads real power only: expected readings are compared by
+    /// their real parts.
+    pub real_only: bool,
 }
 
 impl Declared {
@@ -396,6 +431,14 @@ impl Declared {
 }
 
 impl Declared {
+    /// The same declaration checked against a meter that reads real power
+    /// only: every expected reading is its real part.
+    pub fn real_power_only(&self) -> Declared {
+        let mut d = self.clone();
+        d.real_only = true;
+        d
+    }
+
     /// The per-line proportions of a wandering appliance's steps, if it wanders.
     pub fn shape(&self, a: &DeclAppliance) -> Option<Vec<Cx>> {
         match a.steps {
@@ -413,6 +456,43 @@ impl Declared {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A 4.5 kW element rated at 240 V declared line-to-neutral on a
+    /// 120/240 V supply draws (120/240)² of that at 120 V (P = V²/R, Ohm's
+    /// law); moved across the two lines it is 4.5 kW again. A draw with no
+    /// rated voltage keeps its power wherever it is moved.
+    #[test]
+    fn a_rated_draw_moved_to_another_connection_draws_what_its_voltage_gives() {
+        let sp = Supply {
+            kind: "split-phase".into(),
+            angles_deg: vec![0.0, 180.0],
+            voltage_v: 120.0,
+            service_a: 100.0,
+        };
+        let r = Zip {
+            z: 1.0,
+            i: 0.0,
+            p: 0.0,
+        };
+        let draw = |rated_v| DeclDraw {
+            wiring: Wiring::LineNeutral(0),
+            s: Cx::new(4500.0 * 0.25, 0.0),
+            zip_p: r,
+            zip_q: r,
+            rated_v,
+        };
+        let app = |rated_v| DeclAppliance {
+            id: "wh".into(),
+            label: "wh".into(),
+            states: vec![vec![], vec![draw(rated_v)]],
+            steps: Steps::Jumps(vec![(0, 1, 1.0, 1.0)]),
+        };
+        let moved = app(Some(240.0)).rewired_on(&sp, |_| Wiring::LineLine(0, 1));
+        assert!((moved.states[1][0].s.re - 4500.0).abs() < 1e-9);
+        assert_eq!(moved.states[1][0].wiring, Wiring::LineLine(0, 1));
+        let kept = app(None).rewired_on(&sp, |_| Wiring::LineLine(0, 1));
+        assert!((kept.states[1][0].s.re - 1125.0).abs() < 1e-9);
+    }
 
     fn supply(kind: &str, angles: &[f64]) -> Supply {
         Supply {

@@ -28,6 +28,8 @@ pub struct Loading {
     pub imbalance: Option<f64>,
     pub neutral_peak_measured_a: Option<f64>,
     pub neutral_peak_estimated_a: f64,
+    /// Whether the table has current columns (else currents are from power).
+    pub current_measured: bool,
 }
 
 /// Line-to-neutral phase angles of the supply, degrees (from the manifest).
@@ -42,23 +44,37 @@ pub fn loading(dataset: &Path) -> Result<Loading, String> {
     let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
     let service_a = ds.manifest["supply"]["service_a"].as_f64().unwrap_or(0.0);
     let h = header(&super::meters_file(dataset)?).map_err(|e| e.to_string())?;
-    loading_of(&h, &ds.lines, &angles(&ds), service_a)
+    let nominal_v = ds.manifest["supply"]["voltage_ln_v"]
+        .as_f64()
+        .unwrap_or(f64::NAN);
+    loading_of(&h, &ds.lines, &angles(&ds), service_a, nominal_v)
 }
 
-/// The loading picture of a meters table with these line channels.
+/// The loading picture of a meters table with these line channels. A table
+/// without current columns (a monitor giving P, or P and V, only) gets each
+/// line's current from its apparent power over its voltage (measured, else
+/// `nominal_v`), with unity power factor when Q is missing: a lower bound.
 pub fn loading_of(
     h: &Header,
     lines: &[String],
     ang: &[f64],
     service_a: f64,
+    nominal_v: f64,
 ) -> Result<Loading, String> {
     let n = lines.len();
     let mut cols = Vec::new();
-    for l in lines {
-        for q in ["i_a", "p_w", "q_var", "v_v"] {
-            cols.push(format!("{l}_{q}"));
+    // Per line, the index of its i, p, q and v columns among `cols`.
+    let mut at = vec![[None::<usize>; 4]; n];
+    for (x, l) in lines.iter().enumerate() {
+        for (k, q) in ["i_a", "p_w", "q_var", "v_v"].iter().enumerate() {
+            let c = format!("{l}_{q}");
+            if h.has(&c) {
+                at[x][k] = Some(cols.len());
+                cols.push(c);
+            }
         }
     }
+    let current_measured = at.iter().all(|a| a[0].is_some());
     let has_n = h.has("n_i_a");
     if has_n {
         cols.push("n_i_a".into());
@@ -85,12 +101,9 @@ pub fn loading_of(
             }
             let (mut re, mut im, mut any) = (0.0, 0.0, false);
             for x in 0..n {
-                let (i, p, q, v) = (
-                    b.cols[4 * x][k],
-                    b.cols[4 * x + 1][k],
-                    b.cols[4 * x + 2][k],
-                    b.cols[4 * x + 3][k],
-                );
+                let get = |j: usize, or: f64| at[x][j].map(|c| b.cols[c][k]).unwrap_or(or);
+                let (p, q, v) = (get(1, f64::NAN), get(2, 0.0), get(3, nominal_v));
+                let i = get(0, p.hypot(q) / v);
                 if i.is_nan() {
                     continue;
                 }
@@ -114,7 +127,7 @@ pub fn loading_of(
                 n_est_peak = n_est_peak.max((re * re + im * im).sqrt());
             }
             if has_n {
-                let v = b.cols[4 * n][k];
+                let v = b.cols[cols.len() - 1][k];
                 if !v.is_nan() {
                     n_peak = Some(n_peak.unwrap_or(0.0).max(v));
                 }
@@ -153,6 +166,7 @@ pub fn loading_of(
         imbalance,
         neutral_peak_measured_a: n_peak,
         neutral_peak_estimated_a: n_est_peak,
+        current_measured,
     })
 }
 
@@ -169,6 +183,7 @@ impl Loading {
             "imbalance": self.imbalance,
             "neutral_peak_measured_a": self.neutral_peak_measured_a,
             "neutral_peak_estimated_a": self.neutral_peak_estimated_a,
+            "current_measured": self.current_measured,
             "caution": CAUTION,
         })
     }
@@ -207,6 +222,9 @@ impl Loading {
 
     fn tail(&self) -> String {
         let mut o = String::new();
+        if !self.current_measured {
+            o += "currents are estimated from power over voltage (the data has no current columns; without reactive power, unity power factor): a lower bound\n";
+        }
         if let Some(i) = self.imbalance {
             o += &format!(
                 "imbalance between lines (largest deviation of a mean from the average): {:.0} %\n",

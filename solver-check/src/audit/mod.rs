@@ -103,12 +103,22 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
     let have = channels(&h);
     fit(d, &h, &have)?;
     let n = d.supply.lines();
+    // Many monitors give real power only: then every step is compared on
+    // real power alone (the real part of each expected reading).
+    let with_q = have.iter().all(|l| h.has(&format!("{l}_q_var")));
+    let d = &if with_q {
+        d.clone()
+    } else {
+        d.real_power_only()
+    };
     let mut cols = Vec::new();
     for c in 0..n {
         let l = format!("l{}", c + 1);
         if have.contains(&l) {
             cols.push(format!("{l}_p_w"));
-            cols.push(format!("{l}_q_var"));
+            if with_q {
+                cols.push(format!("{l}_q_var"));
+            }
         }
     }
     // Voltages where the table has them (they sharpen the expected steps).
@@ -139,8 +149,8 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
             for c in 0..n {
                 if present[c] {
                     p[c] = b.cols[j][k];
-                    q[c] = b.cols[j + 1][k];
-                    j += 2;
+                    q[c] = if with_q { b.cols[j + 1][k] } else { 0.0 };
+                    j += 1 + usize::from(with_q);
                 }
             }
             for c in 0..n {
@@ -160,9 +170,18 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
         )
     })?;
     let (evs, stats) = det.finish();
-    let outcome = check::check(d, &evs, &stats, interval_s);
+    let mut outcome = check::check(d, &evs, &stats, interval_s);
+    outcome
+        .notes
+        .extend(measured_notes(with_q, with_v.iter().any(|v| *v)));
     let h2 = header(&file).map_err(|e| e.to_string())?;
-    let loading = loading_of(&h2, &have, &d.supply.angles_deg, d.supply.service_a)?;
+    let loading = loading_of(
+        &h2,
+        &have,
+        &d.supply.angles_deg,
+        d.supply.service_a,
+        d.supply.voltage_v,
+    )?;
     Ok(Audit {
         data: data.display().to_string(),
         declared_file: d.file.clone(),
@@ -172,6 +191,18 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
         outcome,
         declared: d.clone(),
     })
+}
+
+/// What the data lacks and which checks that limits.
+fn measured_notes(with_q: bool, with_v: bool) -> Vec<String> {
+    let mut v = Vec::new();
+    if !with_q {
+        v.push("the data has real power only (no reactive power): steps are matched on real power alone, so loads of one size but different power factors cannot be told apart, and on a three-phase supply a CT on another line's conductor is judged from real power alone".to_string());
+    }
+    if !with_v {
+        v.push("the data has no voltages: expected steps are taken at nominal voltage, with the wider tolerance that needs".to_string());
+    }
+    v
 }
 
 /// The reporting interval: the most common step between the first rows.
@@ -201,8 +232,15 @@ pub fn interval_of(t: &[i64]) -> Option<f64> {
 pub const ASSUMPTIONS: [&str; 3] = [
     "the home only consumes: a conductor power the metering implies must not be negative (a home with generation needs it declared, which this audit does not yet read)",
     "appliances switch between the declared states; loads whose power wanders or never switches cannot be placed from steps and are reported as undecidable",
-    "steps are matched within 30 W plus 10 % of their size per channel (check::TOL_ABS_W, check::TOL_REL)",
+    "steps are matched within 20 W plus 3 % of their size per channel where the voltages are measured (the expected step follows them), else within 30 W plus 10 %",
 ];
+
+fn finding_json(f: &check::Finding) -> Value {
+    json!({ "kind": f.kind, "subject": f.subject, "message": f.message, "confidence": (f.confidence * 100.0).round() / 100.0, "evidence": f.evidence })
+}
+
+/// What a confidence means, printed with the findings.
+pub const CONFIDENCE: &str = "confidence: for metering and wiring, the share of the evidence (steps, appliances, negative power) that only the finding explains and the declaration does not; for an undeclared load seen to run whole n times (a start, then its stop), n / (n + 2)";
 
 impl Audit {
     fn channel_rows(&self) -> Vec<[String; 3]> {
@@ -250,7 +288,9 @@ impl Audit {
             "interval_s": self.interval_s,
             "rows": self.rows,
             "metering": self.channel_rows().iter().map(|r| json!({ "channel": r[0], "declared": r[1], "found": r[2] })).collect::<Vec<_>>(),
-            "findings": self.outcome.findings.iter().map(|f| json!({ "kind": f.kind, "subject": f.subject, "message": f.message, "confidence": (f.confidence * 100.0).round() / 100.0, "evidence": f.evidence })).collect::<Vec<_>>(),
+            "findings": self.outcome.findings.iter().map(finding_json).collect::<Vec<_>>(),
+            "possible": self.outcome.possible.iter().map(finding_json).collect::<Vec<_>>(),
+            "possible_below": check::POSSIBLE,
             "appliances": self.outcome.appliances.iter().map(|a| json!({ "id": a.id, "declared": a.declared, "verdict": a.verdict, "seen": a.seen, "reason": a.reason, "steps_as_declared": a.steps_declared, "steps_best_other": a.steps_best_other })).collect::<Vec<_>>(),
             "steps": { "used": self.outcome.steps, "explained": self.outcome.steps_explained },
             "notes": self.outcome.notes,
@@ -277,6 +317,21 @@ impl Audit {
                 x.kind, x.message, x.confidence
             );
         }
+        let p = &self.outcome.possible;
+        if !p.is_empty() {
+            o += &format!(
+                "{} possible (confidence below {:.2}; worth a look, not a finding)\n",
+                p.len(),
+                check::POSSIBLE
+            );
+            for x in p {
+                o += &format!(
+                    "{bullet}[possible {}] {} (confidence {:.2})\n",
+                    x.kind, x.message, x.confidence
+                );
+            }
+        }
+        o += &format!("{CONFIDENCE}\n");
         o
     }
 

@@ -1,0 +1,724 @@
+"""An outsider's validation of `loadloom audit`: installations the audit has
+never seen, declared the way installers write declarations.
+
+It shares no code with the audit or with its fault matrix: it writes
+scenario files and declaration files as text, runs the release binary
+(`loadloom run`, then `loadloom audit DATA --declared FILE --json`), and
+judges the findings against what it injected, reading the truth table with
+pyarrow. Homes: the demo scenarios (read as they are at run time) and four
+layouts written here. Declarations: complete (the home's own text, with its
+templates and their rated voltages), short entries `{ id, power, wiring }`
+for every appliance, and partial ones (only the appliances of 1 kW or more,
+marked as partial). Mistakes: each metering kind the audit names, an
+appliance on the wrong line, line-to-line declared line-to-neutral and
+back, three-phase declared single-phase, undeclared recurring loads sized
+like declared appliances (on another line, or on the same connection), and
+two at once. Intervals: 1 s, 10 s, and 1 min with only real power per line
+in a meters file without a manifest.
+
+    .venv/bin/python tests/python/audit_outside.py --cases 300 --seed 1 [--jobs 2] [--json OUT]
+
+Scoring (common practice in detection tasks, no source): a finding is
+correct when it names an injected mistake (kind, subject, and for a wiring
+the connection really used) or an undeclared load that is really there
+(connection, and power within 20 %); recall is over the mistakes the data
+exercises (the appliance changed state at least 6 times); a mistake whose
+appliance the audit calls undecidable is counted apart with its reason.
+"""
+import argparse
+import collections
+import concurrent.futures
+import json
+import os
+import pathlib
+import random
+import re
+import subprocess
+import sys
+import tempfile
+import tomllib
+
+import pyarrow as pa
+import pyarrow.compute  # noqa: F401  (pa.compute)
+import pyarrow.parquet as pq
+
+ROOT = pathlib.Path(__file__).resolve().parents[2]
+BIN = os.environ.get("LOADLOOM_BIN", str(ROOT / "target" / "release" / "loadloom"))
+LIBRARY = ROOT / "scenarios" / "library"
+
+# ---- homes written here (invented) ------------------------------------------
+
+COTTAGE = """
+[home]
+label = "A small cottage with a well pump (invented)"
+supply = "split-phase"
+timezone = "America/Halifax"
+service = "100 A"
+[run]
+start = "2027-02-01T00:00"
+length = "2 d"
+seed = 1
+[meter]
+interval = "1 s"
+noise = { relative = "0.4 %", floor = "2 W" }
+
+[[appliance]]
+id = "well_pump"
+label = "Submersible well pump, 240 V"
+wiring = "L1-L2"
+load = "motor"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "50 min", spread = 0.5 } },
+           { name = "on", power = "1150 W", pf = 0.8, rated = "240 V", dwell = { median = "3 min", spread = 0.4 }, inrush = { peak = 4.0, decay = "0.4 s" } } ]
+
+[[appliance]]
+id = "water_heater"
+template = "water_heater"
+
+[[appliance]]
+id = "baseboard"
+template = "baseboard_heater"
+
+[[appliance]]
+id = "fridge"
+template = "fridge"
+
+[[appliance]]
+id = "kettle"
+template = "kettle"
+wiring = "L2-N"
+
+[[appliance]]
+id = "microwave"
+template = "microwave"
+wiring = "L1-N"
+
+[[appliance]]
+id = "lights"
+template = "led_lighting"
+wiring = "L2-N"
+"""
+
+FLAT_3P = """
+[home]
+label = "A three-phase flat (invented)"
+supply = "three-phase"
+voltage = "230 V"
+service = "25 A"
+timezone = "Europe/Vienna"
+[run]
+start = "2027-03-01T00:00"
+length = "2 d"
+seed = 1
+[meter]
+interval = "1 s"
+
+[[appliance]]
+id = "storage_heater"
+label = "Three-phase storage heater"
+wiring = "3P"
+load = "resistive"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "70 min", spread = 0.5 } },
+           { name = "on", power = "6 kW", dwell = { median = "20 min", spread = 0.4 } } ]
+
+[[appliance]]
+id = "boiler"
+label = "Water boiler, 400 V element"
+wiring = "L1-L2"
+load = "resistive"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "90 min", spread = 0.5 } },
+           { name = "on", power = "2.2 kW", dwell = { median = "15 min", spread = 0.4 } } ]
+
+[[appliance]]
+id = "kettle"
+template = "kettle"
+wiring = "L2-N"
+
+[[appliance]]
+id = "fridge"
+template = "fridge"
+wiring = "L3-N"
+
+[[appliance]]
+id = "oven_fan"
+label = "Oven with fan"
+wiring = "L3-N"
+load = "resistive"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "80 min", spread = 0.5 } },
+           { name = "on", power = "1.6 kW", dwell = { median = "6 min", spread = 0.4 } } ]
+
+[[appliance]]
+id = "hair_dryer"
+template = "hair_dryer"
+wiring = "L1-N"
+
+[[appliance]]
+id = "lights"
+template = "led_lighting"
+wiring = "L1-N"
+"""
+
+WORKSHOP = """
+[home]
+label = "A house with a workshop (invented)"
+supply = "split-phase"
+timezone = "America/Denver"
+service = "150 A"
+[run]
+start = "2027-01-11T00:00"
+length = "2 d"
+seed = 1
+[meter]
+interval = "1 s"
+
+[[appliance]]
+id = "compressor"
+label = "Air compressor, 240 V"
+wiring = "L1-L2"
+load = "motor"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "40 min", spread = 0.5 } },
+           { name = "on", power = "1.9 kW", pf = 0.82, dwell = { median = "4 min", spread = 0.3 } } ]
+
+[[appliance]]
+id = "space_heater"
+label = "Portable heater"
+wiring = "L2-N"
+load = "resistive"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "25 min", spread = 0.4 } },
+           { name = "on", power = "1.5 kW", dwell = { median = "9 min", spread = 0.4 } } ]
+
+[[appliance]]
+id = "dust_collector"
+label = "Dust collector"
+wiring = "L1-N"
+load = "motor"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "60 min", spread = 0.5 } },
+           { name = "on", power = "1.1 kW", pf = 0.8, dwell = { median = "5 min", spread = 0.5 } } ]
+
+[[appliance]]
+id = "water_heater"
+template = "water_heater"
+
+[[appliance]]
+id = "fridge"
+template = "fridge"
+wiring = "L2-N"
+
+[[appliance]]
+id = "toaster"
+label = "Toaster"
+wiring = "L1-N"
+load = "resistive"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "3 h", spread = 0.5 } },
+           { name = "on", power = "900 W", dwell = { median = "3 min", spread = 0.3 } } ]
+
+[[appliance]]
+id = "lights"
+template = "led_lighting"
+"""
+
+SMALL_208 = """
+[home]
+label = "A small 120/208 V condo (invented)"
+supply = "three-phase"
+voltage = "120 V"
+service = "60 A"
+timezone = "America/New_York"
+[run]
+start = "2027-01-18T00:00"
+length = "2 d"
+seed = 1
+[meter]
+interval = "1 s"
+
+[[appliance]]
+id = "water_heater"
+template = "water_heater"
+wiring = "L2-L3"
+
+[[appliance]]
+id = "wall_heater"
+label = "Wall heater, 240 V rated"
+wiring = "L1-L2"
+load = "resistive"
+behaviour = "cycle"
+states = [ { name = "off", power = "0 W", dwell = { median = "45 min", spread = 0.5 } },
+           { name = "on", power = "2 kW", rated = "240 V", dwell = { median = "15 min", spread = 0.4 } } ]
+
+[[appliance]]
+id = "fridge"
+template = "fridge"
+wiring = "L3-N"
+
+[[appliance]]
+id = "microwave"
+template = "microwave"
+wiring = "L1-N"
+
+[[appliance]]
+id = "kettle"
+template = "kettle"
+wiring = "L2-N"
+
+[[appliance]]
+id = "lights"
+template = "led_lighting"
+wiring = "L3-N"
+"""
+
+OWN_HOMES = {"cottage": COTTAGE, "flat3p": FLAT_3P, "workshop": WORKSHOP, "condo208": SMALL_208}
+INTERVALS = {"1s": ("1 s", "2 d"), "10s": ("10 s", "4 d"), "1min-p": ("1 min", "7 d")}
+METERING = ["reversed-ct", "ct-on-other-conductor", "cts-exchanged", "channels-exchanged", "no-ct"]
+WIRING = ["wrong-line", "declared-ln-seen-ll", "declared-ll-seen-ln", "wrong-connection"]
+EXERCISED = 6  # state changes in the truth before a mistake counts as shown
+
+
+def homes():
+    """Every home: the demo scenarios as they are now, and the ones above."""
+    out = {p.stem: p.read_text() for p in sorted((ROOT / "scenarios").glob("*.toml"))}
+    out.update(OWN_HOMES)
+    return out
+
+
+# ---- reading a home (our own reading, not the simulator's) -----------------
+
+UNITS = {"W": 1.0, "kW": 1e3, "MW": 1e6}
+
+
+def watts(s):
+    v, u = s.split()
+    return float(v) * UNITS[u]
+
+
+def template(name):
+    p = LIBRARY / f"{name}.toml"
+    return tomllib.loads(p.read_text())["appliance"] if p.exists() else {}
+
+
+def appliances(text):
+    """Per appliance: its wiring, nameplate power, pf, rated voltage, and
+    whether all its draws share the appliance's wiring (it can be moved whole)."""
+    doc = tomllib.loads(text)
+    supply = doc["home"]["supply"]
+    out = []
+    for a in doc.get("appliance", []):
+        t = dict(template(a["template"])) if "template" in a else {}
+        if "states" in a or "phases" in a:
+            t.pop("states", None)
+            t.pop("phases", None)
+        t.update(a)
+        wiring = t.get("wiring", "L1-N")
+        best, movable = (0.0, 1.0, None, wiring), True
+        for st in t.get("states", []) + t.get("phases", []):
+            draws = st.get("draws", [st])
+            p = sum(watts(d["power"]) for d in draws if "power" in d)
+            if any("wiring" in d and d["wiring"] != wiring for d in draws):
+                movable = False
+            if p > best[0]:
+                main = max(draws, key=lambda d: watts(d.get("power", "0 W")))
+                best = (p, main.get("pf", 1.0), main.get("rated"), main.get("wiring", wiring))
+        out.append({
+            "id": a["id"], "wiring": wiring, "power_w": best[0], "pf": best[1],
+            "rated": best[2], "main_wiring": best[3], "movable": movable,
+            "switches": t.get("behaviour") in ("cycle", "program", "markov"),
+            "supply": supply,
+        })
+    return out
+
+
+def lines_of(supply):
+    return ["L1", "L2", "L3"] if supply == "three-phase" else ["L1", "L2"]
+
+
+def kind_of_wiring(w):
+    return "3p" if w == "3P" else ("ll" if "N" not in w else "ln")
+
+
+# ---- editing scenario text --------------------------------------------------
+
+def set_key(text, section, key, value):
+    """Sets `key = value` in the top-level `[section]` of a scenario text."""
+    lines = text.split("\n")
+    start = lines.index(f"[{section}]")
+    end = next((i for i in range(start + 1, len(lines)) if lines[i].startswith("[")), len(lines))
+    for i in range(start + 1, end):
+        if re.match(rf"{key}\s*=", lines[i]):
+            lines[i] = f"{key} = {value}"
+            return "\n".join(lines)
+    lines.insert(start + 1, f"{key} = {value}")
+    return "\n".join(lines)
+
+
+def blocks(text):
+    """The text before the first appliance, and each `[[appliance]]` block."""
+    parts = re.split(r"(?m)^(?=\[\[appliance\]\]\s*$)", text)
+    return parts[0], parts[1:]
+
+
+def block_id(block):
+    return re.search(r'(?m)^id\s*=\s*"([^"]+)"', block).group(1)
+
+
+def set_wiring(text, app_id, wiring):
+    """The appliance's own wiring line (before any sub-table) set to `wiring`."""
+    head, bs = blocks(text)
+    out = []
+    for b in bs:
+        if block_id(b) == app_id:
+            cut = re.search(r"(?m)^\[\[appliance\.", b)
+            top, rest = (b[: cut.start()], b[cut.start():]) if cut else (b, "")
+            if re.search(r"(?m)^wiring\s*=", top):
+                top = re.sub(r'(?m)^wiring\s*=\s*"[^"]*"', f'wiring = "{wiring}"', top)
+            else:
+                top = re.sub(r'(?m)^(id\s*=.*)$', rf'\1\nwiring = "{wiring}"', top, count=1)
+            b = top + rest
+        out.append(b)
+    return head + "".join(out)
+
+
+def header_only(text):
+    head, _ = blocks(text)
+    head = re.sub(r"(?ms)^\[faults\].*?(?=^\[|\Z)", "", head)
+    return head
+
+
+def short_entry(a, wiring=None):
+    w = wiring or a["main_wiring"]
+    s = f'[[appliance]]\nid = "{a["id"]}"\npower = "{a["power_w"]:.0f} W"\nwiring = "{w}"\n'
+    if a["pf"] < 1.0:
+        s += f"pf = {a['pf']}\n"
+    if a["rated"]:
+        s += f'rated = "{a["rated"]}"\n'
+    return s + "\n"
+
+
+# ---- a case -----------------------------------------------------------------
+
+def other_line(rng, lines, not_in):
+    return rng.choice([l for l in lines if l not in not_in])
+
+
+def pick_mistake(rng, kind, apps, lines):
+    """A mistake of `kind` on this home, or None when the home has no subject."""
+    n = len(lines)
+    if kind in METERING:
+        a, b = rng.sample(range(n), 2)
+        ch = lambda c: f"l{c + 1}"
+        if kind == "reversed-ct":
+            return {"kind": kind, "subject": {ch(a)}, "faults": f'ct = [ {{ conductor = "{lines[a]}", reversed = true }} ]'}
+        if kind == "ct-on-other-conductor":
+            if n < 3:
+                return None  # on two lines a CT on the other conductor reads that line reversed-exchanged
+            return {"kind": kind, "subject": {ch(a)}, "faults": f'ct = [ {{ conductor = "{lines[a]}", on = "{lines[b]}" }} ]'}
+        if kind == "cts-exchanged":
+            return {"kind": kind, "subject": {ch(a), ch(b)}, "faults": f'ct = [ {{ conductor = "{lines[a]}", on = "{lines[b]}" }}, {{ conductor = "{lines[b]}", on = "{lines[a]}" }} ]'}
+        if kind == "channels-exchanged":
+            return {"kind": kind, "subject": {ch(a), ch(b)}, "faults": f'swap = ["{lines[a]}", "{lines[b]}"]'}
+        return {"kind": kind, "subject": {ch(a)}, "faults": f'no_ct = "{lines[a]}"'}
+    big = [a for a in apps if a["movable"] and a["switches"] and a["power_w"] >= 500]
+    if kind == "undeclared-load":
+        if not big:
+            return None
+        like = rng.choice(big)
+        p = like["power_w"] * rng.uniform(0.97, 1.03)
+        same = kind_of_wiring(like["wiring"]) == "ln" and rng.random() < 0.3
+        if same or kind_of_wiring(like["wiring"]) != "ln":
+            w = like["wiring"] if same else f"{other_line(rng, lines, [])}-N"
+        else:
+            w = f'{other_line(rng, lines, [like["wiring"][:2]])}-N'
+        if rng.random() < 0.3:
+            p = rng.uniform(600, 4000)
+        return {"kind": kind, "subject": "extra_load", "wiring": w, "power_w": p}
+    pools = {
+        "wrong-line": [a for a in big if kind_of_wiring(a["wiring"]) == "ln"],
+        "declared-ln-seen-ll": [a for a in big if kind_of_wiring(a["wiring"]) == "ll"],
+        "declared-ll-seen-ln": [a for a in big if kind_of_wiring(a["wiring"]) == "ln"],
+        "wrong-connection": [a for a in big if kind_of_wiring(a["wiring"]) == "3p"],
+    }
+    if not pools[kind]:
+        return None
+    a = rng.choice(pools[kind])
+    w = a["wiring"]
+    if kind == "wrong-line":
+        decl = f"{other_line(rng, lines, [w[:2]])}-N"
+    elif kind == "declared-ln-seen-ll":
+        decl = f"{rng.choice(w.split('-'))}-N"
+    elif kind == "declared-ll-seen-ln":
+        decl = f"{w[:2]}-{other_line(rng, lines, [w[:2]])}"
+    else:
+        decl = f"{rng.choice(lines)}-N"
+    return {"kind": kind, "subject": a["id"], "truth": w, "declared": decl}
+
+
+def make_case(i, seed):
+    """Case i of a run: home, interval, declaration style and mistakes."""
+    rng = random.Random(f"{seed}-{i}")
+    all_homes = homes()
+    name = rng.choice(sorted(all_homes))
+    text = all_homes[name]
+    apps = appliances(text)
+    lines = lines_of(apps[0]["supply"])
+    interval = rng.choice(sorted(INTERVALS))
+    style = rng.choice(["complete", "complete", "short", "partial"])
+    r = rng.random()
+    mistakes = []
+    if r >= 0.2:
+        pool = METERING + WIRING + ["undeclared-load"] * 2
+        count = 2 if r > 0.85 else 1
+        tries = 0
+        while len(mistakes) < count and tries < 40:
+            tries += 1
+            k = rng.choice(pool)
+            if any(m["kind"] in METERING for m in mistakes) and k in METERING:
+                continue
+            m = pick_mistake(rng, k, apps, lines)
+            if m and not any(m.get("subject") == x.get("subject") for x in mistakes):
+                mistakes.append(m)
+    return {"i": i, "home": name, "interval": interval, "style": style, "mistakes": mistakes,
+            "seed": rng.randrange(1, 10_000)}
+
+
+def truth_text(case, text):
+    step, length = INTERVALS[case["interval"]]
+    t = set_key(text, "run", "length", f'"{length}"')
+    t = set_key(t, "run", "seed", str(case["seed"]))
+    t = set_key(t, "meter", "interval", f'"{step}"')
+    t = re.sub(r"(?m)^step\s*=.*$", "", t)
+    faults = [m["faults"] for m in case["mistakes"] if "faults" in m]
+    for m in case["mistakes"]:
+        if m["kind"] == "undeclared-load":
+            t += (f'\n[[appliance]]\nid = "{m["subject"]}"\nwiring = "{m["wiring"]}"\nload = "resistive"\n'
+                  'behaviour = "cycle"\nstates = [ { name = "off", power = "0 W", dwell = { median = "45 min", spread = 0.5 } }, '
+                  f'{{ name = "on", power = "{m["power_w"]:.0f} W", dwell = {{ median = "8 min", spread = 0.4 }} }} ]\n')
+    if faults:
+        t += "\n[faults]\n" + "\n".join(faults) + "\n"
+    return t
+
+
+def declaration_text(case, text):
+    apps = appliances(text)
+    moved = {m["subject"]: m["declared"] for m in case["mistakes"] if "declared" in m}
+    if case["style"] == "complete":
+        t = header_only(text) + "".join(blocks(text)[1])
+        for a, w in moved.items():
+            t = set_wiring(t, a, w)
+        return re.sub(r"(?ms)^\[faults\].*?(?=^\[|\Z)", "", t)
+    head = header_only(text)
+    if case["style"] == "partial":
+        head += "\n[declaration]\npartial = true\n"
+    keep = [a for a in apps if case["style"] == "short" or a["power_w"] >= 1000 or a["id"] in moved]
+    return head + "\n" + "".join(short_entry(a, moved.get(a["id"])) for a in keep)
+
+
+def line_peak(truth, channel):
+    """The largest total appliance power on one conductor (`l2`), W."""
+    cols = [c for c in truth.column_names if c.endswith(f"_{channel}_p_w")]
+    if not cols:
+        return 0.0
+    total = pa.compute.add(truth.column(cols[0]), 0)
+    for c in cols[1:]:
+        total = pa.compute.add(total, truth.column(c))
+    return pa.compute.max(total).as_py() or 0.0
+
+
+def changes(truth, app_id):
+    col = truth.column(f"{app_id}_state").to_pylist()
+    return sum(1 for a, b in zip(col, col[1:]) if a != b)
+
+
+def run_case(case, work):
+    text = homes()[case["home"]]
+    d = pathlib.Path(work) / f"case{case['i']}"
+    d.mkdir(parents=True, exist_ok=True)
+    (d / "home.toml").write_text(truth_text(case, text))
+    (d / "declared.toml").write_text(declaration_text(case, text))
+    p = subprocess.run([BIN, "run", d / "home.toml", "--out", d / "out", "--quiet"], capture_output=True, text=True)
+    if p.returncode != 0:
+        return {**case, "error": "run: " + p.stderr[-400:]}
+    data = d / "out" / "home"
+    truth = pq.read_table(data / "truth.parquet")
+    if case["interval"] == "1min-p":
+        m = pq.read_table(data / "meters.parquet")
+        keep = ["time"] + [c for c in m.column_names if re.fullmatch(r"l\d_p_w", c)]
+        pq.write_table(m.select(keep), d / "meters-p.parquet")
+        data = d / "meters-p.parquet"
+    p = subprocess.run([BIN, "audit", data, "--declared", d / "declared.toml", "--json"], capture_output=True, text=True)
+    exercised = {}
+    for m in case["mistakes"]:
+        if m["kind"] in METERING:
+            # A metering mistake shows only on conductors that carry load.
+            exercised[m["kind"]] = all(line_peak(truth, c) >= 300 for c in m["subject"])
+        else:
+            exercised[m["kind"]] = changes(truth, m["subject"]) >= EXERCISED
+    out = {**case, "exercised": exercised, "unlisted": unlisted(case, text)}
+    if p.returncode != 0:
+        return {**out, "error": "audit: " + p.stderr[-400:]}
+    return {**out, "report": json.loads(p.stdout)}
+
+
+def unlisted(case, text):
+    """Real loads the declaration does not list: (wiring, power) pairs."""
+    apps = appliances(text)
+    listed = set(re.findall(r'(?m)^id\s*=\s*"([^"]+)"', declaration_text(case, text)))
+    out = [(a["main_wiring"], a["power_w"]) for a in apps if a["id"] not in listed]
+    out += [(m["wiring"], m["power_w"]) for m in case["mistakes"] if m["kind"] == "undeclared-load"]
+    return out
+
+
+# ---- judging ----------------------------------------------------------------
+
+def same_wiring(a, b):
+    return a == b or (a and b and "-" in a and set(a.split("-")) == set(b.split("-")))
+
+
+def judge_finding(f, case, report):
+    """Which injected mistake a finding names (its index), 'unlisted' for a
+    real undeclared load, or None when it is false."""
+    subj = set(f["subject"].split("+"))
+    two_lines = lines_of(appliances(homes()[case["home"]])[0]["supply"]) == ["L1", "L2"]
+    for k, m in enumerate(case["mistakes"]):
+        if m["kind"] in METERING and f["kind"] == m["kind"] and subj == m["subject"]:
+            return k
+        # On a split-phase supply (V2 = -V1) two channels exchanged whole
+        # read the same powers as both CTs on the other conductor and
+        # reversed: the data cannot tell them apart (Kirchhoff, S = V·conj(I)).
+        if two_lines and m["kind"] == "channels-exchanged" and subj <= m["subject"] \
+                and f["kind"] in ("ct-on-other-conductor", "cts-exchanged", "reversed-ct"):
+            return k
+        if m["kind"] in WIRING and f["subject"] == m["subject"]:
+            seen = next((a.get("seen") for a in report["appliances"] if a["id"] == m["subject"]), None)
+            if same_wiring(seen, m["truth"]) or (seen and m["truth"] in seen.split(" + ")):
+                return k
+    if f["kind"] == "undeclared-load":
+        ev = f.get("evidence", {})
+        for k, m in enumerate(case["mistakes"]):
+            if m["kind"] == "undeclared-load" and same_wiring(ev.get("wiring"), m["wiring"]) \
+                    and abs(ev.get("p_w", 0) - m["power_w"]) <= 0.2 * m["power_w"]:
+                return k
+        for w, p in case["unlisted"]:
+            if same_wiring(ev.get("wiring"), w) and abs(ev.get("p_w", 0) - p) <= 0.25 * p:
+                return "unlisted"
+    return None
+
+
+def score(results):
+    per = collections.defaultdict(lambda: collections.Counter())
+    reasons = collections.Counter()
+    totals = collections.Counter()
+    false = []
+    totals["by"] = collections.defaultdict(collections.Counter)
+    for r in results:
+        clean = not r["mistakes"] and r["style"] != "partial"
+        by = totals["by"][f'{r["interval"]} {r["style"]}']
+        by["cases"] += 1
+        by["errors"] += "error" in r
+        totals["cases"] += 1
+        totals["clean"] += clean
+        if "error" in r:
+            totals["errors"] += 1
+            for m in r["mistakes"]:
+                per[m["kind"]]["injected"] += 1
+                per[m["kind"]]["missed (error)"] += 1
+            continue
+        rep = r["report"]
+        found = set()
+        for f in rep["findings"]:
+            k = judge_finding(f, r, rep)
+            kind = f["kind"]
+            if k is None or (k != "unlisted" and k in found):
+                per[kind]["false"] += 1
+                by["false"] += 1
+                false.append((r["i"], r["home"], r["interval"], r["style"], kind, f["subject"], f["confidence"]))
+            else:
+                per[kind]["correct"] += 1
+                if k != "unlisted":
+                    found.add(k)
+        if clean and rep["findings"]:
+            totals["clean with a finding"] += 1
+        totals["possible"] += len(rep.get("possible", []))
+        for k, m in enumerate(r["mistakes"]):
+            c = per[m["kind"]]
+            c["injected"] += 1
+            if not r["exercised"][m["kind"]]:
+                c["not exercised"] += 1
+                continue
+            by["decided"] += 1
+            if k in found:
+                c["found"] += 1
+                by["found"] += 1
+                continue
+            verdict = next((a for a in rep["appliances"] if a["id"] == m["subject"]), None)
+            if verdict and verdict["verdict"] == "undecidable":
+                by["decided"] -= 1
+                c["undecidable"] += 1
+                reasons[re.sub(r"\d+(\.\d+)?", "N", verdict["reason"])] += 1
+            else:
+                c["missed"] += 1
+    return per, totals, reasons, false
+
+
+def table(per, totals, reasons, false):
+    out = [f"cases {totals['cases']}, clean {totals['clean']}, clean with a finding {totals['clean with a finding']}, "
+           f"refused by the audit {totals['errors']}, listed as possible (not scored) {totals['possible']}", "",
+           "| mistake | injected | not exercised | undecidable | decided | found | recall | findings | correct | precision |",
+           "|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|"]
+    allk = collections.Counter()
+    kinds = METERING + WIRING + ["undeclared-load"]
+    for kind in kinds + sorted(set(per) - set(kinds)):
+        c = per[kind]
+        decided = c["injected"] - c["not exercised"] - c["undecidable"]
+        fnd = c["correct"] + c["false"]
+        for key in ("injected", "not exercised", "undecidable", "found", "correct", "false"):
+            allk[key] += c[key]
+        out.append(row(kind, c, decided, fnd))
+    decided = allk["injected"] - allk["not exercised"] - allk["undecidable"]
+    out.append(row("all", allk, decided, allk["correct"] + allk["false"]))
+    out += ["", "by interval and declaration (cases, refused, decided mistakes found, false findings):"]
+    out += [f"  {k}: {v['cases']} cases, {v['errors']} refused, {v['found']}/{v['decided']} found, {v['false']} false"
+            for k, v in sorted(totals["by"].items())]
+    out += ["", "undecidable, by reason:"] + [f"  {n} × {r}" for r, n in reasons.most_common()]
+    out += ["", "false findings (case, home, interval, declaration, kind, subject, confidence):"]
+    out += [f"  {x}" for x in false[:60]]
+    return "\n".join(out)
+
+
+def row(kind, c, decided, fnd):
+    rec = f"{100 * c['found'] / decided:.1f} %" if decided else "–"
+    prec = f"{100 * c['correct'] / fnd:.1f} %" if fnd else "–"
+    return (f"| {kind} | {c['injected']} | {c['not exercised']} | {c['undecidable']} | {decided} | "
+            f"{c['found']} | {rec} | {fnd} | {c['correct']} | {prec} |")
+
+
+def run(cases, seed, jobs, work):
+    todo = [make_case(i, seed) for i in range(cases)]
+    with concurrent.futures.ThreadPoolExecutor(jobs) as ex:
+        return list(ex.map(lambda c: run_case(c, work), todo))
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--cases", type=int, default=int(os.environ.get("AUDIT_OUTSIDE_CASES", 300)))
+    ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--jobs", type=int, default=2)
+    ap.add_argument("--json", help="write every case with its report here")
+    ap.add_argument("--keep", help="keep the cases' files in this folder")
+    a = ap.parse_args()
+    with tempfile.TemporaryDirectory() as tmp:
+        res = run(a.cases, a.seed, a.jobs, a.keep or tmp)
+    print(table(*score(res)))
+    errs = [r for r in res if "error" in r]
+    for r in errs[:10]:
+        print("error in case", r["i"], r["home"], r["interval"], r["style"], r["error"].strip().split("\n")[0], file=sys.stderr)
+    if a.json:
+        pathlib.Path(a.json).write_text(json.dumps(res, default=list, indent=1))
+
+
+if __name__ == "__main__":
+    main()
