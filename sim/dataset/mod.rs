@@ -3,6 +3,7 @@
 //! Everything is written under a temporary name and renamed when complete,
 //! so a failed run leaves nothing half-written.
 
+pub mod dict_column;
 pub mod finite;
 pub mod folder;
 pub mod manifest;

@@ -7,11 +7,16 @@
 //! whatever the number of threads, and finished column chunks are spliced
 //! into the file in column order, so the bytes do not depend on it.
 
-use super::sink::ROW_GROUP_ROWS;
+use super::dict_column::{self, DictColumn};
+use super::sink::{ROW_GROUP_ROWS, ZSTD_LEVEL};
 use arrow_array::{ArrayRef, RecordBatch};
 use arrow_schema::{FieldRef, SchemaRef};
-use parquet::arrow::arrow_writer::{compute_leaves, ArrowColumnWriter, ArrowRowGroupWriterFactory};
+use bytes::Bytes;
+use parquet::arrow::arrow_writer::{
+    compute_leaves, ArrowColumnChunk, ArrowColumnWriter, ArrowRowGroupWriterFactory,
+};
 use parquet::arrow::ArrowWriter;
+use parquet::column::writer::ColumnCloseResult;
 use parquet::file::properties::WriterProperties;
 use parquet::file::writer::SerializedFileWriter;
 use std::fs::File;
@@ -22,13 +27,49 @@ fn to_io(e: impl std::fmt::Display) -> io::Error {
     io::Error::other(e.to_string())
 }
 
+/// The writer of one column of the open row group.
+enum Column {
+    Arrow(Box<ArrowColumnWriter>),
+    /// Dictionary-coded strings, from their keys ([`dict_column`]).
+    Dict(DictColumn),
+}
+
+/// A finished column chunk, ready to splice into the row group.
+enum Chunk {
+    Arrow(ArrowColumnChunk),
+    Dict(Bytes, ColumnCloseResult),
+}
+
+impl Column {
+    fn write(&mut self, field: &FieldRef, col: &ArrayRef) -> io::Result<()> {
+        match self {
+            Column::Arrow(w) => {
+                for leaf in compute_leaves(field, col).map_err(to_io)? {
+                    w.write(&leaf).map_err(to_io)?;
+                }
+                Ok(())
+            }
+            Column::Dict(d) => d.write(col),
+        }
+    }
+
+    fn close(self) -> io::Result<Chunk> {
+        match self {
+            Column::Arrow(w) => w.close().map(Chunk::Arrow).map_err(to_io),
+            Column::Dict(d) => d.close().map(|(b, c)| Chunk::Dict(b, c)),
+        }
+    }
+}
+
 /// One Parquet file being written.
 pub struct Table {
     file: SerializedFileWriter<BufWriter<File>>,
     factory: ArrowRowGroupWriterFactory,
     schema: SchemaRef,
     /// The open row group's column writers; empty when none is open.
-    open: Vec<ArrowColumnWriter>,
+    open: Vec<Column>,
+    /// Rows per data page of the dictionary columns.
+    page_rows: usize,
     row_groups: usize,
     /// Rows in the open row group.
     rows: usize,
@@ -41,6 +82,7 @@ impl Table {
         schema: SchemaRef,
         props: WriterProperties,
     ) -> io::Result<Table> {
+        let page_rows = props.data_page_row_count_limit().min(ROW_GROUP_ROWS);
         let writer = ArrowWriter::try_new(out, schema.clone(), Some(props)).map_err(to_io)?;
         let (file, factory) = writer.into_serialized_writer().map_err(to_io)?;
         Ok(Table {
@@ -48,6 +90,7 @@ impl Table {
             factory,
             schema,
             open: Vec::new(),
+            page_rows,
             row_groups: 0,
             rows: 0,
         })
@@ -60,14 +103,37 @@ impl Table {
         let chunks = parallel(writers, threads, |w| w.close());
         let mut group = self.file.next_row_group().map_err(to_io)?;
         for chunk in chunks {
-            chunk
-                .map_err(to_io)?
-                .append_to_row_group(&mut group)
-                .map_err(to_io)?;
+            match chunk? {
+                Chunk::Arrow(c) => c.append_to_row_group(&mut group),
+                Chunk::Dict(bytes, close) => group.append_column(&bytes, close),
+            }
+            .map_err(to_io)?;
         }
         group.close().map_err(to_io)?;
         self.row_groups += 1;
         self.rows = 0;
+        Ok(())
+    }
+
+    /// Opens a row group: a writer per column.
+    fn open_row_group(&mut self) -> io::Result<()> {
+        let arrow = self
+            .factory
+            .create_column_writers(self.row_groups)
+            .map_err(to_io)?;
+        let descr = self.file.schema_descr();
+        self.open = arrow
+            .into_iter()
+            .zip(self.schema.fields().iter())
+            .enumerate()
+            .map(|(i, (w, f))| {
+                if dict_column::applies(f) {
+                    Column::Dict(DictColumn::new(descr.column(i), ZSTD_LEVEL, self.page_rows))
+                } else {
+                    Column::Arrow(Box::new(w))
+                }
+            })
+            .collect();
         Ok(())
     }
 
@@ -83,7 +149,7 @@ impl Table {
 }
 
 /// One column's slice for one column writer.
-type Task<'a> = (&'a mut ArrowColumnWriter, FieldRef, ArrayRef);
+type Task<'a> = (&'a mut Column, FieldRef, ArrayRef);
 
 /// Writes each batch to its table; the columns of all of them are encoded
 /// on `threads` threads.
@@ -99,10 +165,7 @@ pub fn write(tables: &mut [(&mut Table, RecordBatch)], threads: usize) -> io::Re
             let piece = batch.slice(0, n);
             *batch = batch.slice(n, batch.num_rows() - n);
             if t.open.is_empty() {
-                t.open = t
-                    .factory
-                    .create_column_writers(t.row_groups)
-                    .map_err(to_io)?;
+                t.open_row_group()?;
             }
             t.rows += n;
             let fields = t.schema.fields().iter().cloned();
@@ -113,13 +176,8 @@ pub fn write(tables: &mut [(&mut Table, RecordBatch)], threads: usize) -> io::Re
         if tasks.is_empty() {
             return Ok(());
         }
-        let done = parallel(tasks, threads, |(w, f, c)| -> parquet::errors::Result<()> {
-            for leaf in compute_leaves(&f, &c)? {
-                w.write(&leaf)?;
-            }
-            Ok(())
-        });
-        done.into_iter().collect::<Result<(), _>>().map_err(to_io)?;
+        let done = parallel(tasks, threads, |(w, f, c)| w.write(&f, &c));
+        done.into_iter().collect::<io::Result<()>>()?;
         for (t, _) in tables.iter_mut() {
             if t.rows == ROW_GROUP_ROWS {
                 t.flush(threads)?;

@@ -123,7 +123,7 @@ pub enum Values {
 pub const ROW_GROUP_ROWS: usize = 1 << 20;
 
 /// zstd level 1: chosen by measurement (DEVELOPERS.md, "Parquet writer").
-const ZSTD_LEVEL: i32 = 1;
+pub(crate) const ZSTD_LEVEL: i32 = 1;
 
 /// Writer settings per column kind: delta-coded `time`, byte-stream-split
 /// floats, dictionaries only on the categorical (string) columns, zstd for

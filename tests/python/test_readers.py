@@ -172,3 +172,22 @@ def test_four_readers_agree_on_every_value(simulate, form):
 def test_four_readers_agree_on_the_split_phase_demo(simulate):
     d = simulate(path=ROOT / "scenarios" / "split-phase-house.toml", extra=("--length", "1d"))
     check_dataset(d)
+
+
+def test_string_statistics_are_the_row_groups_min_and_max(simulate):
+    """Each dictionary column's chunk statistics (Parquet format spec,
+    Statistics min_value/max_value: bytewise for UTF8) hold the least and
+    greatest value of that row group, as pyarrow.compute finds them."""
+    import pyarrow.compute as pc
+
+    d = simulate(HOME.format(form="null"), name="stats")
+    f = pq.ParquetFile(d / "truth.parquet")
+    names = [c for c in f.schema_arrow.names if c.endswith("_state")]
+    assert names
+    for g in range(f.metadata.num_row_groups):
+        t = f.read_row_group(g, columns=names)
+        for c in names:
+            col = f.metadata.row_group(g).column(f.schema_arrow.names.index(c))
+            want = pc.min_max(t.column(c).cast(pa.string()))
+            assert col.statistics.has_min_max and col.statistics.null_count == 0
+            assert (col.statistics.min, col.statistics.max) == (want["min"].as_py(), want["max"].as_py()), c
