@@ -5,7 +5,7 @@
 //! One type for every command (`run`, `fleet`, `roundtrip --suite`,
 //! `audit --matrix`), so they look alike and none draws by hand.
 
-use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressState, ProgressStyle};
 use std::io::IsTerminal;
 
 /// A progress line on a terminal's standard error, or nothing.
@@ -17,16 +17,20 @@ impl Progress {
     /// A line that counts `what` done out of a total (fleet homes), with the
     /// rate and the time left.
     pub fn counter(what: &str) -> Progress {
-        Progress::templated(&format!(
-            "  {what} {{pos}}/{{len}}  {{per_sec}}  ~{{eta}} left  {{wide_bar}}"
-        ))
+        let template = format!("  {what} {{pos}}/{{len}}  {{rate}} {what}/s  ~{{eta}} left");
+        let style = ProgressStyle::with_template(&template)
+            .unwrap_or_else(|_| ProgressStyle::default_bar())
+            .with_key("rate", |s: &ProgressState, w: &mut dyn std::fmt::Write| {
+                let _ = write!(w, "{:.2}", s.per_sec());
+            });
+        Progress::with_style(style)
     }
 
     /// A line that shows how much of `what` is done as a percentage (fed by
     /// [`Progress::fraction`]), with the time elapsed and left.
     pub fn share(what: &str) -> Progress {
         Progress::templated(&format!(
-            "  {what} {{percent:>3}}%  {{elapsed}} elapsed, ~{{eta}} left  {{wide_bar}}"
+            "  {what} {{percent:>3}} %  {{elapsed}} elapsed, ~{{eta}} left"
         ))
     }
 
