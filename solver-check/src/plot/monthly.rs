@@ -117,6 +117,30 @@ fn split_parts(kwh: &[Vec<f64>], n: usize) -> (Vec<usize>, Vec<usize>) {
     }
 }
 
+/// Per month, the parts of its bar: (name, fill, kWh), the appliances
+/// shown on their own in order, then the rest together in grey.
+fn parts(
+    ids: &[String],
+    kwh: &[Vec<f64>],
+    shown: &[usize],
+    rest: &[usize],
+) -> Vec<Vec<(String, String, f64)>> {
+    kwh.iter()
+        .map(|month| {
+            let mut p: Vec<(String, String, f64)> = shown
+                .iter()
+                .enumerate()
+                .map(|(r, &c)| (ids[c].clone(), palette::fill(r), month[c]))
+                .collect();
+            if !rest.is_empty() {
+                let e = rest.iter().map(|&c| month[c]).sum();
+                p.push((format!("{} others", rest.len()), FRAME.to_string(), e));
+            }
+            p
+        })
+        .collect()
+}
+
 /// Stacks one month's parts upward from zero.
 fn bar(
     svg: &mut String,
@@ -139,74 +163,15 @@ fn bar(
     }
 }
 
-/// Draws the monthly energy of `dataset` to `out` (.svg or .png).
-pub fn plot_monthly(
-    dataset: &Path,
-    out: &Path,
-    width: u32,
-    height: u32,
-) -> Result<Monthly, String> {
-    let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
-    let tz = jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| e.to_string())?;
-    let t0 = ds.manifest["time"]["start_utc_ms"].as_i64().unwrap_or(0);
-    let t1 = t0 + (ds.rows as f64 * ds.interval_s * 1000.0).round() as i64;
-    let ms = months(&tz, t0, t1)?;
-    let ids: Vec<String> = ds.appliances.iter().map(|a| a.id.clone()).collect();
-    let kwh = energies(&ds, &ms, &ids)?;
-    let (shown, rest) = split_parts(&kwh, ids.len());
-    let parts_of = |m: usize| {
-        let mut p: Vec<(String, String, f64)> = shown
-            .iter()
-            .enumerate()
-            .map(|(r, &c)| (ids[c].clone(), palette::fill(r), kwh[m][c]))
-            .collect();
-        if !rest.is_empty() {
-            let e = rest.iter().map(|&c| kwh[m][c]).sum();
-            p.push((format!("{} others", rest.len()), FRAME.to_string(), e));
-        }
-        p
-    };
-    let (w, h) = (width as f64, height as f64);
-    let f = Frame {
-        x: 80.0,
-        y: 50.0,
-        w: w - 80.0 - 230.0,
-        h: h - 50.0 - 70.0,
-    };
-    let top = (0..ms.len())
-        .map(|m| parts_of(m).iter().map(|p| p.2.max(0.0)).sum::<f64>())
-        .fold(0.0f64, f64::max);
-    let step = nice_step(top.max(1e-6), 6.0);
-    let hi = (top / step).ceil().max(1.0) * step;
+/// Grid lines and labels of the energy axis, every `step` kWh up to `hi`.
+fn energy_axis(svg: &mut String, f: Frame, hi: f64, step: f64) {
+    let decimals = (-step.log10().floor()).max(0.0) as usize;
     let yp = |v: f64| f.y + f.h - v / hi * f.h;
-    let mut svg = String::new();
-    let _ = write!(
-        svg,
-        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height}" viewBox="0 0 {width} {height}" font-family="sans-serif" font-size="12"><rect width="{w}" height="{h}" fill="white"/>{}"#,
-        palette::defs(shown.len())
-    );
-    let label = ds.manifest["scenario"]["home"]["label"]
-        .as_str()
-        .unwrap_or("");
-    let _ = write!(
-        svg,
-        r#"<text x="{}" y="24" font-size="15" font-weight="bold" fill="{INK}">{} — energy per local month by appliance (truth)</text><rect x="{}" y="{}" width="{}" height="{}" fill="{PANEL_FILL}" stroke="{FRAME}"/>"#,
-        f.x,
-        escape(if label.is_empty() {
-            &ds.timezone
-        } else {
-            label
-        }),
-        f.x,
-        f.y,
-        f.w,
-        f.h
-    );
-    let mut v = 0.0;
-    while v <= hi + step / 2.0 {
+    for k in 0..=((hi / step).round() as usize) {
+        let v = k as f64 * step;
         let _ = write!(
             svg,
-            r#"<line class="tick" x1="{}" x2="{}" y1="{y:.1}" y2="{y:.1}" stroke="{}"/><text class="tick-label" x="{}" y="{:.1}" text-anchor="end" font-size="10" fill="{INK}">{v}</text>"#,
+            r#"<line class="tick" x1="{}" x2="{}" y1="{y:.1}" y2="{y:.1}" stroke="{}"/><text class="tick-label" x="{}" y="{:.1}" text-anchor="end" font-size="10" fill="{INK}">{v:.decimals$}</text>"#,
             f.x,
             f.x + f.w,
             palette::GRID,
@@ -214,17 +179,26 @@ pub fn plot_monthly(
             yp(v) + 3.0,
             y = yp(v)
         );
-        v += step;
     }
+}
+
+/// One stacked bar per month, labelled with the month and its days simulated.
+fn month_bars(
+    svg: &mut String,
+    f: Frame,
+    ms: &[Month],
+    parts: &[Vec<(String, String, f64)>],
+    yp: &dyn Fn(f64) -> f64,
+) {
     let slot = f.w / ms.len() as f64;
     for (m, month) in ms.iter().enumerate() {
         let x = f.x + m as f64 * slot;
         bar(
-            &mut svg,
+            svg,
             x + slot * 0.15,
             slot * 0.7,
-            &yp,
-            &parts_of(m),
+            yp,
+            &parts[m],
             &month.label,
         );
         let days = if (month.days - month.days.round()).abs() < 1e-6 {
@@ -242,6 +216,63 @@ pub fn plot_monthly(
             f.y + f.h + 25.0,
         );
     }
+}
+
+/// Draws the monthly energy of `dataset` to `out` (.svg or .png).
+pub fn plot_monthly(
+    dataset: &Path,
+    out: &Path,
+    width: u32,
+    height: u32,
+) -> Result<Monthly, String> {
+    let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
+    let tz = jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| e.to_string())?;
+    let t0 = ds.manifest["time"]["start_utc_ms"].as_i64().unwrap_or(0);
+    let t1 = t0 + (ds.rows as f64 * ds.interval_s * 1000.0).round() as i64;
+    let ms = months(&tz, t0, t1)?;
+    let ids: Vec<String> = ds.appliances.iter().map(|a| a.id.clone()).collect();
+    let kwh = energies(&ds, &ms, &ids)?;
+    let (shown, rest) = split_parts(&kwh, ids.len());
+    let parts = parts(&ids, &kwh, &shown, &rest);
+    let (w, h) = (width as f64, height as f64);
+    let f = Frame {
+        x: 80.0,
+        y: 50.0,
+        w: w - 80.0 - 230.0,
+        h: h - 50.0 - 70.0,
+    };
+    let top = parts
+        .iter()
+        .map(|p| p.iter().map(|p| p.2.max(0.0)).sum::<f64>())
+        .fold(0.0f64, f64::max);
+    let step = nice_step(top.max(1e-6), 6.0);
+    let hi = (top / step).ceil().max(1.0) * step;
+    let yp = |v: f64| f.y + f.h - v / hi * f.h;
+    let mut svg = String::new();
+    let _ = write!(
+        svg,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height}" viewBox="0 0 {width} {height}" font-family="sans-serif" font-size="12"><rect width="{w}" height="{h}" fill="white"/>{}"#,
+        palette::defs(shown.len())
+    );
+    let label = ds.manifest["scenario"]["home"]["label"]
+        .as_str()
+        .unwrap_or("");
+    let _ = write!(
+        svg,
+        r#"<text x="{}" y="24" font-size="14" font-weight="bold" fill="{INK}">{}: energy per local month</text><rect x="{}" y="{}" width="{}" height="{}" fill="{PANEL_FILL}" stroke="{FRAME}"/>"#,
+        f.x,
+        escape(if label.is_empty() {
+            &ds.timezone
+        } else {
+            label
+        }),
+        f.x,
+        f.y,
+        f.w,
+        f.h
+    );
+    energy_axis(&mut svg, f, hi, step);
+    month_bars(&mut svg, f, &ms, &parts, &yp);
     axis::y_title(&mut svg, f, "energy (kWh)", 55.0);
     let below = Frame { h: f.h + 15.0, ..f };
     axis::x_title(
@@ -252,7 +283,7 @@ pub fn plot_monthly(
             ds.timezone
         ),
     );
-    legend(&mut svg, w - 215.0, f.y, &parts_of(0));
+    legend(&mut svg, w - 215.0, f.y, &parts[0]);
     svg += "</svg>\n";
     write_picture(&svg, out)?;
     Ok(Monthly {

@@ -4,7 +4,7 @@
 
 use super::axis::{self, Frame};
 use super::palette::{FRAME, INK, PALETTE, PANEL_FILL};
-use super::{escape, path, points, write_picture};
+use super::{bucket_means, escape, path, points, write_picture};
 use crate::dataset::Dataset;
 use crate::stream::header;
 use std::fmt::Write as _;
@@ -23,40 +23,6 @@ const PANEL_H: f64 = 90.0;
 /// Room under a panel for its tick labels and axis title.
 const GAP: f64 = 56.0;
 const PER_ROW: usize = 2;
-
-/// Means per time bucket of some columns of a table, within [w0, w1).
-fn bucket_means(
-    h: &crate::stream::Header,
-    cols: &[String],
-    (w0, w1): (i64, i64),
-    buckets: usize,
-) -> Result<Vec<Vec<Option<f64>>>, String> {
-    let mut sum = vec![vec![0.0f64; buckets]; cols.len()];
-    let mut n = vec![vec![0u32; buckets]; cols.len()];
-    let mut st = h.stream(cols).map_err(|e| e.to_string())?;
-    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
-        for (k, &t) in b.time_ms.iter().enumerate() {
-            if t < w0 || t >= w1 {
-                continue;
-            }
-            let j = ((((t - w0) as f64) / (w1 - w0) as f64) * buckets as f64) as usize;
-            for c in 0..cols.len() {
-                let v = b.cols[c][k];
-                if !v.is_nan() {
-                    sum[c][j.min(buckets - 1)] += v;
-                    n[c][j.min(buckets - 1)] += 1;
-                }
-            }
-        }
-    }
-    Ok((0..cols.len())
-        .map(|c| {
-            (0..buckets)
-                .map(|j| (n[c][j] > 0).then(|| sum[c][j] / n[c][j] as f64))
-                .collect()
-        })
-        .collect())
-}
 
 /// The busiest local day of the scored period (largest true energy over the
 /// appliances), clipped to the period: [start, end) in UTC milliseconds.
