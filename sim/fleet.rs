@@ -530,6 +530,8 @@ impl Population {
         }
         let mut s = crate::scenario::load_str(&self.home_path(i), t.clone())?;
         s.name = format!("home={i:05}");
+        // Messages name the population, not the generated text (no such file).
+        s.home.source_at = format!("{} (home kind \"{}\")", self.path.display(), kind.name);
         let occ_name = occ
             .map(|o| format!(", occupancy \"{}\"", o.name))
             .unwrap_or_default();
@@ -610,6 +612,63 @@ pub fn is_complete(pop: &Population, out: &Path, i: u64) -> bool {
         })
 }
 
+/// Why a fleet run stopped: the error (with its file and causes), and
+/// whether it was bad input (exit status 2) rather than a run that failed (1).
+#[derive(Debug)]
+pub struct FleetError {
+    pub error: Error,
+    pub bad_input: bool,
+}
+
+impl std::fmt::Display for FleetError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        self.error.fmt(f)
+    }
+}
+
+impl FleetError {
+    /// A run that failed on `path`, with the message of what went wrong.
+    fn failed(path: &Path, message: String, help: &str, cause: String) -> FleetError {
+        let mut error = Error::file(path, message, help);
+        error.causes.push(cause);
+        FleetError {
+            error,
+            bad_input: false,
+        }
+    }
+}
+
+/// Resolves and writes home `i`; a scenario error or a voltage solve with
+/// no plausible answer is bad input, any other failure a failed run.
+fn make_home(pop: &Population, out: &Path, i: u64) -> Result<(), FleetError> {
+    let (s, _) = pop.home(i).map_err(|error| FleetError {
+        error,
+        bad_input: true,
+    })?;
+    let written = crate::dataset::write(&s, out, crate::dataset::Format::Parquet, &mut |_| {});
+    written.map(|_| ()).map_err(|e| {
+        let diverged = e
+            .get_ref()
+            .and_then(|x| x.downcast_ref::<crate::electrical::settle::Diverged>())
+            .is_some();
+        let (message, help) = if diverged {
+            (
+                format!("home {i}: its simulation stopped"),
+                "see the cause: the population's source impedance or loads need changing",
+            )
+        } else {
+            (
+                format!("home {i}: writing its dataset failed"),
+                "check free space and permissions; the home is redone on the next run",
+            )
+        };
+        FleetError {
+            error: Error::file(&home_dir(out, i), message, help).caused_by(&e),
+            bad_input: diverged,
+        }
+    })
+}
+
 pub struct FleetRun {
     pub made: u64,
     pub skipped: u64,
@@ -625,8 +684,16 @@ pub fn run(
     jobs: usize,
     shard: Shard,
     progress: &(dyn Fn(u64, u64) + Sync),
-) -> Result<FleetRun, String> {
-    std::fs::create_dir_all(out).map_err(|e| format!("cannot create {}: {e}", out.display()))?;
+) -> Result<FleetRun, FleetError> {
+    std::fs::create_dir_all(out).map_err(|e| {
+        let help = "give --out a folder that can be created";
+        FleetError::failed(
+            out,
+            "cannot create the fleet folder".into(),
+            help,
+            e.to_string(),
+        )
+    })?;
     // Partial folders of an interrupted run are redone; those of another
     // shard still running in the same folder are its own.
     crate::dataset::folder::sweep_stale(out);
@@ -641,7 +708,7 @@ pub fn run(
     let skipped = (mine.len() - todo.len()) as u64;
     let next = std::sync::atomic::AtomicUsize::new(0);
     let done = std::sync::atomic::AtomicU64::new(0);
-    let failure: std::sync::Mutex<Option<String>> = std::sync::Mutex::new(None);
+    let failure: std::sync::Mutex<Option<FleetError>> = std::sync::Mutex::new(None);
     std::thread::scope(|sc| {
         for _ in 0..jobs.max(1) {
             sc.spawn(|| loop {
@@ -650,12 +717,7 @@ pub fn run(
                     break;
                 }
                 let i = todo[k];
-                let r = pop.home(i).map_err(|e| e.to_string()).and_then(|(s, _)| {
-                    crate::dataset::write(&s, out, crate::dataset::Format::Parquet, &mut |_| {})
-                        .map(|_| ())
-                        .map_err(|e| format!("home {i}: {e}"))
-                });
-                if let Err(e) = r {
+                if let Err(e) = make_home(pop, out, i) {
                     *failure.lock().unwrap() = Some(e);
                     break;
                 }
@@ -671,7 +733,10 @@ pub fn run(
     }
     let all = (0..homes).all(|i| home_dir(out, i).join("manifest.json").is_file());
     if all {
-        write_index(pop, homes, out)?;
+        write_index(pop, homes, out).map_err(|m| {
+            let help = "check free space and permissions; run the fleet again to write the index";
+            FleetError::failed(out, "writing the fleet index failed".into(), help, m)
+        })?;
     }
     Ok(FleetRun {
         made: todo.len() as u64,

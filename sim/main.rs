@@ -556,10 +556,10 @@ fn main() -> ExitCode {
                     );
                     ExitCode::SUCCESS
                 }
-                Err(m) => {
+                Err(f) => {
                     bar.finish();
-                    eprintln!("error: {m}");
-                    ExitCode::from(FAILED)
+                    eprintln!("{}", f.error);
+                    ExitCode::from(if f.bad_input { BAD_INPUT } else { FAILED })
                 }
             }
         }

@@ -140,6 +140,7 @@ fn not_utf8(path: &Path, what: &str, bytes: &[u8], e: std::str::Utf8Error) -> Er
             .trim_end()
             .to_string(),
         underline: (column, 1),
+        causes: Vec::new(),
     }))
 }
 
@@ -250,6 +251,9 @@ pub struct Diagnostic {
     pub excerpt: String,
     /// Column and width of the underline below the excerpt.
     pub underline: (usize, usize),
+    /// What caused it (an operating-system error, a library's message),
+    /// outermost first: kept, not dropped, when an error is passed on.
+    pub causes: Vec<String>,
 }
 
 impl std::ops::Deref for Error {
@@ -293,6 +297,7 @@ impl Error {
             help: help.into(),
             excerpt: text[line_start..line_end].trim_end().to_string(),
             underline: (column, width),
+            causes: Vec::new(),
         }))
     }
 
@@ -307,7 +312,20 @@ impl Error {
             help: help.into(),
             excerpt: String::new(),
             underline: (0, 0),
+            causes: Vec::new(),
         }))
+    }
+
+    /// The same error with `cause` added to its source chain, and the
+    /// causes of `cause` after it.
+    pub fn caused_by(mut self, cause: &dyn std::error::Error) -> Error {
+        self.causes.push(cause.to_string());
+        let mut next = cause.source();
+        while let Some(c) = next {
+            self.causes.push(c.to_string());
+            next = c.source();
+        }
+        self
     }
 }
 
@@ -340,6 +358,9 @@ impl fmt::Display for Error {
                 " ".repeat(self.underline.0.saturating_sub(1)),
                 "^".repeat(self.underline.1)
             )?;
+        }
+        for c in &self.causes {
+            writeln!(f, "  = cause: {c}")?;
         }
         if !self.help.is_empty() {
             write!(f, "  = help: {}", self.help)?;

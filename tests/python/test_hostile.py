@@ -50,6 +50,21 @@ def test_fleet_index_does_not_follow_a_planted_link(tmp_path):
     assert not (out / "fleet.json").is_symlink() and not (out / "homes.parquet").is_symlink()
 
 
+def test_fleet_errors_name_the_file_and_keep_their_cause(tmp_path):
+    pop = short_population(tmp_path)
+    blocker = tmp_path / "a-file"
+    blocker.write_text("")
+    r = loadloom("fleet", pop, "--homes", "1", "--out", blocker, check=False)
+    assert r.returncode == 1, r.stderr
+    assert f"--> {blocker}" in r.stderr and "= cause:" in r.stderr and "exists" in r.stderr.lower(), r.stderr
+    # A source impedance no home survives: bad input (exit 2), not a failed run.
+    text = pop.read_text().replace('service = "200 A"', 'service = "200 A"\nsource = { r = "50 ohm", x = "50 ohm" }')
+    pop.write_text(text)
+    r = loadloom("fleet", pop, "--homes", "3", "--out", tmp_path / "f", check=False)
+    assert r.returncode == 2, r.stderr
+    assert "its simulation stopped" in r.stderr and "lower the source impedance" in r.stderr, r.stderr
+
+
 def dead_pid():
     p = subprocess.Popen(["true"])
     p.wait()
