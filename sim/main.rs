@@ -992,7 +992,9 @@ fn main() -> ExitCode {
                             ExitCode::from(BAD_INPUT)
                         }
                         None => {
-                            eprintln!("error: writing the dataset under {} failed: {e}\n  = help: check free space and permissions; nothing was left behind", out.display());
+                            let help = "check free space and permissions; nothing was left behind";
+                            let d = scenario::Error::file(&out, "writing the dataset failed", help);
+                            eprintln!("{}", d.caused_by(&e));
                             ExitCode::from(FAILED)
                         }
                     }

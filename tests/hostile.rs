@@ -435,3 +435,23 @@ fn a_declaration_that_is_a_fifo_is_refused_at_once() {
     assert!(String::from_utf8_lossy(&o.stderr).contains("not a regular file"));
     let _ = std::fs::remove_dir_all(&d);
 }
+
+#[test]
+fn a_failed_write_names_the_folder_and_keeps_its_cause() {
+    let d = scratch("write-fails");
+    let p = d.join("home.toml");
+    std::fs::write(&p, BASE).unwrap();
+    let blocker = d.join("out");
+    std::fs::write(&blocker, "").unwrap();
+    let o = run(&[
+        "run",
+        p.to_str().unwrap(),
+        "--out",
+        blocker.to_str().unwrap(),
+    ]);
+    let e = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(1), "{e}");
+    assert!(e.contains(&format!("--> {}", blocker.display())), "{e}");
+    assert!(e.contains("= cause: ") && e.contains("os error"), "{e}");
+    let _ = std::fs::remove_dir_all(&d);
+}
