@@ -149,6 +149,38 @@ def make_case(rng):
     return text, what
 
 
+def make_population_case(rng):
+    """A mutated demo population, its homes one hour long."""
+    text = POPULATION.read_text().replace('length = "1 d"', 'length = "1 h"')
+    what = [POPULATION.name]
+    for _ in range(rng.choice([1, 1, 2])):
+        text, w = rng.choice(MUTATORS)(text, rng)
+        what.append(w)
+    return text, what
+
+
+def check_population(bin_, text, work, timeout):
+    """The faults of one population case: `fleet` with three homes."""
+    src = work / "street.toml"
+    src.write_bytes(text.encode("utf-8", "surrogateescape"))
+    out = work / "fleet"
+    code, err = run(bin_, ["fleet", str(src), "--homes", "3", "--out", str(out), "--jobs", "1"], timeout)
+    if code is None:
+        return [("hang", "fleet")]
+    faults = []
+    if code not in (0, 2):
+        faults.append(("panic" if code == 101 or "panicked" in err else f"exit {code}", "fleet: " + err[-300:]))
+    if out.exists():
+        left = [p.name for p in out.rglob("*") if ".partial" in p.name]
+        if left:
+            faults.append(("leftover", str(left)))
+        for home in sorted(out.glob("home=*")) if code == 0 else []:
+            bad = finite_dataset(home)
+            if bad:
+                faults.append(("non-finite", f"{home.name}/{bad}"))
+    return faults
+
+
 def finite_dataset(folder):
     """The first non-finite number of any Parquet table, or None."""
     for f in sorted(folder.glob("*.parquet")):
@@ -204,6 +236,7 @@ def main():
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--timeout", type=float, default=60)
     ap.add_argument("--show", type=int, default=12)
+    ap.add_argument("--populations", type=int, default=None, help="population cases (default: cases / 8)")
     a = ap.parse_args()
     bin_ = os.environ.get("LOADLOOM_BIN", str(ROOT / "target" / "release" / "loadloom"))
     rng = random.Random(a.seed)
@@ -219,7 +252,19 @@ def main():
                 shown += 1
                 print(f"case {i} {what}: {kind}: {detail.strip()[:400]}", flush=True)
     counts = ", ".join(f"{k} {v}" for k, v in sorted(tally.items()))
-    print(f"cases {a.cases} seed {a.seed}: {counts or 'no faults'}")
+    npop = a.cases // 8 if a.populations is None else a.populations
+    prng = random.Random(a.seed + 1)
+    for i in range(npop):
+        text, what = make_population_case(prng)
+        with tempfile.TemporaryDirectory() as d:
+            faults = check_population(bin_, text, pathlib.Path(d), a.timeout)
+        for kind, detail in faults:
+            tally[kind] = tally.get(kind, 0) + 1
+            if shown < a.show:
+                shown += 1
+                print(f"population case {i} {what}: {kind}: {detail.strip()[:400]}", flush=True)
+    counts = ", ".join(f"{k} {v}" for k, v in sorted(tally.items()))
+    print(f"cases {a.cases} and {npop} populations, seed {a.seed}: {counts or 'no faults'}")
     return 1 if tally else 0
 
 

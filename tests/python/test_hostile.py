@@ -105,4 +105,9 @@ def test_seeded_hostile_batch_through_the_binary():
         with tempfile.TemporaryDirectory() as d:
             for kind, detail in hostile.check_case(BIN, text, pathlib.Path(d), timeout=60):
                 faults.append((i, what, kind, detail[:300]))
+    for i in range(cases // 10):
+        text, what = hostile.make_population_case(rng)
+        with tempfile.TemporaryDirectory() as d:
+            for kind, detail in hostile.check_population(BIN, text, pathlib.Path(d), timeout=120):
+                faults.append((f"population {i}", what, kind, detail[:300]))
     assert not faults, "\n".join(map(str, faults[:10]))
