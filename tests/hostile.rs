@@ -240,11 +240,11 @@ fn the_demo_scenarios_have_no_conductor_like_ids() {
     }
 }
 
-/// Runs `validate` on `path` and returns its stderr, asserting exit 2 within
-/// a few seconds (a FIFO would block a reader forever).
-fn refused_quickly(path: &Path) -> String {
+/// Runs loadloom with `args`, asserting exit 2 within 20 s (a FIFO would
+/// block a reader forever); returns its stderr.
+fn refused_quickly_with(args: &[&str]) -> String {
     let mut child = bin()
-        .args(["validate", path.to_str().unwrap()])
+        .args(args)
         .stderr(std::process::Stdio::piped())
         .spawn()
         .unwrap();
@@ -252,13 +252,25 @@ fn refused_quickly(path: &Path) -> String {
     while child.try_wait().unwrap().is_none() {
         if start.elapsed().as_secs() > 20 {
             child.kill().unwrap();
-            panic!("{}: validate hangs", path.display());
+            panic!("{args:?} hangs");
         }
         std::thread::sleep(std::time::Duration::from_millis(20));
     }
     let o = child.wait_with_output().unwrap();
-    assert_eq!(o.status.code(), Some(2), "{}", path.display());
+    assert_eq!(o.status.code(), Some(2), "{args:?}");
     String::from_utf8_lossy(&o.stderr).to_string()
+}
+
+/// `validate PATH`, refused at once.
+fn refused_quickly(path: &Path) -> String {
+    refused_quickly_with(&["validate", path.to_str().unwrap()])
+}
+
+/// Makes a FIFO at `path`.
+fn mkfifo(path: &Path) {
+    let c = std::ffi::CString::new(path.to_str().unwrap()).unwrap();
+    // SAFETY: a valid NUL-terminated path.
+    assert_eq!(unsafe { libc::mkfifo(c.as_ptr(), 0o600) }, 0);
 }
 
 #[test]
@@ -266,9 +278,7 @@ fn absurd_files_fail_fast() {
     let d = scratch("files");
     // A FIFO: opening it for reading would wait for a writer forever.
     let fifo = d.join("pipe.toml");
-    let c = std::ffi::CString::new(fifo.to_str().unwrap()).unwrap();
-    // SAFETY: a valid NUL-terminated path.
-    assert_eq!(unsafe { libc::mkfifo(c.as_ptr(), 0o600) }, 0);
+    mkfifo(&fifo);
     assert!(refused_quickly(&fifo).contains("not a regular file"));
     assert!(refused_quickly(Path::new("/dev/zero")).contains("not a regular file"));
     assert!(refused_quickly(&d).contains("not a regular file"));
@@ -409,30 +419,14 @@ fn a_start_with_an_offset_or_in_a_clock_change_is_refused() {
 fn a_declaration_that_is_a_fifo_is_refused_at_once() {
     let d = scratch("declared");
     let fifo = d.join("declared.toml");
-    let c = std::ffi::CString::new(fifo.to_str().unwrap()).unwrap();
-    // SAFETY: a valid NUL-terminated path.
-    assert_eq!(unsafe { libc::mkfifo(c.as_ptr(), 0o600) }, 0);
-    let mut child = bin()
-        .args([
-            "audit",
-            d.to_str().unwrap(),
-            "--declared",
-            fifo.to_str().unwrap(),
-        ])
-        .stderr(std::process::Stdio::piped())
-        .spawn()
-        .unwrap();
-    let start = std::time::Instant::now();
-    while child.try_wait().unwrap().is_none() {
-        if start.elapsed().as_secs() > 20 {
-            child.kill().unwrap();
-            panic!("audit --declared FIFO hangs");
-        }
-        std::thread::sleep(std::time::Duration::from_millis(20));
-    }
-    let o = child.wait_with_output().unwrap();
-    assert_eq!(o.status.code(), Some(2));
-    assert!(String::from_utf8_lossy(&o.stderr).contains("not a regular file"));
+    mkfifo(&fifo);
+    let e = refused_quickly_with(&[
+        "audit",
+        d.to_str().unwrap(),
+        "--declared",
+        fifo.to_str().unwrap(),
+    ]);
+    assert!(e.contains("not a regular file"), "{e}");
     let _ = std::fs::remove_dir_all(&d);
 }
 

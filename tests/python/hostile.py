@@ -239,30 +239,27 @@ def main():
     ap.add_argument("--populations", type=int, default=None, help="population cases (default: cases / 8)")
     a = ap.parse_args()
     bin_ = os.environ.get("LOADLOOM_BIN", str(ROOT / "target" / "release" / "loadloom"))
-    rng = random.Random(a.seed)
     tally = {}
-    shown = 0
+    shown = [0]
+
+    def record(label, what, faults):
+        for kind, detail in faults:
+            tally[kind] = tally.get(kind, 0) + 1
+            if shown[0] < a.show:
+                shown[0] += 1
+                print(f"{label} {what}: {kind}: {detail.strip()[:400]}", flush=True)
+
+    rng = random.Random(a.seed)
     for i in range(a.cases):
         text, what = make_case(rng)
         with tempfile.TemporaryDirectory() as d:
-            faults = check_case(bin_, text, pathlib.Path(d), a.timeout)
-        for kind, detail in faults:
-            tally[kind] = tally.get(kind, 0) + 1
-            if shown < a.show:
-                shown += 1
-                print(f"case {i} {what}: {kind}: {detail.strip()[:400]}", flush=True)
-    counts = ", ".join(f"{k} {v}" for k, v in sorted(tally.items()))
+            record(f"case {i}", what, check_case(bin_, text, pathlib.Path(d), a.timeout))
     npop = a.cases // 8 if a.populations is None else a.populations
     prng = random.Random(a.seed + 1)
     for i in range(npop):
         text, what = make_population_case(prng)
         with tempfile.TemporaryDirectory() as d:
-            faults = check_population(bin_, text, pathlib.Path(d), a.timeout)
-        for kind, detail in faults:
-            tally[kind] = tally.get(kind, 0) + 1
-            if shown < a.show:
-                shown += 1
-                print(f"population case {i} {what}: {kind}: {detail.strip()[:400]}", flush=True)
+            record(f"population case {i}", what, check_population(bin_, text, pathlib.Path(d), a.timeout))
     counts = ", ".join(f"{k} {v}" for k, v in sorted(tally.items()))
     print(f"cases {a.cases} and {npop} populations, seed {a.seed}: {counts or 'no faults'}")
     return 1 if tally else 0
