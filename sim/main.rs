@@ -108,8 +108,20 @@ enum Command {
         scenario: Option<PathBuf>,
         /// `builtin:training-mean`, `builtin:combinatorial`, `builtin:combinatorial-per-line`, or a command
         /// holding {task} and {estimate}, e.g. "python3 mine.py {task} {estimate}" (run without a shell).
+        /// Repeat it to rank several solvers on the same data.
+        #[arg(long, required = true)]
+        solver: Vec<String>,
+        /// Reuse a dataset folder already written instead of simulating: its
+        /// first --train is handed over as training, the next --test scored.
+        #[arg(long, conflicts_with_all = ["scenario", "suite", "seed"])]
+        dataset: Option<PathBuf>,
+        /// No progress lines (results still print).
         #[arg(long)]
-        solver: String,
+        quiet: bool,
+        /// A file or folder a confined solver may also read (its model, its
+        /// packages); repeatable. One holding the --out folder is refused.
+        #[arg(long, value_name = "PATH")]
+        allow_read: Vec<PathBuf>,
         /// Length of the training period (meters and truth handed over).
         #[arg(long, default_value = "14d")]
         train: String,
@@ -626,6 +638,9 @@ fn main() -> ExitCode {
         Command::Roundtrip {
             scenario,
             solver,
+            dataset,
+            quiet,
+            allow_read,
             train,
             test,
             reveal,
@@ -644,37 +659,50 @@ fn main() -> ExitCode {
             // Orphans of a solver (even one that called setsid) are handed
             // to this process, so none outlives the round trip.
             solver_check::child::become_subreaper();
-            if let Some(w) = solver_check::roundtrip::Solver::deprecation(&solver) {
-                eprintln!("{w}");
+            let mut solvers = Vec::new();
+            for text in &solver {
+                if let Some(w) = solver_check::roundtrip::Solver::deprecation(text) {
+                    eprintln!("{w}");
+                }
+                match solver_check::roundtrip::Solver::parse(text) {
+                    Ok(s) => solvers.push(s),
+                    Err(m) => return bad(format!("--solver: {m}")),
+                }
             }
-            let solver = match solver_check::roundtrip::Solver::parse(&solver) {
-                Ok(s) => s,
-                Err(m) => return bad(format!("--solver: {m}")),
-            };
+            if suite && solvers.len() > 1 {
+                return bad(
+                    "--suite runs one --solver; rank several on one scenario without --suite"
+                        .into(),
+                );
+            }
+            let solver = solvers[0].clone();
             // The suite takes every scenario of a folder (default scenarios/).
-            let paths: Vec<PathBuf> = match (&scenario, suite) {
-                (Some(p), false) => vec![p.clone()],
-                (None, false) => {
-                    return bad("give a SCENARIO, or --suite to run the demo scenarios".into())
-                }
-                (p, true) => {
-                    let p = p.clone().unwrap_or_else(|| PathBuf::from("scenarios"));
-                    if p.is_dir() {
-                        let mut v: Vec<PathBuf> = std::fs::read_dir(&p)
-                            .map(|r| {
-                                r.filter_map(|e| e.ok())
-                                    .map(|e| e.path())
-                                    .filter(|x| x.extension().is_some_and(|e| e == "toml"))
-                                    .collect()
-                            })
-                            .unwrap_or_default();
-                        v.sort();
-                        v
-                    } else {
-                        vec![p]
+            let paths: Vec<PathBuf> =
+                match (&scenario, suite) {
+                    _ if dataset.is_some() => vec![],
+                    (Some(p), false) => vec![p.clone()],
+                    (None, false) => return bad(
+                        "give a SCENARIO (or --dataset DIR), or --suite to run the demo scenarios"
+                            .into(),
+                    ),
+                    (p, true) => {
+                        let p = p.clone().unwrap_or_else(|| PathBuf::from("scenarios"));
+                        if p.is_dir() {
+                            let mut v: Vec<PathBuf> = std::fs::read_dir(&p)
+                                .map(|r| {
+                                    r.filter_map(|e| e.ok())
+                                        .map(|e| e.path())
+                                        .filter(|x| x.extension().is_some_and(|e| e == "toml"))
+                                        .collect()
+                                })
+                                .unwrap_or_default();
+                            v.sort();
+                            v
+                        } else {
+                            vec![p]
+                        }
                     }
-                }
-            };
+                };
             let mut scenarios = Vec::new();
             for p in &paths {
                 match load(p) {
@@ -687,7 +715,7 @@ fn main() -> ExitCode {
                     Err(c) => return c,
                 }
             }
-            if scenarios.is_empty() {
+            if scenarios.is_empty() && dataset.is_none() {
                 return bad("no scenario files found for the suite".into());
             }
             let (train_s, test_s, limit) = match (cli_duration(&train), cli_duration(&test), cli_duration(&timeout)) {
@@ -707,6 +735,13 @@ fn main() -> ExitCode {
                     }
                 }
             }
+            let out_abs = std::path::absolute(&out).unwrap_or_else(|_| out.clone());
+            if let Some(p) = allow_read
+                .iter()
+                .find(|p| solver_check::confine::contains(p, &out_abs))
+            {
+                return bad(format!("--allow-read {}: it holds the output folder {} with the truth; allow a folder beside it", p.display(), out.display()));
+            }
             let plan = loadloom::roundtrip::Plan {
                 train_s,
                 test_s,
@@ -717,11 +752,27 @@ fn main() -> ExitCode {
                 },
                 solver,
                 limit: std::time::Duration::from_secs_f64(limit),
+                allow_read: allow_read.clone(),
                 estimate_name: match estimate_format {
                     FormatArg::Parquet => "estimate.parquet",
                     FormatArg::Csv => "estimate.csv",
                 },
             };
+            if dataset.is_some() || solvers.len() > 1 {
+                let view = View {
+                    json,
+                    markdown,
+                    quiet,
+                };
+                return leaderboard(
+                    dataset.as_deref(),
+                    scenarios.first(),
+                    &out,
+                    &plan,
+                    &solvers,
+                    view,
+                );
+            }
             if suite {
                 let bar = Progress::messages();
                 let rows = loadloom::roundtrip::suite(&scenarios, &out, &plan, &mut |s, r| {
@@ -758,38 +809,14 @@ fn main() -> ExitCode {
                     return ExitCode::from(FAILED);
                 }
             };
-            match o.result {
-                Ok(r) => {
-                    if json {
-                        let mut v = r.to_json();
-                        v["solver"] = serde_json::json!({ "command": o.solver, "seconds": o.seconds, "task": o.task_dir, "estimate": o.estimate, "log": o.log, "confinement": o.confinement, "leftovers_stopped": o.leftovers });
-                        println!("{}", serde_json::to_string_pretty(&v).expect("JSON"));
-                    } else {
-                        println!(
-                            "solver {} finished in {:.1} s (task {}, log {}); {}{}",
-                            o.solver,
-                            o.seconds,
-                            o.task_dir.display(),
-                            o.log.display(),
-                            o.confinement,
-                            leftovers_note(o.leftovers)
-                        );
-                        print!(
-                            "{}",
-                            if markdown {
-                                r.to_markdown()
-                            } else {
-                                r.to_text()
-                            }
-                        );
-                    }
-                    ExitCode::SUCCESS
-                }
-                Err(f) => {
-                    eprintln!("error: solver {}: {f}\n  --> task {}, log {} ({}{})\n  = help: run the solver by hand on the task folder to see what went wrong; no score was given", o.solver, o.task_dir.display(), o.log.display(), o.confinement, leftovers_note(o.leftovers));
-                    ExitCode::from(FAILED)
-                }
-            }
+            single_report(
+                o,
+                View {
+                    json,
+                    markdown,
+                    quiet,
+                },
+            )
         }
         Command::Score {
             truth,
@@ -1037,6 +1064,136 @@ fn plot_monthly(dataset: &Path, out: &Path, (w, h): (u32, u32)) -> ExitCode {
         Err(e) => {
             eprintln!("{e}");
             ExitCode::from(BAD_INPUT)
+        }
+    }
+}
+
+/// How a report is printed.
+#[derive(Clone, Copy)]
+struct View {
+    json: bool,
+    markdown: bool,
+    quiet: bool,
+}
+
+/// Where the round trip's data comes from: a reused dataset, or a scenario
+/// simulated now. Err is the exit status, the message printed.
+fn prepare_task(
+    dataset: Option<&std::path::Path>,
+    scenario: Option<&loadloom::scenario::Scenario>,
+    out: &std::path::Path,
+    plan: &loadloom::roundtrip::Plan,
+) -> Result<solver_check::roundtrip::Prepared, ExitCode> {
+    match (dataset, scenario) {
+        (Some(d), _) => {
+            let name = d
+                .file_name()
+                .map(|n| n.to_string_lossy().to_string())
+                .unwrap_or_else(|| "dataset".into());
+            let work = out.join(format!("{name}-roundtrip"));
+            loadloom::roundtrip::prepare_dataset(d, &work, plan).map_err(|m| {
+                eprintln!("{m}");
+                ExitCode::from(BAD_INPUT)
+            })
+        }
+        (None, Some(s)) => {
+            let work = out.join(format!("{}-roundtrip", s.name));
+            loadloom::roundtrip::prepare(s, &work, plan).map_err(|m| {
+                eprintln!("error: {m}");
+                ExitCode::from(FAILED)
+            })
+        }
+        (None, None) => Err(ExitCode::from(BAD_INPUT)),
+    }
+}
+
+/// Several solvers (or a reused dataset): the task written once, every
+/// solver run on it in turn, one ranked table. A single solver prints its
+/// full score report instead.
+fn leaderboard(
+    dataset: Option<&std::path::Path>,
+    scenario: Option<&loadloom::scenario::Scenario>,
+    out: &std::path::Path,
+    plan: &loadloom::roundtrip::Plan,
+    solvers: &[solver_check::roundtrip::Solver],
+    view: View,
+) -> ExitCode {
+    let prep = match prepare_task(dataset, scenario, out, plan) {
+        Ok(p) => p,
+        Err(code) => return code,
+    };
+    let bar = if view.quiet || view.json {
+        Progress::hidden()
+    } else {
+        Progress::messages()
+    };
+    let n = solvers.len();
+    let outcomes = loadloom::roundtrip::board(
+        &prep,
+        solvers,
+        plan.limit,
+        &plan.allow_read,
+        &mut |k, name| bar.say(format!("solver {}/{n}: {name}", k + 1)),
+    );
+    bar.finish();
+    let outcomes = match outcomes {
+        Ok(o) => o,
+        Err(m) => {
+            eprintln!("error: {m}");
+            return ExitCode::from(FAILED);
+        }
+    };
+    if n == 1 {
+        let o = outcomes.into_iter().next().expect("one solver");
+        return single_report(o, view);
+    }
+    let board = solver_check::leaderboard::rank(outcomes, 1000, 0);
+    print_report(
+        view.json,
+        view.markdown,
+        || board.to_json(),
+        || board.to_markdown(),
+        || board.to_text(),
+    );
+    if board.failed.is_empty() {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(FAILED)
+    }
+}
+
+/// One solver's outcome: its score report, or why it got none (exit 1).
+fn single_report(o: solver_check::roundtrip::Outcome, view: View) -> ExitCode {
+    match o.result {
+        Ok(r) => {
+            if view.json {
+                let mut v = r.to_json();
+                v["solver"] = serde_json::json!({ "command": o.solver, "seconds": o.seconds, "task": o.task_dir, "estimate": o.estimate, "log": o.log, "confinement": o.confinement, "leftovers_stopped": o.leftovers });
+                println!("{}", serde_json::to_string_pretty(&v).expect("JSON"));
+            } else {
+                println!(
+                    "solver {} finished in {:.1} s (task {}, log {}); {}{}",
+                    o.solver,
+                    o.seconds,
+                    o.task_dir.display(),
+                    o.log.display(),
+                    o.confinement,
+                    leftovers_note(o.leftovers)
+                );
+                print!(
+                    "{}",
+                    if view.markdown {
+                        r.to_markdown()
+                    } else {
+                        r.to_text()
+                    }
+                );
+            }
+            ExitCode::SUCCESS
+        }
+        Err(f) => {
+            eprintln!("error: solver {}: {f}\n  --> task {}, log {} ({}{})\n  = help: run the solver by hand on the task folder to see what went wrong; no score was given", o.solver, o.task_dir.display(), o.log.display(), o.confinement, leftovers_note(o.leftovers));
+            ExitCode::from(FAILED)
         }
     }
 }

@@ -5,7 +5,7 @@
 use crate::dataset::{self, Format};
 use crate::scenario::Scenario;
 use serde_json::{json, Value};
-use solver_check::roundtrip::{Outcome, Reveal, Solver};
+use solver_check::roundtrip::{Outcome, Prepared, Reveal, Solver, Split};
 use solver_check::score::Report;
 use std::path::Path;
 use std::time::Duration;
@@ -17,30 +17,89 @@ pub struct Plan {
     pub solver: Solver,
     pub limit: Duration,
     pub estimate_name: &'static str,
+    /// Folders a confined solver may read besides its own (`--allow-read`).
+    pub allow_read: Vec<std::path::PathBuf>,
 }
 
-/// Simulates `s` over train + test, writes the task, runs the solver, scores.
-/// Err is an I/O failure of our own (writing the dataset or the task).
-pub fn once(s: &Scenario, work: &Path, p: &Plan) -> Result<Outcome, String> {
+/// Simulates `s` over train + test and writes the task and the scored
+/// truth, for any number of solvers.
+pub fn prepare(s: &Scenario, work: &Path, p: &Plan) -> Result<Prepared, String> {
     let mut s = s.clone();
     s.run.length_s = p.train_s + p.test_s;
     let written = dataset::write(&s, work, Format::Parquet, &mut |_| {})
         .map_err(|e| format!("writing the dataset under {} failed: {e}", work.display()))?;
     let train_rows = (p.train_s / s.meter.interval_s).round() as usize;
-    let split = solver_check::roundtrip::Split {
+    let split = Split {
         train: 0..train_rows,
         test: train_rows..written.rows as usize,
     };
-    solver_check::roundtrip::run(
-        &written.dir,
-        work,
-        &split,
-        p.reveal,
-        &p.solver,
-        p.limit,
-        p.estimate_name,
-    )
-    .map_err(|e| format!("preparing the task under {} failed: {e}", work.display()))
+    solver_check::roundtrip::prepare(&written.dir, work, &split, p.reveal, p.estimate_name)
+        .map_err(|e| format!("preparing the task under {} failed: {e}", work.display()))
+}
+
+/// Reuses a dataset already written: the first `train_s` as training, the
+/// next `test_s` as test. Err names the dataset and the fix (bad input).
+pub fn prepare_dataset(dir: &Path, work: &Path, p: &Plan) -> Result<Prepared, String> {
+    let ds = solver_check::Dataset::open(dir).map_err(|e| e.to_string())?;
+    ds.verify().map_err(|e| e.to_string())?;
+    let rows = |secs: f64| (secs / ds.interval_s).round() as usize;
+    let (train, test) = (rows(p.train_s), rows(p.test_s));
+    if train + test > ds.rows as usize {
+        return Err(format!(
+            "error: --train and --test ask for {} rows, the dataset has {}\n  --> {}\n  = help: shorten the periods (the dataset covers {:.2} d at {} s)",
+            train + test,
+            ds.rows,
+            dir.display(),
+            ds.rows as f64 * ds.interval_s / 86400.0,
+            ds.interval_s
+        ));
+    }
+    let split = Split {
+        train: 0..train,
+        test: train..train + test,
+    };
+    solver_check::roundtrip::prepare(dir, work, &split, p.reveal, p.estimate_name).map_err(|e| {
+        format!(
+            "error: preparing the task under {} failed: {e}",
+            work.display()
+        )
+    })
+}
+
+/// Runs every solver on the prepared task, one after another, each in its
+/// own folder `work/solvers/N-name/`.
+pub fn board(
+    prep: &Prepared,
+    solvers: &[Solver],
+    limit: Duration,
+    allow_read: &[std::path::PathBuf],
+    progress: &mut dyn FnMut(usize, &str),
+) -> Result<Vec<Outcome>, String> {
+    let mut out = Vec::new();
+    for (k, solver) in solvers.iter().enumerate() {
+        let name = solver.describe();
+        progress(k, &name);
+        let slug: String = name
+            .chars()
+            .map(|c| if c.is_ascii_alphanumeric() { c } else { '-' })
+            .take(40)
+            .collect();
+        let slot = prep.work.join("solvers").join(format!("{}-{slug}", k + 1));
+        std::fs::create_dir_all(&slot).map_err(|e| format!("{}: {e}", slot.display()))?;
+        out.push(
+            solver_check::roundtrip::run_solver(prep, solver, &slot, limit, allow_read)
+                .map_err(|e| format!("running {name} under {} failed: {e}", slot.display()))?,
+        );
+    }
+    Ok(out)
+}
+
+/// Simulates `s` over train + test, writes the task, runs the solver, scores.
+/// Err is an I/O failure of our own (writing the dataset or the task).
+pub fn once(s: &Scenario, work: &Path, p: &Plan) -> Result<Outcome, String> {
+    let prep = prepare(s, work, p)?;
+    solver_check::roundtrip::run_solver(&prep, &p.solver, work, p.limit, &p.allow_read)
+        .map_err(|e| format!("running the solver under {} failed: {e}", work.display()))
 }
 
 /// A rung of the difficulty ladder: a name and what it changes.

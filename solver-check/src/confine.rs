@@ -120,11 +120,11 @@ fn which(prog: &str) -> Option<PathBuf> {
 }
 
 impl Sandbox {
-    /// Builds the rules for `access`, keeping out every path that holds
-    /// `protect` (the folder of the test truth). `enabled` false (or a
+    /// Builds the rules for `access`, keeping out every path that holds one
+    /// of `protect` (the folders of the truth). `enabled` false (or a
     /// kernel without Landlock) gives an unconfined sandbox that says so.
-    pub fn new(access: &Access, protect: &Path, enabled: bool) -> Sandbox {
-        let keep = |p: &&PathBuf| p.exists() && !contains(p, protect);
+    pub fn new(access: &Access, protect: &[&Path], enabled: bool) -> Sandbox {
+        let keep = |p: &&PathBuf| p.exists() && !protect.iter().any(|x| contains(p, x));
         let mut read: Vec<PathBuf> = SYSTEM_READ.iter().map(PathBuf::from).collect();
         read.extend(access.read.iter().cloned());
         let read: Vec<PathBuf> = read.iter().filter(keep).cloned().collect();

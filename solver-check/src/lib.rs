@@ -22,6 +22,7 @@ pub mod compare;
 pub mod confine;
 pub mod dataset;
 pub mod estimate;
+pub mod leaderboard;
 pub mod metrics;
 pub mod plot;
 pub mod roundtrip;

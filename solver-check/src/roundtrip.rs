@@ -13,7 +13,7 @@
 use crate::confine::{program_paths, Access, Sandbox};
 use crate::dataset::Dataset;
 use crate::score::{score, Options, Report, ScoreError};
-use crate::taskio::{copy_rows, copy_rows_hashed, create_fresh};
+use crate::taskio::{create_fresh, split_rows};
 use serde_json::{json, Value};
 use std::ops::Range;
 use std::path::{Path, PathBuf};
@@ -268,8 +268,69 @@ pub fn confinement_line(confine: bool) -> String {
     }
 }
 
-/// Writes the task folder for `ds`: training rows `split.train` with
-/// truth, test rows `split.test` with meters only; returns its path.
+/// Borrowed row slices for [`split_rows`].
+fn slices(v: &[(PathBuf, Range<usize>)]) -> Vec<(&Path, Range<usize>)> {
+    v.iter().map(|(p, r)| (p.as_path(), r.clone())).collect()
+}
+
+/// Writes the tables of the task folder `task` (training meters and
+/// truth, test meters) and the scored truth `truth/truth.parquet` (test
+/// rows), one pass over each source table, meters and truth on two
+/// threads. Returns the scored truth's rows, sha256 and bytes.
+fn write_tables(
+    ds: &Dataset,
+    task: &Path,
+    truth: &Path,
+    split: &Split,
+) -> std::io::Result<(usize, String, u64)> {
+    for d in [task.to_path_buf(), truth.to_path_buf()] {
+        let _ = std::fs::remove_dir_all(&d);
+    }
+    std::fs::create_dir_all(task.join("test"))?;
+    std::fs::create_dir_all(task.join("train"))?;
+    std::fs::create_dir_all(truth)?;
+    let src = |t: &str| ds.dir.join(format!("{t}.parquet"));
+    if !src("truth").exists() || !src("meters").exists() {
+        return Err(std::io::Error::other(format!(
+            "{}: a round trip needs a Parquet dataset (write it with --format parquet)",
+            ds.dir.display()
+        )));
+    }
+    let (train, test) = (split.train.clone(), split.test.clone());
+    let (m_train, m_test) = (
+        task.join("train/meters.parquet"),
+        task.join("test/meters.parquet"),
+    );
+    let (t_train, t_test) = (
+        task.join("train/truth.parquet"),
+        truth.join("truth.parquet"),
+    );
+    let with_train = !train.is_empty();
+    let outs = |tr: &Path, te: &Path| -> Vec<(PathBuf, Range<usize>)> {
+        let mut v = vec![(te.to_path_buf(), test.clone())];
+        if with_train {
+            v.push((tr.to_path_buf(), train.clone()));
+        }
+        v
+    };
+    let (mo, to) = (outs(&m_train, &m_test), outs(&t_train, &t_test));
+    let (meters, truth_out) = std::thread::scope(|sc| {
+        let m = sc.spawn(|| split_rows(&src("meters"), &slices(&mo)));
+        let t = split_rows(&src("truth"), &slices(&to));
+        (
+            m.join()
+                .unwrap_or_else(|_| Err(std::io::Error::other("the meters copy panicked"))),
+            t,
+        )
+    });
+    meters?;
+    let mut t = truth_out?;
+    Ok(t.swap_remove(0))
+}
+
+/// Writes `task.json` into the task folder (its tables are written by
+/// [`write_tables`]): training rows `split.train` with truth, test rows
+/// `split.test` with meters only; returns the folder.
 pub fn write_task(
     ds: &Dataset,
     dir: &Path,
@@ -278,34 +339,16 @@ pub fn write_task(
     estimate_name: &str,
     confinement: &str,
 ) -> std::io::Result<PathBuf> {
-    let _ = std::fs::remove_dir_all(dir);
-    std::fs::create_dir_all(dir.join("test"))?;
     let m = &ds.manifest;
     let t0 = m["time"]["start_utc_ms"].as_i64().unwrap_or(0);
     let dt = (ds.interval_s * 1000.0).round() as i64;
     let at = |r: usize| iso(t0 + r as i64 * dt, &ds.timezone);
     let (train, test) = (&split.train, &split.test);
     let train_json = if !train.is_empty() {
-        std::fs::create_dir_all(dir.join("train"))?;
-        for table in ["meters", "truth"] {
-            let src = ds.dir.join(format!("{table}.parquet"));
-            copy_rows(
-                &src,
-                &dir.join(format!("train/{table}.parquet")),
-                train.start,
-                train.end,
-            )?;
-        }
         json!({ "meters": "train/meters.parquet", "truth": "train/truth.parquet", "start": at(train.start), "end": at(train.end), "rows": train.len() })
     } else {
         Value::Null
     };
-    copy_rows(
-        &ds.dir.join("meters.parquet"),
-        &dir.join("test/meters.parquet"),
-        test.start,
-        test.end,
-    )?;
     let task = json!({
         "format": "loadloom-task/1",
         "reveal": reveal.name(),
@@ -335,21 +378,14 @@ pub fn write_task(
     Ok(dir.to_path_buf())
 }
 
-/// Writes the scored truth: rows `test` of the dataset's truth as a dataset
-/// of their own (manifest with their time, rows and sha256). Returns the
-/// sha256.
-fn write_test_truth(ds: &Dataset, dir: &Path, test: &Range<usize>) -> std::io::Result<String> {
-    let _ = std::fs::remove_dir_all(dir);
-    std::fs::create_dir_all(dir)?;
-    let src = ds.dir.join("truth.parquet");
-    if !src.exists() {
-        return Err(std::io::Error::other(format!(
-            "{}: a round trip needs a Parquet dataset (write it with --format parquet)",
-            src.display()
-        )));
-    }
-    let (rows, sha, bytes) =
-        copy_rows_hashed(&src, &dir.join("truth.parquet"), test.start, test.end)?;
+/// Writes the manifest of the scored truth (rows `test` of the dataset's
+/// truth, a dataset of their own): their time, rows and sha256.
+fn write_test_truth(
+    ds: &Dataset,
+    dir: &Path,
+    test: &Range<usize>,
+    (rows, sha, bytes): (usize, String, u64),
+) -> std::io::Result<String> {
     let mut m = ds.manifest.clone();
     let t0 = m["time"]["start_utc_ms"].as_i64().unwrap_or(0);
     let start = t0 + test.start as i64 * (ds.interval_s * 1000.0).round() as i64;
@@ -392,6 +428,8 @@ pub fn prepare(
         )));
     }
     let confine = std::env::var("LOADLOOM_CONFINE").map_or(true, |v| v != "off");
+    let truth_dir = work.join("test-truth");
+    let scored = write_tables(&ds, &work.join("task"), &truth_dir, split)?;
     let task_dir = write_task(
         &ds,
         &work.join("task"),
@@ -400,8 +438,7 @@ pub fn prepare(
         estimate_name,
         &confinement_line(confine),
     )?;
-    let truth_dir = work.join("test-truth");
-    let truth_sha = write_test_truth(&ds, &truth_dir, &split.test)?;
+    let truth_sha = write_test_truth(&ds, &truth_dir, &split.test, scored)?;
     Ok(Prepared {
         dataset: dataset.to_path_buf(),
         work: work.to_path_buf(),
@@ -468,7 +505,7 @@ pub fn run_solver(
             };
             access.read.extend(program_paths(argv));
             access.read.extend(extra_read.iter().cloned());
-            let sandbox = Sandbox::new(&access, &p.work, p.confine);
+            let sandbox = Sandbox::new(&access, &[&p.work, &p.dataset], p.confine);
             let r = run_child(argv, p, &out_dir, &estimate, &log, &sandbox, timeout);
             let (r, left) = match r {
                 Ok(left) => (Ok(()), left),

@@ -6,6 +6,9 @@ use arrow_array::{ArrayRef, Float64Array, RecordBatch, TimestampMillisecondArray
 use arrow_schema::{DataType, Field, Schema, TimeUnit};
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 use parquet::arrow::ArrowWriter;
+use parquet::basic::Compression;
+use parquet::file::properties::WriterProperties;
+use parquet::schema::types::ColumnPath;
 use sha2::{Digest, Sha256};
 use std::io::{self, Write};
 use std::path::Path;
@@ -59,46 +62,78 @@ fn io_err(e: impl std::fmt::Display) -> io::Error {
 
 /// Copies rows `from..to` of a Parquet table to `dst`, schema and units kept.
 pub fn copy_rows(src: &Path, dst: &Path, from: usize, to: usize) -> io::Result<usize> {
-    copy_rows_hashed(src, dst, from, to).map(|(rows, _, _)| rows)
+    let (rows, _, _) = split_rows(src, &[(dst, from..to)])?
+        .pop()
+        .expect("one output");
+    Ok(rows)
 }
 
-/// As [`copy_rows`], also returning the sha256 (hex) and size of what was
-/// written, hashed on the way out (no second read).
-pub fn copy_rows_hashed(
-    src: &Path,
-    dst: &Path,
-    from: usize,
-    to: usize,
-) -> io::Result<(usize, String, u64)> {
+/// Writer settings for task files: quick to write and to read (Snappy, no
+/// dictionary but on text columns, whose values repeat).
+fn task_properties(schema: &Schema) -> WriterProperties {
+    let mut b = WriterProperties::builder()
+        .set_compression(Compression::SNAPPY)
+        .set_dictionary_enabled(false);
+    for f in schema.fields() {
+        if matches!(
+            f.data_type(),
+            DataType::Utf8 | DataType::LargeUtf8 | DataType::Dictionary(_, _)
+        ) {
+            b = b.set_column_dictionary_enabled(ColumnPath::from(f.name().as_str()), true);
+        }
+    }
+    b.build()
+}
+
+/// One output of [`split_rows`]: where, and which rows of the source.
+pub type RowSlice<'a> = (&'a Path, std::ops::Range<usize>);
+
+/// Writes several row ranges of one Parquet table in a single pass over
+/// it (the source is decoded once, rows past the last range never), each
+/// to its own file, created anew. Returns per output its rows, sha256
+/// (hex, hashed on the way out) and bytes.
+pub fn split_rows(src: &Path, outs: &[RowSlice]) -> io::Result<Vec<(usize, String, u64)>> {
     let b = ParquetRecordBatchReaderBuilder::try_new(std::fs::File::open(src)?).map_err(io_err)?;
     let schema = b.schema().clone();
+    let end = outs.iter().map(|(_, r)| r.end).max().unwrap_or(0);
     let reader = b.with_batch_size(1 << 16).build().map_err(io_err)?;
-    let tally = Arc::new(std::sync::Mutex::new((Sha256::new(), 0u64)));
-    let out = Hashing {
-        inner: std::io::BufWriter::new(create_fresh(dst)?),
-        tally: tally.clone(),
-    };
-    let mut w = ArrowWriter::try_new(out, schema, None).map_err(io_err)?;
+    let mut writers = Vec::new();
+    for (dst, _) in outs {
+        let tally = Arc::new(std::sync::Mutex::new((Sha256::new(), 0u64)));
+        let out = Hashing {
+            inner: std::io::BufWriter::with_capacity(1 << 20, create_fresh(dst)?),
+            tally: tally.clone(),
+        };
+        let w = ArrowWriter::try_new(out, schema.clone(), Some(task_properties(&schema)))
+            .map_err(io_err)?;
+        writers.push((w, tally, 0usize));
+    }
     let mut row = 0;
-    let mut written = 0;
     for batch in reader {
         let batch = batch.map_err(io_err)?;
         let (lo, hi) = (row, row + batch.num_rows());
-        let (a, z) = (from.max(lo), to.min(hi));
-        if a < z {
-            w.write(&batch.slice(a - lo, z - a)).map_err(io_err)?;
-            written += z - a;
+        for ((w, _, written), (_, r)) in writers.iter_mut().zip(outs) {
+            let (a, z) = (r.start.max(lo), r.end.min(hi));
+            if a < z {
+                w.write(&batch.slice(a - lo, z - a)).map_err(io_err)?;
+                *written += z - a;
+            }
         }
         row = hi;
-        if row >= to {
+        if row >= end {
             break;
         }
     }
-    // Closing flushes the buffer through the hashing writer, then drops it.
-    w.close().map_err(io_err)?;
-    let (hash, bytes) = std::mem::take(&mut *tally.lock().map_err(|_| io_err("hash poisoned"))?);
-    let hex = hash.finalize().iter().map(|b| format!("{b:02x}")).collect();
-    Ok((written, hex, bytes))
+    let mut done = Vec::new();
+    for (w, tally, written) in writers {
+        // Closing flushes the buffer through the hashing writer, then drops it.
+        w.close().map_err(io_err)?;
+        let (hash, bytes) =
+            std::mem::take(&mut *tally.lock().map_err(|_| io_err("hash poisoned"))?);
+        let hex = hash.finalize().iter().map(|b| format!("{b:02x}")).collect();
+        done.push((written, hex, bytes));
+    }
+    Ok(done)
 }
 
 /// A column of an estimate, produced row by row (so a month at 1 s is never
