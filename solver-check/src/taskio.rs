@@ -88,14 +88,39 @@ fn task_properties(schema: &Schema) -> WriterProperties {
 /// One output of [`split_rows`]: where, and which rows of the source.
 pub type RowSlice<'a> = (&'a Path, std::ops::Range<usize>);
 
-/// Writes several row ranges of one Parquet table in a single pass over
-/// it (the source is decoded once, rows past the last range never), each
-/// to its own file, created anew. Returns per output its rows, sha256
-/// (hex, hashed on the way out) and bytes.
+/// Where raw copying of whole source row groups may start for `r`: the
+/// first row-group boundary at or after `r.start`, when every row group
+/// from there to `r.end` lies wholly inside `r` (so no row after them needs
+/// encoding). `bounds` are the row groups' first rows and the row count.
+fn raw_from(bounds: &[usize], r: &std::ops::Range<usize>) -> usize {
+    let ends_on_boundary = bounds.contains(&r.end);
+    match bounds.iter().find(|b| **b >= r.start) {
+        Some(&b) if ends_on_boundary && b < r.end => b,
+        _ => r.end,
+    }
+}
+
+/// Writes several row ranges of one Parquet table, each to its own file,
+/// created anew. Whole row groups of the source inside a range are copied
+/// as they are (no decoding); the rest is decoded once, in one pass, and
+/// encoded quickly. Returns per output its rows, sha256 (hex, hashed on the
+/// way out) and bytes.
 pub fn split_rows(src: &Path, outs: &[RowSlice]) -> io::Result<Vec<(usize, String, u64)>> {
-    let b = ParquetRecordBatchReaderBuilder::try_new(std::fs::File::open(src)?).map_err(io_err)?;
+    let file = std::fs::File::open(src)?;
+    let b = ParquetRecordBatchReaderBuilder::try_new(file.try_clone()?).map_err(io_err)?;
     let schema = b.schema().clone();
-    let end = outs.iter().map(|(_, r)| r.end).max().unwrap_or(0);
+    let meta = b.metadata().clone();
+    let mut bounds = vec![0usize];
+    for rg in meta.row_groups() {
+        bounds.push(bounds.last().copied().unwrap_or(0) + rg.num_rows().max(0) as usize);
+    }
+    let raw: Vec<usize> = outs.iter().map(|(_, r)| raw_from(&bounds, r)).collect();
+    let end = outs
+        .iter()
+        .zip(&raw)
+        .map(|((_, r), &x)| x.min(r.end))
+        .max()
+        .unwrap_or(0);
     let reader = b.with_batch_size(1 << 16).build().map_err(io_err)?;
     let mut writers = Vec::new();
     for (dst, _) in outs {
@@ -110,30 +135,66 @@ pub fn split_rows(src: &Path, outs: &[RowSlice]) -> io::Result<Vec<(usize, Strin
     }
     let mut row = 0;
     for batch in reader {
+        if row >= end {
+            break;
+        }
         let batch = batch.map_err(io_err)?;
         let (lo, hi) = (row, row + batch.num_rows());
-        for ((w, _, written), (_, r)) in writers.iter_mut().zip(outs) {
-            let (a, z) = (r.start.max(lo), r.end.min(hi));
+        for (((w, _, written), (_, r)), &x) in writers.iter_mut().zip(outs).zip(&raw) {
+            let (a, z) = (r.start.max(lo), r.end.min(hi).min(x));
             if a < z {
                 w.write(&batch.slice(a - lo, z - a)).map_err(io_err)?;
                 *written += z - a;
             }
         }
         row = hi;
-        if row >= end {
-            break;
-        }
     }
     let mut done = Vec::new();
-    for (w, tally, written) in writers {
-        // Closing flushes the buffer through the hashing writer, then drops it.
-        w.close().map_err(io_err)?;
+    for ((w, tally, written), ((_, r), &x)) in writers.into_iter().zip(outs.iter().zip(&raw)) {
+        let copied = copy_row_groups(w, &file, &meta, &bounds, x..r.end)?;
         let (hash, bytes) =
             std::mem::take(&mut *tally.lock().map_err(|_| io_err("hash poisoned"))?);
         let hex = hash.finalize().iter().map(|b| format!("{b:02x}")).collect();
-        done.push((written, hex, bytes));
+        done.push((written + copied, hex, bytes));
     }
     Ok(done)
+}
+
+/// Appends the source's whole row groups covering `rows` (on row-group
+/// boundaries) to the writer, column chunk by column chunk as they are
+/// encoded, then closes the file. Returns the rows copied.
+fn copy_row_groups<W: Write + Send>(
+    w: ArrowWriter<W>,
+    src: &std::fs::File,
+    meta: &parquet::file::metadata::ParquetMetaData,
+    bounds: &[usize],
+    rows: std::ops::Range<usize>,
+) -> io::Result<usize> {
+    use parquet::column::writer::ColumnCloseResult;
+    let (mut fw, _) = w.into_serialized_writer().map_err(io_err)?;
+    let mut copied = 0;
+    for (k, rg) in meta.row_groups().iter().enumerate() {
+        if bounds[k] < rows.start || bounds[k + 1] > rows.end {
+            continue;
+        }
+        let mut rw = fw.next_row_group().map_err(io_err)?;
+        for chunk in rg.columns() {
+            let close = ColumnCloseResult {
+                bytes_written: chunk.compressed_size().max(0) as u64,
+                rows_written: rg.num_rows().max(0) as u64,
+                metadata: chunk.clone(),
+                bloom_filter: None,
+                column_index: None,
+                offset_index: None,
+            };
+            rw.append_column(src, close).map_err(io_err)?;
+        }
+        rw.close().map_err(io_err)?;
+        copied += bounds[k + 1] - bounds[k];
+    }
+    // Closing writes the footer through the hashing writer, then drops it.
+    fw.close().map_err(io_err)?;
+    Ok(copied)
 }
 
 /// A column of an estimate, produced row by row (so a month at 1 s is never
