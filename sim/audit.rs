@@ -178,6 +178,7 @@ pub fn declared(s: &Scenario) -> Declared {
         appliances,
         partial: false,
         real_only: false,
+        timezone: s.home.timezone.clone(),
     }
 }
 

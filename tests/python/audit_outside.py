@@ -629,7 +629,10 @@ def score(results):
             continue
         rep = r["report"]
         found = set()
-        for f in rep["findings"]:
+        # A partial declaration lists only some appliances: the loads it
+        # leaves out are reported apart ("unlisted"), and an injected load
+        # counts as found there (wrong ones there are false like any other).
+        for f in rep["findings"] + rep.get("unlisted_loads", []):
             k = judge_finding(f, r, rep)
             kind = f["kind"]
             if k is None or (k != "unlisted" and k in found):

@@ -109,6 +109,7 @@ def test_a_rated_template_declared_line_to_neutral_is_found_across_the_lines(sim
     decl = home().replace('template = "water_heater"', 'template = "water_heater"\nwiring = "L1-N"')
     r = report(d, decl, tmp_path)
     assert kinds(r) == [("declared-ln-seen-ll", "water_heater")]
+    assert "breaker" in r["findings"][0]["advice"]
     [w] = [a for a in r["appliances"] if a["id"] == "water_heater"]
     assert w["verdict"] == "finding" and w["seen"] == "L1-L2"
 
@@ -145,8 +146,12 @@ def test_a_partial_declaration_stays_right(simulate, tmp_path):
         '[[appliance]]\nid = "water_heater"\npower = "4500 W"\nrated = "240 V"\nwiring = "L1-L2"\n' + \
         '[[appliance]]\nid = "pump"\npower = "1100 W"\npf = 0.8\nwiring = "L1-L2"\n'
     r = report(d, text, tmp_path)
-    assert all(f["kind"] == "undeclared-load" for f in r["findings"]), r["findings"]
+    assert r["findings"] == [], r["findings"]
     assert [m["found"] for m in r["metering"]] == ["CT on L1", "CT on L2"]
+    # The kettle (1.5 kW, L2-N) is among the loads the declaration leaves out.
+    assert any(u["evidence"]["wiring"] == "L2-N" and abs(u["evidence"]["p_w"] - 1500) < 150
+               for u in r["unlisted_loads"]), r["unlisted_loads"]
+    assert any("partial" in n for n in r["notes"]) or len(r["unlisted_loads"]) > 0
 
 
 def test_real_power_only_without_a_manifest(simulate, tmp_path):
@@ -177,6 +182,14 @@ def test_an_undeclared_load_of_a_declared_appliances_size_does_not_move_it(simul
     assert 0 < ev["energy_share"] <= 1
     [k] = [a for a in r["appliances"] if a["id"] == "kettle"]
     assert k["verdict"] == "as declared"
+    # What to check, with local times of examples (America/Chicago, UTC-6 in
+    # January: the first start's UTC time less six hours).
+    f = r["findings"][0]
+    assert "find the load of about" in f["advice"] and "local time" in f["advice"]
+    utc = f["evidence"]["first_starts"][0]
+    local = f["evidence"]["first_starts_local"][0]
+    hour = (int(utc[11:13]) - 6) % 24
+    assert local.endswith(f"{hour:02d}:{utc[14:16]}"), (utc, local)
 
 
 def test_channels_exchanged_are_one_fault_not_several_appliances_moved(simulate, tmp_path):

@@ -383,6 +383,8 @@ pub struct Declared {
     /// The meter reads real power only: expected readings are compared by
     /// their real parts.
     pub real_only: bool,
+    /// The home's time zone (IANA name), for the local times of examples.
+    pub timezone: String,
 }
 
 impl Declared {

@@ -236,11 +236,43 @@ pub const ASSUMPTIONS: [&str; 3] = [
 ];
 
 fn finding_json(f: &check::Finding) -> Value {
-    json!({ "kind": f.kind, "subject": f.subject, "message": f.message, "confidence": (f.confidence * 100.0).round() / 100.0, "evidence": f.evidence })
+    json!({ "kind": f.kind, "subject": f.subject, "message": f.message, "advice": advice(f), "confidence": (f.confidence * 100.0).round() / 100.0, "evidence": f.evidence })
+}
+
+/// What to check on site for a finding.
+pub fn advice(f: &check::Finding) -> String {
+    let ev = &f.evidence;
+    let text = |k: &str| ev[k].as_str().unwrap_or("?").to_string();
+    let chans = f.subject.replace('+', " and ");
+    match f.kind {
+        "reversed-ct" => format!("turn the CT of channel {chans} round (its arrow toward the load), or declare it reversed"),
+        "ct-on-other-conductor" => format!("move the CT of channel {chans} onto its own line's conductor, or declare where it sits"),
+        "cts-exchanged" => format!("exchange the CTs of channels {chans} (each sits on the other's conductor)"),
+        "channels-exchanged" => format!("exchange the leads of channels {chans} (CT and voltage together) or their labels in the monitor"),
+        "no-ct" => format!("check that a CT is fitted for channel {chans}, and its lead and connector"),
+        "undeclared-load" => {
+            let when: Vec<String> = ev["first_starts_local"]
+                .as_array()
+                .map(|a| a.iter().filter_map(|x| x.as_str().map(String::from)).collect())
+                .unwrap_or_default();
+            format!(
+                "find the load of about {:.0} W on {} (it started {}, local time) and add it to the declaration",
+                ev["p_w"].as_f64().unwrap_or(0.0),
+                text("wiring"),
+                if when.is_empty() { "at times listed in the evidence".into() } else { when.join(", ") }
+            )
+        }
+        _ => format!(
+            "check which breaker feeds {} and how it is connected: declared {}, the data shows {}; correct the declaration or the wiring",
+            f.subject,
+            text("declared"),
+            text("found")
+        ),
+    }
 }
 
 /// What a confidence means, printed with the findings.
-pub const CONFIDENCE: &str = "confidence: for metering and wiring, the share of the evidence (steps, appliances, negative power) that only the finding explains and the declaration does not; for an undeclared load seen to run whole n times (a start, then its stop), n / (n + 2)";
+pub const CONFIDENCE: &str = "confidence: for metering and wiring, the share of the evidence (steps, appliances, negative power) that only the finding explains and the declaration does not; for an undeclared load, a tenth for each run seen whole (a start, then its stop)";
 
 impl Audit {
     fn channel_rows(&self) -> Vec<[String; 3]> {
@@ -291,6 +323,7 @@ impl Audit {
             "findings": self.outcome.findings.iter().map(finding_json).collect::<Vec<_>>(),
             "possible": self.outcome.possible.iter().map(finding_json).collect::<Vec<_>>(),
             "possible_below": check::POSSIBLE,
+            "unlisted_loads": self.outcome.unlisted.iter().map(finding_json).collect::<Vec<_>>(),
             "appliances": self.outcome.appliances.iter().map(|a| json!({ "id": a.id, "declared": a.declared, "verdict": a.verdict, "seen": a.seen, "reason": a.reason, "steps_as_declared": a.steps_declared, "steps_best_other": a.steps_best_other })).collect::<Vec<_>>(),
             "steps": { "used": self.outcome.steps, "explained": self.outcome.steps_explained },
             "notes": self.outcome.notes,
@@ -313,8 +346,11 @@ impl Audit {
         };
         for x in f {
             o += &format!(
-                "{bullet}[{}] {} (confidence {:.2})\n",
-                x.kind, x.message, x.confidence
+                "{bullet}[{}] {} (confidence {:.2})\n{bullet}  to check: {}\n",
+                x.kind,
+                x.message,
+                x.confidence,
+                advice(x)
             );
         }
         let p = &self.outcome.possible;
@@ -331,7 +367,21 @@ impl Audit {
                 );
             }
         }
+        let u = &self.outcome.unlisted;
+        if !u.is_empty() {
+            o += &format!(
+                "{} recurring load{} the partial declaration does not list (not mistakes)\n",
+                u.len(),
+                if u.len() == 1 { "" } else { "s" }
+            );
+            for x in u {
+                o += &format!("{bullet}[unlisted] {}\n", x.message);
+            }
+        }
         o += &format!("{CONFIDENCE}\n");
+        for n in &self.outcome.notes {
+            o += &format!("{bullet}note: {n}\n");
+        }
         o
     }
 
