@@ -199,3 +199,21 @@ def test_channels_exchanged_are_one_fault_not_several_appliances_moved(simulate,
     d = simulate(home(extra='[faults]\nswap = ["L1", "L2"]\n'))
     r = report(d, SHORT, tmp_path)
     assert kinds(r) == [("channels-exchanged", "l1+l2")], kinds(r)
+
+
+def test_the_loading_picture_says_what_is_not_measured_and_when_lines_peak(simulate, tmp_path):
+    """No CT on L2: its line is "not measured", not a line with 0 A; each
+    measured line's peak has its local time (America/Chicago, UTC-6 in
+    January), at the row where the truth's L1 current is highest."""
+    d = simulate(home(interval="10 s", extra='[faults]\nno_ct = "L2"\n'))
+    r = report(d, SHORT, tmp_path)
+    lines = {l["conductor"]: l for l in r["loading"]["lines"]}
+    assert lines["l2"]["measured"] is False and lines["l1"]["measured"] is True
+    m = pq.read_table(d / "meters.parquet").to_pandas()
+    t = m.loc[m["l1_i_a"].idxmax(), "time"].tz_convert("America/Chicago")
+    assert lines["l1"]["peak_time_local"] == t.strftime("%a %Y-%m-%d %H:%M")
+    decl = tmp_path / "d2.toml"
+    decl.write_text(SHORT)
+    text = loadloom("audit", d, "--declared", decl).stdout
+    assert "not measured" in text
+    assert "not an inspection" in text

@@ -15,6 +15,10 @@ pub const CAUTION: &str = "Caution: this is an analysis of data, not an inspecti
 
 pub struct LineLoading {
     pub line: String,
+    /// Whether the line has readings at all (a missing CT has none).
+    pub measured: bool,
+    /// When the peak was read, ms since the epoch.
+    pub peak_ms: Option<i64>,
     pub peak_a: f64,
     pub demand_15min_a: f64,
     pub mean_a: f64,
@@ -30,6 +34,8 @@ pub struct Loading {
     pub neutral_peak_estimated_a: f64,
     /// Whether the table has current columns (else currents are from power).
     pub current_measured: bool,
+    /// The home's time zone (IANA), for the local time of each peak.
+    pub timezone: String,
 }
 
 /// Line-to-neutral phase angles of the supply, degrees (from the manifest).
@@ -47,7 +53,11 @@ pub fn loading(dataset: &Path) -> Result<Loading, String> {
     let nominal_v = ds.manifest["supply"]["voltage_ln_v"]
         .as_f64()
         .unwrap_or(f64::NAN);
-    loading_of(&h, &ds.lines, &angles(&ds), service_a, nominal_v)
+    let mut l = loading_of(&h, &ds.lines, &angles(&ds), service_a, nominal_v)?;
+    if let Some(tz) = ds.manifest["time"]["timezone"].as_str() {
+        l.timezone = tz.to_string();
+    }
+    Ok(l)
 }
 
 /// The loading picture of a meters table with these line channels. A table
@@ -80,6 +90,7 @@ pub fn loading_of(
         cols.push("n_i_a".into());
     }
     let (mut peak, mut sum, mut count) = (vec![0.0f64; n], vec![0.0f64; n], vec![0u64; n]);
+    let mut peak_ms = vec![None::<i64>; n];
     let (mut n_peak, mut n_est_peak) = (None::<f64>, 0.0f64);
     // 15-minute demand: means over clock quarter-hours (UTC quarter-hours are
     // local ones too for every zone offset in whole quarter-hours).
@@ -108,7 +119,10 @@ pub fn loading_of(
                     continue;
                 }
                 any = true;
-                peak[x] = peak[x].max(i);
+                if i > peak[x] || peak_ms[x].is_none() {
+                    peak[x] = peak[x].max(i);
+                    peak_ms[x] = Some(t);
+                }
                 sum[x] += i;
                 count[x] += 1;
                 q_sum[x] += i;
@@ -142,6 +156,8 @@ pub fn loading_of(
     let lines: Vec<LineLoading> = (0..n)
         .map(|x| LineLoading {
             line: lines[x].clone(),
+            measured: count[x] > 0,
+            peak_ms: peak_ms[x],
             peak_a: peak[x],
             demand_15min_a: demand[x],
             mean_a: if count[x] > 0 {
@@ -167,6 +183,7 @@ pub fn loading_of(
         neutral_peak_measured_a: n_peak,
         neutral_peak_estimated_a: n_est_peak,
         current_measured,
+        timezone: "UTC".into(),
     })
 }
 
@@ -176,7 +193,7 @@ impl Loading {
             "format": "loadloom-audit/1",
             "service_a": self.service_a,
             "lines": self.lines.iter().map(|l| json!({
-                "conductor": l.line, "peak_a": l.peak_a, "demand_15min_a": l.demand_15min_a, "mean_a": l.mean_a,
+                "conductor": l.line, "measured": l.measured, "peak_time_local": self.local(l.peak_ms), "peak_a": l.peak_a, "demand_15min_a": l.demand_15min_a, "mean_a": l.mean_a,
                 "peak_share_of_service": if self.service_a > 0.0 { l.peak_a / self.service_a } else { 0.0 },
                 "demand_share_of_service": if self.service_a > 0.0 { l.demand_15min_a / self.service_a } else { 0.0 },
             })).collect::<Vec<_>>(),
@@ -199,6 +216,12 @@ impl Loading {
         self.lines
             .iter()
             .map(|l| {
+                if !l.measured {
+                    let mut r: [String; 6] = Default::default();
+                    r[0] = l.line.to_uppercase();
+                    r[1] = "not measured".into();
+                    return r;
+                }
                 [
                     l.line.to_uppercase(),
                     format!("{:.1}", l.peak_a),
@@ -220,8 +243,32 @@ impl Loading {
         "mean A",
     ];
 
+    /// A time as local time in the home's zone ("Mon 2027-01-04 18:02").
+    fn local(&self, ms: Option<i64>) -> Option<String> {
+        let zone = jiff::tz::TimeZone::get(&self.timezone).unwrap_or(jiff::tz::TimeZone::UTC);
+        let t = jiff::Timestamp::from_millisecond(ms?).ok()?;
+        Some(t.to_zoned(zone).strftime("%a %Y-%m-%d %H:%M").to_string())
+    }
+
     fn tail(&self) -> String {
         let mut o = String::new();
+        for l in self.lines.iter().filter(|l| l.measured) {
+            if let Some(t) = self.local(l.peak_ms) {
+                o += &format!(
+                    "{} peaks at {t} ({})\n",
+                    l.line.to_uppercase(),
+                    self.timezone
+                );
+            }
+            if self.service_a > 0.0 && l.demand_15min_a > self.service_a {
+                o += &format!(
+                    "{}: the 15-minute demand, {:.1} A, is above the service rating of {:.0} A\n",
+                    l.line.to_uppercase(),
+                    l.demand_15min_a,
+                    self.service_a
+                );
+            }
+        }
         if !self.current_measured {
             o += "currents are estimated from power over voltage (the data has no current columns; without reactive power, unity power factor): a lower bound\n";
         }

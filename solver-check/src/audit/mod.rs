@@ -175,13 +175,14 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
         .notes
         .extend(measured_notes(with_q, with_v.iter().any(|v| *v)));
     let h2 = header(&file).map_err(|e| e.to_string())?;
-    let loading = loading_of(
+    let mut loading = loading_of(
         &h2,
         &have,
         &d.supply.angles_deg,
         d.supply.service_a,
         d.supply.voltage_v,
     )?;
+    loading.timezone = d.timezone.clone();
     Ok(Audit {
         data: data.display().to_string(),
         declared_file: d.file.clone(),
