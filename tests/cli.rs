@@ -2,17 +2,13 @@
 //! written folder. Each test works in a throw-away folder of its own.
 
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+use std::process::Output;
 
-fn bin() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_loadloom"))
-}
+mod common;
+use common::bin;
 
 fn scratch(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("loadloom-cli-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
+    common::scratch("cli", name)
 }
 
 const BASE: &str = r#"

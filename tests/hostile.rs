@@ -4,17 +4,13 @@
 //! alike, and leave nothing behind; never a panic (exit 101) or a hang.
 
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+use std::process::Output;
 
-fn bin() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_loadloom"))
-}
+mod common;
+use common::bin;
 
 fn scratch(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("loadloom-hostile-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
+    common::scratch("hostile", name)
 }
 
 /// A small home; the tests below replace one piece of it.
