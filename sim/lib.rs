@@ -20,5 +20,6 @@ pub mod roundtrip;
 pub mod scenario;
 pub mod simulate;
 pub mod summary;
+pub mod sun;
 pub mod units;
 pub mod waveform;
