@@ -1,10 +1,13 @@
 //! Fleets: a population file resolved, home by home, into scenarios, and the
-//! homes simulated in parallel into a Hive-partitioned folder
-//! (`home=00042/…`), with a `homes.parquet` index and a `fleet.json` summary.
+//! homes simulated in parallel into one folder where each table is its own
+//! Hive-partitioned dataset (`meters/home=h00042/meters.parquet`, `truth/…`,
+//! `events/…`; each home's `manifest.json` and `scenario.toml` under
+//! `manifests/home=h00042/`), with a `homes.parquet` index and a
+//! `fleet.json` summary beside them.
 //!
 //! Each home's scenario is resolved from (population seed, home index) alone,
 //! so any shard of the fleet computes exactly its homes, and any home can be
-//! rebuilt with `loadloom run home=00042/scenario.toml`.
+//! rebuilt with `loadloom run manifests/home=h00042/scenario.toml`.
 
 use crate::behaviour::dist::categorical;
 use crate::rng::stream;
@@ -428,10 +431,23 @@ impl Population {
         self.path.with_file_name(format!("{stem}.home-{i:05}.toml"))
     }
 
+    /// The population's own template folder (`library/` beside it), as an
+    /// absolute path, if it has one: written into each home's scenario so
+    /// the home rebuilds alone from wherever its `scenario.toml` lies.
+    fn library(&self) -> Option<PathBuf> {
+        let dir = self.path.parent().unwrap_or(Path::new(".")).join("library");
+        dir.is_dir()
+            .then(|| std::path::absolute(&dir).unwrap_or(dir))
+    }
+
     fn header(&self, kind: &HomeKind, away: Option<&str>, i: u64, seed: u64) -> String {
         let away = away.map(|a| format!("away = {a:?}\n")).unwrap_or_default();
+        let library = self
+            .library()
+            .map(|d| format!("library = {:?}\n\n", d.to_string_lossy()))
+            .unwrap_or_default();
         format!(
-            "[home]\nlabel = {:?}\n{}{away}\n[run]\n{}seed = {seed}\n\n[meter]\n{}\n",
+            "{library}[home]\nlabel = {:?}\n{}{away}\n[run]\n{}seed = {seed}\n\n[meter]\n{}\n",
             format!("{} home {i:05}", self.label),
             kind.home_toml,
             self.run_toml,
@@ -529,7 +545,7 @@ impl Population {
             t += "\n[[appliance]]\nid = \"standby\"\ntemplate = \"standby\"\n";
         }
         let mut s = crate::scenario::load_str(&self.home_path(i), t.clone())?;
-        s.name = format!("home={i:05}");
+        s.name = home_key(i);
         // Messages name the population, not the generated text (no such file).
         s.home.source_at = format!("{} (home kind \"{}\")", self.path.display(), kind.name);
         let occ_name = occ
@@ -596,19 +612,61 @@ impl Shard {
     }
 }
 
-fn home_dir(out: &Path, i: u64) -> PathBuf {
-    out.join(format!("home={i:05}"))
+/// The key of home `i` in every table and in `homes.parquet`: `h00042`.
+/// Not a number, so every reader's partition inference keeps it a string
+/// (`home=00042` would be read as the integer 42 by pyarrow, pandas,
+/// polars, duckdb and Spark, and no longer join the index).
+pub fn home_key(i: u64) -> String {
+    format!("h{i:05}")
+}
+
+/// The tables of a fleet, each a folder of Hive partitions by home.
+pub const TABLES: [&str; 3] = ["meters", "truth", "events"];
+
+/// Where home `i`'s files go, relative to the fleet folder.
+fn layout(i: u64) -> crate::dataset::Layout {
+    let part = |table: &str| Path::new(table).join(format!("home={}", home_key(i)));
+    crate::dataset::Layout {
+        form: crate::dataset::schema::Form::Fleet,
+        meters: part(TABLES[0]),
+        truth: part(TABLES[1]),
+        events: part(TABLES[2]),
+        manifest: part("manifests"),
+    }
+}
+
+/// The folder of home `i`'s `manifest.json` and `scenario.toml`.
+fn manifest_dir(out: &Path, i: u64) -> PathBuf {
+    out.join(layout(i).manifest)
+}
+
+/// Whether every file home `i`'s manifest lists has the size and sha256
+/// the manifest gives it (paths relative to the fleet folder).
+fn files_match(out: &Path, i: u64) -> bool {
+    let Ok(text) = std::fs::read_to_string(manifest_dir(out, i).join("manifest.json")) else {
+        return false;
+    };
+    let Ok(m) = serde_json::from_str::<Value>(&text) else {
+        return false;
+    };
+    let Some(files) = m["files"].as_object().filter(|f| f.len() == TABLES.len()) else {
+        return false;
+    };
+    files.iter().all(|(name, f)| {
+        let path = out.join(name);
+        std::fs::metadata(&path).is_ok_and(|md| Some(md.len()) == f["bytes"].as_u64())
+            && crate::dataset::manifest::sha256_file(&path).ok().as_deref() == f["sha256"].as_str()
+    })
 }
 
 /// Whether home `i` is written completely: its files match its manifest,
 /// and its `scenario.toml` is the one the population gives home `i` (a
 /// damaged or missing one makes the home be redone).
 pub fn is_complete(pop: &Population, out: &Path, i: u64) -> bool {
-    let dir = home_dir(out, i);
-    let data_ok = solver_check::Dataset::open(&dir).is_ok_and(|d| d.verify().is_ok());
-    data_ok
+    files_match(out, i)
         && pop.home(i).is_ok_and(|(s, _)| {
-            std::fs::read_to_string(dir.join("scenario.toml")).ok() == s.source_toml
+            std::fs::read_to_string(manifest_dir(out, i).join("scenario.toml")).ok()
+                == s.source_toml
         })
 }
 
@@ -645,8 +703,8 @@ fn make_home(pop: &Population, out: &Path, i: u64) -> Result<(), FleetError> {
         error,
         bad_input: true,
     })?;
-    let written = crate::dataset::write(&s, out, crate::dataset::Format::Parquet, &mut |_| {});
-    written.map(|_| ()).map_err(|e| {
+    let written = write_home(&s, out, i);
+    written.map_err(|e| {
         let diverged = e
             .get_ref()
             .and_then(|x| x.downcast_ref::<crate::electrical::settle::Diverged>())
@@ -663,10 +721,39 @@ fn make_home(pop: &Population, out: &Path, i: u64) -> Result<(), FleetError> {
             )
         };
         FleetError {
-            error: Error::file(&home_dir(out, i), message, help).caused_by(&e),
+            error: Error::file(&manifest_dir(out, i), message, help).caused_by(&e),
             bad_input: diverged,
         }
     })
+}
+
+/// Writes home `i` into a partial folder of its own, then moves its parts
+/// into the tables: its manifest's folder first out (a home without it is
+/// incomplete and redone on the next run), then in again last.
+fn write_home(s: &Scenario, out: &Path, i: u64) -> std::io::Result<()> {
+    use crate::dataset::folder::PartialDir;
+    let tmp = PartialDir::create(out.join(format!(".{}.partial-{}", s.name, std::process::id())))?;
+    let layout = layout(i);
+    let format = crate::dataset::Format::Parquet;
+    crate::dataset::write_into(s, tmp.path(), format, &layout, &mut |_| {})?;
+    let parts = [
+        &layout.manifest,
+        &layout.meters,
+        &layout.truth,
+        &layout.events,
+    ];
+    for part in parts {
+        let dest = out.join(part);
+        if std::fs::symlink_metadata(&dest).is_ok() {
+            std::fs::remove_dir_all(&dest)?;
+        }
+    }
+    for part in parts.into_iter().rev() {
+        let dest = out.join(part);
+        std::fs::create_dir_all(dest.parent().unwrap_or(out))?;
+        std::fs::rename(tmp.path().join(part), dest)?;
+    }
+    Ok(()) // `tmp`, now empty folders, is removed as it drops
 }
 
 pub struct FleetRun {
@@ -731,7 +818,7 @@ pub fn run(
     if let Some(e) = failure.into_inner().unwrap() {
         return Err(e);
     }
-    let all = (0..homes).all(|i| home_dir(out, i).join("manifest.json").is_file());
+    let all = (0..homes).all(|i| manifest_dir(out, i).join("manifest.json").is_file());
     if all {
         write_index(pop, homes, out).map_err(|m| {
             let help = "check free space and permissions; run the fleet again to write the index";
@@ -752,10 +839,11 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
     use std::sync::Arc;
     let (mut ids, mut kinds, mut supplies, mut apps, mut counts, mut kwh, mut rows) =
         (vec![], vec![], vec![], vec![], vec![], vec![], vec![]);
+    let mut zones = vec![];
     let mut owned: std::collections::BTreeMap<String, u64> = Default::default();
     for i in 0..homes {
         let m: Value = serde_json::from_str(
-            &std::fs::read_to_string(home_dir(out, i).join("manifest.json"))
+            &std::fs::read_to_string(manifest_dir(out, i).join("manifest.json"))
                 .map_err(|e| e.to_string())?,
         )
         .map_err(|e| e.to_string())?;
@@ -779,19 +867,26 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
         for t in templates {
             *owned.entry(t).or_default() += 1;
         }
-        ids.push(format!("{i:05}"));
+        ids.push(home_key(i));
+        zones.push(m["time"]["timezone"].as_str().unwrap_or("").to_string());
         let (_, kind) = pop.home(i).map_err(|e| e.to_string())?;
         kinds.push(kind);
         supplies.push(m["supply"]["kind"].as_str().unwrap_or("").to_string());
         counts.push(list.len() as i64);
         apps.push(list.join(","));
         kwh.push(m["summary"]["energy_kwh"].as_f64().unwrap_or(0.0));
-        rows.push(m["files"]["meters.parquet"]["rows"].as_i64().unwrap_or(0));
+        let meters = layout(i).meters.join("meters.parquet");
+        rows.push(
+            m["files"][meters.to_string_lossy().as_ref()]["rows"]
+                .as_i64()
+                .unwrap_or(0),
+        );
     }
     let schema = Arc::new(Schema::new(vec![
         Field::new("home", DataType::Utf8, false),
         Field::new("kind", DataType::Utf8, false),
         Field::new("supply", DataType::Utf8, false),
+        Field::new("timezone", DataType::Utf8, false),
         Field::new("appliances", DataType::Int64, false),
         Field::new("appliance_ids", DataType::Utf8, false),
         Field::new("energy_kwh", DataType::Float64, false),
@@ -801,6 +896,7 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
         Arc::new(StringArray::from(ids)),
         Arc::new(StringArray::from(kinds.clone())),
         Arc::new(StringArray::from(supplies)),
+        Arc::new(StringArray::from(zones)),
         Arc::new(Int64Array::from(counts)),
         Arc::new(StringArray::from(apps)),
         Arc::new(Float64Array::from(kwh.clone())),
@@ -826,7 +922,7 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
         })
         .collect();
     let summary = json!({
-        "format": "loadloom-fleet/1",
+        "format": "loadloom-fleet/2",
         "population": pop.path.display().to_string(),
         "label": pop.label,
         "seed": pop.seed,
@@ -834,7 +930,8 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
         "kinds": kind_counts,
         "ownership": owned.iter().map(|(t, n)| (t.clone(), json!({ "homes": n, "share": *n as f64 / homes as f64 }))).collect::<serde_json::Map<_, _>>(),
         "energy_kwh": kwh.iter().sum::<f64>(),
-        "layout": "home=NNNNN/{meters,truth,events}.parquet, manifest.json, scenario.toml (Hive-partitioned by home)",
+        "tables": TABLES.iter().map(|t| (t.to_string(), json!(format!("{t}/home=*/{t}.parquet")))).collect::<serde_json::Map<_, _>>(),
+        "layout": "meters/, truth/ (long: a row per interval and appliance), events/: each Hive-partitioned by home (home=h00042), times in UTC; homes.parquet: one row per home with its time zone; manifests/home=h00042/: each home's manifest.json and scenario.toml",
     });
     let text = serde_json::to_string_pretty(&summary).map_err(|e| e.to_string())? + "\n";
     crate::dataset::folder::write_file(&out.join("fleet.json"), text.as_bytes())

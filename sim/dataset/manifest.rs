@@ -4,7 +4,6 @@
 //! sha256, and a summary.
 
 use super::schema::{line_name, Col, FORMAT};
-use super::sink::Format;
 use super::tables::Tables;
 use crate::electrical::{elems_of, nominal_phasors, C64};
 use crate::scenario::{Appliance, Scenario, State, NEUTRAL};
@@ -14,7 +13,8 @@ use sha2::{Digest, Sha256};
 use std::io::{self, Read};
 use std::path::Path;
 
-fn sha256_file(path: &Path) -> io::Result<String> {
+/// The sha256 of a file's bytes, in hex.
+pub fn sha256_file(path: &Path) -> io::Result<String> {
     let mut f = std::fs::File::open(path)?;
     let mut h = Sha256::new();
     let mut buf = vec![0u8; 1 << 20];
@@ -136,25 +136,27 @@ fn faults_json(s: &Scenario, tables: &Tables, o: &Outcome) -> Value {
 }
 
 #[allow(clippy::too_many_arguments)]
+/// The manifest of the dataset written into `dir`: `files` are the tables
+/// (paths relative to `dir`, with their rows), `waves` the waveform files
+/// in `meta` (the manifest's own folder).
 pub fn build(
     s: &Scenario,
     tables: &Tables,
-    format: Format,
     o: &Outcome,
     card: &crate::difficulty::Difficulty,
-    files: &[(&str, u64)],
+    files: &[(String, u64)],
     waves: &[(String, Value)],
     dir: &Path,
+    meta: &Path,
 ) -> io::Result<Value> {
     let lines = s.home.supply.lines();
     let mut file_map = Map::new();
     for (name, rows) in files {
-        let fname = format!("{name}.{}", format.ext());
-        let path = dir.join(&fname);
-        file_map.insert(fname, json!({ "rows": rows, "bytes": std::fs::metadata(&path)?.len(), "sha256": sha256_file(&path)? }));
+        let path = dir.join(name);
+        file_map.insert(name.clone(), json!({ "rows": rows, "bytes": std::fs::metadata(&path)?.len(), "sha256": sha256_file(&path)? }));
     }
     for (name, w) in waves {
-        let path = dir.join(name);
+        let path = meta.join(name);
         file_map.insert(name.clone(), json!({ "frames": w["frames"], "bytes": std::fs::metadata(&path)?.len(), "sha256": sha256_file(&path)? }));
     }
     let ll_v = match s.home.supply {

@@ -25,6 +25,41 @@ use tables::Tables;
 /// Rows per chunk handed from the simulator to the writers.
 pub const CHUNK_ROWS: usize = 65_536;
 
+/// Where a dataset's files go inside the folder being written (paths
+/// relative to it), and the form of their tables.
+pub struct Layout {
+    pub form: schema::Form,
+    /// The folders of `meters.*`, `truth.*` and `events.*`, and of
+    /// `manifest.json` and `scenario.toml` (waveforms go beside the manifest).
+    pub meters: PathBuf,
+    pub truth: PathBuf,
+    pub events: PathBuf,
+    pub manifest: PathBuf,
+}
+
+impl Layout {
+    /// A home on its own: every file in the dataset's folder.
+    pub fn single() -> Layout {
+        Layout {
+            form: schema::Form::Single,
+            meters: PathBuf::new(),
+            truth: PathBuf::new(),
+            events: PathBuf::new(),
+            manifest: PathBuf::new(),
+        }
+    }
+
+    /// The relative path of table `name` (`meters`, `truth`, `events`).
+    fn table(&self, name: &str, format: Format) -> PathBuf {
+        let folder = match name {
+            "meters" => &self.meters,
+            "truth" => &self.truth,
+            _ => &self.events,
+        };
+        folder.join(format!("{name}.{}", format.ext()))
+    }
+}
+
 /// What happened, for the command-line summary.
 pub struct Written {
     pub dir: PathBuf,
@@ -49,7 +84,7 @@ pub fn write(
         s.name,
         std::process::id()
     )))?;
-    let (rows, outcome) = write_into(s, tmp.path(), format, progress)?;
+    let (rows, outcome) = write_into(s, tmp.path(), format, &Layout::single(), progress)?;
     replace_dir(tmp.path(), &dest)?;
     tmp.keep();
     Ok(Written {
@@ -109,26 +144,34 @@ fn encode_rows(
     truth.close(threads)
 }
 
-fn write_into(
+/// Simulates `s` and writes its files into `dir` as `layout` places them
+/// (creating the layout's folders). Returns the rows and the outcome.
+pub fn write_into(
     s: &Scenario,
     dir: &Path,
     format: Format,
+    layout: &Layout,
     progress: &mut dyn FnMut(f64),
 ) -> io::Result<(u64, Outcome)> {
-    let tables = Tables::new(s);
-    let ext = format.ext();
-    let tz = &s.home.timezone;
+    let tables = Tables::with_form(s, layout.form);
+    let tz = layout.form.timezone(s);
     let intervals = s.intervals();
     let tl = timelines(s, s.run.steps());
+    let files = ["meters", "truth", "events"].map(|t| layout.table(t, format));
+    for f in &files {
+        std::fs::create_dir_all(dir.join(f).parent().unwrap_or(dir))?;
+    }
+    let meta = dir.join(&layout.manifest);
+    std::fs::create_dir_all(&meta)?;
     let meters = Sink::create(
-        &dir.join(format!("meters.{ext}")),
+        &dir.join(&files[0]),
         format,
         tables.meters_schema.clone(),
         tz,
         Values::Noisy,
     )?;
     let truth = Sink::create(
-        &dir.join(format!("truth.{ext}")),
+        &dir.join(&files[1]),
         format,
         tables.truth_schema.clone(),
         tz,
@@ -137,7 +180,7 @@ fn write_into(
     let mut recorder = if s.waveforms.windows.is_empty() {
         None
     } else {
-        Some(crate::waveform::Recorder::new(s, dir)?)
+        Some(crate::waveform::Recorder::new(s, &meta)?)
     };
     let threads = threads()?;
     // The simulation runs on this thread; a second one takes each chunk's
@@ -175,7 +218,7 @@ fn write_into(
         None => Vec::new(),
     };
     let mut events = Sink::create(
-        &dir.join(format!("events.{ext}")),
+        &dir.join(&files[2]),
         format,
         tables.events_schema.clone(),
         tz,
@@ -186,18 +229,23 @@ fn write_into(
         threads,
     )?;
     events.close(threads)?;
-    let files = [
-        ("meters", meter_rows),
-        ("truth", intervals),
-        ("events", outcome.events.len() as u64),
-    ];
+    let truth_rows = match layout.form {
+        schema::Form::Single => intervals,
+        schema::Form::Fleet => intervals * s.appliances.len() as u64,
+    };
+    let rows = [meter_rows, truth_rows, outcome.events.len() as u64];
+    let files: Vec<(String, u64)> = files
+        .iter()
+        .zip(rows)
+        .map(|(f, r)| (f.to_string_lossy().to_string(), r))
+        .collect();
     let card = crate::difficulty::card(s, &tl, &outcome.summary.app_energy_j);
-    let mut m = manifest::build(s, &tables, format, &outcome, &card, &files, &waves, dir)?;
+    let mut m = manifest::build(s, &tables, &outcome, &card, &files, &waves, dir, &meta)?;
     if let Some(toml) = &s.source_toml {
-        std::fs::write(dir.join("scenario.toml"), toml)?;
+        std::fs::write(meta.join("scenario.toml"), toml)?;
         m["scenario_toml"] = serde_json::Value::String("scenario.toml".into());
     }
     let text = serde_json::to_string_pretty(&m).map_err(io::Error::other)?;
-    std::fs::write(dir.join("manifest.json"), text + "\n")?;
+    std::fs::write(meta.join("manifest.json"), text + "\n")?;
     Ok((intervals, outcome))
 }

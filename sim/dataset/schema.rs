@@ -50,10 +50,45 @@ pub fn line_name(x: usize) -> String {
     format!("l{}", x + 1)
 }
 
-/// `meters`: one row per reporting interval.
-pub fn meters(s: &Scenario) -> Vec<Col> {
+/// The shape of a dataset's tables.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Form {
+    /// One home on its own: times in the home's zone, the home's own lines,
+    /// truth wide (columns per appliance).
+    Single,
+    /// A home of a fleet: one schema for every home of every fleet, so a
+    /// folder of homes reads as one table. Times in UTC (the zone is in
+    /// `homes.parquet`), columns for all three lines (null where the home
+    /// has no such line), truth long (a row per interval and appliance).
+    Fleet,
+}
+
+/// Lines of every fleet table: the most any supply has.
+pub const FLEET_LINES: usize = 3;
+
+impl Form {
+    /// The time zone attached to the tables' times.
+    pub fn timezone(self, s: &Scenario) -> &str {
+        match self {
+            Form::Single => &s.home.timezone,
+            Form::Fleet => "UTC",
+        }
+    }
+
+    /// How many lines the meters table has columns for.
+    pub fn lines(self, s: &Scenario) -> usize {
+        match self {
+            Form::Single => s.home.supply.lines(),
+            Form::Fleet => FLEET_LINES,
+        }
+    }
+}
+
+/// `meters`: one row per reporting interval; columns for `lines` lines
+/// (those the home lacks are null).
+pub fn meters(s: &Scenario, lines: usize) -> Vec<Col> {
     let mut c = vec![col("time", "ms", ColKind::Time)];
-    for x in 0..s.home.supply.lines() {
+    for x in 0..lines {
         let l = line_name(x);
         c.push(reading(format!("{l}_p_w"), "W", ColKind::F32));
         c.push(reading(format!("{l}_q_var"), "var", ColKind::F32));
@@ -64,7 +99,7 @@ pub fn meters(s: &Scenario) -> Vec<Col> {
     c.push(reading("total_p_w", "W", ColKind::F32));
     c.push(reading("total_q_var", "var", ColKind::F32));
     if s.faults.register {
-        for x in 0..s.home.supply.lines() {
+        for x in 0..lines {
             c.push(reading(
                 format!("{}_energy_wh", line_name(x)),
                 "Wh",
@@ -91,6 +126,23 @@ pub fn truth(s: &Scenario) -> Vec<Col> {
         }
     }
     c.push(col("unmetered_p_w", "W", ColKind::F32));
+    c
+}
+
+/// `truth` of a fleet home, long: one row per reporting interval and
+/// appliance; a line's power is null where the appliance draws nothing
+/// from it (or the home has no such line).
+pub fn truth_long() -> Vec<Col> {
+    let mut c = vec![
+        col("time", "ms", ColKind::Time),
+        col("appliance", "", ColKind::Dict),
+        col("p_w", "W", ColKind::F32),
+        col("q_var", "var", ColKind::F32),
+        col("state", "", ColKind::Dict),
+    ];
+    for x in 0..FLEET_LINES {
+        c.push(reading(format!("{}_p_w", line_name(x)), "W", ColKind::F32));
+    }
     c
 }
 

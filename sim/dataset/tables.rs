@@ -1,16 +1,16 @@
 //! Simulation chunks and events as Arrow record batches, in the column order
 //! of [`super::schema`].
 
-use super::schema::{self, Col};
+use super::schema::{self, Col, Form};
 use crate::scenario::Scenario;
 use crate::simulate::{Chunk, Event};
 use arrow_array::types::{Float32Type, Float64Type, Int16Type};
 use arrow_array::{
-    ArrayRef, ArrowPrimitiveType, DictionaryArray, Float32Array, Float64Array, Int16Array,
-    PrimitiveArray, RecordBatch, StringArray, TimestampMillisecondArray,
+    new_null_array, ArrayRef, ArrowPrimitiveType, DictionaryArray, Float32Array, Float64Array,
+    Int16Array, PrimitiveArray, RecordBatch, StringArray, TimestampMillisecondArray,
 };
 use arrow_buffer::NullBuffer;
-use arrow_schema::Schema;
+use arrow_schema::{DataType, Schema};
 use std::sync::Arc;
 
 pub struct Tables {
@@ -29,6 +29,15 @@ pub struct Tables {
     drop_rows: bool,
     state_names: Vec<ArrayRef>,
     app_ids: ArrayRef,
+    form: Form,
+    /// Lines the meters table has columns for (the home's own come first).
+    lines: usize,
+    /// Long truth: every state name of the home once, and per appliance
+    /// the key of each of its states in that list.
+    all_states: ArrayRef,
+    state_keys: Vec<Vec<i16>>,
+    /// Per appliance, the lines it draws from (its per-line truth columns).
+    app_lines: Vec<Vec<usize>>,
 }
 
 fn f32s(v: &[f32]) -> ArrayRef {
@@ -80,10 +89,45 @@ impl Nan for f64 {
     }
 }
 
+/// Every state name of the home once (in order of first use), and per
+/// appliance the place of each of its states in that list.
+fn state_union(s: &Scenario) -> (Vec<String>, Vec<Vec<i16>>) {
+    let mut names: Vec<String> = Vec::new();
+    let keys = s
+        .appliances
+        .iter()
+        .map(|a| {
+            a.states
+                .iter()
+                .map(|st| {
+                    let at = names.iter().position(|n| *n == st.name).unwrap_or_else(|| {
+                        names.push(st.name.clone());
+                        names.len() - 1
+                    });
+                    at as i16
+                })
+                .collect()
+        })
+        .collect();
+    (names, keys)
+}
+
 impl Tables {
+    /// The tables of a home on its own ([`Form::Single`]).
     pub fn new(s: &Scenario) -> Self {
-        let (meters, truth, events) = (schema::meters(s), schema::truth(s), schema::events());
-        let tz = &s.home.timezone;
+        Self::with_form(s, Form::Single)
+    }
+
+    /// The tables of `s` in `form`.
+    pub fn with_form(s: &Scenario, form: Form) -> Self {
+        let lines = form.lines(s);
+        let truth = match form {
+            Form::Single => schema::truth(s),
+            Form::Fleet => schema::truth_long(),
+        };
+        let (meters, events) = (schema::meters(s, lines), schema::events());
+        let tz = form.timezone(s);
+        let (all_states, state_keys) = state_union(s);
         Tables {
             meters_schema: schema::arrow_schema(&meters, tz),
             truth_schema: schema::arrow_schema(&truth, tz),
@@ -91,7 +135,7 @@ impl Tables {
             meters,
             truth,
             events,
-            tz: tz.as_str().into(),
+            tz: tz.into(),
             interval_ms: (s.meter.interval_s * 1000.0).round() as i64,
             start_ms: s.run.start_utc_ms,
             step_ms: (s.run.step_s * 1000.0).round() as i64,
@@ -120,6 +164,11 @@ impl Tables {
                     .map(|a| a.id.clone())
                     .collect::<Vec<_>>(),
             )),
+            form,
+            lines,
+            all_states: Arc::new(StringArray::from(all_states)),
+            state_keys,
+            app_lines: s.appliances.iter().map(|a| a.lines()).collect(),
         }
     }
 
@@ -161,6 +210,9 @@ impl Tables {
                 readings::<Float32Type>(&r.line_i[x], keep),
             ]);
         }
+        let rows = cols[0].len();
+        let absent = self.lines - r.line_p.len();
+        cols.extend((0..4 * absent).map(|_| new_null_array(&DataType::Float32, rows)));
         cols.extend([
             readings::<Float32Type>(&r.n_i, keep),
             readings::<Float32Type>(&r.total_p, keep),
@@ -170,12 +222,21 @@ impl Tables {
             for e in &r.energy {
                 cols.push(readings::<Float64Type>(e, keep));
             }
+            cols.extend((0..absent).map(|_| new_null_array(&DataType::Float64, rows)));
         }
         RecordBatch::try_new(self.meters_schema.clone(), cols)
             .expect("columns follow the meters schema")
     }
 
+    /// The truth of a chunk, in the tables' form.
     pub fn truth_batch(&self, c: &Chunk) -> RecordBatch {
+        match self.form {
+            Form::Single => self.truth_wide(c),
+            Form::Fleet => self.truth_long(c),
+        }
+    }
+
+    fn truth_wide(&self, c: &Chunk) -> RecordBatch {
         let t = &c.truth;
         let rows = c.readings.rows() as u64;
         let mut cols = vec![self.times((0..rows).map(|i| self.row_time_ms(c.first_row + i)))];
@@ -195,6 +256,61 @@ impl Tables {
         cols.push(f32s(&t.unmetered_p));
         RecordBatch::try_new(self.truth_schema.clone(), cols)
             .expect("columns follow the truth schema")
+    }
+
+    /// Long truth: the chunk's rows once per appliance, appliance after
+    /// appliance (long runs of one value, which the Parquet encodings keep
+    /// small).
+    fn truth_long(&self, c: &Chunk) -> RecordBatch {
+        let t = &c.truth;
+        let n = c.readings.rows();
+        let apps = t.app_p.len();
+        let times =
+            (0..apps).flat_map(|_| (0..n as u64).map(|i| self.row_time_ms(c.first_row + i)));
+        let app_keys = (0..apps).flat_map(|k| std::iter::repeat_n(k as i16, n));
+        let state_keys = (0..apps).flat_map(|k| {
+            t.app_state[k]
+                .iter()
+                .map(move |&s| self.state_keys[k][s as usize])
+        });
+        let concat = |v: &[Vec<f32>]| f32s(&v.concat());
+        let mut cols = vec![
+            self.times(times),
+            Arc::new(
+                DictionaryArray::<Int16Type>::try_new(
+                    Int16Array::from_iter_values(app_keys),
+                    self.app_ids.clone(),
+                )
+                .expect("appliance index in range"),
+            ) as ArrayRef,
+            concat(&t.app_p),
+            concat(&t.app_q),
+            Arc::new(
+                DictionaryArray::<Int16Type>::try_new(
+                    Int16Array::from_iter_values(state_keys),
+                    self.all_states.clone(),
+                )
+                .expect("state index in range"),
+            ),
+        ];
+        for x in 0..schema::FLEET_LINES {
+            let mut values = Vec::with_capacity(apps * n);
+            let mut valid = Vec::with_capacity(apps * n);
+            for k in 0..apps {
+                match self.app_lines[k].iter().position(|&l| l == x) {
+                    Some(j) => values.extend_from_slice(&t.app_line_p[k][j]),
+                    None => values.resize(values.len() + n, 0.0),
+                }
+                valid.resize(valid.len() + n, self.app_lines[k].contains(&x));
+            }
+            let nulls = valid.iter().any(|v| !v).then(|| NullBuffer::from(valid));
+            cols.push(Arc::new(PrimitiveArray::<Float32Type>::new(
+                values.into(),
+                nulls,
+            )));
+        }
+        RecordBatch::try_new(self.truth_schema.clone(), cols)
+            .expect("columns follow the long truth schema")
     }
 
     pub fn events_batch(&self, s: &Scenario, events: &[Event], step_s: f64) -> RecordBatch {

@@ -174,10 +174,10 @@ def check_population(bin_, text, work, timeout):
         left = [p.name for p in out.rglob("*") if ".partial" in p.name]
         if left:
             faults.append(("leftover", str(left)))
-        for home in sorted(out.glob("home=*")) if code == 0 else []:
+        for home in sorted(out.glob("*/home=*")) if code == 0 else []:
             bad = finite_dataset(home)
             if bad:
-                faults.append(("non-finite", f"{home.name}/{bad}"))
+                faults.append(("non-finite", f"{home.parent.name}/{home.name}/{bad}"))
     return faults
 
 

@@ -1,7 +1,9 @@
 """Fleets: shards united equal the unsharded run byte for byte; a killed and
-resumed run equals an uninterrupted one; duckdb reads the fleet as a
-Hive-partitioned table; ownership shares follow the declared probabilities
-(scipy.stats binomial test); bad populations exit 2 before any home."""
+resumed run equals an uninterrupted one; ownership shares follow the
+declared probabilities (scipy.stats binomial test); a home rebuilds alone
+from its scenario.toml (with a population's own template folder too); bad
+populations exit 2 before any home. The four readers are in
+test_fleet_readers.py."""
 import filecmp
 import json
 import os
@@ -11,7 +13,6 @@ import signal
 import subprocess
 import time
 
-import duckdb
 import pyarrow.parquet as pq
 import pytest
 from scipy import stats
@@ -36,6 +37,11 @@ def same_tree(a, b):
     return fa
 
 
+def homes_in(out):
+    """The homes of a fleet folder, as its meters table's partitions."""
+    return sorted(x.name for x in (out / "meters").iterdir())
+
+
 def test_shards_united_equal_the_unsharded_run(tmp_path):
     pop = short(tmp_path)
     loadloom("fleet", pop, "--homes", "10", "--out", tmp_path / "whole", "--jobs", "2")
@@ -48,7 +54,7 @@ def test_shards_united_equal_the_unsharded_run(tmp_path):
     p = loadloom("fleet", pop, "--homes", "10", "--out", united)
     assert "made 0 homes, 10 already complete" in p.stdout
     files = same_tree(tmp_path / "whole", united)
-    assert "homes.parquet" in files and "fleet.json" in files and "home=00007/meters.parquet" in files
+    assert "homes.parquet" in files and "fleet.json" in files and "meters/home=h00007/meters.parquet" in files
 
 
 def test_auto_shard_reads_the_batch_schedulers(tmp_path):
@@ -56,11 +62,11 @@ def test_auto_shard_reads_the_batch_schedulers(tmp_path):
     env = dict(os.environ, SLURM_ARRAY_TASK_ID="3", SLURM_ARRAY_TASK_MIN="1", SLURM_ARRAY_TASK_COUNT="4")
     p = subprocess.run([BIN, "fleet", pop, "--homes", "8", "--out", tmp_path / "slurm", "--shard", "auto"], env=env, capture_output=True, text=True)
     assert p.returncode == 0 and "shard 2/4" in p.stdout, p.stderr
-    assert sorted(x.name for x in (tmp_path / "slurm").iterdir()) == ["home=00002", "home=00006"]
+    assert homes_in(tmp_path / "slurm") == ["home=h00002", "home=h00006"]
     env = {k: v for k, v in os.environ.items() if not k.startswith("SLURM")}
     env.update(JOB_COMPLETION_INDEX="1", LOADLOOM_SHARDS="4")
     p = subprocess.run([BIN, "fleet", pop, "--homes", "8", "--out", tmp_path / "k8s", "--shard", "auto"], env=env, capture_output=True, text=True)
-    assert p.returncode == 0 and sorted(x.name for x in (tmp_path / "k8s").iterdir()) == ["home=00001", "home=00005"]
+    assert p.returncode == 0 and homes_in(tmp_path / "k8s") == ["home=h00001", "home=h00005"]
 
 
 def test_killed_and_resumed_equals_uninterrupted(tmp_path):
@@ -71,7 +77,7 @@ def test_killed_and_resumed_equals_uninterrupted(tmp_path):
     t = time.time()
     # Kill it once a few homes are complete (or after a minute at most).
     while time.time() - t < 60 and proc.poll() is None:
-        if out.exists() and len(list(out.glob("home=*"))) >= 5:
+        if out.exists() and len(list(out.glob("manifests/home=*"))) >= 5:
             break
         time.sleep(0.005)
     proc.send_signal(signal.SIGKILL)
@@ -81,19 +87,6 @@ def test_killed_and_resumed_equals_uninterrupted(tmp_path):
     made = int(p.stdout.split("made ")[1].split()[0])
     assert 0 < made < 40
     same_tree(tmp_path / "whole", out)
-
-
-def test_duckdb_reads_the_fleet_hive_partitioned(tmp_path):
-    pop = short(tmp_path)
-    out = tmp_path / "f"
-    loadloom("fleet", pop, "--homes", "6", "--out", out)
-    con = duckdb.connect()
-    rows = con.execute(f"SELECT home, count(*) FROM read_parquet('{out}/home=*/meters.parquet', hive_partitioning = true) GROUP BY home ORDER BY home").fetchall()
-    index = pq.read_table(out / "homes.parquet").to_pandas()
-    assert [r[0] for r in rows] == [int(h) for h in index["home"]] or [str(r[0]).zfill(5) for r in rows] == list(index["home"])
-    assert [r[1] for r in rows] == list(index["meter_rows"])
-    total = con.execute(f"SELECT sum(total_p_w) FROM read_parquet('{out}/home=*/meters.parquet', hive_partitioning = true)").fetchone()[0]
-    assert total > 0
 
 
 def test_ownership_follows_the_declared_probabilities(tmp_path):
@@ -113,13 +106,65 @@ def test_ownership_follows_the_declared_probabilities(tmp_path):
     assert json.loads((out / "fleet.json").read_text())["homes"] == 1000
 
 
+def same_values(fleet, home, alone):
+    """The fleet's tables of `home` hold the values of the dataset `alone`
+    made from its scenario.toml: meters and events column by column (times
+    as instants), truth after pivoting the long table back to one column
+    per appliance."""
+    part = lambda t: pq.read_table(fleet / t / f"home={home}" / f"{t}.parquet").to_pandas()
+    single = lambda t: pq.read_table(alone / f"{t}.parquet").to_pandas()
+    m, sm = part("meters"), single("meters")
+    assert len(m) == len(sm) and (m["time"] == sm["time"]).all()
+    for c in sm.columns.drop("time"):
+        assert m[c].equals(sm[c]), c
+    lacks = [c for c in m.columns if c not in sm.columns and c != "home"]  # pyarrow adds the key from the path
+    assert m[lacks].isna().all().all(), "lines the home lacks are null"
+    assert [c for c in m.columns if c != "home"] == [c for c in pq.read_schema(next((fleet / "meters").rglob("*.parquet"))).names], "one schema"
+    t, st = part("truth"), single("truth")
+    for a, rows in t.groupby("appliance", observed=True):
+        rows = rows.reset_index(drop=True)
+        assert (rows["time"] == st["time"]).all(), a
+        assert rows["p_w"].equals(st[f"{a}_p_w"]) and rows["q_var"].equals(st[f"{a}_q_var"]), a
+        assert (rows["state"].astype(str) == st[f"{a}_state"].astype(str)).all(), a
+        for line in ["l1", "l2", "l3"]:
+            col = f"{a}_{line}_p_w"
+            assert rows[f"{line}_p_w"].equals(st[col]) if col in st else rows[f"{line}_p_w"].isna().all(), (a, line)
+    assert sorted(t["appliance"].unique()) == sorted(c[: -len("_state")] for c in st.columns if c.endswith("_state"))
+    e, se = part("events"), single("events")
+    assert len(e) == len(se) and all((e[c].astype(str) == se[c].astype(str)).all() for c in ["appliance", "state"])
+    assert (e["start"] == se["start"]).all() and e["energy_wh"].equals(se["energy_wh"])
+
+
 def test_a_home_rebuilds_alone(tmp_path):
     pop = short(tmp_path)
     out = tmp_path / "f"
-    loadloom("fleet", pop, "--homes", "4", "--out", out)
-    loadloom("run", out / "home=00003" / "scenario.toml", "--out", tmp_path / "alone")
-    for f in ["meters.parquet", "truth.parquet", "events.parquet"]:
-        assert filecmp.cmp(out / "home=00003" / f, tmp_path / "alone" / "scenario" / f, shallow=False), f
+    loadloom("fleet", pop, "--homes", "6", "--out", out)
+    for home in ["h00003", "h00005"]:  # a split-phase and a three-phase home
+        loadloom("run", out / "manifests" / f"home={home}" / "scenario.toml", "--out", tmp_path / home)
+        same_values(out, home, tmp_path / home / "scenario")
+
+
+def test_a_home_with_the_populations_own_templates_rebuilds_alone(tmp_path):
+    """A template folder beside the population: each home's scenario.toml
+    names it by its absolute path, so the home rebuilds from anywhere."""
+    src = tmp_path / "pop"
+    (src / "library").mkdir(parents=True)
+    (src / "library" / "aquarium.toml").write_text(
+        '[appliance]\nlabel = "Aquarium heater (invented)"\nwiring = "L1-N"\nbehaviour = "steady"\n\n'
+        '[[appliance.states]]\nname = "on"\npower = "75 W"\n'
+    )
+    pop = src / "street.toml"
+    pop.write_text(short(tmp_path).read_text() + '\n[[owns]]\ntemplate = "aquarium"\nprobability = 1.0\n')
+    out = tmp_path / "f"
+    loadloom("fleet", pop, "--homes", "3", "--out", out)
+    scenario = out / "manifests" / "home=h00001" / "scenario.toml"
+    assert f'library = "{(src / "library").resolve()}"' in scenario.read_text()
+    moved = tmp_path / "elsewhere" / "scenario.toml"
+    moved.parent.mkdir()
+    shutil.copy(scenario, moved)
+    loadloom("run", moved, "--out", tmp_path / "alone")
+    same_values(out, "h00001", tmp_path / "alone" / "scenario")
+    assert "aquarium" in set(pq.read_table(out / "truth").column("appliance").to_pylist())
 
 
 @pytest.mark.parametrize("change,place", [
@@ -181,7 +226,7 @@ def test_population_occupancy_is_written_into_each_home(tmp_path):
     pop = short(tmp_path, length="10 min")
     out = tmp_path / "o"
     loadloom("fleet", pop, "--homes", "60", "--out", out)
-    texts = [(out / f"home={i:05}" / "scenario.toml").read_text() for i in range(60)]
+    texts = [(out / "manifests" / f"home=h{i:05}" / "scenario.toml").read_text() for i in range(60)]
     away = sum('away = "8-17"' in t for t in texts)
     assert stats.binomtest(away, 60, 3 / 5).pvalue > 1e-3
     assert any("habit_shift" in t for t in texts)

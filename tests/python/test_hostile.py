@@ -28,13 +28,14 @@ def test_fleet_resume_remakes_a_home_whose_scenario_is_damaged(tmp_path):
     pop = short_population(tmp_path)
     out = tmp_path / "f"
     loadloom("fleet", pop, "--homes", "3", "--out", out)
-    good = (out / "home=00001" / "scenario.toml").read_text()
-    (out / "home=00001" / "scenario.toml").write_text(good.replace("[home]", "[home]\nvoltage = \"1 kV\"", 1))
-    (out / "home=00002" / "scenario.toml").unlink()
+    home = lambda i: out / "manifests" / f"home=h{i:05}" / "scenario.toml"
+    good = home(1).read_text()
+    home(1).write_text(good.replace("[home]", "[home]\nvoltage = \"1 kV\"", 1))
+    home(2).unlink()
     p = loadloom("fleet", pop, "--homes", "3", "--out", out)
     assert "made 2 homes, 1 already complete" in p.stdout, p.stdout
-    assert (out / "home=00001" / "scenario.toml").read_text() == good
-    assert (out / "home=00002" / "scenario.toml").is_file()
+    assert home(1).read_text() == good
+    assert home(2).is_file()
 
 
 def test_fleet_index_does_not_follow_a_planted_link(tmp_path):
