@@ -5,9 +5,10 @@
 use crate::dataset::{self, Format};
 use crate::scenario::Scenario;
 use serde_json::{json, Value};
+use solver_check::render::Render;
 use solver_check::roundtrip::{Outcome, Prepared, Reveal, Solver, Split};
 use solver_check::score::Report;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::time::Duration;
 
 pub struct Plan {
@@ -19,6 +20,60 @@ pub struct Plan {
     pub estimate_name: &'static str,
     /// Folders a confined solver may read besides its own (`--allow-read`).
     pub allow_read: Vec<std::path::PathBuf>,
+}
+
+/// The scenario files of a round trip: the one given, or with `suite`
+/// every `*.toml` of a folder (default `scenarios/`; a file given to the
+/// suite is run alone).
+pub fn scenario_paths(scenario: Option<&Path>, suite: bool) -> Result<Vec<PathBuf>, String> {
+    match (scenario, suite) {
+        (Some(p), false) => Ok(vec![p.to_path_buf()]),
+        (None, false) => {
+            Err("give a SCENARIO (or --dataset DIR), or --suite to run the demo scenarios".into())
+        }
+        (p, true) => {
+            let p = p.map_or_else(|| PathBuf::from("scenarios"), Path::to_path_buf);
+            if !p.is_dir() {
+                return Ok(vec![p]);
+            }
+            let mut v: Vec<PathBuf> = std::fs::read_dir(&p)
+                .map(|r| {
+                    r.filter_map(|e| e.ok())
+                        .map(|e| e.path())
+                        .filter(|x| x.extension().is_some_and(|e| e == "toml"))
+                        .collect()
+                })
+                .unwrap_or_default();
+            v.sort();
+            Ok(v)
+        }
+    }
+}
+
+/// Every reporting interval (with `suite`, every rung's, up to 1 min) must
+/// divide both the training and the test period.
+pub fn check_periods(
+    scenarios: &[Scenario],
+    train_s: f64,
+    test_s: f64,
+    suite: bool,
+) -> Result<(), String> {
+    for s in scenarios {
+        let per = if suite {
+            60.0f64.max(s.meter.interval_s)
+        } else {
+            s.meter.interval_s
+        };
+        for (name, v) in [("train", train_s), ("test", test_s)] {
+            if ((v / per).round() - v / per).abs() > 1e-6 {
+                return Err(format!(
+                    "--{name}: must be a whole number of reporting intervals ({per} s) for {}",
+                    s.name
+                ));
+            }
+        }
+    }
+    Ok(())
 }
 
 /// Simulates `s` over train + test and writes the task and the scored
@@ -203,13 +258,26 @@ pub struct SuiteRow {
     pub result: Result<Report, String>,
 }
 
+/// Every scenario at every rung of the ladder: the suite's report.
+pub struct Suite {
+    /// One row per scenario and rung, in the order run.
+    pub rows: Vec<SuiteRow>,
+}
+
+impl Suite {
+    /// Whether a solver failed on any rung (the command then exits 1).
+    pub fn any_failed(&self) -> bool {
+        self.rows.iter().any(|r| r.result.is_err())
+    }
+}
+
 /// Runs the plan on every scenario at every rung of the ladder.
 pub fn suite(
     scenarios: &[Scenario],
     out: &Path,
     p: &Plan,
     progress: &mut dyn FnMut(&str, &str),
-) -> Result<Vec<SuiteRow>, String> {
+) -> Result<Suite, String> {
     let mut rows = Vec::new();
     for s in scenarios {
         for rung in &LADDER {
@@ -234,7 +302,7 @@ pub fn suite(
             });
         }
     }
-    Ok(rows)
+    Ok(Suite { rows })
 }
 
 const HEAD: [&str; 8] = [
@@ -287,59 +355,61 @@ fn cells(rows: &[SuiteRow]) -> Vec<Vec<String>> {
         .collect()
 }
 
-pub fn render_text(rows: &[SuiteRow]) -> String {
-    let c = cells(rows);
-    let w: Vec<usize> = (0..HEAD.len())
-        .map(|k| {
-            c.iter()
-                .map(|r| r[k].chars().count())
-                .chain([HEAD[k].len()])
-                .max()
-                .unwrap()
-        })
-        .collect();
-    let line = |r: &[String]| {
-        r.iter()
-            .enumerate()
-            .map(|(k, s)| {
-                if k < 2 {
-                    format!("{s:<w$}", w = w[k])
-                } else {
-                    format!("{s:>w$}", w = w[k])
-                }
+impl Render for Suite {
+    fn to_text(&self) -> String {
+        let c = cells(&self.rows);
+        let w: Vec<usize> = (0..HEAD.len())
+            .map(|k| {
+                c.iter()
+                    .map(|r| r[k].chars().count())
+                    .chain([HEAD[k].len()])
+                    .max()
+                    .unwrap()
             })
-            .collect::<Vec<_>>()
-            .join("  ")
-            + "\n"
-    };
-    let mut o = line(&HEAD.map(String::from));
-    for r in &c {
-        o += &line(r);
+            .collect();
+        let line = |r: &[String]| {
+            r.iter()
+                .enumerate()
+                .map(|(k, s)| {
+                    if k < 2 {
+                        format!("{s:<w$}", w = w[k])
+                    } else {
+                        format!("{s:>w$}", w = w[k])
+                    }
+                })
+                .collect::<Vec<_>>()
+                .join("  ")
+                + "\n"
+        };
+        let mut o = line(&HEAD.map(String::from));
+        for r in &c {
+            o += &line(r);
+        }
+        o
     }
-    o
-}
 
-pub fn render_markdown(rows: &[SuiteRow]) -> String {
-    let mut o = format!(
-        "| {} |\n|{}\n",
-        HEAD.join(" | "),
-        HEAD.iter()
-            .enumerate()
-            .map(|(k, _)| if k < 2 { "---|" } else { "---:|" })
-            .collect::<String>()
-    );
-    for r in cells(rows) {
-        o += &format!("| {} |\n", r.join(" | "));
+    fn to_markdown(&self) -> String {
+        let mut o = format!(
+            "| {} |\n|{}\n",
+            HEAD.join(" | "),
+            HEAD.iter()
+                .enumerate()
+                .map(|(k, _)| if k < 2 { "---|" } else { "---:|" })
+                .collect::<String>()
+        );
+        for r in cells(&self.rows) {
+            o += &format!("| {} |\n", r.join(" | "));
+        }
+        o
     }
-    o
-}
 
-pub fn render_json(rows: &[SuiteRow]) -> Value {
-    json!({
-        "format": "loadloom-suite/1",
-        "rows": rows.iter().map(|r| match &r.result {
-            Ok(rep) => json!({ "scenario": r.scenario, "rung": r.rung, "overall": rep.overall.to_json() }),
-            Err(e) => json!({ "scenario": r.scenario, "rung": r.rung, "failure": e }),
-        }).collect::<Vec<_>>(),
-    })
+    fn to_json(&self) -> Value {
+        json!({
+            "format": "loadloom-suite/1",
+            "rows": self.rows.iter().map(|r| match &r.result {
+                Ok(rep) => json!({ "scenario": r.scenario, "rung": r.rung, "overall": rep.overall.to_json() }),
+                Err(e) => json!({ "scenario": r.scenario, "rung": r.rung, "failure": e }),
+            }).collect::<Vec<_>>(),
+        })
+    }
 }

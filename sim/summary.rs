@@ -7,7 +7,9 @@
 use crate::behaviour::timelines;
 use crate::dataset::manifest::state_split;
 use crate::dataset::schema::line_name;
+use crate::dataset::Written;
 use crate::scenario::Scenario;
+use solver_check::render::Render;
 
 /// Printed wherever loadloom speaks of wiring, loading or breakers (one text
 /// for the whole project, kept with the audit).
@@ -100,7 +102,7 @@ pub fn figures(s: &Scenario) -> Figures {
 }
 
 /// The validate report as aligned text.
-pub fn render(s: &Scenario, f: &Figures) -> String {
+fn text(s: &Scenario, f: &Figures) -> String {
     let mut o = String::new();
     let label = if s.home.label.is_empty() {
         s.name.clone()
@@ -198,7 +200,7 @@ pub fn warnings(f: &Figures) -> Vec<String> {
 }
 
 /// The validate figures as JSON (for scripts), with the caution.
-pub fn to_json(s: &Scenario, f: &Figures) -> serde_json::Value {
+fn json(s: &Scenario, f: &Figures) -> serde_json::Value {
     serde_json::json!({
         "scenario": s.name,
         "supply": s.home.supply.name(),
@@ -210,4 +212,83 @@ pub fn to_json(s: &Scenario, f: &Figures) -> serde_json::Value {
         "difficulty": f.difficulty.to_json(s),
         "caution": CAUTION,
     })
+}
+
+/// What `validate` prints: a scenario and its figures.
+pub struct Preview<'a> {
+    /// The scenario checked.
+    pub scenario: &'a Scenario,
+    /// What it will produce ([`figures`]).
+    pub figures: Figures,
+}
+
+impl<'a> Preview<'a> {
+    /// Computes the figures of `s` (every check that `validate` runs).
+    pub fn of(s: &'a Scenario) -> Preview<'a> {
+        Preview {
+            scenario: s,
+            figures: figures(s),
+        }
+    }
+}
+
+impl Render for Preview<'_> {
+    fn to_text(&self) -> String {
+        text(self.scenario, &self.figures)
+    }
+    fn to_json(&self) -> serde_json::Value {
+        json(self.scenario, &self.figures)
+    }
+}
+
+/// What `run` prints: where the dataset went and each appliance's energy and peak.
+pub struct RunReport<'a> {
+    /// The scenario simulated.
+    pub scenario: &'a Scenario,
+    /// The dataset written.
+    pub written: &'a Written,
+    /// Wall-clock seconds of the run.
+    pub seconds: f64,
+}
+
+impl Render for RunReport<'_> {
+    fn to_text(&self) -> String {
+        let (s, w) = (self.scenario, self.written);
+        let sum = &w.outcome.summary;
+        let mut o = format!(
+            "wrote {} ({} rows, {} events) in {:.1} s\n",
+            w.dir.display(),
+            w.rows,
+            w.outcome.events.len(),
+            self.seconds
+        );
+        let width = s
+            .appliances
+            .iter()
+            .map(|a| a.id.len())
+            .max()
+            .unwrap_or(9)
+            .max(9);
+        o += &format!("{:<width$}  {:>10}  {:>9}\n", "appliance", "kWh", "peak W");
+        for (k, a) in s.appliances.iter().enumerate() {
+            o += &format!(
+                "{:<width$}  {:>10.3}  {:>9.0}\n",
+                a.id,
+                sum.app_energy_j[k] / 3.6e6,
+                sum.app_peak_w[k]
+            );
+        }
+        o
+    }
+    fn to_json(&self) -> serde_json::Value {
+        let (s, w) = (self.scenario, self.written);
+        let sum = &w.outcome.summary;
+        let apps: Vec<serde_json::Value> = s
+            .appliances
+            .iter()
+            .enumerate()
+            .map(|(k, a)| serde_json::json!({ "id": a.id, "energy_kwh": sum.app_energy_j[k] / 3.6e6, "peak_w": sum.app_peak_w[k] }))
+            .collect();
+        serde_json::json!({ "dataset": w.dir, "rows": w.rows, "events": w.outcome.events.len(), "seconds": self.seconds, "appliances": apps })
+    }
 }

@@ -3,6 +3,7 @@
 pub mod decode;
 pub mod library;
 pub mod model;
+pub mod overrides;
 pub mod reader;
 pub mod source;
 

@@ -7,6 +7,7 @@
 //! (the same hard days) cancels.
 
 use crate::metrics::{scores_of, Scores};
+use crate::render::Render;
 use crate::score::Report;
 use serde_json::{json, Value};
 
@@ -224,24 +225,6 @@ fn num(x: Option<f64>) -> String {
 }
 
 impl Comparison {
-    pub fn to_json(&self) -> Value {
-        json!({
-            "format": "loadloom-compare/1",
-            "estimate": self.estimate,
-            "against": self.against,
-            "days": self.days,
-            "resamples": self.resamples,
-            "confidence": 0.95,
-            "rows": self.rows.iter().map(|(id, diffs)| json!({
-                "id": id,
-                "metrics": diffs.iter().map(|d| json!({
-                    "metric": d.metric, "estimate": d.estimate, "against": d.against,
-                    "delta": d.delta, "ci_low": d.lo, "ci_high": d.hi, "verdict": d.verdict(),
-                })).collect::<Vec<_>>(),
-            })).collect::<Vec<_>>(),
-        })
-    }
-
     fn table(&self, md: bool) -> String {
         let head = [
             "appliance",
@@ -313,11 +296,31 @@ impl Comparison {
         }
         o
     }
+}
 
-    pub fn to_text(&self) -> String {
+impl Render for Comparison {
+    fn to_json(&self) -> Value {
+        json!({
+            "format": "loadloom-compare/1",
+            "estimate": self.estimate,
+            "against": self.against,
+            "days": self.days,
+            "resamples": self.resamples,
+            "confidence": 0.95,
+            "rows": self.rows.iter().map(|(id, diffs)| json!({
+                "id": id,
+                "metrics": diffs.iter().map(|d| json!({
+                    "metric": d.metric, "estimate": d.estimate, "against": d.against,
+                    "delta": d.delta, "ci_low": d.lo, "ci_high": d.hi, "verdict": d.verdict(),
+                })).collect::<Vec<_>>(),
+            })).collect::<Vec<_>>(),
+        })
+    }
+
+    fn to_text(&self) -> String {
         self.table(false)
     }
-    pub fn to_markdown(&self) -> String {
+    fn to_markdown(&self) -> String {
         self.table(true)
     }
 }

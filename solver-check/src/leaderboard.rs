@@ -4,6 +4,7 @@
 //! resampled days); per appliance, every solver's MAE with the best marked.
 
 use crate::compare::compare;
+use crate::render::Render;
 use crate::roundtrip::Outcome;
 use crate::score::Report;
 use serde_json::{json, Value};
@@ -161,9 +162,11 @@ impl Board {
             .map(|(s, f)| format!("no score for {s}: {}\n", f.lines().next().unwrap_or("")))
             .collect()
     }
+}
 
+impl Render for Board {
     /// Text: the ranked table, the per-appliance table, the failures.
-    pub fn to_text(&self) -> String {
+    fn to_text(&self) -> String {
         let (ah, ar) = self.appliance_cells();
         let mut o = format!("ranked by overall MAE on the test period ({}); difference to the best with a 95 % paired bootstrap interval over days ({} resamples)\n\n", self.period(), self.resamples);
         o += &aligned(&HEAD.map(String::from), &self.overall_cells(), 2);
@@ -173,7 +176,7 @@ impl Board {
     }
 
     /// Markdown: the same two tables.
-    pub fn to_markdown(&self) -> String {
+    fn to_markdown(&self) -> String {
         let (ah, ar) = self.appliance_cells();
         let mut o = format!("Ranked by overall MAE on the test period ({}); difference to the best with a 95 % paired bootstrap interval over days.\n\n", self.period());
         o += &markdown(&HEAD.map(String::from), &self.overall_cells(), 2);
@@ -183,7 +186,7 @@ impl Board {
     }
 
     /// JSON (`loadloom-leaderboard/1`).
-    pub fn to_json(&self) -> Value {
+    fn to_json(&self) -> Value {
         json!({
             "format": "loadloom-leaderboard/1",
             "ranked_by": "mae_w",
@@ -240,4 +243,58 @@ fn markdown(head: &[String], rows: &[Vec<String>], left: usize) -> String {
         o += &format!("| {} |\n", r.join(" | "));
     }
     o
+}
+
+/// The round trip's note on processes a solver left running.
+pub fn leftovers_note(n: usize) -> String {
+    match n {
+        0 => String::new(),
+        1 => "; 1 process it left running was stopped".into(),
+        n => format!("; {n} processes it left running were stopped"),
+    }
+}
+
+/// One solver's scored outcome: the line about its run, then its score
+/// report (JSON: the score report with a `solver` object).
+pub struct SolverReport<'a> {
+    /// The solver's run.
+    pub outcome: &'a Outcome,
+    /// Its score.
+    pub report: &'a Report,
+}
+
+impl SolverReport<'_> {
+    /// The line about the run: time, task, log, confinement, leftovers.
+    fn run_line(&self) -> String {
+        let o = self.outcome;
+        format!(
+            "solver {} finished in {:.1} s (task {}, log {}); {}{}\n",
+            o.solver,
+            o.seconds,
+            o.task_dir.display(),
+            o.log.display(),
+            o.confinement,
+            leftovers_note(o.leftovers)
+        )
+    }
+}
+
+impl Render for SolverReport<'_> {
+    fn to_text(&self) -> String {
+        self.run_line() + &self.report.to_text()
+    }
+    fn to_markdown(&self) -> String {
+        self.run_line() + &self.report.to_markdown()
+    }
+    fn to_json(&self) -> Value {
+        let o = self.outcome;
+        let mut v = self.report.to_json();
+        v["solver"] = json!({ "command": o.solver, "seconds": o.seconds, "task": o.task_dir, "estimate": o.estimate, "log": o.log, "confinement": o.confinement, "leftovers_stopped": o.leftovers });
+        v
+    }
+}
+
+/// Why a solver got no score, with where to look (the command exits 1).
+pub fn failure_message(o: &Outcome, f: &crate::roundtrip::Failure) -> String {
+    format!("error: solver {}: {f}\n  --> task {}, log {} ({}{})\n  = help: run the solver by hand on the task folder to see what went wrong; no score was given", o.solver, o.task_dir.display(), o.log.display(), o.confinement, leftovers_note(o.leftovers))
 }

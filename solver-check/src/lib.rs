@@ -25,6 +25,7 @@ pub mod estimate;
 pub mod leaderboard;
 pub mod metrics;
 pub mod plot;
+pub mod render;
 pub mod roundtrip;
 pub mod score;
 pub mod solvers;

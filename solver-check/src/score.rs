@@ -5,6 +5,7 @@ use crate::align::{exact_cover, plan_from, Plan, TimeScan};
 use crate::dataset::{Dataset, DatasetError};
 use crate::estimate::{open_estimate, rules, values_check};
 use crate::metrics::{Acc, Scores};
+use crate::render::Render;
 use crate::stream::{header, read_ahead, Cursor};
 use crate::table::{table_err, TableError};
 use serde_json::{json, Value};
@@ -44,6 +45,23 @@ pub struct Options {
     pub partial: bool,
     /// On-thresholds (W) replacing the manifest's.
     pub thresholds: Vec<(String, f64)>,
+}
+
+/// `--threshold fridge=20` or `fridge=20W`: an appliance's on-threshold in watts.
+pub fn parse_threshold(t: &str) -> Result<(String, f64), String> {
+    let (id, w) = t
+        .split_once('=')
+        .ok_or_else(|| format!("--threshold {t}: expected ID=WATTS, e.g. fridge=20"))?;
+    let w = w.trim().trim_end_matches('W').trim();
+    let v: f64 = w
+        .parse()
+        .map_err(|_| format!("--threshold {t}: \"{w}\" is not a number of watts"))?;
+    if !(v >= 0.0 && v.is_finite()) {
+        return Err(format!(
+            "--threshold {t}: the threshold must be zero or more"
+        ));
+    }
+    Ok((id.to_string(), v))
 }
 
 pub struct ApplianceReport {
@@ -322,30 +340,6 @@ fn iso(ms: i64, tz: &str) -> String {
 }
 
 impl Report {
-    pub fn to_json(&self) -> Value {
-        json!({
-            "format": SCORE_FORMAT,
-            "dataset": self.dataset,
-            "estimate": self.estimate,
-            "period": {
-                "start": iso(self.plan.start_ms, &self.timezone),
-                "end": iso(self.plan.start_ms + self.plan.rows as i64 * self.plan.interval_ms, &self.timezone),
-                "interval_s": self.plan.interval_ms as f64 / 1000.0,
-                "rows": self.plan.rows,
-                "share_of_truth": (self.plan.rows * self.plan.truth_per) as f64 / self.truth_rows as f64,
-            },
-            "appliances": self.appliances.iter().map(|a| {
-                let mut v = a.scores.to_json();
-                let o = v.as_object_mut().unwrap();
-                o.insert("id".into(), json!(a.id));
-                o.insert("on_threshold_w".into(), json!(a.threshold_w));
-                o.insert("conductors".into(), Value::Array(a.conductors.iter().map(|(l, s)| json!({ "conductor": l, "mae_w": s.mae_w, "rmse_w": s.rmse_w, "nde": s.nde })).collect()));
-                v
-            }).collect::<Vec<_>>(),
-            "overall": self.overall.to_json(),
-        })
-    }
-
     fn rows(&self) -> Vec<Vec<String>> {
         let f =
             |x: Option<f64>, d: usize| x.map(|v| format!("{v:.d$}")).unwrap_or_else(|| "–".into());
@@ -392,8 +386,34 @@ impl Report {
         "accuracy",
         "match",
     ];
+}
 
-    pub fn to_text(&self) -> String {
+impl Render for Report {
+    fn to_json(&self) -> Value {
+        json!({
+            "format": SCORE_FORMAT,
+            "dataset": self.dataset,
+            "estimate": self.estimate,
+            "period": {
+                "start": iso(self.plan.start_ms, &self.timezone),
+                "end": iso(self.plan.start_ms + self.plan.rows as i64 * self.plan.interval_ms, &self.timezone),
+                "interval_s": self.plan.interval_ms as f64 / 1000.0,
+                "rows": self.plan.rows,
+                "share_of_truth": (self.plan.rows * self.plan.truth_per) as f64 / self.truth_rows as f64,
+            },
+            "appliances": self.appliances.iter().map(|a| {
+                let mut v = a.scores.to_json();
+                let o = v.as_object_mut().unwrap();
+                o.insert("id".into(), json!(a.id));
+                o.insert("on_threshold_w".into(), json!(a.threshold_w));
+                o.insert("conductors".into(), Value::Array(a.conductors.iter().map(|(l, s)| json!({ "conductor": l, "mae_w": s.mae_w, "rmse_w": s.rmse_w, "nde": s.nde })).collect()));
+                v
+            }).collect::<Vec<_>>(),
+            "overall": self.overall.to_json(),
+        })
+    }
+
+    fn to_text(&self) -> String {
         let rows = self.rows();
         let widths: Vec<usize> = (0..Self::HEAD.len())
             .map(|c| {
@@ -449,7 +469,7 @@ impl Report {
         o
     }
 
-    pub fn to_markdown(&self) -> String {
+    fn to_markdown(&self) -> String {
         let rows = self.rows();
         let mut o = format!(
             "Scores of `{}` against `{}` ({} intervals of {} s).\n\n",

@@ -7,6 +7,7 @@
 //! An analysis of data, not an inspection: see [`CAUTION`].
 
 use crate::dataset::Dataset;
+use crate::render::Render;
 use crate::stream::{header, Header};
 use serde_json::{json, Value};
 use std::path::Path;
@@ -188,23 +189,6 @@ pub fn loading_of(
 }
 
 impl Loading {
-    pub fn to_json(&self) -> Value {
-        json!({
-            "format": "loadloom-audit/1",
-            "service_a": self.service_a,
-            "lines": self.lines.iter().map(|l| json!({
-                "conductor": l.line, "measured": l.measured, "peak_time_local": self.local(l.peak_ms), "peak_a": l.peak_a, "demand_15min_a": l.demand_15min_a, "mean_a": l.mean_a,
-                "peak_share_of_service": if self.service_a > 0.0 { l.peak_a / self.service_a } else { 0.0 },
-                "demand_share_of_service": if self.service_a > 0.0 { l.demand_15min_a / self.service_a } else { 0.0 },
-            })).collect::<Vec<_>>(),
-            "imbalance": self.imbalance,
-            "neutral_peak_measured_a": self.neutral_peak_measured_a,
-            "neutral_peak_estimated_a": self.neutral_peak_estimated_a,
-            "current_measured": self.current_measured,
-            "caution": CAUTION,
-        })
-    }
-
     fn rows(&self) -> Vec<[String; 6]> {
         let pct = |a: f64| {
             if self.service_a > 0.0 {
@@ -284,8 +268,27 @@ impl Loading {
         }
         o
     }
+}
 
-    pub fn to_text(&self) -> String {
+impl Render for Loading {
+    fn to_json(&self) -> Value {
+        json!({
+            "format": "loadloom-audit/1",
+            "service_a": self.service_a,
+            "lines": self.lines.iter().map(|l| json!({
+                "conductor": l.line, "measured": l.measured, "peak_time_local": self.local(l.peak_ms), "peak_a": l.peak_a, "demand_15min_a": l.demand_15min_a, "mean_a": l.mean_a,
+                "peak_share_of_service": if self.service_a > 0.0 { l.peak_a / self.service_a } else { 0.0 },
+                "demand_share_of_service": if self.service_a > 0.0 { l.demand_15min_a / self.service_a } else { 0.0 },
+            })).collect::<Vec<_>>(),
+            "imbalance": self.imbalance,
+            "neutral_peak_measured_a": self.neutral_peak_measured_a,
+            "neutral_peak_estimated_a": self.neutral_peak_estimated_a,
+            "current_measured": self.current_measured,
+            "caution": CAUTION,
+        })
+    }
+
+    fn to_text(&self) -> String {
         let rows = self.rows();
         let w: Vec<usize> = (0..6)
             .map(|c| {
@@ -326,7 +329,7 @@ impl Loading {
         o
     }
 
-    pub fn to_markdown(&self) -> String {
+    fn to_markdown(&self) -> String {
         let mut o = format!(
             "Loading against the {} A service rating.\n\n| {} |\n|---|---:|---:|---:|---:|---:|\n",
             self.service_a,

@@ -18,6 +18,7 @@ mod loading;
 pub use loading::*;
 
 use crate::dataset::Dataset;
+use crate::render::Render;
 use crate::stream::{header, Header};
 use check::Outcome;
 use decl::Declared;
@@ -308,32 +309,6 @@ impl Audit {
             .collect()
     }
 
-    pub fn to_json(&self) -> Value {
-        let mut loading = self.loading.to_json();
-        if let Some(o) = loading.as_object_mut() {
-            o.remove("format");
-            o.remove("caution");
-        }
-        json!({
-            "format": "loadloom-audit/1",
-            "data": self.data,
-            "declared": self.declared_file,
-            "interval_s": self.interval_s,
-            "rows": self.rows,
-            "metering": self.channel_rows().iter().map(|r| json!({ "channel": r[0], "declared": r[1], "found": r[2] })).collect::<Vec<_>>(),
-            "findings": self.outcome.findings.iter().map(finding_json).collect::<Vec<_>>(),
-            "possible": self.outcome.possible.iter().map(finding_json).collect::<Vec<_>>(),
-            "possible_below": check::POSSIBLE,
-            "unlisted_loads": self.outcome.unlisted.iter().map(finding_json).collect::<Vec<_>>(),
-            "appliances": self.outcome.appliances.iter().map(|a| json!({ "id": a.id, "declared": a.declared, "verdict": a.verdict, "seen": a.seen, "reason": a.reason, "steps_as_declared": a.steps_declared, "steps_best_other": a.steps_best_other })).collect::<Vec<_>>(),
-            "steps": { "used": self.outcome.steps, "explained": self.outcome.steps_explained },
-            "notes": self.outcome.notes,
-            "assumptions": ASSUMPTIONS,
-            "loading": loading,
-            "caution": CAUTION,
-        })
-    }
-
     fn findings_text(&self, bullet: &str) -> String {
         let f = &self.outcome.findings;
         let mut o = if f.is_empty() {
@@ -385,8 +360,36 @@ impl Audit {
         }
         o
     }
+}
 
-    pub fn to_text(&self) -> String {
+impl Render for Audit {
+    fn to_json(&self) -> Value {
+        let mut loading = self.loading.to_json();
+        if let Some(o) = loading.as_object_mut() {
+            o.remove("format");
+            o.remove("caution");
+        }
+        json!({
+            "format": "loadloom-audit/1",
+            "data": self.data,
+            "declared": self.declared_file,
+            "interval_s": self.interval_s,
+            "rows": self.rows,
+            "metering": self.channel_rows().iter().map(|r| json!({ "channel": r[0], "declared": r[1], "found": r[2] })).collect::<Vec<_>>(),
+            "findings": self.outcome.findings.iter().map(finding_json).collect::<Vec<_>>(),
+            "possible": self.outcome.possible.iter().map(finding_json).collect::<Vec<_>>(),
+            "possible_below": check::POSSIBLE,
+            "unlisted_loads": self.outcome.unlisted.iter().map(finding_json).collect::<Vec<_>>(),
+            "appliances": self.outcome.appliances.iter().map(|a| json!({ "id": a.id, "declared": a.declared, "verdict": a.verdict, "seen": a.seen, "reason": a.reason, "steps_as_declared": a.steps_declared, "steps_best_other": a.steps_best_other })).collect::<Vec<_>>(),
+            "steps": { "used": self.outcome.steps, "explained": self.outcome.steps_explained },
+            "notes": self.outcome.notes,
+            "assumptions": ASSUMPTIONS,
+            "loading": loading,
+            "caution": CAUTION,
+        })
+    }
+
+    fn to_text(&self) -> String {
         let mut o = format!(
             "audit of {} against {} ({} rows at {} s)\n\n",
             self.data, self.declared_file, self.rows, self.interval_s
@@ -423,7 +426,7 @@ impl Audit {
         o
     }
 
-    pub fn to_markdown(&self) -> String {
+    fn to_markdown(&self) -> String {
         let mut o = format!(
             "## Audit of `{}` against `{}`\n\n{} rows at {} s.\n\n",
             self.data, self.declared_file, self.rows, self.interval_s

@@ -26,6 +26,16 @@ pub struct PlotOptions {
     pub height: u32,
 }
 
+/// `--size 1400x900`: a picture's width and height in pixels, 300 … 10000
+/// by 200 … 10000 (smaller leaves no room for the axes and legend; larger
+/// is no screen or page).
+pub fn parse_size(text: &str) -> Result<(u32, u32), String> {
+    text.split_once('x')
+        .and_then(|(w, h)| Some((w.parse::<u32>().ok()?, h.parse::<u32>().ok()?)))
+        .filter(|(w, h)| (300..=10000).contains(w) && (200..=10000).contains(h))
+        .ok_or_else(|| format!("error: --size {text}: expected WIDTHxHEIGHT in pixels, e.g. 1400x900 (300 … 10000 by 200 … 10000)"))
+}
+
 /// What a day's picture shows: its window (local, with offsets) and legend.
 pub struct Plotted {
     /// Window start, local time with its UTC offset.

@@ -1,0 +1,88 @@
+//! `loadloom plot`: a picture of a dataset (a day per conductor, or energy
+//! per local month).
+
+use super::bad;
+use solver_check::plot::{parse_size, plot, plot_monthly, PlotOptions};
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+/// Draw a dataset: per conductor its measured power and each appliance's
+/// share; or, with --monthly, its energy per local month by appliance.
+#[derive(clap::Args)]
+pub struct Args {
+    /// The dataset folder.
+    dataset: PathBuf,
+    /// Window start, local time (default: the busiest local day).
+    #[arg(long)]
+    from: Option<String>,
+    /// Window end, local time.
+    #[arg(long)]
+    to: Option<String>,
+    /// Instead: one bar per local calendar month, stacked by appliance
+    /// (kWh, from the truth), the whole dataset.
+    #[arg(long, conflicts_with_all = ["from", "to"])]
+    monthly: bool,
+    /// Output file (.svg or .png, by its extension).
+    #[arg(long, default_value = "plot.svg", value_name = "FILE.svg|FILE.png")]
+    out: PathBuf,
+    /// Picture size in pixels, WIDTHxHEIGHT.
+    #[arg(long, default_value = "1400x900")]
+    size: String,
+}
+
+/// Draws the picture asked for and says what it shows.
+pub fn main(a: Args) -> ExitCode {
+    let (w, h) = match parse_size(&a.size) {
+        Ok(d) => d,
+        Err(m) => return bad(m),
+    };
+    if a.monthly {
+        return monthly(&a.dataset, &a.out, (w, h));
+    }
+    let opts = PlotOptions {
+        from: a.from,
+        to: a.to,
+        width: w,
+        height: h,
+    };
+    match plot(&a.dataset, &a.out, &opts) {
+        Ok(p) => {
+            println!(
+                "wrote {} ({}x{} px, {} to {}, {} appliances in the legend)",
+                a.out.display(),
+                w,
+                h,
+                p.from,
+                p.to,
+                p.legend.len()
+            );
+            ExitCode::SUCCESS
+        }
+        Err(e) => bad(e),
+    }
+}
+
+/// `plot --monthly`: the picture, then one line saying what it shows.
+fn monthly(dataset: &Path, out: &Path, (w, h): (u32, u32)) -> ExitCode {
+    match plot_monthly(dataset, out, w, h) {
+        Ok(m) => {
+            println!(
+                "wrote {} ({}x{} px, {} months from {} to {}, {} appliances{})",
+                out.display(),
+                w,
+                h,
+                m.months.len(),
+                m.months.first().map(String::as_str).unwrap_or("-"),
+                m.months.last().map(String::as_str).unwrap_or("-"),
+                m.shown.len(),
+                if m.others > 0 {
+                    format!(" and {} others together", m.others)
+                } else {
+                    String::new()
+                }
+            );
+            ExitCode::SUCCESS
+        }
+        Err(e) => bad(e),
+    }
+}

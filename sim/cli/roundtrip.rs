@@ -1,0 +1,280 @@
+//! `loadloom roundtrip`: generate a task, run solvers on it, score them;
+//! one solver's report, a leaderboard of several, or the suite's ladder.
+
+use super::{bad, failed, load, print, FormatArg};
+use loadloom::progress::Progress;
+use loadloom::roundtrip::{self as rt, Plan};
+use loadloom::scenario::overrides::duration_arg;
+use loadloom::scenario::Scenario;
+use solver_check::leaderboard::{failure_message, rank, SolverReport};
+use solver_check::render::Form;
+use solver_check::roundtrip::{Outcome, Prepared, Reveal, Solver};
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+/// How much of the appliances' description a task reveals (the variants
+/// carry no doc comment: clap would print it beside each value in `--help`).
+#[derive(Clone, Copy, clap::ValueEnum)]
+pub enum RevealArg {
+    Ids,
+    Wiring,
+    States,
+}
+
+/// Generate a task from a scenario, run a disaggregator on it, score its estimate.
+#[derive(clap::Args)]
+pub struct Args {
+    /// The scenario file (TOML); with --suite, a folder of them (default scenarios/).
+    scenario: Option<PathBuf>,
+    /// `builtin:training-mean`, `builtin:combinatorial`, `builtin:combinatorial-per-line`, or a command
+    /// holding {task} and {estimate}, e.g. "python3 mine.py {task} {estimate}" (run without a shell).
+    /// Repeat it to rank several solvers on the same data.
+    #[arg(long, required = true)]
+    solver: Vec<String>,
+    /// Reuse a dataset folder already written instead of simulating: its
+    /// first --train is handed over as training, the next --test scored.
+    #[arg(long, conflicts_with_all = ["scenario", "suite", "seed"])]
+    dataset: Option<PathBuf>,
+    /// No progress lines (results still print).
+    #[arg(long)]
+    quiet: bool,
+    /// A file or folder a confined solver may also read (its model, its
+    /// packages); repeatable. One holding the --out folder is refused.
+    #[arg(long, value_name = "PATH")]
+    allow_read: Vec<PathBuf>,
+    /// Length of the training period (meters and truth handed over).
+    #[arg(long, default_value = "14d")]
+    train: String,
+    /// Length of the test period (meters only; scored).
+    #[arg(long, default_value = "7d")]
+    test: String,
+    /// How much of the appliances' description the task reveals.
+    #[arg(long, value_enum, default_value = "wiring")]
+    reveal: RevealArg,
+    /// Time limit for the solver.
+    #[arg(long, default_value = "10m")]
+    timeout: String,
+    /// Folder that receives OUT/<scenario name>-roundtrip/.
+    #[arg(long, default_value = "out")]
+    out: PathBuf,
+    /// Replace the scenario's seed.
+    #[arg(long)]
+    seed: Option<u64>,
+    /// The estimate file the solver writes: Parquet or CSV.
+    #[arg(long, value_enum, default_value = "parquet")]
+    estimate_format: FormatArg,
+    /// Print the JSON score report.
+    #[arg(long, conflicts_with = "markdown")]
+    json: bool,
+    /// Print a Markdown table.
+    #[arg(long)]
+    markdown: bool,
+    /// Run the solver on every scenario and a ladder of difficulty (more
+    /// meter noise, coarser intervals); print how the scores degrade.
+    #[arg(long)]
+    suite: bool,
+}
+
+/// Checks the options, then runs the round trip asked for.
+pub fn main(a: Args) -> ExitCode {
+    // Orphans of a solver (even one that called setsid) are handed to this
+    // process, so none outlives the round trip.
+    solver_check::child::become_subreaper();
+    let solvers = match parse_solvers(&a) {
+        Ok(s) => s,
+        Err(c) => return c,
+    };
+    let scenarios = match scenarios(&a) {
+        Ok(s) => s,
+        Err(c) => return c,
+    };
+    let plan = match plan(&a, &scenarios, solvers[0].clone()) {
+        Ok(p) => p,
+        Err(m) => return bad(format!("error: {m}")),
+    };
+    let form = Form::from_flags(a.json, a.markdown);
+    if a.dataset.is_some() || solvers.len() > 1 {
+        return leaderboard(&a, scenarios.first(), &plan, &solvers, form);
+    }
+    if a.suite {
+        return suite(&scenarios, &a.out, &plan, form);
+    }
+    let s = &scenarios[0];
+    let work = a.out.join(format!("{}-roundtrip", s.name));
+    match rt::once(s, &work, &plan) {
+        Ok(o) => single_report(&o, form),
+        Err(m) => failed(format!("error: {m}")),
+    }
+}
+
+/// Every `--solver`, with a word on deprecated spellings; the suite takes one.
+fn parse_solvers(a: &Args) -> Result<Vec<Solver>, ExitCode> {
+    let mut solvers = Vec::new();
+    for text in &a.solver {
+        if let Some(w) = Solver::deprecation(text) {
+            eprintln!("{w}");
+        }
+        match Solver::parse(text) {
+            Ok(s) => solvers.push(s),
+            Err(m) => return Err(bad(format!("error: --solver: {m}"))),
+        }
+    }
+    if a.suite && solvers.len() > 1 {
+        return Err(bad(
+            "error: --suite runs one --solver; rank several on one scenario without --suite",
+        ));
+    }
+    Ok(solvers)
+}
+
+/// The scenarios to simulate (none when a dataset is reused), with `--seed`.
+fn scenarios(a: &Args) -> Result<Vec<Scenario>, ExitCode> {
+    if a.dataset.is_some() {
+        return Ok(Vec::new());
+    }
+    let paths = rt::scenario_paths(a.scenario.as_deref(), a.suite)
+        .map_err(|m| bad(format!("error: {m}")))?;
+    let mut scenarios = Vec::new();
+    for p in &paths {
+        let mut s = load(p)?;
+        if let Some(seed) = a.seed {
+            s.run.seed = seed;
+        }
+        scenarios.push(s);
+    }
+    if scenarios.is_empty() {
+        return Err(bad("error: no scenario files found for the suite"));
+    }
+    Ok(scenarios)
+}
+
+/// The periods, time limit, reveal level and confinement of the round trip.
+fn plan(a: &Args, scenarios: &[Scenario], solver: Solver) -> Result<Plan, String> {
+    let (train_s, test_s, limit) = match (duration_arg(&a.train), duration_arg(&a.test), duration_arg(&a.timeout)) {
+        (Ok(x), Ok(y), Ok(t)) if x >= 0.0 && y > 0.0 && t > 0.0 => (x, y, t),
+        _ => return Err(format!("--train {} --test {} --timeout {}: write durations such as 14d, 7d and 10m (test and timeout above zero)", a.train, a.test, a.timeout)),
+    };
+    rt::check_periods(scenarios, train_s, test_s, a.suite)?;
+    let out_abs = std::path::absolute(&a.out).unwrap_or_else(|_| a.out.clone());
+    if let Some(p) = a
+        .allow_read
+        .iter()
+        .find(|p| solver_check::confine::contains(p, &out_abs))
+    {
+        return Err(format!("--allow-read {}: it holds the output folder {} with the truth; allow a folder beside it", p.display(), a.out.display()));
+    }
+    Ok(Plan {
+        train_s,
+        test_s,
+        reveal: match a.reveal {
+            RevealArg::Ids => Reveal::Ids,
+            RevealArg::Wiring => Reveal::Wiring,
+            RevealArg::States => Reveal::States,
+        },
+        solver,
+        limit: std::time::Duration::from_secs_f64(limit),
+        allow_read: a.allow_read.clone(),
+        estimate_name: match a.estimate_format {
+            FormatArg::Parquet => "estimate.parquet",
+            FormatArg::Csv => "estimate.csv",
+        },
+    })
+}
+
+/// The suite: every scenario at every rung; exit 1 if a solver failed on any.
+fn suite(scenarios: &[Scenario], out: &Path, plan: &Plan, form: Form) -> ExitCode {
+    let bar = Progress::messages();
+    let result = rt::suite(scenarios, out, plan, &mut |s, r| {
+        bar.say(format!("{s}: {r}"))
+    });
+    bar.finish();
+    match result {
+        Ok(suite) => {
+            print(&suite, form);
+            if suite.any_failed() {
+                ExitCode::from(super::FAILED)
+            } else {
+                ExitCode::SUCCESS
+            }
+        }
+        Err(m) => failed(format!("error: {m}")),
+    }
+}
+
+/// Where the round trip's data comes from: a reused dataset, or a scenario
+/// simulated now. Err is the exit status, the message printed.
+fn prepare_task(a: &Args, scenario: Option<&Scenario>, plan: &Plan) -> Result<Prepared, ExitCode> {
+    match (&a.dataset, scenario) {
+        (Some(d), _) => {
+            let name = d
+                .file_name()
+                .map(|n| n.to_string_lossy().to_string())
+                .unwrap_or_else(|| "dataset".into());
+            let work = a.out.join(format!("{name}-roundtrip"));
+            rt::prepare_dataset(d, &work, plan).map_err(bad)
+        }
+        (None, Some(s)) => {
+            let work = a.out.join(format!("{}-roundtrip", s.name));
+            rt::prepare(s, &work, plan).map_err(|m| failed(format!("error: {m}")))
+        }
+        (None, None) => Err(ExitCode::from(super::BAD_INPUT)),
+    }
+}
+
+/// Several solvers (or a reused dataset): the task written once, every
+/// solver run on it in turn, one ranked table. A single solver prints its
+/// full score report instead.
+fn leaderboard(
+    a: &Args,
+    scenario: Option<&Scenario>,
+    plan: &Plan,
+    solvers: &[Solver],
+    form: Form,
+) -> ExitCode {
+    let prep = match prepare_task(a, scenario, plan) {
+        Ok(p) => p,
+        Err(code) => return code,
+    };
+    let bar = if a.quiet || a.json {
+        Progress::hidden()
+    } else {
+        Progress::messages()
+    };
+    let n = solvers.len();
+    let outcomes = rt::board(
+        &prep,
+        solvers,
+        plan.limit,
+        &plan.allow_read,
+        &mut |k, name| bar.say(format!("solver {}/{n}: {name}", k + 1)),
+    );
+    bar.finish();
+    let outcomes = match outcomes {
+        Ok(o) => o,
+        Err(m) => return failed(format!("error: {m}")),
+    };
+    if n == 1 {
+        return match outcomes.first() {
+            Some(o) => single_report(o, form),
+            None => failed("error: the solver produced no outcome"),
+        };
+    }
+    let board = rank(outcomes, 1000, 0);
+    print(&board, form);
+    if board.failed.is_empty() {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(super::FAILED)
+    }
+}
+
+/// One solver's outcome: its score report, or why it got none (exit 1).
+fn single_report(o: &Outcome, form: Form) -> ExitCode {
+    match &o.result {
+        Ok(report) => {
+            print(&SolverReport { outcome: o, report }, form);
+            ExitCode::SUCCESS
+        }
+        Err(f) => failed(failure_message(o, f)),
+    }
+}

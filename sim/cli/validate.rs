@@ -1,0 +1,35 @@
+//! `loadloom validate`: check a scenario and print what it will produce.
+
+use super::{load, print};
+use loadloom::summary::Preview;
+use solver_check::render::Form;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+/// Parse and check a scenario; print what it will produce, write nothing.
+#[derive(clap::Args)]
+pub struct Args {
+    /// The scenario file (TOML).
+    scenario: PathBuf,
+    /// Print the figures as JSON.
+    #[arg(long, conflicts_with = "quiet")]
+    json: bool,
+    /// Print nothing; the exit status says whether the scenario is valid.
+    #[arg(long)]
+    quiet: bool,
+}
+
+/// Loads the scenario and computes its figures; prints them unless quiet.
+pub fn main(a: Args) -> ExitCode {
+    let s = match load(&a.scenario) {
+        Ok(s) => s,
+        Err(c) => return c,
+    };
+    // `--quiet` computes everything plain `validate` does, so it accepts no
+    // scenario that `validate` would refuse.
+    let preview = Preview::of(&s);
+    if !a.quiet {
+        print(&preview, Form::from_flags(a.json, false));
+    }
+    ExitCode::SUCCESS
+}

@@ -1,0 +1,91 @@
+//! Command-line overrides of a loaded scenario (`--seed`, `--length`,
+//! `--waveform`, `--waveform-rate`), checked by the same rules as the
+//! scenario's own keys.
+
+use super::{decode, Scenario};
+use crate::units::{parse_quantity, Kind};
+
+/// `30d`, `"12 h"` or `90s`: a duration with its unit, in seconds.
+pub fn duration_arg(text: &str) -> Result<f64, String> {
+    let (num, unit) = split_unit(text);
+    // On the command line `10m` means ten minutes, as in most tools.
+    let unit = if unit == "m" { "min" } else { unit };
+    parse_quantity(&format!("{num} {unit}"), Kind::Duration)
+}
+
+/// `12.8kHz` or `"4 kHz"`: a frequency with its unit, in hertz.
+fn frequency_arg(text: &str) -> Result<f64, String> {
+    let (num, unit) = split_unit(text);
+    parse_quantity(&format!("{num} {unit}"), Kind::Frequency)
+}
+
+/// The number and the unit of `12h` or `"12 h"`.
+fn split_unit(text: &str) -> (&str, &str) {
+    match text.find(|c: char| c.is_ascii_alphabetic()) {
+        Some(i) => (text[..i].trim(), text[i..].trim()),
+        None => (text.trim(), ""),
+    }
+}
+
+/// `--length 30d` or `--length "12 h"`: a positive whole number of
+/// reporting intervals.
+pub fn set_length(s: &mut Scenario, text: &str) -> Result<(), String> {
+    let len = duration_arg(text)?;
+    if len <= 0.0 {
+        return Err("the length must be greater than zero".into());
+    }
+    let per = s.meter.interval_s;
+    if ((len / per).round() - len / per).abs() > 1e-6 {
+        return Err(format!(
+            "{text} is not a whole number of reporting intervals ({per} s)"
+        ));
+    }
+    s.run.length_s = len;
+    Ok(())
+}
+
+/// `--waveform START/LENGTH` and `--waveform-rate`; also re-checks the
+/// scenario's own windows against a changed run length.
+pub fn add_waveforms(
+    s: &mut Scenario,
+    windows: &[String],
+    rate: Option<&str>,
+) -> Result<(), String> {
+    if let Some(r) = rate {
+        let hz = frequency_arg(r).map_err(|m| format!("--waveform-rate {r}: {m}"))?;
+        decode::check_wave_rate(hz, &s.run, &s.home)
+            .map_err(|m| format!("--waveform-rate {r}: {m}"))?;
+        s.waveforms.rate_hz = hz;
+    }
+    for w in &s.waveforms.windows {
+        if w.offset_s + w.length_s > s.run.length_s + 1e-9 {
+            return Err(format!(
+                "the scenario's waveform window {} + {} s lies outside the run of {} s",
+                w.start_local, w.length_s, s.run.length_s
+            ));
+        }
+    }
+    for text in windows {
+        let (start, len) = text
+            .split_once('/')
+            .ok_or_else(|| format!("--waveform {text}: expected START/LENGTH"))?;
+        let len_s = duration_arg(len).map_err(|m| format!("--waveform {text}: {m}"))?;
+        let w = decode::place_window(start, len_s, &s.run, &s.home)
+            .map_err(|m| format!("--waveform {text}: {m}"))?;
+        s.waveforms.windows.push(w);
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn durations_read_minutes_as_m() {
+        assert_eq!(duration_arg("10m"), Ok(600.0));
+        assert_eq!(duration_arg("12 h"), Ok(43_200.0));
+        assert_eq!(duration_arg("2d"), Ok(172_800.0));
+        assert!(duration_arg("soon").is_err());
+    }
+}

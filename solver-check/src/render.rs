@@ -1,0 +1,82 @@
+//! One way to print a report: every command's result (a score, a
+//! comparison, a leaderboard, an audit, a run summary) implements [`Render`],
+//! and the command line picks the [`Form`] the user asked for.
+
+use serde_json::Value;
+
+/// The form a report is printed in.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Form {
+    /// Aligned columns for a terminal.
+    Text,
+    /// Markdown tables, for pasting into documents and issues.
+    Markdown,
+    /// Pretty-printed JSON (each report names its format, e.g. `loadloom-score/1`).
+    Json,
+}
+
+impl Form {
+    /// The form chosen by a command's `--json` and `--markdown` flags
+    /// (`--json` wins; clap already refuses both at once).
+    pub fn from_flags(json: bool, markdown: bool) -> Form {
+        if json {
+            Form::Json
+        } else if markdown {
+            Form::Markdown
+        } else {
+            Form::Text
+        }
+    }
+}
+
+/// A report that can be printed as text, Markdown or JSON.
+pub trait Render {
+    /// The terminal form.
+    fn to_text(&self) -> String;
+    /// The Markdown form; a report with no tables worth a Markdown form
+    /// prints its text.
+    fn to_markdown(&self) -> String {
+        self.to_text()
+    }
+    /// The JSON form (a contract: fields are added, never renamed).
+    fn to_json(&self) -> Value;
+
+    /// The report in `form`, ready to print (JSON ends with a newline like
+    /// the other forms).
+    fn render(&self, form: Form) -> String {
+        match form {
+            Form::Text => self.to_text(),
+            Form::Markdown => self.to_markdown(),
+            Form::Json => {
+                let mut s = serde_json::to_string_pretty(&self.to_json())
+                    .expect("a serde_json::Value always serializes");
+                s.push('\n');
+                s
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    struct Two;
+    impl Render for Two {
+        fn to_text(&self) -> String {
+            "two\n".into()
+        }
+        fn to_json(&self) -> Value {
+            serde_json::json!({ "n": 2 })
+        }
+    }
+
+    #[test]
+    fn forms_follow_the_flags() {
+        assert_eq!(Form::from_flags(true, false), Form::Json);
+        assert_eq!(Form::from_flags(false, true), Form::Markdown);
+        assert_eq!(Form::from_flags(false, false), Form::Text);
+        assert_eq!(Two.render(Form::Markdown), "two\n");
+        assert_eq!(Two.render(Form::Json), "{\n  \"n\": 2\n}\n");
+    }
+}
