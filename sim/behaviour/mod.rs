@@ -11,6 +11,7 @@ mod markov;
 mod modulating;
 mod program;
 mod steady;
+pub mod window;
 
 use crate::rng::stream;
 use crate::scenario::{Appliance, Behaviour, Scenario};
@@ -97,19 +98,23 @@ impl Builder {
     }
 }
 
-/// Generates the timeline of one appliance. Draws come from the stream
-/// (seed, appliance id, "behaviour") only.
+/// Generates the timeline of one appliance over the run, as a window onto
+/// the home's one timeline ([`window`]). Draws come from the streams
+/// (seed, appliance id, "behaviour <block>") only.
 pub fn timeline(app: &Appliance, clock: &Clock, seed: u64) -> Timeline {
-    let mut rng = stream(seed, &app.id, "behaviour");
+    window::assemble(clock, |c, block| {
+        let mut rng = stream(seed, &app.id, &format!("behaviour {block}"));
+        generate(app, c, &mut rng)
+    })
+}
+
+/// The timeline of one appliance over `clock`, from `rng`.
+fn generate(app: &Appliance, clock: &Clock, rng: &mut crate::rng::Stream) -> Timeline {
     match &app.behaviour {
-        Behaviour::Cycle { dwell, extra } => {
-            cycle::generate(dwell, extra.as_ref(), clock, &mut rng)
-        }
-        Behaviour::Program { habit, lengths } => program::generate(habit, lengths, clock, &mut rng),
-        Behaviour::Markov { dwell, next } => markov::generate(dwell, next, clock, &mut rng),
-        Behaviour::Steady { jitter, every_s } => {
-            steady::generate(*jitter, *every_s, clock, &mut rng)
-        }
+        Behaviour::Cycle { dwell, extra } => cycle::generate(dwell, extra.as_ref(), clock, rng),
+        Behaviour::Program { habit, lengths } => program::generate(habit, lengths, clock, rng),
+        Behaviour::Markov { dwell, next } => markov::generate(dwell, next, clock, rng),
+        Behaviour::Steady { jitter, every_s } => steady::generate(*jitter, *every_s, clock, rng),
         Behaviour::Modulating {
             min,
             wander,
@@ -122,7 +127,7 @@ pub fn timeline(app: &Appliance, clock: &Clock, seed: u64) -> Timeline {
             *every_s,
             session.as_ref(),
             clock,
-            &mut rng,
+            rng,
         ),
     }
 }

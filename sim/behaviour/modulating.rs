@@ -47,10 +47,8 @@ pub fn generate(
     };
     let rest = 0;
     for s in starts(&sess.habit, clock, rng) {
-        if s < b.now() {
-            continue;
-        }
-        b.fill_to(rest, s, 1.0);
+        // A start during a session waits for it to end (see `program`).
+        b.fill_to(rest, s.max(b.now()), 1.0);
         let total = clock.steps_of(sample(&sess.length, rng));
         let taper = clock.steps_of(sess.taper_s).min(total);
         let flat = if sess.taper_s > 0.0 {

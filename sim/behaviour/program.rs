@@ -1,6 +1,7 @@
 //! Programs (washer, dryer, dishwasher): ordered phases started by a habit.
-//! A start that falls while the program still runs is dropped, as a person
-//! would not start a running machine.
+//! A start that falls while the program still runs waits for it to end (the
+//! next load goes in when the machine is free), so every start the habit
+//! draws happens and `starts_per_day` is the rate of starts that happen.
 
 use super::dist::sample;
 use super::habit::starts;
@@ -11,10 +12,7 @@ use crate::scenario::{Dist, Habit};
 pub fn generate(habit: &Habit, lengths: &[Dist], clock: &Clock, rng: &mut Stream) -> Timeline {
     let mut b = Builder::new(clock.steps);
     for s in starts(habit, clock, rng) {
-        if s < b.now() {
-            continue;
-        }
-        b.fill_to(0, s, 1.0);
+        b.fill_to(0, s.max(b.now()), 1.0);
         for (i, d) in lengths.iter().enumerate() {
             let l = clock.steps_of(sample(d, rng));
             b.push(i + 1, l, 1.0);

@@ -38,7 +38,7 @@ states = [ { power = "600 W", pf = 0.8 } ]
 id = "heater"
 wiring = "L1-L2"
 behaviour = "cycle"
-states = [ { name = "off", power = "0 W", dwell = "20 min" }, { name = "on", power = "2400 W", dwell = "25 min" } ]
+states = [ { name = "off", power = "0 W", dwell = "20 min" }, { name = "on", power = "2400 W", dwell = "40 min" } ]
 """
 
 
@@ -57,7 +57,9 @@ def test_loading_matches_a_hand_calculation(simulate):
     lines = {l["conductor"]: l for l in r["lines"]}
     assert lines["l1"]["peak_a"] == pytest.approx(abs(on[0]), rel=1e-4)
     assert lines["l2"]["peak_a"] == pytest.approx(abs(on[1]), rel=1e-4)
-    # The heater is on for whole quarter-hours at some point: 15-minute demand = peak.
+    # The heater is on for whole quarter-hours at some point (2 h hold at
+    # least one whole 40-min on-period, whatever the phase of its cycle):
+    # 15-minute demand = peak.
     assert lines["l1"]["demand_15min_a"] == pytest.approx(abs(on[0]), rel=1e-4)
     assert abs(off[0]) < lines["l1"]["mean_a"] < abs(on[0])
     assert lines["l1"]["peak_share_of_service"] == pytest.approx(abs(on[0]) / 100, rel=1e-4)

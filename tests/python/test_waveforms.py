@@ -127,7 +127,9 @@ states = [ { name = "off", power = "0 W", dwell = "5 s" }, { name = "on", power 
     ev = pq.read_table(d / "events.parquet").to_pandas()
     t0 = ev["start"].min()
     starts = [(s - t0).total_seconds() - 30 for s in ev[ev["state"] == "on"]["start"]]
-    t_on = next(t for t in starts if 0 <= t <= 12)  # seconds into the window
+    # Seconds into the 20 s window, with 50 ms before it and 1.05 s after it
+    # inside (a 13 s cycle always has such a start, whatever its phase).
+    t_on = next(t for t in starts if 0.05 <= t <= 18.5)
     k = int(round(t_on * rate))
     first = np.abs(ch["l1_i"][k : k + 640]).max()  # the first 50 ms after switch-on
     later = np.abs(ch["l1_i"][k + 12800 : k + 12800 + 640]).max()  # 1 s later (τ = 0.3 s)
