@@ -13,6 +13,7 @@ pub mod declaration;
 pub mod difficulty;
 pub mod electrical;
 pub mod fleet;
+pub mod layouts;
 pub mod matrix;
 pub mod meter;
 pub mod progress;

@@ -263,6 +263,20 @@ impl MeterModel {
                 tq += q;
             }
         }
+        if self.settings.total_only {
+            // A whole-home meter: the channels are summed inside it and
+            // only the total leaves it.
+            for x in 0..self.lines {
+                for col in [&mut out.line_p[x], &mut out.line_q[x], &mut out.line_i[x]] {
+                    *col.last_mut().expect("pushed above") = f32::NAN;
+                }
+            }
+        }
+        let n = if self.settings.total_only {
+            f64::NAN
+        } else {
+            n
+        };
         out.n_i.push(if lost { f32::NAN } else { n as f32 });
         out.total_p.push(if lost { f32::NAN } else { tp as f32 });
         out.total_q.push(if lost { f32::NAN } else { tq as f32 });

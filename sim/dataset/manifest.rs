@@ -179,6 +179,8 @@ pub fn build(
             "frequency_hz": s.home.frequency_hz,
             "service_a": s.home.service_a,
             "phase_angles_deg": s.home.supply.angles_deg(),
+            "source_phasors_v": crate::electrical::nominal_phasors(&s.home)[..lines].iter().map(|e| [e.re, e.im]).collect::<Vec<_>>(),
+            "voltage_unbalance": s.home.source.unbalance,
         },
         "time": {
             "timezone": s.home.timezone,

@@ -72,11 +72,18 @@ pub struct Network {
     pub apps: Vec<AppModel>,
 }
 
-/// Nominal line-to-neutral phasors of a supply.
+/// Nominal line-to-neutral phasors of a supply. With a voltage unbalance u
+/// a negative-sequence set of u times the nominal voltage is added (L1 at
+/// 0°, L2 at +120°, L3 at −120°), so |V₂|/|V₁| = u by Fortescue's
+/// symmetrical components (Fortescue 1918).
 pub fn nominal_phasors(home: &Home) -> [C64; 3] {
     let mut e = [C64::ZERO; 3];
+    let u = home.source.unbalance;
     for (k, deg) in home.supply.angles_deg().iter().enumerate() {
         e[k] = C64::polar(home.voltage_v, *deg);
+        if u > 0.0 {
+            e[k] += C64::polar(home.voltage_v * u, -*deg);
+        }
     }
     e
 }

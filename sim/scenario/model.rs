@@ -439,6 +439,38 @@ pub struct Appliance {
     pub states: Vec<State>,
     /// Power above which the appliance counts as on, W.
     pub on_threshold_w: f64,
+    /// The kinds of connection real models of this appliance are sold for
+    /// besides its own (`alternatives`); the layout ladder moves it between them.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub alternatives: Vec<WiringKind>,
+}
+
+/// A kind of connection, regardless of which lines it uses.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum WiringKind {
+    LineToNeutral,
+    LineToLine,
+    ThreePhase,
+}
+
+impl WiringKind {
+    pub const ALL: [(&'static str, WiringKind); 3] = [
+        ("line-to-neutral", WiringKind::LineToNeutral),
+        ("line-to-line", WiringKind::LineToLine),
+        ("three-phase", WiringKind::ThreePhase),
+    ];
+    /// The kind of a connection.
+    pub fn of(c: Connection) -> WiringKind {
+        match c {
+            Connection::ThreePhase => WiringKind::ThreePhase,
+            c if c.is_line_to_line() => WiringKind::LineToLine,
+            _ => WiringKind::LineToNeutral,
+        }
+    }
+    pub fn name(self) -> &'static str {
+        WiringKind::ALL.iter().find(|(_, k)| *k == self).unwrap().0
+    }
 }
 
 impl Appliance {
@@ -475,6 +507,14 @@ pub struct Source {
     pub line_x_ohm: f64,
     pub neutral_r_ohm: f64,
     pub neutral_x_ohm: f64,
+    /// Voltage unbalance factor of the source: the negative-sequence over
+    /// the positive-sequence voltage (IEC 61000-4-30), three-phase only.
+    #[serde(skip_serializing_if = "is_zero")]
+    pub unbalance: f64,
+}
+
+fn is_zero(x: &f64) -> bool {
+    *x == 0.0
 }
 
 #[derive(Clone, Debug, Serialize)]
@@ -522,6 +562,10 @@ pub struct Meter {
     pub noise_floor_w: f64,
     /// Quantisation step of P and Q readings, W (0 = none).
     pub resolution_w: f64,
+    /// A meter that reports only the home's total (`channels = "total"`):
+    /// per-line P, Q and I and the neutral current are null.
+    #[serde(skip_serializing_if = "std::ops::Not::not")]
+    pub total_only: bool,
 }
 
 /// A current transformer that misreads its conductor.

@@ -154,6 +154,15 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
             .collect();
         apps.push((id.clone(), on, learn(p, &per)));
     }
+    // A meter that reports only the total (per-line readings all null):
+    // the per-line programme has nothing to fit, so it solves the total.
+    let line_cols: Vec<String> = lines.iter().map(|l| format!("{l}_p_w")).collect();
+    let per_conductor = per_conductor
+        && task.test_meters(&line_cols).is_ok_and(|t| {
+            line_cols
+                .iter()
+                .all(|c| t.num(c).is_some_and(|v| v.iter().any(|x| !x.is_nan())))
+        });
     let meter_cols: Vec<String> = if per_conductor {
         lines.iter().map(|l| format!("{l}_p_w")).collect()
     } else {
