@@ -256,7 +256,19 @@ pub const LADDER: [Rung; 6] = [
 pub struct SuiteRow {
     pub scenario: String,
     pub rung: &'static str,
+    /// The scores; Err holds why there are none (a failed solver, or a
+    /// rung skipped because it would change nothing: see `skipped`).
     pub result: Result<Report, String>,
+    /// Why the rung was not run, when it would only repeat "as written".
+    pub skipped: Option<String>,
+}
+
+/// Why a rung that leaves the scenario as it is gets skipped.
+fn same_as_written(s: &Scenario, rung: &str) -> String {
+    format!(
+        "skipped: {} already reports every {} s, so \"{rung}\" would repeat \"as written\"",
+        s.name, s.meter.interval_s
+    )
 }
 
 /// Every scenario at every rung of the ladder: the suite's report.
@@ -268,7 +280,9 @@ pub struct Suite {
 impl Suite {
     /// Whether a solver failed on any rung (the command then exits 1).
     pub fn any_failed(&self) -> bool {
-        self.rows.iter().any(|r| r.result.is_err())
+        self.rows
+            .iter()
+            .any(|r| r.result.is_err() && r.skipped.is_none())
     }
 }
 
@@ -285,6 +299,18 @@ pub fn suite(
             progress(&s.name, rung.name);
             let mut v = s.clone();
             (rung.apply)(&mut v);
+            let unchanged = rung.name != LADDER[0].name
+                && serde_json::to_value(&v).ok() == serde_json::to_value(s).ok();
+            if unchanged {
+                let why = same_as_written(s, rung.name);
+                rows.push(SuiteRow {
+                    scenario: s.name.clone(),
+                    rung: rung.name,
+                    result: Err(why.clone()),
+                    skipped: Some(why),
+                });
+                continue;
+            }
             let slug: String = rung
                 .name
                 .chars()
@@ -300,6 +326,7 @@ pub fn suite(
                 scenario: s.name.clone(),
                 rung: rung.name,
                 result: o.result.map_err(|f| f.to_string()),
+                skipped: None,
             });
         }
     }
@@ -345,7 +372,12 @@ fn cells(rows: &[SuiteRow]) -> Vec<Vec<String>> {
             Err(e) => vec![
                 r.scenario.clone(),
                 r.rung.to_string(),
-                "failed".into(),
+                if r.skipped.is_some() {
+                    "skipped"
+                } else {
+                    "failed"
+                }
+                .into(),
                 String::new(),
                 String::new(),
                 String::new(),
@@ -354,6 +386,61 @@ fn cells(rows: &[SuiteRow]) -> Vec<Vec<String>> {
             ],
         })
         .collect()
+}
+
+/// Per scenario, the MAE of every appliance on every rung (W).
+fn appliance_tables(rows: &[SuiteRow], markdown: bool) -> String {
+    let mut o = String::new();
+    let mut names: Vec<&str> = rows.iter().map(|r| r.scenario.as_str()).collect();
+    names.dedup();
+    for name in names {
+        let mine: Vec<&SuiteRow> = rows.iter().filter(|r| r.scenario == name).collect();
+        let Some(ids) = mine.iter().find_map(|r| r.result.as_ref().ok()).map(|rep| {
+            rep.appliances
+                .iter()
+                .map(|a| a.id.clone())
+                .collect::<Vec<_>>()
+        }) else {
+            continue;
+        };
+        let rungs: Vec<&str> = mine.iter().map(|r| r.rung).collect();
+        o += &format!("\n{name}: MAE W per appliance and rung\n\n");
+        if markdown {
+            o += &format!(
+                "| appliance | {} |\n|---|{}\n",
+                rungs.join(" | "),
+                "---:|".repeat(rungs.len())
+            );
+        } else {
+            o += &format!(
+                "{:<20}{}\n",
+                "appliance",
+                rungs.iter().map(|r| format!("{r:>18}")).collect::<String>()
+            );
+        }
+        for id in &ids {
+            let cells: Vec<String> = mine
+                .iter()
+                .map(|r| match &r.result {
+                    Ok(rep) => rep
+                        .appliances
+                        .iter()
+                        .find(|a| a.id == *id)
+                        .map_or("–".into(), |a| format!("{:.1}", a.scores.mae_w)),
+                    Err(_) => "–".into(),
+                })
+                .collect();
+            o += &if markdown {
+                format!("| {id} | {} |\n", cells.join(" | "))
+            } else {
+                format!(
+                    "{id:<20}{}\n",
+                    cells.iter().map(|c| format!("{c:>18}")).collect::<String>()
+                )
+            };
+        }
+    }
+    o
 }
 
 impl Render for Suite {
@@ -386,7 +473,7 @@ impl Render for Suite {
         for r in &c {
             o += &line(r);
         }
-        o
+        o + &appliance_tables(&self.rows, false)
     }
 
     fn to_markdown(&self) -> String {
@@ -401,15 +488,16 @@ impl Render for Suite {
         for r in cells(&self.rows) {
             o += &format!("| {} |\n", r.join(" | "));
         }
-        o
+        o + &appliance_tables(&self.rows, true)
     }
 
     fn to_json(&self) -> Value {
         json!({
             "format": "loadloom-suite/1",
-            "rows": self.rows.iter().map(|r| match &r.result {
-                Ok(rep) => json!({ "scenario": r.scenario, "rung": r.rung, "overall": rep.overall.to_json() }),
-                Err(e) => json!({ "scenario": r.scenario, "rung": r.rung, "failure": e }),
+            "rows": self.rows.iter().map(|r| match (&r.result, &r.skipped) {
+                (Ok(rep), _) => json!({ "scenario": r.scenario, "rung": r.rung, "overall": rep.overall.to_json(), "report": rep.to_json() }),
+                (Err(_), Some(why)) => json!({ "scenario": r.scenario, "rung": r.rung, "skipped": why }),
+                (Err(e), None) => json!({ "scenario": r.scenario, "rung": r.rung, "failure": e }),
             }).collect::<Vec<_>>(),
         })
     }

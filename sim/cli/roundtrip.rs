@@ -73,6 +73,13 @@ pub struct Args {
     /// meter noise, coarser intervals); print how the scores degrade.
     #[arg(long)]
     suite: bool,
+    /// Run the solvers on a ladder of layouts derived from SCENARIO (phase
+    /// assignment, line-to-line share, partial-phase loads, supply,
+    /// metering), each rung's scenario written beside its results; print
+    /// each layout's difficulty card next to the scores; write
+    /// OUT/<scenario>-layouts/ladder.json and scores.svg.
+    #[arg(long, conflicts_with_all = ["suite", "dataset"])]
+    layouts: bool,
 }
 
 /// Checks the options, then runs the round trip asked for.
@@ -93,6 +100,9 @@ pub fn main(a: Args) -> ExitCode {
         Err(m) => return bad(format!("error: {m}")),
     };
     let form = Form::from_flags(a.json, a.markdown);
+    if a.layouts {
+        return layouts(&a, &plan, &solvers, form);
+    }
     if a.dataset.is_some() || solvers.len() > 1 {
         return leaderboard(&a, scenarios.first(), &plan, &solvers, form);
     }
@@ -198,6 +208,44 @@ fn suite(scenarios: &[Scenario], out: &Path, plan: &Plan, form: Form) -> ExitCod
             }
         }
         Err(m) => failed(format!("error: {m}")),
+    }
+}
+
+/// The layout ladder of one home: every rung with every solver; the report,
+/// and `ladder.json` and `scores.svg` in the ladder's folder.
+fn layouts(a: &Args, plan: &Plan, solvers: &[Solver], form: Form) -> ExitCode {
+    let Some(path) = a.scenario.as_deref() else {
+        return bad("error: --layouts needs a SCENARIO");
+    };
+    let bar = if a.quiet || a.json {
+        Progress::hidden()
+    } else {
+        Progress::messages()
+    };
+    let shape = loadloom::layouts::Shape::default();
+    let ladder = loadloom::layouts::run(path, a.seed, &shape, &a.out, plan, solvers, &mut |m| {
+        bar.say(m.to_string())
+    });
+    bar.finish();
+    let ladder = match ladder {
+        Ok(l) => l,
+        Err(m) => return failed(format!("error: {m}")),
+    };
+    let dir = a.out.join(format!("{}-layouts", ladder.home));
+    if let Err(m) = loadloom::layouts::write_reports(&ladder, &dir) {
+        return failed(format!("error: {m}"));
+    }
+    print(&ladder, form);
+    if form != Form::Json {
+        eprintln!(
+            "the scores across the rungs: {}",
+            dir.join("scores.svg").display()
+        );
+    }
+    if ladder.any_failed() {
+        ExitCode::from(super::FAILED)
+    } else {
+        ExitCode::SUCCESS
     }
 }
 

@@ -11,7 +11,6 @@ pub mod rungs;
 pub mod wire;
 
 pub use plot::plot_svg;
-pub use report::{render_json, render_markdown, render_text};
 
 use crate::roundtrip::Plan;
 use crate::scenario::{self, Connection, Scenario};
@@ -138,6 +137,25 @@ pub struct Ladder {
     pub train_s: f64,
     pub test_s: f64,
     pub rungs: Vec<RungResult>,
+}
+
+impl Ladder {
+    /// Whether a rung failed for any solver (the command then exits 1).
+    pub fn any_failed(&self) -> bool {
+        self.rungs
+            .iter()
+            .any(|r| r.scores.iter().any(|s| s.1.is_err()))
+    }
+}
+
+/// Writes `ladder.json` (the JSON report) and `scores.svg` (each score
+/// across the rungs) into the ladder's folder.
+pub fn write_reports(l: &Ladder, dir: &Path) -> Result<(), String> {
+    use solver_check::render::{Form, Render};
+    let json = dir.join("ladder.json");
+    std::fs::write(&json, l.render(Form::Json)).map_err(|e| format!("{}: {e}", json.display()))?;
+    let svg = dir.join("scores.svg");
+    std::fs::write(&svg, plot_svg(l)).map_err(|e| format!("{}: {e}", svg.display()))
 }
 
 /// The command that rebuilds a rung alone.

@@ -4,6 +4,7 @@
 
 use super::{Ladder, RungResult};
 use serde_json::{json, Value};
+use solver_check::render::Render;
 use solver_check::score::Report;
 
 /// Per conductor: the mean MAE and mean F1 of the appliances drawing from it.
@@ -64,8 +65,20 @@ fn card_line(c: &Value) -> String {
     )
 }
 
+impl Render for Ladder {
+    fn to_text(&self) -> String {
+        text(self)
+    }
+    fn to_markdown(&self) -> String {
+        markdown(self)
+    }
+    fn to_json(&self) -> Value {
+        json_of(self)
+    }
+}
+
 /// The ladder as text: a block per rung, then the summary table.
-pub fn render_text(l: &Ladder) -> String {
+fn text(l: &Ladder) -> String {
     let mut o = format!(
         "layout ladder of {} ({} rungs; train {} s, test {} s)\n\n",
         l.home,
@@ -171,7 +184,7 @@ fn render_markdown_summary(l: &Ladder) -> String {
 
 /// The summary table, then per solver the MAE of every appliance and the
 /// per-conductor figures on every rung.
-pub fn render_markdown(l: &Ladder) -> String {
+fn markdown(l: &Ladder) -> String {
     let mut o = format!("### Layout ladder of {}\n\n", l.home);
     o += &render_markdown_summary(l);
     for (k, solver) in l.solvers.iter().enumerate() {
@@ -219,7 +232,7 @@ pub fn render_markdown(l: &Ladder) -> String {
 }
 
 /// The whole ladder as JSON.
-pub fn render_json(l: &Ladder) -> Value {
+fn json_of(l: &Ladder) -> Value {
     json!({
         "format": "loadloom-layouts/1",
         "home": l.home,

@@ -338,3 +338,46 @@ def test_markdown_gives_the_whole_ladder(ladders, tmp_path):
     head = [line for line in p.stdout.splitlines() if line.startswith("| rung |")]
     assert len(head) >= 2, "the ladder table and the per-appliance table"
     assert "| total only | metering |" in p.stdout
+
+
+COTTAGE_10S = """
+[home]
+label = "A cottage reporting every 10 s (invented)"
+supply = "split-phase"
+timezone = "America/Halifax"
+
+[run]
+start = "2027-02-01T00:00"
+length = "2 d"
+seed = 3
+
+[meter]
+interval = "10 s"
+
+[[appliance]]
+id = "fridge"
+template = "fridge"
+
+[[appliance]]
+id = "kettle"
+template = "kettle"
+wiring = "L2-N"
+
+[[appliance]]
+id = "heater"
+template = "baseboard_heater"
+"""
+
+
+def test_suite_says_when_a_rung_repeats_as_written_and_scores_each_appliance(tmp_path):
+    home = tmp_path / "cottage10.toml"
+    home.write_text(COTTAGE_10S)
+    p = loadloom("roundtrip", home, "--suite", "--solver", "builtin:training-mean", "--train", "1h", "--test", "1h",
+                 "--out", tmp_path / "out", "--json")
+    rows = {r["rung"]: r for r in json.loads(p.stdout)["rows"]}
+    assert "already reports every 10 s" in rows["interval 10 s"]["skipped"]
+    assert not (tmp_path / "out" / "cottage10-suite" / "interval-10-s").exists()
+    assert {a["id"] for a in rows["as written"]["report"]["appliances"]} == {"fridge", "kettle", "heater"}
+    text = loadloom("roundtrip", home, "--suite", "--solver", "builtin:training-mean", "--train", "1h", "--test", "1h",
+                    "--out", tmp_path / "out").stdout
+    assert "skipped" in text and "MAE W per appliance and rung" in text
