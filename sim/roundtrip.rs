@@ -81,9 +81,11 @@ pub fn check_periods(
 pub fn prepare(s: &Scenario, work: &Path, p: &Plan) -> Result<Prepared, String> {
     let mut s = s.clone();
     s.run.length_s = p.train_s + p.test_s;
-    let written = dataset::write(&s, work, Format::Parquet, &mut |_| {})
-        .map_err(|e| format!("writing the dataset under {} failed: {e}", work.display()))?;
     let train_rows = (p.train_s / s.meter.interval_s).round() as usize;
+    // Row groups end at the train/test boundary too, so each period is
+    // copied into the task as encoded (no decoding, no re-encoding).
+    let written = dataset::write_cut(&s, work, Format::Parquet, &mut |_| {}, &[train_rows])
+        .map_err(|e| format!("writing the dataset under {} failed: {e}", work.display()))?;
     let split = Split {
         train: 0..train_rows,
         test: train_rows..written.rows as usize,

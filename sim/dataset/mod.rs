@@ -75,6 +75,19 @@ pub fn write(
     format: Format,
     progress: &mut dyn FnMut(f64),
 ) -> io::Result<Written> {
+    write_cut(s, out_root, format, progress, &[])
+}
+
+/// [`write`], with the meters' and truth's Parquet row groups also ending
+/// at each row of `cuts` (a round trip's train/test boundary, so that each
+/// period is made of whole row groups and is copied without re-encoding).
+pub fn write_cut(
+    s: &Scenario,
+    out_root: &Path,
+    format: Format,
+    progress: &mut dyn FnMut(f64),
+    cuts: &[usize],
+) -> io::Result<Written> {
     std::fs::create_dir_all(out_root)?;
     folder::sweep_stale(out_root);
     let dest = out_root.join(&s.name);
@@ -84,7 +97,7 @@ pub fn write(
         s.name,
         std::process::id()
     )))?;
-    let (rows, outcome) = write_into(s, tmp.path(), format, &Layout::single(), progress)?;
+    let (rows, outcome) = write_into_cut(s, tmp.path(), format, &Layout::single(), progress, cuts)?;
     replace_dir(tmp.path(), &dest)?;
     tmp.keep();
     Ok(Written {
@@ -153,6 +166,19 @@ pub fn write_into(
     layout: &Layout,
     progress: &mut dyn FnMut(f64),
 ) -> io::Result<(u64, Outcome)> {
+    write_into_cut(s, dir, format, layout, progress, &[])
+}
+
+/// [`write_into`], with Parquet row groups also ending at each row of
+/// `cuts` (see [`write_cut`]).
+pub fn write_into_cut(
+    s: &Scenario,
+    dir: &Path,
+    format: Format,
+    layout: &Layout,
+    progress: &mut dyn FnMut(f64),
+    cuts: &[usize],
+) -> io::Result<(u64, Outcome)> {
     let tables = Tables::with_form(s, layout.form);
     let tz = layout.form.timezone(s);
     let intervals = s.intervals();
@@ -163,20 +189,22 @@ pub fn write_into(
     }
     let meta = dir.join(&layout.manifest);
     std::fs::create_dir_all(&meta)?;
-    let meters = Sink::create(
+    let mut meters = Sink::create(
         &dir.join(&files[0]),
         format,
         tables.meters_schema.clone(),
         tz,
         Values::Noisy,
     )?;
-    let truth = Sink::create(
+    let mut truth = Sink::create(
         &dir.join(&files[1]),
         format,
         tables.truth_schema.clone(),
         tz,
         Values::Stepwise,
     )?;
+    meters.cut_at(cuts);
+    truth.cut_at(cuts);
     let mut recorder = if s.waveforms.windows.is_empty() {
         None
     } else {

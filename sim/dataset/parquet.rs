@@ -73,6 +73,12 @@ pub struct Table {
     row_groups: usize,
     /// Rows in the open row group.
     rows: usize,
+    /// Rows in the row groups already written.
+    done: usize,
+    /// Rows at which a row group must end (besides every
+    /// [`ROW_GROUP_ROWS`]), ascending: a round trip cuts at its train/test
+    /// boundary so that each period is whole row groups, copied as encoded.
+    cuts: Vec<usize>,
 }
 
 impl Table {
@@ -93,7 +99,27 @@ impl Table {
             page_rows,
             row_groups: 0,
             rows: 0,
+            done: 0,
+            cuts: Vec::new(),
         })
+    }
+
+    /// Ends a row group at each of these rows too (ascending or not).
+    pub fn cut_at(&mut self, rows: &[usize]) {
+        self.cuts = rows.to_vec();
+        self.cuts.sort_unstable();
+    }
+
+    /// Rows the open row group still takes: up to [`ROW_GROUP_ROWS`] and
+    /// never past the next cut.
+    fn room(&self) -> usize {
+        let at = self.done + self.rows;
+        let to_cut = self
+            .cuts
+            .iter()
+            .find(|c| **c > self.done)
+            .map_or(usize::MAX, |c| c - at);
+        (ROW_GROUP_ROWS - self.rows).min(to_cut)
     }
 
     /// Closes the open row group: its column chunks are finished on
@@ -111,6 +137,7 @@ impl Table {
         }
         group.close().map_err(to_io)?;
         self.row_groups += 1;
+        self.done += self.rows;
         self.rows = 0;
         Ok(())
     }
@@ -158,7 +185,10 @@ pub fn write(tables: &mut [(&mut Table, RecordBatch)], threads: usize) -> io::Re
         // A round: each table takes what fits in its open row group.
         let mut tasks: Vec<Task> = Vec::new();
         for (t, batch) in tables.iter_mut() {
-            let n = batch.num_rows().min(ROW_GROUP_ROWS - t.rows);
+            if t.rows > 0 && t.room() == 0 {
+                t.flush(threads)?;
+            }
+            let n = batch.num_rows().min(t.room());
             if n == 0 {
                 continue;
             }
@@ -179,7 +209,7 @@ pub fn write(tables: &mut [(&mut Table, RecordBatch)], threads: usize) -> io::Re
         let done = parallel(tasks, threads, |(w, f, c)| w.write(&f, &c));
         done.into_iter().collect::<io::Result<()>>()?;
         for (t, _) in tables.iter_mut() {
-            if t.rows == ROW_GROUP_ROWS {
+            if t.rows > 0 && t.room() == 0 {
                 t.flush(threads)?;
             }
         }

@@ -68,6 +68,14 @@ impl Sink {
         }
     }
 
+    /// Ends a Parquet row group at each of these rows too (see
+    /// [`super::parquet::Table::cut_at`]); CSV has no row groups.
+    pub fn cut_at(&mut self, rows: &[usize]) {
+        if let Sink::Parquet(t) = self {
+            t.cut_at(rows);
+        }
+    }
+
     /// Writes `batch`; a Parquet table's columns are encoded on `threads`
     /// threads.
     pub fn write(&mut self, batch: &RecordBatch, threads: usize) -> io::Result<()> {

@@ -219,8 +219,10 @@ pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, 
     let estream = ef.header.stream(&ecols)?;
     std::thread::scope(|scope| -> Result<Report, ScoreError> {
         let mut tc = Cursor::new(Box::new(read_ahead(scope, tstream)), Box::new(|_| Ok(())));
+        // The estimate is decoded on a thread of its own too: this one
+        // only checks values and sums errors.
         let mut ec = Cursor::new(
-            Box::new(estream),
+            Box::new(read_ahead(scope, estream)),
             Box::new(|b| values_check(estimate, &ecols, &rules, b)),
         );
         tc.skip(plan.truth_first)?;

@@ -10,7 +10,7 @@ use parquet::arrow::arrow_reader::{ParquetRecordBatchReader, ParquetRecordBatchR
 use parquet::arrow::ProjectionMask;
 use std::path::{Path, PathBuf};
 
-pub const BATCH_ROWS: usize = 1 << 16;
+pub const BATCH_ROWS: usize = 1 << 13;
 
 /// Rows `first..first + time_ms.len()` of the requested columns.
 pub struct Batch {

@@ -115,13 +115,6 @@ pub fn split_rows(src: &Path, outs: &[RowSlice]) -> io::Result<Vec<(usize, Strin
         bounds.push(bounds.last().copied().unwrap_or(0) + rg.num_rows().max(0) as usize);
     }
     let raw: Vec<usize> = outs.iter().map(|(_, r)| raw_from(&bounds, r)).collect();
-    let end = outs
-        .iter()
-        .zip(&raw)
-        .map(|((_, r), &x)| x.min(r.end))
-        .max()
-        .unwrap_or(0);
-    let reader = b.with_batch_size(1 << 16).build().map_err(io_err)?;
     let mut writers = Vec::new();
     for (dst, _) in outs {
         let tally = Arc::new(std::sync::Mutex::new((Sha256::new(), 0u64)));
@@ -133,21 +126,38 @@ pub fn split_rows(src: &Path, outs: &[RowSlice]) -> io::Result<Vec<(usize, Strin
             .map_err(io_err)?;
         writers.push((w, tally, 0usize));
     }
-    let mut row = 0;
-    for batch in reader {
-        if row >= end {
-            break;
-        }
-        let batch = batch.map_err(io_err)?;
-        let (lo, hi) = (row, row + batch.num_rows());
-        for (((w, _, written), (_, r)), &x) in writers.iter_mut().zip(outs).zip(&raw) {
-            let (a, z) = (r.start.max(lo), r.end.min(hi).min(x));
-            if a < z {
-                w.write(&batch.slice(a - lo, z - a)).map_err(io_err)?;
-                *written += z - a;
+    // The rows that must be decoded: those before each range's first whole
+    // row group. Only the row groups holding them are read.
+    let decode: Vec<std::ops::Range<usize>> = outs
+        .iter()
+        .zip(&raw)
+        .map(|((_, r), &x)| r.start..x.min(r.end))
+        .filter(|r| !r.is_empty())
+        .collect();
+    if let (Some(lo), Some(hi)) = (
+        decode.iter().map(|r| r.start).min(),
+        decode.iter().map(|r| r.end).max(),
+    ) {
+        let first = bounds.partition_point(|&b| b <= lo) - 1;
+        let last = bounds.partition_point(|&b| b < hi) - 1;
+        let reader = b
+            .with_row_groups((first..=last).collect())
+            .with_batch_size(1 << 16)
+            .build()
+            .map_err(io_err)?;
+        let mut row = bounds[first];
+        for batch in reader {
+            let batch = batch.map_err(io_err)?;
+            let (lo, hi) = (row, row + batch.num_rows());
+            for (((w, _, written), (_, r)), &x) in writers.iter_mut().zip(outs).zip(&raw) {
+                let (a, z) = (r.start.max(lo), r.end.min(hi).min(x));
+                if a < z {
+                    w.write(&batch.slice(a - lo, z - a)).map_err(io_err)?;
+                    *written += z - a;
+                }
             }
+            row = hi;
         }
-        row = hi;
     }
     let mut done = Vec::new();
     for ((w, tally, written), ((_, r), &x)) in writers.into_iter().zip(outs.iter().zip(&raw)) {

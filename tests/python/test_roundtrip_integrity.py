@@ -173,18 +173,40 @@ wiring = "L2-N"
 """
 
 
-def test_task_and_scored_truth_are_exact_slices_of_the_dataset(tmp_path):
-    # 13 d at 1 s spans two Parquet row groups, so the test rows are partly
-    # re-encoded and partly copied as whole row groups; pyarrow must read
-    # back exactly the dataset's rows either way.
+def row_group_starts(path):
+    import pyarrow.parquet as pq
+    md = pq.ParquetFile(path).metadata
+    starts, at = [], 0
+    for g in range(md.num_row_groups):
+        starts.append(at)
+        at += md.row_group(g).num_rows
+    return starts
+
+
+@pytest.mark.parametrize("source", ["scenario", "dataset"])
+def test_task_and_scored_truth_are_exact_slices_of_the_dataset(tmp_path, source):
+    # From a scenario, the round trip cuts the dataset's row groups at the
+    # train/test boundary (each period is copied as encoded); a dataset
+    # written by `run` (row groups of 1 Mi rows) has a row group straddling
+    # the boundary, re-encoded. pyarrow must read back exactly the
+    # dataset's rows either way.
     import pyarrow.parquet as pq
     (tmp_path / "flat.toml").write_text(SLICE_HOME)
-    loadloom("roundtrip", tmp_path / "flat.toml", "--solver", "builtin:combinatorial", "--train", "1d", "--test", "12d", "--out", tmp_path)
-    w = tmp_path / "flat-roundtrip"
-    assert pq.ParquetFile(w / "flat" / "meters.parquet").metadata.num_row_groups >= 2
+    if source == "scenario":
+        loadloom("roundtrip", tmp_path / "flat.toml", "--solver", "builtin:combinatorial", "--train", "1d", "--test", "12d", "--out", tmp_path)
+        w, ds = tmp_path / "flat-roundtrip", tmp_path / "flat-roundtrip" / "flat"
+    else:
+        loadloom("run", tmp_path / "flat.toml", "--out", tmp_path / "made")
+        ds = tmp_path / "made" / "flat"
+        loadloom("roundtrip", "--dataset", ds, "--solver", "builtin:combinatorial", "--train", "1d", "--test", "12d", "--out", tmp_path)
+        w = tmp_path / "flat-roundtrip"
+    for table in ("meters", "truth"):
+        starts = row_group_starts(ds / f"{table}.parquet")
+        assert len(starts) >= 2
+        assert (86400 in starts) == (source == "scenario"), (table, starts)
     for table, part, dst in [("meters", "train", w / "task" / "train" / "meters.parquet"), ("truth", "train", w / "task" / "train" / "truth.parquet"),
                              ("meters", "test", w / "task" / "test" / "meters.parquet"), ("truth", "test", w / "test-truth" / "truth.parquet")]:
-        full = pq.read_table(w / "flat" / f"{table}.parquet")
+        full = pq.read_table(ds / f"{table}.parquet")
         got = pq.read_table(dst)
         want = full.slice(0, 86400) if part == "train" else full.slice(86400)
         assert got.num_rows == want.num_rows and got.to_pandas().equals(want.to_pandas()), (table, part)
