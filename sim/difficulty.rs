@@ -8,8 +8,8 @@
 //! - the share of energy drawn line-to-line, and the share unmetered.
 
 use crate::behaviour::Timeline;
-use crate::dataset::manifest::state_split;
 use crate::dataset::schema::line_name;
+use crate::electrical::split::state_split;
 use crate::scenario::{Connection, Scenario};
 use serde_json::{json, Value};
 

@@ -735,7 +735,7 @@ fn write_home(s: &Scenario, out: &Path, i: u64) -> std::io::Result<()> {
     let tmp = PartialDir::create(out.join(format!(".{}.partial-{}", s.name, std::process::id())))?;
     let layout = layout(i);
     let format = crate::dataset::Format::Parquet;
-    crate::dataset::write_into(s, tmp.path(), format, &layout, &mut |_| {})?;
+    crate::pipeline::write_into(s, tmp.path(), format, &layout, &mut |_| {})?;
     let parts = [
         &layout.manifest,
         &layout.meters,

@@ -16,6 +16,7 @@ pub mod fleet;
 pub mod layouts;
 pub mod matrix;
 pub mod meter;
+pub mod pipeline;
 pub mod progress;
 pub mod rng;
 pub mod roundtrip;

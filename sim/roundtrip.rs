@@ -2,7 +2,8 @@
 //! it to `solver_check::roundtrip` (which reads files only). The suite runs
 //! one solver over many scenarios and a ladder of difficulty.
 
-use crate::dataset::{self, Format};
+use crate::dataset::Format;
+use crate::pipeline;
 use crate::scenario::Scenario;
 use serde_json::{json, Value};
 use solver_check::render::Render;
@@ -84,7 +85,7 @@ pub fn prepare(s: &Scenario, work: &Path, p: &Plan) -> Result<Prepared, String> 
     let train_rows = (p.train_s / s.meter.interval_s).round() as usize;
     // Row groups end at the train/test boundary too, so each period is
     // copied into the task as encoded (no decoding, no re-encoding).
-    let written = dataset::write_cut(&s, work, Format::Parquet, &mut |_| {}, &[train_rows])
+    let written = pipeline::write_cut(&s, work, Format::Parquet, &mut |_| {}, &[train_rows])
         .map_err(|e| format!("writing the dataset under {} failed: {e}", work.display()))?;
     let split = Split {
         train: 0..train_rows,

@@ -5,9 +5,9 @@
 //! against the service rating.
 
 use crate::behaviour::timelines;
-use crate::dataset::manifest::state_split;
 use crate::dataset::schema::line_name;
-use crate::dataset::Written;
+use crate::electrical::split::state_split;
+use crate::pipeline::Written;
 use crate::scenario::Scenario;
 use solver_check::render::Render;
 

@@ -1,8 +1,9 @@
 //! `loadloom run`: simulate a scenario and write its dataset folder.
 
 use super::{bad, failed, load, print, FormatArg, BAD_INPUT};
-use loadloom::dataset::{self, Format};
+use loadloom::dataset::Format;
 use loadloom::electrical::settle::Diverged;
+use loadloom::pipeline;
 use loadloom::progress::Progress;
 use loadloom::scenario::{self, overrides};
 use loadloom::summary::RunReport;
@@ -70,7 +71,7 @@ pub fn main(a: Args) -> ExitCode {
         Progress::share("simulating")
     };
     let started = std::time::Instant::now();
-    let written = dataset::write(&s, &a.out, format, &mut |f| bar.fraction(f));
+    let written = pipeline::write(&s, &a.out, format, &mut |f| bar.fraction(f));
     bar.finish();
     let w = match written {
         Ok(w) => w,

@@ -14,6 +14,7 @@
 pub mod complex;
 pub mod settle;
 pub mod source;
+pub mod split;
 
 use crate::scenario::{Connection, Harmonic, Home, Inrush, Scenario, Zip, NEUTRAL};
 pub use complex::C64;

@@ -4,8 +4,9 @@
 //! as they stream past (see `values_check`).
 
 use crate::dataset::Dataset;
+use crate::stream::read_table;
 use crate::stream::{header, in_memory, localise_hint, Batch, Header};
-use crate::table::{read, table_err, Column, Table, TableError};
+use crate::table::{table_err, Column, Table, TableError};
 use std::path::Path;
 
 /// The columns that hold one appliance's estimate.
@@ -56,7 +57,7 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
         ));
     }
     if h.has("appliance") && h.has("p_w") {
-        h = in_memory(long_to_wide(&read(path, None, &["appliance"])?, ds)?);
+        h = in_memory(long_to_wide(&read_table(path, None, &["appliance"])?, ds)?);
     }
     let known = |id: &str| ds.appliances.iter().any(|a| a.id == id);
     let mut apps: Vec<AppColumns> = Vec::new();

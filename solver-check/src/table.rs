@@ -1,5 +1,6 @@
 //! A whole table in memory (time in UTC milliseconds, numeric or text
-//! columns), and the error type of every table reader.
+//! columns), and the error type of every table reader. Reading lives in
+//! [`crate::stream`] (`read_table`), which builds on these types.
 
 use std::fmt;
 use std::path::{Path, PathBuf};
@@ -86,57 +87,4 @@ impl Table {
     pub fn has(&self, name: &str) -> bool {
         self.columns.iter().any(|(n, _)| n == name)
     }
-}
-
-/// Reads `path` (`.parquet` or `.csv`) whole; `wanted` limits the columns
-/// read (None: all). Text columns are those the Parquet schema says are
-/// strings, or, in CSV, those named in `csv_text`. For small tables (long
-/// estimates, a solver's training data); scoring streams instead.
-pub fn read(
-    path: &Path,
-    wanted: Option<&dyn Fn(&str) -> bool>,
-    csv_text: &[&str],
-) -> Result<Table, TableError> {
-    let h = crate::stream::header(path)?;
-    let is_csv = path.extension().is_some_and(|e| e == "csv");
-    let pick = |n: &str| wanted.is_none_or(|w| w(n));
-    let (mut nums, mut texts) = (Vec::new(), Vec::new());
-    for (name, text) in &h.columns {
-        if !pick(name) {
-            continue;
-        }
-        if *text || (is_csv && csv_text.contains(&name.as_str())) {
-            texts.push(name.clone());
-        } else {
-            nums.push(name.clone());
-        }
-    }
-    let mut num_cols: Vec<Vec<f64>> = vec![Vec::new(); nums.len()];
-    let mut text_cols: Vec<Vec<String>> = vec![Vec::new(); texts.len()];
-    let mut time_ms = Vec::new();
-    let mut st = h.stream_with_text(&nums, &texts)?;
-    while let Some(b) = st.next_batch()? {
-        time_ms.extend_from_slice(&b.time_ms);
-        for (c, v) in num_cols.iter_mut().zip(b.cols) {
-            c.extend(v);
-        }
-        for (c, v) in text_cols.iter_mut().zip(b.texts) {
-            c.extend(v);
-        }
-    }
-    let columns = nums
-        .into_iter()
-        .zip(num_cols.into_iter().map(Column::Num))
-        .chain(
-            texts
-                .into_iter()
-                .zip(text_cols.into_iter().map(Column::Text)),
-        )
-        .collect();
-    Ok(Table {
-        file: path.to_path_buf(),
-        time_ms,
-        time_zone: h.time_zone.clone(),
-        columns,
-    })
 }

@@ -12,7 +12,8 @@
 //!     cargo bench --bench audit                  # 30 days (about a minute to prepare)
 //!     LOADLOOM_BENCH_DAYS=7 cargo bench --bench audit
 
-use loadloom::dataset::{self, Format};
+use loadloom::dataset::Format;
+use loadloom::pipeline;
 use std::path::Path;
 use std::process::Command;
 use std::time::Instant;
@@ -93,7 +94,7 @@ fn main() {
         }
         let declared = declared.unwrap_or(file);
         let out = dir.join(if faulty { "faulty" } else { "as-simulated" });
-        let w = dataset::write(&s, &out, Format::Parquet, &mut |_| {}).expect("write");
+        let w = pipeline::write(&s, &out, Format::Parquet, &mut |_| {}).expect("write");
         // Best of 3 of (seconds, peak MB, rows, findings), the runs
         // alternating between the audit and the floor.
         let run = |args: &[&str]| -> Vec<f64> {

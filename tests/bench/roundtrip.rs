@@ -10,7 +10,8 @@
 //!     cargo bench --bench roundtrip
 //!     LOADLOOM_BENCH_DAYS=7 cargo bench --bench roundtrip   # a shorter test period
 
-use loadloom::dataset::{self, Format};
+use loadloom::dataset::Format;
+use loadloom::pipeline;
 use solver_check::confine::{Access, Sandbox};
 use solver_check::roundtrip::{prepare, Reveal, Split};
 use std::path::Path;
@@ -41,7 +42,7 @@ fn child(test_days: f64, dir: &Path) {
     let train = (train_days * 86400.0 / s.meter.interval_s) as usize;
     let t = Instant::now();
     // As `loadloom::roundtrip::prepare` writes it: row groups cut at the split.
-    let w = dataset::write_cut(&s, dir, Format::Parquet, &mut |_| {}, &[train]).expect("write");
+    let w = pipeline::write_cut(&s, dir, Format::Parquet, &mut |_| {}, &[train]).expect("write");
     let simulate = t.elapsed().as_secs_f64();
     let split = Split {
         train: 0..train,

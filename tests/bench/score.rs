@@ -8,7 +8,8 @@
 
 use arrow_array::{ArrayRef, Float64Array, RecordBatch, TimestampMillisecondArray};
 use arrow_schema::{DataType, Field, Schema, TimeUnit};
-use loadloom::dataset::{self, Format};
+use loadloom::dataset::Format;
+use loadloom::pipeline;
 use parquet::arrow::ArrowWriter;
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -32,7 +33,7 @@ fn prepare(days: f64, dir: &Path) -> (PathBuf, PathBuf, usize, u64) {
         .clone();
     extra.id = "garage_fridge".into();
     s.appliances.push(extra);
-    let w = dataset::write(&s, dir, Format::Parquet, &mut |_| {}).expect("write");
+    let w = pipeline::write(&s, dir, Format::Parquet, &mut |_| {}).expect("write");
     // The estimate: every appliance's truth × 1.1, from the truth file.
     let ds = solver_check::Dataset::open(&w.dir).unwrap();
     let th = solver_check::stream::header(&w.dir.join("truth.parquet")).unwrap();

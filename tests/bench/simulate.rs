@@ -24,7 +24,8 @@ mod common;
 
 use loadloom::dataset::sink::{Format, Sink, Values};
 use loadloom::dataset::tables::Tables;
-use loadloom::dataset::{self, CHUNK_ROWS};
+use loadloom::dataset::CHUNK_ROWS;
+use loadloom::pipeline;
 use loadloom::scenario::Scenario;
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -39,7 +40,7 @@ fn scenario(days: f64) -> Scenario {
 }
 
 fn sim(s: &Scenario, out: &Path) {
-    dataset::write(s, out, Format::Parquet, &mut |_| {}).expect("write");
+    pipeline::write(s, out, Format::Parquet, &mut |_| {}).expect("write");
 }
 
 /// The same tables, rows and columns, from one precomputed chunk.
@@ -81,7 +82,7 @@ fn floor(s: &Scenario, out: &Path) {
     .unwrap();
     let mut chunk = kept.unwrap();
     let started = Instant::now();
-    let threads = dataset::threads().unwrap();
+    let threads = loadloom::dataset::threads().unwrap();
     std::fs::create_dir_all(out).unwrap();
     let tables = Tables::new(s);
     let tz = &s.home.timezone;

@@ -4,7 +4,8 @@
 //!
 //!     cargo bench --bench waveform
 
-use loadloom::dataset::{self, Format};
+use loadloom::dataset::Format;
+use loadloom::pipeline;
 use std::path::Path;
 use std::time::Instant;
 
@@ -18,7 +19,7 @@ fn main() {
         (0..3)
             .map(|_| {
                 let t = Instant::now();
-                dataset::write(s, &dir, Format::Parquet, &mut |_| {}).expect("write");
+                pipeline::write(s, &dir, Format::Parquet, &mut |_| {}).expect("write");
                 t.elapsed().as_secs_f64()
             })
             .fold(f64::MAX, f64::min)

@@ -6,7 +6,8 @@ mod co;
 mod mean;
 mod states;
 
-use crate::table::{read, TableError};
+use crate::stream::read_table;
+use crate::table::TableError;
 use serde_json::Value;
 use std::path::{Path, PathBuf};
 
@@ -62,7 +63,7 @@ impl Task {
             .file("train", "truth")
             .ok_or("this solver needs a training period (--train)")?;
         let keep = |n: &str| cols.iter().any(|c| c == n);
-        read(&p, Some(&keep), &[]).map_err(|e: TableError| e.to_string())
+        read_table(&p, Some(&keep), &[]).map_err(|e: TableError| e.to_string())
     }
 
     pub fn test_meters(&self, cols: &[String]) -> Result<crate::table::Table, String> {
@@ -70,7 +71,7 @@ impl Task {
             .file("test", "meters")
             .ok_or("task.json names no test meters")?;
         let keep = |n: &str| cols.iter().any(|c| c == n);
-        read(&p, Some(&keep), &[]).map_err(|e: TableError| e.to_string())
+        read_table(&p, Some(&keep), &[]).map_err(|e: TableError| e.to_string())
     }
 }
 

@@ -1,0 +1,142 @@
+//! A run from end to end: scenario → timelines → simulation → sinks →
+//! manifest. The simulation runs on the caller's thread and hands each
+//! chunk's tables to a writer thread; [`crate::dataset`] only writes what
+//! it is given.
+
+use crate::behaviour::timelines;
+use crate::dataset::tables::Tables;
+use crate::dataset::{encode_rows, folder, replace_dir, Files, Format, Layout, CHUNK_ROWS};
+use crate::scenario::Scenario;
+use crate::simulate::{simulate_with, Outcome};
+use arrow_array::RecordBatch;
+use std::io;
+use std::path::{Path, PathBuf};
+
+/// What a run wrote, for the command-line summary.
+pub struct Written {
+    /// The dataset folder.
+    pub dir: PathBuf,
+    /// Reporting intervals (rows of the meters table).
+    pub rows: u64,
+    /// Events and the per-appliance summary of the simulation.
+    pub outcome: Outcome,
+}
+
+/// Simulates `s` and writes its dataset to `out_root/<scenario name>/`.
+/// `progress` is called with the share done (0…1) after every chunk.
+pub fn write(
+    s: &Scenario,
+    out_root: &Path,
+    format: Format,
+    progress: &mut dyn FnMut(f64),
+) -> io::Result<Written> {
+    write_cut(s, out_root, format, progress, &[])
+}
+
+/// [`write`], with the meters' and truth's Parquet row groups also ending
+/// at each row of `cuts` (a round trip's train/test boundary, so that each
+/// period is made of whole row groups and is copied without re-encoding).
+pub fn write_cut(
+    s: &Scenario,
+    out_root: &Path,
+    format: Format,
+    progress: &mut dyn FnMut(f64),
+    cuts: &[usize],
+) -> io::Result<Written> {
+    std::fs::create_dir_all(out_root)?;
+    folder::sweep_stale(out_root);
+    let dest = out_root.join(&s.name);
+    // Removed on every way out but the rename below (an error, a panic).
+    let tmp = folder::PartialDir::create(out_root.join(format!(
+        ".{}.partial-{}",
+        s.name,
+        std::process::id()
+    )))?;
+    let (rows, outcome) = write_into_cut(s, tmp.path(), format, &Layout::single(), progress, cuts)?;
+    replace_dir(tmp.path(), &dest)?;
+    tmp.keep();
+    Ok(Written {
+        dir: dest,
+        rows,
+        outcome,
+    })
+}
+
+/// Simulates `s` and writes its files into `dir` as `layout` places them
+/// (creating the layout's folders). Returns the rows and the outcome.
+pub fn write_into(
+    s: &Scenario,
+    dir: &Path,
+    format: Format,
+    layout: &Layout,
+    progress: &mut dyn FnMut(f64),
+) -> io::Result<(u64, Outcome)> {
+    write_into_cut(s, dir, format, layout, progress, &[])
+}
+
+/// [`write_into`], with Parquet row groups also ending at each row of
+/// `cuts` (see [`write_cut`]).
+pub fn write_into_cut(
+    s: &Scenario,
+    dir: &Path,
+    format: Format,
+    layout: &Layout,
+    progress: &mut dyn FnMut(f64),
+    cuts: &[usize],
+) -> io::Result<(u64, Outcome)> {
+    let tables = Tables::with_form(s, layout.form);
+    let intervals = s.intervals();
+    let tl = timelines(s, s.run.steps());
+    let (files, mut meters, mut truth) = Files::open(s, &tables, dir, format, layout)?;
+    meters.cut_at(cuts);
+    truth.cut_at(cuts);
+    let mut recorder = if s.waveforms.windows.is_empty() {
+        None
+    } else {
+        Some(crate::waveform::Recorder::new(s, &files.meta)?)
+    };
+    let threads = files.threads;
+    // The simulation runs on this thread; a second one takes each chunk's
+    // tables and encodes their columns on `threads` threads meanwhile.
+    let (outcome, meter_rows) = std::thread::scope(|sc| -> io::Result<(Outcome, u64)> {
+        let (tx, rx) = std::sync::mpsc::sync_channel::<[RecordBatch; 2]>(2);
+        let writer = sc.spawn(move || encode_rows(rx, meters, truth, threads));
+        let mut meter_rows = 0u64;
+        let simulated = simulate_with(
+            s,
+            &tl,
+            intervals,
+            CHUNK_ROWS,
+            |chunk| -> io::Result<()> {
+                let batch = tables.meters_batch(chunk);
+                meter_rows += batch.num_rows() as u64;
+                tx.send([batch, tables.truth_batch(chunk)])
+                    .map_err(|_| io::Error::other("the table writer stopped"))?;
+                progress(
+                    (chunk.first_row + chunk.readings.rows() as u64) as f64 / intervals as f64,
+                );
+                Ok(())
+            },
+            recorder.as_mut(),
+        );
+        drop(tx);
+        // The writer's error first: when sending failed, it is the cause.
+        writer
+            .join()
+            .unwrap_or_else(|panic| std::panic::resume_unwind(panic))?;
+        Ok((simulated?, meter_rows))
+    })?;
+    let waves = match recorder {
+        Some(r) => r.finish(s)?,
+        None => Vec::new(),
+    };
+    files.write_events(s, &tables, &outcome.events)?;
+    let truth_rows = match layout.form {
+        crate::dataset::schema::Form::Single => intervals,
+        crate::dataset::schema::Form::Fleet => intervals * s.appliances.len() as u64,
+    };
+    let rows = [meter_rows, truth_rows, outcome.events.len() as u64];
+    let card = crate::difficulty::card(s, &tl, &outcome.summary.app_energy_j);
+    files.finish(s, &tables, &outcome, &card, rows, &waves)?;
+    Ok((intervals, outcome))
+}
