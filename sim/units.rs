@@ -158,6 +158,12 @@ pub fn parse_quantity(text: &str, kind: Kind) -> Result<f64, String> {
 /// years of 366 days.
 pub const MAX_DURATION_S: f64 = 3.0 * 366.0 * 86400.0;
 
+/// The longest duration inside an appliance (a dwell, a session, a period,
+/// `every`, a distribution's median, mean, minimum or maximum): one year of
+/// 366 days. A load that holds a state longer than that within a run of at
+/// most three years is no behaviour the data could show.
+pub const MAX_APPLIANCE_DURATION_S: f64 = 366.0 * 86400.0;
+
 /// `si` if it is zero or within [`Kind::limits`], else the reason.
 fn within_limits(text: &str, si: f64, kind: Kind) -> Result<f64, String> {
     let (lo, hi) = kind.limits();

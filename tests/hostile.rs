@@ -158,6 +158,18 @@ fn extreme_numbers_are_refused_with_their_place() {
         ),
         ("length-huge", "\"1 h\"", "\"1e30 h\"", "outside the range"),
         (
+            "dwell-over-a-year",
+            "median = \"25 min\"",
+            "median = \"367 d\"",
+            "at most 366 d",
+        ),
+        (
+            "every-over-a-year",
+            "every = \"1 min\"",
+            "every = \"400 d\"",
+            "at most 366 d",
+        ),
+        (
             "jitter-huge",
             "jitter = 0.01",
             "jitter = 1e300",
@@ -175,7 +187,8 @@ fn the_edges_of_the_ranges_are_accepted() {
         .replace("\"120 V\"", "\"50 V\"")
         .replace("step = \"1 s\"", "step = \"100 ms\"")
         .replace("pf = 0.8", "pf = 0.05")
-        .replace("\"200 A\"", "\"10000 A\"");
+        .replace("\"200 A\"", "\"10000 A\"")
+        .replace("median = \"25 min\"", "median = \"366 d\"");
     let p = d.join("home.toml");
     std::fs::write(&p, text).unwrap();
     let o = run(&["validate", "--quiet", p.to_str().unwrap()]);

@@ -3,7 +3,7 @@
 //! accepted.
 
 use super::source::{Entry, Error, Node, Sources, Val};
-use crate::units::{parse_quantity, Kind};
+use crate::units::{parse_quantity, Kind, MAX_APPLIANCE_DURATION_S};
 use std::cell::RefCell;
 
 /// Sizes of a plain number other than zero (no key needs more, and beyond
@@ -105,7 +105,8 @@ impl<'s> Ctx<'s> {
     pub fn quantity(&self, node: &Node, path: &str, kind: Kind) -> Result<f64, Error> {
         match &node.v {
             Val::Str(s) => parse_quantity(s, kind)
-                .map_err(|m| self.err(node, path, m, format!("write {}", kind.example()))),
+                .map_err(|m| self.err(node, path, m, format!("write {}", kind.example())))
+                .and_then(|v| self.within_appliance_limits(node, path, kind, v)),
             Val::Int(_) | Val::Float(_) if kind == Kind::Fraction => self.number(node, path),
             Val::Int(_) | Val::Float(_) => Err(self.err(
                 node,
@@ -120,6 +121,33 @@ impl<'s> Ctx<'s> {
                 format!("write {}", kind.example()),
             )),
         }
+    }
+
+    /// An appliance's durations (a dwell, a session, a period, `every`, a
+    /// distribution's parameters) are at most [`MAX_APPLIANCE_DURATION_S`];
+    /// the run itself may be longer.
+    fn within_appliance_limits(
+        &self,
+        node: &Node,
+        path: &str,
+        kind: Kind,
+        v: f64,
+    ) -> Result<f64, Error> {
+        if kind == Kind::Duration
+            && path.starts_with("appliance")
+            && v.abs() > MAX_APPLIANCE_DURATION_S
+        {
+            return Err(self.err(
+                node,
+                path,
+                format!(
+                    "{} is longer than an appliance's durations may be (at most 366 d)",
+                    crate::units::human_duration(v)
+                ),
+                "a dwell, session or period of a load is at most a year; write e.g. \"7 d\"",
+            ));
+        }
+        Ok(v)
     }
 
     /// A quantity that must be strictly positive.
