@@ -8,6 +8,7 @@
 
 pub mod audit;
 pub mod behaviour;
+pub mod crosshome;
 pub mod dataset;
 pub mod declaration;
 pub mod difficulty;

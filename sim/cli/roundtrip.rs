@@ -48,6 +48,25 @@ pub struct Args {
     /// Length of the test period (meters only; scored).
     #[arg(long, default_value = "7d")]
     test: String,
+    /// The previous spelling of --train (a number of days or a duration);
+    /// accepted in this release only.
+    #[arg(long, hide = true, conflicts_with = "train")]
+    train_days: Option<String>,
+    /// The previous spelling of --test; accepted in this release only.
+    #[arg(long, hide = true, conflicts_with = "test")]
+    test_days: Option<String>,
+    /// Unseen homes: a population file (TOML). The solver trains on its
+    /// first --train-homes homes (meters and truth, --train each) and is
+    /// scored on the next --test-homes (meters only, --test each), per home
+    /// and pooled.
+    #[arg(long, value_name = "POPULATION", conflicts_with_all = ["scenario", "dataset", "suite"])]
+    fleet: Option<PathBuf>,
+    /// With --fleet: how many homes train the solver (default 4).
+    #[arg(long, requires = "fleet")]
+    train_homes: Option<u64>,
+    /// With --fleet: how many homes it is scored on (default 2).
+    #[arg(long, requires = "fleet")]
+    test_homes: Option<u64>,
     /// How much of the appliances' description the task reveals.
     #[arg(long, value_enum, default_value = "wiring")]
     reveal: RevealArg,
@@ -83,7 +102,11 @@ pub struct Args {
 }
 
 /// Checks the options, then runs the round trip asked for.
-pub fn main(a: Args) -> ExitCode {
+pub fn main(mut a: Args) -> ExitCode {
+    respell(&mut a);
+    if a.fleet.is_none() && (a.train_homes.is_some() || a.test_homes.is_some()) {
+        return bad("error: --train-homes and --test-homes go with --fleet POPULATION");
+    }
     // Orphans of a solver (even one that called setsid) are handed to this
     // process, so none outlives the round trip.
     solver_check::child::become_subreaper();
@@ -91,6 +114,9 @@ pub fn main(a: Args) -> ExitCode {
         Ok(s) => s,
         Err(c) => return c,
     };
+    if a.fleet.is_some() {
+        return crosshome(&a, &solvers);
+    }
     let scenarios = match scenarios(&a) {
         Ok(s) => s,
         Err(c) => return c,
@@ -324,5 +350,66 @@ fn single_report(o: &Outcome, form: Form) -> ExitCode {
             ExitCode::SUCCESS
         }
         Err(f) => failed(failure_message(o, f)),
+    }
+}
+
+/// `--train-days` and `--test-days` (the previous spelling) become `--train`
+/// and `--test`, with a deprecation line; a bare number is days.
+fn respell(a: &mut Args) {
+    for (old, new, value, slot) in [
+        ("--train-days", "--train", a.train_days.take(), &mut a.train),
+        ("--test-days", "--test", a.test_days.take(), &mut a.test),
+    ] {
+        if let Some(v) = value {
+            eprintln!("warning: {old} is spelled {new} now (a duration such as 14d); {old} is accepted in this release only");
+            *slot = if v.trim().parse::<f64>().is_ok() {
+                format!("{}d", v.trim())
+            } else {
+                v
+            };
+        }
+    }
+}
+
+/// Unseen homes: train on some homes of a fleet, score on others.
+fn crosshome(a: &Args, solvers: &[Solver]) -> ExitCode {
+    if solvers.len() != 1 {
+        return bad("error: --fleet runs one --solver");
+    }
+    let Some(path) = &a.fleet else {
+        return bad("error: --fleet needs a population file");
+    };
+    let pop = match loadloom::fleet::load(path) {
+        Ok(p) => p,
+        Err(e) => return bad(e),
+    };
+    let plan = match plan(a, &[], solvers[0].clone()) {
+        Ok(p) => p,
+        Err(m) => return bad(format!("error: {m}")),
+    };
+    let stem = path
+        .file_stem()
+        .map_or("fleet".into(), |n| n.to_string_lossy().to_string());
+    let work = a.out.join(format!("{stem}-crosshome"));
+    let bar = if a.quiet || a.json {
+        Progress::hidden()
+    } else {
+        Progress::counter("homes")
+    };
+    let homes = (a.train_homes.unwrap_or(4), a.test_homes.unwrap_or(2));
+    let result =
+        loadloom::crosshome::run(&pop, homes, &work, &plan, &|done, all| bar.count(done, all));
+    bar.finish();
+    match result {
+        Ok(o) => {
+            print(&o, Form::from_flags(a.json, a.markdown));
+            if o.all_scored() {
+                ExitCode::SUCCESS
+            } else {
+                ExitCode::from(super::FAILED)
+            }
+        }
+        Err(loadloom::crosshome::Stop::Bad(m)) => bad(m),
+        Err(loadloom::crosshome::Stop::Failed(m)) => failed(m),
     }
 }

@@ -13,13 +13,15 @@
 //! - [`compare`]: two estimates, with a paired bootstrap over days;
 //! - [`plot`]: a picture of a dataset's conductors and appliances (SVG);
 //! - [`roundtrip`]: task folder, solver run, score; [`solvers`]: the built-in ones;
-//!   [`confine`]: Landlock rules for a solver; [`child`]: running it and stopping what it leaves.
+//!   [`confine`]: Landlock rules for a solver; [`child`]: running it and stopping what it leaves;
+//!   [`crosshome`]: training on some homes of a fleet, scoring on others.
 
 pub mod align;
 pub mod audit;
 pub mod child;
 pub mod compare;
 pub mod confine;
+pub mod crosshome;
 pub mod dataset;
 pub mod estimate;
 pub mod leaderboard;

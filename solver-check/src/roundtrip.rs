@@ -210,7 +210,8 @@ pub struct Outcome {
     pub result: Result<Report, Failure>,
 }
 
-fn iso(ms: i64, tz: &str) -> String {
+/// An instant as local ISO-8601 with its UTC offset.
+pub(crate) fn iso(ms: i64, tz: &str) -> String {
     let tz = jiff::tz::TimeZone::get(tz).unwrap_or(jiff::tz::TimeZone::UTC);
     jiff::Timestamp::from_millisecond(ms)
         .map(|t| t.to_zoned(tz).strftime("%Y-%m-%dT%H:%M:%S%:z").to_string())
@@ -237,7 +238,8 @@ pub struct Prepared {
     pub confine: bool,
 }
 
-fn appliances_revealed(m: &Value, reveal: Reveal) -> Vec<Value> {
+/// The manifest's appliances, described as far as `reveal` allows.
+pub(crate) fn appliances_revealed(m: &Value, reveal: Reveal) -> Vec<Value> {
     m["appliances"]
         .as_array()
         .map(|list| {
@@ -380,7 +382,7 @@ pub fn write_task(
 
 /// Writes the manifest of the scored truth (rows `test` of the dataset's
 /// truth, a dataset of their own): their time, rows and sha256.
-fn write_test_truth(
+pub(crate) fn write_test_truth(
     ds: &Dataset,
     dir: &Path,
     test: &Range<usize>,
@@ -450,7 +452,8 @@ pub fn prepare(
     })
 }
 
-fn tail(path: &Path, lines: usize) -> String {
+/// The last `lines` lines of a log, indented.
+pub(crate) fn tail(path: &Path, lines: usize) -> String {
     let text = std::fs::read_to_string(path).unwrap_or_default();
     let all: Vec<&str> = text.lines().collect();
     all[all.len().saturating_sub(lines)..]
@@ -499,23 +502,19 @@ pub fn run_solver(
             (r, line, 0)
         }
         Solver::Command(argv) => {
-            let mut access = Access {
-                read: vec![p.task_dir.clone()],
-                write: vec![out_dir.clone()],
+            let run = Run {
+                task_dir: &p.task_dir,
+                out_dir: &out_dir,
+                estimate: &estimate,
+                log: &log,
+                protect: &[&p.work, &p.dataset],
+                confine: p.confine,
             };
-            access.read.extend(program_paths(argv));
-            access.read.extend(extra_read.iter().cloned());
-            let sandbox = Sandbox::new(&access, &[&p.work, &p.dataset], p.confine);
-            let r = run_child(argv, p, &out_dir, &estimate, &log, &sandbox, timeout);
-            let (r, left) = match r {
-                Ok(left) => (Ok(()), left),
-                Err((f, left)) => (Err(f), left),
-            };
-            (r, sandbox.status.clone(), left)
+            run_command(argv, &run, timeout, extra_read)
         }
     };
     let seconds = started.elapsed().as_secs_f64();
-    let result = ran.and_then(|_| score_estimate(p, &estimate, &log));
+    let result = ran.and_then(|_| score_checked(&p.truth_dir, &p.truth_sha, &estimate, &log));
     Ok(Outcome {
         task_dir: p.task_dir.clone(),
         truth_dir: p.truth_dir.clone(),
@@ -529,11 +528,52 @@ pub fn run_solver(
     })
 }
 
-/// Scores the estimate against the scored truth, once both are checked:
-/// the estimate a plain file of its own (not a link to anything), the
-/// truth unchanged since it was written (its manifest's sha256 the one
-/// kept in memory, the file's the manifest's).
-fn score_estimate(p: &Prepared, estimate: &Path, log: &Path) -> Result<Report, Failure> {
+/// Where an external solver runs: the folder it reads, the one it writes,
+/// its estimate (a file, or a folder of them), its log, and the folders
+/// holding truth it must never reach.
+pub(crate) struct Run<'a> {
+    pub task_dir: &'a Path,
+    pub out_dir: &'a Path,
+    pub estimate: &'a Path,
+    pub log: &'a Path,
+    pub protect: &'a [&'a Path],
+    pub confine: bool,
+}
+
+/// Runs an external solver confined (as far as the system allows) to its
+/// task folder, its program, `extra_read` and `run.out_dir`. Returns how it
+/// ended, the confinement line and how many processes it left behind.
+pub(crate) fn run_command(
+    argv: &[String],
+    run: &Run,
+    timeout: Duration,
+    extra_read: &[PathBuf],
+) -> (Result<(), Failure>, String, usize) {
+    let mut access = Access {
+        read: vec![run.task_dir.to_path_buf()],
+        write: vec![run.out_dir.to_path_buf()],
+    };
+    access.read.extend(program_paths(argv));
+    access.read.extend(extra_read.iter().cloned());
+    let sandbox = Sandbox::new(&access, run.protect, run.confine);
+    let (r, left) = match run_child(argv, run, &sandbox, timeout) {
+        Ok(left) => (Ok(()), left),
+        Err((f, left)) => (Err(f), left),
+    };
+    (r, sandbox.status.clone(), left)
+}
+
+/// Scores the estimate against the scored truth in `truth_dir`, once both
+/// are checked: the estimate a plain file of its own (not a link to
+/// anything), the truth unchanged since it was written (its manifest's
+/// sha256 `truth_sha`, the one kept in memory, and the file's the
+/// manifest's).
+pub(crate) fn score_checked(
+    truth_dir: &Path,
+    truth_sha: &str,
+    estimate: &Path,
+    log: &Path,
+) -> Result<Report, Failure> {
     let meta = match std::fs::symlink_metadata(estimate) {
         Err(_) => {
             return Err(Failure::NoEstimate {
@@ -549,7 +589,7 @@ fn score_estimate(p: &Prepared, estimate: &Path, log: &Path) -> Result<Report, F
     if !meta.file_type().is_file() || links != 1 {
         return Err(Failure::Malformed(format!("error: the estimate is a link, not a file of its own\n  --> {}\n  = help: write the estimate itself to the path given", estimate.display())));
     }
-    let mpath = p.truth_dir.join("manifest.json");
+    let mpath = truth_dir.join("manifest.json");
     let recorded = std::fs::read_to_string(&mpath)
         .ok()
         .and_then(|t| serde_json::from_str::<Value>(&t).ok())
@@ -558,7 +598,7 @@ fn score_estimate(p: &Prepared, estimate: &Path, log: &Path) -> Result<Report, F
                 .as_str()
                 .map(str::to_string)
         });
-    if recorded.as_deref() != Some(p.truth_sha.as_str()) {
+    if recorded.as_deref() != Some(truth_sha) {
         return Err(Failure::Truth(format!(
             "  --> {}: its sha256 is not the one written",
             mpath.display()
@@ -568,7 +608,7 @@ fn score_estimate(p: &Prepared, estimate: &Path, log: &Path) -> Result<Report, F
         partial: false,
         thresholds: vec![],
     };
-    score(&p.truth_dir, estimate, &opts).map_err(|e| match e {
+    score(truth_dir, estimate, &opts).map_err(|e| match e {
         ScoreError::Dataset(d) => Failure::Truth(d.to_string()),
         ScoreError::Table(t) => Failure::Malformed(t.to_string()),
     })
@@ -596,18 +636,11 @@ pub fn substitute(arg: &str, values: &[(&str, &str)]) -> String {
 
 type ChildResult = Result<usize, (Failure, usize)>;
 
-fn run_child(
-    argv: &[String],
-    p: &Prepared,
-    out_dir: &Path,
-    estimate: &Path,
-    log: &Path,
-    sandbox: &Sandbox,
-    timeout: Duration,
-) -> ChildResult {
-    let scratch = out_dir.join("scratch");
+fn run_child(argv: &[String], run: &Run, sandbox: &Sandbox, timeout: Duration) -> ChildResult {
+    let (estimate, log) = (run.estimate, run.log);
+    let scratch = run.out_dir.join("scratch");
     let (t, e, s) = (
-        p.task_dir.display().to_string(),
+        run.task_dir.display().to_string(),
         estimate.display().to_string(),
         scratch.display().to_string(),
     );
@@ -627,7 +660,7 @@ fn run_child(
     std::io::Write::write_all(&mut f, head.as_bytes())
         .map_err(|e| (Failure::Spawn(e.to_string()), 0))?;
     let env = [
-        ("LOADLOOM_TASK", p.task_dir.as_path()),
+        ("LOADLOOM_TASK", run.task_dir),
         ("LOADLOOM_ESTIMATE", estimate),
         ("LOADLOOM_SCRATCH", scratch.as_path()),
         ("TMPDIR", scratch.as_path()),

@@ -18,6 +18,9 @@ pub struct Task {
     pub ids: Vec<String>,
     pub timezone: String,
     pub lines: Vec<String>,
+    /// Training truths of other homes (a cross-home task), pooled by
+    /// [`Task::train_truth`]; empty for a task of one home.
+    pub pool: Vec<PathBuf>,
 }
 
 impl Task {
@@ -25,6 +28,21 @@ impl Task {
         let text = std::fs::read_to_string(dir.join("task.json"))
             .map_err(|e| format!("cannot read {}: {e}", dir.join("task.json").display()))?;
         let json: Value = serde_json::from_str(&text).map_err(|e| format!("task.json: {e}"))?;
+        Ok(Task::of(dir, json, Vec::new()))
+    }
+
+    /// One test home of a cross-home task (`loadloom-fleet-task/1`): its
+    /// entry of `test` describes the home and names its meters; `pool` are
+    /// the training homes' truth files.
+    pub fn for_home(dir: &Path, home: &Value, pool: Vec<PathBuf>) -> Task {
+        let json = serde_json::json!({
+            "timezone": home["timezone"], "supply": home["supply"],
+            "appliances": home["appliances"], "test": { "meters": home["meters"] },
+        });
+        Task::of(dir, json, pool)
+    }
+
+    fn of(dir: &Path, json: Value, pool: Vec<PathBuf>) -> Task {
         let ids = json["appliances"]
             .as_array()
             .map(|a| {
@@ -44,13 +62,14 @@ impl Task {
                     .collect()
             })
             .unwrap_or_default();
-        Ok(Task {
+        Task {
             dir: dir.to_path_buf(),
             json,
             ids,
             timezone,
             lines,
-        })
+            pool,
+        }
     }
 
     fn file(&self, part: &str, table: &str) -> Option<PathBuf> {
@@ -59,11 +78,63 @@ impl Task {
 
     /// Training truth columns (whole), or an error if the task has no training period.
     pub fn train_truth(&self, cols: &[String]) -> Result<crate::table::Table, String> {
+        if !self.pool.is_empty() {
+            return self.pooled_truth(cols);
+        }
         let p = self
             .file("train", "truth")
             .ok_or("this solver needs a training period (--train)")?;
         let keep = |n: &str| cols.iter().any(|c| c == n);
         read_table(&p, Some(&keep), &[]).map_err(|e: TableError| e.to_string())
+    }
+
+    /// The training truth of a cross-home task: for each appliance id of
+    /// this home, the rows of every training home that has it, one after
+    /// another (its per-line columns with them, 0 where that home's
+    /// appliance draws nothing on the line). An id no training home has
+    /// gets one row of 0 W: never seen, so estimated off.
+    fn pooled_truth(&self, cols: &[String]) -> Result<crate::table::Table, String> {
+        let tables = self
+            .pool
+            .iter()
+            .map(|p| {
+                let keep = |n: &str| cols.iter().any(|c| c == n);
+                read_table(p, Some(&keep), &[]).map_err(|e: TableError| e.to_string())
+            })
+            .collect::<Result<Vec<_>, _>>()?;
+        let mut columns = Vec::new();
+        for id in &self.ids {
+            let main = format!("{id}_p_w");
+            let mut own: Vec<String> = vec![main.clone()];
+            own.extend(self.lines.iter().map(|l| format!("{id}_{l}_p_w")));
+            own.retain(|c| cols.contains(c));
+            let with: Vec<&crate::table::Table> = tables.iter().filter(|t| t.has(&main)).collect();
+            for c in &own {
+                let mut v: Vec<f64> = Vec::new();
+                let mut any = false;
+                for t in &with {
+                    match t.num(c) {
+                        Some(x) => {
+                            v.extend_from_slice(x);
+                            any = true;
+                        }
+                        None => v.extend(std::iter::repeat_n(0.0, t.time_ms.len())),
+                    }
+                }
+                if with.is_empty() && *c == main {
+                    (v, any) = (vec![0.0], true);
+                }
+                if any {
+                    columns.push((c.clone(), crate::table::Column::Num(v)));
+                }
+            }
+        }
+        Ok(crate::table::Table {
+            file: self.dir.join("train"),
+            time_ms: Vec::new(),
+            time_zone: None,
+            columns,
+        })
     }
 
     pub fn test_meters(&self, cols: &[String]) -> Result<crate::table::Table, String> {
@@ -88,11 +159,15 @@ pub const OLD_NAMES: [(&str, &str); 3] = [
 
 /// Runs built-in solver `name` on the task folder, writing `estimate`.
 pub fn run(name: &str, task_dir: &Path, estimate: &Path) -> Result<(), String> {
-    let task = Task::open(task_dir)?;
+    run_task(name, &Task::open(task_dir)?, estimate)
+}
+
+/// Runs built-in solver `name` on `task`, writing `estimate`.
+pub fn run_task(name: &str, task: &Task, estimate: &Path) -> Result<(), String> {
     let (time, cols) = match name {
-        "training-mean" => mean::solve(&task)?,
-        "combinatorial" => co::solve(&task, false)?,
-        "combinatorial-per-line" => co::solve(&task, true)?,
+        "training-mean" => mean::solve(task)?,
+        "combinatorial" => co::solve(task, false)?,
+        "combinatorial-per-line" => co::solve(task, true)?,
         _ => {
             return Err(format!(
                 "no built-in solver \"{name}\"; built in: {}",
