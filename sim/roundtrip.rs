@@ -196,6 +196,7 @@ pub fn add_background(s: &mut Scenario, share: f64) {
             id: format!("background_l{}", x + 1),
             label: "unlisted background loads".into(),
             template: None,
+            end_use: "other".into(),
             wiring,
             behaviour: Behaviour::Modulating {
                 min: 0.5,

@@ -2,12 +2,13 @@
 //! per local month).
 
 use super::bad;
-use solver_check::plot::{parse_size, plot, plot_monthly, PlotOptions};
+use solver_check::plot::{parse_size, plot, plot_monthly, Parts, PlotOptions};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 /// Draw a dataset: per conductor its measured power and each appliance's
-/// share; or, with --monthly, its energy per local month by appliance.
+/// share; or, with --monthly, its energy per local month by appliance or
+/// end use.
 #[derive(clap::Args)]
 pub struct Args {
     /// The dataset folder.
@@ -22,6 +23,10 @@ pub struct Args {
     /// (kWh, from the truth), the whole dataset.
     #[arg(long, conflicts_with_all = ["from", "to"])]
     monthly: bool,
+    /// With --monthly: stack each month by appliance, or by end use (the
+    /// appliances' `end_use`, summed). Default: appliance.
+    #[arg(long, requires = "monthly", value_parser = ["appliance", "end-use"])]
+    by: Option<String>,
     /// Output file (.svg or .png, by its extension).
     #[arg(long, default_value = "plot.svg", value_name = "FILE.svg|FILE.png")]
     out: PathBuf,
@@ -37,7 +42,11 @@ pub fn main(a: Args) -> ExitCode {
         Err(m) => return bad(m),
     };
     if a.monthly {
-        return monthly(&a.dataset, &a.out, (w, h));
+        let parts = match a.by.as_deref() {
+            Some("end-use") => Parts::EndUse,
+            _ => Parts::Appliance,
+        };
+        return monthly(&a.dataset, &a.out, (w, h), parts);
     }
     let opts = PlotOptions {
         from: a.from,
@@ -63,11 +72,15 @@ pub fn main(a: Args) -> ExitCode {
 }
 
 /// `plot --monthly`: the picture, then one line saying what it shows.
-fn monthly(dataset: &Path, out: &Path, (w, h): (u32, u32)) -> ExitCode {
-    match plot_monthly(dataset, out, w, h) {
+fn monthly(dataset: &Path, out: &Path, (w, h): (u32, u32), parts: Parts) -> ExitCode {
+    let what = match parts {
+        Parts::Appliance => "appliances",
+        Parts::EndUse => "end uses",
+    };
+    match plot_monthly(dataset, out, (w, h), parts) {
         Ok(m) => {
             println!(
-                "wrote {} ({}x{} px, {} months from {} to {}, {} appliances{})",
+                "wrote {} ({}x{} px, {} months from {} to {}, {} {what}{})",
                 out.display(),
                 w,
                 h,

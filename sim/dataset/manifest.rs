@@ -53,6 +53,7 @@ fn appliance_json(s: &Scenario, a: &Appliance, o: &Outcome, k: usize) -> Value {
         "id": a.id,
         "label": a.label,
         "template": a.template,
+        "end_use": a.end_use,
         "behaviour": a.behaviour.name(),
         "wiring": a.wiring.name(),
         "connections": a.connections().iter().map(|c| c.name()).collect::<Vec<_>>(),

@@ -1614,6 +1614,7 @@ fn decode_appliance(
     let path = format!("appliance[{id}]");
     let t = Table::rebase(t, path.clone());
     let label = t.string("label")?.unwrap_or(&id).to_string();
+    let end_use = decode_end_use(ctx, &t)?;
     let wnode = t.req(
         "wiring",
         "where it is connected, e.g. \"L1-N\", \"L1-L2\" or \"3P\"",
@@ -1906,6 +1907,7 @@ fn decode_appliance(
         id,
         label,
         template,
+        end_use,
         wiring,
         behaviour,
         states,
@@ -1946,6 +1948,27 @@ fn decode_alternatives(ctx: &Ctx, t: &Table) -> Result<Vec<WiringKind>, Error> {
         }
     }
     Ok(out)
+}
+
+/// `end_use`: one of [`crate::scenario::model::END_USES`], "other" when absent.
+fn decode_end_use(ctx: &Ctx, t: &Table) -> Result<String, Error> {
+    let uses = crate::scenario::model::END_USES;
+    match t.opt("end_use") {
+        None => Ok("other".into()),
+        Some(n) => {
+            let v = ctx.string(n, &t.path_of("end_use"))?;
+            if uses.contains(&v) {
+                Ok(v.to_string())
+            } else {
+                Err(ctx.err(
+                    n,
+                    &t.path_of("end_use"),
+                    format!("unknown end use \"{v}\""),
+                    format!("write one of: {}", uses.join(", ")),
+                ))
+            }
+        }
+    }
 }
 
 fn scale_times(b: &mut Behaviour, k: f64) {

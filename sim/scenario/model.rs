@@ -434,6 +434,9 @@ pub struct Appliance {
     pub id: String,
     pub label: String,
     pub template: Option<String>,
+    /// What the energy is for, one of [`END_USES`] (for reports that sum
+    /// appliances by use).
+    pub end_use: String,
     pub wiring: Connection,
     pub behaviour: Behaviour,
     pub states: Vec<State>,
@@ -472,6 +475,20 @@ impl WiringKind {
         WiringKind::ALL.iter().find(|(_, k)| *k == self).unwrap().0
     }
 }
+
+/// The end uses an appliance may name: the usual residential categories,
+/// a few merged (common practice, no source). "other" is the default.
+pub const END_USES: &[&str] = &[
+    "heating and cooling",
+    "water heating",
+    "refrigeration",
+    "cooking",
+    "laundry and dishes",
+    "lighting",
+    "electronics",
+    "ev charging",
+    "other",
+];
 
 impl Appliance {
     /// Every connection any of its draws uses, in first-seen order.

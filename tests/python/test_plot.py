@@ -201,3 +201,37 @@ def test_help_texts_name_both_picture_formats():
     for cmd in (["plot", "--help"], ["score", "--help"]):
         out = loadloom(*cmd).stdout
         assert ".svg" in out and ".png" in out, cmd
+
+
+def test_monthly_energy_by_end_use_sums_the_appliances_of_each_use(tmp_path):
+    # The split-phase demo across a month's end: each end use's part is the
+    # sum, by pandas, of the truth of the appliances the manifest gives that use.
+    src = tmp_path / "house.toml"
+    src.write_text((ROOT / "scenarios" / "split-phase-house.toml").read_text()
+                   .replace('step = "1 s"', 'step = "10 s"').replace('interval = "1 s"', 'interval = "1 min"'))
+    loadloom("run", src, "--out", tmp_path / "out", "--length", "30d", "--seed", "5")
+    d = tmp_path / "out" / "house"
+    m = json.loads((d / "manifest.json").read_text())
+    use = {a["id"]: a["end_use"] for a in m["appliances"]}
+    assert set(use.values()) >= {"heating and cooling", "water heating", "refrigeration", "cooking", "lighting", "ev charging"}
+    out = tmp_path / "u.svg"
+    p = loadloom("plot", d, "--monthly", "--by", "end-use", "--out", out)
+    assert "end uses" in p.stdout
+    truth = pq.read_table(d / "truth.parquet").to_pandas()
+    month = truth["time"].dt.tz_convert(m["time"]["timezone"]).dt.strftime("%Y-%m")
+    kwh = truth[[f"{i}_p_w" for i in use]].groupby(month).sum() * m["time"]["interval_s"] / 3.6e6
+    want = kwh.T.groupby([use[c[: -len("_p_w")]] for c in kwh.columns]).sum().T
+    parts = [r for r in ET.parse(out).getroot().iter("{http://www.w3.org/2000/svg}rect") if r.get("class") == "part"]
+    assert len(parts) == sum((want.loc[mo] > 0).sum() for mo in want.index)
+    for r in parts:
+        assert float(r.get("data-kwh")) == pytest.approx(want.loc[r.get("data-month"), r.get("data-end-use")], rel=1e-6)
+    bad = loadloom("plot", d, "--by", "end-use", "--out", out, check=False)
+    assert bad.returncode == 2 and "--monthly" in bad.stderr
+
+
+def test_an_unknown_end_use_is_refused_with_its_place(tmp_path):
+    src = tmp_path / "house.toml"
+    text = (ROOT / "scenarios" / "split-phase-house.toml").read_text()
+    src.write_text(text.replace('end_use = "heating and cooling"', 'end_use = "comfort"', 1))
+    r = loadloom("validate", src, check=False)
+    assert r.returncode == 2 and "appliance[air_handler].end_use" in r.stderr and "laundry and dishes" in r.stderr, r.stderr

@@ -9,7 +9,7 @@ pub mod palette;
 mod scores;
 
 pub use day::plot;
-pub use monthly::{plot_monthly, Monthly};
+pub use monthly::{plot_monthly, Monthly, Parts};
 pub use scores::plot_scores;
 use std::fmt::Write as _;
 use std::path::Path;

@@ -1,6 +1,7 @@
 //! `loadloom plot --monthly`: the energy of each local calendar month as a
-//! bar, stacked by appliance from the truth (the largest consumers each in a
-//! fill of their own, the rest together), for year reports.
+//! bar, stacked by appliance or by end use from the truth (the largest
+//! consumers each in a fill of their own, the rest together), for year
+//! reports.
 
 use super::axis::{self, Frame};
 use super::palette::{self, FRAME, INK, PANEL_FILL};
@@ -14,10 +15,65 @@ use std::path::Path;
 pub struct Monthly {
     /// The local months, `YYYY-MM`.
     pub months: Vec<String>,
-    /// The appliances with a bar part of their own, largest first.
+    /// The appliances (or end uses) with a bar part of their own, largest first.
     pub shown: Vec<String>,
-    /// How many appliances were summed as "others".
+    /// How many were summed as "others".
     pub others: usize,
+}
+
+/// What a month's bar is stacked by.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Parts {
+    /// One part per appliance.
+    Appliance,
+    /// One part per end use (the manifest's `end_use` of each appliance;
+    /// "other" where a dataset has none): the appliances of a use summed.
+    EndUse,
+}
+
+impl Parts {
+    /// The SVG attribute naming a bar part, and the legend's title.
+    fn names(self) -> (&'static str, &'static str) {
+        match self {
+            Parts::Appliance => ("data-appliance", "appliances"),
+            Parts::EndUse => ("data-end-use", "end uses"),
+        }
+    }
+}
+
+/// The end uses of the dataset's appliances, in first-seen order, and per
+/// month their kWh summed from the appliances' (`kwh` columns in the
+/// order of the manifest's appliances).
+fn by_end_use(ds: &Dataset, kwh: &[Vec<f64>]) -> (Vec<String>, Vec<Vec<f64>>) {
+    let uses: Vec<String> = (0..ds.appliances.len())
+        .map(|k| {
+            ds.manifest["appliances"][k]["end_use"]
+                .as_str()
+                .unwrap_or("other")
+                .to_string()
+        })
+        .collect();
+    let mut names: Vec<String> = Vec::new();
+    for u in &uses {
+        if !names.contains(u) {
+            names.push(u.clone());
+        }
+    }
+    let sums = kwh
+        .iter()
+        .map(|month| {
+            names
+                .iter()
+                .map(|n| {
+                    (0..uses.len())
+                        .filter(|&k| uses[k] == *n)
+                        .map(|k| month[k])
+                        .sum()
+                })
+                .collect()
+        })
+        .collect();
+    (names, sums)
 }
 
 /// Appliances drawn on their own; the rest share one grey part.
@@ -144,17 +200,17 @@ fn parts(
 /// Stacks one month's parts upward from zero.
 fn bar(
     svg: &mut String,
-    x: f64,
-    bw: f64,
+    (x, bw): (f64, f64),
     yp: &dyn Fn(f64) -> f64,
     parts: &[(String, String, f64)],
     month: &str,
+    attr: &str,
 ) {
     let mut below = 0.0;
     for (id, fill, e) in parts.iter().filter(|p| p.2 > 0.0) {
         let _ = write!(
             svg,
-            r#"<rect class="part" data-month="{month}" data-appliance="{}" data-kwh="{e:.6}" x="{x:.1}" y="{:.1}" width="{bw:.1}" height="{:.1}" fill="{fill}"/>"#,
+            r#"<rect class="part" data-month="{month}" {attr}="{}" data-kwh="{e:.6}" x="{x:.1}" y="{:.1}" width="{bw:.1}" height="{:.1}" fill="{fill}"/>"#,
             escape(id),
             yp(below + e),
             yp(below) - yp(below + e),
@@ -189,18 +245,13 @@ fn month_bars(
     ms: &[Month],
     parts: &[Vec<(String, String, f64)>],
     yp: &dyn Fn(f64) -> f64,
+    attr: &str,
 ) {
     let slot = f.w / ms.len() as f64;
     for (m, month) in ms.iter().enumerate() {
         let x = f.x + m as f64 * slot;
-        bar(
-            svg,
-            x + slot * 0.15,
-            slot * 0.7,
-            yp,
-            &parts[m],
-            &month.label,
-        );
+        let span = (x + slot * 0.15, slot * 0.7);
+        bar(svg, span, yp, &parts[m], &month.label, attr);
         let days = if (month.days - month.days.round()).abs() < 1e-6 {
             format!("{:.0} d", month.days)
         } else {
@@ -218,12 +269,12 @@ fn month_bars(
     }
 }
 
-/// Draws the monthly energy of `dataset` to `out` (.svg or .png).
+/// Draws the monthly energy of `dataset` to `out` (.svg or .png), stacked by `by`.
 pub fn plot_monthly(
     dataset: &Path,
     out: &Path,
-    width: u32,
-    height: u32,
+    (width, height): (u32, u32),
+    by: Parts,
 ) -> Result<Monthly, String> {
     let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
     let tz = jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| e.to_string())?;
@@ -232,6 +283,11 @@ pub fn plot_monthly(
     let ms = months(&tz, t0, t1)?;
     let ids: Vec<String> = ds.appliances.iter().map(|a| a.id.clone()).collect();
     let kwh = energies(&ds, &ms, &ids)?;
+    let (ids, kwh) = match by {
+        Parts::Appliance => (ids, kwh),
+        Parts::EndUse => by_end_use(&ds, &kwh),
+    };
+    let (attr, legend_title) = by.names();
     let (shown, rest) = split_parts(&kwh, ids.len());
     let parts = parts(&ids, &kwh, &shown, &rest);
     let (w, h) = (width as f64, height as f64);
@@ -259,20 +315,25 @@ pub fn plot_monthly(
         .unwrap_or("");
     let _ = write!(
         svg,
-        r#"<text x="{}" y="24" font-size="14" font-weight="bold" fill="{INK}">{}: energy per local month</text><rect x="{}" y="{}" width="{}" height="{}" fill="{PANEL_FILL}" stroke="{FRAME}"/>"#,
+        r#"<text x="{}" y="24" font-size="14" font-weight="bold" fill="{INK}">{}: energy per local month{}</text><rect x="{}" y="{}" width="{}" height="{}" fill="{PANEL_FILL}" stroke="{FRAME}"/>"#,
         f.x,
         escape(if label.is_empty() {
             &ds.timezone
         } else {
             label
         }),
+        if by == Parts::EndUse {
+            " by end use"
+        } else {
+            ""
+        },
         f.x,
         f.y,
         f.w,
         f.h
     );
     energy_axis(&mut svg, f, hi, step);
-    month_bars(&mut svg, f, &ms, &parts, &yp);
+    month_bars(&mut svg, f, &ms, &parts, &yp, attr);
     axis::y_title(&mut svg, f, "energy (kWh)", 55.0);
     let below = Frame { h: f.h + 15.0, ..f };
     axis::x_title(
@@ -283,7 +344,7 @@ pub fn plot_monthly(
             ds.timezone
         ),
     );
-    legend(&mut svg, w - 215.0, f.y, &parts[0]);
+    legend(&mut svg, (w - 215.0, f.y), legend_title, &parts[0]);
     svg += "</svg>\n";
     write_picture(&svg, out)?;
     Ok(Monthly {
@@ -294,10 +355,10 @@ pub fn plot_monthly(
 }
 
 /// The legend: top part of the stack first, as the bars read.
-fn legend(svg: &mut String, lx: f64, top: f64, parts: &[(String, String, f64)]) {
+fn legend(svg: &mut String, (lx, top): (f64, f64), title: &str, parts: &[(String, String, f64)]) {
     let _ = write!(
         svg,
-        r#"<g class="legend-box"><text x="{lx}" y="{}" font-weight="bold" fill="{INK}">appliances</text>"#,
+        r#"<g class="legend-box"><text x="{lx}" y="{}" font-weight="bold" fill="{INK}">{title}</text>"#,
         top + 4.0
     );
     for (i, (id, fill, _)) in parts.iter().rev().enumerate() {
