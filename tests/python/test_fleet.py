@@ -89,6 +89,21 @@ def test_killed_and_resumed_equals_uninterrupted(tmp_path):
     same_tree(tmp_path / "whole", out)
 
 
+def test_a_damaged_table_file_makes_its_home_be_redone(tmp_path):
+    """Resume checks every table file of a home against its manifest's
+    sha256: one changed byte in a home's truth file, and only that home is
+    made again, with the bytes of an uninterrupted run."""
+    pop = short(tmp_path)
+    out = tmp_path / "f"
+    loadloom("fleet", pop, "--homes", "3", "--out", out)
+    truth = out / "truth" / "home=h00001" / "truth.parquet"
+    good = truth.read_bytes()
+    truth.write_bytes(good[:100] + bytes([good[100] ^ 1]) + good[101:])
+    p = loadloom("fleet", pop, "--homes", "3", "--out", out)
+    assert "made 1 homes, 2 already complete" in p.stdout, p.stdout
+    assert truth.read_bytes() == good
+
+
 def test_ownership_follows_the_declared_probabilities(tmp_path):
     pop = short(tmp_path, length="10 min")
     out = tmp_path / "k"
