@@ -76,9 +76,9 @@ pub fn declared(s: &Scenario) -> Declared {
         voltage_v: s.home.voltage_v,
         service_a: s.home.service_a,
     };
+    // PV and batteries are not part of a declaration yet: only the loads.
     let appliances = s
-        .appliances
-        .iter()
+        .consumers()
         .map(|a| {
             let states = a
                 .states
@@ -133,6 +133,9 @@ pub fn declared(s: &Scenario) -> Declared {
                         .collect(),
                 ),
                 Behaviour::Steady { .. } => Steps::None("always on"),
+                Behaviour::Sun(_) | Behaviour::Storage(_) => {
+                    Steps::None("follows the sun or the home")
+                }
                 // A wandering change is a few random-walk steps at most
                 // between two steady stretches: 4 standard deviations.
                 Behaviour::Modulating {

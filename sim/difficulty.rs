@@ -10,7 +10,7 @@
 use crate::behaviour::Timeline;
 use crate::dataset::schema::line_name;
 use crate::electrical::split::state_split;
-use crate::scenario::{Connection, Scenario};
+use crate::scenario::{Connection, Role, Scenario};
 use serde_json::{json, Value};
 
 pub struct Ambiguous {
@@ -41,7 +41,14 @@ fn tolerance(s: &Scenario, p: f64) -> f64 {
 pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficulty {
     let k = s.steps_per_interval();
     let mut changes: Vec<u64> = Vec::new();
-    for t in &timelines[..s.appliances.len()] {
+    // The loads only: a PV inverter's output and a battery's answer to the
+    // home are not appliances to tell apart.
+    let is_load = |k: usize| s.appliances.get(k).is_none_or(|a| a.role == Role::Load);
+    for (_, t) in timelines[..s.appliances.len()]
+        .iter()
+        .enumerate()
+        .filter(|(k, _)| is_load(*k))
+    {
         for w in t.segments.windows(2) {
             if w[1].state != w[0].state {
                 changes.push(w[1].start / k);
@@ -71,7 +78,7 @@ pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficult
 
     // Steps of every non-lowest state on each line it draws from.
     let mut steps: Vec<(usize, usize, String, f64, f64)> = Vec::new(); // (line, app, state, ΔP, ΔQ)
-    for (ai, a) in s.appliances.iter().enumerate() {
+    for (ai, a) in s.appliances.iter().enumerate().filter(|(k, _)| is_load(*k)) {
         let splits: Vec<Vec<(usize, f64, f64)>> =
             a.states.iter().map(|st| state_split(s, st)).collect();
         for x in a.lines() {
@@ -105,11 +112,17 @@ pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficult
             }
         }
     }
-    let total: f64 = energy_j.iter().sum();
+    let total: f64 = energy_j
+        .iter()
+        .enumerate()
+        .filter(|(k, _)| is_load(*k))
+        .map(|(_, e)| e)
+        .sum();
     let ll: f64 = s
         .appliances
         .iter()
         .zip(energy_j)
+        .filter(|(a, _)| a.role == Role::Load)
         .filter(|(a, _)| {
             a.connections()
                 .iter()

@@ -218,6 +218,7 @@ pub fn add_background(s: &mut Scenario, share: f64) {
             ],
             on_threshold_w: 0.0,
             alternatives: vec![],
+            role: crate::scenario::Role::Load,
         });
     }
 }

@@ -7,7 +7,7 @@ use crate::electrical::settle::{diverged, Diverged};
 use crate::electrical::source::SourceVoltage;
 use crate::electrical::{Network, StepOut, C64};
 use crate::meter::{MeterModel, Readings};
-use crate::scenario::Scenario;
+use crate::scenario::{Role, Scenario};
 
 /// Exact per-appliance truth for a run of reporting intervals (columnar).
 #[derive(Default)]
@@ -17,13 +17,17 @@ pub struct Truth {
     pub app_state: Vec<Vec<u16>>,
     /// `[appliance][k]`: P on the k-th of that appliance's lines.
     pub app_line_p: Vec<Vec<Vec<f32>>>,
+    /// `[appliance]`: a store's state of charge at the end of each interval
+    /// (fraction); `None` for everything else.
+    pub app_soc: Vec<Option<Vec<f32>>>,
     pub unmetered_p: Vec<f32>,
 }
 
 impl Truth {
-    /// Columns for the first `metered` loads of the network (the appliances).
-    fn new(net: &Network, metered: usize) -> Self {
-        let n = metered;
+    /// Columns for the first `metered` loads of the network (the appliances),
+    /// with a state-of-charge column for each that is a store.
+    fn new(net: &Network, s: &Scenario) -> Self {
+        let n = s.appliances.len();
         Truth {
             app_p: vec![Vec::new(); n],
             app_q: vec![Vec::new(); n],
@@ -31,6 +35,11 @@ impl Truth {
             app_line_p: net.apps[..n]
                 .iter()
                 .map(|a| vec![Vec::new(); a.lines.len()])
+                .collect(),
+            app_soc: s
+                .appliances
+                .iter()
+                .map(|a| (a.role == Role::Storage).then(Vec::new))
                 .collect(),
             unmetered_p: Vec::new(),
         }
@@ -42,6 +51,7 @@ impl Truth {
             .for_each(Vec::clear);
         self.app_state.iter_mut().for_each(Vec::clear);
         self.app_line_p.iter_mut().flatten().for_each(Vec::clear);
+        self.app_soc.iter_mut().flatten().for_each(Vec::clear);
         self.unmetered_p.clear();
     }
 }
@@ -160,7 +170,7 @@ where
     let mut chunk = Chunk {
         first_row: 0,
         readings: Readings::new(lines),
-        truth: Truth::new(&net, metered),
+        truth: Truth::new(&net, s),
     };
     let mut out = StepOut::new(n_apps);
 
@@ -322,6 +332,10 @@ where
                     state[k]
                 };
                 tr.app_state[k].push(st as u16);
+                if let Some(col) = tr.app_soc[k].as_mut() {
+                    let soc = timelines[k].level_at(pos[k], step + 1);
+                    col.push(soc.unwrap_or(0.0) as f32);
+                }
                 sum_p[k] = 0.0;
                 sum_q[k] = 0.0;
                 sum_lp[k] = [0.0; 3];

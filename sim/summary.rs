@@ -35,6 +35,8 @@ pub struct Figures {
     pub apps: Vec<AppFigures>,
     pub lines: Vec<LineFigures>,
     pub service_a: f64,
+    /// What the scenario does that is allowed but unusual.
+    pub scenario_warnings: Vec<String>,
 }
 
 pub fn figures(s: &Scenario) -> Figures {
@@ -75,7 +77,9 @@ pub fn figures(s: &Scenario) -> Figures {
     }
     let n = s.home.supply.lines();
     let mut peak_a = vec![0.0; n];
-    for a in s.loads() {
+    // A PV inverter or a battery works against the loads' import (it
+    // exports, or charges only from a surplus): not part of the bound.
+    for a in s.loads().filter(|a| a.role == crate::scenario::Role::Load) {
         let mut worst = vec![0.0f64; n];
         for st in &a.states {
             for (x, p, q) in state_split(s, st) {
@@ -98,6 +102,7 @@ pub fn figures(s: &Scenario) -> Figures {
             })
             .collect(),
         service_a: s.home.service_a,
+        scenario_warnings: s.warnings.clone(),
     }
 }
 
@@ -187,15 +192,17 @@ fn text(s: &Scenario, f: &Figures) -> String {
 /// exceeds the service rating (the terminal voltage sags with it; a run
 /// stops if it leaves 0.5 … 1.5 of nominal).
 pub fn warnings(f: &Figures) -> Vec<String> {
-    f.lines
+    f.scenario_warnings
         .iter()
+        .cloned()
+        .chain(f.lines.iter()
         .filter(|l| l.peak_a > f.service_a)
         .map(|l| {
             format!(
                 "{}'s coincident peak of {:.1} A exceeds the {} A service: if these loads ran at once the voltage would sag through the source impedance; raise `service`, or give fewer or smaller loads on {}",
                 l.name, l.peak_a, f.service_a, l.name
             )
-        })
+        }))
         .collect()
 }
 

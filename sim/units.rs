@@ -17,6 +17,8 @@ pub enum Kind {
     Fraction,
     /// An angle in degrees.
     Angle,
+    /// An energy (a battery's capacity), held in joules.
+    Energy,
 }
 
 impl Kind {
@@ -39,6 +41,7 @@ impl Kind {
             Kind::Impedance => &[("ohm", 1.0), ("mohm", 1e-3), ("Ω", 1.0), ("mΩ", 1e-3)],
             Kind::Fraction => &[("%", 0.01), ("ppm", 1e-6)],
             Kind::Angle => &[("deg", 1.0), ("°", 1.0)],
+            Kind::Energy => &[("Wh", 3600.0), ("kWh", 3.6e6), ("MWh", 3.6e9)],
         }
     }
 
@@ -54,6 +57,7 @@ impl Kind {
             Kind::Impedance => "an impedance such as \"0.05 ohm\" or \"40 mohm\"",
             Kind::Fraction => "a share such as \"2 %\", \"20 ppm\" or a fraction such as 0.02",
             Kind::Angle => "an angle such as \"1.5 deg\"",
+            Kind::Energy => "an energy such as \"13.5 kWh\"",
         }
     }
 
@@ -74,6 +78,8 @@ impl Kind {
             Kind::Impedance => (1e-6, 1e3),
             Kind::Fraction => (1e-9, 100.0),
             Kind::Angle => (1e-6, 360.0),
+            // 1 mWh … 1 GWh.
+            Kind::Energy => (3.6, 3.6e12),
         }
     }
 
@@ -89,6 +95,7 @@ impl Kind {
             Kind::Impedance => "ohm",
             Kind::Fraction => "(as a fraction)",
             Kind::Angle => "deg",
+            Kind::Energy => "J",
         }
     }
 
@@ -103,6 +110,7 @@ impl Kind {
             Kind::Impedance => "impedance",
             Kind::Fraction => "share",
             Kind::Angle => "angle",
+            Kind::Energy => "energy",
         }
     }
 }

@@ -22,7 +22,7 @@ use std::sync::atomic::{AtomicU64, AtomicUsize, Ordering};
 use std::sync::Mutex;
 use std::time::{Duration, Instant};
 
-const SCENARIOS: [(&str, &str); 3] = [
+const SCENARIOS: [(&str, &str); 4] = [
     (
         "split-phase-house.toml",
         include_str!("../scenarios/split-phase-house.toml"),
@@ -34,6 +34,10 @@ const SCENARIOS: [(&str, &str); 3] = [
     (
         "apartment-208.toml",
         include_str!("../scenarios/apartment-208.toml"),
+    ),
+    (
+        "solar-bungalow.toml",
+        include_str!("../scenarios/solar-bungalow.toml"),
     ),
 ];
 const POPULATION: &str = include_str!("../scenarios/fleet/mixed-street.toml");

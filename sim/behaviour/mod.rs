@@ -10,7 +10,9 @@ pub mod habit;
 mod markov;
 mod modulating;
 mod program;
+pub mod solar;
 mod steady;
+mod storage;
 pub mod window;
 
 use crate::rng::stream;
@@ -30,6 +32,17 @@ pub struct Segment {
 #[derive(Clone, Debug, Default)]
 pub struct Timeline {
     pub segments: Vec<Segment>,
+    /// A store's state of charge (fraction) at each segment's start and its
+    /// change per step; empty for everything else.
+    pub level: Vec<(f64, f64)>,
+}
+
+impl Timeline {
+    /// The state of charge at step `t` within segment `i` (a store only).
+    pub fn level_at(&self, i: usize, t: u64) -> Option<f64> {
+        let (soc, per_step) = *self.level.get(i)?;
+        Some(soc + per_step * (t - self.segments[i].start) as f64)
+    }
 }
 
 /// What a behaviour needs to know of the run, in steps.
@@ -94,6 +107,7 @@ impl Builder {
         self.fill_to(state, n, 1.0);
         Timeline {
             segments: self.segments,
+            ..Default::default()
         }
     }
 }
@@ -101,7 +115,14 @@ impl Builder {
 /// Generates the timeline of one appliance over the run, as a window onto
 /// the home's one timeline ([`window`]). Draws come from the streams
 /// (seed, appliance id, "behaviour <block>") only.
+///
+/// A PV inverter's timeline comes from the sun and the sky alone; a store
+/// idles here (with no other loads to follow) and is made from the others
+/// in [`timelines`].
 pub fn timeline(app: &Appliance, clock: &Clock, seed: u64) -> Timeline {
+    if let Behaviour::Sun(pv) = &app.behaviour {
+        return solar::generate(pv, seed, clock);
+    }
     window::assemble(clock, |c, block| {
         let mut rng = stream(seed, &app.id, &format!("behaviour {block}"));
         generate(app, c, &mut rng)
@@ -129,6 +150,9 @@ fn generate(app: &Appliance, clock: &Clock, rng: &mut crate::rng::Stream) -> Tim
             clock,
             rng,
         ),
+        // Made whole, not per block (`timeline`, `timelines`): the sun's
+        // output from the sky's own streams, a store from the other loads.
+        Behaviour::Sun(_) | Behaviour::Storage(_) => Builder::new(clock.steps).finish(0),
     }
 }
 
@@ -141,7 +165,15 @@ pub fn timelines(s: &Scenario, steps: u64) -> Vec<Timeline> {
         start_utc_ms: s.run.start_utc_ms,
         tz: &tz,
     };
-    s.loads().map(|a| timeline(a, &clock, s.run.seed)).collect()
+    let mut out: Vec<Timeline> = s.loads().map(|a| timeline(a, &clock, s.run.seed)).collect();
+    // A store follows the net power of everything else, so it comes last.
+    let loads: Vec<&Appliance> = s.loads().collect();
+    for (k, a) in loads.iter().enumerate() {
+        if let Behaviour::Storage(b) = &a.behaviour {
+            out[k] = storage::generate(b, &loads, &out, k, steps, s.run.step_s);
+        }
+    }
+    out
 }
 
 #[cfg(test)]

@@ -131,7 +131,10 @@ pub fn assemble(clock: &Clock, mut generate: impl FnMut(&Clock, i64) -> Timeline
             }
         }
     }
-    Timeline { segments }
+    Timeline {
+        segments,
+        ..Default::default()
+    }
 }
 
 #[cfg(test)]

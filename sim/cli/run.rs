@@ -22,6 +22,11 @@ pub struct Args {
     /// Replace the scenario's seed.
     #[arg(long)]
     seed: Option<u64>,
+    /// Replace the run's start, a local time in the home's zone, e.g.
+    /// 2027-03-01T00:00 (the same home and seed: a later window of its one
+    /// timeline, never a replay).
+    #[arg(long)]
+    start: Option<String>,
     /// Replace the run length, e.g. 30d or "12 h".
     #[arg(long)]
     length: Option<String>,
@@ -52,6 +57,11 @@ pub fn main(a: Args) -> ExitCode {
     };
     if let Some(seed) = a.seed {
         s.run.seed = seed;
+    }
+    if let Some(t) = &a.start {
+        if let Err(m) = overrides::set_start(&mut s, t) {
+            return bad(format!("error: --start {t}: {m}\n  = help: write a local date-time such as 2027-03-01T00:00, outside any clock change"));
+        }
     }
     if let Some(l) = &a.length {
         if let Err(m) = overrides::set_length(&mut s, l) {

@@ -6,7 +6,7 @@
 use super::schema::{line_name, Col, FORMAT};
 use super::tables::Tables;
 use crate::electrical::split::state_split;
-use crate::scenario::{Appliance, Scenario};
+use crate::scenario::{Appliance, Behaviour, Role, Scenario};
 use crate::simulate::Outcome;
 use serde_json::{json, Map, Value};
 use sha2::{Digest, Sha256};
@@ -74,6 +74,22 @@ fn columns_json(cols: &[Col]) -> Value {
     )
 }
 
+/// A PV system or a battery: its appliance record with its role, its
+/// parameters and, for a battery, its state-of-charge column.
+fn generation_json(s: &Scenario, a: &Appliance, o: &Outcome, k: usize) -> Value {
+    let mut v = appliance_json(s, a, o, k);
+    v["role"] = json!(a.role);
+    v["model"] = match &a.behaviour {
+        Behaviour::Sun(pv) => json!(pv),
+        Behaviour::Storage(b) => json!(b),
+        _ => Value::Null,
+    };
+    if a.role == Role::Storage {
+        v["soc_column"] = json!(format!("{}_soc", a.id));
+    }
+    v
+}
+
 /// The faults of the scenario as records, with what the dropouts realised.
 fn faults_json(s: &Scenario, tables: &Tables, o: &Outcome) -> Value {
     let f = &s.faults;
@@ -134,7 +150,18 @@ pub fn build(
         crate::scenario::SupplyKind::SinglePhase => s.home.voltage_v,
     };
     let days = s.run.length_s / 86400.0;
-    let total_kwh: f64 = o.summary.app_energy_j.iter().sum::<f64>() / 3.6e6;
+    // What the home's loads drew (appliances and unmetered loads; the PV's
+    // and the battery's energy are under `generation`).
+    let is_load = |k: usize| s.appliances.get(k).is_none_or(|a| a.role == Role::Load);
+    let total_kwh: f64 = o
+        .summary
+        .app_energy_j
+        .iter()
+        .enumerate()
+        .filter(|(k, _)| is_load(*k))
+        .map(|(_, e)| e)
+        .sum::<f64>()
+        / 3.6e6;
     Ok(json!({
         "format": FORMAT,
         "generator": { "name": "loadloom", "version": env!("CARGO_PKG_VERSION") },
@@ -163,7 +190,8 @@ pub fn build(
         "meter": s.meter,
         "faults": faults_json(s, tables, o),
         "waveforms": waves.iter().map(|(_, w)| w.clone()).collect::<Vec<_>>(),
-        "appliances": s.appliances.iter().enumerate().map(|(k, a)| appliance_json(s, a, o, k)).collect::<Vec<_>>(),
+        "appliances": s.appliances.iter().enumerate().filter(|(k, _)| is_load(*k)).map(|(k, a)| appliance_json(s, a, o, k)).collect::<Vec<_>>(),
+        "generation": s.appliances.iter().enumerate().filter(|(k, _)| !is_load(*k)).map(|(k, a)| generation_json(s, a, o, k)).collect::<Vec<_>>(),
         "unmetered": s.unmetered.iter().enumerate().map(|(j, a)| {
             let k = s.appliances.len() + j;
             json!({ "id": a.id, "label": a.label, "behaviour": a.behaviour.name(), "connections": a.connections().iter().map(|c| c.name()).collect::<Vec<_>>(), "energy_kwh": o.summary.app_energy_j[k] / 3.6e6, "peak_w": o.summary.app_peak_w[k] })

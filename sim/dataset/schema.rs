@@ -124,6 +124,9 @@ pub fn truth(s: &Scenario) -> Vec<Col> {
                 ColKind::F32,
             ));
         }
+        if a.role == crate::scenario::Role::Storage {
+            c.push(col(format!("{}_soc", a.id), "1", ColKind::F32));
+        }
     }
     c.push(col("unmetered_p_w", "W", ColKind::F32));
     c

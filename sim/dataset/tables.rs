@@ -252,6 +252,9 @@ impl Tables {
             for lp in &t.app_line_p[k] {
                 cols.push(f32s(lp));
             }
+            if let Some(soc) = &t.app_soc[k] {
+                cols.push(f32s(soc));
+            }
         }
         cols.push(f32s(&t.unmetered_p));
         RecordBatch::try_new(self.truth_schema.clone(), cols)

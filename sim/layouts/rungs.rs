@@ -111,7 +111,7 @@ pub fn phases(h: &Home, seed: u64, shuffles: usize) -> Vec<Rung> {
         return vec![];
     }
     let movable: Vec<usize> = (0..h.s.appliances.len())
-        .filter(|k| single_line(&h.s.appliances[*k]).is_some())
+        .filter(|k| is_load(&h.s.appliances[*k]) && single_line(&h.s.appliances[*k]).is_some())
         .collect();
     let ids = |ks: &[usize]| ks.len();
     let mut out = Vec::new();
@@ -170,6 +170,12 @@ fn shuffle(h: &Home, seed: u64, k: usize) -> Rung {
     r
 }
 
+/// The ladders move loads only: a PV inverter or a battery (`[pv]`,
+/// `[battery]`) stays where it is written.
+fn is_load(a: &Appliance) -> bool {
+    a.role == crate::scenario::Role::Load
+}
+
 /// An appliance the line-to-line ladder may move: one connection for all its
 /// draws, and among its own kind and its `alternatives` both a
 /// line-to-neutral one and a line-to-line or three-phase one this supply has.
@@ -213,7 +219,7 @@ fn choose(eligible: &[usize], kwh: &[f64], target: f64) -> Vec<usize> {
 pub fn line_to_line(h: &Home, shares: &[f64]) -> Vec<Rung> {
     let supply = h.s.home.supply;
     let el: Vec<usize> = (0..h.s.appliances.len())
-        .filter(|k| eligible(&h.s.appliances[*k], supply).is_some())
+        .filter(|k| is_load(&h.s.appliances[*k]) && eligible(&h.s.appliances[*k], supply).is_some())
         .collect();
     if el.is_empty() {
         return vec![];

@@ -207,6 +207,39 @@ fn decode(
         }
     }
     let unmetered = appliances.split_off(metered);
+    let mut warnings: Vec<String> = appliances
+        .iter()
+        .chain(&unmetered)
+        .flat_map(rated_voltage_warnings)
+        .collect();
+    if let Some(n) = top.opt("pv") {
+        let (pv, w) = super::generation::decode_pv(ctx, n, &home)?;
+        warnings.extend(w);
+        appliances.push(pv);
+    }
+    if let Some(n) = top.opt("battery") {
+        appliances.push(super::generation::decode_battery(ctx, n, &home)?);
+    }
+    for (k, a) in appliances.iter().enumerate().skip(metered) {
+        let key = if a.role == Role::Generator {
+            "pv"
+        } else {
+            "battery"
+        };
+        if appliances[..k]
+            .iter()
+            .chain(&unmetered)
+            .any(|b| b.id == a.id)
+        {
+            let n = top.opt(key).expect("decoded above");
+            return Err(ctx.err(
+                n,
+                key,
+                format!("id \"{}\" is already used by another load", a.id),
+                format!("give the {key} an id of its own: id = \"{key}2\""),
+            ));
+        }
+    }
     let waveforms = match top.opt("waveform") {
         Some(n) => decode_waveforms(ctx, n, &home, &run)?,
         None => Waveforms {
@@ -238,8 +271,43 @@ fn decode(
         faults,
         metering,
         waveforms,
+        warnings,
         source_toml: None,
     })
+}
+
+/// How far a template's rated voltage may lie from its connection before
+/// `validate` says so: 10 % (the usual tolerance band of a supply, ANSI
+/// C84.1 and IEC 60038 give ±5 % and ±10 %; common practice).
+pub const RATED_MISMATCH: f64 = 0.10;
+
+/// A warning (one per appliance, for its first such draw) when a draw of a
+/// template has a rated voltage more than [`RATED_MISMATCH`] from its
+/// connection's: its power was rescaled
+/// by the ZIP model, perhaps without the writer meaning it (a 4.5 kW, 240 V
+/// element on 400 V draws 12.5 kW).
+fn rated_voltage_warnings(a: &Appliance) -> Option<String> {
+    let template = a.template.as_ref()?;
+    for st in &a.states {
+        for d in &st.draws {
+            let Some(rated) = d.rated_v else { continue };
+            let u = d.nominal_v / rated;
+            if (u - 1.0).abs() <= RATED_MISMATCH {
+                continue;
+            }
+            let at_rated = d.p_w / d.zip_p.factor(u);
+            return Some(format!(
+                "{}: template \"{template}\" is rated at {rated:.0} V but its {} draw in state \"{}\" is connected at {:.0} V: its {:.0} W becomes {:.0} W; use a template for this supply (`loadloom templates` lists each with its voltage) or write `power` and `rated` for this connection",
+                a.id,
+                d.wiring.name(),
+                st.name,
+                d.nominal_v,
+                at_rated,
+                d.p_w
+            ));
+        }
+    }
+    None
 }
 
 /// Decodes the `[[key]]` list into `out`; ids must be unique across all of `out`.
@@ -405,6 +473,7 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
         }
         None => None,
     };
+    let (site, sky) = decode_site(ctx, &t)?;
     let source_node = t.opt("source");
     t.finish()?;
     let place = |n: &Node| {
@@ -422,6 +491,8 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
         timezone,
         source,
         away,
+        site,
+        sky,
         supply_at,
         source_at,
     })
@@ -457,8 +528,73 @@ fn decode_unbalance(ctx: &Ctx, s: &Table, supply: SupplyKind) -> Result<f64, Err
     Ok(u)
 }
 
+/// A day's mean clear-sky index when `sky` is not written (illustrative: a
+/// mix of clear and cloudy days).
+pub const DEFAULT_SKY: f64 = 0.65;
+
+/// `latitude`, `longitude` (degrees, north and east positive; both or
+/// neither) and `sky` (a day's mean clear-sky index, or "clear").
+fn decode_site(ctx: &Ctx, t: &Table) -> Result<(Option<crate::sun::Site>, Option<f64>), Error> {
+    let degrees = |key: &'static str, limit: f64| -> Result<Option<f64>, Error> {
+        let Some(n) = t.opt(key) else { return Ok(None) };
+        let v = ctx.number(n, &t.path_of(key))?;
+        if v.abs() > limit {
+            return Err(ctx.err(
+                n,
+                &t.path_of(key),
+                format!("{v}° is beyond ±{limit}°"),
+                format!(
+                    "write the {key} in degrees from −{limit} to {limit} (north and east positive)"
+                ),
+            ));
+        }
+        Ok(Some(v))
+    };
+    let site = match (degrees("latitude", 90.0)?, degrees("longitude", 180.0)?) {
+        (Some(latitude_deg), Some(longitude_deg)) => Some(crate::sun::Site {
+            latitude_deg,
+            longitude_deg,
+        }),
+        (None, None) => None,
+        _ => {
+            let n = t
+                .opt("latitude")
+                .or(t.opt("longitude"))
+                .expect("one is written");
+            return Err(ctx.err(
+                n,
+                "home",
+                "a site needs both its latitude and its longitude",
+                "write both, e.g. latitude = 44.65 and longitude = -63.57",
+            ));
+        }
+    };
+    let sky = match t.opt("sky") {
+        None => Some(DEFAULT_SKY),
+        Some(n) if matches!(n.v, Val::Str(_)) => {
+            if ctx.string(n, "home.sky")? != "clear" {
+                return Err(ctx.err(
+                    n,
+                    "home.sky",
+                    "unknown sky",
+                    "write \"clear\" or a day's mean clear-sky index such as 0.6",
+                ));
+            }
+            None
+        }
+        Some(n) => {
+            let v = ctx.number(n, "home.sky")?;
+            if !(0.05..=0.95).contains(&v) {
+                return Err(ctx.err(n, "home.sky", format!("a mean clear-sky index of {v} is outside 0.05 … 0.95"), "write a number from 0.05 (overcast) to 0.95 (nearly always clear), or \"clear\""));
+            }
+            Some(v)
+        }
+    };
+    Ok((site, sky))
+}
+
 /// Whether a date-time's time part carries a UTC offset or `Z`.
-fn has_offset(text: &str) -> bool {
+pub(super) fn has_offset(text: &str) -> bool {
     let time = text.split_once(['T', 't', ' ']).map_or("", |(_, t)| t);
     time.contains(['+', '-', 'Z', 'z'])
 }
@@ -1071,7 +1207,7 @@ fn in_range(ctx: &Ctx, n: &Node, path: &str, kind: Kind, range: (f64, f64)) -> R
     Ok(v)
 }
 
-fn check_id(ctx: &Ctx, node: &Node, path: &str, id: &str) -> Result<(), Error> {
+pub(super) fn check_id(ctx: &Ctx, node: &Node, path: &str, id: &str) -> Result<(), Error> {
     let ok = id.chars().next().is_some_and(|c| c.is_ascii_lowercase())
         && id
             .chars()
@@ -1913,6 +2049,7 @@ fn decode_appliance(
         states,
         on_threshold_w,
         alternatives,
+        role: Role::Load,
     })
 }
 
@@ -1992,6 +2129,8 @@ fn scale_times(b: &mut Behaviour, k: f64) {
                 s.taper_s *= k;
             }
         }
+        // Made by `[pv]` and `[battery]`, never by an appliance's keys.
+        Behaviour::Sun(_) | Behaviour::Storage(_) => {}
     }
 }
 

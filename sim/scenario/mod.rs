@@ -1,6 +1,7 @@
 //! The scenario language: TOML with units, parsed into a resolved [`Scenario`].
 
 pub mod decode;
+pub mod generation;
 pub mod library;
 pub mod model;
 pub mod overrides;

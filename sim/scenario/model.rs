@@ -376,6 +376,63 @@ pub struct Session {
     pub taper_s: f64,
 }
 
+/// A rooftop PV system: where it stands, how its array faces the sky, and
+/// its PVWatts parameters (`sim/sun/pvwatts.rs`).
+#[derive(Clone, Debug, Serialize)]
+pub struct Pv {
+    pub site: crate::sun::Site,
+    /// Mean clear-sky index of a day; `None`: a sky without clouds.
+    pub sky: Option<f64>,
+    /// DC nameplate at standard test conditions, W.
+    pub dc_w: f64,
+    /// The inverter's AC rating, W.
+    pub ac_w: f64,
+    pub tilt_deg: f64,
+    /// Clockwise from north (south 180°).
+    pub azimuth_deg: f64,
+    pub albedo: f64,
+    /// Share of DC power lost before the inverter.
+    pub losses: f64,
+    /// Temperature coefficient of power, 1/°C.
+    pub gamma: f64,
+    /// `roof` (close roof mount) or `rack` (open rack).
+    pub mount: String,
+    /// Outdoor air temperature, °C, and wind speed, m/s.
+    pub air_c: f64,
+    pub wind_m_s: f64,
+}
+
+/// A home battery run for self-consumption: it charges from what the home
+/// would export and discharges to cover what it would import.
+#[derive(Clone, Debug, Serialize)]
+pub struct Battery {
+    /// Usable energy between empty and full, J.
+    pub capacity_j: f64,
+    /// Largest charging and discharging power, W.
+    pub power_w: f64,
+    /// Round-trip efficiency (energy out over energy in).
+    pub efficiency: f64,
+    /// State of charge it never discharges below, fraction.
+    pub reserve: f64,
+    /// State of charge at the start of the run, fraction.
+    pub initial: f64,
+    /// How long its controller takes to follow a change of the home's
+    /// power, s.
+    pub response_s: f64,
+}
+
+/// What an appliance is to the home.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Role {
+    /// Draws power (every `[[appliance]]`).
+    Load,
+    /// Makes power: its P is negative while it exports (`[pv]`).
+    Generator,
+    /// Stores energy: P positive charging, negative discharging (`[battery]`).
+    Storage,
+}
+
 /// How an appliance moves between its states.
 #[derive(Clone, Debug, Serialize)]
 #[serde(tag = "kind", rename_all = "lowercase")]
@@ -404,6 +461,12 @@ pub enum Behaviour {
         every_s: f64,
         session: Option<Session>,
     },
+    /// A PV inverter's output, from the sun and the sky (states off and
+    /// producing; the scale is the output over the inverter's rating).
+    Sun(Pv),
+    /// A battery following the home's net power (states idle, charging,
+    /// discharging; the scale is the power over its limit).
+    Storage(Battery),
 }
 
 impl Behaviour {
@@ -425,6 +488,8 @@ impl Behaviour {
             Behaviour::Markov { .. } => "markov",
             Behaviour::Steady { .. } => "steady",
             Behaviour::Modulating { .. } => "modulating",
+            Behaviour::Sun(_) => "sun",
+            Behaviour::Storage(_) => "storage",
         }
     }
 }
@@ -446,6 +511,7 @@ pub struct Appliance {
     /// besides its own (`alternatives`); the layout ladder moves it between them.
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub alternatives: Vec<WiringKind>,
+    pub role: Role,
 }
 
 /// A kind of connection, regardless of which lines it uses.
@@ -546,6 +612,10 @@ pub struct Home {
     pub source: Source,
     /// Weekday hours when nobody is home (an occupancy pattern).
     pub away: Option<[bool; 24]>,
+    /// Where the home stands (`latitude`, `longitude`), if written.
+    pub site: Option<crate::sun::Site>,
+    /// Mean clear-sky index of a day (`sky`); `None`: no clouds.
+    pub sky: Option<f64>,
     /// Where the supply is written ("file:line:col"), for messages.
     #[serde(skip)]
     pub supply_at: String,
@@ -683,6 +753,10 @@ pub struct Scenario {
     /// The metering as declared, one entry per line channel.
     pub metering: Vec<MeterChannel>,
     pub waveforms: Waveforms,
+    /// What the scenario does that is allowed but unusual (printed by
+    /// `validate`).
+    #[serde(skip)]
+    pub warnings: Vec<String>,
     /// The scenario text itself when it was generated (a fleet's home), so
     /// the dataset carries what rebuilds it alone with `loadloom run`.
     #[serde(skip)]
@@ -693,6 +767,11 @@ impl Scenario {
     /// Every load the simulator drives: the appliances, then the unmetered ones.
     pub fn loads(&self) -> impl Iterator<Item = &Appliance> {
         self.appliances.iter().chain(&self.unmetered)
+    }
+    /// The appliances that draw power (not the PV or the battery, which
+    /// follow the `[[appliance]]` list in `appliances`).
+    pub fn consumers(&self) -> impl Iterator<Item = &Appliance> {
+        self.appliances.iter().filter(|a| a.role == Role::Load)
     }
     pub fn steps_per_interval(&self) -> u64 {
         (self.meter.interval_s / self.run.step_s).round() as u64

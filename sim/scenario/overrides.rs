@@ -44,6 +44,42 @@ pub fn set_length(s: &mut Scenario, text: &str) -> Result<(), String> {
     Ok(())
 }
 
+/// `--start 2027-03-01T00:00`: the run's start as a local time in the
+/// home's zone (no offset; not inside a clock change). The scenario's own
+/// waveform windows must still fall inside the run.
+pub fn set_start(s: &mut Scenario, text: &str) -> Result<(), String> {
+    let text = text.trim();
+    if decode::has_offset(text) {
+        return Err(format!(
+            "\"{text}\" carries a UTC offset; the start is a local time in the home's time zone ({})",
+            s.home.timezone
+        ));
+    }
+    let civil: jiff::civil::DateTime = text
+        .parse()
+        .map_err(|e| format!("\"{text}\" is not a local date-time ({e})"))?;
+    let tz = jiff::tz::TimeZone::get(&s.home.timezone).map_err(|e| e.to_string())?;
+    let zoned = match tz.to_ambiguous_zoned(civil).offset() {
+        jiff::tz::AmbiguousOffset::Unambiguous { .. } => civil
+            .to_zoned(tz)
+            .map_err(|e| format!("cannot place {civil}: {e}"))?,
+        _ => {
+            return Err(format!(
+                "the local time {civil} in {} falls in a clock change (skipped or repeated)",
+                s.home.timezone
+            ))
+        }
+    };
+    s.run.start_local = text.to_string();
+    s.run.start_utc_ms = zoned.timestamp().as_millisecond();
+    let windows = std::mem::take(&mut s.waveforms.windows);
+    for w in windows {
+        let placed = decode::place_window(&w.start_local, w.length_s, &s.run, &s.home)?;
+        s.waveforms.windows.push(placed);
+    }
+    Ok(())
+}
+
 /// `--waveform START/LENGTH` and `--waveform-rate`; also re-checks the
 /// scenario's own windows against a changed run length.
 pub fn add_waveforms(

@@ -11,6 +11,9 @@
 //! 2. One year at 1 s (LOADLOOM_BENCH_DAYS), all files written, against a
 //!    floor run that writes the same columns and rows of precomputed values;
 //!    peak memory (target < 512 MB) and the ratio (target ≤ 1.5).
+//! 3. The same year with a rooftop PV system added (the sun, the sky and
+//!    PVWatts per minute, an inverter across L1-L2): CPU time with PV over
+//!    CPU time without (target ≤ 1.10).
 //!
 //! ```text
 //! cargo bench --bench simulate            # about 5 minutes
@@ -35,6 +38,23 @@ fn scenario(days: f64) -> Scenario {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
     let mut s = loadloom::scenario::load(&root.join("scenarios/split-phase-house.toml"))
         .expect("demo parses");
+    s.run.length_s = days * 86400.0;
+    s
+}
+
+/// The demo with a 7.6 kW PV system on an invented site.
+fn scenario_pv(days: f64) -> Scenario {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let path = root.join("scenarios/split-phase-house.toml");
+    let text = std::fs::read_to_string(&path)
+        .expect("demo reads")
+        .replacen(
+            "[home]\n",
+            "[home]\nlatitude = 44.65\nlongitude = -63.57\n",
+            1,
+        )
+        + "\n[pv]\ndc = \"8.4 kW\"\ninverter = \"7.6 kW\"\ntilt = \"30 deg\"\n";
+    let mut s = loadloom::scenario::load_str(&path, text).expect("demo with PV parses");
     s.run.length_s = days * 86400.0;
     s
 }
@@ -73,6 +93,7 @@ fn floor(s: &Scenario, out: &Path) {
                     app_q: c.truth.app_q.clone(),
                     app_state: c.truth.app_state.clone(),
                     app_line_p: c.truth.app_line_p.clone(),
+                    app_soc: c.truth.app_soc.clone(),
                     unmetered_p: c.truth.unmetered_p.clone(),
                 },
             });
@@ -132,6 +153,7 @@ fn floor(s: &Scenario, out: &Path) {
                 .iter_mut()
                 .chain(&mut chunk.truth.app_q)
                 .chain(chunk.truth.app_line_p.iter_mut().flatten())
+                .chain(chunk.truth.app_soc.iter_mut().flatten())
                 .for_each(|v| v.truncate(n));
             chunk.truth.app_state.iter_mut().for_each(|v| v.truncate(n));
         }
@@ -178,10 +200,14 @@ fn cpu_seconds() -> f64 {
 }
 
 fn child(mode: &str, days: f64, dir: &Path) {
-    let s = scenario(days);
+    let s = if mode == "sim-pv" {
+        scenario_pv(days)
+    } else {
+        scenario(days)
+    };
     let started = Instant::now();
     match mode {
-        "sim" => sim(&s, dir),
+        "sim" | "sim-pv" => sim(&s, dir),
         _ => floor(&s, &dir.join("floor")),
     }
     let wall = started.elapsed().as_secs_f64();
@@ -327,8 +353,10 @@ fn main() {
     let samples = s.run.steps() as f64 * s.appliances.len() as f64;
     let (t_floor, m_floor, _) = measure("floor", days, &dir);
     let floor_bytes = dir_bytes(&dir.join("floor"));
-    let (t_sim, m_sim, _) = measure("sim", days, &dir);
+    let (t_sim, m_sim, c_sim) = measure("sim", days, &dir);
     let sim_bytes = dir_bytes(&dir.join(&s.name));
+    let _ = std::fs::remove_dir_all(dir.join(&s.name));
+    let (t_pv, _, c_pv) = measure("sim-pv", days, &dir);
     println!(
         "split-phase demo, {days} d at 1 s, {} appliances, {} rows",
         s.appliances.len(),
@@ -342,6 +370,11 @@ fn main() {
     println!(
         "ratio simulate / floor:     {:8.2}   (target ≤ 1.5; peak memory target < 512 MB)",
         t_sim / t_floor
+    );
+    println!("with a 7.6 kW PV system:    {t_pv:8.1} s  CPU {c_pv:.1} s against {c_sim:.1} s");
+    println!(
+        "ratio CPU with PV / without: {:6.3}   (target ≤ 1.10)",
+        c_pv / c_sim
     );
     let _ = std::fs::remove_dir_all(&dir);
 }

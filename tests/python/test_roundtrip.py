@@ -11,7 +11,11 @@ import pytest
 from conftest import ROOT, loadloom
 
 HERE = pathlib.Path(__file__).parent
-DEMOS = sorted((ROOT / "scenarios").glob("*.toml"))
+# The built-in solvers share out the metered total, which in a home with
+# rooftop PV or a battery is net of what those make and store: they do not
+# model generation, so their energy-error bound below holds for homes
+# without it (the PV demo's data is checked in test_pv.py and test_contract.py).
+DEMOS = sorted(p for p in (ROOT / "scenarios").glob("*.toml") if "[pv]" not in p.read_text())
 PY = sys.executable
 
 

@@ -1,0 +1,83 @@
+//! A PV inverter's output: per minute of UTC, the sun's position and the
+//! sky's clear-sky index give the plane-of-array irradiance, and PVWatts
+//! the AC power (`sim/sun`). The sky is keyed by the day, so any window of
+//! the home sees the same output at the same moment.
+
+use super::{window, Clock, Segment, Timeline};
+use crate::scenario::Pv;
+use crate::sun::pvwatts::{Array, OPEN_RACK, ROOF_MOUNT};
+use crate::sun::{light, plane_of_array, Sky, Surface};
+
+const MINUTE_MS: i64 = 60_000;
+
+/// The array's AC output at `utc_ms`, W.
+pub fn output(pv: &Pv, array: &Array, sky: &mut Sky, utc_ms: i64) -> f64 {
+    let (pos, l) = light(pv.site, sky, utc_ms);
+    if l.ghi <= 0.0 {
+        return 0.0;
+    }
+    let surface = Surface {
+        tilt_deg: pv.tilt_deg,
+        azimuth_deg: pv.azimuth_deg,
+        albedo: pv.albedo,
+    };
+    let poa = plane_of_array(&surface, &l, pos.zenith_deg, pos.azimuth_deg);
+    array.output(poa, pv.air_c, pv.wind_m_s)
+}
+
+/// The PVWatts array of a `[pv]` section.
+pub fn array(pv: &Pv) -> Array {
+    Array {
+        dc_w: pv.dc_w,
+        ac_w: pv.ac_w,
+        gamma: pv.gamma,
+        losses: pv.losses,
+        mount: if pv.mount == "rack" {
+            OPEN_RACK
+        } else {
+            ROOF_MOUNT
+        },
+    }
+}
+
+/// Segments per UTC minute (the output at the minute's middle); state 0
+/// (off) while it makes nothing, else state 1 (producing) scaled by the
+/// output over the inverter's rating. Equal neighbours are merged.
+pub fn generate(pv: &Pv, seed: u64, clock: &Clock) -> Timeline {
+    let mut sky = match pv.sky {
+        Some(mean) => Sky::new(seed, pv.site.longitude_deg, mean),
+        None => Sky::clear(),
+    };
+    let array = array(pv);
+    let step_ms = (clock.step_s * 1000.0).round() as i64;
+    let end_ms = clock.start_utc_ms + clock.steps as i64 * step_ms;
+    let mut segments: Vec<Segment> = Vec::new();
+    let mut minute = clock.start_utc_ms.div_euclid(MINUTE_MS) * MINUTE_MS;
+    while minute < end_ms {
+        let from = window::step_at(clock, minute).max(0) as u64;
+        let to = (window::step_at(clock, minute + MINUTE_MS) as u64).min(clock.steps);
+        minute += MINUTE_MS;
+        if to <= from {
+            continue;
+        }
+        let ac = output(pv, &array, &mut sky, minute - MINUTE_MS / 2);
+        let (state, scale) = if ac > 0.0 {
+            (1, (ac / pv.ac_w) as f32)
+        } else {
+            (0, 1.0)
+        };
+        match segments.last_mut() {
+            Some(l) if l.state == state && l.scale == scale => l.end = to,
+            _ => segments.push(Segment {
+                start: from,
+                end: to,
+                state,
+                scale,
+            }),
+        }
+    }
+    Timeline {
+        segments,
+        ..Default::default()
+    }
+}
