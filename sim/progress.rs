@@ -85,6 +85,16 @@ impl Progress {
         self.count((f * 1000.0).round() as u64, 1000);
     }
 
+    /// Redraws twice a second, so the elapsed time keeps moving while one
+    /// long step (a solver) runs without reporting anything.
+    pub fn ticking(self) -> Progress {
+        if !self.bar.is_hidden() {
+            self.bar
+                .enable_steady_tick(std::time::Duration::from_millis(500));
+        }
+        self
+    }
+
     /// The step the job is on.
     pub fn say(&self, message: impl Into<String>) {
         self.bar.set_message(message.into());

@@ -135,11 +135,46 @@ pub fn main(mut a: Args) -> ExitCode {
     if a.suite {
         return suite(&scenarios, &a.out, &plan, form);
     }
-    let s = &scenarios[0];
+    single(&a, &scenarios[0], &plan, form)
+}
+
+/// One solver on one scenario: a progress line on a terminal (what is
+/// being done and for how long, so a long solver is seen to be running),
+/// then its report.
+fn single(a: &Args, s: &Scenario, plan: &Plan, form: Form) -> ExitCode {
     let work = a.out.join(format!("{}-roundtrip", s.name));
-    match rt::once(s, &work, &plan) {
+    let bar = if a.quiet || a.json {
+        Progress::hidden()
+    } else {
+        Progress::messages().ticking()
+    };
+    bar.say(format!("simulating {} and writing the task", s.name));
+    let prep = match rt::prepare(s, &work, plan) {
+        Ok(p) => p,
+        Err(m) => {
+            bar.finish();
+            return failed(format!("error: {m}"));
+        }
+    };
+    bar.say(format!(
+        "solver running (time limit {:.0} s), then scoring: {}",
+        plan.limit.as_secs_f64(),
+        plan.solver.describe()
+    ));
+    let o = solver_check::roundtrip::run_solver(
+        &prep,
+        &plan.solver,
+        &work,
+        plan.limit,
+        &plan.allow_read,
+    );
+    bar.finish();
+    match o {
         Ok(o) => single_report(&o, form),
-        Err(m) => failed(format!("error: {m}")),
+        Err(e) => failed(format!(
+            "error: running the solver under {} failed: {e}",
+            work.display()
+        )),
     }
 }
 
@@ -312,7 +347,7 @@ fn leaderboard(
     let bar = if a.quiet || a.json {
         Progress::hidden()
     } else {
-        Progress::messages()
+        Progress::messages().ticking()
     };
     let n = solvers.len();
     let outcomes = rt::board(
