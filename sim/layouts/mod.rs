@@ -265,7 +265,20 @@ fn run_rung(
         }
     };
     let dir = file.parent().expect("in its folder").to_path_buf();
-    let prep = crate::roundtrip::prepare(&s, &dir, p)?;
+    res.dir = dir.clone();
+    res.scenario_file = file.clone();
+    // A rung the simulator refuses (a voltage solve that does not settle
+    // with every load on one line, say) is reported, and the ladder goes on.
+    let prep = match crate::roundtrip::prepare(&s, &dir, p) {
+        Ok(prep) => prep,
+        Err(m) => {
+            res.scores = solvers
+                .iter()
+                .map(|x| (x.describe(), Err(m.clone())))
+                .collect();
+            return Ok(res);
+        }
+    };
     let outcomes = crate::roundtrip::board(&prep, solvers, p.limit, &p.allow_read, &mut |_, _| {})?;
     let manifest: Value = std::fs::read_to_string(prep.dataset.join("manifest.json"))
         .ok()
@@ -286,8 +299,6 @@ fn run_rung(
         .into_iter()
         .map(|o| (o.solver.clone(), o.result.map_err(|f| f.to_string())))
         .collect();
-    res.dir = dir;
-    res.scenario_file = file;
     Ok(res)
 }
 

@@ -393,3 +393,23 @@ def test_suite_says_when_a_rung_repeats_as_written_and_scores_each_appliance(tmp
     text = loadloom("roundtrip", home, "--suite", "--solver", "builtin:training-mean", "--train", "1h", "--test", "1h",
                     "--out", tmp_path / "out").stdout
     assert "skipped" in text and "MAE W per appliance and rung" in text
+
+
+@pytest.mark.parametrize("edit, needle", [
+    (('[home]\n', '[home]\nsource = { unbalance = "2 %" }\n'), "has no negative-sequence voltage"),
+    (('[meter]\n', '[meter]\nchannels = "some"\n'), 'unknown channels "some"'),
+    (('id = "kettle"\n', 'id = "kettle"\nalternatives = ["sideways"]\n'), 'unknown kind of connection "sideways"'),
+])
+def test_bad_layout_keys_are_refused_with_their_place(tmp_path, edit, needle):
+    home = tmp_path / "cottage.toml"
+    home.write_text(COTTAGE_10S.replace(*edit))
+    p = loadloom("validate", home, check=False)
+    assert p.returncode == 2 and needle in p.stderr and "cottage.toml:" in p.stderr, p.stderr
+
+
+def test_unbalance_beyond_ten_percent_is_refused(tmp_path):
+    text = (ROOT / "scenarios" / "three-phase-house.toml").read_text()
+    home = tmp_path / "wye.toml"
+    home.write_text(text.replace('source = { variation = "0.8 %"', 'source = { unbalance = "12 %", variation = "0.8 %"'))
+    p = loadloom("validate", home, check=False)
+    assert p.returncode == 2 and "home.source.unbalance" in p.stderr, p.stderr
