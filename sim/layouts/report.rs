@@ -4,6 +4,7 @@
 
 use super::{Ladder, RungResult};
 use serde_json::{json, Value};
+use solver_check::audit::CAUTION;
 use solver_check::render::Render;
 use solver_check::score::Report;
 
@@ -121,7 +122,7 @@ fn text(l: &Ladder) -> String {
         }
         o += "\n";
     }
-    o + &render_markdown_summary(l)
+    o + &render_markdown_summary(l) + &format!("\n{CAUTION}\n")
 }
 
 const HEAD: [&str; 12] = [
@@ -185,7 +186,7 @@ fn render_markdown_summary(l: &Ladder) -> String {
 /// The summary table, then per solver the MAE of every appliance and the
 /// per-conductor figures on every rung.
 fn markdown(l: &Ladder) -> String {
-    let mut o = format!("### Layout ladder of {}\n\n", l.home);
+    let mut o = format!("### Layout ladder of {}\n\n{CAUTION}\n\n", l.home);
     o += &render_markdown_summary(l);
     for (k, solver) in l.solvers.iter().enumerate() {
         o += &format!("\n#### {solver}: MAE W per appliance and rung\n\n");
@@ -235,6 +236,7 @@ fn markdown(l: &Ladder) -> String {
 fn json_of(l: &Ladder) -> Value {
     json!({
         "format": "loadloom-layouts/1",
+        "caution": CAUTION,
         "home": l.home,
         "solvers": l.solvers,
         "train_s": l.train_s,

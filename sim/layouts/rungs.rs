@@ -240,7 +240,7 @@ pub fn line_to_line(h: &Home, shares: &[f64]) -> Vec<Rung> {
                 format!("line-to-line {:.0} %", t * 100.0),
                 format!(
                     "{:.0} % of the movable appliances' energy line-to-line or three-phase ({}); line-to-neutral: {}",
-                    if total > 0.0 { 100.0 * moved / total } else { 0.0 },
+                    if total > 0.0 { 100.0 * moved / total + 0.0 } else { 0.0 },
                     name(&high),
                     name(&low)
                 ),

@@ -91,6 +91,7 @@ def lines_of(ladder):
 def test_every_rung_has_scores_a_card_and_its_own_scenario(ladders):
     for home, (ladder, out) in ladders.items():
         assert ladder["format"] == "loadloom-layouts/1"
+        assert "not an inspection" in ladder["caution"]
         families = {r["family"] for r in ladder["rungs"]}
         want = {"home", "phase assignment", "line-to-line share", "supply", "metering"}
         if home == "three-phase-house":
@@ -350,6 +351,7 @@ def test_markdown_gives_the_whole_ladder(ladders, tmp_path):
     head = [line for line in p.stdout.splitlines() if line.startswith("| rung |")]
     assert len(head) >= 2, "the ladder table and the per-appliance table"
     assert "| total only | metering |" in p.stdout
+    assert "not an inspection" in p.stdout
 
 
 COTTAGE_10S = """
