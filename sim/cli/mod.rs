@@ -48,6 +48,12 @@ pub fn failed(message: impl std::fmt::Display) -> ExitCode {
     ExitCode::from(FAILED)
 }
 
+/// Prints an error and gives its exit status (2 bad input, 1 a failed run).
+pub fn report(e: &loadloom::scenario::Error) -> ExitCode {
+    eprintln!("{e}");
+    ExitCode::from(e.status.code())
+}
+
 /// Prints a report in the form asked for.
 pub fn print(report: &dyn Render, form: Form) {
     print!("{}", report.render(form));

@@ -1,6 +1,6 @@
 //! `loadloom run`: simulate a scenario and write its dataset folder.
 
-use super::{bad, failed, load, print, FormatArg, BAD_INPUT};
+use super::{bad, load, print, report, FormatArg, BAD_INPUT};
 use loadloom::dataset::Format;
 use loadloom::electrical::settle::Diverged;
 use loadloom::pipeline;
@@ -110,7 +110,8 @@ fn write_failed(e: &std::io::Error, out: &std::path::Path) -> ExitCode {
         }
         None => {
             let help = "check free space and permissions; nothing was left behind";
-            failed(scenario::Error::file(out, "writing the dataset failed", help).caused_by(e))
+            let e = scenario::Error::file(out, "writing the dataset failed", help).caused_by(e);
+            report(&e.failed())
         }
     }
 }

@@ -4,7 +4,7 @@
 use super::library;
 use super::model::*;
 use super::reader::{Ctx, Table};
-use super::source::{parse_toml, read_source, Entry, Error, Node, Sources, Val};
+use super::source::{parse_toml, read_source, At, Entry, Error, Node, Sources, Val};
 use crate::units::Kind;
 use std::path::{Path, PathBuf};
 

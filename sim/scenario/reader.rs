@@ -2,7 +2,7 @@
 //! a key nobody asked for is reported as unknown, with the keys that would be
 //! accepted.
 
-use super::source::{Entry, Error, Node, Sources, Val};
+use super::source::{At, Entry, Error, Node, Sources, Val};
 use crate::units::{parse_quantity, Kind, MAX_APPLIANCE_DURATION_S};
 use std::cell::RefCell;
 

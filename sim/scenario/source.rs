@@ -1,8 +1,8 @@
 //! The scenario text as a tree of values that remember where they were written,
-//! and the error type that points back at that place (file:line:column, key
-//! path, the offending text underlined, and what would be accepted).
+//! and the constructor of the error ([`solver_check::diagnostic::Error`]) that
+//! points back at that place (file:line:column, key path, the offending text
+//! underlined, and what would be accepted).
 
-use std::fmt;
 use std::io::Read;
 use std::ops::Range;
 use std::path::{Path, PathBuf};
@@ -126,7 +126,7 @@ fn not_utf8(path: &Path, what: &str, bytes: &[u8], e: std::str::Utf8Error) -> Er
         .position(|b| *b == b'\n')
         .map_or(bytes.len(), |i| line_start + i);
     let column = prefix.chars().count() + 1;
-    Error(Box::new(Diagnostic {
+    Error::new(Diagnostic {
         file: path.to_path_buf(),
         line: good.iter().filter(|b| **b == b'\n').count() + 1,
         column,
@@ -141,7 +141,8 @@ fn not_utf8(path: &Path, what: &str, bytes: &[u8], e: std::str::Utf8Error) -> Er
             .to_string(),
         underline: (column, 1),
         causes: Vec::new(),
-    }))
+        status: Status::BadInput,
+    })
 }
 
 /// Parses TOML text into a [`Node`] tree; syntax errors carry their place.
@@ -226,51 +227,25 @@ fn value_node(v: &toml_edit::Value, file: usize, fallback: &Src) -> Node {
     Node { v, src }
 }
 
-/// A bad-input error that names the file, line, column and key path, shows the
-/// offending text and says what would be accepted. Boxed, so a `Result` carrying
-/// it stays one pointer wide on the happy path.
-#[derive(Debug, Clone)]
-pub struct Error(Box<Diagnostic>);
+pub use solver_check::diagnostic::{Diagnostic, Error, Status};
 
-/// What an [`Error`] says: where, what, and how to fix it.
-#[derive(Debug, Clone)]
-pub struct Diagnostic {
-    /// The file the error is in.
-    pub file: PathBuf,
-    /// 1-based line, or 0 for an error about the whole file.
-    pub line: usize,
-    /// 1-based column in characters, or 0 for an error about the whole file.
-    pub column: usize,
-    /// The key path inside the file (`appliance[2].states[0].power`), or empty.
-    pub path: String,
-    /// What is wrong.
-    pub message: String,
-    /// What would be accepted.
-    pub help: String,
-    /// The offending line of text.
-    pub excerpt: String,
-    /// Column and width of the underline below the excerpt.
-    pub underline: (usize, usize),
-    /// What caused it (an operating-system error, a library's message),
-    /// outermost first: kept, not dropped, when an error is passed on.
-    pub causes: Vec<String>,
+/// The constructor of an [`Error`] at a place in the scenario's [`Sources`]
+/// (a trait, as the error type lives in `solver_check`, so that every
+/// command reports through one type). Import it to write `Error::at(…)`.
+pub trait At {
+    /// An error at `src` (file, line, column, the line's text underlined),
+    /// at key path `path`.
+    fn at(
+        sources: &Sources,
+        src: &Src,
+        path: &str,
+        message: impl Into<String>,
+        help: impl Into<String>,
+    ) -> Error;
 }
 
-impl std::ops::Deref for Error {
-    type Target = Diagnostic;
-    fn deref(&self) -> &Diagnostic {
-        &self.0
-    }
-}
-
-impl std::ops::DerefMut for Error {
-    fn deref_mut(&mut self) -> &mut Diagnostic {
-        &mut self.0
-    }
-}
-
-impl Error {
-    pub fn at(
+impl At for Error {
+    fn at(
         sources: &Sources,
         src: &Src,
         path: &str,
@@ -288,7 +263,7 @@ impl Error {
         let column = text[line_start..start].chars().count() + 1;
         let end = src.span.end.clamp(start, line_end);
         let width = text[start..end].chars().count().max(1);
-        Error(Box::new(Diagnostic {
+        Error::new(Diagnostic {
             file: sources.path(src.file).to_path_buf(),
             line,
             column,
@@ -298,75 +273,7 @@ impl Error {
             excerpt: text[line_start..line_end].trim_end().to_string(),
             underline: (column, width),
             causes: Vec::new(),
-        }))
-    }
-
-    /// An error about a whole file (it cannot be read, say), with no place inside.
-    pub fn file(path: &Path, message: impl Into<String>, help: impl Into<String>) -> Error {
-        Error(Box::new(Diagnostic {
-            file: path.to_path_buf(),
-            line: 0,
-            column: 0,
-            path: String::new(),
-            message: message.into(),
-            help: help.into(),
-            excerpt: String::new(),
-            underline: (0, 0),
-            causes: Vec::new(),
-        }))
-    }
-
-    /// The same error with `cause` added to its source chain, and the
-    /// causes of `cause` after it.
-    pub fn caused_by(mut self, cause: &dyn std::error::Error) -> Error {
-        self.causes.push(cause.to_string());
-        let mut next = cause.source();
-        while let Some(c) = next {
-            self.causes.push(c.to_string());
-            next = c.source();
-        }
-        self
+            status: Status::BadInput,
+        })
     }
 }
-
-impl fmt::Display for Error {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        writeln!(f, "error: {}", self.message)?;
-        if self.line == 0 {
-            write!(f, "  --> {}", self.file.display())?;
-        } else {
-            write!(
-                f,
-                "  --> {}:{}:{}",
-                self.file.display(),
-                self.line,
-                self.column
-            )?;
-        }
-        if !self.path.is_empty() {
-            write!(f, " (at {})", self.path)?;
-        }
-        writeln!(f)?;
-        if self.line > 0 {
-            let n = self.line.to_string();
-            let pad = " ".repeat(n.len());
-            writeln!(f, "{pad} |")?;
-            writeln!(f, "{n} | {}", self.excerpt)?;
-            writeln!(
-                f,
-                "{pad} | {}{}",
-                " ".repeat(self.underline.0.saturating_sub(1)),
-                "^".repeat(self.underline.1)
-            )?;
-        }
-        for c in &self.causes {
-            writeln!(f, "  = cause: {c}")?;
-        }
-        if !self.help.is_empty() {
-            write!(f, "  = help: {}", self.help)?;
-        }
-        Ok(())
-    }
-}
-
-impl std::error::Error for Error {}

@@ -23,6 +23,7 @@ pub mod compare;
 pub mod confine;
 pub mod crosshome;
 pub mod dataset;
+pub mod diagnostic;
 pub mod estimate;
 pub mod leaderboard;
 pub mod metrics;

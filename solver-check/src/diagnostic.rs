@@ -1,0 +1,223 @@
+//! The one error type of every command: where (file, and where known line,
+//! column and key path, or a table's column and row), what is wrong, what
+//! would be accepted, the chain of causes, and the exit status it ends in
+//! (2 bad input, 1 a run that failed). The scenario reader builds it with
+//! the offending text underlined; the table readers, the scorer, the plots
+//! and the round trip build it about a file.
+
+use std::fmt;
+use std::path::{Path, PathBuf};
+
+/// What an error's exit status says.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Status {
+    /// The input cannot be used (a file, a value, an option): exit status 2.
+    BadInput,
+    /// The input was fine but the run failed (writing, a solver, a round
+    /// trip): exit status 1.
+    Failed,
+}
+
+impl Status {
+    /// The process exit status.
+    pub fn code(self) -> u8 {
+        match self {
+            Status::BadInput => 2,
+            Status::Failed => 1,
+        }
+    }
+}
+
+/// A bad-input error that names the file, line, column and key path, shows the
+/// offending text and says what would be accepted. Boxed, so a `Result` carrying
+/// it stays one pointer wide on the happy path.
+#[derive(Debug, Clone)]
+pub struct Error(Box<Diagnostic>);
+
+/// What an [`Error`] says: where, what, and how to fix it.
+#[derive(Debug, Clone)]
+pub struct Diagnostic {
+    /// The file the error is in.
+    pub file: PathBuf,
+    /// 1-based line, or 0 for an error about the whole file.
+    pub line: usize,
+    /// 1-based column in characters, or 0 for an error about the whole file.
+    pub column: usize,
+    /// The key path inside the file (`appliance[2].states[0].power`), or empty.
+    pub path: String,
+    /// What is wrong.
+    pub message: String,
+    /// What would be accepted.
+    pub help: String,
+    /// The offending line of text.
+    pub excerpt: String,
+    /// Column and width of the underline below the excerpt.
+    pub underline: (usize, usize),
+    /// What caused it (an operating-system error, a library's message),
+    /// outermost first: kept, not dropped, when an error is passed on.
+    pub causes: Vec<String>,
+    /// What the command's exit status says: bad input (2) or a failed run (1).
+    pub status: Status,
+}
+
+impl std::ops::Deref for Error {
+    type Target = Diagnostic;
+    fn deref(&self) -> &Diagnostic {
+        &self.0
+    }
+}
+
+impl std::ops::DerefMut for Error {
+    fn deref_mut(&mut self) -> &mut Diagnostic {
+        &mut self.0
+    }
+}
+
+impl Error {
+    /// The error of a diagnostic built field by field.
+    pub fn new(d: Diagnostic) -> Error {
+        Error(Box::new(d))
+    }
+
+    /// The same error, as a run that failed (exit status 1) rather than bad input.
+    pub fn failed(mut self) -> Error {
+        self.status = Status::Failed;
+        self
+    }
+
+    /// An error about a whole file (it cannot be read, say), with no place inside.
+    pub fn file(path: &Path, message: impl Into<String>, help: impl Into<String>) -> Error {
+        Error::new(Diagnostic {
+            file: path.to_path_buf(),
+            line: 0,
+            column: 0,
+            path: String::new(),
+            message: message.into(),
+            help: help.into(),
+            excerpt: String::new(),
+            underline: (0, 0),
+            causes: Vec::new(),
+            status: Status::BadInput,
+        })
+    }
+
+    /// The same error with `cause` added to its source chain, and the
+    /// causes of `cause` after it.
+    pub fn caused_by(mut self, cause: &dyn std::error::Error) -> Error {
+        self.causes.push(cause.to_string());
+        let mut next = cause.source();
+        while let Some(c) = next {
+            self.causes.push(c.to_string());
+            next = c.source();
+        }
+        self
+    }
+}
+
+impl fmt::Display for Error {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        writeln!(f, "error: {}", self.message)?;
+        if self.line == 0 {
+            write!(f, "  --> {}", self.file.display())?;
+        } else {
+            write!(
+                f,
+                "  --> {}:{}:{}",
+                self.file.display(),
+                self.line,
+                self.column
+            )?;
+        }
+        if !self.path.is_empty() {
+            write!(f, " (at {})", self.path)?;
+        }
+        writeln!(f)?;
+        if self.line > 0 {
+            let n = self.line.to_string();
+            let pad = " ".repeat(n.len());
+            writeln!(f, "{pad} |")?;
+            writeln!(f, "{n} | {}", self.excerpt)?;
+            writeln!(
+                f,
+                "{pad} | {}{}",
+                " ".repeat(self.underline.0.saturating_sub(1)),
+                "^".repeat(self.underline.1)
+            )?;
+        }
+        for c in &self.causes {
+            writeln!(f, "  = cause: {c}")?;
+        }
+        if !self.help.is_empty() {
+            write!(f, "  = help: {}", self.help)?;
+        }
+        Ok(())
+    }
+}
+
+impl std::error::Error for Error {}
+
+impl From<crate::table::TableError> for Error {
+    /// A bad table: its file, and the column and row as the place.
+    fn from(e: crate::table::TableError) -> Error {
+        let mut place = Vec::new();
+        if let Some(c) = &e.column {
+            place.push(format!("column `{c}`"));
+        }
+        if let Some(r) = e.row {
+            place.push(format!("row {r} (counting data rows from 0)"));
+        }
+        let mut d = Error::file(&e.file, e.message, e.help);
+        d.path = place.join(", ");
+        d
+    }
+}
+
+impl From<crate::dataset::DatasetError> for Error {
+    /// A bad dataset folder or manifest: its file.
+    fn from(e: crate::dataset::DatasetError) -> Error {
+        Error::file(&e.file, e.message, e.help)
+    }
+}
+
+impl From<crate::score::ScoreError> for Error {
+    fn from(e: crate::score::ScoreError) -> Error {
+        match e {
+            crate::score::ScoreError::Dataset(d) => d.into(),
+            crate::score::ScoreError::Table(t) => t.into(),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_table_error_keeps_its_file_column_row_and_help() {
+        let t = crate::table::table_err(
+            Path::new("estimate.csv"),
+            Some("fridge_p_w"),
+            Some(4),
+            "a negative power",
+            "write zero or more",
+        );
+        let e = Error::from(t);
+        assert_eq!(e.status.code(), 2);
+        assert_eq!(e.failed().status, Status::Failed);
+        let shown = Error::from(crate::table::table_err(
+            Path::new("estimate.csv"),
+            Some("fridge_p_w"),
+            Some(4),
+            "a negative power",
+            "write zero or more",
+        ))
+        .to_string();
+        assert!(
+            shown.starts_with(
+                "error: a negative power\n  --> estimate.csv (at column `fridge_p_w`, row 4"
+            ),
+            "{shown}"
+        );
+        assert!(shown.ends_with("  = help: write zero or more"), "{shown}");
+    }
+}
