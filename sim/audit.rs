@@ -157,6 +157,13 @@ pub fn declared(s: &Scenario) -> Declared {
                     max: (4.0 * wander).min(1.0),
                     jumps: vec![],
                 },
+                // On and off from and to each running state (a heat pump's
+                // input follows the outdoor temperature about its rating).
+                Behaviour::Thermostat { .. } => Steps::Jumps(
+                    (1..n)
+                        .flat_map(|i| [(0, i, 1.0, 1.0), (i, 0, 1.0, 1.0)])
+                        .collect(),
+                ),
             };
             DeclAppliance {
                 id: a.id.clone(),

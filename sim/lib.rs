@@ -25,5 +25,7 @@ pub mod scenario;
 pub mod simulate;
 pub mod summary;
 pub mod sun;
+pub mod thermal;
 pub mod units;
 pub mod waveform;
+pub mod weather;

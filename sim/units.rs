@@ -19,6 +19,17 @@ pub enum Kind {
     Angle,
     /// An energy (a battery's capacity), held in joules.
     Energy,
+    /// A temperature in °C (the one quantity not held in SI kelvin: every
+    /// figure it meets, setpoints and climate normals, is written in °C).
+    Temperature,
+    /// A temperature difference, K.
+    TempDiff,
+    /// A heat transfer coefficient, W/K.
+    Conductance,
+    /// A heat capacity, J/K.
+    HeatCapacity,
+    /// An area, m².
+    Area,
 }
 
 impl Kind {
@@ -42,6 +53,11 @@ impl Kind {
             Kind::Fraction => &[("%", 0.01), ("ppm", 1e-6)],
             Kind::Angle => &[("deg", 1.0), ("°", 1.0)],
             Kind::Energy => &[("Wh", 3600.0), ("kWh", 3.6e6), ("MWh", 3.6e9)],
+            Kind::Temperature => &[("°C", 1.0), ("degC", 1.0)],
+            Kind::TempDiff => &[("K", 1.0)],
+            Kind::Conductance => &[("W/K", 1.0), ("kW/K", 1e3)],
+            Kind::HeatCapacity => &[("J/K", 1.0), ("kJ/K", 1e3), ("MJ/K", 1e6), ("kWh/K", 3.6e6)],
+            Kind::Area => &[("m²", 1.0), ("m2", 1.0)],
         }
     }
 
@@ -58,6 +74,11 @@ impl Kind {
             Kind::Fraction => "a share such as \"2 %\", \"20 ppm\" or a fraction such as 0.02",
             Kind::Angle => "an angle such as \"1.5 deg\"",
             Kind::Energy => "an energy such as \"13.5 kWh\"",
+            Kind::Temperature => "a temperature such as \"20 °C\" or \"-5 degC\"",
+            Kind::TempDiff => "a temperature difference such as \"1 K\"",
+            Kind::Conductance => "a heat loss coefficient such as \"250 W/K\"",
+            Kind::HeatCapacity => "a heat capacity such as \"30 MJ/K\" or \"8 kWh/K\"",
+            Kind::Area => "an area such as \"4 m²\" or \"4 m2\"",
         }
     }
 
@@ -80,6 +101,12 @@ impl Kind {
             Kind::Angle => (1e-6, 360.0),
             // 1 mWh … 1 GWh.
             Kind::Energy => (3.6, 3.6e12),
+            // Beyond the extremes ever measured at the surface.
+            Kind::Temperature => (1e-3, 100.0),
+            Kind::TempDiff => (1e-3, 100.0),
+            Kind::Conductance => (1e-3, 1e6),
+            Kind::HeatCapacity => (1.0, 1e12),
+            Kind::Area => (1e-3, 1e5),
         }
     }
 
@@ -96,6 +123,11 @@ impl Kind {
             Kind::Fraction => "(as a fraction)",
             Kind::Angle => "deg",
             Kind::Energy => "J",
+            Kind::Temperature => "°C",
+            Kind::TempDiff => "K",
+            Kind::Conductance => "W/K",
+            Kind::HeatCapacity => "J/K",
+            Kind::Area => "m²",
         }
     }
 
@@ -111,6 +143,11 @@ impl Kind {
             Kind::Fraction => "share",
             Kind::Angle => "angle",
             Kind::Energy => "energy",
+            Kind::Temperature => "temperature",
+            Kind::TempDiff => "temperature difference",
+            Kind::Conductance => "heat loss coefficient",
+            Kind::HeatCapacity => "heat capacity",
+            Kind::Area => "area",
         }
     }
 }

@@ -61,8 +61,13 @@ fn line_of(text: &str, needle: &str) -> usize {
 /// `validate`, `validate --quiet` and `run`, naming the line of `to` and
 /// saying `needle`; `run` leaves nothing behind.
 fn assert_refused(name: &str, from: &str, to: &str, needle: &str) {
-    assert!(BASE.contains(from), "{name}: {from} not in BASE");
-    let text = BASE.replacen(from, to, 1);
+    assert_refused_in(BASE, name, from, to, needle)
+}
+
+/// [`assert_refused`] on another base scenario.
+fn assert_refused_in(base: &str, name: &str, from: &str, to: &str, needle: &str) {
+    assert!(base.contains(from), "{name}: {from} not in the base");
+    let text = base.replacen(from, to, 1);
     let d = scratch(name);
     let p = d.join("home.toml");
     std::fs::write(&p, &text).unwrap();
@@ -456,5 +461,88 @@ fn a_failed_write_names_the_folder_and_keeps_its_cause() {
     assert_eq!(o.status.code(), Some(1), "{e}");
     assert!(e.contains(&format!("--> {}", blocker.display())), "{e}");
     assert!(e.contains("= cause: ") && e.contains("os error"), "{e}");
+    let _ = std::fs::remove_dir_all(&d);
+}
+
+/// `BASE` with weather, a building and a thermostatic heater.
+fn heated() -> String {
+    BASE.replace(
+        "[meter]",
+        r#"[weather]
+climate = "lakeshore"
+
+[building]
+ua = "250 W/K"
+mass = "30 MJ/K"
+heating = "20 °C"
+
+[[appliance]]
+id = "baseboards"
+wiring = "L1-L2"
+behaviour = "thermostat"
+role = "resistance"
+states = [ { name = "heating", power = "6 kW" } ]
+
+[meter]"#,
+    )
+}
+
+#[test]
+fn weather_and_building_keys_are_checked_with_their_place() {
+    let base = heated();
+    for (name, from, to, needle) in [
+        (
+            "ua-huge",
+            "\"250 W/K\"",
+            "\"1e308 W/K\"",
+            "outside the range",
+        ),
+        (
+            "ua-unit",
+            "\"250 W/K\"",
+            "\"250 W\"",
+            "not a unit of heat loss",
+        ),
+        ("mass-zero", "\"30 MJ/K\"", "\"0 J/K\"", "greater than zero"),
+        ("setpoint-hot", "\"20 °C\"", "\"75 °C\"", "outside -90 … 60"),
+        (
+            "climate-unknown",
+            "\"lakeshore\"",
+            "\"atlantis\"",
+            "no climate named",
+        ),
+        (
+            "role-unknown",
+            "\"resistance\"",
+            "\"geyser\"",
+            "unknown role",
+        ),
+        (
+            "state-unknown",
+            "name = \"heating\"",
+            "name = \"warming\"",
+            "has no state",
+        ),
+        (
+            "weather-file-missing",
+            "climate = \"lakeshore\"",
+            "file = \"nowhere.csv\"",
+            "nowhere.csv",
+        ),
+    ] {
+        assert_refused_in(&base, name, from, to, needle);
+    }
+}
+
+#[test]
+fn a_thermostat_without_weather_is_refused() {
+    let text = heated().replace("[weather]\nclimate = \"lakeshore\"\n", "");
+    let d = scratch("no-weather");
+    let p = d.join("home.toml");
+    std::fs::write(&p, &text).unwrap();
+    let o = run(&["validate", p.to_str().unwrap()]);
+    let e = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{e}");
+    assert!(e.contains("no [weather] section"), "{e}");
     let _ = std::fs::remove_dir_all(&d);
 }

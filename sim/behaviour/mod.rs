@@ -153,6 +153,8 @@ fn generate(app: &Appliance, clock: &Clock, rng: &mut crate::rng::Stream) -> Tim
         // Made whole, not per block (`timeline`, `timelines`): the sun's
         // output from the sky's own streams, a store from the other loads.
         Behaviour::Sun(_) | Behaviour::Storage(_) => Builder::new(clock.steps).finish(0),
+        // Filled by `thermal::drive` from the heat balance (see `timelines`).
+        Behaviour::Thermostat { .. } => Builder::new(clock.steps).finish(0),
     }
 }
 
@@ -166,6 +168,7 @@ pub fn timelines(s: &Scenario, steps: u64) -> Vec<Timeline> {
         tz: &tz,
     };
     let mut out: Vec<Timeline> = s.loads().map(|a| timeline(a, &clock, s.run.seed)).collect();
+    crate::thermal::drive(s, &mut out, steps, &tz);
     // A store follows the net power of everything else, so it comes last.
     let loads: Vec<&Appliance> = s.loads().collect();
     for (k, a) in loads.iter().enumerate() {

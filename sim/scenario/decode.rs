@@ -260,6 +260,22 @@ fn decode(
             })
             .collect(),
     };
+    let weather = top
+        .opt("weather")
+        .map(|n| super::thermal::decode_weather(ctx, n, &run))
+        .transpose()?;
+    let building = top
+        .opt("building")
+        .map(|n| super::thermal::decode_building(ctx, n))
+        .transpose()?;
+    check_thermostats(
+        ctx,
+        root,
+        &appliances,
+        &unmetered,
+        weather.is_some(),
+        building.is_some(),
+    )?;
     top.finish()?;
     Ok(Scenario {
         name,
@@ -272,6 +288,8 @@ fn decode(
         metering,
         waveforms,
         warnings,
+        weather,
+        building,
         source_toml: None,
     })
 }
@@ -308,6 +326,53 @@ fn rated_voltage_warnings(a: &Appliance) -> Option<String> {
         }
     }
     None
+/// Thermostatic appliances need the weather and the building, and a home
+/// has at most one heat pump (one outdoor unit per thermostat).
+fn check_thermostats(
+    ctx: &Ctx,
+    root: &Node,
+    apps: &[Appliance],
+    unmetered: &[Appliance],
+    weather: bool,
+    building: bool,
+) -> Result<(), Error> {
+    let thermo: Vec<&Appliance> = apps
+        .iter()
+        .chain(unmetered)
+        .filter(|a| matches!(a.behaviour, Behaviour::Thermostat { .. }))
+        .collect();
+    let Some(first) = thermo.first() else {
+        return Ok(());
+    };
+    if !weather || !building {
+        let missing = if weather { "[building]" } else { "[weather]" };
+        return Err(ctx.err(
+            root,
+            "",
+            format!("appliance {} is thermostatic, but the home has no {missing} section", first.id),
+            "add [weather] (e.g. climate = \"lakeshore\") and [building] (e.g. ua = \"250 W/K\", mass = \"30 MJ/K\")",
+        ));
+    }
+    let pumps = thermo
+        .iter()
+        .filter(|a| {
+            matches!(
+                a.behaviour,
+                Behaviour::Thermostat {
+                    role: crate::thermal::equipment::Role::HeatPump(_)
+                }
+            )
+        })
+        .count();
+    if pumps > 1 {
+        return Err(ctx.err(
+            root,
+            "",
+            format!("{pumps} thermostatic heat pumps; one thermostat drives one outdoor unit"),
+            "keep one heat-pump appliance (its power is the whole unit's)",
+        ));
+    }
+    Ok(())
 }
 
 /// Decodes the `[[key]]` list into `out`; ids must be unique across all of `out`.
@@ -1583,7 +1648,7 @@ pub fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Error> {
     Ok(d)
 }
 
-fn parse_hours(ctx: &Ctx, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
+pub fn parse_hours(ctx: &Ctx, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
     let help = "write hours = \"17-22\" (local hours 17:00 to 22:00), \"6-9,17-22\", or 24 weights [w0, …, w23]";
     let mut w = [0.0; 24];
     match &node.v {
@@ -1758,7 +1823,10 @@ fn decode_appliance(
     let wiring = parse_wiring(ctx, wnode, &t.path_of("wiring"), home.supply)?;
     let load = decode_app_load(ctx, &t, LoadKind::Resistive)?;
     let defaults = DrawDefaults { wiring, load };
-    let bnode = t.req("behaviour", "cycle, program, markov, steady or modulating")?;
+    let bnode = t.req(
+        "behaviour",
+        "cycle, program, markov, steady, modulating or thermostat",
+    )?;
     let bname = ctx.string(bnode, &t.path_of("behaviour"))?;
 
     let read_state = |n, p, fallback: String| read_state(ctx, n, p, &fallback, home, &defaults);
@@ -1987,12 +2055,23 @@ fn decode_appliance(
                 session,
             }
         }
+        "thermostat" => {
+            let mut read = Vec::new();
+            for (i, n) in states_list("states")?.iter().enumerate() {
+                let (s, st) = read_state(n, format!("{path}.states[{i}]"), format!("s{i}"))?;
+                st.finish()?;
+                read.push(s);
+            }
+            let (role, ordered) = super::thermal::decode_role(ctx, &t, read)?;
+            states = ordered;
+            Behaviour::Thermostat { role }
+        }
         other => {
             return Err(ctx.err(
                 bnode,
                 &t.path_of("behaviour"),
                 format!("unknown behaviour \"{other}\""),
-                "write \"cycle\", \"program\", \"markov\", \"steady\" or \"modulating\"",
+                "write \"cycle\", \"program\", \"markov\", \"steady\", \"modulating\" or \"thermostat\"",
             ));
         }
     };
@@ -2131,6 +2210,7 @@ fn scale_times(b: &mut Behaviour, k: f64) {
         }
         // Made by `[pv]` and `[battery]`, never by an appliance's keys.
         Behaviour::Sun(_) | Behaviour::Storage(_) => {}
+        Behaviour::Thermostat { .. } => {}
     }
 }
 

@@ -7,6 +7,7 @@ pub mod model;
 pub mod overrides;
 pub mod reader;
 pub mod source;
+pub mod thermal;
 
 pub use decode::{connection_voltage, load, load_str};
 pub use model::*;

@@ -467,6 +467,11 @@ pub enum Behaviour {
     /// A battery following the home's net power (states idle, charging,
     /// discharging; the scale is the power over its limit).
     Storage(Battery),
+    /// Driven by the home's thermostat (`[building]`, `[weather]`): its
+    /// timeline comes from the heat balance, not from draws of its own.
+    Thermostat {
+        role: crate::thermal::equipment::Role,
+    },
 }
 
 impl Behaviour {
@@ -490,6 +495,7 @@ impl Behaviour {
             Behaviour::Modulating { .. } => "modulating",
             Behaviour::Sun(_) => "sun",
             Behaviour::Storage(_) => "storage",
+            Behaviour::Thermostat { .. } => "thermostat",
         }
     }
 }
@@ -757,6 +763,12 @@ pub struct Scenario {
     /// `validate`).
     #[serde(skip)]
     pub warnings: Vec<String>,
+    /// The outdoor weather (`[weather]`), if the home has any.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub weather: Option<crate::weather::WeatherSpec>,
+    /// The building's heat balance and thermostat (`[building]`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub building: Option<crate::thermal::Building>,
     /// The scenario text itself when it was generated (a fleet's home), so
     /// the dataset carries what rebuilds it alone with `loadloom run`.
     #[serde(skip)]

@@ -1,0 +1,296 @@
+//! Climate figures and the named climates of the demos.
+//!
+//! A climate is twelve monthly mean temperatures (or an annual mean and
+//! swing), the daily swing (mean daily maximum minus minimum), the spread of
+//! a day's mean about its monthly normal, and the day-to-day persistence of
+//! that departure (the lag-1 autocorrelation of an AR(1) process).
+
+use serde::Serialize;
+
+/// Climate figures, °C and K.
+#[derive(Clone, Debug, Serialize)]
+pub struct Climate {
+    /// Mean temperature of each calendar month, January first, °C.
+    pub monthly_mean_c: [f64; 12],
+    /// Mean daily maximum minus mean daily minimum, K.
+    pub daily_swing_k: f64,
+    /// Standard deviation of a day's mean about its monthly normal in the
+    /// coldest and in the warmest month, K (cosine in between).
+    pub spread_k: (f64, f64),
+    /// Lag-1 autocorrelation of those daily departures, 0 … 0.99.
+    pub persistence: f64,
+}
+
+/// A published degree-day figure a named climate is checked against.
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct DegreeDays {
+    /// Base temperature, °C.
+    pub base_c: f64,
+    /// Heating degree days a year at that base, K·d.
+    pub heating_kd: f64,
+    /// Where the figure comes from.
+    pub source: &'static str,
+}
+
+/// A named climate: figures, where they come from, and a degree-day normal.
+pub struct Named {
+    pub name: &'static str,
+    pub about: &'static str,
+    pub climate: fn() -> Climate,
+    pub source: &'static str,
+    pub normal: DegreeDays,
+}
+
+const F: fn(f64) -> f64 = |f| (f - 32.0) * 5.0 / 9.0;
+
+fn lakeshore() -> Climate {
+    // NOAA NCEI U.S. Climate Normals 1991–2020, a Great Lakes airport
+    // station (monthly mean temperature, °F), from memory.
+    let f = [
+        25.2, 28.8, 39.0, 49.7, 60.6, 70.6, 75.4, 73.9, 66.4, 53.8, 41.1, 30.5,
+    ];
+    Climate {
+        monthly_mean_c: f.map(F),
+        daily_swing_k: 9.0, // same normals: mean max − mean min, 7 K in January to 10 K in July, from memory
+        spread_k: (5.5, 2.8), // from memory (continental winters: cold outbreaks)
+        persistence: 0.7,   // lag-1 autocorrelation of daily mean departures, from memory
+    }
+}
+
+fn harbour() -> Climate {
+    // NOAA NCEI U.S. Climate Normals 1991–2020, a Mid-Atlantic coastal city
+    // park station (monthly mean temperature, °F), from memory.
+    let f = [
+        33.7, 35.9, 42.8, 53.7, 63.2, 72.0, 77.5, 76.1, 69.2, 57.9, 48.0, 38.1,
+    ];
+    Climate {
+        monthly_mean_c: f.map(F),
+        daily_swing_k: 7.5,   // same normals, mean max − mean min, from memory
+        spread_k: (4.5, 2.5), // from memory
+        persistence: 0.7,     // from memory
+    }
+}
+
+fn rhineland() -> Climate {
+    // Deutscher Wetterdienst, area mean of Germany, reference period
+    // 1991–2020 (monthly mean temperature, °C), from memory.
+    Climate {
+        monthly_mean_c: [
+            0.9, 1.5, 4.7, 9.0, 13.1, 16.4, 18.3, 17.9, 13.9, 9.4, 4.9, 1.9,
+        ],
+        daily_swing_k: 8.0, // DWD station normals, mean max − mean min, from memory
+        spread_k: (4.5, 2.8), // from memory
+        persistence: 0.75,  // from memory
+    }
+}
+
+/// The named climates (invented names; figures from published normals).
+pub const NAMED: [Named; 3] = [
+    Named {
+        name: "lakeshore",
+        about: "cold continental winters, warm humid summers (Great Lakes)",
+        climate: lakeshore,
+        source: "NOAA NCEI U.S. Climate Normals 1991-2020, Great Lakes airport station",
+        // 6 300 °F·d base 65 °F, from memory.
+        normal: DegreeDays {
+            base_c: 18.333,
+            heating_kd: 6300.0 * 5.0 / 9.0,
+            source: "NOAA NCEI 1991-2020 normals: about 6300 heating degree days (base 65 F), from memory",
+        },
+    },
+    Named {
+        name: "harbour",
+        about: "mild coastal winters, hot humid summers (Mid-Atlantic coast)",
+        climate: harbour,
+        source: "NOAA NCEI U.S. Climate Normals 1991-2020, Mid-Atlantic city park station",
+        normal: DegreeDays {
+            base_c: 18.333,
+            heating_kd: 4600.0 * 5.0 / 9.0,
+            source: "NOAA NCEI 1991-2020 normals: about 4600 heating degree days (base 65 F), from memory",
+        },
+    },
+    Named {
+        name: "rhineland",
+        about: "temperate central European (German area mean)",
+        climate: rhineland,
+        source: "Deutscher Wetterdienst, German area mean 1991-2020",
+        // Eurostat's heating degree days (base 18 °C, counted on days
+        // below 15 °C), Germany, recent decades about 3 100, from memory.
+        normal: DegreeDays {
+            base_c: 18.0,
+            heating_kd: 3100.0,
+            source: "Eurostat heating degree days (18 C base, days under 15 C), Germany: about 3100, from memory",
+        },
+    },
+];
+
+impl Climate {
+    /// A named climate, or None.
+    pub fn from_name(name: &str) -> Option<(&'static Named, Climate)> {
+        NAMED
+            .iter()
+            .find(|n| n.name == name)
+            .map(|n| (n, (n.climate)()))
+    }
+
+    /// Twelve monthly means from an annual mean and a swing (warmest month
+    /// minus coldest), coldest in `coldest_month` (0 = January): a cosine.
+    pub fn monthly_from_swing(mean_c: f64, swing_k: f64, coldest_month: usize) -> [f64; 12] {
+        std::array::from_fn(|m| {
+            let x = (m as f64 - coldest_month as f64) / 12.0 * std::f64::consts::TAU;
+            mean_c - 0.5 * swing_k * x.cos()
+        })
+    }
+
+    /// The smooth annual course through the monthly means.
+    pub fn annual_course(&self) -> Course {
+        Course::new(self)
+    }
+}
+
+/// Day of year (0-based, 365-day year) of each month's middle.
+fn mid_month_days() -> [f64; 12] {
+    const LEN: [f64; 12] = [
+        31.0, 28.0, 31.0, 30.0, 31.0, 30.0, 31.0, 31.0, 30.0, 31.0, 30.0, 31.0,
+    ];
+    let mut start = 0.0;
+    std::array::from_fn(|m| {
+        let mid = start + LEN[m] / 2.0;
+        start += LEN[m];
+        mid
+    })
+}
+
+/// A periodic piecewise-linear curve through one node per mid-month, the
+/// nodes set so each month's mean over the curve equals its monthly mean.
+pub struct Course {
+    mid: [f64; 12],
+    node: [f64; 12],
+    cold: (usize, f64),
+    warm: (usize, f64),
+    spread: (f64, f64),
+}
+
+impl Course {
+    fn new(c: &Climate) -> Course {
+        let mid = mid_month_days();
+        let target = c.monthly_mean_c;
+        let mut node = target;
+        // Jacobi steps on "mean of the curve over month m = target m":
+        // diagonally dominant (about (x[m-1] + 6 x[m] + x[m+1]) / 8), so it
+        // converges geometrically; 60 passes leave well under 1e-9 K.
+        for _ in 0..60 {
+            let probe = Course {
+                mid,
+                node,
+                cold: (0, 0.0),
+                warm: (0, 0.0),
+                spread: (0.0, 0.0),
+            };
+            let means = probe.monthly_means();
+            for m in 0..12 {
+                node[m] += target[m] - means[m];
+            }
+        }
+        let (mut cold, mut warm) = ((0, f64::MAX), (0, f64::MIN));
+        for (m, &t) in target.iter().enumerate() {
+            if t < cold.1 {
+                cold = (m, t);
+            }
+            if t > warm.1 {
+                warm = (m, t);
+            }
+        }
+        Course {
+            mid,
+            node,
+            cold,
+            warm,
+            spread: c.spread_k,
+        }
+    }
+
+    /// The temperature of the smooth course at day-of-year `d` (0 … 365).
+    pub fn at(&self, d: f64) -> f64 {
+        let d = d.rem_euclid(365.0);
+        let j = self.mid.iter().rposition(|&m| m <= d);
+        let (a, b) = match j {
+            Some(11) | None => (11, 0),
+            Some(j) => (j, j + 1),
+        };
+        let (da, db) = (self.mid[a], self.mid[b]);
+        let span = (db - da).rem_euclid(365.0);
+        let w = (d - da).rem_euclid(365.0) / span;
+        self.node[a] * (1.0 - w) + self.node[b] * w
+    }
+
+    /// The spread of daily departures at day-of-year `d`: the coldest
+    /// month's at its middle, the warmest month's at its, a half cosine
+    /// between.
+    pub fn spread_at(&self, d: f64) -> f64 {
+        let (c, w) = (self.mid[self.cold.0], self.mid[self.warm.0]);
+        let half = (w - c).rem_euclid(365.0);
+        let x = (d - c).rem_euclid(365.0);
+        let phase = if x <= half {
+            x / half
+        } else {
+            1.0 - (x - half) / (365.0 - half)
+        };
+        let k = 0.5 - 0.5 * (std::f64::consts::PI * phase).cos();
+        self.spread.0 * (1.0 - k) + self.spread.1 * k
+    }
+
+    /// Each month's mean of the curve (hourly samples).
+    fn monthly_means(&self) -> [f64; 12] {
+        const LEN: [usize; 12] = [31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31];
+        let mut out = [0.0; 12];
+        let mut day = 0usize;
+        for m in 0..12 {
+            let n = LEN[m] * 24;
+            let sum: f64 = (0..n)
+                .map(|h| self.at(day as f64 + (h as f64 + 0.5) / 24.0))
+                .sum();
+            out[m] = sum / n as f64;
+            day += LEN[m];
+        }
+        out
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_course_keeps_every_monthly_mean() {
+        for n in &NAMED {
+            let c = (n.climate)();
+            let means = c.annual_course().monthly_means();
+            for m in 0..12 {
+                assert!(
+                    (means[m] - c.monthly_mean_c[m]).abs() < 1e-6,
+                    "{} {m}",
+                    n.name
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn a_swing_gives_a_cosine_year() {
+        let m = Climate::monthly_from_swing(10.0, 20.0, 0);
+        assert!((m[0] - 0.0).abs() < 1e-12);
+        assert!((m[6] - 20.0).abs() < 1e-12);
+        assert!((m.iter().sum::<f64>() / 12.0 - 10.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn spread_runs_from_winter_to_summer() {
+        let c = (NAMED[0].climate)();
+        let course = c.annual_course();
+        assert!((course.spread_at(15.5) - 5.5).abs() < 1e-9);
+        assert!((course.spread_at(196.5) - 2.8).abs() < 1e-9);
+        let mid = course.spread_at(105.0);
+        assert!(mid > 2.8 && mid < 5.5);
+    }
+}
