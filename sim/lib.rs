@@ -29,3 +29,4 @@ pub mod thermal;
 pub mod units;
 pub mod waveform;
 pub mod weather;
+pub mod year;

@@ -227,6 +227,8 @@ pub struct Preview<'a> {
     pub scenario: &'a Scenario,
     /// What it will produce ([`figures`]).
     pub figures: Figures,
+    /// A calendar year of it (`validate --year`).
+    pub year: Option<crate::year::YearReport>,
 }
 
 impl<'a> Preview<'a> {
@@ -235,16 +237,32 @@ impl<'a> Preview<'a> {
         Preview {
             scenario: s,
             figures: figures(s),
+            year: None,
         }
+    }
+
+    /// The same, with a calendar year of the home ([`crate::year::report`]).
+    pub fn with_year(mut self) -> Self {
+        self.year = Some(crate::year::report(self.scenario));
+        self
     }
 }
 
 impl Render for Preview<'_> {
     fn to_text(&self) -> String {
-        text(self.scenario, &self.figures)
+        let mut o = text(self.scenario, &self.figures);
+        if let Some(y) = &self.year {
+            o += "\n";
+            o += &crate::year::render(self.scenario, y);
+        }
+        o
     }
     fn to_json(&self) -> serde_json::Value {
-        json(self.scenario, &self.figures)
+        let mut v = json(self.scenario, &self.figures);
+        if let Some(y) = &self.year {
+            v["year"] = crate::year::to_json(self.scenario, y);
+        }
+        v
     }
 }
 

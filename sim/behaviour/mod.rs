@@ -160,6 +160,11 @@ fn generate(app: &Appliance, clock: &Clock, rng: &mut crate::rng::Stream) -> Tim
 
 /// Timelines of every load of a scenario (appliances, then unmetered loads).
 pub fn timelines(s: &Scenario, steps: u64) -> Vec<Timeline> {
+    timelines_with_record(s, steps).0
+}
+
+/// [`timelines`], with what the heat balance added up to.
+pub fn timelines_with_record(s: &Scenario, steps: u64) -> (Vec<Timeline>, crate::thermal::Record) {
     let tz = jiff::tz::TimeZone::get(&s.home.timezone).expect("checked when parsed");
     let clock = Clock {
         steps,
@@ -168,7 +173,7 @@ pub fn timelines(s: &Scenario, steps: u64) -> Vec<Timeline> {
         tz: &tz,
     };
     let mut out: Vec<Timeline> = s.loads().map(|a| timeline(a, &clock, s.run.seed)).collect();
-    crate::thermal::drive(s, &mut out, steps, &tz);
+    let record = crate::thermal::drive(s, &mut out, steps, &tz);
     // A store follows the net power of everything else, so it comes last.
     let loads: Vec<&Appliance> = s.loads().collect();
     for (k, a) in loads.iter().enumerate() {
@@ -176,7 +181,7 @@ pub fn timelines(s: &Scenario, steps: u64) -> Vec<Timeline> {
             out[k] = storage::generate(b, &loads, &out, k, steps, s.run.step_s);
         }
     }
-    out
+    (out, record)
 }
 
 #[cfg(test)]

@@ -17,6 +17,11 @@ pub struct Args {
     /// Print nothing; the exit status says whether the scenario is valid.
     #[arg(long)]
     quiet: bool,
+    /// Also report a calendar year of the home (the year of its start): each
+    /// load's and the home's energy by month, next to the published figures
+    /// the scenario cites, and the year's weather.
+    #[arg(long)]
+    year: bool,
 }
 
 /// Loads the scenario and computes its figures; prints them unless quiet.
@@ -27,7 +32,10 @@ pub fn main(a: Args) -> ExitCode {
     };
     // `--quiet` computes everything plain `validate` does, so it accepts no
     // scenario that `validate` would refuse.
-    let preview = Preview::of(&s);
+    let mut preview = Preview::of(&s);
+    if a.year {
+        preview = preview.with_year();
+    }
     if !a.quiet {
         print(&preview, Form::from_flags(a.json, false));
     }

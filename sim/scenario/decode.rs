@@ -276,6 +276,10 @@ fn decode(
         weather.is_some(),
         building.is_some(),
     )?;
+    let references = match top.opt("reference") {
+        Some(n) => super::thermal::decode_references(ctx, n, &appliances, &unmetered)?,
+        None => vec![],
+    };
     top.finish()?;
     Ok(Scenario {
         name,
@@ -290,6 +294,7 @@ fn decode(
         warnings,
         weather,
         building,
+        references,
         source_toml: None,
     })
 }

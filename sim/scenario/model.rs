@@ -746,6 +746,19 @@ pub struct Waveforms {
     pub windows: Vec<WaveWindow>,
 }
 
+/// A published annual energy figure for part of the home (`[[reference]]`).
+#[derive(Clone, Debug, Serialize)]
+pub struct Reference {
+    /// What it covers ("space heating", "refrigerator", "home").
+    pub name: String,
+    /// The loads it covers (ids); empty: the whole home.
+    pub ids: Vec<String>,
+    /// The published energy a year, kWh.
+    pub kwh: f64,
+    /// Where the figure comes from.
+    pub source: String,
+}
+
 #[derive(Clone, Debug, Serialize)]
 pub struct Scenario {
     pub name: String,
@@ -769,6 +782,9 @@ pub struct Scenario {
     /// The building's heat balance and thermostat (`[building]`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub building: Option<crate::thermal::Building>,
+    /// Published figures the scenario cites for a year of the home.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub references: Vec<Reference>,
     /// The scenario text itself when it was generated (a fleet's home), so
     /// the dataset carries what rebuilds it alone with `loadloom run`.
     #[serde(skip)]

@@ -2,7 +2,7 @@
 //! and the roles of `behaviour = "thermostat"` appliances.
 
 use super::decode::parse_hours;
-use super::model::{Run, State};
+use super::model::{Appliance, Reference, Run, State};
 use super::reader::{Ctx, Table};
 use super::source::{Error, Node, Val};
 use crate::thermal::equipment::{HeatPump, Role};
@@ -174,10 +174,30 @@ fn decode_file(ctx: &Ctx, f: &Node, run: &Run) -> Result<WeatherSpec, Error> {
         .map_err(|e| ctx.err(f, "weather.file", e.message, e.help))?;
     let end = run.start_utc_ms + (run.length_s * 1000.0) as i64;
     if let Err(missing) = data.covers(run.start_utc_ms, end) {
-        let at = jiff::Timestamp::from_millisecond(missing)
-            .map(|t| t.to_string())
-            .unwrap_or_default();
-        return Err(ctx.err(f, "weather.file", format!("{} does not cover the run: nothing at or around {at} (UTC)", path.display()), "give weather from the run's start to its end, or move the run inside the file's period"));
+        let at = |ms: i64| {
+            jiff::Timestamp::from_millisecond(ms)
+                .map(|t| t.to_string())
+                .unwrap_or_default()
+        };
+        let what = if missing == run.start_utc_ms {
+            format!(
+                "it starts at {}, after the run's start {}",
+                at(data.time_ms[0]),
+                at(missing)
+            )
+        } else {
+            format!(
+                "it ends at {}, before the run's end {}",
+                at(missing),
+                at(end)
+            )
+        };
+        return Err(ctx.err(
+            f,
+            "weather.file",
+            format!("{} does not cover the run: {what} (UTC)", path.display()),
+            "give weather from the run's start to its end, or move the run inside the file's period",
+        ));
     }
     if data.longest_gap_ms() > 6 * 3_600_000 {
         return Err(ctx.err(
@@ -496,4 +516,59 @@ fn heat_pump(ctx: &Ctx, t: &Table) -> Result<HeatPump, Error> {
         defrost_every_s: every,
         defrost_length_s: length,
     })
+}
+
+/// `[[reference]]`: published annual energy figures, each naming the loads
+/// it covers (none: the whole home) and its source.
+pub fn decode_references(
+    ctx: &Ctx,
+    node: &Node,
+    apps: &[Appliance],
+    unmetered: &[Appliance],
+) -> Result<Vec<Reference>, Error> {
+    let mut out = Vec::new();
+    for (i, n) in ctx.array(node, "reference")?.iter().enumerate() {
+        let path = format!("reference[{i}]");
+        let t = ctx.table(n, &path)?;
+        let name = ctx
+            .string(
+                t.req("name", "what it covers, e.g. \"space heating\"")?,
+                &t.path_of("name"),
+            )?
+            .to_string();
+        let kwh = ctx.positive(
+            t.req("annual", "the published energy a year, e.g. \"450 kWh\"")?,
+            &t.path_of("annual"),
+            Kind::Energy,
+        )? / 3.6e6;
+        let source = ctx
+            .string(
+                t.req("source", "where the figure comes from")?,
+                &t.path_of("source"),
+            )?
+            .to_string();
+        let mut ids = Vec::new();
+        if let Some(l) = t.opt("ids") {
+            for (j, x) in ctx.array(l, &t.path_of("ids"))?.iter().enumerate() {
+                let id = ctx.string(x, &format!("{path}.ids[{j}]"))?;
+                if !apps.iter().chain(unmetered).any(|a| a.id == id) {
+                    return Err(ctx.err(
+                        x,
+                        &format!("{path}.ids[{j}]"),
+                        format!("no appliance or unmetered load \"{id}\""),
+                        "name loads of this home, or leave `ids` out for the whole home",
+                    ));
+                }
+                ids.push(id.to_string());
+            }
+        }
+        t.finish()?;
+        out.push(Reference {
+            name,
+            ids,
+            kwh,
+            source,
+        });
+    }
+    Ok(out)
 }

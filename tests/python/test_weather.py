@@ -1,0 +1,210 @@
+"""Weather and thermostatic heating checked from outside: the weather is
+written here with numpy and pandas (no loadloom code), the expected
+energies computed here from the textbook relations and the published
+curves, typed again from their sources.
+
+- Degree-day relation (textbook, e.g. ASHRAE Handbook Fundamentals,
+  degree-day method): heating energy = UA * degree-hours / COP, with the
+  degree-hours counted to the thermostat's setpoint when no other gains
+  warm the rooms.
+- Heat pump COP: Staffell, Brett, Brandon & Hawkes (2012), "A review of
+  domestic heat pumps", Energy Environ. Sci. 5, 9291, air-source fit
+  COP = 6.81 - 0.121 dT + 0.000630 dT^2 (from memory); capacity linear in
+  outdoor temperature through the 47 F and 17 F rating points (AHRI
+  210/240 bin method, from memory).
+- Named climates: monthly means and heating degree days against the
+  published normals (NOAA NCEI 1991-2020 normals, Deutscher Wetterdienst
+  1991-2020, Eurostat heating degree days; all from memory).
+"""
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from conftest import loadloom
+
+UA = 200.0  # W/K
+SET = 20.0  # °C
+
+
+def write_weather(path, temps, start="2027-01-01T00:00:00Z"):
+    """Hourly temperatures from `start`, in a CSV with UTC offsets."""
+    t = pd.date_range(start, periods=len(temps), freq="h", tz="UTC")
+    pd.DataFrame({"time": t.tz_convert("America/Chicago"), "temperature_c": temps}).to_csv(path, index=False)
+    return t
+
+
+def scenario(heater, days, weather="weather.csv"):
+    return f"""
+[home]
+label = "degree-day check (invented)"
+supply = "split-phase"
+timezone = "America/Chicago"
+source = {{ variation = "0 %", r = "0 ohm", x = "0 ohm", neutral_r = "0 ohm", neutral_x = "0 ohm" }}
+
+[run]
+start = "2027-01-02T00:00"
+length = "{days} d"
+step = "1 min"
+seed = 3
+
+[meter]
+interval = "1 min"
+
+[weather]
+file = "{weather}"
+
+[building]
+ua = "{UA} W/K"
+mass = "20 MJ/K"
+heating = "{SET} °C"
+deadband = "0.5 K"
+gains = "0 %"
+
+{heater}
+"""
+
+
+BASEBOARDS = """
+[[appliance]]
+id = "heater"
+wiring = "L1-L2"
+behaviour = "thermostat"
+role = "resistance"
+states = [ { name = "heating", power = "15 kW" } ]
+"""
+
+HEAT_PUMP = """
+[[appliance]]
+id = "heater"
+wiring = "L1-L2"
+load = "motor"
+behaviour = "thermostat"
+role = "heat-pump"
+cop = 3.5
+low_capacity = "90 %"
+lockout = "-40 °C"
+defrost = false
+states = [ { name = "heating", power = "3 kW", pf = 0.95 } ]
+"""
+
+
+def staffell_cop(t_out, rated_cop=3.5, sink=35.0):
+    """The published air-source fit through the rated COP at 8.33 °C."""
+    fit = lambda dt: 6.81 - 0.121 * dt + 0.000630 * dt**2
+    return rated_cop * fit(sink - t_out) / fit(sink - 8.333)
+
+
+def run_year_part(tmp_path, heater, temps, days, start="2027-01-01T00:00:00Z"):
+    times = write_weather(tmp_path / "weather.csv", temps, start)
+    (tmp_path / "home.toml").write_text(scenario(heater, days))
+    loadloom("run", tmp_path / "home.toml", "--out", tmp_path / "out", "--quiet")
+    truth = pd.read_parquet(tmp_path / "out" / "home" / "truth.parquet")
+    # The outdoor temperature at each minute, interpolated as the file says.
+    epoch = pd.Timestamp(0, tz="UTC")
+    ms = pd.Timedelta(milliseconds=1)
+    tm = ((truth["time"] - epoch) / ms).to_numpy() + 30_000  # the middle of each minute
+    th = ((times - epoch) / ms).to_numpy()
+    t_out = np.interp(tm, th, temps)
+    return truth, t_out
+
+
+def cold_spell(hours):
+    rng = np.random.default_rng(11)
+    h = np.arange(hours)
+    return -3 + 7 * np.sin(2 * np.pi * h / 24) + np.cumsum(rng.normal(0, 0.3, hours)).clip(-8, 8)
+
+
+@pytest.mark.parametrize("kind", ["resistance", "heat-pump"])
+def test_heating_energy_follows_the_degree_day_relation(tmp_path, kind):
+    days = 40
+    temps = cold_spell(24 * (days + 3))
+    truth, t_out = run_year_part(tmp_path, BASEBOARDS if kind == "resistance" else HEAT_PUMP, temps, days)
+    e = truth["heater_p_w"].to_numpy(dtype=float).sum() * 60.0  # J
+    deficit = np.clip(SET - t_out, 0, None)  # K, minute by minute
+    cop = 1.0 if kind == "resistance" else staffell_cop(t_out)
+    expected = (UA * deficit / cop).sum() * 60.0
+    # Tolerance 2 %: the thermostat's swing inside its 0.5 K band and the
+    # heat stored in the structure at the start, a few kWh of about 5 000.
+    assert abs(e / expected - 1) < 0.02, (e / 3.6e6, expected / 3.6e6)
+
+
+def test_heat_pump_input_at_its_rating_points_follows_the_published_curve(tmp_path):
+    # Three days at each rating point (47 F, 17 F) and at 0 °C: in the
+    # middle day the temperature is exactly that.
+    levels = [8.333, -8.333, 0.0]
+    temps = np.repeat(levels + [0.0], 72).astype(float)
+    # The file starts with the run (2027-01-02T00:00 in Chicago).
+    truth, t_out = run_year_part(tmp_path, HEAT_PUMP, temps, 9, start="2027-01-02T06:00:00Z")
+    p = truth["heater_p_w"].to_numpy(dtype=float)
+    state = truth["heater_state"].to_numpy()
+    for k, level in enumerate(levels):
+        day = slice((3 * k + 1) * 1440, (3 * k + 2) * 1440)
+        on = p[day][state[day] == "heating"]
+        on = on[on > 100]
+        assert len(on) > 30, level
+        cap_share = 1 + (1 - 0.9) / (8.333 + 8.333) * (level - 8.333)
+        expected = 3000.0 * cap_share * 3.5 / staffell_cop(level)
+        # 1 %: the input is held in steps of 1 % of the rated input.
+        assert np.abs(on / expected - 1).max() < 0.01, (level, on.mean(), expected)
+
+
+# Published normals, typed here from the sources (from memory).
+NORMALS = {
+    # NOAA NCEI 1991-2020 monthly normals, Great Lakes airport (°F); HDD base 65 °F.
+    "lakeshore": ([25.2, 28.8, 39.0, 49.7, 60.6, 70.6, 75.4, 73.9, 66.4, 53.8, 41.1, 30.5], "F", 6300, "America/Chicago"),
+    # NOAA NCEI 1991-2020, Mid-Atlantic city park station (°F); HDD base 65 °F.
+    "harbour": ([33.7, 35.9, 42.8, 53.7, 63.2, 72.0, 77.5, 76.1, 69.2, 57.9, 48.0, 38.1], "F", 4600, "America/New_York"),
+    # Deutscher Wetterdienst, German area mean 1991-2020 (°C); Eurostat HDD
+    # (base 18 °C, days under 15 °C), Germany.
+    "rhineland": ([0.9, 1.5, 4.7, 9.0, 13.1, 16.4, 18.3, 17.9, 13.9, 9.4, 4.9, 1.9], "C", 3100, "Europe/Berlin"),
+}
+
+
+@pytest.mark.parametrize("name", sorted(NORMALS))
+def test_synthetic_years_keep_the_normals_they_came_from(tmp_path, name):
+    means, unit, hdd_normal, zone = NORMALS[name]
+    means = np.array(means)
+    if unit == "F":
+        means = (means - 32) * 5 / 9
+    daily = []
+    seeds = 30
+    for seed in range(seeds):
+        text = f"""
+[home]
+supply = "split-phase"
+timezone = "{zone}"
+[run]
+start = "2027-01-01T00:00"
+length = "1 d"
+step = "1 min"
+seed = {seed}
+[weather]
+climate = "{name}"
+[[appliance]]
+id = "lamp"
+wiring = "L1-N"
+behaviour = "steady"
+states = [ {{ name = "on", power = "10 W" }} ]
+"""
+        p = tmp_path / f"{name}{seed}.toml"
+        p.write_text(text)
+        year = json.loads(loadloom("validate", "--year", "--json", p).stdout)["year"]
+        daily.append(np.array(year["weather"]["daily_mean_c"]))
+    days = pd.date_range("2027-01-01", periods=365, freq="D")
+    # Monthly means over 30 synthetic years: within 1.2 K of the normal.
+    # A winter month's mean departure in one year has a standard deviation
+    # of about 2.3 K (daily spread 5 K, lag-1 correlation 0.7: 5 K times
+    # sqrt(1.7 / 0.3 / 28)); over 30 years 0.4 K, so 1.2 K is 3 of them.
+    for m in range(12):
+        sel = days.month == m + 1
+        got = np.mean([d[:365][sel].mean() for d in daily])
+        assert abs(got - means[m]) < 1.2, (name, m + 1, got, means[m])
+    # Heating degree days as each source counts them, from daily means.
+    if unit == "F":
+        hdd = [np.clip(65 - (d * 9 / 5 + 32), 0, None).sum() for d in daily]
+    else:
+        hdd = [np.where(d < 15, 18 - d, 0).sum() for d in daily]
+    # 10 %: the normals' own year-to-year spread is about 8 % (from memory).
+    assert abs(np.mean(hdd) / hdd_normal - 1) < 0.10, (name, np.mean(hdd), hdd_normal)
