@@ -331,6 +331,8 @@ fn rated_voltage_warnings(a: &Appliance) -> Option<String> {
         }
     }
     None
+}
+
 /// Thermostatic appliances need the weather and the building, and a home
 /// has at most one heat pump (one outdoor unit per thermostat).
 fn check_thermostats(

@@ -444,7 +444,10 @@ pub fn drive(s: &Scenario, tl: &mut [Timeline], steps: u64, tz: &jiff::tz::TimeZ
     }
     rec.cold_share = cold as f64 / n as f64;
     for u in units {
-        tl[u.load] = Timeline { segments: u.segs };
+        tl[u.load] = Timeline {
+            segments: u.segs,
+            level: Vec::new(),
+        };
     }
     rec
 }
