@@ -4,6 +4,7 @@
 
 use crate::dataset::Format;
 use crate::pipeline;
+use crate::scenario::model::DropMode;
 use crate::scenario::Scenario;
 use serde_json::{json, Value};
 use solver_check::render::Render;
@@ -48,6 +49,26 @@ pub fn scenario_paths(scenario: Option<&Path>, suite: bool) -> Result<Vec<PathBu
             v.sort();
             Ok(v)
         }
+    }
+}
+
+/// The round trip cuts meters and truth at the same rows, so the meters
+/// table must keep a row per interval: dropouts written as missing rows
+/// are refused before anything is simulated (as null readings they are fine).
+pub fn check_meter_rows(scenarios: &[Scenario]) -> Result<(), String> {
+    let gapped = |s: &&Scenario| {
+        s.faults
+            .dropouts
+            .as_ref()
+            .is_some_and(|d| d.mode == DropMode::Missing)
+    };
+    match scenarios.iter().find(gapped) {
+        Some(s) => Err(format!(
+            "{}: [faults] dropouts with as = \"missing\" leave rows out of the meters table, \
+             and a round trip needs a meters row per interval; write them as = \"null\"",
+            s.name
+        )),
+        None => Ok(()),
     }
 }
 

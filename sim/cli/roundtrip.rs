@@ -226,6 +226,7 @@ fn plan(a: &Args, scenarios: &[Scenario], solver: Solver) -> Result<Plan, String
         _ => return Err(format!("--train {} --test {} --timeout {}: write durations such as 14d, 7d and 10m (test and timeout above zero)", a.train, a.test, a.timeout)),
     };
     rt::check_periods(scenarios, train_s, test_s, a.suite)?;
+    rt::check_meter_rows(scenarios)?;
     let out_abs = std::path::absolute(&a.out).unwrap_or_else(|_| a.out.clone());
     if let Some(p) = a
         .allow_read

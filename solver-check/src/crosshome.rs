@@ -19,7 +19,7 @@ use crate::roundtrip::{
     Failure, Reveal, Run, Solver,
 };
 use crate::score::{overall_scores, ApplianceReport, Report};
-use crate::taskio::{create_fresh, split_rows};
+use crate::taskio::{create_fresh, parquet_rows, split_rows};
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant};
@@ -98,13 +98,6 @@ fn copy_table(ds: &Dataset, table: &str, dst: &Path) -> std::io::Result<(usize, 
     let rows = parquet_rows(&src)?;
     let mut done = split_rows(&src, &[(dst, 0..rows)])?;
     Ok(done.remove(0))
-}
-
-fn parquet_rows(path: &Path) -> std::io::Result<usize> {
-    use parquet::file::reader::FileReader;
-    let r = parquet::file::reader::SerializedFileReader::new(std::fs::File::open(path)?)
-        .map_err(io_other)?;
-    Ok(r.metadata().file_metadata().num_rows().max(0) as usize)
 }
 
 /// Writes the cross-home task under `work`: the training homes' meters and

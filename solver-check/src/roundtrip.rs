@@ -429,6 +429,7 @@ pub fn prepare(
             split.train, split.test, ds.rows
         )));
     }
+    refuse_gapped_meters(&ds)?;
     let confine = std::env::var("LOADLOOM_CONFINE").map_or(true, |v| v != "off");
     let truth_dir = work.join("test-truth");
     let scored = write_tables(&ds, &work.join("task"), &truth_dir, split)?;
@@ -450,6 +451,24 @@ pub fn prepare(
         estimate_name: estimate_name.to_string(),
         confine,
     })
+}
+
+/// The task's periods are cut by row, the same rows of meters and truth;
+/// a meters table with fewer rows than the truth (dropouts written as
+/// missing rows) would cut the meters at the wrong times, so it is refused.
+fn refuse_gapped_meters(ds: &Dataset) -> std::io::Result<()> {
+    let path = ds.dir.join("meters.parquet");
+    let rows = crate::taskio::parquet_rows(&path)?;
+    if rows as u64 == ds.rows {
+        return Ok(());
+    }
+    Err(std::io::Error::other(format!(
+        "{}: {rows} meter rows for {} truth rows (dropouts written as missing rows); \
+         a round trip needs a meters row per interval: write the dropouts with \
+         `as = \"null\"` in [faults]",
+        path.display(),
+        ds.rows
+    )))
 }
 
 /// The last `lines` lines of a log, indented.

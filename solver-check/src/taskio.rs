@@ -60,6 +60,14 @@ fn io_err(e: impl std::fmt::Display) -> io::Error {
     io::Error::other(e.to_string())
 }
 
+/// Rows of a Parquet file, from its footer.
+pub fn parquet_rows(path: &Path) -> io::Result<usize> {
+    use parquet::file::reader::FileReader;
+    let r = parquet::file::reader::SerializedFileReader::new(std::fs::File::open(path)?)
+        .map_err(io_err)?;
+    Ok(r.metadata().file_metadata().num_rows().max(0) as usize)
+}
+
 /// Copies rows `from..to` of a Parquet table to `dst`, schema and units kept.
 pub fn copy_rows(src: &Path, dst: &Path, from: usize, to: usize) -> io::Result<usize> {
     let (rows, _, _) = split_rows(src, &[(dst, from..to)])?

@@ -211,3 +211,21 @@ def test_task_and_scored_truth_are_exact_slices_of_the_dataset(tmp_path, source)
         want = full.slice(0, 86400) if part == "train" else full.slice(86400)
         assert got.num_rows == want.num_rows and got.to_pandas().equals(want.to_pandas()), (table, part)
         assert got.schema.field("time").type == full.schema.field("time").type
+
+
+def test_meters_with_missing_rows_are_refused_before_simulating(tmp_path):
+    # The task is cut at the same rows of meters and truth, so dropouts left
+    # out of the meters table would shift every test reading: refused, exit 2.
+    text = DEMO.read_text().replace(
+        "[meter]",
+        '[faults]\ndropouts = { rate = "5 %", length = { median = "10 min", spread = 0.8 }, as = "missing" }\n\n[meter]',
+        1,
+    )
+    assert "dropouts" in text
+    home = tmp_path / "gapped.toml"
+    home.write_text(text)
+    out = tmp_path / "out"
+    p = loadloom("roundtrip", home, "--solver", "builtin:training-mean", "--train", "1d", "--test", "1d", "--out", out, check=False)
+    assert p.returncode == 2, p.stderr
+    assert 'as = "missing"' in p.stderr and 'as = "null"' in p.stderr, p.stderr
+    assert not out.exists() or not any(out.iterdir())
