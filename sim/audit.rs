@@ -250,7 +250,9 @@ pub fn observe(s: &Scenario) -> Observed {
         o.events.sort_by_key(|e| (e.app, e.start_step));
         for w in o.events.windows(2) {
             let (a, b) = (&w[0], &w[1]);
-            if a.app != b.app || b.app >= changes.len() || a.state == b.state {
+            // Loads only: the PV and the battery follow the declared ones in
+            // `s.appliances` and are not part of a declaration.
+            if a.app != b.app || b.app >= d.appliances.len() || a.state == b.state {
                 continue;
             }
             let app = &d.appliances[b.app];
@@ -692,7 +694,12 @@ pub fn run_matrix(
     progress: &mut dyn FnMut(&str),
 ) -> Vec<Case> {
     let mut cases = Vec::new();
-    for (name, base) in scenarios {
+    // Homes with PV or a battery are left out: the audit does not model
+    // generation yet, so its recall there would measure that, not it.
+    for (name, base) in scenarios
+        .iter()
+        .filter(|(_, s)| s.consumers().count() == s.appliances.len())
+    {
         let mut base = base.clone();
         base.run.length_s = opts.days * 86_400.0;
         base.unmetered.clear();
