@@ -4,14 +4,13 @@
 //! simulates them, audits them and scores the findings against the truth.
 
 use crate::behaviour::timelines;
-use crate::scenario::{self, Behaviour, Connection, Dist, DropMode, Dropouts, Scenario, NEUTRAL};
+use crate::scenario::{self, Behaviour, Dist, DropMode, Dropouts, Scenario};
 use crate::simulate::simulate;
 use serde_json::{json, Value};
 use solver_check::audit::check::{self, Outcome};
-use solver_check::audit::decl::{
-    Cx, DeclAppliance, DeclChannel, DeclDraw, Declared, Steps, Supply, Wiring,
-};
+use solver_check::audit::decl::{DeclAppliance, DeclChannel, DeclDraw, Declared, Steps, Supply};
 use solver_check::audit::events::{ChannelStats, Detector, Event};
+use solver_check::contract::{line_name, Wiring, C64};
 use std::path::Path;
 
 /// Reads a declaration: a scenario file, whose `[run]` may be left out,
@@ -45,23 +44,6 @@ pub fn load_declaration(path: &Path) -> Result<Declared, scenario::Error> {
     Ok(d)
 }
 
-fn wiring(c: Connection) -> Wiring {
-    match c {
-        Connection::ThreePhase => Wiring::ThreePhase,
-        Connection::Pair(a, b) if a == NEUTRAL => Wiring::LineNeutral(b as usize),
-        Connection::Pair(a, b) if b == NEUTRAL => Wiring::LineNeutral(a as usize),
-        Connection::Pair(a, b) => Wiring::LineLine(a as usize, b as usize),
-    }
-}
-
-fn zip(z: crate::scenario::Zip) -> solver_check::audit::decl::Zip {
-    solver_check::audit::decl::Zip {
-        z: z.z,
-        i: z.i,
-        p: z.p,
-    }
-}
-
 /// A program phase no longer than this may be passed over at long
 /// intervals (it can fit inside the rows either side of a step), s.
 pub const SHORT_PHASE_S: f64 = 30.0;
@@ -71,8 +53,7 @@ pub const SHORT_PHASE_S: f64 = 30.0;
 /// faults, which are what really happened).
 pub fn declared(s: &Scenario) -> Declared {
     let supply = Supply {
-        kind: s.home.supply.name().into(),
-        angles_deg: s.home.supply.angles_deg().to_vec(),
+        kind: s.home.supply,
         voltage_v: s.home.voltage_v,
         service_a: s.home.service_a,
     };
@@ -87,10 +68,10 @@ pub fn declared(s: &Scenario) -> Declared {
                     st.draws
                         .iter()
                         .map(|d| DeclDraw {
-                            wiring: wiring(d.wiring),
-                            s: Cx::new(d.p_w, d.q_var),
-                            zip_p: zip(d.zip_p),
-                            zip_q: zip(d.zip_q),
+                            wiring: d.wiring,
+                            s: C64::new(d.p_w, d.q_var),
+                            zip_p: d.zip_p,
+                            zip_q: d.zip_q,
                             rated_v: d.rated_v,
                         })
                         .collect()
@@ -392,10 +373,6 @@ pub struct Case {
     pub why: Vec<String>,
 }
 
-fn chan(c: usize) -> String {
-    format!("l{}", c + 1)
-}
-
 /// Lines some declared appliance draws through.
 fn loaded_lines(d: &Declared) -> Vec<usize> {
     let n = d.supply.lines();
@@ -425,10 +402,10 @@ fn meter_faults(d: &Declared) -> Vec<Injection> {
     };
     for &x in &lines {
         v.push((
-            format!("CT {} reversed", chan(x)),
+            format!("CT {} reversed", line_name(x)),
             Mistake {
                 kind: "reversed-ct",
-                subject: chan(x),
+                subject: line_name(x),
                 load: None,
             },
             Box::new(move |s| s.faults.ct.push(ct(x, true, None))),
@@ -438,10 +415,10 @@ fn meter_faults(d: &Declared) -> Vec<Injection> {
         for &b in &lines {
             if a != b {
                 v.push((
-                    format!("CT {} on L{}", chan(a), b + 1),
+                    format!("CT {} on L{}", line_name(a), b + 1),
                     Mistake {
                         kind: "ct-on-other-conductor",
-                        subject: chan(a),
+                        subject: line_name(a),
                         load: None,
                     },
                     Box::new(move |s| s.faults.ct.push(ct(a, false, Some(b)))),
@@ -451,7 +428,7 @@ fn meter_faults(d: &Declared) -> Vec<Injection> {
     }
     for (i, &a) in lines.iter().enumerate() {
         for &b in &lines[i + 1..] {
-            let pair = format!("{}+{}", chan(a), chan(b));
+            let pair = format!("{}+{}", line_name(a), line_name(b));
             v.push((
                 format!("CTs {pair} exchanged"),
                 Mistake {
@@ -477,10 +454,10 @@ fn meter_faults(d: &Declared) -> Vec<Injection> {
     }
     for &x in &lines {
         v.push((
-            format!("no CT on {}", chan(x)),
+            format!("no CT on {}", line_name(x)),
             Mistake {
                 kind: "no-ct",
-                subject: chan(x),
+                subject: line_name(x),
                 load: None,
             },
             Box::new(move |s| s.faults.no_ct = Some(x)),
@@ -511,7 +488,7 @@ fn declaration_mistakes(d: &Declared, j: usize) -> Vec<(String, Mistake, Declare
             Wiring::LineNeutral(x) if lines.len() > 1 => {
                 let y = next(x);
                 v.push((
-                    format!("{} declared on L{}-N", a.id, y + 1),
+                    format!("{} declared on {}", a.id, Wiring::LineNeutral(y).name()),
                     Mistake {
                         kind: "wrong-line",
                         subject: a.id.clone(),
@@ -519,19 +496,20 @@ fn declaration_mistakes(d: &Declared, j: usize) -> Vec<(String, Mistake, Declare
                     },
                     with(Wiring::LineNeutral(y)),
                 ));
+                let w = Wiring::line_line(x, y, n);
                 v.push((
-                    format!("{} declared L{}-L{}", a.id, x.min(y) + 1, x.max(y) + 1),
+                    format!("{} declared {}", a.id, w.name()),
                     Mistake {
                         kind: "declared-ll-seen-ln",
                         subject: a.id.clone(),
                         load: None,
                     },
-                    with(Wiring::LineLine(x.min(y), x.max(y))),
+                    with(w),
                 ));
             }
             Wiring::LineLine(x, y) => {
                 v.push((
-                    format!("{} declared L{}-N", a.id, x + 1),
+                    format!("{} declared {}", a.id, Wiring::LineNeutral(x).name()),
                     Mistake {
                         kind: "declared-ln-seen-ll",
                         subject: a.id.clone(),
@@ -541,7 +519,7 @@ fn declaration_mistakes(d: &Declared, j: usize) -> Vec<(String, Mistake, Declare
                 ));
                 if n == 3 && lines.len() == 3 {
                     let z = 3 - x - y;
-                    let w = Wiring::LineLine(y.min(z), y.max(z));
+                    let w = Wiring::line_line(y, z, n);
                     v.push((
                         format!("{} declared {}", a.id, w.name()),
                         Mistake {

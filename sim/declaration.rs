@@ -9,7 +9,8 @@
 
 use crate::scenario::{Error, LoadKind};
 use crate::units::{parse_quantity, Kind};
-use solver_check::audit::decl::{Cx, DeclAppliance, DeclDraw, Steps, Supply, Wiring, Zip};
+use solver_check::audit::decl::{DeclAppliance, DeclDraw, Steps, Supply};
+use solver_check::contract::{Wiring, C64};
 use std::ops::Range;
 use std::path::Path;
 
@@ -44,17 +45,14 @@ impl Short {
     /// The appliance in the audit's terms on `supply`: off, or on at its
     /// power (rescaled by its load kind's ZIP model from `rated`).
     pub fn appliance(&self, supply: &Supply) -> DeclAppliance {
-        let (zp, zq) = (
-            zip(self.load.default_zip_p()),
-            zip(self.load.default_zip_q()),
-        );
+        let (zp, zq) = (self.load.default_zip_p(), self.load.default_zip_q());
         let u = self
             .rated_v
             .map(|r| supply.nominal_across(self.wiring) / r)
             .unwrap_or(1.0);
         let draw = DeclDraw {
             wiring: self.wiring,
-            s: Cx::new(self.p_w * zp.factor(u), self.q_var * zq.factor(u)),
+            s: C64::new(self.p_w * zp.factor(u), self.q_var * zq.factor(u)),
             zip_p: zp,
             zip_q: zq,
             rated_v: self.rated_v,
@@ -65,14 +63,6 @@ impl Short {
             states: vec![vec![], vec![draw]],
             steps: Steps::Jumps(vec![(0, 1, 1.0, 1.0), (1, 0, 1.0, 1.0)]),
         }
-    }
-}
-
-fn zip(z: crate::scenario::Zip) -> Zip {
-    Zip {
-        z: z.z,
-        i: z.i,
-        p: z.p,
     }
 }
 
@@ -269,25 +259,6 @@ fn quantity(
     })
 }
 
-/// A connection as written: `L1-N`, `N-L2`, `L1-L2`, `3P`, on `lines` lines.
-fn connection(s: &str, lines: usize) -> Option<Wiring> {
-    let line = |p: &str| {
-        p.strip_prefix('L')
-            .and_then(|d| d.parse::<usize>().ok())
-            .filter(|&k| k >= 1 && k <= lines)
-            .map(|k| k - 1)
-    };
-    if s == "3P" {
-        return (lines == 3).then_some(Wiring::ThreePhase);
-    }
-    let (a, b) = s.split_once('-')?;
-    match (line(a), line(b), a == "N", b == "N") {
-        (Some(x), None, _, true) | (None, Some(x), true, _) => Some(Wiring::LineNeutral(x)),
-        (Some(x), Some(y), _, _) if x != y => Some(Wiring::LineLine(x.min(y), x.max(y))),
-        _ => None,
-    }
-}
-
 /// One short entry, appliance number `k` of the file.
 fn read_short(
     path: &Path,
@@ -327,7 +298,7 @@ fn read_short(
             "add wiring = \"L1-N\" (or L2-N, L1-L2, 3P ...)",
         )
     })?;
-    let wiring = connection(ws, lines).ok_or_else(|| {
+    let wiring = Wiring::parse(ws, lines).map_err(|_| {
         err_at(
             path,
             text,

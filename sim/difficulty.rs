@@ -8,10 +8,10 @@
 //! - the share of energy drawn line-to-line, and the share unmetered.
 
 use crate::behaviour::Timeline;
-use crate::dataset::schema::line_name;
 use crate::electrical::split::state_split;
-use crate::scenario::{Connection, Role, Scenario};
+use crate::scenario::{Role, Scenario, Wiring};
 use serde_json::{json, Value};
+use solver_check::contract::line_name;
 
 pub struct Ambiguous {
     pub line: usize,
@@ -126,7 +126,7 @@ pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficult
         .filter(|(a, _)| {
             a.connections()
                 .iter()
-                .any(|c| c.is_line_to_line() || *c == Connection::ThreePhase)
+                .any(|c| c.is_line_to_line() || *c == Wiring::ThreePhase)
         })
         .map(|(_, e)| e)
         .sum();

@@ -17,6 +17,7 @@ use crate::scenario::{library, Scenario};
 use crate::units::Kind;
 use rand::Rng;
 use serde_json::{json, Value};
+use solver_check::contract::FLEET_FORMAT;
 use std::path::{Path, PathBuf};
 
 #[derive(Clone, Debug)]
@@ -922,7 +923,7 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
         })
         .collect();
     let summary = json!({
-        "format": "loadloom-fleet/2",
+        "format": FLEET_FORMAT,
         "population": pop.path.display().to_string(),
         "label": pop.label,
         "seed": pop.seed,

@@ -139,7 +139,7 @@ impl MeterModel {
             let sign = if f.reversed { -1.0 } else { 1.0 };
             ct[f.line] = (
                 f.on.unwrap_or(f.line),
-                C64::polar(sign * (1.0 + f.gain), f.phase_deg),
+                C64::polar_deg(sign * (1.0 + f.gain), f.phase_deg),
             );
         }
         MeterModel {

@@ -7,6 +7,7 @@ use crate::pipeline;
 use crate::scenario::model::DropMode;
 use crate::scenario::Scenario;
 use serde_json::{json, Value};
+use solver_check::contract::{line_name, SUITE_FORMAT};
 use solver_check::render::Render;
 use solver_check::roundtrip::{Outcome, Prepared, Reveal, Solver, Split};
 use solver_check::score::Report;
@@ -191,15 +192,13 @@ pub struct Rung {
 /// of the home's energy: modulating, constant-power, a reflected walk within
 /// [50 %, 100 %] of their rating (mean 75 %), updated every 5 min.
 pub fn add_background(s: &mut Scenario, share: f64) {
-    use crate::scenario::{
-        connection_voltage, Appliance, Behaviour, Connection, Draw, LoadKind, State, NEUTRAL,
-    };
+    use crate::scenario::{Appliance, Behaviour, Draw, LoadKind, State, Wiring};
     let f = crate::summary::figures(s);
     let mean_w: f64 = f.apps.iter().map(|a| a.kwh_per_day).sum::<f64>() * 1000.0 / 24.0;
     let target_w = mean_w * share / (1.0 - share);
     let n = s.home.supply.lines();
     for x in 0..n {
-        let wiring = Connection::Pair(x as u8, NEUTRAL);
+        let wiring = Wiring::LineNeutral(x);
         let rated = target_w / n as f64 / 0.75;
         let k = LoadKind::Electronic;
         let draw = Draw {
@@ -209,12 +208,12 @@ pub fn add_background(s: &mut Scenario, share: f64) {
             load: k,
             zip_p: k.default_zip_p(),
             zip_q: k.default_zip_q(),
-            nominal_v: connection_voltage(&s.home, wiring),
+            nominal_v: wiring.nominal_v(s.home.supply, s.home.voltage_v),
             rated_v: None,
             harmonics: k.default_harmonics(),
         };
         s.unmetered.push(Appliance {
-            id: format!("background_l{}", x + 1),
+            id: format!("background_{}", line_name(x)),
             label: "unlisted background loads".into(),
             template: None,
             end_use: "other".into(),
@@ -519,7 +518,7 @@ impl Render for Suite {
 
     fn to_json(&self) -> Value {
         json!({
-            "format": "loadloom-suite/1",
+            "format": SUITE_FORMAT,
             "rows": self.rows.iter().map(|r| match (&r.result, &r.skipped) {
                 (Ok(rep), _) => json!({ "scenario": r.scenario, "rung": r.rung, "overall": rep.overall.to_json(), "report": rep.to_json() }),
                 (Err(_), Some(why)) => json!({ "scenario": r.scenario, "rung": r.rung, "skipped": why }),

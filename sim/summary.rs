@@ -5,10 +5,10 @@
 //! against the service rating.
 
 use crate::behaviour::timelines;
-use crate::dataset::schema::line_name;
 use crate::electrical::split::state_split;
 use crate::pipeline::Written;
 use crate::scenario::Scenario;
+use solver_check::contract::line_label;
 use solver_check::render::Render;
 
 /// Printed wherever loadloom speaks of wiring, loading or breakers (one text
@@ -97,7 +97,7 @@ pub fn figures(s: &Scenario) -> Figures {
         apps,
         lines: (0..n)
             .map(|x| LineFigures {
-                name: line_name(x).to_uppercase(),
+                name: line_label(x),
                 peak_a: peak_a[x],
             })
             .collect(),

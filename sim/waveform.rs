@@ -9,9 +9,10 @@
 //! 1 + (peak − 1)·e^(−t/τ), whose step mean is what the meter sees. The
 //! neutral current is minus the sum of the line currents, sample by sample.
 
-use crate::electrical::{Network, Terminals, C64};
-use crate::scenario::{Inrush, Scenario, NEUTRAL};
+use crate::electrical::{Network, Terminals, C64, NEUTRAL};
+use crate::scenario::{Inrush, Scenario};
 use serde_json::{json, Value};
+use solver_check::contract::{line_name, NEUTRAL_NAME};
 use std::io::{self, BufWriter};
 use std::path::{Path, PathBuf};
 
@@ -145,7 +146,7 @@ impl Recorder {
                 }
                 let (mag, ang) = (i.abs(), i.im.atan2(i.re));
                 let mut add = |h: u32, m: f64, phi: f64| {
-                    let c = C64::polar(m * mag, (h as f64 * ang).to_degrees() + phi);
+                    let c = C64::polar_deg(m * mag, (h as f64 * ang).to_degrees() + phi);
                     if el.a != NEUTRAL {
                         target[el.a as usize][idx(h)] += c;
                     }
@@ -166,7 +167,7 @@ impl Recorder {
         self.buf.clear();
         for s in 0..self.per_step {
             let tau = t0 + s as f64 / self.rate;
-            let e1 = C64::polar(1.0, (self.omega * tau).to_degrees());
+            let e1 = C64::polar_deg(1.0, (self.omega * tau).to_degrees());
             let e2 = e1 * e1;
             e[0] = e1;
             for o in 1..n_orders {
@@ -216,12 +217,12 @@ impl Recorder {
         }
         let mut names: Vec<(String, &str, f64)> = Vec::new();
         for x in 0..self.lines {
-            names.push((format!("l{}_v", x + 1), "V", self.scale_v));
+            names.push((format!("{}_v", line_name(x)), "V", self.scale_v));
         }
         for x in 0..self.lines {
-            names.push((format!("l{}_i", x + 1), "A", self.scale_i));
+            names.push((format!("{}_i", line_name(x)), "A", self.scale_i));
         }
-        names.push(("n_i".into(), "A", self.scale_i));
+        names.push((format!("{NEUTRAL_NAME}_i"), "A", self.scale_i));
         let mut out = Vec::new();
         for w in self.windows {
             w.out.finalize().map_err(wav_error)?;

@@ -2,7 +2,7 @@
 //! names its source.
 
 use loadloom::electrical::{nominal_phasors, C64};
-use loadloom::scenario::{connection_voltage, load_str, Connection, Scenario};
+use loadloom::scenario::{load_str, Scenario, Wiring};
 use loadloom::simulate::simulate;
 use std::path::Path;
 
@@ -104,7 +104,7 @@ fn supply_voltages_and_the_sqrt3_relation() {
             "{supply} {v_ln}: |V1 - V2| = {v_ll}"
         );
         assert!(close(
-            connection_voltage(&s.home, Connection::Pair(0, 1)),
+            Wiring::LineLine(0, 1).nominal_v(s.home.supply, s.home.voltage_v),
             v_ll,
             1e-12
         ));

@@ -3,13 +3,14 @@
 //! per-conductor split, meter settings, faults, files with row counts and
 //! sha256, and a summary.
 
-use super::schema::{line_name, Col, FORMAT};
+use super::schema::Col;
 use super::tables::Tables;
 use crate::electrical::split::state_split;
-use crate::scenario::{Appliance, Behaviour, Role, Scenario};
+use crate::scenario::{Appliance, Behaviour, Role, Scenario, Wiring};
 use crate::simulate::Outcome;
 use serde_json::{json, Map, Value};
 use sha2::{Digest, Sha256};
+use solver_check::contract::{line_name, DATASET_FORMAT, NEUTRAL_NAME};
 use std::io::{self, Read};
 use std::path::Path;
 
@@ -58,7 +59,7 @@ fn appliance_json(s: &Scenario, a: &Appliance, o: &Outcome, k: usize) -> Value {
         "wiring": a.wiring.name(),
         "connections": a.connections().iter().map(|c| c.name()).collect::<Vec<_>>(),
         "conductors": lines.iter().map(|&x| line_name(x)).collect::<Vec<_>>(),
-        "line_to_line": a.connections().iter().any(|c| c.is_line_to_line() || *c == crate::scenario::Connection::ThreePhase),
+        "line_to_line": a.connections().iter().any(|c| c.is_line_to_line() || *c == Wiring::ThreePhase),
         "on_threshold_w": a.on_threshold_w,
         "states": states,
         "energy_kwh": o.summary.app_energy_j[k] / 3.6e6,
@@ -163,13 +164,13 @@ pub fn build(
         .sum::<f64>()
         / 3.6e6;
     Ok(json!({
-        "format": FORMAT,
+        "format": DATASET_FORMAT,
         "generator": { "name": "loadloom", "version": env!("CARGO_PKG_VERSION") },
         "seed": s.run.seed,
         "scenario": s,
         "supply": {
             "kind": s.home.supply.name(),
-            "conductors": (0..lines).map(line_name).chain(std::iter::once("n".to_string())).collect::<Vec<_>>(),
+            "conductors": (0..lines).map(line_name).chain(std::iter::once(NEUTRAL_NAME.to_string())).collect::<Vec<_>>(),
             "voltage_ln_v": s.home.voltage_v,
             "voltage_ll_v": ll_v,
             "frequency_hz": s.home.frequency_hz,
@@ -210,7 +211,7 @@ pub fn build(
             "unmetered_energy_share": card.unmetered_share,
             "difficulty": card.to_json(s),
             "conductor_energy_kwh": (0..lines).map(|x| (line_name(x), json!(o.summary.line_energy_j[x] / 3.6e6))).collect::<Map<_, _>>(),
-            "conductor_peak_current_a": (0..lines).map(|x| (line_name(x), json!(o.summary.line_peak_a[x]))).chain(std::iter::once(("n".to_string(), json!(o.summary.neutral_peak_a)))).collect::<Map<_, _>>(),
+            "conductor_peak_current_a": (0..lines).map(|x| (line_name(x), json!(o.summary.line_peak_a[x]))).chain(std::iter::once((NEUTRAL_NAME.to_string(), json!(o.summary.neutral_peak_a)))).collect::<Map<_, _>>(),
             "events": o.events.len(),
         },
     }))

@@ -1,12 +1,11 @@
 //! The dataset contract (`loadloom-dataset/1`), declared once: the columns of
-//! each table with their unit. Parquet and CSV writers both follow it.
+//! each table with their unit (names from `solver_check::contract::columns`). Parquet and CSV writers both follow it.
 
 use crate::scenario::Scenario;
 use arrow_schema::{DataType, Field, Schema, TimeUnit};
+use solver_check::contract::{columns, line_name};
 use std::collections::HashMap;
 use std::sync::Arc;
-
-pub const FORMAT: &str = "loadloom-dataset/1";
 
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum ColKind {
@@ -46,10 +45,6 @@ fn reading(name: impl Into<String>, unit: &'static str, kind: ColKind) -> Col {
     }
 }
 
-pub fn line_name(x: usize) -> String {
-    format!("l{}", x + 1)
-}
-
 /// The shape of a dataset's tables.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Form {
@@ -87,24 +82,20 @@ impl Form {
 /// `meters`: one row per reporting interval; columns for `lines` lines
 /// (those the home lacks are null).
 pub fn meters(s: &Scenario, lines: usize) -> Vec<Col> {
-    let mut c = vec![col("time", "ms", ColKind::Time)];
+    let mut c = vec![col(columns::TIME, "ms", ColKind::Time)];
     for x in 0..lines {
         let l = line_name(x);
-        c.push(reading(format!("{l}_p_w"), "W", ColKind::F32));
-        c.push(reading(format!("{l}_q_var"), "var", ColKind::F32));
-        c.push(reading(format!("{l}_v_v"), "V", ColKind::F32));
-        c.push(reading(format!("{l}_i_a"), "A", ColKind::F32));
+        c.push(reading(columns::p(&l), "W", ColKind::F32));
+        c.push(reading(columns::q(&l), "var", ColKind::F32));
+        c.push(reading(columns::v(&l), "V", ColKind::F32));
+        c.push(reading(columns::i(&l), "A", ColKind::F32));
     }
-    c.push(reading("n_i_a", "A", ColKind::F32));
-    c.push(reading("total_p_w", "W", ColKind::F32));
-    c.push(reading("total_q_var", "var", ColKind::F32));
+    c.push(reading(columns::NEUTRAL_I, "A", ColKind::F32));
+    c.push(reading(columns::TOTAL_P, "W", ColKind::F32));
+    c.push(reading(columns::TOTAL_Q, "var", ColKind::F32));
     if s.faults.register {
         for x in 0..lines {
-            c.push(reading(
-                format!("{}_energy_wh", line_name(x)),
-                "Wh",
-                ColKind::F64,
-            ));
+            c.push(reading(columns::energy(&line_name(x)), "Wh", ColKind::F64));
         }
     }
     c
@@ -112,23 +103,20 @@ pub fn meters(s: &Scenario, lines: usize) -> Vec<Col> {
 
 /// `truth`: the same rows as `meters`, exact (no meter noise).
 pub fn truth(s: &Scenario) -> Vec<Col> {
-    let mut c = vec![col("time", "ms", ColKind::Time)];
+    let mut c = vec![col(columns::TIME, "ms", ColKind::Time)];
     for a in &s.appliances {
-        c.push(col(format!("{}_p_w", a.id), "W", ColKind::F32));
-        c.push(col(format!("{}_q_var", a.id), "var", ColKind::F32));
-        c.push(col(format!("{}_state", a.id), "", ColKind::Dict));
+        c.push(col(columns::p(&a.id), "W", ColKind::F32));
+        c.push(col(columns::q(&a.id), "var", ColKind::F32));
+        c.push(col(columns::state(&a.id), "", ColKind::Dict));
         for x in a.lines() {
-            c.push(col(
-                format!("{}_{}_p_w", a.id, line_name(x)),
-                "W",
-                ColKind::F32,
-            ));
+            let on_line = columns::on_line(&a.id, &line_name(x));
+            c.push(col(columns::p(&on_line), "W", ColKind::F32));
         }
         if a.role == crate::scenario::Role::Storage {
             c.push(col(format!("{}_soc", a.id), "1", ColKind::F32));
         }
     }
-    c.push(col("unmetered_p_w", "W", ColKind::F32));
+    c.push(col(columns::UNMETERED_P, "W", ColKind::F32));
     c
 }
 
@@ -137,14 +125,14 @@ pub fn truth(s: &Scenario) -> Vec<Col> {
 /// from it (or the home has no such line).
 pub fn truth_long() -> Vec<Col> {
     let mut c = vec![
-        col("time", "ms", ColKind::Time),
+        col(columns::TIME, "ms", ColKind::Time),
         col("appliance", "", ColKind::Dict),
         col("p_w", "W", ColKind::F32),
         col("q_var", "var", ColKind::F32),
         col("state", "", ColKind::Dict),
     ];
     for x in 0..FLEET_LINES {
-        c.push(reading(format!("{}_p_w", line_name(x)), "W", ColKind::F32));
+        c.push(reading(columns::p(&line_name(x)), "W", ColKind::F32));
     }
     c
 }

@@ -11,13 +11,15 @@
 //! I = conj(S / (u_a − u_b)). A meter on line x reads S_x = V_x·conj(I_x);
 //! then Σ_x S_x = Σ_draws S exactly (Tellegen's theorem), whatever the split.
 
-pub mod complex;
 pub mod settle;
 pub mod source;
 pub mod split;
 
-use crate::scenario::{Connection, Harmonic, Home, Inrush, Scenario, Zip, NEUTRAL};
-pub use complex::C64;
+use crate::scenario::{Harmonic, Home, Inrush, Scenario, Wiring, Zip};
+pub use solver_check::contract::C64;
+
+/// The neutral as a terminal of [`Elem`] (lines are terminals 0, 1, 2).
+pub const NEUTRAL: u8 = 9;
 
 /// One draw as the solver uses it. A three-phase draw is held as three
 /// line-to-line draws of a third each (the delta equivalent of a balanced
@@ -48,8 +50,9 @@ pub fn elems_of(d: &crate::scenario::Draw) -> Vec<Elem> {
         harmonics: d.harmonics.clone(),
     };
     match d.wiring {
-        Connection::Pair(a, b) => vec![el(a, b, 1.0)],
-        Connection::ThreePhase => [(0u8, 1u8), (1, 2), (2, 0)]
+        Wiring::LineNeutral(x) => vec![el(x as u8, NEUTRAL, 1.0)],
+        Wiring::LineLine(a, b) => vec![el(a as u8, b as u8, 1.0)],
+        Wiring::ThreePhase => [(0u8, 1u8), (1, 2), (2, 0)]
             .iter()
             .map(|&(a, b)| el(a, b, 1.0 / 3.0))
             .collect(),
@@ -81,9 +84,9 @@ pub fn nominal_phasors(home: &Home) -> [C64; 3] {
     let mut e = [C64::ZERO; 3];
     let u = home.source.unbalance;
     for (k, deg) in home.supply.angles_deg().iter().enumerate() {
-        e[k] = C64::polar(home.voltage_v, *deg);
+        e[k] = C64::polar_deg(home.voltage_v, *deg);
         if u > 0.0 {
-            e[k] += C64::polar(home.voltage_v * u, -*deg);
+            e[k] += C64::polar_deg(home.voltage_v * u, -*deg);
         }
     }
     e

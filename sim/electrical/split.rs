@@ -2,8 +2,8 @@
 //! between the conductors it is wired to, at nominal balanced voltage. The
 //! manifest, the difficulty card and `validate` all describe states by it.
 
-use super::{elems_of, nominal_phasors, C64};
-use crate::scenario::{Scenario, State, NEUTRAL};
+use super::{elems_of, nominal_phasors, C64, NEUTRAL};
+use crate::scenario::{Scenario, State};
 
 /// Nominal P and Q of a state on each line (at nominal, balanced voltage):
 /// line-to-line draws split by the two-wattmeter relation (equal halves on

@@ -13,7 +13,7 @@ pub mod wire;
 pub use plot::plot_svg;
 
 use crate::roundtrip::Plan;
-use crate::scenario::{self, Connection, Scenario};
+use crate::scenario::{self, Scenario, Wiring};
 use doc::{text, Doc, NodeExt};
 use rungs::{Home, Rung};
 use serde_json::{json, Value};
@@ -353,7 +353,7 @@ pub fn card(s: &Scenario, m: &Value) -> Value {
         "line_energy_share": (0..lines).map(|x| (format!("l{}", x + 1), json!(if total > 0.0 { e[x] / total } else { 0.0 }))).collect::<serde_json::Map<_, _>>(),
         "line_imbalance": imbalance,
         "line_to_line_energy_share": energy(&|a| a.connections().iter().any(|c| c.is_line_to_line())),
-        "three_phase_energy_share": energy(&|a| a.connections().contains(&Connection::ThreePhase)),
+        "three_phase_energy_share": energy(&|a| a.connections().contains(&Wiring::ThreePhase)),
         "partial_phase": s.appliances.iter().filter(|a| partial_phase(a, lines)).map(|a| a.id.clone()).collect::<Vec<_>>(),
         "coincident_switching_share": d["coincident_switching_share"],
         "ambiguous_pairs": ambiguous,
@@ -367,5 +367,5 @@ fn partial_phase(a: &scenario::Appliance, lines: usize) -> bool {
     c.len() > 1
         && (a.lines().len() < lines
             || c.iter()
-                .any(|x| !x.is_line_to_line() && *x != Connection::ThreePhase))
+                .any(|x| !x.is_line_to_line() && *x != Wiring::ThreePhase))
 }

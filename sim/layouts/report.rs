@@ -4,6 +4,7 @@
 
 use super::{Ladder, RungResult};
 use serde_json::{json, Value};
+use solver_check::contract::LAYOUTS_FORMAT;
 use solver_check::audit::CAUTION;
 use solver_check::render::Render;
 use solver_check::score::Report;
@@ -235,7 +236,7 @@ fn markdown(l: &Ladder) -> String {
 /// The whole ladder as JSON.
 fn json_of(l: &Ladder) -> Value {
     json!({
-        "format": "loadloom-layouts/1",
+        "format": LAYOUTS_FORMAT,
         "caution": CAUTION,
         "home": l.home,
         "solvers": l.solvers,

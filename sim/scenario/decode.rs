@@ -6,6 +6,7 @@ use super::model::*;
 use super::reader::{Ctx, Table};
 use super::source::{parse_toml, read_source, At, Entry, Error, Node, Sources, Val};
 use crate::units::Kind;
+use solver_check::contract::{line_label, WiringError};
 use std::path::{Path, PathBuf};
 
 /// Reads and checks a scenario file (and the templates it uses).
@@ -1324,7 +1325,7 @@ pub fn parse_wiring(
     node: &Node,
     path: &str,
     supply: SupplyKind,
-) -> Result<Connection, Error> {
+) -> Result<Wiring, Error> {
     let text = ctx.string(node, path)?;
     let n = supply.lines();
     let accepted = accepted_wirings(supply);
@@ -1340,52 +1341,21 @@ pub fn parse_wiring(
             ),
         )
     };
-    if text == "3P" {
-        if n != 3 {
-            return Err(bad(format!(
+    Wiring::parse(text, n).map_err(|e| {
+        bad(match e {
+            WiringError::NotThreePhase => format!(
                 "\"3P\" needs a three-phase supply; this home is {}",
                 supply.name()
-            )));
-        }
-        return Ok(Connection::ThreePhase);
-    }
-    let term = |s: &str| -> Option<u8> {
-        match s {
-            "N" => Some(NEUTRAL),
-            "L1" => Some(0),
-            "L2" => Some(1),
-            "L3" => Some(2),
-            _ => None,
-        }
-    };
-    let parts: Vec<&str> = text.split('-').collect();
-    if parts.len() != 2 {
-        return Err(bad(format!("\"{text}\" is not a wiring")));
-    }
-    let (Some(a), Some(b)) = (term(parts[0]), term(parts[1])) else {
-        return Err(bad(format!("\"{text}\" is not a wiring")));
-    };
-    if a == b {
-        return Err(bad(format!("\"{text}\" connects a terminal to itself")));
-    }
-    for t in [a, b] {
-        if t != NEUTRAL && t as usize >= n {
-            return Err(bad(format!(
+            ),
+            WiringError::NotAWiring => format!("\"{text}\" is not a wiring"),
+            WiringError::SelfConnection => format!("\"{text}\" connects a terminal to itself"),
+            WiringError::NoSuchLine(x) => format!(
                 "{} does not exist on a {} supply",
-                terminal_name(t),
+                line_label(x),
                 supply.name()
-            )));
-        }
-    }
-    // Canonical order: neutral last; line pairs in the cyclic order L1-L2, L2-L3, L3-L1.
-    let c = match (a, b) {
-        (NEUTRAL, x) => Connection::Pair(x, NEUTRAL),
-        (x, NEUTRAL) => Connection::Pair(x, NEUTRAL),
-        _ if n == 2 => Connection::Pair(0, 1),
-        (x, y) if (x + 1) % (n as u8) == y => Connection::Pair(x, y),
-        (x, y) => Connection::Pair(y, x),
-    };
-    Ok(c)
+            ),
+        })
+    })
 }
 
 fn accepted_wirings(supply: SupplyKind) -> Vec<&'static str> {
@@ -1396,21 +1366,8 @@ fn accepted_wirings(supply: SupplyKind) -> Vec<&'static str> {
     }
 }
 
-/// Nominal voltage across a connection: V_LN to neutral; between two lines
-/// 2·V_LN on split-phase and √3·V_LN on a wye supply (IEC 60038, ANSI C84.1).
-pub fn connection_voltage(home: &Home, c: Connection) -> f64 {
-    match c {
-        Connection::ThreePhase => home.voltage_v * 3f64.sqrt(),
-        Connection::Pair(_, NEUTRAL) => home.voltage_v,
-        Connection::Pair(_, _) => match home.supply {
-            SupplyKind::SplitPhase => 2.0 * home.voltage_v,
-            _ => home.voltage_v * 3f64.sqrt(),
-        },
-    }
-}
-
 struct DrawDefaults {
-    wiring: Connection,
+    wiring: Wiring,
     load: LoadKind,
 }
 
@@ -1491,7 +1448,7 @@ fn decode_draw_fields(
         (None, Some(n)) => ctx.quantity(n, &t.path_of("q"), Kind::Reactive)?,
         (None, None) => 0.0,
     };
-    let nominal_v = connection_voltage(home, wiring);
+    let nominal_v = wiring.nominal_v(home.supply, home.voltage_v);
     let harmonics = decode_harmonics(ctx, t, load)?;
     // A draw rated at another voltage (a 240 V water heater on a 208 V
     // apartment's two lines) gives its power at that voltage; at this

@@ -9,6 +9,6 @@ pub mod reader;
 pub mod source;
 pub mod thermal;
 
-pub use decode::{connection_voltage, load, load_str};
+pub use decode::{load, load_str};
 pub use model::*;
 pub use source::Error;

@@ -2,104 +2,7 @@
 //! This is the boundary type between the scenario language and the simulator.
 
 use serde::Serialize;
-
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum SupplyKind {
-    SplitPhase,
-    ThreePhase,
-    SinglePhase,
-}
-
-impl SupplyKind {
-    pub fn lines(self) -> usize {
-        match self {
-            SupplyKind::SplitPhase => 2,
-            SupplyKind::ThreePhase => 3,
-            SupplyKind::SinglePhase => 1,
-        }
-    }
-    pub fn name(self) -> &'static str {
-        match self {
-            SupplyKind::SplitPhase => "split-phase",
-            SupplyKind::ThreePhase => "three-phase",
-            SupplyKind::SinglePhase => "single-phase",
-        }
-    }
-    /// Line-to-neutral phase angles in degrees.
-    /// Split-phase legs are 180° apart (ANSI C84.1, common practice); a wye
-    /// supply has L2 at −120° and L3 at +120° (positive sequence L1-L2-L3).
-    pub fn angles_deg(self) -> &'static [f64] {
-        match self {
-            SupplyKind::SplitPhase => &[0.0, 180.0],
-            SupplyKind::ThreePhase => &[0.0, -120.0, 120.0],
-            SupplyKind::SinglePhase => &[0.0],
-        }
-    }
-}
-
-/// Two terminals of the supply a draw sits between, or all three lines.
-/// Terminals are line indices 0..3; `NEUTRAL` stands for N.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Connection {
-    Pair(u8, u8),
-    ThreePhase,
-}
-
-pub const NEUTRAL: u8 = 9;
-
-impl Connection {
-    pub fn name(self) -> String {
-        match self {
-            Connection::ThreePhase => "3P".into(),
-            Connection::Pair(a, b) => format!("{}-{}", terminal_name(a), terminal_name(b)),
-        }
-    }
-    pub fn is_line_to_line(self) -> bool {
-        matches!(self, Connection::Pair(a, b) if a != NEUTRAL && b != NEUTRAL)
-    }
-    /// Line indices this connection draws current from.
-    pub fn lines(self) -> Vec<usize> {
-        match self {
-            Connection::ThreePhase => vec![0, 1, 2],
-            Connection::Pair(a, b) => [a, b]
-                .iter()
-                .filter(|&&t| t != NEUTRAL)
-                .map(|&t| t as usize)
-                .collect(),
-        }
-    }
-}
-
-impl Serialize for Connection {
-    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        s.serialize_str(&self.name())
-    }
-}
-
-pub fn terminal_name(t: u8) -> String {
-    if t == NEUTRAL {
-        "N".into()
-    } else {
-        format!("L{}", t + 1)
-    }
-}
-
-/// Constant impedance / current / power fractions of a voltage-dependent load
-/// (ZIP model, Bokhari et al., IEEE Trans. Power Delivery 29(3), 2014):
-/// P(V) = P0 · (z·(V/V0)² + i·(V/V0) + p), with z + i + p = 1.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
-pub struct Zip {
-    pub z: f64,
-    pub i: f64,
-    pub p: f64,
-}
-
-impl Zip {
-    pub fn factor(&self, u: f64) -> f64 {
-        self.z * u * u + self.i * u + self.p
-    }
-}
+pub use solver_check::contract::{SupplyKind, Wiring, Zip};
 
 /// Kinds of load, each with default ZIP fractions. The defaults are rounded,
 /// illustrative values (from memory, in the spirit of the measured fits of
@@ -208,7 +111,7 @@ pub struct Harmonic {
 /// One load inside a state: complex power at the connection's nominal voltage.
 #[derive(Clone, Debug, Serialize)]
 pub struct Draw {
-    pub wiring: Connection,
+    pub wiring: Wiring,
     pub p_w: f64,
     pub q_var: f64,
     pub load: LoadKind,
@@ -508,7 +411,7 @@ pub struct Appliance {
     /// What the energy is for, one of [`END_USES`] (for reports that sum
     /// appliances by use).
     pub end_use: String,
-    pub wiring: Connection,
+    pub wiring: Wiring,
     pub behaviour: Behaviour,
     pub states: Vec<State>,
     /// Power above which the appliance counts as on, W.
@@ -536,9 +439,9 @@ impl WiringKind {
         ("three-phase", WiringKind::ThreePhase),
     ];
     /// The kind of a connection.
-    pub fn of(c: Connection) -> WiringKind {
+    pub fn of(c: Wiring) -> WiringKind {
         match c {
-            Connection::ThreePhase => WiringKind::ThreePhase,
+            Wiring::ThreePhase => WiringKind::ThreePhase,
             c if c.is_line_to_line() => WiringKind::LineToLine,
             _ => WiringKind::LineToNeutral,
         }
@@ -564,8 +467,8 @@ pub const END_USES: &[&str] = &[
 
 impl Appliance {
     /// Every connection any of its draws uses, in first-seen order.
-    pub fn connections(&self) -> Vec<Connection> {
-        let mut v: Vec<Connection> = Vec::new();
+    pub fn connections(&self) -> Vec<Wiring> {
+        let mut v: Vec<Wiring> = Vec::new();
         for s in &self.states {
             for d in &s.draws {
                 if !v.contains(&d.wiring) {
@@ -577,7 +480,8 @@ impl Appliance {
     }
     /// Line indices any of its draws takes current from, sorted.
     pub fn lines(&self) -> Vec<usize> {
-        let mut v: Vec<usize> = self.connections().iter().flat_map(|c| c.lines()).collect();
+        // Only a three-phase supply offers `3P`, so its lines are all three.
+        let mut v: Vec<usize> = self.connections().iter().flat_map(|c| c.lines(3)).collect();
         v.sort();
         v.dedup();
         v

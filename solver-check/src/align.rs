@@ -3,6 +3,7 @@
 //! to its intervals (energy-consistent). Finer estimate: averaged down to the
 //! truth's intervals. Only whole intervals both sides cover are scored.
 
+use crate::contract::columns;
 use crate::table::{table_err, TableError};
 use std::path::Path;
 
@@ -41,7 +42,7 @@ impl TimeScan {
                 if d == 0 {
                     return Err(table_err(
                         path,
-                        Some("time"),
+                        Some(columns::TIME),
                         Some(r),
                         "duplicate time",
                         "give each interval one row",
@@ -50,7 +51,7 @@ impl TimeScan {
                 if d < 0 {
                     return Err(table_err(
                         path,
-                        Some("time"),
+                        Some(columns::TIME),
                         Some(r),
                         "times are not sorted (this row is earlier than the one before)",
                         "sort the rows by time",
@@ -59,7 +60,7 @@ impl TimeScan {
                 match self.spacing {
                     None => self.spacing = Some(d),
                     Some(s) if s != d => {
-                        return Err(table_err(path, Some("time"), Some(r), format!("the spacing changes from {} s to {} s here (a gap or an irregular row)", s as f64 / 1000.0, d as f64 / 1000.0), "give an evenly spaced series without gaps (0 W where the appliance is off)"));
+                        return Err(table_err(path, Some(columns::TIME), Some(r), format!("the spacing changes from {} s to {} s here (a gap or an irregular row)", s as f64 / 1000.0, d as f64 / 1000.0), "give an evenly spaced series without gaps (0 W where the appliance is off)"));
                     }
                     _ => {}
                 }
@@ -104,7 +105,7 @@ pub fn plan_from(
     let none = || {
         table_err(
             path,
-            Some("time"),
+            Some(columns::TIME),
             None,
             format!(
                 "the estimate's times do not overlap the truth's ({} to {})",
@@ -125,14 +126,14 @@ pub fn plan_from(
     } else if de < dt && dt % de == 0 {
         (dt, 1, (dt / de) as usize)
     } else {
-        return Err(table_err(path, Some("time"), None, format!("the estimate's interval ({} s) and the truth's ({} s) are not multiples of each other", de as f64 / 1000.0, dt as f64 / 1000.0), "resample the estimate to a multiple or a divisor of the truth's interval"));
+        return Err(table_err(path, Some(columns::TIME), None, format!("the estimate's interval ({} s) and the truth's ({} s) are not multiples of each other", de as f64 / 1000.0, dt as f64 / 1000.0), "resample the estimate to a multiple or a divisor of the truth's interval"));
     };
     // Interval boundaries must fall on each other.
     let grid = de.min(dt);
     if off.rem_euclid(grid) != 0 {
         return Err(table_err(
             path,
-            Some("time"),
+            Some(columns::TIME),
             Some(0),
             format!(
                 "the first time is {} s off the truth's interval starts",
@@ -204,7 +205,7 @@ pub fn exact_cover(
     let Some(e0) = est_first else {
         return Err(table_err(
             path,
-            Some("time"),
+            Some(columns::TIME),
             None,
             format!("the estimate has no rows; it must cover {period}"),
             help,
@@ -217,12 +218,12 @@ pub fn exact_cover(
         } else {
             format!("missing time {}", at(t0))
         };
-        return Err(table_err(path, Some("time"), Some(0), format!("{first}: the estimate's times ({} to {}) do not overlap the scored period {period}", at(e0), at(e_end)), help));
+        return Err(table_err(path, Some(columns::TIME), Some(0), format!("{first}: the estimate's times ({} to {}) do not overlap the scored period {period}", at(e0), at(e_end)), help));
     }
     if e0 < t0 {
         return Err(table_err(
             path,
-            Some("time"),
+            Some(columns::TIME),
             Some(0),
             format!("extra time {}: before the scored period {period}", at(e0)),
             help,
@@ -231,7 +232,7 @@ pub fn exact_cover(
     if e0 > t0 {
         return Err(table_err(
             path,
-            Some("time"),
+            Some(columns::TIME),
             Some(0),
             format!(
                 "missing time {}: the estimate starts at {}; the scored period is {period}",
@@ -245,14 +246,14 @@ pub fn exact_cover(
         let row = ((t_end - e0) / de.max(1)) as usize;
         return Err(table_err(
             path,
-            Some("time"),
+            Some(columns::TIME),
             Some(row),
             format!("extra time {}: after the scored period {period}", at(t_end)),
             help,
         ));
     }
     if e_end < t_end {
-        return Err(table_err(path, Some("time"), None, format!("missing time {}: the estimate ends there ({est_rows} rows); the scored period is {period}", at(e_end)), help));
+        return Err(table_err(path, Some(columns::TIME), None, format!("missing time {}: the estimate ends there ({est_rows} rows); the scored period is {period}", at(e_end)), help));
     }
     Ok(())
 }

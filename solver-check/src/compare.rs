@@ -6,6 +6,7 @@
 //! Both estimates are scored on the same resampled days, so what they share
 //! (the same hard days) cancels.
 
+use crate::contract::COMPARE_FORMAT;
 use crate::metrics::{scores_of, Scores};
 use crate::render::Render;
 use crate::score::Report;
@@ -301,7 +302,7 @@ impl Comparison {
 impl Render for Comparison {
     fn to_json(&self) -> Value {
         json!({
-            "format": "loadloom-compare/1",
+            "format": COMPARE_FORMAT,
             "estimate": self.estimate,
             "against": self.against,
             "days": self.days,

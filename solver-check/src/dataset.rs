@@ -1,12 +1,11 @@
 //! A dataset folder as the contract (`loadloom-dataset/1`) describes it.
 
+use crate::contract::DATASET_FORMAT;
 use serde_json::Value;
 use sha2::{Digest, Sha256};
 use std::fmt;
 use std::io::Read;
 use std::path::{Path, PathBuf};
-
-pub const FORMAT: &str = "loadloom-dataset/1";
 
 /// What can be wrong with a dataset folder; each names the file and the fix.
 #[derive(Debug)]
@@ -81,15 +80,17 @@ impl Dataset {
             err(
                 &mpath,
                 format!("the manifest lacks {what}"),
-                format!("a {FORMAT} manifest has it; rewrite the dataset with `loadloom run`"),
+                format!(
+                    "a {DATASET_FORMAT} manifest has it; rewrite the dataset with `loadloom run`"
+                ),
             )
         };
         match manifest["format"].as_str() {
-            Some(FORMAT) => {}
+            Some(DATASET_FORMAT) => {}
             Some(other) => {
                 return Err(err(
                     &mpath,
-                    format!("format \"{other}\" is not {FORMAT}"),
+                    format!("format \"{other}\" is not {DATASET_FORMAT}"),
                     "use a loadloom of the version that wrote it, or rewrite the dataset",
                 ))
             }

@@ -3,6 +3,7 @@
 //! Its columns are checked against the dataset here; its values are checked
 //! as they stream past (see `values_check`).
 
+use crate::contract::columns;
 use crate::dataset::Dataset;
 use crate::stream::read_table;
 use crate::stream::{header, in_memory, localise_hint, Batch, Header};
@@ -50,7 +51,7 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
     if h.time_zone.is_none() && path.extension().is_some_and(|e| e == "parquet") {
         return Err(table_err(
             path,
-            Some("time"),
+            Some(columns::TIME),
             None,
             "`time` has no time zone (naive timestamps)",
             localise_hint(Some(&ds.timezone)),
@@ -62,7 +63,7 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
     let known = |id: &str| ds.appliances.iter().any(|a| a.id == id);
     let mut apps: Vec<AppColumns> = Vec::new();
     for (name, _) in &h.columns {
-        if let Some(id) = name.strip_suffix("_p_w").filter(|id| known(id)) {
+        if let Some(id) = name.strip_suffix(columns::P_SUFFIX).filter(|id| known(id)) {
             apps.push(AppColumns {
                 id: id.to_string(),
                 p: name.clone(),
@@ -72,7 +73,7 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
         }
     }
     for (name, text) in &h.columns {
-        if name.strip_suffix("_p_w").is_some_and(known) {
+        if name.strip_suffix(columns::P_SUFFIX).is_some_and(known) {
             if *text {
                 return Err(table_err(
                     path,
@@ -84,7 +85,7 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
             }
             continue;
         }
-        let per = name.strip_suffix("_p_w").and_then(|stem| {
+        let per = name.strip_suffix(columns::P_SUFFIX).and_then(|stem| {
             let (id, line) = stem.rsplit_once('_')?;
             (known(id) && ds.lines.iter().any(|l| l == line))
                 .then(|| (id.to_string(), line.to_string()))
@@ -301,7 +302,7 @@ fn long_to_wide(t: &Table, ds: &Dataset) -> Result<Table, TableError> {
         if c.0 != times {
             return Err(table_err(
                 path,
-                Some("time"),
+                Some(columns::TIME),
                 None,
                 format!(
                     "appliance \"{}\" has other times than \"{}\"",
@@ -318,7 +319,7 @@ fn long_to_wide(t: &Table, ds: &Dataset) -> Result<Table, TableError> {
         columns: order
             .into_iter()
             .zip(cols)
-            .map(|(id, c)| (format!("{id}_p_w"), Column::Num(c.1)))
+            .map(|(id, c)| (columns::p(&id), Column::Num(c.1)))
             .collect(),
     })
 }

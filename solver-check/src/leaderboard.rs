@@ -4,6 +4,7 @@
 //! resampled days); per appliance, every solver's MAE with the best marked.
 
 use crate::compare::compare;
+use crate::contract::LEADERBOARD_FORMAT;
 use crate::render::Render;
 use crate::roundtrip::Outcome;
 use crate::score::Report;
@@ -188,7 +189,7 @@ impl Render for Board {
     /// JSON (`loadloom-leaderboard/1`).
     fn to_json(&self) -> Value {
         json!({
-            "format": "loadloom-leaderboard/1",
+            "format": LEADERBOARD_FORMAT,
             "ranked_by": "mae_w",
             "resamples": self.resamples,
             "solvers": self.ranked.iter().enumerate().map(|(k, r)| {

@@ -21,6 +21,7 @@ pub mod audit;
 pub mod child;
 pub mod compare;
 pub mod confine;
+pub mod contract;
 pub mod crosshome;
 pub mod dataset;
 pub mod diagnostic;

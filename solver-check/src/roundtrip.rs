@@ -11,6 +11,7 @@
 //! `scratch/` folder: all the solver may write).
 
 use crate::confine::{program_paths, Access, Sandbox};
+use crate::contract::TASK_FORMAT;
 use crate::dataset::Dataset;
 use crate::score::{score, Options, Report, ScoreError};
 use crate::taskio::{create_fresh, split_rows};
@@ -352,7 +353,7 @@ pub fn write_task(
         Value::Null
     };
     let task = json!({
-        "format": "loadloom-task/1",
+        "format": TASK_FORMAT,
         "reveal": reveal.name(),
         "timezone": ds.timezone,
         "interval_s": ds.interval_s,

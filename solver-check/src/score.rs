@@ -2,6 +2,8 @@
 //! per conductor and overall, as a table, JSON (`loadloom-score/1`) or Markdown.
 
 use crate::align::{exact_cover, plan_from, Plan, TimeScan};
+use crate::contract::columns;
+use crate::contract::SCORE_FORMAT;
 use crate::dataset::{Dataset, DatasetError};
 use crate::estimate::{open_estimate, rules, values_check};
 use crate::metrics::{Acc, Scores};
@@ -11,8 +13,6 @@ use crate::table::{table_err, TableError};
 use serde_json::{json, Value};
 use std::fmt;
 use std::path::Path;
-
-pub const SCORE_FORMAT: &str = "loadloom-score/1";
 
 #[derive(Debug)]
 pub enum ScoreError {
@@ -197,9 +197,9 @@ pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, 
     let th = header(&tpath)?;
     let mut tcols: Vec<String> = Vec::new();
     for a in &ef.apps {
-        tcols.push(format!("{}_p_w", a.id));
+        tcols.push(columns::p(&a.id));
         for (line, col) in &a.per_conductor {
-            let name = format!("{}_{line}_p_w", a.id);
+            let name = columns::p(&columns::on_line(&a.id, line));
             if !th.has(&name) {
                 return Err(table_err(
                     estimate,

@@ -1,6 +1,7 @@
 //! Streaming numeric columns of a Parquet or CSV table in batches of rows,
 //! so scoring a year at 1 s never holds a whole table in memory.
 
+use crate::contract::columns;
 use crate::table::{table_err, Column, Table, TableError};
 use arrow_array::cast::AsArray;
 use arrow_array::types::{Float32Type, Float64Type, Int32Type, Int64Type};
@@ -115,10 +116,10 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
                 )
             })?;
             let schema = b.schema();
-            let ti = schema.index_of("time").map_err(|_| {
+            let ti = schema.index_of(columns::TIME).map_err(|_| {
                 table_err(
                     path,
-                    Some("time"),
+                    Some(columns::TIME),
                     None,
                     "there is no `time` column",
                     "add a `time` column (timestamps of the interval starts)",
@@ -128,7 +129,7 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
                 DataType::Timestamp(u, tz) => (*u, tz.as_ref().map(|t| t.to_string())),
                 other => return Err(table_err(
                     path,
-                    Some("time"),
+                    Some(columns::TIME),
                     None,
                     format!("`time` is {other}, not a timestamp"),
                     "store `time` as a timestamp with its time zone (pandas: tz-aware datetime64)",
@@ -168,15 +169,18 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
                 .iter()
                 .map(|h| h.trim().trim_start_matches('\u{feff}').to_string())
                 .collect();
-            let ti = header.iter().position(|h| h == "time").ok_or_else(|| {
-                table_err(
-                    path,
-                    Some("time"),
-                    None,
-                    "there is no `time` column",
-                    "add a `time` column of ISO-8601 times with their UTC offset",
-                )
-            })?;
+            let ti = header
+                .iter()
+                .position(|h| h == columns::TIME)
+                .ok_or_else(|| {
+                    table_err(
+                        path,
+                        Some(columns::TIME),
+                        None,
+                        "there is no `time` column",
+                        "add a `time` column of ISO-8601 times with their UTC offset",
+                    )
+                })?;
             let columns = header
                 .iter()
                 .enumerate()
@@ -453,13 +457,13 @@ fn csv_time(path: &Path, row: usize, s: &str, zone: Option<&str>) -> Result<i64,
     if s.parse::<jiff::civil::DateTime>().is_ok() {
         return Err(table_err(
             path,
-            Some("time"),
+            Some(columns::TIME),
             Some(row),
             format!("\"{s}\" is a naive time (no UTC offset)"),
             localise_hint(zone),
         ));
     }
-    Err(table_err(path, Some("time"), Some(row), format!("\"{s}\" is not a time with its UTC offset"), "write ISO-8601 with an offset, e.g. 2027-03-13T00:00:00-06:00 or 2027-03-13T06:00:00Z (time zones are never guessed)"))
+    Err(table_err(path, Some(columns::TIME), Some(row), format!("\"{s}\" is not a time with its UTC offset"), "write ISO-8601 with an offset, e.g. 2027-03-13T00:00:00-06:00 or 2027-03-13T06:00:00Z (time zones are never guessed)"))
 }
 
 impl Stream<'_> {
@@ -481,7 +485,7 @@ impl Stream<'_> {
                     let r = (0..t.len()).find(|&r| t.is_null(r)).unwrap();
                     return Err(table_err(
                         path,
-                        Some("time"),
+                        Some(columns::TIME),
                         Some(first + r),
                         "a time is missing (null)",
                         "give every row its time",

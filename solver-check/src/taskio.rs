@@ -2,6 +2,7 @@
 //! an estimate as Parquet or CSV (the built-in solvers use the same contract
 //! as any other).
 
+use crate::contract::columns;
 use arrow_array::{ArrayRef, Float64Array, RecordBatch, TimestampMillisecondArray};
 use arrow_schema::{DataType, Field, Schema, TimeUnit};
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
@@ -230,7 +231,7 @@ pub fn write_estimate(
     if path.extension().is_some_and(|e| e == "csv") {
         let mut f = std::io::BufWriter::new(create_fresh(&tmp)?);
         let tzz = jiff::tz::TimeZone::get(tz).map_err(io_err)?;
-        write!(f, "time")?;
+        write!(f, "{}", columns::TIME)?;
         for (n, _) in cols {
             write!(f, ",{n}")?;
         }
@@ -248,7 +249,7 @@ pub fn write_estimate(
         f.flush()?;
     } else {
         let mut fields = vec![Field::new(
-            "time",
+            columns::TIME,
             DataType::Timestamp(TimeUnit::Millisecond, Some(tz.into())),
             false,
         )];

@@ -20,8 +20,9 @@
 //!    their connection is the one whose split fits them best (least squares
 //!    over the channels).
 
-use super::decl::{Cx, DeclAppliance, DeclDraw, Declared, Wiring};
+use super::decl::{DeclAppliance, DeclDraw, Declared};
 use super::events::{ChannelStats, Event};
+use crate::contract::{line_label, line_name, Wiring, C64};
 use serde_json::{json, Value};
 
 /// How one channel reads: the conductor, the sign, and whether the power
@@ -42,23 +43,23 @@ pub struct Metering {
 
 impl Metering {
     /// Complex factor from conductor power to channel reading.
-    fn factor(&self, d: &Declared, c: usize) -> Cx {
+    fn factor(&self, d: &Declared, c: usize) -> C64 {
         let m = self.map[c];
         let u = if m.turned {
             d.supply.unit(c) / d.supply.unit(m.src)
         } else {
-            Cx::new(1.0, 0.0)
+            C64::new(1.0, 0.0)
         };
         u.scale(m.k)
     }
     /// Channel readings of per-conductor powers `t` (None: channel absent).
-    pub fn read(&self, d: &Declared, t: &[Cx]) -> Vec<Option<Cx>> {
+    pub fn read(&self, d: &Declared, t: &[C64]) -> Vec<Option<C64>> {
         (0..self.map.len())
             .map(|c| {
                 (!self.absent[c]).then(|| {
                     let r = t[self.map[c].src] * self.factor(d, c);
                     if d.real_only {
-                        Cx::new(r.re, 0.0)
+                        C64::new(r.re, 0.0)
                     } else {
                         r
                     }
@@ -140,11 +141,11 @@ pub const TOL_REL: f64 = 0.10;
 
 /// How far a step is from a predicted one, in tolerances (≤ 1 fits),
 /// either way round (a start or a stop).
-fn dist(e: &Event, r: &[Option<Cx>]) -> f64 {
+fn dist(e: &Event, r: &[Option<C64>]) -> f64 {
     dist_delta(&e.delta, r)
 }
 
-fn dist_delta(delta: &[Cx], r: &[Option<Cx>]) -> f64 {
+fn dist_delta(delta: &[C64], r: &[Option<C64>]) -> f64 {
     let size = r.iter().flatten().map(|c| c.abs()).fold(0.0, f64::max);
     if size < USE_STEP {
         return f64::INFINITY;
@@ -159,11 +160,11 @@ fn dist_delta(delta: &[Cx], r: &[Option<Cx>]) -> f64 {
     one(1.0).min(one(-1.0))
 }
 
-fn fits(e: &Event, r: &[Option<Cx>]) -> bool {
+fn fits(e: &Event, r: &[Option<C64>]) -> bool {
     dist(e, r) <= 1.0
 }
 
-fn dist_all(e: &Event, sigs: &[Vec<Option<Cx>>]) -> f64 {
+fn dist_all(e: &Event, sigs: &[Vec<Option<C64>>]) -> f64 {
     sigs.iter()
         .map(|r| dist(e, r))
         .fold(f64::INFINITY, f64::min)
@@ -220,7 +221,7 @@ pub struct Ctx {
     /// Expected change of the channel's other loads: their level times the
     /// relative voltage change (a constant-current mean of constant
     /// impedance and constant power), and as much again of slack.
-    react: Vec<Cx>,
+    react: Vec<C64>,
     slack: Vec<f64>,
 }
 
@@ -241,7 +242,7 @@ impl Ctx {
             .map(|b| e.v_after.get(lead(b)).copied().unwrap_or(f64::NAN))
             .collect();
         let known = vb.iter().chain(&va).all(|v| v.is_finite() && *v > 0.0);
-        let (mut react, mut slack) = (vec![Cx::ZERO; n], vec![0.0; n]);
+        let (mut react, mut slack) = (vec![C64::ZERO; n], vec![0.0; n]);
         if known {
             for c in 0..n {
                 let (b, a) = (
@@ -264,7 +265,7 @@ impl Ctx {
         }
     }
 
-    fn u(&self, d: &Declared, w: super::decl::Wiring, after: bool) -> f64 {
+    fn u(&self, d: &Declared, w: Wiring, after: bool) -> f64 {
         if !self.known {
             return 1.0;
         }
@@ -294,7 +295,7 @@ fn dist_model(
     e: &Event,
     cx: &Ctx,
     md: &Model,
-    shapes: &[Vec<Option<Cx>>],
+    shapes: &[Vec<Option<C64>>],
 ) -> (f64, f64) {
     let n = d.supply.lines();
     let mut best = f64::INFINITY;
@@ -304,7 +305,7 @@ fn dist_model(
             // Forward: the jump's draws as given, "after" at the voltage
             // after. Backward (the jump undone): every sign turned and the
             // voltages exchanged.
-            let mut t = vec![Cx::ZERO; n];
+            let mut t = vec![C64::ZERO; n];
             for term in j {
                 let after = if fwd { term.after } else { !term.after };
                 let s = term
@@ -312,7 +313,7 @@ fn dist_model(
                     .at(cx.u(d, term.draw.wiring, after))
                     .scale(if fwd { term.k } else { -term.k });
                 for (o, x) in t.iter_mut().zip(d.supply.split(term.draw.wiring, s)) {
-                    *o = *o + x;
+                    *o += x;
                 }
             }
             let r = m.read(d, &t);
@@ -325,7 +326,7 @@ fn dist_model(
             let tol: Vec<f64> = (0..n)
                 .map(|c| abs + rel * size + 3.0 * e.se[c] + cx.slack[c])
                 .collect();
-            let res: Vec<Option<Cx>> = (0..n)
+            let res: Vec<Option<C64>> = (0..n)
                 .map(|c| r[c].map(|rc| e.delta[c] - rc - cx.react[c]))
                 .collect();
             let worst = (0..n)
@@ -348,7 +349,7 @@ fn dist_model(
                     let w = (0..n)
                         .filter_map(|c| {
                             res[c]
-                                .map(|x| (x - sh[c].unwrap_or(Cx::ZERO).scale(lam)).abs() / tol[c])
+                                .map(|x| (x - sh[c].unwrap_or(C64::ZERO).scale(lam)).abs() / tol[c])
                         })
                         .fold(0.0, f64::max);
                     comp = comp.min(2.0 * w);
@@ -362,7 +363,7 @@ fn dist_model(
 /// An appliance's expected steps under a metering: at nominal voltage (a
 /// quick first test) and as a model for the voltages of each event.
 struct Pred {
-    nom: Vec<Vec<Option<Cx>>>,
+    nom: Vec<Vec<Option<C64>>>,
     model: Model,
 }
 
@@ -381,7 +382,7 @@ impl Pred {
         m: &Metering,
         e: &Event,
         cx: &Ctx,
-        shapes: &[Vec<Option<Cx>>],
+        shapes: &[Vec<Option<C64>>],
     ) -> (f64, f64) {
         // Far off even at nominal voltage and the wide tolerance: no need
         // to work out the voltages.
@@ -396,15 +397,15 @@ impl Pred {
 }
 
 /// One appliance's predicted channel steps under a metering.
-fn predicted(d: &Declared, m: &Metering, a: &DeclAppliance) -> Vec<Vec<Option<Cx>>> {
+fn predicted(d: &Declared, m: &Metering, a: &DeclAppliance) -> Vec<Vec<Option<C64>>> {
     d.signatures(a).iter().map(|t| m.read(d, t)).collect()
 }
 
-fn any_fits(e: &Event, sigs: &[Vec<Option<Cx>>]) -> bool {
+fn any_fits(e: &Event, sigs: &[Vec<Option<C64>>]) -> bool {
     sigs.iter().any(|r| fits(e, r))
 }
 
-fn visible(sigs: &[Vec<Option<Cx>>]) -> bool {
+fn visible(sigs: &[Vec<Option<C64>>]) -> bool {
     sigs.iter()
         .any(|r| r.iter().flatten().map(|c| c.abs()).fold(0.0, f64::max) >= USE_STEP)
 }
@@ -530,16 +531,16 @@ fn negative_share(m: &Metering, stats: &[ChannelStats]) -> f64 {
 const NEGATIVE_OK: f64 = 0.05;
 
 /// A wandering appliance's shape under a metering.
-fn shape_of(d: &Declared, m: &Metering, a: &DeclAppliance) -> Option<Vec<Option<Cx>>> {
+fn shape_of(d: &Declared, m: &Metering, a: &DeclAppliance) -> Option<Vec<Option<C64>>> {
     d.shape(a).map(|t| m.read(d, &t))
 }
 
-fn fits_shape(e: &Event, r: &[Option<Cx>]) -> bool {
+fn fits_shape(e: &Event, r: &[Option<C64>]) -> bool {
     dist_shape(e, r) <= 1.0
 }
 
 /// Distance of a step from the nearest real multiple λ ∈ [−1, 1] of a shape.
-fn dist_shape(e: &Event, r: &[Option<Cx>]) -> f64 {
+fn dist_shape(e: &Event, r: &[Option<C64>]) -> f64 {
     let (mut num, mut den) = (0.0, 0.0);
     for (r, x) in r.iter().zip(&e.delta) {
         if let Some(r) = r {
@@ -606,7 +607,7 @@ fn steps_explained<'a>(fits: impl IntoIterator<Item = &'a Fits> + Clone, n: usiz
 
 /// Least-squares fit of a step to each connection: (wiring, complex power,
 /// relative residual), best first.
-pub fn connection_of(d: &Declared, m: &Metering, delta: &[Cx]) -> Vec<(Wiring, Cx, f64)> {
+pub fn connection_of(d: &Declared, m: &Metering, delta: &[C64]) -> Vec<(Wiring, C64, f64)> {
     let n = d.supply.lines();
     let norm: f64 = delta
         .iter()
@@ -615,19 +616,19 @@ pub fn connection_of(d: &Declared, m: &Metering, delta: &[Cx]) -> Vec<(Wiring, C
         .map(|(_, x)| x.abs().powi(2))
         .sum::<f64>()
         .sqrt();
-    let mut v: Vec<(Wiring, Cx, f64)> = Wiring::all(n)
+    let mut v: Vec<(Wiring, C64, f64)> = Wiring::all(n)
         .into_iter()
         .map(|w| {
-            let g = m.read(d, &d.supply.split(w, Cx::new(1.0, 0.0)));
-            let (mut num, mut den) = (Cx::ZERO, 0.0);
+            let g = m.read(d, &d.supply.split(w, C64::new(1.0, 0.0)));
+            let (mut num, mut den) = (C64::ZERO, 0.0);
             for (gc, e) in g.iter().zip(delta) {
                 if let Some(gc) = gc {
-                    num = num + gc.conj() * *e;
+                    num += gc.conj() * *e;
                     den += gc.abs().powi(2);
                 }
             }
             if den == 0.0 {
-                return (w, Cx::ZERO, f64::INFINITY);
+                return (w, C64::ZERO, f64::INFINITY);
             }
             let s = num.scale(1.0 / den);
             let res: f64 = g
@@ -649,14 +650,6 @@ pub fn connection_of(d: &Declared, m: &Metering, delta: &[Cx]) -> Vec<(Wiring, C
         .collect();
     v.sort_by(|a, b| a.2.total_cmp(&b.2));
     v
-}
-
-fn chan(c: usize) -> String {
-    format!("l{}", c + 1)
-}
-
-fn line(c: usize) -> String {
-    format!("L{}", c + 1)
 }
 
 /// Other wirings an appliance could have: for one connection, every other
@@ -734,7 +727,7 @@ pub fn uncheckable(a: &DeclAppliance) -> Option<String> {
 /// the two apart, and leaving one out of the declaration cannot be seen.
 /// Returns that other appliance's id.
 pub fn indistinct(d: &Declared, j: usize) -> Option<String> {
-    let own: Vec<Vec<Cx>> = d
+    let own: Vec<Vec<C64>> = d
         .signatures(&d.appliances[j])
         .into_iter()
         .filter(|t| t.iter().map(|c| c.re).sum::<f64>().abs() >= 500.0)
@@ -742,7 +735,7 @@ pub fn indistinct(d: &Declared, j: usize) -> Option<String> {
     if own.is_empty() {
         return None;
     }
-    let close = |a: &[Cx], b: &[Cx]| {
+    let close = |a: &[C64], b: &[C64]| {
         let size = a.iter().map(|c| c.abs()).fold(0.0, f64::max);
         let tol = 2.0 * (TOL_ABS_V_W + TOL_REL_V * size);
         a.iter().zip(b).all(|(x, y)| (*x - *y).abs() <= tol)
@@ -800,15 +793,15 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
         {
             findings.push(Finding {
                 kind: "no-ct",
-                subject: chan(c),
-                message: format!("channel {} reads no current although a CT on {} is declared: {:.0} % of its rows are empty, {:.0} % read nothing; line-to-line loads show at half power on the other line only", chan(c), line(d.channels[c].conductor.unwrap_or(c)), 100.0 * st.null as f64 / read, 100.0 * st.zero as f64 / read),
+                subject: line_name(c),
+                message: format!("channel {} reads no current although a CT on {} is declared: {:.0} % of its rows are empty, {:.0} % read nothing; line-to-line loads show at half power on the other line only", line_name(c), line_label(d.channels[c].conductor.unwrap_or(c)), 100.0 * st.null as f64 / read, 100.0 * st.zero as f64 / read),
                 confidence: (st.null.max(st.zero) as f64 / read).min(1.0),
                 evidence: json!({ "rows": st.rows, "null_rows": st.null, "zero_rows": st.zero }),
             });
         }
     }
     let absent: Vec<bool> = (0..n)
-        .map(|c| absent[c] || findings.iter().any(|f| f.subject == chan(c)))
+        .map(|c| absent[c] || findings.iter().any(|f| f.subject == line_name(c)))
         .collect();
     let big: Vec<&Event> = events.iter().filter(|e| e.size() >= 150.0).collect();
     // 1. Metering.
@@ -926,7 +919,7 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     }
     // 3. Undeclared recurring loads.
     let explain: Vec<Pred> = placed.iter().map(|a| Pred::of(d, &m, a)).collect();
-    let own: Vec<Option<Vec<Option<Cx>>>> = placed.iter().map(|a| shape_of(d, &m, a)).collect();
+    let own: Vec<Option<Vec<Option<C64>>>> = placed.iter().map(|a| shape_of(d, &m, a)).collect();
     let dj = distances(d, &m, &used, &cxs, &explain, &own, interval_s);
     let mut fit: Vec<bool> = dj.iter().map(|r| r.iter().any(|x| *x <= 1.0)).collect();
     // A step whose part on the channels it mainly changes (a quarter of its
@@ -942,7 +935,7 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
         let mut minor = false;
         for x in main.delta.iter_mut() {
             if x.abs() < 0.25 * top && x.abs() > 0.0 {
-                *x = Cx::ZERO;
+                *x = C64::ZERO;
                 minor = true;
             }
         }
@@ -1026,10 +1019,10 @@ fn metering_findings(
     };
     if m.map.iter().any(|c| !c.turned) {
         let moved: Vec<usize> = (0..n).filter(|&c| m.map[c].src != c).collect();
-        let names: Vec<String> = moved.iter().map(|&c| chan(c)).collect();
+        let names: Vec<String> = moved.iter().map(|&c| line_name(c)).collect();
         let reads: Vec<String> = moved
             .iter()
-            .map(|&c| format!("{} reads {}", chan(c), line(m.map[c].src)))
+            .map(|&c| format!("{} reads {}", line_name(c), line_label(m.map[c].src)))
             .collect();
         push(
             "channels-exchanged",
@@ -1051,17 +1044,17 @@ fn metering_findings(
         if b != a && m.map[b].src == a && decl.map[b].src == b && !m.absent[b] {
             done[a] = true;
             done[b] = true;
-            push("cts-exchanged", format!("{}+{}", chan(a.min(b)), chan(a.max(b))), format!("the CTs of channels {} and {} are exchanged: each sits on the other's conductor", chan(a), chan(b)));
+            push("cts-exchanged", format!("{}+{}", line_name(a.min(b)), line_name(a.max(b))), format!("the CTs of channels {} and {} are exchanged: each sits on the other's conductor", line_name(a), line_name(b)));
         } else {
             done[a] = true;
             push(
                 "ct-on-other-conductor",
-                chan(a),
+                line_name(a),
                 format!(
                     "the CT of channel {} is on conductor {}, not {}",
-                    chan(a),
-                    line(b),
-                    line(decl.map[a].src)
+                    line_name(a),
+                    line_label(b),
+                    line_label(decl.map[a].src)
                 ),
             );
         }
@@ -1070,10 +1063,10 @@ fn metering_findings(
         if !m.absent[c] && m.map[c].k != decl.map[c].k {
             push(
                 "reversed-ct",
-                chan(c),
+                line_name(c),
                 format!(
                     "the CT of channel {} reads reversed: the power it implies is negative{}",
-                    chan(c),
+                    line_name(c),
                     if decl.map[c].k < 0.0 {
                         " unless it is clamped as it should be (declared reversed)"
                     } else {
@@ -1174,8 +1167,8 @@ fn coincidences(
     events: &[&Event],
     interval_s: f64,
     hours: f64,
-) -> Vec<(Vec<Option<Cx>>, f64)> {
-    let jumps: Vec<(usize, Vec<Option<Cx>>, usize)> = placed
+) -> Vec<(Vec<Option<C64>>, f64)> {
+    let jumps: Vec<(usize, Vec<Option<C64>>, usize)> = placed
         .iter()
         .enumerate()
         .flat_map(|(j, a)| predicted(d, m, a).into_iter().map(move |r| (j, r)))
@@ -1198,7 +1191,7 @@ fn coincidences(
             }
             let rate = (*na * *nb) as f64 * w / (2.0 * t_s);
             for sign in [1.0, -1.0] {
-                let sum: Vec<Option<Cx>> = ra
+                let sum: Vec<Option<C64>> = ra
                     .iter()
                     .zip(rb)
                     .map(|(a, b)| match (a, b) {
@@ -1239,15 +1232,15 @@ fn undeclared(
     m: &Metering,
     events: &[&Event],
     explained: &[bool],
-    sums: &[(Vec<Option<Cx>>, f64)],
+    sums: &[(Vec<Option<C64>>, f64)],
     total_wh: f64,
     out: &mut Vec<Finding>,
 ) {
     struct Cluster {
         wiring: String,
         /// Mean channel step, as a start.
-        v: Vec<Cx>,
-        s: Cx,
+        v: Vec<C64>,
+        s: C64,
         on: Vec<i64>,
         off: Vec<i64>,
     }
@@ -1264,7 +1257,7 @@ fn undeclared(
         let (label, s) = if res <= 0.2 {
             (w.name(), s)
         } else {
-            let parts: Vec<(Wiring, Cx)> = fit
+            let parts: Vec<(Wiring, C64)> = fit
                 .iter()
                 .filter(|f| matches!(f.0, Wiring::LineNeutral(_)) && f.1.abs() >= USE_STEP)
                 .map(|f| (f.0, f.1))
@@ -1276,11 +1269,11 @@ fn undeclared(
             ws.sort_by_key(|w| w.name());
             (
                 ws.iter().map(|w| w.name()).collect::<Vec<_>>().join(" + "),
-                parts.iter().fold(Cx::ZERO, |a, p| a + p.1),
+                parts.iter().fold(C64::ZERO, |a, p| a + p.1),
             )
         };
         let on = s.re >= 0.0;
-        let (s, v): (Cx, Vec<Cx>) = if on {
+        let (s, v): (C64, Vec<C64>) = if on {
             (s, e.delta.clone())
         } else {
             (-s, e.delta.iter().map(|x| -*x).collect())
@@ -1382,11 +1375,11 @@ fn distances(
     events: &[&Event],
     cxs: &[Ctx],
     preds: &[Pred],
-    own: &[Option<Vec<Option<Cx>>>],
+    own: &[Option<Vec<Option<C64>>>],
     interval_s: f64,
 ) -> Vec<Vec<f64>> {
     let share = coincidence_share(interval_s);
-    let shapes: Vec<Vec<Option<Cx>>> = own.iter().flatten().cloned().collect();
+    let shapes: Vec<Vec<Option<C64>>> = own.iter().flatten().cloned().collect();
     let na = preds.len();
     let pairs: Vec<Vec<(f64, f64)>> = events
         .iter()
@@ -1590,7 +1583,7 @@ fn place(
     let mut moved = vec![false; na];
     loop {
         let sigs: Vec<Pred> = placed.iter().map(|a| Pred::of(d, m, a)).collect();
-        let shapes: Vec<Option<Vec<Option<Cx>>>> =
+        let shapes: Vec<Option<Vec<Option<C64>>>> =
             placed.iter().map(|a| shape_of(d, m, a)).collect();
         let dj = distances(d, m, used, cxs, &sigs, &shapes, interval_s);
         // Steps that fit a wiring of appliance j and no other appliance as
@@ -1822,8 +1815,9 @@ mod tests {
     }
 
     /// An appliance that is off or draws `s` from line `line` to neutral.
-    fn on_off(id: &str, line: usize, s: Cx) -> DeclAppliance {
-        use super::super::decl::{DeclDraw, Steps, Zip};
+    fn on_off(id: &str, line: usize, s: C64) -> DeclAppliance {
+        use super::super::decl::{DeclDraw, Steps};
+        use crate::contract::Zip;
         DeclAppliance {
             id: id.into(),
             label: id.into(),
@@ -1848,8 +1842,7 @@ mod tests {
             file: "t.toml".into(),
             supply_at: "t.toml:1:1".into(),
             supply: Supply {
-                kind: "split-phase".into(),
-                angles_deg: vec![0.0, 180.0],
+                kind: crate::contract::SupplyKind::SplitPhase,
                 voltage_v: 120.0,
                 service_a: 200.0,
             },
@@ -1878,13 +1871,13 @@ mod tests {
     /// 100 · 100 · 40 / (2 · 360 000) = 0.556 for the 1.5 kW sum.
     #[test]
     fn coincidences_of_two_heaters_are_expected_at_the_poisson_rate() {
-        let heater = |id: &str, w: f64| on_off(id, 0, Cx::new(w, 0.0));
+        let heater = |id: &str, w: f64| on_off(id, 0, C64::new(w, 0.0));
         let d = split_phase(vec![heater("a", 1000.0), heater("b", 500.0)]);
         let m = declared_metering(&d, &[false, false]);
         let step = |t: i64, w: f64| Event {
             time_ms: t,
-            delta: vec![Cx::new(w, 0.0), Cx::ZERO],
-            before: vec![Cx::ZERO; 2],
+            delta: vec![C64::new(w, 0.0), C64::ZERO],
+            before: vec![C64::ZERO; 2],
             v_before: vec![120.0; 2],
             v_after: vec![120.0; 2],
             se: vec![0.0; 2],
@@ -1901,7 +1894,7 @@ mod tests {
         let sums = coincidences(&d, &m, &d.appliances, &refs, 10.0, 100.0);
         let rate = |w: f64| {
             sums.iter()
-                .filter(|(r, _)| dist_delta(&[Cx::new(w, 0.0), Cx::ZERO], r) <= 0.2)
+                .filter(|(r, _)| dist_delta(&[C64::new(w, 0.0), C64::ZERO], r) <= 0.2)
                 .map(|(_, x)| *x)
                 .sum::<f64>()
         };
@@ -1923,28 +1916,28 @@ mod tests {
     /// whose starts share theirs with a 100 W change on L1 is still the pump.
     #[test]
     fn a_change_on_another_channel_in_the_same_interval_is_another_loads() {
-        let d = split_phase(vec![on_off("pump", 1, Cx::new(600.0, 450.0))]);
-        let step = |t: i64, l1: Cx, l2: Cx| Event {
+        let d = split_phase(vec![on_off("pump", 1, C64::new(600.0, 450.0))]);
+        let step = |t: i64, l1: C64, l2: C64| Event {
             time_ms: t,
             delta: vec![l1, l2],
-            before: vec![Cx::new(300.0, 0.0); 2],
+            before: vec![C64::new(300.0, 0.0); 2],
             v_before: vec![120.0; 2],
             v_after: vec![120.0; 2],
             se: vec![2.0; 2],
         };
-        let (heat, other) = (Cx::new(1100.0, 0.0), Cx::new(140.0, 0.0));
-        let (run, blip) = (Cx::new(600.0, 450.0), Cx::new(100.0, 0.0));
+        let (heat, other) = (C64::new(1100.0, 0.0), C64::new(140.0, 0.0));
+        let (run, blip) = (C64::new(600.0, 450.0), C64::new(100.0, 0.0));
         let mut events = Vec::new();
         for i in 0..10 {
             let t = i * 6 * H;
-            events.push(step(t, heat, Cx::ZERO));
+            events.push(step(t, heat, C64::ZERO));
             events.push(step(
                 t + H / 4,
                 -heat,
                 if i % 2 == 0 { -other } else { other },
             ));
             events.push(step(t + 3 * H, blip, run));
-            events.push(step(t + 3 * H + H / 8, Cx::ZERO, -run));
+            events.push(step(t + 3 * H + H / 8, C64::ZERO, -run));
         }
         let stats = vec![
             ChannelStats {
@@ -1984,7 +1977,7 @@ mod tests {
     #[test]
     fn the_move_made_first() {
         let cand = |j: usize, steps: Vec<usize>, cover: f64| {
-            let a = on_off(&format!("a{j}"), 0, Cx::new(1000.0, 0.0));
+            let a = on_off(&format!("a{j}"), 0, C64::new(1000.0, 0.0));
             let f = Finding {
                 kind: "wrong-line",
                 subject: a.id.clone(),

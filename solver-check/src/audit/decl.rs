@@ -4,167 +4,38 @@
 //! simulator's scenario language is turned into this by the `loadloom`
 //! crate; this crate never reads scenarios itself.
 
-use std::ops::{Add, Mul, Neg, Sub};
+use crate::contract::{SupplyKind, Wiring, Zip, C64};
 
-/// A complex number (phasor or complex power).
-#[derive(Clone, Copy, Debug, PartialEq, Default)]
-pub struct Cx {
-    pub re: f64,
-    pub im: f64,
-}
-
-impl Cx {
-    pub const ZERO: Cx = Cx { re: 0.0, im: 0.0 };
-    pub fn new(re: f64, im: f64) -> Cx {
-        Cx { re, im }
-    }
-    pub fn polar_deg(r: f64, deg: f64) -> Cx {
-        let a = deg.to_radians();
-        Cx {
-            re: r * a.cos(),
-            im: r * a.sin(),
-        }
-    }
-    pub fn abs(self) -> f64 {
-        self.re.hypot(self.im)
-    }
-    pub fn conj(self) -> Cx {
-        Cx {
-            re: self.re,
-            im: -self.im,
-        }
-    }
-    pub fn scale(self, k: f64) -> Cx {
-        Cx {
-            re: self.re * k,
-            im: self.im * k,
-        }
-    }
-}
-
-impl Add for Cx {
-    type Output = Cx;
-    fn add(self, o: Cx) -> Cx {
-        Cx {
-            re: self.re + o.re,
-            im: self.im + o.im,
-        }
-    }
-}
-impl Sub for Cx {
-    type Output = Cx;
-    fn sub(self, o: Cx) -> Cx {
-        Cx {
-            re: self.re - o.re,
-            im: self.im - o.im,
-        }
-    }
-}
-impl std::ops::Div for Cx {
-    type Output = Cx;
-    fn div(self, o: Cx) -> Cx {
-        let d = o.re * o.re + o.im * o.im;
-        Cx {
-            re: (self.re * o.re + self.im * o.im) / d,
-            im: (self.im * o.re - self.re * o.im) / d,
-        }
-    }
-}
-impl Mul for Cx {
-    type Output = Cx;
-    fn mul(self, o: Cx) -> Cx {
-        Cx {
-            re: self.re * o.re - self.im * o.im,
-            im: self.re * o.im + self.im * o.re,
-        }
-    }
-}
-impl Neg for Cx {
-    type Output = Cx;
-    fn neg(self) -> Cx {
-        Cx {
-            re: -self.re,
-            im: -self.im,
-        }
-    }
-}
-
-/// Where a load is connected: one line to neutral, two lines, or all three.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
-pub enum Wiring {
-    LineNeutral(usize),
-    LineLine(usize, usize),
-    ThreePhase,
-}
-
-impl Wiring {
-    pub fn name(self) -> String {
-        match self {
-            Wiring::LineNeutral(a) => format!("L{}-N", a + 1),
-            Wiring::LineLine(a, b) => format!("L{}-L{}", a.min(b) + 1, a.max(b) + 1),
-            Wiring::ThreePhase => "3P".into(),
-        }
-    }
-    pub fn is_line_to_line(self) -> bool {
-        matches!(self, Wiring::LineLine(..))
-    }
-    pub fn lines(self, n: usize) -> Vec<usize> {
-        match self {
-            Wiring::LineNeutral(a) => vec![a],
-            Wiring::LineLine(a, b) => vec![a, b],
-            Wiring::ThreePhase => (0..n).collect(),
-        }
-    }
-    /// Every connection a supply of `n` lines offers.
-    pub fn all(n: usize) -> Vec<Wiring> {
-        let mut v: Vec<Wiring> = (0..n).map(Wiring::LineNeutral).collect();
-        for a in 0..n {
-            for b in a + 1..n {
-                v.push(Wiring::LineLine(a, b));
-            }
-        }
-        if n == 3 {
-            v.push(Wiring::ThreePhase);
-        }
-        v
-    }
-    /// The same connection with its lines renamed by `perm` (line x → perm[x]).
-    pub fn permuted(self, perm: &[usize]) -> Wiring {
-        match self {
-            Wiring::LineNeutral(a) => Wiring::LineNeutral(perm[a]),
-            Wiring::LineLine(a, b) => Wiring::LineLine(perm[a], perm[b]),
-            Wiring::ThreePhase => Wiring::ThreePhase,
-        }
-    }
-}
-
+/// A declared supply: its kind, nominal voltage and service rating.
 #[derive(Clone, Debug)]
 pub struct Supply {
-    /// "split-phase", "three-phase", "single-phase".
-    pub kind: String,
-    /// Line-to-neutral phase angles, degrees, one per line.
-    pub angles_deg: Vec<f64>,
+    /// Split-phase, three-phase or single-phase.
+    pub kind: SupplyKind,
+    /// Nominal line-to-neutral voltage, V.
     pub voltage_v: f64,
+    /// Service (main breaker) rating, A.
     pub service_a: f64,
 }
 
 impl Supply {
+    /// How many lines it has.
     pub fn lines(&self) -> usize {
-        self.angles_deg.len()
-    }
-    /// Unit phasor of line x's voltage.
-    pub fn unit(&self, x: usize) -> Cx {
-        Cx::polar_deg(1.0, self.angles_deg[x])
+        self.kind.lines()
     }
 
-    /// Nominal voltage across a connection: line to neutral, between two
-    /// legs of a split-phase supply (twice that), between two lines of a
-    /// wye (√3 times); a three-phase load as its delta equivalent, line to line.
+    /// Line-to-neutral phase angles, degrees, one per line.
+    pub fn angles_deg(&self) -> &'static [f64] {
+        self.kind.angles_deg()
+    }
+
+    /// Unit phasor of line x's voltage.
+    pub fn unit(&self, x: usize) -> C64 {
+        self.kind.unit(x)
+    }
+
+    /// Nominal voltage across a connection ([`Wiring::nominal_v`]).
     pub fn nominal_across(&self, w: Wiring) -> f64 {
-        match w {
-            Wiring::LineNeutral(_) => self.voltage_v,
-            _ => (self.unit(0) - self.unit(1)).abs() * self.voltage_v,
-        }
+        w.nominal_v(self.kind, self.voltage_v)
     }
 
     /// Voltage across a connection, as a multiple of its nominal, from the
@@ -185,49 +56,9 @@ impl Supply {
     }
 
     /// How a draw of complex power `s` on `w` shows on each line's meter
-    /// channel, S_x = V_x · conj(I_x). Line-to-neutral: all on its line.
-    /// Line-to-line between x and y: I = conj(s / (V_x − V_y)) leaves by x
-    /// and returns by y, so S_x = s · V_x / (V_x − V_y) and
-    /// S_y = −s · V_y / (V_x − V_y): the equal split s/2 + s/2 on a
-    /// split-phase supply, and s/√3 · e^{∓j30°} on a wye, which is the
-    /// two-wattmeter method (Blondel's theorem; any textbook on three-phase
-    /// power measurement). Three-phase: a balanced load, s/3 per line.
-    pub fn split(&self, w: Wiring, s: Cx) -> Vec<Cx> {
-        let n = self.lines();
-        let mut out = vec![Cx::ZERO; n];
-        match w {
-            Wiring::LineNeutral(a) => out[a] = s,
-            Wiring::LineLine(a, b) => {
-                let (va, vb) = (self.unit(a), self.unit(b));
-                let d = va - vb;
-                out[a] = s * (va / d);
-                out[b] = -(s * (vb / d));
-            }
-            Wiring::ThreePhase => out.iter_mut().for_each(|o| *o = s.scale(1.0 / n as f64)),
-        }
-        out
-    }
-}
-
-/// How a load's power follows its voltage: constant impedance, current and
-/// power fractions (ZIP model, Bokhari et al., IEEE Trans. Power Delivery
-/// 29(3), 2014): P(V) = P0 · (z·(V/V0)² + i·(V/V0) + p).
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct Zip {
-    pub z: f64,
-    pub i: f64,
-    pub p: f64,
-}
-
-impl Zip {
-    /// Constant power: no dependence on voltage.
-    pub const POWER: Zip = Zip {
-        z: 0.0,
-        i: 0.0,
-        p: 1.0,
-    };
-    pub fn factor(&self, u: f64) -> f64 {
-        self.z * u * u + self.i * u + self.p
+    /// channel ([`SupplyKind::split`]).
+    pub fn split(&self, w: Wiring, s: C64) -> Vec<C64> {
+        self.kind.split(w, s)
     }
 }
 
@@ -236,7 +67,7 @@ impl Zip {
 pub struct DeclDraw {
     pub wiring: Wiring,
     /// Complex power at the connection's nominal voltage, W + j var.
-    pub s: Cx,
+    pub s: C64,
     /// Voltage dependence of P and of Q.
     pub zip_p: Zip,
     pub zip_q: Zip,
@@ -248,8 +79,8 @@ pub struct DeclDraw {
 
 impl DeclDraw {
     /// Its complex power at `u` times the connection's nominal voltage.
-    pub fn at(&self, u: f64) -> Cx {
-        Cx::new(
+    pub fn at(&self, u: f64) -> C64 {
+        C64::new(
             self.s.re * self.zip_p.factor(u),
             self.s.im * self.zip_q.factor(u),
         )
@@ -336,7 +167,7 @@ impl DeclAppliance {
                         supply.nominal_across(d.wiring) / r,
                         supply.nominal_across(to) / r,
                     );
-                    d.s = Cx::new(
+                    d.s = C64::new(
                         d.s.re * d.zip_p.factor(u1) / d.zip_p.factor(u0),
                         d.s.im * d.zip_q.factor(u1) / d.zip_q.factor(u0),
                     );
@@ -389,11 +220,11 @@ pub struct Declared {
 
 impl Declared {
     /// Per-line complex power of state `k` of appliance `a`, at nominal voltage.
-    pub fn state_split(&self, a: &DeclAppliance, k: usize) -> Vec<Cx> {
-        let mut out = vec![Cx::ZERO; self.supply.lines()];
+    pub fn state_split(&self, a: &DeclAppliance, k: usize) -> Vec<C64> {
+        let mut out = vec![C64::ZERO; self.supply.lines()];
         for d in &a.states[k] {
             for (o, s) in out.iter_mut().zip(self.supply.split(d.wiring, d.s)) {
-                *o = *o + s;
+                *o += s;
             }
         }
         out
@@ -401,18 +232,18 @@ impl Declared {
 
     /// The per-line steps an appliance makes (one vector per jump), at the
     /// conductors (before any metering).
-    pub fn signatures(&self, a: &DeclAppliance) -> Vec<Vec<Cx>> {
+    pub fn signatures(&self, a: &DeclAppliance) -> Vec<Vec<C64>> {
         self.distinct_jumps(a).into_iter().map(|(_, d)| d).collect()
     }
 
     /// The jumps that make a step of their own (a jump and its reverse, or
     /// two jumps with the same step, count once), each with its per-line
     /// step at nominal voltage.
-    pub fn distinct_jumps(&self, a: &DeclAppliance) -> Vec<(Jump, Vec<Cx>)> {
-        let mut v: Vec<(Jump, Vec<Cx>)> = Vec::new();
+    pub fn distinct_jumps(&self, a: &DeclAppliance) -> Vec<(Jump, Vec<C64>)> {
+        let mut v: Vec<(Jump, Vec<C64>)> = Vec::new();
         for &(from, to, kt, kf) in a.steps.jumps() {
             let (sf, st) = (self.state_split(a, from), self.state_split(a, to));
-            let d: Vec<Cx> = st
+            let d: Vec<C64> = st
                 .iter()
                 .zip(&sf)
                 .map(|(t, f)| t.scale(kt) - f.scale(kf))
@@ -442,7 +273,7 @@ impl Declared {
     }
 
     /// The per-line proportions of a wandering appliance's steps, if it wanders.
-    pub fn shape(&self, a: &DeclAppliance) -> Option<Vec<Cx>> {
+    pub fn shape(&self, a: &DeclAppliance) -> Option<Vec<C64>> {
         match a.steps {
             Steps::Wanders { state, max, .. } => Some(
                 self.state_split(a, state)
@@ -466,8 +297,7 @@ mod tests {
     #[test]
     fn a_rated_draw_moved_to_another_connection_draws_what_its_voltage_gives() {
         let sp = Supply {
-            kind: "split-phase".into(),
-            angles_deg: vec![0.0, 180.0],
+            kind: SupplyKind::SplitPhase,
             voltage_v: 120.0,
             service_a: 100.0,
         };
@@ -478,7 +308,7 @@ mod tests {
         };
         let draw = |rated_v| DeclDraw {
             wiring: Wiring::LineNeutral(0),
-            s: Cx::new(4500.0 * 0.25, 0.0),
+            s: C64::new(4500.0 * 0.25, 0.0),
             zip_p: r,
             zip_q: r,
             rated_v,
@@ -496,10 +326,9 @@ mod tests {
         assert!((kept.states[1][0].s.re - 1125.0).abs() < 1e-9);
     }
 
-    fn supply(kind: &str, angles: &[f64]) -> Supply {
+    fn supply(kind: SupplyKind) -> Supply {
         Supply {
-            kind: kind.into(),
-            angles_deg: angles.to_vec(),
+            kind,
             voltage_v: 230.0,
             service_a: 63.0,
         }
@@ -512,13 +341,13 @@ mod tests {
     /// imbalance: W1 − W2 = Q/√3).
     #[test]
     fn a_line_to_line_load_on_a_wye_splits_as_two_wattmeters_read() {
-        let s = supply("three-phase", &[0.0, -120.0, 120.0]);
-        let load = Cx::new(2000.0, 900.0);
+        let s = supply(SupplyKind::ThreePhase);
+        let load = C64::new(2000.0, 900.0);
         let r = s.split(Wiring::LineLine(0, 1), load);
         assert!((r[0].re + r[1].re - 2000.0).abs() < 1e-9);
         assert!((r[0].im + r[1].im - 900.0).abs() < 1e-9);
         assert!(((r[0].re - r[1].re) * 3f64.sqrt() - 900.0).abs() < 1e-9);
-        assert_eq!(r[2], Cx::ZERO);
+        assert_eq!(r[2], C64::ZERO);
         // Each line carries |S|/√3 at ∓30° from the load's angle.
         assert!((r[0].abs() - load.abs() / 3f64.sqrt()).abs() < 1e-9);
     }
@@ -531,10 +360,10 @@ mod tests {
     fn voltage_across_a_connection_follows_the_supply() {
         let sp = Supply {
             voltage_v: 120.0,
-            ..supply("split-phase", &[0.0, 180.0])
+            ..supply(SupplyKind::SplitPhase)
         };
         assert!((sp.nominal_across(Wiring::LineLine(0, 1)) - 240.0).abs() < 1e-9);
-        let wye = supply("three-phase", &[0.0, -120.0, 120.0]);
+        let wye = supply(SupplyKind::ThreePhase);
         assert!((wye.nominal_across(Wiring::LineLine(0, 1)) - 230.0 * 3f64.sqrt()).abs() < 1e-9);
         // 2 % low on L1 and 2 % high on L2: the line-to-line magnitude
         // |0.98∠0° − 1.02∠−120°| = √(0.98² + 0.98·1.02 + 1.02²) / √3.
@@ -561,8 +390,8 @@ mod tests {
     /// power on each leg (common practice, no source).
     #[test]
     fn a_line_to_line_load_on_split_phase_splits_equally() {
-        let s = supply("split-phase", &[0.0, 180.0]);
-        let r = s.split(Wiring::LineLine(0, 1), Cx::new(4500.0, 300.0));
+        let s = supply(SupplyKind::SplitPhase);
+        let r = s.split(Wiring::LineLine(0, 1), C64::new(4500.0, 300.0));
         for x in &r {
             assert!((x.re - 2250.0).abs() < 1e-9 && (x.im - 150.0).abs() < 1e-9);
         }

@@ -15,16 +15,16 @@
 //! level of its own, one row long; a lone row off the mean (noise) does not end a stretch;
 //! a change across missing rows is dropped, since several may hide in it.
 
-use super::decl::Cx;
+use crate::contract::C64;
 use std::collections::VecDeque;
 
 /// One step: when, and the change of complex power on every channel.
 #[derive(Clone, Debug)]
 pub struct Event {
     pub time_ms: i64,
-    pub delta: Vec<Cx>,
+    pub delta: Vec<C64>,
     /// Each channel's level just before the step.
-    pub before: Vec<Cx>,
+    pub before: Vec<C64>,
     /// Each channel's voltage before and after the step, V (NaN: not measured).
     pub v_before: Vec<f64>,
     pub v_after: Vec<f64>,
@@ -110,7 +110,7 @@ impl Seg {
 
 pub struct Detector {
     n: usize,
-    units: Vec<Vec<[Cx; 2]>>,
+    units: Vec<Vec<[C64; 2]>>,
     k: usize,
     l: usize,
     interval_ms: i64,
@@ -193,7 +193,7 @@ impl Detector {
             .map(|c| {
                 (0..n)
                     .map(|b| {
-                        let u = Cx::polar_deg(1.0, angles_deg[c] - angles_deg[b]);
+                        let u = C64::polar_deg(1.0, angles_deg[c] - angles_deg[b]);
                         [u, -u]
                     })
                     .collect()
@@ -237,9 +237,9 @@ impl Detector {
     /// it is below `MIN_STEP_W` on every channel.
     fn step(&mut self, time_ms: i64, b: &Level, h: &Level) {
         let n = self.n;
-        let delta: Vec<Cx> = (0..n)
+        let delta: Vec<C64> = (0..n)
             .map(|c| {
-                Cx::new(
+                C64::new(
                     h.mean[2 * c] - b.mean[2 * c],
                     h.mean[2 * c + 1] - b.mean[2 * c + 1],
                 )
@@ -255,7 +255,7 @@ impl Detector {
                 })
                 .collect();
             let before = (0..n)
-                .map(|c| Cx::new(b.mean[2 * c], b.mean[2 * c + 1]))
+                .map(|c| C64::new(b.mean[2 * c], b.mean[2 * c + 1]))
                 .collect();
             self.events.push(Event {
                 time_ms,
@@ -384,7 +384,7 @@ impl Detector {
             }
             row[2 * c] = p[c];
             row[2 * c + 1] = q[c];
-            let s = Cx::new(p[c], q[c]);
+            let s = C64::new(p[c], q[c]);
             st.sum_p += p[c];
             if s.abs() < 5.0 {
                 st.zero += 1;

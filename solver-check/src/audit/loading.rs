@@ -6,6 +6,8 @@
 //!
 //! An analysis of data, not an inspection: see [`CAUTION`].
 
+use crate::contract::columns;
+use crate::contract::AUDIT_FORMAT;
 use crate::dataset::Dataset;
 use crate::render::Render;
 use crate::stream::{header, Header};
@@ -86,9 +88,9 @@ pub fn loading_of(
         }
     }
     let current_measured = at.iter().all(|a| a[0].is_some());
-    let has_n = h.has("n_i_a");
+    let has_n = h.has(columns::NEUTRAL_I);
     if has_n {
-        cols.push("n_i_a".into());
+        cols.push(columns::NEUTRAL_I.into());
     }
     let (mut peak, mut sum, mut count) = (vec![0.0f64; n], vec![0.0f64; n], vec![0u64; n]);
     let mut peak_ms = vec![None::<i64>; n];
@@ -273,7 +275,7 @@ impl Loading {
 impl Render for Loading {
     fn to_json(&self) -> Value {
         json!({
-            "format": "loadloom-audit/1",
+            "format": AUDIT_FORMAT,
             "service_a": self.service_a,
             "lines": self.lines.iter().map(|l| json!({
                 "conductor": l.line, "measured": l.measured, "peak_time_local": self.local(l.peak_ms), "peak_a": l.peak_a, "demand_15min_a": l.demand_15min_a, "mean_a": l.mean_a,

@@ -17,6 +17,7 @@ mod loading;
 
 pub use loading::*;
 
+use crate::contract::{columns, line_label, line_name, AUDIT_FORMAT};
 use crate::dataset::Dataset;
 use crate::render::Render;
 use crate::stream::{header, Header};
@@ -51,9 +52,9 @@ pub struct Audit {
 /// Line channels in a meters table: `l1`, `l2`, … in order, as long as
 /// their `_p_w` column exists.
 fn channels(h: &Header) -> Vec<String> {
-    (1..=3)
-        .map(|k| format!("l{k}"))
-        .take_while(|l| h.has(&format!("{l}_p_w")))
+    (0..3)
+        .map(line_name)
+        .take_while(|l| h.has(&columns::p(l)))
         .collect()
 }
 
@@ -62,13 +63,13 @@ fn fit(d: &Declared, h: &Header, have: &[String]) -> Result<(), String> {
     let n = d.supply.lines();
     let want: Vec<String> = (0..n)
         .filter(|&c| d.channels[c].conductor.is_some())
-        .map(|c| format!("l{}", c + 1))
+        .map(line_name)
         .collect();
     let missing: Vec<&String> = want.iter().filter(|w| !have.contains(w)).collect();
     if missing.is_empty() && have.len() <= n {
         return Ok(());
     }
-    let lines: Vec<String> = (1..=n).map(|k| format!("L{k}")).collect();
+    let lines: Vec<String> = (0..n).map(line_label).collect();
     let help = if have.len() > n {
         format!(
             "declare the supply the data was measured on: {} channels need a supply with {} lines",
@@ -85,7 +86,7 @@ fn fit(d: &Declared, h: &Header, have: &[String]) -> Result<(), String> {
     Err(format!(
         "error: the declaration does not fit the data\n  --> {} (home.supply)\n  = the declaration has a {} supply, {}, with a CT on {}; {} has channel{} {}\n  = help: {help}",
         d.supply_at,
-        d.supply.kind,
+        d.supply.kind.name(),
         lines.join(", "),
         if want.is_empty() { "none".into() } else { want.join(", ") },
         h.file.display(),
@@ -106,7 +107,7 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
     let n = d.supply.lines();
     // Many monitors give real power only: then every step is compared on
     // real power alone (the real part of each expected reading).
-    let with_q = have.iter().all(|l| h.has(&format!("{l}_q_var")));
+    let with_q = have.iter().all(|l| h.has(&columns::q(l)));
     let d = &if with_q {
         d.clone()
     } else {
@@ -114,26 +115,24 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
     };
     let mut cols = Vec::new();
     for c in 0..n {
-        let l = format!("l{}", c + 1);
+        let l = line_name(c);
         if have.contains(&l) {
-            cols.push(format!("{l}_p_w"));
+            cols.push(columns::p(&l));
             if with_q {
-                cols.push(format!("{l}_q_var"));
+                cols.push(columns::q(&l));
             }
         }
     }
     // Voltages where the table has them (they sharpen the expected steps).
     let with_v: Vec<bool> = (0..n)
-        .map(|c| have.contains(&format!("l{}", c + 1)) && h.has(&format!("l{}_v_v", c + 1)))
+        .map(|c| have.contains(&line_name(c)) && h.has(&columns::v(&line_name(c))))
         .collect();
     for c in 0..n {
         if with_v[c] {
-            cols.push(format!("l{}_v_v", c + 1));
+            cols.push(columns::v(&line_name(c)));
         }
     }
-    let present: Vec<bool> = (0..n)
-        .map(|c| have.contains(&format!("l{}", c + 1)))
-        .collect();
+    let present: Vec<bool> = (0..n).map(|c| have.contains(&line_name(c))).collect();
     let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
     let mut det: Option<events::Detector> = None;
     let mut interval_s = 0.0;
@@ -142,7 +141,7 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
     while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
         if det.is_none() {
             interval_s = interval_of(&b.time_ms).ok_or_else(|| format!("error: {} has fewer than two rows\n  = help: the audit needs a meters table over days", file.display()))?;
-            det = Some(events::Detector::new(&d.supply.angles_deg, interval_s));
+            det = Some(events::Detector::new(d.supply.angles_deg(), interval_s));
         }
         let det = det.as_mut().unwrap();
         for (k, &t) in b.time_ms.iter().enumerate() {
@@ -179,7 +178,7 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
     let mut loading = loading_of(
         &h2,
         &have,
-        &d.supply.angles_deg,
+        d.supply.angles_deg(),
         d.supply.service_a,
         d.supply.voltage_v,
     )?;
@@ -285,8 +284,8 @@ impl Audit {
                 let declared = match dc.conductor {
                     None => "no CT".to_string(),
                     Some(b) => format!(
-                        "CT on L{}{}",
-                        b + 1,
+                        "CT on {}{}",
+                        line_label(b),
                         if dc.reversed { ", reversed" } else { "" }
                     ),
                 };
@@ -295,16 +294,16 @@ impl Audit {
                 } else {
                     let mm = m.map[c];
                     let mut s = if mm.turned {
-                        format!("CT on L{}", mm.src + 1)
+                        format!("CT on {}", line_label(mm.src))
                     } else {
-                        format!("channel of L{}", mm.src + 1)
+                        format!("channel of {}", line_label(mm.src))
                     };
                     if mm.k < 0.0 {
                         s += ", reversed";
                     }
                     s
                 };
-                [format!("l{}", c + 1), declared, found]
+                [line_name(c), declared, found]
             })
             .collect()
     }
@@ -370,7 +369,7 @@ impl Render for Audit {
             o.remove("caution");
         }
         json!({
-            "format": "loadloom-audit/1",
+            "format": AUDIT_FORMAT,
             "data": self.data,
             "declared": self.declared_file,
             "interval_s": self.interval_s,

@@ -6,6 +6,7 @@ use super::axis::{self, Frame};
 use super::palette::{self, FRAME, INK, PANEL_FILL, ZERO_LINE};
 use super::{bucket_means, err, escape, local_ms, path, points, write_picture};
 use super::{PlotOptions, Plotted};
+use crate::contract::columns;
 use crate::dataset::Dataset;
 use crate::stream::{header, Header};
 use std::fmt::Write as _;
@@ -44,7 +45,7 @@ fn parse_local(
 fn busiest_day(dataset: &Path, mh: &Header, tz: &jiff::tz::TimeZone) -> Result<(i64, i64), String> {
     let e = |e: jiff::Error| e.to_string();
     let mut st = mh
-        .stream(&["total_p_w".to_string()])
+        .stream(&[columns::TOTAL_P.to_string()])
         .map_err(|e| e.to_string())?;
     let mut days: Vec<(jiff::civil::Date, f64)> = Vec::new();
     while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
@@ -124,7 +125,7 @@ fn shares(
     let mut found = Vec::new();
     for a in &ds.appliances {
         for (x, l) in ds.lines.iter().enumerate() {
-            let c = format!("{}_{l}_p_w", a.id);
+            let c = columns::p(&columns::on_line(&a.id, l));
             if th.has(&c) {
                 found.push((x, a.id.clone(), c));
             }
@@ -334,7 +335,7 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
     let (w0, w1) = window(dataset, &mh, &tz, o, (t0, end))?;
     let plot_w = o.width as f64 - LEFT - LEGEND_W;
     let buckets = (plot_w as usize).clamp(10, 4000);
-    let mcols: Vec<String> = ds.lines.iter().map(|l| format!("{l}_p_w")).collect();
+    let mcols: Vec<String> = ds.lines.iter().map(|l| columns::p(l)).collect();
     let measured = bucket_means(&mh, &mcols, (w0, w1), buckets)?;
     let shares = shares(&ds, &th, (w0, w1), buckets)?;
     let mut drew: Vec<String> = Vec::new();

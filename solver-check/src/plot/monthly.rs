@@ -6,6 +6,7 @@
 use super::axis::{self, Frame};
 use super::palette::{self, FRAME, INK, PANEL_FILL};
 use super::{err, escape, write_picture};
+use crate::contract::columns;
 use crate::dataset::Dataset;
 use crate::stream::header;
 use std::fmt::Write as _;
@@ -126,7 +127,7 @@ fn energies(ds: &Dataset, months: &[Month], ids: &[String]) -> Result<Vec<Vec<f6
                 "plot a folder written by `loadloom run`",
             )
         })?;
-    let cols: Vec<String> = ids.iter().map(|i| format!("{i}_p_w")).collect();
+    let cols: Vec<String> = ids.iter().map(|i| columns::p(i)).collect();
     let h = header(&ds.dir.join(truth)).map_err(|e| e.to_string())?;
     let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
     let kwh_per_w_row = ds.interval_s / 3.6e6;

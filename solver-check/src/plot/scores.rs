@@ -5,6 +5,7 @@
 use super::axis::{self, Frame};
 use super::palette::{FRAME, INK, PALETTE, PANEL_FILL};
 use super::{bucket_means, escape, path, points, write_picture};
+use crate::contract::columns;
 use crate::dataset::Dataset;
 use crate::stream::header;
 use std::fmt::Write as _;
@@ -174,7 +175,7 @@ pub fn plot_scores(
     let tz = jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| e.to_string())?;
     let window = busiest_day(report, &tz)?;
     let ids: Vec<String> = report.appliances.iter().map(|a| a.id.clone()).collect();
-    let cols: Vec<String> = ids.iter().map(|i| format!("{i}_p_w")).collect();
+    let cols: Vec<String> = ids.iter().map(|i| columns::p(i)).collect();
     let truth_file = if ds.manifest["files"].get("truth.parquet").is_some() {
         "truth.parquet"
     } else {

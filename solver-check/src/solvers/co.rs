@@ -16,6 +16,7 @@
 
 use super::states::{learn, Level};
 use super::Task;
+use crate::contract::columns;
 use std::collections::HashMap;
 
 const BIN_W: f64 = 5.0;
@@ -132,10 +133,10 @@ type Estimate = (Vec<i64>, Vec<crate::taskio::EstimateColumn>);
 
 pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
     let lines = &task.lines;
-    let mut want: Vec<String> = task.ids.iter().map(|id| format!("{id}_p_w")).collect();
+    let mut want: Vec<String> = task.ids.iter().map(|id| columns::p(id)).collect();
     for id in &task.ids {
         for l in lines {
-            want.push(format!("{id}_{l}_p_w"));
+            want.push(columns::p(&columns::on_line(id, l)));
         }
     }
     let train = task.train_truth(&want)?;
@@ -143,14 +144,18 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
     let mut apps: Vec<(String, Vec<usize>, Vec<Level>)> = Vec::new();
     for id in &task.ids {
         let p = train
-            .num(&format!("{id}_p_w"))
+            .num(&columns::p(id))
             .ok_or_else(|| format!("the training truth lacks {id}_p_w"))?;
         let on: Vec<usize> = (0..lines.len())
-            .filter(|&x| train.has(&format!("{id}_{}_p_w", lines[x])))
+            .filter(|&x| train.has(&columns::p(&columns::on_line(id, &lines[x]))))
             .collect();
         let per: Vec<&[f64]> = on
             .iter()
-            .map(|&x| train.num(&format!("{id}_{}_p_w", lines[x])).unwrap())
+            .map(|&x| {
+                train
+                    .num(&columns::p(&columns::on_line(id, &lines[x])))
+                    .unwrap()
+            })
             .collect();
         apps.push((id.clone(), on, learn(p, &per)));
     }
@@ -164,9 +169,9 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
                 .all(|c| t.num(c).is_some_and(|v| v.iter().any(|x| !x.is_nan())))
         });
     let meter_cols: Vec<String> = if per_conductor {
-        lines.iter().map(|l| format!("{l}_p_w")).collect()
+        lines.iter().map(|l| columns::p(l)).collect()
     } else {
-        vec!["total_p_w".into()]
+        vec![columns::TOTAL_P.into()]
     };
     let test = task.test_meters(&meter_cols)?;
     let n = test.time_ms.len();
@@ -185,7 +190,7 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
                 .collect::<Vec<_>>(),
         );
         let total = test
-            .num("total_p_w")
+            .num(columns::TOTAL_P)
             .ok_or("the test meters lack total_p_w")?;
         let mut lv = vec![0; apps.len()];
         for t in 0..n {
@@ -285,13 +290,13 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
         let lv = std::rc::Rc::new(lv);
         let p: Vec<f64> = levels.iter().map(|l| l.p_w.max(0.0)).collect();
         let l2 = lv.clone();
-        cols.push((format!("{id}_p_w"), Box::new(move |t| p[l2[t] as usize])));
+        cols.push((columns::p(id), Box::new(move |t| p[l2[t] as usize])));
         if per_conductor {
             for (j, &x) in on.iter().enumerate() {
                 let split: Vec<f64> = levels.iter().map(|l| l.split[j]).collect();
                 let l2 = lv.clone();
                 cols.push((
-                    format!("{id}_{}_p_w", lines[x]),
+                    columns::p(&columns::on_line(id, &lines[x])),
                     Box::new(move |t| split[l2[t] as usize]),
                 ));
             }

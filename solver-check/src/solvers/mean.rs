@@ -2,9 +2,10 @@
 //! floor any real method must beat.
 
 use super::Task;
+use crate::contract::columns;
 
 pub fn solve(task: &Task) -> Result<(Vec<i64>, Vec<crate::taskio::EstimateColumn>), String> {
-    let cols: Vec<String> = task.ids.iter().map(|id| format!("{id}_p_w")).collect();
+    let cols: Vec<String> = task.ids.iter().map(|id| columns::p(id)).collect();
     let train = task.train_truth(&cols)?;
     let test = task.test_meters(&[])?;
     let mut out = Vec::new();

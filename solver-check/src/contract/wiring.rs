@@ -1,0 +1,285 @@
+//! Supplies, the ways a load is wired to them, and how a load's power
+//! shows on each line: the physics vocabulary the simulator and the audit
+//! share.
+
+use super::complex::C64;
+use super::line_label;
+use serde::Serialize;
+
+/// The kind of supply a home has.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum SupplyKind {
+    /// Two legs 180° apart around a neutral (120/240 V).
+    SplitPhase,
+    /// Three lines 120° apart around a neutral (a wye: 230/400 V, 120/208 V).
+    ThreePhase,
+    /// One line and a neutral.
+    SinglePhase,
+}
+
+impl SupplyKind {
+    /// How many lines (conductors besides the neutral) it has.
+    pub fn lines(self) -> usize {
+        match self {
+            SupplyKind::SplitPhase => 2,
+            SupplyKind::ThreePhase => 3,
+            SupplyKind::SinglePhase => 1,
+        }
+    }
+
+    /// Its name in scenarios, manifests and reports.
+    pub fn name(self) -> &'static str {
+        match self {
+            SupplyKind::SplitPhase => "split-phase",
+            SupplyKind::ThreePhase => "three-phase",
+            SupplyKind::SinglePhase => "single-phase",
+        }
+    }
+
+    /// Line-to-neutral phase angles in degrees.
+    /// Split-phase legs are 180° apart (ANSI C84.1, common practice); a wye
+    /// supply has L2 at −120° and L3 at +120° (positive sequence L1-L2-L3).
+    pub fn angles_deg(self) -> &'static [f64] {
+        match self {
+            SupplyKind::SplitPhase => &[0.0, 180.0],
+            SupplyKind::ThreePhase => &[0.0, -120.0, 120.0],
+            SupplyKind::SinglePhase => &[0.0],
+        }
+    }
+
+    /// Unit phasor of line `x`'s voltage to neutral.
+    pub fn unit(self, x: usize) -> C64 {
+        C64::polar_deg(1.0, self.angles_deg()[x])
+    }
+
+    /// How a draw of complex power `s` on `w` shows on each line's meter
+    /// channel at nominal, balanced voltage, S_x = V_x · conj(I_x).
+    /// Line-to-neutral: all on its line. Line-to-line between x and y:
+    /// I = conj(s / (V_x − V_y)) leaves by x and returns by y, so
+    /// S_x = s · V_x / (V_x − V_y) and S_y = −s · V_y / (V_x − V_y): the
+    /// equal split s/2 + s/2 on a split-phase supply, and s/√3 · e^{∓j30°}
+    /// on a wye, which is the two-wattmeter method (Blondel's theorem; any
+    /// textbook on three-phase power measurement). Three-phase: a balanced
+    /// load, s/3 per line.
+    pub fn split(self, w: Wiring, s: C64) -> Vec<C64> {
+        let n = self.lines();
+        let mut out = vec![C64::ZERO; n];
+        match w {
+            Wiring::LineNeutral(a) => out[a] = s,
+            Wiring::LineLine(a, b) => {
+                let (va, vb) = (self.unit(a), self.unit(b));
+                let d = va - vb;
+                out[a] = s * (va / d);
+                out[b] = -(s * (vb / d));
+            }
+            Wiring::ThreePhase => out.iter_mut().for_each(|o| *o = s.scale(1.0 / n as f64)),
+        }
+        out
+    }
+}
+
+/// Where a load is connected: one line to neutral, two lines, or all three.
+///
+/// Line-to-line pairs are kept in one orientation (see
+/// [`Wiring::line_line`]), so two values for the same connection compare
+/// equal and print the same name.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum Wiring {
+    /// Line `x` (0-based) to neutral.
+    LineNeutral(usize),
+    /// Between two lines (0-based), in the orientation of
+    /// [`Wiring::line_line`].
+    LineLine(usize, usize),
+    /// All three lines, as a balanced load.
+    ThreePhase,
+}
+
+/// Why a wiring's text was refused by [`Wiring::parse`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum WiringError {
+    /// Not of the form `L1-N`, `L1-L2` or `3P`.
+    NotAWiring,
+    /// Both ends are the same terminal.
+    SelfConnection,
+    /// A line (0-based) the supply does not have.
+    NoSuchLine(usize),
+    /// `3P` on a supply without three lines.
+    NotThreePhase,
+}
+
+impl Wiring {
+    /// The connection between lines `a` and `b` (0-based, different) of a
+    /// supply of `lines` lines, in its one orientation: the cyclic order
+    /// L1-L2, L2-L3, L3-L1 on three lines, L1-L2 on two.
+    pub fn line_line(a: usize, b: usize, lines: usize) -> Wiring {
+        let in_order = if lines == 3 { (a + 1) % 3 == b } else { a < b };
+        if in_order {
+            Wiring::LineLine(a, b)
+        } else {
+            Wiring::LineLine(b, a)
+        }
+    }
+
+    /// Reads a wiring as scenarios and declarations write it (`L1-N`,
+    /// `N-L2`, `L2-L3`, `L3-L1` in either order, `3P`) on a supply of
+    /// `lines` lines.
+    pub fn parse(text: &str, lines: usize) -> Result<Wiring, WiringError> {
+        if text == "3P" {
+            return if lines == 3 {
+                Ok(Wiring::ThreePhase)
+            } else {
+                Err(WiringError::NotThreePhase)
+            };
+        }
+        // A terminal: Some(line) or None for the neutral.
+        let term = |s: &str| match s {
+            "N" => Some(None),
+            "L1" => Some(Some(0)),
+            "L2" => Some(Some(1)),
+            "L3" => Some(Some(2)),
+            _ => None,
+        };
+        let (Some((a, b)), true) = (text.split_once('-'), text.matches('-').count() == 1) else {
+            return Err(WiringError::NotAWiring);
+        };
+        let (Some(a), Some(b)) = (term(a), term(b)) else {
+            return Err(WiringError::NotAWiring);
+        };
+        if a == b {
+            return Err(WiringError::SelfConnection);
+        }
+        if let Some(x) = [a, b].into_iter().flatten().find(|&x| x >= lines) {
+            return Err(WiringError::NoSuchLine(x));
+        }
+        match (a, b) {
+            (Some(x), Some(y)) => Ok(Wiring::line_line(x, y, lines)),
+            (Some(x), None) | (None, Some(x)) => Ok(Wiring::LineNeutral(x)),
+            (None, None) => Err(WiringError::SelfConnection),
+        }
+    }
+
+    /// Its name: `L1-N`, `L3-L1`, `3P`.
+    pub fn name(self) -> String {
+        match self {
+            Wiring::LineNeutral(a) => format!("{}-N", line_label(a)),
+            Wiring::LineLine(a, b) => format!("{}-{}", line_label(a), line_label(b)),
+            Wiring::ThreePhase => "3P".into(),
+        }
+    }
+
+    /// Whether it sits between two lines (not three-phase, not to neutral).
+    pub fn is_line_to_line(self) -> bool {
+        matches!(self, Wiring::LineLine(..))
+    }
+
+    /// The lines (0-based) it takes current from, on a supply of `n` lines.
+    pub fn lines(self, n: usize) -> Vec<usize> {
+        match self {
+            Wiring::LineNeutral(a) => vec![a],
+            Wiring::LineLine(a, b) => vec![a, b],
+            Wiring::ThreePhase => (0..n).collect(),
+        }
+    }
+
+    /// Every connection a supply of `n` lines offers.
+    pub fn all(n: usize) -> Vec<Wiring> {
+        let mut v: Vec<Wiring> = (0..n).map(Wiring::LineNeutral).collect();
+        for a in 0..n {
+            for b in a + 1..n {
+                v.push(Wiring::line_line(a, b, n));
+            }
+        }
+        if n == 3 {
+            v.push(Wiring::ThreePhase);
+        }
+        v
+    }
+
+    /// The same connection with its lines renamed by `perm` (line x →
+    /// perm\[x\]; `perm` covers every line of the supply).
+    pub fn permuted(self, perm: &[usize]) -> Wiring {
+        match self {
+            Wiring::LineNeutral(a) => Wiring::LineNeutral(perm[a]),
+            Wiring::LineLine(a, b) => Wiring::line_line(perm[a], perm[b], perm.len()),
+            Wiring::ThreePhase => Wiring::ThreePhase,
+        }
+    }
+
+    /// Nominal voltage across it on a `kind` supply of line-to-neutral
+    /// voltage `v_ln`: V_LN to neutral; between two lines 2·V_LN on
+    /// split-phase and √3·V_LN on a wye supply (IEC 60038, ANSI C84.1); a
+    /// three-phase load as its delta equivalent, line to line.
+    pub fn nominal_v(self, kind: SupplyKind, v_ln: f64) -> f64 {
+        match self {
+            Wiring::ThreePhase => v_ln * 3f64.sqrt(),
+            Wiring::LineNeutral(_) => v_ln,
+            Wiring::LineLine(..) => match kind {
+                SupplyKind::SplitPhase => 2.0 * v_ln,
+                _ => v_ln * 3f64.sqrt(),
+            },
+        }
+    }
+}
+
+impl Serialize for Wiring {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(&self.name())
+    }
+}
+
+/// How a load's power follows its voltage: constant impedance, current and
+/// power fractions (ZIP model, Bokhari et al., IEEE Trans. Power Delivery
+/// 29(3), 2014): P(V) = P0 · (z·(V/V0)² + i·(V/V0) + p), with z + i + p = 1.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Zip {
+    /// Constant-impedance fraction.
+    pub z: f64,
+    /// Constant-current fraction.
+    pub i: f64,
+    /// Constant-power fraction.
+    pub p: f64,
+}
+
+impl Zip {
+    /// Constant power: no dependence on voltage.
+    pub const POWER: Zip = Zip {
+        z: 0.0,
+        i: 0.0,
+        p: 1.0,
+    };
+
+    /// The power at `u` times the nominal voltage, as a multiple of the
+    /// nominal power.
+    pub fn factor(&self, u: f64) -> f64 {
+        self.z * u * u + self.i * u + self.p
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Either order of a line pair is the one connection, named in the
+    /// cyclic order on three lines (common practice, no source).
+    #[test]
+    fn a_line_pair_has_one_orientation_and_one_name() {
+        for (text, name) in [("L1-L3", "L3-L1"), ("L3-L1", "L3-L1"), ("L2-L1", "L1-L2")] {
+            let w = Wiring::parse(text, 3).unwrap();
+            assert_eq!(w.name(), name);
+        }
+        assert_eq!(Wiring::parse("L2-L1", 2).unwrap(), Wiring::LineLine(0, 1));
+        assert_eq!(Wiring::parse("N-L2", 2).unwrap(), Wiring::LineNeutral(1));
+        assert_eq!(Wiring::parse("L3-N", 2), Err(WiringError::NoSuchLine(2)));
+        assert_eq!(Wiring::parse("3P", 2), Err(WiringError::NotThreePhase));
+        assert_eq!(Wiring::parse("N-N", 3), Err(WiringError::SelfConnection));
+        assert_eq!(Wiring::parse("L1-L2-L3", 3), Err(WiringError::NotAWiring));
+        let all = Wiring::all(3);
+        assert_eq!(all.len(), 7);
+        assert!(all.contains(&Wiring::parse("L1-L3", 3).unwrap()));
+        assert_eq!(
+            Wiring::LineLine(0, 1).permuted(&[1, 2, 0]),
+            Wiring::parse("L2-L3", 3).unwrap()
+        );
+    }
+}
