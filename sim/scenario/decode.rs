@@ -1003,7 +1003,7 @@ fn decode_harmonics(ctx: &Ctx, t: &Table, load: LoadKind) -> Result<Vec<Harmonic
 /// A line of the supply, `L1` … `L3`, as an index.
 fn parse_line(ctx: &Ctx, node: &Node, path: &str, supply: SupplyKind) -> Result<usize, Error> {
     let text = ctx.string(node, path)?;
-    let lines: Vec<String> = (0..supply.lines()).map(|x| format!("L{}", x + 1)).collect();
+    let lines: Vec<String> = (0..supply.lines()).map(line_label).collect();
     lines.iter().position(|l| l == text).ok_or_else(|| {
         ctx.err(
             node,
