@@ -17,6 +17,7 @@ use crate::scenario::{self, Scenario, Wiring};
 use doc::{text, Doc, NodeExt};
 use rungs::{Home, Rung};
 use serde_json::{json, Value};
+use solver_check::contract::line_name;
 use solver_check::roundtrip::Solver;
 use solver_check::score::Report;
 use std::path::{Path, PathBuf};
@@ -288,12 +289,7 @@ fn run_rung(
     res.lines = s
         .appliances
         .iter()
-        .map(|a| {
-            (
-                a.id.clone(),
-                a.lines().iter().map(|x| format!("l{}", x + 1)).collect(),
-            )
-        })
+        .map(|a| (a.id.clone(), a.lines().into_iter().map(line_name).collect()))
         .collect();
     res.scores = outcomes
         .into_iter()
@@ -312,7 +308,7 @@ pub fn card(s: &Scenario, m: &Value) -> Value {
     let lines = s.home.supply.lines();
     let e: Vec<f64> = (0..lines)
         .map(|x| {
-            m["summary"]["conductor_energy_kwh"][format!("l{}", x + 1)]
+            m["summary"]["conductor_energy_kwh"][line_name(x)]
                 .as_f64()
                 .unwrap_or(0.0)
         })
@@ -350,7 +346,7 @@ pub fn card(s: &Scenario, m: &Value) -> Value {
         "supply": format!("{} {} V", s.home.supply.name(), s.home.voltage_v),
         "channels": if s.meter.total_only { "total" } else { "per-line" },
         "voltage_unbalance": s.home.source.unbalance,
-        "line_energy_share": (0..lines).map(|x| (format!("l{}", x + 1), json!(if total > 0.0 { e[x] / total } else { 0.0 }))).collect::<serde_json::Map<_, _>>(),
+        "line_energy_share": (0..lines).map(|x| (line_name(x), json!(if total > 0.0 { e[x] / total } else { 0.0 }))).collect::<serde_json::Map<_, _>>(),
         "line_imbalance": imbalance,
         "line_to_line_energy_share": energy(&|a| a.connections().iter().any(|c| c.is_line_to_line())),
         "three_phase_energy_share": energy(&|a| a.connections().contains(&Wiring::ThreePhase)),
