@@ -11,6 +11,7 @@
 //! solver is confined, every truth file's sha256 is checked before it is
 //! scored, and each estimate must cover exactly its home's rows.
 
+use crate::contract::{CROSSHOME_FORMAT, FLEET_TASK_FORMAT};
 use crate::dataset::Dataset;
 use crate::metrics::{Acc, Scores};
 use crate::render::Render;
@@ -23,11 +24,6 @@ use crate::taskio::{create_fresh, parquet_rows, split_rows};
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant};
-
-/// The task format of a cross-home round trip.
-pub const TASK_FORMAT: &str = "loadloom-fleet-task/1";
-/// The report format of a cross-home round trip.
-pub const REPORT_FORMAT: &str = "loadloom-crosshome/1";
 
 /// A home of the fleet: its name (`home=00003`) and its dataset folder.
 pub struct Home {
@@ -154,7 +150,7 @@ pub fn prepare(
     }
     let confine = std::env::var("LOADLOOM_CONFINE").map_or(true, |v| v != "off");
     let task = json!({
-        "format": TASK_FORMAT,
+        "format": FLEET_TASK_FORMAT,
         "reveal": reveal.name(),
         "train": train_json,
         "test": test_json,
@@ -516,7 +512,7 @@ impl Render for FleetOutcome {
             })
         });
         json!({
-            "format": REPORT_FORMAT,
+            "format": CROSSHOME_FORMAT,
             "solver": {
                 "command": self.solver, "seconds": self.seconds, "task": self.task_dir,
                 "estimates": self.estimates, "log": self.log, "confinement": self.confinement,

@@ -32,6 +32,10 @@ pub const LEADERBOARD_FORMAT: &str = "loadloom-leaderboard/1";
 pub const SUITE_FORMAT: &str = "loadloom-suite/1";
 /// Format id of a layout ladder's report (`roundtrip --layouts`, `ladder.json`).
 pub const LAYOUTS_FORMAT: &str = "loadloom-layouts/1";
+/// Format id of a cross-home round trip's `task.json`.
+pub const FLEET_TASK_FORMAT: &str = "loadloom-fleet-task/1";
+/// Format id of a cross-home round trip's report (`roundtrip --fleet --json`).
+pub const CROSSHOME_FORMAT: &str = "loadloom-crosshome/1";
 /// Format id of a fleet's summary (`fleet.json`).
 pub const FLEET_FORMAT: &str = "loadloom-fleet/2";
 
