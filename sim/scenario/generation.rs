@@ -2,7 +2,7 @@
 //! into appliances of their own roles (after the `[[appliance]]` list), so
 //! the truth, the events and the manifest carry them like any appliance.
 
-use super::decode::{check_id, connection_voltage, parse_wiring};
+use super::decode::{check_id, parse_wiring};
 use super::model::*;
 use super::reader::{Ctx, Table};
 use super::source::{Error, Node};
@@ -32,7 +32,7 @@ const WIND_M_S: f64 = 1.0;
 /// A draw of `p_w` (negative: exporting) through an inverter: constant
 /// power, unity power factor, no harmonics (grid-tied inverters hold current
 /// distortion under 5 % of rated current, IEEE 1547-2018, from memory).
-fn inverter_draw(home: &Home, wiring: Connection, p_w: f64) -> Draw {
+fn inverter_draw(home: &Home, wiring: Wiring, p_w: f64) -> Draw {
     Draw {
         wiring,
         p_w,
@@ -40,13 +40,13 @@ fn inverter_draw(home: &Home, wiring: Connection, p_w: f64) -> Draw {
         load: LoadKind::Electronic,
         zip_p: LoadKind::Electronic.default_zip_p(),
         zip_q: LoadKind::Electronic.default_zip_q(),
-        nominal_v: connection_voltage(home, wiring),
+        nominal_v: wiring.nominal_v(home.supply, home.voltage_v),
         rated_v: None,
         harmonics: vec![],
     }
 }
 
-fn state(home: &Home, wiring: Connection, name: &str, p_w: f64) -> State {
+fn state(home: &Home, wiring: Wiring, name: &str, p_w: f64) -> State {
     State {
         name: name.into(),
         draws: vec![inverter_draw(home, wiring, p_w)],
@@ -56,13 +56,13 @@ fn state(home: &Home, wiring: Connection, name: &str, p_w: f64) -> State {
 
 /// The inverter's wiring: as written, or the usual one for the supply (a
 /// 240 V inverter across L1-L2 in North America, three-phase in Europe).
-fn inverter_wiring(ctx: &Ctx, t: &Table, home: &Home) -> Result<Connection, Error> {
+fn inverter_wiring(ctx: &Ctx, t: &Table, home: &Home) -> Result<Wiring, Error> {
     match t.opt("wiring") {
         Some(n) => parse_wiring(ctx, n, &t.path_of("wiring"), home.supply),
         None => Ok(match home.supply {
-            SupplyKind::SplitPhase => Connection::Pair(0, 1),
-            SupplyKind::ThreePhase => Connection::ThreePhase,
-            SupplyKind::SinglePhase => Connection::Pair(0, NEUTRAL),
+            SupplyKind::SplitPhase => Wiring::LineLine(0, 1),
+            SupplyKind::ThreePhase => Wiring::ThreePhase,
+            SupplyKind::SinglePhase => Wiring::LineNeutral(0),
         }),
     }
 }
@@ -190,7 +190,7 @@ pub fn decode_pv(ctx: &Ctx, node: &Node, home: &Home) -> Result<(Appliance, Vec<
     let mut warnings = Vec::new();
     if home.supply == SupplyKind::ThreePhase
         && !wiring.is_line_to_line()
-        && wiring != Connection::ThreePhase
+        && wiring != Wiring::ThreePhase
         && ac_w > SINGLE_PHASE_LIMIT_VA
     {
         warnings.push(format!(
