@@ -4,8 +4,8 @@
 
 use super::{Ladder, RungResult};
 use serde_json::{json, Value};
-use solver_check::contract::LAYOUTS_FORMAT;
 use solver_check::audit::CAUTION;
+use solver_check::contract::LAYOUTS_FORMAT;
 use solver_check::render::Render;
 use solver_check::score::Report;
 
