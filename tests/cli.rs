@@ -209,7 +209,7 @@ fn files(dir: &Path) -> Vec<(String, Vec<u8>)> {
 
 #[test]
 fn same_seed_identical_bytes_other_seed_differs() {
-    // CHECKS.md "Sampling": same scenario and seed, identical file bytes.
+    // Determinism (README, "Tests and what they are checked against"): same scenario and seed, identical file bytes.
     let d = scratch("determinism");
     let p = write(&d, "home.toml", BASE);
     for (out, seed) in [("a", "11"), ("b", "11"), ("c", "12")] {

@@ -286,7 +286,7 @@ mod tests {
 
     #[test]
     fn known_answers() {
-        // CHECKS.md: a perfect estimate scores MAE 0, F1 1, estimated accuracy 1;
+        // Known answers of the metrics' definitions: a perfect estimate scores MAE 0, F1 1, estimated accuracy 1;
         // an all-zero estimate scores recall 0 and SAE 1.
         let y = [0.0, 100.0, 100.0, 0.0, 50.0];
         let s = run(&y, &y, 10.0);

@@ -1,7 +1,7 @@
 """The dataset contract checked with the reference readers: pyarrow reads every
 file with the schema, units and row counts the manifest states; pandas reads
-the CSV form with the same values as the Parquet form (CHECKS.md,
-"Interoperability")."""
+the CSV form with the same values as the Parquet form (README,
+"Tests and what they are checked against")."""
 import hashlib
 import json
 import pathlib

@@ -1,5 +1,5 @@
 """Adding an appliance leaves every other appliance's truth unchanged
-(CHECKS.md, "Sampling": random streams per appliance). With a stiff source the
+(random streams per appliance; README, "Tests and what they are checked against"). With a stiff source the
 columns are identical; with a source impedance the timelines are identical and
 the power differs only as the ZIP model says for the sag the new load causes."""
 import numpy as np

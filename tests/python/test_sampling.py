@@ -1,6 +1,7 @@
-"""Sampling checked with scipy.stats (CHECKS.md, "Sampling"): dwell times
-follow their declared distributions (Kolmogorov–Smirnov), start hours follow
-the declared hour weights (chi-square)."""
+"""Sampling checked with scipy.stats (README, "Tests and what they are
+checked against"): dwell times follow their declared distributions
+(Kolmogorov–Smirnov), start hours follow the declared hour weights
+(chi-square)."""
 import numpy as np
 import pandas as pd
 import pyarrow.parquet as pq

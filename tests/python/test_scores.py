@@ -1,6 +1,6 @@
 """Scores checked against scikit-learn (mean_absolute_error, mean_squared_error,
 precision_recall_fscore_support) and numpy implementations written from the
-cited formulas (CHECKS.md, "Scores"), plus known answers and bad estimates."""
+cited formulas (README, "Scoring an estimate"), plus known answers and bad estimates."""
 import json
 
 import numpy as np

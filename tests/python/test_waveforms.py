@@ -1,4 +1,4 @@
-"""Waveforms checked with numpy and scipy (CHECKS.md, "waveform harmonics"):
+"""Waveforms checked with numpy and scipy (README, "Tests and what they are checked against"):
 scipy.io.wavfile and soundfile read rate, channels and length; numpy.fft finds the
 declared harmonic magnitudes and THD; mean(v·i) over whole cycles equals the
 meters' P; i_n = −Σ i_line sample by sample; the two-wattmeter relation holds
