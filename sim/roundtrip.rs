@@ -471,34 +471,7 @@ fn appliance_tables(rows: &[SuiteRow], markdown: bool) -> String {
 impl Render for Suite {
     fn to_text(&self) -> String {
         let c = cells(&self.rows);
-        let w: Vec<usize> = (0..HEAD.len())
-            .map(|k| {
-                c.iter()
-                    .map(|r| r[k].chars().count())
-                    .chain([HEAD[k].len()])
-                    .max()
-                    .unwrap()
-            })
-            .collect();
-        let line = |r: &[String]| {
-            r.iter()
-                .enumerate()
-                .map(|(k, s)| {
-                    if k < 2 {
-                        format!("{s:<w$}", w = w[k])
-                    } else {
-                        format!("{s:>w$}", w = w[k])
-                    }
-                })
-                .collect::<Vec<_>>()
-                .join("  ")
-                + "\n"
-        };
-        let mut o = line(&HEAD.map(String::from));
-        for r in &c {
-            o += &line(r);
-        }
-        o + &appliance_tables(&self.rows, false)
+        solver_check::render::aligned(&HEAD, &c, 2) + &appliance_tables(&self.rows, false)
     }
 
     fn to_markdown(&self) -> String {

@@ -14,7 +14,7 @@
 use crate::contract::{CROSSHOME_FORMAT, FLEET_TASK_FORMAT};
 use crate::dataset::Dataset;
 use crate::metrics::{Acc, Scores};
-use crate::render::Render;
+use crate::render::{aligned, Render};
 use crate::roundtrip::{
     appliances_revealed, confinement_line, iso, run_command, score_checked, write_test_truth,
     Failure, Reveal, Run, Solver,
@@ -393,34 +393,6 @@ fn cells(o: &FleetOutcome) -> (Vec<Vec<String>>, Vec<String>) {
     (rows, failed)
 }
 
-fn aligned(head: &[&str], rows: &[Vec<String>]) -> String {
-    let w: Vec<usize> = (0..head.len())
-        .map(|k| {
-            rows.iter()
-                .map(|r| r[k].chars().count())
-                .chain([head[k].chars().count()])
-                .max()
-                .unwrap_or(0)
-        })
-        .collect();
-    let line = |r: Vec<String>| {
-        r.iter()
-            .enumerate()
-            .map(|(k, s)| match k {
-                0 => format!("{s:<w$}", w = w[k]),
-                _ => format!("{s:>w$}", w = w[k]),
-            })
-            .collect::<Vec<_>>()
-            .join("  ")
-            + "\n"
-    };
-    let mut out = line(head.iter().map(|s| s.to_string()).collect());
-    for r in rows {
-        out += &line(r.clone());
-    }
-    out
-}
-
 fn markdown(head: &[&str], rows: &[Vec<String>]) -> String {
     let mut out = format!("| {} |\n|", head.join(" | "));
     for k in 0..head.len() {
@@ -478,11 +450,11 @@ impl Render for FleetOutcome {
     fn to_text(&self) -> String {
         let (rows, failed) = cells(self);
         let mut out = self.heading();
-        out += &aligned(&HEAD, &rows);
+        out += &aligned(&HEAD, &rows, 1);
         let apps = app_rows(self);
         if !apps.is_empty() {
             out += "\npooled per appliance:\n";
-            out += &aligned(&APP_HEAD, &apps);
+            out += &aligned(&APP_HEAD, &apps, 1);
         }
         out + &Self::failures_text(&failed)
     }

@@ -5,7 +5,7 @@
 
 use crate::compare::compare;
 use crate::contract::LEADERBOARD_FORMAT;
-use crate::render::Render;
+use crate::render::{aligned, Render};
 use crate::roundtrip::Outcome;
 use crate::score::Report;
 use serde_json::{json, Value};
@@ -205,34 +205,6 @@ impl Render for Board {
             "failed": self.failed.iter().map(|(s, f)| json!({ "solver": s, "failure": f })).collect::<Vec<_>>(),
         })
     }
-}
-
-/// Columns padded to their widest cell; the first `left` columns left-aligned.
-fn aligned(head: &[String], rows: &[Vec<String>], left: usize) -> String {
-    let w: Vec<usize> = (0..head.len())
-        .map(|k| {
-            rows.iter()
-                .map(|r| r[k].chars().count())
-                .chain([head[k].chars().count()])
-                .max()
-                .unwrap_or(0)
-        })
-        .collect();
-    let line = |r: &[String]| {
-        r.iter()
-            .enumerate()
-            .map(|(k, s)| {
-                if k < left {
-                    format!("{s:<w$}", w = w[k])
-                } else {
-                    format!("{s:>w$}", w = w[k])
-                }
-            })
-            .collect::<Vec<_>>()
-            .join("  ")
-            + "\n"
-    };
-    rows.iter().fold(line(head), |o, r| o + &line(r))
 }
 
 fn markdown(head: &[String], rows: &[Vec<String>], left: usize) -> String {

@@ -57,6 +57,36 @@ pub trait Render {
     }
 }
 
+/// Columns padded to their widest cell (in characters), two spaces apart;
+/// the first `left` columns left-aligned (names), the rest right-aligned
+/// (numbers). The text form of every report table.
+pub fn aligned<H: AsRef<str>>(head: &[H], rows: &[Vec<String>], left: usize) -> String {
+    let w: Vec<usize> = (0..head.len())
+        .map(|k| {
+            rows.iter()
+                .map(|r| r[k].chars().count())
+                .chain([head[k].as_ref().chars().count()])
+                .max()
+                .unwrap_or(0)
+        })
+        .collect();
+    let line = |r: &mut dyn Iterator<Item = &str>| {
+        r.enumerate()
+            .map(|(k, s)| match k < left {
+                true => format!("{s:<w$}", w = w[k]),
+                false => format!("{s:>w$}", w = w[k]),
+            })
+            .collect::<Vec<_>>()
+            .join("  ")
+            + "\n"
+    };
+    let mut out = line(&mut head.iter().map(AsRef::as_ref));
+    for r in rows {
+        out += &line(&mut r.iter().map(String::as_str));
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -78,5 +108,12 @@ mod tests {
         assert_eq!(Form::from_flags(false, false), Form::Text);
         assert_eq!(Two.render(Form::Markdown), "two\n");
         assert_eq!(Two.render(Form::Json), "{\n  \"n\": 2\n}\n");
+    }
+
+    #[test]
+    fn columns_are_padded_names_left_numbers_right() {
+        let rows = vec![vec!["fridge".to_string(), "1.5".to_string()]];
+        let text = aligned(&["appliance", "MAE W"], &rows, 1);
+        assert_eq!(text, "appliance  MAE W\nfridge       1.5\n");
     }
 }
