@@ -10,12 +10,51 @@ use solver_check::contract::{line_label, WiringError};
 use std::path::{Path, PathBuf};
 
 /// Reads and checks a scenario file (and the templates it uses).
+///
+/// Errors name the file, line and column, the key and the fix; their exit
+/// status is 2 (bad input).
+///
+/// # Example
+///
+/// ```
+/// use std::path::Path;
+/// let home = loadloom::scenario::load(Path::new("scenarios/split-phase-house.toml"))?;
+/// assert_eq!(home.home.voltage_v, 120.0); // line to neutral, V
+/// assert!(home.appliances.iter().any(|a| a.id == "fridge"));
+/// # Ok::<(), loadloom::scenario::Error>(())
+/// ```
 pub fn load(path: &Path) -> Result<Scenario, Error> {
     load_str(path, read_source(path, "scenario")?)
 }
 
 /// Like [`load`], with the text given; `path` names it in errors and decides
 /// where templates are looked up.
+///
+/// # Example
+///
+/// A split-phase home with one kettle, ten minutes long:
+///
+/// ```
+/// use std::path::Path;
+/// let text = r#"
+/// [home]
+/// supply = "split-phase"
+/// timezone = "UTC"
+/// [run]
+/// start = "2027-01-04T00:00"
+/// length = "10 min"
+/// [[appliance]]
+/// id = "kettle"
+/// wiring = "L1-N"
+/// behaviour = "steady"
+/// load = "resistive"
+/// states = [{ power = "1500 W", pf = 1.0 }]
+/// "#;
+/// let home = loadloom::scenario::load_str(Path::new("kettle.toml"), text.to_string())?;
+/// assert_eq!(home.run.length_s, 600.0); // SI inside: seconds
+/// assert_eq!(home.appliances[0].states[0].p_w(), 1500.0); // watts
+/// # Ok::<(), loadloom::scenario::Error>(())
+/// ```
 pub fn load_str(path: &Path, text: String) -> Result<Scenario, Error> {
     let mut sources = Sources::default();
     let file = sources.add(path, text);
@@ -835,6 +874,7 @@ fn decode_meter(ctx: &Ctx, node: &Node, run: &Run) -> Result<Meter, Error> {
     })
 }
 
+/// Waveform sample rate when the scenario names none, Hz.
 pub const DEFAULT_WAVE_RATE_HZ: f64 = 12_800.0;
 
 /// Checks a waveform rate: whole samples per step, at least 20 per cycle.
@@ -1553,7 +1593,7 @@ fn decode_inrush(ctx: &Ctx, t: &Table) -> Result<Option<Inrush>, Error> {
     Ok(Some(Inrush { peak, decay_s }))
 }
 
-pub fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Error> {
+pub(crate) fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Error> {
     if let Val::Str(_) = node.v {
         return Ok(Dist::Fixed {
             value_s: ctx.positive(node, path, Kind::Duration)?,
@@ -1612,7 +1652,7 @@ pub fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Error> {
     Ok(d)
 }
 
-pub fn parse_hours(ctx: &Ctx, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
+pub(crate) fn parse_hours(ctx: &Ctx, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
     let help = "write hours = \"17-22\" (local hours 17:00 to 22:00), \"6-9,17-22\", or 24 weights [w0, …, w23]";
     let mut w = [0.0; 24];
     match &node.v {

@@ -5,8 +5,8 @@ pub mod generation;
 pub mod library;
 pub mod model;
 pub mod overrides;
-pub mod reader;
-pub mod source;
+pub(crate) mod reader;
+pub(crate) mod source;
 pub mod thermal;
 
 pub use decode::{load, load_str};

@@ -11,19 +11,26 @@ pub use solver_check::contract::{SupplyKind, Wiring, Zip};
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum LoadKind {
+    /// Heating elements, kettles, incandescent lamps: constant impedance.
     Resistive,
+    /// Induction motors (compressors, pumps, fans): part impedance, part constant power.
     Motor,
+    /// Switch-mode supplies (computers, TVs, chargers): constant power, strong odd harmonics.
     Electronic,
+    /// LED and fluorescent lamps with their drivers: a mix, with moderate harmonics.
     Lighting,
 }
 
 impl LoadKind {
+    /// Every kind with the name the scenario language writes it with.
     pub const ALL: [(&'static str, LoadKind); 4] = [
         ("resistive", LoadKind::Resistive),
         ("motor", LoadKind::Motor),
         ("electronic", LoadKind::Electronic),
         ("lighting", LoadKind::Lighting),
     ];
+    /// The default voltage dependence of this kind's active power (ZIP shares
+    /// summing to 1).
     pub fn default_zip_p(self) -> Zip {
         match self {
             LoadKind::Resistive => Zip {
@@ -73,6 +80,8 @@ impl LoadKind {
         }
     }
 
+    /// The default voltage dependence of this kind's reactive power (ZIP shares
+    /// summing to 1); motors' magnetising current gives a larger impedance share.
     pub fn default_zip_q(self) -> Zip {
         match self {
             LoadKind::Resistive => Zip {
@@ -103,19 +112,28 @@ impl LoadKind {
 /// One odd harmonic of a draw's current, relative to its fundamental.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 pub struct Harmonic {
+    /// Harmonic order: 3, 5, 7, … (multiples of the fundamental frequency).
     pub order: u32,
+    /// Current magnitude relative to the fundamental's (0.8 = 80 %).
     pub magnitude: f64,
+    /// Phase relative to the fundamental, degrees.
     pub phase_deg: f64,
 }
 
 /// One load inside a state: complex power at the connection's nominal voltage.
 #[derive(Clone, Debug, Serialize)]
 pub struct Draw {
+    /// The conductors this draw is connected between.
     pub wiring: Wiring,
+    /// Active power at the connection's nominal voltage, W.
     pub p_w: f64,
+    /// Reactive power at the connection's nominal voltage, var (positive: inductive).
     pub q_var: f64,
+    /// The kind of load, which gave the defaults of the ZIP shares and harmonics.
     pub load: LoadKind,
+    /// How the active power depends on the terminal voltage.
     pub zip_p: Zip,
+    /// How the reactive power depends on the terminal voltage.
     pub zip_q: Zip,
     /// Nominal voltage across this draw's connection, V.
     pub nominal_v: f64,
@@ -127,6 +145,8 @@ pub struct Draw {
     pub harmonics: Vec<Harmonic>,
 }
 
+/// A switch-on surge: the power starts at `peak` times the steady power and
+/// decays exponentially to it.
 #[derive(Clone, Copy, Debug, Serialize)]
 pub struct Inrush {
     /// Multiple of the steady power at switch-on.
@@ -135,17 +155,25 @@ pub struct Inrush {
     pub decay_s: f64,
 }
 
+/// One operating state of an appliance (off, heating, spinning, …): the loads
+/// it switches on and its switch-on surge.
 #[derive(Clone, Debug, Serialize)]
 pub struct State {
+    /// The state's name as written in the scenario ("off", "heat", …).
     pub name: String,
+    /// The loads on in this state (several for an appliance with elements on
+    /// different connections); empty for off.
     pub draws: Vec<Draw>,
+    /// The surge when this state begins, if any.
     pub inrush: Option<Inrush>,
 }
 
 impl State {
+    /// Nominal active power of the state, W: the sum over its draws.
     pub fn p_w(&self) -> f64 {
         self.draws.iter().map(|d| d.p_w).sum()
     }
+    /// Nominal reactive power of the state, var: the sum over its draws.
     pub fn q_var(&self) -> f64 {
         self.draws.iter().map(|d| d.q_var).sum()
     }
@@ -155,21 +183,30 @@ impl State {
 #[derive(Clone, Copy, Debug, Serialize)]
 #[serde(tag = "kind", rename_all = "lowercase")]
 pub enum Dist {
+    /// Always the same length.
     Fixed {
+        /// The length, s.
         value_s: f64,
     },
+    /// Equally likely anywhere between two lengths.
     Uniform {
+        /// The shortest length, s.
         min_s: f64,
+        /// The longest length, s.
         max_s: f64,
     },
     /// ln(X) ~ Normal(ln(median), spread²).
     Lognormal {
+        /// The median length, s.
         median_s: f64,
+        /// Standard deviation of ln(length) (dimensionless).
         spread: f64,
     },
     /// Shape k and mean; scale = mean / k.
     Gamma {
+        /// The mean length, s.
         mean_s: f64,
+        /// The shape parameter k (dimensionless; larger is less spread).
         shape: f64,
     },
 }
@@ -208,6 +245,7 @@ impl Dist {
         }
     }
 
+    /// The mean duration, s.
     pub fn mean_s(&self) -> f64 {
         match *self {
             Dist::Fixed { value_s } => value_s,
@@ -222,7 +260,9 @@ impl Dist {
 /// each local hour.
 #[derive(Clone, Debug, Serialize)]
 pub struct Habit {
+    /// Expected starts per weekday (Monday to Friday).
     pub starts_per_day: f64,
+    /// Expected starts per Saturday or Sunday.
     pub weekend_starts_per_day: f64,
     /// 24 non-negative weights, one per local hour, summing to 1 (weekdays).
     pub hour_weights: Vec<f64>,
@@ -264,18 +304,25 @@ impl Habit {
     }
 }
 
+/// A periodic extra state of a cycling appliance (a refrigerator's defrost).
 #[derive(Clone, Debug, Serialize)]
 pub struct Extra {
     /// Index into the appliance's states.
     pub state: usize,
+    /// How long the extra state lasts.
     pub length: Dist,
+    /// Running time between two extra states, s.
     pub every_s: f64,
 }
 
+/// A period of use of a modulating appliance, started by a habit.
 #[derive(Clone, Debug, Serialize)]
 pub struct Session {
+    /// When sessions start.
     pub habit: Habit,
+    /// How long a session lasts.
     pub length: Dist,
+    /// The last part of a session over which power falls to its minimum, s.
     pub taper_s: f64,
 }
 
@@ -283,6 +330,7 @@ pub struct Session {
 /// its PVWatts parameters (`sim/sun/pvwatts.rs`).
 #[derive(Clone, Debug, Serialize)]
 pub struct Pv {
+    /// Where the array stands (latitude, longitude, elevation).
     pub site: crate::sun::Site,
     /// Mean clear-sky index of a day; `None`: a sky without clouds.
     pub sky: Option<f64>,
@@ -290,9 +338,11 @@ pub struct Pv {
     pub dc_w: f64,
     /// The inverter's AC rating, W.
     pub ac_w: f64,
+    /// The array's tilt from horizontal, degrees (0 flat, 90 vertical).
     pub tilt_deg: f64,
     /// Clockwise from north (south 180°).
     pub azimuth_deg: f64,
+    /// Share of sunlight the ground reflects (0 … 1).
     pub albedo: f64,
     /// Share of DC power lost before the inverter.
     pub losses: f64,
@@ -302,6 +352,7 @@ pub struct Pv {
     pub mount: String,
     /// Outdoor air temperature, °C, and wind speed, m/s.
     pub air_c: f64,
+    /// Wind speed, m/s (cools the modules).
     pub wind_m_s: f64,
 }
 
@@ -343,25 +394,43 @@ pub enum Behaviour {
     /// Thermostatic: visits the listed states in order, each for a dwell,
     /// with an optional periodic extra state (defrost).
     Cycle {
+        /// How long it stays in each state, one per state.
         dwell: Vec<Dist>,
+        /// A periodic extra state (defrost), if any.
         extra: Option<Extra>,
     },
     /// Ordered phases started by a habit; state 0 is the implicit `off`.
-    Program { habit: Habit, lengths: Vec<Dist> },
+    Program {
+        /// When a run of the program starts.
+        habit: Habit,
+        /// How long each phase lasts, one per state after `off`.
+        lengths: Vec<Dist>,
+    },
     /// Dwell per state, then a jump with the given probabilities.
     Markov {
+        /// How long it stays in each state, one per state.
         dwell: Vec<Dist>,
+        /// Transition probabilities: `next[i][j]` from state i to state j (rows sum to 1).
         next: Vec<Vec<f64>>,
     },
     /// Always on, power scaled by (1 + jitter·N(0,1)) every `every_s`.
-    Steady { jitter: f64, every_s: f64 },
+    Steady {
+        /// Standard deviation of the power's relative variation (0.05 = 5 %).
+        jitter: f64,
+        /// How long each drawn power is held, s.
+        every_s: f64,
+    },
     /// Power wanders in [min, 1] of the running state's draws, updated every
     /// `every_s` by a reflected random walk of step `wander`; optionally only
     /// during sessions started by a habit, tapering to `min` at their end.
     Modulating {
+        /// The lowest share of the running state's power (0 … 1).
         min: f64,
+        /// Standard deviation of one step of the walk, share of full power.
         wander: f64,
+        /// Time between two steps of the walk, s.
         every_s: f64,
+        /// Sessions of use; `None`: running all the time.
         session: Option<Session>,
     },
     /// A PV inverter's output, from the sun and the sky (states off and
@@ -373,6 +442,7 @@ pub enum Behaviour {
     /// Driven by the home's thermostat (`[building]`, `[weather]`): its
     /// timeline comes from the heat balance, not from draws of its own.
     Thermostat {
+        /// Which part of the heating or cooling plant it is.
         role: crate::thermal::equipment::Role,
     },
 }
@@ -389,6 +459,7 @@ impl Behaviour {
         }
     }
 
+    /// The behaviour's name as written in the scenario (`behaviour = "cycle"`).
     pub fn name(&self) -> &'static str {
         match self {
             Behaviour::Cycle { .. } => "cycle",
@@ -403,16 +474,23 @@ impl Behaviour {
     }
 }
 
+/// One load of the home: its connection, states, behaviour and role.
 #[derive(Clone, Debug, Serialize)]
 pub struct Appliance {
+    /// Unique identifier: the truth columns are named after it.
     pub id: String,
+    /// A human name for reports and plots.
     pub label: String,
+    /// The library template it was made from, if any.
     pub template: Option<String>,
     /// What the energy is for, one of [`END_USES`] (for reports that sum
     /// appliances by use).
     pub end_use: String,
+    /// The appliance's main connection (its first draw's; reports and the audit use it).
     pub wiring: Wiring,
+    /// How it moves between its states over time.
     pub behaviour: Behaviour,
+    /// Its operating states; state 0 is off where the behaviour has one.
     pub states: Vec<State>,
     /// Power above which the appliance counts as on, W.
     pub on_threshold_w: f64,
@@ -420,6 +498,7 @@ pub struct Appliance {
     /// besides its own (`alternatives`); the layout ladder moves it between them.
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub alternatives: Vec<WiringKind>,
+    /// Whether it draws, makes or stores power.
     pub role: Role,
 }
 
@@ -427,12 +506,16 @@ pub struct Appliance {
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum WiringKind {
+    /// Between one line and the neutral (120 V or 230 V loads).
     LineToNeutral,
+    /// Between two lines (240 V or 208 V loads).
     LineToLine,
+    /// Across all three lines of a three-phase supply.
     ThreePhase,
 }
 
 impl WiringKind {
+    /// Every kind with the name the scenario language writes it with.
     pub const ALL: [(&'static str, WiringKind); 3] = [
         ("line-to-neutral", WiringKind::LineToNeutral),
         ("line-to-line", WiringKind::LineToLine),
@@ -446,6 +529,7 @@ impl WiringKind {
             _ => WiringKind::LineToNeutral,
         }
     }
+    /// The kind's name as written in the scenario (`line-to-line`).
     pub fn name(self) -> &'static str {
         WiringKind::ALL.iter().find(|(_, k)| *k == self).unwrap().0
     }
@@ -488,6 +572,8 @@ impl Appliance {
     }
 }
 
+/// The supply behind the meter: its slow voltage variation and the impedance
+/// of the service conductors.
 #[derive(Clone, Debug, Serialize)]
 pub struct Source {
     /// Standard deviation of the slow source-voltage variation, fraction of nominal.
@@ -496,9 +582,13 @@ pub struct Source {
     pub variation_time_s: f64,
     /// Limit of the variation, fraction of nominal (the supply's normal band).
     pub band: f64,
+    /// Resistance of each line conductor from the source to the home, Ω.
     pub line_r_ohm: f64,
+    /// Reactance of each line conductor at the supply frequency, Ω.
     pub line_x_ohm: f64,
+    /// Resistance of the neutral conductor, Ω.
     pub neutral_r_ohm: f64,
+    /// Reactance of the neutral conductor at the supply frequency, Ω.
     pub neutral_x_ohm: f64,
     /// Voltage unbalance factor of the source: the negative-sequence over
     /// the positive-sequence voltage (IEC 61000-4-30), three-phase only.
@@ -510,15 +600,23 @@ fn is_zero(x: &f64) -> bool {
     *x == 0.0
 }
 
+/// The home's supply and place: kind of service, voltages, rating, time zone
+/// and the source behind the meter.
 #[derive(Clone, Debug, Serialize)]
 pub struct Home {
+    /// A human name for the home.
     pub label: String,
+    /// Split-phase, three-phase or single-phase.
     pub supply: SupplyKind,
     /// Line-to-neutral nominal voltage, V.
     pub voltage_v: f64,
+    /// Supply frequency, Hz (50 or 60).
     pub frequency_hz: f64,
+    /// Rating of the service (main breaker), A.
     pub service_a: f64,
+    /// IANA time zone name (`America/Winnipeg`): local time for habits and the run's start.
     pub timezone: String,
+    /// The source's voltage variation and impedance.
     pub source: Source,
     /// Weekday hours when nobody is home (an occupancy pattern).
     pub away: Option<[bool; 24]>,
@@ -535,27 +633,36 @@ pub struct Home {
     pub source_at: String,
 }
 
+/// What to simulate: the start, the length, the step and the seed.
 #[derive(Clone, Debug, Serialize)]
 pub struct Run {
     /// Local start time as written, in the home's time zone.
     pub start_local: String,
     /// The same instant in milliseconds since 1970-01-01 UTC.
     pub start_utc_ms: i64,
+    /// Length of the run, s.
     pub length_s: f64,
+    /// Simulation step, s (100 ms … 1 min).
     pub step_s: f64,
+    /// The seed of every random stream of the run.
     pub seed: u64,
 }
 
 impl Run {
+    /// The number of simulation steps in the run.
     pub fn steps(&self) -> u64 {
         (self.length_s / self.step_s).round() as u64
     }
 }
 
+/// The monitor: how often it reports and how it errs.
 #[derive(Clone, Debug, Serialize)]
 pub struct Meter {
+    /// Reporting interval, s (a whole number of steps).
     pub interval_s: f64,
+    /// Standard deviation of the reading noise, share of the reading.
     pub noise_relative: f64,
+    /// Standard deviation of the noise that does not scale with the reading, W.
     pub noise_floor_w: f64,
     /// Quantisation step of P and Q readings, W (0 = none).
     pub resolution_w: f64,
@@ -580,6 +687,7 @@ pub struct CtFault {
     pub on: Option<usize>,
 }
 
+/// What a lost reporting interval looks like in the meters table.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum DropMode {
@@ -589,31 +697,38 @@ pub enum DropMode {
     Missing,
 }
 
+/// Reporting intervals the meter loses, in bursts.
 #[derive(Clone, Debug, Serialize)]
 pub struct Dropouts {
     /// Expected share of reporting intervals lost.
     pub rate: f64,
+    /// How long a burst of lost reporting lasts.
     pub length: Dist,
+    /// Whether lost intervals are null rows or absent rows.
     pub mode: DropMode,
 }
 
 /// Meter faults, each recorded in the manifest.
 #[derive(Clone, Debug, Default, Serialize)]
 pub struct Faults {
+    /// CTs that misread their conductor.
     pub ct: Vec<CtFault>,
     /// Two channels exchanged (CT and voltage reference, or their labels).
     pub swap: Option<(usize, usize)>,
     /// A line with no CT: its P, Q and I are null; totals lack it.
     pub no_ct: Option<usize>,
+    /// Lost reporting intervals, if any.
     pub dropouts: Option<Dropouts>,
     /// The meter's clock: offset (s) and drift (fraction, e.g. 20e-6).
     pub clock_offset_s: f64,
+    /// The meter clock's rate error, fraction (20e-6 = 20 ppm fast).
     pub clock_drift: f64,
     /// Cumulative energy register per line, Wh.
     pub register: bool,
 }
 
 impl Faults {
+    /// True when no fault is set (the meter reports what flows).
     pub fn is_empty(&self) -> bool {
         self.ct.is_empty()
             && self.swap.is_none()
@@ -631,22 +746,29 @@ impl Faults {
 /// use it (what really happens is `[faults]`); the audit checks it.
 #[derive(Clone, Debug, Serialize)]
 pub struct MeterChannel {
+    /// The line index its CT is declared on; `None`: no CT declared.
     pub conductor: Option<usize>,
+    /// Declared clamped facing the source (reads −I).
     pub reversed: bool,
 }
 
 /// A window of high-rate waveforms to write.
 #[derive(Clone, Debug, Serialize)]
 pub struct WaveWindow {
+    /// Local start time of the window as written, in the home's zone.
     pub start_local: String,
     /// Offset from the start of the run, s.
     pub offset_s: f64,
+    /// Length of the window, s.
     pub length_s: f64,
 }
 
+/// High-rate waveforms to write: their sample rate and windows.
 #[derive(Clone, Debug, Default, Serialize)]
 pub struct Waveforms {
+    /// Sample rate of the waveform files, Hz.
     pub rate_hz: f64,
+    /// The windows of time to write (empty: no waveforms).
     pub windows: Vec<WaveWindow>,
 }
 
@@ -663,18 +785,27 @@ pub struct Reference {
     pub source: String,
 }
 
+/// A home and everything to simulate about it, resolved: SI units inside,
+/// every default filled in.
 #[derive(Clone, Debug, Serialize)]
 pub struct Scenario {
+    /// The scenario's name (its file stem or `name`): the dataset folder is named after it.
     pub name: String,
+    /// The home's supply and place.
     pub home: Home,
+    /// What to simulate: start, length, step, seed.
     pub run: Run,
+    /// The monitor's reporting and errors.
     pub meter: Meter,
+    /// The listed loads, then the PV and the battery (roles `generator`, `storage`).
     pub appliances: Vec<Appliance>,
     /// Loads nobody listed: in the meters, in truth only as `unmetered_p_w`.
     pub unmetered: Vec<Appliance>,
+    /// What the meter really does wrong (recorded in the manifest).
     pub faults: Faults,
     /// The metering as declared, one entry per line channel.
     pub metering: Vec<MeterChannel>,
+    /// High-rate waveform windows to write.
     pub waveforms: Waveforms,
     /// What the scenario does that is allowed but unusual (printed by
     /// `validate`).
@@ -705,9 +836,11 @@ impl Scenario {
     pub fn consumers(&self) -> impl Iterator<Item = &Appliance> {
         self.appliances.iter().filter(|a| a.role == Role::Load)
     }
+    /// Simulation steps per reporting interval.
     pub fn steps_per_interval(&self) -> u64 {
         (self.meter.interval_s / self.run.step_s).round() as u64
     }
+    /// Reporting intervals in the run: the meters table's rows without dropouts.
     pub fn intervals(&self) -> u64 {
         self.run.steps() / self.steps_per_interval()
     }
