@@ -36,8 +36,11 @@ pub struct Short {
 /// A declaration's text with short entries and `[declaration]` blanked out,
 /// and what they said.
 pub struct Prepared {
+    /// The text for the scenario reader (short entries and `[declaration]` blanked).
     pub text: String,
+    /// The short entries, in the order written.
     pub shorts: Vec<Short>,
+    /// `[declaration] partial = true`: only some of the home's appliances are listed.
     pub partial: bool,
 }
 

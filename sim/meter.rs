@@ -20,12 +20,19 @@ use rand_distr::StandardNormal;
 /// A null reading is NaN here and null in the files.
 #[derive(Default)]
 pub struct Readings {
+    /// `[line]`: mean active power per interval, W.
     pub line_p: Vec<Vec<f32>>,
+    /// `[line]`: mean reactive power per interval, var.
     pub line_q: Vec<Vec<f32>>,
+    /// `[line]`: RMS line-to-neutral voltage per interval, V.
     pub line_v: Vec<Vec<f32>>,
+    /// `[line]`: RMS line current per interval, A.
     pub line_i: Vec<Vec<f32>>,
+    /// RMS neutral current per interval, A.
     pub n_i: Vec<f32>,
+    /// Sum of the line readings' active power per interval, W.
     pub total_p: Vec<f32>,
+    /// Sum of the line readings' reactive power per interval, var.
     pub total_q: Vec<f32>,
     /// Cumulative energy register per line, Wh (with `faults.register`).
     pub energy: Vec<Vec<f64>>,
@@ -34,6 +41,7 @@ pub struct Readings {
 }
 
 impl Readings {
+    /// Empty columns for a supply of `lines` line conductors.
     pub fn new(lines: usize) -> Self {
         Readings {
             line_p: vec![Vec::new(); lines],
@@ -44,9 +52,11 @@ impl Readings {
             ..Default::default()
         }
     }
+    /// Reporting intervals held.
     pub fn rows(&self) -> usize {
         self.n_i.len()
     }
+    /// Empties every column, keeping the allocations for the next chunk.
     pub fn clear(&mut self) {
         for v in self
             .line_p
@@ -95,7 +105,9 @@ pub fn dropout_gaps(faults: &Faults, interval_s: f64, rows: u64, seed: u64) -> V
     gaps
 }
 
-pub struct MeterModel {
+/// The monitor at work: accumulates each step's phasors, then emits one
+/// interval's readings with noise, quantisation and the faults applied.
+pub(crate) struct MeterModel {
     lines: usize,
     settings: Meter,
     faults: Faults,

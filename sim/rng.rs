@@ -4,6 +4,7 @@
 use rand::SeedableRng;
 use rand_xoshiro::Xoshiro256PlusPlus;
 
+/// A random stream (xoshiro256++): reproducible from its seed on every platform.
 pub type Stream = Xoshiro256PlusPlus;
 
 /// A stream for one owner (an appliance id, or "meter"/"source") and one purpose.

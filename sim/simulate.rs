@@ -12,14 +12,19 @@ use crate::scenario::{Role, Scenario};
 /// Exact per-appliance truth for a run of reporting intervals (columnar).
 #[derive(Default)]
 pub struct Truth {
+    /// `[appliance]`: mean active power over each reporting interval, W.
     pub app_p: Vec<Vec<f32>>,
+    /// `[appliance]`: mean reactive power over each reporting interval, var.
     pub app_q: Vec<Vec<f32>>,
+    /// `[appliance]`: the state index held for the greater part of each
+    /// reporting interval.
     pub app_state: Vec<Vec<u16>>,
     /// `[appliance][k]`: P on the k-th of that appliance's lines.
     pub app_line_p: Vec<Vec<Vec<f32>>>,
     /// `[appliance]`: a store's state of charge at the end of each interval
     /// (fraction); `None` for everything else.
     pub app_soc: Vec<Option<Vec<f32>>>,
+    /// Mean active power of the loads nobody listed, W, per reporting interval.
     pub unmetered_p: Vec<f32>,
 }
 
@@ -58,8 +63,11 @@ impl Truth {
 
 /// One chunk handed to the writers: rows `first_row ..` of meters and truth.
 pub struct Chunk {
+    /// Index of this chunk's first reporting interval in the run.
     pub first_row: u64,
+    /// What the meter reports for these intervals.
     pub readings: Readings,
+    /// The exact per-appliance truth for the same intervals.
     pub truth: Truth,
 }
 
@@ -67,10 +75,15 @@ pub struct Chunk {
 /// the same state.
 #[derive(Clone, Debug)]
 pub struct Event {
+    /// Index of the appliance in the scenario's `appliances`.
     pub app: usize,
+    /// Index of the state in the appliance's `states`.
     pub state: u16,
+    /// First simulation step in the state.
     pub start_step: u64,
+    /// The step after the last one in the state.
     pub end_step: u64,
+    /// Energy the appliance drew in the segment, J.
     pub energy_j: f64,
 }
 
@@ -78,15 +91,24 @@ pub struct Event {
 /// vectors hold the appliances, then the unmetered loads.
 #[derive(Clone, Debug, Default)]
 pub struct Summary {
+    /// Energy each load drew over the run, J.
     pub app_energy_j: Vec<f64>,
+    /// Largest active power of each load in any step, W.
     pub app_peak_w: Vec<f64>,
+    /// Energy through each line conductor over the run, J.
     pub line_energy_j: [f64; 3],
+    /// Largest RMS current in each line conductor as the meter reported it
+    /// (interval readings), A.
     pub line_peak_a: [f64; 3],
+    /// Largest RMS neutral current as the meter reported it, A.
     pub neutral_peak_a: f64,
 }
 
+/// What a finished simulation hands back besides its chunks.
 pub struct Outcome {
+    /// Every appliance's state segments, by appliance, then start.
     pub events: Vec<Event>,
+    /// Energies and peaks for the manifest's summary.
     pub summary: Summary,
     /// Reporting intervals lost to dropouts: (first row, rows).
     pub dropouts: Vec<(u64, u64)>,
@@ -127,6 +149,46 @@ fn check_solution(
 
 /// Runs the simulation over `intervals` reporting intervals, handing each
 /// chunk of at most `chunk_rows` rows to `sink`.
+///
+/// `timelines` come from [`crate::behaviour::timelines`]; `sink` returns an
+/// error of the caller's own type to stop the run (writing failed, …), and a
+/// solve that does not settle stops it with [`Diverged`].
+///
+/// # Example
+///
+/// Ten minutes of a 1500 W kettle on L1 of a split-phase home, read every
+/// second:
+///
+/// ```
+/// use loadloom::{behaviour, electrical::settle::Diverged, scenario, simulate};
+/// let text = r#"
+/// [home]
+/// supply = "split-phase"
+/// timezone = "UTC"
+/// [run]
+/// start = "2027-01-04T00:00"
+/// length = "10 min"
+/// [[appliance]]
+/// id = "kettle"
+/// wiring = "L1-N"
+/// behaviour = "steady"
+/// load = "resistive"
+/// states = [{ power = "1500 W", pf = 1.0 }]
+/// "#;
+/// let home = scenario::load_str(std::path::Path::new("kettle.toml"), text.into())?;
+/// let timelines = behaviour::timelines(&home, home.run.steps());
+/// let mut kettle_w = Vec::new();
+/// let outcome = simulate::simulate(&home, &timelines, home.intervals(), 65_536, |chunk| {
+///     kettle_w.extend_from_slice(&chunk.truth.app_p[0]); // W, one per interval
+///     Ok::<(), Diverged>(())
+/// })?;
+/// assert_eq!(kettle_w.len(), 600);
+/// // Near 1500 W: the default source sags and varies the voltage a little.
+/// assert!(kettle_w.iter().all(|&p| (p - 1500.0).abs() < 100.0));
+/// let kwh = outcome.summary.app_energy_j[0] / 3.6e6;
+/// assert!((kwh - 0.25).abs() < 0.02); // 1.5 kW for 1/6 h
+/// # Ok::<(), Box<dyn std::error::Error>>(())
+/// ```
 pub fn simulate<E>(
     s: &Scenario,
     timelines: &[Timeline],
@@ -141,7 +203,7 @@ where
 }
 
 /// [`simulate`], also writing the waveform windows to `recorder`.
-pub fn simulate_with<E>(
+pub(crate) fn simulate_with<E>(
     s: &Scenario,
     timelines: &[Timeline],
     intervals: u64,

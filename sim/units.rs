@@ -6,12 +6,19 @@
 /// What a quantity measures; decides which units are accepted.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Kind {
+    /// Active power: `W kW MW`, held in watts.
     Power,
+    /// Reactive power: `var kvar`, held in var.
     Reactive,
+    /// Voltage: `V kV`, held in volts.
     Voltage,
+    /// Current: `A mA`, held in amperes.
     Current,
+    /// Frequency: `Hz`, held in hertz.
     Frequency,
+    /// Duration: `ms s min h d w`, held in seconds.
     Duration,
+    /// Impedance: `ohm mohm`, held in ohms.
     Impedance,
     /// A share: `"2 %"` or a plain fraction such as `0.02`.
     Fraction,
@@ -131,6 +138,7 @@ impl Kind {
         }
     }
 
+    /// What the quantity is, in words, for error messages ("power").
     pub fn name(self) -> &'static str {
         match self {
             Kind::Power => "power",

@@ -26,7 +26,7 @@ struct Window {
     samples: u64,
 }
 
-pub struct Recorder {
+pub(crate) struct Recorder {
     windows: Vec<Window>,
     rate: f64,
     omega: f64,

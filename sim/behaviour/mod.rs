@@ -21,8 +21,11 @@ use crate::scenario::{Appliance, Behaviour, Scenario};
 /// A run of steps in one state. Steps are counted from the start of the run.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Segment {
+    /// First step of the segment.
     pub start: u64,
+    /// The step after its last (segments are half-open: `start..end`).
     pub end: u64,
+    /// Index of the state in the appliance's `states`.
     pub state: u16,
     /// Multiplies every draw of the state (jitter, modulation, taper).
     pub scale: f32,
@@ -31,6 +34,7 @@ pub struct Segment {
 /// Contiguous segments covering steps `0..steps` of the run.
 #[derive(Clone, Debug, Default)]
 pub struct Timeline {
+    /// The segments in order, each starting where the previous ends.
     pub segments: Vec<Segment>,
     /// A store's state of charge (fraction) at each segment's start and its
     /// change per step; empty for everything else.
@@ -47,9 +51,13 @@ impl Timeline {
 
 /// What a behaviour needs to know of the run, in steps.
 pub struct Clock<'a> {
+    /// Steps in the run.
     pub steps: u64,
+    /// Length of a step, s.
     pub step_s: f64,
+    /// The run's start, ms since 1970-01-01 UTC.
     pub start_utc_ms: i64,
+    /// The home's time zone (habits follow local hours).
     pub tz: &'a jiff::tz::TimeZone,
 }
 
@@ -61,13 +69,14 @@ impl Clock<'_> {
 }
 
 /// Collects segments, merging nothing, clipping at the end of the run.
-pub struct Builder {
+pub(crate) struct Builder {
     steps: u64,
     t: u64,
     segments: Vec<Segment>,
 }
 
 impl Builder {
+    /// An empty timeline for a run of `steps` steps.
     pub fn new(steps: u64) -> Self {
         Builder {
             steps,
@@ -75,9 +84,11 @@ impl Builder {
             segments: Vec::new(),
         }
     }
+    /// The first step not yet covered.
     pub fn now(&self) -> u64 {
         self.t
     }
+    /// Whether the run is covered to its end.
     pub fn done(&self) -> bool {
         self.t >= self.steps
     }
@@ -102,6 +113,7 @@ impl Builder {
             self.push(state, until - self.t, scale);
         }
     }
+    /// Fills what remains of the run with `state` and hands back the timeline.
     pub fn finish(mut self, state: usize) -> Timeline {
         let n = self.steps;
         self.fill_to(state, n, 1.0);

@@ -9,7 +9,7 @@ use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 
 /// A temporary folder removed when dropped, unless [`PartialDir::keep`] was called.
-pub struct PartialDir {
+pub(crate) struct PartialDir {
     path: PathBuf,
     armed: bool,
 }
@@ -28,6 +28,7 @@ impl PartialDir {
         Ok(PartialDir { path, armed: true })
     }
 
+    /// The partial folder's path (files are written inside it).
     pub fn path(&self) -> &Path {
         &self.path
     }

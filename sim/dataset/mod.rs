@@ -30,12 +30,16 @@ pub const CHUNK_ROWS: usize = 65_536;
 /// Where a dataset's files go inside the folder being written (paths
 /// relative to it), and the form of their tables.
 pub struct Layout {
+    /// A home on its own, or one home of a fleet.
     pub form: schema::Form,
-    /// The folders of `meters.*`, `truth.*` and `events.*`, and of
-    /// `manifest.json` and `scenario.toml` (waveforms go beside the manifest).
+    /// The folder of `meters.*`.
     pub meters: PathBuf,
+    /// The folder of `truth.*`.
     pub truth: PathBuf,
+    /// The folder of `events.*`.
     pub events: PathBuf,
+    /// The folder of `manifest.json` and `scenario.toml` (waveforms go
+    /// beside the manifest).
     pub manifest: PathBuf,
 }
 

@@ -7,21 +7,30 @@ use solver_check::contract::{columns, line_name};
 use std::collections::HashMap;
 use std::sync::Arc;
 
+/// How a column's values are stored.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum ColKind {
     /// Instant in ms since 1970-01-01 UTC, with the home's time zone attached.
     Time,
+    /// 32-bit float (readings and truth powers).
     F32,
+    /// 64-bit float (energy registers and event energies: sums that keep
+    /// growing over the run).
     F64,
     /// Dictionary-encoded string (state names, appliance ids).
     Dict,
+    /// Plain string.
     Str,
 }
 
+/// One column of the contract: its name, unit and storage.
 #[derive(Clone, Debug)]
 pub struct Col {
+    /// The column's name (`l1_p_w`, `fridge_p_w`, …).
     pub name: String,
+    /// Its unit as written in the manifest (`W`, `var`, `V`, `A`, `Wh`; empty for none).
     pub unit: &'static str,
+    /// How its values are stored.
     pub kind: ColKind,
     /// Meter readings may be null (dropouts, a line without CT).
     pub nullable: bool,

@@ -13,13 +13,18 @@ use std::io::{self, BufWriter, Write};
 use std::path::Path;
 use std::sync::Arc;
 
+/// The file format of a dataset's tables.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Format {
+    /// Apache Parquet.
     Parquet,
+    /// Comma-separated text with a header row; times as local ISO 8601 with
+    /// their UTC offset.
     Csv,
 }
 
 impl Format {
+    /// The file extension without its dot: `parquet` or `csv`.
     pub fn ext(self) -> &'static str {
         match self {
             Format::Parquet => "parquet",
@@ -28,10 +33,15 @@ impl Format {
     }
 }
 
+/// One table being written, in either format.
 pub enum Sink {
+    /// A Parquet file, row group by row group.
     Parquet(Box<super::parquet::Table>),
+    /// A CSV file, with times written in the home's zone.
     Csv {
+        /// The buffered file.
         out: BufWriter<File>,
+        /// The home's time zone, for the time column.
         tz: jiff::tz::TimeZone,
     },
 }
@@ -41,6 +51,8 @@ fn to_io(e: impl std::fmt::Display) -> io::Error {
 }
 
 impl Sink {
+    /// Creates the file at `path` and writes its header (CSV) or opens its
+    /// writer (Parquet) for tables of `schema`.
     pub fn create(
         path: &Path,
         format: Format,

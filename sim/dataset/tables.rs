@@ -13,12 +13,20 @@ use arrow_buffer::NullBuffer;
 use arrow_schema::{DataType, Schema};
 use std::sync::Arc;
 
+/// The columns and Arrow schemas of a dataset's three tables, with the time
+/// labelling of its rows: turns simulator chunks into record batches.
 pub struct Tables {
+    /// The meters table's columns.
     pub meters: Vec<Col>,
+    /// The truth table's columns.
     pub truth: Vec<Col>,
+    /// The events table's columns.
     pub events: Vec<Col>,
+    /// The meters table's Arrow schema.
     pub meters_schema: Arc<Schema>,
+    /// The truth table's Arrow schema.
     pub truth_schema: Arc<Schema>,
+    /// The events table's Arrow schema.
     pub events_schema: Arc<Schema>,
     tz: Arc<str>,
     interval_ms: i64,
@@ -190,10 +198,12 @@ impl Tables {
             + ((self.clock_offset_s + self.clock_drift * elapsed_s) * 1000.0).round() as i64
     }
 
+    /// The instant simulation step `step` begins, ms since 1970-01-01 UTC.
     pub fn step_time_ms(&self, step: u64) -> i64 {
         self.start_ms + step as i64 * self.step_ms
     }
 
+    /// The meters rows of a chunk (rows lost in the `missing` dropout form left out).
     pub fn meters_batch(&self, c: &Chunk) -> RecordBatch {
         let r = &c.readings;
         // Rows lost to a dropout in the "missing" form are left out.
@@ -316,6 +326,7 @@ impl Tables {
             .expect("columns follow the long truth schema")
     }
 
+    /// The events table: one row per state segment of each appliance.
     pub fn events_batch(&self, s: &Scenario, events: &[Event], step_s: f64) -> RecordBatch {
         let keys = Int16Array::from(events.iter().map(|e| e.app as i16).collect::<Vec<_>>());
         let cols: Vec<ArrayRef> = vec![

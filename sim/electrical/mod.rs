@@ -26,12 +26,19 @@ pub const NEUTRAL: u8 = 9;
 /// load), so its line currents sum to zero and no neutral current flows.
 #[derive(Clone, Debug)]
 pub struct Elem {
+    /// The terminal the current enters (a line index, or [`NEUTRAL`]).
     pub a: u8,
+    /// The terminal it returns through (a line index, or [`NEUTRAL`]).
     pub b: u8,
+    /// Active power at `nominal_v`, W.
     pub p_w: f64,
+    /// Reactive power at `nominal_v`, var.
     pub q_var: f64,
+    /// How the active power depends on the voltage across the element.
     pub zip_p: Zip,
+    /// How the reactive power depends on the voltage across the element.
     pub zip_q: Zip,
+    /// The voltage across `a`–`b` at which `p_w` and `q_var` hold, V.
     pub nominal_v: f64,
     /// Harmonic signature of its current (used by the waveform writer only).
     pub harmonics: Vec<Harmonic>,
@@ -59,20 +66,28 @@ pub fn elems_of(d: &crate::scenario::Draw) -> Vec<Elem> {
     }
 }
 
+/// One load as the solver sees it: its elements and switch-on surge per state.
 pub struct AppModel {
     /// Elements of each state.
     pub states: Vec<Vec<Elem>>,
+    /// The switch-on surge of each state, if any.
     pub inrush: Vec<Option<Inrush>>,
     /// The lines this appliance takes current from (its per-conductor truth columns).
     pub lines: Vec<usize>,
 }
 
+/// The home's circuit: the source behind the service impedances and every
+/// load's elements. Built once per run from the scenario.
 pub struct Network {
+    /// Number of line conductors (2 split-phase, 3 three-phase, 1 single-phase).
     pub lines: usize,
     /// Source line-to-neutral phasors at nominal magnitude.
     pub e_nominal: [C64; 3],
+    /// Impedance of each line conductor from the source to the home, Ω.
     pub z_line: C64,
+    /// Impedance of the neutral conductor, Ω.
     pub z_neutral: C64,
+    /// Every load, appliances then unmetered loads (the scenario's `loads()` order).
     pub apps: Vec<AppModel>,
 }
 
@@ -93,6 +108,7 @@ pub fn nominal_phasors(home: &Home) -> [C64; 3] {
 }
 
 impl Network {
+    /// The circuit of a scenario's home.
     pub fn new(s: &Scenario) -> Network {
         let apps = s
             .loads()
@@ -120,11 +136,14 @@ impl Network {
 /// Terminal potentials of the home against the source neutral.
 #[derive(Clone, Copy, Debug, Default)]
 pub struct Terminals {
+    /// Potential of each line terminal, V (phasor).
     pub u: [C64; 3],
+    /// Potential of the neutral terminal, V (phasor).
     pub u_n: C64,
 }
 
 impl Terminals {
+    /// The potential of terminal `t` (a line index or [`NEUTRAL`]), V.
     pub fn at(&self, t: u8) -> C64 {
         if t == NEUTRAL {
             self.u_n
@@ -146,15 +165,20 @@ impl Terminals {
 
 /// What one step of the solver yields.
 pub struct StepOut {
+    /// Current in each line conductor, A (phasor; unused lines zero).
     pub i_line: [C64; 3],
+    /// Line-to-neutral voltage at the home's terminals, V (phasor).
     pub v_ln: [C64; 3],
-    /// Per appliance: P, Q, and P on each of its lines (in `AppModel::lines` order).
+    /// Per appliance: active power, W.
     pub app_p: Vec<f64>,
+    /// Per appliance: reactive power, var.
     pub app_q: Vec<f64>,
+    /// Per appliance: active power on each of its lines, W (in `AppModel::lines` order).
     pub app_line_p: Vec<[f64; 3]>,
 }
 
 impl StepOut {
+    /// Zeroed output for `n_apps` loads, reused step after step.
     pub fn new(n_apps: usize) -> Self {
         StepOut {
             i_line: [C64::ZERO; 3],

@@ -24,6 +24,8 @@ pub const BAND: (f64, f64) = (0.5, 1.5);
 /// has no steady answer.
 #[derive(Debug, Clone)]
 pub struct Diverged {
+    /// What diverged and where: the step, the load on at that moment, the
+    /// impedance line of the scenario and the largest impedance that would do.
     pub message: String,
 }
 

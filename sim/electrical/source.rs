@@ -10,7 +10,9 @@ use crate::scenario::Source;
 use rand::Rng;
 use rand_distr::StandardNormal;
 
-pub struct SourceVoltage {
+/// The source's slow voltage variation: an Ornstein–Uhlenbeck process per
+/// line, held inside the supply's band.
+pub(crate) struct SourceVoltage {
     every: u64,
     count: u64,
     held: [f64; 3],

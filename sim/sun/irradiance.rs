@@ -7,8 +7,11 @@ use super::Light;
 /// north (a south-facing roof: 180°), degrees; the ground's albedo.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Surface {
+    /// Tilt from horizontal, degrees (0 flat, 90 vertical).
     pub tilt_deg: f64,
+    /// Direction the plane faces, degrees clockwise from north (south 180).
     pub azimuth_deg: f64,
+    /// Share of light the ground in front reflects (0 … 1).
     pub albedo: f64,
 }
 

@@ -10,8 +10,11 @@
 /// cell–back difference ΔT at 1000 W/m² (SAND2004-3535, table 1).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Mount {
+    /// Coefficient a of the module temperature, ln(°C per W/m²) (negative).
     pub a: f64,
+    /// Coefficient b: how wind cools the module, s/m (negative).
     pub b: f64,
+    /// Cell temperature above the module's back at 1000 W/m², °C.
     pub delta_t: f64,
 }
 
@@ -50,6 +53,7 @@ pub struct Array {
     pub gamma: f64,
     /// Share of DC power lost before the inverter.
     pub losses: f64,
+    /// How the modules are mounted (their temperature coefficients).
     pub mount: Mount,
 }
 

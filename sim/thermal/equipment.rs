@@ -33,18 +33,29 @@ pub enum Role {
     /// Air-source heat pump; states off, heating, defrost (and cooling).
     HeatPump(HeatPump),
     /// Cooling only; states off, cooling.
-    AirConditioner { cop: f64 },
+    AirConditioner {
+        /// Coefficient of performance at the cooling rating point (heat
+        /// moved over electricity drawn).
+        cop: f64,
+    },
     /// Electric resistance (baseboards, a furnace's strips); states off,
     /// heating. `backup`: the heat pump's second stage, not a heater of its own.
-    Resistance { backup: bool },
+    Resistance {
+        /// The heat pump's second stage rather than a heater of its own.
+        backup: bool,
+    },
     /// A fuel-fired furnace: delivers `capacity_w` of heat; its electric
     /// draw (blower, inducer) is the running state's.
-    Furnace { capacity_w: f64 },
+    Furnace {
+        /// Heat delivered while running, W.
+        capacity_w: f64,
+    },
     /// An air handler's fan: runs whenever heat or cooling is delivered by air.
     Blower,
 }
 
 impl Role {
+    /// The role's name as written in the scenario (`heat-pump`, `blower`, …).
     pub fn name(&self) -> &'static str {
         match self {
             Role::HeatPump(_) => "heat-pump",

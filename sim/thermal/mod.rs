@@ -64,7 +64,9 @@ impl Building {
 /// The two temperatures of the building, °C.
 #[derive(Clone, Copy, Debug)]
 pub struct Temps {
+    /// The interior node (air, furnishings, linings; the thermostat reads it), °C.
     pub interior: f64,
+    /// The envelope node (the heavy structure), °C.
     pub envelope: f64,
 }
 

@@ -34,10 +34,15 @@ pub struct DegreeDays {
 
 /// A named climate: figures, where they come from, and a degree-day normal.
 pub struct Named {
+    /// The name a scenario writes (`climate = "…"`).
     pub name: &'static str,
+    /// One line on the place and its climate, for listings.
     pub about: &'static str,
+    /// Builds its figures.
     pub climate: fn() -> Climate,
+    /// Where the figures come from.
     pub source: &'static str,
+    /// The published heating degree days a year, to compare a simulated year with.
     pub normal: DegreeDays,
 }
 

@@ -9,9 +9,13 @@ use std::path::Path;
 /// Checked measurements, sorted by time.
 #[derive(Clone, Debug, Default)]
 pub struct Recorded {
+    /// Instant of each row, ms since 1970-01-01 UTC.
     pub time_ms: Vec<i64>,
+    /// Outdoor dry-bulb temperature of each row, °C.
     pub temp_c: Vec<f64>,
+    /// Global horizontal irradiance of each row, W/m², if the file has it.
     pub ghi_w_m2: Option<Vec<f64>>,
+    /// Cloud cover of each row, fraction of the sky (0 … 1), if the file has it.
     pub cloud: Option<Vec<f64>>,
 }
 
@@ -19,7 +23,9 @@ pub struct Recorded {
 /// rows) and column when known, and what would be accepted.
 #[derive(Debug)]
 pub struct FileError {
+    /// What is wrong, with the row and column where known.
     pub message: String,
+    /// What would be accepted instead.
     pub help: String,
 }
 

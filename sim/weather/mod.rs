@@ -24,11 +24,14 @@ pub enum WeatherSpec {
     Synthetic {
         /// The named climate it came from, if any.
         name: Option<String>,
+        /// The figures the series is drawn from.
         climate: Climate,
     },
     /// Measurements read from a file (already read and checked).
     File {
+        /// The file as the scenario names it.
         path: String,
+        /// Its checked rows.
         #[serde(skip)]
         data: Recorded,
     },
@@ -37,6 +40,7 @@ pub enum WeatherSpec {
 /// Hourly weather from `start_utc_ms` (a whole UTC hour) on.
 #[derive(Clone, Debug)]
 pub struct Weather {
+    /// The first hour, ms since 1970-01-01 UTC.
     pub start_utc_ms: i64,
     /// Outdoor dry-bulb temperature, °C, one per hour.
     pub temp_c: Vec<f64>,
