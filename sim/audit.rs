@@ -176,8 +176,11 @@ pub fn declared(s: &Scenario) -> Declared {
 /// What a simulation shows the audit, and how often each appliance changed
 /// state in truth.
 pub struct Observed {
+    /// The steps the audit's detector found on the conductors.
     pub events: Vec<Event>,
+    /// Per channel: what the readings add up to (for the loading picture).
     pub stats: Vec<ChannelStats>,
+    /// Per appliance: how many times it changed state in truth.
     pub changes: Vec<usize>,
     /// The same, counting only changes of 500 W or more of real power (the
     /// smallest step an undeclared load is looked for by).
@@ -297,10 +300,14 @@ pub fn audit_scenario(s: &Scenario, d: &Declared) -> Outcome {
 
 /// A way of measuring the homes: the demo's own meter, or one made harder.
 pub struct Variant {
+    /// The variant's name in reports (`10 s`, `noise 1 %`).
     pub name: &'static str,
+    /// Changes a home's scenario into this way of measuring it.
     pub apply: fn(&mut Scenario),
 }
 
+/// The variants the matrix runs: the demo's own meter, a 10 s interval, 1 %
+/// noise, 5 % dropouts, 20 % unlisted background load.
 pub const VARIANTS: [Variant; 5] = [
     Variant {
         name: "1 s",
@@ -339,7 +346,9 @@ pub const VARIANTS: [Variant; 5] = [
 /// One injected mistake: its kind and subject as a finding would name them.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Mistake {
+    /// The finding kind that would name it (one of `solver_check::audit::check::KINDS`).
     pub kind: &'static str,
+    /// What it is about (an appliance id or a channel), as a finding names it.
     pub subject: String,
     /// For an undeclared load: its connections and the real power of each
     /// of its steps of 500 W or more (a finding names one of them).
@@ -357,9 +366,14 @@ pub const EXERCISED: usize = 6;
 /// twice, each time through other settings) does not recur in the data.
 pub const RECURS: usize = 3;
 
+/// One home, simulated and audited against a declaration with the mistakes
+/// injected into it.
 pub struct Case {
+    /// The home's scenario name.
     pub scenario: String,
+    /// The case's name (which mistakes were injected).
     pub name: String,
+    /// The mistakes injected into the declaration (empty: a clean case).
     pub mistakes: Vec<Mistake>,
     /// (kind, subject) of every finding.
     pub found: Vec<(String, String, Value)>,
@@ -659,6 +673,7 @@ fn hits(m: &Mistake, f: &(String, String, Value)) -> bool {
 
 /// Settings of a matrix run.
 pub struct MatrixOptions {
+    /// Days simulated per home.
     pub days: f64,
     /// Clean simulations per scenario (each also carries declaration mistakes).
     pub clean_runs: usize,
@@ -834,22 +849,34 @@ fn case_of(
 /// Per kind: injected, found, undecidable; findings of the kind, true ones.
 #[derive(Default, Clone)]
 pub struct KindScore {
+    /// Mistakes of the kind injected.
     pub injected: usize,
     /// Injected about appliances the run hardly switched (not in recall).
     pub unexercised: usize,
+    /// Of those, the ones the audit reported.
     pub found: usize,
+    /// Of those, the ones the audit called undecidable.
     pub undecidable: usize,
+    /// Findings of the kind the audit reported.
     pub reported: usize,
+    /// Of those, the ones that match an injected mistake.
     pub correct: usize,
 }
 
+/// The fault matrix's score over all its cases.
 pub struct MatrixScore {
+    /// Cases run.
     pub cases: usize,
+    /// Cases with no mistake injected.
     pub clean: usize,
+    /// Clean cases in which the audit reported something (false alarms).
     pub clean_with_findings: usize,
+    /// Per finding kind: recall and precision counts.
     pub kinds: Vec<(&'static str, KindScore)>,
 }
 
+/// Scores the cases: per kind, injected mistakes found (recall) and findings
+/// that were true (precision); false alarms on clean cases.
 pub fn score(cases: &[Case]) -> MatrixScore {
     let mut kinds: Vec<(&'static str, KindScore)> = check::KINDS
         .iter()
@@ -901,6 +928,7 @@ fn ratio(a: usize, b: usize) -> Option<f64> {
 }
 
 impl MatrixScore {
+    /// The score as JSON, with recall, precision and the false-alarm rate.
     pub fn to_json(&self, variant: &str) -> Value {
         json!({
             "variant": variant,
@@ -916,6 +944,7 @@ impl MatrixScore {
         })
     }
 
+    /// The score as a Markdown table, one row per finding kind.
     pub fn to_markdown(&self, variant: &str) -> String {
         let pct = |x: Option<f64>| {
             x.map(|v| format!("{:.1} %", 100.0 * v))

@@ -13,19 +13,29 @@ use crate::scenario::{Role, Scenario, Wiring};
 use serde_json::{json, Value};
 use solver_check::contract::line_name;
 
+/// Two appliance steps on one conductor that the meter cannot tell apart: their
+/// P and Q differ by less than 2·√2·σ of the meter noise at that level.
 pub struct Ambiguous {
+    /// The conductor (line index).
     pub line: usize,
+    /// The first: appliance id, state name, its step of P on that line, W.
     pub a: (String, String, f64),
+    /// The second, the same way.
     pub b: (String, String, f64),
 }
 
+/// The difficulty card: how hard a home is to disaggregate from its meters.
 pub struct Difficulty {
     /// Reporting intervals in which some appliance switches, share of all.
     pub switching_share: f64,
     /// Of those, the share in which two or more appliances switch.
     pub coincident_share: f64,
+    /// Pairs of appliance steps the meter cannot tell apart.
     pub ambiguous: Vec<Ambiguous>,
+    /// Share of the loads' energy drawn by appliances with a line-to-line or
+    /// three-phase connection.
     pub line_to_line_share: f64,
+    /// Share of the energy drawn by loads nobody listed.
     pub unmetered_share: f64,
 }
 
@@ -147,6 +157,7 @@ pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficult
 }
 
 impl Difficulty {
+    /// The card as the manifest's `difficulty` object.
     pub fn to_json(&self, s: &Scenario) -> Value {
         let per_line: serde_json::Map<String, Value> = (0..s.home.supply.lines())
             .map(|x| {
@@ -171,6 +182,7 @@ impl Difficulty {
         })
     }
 
+    /// The card as text, for `validate`.
     pub fn render(&self, s: &Scenario) -> String {
         let mut o = String::from("difficulty:\n");
         o += &format!(

@@ -20,47 +20,69 @@ use serde_json::{json, Value};
 use solver_check::contract::FLEET_FORMAT;
 use std::path::{Path, PathBuf};
 
+/// A kind of home (`[[kind]]`), drawn with its weight.
 #[derive(Clone, Debug)]
 pub struct HomeKind {
+    /// Its name (`na-house`); `[[owns]] kinds` refer to it.
     pub name: String,
+    /// Its relative weight in the draw (any non-negative number).
     pub weight: f64,
     /// The `[home]` keys, written into each scenario as they are.
     pub home_toml: String,
+    /// Its supply, read from its `[home]` keys.
     pub supply: crate::scenario::SupplyKind,
 }
 
+/// A library template owned by some homes (`[[owns]]`).
 #[derive(Clone, Debug)]
 pub struct Ownership {
+    /// The library template's name (`kettle`).
     pub template: String,
+    /// The share of homes that own it, 0 … 1.
     pub probability: f64,
+    /// How many a home that owns it has: drawn uniformly from this range, inclusive.
     pub count: (u32, u32),
     /// Kinds that may own it (empty: all).
     pub kinds: Vec<String>,
     /// Wiring choices per kind (absent: the template's own wiring).
     pub wiring: Vec<(String, Vec<String>)>,
+    /// Each home scales its power by a uniform factor within ±this share.
     pub power: f64,
+    /// Each home scales every duration of its behaviour within ±this share.
     pub time: f64,
     /// Habits shifted by a uniform amount within ±`shift_h` hours.
     pub shift_h: f64,
 }
 
+/// An occupancy pattern (`[[occupancy]]`), drawn with its weight.
 #[derive(Clone, Debug)]
 pub struct Occupancy {
+    /// Its name (`out-at-work`).
     pub name: String,
+    /// Its relative weight in the draw.
     pub weight: f64,
     /// The `[home] away` value (weekday hours nobody is home), if any.
     pub away: Option<String>,
 }
 
+/// A population file: what a fleet's homes are drawn from.
 #[derive(Clone, Debug)]
 pub struct Population {
+    /// The file it was read from.
     pub path: PathBuf,
+    /// A human name for the fleet (`[fleet] label`).
     pub label: String,
+    /// The fleet's seed: each home's scenario follows from it and the home's index.
     pub seed: u64,
+    /// The `[run]` keys shared by every home, as written.
     pub run_toml: String,
+    /// The `[meter]` keys shared by every home, as written.
     pub meter_toml: String,
+    /// The kinds of home.
     pub kinds: Vec<HomeKind>,
+    /// The templates homes may own.
     pub owns: Vec<Ownership>,
+    /// The occupancy patterns (empty: nobody is ever away).
     pub occupancy: Vec<Occupancy>,
 }
 
@@ -564,7 +586,9 @@ impl Population {
 /// Which homes this run makes: all, or shard I of N (homes with index % N == I).
 #[derive(Clone, Copy, Debug)]
 pub struct Shard {
+    /// This shard's number, 0 … count − 1.
     pub index: u64,
+    /// How many shards the fleet is split into.
     pub count: u64,
 }
 
@@ -675,7 +699,9 @@ pub fn is_complete(pop: &Population, out: &Path, i: u64) -> bool {
 /// whether it was bad input (exit status 2) rather than a run that failed (1).
 #[derive(Debug)]
 pub struct FleetError {
+    /// What went wrong, with its file and causes.
     pub error: Error,
+    /// Bad input (exit status 2) rather than a run that failed (1).
     pub bad_input: bool,
 }
 
@@ -757,9 +783,13 @@ fn write_home(s: &Scenario, out: &Path, i: u64) -> std::io::Result<()> {
     Ok(()) // `tmp`, now empty folders, is removed as it drops
 }
 
+/// What a fleet run did.
 pub struct FleetRun {
+    /// Homes written by this run.
     pub made: u64,
+    /// Homes already complete from an earlier run, left as they were.
     pub skipped: u64,
+    /// Whether the fleet's index was written (every home of the fleet is there).
     pub index_written: bool,
 }
 

@@ -14,12 +14,20 @@ use solver_check::score::Report;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
+/// How to run a round trip: the periods, what the solver is told, which
+/// solver, its time limit.
 pub struct Plan {
+    /// Length of the training period, s.
     pub train_s: f64,
+    /// Length of the test period, s (scored).
     pub test_s: f64,
+    /// What the solver is told about the test home beyond its meters.
     pub reveal: Reveal,
+    /// The solver: a built-in one or a command.
     pub solver: Solver,
+    /// Wall-clock time the solver may take before it is stopped.
     pub limit: Duration,
+    /// The file the solver must write (`estimate.parquet` or `estimate.csv`).
     pub estimate_name: &'static str,
     /// Folders a confined solver may read besides its own (`--allow-read`).
     pub allow_read: Vec<std::path::PathBuf>,
@@ -184,7 +192,9 @@ pub fn once(s: &Scenario, work: &Path, p: &Plan) -> Result<Outcome, String> {
 
 /// A rung of the difficulty ladder: a name and what it changes.
 pub struct Rung {
+    /// The rung's name in reports (`interval 1 min`).
     pub name: &'static str,
+    /// Changes a home's scenario to this rung's difficulty.
     pub apply: fn(&mut Scenario),
 }
 
@@ -278,8 +288,11 @@ pub const LADDER: [Rung; 6] = [
     },
 ];
 
+/// One home on one rung of the suite's ladder.
 pub struct SuiteRow {
+    /// The home's scenario name.
     pub scenario: String,
+    /// The rung's name.
     pub rung: &'static str,
     /// The scores; Err holds why there are none (a failed solver, or a
     /// rung skipped because it would change nothing: see `skipped`).

@@ -15,30 +15,50 @@ use solver_check::render::Render;
 /// for the whole project, kept with the audit).
 pub use solver_check::audit::CAUTION;
 
+/// One load's expected figures for `validate`.
 pub struct AppFigures {
+    /// The appliance id (`… (unmetered)` for a load nobody listed).
     pub id: String,
+    /// Its behaviour's name (`cycle`, `program`, …).
     pub behaviour: &'static str,
+    /// Every connection its draws use, joined by `+` (`L1-N+L1-L2`).
     pub wiring: String,
+    /// Expected energy per day, kWh (from its timeline at nominal voltage).
     pub kwh_per_day: f64,
+    /// Share of time it is on (above its on threshold), 0 … 1.
     pub duty: f64,
+    /// Its largest nominal power, W.
     pub peak_w: f64,
 }
 
+/// One line conductor's bound for `validate`.
 pub struct LineFigures {
+    /// The conductor's label (`L1`).
     pub name: String,
+    /// The coincident peak current if every load drew its largest state at once,
+    /// A (nominal voltage); compared with the service rating.
     pub peak_a: f64,
 }
 
+/// What `validate` prints about a scenario: per appliance, per conductor, and
+/// the difficulty card.
 pub struct Figures {
+    /// Days simulated for the figures (the run's length, at most 28).
     pub days: f64,
+    /// How hard the home is to disaggregate.
     pub difficulty: crate::difficulty::Difficulty,
+    /// Per load: appliances, then unmetered loads.
     pub apps: Vec<AppFigures>,
+    /// Per line conductor.
     pub lines: Vec<LineFigures>,
+    /// The service rating, A.
     pub service_a: f64,
     /// What the scenario does that is allowed but unusual.
     pub scenario_warnings: Vec<String>,
 }
 
+/// The figures of a scenario, from its behaviour timelines (at most 28 days)
+/// at nominal voltage; nothing is written.
 pub fn figures(s: &Scenario) -> Figures {
     let days = (s.run.length_s / 86400.0).min(28.0);
     let steps = ((days * 86400.0) / s.run.step_s).round() as u64;

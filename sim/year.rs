@@ -13,7 +13,9 @@ use serde::Serialize;
 /// One load's year.
 #[derive(Clone, Debug, Serialize)]
 pub struct LoadYear {
+    /// The appliance id.
     pub id: String,
+    /// Its energy over the year, kWh.
     pub kwh: f64,
     /// kWh in each calendar month, January first.
     pub monthly_kwh: [f64; 12],
@@ -22,12 +24,15 @@ pub struct LoadYear {
 /// The year's weather.
 #[derive(Clone, Debug, Serialize)]
 pub struct WeatherYear {
+    /// Mean outdoor temperature over the year, °C.
     pub mean_c: f64,
+    /// Mean outdoor temperature of each calendar month, °C, January first.
     pub monthly_mean_c: [f64; 12],
     /// Each local day's mean temperature, °C (hours from local midnight).
     pub daily_mean_c: Vec<f64>,
     /// Heating and cooling degree days, base 18 °C (hourly, K·d).
     pub hdd_18: f64,
+    /// Cooling degree days, base 18 °C (hourly, K·d).
     pub cdd_18: f64,
     /// The same to the base of the climate's published normal, and that normal.
     pub normal: Option<(f64, DegreeDays)>,
@@ -36,9 +41,14 @@ pub struct WeatherYear {
 /// A year of a home.
 #[derive(Clone, Debug, Serialize)]
 pub struct YearReport {
+    /// The calendar year (that of the run's start).
     pub year: i16,
+    /// Each load's year.
     pub loads: Vec<LoadYear>,
+    /// The home's net energy over the year, kWh: the sum over its loads (a PV
+    /// inverter's output counts negative).
     pub total_kwh: f64,
+    /// The home's energy in each calendar month, kWh, January first.
     pub monthly_kwh: [f64; 12],
     /// Days in each month of that year.
     pub month_days: [f64; 12],
@@ -46,7 +56,10 @@ pub struct YearReport {
     pub season_ratio: Option<f64>,
     /// Each cited figure with the simulated energy of what it covers.
     pub references: Vec<(Reference, f64)>,
+    /// The year's weather, if the home has any.
     pub weather: Option<WeatherYear>,
+    /// What the heat balance added up to (heat delivered, hours too cold), if the
+    /// home has a building.
     pub thermal: Option<Record>,
 }
 

@@ -4,11 +4,11 @@
 //! as a file of its own beside its results and is simulated from that file,
 //! so `loadloom roundtrip RUNG.toml` rebuilds the rung alone.
 
-pub mod doc;
+pub(crate) mod doc;
 mod plot;
 mod report;
-pub mod rungs;
-pub mod wire;
+pub(crate) mod rungs;
+pub(crate) mod wire;
 
 pub use plot::plot_svg;
 
@@ -119,24 +119,35 @@ pub fn slug(name: &str) -> String {
 
 /// One rung's outcome: where it lives, its card and each solver's scores.
 pub struct RungResult {
+    /// The family of rungs it belongs to (phase assignment, supply, metering, …).
     pub family: &'static str,
+    /// The rung's name in reports.
     pub name: String,
+    /// What the rung changed in the home, in words.
     pub note: String,
+    /// The rung's folder (its scenario file and datasets).
     pub dir: PathBuf,
+    /// The self-contained scenario file the rung was simulated from.
     pub scenario_file: PathBuf,
     /// The layout's difficulty card (empty when the rung failed before data).
     pub card: Value,
     /// Each appliance's conductors in this rung (`l1` …).
     pub lines: Vec<(String, Vec<String>)>,
+    /// Per solver (by name): its scores, or why there are none.
     pub scores: Vec<(String, Result<Report, String>)>,
 }
 
 /// The whole ladder of one home.
 pub struct Ladder {
+    /// The home's scenario name.
     pub home: String,
+    /// The solvers' names, in the order given.
     pub solvers: Vec<String>,
+    /// Length of each rung's training period, s.
     pub train_s: f64,
+    /// Length of each rung's test period, s.
     pub test_s: f64,
+    /// The rungs in ladder order, the home as written first.
     pub rungs: Vec<RungResult>,
 }
 
