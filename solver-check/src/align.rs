@@ -10,22 +10,30 @@ use std::path::Path;
 /// The scored intervals and where they sit in the truth and the estimate.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Plan {
+    /// Start of the first scored interval, ms since 1970-01-01 UTC.
     pub start_ms: i64,
+    /// Length of a scored interval, ms (the coarser of truth's and the estimate's).
     pub interval_ms: i64,
+    /// Number of scored intervals.
     pub rows: usize,
-    /// First truth row and truth rows per scored interval.
+    /// First truth row of the first scored interval.
     pub truth_first: usize,
+    /// Truth rows averaged into each scored interval.
     pub truth_per: usize,
-    /// First estimate row and estimate rows per scored interval.
+    /// First estimate row of the first scored interval.
     pub est_first: usize,
+    /// Estimate rows averaged into each scored interval.
     pub est_per: usize,
 }
 
 /// Checks times batch by batch: strictly increasing and evenly spaced.
 #[derive(Default)]
 pub struct TimeScan {
+    /// The first time seen, ms since 1970-01-01 UTC (None before any row).
     pub first: Option<i64>,
+    /// The spacing of the first two rows, ms; every later pair must keep it.
     pub spacing: Option<i64>,
+    /// Rows seen so far.
     pub rows: usize,
     last: i64,
 }

@@ -130,7 +130,9 @@ fn our_children() -> Vec<i32> {
 
 /// How a child run ended.
 pub enum Ended {
+    /// It ended by itself, with this status.
     Exited(std::process::ExitStatus),
+    /// It ran past its time limit and was stopped.
     TimedOut,
 }
 

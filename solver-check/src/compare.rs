@@ -36,14 +36,21 @@ fn get(s: &Scores, m: &str) -> Option<f64> {
     }
 }
 
+/// One score of both estimates and their difference with its 95 % interval.
 #[derive(Clone, Debug)]
 pub struct Diff {
+    /// The score's name (`mae_w`, `f1`, …).
     pub metric: &'static str,
+    /// The estimate's score on all days (None: undefined, such as NDE of an
+    /// appliance that never ran).
     pub estimate: Option<f64>,
+    /// The other estimate's score on all days.
     pub against: Option<f64>,
     /// estimate − against, on all days.
     pub delta: Option<f64>,
+    /// Lower end of the 95 % percentile interval of the difference.
     pub lo: Option<f64>,
+    /// Upper end of the 95 % percentile interval of the difference.
     pub hi: Option<f64>,
 }
 
@@ -75,10 +82,15 @@ impl Diff {
     }
 }
 
+/// Two estimates of one dataset compared by a paired bootstrap over days.
 pub struct Comparison {
+    /// The first estimate's file, as given.
     pub estimate: String,
+    /// The estimate it is compared with, as given.
     pub against: String,
+    /// Local days resampled (the blocks of the bootstrap).
     pub days: usize,
+    /// Bootstrap resamples drawn.
     pub resamples: usize,
     /// (appliance id or "overall", diffs).
     pub rows: Vec<(String, Vec<Diff>)>,

@@ -10,8 +10,11 @@ use std::path::{Path, PathBuf};
 /// What can be wrong with a dataset folder; each names the file and the fix.
 #[derive(Debug)]
 pub struct DatasetError {
+    /// The file at fault (the manifest, or a table it lists).
     pub file: PathBuf,
+    /// What is wrong.
     pub message: String,
+    /// How to fix it.
     pub help: String,
 }
 
@@ -40,21 +43,30 @@ fn err(file: &Path, message: impl Into<String>, help: impl Into<String>) -> Data
 /// One appliance as the manifest lists it.
 #[derive(Clone, Debug)]
 pub struct ApplianceInfo {
+    /// The appliance id: its truth columns are `{id}_p_w`, ….
     pub id: String,
+    /// The conductors it draws from (`l1`, `l2`).
     pub conductors: Vec<String>,
+    /// Power above which it counts as on, W (0 when the manifest gives none).
     pub on_threshold_w: f64,
 }
 
 /// An opened dataset folder.
 #[derive(Debug)]
 pub struct Dataset {
+    /// The dataset folder.
     pub dir: PathBuf,
+    /// The manifest, parsed.
     pub manifest: Value,
+    /// The home's time zone (IANA name); local days follow it.
     pub timezone: String,
+    /// The reporting interval, s.
     pub interval_s: f64,
+    /// Reporting intervals in the truth (rows of the truth table).
     pub rows: u64,
     /// Line conductors, `l1`, `l2`, … (the neutral is `n`).
     pub lines: Vec<String>,
+    /// The appliances the manifest lists, in its order.
     pub appliances: Vec<ApplianceInfo>,
 }
 

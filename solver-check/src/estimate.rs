@@ -13,8 +13,11 @@ use std::path::Path;
 /// The columns that hold one appliance's estimate.
 #[derive(Clone, Debug)]
 pub struct AppColumns {
+    /// The appliance id.
     pub id: String,
+    /// The column of its power estimate, W.
     pub p: String,
+    /// The column of its on-state estimate (0/1), if given.
     pub on: Option<String>,
     /// (conductor, column) for each `{id}_{conductor}_p_w` given.
     pub per_conductor: Vec<(String, String)>,
@@ -22,7 +25,9 @@ pub struct AppColumns {
 
 /// An opened estimate: its table header and which columns mean what.
 pub struct EstimateFile {
+    /// The table's header: file, columns, time zone.
     pub header: Header,
+    /// The appliances it estimates, in the order of its columns.
     pub apps: Vec<AppColumns>,
 }
 
@@ -156,11 +161,15 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
 /// on-states 0 or 1.
 #[derive(Clone, Copy, PartialEq)]
 pub enum Rule {
+    /// An appliance's power: finite and ≥ 0.
     Power,
+    /// A per-conductor power: finite (it may be negative).
     Conductor,
+    /// An on-state: 0 or 1.
     OnState,
 }
 
+/// The rule of each column of [`EstimateFile::columns`], in the same order.
 pub fn rules(e: &EstimateFile) -> Vec<Rule> {
     e.apps
         .iter()

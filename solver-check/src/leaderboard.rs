@@ -12,9 +12,13 @@ use serde_json::{json, Value};
 
 /// A ranked solver: its report and its MAE difference to the best.
 pub struct Ranked {
+    /// The solver's name (built-in name or command).
     pub solver: String,
+    /// Wall-clock time the solver took, s.
     pub seconds: f64,
+    /// How it was confined (the Landlock rules in force, or why none).
     pub confinement: String,
+    /// Its scores on the test period.
     pub report: Report,
     /// (difference, low, high) of overall MAE against the best (W); the
     /// best itself has none.
@@ -23,8 +27,11 @@ pub struct Ranked {
 
 /// The ranked table, and the solvers that got no score.
 pub struct Board {
+    /// The scored solvers, best overall MAE first.
     pub ranked: Vec<Ranked>,
+    /// (solver, why) for each solver that got no score.
     pub failed: Vec<(String, String)>,
+    /// Bootstrap resamples behind the intervals of `to_best`.
     pub resamples: usize,
 }
 

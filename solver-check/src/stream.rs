@@ -11,12 +11,16 @@ use parquet::arrow::arrow_reader::{ParquetRecordBatchReader, ParquetRecordBatchR
 use parquet::arrow::ProjectionMask;
 use std::path::{Path, PathBuf};
 
+/// Rows per batch read from a table: memory stays flat however long it is.
 pub const BATCH_ROWS: usize = 1 << 13;
 
 /// Rows `first..first + time_ms.len()` of the requested columns.
 pub struct Batch {
+    /// Index of the batch's first row in the table.
     pub first: usize,
+    /// Each row's time, ms since 1970-01-01 UTC.
     pub time_ms: Vec<i64>,
+    /// The numeric columns asked for, in the order asked (null as NaN).
     pub cols: Vec<Vec<f64>>,
     /// The text columns asked for with [`Header::stream_with_text`].
     pub texts: Vec<Vec<String>>,
@@ -24,9 +28,12 @@ pub struct Batch {
 
 /// What a table holds, read from its schema or header.
 pub struct Header {
+    /// The table's file.
     pub file: PathBuf,
     /// Every column but `time`, with whether it is text.
     pub columns: Vec<(String, bool)>,
+    /// The time zone of the `time` column (Parquet's timestamp type); None for
+    /// naive times and for CSV, whose times carry their offsets.
     pub time_zone: Option<String>,
     /// The zone to name when naive times must be localised (the dataset's).
     pub zone_hint: Option<String>,
@@ -46,9 +53,11 @@ enum Kind {
 }
 
 impl Header {
+    /// The names of every column but `time`.
     pub fn names(&self) -> impl Iterator<Item = &str> {
         self.columns.iter().map(|(n, _)| n.as_str())
     }
+    /// Whether the table has a column `name`.
     pub fn has(&self, name: &str) -> bool {
         self.columns.iter().any(|(n, _)| n == name)
     }
@@ -223,6 +232,8 @@ pub fn in_memory(t: Table) -> Header {
     }
 }
 
+/// The requested columns of one table, read batch by batch on the caller's
+/// thread.
 pub struct Stream<'h> {
     h: &'h Header,
     cols: Vec<String>,
@@ -618,7 +629,9 @@ impl Stream<'_> {
 /// Where a cursor gets its batches: a stream read here, or one read by
 /// another thread (so truth and estimate decode on two cores).
 pub trait Batches {
+    /// The next batch, or None at the end of the table.
     fn next_batch(&mut self) -> Result<Option<Batch>, TableError>;
+    /// The table's file, for errors.
     fn file(&self) -> &Path;
 }
 
@@ -678,6 +691,7 @@ pub struct Cursor<'h> {
 pub type BatchCheck<'h> = Box<dyn Fn(&Batch) -> Result<(), TableError> + 'h>;
 
 impl<'h> Cursor<'h> {
+    /// A cursor over `stream`, running `check` on every batch as it arrives.
     pub fn new(stream: Box<dyn Batches + 'h>, check: BatchCheck<'h>) -> Self {
         Cursor {
             stream,
@@ -707,6 +721,7 @@ impl<'h> Cursor<'h> {
         Ok(true)
     }
 
+    /// Skips `n` rows (fewer if the table ends first).
     pub fn skip(&mut self, mut n: usize) -> Result<(), TableError> {
         while n > 0 {
             if !self.fill()? {

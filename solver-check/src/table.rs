@@ -8,11 +8,15 @@ use std::path::{Path, PathBuf};
 /// A bad table: names the file, the column and the first offending row.
 #[derive(Debug, Clone)]
 pub struct TableError {
+    /// The table's file.
     pub file: PathBuf,
+    /// The column at fault, if one is.
     pub column: Option<String>,
     /// 0-based data row (header excluded).
     pub row: Option<usize>,
+    /// What is wrong.
     pub message: String,
+    /// How to fix it.
     pub help: String,
 }
 
@@ -32,6 +36,7 @@ impl fmt::Display for TableError {
 
 impl std::error::Error for TableError {}
 
+/// A [`TableError`] from borrowed parts.
 pub fn table_err(
     file: &Path,
     column: Option<&str>,
@@ -51,21 +56,27 @@ pub fn table_err(
 /// A column as read: numbers, or text (state names, appliance ids).
 #[derive(Clone, Debug)]
 pub enum Column {
+    /// Numbers (null as NaN).
     Num(Vec<f64>),
+    /// Text.
     Text(Vec<String>),
 }
 
 /// A table with its `time` column in ms since 1970 UTC.
 #[derive(Clone, Debug)]
 pub struct Table {
+    /// The file it was read from.
     pub file: PathBuf,
+    /// Each row's time, ms since 1970-01-01 UTC.
     pub time_ms: Vec<i64>,
     /// The time zone in the Parquet time type, if any.
     pub time_zone: Option<String>,
+    /// Every column but `time`, by name, in the file's order.
     pub columns: Vec<(String, Column)>,
 }
 
 impl Table {
+    /// The numeric column `name`, if there is one.
     pub fn num(&self, name: &str) -> Option<&[f64]> {
         self.columns
             .iter()
@@ -75,6 +86,7 @@ impl Table {
                 _ => None,
             })
     }
+    /// The text column `name`, if there is one.
     pub fn text(&self, name: &str) -> Option<&[String]> {
         self.columns
             .iter()
@@ -84,6 +96,7 @@ impl Table {
                 _ => None,
             })
     }
+    /// Whether there is a column `name` of either kind.
     pub fn has(&self, name: &str) -> bool {
         self.columns.iter().any(|(n, _)| n == name)
     }

@@ -21,12 +21,15 @@ use std::collections::VecDeque;
 /// One step: when, and the change of complex power on every channel.
 #[derive(Clone, Debug)]
 pub struct Event {
+    /// When the step happened (a row's time), ms since 1970-01-01 UTC.
     pub time_ms: i64,
+    /// Each channel's change of complex power, VA (P + jQ).
     pub delta: Vec<C64>,
     /// Each channel's level just before the step.
     pub before: Vec<C64>,
-    /// Each channel's voltage before and after the step, V (NaN: not measured).
+    /// Each channel's voltage before the step, V (NaN: not measured).
     pub v_before: Vec<f64>,
+    /// Each channel's voltage after the step, V (NaN: not measured).
     pub v_after: Vec<f64>,
     /// Standard error of each channel's change from the spread of the rows
     /// it is the difference of means of, VA.
@@ -44,6 +47,7 @@ impl Event {
 /// is within `ABS_TOL_W + REL_TOL · |S|` of the recent mean (chosen above
 /// three standard deviations of a 1 %-noise meter; common practice, no source).
 pub const ABS_TOL_W: f64 = 25.0;
+/// The relative part of that tolerance, share of the apparent power |S|.
 pub const REL_TOL: f64 = 0.025;
 /// Steps smaller than this on every channel are not kept, W.
 pub const MIN_STEP_W: f64 = 60.0;
@@ -108,6 +112,8 @@ impl Seg {
     }
 }
 
+/// Finds steps on all channels at once as the meter rows stream past: steady
+/// stretches, and the change of level between two of them.
 pub struct Detector {
     n: usize,
     units: Vec<Vec<[C64; 2]>>,
@@ -125,7 +131,9 @@ pub struct Detector {
     /// Whether a single row may stand as a level (intervals of 5 s or more,
     /// where an appliance can run for one row and a second one switch in the next).
     one_row_levels: bool,
+    /// The steps found so far.
     pub events: Vec<Event>,
+    /// Per channel: counts for the orientation and missing-CT checks so far.
     pub stats: Vec<ChannelStats>,
 }
 
@@ -454,6 +462,7 @@ impl Detector {
         }
     }
 
+    /// Closes the last stretch and hands back the steps and the channels' figures.
     pub fn finish(mut self) -> (Vec<Event>, Vec<ChannelStats>) {
         self.close();
         (self.events, self.stats)

@@ -14,26 +14,40 @@ use crate::stream::{header, Header};
 use serde_json::{json, Value};
 use std::path::Path;
 
+/// Printed wherever loadloom speaks of wiring, loading or breakers: an
+/// analysis of data is not an inspection.
 pub const CAUTION: &str = "Caution: this is an analysis of data, not an inspection of the installation. Local electrical codes (for example the NEC in the US, IEC 60364 and national rules in Europe) and a licensed electrician decide what is safe and allowed.";
 
+/// One line conductor's loading over the dataset.
 pub struct LineLoading {
+    /// The conductor's label (`L1`).
     pub line: String,
     /// Whether the line has readings at all (a missing CT has none).
     pub measured: bool,
     /// When the peak was read, ms since the epoch.
     pub peak_ms: Option<i64>,
+    /// The largest current read in one interval, A.
     pub peak_a: f64,
+    /// The largest mean current over a clock quarter hour (a demand reading), A.
     pub demand_15min_a: f64,
+    /// Mean current over the rows read, A.
     pub mean_a: f64,
 }
 
+/// The loading picture of a dataset: current per line against the service,
+/// imbalance, neutral.
 pub struct Loading {
+    /// The service rating from the manifest, A (0 when it gives none).
     pub service_a: f64,
+    /// Per line conductor.
     pub lines: Vec<LineLoading>,
     /// Largest deviation of a line's mean current from the lines' average,
     /// over that average (common practice, no source).
     pub imbalance: Option<f64>,
+    /// The largest neutral current read, A, if the meter reads the neutral.
     pub neutral_peak_measured_a: Option<f64>,
+    /// The largest neutral current computed from the line readings (the phasor
+    /// sum of the line currents at the supply's angles), A.
     pub neutral_peak_estimated_a: f64,
     /// Whether the table has current columns (else currents are from power).
     pub current_measured: bool,
@@ -49,6 +63,8 @@ fn angles(ds: &Dataset) -> Vec<f64> {
         .unwrap_or_default()
 }
 
+/// The loading picture of the dataset folder `dataset`, from its meters and
+/// manifest.
 pub fn loading(dataset: &Path) -> Result<Loading, String> {
     let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
     let service_a = ds.manifest["supply"]["service_a"].as_f64().unwrap_or(0.0);

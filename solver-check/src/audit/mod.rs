@@ -40,12 +40,19 @@ pub fn meters_file(data: &Path) -> Result<PathBuf, String> {
 
 /// What the audit concluded, with the loading picture.
 pub struct Audit {
+    /// The dataset folder or meters file audited, as given.
     pub data: String,
+    /// The declaration file, as given.
     pub declared_file: String,
+    /// The meters' reporting interval, s.
     pub interval_s: f64,
+    /// Meter rows read.
     pub rows: u64,
+    /// The loading picture.
     pub loading: Loading,
+    /// The checks' findings and verdicts.
     pub outcome: Outcome,
+    /// The declaration as read.
     pub declared: Declared,
 }
 

@@ -19,11 +19,16 @@ pub const PALETTE: [&str; 8] = [
     "#863553", "#f8a27c", "#a18222", "#376317", "#56d3bd", "#0e94ba", "#3d4f95", "#d6a4ed",
 ];
 
-/// Neutral greys of the drawings (frames, grids, the zero line, text).
+/// The background of a plot panel (this and the four below are the
+/// drawings' neutral greys).
 pub const PANEL_FILL: &str = "#f8f8f6";
+/// The frame around a panel.
 pub const FRAME: &str = "#8c8c88";
+/// Grid lines.
 pub const GRID: &str = "#e2e2de";
+/// The line at zero on a power axis.
 pub const ZERO_LINE: &str = "#5a5a56";
+/// Text: titles, tick labels, legends.
 pub const INK: &str = "#1e1e1c";
 
 /// How many series get a fill of their own: each colour plain, then with

@@ -13,10 +13,15 @@ use std::path::{Path, PathBuf};
 
 /// A task folder as a solver sees it.
 pub struct Task {
+    /// The task folder.
     pub dir: PathBuf,
+    /// `task.json`, parsed.
     pub json: Value,
+    /// The appliance ids to estimate.
     pub ids: Vec<String>,
+    /// The home's time zone (IANA name).
     pub timezone: String,
+    /// The line conductors the meters read (`l1`, `l2`, …).
     pub lines: Vec<String>,
     /// Training truths of other homes (a cross-home task), pooled by
     /// [`Task::train_truth`]; empty for a task of one home.
@@ -24,6 +29,7 @@ pub struct Task {
 }
 
 impl Task {
+    /// Opens the task folder `dir` and reads its `task.json`.
     pub fn open(dir: &Path) -> Result<Task, String> {
         let text = std::fs::read_to_string(dir.join("task.json"))
             .map_err(|e| format!("cannot read {}: {e}", dir.join("task.json").display()))?;
@@ -137,6 +143,7 @@ impl Task {
         })
     }
 
+    /// The test period's meters, columns `cols` only (a small table, read whole).
     pub fn test_meters(&self, cols: &[String]) -> Result<crate::table::Table, String> {
         let p = self
             .file("test", "meters")
