@@ -27,12 +27,15 @@ use std::time::{Duration, Instant};
 
 /// A home of the fleet: its name (`home=00003`) and its dataset folder.
 pub struct Home {
+    /// The home's name (`home=00003`).
     pub name: String,
+    /// Its dataset folder.
     pub dataset: PathBuf,
 }
 
 /// A test home once its task is written.
 pub struct TestHome {
+    /// The home's name.
     pub name: String,
     /// Its scored truth (a dataset of its own).
     pub truth_dir: PathBuf,
@@ -44,12 +47,17 @@ pub struct TestHome {
 
 /// A cross-home task written once.
 pub struct FleetTask {
+    /// The work folder holding the task, the scored truths and the solvers' folders.
     pub work: PathBuf,
+    /// `task/`: everything a solver may read.
     pub task_dir: PathBuf,
     /// The fleet's datasets (kept from the solver, as the truth is).
     pub homes_dir: PathBuf,
+    /// The training homes' names (meters and truth handed over).
     pub train: Vec<String>,
+    /// The test homes (meters handed over, truth scored).
     pub test: Vec<TestHome>,
+    /// Whether external solvers will be confined.
     pub confine: bool,
 }
 
@@ -180,18 +188,28 @@ pub fn prepare(
 
 /// One solver's run on a cross-home task.
 pub struct FleetOutcome {
+    /// The solver as reports name it.
     pub solver: String,
+    /// The task folder it read.
     pub task_dir: PathBuf,
+    /// The folder it wrote one estimate per test home into.
     pub estimates: PathBuf,
+    /// Its log (standard output and error).
     pub log: PathBuf,
+    /// Wall-clock time it ran, s.
     pub seconds: f64,
+    /// "confined by Landlock …" or "not confined: …".
     pub confinement: String,
+    /// Processes it left behind that were stopped.
     pub leftovers: usize,
+    /// The training homes' names.
     pub train: Vec<String>,
+    /// The test homes' names.
     pub test: Vec<String>,
     /// Each test home's score, or why it got none; empty when the solver
     /// itself failed (see `failure`).
     pub homes: Vec<(String, Result<Report, Failure>)>,
+    /// Why the solver itself failed, if it did (then no home is scored).
     pub failure: Option<Failure>,
 }
 
@@ -292,7 +310,9 @@ pub fn run(
 /// over every home's appliances) and per appliance id (pooled over the
 /// homes that have it).
 pub struct Pooled {
+    /// Test homes scored.
     pub homes: usize,
+    /// Scores pooled over every test home.
     pub overall: Scores,
     /// (id, homes that have it, scores).
     pub appliances: Vec<(String, usize, Scores)>,

@@ -6,8 +6,11 @@ use serde_json::{json, Value};
 /// (for example NDE of an appliance that never drew power).
 #[derive(Clone, Debug, Default)]
 pub struct Scores {
+    /// Rows (scored intervals) the scores cover.
     pub n: usize,
+    /// Energy in truth over the scored period, kWh.
     pub truth_kwh: f64,
+    /// Energy in the estimate over the scored period, kWh.
     pub estimate_kwh: f64,
     /// Mean absolute error, W.
     pub mae_w: f64,
@@ -21,11 +24,15 @@ pub struct Scores {
     pub sae_day: Option<f64>,
     /// Relative energy error, percent (signed).
     pub energy_error_pct: Option<f64>,
+    /// Of the intervals estimated on, the share truly on.
     pub precision: f64,
+    /// Of the intervals truly on, the share estimated on.
     pub recall: f64,
+    /// Harmonic mean of precision and recall.
     pub f1: f64,
     /// Estimated accuracy.
     pub accuracy: Option<f64>,
+    /// Match rate: Σ min(y, ŷ) / Σ max(y, ŷ).
     pub match_rate: Option<f64>,
 }
 
@@ -58,20 +65,32 @@ pub fn prf(tp: u64, fp: u64, fneg: u64) -> (f64, f64, f64) {
 /// appliances, so a bootstrap over days needs only these per day.
 #[derive(Clone, Copy, Debug, Default)]
 pub struct Sums {
+    /// Rows summed.
     pub n: u64,
+    /// Σ y: truth power summed over the rows, W·rows.
     pub sum_y: f64,
+    /// Σ ŷ: estimated power summed over the rows, W·rows.
     pub sum_yhat: f64,
+    /// Σ |ŷ − y|, W·rows.
     pub abs_err: f64,
+    /// Σ (ŷ − y)², W²·rows.
     pub sq_err: f64,
+    /// Σ y², W²·rows.
     pub sq_y: f64,
+    /// Σ min(y, ŷ), W·rows.
     pub sum_min: f64,
+    /// Σ max(y, ŷ), W·rows.
     pub sum_max: f64,
+    /// Rows on in both truth and estimate.
     pub tp: u64,
+    /// Rows on in the estimate only.
     pub fp: u64,
+    /// Rows on in truth only.
     pub fneg: u64,
 }
 
 impl Sums {
+    /// Adds `o`'s sums to these (pooling rows).
     pub fn merge(&mut self, o: &Sums) {
         self.n += o.n;
         self.sum_y += o.sum_y;
@@ -90,6 +109,7 @@ impl Sums {
 /// Per local day sums of one series (or of several pooled).
 #[derive(Clone, Debug, Default)]
 pub struct Acc {
+    /// The sums of each local day, by day index from the first scored day.
     pub days: Vec<Sums>,
 }
 
@@ -123,6 +143,7 @@ impl Acc {
         }
     }
 
+    /// Adds `o`'s sums day by day (pooling appliances).
     pub fn merge(&mut self, o: &Acc) {
         if self.days.len() < o.days.len() {
             self.days.resize(o.days.len(), Sums::default());
@@ -132,6 +153,7 @@ impl Acc {
         }
     }
 
+    /// The scores over all days; `interval_s` (s) turns power sums into energy.
     pub fn scores(&self, interval_s: f64) -> Scores {
         scores_of(self.days.iter(), interval_s)
     }
@@ -252,6 +274,7 @@ pub fn scores_of<'a>(days: impl Iterator<Item = &'a Sums>, interval_s: f64) -> S
 }
 
 impl Scores {
+    /// The scores as the `loadloom-score/1` report writes them (undefined ones null).
     pub fn to_json(&self) -> Value {
         json!({
             "rows": self.n,

@@ -20,6 +20,7 @@ use std::ops::Range;
 use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant};
 
+/// What a solver is told about the home beyond its meters (`--reveal`).
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Reveal {
     /// Appliance ids only.
@@ -31,6 +32,7 @@ pub enum Reveal {
 }
 
 impl Reveal {
+    /// The name `--reveal` takes and `task.json` records.
     pub fn name(self) -> &'static str {
         match self {
             Reveal::Ids => "ids",
@@ -40,8 +42,10 @@ impl Reveal {
     }
 }
 
+/// A solver to run: one of the built-in ones, or a program.
 #[derive(Clone, Debug)]
 pub enum Solver {
+    /// A built-in solver by name (`builtin:NAME`).
     Builtin(String),
     /// argv with `{task}` and `{estimate}` placeholders.
     Command(Vec<String>),
@@ -83,6 +87,7 @@ impl Solver {
         Some(format!("warning: builtin:{old} is renamed builtin:{new}; the old id is accepted in this release only"))
     }
 
+    /// The solver as reports name it (`builtin:NAME`, or the command line).
     pub fn describe(&self) -> String {
         match self {
             Solver::Builtin(n) => format!("builtin:{n}"),
@@ -139,19 +144,30 @@ pub fn split_words(s: &str) -> Result<Vec<String>, String> {
 /// Why a solver got no score.
 #[derive(Debug)]
 pub enum Failure {
+    /// It could not be started (the operating system's reason).
     Spawn(String),
+    /// It exited with a failure.
     Crashed {
+        /// Its exit status or signal, in words.
         status: String,
+        /// The last lines of its log.
         tail: String,
     },
+    /// It ran past its time limit and was stopped.
     TimedOut {
+        /// The time limit it ran past.
         after: Duration,
+        /// The last lines of its log.
         tail: String,
     },
+    /// It exited without writing its estimate.
     NoEstimate {
+        /// The last lines of its log.
         tail: String,
     },
+    /// Its estimate breaks a rule of the contract (the scorer's error).
     Malformed(String),
+    /// A built-in solver failed (its error).
     Builtin(String),
     /// The scored truth changed while the solver ran.
     Truth(String),
@@ -197,17 +213,23 @@ impl std::fmt::Display for Failure {
 
 /// One solver's run on a prepared task.
 pub struct Outcome {
+    /// The task folder the solver read.
     pub task_dir: PathBuf,
     /// The scored truth (a dataset of the test rows only).
     pub truth_dir: PathBuf,
+    /// The estimate file the solver was to write.
     pub estimate: PathBuf,
+    /// The solver's log (its standard output and error).
     pub log: PathBuf,
+    /// The solver as reports name it.
     pub solver: String,
+    /// Wall-clock time the solver ran, s.
     pub seconds: f64,
     /// "confined by Landlock …" or "not confined: …".
     pub confinement: String,
     /// Processes the solver left behind that were stopped.
     pub leftovers: usize,
+    /// Its scores on the test period, or why it got none.
     pub result: Result<Report, Failure>,
 }
 
@@ -222,18 +244,25 @@ pub(crate) fn iso(ms: i64, tz: &str) -> String {
 /// Rows of the dataset handed over with truth (train) and scored (test).
 #[derive(Clone, Debug)]
 pub struct Split {
+    /// Rows of the training period (meters and truth handed over).
     pub train: Range<usize>,
+    /// Rows of the test period (meters handed over, truth scored).
     pub test: Range<usize>,
 }
 
 /// A task written once, for any number of solvers.
 pub struct Prepared {
+    /// The dataset the task was cut from.
     pub dataset: PathBuf,
+    /// The work folder holding the task, the scored truth and the solvers' folders.
     pub work: PathBuf,
+    /// `task/`: everything the solver may read.
     pub task_dir: PathBuf,
+    /// `test-truth/`: the scored rows, a dataset of their own.
     pub truth_dir: PathBuf,
     /// sha256 of `truth_dir/truth.parquet` as written, kept in memory.
     truth_sha: String,
+    /// The file the solver must write (`estimate.parquet` or `estimate.csv`).
     pub estimate_name: String,
     /// Whether external solvers will be confined (LOADLOOM_CONFINE=off turns it off).
     pub confine: bool,

@@ -14,9 +14,13 @@ use serde_json::{json, Value};
 use std::fmt;
 use std::path::Path;
 
+/// Why an estimate could not be scored; each names the file and the fix
+/// (exit status 2).
 #[derive(Debug)]
 pub enum ScoreError {
+    /// The dataset folder or its manifest is wrong, or its truth changed.
     Dataset(DatasetError),
+    /// A table (truth or estimate) is wrong: its file, column and first bad row.
     Table(TableError),
 }
 
@@ -40,6 +44,7 @@ impl From<TableError> for ScoreError {
     }
 }
 
+/// How to score.
 pub struct Options {
     /// Score only the appliances the estimate gives.
     pub partial: bool,
@@ -64,9 +69,13 @@ pub fn parse_threshold(t: &str) -> Result<(String, f64), String> {
     Ok((id.to_string(), v))
 }
 
+/// One appliance's scores.
 pub struct ApplianceReport {
+    /// The appliance id.
     pub id: String,
+    /// The on-threshold used for precision, recall and F1, W.
     pub threshold_w: f64,
+    /// Its scores over the whole period.
     pub scores: Scores,
     /// Per local day sums, for comparisons.
     pub acc: Acc,
@@ -75,14 +84,25 @@ pub struct ApplianceReport {
     pub conductors: Vec<(String, Scores)>,
 }
 
+/// The scores of an estimate against a dataset's truth (`loadloom-score/1`).
 pub struct Report {
+    /// The dataset folder, as given.
     pub dataset: String,
+    /// The estimate file, as given.
     pub estimate: String,
+    /// The scored intervals and how truth and estimate rows map onto them.
     pub plan: Plan,
+    /// Rows of the truth table (the share scored is `plan.rows` over these, at
+    /// equal intervals).
     pub truth_rows: usize,
+    /// The home's time zone (IANA name); local days follow it.
     pub timezone: String,
+    /// Per appliance scored, in the dataset's order.
     pub appliances: Vec<ApplianceReport>,
+    /// Errors and energies pooled over appliances and time; precision, recall
+    /// and F1 averaged over appliances.
     pub overall: Scores,
+    /// The pooled sums per local day, for comparisons.
     pub overall_acc: Acc,
 }
 
@@ -150,6 +170,52 @@ fn truth_path(ds: &Dataset) -> Result<std::path::PathBuf, DatasetError> {
 const BLOCK: usize = 8192;
 
 /// Scores `estimate` against the dataset in `dataset`, streaming both.
+///
+/// The truth is checked against the manifest's sha256 first; the estimate
+/// must cover exactly the dataset's period (see the README's "Scoring an
+/// estimate" for every rule).
+///
+/// # Example
+///
+/// A dataset of four minutes written by hand (real measurements converted
+/// to the contract look the same), and an estimate 100 W high in one of
+/// them:
+///
+/// ```
+/// use solver_check::{contract::DATASET_FORMAT, dataset::sha256_hex, score};
+/// use std::fs;
+/// let dir = std::env::temp_dir().join(format!("solver-check-score-{}", std::process::id()));
+/// fs::create_dir_all(&dir)?;
+/// let truth = "time,kettle_p_w\n\
+///     2027-01-04T00:00:00Z,0\n\
+///     2027-01-04T00:01:00Z,2000\n\
+///     2027-01-04T00:02:00Z,2000\n\
+///     2027-01-04T00:03:00Z,0\n";
+/// fs::write(dir.join("truth.csv"), truth)?;
+/// let manifest = serde_json::json!({
+///     "format": DATASET_FORMAT,
+///     "time": { "timezone": "UTC", "interval_s": 60.0, "rows": 4,
+///               "start_utc_ms": 1_799_020_800_000i64 }, // 2027-01-04T00:00Z
+///     "supply": { "conductors": ["l1", "n"] },
+///     "appliances": [{ "id": "kettle", "conductors": ["l1"], "on_threshold_w": 10.0 }],
+///     "files": { "truth.csv": { "rows": 4, "bytes": truth.len(),
+///                               "sha256": sha256_hex(&dir.join("truth.csv"))? } },
+/// });
+/// fs::write(dir.join("manifest.json"), manifest.to_string())?;
+///
+/// let estimate = dir.join("estimate.csv");
+/// fs::write(&estimate, "time,kettle_p_w\n\
+///     2027-01-04T00:00:00Z,0\n\
+///     2027-01-04T00:01:00Z,2100\n\
+///     2027-01-04T00:02:00Z,2000\n\
+///     2027-01-04T00:03:00Z,0\n")?;
+/// let options = score::Options { partial: false, thresholds: vec![] };
+/// let report = score::score(&dir, &estimate, &options).map_err(|e| e.to_string())?;
+/// assert_eq!(report.overall.mae_w, 25.0); // W: 100 W off in one of four minutes
+/// assert_eq!(report.appliances[0].scores.f1, 1.0); // on and off at the right times
+/// fs::remove_dir_all(&dir)?;
+/// # Ok::<(), Box<dyn std::error::Error>>(())
+/// ```
 pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, ScoreError> {
     let ds = Dataset::open(dataset)?;
     ds.verify_truth()?;
