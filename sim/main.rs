@@ -35,6 +35,7 @@ enum Command {
     Man,
     Plot(cli::plot::Args),
     Validate(cli::validate::Args),
+    Templates(cli::templates::Args),
 }
 
 fn main() -> ExitCode {
@@ -55,5 +56,6 @@ fn main() -> ExitCode {
         Command::Man => cli::docs::man(Cli::command()),
         Command::Plot(a) => cli::plot::main(a),
         Command::Validate(a) => cli::validate::main(a),
+        Command::Templates(a) => cli::templates::main(a),
     }
 }

@@ -248,6 +248,7 @@ pub fn add_background(s: &mut Scenario, share: f64) {
             ],
             on_threshold_w: 0.0,
             alternatives: vec![],
+            when_dark_s: None,
             role: crate::scenario::Role::Load,
         });
     }

@@ -5,6 +5,7 @@
 //! below is its registration.
 
 mod cycle;
+pub mod dark;
 pub mod dist;
 pub mod habit;
 mod markov;
@@ -59,6 +60,8 @@ pub struct Clock<'a> {
     pub start_utc_ms: i64,
     /// The home's time zone (habits follow local hours).
     pub tz: &'a jiff::tz::TimeZone,
+    /// The home's site, for loads that follow the sun (`when_dark`).
+    pub site: Option<crate::sun::Site>,
 }
 
 impl Clock<'_> {
@@ -135,10 +138,14 @@ pub fn timeline(app: &Appliance, clock: &Clock, seed: u64) -> Timeline {
     if let Behaviour::Sun(pv) = &app.behaviour {
         return solar::generate(pv, seed, clock);
     }
-    window::assemble(clock, |c, block| {
+    let tl = window::assemble(clock, |c, block| {
         let mut rng = stream(seed, &app.id, &format!("behaviour {block}"));
         generate(app, c, &mut rng)
-    })
+    });
+    match (app.when_dark_s, clock.site) {
+        (Some(margin), Some(site)) => dark::mask(tl, clock, site, margin),
+        _ => tl,
+    }
 }
 
 /// The timeline of one appliance over `clock`, from `rng`.
@@ -183,6 +190,7 @@ pub fn timelines_with_record(s: &Scenario, steps: u64) -> (Vec<Timeline>, crate:
         step_s: s.run.step_s,
         start_utc_ms: s.run.start_utc_ms,
         tz: &tz,
+        site: s.home.site,
     };
     let mut out: Vec<Timeline> = s.loads().map(|a| timeline(a, &clock, s.run.seed)).collect();
     let record = crate::thermal::drive(s, &mut out, steps, &tz);

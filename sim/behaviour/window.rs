@@ -98,6 +98,7 @@ pub fn assemble(clock: &Clock, mut generate: impl FnMut(&Clock, i64) -> Timeline
                 step_s: clock.step_s,
                 start_utc_ms: clock.start_utc_ms + offset * step_ms,
                 tz: clock.tz,
+                site: clock.site,
             };
             Piece {
                 offset,
@@ -161,6 +162,7 @@ mod tests {
             step_s: 60.0,
             start_utc_ms: start_ms,
             tz,
+            site: None,
         };
         assemble(&c, toy)
     }

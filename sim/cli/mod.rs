@@ -11,6 +11,7 @@ pub mod plot;
 pub mod roundtrip;
 pub mod run;
 pub mod score;
+pub mod templates;
 pub mod validate;
 
 use loadloom::scenario::{self, Scenario};

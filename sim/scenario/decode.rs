@@ -215,6 +215,7 @@ fn decode(
             total_only: false,
         },
     };
+    let mut supply_warnings: Vec<(String, String)> = Vec::new();
     let apps_node = top.req("appliance", "one [[appliance]] section per appliance")?;
     if ctx.array(apps_node, "appliance")?.is_empty() {
         return Err(ctx.err(
@@ -232,12 +233,21 @@ fn decode(
         &home,
         templates,
         &mut appliances,
+        &mut supply_warnings,
     )?;
     // Unmetered loads: in the meters' aggregate, in truth only as their sum
     // `unmetered_p_w`; the same language as appliances.
     let metered = appliances.len();
     if let Some(n) = top.opt("unmetered") {
-        decode_list(ctx, n, "unmetered", &home, templates, &mut appliances)?;
+        decode_list(
+            ctx,
+            n,
+            "unmetered",
+            &home,
+            templates,
+            &mut appliances,
+            &mut supply_warnings,
+        )?;
     }
     if let Some(away) = home.away {
         for a in appliances.iter_mut() {
@@ -247,10 +257,17 @@ fn decode(
         }
     }
     let unmetered = appliances.split_off(metered);
+    // One warning per appliance: a rated draw's (it names the rescaled
+    // power), else the template's supply.
     let mut warnings: Vec<String> = appliances
         .iter()
         .chain(&unmetered)
-        .flat_map(rated_voltage_warnings)
+        .flat_map(|a| {
+            rated_voltage_warnings(a).or_else(|| {
+                let w = supply_warnings.iter().find(|(id, _)| *id == a.id);
+                w.map(|(_, w)| w.clone())
+            })
+        })
         .collect();
     if let Some(n) = top.opt("pv") {
         let (pv, w) = super::generation::decode_pv(ctx, n, &home)?;
@@ -337,6 +354,20 @@ fn decode(
         references,
         source_toml: None,
     })
+}
+
+/// Keys of an appliance that replace a template's powers: with any of them
+/// written, the scenario has made the powers its own.
+const OWN_POWERS: [&str; 4] = ["states", "phases", "extra", "power_scale"];
+
+/// The warning for a template written for another supply whose powers a
+/// scenario uses as they are (a 120 V refrigerator's in a 230 V home).
+fn supply_warning(id: &str, template: &str, about: &library::About, home: &Home) -> String {
+    format!(
+        "{id}: template \"{template}\" is written for a {} supply (line to neutral) and this home's is {:.0} V: its powers are taken as written (draws with `rated` are rescaled); use a template for this supply (`loadloom templates` lists each with its voltage), or write the powers (or `power_scale`) for this home",
+        about.voltage_text(),
+        home.voltage_v
+    )
 }
 
 /// How far a template's rated voltage may lie from its connection before
@@ -430,6 +461,7 @@ fn decode_list(
     home: &Home,
     templates: &[(String, usize, Node)],
     out: &mut Vec<Appliance>,
+    warnings: &mut Vec<(String, String)>,
 ) -> Result<(), Error> {
     let list = ctx.array(list_node, key)?;
     for (i, node) in list.iter().enumerate() {
@@ -437,6 +469,7 @@ fn decode_list(
         let merged;
         let mut node = node;
         let mut template = None;
+        let mut warn_supply = None;
         if let Val::Table(fields) = &node.v {
             if let Some(t) = fields.iter().find(|e| e.key == "template") {
                 if let Val::Str(tname) = &t.node.v {
@@ -446,7 +479,16 @@ fn decode_list(
                         .expect("templates collected");
                     let tt = ctx.table(tnode, tname)?;
                     let inner = tt.req("appliance", "the template's [appliance] section")?;
+                    let about = tt
+                        .opt("template")
+                        .map(|n| library::decode_about(ctx, n, tname))
+                        .transpose()?;
                     tt.finish()?;
+                    if let Some(about) = about.filter(|a| a.mismatched(home.voltage_v)) {
+                        if !fields.iter().any(|e| OWN_POWERS.contains(&e.key.as_str())) {
+                            warn_supply = Some((tname.clone(), about));
+                        }
+                    }
                     merged = merge(inner, node);
                     node = &merged;
                     template = Some(tname.clone());
@@ -454,6 +496,12 @@ fn decode_list(
             }
         }
         let app = decode_appliance(ctx, node, &path, home, template)?;
+        if let Some((tname, about)) = warn_supply {
+            warnings.push((
+                app.id.clone(),
+                supply_warning(&app.id, &tname, &about, home),
+            ));
+        }
         if let Some(prev) = out.iter().position(|a| a.id == app.id) {
             let id_node = ctx.table(node, &path)?.opt("id").unwrap_or(node);
             return Err(ctx.err(
@@ -2121,6 +2169,7 @@ fn decode_appliance(
         None => default_threshold(&states),
     };
     let alternatives = decode_alternatives(ctx, &t)?;
+    let when_dark_s = decode_when_dark(ctx, &t, &behaviour, home)?;
     t.finish()?;
     Ok(Appliance {
         id,
@@ -2133,7 +2182,62 @@ fn decode_appliance(
         on_threshold_w,
         alternatives,
         role: Role::Load,
+        when_dark_s,
     })
+}
+
+/// The longest `when_dark` margin: three hours either side of sunset and
+/// sunrise (beyond it the rule no longer speaks of daylight).
+pub const MAX_DARK_MARGIN_S: f64 = 3.0 * 3600.0;
+
+/// `when_dark = "30 min"`: a program's phases run only from that long
+/// before sunset to that long after sunrise at the home's site; `false`
+/// turns off a template's.
+fn decode_when_dark(
+    ctx: &Ctx,
+    t: &Table,
+    behaviour: &Behaviour,
+    home: &Home,
+) -> Result<Option<f64>, Error> {
+    let Some(n) = t.opt("when_dark") else {
+        return Ok(None);
+    };
+    let path = t.path_of("when_dark");
+    if let Val::Bool(on) = n.v {
+        if on {
+            return Err(ctx.err(n, &path, "when_dark = true says no margin", "write a margin such as when_dark = \"30 min\" (from 30 minutes before sunset to 30 minutes after sunrise), or when_dark = false"));
+        }
+        return Ok(None);
+    }
+    let margin = ctx.non_negative(n, &path, Kind::Duration)?;
+    if margin > MAX_DARK_MARGIN_S {
+        return Err(ctx.err(
+            n,
+            &path,
+            format!(
+                "a margin of {} is longer than 3 h",
+                crate::units::human_duration(margin)
+            ),
+            "write a margin of at most \"3 h\", such as \"30 min\"",
+        ));
+    }
+    if !matches!(behaviour, Behaviour::Program { .. }) {
+        return Err(ctx.err(
+            n,
+            &path,
+            "when_dark applies to programs only (their phases are what burns in the dark)",
+            "use behaviour = \"program\", or leave when_dark out",
+        ));
+    }
+    if home.site.is_none() {
+        return Err(ctx.err(
+            n,
+            &path,
+            "when_dark follows sunset and sunrise, but the home has no site",
+            "add latitude and longitude to [home], or write when_dark = false",
+        ));
+    }
+    Ok(Some(margin))
 }
 
 /// `alternatives = ["line-to-neutral", "three-phase"]`: the other kinds of

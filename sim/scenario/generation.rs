@@ -212,6 +212,7 @@ pub fn decode_pv(ctx: &Ctx, node: &Node, home: &Home) -> Result<(Appliance, Vec<
         on_threshold_w: 0.0,
         role: Role::Generator,
         alternatives: vec![],
+        when_dark_s: None,
     };
     Ok((app, warnings))
 }
@@ -295,5 +296,6 @@ pub fn decode_battery(ctx: &Ctx, node: &Node, home: &Home) -> Result<Appliance, 
         on_threshold_w: 0.0,
         role: Role::Storage,
         alternatives: vec![],
+        when_dark_s: None,
     })
 }

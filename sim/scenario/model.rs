@@ -500,6 +500,10 @@ pub struct Appliance {
     pub alternatives: Vec<WiringKind>,
     /// Whether it draws, makes or stores power.
     pub role: Role,
+    /// `when_dark`: a program runs its phases only from this long before
+    /// sunset to this long after sunrise at the home's site, s.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub when_dark_s: Option<f64>,
 }
 
 /// A kind of connection, regardless of which lines it uses.
