@@ -18,6 +18,45 @@ use std::path::Path;
 /// optionally `pf` or `q`, `rated`, `load`, `label`: an appliance that is
 /// off or on at that power), and which may say `[declaration] partial =
 /// true` when it lists only some appliances.
+///
+/// # Example
+///
+/// A 4 kW heater wired L1-L2 (240 V) but declared on L1-N: the audit of
+/// twenty minutes of its meters finds the mistake.
+///
+/// ```
+/// use loadloom::{audit::load_declaration, dataset::Format, pipeline, scenario};
+/// use std::fs;
+/// let dir = std::env::temp_dir().join(format!("loadloom-audit-{}", std::process::id()));
+/// fs::create_dir_all(&dir)?;
+/// let home = |wiring: &str| {
+///     format!(
+///         r#"
+/// [home]
+/// supply = "split-phase"
+/// timezone = "UTC"
+/// [run]
+/// start = "2027-01-04T00:00"
+/// length = "20 min"
+/// [[appliance]]
+/// id = "heater"
+/// wiring = "{wiring}"
+/// load = "resistive"
+/// behaviour = "cycle"
+/// states = [{{ name = "off", power = "0 W", dwell = "1 min" }}, {{ name = "on", power = "4 kW", dwell = "1 min" }}]
+/// "#
+///     )
+/// };
+/// let real = scenario::load_str(&dir.join("home.toml"), home("L1-L2"))?;
+/// let written = pipeline::write(&real, &dir, Format::Parquet, &mut |_share_done| {})?;
+///
+/// fs::write(dir.join("declared.toml"), home("L1-N"))?;
+/// let declared = load_declaration(&dir.join("declared.toml"))?;
+/// let audit = solver_check::audit::audit(&written.dir, &declared)?;
+/// assert!(audit.outcome.findings.iter().any(|f| f.subject == "heater"));
+/// fs::remove_dir_all(&dir)?;
+/// # Ok::<(), Box<dyn std::error::Error>>(())
+/// ```
 pub fn load_declaration(path: &Path) -> Result<Declared, scenario::Error> {
     // A regular file of bounded size in UTF-8, as every scenario.
     let text = scenario::source::read_source(path, "declaration")?;
@@ -629,7 +668,7 @@ fn unmatched(
     )
 }
 
-/// Whether two cases' findings are the same (see [`alike`]).
+/// Whether two cases' findings are the same (see `alike`).
 pub fn same_findings(a: &[(String, String, Value)], b: &[(String, String, Value)]) -> bool {
     let (x, y) = unmatched(a, b);
     x.is_empty() && y.is_empty()

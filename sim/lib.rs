@@ -6,6 +6,8 @@
 //! (phasors per step) → [`meter`] (readings per reporting interval) →
 //! [`dataset`] (files).
 
+#![warn(missing_docs)]
+
 pub mod audit;
 pub mod behaviour;
 pub mod crosshome;

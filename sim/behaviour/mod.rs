@@ -129,7 +129,7 @@ impl Builder {
 
 /// Generates the timeline of one appliance over the run, as a window onto
 /// the home's one timeline ([`window`]). Draws come from the streams
-/// (seed, appliance id, "behaviour <block>") only.
+/// (seed, appliance id, `"behaviour <block>"`) only.
 ///
 /// A PV inverter's timeline comes from the sun and the sky alone; a store
 /// idles here (with no other loads to follow) and is made from the others

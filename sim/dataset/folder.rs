@@ -1,5 +1,5 @@
 //! The atomic output folder: a dataset is written into `.NAME.partial-PID/`
-//! and renamed when complete. [`PartialDir`] removes that folder on every
+//! and renamed when complete. `PartialDir` removes that folder on every
 //! other way out (an error, a panic unwinding); [`sweep_stale`] removes the
 //! partial folders of processes that died without unwinding (killed), so
 //! nothing half-written stays behind. [`write_file`] writes a file next to

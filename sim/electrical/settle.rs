@@ -2,7 +2,7 @@
 //! large source impedance or a load far beyond the service, the iteration
 //! diverges or oscillates and would write voltages of millivolts or
 //! kilovolts, or NaN. [`Network::settle`] iterates until the terminals move
-//! less than [`SETTLE_TOL`] of nominal, and [`Network::plausible`] refuses
+//! less than [`SETTLE_TOL`] of nominal, and [`Network::implausible`] finds
 //! terminal voltages outside [`BAND`] of nominal.
 
 use super::{Network, StepOut, Terminals, C64};

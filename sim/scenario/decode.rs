@@ -1,5 +1,6 @@
-//! From the [`Node`] tree to a resolved [`Scenario`]: units to SI, defaults
-//! filled in, templates merged, every rule checked with its place named.
+//! From the `Node` tree (the TOML source with its places) to a resolved
+//! [`Scenario`]: units to SI, defaults filled in, templates merged, every
+//! rule checked with its place named.
 
 use super::library;
 use super::model::*;

@@ -5,7 +5,7 @@
 //! of the home (PV, solar gains through windows, daylight for lighting) can
 //! use it:
 //!
-//! - [`position`]: solar zenith and azimuth from the NOAA solar position
+//! - [`position()`]: solar zenith and azimuth from the NOAA solar position
 //!   equations ([`position::position`]);
 //! - [`irradiance`]: extraterrestrial irradiance (Spencer 1971), clear-sky
 //!   global horizontal irradiance (Haurwitz 1945), the Erbs et al. (1982)

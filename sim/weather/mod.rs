@@ -5,7 +5,7 @@
 //! Two sources: a synthetic year from a few climate figures
 //! ([`climate::Climate`], deterministic per seed and calendar date, so two
 //! windows of one home see the same weather on the same day), or a file of
-//! measurements ([`file`]).
+//! measurements ([`mod@file`]).
 
 pub mod climate;
 pub mod file;

@@ -16,6 +16,8 @@
 //!   [`confine`]: Landlock rules for a solver; [`child`]: running it and stopping what it leaves;
 //!   [`crosshome`]: training on some homes of a fleet, scoring on others.
 
+#![warn(missing_docs)]
+
 pub mod align;
 pub mod audit;
 pub mod child;

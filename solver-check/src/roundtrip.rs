@@ -361,7 +361,7 @@ fn write_tables(
 }
 
 /// Writes `task.json` into the task folder (its tables are written by
-/// [`write_tables`]): training rows `split.train` with truth, test rows
+/// `write_tables`): training rows `split.train` with truth, test rows
 /// `split.test` with meters only; returns the folder.
 pub fn write_task(
     ds: &Dataset,

@@ -29,13 +29,19 @@ use serde_json::{json, Value};
 /// is turned by the angle between the channel's voltage and that conductor's.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct ChanMap {
+    /// The conductor (line index) whose current the channel's CT reads.
     pub src: usize,
+    /// The sign it reads with: 1, or −1 for a CT clamped the wrong way round.
     pub k: f64,
+    /// Whether the power is turned by the angle between the channel's
+    /// voltage and that conductor's (a CT on another line's conductor).
     pub turned: bool,
 }
 
+/// A hypothesis of how the monitor's channels read the conductors.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Metering {
+    /// How each channel reads, one per line channel.
     pub map: Vec<ChanMap>,
     /// Channels that read nothing (no CT): left out of every comparison.
     pub absent: Vec<bool>,
@@ -83,28 +89,42 @@ pub const KINDS: [&str; 10] = [
     "undeclared-load",
 ];
 
+/// Something the data shows that the declaration does not say.
 #[derive(Clone, Debug)]
 pub struct Finding {
+    /// The kind of mistake, one of [`KINDS`].
     pub kind: &'static str,
     /// The appliance id, channel(s) ("l1", "l1+l2") or cluster the finding is about.
     pub subject: String,
+    /// What was found and what to check, in words.
     pub message: String,
+    /// Share of the evidence that speaks for it, 0 … 1 (below [`POSSIBLE`]:
+    /// listed apart).
     pub confidence: f64,
+    /// The figures behind it (step counts, powers), for the JSON report.
     pub evidence: Value,
 }
 
+/// The placement check of one declared appliance.
 #[derive(Clone, Debug)]
 pub struct ApplianceCheck {
+    /// The appliance id.
     pub id: String,
+    /// Its wiring as declared (`L1-N`).
     pub declared: String,
     /// "as declared", "finding" or "undecidable".
     pub verdict: &'static str,
+    /// The wiring the data shows, where it differs from the declared.
     pub seen: Option<String>,
+    /// Why the verdict, in words.
     pub reason: String,
+    /// Steps that fit it on its declared wiring.
     pub steps_declared: usize,
+    /// Steps that fit it on the best other wiring.
     pub steps_best_other: usize,
 }
 
+/// What the checks of a declaration against the data concluded.
 #[derive(Clone, Debug)]
 pub struct Outcome {
     /// Findings of confidence `POSSIBLE` or more.
@@ -114,10 +134,15 @@ pub struct Outcome {
     /// In a partial declaration, the recurring loads it does not list: not
     /// mistakes, but what the rest of the home is.
     pub unlisted: Vec<Finding>,
+    /// The placement check of each declared appliance.
     pub appliances: Vec<ApplianceCheck>,
+    /// The metering the data fits best (the declared one unless a fault was found).
     pub metering: Metering,
+    /// Steps of 100 VA or more the checks used.
     pub steps: usize,
+    /// Of those, the steps the declared appliances explain.
     pub steps_explained: usize,
+    /// Remarks on what the data can and cannot tell, in words.
     pub notes: Vec<String>,
 }
 
@@ -136,7 +161,10 @@ fn tol(size: f64) -> f64 {
     TOL_ABS_W + TOL_REL * size
 }
 
+/// The absolute part of the tolerance of a predicted step ([`TOL_REL`] the
+/// relative part), W.
 pub const TOL_ABS_W: f64 = 30.0;
+/// The relative part of that tolerance, share of the step's size.
 pub const TOL_REL: f64 = 0.10;
 
 /// How far a step is from a predicted one, in tolerances (≤ 1 fits),
@@ -184,7 +212,7 @@ struct Term {
 /// An appliance's jumps, each as the draws it adds and removes, so its
 /// step can be computed at the voltages around any one event.
 #[derive(Clone)]
-pub struct Model {
+pub(crate) struct Model {
     jumps: Vec<Vec<Term>>,
 }
 
@@ -214,7 +242,7 @@ impl Model {
 /// What an event's voltages say, under a metering: each conductor's
 /// voltage before and after (None: not measured), and per channel the
 /// change the other loads make as the voltage moves.
-pub struct Ctx {
+pub(crate) struct Ctx {
     vb: Vec<f64>,
     va: Vec<f64>,
     known: bool,
@@ -279,6 +307,7 @@ impl Ctx {
 /// its size (the rest of a constant-impedance load's ±10 % over the
 /// supply band is predicted from the voltage; common practice, no source).
 pub const TOL_ABS_V_W: f64 = 20.0;
+/// The relative part of that tolerance, share of the step's size.
 pub const TOL_REL_V: f64 = 0.03;
 
 /// Distance of an event from an appliance's jumps at the event's voltages,
@@ -776,6 +805,9 @@ type OtherFit = (
     DeclAppliance,
 );
 
+/// Checks the declaration `d` against the steps `events` and channel counts
+/// `stats` the detector found in meters read every `interval_s` seconds:
+/// the metering first, then each appliance's placement, then undeclared loads.
 pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s: f64) -> Outcome {
     let n = d.supply.lines();
     let absent = absent_channels(d, stats);

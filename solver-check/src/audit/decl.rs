@@ -65,11 +65,13 @@ impl Supply {
 /// One load inside a state.
 #[derive(Clone, Debug)]
 pub struct DeclDraw {
+    /// The conductors it is connected between.
     pub wiring: Wiring,
     /// Complex power at the connection's nominal voltage, W + j var.
     pub s: C64,
-    /// Voltage dependence of P and of Q.
+    /// Voltage dependence of P.
     pub zip_p: Zip,
+    /// Voltage dependence of Q.
     pub zip_q: Zip,
     /// The voltage its power was given at, when the declaration rates it
     /// (a 240 V element): on another connection it draws what its ZIP
@@ -103,8 +105,11 @@ pub enum Steps {
     /// the jumps it makes at the start and end of a session, if any.
     /// `max`: the largest single change, as a share of that power.
     Wanders {
+        /// The state whose power wanders.
         state: usize,
+        /// The largest single change, share of that state's power.
         max: f64,
+        /// The jumps at the start and end of a session.
         jumps: Vec<Jump>,
     },
     /// Never switches (always on).
@@ -112,6 +117,7 @@ pub enum Steps {
 }
 
 impl Steps {
+    /// Its jumps between states (none for a load that never switches).
     pub fn jumps(&self) -> &[Jump] {
         match self {
             Steps::Jumps(j) | Steps::Wanders { jumps: j, .. } => j,
@@ -120,12 +126,16 @@ impl Steps {
     }
 }
 
+/// One appliance as declared.
 #[derive(Clone, Debug)]
 pub struct DeclAppliance {
+    /// The appliance id.
     pub id: String,
+    /// A human name for reports.
     pub label: String,
     /// Draws of each state.
     pub states: Vec<Vec<DeclDraw>>,
+    /// How it changes state, as far as steps go.
     pub steps: Steps,
 }
 
@@ -195,18 +205,24 @@ impl DeclAppliance {
 /// fitted) and whether it is declared clamped the wrong way round.
 #[derive(Clone, Debug)]
 pub struct DeclChannel {
+    /// The line index its CT is declared on; None: no CT.
     pub conductor: Option<usize>,
+    /// Declared clamped facing the source (reads −I).
     pub reversed: bool,
 }
 
+/// An installer's declaration: supply, metering channels and appliances.
 #[derive(Clone, Debug)]
 pub struct Declared {
     /// The declaration's file, for messages.
     pub file: String,
     /// Where the supply is declared ("file:line:col").
     pub supply_at: String,
+    /// The supply: kind, nominal voltage, service rating.
     pub supply: Supply,
+    /// The metering channels, one per line.
     pub channels: Vec<DeclChannel>,
+    /// The appliances declared.
     pub appliances: Vec<DeclAppliance>,
     /// The declaration lists only some of the appliances (`[declaration]
     /// partial = true`): loads it does not list are expected, not mistakes.
