@@ -5,6 +5,13 @@
 //! → [`behaviour`] (→ [`behaviour::Timeline`] per appliance) → [`electrical`]
 //! (phasors per step) → [`meter`] (readings per reporting interval) →
 //! [`dataset`] (files).
+//!
+//! The entry points, each with an example: [`scenario::load`] (a scenario
+//! file) and [`scenario::load_str`], [`simulate::simulate`] (meters and
+//! truth in memory), [`pipeline::write`] (a dataset folder), and
+//! [`audit::load_declaration`] (an installer's declaration, audited by
+//! `solver_check::audit::audit`). Scoring an estimate is
+//! `solver_check::score::score`.
 
 #![warn(missing_docs)]
 

@@ -3,13 +3,16 @@
 //! converted to it. It never depends on the simulator.
 //!
 //! - [`audit`]: checks of declared metering and wiring against the conductors, and the loading picture of a dataset;
+//! - [`contract`]: the vocabulary shared with the simulator (format ids,
+//!   conductor and column names, phasors, wiring and its line split);
 //! - [`dataset`]: open a dataset folder, check its manifest and files;
 //! - [`table`]: read Parquet or CSV tables whole (small ones);
 //! - [`stream`]: stream their numeric columns batch by batch;
 //! - [`estimate`]: read and check an estimate (wide or long);
 //! - [`align`]: match the estimate's intervals with the truth's;
 //! - [`metrics`]: the scores, each formula with its source;
-//! - [`score`]: all of it together, and the reports;
+//! - [`score`]: all of it together, and the reports ([`score::score`] has an
+//!   example on a dataset written by hand);
 //! - [`compare`]: two estimates, with a paired bootstrap over days;
 //! - [`plot`]: a picture of a dataset's conductors and appliances (SVG);
 //! - [`roundtrip`]: task folder, solver run, score; [`solvers`]: the built-in ones;

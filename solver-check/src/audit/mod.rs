@@ -103,6 +103,9 @@ fn fit(d: &Declared, h: &Header, have: &[String]) -> Result<(), String> {
 }
 
 /// Audits the meters of `data` (a dataset folder or meters file) against `d`.
+///
+/// A declaration is read with `loadloom::audit::load_declaration`, whose
+/// documentation shows a whole audit (a wiring mistake, found).
 pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
     if data.is_dir() {
         Dataset::open(data).map_err(|e| e.to_string())?;

@@ -7,6 +7,33 @@
 //! The `loadloom` crate builds its datasets and its scenario model from
 //! these types; this crate reads datasets and checks declarations with
 //! them, and never depends on the simulator.
+//!
+//! # Example
+//!
+//! A 4.8 kW dryer between two lines, on a split-phase and on a wye supply:
+//!
+//! ```
+//! use solver_check::contract::{columns, line_name, SupplyKind, Wiring, C64};
+//! let dryer = Wiring::parse("L2-L1", 2)?; // either order: one connection
+//! assert_eq!(dryer.name(), "L1-L2");
+//! assert_eq!(dryer.nominal_v(SupplyKind::SplitPhase, 120.0), 240.0); // V
+//!
+//! // Unity power factor: 2400 W on each leg of a split-phase supply.
+//! let legs = SupplyKind::SplitPhase.split(dryer, C64::new(4800.0, 0.0));
+//! assert!((legs[0].re - 2400.0).abs() < 1e-9 && (legs[1].re - 2400.0).abs() < 1e-9);
+//!
+//! // On a wye the lines still carry P/2 each, with reactive readings of
+//! // ∓P/(2√3): the two-wattmeter relation.
+//! let lines = SupplyKind::ThreePhase.split(dryer, C64::new(4800.0, 0.0));
+//! assert!((lines[0].re - 2400.0).abs() < 1e-9);
+//! assert!((lines[0].im + 4800.0 / (2.0 * 3f64.sqrt())).abs() < 1e-9);
+//! assert!((lines[1].im - 4800.0 / (2.0 * 3f64.sqrt())).abs() < 1e-9);
+//!
+//! // The columns that carry it in a dataset.
+//! assert_eq!(columns::p(&line_name(0)), "l1_p_w");
+//! assert_eq!(columns::p(&columns::on_line("dryer", &line_name(1))), "dryer_l2_p_w");
+//! # Ok::<(), solver_check::contract::WiringError>(())
+//! ```
 
 pub mod columns;
 pub mod complex;
