@@ -36,6 +36,9 @@ pub struct Readings {
     pub total_q: Vec<f32>,
     /// Cumulative energy register per line, Wh (with `faults.register`).
     pub energy: Vec<Vec<f64>>,
+    /// The production channel's mean power per interval, W, positive while
+    /// the PV produces (with `meter.production`).
+    pub production_p: Vec<f32>,
     /// False for intervals lost to a dropout.
     pub present: Vec<bool>,
 }
@@ -71,6 +74,7 @@ impl Readings {
         self.n_i.clear();
         self.total_p.clear();
         self.total_q.clear();
+        self.production_p.clear();
         self.present.clear();
     }
 }
@@ -121,6 +125,9 @@ pub(crate) struct MeterModel {
     n2: f64,
     count: u32,
     noise: Vec<Stream>,
+    /// The production channel: the PV's power summed over the interval,
+    /// and its own noise stream (so the line channels draw as without it).
+    production: Option<(f64, Stream)>,
     /// Exact (noise-free, fault-free) energy per line so far, J.
     pub line_energy_j: [f64; 3],
     /// What the meter's register counts (after CT faults), J.
@@ -167,6 +174,9 @@ impl MeterModel {
             n2: 0.0,
             count: 0,
             noise,
+            production: settings
+                .production
+                .then(|| (0.0, stream(seed, "meter", "noise-production"))),
             line_energy_j: [0.0; 3],
             register_j: [0.0; 3],
             gaps: dropout_gaps(faults, settings.interval_s, rows, seed),
@@ -201,6 +211,27 @@ impl MeterModel {
         // Kirchhoff: the neutral returns minus the sum of the line currents.
         self.n2 += n.norm_sqr();
         self.count += 1;
+    }
+
+    /// Adds one step of the PV's power (W, negative while it produces) to
+    /// the production channel.
+    #[inline]
+    pub fn add_production(&mut self, pv_p_w: f64) {
+        if let Some((sum, _)) = &mut self.production {
+            *sum -= pv_p_w;
+        }
+    }
+
+    /// The production channel's reading of the interval closing now.
+    fn production_reading(&mut self, lost: bool) -> Option<f32> {
+        let (sum, mut rng) = self.production.take()?;
+        let p = self.quantise(self.noisy(
+            sum / self.count as f64,
+            self.settings.noise_floor_w,
+            &mut rng,
+        ));
+        self.production = Some((0.0, rng));
+        Some(if lost { f32::NAN } else { p as f32 })
     }
 
     fn noisy(&self, x: f64, floor: f64, rng: &mut Stream) -> f64 {
@@ -293,6 +324,9 @@ impl MeterModel {
         out.total_p.push(if lost { f32::NAN } else { tp as f32 });
         out.total_q.push(if lost { f32::NAN } else { tq as f32 });
         out.present.push(!lost);
+        if let Some(p) = self.production_reading(lost) {
+            out.production_p.push(p);
+        }
         self.p = [0.0; 3];
         self.q = [0.0; 3];
         self.v2 = [0.0; 3];

@@ -229,6 +229,8 @@ where
         intervals,
     );
     let metered = s.appliances.len();
+    // The PV inverter, which a production channel measures.
+    let pv = s.appliances.iter().position(|a| a.role == Role::Generator);
     let mut chunk = Chunk {
         first_row: 0,
         readings: Readings::new(lines),
@@ -345,6 +347,9 @@ where
             }
         }
         meter.add(&out.v_ln, &out.i_line, dt);
+        if let Some(k) = pv {
+            meter.add_production(out.app_p[k]);
+        }
         for k in 0..n_apps {
             let p = out.app_p[k];
             sum_p[k] += p;

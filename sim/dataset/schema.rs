@@ -88,6 +88,10 @@ impl Form {
     }
 }
 
+/// The production channel's column (`[meter] production = true`): the PV
+/// inverter's output as its own CT reads it, W, positive while it produces.
+pub const PRODUCTION_P: &str = "production_p_w";
+
 /// `meters`: one row per reporting interval; columns for `lines` lines
 /// (those the home lacks are null).
 pub fn meters(s: &Scenario, lines: usize) -> Vec<Col> {
@@ -102,6 +106,9 @@ pub fn meters(s: &Scenario, lines: usize) -> Vec<Col> {
     c.push(reading(columns::NEUTRAL_I, "A", ColKind::F32));
     c.push(reading(columns::TOTAL_P, "W", ColKind::F32));
     c.push(reading(columns::TOTAL_Q, "var", ColKind::F32));
+    if s.meter.production {
+        c.push(reading(PRODUCTION_P, "W", ColKind::F32));
+    }
     if s.faults.register {
         for x in 0..lines {
             c.push(reading(columns::energy(&line_name(x)), "Wh", ColKind::F64));

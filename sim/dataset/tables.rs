@@ -228,6 +228,9 @@ impl Tables {
             readings::<Float32Type>(&r.total_p, keep),
             readings::<Float32Type>(&r.total_q, keep),
         ]);
+        if self.meters.iter().any(|c| c.name == schema::PRODUCTION_P) {
+            cols.push(readings::<Float32Type>(&r.production_p, keep));
+        }
         if self.meters.iter().any(|c| c.name.ends_with("_energy_wh")) {
             for e in &r.energy {
                 cols.push(readings::<Float64Type>(e, keep));

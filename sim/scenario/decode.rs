@@ -214,6 +214,7 @@ fn decode(
             noise_floor_w: 0.0,
             resolution_w: 0.0,
             total_only: false,
+            production: false,
         },
     };
     let mut supply_warnings: Vec<(String, String)> = Vec::new();
@@ -274,6 +275,16 @@ fn decode(
         let (pv, w) = super::generation::decode_pv(ctx, n, &home)?;
         warnings.extend(w);
         appliances.push(pv);
+    }
+    if meter.production && !top.has("pv") {
+        let m = top.opt("meter").expect("production is a [meter] key");
+        let n = ctx.table(m, "meter")?.opt("production").unwrap_or(m);
+        return Err(ctx.err(
+            n,
+            "meter.production",
+            "a production channel measures the PV's output, but the home has no [pv]",
+            "add a [pv] section, or leave production out",
+        ));
     }
     if let Some(n) = top.opt("battery") {
         appliances.push(super::generation::decode_battery(ctx, n, &home)?);
@@ -913,6 +924,20 @@ fn decode_meter(ctx: &Ctx, node: &Node, run: &Run) -> Result<Meter, Error> {
                 )),
             },
         };
+    let production = match t.opt("production") {
+        None => false,
+        Some(n) => match n.v {
+            Val::Bool(b) => b,
+            _ => {
+                return Err(ctx.err(
+                    n,
+                    "meter.production",
+                    format!("expected true or false, found {}", n.type_name()),
+                    "write production = true for a channel on the PV's output",
+                ))
+            }
+        },
+    };
     t.finish()?;
     Ok(Meter {
         interval_s,
@@ -920,6 +945,7 @@ fn decode_meter(ctx: &Ctx, node: &Node, run: &Run) -> Result<Meter, Error> {
         noise_floor_w: floor,
         resolution_w,
         total_only,
+        production,
     })
 }
 

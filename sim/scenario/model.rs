@@ -674,6 +674,11 @@ pub struct Meter {
     /// per-line P, Q and I and the neutral current are null.
     #[serde(skip_serializing_if = "std::ops::Not::not")]
     pub total_only: bool,
+    /// A production channel (`production = true`): a CT on the PV
+    /// inverter's output, reported as `production_p_w` (positive while it
+    /// produces), with the same noise and resolution as the line channels.
+    #[serde(skip_serializing_if = "std::ops::Not::not")]
+    pub production: bool,
 }
 
 /// A current transformer that misreads its conductor.

@@ -86,6 +86,7 @@ fn floor(s: &Scenario, out: &Path) {
                     total_p: c.readings.total_p.clone(),
                     total_q: c.readings.total_q.clone(),
                     energy: c.readings.energy.clone(),
+                    production_p: c.readings.production_p.clone(),
                     present: c.readings.present.clone(),
                 },
                 truth: loadloom::simulate::Truth {
