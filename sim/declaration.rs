@@ -1,6 +1,7 @@
 //! What a declaration may say beyond the scenario language: short
 //! appliance entries, as installers write them (`id`, `power`, `wiring`;
-//! optionally `pf` or `q`, `rated`, `load`, `label`), and a `[declaration]`
+//! optionally `pf` or `q`, `rated`, `load`, `label`; or `states`, a list
+//! of powers, for an appliance with several levels), and a `[declaration]`
 //! table (`partial = true`: only some appliances are listed).
 //!
 //! Both are read here and blanked out of the text (every byte but line ends
@@ -15,19 +16,25 @@ use std::ops::Range;
 use std::path::Path;
 
 /// Keys a short entry may carry.
-const SHORT_KEYS: [&str; 8] = ["id", "label", "power", "pf", "q", "wiring", "rated", "load"];
-/// Keys that make an appliance a full scenario entry.
-const FULL_KEYS: [&str; 4] = ["template", "behaviour", "states", "phases"];
+const SHORT_KEYS: [&str; 9] = [
+    "id", "label", "power", "states", "pf", "q", "wiring", "rated", "load",
+];
+/// Keys a state of a short entry may carry.
+const STATE_KEYS: [&str; 4] = ["power", "pf", "q", "name"];
+/// Keys that make an appliance a full scenario entry (whose `states` are
+/// the scenario language's).
+const FULL_KEYS: [&str; 3] = ["template", "behaviour", "phases"];
 /// The id of the appliance put in when every entry is short (the scenario
 /// reader wants one); dropped again after reading.
 pub const PLACEHOLDER: &str = "short_entries_only_placeholder";
 
-/// One short entry: an appliance that is off or on at `power`.
+/// One short entry: an appliance that is off or on at `power`, or at one
+/// of the powers of `states`.
 pub struct Short {
     id: String,
     label: String,
-    p_w: f64,
-    q_var: f64,
+    /// Each "on" state's power, W + j var, at the rated voltage.
+    on: Vec<C64>,
     wiring: Wiring,
     rated_v: Option<f64>,
     load: LoadKind,
@@ -45,26 +52,38 @@ pub struct Prepared {
 }
 
 impl Short {
-    /// The appliance in the audit's terms on `supply`: off, or on at its
-    /// power (rescaled by its load kind's ZIP model from `rated`).
+    /// The appliance in the audit's terms on `supply`: off, or on at one
+    /// of its powers (rescaled by its load kind's ZIP model from `rated`),
+    /// switching between any two of these.
     pub fn appliance(&self, supply: &Supply) -> DeclAppliance {
         let (zp, zq) = (self.load.default_zip_p(), self.load.default_zip_q());
         let u = self
             .rated_v
             .map(|r| supply.nominal_across(self.wiring) / r)
             .unwrap_or(1.0);
-        let draw = DeclDraw {
+        let draw = |s: &C64| DeclDraw {
             wiring: self.wiring,
-            s: C64::new(self.p_w * zp.factor(u), self.q_var * zq.factor(u)),
+            s: C64::new(s.re * zp.factor(u), s.im * zq.factor(u)),
             zip_p: zp,
             zip_q: zq,
             rated_v: self.rated_v,
         };
+        let states: Vec<Vec<DeclDraw>> = std::iter::once(vec![])
+            .chain(self.on.iter().map(|s| vec![draw(s)]))
+            .collect();
+        let n = states.len();
+        let jumps = (0..n)
+            .flat_map(|a| {
+                (0..n)
+                    .filter(move |&b| b != a)
+                    .map(move |b| (a, b, 1.0, 1.0))
+            })
+            .collect();
         DeclAppliance {
             id: self.id.clone(),
             label: self.label.clone(),
-            states: vec![vec![], vec![draw]],
-            steps: Steps::Jumps(vec![(0, 1, 1.0, 1.0), (1, 0, 1.0, 1.0)]),
+            states,
+            steps: Steps::Jumps(jumps),
         }
     }
 }
@@ -160,7 +179,9 @@ pub fn prepare(path: &Path, text: String) -> Result<Prepared, Error> {
     let mut full = 0;
     if let Some(apps) = doc.get("appliance").and_then(|i| i.as_array_of_tables()) {
         for (k, t) in apps.iter().enumerate() {
-            if FULL_KEYS.iter().any(|f| t.contains_key(f)) || !t.contains_key("power") {
+            if FULL_KEYS.iter().any(|f| t.contains_key(f))
+                || !(t.contains_key("power") || t.contains_key("states"))
+            {
                 full += 1;
                 continue;
             }
@@ -217,7 +238,7 @@ fn read_declaration(path: &Path, text: &str, t: &toml_edit::Table) -> Result<boo
 fn string<'a>(
     path: &Path,
     text: &str,
-    t: &'a toml_edit::Table,
+    t: &'a dyn toml_edit::TableLike,
     key: &str,
     at: &str,
 ) -> Result<Option<(&'a str, Range<usize>)>, Error> {
@@ -242,7 +263,7 @@ fn string<'a>(
 fn quantity(
     path: &Path,
     text: &str,
-    t: &toml_edit::Table,
+    t: &dyn toml_edit::TableLike,
     key: &str,
     at: &str,
     kind: Kind,
@@ -273,7 +294,7 @@ fn read_short(
     let at = format!("appliance[{k}]");
     for (key, item) in t.iter() {
         if !SHORT_KEYS.contains(&key) {
-            return Err(err_at(path, text, item.span().unwrap_or(0..0), &format!("{at}.{key}"), format!("`{key}` in a short entry"), "a short entry takes id, power, wiring and optionally pf or q, rated, load, label; for states and a behaviour write a full entry (with behaviour = ... or template = ...)"));
+            return Err(err_at(path, text, item.span().unwrap_or(0..0), &format!("{at}.{key}"), format!("`{key}` in a short entry"), "a short entry takes id, power (or states, a list of powers), wiring and optionally pf or q, rated, load, label; for a behaviour write a full entry (with behaviour = ... or template = ...)"));
         }
     }
     let head = t.span().unwrap_or(0..0);
@@ -289,7 +310,7 @@ fn read_short(
                 "add id = \"kettle\"",
             )
         })?;
-    let p_w = quantity(path, text, t, "power", &at, Kind::Power)?.unwrap_or(0.0);
+    let on = powers(path, text, t, &at)?;
     let rated_v = quantity(path, text, t, "rated", &at, Kind::Voltage)?;
     let (ws, wspan) = string(path, text, t, "wiring", &at)?.ok_or_else(|| {
         err_at(
@@ -311,30 +332,6 @@ fn read_short(
             "write L1-N, L2-N, L1-L2 (and L3-N, L2-L3, L3-L1, 3P on a three-phase supply)",
         )
     })?;
-    let q_var = match (
-        t.get("pf"),
-        quantity(path, text, t, "q", &at, Kind::Reactive)?,
-    ) {
-        (Some(item), _) => {
-            let pf = item
-                .as_float()
-                .or(item.as_integer().map(|i| i as f64))
-                .filter(|pf| *pf > 0.0 && *pf <= 1.0);
-            let pf = pf.ok_or_else(|| {
-                err_at(
-                    path,
-                    text,
-                    item.span().unwrap_or(0..0),
-                    &format!("{at}.pf"),
-                    "a power factor must be a number in (0, 1]".into(),
-                    "write pf = 0.85 (lagging)",
-                )
-            })?;
-            p_w * (1.0 - pf * pf).sqrt() / pf
-        }
-        (None, Some(q)) => q,
-        (None, None) => 0.0,
-    };
     let load = match string(path, text, t, "load", &at)? {
         None => LoadKind::Resistive,
         Some((s, span)) => LoadKind::ALL
@@ -358,10 +355,90 @@ fn read_short(
     Ok(Short {
         id,
         label,
-        p_w,
-        q_var,
+        on,
         wiring,
         rated_v,
         load,
     })
+}
+
+/// The reactive power of `p_w` from a `pf` or `q` key of `t` (none: 0).
+fn reactive(
+    path: &Path,
+    text: &str,
+    t: &dyn toml_edit::TableLike,
+    at: &str,
+    p_w: f64,
+) -> Result<Option<f64>, Error> {
+    let q = quantity(path, text, t, "q", at, Kind::Reactive)?;
+    let Some(item) = t.get("pf") else {
+        return Ok(q);
+    };
+    let pf = item
+        .as_float()
+        .or(item.as_integer().map(|i| i as f64))
+        .filter(|pf| *pf > 0.0 && *pf <= 1.0);
+    let pf = pf.ok_or_else(|| {
+        err_at(
+            path,
+            text,
+            item.span().unwrap_or(0..0),
+            &format!("{at}.pf"),
+            "a power factor must be a number in (0, 1]".into(),
+            "write pf = 0.85 (lagging)",
+        )
+    })?;
+    Ok(Some(p_w * (1.0 - pf * pf).sqrt() / pf))
+}
+
+/// A short entry's "on" powers: `power`, or each of `states` (a power
+/// such as "1.2 kW", or { power, pf or q }); an entry's own `pf` or `q`
+/// applies to the states that give none.
+fn powers(path: &Path, text: &str, t: &toml_edit::Table, at: &str) -> Result<Vec<C64>, Error> {
+    let Some(item) = t.get("states") else {
+        let p = quantity(path, text, t, "power", at, Kind::Power)?.unwrap_or(0.0);
+        let q = reactive(path, text, t, at, p)?.unwrap_or(0.0);
+        return Ok(vec![C64::new(p, q)]);
+    };
+    let span = item.span().unwrap_or(0..0);
+    let bad = |span, m: &str| {
+        err_at(path, text, span, &format!("{at}.states"), m.into(), "write states = [\"1.2 kW\", \"2.4 kW\"] or states = [ { power = \"1.2 kW\", pf = 0.9 }, ... ]")
+    };
+    if t.contains_key("power") {
+        return Err(bad(
+            span,
+            "a short entry gives `power` or `states`, not both",
+        ));
+    }
+    let list = item.as_array().filter(|a| !a.is_empty());
+    let list = list.ok_or_else(|| bad(span.clone(), "`states` is not a list of powers"))?;
+    let mut on = Vec::new();
+    for (k, v) in list.iter().enumerate() {
+        let here = format!("{at}.states[{k}]");
+        let vspan = v.span().unwrap_or(span.clone());
+        let s = match (v.as_str(), v.as_inline_table()) {
+            (Some(p), _) => {
+                let p = parse_quantity(p, Kind::Power).map_err(|m| bad(vspan, &m))?;
+                C64::new(p, reactive(path, text, t, at, p)?.unwrap_or(0.0))
+            }
+            (None, Some(it)) => {
+                if let Some((key, x)) = it.iter().find(|(key, _)| !STATE_KEYS.contains(key)) {
+                    let m = format!(
+                        "`{key}` in a state of a short entry (it takes power, pf or q, name)"
+                    );
+                    return Err(bad(x.span().unwrap_or(vspan), &m));
+                }
+                let p = quantity(path, text, it, "power", &here, Kind::Power)?;
+                let p = p.ok_or_else(|| bad(vspan, "a state without `power`"))?;
+                let q = match reactive(path, text, it, &here, p)? {
+                    Some(q) => q,
+                    None => reactive(path, text, t, at, p)?.unwrap_or(0.0),
+                };
+                C64::new(p, q)
+            }
+            _ => return Err(bad(vspan, "a state is not a power or { power = ... }")),
+        };
+        on.push(s);
+    }
+    Ok(on)
 }

@@ -8,6 +8,7 @@
 //! - [`dataset`]: open a dataset folder, check its manifest and files;
 //! - [`table`]: read Parquet or CSV tables whole (small ones);
 //! - [`stream`]: stream their numeric columns batch by batch;
+//! - [`wallclock`]: naive times read as wall-clock times of a named zone;
 //! - [`estimate`]: read and check an estimate (wide or long);
 //! - [`align`]: match the estimate's intervals with the truth's;
 //! - [`metrics`]: the scores, each formula with its source;
@@ -41,5 +42,6 @@ pub mod solvers;
 pub mod stream;
 pub mod table;
 pub mod taskio;
+pub mod wallclock;
 
 pub use dataset::{Dataset, DatasetError};

@@ -3,6 +3,7 @@
 
 use crate::contract::columns;
 use crate::table::{table_err, Column, Table, TableError};
+use crate::wallclock::{WallClock, WallClockUse};
 use arrow_array::cast::AsArray;
 use arrow_array::types::{Float32Type, Float64Type, Int32Type, Int64Type};
 use arrow_array::{Array, ArrayRef};
@@ -37,6 +38,10 @@ pub struct Header {
     pub time_zone: Option<String>,
     /// The zone to name when naive times must be localised (the dataset's).
     pub zone_hint: Option<String>,
+    /// Read naive times (no UTC offset) as wall-clock times in this IANA
+    /// zone instead of refusing them ([`crate::wallclock`]); set by a caller
+    /// that knows the home's zone (the audit, from the declaration).
+    pub naive_zone: Option<String>,
     kind: Kind,
 }
 
@@ -164,6 +169,7 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
                 columns,
                 time_zone: tz,
                 zone_hint: None,
+                naive_zone: None,
                 kind: Kind::Parquet {
                     time_index: ti,
                     unit,
@@ -201,6 +207,7 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
                 columns,
                 time_zone: None,
                 zone_hint: None,
+                naive_zone: None,
                 kind: Kind::Csv {
                     time_index: ti,
                     header,
@@ -228,6 +235,7 @@ pub fn in_memory(t: Table) -> Header {
             .collect(),
         time_zone: t.time_zone.clone(),
         zone_hint: None,
+        naive_zone: None,
         kind: Kind::Mem(t),
     }
 }
@@ -240,6 +248,15 @@ pub struct Stream<'h> {
     texts: Vec<String>,
     row: usize,
     inner: Inner,
+    /// Reads naive times when the header names a zone for them.
+    clock: Option<WallClock>,
+}
+
+/// What to do with a naive CSV time: refuse it (naming the zone to
+/// localise to, if known), or read it on a wall clock.
+enum Naive<'a> {
+    Refuse(Option<&'a str>),
+    Read(&'a mut WallClock),
 }
 
 /// Where the asked columns sit: Parquet positions in the projected batch
@@ -405,6 +422,7 @@ impl Header {
             texts: texts.to_vec(),
             row: 0,
             inner,
+            clock: self.naive_zone.as_deref().and_then(WallClock::new),
         })
     }
 }
@@ -421,7 +439,7 @@ fn csv_batch(
     rec: &mut csv::StringRecord,
     idx: &[usize],
     n_num: usize,
-    zone: Option<&str>,
+    mut naive: Naive<'_>,
 ) -> Result<CsvCells, TableError> {
     let (ti, nums, txts) = (idx[0], &idx[1..1 + n_num], &idx[1 + n_num..]);
     let header = r.headers().map_err(|e| csv_err(path, e))?.clone();
@@ -433,7 +451,7 @@ fn csv_batch(
         if rec.len() == 1 && rec[0].trim().is_empty() {
             continue;
         }
-        time.push(csv_time(path, row, rec[ti].trim(), zone)?);
+        time.push(csv_time(path, row, rec[ti].trim(), &mut naive)?);
         for (j, &i) in txts.iter().enumerate() {
             texts[j].push(rec[i].trim().to_string());
         }
@@ -460,24 +478,39 @@ fn csv_batch(
 }
 
 /// A CSV time as an instant (ms since 1970 UTC); a time without its UTC
-/// offset is refused with the line of pandas that localises it.
-fn csv_time(path: &Path, row: usize, s: &str, zone: Option<&str>) -> Result<i64, TableError> {
+/// offset is read on the wall clock when there is one, else refused with
+/// the line of pandas that localises it.
+fn csv_time(path: &Path, row: usize, s: &str, naive: &mut Naive<'_>) -> Result<i64, TableError> {
     if let Ok(t) = s.parse::<jiff::Timestamp>() {
         return Ok(t.as_millisecond());
     }
-    if s.parse::<jiff::civil::DateTime>().is_ok() {
-        return Err(table_err(
-            path,
-            Some(columns::TIME),
-            Some(row),
-            format!("\"{s}\" is a naive time (no UTC offset)"),
-            localise_hint(zone),
-        ));
+    if let Ok(dt) = s.parse::<jiff::civil::DateTime>() {
+        return match naive {
+            Naive::Read(clock) => clock
+                .instant(dt)
+                .map_err(|m| table_err(path, Some(columns::TIME), Some(row), m, NAIVE_HELP)),
+            Naive::Refuse(zone) => Err(table_err(
+                path,
+                Some(columns::TIME),
+                Some(row),
+                format!("\"{s}\" is a naive time (no UTC offset)"),
+                localise_hint(*zone),
+            )),
+        };
     }
     Err(table_err(path, Some(columns::TIME), Some(row), format!("\"{s}\" is not a time with its UTC offset"), "write ISO-8601 with an offset, e.g. 2027-03-13T00:00:00-06:00 or 2027-03-13T06:00:00Z (time zones are never guessed)"))
 }
 
+/// What to do about a naive time that does not exist in the zone.
+const NAIVE_HELP: &str = "the export's times seem to be in standard time all year: write each time with its UTC offset (e.g. 2027-03-14T02:30:00-06:00), or declare a fixed-offset zone such as \"Etc/GMT+6\" (UTC-6) under [home] timezone";
+
 impl Stream<'_> {
+    /// How naive times were read so far (None: none were read on a wall
+    /// clock, because none were naive or no zone was named).
+    pub fn wall_clock(&self) -> Option<WallClockUse> {
+        self.clock.as_ref().map(|c| c.used()).filter(|u| u.rows > 0)
+    }
+
     /// The next batch, or None at the end.
     pub fn next_batch(&mut self) -> Result<Option<Batch>, TableError> {
         let path = &self.h.file;
@@ -560,17 +593,28 @@ impl Stream<'_> {
                     .enumerate()
                     .map(|(j, name)| texts_of(b.column(pos[1 + n + j]), path, name))
                     .collect::<Result<Vec<_>, _>>()?;
+                let mut time = time_ms(t, *unit);
+                if let (None, Some(clock)) = (&self.h.time_zone, self.clock.as_mut()) {
+                    for (k, ms) in time.iter_mut().enumerate() {
+                        *ms = clock.instant_of_naive_ms(*ms).map_err(|m| {
+                            table_err(path, Some(columns::TIME), Some(first + k), m, NAIVE_HELP)
+                        })?;
+                    }
+                }
                 Batch {
                     first,
-                    time_ms: time_ms(t, *unit),
+                    time_ms: time,
                     cols,
                     texts,
                 }
             }
             Inner::Csv(r, rec, idx) => {
-                let zone = self.h.zone_hint.as_deref();
+                let naive = match self.clock.as_mut() {
+                    Some(c) => Naive::Read(c),
+                    None => Naive::Refuse(self.h.zone_hint.as_deref()),
+                };
                 let (time, cols, texts) =
-                    csv_batch(path, first, r, rec, idx, self.cols.len(), zone)?;
+                    csv_batch(path, first, r, rec, idx, self.cols.len(), naive)?;
                 if time.is_empty() {
                     return Ok(None);
                 }

@@ -14,6 +14,7 @@ pub mod check;
 pub mod decl;
 pub mod events;
 mod loading;
+pub mod running;
 
 pub use loading::*;
 
@@ -102,72 +103,114 @@ fn fit(d: &Declared, h: &Header, have: &[String]) -> Result<(), String> {
     ))
 }
 
-/// Audits the meters of `data` (a dataset folder or meters file) against `d`.
-///
-/// A declaration is read with `loadloom::audit::load_declaration`, whose
-/// documentation shows a whole audit (a wiring mistake, found).
-pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
-    if data.is_dir() {
-        Dataset::open(data).map_err(|e| e.to_string())?;
-    }
+/// The meters table of `data`, with naive times read in the declared zone.
+fn meters_header(data: &Path, d: &Declared) -> Result<Header, String> {
     let file = meters_file(data)?;
-    let h = header(&file).map_err(|e| e.to_string())?;
-    let have = channels(&h);
-    fit(d, &h, &have)?;
-    let n = d.supply.lines();
-    // Many monitors give real power only: then every step is compared on
-    // real power alone (the real part of each expected reading).
-    let with_q = have.iter().all(|l| h.has(&columns::q(l)));
-    let d = &if with_q {
-        d.clone()
-    } else {
-        d.real_power_only()
-    };
-    let mut cols = Vec::new();
-    for c in 0..n {
-        let l = line_name(c);
-        if have.contains(&l) {
-            cols.push(columns::p(&l));
+    let mut h = header(&file).map_err(|e| e.to_string())?;
+    h.naive_zone = Some(d.timezone.clone());
+    Ok(h)
+}
+
+/// The line power columns a meters table must have, named in errors.
+fn no_line_columns(h: &Header) -> String {
+    let names: Vec<&str> = h.names().collect();
+    let near: Vec<String> = names
+        .iter()
+        .filter(|n| {
+            let low = n.to_lowercase();
+            low != **n && (0..3).any(|c| low == columns::p(&line_name(c)))
+        })
+        .map(|n| format!("{n} → {}", n.to_lowercase()))
+        .collect();
+    format!(
+        "error: {} has no line power column\n  --> {} (columns: {})\n  = the audit needs `time` and the real power of each metered line in W: `l1_p_w`, `l2_p_w` (and `l3_p_w` on a three-phase supply); optional per line: `l1_q_var` (reactive power, var), `l1_v_v` (voltage, V), `l1_i_a` (current, A), and `n_i_a` (neutral current, A)\n  = help: {}",
+        h.file.display(),
+        h.file.display(),
+        if names.is_empty() { "none but time".to_string() } else { names.join(", ") },
+        if near.is_empty() {
+            "rename the columns to these names (README, \"Wiring audit\", lists them)".to_string()
+        } else {
+            format!("column names are lower case: rename {}", near.join(", "))
+        }
+    )
+}
+
+/// What the meters table gives per line, and the columns to stream.
+struct Measured {
+    n: usize,
+    present: Vec<bool>,
+    with_q: bool,
+    with_v: Vec<bool>,
+    cols: Vec<String>,
+}
+
+impl Measured {
+    fn of(h: &Header, have: &[String], n: usize) -> Measured {
+        let with_q = have.iter().all(|l| h.has(&columns::q(l)));
+        let present: Vec<bool> = (0..n).map(|c| have.contains(&line_name(c))).collect();
+        let with_v: Vec<bool> = (0..n)
+            .map(|c| present[c] && h.has(&columns::v(&line_name(c))))
+            .collect();
+        let mut cols = Vec::new();
+        for c in (0..n).filter(|&c| present[c]) {
+            cols.push(columns::p(&line_name(c)));
             if with_q {
-                cols.push(columns::q(&l));
+                cols.push(columns::q(&line_name(c)));
             }
         }
-    }
-    // Voltages where the table has them (they sharpen the expected steps).
-    let with_v: Vec<bool> = (0..n)
-        .map(|c| have.contains(&line_name(c)) && h.has(&columns::v(&line_name(c))))
-        .collect();
-    for c in 0..n {
-        if with_v[c] {
+        // Voltages where the table has them (they sharpen the expected steps).
+        for c in (0..n).filter(|&c| with_v[c]) {
             cols.push(columns::v(&line_name(c)));
         }
+        Measured {
+            n,
+            present,
+            with_q,
+            with_v,
+            cols,
+        }
     }
-    let present: Vec<bool> = (0..n).map(|c| have.contains(&line_name(c))).collect();
-    let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
+}
+
+/// What the steps pass gives: the steps, the channels' statistics, the
+/// interval, the row count and how naive times were read.
+type Detected = (
+    Vec<events::Event>,
+    Vec<events::ChannelStats>,
+    f64,
+    u64,
+    Option<crate::wallclock::WallClockUse>,
+);
+
+/// Streams the table once through the step detector.
+fn detect(h: &Header, m: &Measured, angles: &[f64]) -> Result<Detected, String> {
+    let file = &h.file;
+    let n = m.n;
+    let mut st = h.stream(&m.cols).map_err(|e| e.to_string())?;
     let mut det: Option<events::Detector> = None;
     let mut interval_s = 0.0;
     let (mut p, mut q, mut v) = (vec![f64::NAN; n], vec![f64::NAN; n], vec![f64::NAN; n]);
-    let mut rows = 0u64;
+    let (mut rows, mut last) = (0u64, i64::MIN);
     while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
         if det.is_none() {
-            interval_s = interval_of(&b.time_ms).ok_or_else(|| format!("error: {} has fewer than two rows\n  = help: the audit needs a meters table over days", file.display()))?;
-            det = Some(events::Detector::new(d.supply.angles_deg(), interval_s));
+            interval_s = interval_of(&b.time_ms).ok_or_else(|| format!("error: {} has fewer than two rows at distinct times\n  = help: the audit needs a meters table over days", file.display()))?;
+            det = Some(events::Detector::new(angles, interval_s));
         }
-        let det = det.as_mut().unwrap();
+        let det = det.as_mut().expect("made above");
         for (k, &t) in b.time_ms.iter().enumerate() {
-            let mut j = 0;
-            for c in 0..n {
-                if present[c] {
-                    p[c] = b.cols[j][k];
-                    q[c] = if with_q { b.cols[j + 1][k] } else { 0.0 };
-                    j += 1 + usize::from(with_q);
-                }
+            if t < last {
+                return Err(crate::table::table_err(file, Some(columns::TIME), Some(b.first + k), "the time goes back from the row before", "sort the rows by time (a repeated hour at the end of summer time is read in file order, so keep the export's order there)").to_string());
             }
-            for c in 0..n {
-                if with_v[c] {
-                    v[c] = b.cols[j][k];
-                    j += 1;
-                }
+            last = t;
+            let mut j = 0;
+            for c in (0..n).filter(|&c| m.present[c]) {
+                p[c] = b.cols[j][k];
+                q[c] = if m.with_q { b.cols[j + 1][k] } else { 0.0 };
+                j += 1 + usize::from(m.with_q);
+            }
+            for c in (0..n).filter(|&c| m.with_v[c]) {
+                v[c] = b.cols[j][k];
+                j += 1;
             }
             det.push(t, &p, &q, &v);
             rows += 1;
@@ -180,19 +223,41 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
         )
     })?;
     let (evs, stats) = det.finish();
+    Ok((evs, stats, interval_s, rows, st.wall_clock()))
+}
+
+/// Audits the meters of `data` (a dataset folder or meters file) against `d`.
+///
+/// A declaration is read with `loadloom::audit::load_declaration`, whose
+/// documentation shows a whole audit (a wiring mistake, found).
+pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
+    if data.is_dir() {
+        Dataset::open(data).map_err(|e| e.to_string())?;
+    }
+    let h = meters_header(data, d)?;
+    let have = channels(&h);
+    if have.is_empty() {
+        return Err(no_line_columns(&h));
+    }
+    fit(d, &h, &have)?;
+    let m = Measured::of(&h, &have, d.supply.lines());
+    // Many monitors give real power only: then every step is compared on
+    // real power alone (the real part of each expected reading).
+    let d = &if m.with_q {
+        d.clone()
+    } else {
+        d.real_power_only()
+    };
+    let (evs, stats, interval_s, rows, clock) = detect(&h, &m, d.supply.angles_deg())?;
     let mut outcome = check::check(d, &evs, &stats, interval_s);
     outcome
         .notes
-        .extend(measured_notes(with_q, with_v.iter().any(|v| *v)));
-    let h2 = header(&file).map_err(|e| e.to_string())?;
-    let mut loading = loading_of(
-        &h2,
-        &have,
-        d.supply.angles_deg(),
-        d.supply.service_a,
-        d.supply.voltage_v,
-    )?;
-    loading.timezone = d.timezone.clone();
+        .extend(measured_notes(m.with_q, m.with_v.iter().any(|v| *v)));
+    outcome.notes.extend(clock.map(|c| c.note()));
+    let loading = loading_as_declared(&h, &have, d, &outcome, &evs)?;
+    if outcome.metering != check::declared_metering(d, &outcome.metering.absent) {
+        outcome.notes.push("the loading picture follows the metering as declared; if the metering findings are confirmed and corrected, its figures change".into());
+    }
     Ok(Audit {
         data: data.display().to_string(),
         declared_file: d.file.clone(),
@@ -202,6 +267,33 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
         outcome,
         declared: d.clone(),
     })
+}
+
+/// The loading picture following the declared metering, with the declared
+/// appliances running at each line's peak as the steps show them.
+fn loading_as_declared(
+    h: &Header,
+    have: &[String],
+    d: &Declared,
+    outcome: &Outcome,
+    evs: &[events::Event],
+) -> Result<Loading, String> {
+    let plan = plan_of(d, have);
+    let (mut loading, _) = loading_of(h, &plan, d.supply.service_a, d.supply.voltage_v)?;
+    loading.timezone = d.timezone.clone();
+    let at: Vec<(usize, i64)> = loading
+        .lines
+        .iter()
+        .enumerate()
+        .filter(|(_, l)| l.measured())
+        .filter_map(|(x, l)| l.peak_ms.map(|t| (x, t)))
+        .collect();
+    let names = running::running(d, &outcome.metering, evs, &at);
+    for ((x, _), r) in at.iter().zip(names) {
+        loading.lines[*x].running_at_peak = r;
+    }
+    loading.running_known = true;
+    Ok(loading)
 }
 
 /// What the data lacks and which checks that limits.
