@@ -13,8 +13,9 @@ use std::process::ExitCode;
 /// Check an installer's declared metering and wiring against the conductors (no training data), and the loading of each line: peak and 15-minute demand current against the service, imbalance, neutral current; --matrix scores the checks on injected mistakes
 #[derive(clap::Args)]
 pub struct Args {
-    /// The dataset folder, or a meters file in the dataset format (real
-    /// measurements converted to it work too).
+    /// The dataset folder, or a meters file: a monitor's CSV or Parquet
+    /// export with `time` and `l1_p_w`, `l2_p_w`, … (optionally Q, V, I
+    /// per line; naive times are read in the declared time zone).
     #[arg(required_unless_present = "matrix")]
     dataset: Option<PathBuf>,
     /// What the installer declares: supply, [metering] and appliances
