@@ -6,6 +6,7 @@
 
 pub mod dict_column;
 pub mod finite;
+pub mod float_column;
 pub mod folder;
 pub mod manifest;
 pub mod parquet;

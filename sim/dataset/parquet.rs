@@ -8,9 +8,10 @@
 //! into the file in column order, so the bytes do not depend on it.
 
 use super::dict_column::{self, DictColumn};
+use super::float_column::{self, FloatColumn};
 use super::sink::{ROW_GROUP_ROWS, ZSTD_LEVEL};
 use arrow_array::{ArrayRef, RecordBatch};
-use arrow_schema::{FieldRef, SchemaRef};
+use arrow_schema::{DataType, FieldRef, SchemaRef};
 use bytes::Bytes;
 use parquet::arrow::arrow_writer::{
     compute_leaves, ArrowColumnChunk, ArrowColumnWriter, ArrowRowGroupWriterFactory,
@@ -32,12 +33,16 @@ enum Column {
     Arrow(Box<ArrowColumnWriter>),
     /// Dictionary-coded strings, from their keys ([`dict_column`]).
     Dict(DictColumn),
+    /// Byte-stream-split floats, from their values ([`float_column`]).
+    F32(FloatColumn<f32>),
+    F64(FloatColumn<f64>),
 }
 
 /// A finished column chunk, ready to splice into the row group.
 enum Chunk {
     Arrow(ArrowColumnChunk),
-    Dict(Bytes, ColumnCloseResult),
+    /// Bytes encoded here, with what the row group needs to splice them.
+    Spliced(Bytes, ColumnCloseResult),
 }
 
 impl Column {
@@ -50,13 +55,17 @@ impl Column {
                 Ok(())
             }
             Column::Dict(d) => d.write(col),
+            Column::F32(c) => c.write(col),
+            Column::F64(c) => c.write(col),
         }
     }
 
     fn close(self) -> io::Result<Chunk> {
         match self {
             Column::Arrow(w) => w.close().map(Chunk::Arrow).map_err(to_io),
-            Column::Dict(d) => d.close().map(|(b, c)| Chunk::Dict(b, c)),
+            Column::Dict(d) => d.close().map(|(b, c)| Chunk::Spliced(b, c)),
+            Column::F32(c) => c.close().map(|(b, c)| Chunk::Spliced(b, c)),
+            Column::F64(c) => c.close().map(|(b, c)| Chunk::Spliced(b, c)),
         }
     }
 }
@@ -70,6 +79,8 @@ pub struct Table {
     open: Vec<Column>,
     /// Rows per data page of the dictionary columns.
     page_rows: usize,
+    /// Bytes per data page (before compression) of the float columns.
+    page_bytes: usize,
     row_groups: usize,
     /// Rows in the open row group.
     rows: usize,
@@ -89,6 +100,7 @@ impl Table {
         props: WriterProperties,
     ) -> io::Result<Table> {
         let page_rows = props.data_page_row_count_limit().min(ROW_GROUP_ROWS);
+        let page_bytes = props.data_page_size_limit();
         let writer = ArrowWriter::try_new(out, schema.clone(), Some(props)).map_err(to_io)?;
         let (file, factory) = writer.into_serialized_writer().map_err(to_io)?;
         Ok(Table {
@@ -97,6 +109,7 @@ impl Table {
             schema,
             open: Vec::new(),
             page_rows,
+            page_bytes,
             row_groups: 0,
             rows: 0,
             done: 0,
@@ -131,7 +144,7 @@ impl Table {
         for chunk in chunks {
             match chunk? {
                 Chunk::Arrow(c) => c.append_to_row_group(&mut group),
-                Chunk::Dict(bytes, close) => group.append_column(&bytes, close),
+                Chunk::Spliced(bytes, close) => group.append_column(&bytes, close),
             }
             .map_err(to_io)?;
         }
@@ -149,18 +162,25 @@ impl Table {
             .create_column_writers(self.row_groups)
             .map_err(to_io)?;
         let descr = self.file.schema_descr();
+        // A float page ends at whichever comes first, its rows or its bytes.
+        let float_rows = |width: usize| self.page_rows.min(self.page_bytes / width);
         self.open = arrow
             .into_iter()
             .zip(self.schema.fields().iter())
             .enumerate()
             .map(|(i, (w, f))| {
-                if dict_column::applies(f) {
-                    Column::Dict(DictColumn::new(descr.column(i), ZSTD_LEVEL, self.page_rows))
+                let d = descr.column(i);
+                Ok(if dict_column::applies(f) {
+                    Column::Dict(DictColumn::new(d, ZSTD_LEVEL, self.page_rows))
+                } else if float_column::applies(f) && *f.data_type() == DataType::Float32 {
+                    Column::F32(FloatColumn::new(d, ZSTD_LEVEL, float_rows(4))?)
+                } else if float_column::applies(f) {
+                    Column::F64(FloatColumn::new(d, ZSTD_LEVEL, float_rows(8))?)
                 } else {
                     Column::Arrow(Box::new(w))
-                }
+                })
             })
-            .collect();
+            .collect::<io::Result<_>>()?;
         Ok(())
     }
 

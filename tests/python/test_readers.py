@@ -191,3 +191,44 @@ def test_string_statistics_are_the_row_groups_min_and_max(simulate):
             want = pc.min_max(t.column(c).cast(pa.string()))
             assert col.statistics.has_min_max and col.statistics.null_count == 0
             assert (col.statistics.min, col.statistics.max) == (want["min"].as_py(), want["max"].as_py()), c
+
+
+def test_float_statistics_are_the_row_groups_min_max_and_nulls(simulate):
+    """Each float column's chunk statistics (Parquet format spec, Statistics:
+    min_value/max_value and null_count; a zero minimum written as -0.0 and a
+    zero maximum as +0.0), as duckdb reads them from the footer, hold the
+    least and greatest non-null value and the nulls of that row group, as
+    pyarrow.compute finds them in the data; nulls come from dropouts."""
+    import pyarrow.compute as pc
+
+    d = simulate(HOME.format(form="null"), name="fstats")
+    for table in ("meters", "truth"):
+        path = d / f"{table}.parquet"
+        f = pq.ParquetFile(path)
+        floats = [x.name for x in f.schema_arrow if pa.types.is_floating(x.type)]
+        assert floats
+        stats = {
+            (g, c): (lo, hi, n)
+            for g, c, lo, hi, n in duckdb.sql(
+                "SELECT row_group_id, path_in_schema, stats_min_value, stats_max_value, stats_null_count "
+                f"FROM parquet_metadata('{path}')"
+            ).fetchall()
+        }
+        nulls = 0
+        for g in range(f.metadata.num_row_groups):
+            t = f.read_row_group(g, columns=floats)
+            for c in floats:
+                want = pc.min_max(t.column(c))
+                lo, hi, n = stats[(g, c)]
+                assert n == t.column(c).null_count, c
+                nulls += n
+                # duckdb prints the shortest decimal that reads back as the
+                # stored float32 or float64.
+                kind = np.float32 if t.schema.field(c).type == pa.float32() else np.float64
+                got = (kind(float(lo)), kind(float(hi)))
+                assert got == (kind(want["min"].as_py()), kind(want["max"].as_py())), (table, g, c)
+                if want["min"].as_py() == 0:
+                    assert lo == "-0.0", (c, lo)
+                if want["max"].as_py() == 0:
+                    assert hi == "0.0", (c, hi)
+        assert table == "truth" or nulls > 0, "dropouts left nulls in the meters"
