@@ -36,9 +36,11 @@ pub trait Float: arrow_buffer::ArrowNativeType + PartialOrd + Sync + Send + 'sta
     const PHYSICAL: Type;
     /// The Arrow primitive type of the input arrays.
     type Arrow: arrow_array::ArrowPrimitiveType<Native = Self>;
-    /// The smallest and largest finite values (the min/max fold's start).
+    /// The smallest finite value (where the maximum's fold starts).
     const LOWEST: Self;
+    /// The largest finite value (where the minimum's fold starts).
     const HIGHEST: Self;
+    /// Positive zero.
     const ZERO: Self;
     /// Writes the value's little-endian bytes to `out`.
     fn put(self, out: &mut [u8]);
