@@ -79,7 +79,9 @@ pub fn load_declaration(path: &Path) -> Result<Declared, scenario::Error> {
     for e in &prep.shorts {
         d.appliances.push(e.appliance(&d.supply));
     }
-    d.partial = prep.partial;
+    // A declaration that lists no appliance claims nothing about them: the
+    // loads the steps show are the unlisted rest, not mistakes.
+    d.partial = prep.partial || d.appliances.is_empty();
     Ok(d)
 }
 

@@ -190,7 +190,12 @@ pub fn prepare(path: &Path, text: String) -> Result<Prepared, Error> {
         }
     }
     let mut text = String::from_utf8(bytes).unwrap_or(text);
-    if full == 0 && !shorts.is_empty() {
+    // No full entry (only short ones, or none: a declaration of the supply
+    // and metering alone): the scenario reader still wants an appliance.
+    let appliances_ok = doc
+        .get("appliance")
+        .is_none_or(|i| i.as_array_of_tables().is_some());
+    if full == 0 && appliances_ok {
         text += &format!(
             "\n[[appliance]]\nid = \"{PLACEHOLDER}\"\nwiring = \"L1-N\"\nbehaviour = \"steady\"\nstates = [ {{ power = \"1 W\" }} ]\n"
         );

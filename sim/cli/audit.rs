@@ -58,6 +58,9 @@ pub fn main(a: Args) -> ExitCode {
         return bad("error: give the DATASET folder (or --matrix)");
     };
     let Some(declared) = &a.declared else {
+        if dataset.is_file() {
+            return bad(format!("error: {} is a meters file: its loading picture needs the supply, the service rating and the time zone, which only a dataset folder's manifest gives\n  = help: give --declared DECLARED.toml; [home] alone (supply, timezone, service) is enough, e.g. [home] supply = \"split-phase\", timezone = \"America/Chicago\", service = \"100 A\"", dataset.display()));
+        }
         return match loading(dataset) {
             Ok(l) => {
                 print(&l, form);

@@ -404,3 +404,23 @@ def test_a_partial_declaration_invents_nothing_and_says_how_little_it_explains(s
     used, explained = r["steps"]["used"], r["steps"]["explained"]
     assert explained < used / 2
     assert any(f"explains {explained} of {used} steps" in n and "partial" in n for n in r["notes"]), r["notes"]
+
+
+def test_an_export_with_the_home_alone_declared_gives_its_loading_and_loads(simulate, tmp_path):
+    """`[home]` alone (no appliance): nothing is claimed about the loads, so
+    the recurring ones found are listed apart, never as mistakes; the
+    loading picture is there. A meters file without any declaration is
+    refused: it has no supply, rating or time zone."""
+    d = simulate(home(length="1 d"))
+    m = pd.read_parquet(d / "meters.parquet")
+    write_naive_csv(tmp_path / "export.csv", m, ["l1_p_w", "l2_p_w"])
+    text = '[home]\nsupply = "split-phase"\ntimezone = "America/Chicago"\nservice = "100 A"\n'
+    r = report(tmp_path / "export.csv", text, tmp_path)
+    assert r["findings"] == [] and r["appliances"] == []
+    sizes = sorted(u["evidence"]["p_w"] for u in r["unlisted_loads"])
+    # The 900 W toaster and the 1.1 kW pump, which cycle all day, are among them.
+    for size in [900, 1100]:
+        assert any(abs(s - size) < 0.1 * size for s in sizes), sizes
+    assert [x["measured"] for x in r["loading"]["lines"]] == [True, True]
+    p = loadloom("audit", tmp_path / "export.csv", check=False)
+    assert p.returncode == 2 and p.stdout == "" and "--declared" in p.stderr and "export.csv" in p.stderr
