@@ -11,7 +11,7 @@
 
 use crate::behaviour::dist::categorical;
 use crate::rng::stream;
-use crate::scenario::reader::Ctx;
+use crate::scenario::reader::Reader;
 use crate::scenario::source::{parse_toml, Error, Node, Sources, Val};
 use crate::scenario::{library, Scenario};
 use crate::units::Kind;
@@ -124,7 +124,7 @@ pub fn load(path: &Path) -> Result<Population, Error> {
     let mut sources = Sources::default();
     let file = sources.add(path, text);
     let root = parse_toml(&sources, file)?;
-    let ctx = Ctx { sources: &sources };
+    let ctx = Reader { sources: &sources };
     let top = ctx.table(&root, "")?;
     let f = ctx.table(
         top.req("fleet", "the [fleet] section: label and seed")?,
@@ -411,7 +411,7 @@ fn child<'n>(n: &'n Node, key: &str, index: Option<usize>) -> Option<&'n Node> {
 /// not exist, `generated`), moved to the population's own line that wrote
 /// the offending key: `[run]` and `[meter]` keys to those sections, `[home]`
 /// keys to the kind, an appliance (`a{j}`) to its `[[owns]]` entry.
-fn population_place(ctx: &Ctx, root: &Node, k: usize, generated: &Path, e: Error) -> Error {
+fn population_place(ctx: &Reader, root: &Node, k: usize, generated: &Path, e: Error) -> Error {
     if e.file != generated {
         return e; // an error inside a template names the template's own file
     }

@@ -7,7 +7,7 @@ use crate::behaviour::timelines;
 use crate::dataset::tables::Tables;
 use crate::dataset::{encode_rows, folder, replace_dir, Files, Format, Layout, CHUNK_ROWS};
 use crate::scenario::Scenario;
-use crate::simulate::{simulate_with, Outcome};
+use crate::simulate::{simulate_with, SimulationRecord};
 use arrow_array::RecordBatch;
 use std::io;
 use std::path::{Path, PathBuf};
@@ -19,7 +19,7 @@ pub struct Written {
     /// Reporting intervals (rows of the meters table).
     pub rows: u64,
     /// Events and the per-appliance summary of the simulation.
-    pub outcome: Outcome,
+    pub outcome: SimulationRecord,
 }
 
 /// Simulates `s` and writes its dataset to `out_root/<scenario name>/`.
@@ -109,7 +109,7 @@ pub fn write_into(
     format: Format,
     layout: &Layout,
     progress: &mut dyn FnMut(f64),
-) -> io::Result<(u64, Outcome)> {
+) -> io::Result<(u64, SimulationRecord)> {
     write_into_cut(s, dir, format, layout, progress, &[])
 }
 
@@ -122,7 +122,7 @@ pub fn write_into_cut(
     layout: &Layout,
     progress: &mut dyn FnMut(f64),
     cuts: &[usize],
-) -> io::Result<(u64, Outcome)> {
+) -> io::Result<(u64, SimulationRecord)> {
     let tables = Tables::with_form(s, layout.form);
     let intervals = s.intervals();
     let tl = timelines(s, s.run.steps());
@@ -137,7 +137,7 @@ pub fn write_into_cut(
     let threads = files.threads;
     // The simulation runs on this thread; a second one takes each chunk's
     // tables and encodes their columns on `threads` threads meanwhile.
-    let (outcome, meter_rows) = std::thread::scope(|sc| -> io::Result<(Outcome, u64)> {
+    let (outcome, meter_rows) = std::thread::scope(|sc| -> io::Result<(SimulationRecord, u64)> {
         let (tx, rx) = std::sync::mpsc::sync_channel::<[RecordBatch; 2]>(2);
         let writer = sc.spawn(move || encode_rows(rx, meters, truth, threads));
         let mut meter_rows = 0u64;

@@ -9,7 +9,7 @@ use crate::scenario::Scenario;
 use serde_json::{json, Value};
 use solver_check::contract::{line_name, SUITE_FORMAT};
 use solver_check::render::Render;
-use solver_check::roundtrip::{Outcome, Prepared, Reveal, Solver, Split};
+use solver_check::roundtrip::{Prepared, Reveal, Solver, SolverRun, Split};
 use solver_check::score::Report;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
@@ -162,7 +162,7 @@ pub fn board(
     limit: Duration,
     allow_read: &[std::path::PathBuf],
     progress: &mut dyn FnMut(usize, &str),
-) -> Result<Vec<Outcome>, String> {
+) -> Result<Vec<SolverRun>, String> {
     let mut out = Vec::new();
     for (k, solver) in solvers.iter().enumerate() {
         let name = solver.describe();
@@ -184,7 +184,7 @@ pub fn board(
 
 /// Simulates `s` over train + test, writes the task, runs the solver, scores.
 /// Err is an I/O failure of our own (writing the dataset or the task).
-pub fn once(s: &Scenario, work: &Path, p: &Plan) -> Result<Outcome, String> {
+pub fn once(s: &Scenario, work: &Path, p: &Plan) -> Result<SolverRun, String> {
     let prep = prepare(s, work, p)?;
     solver_check::roundtrip::run_solver(&prep, &p.solver, work, p.limit, &p.allow_read)
         .map_err(|e| format!("running the solver under {} failed: {e}", work.display()))

@@ -7,7 +7,7 @@ use crate::electrical::settle::{diverged, Diverged};
 use crate::electrical::source::SourceVoltage;
 use crate::electrical::{Network, StepOut, C64};
 use crate::meter::{MeterModel, Readings};
-use crate::scenario::{Role, Scenario};
+use crate::scenario::{Inrush, Role, Scenario};
 
 /// Exact per-appliance truth for a run of reporting intervals (columnar).
 #[derive(Default)]
@@ -74,7 +74,7 @@ pub struct Chunk {
 /// One state segment of one appliance, merged over consecutive segments in
 /// the same state.
 #[derive(Clone, Debug)]
-pub struct Event {
+pub struct StateSpan {
     /// Index of the appliance in the scenario's `appliances`.
     pub app: usize,
     /// Index of the state in the appliance's `states`.
@@ -105,9 +105,9 @@ pub struct Summary {
 }
 
 /// What a finished simulation hands back besides its chunks.
-pub struct Outcome {
+pub struct SimulationRecord {
     /// Every appliance's state segments, by appliance, then start.
-    pub events: Vec<Event>,
+    pub events: Vec<StateSpan>,
     /// Energies and peaks for the manifest's summary.
     pub summary: Summary,
     /// Reporting intervals lost to dropouts: (first row, rows).
@@ -195,7 +195,7 @@ pub fn simulate<E>(
     intervals: u64,
     chunk_rows: usize,
     sink: impl FnMut(&Chunk) -> Result<(), E>,
-) -> Result<Outcome, E>
+) -> Result<SimulationRecord, E>
 where
     E: From<Diverged>,
 {
@@ -210,12 +210,11 @@ pub(crate) fn simulate_with<E>(
     chunk_rows: usize,
     mut sink: impl FnMut(&Chunk) -> Result<(), E>,
     mut recorder: Option<&mut crate::waveform::Recorder>,
-) -> Result<Outcome, E>
+) -> Result<SimulationRecord, E>
 where
     E: From<Diverged>,
 {
     let net = Network::new(s);
-    let n_apps = net.apps.len();
     let lines = net.lines;
     let dt = s.run.step_s;
     let k_int = s.steps_per_interval();
@@ -228,7 +227,6 @@ where
         s.run.seed,
         intervals,
     );
-    let metered = s.appliances.len();
     // The PV inverter, which a production channel measures.
     let pv = s.appliances.iter().position(|a| a.role == Role::Generator);
     let mut chunk = Chunk {
@@ -236,184 +234,38 @@ where
         readings: Readings::new(lines),
         truth: Truth::new(&net, s),
     };
-    let mut out = StepOut::new(n_apps);
-
-    let mut pos = vec![0usize; n_apps];
-    let mut state: Vec<usize> = timelines
-        .iter()
-        .map(|t| t.segments[0].state as usize)
-        .collect();
-    let mut scale: Vec<f64> = timelines
-        .iter()
-        .map(|t| t.segments[0].scale as f64)
-        .collect();
-    // Inrush: the step the current state was entered, if it has inrush.
-    let mut inrush_from: Vec<Option<u64>> = (0..n_apps)
-        .map(|k| net.apps[k].inrush[state[k]].map(|_| 0))
-        .collect();
-    let mut active: Vec<(usize, f64)> = vec![(0, 1.0); n_apps];
-    let mut events: Vec<Event> = Vec::new();
-    let mut open: Vec<Event> = (0..n_apps)
-        .map(|k| Event {
-            app: k,
-            state: state[k] as u16,
-            start_step: 0,
-            end_step: 0,
-            energy_j: 0.0,
-        })
-        .collect();
-
-    let mut sum_p = vec![0.0f64; n_apps];
-    let mut sum_q = vec![0.0f64; n_apps];
-    let mut sum_lp: Vec<[f64; 3]> = vec![[0.0; 3]; n_apps];
-    let max_states = net.apps.iter().map(|a| a.states.len()).max().unwrap_or(1);
-    let mut occupancy = vec![0u32; n_apps * max_states];
+    let mut out = StepOut::new(net.apps.len());
+    let mut walk = Walk::new(&net, timelines);
+    let mut sums = IntervalSums::new(&net, k_int, s.appliances.len());
     let mut summary = Summary {
-        app_energy_j: vec![0.0; n_apps],
-        app_peak_w: vec![0.0; n_apps],
+        app_energy_j: vec![0.0; net.apps.len()],
+        app_peak_w: vec![0.0; net.apps.len()],
         ..Default::default()
     };
-    let mut i_prev = [C64::ZERO; 3];
-    let mut t_prev = crate::electrical::Terminals::default();
-    let mut e = [C64::ZERO; 3];
-
+    let mut solution = Solution::new(s, &net);
     let total_steps = intervals * k_int;
     for step in 0..total_steps {
         let (f, source_moved) = source.next(lines);
         if source_moved {
-            for x in 0..lines {
-                e[x] = net.e_nominal[x].scale(f[x]);
-            }
+            solution.set_source(&f);
         }
-        let mut changed = step == 0;
-        for k in 0..n_apps {
-            let segs = &timelines[k].segments;
-            if step >= segs[pos[k]].end {
-                pos[k] += 1;
-                let seg = segs[pos[k]];
-                if seg.state as usize != state[k] {
-                    let mut ev = open[k].clone();
-                    ev.end_step = step;
-                    events.push(ev);
-                    open[k] = Event {
-                        app: k,
-                        state: seg.state,
-                        start_step: step,
-                        end_step: 0,
-                        energy_j: 0.0,
-                    };
-                    state[k] = seg.state as usize;
-                    inrush_from[k] = net.apps[k].inrush[state[k]].map(|_| step);
-                }
-                scale[k] = seg.scale as f64;
-                changed = true;
-            }
-            let mut m = scale[k];
-            if let Some(from) = inrush_from[k] {
-                let ir = net.apps[k].inrush[state[k]].expect("set with inrush");
-                let j = step - from;
-                if j as f64 * dt > 12.0 * ir.decay_s {
-                    inrush_from[k] = None;
-                } else {
-                    m *= inrush_mult(ir.peak, ir.decay_s, j, dt);
-                }
-                changed = true;
-            }
-            active[k] = (state[k], m);
-        }
-        // Fixed point of V(I) and I(V): one pass normally; a second when a
-        // load switched, so the sag at a switching step is already in it.
-        let mut t = net.terminals(&e, &i_prev);
-        if changed {
-            let i = net.currents(&t, &active);
-            t = net.terminals(&e, &i);
-        }
-        // When no load or source moved and the terminals have settled (within
-        // a nanovolt), the last step's solution still holds: skip the solve.
-        if changed || source_moved || !t_prev.settled(&t, lines) {
-            net.solve(&t, &active, &mut out);
-            check_solution(s, &net, &e, &active, step, &mut t, &mut out)?;
-            i_prev = out.i_line;
-            t_prev = t;
-        }
+        let changed = walk.advance(step, &net, timelines, dt) || step == 0;
+        solution.update(&walk.active, changed, source_moved, step, &mut out)?;
         if let Some(rec) = recorder.as_deref_mut() {
             if rec.wants(step) {
-                let ir: Vec<_> = (0..n_apps)
-                    .map(|k| {
-                        inrush_from[k].and_then(|f| net.apps[k].inrush[state[k]].map(|i| (f, i)))
-                    })
-                    .collect();
-                rec.record(step, &net, &t_prev, &state, &scale, &ir);
+                let ir = walk.inrush_windows(&net);
+                rec.record(step, &net, &solution.t_prev, &walk.state, &walk.scale, &ir);
             }
         }
         meter.add(&out.v_ln, &out.i_line, dt);
         if let Some(k) = pv {
             meter.add_production(out.app_p[k]);
         }
-        for k in 0..n_apps {
-            let p = out.app_p[k];
-            sum_p[k] += p;
-            sum_q[k] += out.app_q[k];
-            for x in 0..3 {
-                sum_lp[k][x] += out.app_line_p[k][x];
-            }
-            open[k].energy_j += p * dt;
-            summary.app_energy_j[k] += p * dt;
-            if p > summary.app_peak_w[k] {
-                summary.app_peak_w[k] = p;
-            }
-            if k_int > 1 {
-                occupancy[k * max_states + state[k]] += 1;
-            }
-        }
+        sums.add(&out, &mut walk, &mut summary, dt);
         if (step + 1) % k_int == 0 {
-            let kf = k_int as f64;
             meter.emit(&mut chunk.readings);
-            let tr = &mut chunk.truth;
-            // Unmetered loads are in the meters; in truth only as their sum.
-            let mut unmetered = 0.0;
-            for k in metered..n_apps {
-                unmetered += sum_p[k] / kf;
-                sum_p[k] = 0.0;
-                sum_q[k] = 0.0;
-                sum_lp[k] = [0.0; 3];
-                occupancy[k * max_states..(k + 1) * max_states]
-                    .iter_mut()
-                    .for_each(|c| *c = 0);
-            }
-            for k in 0..metered {
-                tr.app_p[k].push((sum_p[k] / kf) as f32);
-                tr.app_q[k].push((sum_q[k] / kf) as f32);
-                for (j, &x) in net.apps[k].lines.iter().enumerate() {
-                    tr.app_line_p[k][j].push((sum_lp[k][x] / kf) as f32);
-                }
-                // The state held for the greater part of the interval.
-                let st = if k_int > 1 {
-                    let occ = &mut occupancy[k * max_states..(k + 1) * max_states];
-                    let best = (0..max_states)
-                        .max_by_key(|&j| (occ[j], std::cmp::Reverse(j)))
-                        .unwrap_or(0);
-                    occ.iter_mut().for_each(|c| *c = 0);
-                    best
-                } else {
-                    state[k]
-                };
-                tr.app_state[k].push(st as u16);
-                if let Some(col) = tr.app_soc[k].as_mut() {
-                    let soc = timelines[k].level_at(pos[k], step + 1);
-                    col.push(soc.unwrap_or(0.0) as f32);
-                }
-                sum_p[k] = 0.0;
-                sum_q[k] = 0.0;
-                sum_lp[k] = [0.0; 3];
-            }
-            tr.unmetered_p.push(unmetered as f32);
-            let r = chunk.readings.rows() - 1;
-            for x in 0..lines {
-                summary.line_peak_a[x] =
-                    summary.line_peak_a[x].max(chunk.readings.line_i[x][r] as f64);
-            }
-            summary.neutral_peak_a = summary.neutral_peak_a.max(chunk.readings.n_i[r] as f64);
+            sums.flush(&mut chunk.truth, &net, &walk, timelines, step);
+            summary.note_line_peaks(&chunk.readings, lines);
             if chunk.readings.rows() == chunk_rows || step + 1 == total_steps {
                 sink(&chunk)?;
                 chunk.first_row += chunk.readings.rows() as u64;
@@ -422,18 +274,313 @@ where
             }
         }
     }
-    for mut ev in open {
-        ev.end_step = total_steps;
-        events.push(ev);
-    }
-    events.retain(|e| e.app < metered);
-    events.sort_by_key(|e| (e.app, e.start_step));
     summary.line_energy_j = meter.line_energy_j;
-    Ok(Outcome {
-        events,
+    Ok(SimulationRecord {
+        events: walk.finish(total_steps, s.appliances.len()),
         summary,
         dropouts: meter.gaps().to_vec(),
     })
+}
+
+/// Where each load is along its timeline (segment, state, scale, inrush),
+/// what the solve is handed for it, and its state spans so far.
+struct Walk {
+    pos: Vec<usize>,
+    state: Vec<usize>,
+    scale: Vec<f64>,
+    /// The step the current state was entered, if it has inrush.
+    inrush_from: Vec<Option<u64>>,
+    /// Per load: (state, power multiple) for the solve.
+    active: Vec<(usize, f64)>,
+    /// The span each load is in now.
+    open: Vec<StateSpan>,
+    /// The spans already closed.
+    closed: Vec<StateSpan>,
+}
+
+impl Walk {
+    fn new(net: &Network, timelines: &[Timeline]) -> Self {
+        let n_apps = net.apps.len();
+        let state: Vec<usize> = timelines
+            .iter()
+            .map(|t| t.segments[0].state as usize)
+            .collect();
+        let scale = timelines
+            .iter()
+            .map(|t| t.segments[0].scale as f64)
+            .collect();
+        let inrush_from = (0..n_apps)
+            .map(|k| net.apps[k].inrush[state[k]].map(|_| 0))
+            .collect();
+        let open = (0..n_apps)
+            .map(|k| StateSpan {
+                app: k,
+                state: state[k] as u16,
+                start_step: 0,
+                end_step: 0,
+                energy_j: 0.0,
+            })
+            .collect();
+        Walk {
+            pos: vec![0; n_apps],
+            state,
+            scale,
+            inrush_from,
+            active: vec![(0, 1.0); n_apps],
+            open,
+            closed: Vec::new(),
+        }
+    }
+
+    /// Moves every load to `step`: into its next segment where the current
+    /// one ended (closing its span when the state changes), its inrush
+    /// decayed by one more step. True when any load's draw changed.
+    #[inline]
+    fn advance(&mut self, step: u64, net: &Network, timelines: &[Timeline], dt: f64) -> bool {
+        let mut changed = false;
+        for k in 0..net.apps.len() {
+            let segs = &timelines[k].segments;
+            if step >= segs[self.pos[k]].end {
+                self.pos[k] += 1;
+                let seg = segs[self.pos[k]];
+                if seg.state as usize != self.state[k] {
+                    let mut ev = self.open[k].clone();
+                    ev.end_step = step;
+                    self.closed.push(ev);
+                    self.open[k] = StateSpan {
+                        app: k,
+                        state: seg.state,
+                        start_step: step,
+                        end_step: 0,
+                        energy_j: 0.0,
+                    };
+                    self.state[k] = seg.state as usize;
+                    self.inrush_from[k] = net.apps[k].inrush[self.state[k]].map(|_| step);
+                }
+                self.scale[k] = seg.scale as f64;
+                changed = true;
+            }
+            let mut m = self.scale[k];
+            if let Some(from) = self.inrush_from[k] {
+                let ir = net.apps[k].inrush[self.state[k]].expect("set with inrush");
+                let j = step - from;
+                if j as f64 * dt > 12.0 * ir.decay_s {
+                    self.inrush_from[k] = None;
+                } else {
+                    m *= inrush_mult(ir.peak, ir.decay_s, j, dt);
+                }
+                changed = true;
+            }
+            self.active[k] = (self.state[k], m);
+        }
+        changed
+    }
+
+    /// Per load, the step its inrush began and the inrush, while it lasts
+    /// (for the waveform recorder).
+    fn inrush_windows(&self, net: &Network) -> Vec<Option<(u64, Inrush)>> {
+        (0..net.apps.len())
+            .map(|k| {
+                self.inrush_from[k].and_then(|f| net.apps[k].inrush[self.state[k]].map(|i| (f, i)))
+            })
+            .collect()
+    }
+
+    /// Every span of the metered loads, the open ones closed at the end of
+    /// the run, by appliance and start.
+    fn finish(mut self, total_steps: u64, metered: usize) -> Vec<StateSpan> {
+        for mut ev in self.open {
+            ev.end_step = total_steps;
+            self.closed.push(ev);
+        }
+        let mut events = self.closed;
+        events.retain(|e| e.app < metered);
+        events.sort_by_key(|e| (e.app, e.start_step));
+        events
+    }
+}
+
+/// The source's voltages and the last solution of the network, solved again
+/// only where something moved.
+struct Solution<'a> {
+    s: &'a Scenario,
+    net: &'a Network,
+    /// The source's open-circuit phasors this step.
+    e: [C64; 3],
+    i_prev: [C64; 3],
+    t_prev: crate::electrical::Terminals,
+}
+
+impl<'a> Solution<'a> {
+    fn new(s: &'a Scenario, net: &'a Network) -> Self {
+        Solution {
+            s,
+            net,
+            e: [C64::ZERO; 3],
+            i_prev: [C64::ZERO; 3],
+            t_prev: crate::electrical::Terminals::default(),
+        }
+    }
+
+    /// The source moved: its phasors at the new per-line factors.
+    fn set_source(&mut self, f: &[f64]) {
+        for x in 0..self.net.lines {
+            self.e[x] = self.net.e_nominal[x].scale(f[x]);
+        }
+    }
+
+    /// The step's solution into `out`.
+    #[inline]
+    fn update(
+        &mut self,
+        active: &[(usize, f64)],
+        changed: bool,
+        source_moved: bool,
+        step: u64,
+        out: &mut StepOut,
+    ) -> Result<(), Diverged> {
+        let net = self.net;
+        // Fixed point of V(I) and I(V): one pass normally; a second when a
+        // load switched, so the sag at a switching step is already in it.
+        let mut t = net.terminals(&self.e, &self.i_prev);
+        if changed {
+            let i = net.currents(&t, active);
+            t = net.terminals(&self.e, &i);
+        }
+        // When no load or source moved and the terminals have settled (within
+        // a nanovolt), the last step's solution still holds: skip the solve.
+        if changed || source_moved || !self.t_prev.settled(&t, net.lines) {
+            net.solve(&t, active, out);
+            check_solution(self.s, net, &self.e, active, step, &mut t, out)?;
+            self.i_prev = out.i_line;
+            self.t_prev = t;
+        }
+        Ok(())
+    }
+}
+
+/// Per-load sums over the reporting interval in progress, and how many
+/// steps each load spent in each state.
+struct IntervalSums {
+    p: Vec<f64>,
+    q: Vec<f64>,
+    line_p: Vec<[f64; 3]>,
+    /// `[load * max_states + state]`: steps in that state this interval.
+    occupancy: Vec<u32>,
+    max_states: usize,
+    /// Steps per reporting interval.
+    k_int: u64,
+    /// Loads before this index are the appliances, the rest unmetered.
+    metered: usize,
+}
+
+impl IntervalSums {
+    fn new(net: &Network, k_int: u64, metered: usize) -> Self {
+        let n_apps = net.apps.len();
+        let max_states = net.apps.iter().map(|a| a.states.len()).max().unwrap_or(1);
+        IntervalSums {
+            p: vec![0.0; n_apps],
+            q: vec![0.0; n_apps],
+            line_p: vec![[0.0; 3]; n_apps],
+            occupancy: vec![0; n_apps * max_states],
+            max_states,
+            k_int,
+            metered,
+        }
+    }
+
+    /// Adds the step's per-load powers to the sums, the spans' energy and
+    /// the summary's energy and peaks.
+    #[inline]
+    fn add(&mut self, out: &StepOut, walk: &mut Walk, summary: &mut Summary, dt: f64) {
+        for k in 0..self.p.len() {
+            let p = out.app_p[k];
+            self.p[k] += p;
+            self.q[k] += out.app_q[k];
+            for x in 0..3 {
+                self.line_p[k][x] += out.app_line_p[k][x];
+            }
+            walk.open[k].energy_j += p * dt;
+            summary.app_energy_j[k] += p * dt;
+            if p > summary.app_peak_w[k] {
+                summary.app_peak_w[k] = p;
+            }
+            if self.k_int > 1 {
+                self.occupancy[k * self.max_states + walk.state[k]] += 1;
+            }
+        }
+    }
+
+    /// Ends the interval that closes at `step`: each appliance's means and
+    /// state into the truth row, the unmetered loads as their sum; the sums
+    /// start again from zero.
+    fn flush(
+        &mut self,
+        tr: &mut Truth,
+        net: &Network,
+        walk: &Walk,
+        timelines: &[Timeline],
+        step: u64,
+    ) {
+        let kf = self.k_int as f64;
+        let ms = self.max_states;
+        // Unmetered loads are in the meters; in truth only as their sum.
+        let mut unmetered = 0.0;
+        for k in self.metered..self.p.len() {
+            unmetered += self.p[k] / kf;
+            self.reset(k);
+            self.occupancy[k * ms..(k + 1) * ms]
+                .iter_mut()
+                .for_each(|c| *c = 0);
+        }
+        for k in 0..self.metered {
+            tr.app_p[k].push((self.p[k] / kf) as f32);
+            tr.app_q[k].push((self.q[k] / kf) as f32);
+            for (j, &x) in net.apps[k].lines.iter().enumerate() {
+                tr.app_line_p[k][j].push((self.line_p[k][x] / kf) as f32);
+            }
+            let st = self.held_state(k, walk.state[k]);
+            tr.app_state[k].push(st as u16);
+            if let Some(col) = tr.app_soc[k].as_mut() {
+                let soc = timelines[k].level_at(walk.pos[k], step + 1);
+                col.push(soc.unwrap_or(0.0) as f32);
+            }
+            self.reset(k);
+        }
+        tr.unmetered_p.push(unmetered as f32);
+    }
+
+    /// The state load `k` held for the greater part of the interval (the
+    /// lower one on a tie); its counts start again from zero.
+    fn held_state(&mut self, k: usize, now: usize) -> usize {
+        if self.k_int <= 1 {
+            return now;
+        }
+        let ms = self.max_states;
+        let occ = &mut self.occupancy[k * ms..(k + 1) * ms];
+        let best = (0..ms)
+            .max_by_key(|&j| (occ[j], std::cmp::Reverse(j)))
+            .unwrap_or(0);
+        occ.iter_mut().for_each(|c| *c = 0);
+        best
+    }
+
+    fn reset(&mut self, k: usize) {
+        self.p[k] = 0.0;
+        self.q[k] = 0.0;
+        self.line_p[k] = [0.0; 3];
+    }
+}
+
+impl Summary {
+    /// The line and neutral currents of the last reading, into the peaks.
+    fn note_line_peaks(&mut self, readings: &Readings, lines: usize) {
+        let r = readings.rows() - 1;
+        for x in 0..lines {
+            self.line_peak_a[x] = self.line_peak_a[x].max(readings.line_i[x][r] as f64);
+        }
+        self.neutral_peak_a = self.neutral_peak_a.max(readings.n_i[r] as f64);
+    }
 }
 
 #[cfg(test)]

@@ -8,7 +8,7 @@ use loadloom::scenario::overrides::duration_arg;
 use loadloom::scenario::Scenario;
 use solver_check::leaderboard::{failure_message, rank, SolverReport};
 use solver_check::render::Form;
-use solver_check::roundtrip::{Outcome, Prepared, Reveal, Solver};
+use solver_check::roundtrip::{Prepared, Reveal, Solver, SolverRun};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -379,7 +379,7 @@ fn leaderboard(
 }
 
 /// One solver's outcome: its score report, or why it got none (exit 1).
-fn single_report(o: &Outcome, form: Form) -> ExitCode {
+fn single_report(o: &SolverRun, form: Form) -> ExitCode {
     match &o.result {
         Ok(report) => {
             print(&SolverReport { outcome: o, report }, form);

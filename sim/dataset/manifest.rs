@@ -7,7 +7,7 @@ use super::schema::Col;
 use super::tables::Tables;
 use crate::electrical::split::state_split;
 use crate::scenario::{Appliance, Behaviour, Role, Scenario, Wiring};
-use crate::simulate::Outcome;
+use crate::simulate::SimulationRecord;
 use serde_json::{json, Map, Value};
 use sha2::{Digest, Sha256};
 use solver_check::contract::{line_name, DATASET_FORMAT, NEUTRAL_NAME};
@@ -29,7 +29,7 @@ pub fn sha256_file(path: &Path) -> io::Result<String> {
     Ok(h.finalize().iter().map(|b| format!("{b:02x}")).collect())
 }
 
-fn appliance_json(s: &Scenario, a: &Appliance, o: &Outcome, k: usize) -> Value {
+fn appliance_json(s: &Scenario, a: &Appliance, o: &SimulationRecord, k: usize) -> Value {
     let lines = a.lines();
     let states: Vec<Value> = a
         .states
@@ -77,7 +77,7 @@ fn columns_json(cols: &[Col]) -> Value {
 
 /// A PV system or a battery: its appliance record with its role, its
 /// parameters and, for a battery, its state-of-charge column.
-fn generation_json(s: &Scenario, a: &Appliance, o: &Outcome, k: usize) -> Value {
+fn generation_json(s: &Scenario, a: &Appliance, o: &SimulationRecord, k: usize) -> Value {
     let mut v = appliance_json(s, a, o, k);
     v["role"] = json!(a.role);
     v["model"] = match &a.behaviour {
@@ -92,7 +92,7 @@ fn generation_json(s: &Scenario, a: &Appliance, o: &Outcome, k: usize) -> Value 
 }
 
 /// The faults of the scenario as records, with what the dropouts realised.
-fn faults_json(s: &Scenario, tables: &Tables, o: &Outcome) -> Value {
+fn faults_json(s: &Scenario, tables: &Tables, o: &SimulationRecord) -> Value {
     let f = &s.faults;
     let mut v = Vec::new();
     for c in &f.ct {
@@ -128,7 +128,7 @@ fn faults_json(s: &Scenario, tables: &Tables, o: &Outcome) -> Value {
 pub fn build(
     s: &Scenario,
     tables: &Tables,
-    o: &Outcome,
+    o: &SimulationRecord,
     card: &crate::difficulty::Difficulty,
     files: &[(String, u64)],
     waves: &[(String, Value)],

@@ -16,7 +16,7 @@ pub mod tables;
 
 use crate::difficulty::Difficulty;
 use crate::scenario::Scenario;
-use crate::simulate::{Event, Outcome};
+use crate::simulate::{SimulationRecord, StateSpan};
 use arrow_array::RecordBatch;
 use serde_json::Value;
 pub use sink::Format;
@@ -169,7 +169,12 @@ impl Files {
     }
 
     /// Writes `events.*` whole.
-    pub fn write_events(&self, s: &Scenario, tables: &Tables, events: &[Event]) -> io::Result<()> {
+    pub fn write_events(
+        &self,
+        s: &Scenario,
+        tables: &Tables,
+        events: &[StateSpan],
+    ) -> io::Result<()> {
         let mut sink = Sink::create(
             &self.dir.join(&self.tables[2]),
             self.format,
@@ -187,7 +192,7 @@ impl Files {
         &self,
         s: &Scenario,
         tables: &Tables,
-        outcome: &Outcome,
+        outcome: &SimulationRecord,
         card: &Difficulty,
         rows: [u64; 3],
         waves: &[(String, Value)],

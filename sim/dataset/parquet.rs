@@ -71,7 +71,7 @@ impl Column {
 }
 
 /// One Parquet file being written.
-pub struct Table {
+pub struct ParquetFile {
     file: SerializedFileWriter<BufWriter<File>>,
     factory: ArrowRowGroupWriterFactory,
     schema: SchemaRef,
@@ -92,18 +92,18 @@ pub struct Table {
     cuts: Vec<usize>,
 }
 
-impl Table {
+impl ParquetFile {
     /// Starts the file (its Arrow schema goes into the footer's metadata).
     pub fn create(
         out: BufWriter<File>,
         schema: SchemaRef,
         props: WriterProperties,
-    ) -> io::Result<Table> {
+    ) -> io::Result<ParquetFile> {
         let page_rows = props.data_page_row_count_limit().min(ROW_GROUP_ROWS);
         let page_bytes = props.data_page_size_limit();
         let writer = ArrowWriter::try_new(out, schema.clone(), Some(props)).map_err(to_io)?;
         let (file, factory) = writer.into_serialized_writer().map_err(to_io)?;
-        Ok(Table {
+        Ok(ParquetFile {
             file,
             factory,
             schema,
@@ -200,7 +200,7 @@ type Task<'a> = (&'a mut Column, FieldRef, ArrayRef);
 
 /// Writes each batch to its table; the columns of all of them are encoded
 /// on `threads` threads.
-pub fn write(tables: &mut [(&mut Table, RecordBatch)], threads: usize) -> io::Result<()> {
+pub fn write(tables: &mut [(&mut ParquetFile, RecordBatch)], threads: usize) -> io::Result<()> {
     loop {
         // A round: each table takes what fits in its open row group.
         let mut tasks: Vec<Task> = Vec::new();

@@ -36,7 +36,7 @@ impl Format {
 /// One table being written, in either format.
 pub enum Sink {
     /// A Parquet file, row group by row group.
-    Parquet(Box<super::parquet::Table>),
+    Parquet(Box<super::parquet::ParquetFile>),
     /// A CSV file, with times written in the home's zone.
     Csv {
         /// The buffered file.
@@ -64,9 +64,9 @@ impl Sink {
         match format {
             Format::Parquet => {
                 let props = writer_properties(&schema, values);
-                Ok(Sink::Parquet(Box::new(super::parquet::Table::create(
-                    file, schema, props,
-                )?)))
+                Ok(Sink::Parquet(Box::new(
+                    super::parquet::ParquetFile::create(file, schema, props)?,
+                )))
             }
             Format::Csv => {
                 let mut out = file;
@@ -81,7 +81,7 @@ impl Sink {
     }
 
     /// Ends a Parquet row group at each of these rows too (see
-    /// [`super::parquet::Table::cut_at`]); CSV has no row groups.
+    /// [`super::parquet::ParquetFile::cut_at`]); CSV has no row groups.
     pub fn cut_at(&mut self, rows: &[usize]) {
         if let Sink::Parquet(t) = self {
             t.cut_at(rows);

@@ -3,7 +3,7 @@
 
 use super::schema::{self, Col, Form};
 use crate::scenario::Scenario;
-use crate::simulate::{Chunk, Event};
+use crate::simulate::{Chunk, StateSpan};
 use arrow_array::types::{Float32Type, Float64Type, Int16Type};
 use arrow_array::{
     new_null_array, ArrayRef, ArrowPrimitiveType, DictionaryArray, Float32Array, Float64Array,
@@ -330,7 +330,7 @@ impl Tables {
     }
 
     /// The events table: one row per state segment of each appliance.
-    pub fn events_batch(&self, s: &Scenario, events: &[Event], step_s: f64) -> RecordBatch {
+    pub fn events_batch(&self, s: &Scenario, events: &[StateSpan], step_s: f64) -> RecordBatch {
         let keys = Int16Array::from(events.iter().map(|e| e.app as i16).collect::<Vec<_>>());
         let cols: Vec<ArrayRef> = vec![
             Arc::new(

@@ -4,7 +4,7 @@
 
 use super::library;
 use super::model::*;
-use super::reader::{Ctx, Table};
+use super::reader::{Reader, TableReader};
 use super::source::{parse_toml, read_source, At, Entry, Error, Node, Sources, Val};
 use crate::units::Kind;
 use solver_check::contract::{line_label, WiringError};
@@ -64,7 +64,7 @@ pub fn load_str(path: &Path, text: String) -> Result<Scenario, Error> {
     // Templates are read into `sources` first, so errors can point into them.
     let mut templates: Vec<(String, usize, Node)> = Vec::new();
     collect_templates(&root, &library_dirs, &mut sources, &mut templates)?;
-    let ctx = Ctx { sources: &sources };
+    let ctx = Reader { sources: &sources };
     let name = path
         .file_stem()
         .map(|s| s.to_string_lossy().to_string())
@@ -81,7 +81,7 @@ pub(crate) fn library_dirs(
     let mut dirs = Vec::new();
     if let Val::Table(entries) = &root.v {
         if let Some(e) = entries.iter().find(|e| e.key == "library") {
-            let ctx = Ctx { sources };
+            let ctx = Reader { sources };
             let dir = base.join(ctx.string(&e.node, "library")?);
             if !dir.is_dir() {
                 let what = if dir.exists() {
@@ -146,7 +146,7 @@ pub(crate) fn collect_templates(
                     text.to_string(),
                 ),
                 None => {
-                    let ctx = Ctx { sources };
+                    let ctx = Reader { sources };
                     return Err(ctx.err(
                         &t.node,
                         &format!("{key}[{i}].template"),
@@ -190,7 +190,7 @@ pub(crate) fn merge(base: &Node, over: &Node) -> Node {
 }
 
 fn decode(
-    ctx: &Ctx,
+    ctx: &Reader,
     root: &Node,
     name: String,
     templates: &[(String, usize, Node)],
@@ -419,7 +419,7 @@ fn rated_voltage_warnings(a: &Appliance) -> Option<String> {
 /// Thermostatic appliances need the weather and the building, and a home
 /// has at most one heat pump (one outdoor unit per thermostat).
 fn check_thermostats(
-    ctx: &Ctx,
+    ctx: &Reader,
     root: &Node,
     apps: &[Appliance],
     unmetered: &[Appliance],
@@ -467,7 +467,7 @@ fn check_thermostats(
 
 /// Decodes the `[[key]]` list into `out`; ids must be unique across all of `out`.
 fn decode_list(
-    ctx: &Ctx,
+    ctx: &Reader,
     list_node: &Node,
     key: &str,
     home: &Home,
@@ -528,7 +528,7 @@ fn decode_list(
     Ok(())
 }
 
-fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
+fn decode_home(ctx: &Reader, node: &Node) -> Result<Home, Error> {
     let t = ctx.table(node, "home")?;
     let label = t.string("label")?.unwrap_or("").to_string();
     let supply_node = t.req("supply", "split-phase, three-phase or single-phase")?;
@@ -673,7 +673,7 @@ fn decode_home(ctx: &Ctx, node: &Node) -> Result<Home, Error> {
 /// `source.unbalance`: the negative- over positive-sequence voltage of a
 /// three-phase source, at most 10 % (EN 50160 sets 2 % for 95 % of a
 /// week's 10-minute values, from memory; 10 % is far beyond any supply).
-fn decode_unbalance(ctx: &Ctx, s: &Table, supply: SupplyKind) -> Result<f64, Error> {
+fn decode_unbalance(ctx: &Reader, s: &TableReader, supply: SupplyKind) -> Result<f64, Error> {
     let Some(n) = s.opt("unbalance") else {
         return Ok(0.0);
     };
@@ -706,7 +706,10 @@ pub const DEFAULT_SKY: f64 = 0.65;
 
 /// `latitude`, `longitude` (degrees, north and east positive; both or
 /// neither) and `sky` (a day's mean clear-sky index, or "clear").
-fn decode_site(ctx: &Ctx, t: &Table) -> Result<(Option<crate::sun::Site>, Option<f64>), Error> {
+fn decode_site(
+    ctx: &Reader,
+    t: &TableReader,
+) -> Result<(Option<crate::sun::Site>, Option<f64>), Error> {
     let degrees = |key: &'static str, limit: f64| -> Result<Option<f64>, Error> {
         let Some(n) = t.opt(key) else { return Ok(None) };
         let v = ctx.number(n, &t.path_of(key))?;
@@ -774,7 +777,7 @@ pub(super) fn has_offset(text: &str) -> bool {
 /// `start` is a local time in the home's zone, whose rules give its UTC
 /// offset: a written offset (`+05:00`) or `Z` would either repeat those rules
 /// or contradict them, so both are refused alike.
-fn refuse_offset(ctx: &Ctx, n: &Node, start: &str, zone: &str) -> Result<(), Error> {
+fn refuse_offset(ctx: &Reader, n: &Node, start: &str, zone: &str) -> Result<(), Error> {
     if !has_offset(start) {
         return Ok(());
     }
@@ -790,7 +793,7 @@ fn refuse_offset(ctx: &Ctx, n: &Node, start: &str, zone: &str) -> Result<(), Err
 /// (a daylight-saving gap) or shows twice (the hour repeated in autumn) is
 /// refused, since the run would otherwise start at a time not asked for.
 fn place_start(
-    ctx: &Ctx,
+    ctx: &Reader,
     n: &Node,
     civil: jiff::civil::DateTime,
     zone: &str,
@@ -824,7 +827,7 @@ fn place_start(
     }
 }
 
-fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
+fn decode_run(ctx: &Reader, node: &Node, home: &Home) -> Result<Run, Error> {
     let t = ctx.table(node, "run")?;
     let start_node = t.req("start", "the local start time, e.g. \"2027-01-04T00:00\"")?;
     let start_local = match &start_node.v {
@@ -884,7 +887,7 @@ fn decode_run(ctx: &Ctx, node: &Node, home: &Home) -> Result<Run, Error> {
     })
 }
 
-fn decode_meter(ctx: &Ctx, node: &Node, run: &Run) -> Result<Meter, Error> {
+fn decode_meter(ctx: &Reader, node: &Node, run: &Run) -> Result<Meter, Error> {
     let t = ctx.table(node, "meter")?;
     let interval_s = t
         .positive("interval", Kind::Duration)?
@@ -1005,7 +1008,7 @@ pub fn place_window(
     })
 }
 
-fn decode_waveforms(ctx: &Ctx, node: &Node, home: &Home, run: &Run) -> Result<Waveforms, Error> {
+fn decode_waveforms(ctx: &Reader, node: &Node, home: &Home, run: &Run) -> Result<Waveforms, Error> {
     let t = ctx.table(node, "waveform")?;
     let rate_hz = t
         .positive("rate", Kind::Frequency)?
@@ -1051,7 +1054,7 @@ fn decode_waveforms(ctx: &Ctx, node: &Node, home: &Home, run: &Run) -> Result<Wa
     Ok(Waveforms { rate_hz, windows })
 }
 
-fn decode_harmonics(ctx: &Ctx, t: &Table, load: LoadKind) -> Result<Vec<Harmonic>, Error> {
+fn decode_harmonics(ctx: &Reader, t: &TableReader, load: LoadKind) -> Result<Vec<Harmonic>, Error> {
     let Some(n) = t.opt("harmonics") else {
         return Ok(load.default_harmonics());
     };
@@ -1116,7 +1119,7 @@ fn decode_harmonics(ctx: &Ctx, t: &Table, load: LoadKind) -> Result<Vec<Harmonic
 }
 
 /// A line of the supply, `L1` … `L3`, as an index.
-fn parse_line(ctx: &Ctx, node: &Node, path: &str, supply: SupplyKind) -> Result<usize, Error> {
+fn parse_line(ctx: &Reader, node: &Node, path: &str, supply: SupplyKind) -> Result<usize, Error> {
     let text = ctx.string(node, path)?;
     let lines: Vec<String> = (0..supply.lines()).map(line_label).collect();
     lines.iter().position(|l| l == text).ok_or_else(|| {
@@ -1132,7 +1135,7 @@ fn parse_line(ctx: &Ctx, node: &Node, path: &str, supply: SupplyKind) -> Result<
 /// `[metering]`: per channel `l1 = { conductor = "L1", orientation = "to-load" }`;
 /// conductor "none" for a channel with no CT. Channels not written have
 /// their own line's CT, facing the load.
-fn decode_metering(ctx: &Ctx, node: &Node, home: &Home) -> Result<Vec<MeterChannel>, Error> {
+fn decode_metering(ctx: &Reader, node: &Node, home: &Home) -> Result<Vec<MeterChannel>, Error> {
     let t = ctx.table(node, "metering")?;
     let n = home.supply.lines();
     let mut out: Vec<MeterChannel> = (0..n)
@@ -1178,7 +1181,7 @@ fn decode_metering(ctx: &Ctx, node: &Node, home: &Home) -> Result<Vec<MeterChann
     Ok(out)
 }
 
-fn decode_faults(ctx: &Ctx, node: &Node, home: &Home, meter: &Meter) -> Result<Faults, Error> {
+fn decode_faults(ctx: &Reader, node: &Node, home: &Home, meter: &Meter) -> Result<Faults, Error> {
     let t = ctx.table(node, "faults")?;
     let supply = home.supply;
     let mut f = Faults::default();
@@ -1376,7 +1379,13 @@ pub const MAX_SHAPE: f64 = 1000.0;
 pub const MIN_PF: f64 = 0.05;
 
 /// A quantity within `range` (inclusive, SI), or an error naming the range.
-fn in_range(ctx: &Ctx, n: &Node, path: &str, kind: Kind, range: (f64, f64)) -> Result<f64, Error> {
+fn in_range(
+    ctx: &Reader,
+    n: &Node,
+    path: &str,
+    kind: Kind,
+    range: (f64, f64),
+) -> Result<f64, Error> {
     let v = ctx.quantity(n, path, kind)?;
     if !(range.0..=range.1).contains(&v) {
         return Err(ctx.err(
@@ -1395,7 +1404,7 @@ fn in_range(ctx: &Ctx, n: &Node, path: &str, kind: Kind, range: (f64, f64)) -> R
     Ok(v)
 }
 
-pub(super) fn check_id(ctx: &Ctx, node: &Node, path: &str, id: &str) -> Result<(), Error> {
+pub(super) fn check_id(ctx: &Reader, node: &Node, path: &str, id: &str) -> Result<(), Error> {
     let ok = id.chars().next().is_some_and(|c| c.is_ascii_lowercase())
         && id
             .chars()
@@ -1436,7 +1445,7 @@ pub(super) fn check_id(ctx: &Ctx, node: &Node, path: &str, id: &str) -> Result<(
 
 /// Parses a wiring such as `L1-N`, `L2-L3` or `3P` and checks the supply has it.
 pub fn parse_wiring(
-    ctx: &Ctx,
+    ctx: &Reader,
     node: &Node,
     path: &str,
     supply: SupplyKind,
@@ -1486,7 +1495,7 @@ struct DrawDefaults {
     load: LoadKind,
 }
 
-fn decode_app_load(ctx: &Ctx, t: &Table, default: LoadKind) -> Result<LoadKind, Error> {
+fn decode_app_load(ctx: &Reader, t: &TableReader, default: LoadKind) -> Result<LoadKind, Error> {
     match t.opt("load") {
         None => Ok(default),
         Some(n) => {
@@ -1498,7 +1507,12 @@ fn decode_app_load(ctx: &Ctx, t: &Table, default: LoadKind) -> Result<LoadKind, 
     }
 }
 
-fn decode_zip(ctx: &Ctx, t: &Table, key: &'static str, default: Zip) -> Result<Zip, Error> {
+fn decode_zip(
+    ctx: &Reader,
+    t: &TableReader,
+    key: &'static str,
+    default: Zip,
+) -> Result<Zip, Error> {
     let Some(n) = t.opt(key) else {
         return Ok(default);
     };
@@ -1521,8 +1535,8 @@ fn decode_zip(ctx: &Ctx, t: &Table, key: &'static str, default: Zip) -> Result<Z
 
 /// Reads the keys of one draw (power, pf or q, wiring, load, zip, rated) from `t`.
 fn decode_draw_fields(
-    ctx: &Ctx,
-    t: &Table,
+    ctx: &Reader,
+    t: &TableReader,
     home: &Home,
     defaults: &DrawDefaults,
 ) -> Result<Draw, Error> {
@@ -1591,8 +1605,8 @@ fn decode_draw_fields(
 
 /// Reads a state's draws: either a `draws` array or the draw keys on the state itself.
 fn decode_draws(
-    ctx: &Ctx,
-    t: &Table,
+    ctx: &Reader,
+    t: &TableReader,
     home: &Home,
     defaults: &DrawDefaults,
 ) -> Result<Vec<Draw>, Error> {
@@ -1640,7 +1654,7 @@ fn decode_draws(
     }
 }
 
-fn decode_inrush(ctx: &Ctx, t: &Table) -> Result<Option<Inrush>, Error> {
+fn decode_inrush(ctx: &Reader, t: &TableReader) -> Result<Option<Inrush>, Error> {
     let Some(n) = t.opt("inrush") else {
         return Ok(None);
     };
@@ -1668,7 +1682,7 @@ fn decode_inrush(ctx: &Ctx, t: &Table) -> Result<Option<Inrush>, Error> {
     Ok(Some(Inrush { peak, decay_s }))
 }
 
-pub(crate) fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Error> {
+pub(crate) fn decode_dist(ctx: &Reader, node: &Node, path: &str) -> Result<Dist, Error> {
     if let Val::Str(_) = node.v {
         return Ok(Dist::Fixed {
             value_s: ctx.positive(node, path, Kind::Duration)?,
@@ -1727,7 +1741,7 @@ pub(crate) fn decode_dist(ctx: &Ctx, node: &Node, path: &str) -> Result<Dist, Er
     Ok(d)
 }
 
-pub(crate) fn parse_hours(ctx: &Ctx, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
+pub(crate) fn parse_hours(ctx: &Reader, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
     let help = "write hours = \"17-22\" (local hours 17:00 to 22:00), \"6-9,17-22\", or 24 weights [w0, …, w23]";
     let mut w = [0.0; 24];
     match &node.v {
@@ -1800,7 +1814,7 @@ pub(crate) fn parse_hours(ctx: &Ctx, node: &Node, path: &str) -> Result<Vec<f64>
     Ok(w.iter().map(|x| x / sum).collect())
 }
 
-fn decode_habit(ctx: &Ctx, node: &Node, path: &str) -> Result<Habit, Error> {
+fn decode_habit(ctx: &Reader, node: &Node, path: &str) -> Result<Habit, Error> {
     let t = ctx.table(node, path)?;
     let sn = t.req(
         "starts_per_day",
@@ -1843,7 +1857,7 @@ fn decode_habit(ctx: &Ctx, node: &Node, path: &str) -> Result<Habit, Error> {
     })
 }
 
-fn state_name(ctx: &Ctx, t: &Table, fallback: &str) -> Result<String, Error> {
+fn state_name(ctx: &Reader, t: &TableReader, fallback: &str) -> Result<String, Error> {
     let name = t.string("name")?.unwrap_or(fallback).to_string();
     if name.is_empty() || name.chars().count() > MAX_NAME_CHARS {
         let at = t.opt("name").unwrap_or(t.node);
@@ -1858,13 +1872,13 @@ fn state_name(ctx: &Ctx, t: &Table, fallback: &str) -> Result<String, Error> {
 }
 
 fn read_state<'n, 's, 'c>(
-    ctx: &'c Ctx<'s>,
+    ctx: &'c Reader<'s>,
     n: &'n Node,
     p: String,
     fallback: &str,
     home: &Home,
     defaults: &DrawDefaults,
-) -> Result<(State, Table<'n, 's, 'c>), Error> {
+) -> Result<(State, TableReader<'n, 's, 'c>), Error> {
     let st = ctx.table(n, &p)?;
     let name = state_name(ctx, &st, fallback)?;
     let draws = decode_draws(ctx, &st, home, defaults)?;
@@ -1880,7 +1894,7 @@ fn read_state<'n, 's, 'c>(
 }
 
 fn decode_appliance(
-    ctx: &Ctx,
+    ctx: &Reader,
     node: &Node,
     path: &str,
     home: &Home,
@@ -1892,7 +1906,7 @@ fn decode_appliance(
     let id = ctx.string(id_node, &t.path_of("id"))?.to_string();
     check_id(ctx, id_node, &t.path_of("id"), &id)?;
     let path = format!("appliance[{id}]");
-    let t = Table::rebase(t, path.clone());
+    let t = TableReader::rebase(t, path.clone());
     let label = t.string("label")?.unwrap_or(&id).to_string();
     let end_use = decode_end_use(ctx, &t)?;
     let wnode = t.req(
@@ -1907,255 +1921,353 @@ fn decode_appliance(
         "cycle, program, markov, steady, modulating or thermostat",
     )?;
     let bname = ctx.string(bnode, &t.path_of("behaviour"))?;
+    let reader = ApplianceReader {
+        ctx,
+        t: &t,
+        path: &path,
+        home,
+        defaults: &defaults,
+    };
+    let (mut behaviour, mut states) = reader.behaviour(bname, bnode)?;
+    decode_variation(ctx, &t, &mut behaviour, &mut states)?;
+    let on_threshold_w = match t.non_negative("on_threshold", Kind::Power)? {
+        Some(x) => x,
+        None => default_threshold(&states),
+    };
+    let alternatives = decode_alternatives(ctx, &t)?;
+    let when_dark_s = decode_when_dark(ctx, &t, &behaviour, home)?;
+    t.finish()?;
+    Ok(Appliance {
+        id,
+        label,
+        template,
+        end_use,
+        wiring,
+        behaviour,
+        states,
+        on_threshold_w,
+        alternatives,
+        role: Role::Load,
+        when_dark_s,
+    })
+}
 
-    let read_state = |n, p, fallback: String| read_state(ctx, n, p, &fallback, home, &defaults);
-    let states_list = |key: &'static str| -> Result<&[Node], Error> {
-        let n = t.req(key, "a list of states")?;
-        let l = ctx.array(n, &t.path_of(key))?;
+/// An appliance's table while its behaviour and states are read: each
+/// behaviour has its own method, and every state is read with the
+/// appliance's defaults.
+struct ApplianceReader<'a, 'n, 's, 'c> {
+    ctx: &'c Reader<'s>,
+    t: &'a TableReader<'n, 's, 'c>,
+    path: &'a str,
+    home: &'a Home,
+    defaults: &'a DrawDefaults,
+}
+
+/// A behaviour and the states it moves between, in the order it names them.
+type BehaviourStates = (Behaviour, Vec<State>);
+
+impl<'n, 's, 'c> ApplianceReader<'_, 'n, 's, 'c> {
+    fn behaviour(&self, name: &str, node: &Node) -> Result<BehaviourStates, Error> {
+        match name {
+            "cycle" => self.cycle(),
+            "program" => self.program(),
+            "markov" => self.markov(),
+            "steady" => self.steady(),
+            "modulating" => self.modulating(),
+            "thermostat" => self.thermostat(),
+            other => Err(self.ctx.err(
+                node,
+                &self.t.path_of("behaviour"),
+                format!("unknown behaviour \"{other}\""),
+                "write \"cycle\", \"program\", \"markov\", \"steady\", \"modulating\" or \"thermostat\"",
+            )),
+        }
+    }
+
+    fn state<'m>(
+        &self,
+        n: &'m Node,
+        p: String,
+        fallback: &str,
+    ) -> Result<(State, TableReader<'m, 's, 'c>), Error> {
+        read_state(self.ctx, n, p, fallback, self.home, self.defaults)
+    }
+
+    /// The list of states under `key`, which may not be empty.
+    fn list(&self, key: &'static str) -> Result<&'n [Node], Error> {
+        let n = self.t.req(key, "a list of states")?;
+        let l = self.ctx.array(n, &self.t.path_of(key))?;
         if l.is_empty() {
-            return Err(ctx.err(
+            return Err(self.ctx.err(
                 n,
-                &t.path_of(key),
+                &self.t.path_of(key),
                 format!("`{key}` is empty"),
                 "list at least one",
             ));
         }
         Ok(l)
-    };
+    }
 
-    let mut states: Vec<State> = Vec::new();
-    let mut behaviour = match bname {
-        "cycle" => {
-            let list = states_list("states")?;
-            let mut dwell = Vec::new();
-            for (i, n) in list.iter().enumerate() {
-                let (s, st) = read_state(n, format!("{path}.states[{i}]"), format!("s{i}"))?;
-                dwell.push(decode_dist(
-                    ctx,
-                    st.req("dwell", "how long it stays in this state")?,
-                    &st.path_of("dwell"),
-                )?);
-                st.finish()?;
-                states.push(s);
-            }
-            let extra = match t.opt("extra") {
-                None => None,
-                Some(n) => {
-                    let (s, st) = read_state(n, t.path_of("extra"), "extra".into())?;
-                    let length = decode_dist(
-                        ctx,
-                        st.req("length", "how long the extra state lasts")?,
-                        &st.path_of("length"),
-                    )?;
-                    let every_s = ctx.positive(
-                        st.req("every", "how often it comes, e.g. \"8 h\"")?,
-                        &st.path_of("every"),
-                        Kind::Duration,
-                    )?;
-                    st.finish()?;
-                    states.push(s);
-                    Some(Extra {
-                        state: states.len() - 1,
-                        length,
-                        every_s,
-                    })
-                }
-            };
-            Behaviour::Cycle { dwell, extra }
-        }
-        "program" => {
-            let habit = decode_habit(
-                ctx,
-                t.req(
-                    "use",
-                    "the usage habit, e.g. { starts_per_day = 0.6, hours = \"17-22\" }",
-                )?,
-                &t.path_of("use"),
-            )?;
-            states.push(State {
-                name: "off".into(),
-                draws: vec![],
-                inrush: None,
-            });
-            let mut lengths = Vec::new();
-            for (i, n) in states_list("phases")?.iter().enumerate() {
-                let (s, st) = read_state(n, format!("{path}.phases[{i}]"), format!("phase{i}"))?;
-                lengths.push(decode_dist(
-                    ctx,
-                    st.req("length", "how long this phase lasts")?,
-                    &st.path_of("length"),
-                )?);
-                st.finish()?;
-                states.push(s);
-            }
-            Behaviour::Program { habit, lengths }
-        }
-        "markov" => {
-            let list = states_list("states")?;
-            let mut dwell = Vec::new();
-            let mut next_nodes = Vec::new();
-            for (i, n) in list.iter().enumerate() {
-                let (s, st) = read_state(n, format!("{path}.states[{i}]"), format!("s{i}"))?;
-                dwell.push(decode_dist(
-                    ctx,
-                    st.req("dwell", "how long it stays in this state")?,
-                    &st.path_of("dwell"),
-                )?);
-                let nn = st.req(
-                    "next",
-                    "the probabilities of the next state, e.g. { idle = 0.7, busy = 0.3 }",
-                )?;
-                next_nodes.push((nn, st.path_of("next")));
-                st.finish()?;
-                states.push(s);
-            }
-            let mut next = Vec::new();
-            for (nn, p) in next_nodes {
-                let nt = ctx.table(nn, &p)?;
-                nt.all_keys_known();
-                let mut row = vec![0.0; states.len()];
-                for e in nt.entries() {
-                    let j = states.iter().position(|s| s.name == e.key).ok_or_else(|| {
-                        Error::at(
-                            ctx.sources,
-                            &e.key_src,
-                            &format!("{p}.{}", e.key),
-                            format!("no state named \"{}\"", e.key),
-                            format!(
-                                "states here: {}",
-                                states
-                                    .iter()
-                                    .map(|s| s.name.as_str())
-                                    .collect::<Vec<_>>()
-                                    .join(", ")
-                            ),
-                        )
-                    })?;
-                    let x = ctx.number(&e.node, &format!("{p}.{}", e.key))?;
-                    if !(0.0..=1.0).contains(&x) {
-                        return Err(ctx.err(
-                            &e.node,
-                            &format!("{p}.{}", e.key),
-                            format!("probability {x} is outside 0 … 1"),
-                            "write a probability between 0 and 1",
-                        ));
-                    }
-                    row[j] = x;
-                }
-                let sum: f64 = row.iter().sum();
-                if (sum - 1.0).abs() > 1e-6 {
-                    return Err(ctx.err(
-                        nn,
-                        &p,
-                        format!("the probabilities sum to {sum}, not 1"),
-                        "make the probabilities of the next state add up to 1",
-                    ));
-                }
-                next.push(row);
-                nt.finish()?;
-            }
-            Behaviour::Markov { dwell, next }
-        }
-        "steady" => {
-            let list = states_list("states")?;
-            if list.len() != 1 {
-                return Err(ctx.err(
-                    t.opt("states").unwrap(),
-                    &t.path_of("states"),
-                    "a steady appliance has exactly one state",
-                    "list one state, or use behaviour = \"cycle\" or \"markov\"",
-                ));
-            }
-            let (s, st) = read_state(&list[0], format!("{path}.states[0]"), "on".into())?;
+    /// A state's `dwell` (cycle and markov).
+    fn dwell(&self, st: &TableReader) -> Result<Dist, Error> {
+        decode_dist(
+            self.ctx,
+            st.req("dwell", "how long it stays in this state")?,
+            &st.path_of("dwell"),
+        )
+    }
+
+    fn cycle(&self) -> Result<BehaviourStates, Error> {
+        let path = self.path;
+        let mut states = Vec::new();
+        let mut dwell = Vec::new();
+        for (i, n) in self.list("states")?.iter().enumerate() {
+            let (s, st) = self.state(n, format!("{path}.states[{i}]"), &format!("s{i}"))?;
+            dwell.push(self.dwell(&st)?);
             st.finish()?;
             states.push(s);
-            let jitter = t.non_negative("jitter", Kind::Fraction)?.unwrap_or(0.0);
-            let every_s = t.positive("every", Kind::Duration)?.unwrap_or(60.0);
-            Behaviour::Steady { jitter, every_s }
         }
-        "modulating" => {
-            let list = states_list("states")?;
-            if list.len() > 2 {
-                return Err(ctx.err(
-                    t.opt("states").unwrap(),
-                    &t.path_of("states"),
-                    "a modulating appliance has one state (running) or two (resting, running)",
-                    "list the running state last",
-                ));
-            }
-            if list.len() == 1 {
-                states.push(State {
-                    name: "off".into(),
-                    draws: vec![],
-                    inrush: None,
-                });
-            }
-            for (i, n) in list.iter().enumerate() {
-                let (s, st) = read_state(
-                    n,
-                    format!("{path}.states[{i}]"),
-                    if i + 1 == list.len() { "run" } else { "rest" }.into(),
-                )?;
-                st.finish()?;
-                states.push(s);
-            }
-            let min = t.non_negative("min", Kind::Fraction)?.unwrap_or(0.3);
-            if min > 1.0 {
-                return Err(ctx.err(
-                    t.opt("min").unwrap(),
-                    &t.path_of("min"),
-                    "min is a share of full power and cannot exceed 100 %",
-                    "write e.g. min = \"30 %\"",
-                ));
-            }
-            let wander = t.non_negative("wander", Kind::Fraction)?.unwrap_or(0.05);
-            let every_s = t.positive("every", Kind::Duration)?.unwrap_or(60.0);
-            let session = match t.opt("use") {
-                None => None,
-                Some(u) => {
-                    let habit = decode_habit(ctx, u, &t.path_of("use"))?;
-                    let length = decode_dist(
-                        ctx,
-                        t.req("session", "how long a session lasts")?,
-                        &t.path_of("session"),
-                    )?;
-                    let taper_s = t.non_negative("taper", Kind::Duration)?.unwrap_or(0.0);
-                    Some(Session {
-                        habit,
-                        length,
-                        taper_s,
-                    })
-                }
-            };
-            Behaviour::Modulating {
-                min,
-                wander,
-                every_s,
-                session,
-            }
+        let extra = match self.t.opt("extra") {
+            None => None,
+            Some(n) => Some(self.extra(n, &mut states)?),
+        };
+        Ok((Behaviour::Cycle { dwell, extra }, states))
+    }
+
+    /// A cycle's extra state (a defrost, say), appended to `states`.
+    fn extra(&self, n: &Node, states: &mut Vec<State>) -> Result<Extra, Error> {
+        let (s, st) = self.state(n, self.t.path_of("extra"), "extra")?;
+        let length = decode_dist(
+            self.ctx,
+            st.req("length", "how long the extra state lasts")?,
+            &st.path_of("length"),
+        )?;
+        let every_s = self.ctx.positive(
+            st.req("every", "how often it comes, e.g. \"8 h\"")?,
+            &st.path_of("every"),
+            Kind::Duration,
+        )?;
+        st.finish()?;
+        states.push(s);
+        Ok(Extra {
+            state: states.len() - 1,
+            length,
+            every_s,
+        })
+    }
+
+    fn program(&self) -> Result<BehaviourStates, Error> {
+        let (ctx, t, path) = (self.ctx, self.t, self.path);
+        let habit = decode_habit(
+            ctx,
+            t.req(
+                "use",
+                "the usage habit, e.g. { starts_per_day = 0.6, hours = \"17-22\" }",
+            )?,
+            &t.path_of("use"),
+        )?;
+        let mut states = vec![off_state()];
+        let mut lengths = Vec::new();
+        for (i, n) in self.list("phases")?.iter().enumerate() {
+            let (s, st) = self.state(n, format!("{path}.phases[{i}]"), &format!("phase{i}"))?;
+            lengths.push(decode_dist(
+                ctx,
+                st.req("length", "how long this phase lasts")?,
+                &st.path_of("length"),
+            )?);
+            st.finish()?;
+            states.push(s);
         }
-        "thermostat" => {
-            let mut read = Vec::new();
-            for (i, n) in states_list("states")?.iter().enumerate() {
-                let (s, st) = read_state(n, format!("{path}.states[{i}]"), format!("s{i}"))?;
-                st.finish()?;
-                read.push(s);
-            }
-            let (role, ordered) = super::thermal::decode_role(ctx, &t, read)?;
-            states = ordered;
-            Behaviour::Thermostat { role }
+        Ok((Behaviour::Program { habit, lengths }, states))
+    }
+
+    fn markov(&self) -> Result<BehaviourStates, Error> {
+        let path = self.path;
+        let mut states = Vec::new();
+        let mut dwell = Vec::new();
+        let mut next_nodes = Vec::new();
+        for (i, n) in self.list("states")?.iter().enumerate() {
+            let (s, st) = self.state(n, format!("{path}.states[{i}]"), &format!("s{i}"))?;
+            dwell.push(self.dwell(&st)?);
+            let nn = st.req(
+                "next",
+                "the probabilities of the next state, e.g. { idle = 0.7, busy = 0.3 }",
+            )?;
+            next_nodes.push((nn, st.path_of("next")));
+            st.finish()?;
+            states.push(s);
         }
-        other => {
+        let mut next = Vec::new();
+        for (nn, p) in next_nodes {
+            next.push(next_row(self.ctx, nn, &p, &states)?);
+        }
+        Ok((Behaviour::Markov { dwell, next }, states))
+    }
+
+    fn steady(&self) -> Result<BehaviourStates, Error> {
+        let (ctx, t) = (self.ctx, self.t);
+        let list = self.list("states")?;
+        if list.len() != 1 {
             return Err(ctx.err(
-                bnode,
-                &t.path_of("behaviour"),
-                format!("unknown behaviour \"{other}\""),
-                "write \"cycle\", \"program\", \"markov\", \"steady\", \"modulating\" or \"thermostat\"",
+                t.opt("states").unwrap(),
+                &t.path_of("states"),
+                "a steady appliance has exactly one state",
+                "list one state, or use behaviour = \"cycle\" or \"markov\"",
             ));
         }
-    };
-    // Home-to-home variation (fleets): every draw's power, and every duration
-    // of the behaviour, multiplied.
+        let (s, st) = self.state(&list[0], format!("{}.states[0]", self.path), "on")?;
+        st.finish()?;
+        let jitter = t.non_negative("jitter", Kind::Fraction)?.unwrap_or(0.0);
+        let every_s = t.positive("every", Kind::Duration)?.unwrap_or(60.0);
+        Ok((Behaviour::Steady { jitter, every_s }, vec![s]))
+    }
+
+    fn modulating(&self) -> Result<BehaviourStates, Error> {
+        let t = self.t;
+        let states = self.modulating_states()?;
+        let min = t.non_negative("min", Kind::Fraction)?.unwrap_or(0.3);
+        if min > 1.0 {
+            return Err(self.ctx.err(
+                t.opt("min").unwrap(),
+                &t.path_of("min"),
+                "min is a share of full power and cannot exceed 100 %",
+                "write e.g. min = \"30 %\"",
+            ));
+        }
+        let wander = t.non_negative("wander", Kind::Fraction)?.unwrap_or(0.05);
+        let every_s = t.positive("every", Kind::Duration)?.unwrap_or(60.0);
+        let session = match t.opt("use") {
+            None => None,
+            Some(u) => Some(self.session(u)?),
+        };
+        let behaviour = Behaviour::Modulating {
+            min,
+            wander,
+            every_s,
+            session,
+        };
+        Ok((behaviour, states))
+    }
+
+    /// A modulating appliance's states: running, or resting and running
+    /// (with one state listed, an empty "off" comes first).
+    fn modulating_states(&self) -> Result<Vec<State>, Error> {
+        let list = self.list("states")?;
+        if list.len() > 2 {
+            return Err(self.ctx.err(
+                self.t.opt("states").unwrap(),
+                &self.t.path_of("states"),
+                "a modulating appliance has one state (running) or two (resting, running)",
+                "list the running state last",
+            ));
+        }
+        let mut states = Vec::new();
+        if list.len() == 1 {
+            states.push(off_state());
+        }
+        for (i, n) in list.iter().enumerate() {
+            let fallback = if i + 1 == list.len() { "run" } else { "rest" };
+            let (s, st) = self.state(n, format!("{}.states[{i}]", self.path), fallback)?;
+            st.finish()?;
+            states.push(s);
+        }
+        Ok(states)
+    }
+
+    /// A modulating appliance's sessions of use (`use`, `session`, `taper`).
+    fn session(&self, u: &Node) -> Result<Session, Error> {
+        let (ctx, t) = (self.ctx, self.t);
+        let habit = decode_habit(ctx, u, &t.path_of("use"))?;
+        let length = decode_dist(
+            ctx,
+            t.req("session", "how long a session lasts")?,
+            &t.path_of("session"),
+        )?;
+        let taper_s = t.non_negative("taper", Kind::Duration)?.unwrap_or(0.0);
+        Ok(Session {
+            habit,
+            length,
+            taper_s,
+        })
+    }
+
+    fn thermostat(&self) -> Result<BehaviourStates, Error> {
+        let mut read = Vec::new();
+        for (i, n) in self.list("states")?.iter().enumerate() {
+            let (s, st) = self.state(n, format!("{}.states[{i}]", self.path), &format!("s{i}"))?;
+            st.finish()?;
+            read.push(s);
+        }
+        let (role, ordered) = super::thermal::decode_role(self.ctx, self.t, read)?;
+        Ok((Behaviour::Thermostat { role }, ordered))
+    }
+}
+
+/// The state a program or a one-state modulating appliance rests in: no draw.
+fn off_state() -> State {
+    State {
+        name: "off".into(),
+        draws: vec![],
+        inrush: None,
+    }
+}
+
+/// One markov state's `next`: the probability of each state following it,
+/// in the order of `states`; they must add up to 1.
+fn next_row(ctx: &Reader, nn: &Node, p: &str, states: &[State]) -> Result<Vec<f64>, Error> {
+    let nt = ctx.table(nn, p)?;
+    nt.all_keys_known();
+    let mut row = vec![0.0; states.len()];
+    for e in nt.entries() {
+        let j = states.iter().position(|s| s.name == e.key).ok_or_else(|| {
+            Error::at(
+                ctx.sources,
+                &e.key_src,
+                &format!("{p}.{}", e.key),
+                format!("no state named \"{}\"", e.key),
+                format!(
+                    "states here: {}",
+                    states
+                        .iter()
+                        .map(|s| s.name.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            )
+        })?;
+        let x = ctx.number(&e.node, &format!("{p}.{}", e.key))?;
+        if !(0.0..=1.0).contains(&x) {
+            return Err(ctx.err(
+                &e.node,
+                &format!("{p}.{}", e.key),
+                format!("probability {x} is outside 0 … 1"),
+                "write a probability between 0 and 1",
+            ));
+        }
+        row[j] = x;
+    }
+    let sum: f64 = row.iter().sum();
+    if (sum - 1.0).abs() > 1e-6 {
+        return Err(ctx.err(
+            nn,
+            p,
+            format!("the probabilities sum to {sum}, not 1"),
+            "make the probabilities of the next state add up to 1",
+        ));
+    }
+    nt.finish()?;
+    Ok(row)
+}
+
+/// Home-to-home variation (fleets): `habit_shift` moves every habit's hours,
+/// `power_scale` multiplies every draw's power and `time_scale` every
+/// duration of the behaviour.
+fn decode_variation(
+    ctx: &Reader,
+    t: &TableReader,
+    behaviour: &mut Behaviour,
+    states: &mut [State],
+) -> Result<(), Error> {
     if let Some(n) = t.opt("habit_shift") {
         let hours = ctx.number(n, &t.path_of("habit_shift"))?;
         if hours.abs() > 12.0 {
@@ -2187,30 +2299,11 @@ fn decode_appliance(
                     d.q_var *= k;
                 }
             } else {
-                scale_times(&mut behaviour, k);
+                scale_times(behaviour, k);
             }
         }
     }
-    let on_threshold_w = match t.non_negative("on_threshold", Kind::Power)? {
-        Some(x) => x,
-        None => default_threshold(&states),
-    };
-    let alternatives = decode_alternatives(ctx, &t)?;
-    let when_dark_s = decode_when_dark(ctx, &t, &behaviour, home)?;
-    t.finish()?;
-    Ok(Appliance {
-        id,
-        label,
-        template,
-        end_use,
-        wiring,
-        behaviour,
-        states,
-        on_threshold_w,
-        alternatives,
-        role: Role::Load,
-        when_dark_s,
-    })
+    Ok(())
 }
 
 /// The longest `when_dark` margin: three hours either side of sunset and
@@ -2221,8 +2314,8 @@ pub const MAX_DARK_MARGIN_S: f64 = 3.0 * 3600.0;
 /// before sunset to that long after sunrise at the home's site; `false`
 /// turns off a template's.
 fn decode_when_dark(
-    ctx: &Ctx,
-    t: &Table,
+    ctx: &Reader,
+    t: &TableReader,
     behaviour: &Behaviour,
     home: &Home,
 ) -> Result<Option<f64>, Error> {
@@ -2269,7 +2362,7 @@ fn decode_when_dark(
 
 /// `alternatives = ["line-to-neutral", "three-phase"]`: the other kinds of
 /// connection real models of the appliance are sold for.
-fn decode_alternatives(ctx: &Ctx, t: &Table) -> Result<Vec<WiringKind>, Error> {
+fn decode_alternatives(ctx: &Reader, t: &TableReader) -> Result<Vec<WiringKind>, Error> {
     let Some(n) = t.opt("alternatives") else {
         return Ok(vec![]);
     };
@@ -2302,7 +2395,7 @@ fn decode_alternatives(ctx: &Ctx, t: &Table) -> Result<Vec<WiringKind>, Error> {
 }
 
 /// `end_use`: one of [`crate::scenario::model::END_USES`], "other" when absent.
-fn decode_end_use(ctx: &Ctx, t: &Table) -> Result<String, Error> {
+fn decode_end_use(ctx: &Reader, t: &TableReader) -> Result<String, Error> {
     let uses = crate::scenario::model::END_USES;
     match t.opt("end_use") {
         None => Ok("other".into()),

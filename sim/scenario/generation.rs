@@ -4,7 +4,7 @@
 
 use super::decode::{check_id, parse_wiring};
 use super::model::*;
-use super::reader::{Ctx, Table};
+use super::reader::{Reader, TableReader};
 use super::source::{Error, Node};
 use crate::sun::pvwatts;
 use crate::units::Kind;
@@ -56,7 +56,7 @@ fn state(home: &Home, wiring: Wiring, name: &str, p_w: f64) -> State {
 
 /// The inverter's wiring: as written, or the usual one for the supply (a
 /// 240 V inverter across L1-L2 in North America, three-phase in Europe).
-fn inverter_wiring(ctx: &Ctx, t: &Table, home: &Home) -> Result<Wiring, Error> {
+fn inverter_wiring(ctx: &Reader, t: &TableReader, home: &Home) -> Result<Wiring, Error> {
     match t.opt("wiring") {
         Some(n) => parse_wiring(ctx, n, &t.path_of("wiring"), home.supply),
         None => Ok(match home.supply {
@@ -67,7 +67,7 @@ fn inverter_wiring(ctx: &Ctx, t: &Table, home: &Home) -> Result<Wiring, Error> {
     }
 }
 
-fn id_of(ctx: &Ctx, t: &Table, default: &str) -> Result<String, Error> {
+fn id_of(ctx: &Reader, t: &TableReader, default: &str) -> Result<String, Error> {
     match t.opt("id") {
         Some(n) => {
             let id = ctx.string(n, &t.path_of("id"))?.to_string();
@@ -78,14 +78,14 @@ fn id_of(ctx: &Ctx, t: &Table, default: &str) -> Result<String, Error> {
     }
 }
 
-fn angle_or(t: &Table, key: &'static str, default: f64) -> Result<f64, Error> {
+fn angle_or(t: &TableReader, key: &'static str, default: f64) -> Result<f64, Error> {
     Ok(t.non_negative(key, Kind::Angle)?.unwrap_or(default))
 }
 
 /// A plain number within `lo ..= hi`, or the default.
 fn number_within(
-    ctx: &Ctx,
-    t: &Table,
+    ctx: &Reader,
+    t: &TableReader,
     key: &'static str,
     (lo, hi): (f64, f64),
     default: f64,
@@ -106,8 +106,8 @@ fn number_within(
 }
 
 fn choice<'a>(
-    ctx: &Ctx,
-    t: &Table,
+    ctx: &Reader,
+    t: &TableReader,
     key: &'static str,
     options: &[&'a str],
 ) -> Result<Option<&'a str>, Error> {
@@ -130,8 +130,12 @@ fn choice<'a>(
 }
 
 /// `[pv]`: the array, its inverter and where it is wired.
-pub fn decode_pv(ctx: &Ctx, node: &Node, home: &Home) -> Result<(Appliance, Vec<String>), Error> {
-    let t = Table::rebase(ctx.table(node, "pv")?, "pv".into());
+pub fn decode_pv(
+    ctx: &Reader,
+    node: &Node,
+    home: &Home,
+) -> Result<(Appliance, Vec<String>), Error> {
+    let t = TableReader::rebase(ctx.table(node, "pv")?, "pv".into());
     let site = home.site.ok_or_else(|| {
         ctx.err(
             node,
@@ -218,7 +222,7 @@ pub fn decode_pv(ctx: &Ctx, node: &Node, home: &Home) -> Result<(Appliance, Vec<
 }
 
 /// Tilt from horizontal, 0 … 90°, default 20°.
-fn number_or_angle_tilt(ctx: &Ctx, t: &Table) -> Result<f64, Error> {
+fn number_or_angle_tilt(ctx: &Reader, t: &TableReader) -> Result<f64, Error> {
     let tilt = angle_or(t, "tilt", 20.0)?;
     if tilt > 90.0 {
         return Err(ctx.err(
@@ -232,8 +236,8 @@ fn number_or_angle_tilt(ctx: &Ctx, t: &Table) -> Result<f64, Error> {
 }
 
 /// `[battery]`: capacity, power limit, efficiency, and where it is wired.
-pub fn decode_battery(ctx: &Ctx, node: &Node, home: &Home) -> Result<Appliance, Error> {
-    let t = Table::rebase(ctx.table(node, "battery")?, "battery".into());
+pub fn decode_battery(ctx: &Reader, node: &Node, home: &Home) -> Result<Appliance, Error> {
+    let t = TableReader::rebase(ctx.table(node, "battery")?, "battery".into());
     let id = id_of(ctx, &t, "battery")?;
     let label = t.string("label")?.unwrap_or("Home battery").to_string();
     let capacity = t.positive("capacity", Kind::Energy)?;

@@ -5,7 +5,7 @@
 //! and where its values come from; [`catalogue`] lists them.
 
 use super::decode::{load_str, RATED_MISMATCH, RATED_V};
-use super::reader::Ctx;
+use super::reader::Reader;
 use super::source::{parse_toml, Error, Node, Sources};
 use crate::units::{parse_quantity, Kind};
 
@@ -102,7 +102,7 @@ impl About {
 }
 
 /// Reads a template's `[template]` table (`voltage`, `source`).
-pub(crate) fn decode_about(ctx: &Ctx, node: &Node, name: &str) -> Result<About, Error> {
+pub(crate) fn decode_about(ctx: &Reader, node: &Node, name: &str) -> Result<About, Error> {
     let path = format!("{name}.template");
     let t = ctx.table(node, &path)?;
     let vnode = t.req(
@@ -198,7 +198,7 @@ fn entry(name: &str) -> Result<Entry, Error> {
         text.to_string(),
     );
     let root = parse_toml(&sources, file)?;
-    let ctx = Ctx { sources: &sources };
+    let ctx = Reader { sources: &sources };
     let about_node = ctx
         .table(&root, name)?
         .req("template", "the [template] table: voltage and source")?;

@@ -10,11 +10,13 @@ use std::cell::RefCell;
 /// them the arithmetic downstream loses its digits or overflows).
 pub const PLAIN_LIMITS: (f64, f64) = (1e-9, 1e6);
 
-pub struct Ctx<'s> {
+/// Reads values out of the trees of the scenario's source files; its errors
+/// point at the place in those files.
+pub struct Reader<'s> {
     pub sources: &'s Sources,
 }
 
-impl<'s> Ctx<'s> {
+impl<'s> Reader<'s> {
     pub fn err(
         &self,
         node: &Node,
@@ -25,9 +27,9 @@ impl<'s> Ctx<'s> {
         Error::at(self.sources, &node.src, path, msg, help)
     }
 
-    pub fn table<'n>(&self, node: &'n Node, path: &str) -> Result<Table<'n, 's, '_>, Error> {
+    pub fn table<'n>(&self, node: &'n Node, path: &str) -> Result<TableReader<'n, 's, '_>, Error> {
         match &node.v {
-            Val::Table(entries) => Ok(Table {
+            Val::Table(entries) => Ok(TableReader {
                 ctx: self,
                 node,
                 entries,
@@ -180,15 +182,15 @@ impl<'s> Ctx<'s> {
 }
 
 /// A table being read; `finish` reports the keys nobody asked for.
-pub struct Table<'n, 's, 'c> {
-    pub ctx: &'c Ctx<'s>,
+pub struct TableReader<'n, 's, 'c> {
+    pub ctx: &'c Reader<'s>,
     pub node: &'n Node,
     entries: &'n [Entry],
     pub path: String,
     asked: RefCell<Vec<&'static str>>,
 }
 
-impl<'n, 's, 'c> Table<'n, 's, 'c> {
+impl<'n, 's, 'c> TableReader<'n, 's, 'c> {
     pub fn path_of(&self, key: &str) -> String {
         if self.path.is_empty() {
             key.to_string()
@@ -199,7 +201,7 @@ impl<'n, 's, 'c> Table<'n, 's, 'c> {
 
     /// The same table under another path (once the appliance id is known).
     pub fn rebase(self, path: String) -> Self {
-        Table { path, ..self }
+        TableReader { path, ..self }
     }
 
     pub fn opt(&self, key: &'static str) -> Option<&'n Node> {

@@ -3,7 +3,7 @@
 
 use super::decode::parse_hours;
 use super::model::{Appliance, Reference, Run, State};
-use super::reader::{Ctx, Table};
+use super::reader::{Reader, TableReader};
 use super::source::{Error, Node, Val};
 use crate::thermal::equipment::{HeatPump, Role};
 use crate::thermal::Building;
@@ -31,7 +31,7 @@ fn climate_names() -> String {
 }
 
 /// `[weather]`: a named climate, climate figures, or a file.
-pub fn decode_weather(ctx: &Ctx, node: &Node, run: &Run) -> Result<WeatherSpec, Error> {
+pub fn decode_weather(ctx: &Reader, node: &Node, run: &Run) -> Result<WeatherSpec, Error> {
     let t = ctx.table(node, "weather")?;
     if let Some(f) = t.opt("file") {
         let spec = decode_file(ctx, f, run)?;
@@ -94,7 +94,7 @@ fn default_figures() -> Climate {
     }
 }
 
-fn decode_means(ctx: &Ctx, t: &Table, c: &mut Climate, named: bool) -> Result<(), Error> {
+fn decode_means(ctx: &Reader, t: &TableReader, c: &mut Climate, named: bool) -> Result<(), Error> {
     if let Some(n) = t.opt("monthly") {
         let list = ctx.array(n, "weather.monthly")?;
         if list.len() != 12 {
@@ -132,7 +132,7 @@ fn decode_means(ctx: &Ctx, t: &Table, c: &mut Climate, named: bool) -> Result<()
     }
 }
 
-fn month(ctx: &Ctx, n: &Node) -> Result<usize, Error> {
+fn month(ctx: &Reader, n: &Node) -> Result<usize, Error> {
     let s = ctx.string(n, "weather.coldest")?;
     MONTHS
         .iter()
@@ -148,7 +148,7 @@ fn month(ctx: &Ctx, n: &Node) -> Result<usize, Error> {
 }
 
 /// A temperature within the extremes measured at the surface.
-pub fn temperature(ctx: &Ctx, n: &Node, path: &str) -> Result<f64, Error> {
+pub fn temperature(ctx: &Reader, n: &Node, path: &str) -> Result<f64, Error> {
     let v = ctx.quantity(n, path, Kind::Temperature)?;
     if !(-90.0..=60.0).contains(&v) {
         return Err(ctx.err(
@@ -161,7 +161,7 @@ pub fn temperature(ctx: &Ctx, n: &Node, path: &str) -> Result<f64, Error> {
     Ok(v)
 }
 
-fn decode_file(ctx: &Ctx, f: &Node, run: &Run) -> Result<WeatherSpec, Error> {
+fn decode_file(ctx: &Reader, f: &Node, run: &Run) -> Result<WeatherSpec, Error> {
     let name = ctx.string(f, "weather.file")?;
     let base = ctx
         .sources
@@ -218,7 +218,7 @@ fn decode_file(ctx: &Ctx, f: &Node, run: &Run) -> Result<WeatherSpec, Error> {
 }
 
 /// `[building]`: the envelope and the thermostat.
-pub fn decode_building(ctx: &Ctx, node: &Node) -> Result<Building, Error> {
+pub fn decode_building(ctx: &Reader, node: &Node) -> Result<Building, Error> {
     let t = ctx.table(node, "building")?;
     let ua_w_k = ctx.positive(
         t.req("ua", "the heat loss coefficient, e.g. \"250 W/K\"")?,
@@ -280,7 +280,7 @@ struct Setpoints {
     setback: Option<([bool; 24], f64)>,
 }
 
-fn decode_setpoints(ctx: &Ctx, t: &Table, node: &Node) -> Result<Setpoints, Error> {
+fn decode_setpoints(ctx: &Reader, t: &TableReader, node: &Node) -> Result<Setpoints, Error> {
     let heating_c = match t.opt("heating") {
         Some(n) => temperature(ctx, n, "building.heating")?,
         None => 20.0,
@@ -329,7 +329,7 @@ fn decode_setpoints(ctx: &Ctx, t: &Table, node: &Node) -> Result<Setpoints, Erro
 }
 
 /// A share 0 … 1 under `key`, or `default`.
-fn share(ctx: &Ctx, t: &Table, key: &'static str, default: f64) -> Result<f64, Error> {
+fn share(ctx: &Reader, t: &TableReader, key: &'static str, default: f64) -> Result<f64, Error> {
     match t.opt(key) {
         Some(n) => {
             let v = ctx.quantity(n, &t.path_of(key), Kind::Fraction)?;
@@ -361,7 +361,11 @@ fn needed(role: &str) -> Option<(&'static [&'static str], &'static [&'static str
 
 /// The role of a thermostatic appliance and its states in simulator order:
 /// off, then the role's states (a heat pump: heating, defrost, cooling).
-pub fn decode_role(ctx: &Ctx, t: &Table, states: Vec<State>) -> Result<(Role, Vec<State>), Error> {
+pub fn decode_role(
+    ctx: &Reader,
+    t: &TableReader,
+    states: Vec<State>,
+) -> Result<(Role, Vec<State>), Error> {
     let rnode = t.req(
         "role",
         "heat-pump, air-conditioner, resistance, backup, furnace or blower",
@@ -419,8 +423,8 @@ pub fn decode_role(ctx: &Ctx, t: &Table, states: Vec<State>) -> Result<(Role, Ve
 
 /// The role's ratings; a heat pump's defrost (and cooling) states appended to `out`.
 fn role_of(
-    ctx: &Ctx,
-    t: &Table,
+    ctx: &Reader,
+    t: &TableReader,
     rname: &str,
     states: &[State],
     out: &mut Vec<State>,
@@ -466,7 +470,7 @@ fn role_of(
     })
 }
 
-fn cop(ctx: &Ctx, t: &Table, key: &'static str) -> Result<Option<f64>, Error> {
+fn cop(ctx: &Reader, t: &TableReader, key: &'static str) -> Result<Option<f64>, Error> {
     match t.opt(key) {
         Some(n) => {
             let v = ctx.number(n, &t.path_of(key))?;
@@ -484,7 +488,7 @@ fn cop(ctx: &Ctx, t: &Table, key: &'static str) -> Result<Option<f64>, Error> {
     }
 }
 
-fn heat_pump(ctx: &Ctx, t: &Table) -> Result<HeatPump, Error> {
+fn heat_pump(ctx: &Reader, t: &TableReader) -> Result<HeatPump, Error> {
     let low_capacity = share(ctx, t, "low_capacity", 0.6)?;
     let sink_c = match t.opt("sink") {
         Some(n) => temperature(ctx, n, &t.path_of("sink"))?,
@@ -521,7 +525,7 @@ fn heat_pump(ctx: &Ctx, t: &Table) -> Result<HeatPump, Error> {
 /// `[[reference]]`: published annual energy figures, each naming the loads
 /// it covers (none: the whole home) and its source.
 pub fn decode_references(
-    ctx: &Ctx,
+    ctx: &Reader,
     node: &Node,
     apps: &[Appliance],
     unmetered: &[Appliance],

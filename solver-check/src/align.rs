@@ -9,7 +9,7 @@ use std::path::Path;
 
 /// The scored intervals and where they sit in the truth and the estimate.
 #[derive(Clone, Debug, PartialEq)]
-pub struct Plan {
+pub struct Alignment {
     /// Start of the first scored interval, ms since 1970-01-01 UTC.
     pub start_ms: i64,
     /// Length of a scored interval, ms (the coarser of truth's and the estimate's).
@@ -89,7 +89,7 @@ pub fn spacing(path: &Path, t: &[i64], fallback_ms: i64) -> Result<i64, TableErr
 
 /// Plans the comparison of an estimate (times `est`) with truth rows
 /// starting at `t0` every `dt` ms (`n` rows).
-pub fn plan(path: &Path, est: &[i64], t0: i64, dt: i64, n: usize) -> Result<Plan, TableError> {
+pub fn plan(path: &Path, est: &[i64], t0: i64, dt: i64, n: usize) -> Result<Alignment, TableError> {
     let de = spacing(path, est, dt)?;
     plan_from(path, est.first().copied(), de, est.len(), t0, dt, n)
 }
@@ -103,7 +103,7 @@ pub fn plan_from(
     t0: i64,
     dt: i64,
     n: usize,
-) -> Result<Plan, TableError> {
+) -> Result<Alignment, TableError> {
     let t_end = t0 + n as i64 * dt;
     let iso = |ms: i64| {
         jiff::Timestamp::from_millisecond(ms)
@@ -166,7 +166,7 @@ pub fn plan_from(
     if rows == 0 {
         return Err(none());
     }
-    Ok(Plan {
+    Ok(Alignment {
         start_ms: first,
         interval_ms: interval,
         rows,

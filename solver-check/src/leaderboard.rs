@@ -6,7 +6,7 @@
 use crate::compare::compare;
 use crate::contract::LEADERBOARD_FORMAT;
 use crate::render::{aligned, Render};
-use crate::roundtrip::Outcome;
+use crate::roundtrip::SolverRun;
 use crate::score::Report;
 use serde_json::{json, Value};
 
@@ -48,7 +48,7 @@ fn mae_interval(
 }
 
 /// Ranks the outcomes by overall MAE (lower is better; ties keep the order given).
-pub fn rank(outcomes: Vec<Outcome>, resamples: usize, seed: u64) -> Board {
+pub fn rank(outcomes: Vec<SolverRun>, resamples: usize, seed: u64) -> Board {
     let mut ranked = Vec::new();
     let mut failed = Vec::new();
     for o in outcomes {
@@ -238,7 +238,7 @@ pub fn leftovers_note(n: usize) -> String {
 /// report (JSON: the score report with a `solver` object).
 pub struct SolverReport<'a> {
     /// The solver's run.
-    pub outcome: &'a Outcome,
+    pub outcome: &'a SolverRun,
     /// Its score.
     pub report: &'a Report,
 }
@@ -275,6 +275,6 @@ impl Render for SolverReport<'_> {
 }
 
 /// Why a solver got no score, with where to look (the command exits 1).
-pub fn failure_message(o: &Outcome, f: &crate::roundtrip::Failure) -> String {
+pub fn failure_message(o: &SolverRun, f: &crate::roundtrip::Failure) -> String {
     format!("error: solver {}: {f}\n  --> task {}, log {} ({}{})\n  = help: run the solver by hand on the task folder to see what went wrong; no score was given", o.solver, o.task_dir.display(), o.log.display(), o.confinement, leftovers_note(o.leftovers))
 }

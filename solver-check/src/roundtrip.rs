@@ -212,7 +212,7 @@ impl std::fmt::Display for Failure {
 }
 
 /// One solver's run on a prepared task.
-pub struct Outcome {
+pub struct SolverRun {
     /// The task folder the solver read.
     pub task_dir: PathBuf,
     /// The scored truth (a dataset of the test rows only).
@@ -521,7 +521,7 @@ pub fn run(
     solver: &Solver,
     timeout: Duration,
     estimate_name: &str,
-) -> std::io::Result<Outcome> {
+) -> std::io::Result<SolverRun> {
     let p = prepare(dataset, work, split, reveal, estimate_name)?;
     run_solver(&p, solver, work, timeout, &[])
 }
@@ -535,7 +535,7 @@ pub fn run_solver(
     slot: &Path,
     timeout: Duration,
     extra_read: &[PathBuf],
-) -> std::io::Result<Outcome> {
+) -> std::io::Result<SolverRun> {
     let out_dir = slot.join("solver");
     let _ = std::fs::remove_dir_all(&out_dir);
     std::fs::create_dir_all(out_dir.join("scratch"))?;
@@ -564,7 +564,7 @@ pub fn run_solver(
     };
     let seconds = started.elapsed().as_secs_f64();
     let result = ran.and_then(|_| score_checked(&p.truth_dir, &p.truth_sha, &estimate, &log));
-    Ok(Outcome {
+    Ok(SolverRun {
         task_dir: p.task_dir.clone(),
         truth_dir: p.truth_dir.clone(),
         estimate,

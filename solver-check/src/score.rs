@@ -1,7 +1,7 @@
 //! `loadloom score`: an estimate against a dataset's truth, per appliance,
 //! per conductor and overall, as a table, JSON (`loadloom-score/1`) or Markdown.
 
-use crate::align::{exact_cover, plan_from, Plan, TimeScan};
+use crate::align::{exact_cover, plan_from, Alignment, TimeScan};
 use crate::contract::columns;
 use crate::contract::SCORE_FORMAT;
 use crate::dataset::{Dataset, DatasetError};
@@ -91,7 +91,7 @@ pub struct Report {
     /// The estimate file, as given.
     pub estimate: String,
     /// The scored intervals and how truth and estimate rows map onto them.
-    pub plan: Plan,
+    pub plan: Alignment,
     /// Rows of the truth table (the share scored is `plan.rows` over these, at
     /// equal intervals).
     pub truth_rows: usize,
@@ -117,7 +117,7 @@ struct Days {
 }
 
 impl Days {
-    fn new(plan: &Plan, tz: &str) -> Days {
+    fn new(plan: &Alignment, tz: &str) -> Days {
         let tz = jiff::tz::TimeZone::get(tz).unwrap_or(jiff::tz::TimeZone::UTC);
         let mut d = Days {
             tz,

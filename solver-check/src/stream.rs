@@ -118,102 +118,8 @@ fn open(path: &Path) -> Result<std::fs::File, TableError> {
 /// Reads the schema (Parquet) or header (CSV) of `path`.
 pub fn header(path: &Path) -> Result<Header, TableError> {
     match path.extension().and_then(|e| e.to_str()) {
-        Some("parquet") => {
-            let file = open(path)?;
-            let b = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| {
-                table_err(
-                    path,
-                    None,
-                    None,
-                    format!("not a readable Parquet file: {e}"),
-                    "write it with pyarrow, pandas or polars (to_parquet)",
-                )
-            })?;
-            let schema = b.schema();
-            let ti = schema.index_of(columns::TIME).map_err(|_| {
-                table_err(
-                    path,
-                    Some(columns::TIME),
-                    None,
-                    "there is no `time` column",
-                    "add a `time` column (timestamps of the interval starts)",
-                )
-            })?;
-            let (unit, tz) = match schema.field(ti).data_type() {
-                DataType::Timestamp(u, tz) => (*u, tz.as_ref().map(|t| t.to_string())),
-                other => return Err(table_err(
-                    path,
-                    Some(columns::TIME),
-                    None,
-                    format!("`time` is {other}, not a timestamp"),
-                    "store `time` as a timestamp with its time zone (pandas: tz-aware datetime64)",
-                )),
-            };
-            let columns = schema
-                .fields()
-                .iter()
-                .enumerate()
-                .filter(|(i, _)| *i != ti)
-                .map(|(_, f)| {
-                    (
-                        f.name().clone(),
-                        matches!(
-                            f.data_type(),
-                            DataType::Utf8 | DataType::LargeUtf8 | DataType::Dictionary(_, _)
-                        ),
-                    )
-                })
-                .collect();
-            Ok(Header {
-                file: path.to_path_buf(),
-                columns,
-                time_zone: tz,
-                zone_hint: None,
-                naive_zone: None,
-                kind: Kind::Parquet {
-                    time_index: ti,
-                    unit,
-                },
-            })
-        }
-        Some("csv") => {
-            let mut r = csv_reader(path)?;
-            let header: Vec<String> = r
-                .headers()
-                .map_err(|e| csv_err(path, e))?
-                .iter()
-                .map(|h| h.trim().trim_start_matches('\u{feff}').to_string())
-                .collect();
-            let ti = header
-                .iter()
-                .position(|h| h == columns::TIME)
-                .ok_or_else(|| {
-                    table_err(
-                        path,
-                        Some(columns::TIME),
-                        None,
-                        "there is no `time` column",
-                        "add a `time` column of ISO-8601 times with their UTC offset",
-                    )
-                })?;
-            let columns = header
-                .iter()
-                .enumerate()
-                .filter(|(i, _)| *i != ti)
-                .map(|(_, h)| (h.clone(), false))
-                .collect();
-            Ok(Header {
-                file: path.to_path_buf(),
-                columns,
-                time_zone: None,
-                zone_hint: None,
-                naive_zone: None,
-                kind: Kind::Csv {
-                    time_index: ti,
-                    header,
-                },
-            })
-        }
+        Some("parquet") => parquet_header(path),
+        Some("csv") => csv_header(path),
         _ => Err(table_err(
             path,
             None,
@@ -222,6 +128,108 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
             "give a .parquet or .csv file",
         )),
     }
+}
+
+/// A Parquet file's columns (text or not) and its time column's unit and zone.
+fn parquet_header(path: &Path) -> Result<Header, TableError> {
+    let file = open(path)?;
+    let b = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| {
+        table_err(
+            path,
+            None,
+            None,
+            format!("not a readable Parquet file: {e}"),
+            "write it with pyarrow, pandas or polars (to_parquet)",
+        )
+    })?;
+    let schema = b.schema();
+    let ti = schema.index_of(columns::TIME).map_err(|_| {
+        table_err(
+            path,
+            Some(columns::TIME),
+            None,
+            "there is no `time` column",
+            "add a `time` column (timestamps of the interval starts)",
+        )
+    })?;
+    let (unit, tz) = match schema.field(ti).data_type() {
+        DataType::Timestamp(u, tz) => (*u, tz.as_ref().map(|t| t.to_string())),
+        other => {
+            return Err(table_err(
+                path,
+                Some(columns::TIME),
+                None,
+                format!("`time` is {other}, not a timestamp"),
+                "store `time` as a timestamp with its time zone (pandas: tz-aware datetime64)",
+            ))
+        }
+    };
+    let columns = schema
+        .fields()
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| *i != ti)
+        .map(|(_, f)| {
+            (
+                f.name().clone(),
+                matches!(
+                    f.data_type(),
+                    DataType::Utf8 | DataType::LargeUtf8 | DataType::Dictionary(_, _)
+                ),
+            )
+        })
+        .collect();
+    Ok(Header {
+        file: path.to_path_buf(),
+        columns,
+        time_zone: tz,
+        zone_hint: None,
+        naive_zone: None,
+        kind: Kind::Parquet {
+            time_index: ti,
+            unit,
+        },
+    })
+}
+
+/// A CSV file's header; every column but `time` read as numbers.
+fn csv_header(path: &Path) -> Result<Header, TableError> {
+    let mut r = csv_reader(path)?;
+    let header: Vec<String> = r
+        .headers()
+        .map_err(|e| csv_err(path, e))?
+        .iter()
+        .map(|h| h.trim().trim_start_matches('\u{feff}').to_string())
+        .collect();
+    let ti = header
+        .iter()
+        .position(|h| h == columns::TIME)
+        .ok_or_else(|| {
+            table_err(
+                path,
+                Some(columns::TIME),
+                None,
+                "there is no `time` column",
+                "add a `time` column of ISO-8601 times with their UTC offset",
+            )
+        })?;
+    let columns = header
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| *i != ti)
+        .map(|(_, h)| (h.clone(), false))
+        .collect();
+    Ok(Header {
+        file: path.to_path_buf(),
+        columns,
+        time_zone: None,
+        zone_hint: None,
+        naive_zone: None,
+        kind: Kind::Csv {
+            time_index: ti,
+            header,
+        },
+    })
 }
 
 /// A header over a table already in memory (a long estimate turned wide).
@@ -524,89 +532,16 @@ impl Stream<'_> {
                 let Kind::Parquet { unit, .. } = &self.h.kind else {
                     unreachable!()
                 };
-                let t = b.column(pos[0]);
-                if t.null_count() > 0 {
-                    let r = (0..t.len()).find(|&r| t.is_null(r)).unwrap();
-                    return Err(table_err(
-                        path,
-                        Some(columns::TIME),
-                        Some(first + r),
-                        "a time is missing (null)",
-                        "give every row its time",
-                    ));
-                }
-                let mut cols = Vec::with_capacity(self.cols.len());
-                for (j, name) in self.cols.iter().enumerate() {
-                    let a = b.column(pos[j + 1]);
-                    let v: Vec<f64> = match a.data_type() {
-                        // Without nulls, straight from the values buffer (the hot path).
-                        DataType::Float64 if a.null_count() == 0 => {
-                            a.as_primitive::<Float64Type>().values().to_vec()
-                        }
-                        DataType::Float32 if a.null_count() == 0 => a
-                            .as_primitive::<Float32Type>()
-                            .values()
-                            .iter()
-                            .map(|&x| x as f64)
-                            .collect(),
-                        DataType::Float64 => a
-                            .as_primitive::<Float64Type>()
-                            .iter()
-                            .map(|v| v.unwrap_or(f64::NAN))
-                            .collect(),
-                        DataType::Float32 => a
-                            .as_primitive::<Float32Type>()
-                            .iter()
-                            .map(|v| v.map_or(f64::NAN, |x| x as f64))
-                            .collect(),
-                        DataType::Int64 => a
-                            .as_primitive::<Int64Type>()
-                            .iter()
-                            .map(|v| v.map_or(f64::NAN, |x| x as f64))
-                            .collect(),
-                        DataType::Int32 => a
-                            .as_primitive::<Int32Type>()
-                            .iter()
-                            .map(|v| v.map_or(f64::NAN, |x| x as f64))
-                            .collect(),
-                        DataType::Boolean => a
-                            .as_boolean()
-                            .iter()
-                            .map(|v| v.map_or(f64::NAN, |b| b as u8 as f64))
-                            .collect(),
-                        other => {
-                            return Err(table_err(
-                                path,
-                                Some(name),
-                                None,
-                                format!("column type {other} is not numeric"),
-                                "store powers as float32 or float64",
-                            ))
-                        }
-                    };
-                    cols.push(v);
-                }
-                let n = self.cols.len();
-                let texts = self
-                    .texts
-                    .iter()
-                    .enumerate()
-                    .map(|(j, name)| texts_of(b.column(pos[1 + n + j]), path, name))
-                    .collect::<Result<Vec<_>, _>>()?;
-                let mut time = time_ms(t, *unit);
+                let mut batch =
+                    parquet_batch(path, first, &b, pos, *unit, &self.cols, &self.texts)?;
                 if let (None, Some(clock)) = (&self.h.time_zone, self.clock.as_mut()) {
-                    for (k, ms) in time.iter_mut().enumerate() {
+                    for (k, ms) in batch.time_ms.iter_mut().enumerate() {
                         *ms = clock.instant_of_naive_ms(*ms).map_err(|m| {
                             table_err(path, Some(columns::TIME), Some(first + k), m, NAIVE_HELP)
                         })?;
                     }
                 }
-                Batch {
-                    first,
-                    time_ms: time,
-                    cols,
-                    texts,
-                }
+                batch
             }
             Inner::Csv(r, rec, idx) => {
                 let naive = match self.clock.as_mut() {
@@ -629,45 +564,148 @@ impl Stream<'_> {
                 let Kind::Mem(t) = &self.h.kind else {
                     unreachable!()
                 };
-                if first >= t.time_ms.len() {
+                let Some(batch) = mem_batch(t, path, first, &self.cols, &self.texts)? else {
                     return Ok(None);
-                }
-                let end = (first + BATCH_ROWS).min(t.time_ms.len());
-                let cols = self
-                    .cols
-                    .iter()
-                    .map(|c| {
-                        t.num(c).map(|v| v[first..end].to_vec()).ok_or_else(|| {
-                            table_err(
-                                path,
-                                Some(c),
-                                None,
-                                "not a numeric column",
-                                "store powers as numbers in W",
-                            )
-                        })
-                    })
-                    .collect::<Result<Vec<_>, _>>()?;
-                let texts = self
-                    .texts
-                    .iter()
-                    .map(|c| {
-                        t.text(c)
-                            .map(|v| v[first..end].to_vec())
-                            .unwrap_or_default()
-                    })
-                    .collect();
-                Batch {
-                    first,
-                    time_ms: t.time_ms[first..end].to_vec(),
-                    cols,
-                    texts,
-                }
+                };
+                batch
             }
         };
         self.row += batch.time_ms.len();
         Ok(Some(batch))
     }
+}
+
+/// One Parquet record batch as a [`Batch`]: `pos` holds where time, the
+/// numeric columns `cols` and the text columns `texts` sit in it.
+fn parquet_batch(
+    path: &Path,
+    first: usize,
+    b: &arrow_array::RecordBatch,
+    pos: &[usize],
+    unit: TimeUnit,
+    cols: &[String],
+    texts: &[String],
+) -> Result<Batch, TableError> {
+    let t = b.column(pos[0]);
+    if t.null_count() > 0 {
+        let r = (0..t.len()).find(|&r| t.is_null(r)).unwrap();
+        return Err(table_err(
+            path,
+            Some(columns::TIME),
+            Some(first + r),
+            "a time is missing (null)",
+            "give every row its time",
+        ));
+    }
+    let mut numbers = Vec::with_capacity(cols.len());
+    for (j, name) in cols.iter().enumerate() {
+        numbers.push(numbers_of(b.column(pos[j + 1]), path, name)?);
+    }
+    let n = cols.len();
+    let texts = texts
+        .iter()
+        .enumerate()
+        .map(|(j, name)| texts_of(b.column(pos[1 + n + j]), path, name))
+        .collect::<Result<Vec<_>, _>>()?;
+    Ok(Batch {
+        first,
+        time_ms: time_ms(t, unit),
+        cols: numbers,
+        texts,
+    })
+}
+
+/// A numeric column of a Parquet batch as f64 (nulls as NaN, booleans 0/1).
+fn numbers_of(a: &ArrayRef, path: &Path, name: &str) -> Result<Vec<f64>, TableError> {
+    Ok(match a.data_type() {
+        // Without nulls, straight from the values buffer (the hot path).
+        DataType::Float64 if a.null_count() == 0 => {
+            a.as_primitive::<Float64Type>().values().to_vec()
+        }
+        DataType::Float32 if a.null_count() == 0 => a
+            .as_primitive::<Float32Type>()
+            .values()
+            .iter()
+            .map(|&x| x as f64)
+            .collect(),
+        DataType::Float64 => a
+            .as_primitive::<Float64Type>()
+            .iter()
+            .map(|v| v.unwrap_or(f64::NAN))
+            .collect(),
+        DataType::Float32 => a
+            .as_primitive::<Float32Type>()
+            .iter()
+            .map(|v| v.map_or(f64::NAN, |x| x as f64))
+            .collect(),
+        DataType::Int64 => a
+            .as_primitive::<Int64Type>()
+            .iter()
+            .map(|v| v.map_or(f64::NAN, |x| x as f64))
+            .collect(),
+        DataType::Int32 => a
+            .as_primitive::<Int32Type>()
+            .iter()
+            .map(|v| v.map_or(f64::NAN, |x| x as f64))
+            .collect(),
+        DataType::Boolean => a
+            .as_boolean()
+            .iter()
+            .map(|v| v.map_or(f64::NAN, |b| b as u8 as f64))
+            .collect(),
+        other => {
+            return Err(table_err(
+                path,
+                Some(name),
+                None,
+                format!("column type {other} is not numeric"),
+                "store powers as float32 or float64",
+            ))
+        }
+    })
+}
+
+/// Rows `first ..` (a batch's worth) of a table in memory, or None past
+/// its end.
+fn mem_batch(
+    t: &Table,
+    path: &Path,
+    first: usize,
+    cols: &[String],
+    texts: &[String],
+) -> Result<Option<Batch>, TableError> {
+    if first >= t.time_ms.len() {
+        return Ok(None);
+    }
+    let end = (first + BATCH_ROWS).min(t.time_ms.len());
+    let numbers = cols
+        .iter()
+        .map(|c| {
+            t.num(c).map(|v| v[first..end].to_vec()).ok_or_else(|| {
+                table_err(
+                    path,
+                    Some(c),
+                    None,
+                    "not a numeric column",
+                    "store powers as numbers in W",
+                )
+            })
+        })
+        .collect::<Result<Vec<_>, _>>()?;
+    let texts = texts
+        .iter()
+        .map(|c| {
+            t.text(c)
+                .map(|v| v[first..end].to_vec())
+                .unwrap_or_default()
+        })
+        .collect();
+    Ok(Some(Batch {
+        first,
+        time_ms: t.time_ms[first..end].to_vec(),
+        cols: numbers,
+        texts,
+    }))
 }
 
 /// Where a cursor gets its batches: a stream read here, or one read by
