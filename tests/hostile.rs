@@ -93,94 +93,97 @@ fn assert_refused_in(base: &str, name: &str, from: &str, to: &str, needle: &str)
     let _ = std::fs::remove_dir_all(&d);
 }
 
+/// Numbers out of range: (case, text replaced, replacement, what the error says).
+const EXTREME_NUMBERS: &[(&str, &str, &str, &str)] = &[
+    ("volt-huge", "\"120 V\"", "\"1e308 V\"", "outside the range"),
+    (
+        "volt-tiny",
+        "\"120 V\"",
+        "\"1e-320 V\"",
+        "outside the range",
+    ),
+    (
+        "volt-edge",
+        "\"120 V\"",
+        "\"1001 V\"",
+        "outside 50 … 1000 V",
+    ),
+    ("volt-low", "\"120 V\"", "\"49 V\"", "outside 50 … 1000 V"),
+    (
+        "rated-tiny",
+        "\"240 V\"",
+        "\"1e-320 V\"",
+        "outside the range",
+    ),
+    ("rated-low", "\"240 V\"", "\"20 V\"", "outside 50 … 2000 V"),
+    (
+        "power-huge",
+        "\"1.5 kW\"",
+        "\"1e308 W\"",
+        "outside the range",
+    ),
+    (
+        "power-overflow",
+        "\"1.5 kW\"",
+        "\"1e308 kW\"",
+        "outside the range",
+    ),
+    ("pf-tiny", "pf = 0.8", "pf = 1e-320", "outside the range"),
+    ("pf-low", "pf = 0.8", "pf = 0.01", "outside 0.05 … 1"),
+    (
+        "spread-huge",
+        "spread = 0.3",
+        "spread = 1e5",
+        "spread must be",
+    ),
+    (
+        "service-tiny",
+        "\"200 A\"",
+        "\"1e-320 A\"",
+        "outside the range",
+    ),
+    (
+        "service-huge",
+        "\"200 A\"",
+        "\"20000 A\"",
+        "outside 1 … 10000 A",
+    ),
+    (
+        "step-tiny",
+        "step = \"1 s\"",
+        "step = \"1e-30 s\"",
+        "outside the range",
+    ),
+    (
+        "step-10ms",
+        "step = \"1 s\"",
+        "step = \"10 ms\"",
+        "from 100 ms to 1 min",
+    ),
+    ("length-huge", "\"1 h\"", "\"1e30 h\"", "outside the range"),
+    (
+        "dwell-over-a-year",
+        "median = \"25 min\"",
+        "median = \"367 d\"",
+        "at most 366 d",
+    ),
+    (
+        "every-over-a-year",
+        "every = \"1 min\"",
+        "every = \"400 d\"",
+        "at most 366 d",
+    ),
+    (
+        "jitter-huge",
+        "jitter = 0.01",
+        "jitter = 1e300",
+        "outside the range",
+    ),
+];
+
 #[test]
 fn extreme_numbers_are_refused_with_their_place() {
-    for (name, from, to, needle) in [
-        ("volt-huge", "\"120 V\"", "\"1e308 V\"", "outside the range"),
-        (
-            "volt-tiny",
-            "\"120 V\"",
-            "\"1e-320 V\"",
-            "outside the range",
-        ),
-        (
-            "volt-edge",
-            "\"120 V\"",
-            "\"1001 V\"",
-            "outside 50 … 1000 V",
-        ),
-        ("volt-low", "\"120 V\"", "\"49 V\"", "outside 50 … 1000 V"),
-        (
-            "rated-tiny",
-            "\"240 V\"",
-            "\"1e-320 V\"",
-            "outside the range",
-        ),
-        ("rated-low", "\"240 V\"", "\"20 V\"", "outside 50 … 2000 V"),
-        (
-            "power-huge",
-            "\"1.5 kW\"",
-            "\"1e308 W\"",
-            "outside the range",
-        ),
-        (
-            "power-overflow",
-            "\"1.5 kW\"",
-            "\"1e308 kW\"",
-            "outside the range",
-        ),
-        ("pf-tiny", "pf = 0.8", "pf = 1e-320", "outside the range"),
-        ("pf-low", "pf = 0.8", "pf = 0.01", "outside 0.05 … 1"),
-        (
-            "spread-huge",
-            "spread = 0.3",
-            "spread = 1e5",
-            "spread must be",
-        ),
-        (
-            "service-tiny",
-            "\"200 A\"",
-            "\"1e-320 A\"",
-            "outside the range",
-        ),
-        (
-            "service-huge",
-            "\"200 A\"",
-            "\"20000 A\"",
-            "outside 1 … 10000 A",
-        ),
-        (
-            "step-tiny",
-            "step = \"1 s\"",
-            "step = \"1e-30 s\"",
-            "outside the range",
-        ),
-        (
-            "step-10ms",
-            "step = \"1 s\"",
-            "step = \"10 ms\"",
-            "from 100 ms to 1 min",
-        ),
-        ("length-huge", "\"1 h\"", "\"1e30 h\"", "outside the range"),
-        (
-            "dwell-over-a-year",
-            "median = \"25 min\"",
-            "median = \"367 d\"",
-            "at most 366 d",
-        ),
-        (
-            "every-over-a-year",
-            "every = \"1 min\"",
-            "every = \"400 d\"",
-            "at most 366 d",
-        ),
-        (
-            "jitter-huge",
-            "jitter = 0.01",
-            "jitter = 1e300",
-            "outside the range",
-        ),
-    ] {
+    for &(name, from, to, needle) in EXTREME_NUMBERS {
         assert_refused(name, from, to, needle);
     }
 }

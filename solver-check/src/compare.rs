@@ -126,6 +126,7 @@ fn quantile(sorted: &[f64], q: f64) -> Option<f64> {
 }
 
 /// Compares two reports over the same period and appliances.
+#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 pub fn compare(a: &Report, b: &Report, resamples: usize, seed: u64) -> Result<Comparison, String> {
     let period = |r: &Report| {
         (

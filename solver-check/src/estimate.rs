@@ -47,6 +47,7 @@ impl EstimateFile {
 
 /// Opens and checks an estimate against the dataset's appliances and time
 /// zone. With `partial`, appliances the estimate lacks are left out.
+#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<EstimateFile, TableError> {
     let mut h = header(path)?;
     // Times are instants: a Parquet timestamp in any zone (the home's, UTC,

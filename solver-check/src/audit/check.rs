@@ -808,6 +808,10 @@ type OtherFit = (
 /// Checks the declaration `d` against the steps `events` and channel counts
 /// `stats` the detector found in meters read every `interval_s` seconds:
 /// the metering first, then each appliance's placement, then undeclared loads.
+#[allow(
+    clippy::too_many_lines,
+    reason = "the checker is being restructured into typed stages (issue 19); split there"
+)]
 pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s: f64) -> Outcome {
     let n = d.supply.lines();
     let absent = absent_channels(d, stats);
@@ -1259,6 +1263,10 @@ fn poisson_tail(mean: f64, k: usize) -> f64 {
 /// where 0.97 were expected (p 0.05 %), is a load.
 const COINCIDENCE_P: f64 = 0.001;
 
+#[allow(
+    clippy::too_many_lines,
+    reason = "the checker is being restructured into typed stages (issue 19); split there"
+)]
 fn undeclared(
     d: &Declared,
     m: &Metering,
@@ -1590,6 +1598,10 @@ fn contest(
 /// first and the appliance moved before the others are weighed again, so
 /// steps one misdeclared appliance leaves behind are not pinned on another.
 /// Returns the checks and the appliances as placed.
+#[allow(
+    clippy::too_many_lines,
+    reason = "the checker is being restructured into typed stages (issue 19); split there"
+)]
 fn place(
     d: &Declared,
     m: &Metering,
