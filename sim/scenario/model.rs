@@ -486,7 +486,8 @@ pub struct Appliance {
     /// What the energy is for, one of [`END_USES`] (for reports that sum
     /// appliances by use).
     pub end_use: String,
-    /// The appliance's main connection (its first draw's; reports and the audit use it).
+    /// The appliance's connection as written (`wiring`); its draws take it
+    /// unless they name their own.
     pub wiring: Wiring,
     /// How it moves between its states over time.
     pub behaviour: Behaviour,
