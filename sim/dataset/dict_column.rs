@@ -11,6 +11,7 @@
 //! each page compressed with zstd like the other columns. A state holds for
 //! many rows, so runs are long.
 
+use super::float_column::Scratch;
 use arrow_array::cast::AsArray;
 use arrow_array::types::Int16Type;
 use arrow_array::{Array, ArrayRef};
@@ -107,18 +108,22 @@ impl DictColumn {
         }
         let width = self.bit_width();
         let value_bytes = (width as usize).div_ceil(8);
-        let mut buf = vec![width];
+        let mut scratch = Scratch::take(self.level)?;
+        let buf = &mut scratch.raw;
+        buf.clear();
+        buf.push(width);
         let mut i = 0;
         while i < self.keys.len() {
             let k = self.keys[i];
             let run = self.keys[i..].iter().take_while(|&&x| x == k).count();
-            uleb128(&mut buf, (run as u64) << 1);
+            uleb128(buf, (run as u64) << 1);
             buf.extend_from_slice(&(k as u32).to_le_bytes()[..value_bytes]);
             i += run;
         }
-        let compressed = zstd::bulk::compress(&buf, self.level)?;
-        self.pages
-            .push((compressed, buf.len(), self.keys.len() as u32));
+        let raw = buf.len();
+        let compressed = scratch.compressed()?;
+        scratch.give_back();
+        self.pages.push((compressed, raw, self.keys.len() as u32));
         self.keys.clear();
         Ok(())
     }

@@ -83,15 +83,16 @@ float!(
     Double
 );
 
-/// A zstd context and a page buffer, shared by all float columns: a context
-/// per column would hold a window per column (about a megabyte each for the
+/// A zstd context and a page buffer, shared by all float and dictionary
+/// columns: a context per column would hold a window per column (about a megabyte each for the
 /// truth's hundred columns), and the buffers are reused rather than
 /// allocated (and faulted in) per page. Compression does not depend on
 /// which context does it, so the bytes do not either.
-struct Scratch {
+pub(crate) struct Scratch {
     level: i32,
     compressor: zstd::bulk::Compressor<'static>,
-    raw: Vec<u8>,
+    /// The page being built, before compression.
+    pub raw: Vec<u8>,
     out: Vec<u8>,
 }
 
@@ -99,7 +100,7 @@ static SCRATCH: std::sync::Mutex<Vec<Scratch>> = std::sync::Mutex::new(Vec::new(
 
 impl Scratch {
     /// A free scratch for zstd `level` (a new one when none is free).
-    fn take(level: i32) -> io::Result<Scratch> {
+    pub fn take(level: i32) -> io::Result<Scratch> {
         let mut pool = SCRATCH.lock().unwrap_or_else(|e| e.into_inner());
         if let Some(i) = pool.iter().position(|s| s.level == level) {
             return Ok(pool.swap_remove(i));
@@ -113,7 +114,20 @@ impl Scratch {
         })
     }
 
-    fn give_back(self) {
+    /// `raw` compressed, in a buffer of its own size: a fresh buffer per
+    /// page would keep zstd's bound (the raw size) allocated until the
+    /// chunk closes.
+    pub fn compressed(&mut self) -> io::Result<Vec<u8>> {
+        let bound = zstd::zstd_safe::compress_bound(self.raw.len());
+        self.out.clear();
+        self.out.reserve(bound);
+        self.compressor
+            .compress_to_buffer(&self.raw, &mut self.out)?;
+        Ok(self.out.clone())
+    }
+
+    /// Returns the scratch to the pool.
+    pub fn give_back(self) {
         SCRATCH.lock().unwrap_or_else(|e| e.into_inner()).push(self);
     }
 }
@@ -249,16 +263,7 @@ impl<T: Float> FloatColumn<T> {
             self.min = Some(self.min.map_or(lo, |m| if lo < m { lo } else { m }));
             self.max = Some(self.max.map_or(hi, |m| if hi > m { hi } else { m }));
         }
-        // Into the scratch, then copied at its size: a fresh buffer per page
-        // would keep zstd's bound (the raw size) allocated until the chunk
-        // closes.
-        let bound = zstd::zstd_safe::compress_bound(scratch.raw.len());
-        scratch.out.clear();
-        scratch.out.reserve(bound);
-        scratch
-            .compressor
-            .compress_to_buffer(&scratch.raw, &mut scratch.out)?;
-        let bytes = scratch.out.clone();
+        let bytes = scratch.compressed()?;
         let raw_len = scratch.raw.len();
         scratch.give_back();
         let le = |v: T| {
