@@ -52,6 +52,10 @@ fn wav_error(e: hound::Error) -> io::Error {
     }
 }
 
+/// An inrushing appliance's harmonic phasors: when its inrush began (s),
+/// its shape, and `[line][order]` phasors at full envelope.
+type Inrushing = (f64, Inrush, Vec<Vec<C64>>);
+
 impl Recorder {
     /// Opens one WAV file per window of the scenario in `dir`.
     pub fn new(s: &Scenario, dir: &Path) -> io::Result<Recorder> {
@@ -109,7 +113,6 @@ impl Recorder {
     /// Writes the samples of `step`: the terminals `t` it was solved at, each
     /// appliance's state and scale (without inrush), and its inrush (the step
     /// it began, its shape) if any.
-    #[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
     pub fn record(
         &mut self,
         step: u64,
@@ -122,6 +125,32 @@ impl Recorder {
         if self.error.is_some() {
             return;
         }
+        let (steady, moving) = self.harmonics(net, t, state, scale, inrush);
+        self.synthesize(step, t, &steady, &moving);
+        for w in self
+            .windows
+            .iter_mut()
+            .filter(|w| step >= w.first && step < w.end)
+        {
+            if let Some(err) = self.buf.iter().find_map(|&x| w.out.write_sample(x).err()) {
+                self.error = Some(wav_error(err));
+                return;
+            }
+            w.samples += self.per_step as u64;
+        }
+    }
+
+    /// The step's harmonic current phasors per line and odd order: the
+    /// steady part, and apart from it each inrushing appliance's (its
+    /// envelope moves within the step).
+    fn harmonics(
+        &self,
+        net: &Network,
+        t: &Terminals,
+        state: &[usize],
+        scale: &[f64],
+        inrush: &[Option<(u64, Inrush)>],
+    ) -> (Vec<Vec<C64>>, Vec<Inrushing>) {
         let n_orders = self.max_order.div_ceil(2);
         let idx = |h: u32| (h as usize - 1) / 2;
         // H[line][order]: harmonic phasors of the steady part; inrushing
@@ -161,6 +190,13 @@ impl Recorder {
                 }
             }
         }
+        (steady, moving)
+    }
+
+    /// The step's samples into `buf`: per sample the line voltages, the
+    /// line currents and the neutral current, scaled for the file.
+    fn synthesize(&mut self, step: u64, t: &Terminals, steady: &[Vec<C64>], moving: &[Inrushing]) {
+        let n_orders = self.max_order.div_ceil(2);
         let v: Vec<C64> = (0..self.lines).map(|x| t.v_ln(x)).collect();
         let r2 = 2f64.sqrt();
         let t0 = step as f64 * self.step_s;
@@ -183,7 +219,7 @@ impl Recorder {
                 for o in 0..n_orders {
                     i += (steady[x][o] * e[o]).re;
                 }
-                for (from, ir, h) in &moving {
+                for (from, ir, h) in moving {
                     let m = 1.0 + (ir.peak - 1.0) * (-(tau - from) / ir.decay_s).exp();
                     let mut j = 0.0;
                     for o in 0..n_orders {
@@ -197,17 +233,6 @@ impl Recorder {
             }
             // Kirchhoff, sample by sample: the neutral returns the rest.
             self.buf.push((-i_sum / self.scale_i) as f32);
-        }
-        for w in self
-            .windows
-            .iter_mut()
-            .filter(|w| step >= w.first && step < w.end)
-        {
-            if let Some(err) = self.buf.iter().find_map(|&x| w.out.write_sample(x).err()) {
-                self.error = Some(wav_error(err));
-                return;
-            }
-            w.samples += self.per_step as u64;
         }
     }
 
