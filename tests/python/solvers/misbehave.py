@@ -3,8 +3,6 @@ malformed estimate. The round trip must report each, never score it."""
 import sys
 import time
 
-import pandas as pd
-
 mode, task, estimate = sys.argv[1], sys.argv[2], sys.argv[3]
 if mode == "crash":
     print("about to fail", flush=True)
@@ -15,4 +13,8 @@ if mode == "hang":
 if mode == "silent":
     raise SystemExit(0)
 if mode == "malformed":
+    # Imported here only: the crash and silent modes end before a slow
+    # import, so their start-up does not depend on the machine's load.
+    import pandas as pd
+
     pd.DataFrame({"time": pd.date_range("2020-01-01", periods=3, freq="1s", tz="UTC"), "nobody_p_w": [1.0, 2.0, 3.0]}).to_parquet(estimate)
