@@ -7,53 +7,49 @@ use crate::dataset::Format;
 use crate::fleet::Population;
 use crate::pipeline;
 use crate::roundtrip::{check_periods, Plan};
+use crate::scenario::Error;
 use solver_check::crosshome::{FleetOutcome, Home};
 use std::path::Path;
-
-/// Why a cross-home round trip stopped before any solver ran.
-pub enum Stop {
-    /// Bad input (the population, a period): exit status 2.
-    Bad(String),
-    /// Writing the homes or the task failed: exit status 1.
-    Failed(String),
-}
 
 /// Homes `0..train` of the population train the solver (over
 /// `plan.train_s`), homes `train..train + test` test it (over
 /// `plan.test_s`); everything is written under `work`. `progress` is told
-/// (homes made, homes in all).
+/// (homes made, homes in all). The error says bad input (the population, a
+/// period: exit status 2) or a failed run (writing the homes or the task: 1).
 pub fn run(
     pop: &Population,
     (train, test): (u64, u64),
     work: &Path,
     plan: &Plan,
     progress: &dyn Fn(u64, u64),
-) -> Result<FleetOutcome, Stop> {
+) -> Result<FleetOutcome, Error> {
     if train == 0 || test == 0 {
-        return Err(Stop::Bad(
-            "error: --train-homes and --test-homes must be 1 or more".into(),
+        return Err(Error::option(
+            &format!("--train-homes {train} --test-homes {test}"),
+            "a cross-home round trip needs homes to train on and homes to test",
+            "give --train-homes and --test-homes 1 or more",
         ));
     }
     if plan.train_s <= 0.0 {
-        return Err(Stop::Bad(
-            "error: --train must be above zero with --fleet (the training homes' period)".into(),
+        return Err(Error::option(
+            "--train",
+            "the training homes need a training period",
+            "give --train above zero with --fleet",
         ));
     }
+    let failed = |file: &Path, what: String, e: &std::io::Error| {
+        let help = "check free space and permissions of the output folder";
+        Error::file(file, what, help).caused_by(e).failed()
+    };
     let homes_dir = work.join("homes");
     let (mut train_homes, mut test_homes) = (Vec::new(), Vec::new());
     for i in 0..train + test {
-        let (mut s, _) = pop.home(i).map_err(|e| Stop::Bad(e.to_string()))?;
-        check_periods(std::slice::from_ref(&s), plan.train_s, plan.test_s, false)
-            .map_err(|m| Stop::Bad(format!("error: {m}")))?;
+        let (mut s, _) = pop.home(i)?;
+        check_periods(std::slice::from_ref(&s), plan.train_s, plan.test_s, false)?;
         s.run.length_s = if i < train { plan.train_s } else { plan.test_s };
         let name = format!("home={i:05}");
         let written = pipeline::write(&s, &homes_dir.join(&name), Format::Parquet, &mut |_| {})
-            .map_err(|e| {
-                Stop::Failed(format!(
-                    "error: writing {name} under {} failed: {e}",
-                    homes_dir.display()
-                ))
-            })?;
+            .map_err(|e| pipeline::write_error(&e, &homes_dir.join(&name)))?;
         let home = Home {
             name,
             dataset: written.dir,
@@ -76,16 +72,7 @@ pub fn run(
         plan.reveal,
         &ext,
     )
-    .map_err(|e| {
-        Stop::Failed(format!(
-            "error: preparing the task under {} failed: {e}",
-            work.display()
-        ))
-    })?;
-    solver_check::crosshome::run(&task, &plan.solver, plan.limit, &plan.allow_read).map_err(|e| {
-        Stop::Failed(format!(
-            "error: running the solver under {} failed: {e}",
-            work.display()
-        ))
-    })
+    .map_err(|e| failed(work, "preparing the task failed".into(), &e))?;
+    solver_check::crosshome::run(&task, &plan.solver, plan.limit, &plan.allow_read)
+        .map_err(|e| failed(work, "running the solver failed".into(), &e))
 }

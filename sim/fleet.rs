@@ -597,11 +597,15 @@ impl Shard {
     /// `I/N`, or `auto` from a Slurm job array (SLURM_ARRAY_TASK_ID,
     /// SLURM_ARRAY_TASK_COUNT, SLURM_ARRAY_TASK_MIN) or a Kubernetes Indexed
     /// Job (JOB_COMPLETION_INDEX, with the count in LOADLOOM_SHARDS).
-    pub fn parse(text: &str, env: &dyn Fn(&str) -> Option<String>) -> Result<Shard, String> {
+    pub fn parse(text: &str, env: &dyn Fn(&str) -> Option<String>) -> Result<Shard, Error> {
+        let bad = |m: &str| {
+            let help = "give --shard I/N with I from 0 to N − 1, e.g. 0/4, or auto inside a Slurm job array or a Kubernetes Indexed Job";
+            Error::option(&format!("--shard {text}"), m, help)
+        };
         let num = |s: &str| {
             s.trim()
                 .parse::<u64>()
-                .map_err(|_| format!("\"{s}\" is not a whole number"))
+                .map_err(|_| bad(&format!("\"{s}\" is not a whole number")))
         };
         let (i, n) = if text == "auto" {
             if let Some(id) = env("SLURM_ARRAY_TASK_ID") {
@@ -609,30 +613,31 @@ impl Shard {
                     .map(|m| num(&m))
                     .transpose()?
                     .unwrap_or(0);
-                let count = env("SLURM_ARRAY_TASK_COUNT")
-                    .ok_or("SLURM_ARRAY_TASK_ID is set but SLURM_ARRAY_TASK_COUNT is not")?;
+                let count = env("SLURM_ARRAY_TASK_COUNT").ok_or_else(|| {
+                    bad("SLURM_ARRAY_TASK_ID is set but SLURM_ARRAY_TASK_COUNT is not")
+                })?;
                 (
                     num(&id)?
                         .checked_sub(min)
-                        .ok_or("SLURM_ARRAY_TASK_ID is below SLURM_ARRAY_TASK_MIN")?,
+                        .ok_or_else(|| bad("SLURM_ARRAY_TASK_ID is below SLURM_ARRAY_TASK_MIN"))?,
                     num(&count)?,
                 )
             } else if let Some(id) = env("JOB_COMPLETION_INDEX") {
-                let count = env("LOADLOOM_SHARDS").ok_or("JOB_COMPLETION_INDEX is set: give the number of shards in LOADLOOM_SHARDS (the Job's completions)")?;
+                let count = env("LOADLOOM_SHARDS").ok_or_else(|| bad("JOB_COMPLETION_INDEX is set: give the number of shards in LOADLOOM_SHARDS (the Job's completions)"))?;
                 (num(&id)?, num(&count)?)
             } else {
-                return Err("--shard auto found neither a Slurm array (SLURM_ARRAY_TASK_ID) nor a Kubernetes Indexed Job (JOB_COMPLETION_INDEX)".into());
+                return Err(bad("--shard auto found neither a Slurm array (SLURM_ARRAY_TASK_ID) nor a Kubernetes Indexed Job (JOB_COMPLETION_INDEX)"));
             }
         } else {
             let (a, b) = text
                 .split_once('/')
-                .ok_or_else(|| format!("--shard {text}: expected I/N, e.g. 0/4, or auto"))?;
+                .ok_or_else(|| bad("expected I/N, e.g. 0/4, or auto"))?;
             (num(a)?, num(b)?)
         };
         if n == 0 || i >= n {
-            return Err(format!(
+            return Err(bad(&format!(
                 "shard {i} of {n} does not exist: I runs from 0 to N − 1"
-            ));
+            )));
         }
         Ok(Shard { index: i, count: n })
     }
@@ -696,41 +701,10 @@ pub fn is_complete(pop: &Population, out: &Path, i: u64) -> bool {
         })
 }
 
-/// Why a fleet run stopped: the error (with its file and causes), and
-/// whether it was bad input (exit status 2) rather than a run that failed (1).
-#[derive(Debug)]
-pub struct FleetError {
-    /// What went wrong, with its file and causes.
-    pub error: Error,
-    /// Bad input (exit status 2) rather than a run that failed (1).
-    pub bad_input: bool,
-}
-
-impl std::fmt::Display for FleetError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        self.error.fmt(f)
-    }
-}
-
-impl FleetError {
-    /// A run that failed on `path`, with the message of what went wrong.
-    fn failed(path: &Path, message: String, help: &str, cause: String) -> FleetError {
-        let mut error = Error::file(path, message, help);
-        error.causes.push(cause);
-        FleetError {
-            error,
-            bad_input: false,
-        }
-    }
-}
-
 /// Resolves and writes home `i`; a scenario error or a voltage solve with
 /// no plausible answer is bad input, any other failure a failed run.
-fn make_home(pop: &Population, out: &Path, i: u64) -> Result<(), FleetError> {
-    let (s, _) = pop.home(i).map_err(|error| FleetError {
-        error,
-        bad_input: true,
-    })?;
+fn make_home(pop: &Population, out: &Path, i: u64) -> Result<(), Error> {
+    let (s, _) = pop.home(i)?;
     let written = write_home(&s, out, i);
     written.map_err(|e| {
         let diverged = e
@@ -748,9 +722,11 @@ fn make_home(pop: &Population, out: &Path, i: u64) -> Result<(), FleetError> {
                 "check free space and permissions; the home is redone on the next run",
             )
         };
-        FleetError {
-            error: Error::file(&manifest_dir(out, i), message, help).caused_by(&e),
-            bad_input: diverged,
+        let error = Error::file(&manifest_dir(out, i), message, help).caused_by(&e);
+        if diverged {
+            error
+        } else {
+            error.failed()
         }
     })
 }
@@ -796,6 +772,8 @@ pub struct FleetRun {
 
 /// Makes the homes of `shard` among `homes`, `jobs` at a time; skips homes
 /// already complete; writes the index when every home of the fleet is there.
+/// The error's status says whether it was bad input (2) or a run that
+/// failed (1).
 pub fn run(
     pop: &Population,
     homes: u64,
@@ -803,15 +781,12 @@ pub fn run(
     jobs: usize,
     shard: Shard,
     progress: &(dyn Fn(u64, u64) + Sync),
-) -> Result<FleetRun, FleetError> {
+) -> Result<FleetRun, Error> {
     std::fs::create_dir_all(out).map_err(|e| {
         let help = "give --out a folder that can be created";
-        FleetError::failed(
-            out,
-            "cannot create the fleet folder".into(),
-            help,
-            e.to_string(),
-        )
+        Error::file(out, "cannot create the fleet folder", help)
+            .caused_by(&e)
+            .failed()
     })?;
     // Partial folders of an interrupted run are redone; those of another
     // shard still running in the same folder are its own.
@@ -827,7 +802,7 @@ pub fn run(
     let skipped = (mine.len() - todo.len()) as u64;
     let next = std::sync::atomic::AtomicUsize::new(0);
     let done = std::sync::atomic::AtomicU64::new(0);
-    let failure: std::sync::Mutex<Option<FleetError>> = std::sync::Mutex::new(None);
+    let failure: std::sync::Mutex<Option<Error>> = std::sync::Mutex::new(None);
     std::thread::scope(|sc| {
         for _ in 0..jobs.max(1) {
             sc.spawn(|| loop {
@@ -852,10 +827,7 @@ pub fn run(
     }
     let all = (0..homes).all(|i| manifest_dir(out, i).join("manifest.json").is_file());
     if all {
-        write_index(pop, homes, out).map_err(|m| {
-            let help = "check free space and permissions; run the fleet again to write the index";
-            FleetError::failed(out, "writing the fleet index failed".into(), help, m)
-        })?;
+        write_index(pop, homes, out)?;
     }
     Ok(FleetRun {
         made: todo.len() as u64,
@@ -866,7 +838,13 @@ pub fn run(
 
 /// `homes.parquet` (one row per home, from the homes' manifests) and `fleet.json`.
 #[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
-fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
+fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), Error> {
+    let help = "check free space and permissions; run the fleet again to write the index";
+    let failed = |file: &Path, e: &dyn std::error::Error| {
+        Error::file(file, "writing the fleet index failed", help)
+            .caused_by(e)
+            .failed()
+    };
     use arrow_array::{ArrayRef, Float64Array, Int64Array, RecordBatch, StringArray};
     use arrow_schema::{DataType, Field, Schema};
     use std::sync::Arc;
@@ -875,11 +853,9 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
     let mut zones = vec![];
     let mut owned: std::collections::BTreeMap<String, u64> = Default::default();
     for i in 0..homes {
-        let m: Value = serde_json::from_str(
-            &std::fs::read_to_string(manifest_dir(out, i).join("manifest.json"))
-                .map_err(|e| e.to_string())?,
-        )
-        .map_err(|e| e.to_string())?;
+        let file = manifest_dir(out, i).join("manifest.json");
+        let text = std::fs::read_to_string(&file).map_err(|e| failed(&file, &e))?;
+        let m: Value = serde_json::from_str(&text).map_err(|e| failed(&file, &e))?;
         let list: Vec<String> = m["appliances"]
             .as_array()
             .map(|a| {
@@ -902,7 +878,7 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
         }
         ids.push(home_key(i));
         zones.push(m["time"]["timezone"].as_str().unwrap_or("").to_string());
-        let (_, kind) = pop.home(i).map_err(|e| e.to_string())?;
+        let (_, kind) = pop.home(i)?;
         kinds.push(kind);
         supplies.push(m["supply"]["kind"].as_str().unwrap_or("").to_string());
         counts.push(list.len() as i64);
@@ -935,15 +911,15 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
         Arc::new(Float64Array::from(kwh.clone())),
         Arc::new(Int64Array::from(rows)),
     ];
-    let batch = RecordBatch::try_new(schema.clone(), cols).map_err(|e| e.to_string())?;
+    let index = out.join("homes.parquet");
+    let batch = RecordBatch::try_new(schema.clone(), cols).map_err(|e| failed(&index, &e))?;
     let mut bytes = Vec::new();
     let mut w = parquet::arrow::ArrowWriter::try_new(&mut bytes, schema, None)
-        .map_err(|e| e.to_string())?;
-    w.write(&batch).map_err(|e| e.to_string())?;
-    w.close().map_err(|e| e.to_string())?;
+        .map_err(|e| failed(&index, &e))?;
+    w.write(&batch).map_err(|e| failed(&index, &e))?;
+    w.close().map_err(|e| failed(&index, &e))?;
     // Never through a link planted in the output folder.
-    crate::dataset::folder::write_file(&out.join("homes.parquet"), &bytes)
-        .map_err(|e| e.to_string())?;
+    crate::dataset::folder::write_file(&index, &bytes).map_err(|e| failed(&index, &e))?;
     let kind_counts: serde_json::Map<String, Value> = pop
         .kinds
         .iter()
@@ -966,7 +942,7 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), String> {
         "tables": TABLES.iter().map(|t| (t.to_string(), json!(format!("{t}/home=*/{t}.parquet")))).collect::<serde_json::Map<_, _>>(),
         "layout": "meters/, truth/ (long: a row per interval and appliance), events/: each Hive-partitioned by home (home=h00042), times in UTC; homes.parquet: one row per home with its time zone; manifests/home=h00042/: each home's manifest.json and scenario.toml",
     });
-    let text = serde_json::to_string_pretty(&summary).map_err(|e| e.to_string())? + "\n";
-    crate::dataset::folder::write_file(&out.join("fleet.json"), text.as_bytes())
-        .map_err(|e| e.to_string())
+    let file = out.join("fleet.json");
+    let text = serde_json::to_string_pretty(&summary).map_err(|e| failed(&file, &e))? + "\n";
+    crate::dataset::folder::write_file(&file, text.as_bytes()).map_err(|e| failed(&file, &e))
 }

@@ -46,7 +46,7 @@ fn main() -> ExitCode {
     unsafe {
         libc::signal(libc::SIGPIPE, libc::SIG_DFL);
     }
-    match Cli::parse().command {
+    let outcome = match Cli::parse().command {
         Command::Run(a) => cli::run::main(a),
         Command::Score(a) => cli::score::main(a),
         Command::Roundtrip(a) => cli::roundtrip::main(a),
@@ -57,5 +57,6 @@ fn main() -> ExitCode {
         Command::Plot(a) => cli::plot::main(a),
         Command::Validate(a) => cli::validate::main(a),
         Command::Templates(a) => cli::templates::main(a),
-    }
+    };
+    cli::finish(outcome)
 }

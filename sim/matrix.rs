@@ -15,7 +15,7 @@ use std::path::{Path, PathBuf};
 pub const VARIANT_KEYS: [&str; 5] = ["1s", "10s", "noise", "dropouts", "background"];
 
 /// Indices into [`VARIANTS`] of `--variant` values (`all` for every one).
-pub fn parse_variants(values: &[String]) -> Result<Vec<usize>, String> {
+pub fn parse_variants(values: &[String]) -> Result<Vec<usize>, scenario::Error> {
     let mut chosen = Vec::new();
     for v in values {
         if v == "all" {
@@ -23,9 +23,10 @@ pub fn parse_variants(values: &[String]) -> Result<Vec<usize>, String> {
         } else if let Some(i) = VARIANT_KEYS.iter().position(|k| k == v) {
             chosen.push(i);
         } else {
-            return Err(format!(
-                "error: --variant {v}: unknown variant\n  = help: write one of {}, or all",
-                VARIANT_KEYS.join(", ")
+            return Err(scenario::Error::option(
+                &format!("--variant {v}"),
+                "unknown variant",
+                format!("write one of {}, or all", VARIANT_KEYS.join(", ")),
             ));
         }
     }

@@ -179,3 +179,31 @@ pub fn write_into_cut(
     files.finish(s, &tables, &outcome, &card, rows, &waves)?;
     Ok((intervals, outcome))
 }
+
+/// Why a dataset under `out` was not written, as the error a command ends
+/// with: physics with no plausible answer (the scenario's place) and a
+/// setting the run cannot use (`LOADLOOM_THREADS`) are bad input, exit 2;
+/// anything else is a failed run, exit 1. Nothing is left behind either way.
+pub fn write_error(e: &io::Error, out: &Path) -> crate::scenario::Error {
+    use crate::scenario::Error;
+    let diverged = e
+        .get_ref()
+        .and_then(|i| i.downcast_ref::<crate::electrical::settle::Diverged>());
+    match diverged {
+        Some(d) => {
+            let mut error = d.error.clone();
+            error.help.push_str("; nothing was written");
+            error
+        }
+        None if e.kind() == io::ErrorKind::InvalidInput => {
+            let help = "unset LOADLOOM_THREADS to use every core; nothing was written";
+            Error::option("LOADLOOM_THREADS", e.to_string(), help)
+        }
+        None => {
+            let help = "check free space and permissions; nothing was left behind";
+            Error::file(out, "writing the dataset failed", help)
+                .caused_by(e)
+                .failed()
+        }
+    }
+}

@@ -5,7 +5,7 @@
 use crate::dataset::Format;
 use crate::pipeline;
 use crate::scenario::model::DropMode;
-use crate::scenario::Scenario;
+use crate::scenario::{Error, Scenario};
 use serde_json::{json, Value};
 use solver_check::contract::{line_name, SUITE_FORMAT};
 use solver_check::render::Render;
@@ -36,25 +36,31 @@ pub struct Plan {
 /// The scenario files of a round trip: the one given, or with `suite`
 /// every `*.toml` of a folder (default `scenarios/`; a file given to the
 /// suite is run alone).
-pub fn scenario_paths(scenario: Option<&Path>, suite: bool) -> Result<Vec<PathBuf>, String> {
+pub fn scenario_paths(scenario: Option<&Path>, suite: bool) -> Result<Vec<PathBuf>, Error> {
     match (scenario, suite) {
         (Some(p), false) => Ok(vec![p.to_path_buf()]),
-        (None, false) => {
-            Err("give a SCENARIO (or --dataset DIR), or --suite to run the demo scenarios".into())
-        }
+        (None, false) => Err(Error::option(
+            "--solver",
+            "nothing to run the solver on",
+            "give a SCENARIO (or --dataset DIR), or --suite to run the demo scenarios",
+        )),
         (p, true) => {
             let p = p.map_or_else(|| PathBuf::from("scenarios"), Path::to_path_buf);
             if !p.is_dir() {
                 return Ok(vec![p]);
             }
+            let help = "give --suite a folder of scenarios (*.toml) that can be read";
             let mut v: Vec<PathBuf> = std::fs::read_dir(&p)
-                .map(|r| {
-                    r.filter_map(|e| e.ok())
-                        .map(|e| e.path())
-                        .filter(|x| x.extension().is_some_and(|e| e == "toml"))
-                        .collect()
-                })
-                .unwrap_or_default();
+                .map_err(|e| {
+                    Error::file(&p, "cannot read the folder of scenarios", help).caused_by(&e)
+                })?
+                .filter_map(|e| e.ok())
+                .map(|e| e.path())
+                .filter(|x| x.extension().is_some_and(|e| e == "toml"))
+                .collect();
+            if v.is_empty() {
+                return Err(Error::file(&p, "no scenario files (*.toml) here", help));
+            }
             v.sort();
             Ok(v)
         }
@@ -64,7 +70,7 @@ pub fn scenario_paths(scenario: Option<&Path>, suite: bool) -> Result<Vec<PathBu
 /// The round trip cuts meters and truth at the same rows, so the meters
 /// table must keep a row per interval: dropouts written as missing rows
 /// are refused before anything is simulated (as null readings they are fine).
-pub fn check_meter_rows(scenarios: &[Scenario]) -> Result<(), String> {
+pub fn check_meter_rows(scenarios: &[Scenario]) -> Result<(), Error> {
     let gapped = |s: &&Scenario| {
         s.faults
             .dropouts
@@ -72,10 +78,13 @@ pub fn check_meter_rows(scenarios: &[Scenario]) -> Result<(), String> {
             .is_some_and(|d| d.mode == DropMode::Missing)
     };
     match scenarios.iter().find(gapped) {
-        Some(s) => Err(format!(
-            "{}: [faults] dropouts with as = \"missing\" leave rows out of the meters table, \
-             and a round trip needs a meters row per interval; write them as = \"null\"",
-            s.name
+        Some(s) => Err(Error::at_place(
+            // The scenario's file: the place its supply was read from.
+            &s.home.supply_at,
+            "faults.dropouts",
+            "dropouts with as = \"missing\" leave rows out of the meters table, \
+             and a round trip needs a meters row per interval",
+            "write the dropouts as = \"null\"",
         )),
         None => Ok(()),
     }
@@ -88,7 +97,7 @@ pub fn check_periods(
     train_s: f64,
     test_s: f64,
     suite: bool,
-) -> Result<(), String> {
+) -> Result<(), Error> {
     for s in scenarios {
         let per = if suite {
             60.0f64.max(s.meter.interval_s)
@@ -97,9 +106,13 @@ pub fn check_periods(
         };
         for (name, v) in [("train", train_s), ("test", test_s)] {
             if ((v / per).round() - v / per).abs() > 1e-6 {
-                return Err(format!(
-                    "--{name}: must be a whole number of reporting intervals ({per} s) for {}",
-                    s.name
+                return Err(Error::option(
+                    &format!("--{name}"),
+                    format!(
+                        "not a whole number of reporting intervals ({per} s) of {}",
+                        s.name
+                    ),
+                    format!("give a multiple of {per} s"),
                 ));
             }
         }
@@ -109,49 +122,61 @@ pub fn check_periods(
 
 /// Simulates `s` over train + test and writes the task and the scored
 /// truth, for any number of solvers.
-pub fn prepare(s: &Scenario, work: &Path, p: &Plan) -> Result<Prepared, String> {
+pub fn prepare(s: &Scenario, work: &Path, p: &Plan) -> Result<Prepared, Error> {
     let mut s = s.clone();
     s.run.length_s = p.train_s + p.test_s;
     let train_rows = (p.train_s / s.meter.interval_s).round() as usize;
     // Row groups end at the train/test boundary too, so each period is
     // copied into the task as encoded (no decoding, no re-encoding).
     let written = pipeline::write_cut(&s, work, Format::Parquet, &mut |_| {}, &[train_rows])
-        .map_err(|e| format!("writing the dataset under {} failed: {e}", work.display()))?;
+        .map_err(|e| pipeline::write_error(&e, work))?;
     let split = Split {
         train: 0..train_rows,
         test: train_rows..written.rows as usize,
     };
     solver_check::roundtrip::prepare(&written.dir, work, &split, p.reveal, p.estimate_name)
-        .map_err(|e| format!("preparing the task under {} failed: {e}", work.display()))
+        .map_err(|e| task_failed(work, &e))
+}
+
+/// Writing the task under `work` failed (a failed run, exit 1), or refused
+/// the dataset (its meters have missing rows: bad input, exit 2).
+fn task_failed(work: &Path, e: &std::io::Error) -> Error {
+    let error = Error::file(work, "preparing the task failed", "see the cause").caused_by(e);
+    if e.kind() == std::io::ErrorKind::InvalidData {
+        error
+    } else {
+        error.failed()
+    }
 }
 
 /// Reuses a dataset already written: the first `train_s` as training, the
 /// next `test_s` as test. Err names the dataset and the fix (bad input).
-pub fn prepare_dataset(dir: &Path, work: &Path, p: &Plan) -> Result<Prepared, String> {
-    let ds = solver_check::Dataset::open(dir).map_err(|e| e.to_string())?;
-    ds.verify().map_err(|e| e.to_string())?;
+pub fn prepare_dataset(dir: &Path, work: &Path, p: &Plan) -> Result<Prepared, Error> {
+    let ds = solver_check::Dataset::open(dir)?;
+    ds.verify()?;
     let rows = |secs: f64| (secs / ds.interval_s).round() as usize;
     let (train, test) = (rows(p.train_s), rows(p.test_s));
     if train + test > ds.rows as usize {
-        return Err(format!(
-            "error: --train and --test ask for {} rows, the dataset has {}\n  --> {}\n  = help: shorten the periods (the dataset covers {:.2} d at {} s)",
-            train + test,
-            ds.rows,
-            dir.display(),
-            ds.rows as f64 * ds.interval_s / 86400.0,
-            ds.interval_s
+        return Err(Error::file(
+            dir,
+            format!(
+                "--train and --test ask for {} rows, the dataset has {}",
+                train + test,
+                ds.rows
+            ),
+            format!(
+                "shorten the periods (the dataset covers {:.2} d at {} s)",
+                ds.rows as f64 * ds.interval_s / 86400.0,
+                ds.interval_s
+            ),
         ));
     }
     let split = Split {
         train: 0..train,
         test: train..train + test,
     };
-    solver_check::roundtrip::prepare(dir, work, &split, p.reveal, p.estimate_name).map_err(|e| {
-        format!(
-            "error: preparing the task under {} failed: {e}",
-            work.display()
-        )
-    })
+    solver_check::roundtrip::prepare(dir, work, &split, p.reveal, p.estimate_name)
+        .map_err(|e| task_failed(work, &e))
 }
 
 /// Runs every solver on the prepared task, one after another, each in its
@@ -162,7 +187,7 @@ pub fn board(
     limit: Duration,
     allow_read: &[std::path::PathBuf],
     progress: &mut dyn FnMut(usize, &str),
-) -> Result<Vec<SolverRun>, String> {
+) -> Result<Vec<SolverRun>, Error> {
     let mut out = Vec::new();
     for (k, solver) in solvers.iter().enumerate() {
         let name = solver.describe();
@@ -173,10 +198,16 @@ pub fn board(
             .take(40)
             .collect();
         let slot = prep.work.join("solvers").join(format!("{}-{slug}", k + 1));
-        std::fs::create_dir_all(&slot).map_err(|e| format!("{}: {e}", slot.display()))?;
+        let failed = |e: std::io::Error| {
+            let help = "check free space and permissions of the output folder";
+            Error::file(&slot, format!("running {name} failed"), help)
+                .caused_by(&e)
+                .failed()
+        };
+        std::fs::create_dir_all(&slot).map_err(failed)?;
         out.push(
             solver_check::roundtrip::run_solver(prep, solver, &slot, limit, allow_read)
-                .map_err(|e| format!("running {name} under {} failed: {e}", slot.display()))?,
+                .map_err(failed)?,
         );
     }
     Ok(out)
@@ -184,10 +215,25 @@ pub fn board(
 
 /// Simulates `s` over train + test, writes the task, runs the solver, scores.
 /// Err is an I/O failure of our own (writing the dataset or the task).
-pub fn once(s: &Scenario, work: &Path, p: &Plan) -> Result<SolverRun, String> {
+pub fn once(s: &Scenario, work: &Path, p: &Plan) -> Result<SolverRun, Error> {
     let prep = prepare(s, work, p)?;
-    solver_check::roundtrip::run_solver(&prep, &p.solver, work, p.limit, &p.allow_read)
-        .map_err(|e| format!("running the solver under {} failed: {e}", work.display()))
+    run_solver(&prep, &p.solver, work, p)
+}
+
+/// Runs the solver on a prepared task in `work`; the error is ours (a
+/// folder that cannot be written), not the solver's (that is its outcome).
+pub fn run_solver(
+    prep: &Prepared,
+    solver: &Solver,
+    work: &Path,
+    p: &Plan,
+) -> Result<SolverRun, Error> {
+    solver_check::roundtrip::run_solver(prep, solver, work, p.limit, &p.allow_read).map_err(|e| {
+        let help = "check free space and permissions of the output folder";
+        Error::file(work, "running the solver failed", help)
+            .caused_by(&e)
+            .failed()
+    })
 }
 
 /// A rung of the difficulty ladder: a name and what it changes.
@@ -296,7 +342,8 @@ pub struct SuiteRow {
     /// The rung's name.
     pub rung: &'static str,
     /// The scores; Err holds why there are none (a failed solver, or a
-    /// rung skipped because it would change nothing: see `skipped`).
+    /// rung skipped because it would change nothing: see `skipped`): a line
+    /// of the report, not an error of the command, so a `String`.
     pub result: Result<Report, String>,
     /// Why the rung was not run, when it would only repeat "as written".
     pub skipped: Option<String>,
@@ -331,7 +378,7 @@ pub fn suite(
     out: &Path,
     p: &Plan,
     progress: &mut dyn FnMut(&str, &str),
-) -> Result<Suite, String> {
+) -> Result<Suite, Error> {
     let mut rows = Vec::new();
     for s in scenarios {
         for rung in &LADDER {

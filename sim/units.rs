@@ -160,7 +160,9 @@ impl Kind {
     }
 }
 
-/// Parses `"<number> <unit>"` (the space is optional) into SI.
+/// Parses `"<number> <unit>"` (the space is optional) into SI. The error is
+/// the reason alone (a `String` on purpose): the scenario reader adds the
+/// file, line and column of the value, a command its option.
 ///
 /// ```
 /// use loadloom::units::{parse_quantity, Kind};
@@ -217,7 +219,8 @@ pub const MAX_DURATION_S: f64 = 3.0 * 366.0 * 86400.0;
 /// most three years is no behaviour the data could show.
 pub const MAX_APPLIANCE_DURATION_S: f64 = 366.0 * 86400.0;
 
-/// `si` if it is zero or within [`Kind::limits`], else the reason.
+/// `si` if it is zero or within [`Kind::limits`], else the reason (a
+/// `String`, placed by the caller as for [`parse_quantity`]).
 fn within_limits(text: &str, si: f64, kind: Kind) -> Result<f64, String> {
     let (lo, hi) = kind.limits();
     let size = si.abs();

@@ -1,7 +1,7 @@
 //! `loadloom audit`: a dataset's loading picture, its declared metering and
 //! wiring checked, or (`--matrix`) the checks scored on injected mistakes.
 
-use super::{bad, print};
+use super::{print, Error, Outcome};
 use loadloom::audit::{load_declaration, MatrixOptions};
 use loadloom::matrix;
 use loadloom::progress::Progress;
@@ -49,60 +49,44 @@ pub struct Args {
 }
 
 /// The loading picture, the audit against a declaration, or the matrix.
-pub fn main(a: Args) -> ExitCode {
+pub fn main(a: Args) -> Outcome {
     let form = Form::from_flags(a.json, a.markdown);
     if a.matrix {
         return run_matrix(&a, form);
     }
     let Some(dataset) = &a.dataset else {
-        return bad("error: give the DATASET folder (or --matrix)");
+        let help = "give the DATASET folder, or --matrix";
+        return Err(Error::option("--matrix", "no dataset to audit", help));
     };
     let Some(declared) = &a.declared else {
         if dataset.is_file() {
-            return bad(format!("error: {} is a meters file: its loading picture needs the supply, the service rating and the time zone, which only a dataset folder's manifest gives\n  = help: give --declared DECLARED.toml; [home] alone (supply, timezone, service) is enough, e.g. [home] supply = \"split-phase\", timezone = \"America/Chicago\", service = \"100 A\"", dataset.display()));
+            let help = "give --declared DECLARED.toml; [home] alone (supply, timezone, service) is enough, e.g. [home] supply = \"split-phase\", timezone = \"America/Chicago\", service = \"100 A\"";
+            let message = "a meters file: its loading picture needs the supply, the service rating and the time zone, which only a dataset folder's manifest gives";
+            return Err(Error::file(dataset, message, help));
         }
-        return match loading(dataset) {
-            Ok(l) => {
-                print(&l, form);
-                if form == Form::Text {
-                    print!(
-                        "\n(give --declared DECLARED.toml to check the wiring and metering too)\n"
-                    );
-                }
-                ExitCode::SUCCESS
-            }
-            Err(m) => bad(m),
-        };
-    };
-    let d = match load_declaration(declared) {
-        Ok(d) => d,
-        Err(e) => return bad(e),
-    };
-    match audit(dataset, &d) {
-        Ok(report) => {
-            print(&report, form);
-            ExitCode::SUCCESS
+        print(&loading(dataset)?, form);
+        if form == Form::Text {
+            print!("\n(give --declared DECLARED.toml to check the wiring and metering too)\n");
         }
-        Err(m) => bad(m),
-    }
+        return Ok(ExitCode::SUCCESS);
+    };
+    let d = load_declaration(declared)?;
+    print(&audit(dataset, &d)?, form);
+    Ok(ExitCode::SUCCESS)
 }
 
-/// `audit --matrix`: the homes of a folder under each chosen variant.
-fn run_matrix(a: &Args, form: Form) -> ExitCode {
-    let chosen = match matrix::parse_variants(&a.variant) {
-        Ok(c) => c,
-        Err(m) => return bad(m),
-    };
+/// `--matrix`: the checks scored on injected mistakes, over the homes of a
+/// folder, for each measuring variant asked for.
+fn run_matrix(a: &Args, form: Form) -> Outcome {
+    let chosen = matrix::parse_variants(&a.variant)?;
     if !(0.5..=60.0).contains(&a.days) || a.runs == 0 {
-        return bad(format!(
-            "error: --days {} --runs {}: the matrix needs 0.5 … 60 days and at least one clean run",
-            a.days, a.runs
+        return Err(Error::option(
+            &format!("--days {} --runs {}", a.days, a.runs),
+            "out of range",
+            "the matrix needs 0.5 … 60 days and at least one clean run",
         ));
     }
-    let homes = match read_homes(&a.scenarios) {
-        Ok(h) => h,
-        Err(c) => return c,
-    };
+    let homes = read_homes(&a.scenarios)?;
     let opts = MatrixOptions {
         days: a.days,
         clean_runs: a.runs,
@@ -117,20 +101,21 @@ fn run_matrix(a: &Args, form: Form) -> ExitCode {
         Form::Text
     };
     print(&report, form);
-    ExitCode::SUCCESS
+    Ok(ExitCode::SUCCESS)
 }
 
-/// The matrix's homes: every scenario of `dir`.
-fn read_homes(dir: &Path) -> Result<Vec<(String, loadloom::scenario::Scenario)>, ExitCode> {
-    let files = matrix::scenario_files(dir).map_err(|e| {
-        bad(format!("error: cannot read {}: {e}\n  = help: run from the project folder or give --scenarios DIR", dir.display()))
-    })?;
-    let homes = matrix::load_homes(&files).map_err(bad)?;
+/// The scenarios of the matrix: every `*.toml` of `dir`, loaded.
+fn read_homes(dir: &Path) -> Result<Vec<(String, loadloom::scenario::Scenario)>, Error> {
+    let help = "run from the project folder or give --scenarios DIR";
+    let files = matrix::scenario_files(dir)
+        .map_err(|e| Error::file(dir, "cannot read the folder of scenarios", help).caused_by(&e))?;
+    let homes = matrix::load_homes(&files)?;
     if homes.is_empty() {
-        return Err(bad(format!(
-            "error: {} holds no scenario (*.toml)\n  = help: give --scenarios DIR",
-            dir.display()
-        )));
+        return Err(Error::file(
+            dir,
+            "the folder holds no scenario (*.toml)",
+            help,
+        ));
     }
     Ok(homes)
 }

@@ -1,6 +1,6 @@
 //! `loadloom fleet`: many homes from a population file.
 
-use super::{bad, BAD_INPUT, FAILED};
+use super::{Error, Outcome};
 use loadloom::fleet::{self, Shard};
 use loadloom::progress::Progress;
 use std::path::PathBuf;
@@ -28,23 +28,18 @@ pub struct Args {
 }
 
 /// Reads the population, checks the options, makes the homes.
-pub fn main(a: Args) -> ExitCode {
-    let pop = match fleet::load(&a.population) {
-        Ok(p) => p,
-        Err(e) => return bad(e),
-    };
+pub fn main(a: Args) -> Outcome {
+    let pop = fleet::load(&a.population)?;
     if a.homes == 0 || a.homes > 99_999 {
-        return bad(format!(
-            "error: --homes {}: a fleet has 1 … 99 999 homes",
-            a.homes
+        return Err(Error::option(
+            &format!("--homes {}", a.homes),
+            "out of range",
+            "a fleet has 1 … 99 999 homes",
         ));
     }
     let shard = match a.shard.as_deref() {
         None => Shard { index: 0, count: 1 },
-        Some(t) => match Shard::parse(t, &|k| std::env::var(k).ok()) {
-            Ok(s) => s,
-            Err(m) => return bad(format!("error: {m}")),
-        },
+        Some(t) => Shard::parse(t, &|k| std::env::var(k).ok())?,
     };
     let jobs = a.jobs.unwrap_or_else(|| {
         std::thread::available_parallelism()
@@ -56,27 +51,20 @@ pub fn main(a: Args) -> ExitCode {
     let progress = |done: u64, total: u64| bar.count(done, total);
     let result = fleet::run(&pop, a.homes, &a.out, jobs, shard, &progress);
     bar.finish();
-    match result {
-        Ok(r) => {
-            println!(
-                "fleet {}: made {} homes, {} already complete (shard {}/{}), in {:.1} s{}",
-                a.out.display(),
-                r.made,
-                r.skipped,
-                shard.index,
-                shard.count,
-                started.elapsed().as_secs_f64(),
-                if r.index_written {
-                    "; homes.parquet and fleet.json written"
-                } else {
-                    "; the index waits for the other shards"
-                }
-            );
-            ExitCode::SUCCESS
+    let r = result?;
+    println!(
+        "fleet {}: made {} homes, {} already complete (shard {}/{}), in {:.1} s{}",
+        a.out.display(),
+        r.made,
+        r.skipped,
+        shard.index,
+        shard.count,
+        started.elapsed().as_secs_f64(),
+        if r.index_written {
+            "; homes.parquet and fleet.json written"
+        } else {
+            "; the index waits for the other shards"
         }
-        Err(f) => {
-            eprintln!("{}", f.error);
-            ExitCode::from(if f.bad_input { BAD_INPUT } else { FAILED })
-        }
-    }
+    );
+    Ok(ExitCode::SUCCESS)
 }

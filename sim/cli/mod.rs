@@ -1,8 +1,10 @@
 //! The commands of the `loadloom` binary, one file each. Every file holds
 //! the command's arguments (`Args`, a clap struct) and `main(Args) ->
-//! ExitCode`, which reads the arguments, calls the libraries and prints the
-//! result through [`print`]. Checks and report shaping live in the
-//! libraries, so a command file stays short.
+//! Result<ExitCode, Error>`, which reads the arguments, calls the libraries
+//! and prints the result through [`print`]; an error is printed once, by
+//! `sim/main.rs`, and ends the process with its status (2 bad input, 1 a
+//! failed run). Checks and report shaping live in the libraries, so a
+//! command file stays short.
 
 pub mod audit;
 pub mod docs;
@@ -14,14 +16,16 @@ pub mod score;
 pub mod templates;
 pub mod validate;
 
-use loadloom::scenario::{self, Scenario};
+pub use loadloom::scenario::Error;
 use solver_check::render::{Form, Render};
-use std::path::Path;
 use std::process::ExitCode;
 
-/// Exit status of bad input (a file, an option, a value the run cannot use).
-pub const BAD_INPUT: u8 = 2;
-/// Exit status of a run that failed (writing, a solver, a round trip).
+/// What every command returns: its exit status when it ran (0, or 1 when a
+/// report says that some part failed), or the error that stopped it.
+pub type Outcome = Result<ExitCode, Error>;
+
+/// Exit status of a run whose report says that some part failed (a solver,
+/// a rung): the report is printed, then the process ends with it.
 pub const FAILED: u8 = 1;
 
 /// A table format on the command line (the variants carry no doc comment:
@@ -32,27 +36,22 @@ pub enum FormatArg {
     Csv,
 }
 
-/// Loads a scenario; on an error prints it and gives exit status 2.
-pub fn load(path: &Path) -> Result<Scenario, ExitCode> {
-    scenario::load(path).map_err(bad)
+/// Exit status 0, or 1 when `ok` is false (a report with a failed part).
+pub fn status(ok: bool) -> ExitCode {
+    if ok {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(FAILED)
+    }
 }
 
-/// Prints an error message and gives exit status 2.
-pub fn bad(message: impl std::fmt::Display) -> ExitCode {
-    eprintln!("{message}");
-    ExitCode::from(BAD_INPUT)
-}
-
-/// Prints an error message and gives exit status 1.
-pub fn failed(message: impl std::fmt::Display) -> ExitCode {
-    eprintln!("{message}");
-    ExitCode::from(FAILED)
-}
-
-/// Prints an error and gives its exit status (2 bad input, 1 a failed run).
-pub fn report(e: &loadloom::scenario::Error) -> ExitCode {
-    eprintln!("{e}");
-    ExitCode::from(e.status.code())
+/// Prints an error and gives its exit status: the one place a command's
+/// error reaches standard error.
+pub fn finish(outcome: Outcome) -> ExitCode {
+    outcome.unwrap_or_else(|e| {
+        eprintln!("{e}");
+        ExitCode::from(e.status.code())
+    })
 }
 
 /// Prints a report in the form asked for.

@@ -1,7 +1,7 @@
 //! `loadloom plot`: a picture of a dataset (a day per conductor, or energy
 //! per local month).
 
-use super::bad;
+use super::Outcome;
 use solver_check::plot::{parse_size, plot, plot_monthly, Parts, PlotOptions};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -36,11 +36,8 @@ pub struct Args {
 }
 
 /// Draws the picture asked for and says what it shows.
-pub fn main(a: Args) -> ExitCode {
-    let (w, h) = match parse_size(&a.size) {
-        Ok(d) => d,
-        Err(m) => return bad(m),
-    };
+pub fn main(a: Args) -> Outcome {
+    let (w, h) = parse_size(&a.size)?;
     if a.monthly {
         let parts = match a.by.as_deref() {
             Some("end-use") => Parts::EndUse,
@@ -54,48 +51,40 @@ pub fn main(a: Args) -> ExitCode {
         width: w,
         height: h,
     };
-    match plot(&a.dataset, &a.out, &opts) {
-        Ok(p) => {
-            println!(
-                "wrote {} ({}x{} px, {} to {}, {} appliances in the legend)",
-                a.out.display(),
-                w,
-                h,
-                p.from,
-                p.to,
-                p.legend.len()
-            );
-            ExitCode::SUCCESS
-        }
-        Err(e) => bad(e),
-    }
+    let p = plot(&a.dataset, &a.out, &opts)?;
+    println!(
+        "wrote {} ({}x{} px, {} to {}, {} appliances in the legend)",
+        a.out.display(),
+        w,
+        h,
+        p.from,
+        p.to,
+        p.legend.len()
+    );
+    Ok(ExitCode::SUCCESS)
 }
 
 /// `plot --monthly`: the picture, then one line saying what it shows.
-fn monthly(dataset: &Path, out: &Path, (w, h): (u32, u32), parts: Parts) -> ExitCode {
+fn monthly(dataset: &Path, out: &Path, (w, h): (u32, u32), parts: Parts) -> Outcome {
     let what = match parts {
         Parts::Appliance => "appliances",
         Parts::EndUse => "end uses",
     };
-    match plot_monthly(dataset, out, (w, h), parts) {
-        Ok(m) => {
-            println!(
-                "wrote {} ({}x{} px, {} months from {} to {}, {} {what}{})",
-                out.display(),
-                w,
-                h,
-                m.months.len(),
-                m.months.first().map(String::as_str).unwrap_or("-"),
-                m.months.last().map(String::as_str).unwrap_or("-"),
-                m.shown.len(),
-                if m.others > 0 {
-                    format!(" and {} others together", m.others)
-                } else {
-                    String::new()
-                }
-            );
-            ExitCode::SUCCESS
+    let m = plot_monthly(dataset, out, (w, h), parts)?;
+    println!(
+        "wrote {} ({}x{} px, {} months from {} to {}, {} {what}{})",
+        out.display(),
+        w,
+        h,
+        m.months.len(),
+        m.months.first().map(String::as_str).unwrap_or("-"),
+        m.months.last().map(String::as_str).unwrap_or("-"),
+        m.shown.len(),
+        if m.others > 0 {
+            format!(" and {} others together", m.others)
+        } else {
+            String::new()
         }
-        Err(e) => bad(e),
-    }
+    );
+    Ok(ExitCode::SUCCESS)
 }

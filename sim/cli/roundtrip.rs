@@ -1,11 +1,11 @@
 //! `loadloom roundtrip`: generate a task, run solvers on it, score them;
 //! one solver's report, a leaderboard of several, or the suite's ladder.
 
-use super::{bad, failed, load, print, FormatArg};
+use super::{print, status, Error, FormatArg, Outcome};
 use loadloom::progress::Progress;
 use loadloom::roundtrip::{self as rt, Plan};
 use loadloom::scenario::overrides::duration_arg;
-use loadloom::scenario::Scenario;
+use loadloom::scenario::{self, Scenario};
 use solver_check::leaderboard::{failure_message, rank, SolverReport};
 use solver_check::render::Form;
 use solver_check::roundtrip::{Prepared, Reveal, Solver, SolverRun};
@@ -102,29 +102,21 @@ pub struct Args {
 }
 
 /// Checks the options, then runs the round trip asked for.
-pub fn main(mut a: Args) -> ExitCode {
+pub fn main(mut a: Args) -> Outcome {
     respell(&mut a);
     if a.fleet.is_none() && (a.train_homes.is_some() || a.test_homes.is_some()) {
-        return bad("error: --train-homes and --test-homes go with --fleet POPULATION");
+        let help = "give --fleet POPULATION, or leave out --train-homes and --test-homes";
+        return Err(Error::option("--train-homes", "it goes with --fleet", help));
     }
     // Orphans of a solver (even one that called setsid) are handed to this
     // process, so none outlives the round trip.
     solver_check::child::become_subreaper();
-    let solvers = match parse_solvers(&a) {
-        Ok(s) => s,
-        Err(c) => return c,
-    };
+    let solvers = parse_solvers(&a)?;
     if a.fleet.is_some() {
         return crosshome(&a, &solvers);
     }
-    let scenarios = match scenarios(&a) {
-        Ok(s) => s,
-        Err(c) => return c,
-    };
-    let plan = match plan(&a, &scenarios, solvers[0].clone()) {
-        Ok(p) => p,
-        Err(m) => return bad(format!("error: {m}")),
-    };
+    let scenarios = scenarios(&a)?;
+    let plan = plan(&a, &scenarios, solvers[0].clone())?;
     let form = Form::from_flags(a.json, a.markdown);
     if a.layouts {
         return layouts(&a, &plan, &solvers, form);
@@ -141,7 +133,7 @@ pub fn main(mut a: Args) -> ExitCode {
 /// One solver on one scenario: a progress line on a terminal (what is
 /// being done and for how long, so a long solver is seen to be running),
 /// then its report.
-fn single(a: &Args, s: &Scenario, plan: &Plan, form: Form) -> ExitCode {
+fn single(a: &Args, s: &Scenario, plan: &Plan, form: Form) -> Outcome {
     let work = a.out.join(format!("{}-roundtrip", s.name));
     let bar = if a.quiet || a.json {
         Progress::hidden()
@@ -149,81 +141,72 @@ fn single(a: &Args, s: &Scenario, plan: &Plan, form: Form) -> ExitCode {
         Progress::messages().ticking()
     };
     bar.say(format!("simulating {} and writing the task", s.name));
-    let prep = match rt::prepare(s, &work, plan) {
-        Ok(p) => p,
-        Err(m) => {
-            bar.finish();
-            return failed(format!("error: {m}"));
-        }
-    };
+    let prep = rt::prepare(s, &work, plan);
+    let prep = prep.inspect_err(|_| bar.finish())?;
     bar.say(format!(
         "solver running (time limit {:.0} s), then scoring: {}",
         plan.limit.as_secs_f64(),
         plan.solver.describe()
     ));
-    let o = solver_check::roundtrip::run_solver(
-        &prep,
-        &plan.solver,
-        &work,
-        plan.limit,
-        &plan.allow_read,
-    );
+    let o = rt::run_solver(&prep, &plan.solver, &work, plan);
     bar.finish();
-    match o {
-        Ok(o) => single_report(&o, form),
-        Err(e) => failed(format!(
-            "error: running the solver under {} failed: {e}",
-            work.display()
-        )),
-    }
+    Ok(single_report(&o?, form))
 }
 
 /// Every `--solver`, with a word on deprecated spellings; the suite takes one.
-fn parse_solvers(a: &Args) -> Result<Vec<Solver>, ExitCode> {
+fn parse_solvers(a: &Args) -> Result<Vec<Solver>, Error> {
     let mut solvers = Vec::new();
     for text in &a.solver {
         if let Some(w) = Solver::deprecation(text) {
             eprintln!("{w}");
         }
-        match Solver::parse(text) {
-            Ok(s) => solvers.push(s),
-            Err(m) => return Err(bad(format!("error: --solver: {m}"))),
-        }
+        solvers.push(Solver::parse(text)?);
     }
     if a.suite && solvers.len() > 1 {
-        return Err(bad(
-            "error: --suite runs one --solver; rank several on one scenario without --suite",
+        return Err(Error::option(
+            "--suite",
+            "the suite runs one --solver",
+            "rank several solvers on one scenario without --suite",
         ));
     }
     Ok(solvers)
 }
 
 /// The scenarios to simulate (none when a dataset is reused), with `--seed`.
-fn scenarios(a: &Args) -> Result<Vec<Scenario>, ExitCode> {
+fn scenarios(a: &Args) -> Result<Vec<Scenario>, Error> {
     if a.dataset.is_some() {
         return Ok(Vec::new());
     }
-    let paths = rt::scenario_paths(a.scenario.as_deref(), a.suite)
-        .map_err(|m| bad(format!("error: {m}")))?;
+    let paths = rt::scenario_paths(a.scenario.as_deref(), a.suite)?;
     let mut scenarios = Vec::new();
     for p in &paths {
-        let mut s = load(p)?;
+        let mut s = scenario::load(p)?;
         if let Some(seed) = a.seed {
             s.run.seed = seed;
         }
         scenarios.push(s);
     }
-    if scenarios.is_empty() {
-        return Err(bad("error: no scenario files found for the suite"));
-    }
     Ok(scenarios)
 }
 
 /// The periods, time limit, reveal level and confinement of the round trip.
-fn plan(a: &Args, scenarios: &[Scenario], solver: Solver) -> Result<Plan, String> {
-    let (train_s, test_s, limit) = match (duration_arg(&a.train), duration_arg(&a.test), duration_arg(&a.timeout)) {
+fn plan(a: &Args, scenarios: &[Scenario], solver: Solver) -> Result<Plan, Error> {
+    let (train_s, test_s, limit) = match (
+        duration_arg(&a.train),
+        duration_arg(&a.test),
+        duration_arg(&a.timeout),
+    ) {
         (Ok(x), Ok(y), Ok(t)) if x >= 0.0 && y > 0.0 && t > 0.0 => (x, y, t),
-        _ => return Err(format!("--train {} --test {} --timeout {}: write durations such as 14d, 7d and 10m (test and timeout above zero)", a.train, a.test, a.timeout)),
+        _ => {
+            return Err(Error::option(
+                &format!(
+                    "--train {} --test {} --timeout {}",
+                    a.train, a.test, a.timeout
+                ),
+                "not durations the round trip can use",
+                "write durations such as 14d, 7d and 10m (test and timeout above zero)",
+            ))
+        }
     };
     rt::check_periods(scenarios, train_s, test_s, a.suite)?;
     rt::check_meter_rows(scenarios)?;
@@ -233,7 +216,14 @@ fn plan(a: &Args, scenarios: &[Scenario], solver: Solver) -> Result<Plan, String
         .iter()
         .find(|p| solver_check::confine::contains(p, &out_abs))
     {
-        return Err(format!("--allow-read {}: it holds the output folder {} with the truth; allow a folder beside it", p.display(), a.out.display()));
+        return Err(Error::option(
+            &format!("--allow-read {}", p.display()),
+            format!(
+                "it holds the output folder {} with the truth",
+                a.out.display()
+            ),
+            "allow a folder beside the output folder",
+        ));
     }
     Ok(Plan {
         train_s,
@@ -254,30 +244,23 @@ fn plan(a: &Args, scenarios: &[Scenario], solver: Solver) -> Result<Plan, String
 }
 
 /// The suite: every scenario at every rung; exit 1 if a solver failed on any.
-fn suite(scenarios: &[Scenario], out: &Path, plan: &Plan, form: Form) -> ExitCode {
+fn suite(scenarios: &[Scenario], out: &Path, plan: &Plan, form: Form) -> Outcome {
     let bar = Progress::messages();
     let result = rt::suite(scenarios, out, plan, &mut |s, r| {
         bar.say(format!("{s}: {r}"))
     });
     bar.finish();
-    match result {
-        Ok(suite) => {
-            print(&suite, form);
-            if suite.any_failed() {
-                ExitCode::from(super::FAILED)
-            } else {
-                ExitCode::SUCCESS
-            }
-        }
-        Err(m) => failed(format!("error: {m}")),
-    }
+    let suite = result?;
+    print(&suite, form);
+    Ok(status(!suite.any_failed()))
 }
 
 /// The layout ladder of one home: every rung with every solver; the report,
 /// and `ladder.json` and `scores.svg` in the ladder's folder.
-fn layouts(a: &Args, plan: &Plan, solvers: &[Solver], form: Form) -> ExitCode {
+fn layouts(a: &Args, plan: &Plan, solvers: &[Solver], form: Form) -> Outcome {
     let Some(path) = a.scenario.as_deref() else {
-        return bad("error: --layouts needs a SCENARIO");
+        let help = "give the SCENARIO whose layouts to run";
+        return Err(Error::option("--layouts", "no scenario", help));
     };
     let bar = if a.quiet || a.json {
         Progress::hidden()
@@ -289,14 +272,9 @@ fn layouts(a: &Args, plan: &Plan, solvers: &[Solver], form: Form) -> ExitCode {
         bar.say(m.to_string())
     });
     bar.finish();
-    let ladder = match ladder {
-        Ok(l) => l,
-        Err(m) => return failed(format!("error: {m}")),
-    };
+    let ladder = ladder?;
     let dir = a.out.join(format!("{}-layouts", ladder.home));
-    if let Err(m) = loadloom::layouts::write_reports(&ladder, &dir) {
-        return failed(format!("error: {m}"));
-    }
+    loadloom::layouts::write_reports(&ladder, &dir)?;
     print(&ladder, form);
     if form != Form::Json {
         eprintln!(
@@ -304,16 +282,12 @@ fn layouts(a: &Args, plan: &Plan, solvers: &[Solver], form: Form) -> ExitCode {
             dir.join("scores.svg").display()
         );
     }
-    if ladder.any_failed() {
-        ExitCode::from(super::FAILED)
-    } else {
-        ExitCode::SUCCESS
-    }
+    Ok(status(!ladder.any_failed()))
 }
 
 /// Where the round trip's data comes from: a reused dataset, or a scenario
-/// simulated now. Err is the exit status, the message printed.
-fn prepare_task(a: &Args, scenario: Option<&Scenario>, plan: &Plan) -> Result<Prepared, ExitCode> {
+/// simulated now.
+fn prepare_task(a: &Args, scenario: Option<&Scenario>, plan: &Plan) -> Result<Prepared, Error> {
     match (&a.dataset, scenario) {
         (Some(d), _) => {
             let name = d
@@ -321,13 +295,17 @@ fn prepare_task(a: &Args, scenario: Option<&Scenario>, plan: &Plan) -> Result<Pr
                 .map(|n| n.to_string_lossy().to_string())
                 .unwrap_or_else(|| "dataset".into());
             let work = a.out.join(format!("{name}-roundtrip"));
-            rt::prepare_dataset(d, &work, plan).map_err(bad)
+            rt::prepare_dataset(d, &work, plan)
         }
         (None, Some(s)) => {
             let work = a.out.join(format!("{}-roundtrip", s.name));
-            rt::prepare(s, &work, plan).map_err(|m| failed(format!("error: {m}")))
+            rt::prepare(s, &work, plan)
         }
-        (None, None) => Err(ExitCode::from(super::BAD_INPUT)),
+        (None, None) => Err(Error::option(
+            "--dataset",
+            "nothing to run the solvers on",
+            "give a SCENARIO or --dataset DIR",
+        )),
     }
 }
 
@@ -340,11 +318,8 @@ fn leaderboard(
     plan: &Plan,
     solvers: &[Solver],
     form: Form,
-) -> ExitCode {
-    let prep = match prepare_task(a, scenario, plan) {
-        Ok(p) => p,
-        Err(code) => return code,
-    };
+) -> Outcome {
+    let prep = prepare_task(a, scenario, plan)?;
     let bar = if a.quiet || a.json {
         Progress::hidden()
     } else {
@@ -359,33 +334,27 @@ fn leaderboard(
         &mut |k, name| bar.say(format!("solver {}/{n}: {name}", k + 1)),
     );
     bar.finish();
-    let outcomes = match outcomes {
-        Ok(o) => o,
-        Err(m) => return failed(format!("error: {m}")),
-    };
-    if n == 1 {
-        return match outcomes.first() {
-            Some(o) => single_report(o, form),
-            None => failed("error: the solver produced no outcome"),
-        };
+    let outcomes = outcomes?;
+    if let [o] = outcomes.as_slice() {
+        return Ok(single_report(o, form));
     }
     let board = rank(outcomes, 1000, 0);
     print(&board, form);
-    if board.failed.is_empty() {
-        ExitCode::SUCCESS
-    } else {
-        ExitCode::from(super::FAILED)
-    }
+    Ok(status(board.failed.is_empty()))
 }
 
-/// One solver's outcome: its score report, or why it got none (exit 1).
+/// One solver's outcome: its score report, or why it got none (printed to
+/// standard error, exit status 1: the round trip ran, the solver failed).
 fn single_report(o: &SolverRun, form: Form) -> ExitCode {
     match &o.result {
         Ok(report) => {
             print(&SolverReport { outcome: o, report }, form);
             ExitCode::SUCCESS
         }
-        Err(f) => failed(failure_message(o, f)),
+        Err(f) => {
+            eprintln!("{}", failure_message(o, f));
+            status(false)
+        }
     }
 }
 
@@ -408,21 +377,17 @@ fn respell(a: &mut Args) {
 }
 
 /// Unseen homes: train on some homes of a fleet, score on others.
-fn crosshome(a: &Args, solvers: &[Solver]) -> ExitCode {
+fn crosshome(a: &Args, solvers: &[Solver]) -> Outcome {
     if solvers.len() != 1 {
-        return bad("error: --fleet runs one --solver");
+        let help = "give one --solver with --fleet";
+        return Err(Error::option("--fleet", "it runs one --solver", help));
     }
     let Some(path) = &a.fleet else {
-        return bad("error: --fleet needs a population file");
+        let help = "give --fleet POPULATION";
+        return Err(Error::option("--fleet", "no population file", help));
     };
-    let pop = match loadloom::fleet::load(path) {
-        Ok(p) => p,
-        Err(e) => return bad(e),
-    };
-    let plan = match plan(a, &[], solvers[0].clone()) {
-        Ok(p) => p,
-        Err(m) => return bad(format!("error: {m}")),
-    };
+    let pop = loadloom::fleet::load(path)?;
+    let plan = plan(a, &[], solvers[0].clone())?;
     let stem = path
         .file_stem()
         .map_or("fleet".into(), |n| n.to_string_lossy().to_string());
@@ -436,16 +401,7 @@ fn crosshome(a: &Args, solvers: &[Solver]) -> ExitCode {
     let result =
         loadloom::crosshome::run(&pop, homes, &work, &plan, &|done, all| bar.count(done, all));
     bar.finish();
-    match result {
-        Ok(o) => {
-            print(&o, Form::from_flags(a.json, a.markdown));
-            if o.all_scored() {
-                ExitCode::SUCCESS
-            } else {
-                ExitCode::from(super::FAILED)
-            }
-        }
-        Err(loadloom::crosshome::Stop::Bad(m)) => bad(m),
-        Err(loadloom::crosshome::Stop::Failed(m)) => failed(m),
-    }
+    let o = result?;
+    print(&o, Form::from_flags(a.json, a.markdown));
+    Ok(status(o.all_scored()))
 }

@@ -1,8 +1,7 @@
 //! `loadloom run`: simulate a scenario and write its dataset folder.
 
-use super::{bad, load, print, report, FormatArg, BAD_INPUT};
+use super::{print, FormatArg, Outcome};
 use loadloom::dataset::Format;
-use loadloom::electrical::settle::Diverged;
 use loadloom::pipeline;
 use loadloom::progress::Progress;
 use loadloom::scenario::{self, overrides};
@@ -50,27 +49,18 @@ pub struct Args {
 
 /// Loads the scenario, applies the overrides, writes the dataset, prints
 /// the summary.
-pub fn main(a: Args) -> ExitCode {
-    let mut s = match load(&a.scenario) {
-        Ok(s) => s,
-        Err(c) => return c,
-    };
+pub fn main(a: Args) -> Outcome {
+    let mut s = scenario::load(&a.scenario)?;
     if let Some(seed) = a.seed {
         s.run.seed = seed;
     }
     if let Some(t) = &a.start {
-        if let Err(m) = overrides::set_start(&mut s, t) {
-            return bad(format!("error: --start {t}: {m}\n  = help: write a local date-time such as 2027-03-01T00:00, outside any clock change"));
-        }
+        overrides::set_start(&mut s, t)?;
     }
     if let Some(l) = &a.length {
-        if let Err(m) = overrides::set_length(&mut s, l) {
-            return bad(format!("error: --length {l}: {m}\n  = help: write a duration such as 7d, 30d or \"12 h\" that the reporting interval divides"));
-        }
+        overrides::set_length(&mut s, l)?;
     }
-    if let Err(m) = overrides::add_waveforms(&mut s, &a.waveform, a.waveform_rate.as_deref()) {
-        return bad(format!("error: {m}\n  = help: give --waveform START/LENGTH inside the run, e.g. {}/10s, and a rate such as 12.8kHz", s.run.start_local));
-    }
+    overrides::add_waveforms(&mut s, &a.waveform, a.waveform_rate.as_deref())?;
     let format = match a.format {
         FormatArg::Parquet => Format::Parquet,
         FormatArg::Csv => Format::Csv,
@@ -83,10 +73,7 @@ pub fn main(a: Args) -> ExitCode {
     let started = std::time::Instant::now();
     let written = pipeline::write(&s, &a.out, format, &mut |f| bar.fraction(f));
     bar.finish();
-    let w = match written {
-        Ok(w) => w,
-        Err(e) => return write_failed(&e, &a.out),
-    };
+    let w = written.map_err(|e| pipeline::write_error(&e, &a.out))?;
     if !a.quiet {
         let report = RunReport {
             scenario: &s,
@@ -95,23 +82,5 @@ pub fn main(a: Args) -> ExitCode {
         };
         print(&report, Form::from_flags(a.json, false));
     }
-    ExitCode::SUCCESS
-}
-
-/// Why the dataset was not written: physics with no plausible answer and a
-/// setting the run cannot use are bad input (2); anything else failed (1).
-fn write_failed(e: &std::io::Error, out: &std::path::Path) -> ExitCode {
-    match e.get_ref().and_then(|i| i.downcast_ref::<Diverged>()) {
-        Some(d) => bad(format!("{d}\n  = nothing was written")),
-        // A setting the run cannot use (LOADLOOM_THREADS).
-        None if e.kind() == std::io::ErrorKind::InvalidInput => {
-            eprintln!("error: {e}\n  = nothing was written");
-            ExitCode::from(BAD_INPUT)
-        }
-        None => {
-            let help = "check free space and permissions; nothing was left behind";
-            let e = scenario::Error::file(out, "writing the dataset failed", help).caused_by(e);
-            report(&e.failed())
-        }
-    }
+    Ok(ExitCode::SUCCESS)
 }

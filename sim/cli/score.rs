@@ -1,7 +1,7 @@
 //! `loadloom score`: an estimate scored against a dataset's truth, or two
 //! estimates compared.
 
-use super::{bad, failed, print};
+use super::{print, Error, Outcome};
 use solver_check::compare::compare;
 use solver_check::render::Form;
 use solver_check::score::{parse_threshold, score, Options};
@@ -47,15 +47,13 @@ pub struct Args {
     plot: Option<PathBuf>,
 }
 
-/// Scores the estimate (and the other one with `--against`) and prints the report.
-pub fn main(a: Args) -> ExitCode {
-    let mut thresholds = Vec::new();
-    for t in &a.threshold {
-        match parse_threshold(t) {
-            Ok(x) => thresholds.push(x),
-            Err(m) => return bad(format!("error: {m}")),
-        }
-    }
+/// Scores the estimate (or compares it with another) and prints the report.
+pub fn main(a: Args) -> Outcome {
+    let thresholds = a
+        .threshold
+        .iter()
+        .map(|t| parse_threshold(t))
+        .collect::<Result<Vec<_>, _>>()?;
     let opts = Options {
         partial: a.partial,
         thresholds,
@@ -64,36 +62,20 @@ pub fn main(a: Args) -> ExitCode {
     if let Some(other) = &a.against {
         return against(&a, other, &opts, form);
     }
-    let r = match score(&a.truth, &a.estimate, &opts) {
-        Ok(r) => r,
-        Err(e) => return bad(e),
-    };
+    let r = score(&a.truth, &a.estimate, &opts)?;
     if let Some(p) = &a.plot {
-        if let Err(m) = solver_check::plot::plot_scores(&r, &a.truth, &a.estimate, p) {
-            return failed(m);
-        }
+        // The tables were just read: what fails here is drawing or writing.
+        solver_check::plot::plot_scores(&r, &a.truth, &a.estimate, p).map_err(Error::failed)?;
     }
     print(&r, form);
-    ExitCode::SUCCESS
+    Ok(ExitCode::SUCCESS)
 }
 
-/// `--against OTHER`: both scored, each score's difference with its interval.
-fn against(a: &Args, other: &Path, opts: &Options, form: Form) -> ExitCode {
-    let scored =
-        score(&a.truth, &a.estimate, opts).and_then(|x| Ok((x, score(&a.truth, other, opts)?)));
-    let (x, y) = match scored {
-        Ok(pair) => pair,
-        Err(e) => return bad(e),
-    };
-    match compare(&x, &y, a.resamples.max(1), a.bootstrap_seed) {
-        Ok(c) => {
-            print(&c, form);
-            ExitCode::SUCCESS
-        }
-        Err(m) => bad(format!(
-            "error: {m}\n  --> {} and {}",
-            a.estimate.display(),
-            other.display()
-        )),
-    }
+/// `--against`: both estimates scored, then compared day by day.
+fn against(a: &Args, other: &Path, opts: &Options, form: Form) -> Outcome {
+    let x = score(&a.truth, &a.estimate, opts)?;
+    let y = score(&a.truth, other, opts)?;
+    let c = compare(&x, &y, a.resamples.max(1), a.bootstrap_seed)?;
+    print(&c, form);
+    Ok(ExitCode::SUCCESS)
 }

@@ -2,7 +2,7 @@
 //! supply voltage its powers are written for, its power per state and its
 //! source.
 
-use super::{print, report};
+use super::{print, Outcome};
 use loadloom::scenario::library::{catalogue, Catalogue};
 use solver_check::render::Form;
 use std::process::ExitCode;
@@ -17,12 +17,7 @@ pub struct Args {
 }
 
 /// Reads every built-in template as a run would and prints the list.
-pub fn main(a: Args) -> ExitCode {
-    match catalogue() {
-        Ok(list) => {
-            print(&Catalogue(list), Form::from_flags(a.json, false));
-            ExitCode::SUCCESS
-        }
-        Err(e) => report(&e),
-    }
+pub fn main(a: Args) -> Outcome {
+    print(&Catalogue(catalogue()?), Form::from_flags(a.json, false));
+    Ok(ExitCode::SUCCESS)
 }

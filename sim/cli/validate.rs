@@ -1,6 +1,7 @@
 //! `loadloom validate`: check a scenario and print what it will produce.
 
-use super::{load, print};
+use super::{print, Outcome};
+use loadloom::scenario;
 use loadloom::summary::Preview;
 use solver_check::render::Form;
 use std::path::PathBuf;
@@ -25,11 +26,8 @@ pub struct Args {
 }
 
 /// Loads the scenario and computes its figures; prints them unless quiet.
-pub fn main(a: Args) -> ExitCode {
-    let s = match load(&a.scenario) {
-        Ok(s) => s,
-        Err(c) => return c,
-    };
+pub fn main(a: Args) -> Outcome {
+    let s = scenario::load(&a.scenario)?;
     // `--quiet` computes everything plain `validate` does, so it accepts no
     // scenario that `validate` would refuse.
     let mut preview = Preview::of(&s);
@@ -39,5 +37,5 @@ pub fn main(a: Args) -> ExitCode {
     if !a.quiet {
         print(&preview, Form::from_flags(a.json, false));
     }
-    ExitCode::SUCCESS
+    Ok(ExitCode::SUCCESS)
 }

@@ -24,14 +24,13 @@ pub const BAND: (f64, f64) = (0.5, 1.5);
 /// has no steady answer.
 #[derive(Debug, Clone)]
 pub struct Diverged {
-    /// What diverged and where: the step, the load on at that moment, the
-    /// impedance line of the scenario and the largest impedance that would do.
-    pub message: String,
+    /// The error at the scenario's source impedance (or its supply).
+    pub error: crate::scenario::Error,
 }
 
 impl fmt::Display for Diverged {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str(&self.message)
+        self.error.fmt(f)
     }
 }
 
@@ -120,18 +119,22 @@ pub fn diverged(
     // A sag under a tenth of nominal at this load: |Z| · S / V < V / 10.
     let z_max = 0.1 * v * v / total_va.max(1.0);
     let src = &s.home.source;
+    let message = format!(
+        "the voltage solve has no plausible answer {:.2} h into the run: {what}; the load then: {:.1} kVA in all, the largest {} ({:.1} kVA)",
+        step as f64 * s.run.step_s / 3600.0,
+        total_va / 1e3,
+        largest.1,
+        largest.0 / 1e3,
+    );
+    let help = format!(
+        "lower the source impedance to at most {z_max:.3} ohm, or reduce the load beyond the service; terminal voltages must stay within {} … {} of nominal ({v} V)",
+        BAND.0, BAND.1,
+    );
+    let place = format!(
+        "the source impedance: r = {} ohm, x = {} ohm on each line",
+        src.line_r_ohm, src.line_x_ohm
+    );
     Diverged {
-        message: format!(
-            "error: the voltage solve has no plausible answer {:.2} h into the run: {what}\n  --> {} (the source impedance: r = {} ohm, x = {} ohm on each line)\n  = load then: {:.1} kVA in all, the largest {} ({:.1} kVA)\n  = help: lower the source impedance to at most {z_max:.3} ohm, or reduce the load beyond the service; terminal voltages must stay within {} … {} of nominal ({v} V)",
-            step as f64 * s.run.step_s / 3600.0,
-            s.home.source_at,
-            src.line_r_ohm,
-            src.line_x_ohm,
-            total_va / 1e3,
-            largest.1,
-            largest.0 / 1e3,
-            BAND.0,
-            BAND.1,
-        ),
+        error: crate::scenario::Error::at_place(&s.home.source_at, &place, message, help),
     }
 }

@@ -49,9 +49,9 @@ pub fn build(
     path: &Path,
     seed: Option<u64>,
     shape: &Shape,
-) -> Result<(Scenario, Vec<Rung>), String> {
-    let mut s = scenario::load(path).map_err(|e| e.to_string())?;
-    let mut d = Doc::load(path).map_err(|e| e.to_string())?;
+) -> Result<(Scenario, Vec<Rung>), scenario::Error> {
+    let mut s = scenario::load(path)?;
+    let mut d = Doc::load(path)?;
     if let Some(seed) = seed {
         s.run.seed = seed;
         d.section("run")
@@ -133,8 +133,18 @@ pub struct RungResult {
     pub card: Value,
     /// Each appliance's conductors in this rung (`l1` …).
     pub lines: Vec<(String, Vec<String>)>,
-    /// Per solver (by name): its scores, or why there are none.
+    /// Each solver's scores, or why there are none: a line of the report,
+    /// not an error of the command, so a `String`.
     pub scores: Vec<(String, Result<Report, String>)>,
+}
+
+/// An error as one line of a report: what, where, and its causes.
+fn one_line(e: &scenario::Error) -> String {
+    let mut line = format!("{} ({})", e.message, e.file.display());
+    for c in &e.causes {
+        line += &format!(": {c}");
+    }
+    line
 }
 
 /// The whole ladder of one home.
@@ -162,12 +172,20 @@ impl Ladder {
 
 /// Writes `ladder.json` (the JSON report) and `scores.svg` (each score
 /// across the rungs) into the ladder's folder.
-pub fn write_reports(l: &Ladder, dir: &Path) -> Result<(), String> {
+pub fn write_reports(l: &Ladder, dir: &Path) -> Result<(), scenario::Error> {
     use solver_check::render::{Form, Render};
     let json = dir.join("ladder.json");
-    std::fs::write(&json, l.render(Form::Json)).map_err(|e| format!("{}: {e}", json.display()))?;
+    std::fs::write(&json, l.render(Form::Json)).map_err(|e| not_written(&json, &e))?;
     let svg = dir.join("scores.svg");
-    std::fs::write(&svg, plot_svg(l)).map_err(|e| format!("{}: {e}", svg.display()))
+    std::fs::write(&svg, plot_svg(l)).map_err(|e| not_written(&svg, &e))
+}
+
+/// A file of the ladder that could not be written (a failed run, exit 1).
+fn not_written(file: &Path, e: &std::io::Error) -> scenario::Error {
+    let help = "check free space and permissions of the output folder";
+    scenario::Error::file(file, "cannot write this file", help)
+        .caused_by(e)
+        .failed()
 }
 
 /// The command that rebuilds a rung alone.
@@ -191,11 +209,11 @@ fn write_rung(
     out: &Path,
     solvers: &[Solver],
     p: &Plan,
-) -> Result<(PathBuf, Scenario), String> {
+) -> Result<(PathBuf, Scenario), scenario::Error> {
     let dir = out
         .join(format!("{home}-layouts"))
         .join(format!("{k:02}-{}", slug(&r.name)));
-    std::fs::create_dir_all(&dir).map_err(|e| format!("{}: {e}", dir.display()))?;
+    std::fs::create_dir_all(&dir).map_err(|e| not_written(&dir, &e))?;
     let file = dir.join(format!("{home}-{}.toml", slug(&r.name)));
     let mut d = r.doc.clone();
     let length = wire::duration(p.train_s + p.test_s).replace(['d', 'h', 's'], "");
@@ -212,12 +230,13 @@ fn write_rung(
         r.note,
         rerun_command(&file, solvers, p)
     );
-    std::fs::write(&file, d.render(&header)).map_err(|e| format!("{}: {e}", file.display()))?;
-    let s = scenario::load(&file).map_err(|e| {
-        format!(
-            "rung \"{}\" made a scenario loadloom refuses (a bug):\n{e}",
-            r.name
-        )
+    std::fs::write(&file, d.render(&header)).map_err(|e| not_written(&file, &e))?;
+    let s = scenario::load(&file).map_err(|mut e| {
+        e.message = format!(
+            "rung \"{}\" made a scenario loadloom refuses (a bug): {}",
+            r.name, e.message
+        );
+        e
     })?;
     Ok((file, s))
 }
@@ -232,7 +251,7 @@ pub fn run(
     p: &Plan,
     solvers: &[Solver],
     progress: &mut dyn FnMut(&str),
-) -> Result<Ladder, String> {
+) -> Result<Ladder, scenario::Error> {
     let (s, all) = build(path, seed, shape)?;
     let mut rows = Vec::new();
     for (k, r) in all.iter().enumerate() {
@@ -255,7 +274,7 @@ fn run_rung(
     out: &Path,
     p: &Plan,
     solvers: &[Solver],
-) -> Result<RungResult, String> {
+) -> Result<RungResult, scenario::Error> {
     let mut res = RungResult {
         family: r.family,
         name: r.name.clone(),
@@ -271,7 +290,7 @@ fn run_rung(
         Err(m) => {
             res.scores = solvers
                 .iter()
-                .map(|x| (x.describe(), Err(m.clone())))
+                .map(|x| (x.describe(), Err(one_line(&m))))
                 .collect();
             return Ok(res);
         }
@@ -286,7 +305,7 @@ fn run_rung(
         Err(m) => {
             res.scores = solvers
                 .iter()
-                .map(|x| (x.describe(), Err(m.clone())))
+                .map(|x| (x.describe(), Err(one_line(&m))))
                 .collect();
             return Ok(res);
         }

@@ -958,6 +958,8 @@ fn decode_meter(ctx: &Reader, node: &Node, run: &Run) -> Result<Meter, Error> {
 pub const DEFAULT_WAVE_RATE_HZ: f64 = 12_800.0;
 
 /// Checks a waveform rate: whole samples per step, at least 20 per cycle.
+/// The error is the reason alone (a `String` on purpose): the scenario's
+/// key or the command's option is placed by the caller.
 pub fn check_wave_rate(rate: f64, run: &Run, home: &Home) -> Result<(), String> {
     let per_step = rate * run.step_s;
     if (per_step.round() - per_step).abs() > 1e-6 || rate < 20.0 * home.frequency_hz || rate > 1e6 {
@@ -966,7 +968,8 @@ pub fn check_wave_rate(rate: f64, run: &Run, home: &Home) -> Result<(), String> 
     Ok(())
 }
 
-/// Places a waveform window (local start, length) in the run; None if outside.
+/// Places a waveform window (local start, length) in the run; the error,
+/// the reason alone, is placed by the caller (as for [`check_wave_rate`]).
 pub fn place_window(
     start_local: &str,
     length_s: f64,

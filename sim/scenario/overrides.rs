@@ -2,10 +2,12 @@
 //! `--waveform`, `--waveform-rate`), checked by the same rules as the
 //! scenario's own keys.
 
-use super::{decode, Scenario};
+use super::{decode, Error, Scenario};
 use crate::units::{parse_quantity, Kind};
 
-/// `30d`, `"12 h"` or `90s`: a duration with its unit, in seconds.
+/// `30d`, `"12 h"` or `90s`: a duration with its unit, in seconds. The
+/// error is what is wrong with the text alone (`Result<_, String>` on
+/// purpose): the caller names the option it came from.
 pub fn duration_arg(text: &str) -> Result<f64, String> {
     let (num, unit) = split_unit(text);
     // On the command line `10m` means ten minutes, as in most tools.
@@ -13,7 +15,8 @@ pub fn duration_arg(text: &str) -> Result<f64, String> {
     parse_quantity(&format!("{num} {unit}"), Kind::Duration)
 }
 
-/// `12.8kHz` or `"4 kHz"`: a frequency with its unit, in hertz.
+/// `12.8kHz` or `"4 kHz"`: a frequency with its unit, in hertz (the error,
+/// as for [`duration_arg`], without the option's name).
 fn frequency_arg(text: &str) -> Result<f64, String> {
     let (num, unit) = split_unit(text);
     parse_quantity(&format!("{num} {unit}"), Kind::Frequency)
@@ -29,16 +32,21 @@ fn split_unit(text: &str) -> (&str, &str) {
 
 /// `--length 30d` or `--length "12 h"`: a positive whole number of
 /// reporting intervals.
-pub fn set_length(s: &mut Scenario, text: &str) -> Result<(), String> {
-    let len = duration_arg(text)?;
+pub fn set_length(s: &mut Scenario, text: &str) -> Result<(), Error> {
+    let bad = |m: String| {
+        let help =
+            "write a duration such as 7d, 30d or \"12 h\" that the reporting interval divides";
+        Error::option(&format!("--length {text}"), m, help)
+    };
+    let len = duration_arg(text).map_err(bad)?;
     if len <= 0.0 {
-        return Err("the length must be greater than zero".into());
+        return Err(bad("the length must be greater than zero".into()));
     }
     let per = s.meter.interval_s;
     if ((len / per).round() - len / per).abs() > 1e-6 {
-        return Err(format!(
+        return Err(bad(format!(
             "{text} is not a whole number of reporting intervals ({per} s)"
-        ));
+        )));
     }
     s.run.length_s = len;
     Ok(())
@@ -47,8 +55,15 @@ pub fn set_length(s: &mut Scenario, text: &str) -> Result<(), String> {
 /// `--start 2027-03-01T00:00`: the run's start as a local time in the
 /// home's zone (no offset; not inside a clock change). The scenario's own
 /// waveform windows must still fall inside the run.
-pub fn set_start(s: &mut Scenario, text: &str) -> Result<(), String> {
-    let text = text.trim();
+pub fn set_start(s: &mut Scenario, text: &str) -> Result<(), Error> {
+    start_at(s, text.trim()).map_err(|m| {
+        let help = "write a local date-time such as 2027-03-01T00:00, outside any clock change";
+        Error::option(&format!("--start {text}"), m, help)
+    })
+}
+
+/// [`set_start`], its error without the option's name.
+fn start_at(s: &mut Scenario, text: &str) -> Result<(), String> {
     if decode::has_offset(text) {
         return Err(format!(
             "\"{text}\" carries a UTC offset; the start is a local time in the home's time zone ({})",
@@ -86,28 +101,40 @@ pub fn add_waveforms(
     s: &mut Scenario,
     windows: &[String],
     rate: Option<&str>,
-) -> Result<(), String> {
+) -> Result<(), Error> {
+    let help = format!(
+        "give --waveform START/LENGTH inside the run, e.g. {}/10s, and a rate such as 12.8kHz",
+        s.run.start_local
+    );
+    let bad = |given: String| {
+        let help = help.clone();
+        move |m: String| Error::option(&given, m, help.clone())
+    };
     if let Some(r) = rate {
-        let hz = frequency_arg(r).map_err(|m| format!("--waveform-rate {r}: {m}"))?;
+        let hz = frequency_arg(r).map_err(bad(format!("--waveform-rate {r}")))?;
         decode::check_wave_rate(hz, &s.run, &s.home)
-            .map_err(|m| format!("--waveform-rate {r}: {m}"))?;
+            .map_err(bad(format!("--waveform-rate {r}")))?;
         s.waveforms.rate_hz = hz;
     }
     for w in &s.waveforms.windows {
         if w.offset_s + w.length_s > s.run.length_s + 1e-9 {
-            return Err(format!(
-                "the scenario's waveform window {} + {} s lies outside the run of {} s",
-                w.start_local, w.length_s, s.run.length_s
+            return Err(Error::option(
+                "--length",
+                format!(
+                    "the scenario's waveform window {} + {} s lies outside the run of {} s",
+                    w.start_local, w.length_s, s.run.length_s
+                ),
+                "give a --length that holds the scenario's waveform windows",
             ));
         }
     }
     for text in windows {
+        let bad = bad(format!("--waveform {text}"));
         let (start, len) = text
             .split_once('/')
-            .ok_or_else(|| format!("--waveform {text}: expected START/LENGTH"))?;
-        let len_s = duration_arg(len).map_err(|m| format!("--waveform {text}: {m}"))?;
-        let w = decode::place_window(start, len_s, &s.run, &s.home)
-            .map_err(|m| format!("--waveform {text}: {m}"))?;
+            .ok_or_else(|| bad("expected START/LENGTH".into()))?;
+        let len_s = duration_arg(len).map_err(&bad)?;
+        let w = decode::place_window(start, len_s, &s.run, &s.home).map_err(&bad)?;
         s.waveforms.windows.push(w);
     }
     Ok(())

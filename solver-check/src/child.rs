@@ -138,7 +138,8 @@ pub enum Ended {
 
 /// Runs `args` confined by `sandbox`, stdout and stderr to `log` (already
 /// open), with `env` added; stops it at `timeout`, then stops everything it
-/// left behind. Err is a failure to start it.
+/// left behind. Err is a failure to start it: a line of the solver's failure
+/// report (`Failure::Spawn`), not an error of the command, so a `String`.
 pub fn run(
     args: &[String],
     env: &[(&str, &Path)],

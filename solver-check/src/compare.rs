@@ -7,10 +7,12 @@
 //! (the same hard days) cancels.
 
 use crate::contract::COMPARE_FORMAT;
+use crate::diagnostic::Error;
 use crate::metrics::{scores_of, Scores};
 use crate::render::Render;
 use crate::score::Report;
 use serde_json::{json, Value};
+use std::path::Path;
 
 /// A score, and whether lower values are better.
 pub const METRICS: [(&str, bool); 7] = [
@@ -126,8 +128,10 @@ fn quantile(sorted: &[f64], q: f64) -> Option<f64> {
 }
 
 /// Compares two reports over the same period and appliances.
+/// A mismatch is reported against `b`'s estimate file (the one compared
+/// against `a`).
 #[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
-pub fn compare(a: &Report, b: &Report, resamples: usize, seed: u64) -> Result<Comparison, String> {
+pub fn compare(a: &Report, b: &Report, resamples: usize, seed: u64) -> Result<Comparison, Error> {
     let period = |r: &Report| {
         (
             r.plan.start_ms,
@@ -135,10 +139,14 @@ pub fn compare(a: &Report, b: &Report, resamples: usize, seed: u64) -> Result<Co
         )
     };
     if period(a) != period(b) {
-        return Err(
-            "the two estimates cover different periods; give both the same period to compare them"
-                .into(),
-        );
+        return Err(Error::file(
+            Path::new(&b.estimate),
+            format!(
+                "this estimate covers a different period than {}",
+                a.estimate
+            ),
+            "give both estimates the same period to compare them",
+        ));
     }
     let ids = |r: &Report| {
         r.appliances
@@ -147,7 +155,16 @@ pub fn compare(a: &Report, b: &Report, resamples: usize, seed: u64) -> Result<Co
             .collect::<Vec<_>>()
     };
     if ids(a) != ids(b) {
-        return Err(format!("the two estimates give different appliances ({} against {}); compare the same appliances (or use --partial on both)", ids(a).join(", "), ids(b).join(", ")));
+        return Err(Error::file(
+            Path::new(&b.estimate),
+            format!(
+                "this estimate gives different appliances ({}) than {} ({})",
+                ids(b).join(", "),
+                a.estimate,
+                ids(a).join(", ")
+            ),
+            "compare the same appliances (or use --partial on both)",
+        ));
     }
     let days = a.overall_acc.days.len().max(b.overall_acc.days.len());
     let (ia, ib) = (

@@ -101,6 +101,41 @@ impl Error {
         })
     }
 
+    /// An error at a place written `file:line:column` (the place a decoded
+    /// key remembers, such as a scenario's `supply_at`), at key path `path`;
+    /// about the whole file when the place has no line and column.
+    pub fn at_place(
+        place: &str,
+        path: &str,
+        message: impl Into<String>,
+        help: impl Into<String>,
+    ) -> Error {
+        let mut parts = place.rsplitn(3, ':');
+        let (column, line) = (parts.next(), parts.next());
+        let numbers = line
+            .and_then(|l| l.parse::<usize>().ok())
+            .zip(column.and_then(|c| c.parse::<usize>().ok()));
+        let (file, line, column) = match (numbers, parts.next()) {
+            (Some((l, c)), Some(f)) => (f, l, c),
+            _ => (place, 0, 0),
+        };
+        let mut e = Error::file(Path::new(file), message, help);
+        e.line = line;
+        e.column = column;
+        e.path = path.to_string();
+        e
+    }
+
+    /// An error in a command-line option (`--size 10x10`) or an environment
+    /// variable (`LOADLOOM_THREADS`), the place named instead of a file: the
+    /// error says "the command line" (for `given` starting with `-`) or "the
+    /// environment", and shows `given`.
+    pub fn option(given: &str, message: impl Into<String>, help: impl Into<String>) -> Error {
+        let mut e = Error::file(Path::new(""), message, help);
+        e.path = given.to_string();
+        e
+    }
+
     /// The same error with `cause` added to its source chain, and the
     /// causes of `cause` after it.
     pub fn caused_by(mut self, cause: &dyn std::error::Error) -> Error {
@@ -117,7 +152,15 @@ impl Error {
 impl fmt::Display for Error {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         writeln!(f, "error: {}", self.message)?;
-        if self.line == 0 {
+        if self.file.as_os_str().is_empty() {
+            // No file: an option (`--size …`) or an environment variable.
+            let place = if self.path.starts_with('-') {
+                "the command line"
+            } else {
+                "the environment"
+            };
+            write!(f, "  --> {place}")?;
+        } else if self.line == 0 {
             write!(f, "  --> {}", self.file.display())?;
         } else {
             write!(
@@ -132,7 +175,7 @@ impl fmt::Display for Error {
             write!(f, " (at {})", self.path)?;
         }
         writeln!(f)?;
-        if self.line > 0 {
+        if self.line > 0 && !self.excerpt.is_empty() {
             let n = self.line.to_string();
             let pad = " ".repeat(n.len());
             writeln!(f, "{pad} |")?;
@@ -219,5 +262,28 @@ mod tests {
             "{shown}"
         );
         assert!(shown.ends_with("  = help: write zero or more"), "{shown}");
+    }
+
+    #[test]
+    fn a_place_gives_file_line_and_column_and_a_bare_file_stays_whole() {
+        let e = Error::at_place("dir:x/home.toml:3:10", "home.supply", "m", "h");
+        assert_eq!(
+            (e.file.to_str(), e.line, e.column),
+            (Some("dir:x/home.toml"), 3, 10)
+        );
+        assert!(e
+            .to_string()
+            .contains("--> dir:x/home.toml:3:10 (at home.supply)\n"));
+        let e = Error::at_place("home.toml", "", "m", "h");
+        assert_eq!((e.file.to_str(), e.line), (Some("home.toml"), 0));
+    }
+
+    #[test]
+    fn an_option_error_names_the_command_line_and_the_option_as_given() {
+        let shown = Error::option("--size 10x10", "too small", "write 1400x900").to_string();
+        assert_eq!(
+            shown,
+            "error: too small\n  --> the command line (at --size 10x10)\n  = help: write 1400x900"
+        );
     }
 }

@@ -54,28 +54,31 @@ pub enum Solver {
 impl Solver {
     /// `builtin:NAME`, or a command line split like a shell would (quotes,
     /// no expansion); it must hold `{task}` and `{estimate}`.
-    pub fn parse(text: &str) -> Result<Solver, String> {
+    pub fn parse(text: &str) -> Result<Solver, crate::diagnostic::Error> {
+        let bad = |m: String| {
+            let help = format!("give builtin:NAME ({}) or a command line with {{task}} and {{estimate}}, e.g. \"python3 my_solver.py {{task}} {{estimate}}\"", crate::solvers::NAMES.join(", "));
+            crate::diagnostic::Error::option(&format!("--solver {text}"), m, help)
+        };
         if let Some(name) = text.strip_prefix("builtin:") {
             let name = crate::solvers::OLD_NAMES
                 .iter()
                 .find(|(old, _)| *old == name)
                 .map_or(name, |(_, new)| new);
             if !crate::solvers::NAMES.contains(&name) {
-                return Err(format!(
-                    "no built-in solver \"{name}\"; built in: {}",
-                    crate::solvers::NAMES.join(", ")
-                ));
+                return Err(bad(format!("no built-in solver \"{name}\"")));
             }
             return Ok(Solver::Builtin(name.to_string()));
         }
-        let argv = split_words(text)?;
+        let argv = split_words(text).map_err(bad)?;
         if argv.is_empty() {
-            return Err("the solver command is empty".into());
+            return Err(bad("the solver command is empty".into()));
         }
         if !argv.iter().any(|a| a.contains("{task}"))
             || !argv.iter().any(|a| a.contains("{estimate}"))
         {
-            return Err(format!("the solver command must contain {{task}} and {{estimate}}, e.g. \"python3 my_solver.py {{task}} {{estimate}}\"; got \"{text}\""));
+            return Err(bad(
+                "the solver command must contain {task} and {estimate}".into()
+            ));
         }
         Ok(Solver::Command(argv))
     }
@@ -97,7 +100,9 @@ impl Solver {
 }
 
 /// Splits a command line into words: whitespace separates, single and
-/// double quotes group, a backslash escapes the next character.
+/// double quotes group, a backslash escapes the next character. The error
+/// is what is wrong with the text alone (a `String` on purpose): the caller
+/// names the option it came from.
 pub fn split_words(s: &str) -> Result<Vec<String>, String> {
     let mut out = Vec::new();
     let mut cur = String::new();
@@ -492,13 +497,17 @@ fn refuse_gapped_meters(ds: &Dataset) -> std::io::Result<()> {
     if rows as u64 == ds.rows {
         return Ok(());
     }
-    Err(std::io::Error::other(format!(
-        "{}: {rows} meter rows for {} truth rows (dropouts written as missing rows); \
+    // InvalidData: bad input (exit status 2), not a failed run.
+    Err(std::io::Error::new(
+        std::io::ErrorKind::InvalidData,
+        format!(
+            "{}: {rows} meter rows for {} truth rows (dropouts written as missing rows); \
          a round trip needs a meters row per interval: write the dropouts with \
          `as = \"null\"` in [faults]",
-        path.display(),
-        ds.rows
-    )))
+            path.display(),
+            ds.rows
+        ),
+    ))
 }
 
 /// The last `lines` lines of a log, indented.

@@ -53,18 +53,20 @@ pub struct Options {
 }
 
 /// `--threshold fridge=20` or `fridge=20W`: an appliance's on-threshold in watts.
-pub fn parse_threshold(t: &str) -> Result<(String, f64), String> {
+pub fn parse_threshold(t: &str) -> Result<(String, f64), crate::diagnostic::Error> {
+    let bad = |message: String| {
+        let help = "write ID=WATTS with zero or more watts, e.g. fridge=20";
+        crate::diagnostic::Error::option(&format!("--threshold {t}"), message, help)
+    };
     let (id, w) = t
         .split_once('=')
-        .ok_or_else(|| format!("--threshold {t}: expected ID=WATTS, e.g. fridge=20"))?;
+        .ok_or_else(|| bad("expected ID=WATTS".into()))?;
     let w = w.trim().trim_end_matches('W').trim();
     let v: f64 = w
         .parse()
-        .map_err(|_| format!("--threshold {t}: \"{w}\" is not a number of watts"))?;
+        .map_err(|_| bad(format!("\"{w}\" is not a number of watts")))?;
     if !(v >= 0.0 && v.is_finite()) {
-        return Err(format!(
-            "--threshold {t}: the threshold must be zero or more"
-        ));
+        return Err(bad("the threshold must be zero or more".into()));
     }
     Ok((id.to_string(), v))
 }

@@ -11,6 +11,7 @@
 
 use crate::contract::{columns, line_name, AUDIT_FORMAT};
 use crate::dataset::Dataset;
+use crate::diagnostic::Error;
 use crate::render::Render;
 use crate::stream::{header, Header};
 use crate::wallclock::WallClockUse;
@@ -122,10 +123,10 @@ fn angles(ds: &Dataset) -> Vec<f64> {
 }
 
 /// The loading picture of a dataset folder, each channel on its own line.
-pub fn loading(dataset: &Path) -> Result<Loading, String> {
-    let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
+pub fn loading(dataset: &Path) -> Result<Loading, Error> {
+    let ds = Dataset::open(dataset)?;
     let service_a = ds.manifest["supply"]["service_a"].as_f64().unwrap_or(0.0);
-    let h = header(&super::meters_file(dataset)?).map_err(|e| e.to_string())?;
+    let h = header(&super::meters_file(dataset)?)?;
     let nominal_v = ds.manifest["supply"]["voltage_ln_v"]
         .as_f64()
         .unwrap_or(f64::NAN);
@@ -267,7 +268,7 @@ fn sums_of(
     h: &Header,
     plan: &MeterPlan,
     nominal_v: f64,
-) -> Result<(Sums, Option<WallClockUse>), String> {
+) -> Result<(Sums, Option<WallClockUse>), Error> {
     let n = plan.reads.len();
     let (mut cols, at) = columns_of(h, plan);
     let has_n = h.has(columns::NEUTRAL_I);
@@ -277,8 +278,8 @@ fn sums_of(
     let every_line = plan.reads.iter().all(|r| r.is_some());
     let mut s = Sums::new(n);
     let mut current = vec![f64::NAN; n];
-    let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
-    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
+    let mut st = h.stream(&cols)?;
+    while let Some(b) = st.next_batch()? {
         for (k, &t) in b.time_ms.iter().enumerate() {
             let (mut re, mut im, mut whole) = (0.0, 0.0, every_line);
             for (x, r) in plan.reads.iter().enumerate() {
@@ -320,7 +321,7 @@ pub fn loading_of(
     plan: &MeterPlan,
     service_a: f64,
     nominal_v: f64,
-) -> Result<(Loading, Option<WallClockUse>), String> {
+) -> Result<(Loading, Option<WallClockUse>), Error> {
     let (s, clock) = sums_of(h, plan, nominal_v)?;
     let lines: Vec<LineLoading> = (0..plan.reads.len())
         .map(|x| line_of(&s, plan, x))

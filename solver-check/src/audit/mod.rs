@@ -20,6 +20,7 @@ pub use loading::*;
 
 use crate::contract::{columns, line_label, line_name, AUDIT_FORMAT};
 use crate::dataset::Dataset;
+use crate::diagnostic::Error;
 use crate::render::Render;
 use crate::stream::{header, Header};
 use check::Outcome;
@@ -28,7 +29,7 @@ use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 
 /// The meters file of a dataset folder, or the path itself when it is a file.
-pub fn meters_file(data: &Path) -> Result<PathBuf, String> {
+pub fn meters_file(data: &Path) -> Result<PathBuf, Error> {
     if data.is_file() {
         return Ok(data.to_path_buf());
     }
@@ -36,7 +37,13 @@ pub fn meters_file(data: &Path) -> Result<PathBuf, String> {
         .iter()
         .map(|f| data.join(f))
         .find(|p| p.is_file())
-        .ok_or_else(|| format!("error: {} holds no meters.parquet or meters.csv\n  = help: give a dataset folder or a meters file in the dataset format", data.display()))
+        .ok_or_else(|| {
+            Error::file(
+                data,
+                "no meters.parquet or meters.csv here",
+                "give a dataset folder or a meters file in the dataset format",
+            )
+        })
 }
 
 /// What the audit concluded, with the loading picture.
@@ -67,7 +74,7 @@ fn channels(h: &Header) -> Vec<String> {
 }
 
 /// The declaration must describe the channels the data has.
-fn fit(d: &Declared, h: &Header, have: &[String]) -> Result<(), String> {
+fn fit(d: &Declared, h: &Header, have: &[String]) -> Result<(), Error> {
     let n = d.supply.lines();
     let want: Vec<String> = (0..n)
         .filter(|&c| d.channels[c].conductor.is_some())
@@ -91,28 +98,28 @@ fn fit(d: &Declared, h: &Header, have: &[String]) -> Result<(), String> {
             missing[0]
         )
     };
-    Err(format!(
-        "error: the declaration does not fit the data\n  --> {} (home.supply)\n  = the declaration has a {} supply, {}, with a CT on {}; {} has channel{} {}\n  = help: {help}",
-        d.supply_at,
+    let message = format!(
+        "the declaration does not fit the data: it has a {} supply, {}, with a CT on {}; {} has channel{} {}",
         d.supply.kind.name(),
         lines.join(", "),
         if want.is_empty() { "none".into() } else { want.join(", ") },
         h.file.display(),
         if have.len() == 1 { "" } else { "s" },
         if have.is_empty() { "none".into() } else { have.join(", ") },
-    ))
+    );
+    Err(Error::at_place(&d.supply_at, "home.supply", message, help))
 }
 
 /// The meters table of `data`, with naive times read in the declared zone.
-fn meters_header(data: &Path, d: &Declared) -> Result<Header, String> {
+fn meters_header(data: &Path, d: &Declared) -> Result<Header, Error> {
     let file = meters_file(data)?;
-    let mut h = header(&file).map_err(|e| e.to_string())?;
+    let mut h = header(&file)?;
     h.naive_zone = Some(d.timezone.clone());
     Ok(h)
 }
 
 /// The line power columns a meters table must have, named in errors.
-fn no_line_columns(h: &Header) -> String {
+fn no_line_columns(h: &Header) -> Error {
     let names: Vec<&str> = h.names().collect();
     let near: Vec<String> = names
         .iter()
@@ -122,17 +129,16 @@ fn no_line_columns(h: &Header) -> String {
         })
         .map(|n| format!("{n} → {}", n.to_lowercase()))
         .collect();
-    format!(
-        "error: {} has no line power column\n  --> {} (columns: {})\n  = the audit needs `time` and the real power of each metered line in W: `l1_p_w`, `l2_p_w` (and `l3_p_w` on a three-phase supply); optional per line: `l1_q_var` (reactive power, var), `l1_v_v` (voltage, V), `l1_i_a` (current, A), and `n_i_a` (neutral current, A)\n  = help: {}",
-        h.file.display(),
-        h.file.display(),
+    let message = format!(
+        "no line power column (columns: {}); the audit needs `time` and the real power of each metered line in W: `l1_p_w`, `l2_p_w` (and `l3_p_w` on a three-phase supply); optional per line: `l1_q_var` (reactive power, var), `l1_v_v` (voltage, V), `l1_i_a` (current, A), and `n_i_a` (neutral current, A)",
         if names.is_empty() { "none but time".to_string() } else { names.join(", ") },
-        if near.is_empty() {
-            "rename the columns to these names (README, \"Wiring audit\", lists them)".to_string()
-        } else {
-            format!("column names are lower case: rename {}", near.join(", "))
-        }
-    )
+    );
+    let help = if near.is_empty() {
+        "rename the columns to these names (README, \"Wiring audit\", lists them)".to_string()
+    } else {
+        format!("column names are lower case: rename {}", near.join(", "))
+    };
+    Error::file(&h.file, message, help)
 }
 
 /// What the meters table gives per line, and the columns to stream.
@@ -183,23 +189,28 @@ type Detected = (
 );
 
 /// Streams the table once through the step detector.
-fn detect(h: &Header, m: &Measured, angles: &[f64]) -> Result<Detected, String> {
+fn detect(h: &Header, m: &Measured, angles: &[f64]) -> Result<Detected, Error> {
     let file = &h.file;
     let n = m.n;
-    let mut st = h.stream(&m.cols).map_err(|e| e.to_string())?;
+    let mut st = h.stream(&m.cols)?;
+    let short = |what: &str| {
+        let help = "the audit needs a meters table over days";
+        Error::file(file, format!("the meters table has {what}"), help)
+    };
     let mut det: Option<events::Detector> = None;
     let mut interval_s = 0.0;
     let (mut p, mut q, mut v) = (vec![f64::NAN; n], vec![f64::NAN; n], vec![f64::NAN; n]);
     let (mut rows, mut last) = (0u64, i64::MIN);
-    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
+    while let Some(b) = st.next_batch()? {
         if det.is_none() {
-            interval_s = interval_of(&b.time_ms).ok_or_else(|| format!("error: {} has fewer than two rows at distinct times\n  = help: the audit needs a meters table over days", file.display()))?;
+            interval_s = interval_of(&b.time_ms)
+                .ok_or_else(|| short("fewer than two rows at distinct times"))?;
             det = Some(events::Detector::new(angles, interval_s));
         }
         let det = det.as_mut().expect("made above");
         for (k, &t) in b.time_ms.iter().enumerate() {
             if t < last {
-                return Err(crate::table::table_err(file, Some(columns::TIME), Some(b.first + k), "the time goes back from the row before", "sort the rows by time (a repeated hour at the end of summer time is read in file order, so keep the export's order there)").to_string());
+                return Err(crate::table::table_err(file, Some(columns::TIME), Some(b.first + k), "the time goes back from the row before", "sort the rows by time (a repeated hour at the end of summer time is read in file order, so keep the export's order there)").into());
             }
             last = t;
             let mut j = 0;
@@ -216,12 +227,7 @@ fn detect(h: &Header, m: &Measured, angles: &[f64]) -> Result<Detected, String> 
             rows += 1;
         }
     }
-    let det = det.ok_or_else(|| {
-        format!(
-            "error: {} has no rows\n  = help: the audit needs a meters table over days",
-            file.display()
-        )
-    })?;
+    let det = det.ok_or_else(|| short("no rows"))?;
     let (evs, stats) = det.finish();
     Ok((evs, stats, interval_s, rows, st.wall_clock()))
 }
@@ -230,9 +236,9 @@ fn detect(h: &Header, m: &Measured, angles: &[f64]) -> Result<Detected, String> 
 ///
 /// A declaration is read with `loadloom::audit::load_declaration`, whose
 /// documentation shows a whole audit (a wiring mistake, found).
-pub fn audit(data: &Path, d: &Declared) -> Result<Audit, String> {
+pub fn audit(data: &Path, d: &Declared) -> Result<Audit, Error> {
     if data.is_dir() {
-        Dataset::open(data).map_err(|e| e.to_string())?;
+        Dataset::open(data)?;
     }
     let h = meters_header(data, d)?;
     let have = channels(&h);
@@ -277,7 +283,7 @@ fn loading_as_declared(
     d: &Declared,
     outcome: &Outcome,
     evs: &[events::Event],
-) -> Result<Loading, String> {
+) -> Result<Loading, Error> {
     let plan = plan_of(d, have);
     let (mut loading, _) = loading_of(h, &plan, d.supply.service_a, d.supply.voltage_v)?;
     loading.timezone = d.timezone.clone();

@@ -26,19 +26,14 @@ pub fn time_ticks(
     (w0, w1): (i64, i64),
     f: Frame,
     max_labels: usize,
-) -> Result<(), String> {
+) -> Result<(), jiff::Error> {
     let span_h = (w1 - w0) as f64 / 3.6e6;
     let step_h = STEPS_H
         .into_iter()
         .find(|s| span_h / *s as f64 <= max_labels.max(1) as f64)
         .unwrap_or(168);
-    let first = jiff::Timestamp::from_millisecond(w0)
-        .map_err(|e| e.to_string())?
-        .to_zoned(tz.clone());
-    let mut tick = first
-        .date()
-        .to_zoned(tz.clone())
-        .map_err(|e| e.to_string())?;
+    let first = jiff::Timestamp::from_millisecond(w0)?.to_zoned(tz.clone());
+    let mut tick = first.date().to_zoned(tz.clone())?;
     // Walk whole hours (each an hour of real time, so a daylight-saving
     // change shifts nothing) and label those on the step in local time.
     let (mut days, mut last) = (0i64, None);
@@ -65,9 +60,7 @@ pub fn time_ticks(
             );
         }
         last = Some(tick.datetime());
-        tick = tick
-            .checked_add(jiff::Span::new().hours(1))
-            .map_err(|e| e.to_string())?;
+        tick = tick.checked_add(jiff::Span::new().hours(1))?;
     }
     Ok(())
 }

@@ -4,10 +4,11 @@
 
 use super::axis::{self, Frame};
 use super::palette::{self, FRAME, INK, PANEL_FILL, ZERO_LINE};
-use super::{bucket_means, err, escape, local_ms, path, points, write_picture};
+use super::{bucket_means, err, escape, local_ms, path, points, time_err, write_picture, zone};
 use super::{PlotOptions, Plotted};
 use crate::contract::columns;
 use crate::dataset::Dataset;
+use crate::diagnostic::Error;
 use crate::stream::{header, Header};
 use std::fmt::Write as _;
 use std::path::Path;
@@ -31,7 +32,7 @@ fn parse_local(
     flag: &str,
     text: &str,
     tz: &jiff::tz::TimeZone,
-) -> Result<i64, String> {
+) -> Result<i64, Error> {
     local_ms(text, tz).ok_or_else(|| {
         err(
             dataset,
@@ -42,16 +43,14 @@ fn parse_local(
 }
 
 /// The local day with the most measured energy (`total_p_w`): [start, end).
-fn busiest_day(dataset: &Path, mh: &Header, tz: &jiff::tz::TimeZone) -> Result<(i64, i64), String> {
-    let e = |e: jiff::Error| e.to_string();
-    let mut st = mh
-        .stream(&[columns::TOTAL_P.to_string()])
-        .map_err(|e| e.to_string())?;
+fn busiest_day(dataset: &Path, mh: &Header, tz: &jiff::tz::TimeZone) -> Result<(i64, i64), Error> {
+    let e = time_err(dataset);
+    let mut st = mh.stream(&[columns::TOTAL_P.to_string()])?;
     let mut days: Vec<(jiff::civil::Date, f64)> = Vec::new();
-    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
+    while let Some(b) = st.next_batch()? {
         for (k, &t) in b.time_ms.iter().enumerate() {
             let d = jiff::Timestamp::from_millisecond(t)
-                .map_err(e)?
+                .map_err(&e)?
                 .to_zoned(tz.clone())
                 .date();
             let p = if b.cols[0][k].is_nan() {
@@ -70,13 +69,13 @@ fn busiest_day(dataset: &Path, mh: &Header, tz: &jiff::tz::TimeZone) -> Result<(
         .max_by(|a, b| a.1.total_cmp(&b.1))
         .map(|d| d.0)
         .ok_or_else(|| err(dataset, "the meters have no rows", "rewrite the dataset"))?;
-    let ms = |d: jiff::civil::Date| -> Result<i64, String> {
+    let ms = |d: jiff::civil::Date| -> Result<i64, Error> {
         Ok(d.to_zoned(tz.clone())
-            .map_err(e)?
+            .map_err(&e)?
             .timestamp()
             .as_millisecond())
     };
-    Ok((ms(best)?, ms(best.tomorrow().map_err(e)?)?))
+    Ok((ms(best)?, ms(best.tomorrow().map_err(&e)?)?))
 }
 
 /// The window: as given (a day from --from, or the day up to --to), or the
@@ -87,7 +86,7 @@ fn window(
     tz: &jiff::tz::TimeZone,
     o: &PlotOptions,
     (t0, end): (i64, i64),
-) -> Result<(i64, i64), String> {
+) -> Result<(i64, i64), Error> {
     let (w0, w1) = match (&o.from, &o.to) {
         (Some(f), t) => {
             let a = parse_local(dataset, "--from", f, tz)?;
@@ -121,7 +120,7 @@ fn shares(
     th: &Header,
     window: (i64, i64),
     buckets: usize,
-) -> Result<Vec<Share>, String> {
+) -> Result<Vec<Share>, Error> {
     let mut found = Vec::new();
     for a in &ds.appliances {
         for (x, l) in ds.lines.iter().enumerate() {
@@ -222,9 +221,9 @@ fn range(p: &Panel) -> (f64, f64) {
 fn panel(
     svg: &mut String,
     p: &Panel,
-    ticks: &dyn Fn(&mut String, Frame) -> Result<(), String>,
+    ticks: &dyn Fn(&mut String, Frame) -> Result<(), Error>,
     fill: &dyn Fn(&str) -> String,
-) -> Result<(), String> {
+) -> Result<(), Error> {
     let f = p.frame;
     let (hi, lo) = range(p);
     let buckets = p.measured.len();
@@ -314,9 +313,9 @@ fn label(ds: &Dataset, dataset: &Path) -> String {
 }
 
 /// Draws `dataset` to `out` (.svg or .png).
-pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, String> {
-    let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
-    let tz = jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| e.to_string())?;
+pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Error> {
+    let ds = Dataset::open(dataset)?;
+    let tz = zone(&ds)?;
     let t0 = ds.manifest["time"]["start_utc_ms"].as_i64().unwrap_or(0);
     let end = t0 + ds.rows as i64 * (ds.interval_s * 1000.0).round() as i64;
     let meters_file = ["meters.parquet", "meters.csv"]
@@ -329,9 +328,8 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
                 "plot a folder written by `loadloom run`",
             )
         })?;
-    let mh = header(&dataset.join(meters_file)).map_err(|e| e.to_string())?;
-    let th =
-        header(&dataset.join(meters_file.replace("meters", "truth"))).map_err(|e| e.to_string())?;
+    let mh = header(&dataset.join(meters_file))?;
+    let th = header(&dataset.join(meters_file.replace("meters", "truth")))?;
     let (w0, w1) = window(dataset, &mh, &tz, o, (t0, end))?;
     let plot_w = o.width as f64 - LEFT - LEGEND_W;
     let buckets = (plot_w as usize).clamp(10, 4000);
@@ -362,7 +360,7 @@ pub fn plot(dataset: &Path, out: &Path, o: &PlotOptions) -> Result<Plotted, Stri
     );
     let panel_h = (h as f64 - TOP - BOTTOM) / ds.lines.len() as f64;
     let ticks = |svg: &mut String, f: Frame| {
-        axis::time_ticks(svg, &tz, (w0, w1), f, (plot_w / 70.0) as usize)
+        axis::time_ticks(svg, &tz, (w0, w1), f, (plot_w / 70.0) as usize).map_err(time_err(dataset))
     };
     for (x, l) in ds.lines.iter().enumerate() {
         let frame = Frame {

@@ -8,6 +8,7 @@ mod monthly;
 pub mod palette;
 mod scores;
 
+use crate::diagnostic::Error;
 pub use day::plot;
 pub use monthly::{plot_monthly, Monthly, Parts};
 pub use scores::plot_scores;
@@ -29,11 +30,17 @@ pub struct PlotOptions {
 /// `--size 1400x900`: a picture's width and height in pixels, 300 … 10000
 /// by 200 … 10000 (smaller leaves no room for the axes and legend; larger
 /// is no screen or page).
-pub fn parse_size(text: &str) -> Result<(u32, u32), String> {
+pub fn parse_size(text: &str) -> Result<(u32, u32), Error> {
     text.split_once('x')
         .and_then(|(w, h)| Some((w.parse::<u32>().ok()?, h.parse::<u32>().ok()?)))
         .filter(|(w, h)| (300..=10000).contains(w) && (200..=10000).contains(h))
-        .ok_or_else(|| format!("error: --size {text}: expected WIDTHxHEIGHT in pixels, e.g. 1400x900 (300 … 10000 by 200 … 10000)"))
+        .ok_or_else(|| {
+            Error::option(
+                &format!("--size {text}"),
+                "expected WIDTHxHEIGHT in pixels",
+                "write e.g. 1400x900 (300 … 10000 by 200 … 10000)",
+            )
+        })
 }
 
 /// What a day's picture shows: its window (local, with offsets) and legend.
@@ -46,14 +53,39 @@ pub struct Plotted {
     pub legend: Vec<String>,
 }
 
-fn err(path: &Path, msg: impl std::fmt::Display, help: &str) -> String {
-    format!("error: {msg}\n  --> {}\n  = help: {help}", path.display())
+fn err(path: &Path, msg: impl std::fmt::Display, help: &str) -> Error {
+    Error::file(path, msg.to_string(), help)
+}
+
+/// A time the calendar cannot hold, from a dataset's start, span or time
+/// zone: the dataset (`file`) is damaged.
+fn time_err(file: &Path) -> impl Fn(jiff::Error) -> Error + '_ {
+    move |e| {
+        err(
+            file,
+            "a time outside the calendar (the manifest's start, span or time zone)",
+            "rewrite the dataset with `loadloom run`",
+        )
+        .caused_by(&e)
+    }
+}
+
+/// The time zone a dataset's manifest names.
+fn zone(ds: &crate::dataset::Dataset) -> Result<jiff::tz::TimeZone, Error> {
+    jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| {
+        err(
+            &ds.dir.join("manifest.json"),
+            format!("unknown time zone `{}`", ds.timezone),
+            "rewrite the dataset with `loadloom run`",
+        )
+        .caused_by(&e)
+    })
 }
 
 /// Writes the picture as SVG, or as PNG rendered from the same SVG (pure
 /// Rust: resvg with the system's fonts), by the file name's extension;
 /// under a temporary name, renamed when complete.
-pub fn write_picture(svg: &str, out: &Path) -> Result<(), String> {
+pub fn write_picture(svg: &str, out: &Path) -> Result<(), Error> {
     let ext = out.extension().and_then(|e| e.to_str()).unwrap_or("");
     let tmp = out.with_extension(format!("{ext}.partial"));
     let bytes = match ext {
@@ -167,11 +199,11 @@ fn bucket_means(
     cols: &[String],
     (w0, w1): (i64, i64),
     buckets: usize,
-) -> Result<Vec<Vec<Option<f64>>>, String> {
+) -> Result<Vec<Vec<Option<f64>>>, Error> {
     let mut sum = vec![vec![0.0f64; buckets]; cols.len()];
     let mut n = vec![vec![0u32; buckets]; cols.len()];
-    let mut st = h.stream(cols).map_err(|e| e.to_string())?;
-    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
+    let mut st = h.stream(cols)?;
+    while let Some(b) = st.next_batch()? {
         for (k, &t) in b.time_ms.iter().enumerate() {
             if t < w0 || t >= w1 {
                 continue;

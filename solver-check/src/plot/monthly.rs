@@ -5,9 +5,10 @@
 
 use super::axis::{self, Frame};
 use super::palette::{self, FRAME, INK, PANEL_FILL};
-use super::{err, escape, write_picture};
+use super::{err, escape, time_err, write_picture, zone};
 use crate::contract::columns;
 use crate::dataset::Dataset;
+use crate::diagnostic::Error;
 use crate::stream::header;
 use std::fmt::Write as _;
 use std::path::Path;
@@ -88,22 +89,16 @@ struct Month {
 }
 
 /// The local calendar months that [t0, t1) touches.
-fn months(tz: &jiff::tz::TimeZone, t0: i64, t1: i64) -> Result<Vec<Month>, String> {
-    let e = |e: jiff::Error| e.to_string();
-    let mut first = jiff::Timestamp::from_millisecond(t0)
-        .map_err(e)?
+fn months(tz: &jiff::tz::TimeZone, t0: i64, t1: i64) -> Result<Vec<Month>, jiff::Error> {
+    let mut first = jiff::Timestamp::from_millisecond(t0)?
         .to_zoned(tz.clone())
         .date()
         .first_of_month();
     let mut out = Vec::new();
     let mut start = t0;
     while start < t1 {
-        let next = first.checked_add(jiff::Span::new().months(1)).map_err(e)?;
-        let end_ms = next
-            .to_zoned(tz.clone())
-            .map_err(e)?
-            .timestamp()
-            .as_millisecond();
+        let next = first.checked_add(jiff::Span::new().months(1))?;
+        let end_ms = next.to_zoned(tz.clone())?.timestamp().as_millisecond();
         out.push(Month {
             label: first.strftime("%Y-%m").to_string(),
             end_ms,
@@ -116,7 +111,7 @@ fn months(tz: &jiff::tz::TimeZone, t0: i64, t1: i64) -> Result<Vec<Month>, Strin
 }
 
 /// kWh per month (rows) and appliance (columns) from the truth's `ID_p_w`.
-fn energies(ds: &Dataset, months: &[Month], ids: &[String]) -> Result<Vec<Vec<f64>>, String> {
+fn energies(ds: &Dataset, months: &[Month], ids: &[String]) -> Result<Vec<Vec<f64>>, Error> {
     let truth = ["truth.parquet", "truth.csv"]
         .into_iter()
         .find(|f| ds.manifest["files"].get(*f).is_some())
@@ -128,12 +123,12 @@ fn energies(ds: &Dataset, months: &[Month], ids: &[String]) -> Result<Vec<Vec<f6
             )
         })?;
     let cols: Vec<String> = ids.iter().map(|i| columns::p(i)).collect();
-    let h = header(&ds.dir.join(truth)).map_err(|e| e.to_string())?;
-    let mut st = h.stream(&cols).map_err(|e| e.to_string())?;
+    let h = header(&ds.dir.join(truth))?;
+    let mut st = h.stream(&cols)?;
     let kwh_per_w_row = ds.interval_s / 3.6e6;
     let mut kwh = vec![vec![0.0f64; ids.len()]; months.len()];
     let mut m = 0;
-    while let Some(b) = st.next_batch().map_err(|e| e.to_string())? {
+    while let Some(b) = st.next_batch()? {
         for (k, &t) in b.time_ms.iter().enumerate() {
             // Rows come in time order, so the month only moves forward.
             while m + 1 < months.len() && t >= months[m].end_ms {
@@ -276,12 +271,12 @@ pub fn plot_monthly(
     out: &Path,
     (width, height): (u32, u32),
     by: Parts,
-) -> Result<Monthly, String> {
-    let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
-    let tz = jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| e.to_string())?;
+) -> Result<Monthly, Error> {
+    let ds = Dataset::open(dataset)?;
+    let tz = zone(&ds)?;
     let t0 = ds.manifest["time"]["start_utc_ms"].as_i64().unwrap_or(0);
     let t1 = t0 + (ds.rows as f64 * ds.interval_s * 1000.0).round() as i64;
-    let ms = months(&tz, t0, t1)?;
+    let ms = months(&tz, t0, t1).map_err(time_err(dataset))?;
     let ids: Vec<String> = ds.appliances.iter().map(|a| a.id.clone()).collect();
     let kwh = energies(&ds, &ms, &ids)?;
     let (ids, kwh) = match by {

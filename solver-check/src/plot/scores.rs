@@ -4,9 +4,10 @@
 
 use super::axis::{self, Frame};
 use super::palette::{FRAME, INK, PALETTE, PANEL_FILL};
-use super::{bucket_means, escape, path, points, write_picture};
+use super::{bucket_means, escape, path, points, time_err, write_picture, zone};
 use crate::contract::columns;
 use crate::dataset::Dataset;
+use crate::diagnostic::Error;
 use crate::stream::header;
 use std::fmt::Write as _;
 use std::path::Path;
@@ -30,26 +31,24 @@ const PER_ROW: usize = 2;
 fn busiest_day(
     report: &crate::score::Report,
     tz: &jiff::tz::TimeZone,
-) -> Result<(i64, i64), String> {
+) -> Result<(i64, i64), jiff::Error> {
     let plan = &report.plan;
     let p_end = plan.start_ms + plan.rows as i64 * plan.interval_ms;
     let days = &report.overall_acc.days;
     let best = (0..days.len())
         .max_by(|&a, &b| days[a].sum_y.total_cmp(&days[b].sum_y))
         .unwrap_or(0);
-    let mut day = jiff::Timestamp::from_millisecond(plan.start_ms)
-        .map_err(|e| e.to_string())?
+    let mut day = jiff::Timestamp::from_millisecond(plan.start_ms)?
         .to_zoned(tz.clone())
         .date();
     for _ in 0..best {
-        day = day.tomorrow().map_err(|e| e.to_string())?;
+        day = day.tomorrow()?;
     }
     let ms = |d: jiff::civil::Date| {
         d.to_zoned(tz.clone())
             .map(|z| z.timestamp().as_millisecond())
-            .map_err(|e| e.to_string())
     };
-    let next = day.tomorrow().map_err(|e| e.to_string())?;
+    let next = day.tomorrow()?;
     Ok((ms(day)?.max(plan.start_ms), ms(next)?.min(p_end)))
 }
 
@@ -62,7 +61,7 @@ fn panel(
     (truth, estimate): (&[Option<f64>], &[Option<f64>]),
     tz: &jiff::tz::TimeZone,
     window: (i64, i64),
-) -> Result<(), String> {
+) -> Result<(), jiff::Error> {
     let hi = truth
         .iter()
         .chain(estimate)
@@ -170,10 +169,10 @@ pub fn plot_scores(
     dataset: &Path,
     estimate: &Path,
     out: &Path,
-) -> Result<(), String> {
-    let ds = Dataset::open(dataset).map_err(|e| e.to_string())?;
-    let tz = jiff::tz::TimeZone::get(&ds.timezone).map_err(|e| e.to_string())?;
-    let window = busiest_day(report, &tz)?;
+) -> Result<(), Error> {
+    let ds = Dataset::open(dataset)?;
+    let tz = zone(&ds)?;
+    let window = busiest_day(report, &tz).map_err(time_err(dataset))?;
     let ids: Vec<String> = report.appliances.iter().map(|a| a.id.clone()).collect();
     let cols: Vec<String> = ids.iter().map(|i| columns::p(i)).collect();
     let truth_file = if ds.manifest["files"].get("truth.parquet").is_some() {
@@ -181,7 +180,7 @@ pub fn plot_scores(
     } else {
         "truth.csv"
     };
-    let open = |p: &Path| header(p).map_err(|e| e.to_string());
+    let open = |p: &Path| header(p);
     let y = bucket_means(&open(&dataset.join(truth_file))?, &cols, window, PANEL_W)?;
     let yh = bucket_means(&open(estimate)?, &cols, window, PANEL_W)?;
     let pw = PANEL_W as f64;
@@ -222,7 +221,7 @@ pub fn plot_scores(
             w: pw,
             h: PANEL_H,
         };
-        panel(&mut svg, id, f, (&y[k], &yh[k]), &tz, window)?;
+        panel(&mut svg, id, f, (&y[k], &yh[k]), &tz, window).map_err(time_err(dataset))?;
     }
     let by = 50.0 + rows as f64 * (PANEL_H + GAP) + 10.0;
     bars(&mut svg, report, by, width);

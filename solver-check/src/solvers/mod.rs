@@ -1,6 +1,9 @@
 //! Reference solvers behind the same task-folder contract as any other
 //! (`builtin:NAME`): they read `task.json`, the training files and the test
-//! meters, and write an estimate file.
+//! meters, and write an estimate file. Their errors are a `String` on
+//! purpose: a built-in solver's failure is a line of the round trip's report
+//! (`Failure::Builtin`), as an outside solver's is its log, not an error of
+//! the command.
 
 mod co;
 mod mean;
