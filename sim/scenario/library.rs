@@ -134,6 +134,8 @@ pub(crate) fn decode_about(ctx: &Reader, node: &Node, name: &str) -> Result<Abou
 }
 
 /// "230 V" or "100-240 V" to volts, within the limits of a rated voltage.
+/// The error is the reason alone (a `String` on purpose): the caller places
+/// it at the template's `voltage` key.
 fn parse_voltages(text: &str) -> Result<(f64, f64), String> {
     let one = |s: &str| -> Result<f64, String> {
         let v = parse_quantity(s, Kind::Voltage)?;
