@@ -62,8 +62,12 @@ def test_plot_options_are_named_on_the_command_line(dataset, tmp_path):
 def test_audit_of_a_bad_meters_file_names_it(tmp_path):
     meters = tmp_path / "meters.csv"
     meters.write_text("when,l1_p_w\nmonday,12\n")
-    p = loadloom("audit", meters, check=False)
+    decl = tmp_path / "declared.toml"
+    decl.write_text(DEMO.read_text())
+    p = loadloom("audit", meters, "--declared", decl, check=False)
     one_error(p, meters)
+    p = loadloom("audit", meters, check=False)
+    one_error(p, meters, "--declared")
     empty = tmp_path / "empty"
     empty.mkdir()
     p = loadloom("audit", empty, check=False)
