@@ -54,7 +54,8 @@ impl WallClock {
     }
 
     /// The instant of wall-clock time `dt`, ms since 1970 UTC; Err with
-    /// the reason when the time does not exist in the zone.
+    /// the reason when the time does not exist in the zone (the reason alone,
+    /// a `String` on purpose: the table reader places it at its row).
     pub fn instant(&mut self, dt: DateTime) -> Result<i64, String> {
         let at = |o: Offset| o.to_timestamp(dt).map(|t| t.as_millisecond());
         let ms = match self.zone.to_ambiguous_timestamp(dt).offset() {
@@ -84,7 +85,8 @@ impl WallClock {
     }
 
     /// The instant of a naive time stored as if it were UTC (a Parquet
-    /// timestamp without a zone), ms since 1970 UTC.
+    /// timestamp without a zone), ms since 1970 UTC; Err with the reason, as
+    /// for [`WallClock::instant`].
     pub fn instant_of_naive_ms(&mut self, wall_ms: i64) -> Result<i64, String> {
         let t = Timestamp::from_millisecond(wall_ms)
             .map_err(|e| format!("{wall_ms} ms is out of range: {e}"))?;
