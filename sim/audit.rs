@@ -92,7 +92,6 @@ pub const SHORT_PHASE_S: f64 = 30.0;
 /// The declaration a scenario makes: its supply, its `[metering]` and its
 /// appliances (not its unmetered loads, which nobody listed, nor its
 /// faults, which are what really happened).
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 pub fn declared(s: &Scenario) -> Declared {
     let supply = Supply {
         kind: s.home.supply,
@@ -102,98 +101,11 @@ pub fn declared(s: &Scenario) -> Declared {
     // PV and batteries are not part of a declaration yet: only the loads.
     let appliances = s
         .consumers()
-        .map(|a| {
-            let states = a
-                .states
-                .iter()
-                .map(|st| {
-                    st.draws
-                        .iter()
-                        .map(|d| DeclDraw {
-                            wiring: d.wiring,
-                            s: C64::new(d.p_w, d.q_var),
-                            zip_p: d.zip_p,
-                            zip_q: d.zip_q,
-                            rated_v: d.rated_v,
-                        })
-                        .collect()
-                })
-                .collect();
-            let n = a.states.len();
-            let steps = match &a.behaviour {
-                Behaviour::Cycle { dwell, extra } => {
-                    // The states in order; the extra one after the last.
-                    let m = dwell.len();
-                    let mut j: Vec<(usize, usize, f64, f64)> =
-                        (0..m).map(|i| (i, (i + 1) % m, 1.0, 1.0)).collect();
-                    if let Some(e) = extra {
-                        j.push((m - 1, e.state, 1.0, 1.0));
-                        j.push((e.state, 0, 1.0, 1.0));
-                    }
-                    Steps::Jumps(j)
-                }
-                Behaviour::Program { lengths, .. } => {
-                    let mut j: Vec<(usize, usize, f64, f64)> =
-                        (0..n).map(|i| (i, (i + 1) % n, 1.0, 1.0)).collect();
-                    // A phase of seconds can fall inside a long interval or
-                    // two: the program is then seen to go past it.
-                    for (i, d) in lengths.iter().enumerate() {
-                        if d.upper_s() <= SHORT_PHASE_S {
-                            j.push((i, (i + 2) % n, 1.0, 1.0));
-                        }
-                    }
-                    Steps::Jumps(j)
-                }
-                Behaviour::Markov { next, .. } => Steps::Jumps(
-                    next.iter()
-                        .enumerate()
-                        .flat_map(|(i, row)| {
-                            row.iter()
-                                .enumerate()
-                                .filter(|(_, p)| **p > 0.0)
-                                .map(move |(k, _)| (i, k, 1.0, 1.0))
-                        })
-                        .collect(),
-                ),
-                Behaviour::Steady { .. } => Steps::None("always on"),
-                Behaviour::Sun(_) | Behaviour::Storage(_) => {
-                    Steps::None("follows the sun or the home")
-                }
-                // A wandering change is a few random-walk steps at most
-                // between two steady stretches: 4 standard deviations.
-                Behaviour::Modulating {
-                    session: Some(_),
-                    min,
-                    wander,
-                    ..
-                } => Steps::Wanders {
-                    state: n - 1,
-                    max: (4.0 * wander).min(1.0),
-                    jumps: vec![(0, n - 1, 1.0, 1.0), (n - 1, 0, 1.0, *min)],
-                },
-                Behaviour::Modulating {
-                    session: None,
-                    wander,
-                    ..
-                } => Steps::Wanders {
-                    state: n - 1,
-                    max: (4.0 * wander).min(1.0),
-                    jumps: vec![],
-                },
-                // On and off from and to each running state (a heat pump's
-                // input follows the outdoor temperature about its rating).
-                Behaviour::Thermostat { .. } => Steps::Jumps(
-                    (1..n)
-                        .flat_map(|i| [(0, i, 1.0, 1.0), (i, 0, 1.0, 1.0)])
-                        .collect(),
-                ),
-            };
-            DeclAppliance {
-                id: a.id.clone(),
-                label: a.label.clone(),
-                states,
-                steps,
-            }
+        .map(|a| DeclAppliance {
+            id: a.id.clone(),
+            label: a.label.clone(),
+            states: declared_states(a),
+            steps: declared_steps(a),
         })
         .collect();
     Declared {
@@ -212,6 +124,97 @@ pub fn declared(s: &Scenario) -> Declared {
         partial: false,
         real_only: false,
         timezone: s.home.timezone.clone(),
+    }
+}
+
+/// Each state's draws as the declaration gives them.
+fn declared_states(a: &crate::scenario::Appliance) -> Vec<Vec<DeclDraw>> {
+    a.states
+        .iter()
+        .map(|st| {
+            st.draws
+                .iter()
+                .map(|d| DeclDraw {
+                    wiring: d.wiring,
+                    s: C64::new(d.p_w, d.q_var),
+                    zip_p: d.zip_p,
+                    zip_q: d.zip_q,
+                    rated_v: d.rated_v,
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// The steps an appliance's behaviour can make between its states, as the
+/// audit expects to see them.
+fn declared_steps(a: &crate::scenario::Appliance) -> Steps {
+    let n = a.states.len();
+    match &a.behaviour {
+        Behaviour::Cycle { dwell, extra } => {
+            // The states in order; the extra one after the last.
+            let m = dwell.len();
+            let mut j: Vec<(usize, usize, f64, f64)> =
+                (0..m).map(|i| (i, (i + 1) % m, 1.0, 1.0)).collect();
+            if let Some(e) = extra {
+                j.push((m - 1, e.state, 1.0, 1.0));
+                j.push((e.state, 0, 1.0, 1.0));
+            }
+            Steps::Jumps(j)
+        }
+        Behaviour::Program { lengths, .. } => {
+            let mut j: Vec<(usize, usize, f64, f64)> =
+                (0..n).map(|i| (i, (i + 1) % n, 1.0, 1.0)).collect();
+            // A phase of seconds can fall inside a long interval or
+            // two: the program is then seen to go past it.
+            for (i, d) in lengths.iter().enumerate() {
+                if d.upper_s() <= SHORT_PHASE_S {
+                    j.push((i, (i + 2) % n, 1.0, 1.0));
+                }
+            }
+            Steps::Jumps(j)
+        }
+        Behaviour::Markov { next, .. } => Steps::Jumps(
+            next.iter()
+                .enumerate()
+                .flat_map(|(i, row)| {
+                    row.iter()
+                        .enumerate()
+                        .filter(|(_, p)| **p > 0.0)
+                        .map(move |(k, _)| (i, k, 1.0, 1.0))
+                })
+                .collect(),
+        ),
+        Behaviour::Steady { .. } => Steps::None("always on"),
+        Behaviour::Sun(_) | Behaviour::Storage(_) => Steps::None("follows the sun or the home"),
+        // A wandering change is a few random-walk steps at most
+        // between two steady stretches: 4 standard deviations.
+        Behaviour::Modulating {
+            session: Some(_),
+            min,
+            wander,
+            ..
+        } => Steps::Wanders {
+            state: n - 1,
+            max: (4.0 * wander).min(1.0),
+            jumps: vec![(0, n - 1, 1.0, 1.0), (n - 1, 0, 1.0, *min)],
+        },
+        Behaviour::Modulating {
+            session: None,
+            wander,
+            ..
+        } => Steps::Wanders {
+            state: n - 1,
+            max: (4.0 * wander).min(1.0),
+            jumps: vec![],
+        },
+        // On and off from and to each running state (a heat pump's
+        // input follows the outdoor temperature about its rating).
+        Behaviour::Thermostat { .. } => Steps::Jumps(
+            (1..n)
+                .flat_map(|i| [(0, i, 1.0, 1.0), (i, 0, 1.0, 1.0)])
+                .collect(),
+        ),
     }
 }
 
@@ -235,7 +238,6 @@ pub struct Observed {
 
 /// Simulates `s` in memory and finds its steps, as the audit would from
 /// its meters file.
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 pub fn observe(s: &Scenario) -> Observed {
     let tl = timelines(s, s.run.steps());
     let mut det = Detector::new(s.home.supply.angles_deg(), s.meter.interval_s);
@@ -309,8 +311,21 @@ pub fn observe(s: &Scenario) -> Observed {
             }
         }
     }
-    // The most of them of one size (within 10 %), the same way.
-    let recurring = jumps
+    let recurring = recurring(&jumps);
+    let (events, stats) = det.finish();
+    Observed {
+        events,
+        stats,
+        changes,
+        big_changes,
+        recurring,
+    }
+}
+
+/// Per appliance, the most of its jumps of one size (within 10 %), the
+/// same way.
+fn recurring(jumps: &[Vec<f64>]) -> Vec<usize> {
+    jumps
         .iter()
         .map(|v| {
             v.iter()
@@ -322,15 +337,7 @@ pub fn observe(s: &Scenario) -> Observed {
                 .max()
                 .unwrap_or(0)
         })
-        .collect();
-    let (events, stats) = det.finish();
-    Observed {
-        events,
-        stats,
-        changes,
-        big_changes,
-        recurring,
-    }
+        .collect()
 }
 
 /// Audits a scenario's simulated meters against a declaration.
@@ -396,6 +403,17 @@ pub struct Mistake {
     /// For an undeclared load: its connections and the real power of each
     /// of its steps of 500 W or more (a finding names one of them).
     pub load: Option<(Vec<String>, Vec<f64>)>,
+}
+
+impl Mistake {
+    /// A mistake of `kind` about appliance or channel `subject`.
+    fn about(kind: &'static str, subject: &str) -> Self {
+        Mistake {
+            kind,
+            subject: subject.to_string(),
+            load: None,
+        }
+    }
 }
 
 /// State changes with a step the audit uses (100 VA or more on a line) an
@@ -524,7 +542,6 @@ fn meter_faults(d: &Declared) -> Vec<Injection> {
 }
 
 /// Declaration mistakes possible for appliance `j`: (name, mistake, declaration).
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 fn declaration_mistakes(d: &Declared, j: usize) -> Vec<(String, Mistake, Declared)> {
     let a = &d.appliances[j];
     let n = d.supply.lines();
@@ -547,32 +564,20 @@ fn declaration_mistakes(d: &Declared, j: usize) -> Vec<(String, Mistake, Declare
                 let y = next(x);
                 v.push((
                     format!("{} declared on {}", a.id, Wiring::LineNeutral(y).name()),
-                    Mistake {
-                        kind: "wrong-line",
-                        subject: a.id.clone(),
-                        load: None,
-                    },
+                    Mistake::about("wrong-line", &a.id),
                     with(Wiring::LineNeutral(y)),
                 ));
                 let w = Wiring::line_line(x, y, n);
                 v.push((
                     format!("{} declared {}", a.id, w.name()),
-                    Mistake {
-                        kind: "declared-ll-seen-ln",
-                        subject: a.id.clone(),
-                        load: None,
-                    },
+                    Mistake::about("declared-ll-seen-ln", &a.id),
                     with(w),
                 ));
             }
             Wiring::LineLine(x, y) => {
                 v.push((
                     format!("{} declared {}", a.id, Wiring::LineNeutral(x).name()),
-                    Mistake {
-                        kind: "declared-ln-seen-ll",
-                        subject: a.id.clone(),
-                        load: None,
-                    },
+                    Mistake::about("declared-ln-seen-ll", &a.id),
                     with(Wiring::LineNeutral(x)),
                 ));
                 if n == 3 && lines.len() == 3 {
@@ -580,11 +585,7 @@ fn declaration_mistakes(d: &Declared, j: usize) -> Vec<(String, Mistake, Declare
                     let w = Wiring::line_line(y, z, n);
                     v.push((
                         format!("{} declared {}", a.id, w.name()),
-                        Mistake {
-                            kind: "wrong-line",
-                            subject: a.id.clone(),
-                            load: None,
-                        },
+                        Mistake::about("wrong-line", &a.id),
                         with(w),
                     ));
                 }

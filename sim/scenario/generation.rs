@@ -129,8 +129,35 @@ fn choice<'a>(
         })
 }
 
+/// `losses`: the share of the array's output lost before the inverter
+/// (PVWatts' default when not given); all of it is refused.
+fn decode_losses(ctx: &Reader, t: &TableReader, node: &Node) -> Result<f64, Error> {
+    match t.non_negative("losses", Kind::Fraction)? {
+        Some(x) if x >= 1.0 => Err(ctx.err(
+            t.opt("losses").unwrap_or(node),
+            "pv.losses",
+            "the losses take every watt",
+            "write a share under 100 %, e.g. \"14 %\"",
+        )),
+        Some(x) => Ok(x),
+        None => Ok(pvwatts::DEFAULT_LOSSES),
+    }
+}
+
+/// The warning for a single-phase inverter above the usual per-phase limit
+/// on a three-phase supply.
+fn single_phase_warning(home: &Home, wiring: Wiring, ac_w: f64) -> Option<String> {
+    (home.supply == SupplyKind::ThreePhase
+        && !wiring.is_line_to_line()
+        && wiring != Wiring::ThreePhase
+        && ac_w > SINGLE_PHASE_LIMIT_VA)
+        .then(|| format!(
+            "pv: a single-phase inverter of {:.1} kW on a three-phase supply is above the usual limit of 4.6 kVA per phase (VDE-AR-N 4105; grid codes elsewhere are similar): such arrays are connected three-phase (wiring = \"3P\")",
+            ac_w / 1000.0
+        ))
+}
+
 /// `[pv]`: the array, its inverter and where it is wired.
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 pub fn decode_pv(
     ctx: &Reader,
     node: &Node,
@@ -174,35 +201,16 @@ pub fn decode_pv(
         tilt_deg: number_or_angle_tilt(ctx, &t)?,
         azimuth_deg: angle_or(&t, "azimuth", facing)?,
         albedo: number_within(ctx, &t, "albedo", (0.0, 1.0), 0.2)?,
-        losses: match t.non_negative("losses", Kind::Fraction)? {
-            Some(x) if x >= 1.0 => {
-                return Err(ctx.err(
-                    t.opt("losses").unwrap_or(node),
-                    "pv.losses",
-                    "the losses take every watt",
-                    "write a share under 100 %, e.g. \"14 %\"",
-                ))
-            }
-            Some(x) => x,
-            None => pvwatts::DEFAULT_LOSSES,
-        },
+        losses: decode_losses(ctx, &t, node)?,
         gamma,
         mount: mount.into(),
         air_c: AIR_C,
         wind_m_s: WIND_M_S,
     };
     t.finish()?;
-    let mut warnings = Vec::new();
-    if home.supply == SupplyKind::ThreePhase
-        && !wiring.is_line_to_line()
-        && wiring != Wiring::ThreePhase
-        && ac_w > SINGLE_PHASE_LIMIT_VA
-    {
-        warnings.push(format!(
-            "pv: a single-phase inverter of {:.1} kW on a three-phase supply is above the usual limit of 4.6 kVA per phase (VDE-AR-N 4105; grid codes elsewhere are similar): such arrays are connected three-phase (wiring = \"3P\")",
-            ac_w / 1000.0
-        ));
-    }
+    let warnings = single_phase_warning(home, wiring, ac_w)
+        .into_iter()
+        .collect();
     let app = Appliance {
         id,
         label,

@@ -70,25 +70,29 @@ pub struct Dataset {
     pub appliances: Vec<ApplianceInfo>,
 }
 
+/// The manifest at `mpath`, read and parsed as JSON.
+fn read_manifest(mpath: &Path) -> Result<Value, DatasetError> {
+    let text = std::fs::read_to_string(mpath).map_err(|e| {
+        err(
+            mpath,
+            format!("cannot read the manifest: {e}"),
+            "point at a dataset folder written by `loadloom run`",
+        )
+    })?;
+    serde_json::from_str(&text).map_err(|e| {
+        err(
+            mpath,
+            format!("the manifest is not valid JSON: {e}"),
+            "rewrite the dataset with `loadloom run`",
+        )
+    })
+}
+
 impl Dataset {
     /// Opens `dir`, reading and checking its manifest.
-    #[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
     pub fn open(dir: &Path) -> Result<Dataset, DatasetError> {
         let mpath = dir.join("manifest.json");
-        let text = std::fs::read_to_string(&mpath).map_err(|e| {
-            err(
-                &mpath,
-                format!("cannot read the manifest: {e}"),
-                "point at a dataset folder written by `loadloom run`",
-            )
-        })?;
-        let manifest: Value = serde_json::from_str(&text).map_err(|e| {
-            err(
-                &mpath,
-                format!("the manifest is not valid JSON: {e}"),
-                "rewrite the dataset with `loadloom run`",
-            )
-        })?;
+        let manifest = read_manifest(&mpath)?;
         let bad = |what: &str| {
             err(
                 &mpath,
