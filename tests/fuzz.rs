@@ -44,6 +44,11 @@ const POPULATION: &str = include_str!("../scenarios/fleet/mixed-street.toml");
 
 /// Cases accepted by the decoder and simulated (the rest were refused).
 static ACCEPTED: AtomicUsize = AtomicUsize::new(0);
+/// Of those, cases with an appended section (weather, building, thermostat,
+/// PV, battery): the sweep must reach that physics, not only its refusals.
+static SECTIONS_ACCEPTED: AtomicUsize = AtomicUsize::new(0);
+/// Cases given as bytes with an invalid UTF-8 sequence inserted.
+static RAW: AtomicUsize = AtomicUsize::new(0);
 
 /// SplitMix64: a tiny generator of our own, so the cases do not depend on
 /// the random streams of the code under test.
@@ -91,8 +96,9 @@ const EXTREMES: [&str; 20] = [
 const ODD: [&str; 12] = [
     "0", "0.001", "0.01", "0.5", "1", "2", "10", "100", "1000", "1e4", "1e5", "0.2",
 ];
-const UNITS: [&str; 14] = [
-    "W", "kW", "V", "kV", "A", "s", "ms", "min", "h", "d", "Hz", "%", "ohm", "var",
+const UNITS: [&str; 21] = [
+    "W", "kW", "V", "kV", "A", "s", "ms", "min", "h", "d", "Hz", "%", "ohm", "var", "K", "°C",
+    "W/K", "MJ/K", "kWh", "deg", "m²",
 ];
 
 /// Byte ranges of the quoted strings that start like a number (`"1.5 kW"`).
@@ -139,31 +145,121 @@ fn splice(text: &str, (s, e): (usize, usize), new: &str) -> String {
     format!("{}{new}{}", &text[..s], &text[e..])
 }
 
+/// Sections a demo may not have, appended whole (then often with one value
+/// made extreme): the weather, the building and its thermostatic loads, PV
+/// and a battery. Written out here from the README's language, not taken
+/// from the decoder.
+const SECTIONS: [&str; 9] = [
+    "[weather]\nclimate = \"lakeshore\"\ndaily_swing = \"9 K\"\nspread = { winter = \"5.5 K\", summer = \"2.8 K\" }\npersistence = 0.7\n",
+    "[weather]\nmonthly = [\"-4 °C\", \"-3 °C\", \"2 °C\", \"8 °C\", \"14 °C\", \"20 °C\", \"23 °C\", \"22 °C\", \"18 °C\", \"11 °C\", \"4 °C\", \"-2 °C\"]\ndaily_swing = \"9 K\"\n",
+    "[weather]\nmean = \"9 °C\"\nswing = \"18 K\"\ncoldest = \"January\"\n",
+    "[building]\nua = \"250 W/K\"\nmass = \"30 MJ/K\"\nair = \"3 MJ/K\"\ndirect = \"40 %\"\ncoupling = \"2500 W/K\"\nheating = \"20.5 °C\"\ncooling = \"24 °C\"\ndeadband = \"1 K\"\nsecond_stage = \"1 K\"\nsetback = { hours = \"23-6\", by = \"2 K\" }\ngains = \"80 %\"\naperture = \"3 m²\"\n",
+    "[[appliance]]\nid = \"added_heat_pump\"\nwiring = \"L1-L2\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"heat-pump\"\ncop = 3.6\nlow_capacity = \"62 %\"\ncooling_cop = 3.8\nlockout = \"-20 °C\"\ndefrost = { every = \"1 h\", length = \"5 min\" }\nstates = [ { name = \"heating\", power = \"2.8 kW\", pf = 0.95 }, { name = \"cooling\", power = \"2.4 kW\", pf = 0.95 } ]\n\n[[appliance]]\nid = \"added_blower\"\nwiring = \"L1-L2\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"blower\"\nstates = [ { name = \"running\", power = \"400 W\", pf = 0.8 } ]\n\n[[appliance]]\nid = \"strips\"\nwiring = \"L1-L2\"\nbehaviour = \"thermostat\"\nrole = \"backup\"\nstates = [ { name = \"heating\", power = \"7.5 kW\" } ]\n",
+    "[[appliance]]\nid = \"baseboard\"\nwiring = \"L1-L2\"\nbehaviour = \"thermostat\"\nrole = \"resistance\"\nstates = [ { name = \"heating\", power = \"3 kW\" } ]\n",
+    "[[appliance]]\nid = \"furnace\"\nwiring = \"L1-N\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"furnace\"\ncapacity = \"18 kW\"\nstates = [ { name = \"running\", power = \"500 W\", pf = 0.8 } ]\n\n[[appliance]]\nid = \"cooler\"\nwiring = \"L1-L2\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"air-conditioner\"\ncop = 3.2\nstates = [ { name = \"cooling\", power = \"3 kW\", pf = 0.9 } ]\n",
+    "[pv]\ndc = \"7.2 kW\"\ninverter = \"6 kW\"\ntilt = \"30 deg\"\nazimuth = \"180 deg\"\nalbedo = 0.2\nlosses = \"14.08 %\"\nmodule = \"premium\"\nmount = \"rack\"\n",
+    "[battery]\ncapacity = \"13.5 kWh\"\npower = \"5 kW\"\nefficiency = \"90 %\"\nreserve = \"10 %\"\ninitial = \"50 %\"\nresponse = \"2 s\"\n",
+];
+
+/// Appends a section (the climate ones with a building and the other
+/// climate parts most of the time, so the thermostat is reached), then
+/// often makes one of its values extreme.
+fn mutate_section(text: &str, rng: &mut Rng) -> (String, String) {
+    let k = rng.below(SECTIONS.len());
+    let mut add = SECTIONS[k].to_string();
+    if (3..=6).contains(&k) && rng.below(4) != 0 {
+        add = format!("{}\n{}\n{add}", SECTIONS[rng.below(3)], SECTIONS[3]);
+        if k == 3 {
+            add += &format!("\n{}", SECTIONS[4 + rng.below(3)]);
+        }
+    }
+    let mut what = format!("append section {k}");
+    if rng.below(2) == 0 {
+        let (changed, w) = match rng.below(3) {
+            0 | 1 => mutate_quantity_in(&add, rng),
+            _ => mutate_type(&add, rng),
+        };
+        add = changed;
+        what += &format!(", {w}");
+    }
+    // A PV array needs the home's place on the globe.
+    let text = if k == 7 && !text.contains("latitude") {
+        text.replacen(
+            "[home]\n",
+            "[home]\nlatitude = 44.6\nlongitude = -63.6\n",
+            1,
+        )
+    } else {
+        text.to_string()
+    };
+    (format!("{text}\n{add}"), what)
+}
+
+/// Values of another type, empty or enormous, for any `key = value` line.
+const WRONG: [&str; 10] = [
+    "\"text\"",
+    "42",
+    "true",
+    "[1, 2]",
+    "{ a = 1 }",
+    "\"\"",
+    "1979-05-27T07:32:00Z",
+    "-0.0",
+    "\"nan W\"",
+    "[]",
+];
+
+/// Replaces the value of one `key = value` line by a value of another type,
+/// or a string of 200 000 characters.
+fn mutate_type(text: &str, rng: &mut Rng) -> (String, String) {
+    let starts: Vec<usize> = text
+        .match_indices(" = ")
+        .map(|(i, m)| i + m.len())
+        .collect();
+    if starts.is_empty() {
+        return (text.to_string(), "none".into());
+    }
+    let s = *rng.pick(&starts);
+    let e = s + text[s..].find('\n').unwrap_or(text.len() - s);
+    let new = if rng.below(8) == 0 {
+        format!("\"{}\"", "x".repeat(200_000))
+    } else {
+        rng.pick(&WRONG).to_string()
+    };
+    let what = format!("{} -> {} chars of another type", &text[s..e], new.len());
+    (splice(text, (s, e), &new), what)
+}
+
+/// One quoted quantity of `text` with an extreme or odd number.
+fn mutate_quantity_in(text: &str, rng: &mut Rng) -> (String, String) {
+    match quantities(text) {
+        q if q.is_empty() => (text.to_string(), "none".into()),
+        q => {
+            let at = *rng.pick(&q);
+            let unit = text[at.0 + 1..at.1 - 1].trim_start_matches(|c: char| {
+                c.is_ascii_digit() || matches!(c, '.' | '-' | 'e' | '+' | ' ')
+            });
+            let unit = if rng.below(5) == 0 {
+                rng.pick(&UNITS)
+            } else {
+                unit
+            };
+            let num = if rng.below(2) == 0 {
+                rng.pick(&EXTREMES)
+            } else {
+                rng.pick(&ODD)
+            };
+            let new = format!("\"{num} {unit}\"");
+            let what = format!("{} -> {new}", &text[at.0..at.1]);
+            (splice(text, at, &new), what)
+        }
+    }
+}
+
 /// One mutation of `text`, and what it did.
 fn mutate(text: &str, rng: &mut Rng) -> (String, String) {
-    match rng.below(9) {
-        0..=2 => match quantities(text) {
-            q if q.is_empty() => (text.to_string(), "none".into()),
-            q => {
-                let at = *rng.pick(&q);
-                let unit = text[at.0 + 1..at.1 - 1].trim_start_matches(|c: char| {
-                    c.is_ascii_digit() || matches!(c, '.' | '-' | 'e' | '+' | ' ')
-                });
-                let unit = if rng.below(5) == 0 {
-                    rng.pick(&UNITS)
-                } else {
-                    unit
-                };
-                let num = if rng.below(2) == 0 {
-                    rng.pick(&EXTREMES)
-                } else {
-                    rng.pick(&ODD)
-                };
-                let new = format!("\"{num} {unit}\"");
-                let what = format!("{} -> {new}", &text[at.0..at.1]);
-                (splice(text, at, &new), what)
-            }
-        },
+    match rng.below(12) {
+        0..=2 => mutate_quantity_in(text, rng),
         3 | 4 => match bare_numbers(text) {
             q if q.is_empty() => (text.to_string(), "none".into()),
             q => {
@@ -186,6 +282,8 @@ fn mutate(text: &str, rng: &mut Rng) -> (String, String) {
         },
         5 => mutate_name(text, rng),
         6 => mutate_setting(text, rng),
+        7 | 8 => mutate_section(text, rng),
+        9 => mutate_type(text, rng),
         _ => mutate_lines(text, rng),
     }
 }
@@ -334,6 +432,15 @@ fn case(seed: u64, index: u64, dir: &Path) -> Result<(), String> {
         text = t;
         what.push(w);
     }
+    let sectioned = what.iter().any(|w| w.starts_with("append section"));
+    // One scenario in sixteen as bytes with an invalid UTF-8 sequence.
+    let raw = (!population && rng.below(16) == 0).then(|| {
+        let mut bytes = text.clone().into_bytes();
+        let at = rng.below(bytes.len());
+        bytes.insert(at, 0xff);
+        what.push(format!("byte 0xff at {at}"));
+        bytes
+    });
     let run = || -> Result<(), String> {
         if population {
             let p = dir.join(format!("street-{index}.toml"));
@@ -345,8 +452,24 @@ fn case(seed: u64, index: u64, dir: &Path) -> Result<(), String> {
                 _ => Ok(()),
             }
         } else {
-            match loadloom::scenario::load_str(&dir.join(name), text.clone()) {
-                Ok(s) => exercise(s),
+            let loaded = match &raw {
+                Some(bytes) => {
+                    RAW.fetch_add(1, Ordering::Relaxed);
+                    let p = dir.join(format!("raw-{index}.toml"));
+                    std::fs::write(&p, bytes).map_err(|e| e.to_string())?;
+                    let s = loadloom::scenario::load(&p);
+                    let _ = std::fs::remove_file(&p);
+                    s
+                }
+                None => loadloom::scenario::load_str(&dir.join(name), text.clone()),
+            };
+            match loaded {
+                Ok(s) => {
+                    if sectioned {
+                        SECTIONS_ACCEPTED.fetch_add(1, Ordering::Relaxed);
+                    }
+                    exercise(s)
+                }
                 Err(_) => Ok(()),
             }
         }
@@ -427,11 +550,19 @@ fn mutated_scenarios_and_populations_never_panic_hang_or_write_non_finite_number
     let _ = std::panic::take_hook();
     let _ = std::fs::remove_dir_all(&dir);
     let failures = failures.into_inner().unwrap();
+    let sectioned = SECTIONS_ACCEPTED.load(Ordering::Relaxed);
     eprintln!(
-        "fuzz: {cases} cases (seed {seed}) in {:.1} s, {} accepted and simulated, {} failures",
+        "fuzz: {cases} cases (seed {seed}) in {:.1} s, {} accepted and simulated ({sectioned} with an appended section), {} as invalid UTF-8 bytes, {} failures",
         started.elapsed().as_secs_f64(),
         ACCEPTED.load(Ordering::Relaxed),
+        RAW.load(Ordering::Relaxed),
         failures.len()
+    );
+    // The appended sections must reach the simulation in a share of the
+    // cases, or the sweep would only test their refusals.
+    assert!(
+        sectioned as u64 >= cases / 100,
+        "only {sectioned} of {cases} cases simulated an appended section"
     );
     assert!(
         failures.is_empty(),

@@ -31,7 +31,7 @@ import tempfile
 import pyarrow.parquet as pq
 
 ROOT = pathlib.Path(__file__).resolve().parents[2]
-SCENARIOS = ["split-phase-house.toml", "three-phase-house.toml", "apartment-208.toml"]
+SCENARIOS = ["split-phase-house.toml", "three-phase-house.toml", "apartment-208.toml", "solar-bungalow.toml"]
 POPULATION = ROOT / "scenarios" / "fleet" / "mixed-street.toml"
 
 # Extreme numbers a hostile file would hold (issue 18's list and its kin).
@@ -40,7 +40,8 @@ EXTREMES = [
     "4294967296", "9.999999e99", "0.000001", "123456789012345678901234567890",
     "1e-7", "5e-324", "1.7976931348623157e308",
 ]
-UNITS = ["W", "kW", "V", "kV", "A", "mA", "s", "ms", "min", "h", "d", "Hz", "%", "ohm", "var", "MW"]
+UNITS = ["W", "kW", "V", "kV", "A", "mA", "s", "ms", "min", "h", "d", "Hz", "%", "ohm", "var", "MW",
+         "K", "°C", "W/K", "MJ/K", "kWh", "deg", "m²"]
 QUANTITY = re.compile(r'"(-?[0-9][0-9.eE+-]*)\s*([A-Za-z%]+)"')
 BARE = re.compile(r"(=\s*)(-?[0-9][0-9._eE+-]*)(\s*[,}\n#])")
 IDLINE = re.compile(r'^(\s*(?:id|name)\s*=\s*)"([^"]*)"', re.M)
@@ -133,8 +134,73 @@ def mutate_lines(text, rng):
     return "\n".join(lines), f"{how} line {k + 1}"
 
 
+# Sections the demos may lack, written from the README's language: weather,
+# the building and thermostatic loads of each role, PV, a battery.
+WEATHER = [
+    '[weather]\nclimate = "harbour"\ndaily_swing = "9 K"\nspread = { winter = "5.5 K", summer = "2.8 K" }\npersistence = 0.7\n',
+    '[weather]\nmonthly = ["-6 °C", "-4 °C", "1 °C", "7 °C", "13 °C", "19 °C", "22 °C", "21 °C", "17 °C", "10 °C", "3 °C", "-3 °C"]\n',
+    '[weather]\nmean = "10 °C"\nswing = "20 K"\ncoldest = "January"\n',
+]
+BUILDING = ('[building]\nua = "220 W/K"\nmass = "25 MJ/K"\nair = "2.5 MJ/K"\ndirect = "35 %"\n'
+            'coupling = "2200 W/K"\nheating = "21 °C"\ncooling = "25 °C"\ndeadband = "1 K"\n'
+            'second_stage = "1 K"\nsetback = { hours = "22-6", by = "2 K" }\ngains = "70 %"\naperture = "2 m²"\n')
+THERMOSTATIC = [
+    '[[appliance]]\nid = "sweep_heat_pump"\nwiring = "L1-L2"\nload = "motor"\nbehaviour = "thermostat"\nrole = "heat-pump"\n'
+    'cop = 3.4\nlow_capacity = "60 %"\ncooling_cop = 3.6\nlockout = "-18 °C"\ndefrost = { every = "1 h", length = "5 min" }\n'
+    'states = [ { name = "heating", power = "2.5 kW", pf = 0.95 }, { name = "cooling", power = "2.2 kW", pf = 0.95 } ]\n\n'
+    '[[appliance]]\nid = "sweep_blower"\nwiring = "L1-L2"\nload = "motor"\nbehaviour = "thermostat"\nrole = "blower"\n'
+    'states = [ { name = "running", power = "350 W", pf = 0.8 } ]\n\n'
+    '[[appliance]]\nid = "sweep_strips"\nwiring = "L1-L2"\nbehaviour = "thermostat"\nrole = "backup"\n'
+    'states = [ { name = "heating", power = "5 kW" } ]\n',
+    '[[appliance]]\nid = "sweep_baseboard"\nwiring = "L1-L2"\nbehaviour = "thermostat"\nrole = "resistance"\n'
+    'states = [ { name = "heating", power = "2 kW" } ]\n',
+    '[[appliance]]\nid = "sweep_furnace"\nwiring = "L1-N"\nload = "motor"\nbehaviour = "thermostat"\nrole = "furnace"\n'
+    'capacity = "15 kW"\nstates = [ { name = "running", power = "450 W", pf = 0.8 } ]\n\n'
+    '[[appliance]]\nid = "sweep_cooler"\nwiring = "L1-L2"\nload = "motor"\nbehaviour = "thermostat"\nrole = "air-conditioner"\n'
+    'cop = 3.0\nstates = [ { name = "cooling", power = "2.8 kW", pf = 0.9 } ]\n',
+]
+PV = '[pv]\ndc = "5 kW"\ninverter = "4.6 kW"\ntilt = "25 deg"\nazimuth = "170 deg"\nalbedo = 0.25\nlosses = "12 %"\nmodule = "thin-film"\nmount = "roof"\n'
+BATTERY = '[battery]\ncapacity = "10 kWh"\npower = "4 kW"\nefficiency = "88 %"\nreserve = "15 %"\ninitial = "40 %"\nresponse = "3 s"\n'
+
+
+def mutate_section(text, rng):
+    """Appends a climate (weather, building, thermostatic loads), PV or a
+    battery, then often makes one value inside it extreme or of another type."""
+    kind = rng.choice(["climate", "climate", "climate", "pv", "battery", "weather only"])
+    if kind == "climate":
+        add = rng.choice(WEATHER) + "\n" + BUILDING + "\n" + "\n".join(rng.sample(THERMOSTATIC, rng.randint(1, 3)))
+    elif kind == "weather only":
+        add = rng.choice(WEATHER)
+    elif kind == "pv":
+        add = PV
+        if "latitude" not in text:  # a PV array needs the home's place
+            text = text.replace("[home]\n", "[home]\nlatitude = 40.7\nlongitude = -74.0\n", 1)
+    else:
+        add = BATTERY
+    what = f"append {kind}"
+    if rng.random() < 0.5:
+        add, w = rng.choice([mutate_quantity, mutate_bare, mutate_type])(add, rng)
+        what += ", " + w
+    return text + "\n" + add, what
+
+
+WRONG = ['"text"', "42", "true", "[1, 2]", "{ a = 1 }", '""', "1979-05-27T07:32:00Z", "-0.0", '"nan W"', "[]"]
+VALUE = re.compile(r"^(\s*[A-Za-z_]+\s*=\s*)(.+)$", re.M)
+
+
+def mutate_type(text, rng):
+    """A value of another type, empty, or a string of 200 000 characters."""
+    hits = list(VALUE.finditer(text))
+    if not hits:
+        return text, "none"
+    m = rng.choice(hits)
+    new = '"' + "x" * 200_000 + '"' if rng.random() < 0.1 else rng.choice(WRONG)
+    return text[: m.start(2)] + new + text[m.end(2):], f"{m.group(1).strip()} -> {len(new)} chars of another type"
+
+
 MUTATORS = [mutate_quantity, mutate_quantity, mutate_quantity, mutate_bare, mutate_bare,
-            mutate_name, mutate_setting, mutate_source, mutate_lines]
+            mutate_name, mutate_setting, mutate_source, mutate_lines, mutate_section,
+            mutate_section, mutate_type]
 
 
 def make_case(rng):
