@@ -843,7 +843,7 @@ fn case_of(
             hidden(m)
                 || o.appliances
                     .iter()
-                    .any(|a| a.id == m.subject && a.verdict == "undecidable")
+                    .any(|a| a.id == m.subject && a.verdict == check::Verdict::Undecidable)
         })
         .map(|m| m.subject.clone())
         .collect();
@@ -923,9 +923,9 @@ pub struct MatrixScore {
 /// Scores the cases: per kind, injected mistakes found (recall) and findings
 /// that were true (precision); false alarms on clean cases.
 pub fn score(cases: &[Case]) -> MatrixScore {
-    let mut kinds: Vec<(&'static str, KindScore)> = check::KINDS
+    let mut kinds: Vec<(&'static str, KindScore)> = check::Kind::ALL
         .iter()
-        .map(|k| (*k, KindScore::default()))
+        .map(|k| (k.name(), KindScore::default()))
         .collect();
     let (mut clean, mut clean_bad) = (0, 0);
     for c in cases {

@@ -1,34 +1,45 @@
-"""A small seeded run of the outsider's validation (audit_outside.py): homes
+"""The outsider's validation of the wiring audit (audit_outside.py): homes
 the audit was not built on, declarations as installers write them, every
-mistake kind, at 1 s, 10 s and 1 min with real power only. The full run
-(300 cases, the README's table) is
+mistake kind, at 1 s, 10 s and 1 min with real power only.
 
-    .venv/bin/python tests/python/audit_outside.py --cases 300 --seed 1
+CI runs a small subset (48 cases of the development seed 7, a few minutes
+on 2 cores); `AUDIT_OUTSIDE_FULL=1` runs the README's set instead (300
+cases of seed 1). Seed 11 is held out: it is run only to report, never to
+tune the audit (README, "Validation on installations it has never seen").
 
-The floors below are what the audit reaches on this subset today, less a
-margin; the targets of the project (no finding on a clean home, precision
-95 %, recall 90 %) are not all met yet (README, "Wiring audit")."""
+    AUDIT_OUTSIDE_FULL=1 .venv/bin/python -m pytest -q tests/python/test_audit_outside.py -s
+
+The floors are below what the audit reaches on these cases, less a margin,
+so a regression shows; the targets (no finding on a clean home, precision
+95 %, recall 90 %) are the project's, reported in the README."""
 import os
 import tempfile
 
 import audit_outside as ao
 
 
+def settings():
+    if os.environ.get("AUDIT_OUTSIDE_FULL"):
+        return 300, 1
+    return int(os.environ.get("AUDIT_OUTSIDE_CI_CASES", 48)), 7
+
+
 def test_the_audit_on_installations_it_has_never_seen():
-    n = int(os.environ.get("AUDIT_OUTSIDE_CI_CASES", 36))
+    n, seed = settings()
     with tempfile.TemporaryDirectory() as tmp:
-        res = ao.run(n, 7, 2, tmp)
+        res = ao.run(n, seed, 2, tmp)
     per, totals, reasons, false = ao.score(res)
     print(ao.table(per, totals, reasons, false))
     assert totals["errors"] == 0, [r.get("error") for r in res if "error" in r]
-    found = sum(c["found"] for c in per.values())
-    decided = sum(c["injected"] - c["not exercised"] - c["undecidable"] for c in per.values())
-    correct = sum(c["correct"] for c in per.values())
-    made = correct + sum(c["false"] for c in per.values())
-    assert decided >= 20 and found / decided >= 0.70, (found, decided)
-    assert correct / made >= 0.30, (correct, made)
-    # Every metering kind the audit names is exercised by the full run; here
-    # at least the common ones are found when injected.
+    s = ao.summary(per, totals)
+    assert s["decided"] >= 20, s
+    assert s["recall"] >= FLOORS["recall"], s
+    assert s["precision"] >= FLOORS["precision"], s
+    assert s["clean with a finding"] <= FLOORS["clean with a finding"] * max(s["clean"], 1), s
+    # The common metering kinds are found whenever the data shows them.
     for k in ["reversed-ct", "no-ct"]:
         c = per[k]
-        assert c["found"] >= c["injected"] - c["not exercised"] - 1, (k, c)
+        assert c["found"] >= c["injected"] - c["not exercised"] - c["undecidable"] - 1, (k, c)
+
+
+FLOORS = {"recall": 0.45, "precision": 0.75, "clean with a finding": 0.10}

@@ -341,11 +341,11 @@ pub fn interval_of(t: &[i64]) -> Option<f64> {
 pub const ASSUMPTIONS: [&str; 3] = [
     "the home only consumes: a conductor power the metering implies must not be negative (a home with generation needs it declared, which this audit does not yet read)",
     "appliances switch between the declared states; loads whose power wanders or never switches cannot be placed from steps and are reported as undecidable",
-    "steps are matched within 20 W plus 3 % of their size per channel where the voltages are measured (the expected step follows them), else within 30 W plus 10 %",
+    "steps are matched within 20 W plus 3 % of their size per channel where the voltages are measured (the expected step follows them), else within 30 W plus 10 %, widened by three standard errors of the rows either side of the step and, where the voltage changed, by the other loads' possible response to it",
 ];
 
 fn finding_json(f: &check::Finding) -> Value {
-    json!({ "kind": f.kind, "subject": f.subject, "message": f.message, "advice": advice(f), "confidence": (f.confidence * 100.0).round() / 100.0, "evidence": f.evidence })
+    json!({ "kind": f.kind.name(), "subject": f.subject, "message": f.message, "advice": advice(f), "confidence": (f.confidence * 100.0).round() / 100.0, "possible_because": f.doubt, "evidence": f.evidence })
 }
 
 /// What to check on site for a finding.
@@ -353,7 +353,7 @@ pub fn advice(f: &check::Finding) -> String {
     let ev = &f.evidence;
     let text = |k: &str| ev[k].as_str().unwrap_or("?").to_string();
     let chans = f.subject.replace('+', " and ");
-    match f.kind {
+    match f.kind.name() {
         "reversed-ct" => format!("turn the CT of channel {chans} round (its arrow toward the load), or declare it reversed"),
         "ct-on-other-conductor" => format!("move the CT of channel {chans} onto its own line's conductor, or declare where it sits"),
         "cts-exchanged" => format!("exchange the CTs of channels {chans} (each sits on the other's conductor)"),
@@ -439,14 +439,21 @@ impl Audit {
         let p = &self.outcome.possible;
         if !p.is_empty() {
             o += &format!(
-                "{} possible (confidence below {:.2}; worth a look, not a finding)\n",
+                "{} possible (confidence below {:.2}, or another account fits the data as well; worth a look, not a finding)\n",
                 p.len(),
-                check::POSSIBLE
+                self.outcome.possible_below
             );
             for x in p {
                 o += &format!(
-                    "{bullet}[possible {}] {} (confidence {:.2})\n",
-                    x.kind, x.message, x.confidence
+                    "{bullet}[possible {}] {} (confidence {:.2}{})\n{bullet}  to check: {}\n",
+                    x.kind,
+                    x.message,
+                    x.confidence,
+                    x.doubt
+                        .as_ref()
+                        .map(|w| format!("; possible only: {w}"))
+                        .unwrap_or_default(),
+                    advice(x)
                 );
             }
         }
@@ -485,9 +492,9 @@ impl Render for Audit {
             "metering": self.channel_rows().iter().map(|r| json!({ "channel": r[0], "declared": r[1], "found": r[2] })).collect::<Vec<_>>(),
             "findings": self.outcome.findings.iter().map(finding_json).collect::<Vec<_>>(),
             "possible": self.outcome.possible.iter().map(finding_json).collect::<Vec<_>>(),
-            "possible_below": check::POSSIBLE,
+            "possible_below": self.outcome.possible_below,
             "unlisted_loads": self.outcome.unlisted.iter().map(finding_json).collect::<Vec<_>>(),
-            "appliances": self.outcome.appliances.iter().map(|a| json!({ "id": a.id, "declared": a.declared, "verdict": a.verdict, "seen": a.seen, "reason": a.reason, "steps_as_declared": a.steps_declared, "steps_best_other": a.steps_best_other })).collect::<Vec<_>>(),
+            "appliances": self.outcome.appliances.iter().map(|a| json!({ "id": a.id, "declared": a.declared, "verdict": a.verdict.name(), "seen": a.seen, "reason": a.reason, "steps_as_declared": a.steps_declared, "steps_best_other": a.steps_best_other })).collect::<Vec<_>>(),
             "steps": { "used": self.outcome.steps, "explained": self.outcome.steps_explained },
             "notes": self.outcome.notes,
             "assumptions": ASSUMPTIONS,
