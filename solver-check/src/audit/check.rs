@@ -185,7 +185,7 @@ pub struct Finding {
     pub subject: String,
     /// What was found and what to check, in words.
     pub message: String,
-    /// Share of the evidence that speaks for it, 0 … 1 (below [`POSSIBLE`]:
+    /// Share of the evidence that speaks for it, 0 … 1 (below the possible line, [`Thresholds::possible`]:
     /// listed apart).
     pub confidence: f64,
     /// The figures behind it (step counts, powers), for the JSON report.
