@@ -48,13 +48,59 @@ fn tolerance(s: &Scenario, p: f64) -> f64 {
 }
 
 /// `energy_j[k]`: energy of each load (appliances, then unmetered).
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficulty {
     let k = s.steps_per_interval();
-    let mut changes: Vec<u64> = Vec::new();
     // The loads only: a PV inverter's output and a battery's answer to the
     // home are not appliances to tell apart.
     let is_load = |k: usize| s.appliances.get(k).is_none_or(|a| a.role == Role::Load);
+    let (any, multi) = switching(s, timelines, &is_load);
+    let intervals = timelines
+        .first()
+        .and_then(|t| t.segments.last())
+        .map(|l| l.end / k)
+        .unwrap_or(1)
+        .max(1);
+
+    let ambiguous = ambiguous_steps(s, &is_load);
+    let total: f64 = energy_j
+        .iter()
+        .enumerate()
+        .filter(|(k, _)| is_load(*k))
+        .map(|(_, e)| e)
+        .sum();
+    let ll: f64 = s
+        .appliances
+        .iter()
+        .zip(energy_j)
+        .filter(|(a, _)| a.role == Role::Load)
+        .filter(|(a, _)| {
+            a.connections()
+                .iter()
+                .any(|c| c.is_line_to_line() || *c == Wiring::ThreePhase)
+        })
+        .map(|(_, e)| e)
+        .sum();
+    let unmetered: f64 = energy_j[s.appliances.len()..].iter().sum();
+    // (+ 0.0 turns the −0.0 of an empty float sum into 0.)
+    let share = |x: f64| if total > 0.0 { x / total + 0.0 } else { 0.0 };
+    Difficulty {
+        switching_share: any as f64 / intervals as f64,
+        coincident_share: if any > 0 {
+            multi as f64 / any as f64
+        } else {
+            0.0
+        },
+        ambiguous,
+        line_to_line_share: share(ll),
+        unmetered_share: share(unmetered),
+    }
+}
+
+/// Reporting intervals in which any load changes state, and those in which
+/// two or more do.
+fn switching(s: &Scenario, timelines: &[Timeline], is_load: &dyn Fn(usize) -> bool) -> (u64, u64) {
+    let k = s.steps_per_interval();
+    let mut changes: Vec<u64> = Vec::new();
     for (_, t) in timelines[..s.appliances.len()]
         .iter()
         .enumerate()
@@ -80,13 +126,11 @@ pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficult
         }
         i = j;
     }
-    let intervals = timelines
-        .first()
-        .and_then(|t| t.segments.last())
-        .map(|l| l.end / k)
-        .unwrap_or(1)
-        .max(1);
+    (any, multi)
+}
 
+/// Pairs of steps of two loads on one line that the meter cannot tell apart.
+fn ambiguous_steps(s: &Scenario, is_load: &dyn Fn(usize) -> bool) -> Vec<Ambiguous> {
     // Steps of every non-lowest state on each line it draws from.
     let mut steps: Vec<(usize, usize, String, f64, f64)> = Vec::new(); // (line, app, state, ΔP, ΔQ)
     for (ai, a) in s.appliances.iter().enumerate().filter(|(k, _)| is_load(*k)) {
@@ -123,38 +167,7 @@ pub fn card(s: &Scenario, timelines: &[Timeline], energy_j: &[f64]) -> Difficult
             }
         }
     }
-    let total: f64 = energy_j
-        .iter()
-        .enumerate()
-        .filter(|(k, _)| is_load(*k))
-        .map(|(_, e)| e)
-        .sum();
-    let ll: f64 = s
-        .appliances
-        .iter()
-        .zip(energy_j)
-        .filter(|(a, _)| a.role == Role::Load)
-        .filter(|(a, _)| {
-            a.connections()
-                .iter()
-                .any(|c| c.is_line_to_line() || *c == Wiring::ThreePhase)
-        })
-        .map(|(_, e)| e)
-        .sum();
-    let unmetered: f64 = energy_j[s.appliances.len()..].iter().sum();
-    // (+ 0.0 turns the −0.0 of an empty float sum into 0.)
-    let share = |x: f64| if total > 0.0 { x / total + 0.0 } else { 0.0 };
-    Difficulty {
-        switching_share: any as f64 / intervals as f64,
-        coincident_share: if any > 0 {
-            multi as f64 / any as f64
-        } else {
-            0.0
-        },
-        ambiguous,
-        line_to_line_share: share(ll),
-        unmetered_share: share(unmetered),
-    }
+    ambiguous
 }
 
 impl Difficulty {
