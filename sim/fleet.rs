@@ -837,14 +837,7 @@ pub fn run(
 }
 
 /// `homes.parquet` (one row per home, from the homes' manifests) and `fleet.json`.
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), Error> {
-    let help = "check free space and permissions; run the fleet again to write the index";
-    let failed = |file: &Path, e: &dyn std::error::Error| {
-        Error::file(file, "writing the fleet index failed", help)
-            .caused_by(e)
-            .failed()
-    };
     use arrow_array::{ArrayRef, Float64Array, Int64Array, RecordBatch, StringArray};
     use arrow_schema::{DataType, Field, Schema};
     use std::sync::Arc;
@@ -920,6 +913,27 @@ fn write_index(pop: &Population, homes: u64, out: &Path) -> Result<(), Error> {
     w.close().map_err(|e| failed(&index, &e))?;
     // Never through a link planted in the output folder.
     crate::dataset::folder::write_file(&index, &bytes).map_err(|e| failed(&index, &e))?;
+    write_summary(pop, homes, out, &kinds, &owned, &kwh)
+}
+
+/// The error of writing the fleet index's `file`.
+fn failed(file: &Path, e: &dyn std::error::Error) -> Error {
+    let help = "check free space and permissions; run the fleet again to write the index";
+    Error::file(file, "writing the fleet index failed", help)
+        .caused_by(e)
+        .failed()
+}
+
+/// `fleet.json`: the population, the homes of each kind, how many homes own
+/// each template, the fleet's energy and where its tables are.
+fn write_summary(
+    pop: &Population,
+    homes: u64,
+    out: &Path,
+    kinds: &[String],
+    owned: &std::collections::BTreeMap<String, u64>,
+    kwh: &[f64],
+) -> Result<(), Error> {
     let kind_counts: serde_json::Map<String, Value> = pop
         .kinds
         .iter()
