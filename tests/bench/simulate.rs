@@ -64,7 +64,6 @@ fn sim(s: &Scenario, out: &Path) {
 }
 
 /// The same tables, rows and columns, from one precomputed chunk.
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 fn floor(s: &Scenario, out: &Path) {
     let mut short = s.clone();
     short.run.length_s = CHUNK_ROWS as f64 * s.meter.interval_s;
@@ -76,29 +75,7 @@ fn floor(s: &Scenario, out: &Path) {
         short.intervals(),
         CHUNK_ROWS,
         |c| -> Result<(), ()> {
-            kept = Some(loadloom::simulate::Chunk {
-                first_row: 0,
-                readings: loadloom::meter::Readings {
-                    line_p: c.readings.line_p.clone(),
-                    line_q: c.readings.line_q.clone(),
-                    line_v: c.readings.line_v.clone(),
-                    line_i: c.readings.line_i.clone(),
-                    n_i: c.readings.n_i.clone(),
-                    total_p: c.readings.total_p.clone(),
-                    total_q: c.readings.total_q.clone(),
-                    energy: c.readings.energy.clone(),
-                    production_p: c.readings.production_p.clone(),
-                    present: c.readings.present.clone(),
-                },
-                truth: loadloom::simulate::Truth {
-                    app_p: c.truth.app_p.clone(),
-                    app_q: c.truth.app_q.clone(),
-                    app_state: c.truth.app_state.clone(),
-                    app_line_p: c.truth.app_line_p.clone(),
-                    app_soc: c.truth.app_soc.clone(),
-                    unmetered_p: c.truth.unmetered_p.clone(),
-                },
-            });
+            kept = Some(copy_chunk(c));
             Ok(())
         },
     )
@@ -129,35 +106,7 @@ fn floor(s: &Scenario, out: &Path) {
     while chunk.first_row < rows {
         let n = (rows - chunk.first_row).min(CHUNK_ROWS as u64) as usize;
         if n < CHUNK_ROWS {
-            for v in chunk
-                .readings
-                .line_p
-                .iter_mut()
-                .chain(&mut chunk.readings.line_q)
-                .chain(&mut chunk.readings.line_v)
-                .chain(&mut chunk.readings.line_i)
-            {
-                v.truncate(n);
-            }
-            for v in [
-                &mut chunk.readings.n_i,
-                &mut chunk.readings.total_p,
-                &mut chunk.readings.total_q,
-                &mut chunk.truth.unmetered_p,
-            ] {
-                v.truncate(n);
-            }
-            chunk.readings.energy.iter_mut().for_each(|v| v.truncate(n));
-            chunk.readings.present.truncate(n);
-            chunk
-                .truth
-                .app_p
-                .iter_mut()
-                .chain(&mut chunk.truth.app_q)
-                .chain(chunk.truth.app_line_p.iter_mut().flatten())
-                .chain(chunk.truth.app_soc.iter_mut().flatten())
-                .for_each(|v| v.truncate(n));
-            chunk.truth.app_state.iter_mut().for_each(|v| v.truncate(n));
+            truncate_chunk(&mut chunk, n);
         }
         loadloom::dataset::sink::write_all(
             vec![
@@ -190,6 +139,66 @@ fn floor(s: &Scenario, out: &Path) {
         "floor: precomputing took no part in the {:.1} s",
         started.elapsed().as_secs_f64()
     );
+}
+
+/// A copy of the chunk the simulation handed over.
+fn copy_chunk(c: &loadloom::simulate::Chunk) -> loadloom::simulate::Chunk {
+    loadloom::simulate::Chunk {
+        first_row: 0,
+        readings: loadloom::meter::Readings {
+            line_p: c.readings.line_p.clone(),
+            line_q: c.readings.line_q.clone(),
+            line_v: c.readings.line_v.clone(),
+            line_i: c.readings.line_i.clone(),
+            n_i: c.readings.n_i.clone(),
+            total_p: c.readings.total_p.clone(),
+            total_q: c.readings.total_q.clone(),
+            energy: c.readings.energy.clone(),
+            production_p: c.readings.production_p.clone(),
+            present: c.readings.present.clone(),
+        },
+        truth: loadloom::simulate::Truth {
+            app_p: c.truth.app_p.clone(),
+            app_q: c.truth.app_q.clone(),
+            app_state: c.truth.app_state.clone(),
+            app_line_p: c.truth.app_line_p.clone(),
+            app_soc: c.truth.app_soc.clone(),
+            unmetered_p: c.truth.unmetered_p.clone(),
+        },
+    }
+}
+
+/// Cuts every column of `chunk` to its first `n` rows (the run's last chunk).
+fn truncate_chunk(chunk: &mut loadloom::simulate::Chunk, n: usize) {
+    for v in chunk
+        .readings
+        .line_p
+        .iter_mut()
+        .chain(&mut chunk.readings.line_q)
+        .chain(&mut chunk.readings.line_v)
+        .chain(&mut chunk.readings.line_i)
+    {
+        v.truncate(n);
+    }
+    for v in [
+        &mut chunk.readings.n_i,
+        &mut chunk.readings.total_p,
+        &mut chunk.readings.total_q,
+        &mut chunk.truth.unmetered_p,
+    ] {
+        v.truncate(n);
+    }
+    chunk.readings.energy.iter_mut().for_each(|v| v.truncate(n));
+    chunk.readings.present.truncate(n);
+    chunk
+        .truth
+        .app_p
+        .iter_mut()
+        .chain(&mut chunk.truth.app_q)
+        .chain(chunk.truth.app_line_p.iter_mut().flatten())
+        .chain(chunk.truth.app_soc.iter_mut().flatten())
+        .for_each(|v| v.truncate(n));
+    chunk.truth.app_state.iter_mut().for_each(|v| v.truncate(n));
 }
 
 /// CPU time of this process, all threads, user + system (getrusage(2)).
