@@ -208,11 +208,15 @@ fn declared_steps(a: &crate::scenario::Appliance) -> Steps {
             max: (4.0 * wander).min(1.0),
             jumps: vec![],
         },
-        // On and off from and to each running state (a heat pump's
-        // input follows the outdoor temperature about its rating).
-        Behaviour::Thermostat { .. } => Steps::Jumps(
+        // On and off from and to each running state, at each input
+        // a compressor's outdoor temperature can give it.
+        Behaviour::Thermostat { role } => Steps::Jumps(
             (1..n)
-                .flat_map(|i| [(0, i, 1.0, 1.0), (i, 0, 1.0, 1.0)])
+                .flat_map(|i| {
+                    crate::thermal::equipment::input_scales(role, i)
+                        .into_iter()
+                        .flat_map(move |k| [(0, i, k, 1.0), (i, 0, 1.0, k)])
+                })
                 .collect(),
         ),
     }

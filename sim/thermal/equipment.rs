@@ -131,6 +131,32 @@ pub fn cooling_capacity_share(t_out: f64) -> f64 {
     (1.0 - 0.01 * (t_out - RATING_COOL_C.0)).clamp(0.5, 1.2)
 }
 
+/// The inputs, as shares of state `state`'s rated one, that a role may
+/// draw at outdoor temperatures from −25 °C to 40 °C, in steps of 5 %
+/// (what a wiring check must expect a switching to look like).
+pub fn input_scales(role: &Role, state: usize) -> Vec<f64> {
+    let mut k: Vec<f64> = (-25..=40)
+        .filter_map(|t| {
+            let t = t as f64;
+            match (role, state) {
+                (Role::HeatPump(h), 1 | 2) => Some(h.capacity_share(t) * h.cop / h.heating_cop(t)),
+                (Role::HeatPump(h), 3) => h
+                    .cooling_cop
+                    .map(|c| cooling_capacity_share(t) * c / cooling_cop(c, t, 24.0)),
+                (Role::AirConditioner { cop }, 1) => {
+                    Some(cooling_capacity_share(t) * cop / cooling_cop(*cop, t, 24.0))
+                }
+                _ => None,
+            }
+        })
+        .map(|x| (x * 20.0).round() / 20.0)
+        .collect();
+    k.push(1.0);
+    k.sort_by(f64::total_cmp);
+    k.dedup();
+    k
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -110,6 +110,25 @@ struct Unit<'a> {
 }
 
 impl Unit<'_> {
+    /// [`Unit::push`]; a blower switching on or off does so `delays` (on,
+    /// off) steps into the control step.
+    fn push_delayed(&mut self, from: u64, to: u64, state: usize, scale: f64, delays: (u64, u64)) {
+        let before = self.segs.last().map_or(0, |g| g.state as usize);
+        let d = match (self.role, before == 0, state == 0) {
+            (Role::Blower, true, false) => delays.0,
+            (Role::Blower, false, true) => delays.1,
+            _ => 0,
+        }
+        .min(to - from);
+        if d > 0 {
+            let last_scale = self.segs.last().map_or(1.0, |g| g.scale as f64);
+            self.push(from, from + d, before, last_scale);
+        }
+        if from + d < to {
+            self.push(from + d, to, state, scale);
+        }
+    }
+
     fn push(&mut self, from: u64, to: u64, state: usize, scale: f64) {
         let scale = (scale * 100.0).round() as f32 / 100.0;
         if let Some(last) = self.segs.last_mut() {
@@ -125,6 +144,13 @@ impl Unit<'_> {
             scale,
         });
     }
+}
+
+/// A blower starts this long after the equipment it serves and runs on this
+/// long after it stops, s (fan-on and fan-off delays that move the coil's
+/// heat: common practice, no source), in steps of `dt`.
+fn blower_delays(dt: f64) -> (u64, u64) {
+    (((30.0 / dt).round() as u64), ((45.0 / dt).round() as u64))
 }
 
 /// The roles of a scenario's loads: (load index, role).
@@ -427,8 +453,9 @@ pub fn drive(s: &Scenario, tl: &mut [Timeline], steps: u64, tz: &jiff::tz::TimeZ
         let may_run = ctl.compressor_may_run();
         let (q_hvac, running, frosting) =
             operate(&units, &ask, may_run, t_out, temps.interior, &mut ops);
+        let delays = blower_delays(dt_step);
         for (u, &(state, scale)) in units.iter_mut().zip(&ops) {
-            u.push(from, to, state, scale);
+            u.push_delayed(from, to, state, scale, delays);
         }
         if q_hvac > 0.0 {
             rec.heat_j += q_hvac * dt;

@@ -11,9 +11,11 @@
 //! 2. One year at 1 s (LOADLOOM_BENCH_DAYS), all files written, against a
 //!    floor run that writes the same columns and rows of precomputed values;
 //!    peak memory (target < 512 MB) and the ratio (target ≤ 1.5).
-//! 3. The same year with a rooftop PV system added (the sun, the sky and
-//!    PVWatts per minute, an inverter across L1-L2): CPU time with PV over
-//!    CPU time without (target ≤ 1.10).
+//! 3. The same year bare (no `[building]`: the thermostatic heat pump,
+//!    blower and backup heat stay off; no PV), and with a rooftop PV system
+//!    added to the demo's weather (the sun, the sky and PVWatts per minute,
+//!    an inverter across L1-L2): CPU time with weather and PV over CPU time
+//!    bare (target ≤ 1.10), and the weather alone on over off.
 //!
 //! ```text
 //! cargo bench --bench simulate            # about 5 minutes
@@ -219,6 +221,11 @@ fn child(mode: &str, days: f64, dir: &Path) {
     let started = Instant::now();
     match mode {
         "sim" | "sim-pv" => sim(&s, dir),
+        "sim-bare" => {
+            let mut bare = s.clone();
+            bare.building = None;
+            sim(&bare, &dir.join("bare"))
+        }
         _ => floor(&s, &dir.join("floor")),
     }
     let wall = started.elapsed().as_secs_f64();
@@ -368,6 +375,8 @@ fn main() {
     let sim_bytes = dir_bytes(&dir.join(&s.name));
     let _ = std::fs::remove_dir_all(dir.join(&s.name));
     let (t_pv, _, c_pv) = measure("sim-pv", days, &dir);
+    let _ = std::fs::remove_dir_all(dir.join(&s.name));
+    let (t_bare, _, c_bare) = measure("sim-bare", days, &dir);
     println!(
         "split-phase demo, {days} d at 1 s, {} appliances, {} rows",
         s.appliances.len(),
@@ -382,10 +391,16 @@ fn main() {
         "ratio simulate / floor:     {:8.2}   (target ≤ 1.5; peak memory target < 512 MB)",
         t_sim / t_floor
     );
-    println!("with a 7.6 kW PV system:    {t_pv:8.1} s  CPU {c_pv:.1} s against {c_sim:.1} s");
+    println!("bare (no weather, no PV):   {t_bare:8.1} s  CPU {c_bare:.1} s");
+    println!("weather (the demo as is):   {t_sim:8.1} s  CPU {c_sim:.1} s");
+    println!("weather + 7.6 kW PV system: {t_pv:8.1} s  CPU {c_pv:.1} s");
     println!(
-        "ratio CPU with PV / without: {:6.3}   (target ≤ 1.10)",
-        c_pv / c_sim
+        "ratio CPU weather on / off:            {:6.3}",
+        c_sim / c_bare
+    );
+    println!(
+        "ratio CPU weather + PV / bare:         {:6.3}   (target ≤ 1.10)",
+        c_pv / c_bare
     );
     let _ = std::fs::remove_dir_all(&dir);
 }
