@@ -107,19 +107,23 @@ struct Unit<'a> {
     /// Electric power of each state at nominal voltage, W.
     p: Vec<f64>,
     segs: Vec<Segment>,
+    /// The state asked for in the last control step.
+    prev: usize,
 }
 
 impl Unit<'_> {
     /// [`Unit::push`]; a blower switching on or off does so `delays` (on,
     /// off) steps into the control step.
     fn push_delayed(&mut self, from: u64, to: u64, state: usize, scale: f64, delays: (u64, u64)) {
-        let before = self.segs.last().map_or(0, |g| g.state as usize);
+        let before = self.prev;
+        self.prev = state;
         let d = match (self.role, before == 0, state == 0) {
             (Role::Blower, true, false) => delays.0,
             (Role::Blower, false, true) => delays.1,
             _ => 0,
-        }
-        .min(to - from);
+        };
+        // A delay as long as the control step cannot be drawn inside it.
+        let d = if d < to - from { d } else { 0 };
         if d > 0 {
             let last_scale = self.segs.last().map_or(1.0, |g| g.scale as f64);
             self.push(from, from + d, before, last_scale);
@@ -163,6 +167,7 @@ fn units(s: &Scenario) -> Vec<Unit<'_>> {
                 role,
                 p: a.states.iter().map(|st| st.p_w()).collect(),
                 segs: Vec::new(),
+                prev: 0,
             }),
             _ => None,
         })
