@@ -44,11 +44,15 @@ impl Default for Shape {
     }
 }
 
-/// Every rung of the home's ladder, the home as written first.
+/// Every rung of the home's ladder, the home as written first; the rungs
+/// choose by each appliance's expected energy over the `window_s` seconds
+/// each rung simulates (a week's average would misjudge a day of January
+/// heating, or a car that charges later in the week).
 pub fn build(
     path: &Path,
     seed: Option<u64>,
     shape: &Shape,
+    window_s: f64,
 ) -> Result<(Scenario, Vec<Rung>), scenario::Error> {
     let mut s = scenario::load(path)?;
     let mut d = Doc::load(path)?;
@@ -57,7 +61,9 @@ pub fn build(
         d.section("run")
             .set("seed", doc::node(scenario::source::Val::Int(seed as i64)));
     }
-    let f = crate::summary::figures(&s);
+    let mut window = s.clone();
+    window.run.length_s = window_s;
+    let f = crate::summary::figures(&window);
     let home = Home {
         doc: &d,
         s: &s,
@@ -252,7 +258,7 @@ pub fn run(
     solvers: &[Solver],
     progress: &mut dyn FnMut(&str),
 ) -> Result<Ladder, scenario::Error> {
-    let (s, all) = build(path, seed, shape)?;
+    let (s, all) = build(path, seed, shape, p.train_s + p.test_s)?;
     let mut rows = Vec::new();
     for (k, r) in all.iter().enumerate() {
         progress(&format!("{}: {} / {}", s.name, r.family, r.name));

@@ -20,8 +20,9 @@ pub struct Rung {
 }
 
 /// What the rung builders know of the home: its tree, its decoded scenario,
-/// and each appliance's expected energy per day and peak (from `validate`'s
-/// figures, so the choices do not depend on a simulation's luck).
+/// and each appliance's expected energy per day and peak over the window the
+/// ladder simulates (from `validate`'s figures, its timelines at nominal
+/// voltage: the choices do not depend on the electrical solve).
 pub struct Home<'a> {
     pub doc: &'a Doc,
     pub s: &'a Scenario,
@@ -197,21 +198,28 @@ fn eligible(a: &Appliance, supply: SupplyKind) -> Option<(WiringKind, WiringKind
     has(WiringKind::LineToNeutral).then_some((own, high))
 }
 
-/// The eligible appliances whose energy comes closest to `target` of theirs,
-/// largest first.
+/// The eligible appliances, largest expected energy first, up to the count
+/// whose energy comes closest to `target` of theirs. Always a prefix of one
+/// order, so a larger target moves a superset: the energy drawn
+/// line-to-line can only grow from rung to rung, whatever each
+/// appliance's energy turns out to be in the simulated window (a heat pump
+/// or a car charger drawing more or less than expected).
 fn choose(eligible: &[usize], kwh: &[f64], target: f64) -> Vec<usize> {
     let total: f64 = eligible.iter().map(|k| kwh[*k]).sum();
     let mut order = eligible.to_vec();
     order.sort_by(|a, b| kwh[*b].total_cmp(&kwh[*a]).then(a.cmp(b)));
-    let (mut sum, mut out) = (0.0, Vec::new());
-    for k in order {
-        let goal = target * total;
-        if (sum + kwh[k] - goal).abs() < (sum - goal).abs() - 1e-12 {
-            sum += kwh[k];
-            out.push(k);
+    let goal = target * total;
+    let (mut sum, mut count) = (0.0, 0);
+    for (n, k) in order.iter().enumerate() {
+        sum += kwh[*k];
+        if (sum - goal).abs() < (sum - kwh[*k] - goal).abs() - 1e-12 {
+            count = n + 1;
+        } else {
+            break;
         }
     }
-    out
+    order.truncate(count);
+    order
 }
 
 /// Line-to-line share: the eligible appliances moved, by energy, to their
@@ -537,4 +545,30 @@ pub fn total_only(h: &Home) -> Rung {
     );
     r.doc.section("meter").set("channels", text("total"));
     r
+}
+
+#[cfg(test)]
+mod tests {
+    use super::choose;
+
+    #[test]
+    fn a_larger_share_moves_a_superset() {
+        // Energies where the nearest subset is not nested (11.3 alone is
+        // nearest 50 %, 6.4 alone nearest 25 %): the choice must stay a
+        // prefix of the largest-first order.
+        let kwh = [6.4, 0.2, 11.3, 3.0, 3.0, 0.0];
+        let all: Vec<usize> = (0..kwh.len()).collect();
+        let mut last: Vec<usize> = vec![];
+        for t in 0..=20 {
+            let now = choose(&all, &kwh, t as f64 / 20.0);
+            assert!(
+                last.iter().all(|k| now.contains(k)),
+                "{last:?} then {now:?}"
+            );
+            last = now;
+        }
+        assert_eq!(choose(&all, &kwh, 0.0), Vec::<usize>::new());
+        assert_eq!(choose(&all, &kwh, 0.5), vec![2]);
+        assert_eq!(choose(&all, &kwh, 1.0).len(), 5, "all with energy");
+    }
 }

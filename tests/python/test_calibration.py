@@ -45,7 +45,7 @@ def test_the_readme_year_picture_is_drawn_by_the_current_code(tmp_path):
     scenario.write_text(text)
     loadloom("run", scenario, "--length", "365d", "--out", tmp_path / "out", "--quiet")
     drawn = tmp_path / "year.svg"
-    loadloom("plot", tmp_path / "out" / "split-phase-year", "--monthly", "--out", drawn, "--size", "1000x560")
+    loadloom("plot", tmp_path / "out" / "split-phase-year", "--monthly", "--by", "end-use", "--out", drawn, "--size", "1000x560")
     if os.environ.get("LOADLOOM_UPDATE_PICTURES") == "1":
         PICTURE.write_bytes(drawn.read_bytes())
     assert drawn.read_bytes() == PICTURE.read_bytes(), "redraw with LOADLOOM_UPDATE_PICTURES=1 (DEVELOPERS.md)"

@@ -261,11 +261,15 @@ def test_supply_rungs_honour_rated_voltages(ladders, tmp_path):
 
 
 def stiff_source(text):
-    """The scenario with an ideal source: no impedance, no slow variation."""
-    lines = [x for x in text.splitlines() if not x.startswith("source = ")]
+    """The scenario with an ideal source: no impedance, no slow variation.
+    Only [home]'s `source` goes (a [[reference]]'s `source` names where a
+    published figure comes from and stays)."""
+    lines = text.splitlines()
     i = lines.index("[home]")
-    lines.insert(i + 1, 'source = { variation = "0 %", r = "0 ohm", x = "0 ohm", neutral_r = "0 ohm", neutral_x = "0 ohm" }')
-    return "\n".join(lines) + "\n"
+    end = next((k for k in range(i + 1, len(lines)) if lines[k].startswith("[")), len(lines))
+    home = [x for x in lines[i + 1:end] if not x.startswith("source = ")]
+    stiff = 'source = { variation = "0 %", r = "0 ohm", x = "0 ohm", neutral_r = "0 ohm", neutral_x = "0 ohm" }'
+    return "\n".join(lines[:i + 1] + [stiff] + home + lines[end:]) + "\n"
 
 
 def fortescue(phasors):

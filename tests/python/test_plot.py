@@ -154,8 +154,7 @@ def test_both_plots_have_local_time_ticks_and_axis_titles_with_units(simulate, t
 def test_monthly_energy_bars_match_the_truth(tmp_path):
     # A home with a coarse step, run across a month's end: the bars' energies
     # are the truth's per appliance, summed per local month by pandas.
-    # Without its [[reference]] sections the bars are per appliance.
-    text = (ROOT / "scenarios" / "apartment-208.toml").read_text().split("# ---- Published figures")[0]
+    text = (ROOT / "scenarios" / "apartment-208.toml").read_text()
     src = tmp_path / "flat.toml"
     src.write_text(
         text.replace('start = "2027-01-04T00:00"', 'start = "2027-01-28T00:00"')
