@@ -134,9 +134,17 @@ impl Builder {
 /// A PV inverter's timeline comes from the sun and the sky alone; a store
 /// idles here (with no other loads to follow) and is made from the others
 /// in [`timelines`].
-pub fn timeline(app: &Appliance, clock: &Clock, seed: u64) -> Timeline {
+///
+/// `weather`, when the home has one, gives a PV array its outdoor air
+/// temperature.
+pub fn timeline(
+    app: &Appliance,
+    clock: &Clock,
+    seed: u64,
+    weather: Option<&crate::weather::Weather>,
+) -> Timeline {
     if let Behaviour::Sun(pv) = &app.behaviour {
-        return solar::generate(pv, seed, clock);
+        return solar::generate(pv, seed, clock, weather);
     }
     let tl = window::assemble(clock, |c, block| {
         let mut rng = stream(seed, &app.id, &format!("behaviour {block}"));
@@ -192,8 +200,16 @@ pub fn timelines_with_record(s: &Scenario, steps: u64) -> (Vec<Timeline>, crate:
         tz: &tz,
         site: s.home.site,
     };
-    let mut out: Vec<Timeline> = s.loads().map(|a| timeline(a, &clock, s.run.seed)).collect();
-    let record = crate::thermal::drive(s, &mut out, steps, &tz);
+    // One outdoor series for the building and the PV modules alike.
+    let weather = s
+        .weather
+        .as_ref()
+        .map(|w| crate::weather::series(w, s.run.start_utc_ms, s.run.length_s, &tz, s.run.seed));
+    let mut out: Vec<Timeline> = s
+        .loads()
+        .map(|a| timeline(a, &clock, s.run.seed, weather.as_ref()))
+        .collect();
+    let record = crate::thermal::drive(s, &mut out, steps, &tz, weather.as_ref());
     // A store follows the net power of everything else, so it comes last.
     let loads: Vec<&Appliance> = s.loads().collect();
     for (k, a) in loads.iter().enumerate() {

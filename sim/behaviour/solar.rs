@@ -7,11 +7,12 @@ use super::{window, Clock, Segment, Timeline};
 use crate::scenario::Pv;
 use crate::sun::pvwatts::{Array, OPEN_RACK, ROOF_MOUNT};
 use crate::sun::{light, plane_of_array, Sky, Surface};
+use crate::weather::Weather;
 
 const MINUTE_MS: i64 = 60_000;
 
-/// The array's AC output at `utc_ms`, W.
-pub fn output(pv: &Pv, array: &Array, sky: &mut Sky, utc_ms: i64) -> f64 {
+/// The array's AC output at `utc_ms` with the outdoor air at `air_c`, W.
+pub fn output(pv: &Pv, array: &Array, sky: &mut Sky, utc_ms: i64, air_c: f64) -> f64 {
     let (pos, l) = light(pv.site, sky, utc_ms);
     if l.ghi <= 0.0 {
         return 0.0;
@@ -22,7 +23,7 @@ pub fn output(pv: &Pv, array: &Array, sky: &mut Sky, utc_ms: i64) -> f64 {
         albedo: pv.albedo,
     };
     let poa = plane_of_array(&surface, &l, pos.zenith_deg, pos.azimuth_deg);
-    array.output(poa, pv.air_c, pv.wind_m_s)
+    array.output(poa, air_c, pv.wind_m_s)
 }
 
 /// The PVWatts array of a `[pv]` section.
@@ -42,8 +43,10 @@ pub fn array(pv: &Pv) -> Array {
 
 /// Segments per UTC minute (the output at the minute's middle); state 0
 /// (off) while it makes nothing, else state 1 (producing) scaled by the
-/// output over the inverter's rating. Equal neighbours are merged.
-pub fn generate(pv: &Pv, seed: u64, clock: &Clock) -> Timeline {
+/// output over the inverter's rating. Equal neighbours are merged. The
+/// modules' air is the home's outdoor temperature where it has `[weather]`,
+/// else the section's fixed `air_c`.
+pub fn generate(pv: &Pv, seed: u64, clock: &Clock, weather: Option<&Weather>) -> Timeline {
     let mut sky = match pv.sky {
         Some(mean) => Sky::new(seed, pv.site.longitude_deg, mean),
         None => Sky::clear(),
@@ -60,7 +63,9 @@ pub fn generate(pv: &Pv, seed: u64, clock: &Clock) -> Timeline {
         if to <= from {
             continue;
         }
-        let ac = output(pv, &array, &mut sky, minute - MINUTE_MS / 2);
+        let mid = minute - MINUTE_MS / 2;
+        let air_c = weather.map_or(pv.air_c, |w| w.temp_at(mid));
+        let ac = output(pv, &array, &mut sky, mid, air_c);
         let (state, scale) = if ac > 0.0 {
             (1, (ac / pv.ac_w) as f32)
         } else {

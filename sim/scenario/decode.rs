@@ -336,7 +336,10 @@ fn decode(
         .transpose()?;
     let building = top
         .opt("building")
-        .map(|n| super::thermal::decode_building(ctx, n))
+        .map(|n| {
+            let sunlit = super::thermal::sunlit(&home, weather.as_ref());
+            super::thermal::decode_building(ctx, n, sunlit)
+        })
         .transpose()?;
     check_thermostats(
         ctx,

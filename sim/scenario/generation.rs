@@ -24,8 +24,8 @@ const MODULES: [(&str, f64); 3] = [
 ];
 
 /// Outdoor air temperature and wind seen by the array: a fixed mild day
-/// (20 °C, 1 m/s; illustrative) until an outdoor temperature series drives
-/// it.
+/// (20 °C, 1 m/s; illustrative); a home with `[weather]` gives the array
+/// its outdoor temperature instead (`behaviour::solar::generate`).
 const AIR_C: f64 = 20.0;
 const WIND_M_S: f64 = 1.0;
 

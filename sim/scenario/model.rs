@@ -350,7 +350,7 @@ pub struct Pv {
     pub gamma: f64,
     /// `roof` (close roof mount) or `rack` (open rack).
     pub mount: String,
-    /// Outdoor air temperature, °C, and wind speed, m/s.
+    /// Outdoor air temperature, °C, where the home has no `[weather]`.
     pub air_c: f64,
     /// Wind speed, m/s (cools the modules).
     pub wind_m_s: f64,

@@ -2,7 +2,7 @@
 //! and the roles of `behaviour = "thermostat"` appliances.
 
 use super::decode::parse_hours;
-use super::model::{Appliance, Reference, Run, State};
+use super::model::{Appliance, Home, Reference, Run, State};
 use super::reader::{Reader, TableReader};
 use super::source::{Error, Node, Val};
 use crate::thermal::equipment::{HeatPump, Role};
@@ -217,8 +217,17 @@ fn decode_file(ctx: &Reader, f: &Node, run: &Run) -> Result<WeatherSpec, Error> 
     })
 }
 
-/// `[building]`: the envelope and the thermostat.
-pub fn decode_building(ctx: &Reader, node: &Node) -> Result<Building, Error> {
+/// Whether light reaches a building's aperture: the sun over the home's
+/// site, or the irradiance of a weather file.
+pub fn sunlit(home: &Home, weather: Option<&WeatherSpec>) -> bool {
+    let recorded =
+        matches!(weather, Some(WeatherSpec::File { data, .. }) if data.ghi_w_m2.is_some());
+    home.site.is_some() || recorded
+}
+
+/// `[building]`: the envelope and the thermostat; `sunlit`: whether the home
+/// has light for an aperture ([`sunlit`]).
+pub fn decode_building(ctx: &Reader, node: &Node, sunlit: bool) -> Result<Building, Error> {
     let t = ctx.table(node, "building")?;
     let ua_w_k = ctx.positive(
         t.req("ua", "the heat loss coefficient, e.g. \"250 W/K\"")?,
@@ -254,6 +263,14 @@ pub fn decode_building(ctx: &Reader, node: &Node) -> Result<Building, Error> {
     let th = decode_setpoints(ctx, &t, node)?;
     let gains_share = share(ctx, &t, "gains", 0.8)?;
     let aperture_m2 = t.non_negative("aperture", Kind::Area)?.unwrap_or(0.0);
+    if aperture_m2 > 0.0 && !sunlit {
+        return Err(ctx.err(
+            t.opt("aperture").unwrap_or(node),
+            "building.aperture",
+            "an aperture needs sunlight, and this home has neither a site nor measured irradiance",
+            "give [home] latitude and longitude (the sun's path; `sky` for clouds), or a weather file with a ghi_w_m2 column",
+        ));
+    }
     t.finish()?;
     Ok(Building {
         ua_w_k,

@@ -391,6 +391,48 @@ fn operate(
     (q, compressor, frosting)
 }
 
+/// Where the horizontal irradiance on the building's aperture comes from.
+enum Sunlight<'a> {
+    /// No aperture: no solar gains to compute.
+    None,
+    /// A weather file's measured irradiance.
+    Recorded(&'a Weather),
+    /// The sun over the home's site and its sky (`sim/sun`: NOAA position,
+    /// Haurwitz clear sky times the stochastic clear-sky index), the same
+    /// sky a `[pv]` array sees.
+    Sun(crate::sun::Site, crate::sun::Sky),
+}
+
+impl<'a> Sunlight<'a> {
+    fn of(s: &Scenario, weather: &'a Weather, b: &Building) -> Sunlight<'a> {
+        if b.aperture_m2 <= 0.0 {
+            return Sunlight::None;
+        }
+        if weather.ghi_w_m2.is_some() {
+            return Sunlight::Recorded(weather);
+        }
+        match s.home.site {
+            Some(site) => Sunlight::Sun(
+                site,
+                match s.home.sky {
+                    Some(mean) => crate::sun::Sky::new(s.run.seed, site.longitude_deg, mean),
+                    None => crate::sun::Sky::clear(),
+                },
+            ),
+            None => Sunlight::None,
+        }
+    }
+
+    /// Global horizontal irradiance at `t_ms` (UTC), W/m².
+    fn ghi(&mut self, t_ms: i64) -> f64 {
+        match self {
+            Sunlight::None => 0.0,
+            Sunlight::Recorded(w) => w.ghi_at(t_ms),
+            Sunlight::Sun(site, sky) => crate::sun::light(*site, sky, t_ms).1.ghi,
+        }
+    }
+}
+
 /// Local hour (0 … 23) of each UTC hour of the weather series.
 fn local_hours(w: &Weather, tz: &jiff::tz::TimeZone) -> Vec<u8> {
     (0..w.temp_c.len() as i64)
@@ -403,11 +445,18 @@ fn local_hours(w: &Weather, tz: &jiff::tz::TimeZone) -> Vec<u8> {
 }
 
 /// Fills the timelines of the thermostatic loads of `s` (indices of
-/// `s.loads()`) from the weather and the other loads' timelines, which
-/// give the internal gains. Returns the thermal record.
-pub fn drive(s: &Scenario, tl: &mut [Timeline], steps: u64, tz: &jiff::tz::TimeZone) -> Record {
+/// `s.loads()`) from `weather` (the home's outdoor series over the run) and
+/// the other loads' timelines, which give the internal gains. Returns the
+/// thermal record.
+pub fn drive(
+    s: &Scenario,
+    tl: &mut [Timeline],
+    steps: u64,
+    tz: &jiff::tz::TimeZone,
+    weather: Option<&Weather>,
+) -> Record {
     let mut units = units(s);
-    let (Some(b), Some(spec)) = (&s.building, &s.weather) else {
+    let (Some(b), Some(weather)) = (&s.building, weather) else {
         return Record::default();
     };
     if units.is_empty() || steps == 0 {
@@ -417,8 +466,8 @@ pub fn drive(s: &Scenario, tl: &mut [Timeline], steps: u64, tz: &jiff::tz::TimeZ
     let k = ((60.0 / dt_step).round() as u64).max(1);
     let dt = k as f64 * dt_step;
     let n = steps.div_ceil(k) as usize;
-    let weather = crate::weather::series(spec, s.run.start_utc_ms, s.run.length_s, tz, s.run.seed);
-    let hours = local_hours(&weather, tz);
+    let hours = local_hours(weather, tz);
+    let mut sun = Sunlight::of(s, weather, b);
     let loads: Vec<&Appliance> = s.loads().collect();
     let skip: Vec<usize> = units.iter().map(|u| u.load).collect();
     let gains = appliance_gains(&loads, tl, &skip, k, n);
@@ -467,7 +516,7 @@ pub fn drive(s: &Scenario, tl: &mut [Timeline], steps: u64, tz: &jiff::tz::TimeZ
         } else {
             rec.cool_j -= q_hvac * dt;
         }
-        let q = q_hvac + b.gains_share * gains[i] + b.aperture_m2 * weather.ghi_at(t_ms);
+        let q = q_hvac + b.gains_share * gains[i] + b.aperture_m2 * sun.ghi(t_ms);
         let span = (to - from) as f64 * dt_step;
         temps = step(b, temps, t_out, q, span);
         ctl.after_step(running, frosting, span, hp.as_ref());

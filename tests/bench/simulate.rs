@@ -44,17 +44,11 @@ fn scenario(days: f64) -> Scenario {
     s
 }
 
-/// The demo with a 7.6 kW PV system on an invented site.
+/// The demo with a 7.6 kW PV system at its site, under its sky.
 fn scenario_pv(days: f64) -> Scenario {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
     let path = root.join("scenarios/split-phase-house.toml");
-    let text = std::fs::read_to_string(&path)
-        .expect("demo reads")
-        .replacen(
-            "[home]\n",
-            "[home]\nlatitude = 44.65\nlongitude = -63.57\n",
-            1,
-        )
+    let text = std::fs::read_to_string(&path).expect("demo reads")
         + "\n[pv]\ndc = \"8.4 kW\"\ninverter = \"7.6 kW\"\ntilt = \"30 deg\"\n";
     let mut s = loadloom::scenario::load_str(&path, text).expect("demo with PV parses");
     s.run.length_s = days * 86400.0;

@@ -12,6 +12,10 @@ curves, typed again from their sources.
   COP = 6.81 - 0.121 dT + 0.000630 dT^2 (from memory); capacity linear in
   outdoor temperature through the 47 F and 17 F rating points (AHRI
   210/240 bin method, from memory).
+- Solar gains: the heat an aperture lets in is its area times the global
+  horizontal irradiance; the clear-sky irradiance computed here with pvlib
+  (NREL SPA solar position, Reda & Andreas 2004; Haurwitz 1945 clear sky),
+  which shares no code with sim/sun/.
 - Named climates: monthly means and heating degree days against the
   published normals (NOAA NCEI 1991-2020 normals, Deutscher Wetterdienst
   1991-2020, Eurostat heating degree days; all from memory).
@@ -35,12 +39,13 @@ def write_weather(path, temps, start="2027-01-01T00:00:00Z"):
     return t
 
 
-def scenario(heater, days, weather="weather.csv"):
+def scenario(heater, days, weather="weather.csv", site="", aperture="0 m²"):
     return f"""
 [home]
 label = "degree-day check (invented)"
 supply = "split-phase"
 timezone = "America/Chicago"
+{site}
 source = {{ variation = "0 %", r = "0 ohm", x = "0 ohm", neutral_r = "0 ohm", neutral_x = "0 ohm" }}
 
 [run]
@@ -61,6 +66,7 @@ mass = "20 MJ/K"
 heating = "{SET} °C"
 deadband = "0.5 K"
 gains = "0 %"
+aperture = "{aperture}"
 
 {heater}
 """
@@ -96,9 +102,9 @@ def staffell_cop(t_out, rated_cop=3.5, sink=35.0):
     return rated_cop * fit(sink - t_out) / fit(sink - 8.333)
 
 
-def run_year_part(tmp_path, heater, temps, days, start="2027-01-01T00:00:00Z"):
+def run_year_part(tmp_path, heater, temps, days, start="2027-01-01T00:00:00Z", **home):
     times = write_weather(tmp_path / "weather.csv", temps, start)
-    (tmp_path / "home.toml").write_text(scenario(heater, days))
+    (tmp_path / "home.toml").write_text(scenario(heater, days, **home))
     loadloom("run", tmp_path / "home.toml", "--out", tmp_path / "out", "--quiet")
     truth = pd.read_parquet(tmp_path / "out" / "home" / "truth.parquet")
     # The outdoor temperature at each minute, interpolated as the file says.
@@ -128,6 +134,42 @@ def test_heating_energy_follows_the_degree_day_relation(tmp_path, kind):
     # Tolerance 2 %: the thermostat's swing inside its 0.5 K band and the
     # heat stored in the structure at the start, a few kWh of about 5 000.
     assert abs(e / expected - 1) < 0.02, (e / 3.6e6, expected / 3.6e6)
+
+
+def test_solar_gains_save_the_aperture_times_the_clear_sky_irradiance(tmp_path):
+    """A home at a site with a clear sky and no irradiance in its weather
+    file: its baseboards save, against the same home without an aperture,
+    the aperture times the clear-sky horizontal irradiance (pvlib) summed
+    over the run, while the sun never warms it past the setpoint (4 kW of
+    loss against under 2 kW of sun)."""
+    import pvlib
+
+    days, aperture, lat, lon = 20, 3.0, 41.9, -87.9
+    temps = cold_spell(24 * (days + 3))
+    site = f'latitude = {lat}\nlongitude = {lon}\nsky = "clear"'
+    used = []
+    for a in (0.0, aperture):
+        d = tmp_path / f"a{a}"
+        d.mkdir()
+        truth, _ = run_year_part(d, BASEBOARDS, temps, days, site=site, aperture=f"{a} m²")
+        used.append(truth["heater_p_w"].to_numpy(dtype=float).sum() * 60.0)
+    # The middle of each minute, as the heat balance steps.
+    t = truth["time"].dt.tz_convert("UTC") + pd.Timedelta(seconds=30)
+    pos = pvlib.solarposition.get_solarposition(pd.DatetimeIndex(t), lat, lon, method="nrel_numpy")
+    ghi = pvlib.clearsky.haurwitz(pos["apparent_zenith"])["ghi"].to_numpy()
+    saved, expected = used[0] - used[1], aperture * ghi.sum() * 60.0
+    assert expected > 3.6e6 * 100, "a hundred kWh of sun or more"
+    # 3 %: the thermostat's swing inside its band and the heat the
+    # structure holds at the end, a few kWh of each run's 2 000.
+    assert abs(saved / expected - 1) < 0.03, (saved / 3.6e6, expected / 3.6e6)
+
+
+def test_an_aperture_without_sunlight_is_refused(tmp_path):
+    write_weather(tmp_path / "weather.csv", np.zeros(24 * 3))
+    (tmp_path / "home.toml").write_text(scenario(BASEBOARDS, 1, aperture="3 m²"))
+    p = loadloom("validate", tmp_path / "home.toml", check=False)
+    assert p.returncode == 2
+    assert "aperture" in p.stderr and "latitude" in p.stderr, p.stderr
 
 
 def test_heat_pump_input_at_its_rating_points_follows_the_published_curve(tmp_path):
