@@ -234,4 +234,4 @@ def test_an_unknown_end_use_is_refused_with_its_place(tmp_path):
     text = (ROOT / "scenarios" / "split-phase-house.toml").read_text()
     src.write_text(text.replace('end_use = "heating and cooling"', 'end_use = "comfort"', 1))
     r = loadloom("validate", src, check=False)
-    assert r.returncode == 2 and "appliance[air_handler].end_use" in r.stderr and "laundry and dishes" in r.stderr, r.stderr
+    assert r.returncode == 2 and "appliance[heat_pump].end_use" in r.stderr and "laundry and dishes" in r.stderr, r.stderr
