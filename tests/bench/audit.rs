@@ -22,43 +22,14 @@ use std::time::Instant;
 mod common;
 use common::peak_mb;
 
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 fn main() {
     let args: Vec<String> = std::env::args().collect();
     if let Some(i) = args.iter().position(|a| a == "--floor") {
-        let h = solver_check::stream::header(&Path::new(&args[i + 1]).join("meters.parquet"))
-            .expect("meters");
-        let cols: Vec<String> = (1..=3)
-            .flat_map(|c| ["p_w", "q_var", "v_v"].map(|x| format!("l{c}_{x}")))
-            .filter(|c| h.has(c))
-            .collect();
-        let t = Instant::now();
-        let mut st = h.stream(&cols).expect("stream");
-        let (mut rows, mut sum) = (0usize, 0.0);
-        while let Some(b) = st.next_batch().expect("read") {
-            rows += b.time_ms.len();
-            sum += b.cols.iter().flatten().sum::<f64>();
-        }
-        println!(
-            "{} {} {rows} {}",
-            t.elapsed().as_secs_f64(),
-            peak_mb(),
-            sum.is_finite() as u8
-        );
+        floor_child(&args[i + 1]);
         return;
     }
     if let Some(i) = args.iter().position(|a| a == "--child") {
-        let d =
-            loadloom::audit::load_declaration(Path::new(&args[i + 2])).expect("the demo parses");
-        let t = Instant::now();
-        let a = solver_check::audit::audit(Path::new(&args[i + 1]), &d).expect("audit");
-        println!(
-            "{} {} {} {}",
-            t.elapsed().as_secs_f64(),
-            peak_mb(),
-            a.rows,
-            a.outcome.findings.len()
-        );
+        audit_child(&args[i + 1], &args[i + 2]);
         return;
     }
     let days: f64 = std::env::var("LOADLOOM_BENCH_DAYS")
@@ -98,17 +69,6 @@ fn main() {
         let w = pipeline::write(&s, &out, Format::Parquet, &mut |_| {}).expect("write");
         // Best of 3 of (seconds, peak MB, rows, findings), the runs
         // alternating between the audit and the floor.
-        let run = |args: &[&str]| -> Vec<f64> {
-            let o = Command::new(std::env::current_exe().unwrap())
-                .args(args)
-                .output()
-                .unwrap();
-            assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-            String::from_utf8_lossy(&o.stdout)
-                .split_whitespace()
-                .map(|x| x.parse().unwrap())
-                .collect()
-        };
         let (mut audit, mut floor) = (vec![f64::MAX, 0.0, 0.0, 0.0], vec![f64::MAX, 0.0, 0.0, 0.0]);
         for _ in 0..3 {
             for (best, args) in [
@@ -122,7 +82,7 @@ fn main() {
                 ),
                 (&mut floor, vec!["--floor", w.dir.to_str().unwrap()]),
             ] {
-                let v = run(&args);
+                let v = run_child(&args);
                 best[0] = best[0].min(v[0]);
                 best[1] = best[1].max(v[1]);
                 (best[2], best[3]) = (v[2], v[3]);
@@ -142,4 +102,55 @@ fn main() {
         secs[3] / secs[1]
     );
     let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// The floor, in a child process: reads every line column of `data`'s
+/// meters and prints seconds, peak MB, rows and whether the sum is finite.
+fn floor_child(data: &str) {
+    let h = solver_check::stream::header(&Path::new(data).join("meters.parquet")).expect("meters");
+    let cols: Vec<String> = (1..=3)
+        .flat_map(|c| ["p_w", "q_var", "v_v"].map(|x| format!("l{c}_{x}")))
+        .filter(|c| h.has(c))
+        .collect();
+    let t = Instant::now();
+    let mut st = h.stream(&cols).expect("stream");
+    let (mut rows, mut sum) = (0usize, 0.0);
+    while let Some(b) = st.next_batch().expect("read") {
+        rows += b.time_ms.len();
+        sum += b.cols.iter().flatten().sum::<f64>();
+    }
+    println!(
+        "{} {} {rows} {}",
+        t.elapsed().as_secs_f64(),
+        peak_mb(),
+        sum.is_finite() as u8
+    );
+}
+
+/// The audit, in a child process: audits `data` against `declared` and
+/// prints seconds, peak MB, rows and findings.
+fn audit_child(data: &str, declared: &str) {
+    let d = loadloom::audit::load_declaration(Path::new(declared)).expect("the demo parses");
+    let t = Instant::now();
+    let a = solver_check::audit::audit(Path::new(data), &d).expect("audit");
+    println!(
+        "{} {} {} {}",
+        t.elapsed().as_secs_f64(),
+        peak_mb(),
+        a.rows,
+        a.outcome.findings.len()
+    );
+}
+
+/// Runs this benchmark as a child with `args`; the numbers it printed.
+fn run_child(args: &[&str]) -> Vec<f64> {
+    let o = Command::new(std::env::current_exe().unwrap())
+        .args(args)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    String::from_utf8_lossy(&o.stdout)
+        .split_whitespace()
+        .map(|x| x.parse().unwrap())
+        .collect()
 }
