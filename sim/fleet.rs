@@ -11,7 +11,7 @@
 
 use crate::behaviour::dist::categorical;
 use crate::rng::stream;
-use crate::scenario::reader::Reader;
+use crate::scenario::reader::{Reader, TableReader};
 use crate::scenario::source::{parse_toml, Error, Node, Sources, Val};
 use crate::scenario::{library, Scenario};
 use crate::units::Kind;
@@ -119,7 +119,6 @@ fn section(n: &Node) -> String {
 }
 
 /// Reads and checks a population file; every rule is checked before any home is made.
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 pub fn load(path: &Path) -> Result<Population, Error> {
     let text = crate::scenario::source::read_source(path, "population")?;
     let mut sources = Sources::default();
@@ -127,6 +126,30 @@ pub fn load(path: &Path) -> Result<Population, Error> {
     let root = parse_toml(&sources, file)?;
     let ctx = Reader { sources: &sources };
     let top = ctx.table(&root, "")?;
+    let (label, seed) = read_fleet_section(&ctx, &top)?;
+    let run = read_run_section(&ctx, &top)?;
+    let meter_toml = top.opt("meter").map(section).unwrap_or_default();
+    let kinds = read_kinds(&ctx, &top)?;
+    let owns = read_owns(&ctx, &top, &kinds)?;
+    let occupancy = read_occupancy(&ctx, &top)?;
+    let run_toml = section(run);
+    top.finish()?;
+    let pop = Population {
+        path: path.to_path_buf(),
+        label,
+        seed,
+        run_toml,
+        meter_toml,
+        kinds,
+        owns,
+        occupancy,
+    };
+    check_every_kind_hosts_owns(&ctx, &root, &pop)?;
+    Ok(pop)
+}
+
+/// The `[fleet]` section: its label and seed.
+fn read_fleet_section(ctx: &Reader, top: &TableReader) -> Result<(String, u64), Error> {
     let f = ctx.table(
         top.req("fleet", "the [fleet] section: label and seed")?,
         "fleet",
@@ -138,6 +161,12 @@ pub fn load(path: &Path) -> Result<Population, Error> {
         .transpose()?
         .unwrap_or(1);
     f.finish()?;
+    Ok((label, seed))
+}
+
+/// The `[run]` section every home shares, checked; a seed there is refused
+/// because each home's seed derives from the fleet's.
+fn read_run_section<'n>(ctx: &Reader, top: &TableReader<'n, '_, '_>) -> Result<&'n Node, Error> {
     let run = top.req(
         "run",
         "the [run] section every home shares: start, length, step",
@@ -153,242 +182,307 @@ pub fn load(path: &Path) -> Result<Population, Error> {
     }
     let _ = (run_t.opt("start"), run_t.opt("length"), run_t.opt("step"));
     run_t.finish()?;
-    let meter_toml = top.opt("meter").map(section).unwrap_or_default();
+    Ok(run)
+}
+
+/// The `[[kind]]` entries, in order.
+fn read_kinds(ctx: &Reader, top: &TableReader) -> Result<Vec<HomeKind>, Error> {
     let kinds_node = top.req(
         "kind",
         "one [[kind]] per home type: name, weight and its [home] keys",
     )?;
-    let mut kinds = Vec::new();
-    for (i, n) in ctx.array(kinds_node, "kind")?.iter().enumerate() {
-        let path = format!("kind[{i}]");
-        let t = ctx.table(n, &path)?;
-        let name = t
-            .string("name")?
-            .ok_or_else(|| ctx.err(n, &path, "missing key `name`", "add name = \"house\""))?
-            .to_string();
-        let wn = t.req("weight", "its share of the fleet, e.g. 3")?;
-        let weight = ctx.number(wn, &t.path_of("weight"))?;
-        if !weight.is_finite() || weight <= 0.0 {
+    ctx.array(kinds_node, "kind")?
+        .iter()
+        .enumerate()
+        .map(|(i, n)| read_kind(ctx, n, i))
+        .collect()
+}
+
+/// One `[[kind]]`: its name, weight and supply; its other keys are kept as
+/// `[home]` keys for each scenario.
+fn read_kind(ctx: &Reader, n: &Node, i: usize) -> Result<HomeKind, Error> {
+    let path = format!("kind[{i}]");
+    let t = ctx.table(n, &path)?;
+    let name = t
+        .string("name")?
+        .ok_or_else(|| ctx.err(n, &path, "missing key `name`", "add name = \"house\""))?
+        .to_string();
+    let weight = positive_weight(ctx, &t, "its share of the fleet, e.g. 3")?;
+    let supply = read_supply(ctx, &t)?;
+    let mut home = String::new();
+    if let Val::Table(entries) = &n.v {
+        for e in entries
+            .iter()
+            .filter(|e| e.key != "name" && e.key != "weight")
+        {
+            home += &format!("{} = {}\n", e.key, toml_text(&e.node));
+        }
+    }
+    // The other keys are [home] keys; the scenario check of each home reads them.
+    t.all_keys_known();
+    t.finish()?;
+    Ok(HomeKind {
+        name,
+        weight,
+        home_toml: home,
+        supply,
+    })
+}
+
+/// The required `weight` of a table, which must be a finite number above zero.
+fn positive_weight(ctx: &Reader, t: &TableReader, what: &str) -> Result<f64, Error> {
+    let wn = t.req("weight", what)?;
+    let weight = ctx.number(wn, &t.path_of("weight"))?;
+    if !weight.is_finite() || weight <= 0.0 {
+        return Err(ctx.err(
+            wn,
+            &t.path_of("weight"),
+            "a weight must be greater than zero",
+            "write weight = 1",
+        ));
+    }
+    Ok(weight)
+}
+
+/// A kind's required `supply` key.
+fn read_supply(ctx: &Reader, t: &TableReader) -> Result<crate::scenario::SupplyKind, Error> {
+    let supply_node = t.req("supply", "split-phase, three-phase or single-phase")?;
+    match ctx.string(supply_node, &t.path_of("supply"))? {
+        "split-phase" => Ok(crate::scenario::SupplyKind::SplitPhase),
+        "three-phase" => Ok(crate::scenario::SupplyKind::ThreePhase),
+        "single-phase" => Ok(crate::scenario::SupplyKind::SinglePhase),
+        other => Err(ctx.err(
+            supply_node,
+            &t.path_of("supply"),
+            format!("unknown supply \"{other}\""),
+            "write \"split-phase\", \"three-phase\" or \"single-phase\"",
+        )),
+    }
+}
+
+/// The optional `[[owns]]` entries, in order.
+fn read_owns(ctx: &Reader, top: &TableReader, kinds: &[HomeKind]) -> Result<Vec<Ownership>, Error> {
+    match top.opt("owns") {
+        None => Ok(Vec::new()),
+        Some(list) => ctx
+            .array(list, "owns")?
+            .iter()
+            .enumerate()
+            .map(|(i, n)| read_ownership(ctx, n, i, kinds))
+            .collect(),
+    }
+}
+
+/// One `[[owns]]` entry, each key checked in the order it is read.
+fn read_ownership(
+    ctx: &Reader,
+    n: &Node,
+    i: usize,
+    kinds: &[HomeKind],
+) -> Result<Ownership, Error> {
+    let path = format!("owns[{i}]");
+    let t = ctx.table(n, &path)?;
+    let template = read_template(ctx, &t)?;
+    let pn = t.req("probability", "the share of homes that own it, 0 … 1")?;
+    let probability = ctx.number(pn, &t.path_of("probability"))?;
+    if !(0.0..=1.0).contains(&probability) {
+        return Err(ctx.err(
+            pn,
+            &t.path_of("probability"),
+            format!("probability {probability} is outside 0 … 1"),
+            "write a probability such as 0.6",
+        ));
+    }
+    let count = read_count(ctx, &t)?;
+    let kind_names = read_kind_names(ctx, &t, kinds)?;
+    let wiring = read_wiring(ctx, &t, kinds)?;
+    let (shift_h, power, time) = read_variation(ctx, &t, n, &path)?;
+    t.finish()?;
+    Ok(Ownership {
+        template,
+        probability,
+        count,
+        kinds: kind_names,
+        wiring,
+        power,
+        time,
+        shift_h,
+    })
+}
+
+/// The required `template`: a file in the `library` folder beside the
+/// population, or a built-in template.
+fn read_template(ctx: &Reader, t: &TableReader) -> Result<String, Error> {
+    let tn = t.req("template", "a template of the library, e.g. \"fridge\"")?;
+    let template = ctx.string(tn, &t.path_of("template"))?.to_string();
+    let dir = ctx
+        .sources
+        .path(0)
+        .parent()
+        .map(Path::to_path_buf)
+        .unwrap_or_default()
+        .join("library");
+    if !dir.join(format!("{template}.toml")).is_file() && library::builtin(&template).is_none() {
+        return Err(ctx.err(
+            tn,
+            &t.path_of("template"),
+            format!("no template named \"{template}\""),
+            format!("templates built in: {}", library::names().join(", ")),
+        ));
+    }
+    Ok(template)
+}
+
+/// The optional `count`: one number or a range `[least, most]` within 1 … 9;
+/// one when absent.
+fn read_count(ctx: &Reader, t: &TableReader) -> Result<(u32, u32), Error> {
+    let Some(c) = t.opt("count") else {
+        return Ok((1, 1));
+    };
+    match &c.v {
+        Val::Int(k) if *k >= 1 => Ok((*k as u32, *k as u32)),
+        Val::Arr(a) if a.len() == 2 => match (&a[0].v, &a[1].v) {
+            (Val::Int(lo), Val::Int(hi)) if *lo >= 1 && hi >= lo && *hi <= 9 => {
+                Ok((*lo as u32, *hi as u32))
+            }
+            _ => Err(ctx.err(
+                c,
+                &t.path_of("count"),
+                "a count range is [least, most], 1 … 9",
+                "write count = [1, 2]",
+            )),
+        },
+        _ => Err(ctx.err(
+            c,
+            &t.path_of("count"),
+            "expected a count or a range [least, most]",
+            "write count = 2 or count = [1, 2]",
+        )),
+    }
+}
+
+/// The optional `kinds` the entry is limited to; each must name a `[[kind]]`.
+fn read_kind_names(
+    ctx: &Reader,
+    t: &TableReader,
+    kinds: &[HomeKind],
+) -> Result<Vec<String>, Error> {
+    let Some(list) = t.opt("kinds") else {
+        return Ok(vec![]);
+    };
+    let kind_names: Vec<String> = ctx
+        .array(list, &t.path_of("kinds"))?
+        .iter()
+        .map(|x| ctx.string(x, &t.path_of("kinds")).map(str::to_string))
+        .collect::<Result<_, _>>()?;
+    for k in &kind_names {
+        if !kinds.iter().any(|x| &x.name == k) {
             return Err(ctx.err(
-                wn,
-                &t.path_of("weight"),
-                "a weight must be greater than zero",
-                "write weight = 1",
+                list,
+                &t.path_of("kinds"),
+                format!("no home kind named \"{k}\""),
+                format!(
+                    "kinds: {}",
+                    kinds
+                        .iter()
+                        .map(|x| x.name.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
             ));
         }
-        let supply_node = t.req("supply", "split-phase, three-phase or single-phase")?;
-        let supply = match ctx.string(supply_node, &t.path_of("supply"))? {
-            "split-phase" => crate::scenario::SupplyKind::SplitPhase,
-            "three-phase" => crate::scenario::SupplyKind::ThreePhase,
-            "single-phase" => crate::scenario::SupplyKind::SinglePhase,
-            other => {
-                return Err(ctx.err(
-                    supply_node,
-                    &t.path_of("supply"),
-                    format!("unknown supply \"{other}\""),
-                    "write \"split-phase\", \"three-phase\" or \"single-phase\"",
-                ))
-            }
-        };
-        let mut home = String::new();
-        if let Val::Table(entries) = &n.v {
-            for e in entries
-                .iter()
-                .filter(|e| e.key != "name" && e.key != "weight")
-            {
-                home += &format!("{} = {}\n", e.key, toml_text(&e.node));
-            }
-        }
-        // The other keys are [home] keys; the scenario check of each home reads them.
-        t.all_keys_known();
-        t.finish()?;
-        kinds.push(HomeKind {
-            name,
-            weight,
-            home_toml: home,
-            supply,
-        });
     }
-    let mut owns = Vec::new();
-    if let Some(list) = top.opt("owns") {
-        for (i, n) in ctx.array(list, "owns")?.iter().enumerate() {
-            let path = format!("owns[{i}]");
-            let t = ctx.table(n, &path)?;
-            let tn = t.req("template", "a template of the library, e.g. \"fridge\"")?;
-            let template = ctx.string(tn, &t.path_of("template"))?.to_string();
-            let dir = ctx
-                .sources
-                .path(0)
-                .parent()
-                .map(Path::to_path_buf)
-                .unwrap_or_default()
-                .join("library");
-            if !dir.join(format!("{template}.toml")).is_file()
-                && library::builtin(&template).is_none()
-            {
-                return Err(ctx.err(
-                    tn,
-                    &t.path_of("template"),
-                    format!("no template named \"{template}\""),
-                    format!("templates built in: {}", library::names().join(", ")),
-                ));
-            }
-            let pn = t.req("probability", "the share of homes that own it, 0 … 1")?;
-            let probability = ctx.number(pn, &t.path_of("probability"))?;
-            if !(0.0..=1.0).contains(&probability) {
-                return Err(ctx.err(
-                    pn,
-                    &t.path_of("probability"),
-                    format!("probability {probability} is outside 0 … 1"),
-                    "write a probability such as 0.6",
-                ));
-            }
-            let count = match t.opt("count") {
-                None => (1, 1),
-                Some(c) => match &c.v {
-                    Val::Int(k) if *k >= 1 => (*k as u32, *k as u32),
-                    Val::Arr(a) if a.len() == 2 => match (&a[0].v, &a[1].v) {
-                        (Val::Int(lo), Val::Int(hi)) if *lo >= 1 && hi >= lo && *hi <= 9 => {
-                            (*lo as u32, *hi as u32)
-                        }
-                        _ => {
-                            return Err(ctx.err(
-                                c,
-                                &t.path_of("count"),
-                                "a count range is [least, most], 1 … 9",
-                                "write count = [1, 2]",
-                            ))
-                        }
-                    },
-                    _ => {
-                        return Err(ctx.err(
-                            c,
-                            &t.path_of("count"),
-                            "expected a count or a range [least, most]",
-                            "write count = 2 or count = [1, 2]",
-                        ))
-                    }
-                },
-            };
-            let kind_names: Vec<String> = match t.opt("kinds") {
-                None => vec![],
-                Some(k) => ctx
-                    .array(k, &t.path_of("kinds"))?
-                    .iter()
-                    .map(|x| ctx.string(x, &t.path_of("kinds")).map(str::to_string))
-                    .collect::<Result<_, _>>()?,
-            };
-            for k in &kind_names {
-                if !kinds.iter().any(|x| &x.name == k) {
-                    return Err(ctx.err(
-                        t.opt("kinds").unwrap(),
-                        &t.path_of("kinds"),
-                        format!("no home kind named \"{k}\""),
-                        format!(
-                            "kinds: {}",
-                            kinds
-                                .iter()
-                                .map(|x| x.name.as_str())
-                                .collect::<Vec<_>>()
-                                .join(", ")
-                        ),
-                    ));
-                }
-            }
-            let mut wiring = Vec::new();
-            if let Some(w) = t.opt("wiring") {
-                let wt = ctx.table(w, &t.path_of("wiring"))?;
-                wt.all_keys_known();
-                for e in wt.entries() {
-                    let kind = kinds.iter().find(|x| x.name == e.key).ok_or_else(|| {
-                        ctx.err(
-                            &e.node,
-                            &format!("{}.{}", t.path_of("wiring"), e.key),
-                            format!("no home kind named \"{}\"", e.key),
-                            "name a [[kind]]",
-                        )
-                    })?;
-                    let mut choices = Vec::new();
-                    for c in ctx.array(&e.node, &e.key)? {
-                        let p = format!("{}.{}", t.path_of("wiring"), e.key);
-                        crate::scenario::decode::parse_wiring(&ctx, c, &p, kind.supply)?;
-                        choices.push(ctx.string(c, &p)?.to_string());
-                    }
-                    wiring.push((e.key.clone(), choices));
-                }
-                wt.finish()?;
-            }
-            let shift_h = t.non_negative("shift", Kind::Duration)?.unwrap_or(0.0) / 3600.0;
-            if shift_h > 12.0 {
-                return Err(ctx.err(
-                    t.opt("shift").unwrap(),
-                    &t.path_of("shift"),
-                    "habits shifted by more than 12 hours",
-                    "write e.g. shift = \"1 h\"",
-                ));
-            }
-            let power = t.non_negative("power", Kind::Fraction)?.unwrap_or(0.0);
-            let time = t.non_negative("time", Kind::Fraction)?.unwrap_or(0.0);
-            if power > 0.5 || time > 0.5 {
-                return Err(ctx.err(
-                    n,
-                    &path,
-                    "variation above ±50 % of a template",
-                    "write e.g. power = \"10 %\", time = \"15 %\"",
-                ));
-            }
-            t.finish()?;
-            owns.push(Ownership {
-                template,
-                probability,
-                count,
-                kinds: kind_names,
-                wiring,
-                power,
-                time,
-                shift_h,
-            });
+    Ok(kind_names)
+}
+
+/// The optional `wiring` table: per home kind, the wiring choices allowed,
+/// each checked against that kind's supply.
+fn read_wiring(
+    ctx: &Reader,
+    t: &TableReader,
+    kinds: &[HomeKind],
+) -> Result<Vec<(String, Vec<String>)>, Error> {
+    let mut wiring = Vec::new();
+    let Some(w) = t.opt("wiring") else {
+        return Ok(wiring);
+    };
+    let wt = ctx.table(w, &t.path_of("wiring"))?;
+    wt.all_keys_known();
+    for e in wt.entries() {
+        let kind = kinds.iter().find(|x| x.name == e.key).ok_or_else(|| {
+            ctx.err(
+                &e.node,
+                &format!("{}.{}", t.path_of("wiring"), e.key),
+                format!("no home kind named \"{}\"", e.key),
+                "name a [[kind]]",
+            )
+        })?;
+        let mut choices = Vec::new();
+        for c in ctx.array(&e.node, &e.key)? {
+            let p = format!("{}.{}", t.path_of("wiring"), e.key);
+            crate::scenario::decode::parse_wiring(ctx, c, &p, kind.supply)?;
+            choices.push(ctx.string(c, &p)?.to_string());
         }
+        wiring.push((e.key.clone(), choices));
     }
+    wt.finish()?;
+    Ok(wiring)
+}
+
+/// The optional variations of a template: `shift` of habits (hours, at most
+/// 12) and the `power` and `time` fractions (at most ±50 %).
+fn read_variation(
+    ctx: &Reader,
+    t: &TableReader,
+    n: &Node,
+    path: &str,
+) -> Result<(f64, f64, f64), Error> {
+    let shift_h = t.non_negative("shift", Kind::Duration)?.unwrap_or(0.0) / 3600.0;
+    if shift_h > 12.0 {
+        return Err(ctx.err(
+            t.opt("shift").unwrap(),
+            &t.path_of("shift"),
+            "habits shifted by more than 12 hours",
+            "write e.g. shift = \"1 h\"",
+        ));
+    }
+    let power = t.non_negative("power", Kind::Fraction)?.unwrap_or(0.0);
+    let time = t.non_negative("time", Kind::Fraction)?.unwrap_or(0.0);
+    if power > 0.5 || time > 0.5 {
+        return Err(ctx.err(
+            n,
+            path,
+            "variation above ±50 % of a template",
+            "write e.g. power = \"10 %\", time = \"15 %\"",
+        ));
+    }
+    Ok((shift_h, power, time))
+}
+
+/// The optional `[[occupancy]]` entries, in order.
+fn read_occupancy(ctx: &Reader, top: &TableReader) -> Result<Vec<Occupancy>, Error> {
     let mut occupancy = Vec::new();
     if let Some(list) = top.opt("occupancy") {
         for (i, n) in ctx.array(list, "occupancy")?.iter().enumerate() {
             let path = format!("occupancy[{i}]");
             let t = ctx.table(n, &path)?;
             let name = t.string("name")?.unwrap_or("occupancy").to_string();
-            let wn = t.req("weight", "its share of the homes, e.g. 2")?;
-            let weight = ctx.number(wn, &t.path_of("weight"))?;
-            if !weight.is_finite() || weight <= 0.0 {
-                return Err(ctx.err(
-                    wn,
-                    &t.path_of("weight"),
-                    "a weight must be greater than zero",
-                    "write weight = 1",
-                ));
-            }
+            let weight = positive_weight(ctx, &t, "its share of the homes, e.g. 2")?;
             let away = t.string("away")?.map(str::to_string);
             t.finish()?;
             occupancy.push(Occupancy { name, weight, away });
         }
     }
-    let run_toml = section(run);
-    top.finish()?;
-    let pop = Population {
-        path: path.to_path_buf(),
-        label,
-        seed,
-        run_toml,
-        meter_toml,
-        kinds,
-        owns,
-        occupancy,
-    };
-    // A population that cannot produce a valid home fails here, before any
-    // home is written: home 0 of every kind with every template it may own.
+    Ok(occupancy)
+}
+
+/// A population that cannot produce a valid home fails here, before any
+/// home is written: home 0 of every kind with every template it may own.
+fn check_every_kind_hosts_owns(ctx: &Reader, root: &Node, pop: &Population) -> Result<(), Error> {
     for (k, kind) in pop.kinds.iter().enumerate() {
         let text = pop.scenario_text_all(k);
         crate::scenario::load_str(&pop.home_path(0), text).map_err(|e| {
-            let mut e = population_place(&ctx, &root, k, &pop.home_path(0), e);
+            let mut e = population_place(ctx, root, k, &pop.home_path(0), e);
             e.message = format!(
                 "home kind \"{}\" cannot host the population's appliances: {}",
                 kind.name, e.message
@@ -396,7 +490,7 @@ pub fn load(path: &Path) -> Result<Population, Error> {
             e
         })?;
     }
-    Ok(pop)
+    Ok(())
 }
 
 /// The entry `key` of a table node, or item `index` of an array node.
