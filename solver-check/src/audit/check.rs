@@ -1467,59 +1467,92 @@ fn poisson_tail(mean: f64, k: usize) -> f64 {
     (1.0 - below).max(0.0)
 }
 
-/// Recurring steps nothing declared explains, clustered by connection and
-/// size; a cluster that behaves as one load and is no likely coincidence of
-/// two declared appliances is a finding.
-#[allow(clippy::too_many_arguments)]
-#[allow(
-    clippy::too_many_lines,
-    reason = "the clustering and its tests of a load stay together until the undeclared-load stage has a file of its own"
-)]
-fn undeclared(
+/// Steps of one connection and size that nothing declared explains, gathered
+/// as the runs of one possible load.
+struct Cluster {
+    wiring: String,
+    /// Mean channel step, as a start.
+    v: Vec<C64>,
+    s: C64,
+    on: Vec<i64>,
+    off: Vec<i64>,
+}
+
+impl Cluster {
+    /// Whether a step `v` on connection `label` is alike on the channels the
+    /// cluster's load draws through (a quarter of its largest channel step
+    /// or more); a change on another channel in the same interval is another
+    /// load's (at 10 s a heater's stop often shares its row with a change on
+    /// the other line).
+    fn close(&self, label: &str, v: &[C64]) -> bool {
+        let top = self.v.iter().map(|a| a.abs()).fold(0.0, f64::max);
+        self.wiring == label
+            && self
+                .v
+                .iter()
+                .zip(v)
+                .filter(|(a, _)| a.abs() >= 0.25 * top)
+                .all(|(a, b)| (*a - *b).abs() <= 0.1 * a.abs() + 50.0)
+    }
+
+    /// Adds a step (its start form `v`, power `s`) at `time_ms` to the
+    /// running means.
+    fn add(&mut self, v: &[C64], s: C64, on: bool, time_ms: i64) {
+        let cnt = (self.on.len() + self.off.len()) as f64;
+        self.s = (self.s.scale(cnt) + s).scale(1.0 / (cnt + 1.0));
+        for (a, b) in self.v.iter_mut().zip(v) {
+            *a = (a.scale(cnt) + *b).scale(1.0 / (cnt + 1.0));
+        }
+        if on {
+            self.on.push(time_ms);
+        } else {
+            self.off.push(time_ms);
+        }
+    }
+}
+
+/// The connection a step nothing explains is drawn through and its power:
+/// one connection, or (an appliance with draws on several lines) its part
+/// on each line, each as a line-to-neutral draw. `None` when it fits
+/// neither.
+fn step_connection(d: &Declared, m: &Metering, e: &Event) -> Option<(String, C64)> {
+    let fit = connection_of(d, m, &e.delta);
+    let (w, s, res) = fit[0];
+    if res <= 0.2 {
+        return Some((w.name(), s));
+    }
+    let parts: Vec<(Wiring, C64)> = fit
+        .iter()
+        .filter(|f| matches!(f.0, Wiring::LineNeutral(_)) && f.1.abs() >= USE_STEP)
+        .map(|f| (f.0, f.1))
+        .collect();
+    if parts.len() < 2 {
+        return None;
+    }
+    let mut ws: Vec<Wiring> = parts.iter().map(|p| p.0).collect();
+    ws.sort_by_key(|w| w.name());
+    Some((
+        ws.iter().map(|w| w.name()).collect::<Vec<_>>().join(" + "),
+        parts.iter().fold(C64::ZERO, |a, p| a + p.1),
+    ))
+}
+
+/// Steps of 500 W or more that nothing declared explains, clustered by
+/// connection and size (a stop counts as its start turned around).
+fn unexplained_clusters(
     d: &Declared,
     m: &Metering,
     events: &[&Event],
     explained: &[bool],
-    sums: &[(Vec<Option<C64>>, f64)],
-    total_wh: f64,
-    out: &mut Vec<Finding>,
-    th: &Thresholds,
-) {
-    struct Cluster {
-        wiring: String,
-        /// Mean channel step, as a start.
-        v: Vec<C64>,
-        s: C64,
-        on: Vec<i64>,
-        off: Vec<i64>,
-    }
+) -> Vec<Cluster> {
     let mut cl: Vec<Cluster> = Vec::new();
     for (e, _) in events
         .iter()
         .zip(explained)
         .filter(|(e, x)| e.size() >= 400.0 && !**x)
     {
-        let fit = connection_of(d, m, &e.delta);
-        let (w, s, res) = fit[0];
-        // One connection, or (an appliance with draws on several lines)
-        // its part on each line, each as a line-to-neutral draw.
-        let (label, s) = if res <= 0.2 {
-            (w.name(), s)
-        } else {
-            let parts: Vec<(Wiring, C64)> = fit
-                .iter()
-                .filter(|f| matches!(f.0, Wiring::LineNeutral(_)) && f.1.abs() >= USE_STEP)
-                .map(|f| (f.0, f.1))
-                .collect();
-            if parts.len() < 2 {
-                continue;
-            }
-            let mut ws: Vec<Wiring> = parts.iter().map(|p| p.0).collect();
-            ws.sort_by_key(|w| w.name());
-            (
-                ws.iter().map(|w| w.name()).collect::<Vec<_>>().join(" + "),
-                parts.iter().fold(C64::ZERO, |a, p| a + p.1),
-            )
+        let Some((label, s)) = step_connection(d, m, e) else {
+            continue;
         };
         let on = s.re >= 0.0;
         let (s, v): (C64, Vec<C64>) = if on {
@@ -1530,20 +1563,7 @@ fn undeclared(
         if s.re < 500.0 {
             continue;
         }
-        // Alike on the channels the cluster's load draws through (a quarter
-        // of its largest channel step or more); a change on another channel
-        // in the same interval is another load's (at 10 s a heater's stop
-        // often shares its row with a change on the other line).
-        let close = |c: &Cluster| {
-            let top = c.v.iter().map(|a| a.abs()).fold(0.0, f64::max);
-            c.wiring == label
-                && c.v
-                    .iter()
-                    .zip(&v)
-                    .filter(|(a, _)| a.abs() >= 0.25 * top)
-                    .all(|(a, b)| (*a - *b).abs() <= 0.1 * a.abs() + 50.0)
-        };
-        let k = match cl.iter().position(close) {
+        let k = match cl.iter().position(|c| c.close(&label, &v)) {
             Some(k) => k,
             None => {
                 cl.push(Cluster {
@@ -1556,55 +1576,76 @@ fn undeclared(
                 cl.len() - 1
             }
         };
-        let c = &mut cl[k];
-        let cnt = (c.on.len() + c.off.len()) as f64;
-        c.s = (c.s.scale(cnt) + s).scale(1.0 / (cnt + 1.0));
-        for (a, b) in c.v.iter_mut().zip(&v) {
-            *a = (a.scale(cnt) + *b).scale(1.0 / (cnt + 1.0));
-        }
-        if on {
-            c.on.push(e.time_ms);
-        } else {
-            c.off.push(e.time_ms);
-        }
+        cl[k].add(&v, s, on, e.time_ms);
     }
+    cl
+}
+
+/// The finding for cluster `c` when it is no likely coincidence of two
+/// declared appliances (their step sums and rates `sums`).
+fn undeclared_finding(
+    d: &Declared,
+    c: &Cluster,
+    sums: &[(Vec<Option<C64>>, f64)],
+    total_wh: f64,
+    th: &Thresholds,
+) -> Option<Finding> {
+    // As many coincidences of two declared appliances this size as
+    // seen are not unlikely: not a load of its own.
+    let expected: f64 = sums
+        .iter()
+        .filter(|(r, _)| dist_delta(&c.v, r) <= 1.0)
+        .map(|(_, rate)| rate)
+        .sum();
+    if poisson_tail(expected, c.on.len() + c.off.len()) > th.coincidence_p {
+        return None;
+    }
+    let share = energy_share(c.s.re, &c.on, &c.off, total_wh);
+    let share_text = match share {
+        Some(x) => format!("about {:.1} % of the energy", 100.0 * x),
+        None => "its share of the energy unknown (no run seen whole)".into(),
+    };
+    // `+ 0.0` turns a negative zero into zero (never "-0.0" printed).
+    let expected = expected.max(0.0) + 0.0;
+    Some(Finding {
+        kind: Kind::UndeclaredLoad,
+        subject: format!("{:.0} W on {}", c.s.re, c.wiring),
+        message: format!("a recurring load of about {:.0} W (pf {:.2}) on {} that no declared appliance explains: started {} times, stopped {} times (two declared appliances switching together would make about {:.1} such steps), {share_text}", c.s.re, c.s.re / c.s.abs(), c.wiring, c.on.len(), c.off.len(), expected),
+        // Runs seen whole (a start, then its stop before the next
+        // start), a tenth each: steps seen one way only count for
+        // nothing (at 10 s, starts of declared loads straddling rows).
+        confidence: (start_stop_pairs(&c.on, &c.off).len() as f64 / 10.0).min(1.0),
+        evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "coincidences_expected": expected, "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring, "energy_share": share, "first_starts": first(&c.on), "first_stops": first(&c.off), "first_starts_local": first_local(&c.on, &d.timezone) }),
+        doubt: None,
+    })
+}
+
+/// Recurring steps nothing declared explains, clustered by connection and
+/// size; a cluster that behaves as one load and is no likely coincidence of
+/// two declared appliances is a finding.
+#[allow(clippy::too_many_arguments)]
+fn undeclared(
+    d: &Declared,
+    m: &Metering,
+    events: &[&Event],
+    explained: &[bool],
+    sums: &[(Vec<Option<C64>>, f64)],
+    total_wh: f64,
+    out: &mut Vec<Finding>,
+    th: &Thresholds,
+) {
     // Recurring, and as one load behaves.
     // A cluster with no run seen whole (a start, then its stop) has no
     // confidence at all: at 10 s, starts of declared loads that straddle
     // two rows gather so; it is not listed, not even as possible.
-    for c in cl
-        .iter()
-        .filter(|c| behaves_as_a_load(&c.on, &c.off) && !start_stop_pairs(&c.on, &c.off).is_empty())
-    {
-        // As many coincidences of two declared appliances this size as
-        // seen are not unlikely: not a load of its own.
-        let expected: f64 = sums
-            .iter()
-            .filter(|(r, _)| dist_delta(&c.v, r) <= 1.0)
-            .map(|(_, rate)| rate)
-            .sum();
-        if poisson_tail(expected, c.on.len() + c.off.len()) > th.coincidence_p {
-            continue;
-        }
-        let share = energy_share(c.s.re, &c.on, &c.off, total_wh);
-        let share_text = match share {
-            Some(x) => format!("about {:.1} % of the energy", 100.0 * x),
-            None => "its share of the energy unknown (no run seen whole)".into(),
-        };
-        // `+ 0.0` turns a negative zero into zero (never "-0.0" printed).
-        let expected = expected.max(0.0) + 0.0;
-        out.push(Finding {
-            kind: Kind::UndeclaredLoad,
-            subject: format!("{:.0} W on {}", c.s.re, c.wiring),
-            message: format!("a recurring load of about {:.0} W (pf {:.2}) on {} that no declared appliance explains: started {} times, stopped {} times (two declared appliances switching together would make about {:.1} such steps), {share_text}", c.s.re, c.s.re / c.s.abs(), c.wiring, c.on.len(), c.off.len(), expected),
-            // Runs seen whole (a start, then its stop before the next
-            // start), a tenth each: steps seen one way only count for
-            // nothing (at 10 s, starts of declared loads straddling rows).
-            confidence: (start_stop_pairs(&c.on, &c.off).len() as f64 / 10.0).min(1.0),
-            evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "coincidences_expected": expected, "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring, "energy_share": share, "first_starts": first(&c.on), "first_stops": first(&c.off), "first_starts_local": first_local(&c.on, &d.timezone) }),
-            doubt: None,
-        });
-    }
+    let cl = unexplained_clusters(d, m, events, explained);
+    out.extend(
+        cl.iter()
+            .filter(|c| {
+                behaves_as_a_load(&c.on, &c.off) && !start_stop_pairs(&c.on, &c.off).is_empty()
+            })
+            .filter_map(|c| undeclared_finding(d, c, sums, total_wh, th)),
+    );
 }
 
 /// How often, against its steps that fit alone, an appliance's steps may
@@ -1778,9 +1819,7 @@ fn coverage(
 /// step of one size, one misdeclared, both fit the misdeclared one's steps
 /// on its true line; the one whose other steps are there too is the one
 /// that is there (common practice, no source).
-fn contest(
-    mut c: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)>,
-) -> Option<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)> {
+fn contest(mut c: Vec<Candidate>) -> Option<Candidate> {
     // Most steps first; the earlier appliance on a tie.
     c.sort_by_key(|x| (usize::MAX - x.1, x.0));
     let top = c.first()?;
@@ -1793,15 +1832,226 @@ fn contest(
     Some(c.swap_remove(pick))
 }
 
+/// A candidate move: (appliance, steps, wiring, finding, the steps, share
+/// of its step sizes among them).
+type Candidate = (usize, usize, DeclAppliance, Finding, Vec<usize>, f64);
+
+/// One round of placement: the appliances as placed so far and each step's
+/// distance from them, against which every appliance is weighed.
+struct Round<'a> {
+    d: &'a Declared,
+    m: &'a Metering,
+    used: &'a [&'a Event],
+    cxs: &'a [Ctx],
+    th: &'a Thresholds,
+    /// Conductors some working channel reads.
+    seen: &'a [bool],
+    placed: &'a [DeclAppliance],
+    sigs: Vec<Pred>,
+    /// Each step's distance from each appliance as placed.
+    dj: Vec<Vec<f64>>,
+}
+
+impl Round<'_> {
+    /// A conductor the wiring of `a` goes through that no working channel
+    /// reads: a wiring through it cannot be told from the data.
+    fn blind(&self, a: &DeclAppliance) -> Option<usize> {
+        let n = self.d.supply.lines();
+        a.wirings()
+            .iter()
+            .flat_map(|w| w.lines(n))
+            .find(|&x| !self.seen[x])
+    }
+
+    /// Steps that fit a wiring `sg` of appliance `j` and no other appliance
+    /// as placed nearly as well (exclusive), all that fit, who else fits,
+    /// and the exclusive steps.
+    fn excl(&self, j: usize, sg: &Pred) -> (usize, Vec<usize>, Vec<usize>, Vec<usize>) {
+        let na = self.d.appliances.len();
+        let (mut x, mut all, mut who, mut mine) = (0, Vec::new(), Vec::new(), Vec::new());
+        for (k, e) in self.used.iter().enumerate() {
+            let me = sg.dist(self.d, self.m, e, &self.cxs[k]);
+            if me <= 1.0 {
+                all.push(k);
+                let dk = &self.dj[k];
+                let rival = (0..na)
+                    .filter(|&o| o != j && shares(me, dk[o], self.th))
+                    .min_by(|&a, &b| dk[a].total_cmp(&dk[b]));
+                match rival {
+                    Some(o) => who.push(o),
+                    None => {
+                        x += 1;
+                        mine.push(k);
+                    }
+                }
+            }
+        }
+        (x, all, who, mine)
+    }
+
+    /// The best other wiring of appliance `j` (as placed, `a`) that a
+    /// working CT reads.
+    fn best_other(&self, j: usize, a: &DeclAppliance) -> OtherFit {
+        let mut best: Option<OtherFit> = None;
+        for (name, alt) in alternatives(self.d, a) {
+            let sg = Pred::of(self.d, self.m, &alt);
+            if !visible(&sg.nom) || self.blind(&alt).is_some() {
+                continue;
+            }
+            let (x, all, who, mine) = self.excl(j, &sg);
+            if best
+                .as_ref()
+                .is_none_or(|b| (x, all.len()) > (b.0, b.1.len()))
+            {
+                best = Some((x, all, who, mine, name, alt));
+            }
+        }
+        best.unwrap_or((0, vec![], vec![], vec![], String::new(), a.clone()))
+    }
+
+    /// The check of appliance `j` (`moved` once a finding has moved it), and
+    /// the move the steps support, if any.
+    fn check(&self, j: usize, moved: bool) -> (ApplianceCheck, Option<Candidate>) {
+        let a = &self.placed[j];
+        let declared = wiring_names(&self.d.appliances[j]);
+        let mut ck = ApplianceCheck {
+            id: a.id.clone(),
+            declared: declared.clone(),
+            verdict: Verdict::Undecidable,
+            seen: None,
+            reason: String::new(),
+            steps_declared: 0,
+            steps_best_other: 0,
+        };
+        if a.steps.jumps().is_empty() {
+            ck.reason = match &a.steps {
+                super::decl::Steps::None(why) => format!("{why}: no step to recognise"),
+                _ => "its power wanders continuously: no fixed step to place it by".into(),
+            };
+            return (ck, None);
+        }
+        if moved {
+            let seen = wiring_names(a);
+            let (n_a, ..) = self.excl(j, &self.sigs[j]);
+            ck.verdict = Verdict::Finding;
+            ck.reason = format!("{n_a} steps fit it on {seen}");
+            ck.seen = Some(seen);
+            ck.steps_best_other = n_a;
+            return (ck, None);
+        }
+        if let Some(x) = self.blind(a) {
+            let cand = self.check_blind(j, a, x, &mut ck);
+            return (ck, cand);
+        }
+        if let Some(why) = uncheckable_in(self.d, a, self.th) {
+            ck.reason = why;
+            return (ck, None);
+        }
+        if !visible(&self.sigs[j].nom) {
+            ck.reason = "its steps are too small to see".into();
+            return (ck, None);
+        }
+        let cand = self.weigh(j, a, &declared, &mut ck);
+        (ck, cand)
+    }
+
+    /// Appliance `j` declared through conductor `x`, which no working CT
+    /// reads: its absence there cannot be seen, but its steps elsewhere
+    /// can: many of them, fitting no other appliance, place it.
+    fn check_blind(
+        &self,
+        j: usize,
+        a: &DeclAppliance,
+        x: usize,
+        ck: &mut ApplianceCheck,
+    ) -> Option<Candidate> {
+        let (d, m, th) = (self.d, self.m, self.th);
+        ck.reason = format!(
+            "its wiring goes through L{}, which no working CT reads",
+            x + 1
+        );
+        if uncheckable_in(d, a, th).is_some() {
+            return None;
+        }
+        let (n_a, all_a, _, mine, name_a, alt) = self.best_other(j, a);
+        ck.steps_best_other = n_a;
+        let whole = n_a >= th.blind_move
+            && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
+        if whole {
+            let f = move_finding(d, a, &alt, &name_a, None, n_a, th);
+            let cover = coverage(d, m, &alt, self.used, self.cxs, &mine, 0.0);
+            ck.reason = format!("{n_a} steps fit it on {name_a}; its declared wiring goes through L{}, which no working CT reads", x + 1);
+            return Some((j, n_a, alt, f, mine, cover));
+        }
+        if n_a >= th.blind_move {
+            ck.reason += &format!(" ({n_a} steps fit it on {name_a} and no other appliance, but not every one of its main step sizes shows there)");
+        } else if n_a > 0 {
+            ck.reason += &format!(
+                " ({n_a} steps fit it on {name_a} and no other appliance; {} would place it there)",
+                th.blind_move
+            );
+        }
+        None
+    }
+
+    /// Appliance `j` (as placed, `a`; wired `declared`) weighed as declared
+    /// against its best other wiring.
+    fn weigh(
+        &self,
+        j: usize,
+        a: &DeclAppliance,
+        declared: &str,
+        ck: &mut ApplianceCheck,
+    ) -> Option<Candidate> {
+        let (d, m, th) = (self.d, self.m, self.th);
+        let (n_d, ..) = self.excl(j, &self.sigs[j]);
+        ck.steps_declared = n_d;
+        let (n_a, all_a, who, mine, name_a, alt) = self.best_other(j, a);
+        ck.steps_best_other = n_a;
+        // An appliance that shows where declared, each of its main
+        // step sizes there, stays there: steps of its size elsewhere
+        // are another load's (left to the undeclared loads), not a
+        // reason to move it.
+        let stays = n_d >= th.shows_as_declared && {
+            let (.., mine_d) = self.excl(j, &self.sigs[j]);
+            coverage(d, m, a, self.used, self.cxs, &mine_d, th.whole_share) >= 1.0
+        };
+        let moves = !stays && n_a >= 3 && n_a >= 3 * n_d + 2;
+        let whole =
+            moves && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
+        if whole {
+            let f = move_finding(d, a, &alt, &name_a, Some(n_d), n_a, th);
+            let cover = coverage(d, m, &alt, self.used, self.cxs, &mine, 0.0);
+            ck.reason = format!("{n_a} steps fit it on {name_a}, {n_d} on {declared}");
+            return Some((j, n_a, alt, f, mine, cover));
+        }
+        if moves {
+            ck.reason = format!("{n_a} steps fit it on {name_a} and no other appliance, {n_d} on {declared}, but not every one of its main step sizes shows there: too little to place it");
+        } else if n_d >= 2 {
+            ck.verdict = Verdict::AsDeclared;
+            ck.reason =
+                format!("{n_d} steps fit it as declared, at most {n_a} on any other connection");
+        } else if all_a.len() >= 3 {
+            let mut who: Vec<String> = who.iter().map(|&o| self.placed[o].id.clone()).collect();
+            who.sort();
+            who.dedup();
+            ck.reason = format!(
+                "{} steps would fit it on {name_a}, but they fit {} as well",
+                all_a.len(),
+                who.join(", ")
+            );
+        } else {
+            ck.reason = format!("seen switching {n_d} times as declared and {n_a} times otherwise: too few to decide");
+        }
+        None
+    }
+}
+
 /// Places every appliance: its wiring as declared, or another one the
 /// steps support much better. Greedy: the best-supported finding is taken
 /// first and the appliance moved before the others are weighed again, so
 /// steps one misdeclared appliance leaves behind are not pinned on another.
 /// Returns the checks and the appliances as placed.
-#[allow(
-    clippy::too_many_lines,
-    reason = "the checker is being restructured into typed stages (issue 19); split there"
-)]
 fn place(
     d: &Declared,
     m: &Metering,
@@ -1811,176 +2061,34 @@ fn place(
     findings: &mut Vec<Finding>,
     th: &Thresholds,
 ) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>) {
-    let na = d.appliances.len();
     let n = d.supply.lines();
-    // Conductors some working channel reads; a wiring through another one
-    // cannot be told from the data.
     let seen: Vec<bool> = (0..n)
         .map(|b| (0..n).any(|c| !m.absent[c] && m.map[c].src == b))
         .collect();
-    let blind = |a: &DeclAppliance| {
-        a.wirings()
-            .iter()
-            .flat_map(|w| w.lines(n))
-            .find(|&x| !seen[x])
-    };
     let mut placed: Vec<DeclAppliance> = d.appliances.clone();
-    let mut moved = vec![false; na];
+    let mut moved = vec![false; placed.len()];
     loop {
         let sigs: Vec<Pred> = placed.iter().map(|a| Pred::of(d, m, a)).collect();
         let shapes: Vec<Option<Vec<Option<C64>>>> =
             placed.iter().map(|a| shape_of(d, m, a)).collect();
         let dj = distances(d, m, used, cxs, &sigs, &shapes, interval_s);
-        // Steps that fit a wiring of appliance j and no other appliance as
-        // placed nearly as well (exclusive), all that fit, and who else fits.
-        let excl = |j: usize, sg: &Pred| -> (usize, Vec<usize>, Vec<usize>, Vec<usize>) {
-            let (mut x, mut all, mut who, mut mine) = (0, Vec::new(), Vec::new(), Vec::new());
-            for (k, e) in used.iter().enumerate() {
-                let me = sg.dist(d, m, e, &cxs[k]);
-                if me <= 1.0 {
-                    all.push(k);
-                    let rival = (0..na)
-                        .filter(|&o| o != j && shares(me, dj[k][o], th))
-                        .min_by(|&a, &b| dj[k][a].total_cmp(&dj[k][b]));
-                    match rival {
-                        Some(o) => who.push(o),
-                        None => {
-                            x += 1;
-                            mine.push(k);
-                        }
-                    }
-                }
-            }
-            (x, all, who, mine)
+        let round = Round {
+            d,
+            m,
+            used,
+            cxs,
+            th,
+            seen: &seen,
+            placed: &placed,
+            sigs,
+            dj,
         };
         let mut checks = Vec::new();
-        // Candidate moves: (appliance, steps, wiring, finding, the steps,
-        // share of its step sizes among them).
-        let mut candidates: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)> =
-            Vec::new();
-        for (j, a) in placed.iter().enumerate() {
-            let decl = &d.appliances[j];
-            let declared = wiring_names(decl);
-            let mut ck = ApplianceCheck {
-                id: a.id.clone(),
-                declared: declared.clone(),
-                verdict: Verdict::Undecidable,
-                seen: None,
-                reason: String::new(),
-                steps_declared: 0,
-                steps_best_other: 0,
-            };
-            if a.steps.jumps().is_empty() {
-                ck.reason = match &a.steps {
-                    super::decl::Steps::None(why) => format!("{why}: no step to recognise"),
-                    _ => "its power wanders continuously: no fixed step to place it by".into(),
-                };
-                checks.push(ck);
-                continue;
-            }
-            if moved[j] {
-                let seen = wiring_names(a);
-                let (n_a, ..) = excl(j, &sigs[j]);
-                ck.verdict = Verdict::Finding;
-                ck.reason = format!("{n_a} steps fit it on {seen}");
-                ck.seen = Some(seen);
-                ck.steps_best_other = n_a;
-                checks.push(ck);
-                continue;
-            }
-            // Its best other wiring that a working CT reads.
-            let best_other = || {
-                let mut best: Option<OtherFit> = None;
-                for (name, alt) in alternatives(d, a) {
-                    let sg = Pred::of(d, m, &alt);
-                    if !visible(&sg.nom) || blind(&alt).is_some() {
-                        continue;
-                    }
-                    let (x, all, who, mine) = excl(j, &sg);
-                    if best
-                        .as_ref()
-                        .is_none_or(|b| (x, all.len()) > (b.0, b.1.len()))
-                    {
-                        best = Some((x, all, who, mine, name, alt));
-                    }
-                }
-                best.unwrap_or((0, vec![], vec![], vec![], String::new(), a.clone()))
-            };
-            if let Some(x) = blind(a) {
-                ck.reason = format!(
-                    "its wiring goes through L{}, which no working CT reads",
-                    x + 1
-                );
-                // Its absence there cannot be seen, but its steps elsewhere
-                // can: many of them, fitting no other appliance, place it.
-                if uncheckable_in(d, a, th).is_none() {
-                    let (n_a, all_a, _, mine, name_a, alt) = best_other();
-                    ck.steps_best_other = n_a;
-                    let whole = n_a >= th.blind_move
-                        && coverage(d, m, &alt, used, cxs, &all_a, th.whole_share) >= 1.0;
-                    if whole {
-                        let f = move_finding(d, a, &alt, &name_a, None, n_a, th);
-                        let cover = coverage(d, m, &alt, used, cxs, &mine, 0.0);
-                        candidates.push((j, n_a, alt, f, mine, cover));
-                        ck.reason = format!("{n_a} steps fit it on {name_a}; its declared wiring goes through L{}, which no working CT reads", x + 1);
-                    } else if n_a >= th.blind_move {
-                        ck.reason += &format!(" ({n_a} steps fit it on {name_a} and no other appliance, but not every one of its main step sizes shows there)");
-                    } else if n_a > 0 {
-                        ck.reason += &format!(" ({n_a} steps fit it on {name_a} and no other appliance; {} would place it there)", th.blind_move);
-                    }
-                }
-                checks.push(ck);
-                continue;
-            }
-            if let Some(why) = uncheckable_in(d, a, th) {
-                ck.reason = why;
-                checks.push(ck);
-                continue;
-            }
-            if !visible(&sigs[j].nom) {
-                ck.reason = "its steps are too small to see".into();
-                checks.push(ck);
-                continue;
-            }
-            let (n_d, ..) = excl(j, &sigs[j]);
-            ck.steps_declared = n_d;
-            let (n_a, all_a, who, mine, name_a, alt) = best_other();
-            ck.steps_best_other = n_a;
-            // An appliance that shows where declared, each of its main
-            // step sizes there, stays there: steps of its size elsewhere
-            // are another load's (left to the undeclared loads), not a
-            // reason to move it.
-            let stays = n_d >= th.shows_as_declared && {
-                let (.., mine_d) = excl(j, &sigs[j]);
-                coverage(d, m, a, used, cxs, &mine_d, th.whole_share) >= 1.0
-            };
-            let moves = !stays && n_a >= 3 && n_a >= 3 * n_d + 2;
-            let whole = moves && coverage(d, m, &alt, used, cxs, &all_a, th.whole_share) >= 1.0;
-            if whole {
-                let f = move_finding(d, a, &alt, &name_a, Some(n_d), n_a, th);
-                let cover = coverage(d, m, &alt, used, cxs, &mine, 0.0);
-                candidates.push((j, n_a, alt, f, mine, cover));
-                ck.reason = format!("{n_a} steps fit it on {name_a}, {n_d} on {declared}");
-            } else if moves {
-                ck.reason = format!("{n_a} steps fit it on {name_a} and no other appliance, {n_d} on {declared}, but not every one of its main step sizes shows there: too little to place it");
-            } else if n_d >= 2 {
-                ck.verdict = Verdict::AsDeclared;
-                ck.reason = format!(
-                    "{n_d} steps fit it as declared, at most {n_a} on any other connection"
-                );
-            } else if all_a.len() >= 3 {
-                let mut who: Vec<String> = who.iter().map(|&o| placed[o].id.clone()).collect();
-                who.sort();
-                who.dedup();
-                ck.reason = format!(
-                    "{} steps would fit it on {name_a}, but they fit {} as well",
-                    all_a.len(),
-                    who.join(", ")
-                );
-            } else {
-                ck.reason = format!("seen switching {n_d} times as declared and {n_a} times otherwise: too few to decide");
-            }
+        let mut candidates: Vec<Candidate> = Vec::new();
+        for (j, was_moved) in moved.iter().enumerate() {
+            let (ck, cand) = round.check(j, *was_moved);
             checks.push(ck);
+            candidates.extend(cand);
         }
         match contest(candidates) {
             Some((j, _, alt, f, ..)) => {
