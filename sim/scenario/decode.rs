@@ -189,7 +189,6 @@ pub(crate) fn merge(base: &Node, over: &Node) -> Node {
     }
 }
 
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 fn decode(
     ctx: &Reader,
     root: &Node,
@@ -218,98 +217,10 @@ fn decode(
             production: false,
         },
     };
-    let mut supply_warnings: Vec<(String, String)> = Vec::new();
-    let apps_node = top.req("appliance", "one [[appliance]] section per appliance")?;
-    if ctx.array(apps_node, "appliance")?.is_empty() {
-        return Err(ctx.err(
-            apps_node,
-            "appliance",
-            "a home needs at least one appliance",
-            "add an [[appliance]] section",
-        ));
-    }
-    let mut appliances: Vec<Appliance> = Vec::new();
-    decode_list(
-        ctx,
-        apps_node,
-        "appliance",
-        &home,
-        templates,
-        &mut appliances,
-        &mut supply_warnings,
-    )?;
-    // Unmetered loads: in the meters' aggregate, in truth only as their sum
-    // `unmetered_p_w`; the same language as appliances.
+    let (mut appliances, unmetered, mut warnings) = decode_loads(ctx, &top, &home, templates)?;
     let metered = appliances.len();
-    if let Some(n) = top.opt("unmetered") {
-        decode_list(
-            ctx,
-            n,
-            "unmetered",
-            &home,
-            templates,
-            &mut appliances,
-            &mut supply_warnings,
-        )?;
-    }
-    if let Some(away) = home.away {
-        for a in appliances.iter_mut() {
-            for h in a.behaviour.habits_mut() {
-                h.mask_weekdays(&away);
-            }
-        }
-    }
-    let unmetered = appliances.split_off(metered);
-    // One warning per appliance: a rated draw's (it names the rescaled
-    // power), else the template's supply.
-    let mut warnings: Vec<String> = appliances
-        .iter()
-        .chain(&unmetered)
-        .flat_map(|a| {
-            rated_voltage_warnings(a).or_else(|| {
-                let w = supply_warnings.iter().find(|(id, _)| *id == a.id);
-                w.map(|(_, w)| w.clone())
-            })
-        })
-        .collect();
-    if let Some(n) = top.opt("pv") {
-        let (pv, w) = super::generation::decode_pv(ctx, n, &home)?;
-        warnings.extend(w);
-        appliances.push(pv);
-    }
-    if meter.production && !top.has("pv") {
-        let m = top.opt("meter").expect("production is a [meter] key");
-        let n = ctx.table(m, "meter")?.opt("production").unwrap_or(m);
-        return Err(ctx.err(
-            n,
-            "meter.production",
-            "a production channel measures the PV's output, but the home has no [pv]",
-            "add a [pv] section, or leave production out",
-        ));
-    }
-    if let Some(n) = top.opt("battery") {
-        appliances.push(super::generation::decode_battery(ctx, n, &home)?);
-    }
-    for (k, a) in appliances.iter().enumerate().skip(metered) {
-        let key = if a.role == Role::Generator {
-            "pv"
-        } else {
-            "battery"
-        };
-        if appliances[..k]
-            .iter()
-            .chain(&unmetered)
-            .any(|b| b.id == a.id)
-        {
-            let n = top.opt(key).expect("decoded above");
-            return Err(ctx.err(
-                n,
-                key,
-                format!("id \"{}\" is already used by another load", a.id),
-                format!("give the {key} an id of its own: id = \"{key}2\""),
-            ));
-        }
-    }
+    decode_generation(ctx, &top, &home, &meter, &mut appliances, &mut warnings)?;
+    check_generation_ids(ctx, &top, &appliances, &unmetered, metered)?;
     let waveforms = match top.opt("waveform") {
         Some(n) => decode_waveforms(ctx, n, &home, &run)?,
         None => Waveforms {
@@ -330,29 +241,8 @@ fn decode(
             })
             .collect(),
     };
-    let weather = top
-        .opt("weather")
-        .map(|n| super::thermal::decode_weather(ctx, n, &run))
-        .transpose()?;
-    let building = top
-        .opt("building")
-        .map(|n| {
-            let sunlit = super::thermal::sunlit(&home, weather.as_ref());
-            super::thermal::decode_building(ctx, n, sunlit)
-        })
-        .transpose()?;
-    check_thermostats(
-        ctx,
-        root,
-        &appliances,
-        &unmetered,
-        weather.is_some(),
-        building.is_some(),
-    )?;
-    let references = match top.opt("reference") {
-        Some(n) => super::thermal::decode_references(ctx, n, &appliances, &unmetered)?,
-        None => vec![],
-    };
+    let (weather, building, references) =
+        decode_thermal(ctx, root, &top, &home, &run, &appliances, &unmetered)?;
     top.finish()?;
     Ok(Scenario {
         name,
@@ -370,6 +260,181 @@ fn decode(
         references,
         source_toml: None,
     })
+}
+
+/// The appliances, the unmetered loads and the warnings about them.
+type Loads = (Vec<Appliance>, Vec<Appliance>, Vec<String>);
+
+/// The appliances and the unmetered loads (both with `home.away` applied),
+/// and one supply warning per load that has one.
+fn decode_loads(
+    ctx: &Reader,
+    top: &TableReader,
+    home: &Home,
+    templates: &[(String, usize, Node)],
+) -> Result<Loads, Error> {
+    let mut supply_warnings: Vec<(String, String)> = Vec::new();
+    let apps_node = top.req("appliance", "one [[appliance]] section per appliance")?;
+    if ctx.array(apps_node, "appliance")?.is_empty() {
+        return Err(ctx.err(
+            apps_node,
+            "appliance",
+            "a home needs at least one appliance",
+            "add an [[appliance]] section",
+        ));
+    }
+    let mut appliances: Vec<Appliance> = Vec::new();
+    decode_list(
+        ctx,
+        apps_node,
+        "appliance",
+        home,
+        templates,
+        &mut appliances,
+        &mut supply_warnings,
+    )?;
+    // Unmetered loads: in the meters' aggregate, in truth only as their sum
+    // `unmetered_p_w`; the same language as appliances.
+    let metered = appliances.len();
+    if let Some(n) = top.opt("unmetered") {
+        decode_list(
+            ctx,
+            n,
+            "unmetered",
+            home,
+            templates,
+            &mut appliances,
+            &mut supply_warnings,
+        )?;
+    }
+    if let Some(away) = home.away {
+        for a in appliances.iter_mut() {
+            for h in a.behaviour.habits_mut() {
+                h.mask_weekdays(&away);
+            }
+        }
+    }
+    let unmetered = appliances.split_off(metered);
+    // One warning per appliance: a rated draw's (it names the rescaled
+    // power), else the template's supply.
+    let warnings: Vec<String> = appliances
+        .iter()
+        .chain(&unmetered)
+        .flat_map(|a| {
+            rated_voltage_warnings(a).or_else(|| {
+                let w = supply_warnings.iter().find(|(id, _)| *id == a.id);
+                w.map(|(_, w)| w.clone())
+            })
+        })
+        .collect();
+    Ok((appliances, unmetered, warnings))
+}
+
+/// `[pv]` and `[battery]`, appended to the appliances; a production channel
+/// needs a PV to measure.
+fn decode_generation(
+    ctx: &Reader,
+    top: &TableReader,
+    home: &Home,
+    meter: &Meter,
+    appliances: &mut Vec<Appliance>,
+    warnings: &mut Vec<String>,
+) -> Result<(), Error> {
+    if let Some(n) = top.opt("pv") {
+        let (pv, w) = super::generation::decode_pv(ctx, n, home)?;
+        warnings.extend(w);
+        appliances.push(pv);
+    }
+    if meter.production && !top.has("pv") {
+        let m = top.opt("meter").expect("production is a [meter] key");
+        let n = ctx.table(m, "meter")?.opt("production").unwrap_or(m);
+        return Err(ctx.err(
+            n,
+            "meter.production",
+            "a production channel measures the PV's output, but the home has no [pv]",
+            "add a [pv] section, or leave production out",
+        ));
+    }
+    if let Some(n) = top.opt("battery") {
+        appliances.push(super::generation::decode_battery(ctx, n, home)?);
+    }
+    Ok(())
+}
+
+/// The PV's and the battery's ids (the appliances from `metered` on) must
+/// differ from every other load's.
+fn check_generation_ids(
+    ctx: &Reader,
+    top: &TableReader,
+    appliances: &[Appliance],
+    unmetered: &[Appliance],
+    metered: usize,
+) -> Result<(), Error> {
+    for (k, a) in appliances.iter().enumerate().skip(metered) {
+        let key = if a.role == Role::Generator {
+            "pv"
+        } else {
+            "battery"
+        };
+        if appliances[..k]
+            .iter()
+            .chain(unmetered)
+            .any(|b| b.id == a.id)
+        {
+            let n = top.opt(key).expect("decoded above");
+            return Err(ctx.err(
+                n,
+                key,
+                format!("id \"{}\" is already used by another load", a.id),
+                format!("give the {key} an id of its own: id = \"{key}2\""),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// The weather, the building and the cited references of a home.
+type Thermal = (
+    Option<crate::weather::WeatherSpec>,
+    Option<crate::thermal::Building>,
+    Vec<Reference>,
+);
+
+/// `[weather]`, `[building]` (its sunlight from the weather) and
+/// `[[reference]]`, with the thermostats checked against the first two.
+fn decode_thermal(
+    ctx: &Reader,
+    root: &Node,
+    top: &TableReader,
+    home: &Home,
+    run: &Run,
+    appliances: &[Appliance],
+    unmetered: &[Appliance],
+) -> Result<Thermal, Error> {
+    let weather = top
+        .opt("weather")
+        .map(|n| super::thermal::decode_weather(ctx, n, run))
+        .transpose()?;
+    let building = top
+        .opt("building")
+        .map(|n| {
+            let sunlit = super::thermal::sunlit(home, weather.as_ref());
+            super::thermal::decode_building(ctx, n, sunlit)
+        })
+        .transpose()?;
+    check_thermostats(
+        ctx,
+        root,
+        appliances,
+        unmetered,
+        weather.is_some(),
+        building.is_some(),
+    )?;
+    let references = match top.opt("reference") {
+        Some(n) => super::thermal::decode_references(ctx, n, appliances, unmetered)?,
+        None => vec![],
+    };
+    Ok((weather, building, references))
 }
 
 /// Keys of an appliance that replace a template's powers: with any of them
@@ -532,24 +597,11 @@ fn decode_list(
     Ok(())
 }
 
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 fn decode_home(ctx: &Reader, node: &Node) -> Result<Home, Error> {
     let t = ctx.table(node, "home")?;
     let label = t.string("label")?.unwrap_or("").to_string();
     let supply_node = t.req("supply", "split-phase, three-phase or single-phase")?;
-    let supply = match ctx.string(supply_node, "home.supply")? {
-        "split-phase" => SupplyKind::SplitPhase,
-        "three-phase" => SupplyKind::ThreePhase,
-        "single-phase" => SupplyKind::SinglePhase,
-        other => {
-            return Err(ctx.err(
-                supply_node,
-                "home.supply",
-                format!("unknown supply \"{other}\""),
-                "write \"split-phase\", \"three-phase\" or \"single-phase\"",
-            ))
-        }
-    };
+    let supply = decode_supply(ctx, supply_node)?;
     let voltage_v = match t.opt("voltage") {
         Some(n) => in_range(ctx, n, "home.voltage", Kind::Voltage, LINE_TO_NEUTRAL_V)?,
         None => match supply {
@@ -557,99 +609,14 @@ fn decode_home(ctx: &Reader, node: &Node) -> Result<Home, Error> {
             _ => 230.0,
         },
     };
-    let frequency_hz = match t.opt("frequency") {
-        Some(n) => {
-            let f = ctx.positive(n, "home.frequency", Kind::Frequency)?;
-            if f != 50.0 && f != 60.0 {
-                return Err(ctx.err(
-                    n,
-                    "home.frequency",
-                    format!("{f} Hz is not a mains frequency"),
-                    "write \"50 Hz\" or \"60 Hz\"",
-                ));
-            }
-            f
-        }
-        // 120 V and 277 V systems are North American (60 Hz); 230 V ones 50 Hz.
-        None if voltage_v < 200.0 || (voltage_v - 277.0).abs() < 1.0 => 60.0,
-        None => 50.0,
-    };
+    let frequency_hz = decode_frequency(ctx, &t, voltage_v)?;
     let service_a = match t.opt("service") {
         Some(n) => in_range(ctx, n, "home.service", Kind::Current, SERVICE_A)?,
         None => 100.0,
     };
-    let tz_node = t.req(
-        "timezone",
-        "an IANA time zone such as \"America/Chicago\" or \"Europe/Berlin\"",
-    )?;
-    let timezone = ctx.string(tz_node, "home.timezone")?.to_string();
-    if jiff::tz::TimeZone::get(&timezone).is_err() {
-        return Err(ctx.err(
-            tz_node,
-            "home.timezone",
-            format!("unknown time zone \"{timezone}\""),
-            "write an IANA time zone name such as \"America/Chicago\" or \"Europe/Berlin\"",
-        ));
-    }
-    // Normal band: ANSI C84.1 Range A is ±5 % around 120 V (114–126 V); IEC 60038
-    // allows ±10 % around 230 V (both from memory).
-    let band_default = if frequency_hz == 60.0 { 0.05 } else { 0.10 };
-    // Source impedance defaults: for 230 V the IEC 60725 reference impedance
-    // (0.24 + j0.15 Ω phase, 0.16 + j0.10 Ω neutral, from memory); for 60 Hz
-    // services a stiffer illustrative 0.05 + j0.03 Ω (common practice, no source).
-    let (lr, lx, nr, nx) = if frequency_hz == 50.0 {
-        (0.24, 0.15, 0.16, 0.10)
-    } else {
-        (0.05, 0.03, 0.05, 0.03)
-    };
-    let source = match t.opt("source") {
-        None => Source {
-            variation: 0.01,
-            variation_time_s: 1800.0,
-            band: band_default,
-            line_r_ohm: lr,
-            line_x_ohm: lx,
-            neutral_r_ohm: nr,
-            neutral_x_ohm: nx,
-            unbalance: 0.0,
-        },
-        Some(n) => {
-            let s = ctx.table(n, "home.source")?;
-            let src = Source {
-                variation: s.non_negative("variation", Kind::Fraction)?.unwrap_or(0.01),
-                variation_time_s: s.positive("period", Kind::Duration)?.unwrap_or(1800.0),
-                band: s
-                    .non_negative("band", Kind::Fraction)?
-                    .unwrap_or(band_default),
-                line_r_ohm: s.non_negative("r", Kind::Impedance)?.unwrap_or(lr),
-                line_x_ohm: s.non_negative("x", Kind::Impedance)?.unwrap_or(lx),
-                neutral_r_ohm: s.non_negative("neutral_r", Kind::Impedance)?.unwrap_or(nr),
-                neutral_x_ohm: s.non_negative("neutral_x", Kind::Impedance)?.unwrap_or(nx),
-                unbalance: decode_unbalance(ctx, &s, supply)?,
-            };
-            s.finish()?;
-            src
-        }
-    };
-    let away = match t.opt("away") {
-        Some(n) => {
-            let w = parse_hours(ctx, n, "home.away")?;
-            let mut a = [false; 24];
-            for h in 0..24 {
-                a[h] = w[h] > 0.0;
-            }
-            if a.iter().all(|x| *x) {
-                return Err(ctx.err(
-                    n,
-                    "home.away",
-                    "away all day leaves no hour to start anything",
-                    "write the hours nobody is home, e.g. away = \"8-17\"",
-                ));
-            }
-            Some(a)
-        }
-        None => None,
-    };
+    let timezone = decode_timezone(ctx, &t)?;
+    let source = decode_source(ctx, t.opt("source"), supply, frequency_hz)?;
+    let away = t.opt("away").map(|n| decode_away(ctx, n)).transpose()?;
     let (site, sky) = decode_site(ctx, &t)?;
     let source_node = t.opt("source");
     t.finish()?;
@@ -673,6 +640,128 @@ fn decode_home(ctx: &Reader, node: &Node) -> Result<Home, Error> {
         supply_at,
         source_at,
     })
+}
+
+/// `home.supply`: one of the three supply names.
+fn decode_supply(ctx: &Reader, n: &Node) -> Result<SupplyKind, Error> {
+    match ctx.string(n, "home.supply")? {
+        "split-phase" => Ok(SupplyKind::SplitPhase),
+        "three-phase" => Ok(SupplyKind::ThreePhase),
+        "single-phase" => Ok(SupplyKind::SinglePhase),
+        other => Err(ctx.err(
+            n,
+            "home.supply",
+            format!("unknown supply \"{other}\""),
+            "write \"split-phase\", \"three-phase\" or \"single-phase\"",
+        )),
+    }
+}
+
+/// `home.frequency`: 50 or 60 Hz; when not written, the one that goes with
+/// the voltage.
+fn decode_frequency(ctx: &Reader, t: &TableReader, voltage_v: f64) -> Result<f64, Error> {
+    match t.opt("frequency") {
+        Some(n) => {
+            let f = ctx.positive(n, "home.frequency", Kind::Frequency)?;
+            if f != 50.0 && f != 60.0 {
+                return Err(ctx.err(
+                    n,
+                    "home.frequency",
+                    format!("{f} Hz is not a mains frequency"),
+                    "write \"50 Hz\" or \"60 Hz\"",
+                ));
+            }
+            Ok(f)
+        }
+        // 120 V and 277 V systems are North American (60 Hz); 230 V ones 50 Hz.
+        None if voltage_v < 200.0 || (voltage_v - 277.0).abs() < 1.0 => Ok(60.0),
+        None => Ok(50.0),
+    }
+}
+
+/// `home.timezone`: an IANA time zone name that jiff knows.
+fn decode_timezone(ctx: &Reader, t: &TableReader) -> Result<String, Error> {
+    let tz_node = t.req(
+        "timezone",
+        "an IANA time zone such as \"America/Chicago\" or \"Europe/Berlin\"",
+    )?;
+    let timezone = ctx.string(tz_node, "home.timezone")?.to_string();
+    if jiff::tz::TimeZone::get(&timezone).is_err() {
+        return Err(ctx.err(
+            tz_node,
+            "home.timezone",
+            format!("unknown time zone \"{timezone}\""),
+            "write an IANA time zone name such as \"America/Chicago\" or \"Europe/Berlin\"",
+        ));
+    }
+    Ok(timezone)
+}
+
+/// `home.source`: the supply's variation, normal band and impedance, each
+/// defaulting by the mains frequency when not written.
+fn decode_source(
+    ctx: &Reader,
+    node: Option<&Node>,
+    supply: SupplyKind,
+    frequency_hz: f64,
+) -> Result<Source, Error> {
+    // Normal band: ANSI C84.1 Range A is ±5 % around 120 V (114–126 V); IEC 60038
+    // allows ±10 % around 230 V (both from memory).
+    let band_default = if frequency_hz == 60.0 { 0.05 } else { 0.10 };
+    // Source impedance defaults: for 230 V the IEC 60725 reference impedance
+    // (0.24 + j0.15 Ω phase, 0.16 + j0.10 Ω neutral, from memory); for 60 Hz
+    // services a stiffer illustrative 0.05 + j0.03 Ω (common practice, no source).
+    let (lr, lx, nr, nx) = if frequency_hz == 50.0 {
+        (0.24, 0.15, 0.16, 0.10)
+    } else {
+        (0.05, 0.03, 0.05, 0.03)
+    };
+    let Some(n) = node else {
+        return Ok(Source {
+            variation: 0.01,
+            variation_time_s: 1800.0,
+            band: band_default,
+            line_r_ohm: lr,
+            line_x_ohm: lx,
+            neutral_r_ohm: nr,
+            neutral_x_ohm: nx,
+            unbalance: 0.0,
+        });
+    };
+    let s = ctx.table(n, "home.source")?;
+    let src = Source {
+        variation: s.non_negative("variation", Kind::Fraction)?.unwrap_or(0.01),
+        variation_time_s: s.positive("period", Kind::Duration)?.unwrap_or(1800.0),
+        band: s
+            .non_negative("band", Kind::Fraction)?
+            .unwrap_or(band_default),
+        line_r_ohm: s.non_negative("r", Kind::Impedance)?.unwrap_or(lr),
+        line_x_ohm: s.non_negative("x", Kind::Impedance)?.unwrap_or(lx),
+        neutral_r_ohm: s.non_negative("neutral_r", Kind::Impedance)?.unwrap_or(nr),
+        neutral_x_ohm: s.non_negative("neutral_x", Kind::Impedance)?.unwrap_or(nx),
+        unbalance: decode_unbalance(ctx, &s, supply)?,
+    };
+    s.finish()?;
+    Ok(src)
+}
+
+/// `home.away`: the hours nobody is home, as a mask of the day's 24 hours;
+/// at least one hour must be left.
+fn decode_away(ctx: &Reader, n: &Node) -> Result<[bool; 24], Error> {
+    let w = parse_hours(ctx, n, "home.away")?;
+    let mut a = [false; 24];
+    for h in 0..24 {
+        a[h] = w[h] > 0.0;
+    }
+    if a.iter().all(|x| *x) {
+        return Err(ctx.err(
+            n,
+            "home.away",
+            "away all day leaves no hour to start anything",
+            "write the hours nobody is home, e.g. away = \"8-17\"",
+        ));
+    }
+    Ok(a)
 }
 
 /// `source.unbalance`: the negative- over positive-sequence voltage of a
@@ -1189,173 +1278,201 @@ fn decode_metering(ctx: &Reader, node: &Node, home: &Home) -> Result<Vec<MeterCh
     Ok(out)
 }
 
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 fn decode_faults(ctx: &Reader, node: &Node, home: &Home, meter: &Meter) -> Result<Faults, Error> {
     let t = ctx.table(node, "faults")?;
     let supply = home.supply;
     let mut f = Faults::default();
     if let Some(list) = t.opt("ct") {
         for (i, n) in ctx.array(list, "faults.ct")?.iter().enumerate() {
-            let path = format!("faults.ct[{i}]");
-            let c = ctx.table(n, &path)?;
-            let line = parse_line(
-                ctx,
-                c.req("conductor", "the channel's line, e.g. \"L1\"")?,
-                &c.path_of("conductor"),
-                supply,
-            )?;
-            let gain = c.quantity("gain", Kind::Fraction)?.unwrap_or(0.0);
-            if gain.abs() > 0.5 {
-                return Err(ctx.err(
-                    c.opt("gain").unwrap(),
-                    &c.path_of("gain"),
-                    format!(
-                        "a gain error of {:.0} % is not a CT that works",
-                        gain * 100.0
-                    ),
-                    "write an error within ±50 %, e.g. gain = \"1.5 %\"",
-                ));
-            }
-            let phase_deg = c.quantity("phase", Kind::Angle)?.unwrap_or(0.0);
-            if phase_deg.abs() > 30.0 {
-                return Err(ctx.err(
-                    c.opt("phase").unwrap(),
-                    &c.path_of("phase"),
-                    format!("a phase error of {phase_deg} deg is outside ±30 deg"),
-                    "write e.g. phase = \"1.2 deg\"",
-                ));
-            }
-            let reversed = match c.opt("reversed") {
-                Some(n) => match n.v {
-                    Val::Bool(b) => b,
-                    _ => {
-                        return Err(ctx.err(
-                            n,
-                            &c.path_of("reversed"),
-                            "expected true or false",
-                            "write reversed = true",
-                        ))
-                    }
-                },
-                None => false,
-            };
-            let on = match c.opt("on") {
-                Some(n) => {
-                    let x = parse_line(ctx, n, &c.path_of("on"), supply)?;
-                    if x == line {
-                        return Err(ctx.err(
-                            n,
-                            &c.path_of("on"),
-                            "the CT is on its own conductor",
-                            "name another line, or leave `on` out",
-                        ));
-                    }
-                    Some(x)
-                }
-                None => None,
-            };
-            c.finish()?;
-            if f.ct.iter().any(|x| x.line == line) {
-                return Err(ctx.err(
-                    n,
-                    &path,
-                    "this channel already has a CT fault",
-                    "give each channel one entry",
-                ));
-            }
-            f.ct.push(CtFault {
-                line,
-                gain,
-                phase_deg,
-                reversed,
-                on,
-            });
+            let ct = decode_ct_fault(ctx, n, &format!("faults.ct[{i}]"), supply, &f.ct)?;
+            f.ct.push(ct);
         }
     }
     if let Some(n) = t.opt("swap") {
-        let l = ctx.array(n, "faults.swap")?;
-        if l.len() != 2 {
-            return Err(ctx.err(
-                n,
-                "faults.swap",
-                "a swap names two lines",
-                "write swap = [\"L1\", \"L2\"]",
-            ));
-        }
-        let (a, b) = (
-            parse_line(ctx, &l[0], "faults.swap[0]", supply)?,
-            parse_line(ctx, &l[1], "faults.swap[1]", supply)?,
-        );
-        if a == b {
-            return Err(ctx.err(
-                n,
-                "faults.swap",
-                "a line cannot be swapped with itself",
-                "name two different lines",
-            ));
-        }
-        f.swap = Some((a.min(b), a.max(b)));
+        f.swap = Some(decode_swap(ctx, n, supply)?);
     }
     if let Some(n) = t.opt("no_ct") {
         f.no_ct = Some(parse_line(ctx, n, "faults.no_ct", supply)?);
     }
     if let Some(n) = t.opt("dropouts") {
-        let d = ctx.table(n, "faults.dropouts")?;
-        let rn = d.req("rate", "the share of intervals lost, e.g. \"1 %\"")?;
-        let rate = ctx.quantity(rn, "faults.dropouts.rate", Kind::Fraction)?;
-        if !(0.0..=0.5).contains(&rate) {
-            return Err(ctx.err(
-                rn,
-                "faults.dropouts.rate",
-                format!("a dropout rate of {} % is outside 0 … 50 %", rate * 100.0),
-                "write e.g. rate = \"1 %\"",
-            ));
-        }
-        let length = match d.opt("length") {
-            Some(n) => decode_dist(ctx, n, "faults.dropouts.length")?,
-            None => Dist::Fixed {
-                value_s: meter.interval_s,
-            },
-        };
-        let mode = match d.string("as")? {
-            None | Some("null") => DropMode::Null,
-            Some("missing") => DropMode::Missing,
-            Some(other) => {
-                return Err(ctx.err(
-                    d.opt("as").unwrap(),
-                    "faults.dropouts.as",
-                    format!("unknown dropout form \"{other}\""),
-                    "write as = \"null\" (rows kept, values null) or \"missing\" (rows absent)",
-                ))
-            }
-        };
-        d.finish()?;
-        f.dropouts = Some(Dropouts { rate, length, mode });
+        f.dropouts = Some(decode_dropouts(ctx, n, meter)?);
     }
     if let Some(n) = t.opt("clock") {
-        let c = ctx.table(n, "faults.clock")?;
-        f.clock_offset_s = c.quantity("offset", Kind::Duration)?.unwrap_or(0.0);
-        f.clock_drift = c.quantity("drift", Kind::Fraction)?.unwrap_or(0.0);
-        if f.clock_offset_s.abs() > 86400.0 || f.clock_drift.abs() > 0.01 {
-            return Err(ctx.err(n, "faults.clock", "a clock off by more than a day, or drifting by more than 1 %, is not a meter clock", "write e.g. clock = { offset = \"2.5 s\", drift = \"20 ppm\" }"));
-        }
-        c.finish()?;
+        (f.clock_offset_s, f.clock_drift) = decode_clock(ctx, n)?;
     }
     if let Some(n) = t.opt("register") {
-        f.register = match n.v {
-            Val::Bool(b) => b,
-            _ => {
-                return Err(ctx.err(
-                    n,
-                    "faults.register",
-                    "expected true or false",
-                    "write register = true",
-                ))
-            }
-        };
+        f.register = decode_bool(ctx, n, "faults.register", "write register = true")?;
     }
     t.finish()?;
     Ok(f)
+}
+
+/// A boolean key; anything else is an error with `fix`.
+fn decode_bool(ctx: &Reader, n: &Node, path: &str, fix: &str) -> Result<bool, Error> {
+    match n.v {
+        Val::Bool(b) => Ok(b),
+        _ => Err(ctx.err(n, path, "expected true or false", fix)),
+    }
+}
+
+/// One `[[faults.ct]]` entry; `earlier` are the entries before it (one per
+/// channel).
+fn decode_ct_fault(
+    ctx: &Reader,
+    n: &Node,
+    path: &str,
+    supply: SupplyKind,
+    earlier: &[CtFault],
+) -> Result<CtFault, Error> {
+    let c = ctx.table(n, path)?;
+    let line = parse_line(
+        ctx,
+        c.req("conductor", "the channel's line, e.g. \"L1\"")?,
+        &c.path_of("conductor"),
+        supply,
+    )?;
+    let (gain, phase_deg) = decode_ct_errors(ctx, &c)?;
+    let reversed = match c.opt("reversed") {
+        Some(n) => decode_bool(ctx, n, &c.path_of("reversed"), "write reversed = true")?,
+        None => false,
+    };
+    let on = match c.opt("on") {
+        Some(n) => {
+            let x = parse_line(ctx, n, &c.path_of("on"), supply)?;
+            if x == line {
+                return Err(ctx.err(
+                    n,
+                    &c.path_of("on"),
+                    "the CT is on its own conductor",
+                    "name another line, or leave `on` out",
+                ));
+            }
+            Some(x)
+        }
+        None => None,
+    };
+    c.finish()?;
+    if earlier.iter().any(|x| x.line == line) {
+        return Err(ctx.err(
+            n,
+            path,
+            "this channel already has a CT fault",
+            "give each channel one entry",
+        ));
+    }
+    Ok(CtFault {
+        line,
+        gain,
+        phase_deg,
+        reversed,
+        on,
+    })
+}
+
+/// A CT's gain error (a fraction) and phase error (deg), each 0 when not
+/// written.
+fn decode_ct_errors(ctx: &Reader, c: &TableReader) -> Result<(f64, f64), Error> {
+    let gain = c.quantity("gain", Kind::Fraction)?.unwrap_or(0.0);
+    if gain.abs() > 0.5 {
+        return Err(ctx.err(
+            c.opt("gain").unwrap(),
+            &c.path_of("gain"),
+            format!(
+                "a gain error of {:.0} % is not a CT that works",
+                gain * 100.0
+            ),
+            "write an error within ±50 %, e.g. gain = \"1.5 %\"",
+        ));
+    }
+    let phase_deg = c.quantity("phase", Kind::Angle)?.unwrap_or(0.0);
+    if phase_deg.abs() > 30.0 {
+        return Err(ctx.err(
+            c.opt("phase").unwrap(),
+            &c.path_of("phase"),
+            format!("a phase error of {phase_deg} deg is outside ±30 deg"),
+            "write e.g. phase = \"1.2 deg\"",
+        ));
+    }
+    Ok((gain, phase_deg))
+}
+
+/// `faults.swap`: two different lines, lower first.
+fn decode_swap(ctx: &Reader, n: &Node, supply: SupplyKind) -> Result<(usize, usize), Error> {
+    let l = ctx.array(n, "faults.swap")?;
+    if l.len() != 2 {
+        return Err(ctx.err(
+            n,
+            "faults.swap",
+            "a swap names two lines",
+            "write swap = [\"L1\", \"L2\"]",
+        ));
+    }
+    let (a, b) = (
+        parse_line(ctx, &l[0], "faults.swap[0]", supply)?,
+        parse_line(ctx, &l[1], "faults.swap[1]", supply)?,
+    );
+    if a == b {
+        return Err(ctx.err(
+            n,
+            "faults.swap",
+            "a line cannot be swapped with itself",
+            "name two different lines",
+        ));
+    }
+    Ok((a.min(b), a.max(b)))
+}
+
+/// `faults.dropouts`: a rate, a length (one meter interval unless written)
+/// and whether lost rows are kept as nulls.
+fn decode_dropouts(ctx: &Reader, n: &Node, meter: &Meter) -> Result<Dropouts, Error> {
+    let d = ctx.table(n, "faults.dropouts")?;
+    let rn = d.req("rate", "the share of intervals lost, e.g. \"1 %\"")?;
+    let rate = ctx.quantity(rn, "faults.dropouts.rate", Kind::Fraction)?;
+    if !(0.0..=0.5).contains(&rate) {
+        return Err(ctx.err(
+            rn,
+            "faults.dropouts.rate",
+            format!("a dropout rate of {} % is outside 0 … 50 %", rate * 100.0),
+            "write e.g. rate = \"1 %\"",
+        ));
+    }
+    let length = match d.opt("length") {
+        Some(n) => decode_dist(ctx, n, "faults.dropouts.length")?,
+        None => Dist::Fixed {
+            value_s: meter.interval_s,
+        },
+    };
+    let mode = match d.string("as")? {
+        None | Some("null") => DropMode::Null,
+        Some("missing") => DropMode::Missing,
+        Some(other) => {
+            return Err(ctx.err(
+                d.opt("as").unwrap(),
+                "faults.dropouts.as",
+                format!("unknown dropout form \"{other}\""),
+                "write as = \"null\" (rows kept, values null) or \"missing\" (rows absent)",
+            ))
+        }
+    };
+    d.finish()?;
+    Ok(Dropouts { rate, length, mode })
+}
+
+/// `faults.clock`: the meter clock's offset (s) and drift (a fraction).
+fn decode_clock(ctx: &Reader, n: &Node) -> Result<(f64, f64), Error> {
+    let c = ctx.table(n, "faults.clock")?;
+    let offset_s = c.quantity("offset", Kind::Duration)?.unwrap_or(0.0);
+    let drift = c.quantity("drift", Kind::Fraction)?.unwrap_or(0.0);
+    if offset_s.abs() > 86400.0 || drift.abs() > 0.01 {
+        return Err(ctx.err(
+            n,
+            "faults.clock",
+            "a clock off by more than a day, or drifting by more than 1 %, is not a meter clock",
+            "write e.g. clock = { offset = \"2.5 s\", drift = \"20 ppm\" }",
+        ));
+    }
+    c.finish()?;
+    Ok((offset_s, drift))
 }
 
 /// Ids that name a column of their own in the truth table (`time`,
