@@ -127,11 +127,30 @@ fn quantile(sorted: &[f64], q: f64) -> Option<f64> {
     })
 }
 
+/// Bootstrap deltas per row and metric: `samples[row][metric]`, where row
+/// `n_apps` (one past the last appliance) is the overall row.
+type Samples = Vec<Vec<Vec<f64>>>;
+
 /// Compares two reports over the same period and appliances.
 /// A mismatch is reported against `b`'s estimate file (the one compared
 /// against `a`).
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 pub fn compare(a: &Report, b: &Report, resamples: usize, seed: u64) -> Result<Comparison, Error> {
+    check_comparable(a, b)?;
+    let days = a.overall_acc.days.len().max(b.overall_acc.days.len());
+    let mut samples = bootstrap(a, b, days, resamples, seed);
+    let rows = diff_rows(a, b, &mut samples);
+    Ok(Comparison {
+        estimate: a.estimate.clone(),
+        against: b.estimate.clone(),
+        days,
+        resamples,
+        rows,
+    })
+}
+
+/// Refuses two reports that cover different periods or appliances, naming
+/// `b`'s estimate file.
+fn check_comparable(a: &Report, b: &Report) -> Result<(), Error> {
     let period = |r: &Report| {
         (
             r.plan.start_ms,
@@ -166,52 +185,69 @@ pub fn compare(a: &Report, b: &Report, resamples: usize, seed: u64) -> Result<Co
             "compare the same appliances (or use --partial on both)",
         ));
     }
-    let days = a.overall_acc.days.len().max(b.overall_acc.days.len());
+    Ok(())
+}
+
+/// Draws `resamples` paired resamples of `days` local days and records each
+/// score's delta (a minus b) per appliance and overall.
+fn bootstrap(a: &Report, b: &Report, days: usize, resamples: usize, seed: u64) -> Samples {
+    let n_apps = a.appliances.len();
+    let mut samples: Samples = vec![vec![Vec::with_capacity(resamples); METRICS.len()]; n_apps + 1];
+    let mut rng = SplitMix(seed);
+    let mut idx = vec![0usize; days];
+    for _ in 0..resamples {
+        idx.iter_mut().for_each(|i| *i = rng.below(days));
+        resample_once(a, b, &idx, &mut samples);
+    }
+    samples
+}
+
+/// Scores both reports on the days `idx` picks and appends the deltas.
+fn resample_once(a: &Report, b: &Report, idx: &[usize], samples: &mut Samples) {
     let (ia, ib) = (
         a.plan.interval_ms as f64 / 1000.0,
         b.plan.interval_ms as f64 / 1000.0,
     );
     let n_apps = a.appliances.len();
-    // samples[row][metric]: bootstrap deltas; row n_apps is overall.
-    let mut samples: Vec<Vec<Vec<f64>>> =
-        vec![vec![Vec::with_capacity(resamples); METRICS.len()]; n_apps + 1];
-    let mut rng = SplitMix(seed);
     let empty = crate::metrics::Sums::default();
-    let mut idx = vec![0usize; days];
-    for _ in 0..resamples {
-        idx.iter_mut().for_each(|i| *i = rng.below(days));
-        let pick = |acc: &crate::metrics::Acc| {
-            idx.iter()
-                .map(|&d| acc.days.get(d).copied().unwrap_or(empty))
-                .collect::<Vec<_>>()
-        };
-        let mut f1 = (0.0, 0.0);
-        let (mut pa, mut pb) = (
-            crate::metrics::Acc::default(),
-            crate::metrics::Acc::default(),
-        );
-        for k in 0..n_apps {
-            let (da, db) = (pick(&a.appliances[k].acc), pick(&b.appliances[k].acc));
-            let (sa, sb) = (scores_of(da.iter(), ia), scores_of(db.iter(), ib));
-            f1.0 += sa.f1;
-            f1.1 += sb.f1;
-            for (m, (name, _)) in METRICS.iter().enumerate() {
-                if let (Some(x), Some(y)) = (get(&sa, name), get(&sb, name)) {
-                    samples[k][m].push(x - y);
-                }
-            }
-            pa.days.extend(da);
-            pb.days.extend(db);
-        }
-        let (mut sa, mut sb) = (pa.scores(ia), pb.scores(ib));
-        sa.f1 = f1.0 / n_apps as f64;
-        sb.f1 = f1.1 / n_apps as f64;
-        for (m, (name, _)) in METRICS.iter().enumerate() {
-            if let (Some(x), Some(y)) = (get(&sa, name), get(&sb, name)) {
-                samples[n_apps][m].push(x - y);
-            }
+    let pick = |acc: &crate::metrics::Acc| {
+        idx.iter()
+            .map(|&d| acc.days.get(d).copied().unwrap_or(empty))
+            .collect::<Vec<_>>()
+    };
+    let mut f1 = (0.0, 0.0);
+    let (mut pa, mut pb) = (
+        crate::metrics::Acc::default(),
+        crate::metrics::Acc::default(),
+    );
+    for k in 0..n_apps {
+        let (da, db) = (pick(&a.appliances[k].acc), pick(&b.appliances[k].acc));
+        let (sa, sb) = (scores_of(da.iter(), ia), scores_of(db.iter(), ib));
+        f1.0 += sa.f1;
+        f1.1 += sb.f1;
+        push_deltas(&sa, &sb, &mut samples[k]);
+        pa.days.extend(da);
+        pb.days.extend(db);
+    }
+    let (mut sa, mut sb) = (pa.scores(ia), pb.scores(ib));
+    sa.f1 = f1.0 / n_apps as f64;
+    sb.f1 = f1.1 / n_apps as f64;
+    push_deltas(&sa, &sb, &mut samples[n_apps]);
+}
+
+/// Appends, per metric both scores define, the delta `sa - sb`.
+fn push_deltas(sa: &Scores, sb: &Scores, row: &mut [Vec<f64>]) {
+    for (m, (name, _)) in METRICS.iter().enumerate() {
+        if let (Some(x), Some(y)) = (get(sa, name), get(sb, name)) {
+            row[m].push(x - y);
         }
     }
+}
+
+/// One row per appliance and one overall: each metric's full-period delta
+/// with the 2.5 % and 97.5 % percentiles of its bootstrap deltas.
+fn diff_rows(a: &Report, b: &Report, samples: &mut Samples) -> Vec<(String, Vec<Diff>)> {
+    let n_apps = a.appliances.len();
     let mut rows = Vec::new();
     for k in 0..=n_apps {
         let (sa, sb, name) = if k < n_apps {
@@ -242,13 +278,7 @@ pub fn compare(a: &Report, b: &Report, resamples: usize, seed: u64) -> Result<Co
             .collect();
         rows.push((name, diffs));
     }
-    Ok(Comparison {
-        estimate: a.estimate.clone(),
-        against: b.estimate.clone(),
-        days,
-        resamples,
-        rows,
-    })
+    rows
 }
 
 fn num(x: Option<f64>) -> String {
