@@ -47,7 +47,6 @@ impl EstimateFile {
 
 /// Opens and checks an estimate against the dataset's appliances and time
 /// zone. With `partial`, appliances the estimate lacks are left out.
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<EstimateFile, TableError> {
     let mut h = header(path)?;
     // Times are instants: a Parquet timestamp in any zone (the home's, UTC,
@@ -66,10 +65,27 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
     if h.has("appliance") && h.has("p_w") {
         h = in_memory(long_to_wide(&read_table(path, None, &["appliance"])?, ds)?);
     }
-    let known = |id: &str| ds.appliances.iter().any(|a| a.id == id);
+    let mut apps = total_columns(&h, ds);
+    for (name, text) in &h.columns {
+        attach_column(path, ds, name, *text, &mut apps)?;
+    }
+    check_coverage(path, ds, partial, &apps)?;
+    Ok(EstimateFile { header: h, apps })
+}
+
+/// Whether `id` is one of the dataset's appliances.
+fn known(ds: &Dataset, id: &str) -> bool {
+    ds.appliances.iter().any(|a| a.id == id)
+}
+
+/// One entry per `{id}_p_w` column of a known appliance, in column order.
+fn total_columns(h: &Header, ds: &Dataset) -> Vec<AppColumns> {
     let mut apps: Vec<AppColumns> = Vec::new();
     for (name, _) in &h.columns {
-        if let Some(id) = name.strip_suffix(columns::P_SUFFIX).filter(|id| known(id)) {
+        if let Some(id) = name
+            .strip_suffix(columns::P_SUFFIX)
+            .filter(|id| known(ds, id))
+        {
             apps.push(AppColumns {
                 id: id.to_string(),
                 p: name.clone(),
@@ -78,62 +94,85 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
             });
         }
     }
-    for (name, text) in &h.columns {
-        if name.strip_suffix(columns::P_SUFFIX).is_some_and(known) {
-            if *text {
-                return Err(table_err(
-                    path,
-                    Some(name),
-                    None,
-                    "not a numeric column",
-                    "store powers as numbers in W",
-                ));
-            }
-            continue;
+    apps
+}
+
+/// Places one column: a total (must be numeric), a per-conductor or an
+/// on-state column of an appliance that has a total; anything else is refused.
+fn attach_column(
+    path: &Path,
+    ds: &Dataset,
+    name: &str,
+    text: bool,
+    apps: &mut [AppColumns],
+) -> Result<(), TableError> {
+    if name
+        .strip_suffix(columns::P_SUFFIX)
+        .is_some_and(|id| known(ds, id))
+    {
+        if text {
+            return Err(table_err(
+                path,
+                Some(name),
+                None,
+                "not a numeric column",
+                "store powers as numbers in W",
+            ));
         }
-        let per = name.strip_suffix(columns::P_SUFFIX).and_then(|stem| {
-            let (id, line) = stem.rsplit_once('_')?;
-            (known(id) && ds.lines.iter().any(|l| l == line))
-                .then(|| (id.to_string(), line.to_string()))
-        });
-        if let Some((id, line)) = per {
-            let Some(a) = apps.iter_mut().find(|a| a.id == id) else {
-                return Err(table_err(
-                    path,
-                    Some(name),
-                    None,
-                    format!("per-conductor column without `{id}_p_w`"),
-                    format!("add `{id}_p_w`, the appliance's total"),
-                ));
-            };
-            a.per_conductor.push((line, name.clone()));
-            continue;
-        }
-        if let Some(id) = name.strip_suffix("_on").filter(|id| known(id)) {
-            let Some(a) = apps.iter_mut().find(|a| a.id == id) else {
-                return Err(table_err(
-                    path,
-                    Some(name),
-                    None,
-                    format!("on-state column without `{id}_p_w`"),
-                    format!("add `{id}_p_w`"),
-                ));
-            };
-            a.on = Some(name.clone());
-            continue;
-        }
-        let ids: Vec<&str> = ds.appliances.iter().map(|a| a.id.as_str()).collect();
-        return Err(table_err(
-            path,
-            Some(name),
-            None,
-            format!("`{name}` is not an appliance column of this dataset"),
-            format!(
-                "columns are `{{id}}_p_w`, `{{id}}_on` or `{{id}}_{{conductor}}_p_w` with ids: {}",
-                ids.join(", ")
-            ),
-        ));
+        return Ok(());
     }
+    let per = name.strip_suffix(columns::P_SUFFIX).and_then(|stem| {
+        let (id, line) = stem.rsplit_once('_')?;
+        (known(ds, id) && ds.lines.iter().any(|l| l == line))
+            .then(|| (id.to_string(), line.to_string()))
+    });
+    if let Some((id, line)) = per {
+        let Some(a) = apps.iter_mut().find(|a| a.id == id) else {
+            return Err(table_err(
+                path,
+                Some(name),
+                None,
+                format!("per-conductor column without `{id}_p_w`"),
+                format!("add `{id}_p_w`, the appliance's total"),
+            ));
+        };
+        a.per_conductor.push((line, name.to_string()));
+        return Ok(());
+    }
+    if let Some(id) = name.strip_suffix("_on").filter(|id| known(ds, id)) {
+        let Some(a) = apps.iter_mut().find(|a| a.id == id) else {
+            return Err(table_err(
+                path,
+                Some(name),
+                None,
+                format!("on-state column without `{id}_p_w`"),
+                format!("add `{id}_p_w`"),
+            ));
+        };
+        a.on = Some(name.to_string());
+        return Ok(());
+    }
+    let ids: Vec<&str> = ds.appliances.iter().map(|a| a.id.as_str()).collect();
+    Err(table_err(
+        path,
+        Some(name),
+        None,
+        format!("`{name}` is not an appliance column of this dataset"),
+        format!(
+            "columns are `{{id}}_p_w`, `{{id}}_on` or `{{id}}_{{conductor}}_p_w` with ids: {}",
+            ids.join(", ")
+        ),
+    ))
+}
+
+/// Refuses an estimate with no appliance columns, or (unless `partial`) one
+/// that leaves out an appliance of the dataset.
+fn check_coverage(
+    path: &Path,
+    ds: &Dataset,
+    partial: bool,
+    apps: &[AppColumns],
+) -> Result<(), TableError> {
     if !partial {
         let missing: Vec<&str> = ds
             .appliances
@@ -154,7 +193,7 @@ pub fn open_estimate(path: &Path, ds: &Dataset, partial: bool) -> Result<Estimat
             "add `{id}_p_w` columns (W)",
         ));
     }
-    Ok(EstimateFile { header: h, apps })
+    Ok(())
 }
 
 /// What each streamed column must hold: appliance power finite and ≥ 0,
