@@ -5,10 +5,10 @@ use crate::align::{exact_cover, plan_from, Alignment, TimeScan};
 use crate::contract::columns;
 use crate::contract::SCORE_FORMAT;
 use crate::dataset::{Dataset, DatasetError};
-use crate::estimate::{open_estimate, rules, values_check};
+use crate::estimate::{open_estimate, rules, values_check, EstimateFile};
 use crate::metrics::{Acc, Scores};
 use crate::render::Render;
-use crate::stream::{header, read_ahead, Cursor};
+use crate::stream::{header, read_ahead, Cursor, Header};
 use crate::table::{table_err, TableError};
 use serde_json::{json, Value};
 use std::fmt;
@@ -218,11 +218,80 @@ const BLOCK: usize = 8192;
 /// fs::remove_dir_all(&dir)?;
 /// # Ok::<(), Box<dyn std::error::Error>>(())
 /// ```
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
 pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, ScoreError> {
     let ds = Dataset::open(dataset)?;
     ds.verify_truth()?;
     let ef = open_estimate(estimate, &ds, opts.partial)?;
+    let plan = align_estimate(estimate, &ef, &ds)?;
+
+    // Pass 2: truth and estimate side by side, block by block.
+    let th = header(&truth_path(&ds)?)?;
+    let tcols = truth_columns(estimate, &ef, &th)?;
+    let ecols = ef.columns();
+    let rules = rules(&ef);
+    let tstream = th.stream(&tcols)?;
+    let estream = ef.header.stream(&ecols)?;
+    let thresholds = thresholds(&ef, &ds, opts);
+    let (accs, cond_accs) = std::thread::scope(|scope| -> Result<_, ScoreError> {
+        let mut tc = Cursor::new(Box::new(read_ahead(scope, tstream)), Box::new(|_| Ok(())));
+        // The estimate is decoded on a thread of its own too: this one
+        // only checks values and sums errors.
+        let mut ec = Cursor::new(
+            Box::new(read_ahead(scope, estream)),
+            Box::new(|b| values_check(estimate, &ecols, &rules, b)),
+        );
+        tc.skip(plan.truth_first)?;
+        ec.skip(plan.est_first)?;
+        let widths = (tcols.len(), ecols.len());
+        sum_errors(
+            &mut tc,
+            &mut ec,
+            &plan,
+            &ds.timezone,
+            &ef,
+            &thresholds,
+            widths,
+        )
+    })?;
+
+    let interval_s = plan.interval_ms as f64 / 1000.0;
+    let mut overall_acc = Acc::default();
+    let mut reports = Vec::new();
+    for ((a, acc), conds) in ef.apps.iter().zip(accs).zip(&cond_accs) {
+        overall_acc.merge(&acc);
+        reports.push(ApplianceReport {
+            id: a.id.clone(),
+            threshold_w: thresholds[reports.len()],
+            scores: acc.scores(interval_s),
+            conductors: a
+                .per_conductor
+                .iter()
+                .zip(conds)
+                .map(|((l, _), acc)| (l.clone(), acc.scores(interval_s)))
+                .collect(),
+            acc,
+        });
+    }
+    let overall = overall_scores(&overall_acc, &reports, interval_s, plan.rows);
+    Ok(Report {
+        dataset: dataset.display().to_string(),
+        estimate: estimate.display().to_string(),
+        plan,
+        truth_rows: ds.rows as usize,
+        timezone: ds.timezone.clone(),
+        appliances: reports,
+        overall,
+        overall_acc,
+    })
+}
+
+/// Pass 1: reads the estimate's times, refuses one that does not cover
+/// exactly the dataset's rows, and plans how its rows meet truth's.
+fn align_estimate(
+    estimate: &Path,
+    ef: &EstimateFile,
+    ds: &Dataset,
+) -> Result<Alignment, ScoreError> {
     let dt = (ds.interval_s * 1000.0).round() as i64;
     let t0 = ds.manifest["time"]["start_utc_ms"]
         .as_i64()
@@ -231,8 +300,6 @@ pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, 
             message: "the manifest lacks time.start_utc_ms".into(),
             help: "rewrite the dataset with `loadloom run`".into(),
         })?;
-
-    // Pass 1: the estimate's times.
     let mut scan = TimeScan::default();
     let mut st = ef.header.stream(&[])?;
     while let Some(b) = st.next_batch()? {
@@ -251,7 +318,7 @@ pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, 
         ds.rows as usize,
         &ds.timezone,
     )?;
-    let plan = plan_from(
+    Ok(plan_from(
         estimate,
         scan.first,
         scan.spacing.unwrap_or(dt),
@@ -259,11 +326,16 @@ pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, 
         t0,
         dt,
         ds.rows as usize,
-    )?;
+    )?)
+}
 
-    // Pass 2: truth and estimate side by side, block by block.
-    let tpath = truth_path(&ds)?;
-    let th = header(&tpath)?;
+/// Truth's columns in the estimate's order: per appliance its total, then
+/// one per conductor the estimate gives (refused where truth has none).
+fn truth_columns(
+    estimate: &Path,
+    ef: &EstimateFile,
+    th: &Header,
+) -> Result<Vec<String>, ScoreError> {
     let mut tcols: Vec<String> = Vec::new();
     for a in &ef.apps {
         tcols.push(columns::p(&a.id));
@@ -282,108 +354,85 @@ pub fn score(dataset: &Path, estimate: &Path, opts: &Options) -> Result<Report, 
             tcols.push(name);
         }
     }
-    let ecols = ef.columns();
-    let rules = rules(&ef);
-    let tstream = th.stream(&tcols)?;
-    let estream = ef.header.stream(&ecols)?;
-    std::thread::scope(|scope| -> Result<Report, ScoreError> {
-        let mut tc = Cursor::new(Box::new(read_ahead(scope, tstream)), Box::new(|_| Ok(())));
-        // The estimate is decoded on a thread of its own too: this one
-        // only checks values and sums errors.
-        let mut ec = Cursor::new(
-            Box::new(read_ahead(scope, estream)),
-            Box::new(|b| values_check(estimate, &ecols, &rules, b)),
-        );
-        tc.skip(plan.truth_first)?;
-        ec.skip(plan.est_first)?;
+    Ok(tcols)
+}
 
-        let thresholds: Vec<f64> = ef
-            .apps
-            .iter()
-            .map(|a| {
-                opts.thresholds
-                    .iter()
-                    .find(|(id, _)| *id == a.id)
-                    .map(|t| t.1)
-                    .unwrap_or_else(|| {
-                        ds.appliances
-                            .iter()
-                            .find(|x| x.id == a.id)
-                            .map(|x| x.on_threshold_w)
-                            .unwrap_or(0.0)
-                    })
-            })
-            .collect();
-        let mut accs: Vec<Acc> = vec![Acc::default(); ef.apps.len()];
-        let mut cond_accs: Vec<Vec<Acc>> = ef
-            .apps
-            .iter()
-            .map(|a| vec![Acc::default(); a.per_conductor.len()])
-            .collect();
-        let mut days = Days::new(&plan, &ds.timezone);
-        let mut day = Vec::with_capacity(BLOCK);
-        let mut y: Vec<Vec<f64>> = vec![Vec::with_capacity(BLOCK); tcols.len()];
-        let mut yh: Vec<Vec<f64>> = vec![Vec::with_capacity(BLOCK); ecols.len()];
-        let (mut on_y, mut on_hat) = (Vec::with_capacity(BLOCK), Vec::with_capacity(BLOCK));
-        let mut done = 0;
-        while done < plan.rows {
-            let count = BLOCK.min(plan.rows - done);
-            y.iter_mut().chain(yh.iter_mut()).for_each(Vec::clear);
-            tc.means(plan.truth_per, count, &mut y)?;
-            ec.means(plan.est_per, count, &mut yh)?;
-            days.take(count, &mut day);
-            let (mut ti, mut ei) = (0, 0);
-            for (k, a) in ef.apps.iter().enumerate() {
-                let thr = thresholds[k];
-                on_y.clear();
-                on_y.extend(y[ti].iter().map(|v| *v > thr));
-                on_hat.clear();
-                match a.on {
-                    // An on-state column: on for the interval when on for most of it.
-                    Some(_) => on_hat.extend(yh[ei + 1].iter().map(|v| *v > 0.5)),
-                    None => on_hat.extend(yh[ei].iter().map(|v| *v > thr)),
-                }
-                accs[k].add(&y[ti], &yh[ei], Some((&on_y, &on_hat)), &day);
-                let e_cond = ei + 1 + a.on.is_some() as usize;
-                for c in 0..a.per_conductor.len() {
-                    cond_accs[k][c].add(&y[ti + 1 + c], &yh[e_cond + c], None, &day);
-                }
-                ti += 1 + a.per_conductor.len();
-                ei = e_cond + a.per_conductor.len();
-            }
-            done += count;
-        }
-
-        let interval_s = plan.interval_ms as f64 / 1000.0;
-        let mut overall_acc = Acc::default();
-        let mut reports = Vec::new();
-        for (k, a) in ef.apps.iter().enumerate() {
-            overall_acc.merge(&accs[k]);
-            reports.push(ApplianceReport {
-                id: a.id.clone(),
-                threshold_w: thresholds[k],
-                scores: accs[k].scores(interval_s),
-                conductors: a
-                    .per_conductor
-                    .iter()
-                    .zip(&cond_accs[k])
-                    .map(|((l, _), acc)| (l.clone(), acc.scores(interval_s)))
-                    .collect(),
-                acc: std::mem::take(&mut accs[k]),
-            });
-        }
-        let overall = overall_scores(&overall_acc, &reports, interval_s, plan.rows);
-        Ok(Report {
-            dataset: dataset.display().to_string(),
-            estimate: estimate.display().to_string(),
-            plan,
-            truth_rows: ds.rows as usize,
-            timezone: ds.timezone.clone(),
-            appliances: reports,
-            overall,
-            overall_acc,
+/// Each estimated appliance's on-threshold, W: the `--threshold` given, else
+/// the manifest's.
+fn thresholds(ef: &EstimateFile, ds: &Dataset, opts: &Options) -> Vec<f64> {
+    ef.apps
+        .iter()
+        .map(|a| {
+            opts.thresholds
+                .iter()
+                .find(|(id, _)| *id == a.id)
+                .map(|t| t.1)
+                .unwrap_or_else(|| {
+                    ds.appliances
+                        .iter()
+                        .find(|x| x.id == a.id)
+                        .map(|x| x.on_threshold_w)
+                        .unwrap_or(0.0)
+                })
         })
-    })
+        .collect()
+}
+
+/// Error sums per appliance and per (appliance, conductor).
+type ErrorSums = (Vec<Acc>, Vec<Vec<Acc>>);
+
+/// Streams both tables block by block over the plan's rows and sums each
+/// appliance's (and conductor's) errors per local day. `widths` are the
+/// numbers of truth and estimate columns.
+fn sum_errors(
+    tc: &mut Cursor<'_>,
+    ec: &mut Cursor<'_>,
+    plan: &Alignment,
+    timezone: &str,
+    ef: &EstimateFile,
+    thresholds: &[f64],
+    widths: (usize, usize),
+) -> Result<ErrorSums, ScoreError> {
+    let mut accs: Vec<Acc> = vec![Acc::default(); ef.apps.len()];
+    let mut cond_accs: Vec<Vec<Acc>> = ef
+        .apps
+        .iter()
+        .map(|a| vec![Acc::default(); a.per_conductor.len()])
+        .collect();
+    let mut days = Days::new(plan, timezone);
+    let mut day = Vec::with_capacity(BLOCK);
+    let mut y: Vec<Vec<f64>> = vec![Vec::with_capacity(BLOCK); widths.0];
+    let mut yh: Vec<Vec<f64>> = vec![Vec::with_capacity(BLOCK); widths.1];
+    let (mut on_y, mut on_hat) = (Vec::with_capacity(BLOCK), Vec::with_capacity(BLOCK));
+    let mut done = 0;
+    while done < plan.rows {
+        let count = BLOCK.min(plan.rows - done);
+        y.iter_mut().chain(yh.iter_mut()).for_each(Vec::clear);
+        tc.means(plan.truth_per, count, &mut y)?;
+        ec.means(plan.est_per, count, &mut yh)?;
+        days.take(count, &mut day);
+        let (mut ti, mut ei) = (0, 0);
+        for (k, a) in ef.apps.iter().enumerate() {
+            let thr = thresholds[k];
+            on_y.clear();
+            on_y.extend(y[ti].iter().map(|v| *v > thr));
+            on_hat.clear();
+            match a.on {
+                // An on-state column: on for the interval when on for most of it.
+                Some(_) => on_hat.extend(yh[ei + 1].iter().map(|v| *v > 0.5)),
+                None => on_hat.extend(yh[ei].iter().map(|v| *v > thr)),
+            }
+            accs[k].add(&y[ti], &yh[ei], Some((&on_y, &on_hat)), &day);
+            let e_cond = ei + 1 + a.on.is_some() as usize;
+            for c in 0..a.per_conductor.len() {
+                cond_accs[k][c].add(&y[ti + 1 + c], &yh[e_cond + c], None, &day);
+            }
+            ti += 1 + a.per_conductor.len();
+            ei = e_cond + a.per_conductor.len();
+        }
+        done += count;
+    }
+    Ok((accs, cond_accs))
 }
 
 /// Overall: errors and energies pooled over appliances and time; precision,
