@@ -17,6 +17,7 @@
 use super::states::{learn, Level};
 use super::Task;
 use crate::contract::columns;
+use crate::table::Table;
 use std::collections::HashMap;
 
 const BIN_W: f64 = 5.0;
@@ -131,8 +132,44 @@ impl Knapsack {
 
 type Estimate = (Vec<i64>, Vec<crate::taskio::EstimateColumn>);
 
-#[allow(clippy::too_many_lines, reason = "not split yet (issue 22)")]
+/// An appliance as learned from training: its id, the indices of the lines
+/// it draws from, and its levels with their split over those lines.
+type App = (String, Vec<usize>, Vec<Level>);
+
+/// A joint combination of the multi-line appliances: their levels, the
+/// power it puts on each line, and its log prior.
+type Combo = (Vec<usize>, Vec<f64>, f64);
+
+/// Level index per appliance and row (at most four levels: one byte).
+type LevelOf = Vec<Vec<u8>>;
+
+/// Learns each appliance's levels, solves every test row (per line when
+/// `per_conductor` and the meter reports the lines) and returns the
+/// estimate's times and columns.
 pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
+    let lines = &task.lines;
+    let apps = learn_apps(task)?;
+    // A meter that reports only the total (per-line readings all null):
+    // the per-line programme has nothing to fit, so it solves the total.
+    let per_conductor = per_conductor && meter_has_lines(task);
+    let meter_cols: Vec<String> = if per_conductor {
+        lines.iter().map(|l| columns::p(l)).collect()
+    } else {
+        vec![columns::TOTAL_P.into()]
+    };
+    let test = task.test_meters(&meter_cols)?;
+    let level_of = if per_conductor {
+        solve_per_line(&apps, lines.len(), &test, &meter_cols)?
+    } else {
+        solve_total(&apps, &test)?
+    };
+    let cols = estimate_columns(&apps, level_of, per_conductor, lines);
+    Ok((test.time_ms, cols))
+}
+
+/// Levels per appliance from the training truth, with their split over the
+/// lines each draws from.
+fn learn_apps(task: &Task) -> Result<Vec<App>, String> {
     let lines = &task.lines;
     let mut want: Vec<String> = task.ids.iter().map(|id| columns::p(id)).collect();
     for id in &task.ids {
@@ -141,8 +178,7 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
         }
     }
     let train = task.train_truth(&want)?;
-    // Levels per appliance, with their split over the lines they draw from.
-    let mut apps: Vec<(String, Vec<usize>, Vec<Level>)> = Vec::new();
+    let mut apps: Vec<App> = Vec::new();
     for id in &task.ids {
         let p = train
             .num(&columns::p(id))
@@ -160,132 +196,160 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
             .collect();
         apps.push((id.clone(), on, learn(p, &per)));
     }
-    // A meter that reports only the total (per-line readings all null):
-    // the per-line programme has nothing to fit, so it solves the total.
-    let line_cols: Vec<String> = lines.iter().map(|l| format!("{l}_p_w")).collect();
-    let per_conductor = per_conductor
-        && task.test_meters(&line_cols).is_ok_and(|t| {
-            line_cols
-                .iter()
-                .all(|c| t.num(c).is_some_and(|v| v.iter().any(|x| !x.is_nan())))
-        });
-    let meter_cols: Vec<String> = if per_conductor {
-        lines.iter().map(|l| columns::p(l)).collect()
-    } else {
-        vec![columns::TOTAL_P.into()]
-    };
-    let test = task.test_meters(&meter_cols)?;
-    let n = test.time_ms.len();
-    // Level index per appliance and row (at most four levels: one byte).
-    let mut level_of: Vec<Vec<u8>> = vec![vec![0; n]; apps.len()];
+    Ok(apps)
+}
 
-    if !per_conductor {
-        let ks = Knapsack::new(
-            &apps
-                .iter()
-                .map(|a| a.2.iter().map(|l| l.p_w).collect())
-                .collect::<Vec<_>>(),
-            &apps
-                .iter()
-                .map(|a| a.2.iter().map(|l| l.prior).collect())
-                .collect::<Vec<_>>(),
-        );
-        let total = test
-            .num(columns::TOTAL_P)
-            .ok_or("the test meters lack total_p_w")?;
-        let mut lv = vec![0; apps.len()];
-        for t in 0..n {
-            ks.levels(ks.look(total[t]).0, &mut lv);
-            for (k, l) in lv.iter().enumerate() {
-                level_of[k][t] = *l as u8;
-            }
-        }
-    } else {
-        // One programme per line over the appliances on that line only.
-        let single: Vec<Vec<usize>> = (0..lines.len())
-            .map(|x| (0..apps.len()).filter(|&k| apps[k].1 == [x]).collect())
-            .collect();
-        let multi: Vec<usize> = (0..apps.len()).filter(|&k| apps[k].1.len() != 1).collect();
-        let ks: Vec<Knapsack> = single
+/// Whether the test meter reports every line with at least one reading.
+fn meter_has_lines(task: &Task) -> bool {
+    let line_cols: Vec<String> = task.lines.iter().map(|l| format!("{l}_p_w")).collect();
+    task.test_meters(&line_cols).is_ok_and(|t| {
+        line_cols
             .iter()
-            .map(|group| {
-                Knapsack::new(
-                    &group
-                        .iter()
-                        .map(|&k| apps[k].2.iter().map(|l| l.split[0]).collect())
-                        .collect::<Vec<_>>(),
-                    &group
-                        .iter()
-                        .map(|&k| apps[k].2.iter().map(|l| l.prior).collect())
-                        .collect::<Vec<_>>(),
-                )
-            })
-            .collect();
-        // Joint combinations of the multi-line appliances, most probable first.
-        let mut combos: Vec<(Vec<usize>, Vec<f64>, f64)> =
-            vec![(vec![], vec![0.0; lines.len()], 0.0)];
-        for &k in &multi {
-            let mut next = Vec::new();
-            for (ls, v, lp) in &combos {
-                for (l, lev) in apps[k].2.iter().enumerate() {
-                    let mut v2 = v.clone();
-                    for (j, &x) in apps[k].1.iter().enumerate() {
-                        v2[x] += lev.split[j];
-                    }
-                    let mut ls2 = ls.clone();
-                    ls2.push(l);
-                    next.push((ls2, v2, lp + lev.prior.ln()));
-                }
-            }
-            next.sort_by(|a, b| b.2.partial_cmp(&a.2).unwrap());
-            next.truncate(4096);
-            combos = next;
-        }
-        let meas: Vec<&[f64]> = meter_cols
+            .all(|c| t.num(c).is_some_and(|v| v.iter().any(|x| !x.is_nan())))
+    })
+}
+
+/// One programme over all appliances, solving the measured total.
+fn solve_total(apps: &[App], test: &Table) -> Result<LevelOf, String> {
+    let n = test.time_ms.len();
+    let mut level_of: LevelOf = vec![vec![0; n]; apps.len()];
+    let ks = Knapsack::new(
+        &apps
             .iter()
-            .map(|c| {
-                test.num(c)
-                    .ok_or_else(|| format!("the test meters lack {c}"))
-            })
-            .collect::<Result<_, _>>()?;
-        let mut cache: HashMap<Vec<i64>, (usize, Vec<u32>)> = HashMap::new();
-        for t in 0..n {
-            let key: Vec<i64> = meas.iter().map(|m| (m[t] / BIN_W).round() as i64).collect();
-            let (ci, targets) = cache
-                .entry(key)
-                .or_insert_with_key(|key| {
-                    let mut best = (0usize, f64::INFINITY, vec![0u32; lines.len()]);
-                    let mut tg = vec![0u32; lines.len()];
-                    for (ci, (_, v, lp)) in combos.iter().enumerate() {
-                        let mut cost = -PRIOR_W * lp;
-                        for x in 0..lines.len() {
-                            let (b, c) = ks[x].look(key[x] as f64 * BIN_W - v[x]);
-                            tg[x] = b;
-                            cost += c;
-                            if cost >= best.1 {
-                                break;
-                            }
-                        }
-                        if cost < best.1 {
-                            best = (ci, cost, tg.clone());
-                        }
-                    }
-                    (best.0, best.2)
-                })
-                .clone();
-            for (j, &k) in multi.iter().enumerate() {
-                level_of[k][t] = combos[ci].0[j] as u8;
-            }
-            for x in 0..lines.len() {
-                let mut out = vec![0; single[x].len()];
-                ks[x].levels(targets[x], &mut out);
-                for (j, &k) in single[x].iter().enumerate() {
-                    level_of[k][t] = out[j] as u8;
-                }
+            .map(|a| a.2.iter().map(|l| l.p_w).collect())
+            .collect::<Vec<_>>(),
+        &apps
+            .iter()
+            .map(|a| a.2.iter().map(|l| l.prior).collect())
+            .collect::<Vec<_>>(),
+    );
+    let total = test
+        .num(columns::TOTAL_P)
+        .ok_or("the test meters lack total_p_w")?;
+    let mut lv = vec![0; apps.len()];
+    for t in 0..n {
+        ks.levels(ks.look(total[t]).0, &mut lv);
+        for (k, l) in lv.iter().enumerate() {
+            level_of[k][t] = *l as u8;
+        }
+    }
+    Ok(level_of)
+}
+
+/// One programme per line over the appliances on that line only; the
+/// multi-line appliances enumerated jointly, each combination scored by the
+/// per-line look-ups of what it leaves.
+fn solve_per_line(
+    apps: &[App],
+    n_lines: usize,
+    test: &Table,
+    meter_cols: &[String],
+) -> Result<LevelOf, String> {
+    let n = test.time_ms.len();
+    let mut level_of: LevelOf = vec![vec![0; n]; apps.len()];
+    let single: Vec<Vec<usize>> = (0..n_lines)
+        .map(|x| (0..apps.len()).filter(|&k| apps[k].1 == [x]).collect())
+        .collect();
+    let multi: Vec<usize> = (0..apps.len()).filter(|&k| apps[k].1.len() != 1).collect();
+    let ks: Vec<Knapsack> = single
+        .iter()
+        .map(|group| {
+            Knapsack::new(
+                &group
+                    .iter()
+                    .map(|&k| apps[k].2.iter().map(|l| l.split[0]).collect())
+                    .collect::<Vec<_>>(),
+                &group
+                    .iter()
+                    .map(|&k| apps[k].2.iter().map(|l| l.prior).collect())
+                    .collect::<Vec<_>>(),
+            )
+        })
+        .collect();
+    let combos = joint_combos(apps, &multi, n_lines);
+    let meas: Vec<&[f64]> = meter_cols
+        .iter()
+        .map(|c| {
+            test.num(c)
+                .ok_or_else(|| format!("the test meters lack {c}"))
+        })
+        .collect::<Result<_, _>>()?;
+    let mut cache: HashMap<Vec<i64>, (usize, Vec<u32>)> = HashMap::new();
+    for t in 0..n {
+        let key: Vec<i64> = meas.iter().map(|m| (m[t] / BIN_W).round() as i64).collect();
+        let (ci, targets) = cache
+            .entry(key)
+            .or_insert_with_key(|key| best_combo(&combos, &ks, key))
+            .clone();
+        for (j, &k) in multi.iter().enumerate() {
+            level_of[k][t] = combos[ci].0[j] as u8;
+        }
+        for x in 0..n_lines {
+            let mut out = vec![0; single[x].len()];
+            ks[x].levels(targets[x], &mut out);
+            for (j, &k) in single[x].iter().enumerate() {
+                level_of[k][t] = out[j] as u8;
             }
         }
     }
+    Ok(level_of)
+}
 
+/// Joint combinations of the multi-line appliances, most probable first
+/// (at most 4096).
+fn joint_combos(apps: &[App], multi: &[usize], n_lines: usize) -> Vec<Combo> {
+    let mut combos: Vec<Combo> = vec![(vec![], vec![0.0; n_lines], 0.0)];
+    for &k in multi {
+        let mut next = Vec::new();
+        for (ls, v, lp) in &combos {
+            for (l, lev) in apps[k].2.iter().enumerate() {
+                let mut v2 = v.clone();
+                for (j, &x) in apps[k].1.iter().enumerate() {
+                    v2[x] += lev.split[j];
+                }
+                let mut ls2 = ls.clone();
+                ls2.push(l);
+                next.push((ls2, v2, lp + lev.prior.ln()));
+            }
+        }
+        next.sort_by(|a, b| b.2.partial_cmp(&a.2).unwrap());
+        next.truncate(4096);
+        combos = next;
+    }
+    combos
+}
+
+/// For binned per-line measurements `key`: the cheapest combination's
+/// index and the target bin of each line's programme for what it leaves.
+fn best_combo(combos: &[Combo], ks: &[Knapsack], key: &[i64]) -> (usize, Vec<u32>) {
+    let n_lines = ks.len();
+    let mut best = (0usize, f64::INFINITY, vec![0u32; n_lines]);
+    let mut tg = vec![0u32; n_lines];
+    for (ci, (_, v, lp)) in combos.iter().enumerate() {
+        let mut cost = -PRIOR_W * lp;
+        for x in 0..n_lines {
+            let (b, c) = ks[x].look(key[x] as f64 * BIN_W - v[x]);
+            tg[x] = b;
+            cost += c;
+            if cost >= best.1 {
+                break;
+            }
+        }
+        if cost < best.1 {
+            best = (ci, cost, tg.clone());
+        }
+    }
+    (best.0, best.2)
+}
+
+/// The estimate's columns: each appliance's power at its level per row and,
+/// when solved per line, its split on each line it draws from.
+fn estimate_columns(
+    apps: &[App],
+    level_of: LevelOf,
+    per_conductor: bool,
+    lines: &[String],
+) -> Vec<crate::taskio::EstimateColumn> {
     let mut cols: Vec<crate::taskio::EstimateColumn> = Vec::new();
     for ((id, on, levels), lv) in apps.iter().zip(level_of) {
         let lv = std::rc::Rc::new(lv);
@@ -303,5 +367,5 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
             }
         }
     }
-    Ok((test.time_ms, cols))
+    cols
 }
