@@ -993,22 +993,15 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     check_with(d, events, stats, interval_s, &Thresholds::STANDARD)
 }
 
-/// Metering, placement and undeclared loads, from the steps `events` and
-/// channel statistics of a meters table at `interval_s`, against
-/// declaration `d`, deciding by the cut-offs `th`.
-#[allow(
-    clippy::too_many_lines,
-    reason = "the three stages are called in order here; they get files of their own next"
-)]
-pub fn check_with(
+/// Channels that read nothing: a finding of a missing CT, or a note where
+/// every appliance declared through the line shows on another connection.
+fn channel_findings(
     d: &Declared,
     events: &[Event],
     stats: &[ChannelStats],
-    interval_s: f64,
     th: &Thresholds,
-) -> Outcome {
+) -> (Vec<Finding>, Vec<String>) {
     let n = d.supply.lines();
-    let absent = absent_channels(d, stats);
     let mut findings = Vec::new();
     let mut notes = Vec::new();
     for c in 0..n {
@@ -1037,35 +1030,31 @@ pub fn check_with(
             });
         }
     }
-    let absent: Vec<bool> = (0..n)
-        .map(|c| absent[c] || findings.iter().any(|f| f.subject == line_name(c)))
-        .collect();
-    let big: Vec<&Event> = events.iter().filter(|e| e.size() >= 150.0).collect();
-    // 1. Metering.
-    let decl_m = declared_metering(d, &absent);
-    let hyps = hypotheses(d, &absent);
-    // (index, appliances fitted, steps explained, negative share, cost)
-    let scored: Vec<(usize, usize, usize, f64, usize)> = hyps
-        .iter()
-        .enumerate()
-        .map(|(i, (m, cost))| {
-            let neg = negative_share(m, stats);
-            let (apps, ex) = if neg <= th.negative_ok {
-                explained(d, m, &big)
-            } else {
-                (0, 0)
-            };
-            (i, apps, ex, neg, *cost)
-        })
-        .collect();
-    let decl_i = hyps.iter().position(|(m, _)| *m == decl_m).unwrap_or(0);
-    let ok = |s: &&(usize, usize, usize, f64, usize)| s.3 <= th.negative_ok;
-    let (decl_apps, decl_ex, decl_neg) = (scored[decl_i].1, scored[decl_i].2, scored[decl_i].3);
-    // The declared metering stands while it is admissible and explains at
-    // least 90 % of the steps the best admissible one explains; otherwise
-    // the cheapest admissible hypothesis within 95 % of the best.
+    (findings, notes)
+}
+
+/// A metering hypothesis as scored: (index, appliances fitted, steps
+/// explained, negative share, cost).
+type Scored = (usize, usize, usize, f64, usize);
+
+/// The metering hypotheses, each scored, the declared one's index and the
+/// one chosen.
+struct MeteringChoice {
+    hyps: Vec<(Metering, usize)>,
+    scored: Vec<Scored>,
+    decl_m: Metering,
+    decl_i: usize,
+    chosen: usize,
+}
+
+/// The declared metering while it is admissible and explains at least
+/// 90 % of the steps the best admissible one explains; otherwise the
+/// cheapest admissible hypothesis within 95 % of the best.
+fn best_admissible(scored: &[Scored], decl_i: usize, th: &Thresholds) -> usize {
+    let ok = |s: &&Scored| s.3 <= th.negative_ok;
+    let (decl_ex, decl_neg) = (scored[decl_i].2, scored[decl_i].3);
     let best_ex = scored.iter().filter(ok).map(|s| s.2).max().unwrap_or(0);
-    let chosen = if decl_neg <= th.negative_ok && decl_ex as f64 >= 0.9 * best_ex as f64 {
+    if decl_neg <= th.negative_ok && decl_ex as f64 >= 0.9 * best_ex as f64 {
         decl_i
     } else {
         scored
@@ -1075,90 +1064,123 @@ pub fn check_with(
             .min_by_key(|s| (s.4, usize::MAX - s.2))
             .map(|s| s.0)
             .unwrap_or(decl_i)
-    };
+    }
+}
+
+/// The most of `big` the declared metering explains with at most one
+/// appliance moved to another connection (`decl_ex` with none moved).
+fn most_with_one_move(d: &Declared, decl_m: &Metering, big: &[&Event], decl_ex: usize) -> usize {
+    // The other appliances' fits stay as they are while one is moved.
+    let fits: Vec<Fits> = d
+        .appliances
+        .iter()
+        .map(|a| fits_of(d, decl_m, a, big))
+        .collect();
+    let mut most = decl_ex;
+    for (j, a) in d.appliances.iter().enumerate() {
+        for (_, alt) in alternatives(d, a) {
+            let moved = fits_of(d, decl_m, &alt, big);
+            let others = fits
+                .iter()
+                .enumerate()
+                .filter(|(o, _)| *o != j)
+                .map(|(_, f)| f);
+            most = most.max(steps_explained(others.chain([&moved]), big.len()));
+        }
+    }
+    most
+}
+
+/// Scores every metering hypothesis on the steps `big` and chooses one.
+fn choose_metering(
+    d: &Declared,
+    stats: &[ChannelStats],
+    absent: &[bool],
+    big: &[&Event],
+    th: &Thresholds,
+) -> MeteringChoice {
+    let decl_m = declared_metering(d, absent);
+    let hyps = hypotheses(d, absent);
+    let scored: Vec<Scored> = hyps
+        .iter()
+        .enumerate()
+        .map(|(i, (m, cost))| {
+            let neg = negative_share(m, stats);
+            let (apps, ex) = if neg <= th.negative_ok {
+                explained(d, m, big)
+            } else {
+                (0, 0)
+            };
+            (i, apps, ex, neg, *cost)
+        })
+        .collect();
+    let decl_i = hyps.iter().position(|(m, _)| *m == decl_m).unwrap_or(0);
+    let chosen = best_admissible(&scored, decl_i, th);
+    let (decl_ex, decl_neg) = (scored[decl_i].2, scored[decl_i].3);
     // One appliance on another connection is a simpler mistake than a
     // metering fault: the declared metering stands when, with the one
     // appliance moved that helps most, it explains as many steps as the
     // metering chosen above. (A misdeclared appliance that switches often
     // can otherwise tip the choice; a lower bar, 90 %, kept the declared
     // metering where two channels were in fact exchanged.)
-    let mut chosen = if chosen != decl_i && decl_neg <= th.negative_ok {
-        // The other appliances' fits stay as they are while one is moved.
-        let fits: Vec<Fits> = d
-            .appliances
-            .iter()
-            .map(|a| fits_of(d, &decl_m, a, &big))
-            .collect();
-        let mut most = decl_ex;
-        for (j, a) in d.appliances.iter().enumerate() {
-            for (_, alt) in alternatives(d, a) {
-                let moved = fits_of(d, &decl_m, &alt, &big);
-                let others = fits
-                    .iter()
-                    .enumerate()
-                    .filter(|(o, _)| *o != j)
-                    .map(|(_, f)| f);
-                most = most.max(steps_explained(others.chain([&moved]), big.len()));
-            }
-        }
-        if most >= scored[chosen].2 {
-            decl_i
-        } else {
-            chosen
-        }
+    let chosen = if chosen != decl_i
+        && decl_neg <= th.negative_ok
+        && most_with_one_move(d, &decl_m, big, decl_ex) >= scored[chosen].2
+    {
+        decl_i
     } else {
         chosen
     };
-    // 2. Appliances, under the metering chosen; several appliances moved
-    // where one metering fault explains as much is the less simple account.
-    let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
-    let mut m = hyps[chosen].0.clone();
-    let mut cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
-    let mut moves = Vec::new();
-    let (mut checks, mut placed) = place(d, &m, &used, &cxs, interval_s, &mut moves, th);
-    let mut replaced = 0;
-    if chosen == decl_i && moves.len() >= 2 {
-        if let Some(alt) = simpler_metering(d, &decl_m, &placed, &big, &scored, decl_i, th) {
-            (chosen, replaced) = (alt, moves.len());
-            m = hyps[chosen].0.clone();
-            cxs = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
-            moves.clear();
-            (checks, placed) = place(d, &m, &used, &cxs, interval_s, &mut moves, th);
-        }
+    MeteringChoice {
+        hyps,
+        scored,
+        decl_m,
+        decl_i,
+        chosen,
     }
-    let (ch_apps, ch_ex) = (scored[chosen].1, scored[chosen].2);
-    if chosen != decl_i {
-        // The share of the steps the declared metering leaves unexplained
-        // that the metering found explains, of the appliances only it fits,
-        // of the appliance moves it replaces, or of negative power the
-        // declared one implies: whichever says most.
-        let by_apps = 1.0 - (decl_apps as f64 + 1.0) / (ch_apps as f64 + 1.0);
-        let by_steps = ch_ex.saturating_sub(decl_ex) as f64
-            / (big.len().saturating_sub(decl_ex) as f64).max(1.0);
-        let by_moves = if replaced > 0 {
-            1.0 - 1.0 / replaced as f64
-        } else {
-            0.0
-        };
-        let mut conf = by_apps.max(by_steps).max(by_moves);
-        if decl_neg > th.negative_ok {
-            conf = conf.max(decl_neg);
-        }
-        let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg, "appliance_moves_replaced": replaced });
-        metering_findings(d, &decl_m, &m, conf.clamp(0.0, 1.0), ev, &mut findings);
-        silent_channel_accounts(&m, &mut findings, &mut notes);
+}
+
+/// The confidence that the metering found (`ch`) and not the declared one
+/// (`decl`) is right: the share of the `n_big` steps the declared metering
+/// leaves unexplained that the metering found explains, of the appliances
+/// only it fits, of the `replaced` appliance moves it replaces, or of
+/// negative power the declared one implies: whichever says most.
+fn metering_confidence(
+    decl: &Scored,
+    ch: &Scored,
+    n_big: usize,
+    replaced: usize,
+    th: &Thresholds,
+) -> f64 {
+    let (decl_apps, decl_ex, decl_neg) = (decl.1, decl.2, decl.3);
+    let (ch_apps, ch_ex) = (ch.1, ch.2);
+    let by_apps = 1.0 - (decl_apps as f64 + 1.0) / (ch_apps as f64 + 1.0);
+    let by_steps =
+        ch_ex.saturating_sub(decl_ex) as f64 / (n_big.saturating_sub(decl_ex) as f64).max(1.0);
+    let by_moves = if replaced > 0 {
+        1.0 - 1.0 / replaced as f64
+    } else {
+        0.0
+    };
+    let mut conf = by_apps.max(by_steps).max(by_moves);
+    if decl_neg > th.negative_ok {
+        conf = conf.max(decl_neg);
     }
-    findings.extend(moves);
-    notes.push(format!("metering: {ch_apps} appliances and {ch_ex} of {} steps of 150 VA or more fit under the metering found ({decl_apps} and {decl_ex} as declared)", big.len()));
-    for j in 0..d.appliances.len() {
-        if let Some(o) = indistinct(d, j) {
-            notes.push(format!("{}: its steps of 500 W or more are those of {o} as well; the data cannot tell the two apart", d.appliances[j].id));
-        }
-    }
-    // 3. Undeclared recurring loads.
-    let explain: Vec<Pred> = placed.iter().map(|a| Pred::of(d, &m, a)).collect();
-    let own: Vec<Option<Vec<Option<C64>>>> = placed.iter().map(|a| shape_of(d, &m, a)).collect();
-    let dj = distances(d, &m, &used, &cxs, &explain, &own, interval_s);
+    conf.clamp(0.0, 1.0)
+}
+
+/// Which of the steps `used` an appliance as placed explains.
+fn steps_fit(
+    d: &Declared,
+    m: &Metering,
+    used: &[&Event],
+    cxs: &[Ctx],
+    placed: &[DeclAppliance],
+    interval_s: f64,
+) -> Vec<bool> {
+    let explain: Vec<Pred> = placed.iter().map(|a| Pred::of(d, m, a)).collect();
+    let own: Vec<Option<Vec<Option<C64>>>> = placed.iter().map(|a| shape_of(d, m, a)).collect();
+    let dj = distances(d, m, used, cxs, &explain, &own, interval_s);
     let mut fit: Vec<bool> = dj.iter().map(|r| r.iter().any(|x| *x <= 1.0)).collect();
     // A step whose part on the channels it mainly changes (a quarter of its
     // largest or more) fits a declared appliance, the rest being a smaller
@@ -1177,9 +1199,19 @@ pub fn check_with(
                 minor = true;
             }
         }
-        fit[k] = minor && explain.iter().any(|p| p.dist(d, &m, &main, &cxs[k]) <= 1.0);
+        fit[k] = minor && explain.iter().any(|p| p.dist(d, m, &main, &cxs[k]) <= 1.0);
     }
-    let total_wh: f64 = stats
+    fit
+}
+
+/// The energy the working channels read under the metering `m`, in Wh.
+fn metered_energy_wh(
+    stats: &[ChannelStats],
+    absent: &[bool],
+    m: &Metering,
+    interval_s: f64,
+) -> f64 {
+    stats
         .iter()
         .enumerate()
         .filter(|(c, _)| !absent[*c])
@@ -1188,17 +1220,26 @@ pub fn check_with(
         .map(|(c, s)| m.map[c].k * s.sum_p)
         .sum::<f64>()
         * interval_s
-        / 3600.0;
-    let hours = stats.iter().map(|s| s.rows).max().unwrap_or(0) as f64 * interval_s / 3600.0;
-    let sums = coincidences(d, &m, &placed, &used, interval_s, hours);
-    undeclared(d, &m, &used, &fit, &sums, total_wh, &mut findings, th);
-    let steps_explained = fit.iter().filter(|x| **x).count();
+        / 3600.0
+}
+
+/// The findings, with their doubts, sorted into those listed, those
+/// listed as possible, and undeclared loads a partial declaration leaves
+/// unlisted.
+fn sort_findings(
+    d: &Declared,
+    mut findings: Vec<Finding>,
+    placed: &[DeclAppliance],
+    checks: &[ApplianceCheck],
+    interval_s: f64,
+    th: &Thresholds,
+) -> (Vec<Finding>, Vec<Finding>, Vec<Finding>) {
     for f in findings.iter_mut() {
         f.doubt = f
             .doubt
             .take()
             .or_else(|| coarse_doubt(f.kind, interval_s, th))
-            .or_else(|| undeclared_doubt(d, &placed, &checks, f));
+            .or_else(|| undeclared_doubt(d, placed, checks, f));
     }
     let (findings, possible): (Vec<Finding>, Vec<Finding>) = findings
         .into_iter()
@@ -1206,6 +1247,87 @@ pub fn check_with(
     let (unlisted, findings) = findings
         .into_iter()
         .partition(|f| d.partial && f.kind == Kind::UndeclaredLoad);
+    (findings, possible, unlisted)
+}
+
+/// A note for each appliance whose large steps are another's as well.
+fn indistinct_notes(d: &Declared) -> Vec<String> {
+    (0..d.appliances.len())
+        .filter_map(|j| {
+            indistinct(d, j).map(|o| {
+                format!("{}: its steps of 500 W or more are those of {o} as well; the data cannot tell the two apart", d.appliances[j].id)
+            })
+        })
+        .collect()
+}
+
+/// Metering, placement and undeclared loads, from the steps `events` and
+/// channel statistics of a meters table at `interval_s`, against
+/// declaration `d`, deciding by the cut-offs `th`.
+pub fn check_with(
+    d: &Declared,
+    events: &[Event],
+    stats: &[ChannelStats],
+    interval_s: f64,
+    th: &Thresholds,
+) -> Outcome {
+    let n = d.supply.lines();
+    let absent = absent_channels(d, stats);
+    let (mut findings, mut notes) = channel_findings(d, events, stats, th);
+    let absent: Vec<bool> = (0..n)
+        .map(|c| absent[c] || findings.iter().any(|f| f.subject == line_name(c)))
+        .collect();
+    let big: Vec<&Event> = events.iter().filter(|e| e.size() >= 150.0).collect();
+    // 1. Metering.
+    let mc = choose_metering(d, stats, &absent, &big, th);
+    let (decl_i, mut chosen) = (mc.decl_i, mc.chosen);
+    let (decl_apps, decl_ex, decl_neg) = (
+        mc.scored[decl_i].1,
+        mc.scored[decl_i].2,
+        mc.scored[decl_i].3,
+    );
+    // 2. Appliances, under the metering chosen; several appliances moved
+    // where one metering fault explains as much is the less simple account.
+    let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
+    let mut m = mc.hyps[chosen].0.clone();
+    let mut cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
+    let mut moves = Vec::new();
+    let (mut checks, mut placed) = place(d, &m, &used, &cxs, interval_s, &mut moves, th);
+    let mut replaced = 0;
+    if chosen == decl_i && moves.len() >= 2 {
+        if let Some(alt) = simpler_metering(d, &mc.decl_m, &placed, &big, &mc.scored, decl_i, th) {
+            (chosen, replaced) = (alt, moves.len());
+            m = mc.hyps[chosen].0.clone();
+            cxs = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
+            moves.clear();
+            (checks, placed) = place(d, &m, &used, &cxs, interval_s, &mut moves, th);
+        }
+    }
+    let (ch_apps, ch_ex) = (mc.scored[chosen].1, mc.scored[chosen].2);
+    if chosen != decl_i {
+        let conf = metering_confidence(
+            &mc.scored[decl_i],
+            &mc.scored[chosen],
+            big.len(),
+            replaced,
+            th,
+        );
+        let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg, "appliance_moves_replaced": replaced });
+        metering_findings(d, &mc.decl_m, &m, conf, ev, &mut findings);
+        silent_channel_accounts(&m, &mut findings, &mut notes);
+    }
+    findings.extend(moves);
+    notes.push(format!("metering: {ch_apps} appliances and {ch_ex} of {} steps of 150 VA or more fit under the metering found ({decl_apps} and {decl_ex} as declared)", big.len()));
+    notes.extend(indistinct_notes(d));
+    // 3. Undeclared recurring loads.
+    let fit = steps_fit(d, &m, &used, &cxs, &placed, interval_s);
+    let total_wh = metered_energy_wh(stats, &absent, &m, interval_s);
+    let hours = stats.iter().map(|s| s.rows).max().unwrap_or(0) as f64 * interval_s / 3600.0;
+    let sums = coincidences(d, &m, &placed, &used, interval_s, hours);
+    undeclared(d, &m, &used, &fit, &sums, total_wh, &mut findings, th);
+    let steps_explained = fit.iter().filter(|x| **x).count();
+    let (findings, possible, unlisted) =
+        sort_findings(d, findings, &placed, &checks, interval_s, th);
     if steps_explained * 2 < used.len() {
         notes.push(format!("the declaration explains {steps_explained} of {} steps of 100 VA or more: many loads are not declared{}", used.len(), if d.partial { " (it says it is partial); the metering and placement checks rest on the declared appliances alone" } else { "; if it lists only some appliances, say so with [declaration] partial = true" }));
     }
