@@ -11,7 +11,7 @@
 //! each page compressed with zstd like the other columns. A state holds for
 //! many rows, so runs are long.
 
-use super::float_column::Scratch;
+use super::float_column::{uleb128, Scratch};
 use arrow_array::cast::AsArray;
 use arrow_array::types::Int16Type;
 use arrow_array::{Array, ArrayRef};
@@ -217,17 +217,5 @@ impl DictColumn {
             offset_index: None,
         };
         Ok((Bytes::from(bytes), close))
-    }
-}
-
-fn uleb128(out: &mut Vec<u8>, mut v: u64) {
-    loop {
-        let b = (v & 0x7f) as u8;
-        v >>= 7;
-        if v == 0 {
-            out.push(b);
-            return;
-        }
-        out.push(b | 0x80);
     }
 }

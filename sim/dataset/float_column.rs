@@ -377,7 +377,9 @@ fn levels(runs: &[(bool, u32)], out: &mut Vec<u8>) {
     out[at..at + 4].copy_from_slice(&len.to_le_bytes());
 }
 
-fn uleb128(out: &mut Vec<u8>, mut v: u64) {
+/// Appends `v` as an unsigned LEB128 varint (the RLE/bit-packed hybrid's
+/// run headers in Parquet's encoding spec).
+pub(super) fn uleb128(out: &mut Vec<u8>, mut v: u64) {
     loop {
         let b = (v & 0x7f) as u8;
         v >>= 7;
