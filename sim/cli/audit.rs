@@ -1,7 +1,7 @@
 //! `loadloom audit`: a dataset's loading picture, its declared metering and
 //! wiring checked, or (`--matrix`) the checks scored on injected mistakes.
 
-use super::{print, Error, Outcome};
+use super::{print, CommandResult, Error};
 use loadloom::audit::{load_declaration, MatrixOptions};
 use loadloom::matrix;
 use loadloom::progress::Progress;
@@ -49,7 +49,7 @@ pub struct Args {
 }
 
 /// The loading picture, the audit against a declaration, or the matrix.
-pub fn main(a: Args) -> Outcome {
+pub fn main(a: Args) -> CommandResult {
     let form = Form::from_flags(a.json, a.markdown);
     if a.matrix {
         return run_matrix(&a, form);
@@ -77,7 +77,7 @@ pub fn main(a: Args) -> Outcome {
 
 /// `--matrix`: the checks scored on injected mistakes, over the homes of a
 /// folder, for each measuring variant asked for.
-fn run_matrix(a: &Args, form: Form) -> Outcome {
+fn run_matrix(a: &Args, form: Form) -> CommandResult {
     let chosen = matrix::parse_variants(&a.variant)?;
     if !(0.5..=60.0).contains(&a.days) || a.runs == 0 {
         return Err(Error::option(

@@ -1,17 +1,17 @@
 //! `loadloom completions` and `loadloom man`: generated from the same
 //! definition of the commands and flags as the parser.
 
-use super::{Error, Outcome};
+use super::{CommandResult, Error};
 use std::process::ExitCode;
 
 /// Prints shell completions for `shell`.
-pub fn completions(shell: clap_complete::Shell, mut cmd: clap::Command) -> Outcome {
+pub fn completions(shell: clap_complete::Shell, mut cmd: clap::Command) -> CommandResult {
     clap_complete::generate(shell, &mut cmd, "loadloom", &mut std::io::stdout());
     Ok(ExitCode::SUCCESS)
 }
 
 /// Prints the man page (roff).
-pub fn man(cmd: clap::Command) -> Outcome {
+pub fn man(cmd: clap::Command) -> CommandResult {
     clap_mangen::Man::new(cmd)
         .render(&mut std::io::stdout())
         .map_err(|e| {

@@ -1,6 +1,6 @@
 //! `loadloom fleet`: many homes from a population file.
 
-use super::{Error, Outcome};
+use super::{CommandResult, Error};
 use loadloom::fleet::{self, Shard};
 use loadloom::progress::Progress;
 use std::path::PathBuf;
@@ -28,7 +28,7 @@ pub struct Args {
 }
 
 /// Reads the population, checks the options, makes the homes.
-pub fn main(a: Args) -> Outcome {
+pub fn main(a: Args) -> CommandResult {
     let pop = fleet::load(&a.population)?;
     if a.homes == 0 || a.homes > 99_999 {
         return Err(Error::option(

@@ -22,7 +22,7 @@ use std::process::ExitCode;
 
 /// What every command returns: its exit status when it ran (0, or 1 when a
 /// report says that some part failed), or the error that stopped it.
-pub type Outcome = Result<ExitCode, Error>;
+pub type CommandResult = Result<ExitCode, Error>;
 
 /// Exit status of a run whose report says that some part failed (a solver,
 /// a rung): the report is printed, then the process ends with it.
@@ -47,7 +47,7 @@ pub fn status(ok: bool) -> ExitCode {
 
 /// Prints an error and gives its exit status: the one place a command's
 /// error reaches standard error.
-pub fn finish(outcome: Outcome) -> ExitCode {
+pub fn finish(outcome: CommandResult) -> ExitCode {
     outcome.unwrap_or_else(|e| {
         eprintln!("{e}");
         ExitCode::from(e.status.code())

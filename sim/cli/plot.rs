@@ -1,7 +1,7 @@
 //! `loadloom plot`: a picture of a dataset (a day per conductor, or energy
 //! per local month).
 
-use super::Outcome;
+use super::CommandResult;
 use solver_check::plot::{parse_size, plot, plot_monthly, Parts, PlotOptions};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -36,7 +36,7 @@ pub struct Args {
 }
 
 /// Draws the picture asked for and says what it shows.
-pub fn main(a: Args) -> Outcome {
+pub fn main(a: Args) -> CommandResult {
     let (w, h) = parse_size(&a.size)?;
     if a.monthly {
         let parts = match a.by.as_deref() {
@@ -65,7 +65,7 @@ pub fn main(a: Args) -> Outcome {
 }
 
 /// `plot --monthly`: the picture, then one line saying what it shows.
-fn monthly(dataset: &Path, out: &Path, (w, h): (u32, u32), parts: Parts) -> Outcome {
+fn monthly(dataset: &Path, out: &Path, (w, h): (u32, u32), parts: Parts) -> CommandResult {
     let what = match parts {
         Parts::Appliance => "appliances",
         Parts::EndUse => "end uses",

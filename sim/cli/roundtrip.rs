@@ -1,7 +1,7 @@
 //! `loadloom roundtrip`: generate a task, run solvers on it, score them;
 //! one solver's report, a leaderboard of several, or the suite's ladder.
 
-use super::{print, status, Error, FormatArg, Outcome};
+use super::{print, status, CommandResult, Error, FormatArg};
 use loadloom::progress::Progress;
 use loadloom::roundtrip::{self as rt, Plan};
 use loadloom::scenario::overrides::duration_arg;
@@ -102,7 +102,7 @@ pub struct Args {
 }
 
 /// Checks the options, then runs the round trip asked for.
-pub fn main(mut a: Args) -> Outcome {
+pub fn main(mut a: Args) -> CommandResult {
     respell(&mut a);
     if a.fleet.is_none() && (a.train_homes.is_some() || a.test_homes.is_some()) {
         let help = "give --fleet POPULATION, or leave out --train-homes and --test-homes";
@@ -133,7 +133,7 @@ pub fn main(mut a: Args) -> Outcome {
 /// One solver on one scenario: a progress line on a terminal (what is
 /// being done and for how long, so a long solver is seen to be running),
 /// then its report.
-fn single(a: &Args, s: &Scenario, plan: &Plan, form: Form) -> Outcome {
+fn single(a: &Args, s: &Scenario, plan: &Plan, form: Form) -> CommandResult {
     let work = a.out.join(format!("{}-roundtrip", s.name));
     let bar = if a.quiet || a.json {
         Progress::hidden()
@@ -244,7 +244,7 @@ fn plan(a: &Args, scenarios: &[Scenario], solver: Solver) -> Result<Plan, Error>
 }
 
 /// The suite: every scenario at every rung; exit 1 if a solver failed on any.
-fn suite(scenarios: &[Scenario], out: &Path, plan: &Plan, form: Form) -> Outcome {
+fn suite(scenarios: &[Scenario], out: &Path, plan: &Plan, form: Form) -> CommandResult {
     let bar = Progress::messages();
     let result = rt::suite(scenarios, out, plan, &mut |s, r| {
         bar.say(format!("{s}: {r}"))
@@ -257,7 +257,7 @@ fn suite(scenarios: &[Scenario], out: &Path, plan: &Plan, form: Form) -> Outcome
 
 /// The layout ladder of one home: every rung with every solver; the report,
 /// and `ladder.json` and `scores.svg` in the ladder's folder.
-fn layouts(a: &Args, plan: &Plan, solvers: &[Solver], form: Form) -> Outcome {
+fn layouts(a: &Args, plan: &Plan, solvers: &[Solver], form: Form) -> CommandResult {
     let Some(path) = a.scenario.as_deref() else {
         let help = "give the SCENARIO whose layouts to run";
         return Err(Error::option("--layouts", "no scenario", help));
@@ -318,7 +318,7 @@ fn leaderboard(
     plan: &Plan,
     solvers: &[Solver],
     form: Form,
-) -> Outcome {
+) -> CommandResult {
     let prep = prepare_task(a, scenario, plan)?;
     let bar = if a.quiet || a.json {
         Progress::hidden()
@@ -377,7 +377,7 @@ fn respell(a: &mut Args) {
 }
 
 /// Unseen homes: train on some homes of a fleet, score on others.
-fn crosshome(a: &Args, solvers: &[Solver]) -> Outcome {
+fn crosshome(a: &Args, solvers: &[Solver]) -> CommandResult {
     if solvers.len() != 1 {
         let help = "give one --solver with --fleet";
         return Err(Error::option("--fleet", "it runs one --solver", help));

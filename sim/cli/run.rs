@@ -1,6 +1,6 @@
 //! `loadloom run`: simulate a scenario and write its dataset folder.
 
-use super::{print, FormatArg, Outcome};
+use super::{print, CommandResult, FormatArg};
 use loadloom::dataset::Format;
 use loadloom::pipeline;
 use loadloom::progress::Progress;
@@ -49,7 +49,7 @@ pub struct Args {
 
 /// Loads the scenario, applies the overrides, writes the dataset, prints
 /// the summary.
-pub fn main(a: Args) -> Outcome {
+pub fn main(a: Args) -> CommandResult {
     let mut s = scenario::load(&a.scenario)?;
     if let Some(seed) = a.seed {
         s.run.seed = seed;

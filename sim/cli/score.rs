@@ -1,7 +1,7 @@
 //! `loadloom score`: an estimate scored against a dataset's truth, or two
 //! estimates compared.
 
-use super::{print, Error, Outcome};
+use super::{print, CommandResult, Error};
 use solver_check::compare::compare;
 use solver_check::render::Form;
 use solver_check::score::{parse_threshold, score, Options};
@@ -48,7 +48,7 @@ pub struct Args {
 }
 
 /// Scores the estimate (or compares it with another) and prints the report.
-pub fn main(a: Args) -> Outcome {
+pub fn main(a: Args) -> CommandResult {
     let thresholds = a
         .threshold
         .iter()
@@ -72,7 +72,7 @@ pub fn main(a: Args) -> Outcome {
 }
 
 /// `--against`: both estimates scored, then compared day by day.
-fn against(a: &Args, other: &Path, opts: &Options, form: Form) -> Outcome {
+fn against(a: &Args, other: &Path, opts: &Options, form: Form) -> CommandResult {
     let x = score(&a.truth, &a.estimate, opts)?;
     let y = score(&a.truth, other, opts)?;
     let c = compare(&x, &y, a.resamples.max(1), a.bootstrap_seed)?;

@@ -2,7 +2,7 @@
 //! supply voltage its powers are written for, its power per state and its
 //! source.
 
-use super::{print, Outcome};
+use super::{print, CommandResult};
 use loadloom::scenario::library::{catalogue, Catalogue};
 use solver_check::render::Form;
 use std::process::ExitCode;
@@ -17,7 +17,7 @@ pub struct Args {
 }
 
 /// Reads every built-in template as a run would and prints the list.
-pub fn main(a: Args) -> Outcome {
+pub fn main(a: Args) -> CommandResult {
     print(&Catalogue(catalogue()?), Form::from_flags(a.json, false));
     Ok(ExitCode::SUCCESS)
 }

@@ -1,6 +1,6 @@
 //! `loadloom validate`: check a scenario and print what it will produce.
 
-use super::{print, Outcome};
+use super::{print, CommandResult};
 use loadloom::scenario;
 use loadloom::summary::Preview;
 use solver_check::render::Form;
@@ -26,7 +26,7 @@ pub struct Args {
 }
 
 /// Loads the scenario and computes its figures; prints them unless quiet.
-pub fn main(a: Args) -> Outcome {
+pub fn main(a: Args) -> CommandResult {
     let s = scenario::load(&a.scenario)?;
     // `--quiet` computes everything plain `validate` does, so it accepts no
     // scenario that `validate` would refuse.
