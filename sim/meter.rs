@@ -18,7 +18,7 @@ use rand_distr::StandardNormal;
 
 /// Meter readings for a run of consecutive reporting intervals (columnar).
 /// A null reading is NaN here and null in the files.
-#[derive(Default)]
+#[derive(Clone, Default)]
 pub struct Readings {
     /// `[line]`: mean active power per interval, W.
     pub line_p: Vec<Vec<f32>>,

@@ -7,8 +7,7 @@ use crate::behaviour::timelines;
 use crate::dataset::tables::Tables;
 use crate::dataset::{encode_rows, folder, replace_dir, Files, Format, Layout, CHUNK_ROWS};
 use crate::scenario::Scenario;
-use crate::simulate::{simulate_with, SimulationRecord};
-use arrow_array::RecordBatch;
+use crate::simulate::{simulate_with, Chunk, SimulationRecord};
 use std::io;
 use std::path::{Path, PathBuf};
 
@@ -136,31 +135,33 @@ pub fn write_into_cut(
     };
     let threads = files.threads;
     // The simulation runs on this thread; a second one takes each chunk's
-    // tables and encodes their columns on `threads` threads meanwhile.
+    // columns and encodes them on `threads` threads meanwhile, then sends
+    // the emptied chunk back to be filled again.
     let (outcome, meter_rows) = std::thread::scope(|sc| -> io::Result<(SimulationRecord, u64)> {
-        let (tx, rx) = std::sync::mpsc::sync_channel::<[RecordBatch; 2]>(2);
-        let writer = sc.spawn(move || encode_rows(rx, meters, truth, threads));
-        let mut meter_rows = 0u64;
+        let (tx, rx) = std::sync::mpsc::sync_channel::<Chunk>(2);
+        let (back, spare) = std::sync::mpsc::channel::<Chunk>();
+        let tables = &tables;
+        let writer = sc.spawn(move || encode_rows(rx, back, tables, meters, truth, threads));
         let simulated = simulate_with(
             s,
             &tl,
             intervals,
             CHUNK_ROWS,
             |chunk| -> io::Result<()> {
-                let batch = tables.meters_batch(chunk);
-                meter_rows += batch.num_rows() as u64;
-                tx.send([batch, tables.truth_batch(chunk)])
-                    .map_err(|_| io::Error::other("the table writer stopped"))?;
                 progress(
                     (chunk.first_row + chunk.readings.rows() as u64) as f64 / intervals as f64,
                 );
-                Ok(())
+                // A chunk the writer is done with, or (while none is back
+                // yet) a copy whose columns have the room the rows need.
+                let next = spare.try_recv().unwrap_or_else(|_| chunk.clone());
+                tx.send(std::mem::replace(chunk, next))
+                    .map_err(|_| io::Error::other("the table writer stopped"))
             },
             recorder.as_mut(),
         );
         drop(tx);
         // The writer's error first: when sending failed, it is the cause.
-        writer
+        let meter_rows = writer
             .join()
             .unwrap_or_else(|panic| std::panic::resume_unwind(panic))?;
         Ok((simulated?, meter_rows))

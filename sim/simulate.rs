@@ -10,7 +10,7 @@ use crate::meter::{MeterModel, Readings};
 use crate::scenario::{Inrush, Role, Scenario};
 
 /// Exact per-appliance truth for a run of reporting intervals (columnar).
-#[derive(Default)]
+#[derive(Clone, Default)]
 pub struct Truth {
     /// `[appliance]`: mean active power over each reporting interval, W.
     pub app_p: Vec<Vec<f32>>,
@@ -62,6 +62,7 @@ impl Truth {
 }
 
 /// One chunk handed to the writers: rows `first_row ..` of meters and truth.
+#[derive(Clone)]
 pub struct Chunk {
     /// Index of this chunk's first reporting interval in the run.
     pub first_row: u64,
@@ -194,21 +195,23 @@ pub fn simulate<E>(
     timelines: &[Timeline],
     intervals: u64,
     chunk_rows: usize,
-    sink: impl FnMut(&Chunk) -> Result<(), E>,
+    mut sink: impl FnMut(&Chunk) -> Result<(), E>,
 ) -> Result<SimulationRecord, E>
 where
     E: From<Diverged>,
 {
-    simulate_with(s, timelines, intervals, chunk_rows, sink, None)
+    simulate_with(s, timelines, intervals, chunk_rows, |c| sink(c), None)
 }
 
-/// [`simulate`], also writing the waveform windows to `recorder`.
+/// [`simulate`], also writing the waveform windows to `recorder`; `sink`
+/// may take the chunk's columns, leaving a chunk of the same shape (whose
+/// columns are cleared before the next rows go in).
 pub(crate) fn simulate_with<E>(
     s: &Scenario,
     timelines: &[Timeline],
     intervals: u64,
     chunk_rows: usize,
-    mut sink: impl FnMut(&Chunk) -> Result<(), E>,
+    mut sink: impl FnMut(&mut Chunk) -> Result<(), E>,
     mut recorder: Option<&mut crate::waveform::Recorder>,
 ) -> Result<SimulationRecord, E>
 where
@@ -267,8 +270,10 @@ where
             sums.flush(&mut chunk.truth, &net, &walk, timelines, step);
             summary.note_line_peaks(&chunk.readings, lines);
             if chunk.readings.rows() == chunk_rows || step + 1 == total_steps {
-                sink(&chunk)?;
-                chunk.first_row += chunk.readings.rows() as u64;
+                let next = chunk.first_row + chunk.readings.rows() as u64;
+                // The sink may swap the columns for empty ones to fill next.
+                sink(&mut chunk)?;
+                chunk.first_row = next;
                 chunk.readings.clear();
                 chunk.truth.clear();
             }

@@ -397,7 +397,7 @@ fn exercise(mut s: Scenario) -> Result<(), String> {
     let tables = loadloom::dataset::tables::Tables::new(&s);
     let mut bad = None;
     let outcome = loadloom::simulate::simulate(&s, &tl, s.intervals(), 4096, |c| {
-        for b in [tables.meters_batch(c), tables.truth_batch(c)] {
+        for b in tables.batches(c) {
             bad = bad.take().or_else(|| non_finite(&b));
         }
         Ok::<(), ()>(())

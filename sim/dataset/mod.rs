@@ -16,8 +16,7 @@ pub mod tables;
 
 use crate::difficulty::Difficulty;
 use crate::scenario::Scenario;
-use crate::simulate::{SimulationRecord, StateSpan};
-use arrow_array::RecordBatch;
+use crate::simulate::{Chunk, SimulationRecord, StateSpan};
 use serde_json::Value;
 pub use sink::Format;
 use sink::{Sink, Values};
@@ -102,19 +101,31 @@ pub fn threads() -> io::Result<usize> {
     }
 }
 
-/// Writes each chunk's meters and truth batches as they arrive, then
-/// finishes both files.
+/// Writes each chunk's meters and truth as it arrives (its columns lent to
+/// the batches, no copy), sends the chunk back through `back` for the
+/// simulation to fill again, then finishes both files. Returns the meters
+/// rows written.
 pub fn encode_rows(
-    rx: std::sync::mpsc::Receiver<[RecordBatch; 2]>,
+    rx: std::sync::mpsc::Receiver<Chunk>,
+    back: std::sync::mpsc::Sender<Chunk>,
+    tables: &Tables,
     mut meters: Sink,
     mut truth: Sink,
     threads: usize,
-) -> io::Result<()> {
-    for [m, t] in rx {
+) -> io::Result<u64> {
+    let mut rows = 0;
+    for mut chunk in rx {
+        let mut lent = tables::Lent::default();
+        let [m, t] = tables.lend_batches(&mut chunk, &mut lent);
+        rows += m.num_rows() as u64;
         sink::write_all(vec![(&mut meters, m), (&mut truth, t)], threads)?;
+        lent.give_back(&mut chunk);
+        // The simulation may have ended already; the chunk is then dropped.
+        let _ = back.send(chunk);
     }
     meters.close(threads)?;
-    truth.close(threads)
+    truth.close(threads)?;
+    Ok(rows)
 }
 
 /// The files of a dataset being written into a folder, placed by a

@@ -9,7 +9,7 @@ use arrow_array::{
     new_null_array, ArrayRef, ArrowPrimitiveType, DictionaryArray, Float32Array, Float64Array,
     Int16Array, PrimitiveArray, RecordBatch, StringArray, TimestampMillisecondArray,
 };
-use arrow_buffer::NullBuffer;
+use arrow_buffer::{ArrowNativeType, Buffer, NullBuffer, ScalarBuffer};
 use arrow_schema::{DataType, Schema};
 use std::sync::Arc;
 
@@ -52,32 +52,115 @@ fn f32s(v: &[f32]) -> ArrayRef {
     Arc::new(Float32Array::from(v.to_vec()))
 }
 
+/// Column vectors a chunk lent to its batches without a copy
+/// ([`Tables::lend_batches`]), taken back once the batches are written and
+/// dropped, so the simulation fills them again without allocating.
+#[derive(Default)]
+pub struct Lent {
+    f32s: Vec<Buffer>,
+    f64s: Vec<Buffer>,
+    u16s: Vec<Buffer>,
+}
+
+/// `v`'s values as an Arrow buffer, without a copy; `v` is left empty and
+/// `to` keeps a handle to take the vector back.
+fn lend<T: ArrowNativeType>(v: &mut Vec<T>, to: &mut Vec<Buffer>) -> Buffer {
+    let b = Buffer::from_vec(std::mem::take(v));
+    to.push(b.clone());
+    b
+}
+
+/// Fills each column left empty by [`lend`] with a lent vector, cleared. A
+/// vector an array still shares (none should) gives way to a new one.
+fn refill<'a, T: ArrowNativeType>(
+    slots: impl Iterator<Item = &'a mut Vec<T>>,
+    from: &mut Vec<Buffer>,
+) {
+    for slot in slots.filter(|v| v.capacity() == 0) {
+        let Some(b) = from.pop() else { return };
+        *slot = b.into_vec::<T>().unwrap_or_default();
+        slot.clear();
+    }
+}
+
+impl Lent {
+    /// Puts the lent vectors back into `c`'s empty columns (what the
+    /// batches were built from; every column of a chunk has its rows, so
+    /// any vector fits any column of its type).
+    pub fn give_back(mut self, c: &mut Chunk) {
+        let (r, t) = (&mut c.readings, &mut c.truth);
+        let f32_columns = r
+            .line_p
+            .iter_mut()
+            .chain(&mut r.line_q)
+            .chain(&mut r.line_v)
+            .chain(&mut r.line_i)
+            .chain([&mut r.n_i, &mut r.total_p, &mut r.total_q])
+            .chain(&mut t.app_p)
+            .chain(&mut t.app_q)
+            .chain(t.app_line_p.iter_mut().flatten())
+            .chain(t.app_soc.iter_mut().flatten())
+            .chain([&mut t.unmetered_p])
+            // Last: a home without a production channel never fills it.
+            .chain([&mut r.production_p]);
+        refill(f32_columns, &mut self.f32s);
+        refill(r.energy.iter_mut(), &mut self.f64s);
+        refill(t.app_state.iter_mut(), &mut self.u16s);
+    }
+}
+
 /// Readings: NaN stands for null. `keep` (when rows are dropped) says
-/// which rows stay. Built from the slice in one pass, with a null mask only
-/// when there is a null (this runs on the simulation's thread).
-fn readings<T: ArrowPrimitiveType>(v: &[T::Native], keep: Option<&[bool]>) -> ArrayRef
+/// which rows stay: those are copied; otherwise `v` is lent to the array
+/// (its nulls' slots set to zero, as an Arrow builder leaves them).
+fn readings<T: ArrowPrimitiveType>(
+    v: &mut Vec<T::Native>,
+    keep: Option<&[bool]>,
+    lent: &mut Vec<Buffer>,
+) -> ArrayRef
 where
     T::Native: Nan,
 {
-    let mut values: Vec<T::Native> = match keep {
-        None => v.to_vec(),
-        Some(k) => v
-            .iter()
-            .zip(k)
-            .filter(|(_, k)| **k)
-            .map(|(x, _)| *x)
-            .collect(),
+    let (values, nulls) = match keep {
+        None => {
+            let nulls = nan_nulls(v);
+            (lend(v, lent), nulls)
+        }
+        Some(k) => {
+            let mut kept: Vec<T::Native> = v
+                .iter()
+                .zip(k)
+                .filter(|(_, k)| **k)
+                .map(|(x, _)| *x)
+                .collect();
+            let nulls = nan_nulls(&mut kept);
+            (Buffer::from_vec(kept), nulls)
+        }
     };
-    let nulls = values.iter().any(|x| x.nan()).then(|| {
+    let len = values.len() / std::mem::size_of::<T::Native>();
+    Arc::new(PrimitiveArray::<T>::new(
+        ScalarBuffer::new(values, 0, len),
+        nulls,
+    ))
+}
+
+/// The null mask of `values` (NaN is null), when one is null; their slots
+/// are set to zero.
+fn nan_nulls<T: Nan>(values: &mut [T]) -> Option<NullBuffer> {
+    values.iter().any(|x| x.nan()).then(|| {
         let mask = NullBuffer::from_iter(values.iter().map(|x| !x.nan()));
-        // A null's slot holds zero, as an Arrow builder leaves it.
         values
             .iter_mut()
             .filter(|x| x.nan())
             .for_each(|x| *x = Default::default());
         mask
-    });
-    Arc::new(PrimitiveArray::<T>::new(values.into(), nulls))
+    })
+}
+
+/// A float column lent to its array.
+fn lent_f32s(v: &mut Vec<f32>, lent: &mut Lent) -> ArrayRef {
+    let len = v.len();
+    let values = ScalarBuffer::new(lend(v, &mut lent.f32s), 0, len);
+    Arc::new(Float32Array::new(values, None))
 }
 
 /// The one float test [`readings`] needs, for f32 and f64.
@@ -203,37 +286,56 @@ impl Tables {
         self.start_ms + step as i64 * self.step_ms
     }
 
-    /// The meters rows of a chunk (rows lost in the `missing` dropout form left out).
-    pub fn meters_batch(&self, c: &Chunk) -> RecordBatch {
-        let r = &c.readings;
+    /// The meters and truth batches of a chunk the simulation keeps: its
+    /// columns are copied.
+    pub fn batches(&self, c: &Chunk) -> [RecordBatch; 2] {
+        self.lend_batches(&mut c.clone(), &mut Lent::default())
+    }
+
+    /// The meters and truth batches of a chunk handed over: its columns are
+    /// lent to the batches without a copy, and `lent` takes them back
+    /// ([`Lent::give_back`]) once the batches are dropped.
+    pub fn lend_batches(&self, c: &mut Chunk, lent: &mut Lent) -> [RecordBatch; 2] {
+        let truth = match self.form {
+            Form::Single => self.truth_wide(c, lent),
+            Form::Fleet => self.truth_long(c),
+        };
+        [self.meters_batch(c, lent), truth]
+    }
+
+    /// The meters rows of a chunk (rows lost in the `missing` dropout form
+    /// left out).
+    fn meters_batch(&self, c: &mut Chunk, lent: &mut Lent) -> RecordBatch {
+        let r = &mut c.readings;
         // Rows lost to a dropout in the "missing" form are left out.
         let keep = self.drop_rows.then_some(r.present.as_slice());
         let times = (0..r.rows() as u64)
             .filter(|&i| keep.is_none_or(|k| k[i as usize]))
             .map(|i| self.meter_time_ms(c.first_row + i));
         let mut cols = vec![self.times(times)];
+        let f = &mut lent.f32s;
         for x in 0..r.line_p.len() {
             cols.extend([
-                readings::<Float32Type>(&r.line_p[x], keep),
-                readings::<Float32Type>(&r.line_q[x], keep),
-                readings::<Float32Type>(&r.line_v[x], keep),
-                readings::<Float32Type>(&r.line_i[x], keep),
+                readings::<Float32Type>(&mut r.line_p[x], keep, f),
+                readings::<Float32Type>(&mut r.line_q[x], keep, f),
+                readings::<Float32Type>(&mut r.line_v[x], keep, f),
+                readings::<Float32Type>(&mut r.line_i[x], keep, f),
             ]);
         }
         let rows = cols[0].len();
         let absent = self.lines - r.line_p.len();
         cols.extend((0..4 * absent).map(|_| new_null_array(&DataType::Float32, rows)));
         cols.extend([
-            readings::<Float32Type>(&r.n_i, keep),
-            readings::<Float32Type>(&r.total_p, keep),
-            readings::<Float32Type>(&r.total_q, keep),
+            readings::<Float32Type>(&mut r.n_i, keep, f),
+            readings::<Float32Type>(&mut r.total_p, keep, f),
+            readings::<Float32Type>(&mut r.total_q, keep, f),
         ]);
         if self.meters.iter().any(|c| c.name == schema::PRODUCTION_P) {
-            cols.push(readings::<Float32Type>(&r.production_p, keep));
+            cols.push(readings::<Float32Type>(&mut r.production_p, keep, f));
         }
         if self.meters.iter().any(|c| c.name.ends_with("_energy_wh")) {
-            for e in &r.energy {
-                cols.push(readings::<Float64Type>(e, keep));
+            for e in &mut r.energy {
+                cols.push(readings::<Float64Type>(e, keep, &mut lent.f64s));
             }
             cols.extend((0..absent).map(|_| new_null_array(&DataType::Float64, rows)));
         }
@@ -241,35 +343,32 @@ impl Tables {
             .expect("columns follow the meters schema")
     }
 
-    /// The truth of a chunk, in the tables' form.
-    pub fn truth_batch(&self, c: &Chunk) -> RecordBatch {
-        match self.form {
-            Form::Single => self.truth_wide(c),
-            Form::Fleet => self.truth_long(c),
-        }
-    }
-
-    fn truth_wide(&self, c: &Chunk) -> RecordBatch {
-        let t = &c.truth;
+    fn truth_wide(&self, c: &mut Chunk, lent: &mut Lent) -> RecordBatch {
+        let t = &mut c.truth;
         let rows = c.readings.rows() as u64;
         let mut cols = vec![self.times((0..rows).map(|i| self.row_time_ms(c.first_row + i)))];
         for k in 0..t.app_p.len() {
-            cols.push(f32s(&t.app_p[k]));
-            cols.push(f32s(&t.app_q[k]));
-            let keys =
-                Int16Array::from(t.app_state[k].iter().map(|&s| s as i16).collect::<Vec<_>>());
+            cols.push(lent_f32s(&mut t.app_p[k], lent));
+            cols.push(lent_f32s(&mut t.app_q[k], lent));
+            // A state index is far below i16::MAX: the u16 keys are read as
+            // i16 in place.
+            let n = t.app_state[k].len();
+            let keys = ScalarBuffer::new(lend(&mut t.app_state[k], &mut lent.u16s), 0, n);
             cols.push(Arc::new(
-                DictionaryArray::<Int16Type>::try_new(keys, self.state_names[k].clone())
-                    .expect("state index in range"),
+                DictionaryArray::<Int16Type>::try_new(
+                    Int16Array::new(keys, None),
+                    self.state_names[k].clone(),
+                )
+                .expect("state index in range"),
             ));
-            for lp in &t.app_line_p[k] {
-                cols.push(f32s(lp));
+            for lp in &mut t.app_line_p[k] {
+                cols.push(lent_f32s(lp, lent));
             }
-            if let Some(soc) = &t.app_soc[k] {
-                cols.push(f32s(soc));
+            if let Some(soc) = &mut t.app_soc[k] {
+                cols.push(lent_f32s(soc, lent));
             }
         }
-        cols.push(f32s(&t.unmetered_p));
+        cols.push(lent_f32s(&mut t.unmetered_p, lent));
         RecordBatch::try_new(self.truth_schema.clone(), cols)
             .expect("columns follow the truth schema")
     }
@@ -360,5 +459,76 @@ impl Tables {
         ];
         RecordBatch::try_new(self.events_schema.clone(), cols)
             .expect("columns follow the events schema")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn home() -> Scenario {
+        let text = r#"
+[home]
+supply = "split-phase"
+timezone = "UTC"
+[run]
+start = "2027-01-04T00:00"
+length = "10 min"
+[[appliance]]
+id = "kettle"
+wiring = "L1-N"
+behaviour = "steady"
+load = "resistive"
+states = [{ power = "1500 W", pf = 1.0 }]
+[[appliance]]
+id = "dryer"
+wiring = "L1-L2"
+behaviour = "steady"
+load = "resistive"
+states = [{ power = "4 kW", pf = 1.0 }]
+"#;
+        crate::scenario::load_str(std::path::Path::new("two.toml"), text.into()).unwrap()
+    }
+
+    /// Lent batches hold what copied ones hold, and once they are dropped
+    /// every column is back in the chunk, empty, with its room kept.
+    #[test]
+    fn lent_columns_come_back_with_their_room() {
+        let s = home();
+        let tables = Tables::new(&s);
+        let tl = crate::behaviour::timelines(&s, s.run.steps());
+        let mut chunks = 0;
+        crate::simulate::simulate(&s, &tl, s.intervals(), 256, |c| {
+            let rows = c.readings.rows();
+            let copied = tables.batches(c);
+            let mut owned = c.clone();
+            let mut lent = Lent::default();
+            let batches = tables.lend_batches(&mut owned, &mut lent);
+            assert_eq!(batches, copied);
+            drop(batches);
+            lent.give_back(&mut owned);
+            let r = &owned.readings;
+            let t = &owned.truth;
+            let f32s = r
+                .line_p
+                .iter()
+                .chain(&r.line_q)
+                .chain(&r.line_v)
+                .chain(&r.line_i)
+                .chain([&r.n_i, &r.total_p, &r.total_q, &t.unmetered_p])
+                .chain(&t.app_p)
+                .chain(&t.app_q)
+                .chain(t.app_line_p.iter().flatten());
+            for v in f32s {
+                assert!(v.is_empty() && v.capacity() >= rows);
+            }
+            for v in &t.app_state {
+                assert!(v.is_empty() && v.capacity() >= rows);
+            }
+            chunks += 1;
+            Ok::<(), crate::electrical::settle::Diverged>(())
+        })
+        .unwrap();
+        assert_eq!(chunks, 3); // 600 rows in chunks of 256
     }
 }

@@ -104,14 +104,9 @@ fn floor(s: &Scenario, out: &Path) {
         if n < CHUNK_ROWS {
             truncate_chunk(&mut chunk, n);
         }
-        loadloom::dataset::sink::write_all(
-            vec![
-                (&mut meters, tables.meters_batch(&chunk)),
-                (&mut truth, tables.truth_batch(&chunk)),
-            ],
-            threads,
-        )
-        .unwrap();
+        let [m, t] = tables.batches(&chunk);
+        loadloom::dataset::sink::write_all(vec![(&mut meters, m), (&mut truth, t)], threads)
+            .unwrap();
         chunk.first_row += n as u64;
     }
     meters.close(threads).unwrap();
