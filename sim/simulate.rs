@@ -61,6 +61,86 @@ impl Truth {
     }
 }
 
+/// Rows of truth gathered a block at a time before they join the columns
+/// of [`Truth`]: one store per value into a small buffer that stays in the
+/// cache, then a copy of [`BLOCK_ROWS`] consecutive values per column.
+/// Storing each value straight into its own column touches about a hundred
+/// far-apart cache lines per row at one step per interval.
+struct TruthRows {
+    /// `[column * BLOCK_ROWS + row]`, columns in [`Truth`]'s order: per
+    /// appliance P, Q, P per line and the state of charge if it has one;
+    /// then the unmetered loads' P.
+    values: Vec<f32>,
+    /// `[appliance * BLOCK_ROWS + row]`: the state held.
+    states: Vec<u16>,
+    /// Per appliance: whether it has a state-of-charge column.
+    soc: Vec<bool>,
+    /// Rows in the block so far.
+    rows: usize,
+}
+
+/// Rows per block of [`TruthRows`]: a few cache lines per column, and the
+/// whole block (about a hundred columns at most in the demos) within the
+/// first-level cache.
+const BLOCK_ROWS: usize = 64;
+
+impl TruthRows {
+    fn new(truth: &Truth) -> Self {
+        let soc: Vec<bool> = truth.app_soc.iter().map(Option::is_some).collect();
+        let columns = 2 * truth.app_p.len()
+            + truth.app_line_p.iter().map(Vec::len).sum::<usize>()
+            + soc.iter().filter(|&&x| x).count()
+            + 1;
+        TruthRows {
+            values: vec![0.0; columns * BLOCK_ROWS],
+            states: vec![0; truth.app_state.len() * BLOCK_ROWS],
+            soc,
+            rows: 0,
+        }
+    }
+
+    #[inline]
+    fn put(&mut self, column: usize, v: f32) {
+        self.values[column * BLOCK_ROWS + self.rows] = v;
+    }
+
+    #[inline]
+    fn put_state(&mut self, app: usize, state: u16) {
+        self.states[app * BLOCK_ROWS + self.rows] = state;
+    }
+
+    /// Closes the row.
+    #[inline]
+    fn end_row(&mut self) {
+        self.rows += 1;
+    }
+
+    fn full(&self) -> bool {
+        self.rows == BLOCK_ROWS
+    }
+
+    /// Appends the block's rows to the columns of `truth`; the block starts
+    /// again empty.
+    fn drain(&mut self, truth: &mut Truth) {
+        let n = self.rows;
+        let mut columns = self.values.chunks_exact(BLOCK_ROWS).map(|c| &c[..n]);
+        let mut next = |to: &mut Vec<f32>| to.extend_from_slice(columns.next().expect("a column"));
+        for k in 0..truth.app_p.len() {
+            next(&mut truth.app_p[k]);
+            next(&mut truth.app_q[k]);
+            truth.app_line_p[k].iter_mut().for_each(&mut next);
+            if let Some(col) = truth.app_soc[k].as_mut() {
+                next(col);
+            }
+        }
+        next(&mut truth.unmetered_p);
+        for (k, col) in truth.app_state.iter_mut().enumerate() {
+            col.extend_from_slice(&self.states[k * BLOCK_ROWS..k * BLOCK_ROWS + n]);
+        }
+        self.rows = 0;
+    }
+}
+
 /// One chunk handed to the writers: rows `first_row ..` of meters and truth.
 #[derive(Clone)]
 pub struct Chunk {
@@ -246,6 +326,7 @@ where
         ..Default::default()
     };
     let mut solution = Solution::new(s, &net);
+    let mut rows = TruthRows::new(&chunk.truth);
     let total_steps = intervals * k_int;
     for step in 0..total_steps {
         let (f, source_moved) = source.next(lines);
@@ -267,9 +348,13 @@ where
         sums.add(&out, &mut walk, &mut summary, dt);
         if (step + 1) % k_int == 0 {
             meter.emit(&mut chunk.readings);
-            sums.flush(&mut chunk.truth, &net, &walk, timelines, step);
+            sums.flush(&mut rows, &net, &walk, timelines, step);
             summary.note_line_peaks(&chunk.readings, lines);
-            if chunk.readings.rows() == chunk_rows || step + 1 == total_steps {
+            let last = chunk.readings.rows() == chunk_rows || step + 1 == total_steps;
+            if rows.full() || last {
+                rows.drain(&mut chunk.truth);
+            }
+            if last {
                 let next = chunk.first_row + chunk.readings.rows() as u64;
                 // The sink may swap the columns for empty ones to fill next.
                 sink(&mut chunk)?;
@@ -521,13 +606,16 @@ impl IntervalSums {
     /// start again from zero.
     fn flush(
         &mut self,
-        tr: &mut Truth,
+        rows: &mut TruthRows,
         net: &Network,
         walk: &Walk,
         timelines: &[Timeline],
         step: u64,
     ) {
         let kf = self.k_int as f64;
+        // x / 1 is x exactly: at one step per interval the divisions go.
+        let one = self.k_int == 1;
+        let mean = move |x: f64| if one { x } else { x / kf } as f32;
         let ms = self.max_states;
         // Unmetered loads are in the meters; in truth only as their sum.
         let mut unmetered = 0.0;
@@ -538,21 +626,26 @@ impl IntervalSums {
                 .iter_mut()
                 .for_each(|c| *c = 0);
         }
+        let mut c = 0;
         for k in 0..self.metered {
-            tr.app_p[k].push((self.p[k] / kf) as f32);
-            tr.app_q[k].push((self.q[k] / kf) as f32);
-            for (j, &x) in net.apps[k].lines.iter().enumerate() {
-                tr.app_line_p[k][j].push((self.line_p[k][x] / kf) as f32);
+            rows.put(c, mean(self.p[k]));
+            rows.put(c + 1, mean(self.q[k]));
+            c += 2;
+            for &x in &net.apps[k].lines {
+                rows.put(c, mean(self.line_p[k][x]));
+                c += 1;
             }
             let st = self.held_state(k, walk.state[k]);
-            tr.app_state[k].push(st as u16);
-            if let Some(col) = tr.app_soc[k].as_mut() {
+            rows.put_state(k, st as u16);
+            if rows.soc[k] {
                 let soc = timelines[k].level_at(walk.pos[k], step + 1);
-                col.push(soc.unwrap_or(0.0) as f32);
+                rows.put(c, soc.unwrap_or(0.0) as f32);
+                c += 1;
             }
             self.reset(k);
         }
-        tr.unmetered_p.push(unmetered as f32);
+        rows.put(c, unmetered as f32);
+        rows.end_row();
     }
 
     /// The state load `k` held for the greater part of the interval (the
