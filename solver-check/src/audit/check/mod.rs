@@ -1,0 +1,242 @@
+//! From the steps and the declaration to findings, with no training data.
+//!
+//! 1. Metering. Each way the CTs could really sit is a hypothesis: channel c
+//!    reads k·u·S_b, the power of conductor b seen with channel c's voltage
+//!    (u = V_c/V_b, a CT clamped on another line than its channel's: −1 on
+//!    a split-phase supply, e^{±j120°} on a wye) and sign k (a CT clamped the
+//!    wrong way round); or the channels exchanged whole (labels, or CT and
+//!    voltage lead together: u = 1). A hypothesis is admissible when the
+//!    conductor powers it implies are not negative (a home that only
+//!    consumes; stated in the report). Among the admissible ones, the one
+//!    under which the declared appliances' steps explain the most observed
+//!    steps wins; the declared metering, then the simplest, wins ties.
+//! 2. Appliances. Under that metering, each appliance's steps are predicted
+//!    for its declared wiring and for every other one; the steps that fit
+//!    one and no other declared appliance are counted for each. A wiring
+//!    that explains several times more steps than the declared one is a
+//!    finding; too few steps, or steps that other appliances would explain
+//!    as well, is reported as undecidable.
+//! 3. Large recurring steps no declared appliance explains are clustered;
+//!    their connection is the one whose split fits them best (least squares
+//!    over the channels).
+//!
+//! One file per stage (`metering`, `placement`, `undeclared`), beside the
+//! matching of steps they share (`fit`), the findings and their doubts
+//! (`finding`) and the cut-offs (`thresholds`); this file runs the stages
+//! in order.
+
+mod finding;
+mod fit;
+mod metering;
+mod placement;
+#[cfg(test)]
+mod testkit;
+mod thresholds;
+mod undeclared;
+
+pub use finding::{Finding, Kind, Verdict};
+pub use fit::{connection_of, TOL_ABS_V_W, TOL_ABS_W, TOL_REL, TOL_REL_V, USE_STEP};
+pub use metering::{declared_metering, ChanMap, Metering};
+pub use placement::{indistinct, uncheckable, uncheckable_in, ApplianceCheck};
+pub use thresholds::Thresholds;
+
+use crate::audit::decl::Declared;
+use crate::audit::events::{ChannelStats, Event};
+use crate::contract::line_name;
+use finding::sort_findings;
+use fit::Ctx;
+use metering::{
+    absent_channels, channel_findings, choose_metering, metering_confidence, metering_findings,
+    silent_channel_accounts, simpler_metering,
+};
+use placement::{indistinct_notes, place};
+use serde_json::json;
+use undeclared::{coincidences, metered_energy_wh, steps_fit, undeclared};
+
+/// What the checks of a declaration against the data concluded.
+#[derive(Clone, Debug)]
+pub struct Outcome {
+    /// The confidence below which findings are listed as possible.
+    pub possible_below: f64,
+    /// Findings of confidence `POSSIBLE` or more.
+    pub findings: Vec<Finding>,
+    /// Findings below that: listed apart, as what an installer may look at.
+    pub possible: Vec<Finding>,
+    /// In a partial declaration, the recurring loads it does not list: not
+    /// mistakes, but what the rest of the home is.
+    pub unlisted: Vec<Finding>,
+    /// The placement check of each declared appliance.
+    pub appliances: Vec<ApplianceCheck>,
+    /// The metering the data fits best (the declared one unless a fault was found).
+    pub metering: Metering,
+    /// Steps of 100 VA or more the checks used.
+    pub steps: usize,
+    /// Of those, the steps the declared appliances explain.
+    pub steps_explained: usize,
+    /// Remarks on what the data can and cannot tell, in words.
+    pub notes: Vec<String>,
+}
+
+/// The audit's findings with the standard cut-offs (see [`check_with`]).
+pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s: f64) -> Outcome {
+    check_with(d, events, stats, interval_s, &Thresholds::STANDARD)
+}
+
+/// Metering, placement and undeclared loads, from the steps `events` and
+/// channel statistics of a meters table at `interval_s`, against
+/// declaration `d`, deciding by the cut-offs `th`.
+pub fn check_with(
+    d: &Declared,
+    events: &[Event],
+    stats: &[ChannelStats],
+    interval_s: f64,
+    th: &Thresholds,
+) -> Outcome {
+    let n = d.supply.lines();
+    let absent = absent_channels(d, stats);
+    let (mut findings, mut notes) = channel_findings(d, events, stats, th);
+    let absent: Vec<bool> = (0..n)
+        .map(|c| absent[c] || findings.iter().any(|f| f.subject == line_name(c)))
+        .collect();
+    let big: Vec<&Event> = events.iter().filter(|e| e.size() >= 150.0).collect();
+    // 1. Metering.
+    let mc = choose_metering(d, stats, &absent, &big, th);
+    let (decl_i, mut chosen) = (mc.decl_i, mc.chosen);
+    let (decl_apps, decl_ex, decl_neg) = (
+        mc.scored[decl_i].1,
+        mc.scored[decl_i].2,
+        mc.scored[decl_i].3,
+    );
+    // 2. Appliances, under the metering chosen; several appliances moved
+    // where one metering fault explains as much is the less simple account.
+    let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
+    let mut m = mc.hyps[chosen].0.clone();
+    let mut cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
+    let mut moves = Vec::new();
+    let (mut checks, mut placed) = place(d, &m, &used, &cxs, interval_s, &mut moves, th);
+    let mut replaced = 0;
+    if chosen == decl_i && moves.len() >= 2 {
+        if let Some(alt) = simpler_metering(d, &mc.decl_m, &placed, &big, &mc.scored, decl_i, th) {
+            (chosen, replaced) = (alt, moves.len());
+            m = mc.hyps[chosen].0.clone();
+            cxs = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
+            moves.clear();
+            (checks, placed) = place(d, &m, &used, &cxs, interval_s, &mut moves, th);
+        }
+    }
+    let (ch_apps, ch_ex) = (mc.scored[chosen].1, mc.scored[chosen].2);
+    if chosen != decl_i {
+        let conf = metering_confidence(
+            &mc.scored[decl_i],
+            &mc.scored[chosen],
+            big.len(),
+            replaced,
+            th,
+        );
+        let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg, "appliance_moves_replaced": replaced });
+        metering_findings(d, &mc.decl_m, &m, conf, ev, &mut findings);
+        silent_channel_accounts(&m, &mut findings, &mut notes);
+    }
+    findings.extend(moves);
+    notes.push(format!("metering: {ch_apps} appliances and {ch_ex} of {} steps of 150 VA or more fit under the metering found ({decl_apps} and {decl_ex} as declared)", big.len()));
+    notes.extend(indistinct_notes(d));
+    // 3. Undeclared recurring loads.
+    let fit = steps_fit(d, &m, &used, &cxs, &placed, interval_s);
+    let total_wh = metered_energy_wh(stats, &absent, &m, interval_s);
+    let hours = stats.iter().map(|s| s.rows).max().unwrap_or(0) as f64 * interval_s / 3600.0;
+    let sums = coincidences(d, &m, &placed, &used, interval_s, hours);
+    undeclared(d, &m, &used, &fit, &sums, total_wh, &mut findings, th);
+    let steps_explained = fit.iter().filter(|x| **x).count();
+    let (findings, possible, unlisted) =
+        sort_findings(d, findings, &placed, &checks, interval_s, th);
+    if steps_explained * 2 < used.len() {
+        notes.push(format!("the declaration explains {steps_explained} of {} steps of 100 VA or more: many loads are not declared{}", used.len(), if d.partial { " (it says it is partial); the metering and placement checks rest on the declared appliances alone" } else { "; if it lists only some appliances, say so with [declaration] partial = true" }));
+    }
+    Outcome {
+        possible_below: th.possible,
+        findings,
+        possible,
+        unlisted,
+        appliances: checks,
+        metering: m,
+        steps: used.len(),
+        steps_explained,
+        notes,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::audit::check::testkit::{on_off, split_phase, H};
+    use crate::contract::C64;
+
+    /// A left-out 1100 W load on L1-N whose stops share their interval with
+    /// a 140 W change on L2 is still one load; a declared 600 W pump on L2-N
+    /// whose starts share theirs with a 100 W change on L1 is still the pump.
+    #[test]
+    fn a_change_on_another_channel_in_the_same_interval_is_another_loads() {
+        let d = split_phase(vec![on_off("pump", 1, C64::new(600.0, 450.0))]);
+        let step = |t: i64, l1: C64, l2: C64| Event {
+            time_ms: t,
+            delta: vec![l1, l2],
+            before: vec![C64::new(300.0, 0.0); 2],
+            v_before: vec![120.0; 2],
+            v_after: vec![120.0; 2],
+            se: vec![2.0; 2],
+        };
+        let (heat, other) = (C64::new(1100.0, 0.0), C64::new(140.0, 0.0));
+        let (run, blip) = (C64::new(600.0, 450.0), C64::new(100.0, 0.0));
+        let mut events = Vec::new();
+        for i in 0..10 {
+            let t = i * 6 * H;
+            events.push(step(t, heat, C64::ZERO));
+            events.push(step(
+                t + H / 4,
+                -heat,
+                if i % 2 == 0 { -other } else { other },
+            ));
+            events.push(step(t + 3 * H, blip, run));
+            events.push(step(t + 3 * H + H / 8, C64::ZERO, -run));
+        }
+        let stats = vec![
+            ChannelStats {
+                rows: 86_400,
+                null: 0,
+                zero: 0,
+                sum_p: 300.0 * 86_400.0,
+                negative: vec![[0, 86_400]; 2]
+            };
+            2
+        ];
+        let o = check(&d, &events, &stats, 10.0);
+        let found: Vec<(&str, &str)> = o
+            .findings
+            .iter()
+            .map(|f| (f.kind.name(), f.subject.as_str()))
+            .collect();
+        assert_eq!(
+            found,
+            [("undeclared-load", "1100 W on L1-N")],
+            "{:?}",
+            o.findings.iter().map(|f| &f.message).collect::<Vec<_>>()
+        );
+        assert_eq!(
+            (
+                o.findings[0].evidence["starts"].as_u64(),
+                o.findings[0].evidence["stops"].as_u64()
+            ),
+            (Some(10), Some(10))
+        );
+        assert_eq!(o.steps_explained, 20, "the pump's starts and stops");
+        // The cut-offs are one value: above its confidence, it is possible.
+        let th = Thresholds {
+            possible: 1.01,
+            ..Thresholds::STANDARD
+        };
+        let o = check_with(&d, &events, &stats, 10.0, &th);
+        assert!(o.findings.is_empty());
+        assert_eq!(o.possible.len(), 1);
+        assert_eq!(o.possible_below, 1.01);
+    }
+}

@@ -1,0 +1,684 @@
+//! Stage 2, placement: each declared appliance on its declared wiring or
+//! on another the steps support much better (wrong line or phase, line-to-line
+//! declared line-to-neutral and back), rated draws at their size on every
+//! connection, and the moves made one at a time.
+
+use super::finding::{Finding, Kind, Verdict};
+use super::fit::{
+    dist_model, distances, shape_of, visible, Ctx, Model, Pred, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
+};
+use super::metering::{permutations, Metering};
+use super::thresholds::Thresholds;
+use crate::audit::decl::{DeclAppliance, Declared};
+use crate::audit::events::Event;
+use crate::contract::{Wiring, C64};
+use serde_json::json;
+
+/// The placement check of one declared appliance.
+#[derive(Clone, Debug)]
+pub struct ApplianceCheck {
+    /// The appliance id.
+    pub id: String,
+    /// Its wiring as declared (`L1-N`).
+    pub declared: String,
+    /// What the audit concluded about it.
+    pub verdict: Verdict,
+    /// The wiring the data shows, where it differs from the declared.
+    pub seen: Option<String>,
+    /// Why the verdict, in words.
+    pub reason: String,
+    /// Steps that fit it on its declared wiring.
+    pub steps_declared: usize,
+    /// Steps that fit it on the best other wiring.
+    pub steps_best_other: usize,
+}
+
+/// Other wirings an appliance could have: for one connection, every other
+/// one of the supply; for several, the lines renamed.
+pub(super) fn alternatives(d: &Declared, a: &DeclAppliance) -> Vec<(String, DeclAppliance)> {
+    let n = d.supply.lines();
+    let ws = a.wirings();
+    if ws.len() == 1 {
+        Wiring::all(n)
+            .into_iter()
+            .filter(|w| *w != ws[0])
+            .map(|w| (w.name(), a.rewired_on(&d.supply, |_| w)))
+            .collect()
+    } else {
+        permutations(n)
+            .into_iter()
+            .skip(1)
+            .map(|p| {
+                let b = a.rewired_on(&d.supply, |w| w.permuted(&p));
+                (
+                    b.wirings()
+                        .iter()
+                        .map(|w| w.name())
+                        .collect::<Vec<_>>()
+                        .join(" + "),
+                    b,
+                )
+            })
+            .collect()
+    }
+}
+
+pub(super) fn wiring_names(a: &DeclAppliance) -> String {
+    a.wirings()
+        .iter()
+        .map(|w| w.name())
+        .collect::<Vec<_>>()
+        .join(" + ")
+}
+
+pub(super) fn kind_of(decl: &DeclAppliance, seen: &DeclAppliance) -> Kind {
+    let (dw, sw) = (decl.wirings(), seen.wirings());
+    let ll = |v: &[Wiring]| v.iter().any(|w| w.is_line_to_line());
+    let tp = |v: &[Wiring]| v.contains(&Wiring::ThreePhase);
+    if tp(&dw) || tp(&sw) {
+        Kind::WrongConnection
+    } else if ll(&dw) && !ll(&sw) {
+        Kind::DeclaredLlSeenLn
+    } else if !ll(&dw) && ll(&sw) {
+        Kind::DeclaredLnSeenLl
+    } else {
+        Kind::WrongLine
+    }
+}
+
+/// Why an appliance cannot be checked from the declaration alone, if so:
+/// no fixed step, or a step too small. (Used to pick fault-matrix targets.)
+pub fn uncheckable(a: &DeclAppliance) -> Option<String> {
+    match &a.steps {
+        crate::audit::decl::Steps::None(why) => Some((*why).into()),
+        crate::audit::decl::Steps::Wanders { jumps, .. } if jumps.is_empty() => {
+            Some("its power wanders continuously".into())
+        }
+        _ if a.largest_step_w() < Thresholds::STANDARD.decide_w => Some(format!(
+            "its largest step, {:.0} W, is below the {:.0} W the audit decides on",
+            a.largest_step_w(),
+            Thresholds::STANDARD.decide_w
+        )),
+        _ => None,
+    }
+}
+
+/// Why an appliance of declaration `d` cannot be placed, if so: as
+/// [`uncheckable`], except that a draw with a rated voltage counts at its
+/// size on every connection it could be on. A 1 kW, 240 V heater declared
+/// line-to-neutral is taken at 250 W there, below the size the audit
+/// decides on, but it is 1 kW (or 750 W at 208 V) across two lines, where
+/// the steps of a heater misdeclared so show.
+pub fn uncheckable_in(d: &Declared, a: &DeclAppliance, th: &Thresholds) -> Option<String> {
+    let why = uncheckable(a)?;
+    if a.steps.jumps().is_empty() {
+        return Some(why);
+    }
+    let anywhere = alternatives(d, a)
+        .iter()
+        .map(|(_, b)| b.largest_step_w())
+        .fold(a.largest_step_w(), f64::max);
+    (anywhere < th.decide_w).then_some(why)
+}
+
+/// Whether every step of 500 W or more of appliance `j` is, at nominal
+/// voltage, within twice the voltage-aware tolerance of a step of one
+/// other declared appliance (either way round): then the data cannot tell
+/// the two apart, and leaving one out of the declaration cannot be seen.
+/// Returns that other appliance's id.
+pub fn indistinct(d: &Declared, j: usize) -> Option<String> {
+    let own: Vec<Vec<C64>> = d
+        .signatures(&d.appliances[j])
+        .into_iter()
+        .filter(|t| t.iter().map(|c| c.re).sum::<f64>().abs() >= 500.0)
+        .collect();
+    if own.is_empty() {
+        return None;
+    }
+    let close = |a: &[C64], b: &[C64]| {
+        let size = a.iter().map(|c| c.abs()).fold(0.0, f64::max);
+        let tol = 2.0 * (TOL_ABS_V_W + TOL_REL_V * size);
+        a.iter().zip(b).all(|(x, y)| (*x - *y).abs() <= tol)
+            || a.iter().zip(b).all(|(x, y)| (*x + *y).abs() <= tol)
+    };
+    d.appliances
+        .iter()
+        .enumerate()
+        .filter(|(k, _)| *k != j)
+        .find(|(_, o)| {
+            let theirs = d.signatures(o);
+            own.iter().all(|t| theirs.iter().any(|u| close(t, u)))
+        })
+        .map(|(_, o)| o.id.clone())
+}
+
+/// An appliance's fit on another wiring: (steps it alone fits, steps that
+/// fit, who else fits, its steps, the wiring's name, the appliance so wired).
+pub(super) type OtherFit = (
+    usize,
+    Vec<usize>,
+    Vec<usize>,
+    Vec<usize>,
+    String,
+    DeclAppliance,
+);
+
+/// A note for each appliance whose large steps are another's as well.
+pub(super) fn indistinct_notes(d: &Declared) -> Vec<String> {
+    (0..d.appliances.len())
+        .filter_map(|j| {
+            indistinct(d, j).map(|o| {
+                format!("{}: its steps of 500 W or more are those of {o} as well; the data cannot tell the two apart", d.appliances[j].id)
+            })
+        })
+        .collect()
+}
+
+/// Whether a rival `rival` tolerances from a step shares it with an
+/// appliance `me` tolerances from it.
+pub(super) fn shares(me: f64, rival: f64, th: &Thresholds) -> bool {
+    rival <= 1.0 && rival < me + th.clearly_better
+}
+
+/// The finding that appliance `a` is on `alt` (named `found`): `n_a` steps
+/// fit it there, `n_d` as declared (None: the declared wiring goes through
+/// a conductor no working CT reads, and counts as `BLIND_MOVE` steps of
+/// doubt in the confidence).
+pub(super) fn move_finding(
+    d: &Declared,
+    a: &DeclAppliance,
+    alt: &DeclAppliance,
+    found: &str,
+    n_d: Option<usize>,
+    n_a: usize,
+    th: &Thresholds,
+) -> Finding {
+    let declared = wiring_names(a);
+    let step_w = d
+        .signatures(alt)
+        .iter()
+        .map(|t| t.iter().map(|c| c.re).sum::<f64>().abs())
+        .fold(0.0, f64::max);
+    let name = if a.label.is_empty() || a.label == a.id {
+        a.id.clone()
+    } else {
+        format!("{} ({})", a.id, a.label)
+    };
+    let message = match n_d {
+        Some(_) => format!("{name} is declared on {declared} but {n_a} steps of its size that no other appliance explains show on {found}"),
+        None => format!("{name} is declared on {declared}, which no working CT reads, but {n_a} steps of its size that no other appliance explains show on {found}"),
+    };
+    // Either account stays open when its declared wiring cannot be seen,
+    // or when it also shows where declared: the steps elsewhere may be
+    // another load of its size (measured in the outside validation: such
+    // moves were wrong four times in five).
+    let doubt = match n_d {
+        None => Some(format!("{declared} cannot be checked, so a load of its size on {found} that is not {} would look the same", a.id)),
+        _ if d.partial => Some(format!("the declaration is partial, so a load it does not list, of this size on {found}, would look the same while {} was not used", a.id)),
+        Some(k) if k >= th.seen_where_declared => Some(format!("{k} of its steps show where declared too, so the steps on {found} may be another load of its size")),
+        Some(_) => None,
+    };
+    Finding {
+        kind: kind_of(a, alt),
+        subject: a.id.clone(),
+        message,
+        confidence: n_a as f64 / (n_a + n_d.unwrap_or(th.blind_move) + 1) as f64,
+        doubt,
+        evidence: json!({ "steps_as_declared": n_d, "steps_as_found": n_a, "declared": declared, "found": found, "step_w": step_w }),
+    }
+}
+
+/// Share of an appliance's step sizes (its distinct jumps of `USE_STEP`
+/// or more, and of `share` of its largest or more) that at least one of
+/// `steps` fits, under `a`'s wiring:
+/// a hair dryer whose half-heat steps fit but whose full-heat step is never
+/// seen is a poor account of those steps.
+pub(super) fn coverage(
+    d: &Declared,
+    m: &Metering,
+    a: &DeclAppliance,
+    used: &[&Event],
+    cxs: &[Ctx],
+    steps: &[usize],
+    share: f64,
+) -> f64 {
+    let model = Model::of(d, a);
+    let sizes: Vec<f64> = d
+        .signatures(a)
+        .iter()
+        .map(|t| t.iter().map(|c| c.abs()).fold(0.0, f64::max))
+        .collect();
+    let top = sizes.iter().cloned().fold(0.0, f64::max);
+    let (mut big, mut seen) = (0, 0);
+    for (jump, size) in model.jumps.iter().zip(sizes) {
+        if size < USE_STEP || size < share * top {
+            continue;
+        }
+        big += 1;
+        let one = Model {
+            jumps: vec![jump.clone()],
+        };
+        seen += steps
+            .iter()
+            .any(|&k| dist_model(d, m, used[k], &cxs[k], &one, &[]).0 <= 1.0)
+            as usize;
+    }
+    if big == 0 {
+        1.0
+    } else {
+        seen as f64 / big as f64
+    }
+}
+
+/// The move to make first among candidate findings (appliance, steps,
+/// wiring, finding, the steps, coverage): the one with the most steps,
+/// unless another claims mostly the same steps (half of the fewer or more)
+/// and shows more of its own step sizes among them. Two appliances with a
+/// step of one size, one misdeclared, both fit the misdeclared one's steps
+/// on its true line; the one whose other steps are there too is the one
+/// that is there (common practice, no source).
+pub(super) fn contest(mut c: Vec<Candidate>) -> Option<Candidate> {
+    // Most steps first; the earlier appliance on a tie.
+    c.sort_by_key(|x| (usize::MAX - x.1, x.0));
+    let top = c.first()?;
+    let overlap = |x: &[usize], y: &[usize]| {
+        x.iter().filter(|k| y.contains(k)).count() * 2 >= x.len().min(y.len())
+    };
+    let pick = (0..c.len())
+        .filter(|&i| i == 0 || overlap(&c[i].4, &top.4))
+        .max_by(|&i, &k| c[i].5.total_cmp(&c[k].5).then(k.cmp(&i)))?;
+    Some(c.swap_remove(pick))
+}
+
+/// A candidate move: (appliance, steps, wiring, finding, the steps, share
+/// of its step sizes among them).
+pub(super) type Candidate = (usize, usize, DeclAppliance, Finding, Vec<usize>, f64);
+
+/// One round of placement: the appliances as placed so far and each step's
+/// distance from them, against which every appliance is weighed.
+pub(super) struct Round<'a> {
+    d: &'a Declared,
+    m: &'a Metering,
+    used: &'a [&'a Event],
+    cxs: &'a [Ctx],
+    th: &'a Thresholds,
+    /// Conductors some working channel reads.
+    seen: &'a [bool],
+    placed: &'a [DeclAppliance],
+    sigs: Vec<Pred>,
+    /// Each step's distance from each appliance as placed.
+    dj: Vec<Vec<f64>>,
+}
+
+impl Round<'_> {
+    /// A conductor the wiring of `a` goes through that no working channel
+    /// reads: a wiring through it cannot be told from the data.
+    fn blind(&self, a: &DeclAppliance) -> Option<usize> {
+        let n = self.d.supply.lines();
+        a.wirings()
+            .iter()
+            .flat_map(|w| w.lines(n))
+            .find(|&x| !self.seen[x])
+    }
+
+    /// Steps that fit a wiring `sg` of appliance `j` and no other appliance
+    /// as placed nearly as well (exclusive), all that fit, who else fits,
+    /// and the exclusive steps.
+    fn excl(&self, j: usize, sg: &Pred) -> (usize, Vec<usize>, Vec<usize>, Vec<usize>) {
+        let na = self.d.appliances.len();
+        let (mut x, mut all, mut who, mut mine) = (0, Vec::new(), Vec::new(), Vec::new());
+        for (k, e) in self.used.iter().enumerate() {
+            let me = sg.dist(self.d, self.m, e, &self.cxs[k]);
+            if me <= 1.0 {
+                all.push(k);
+                let dk = &self.dj[k];
+                let rival = (0..na)
+                    .filter(|&o| o != j && shares(me, dk[o], self.th))
+                    .min_by(|&a, &b| dk[a].total_cmp(&dk[b]));
+                match rival {
+                    Some(o) => who.push(o),
+                    None => {
+                        x += 1;
+                        mine.push(k);
+                    }
+                }
+            }
+        }
+        (x, all, who, mine)
+    }
+
+    /// The best other wiring of appliance `j` (as placed, `a`) that a
+    /// working CT reads.
+    fn best_other(&self, j: usize, a: &DeclAppliance) -> OtherFit {
+        let mut best: Option<OtherFit> = None;
+        for (name, alt) in alternatives(self.d, a) {
+            let sg = Pred::of(self.d, self.m, &alt);
+            if !visible(&sg.nom) || self.blind(&alt).is_some() {
+                continue;
+            }
+            let (x, all, who, mine) = self.excl(j, &sg);
+            if best
+                .as_ref()
+                .is_none_or(|b| (x, all.len()) > (b.0, b.1.len()))
+            {
+                best = Some((x, all, who, mine, name, alt));
+            }
+        }
+        best.unwrap_or((0, vec![], vec![], vec![], String::new(), a.clone()))
+    }
+
+    /// The check of appliance `j` (`moved` once a finding has moved it), and
+    /// the move the steps support, if any.
+    fn check(&self, j: usize, moved: bool) -> (ApplianceCheck, Option<Candidate>) {
+        let a = &self.placed[j];
+        let declared = wiring_names(&self.d.appliances[j]);
+        let mut ck = ApplianceCheck {
+            id: a.id.clone(),
+            declared: declared.clone(),
+            verdict: Verdict::Undecidable,
+            seen: None,
+            reason: String::new(),
+            steps_declared: 0,
+            steps_best_other: 0,
+        };
+        if a.steps.jumps().is_empty() {
+            ck.reason = match &a.steps {
+                crate::audit::decl::Steps::None(why) => format!("{why}: no step to recognise"),
+                _ => "its power wanders continuously: no fixed step to place it by".into(),
+            };
+            return (ck, None);
+        }
+        if moved {
+            let seen = wiring_names(a);
+            let (n_a, ..) = self.excl(j, &self.sigs[j]);
+            ck.verdict = Verdict::Finding;
+            ck.reason = format!("{n_a} steps fit it on {seen}");
+            ck.seen = Some(seen);
+            ck.steps_best_other = n_a;
+            return (ck, None);
+        }
+        if let Some(x) = self.blind(a) {
+            let cand = self.check_blind(j, a, x, &mut ck);
+            return (ck, cand);
+        }
+        if let Some(why) = uncheckable_in(self.d, a, self.th) {
+            ck.reason = why;
+            return (ck, None);
+        }
+        if !visible(&self.sigs[j].nom) {
+            ck.reason = "its steps are too small to see".into();
+            return (ck, None);
+        }
+        let cand = self.weigh(j, a, &declared, &mut ck);
+        (ck, cand)
+    }
+
+    /// Appliance `j` declared through conductor `x`, which no working CT
+    /// reads: its absence there cannot be seen, but its steps elsewhere
+    /// can: many of them, fitting no other appliance, place it.
+    fn check_blind(
+        &self,
+        j: usize,
+        a: &DeclAppliance,
+        x: usize,
+        ck: &mut ApplianceCheck,
+    ) -> Option<Candidate> {
+        let (d, m, th) = (self.d, self.m, self.th);
+        ck.reason = format!(
+            "its wiring goes through L{}, which no working CT reads",
+            x + 1
+        );
+        if uncheckable_in(d, a, th).is_some() {
+            return None;
+        }
+        let (n_a, all_a, _, mine, name_a, alt) = self.best_other(j, a);
+        ck.steps_best_other = n_a;
+        let whole = n_a >= th.blind_move
+            && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
+        if whole {
+            let f = move_finding(d, a, &alt, &name_a, None, n_a, th);
+            let cover = coverage(d, m, &alt, self.used, self.cxs, &mine, 0.0);
+            ck.reason = format!("{n_a} steps fit it on {name_a}; its declared wiring goes through L{}, which no working CT reads", x + 1);
+            return Some((j, n_a, alt, f, mine, cover));
+        }
+        if n_a >= th.blind_move {
+            ck.reason += &format!(" ({n_a} steps fit it on {name_a} and no other appliance, but not every one of its main step sizes shows there)");
+        } else if n_a > 0 {
+            ck.reason += &format!(
+                " ({n_a} steps fit it on {name_a} and no other appliance; {} would place it there)",
+                th.blind_move
+            );
+        }
+        None
+    }
+
+    /// Appliance `j` (as placed, `a`; wired `declared`) weighed as declared
+    /// against its best other wiring.
+    fn weigh(
+        &self,
+        j: usize,
+        a: &DeclAppliance,
+        declared: &str,
+        ck: &mut ApplianceCheck,
+    ) -> Option<Candidate> {
+        let (d, m, th) = (self.d, self.m, self.th);
+        let (n_d, ..) = self.excl(j, &self.sigs[j]);
+        ck.steps_declared = n_d;
+        let (n_a, all_a, who, mine, name_a, alt) = self.best_other(j, a);
+        ck.steps_best_other = n_a;
+        // An appliance that shows where declared, each of its main
+        // step sizes there, stays there: steps of its size elsewhere
+        // are another load's (left to the undeclared loads), not a
+        // reason to move it.
+        let stays = n_d >= th.shows_as_declared && {
+            let (.., mine_d) = self.excl(j, &self.sigs[j]);
+            coverage(d, m, a, self.used, self.cxs, &mine_d, th.whole_share) >= 1.0
+        };
+        let moves = !stays && n_a >= 3 && n_a >= 3 * n_d + 2;
+        let whole =
+            moves && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
+        if whole {
+            let f = move_finding(d, a, &alt, &name_a, Some(n_d), n_a, th);
+            let cover = coverage(d, m, &alt, self.used, self.cxs, &mine, 0.0);
+            ck.reason = format!("{n_a} steps fit it on {name_a}, {n_d} on {declared}");
+            return Some((j, n_a, alt, f, mine, cover));
+        }
+        if moves {
+            ck.reason = format!("{n_a} steps fit it on {name_a} and no other appliance, {n_d} on {declared}, but not every one of its main step sizes shows there: too little to place it");
+        } else if n_d >= 2 {
+            ck.verdict = Verdict::AsDeclared;
+            ck.reason =
+                format!("{n_d} steps fit it as declared, at most {n_a} on any other connection");
+        } else if all_a.len() >= 3 {
+            let mut who: Vec<String> = who.iter().map(|&o| self.placed[o].id.clone()).collect();
+            who.sort();
+            who.dedup();
+            ck.reason = format!(
+                "{} steps would fit it on {name_a}, but they fit {} as well",
+                all_a.len(),
+                who.join(", ")
+            );
+        } else {
+            ck.reason = format!("seen switching {n_d} times as declared and {n_a} times otherwise: too few to decide");
+        }
+        None
+    }
+}
+
+/// Places every appliance: its wiring as declared, or another one the
+/// steps support much better. Greedy: the best-supported finding is taken
+/// first and the appliance moved before the others are weighed again, so
+/// steps one misdeclared appliance leaves behind are not pinned on another.
+/// Returns the checks and the appliances as placed.
+pub(super) fn place(
+    d: &Declared,
+    m: &Metering,
+    used: &[&Event],
+    cxs: &[Ctx],
+    interval_s: f64,
+    findings: &mut Vec<Finding>,
+    th: &Thresholds,
+) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>) {
+    let n = d.supply.lines();
+    let seen: Vec<bool> = (0..n)
+        .map(|b| (0..n).any(|c| !m.absent[c] && m.map[c].src == b))
+        .collect();
+    let mut placed: Vec<DeclAppliance> = d.appliances.clone();
+    let mut moved = vec![false; placed.len()];
+    loop {
+        let sigs: Vec<Pred> = placed.iter().map(|a| Pred::of(d, m, a)).collect();
+        let shapes: Vec<Option<Vec<Option<C64>>>> =
+            placed.iter().map(|a| shape_of(d, m, a)).collect();
+        let dj = distances(d, m, used, cxs, &sigs, &shapes, interval_s);
+        let round = Round {
+            d,
+            m,
+            used,
+            cxs,
+            th,
+            seen: &seen,
+            placed: &placed,
+            sigs,
+            dj,
+        };
+        let mut checks = Vec::new();
+        let mut candidates: Vec<Candidate> = Vec::new();
+        for (j, was_moved) in moved.iter().enumerate() {
+            let (ck, cand) = round.check(j, *was_moved);
+            checks.push(ck);
+            candidates.extend(cand);
+        }
+        match contest(candidates) {
+            Some((j, _, alt, f, ..)) => {
+                placed[j] = alt;
+                moved[j] = true;
+                findings.push(f);
+            }
+            None => return (checks, placed),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::audit::check::testkit::{on_off, split_phase};
+
+    /// The fault-matrix case the rule was made for (10 s): a hair dryer's
+    /// half-heat step 0.22 tolerances from its own and 0.81 from a
+    /// washer's heater step is the dryer's; 0.35 against 0.39 is shared.
+    #[test]
+    fn a_step_is_shared_only_with_a_rival_that_fits_nearly_as_well() {
+        let th = &Thresholds::STANDARD;
+        assert!(!shares(0.22, 0.81, th));
+        assert!(shares(0.35, 0.39, th));
+        assert!(shares(0.9, 0.2, th));
+        assert!(!shares(0.2, 1.05, th));
+    }
+
+    /// Placement stage: a 1 kW, 240 V heater declared on L1-N is taken at
+    /// 250 W there, (120/240)² of its power (P = V²/R), but it is placed by
+    /// its 1 kW across the two lines.
+    #[test]
+    fn a_rated_draw_is_placed_by_its_size_on_every_connection() {
+        let mut a = on_off("heater", 0, C64::new(1000.0, 0.0));
+        a.states[1][0].wiring = Wiring::LineLine(0, 1);
+        a.states[1][0].rated_v = Some(240.0);
+        a.states[1][0].zip_p = crate::contract::Zip {
+            z: 1.0,
+            i: 0.0,
+            p: 0.0,
+        };
+        let d0 = split_phase(vec![]);
+        let on_ln = a.rewired_on(&d0.supply, |_| Wiring::LineNeutral(0));
+        assert!((on_ln.largest_step_w() - 250.0).abs() < 1e-6);
+        let d = split_phase(vec![on_ln.clone()]);
+        assert!(uncheckable(&on_ln).is_some(), "250 W alone is too small");
+        assert_eq!(uncheckable_in(&d, &on_ln, &Thresholds::STANDARD), None);
+    }
+
+    /// Placement stage: a move is doubted (listed as possible) when the
+    /// declaration is partial, when the declared wiring cannot be read, or
+    /// when a run shows where declared too; not when nothing shows there.
+    #[test]
+    fn a_move_another_account_fits_is_only_possible() {
+        let th = &Thresholds::STANDARD;
+        let a = on_off("kettle", 0, C64::new(1500.0, 0.0));
+        let alt = on_off("kettle", 1, C64::new(1500.0, 0.0));
+        let mut d = split_phase(vec![a.clone()]);
+        let f = |d: &Declared, n_d: Option<usize>| move_finding(d, &a, &alt, "L2-N", n_d, 20, th);
+        assert!(f(&d, Some(0)).doubt.is_none());
+        assert!(
+            f(&d, Some(1)).doubt.is_none(),
+            "one step is as likely another load's"
+        );
+        assert!(f(&d, Some(2)).doubt.is_some());
+        assert!(f(&d, None).doubt.is_some());
+        d.partial = true;
+        assert!(f(&d, Some(0)).doubt.is_some());
+        assert_eq!(f(&d, Some(0)).kind, Kind::WrongLine);
+    }
+
+    /// Of moves claiming mostly the same steps, the one showing more of its
+    /// own step sizes is made; otherwise the one with the most steps, the
+    /// earlier appliance on a tie.
+    #[test]
+    fn the_move_made_first() {
+        let cand = |j: usize, steps: Vec<usize>, cover: f64| {
+            let a = on_off(&format!("a{j}"), 0, C64::new(1000.0, 0.0));
+            let f = Finding {
+                kind: Kind::WrongLine,
+                subject: a.id.clone(),
+                message: String::new(),
+                confidence: 0.5,
+                evidence: json!({}),
+                doubt: None,
+            };
+            (j, steps.len(), a, f, steps, cover)
+        };
+        let pick = |c: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)>| {
+            contest(c).map(|x| x.0)
+        };
+        assert_eq!(pick(vec![]), None);
+        assert_eq!(
+            pick(vec![
+                cand(0, vec![1, 2, 3], 1.0),
+                cand(1, vec![4, 5, 6, 7], 1.0)
+            ]),
+            Some(1),
+            "most steps"
+        );
+        assert_eq!(
+            pick(vec![
+                cand(0, vec![1, 2, 3], 1.0),
+                cand(1, vec![4, 5, 6], 1.0)
+            ]),
+            Some(0),
+            "a tie: the earlier"
+        );
+        assert_eq!(
+            pick(vec![
+                cand(0, vec![1, 2, 3, 4, 5, 6], 2.0 / 3.0),
+                cand(1, vec![1, 2, 3, 4, 5, 6], 1.0)
+            ]),
+            Some(1),
+            "the same steps: the whole account"
+        );
+        assert_eq!(
+            pick(vec![
+                cand(0, vec![1, 2, 3, 4, 5, 6], 0.5),
+                cand(1, vec![4, 5, 6, 9], 1.0)
+            ]),
+            Some(1),
+            "half of the fewer shared"
+        );
+        assert_eq!(
+            pick(vec![
+                cand(0, vec![1, 2, 3, 4, 5, 6], 0.5),
+                cand(1, vec![6, 7, 8, 9], 1.0)
+            ]),
+            Some(0),
+            "other steps: not a rival"
+        );
+    }
+}

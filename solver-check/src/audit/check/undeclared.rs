@@ -1,0 +1,511 @@
+//! Stage 3, undeclared loads: steps no declared appliance explains,
+//! clustered by connection and size, tested against coincidences of two
+//! declared appliances, with their energy share.
+
+use super::finding::{Finding, Kind};
+use super::fit::{
+    connection_of, dist_delta, distances, fits, predicted, shape_of, Ctx, Pred, USE_STEP,
+};
+use super::metering::Metering;
+use super::thresholds::Thresholds;
+use crate::audit::decl::{DeclAppliance, Declared};
+use crate::audit::events::{ChannelStats, Event};
+use crate::contract::{Wiring, C64};
+use serde_json::json;
+
+/// Which of the steps `used` an appliance as placed explains.
+pub(super) fn steps_fit(
+    d: &Declared,
+    m: &Metering,
+    used: &[&Event],
+    cxs: &[Ctx],
+    placed: &[DeclAppliance],
+    interval_s: f64,
+) -> Vec<bool> {
+    let explain: Vec<Pred> = placed.iter().map(|a| Pred::of(d, m, a)).collect();
+    let own: Vec<Option<Vec<Option<C64>>>> = placed.iter().map(|a| shape_of(d, m, a)).collect();
+    let dj = distances(d, m, used, cxs, &explain, &own, interval_s);
+    let mut fit: Vec<bool> = dj.iter().map(|r| r.iter().any(|x| *x <= 1.0)).collect();
+    // A step whose part on the channels it mainly changes (a quarter of its
+    // largest or more) fits a declared appliance, the rest being a smaller
+    // change on another channel in the same interval, is that appliance's
+    // and another load's (common at 10 s): explained, not a load of its own.
+    for (k, e) in used.iter().enumerate() {
+        if fit[k] || e.size() < 400.0 {
+            continue;
+        }
+        let top = e.size();
+        let mut main = (*e).clone();
+        let mut minor = false;
+        for x in main.delta.iter_mut() {
+            if x.abs() < 0.25 * top && x.abs() > 0.0 {
+                *x = C64::ZERO;
+                minor = true;
+            }
+        }
+        fit[k] = minor && explain.iter().any(|p| p.dist(d, m, &main, &cxs[k]) <= 1.0);
+    }
+    fit
+}
+
+/// The energy the working channels read under the metering `m`, in Wh.
+pub(super) fn metered_energy_wh(
+    stats: &[ChannelStats],
+    absent: &[bool],
+    m: &Metering,
+    interval_s: f64,
+) -> f64 {
+    stats
+        .iter()
+        .enumerate()
+        .filter(|(c, _)| !absent[*c])
+        // Under the metering found: a reversed CT's sum counts as the
+        // conductor's (positive) energy, not against the others'.
+        .map(|(c, s)| m.map[c].k * s.sum_p)
+        .sum::<f64>()
+        * interval_s
+        / 3600.0
+}
+
+/// The first few of some event times, as UTC timestamps (evidence a user
+/// can look up in the data).
+pub(super) fn first(ms: &[i64]) -> Vec<String> {
+    ms.iter()
+        .take(5)
+        .map(|&t| {
+            jiff::Timestamp::from_millisecond(t)
+                .map(|t| t.to_string())
+                .unwrap_or_default()
+        })
+        .collect()
+}
+
+/// The first few of some event times as local times in zone `tz`
+/// ("Mon 2027-01-04 09:01"), what an installer can ask the household about.
+pub(super) fn first_local(ms: &[i64], tz: &str) -> Vec<String> {
+    let zone = jiff::tz::TimeZone::get(tz).unwrap_or(jiff::tz::TimeZone::UTC);
+    ms.iter()
+        .take(3)
+        .filter_map(|&t| jiff::Timestamp::from_millisecond(t).ok())
+        .map(|t| {
+            t.to_zoned(zone.clone())
+                .strftime("%a %Y-%m-%d %H:%M")
+                .to_string()
+        })
+        .collect()
+}
+
+/// Each start (ms, in order) paired with the next stop within 12 h.
+pub(super) fn start_stop_pairs(on: &[i64], off: &[i64]) -> Vec<(i64, i64)> {
+    let mut out = Vec::new();
+    let mut j = 0;
+    for (i, &t) in on.iter().enumerate() {
+        while j < off.len() && off[j] <= t {
+            j += 1;
+        }
+        // The stop must come before the load's next start: a start whose
+        // stop was not seen (it fell among other changes) does not borrow
+        // a later cycle's stop.
+        let next = on.get(i + 1).copied().unwrap_or(i64::MAX);
+        if j < off.len() && off[j] - t <= 12 * 3_600_000 && off[j] < next {
+            out.push((t, off[j]));
+            j += 1;
+        }
+    }
+    out
+}
+
+/// The energy of a load of `p_w` started at `on` and stopped at `off`,
+/// Wh, as a share of `total_wh` (None when no start pairs with a stop):
+/// the mean length of the runs seen whole, for every start.
+pub(super) fn energy_share(p_w: f64, on: &[i64], off: &[i64], total_wh: f64) -> Option<f64> {
+    let pairs = start_stop_pairs(on, off);
+    if pairs.is_empty() || total_wh <= 0.0 {
+        return None;
+    }
+    let mean_h =
+        pairs.iter().map(|(a, b)| (b - a) as f64).sum::<f64>() / pairs.len() as f64 / 3_600_000.0;
+    Some((p_w * mean_h * on.len() as f64 / total_wh).clamp(0.0, 1.0))
+}
+
+/// Whether recurring steps behave as one load's: started or stopped three
+/// times or more, and stopping after starting (two starts each followed
+/// by a stop within 12 h) unless seen mostly one way (at most one the
+/// other way for every four: a load that tapers off shows its starts alone, and at
+/// 10 s a declared appliance with part of a wander may pass for most of
+/// its stops). Steps of two appliances that happened to switch together,
+/// or of one with a wander, fall in any order.
+pub(super) fn behaves_as_a_load(on: &[i64], off: &[i64]) -> bool {
+    let (most, fewest) = (on.len().max(off.len()), on.len().min(off.len()));
+    most >= 3 && (4 * fewest <= most || start_stop_pairs(on, off).len() >= 2)
+}
+
+#[allow(clippy::too_many_arguments)]
+/// Two declared appliances switching in one interval make one step, their
+/// sum. Each sum of two jumps of two appliances (either the same way or
+/// opposite ways), with how often such a coincidence is expected in the
+/// run: n₁ n₂ w / 2T for jumps seen n₁ and n₂ times (starts and stops)
+/// in T, with a window w as wide as two steps merge in the detector
+/// (closer than `level_rows` either way), and half the pairs the same way
+/// round (independent switching: the rate of Poisson coincidences; common
+/// practice, no source).
+pub(super) fn coincidences(
+    d: &Declared,
+    m: &Metering,
+    placed: &[DeclAppliance],
+    events: &[&Event],
+    interval_s: f64,
+    hours: f64,
+) -> Vec<(Vec<Option<C64>>, f64)> {
+    let jumps: Vec<(usize, Vec<Option<C64>>, usize)> = placed
+        .iter()
+        .enumerate()
+        .flat_map(|(j, a)| predicted(d, m, a).into_iter().map(move |r| (j, r)))
+        .map(|(j, r)| {
+            let n = events.iter().filter(|e| fits(e, &r)).count();
+            (j, r, n)
+        })
+        .filter(|(_, _, n)| *n > 0)
+        .collect();
+    let t_s = hours * 3600.0;
+    if t_s <= 0.0 {
+        return vec![];
+    }
+    let w = 2.0 * crate::audit::events::level_rows(interval_s) as f64 * interval_s;
+    let mut out = Vec::new();
+    for (i, (ja, ra, na)) in jumps.iter().enumerate() {
+        for (jb, rb, nb) in &jumps[i + 1..] {
+            if ja == jb {
+                continue;
+            }
+            let rate = (*na * *nb) as f64 * w / (2.0 * t_s);
+            for sign in [1.0, -1.0] {
+                let sum: Vec<Option<C64>> = ra
+                    .iter()
+                    .zip(rb)
+                    .map(|(a, b)| match (a, b) {
+                        (Some(a), Some(b)) => Some(*a + b.scale(sign)),
+                        _ => None,
+                    })
+                    .collect();
+                out.push((sum, rate));
+            }
+        }
+    }
+    out
+}
+
+/// P(X ≥ k) for X Poisson with mean `mean`.
+pub(super) fn poisson_tail(mean: f64, k: usize) -> f64 {
+    let (mut term, mut below) = ((-mean).exp(), 0.0);
+    for i in 0..k {
+        below += term;
+        term *= mean / (i + 1) as f64;
+    }
+    (1.0 - below).max(0.0)
+}
+
+/// Steps of one connection and size that nothing declared explains, gathered
+/// as the runs of one possible load.
+pub(super) struct Cluster {
+    wiring: String,
+    /// Mean channel step, as a start.
+    v: Vec<C64>,
+    s: C64,
+    on: Vec<i64>,
+    off: Vec<i64>,
+}
+
+impl Cluster {
+    /// Whether a step `v` on connection `label` is alike on the channels the
+    /// cluster's load draws through (a quarter of its largest channel step
+    /// or more); a change on another channel in the same interval is another
+    /// load's (at 10 s a heater's stop often shares its row with a change on
+    /// the other line).
+    fn close(&self, label: &str, v: &[C64]) -> bool {
+        let top = self.v.iter().map(|a| a.abs()).fold(0.0, f64::max);
+        self.wiring == label
+            && self
+                .v
+                .iter()
+                .zip(v)
+                .filter(|(a, _)| a.abs() >= 0.25 * top)
+                .all(|(a, b)| (*a - *b).abs() <= 0.1 * a.abs() + 50.0)
+    }
+
+    /// Adds a step (its start form `v`, power `s`) at `time_ms` to the
+    /// running means.
+    fn add(&mut self, v: &[C64], s: C64, on: bool, time_ms: i64) {
+        let cnt = (self.on.len() + self.off.len()) as f64;
+        self.s = (self.s.scale(cnt) + s).scale(1.0 / (cnt + 1.0));
+        for (a, b) in self.v.iter_mut().zip(v) {
+            *a = (a.scale(cnt) + *b).scale(1.0 / (cnt + 1.0));
+        }
+        if on {
+            self.on.push(time_ms);
+        } else {
+            self.off.push(time_ms);
+        }
+    }
+}
+
+/// The connection a step nothing explains is drawn through and its power:
+/// one connection, or (an appliance with draws on several lines) its part
+/// on each line, each as a line-to-neutral draw. `None` when it fits
+/// neither.
+pub(super) fn step_connection(d: &Declared, m: &Metering, e: &Event) -> Option<(String, C64)> {
+    let fit = connection_of(d, m, &e.delta);
+    let (w, s, res) = fit[0];
+    if res <= 0.2 {
+        return Some((w.name(), s));
+    }
+    let parts: Vec<(Wiring, C64)> = fit
+        .iter()
+        .filter(|f| matches!(f.0, Wiring::LineNeutral(_)) && f.1.abs() >= USE_STEP)
+        .map(|f| (f.0, f.1))
+        .collect();
+    if parts.len() < 2 {
+        return None;
+    }
+    let mut ws: Vec<Wiring> = parts.iter().map(|p| p.0).collect();
+    ws.sort_by_key(|w| w.name());
+    Some((
+        ws.iter().map(|w| w.name()).collect::<Vec<_>>().join(" + "),
+        parts.iter().fold(C64::ZERO, |a, p| a + p.1),
+    ))
+}
+
+/// Steps of 500 W or more that nothing declared explains, clustered by
+/// connection and size (a stop counts as its start turned around).
+pub(super) fn unexplained_clusters(
+    d: &Declared,
+    m: &Metering,
+    events: &[&Event],
+    explained: &[bool],
+) -> Vec<Cluster> {
+    let mut cl: Vec<Cluster> = Vec::new();
+    for (e, _) in events
+        .iter()
+        .zip(explained)
+        .filter(|(e, x)| e.size() >= 400.0 && !**x)
+    {
+        let Some((label, s)) = step_connection(d, m, e) else {
+            continue;
+        };
+        let on = s.re >= 0.0;
+        let (s, v): (C64, Vec<C64>) = if on {
+            (s, e.delta.clone())
+        } else {
+            (-s, e.delta.iter().map(|x| -*x).collect())
+        };
+        if s.re < 500.0 {
+            continue;
+        }
+        let k = match cl.iter().position(|c| c.close(&label, &v)) {
+            Some(k) => k,
+            None => {
+                cl.push(Cluster {
+                    wiring: label.clone(),
+                    v: v.clone(),
+                    s,
+                    on: vec![],
+                    off: vec![],
+                });
+                cl.len() - 1
+            }
+        };
+        cl[k].add(&v, s, on, e.time_ms);
+    }
+    cl
+}
+
+/// The finding for cluster `c` when it is no likely coincidence of two
+/// declared appliances (their step sums and rates `sums`).
+pub(super) fn undeclared_finding(
+    d: &Declared,
+    c: &Cluster,
+    sums: &[(Vec<Option<C64>>, f64)],
+    total_wh: f64,
+    th: &Thresholds,
+) -> Option<Finding> {
+    // As many coincidences of two declared appliances this size as
+    // seen are not unlikely: not a load of its own.
+    let expected: f64 = sums
+        .iter()
+        .filter(|(r, _)| dist_delta(&c.v, r) <= 1.0)
+        .map(|(_, rate)| rate)
+        .sum();
+    if poisson_tail(expected, c.on.len() + c.off.len()) > th.coincidence_p {
+        return None;
+    }
+    let share = energy_share(c.s.re, &c.on, &c.off, total_wh);
+    let share_text = match share {
+        Some(x) => format!("about {:.1} % of the energy", 100.0 * x),
+        None => "its share of the energy unknown (no run seen whole)".into(),
+    };
+    // `+ 0.0` turns a negative zero into zero (never "-0.0" printed).
+    let expected = expected.max(0.0) + 0.0;
+    Some(Finding {
+        kind: Kind::UndeclaredLoad,
+        subject: format!("{:.0} W on {}", c.s.re, c.wiring),
+        message: format!("a recurring load of about {:.0} W (pf {:.2}) on {} that no declared appliance explains: started {} times, stopped {} times (two declared appliances switching together would make about {:.1} such steps), {share_text}", c.s.re, c.s.re / c.s.abs(), c.wiring, c.on.len(), c.off.len(), expected),
+        // Runs seen whole (a start, then its stop before the next
+        // start), a tenth each: steps seen one way only count for
+        // nothing (at 10 s, starts of declared loads straddling rows).
+        confidence: (start_stop_pairs(&c.on, &c.off).len() as f64 / 10.0).min(1.0),
+        evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "coincidences_expected": expected, "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring, "energy_share": share, "first_starts": first(&c.on), "first_stops": first(&c.off), "first_starts_local": first_local(&c.on, &d.timezone) }),
+        doubt: None,
+    })
+}
+
+/// Recurring steps nothing declared explains, clustered by connection and
+/// size; a cluster that behaves as one load and is no likely coincidence of
+/// two declared appliances is a finding.
+#[allow(clippy::too_many_arguments)]
+pub(super) fn undeclared(
+    d: &Declared,
+    m: &Metering,
+    events: &[&Event],
+    explained: &[bool],
+    sums: &[(Vec<Option<C64>>, f64)],
+    total_wh: f64,
+    out: &mut Vec<Finding>,
+    th: &Thresholds,
+) {
+    // Recurring, and as one load behaves.
+    // A cluster with no run seen whole (a start, then its stop) has no
+    // confidence at all: at 10 s, starts of declared loads that straddle
+    // two rows gather so; it is not listed, not even as possible.
+    let cl = unexplained_clusters(d, m, events, explained);
+    out.extend(
+        cl.iter()
+            .filter(|c| {
+                behaves_as_a_load(&c.on, &c.off) && !start_stop_pairs(&c.on, &c.off).is_empty()
+            })
+            .filter_map(|c| undeclared_finding(d, c, sums, total_wh, th)),
+    );
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::audit::check::metering::declared_metering;
+    use crate::audit::check::testkit::{on_off, split_phase, H};
+
+    /// Starts each followed by a stop within 12 h pair up; a stop before
+    /// any start, or one more than 12 h later, does not.
+    #[test]
+    fn starts_pair_with_the_next_stop_within_twelve_hours() {
+        assert_eq!(
+            start_stop_pairs(&[0, 2 * H, 30 * H], &[H, 3 * H, 50 * H]),
+            vec![(0, H), (2 * H, 3 * H)]
+        );
+        assert_eq!(start_stop_pairs(&[5 * H], &[H]), vec![]);
+        // A start whose stop was not seen does not take the next run's stop.
+        assert_eq!(
+            start_stop_pairs(&[0, 2 * H], &[2 * H + H / 2]),
+            vec![(2 * H, 2 * H + H / 2)]
+        );
+    }
+
+    /// A load of 1 kW seen to start four times, with two runs of 30 min
+    /// seen whole, used 4 × 0.5 h × 1 kW = 2 kWh (the mean run for every
+    /// start); never more than all the energy, nothing when no run is whole.
+    #[test]
+    fn energy_share_counts_every_start_at_the_mean_run() {
+        let on = [0, 2 * H, 4 * H, 6 * H];
+        let off = [H / 2, 6 * H + H / 2];
+        let s = energy_share(1000.0, &on, &off, 20_000.0).unwrap();
+        assert!((s - 0.1).abs() < 1e-12, "{s}");
+        assert_eq!(energy_share(1000.0, &on, &off, 100.0), Some(1.0));
+        assert_eq!(energy_share(1000.0, &on, &[], 20_000.0), None);
+    }
+
+    /// A load stops after it starts: three stops then two starts are no
+    /// load's; a load seen one way only (it tapers off) still is.
+    #[test]
+    fn steps_in_any_order_do_not_make_a_load() {
+        assert!(!behaves_as_a_load(&[40 * H, 45 * H], &[H, 10 * H, 20 * H]));
+        assert!(behaves_as_a_load(
+            &[0, 10 * H, 20 * H],
+            &[H, 11 * H, 21 * H]
+        ));
+        assert!(behaves_as_a_load(&[0, 10 * H, 20 * H], &[]));
+        assert!(!behaves_as_a_load(&[0, 10 * H], &[H, 11 * H]));
+        // Mostly one way: five starts, one stop (at 10 s a heat strip's
+        // stops pass for a declared dryer element's with a wander).
+        assert!(behaves_as_a_load(
+            &[0, 10 * H, 20 * H, 30 * H, 40 * H],
+            &[45 * H]
+        ));
+        assert!(!behaves_as_a_load(&[0, 10 * H, 20 * H], &[45 * H]));
+    }
+
+    /// Two 120 V heaters on L1-N, each switched 100 times in 100 h of 10 s
+    /// rows. Among n₁ and n₂ independent uniform times in T, the expected
+    /// number of pairs closer than τ is n₁ n₂ 2τ / T (τ ≪ T; any text on
+    /// Poisson coincidences), half of them the same way round; two steps
+    /// merge when closer than two 10 s rows, so 2τ = 40 s:
+    /// 100 · 100 · 40 / (2 · 360 000) = 0.556 for the 1.5 kW sum.
+    #[test]
+    fn coincidences_of_two_heaters_are_expected_at_the_poisson_rate() {
+        let heater = |id: &str, w: f64| on_off(id, 0, C64::new(w, 0.0));
+        let d = split_phase(vec![heater("a", 1000.0), heater("b", 500.0)]);
+        let m = declared_metering(&d, &[false, false]);
+        let step = |t: i64, w: f64| Event {
+            time_ms: t,
+            delta: vec![C64::new(w, 0.0), C64::ZERO],
+            before: vec![C64::ZERO; 2],
+            v_before: vec![120.0; 2],
+            v_after: vec![120.0; 2],
+            se: vec![0.0; 2],
+        };
+        let events: Vec<Event> = (0..100)
+            .flat_map(|i| {
+                [
+                    step(i * H, if i % 2 == 0 { 1000.0 } else { -1000.0 }),
+                    step(i * H + H / 2, if i % 2 == 0 { 500.0 } else { -500.0 }),
+                ]
+            })
+            .collect();
+        let refs: Vec<&Event> = events.iter().collect();
+        let sums = coincidences(&d, &m, &d.appliances, &refs, 10.0, 100.0);
+        let rate = |w: f64| {
+            sums.iter()
+                .filter(|(r, _)| dist_delta(&[C64::new(w, 0.0), C64::ZERO], r) <= 0.2)
+                .map(|(_, x)| *x)
+                .sum::<f64>()
+        };
+        assert!(
+            (rate(1500.0) - 100.0 * 100.0 * 40.0 / (2.0 * 360_000.0)).abs() < 1e-9,
+            "{}",
+            rate(1500.0)
+        );
+        assert!(
+            (rate(500.0) - rate(1500.0)).abs() < 1e-9,
+            "the opposite way round: {}",
+            rate(500.0)
+        );
+        assert_eq!(rate(2000.0), 0.0);
+    }
+
+    /// Reference: scipy.stats.poisson.sf(k - 1, mean), scipy 1.14.1.
+    #[test]
+    fn the_poisson_tail_is_scipys() {
+        for (mean, k, sf) in [
+            (1.0, 1, 0.6321205588285577),
+            (3.5, 8, 0.026738922091319697),
+            (0.844, 5, 0.0017794855370407824),
+            (0.968, 6, 0.000502179831641417),
+            (20.0, 10, 0.9950045876916924),
+        ] {
+            assert!(
+                (poisson_tail(mean, k) - sf).abs() < 1e-12,
+                "{mean} {k}: {}",
+                poisson_tail(mean, k)
+            );
+        }
+        assert_eq!(poisson_tail(0.0, 1), 0.0);
+        assert_eq!(poisson_tail(2.0, 0), 1.0);
+    }
+}
