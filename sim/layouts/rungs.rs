@@ -4,10 +4,10 @@
 //! the metering), and a note saying exactly what changed.
 
 use super::doc::{text, Doc, NodeExt};
-use super::wire::{each_draw, kind, map_wiring, quantity, split_draws, Wire};
+use super::wire::{each_draw, map_wiring, quantity, split_draws, stated};
 use crate::rng::stream;
 use crate::scenario::source::Node;
-use crate::scenario::{Appliance, Scenario, SupplyKind, WiringKind};
+use crate::scenario::{Appliance, Scenario, SupplyKind, Wiring, WiringKind};
 use crate::units::Kind;
 use rand::seq::SliceRandom;
 
@@ -55,8 +55,8 @@ fn single_line(a: &Appliance) -> Option<usize> {
 }
 
 /// The swap of lines `a` and `b`, as a permutation of `n` lines.
-fn swap(n: usize, a: usize, b: usize) -> Vec<u8> {
-    let mut p: Vec<u8> = (0..n as u8).collect();
+fn swap(n: usize, a: usize, b: usize) -> Vec<usize> {
+    let mut p: Vec<usize> = (0..n).collect();
     p.swap(a, b);
     p
 }
@@ -99,7 +99,7 @@ fn place(r: &mut Rung, h: &Home, moves: &[(usize, usize)]) {
         let from = single_line(a).unwrap_or(to);
         let perm = swap(h.lines(), from, to);
         if let Some(n) = r.doc.appliance_mut(&a.id) {
-            map_wiring(n, &|w| w.permuted(&perm));
+            map_wiring(n, &|w| w.permuted_name(&perm));
         }
     }
 }
@@ -162,10 +162,10 @@ fn shuffle(h: &Home, seed: u64, k: usize) -> Rung {
         format!("each appliance's lines permuted at random (stream seed {seed}, shuffle-{k})"),
     );
     for a in &h.s.appliances {
-        let mut perm: Vec<u8> = (0..h.lines() as u8).collect();
+        let mut perm: Vec<usize> = (0..h.lines()).collect();
         perm.shuffle(&mut rng);
         if let Some(n) = r.doc.appliance_mut(&a.id) {
-            map_wiring(n, &|w| w.permuted(&perm));
+            map_wiring(n, &|w| w.permuted_name(&perm));
         }
     }
     r
@@ -276,18 +276,18 @@ fn rewire_kinds(r: &mut Rung, h: &Home, high: &[usize], low: &[usize]) {
         if want == own && !(want == WiringKind::LineToNeutral) {
             continue;
         }
-        let first = a.lines()[0] as u8;
+        let first = a.lines()[0];
         let to = match want {
-            WiringKind::ThreePhase => Wire::ThreeP,
-            WiringKind::LineToLine => Wire::Ll(first, (first + 1) % h.lines() as u8),
+            WiringKind::ThreePhase => Wiring::ThreePhase,
+            WiringKind::LineToLine => Wiring::line_line(first, (first + 1) % h.lines(), h.lines()),
             WiringKind::LineToNeutral => {
                 let x = lines_of.iter().find(|(j, _)| *j == k).map_or(0, |p| p.1);
-                Wire::Ln(x as u8)
+                Wiring::LineNeutral(x)
             }
         };
         if let Some(n) = r.doc.appliance_mut(&a.id) {
             let changed = want != own;
-            map_wiring(n, &|_| to);
+            map_wiring(n, &|_| to.name());
             if changed {
                 // Its other form is another model, rated for that connection.
                 each_draw(n, None, &mut |d, _| d.remove("rated"));
@@ -331,11 +331,13 @@ pub fn partial(h: &Home) -> Vec<Rung> {
                     }
                 ),
             );
-            let split = move |_: Wire| -> Vec<(Wire, f64)> {
+            let split = move |_: Wiring| -> Vec<(Wiring, f64)> {
                 if k == 3 {
-                    vec![(Wire::ThreeP, 1.0)]
+                    vec![(Wiring::ThreePhase, 1.0)]
                 } else {
-                    (0..k).map(|x| (Wire::Ln(x), 1.0 / 3.0)).collect()
+                    (0..k as usize)
+                        .map(|x| (Wiring::LineNeutral(x), 1.0 / 3.0))
+                        .collect()
                 }
             };
             if let Some(n) = r.doc.appliance_mut(&c.id) {
@@ -354,7 +356,9 @@ pub fn partial(h: &Home) -> Vec<Rung> {
             ),
         );
         if let Some(n) = r.doc.appliance_mut(&p.id) {
-            split_draws(n, &|_| vec![(Wire::ThreeP, 0.9), (Wire::Ln(0), 0.1)]);
+            split_draws(n, &|_| {
+                vec![(Wiring::ThreePhase, 0.9), (Wiring::LineNeutral(0), 0.1)]
+            });
         }
         out.push(r);
     }
@@ -394,8 +398,8 @@ pub const SUPPLIES: [Supply; 3] = [
 pub const SAME_MODEL: f64 = 0.15;
 
 impl Supply {
-    fn lines(&self) -> u8 {
-        self.kind.lines() as u8
+    fn lines(&self) -> usize {
+        self.kind.lines()
     }
     fn v_ll(&self) -> f64 {
         match self.kind {
@@ -403,9 +407,9 @@ impl Supply {
             _ => 3f64.sqrt() * self.v_ln,
         }
     }
-    fn voltage(&self, w: Wire) -> f64 {
+    fn voltage(&self, w: Wiring) -> f64 {
         match w {
-            Wire::Ln(_) => self.v_ln,
+            Wiring::LineNeutral(_) => self.v_ln,
             _ => self.v_ll(),
         }
     }
@@ -419,28 +423,28 @@ impl Supply {
 /// three-phase where it can; single-phase draws go line-to-neutral or
 /// line-to-line, whichever voltage is nearer, keeping their first line
 /// (`line` for a draw that changes kind).
-fn reconnect(to: &Supply, w: Wire, rated_v: f64, line: u8) -> Wire {
+fn reconnect(to: &Supply, w: Wiring, rated_v: f64, line: usize) -> Wiring {
     let n = to.lines();
     let first = match w {
-        Wire::Ln(x) | Wire::Ll(x, _) => x % n,
-        Wire::ThreeP => 0,
+        Wiring::LineNeutral(x) | Wiring::LineLine(x, _) => x % n,
+        Wiring::ThreePhase => 0,
     };
-    let ll = |x: u8| {
+    let ll = |x: usize| {
         if n == 2 {
-            Wire::Ll(0, 1)
+            Wiring::LineLine(0, 1)
         } else {
-            Wire::Ll(x, (x + 1) % n)
+            Wiring::LineLine(x, (x + 1) % n)
         }
     };
-    if w == Wire::ThreeP {
-        return if n == 3 { Wire::ThreeP } else { ll(0) };
+    if w == Wiring::ThreePhase {
+        return if n == 3 { Wiring::ThreePhase } else { ll(0) };
     }
     let near_ll = (to.v_ll() - rated_v).abs() < (to.v_ln - rated_v).abs();
     match (w, near_ll) {
-        (Wire::Ln(_), false) => Wire::Ln(first),
-        (Wire::Ll(..), true) => ll(first),
-        (Wire::Ln(_), true) => ll(line % n),
-        _ => Wire::Ln(line % n),
+        (Wiring::LineNeutral(_), false) => Wiring::LineNeutral(first),
+        (Wiring::LineLine(..), true) => ll(first),
+        (Wiring::LineNeutral(_), true) => ll(line % n),
+        _ => Wiring::LineNeutral(line % n),
     }
 }
 
@@ -457,7 +461,7 @@ pub fn supply(h: &Home, to: &Supply) -> Rung {
         kind: home.supply,
         v_ln: home.voltage_v,
     };
-    let (mut kept, mut regional, mut turn) = (Vec::new(), Vec::new(), 0u8);
+    let (mut kept, mut regional, mut turn) = (Vec::new(), Vec::new(), 0usize);
     for n in r.doc.appliances_mut() {
         let id = n.get("id").and_then(Node::as_str).unwrap_or("").to_string();
         let mut changed_kind = false;
@@ -465,8 +469,8 @@ pub fn supply(h: &Home, to: &Supply) -> Rung {
         each_draw(n, None, &mut |d, w| {
             let rated = quantity(d, "rated", Kind::Voltage).unwrap_or(from.voltage(w));
             let new = reconnect(to, w, rated, line);
-            changed_kind |= kind(new) != kind(w);
-            d.set("wiring", text(&new.show()));
+            changed_kind |= WiringKind::of(new) != WiringKind::of(w);
+            d.set("wiring", text(&new.name()));
             let v = to.voltage(new);
             if (v / rated - 1.0).abs() <= SAME_MODEL {
                 if (v - rated).abs() > 1e-9 {
@@ -481,11 +485,10 @@ pub fn supply(h: &Home, to: &Supply) -> Rung {
         if changed_kind {
             turn += 1;
         }
-        let top = n.get("wiring").and_then(Node::as_str).and_then(Wire::parse);
-        if let Some(w) = top {
+        if let Some(w) = stated(n) {
             n.set(
                 "wiring",
-                text(&reconnect(to, w, from.voltage(w), line).show()),
+                text(&reconnect(to, w, from.voltage(w), line).name()),
             );
         }
     }

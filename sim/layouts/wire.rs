@@ -3,54 +3,31 @@
 
 use super::doc::{node, text, NodeExt};
 use crate::scenario::source::{Node, Val};
-use crate::scenario::WiringKind;
+use crate::scenario::{Wiring, WiringKind};
 use crate::units::{parse_quantity, Kind};
 
-/// A connection as written: a line to neutral, two lines, or all three.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Wire {
-    Ln(u8),
-    Ll(u8, u8),
-    ThreeP,
+/// The wiring a table states, if any. Read as on a three-line supply (the
+/// most lines a supply has): the ladder reads texts the scenario reader
+/// has accepted for the home's own supply and texts it has itself just
+/// rewritten for another supply.
+pub fn stated(n: &Node) -> Option<Wiring> {
+    n.get("wiring").and_then(Node::as_str).and_then(read)
 }
 
-impl Wire {
-    pub fn parse(s: &str) -> Option<Wire> {
-        if s == "3P" {
-            return Some(Wire::ThreeP);
-        }
-        let (a, b) = s.split_once('-')?;
-        let line = |t: &str| t.strip_prefix('L')?.parse::<u8>().ok().map(|x| x - 1);
-        match (a, b) {
-            ("N", x) | (x, "N") => Some(Wire::Ln(line(x)?)),
-            (x, y) => Some(Wire::Ll(line(x)?, line(y)?)),
-        }
-    }
-    pub fn show(self) -> String {
-        match self {
-            Wire::Ln(x) => format!("L{}-N", x + 1),
-            Wire::Ll(a, b) => format!("L{}-L{}", a + 1, b + 1),
-            Wire::ThreeP => "3P".into(),
-        }
-    }
-    /// The same connection with every line renamed by `perm`.
-    pub fn permuted(self, perm: &[u8]) -> Wire {
-        match self {
-            Wire::Ln(x) => Wire::Ln(perm[x as usize]),
-            Wire::Ll(a, b) => Wire::Ll(perm[a as usize], perm[b as usize]),
-            Wire::ThreeP => Wire::ThreeP,
-        }
-    }
+/// A wiring's text read as [`stated`] reads it.
+fn read(text: &str) -> Option<Wiring> {
+    Wiring::parse(text, 3).ok()
 }
 
-/// Rewrites every `wiring` string inside an appliance's table.
-pub fn map_wiring(n: &mut Node, f: &dyn Fn(Wire) -> Wire) {
+/// Rewrites every `wiring` string inside an appliance's table with the
+/// text `f` gives for the wiring it states.
+pub fn map_wiring(n: &mut Node, f: &dyn Fn(Wiring) -> String) {
     match &mut n.v {
         Val::Table(entries) => {
             for e in entries.iter_mut() {
                 if e.key == "wiring" {
-                    if let Some(w) = e.node.as_str().and_then(Wire::parse) {
-                        e.node = text(&f(w).show());
+                    if let Some(w) = e.node.as_str().and_then(read) {
+                        e.node = text(&f(w));
                     }
                 } else {
                     map_wiring(&mut e.node, f);
@@ -64,12 +41,8 @@ pub fn map_wiring(n: &mut Node, f: &dyn Fn(Wire) -> Wire) {
 
 /// Calls `f` on every draw of an appliance (a table with `power`) with the
 /// wiring it inherits or states.
-pub fn each_draw(n: &mut Node, inherited: Option<Wire>, f: &mut dyn FnMut(&mut Node, Wire)) {
-    let own = n
-        .get("wiring")
-        .and_then(Node::as_str)
-        .and_then(Wire::parse)
-        .or(inherited);
+pub fn each_draw(n: &mut Node, inherited: Option<Wiring>, f: &mut dyn FnMut(&mut Node, Wiring)) {
+    let own = stated(n).or(inherited);
     if n.get("power").is_some() {
         if let Some(w) = own {
             f(n, w);
@@ -101,12 +74,8 @@ const DRAW_KEYS: [&str; 9] = [
 /// Replaces every draw of an appliance with the draws `split` makes of it:
 /// (wiring, share of its power). A draw written in a state becomes that
 /// state's `draws` list.
-pub fn split_draws(app: &mut Node, split: &dyn Fn(Wire) -> Vec<(Wire, f64)>) {
-    let default = app
-        .get("wiring")
-        .and_then(Node::as_str)
-        .and_then(Wire::parse);
-    let Some(top) = default else { return };
+pub fn split_draws(app: &mut Node, split: &dyn Fn(Wiring) -> Vec<(Wiring, f64)>) {
+    let Some(top) = stated(app) else { return };
     for key in ["states", "phases"] {
         let Some(Val::Arr(states)) = app.get_mut(key).map(|n| &mut n.v) else {
             continue;
@@ -119,16 +88,12 @@ pub fn split_draws(app: &mut Node, split: &dyn Fn(Wire) -> Vec<(Wire, f64)>) {
         split_state(extra, top, split);
     }
     if let Some(w) = split(top).first() {
-        app.set("wiring", text(&w.0.show()));
+        app.set("wiring", text(&w.0.name()));
     }
 }
 
-fn split_state(st: &mut Node, inherited: Wire, split: &dyn Fn(Wire) -> Vec<(Wire, f64)>) {
-    let own = st
-        .get("wiring")
-        .and_then(Node::as_str)
-        .and_then(Wire::parse)
-        .unwrap_or(inherited);
+fn split_state(st: &mut Node, inherited: Wiring, split: &dyn Fn(Wiring) -> Vec<(Wiring, f64)>) {
+    let own = stated(st).unwrap_or(inherited);
     let old: Vec<Node> = if st.get("power").is_some() {
         let mut d = node(Val::Table(vec![]));
         for k in DRAW_KEYS {
@@ -145,15 +110,11 @@ fn split_state(st: &mut Node, inherited: Wire, split: &dyn Fn(Wire) -> Vec<(Wire
     };
     let mut new = Vec::new();
     for d in old {
-        let w = d
-            .get("wiring")
-            .and_then(Node::as_str)
-            .and_then(Wire::parse)
-            .unwrap_or(own);
+        let w = stated(&d).unwrap_or(own);
         for (to, share) in split(w) {
             let mut c = d.clone();
-            c.set("wiring", text(&to.show()));
-            if kind(to) != kind(w) {
+            c.set("wiring", text(&to.name()));
+            if WiringKind::of(to) != WiringKind::of(w) {
                 // Another connection is another model, rated for it.
                 c.remove("rated");
             }
@@ -164,15 +125,6 @@ fn split_state(st: &mut Node, inherited: Wire, split: &dyn Fn(Wire) -> Vec<(Wire
     }
     st.remove("wiring");
     st.set("draws", node(Val::Arr(new)));
-}
-
-/// Line-to-neutral, line-to-line or three-phase.
-pub fn kind(w: Wire) -> WiringKind {
-    match w {
-        Wire::Ln(_) => WiringKind::LineToNeutral,
-        Wire::Ll(..) => WiringKind::LineToLine,
-        Wire::ThreeP => WiringKind::ThreePhase,
-    }
 }
 
 /// Multiplies a quantity written as text by `k`, writing it in SI units.

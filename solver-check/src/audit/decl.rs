@@ -237,11 +237,12 @@ pub struct Declared {
 impl Declared {
     /// Per-line complex power of state `k` of appliance `a`, at nominal voltage.
     pub fn state_split(&self, a: &DeclAppliance, k: usize) -> Vec<C64> {
-        let mut out = vec![C64::ZERO; self.supply.lines()];
+        let (e, mut out) = (
+            self.supply.kind.units(),
+            vec![C64::ZERO; self.supply.lines()],
+        );
         for d in &a.states[k] {
-            for (o, s) in out.iter_mut().zip(self.supply.split(d.wiring, d.s)) {
-                *o += s;
-            }
+            d.wiring.add_line_split(&e, d.s, &mut out);
         }
         out
     }
