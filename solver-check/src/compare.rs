@@ -9,7 +9,7 @@
 use crate::contract::COMPARE_FORMAT;
 use crate::diagnostic::Error;
 use crate::metrics::{scores_of, Scores};
-use crate::render::Render;
+use crate::render::{aligned_by, Render};
 use crate::score::Report;
 use serde_json::{json, Value};
 use std::path::Path;
@@ -324,33 +324,7 @@ impl Comparison {
                 o += &format!("| {} |\n", r.join(" | "));
             }
         } else {
-            let w: Vec<usize> = (0..head.len())
-                .map(|c| {
-                    rows.iter()
-                        .map(|r| r[c].chars().count())
-                        .chain([head[c].len()])
-                        .max()
-                        .unwrap()
-                })
-                .collect();
-            let line = |r: Vec<String>| {
-                r.iter()
-                    .enumerate()
-                    .map(|(c, s)| {
-                        if c < 2 || c == 6 {
-                            format!("{s:<w$}", w = w[c])
-                        } else {
-                            format!("{s:>w$}", w = w[c])
-                        }
-                    })
-                    .collect::<Vec<_>>()
-                    .join("  ")
-                    + "\n"
-            };
-            o += &line(head.iter().map(|s| s.to_string()).collect());
-            for r in rows {
-                o += &line(r);
-            }
+            o += &aligned_by(&head, &rows, &|c| c < 2 || c == 6);
         }
         if self.days < 10 {
             o += &format!("\nOnly {} days: the intervals are rough; compare over more days for a firm answer.\n", self.days);

@@ -60,11 +60,21 @@ pub trait Render {
 /// Columns padded to their widest cell (in characters), two spaces apart;
 /// the first `left` columns left-aligned (names), the rest right-aligned
 /// (numbers). The text form of every report table.
-pub fn aligned<H: AsRef<str>>(head: &[H], rows: &[Vec<String>], left: usize) -> String {
+pub fn aligned<H: AsRef<str>, R: AsRef<[String]>>(head: &[H], rows: &[R], left: usize) -> String {
+    aligned_by(head, rows, &|k| k < left)
+}
+
+/// [`aligned`] with the columns for which `is_left` holds left-aligned
+/// (words, wherever they stand), the others right-aligned.
+pub fn aligned_by<H: AsRef<str>, R: AsRef<[String]>>(
+    head: &[H],
+    rows: &[R],
+    is_left: &dyn Fn(usize) -> bool,
+) -> String {
     let w: Vec<usize> = (0..head.len())
         .map(|k| {
             rows.iter()
-                .map(|r| r[k].chars().count())
+                .map(|r| r.as_ref()[k].chars().count())
                 .chain([head[k].as_ref().chars().count()])
                 .max()
                 .unwrap_or(0)
@@ -72,7 +82,7 @@ pub fn aligned<H: AsRef<str>>(head: &[H], rows: &[Vec<String>], left: usize) -> 
         .collect();
     let line = |r: &mut dyn Iterator<Item = &str>| {
         r.enumerate()
-            .map(|(k, s)| match k < left {
+            .map(|(k, s)| match is_left(k) {
                 true => format!("{s:<w$}", w = w[k]),
                 false => format!("{s:>w$}", w = w[k]),
             })
@@ -82,7 +92,7 @@ pub fn aligned<H: AsRef<str>>(head: &[H], rows: &[Vec<String>], left: usize) -> 
     };
     let mut out = line(&mut head.iter().map(AsRef::as_ref));
     for r in rows {
-        out += &line(&mut r.iter().map(String::as_str));
+        out += &line(&mut r.as_ref().iter().map(String::as_str));
     }
     out
 }
@@ -115,5 +125,8 @@ mod tests {
         let rows = vec![vec!["fridge".to_string(), "1.5".to_string()]];
         let text = aligned(&["appliance", "MAE W"], &rows, 1);
         assert_eq!(text, "appliance  MAE W\nfridge       1.5\n");
+        let rows = vec![vec!["a".to_string(), "12".to_string(), "ok".to_string()]];
+        let text = aligned_by(&["id", "n", "verdict"], &rows, &|k| k != 1);
+        assert_eq!(text, "id   n  verdict\na   12  ok     \n");
     }
 }

@@ -7,7 +7,7 @@ use crate::contract::SCORE_FORMAT;
 use crate::dataset::{Dataset, DatasetError};
 use crate::estimate::{open_estimate, rules, values_check, EstimateFile};
 use crate::metrics::{Acc, Scores};
-use crate::render::Render;
+use crate::render::{aligned, Render};
 use crate::stream::{header, read_ahead, Cursor, Header};
 use crate::table::{table_err, TableError};
 use serde_json::{json, Value};
@@ -534,30 +534,6 @@ impl Render for Report {
     }
 
     fn to_text(&self) -> String {
-        let rows = self.rows();
-        let widths: Vec<usize> = (0..Self::HEAD.len())
-            .map(|c| {
-                rows.iter()
-                    .map(|r| r[c].chars().count())
-                    .chain([Self::HEAD[c].len()])
-                    .max()
-                    .unwrap()
-            })
-            .collect();
-        let line = |cells: &[String]| -> String {
-            cells
-                .iter()
-                .enumerate()
-                .map(|(c, s)| {
-                    if c == 0 {
-                        format!("{s:<w$}", w = widths[c])
-                    } else {
-                        format!("{s:>w$}", w = widths[c])
-                    }
-                })
-                .collect::<Vec<_>>()
-                .join("  ")
-        };
         let mut o = format!(
             "{} scored against {}: {} intervals of {} s from {}\n\n",
             self.estimate,
@@ -566,12 +542,7 @@ impl Render for Report {
             self.plan.interval_ms as f64 / 1000.0,
             iso(self.plan.start_ms, &self.timezone)
         );
-        o += &line(&Self::HEAD.iter().map(|s| s.to_string()).collect::<Vec<_>>());
-        o += "\n";
-        for r in &rows {
-            o += &line(r);
-            o += "\n";
-        }
+        o += &aligned(&Self::HEAD, &self.rows(), 1);
         for a in &self.appliances {
             for (l, s) in &a.conductors {
                 o += &format!(

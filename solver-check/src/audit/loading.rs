@@ -12,7 +12,7 @@
 use crate::contract::{columns, line_name, AUDIT_FORMAT};
 use crate::dataset::Dataset;
 use crate::diagnostic::Error;
-use crate::render::Render;
+use crate::render::{aligned, Render};
 use crate::stream::{header, Header};
 use crate::wallclock::WallClockUse;
 use serde_json::{json, Value};
@@ -548,38 +548,11 @@ impl Render for Loading {
     }
 
     fn to_text(&self) -> String {
-        let rows = self.rows();
-        let w: Vec<usize> = (0..6)
-            .map(|c| {
-                rows.iter()
-                    .map(|r| r[c].chars().count())
-                    .chain([Self::HEAD[c].len()])
-                    .max()
-                    .unwrap_or(0)
-            })
-            .collect();
-        let line = |r: &[String]| {
-            r.iter()
-                .enumerate()
-                .map(|(c, s)| {
-                    if c == 0 {
-                        format!("{s:<w$}", w = w[c])
-                    } else {
-                        format!("{s:>w$}", w = w[c])
-                    }
-                })
-                .collect::<Vec<_>>()
-                .join("  ")
-                + "\n"
-        };
         let mut o = format!(
             "loading against the {} A service rating\n\n",
             self.service_a
         );
-        o += &line(&Self::HEAD.map(String::from));
-        for r in &rows {
-            o += &line(r);
-        }
+        o += &aligned(&Self::HEAD, &self.rows(), 1);
         o += "\n";
         o += &self.tail();
         o += "\n";
