@@ -41,6 +41,30 @@ pub struct Readings {
     pub production_p: Vec<f32>,
     /// False for intervals lost to a dropout.
     pub present: Vec<bool>,
+    /// Intervals closed but not yet read through the meter's noise
+    /// ([`MeterNoise::read_all`]): the columns above hold none of them yet.
+    pub means: Vec<IntervalMeans>,
+}
+
+/// One reporting interval as the meter measured it before its noise: the
+/// means over the interval (CT faults applied), per line and for the
+/// neutral, and the register and production channel at its close.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct IntervalMeans {
+    /// `[line]`: mean active power, W.
+    pub p: [f64; 3],
+    /// `[line]`: mean reactive power, var.
+    pub q: [f64; 3],
+    /// `[line]`: RMS line-to-neutral voltage, V.
+    pub v: [f64; 3],
+    /// `[line]`: RMS current the CT delivers, A.
+    pub i: [f64; 3],
+    /// RMS neutral current, A.
+    pub n: f64,
+    /// `[line]`: the energy register, Wh.
+    pub register_wh: [f64; 3],
+    /// The production channel's mean power, W (zero without one).
+    pub production: f64,
 }
 
 impl Readings {
@@ -55,9 +79,9 @@ impl Readings {
             ..Default::default()
         }
     }
-    /// Reporting intervals held.
+    /// Reporting intervals held (read or not yet read through the noise).
     pub fn rows(&self) -> usize {
-        self.n_i.len()
+        self.n_i.len() + self.means.len()
     }
     /// Empties every column, keeping the allocations for the next chunk.
     pub fn clear(&mut self) {
@@ -76,6 +100,7 @@ impl Readings {
         self.total_q.clear();
         self.production_p.clear();
         self.present.clear();
+        self.means.clear();
     }
 }
 
@@ -109,13 +134,11 @@ pub fn dropout_gaps(faults: &Faults, interval_s: f64, rows: u64, seed: u64) -> V
     gaps
 }
 
-/// The monitor at work: accumulates each step's phasors, then emits one
-/// interval's readings with noise, quantisation and the faults applied.
+/// The monitor at work: accumulates each step's phasors and closes each
+/// interval into its [`IntervalMeans`]; its [`MeterNoise`] (here, or on
+/// the writer's side) turns those into readings.
 pub(crate) struct MeterModel {
     lines: usize,
-    settings: Meter,
-    faults: Faults,
-    nominal_v: f64,
     /// Per line: (conductor whose current the CT sees, factor applied).
     ct: [(usize, C64); 3],
     p: [f64; 3],
@@ -124,37 +147,30 @@ pub(crate) struct MeterModel {
     i2: [f64; 3],
     n2: f64,
     count: u32,
-    noise: Vec<Stream>,
-    /// The production channel: the PV's power summed over the interval,
-    /// and its own noise stream (so the line channels draw as without it).
-    production: Option<(f64, Stream)>,
+    /// The production channel's power summed over the interval (with
+    /// `meter.production`).
+    production: Option<f64>,
     /// Exact (noise-free, fault-free) energy per line so far, J.
     pub line_energy_j: [f64; 3],
     /// What the meter's register counts (after CT faults), J.
     register_j: [f64; 3],
     gaps: Vec<(u64, u64)>,
-    gap: usize,
-    row: u64,
+    /// The noise read into each interval as it closes; `None` when the
+    /// intervals are left in [`Readings::means`] for a noise stage elsewhere.
+    noise: Option<MeterNoise>,
 }
 
 impl MeterModel {
-    pub fn new(
-        settings: &Meter,
-        faults: &Faults,
-        lines: usize,
-        nominal_v: f64,
-        seed: u64,
-        rows: u64,
-    ) -> Self {
-        let noise = (0..lines)
-            .map(|x| stream(seed, "meter", &format!("noise-l{}", x + 1)))
-            .collect();
+    /// The meter of a home with `lines` line conductors over `rows`
+    /// reporting intervals; `noise_here` reads each interval through its
+    /// noise as it closes.
+    pub fn new(s: &crate::scenario::Scenario, lines: usize, rows: u64, noise_here: bool) -> Self {
         let mut ct = [
             (0, C64::new(1.0, 0.0)),
             (1, C64::new(1.0, 0.0)),
             (2, C64::new(1.0, 0.0)),
         ];
-        for f in &faults.ct {
+        for f in &s.faults.ct {
             let sign = if f.reversed { -1.0 } else { 1.0 };
             ct[f.line] = (
                 f.on.unwrap_or(f.line),
@@ -163,9 +179,6 @@ impl MeterModel {
         }
         MeterModel {
             lines,
-            settings: settings.clone(),
-            faults: faults.clone(),
-            nominal_v,
             ct,
             p: [0.0; 3],
             q: [0.0; 3],
@@ -173,20 +186,24 @@ impl MeterModel {
             i2: [0.0; 3],
             n2: 0.0,
             count: 0,
-            noise,
-            production: settings
-                .production
-                .then(|| (0.0, stream(seed, "meter", "noise-production"))),
+            production: s.meter.production.then_some(0.0),
             line_energy_j: [0.0; 3],
             register_j: [0.0; 3],
-            gaps: dropout_gaps(faults, settings.interval_s, rows, seed),
-            gap: 0,
-            row: 0,
+            gaps: dropout_gaps(&s.faults, s.meter.interval_s, rows, s.run.seed),
+            noise: noise_here.then(|| MeterNoise::new(s, lines, rows)),
         }
     }
 
     pub fn gaps(&self) -> &[(u64, u64)] {
         &self.gaps
+    }
+
+    /// The largest line and neutral currents read so far (zero when the
+    /// noise stage is elsewhere).
+    pub fn peaks(&self) -> ([f64; 3], f64) {
+        self.noise
+            .as_ref()
+            .map_or(([0.0; 3], 0.0), |n| (n.line_peak_a, n.neutral_peak_a))
     }
 
     /// Adds one simulation step of terminal voltages and line currents.
@@ -217,21 +234,99 @@ impl MeterModel {
     /// the production channel.
     #[inline]
     pub fn add_production(&mut self, pv_p_w: f64) {
-        if let Some((sum, _)) = &mut self.production {
+        if let Some(sum) = &mut self.production {
             *sum -= pv_p_w;
         }
     }
 
-    /// The production channel's reading of the interval closing now.
-    fn production_reading(&mut self, lost: bool) -> Option<f32> {
-        let (sum, mut rng) = self.production.take()?;
-        let p = self.quantise(self.noisy(
-            sum / self.count as f64,
-            self.settings.noise_floor_w,
-            &mut rng,
-        ));
-        self.production = Some((0.0, rng));
-        Some(if lost { f32::NAN } else { p as f32 })
+    /// Closes the interval: its readings appended to `out`, or its means
+    /// when the noise stage is elsewhere.
+    pub fn emit(&mut self, out: &mut Readings) {
+        let k = self.count as f64;
+        let mut m = IntervalMeans {
+            n: (self.n2 / k).sqrt(),
+            production: self.production.map_or(0.0, |sum| sum / k),
+            ..Default::default()
+        };
+        for x in 0..self.lines {
+            m.p[x] = self.p[x] / k;
+            m.q[x] = self.q[x] / k;
+            m.v[x] = (self.v2[x] / k).sqrt();
+            m.i[x] = (self.i2[x] / k).sqrt();
+            m.register_wh[x] = self.register_j[x] / 3600.0;
+        }
+        match &mut self.noise {
+            Some(noise) => noise.read(&m, out),
+            None => out.means.push(m),
+        }
+        self.p = [0.0; 3];
+        self.q = [0.0; 3];
+        self.v2 = [0.0; 3];
+        self.i2 = [0.0; 3];
+        self.n2 = 0.0;
+        self.count = 0;
+        if let Some(sum) = &mut self.production {
+            *sum = 0.0;
+        }
+    }
+}
+
+/// What the monitor reports of each interval's means: noise (relative +
+/// floor, Gaussian) and quantisation, then the faults on the readings
+/// (missing CT, exchanged channels, dropouts, a whole-home meter) and the
+/// totals. Each interval draws from the same streams in the same order
+/// wherever this runs, so the readings do not depend on it.
+pub struct MeterNoise {
+    lines: usize,
+    settings: Meter,
+    faults: Faults,
+    nominal_v: f64,
+    noise: Vec<Stream>,
+    /// The production channel's own stream (so the line channels draw as
+    /// without it).
+    production: Option<Stream>,
+    gaps: Vec<(u64, u64)>,
+    gap: usize,
+    row: u64,
+    /// Largest RMS current in each line conductor as read, A.
+    pub line_peak_a: [f64; 3],
+    /// Largest RMS neutral current as read, A.
+    pub neutral_peak_a: f64,
+}
+
+impl MeterNoise {
+    /// The noise stage of `s`'s meter on `lines` line conductors over
+    /// `rows` reporting intervals, from the first.
+    pub fn new(s: &crate::scenario::Scenario, lines: usize, rows: u64) -> Self {
+        let seed = s.run.seed;
+        MeterNoise {
+            lines,
+            settings: s.meter.clone(),
+            faults: s.faults.clone(),
+            nominal_v: s.home.voltage_v,
+            noise: (0..lines)
+                .map(|x| stream(seed, "meter", &format!("noise-l{}", x + 1)))
+                .collect(),
+            production: s
+                .meter
+                .production
+                .then(|| stream(seed, "meter", "noise-production")),
+            gaps: dropout_gaps(&s.faults, s.meter.interval_s, rows, seed),
+            gap: 0,
+            row: 0,
+            line_peak_a: [0.0; 3],
+            neutral_peak_a: 0.0,
+        }
+    }
+
+    /// Reads every interval waiting in `out.means` into its columns.
+    pub fn read_all(&mut self, out: &mut Readings) {
+        let mut means = std::mem::take(&mut out.means);
+        for m in &means {
+            self.read(m, out);
+        }
+        means.clear();
+        out.means = means;
     }
 
     fn noisy(&self, x: f64, floor: f64, rng: &mut Stream) -> f64 {
@@ -252,28 +347,36 @@ impl MeterModel {
         }
     }
 
-    /// Closes the interval and appends its readings.
-    pub fn emit(&mut self, out: &mut Readings) {
-        let k = self.count as f64;
-        let floor_i = self.settings.noise_floor_w / self.nominal_v;
+    /// Whether the interval being read was lost to a dropout.
+    fn lost(&mut self) -> bool {
+        while self.gap < self.gaps.len()
+            && self.gaps[self.gap].0 + self.gaps[self.gap].1 <= self.row
+        {
+            self.gap += 1;
+        }
+        self.gaps
+            .get(self.gap)
+            .is_some_and(|&(a, l)| self.row >= a && self.row < a + l)
+    }
+
+    /// Each line's reading [p, q, v, i] and the neutral's, with noise,
+    /// quantisation, a missing CT and exchanged channels.
+    fn channels(&mut self, m: &IntervalMeans) -> ([[f64; 4]; 3], [f64; 3], f64) {
+        let floor_w = self.settings.noise_floor_w;
+        let floor_i = floor_w / self.nominal_v;
         let mut noise = std::mem::take(&mut self.noise);
         let mut vals = [[0.0f64; 4]; 3];
         for x in 0..self.lines {
             let rng = &mut noise[x];
-            let p = self.quantise(self.noisy(self.p[x] / k, self.settings.noise_floor_w, rng));
-            let q = self.quantise(self.noisy(self.q[x] / k, self.settings.noise_floor_w, rng));
-            let v = self.noisy((self.v2[x] / k).sqrt(), 0.0, rng);
-            let i = self.noisy((self.i2[x] / k).sqrt(), floor_i, rng).abs();
+            let p = self.quantise(self.noisy(m.p[x], floor_w, rng));
+            let q = self.quantise(self.noisy(m.q[x], floor_w, rng));
+            let v = self.noisy(m.v[x], 0.0, rng);
+            let i = self.noisy(m.i[x], floor_i, rng).abs();
             vals[x] = [p, q, v, i];
         }
-        let n = (self.n2 / k).sqrt();
-        let n = self.noisy(n, floor_i, &mut noise[0]).abs();
+        let n = self.noisy(m.n, floor_i, &mut noise[0]).abs();
         self.noise = noise;
-        let mut energy = [
-            self.register_j[0] / 3600.0,
-            self.register_j[1] / 3600.0,
-            self.register_j[2] / 3600.0,
-        ];
+        let mut energy = m.register_wh;
         if let Some(x) = self.faults.no_ct {
             vals[x] = [f64::NAN, f64::NAN, vals[x][2], f64::NAN];
             energy[x] = f64::NAN;
@@ -282,16 +385,14 @@ impl MeterModel {
             vals.swap(a, b);
             energy.swap(a, b);
         }
+        (vals, energy, n)
+    }
+
+    /// Reads one interval and appends its readings.
+    fn read(&mut self, m: &IntervalMeans, out: &mut Readings) {
+        let (vals, energy, n) = self.channels(m);
         // A dropout loses the whole interval.
-        while self.gap < self.gaps.len()
-            && self.gaps[self.gap].0 + self.gaps[self.gap].1 <= self.row
-        {
-            self.gap += 1;
-        }
-        let lost = self
-            .gaps
-            .get(self.gap)
-            .is_some_and(|&(a, l)| self.row >= a && self.row < a + l);
+        let lost = self.lost();
         let (mut tp, mut tq) = (0.0, 0.0);
         for x in 0..self.lines {
             let [p, q, v, i] = if lost { [f64::NAN; 4] } else { vals[x] };
@@ -324,15 +425,29 @@ impl MeterModel {
         out.total_p.push(if lost { f32::NAN } else { tp as f32 });
         out.total_q.push(if lost { f32::NAN } else { tq as f32 });
         out.present.push(!lost);
-        if let Some(p) = self.production_reading(lost) {
+        if let Some(p) = self.production_reading(m.production, lost) {
             out.production_p.push(p);
         }
-        self.p = [0.0; 3];
-        self.q = [0.0; 3];
-        self.v2 = [0.0; 3];
-        self.i2 = [0.0; 3];
-        self.n2 = 0.0;
-        self.count = 0;
+        self.note_peaks(out);
         self.row += 1;
+    }
+
+    /// The production channel's reading of the interval.
+    fn production_reading(&mut self, mean: f64, lost: bool) -> Option<f32> {
+        let mut rng = self.production.take()?;
+        let p = self.quantise(self.noisy(mean, self.settings.noise_floor_w, &mut rng));
+        self.production = Some(rng);
+        Some(if lost { f32::NAN } else { p as f32 })
+    }
+
+    /// The line and neutral currents of the last reading, into the peaks
+    /// (a null reading, NaN, leaves them).
+    fn note_peaks(&mut self, out: &Readings) {
+        for x in 0..self.lines {
+            let i = *out.line_i[x].last().expect("pushed by read") as f64;
+            self.line_peak_a[x] = self.line_peak_a[x].max(i);
+        }
+        let n = *out.n_i.last().expect("pushed by read") as f64;
+        self.neutral_peak_a = self.neutral_peak_a.max(n);
     }
 }

@@ -6,6 +6,7 @@
 use crate::behaviour::timelines;
 use crate::dataset::tables::Tables;
 use crate::dataset::{encode_rows, folder, replace_dir, Files, Format, Layout, CHUNK_ROWS};
+use crate::meter::MeterNoise;
 use crate::scenario::Scenario;
 use crate::simulate::{simulate_with, Chunk, SimulationRecord};
 use std::io;
@@ -141,7 +142,10 @@ pub fn write_into_cut(
         let (tx, rx) = std::sync::mpsc::sync_channel::<Chunk>(2);
         let (back, spare) = std::sync::mpsc::channel::<Chunk>();
         let tables = &tables;
-        let writer = sc.spawn(move || encode_rows(rx, back, tables, meters, truth, threads));
+        // The meter's noise is read on the writer's thread too.
+        let noise = MeterNoise::new(s, s.home.supply.lines(), intervals);
+        let sinks = [meters, truth];
+        let writer = sc.spawn(move || encode_rows(rx, back, tables, noise, sinks, threads));
         let simulated = simulate_with(
             s,
             &tl,
@@ -158,13 +162,17 @@ pub fn write_into_cut(
                     .map_err(|_| io::Error::other("the table writer stopped"))
             },
             recorder.as_mut(),
+            true,
         );
         drop(tx);
         // The writer's error first: when sending failed, it is the cause.
-        let meter_rows = writer
+        let (meter_rows, noise) = writer
             .join()
             .unwrap_or_else(|panic| std::panic::resume_unwind(panic))?;
-        Ok((simulated?, meter_rows))
+        let mut outcome = simulated?;
+        let summary = &mut outcome.summary;
+        (summary.line_peak_a, summary.neutral_peak_a) = (noise.line_peak_a, noise.neutral_peak_a);
+        Ok((outcome, meter_rows))
     })?;
     let waves = match recorder {
         Some(r) => r.finish(s)?,

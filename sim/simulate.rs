@@ -280,12 +280,23 @@ pub fn simulate<E>(
 where
     E: From<Diverged>,
 {
-    simulate_with(s, timelines, intervals, chunk_rows, |c| sink(c), None)
+    simulate_with(
+        s,
+        timelines,
+        intervals,
+        chunk_rows,
+        |c| sink(c),
+        None,
+        false,
+    )
 }
 
 /// [`simulate`], also writing the waveform windows to `recorder`; `sink`
 /// may take the chunk's columns, leaving a chunk of the same shape (whose
-/// columns are cleared before the next rows go in).
+/// columns are cleared before the next rows go in). With `noise_later`,
+/// the readings' columns stay empty: each interval waits in
+/// [`Readings::means`] for a [`crate::meter::MeterNoise`] of the caller's,
+/// and the summary's current peaks are left at zero for it to fill.
 pub(crate) fn simulate_with<E>(
     s: &Scenario,
     timelines: &[Timeline],
@@ -293,6 +304,7 @@ pub(crate) fn simulate_with<E>(
     chunk_rows: usize,
     mut sink: impl FnMut(&mut Chunk) -> Result<(), E>,
     mut recorder: Option<&mut crate::waveform::Recorder>,
+    noise_later: bool,
 ) -> Result<SimulationRecord, E>
 where
     E: From<Diverged>,
@@ -302,14 +314,7 @@ where
     let dt = s.run.step_s;
     let k_int = s.steps_per_interval();
     let mut source = SourceVoltage::new(&s.home.source, dt, s.run.seed);
-    let mut meter = MeterModel::new(
-        &s.meter,
-        &s.faults,
-        lines,
-        s.home.voltage_v,
-        s.run.seed,
-        intervals,
-    );
+    let mut meter = MeterModel::new(s, lines, intervals, !noise_later);
     // The PV inverter, which a production channel measures.
     let pv = s.appliances.iter().position(|a| a.role == Role::Generator);
     let mut chunk = Chunk {
@@ -349,7 +354,6 @@ where
         if (step + 1) % k_int == 0 {
             meter.emit(&mut chunk.readings);
             sums.flush(&mut rows, &net, &walk, timelines, step);
-            summary.note_line_peaks(&chunk.readings, lines);
             let last = chunk.readings.rows() == chunk_rows || step + 1 == total_steps;
             if rows.full() || last {
                 rows.drain(&mut chunk.truth);
@@ -365,6 +369,7 @@ where
         }
     }
     summary.line_energy_j = meter.line_energy_j;
+    (summary.line_peak_a, summary.neutral_peak_a) = meter.peaks();
     Ok(SimulationRecord {
         events: walk.finish(total_steps, s.appliances.len()),
         summary,
@@ -667,17 +672,6 @@ impl IntervalSums {
         self.p[k] = 0.0;
         self.q[k] = 0.0;
         self.line_p[k] = [0.0; 3];
-    }
-}
-
-impl Summary {
-    /// The line and neutral currents of the last reading, into the peaks.
-    fn note_line_peaks(&mut self, readings: &Readings, lines: usize) {
-        let r = readings.rows() - 1;
-        for x in 0..lines {
-            self.line_peak_a[x] = self.line_peak_a[x].max(readings.line_i[x][r] as f64);
-        }
-        self.neutral_peak_a = self.neutral_peak_a.max(readings.n_i[r] as f64);
     }
 }
 

@@ -15,6 +15,7 @@ pub mod sink;
 pub mod tables;
 
 use crate::difficulty::Difficulty;
+use crate::meter::MeterNoise;
 use crate::scenario::Scenario;
 use crate::simulate::{Chunk, SimulationRecord, StateSpan};
 use serde_json::Value;
@@ -101,20 +102,23 @@ pub fn threads() -> io::Result<usize> {
     }
 }
 
-/// Writes each chunk's meters and truth as it arrives (its columns lent to
-/// the batches, no copy), sends the chunk back through `back` for the
-/// simulation to fill again, then finishes both files. Returns the meters
-/// rows written.
+/// Writes each chunk's meters and truth as it arrives: its intervals read
+/// through the meter's `noise` here, off the simulation's thread, and its
+/// columns lent to the batches (no copy). Sends the chunk back through
+/// `back` for the simulation to fill again, then finishes both files.
+/// Returns the meters rows written and the noise stage, which holds the
+/// current peaks read.
 pub fn encode_rows(
     rx: std::sync::mpsc::Receiver<Chunk>,
     back: std::sync::mpsc::Sender<Chunk>,
     tables: &Tables,
-    mut meters: Sink,
-    mut truth: Sink,
+    mut noise: MeterNoise,
+    [mut meters, mut truth]: [Sink; 2],
     threads: usize,
-) -> io::Result<u64> {
+) -> io::Result<(u64, MeterNoise)> {
     let mut rows = 0;
     for mut chunk in rx {
+        noise.read_all(&mut chunk.readings);
         let mut lent = tables::Lent::default();
         let [m, t] = tables.lend_batches(&mut chunk, &mut lent);
         rows += m.num_rows() as u64;
@@ -125,7 +129,7 @@ pub fn encode_rows(
     }
     meters.close(threads)?;
     truth.close(threads)?;
-    Ok(rows)
+    Ok((rows, noise))
 }
 
 /// The files of a dataset being written into a folder, placed by a

@@ -71,7 +71,10 @@ fn floor(s: &Scenario, out: &Path) {
         short.intervals(),
         CHUNK_ROWS,
         |c| -> Result<(), ()> {
-            kept = Some(copy_chunk(c));
+            kept = Some(loadloom::simulate::Chunk {
+                first_row: 0,
+                ..c.clone()
+            });
             Ok(())
         },
     )
@@ -130,33 +133,6 @@ fn floor(s: &Scenario, out: &Path) {
         "floor: precomputing took no part in the {:.1} s",
         started.elapsed().as_secs_f64()
     );
-}
-
-/// A copy of the chunk the simulation handed over.
-fn copy_chunk(c: &loadloom::simulate::Chunk) -> loadloom::simulate::Chunk {
-    loadloom::simulate::Chunk {
-        first_row: 0,
-        readings: loadloom::meter::Readings {
-            line_p: c.readings.line_p.clone(),
-            line_q: c.readings.line_q.clone(),
-            line_v: c.readings.line_v.clone(),
-            line_i: c.readings.line_i.clone(),
-            n_i: c.readings.n_i.clone(),
-            total_p: c.readings.total_p.clone(),
-            total_q: c.readings.total_q.clone(),
-            energy: c.readings.energy.clone(),
-            production_p: c.readings.production_p.clone(),
-            present: c.readings.present.clone(),
-        },
-        truth: loadloom::simulate::Truth {
-            app_p: c.truth.app_p.clone(),
-            app_q: c.truth.app_q.clone(),
-            app_state: c.truth.app_state.clone(),
-            app_line_p: c.truth.app_line_p.clone(),
-            app_soc: c.truth.app_soc.clone(),
-            unmetered_p: c.truth.unmetered_p.clone(),
-        },
-    }
 }
 
 /// Cuts every column of `chunk` to its first `n` rows (the run's last chunk).
