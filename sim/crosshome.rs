@@ -8,7 +8,7 @@ use crate::fleet::Population;
 use crate::pipeline;
 use crate::roundtrip::{check_periods, Plan};
 use crate::scenario::Error;
-use solver_check::crosshome::{FleetOutcome, Home};
+use solver_check::crosshome::{FleetHome, FleetOutcome};
 use std::path::Path;
 
 /// Homes `0..train` of the population train the solver (over
@@ -50,7 +50,7 @@ pub fn run(
         let name = format!("home={i:05}");
         let written = pipeline::write(&s, &homes_dir.join(&name), Format::Parquet, &mut |_| {})
             .map_err(|e| pipeline::write_error(&e, &homes_dir.join(&name)))?;
-        let home = Home {
+        let home = FleetHome {
             name,
             dataset: written.dir,
         };

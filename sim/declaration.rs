@@ -9,7 +9,7 @@
 //! position in its errors stays the file's own.
 
 use crate::scenario::{Error, LoadKind};
-use crate::units::{parse_quantity, Kind};
+use crate::units::{parse_quantity, QuantityKind};
 use solver_check::audit::decl::{DeclAppliance, DeclDraw, Steps, Supply};
 use solver_check::contract::{Wiring, C64};
 use std::ops::Range;
@@ -271,7 +271,7 @@ fn quantity(
     t: &dyn toml_edit::TableLike,
     key: &str,
     at: &str,
-    kind: Kind,
+    kind: QuantityKind,
 ) -> Result<Option<f64>, Error> {
     let Some((s, span)) = string(path, text, t, key, at)? else {
         return Ok(None);
@@ -316,7 +316,7 @@ fn read_short(
             )
         })?;
     let on = powers(path, text, t, &at)?;
-    let rated_v = quantity(path, text, t, "rated", &at, Kind::Voltage)?;
+    let rated_v = quantity(path, text, t, "rated", &at, QuantityKind::Voltage)?;
     let (ws, wspan) = string(path, text, t, "wiring", &at)?.ok_or_else(|| {
         err_at(
             path,
@@ -375,7 +375,7 @@ fn reactive(
     at: &str,
     p_w: f64,
 ) -> Result<Option<f64>, Error> {
-    let q = quantity(path, text, t, "q", at, Kind::Reactive)?;
+    let q = quantity(path, text, t, "q", at, QuantityKind::Reactive)?;
     let Some(item) = t.get("pf") else {
         return Ok(q);
     };
@@ -401,7 +401,7 @@ fn reactive(
 /// applies to the states that give none.
 fn powers(path: &Path, text: &str, t: &toml_edit::Table, at: &str) -> Result<Vec<C64>, Error> {
     let Some(item) = t.get("states") else {
-        let p = quantity(path, text, t, "power", at, Kind::Power)?.unwrap_or(0.0);
+        let p = quantity(path, text, t, "power", at, QuantityKind::Power)?.unwrap_or(0.0);
         let q = reactive(path, text, t, at, p)?.unwrap_or(0.0);
         return Ok(vec![C64::new(p, q)]);
     };
@@ -423,7 +423,7 @@ fn powers(path: &Path, text: &str, t: &toml_edit::Table, at: &str) -> Result<Vec
         let vspan = v.span().unwrap_or(span.clone());
         let s = match (v.as_str(), v.as_inline_table()) {
             (Some(p), _) => {
-                let p = parse_quantity(p, Kind::Power).map_err(|m| bad(vspan, &m))?;
+                let p = parse_quantity(p, QuantityKind::Power).map_err(|m| bad(vspan, &m))?;
                 C64::new(p, reactive(path, text, t, at, p)?.unwrap_or(0.0))
             }
             (None, Some(it)) => {
@@ -433,7 +433,7 @@ fn powers(path: &Path, text: &str, t: &toml_edit::Table, at: &str) -> Result<Vec
                     );
                     return Err(bad(x.span().unwrap_or(vspan), &m));
                 }
-                let p = quantity(path, text, it, "power", &here, Kind::Power)?;
+                let p = quantity(path, text, it, "power", &here, QuantityKind::Power)?;
                 let p = p.ok_or_else(|| bad(vspan, "a state without `power`"))?;
                 let q = match reactive(path, text, it, &here, p)? {
                     Some(q) => q,

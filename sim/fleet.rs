@@ -14,7 +14,7 @@ use crate::rng::stream;
 use crate::scenario::reader::{Reader, TableReader};
 use crate::scenario::source::{parse_toml, Error, Node, Sources, Val};
 use crate::scenario::{library, Scenario};
-use crate::units::Kind;
+use crate::units::QuantityKind;
 use rand::Rng;
 use serde_json::{json, Value};
 use solver_check::contract::FLEET_FORMAT;
@@ -437,7 +437,10 @@ fn read_variation(
     n: &Node,
     path: &str,
 ) -> Result<(f64, f64, f64), Error> {
-    let shift_h = t.non_negative("shift", Kind::Duration)?.unwrap_or(0.0) / 3600.0;
+    let shift_h = t
+        .non_negative("shift", QuantityKind::Duration)?
+        .unwrap_or(0.0)
+        / 3600.0;
     if shift_h > 12.0 {
         return Err(ctx.err(
             t.opt("shift").unwrap(),
@@ -446,8 +449,12 @@ fn read_variation(
             "write e.g. shift = \"1 h\"",
         ));
     }
-    let power = t.non_negative("power", Kind::Fraction)?.unwrap_or(0.0);
-    let time = t.non_negative("time", Kind::Fraction)?.unwrap_or(0.0);
+    let power = t
+        .non_negative("power", QuantityKind::Fraction)?
+        .unwrap_or(0.0);
+    let time = t
+        .non_negative("time", QuantityKind::Fraction)?
+        .unwrap_or(0.0);
     if power > 0.5 || time > 0.5 {
         return Err(ctx.err(
             n,

@@ -11,7 +11,7 @@
 
 use crate::behaviour::dist::sample;
 use crate::electrical::C64;
-use crate::rng::{stream, Stream};
+use crate::rng::{stream, RandomStream};
 use crate::scenario::{Faults, Meter};
 use rand::Rng;
 use rand_distr::StandardNormal;
@@ -281,10 +281,10 @@ pub struct MeterNoise {
     settings: Meter,
     faults: Faults,
     nominal_v: f64,
-    noise: Vec<Stream>,
+    noise: Vec<RandomStream>,
     /// The production channel's own stream (so the line channels draw as
     /// without it).
-    production: Option<Stream>,
+    production: Option<RandomStream>,
     gaps: Vec<(u64, u64)>,
     gap: usize,
     row: u64,
@@ -329,7 +329,7 @@ impl MeterNoise {
         out.means = means;
     }
 
-    fn noisy(&self, x: f64, floor: f64, rng: &mut Stream) -> f64 {
+    fn noisy(&self, x: f64, floor: f64, rng: &mut RandomStream) -> f64 {
         let sd = ((self.settings.noise_relative * x).powi(2) + floor * floor).sqrt();
         if sd == 0.0 {
             x

@@ -5,7 +5,7 @@ use rand::SeedableRng;
 use rand_xoshiro::Xoshiro256PlusPlus;
 
 /// A random stream (xoshiro256++): reproducible from its seed on every platform.
-pub type Stream = Xoshiro256PlusPlus;
+pub type RandomStream = Xoshiro256PlusPlus;
 
 /// A stream for one owner (an appliance id, or "meter"/"source") and one purpose.
 ///
@@ -17,7 +17,7 @@ pub type Stream = Xoshiro256PlusPlus;
 /// assert_eq!(a, b);
 /// assert_ne!(a, c);
 /// ```
-pub fn stream(seed: u64, owner: &str, purpose: &str) -> Stream {
+pub fn stream(seed: u64, owner: &str, purpose: &str) -> RandomStream {
     // FNV-1a 64 over the three parts with separators: stable across
     // platforms and releases, unlike std's hasher.
     let mut h: u64 = 0xcbf2_9ce4_8422_2325;

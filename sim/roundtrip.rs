@@ -9,7 +9,7 @@ use crate::scenario::{Error, Scenario};
 use serde_json::{json, Value};
 use solver_check::contract::{line_name, SUITE_FORMAT};
 use solver_check::render::Render;
-use solver_check::roundtrip::{Prepared, Reveal, Solver, SolverRun, Split};
+use solver_check::roundtrip::{PreparedTask, Reveal, Solver, SolverRun, Split};
 use solver_check::score::Report;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
@@ -122,7 +122,7 @@ pub fn check_periods(
 
 /// Simulates `s` over train + test and writes the task and the scored
 /// truth, for any number of solvers.
-pub fn prepare(s: &Scenario, work: &Path, p: &Plan) -> Result<Prepared, Error> {
+pub fn prepare(s: &Scenario, work: &Path, p: &Plan) -> Result<PreparedTask, Error> {
     let mut s = s.clone();
     s.run.length_s = p.train_s + p.test_s;
     let train_rows = (p.train_s / s.meter.interval_s).round() as usize;
@@ -151,7 +151,7 @@ fn task_failed(work: &Path, e: &std::io::Error) -> Error {
 
 /// Reuses a dataset already written: the first `train_s` as training, the
 /// next `test_s` as test. Err names the dataset and the fix (bad input).
-pub fn prepare_dataset(dir: &Path, work: &Path, p: &Plan) -> Result<Prepared, Error> {
+pub fn prepare_dataset(dir: &Path, work: &Path, p: &Plan) -> Result<PreparedTask, Error> {
     let ds = solver_check::Dataset::open(dir)?;
     ds.verify()?;
     let rows = |secs: f64| (secs / ds.interval_s).round() as usize;
@@ -182,7 +182,7 @@ pub fn prepare_dataset(dir: &Path, work: &Path, p: &Plan) -> Result<Prepared, Er
 /// Runs every solver on the prepared task, one after another, each in its
 /// own folder `work/solvers/N-name/`.
 pub fn board(
-    prep: &Prepared,
+    prep: &PreparedTask,
     solvers: &[Solver],
     limit: Duration,
     allow_read: &[std::path::PathBuf],
@@ -223,7 +223,7 @@ pub fn once(s: &Scenario, work: &Path, p: &Plan) -> Result<SolverRun, Error> {
 /// Runs the solver on a prepared task in `work`; the error is ours (a
 /// folder that cannot be written), not the solver's (that is its outcome).
 pub fn run_solver(
-    prep: &Prepared,
+    prep: &PreparedTask,
     solver: &Solver,
     work: &Path,
     p: &Plan,

@@ -5,7 +5,7 @@
 
 /// What a quantity measures; decides which units are accepted.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Kind {
+pub enum QuantityKind {
     /// Active power: `W kW MW`, held in watts.
     Power,
     /// Reactive power: `var kvar`, held in var.
@@ -39,16 +39,16 @@ pub enum Kind {
     Area,
 }
 
-impl Kind {
+impl QuantityKind {
     /// Units accepted for this kind, with their factor to SI.
     pub fn units(self) -> &'static [(&'static str, f64)] {
         match self {
-            Kind::Power => &[("W", 1.0), ("kW", 1e3), ("MW", 1e6)],
-            Kind::Reactive => &[("var", 1.0), ("kvar", 1e3), ("VAr", 1.0), ("kVAr", 1e3)],
-            Kind::Voltage => &[("V", 1.0), ("kV", 1e3)],
-            Kind::Current => &[("A", 1.0), ("mA", 1e-3)],
-            Kind::Frequency => &[("Hz", 1.0), ("kHz", 1e3)],
-            Kind::Duration => &[
+            QuantityKind::Power => &[("W", 1.0), ("kW", 1e3), ("MW", 1e6)],
+            QuantityKind::Reactive => &[("var", 1.0), ("kvar", 1e3), ("VAr", 1.0), ("kVAr", 1e3)],
+            QuantityKind::Voltage => &[("V", 1.0), ("kV", 1e3)],
+            QuantityKind::Current => &[("A", 1.0), ("mA", 1e-3)],
+            QuantityKind::Frequency => &[("Hz", 1.0), ("kHz", 1e3)],
+            QuantityKind::Duration => &[
                 ("ms", 1e-3),
                 ("s", 1.0),
                 ("min", 60.0),
@@ -56,36 +56,40 @@ impl Kind {
                 ("d", 86400.0),
                 ("w", 604800.0),
             ],
-            Kind::Impedance => &[("ohm", 1.0), ("mohm", 1e-3), ("Ω", 1.0), ("mΩ", 1e-3)],
-            Kind::Fraction => &[("%", 0.01), ("ppm", 1e-6)],
-            Kind::Angle => &[("deg", 1.0), ("°", 1.0)],
-            Kind::Energy => &[("Wh", 3600.0), ("kWh", 3.6e6), ("MWh", 3.6e9)],
-            Kind::Temperature => &[("°C", 1.0), ("degC", 1.0)],
-            Kind::TempDiff => &[("K", 1.0)],
-            Kind::Conductance => &[("W/K", 1.0), ("kW/K", 1e3)],
-            Kind::HeatCapacity => &[("J/K", 1.0), ("kJ/K", 1e3), ("MJ/K", 1e6), ("kWh/K", 3.6e6)],
-            Kind::Area => &[("m²", 1.0), ("m2", 1.0)],
+            QuantityKind::Impedance => &[("ohm", 1.0), ("mohm", 1e-3), ("Ω", 1.0), ("mΩ", 1e-3)],
+            QuantityKind::Fraction => &[("%", 0.01), ("ppm", 1e-6)],
+            QuantityKind::Angle => &[("deg", 1.0), ("°", 1.0)],
+            QuantityKind::Energy => &[("Wh", 3600.0), ("kWh", 3.6e6), ("MWh", 3.6e9)],
+            QuantityKind::Temperature => &[("°C", 1.0), ("degC", 1.0)],
+            QuantityKind::TempDiff => &[("K", 1.0)],
+            QuantityKind::Conductance => &[("W/K", 1.0), ("kW/K", 1e3)],
+            QuantityKind::HeatCapacity => {
+                &[("J/K", 1.0), ("kJ/K", 1e3), ("MJ/K", 1e6), ("kWh/K", 3.6e6)]
+            }
+            QuantityKind::Area => &[("m²", 1.0), ("m2", 1.0)],
         }
     }
 
     /// A phrase for error messages: what would be accepted.
     pub fn example(self) -> &'static str {
         match self {
-            Kind::Power => "a power such as \"350 W\" or \"1.5 kW\"",
-            Kind::Reactive => "a reactive power such as \"120 var\" or \"0.4 kvar\"",
-            Kind::Voltage => "a voltage such as \"120 V\" or \"230 V\"",
-            Kind::Current => "a current such as \"200 A\"",
-            Kind::Frequency => "a frequency such as \"60 Hz\"",
-            Kind::Duration => "a duration such as \"90 s\", \"13 min\", \"2 h\" or \"7 d\"",
-            Kind::Impedance => "an impedance such as \"0.05 ohm\" or \"40 mohm\"",
-            Kind::Fraction => "a share such as \"2 %\", \"20 ppm\" or a fraction such as 0.02",
-            Kind::Angle => "an angle such as \"1.5 deg\"",
-            Kind::Energy => "an energy such as \"13.5 kWh\"",
-            Kind::Temperature => "a temperature such as \"20 °C\" or \"-5 degC\"",
-            Kind::TempDiff => "a temperature difference such as \"1 K\"",
-            Kind::Conductance => "a heat loss coefficient such as \"250 W/K\"",
-            Kind::HeatCapacity => "a heat capacity such as \"30 MJ/K\" or \"8 kWh/K\"",
-            Kind::Area => "an area such as \"4 m²\" or \"4 m2\"",
+            QuantityKind::Power => "a power such as \"350 W\" or \"1.5 kW\"",
+            QuantityKind::Reactive => "a reactive power such as \"120 var\" or \"0.4 kvar\"",
+            QuantityKind::Voltage => "a voltage such as \"120 V\" or \"230 V\"",
+            QuantityKind::Current => "a current such as \"200 A\"",
+            QuantityKind::Frequency => "a frequency such as \"60 Hz\"",
+            QuantityKind::Duration => "a duration such as \"90 s\", \"13 min\", \"2 h\" or \"7 d\"",
+            QuantityKind::Impedance => "an impedance such as \"0.05 ohm\" or \"40 mohm\"",
+            QuantityKind::Fraction => {
+                "a share such as \"2 %\", \"20 ppm\" or a fraction such as 0.02"
+            }
+            QuantityKind::Angle => "an angle such as \"1.5 deg\"",
+            QuantityKind::Energy => "an energy such as \"13.5 kWh\"",
+            QuantityKind::Temperature => "a temperature such as \"20 °C\" or \"-5 degC\"",
+            QuantityKind::TempDiff => "a temperature difference such as \"1 K\"",
+            QuantityKind::Conductance => "a heat loss coefficient such as \"250 W/K\"",
+            QuantityKind::HeatCapacity => "a heat capacity such as \"30 MJ/K\" or \"8 kWh/K\"",
+            QuantityKind::Area => "an area such as \"4 m²\" or \"4 m2\"",
         }
     }
 
@@ -97,65 +101,65 @@ impl Kind {
     /// checked where those keys are read.
     pub fn limits(self) -> (f64, f64) {
         match self {
-            Kind::Power | Kind::Reactive => (1e-3, 1e6),
-            Kind::Voltage => (1e-3, 1e5),
-            Kind::Current => (1e-3, 1e5),
-            Kind::Frequency => (1e-3, 1e7),
+            QuantityKind::Power | QuantityKind::Reactive => (1e-3, 1e6),
+            QuantityKind::Voltage => (1e-3, 1e5),
+            QuantityKind::Current => (1e-3, 1e5),
+            QuantityKind::Frequency => (1e-3, 1e7),
             // The longest run: 3 years of 366 days.
-            Kind::Duration => (1e-3, MAX_DURATION_S),
-            Kind::Impedance => (1e-6, 1e3),
-            Kind::Fraction => (1e-9, 100.0),
-            Kind::Angle => (1e-6, 360.0),
+            QuantityKind::Duration => (1e-3, MAX_DURATION_S),
+            QuantityKind::Impedance => (1e-6, 1e3),
+            QuantityKind::Fraction => (1e-9, 100.0),
+            QuantityKind::Angle => (1e-6, 360.0),
             // 1 mWh … 1 GWh.
-            Kind::Energy => (3.6, 3.6e12),
+            QuantityKind::Energy => (3.6, 3.6e12),
             // Beyond the extremes ever measured at the surface.
-            Kind::Temperature => (1e-3, 100.0),
-            Kind::TempDiff => (1e-3, 100.0),
-            Kind::Conductance => (1e-3, 1e6),
-            Kind::HeatCapacity => (1.0, 1e12),
-            Kind::Area => (1e-3, 1e5),
+            QuantityKind::Temperature => (1e-3, 100.0),
+            QuantityKind::TempDiff => (1e-3, 100.0),
+            QuantityKind::Conductance => (1e-3, 1e6),
+            QuantityKind::HeatCapacity => (1.0, 1e12),
+            QuantityKind::Area => (1e-3, 1e5),
         }
     }
 
     /// The SI unit a value of this kind is held in, for messages.
     pub fn si_unit(self) -> &'static str {
         match self {
-            Kind::Power => "W",
-            Kind::Reactive => "var",
-            Kind::Voltage => "V",
-            Kind::Current => "A",
-            Kind::Frequency => "Hz",
-            Kind::Duration => "s",
-            Kind::Impedance => "ohm",
-            Kind::Fraction => "(as a fraction)",
-            Kind::Angle => "deg",
-            Kind::Energy => "J",
-            Kind::Temperature => "°C",
-            Kind::TempDiff => "K",
-            Kind::Conductance => "W/K",
-            Kind::HeatCapacity => "J/K",
-            Kind::Area => "m²",
+            QuantityKind::Power => "W",
+            QuantityKind::Reactive => "var",
+            QuantityKind::Voltage => "V",
+            QuantityKind::Current => "A",
+            QuantityKind::Frequency => "Hz",
+            QuantityKind::Duration => "s",
+            QuantityKind::Impedance => "ohm",
+            QuantityKind::Fraction => "(as a fraction)",
+            QuantityKind::Angle => "deg",
+            QuantityKind::Energy => "J",
+            QuantityKind::Temperature => "°C",
+            QuantityKind::TempDiff => "K",
+            QuantityKind::Conductance => "W/K",
+            QuantityKind::HeatCapacity => "J/K",
+            QuantityKind::Area => "m²",
         }
     }
 
     /// What the quantity is, in words, for error messages ("power").
     pub fn name(self) -> &'static str {
         match self {
-            Kind::Power => "power",
-            Kind::Reactive => "reactive power",
-            Kind::Voltage => "voltage",
-            Kind::Current => "current",
-            Kind::Frequency => "frequency",
-            Kind::Duration => "duration",
-            Kind::Impedance => "impedance",
-            Kind::Fraction => "share",
-            Kind::Angle => "angle",
-            Kind::Energy => "energy",
-            Kind::Temperature => "temperature",
-            Kind::TempDiff => "temperature difference",
-            Kind::Conductance => "heat loss coefficient",
-            Kind::HeatCapacity => "heat capacity",
-            Kind::Area => "area",
+            QuantityKind::Power => "power",
+            QuantityKind::Reactive => "reactive power",
+            QuantityKind::Voltage => "voltage",
+            QuantityKind::Current => "current",
+            QuantityKind::Frequency => "frequency",
+            QuantityKind::Duration => "duration",
+            QuantityKind::Impedance => "impedance",
+            QuantityKind::Fraction => "share",
+            QuantityKind::Angle => "angle",
+            QuantityKind::Energy => "energy",
+            QuantityKind::Temperature => "temperature",
+            QuantityKind::TempDiff => "temperature difference",
+            QuantityKind::Conductance => "heat loss coefficient",
+            QuantityKind::HeatCapacity => "heat capacity",
+            QuantityKind::Area => "area",
         }
     }
 }
@@ -165,12 +169,12 @@ impl Kind {
 /// file, line and column of the value, a command its option.
 ///
 /// ```
-/// use loadloom::units::{parse_quantity, Kind};
-/// assert_eq!(parse_quantity("1.5 kW", Kind::Power), Ok(1500.0));
-/// assert_eq!(parse_quantity("13 min", Kind::Duration), Ok(780.0));
-/// assert!(parse_quantity("1.5 kw", Kind::Power).unwrap_err().contains("kW"));
+/// use loadloom::units::{parse_quantity, QuantityKind};
+/// assert_eq!(parse_quantity("1.5 kW", QuantityKind::Power), Ok(1500.0));
+/// assert_eq!(parse_quantity("13 min", QuantityKind::Duration), Ok(780.0));
+/// assert!(parse_quantity("1.5 kw", QuantityKind::Power).unwrap_err().contains("kW"));
 /// ```
-pub fn parse_quantity(text: &str, kind: Kind) -> Result<f64, String> {
+pub fn parse_quantity(text: &str, kind: QuantityKind) -> Result<f64, String> {
     let t = text.trim();
     let split = number_prefix_len(t);
     let (num, unit) = t.split_at(split);
@@ -219,9 +223,9 @@ pub const MAX_DURATION_S: f64 = 3.0 * 366.0 * 86400.0;
 /// most three years is no behaviour the data could show.
 pub const MAX_APPLIANCE_DURATION_S: f64 = 366.0 * 86400.0;
 
-/// `si` if it is zero or within [`Kind::limits`], else the reason (a
+/// `si` if it is zero or within [`QuantityKind::limits`], else the reason (a
 /// `String`, placed by the caller as for [`parse_quantity`]).
-fn within_limits(text: &str, si: f64, kind: Kind) -> Result<f64, String> {
+fn within_limits(text: &str, si: f64, kind: QuantityKind) -> Result<f64, String> {
     let (lo, hi) = kind.limits();
     let size = si.abs();
     if si == 0.0 || (lo..=hi).contains(&size) {
@@ -279,42 +283,57 @@ mod tests {
 
     #[test]
     fn parses_units_to_si() {
-        assert_eq!(parse_quantity("118 W", Kind::Power).unwrap(), 118.0);
-        assert_eq!(parse_quantity("0.4 kvar", Kind::Reactive).unwrap(), 400.0);
-        assert_eq!(parse_quantity("7 d", Kind::Duration).unwrap(), 604800.0);
-        assert_eq!(parse_quantity("230V", Kind::Voltage).unwrap(), 230.0);
-        assert!((parse_quantity("2 %", Kind::Fraction).unwrap() - 0.02).abs() < 1e-15);
-        assert_eq!(parse_quantity("-350 W", Kind::Power).unwrap(), -350.0);
-        assert_eq!(parse_quantity("1e3 W", Kind::Power).unwrap(), 1000.0);
+        assert_eq!(parse_quantity("118 W", QuantityKind::Power).unwrap(), 118.0);
+        assert_eq!(
+            parse_quantity("0.4 kvar", QuantityKind::Reactive).unwrap(),
+            400.0
+        );
+        assert_eq!(
+            parse_quantity("7 d", QuantityKind::Duration).unwrap(),
+            604800.0
+        );
+        assert_eq!(
+            parse_quantity("230V", QuantityKind::Voltage).unwrap(),
+            230.0
+        );
+        assert!((parse_quantity("2 %", QuantityKind::Fraction).unwrap() - 0.02).abs() < 1e-15);
+        assert_eq!(
+            parse_quantity("-350 W", QuantityKind::Power).unwrap(),
+            -350.0
+        );
+        assert_eq!(
+            parse_quantity("1e3 W", QuantityKind::Power).unwrap(),
+            1000.0
+        );
     }
 
     #[test]
     fn rejects_bad_units_with_a_hint() {
-        let e = parse_quantity("1.5 kw", Kind::Power).unwrap_err();
+        let e = parse_quantity("1.5 kw", QuantityKind::Power).unwrap_err();
         assert!(e.contains("did you mean \"kW\""), "{e}");
-        assert!(parse_quantity("fast", Kind::Duration).is_err());
-        assert!(parse_quantity("12", Kind::Duration)
+        assert!(parse_quantity("fast", QuantityKind::Duration).is_err());
+        assert!(parse_quantity("12", QuantityKind::Duration)
             .unwrap_err()
             .contains("no unit"));
-        assert!(parse_quantity("3 V", Kind::Power).is_err());
+        assert!(parse_quantity("3 V", QuantityKind::Power).is_err());
     }
 
     #[test]
     fn refuses_magnitudes_beyond_the_limits() {
         // Issue 18: these reached the physics and came out as inf or NaN.
         for (text, kind) in [
-            ("1e308 kW", Kind::Power),
-            ("1e-320 V", Kind::Voltage),
-            ("1e30 h", Kind::Duration),
-            ("1e-30 s", Kind::Duration),
-            ("5e-324 ohm", Kind::Impedance),
-            ("1e308 %", Kind::Fraction),
+            ("1e308 kW", QuantityKind::Power),
+            ("1e-320 V", QuantityKind::Voltage),
+            ("1e30 h", QuantityKind::Duration),
+            ("1e-30 s", QuantityKind::Duration),
+            ("5e-324 ohm", QuantityKind::Impedance),
+            ("1e308 %", QuantityKind::Fraction),
         ] {
             let e = parse_quantity(text, kind).unwrap_err();
             assert!(e.contains("outside the range"), "{text}: {e}");
         }
-        assert_eq!(parse_quantity("0 W", Kind::Power), Ok(0.0));
-        assert_eq!(parse_quantity("-0.5 MW", Kind::Power), Ok(-5e5));
-        assert_eq!(parse_quantity("100 ms", Kind::Duration), Ok(0.1));
+        assert_eq!(parse_quantity("0 W", QuantityKind::Power), Ok(0.0));
+        assert_eq!(parse_quantity("-0.5 MW", QuantityKind::Power), Ok(-5e5));
+        assert_eq!(parse_quantity("100 ms", QuantityKind::Duration), Ok(0.1));
     }
 }

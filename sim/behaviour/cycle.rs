@@ -4,7 +4,7 @@
 
 use super::dist::sample;
 use super::{Builder, Clock, Timeline};
-use crate::rng::Stream;
+use crate::rng::RandomStream;
 use crate::scenario::{Dist, Extra};
 use rand::Rng;
 
@@ -12,7 +12,7 @@ pub fn generate(
     dwell: &[Dist],
     extra: Option<&Extra>,
     clock: &Clock,
-    rng: &mut Stream,
+    rng: &mut RandomStream,
 ) -> Timeline {
     let n = dwell.len();
     let mut b = Builder::new(clock.steps);

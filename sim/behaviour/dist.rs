@@ -1,12 +1,12 @@
 //! Sampling of the duration distributions declared in scenarios.
 
-use crate::rng::Stream;
+use crate::rng::RandomStream;
 use crate::scenario::Dist;
 use rand::Rng;
 use rand_distr::{Distribution, Gamma, LogNormal};
 
 /// One duration in seconds.
-pub fn sample(d: &Dist, rng: &mut Stream) -> f64 {
+pub fn sample(d: &Dist, rng: &mut RandomStream) -> f64 {
     match *d {
         Dist::Fixed { value_s } => value_s,
         Dist::Uniform { min_s, max_s } => rng.random_range(min_s..max_s),
@@ -20,7 +20,7 @@ pub fn sample(d: &Dist, rng: &mut Stream) -> f64 {
 }
 
 /// Index drawn with probability proportional to `weights`.
-pub fn categorical(weights: &[f64], rng: &mut Stream) -> usize {
+pub fn categorical(weights: &[f64], rng: &mut RandomStream) -> usize {
     let total: f64 = weights.iter().sum();
     let mut u = rng.random::<f64>() * total;
     for (i, w) in weights.iter().enumerate() {

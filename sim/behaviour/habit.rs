@@ -2,7 +2,7 @@
 
 use super::dist::categorical;
 use super::Clock;
-use crate::rng::Stream;
+use crate::rng::RandomStream;
 use crate::scenario::Habit;
 use rand::Rng;
 use rand_distr::{Distribution, Poisson};
@@ -12,7 +12,7 @@ use rand_distr::{Distribution, Poisson};
 /// habit's weights and a uniform time within that hour. Local times are
 /// placed with the time zone's rules (a start in a skipped DST hour moves
 /// forward).
-pub fn starts(h: &Habit, clock: &Clock, rng: &mut Stream) -> Vec<u64> {
+pub fn starts(h: &Habit, clock: &Clock, rng: &mut RandomStream) -> Vec<u64> {
     let start = jiff::Timestamp::from_millisecond(clock.start_utc_ms)
         .expect("valid start")
         .to_zoned(clock.tz.clone());

@@ -3,11 +3,16 @@
 
 use super::dist::{categorical, sample};
 use super::{Builder, Clock, Timeline};
-use crate::rng::Stream;
+use crate::rng::RandomStream;
 use crate::scenario::Dist;
 use rand::Rng;
 
-pub fn generate(dwell: &[Dist], next: &[Vec<f64>], clock: &Clock, rng: &mut Stream) -> Timeline {
+pub fn generate(
+    dwell: &[Dist],
+    next: &[Vec<f64>],
+    clock: &Clock,
+    rng: &mut RandomStream,
+) -> Timeline {
     let mut b = Builder::new(clock.steps);
     let mut idx = 0;
     let mut len = clock.steps_of(sample(&dwell[0], rng) * rng.random::<f64>());

@@ -157,7 +157,7 @@ pub fn timeline(
 }
 
 /// The timeline of one appliance over `clock`, from `rng`.
-fn generate(app: &Appliance, clock: &Clock, rng: &mut crate::rng::Stream) -> Timeline {
+fn generate(app: &Appliance, clock: &Clock, rng: &mut crate::rng::RandomStream) -> Timeline {
     match &app.behaviour {
         Behaviour::Cycle { dwell, extra } => cycle::generate(dwell, extra.as_ref(), clock, rng),
         Behaviour::Program { habit, lengths } => program::generate(habit, lengths, clock, rng),

@@ -6,7 +6,7 @@
 use super::dist::sample;
 use super::habit::starts;
 use super::{Builder, Clock, Timeline};
-use crate::rng::Stream;
+use crate::rng::RandomStream;
 use crate::scenario::Session;
 use rand::Rng;
 use rand_distr::StandardNormal;
@@ -32,13 +32,14 @@ pub fn generate(
     every_s: f64,
     session: Option<&Session>,
     clock: &Clock,
-    rng: &mut Stream,
+    rng: &mut RandomStream,
 ) -> Timeline {
     let every = clock.steps_of(every_s);
     let mut b = Builder::new(clock.steps);
     let mut x = rng.random_range(min..=1.0);
-    let step =
-        |x: f64, rng: &mut Stream| reflect(x + wander * rng.sample::<f64, _>(StandardNormal), min);
+    let step = |x: f64, rng: &mut RandomStream| {
+        reflect(x + wander * rng.sample::<f64, _>(StandardNormal), min)
+    };
     let Some(sess) = session else {
         while b.push(run, every, x) {
             x = step(x, rng);

@@ -6,10 +6,15 @@
 use super::dist::sample;
 use super::habit::starts;
 use super::{Builder, Clock, Timeline};
-use crate::rng::Stream;
+use crate::rng::RandomStream;
 use crate::scenario::{Dist, Habit};
 
-pub fn generate(habit: &Habit, lengths: &[Dist], clock: &Clock, rng: &mut Stream) -> Timeline {
+pub fn generate(
+    habit: &Habit,
+    lengths: &[Dist],
+    clock: &Clock,
+    rng: &mut RandomStream,
+) -> Timeline {
     let mut b = Builder::new(clock.steps);
     for s in starts(habit, clock, rng) {
         b.fill_to(0, s.max(b.now()), 1.0);

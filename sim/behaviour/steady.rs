@@ -1,11 +1,11 @@
 //! Always on, with the power scaled by (1 + jitter·N(0, 1)) held for `every_s`.
 
 use super::{Builder, Clock, Timeline};
-use crate::rng::Stream;
+use crate::rng::RandomStream;
 use rand::Rng;
 use rand_distr::StandardNormal;
 
-pub fn generate(jitter: f64, every_s: f64, clock: &Clock, rng: &mut Stream) -> Timeline {
+pub fn generate(jitter: f64, every_s: f64, clock: &Clock, rng: &mut RandomStream) -> Timeline {
     let mut b = Builder::new(clock.steps);
     if jitter == 0.0 {
         return b.finish(0);

@@ -6,7 +6,7 @@ use loadloom::audit::{load_declaration, MatrixOptions};
 use loadloom::matrix;
 use loadloom::progress::Progress;
 use solver_check::audit::{audit, loading};
-use solver_check::render::Form;
+use solver_check::render::ReportForm;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -50,7 +50,7 @@ pub struct Args {
 
 /// The loading picture, the audit against a declaration, or the matrix.
 pub fn main(a: Args) -> CommandResult {
-    let form = Form::from_flags(a.json, a.markdown);
+    let form = ReportForm::from_flags(a.json, a.markdown);
     if a.matrix {
         return run_matrix(&a, form);
     }
@@ -65,7 +65,7 @@ pub fn main(a: Args) -> CommandResult {
             return Err(Error::file(dataset, message, help));
         }
         print(&loading(dataset)?, form);
-        if form == Form::Text {
+        if form == ReportForm::Text {
             print!("\n(give --declared DECLARED.toml to check the wiring and metering too)\n");
         }
         return Ok(ExitCode::SUCCESS);
@@ -77,7 +77,7 @@ pub fn main(a: Args) -> CommandResult {
 
 /// `--matrix`: the checks scored on injected mistakes, over the homes of a
 /// folder, for each measuring variant asked for.
-fn run_matrix(a: &Args, form: Form) -> CommandResult {
+fn run_matrix(a: &Args, form: ReportForm) -> CommandResult {
     let chosen = matrix::parse_variants(&a.variant)?;
     if !(0.5..=60.0).contains(&a.days) || a.runs == 0 {
         return Err(Error::option(
@@ -95,10 +95,10 @@ fn run_matrix(a: &Args, form: Form) -> CommandResult {
     let report = matrix::run_variants(&homes, &opts, &chosen, &mut |m| bar.say(m));
     bar.finish();
     // The matrix's text is Markdown already.
-    let form = if form == Form::Json {
-        Form::Json
+    let form = if form == ReportForm::Json {
+        ReportForm::Json
     } else {
-        Form::Text
+        ReportForm::Text
     };
     print(&report, form);
     Ok(ExitCode::SUCCESS)

@@ -17,7 +17,7 @@ pub mod templates;
 pub mod validate;
 
 pub use loadloom::scenario::Error;
-use solver_check::render::{Form, Render};
+use solver_check::render::{Render, ReportForm};
 use std::process::ExitCode;
 
 /// What every command returns: its exit status when it ran (0, or 1 when a
@@ -55,6 +55,6 @@ pub fn finish(outcome: CommandResult) -> ExitCode {
 }
 
 /// Prints a report in the form asked for.
-pub fn print(report: &dyn Render, form: Form) {
+pub fn print(report: &dyn Render, form: ReportForm) {
     print!("{}", report.render(form));
 }

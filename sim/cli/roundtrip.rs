@@ -7,8 +7,8 @@ use loadloom::roundtrip::{self as rt, Plan};
 use loadloom::scenario::overrides::duration_arg;
 use loadloom::scenario::{self, Scenario};
 use solver_check::leaderboard::{failure_message, rank, SolverReport};
-use solver_check::render::Form;
-use solver_check::roundtrip::{Prepared, Reveal, Solver, SolverRun};
+use solver_check::render::ReportForm;
+use solver_check::roundtrip::{PreparedTask, Reveal, Solver, SolverRun};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -117,7 +117,7 @@ pub fn main(mut a: Args) -> CommandResult {
     }
     let scenarios = scenarios(&a)?;
     let plan = plan(&a, &scenarios, solvers[0].clone())?;
-    let form = Form::from_flags(a.json, a.markdown);
+    let form = ReportForm::from_flags(a.json, a.markdown);
     if a.layouts {
         return layouts(&a, &plan, &solvers, form);
     }
@@ -133,7 +133,7 @@ pub fn main(mut a: Args) -> CommandResult {
 /// One solver on one scenario: a progress line on a terminal (what is
 /// being done and for how long, so a long solver is seen to be running),
 /// then its report.
-fn single(a: &Args, s: &Scenario, plan: &Plan, form: Form) -> CommandResult {
+fn single(a: &Args, s: &Scenario, plan: &Plan, form: ReportForm) -> CommandResult {
     let work = a.out.join(format!("{}-roundtrip", s.name));
     let bar = if a.quiet || a.json {
         Progress::hidden()
@@ -244,7 +244,7 @@ fn plan(a: &Args, scenarios: &[Scenario], solver: Solver) -> Result<Plan, Error>
 }
 
 /// The suite: every scenario at every rung; exit 1 if a solver failed on any.
-fn suite(scenarios: &[Scenario], out: &Path, plan: &Plan, form: Form) -> CommandResult {
+fn suite(scenarios: &[Scenario], out: &Path, plan: &Plan, form: ReportForm) -> CommandResult {
     let bar = Progress::messages();
     let result = rt::suite(scenarios, out, plan, &mut |s, r| {
         bar.say(format!("{s}: {r}"))
@@ -257,7 +257,7 @@ fn suite(scenarios: &[Scenario], out: &Path, plan: &Plan, form: Form) -> Command
 
 /// The layout ladder of one home: every rung with every solver; the report,
 /// and `ladder.json` and `scores.svg` in the ladder's folder.
-fn layouts(a: &Args, plan: &Plan, solvers: &[Solver], form: Form) -> CommandResult {
+fn layouts(a: &Args, plan: &Plan, solvers: &[Solver], form: ReportForm) -> CommandResult {
     let Some(path) = a.scenario.as_deref() else {
         let help = "give the SCENARIO whose layouts to run";
         return Err(Error::option("--layouts", "no scenario", help));
@@ -276,7 +276,7 @@ fn layouts(a: &Args, plan: &Plan, solvers: &[Solver], form: Form) -> CommandResu
     let dir = a.out.join(format!("{}-layouts", ladder.home));
     loadloom::layouts::write_reports(&ladder, &dir)?;
     print(&ladder, form);
-    if form != Form::Json {
+    if form != ReportForm::Json {
         eprintln!(
             "the scores across the rungs: {}",
             dir.join("scores.svg").display()
@@ -287,7 +287,7 @@ fn layouts(a: &Args, plan: &Plan, solvers: &[Solver], form: Form) -> CommandResu
 
 /// Where the round trip's data comes from: a reused dataset, or a scenario
 /// simulated now.
-fn prepare_task(a: &Args, scenario: Option<&Scenario>, plan: &Plan) -> Result<Prepared, Error> {
+fn prepare_task(a: &Args, scenario: Option<&Scenario>, plan: &Plan) -> Result<PreparedTask, Error> {
     match (&a.dataset, scenario) {
         (Some(d), _) => {
             let name = d
@@ -317,7 +317,7 @@ fn leaderboard(
     scenario: Option<&Scenario>,
     plan: &Plan,
     solvers: &[Solver],
-    form: Form,
+    form: ReportForm,
 ) -> CommandResult {
     let prep = prepare_task(a, scenario, plan)?;
     let bar = if a.quiet || a.json {
@@ -345,7 +345,7 @@ fn leaderboard(
 
 /// One solver's outcome: its score report, or why it got none (printed to
 /// standard error, exit status 1: the round trip ran, the solver failed).
-fn single_report(o: &SolverRun, form: Form) -> ExitCode {
+fn single_report(o: &SolverRun, form: ReportForm) -> ExitCode {
     match &o.result {
         Ok(report) => {
             print(&SolverReport { outcome: o, report }, form);
@@ -402,6 +402,6 @@ fn crosshome(a: &Args, solvers: &[Solver]) -> CommandResult {
         loadloom::crosshome::run(&pop, homes, &work, &plan, &|done, all| bar.count(done, all));
     bar.finish();
     let o = result?;
-    print(&o, Form::from_flags(a.json, a.markdown));
+    print(&o, ReportForm::from_flags(a.json, a.markdown));
     Ok(status(o.all_scored()))
 }

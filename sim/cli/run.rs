@@ -6,7 +6,7 @@ use loadloom::pipeline;
 use loadloom::progress::Progress;
 use loadloom::scenario::{self, overrides};
 use loadloom::summary::RunReport;
-use solver_check::render::Form;
+use solver_check::render::ReportForm;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -80,7 +80,7 @@ pub fn main(a: Args) -> CommandResult {
             written: &w,
             seconds: started.elapsed().as_secs_f64(),
         };
-        print(&report, Form::from_flags(a.json, false));
+        print(&report, ReportForm::from_flags(a.json, false));
     }
     Ok(ExitCode::SUCCESS)
 }

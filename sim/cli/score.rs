@@ -3,7 +3,7 @@
 
 use super::{print, CommandResult, Error};
 use solver_check::compare::compare;
-use solver_check::render::Form;
+use solver_check::render::ReportForm;
 use solver_check::score::{parse_threshold, score, Options};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -58,7 +58,7 @@ pub fn main(a: Args) -> CommandResult {
         partial: a.partial,
         thresholds,
     };
-    let form = Form::from_flags(a.json, a.markdown);
+    let form = ReportForm::from_flags(a.json, a.markdown);
     if let Some(other) = &a.against {
         return against(&a, other, &opts, form);
     }
@@ -72,7 +72,7 @@ pub fn main(a: Args) -> CommandResult {
 }
 
 /// `--against`: both estimates scored, then compared day by day.
-fn against(a: &Args, other: &Path, opts: &Options, form: Form) -> CommandResult {
+fn against(a: &Args, other: &Path, opts: &Options, form: ReportForm) -> CommandResult {
     let x = score(&a.truth, &a.estimate, opts)?;
     let y = score(&a.truth, other, opts)?;
     let c = compare(&x, &y, a.resamples.max(1), a.bootstrap_seed)?;

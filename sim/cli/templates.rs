@@ -4,7 +4,7 @@
 
 use super::{print, CommandResult};
 use loadloom::scenario::library::{catalogue, Catalogue};
-use solver_check::render::Form;
+use solver_check::render::ReportForm;
 use std::process::ExitCode;
 
 /// List the built-in appliance templates: voltage, power per state, peak
@@ -18,6 +18,9 @@ pub struct Args {
 
 /// Reads every built-in template as a run would and prints the list.
 pub fn main(a: Args) -> CommandResult {
-    print(&Catalogue(catalogue()?), Form::from_flags(a.json, false));
+    print(
+        &Catalogue(catalogue()?),
+        ReportForm::from_flags(a.json, false),
+    );
     Ok(ExitCode::SUCCESS)
 }

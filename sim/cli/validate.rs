@@ -3,7 +3,7 @@
 use super::{print, CommandResult};
 use loadloom::scenario;
 use loadloom::summary::Preview;
-use solver_check::render::Form;
+use solver_check::render::ReportForm;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -35,7 +35,7 @@ pub fn main(a: Args) -> CommandResult {
         preview = preview.with_year();
     }
     if !a.quiet {
-        print(&preview, Form::from_flags(a.json, false));
+        print(&preview, ReportForm::from_flags(a.json, false));
     }
     Ok(ExitCode::SUCCESS)
 }

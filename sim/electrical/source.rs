@@ -5,7 +5,7 @@
 //! in between: the variation is slow, and a held source lets the simulator
 //! skip the network solve on steps where nothing changes.
 
-use crate::rng::{stream, Stream};
+use crate::rng::{stream, RandomStream};
 use crate::scenario::Source;
 use rand::Rng;
 use rand_distr::StandardNormal;
@@ -22,7 +22,7 @@ pub(crate) struct SourceVoltage {
     band: f64,
     c: f64,
     d: [f64; 3],
-    rng: Stream,
+    rng: RandomStream,
 }
 
 impl SourceVoltage {

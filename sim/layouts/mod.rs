@@ -15,7 +15,7 @@ pub use plot::plot_svg;
 use crate::roundtrip::Plan;
 use crate::scenario::{self, Scenario, Wiring};
 use doc::{text, Doc, NodeExt};
-use rungs::{Home, Rung};
+use rungs::{LadderHome, LayoutRung};
 use serde_json::{json, Value};
 use solver_check::contract::line_name;
 use solver_check::roundtrip::Solver;
@@ -53,7 +53,7 @@ pub fn build(
     seed: Option<u64>,
     shape: &Shape,
     window_s: f64,
-) -> Result<(Scenario, Vec<Rung>), scenario::Error> {
+) -> Result<(Scenario, Vec<LayoutRung>), scenario::Error> {
     let mut s = scenario::load(path)?;
     let mut d = Doc::load(path)?;
     if let Some(seed) = seed {
@@ -64,13 +64,13 @@ pub fn build(
     let mut window = s.clone();
     window.run.length_s = window_s;
     let f = crate::summary::figures(&window);
-    let home = Home {
+    let home = LadderHome {
         doc: &d,
         s: &s,
         kwh: f.apps.iter().map(|a| a.kwh_per_day).collect(),
         peak_w: f.apps.iter().map(|a| a.peak_w).collect(),
     };
-    let mut out = vec![Rung {
+    let mut out = vec![LayoutRung {
         family: "home",
         name: "as written".into(),
         note: format!(
@@ -89,7 +89,7 @@ pub fn build(
     out.extend(rungs::phases(&home, s.run.seed, shape.shuffles));
     out.extend(rungs::line_to_line(&home, &shape.shares));
     out.extend(rungs::partial(&home));
-    let supplies: Vec<Rung> = rungs::SUPPLIES
+    let supplies: Vec<LayoutRung> = rungs::SUPPLIES
         .iter()
         .map(|to| rungs::supply(&home, to))
         .collect();
@@ -100,7 +100,7 @@ pub fn build(
     } else {
         &supplies[1]
     };
-    let unbalanced: Vec<Rung> = shape
+    let unbalanced: Vec<LayoutRung> = shape
         .unbalances
         .iter()
         .map(|u| rungs::unbalance(three, *u))
@@ -179,9 +179,9 @@ impl Ladder {
 /// Writes `ladder.json` (the JSON report) and `scores.svg` (each score
 /// across the rungs) into the ladder's folder.
 pub fn write_reports(l: &Ladder, dir: &Path) -> Result<(), scenario::Error> {
-    use solver_check::render::{Form, Render};
+    use solver_check::render::{Render, ReportForm};
     let json = dir.join("ladder.json");
-    std::fs::write(&json, l.render(Form::Json)).map_err(|e| not_written(&json, &e))?;
+    std::fs::write(&json, l.render(ReportForm::Json)).map_err(|e| not_written(&json, &e))?;
     let svg = dir.join("scores.svg");
     std::fs::write(&svg, plot_svg(l)).map_err(|e| not_written(&svg, &e))
 }
@@ -209,7 +209,7 @@ pub fn rerun_command(file: &Path, solvers: &[Solver], p: &Plan) -> String {
 
 /// Writes the rung's scenario file (header, then the tree) and reads it back.
 fn write_rung(
-    r: &Rung,
+    r: &LayoutRung,
     k: usize,
     home: &str,
     out: &Path,
@@ -274,7 +274,7 @@ pub fn run(
 }
 
 fn run_rung(
-    r: &Rung,
+    r: &LayoutRung,
     k: usize,
     home: &str,
     out: &Path,

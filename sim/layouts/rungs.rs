@@ -8,11 +8,11 @@ use super::wire::{each_draw, map_wiring, quantity, split_draws, stated};
 use crate::rng::stream;
 use crate::scenario::source::Node;
 use crate::scenario::{Appliance, Scenario, SupplyKind, Wiring, WiringKind};
-use crate::units::Kind;
+use crate::units::QuantityKind;
 use rand::seq::SliceRandom;
 
 /// One rung: its family, its name, what it changed, and its scenario tree.
-pub struct Rung {
+pub struct LayoutRung {
     pub family: &'static str,
     pub name: String,
     pub note: String,
@@ -23,19 +23,19 @@ pub struct Rung {
 /// and each appliance's expected energy per day and peak over the window the
 /// ladder simulates (from `validate`'s figures, its timelines at nominal
 /// voltage: the choices do not depend on the electrical solve).
-pub struct Home<'a> {
+pub struct LadderHome<'a> {
     pub doc: &'a Doc,
     pub s: &'a Scenario,
     pub kwh: Vec<f64>,
     pub peak_w: Vec<f64>,
 }
 
-impl Home<'_> {
+impl LadderHome<'_> {
     fn lines(&self) -> usize {
         self.s.home.supply.lines()
     }
-    fn rung(&self, family: &'static str, name: String, note: String) -> Rung {
-        Rung {
+    fn rung(&self, family: &'static str, name: String, note: String) -> LayoutRung {
+        LayoutRung {
             family,
             name,
             note,
@@ -62,7 +62,7 @@ fn swap(n: usize, a: usize, b: usize) -> Vec<usize> {
 }
 
 /// Each appliance's energy per line, split evenly over the lines it draws from.
-fn per_line(h: &Home, skip: &[usize]) -> Vec<f64> {
+fn per_line(h: &LadderHome, skip: &[usize]) -> Vec<f64> {
     let mut e = vec![0.0; h.lines()];
     for (k, a) in h.s.appliances.iter().enumerate() {
         if skip.contains(&k) {
@@ -78,7 +78,12 @@ fn per_line(h: &Home, skip: &[usize]) -> Vec<f64> {
 
 /// Greedy placement, largest first, each on the line with the least so far
 /// (longest-processing-time order, Graham 1969).
-fn balance(h: &Home, movable: &[usize], weight: &[f64], start: Vec<f64>) -> Vec<(usize, usize)> {
+fn balance(
+    h: &LadderHome,
+    movable: &[usize],
+    weight: &[f64],
+    start: Vec<f64>,
+) -> Vec<(usize, usize)> {
     let mut load = start;
     let mut order = movable.to_vec();
     order.sort_by(|a, b| weight[*b].total_cmp(&weight[*a]).then(a.cmp(b)));
@@ -93,7 +98,7 @@ fn balance(h: &Home, movable: &[usize], weight: &[f64], start: Vec<f64>) -> Vec<
     out
 }
 
-fn place(r: &mut Rung, h: &Home, moves: &[(usize, usize)]) {
+fn place(r: &mut LayoutRung, h: &LadderHome, moves: &[(usize, usize)]) {
     for &(k, to) in moves {
         let a = &h.s.appliances[k];
         let from = single_line(a).unwrap_or(to);
@@ -106,7 +111,7 @@ fn place(r: &mut Rung, h: &Home, moves: &[(usize, usize)]) {
 
 /// Phase assignment: all single-phase appliances on L1; spread to balance
 /// energy; spread to balance peak; and `shuffles` seeded random permutations.
-pub fn phases(h: &Home, seed: u64, shuffles: usize) -> Vec<Rung> {
+pub fn phases(h: &LadderHome, seed: u64, shuffles: usize) -> Vec<LayoutRung> {
     let n = h.lines();
     if n < 2 {
         return vec![];
@@ -154,7 +159,7 @@ pub fn phases(h: &Home, seed: u64, shuffles: usize) -> Vec<Rung> {
 
 /// Every appliance's lines renamed by a random permutation of its own
 /// (line-to-line and three-phase loads too), from a seeded stream.
-fn shuffle(h: &Home, seed: u64, k: usize) -> Rung {
+fn shuffle(h: &LadderHome, seed: u64, k: usize) -> LayoutRung {
     let mut rng = stream(seed, "layouts", &format!("shuffle-{k}"));
     let mut r = h.rung(
         "phase assignment",
@@ -224,7 +229,7 @@ fn choose(eligible: &[usize], kwh: &[f64], target: f64) -> Vec<usize> {
 
 /// Line-to-line share: the eligible appliances moved, by energy, to their
 /// line-to-line or three-phase form (the rest to their line-to-neutral form).
-pub fn line_to_line(h: &Home, shares: &[f64]) -> Vec<Rung> {
+pub fn line_to_line(h: &LadderHome, shares: &[f64]) -> Vec<LayoutRung> {
     let supply = h.s.home.supply;
     let el: Vec<usize> = (0..h.s.appliances.len())
         .filter(|k| is_load(&h.s.appliances[*k]) && eligible(&h.s.appliances[*k], supply).is_some())
@@ -261,7 +266,7 @@ pub fn line_to_line(h: &Home, shares: &[f64]) -> Vec<Rung> {
 
 /// Puts `high` on their line-to-line or three-phase form and `low` on their
 /// line-to-neutral form, the latter balanced over the lines by energy.
-fn rewire_kinds(r: &mut Rung, h: &Home, high: &[usize], low: &[usize]) {
+fn rewire_kinds(r: &mut LayoutRung, h: &LadderHome, high: &[usize], low: &[usize]) {
     let supply = h.s.home.supply;
     let movers: Vec<usize> = high.iter().chain(low).copied().collect();
     let lines_of = balance(h, low, &h.kwh, per_line(h, &movers));
@@ -297,7 +302,7 @@ fn rewire_kinds(r: &mut Rung, h: &Home, high: &[usize], low: &[usize]) {
 }
 
 /// The home's appliance made from template `t` (or whose id says so).
-fn find<'a>(h: &'a Home, t: &str) -> Option<&'a Appliance> {
+fn find<'a>(h: &'a LadderHome, t: &str) -> Option<&'a Appliance> {
     h.s.appliances
         .iter()
         .find(|a| h.doc.template_of(&a.id) == Some(t) || a.id.contains(t))
@@ -307,7 +312,7 @@ fn find<'a>(h: &'a Home, t: &str) -> Option<&'a Appliance> {
 /// one, two or three phases (a third of its three-phase power per phase),
 /// and a three-phase heat pump whose fan, pump and controller (a tenth of
 /// its power) sit on L1-N.
-pub fn partial(h: &Home) -> Vec<Rung> {
+pub fn partial(h: &LadderHome) -> Vec<LayoutRung> {
     if h.s.home.supply != SupplyKind::ThreePhase {
         return vec![];
     }
@@ -367,24 +372,24 @@ pub fn partial(h: &Home) -> Vec<Rung> {
 
 /// A supply the ladder can put a home on.
 #[derive(Clone, Copy)]
-pub struct Supply {
+pub struct LadderSupply {
     pub name: &'static str,
     pub kind: SupplyKind,
     pub v_ln: f64,
 }
 
-pub const SUPPLIES: [Supply; 3] = [
-    Supply {
+pub const SUPPLIES: [LadderSupply; 3] = [
+    LadderSupply {
         name: "split-phase 120/240 V",
         kind: SupplyKind::SplitPhase,
         v_ln: 120.0,
     },
-    Supply {
+    LadderSupply {
         name: "three-phase 230/400 V",
         kind: SupplyKind::ThreePhase,
         v_ln: 230.0,
     },
-    Supply {
+    LadderSupply {
         name: "three-phase 120/208 V",
         kind: SupplyKind::ThreePhase,
         v_ln: 120.0,
@@ -397,7 +402,7 @@ pub const SUPPLIES: [Supply; 3] = [
 /// own supply).
 pub const SAME_MODEL: f64 = 0.15;
 
-impl Supply {
+impl LadderSupply {
     fn lines(&self) -> usize {
         self.kind.lines()
     }
@@ -423,7 +428,7 @@ impl Supply {
 /// three-phase where it can; single-phase draws go line-to-neutral or
 /// line-to-line, whichever voltage is nearer, keeping their first line
 /// (`line` for a draw that changes kind).
-fn reconnect(to: &Supply, w: Wiring, rated_v: f64, line: usize) -> Wiring {
+fn reconnect(to: &LadderSupply, w: Wiring, rated_v: f64, line: usize) -> Wiring {
     let n = to.lines();
     let first = match w {
         Wiring::LineNeutral(x) | Wiring::LineLine(x, _) => x % n,
@@ -453,10 +458,10 @@ fn reconnect(to: &Supply, w: Wiring, rated_v: f64, line: usize) -> Wiring {
 /// nearest connection; within ±`SAME_MODEL` of its rating it is the same
 /// model off-nominal (`rated` kept, so the ZIP model gives what that
 /// voltage draws); beyond, the model for that supply (same power).
-pub fn supply(h: &Home, to: &Supply) -> Rung {
+pub fn supply(h: &LadderHome, to: &LadderSupply) -> LayoutRung {
     let mut r = h.rung("supply", to.name.into(), String::new());
     let home = &h.s.home;
-    let from = Supply {
+    let from = LadderSupply {
         name: "",
         kind: home.supply,
         v_ln: home.voltage_v,
@@ -467,7 +472,7 @@ pub fn supply(h: &Home, to: &Supply) -> Rung {
         let mut changed_kind = false;
         let line = turn;
         each_draw(n, None, &mut |d, w| {
-            let rated = quantity(d, "rated", Kind::Voltage).unwrap_or(from.voltage(w));
+            let rated = quantity(d, "rated", QuantityKind::Voltage).unwrap_or(from.voltage(w));
             let new = reconnect(to, w, rated, line);
             changed_kind |= WiringKind::of(new) != WiringKind::of(w);
             d.set("wiring", text(&new.name()));
@@ -523,11 +528,11 @@ pub fn supply(h: &Home, to: &Supply) -> Rung {
 
 /// A three-phase source with a voltage unbalance factor `u` (negative over
 /// positive sequence).
-pub fn unbalance(base: &Rung, u: f64) -> Rung {
+pub fn unbalance(base: &LayoutRung, u: f64) -> LayoutRung {
     let mut doc = base.doc.clone();
     let source = doc.section("home").entry("source");
     source.set("unbalance", text(&format!("{} %", u * 100.0)));
-    Rung {
+    LayoutRung {
         family: "supply",
         name: format!("unbalance {} %", u * 100.0),
         note: format!(
@@ -540,7 +545,7 @@ pub fn unbalance(base: &Rung, u: f64) -> Rung {
 }
 
 /// A meter that reports only the home's total.
-pub fn total_only(h: &Home) -> Rung {
+pub fn total_only(h: &LadderHome) -> LayoutRung {
     let mut r = h.rung(
         "metering",
         "total only".into(),

@@ -4,7 +4,7 @@
 use super::doc::{node, text, NodeExt};
 use crate::scenario::source::{Node, Val};
 use crate::scenario::{Wiring, WiringKind};
-use crate::units::{parse_quantity, Kind};
+use crate::units::{parse_quantity, QuantityKind};
 
 /// The wiring a table states, if any. Read as on a three-line supply (the
 /// most lines a supply has): the ladder reads texts the scenario reader
@@ -118,8 +118,8 @@ fn split_state(st: &mut Node, inherited: Wiring, split: &dyn Fn(Wiring) -> Vec<(
                 // Another connection is another model, rated for it.
                 c.remove("rated");
             }
-            scale_key(&mut c, "power", Kind::Power, "W", share);
-            scale_key(&mut c, "q", Kind::Reactive, "var", share);
+            scale_key(&mut c, "power", QuantityKind::Power, "W", share);
+            scale_key(&mut c, "q", QuantityKind::Reactive, "var", share);
             new.push(c);
         }
     }
@@ -128,7 +128,7 @@ fn split_state(st: &mut Node, inherited: Wiring, split: &dyn Fn(Wiring) -> Vec<(
 }
 
 /// Multiplies a quantity written as text by `k`, writing it in SI units.
-pub fn scale_key(n: &mut Node, key: &str, kind: Kind, unit: &str, k: f64) {
+pub fn scale_key(n: &mut Node, key: &str, kind: QuantityKind, unit: &str, k: f64) {
     if k == 1.0 {
         return;
     }
@@ -163,7 +163,7 @@ pub fn duration(s: f64) -> String {
 }
 
 /// A quantity written as text, in SI units.
-pub fn quantity(n: &Node, key: &str, kind: Kind) -> Option<f64> {
+pub fn quantity(n: &Node, key: &str, kind: QuantityKind) -> Option<f64> {
     n.get(key)
         .and_then(Node::as_str)
         .and_then(|v| parse_quantity(v, kind).ok())

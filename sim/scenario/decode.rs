@@ -6,7 +6,7 @@ use super::library;
 use super::model::*;
 use super::reader::{Reader, TableReader};
 use super::source::{parse_toml, read_source, At, Entry, Error, Node, Sources, Val};
-use crate::units::Kind;
+use crate::units::QuantityKind;
 use solver_check::contract::{line_label, WiringError};
 use std::path::{Path, PathBuf};
 
@@ -518,7 +518,7 @@ fn check_thermostats(
             matches!(
                 a.behaviour,
                 Behaviour::Thermostat {
-                    role: crate::thermal::equipment::Role::HeatPump(_)
+                    role: crate::thermal::equipment::Equipment::HeatPump(_)
                 }
             )
         })
@@ -603,7 +603,13 @@ fn decode_home(ctx: &Reader, node: &Node) -> Result<Home, Error> {
     let supply_node = t.req("supply", "split-phase, three-phase or single-phase")?;
     let supply = decode_supply(ctx, supply_node)?;
     let voltage_v = match t.opt("voltage") {
-        Some(n) => in_range(ctx, n, "home.voltage", Kind::Voltage, LINE_TO_NEUTRAL_V)?,
+        Some(n) => in_range(
+            ctx,
+            n,
+            "home.voltage",
+            QuantityKind::Voltage,
+            LINE_TO_NEUTRAL_V,
+        )?,
         None => match supply {
             SupplyKind::SplitPhase => 120.0,
             _ => 230.0,
@@ -611,7 +617,7 @@ fn decode_home(ctx: &Reader, node: &Node) -> Result<Home, Error> {
     };
     let frequency_hz = decode_frequency(ctx, &t, voltage_v)?;
     let service_a = match t.opt("service") {
-        Some(n) => in_range(ctx, n, "home.service", Kind::Current, SERVICE_A)?,
+        Some(n) => in_range(ctx, n, "home.service", QuantityKind::Current, SERVICE_A)?,
         None => 100.0,
     };
     let timezone = decode_timezone(ctx, &t)?;
@@ -662,7 +668,7 @@ fn decode_supply(ctx: &Reader, n: &Node) -> Result<SupplyKind, Error> {
 fn decode_frequency(ctx: &Reader, t: &TableReader, voltage_v: f64) -> Result<f64, Error> {
     match t.opt("frequency") {
         Some(n) => {
-            let f = ctx.positive(n, "home.frequency", Kind::Frequency)?;
+            let f = ctx.positive(n, "home.frequency", QuantityKind::Frequency)?;
             if f != 50.0 && f != 60.0 {
                 return Err(ctx.err(
                     n,
@@ -730,15 +736,23 @@ fn decode_source(
     };
     let s = ctx.table(n, "home.source")?;
     let src = Source {
-        variation: s.non_negative("variation", Kind::Fraction)?.unwrap_or(0.01),
-        variation_time_s: s.positive("period", Kind::Duration)?.unwrap_or(1800.0),
+        variation: s
+            .non_negative("variation", QuantityKind::Fraction)?
+            .unwrap_or(0.01),
+        variation_time_s: s
+            .positive("period", QuantityKind::Duration)?
+            .unwrap_or(1800.0),
         band: s
-            .non_negative("band", Kind::Fraction)?
+            .non_negative("band", QuantityKind::Fraction)?
             .unwrap_or(band_default),
-        line_r_ohm: s.non_negative("r", Kind::Impedance)?.unwrap_or(lr),
-        line_x_ohm: s.non_negative("x", Kind::Impedance)?.unwrap_or(lx),
-        neutral_r_ohm: s.non_negative("neutral_r", Kind::Impedance)?.unwrap_or(nr),
-        neutral_x_ohm: s.non_negative("neutral_x", Kind::Impedance)?.unwrap_or(nx),
+        line_r_ohm: s.non_negative("r", QuantityKind::Impedance)?.unwrap_or(lr),
+        line_x_ohm: s.non_negative("x", QuantityKind::Impedance)?.unwrap_or(lx),
+        neutral_r_ohm: s
+            .non_negative("neutral_r", QuantityKind::Impedance)?
+            .unwrap_or(nr),
+        neutral_x_ohm: s
+            .non_negative("neutral_x", QuantityKind::Impedance)?
+            .unwrap_or(nx),
         unbalance: decode_unbalance(ctx, &s, supply)?,
     };
     s.finish()?;
@@ -771,7 +785,7 @@ fn decode_unbalance(ctx: &Reader, s: &TableReader, supply: SupplyKind) -> Result
     let Some(n) = s.opt("unbalance") else {
         return Ok(0.0);
     };
-    let u = ctx.non_negative(n, &s.path_of("unbalance"), Kind::Fraction)?;
+    let u = ctx.non_negative(n, &s.path_of("unbalance"), QuantityKind::Fraction)?;
     if supply != SupplyKind::ThreePhase && u > 0.0 {
         return Err(ctx.err(
             n,
@@ -946,7 +960,7 @@ fn decode_run(ctx: &Reader, node: &Node, home: &Home) -> Result<Run, Error> {
     })?;
     let zoned = place_start(ctx, start_node, civil, &home.timezone)?;
     let start_utc_ms = zoned.timestamp().as_millisecond();
-    let step_s = t.positive("step", Kind::Duration)?.unwrap_or(1.0);
+    let step_s = t.positive("step", QuantityKind::Duration)?.unwrap_or(1.0);
     let step_node = t.opt("step").unwrap_or(node);
     if (step_s * 1000.0).fract().abs() > 1e-9 || !(STEP_S.0..=STEP_S.1).contains(&step_s) {
         return Err(ctx.err(
@@ -957,7 +971,7 @@ fn decode_run(ctx: &Reader, node: &Node, home: &Home) -> Result<Run, Error> {
         ));
     }
     let length_node = t.req("length", "how long to simulate, e.g. \"7 d\"")?;
-    let length_s = ctx.positive(length_node, "run.length", Kind::Duration)?;
+    let length_s = ctx.positive(length_node, "run.length", QuantityKind::Duration)?;
     if ((length_s / step_s).round() - length_s / step_s).abs() > 1e-6 {
         return Err(ctx.err(
             length_node,
@@ -984,7 +998,7 @@ fn decode_run(ctx: &Reader, node: &Node, home: &Home) -> Result<Run, Error> {
 fn decode_meter(ctx: &Reader, node: &Node, run: &Run) -> Result<Meter, Error> {
     let t = ctx.table(node, "meter")?;
     let interval_s = t
-        .positive("interval", Kind::Duration)?
+        .positive("interval", QuantityKind::Duration)?
         .unwrap_or(run.step_s);
     let inode = t.opt("interval").unwrap_or(node);
     let k = interval_s / run.step_s;
@@ -1002,11 +1016,17 @@ fn decode_meter(ctx: &Reader, node: &Node, run: &Run) -> Result<Meter, Error> {
     let (mut rel, mut floor) = (0.0, 0.0);
     if let Some(n) = t.opt("noise") {
         let nt = ctx.table(n, "meter.noise")?;
-        rel = nt.non_negative("relative", Kind::Fraction)?.unwrap_or(0.0);
-        floor = nt.non_negative("floor", Kind::Power)?.unwrap_or(0.0);
+        rel = nt
+            .non_negative("relative", QuantityKind::Fraction)?
+            .unwrap_or(0.0);
+        floor = nt
+            .non_negative("floor", QuantityKind::Power)?
+            .unwrap_or(0.0);
         nt.finish()?;
     }
-    let resolution_w = t.non_negative("resolution", Kind::Power)?.unwrap_or(0.0);
+    let resolution_w = t
+        .non_negative("resolution", QuantityKind::Power)?
+        .unwrap_or(0.0);
     let total_only =
         match t.opt("channels") {
             None => false,
@@ -1108,7 +1128,7 @@ pub fn place_window(
 fn decode_waveforms(ctx: &Reader, node: &Node, home: &Home, run: &Run) -> Result<Waveforms, Error> {
     let t = ctx.table(node, "waveform")?;
     let rate_hz = t
-        .positive("rate", Kind::Frequency)?
+        .positive("rate", QuantityKind::Frequency)?
         .unwrap_or(DEFAULT_WAVE_RATE_HZ);
     check_wave_rate(rate_hz, run, home).map_err(|m| {
         ctx.err(
@@ -1138,7 +1158,7 @@ fn decode_waveforms(ctx: &Reader, node: &Node, home: &Home, run: &Run) -> Result
             let length = ctx.positive(
                 w.req("length", "how long, e.g. \"10 s\"")?,
                 &w.path_of("length"),
-                Kind::Duration,
+                QuantityKind::Duration,
             )?;
             w.finish()?;
             windows.push(
@@ -1187,7 +1207,8 @@ fn decode_harmonics(ctx: &Reader, t: &TableReader, load: LoadKind) -> Result<Vec
                     }
                 };
                 let mn = ht.req("magnitude", "relative to the fundamental, e.g. \"80 %\"")?;
-                let magnitude = ctx.non_negative(mn, &ht.path_of("magnitude"), Kind::Fraction)?;
+                let magnitude =
+                    ctx.non_negative(mn, &ht.path_of("magnitude"), QuantityKind::Fraction)?;
                 if magnitude > 2.0 {
                     return Err(ctx.err(
                         mn,
@@ -1196,7 +1217,7 @@ fn decode_harmonics(ctx: &Reader, t: &TableReader, load: LoadKind) -> Result<Vec
                         help,
                     ));
                 }
-                let phase_deg = ht.quantity("phase", Kind::Angle)?.unwrap_or(0.0);
+                let phase_deg = ht.quantity("phase", QuantityKind::Angle)?.unwrap_or(0.0);
                 ht.finish()?;
                 out.push(Harmonic {
                     order,
@@ -1372,7 +1393,7 @@ fn decode_ct_fault(
 /// A CT's gain error (a fraction) and phase error (deg), each 0 when not
 /// written.
 fn decode_ct_errors(ctx: &Reader, c: &TableReader) -> Result<(f64, f64), Error> {
-    let gain = c.quantity("gain", Kind::Fraction)?.unwrap_or(0.0);
+    let gain = c.quantity("gain", QuantityKind::Fraction)?.unwrap_or(0.0);
     if gain.abs() > 0.5 {
         return Err(ctx.err(
             c.opt("gain").unwrap(),
@@ -1384,7 +1405,7 @@ fn decode_ct_errors(ctx: &Reader, c: &TableReader) -> Result<(f64, f64), Error> 
             "write an error within ±50 %, e.g. gain = \"1.5 %\"",
         ));
     }
-    let phase_deg = c.quantity("phase", Kind::Angle)?.unwrap_or(0.0);
+    let phase_deg = c.quantity("phase", QuantityKind::Angle)?.unwrap_or(0.0);
     if phase_deg.abs() > 30.0 {
         return Err(ctx.err(
             c.opt("phase").unwrap(),
@@ -1427,7 +1448,7 @@ fn decode_swap(ctx: &Reader, n: &Node, supply: SupplyKind) -> Result<(usize, usi
 fn decode_dropouts(ctx: &Reader, n: &Node, meter: &Meter) -> Result<Dropouts, Error> {
     let d = ctx.table(n, "faults.dropouts")?;
     let rn = d.req("rate", "the share of intervals lost, e.g. \"1 %\"")?;
-    let rate = ctx.quantity(rn, "faults.dropouts.rate", Kind::Fraction)?;
+    let rate = ctx.quantity(rn, "faults.dropouts.rate", QuantityKind::Fraction)?;
     if !(0.0..=0.5).contains(&rate) {
         return Err(ctx.err(
             rn,
@@ -1461,8 +1482,8 @@ fn decode_dropouts(ctx: &Reader, n: &Node, meter: &Meter) -> Result<Dropouts, Er
 /// `faults.clock`: the meter clock's offset (s) and drift (a fraction).
 fn decode_clock(ctx: &Reader, n: &Node) -> Result<(f64, f64), Error> {
     let c = ctx.table(n, "faults.clock")?;
-    let offset_s = c.quantity("offset", Kind::Duration)?.unwrap_or(0.0);
-    let drift = c.quantity("drift", Kind::Fraction)?.unwrap_or(0.0);
+    let offset_s = c.quantity("offset", QuantityKind::Duration)?.unwrap_or(0.0);
+    let drift = c.quantity("drift", QuantityKind::Fraction)?.unwrap_or(0.0);
     if offset_s.abs() > 86400.0 || drift.abs() > 0.01 {
         return Err(ctx.err(
             n,
@@ -1509,7 +1530,7 @@ fn in_range(
     ctx: &Reader,
     n: &Node,
     path: &str,
-    kind: Kind,
+    kind: QuantityKind,
     range: (f64, f64),
 ) -> Result<f64, Error> {
     let v = ctx.quantity(n, path, kind)?;
@@ -1683,7 +1704,7 @@ fn decode_draw_fields(
         },
     )?;
     let pnode = t.req("power", "the real power, e.g. \"1.5 kW\"")?;
-    let mut p_w = ctx.non_negative(pnode, &t.path_of("power"), Kind::Power)?;
+    let mut p_w = ctx.non_negative(pnode, &t.path_of("power"), QuantityKind::Power)?;
     let mut q_var = match (t.opt("pf"), t.opt("q")) {
         (Some(n), Some(_)) => {
             return Err(ctx.err(
@@ -1700,7 +1721,7 @@ fn decode_draw_fields(
             }
             p_w * (1.0 - pf * pf).sqrt() / pf
         }
-        (None, Some(n)) => ctx.quantity(n, &t.path_of("q"), Kind::Reactive)?,
+        (None, Some(n)) => ctx.quantity(n, &t.path_of("q"), QuantityKind::Reactive)?,
         (None, None) => 0.0,
     };
     let nominal_v = wiring.nominal_v(home.supply, home.voltage_v);
@@ -1710,7 +1731,7 @@ fn decode_draw_fields(
     // connection's nominal voltage it draws what its ZIP model says.
     let mut rated_v = None;
     if let Some(n) = t.opt("rated") {
-        let rated = in_range(ctx, n, &t.path_of("rated"), Kind::Voltage, RATED_V)?;
+        let rated = in_range(ctx, n, &t.path_of("rated"), QuantityKind::Voltage, RATED_V)?;
         let u = nominal_v / rated;
         p_w *= zip_p.factor(u);
         q_var *= zip_q.factor(u);
@@ -1802,7 +1823,7 @@ fn decode_inrush(ctx: &Reader, t: &TableReader) -> Result<Option<Inrush>, Error>
     let decay_s = ctx.positive(
         it.req("decay", "the decay time constant, e.g. \"1.5 s\"")?,
         &it.path_of("decay"),
-        Kind::Duration,
+        QuantityKind::Duration,
     )?;
     it.finish()?;
     Ok(Some(Inrush { peak, decay_s }))
@@ -1811,13 +1832,13 @@ fn decode_inrush(ctx: &Reader, t: &TableReader) -> Result<Option<Inrush>, Error>
 pub(crate) fn decode_dist(ctx: &Reader, node: &Node, path: &str) -> Result<Dist, Error> {
     if let Val::Str(_) = node.v {
         return Ok(Dist::Fixed {
-            value_s: ctx.positive(node, path, Kind::Duration)?,
+            value_s: ctx.positive(node, path, QuantityKind::Duration)?,
         });
     }
     let t = ctx.table(node, path)?;
     let help = "write a duration (\"13 min\"), { median = \"13 min\", spread = 0.25 } (lognormal), { min = \"5 min\", max = \"9 min\" } (uniform) or { mean = \"40 min\", shape = 4 } (gamma)";
     let d = if t.has("median") {
-        let median_s = t.positive("median", Kind::Duration)?.unwrap();
+        let median_s = t.positive("median", QuantityKind::Duration)?.unwrap();
         let sn = t.req(
             "spread",
             "the standard deviation of ln(duration), e.g. 0.25",
@@ -1834,17 +1855,17 @@ pub(crate) fn decode_dist(ctx: &Reader, node: &Node, path: &str) -> Result<Dist,
         Dist::Lognormal { median_s, spread }
     } else if t.has("min") || t.has("max") {
         let min_s = t
-            .positive("min", Kind::Duration)?
+            .positive("min", QuantityKind::Duration)?
             .ok_or_else(|| ctx.err(node, path, "uniform needs `min`", help))?;
         let max_s = t
-            .positive("max", Kind::Duration)?
+            .positive("max", QuantityKind::Duration)?
             .ok_or_else(|| ctx.err(node, path, "uniform needs `max`", help))?;
         if max_s <= min_s {
             return Err(ctx.err(node, path, "max must be greater than min", help));
         }
         Dist::Uniform { min_s, max_s }
     } else if t.has("mean") {
-        let mean_s = t.positive("mean", Kind::Duration)?.unwrap();
+        let mean_s = t.positive("mean", QuantityKind::Duration)?.unwrap();
         let sn = t.req("shape", "the gamma shape k, e.g. 4")?;
         let shape = ctx.number(sn, &t.path_of("shape"))?;
         if !(MIN_SHAPE..=MAX_SHAPE).contains(&shape) {
@@ -1858,7 +1879,7 @@ pub(crate) fn decode_dist(ctx: &Reader, node: &Node, path: &str) -> Result<Dist,
         Dist::Gamma { mean_s, shape }
     } else if t.has("fixed") {
         Dist::Fixed {
-            value_s: t.positive("fixed", Kind::Duration)?.unwrap(),
+            value_s: t.positive("fixed", QuantityKind::Duration)?.unwrap(),
         }
     } else {
         return Err(ctx.err(node, path, "not a duration distribution", help));
@@ -2056,7 +2077,7 @@ fn decode_appliance(
     };
     let (mut behaviour, mut states) = reader.behaviour(bname, bnode)?;
     decode_variation(ctx, &t, &mut behaviour, &mut states)?;
-    let on_threshold_w = match t.non_negative("on_threshold", Kind::Power)? {
+    let on_threshold_w = match t.non_negative("on_threshold", QuantityKind::Power)? {
         Some(x) => x,
         None => default_threshold(&states),
     };
@@ -2171,7 +2192,7 @@ impl<'n, 's, 'c> ApplianceReader<'_, 'n, 's, 'c> {
         let every_s = self.ctx.positive(
             st.req("every", "how often it comes, e.g. \"8 h\"")?,
             &st.path_of("every"),
-            Kind::Duration,
+            QuantityKind::Duration,
         )?;
         st.finish()?;
         states.push(s);
@@ -2243,15 +2264,19 @@ impl<'n, 's, 'c> ApplianceReader<'_, 'n, 's, 'c> {
         }
         let (s, st) = self.state(&list[0], format!("{}.states[0]", self.path), "on")?;
         st.finish()?;
-        let jitter = t.non_negative("jitter", Kind::Fraction)?.unwrap_or(0.0);
-        let every_s = t.positive("every", Kind::Duration)?.unwrap_or(60.0);
+        let jitter = t
+            .non_negative("jitter", QuantityKind::Fraction)?
+            .unwrap_or(0.0);
+        let every_s = t.positive("every", QuantityKind::Duration)?.unwrap_or(60.0);
         Ok((Behaviour::Steady { jitter, every_s }, vec![s]))
     }
 
     fn modulating(&self) -> Result<BehaviourStates, Error> {
         let t = self.t;
         let states = self.modulating_states()?;
-        let min = t.non_negative("min", Kind::Fraction)?.unwrap_or(0.3);
+        let min = t
+            .non_negative("min", QuantityKind::Fraction)?
+            .unwrap_or(0.3);
         if min > 1.0 {
             return Err(self.ctx.err(
                 t.opt("min").unwrap(),
@@ -2260,8 +2285,10 @@ impl<'n, 's, 'c> ApplianceReader<'_, 'n, 's, 'c> {
                 "write e.g. min = \"30 %\"",
             ));
         }
-        let wander = t.non_negative("wander", Kind::Fraction)?.unwrap_or(0.05);
-        let every_s = t.positive("every", Kind::Duration)?.unwrap_or(60.0);
+        let wander = t
+            .non_negative("wander", QuantityKind::Fraction)?
+            .unwrap_or(0.05);
+        let every_s = t.positive("every", QuantityKind::Duration)?.unwrap_or(60.0);
         let session = match t.opt("use") {
             None => None,
             Some(u) => Some(self.session(u)?),
@@ -2309,7 +2336,9 @@ impl<'n, 's, 'c> ApplianceReader<'_, 'n, 's, 'c> {
             t.req("session", "how long a session lasts")?,
             &t.path_of("session"),
         )?;
-        let taper_s = t.non_negative("taper", Kind::Duration)?.unwrap_or(0.0);
+        let taper_s = t
+            .non_negative("taper", QuantityKind::Duration)?
+            .unwrap_or(0.0);
         Ok(Session {
             habit,
             length,
@@ -2455,7 +2484,7 @@ fn decode_when_dark(
         }
         return Ok(None);
     }
-    let margin = ctx.non_negative(n, &path, Kind::Duration)?;
+    let margin = ctx.non_negative(n, &path, QuantityKind::Duration)?;
     if margin > MAX_DARK_MARGIN_S {
         return Err(ctx.err(
             n,

@@ -7,7 +7,7 @@ use super::model::*;
 use super::reader::{Reader, TableReader};
 use super::source::{Error, Node};
 use crate::sun::pvwatts;
-use crate::units::Kind;
+use crate::units::QuantityKind;
 
 /// The largest single-phase inverter commonly allowed on a three-phase
 /// European supply: 4.6 kVA of unbalance per phase (VDE-AR-N 4105:2018,
@@ -79,7 +79,7 @@ fn id_of(ctx: &Reader, t: &TableReader, default: &str) -> Result<String, Error> 
 }
 
 fn angle_or(t: &TableReader, key: &'static str, default: f64) -> Result<f64, Error> {
-    Ok(t.non_negative(key, Kind::Angle)?.unwrap_or(default))
+    Ok(t.non_negative(key, QuantityKind::Angle)?.unwrap_or(default))
 }
 
 /// A plain number within `lo ..= hi`, or the default.
@@ -132,7 +132,7 @@ fn choice<'a>(
 /// `losses`: the share of the array's output lost before the inverter
 /// (PVWatts' default when not given); all of it is refused.
 fn decode_losses(ctx: &Reader, t: &TableReader, node: &Node) -> Result<f64, Error> {
-    match t.non_negative("losses", Kind::Fraction)? {
+    match t.non_negative("losses", QuantityKind::Fraction)? {
         Some(x) if x >= 1.0 => Err(ctx.err(
             t.opt("losses").unwrap_or(node),
             "pv.losses",
@@ -174,8 +174,8 @@ pub fn decode_pv(
     })?;
     let id = id_of(ctx, &t, "pv")?;
     let label = t.string("label")?.unwrap_or("Rooftop PV").to_string();
-    let dc_w = t.positive("dc", Kind::Power)?;
-    let ac_w = t.positive("inverter", Kind::Power)?;
+    let dc_w = t.positive("dc", QuantityKind::Power)?;
+    let ac_w = t.positive("inverter", QuantityKind::Power)?;
     let (Some(dc_w), Some(ac_w)) = (dc_w, ac_w) else {
         return Err(ctx.err(
             node,
@@ -249,8 +249,8 @@ pub fn decode_battery(ctx: &Reader, node: &Node, home: &Home) -> Result<Applianc
     let t = TableReader::rebase(ctx.table(node, "battery")?, "battery".into());
     let id = id_of(ctx, &t, "battery")?;
     let label = t.string("label")?.unwrap_or("Home battery").to_string();
-    let capacity = t.positive("capacity", Kind::Energy)?;
-    let power = t.positive("power", Kind::Power)?;
+    let capacity = t.positive("capacity", QuantityKind::Energy)?;
+    let power = t.positive("power", QuantityKind::Power)?;
     let (Some(capacity_j), Some(power_w)) = (capacity, power) else {
         return Err(ctx.err(
             node,
@@ -260,7 +260,7 @@ pub fn decode_battery(ctx: &Reader, node: &Node, home: &Home) -> Result<Applianc
         ));
     };
     let share = |key: &'static str, default: f64| -> Result<f64, Error> {
-        match t.non_negative(key, Kind::Fraction)? {
+        match t.non_negative(key, QuantityKind::Fraction)? {
             Some(x) if x > 1.0 => Err(ctx.err(
                 t.opt(key).unwrap_or(node),
                 &t.path_of(key),
@@ -284,7 +284,9 @@ pub fn decode_battery(ctx: &Reader, node: &Node, home: &Home) -> Result<Applianc
     }
     let reserve = share("reserve", 0.1)?;
     let initial = share("initial", reserve)?.max(reserve);
-    let response_s = t.non_negative("response", Kind::Duration)?.unwrap_or(2.0);
+    let response_s = t
+        .non_negative("response", QuantityKind::Duration)?
+        .unwrap_or(2.0);
     let wiring = inverter_wiring(ctx, &t, home)?;
     t.finish()?;
     Ok(Appliance {

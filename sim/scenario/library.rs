@@ -7,7 +7,7 @@
 use super::decode::{load_str, RATED_MISMATCH, RATED_V};
 use super::reader::Reader;
 use super::source::{parse_toml, Error, Node, Sources};
-use crate::units::{parse_quantity, Kind};
+use crate::units::{parse_quantity, QuantityKind};
 
 macro_rules! templates {
     ($($name:literal),* $(,)?) => {
@@ -138,7 +138,7 @@ pub(crate) fn decode_about(ctx: &Reader, node: &Node, name: &str) -> Result<Abou
 /// it at the template's `voltage` key.
 fn parse_voltages(text: &str) -> Result<(f64, f64), String> {
     let one = |s: &str| -> Result<f64, String> {
-        let v = parse_quantity(s, Kind::Voltage)?;
+        let v = parse_quantity(s, QuantityKind::Voltage)?;
         if (RATED_V.0..=RATED_V.1).contains(&v) {
             Ok(v)
         } else {
@@ -165,7 +165,7 @@ fn parse_voltages(text: &str) -> Result<(f64, f64), String> {
 
 /// A built-in template as `loadloom templates` lists it.
 #[derive(Clone, Debug, serde::Serialize)]
-pub struct Entry {
+pub struct TemplateEntry {
     /// Its name (`template = "..."`).
     pub name: String,
     /// Its label.
@@ -187,12 +187,12 @@ pub struct Entry {
 
 /// Every built-in template, decoded by the scenario reader in a home of its
 /// own voltage (so the powers listed are those a run would use).
-pub fn catalogue() -> Result<Vec<Entry>, Error> {
+pub fn catalogue() -> Result<Vec<TemplateEntry>, Error> {
     names().into_iter().map(entry).collect()
 }
 
 /// One template, read as a scenario of a home built for it.
-fn entry(name: &str) -> Result<Entry, Error> {
+fn entry(name: &str) -> Result<TemplateEntry, Error> {
     let text = builtin(name).expect("listed");
     let mut sources = Sources::default();
     let file = sources.add(
@@ -216,7 +216,7 @@ fn entry(name: &str) -> Result<Entry, Error> {
         .filter(|st| !(st.name == "off" && st.draws.is_empty()))
         .map(|st| (st.name.clone(), st.draws.iter().map(|d| d.p_w).sum()))
         .collect();
-    Ok(Entry {
+    Ok(TemplateEntry {
         name: name.to_string(),
         label: a.label.clone(),
         end_use: a.end_use.clone(),
@@ -247,7 +247,7 @@ fn home_for(name: &str, v_ln: f64) -> String {
 }
 
 /// The built-in templates, as `loadloom templates` prints them.
-pub struct Catalogue(pub Vec<Entry>);
+pub struct Catalogue(pub Vec<TemplateEntry>);
 
 impl solver_check::render::Render for Catalogue {
     fn to_text(&self) -> String {

@@ -443,7 +443,7 @@ pub enum Behaviour {
     /// timeline comes from the heat balance, not from draws of its own.
     Thermostat {
         /// Which part of the heating or cooling plant it is.
-        role: crate::thermal::equipment::Role,
+        role: crate::thermal::equipment::Equipment,
     },
 }
 

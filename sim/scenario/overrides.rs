@@ -3,7 +3,7 @@
 //! scenario's own keys.
 
 use super::{decode, Error, Scenario};
-use crate::units::{parse_quantity, Kind};
+use crate::units::{parse_quantity, QuantityKind};
 
 /// `30d`, `"12 h"` or `90s`: a duration with its unit, in seconds. The
 /// error is what is wrong with the text alone (`Result<_, String>` on
@@ -12,14 +12,14 @@ pub fn duration_arg(text: &str) -> Result<f64, String> {
     let (num, unit) = split_unit(text);
     // On the command line `10m` means ten minutes, as in most tools.
     let unit = if unit == "m" { "min" } else { unit };
-    parse_quantity(&format!("{num} {unit}"), Kind::Duration)
+    parse_quantity(&format!("{num} {unit}"), QuantityKind::Duration)
 }
 
 /// `12.8kHz` or `"4 kHz"`: a frequency with its unit, in hertz (the error,
 /// as for [`duration_arg`], without the option's name).
 fn frequency_arg(text: &str) -> Result<f64, String> {
     let (num, unit) = split_unit(text);
-    parse_quantity(&format!("{num} {unit}"), Kind::Frequency)
+    parse_quantity(&format!("{num} {unit}"), QuantityKind::Frequency)
 }
 
 /// The number and the unit of `12h` or `"12 h"`.

@@ -3,7 +3,7 @@
 //! accepted.
 
 use super::source::{At, Entry, Error, Node, Sources, Val};
-use crate::units::{parse_quantity, Kind, MAX_APPLIANCE_DURATION_S};
+use crate::units::{parse_quantity, QuantityKind, MAX_APPLIANCE_DURATION_S};
 use std::cell::RefCell;
 
 /// Sizes of a plain number other than zero (no key needs more, and beyond
@@ -104,12 +104,14 @@ impl<'s> Reader<'s> {
         }
     }
 
-    pub fn quantity(&self, node: &Node, path: &str, kind: Kind) -> Result<f64, Error> {
+    pub fn quantity(&self, node: &Node, path: &str, kind: QuantityKind) -> Result<f64, Error> {
         match &node.v {
             Val::Str(s) => parse_quantity(s, kind)
                 .map_err(|m| self.err(node, path, m, format!("write {}", kind.example())))
                 .and_then(|v| self.within_appliance_limits(node, path, kind, v)),
-            Val::Int(_) | Val::Float(_) if kind == Kind::Fraction => self.number(node, path),
+            Val::Int(_) | Val::Float(_) if kind == QuantityKind::Fraction => {
+                self.number(node, path)
+            }
             Val::Int(_) | Val::Float(_) => Err(self.err(
                 node,
                 path,
@@ -132,10 +134,10 @@ impl<'s> Reader<'s> {
         &self,
         node: &Node,
         path: &str,
-        kind: Kind,
+        kind: QuantityKind,
         v: f64,
     ) -> Result<f64, Error> {
-        if kind == Kind::Duration
+        if kind == QuantityKind::Duration
             && path.starts_with("appliance")
             && v.abs() > MAX_APPLIANCE_DURATION_S
         {
@@ -153,7 +155,7 @@ impl<'s> Reader<'s> {
     }
 
     /// A quantity that must be strictly positive.
-    pub fn positive(&self, node: &Node, path: &str, kind: Kind) -> Result<f64, Error> {
+    pub fn positive(&self, node: &Node, path: &str, kind: QuantityKind) -> Result<f64, Error> {
         let v = self.quantity(node, path, kind)?;
         if v <= 0.0 {
             return Err(self.err(
@@ -167,7 +169,7 @@ impl<'s> Reader<'s> {
     }
 
     /// A quantity that must be zero or more.
-    pub fn non_negative(&self, node: &Node, path: &str, kind: Kind) -> Result<f64, Error> {
+    pub fn non_negative(&self, node: &Node, path: &str, kind: QuantityKind) -> Result<f64, Error> {
         let v = self.quantity(node, path, kind)?;
         if v < 0.0 {
             return Err(self.err(
@@ -255,17 +257,21 @@ impl<'n, 's, 'c> TableReader<'n, 's, 'c> {
         Ok(())
     }
 
-    pub fn quantity(&self, key: &'static str, kind: Kind) -> Result<Option<f64>, Error> {
+    pub fn quantity(&self, key: &'static str, kind: QuantityKind) -> Result<Option<f64>, Error> {
         self.opt(key)
             .map(|n| self.ctx.quantity(n, &self.path_of(key), kind))
             .transpose()
     }
-    pub fn positive(&self, key: &'static str, kind: Kind) -> Result<Option<f64>, Error> {
+    pub fn positive(&self, key: &'static str, kind: QuantityKind) -> Result<Option<f64>, Error> {
         self.opt(key)
             .map(|n| self.ctx.positive(n, &self.path_of(key), kind))
             .transpose()
     }
-    pub fn non_negative(&self, key: &'static str, kind: Kind) -> Result<Option<f64>, Error> {
+    pub fn non_negative(
+        &self,
+        key: &'static str,
+        kind: QuantityKind,
+    ) -> Result<Option<f64>, Error> {
         self.opt(key)
             .map(|n| self.ctx.non_negative(n, &self.path_of(key), kind))
             .transpose()

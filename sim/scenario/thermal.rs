@@ -5,9 +5,9 @@ use super::decode::parse_hours;
 use super::model::{Appliance, Home, Reference, Run, State};
 use super::reader::{Reader, TableReader};
 use super::source::{Error, Node, Val};
-use crate::thermal::equipment::{HeatPump, Role};
+use crate::thermal::equipment::{Equipment, HeatPump};
 use crate::thermal::Building;
-use crate::units::Kind;
+use crate::units::QuantityKind;
 use crate::weather::{climate::NAMED, Climate, WeatherSpec};
 use std::path::Path;
 
@@ -57,13 +57,13 @@ pub fn decode_weather(ctx: &Reader, node: &Node, run: &Run) -> Result<WeatherSpe
         None => (None, default_figures()),
     };
     decode_means(ctx, &t, &mut c, name.is_some())?;
-    if let Some(x) = t.positive("daily_swing", Kind::TempDiff)? {
+    if let Some(x) = t.positive("daily_swing", QuantityKind::TempDiff)? {
         c.daily_swing_k = x;
     }
     if let Some(n) = t.opt("spread") {
         let s = ctx.table(n, "weather.spread")?;
-        let w = s.non_negative("winter", Kind::TempDiff)?;
-        let su = s.non_negative("summer", Kind::TempDiff)?;
+        let w = s.non_negative("winter", QuantityKind::TempDiff)?;
+        let su = s.non_negative("summer", QuantityKind::TempDiff)?;
         s.finish()?;
         c.spread_k = (w.unwrap_or(c.spread_k.0), su.unwrap_or(c.spread_k.1));
     }
@@ -111,7 +111,7 @@ fn decode_means(ctx: &Reader, t: &TableReader, c: &mut Climate, named: bool) -> 
         return Ok(());
     }
     let mean = t.opt("mean");
-    let swing = t.quantity("swing", Kind::TempDiff)?;
+    let swing = t.quantity("swing", QuantityKind::TempDiff)?;
     match (mean, swing) {
         (Some(m), Some(sw)) => {
             let mean = temperature(ctx, m, "weather.mean")?;
@@ -149,7 +149,7 @@ fn month(ctx: &Reader, n: &Node) -> Result<usize, Error> {
 
 /// A temperature within the extremes measured at the surface.
 pub fn temperature(ctx: &Reader, n: &Node, path: &str) -> Result<f64, Error> {
-    let v = ctx.quantity(n, path, Kind::Temperature)?;
+    let v = ctx.quantity(n, path, QuantityKind::Temperature)?;
     if !(-90.0..=60.0).contains(&v) {
         return Err(ctx.err(
             n,
@@ -232,7 +232,7 @@ pub fn decode_building(ctx: &Reader, node: &Node, sunlit: bool) -> Result<Buildi
     let ua_w_k = ctx.positive(
         t.req("ua", "the heat loss coefficient, e.g. \"250 W/K\"")?,
         "building.ua",
-        Kind::Conductance,
+        QuantityKind::Conductance,
     )?;
     let direct_share = share(ctx, &t, "direct", 0.4)?;
     let mass_j_k = ctx.positive(
@@ -241,16 +241,16 @@ pub fn decode_building(ctx: &Reader, node: &Node, sunlit: bool) -> Result<Buildi
             "the heat capacity of the structure, e.g. \"30 MJ/K\"",
         )?,
         "building.mass",
-        Kind::HeatCapacity,
+        QuantityKind::HeatCapacity,
     )?;
     // Air, furnishings and linings: a tenth of the structure (common practice, no source).
     let air_j_k = t
-        .positive("air", Kind::HeatCapacity)?
+        .positive("air", QuantityKind::HeatCapacity)?
         .unwrap_or(mass_j_k / 10.0);
     // Interior surfaces' film conductance: ten times the loss coefficient
     // (common practice, no source).
     let coupling_w_k = t
-        .positive("coupling", Kind::Conductance)?
+        .positive("coupling", QuantityKind::Conductance)?
         .unwrap_or(10.0 * ua_w_k);
     if coupling_w_k <= (1.0 - direct_share) * ua_w_k {
         return Err(ctx.err(
@@ -262,7 +262,9 @@ pub fn decode_building(ctx: &Reader, node: &Node, sunlit: bool) -> Result<Buildi
     }
     let th = decode_setpoints(ctx, &t, node)?;
     let gains_share = share(ctx, &t, "gains", 0.8)?;
-    let aperture_m2 = t.non_negative("aperture", Kind::Area)?.unwrap_or(0.0);
+    let aperture_m2 = t
+        .non_negative("aperture", QuantityKind::Area)?
+        .unwrap_or(0.0);
     if aperture_m2 > 0.0 && !sunlit {
         return Err(ctx.err(
             t.opt("aperture").unwrap_or(node),
@@ -306,7 +308,9 @@ fn decode_setpoints(ctx: &Reader, t: &TableReader, node: &Node) -> Result<Setpoi
         .opt("cooling")
         .map(|n| temperature(ctx, n, "building.cooling"))
         .transpose()?;
-    let deadband_k = t.positive("deadband", Kind::TempDiff)?.unwrap_or(1.0);
+    let deadband_k = t
+        .positive("deadband", QuantityKind::TempDiff)?
+        .unwrap_or(1.0);
     if let Some(c) = cooling_c {
         if c < heating_c + deadband_k {
             return Err(ctx.err(
@@ -317,7 +321,9 @@ fn decode_setpoints(ctx: &Reader, t: &TableReader, node: &Node) -> Result<Setpoi
             ));
         }
     }
-    let second_stage_k = t.positive("second_stage", Kind::TempDiff)?.unwrap_or(1.0);
+    let second_stage_k = t
+        .positive("second_stage", QuantityKind::TempDiff)?
+        .unwrap_or(1.0);
     let setback = match t.opt("setback") {
         Some(n) => {
             let s = ctx.table(n, "building.setback")?;
@@ -329,7 +335,7 @@ fn decode_setpoints(ctx: &Reader, t: &TableReader, node: &Node) -> Result<Setpoi
             let by = ctx.positive(
                 s.req("by", "how far the setpoint drops, e.g. \"3 K\"")?,
                 "building.setback.by",
-                Kind::TempDiff,
+                QuantityKind::TempDiff,
             )?;
             s.finish()?;
             Some((std::array::from_fn(|h| w[h] > 0.0), by))
@@ -349,7 +355,7 @@ fn decode_setpoints(ctx: &Reader, t: &TableReader, node: &Node) -> Result<Setpoi
 fn share(ctx: &Reader, t: &TableReader, key: &'static str, default: f64) -> Result<f64, Error> {
     match t.opt(key) {
         Some(n) => {
-            let v = ctx.quantity(n, &t.path_of(key), Kind::Fraction)?;
+            let v = ctx.quantity(n, &t.path_of(key), QuantityKind::Fraction)?;
             if !(0.0..=1.0).contains(&v) {
                 return Err(ctx.err(
                     n,
@@ -382,7 +388,7 @@ pub fn decode_role(
     ctx: &Reader,
     t: &TableReader,
     states: Vec<State>,
-) -> Result<(Role, Vec<State>), Error> {
+) -> Result<(Equipment, Vec<State>), Error> {
     let rnode = t.req(
         "role",
         "heat-pump, air-conditioner, resistance, backup, furnace or blower",
@@ -446,7 +452,7 @@ fn role_of(
     states: &[State],
     out: &mut Vec<State>,
     snode: &Node,
-) -> Result<Role, Error> {
+) -> Result<Equipment, Error> {
     Ok(match rname {
         "heat-pump" => {
             let mut defrost = out[1].clone();
@@ -469,21 +475,21 @@ fn role_of(
                     ))
                 }
             }
-            Role::HeatPump(hp)
+            Equipment::HeatPump(hp)
         }
-        "air-conditioner" => Role::AirConditioner {
+        "air-conditioner" => Equipment::AirConditioner {
             cop: cop(ctx, t, "cop")?.unwrap_or(3.5),
         },
-        "resistance" => Role::Resistance { backup: false },
-        "backup" => Role::Resistance { backup: true },
-        "furnace" => Role::Furnace {
+        "resistance" => Equipment::Resistance { backup: false },
+        "backup" => Equipment::Resistance { backup: true },
+        "furnace" => Equipment::Furnace {
             capacity_w: ctx.positive(
                 t.req("capacity", "the heat it delivers, e.g. \"18 kW\"")?,
                 &t.path_of("capacity"),
-                Kind::Power,
+                QuantityKind::Power,
             )?,
         },
-        _ => Role::Blower,
+        _ => Equipment::Blower,
     })
 }
 
@@ -519,8 +525,12 @@ fn heat_pump(ctx: &Reader, t: &TableReader) -> Result<HeatPump, Error> {
         Some(n) if matches!(n.v, Val::Bool(false)) => (0.0, 0.0),
         Some(n) => {
             let d = ctx.table(n, &t.path_of("defrost"))?;
-            let e = d.positive("every", Kind::Duration)?.unwrap_or(3600.0);
-            let l = d.positive("length", Kind::Duration)?.unwrap_or(300.0);
+            let e = d
+                .positive("every", QuantityKind::Duration)?
+                .unwrap_or(3600.0);
+            let l = d
+                .positive("length", QuantityKind::Duration)?
+                .unwrap_or(300.0);
             d.finish()?;
             (e, l)
         }
@@ -560,7 +570,7 @@ pub fn decode_references(
         let kwh = ctx.positive(
             t.req("annual", "the published energy a year, e.g. \"450 kWh\"")?,
             &t.path_of("annual"),
-            Kind::Energy,
+            QuantityKind::Energy,
         )? / 3.6e6;
         let source = ctx
             .string(

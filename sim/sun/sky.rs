@@ -17,7 +17,7 @@
 //! its own stream, keyed by the seed and the day's number: a run over any
 //! window of time sees the same sky on the same day.
 
-use crate::rng::{stream, Stream};
+use crate::rng::{stream, RandomStream};
 use rand::Rng;
 use rand_distr::{Beta, Distribution, StandardNormal};
 
@@ -83,14 +83,14 @@ impl Sky {
 }
 
 /// The day's level, drawn from Beta(m·c, (1 − m)·c).
-fn day_level(mean: f64, rng: &mut Stream) -> f64 {
+fn day_level(mean: f64, rng: &mut RandomStream) -> f64 {
     let beta = Beta::new(mean * CONCENTRATION, (1.0 - mean) * CONCENTRATION)
         .expect("mean clamped into (0, 1)");
     beta.sample(rng)
 }
 
 /// An AR(1) series of `n` stationary standard normal values.
-fn ar1(n: usize, rho: f64, rng: &mut Stream) -> Vec<f64> {
+fn ar1(n: usize, rho: f64, rng: &mut RandomStream) -> Vec<f64> {
     let innov = (1.0 - rho * rho).sqrt();
     let mut z: f64 = rng.sample(StandardNormal);
     (0..n)

@@ -29,7 +29,7 @@ pub const RATING_COOL_C: (f64, f64) = (35.0, 26.667);
 /// What a thermostatic appliance is, with its ratings.
 #[derive(Clone, Debug, Serialize)]
 #[serde(tag = "role", rename_all = "kebab-case")]
-pub enum Role {
+pub enum Equipment {
     /// Air-source heat pump; states off, heating, defrost (and cooling).
     HeatPump(HeatPump),
     /// Cooling only; states off, cooling.
@@ -54,16 +54,16 @@ pub enum Role {
     Blower,
 }
 
-impl Role {
+impl Equipment {
     /// The role's name as written in the scenario (`heat-pump`, `blower`, …).
     pub fn name(&self) -> &'static str {
         match self {
-            Role::HeatPump(_) => "heat-pump",
-            Role::AirConditioner { .. } => "air-conditioner",
-            Role::Resistance { backup: false } => "resistance",
-            Role::Resistance { backup: true } => "backup",
-            Role::Furnace { .. } => "furnace",
-            Role::Blower => "blower",
+            Equipment::HeatPump(_) => "heat-pump",
+            Equipment::AirConditioner { .. } => "air-conditioner",
+            Equipment::Resistance { backup: false } => "resistance",
+            Equipment::Resistance { backup: true } => "backup",
+            Equipment::Furnace { .. } => "furnace",
+            Equipment::Blower => "blower",
         }
     }
 }
@@ -134,16 +134,18 @@ pub fn cooling_capacity_share(t_out: f64) -> f64 {
 /// The inputs, as shares of state `state`'s rated one, that a role may
 /// draw at outdoor temperatures from −25 °C to 40 °C, in steps of 5 %
 /// (what a wiring check must expect a switching to look like).
-pub fn input_scales(role: &Role, state: usize) -> Vec<f64> {
+pub fn input_scales(role: &Equipment, state: usize) -> Vec<f64> {
     let mut k: Vec<f64> = (-25..=40)
         .filter_map(|t| {
             let t = t as f64;
             match (role, state) {
-                (Role::HeatPump(h), 1 | 2) => Some(h.capacity_share(t) * h.cop / h.heating_cop(t)),
-                (Role::HeatPump(h), 3) => h
+                (Equipment::HeatPump(h), 1 | 2) => {
+                    Some(h.capacity_share(t) * h.cop / h.heating_cop(t))
+                }
+                (Equipment::HeatPump(h), 3) => h
                     .cooling_cop
                     .map(|c| cooling_capacity_share(t) * c / cooling_cop(c, t, 24.0)),
-                (Role::AirConditioner { cop }, 1) => {
+                (Equipment::AirConditioner { cop }, 1) => {
                     Some(cooling_capacity_share(t) * cop / cooling_cop(*cop, t, 24.0))
                 }
                 _ => None,

@@ -17,7 +17,7 @@ pub mod equipment;
 use crate::behaviour::{Segment, Timeline};
 use crate::scenario::{Appliance, Behaviour, Scenario};
 use crate::weather::Weather;
-use equipment::{Role, FROST_BELOW_C};
+use equipment::{Equipment, FROST_BELOW_C};
 use serde::Serialize;
 
 /// The building's heat-loss and storage figures and its thermostat.
@@ -103,7 +103,7 @@ pub struct Record {
 /// A thermostatic appliance: its load index, role and running powers.
 struct Unit<'a> {
     load: usize,
-    role: &'a Role,
+    role: &'a Equipment,
     /// Electric power of each state at nominal voltage, W.
     p: Vec<f64>,
     segs: Vec<Segment>,
@@ -118,8 +118,8 @@ impl Unit<'_> {
         let before = self.prev;
         self.prev = state;
         let d = match (self.role, before == 0, state == 0) {
-            (Role::Blower, true, false) => delays.0,
-            (Role::Blower, false, true) => delays.1,
+            (Equipment::Blower, true, false) => delays.0,
+            (Equipment::Blower, false, true) => delays.1,
             _ => 0,
         };
         // A delay as long as the control step cannot be drawn inside it.
@@ -320,13 +320,15 @@ fn operate(
 ) -> (f64, bool, bool) {
     out.clear();
     let mut q = 0.0;
-    let has_hp = units.iter().any(|u| matches!(u.role, Role::HeatPump(_)));
+    let has_hp = units
+        .iter()
+        .any(|u| matches!(u.role, Equipment::HeatPump(_)));
     let mut by_air = false;
     let mut compressor = false;
     let mut frosting = false;
     for u in units {
         let (state, scale, heat) = match u.role {
-            Role::HeatPump(h) => {
+            Equipment::HeatPump(h) => {
                 let cap = u.p[1] * h.cop * h.capacity_share(t_out);
                 let p_heat = cap / h.heating_cop(t_out);
                 if ask.defrost {
@@ -344,7 +346,7 @@ fn operate(
                     (0, 1.0, 0.0)
                 }
             }
-            Role::AirConditioner { cop } => {
+            Equipment::AirConditioner { cop } => {
                 if ask.cool && may_run {
                     let capc = u.p[1] * cop * equipment::cooling_capacity_share(t_out);
                     let pc = capc / equipment::cooling_cop(*cop, t_out, ti);
@@ -353,7 +355,7 @@ fn operate(
                     (0, 1.0, 0.0)
                 }
             }
-            Role::Resistance { backup } => {
+            Equipment::Resistance { backup } => {
                 let on = if *backup {
                     ask.heat && (ask.stage2 || ask.locked_out || !has_hp) || ask.defrost
                 } else {
@@ -365,24 +367,27 @@ fn operate(
                     (0, 1.0, 0.0)
                 }
             }
-            Role::Furnace { capacity_w } => {
+            Equipment::Furnace { capacity_w } => {
                 if ask.heat {
                     (1, 1.0, *capacity_w)
                 } else {
                     (0, 1.0, 0.0)
                 }
             }
-            Role::Blower => (0, 1.0, 0.0),
+            Equipment::Blower => (0, 1.0, 0.0),
         };
         if state != 0 {
-            by_air |= !matches!(u.role, Role::Resistance { backup: false });
-            compressor |= matches!(u.role, Role::HeatPump(_) | Role::AirConditioner { .. });
+            by_air |= !matches!(u.role, Equipment::Resistance { backup: false });
+            compressor |= matches!(
+                u.role,
+                Equipment::HeatPump(_) | Equipment::AirConditioner { .. }
+            );
         }
         q += heat;
         out.push((state, scale));
     }
     for (u, o) in units.iter().zip(out.iter_mut()) {
-        if matches!(u.role, Role::Blower) && by_air {
+        if matches!(u.role, Equipment::Blower) && by_air {
             // The fan's own power ends up as heat in the air stream.
             *o = (1, 1.0);
             q += u.p[1];
@@ -472,7 +477,7 @@ pub fn drive(
     let skip: Vec<usize> = units.iter().map(|u| u.load).collect();
     let gains = appliance_gains(&loads, tl, &skip, k, n);
     let hp = units.iter().find_map(|u| match u.role {
-        Role::HeatPump(h) => Some(h.clone()),
+        Equipment::HeatPump(h) => Some(h.clone()),
         _ => None,
     });
     let t0 = weather.temp_at(s.run.start_utc_ms);

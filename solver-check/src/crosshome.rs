@@ -17,7 +17,7 @@ use crate::metrics::{Acc, Scores};
 use crate::render::{aligned, Render};
 use crate::roundtrip::{
     appliances_revealed, confinement_line, iso, run_command, score_checked, write_test_truth,
-    Failure, Reveal, Run, Solver,
+    Failure, Reveal, Solver, SolverSite,
 };
 use crate::score::{overall_scores, ApplianceReport, Report};
 use crate::taskio::{create_fresh, parquet_rows, split_rows};
@@ -26,7 +26,7 @@ use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant};
 
 /// A home of the fleet: its name (`home=00003`) and its dataset folder.
-pub struct Home {
+pub struct FleetHome {
     /// The home's name (`home=00003`).
     pub name: String,
     /// Its dataset folder.
@@ -108,8 +108,8 @@ fn copy_table(ds: &Dataset, table: &str, dst: &Path) -> std::io::Result<(usize, 
 /// truth and the test homes' meters in `task/`, each test home's truth in
 /// `test-truth/`. `homes_dir` holds the fleet's datasets.
 pub fn prepare(
-    train: &[Home],
-    test: &[Home],
+    train: &[FleetHome],
+    test: &[FleetHome],
     work: &Path,
     homes_dir: &Path,
     reveal: Reveal,
@@ -119,7 +119,7 @@ pub fn prepare(
     for d in [task_dir.clone(), work.join("test-truth")] {
         let _ = std::fs::remove_dir_all(&d);
     }
-    let open = |h: &Home| Dataset::open(&h.dataset).map_err(io_other);
+    let open = |h: &FleetHome| Dataset::open(&h.dataset).map_err(io_other);
     let mut train_json = Vec::new();
     for h in train {
         let ds = open(h)?;
@@ -231,7 +231,7 @@ fn run_builtin(name: &str, p: &FleetTask, estimates: &Path) -> Result<(), Failur
         ));
     }
     for (home, t) in task["test"].as_array().into_iter().flatten().zip(&p.test) {
-        let one = crate::solvers::Task::for_home(&p.task_dir, home, pool.clone());
+        let one = crate::solvers::TaskFolder::for_home(&p.task_dir, home, pool.clone());
         crate::solvers::run_task(name, &one, &estimates.join(&t.estimate_name))
             .map_err(|e| Failure::Builtin(format!("{}: {e}", t.name)))?;
     }
@@ -262,7 +262,7 @@ pub fn run(
         }
         Solver::Command(argv) => {
             let truth = p.work.join("test-truth");
-            let run = Run {
+            let run = SolverSite {
                 task_dir: &p.task_dir,
                 out_dir: &out_dir,
                 estimate: &estimates,

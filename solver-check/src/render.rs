@@ -1,12 +1,12 @@
 //! One way to print a report: every command's result (a score, a
 //! comparison, a leaderboard, an audit, a run summary) implements [`Render`],
-//! and the command line picks the [`Form`] the user asked for.
+//! and the command line picks the [`ReportForm`] the user asked for.
 
 use serde_json::Value;
 
 /// The form a report is printed in.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Form {
+pub enum ReportForm {
     /// Aligned columns for a terminal.
     Text,
     /// Markdown tables, for pasting into documents and issues.
@@ -15,16 +15,16 @@ pub enum Form {
     Json,
 }
 
-impl Form {
+impl ReportForm {
     /// The form chosen by a command's `--json` and `--markdown` flags
     /// (`--json` wins; clap already refuses both at once).
-    pub fn from_flags(json: bool, markdown: bool) -> Form {
+    pub fn from_flags(json: bool, markdown: bool) -> ReportForm {
         if json {
-            Form::Json
+            ReportForm::Json
         } else if markdown {
-            Form::Markdown
+            ReportForm::Markdown
         } else {
-            Form::Text
+            ReportForm::Text
         }
     }
 }
@@ -43,11 +43,11 @@ pub trait Render {
 
     /// The report in `form`, ready to print (JSON ends with a newline like
     /// the other forms).
-    fn render(&self, form: Form) -> String {
+    fn render(&self, form: ReportForm) -> String {
         match form {
-            Form::Text => self.to_text(),
-            Form::Markdown => self.to_markdown(),
-            Form::Json => {
+            ReportForm::Text => self.to_text(),
+            ReportForm::Markdown => self.to_markdown(),
+            ReportForm::Json => {
                 let mut s = serde_json::to_string_pretty(&self.to_json())
                     .expect("a serde_json::Value always serializes");
                 s.push('\n');
@@ -113,11 +113,11 @@ mod tests {
 
     #[test]
     fn forms_follow_the_flags() {
-        assert_eq!(Form::from_flags(true, false), Form::Json);
-        assert_eq!(Form::from_flags(false, true), Form::Markdown);
-        assert_eq!(Form::from_flags(false, false), Form::Text);
-        assert_eq!(Two.render(Form::Markdown), "two\n");
-        assert_eq!(Two.render(Form::Json), "{\n  \"n\": 2\n}\n");
+        assert_eq!(ReportForm::from_flags(true, false), ReportForm::Json);
+        assert_eq!(ReportForm::from_flags(false, true), ReportForm::Markdown);
+        assert_eq!(ReportForm::from_flags(false, false), ReportForm::Text);
+        assert_eq!(Two.render(ReportForm::Markdown), "two\n");
+        assert_eq!(Two.render(ReportForm::Json), "{\n  \"n\": 2\n}\n");
     }
 
     #[test]

@@ -256,7 +256,7 @@ pub struct Split {
 }
 
 /// A task written once, for any number of solvers.
-pub struct Prepared {
+pub struct PreparedTask {
     /// The dataset the task was cut from.
     pub dataset: PathBuf,
     /// The work folder holding the task, the scored truth and the solvers' folders.
@@ -453,7 +453,7 @@ pub fn prepare(
     split: &Split,
     reveal: Reveal,
     estimate_name: &str,
-) -> std::io::Result<Prepared> {
+) -> std::io::Result<PreparedTask> {
     let ds = Dataset::open(dataset).map_err(|e| std::io::Error::other(e.to_string()))?;
     if split.test.is_empty()
         || split.test.end > ds.rows as usize
@@ -477,7 +477,7 @@ pub fn prepare(
         &confinement_line(confine),
     )?;
     let truth_sha = write_test_truth(&ds, &truth_dir, &split.test, scored)?;
-    Ok(Prepared {
+    Ok(PreparedTask {
         dataset: dataset.to_path_buf(),
         work: work.to_path_buf(),
         task_dir,
@@ -539,7 +539,7 @@ pub fn run(
 /// `slot/solver.log`, the estimate and scratch under `slot/solver/`), then
 /// scores it. `extra_read` are folders the solver may read besides its own.
 pub fn run_solver(
-    p: &Prepared,
+    p: &PreparedTask,
     solver: &Solver,
     slot: &Path,
     timeout: Duration,
@@ -560,7 +560,7 @@ pub fn run_solver(
             (r, line, 0)
         }
         Solver::Command(argv) => {
-            let run = Run {
+            let run = SolverSite {
                 task_dir: &p.task_dir,
                 out_dir: &out_dir,
                 estimate: &estimate,
@@ -589,7 +589,7 @@ pub fn run_solver(
 /// Where an external solver runs: the folder it reads, the one it writes,
 /// its estimate (a file, or a folder of them), its log, and the folders
 /// holding truth it must never reach.
-pub(crate) struct Run<'a> {
+pub(crate) struct SolverSite<'a> {
     pub task_dir: &'a Path,
     pub out_dir: &'a Path,
     pub estimate: &'a Path,
@@ -603,7 +603,7 @@ pub(crate) struct Run<'a> {
 /// ended, the confinement line and how many processes it left behind.
 pub(crate) fn run_command(
     argv: &[String],
-    run: &Run,
+    run: &SolverSite,
     timeout: Duration,
     extra_read: &[PathBuf],
 ) -> (Result<(), Failure>, String, usize) {
@@ -694,7 +694,12 @@ pub fn substitute(arg: &str, values: &[(&str, &str)]) -> String {
 
 type ChildResult = Result<usize, (Failure, usize)>;
 
-fn run_child(argv: &[String], run: &Run, sandbox: &Sandbox, timeout: Duration) -> ChildResult {
+fn run_child(
+    argv: &[String],
+    run: &SolverSite,
+    sandbox: &Sandbox,
+    timeout: Duration,
+) -> ChildResult {
     let (estimate, log) = (run.estimate, run.log);
     let scratch = run.out_dir.join("scratch");
     let (t, e, s) = (

@@ -42,10 +42,10 @@ pub struct Header {
     /// zone instead of refusing them ([`crate::wallclock`]); set by a caller
     /// that knows the home's zone (the audit, from the declaration).
     pub naive_zone: Option<String>,
-    kind: Kind,
+    kind: FileKind,
 }
 
-enum Kind {
+enum FileKind {
     Parquet {
         time_index: usize,
         unit: TimeUnit,
@@ -185,7 +185,7 @@ fn parquet_header(path: &Path) -> Result<Header, TableError> {
         time_zone: tz,
         zone_hint: None,
         naive_zone: None,
-        kind: Kind::Parquet {
+        kind: FileKind::Parquet {
             time_index: ti,
             unit,
         },
@@ -225,7 +225,7 @@ fn csv_header(path: &Path) -> Result<Header, TableError> {
         time_zone: None,
         zone_hint: None,
         naive_zone: None,
-        kind: Kind::Csv {
+        kind: FileKind::Csv {
             time_index: ti,
             header,
         },
@@ -244,7 +244,7 @@ pub fn in_memory(t: Table) -> Header {
         time_zone: t.time_zone.clone(),
         zone_hint: None,
         naive_zone: None,
-        kind: Kind::Mem(t),
+        kind: FileKind::Mem(t),
     }
 }
 
@@ -372,7 +372,7 @@ impl Header {
         let path = &self.file;
         let all: Vec<&String> = cols.iter().chain(texts).collect();
         let inner = match &self.kind {
-            Kind::Parquet { time_index, .. } => {
+            FileKind::Parquet { time_index, .. } => {
                 let file = open(path)?;
                 let b = ParquetRecordBatchReaderBuilder::try_new(file)
                     .map_err(|e| table_err(path, None, None, e.to_string(), "check the file"))?;
@@ -404,7 +404,7 @@ impl Header {
                     .collect();
                 Inner::Parquet(r, pos)
             }
-            Kind::Csv { time_index, header } => {
+            FileKind::Csv { time_index, header } => {
                 let mut r = csv_reader(path)?;
                 r.headers().map_err(|e| csv_err(path, e))?;
                 let idx = std::iter::once(Ok(*time_index))
@@ -422,7 +422,7 @@ impl Header {
                     .collect::<Result<Vec<_>, _>>()?;
                 Inner::Csv(r, csv::StringRecord::new(), idx)
             }
-            Kind::Mem(_) => Inner::Mem,
+            FileKind::Mem(_) => Inner::Mem,
         };
         Ok(Stream {
             h: self,
@@ -529,7 +529,7 @@ impl Stream<'_> {
                 let b = b.map_err(|e| {
                     table_err(path, None, Some(first), e.to_string(), "check the file")
                 })?;
-                let Kind::Parquet { unit, .. } = &self.h.kind else {
+                let FileKind::Parquet { unit, .. } = &self.h.kind else {
                     unreachable!()
                 };
                 let mut batch =
@@ -561,7 +561,7 @@ impl Stream<'_> {
                 }
             }
             Inner::Mem => {
-                let Kind::Mem(t) = &self.h.kind else {
+                let FileKind::Mem(t) = &self.h.kind else {
                     unreachable!()
                 };
                 let Some(batch) = mem_batch(t, path, first, &self.cols, &self.texts)? else {

@@ -159,7 +159,7 @@ fn columns_of(h: &Header, plan: &MeterPlan) -> (Vec<String>, Vec<ChannelCols>) {
 }
 
 /// Running sums over the rows, per line.
-struct Sums {
+struct LineSums {
     peak: Vec<f64>,
     peak_ms: Vec<Option<i64>>,
     sum: Vec<f64>,
@@ -177,9 +177,9 @@ struct Sums {
 /// too for every zone offset in whole quarter-hours).
 const QUARTER_MS: i64 = 900_000;
 
-impl Sums {
-    fn new(n: usize) -> Sums {
-        Sums {
+impl LineSums {
+    fn new(n: usize) -> LineSums {
+        LineSums {
             peak: vec![0.0; n],
             peak_ms: vec![None; n],
             sum: vec![0.0; n],
@@ -263,12 +263,12 @@ fn line_current(
     )
 }
 
-/// Streams the table once into [`Sums`].
+/// Streams the table once into [`LineSums`].
 fn sums_of(
     h: &Header,
     plan: &MeterPlan,
     nominal_v: f64,
-) -> Result<(Sums, Option<WallClockUse>), Error> {
+) -> Result<(LineSums, Option<WallClockUse>), Error> {
     let n = plan.reads.len();
     let (mut cols, at) = columns_of(h, plan);
     let has_n = h.has(columns::NEUTRAL_I);
@@ -276,7 +276,7 @@ fn sums_of(
         cols.push(columns::NEUTRAL_I.into());
     }
     let every_line = plan.reads.iter().all(|r| r.is_some());
-    let mut s = Sums::new(n);
+    let mut s = LineSums::new(n);
     let mut current = vec![f64::NAN; n];
     let mut st = h.stream(&cols)?;
     while let Some(b) = st.next_batch()? {
@@ -359,7 +359,7 @@ pub fn loading_of(
 }
 
 /// Line `x`'s figures from the sums.
-fn line_of(s: &Sums, plan: &MeterPlan, x: usize) -> LineLoading {
+fn line_of(s: &LineSums, plan: &MeterPlan, x: usize) -> LineLoading {
     let read = plan.reads[x];
     let not_measured = match read {
         None => Some("no CT is declared on it".to_string()),

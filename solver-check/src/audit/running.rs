@@ -18,7 +18,7 @@ pub const STEP_TOL_W: f64 = 30.0;
 pub const STEP_TOL_REL: f64 = 0.10;
 
 /// One declared jump as the channels read it.
-struct Jump {
+struct JumpReading {
     appliance: usize,
     from: usize,
     to: usize,
@@ -27,7 +27,7 @@ struct Jump {
 }
 
 /// Every distinct jump of every appliance, read through metering `m`.
-fn jumps(d: &Declared, m: &Metering) -> Vec<Jump> {
+fn jumps(d: &Declared, m: &Metering) -> Vec<JumpReading> {
     let mut v = Vec::new();
     for (j, a) in d.appliances.iter().enumerate() {
         for ((from, to, _, _), split) in d.distinct_jumps(a) {
@@ -38,7 +38,7 @@ fn jumps(d: &Declared, m: &Metering) -> Vec<Jump> {
                 .map(|c| c.abs())
                 .fold(0.0, f64::max);
             if size > 0.0 {
-                v.push(Jump {
+                v.push(JumpReading {
                     appliance: j,
                     from,
                     to,
@@ -53,7 +53,7 @@ fn jumps(d: &Declared, m: &Metering) -> Vec<Jump> {
 
 /// How far a step is from a jump read `sign` way round, in tolerances
 /// (None: a channel the jump needs has no reading).
-fn misfit(e: &Event, jump: &Jump, sign: f64) -> Option<f64> {
+fn misfit(e: &Event, jump: &JumpReading, sign: f64) -> Option<f64> {
     let tol = STEP_TOL_W + STEP_TOL_REL * jump.size;
     let mut worst = 0.0f64;
     for (c, r) in jump.reading.iter().enumerate() {
@@ -110,7 +110,7 @@ pub fn running(
 
 /// Takes step `e` for the jump it fits best, if any, and moves that
 /// appliance's state.
-fn apply(e: &Event, js: &[Jump], state: &mut [usize]) {
+fn apply(e: &Event, js: &[JumpReading], state: &mut [usize]) {
     let best = js
         .iter()
         .flat_map(|j| [(j, 1.0), (j, -1.0)])

@@ -14,8 +14,8 @@
 //! combinations) with their learned per-line split, and each combination is
 //! scored by the per-line look-ups of what it leaves.
 
-use super::states::{learn, Level};
-use super::Task;
+use super::states::{learn, PowerLevel};
+use super::TaskFolder;
 use crate::contract::columns;
 use crate::table::Table;
 use std::collections::HashMap;
@@ -134,7 +134,7 @@ type Estimate = (Vec<i64>, Vec<crate::taskio::EstimateColumn>);
 
 /// An appliance as learned from training: its id, the indices of the lines
 /// it draws from, and its levels with their split over those lines.
-type App = (String, Vec<usize>, Vec<Level>);
+type App = (String, Vec<usize>, Vec<PowerLevel>);
 
 /// A joint combination of the multi-line appliances: their levels, the
 /// power it puts on each line, and its log prior.
@@ -146,7 +146,7 @@ type LevelOf = Vec<Vec<u8>>;
 /// Learns each appliance's levels, solves every test row (per line when
 /// `per_conductor` and the meter reports the lines) and returns the
 /// estimate's times and columns.
-pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
+pub fn solve(task: &TaskFolder, per_conductor: bool) -> Result<Estimate, String> {
     let lines = &task.lines;
     let apps = learn_apps(task)?;
     // A meter that reports only the total (per-line readings all null):
@@ -169,7 +169,7 @@ pub fn solve(task: &Task, per_conductor: bool) -> Result<Estimate, String> {
 
 /// Levels per appliance from the training truth, with their split over the
 /// lines each draws from.
-fn learn_apps(task: &Task) -> Result<Vec<App>, String> {
+fn learn_apps(task: &TaskFolder) -> Result<Vec<App>, String> {
     let lines = &task.lines;
     let mut want: Vec<String> = task.ids.iter().map(|id| columns::p(id)).collect();
     for id in &task.ids {
@@ -200,7 +200,7 @@ fn learn_apps(task: &Task) -> Result<Vec<App>, String> {
 }
 
 /// Whether the test meter reports every line with at least one reading.
-fn meter_has_lines(task: &Task) -> bool {
+fn meter_has_lines(task: &TaskFolder) -> bool {
     let line_cols: Vec<String> = task.lines.iter().map(|l| format!("{l}_p_w")).collect();
     task.test_meters(&line_cols).is_ok_and(|t| {
         line_cols

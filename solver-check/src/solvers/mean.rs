@@ -1,10 +1,10 @@
 //! `builtin:training-mean`: every appliance at its training mean, all the time. The
 //! floor any real method must beat.
 
-use super::Task;
+use super::TaskFolder;
 use crate::contract::columns;
 
-pub fn solve(task: &Task) -> Result<(Vec<i64>, Vec<crate::taskio::EstimateColumn>), String> {
+pub fn solve(task: &TaskFolder) -> Result<(Vec<i64>, Vec<crate::taskio::EstimateColumn>), String> {
     let cols: Vec<String> = task.ids.iter().map(|id| columns::p(id)).collect();
     let train = task.train_truth(&cols)?;
     let test = task.test_meters(&[])?;

@@ -15,7 +15,7 @@ use serde_json::Value;
 use std::path::{Path, PathBuf};
 
 /// A task folder as a solver sees it.
-pub struct Task {
+pub struct TaskFolder {
     /// The task folder.
     pub dir: PathBuf,
     /// `task.json`, parsed.
@@ -27,31 +27,31 @@ pub struct Task {
     /// The line conductors the meters read (`l1`, `l2`, …).
     pub lines: Vec<String>,
     /// Training truths of other homes (a cross-home task), pooled by
-    /// [`Task::train_truth`]; empty for a task of one home.
+    /// [`TaskFolder::train_truth`]; empty for a task of one home.
     pub pool: Vec<PathBuf>,
 }
 
-impl Task {
+impl TaskFolder {
     /// Opens the task folder `dir` and reads its `task.json`.
-    pub fn open(dir: &Path) -> Result<Task, String> {
+    pub fn open(dir: &Path) -> Result<TaskFolder, String> {
         let text = std::fs::read_to_string(dir.join("task.json"))
             .map_err(|e| format!("cannot read {}: {e}", dir.join("task.json").display()))?;
         let json: Value = serde_json::from_str(&text).map_err(|e| format!("task.json: {e}"))?;
-        Ok(Task::of(dir, json, Vec::new()))
+        Ok(TaskFolder::of(dir, json, Vec::new()))
     }
 
     /// One test home of a cross-home task (`loadloom-fleet-task/1`): its
     /// entry of `test` describes the home and names its meters; `pool` are
     /// the training homes' truth files.
-    pub fn for_home(dir: &Path, home: &Value, pool: Vec<PathBuf>) -> Task {
+    pub fn for_home(dir: &Path, home: &Value, pool: Vec<PathBuf>) -> TaskFolder {
         let json = serde_json::json!({
             "timezone": home["timezone"], "supply": home["supply"],
             "appliances": home["appliances"], "test": { "meters": home["meters"] },
         });
-        Task::of(dir, json, pool)
+        TaskFolder::of(dir, json, pool)
     }
 
-    fn of(dir: &Path, json: Value, pool: Vec<PathBuf>) -> Task {
+    fn of(dir: &Path, json: Value, pool: Vec<PathBuf>) -> TaskFolder {
         let ids = json["appliances"]
             .as_array()
             .map(|a| {
@@ -71,7 +71,7 @@ impl Task {
                     .collect()
             })
             .unwrap_or_default();
-        Task {
+        TaskFolder {
             dir: dir.to_path_buf(),
             json,
             ids,
@@ -169,11 +169,11 @@ pub const OLD_NAMES: [(&str, &str); 3] = [
 
 /// Runs built-in solver `name` on the task folder, writing `estimate`.
 pub fn run(name: &str, task_dir: &Path, estimate: &Path) -> Result<(), String> {
-    run_task(name, &Task::open(task_dir)?, estimate)
+    run_task(name, &TaskFolder::open(task_dir)?, estimate)
 }
 
 /// Runs built-in solver `name` on `task`, writing `estimate`.
-pub fn run_task(name: &str, task: &Task, estimate: &Path) -> Result<(), String> {
+pub fn run_task(name: &str, task: &TaskFolder, estimate: &Path) -> Result<(), String> {
     let (time, cols) = match name {
         "training-mean" => mean::solve(task)?,
         "combinatorial" => co::solve(task, false)?,

@@ -4,7 +4,7 @@
 //! prior) and its mean split over the conductors.
 
 #[derive(Clone, Debug)]
-pub struct Level {
+pub struct PowerLevel {
     pub p_w: f64,
     pub prior: f64,
     /// Mean power on each conductor while at this level (co-conductor).
@@ -13,9 +13,9 @@ pub struct Level {
 
 /// Levels of `p` (one value per training row); `per_line[x][t]` the power on
 /// conductor x at row t (may be empty).
-pub fn learn(p: &[f64], per_line: &[&[f64]]) -> Vec<Level> {
+pub fn learn(p: &[f64], per_line: &[&[f64]]) -> Vec<PowerLevel> {
     if p.is_empty() {
-        return vec![Level {
+        return vec![PowerLevel {
             p_w: 0.0,
             prior: 1.0,
             split: vec![0.0; per_line.len()],
@@ -46,9 +46,9 @@ pub fn learn(p: &[f64], per_line: &[&[f64]]) -> Vec<Level> {
     }
     c.sort_by(|a, b| a.partial_cmp(b).unwrap());
     c.dedup_by(|a, b| (*a - *b).abs() < 15.0);
-    let mut levels: Vec<Level> = c
+    let mut levels: Vec<PowerLevel> = c
         .iter()
-        .map(|&p| Level {
+        .map(|&p| PowerLevel {
             p_w: p,
             prior: 0.0,
             split: vec![0.0; per_line.len()],
