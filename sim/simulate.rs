@@ -2,7 +2,7 @@
 //! truth, emitted in chunks of reporting intervals so memory does not grow
 //! with the length of the run.
 
-use crate::behaviour::Timeline;
+use crate::behaviour::{Segment, Timeline};
 use crate::electrical::settle::{diverged, Diverged};
 use crate::electrical::source::SourceVoltage;
 use crate::electrical::{Network, StepOut, C64};
@@ -73,8 +73,6 @@ struct TruthRows {
     values: Vec<f32>,
     /// `[appliance * BLOCK_ROWS + row]`: the state held.
     states: Vec<u16>,
-    /// Per appliance: whether it has a state-of-charge column.
-    soc: Vec<bool>,
     /// Rows in the block so far.
     rows: usize,
 }
@@ -86,15 +84,13 @@ const BLOCK_ROWS: usize = 64;
 
 impl TruthRows {
     fn new(truth: &Truth) -> Self {
-        let soc: Vec<bool> = truth.app_soc.iter().map(Option::is_some).collect();
         let columns = 2 * truth.app_p.len()
             + truth.app_line_p.iter().map(Vec::len).sum::<usize>()
-            + soc.iter().filter(|&&x| x).count()
+            + truth.app_soc.iter().flatten().count()
             + 1;
         TruthRows {
             values: vec![0.0; columns * BLOCK_ROWS],
             states: vec![0; truth.app_state.len() * BLOCK_ROWS],
-            soc,
             rows: 0,
         }
     }
@@ -324,7 +320,7 @@ where
     };
     let mut out = StepOut::new(net.apps.len());
     let mut walk = Walk::new(&net, timelines);
-    let mut sums = IntervalSums::new(&net, k_int, s.appliances.len());
+    let mut sums = IntervalSums::new(&net, k_int, &chunk.truth, timelines);
     let mut summary = Summary {
         app_energy_j: vec![0.0; net.apps.len()],
         app_peak_w: vec![0.0; net.apps.len()],
@@ -353,7 +349,7 @@ where
         sums.add(&out, &mut walk, &mut summary, dt);
         if (step + 1) % k_int == 0 {
             meter.emit(&mut chunk.readings);
-            sums.flush(&mut rows, &net, &walk, timelines, step);
+            sums.flush(&mut rows, &out, &walk, step);
             let last = chunk.readings.rows() == chunk_rows || step + 1 == total_steps;
             if rows.full() || last {
                 rows.drain(&mut chunk.truth);
@@ -391,6 +387,10 @@ struct Walk {
     open: Vec<StateSpan>,
     /// The spans already closed.
     closed: Vec<StateSpan>,
+    /// The first step at which some load enters its next segment.
+    next_change: u64,
+    /// Loads whose inrush is still decaying.
+    surging: usize,
 }
 
 impl Walk {
@@ -424,37 +424,29 @@ impl Walk {
             active: vec![(0, 1.0); n_apps],
             open,
             closed: Vec::new(),
+            next_change: 0,
+            surging: 0,
         }
     }
 
     /// Moves every load to `step`: into its next segment where the current
     /// one ended (closing its span when the state changes), its inrush
-    /// decayed by one more step. True when any load's draw changed.
+    /// decayed by one more step. True when any load's draw changed. Until
+    /// the next segment begins and while nothing surges, nothing moves.
     #[inline]
     fn advance(&mut self, step: u64, net: &Network, timelines: &[Timeline], dt: f64) -> bool {
+        if step < self.next_change && self.surging == 0 {
+            return false;
+        }
         let mut changed = false;
+        let (mut next_change, mut surging) = (u64::MAX, 0);
         for k in 0..net.apps.len() {
             let segs = &timelines[k].segments;
             if step >= segs[self.pos[k]].end {
-                self.pos[k] += 1;
-                let seg = segs[self.pos[k]];
-                if seg.state as usize != self.state[k] {
-                    let mut ev = self.open[k].clone();
-                    ev.end_step = step;
-                    self.closed.push(ev);
-                    self.open[k] = StateSpan {
-                        app: k,
-                        state: seg.state,
-                        start_step: step,
-                        end_step: 0,
-                        energy_j: 0.0,
-                    };
-                    self.state[k] = seg.state as usize;
-                    self.inrush_from[k] = net.apps[k].inrush[self.state[k]].map(|_| step);
-                }
-                self.scale[k] = seg.scale as f64;
+                self.enter_next(k, step, segs, net);
                 changed = true;
             }
+            next_change = next_change.min(segs[self.pos[k]].end);
             let mut m = self.scale[k];
             if let Some(from) = self.inrush_from[k] {
                 let ir = net.apps[k].inrush[self.state[k]].expect("set with inrush");
@@ -463,12 +455,37 @@ impl Walk {
                     self.inrush_from[k] = None;
                 } else {
                     m *= inrush_mult(ir.peak, ir.decay_s, j, dt);
+                    surging += 1;
                 }
                 changed = true;
             }
             self.active[k] = (self.state[k], m);
         }
+        self.next_change = next_change;
+        self.surging = surging;
         changed
+    }
+
+    /// Load `k` enters its next segment at `step`, closing its span when the
+    /// state changes.
+    fn enter_next(&mut self, k: usize, step: u64, segs: &[Segment], net: &Network) {
+        self.pos[k] += 1;
+        let seg = segs[self.pos[k]];
+        if seg.state as usize != self.state[k] {
+            let mut ev = self.open[k].clone();
+            ev.end_step = step;
+            self.closed.push(ev);
+            self.open[k] = StateSpan {
+                app: k,
+                state: seg.state,
+                start_step: step,
+                end_step: 0,
+                energy_j: 0.0,
+            };
+            self.state[k] = seg.state as usize;
+            self.inrush_from[k] = net.apps[k].inrush[self.state[k]].map(|_| step);
+        }
+        self.scale[k] = seg.scale as f64;
     }
 
     /// Per load, the step its inrush began and the inrush, while it lasts
@@ -556,7 +573,7 @@ impl<'a> Solution<'a> {
 
 /// Per-load sums over the reporting interval in progress, and how many
 /// steps each load spent in each state.
-struct IntervalSums {
+struct IntervalSums<'a> {
     p: Vec<f64>,
     q: Vec<f64>,
     line_p: Vec<[f64; 3]>,
@@ -567,10 +584,14 @@ struct IntervalSums {
     k_int: u64,
     /// Loads before this index are the appliances, the rest unmetered.
     metered: usize,
+    /// Per appliance: the lines of its per-line truth columns.
+    lines: Vec<Vec<usize>>,
+    /// Per appliance: its timeline if it is a store (a state-of-charge column).
+    stores: Vec<Option<&'a Timeline>>,
 }
 
-impl IntervalSums {
-    fn new(net: &Network, k_int: u64, metered: usize) -> Self {
+impl<'a> IntervalSums<'a> {
+    fn new(net: &Network, k_int: u64, truth: &Truth, timelines: &'a [Timeline]) -> Self {
         let n_apps = net.apps.len();
         let max_states = net.apps.iter().map(|a| a.states.len()).max().unwrap_or(1);
         IntervalSums {
@@ -580,47 +601,84 @@ impl IntervalSums {
             occupancy: vec![0; n_apps * max_states],
             max_states,
             k_int,
-            metered,
+            metered: truth.app_p.len(),
+            lines: net.apps.iter().map(|a| a.lines.clone()).collect(),
+            stores: truth
+                .app_soc
+                .iter()
+                .zip(timelines)
+                .map(|(soc, tl)| soc.as_ref().map(|_| tl))
+                .collect(),
         }
     }
 
     /// Adds the step's per-load powers to the sums, the spans' energy and
-    /// the summary's energy and peaks.
+    /// the summary's energy and peaks. At one step per interval the step is
+    /// the interval: [`IntervalSums::flush`] reads it from `out` itself.
     #[inline]
     fn add(&mut self, out: &StepOut, walk: &mut Walk, summary: &mut Summary, dt: f64) {
         for k in 0..self.p.len() {
             let p = out.app_p[k];
-            self.p[k] += p;
-            self.q[k] += out.app_q[k];
-            for x in 0..3 {
-                self.line_p[k][x] += out.app_line_p[k][x];
-            }
             walk.open[k].energy_j += p * dt;
             summary.app_energy_j[k] += p * dt;
             if p > summary.app_peak_w[k] {
                 summary.app_peak_w[k] = p;
             }
-            if self.k_int > 1 {
-                self.occupancy[k * self.max_states + walk.state[k]] += 1;
+        }
+        if self.k_int == 1 {
+            return;
+        }
+        for k in 0..self.p.len() {
+            self.p[k] += out.app_p[k];
+            self.q[k] += out.app_q[k];
+            for x in 0..3 {
+                self.line_p[k][x] += out.app_line_p[k][x];
             }
+            self.occupancy[k * self.max_states + walk.state[k]] += 1;
         }
     }
 
     /// Ends the interval that closes at `step`: each appliance's means and
     /// state into the truth row, the unmetered loads as their sum; the sums
     /// start again from zero.
-    fn flush(
-        &mut self,
-        rows: &mut TruthRows,
-        net: &Network,
-        walk: &Walk,
-        timelines: &[Timeline],
-        step: u64,
-    ) {
+    fn flush(&mut self, rows: &mut TruthRows, out: &StepOut, walk: &Walk, step: u64) {
+        if self.k_int == 1 {
+            self.flush_step(rows, out, walk, step);
+        } else {
+            self.flush_means(rows, walk, step);
+        }
+    }
+
+    /// [`IntervalSums::flush`] at one step per interval: the interval's
+    /// means are the step's own powers. `0.0 + x` is what a sum started at
+    /// zero holds after one step (it turns −0 into +0), and `x / 1` is `x`.
+    fn flush_step(&mut self, rows: &mut TruthRows, out: &StepOut, walk: &Walk, step: u64) {
+        let mut unmetered = 0.0;
+        for k in self.metered..self.p.len() {
+            unmetered += 0.0 + out.app_p[k];
+        }
+        let mut c = 0;
+        for k in 0..self.metered {
+            rows.put(c, (0.0 + out.app_p[k]) as f32);
+            rows.put(c + 1, (0.0 + out.app_q[k]) as f32);
+            c += 2;
+            for &x in &self.lines[k] {
+                rows.put(c, (0.0 + out.app_line_p[k][x]) as f32);
+                c += 1;
+            }
+            rows.put_state(k, walk.state[k] as u16);
+            if let Some(tl) = self.stores[k] {
+                rows.put(c, self.soc(tl, walk, k, step));
+                c += 1;
+            }
+        }
+        rows.put(c, unmetered as f32);
+        rows.end_row();
+    }
+
+    /// [`IntervalSums::flush`] over several steps per interval.
+    fn flush_means(&mut self, rows: &mut TruthRows, walk: &Walk, step: u64) {
         let kf = self.k_int as f64;
-        // x / 1 is x exactly: at one step per interval the divisions go.
-        let one = self.k_int == 1;
-        let mean = move |x: f64| if one { x } else { x / kf } as f32;
         let ms = self.max_states;
         // Unmetered loads are in the meters; in truth only as their sum.
         let mut unmetered = 0.0;
@@ -633,18 +691,17 @@ impl IntervalSums {
         }
         let mut c = 0;
         for k in 0..self.metered {
-            rows.put(c, mean(self.p[k]));
-            rows.put(c + 1, mean(self.q[k]));
+            rows.put(c, (self.p[k] / kf) as f32);
+            rows.put(c + 1, (self.q[k] / kf) as f32);
             c += 2;
-            for &x in &net.apps[k].lines {
-                rows.put(c, mean(self.line_p[k][x]));
+            for j in 0..self.lines[k].len() {
+                rows.put(c, (self.line_p[k][self.lines[k][j]] / kf) as f32);
                 c += 1;
             }
-            let st = self.held_state(k, walk.state[k]);
+            let st = self.held_state(k);
             rows.put_state(k, st as u16);
-            if rows.soc[k] {
-                let soc = timelines[k].level_at(walk.pos[k], step + 1);
-                rows.put(c, soc.unwrap_or(0.0) as f32);
+            if let Some(tl) = self.stores[k] {
+                rows.put(c, self.soc(tl, walk, k, step));
                 c += 1;
             }
             self.reset(k);
@@ -653,12 +710,16 @@ impl IntervalSums {
         rows.end_row();
     }
 
+    /// A store's state of charge at the end of the interval that closes at
+    /// `step`.
+    fn soc(&self, timeline: &Timeline, walk: &Walk, k: usize, step: u64) -> f32 {
+        let soc = timeline.level_at(walk.pos[k], step + 1);
+        soc.unwrap_or(0.0) as f32
+    }
+
     /// The state load `k` held for the greater part of the interval (the
     /// lower one on a tie); its counts start again from zero.
-    fn held_state(&mut self, k: usize, now: usize) -> usize {
-        if self.k_int <= 1 {
-            return now;
-        }
+    fn held_state(&mut self, k: usize) -> usize {
         let ms = self.max_states;
         let occ = &mut self.occupancy[k * ms..(k + 1) * ms];
         let best = (0..ms)
