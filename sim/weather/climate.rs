@@ -49,14 +49,16 @@ pub struct Named {
 const F: fn(f64) -> f64 = |f| (f - 32.0) * 5.0 / 9.0;
 
 fn lakeshore() -> Climate {
-    // NOAA NCEI U.S. Climate Normals 1991–2020, a Great Lakes airport
-    // station (monthly mean temperature, °F), from memory.
+    // NOAA NCEI U.S. Climate Normals 1991–2020 of Chicago O'Hare, as the
+    // National Weather Service office Chicago tabulates them ("Chicago
+    // Monthly and Yearly Normals (1991-2020)", weather.gov/lot): monthly
+    // mean temperature, °F.
     let f = [
-        25.2, 28.8, 39.0, 49.7, 60.6, 70.6, 75.4, 73.9, 66.4, 53.8, 41.1, 30.5,
+        25.2, 28.8, 39.0, 49.7, 60.6, 70.6, 75.4, 73.8, 66.3, 54.0, 41.3, 30.5,
     ];
     Climate {
         monthly_mean_c: f.map(F),
-        daily_swing_k: 9.0, // same normals: mean max − mean min, 7 K in January to 10 K in July, from memory
+        daily_swing_k: 9.0, // same table: mean high − mean low, 7.1 K in January to 10.1 K in July, 9.2 K over the year
         spread_k: (5.5, 2.8), // from memory (continental winters: cold outbreaks)
         persistence: 0.7,   // lag-1 autocorrelation of daily mean departures, from memory
     }
@@ -64,7 +66,9 @@ fn lakeshore() -> Climate {
 
 fn harbour() -> Climate {
     // NOAA NCEI U.S. Climate Normals 1991–2020, a Mid-Atlantic coastal city
-    // park station (monthly mean temperature, °F), from memory.
+    // park station (monthly mean temperature, °F), from memory (January to
+    // March agree with New York Central Park's 1991–2020 normals; the rest
+    // not checked).
     let f = [
         33.7, 35.9, 42.8, 53.7, 63.2, 72.0, 77.5, 76.1, 69.2, 57.9, 48.0, 38.1,
     ];
@@ -78,10 +82,13 @@ fn harbour() -> Climate {
 
 fn rhineland() -> Climate {
     // Deutscher Wetterdienst, area mean of Germany, reference period
-    // 1991–2020 (monthly mean temperature, °C), from memory.
+    // 1991–2020 (monthly mean temperature, °C; annual 9.3 °C in DWD's
+    // "Deutschlandwetter im Jahr 2023"). The monthly values as republished
+    // from DWD's 1 km grid by monatsprognose.de and
+    // wetterprognose-wettervorhersage.de (DWD's own table not consulted).
     Climate {
         monthly_mean_c: [
-            0.9, 1.5, 4.7, 9.0, 13.1, 16.4, 18.3, 17.9, 13.9, 9.4, 4.9, 1.9,
+            0.9, 1.5, 4.7, 9.0, 13.1, 16.4, 18.3, 17.9, 13.8, 9.4, 4.8, 1.8,
         ],
         daily_swing_k: 8.0, // DWD station normals, mean max − mean min, from memory
         spread_k: (4.5, 2.8), // from memory
@@ -95,12 +102,13 @@ pub const NAMED: [Named; 3] = [
         name: "lakeshore",
         about: "cold continental winters, warm humid summers (Great Lakes)",
         climate: lakeshore,
-        source: "NOAA NCEI U.S. Climate Normals 1991-2020, Great Lakes airport station",
-        // 6 300 °F·d base 65 °F, from memory.
+        source: "NOAA NCEI U.S. Climate Normals 1991-2020, Chicago O'Hare (NWS Chicago's table)",
+        // 5 974 °F·d base 65 °F: the annual heating degree days of the same
+        // NWS Chicago table.
         normal: DegreeDays {
             base_c: 18.333,
-            heating_kd: 6300.0 * 5.0 / 9.0,
-            source: "NOAA NCEI 1991-2020 normals: about 6300 heating degree days (base 65 F), from memory",
+            heating_kd: 5974.0 * 5.0 / 9.0,
+            source: "NOAA NCEI 1991-2020 normals, Chicago O'Hare: 5974 heating degree days (base 65 F), NWS Chicago's monthly and yearly normals table",
         },
     },
     Named {

@@ -192,15 +192,21 @@ def test_heat_pump_input_at_its_rating_points_follows_the_published_curve(tmp_pa
         assert np.abs(on / expected - 1).max() < 0.01, (level, on.mean(), expected)
 
 
-# Published normals, typed here from the sources (from memory).
+# Published normals, typed here from the sources named beside each.
 NORMALS = {
-    # NOAA NCEI 1991-2020 monthly normals, Great Lakes airport (°F); HDD base 65 °F.
-    "lakeshore": ([25.2, 28.8, 39.0, 49.7, 60.6, 70.6, 75.4, 73.9, 66.4, 53.8, 41.1, 30.5], "F", 6300, "America/Chicago"),
-    # NOAA NCEI 1991-2020, Mid-Atlantic city park station (°F); HDD base 65 °F.
+    # NOAA NCEI 1991-2020 monthly normals of Chicago O'Hare (°F) and their
+    # annual heating degree days, base 65 °F: National Weather Service
+    # Chicago, "Chicago Monthly and Yearly Normals (1991-2020)".
+    "lakeshore": ([25.2, 28.8, 39.0, 49.7, 60.6, 70.6, 75.4, 73.8, 66.3, 54.0, 41.3, 30.5], "F", 5974, "America/Chicago"),
+    # NOAA NCEI 1991-2020, Mid-Atlantic city park station (°F); HDD base
+    # 65 °F. From memory (January to March agree with New York Central
+    # Park's 1991-2020 normals).
     "harbour": ([33.7, 35.9, 42.8, 53.7, 63.2, 72.0, 77.5, 76.1, 69.2, 57.9, 48.0, 38.1], "F", 4600, "America/New_York"),
-    # Deutscher Wetterdienst, German area mean 1991-2020 (°C); Eurostat HDD
-    # (base 18 °C, days under 15 °C), Germany.
-    "rhineland": ([0.9, 1.5, 4.7, 9.0, 13.1, 16.4, 18.3, 17.9, 13.9, 9.4, 4.9, 1.9], "C", 3100, "Europe/Berlin"),
+    # Deutscher Wetterdienst, German area mean 1991-2020 (°C; as
+    # republished from DWD's grid by monatsprognose.de and
+    # wetterprognose-wettervorhersage.de); Eurostat HDD (base 18 °C, days
+    # under 15 °C), Germany, from memory.
+    "rhineland": ([0.9, 1.5, 4.7, 9.0, 13.1, 16.4, 18.3, 17.9, 13.8, 9.4, 4.8, 1.8], "C", 3100, "Europe/Berlin"),
 }
 
 
