@@ -8,18 +8,13 @@
 use loadloom::sun::position::sunrise_sunset;
 use loadloom::sun::Site;
 
+#[path = "support/args.rs"]
+mod args;
+
 fn main() {
-    let args: Vec<f64> = std::env::args()
-        .skip(1)
-        .map(|a| a.parse::<f64>())
-        .collect::<Result<_, _>>()
-        .unwrap_or_else(|e| {
-            eprintln!("error: every argument is a number ({e})");
-            std::process::exit(2)
-        });
-    let [lat, lon, ref instants @ ..] = args[..] else {
-        eprintln!("usage: sun_days LAT LON MS...");
-        std::process::exit(2)
+    let numbers = args::numbers();
+    let [lat, lon, ref instants @ ..] = numbers[..] else {
+        args::usage("sun_days LAT LON MS...")
     };
     let site = Site {
         latitude_deg: lat,

@@ -7,18 +7,15 @@
 use loadloom::sun::pvwatts::{Array, DEFAULT_LOSSES, ROOF_MOUNT, STANDARD_GAMMA};
 use loadloom::sun::{decompose, plane_of_array, position, Light, Site, Surface};
 
+#[path = "support/args.rs"]
+mod args;
+
 fn main() {
-    let args: Vec<f64> = std::env::args()
-        .skip(1)
-        .map(|a| a.parse::<f64>())
-        .collect::<Result<_, _>>()
-        .unwrap_or_else(|e| {
-            eprintln!("error: every argument is a number ({e})");
-            std::process::exit(2)
-        });
-    let [lat, lon, tilt, az, albedo, start, step, rows, dc, ac, air, wind] = args[..] else {
-        eprintln!("usage: sun_table LAT LON TILT AZIMUTH ALBEDO START_MS STEP_S ROWS DC_W AC_W AIR_C WIND");
-        std::process::exit(2)
+    let numbers = args::numbers();
+    let [lat, lon, tilt, az, albedo, start, step, rows, dc, ac, air, wind] = numbers[..] else {
+        args::usage(
+            "sun_table LAT LON TILT AZIMUTH ALBEDO START_MS STEP_S ROWS DC_W AC_W AIR_C WIND",
+        )
     };
     let site = Site {
         latitude_deg: lat,

@@ -144,6 +144,18 @@ pub struct RungResult {
     pub scores: Vec<(String, Result<Report, String>)>,
 }
 
+impl RungResult {
+    /// The rung with the same failure for every solver: its file could
+    /// not be written or simulated, so no solver ran.
+    fn failed(mut self, solvers: &[Solver], m: &scenario::Error) -> RungResult {
+        self.scores = solvers
+            .iter()
+            .map(|x| (x.describe(), Err(one_line(m))))
+            .collect();
+        self
+    }
+}
+
 /// An error as one line of a report: what, where, and its causes.
 fn one_line(e: &scenario::Error) -> String {
     let mut line = format!("{} ({})", e.message, e.file.display());
@@ -293,13 +305,7 @@ fn run_rung(
     };
     let (file, s) = match write_rung(r, k, home, out, solvers, p) {
         Ok(x) => x,
-        Err(m) => {
-            res.scores = solvers
-                .iter()
-                .map(|x| (x.describe(), Err(one_line(&m))))
-                .collect();
-            return Ok(res);
-        }
+        Err(m) => return Ok(res.failed(solvers, &m)),
     };
     let dir = file.parent().expect("in its folder").to_path_buf();
     res.dir = dir.clone();
@@ -308,13 +314,7 @@ fn run_rung(
     // with every load on one line, say) is reported, and the ladder goes on.
     let prep = match crate::roundtrip::prepare(&s, &dir, p) {
         Ok(prep) => prep,
-        Err(m) => {
-            res.scores = solvers
-                .iter()
-                .map(|x| (x.describe(), Err(one_line(&m))))
-                .collect();
-            return Ok(res);
-        }
+        Err(m) => return Ok(res.failed(solvers, &m)),
     };
     let outcomes = crate::roundtrip::board(&prep, solvers, p.limit, &p.allow_read, &mut |_, _| {})?;
     let manifest: Value = std::fs::read_to_string(prep.dataset.join("manifest.json"))

@@ -174,16 +174,18 @@ pub fn decode_pv(
     })?;
     let id = id_of(ctx, &t, "pv")?;
     let label = t.string("label")?.unwrap_or("Rooftop PV").to_string();
-    let dc_w = t.positive("dc", QuantityKind::Power)?;
-    let ac_w = t.positive("inverter", QuantityKind::Power)?;
-    let (Some(dc_w), Some(ac_w)) = (dc_w, ac_w) else {
-        return Err(ctx.err(
-            node,
-            "pv",
-            "a PV system needs its array's DC nameplate and its inverter's AC rating",
-            "write e.g. dc = \"7.2 kW\" and inverter = \"6 kW\"",
-        ));
-    };
+    let (dc_w, ac_w) = required_pair(
+        ctx,
+        node,
+        &t,
+        "pv",
+        [
+            ("dc", QuantityKind::Power),
+            ("inverter", QuantityKind::Power),
+        ],
+        "a PV system needs its array's DC nameplate and its inverter's AC rating",
+        "write e.g. dc = \"7.2 kW\" and inverter = \"6 kW\"",
+    )?;
     let wiring = inverter_wiring(ctx, &t, home)?;
     let gamma = match choice(ctx, &t, "module", &["standard", "premium", "thin-film"])? {
         Some(m) => MODULES.iter().find(|(n, _)| *n == m).map_or(0.0, |x| x.1),
@@ -244,21 +246,43 @@ fn number_or_angle_tilt(ctx: &Reader, t: &TableReader) -> Result<f64, Error> {
     Ok(tilt)
 }
 
+/// The two positive quantities a section cannot do without (`keys`, each
+/// with its kind), read from `t`, the table of section `name` at `node`;
+/// without either, the error `what` with the fix `help`, at the section.
+fn required_pair(
+    ctx: &Reader,
+    node: &Node,
+    t: &TableReader,
+    name: &str,
+    keys: [(&'static str, QuantityKind); 2],
+    what: &str,
+    help: &str,
+) -> Result<(f64, f64), Error> {
+    let first = t.positive(keys[0].0, keys[0].1)?;
+    let second = t.positive(keys[1].0, keys[1].1)?;
+    match (first, second) {
+        (Some(a), Some(b)) => Ok((a, b)),
+        _ => Err(ctx.err(node, name, what, help)),
+    }
+}
+
 /// `[battery]`: capacity, power limit, efficiency, and where it is wired.
 pub fn decode_battery(ctx: &Reader, node: &Node, home: &Home) -> Result<Appliance, Error> {
     let t = TableReader::rebase(ctx.table(node, "battery")?, "battery".into());
     let id = id_of(ctx, &t, "battery")?;
     let label = t.string("label")?.unwrap_or("Home battery").to_string();
-    let capacity = t.positive("capacity", QuantityKind::Energy)?;
-    let power = t.positive("power", QuantityKind::Power)?;
-    let (Some(capacity_j), Some(power_w)) = (capacity, power) else {
-        return Err(ctx.err(
-            node,
-            "battery",
-            "a battery needs its usable capacity and its power limit",
-            "write e.g. capacity = \"13.5 kWh\" and power = \"5 kW\"",
-        ));
-    };
+    let (capacity_j, power_w) = required_pair(
+        ctx,
+        node,
+        &t,
+        "battery",
+        [
+            ("capacity", QuantityKind::Energy),
+            ("power", QuantityKind::Power),
+        ],
+        "a battery needs its usable capacity and its power limit",
+        "write e.g. capacity = \"13.5 kWh\" and power = \"5 kW\"",
+    )?;
     let share = |key: &'static str, default: f64| -> Result<f64, Error> {
         match t.non_negative(key, QuantityKind::Fraction)? {
             Some(x) if x > 1.0 => Err(ctx.err(

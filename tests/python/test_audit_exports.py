@@ -11,57 +11,16 @@ local times by `idxmax`, the loads running then against the simulator's
 per-appliance truth, and the neutral against its measured current
 (Kirchhoff's current law: the neutral returns minus the sum of the line
 currents)."""
-import json
 
-import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 
+from audit_home import SHORT_ENTRIES, audit, four_load_home, report
 from conftest import loadloom
 
 TZ = "America/Chicago"
-
-# An invented home over the US autumn change (2027-11-07 02:00 CDT goes back
-# to 01:00 CST: 01:00–01:59 happens twice).
-HOME = """
-[home]
-supply = "split-phase"
-timezone = "America/Chicago"
-service = "{service}"
-[run]
-start = "2027-11-06T00:00"
-length = "{length}"
-seed = 11
-[meter]
-interval = "10 s"
-
-[[appliance]]
-id = "water_heater"
-template = "water_heater"
-
-[[appliance]]
-id = "kettle"
-template = "kettle"
-wiring = "L2-N"
-use = {{ starts_per_day = 6, weekend_starts_per_day = 6, hours = "0-24" }}
-
-[[appliance]]
-id = "toaster"
-wiring = "L1-N"
-load = "resistive"
-behaviour = "cycle"
-states = [ {{ name = "off", power = "0 W", dwell = {{ median = "40 min", spread = 0.4 }} }}, {{ name = "on", power = "900 W", dwell = {{ median = "5 min", spread = 0.4 }} }} ]
-
-[[appliance]]
-id = "pump"
-wiring = "L1-L2"
-load = "motor"
-behaviour = "cycle"
-states = [ {{ name = "off", power = "0 W", dwell = {{ median = "40 min", spread = 0.4 }} }}, {{ name = "on", power = "1100 W", pf = 0.8, dwell = {{ median = "5 min", spread = 0.4 }} }} ]
-{extra}
-"""
 
 DECLARED = """
 [home]
@@ -70,51 +29,22 @@ timezone = "America/Chicago"
 service = "{service}"
 {metering}
 
-[[appliance]]
-id = "water_heater"
-power = "4500 W"
-rated = "240 V"
-wiring = "L1-L2"
+""" + SHORT_ENTRIES
 
-[[appliance]]
-id = "kettle"
-power = "1500 W"
-wiring = "L2-N"
-
-[[appliance]]
-id = "toaster"
-power = "900 W"
-wiring = "L1-N"
-
-[[appliance]]
-id = "pump"
-power = "1100 W"
-pf = 0.8
-wiring = "L1-L2"
-"""
-
-# Which lines each appliance of HOME draws on (its wiring).
+# Which lines each appliance of the home draws on (its wiring).
 LINES_OF = {"water_heater": {"l1", "l2"}, "kettle": {"l2"}, "toaster": {"l1"}, "pump": {"l1", "l2"}}
 
 
 def home(service="100 A", length="2 d", extra=""):
-    return HOME.format(service=service, length=length, extra=extra)
+    """The four-load home over the US autumn change (2027-11-07 02:00 CDT
+    goes back to 01:00 CST: 01:00–01:59 happens twice)."""
+    return four_load_home(service=service, start="2027-11-06T00:00", length=length, seed=11,
+                          interval="10 s", kettle_starts=6, kettle_hours="0-24",
+                          toaster_off="40 min", toaster_on="5 min", extra=extra)
 
 
 def declared(service="100 A", metering=""):
     return DECLARED.format(service=service, metering=metering)
-
-
-def run_audit(data, text, tmp_path, *args):
-    decl = tmp_path / "declared.toml"
-    decl.write_text(text)
-    return loadloom("audit", data, "--declared", decl, *args, check=False)
-
-
-def report(data, text, tmp_path):
-    p = run_audit(data, text, tmp_path, "--json")
-    assert p.returncode == 0, p.stderr
-    return json.loads(p.stdout)
 
 
 def demand_15min(current):
@@ -168,7 +98,7 @@ def test_naive_local_times_across_the_autumn_change_read_as_the_same_instants(si
         assert got["peak_time_local"] == local(cur.idxmax())
         assert got["demand_15min_a"] == pytest.approx(demand_15min(cur), rel=1e-9)
         assert got["mean_a"] == pytest.approx(cur.mean(), rel=1e-9)
-    out = run_audit(tmp_path / "export.csv", declared(), tmp_path).stdout
+    out = audit(tmp_path / "export.csv", declared(), tmp_path).stdout
     assert "unity power factor" in out and "not an inspection" in out
 
 
@@ -220,7 +150,7 @@ SPRING = "time,l1_p_w,l2_p_w\n2027-03-14 01:59:50,100,200\n2027-03-14 02:00:00,1
 def test_a_bad_export_is_refused_with_its_place_and_fix(tmp_path, name, text, says):
     f = tmp_path / name
     f.write_text(text)
-    p = run_audit(f, declared(), tmp_path)
+    p = audit(f, declared(), tmp_path)
     assert p.returncode == 2 and p.stdout == "", (p.returncode, p.stdout)
     assert name in p.stderr and "help" in p.stderr, p.stderr
     for s in says:
@@ -232,7 +162,7 @@ def test_a_naive_parquet_in_the_spring_gap_is_refused(tmp_path):
         "time": pa.array(pd.to_datetime(["2027-03-14 01:59:50", "2027-03-14 02:00:00"]), pa.timestamp("ms")),
         "l1_p_w": [100.0, 100.0], "l2_p_w": [200.0, 200.0]})
     pq.write_table(t, tmp_path / "gap.parquet")
-    p = run_audit(tmp_path / "gap.parquet", declared(), tmp_path)
+    p = audit(tmp_path / "gap.parquet", declared(), tmp_path)
     assert p.returncode == 2 and p.stdout == ""
     assert "gap.parquet" in p.stderr and "row 1" in p.stderr and "skipped" in p.stderr, p.stderr
 
@@ -253,7 +183,7 @@ def test_the_loading_picture_follows_the_declared_metering(simulate, tmp_path):
     assert lines["l1"]["peak_a"] == pytest.approx(m["l2_i_a"].max(), rel=1e-6)
     assert lines["l2"]["peak_a"] == pytest.approx(m["l1_i_a"].max(), rel=1e-6)
     assert r["loading"]["neutral_peak_estimated_a"] == pytest.approx(m["n_i_a"].max(), rel=0.02)
-    text = run_audit(d, declared(metering=metering), tmp_path).stdout
+    text = audit(d, declared(metering=metering), tmp_path).stdout
     assert "L1 (channel l2)" in text
 
 
@@ -281,7 +211,7 @@ def test_a_channel_declared_without_a_ct_is_not_measured_and_not_summed(simulate
     assert lines["l1"]["measured"] is True
     assert r["loading"]["neutral_peak_estimated_a"] is None
     for form in [(), ("--markdown",)]:
-        out = run_audit(d, declared(metering=metering), tmp_path, *form).stdout
+        out = audit(d, declared(metering=metering), tmp_path, *form).stdout
         assert "L2: not measured" in out and "not estimated" in out and "not an inspection" in out
 
 
@@ -321,7 +251,7 @@ def test_a_15_minute_demand_above_the_rating_is_flagged_in_every_form(simulate, 
     q = idx["l1_i_a"].astype(float).resample("15min").mean().idxmax()
     assert l1["demand_quarter_local"] == local(q)
     for form in [(), ("--markdown",)]:
-        out = run_audit(d, decl, tmp_path, *form).stdout
+        out = audit(d, decl, tmp_path, *form).stdout
         assert "L1: the 15-minute demand" in out and "above the service rating of 20 A" in out
         assert "not an inspection" in out and "licensed electrician" in out
     assert "not an inspection" in r["caution"]
@@ -387,7 +317,7 @@ def test_a_bad_short_state_is_refused_with_its_place(tmp_path, entry, says):
     text = f'[home]\nsupply = "split-phase"\ntimezone = "UTC"\n[[appliance]]\nid = "h"\nwiring = "L1-N"\n{entry}\n'
     data = tmp_path / "m.csv"
     data.write_text("time,l1_p_w,l2_p_w\n2027-01-04T00:00:00Z,1,2\n2027-01-04T00:00:10Z,1,2\n")
-    p = run_audit(data, text, tmp_path)
+    p = audit(data, text, tmp_path)
     assert p.returncode == 2 and p.stdout == ""
     assert "declared.toml:" in p.stderr and says in p.stderr, p.stderr
 

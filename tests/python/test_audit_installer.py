@@ -4,50 +4,12 @@ meters with real power only, an undeclared load of a declared appliance's
 size, channels exchanged against several appliances moved. Each case is
 simulated (the truth is what the scenario says) and audited with the
 release binary."""
-import json
 
 import pyarrow.parquet as pq
 import pytest
 
+from audit_home import SHORT_ENTRIES, audit, four_load_home, report
 from conftest import loadloom
-
-HOME = """
-[home]
-supply = "split-phase"
-timezone = "America/Chicago"
-service = "100 A"
-[run]
-start = "2027-01-04T00:00"
-length = "2 d"
-seed = 5
-[meter]
-interval = "{interval}"
-
-[[appliance]]
-id = "water_heater"
-template = "water_heater"
-
-[[appliance]]
-id = "kettle"
-template = "kettle"
-wiring = "L2-N"
-use = {{ starts_per_day = 5, weekend_starts_per_day = 5, hours = "6-22" }}
-
-[[appliance]]
-id = "toaster"
-wiring = "L1-N"
-load = "resistive"
-behaviour = "cycle"
-states = [ {{ name = "off", power = "0 W", dwell = {{ median = "50 min", spread = 0.4 }} }}, {{ name = "on", power = "900 W", dwell = {{ median = "4 min", spread = 0.4 }} }} ]
-
-[[appliance]]
-id = "pump"
-wiring = "L1-L2"
-load = "motor"
-behaviour = "cycle"
-states = [ {{ name = "off", power = "0 W", dwell = {{ median = "40 min", spread = 0.4 }} }}, {{ name = "on", power = "1100 W", pf = 0.8, dwell = {{ median = "5 min", spread = 0.4 }} }} ]
-{extra}
-"""
 
 HEADER = """
 [home]
@@ -56,45 +18,13 @@ timezone = "America/Chicago"
 service = "100 A"
 """
 
-SHORT = HEADER + """
-[[appliance]]
-id = "water_heater"
-power = "4500 W"
-rated = "240 V"
-wiring = "L1-L2"
-
-[[appliance]]
-id = "kettle"
-power = "1500 W"
-wiring = "L2-N"
-
-[[appliance]]
-id = "toaster"
-power = "900 W"
-wiring = "L1-N"
-
-[[appliance]]
-id = "pump"
-power = "1100 W"
-pf = 0.8
-wiring = "L1-L2"
-"""
+SHORT = HEADER + "\n" + SHORT_ENTRIES
 
 
 def home(interval="1 s", extra=""):
-    return HOME.format(interval=interval, extra=extra)
-
-
-def audit(data, text, tmp_path, *args):
-    decl = tmp_path / "declared.toml"
-    decl.write_text(text)
-    return loadloom("audit", data, "--declared", decl, "--json", *args, check=False)
-
-
-def report(data, text, tmp_path):
-    p = audit(data, text, tmp_path)
-    assert p.returncode == 0, p.stderr
-    return json.loads(p.stdout)
+    return four_load_home(service="100 A", start="2027-01-04T00:00", length="2 d", seed=5,
+                          interval=interval, kettle_starts=5, kettle_hours="6-22",
+                          toaster_off="50 min", toaster_on="4 min", extra=extra)
 
 
 def kinds(r):
@@ -133,7 +63,7 @@ def test_short_entries_are_a_complete_declaration(simulate, tmp_path):
 def test_a_bad_short_entry_is_refused_with_its_place(simulate, tmp_path, entry, where, says):
     d = simulate(home())
     text = SHORT.replace('power = "1500 W"\nwiring = "L2-N"', entry)
-    p = audit(d, text, tmp_path)
+    p = audit(d, text, tmp_path, "--json")
     assert p.returncode == 2 and p.stdout == ""
     assert where in p.stderr and says in p.stderr, p.stderr
 
