@@ -5,7 +5,8 @@ use super::{print, CommandResult, Error};
 use loadloom::audit::{load_declaration, MatrixOptions};
 use loadloom::matrix;
 use loadloom::progress::Progress;
-use solver_check::audit::{audit, loading};
+use solver_check::audit::check::Thresholds;
+use solver_check::audit::{audit_with, loading};
 use solver_check::render::ReportForm;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -24,9 +25,14 @@ pub struct Args {
     /// loading picture is printed.
     #[arg(long, value_name = "DECLARED.toml")]
     declared: Option<PathBuf>,
+    /// Decide by another value of one of the audit's cut-offs: NAME=VALUE,
+    /// e.g. possible=0.7 (repeatable; README, "Wiring audit", lists them);
+    /// the report names those that differ from the standard ones.
+    #[arg(long, value_name = "NAME=VALUE", requires = "declared")]
+    cutoff: Vec<String>,
     /// Run the fault matrix instead: inject known mistakes into the demo
     /// scenarios, simulate, audit, and print recall and false alarms.
-    #[arg(long, conflicts_with_all = ["dataset", "declared"])]
+    #[arg(long, conflicts_with_all = ["dataset", "declared", "cutoff"])]
     matrix: bool,
     /// Matrix: folder whose *.toml scenarios are the homes.
     #[arg(long, default_value = "scenarios", requires = "matrix")]
@@ -70,8 +76,12 @@ pub fn main(a: Args) -> CommandResult {
         }
         return Ok(ExitCode::SUCCESS);
     };
+    let th = Thresholds::with_settings(&a.cutoff).map_err(|e| {
+        let given: Vec<String> = a.cutoff.iter().map(|c| format!("--cutoff {c}")).collect();
+        Error::option(&given.join(" "), e.message, e.help)
+    })?;
     let d = load_declaration(declared)?;
-    print(&audit(dataset, &d)?, form);
+    print(&audit_with(dataset, &d, &th)?, form);
     Ok(ExitCode::SUCCESS)
 }
 

@@ -23,7 +23,7 @@ use crate::dataset::Dataset;
 use crate::diagnostic::Error;
 use crate::render::Render;
 use crate::stream::{header, Header};
-use check::Outcome;
+use check::{Outcome, Thresholds};
 use decl::Declared;
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
@@ -62,6 +62,8 @@ pub struct Audit {
     pub outcome: Outcome,
     /// The declaration as read.
     pub declared: Declared,
+    /// The cut-offs the checks decided by.
+    pub thresholds: Thresholds,
 }
 
 /// Line channels in a meters table: `l1`, `l2`, … in order, as long as
@@ -237,6 +239,12 @@ fn detect(h: &Header, m: &Measured, angles: &[f64]) -> Result<Detected, Error> {
 /// A declaration is read with `loadloom::audit::load_declaration`, whose
 /// documentation shows a whole audit (a wiring mistake, found).
 pub fn audit(data: &Path, d: &Declared) -> Result<Audit, Error> {
+    audit_with(data, d, &Thresholds::STANDARD)
+}
+
+/// [`audit`], deciding by the cut-offs `th` (the report lists those that
+/// differ from the standard ones).
+pub fn audit_with(data: &Path, d: &Declared, th: &Thresholds) -> Result<Audit, Error> {
     if data.is_dir() {
         Dataset::open(data)?;
     }
@@ -255,7 +263,7 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, Error> {
         d.real_power_only()
     };
     let (evs, stats, interval_s, rows, clock) = detect(&h, &m, d.supply.angles_deg())?;
-    let mut outcome = check::check(d, &evs, &stats, interval_s);
+    let mut outcome = check::check_with(d, &evs, &stats, interval_s, th);
     outcome
         .notes
         .extend(measured_notes(m.with_q, m.with_v.iter().any(|v| *v)));
@@ -272,6 +280,7 @@ pub fn audit(data: &Path, d: &Declared) -> Result<Audit, Error> {
         loading,
         outcome,
         declared: d.clone(),
+        thresholds: *th,
     })
 }
 
@@ -416,6 +425,24 @@ impl Audit {
             .collect()
     }
 
+    /// The cut-offs set otherwise than the standard ones, in words.
+    fn cutoffs_text(&self) -> Option<String> {
+        let changed = self.thresholds.changed();
+        (!changed.is_empty()).then(|| {
+            let list: Vec<String> = changed
+                .iter()
+                .map(|c| {
+                    let v = c.of(&self.thresholds);
+                    format!("{} = {v} (standard {})", c.name, c.standard())
+                })
+                .collect();
+            format!(
+                "cut-offs changed from the standard ones: {}; findings and verdicts differ from a standard audit's",
+                list.join(", ")
+            )
+        })
+    }
+
     fn findings_text(&self, bullet: &str) -> String {
         let f = &self.outcome.findings;
         let mut o = if f.is_empty() {
@@ -469,6 +496,9 @@ impl Audit {
             }
         }
         o += &format!("{CONFIDENCE}\n");
+        if let Some(c) = self.cutoffs_text() {
+            o += &format!("{bullet}{c}\n");
+        }
         for n in &self.outcome.notes {
             o += &format!("{bullet}note: {n}\n");
         }
@@ -493,6 +523,7 @@ impl Render for Audit {
             "findings": self.outcome.findings.iter().map(finding_json).collect::<Vec<_>>(),
             "possible": self.outcome.possible.iter().map(finding_json).collect::<Vec<_>>(),
             "possible_below": self.outcome.possible_below,
+            "cutoffs_changed": self.thresholds.changed().iter().map(|c| json!({ "name": c.name, "value": c.of(&self.thresholds), "standard": c.standard(), "meaning": c.meaning })).collect::<Vec<_>>(),
             "unlisted_loads": self.outcome.unlisted.iter().map(finding_json).collect::<Vec<_>>(),
             "appliances": self.outcome.appliances.iter().map(|a| json!({ "id": a.id, "declared": a.declared, "verdict": a.verdict.name(), "seen": a.seen, "reason": a.reason, "steps_as_declared": a.steps_declared, "steps_best_other": a.steps_best_other })).collect::<Vec<_>>(),
             "steps": { "used": self.outcome.steps, "explained": self.outcome.steps_explained },

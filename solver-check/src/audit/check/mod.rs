@@ -38,7 +38,7 @@ pub use finding::{Finding, Kind, Verdict};
 pub use fit::{connection_of, TOL_ABS_V_W, TOL_ABS_W, TOL_REL, TOL_REL_V, USE_STEP};
 pub use metering::{declared_metering, ChanMap, Metering};
 pub use placement::{indistinct, uncheckable, uncheckable_in, ApplianceCheck};
-pub use thresholds::Thresholds;
+pub use thresholds::{Cutoff, CutoffError, Thresholds, CUTOFFS};
 
 use crate::audit::decl::Declared;
 use crate::audit::events::{ChannelStats, Event};

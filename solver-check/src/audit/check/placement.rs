@@ -89,15 +89,19 @@ pub(super) fn kind_of(decl: &DeclAppliance, seen: &DeclAppliance) -> Kind {
 /// Why an appliance cannot be checked from the declaration alone, if so:
 /// no fixed step, or a step too small. (Used to pick fault-matrix targets.)
 pub fn uncheckable(a: &DeclAppliance) -> Option<String> {
+    uncheckable_below(a, Thresholds::STANDARD.decide_w)
+}
+
+/// [`uncheckable`], with `decide_w` the size the audit decides on.
+fn uncheckable_below(a: &DeclAppliance, decide_w: f64) -> Option<String> {
     match &a.steps {
         crate::audit::decl::Steps::None(why) => Some((*why).into()),
         crate::audit::decl::Steps::Wanders { jumps, .. } if jumps.is_empty() => {
             Some("its power wanders continuously".into())
         }
-        _ if a.largest_step_w() < Thresholds::STANDARD.decide_w => Some(format!(
-            "its largest step, {:.0} W, is below the {:.0} W the audit decides on",
+        _ if a.largest_step_w() < decide_w => Some(format!(
+            "its largest step, {:.0} W, is below the {decide_w:.0} W the audit decides on",
             a.largest_step_w(),
-            Thresholds::STANDARD.decide_w
         )),
         _ => None,
     }
@@ -110,7 +114,7 @@ pub fn uncheckable(a: &DeclAppliance) -> Option<String> {
 /// decides on, but it is 1 kW (or 750 W at 208 V) across two lines, where
 /// the steps of a heater misdeclared so show.
 pub fn uncheckable_in(d: &Declared, a: &DeclAppliance, th: &Thresholds) -> Option<String> {
-    let why = uncheckable(a)?;
+    let why = uncheckable_below(a, th.decide_w)?;
     if a.steps.jumps().is_empty() {
         return Some(why);
     }

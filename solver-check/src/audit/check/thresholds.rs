@@ -1,8 +1,8 @@
 //! Every cut-off the audit decides by, in one value.
 
 /// Every cut-off the checks decide by, in one value: `Thresholds::STANDARD`
-/// is what `loadloom audit` applies; the validation may try others
-/// (`check_with`).
+/// is what `loadloom audit` applies unless `--cutoff NAME=VALUE` sets one
+/// ([`CUTOFFS`] names them); a validation may sweep them (`check_with`).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Thresholds {
     /// Findings below this confidence are listed apart as "possible". A
@@ -80,4 +80,238 @@ impl Thresholds {
         coarse_interval_s: 30.0,
         decide_w: 300.0,
     };
+}
+
+/// One cut-off as the command line names it (`--cutoff NAME=VALUE`), with
+/// what it means in one line and the values it may take.
+pub struct Cutoff {
+    /// Its name: the field of [`Thresholds`] it sets.
+    pub name: &'static str,
+    /// What it decides, in one line (listed in errors and the README).
+    pub meaning: &'static str,
+    /// Smallest and largest value it may take.
+    pub range: (f64, f64),
+    /// Whether it is a count (a whole number).
+    pub count: bool,
+    get: fn(&Thresholds) -> f64,
+    set: fn(&mut Thresholds, f64),
+}
+
+impl Cutoff {
+    /// Its value in `th`.
+    pub fn of(&self, th: &Thresholds) -> f64 {
+        (self.get)(th)
+    }
+    /// Its value in [`Thresholds::STANDARD`].
+    pub fn standard(&self) -> f64 {
+        self.of(&Thresholds::STANDARD)
+    }
+}
+
+/// Every cut-off of [`Thresholds`], in the order of its fields.
+pub const CUTOFFS: [Cutoff; 10] = [
+    Cutoff {
+        name: "possible",
+        meaning: "confidence below which a finding is listed apart as possible",
+        range: (0.0, 1.0),
+        count: false,
+        get: |t| t.possible,
+        set: |t, v| t.possible = v,
+    },
+    Cutoff {
+        name: "negative_ok",
+        meaning: "largest share of rows with a negative implied conductor power that still counts as a home that only consumes (a metering hypothesis above it is ruled out)",
+        range: (0.0, 1.0),
+        count: false,
+        get: |t| t.negative_ok,
+        set: |t, v| t.negative_ok = v,
+    },
+    Cutoff {
+        name: "coincidence_p",
+        meaning: "chance, under the Poisson rate of coincidences of two declared appliances, below which a cluster of steps is a load of its own",
+        range: (0.0, 1.0),
+        count: false,
+        get: |t| t.coincidence_p,
+        set: |t, v| t.coincidence_p = v,
+    },
+    Cutoff {
+        name: "clearly_better",
+        meaning: "how much better, in tolerances, a step must fit one appliance for another that also fits it not to share it",
+        range: (0.0, 1.0),
+        count: false,
+        get: |t| t.clearly_better,
+        set: |t, v| t.clearly_better = v,
+    },
+    Cutoff {
+        name: "blind_move",
+        meaning: "steps on another wiring, fitting no other appliance, that place an appliance declared through a conductor no working CT reads",
+        range: (0.0, 1e6),
+        count: true,
+        get: |t| t.blind_move as f64,
+        set: |t, v| t.blind_move = v as usize,
+    },
+    Cutoff {
+        name: "seen_where_declared",
+        meaning: "steps where declared from which a move elsewhere is only possible (the steps elsewhere may be another load's)",
+        range: (0.0, 1e6),
+        count: true,
+        get: |t| t.seen_where_declared as f64,
+        set: |t, v| t.seen_where_declared = v as usize,
+    },
+    Cutoff {
+        name: "shows_as_declared",
+        meaning: "steps as declared, each main step size among them, that keep an appliance where declared however many of its size show elsewhere",
+        range: (0.0, 1e6),
+        count: true,
+        get: |t| t.shows_as_declared as f64,
+        set: |t, v| t.shows_as_declared = v as usize,
+    },
+    Cutoff {
+        name: "whole_share",
+        meaning: "share of its largest step from which each step size of a moved appliance must show on its new wiring",
+        range: (0.0, 1.0),
+        count: false,
+        get: |t| t.whole_share,
+        set: |t, v| t.whole_share = v,
+    },
+    Cutoff {
+        name: "coarse_interval_s",
+        meaning: "reporting interval (s) from which placements and undeclared loads are only possible",
+        range: (0.0, 86_400.0),
+        count: false,
+        get: |t| t.coarse_interval_s,
+        set: |t, v| t.coarse_interval_s = v,
+    },
+    Cutoff {
+        name: "decide_w",
+        meaning: "largest step (W, on every connection the appliance could be on) under which an appliance is not placed",
+        range: (0.0, 1e6),
+        count: false,
+        get: |t| t.decide_w,
+        set: |t, v| t.decide_w = v,
+    },
+];
+
+/// Why a cut-off setting was refused: what was wrong, and how to write it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CutoffError {
+    /// What is wrong with the setting.
+    pub message: String,
+    /// How to write it, with every cut-off's name and range.
+    pub help: String,
+}
+
+impl Thresholds {
+    /// The standard cut-offs with each `NAME=VALUE` of `settings` applied,
+    /// in order (a name given twice: the last value counts).
+    pub fn with_settings<S: AsRef<str>>(settings: &[S]) -> Result<Thresholds, CutoffError> {
+        let mut th = Thresholds::STANDARD;
+        for s in settings {
+            th.apply(s.as_ref())?;
+        }
+        Ok(th)
+    }
+
+    /// Applies one `NAME=VALUE` setting.
+    pub fn apply(&mut self, setting: &str) -> Result<(), CutoffError> {
+        let refuse = |message: String| CutoffError {
+            message,
+            help: cutoff_help(),
+        };
+        let (name, value) = setting
+            .split_once('=')
+            .ok_or_else(|| refuse(format!("\"{setting}\" is not NAME=VALUE")))?;
+        let (name, value) = (name.trim(), value.trim());
+        let c = CUTOFFS
+            .iter()
+            .find(|c| c.name == name)
+            .ok_or_else(|| refuse(format!("no cut-off is named \"{name}\"")))?;
+        let v: f64 = value
+            .parse()
+            .map_err(|_| refuse(format!("\"{value}\" is not a number")))?;
+        let (lo, hi) = c.range;
+        if !v.is_finite() || v < lo || v > hi || (c.count && v.fract() != 0.0) {
+            let what = if c.count {
+                "a whole number"
+            } else {
+                "a number"
+            };
+            let message = format!("{name} = {value}: it must be {what} from {lo} to {hi}");
+            return Err(refuse(message));
+        }
+        (c.set)(self, v);
+        Ok(())
+    }
+
+    /// The cut-offs that differ from the standard ones.
+    pub fn changed(&self) -> Vec<&'static Cutoff> {
+        CUTOFFS
+            .iter()
+            .filter(|c| c.of(self) != c.standard())
+            .collect()
+    }
+}
+
+/// How to write a cut-off setting, with every name, its standard value and
+/// its range.
+fn cutoff_help() -> String {
+    let names: Vec<String> = CUTOFFS
+        .iter()
+        .map(|c| {
+            let (lo, hi) = c.range;
+            format!("{} (standard {}, {lo} … {hi})", c.name, c.standard())
+        })
+        .collect();
+    format!(
+        "write NAME=VALUE, e.g. possible=0.7; the cut-offs are: {}",
+        names.join(", ")
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Each name sets its own field and only it; the standard value reads
+    /// back as the standard.
+    #[test]
+    fn each_cutoff_sets_its_own_field() {
+        for c in &CUTOFFS {
+            let mut th = Thresholds::STANDARD;
+            let v = if c.count {
+                7.0
+            } else {
+                c.range.0 + 0.375 * (c.range.1 - c.range.0).min(1.0)
+            };
+            th.apply(&format!("{}={v}", c.name)).unwrap();
+            assert_eq!(c.of(&th), v, "{}", c.name);
+            let changed: Vec<&str> = th.changed().iter().map(|c| c.name).collect();
+            assert_eq!(changed, [c.name]);
+        }
+        assert!(Thresholds::STANDARD.changed().is_empty());
+    }
+
+    /// Unknown names, non-numbers, non-finite, out-of-range and fractional
+    /// counts are refused, naming every cut-off in the help.
+    #[test]
+    fn bad_settings_are_refused_with_the_names() {
+        for bad in [
+            "nope=1",
+            "possible",
+            "possible=x",
+            "possible=NaN",
+            "possible=inf",
+            "possible=1.5",
+            "possible=-0.1",
+            "blind_move=2.5",
+            "decide_w=-1",
+        ] {
+            let e = Thresholds::with_settings(&[bad]).unwrap_err();
+            for c in &CUTOFFS {
+                assert!(e.help.contains(c.name), "{bad}: {}", e.help);
+            }
+        }
+        let th = Thresholds::with_settings(&["possible=0.7", " blind_move = 3 "]).unwrap();
+        assert_eq!((th.possible, th.blind_move), (0.7, 3));
+    }
 }
