@@ -62,10 +62,11 @@ impl Truth {
 }
 
 /// Rows of truth gathered a block at a time before they join the columns
-/// of [`Truth`]: one store per value into a small buffer that stays in the
-/// cache, then a copy of [`BLOCK_ROWS`] consecutive values per column.
-/// Storing each value straight into its own column touches about a hundred
-/// far-apart cache lines per row at one step per interval.
+/// of [`Truth`]: a row is written once into `last`, and each column's run
+/// of repeats is filled in one stroke when the row next changes, so a step
+/// on which nothing was solved costs no stores. Storing each value straight
+/// into its own column touched about a hundred far-apart cache lines per
+/// row at one step per interval.
 struct TruthRows {
     /// `[column * BLOCK_ROWS + row]`, columns in [`Truth`]'s order: per
     /// appliance P, Q, P per line and the state of charge if it has one;
@@ -73,8 +74,18 @@ struct TruthRows {
     values: Vec<f32>,
     /// `[appliance * BLOCK_ROWS + row]`: the state held.
     states: Vec<u16>,
+    /// The latest row: what the rows from `filled` on repeat.
+    last: Vec<f32>,
+    /// The latest row's states.
+    last_states: Vec<u16>,
+    /// Per column: a state of charge, which changes every row and is
+    /// written into `values` at once.
+    direct: Vec<bool>,
     /// Rows in the block so far.
     rows: usize,
+    /// Rows of the block written out; rows `filled..rows` repeat `last`
+    /// (but for the `direct` columns).
+    filled: usize,
 }
 
 /// Rows per block of [`TruthRows`]: a few cache lines per column, and the
@@ -84,28 +95,64 @@ const BLOCK_ROWS: usize = 64;
 
 impl TruthRows {
     fn new(truth: &Truth) -> Self {
-        let columns = 2 * truth.app_p.len()
-            + truth.app_line_p.iter().map(Vec::len).sum::<usize>()
-            + truth.app_soc.iter().flatten().count()
-            + 1;
+        let mut direct = Vec::new();
+        for k in 0..truth.app_p.len() {
+            direct.extend(std::iter::repeat_n(false, 2 + truth.app_line_p[k].len()));
+            if truth.app_soc[k].is_some() {
+                direct.push(true);
+            }
+        }
+        direct.push(false);
+        let apps = truth.app_state.len();
         TruthRows {
-            values: vec![0.0; columns * BLOCK_ROWS],
-            states: vec![0; truth.app_state.len() * BLOCK_ROWS],
+            values: vec![0.0; direct.len() * BLOCK_ROWS],
+            states: vec![0; apps * BLOCK_ROWS],
+            last: vec![0.0; direct.len()],
+            last_states: vec![0; apps],
+            direct,
             rows: 0,
+            filled: 0,
         }
     }
 
+    /// A new row differs from the last: the last one's repeats are written
+    /// out before [`TruthRows::put`] and [`TruthRows::put_state`] replace it.
+    fn change(&mut self) {
+        let (from, to) = (self.filled, self.rows);
+        if from < to {
+            let runs = self.values.chunks_exact_mut(BLOCK_ROWS);
+            for ((run, &v), &direct) in runs.zip(&self.last).zip(&self.direct) {
+                if !direct {
+                    run[from..to].fill(v);
+                }
+            }
+            let runs = self.states.chunks_exact_mut(BLOCK_ROWS);
+            for (run, &st) in runs.zip(&self.last_states) {
+                run[from..to].fill(st);
+            }
+        }
+        self.filled = to;
+    }
+
+    /// Column `column` of the new row (after [`TruthRows::change`]).
     #[inline]
     fn put(&mut self, column: usize, v: f32) {
+        self.last[column] = v;
+    }
+
+    /// The state of appliance `app` in the new row.
+    #[inline]
+    fn put_state(&mut self, app: usize, state: u16) {
+        self.last_states[app] = state;
+    }
+
+    /// A state-of-charge column of the row in progress.
+    #[inline]
+    fn put_direct(&mut self, column: usize, v: f32) {
         self.values[column * BLOCK_ROWS + self.rows] = v;
     }
 
-    #[inline]
-    fn put_state(&mut self, app: usize, state: u16) {
-        self.states[app * BLOCK_ROWS + self.rows] = state;
-    }
-
-    /// Closes the row.
+    /// Closes the row (a repeat of the last unless changed).
     #[inline]
     fn end_row(&mut self) {
         self.rows += 1;
@@ -118,6 +165,7 @@ impl TruthRows {
     /// Appends the block's rows to the columns of `truth`; the block starts
     /// again empty.
     fn drain(&mut self, truth: &mut Truth) {
+        self.change();
         let n = self.rows;
         let mut columns = self.values.chunks_exact(BLOCK_ROWS).map(|c| &c[..n]);
         let mut next = |to: &mut Vec<f32>| to.extend_from_slice(columns.next().expect("a column"));
@@ -134,6 +182,7 @@ impl TruthRows {
             col.extend_from_slice(&self.states[k * BLOCK_ROWS..k * BLOCK_ROWS + n]);
         }
         self.rows = 0;
+        self.filled = 0;
     }
 }
 
@@ -335,7 +384,7 @@ where
             solution.set_source(&f);
         }
         let changed = walk.advance(step, &net, timelines, dt) || step == 0;
-        solution.update(&walk.active, changed, source_moved, step, &mut out)?;
+        let solved = solution.update(&walk.active, changed, source_moved, step, &mut out)?;
         if let Some(rec) = recorder.as_deref_mut() {
             if rec.wants(step) {
                 let ir = walk.inrush_windows(&net);
@@ -349,7 +398,7 @@ where
         sums.add(&out, &mut walk, &mut summary, dt);
         if (step + 1) % k_int == 0 {
             meter.emit(&mut chunk.readings);
-            sums.flush(&mut rows, &out, &walk, step);
+            sums.flush(&mut rows, &out, &walk, step, solved);
             let last = chunk.readings.rows() == chunk_rows || step + 1 == total_steps;
             if rows.full() || last {
                 rows.drain(&mut chunk.truth);
@@ -541,7 +590,8 @@ impl<'a> Solution<'a> {
         }
     }
 
-    /// The step's solution into `out`.
+    /// The step's solution into `out`; true when it was solved again (false:
+    /// `out` holds the last step's solution unchanged).
     #[inline]
     fn update(
         &mut self,
@@ -550,7 +600,7 @@ impl<'a> Solution<'a> {
         source_moved: bool,
         step: u64,
         out: &mut StepOut,
-    ) -> Result<(), Diverged> {
+    ) -> Result<bool, Diverged> {
         let net = self.net;
         // Fixed point of V(I) and I(V): one pass normally; a second when a
         // load switched, so the sag at a switching step is already in it.
@@ -566,8 +616,9 @@ impl<'a> Solution<'a> {
             check_solution(self.s, net, &self.e, active, step, &mut t, out)?;
             self.i_prev = out.i_line;
             self.t_prev = t;
+            return Ok(true);
         }
-        Ok(())
+        Ok(false)
     }
 }
 
@@ -588,11 +639,22 @@ struct IntervalSums<'a> {
     lines: Vec<Vec<usize>>,
     /// Per appliance: its timeline if it is a store (a state-of-charge column).
     stores: Vec<Option<&'a Timeline>>,
+    /// (appliance, truth column) of each state-of-charge column.
+    soc_columns: Vec<(usize, usize)>,
 }
 
 impl<'a> IntervalSums<'a> {
     fn new(net: &Network, k_int: u64, truth: &Truth, timelines: &'a [Timeline]) -> Self {
         let n_apps = net.apps.len();
+        let mut soc_columns = Vec::new();
+        let mut c = 0;
+        for k in 0..truth.app_p.len() {
+            c += 2 + truth.app_line_p[k].len();
+            if truth.app_soc[k].is_some() {
+                soc_columns.push((k, c));
+                c += 1;
+            }
+        }
         let max_states = net.apps.iter().map(|a| a.states.len()).max().unwrap_or(1);
         IntervalSums {
             p: vec![0.0; n_apps],
@@ -609,6 +671,7 @@ impl<'a> IntervalSums<'a> {
                 .zip(timelines)
                 .map(|(soc, tl)| soc.as_ref().map(|_| tl))
                 .collect(),
+            soc_columns,
         }
     }
 
@@ -640,12 +703,16 @@ impl<'a> IntervalSums<'a> {
 
     /// Ends the interval that closes at `step`: each appliance's means and
     /// state into the truth row, the unmetered loads as their sum; the sums
-    /// start again from zero.
-    fn flush(&mut self, rows: &mut TruthRows, out: &StepOut, walk: &Walk, step: u64) {
-        if self.k_int == 1 {
+    /// start again from zero. `solved`: the network was solved this step.
+    fn flush(&mut self, rows: &mut TruthRows, out: &StepOut, walk: &Walk, step: u64, solved: bool) {
+        if self.k_int > 1 {
+            self.flush_means(rows, walk, step);
+        } else if solved {
             self.flush_step(rows, out, walk, step);
         } else {
-            self.flush_means(rows, walk, step);
+            // Neither the powers nor the states moved: the last row again.
+            self.put_socs(rows, walk, step);
+            rows.end_row();
         }
     }
 
@@ -657,6 +724,7 @@ impl<'a> IntervalSums<'a> {
         for k in self.metered..self.p.len() {
             unmetered += 0.0 + out.app_p[k];
         }
+        rows.change();
         let mut c = 0;
         for k in 0..self.metered {
             rows.put(c, (0.0 + out.app_p[k]) as f32);
@@ -667,13 +735,20 @@ impl<'a> IntervalSums<'a> {
                 c += 1;
             }
             rows.put_state(k, walk.state[k] as u16);
-            if let Some(tl) = self.stores[k] {
-                rows.put(c, self.soc(tl, walk, k, step));
-                c += 1;
-            }
+            c += usize::from(self.stores[k].is_some());
         }
         rows.put(c, unmetered as f32);
+        self.put_socs(rows, walk, step);
         rows.end_row();
+    }
+
+    /// The stores' states of charge at the end of the interval that closes
+    /// at `step`, into the row in progress.
+    fn put_socs(&self, rows: &mut TruthRows, walk: &Walk, step: u64) {
+        for &(k, column) in &self.soc_columns {
+            let tl = self.stores[k].expect("a store");
+            rows.put_direct(column, self.soc(tl, walk, k, step));
+        }
     }
 
     /// [`IntervalSums::flush`] over several steps per interval.
@@ -689,6 +764,7 @@ impl<'a> IntervalSums<'a> {
                 .iter_mut()
                 .for_each(|c| *c = 0);
         }
+        rows.change();
         let mut c = 0;
         for k in 0..self.metered {
             rows.put(c, (self.p[k] / kf) as f32);
@@ -700,13 +776,11 @@ impl<'a> IntervalSums<'a> {
             }
             let st = self.held_state(k);
             rows.put_state(k, st as u16);
-            if let Some(tl) = self.stores[k] {
-                rows.put(c, self.soc(tl, walk, k, step));
-                c += 1;
-            }
+            c += usize::from(self.stores[k].is_some());
             self.reset(k);
         }
         rows.put(c, unmetered as f32);
+        self.put_socs(rows, walk, step);
         rows.end_row();
     }
 
