@@ -420,7 +420,7 @@ fn read_wiring(
         let mut choices = Vec::new();
         for c in ctx.array(&e.node, &e.key)? {
             let p = format!("{}.{}", t.path_of("wiring"), e.key);
-            crate::scenario::decode::parse_wiring(ctx, c, &p, kind.supply)?;
+            crate::scenario::values::parse_wiring(ctx, c, &p, kind.supply)?;
             choices.push(ctx.string(c, &p)?.to_string());
         }
         wiring.push((e.key.clone(), choices));

@@ -3,7 +3,7 @@
 //! source.
 
 use super::{print, CommandResult};
-use loadloom::scenario::library::{catalogue, Catalogue};
+use loadloom::scenario::catalogue::{catalogue, Catalogue};
 use solver_check::render::ReportForm;
 use std::process::ExitCode;
 

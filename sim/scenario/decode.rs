@@ -3,11 +3,13 @@
 //! rule checked with its place named.
 
 use super::library;
+
 use super::model::*;
 use super::reader::{Reader, TableReader};
 use super::source::{parse_toml, read_source, At, Entry, Error, Node, Sources, Val};
+use super::values::{check_id, parse_hours, parse_wiring, MAX_NAME_CHARS, RATED_MISMATCH, RATED_V};
 use crate::units::QuantityKind;
-use solver_check::contract::{line_label, WiringError};
+use solver_check::contract::line_label;
 use std::path::{Path, PathBuf};
 
 /// Reads and checks a scenario file (and the templates it uses).
@@ -450,11 +452,6 @@ fn supply_warning(id: &str, template: &str, about: &library::About, home: &Home)
         home.voltage_v
     )
 }
-
-/// How far a template's rated voltage may lie from its connection before
-/// `validate` says so: 10 % (the usual tolerance band of a supply, ANSI
-/// C84.1 and IEC 60038 give ±5 % and ±10 %; common practice).
-pub const RATED_MISMATCH: f64 = 0.10;
 
 /// A warning (one per appliance, for its first such draw) when a draw of a
 /// template has a rated voltage more than [`RATED_MISMATCH`] from its
@@ -1496,21 +1493,8 @@ fn decode_clock(ctx: &Reader, n: &Node) -> Result<(f64, f64), Error> {
     Ok((offset_s, drift))
 }
 
-/// Ids that name a column of their own in the truth table (`time`,
-/// `unmetered_p_w`) or of the meters (`total_p_w`).
-const RESERVED_IDS: [&str; 3] = ["unmetered", "total", "time"];
-
-/// Endings of truth columns that name a conductor (`dryer_l1_p_w`): an id
-/// ending so would make two columns read alike.
-const CONDUCTOR_ENDINGS: [&str; 4] = ["_l1", "_l2", "_l3", "_n"];
-
-/// The longest id or state name, in characters.
-pub const MAX_NAME_CHARS: usize = 64;
-
 /// The home's line-to-neutral voltage, V.
 pub const LINE_TO_NEUTRAL_V: (f64, f64) = (50.0, 1000.0);
-/// A draw's rated voltage (line to neutral or line to line), V.
-pub const RATED_V: (f64, f64) = (50.0, 2000.0);
 /// The service rating, A.
 pub const SERVICE_A: (f64, f64) = (1.0, 10_000.0);
 /// The simulation step, s.
@@ -1549,92 +1533,6 @@ fn in_range(
         ));
     }
     Ok(v)
-}
-
-pub(super) fn check_id(ctx: &Reader, node: &Node, path: &str, id: &str) -> Result<(), Error> {
-    let ok = id.chars().next().is_some_and(|c| c.is_ascii_lowercase())
-        && id
-            .chars()
-            .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
-    if !ok {
-        return Err(ctx.err(node, path, format!("\"{id}\" is not a valid id"), "ids start with a lower-case letter and hold only a-z, 0-9 and _ (e.g. \"water_heater\")"));
-    }
-    if id.len() > MAX_NAME_CHARS {
-        return Err(ctx.err(
-            node,
-            path,
-            format!(
-                "an id has at most {MAX_NAME_CHARS} characters, this one {}",
-                id.len()
-            ),
-            "choose a shorter id such as \"water_heater\"",
-        ));
-    }
-    if RESERVED_IDS.contains(&id) {
-        return Err(ctx.err(
-            node,
-            path,
-            format!("\"{id}\" is reserved: the truth table has a column `{id}` or `{id}_p_w` of its own"),
-            "choose another id, e.g. \"{id}_load\"",
-        ));
-    }
-    if let Some(end) = CONDUCTOR_ENDINGS.iter().find(|e| id.ends_with(*e)) {
-        let stem = &id[..id.len() - end.len()];
-        return Err(ctx.err(
-            node,
-            path,
-            format!("\"{id}\" ends like a conductor ({end}): its truth column {id}_p_w would read as appliance \"{stem}\"'s share on {}", end[1..].to_uppercase()),
-            format!("choose an id that does not end in _l1, _l2, _l3 or _n, e.g. \"{stem}_{}\"", if end == &"_n" { "neutral".to_string() } else { format!("leg{}", &end[2..]) }),
-        ));
-    }
-    Ok(())
-}
-
-/// Parses a wiring such as `L1-N`, `L2-L3` or `3P` and checks the supply has it.
-pub fn parse_wiring(
-    ctx: &Reader,
-    node: &Node,
-    path: &str,
-    supply: SupplyKind,
-) -> Result<Wiring, Error> {
-    let text = ctx.string(node, path)?;
-    let n = supply.lines();
-    let accepted = accepted_wirings(supply);
-    let bad = |msg: String| {
-        ctx.err(
-            node,
-            path,
-            msg,
-            format!(
-                "a {} supply accepts: {}",
-                supply.name(),
-                accepted.join(", ")
-            ),
-        )
-    };
-    Wiring::parse(text, n).map_err(|e| {
-        bad(match e {
-            WiringError::NotThreePhase => format!(
-                "\"3P\" needs a three-phase supply; this home is {}",
-                supply.name()
-            ),
-            WiringError::NotAWiring => format!("\"{text}\" is not a wiring"),
-            WiringError::SelfConnection => format!("\"{text}\" connects a terminal to itself"),
-            WiringError::NoSuchLine(x) => format!(
-                "{} does not exist on a {} supply",
-                line_label(x),
-                supply.name()
-            ),
-        })
-    })
-}
-
-fn accepted_wirings(supply: SupplyKind) -> Vec<&'static str> {
-    match supply {
-        SupplyKind::SinglePhase => vec!["L1-N"],
-        SupplyKind::SplitPhase => vec!["L1-N", "L2-N", "L1-L2"],
-        SupplyKind::ThreePhase => vec!["L1-N", "L2-N", "L3-N", "L1-L2", "L2-L3", "L3-L1", "3P"],
-    }
 }
 
 struct DrawDefaults {
@@ -1886,79 +1784,6 @@ pub(crate) fn decode_dist(ctx: &Reader, node: &Node, path: &str) -> Result<Dist,
     };
     t.finish()?;
     Ok(d)
-}
-
-pub(crate) fn parse_hours(ctx: &Reader, node: &Node, path: &str) -> Result<Vec<f64>, Error> {
-    let help = "write hours = \"17-22\" (local hours 17:00 to 22:00), \"6-9,17-22\", or 24 weights [w0, …, w23]";
-    let mut w = [0.0; 24];
-    match &node.v {
-        Val::Str(s) => {
-            for part in s.split(',') {
-                let (a, b) = part.trim().split_once('-').ok_or_else(|| {
-                    ctx.err(node, path, format!("\"{part}\" is not an hour range"), help)
-                })?;
-                let a: usize = a
-                    .trim()
-                    .parse()
-                    .map_err(|_| ctx.err(node, path, format!("\"{a}\" is not an hour"), help))?;
-                let b: usize = b
-                    .trim()
-                    .parse()
-                    .map_err(|_| ctx.err(node, path, format!("\"{b}\" is not an hour"), help))?;
-                if a > 23 || b > 24 || a == b {
-                    return Err(ctx.err(
-                        node,
-                        path,
-                        format!("\"{part}\" is not a range of hours within 0 … 24"),
-                        help,
-                    ));
-                }
-                // A range that wraps past midnight ("22-6") is allowed.
-                let len = if b > a { b - a } else { b + 24 - a };
-                for k in 0..len {
-                    w[(a + k) % 24] = 1.0;
-                }
-            }
-        }
-        Val::Arr(list) => {
-            if list.len() != 24 {
-                return Err(ctx.err(
-                    node,
-                    path,
-                    format!("{} weights given, 24 needed", list.len()),
-                    help,
-                ));
-            }
-            for (i, n) in list.iter().enumerate() {
-                let x = ctx.number(n, &format!("{path}[{i}]"))?;
-                if x < 0.0 {
-                    return Err(ctx.err(
-                        n,
-                        &format!("{path}[{i}]"),
-                        "a weight cannot be negative",
-                        help,
-                    ));
-                }
-                w[i] = x;
-            }
-        }
-        _ => {
-            return Err(ctx.err(
-                node,
-                path,
-                format!(
-                    "expected an hour range or 24 weights, found {}",
-                    node.type_name()
-                ),
-                help,
-            ))
-        }
-    }
-    let sum: f64 = w.iter().sum();
-    if sum <= 0.0 {
-        return Err(ctx.err(node, path, "no hour has any weight", help));
-    }
-    Ok(w.iter().map(|x| x / sum).collect())
 }
 
 fn decode_habit(ctx: &Reader, node: &Node, path: &str) -> Result<Habit, Error> {

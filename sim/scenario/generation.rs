@@ -2,10 +2,10 @@
 //! into appliances of their own roles (after the `[[appliance]]` list), so
 //! the truth, the events and the manifest carry them like any appliance.
 
-use super::decode::{check_id, parse_wiring};
 use super::model::*;
 use super::reader::{Reader, TableReader};
 use super::source::{Error, Node};
+use super::values::{check_id, parse_wiring};
 use crate::sun::pvwatts;
 use crate::units::QuantityKind;
 

@@ -1,5 +1,6 @@
 //! The scenario language: TOML with units, parsed into a resolved [`Scenario`].
 
+pub mod catalogue;
 pub mod decode;
 pub mod generation;
 pub mod library;
@@ -8,6 +9,7 @@ pub mod overrides;
 pub(crate) mod reader;
 pub(crate) mod source;
 pub mod thermal;
+pub mod values;
 
 pub use decode::{load, load_str};
 pub use model::*;

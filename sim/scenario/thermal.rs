@@ -1,10 +1,10 @@
 //! The scenario language of weather and heating: `[weather]`, `[building]`
 //! and the roles of `behaviour = "thermostat"` appliances.
 
-use super::decode::parse_hours;
 use super::model::{Appliance, Home, Reference, Run, State};
 use super::reader::{Reader, TableReader};
 use super::source::{Error, Node, Val};
+use super::values::parse_hours;
 use crate::thermal::equipment::{Equipment, HeatPump};
 use crate::thermal::Building;
 use crate::units::QuantityKind;

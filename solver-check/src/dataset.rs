@@ -294,3 +294,10 @@ fn table_rows(path: &Path) -> Result<u64, DatasetError> {
     }
     Ok(n)
 }
+
+impl From<DatasetError> for crate::diagnostic::Error {
+    /// A bad dataset folder or manifest: its file.
+    fn from(e: DatasetError) -> crate::diagnostic::Error {
+        crate::diagnostic::Error::file(&e.file, e.message, e.help)
+    }
+}

@@ -199,70 +199,9 @@ impl fmt::Display for Error {
 
 impl std::error::Error for Error {}
 
-impl From<crate::table::TableError> for Error {
-    /// A bad table: its file, and the column and row as the place.
-    fn from(e: crate::table::TableError) -> Error {
-        let mut place = Vec::new();
-        if let Some(c) = &e.column {
-            place.push(format!("column `{c}`"));
-        }
-        if let Some(r) = e.row {
-            place.push(format!("row {r} (counting data rows from 0)"));
-        }
-        let mut d = Error::file(&e.file, e.message, e.help);
-        d.path = place.join(", ");
-        d
-    }
-}
-
-impl From<crate::dataset::DatasetError> for Error {
-    /// A bad dataset folder or manifest: its file.
-    fn from(e: crate::dataset::DatasetError) -> Error {
-        Error::file(&e.file, e.message, e.help)
-    }
-}
-
-impl From<crate::score::ScoreError> for Error {
-    fn from(e: crate::score::ScoreError) -> Error {
-        match e {
-            crate::score::ScoreError::Dataset(d) => d.into(),
-            crate::score::ScoreError::Table(t) => t.into(),
-        }
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn a_table_error_keeps_its_file_column_row_and_help() {
-        let t = crate::table::table_err(
-            Path::new("estimate.csv"),
-            Some("fridge_p_w"),
-            Some(4),
-            "a negative power",
-            "write zero or more",
-        );
-        let e = Error::from(t);
-        assert_eq!(e.status.code(), 2);
-        assert_eq!(e.failed().status, Status::Failed);
-        let shown = Error::from(crate::table::table_err(
-            Path::new("estimate.csv"),
-            Some("fridge_p_w"),
-            Some(4),
-            "a negative power",
-            "write zero or more",
-        ))
-        .to_string();
-        assert!(
-            shown.starts_with(
-                "error: a negative power\n  --> estimate.csv (at column `fridge_p_w`, row 4"
-            ),
-            "{shown}"
-        );
-        assert!(shown.ends_with("  = help: write zero or more"), "{shown}");
-    }
 
     #[test]
     fn a_place_gives_file_line_and_column_and_a_bare_file_stays_whole() {

@@ -584,3 +584,13 @@ impl Render for Report {
         o
     }
 }
+
+impl From<ScoreError> for crate::diagnostic::Error {
+    /// The dataset's or the table's own error.
+    fn from(e: ScoreError) -> crate::diagnostic::Error {
+        match e {
+            ScoreError::Dataset(d) => d.into(),
+            ScoreError::Table(t) => t.into(),
+        }
+    }
+}

@@ -101,3 +101,53 @@ impl Table {
         self.columns.iter().any(|(n, _)| n == name)
     }
 }
+
+impl From<TableError> for crate::diagnostic::Error {
+    /// A bad table: its file, and the column and row as the place.
+    fn from(e: TableError) -> crate::diagnostic::Error {
+        let mut place = Vec::new();
+        if let Some(c) = &e.column {
+            place.push(format!("column `{c}`"));
+        }
+        if let Some(r) = e.row {
+            place.push(format!("row {r} (counting data rows from 0)"));
+        }
+        let mut d = crate::diagnostic::Error::file(&e.file, e.message, e.help);
+        d.path = place.join(", ");
+        d
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_table_error_keeps_its_file_column_row_and_help() {
+        let t = table_err(
+            Path::new("estimate.csv"),
+            Some("fridge_p_w"),
+            Some(4),
+            "a negative power",
+            "write zero or more",
+        );
+        let e = crate::diagnostic::Error::from(t);
+        assert_eq!(e.status.code(), 2);
+        assert_eq!(e.failed().status, crate::diagnostic::Status::Failed);
+        let shown = crate::diagnostic::Error::from(table_err(
+            Path::new("estimate.csv"),
+            Some("fridge_p_w"),
+            Some(4),
+            "a negative power",
+            "write zero or more",
+        ))
+        .to_string();
+        assert!(
+            shown.starts_with(
+                "error: a negative power\n  --> estimate.csv (at column `fridge_p_w`, row 4"
+            ),
+            "{shown}"
+        );
+        assert!(shown.ends_with("  = help: write zero or more"), "{shown}");
+    }
+}
