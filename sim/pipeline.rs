@@ -139,7 +139,11 @@ pub fn write_into_cut(
     // columns and encodes them on `threads` threads meanwhile, then sends
     // the emptied chunk back to be filled again.
     let (outcome, meter_rows) = std::thread::scope(|sc| -> io::Result<(SimulationRecord, u64)> {
-        let (tx, rx) = std::sync::mpsc::sync_channel::<Chunk>(2);
+        let (tx, rx) = std::sync::mpsc::sync_channel::<Chunk>(1);
+        // One being filled, one waiting, one being written: enough to keep
+        // both sides busy (each chunk of the demo at 1 s holds about 35 MB).
+        const CHUNKS: usize = 3;
+        let mut made = 1;
         let (back, spare) = std::sync::mpsc::channel::<Chunk>();
         let tables = &tables;
         // The meter's noise is read on the writer's thread too.
@@ -155,11 +159,21 @@ pub fn write_into_cut(
                 progress(
                     (chunk.first_row + chunk.readings.rows() as u64) as f64 / intervals as f64,
                 );
-                // A chunk the writer is done with, or (while none is back
-                // yet) a copy whose columns have the room the rows need.
-                let next = spare.try_recv().unwrap_or_else(|_| chunk.clone());
+                // A chunk the writer is done with; while none is back and
+                // fewer than CHUNKS exist, a copy whose columns have the
+                // room the rows need.
+                let next = match spare.try_recv() {
+                    Ok(c) => Some(c),
+                    Err(_) if made < CHUNKS => {
+                        made += 1;
+                        Some(chunk.clone())
+                    }
+                    Err(_) => spare.recv().ok(),
+                };
+                let stopped = || io::Error::other("the table writer stopped");
+                let next = next.ok_or_else(stopped)?;
                 tx.send(std::mem::replace(chunk, next))
-                    .map_err(|_| io::Error::other("the table writer stopped"))
+                    .map_err(|_| stopped())
             },
             recorder.as_mut(),
             true,
