@@ -44,12 +44,11 @@ use crate::audit::decl::Declared;
 use crate::audit::events::{ChannelStats, Event};
 use crate::contract::line_name;
 use finding::sort_findings;
-use fit::Ctx;
 use metering::{
     absent_channels, channel_findings, choose_metering, metering_confidence, metering_findings,
-    silent_channel_accounts, simpler_metering,
+    place_under, silent_channel_accounts, simpler_account, Placement,
 };
-use placement::{indistinct_notes, place};
+use placement::indistinct_notes;
 use serde_json::json;
 use undeclared::{coincidences, metered_energy_wh, steps_fit, undeclared};
 
@@ -108,22 +107,25 @@ pub fn check_with(
         mc.scored[decl_i].3,
     );
     // 2. Appliances, under the metering chosen; several appliances moved
-    // where one metering fault explains as much is the less simple account.
+    // where a metering fault and fewer moves explain as much is the less
+    // simple account.
     let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
-    let mut m = mc.hyps[chosen].0.clone();
-    let mut cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
-    let mut moves = Vec::new();
-    let (mut checks, mut placed) = place(d, &m, &used, &cxs, interval_s, &mut moves, th);
+    let mut pl = place_under(d, &mc, chosen, &used, interval_s, th);
     let mut replaced = 0;
-    if chosen == decl_i && moves.len() >= 2 {
-        if let Some(alt) = simpler_metering(d, &mc.decl_m, &placed, &big, &mc.scored, decl_i, th) {
-            (chosen, replaced) = (alt, moves.len());
-            m = mc.hyps[chosen].0.clone();
-            cxs = used.iter().map(|e| Ctx::of(d, &m, e)).collect();
-            moves.clear();
-            (checks, placed) = place(d, &m, &used, &cxs, interval_s, &mut moves, th);
+    if chosen == decl_i && pl.moves.len() >= 2 {
+        if let Some(alt) = simpler_account(d, &mc, &pl, &used, &big, interval_s, th) {
+            replaced = pl.moves.len() - alt.moves.len();
+            (chosen, pl) = (alt.hyp, alt);
         }
     }
+    let Placement {
+        cxs,
+        checks,
+        placed,
+        moves,
+        ..
+    } = pl;
+    let m = mc.hyps[chosen].0.clone();
     let (ch_apps, ch_ex) = (mc.scored[chosen].1, mc.scored[chosen].2);
     if chosen != decl_i {
         let conf = metering_confidence(

@@ -1,13 +1,18 @@
 //! Small declarations the stages' unit tests share.
 
 use crate::audit::decl::{DeclAppliance, Declared};
-use crate::contract::{Wiring, C64};
+use crate::contract::{SupplyKind, Wiring, C64};
 
 /// An hour, ms.
 pub(super) const H: i64 = 3_600_000;
 
 /// An appliance that is off or draws `s` from line `line` to neutral.
 pub(super) fn on_off(id: &str, line: usize, s: C64) -> DeclAppliance {
+    on_off_wired(id, Wiring::LineNeutral(line), s)
+}
+
+/// An appliance that is off or draws `s` through `wiring`.
+pub(super) fn on_off_wired(id: &str, wiring: Wiring, s: C64) -> DeclAppliance {
     use crate::audit::decl::{DeclDraw, Steps};
     use crate::contract::Zip;
     DeclAppliance {
@@ -16,7 +21,7 @@ pub(super) fn on_off(id: &str, line: usize, s: C64) -> DeclAppliance {
         states: vec![
             vec![],
             vec![DeclDraw {
-                wiring: Wiring::LineNeutral(line),
+                wiring,
                 s,
                 zip_p: Zip::POWER,
                 zip_q: Zip::POWER,
@@ -29,25 +34,32 @@ pub(super) fn on_off(id: &str, line: usize, s: C64) -> DeclAppliance {
 
 /// A 120/240 V home, a CT on each line as labelled.
 pub(super) fn split_phase(appliances: Vec<DeclAppliance>) -> Declared {
+    home(SupplyKind::SplitPhase, 120.0, appliances)
+}
+
+/// A 230/400 V three-phase home, a CT on each line as labelled.
+pub(super) fn three_phase(appliances: Vec<DeclAppliance>) -> Declared {
+    home(SupplyKind::ThreePhase, 230.0, appliances)
+}
+
+/// A home of `kind` at `voltage_v` line to neutral, a CT on each line as
+/// labelled.
+fn home(kind: SupplyKind, voltage_v: f64, appliances: Vec<DeclAppliance>) -> Declared {
     use crate::audit::decl::{DeclChannel, Supply};
     Declared {
         file: "t.toml".into(),
         supply_at: "t.toml:1:1".into(),
         supply: Supply {
-            kind: crate::contract::SupplyKind::SplitPhase,
-            voltage_v: 120.0,
+            kind,
+            voltage_v,
             service_a: 200.0,
         },
-        channels: vec![
-            DeclChannel {
-                conductor: Some(0),
+        channels: (0..kind.lines())
+            .map(|c| DeclChannel {
+                conductor: Some(c),
                 reversed: false,
-            },
-            DeclChannel {
-                conductor: Some(1),
-                reversed: false,
-            },
-        ],
+            })
+            .collect(),
         appliances,
         partial: false,
         real_only: false,
