@@ -189,21 +189,7 @@ pub(super) fn dist_model(
     let mut comp = f64::INFINITY;
     for j in &md.jumps {
         for fwd in [true, false] {
-            // Forward: the jump's draws as given, "after" at the voltage
-            // after. Backward (the jump undone): every sign turned and the
-            // voltages exchanged.
-            let mut t = vec![C64::ZERO; n];
-            for term in j {
-                let after = if fwd { term.after } else { !term.after };
-                let s = term
-                    .draw
-                    .at(cx.u(d, term.draw.wiring, after))
-                    .scale(if fwd { term.k } else { -term.k });
-                for (o, x) in t.iter_mut().zip(d.supply.split(term.draw.wiring, s)) {
-                    *o += x;
-                }
-            }
-            let r = m.read(d, &t);
+            let r = jump_reading(d, m, cx, j, fwd);
             let size = r.iter().flatten().map(|c| c.abs()).fold(0.0, f64::max);
             if size < USE_STEP {
                 continue;
@@ -221,30 +207,64 @@ pub(super) fn dist_model(
                 .fold(0.0, f64::max);
             best = best.min(worst);
             if worst > 1.0 {
-                for sh in shapes {
-                    let (mut num, mut den) = (0.0, 0.0);
-                    for c in 0..n {
-                        if let (Some(x), Some(g)) = (res[c], sh[c]) {
-                            num += (g.re * x.re + g.im * x.im) / (tol[c] * tol[c]);
-                            den += g.abs().powi(2) / (tol[c] * tol[c]);
-                        }
-                    }
-                    if den == 0.0 {
-                        continue;
-                    }
-                    let lam = (num / den).clamp(-1.0, 1.0);
-                    let w = (0..n)
-                        .filter_map(|c| {
-                            res[c]
-                                .map(|x| (x - sh[c].unwrap_or(C64::ZERO).scale(lam)).abs() / tol[c])
-                        })
-                        .fold(0.0, f64::max);
+                for w in shapes
+                    .iter()
+                    .filter_map(|sh| wander_residual(&res, &tol, sh))
+                {
                     comp = comp.min(2.0 * w);
                 }
             }
         }
     }
     (best, comp.min(best))
+}
+
+/// The channel readings of one jump under `m` at the voltages `cx`:
+/// forward, its draws as given, "after" at the voltage after; backward
+/// (the jump undone), every sign turned and the voltages exchanged.
+fn jump_reading(
+    d: &Declared,
+    m: &Metering,
+    cx: &Ctx,
+    jump: &[Term],
+    fwd: bool,
+) -> Vec<Option<C64>> {
+    let mut t = vec![C64::ZERO; d.supply.lines()];
+    for term in jump {
+        let after = if fwd { term.after } else { !term.after };
+        let s = term
+            .draw
+            .at(cx.u(d, term.draw.wiring, after))
+            .scale(if fwd { term.k } else { -term.k });
+        for (o, x) in t.iter_mut().zip(d.supply.split(term.draw.wiring, s)) {
+            *o += x;
+        }
+    }
+    m.read(d, &t)
+}
+
+/// What is left of the residuals `res` (tolerances `tol` per channel) once
+/// the nearest real multiple λ ∈ [−1, 1] of a wander `shape` is taken off,
+/// in tolerances (weighted least squares for λ); None when the shape reads
+/// on no channel the residuals do.
+fn wander_residual(res: &[Option<C64>], tol: &[f64], shape: &[Option<C64>]) -> Option<f64> {
+    let (mut num, mut den) = (0.0, 0.0);
+    for c in 0..res.len() {
+        if let (Some(x), Some(g)) = (res[c], shape[c]) {
+            num += (g.re * x.re + g.im * x.im) / (tol[c] * tol[c]);
+            den += g.abs().powi(2) / (tol[c] * tol[c]);
+        }
+    }
+    if den == 0.0 {
+        return None;
+    }
+    let lam = (num / den).clamp(-1.0, 1.0);
+    let w = (0..res.len())
+        .filter_map(|c| {
+            res[c].map(|x| (x - shape[c].unwrap_or(C64::ZERO).scale(lam)).abs() / tol[c])
+        })
+        .fold(0.0, f64::max);
+    Some(w)
 }
 
 /// An appliance's expected steps under a metering: at nominal voltage (a

@@ -291,6 +291,22 @@ mod tests {
         assert!(Thresholds::STANDARD.changed().is_empty());
     }
 
+    /// Every field of `Thresholds` has its entry in `CUTOFFS`, in order (a
+    /// cut-off added to the value must be settable and reported too).
+    #[test]
+    fn every_field_is_a_cutoff() {
+        let text = format!("{:?}", Thresholds::STANDARD);
+        let fields: Vec<&str> = text
+            .split(['{', ','])
+            .skip(1)
+            .filter_map(|f| f.split(':').next())
+            .map(str::trim)
+            .filter(|f| !f.is_empty() && !f.starts_with('}'))
+            .collect();
+        let names: Vec<&str> = CUTOFFS.iter().map(|c| c.name).collect();
+        assert_eq!(fields, names);
+    }
+
     /// Unknown names, non-numbers, non-finite, out-of-range and fractional
     /// counts are refused, naming every cut-off in the help.
     #[test]
