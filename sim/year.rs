@@ -288,6 +288,10 @@ fn render_climate(r: &YearReport) -> String {
             t.mean_indoor_c,
             100.0 * t.cold_share
         );
+        o += &format!(
+            "day blocks of the heat balance: temperatures at most {:.2} K apart where one hands over to the next\n",
+            t.handover_k
+        );
     }
     o
 }

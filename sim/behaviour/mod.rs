@@ -48,6 +48,33 @@ impl Timeline {
         let (soc, per_step) = *self.level.get(i)?;
         Some(soc + per_step * (t - self.segments[i].start) as f64)
     }
+
+    /// Steps `from .. from + steps` of the timeline as a timeline of their
+    /// own (step `from` its step 0); the first segment is held before the
+    /// timeline starts and the last after it ends.
+    pub fn slice(&self, from: i64, steps: u64) -> Timeline {
+        let to = from + steps as i64;
+        let first = self.segments.partition_point(|g| (g.end as i64) <= from);
+        let last = self.segments.partition_point(|g| (g.start as i64) < to);
+        let last = last.max(first + 1).min(self.segments.len());
+        let first = first.min(last.saturating_sub(1));
+        let mut out = Timeline::default();
+        for i in first..last {
+            let g = self.segments[i];
+            let a = if i == first { from } else { g.start as i64 };
+            let b = if i + 1 == last { to } else { g.end as i64 };
+            out.segments.push(Segment {
+                start: (a - from) as u64,
+                end: (b - from) as u64,
+                ..g
+            });
+            if let Some(&(_, per_step)) = self.level.get(i) {
+                let at = self.level_at(i, a.max(g.start as i64) as u64);
+                out.level.push((at.unwrap_or(0.0), per_step));
+            }
+        }
+        out
+    }
 }
 
 /// What a behaviour needs to know of the run, in steps.
@@ -191,31 +218,72 @@ pub fn timelines(s: &Scenario, steps: u64) -> Vec<Timeline> {
 }
 
 /// [`timelines`], with what the heat balance added up to.
+///
+/// A building's heat balance and a battery run in day blocks, each from a
+/// warm-up before its day ([`crate::thermal::WARM_UP`],
+/// [`storage::WARM_UP`]), so the other loads are made over a wider clock
+/// than the run: the blocks reaching furthest back are the battery's, whose
+/// days need the thermostatic loads over their warm-up, whose days need the
+/// other loads over theirs.
 pub fn timelines_with_record(s: &Scenario, steps: u64) -> (Vec<Timeline>, crate::thermal::Record) {
     let tz = jiff::tz::TimeZone::get(&s.home.timezone).expect("checked when parsed");
-    let clock = Clock {
+    let run = Clock {
         steps,
         step_s: s.run.step_s,
         start_utc_ms: s.run.start_utc_ms,
         tz: &tz,
         site: s.home.site,
     };
-    // One outdoor series for the building and the PV modules alike.
-    let weather = s
-        .weather
-        .as_ref()
-        .map(|w| crate::weather::series(w, s.run.start_utc_ms, s.run.length_s, &tz, s.run.seed));
-    let mut out: Vec<Timeline> = s
-        .loads()
-        .map(|a| timeline(a, &clock, s.run.seed, weather.as_ref()))
-        .collect();
-    let record = crate::thermal::drive(s, &mut out, steps, &tz, weather.as_ref());
-    // A store follows the net power of everything else, so it comes last.
     let loads: Vec<&Appliance> = s.loads().collect();
+    let has = |f: fn(&Behaviour) -> bool| loads.iter().any(|a| f(&a.behaviour));
+    let thermal = s.building.is_some()
+        && s.weather.is_some()
+        && has(|b| matches!(b, Behaviour::Thermostat { .. }));
+    let battery = has(|b| matches!(b, Behaviour::Storage(_)));
+    let step_ms = (s.run.step_s * 1000.0).round() as i64;
+    let margins = |on: bool, r: window::Reach| if on { r.margins(step_ms) } else { (0, 0) };
+    let (b_pre, b_post) = margins(battery, storage::WARM_UP);
+    let (t_pre, t_post) = margins(thermal, crate::thermal::WARM_UP);
+    let wide = Clock {
+        steps: b_pre + t_pre + steps + b_post + t_post,
+        start_utc_ms: s.run.start_utc_ms - (b_pre + t_pre) as i64 * step_ms,
+        ..run
+    };
+    // The part the thermostatic loads are stitched over: the battery's reach.
+    let cover = Clock {
+        steps: b_pre + steps + b_post,
+        start_utc_ms: s.run.start_utc_ms - b_pre as i64 * step_ms,
+        ..run
+    };
+    // One outdoor series for the building and the PV modules alike.
+    let weather = s.weather.as_ref().map(|w| {
+        let length_s = wide.steps as f64 * s.run.step_s;
+        crate::weather::series(w, wide.start_utc_ms, length_s, &tz, s.run.seed)
+    });
+    let mut out: Vec<Timeline> = loads
+        .iter()
+        .map(|a| timeline(a, &wide, s.run.seed, weather.as_ref()))
+        .collect();
+    let run_in_cover = b_pre as i64..(b_pre + steps) as i64;
+    let record = crate::thermal::drive(
+        s,
+        &mut out,
+        &wide,
+        (&cover, t_pre),
+        run_in_cover,
+        weather.as_ref(),
+    );
+    // A store follows the net power of everything else, so it comes last.
+    let mut batteries = Vec::new();
     for (k, a) in loads.iter().enumerate() {
         if let Behaviour::Storage(b) = &a.behaviour {
-            out[k] = storage::generate(b, &loads, &out, k, steps, s.run.step_s);
+            batteries.push((k, storage::history(b, &loads, &out, k, &wide, &run)));
         }
+    }
+    let at = (b_pre + t_pre) as i64;
+    let mut out: Vec<Timeline> = out.iter().map(|t| t.slice(at, steps)).collect();
+    for (k, t) in batteries {
+        out[k] = t;
     }
     (out, record)
 }

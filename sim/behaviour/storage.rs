@@ -10,7 +10,8 @@
 //! lose the square root of the round-trip efficiency (common practice, no
 //! source).
 
-use super::{Segment, Timeline};
+use super::window::{self, Fit, Piece, Reach};
+use super::{Clock, Segment, Timeline};
 use crate::scenario::{Appliance, Battery};
 
 /// The run's net nominal power as (first step, watts) pieces, from every
@@ -114,6 +115,8 @@ pub fn generate(
             soc = (soc + per_step * len as f64).clamp(b.reserve.min(soc), 1.0);
             if (soc - b.reserve).abs() < AT_LIMIT {
                 soc = b.reserve;
+            } else if 1.0 - soc < AT_LIMIT {
+                soc = 1.0;
             }
             t += len;
         }
@@ -128,6 +131,51 @@ pub fn generate(
         out.level.push((soc, 0.0));
     }
     out
+}
+
+/// How long each day block of a battery runs before its day, from
+/// `initial`, and after it: a block hands over to the next where both hold
+/// the same charge, which they do from the first time both reach full or
+/// the reserve (the charge then no longer depends on where it started).
+pub const WARM_UP: Reach = Reach {
+    warm_ms: 86_400_000,
+    horizon_ms: 2 * 86_400_000,
+};
+
+/// Whether two blocks of a battery are in the same state with the same
+/// charge at run step `t`.
+fn same_charge(a: &Piece<()>, b: &Piece<()>, t: i64) -> Fit {
+    if a.state(0, t) == b.state(0, t) && a.level(0, t) == b.level(0, t) {
+        Fit::Tight
+    } else {
+        Fit::No
+    }
+}
+
+/// The battery's timeline over `run` (a part of `wide`, the clock of the
+/// other loads' `timelines`), made in day blocks
+/// ([`window::assemble_group`]) so a run is a slice of the battery's one
+/// history.
+pub fn history(
+    b: &Battery,
+    loads: &[&Appliance],
+    timelines: &[Timeline],
+    me: usize,
+    wide: &Clock,
+    run: &Clock,
+) -> Timeline {
+    let step_ms = (wide.step_s * 1000.0).round() as i64;
+    let joined = window::assemble_group(
+        run,
+        WARM_UP,
+        |c, _| {
+            let from = (c.start_utc_ms - wide.start_utc_ms) / step_ms;
+            let part: Vec<Timeline> = timelines.iter().map(|t| t.slice(from, c.steps)).collect();
+            (vec![generate(b, loads, &part, me, c.steps, c.step_s)], ())
+        },
+        same_charge,
+    );
+    joined.timelines.into_iter().next().unwrap_or_default()
 }
 
 #[cfg(test)]

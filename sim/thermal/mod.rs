@@ -14,7 +14,8 @@
 
 pub mod equipment;
 
-use crate::behaviour::{Segment, Timeline};
+use crate::behaviour::window::{self, Fit, Piece, Reach};
+use crate::behaviour::{Clock, Segment, Timeline};
 use crate::scenario::{Appliance, Behaviour, Scenario};
 use crate::weather::Weather;
 use equipment::{Equipment, FROST_BELOW_C};
@@ -98,6 +99,10 @@ pub struct Record {
     pub mean_indoor_c: f64,
     /// Share of the time the rooms sat over 1 K below the heating setpoint.
     pub cold_share: f64,
+    /// The largest difference, K, between the building temperatures (either
+    /// node) of two day blocks where one hands over to the next: what is
+    /// left of the warm-up's starting guess ([`WARM_UP`]).
+    pub handover_k: f64,
 }
 
 /// A thermostatic appliance: its load index, role and running powers.
@@ -174,29 +179,37 @@ fn units(s: &Scenario) -> Vec<Unit<'_>> {
         .collect()
 }
 
-/// Mean power of the other loads in each control step, W.
+/// Mean power of the other loads in each of `n` control steps of `k`
+/// steps from step `at` of their timelines, W.
 fn appliance_gains(
     loads: &[&Appliance],
     tl: &[Timeline],
     skip: &[usize],
+    at: i64,
     k: u64,
     n: usize,
 ) -> Vec<f64> {
     let mut e = vec![0.0; n];
+    let (lo, hi) = (at, at + (n as u64 * k) as i64);
     for (j, (a, t)) in loads.iter().zip(tl).enumerate() {
         if skip.contains(&j) {
             continue;
         }
-        for seg in &t.segments {
+        let first = t.segments.partition_point(|g| (g.end as i64) <= lo);
+        for seg in t.segments[first..]
+            .iter()
+            .take_while(|g| (g.start as i64) < hi)
+        {
             let p = a.states[seg.state as usize].p_w() * seg.scale as f64;
             if p == 0.0 {
                 continue;
             }
-            let mut x = seg.start;
-            while x < seg.end {
-                let bin = (x / k) as usize;
-                let edge = ((bin as u64 + 1) * k).min(seg.end);
-                e[bin.min(n - 1)] += p * (edge - x) as f64;
+            let mut x = (seg.start as i64).max(lo) - lo;
+            let end = (seg.end as i64).min(hi) - lo;
+            while x < end {
+                let bin = x / k as i64;
+                let edge = ((bin + 1) * k as i64).min(end);
+                e[(bin as usize).min(n - 1)] += p * (edge - x) as f64;
                 x = edge;
             }
         }
@@ -438,6 +451,55 @@ impl<'a> Sunlight<'a> {
     }
 }
 
+/// The irradiance of every whole minute from a first instant, computed once:
+/// the day blocks overlap, and the sun's position is most of the heat
+/// balance's cost.
+struct Memo {
+    /// The first instant, ms (the phase of the first instant asked for).
+    base_ms: Option<i64>,
+    /// From `wide_start_ms` over `span_ms` (the clock of the run's blocks).
+    wide_start_ms: i64,
+    span_ms: i64,
+    /// Per minute from `base_ms`; NaN until computed.
+    values: Vec<f64>,
+}
+
+impl Memo {
+    fn new(wide: &Clock) -> Memo {
+        Memo {
+            base_ms: None,
+            wide_start_ms: wide.start_utc_ms,
+            span_ms: (wide.steps as f64 * wide.step_s * 1000.0) as i64,
+            values: Vec::new(),
+        }
+    }
+
+    /// The irradiance at `t_ms`, from the memo where `t_ms` falls on its
+    /// minutes, else from `sun`.
+    fn ghi(&mut self, sun: &mut Sunlight, t_ms: i64) -> f64 {
+        const MINUTE_MS: i64 = 60_000;
+        let base = *self.base_ms.get_or_insert_with(|| {
+            t_ms - ((t_ms - self.wide_start_ms).div_euclid(MINUTE_MS) + 1) * MINUTE_MS
+        });
+        if self.values.is_empty() {
+            self.values = vec![f64::NAN; (self.span_ms / MINUTE_MS + 3) as usize];
+        }
+        let d = t_ms - base;
+        let slot = (d.rem_euclid(MINUTE_MS) == 0)
+            .then(|| d.div_euclid(MINUTE_MS))
+            .filter(|&i| i >= 0 && (i as usize) < self.values.len());
+        match slot {
+            Some(i) if !self.values[i as usize].is_nan() => self.values[i as usize],
+            Some(i) => {
+                let v = sun.ghi(t_ms);
+                self.values[i as usize] = v;
+                v
+            }
+            None => sun.ghi(t_ms),
+        }
+    }
+}
+
 /// Local hour (0 … 23) of each UTC hour of the weather series.
 fn local_hours(w: &Weather, tz: &jiff::tz::TimeZone) -> Vec<u8> {
     (0..w.temp_c.len() as i64)
@@ -449,93 +511,396 @@ fn local_hours(w: &Weather, tz: &jiff::tz::TimeZone) -> Vec<u8> {
         .collect()
 }
 
+/// How long each day block's heat balance runs before its day in hourly
+/// steps with an ideal thermostat ([`Run::coarse`]): the slowest mode of
+/// the demo buildings, free-running between the setpoints, has a time
+/// constant of about (air + mass) / ua, 40–80 h, so two weeks leave under
+/// 1 % of the first guess.
+const COARSE_MS: i64 = 14 * 86_400_000;
+
+/// How long each day block's heat balance runs before its day (two weeks
+/// coarse, then two days of minute steps that bring the thermostat's
+/// cycle) and after it (to find a hand-over). `validate --year` reports
+/// how far apart two blocks' temperatures are at their hand-overs
+/// (`Record::handover_k`).
+pub const WARM_UP: Reach = Reach {
+    warm_ms: COARSE_MS + 2 * 86_400_000,
+    horizon_ms: 12 * 3_600_000,
+};
+
+/// One control step of a block's heat balance, for the record.
+#[derive(Clone, Copy)]
+struct Logged {
+    /// The control step's first step, on the block's clock.
+    from: u64,
+    /// Heat delivered (positive) or removed (negative), J.
+    q_j: f64,
+    /// The building's temperatures at the step's start.
+    temps: Temps,
+    /// Whether the rooms sat over 1 K below the heating setpoint.
+    cold: bool,
+}
+
+/// What every block of a run shares: the scenario, its building, weather
+/// and sunlight, the other loads' timelines (on the clock `wide`) and the
+/// control step.
+struct Run<'a> {
+    b: &'a Building,
+    weather: &'a Weather,
+    hours: Vec<u8>,
+    sun: Sunlight<'a>,
+    memo: Memo,
+    loads: Vec<&'a Appliance>,
+    skip: Vec<usize>,
+    hp: Option<equipment::HeatPump>,
+    /// Steps per control step.
+    k: u64,
+    /// Start of the clock the other loads' timelines are on, ms.
+    wide_start_ms: i64,
+    /// Steps of that clock.
+    wide_steps: u64,
+    /// The other loads' hourly mean power over that clock, from its step
+    /// (the first bin), once computed.
+    hourly: Option<(i64, Vec<f64>)>,
+}
+
+impl Run<'_> {
+    /// The heating setpoint at `t_ms`, with the night setback.
+    fn setpoint(&self, t_ms: i64) -> f64 {
+        let idx = ((t_ms - self.weather.start_utc_ms) / 3_600_000)
+            .clamp(0, self.hours.len() as i64 - 1) as usize;
+        self.b.heating_c
+            - self.b.setback.map_or(
+                0.0,
+                |(h, by)| {
+                    if h[self.hours[idx] as usize] {
+                        by
+                    } else {
+                        0.0
+                    }
+                },
+            )
+    }
+
+    /// A guess of the building's state from the mean outdoor temperature,
+    /// internal and solar gains over `gains` (mean powers of steps of
+    /// `dt_ms` from `start_ms`, the weather and sun sampled `mid_ms` into
+    /// each): its steady state, the rooms held within the setpoints.
+    fn guess(&mut self, (start_ms, dt_ms, mid_ms): (i64, i64, i64), gains: &[f64]) -> Temps {
+        let b = self.b;
+        let n = gains.len().max(1);
+        let (mut out, mut q) = (0.0, 0.0);
+        for (i, gain) in gains.iter().enumerate() {
+            let t_ms = start_ms + i as i64 * dt_ms + mid_ms;
+            out += self.weather.temp_at(t_ms);
+            q += b.gains_share * gain + b.aperture_m2 * self.ghi(t_ms);
+        }
+        let (out, q) = (out / n as f64, q / n as f64);
+        let interior = (out + q / b.ua_w_k).clamp(b.heating_c, b.cooling_c.unwrap_or(f64::MAX));
+        let (h_ie, h_ea) = (b.coupling_w_k, b.envelope_w_k());
+        Temps {
+            interior,
+            envelope: (h_ie * interior + h_ea * out) / (h_ie + h_ea),
+        }
+    }
+
+    /// Mean power of the other loads in `n` bins of `bin` steps from step
+    /// `at` of their timelines, W: from one pass over the whole clock where
+    /// the bins fall on its bins (the blocks start whole days apart), else
+    /// on their own.
+    fn hourly_gains(&mut self, tl: &[Timeline], at: i64, bin: i64, n: usize) -> Vec<f64> {
+        let (base, all) = self.hourly.get_or_insert_with(|| {
+            let base = at.rem_euclid(bin);
+            let count = ((self.wide_steps as i64 - base) / bin).max(0) as usize;
+            let all = appliance_gains(&self.loads, tl, &self.skip, base, bin as u64, count);
+            (base, all)
+        });
+        let d = at - *base;
+        if d.rem_euclid(bin) == 0 && d >= 0 && (d / bin) as usize + n <= all.len() {
+            let i = (d / bin) as usize;
+            return all[i..i + n].to_vec();
+        }
+        appliance_gains(&self.loads, tl, &self.skip, at, bin as u64, n)
+    }
+
+    /// The irradiance on the aperture's plane at `t_ms`, W/m².
+    fn ghi(&mut self, t_ms: i64) -> f64 {
+        match self.sun {
+            Sunlight::None => 0.0,
+            _ => self.memo.ghi(&mut self.sun, t_ms),
+        }
+    }
+
+    /// The building's state after [`COARSE_MS`] from the start of `clock`
+    /// (at step `at` of the other loads' timelines `tl`): hourly steps from
+    /// the guess of the first week, the rooms held at the setpoints by as
+    /// much heating or cooling as that takes (an ideal thermostat). It
+    /// brings the slow mode of the structure (days) near the home's history;
+    /// the block's minute steps that follow bring the thermostat's cycle.
+    fn coarse(&mut self, tl: &[Timeline], clock: &Clock, at: i64) -> Temps {
+        let b = self.b;
+        let step_ms = (clock.step_s * 1000.0).round() as i64;
+        let bin = (3_600_000 / step_ms).max(1);
+        let dt_ms = bin * step_ms;
+        let n = (COARSE_MS / dt_ms).max(1) as usize;
+        let gains = self.hourly_gains(tl, at, bin, n);
+        let dt = dt_ms as f64 / 1000.0;
+        // Sampled at the middle of the control step nearest the hour's
+        // middle, an instant the minute steps ask for too (the memo).
+        let control_ms = self.k as i64 * step_ms;
+        let mid_ms = (dt_ms / 2).div_euclid(control_ms) * control_ms + control_ms / 2;
+        let week = gains.len().min((7 * 86_400_000 / dt_ms).max(1) as usize);
+        let mut temps = self.guess((clock.start_utc_ms, dt_ms, mid_ms), &gains[..week]);
+        for (i, gain) in gains.iter().enumerate() {
+            let t_ms = clock.start_utc_ms + i as i64 * dt_ms + mid_ms;
+            let t_out = self.weather.temp_at(t_ms);
+            let q = b.gains_share * gain + b.aperture_m2 * self.ghi(t_ms);
+            let free = step(b, temps, t_out, q, dt);
+            // The step is linear in the heat: what one more watt does.
+            let per_w = step(b, temps, t_out, q + 1.0, dt).interior - free.interior;
+            let set_h = self.setpoint(t_ms);
+            let target = if free.interior < set_h {
+                set_h
+            } else {
+                b.cooling_c
+                    .filter(|&c| free.interior > c)
+                    .unwrap_or(free.interior)
+            };
+            temps = step(b, temps, t_out, q + (target - free.interior) / per_w, dt);
+        }
+        temps
+    }
+
+    /// One block's heat balance over `clock` (a block's own, on the run's
+    /// steps): [`Run::coarse`] over its first [`COARSE_MS`], then minute
+    /// control steps; the units' timelines (off over the coarse part) and
+    /// the log from the block's day on.
+    fn block(&mut self, units: &mut [Unit], tl: &[Timeline], clock: &Clock) -> Vec<Logged> {
+        let b = self.b;
+        let (k, dt_step, steps) = (self.k, clock.step_s, clock.steps);
+        let step_ms = (dt_step * 1000.0).round() as i64;
+        let at = (clock.start_utc_ms - self.wide_start_ms) / step_ms;
+        let mut temps = self.coarse(tl, clock, at);
+        let coarse = ((COARSE_MS / step_ms) as u64).min(steps);
+        units.iter_mut().for_each(|u| {
+            u.segs.clear();
+            u.prev = 0;
+            u.push(0, coarse, 0, 1.0);
+        });
+        let n = (steps - coarse).div_ceil(k) as usize;
+        let gains = appliance_gains(&self.loads, tl, &self.skip, at + coarse as i64, k, n);
+        let mut ctl = Controls {
+            off_s: MIN_OFF_S,
+            ..Default::default()
+        };
+        let delays = blower_delays(dt_step);
+        let mut ops = Vec::with_capacity(units.len());
+        // The record counts a block from its day on (a hand-over is never
+        // earlier); the control step in force at the day's start is kept.
+        let warm = (WARM_UP.warm_ms / step_ms) as u64;
+        let mut log = Vec::with_capacity(n);
+        for (i, gain) in gains.iter().enumerate() {
+            let from = coarse + i as u64 * k;
+            let to = (from + k).min(steps);
+            let t_ms = clock.start_utc_ms + ((2 * from + (to - from)) as i64 * step_ms) / 2;
+            let t_out = self.weather.temp_at(t_ms);
+            let set_h = self.setpoint(t_ms);
+            let ask = ctl.decide(b, set_h, temps.interior, t_out, self.hp.as_ref());
+            let may_run = ctl.compressor_may_run();
+            let (q_hvac, running, frosting) =
+                operate(units, &ask, may_run, t_out, temps.interior, &mut ops);
+            for (u, &(state, scale)) in units.iter_mut().zip(&ops) {
+                u.push_delayed(from, to, state, scale, delays);
+            }
+            let q = q_hvac + b.gains_share * gain + b.aperture_m2 * self.ghi(t_ms);
+            let span = (to - from) as f64 * dt_step;
+            let before = temps;
+            temps = step(b, temps, t_out, q, span);
+            ctl.after_step(running, frosting, span, self.hp.as_ref());
+            if to <= warm {
+                continue;
+            }
+            log.push(Logged {
+                from,
+                q_j: q_hvac * span,
+                temps: before,
+                cold: temps.interior < set_h - 1.0,
+            });
+        }
+        log
+    }
+}
+
 /// Fills the timelines of the thermostatic loads of `s` (indices of
-/// `s.loads()`) from `weather` (the home's outdoor series over the run) and
-/// the other loads' timelines, which give the internal gains. Returns the
-/// thermal record.
+/// `s.loads()`, on the clock `wide`) over `cover` (a part of `wide`, whose
+/// step 0 is `wide`'s step `cover_at`), from `weather` (the home's outdoor
+/// series over `wide`) and the other loads' timelines, which give the
+/// internal gains. The heat balance runs in day blocks
+/// ([`window::assemble_group`]), each from [`WARM_UP`] before its day, so a
+/// run is a slice of the home's one thermal history. Returns the thermal
+/// record over `run` (steps of `cover`).
 pub fn drive(
     s: &Scenario,
     tl: &mut [Timeline],
-    steps: u64,
-    tz: &jiff::tz::TimeZone,
+    wide: &Clock,
+    (cover, cover_at): (&Clock, u64),
+    run: std::ops::Range<i64>,
     weather: Option<&Weather>,
 ) -> Record {
     let mut units = units(s);
     let (Some(b), Some(weather)) = (&s.building, weather) else {
         return Record::default();
     };
-    if units.is_empty() || steps == 0 {
+    if units.is_empty() || cover.steps == 0 {
         return Record::default();
     }
-    let dt_step = s.run.step_s;
-    let k = ((60.0 / dt_step).round() as u64).max(1);
-    let dt = k as f64 * dt_step;
-    let n = steps.div_ceil(k) as usize;
-    let hours = local_hours(weather, tz);
-    let mut sun = Sunlight::of(s, weather, b);
-    let loads: Vec<&Appliance> = s.loads().collect();
-    let skip: Vec<usize> = units.iter().map(|u| u.load).collect();
-    let gains = appliance_gains(&loads, tl, &skip, k, n);
-    let hp = units.iter().find_map(|u| match u.role {
-        Equipment::HeatPump(h) => Some(h.clone()),
-        _ => None,
-    });
-    let t0 = weather.temp_at(s.run.start_utc_ms);
-    let start_c = t0.clamp(b.heating_c, b.cooling_c.unwrap_or(f64::MAX));
-    let mut temps = Temps {
-        interior: start_c,
-        envelope: start_c,
+    let mut ctx = Run {
+        b,
+        weather,
+        hours: local_hours(weather, wide.tz),
+        sun: Sunlight::of(s, weather, b),
+        memo: Memo::new(wide),
+        loads: s.loads().collect(),
+        skip: units.iter().map(|u| u.load).collect(),
+        hp: units.iter().find_map(|u| match u.role {
+            Equipment::HeatPump(h) => Some(h.clone()),
+            _ => None,
+        }),
+        k: ((60.0 / wide.step_s).round() as u64).max(1),
+        wide_start_ms: wide.start_utc_ms,
+        wide_steps: wide.steps,
+        hourly: None,
     };
-    let mut ctl = Controls {
-        off_s: MIN_OFF_S,
-        ..Default::default()
+    let joined = {
+        let others: &[Timeline] = tl;
+        window::assemble_group(
+            cover,
+            WARM_UP,
+            |c, _| {
+                let log = ctx.block(&mut units, others, c);
+                let timelines = units
+                    .iter_mut()
+                    .map(|u| Timeline {
+                        segments: std::mem::take(&mut u.segs),
+                        level: Vec::new(),
+                    })
+                    .collect();
+                (timelines, log)
+            },
+            same_building,
+        )
     };
+    for (u, t) in units.iter().zip(joined.timelines.iter()) {
+        tl[u.load] = padded(t, cover_at, wide.steps);
+    }
+    record(&joined, run)
+}
+
+/// Two blocks' building temperatures this close count as one state, K: a
+/// tenth of the narrowest deadband of the demos (0.6 K).
+const SAME_TEMPS_K: f64 = 0.06;
+
+/// The building's temperatures at run step `t` of a block (at the start of
+/// the control step holding it).
+fn temps_at(p: &Piece<Vec<Logged>>, t: i64) -> Temps {
+    let log = &p.extra;
+    let j = log.partition_point(|l| l.from as i64 + p.offset() <= t);
+    log[j.saturating_sub(1)].temps
+}
+
+/// The larger difference of two blocks' node temperatures at run step `t`.
+fn temps_apart(a: &Piece<Vec<Logged>>, b: &Piece<Vec<Logged>>, t: i64) -> f64 {
+    let (x, y) = (temps_at(a, t), temps_at(b, t));
+    (x.interior - y.interior)
+        .abs()
+        .max((x.envelope - y.envelope).abs())
+}
+
+/// Blocks of the heat balance hand over where their equipment is in the
+/// same states, at best where their temperatures are alike too, else where
+/// they are least apart (a thermostat's cycle whose phase differs between
+/// the blocks keeps its temperatures apart until, say, the morning's
+/// recovery from the setback runs both to the same setpoint).
+fn same_building(a: &Piece<Vec<Logged>>, b: &Piece<Vec<Logged>>, t: i64) -> Fit {
+    if !window::same_states(a, b, t) {
+        return Fit::No;
+    }
+    match temps_apart(a, b, t) {
+        apart if apart <= SAME_TEMPS_K => Fit::Tight,
+        apart => Fit::Loose(apart),
+    }
+}
+
+/// `t` (over steps `at ..` of a clock of `steps`) with the steps before
+/// and after it off.
+fn padded(t: &Timeline, at: u64, steps: u64) -> Timeline {
+    let mut segments = Vec::with_capacity(t.segments.len() + 2);
+    let off = |start, end| Segment {
+        start,
+        end,
+        state: 0,
+        scale: 1.0,
+    };
+    if at > 0 {
+        segments.push(off(0, at));
+    }
+    segments.extend(t.segments.iter().map(|g| Segment {
+        start: g.start + at,
+        end: g.end + at,
+        ..*g
+    }));
+    let end = segments.last().map_or(0, |g| g.end);
+    if end < steps {
+        segments.push(off(end, steps));
+    }
+    Timeline {
+        segments,
+        level: Vec::new(),
+    }
+}
+
+/// The record over `run` from the blocks' logs, each block's over the
+/// steps it covers, and the temperature differences at the hand-overs.
+fn record(joined: &window::Joined<Vec<Logged>>, run: std::ops::Range<i64>) -> Record {
     let mut rec = Record::default();
-    let mut ops = Vec::with_capacity(units.len());
-    let mut cold = 0usize;
-    for i in 0..n {
-        let from = i as u64 * k;
-        let to = (from + k).min(steps);
-        let t_ms = s.run.start_utc_ms
-            + ((from as f64 + 0.5 * (to - from) as f64) * dt_step * 1000.0) as i64;
-        let t_out = weather.temp_at(t_ms);
-        let hour_idx = ((t_ms - weather.start_utc_ms) / 3_600_000).clamp(0, hours.len() as i64 - 1);
-        let set_h = b.heating_c
-            - b.setback.map_or(0.0, |(h, by)| {
-                if h[hours[hour_idx as usize] as usize] {
-                    by
-                } else {
-                    0.0
-                }
-            });
-        let ask = ctl.decide(b, set_h, temps.interior, t_out, hp.as_ref());
-        let may_run = ctl.compressor_may_run();
-        let (q_hvac, running, frosting) =
-            operate(&units, &ask, may_run, t_out, temps.interior, &mut ops);
-        let delays = blower_delays(dt_step);
-        for (u, &(state, scale)) in units.iter_mut().zip(&ops) {
-            u.push_delayed(from, to, state, scale, delays);
+    let (mut n, mut cold) = (0usize, 0usize);
+    let logs = &joined.extras;
+    for (i, log) in logs.iter().enumerate() {
+        let off = joined.offsets[i];
+        let lo = joined.cuts[i].max(run.start);
+        let hi = joined.cuts[i + 1].min(run.end);
+        for l in log
+            .iter()
+            .filter(|l| (lo..hi).contains(&(l.from as i64 + off)))
+        {
+            if l.q_j > 0.0 {
+                rec.heat_j += l.q_j;
+            } else {
+                rec.cool_j -= l.q_j;
+            }
+            rec.mean_indoor_c += l.temps.interior;
+            n += 1;
+            cold += usize::from(l.cold);
         }
-        if q_hvac > 0.0 {
-            rec.heat_j += q_hvac * dt;
-        } else {
-            rec.cool_j -= q_hvac * dt;
-        }
-        let q = q_hvac + b.gains_share * gains[i] + b.aperture_m2 * sun.ghi(t_ms);
-        let span = (to - from) as f64 * dt_step;
-        temps = step(b, temps, t_out, q, span);
-        ctl.after_step(running, frosting, span, hp.as_ref());
-        rec.mean_indoor_c += temps.interior / n as f64;
-        if temps.interior < set_h - 1.0 {
-            cold += 1;
+        let cut = joined.cuts[i + 1];
+        if i + 1 < logs.len() && run.contains(&cut) {
+            let before = |log: &[Logged], off: i64| {
+                let j = log.partition_point(|l| l.from as i64 + off <= cut);
+                log[j.saturating_sub(1)].temps
+            };
+            let (a, b) = (
+                before(log, off),
+                before(&logs[i + 1], joined.offsets[i + 1]),
+            );
+            let d = (a.interior - b.interior)
+                .abs()
+                .max((a.envelope - b.envelope).abs());
+            rec.handover_k = rec.handover_k.max(d);
         }
     }
-    rec.cold_share = cold as f64 / n as f64;
-    for u in units {
-        tl[u.load] = Timeline {
-            segments: u.segs,
-            level: Vec::new(),
-        };
+    if n > 0 {
+        rec.mean_indoor_c /= n as f64;
+        rec.cold_share = cold as f64 / n as f64;
     }
     rec
 }
