@@ -81,7 +81,9 @@ fn by_end_use(ds: &Dataset, kwh: &[Vec<f64>]) -> (Vec<String>, Vec<Vec<f64>>) {
 /// Appliances drawn on their own; the rest share one grey part.
 const OWN_PARTS: usize = 12;
 
-/// One local month: its label, its UTC span and the days of it in the data.
+/// One local month: its label, its UTC span and the days of it in the data
+/// (calendar days: a month with a change to or from daylight-saving time
+/// counts its 31 or 30 days, not its 30 23/24 or 30 25/24 elapsed).
 struct Month {
     label: String,
     end_ms: i64,
@@ -102,12 +104,25 @@ fn months(tz: &jiff::tz::TimeZone, t0: i64, t1: i64) -> Result<Vec<Month>, jiff:
         out.push(Month {
             label: first.strftime("%Y-%m").to_string(),
             end_ms,
-            days: (end_ms.min(t1) - start) as f64 / 8.64e7,
+            days: local_days(tz, start, end_ms.min(t1))?,
         });
         start = end_ms;
         first = next;
     }
     Ok(out)
+}
+
+/// Days of the local calendar from instant `a_ms` to `b_ms`: the wall
+/// clocks' difference, so a day that the change to or from daylight-saving
+/// time makes 23 or 25 hours long counts as one.
+fn local_days(tz: &jiff::tz::TimeZone, a_ms: i64, b_ms: i64) -> Result<f64, jiff::Error> {
+    let wall = |ms: i64| -> Result<jiff::civil::DateTime, jiff::Error> {
+        Ok(jiff::Timestamp::from_millisecond(ms)?
+            .to_zoned(tz.clone())
+            .datetime())
+    };
+    let d = wall(a_ms)?.duration_until(wall(b_ms)?);
+    Ok(d.as_secs_f64() / 86_400.0)
 }
 
 /// kWh per month (rows) and appliance (columns) from the truth's `ID_p_w`.
@@ -368,4 +383,33 @@ fn legend(svg: &mut String, (lx, top): (f64, f64), title: &str, parts: &[(String
         );
     }
     svg.push_str("</g>");
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn instant(tz: &jiff::tz::TimeZone, civil: &str) -> i64 {
+        let dt: jiff::civil::DateTime = civil.parse().unwrap();
+        dt.to_zoned(tz.clone()).unwrap().timestamp().as_millisecond()
+    }
+
+    #[test]
+    fn months_with_a_clock_change_count_calendar_days() {
+        // Chicago moves its clocks on 2027-03-14 and 2027-11-07 (US rule,
+        // second Sunday of March and first Sunday of November).
+        let tz = jiff::tz::TimeZone::get("America/Chicago").unwrap();
+        let (t0, t1) = (
+            instant(&tz, "2027-03-01T00:00"),
+            instant(&tz, "2027-12-01T00:00"),
+        );
+        let ms = months(&tz, t0, t1).unwrap();
+        let days: Vec<f64> = ms.iter().map(|m| m.days).collect();
+        assert_eq!(days, [31.0, 30.0, 31.0, 30.0, 31.0, 31.0, 30.0, 31.0, 30.0]);
+        // Elapsed time differs in the two months of a change.
+        assert_eq!((ms[0].end_ms - t0) as f64 / 3.6e6, 31.0 * 24.0 - 1.0);
+        // A part of a month counts its wall-clock days.
+        let half = instant(&tz, "2027-03-16T12:00");
+        assert_eq!(months(&tz, t0, half).unwrap()[0].days, 15.5);
+    }
 }
