@@ -391,7 +391,10 @@ mod tests {
 
     fn instant(tz: &jiff::tz::TimeZone, civil: &str) -> i64 {
         let dt: jiff::civil::DateTime = civil.parse().unwrap();
-        dt.to_zoned(tz.clone()).unwrap().timestamp().as_millisecond()
+        dt.to_zoned(tz.clone())
+            .unwrap()
+            .timestamp()
+            .as_millisecond()
     }
 
     #[test]
