@@ -221,7 +221,7 @@ pub fn timelines(s: &Scenario, steps: u64) -> Vec<Timeline> {
 ///
 /// A building's heat balance and a battery run in day blocks, each from a
 /// warm-up before its day ([`crate::thermal::WARM_UP`],
-/// [`storage::WARM_UP`]), so the other loads are made over a wider clock
+/// `storage::WARM_UP`), so the other loads are made over a wider clock
 /// than the run: the blocks reaching furthest back are the battery's, whose
 /// days need the thermostatic loads over their warm-up, whose days need the
 /// other loads over theirs.

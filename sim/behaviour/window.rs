@@ -199,7 +199,7 @@ pub struct Joined<X> {
 /// battery): `generate(clock, block)` makes a block's timelines over its
 /// own clock, which runs `reach` before and after the block, with anything
 /// else it keeps (`X`); each block hands over to the next at the first
-/// moment from its start where they agree ([`hand_over`]). Which block
+/// moment from its start where they agree (`hand_over`). Which block
 /// covers which moment depends on the blocks alone, never on the run.
 pub fn assemble_group<X>(
     clock: &Clock,
