@@ -62,29 +62,28 @@ impl Truth {
 }
 
 /// Rows of truth gathered a block at a time before they join the columns
-/// of [`Truth`]: a row is written once into `last`, and each column's run
-/// of repeats is filled in one stroke when the row next changes, so a step
-/// on which nothing was solved costs no stores. Storing each value straight
-/// into its own column touched about a hundred far-apart cache lines per
-/// row at one step per interval.
+/// of [`Truth`]: a row is written once into `last`, and the rows that
+/// repeat it are filled when the row next changes, so a step on which
+/// nothing was solved costs no stores. Storing each value straight into
+/// its own column touched about a hundred far-apart cache lines per row at
+/// one step per interval.
 struct TruthRows {
-    /// `[column * BLOCK_ROWS + row]`, columns in [`Truth`]'s order: per
-    /// appliance P, Q, P per line and the state of charge if it has one;
-    /// then the unmetered loads' P.
+    /// `[column * BLOCK_ROWS + row]`, columns in [`Truth`]'s order but for
+    /// the states of charge: per appliance P, Q and P per line; then the
+    /// unmetered loads' P.
     values: Vec<f32>,
+    /// `[store * BLOCK_ROWS + row]`: the stores' states of charge, which
+    /// change every row and are written at once.
+    socs: Vec<f32>,
     /// `[appliance * BLOCK_ROWS + row]`: the state held.
     states: Vec<u16>,
     /// The latest row: what the rows from `filled` on repeat.
     last: Vec<f32>,
     /// The latest row's states.
     last_states: Vec<u16>,
-    /// Per column: a state of charge, which changes every row and is
-    /// written into `values` at once.
-    direct: Vec<bool>,
     /// Rows in the block so far.
     rows: usize,
-    /// Rows of the block written out; rows `filled..rows` repeat `last`
-    /// (but for the `direct` columns).
+    /// Rows of the block written out; rows `filled..rows` repeat `last`.
     filled: usize,
 }
 
@@ -95,21 +94,16 @@ const BLOCK_ROWS: usize = 64;
 
 impl TruthRows {
     fn new(truth: &Truth) -> Self {
-        let mut direct = Vec::new();
-        for k in 0..truth.app_p.len() {
-            direct.extend(std::iter::repeat_n(false, 2 + truth.app_line_p[k].len()));
-            if truth.app_soc[k].is_some() {
-                direct.push(true);
-            }
-        }
-        direct.push(false);
+        let columns =
+            2 * truth.app_p.len() + truth.app_line_p.iter().map(Vec::len).sum::<usize>() + 1;
+        let stores = truth.app_soc.iter().flatten().count();
         let apps = truth.app_state.len();
         TruthRows {
-            values: vec![0.0; direct.len() * BLOCK_ROWS],
+            values: vec![0.0; columns * BLOCK_ROWS],
+            socs: vec![0.0; stores * BLOCK_ROWS],
             states: vec![0; apps * BLOCK_ROWS],
-            last: vec![0.0; direct.len()],
+            last: vec![0.0; columns],
             last_states: vec![0; apps],
-            direct,
             rows: 0,
             filled: 0,
         }
@@ -119,16 +113,16 @@ impl TruthRows {
     /// out before [`TruthRows::put`] and [`TruthRows::put_state`] replace it.
     fn change(&mut self) {
         let (from, to) = (self.filled, self.rows);
-        if from < to {
-            let runs = self.values.chunks_exact_mut(BLOCK_ROWS);
-            for ((run, &v), &direct) in runs.zip(&self.last).zip(&self.direct) {
-                if !direct {
-                    run[from..to].fill(v);
-                }
+        for r in from..to {
+            for (run, &v) in self.values.chunks_exact_mut(BLOCK_ROWS).zip(&self.last) {
+                run[r] = v;
             }
-            let runs = self.states.chunks_exact_mut(BLOCK_ROWS);
-            for (run, &st) in runs.zip(&self.last_states) {
-                run[from..to].fill(st);
+            for (run, &st) in self
+                .states
+                .chunks_exact_mut(BLOCK_ROWS)
+                .zip(&self.last_states)
+            {
+                run[r] = st;
             }
         }
         self.filled = to;
@@ -146,10 +140,10 @@ impl TruthRows {
         self.last_states[app] = state;
     }
 
-    /// A state-of-charge column of the row in progress.
+    /// The state of charge of the `store`-th store in the row in progress.
     #[inline]
-    fn put_direct(&mut self, column: usize, v: f32) {
-        self.values[column * BLOCK_ROWS + self.rows] = v;
+    fn put_soc(&mut self, store: usize, v: f32) {
+        self.socs[store * BLOCK_ROWS + self.rows] = v;
     }
 
     /// Closes the row (a repeat of the last unless changed).
@@ -169,12 +163,13 @@ impl TruthRows {
         let n = self.rows;
         let mut columns = self.values.chunks_exact(BLOCK_ROWS).map(|c| &c[..n]);
         let mut next = |to: &mut Vec<f32>| to.extend_from_slice(columns.next().expect("a column"));
+        let mut socs = self.socs.chunks_exact(BLOCK_ROWS).map(|c| &c[..n]);
         for k in 0..truth.app_p.len() {
             next(&mut truth.app_p[k]);
             next(&mut truth.app_q[k]);
             truth.app_line_p[k].iter_mut().for_each(&mut next);
             if let Some(col) = truth.app_soc[k].as_mut() {
-                next(col);
+                col.extend_from_slice(socs.next().expect("a store"));
             }
         }
         next(&mut truth.unmetered_p);
@@ -639,22 +634,16 @@ struct IntervalSums<'a> {
     lines: Vec<Vec<usize>>,
     /// Per appliance: its timeline if it is a store (a state-of-charge column).
     stores: Vec<Option<&'a Timeline>>,
-    /// (appliance, truth column) of each state-of-charge column.
-    soc_columns: Vec<(usize, usize)>,
+    /// The stores, in the order of their state-of-charge columns.
+    soc_apps: Vec<usize>,
 }
 
 impl<'a> IntervalSums<'a> {
     fn new(net: &Network, k_int: u64, truth: &Truth, timelines: &'a [Timeline]) -> Self {
         let n_apps = net.apps.len();
-        let mut soc_columns = Vec::new();
-        let mut c = 0;
-        for k in 0..truth.app_p.len() {
-            c += 2 + truth.app_line_p[k].len();
-            if truth.app_soc[k].is_some() {
-                soc_columns.push((k, c));
-                c += 1;
-            }
-        }
+        let soc_apps = (0..truth.app_p.len())
+            .filter(|&k| truth.app_soc[k].is_some())
+            .collect();
         let max_states = net.apps.iter().map(|a| a.states.len()).max().unwrap_or(1);
         IntervalSums {
             p: vec![0.0; n_apps],
@@ -671,7 +660,7 @@ impl<'a> IntervalSums<'a> {
                 .zip(timelines)
                 .map(|(soc, tl)| soc.as_ref().map(|_| tl))
                 .collect(),
-            soc_columns,
+            soc_apps,
         }
     }
 
@@ -735,7 +724,6 @@ impl<'a> IntervalSums<'a> {
                 c += 1;
             }
             rows.put_state(k, walk.state[k] as u16);
-            c += usize::from(self.stores[k].is_some());
         }
         rows.put(c, unmetered as f32);
         self.put_socs(rows, walk, step);
@@ -745,9 +733,9 @@ impl<'a> IntervalSums<'a> {
     /// The stores' states of charge at the end of the interval that closes
     /// at `step`, into the row in progress.
     fn put_socs(&self, rows: &mut TruthRows, walk: &Walk, step: u64) {
-        for &(k, column) in &self.soc_columns {
+        for (store, &k) in self.soc_apps.iter().enumerate() {
             let tl = self.stores[k].expect("a store");
-            rows.put_direct(column, self.soc(tl, walk, k, step));
+            rows.put_soc(store, self.soc(tl, walk, k, step));
         }
     }
 
@@ -776,7 +764,6 @@ impl<'a> IntervalSums<'a> {
             }
             let st = self.held_state(k);
             rows.put_state(k, st as u16);
-            c += usize::from(self.stores[k].is_some());
             self.reset(k);
         }
         rows.put(c, unmetered as f32);
