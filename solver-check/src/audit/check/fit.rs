@@ -373,6 +373,22 @@ pub(super) struct Fits {
     wander: Vec<bool>,
 }
 
+impl Fits {
+    /// Per step, whether a jump or the wander fits it.
+    pub(super) fn steps(&self) -> Vec<bool> {
+        self.jump
+            .iter()
+            .zip(&self.wander)
+            .map(|(j, w)| *j || *w)
+            .collect()
+    }
+
+    /// Steps one of the jumps fits.
+    pub(super) fn jumps_fitting(&self) -> usize {
+        self.jump.iter().filter(|x| **x).count()
+    }
+}
+
 pub(super) fn fits_of(d: &Declared, m: &Metering, a: &DeclAppliance, events: &[&Event]) -> Fits {
     let sig = predicted(d, m, a);
     let shape = shape_of(d, m, a);

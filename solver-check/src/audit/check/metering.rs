@@ -231,9 +231,102 @@ pub(super) fn channel_findings(
     (findings, notes)
 }
 
-/// A metering hypothesis as scored: (index, appliances fitted, steps
-/// explained, negative share, cost).
-pub(super) type Scored = (usize, usize, usize, f64, usize);
+/// A metering hypothesis as scored on the steps of 150 VA or more.
+pub(super) struct Scored {
+    /// Its index among the hypotheses.
+    pub(super) i: usize,
+    /// Appliances two or more steps fit.
+    pub(super) apps: usize,
+    /// Steps some appliance explains.
+    pub(super) ex: usize,
+    /// Share of rows with a clearly negative implied conductor power.
+    pub(super) neg: f64,
+    /// Conductors and signs it changes against the declared metering.
+    pub(super) cost: usize,
+    /// Per appliance, per step, whether the appliance explains the step
+    /// (empty when the hypothesis is not admissible).
+    pub(super) owns: Vec<Vec<bool>>,
+}
+
+impl Scored {
+    fn admissible(&self, th: &Thresholds) -> bool {
+        self.neg <= th.negative_ok
+    }
+
+    fn explains(&self, k: usize) -> bool {
+        self.owns.iter().any(|o| o[k])
+    }
+}
+
+/// The steps two meterings disagree on: those only `found` explains
+/// (gained), those only the declared one explains (lost), and the declared
+/// appliances the difference speaks for and against.
+#[derive(Debug, PartialEq)]
+pub(super) struct Dispute {
+    pub(super) gained: usize,
+    pub(super) lost: usize,
+    /// Appliances that explain steps only under `found` (two or more, at
+    /// least twice those they explain only as declared).
+    pub(super) for_found: usize,
+    /// Appliances that explain steps only as declared, the other way round.
+    pub(super) for_declared: usize,
+}
+
+/// A step's worth of evidence: one run is a start and a stop.
+const RUN_STEPS: usize = 2;
+
+/// The evidence of the declared appliances on which `found` and `decl`
+/// differ. A metering fault moves every appliance on the channels it
+/// concerns, so its evidence comes from several appliances; one busy
+/// appliance on another line, or a load of a declared one's size nobody
+/// declared, speaks through one.
+pub(super) fn dispute(found: &Scored, decl: &Scored) -> Dispute {
+    let n = found.owns.first().or(decl.owns.first()).map_or(0, Vec::len);
+    let only_f: Vec<bool> = (0..n)
+        .map(|k| found.explains(k) && !decl.explains(k))
+        .collect();
+    let only_d: Vec<bool> = (0..n)
+        .map(|k| decl.explains(k) && !found.explains(k))
+        .collect();
+    let count = |own: Option<&Vec<bool>>, only: &[bool]| {
+        own.map_or(0, |o| (0..n).filter(|&k| o[k] && only[k]).count())
+    };
+    let (mut for_found, mut for_declared) = (0, 0);
+    for j in 0..found.owns.len().max(decl.owns.len()) {
+        let g = count(found.owns.get(j), &only_f);
+        let l = count(decl.owns.get(j), &only_d);
+        for_found += (g >= RUN_STEPS && g >= 2 * l) as usize;
+        for_declared += (l >= RUN_STEPS && l >= 2 * g) as usize;
+    }
+    Dispute {
+        gained: only_f.iter().filter(|x| **x).count(),
+        lost: only_d.iter().filter(|x| **x).count(),
+        for_found,
+        for_declared,
+    }
+}
+
+impl Dispute {
+    /// Whether the evidence clearly favours the metering found: twice the
+    /// steps (and a run's worth) and twice the appliances, two at least.
+    fn favours_found(&self) -> bool {
+        self.gained >= 2 * (self.lost + RUN_STEPS)
+            && self.for_found >= 2
+            && self.for_found >= 2 * self.for_declared
+    }
+
+    /// The share of the disputed steps that speak for the metering found,
+    /// with two runs' steps of doubt, times the share of the appliances
+    /// that take sides that take its side (none: no evidence).
+    fn share(&self) -> f64 {
+        let sides = self.for_found + self.for_declared;
+        if sides == 0 {
+            return 0.0;
+        }
+        self.gained as f64 / (self.gained + self.lost + 2 * RUN_STEPS) as f64
+            * (self.for_found as f64 / sides as f64)
+    }
+}
 
 /// The metering hypotheses, each scored, the declared one's index and the
 /// one chosen.
@@ -245,23 +338,31 @@ pub(super) struct MeteringChoice {
     pub(super) chosen: usize,
 }
 
-/// The declared metering while it is admissible and explains at least
-/// 90 % of the steps the best admissible one explains; otherwise the
-/// cheapest admissible hypothesis within 95 % of the best.
+/// The declared metering while it is admissible, explains at least 90 %
+/// of the steps the best admissible one explains and the declared
+/// appliances' evidence does not clearly favour that one
+/// ([`Dispute::favours_found`]); otherwise the cheapest admissible
+/// hypothesis within 95 % of the best.
 pub(super) fn best_admissible(scored: &[Scored], decl_i: usize, th: &Thresholds) -> usize {
-    let ok = |s: &&Scored| s.3 <= th.negative_ok;
-    let (decl_ex, decl_neg) = (scored[decl_i].2, scored[decl_i].3);
-    let best_ex = scored.iter().filter(ok).map(|s| s.2).max().unwrap_or(0);
-    if decl_neg <= th.negative_ok && decl_ex as f64 >= 0.9 * best_ex as f64 {
+    let decl = &scored[decl_i];
+    let best_ex = scored
+        .iter()
+        .filter(|s| s.admissible(th))
+        .map(|s| s.ex)
+        .max()
+        .unwrap_or(0);
+    let cand = scored
+        .iter()
+        .filter(|s| s.admissible(th) && s.ex as f64 >= 0.95 * best_ex as f64)
+        .min_by_key(|s| (s.cost, usize::MAX - s.ex))
+        .map_or(decl_i, |s| s.i);
+    let keeps = decl.admissible(th)
+        && decl.ex as f64 >= 0.9 * best_ex as f64
+        && !dispute(&scored[cand], decl).favours_found();
+    if keeps {
         decl_i
     } else {
-        scored
-            .iter()
-            .filter(ok)
-            .filter(|s| s.2 as f64 >= 0.95 * best_ex as f64)
-            .min_by_key(|s| (s.4, usize::MAX - s.2))
-            .map(|s| s.0)
-            .unwrap_or(decl_i)
+        cand
     }
 }
 
@@ -294,6 +395,33 @@ pub(super) fn most_with_one_move(
     most
 }
 
+/// Hypothesis `i`, metering `m` of `cost`, scored on the steps `big`.
+fn score(
+    d: &Declared,
+    m: &Metering,
+    cost: usize,
+    i: usize,
+    stats: &[ChannelStats],
+    big: &[&Event],
+    th: &Thresholds,
+) -> Scored {
+    let neg = negative_share(m, stats);
+    let fits: Vec<Fits> = if neg <= th.negative_ok {
+        d.appliances.iter().map(|a| fits_of(d, m, a, big)).collect()
+    } else {
+        Vec::new()
+    };
+    let owns: Vec<Vec<bool>> = fits.iter().map(Fits::steps).collect();
+    Scored {
+        i,
+        apps: fits.iter().filter(|f| f.jumps_fitting() >= 2).count(),
+        ex: steps_explained(&fits, big.len()),
+        neg,
+        cost,
+        owns,
+    }
+}
+
 /// Scores every metering hypothesis on the steps `big` and chooses one.
 pub(super) fn choose_metering(
     d: &Declared,
@@ -307,19 +435,11 @@ pub(super) fn choose_metering(
     let scored: Vec<Scored> = hyps
         .iter()
         .enumerate()
-        .map(|(i, (m, cost))| {
-            let neg = negative_share(m, stats);
-            let (apps, ex) = if neg <= th.negative_ok {
-                explained(d, m, big)
-            } else {
-                (0, 0)
-            };
-            (i, apps, ex, neg, *cost)
-        })
+        .map(|(i, (m, cost))| score(d, m, *cost, i, stats, big, th))
         .collect();
     let decl_i = hyps.iter().position(|(m, _)| *m == decl_m).unwrap_or(0);
     let chosen = best_admissible(&scored, decl_i, th);
-    let (decl_ex, decl_neg) = (scored[decl_i].2, scored[decl_i].3);
+    let (decl_ex, decl_neg) = (scored[decl_i].ex, scored[decl_i].neg);
     // One appliance on another connection is a simpler mistake than a
     // metering fault: the declared metering stands when, with the one
     // appliance moved that helps most, it explains as many steps as the
@@ -328,7 +448,7 @@ pub(super) fn choose_metering(
     // metering where two channels were in fact exchanged.)
     let chosen = if chosen != decl_i
         && decl_neg <= th.negative_ok
-        && most_with_one_move(d, &decl_m, big, decl_ex) >= scored[chosen].2
+        && most_with_one_move(d, &decl_m, big, decl_ex) >= scored[chosen].ex
     {
         decl_i
     } else {
@@ -344,30 +464,27 @@ pub(super) fn choose_metering(
 }
 
 /// The confidence that the metering found (`ch`) and not the declared one
-/// (`decl`) is right: the share of the `n_big` steps the declared metering
-/// leaves unexplained that the metering found explains, of the appliances
-/// only it fits, of the `replaced` appliance moves it replaces, or of
-/// negative power the declared one implies: whichever says most.
+/// (`decl`) is right: the share of the steps the two disagree on that the
+/// metering found explains ([`Dispute::share`]; the declared appliances'
+/// evidence, however many steps are other loads'), of the appliances only
+/// it fits, of the `replaced` appliance moves it replaces, or of negative
+/// power the declared one implies: whichever says most.
 pub(super) fn metering_confidence(
     decl: &Scored,
     ch: &Scored,
-    n_big: usize,
     replaced: usize,
     th: &Thresholds,
 ) -> f64 {
-    let (decl_apps, decl_ex, decl_neg) = (decl.1, decl.2, decl.3);
-    let (ch_apps, ch_ex) = (ch.1, ch.2);
-    let by_apps = 1.0 - (decl_apps as f64 + 1.0) / (ch_apps as f64 + 1.0);
-    let by_steps =
-        ch_ex.saturating_sub(decl_ex) as f64 / (n_big.saturating_sub(decl_ex) as f64).max(1.0);
+    let by_apps = 1.0 - (decl.apps as f64 + 1.0) / (ch.apps as f64 + 1.0);
+    let by_steps = dispute(ch, decl).share();
     let by_moves = if replaced > 0 {
         1.0 - 1.0 / replaced as f64
     } else {
         0.0
     };
     let mut conf = by_apps.max(by_steps).max(by_moves);
-    if decl_neg > th.negative_ok {
-        conf = conf.max(decl_neg);
+    if !decl.admissible(th) {
+        conf = conf.max(decl.neg);
     }
     conf.clamp(0.0, 1.0)
 }
@@ -445,18 +562,18 @@ pub(super) fn simpler_account(
     let mut tried: Vec<&Scored> = mc
         .scored
         .iter()
-        .filter(|s| s.0 != mc.decl_i && s.3 <= th.negative_ok)
+        .filter(|s| s.i != mc.decl_i && s.admissible(th))
         .collect();
-    tried.sort_by_key(|s| (usize::MAX - s.2, s.4));
+    tried.sort_by_key(|s| (usize::MAX - s.ex, s.cost));
     tried
         .into_iter()
         .take(SIMPLER_TRIED)
         .filter_map(|s| {
-            let faults = metering_mistakes(d, &mc.decl_m, &mc.hyps[s.0].0);
+            let faults = metering_mistakes(d, &mc.decl_m, &mc.hyps[s.i].0);
             if faults >= as_declared.moves.len() {
                 return None;
             }
-            let p = place_under(d, mc, s.0, used, interval_s, th);
+            let p = place_under(d, mc, s.i, used, interval_s, th);
             let (mistakes, ex) = (faults + p.moves.len(), explains(&p));
             (mistakes < as_declared.moves.len() && ex >= bar).then_some((mistakes, ex, p))
         })
@@ -689,6 +806,58 @@ mod tests {
             .collect();
         v.sort();
         v
+    }
+
+    /// A hypothesis whose appliances explain the steps `owns` (per
+    /// appliance, the indices of its steps among `n`).
+    fn scored(i: usize, owns: &[&[usize]], n: usize) -> Scored {
+        let owns: Vec<Vec<bool>> = owns
+            .iter()
+            .map(|ks| (0..n).map(|k| ks.contains(&k)).collect())
+            .collect();
+        Scored {
+            i,
+            apps: 0,
+            ex: (0..n).filter(|&k| owns.iter().any(|o| o[k])).count(),
+            neg: 0.0,
+            cost: 1,
+            owns,
+        }
+    }
+
+    /// Three appliances whose steps only the hypothesis explains, none that
+    /// only the declared metering explains: the evidence favours it, and
+    /// the share is the disputed steps' with four of doubt. One busy
+    /// appliance gaining many steps while two others lose theirs is one
+    /// appliance elsewhere (or a load of its size), not a metering fault.
+    #[test]
+    fn a_metering_fault_is_seen_through_several_appliances() {
+        let decl = scored(0, &[&[0, 1], &[], &[], &[]], 20);
+        let found = scored(1, &[&[0, 1], &[2, 3, 4, 5], &[6, 7], &[8, 9]], 20);
+        let d = dispute(&found, &decl);
+        assert_eq!(
+            d,
+            Dispute {
+                gained: 8,
+                lost: 0,
+                for_found: 3,
+                for_declared: 0
+            }
+        );
+        assert!(d.favours_found());
+        assert!((d.share() - 8.0 / 12.0).abs() < 1e-12);
+        let decl = scored(0, &[&[0, 1, 2], &[3, 4, 5], &[]], 20);
+        let found = scored(1, &[&[], &[], &(6..20).collect::<Vec<_>>()], 20);
+        let d = dispute(&found, &decl);
+        assert_eq!(
+            (d.gained, d.lost, d.for_found, d.for_declared),
+            (14, 6, 1, 2)
+        );
+        assert!(!d.favours_found());
+        assert!((d.share() - 14.0 / 24.0 / 3.0).abs() < 1e-12);
+        // Nothing disputed: no evidence either way.
+        let d = dispute(&decl, &decl);
+        assert!(!d.favours_found() && d.share() == 0.0);
     }
 
     /// Channels l1 and l3 exchanged whole and the kettle declared on L3-N

@@ -45,8 +45,8 @@ use crate::audit::events::{ChannelStats, Event};
 use crate::contract::line_name;
 use finding::sort_findings;
 use metering::{
-    absent_channels, channel_findings, choose_metering, metering_confidence, metering_findings,
-    place_under, silent_channel_accounts, simpler_account, Placement,
+    absent_channels, channel_findings, choose_metering, dispute, metering_confidence,
+    metering_findings, place_under, silent_channel_accounts, simpler_account, Placement,
 };
 use placement::indistinct_notes;
 use serde_json::json;
@@ -102,9 +102,9 @@ pub fn check_with(
     let mc = choose_metering(d, stats, &absent, &big, th);
     let (decl_i, mut chosen) = (mc.decl_i, mc.chosen);
     let (decl_apps, decl_ex, decl_neg) = (
-        mc.scored[decl_i].1,
-        mc.scored[decl_i].2,
-        mc.scored[decl_i].3,
+        mc.scored[decl_i].apps,
+        mc.scored[decl_i].ex,
+        mc.scored[decl_i].neg,
     );
     // 2. Appliances, under the metering chosen; several appliances moved
     // where a metering fault and fewer moves explain as much is the less
@@ -126,16 +126,11 @@ pub fn check_with(
         ..
     } = pl;
     let m = mc.hyps[chosen].0.clone();
-    let (ch_apps, ch_ex) = (mc.scored[chosen].1, mc.scored[chosen].2);
+    let (ch_apps, ch_ex) = (mc.scored[chosen].apps, mc.scored[chosen].ex);
     if chosen != decl_i {
-        let conf = metering_confidence(
-            &mc.scored[decl_i],
-            &mc.scored[chosen],
-            big.len(),
-            replaced,
-            th,
-        );
-        let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg, "appliance_moves_replaced": replaced });
+        let conf = metering_confidence(&mc.scored[decl_i], &mc.scored[chosen], replaced, th);
+        let dsp = dispute(&mc.scored[chosen], &mc.scored[decl_i]);
+        let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "explained_only_as_found": dsp.gained, "explained_only_as_declared": dsp.lost, "appliances_for_found": dsp.for_found, "appliances_for_declared": dsp.for_declared, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg, "appliance_moves_replaced": replaced });
         metering_findings(d, &mc.decl_m, &m, conf, ev, &mut findings);
         silent_channel_accounts(&m, &mut findings, &mut notes);
     }
