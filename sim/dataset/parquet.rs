@@ -9,7 +9,6 @@
 
 use super::dict_column::{self, DictColumn};
 use super::float_column::{self, FloatColumn};
-use super::sink::{ROW_GROUP_ROWS, ZSTD_LEVEL};
 use arrow_array::{ArrayRef, RecordBatch};
 use arrow_schema::{DataType, FieldRef, SchemaRef};
 use bytes::Bytes;
@@ -23,6 +22,14 @@ use parquet::file::writer::SerializedFileWriter;
 use std::fs::File;
 use std::io::{self, BufWriter, Write};
 use std::sync::Mutex;
+
+/// Rows per row group: 1 Mi rows (the parquet crate's and pyarrow's
+/// default; 12 days at 1 s), so a reader that works a row group per thread
+/// has several for a month at 1 s, and the writer buffers at most one.
+pub const ROW_GROUP_ROWS: usize = 1 << 20;
+
+/// zstd level 1: chosen by measurement (DEVELOPERS.md, "Parquet writer").
+pub(crate) const ZSTD_LEVEL: i32 = 1;
 
 fn to_io(e: impl std::fmt::Display) -> io::Error {
     io::Error::other(e.to_string())

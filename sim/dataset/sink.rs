@@ -13,6 +13,8 @@ use std::io::{self, BufWriter, Write};
 use std::path::Path;
 use std::sync::Arc;
 
+use super::parquet::{ROW_GROUP_ROWS, ZSTD_LEVEL};
+
 /// The file format of a dataset's tables.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Format {
@@ -136,14 +138,6 @@ pub enum Values {
     /// 1 MiB pages).
     Stepwise,
 }
-
-/// Rows per row group: 1 Mi rows (the parquet crate's and pyarrow's
-/// default; 12 days at 1 s), so a reader that works a row group per thread
-/// has several for a month at 1 s, and the writer buffers at most one.
-pub const ROW_GROUP_ROWS: usize = 1 << 20;
-
-/// zstd level 1: chosen by measurement (DEVELOPERS.md, "Parquet writer").
-pub(crate) const ZSTD_LEVEL: i32 = 1;
 
 /// Writer settings per column kind: delta-coded `time`, byte-stream-split
 /// floats, dictionaries only on the categorical (string) columns, zstd for
