@@ -1,6 +1,6 @@
 """The README's Slurm recipe on a real scheduler: a single-node Slurm
 (Debian's slurm-wlm and munge, started here as root in a folder of their
-own, on ports of their own), the README's job array submitted with sbatch,
+own, on free ports the kernel picks), the README's job array submitted with sbatch,
 waited for, the final index pass run, and the fleet compared byte for byte
 with an unsharded run. Skipped only where the packages are not installed
 (tests/run_all.sh installs them where it can)."""
@@ -30,11 +30,26 @@ def recipe():
     return blocks
 
 
+def free_ports(n):
+    """`n` TCP ports nothing listens on now, chosen by the kernel, so two runs
+    of this test on one machine (two checkouts' suites at once) do not both
+    bind the same ports."""
+    socks = [socket.socket() for _ in range(n)]
+    try:
+        for s in socks:
+            s.bind(("", 0))
+        return [s.getsockname()[1] for s in socks]
+    finally:
+        for s in socks:
+            s.close()
+
+
 def conf(d, cpus):
     """slurm.conf for one node, this machine; everything in `d`. The settings
     a single-node cluster needs without cgroups: processes tracked through
-    /proc, no task plugin, no accounting."""
+    /proc, no task plugin, no accounting; the daemons' ports free ones."""
     host = socket.gethostname()
+    ctld_port, slurmd_port = free_ports(2)
     return f"""ClusterName=loadloom-test
 SlurmctldHost={host}
 SlurmUser=root
@@ -52,8 +67,8 @@ ReturnToService=2
 SchedulerType=sched/builtin
 SelectType=select/cons_tres
 SelectTypeParameters=CR_Core
-SlurmctldPort=16817
-SlurmdPort=16818
+SlurmctldPort={ctld_port}
+SlurmdPort={slurmd_port}
 StateSaveLocation={d}/state
 SlurmdSpoolDir={d}/spool
 SlurmctldPidFile={d}/slurmctld.pid
