@@ -44,7 +44,7 @@ const POPULATION: &str = include_str!("../scenarios/fleet/mixed-street.toml");
 
 /// Cases accepted by the decoder and simulated (the rest were refused).
 static ACCEPTED: AtomicUsize = AtomicUsize::new(0);
-/// Of those, cases with an appended section (weather, building, thermostat,
+/// Of those, cases with a section put in or mutated (weather, building, thermostat,
 /// PV, battery): the sweep must reach that physics, not only its refusals.
 static SECTIONS_ACCEPTED: AtomicUsize = AtomicUsize::new(0);
 /// Cases given as bytes with an invalid UTF-8 sequence inserted.
@@ -145,7 +145,7 @@ fn splice(text: &str, (s, e): (usize, usize), new: &str) -> String {
     format!("{}{new}{}", &text[..s], &text[e..])
 }
 
-/// Sections a demo may not have, appended whole (then often with one value
+/// Sections put in whole, replacing the demo's own where it has one (then often with one value
 /// made extreme): the weather, the building and its thermostatic loads, PV
 /// and a battery. Written out here from the README's language, not taken
 /// from the decoder.
@@ -154,17 +154,79 @@ const SECTIONS: [&str; 9] = [
     "[weather]\nmonthly = [\"-4 °C\", \"-3 °C\", \"2 °C\", \"8 °C\", \"14 °C\", \"20 °C\", \"23 °C\", \"22 °C\", \"18 °C\", \"11 °C\", \"4 °C\", \"-2 °C\"]\ndaily_swing = \"9 K\"\n",
     "[weather]\nmean = \"9 °C\"\nswing = \"18 K\"\ncoldest = \"January\"\n",
     "[building]\nua = \"250 W/K\"\nmass = \"30 MJ/K\"\nair = \"3 MJ/K\"\ndirect = \"40 %\"\ncoupling = \"2500 W/K\"\nheating = \"20.5 °C\"\ncooling = \"24 °C\"\ndeadband = \"1 K\"\nsecond_stage = \"1 K\"\nsetback = { hours = \"23-6\", by = \"2 K\" }\ngains = \"80 %\"\naperture = \"3 m²\"\n",
-    "[[appliance]]\nid = \"added_heat_pump\"\nwiring = \"L1-L2\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"heat-pump\"\ncop = 3.6\nlow_capacity = \"62 %\"\ncooling_cop = 3.8\nlockout = \"-20 °C\"\ndefrost = { every = \"1 h\", length = \"5 min\" }\nstates = [ { name = \"heating\", power = \"2.8 kW\", pf = 0.95 }, { name = \"cooling\", power = \"2.4 kW\", pf = 0.95 } ]\n\n[[appliance]]\nid = \"added_blower\"\nwiring = \"L1-L2\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"blower\"\nstates = [ { name = \"running\", power = \"400 W\", pf = 0.8 } ]\n\n[[appliance]]\nid = \"strips\"\nwiring = \"L1-L2\"\nbehaviour = \"thermostat\"\nrole = \"backup\"\nstates = [ { name = \"heating\", power = \"7.5 kW\" } ]\n",
-    "[[appliance]]\nid = \"baseboard\"\nwiring = \"L1-L2\"\nbehaviour = \"thermostat\"\nrole = \"resistance\"\nstates = [ { name = \"heating\", power = \"3 kW\" } ]\n",
-    "[[appliance]]\nid = \"furnace\"\nwiring = \"L1-N\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"furnace\"\ncapacity = \"18 kW\"\nstates = [ { name = \"running\", power = \"500 W\", pf = 0.8 } ]\n\n[[appliance]]\nid = \"cooler\"\nwiring = \"L1-L2\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"air-conditioner\"\ncop = 3.2\nstates = [ { name = \"cooling\", power = \"3 kW\", pf = 0.9 } ]\n",
+    "[[appliance]]\nid = \"added_heat_pump\"\nwiring = \"L1-L2\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"heat-pump\"\ncop = 3.6\nlow_capacity = \"62 %\"\ncooling_cop = 3.8\nlockout = \"-20 °C\"\ndefrost = { every = \"1 h\", length = \"5 min\" }\nstates = [ { name = \"heating\", power = \"2.8 kW\", pf = 0.95 }, { name = \"cooling\", power = \"2.4 kW\", pf = 0.95 } ]\n\n[[appliance]]\nid = \"added_blower\"\nwiring = \"L1-L2\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"blower\"\nstates = [ { name = \"running\", power = \"400 W\", pf = 0.8 } ]\n\n[[appliance]]\nid = \"added_strips\"\nwiring = \"L1-L2\"\nbehaviour = \"thermostat\"\nrole = \"backup\"\nstates = [ { name = \"heating\", power = \"7.5 kW\" } ]\n",
+    "[[appliance]]\nid = \"added_baseboard\"\nwiring = \"L1-L2\"\nbehaviour = \"thermostat\"\nrole = \"resistance\"\nstates = [ { name = \"heating\", power = \"3 kW\" } ]\n",
+    "[[appliance]]\nid = \"added_furnace\"\nwiring = \"L1-N\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"furnace\"\ncapacity = \"18 kW\"\nstates = [ { name = \"running\", power = \"500 W\", pf = 0.8 } ]\n\n[[appliance]]\nid = \"added_cooler\"\nwiring = \"L1-L2\"\nload = \"motor\"\nbehaviour = \"thermostat\"\nrole = \"air-conditioner\"\ncop = 3.2\nstates = [ { name = \"cooling\", power = \"3 kW\", pf = 0.9 } ]\n",
     "[pv]\ndc = \"7.2 kW\"\ninverter = \"6 kW\"\ntilt = \"30 deg\"\nazimuth = \"180 deg\"\nalbedo = 0.2\nlosses = \"14.08 %\"\nmodule = \"premium\"\nmount = \"rack\"\n",
     "[battery]\ncapacity = \"13.5 kWh\"\npower = \"5 kW\"\nefficiency = \"90 %\"\nreserve = \"10 %\"\ninitial = \"50 %\"\nresponse = \"2 s\"\n",
 ];
 
-/// Appends a section (the climate ones with a building and the other
+/// Whether a line is a table header (`[name]` or `[[name]]`), not an array
+/// written across lines.
+fn is_header(line: &str) -> bool {
+    let inner = line.trim_start_matches('[').trim_end_matches(']');
+    line.starts_with('[')
+        && line.ends_with(']')
+        && !inner.is_empty()
+        && inner
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || c == '_' || c == '.')
+}
+
+/// The byte span of the table `[name]` in `text`: its header line to the
+/// next table header or the end.
+fn table_span(text: &str, name: &str) -> Option<(usize, usize)> {
+    let header = format!("[{name}]");
+    let mut at = 0;
+    let mut start = None;
+    for line in text.split_inclusive('\n') {
+        let bare = line.trim_end();
+        if start.is_some() && is_header(bare) {
+            return start.map(|s| (s, at));
+        }
+        if bare == header {
+            start = Some(at);
+        }
+        at += line.len();
+    }
+    start.map(|s| (s, text.len()))
+}
+
+/// `text` with each table of `add` put in: a table the text already has is
+/// replaced (a second `[weather]` would only be refused as a duplicate),
+/// the rest (and every `[[appliance]]`) appended.
+fn put_tables(text: &str, add: &str) -> String {
+    let mut out = text.to_string();
+    let mut appended = String::new();
+    let mut chunks: Vec<String> = Vec::new();
+    for line in add.split_inclusive('\n') {
+        if is_header(line.trim_end()) || chunks.is_empty() {
+            chunks.push(String::new());
+        }
+        chunks.last_mut().expect("pushed").push_str(line);
+    }
+    for chunk in chunks {
+        let head = chunk.lines().next().unwrap_or("");
+        let single = !head.starts_with("[[");
+        let name = head.trim_start_matches('[').trim_end_matches(']');
+        match table_span(&out, name).filter(|_| single) {
+            Some(span) => out = splice(&out, span, &format!("{}\n", chunk.trim_end())),
+            None => appended += &format!("\n{chunk}"),
+        }
+    }
+    out + &appended
+}
+
+/// Puts in a section (the climate ones with a building and the other
 /// climate parts most of the time, so the thermostat is reached), then
-/// often makes one of its values extreme.
+/// often makes one of its values extreme; or makes a value extreme in a
+/// section the demo has.
 fn mutate_section(text: &str, rng: &mut Rng) -> (String, String) {
+    if rng.below(3) == 0 {
+        if let Some(done) = mutate_own_section(text, rng) {
+            return done;
+        }
+    }
     let k = rng.below(SECTIONS.len());
     let mut add = SECTIONS[k].to_string();
     if (3..=6).contains(&k) && rng.below(4) != 0 {
@@ -173,7 +235,7 @@ fn mutate_section(text: &str, rng: &mut Rng) -> (String, String) {
             add += &format!("\n{}", SECTIONS[4 + rng.below(3)]);
         }
     }
-    let mut what = format!("append section {k}");
+    let mut what = format!("section {k} put in");
     if rng.below(2) == 0 {
         let (changed, w) = match rng.below(3) {
             0 | 1 => mutate_quantity_in(&add, rng),
@@ -192,7 +254,29 @@ fn mutate_section(text: &str, rng: &mut Rng) -> (String, String) {
     } else {
         text.to_string()
     };
-    (format!("{text}\n{add}"), what)
+    (put_tables(&text, &add), what)
+}
+
+/// One value made extreme or of another type inside a `[weather]`,
+/// `[building]`, `[pv]` or `[battery]` the demo has; None if it has none.
+fn mutate_own_section(text: &str, rng: &mut Rng) -> Option<(String, String)> {
+    let own: Vec<(&str, (usize, usize))> = ["weather", "building", "pv", "battery"]
+        .into_iter()
+        .filter_map(|n| table_span(text, n).map(|s| (n, s)))
+        .collect();
+    if own.is_empty() {
+        return None;
+    }
+    let (name, span) = *rng.pick(&own);
+    let table = &text[span.0..span.1];
+    let (changed, w) = match rng.below(3) {
+        0 | 1 => mutate_quantity_in(table, rng),
+        _ => mutate_type(table, rng),
+    };
+    Some((
+        splice(text, span, &changed),
+        format!("section [{name}] of the demo, {w}"),
+    ))
 }
 
 /// Values of another type, empty or enormous, for any `key = value` line.
@@ -432,7 +516,7 @@ fn case(seed: u64, index: u64, dir: &Path) -> Result<(), String> {
         text = t;
         what.push(w);
     }
-    let sectioned = what.iter().any(|w| w.starts_with("append section"));
+    let sectioned = what.iter().any(|w| w.starts_with("section"));
     // One scenario in sixteen as bytes with an invalid UTF-8 sequence.
     let raw = (!population && rng.below(16) == 0).then(|| {
         let mut bytes = text.clone().into_bytes();
@@ -552,17 +636,17 @@ fn mutated_scenarios_and_populations_never_panic_hang_or_write_non_finite_number
     let failures = failures.into_inner().unwrap();
     let sectioned = SECTIONS_ACCEPTED.load(Ordering::Relaxed);
     eprintln!(
-        "fuzz: {cases} cases (seed {seed}) in {:.1} s, {} accepted and simulated ({sectioned} with an appended section), {} as invalid UTF-8 bytes, {} failures",
+        "fuzz: {cases} cases (seed {seed}) in {:.1} s, {} accepted and simulated ({sectioned} with a section put in or mutated), {} as invalid UTF-8 bytes, {} failures",
         started.elapsed().as_secs_f64(),
         ACCEPTED.load(Ordering::Relaxed),
         RAW.load(Ordering::Relaxed),
         failures.len()
     );
-    // The appended sections must reach the simulation in a share of the
+    // The sections put in or mutated must reach the simulation in a share of the
     // cases, or the sweep would only test their refusals.
     assert!(
         sectioned as u64 >= cases / 100,
-        "only {sectioned} of {cases} cases simulated an appended section"
+        "only {sectioned} of {cases} cases simulated a section put in or mutated"
     );
     assert!(
         failures.is_empty(),

@@ -112,11 +112,56 @@ def mutate_setting(text, rng):
 
 
 def mutate_source(text, rng):
+    """The source impedance of [home] (never a [[reference]]'s `source`, the
+    citation of its figure)."""
     imp = rng.choice(["5 ohm", "50 ohm", "1e308 ohm", "1e-320 ohm", "0.5 ohm", "2 ohm"])
     line = f'source = {{ r = "{imp}", x = "{imp}" }}'
-    if re.search(r"^source = .*$", text, re.M):
-        return re.sub(r"^source = .*$", line, text, count=1, flags=re.M), line
-    return text.replace("[home]\n", "[home]\n" + line + "\n", 1), line
+    span = table_span(text, "home")
+    if span is None:
+        return text, "none"
+    home = text[span[0]:span[1]]
+    if re.search(r"^source = .*$", home, re.M):
+        home = re.sub(r"^source = .*$", line, home, count=1, flags=re.M)
+    else:
+        home = home.replace("[home]\n", "[home]\n" + line + "\n", 1)
+    return text[:span[0]] + home + text[span[1]:], line
+
+
+HEADER = re.compile(r"^\[\[?[A-Za-z0-9_.]+\]\]?$")
+
+
+def table_span(text, name):
+    """The span of the table `[name]` in `text`: its header line to the next
+    table header (not an array written across lines) or the end."""
+    at, start = 0, None
+    for line in text.splitlines(keepends=True):
+        bare = line.rstrip()
+        if start is not None and HEADER.match(bare):
+            return start, at
+        if bare == f"[{name}]":
+            start = at
+        at += len(line)
+    return None if start is None else (start, len(text))
+
+
+def put_tables(text, add):
+    """`text` with each table of `add` put in: one the text already has is
+    replaced (a second `[weather]` would only be refused as a duplicate),
+    the rest and every [[appliance]] appended."""
+    chunks = []
+    for line in add.splitlines(keepends=True):
+        if HEADER.match(line.rstrip()) or not chunks:
+            chunks.append("")
+        chunks[-1] += line
+    appended = ""
+    for chunk in chunks:
+        head = chunk.split("\n", 1)[0]
+        span = None if head.startswith("[[") else table_span(text, head.strip("[]"))
+        if span:
+            text = text[:span[0]] + chunk.rstrip() + "\n" + text[span[1]:]
+        else:
+            appended += "\n" + chunk
+    return text + appended
 
 
 def mutate_lines(text, rng):
@@ -134,8 +179,9 @@ def mutate_lines(text, rng):
     return "\n".join(lines), f"{how} line {k + 1}"
 
 
-# Sections the demos may lack, written from the README's language: weather,
-# the building and thermostatic loads of each role, PV, a battery.
+# Sections put in whole (replacing a demo's own), written from the README's
+# language: weather, the building and thermostatic loads of each role, PV, a
+# battery.
 WEATHER = [
     '[weather]\nclimate = "harbour"\ndaily_swing = "9 K"\nspread = { winter = "5.5 K", summer = "2.8 K" }\npersistence = 0.7\n',
     '[weather]\nmonthly = ["-6 °C", "-4 °C", "1 °C", "7 °C", "13 °C", "19 °C", "22 °C", "21 °C", "17 °C", "10 °C", "3 °C", "-3 °C"]\n',
@@ -163,9 +209,26 @@ PV = '[pv]\ndc = "5 kW"\ninverter = "4.6 kW"\ntilt = "25 deg"\nazimuth = "170 de
 BATTERY = '[battery]\ncapacity = "10 kWh"\npower = "4 kW"\nefficiency = "88 %"\nreserve = "15 %"\ninitial = "40 %"\nresponse = "3 s"\n'
 
 
+def mutate_own_section(text, rng):
+    """One value made extreme or of another type inside the demo's own
+    [weather], [building], [pv] or [battery]; None if it has none."""
+    own = [(n, table_span(text, n)) for n in ["weather", "building", "pv", "battery"]]
+    own = [(n, sp) for n, sp in own if sp]
+    if not own:
+        return None
+    name, (a, b) = rng.choice(own)
+    table, w = rng.choice([mutate_quantity, mutate_bare, mutate_type])(text[a:b], rng)
+    return text[:a] + table + text[b:], f"section [{name}] of the demo, {w}"
+
+
 def mutate_section(text, rng):
-    """Appends a climate (weather, building, thermostatic loads), PV or a
-    battery, then often makes one value inside it extreme or of another type."""
+    """Puts in a climate (weather, building, thermostatic loads), PV or a
+    battery, replacing the demo's own, then often makes one value inside it
+    extreme or of another type; or mutates a section the demo has."""
+    if rng.random() < 1 / 3:
+        done = mutate_own_section(text, rng)
+        if done:
+            return done
     kind = rng.choice(["climate", "climate", "climate", "pv", "battery", "weather only"])
     if kind == "climate":
         add = rng.choice(WEATHER) + "\n" + BUILDING + "\n" + "\n".join(rng.sample(THERMOSTATIC, rng.randint(1, 3)))
@@ -177,11 +240,11 @@ def mutate_section(text, rng):
             text = text.replace("[home]\n", "[home]\nlatitude = 40.7\nlongitude = -74.0\n", 1)
     else:
         add = BATTERY
-    what = f"append {kind}"
+    what = f"put in {kind}"
     if rng.random() < 0.5:
         add, w = rng.choice([mutate_quantity, mutate_bare, mutate_type])(add, rng)
         what += ", " + w
-    return text + "\n" + add, what
+    return put_tables(text, add), what
 
 
 WRONG = ['"text"', "42", "true", "[1, 2]", "{ a = 1 }", '""', "1979-05-27T07:32:00Z", "-0.0", '"nan W"', "[]"]
