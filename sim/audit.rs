@@ -8,7 +8,9 @@ use crate::scenario::{self, Behaviour, Dist, DropMode, Dropouts, Scenario};
 use crate::simulate::simulate;
 use serde_json::{json, Value};
 use solver_check::audit::check::{self, Outcome};
-use solver_check::audit::decl::{DeclAppliance, DeclChannel, DeclDraw, Declared, Steps, Supply};
+use solver_check::audit::decl::{
+    DeclAppliance, DeclChannel, DeclDraw, Declared, Source, Steps, Supply,
+};
 use solver_check::audit::events::{ChannelStats, Detector, Event};
 use solver_check::contract::{line_name, Wiring, C64};
 use std::path::Path;
@@ -98,7 +100,7 @@ pub fn declared(s: &Scenario) -> Declared {
         voltage_v: s.home.voltage_v,
         service_a: s.home.service_a,
     };
-    // PV and batteries are not part of a declaration yet: only the loads.
+    // The PV and the battery are sources, not loads to place (`generation`).
     let appliances = s
         .consumers()
         .map(|a| DeclAppliance {
@@ -106,6 +108,7 @@ pub fn declared(s: &Scenario) -> Declared {
             label: a.label.clone(),
             states: declared_states(a),
             steps: declared_steps(a),
+            starts_per_day: starts_per_day(a),
         })
         .collect();
     Declared {
@@ -124,7 +127,30 @@ pub fn declared(s: &Scenario) -> Declared {
         partial: false,
         real_only: false,
         timezone: s.home.timezone.clone(),
+        generation: s
+            .appliances
+            .iter()
+            .filter(|a| a.role != crate::scenario::Role::Load)
+            .map(|a| Source {
+                id: a.id.clone(),
+                wiring: a.wiring,
+                follows_home: matches!(a.behaviour, Behaviour::Storage(_)),
+            })
+            .collect(),
     }
+}
+
+/// How many runs a day the appliance's habit starts, the busier of
+/// weekdays and weekends (a program, or a modulating load's sessions).
+fn starts_per_day(a: &crate::scenario::Appliance) -> Option<f64> {
+    let habit = match &a.behaviour {
+        Behaviour::Program { habit, .. } => habit,
+        Behaviour::Modulating {
+            session: Some(s), ..
+        } => &s.habit,
+        _ => return None,
+    };
+    Some(habit.starts_per_day.max(habit.weekend_starts_per_day))
 }
 
 /// Each state's draws as the declaration gives them.

@@ -84,6 +84,8 @@ impl Short {
             label: self.label.clone(),
             states,
             steps: Steps::Jumps(jumps),
+            // A short entry gives no habit: how often it runs is not declared.
+            starts_per_day: None,
         }
     }
 }

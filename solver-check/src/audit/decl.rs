@@ -137,6 +137,10 @@ pub struct DeclAppliance {
     pub states: Vec<Vec<DeclDraw>>,
     /// How it changes state, as far as steps go.
     pub steps: Steps,
+    /// How many runs a day its declared habit starts (the busier of weekdays
+    /// and weekends), when a habit starts it; None for a thermostat, a cycle
+    /// or a short entry, whose use the declaration does not give.
+    pub starts_per_day: Option<f64>,
 }
 
 impl DeclAppliance {
@@ -232,6 +236,21 @@ pub struct Declared {
     pub real_only: bool,
     /// The home's time zone (IANA name), for the local times of examples.
     pub timezone: String,
+    /// The rooftop PV and home battery the declaration gives: sources whose
+    /// power follows the sun or the home, not steps to place.
+    pub generation: Vec<Source>,
+}
+
+/// A PV inverter or a home battery as declared.
+#[derive(Clone, Debug)]
+pub struct Source {
+    /// Its id (`pv`, `battery`).
+    pub id: String,
+    /// The conductors it is connected between.
+    pub wiring: Wiring,
+    /// Whether it follows the home's power (a battery run for
+    /// self-consumption answers every step within seconds) rather than the sun.
+    pub follows_home: bool,
 }
 
 impl Declared {
@@ -335,6 +354,7 @@ mod tests {
             label: "wh".into(),
             states: vec![vec![], vec![draw(rated_v)]],
             steps: Steps::Jumps(vec![(0, 1, 1.0, 1.0)]),
+            starts_per_day: None,
         };
         let moved = app(Some(240.0)).rewired_on(&sp, |_| Wiring::LineLine(0, 1));
         assert!((moved.states[1][0].s.re - 4500.0).abs() < 1e-9);

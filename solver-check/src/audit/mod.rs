@@ -526,7 +526,7 @@ impl Render for Audit {
             "cutoffs_changed": self.thresholds.changed().iter().map(|c| json!({ "name": c.name, "value": c.of(&self.thresholds), "standard": c.standard(), "meaning": c.meaning })).collect::<Vec<_>>(),
             "unlisted_loads": self.outcome.unlisted.iter().map(finding_json).collect::<Vec<_>>(),
             "appliances": self.outcome.appliances.iter().map(|a| json!({ "id": a.id, "declared": a.declared, "verdict": a.verdict.name(), "seen": a.seen, "reason": a.reason, "steps_as_declared": a.steps_declared, "steps_best_other": a.steps_best_other })).collect::<Vec<_>>(),
-            "steps": { "used": self.outcome.steps, "explained": self.outcome.steps_explained },
+            "steps": { "used": self.outcome.steps, "explained": self.outcome.steps_explained, "explained_share": self.outcome.steps_explained as f64 / self.outcome.steps.max(1) as f64 },
             "notes": self.outcome.notes,
             "assumptions": ASSUMPTIONS,
             "loading": loading,
@@ -559,8 +559,10 @@ impl Render for Audit {
             );
         }
         o += &format!(
-            "\n{} of {} steps of 100 VA or more are explained by the appliances as found\n",
-            self.outcome.steps_explained, self.outcome.steps
+            "\n{} of {} steps of 100 VA or more ({:.0} %) are explained by the appliances as found\n",
+            self.outcome.steps_explained,
+            self.outcome.steps,
+            100.0 * self.outcome.steps_explained as f64 / self.outcome.steps.max(1) as f64
         );
         o += "assumptions:\n";
         for a in ASSUMPTIONS {

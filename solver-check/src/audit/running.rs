@@ -166,6 +166,7 @@ mod tests {
             label: id.into(),
             states: vec![vec![], vec![draw(wiring, p)]],
             steps: Steps::Jumps(vec![(0, 1, 1.0, 1.0), (1, 0, 1.0, 1.0)]),
+            starts_per_day: None,
         }
     }
 
@@ -206,6 +207,7 @@ mod tests {
             partial: false,
             real_only: false,
             timezone: "UTC".into(),
+            generation: vec![],
         };
         let m = declared_metering(&d, &[false, false]);
         let ev = [

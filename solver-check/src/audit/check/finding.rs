@@ -1,10 +1,8 @@
 //! What the audit reports: the kinds of mistake and their JSON names,
 //! verdicts, findings, and the doubts that list a finding as possible.
 
-use super::fit::tol;
-use super::placement::{alternatives, wiring_names, ApplianceCheck};
 use super::thresholds::Thresholds;
-use crate::audit::decl::{DeclAppliance, Declared};
+use crate::audit::decl::Declared;
 use serde_json::Value;
 
 /// A kind of installer mistake, as findings and the fault matrix name them.
@@ -133,8 +131,6 @@ pub struct Finding {
 pub(super) fn sort_findings(
     d: &Declared,
     mut findings: Vec<Finding>,
-    placed: &[DeclAppliance],
-    checks: &[ApplianceCheck],
     interval_s: f64,
     th: &Thresholds,
 ) -> (Vec<Finding>, Vec<Finding>, Vec<Finding>) {
@@ -142,8 +138,13 @@ pub(super) fn sort_findings(
         f.doubt = f
             .doubt
             .take()
-            .or_else(|| coarse_doubt(f.kind, interval_s, th))
-            .or_else(|| undeclared_doubt(d, placed, checks, f));
+            // An undeclared load's doubts are its stage's (`undeclared`).
+            .or_else(|| {
+                (f.kind != Kind::UndeclaredLoad)
+                    .then(|| coarse_doubt(f.kind, interval_s, th))
+                    .flatten()
+            })
+            .or_else(|| generation_doubt(d, f));
     }
     let (findings, possible): (Vec<Finding>, Vec<Finding>) = findings
         .into_iter()
@@ -172,91 +173,87 @@ pub(super) fn same_wiring_name(a: &str, b: &str) -> bool {
     a == b || (!a.contains('+') && !b.contains('+') && parts(a) == parts(b))
 }
 
-/// Why an undeclared load `f` may be a declared appliance after all: it has
-/// the size of a one-power appliance that was not seen switching where declared, on a
-/// connection that one could be on (either it is wired there, or it was
-/// not used and this is another load); or it is smaller than an appliance
-/// declared by one power only on the same connection (it may be one of
-/// that appliance's elements or settings, which its entry does not give).
-pub(super) fn undeclared_doubt(
-    d: &Declared,
-    placed: &[DeclAppliance],
-    checks: &[ApplianceCheck],
-    f: &Finding,
-) -> Option<String> {
-    if f.kind != Kind::UndeclaredLoad {
+/// Why a placement or an undeclared load may be the PV's or the battery's
+/// doing: a battery run for self-consumption answers every change of the
+/// home's power within seconds on its own wiring (at 10 s the two make one
+/// step of another shape; at 1 s its answer is a step of the same size on
+/// its wiring), and a PV inverter changes by any amount while it produces,
+/// so a step on its wiring may be its own.
+pub(super) fn generation_doubt(d: &Declared, f: &Finding) -> Option<String> {
+    if f.kind.is_metering() {
         return None;
     }
-    let p = f.evidence["p_w"].as_f64()?;
-    let w = f.evidence["wiring"].as_str()?;
-    for (a, ck) in placed.iter().zip(checks) {
-        // Only its size can tell a one-power appliance (an appliance with
-        // several step sizes is told by whether its others show there too).
-        let nameplate = a.states.len() == 2 && a.states.iter().all(|st| st.len() <= 1);
-        if nameplate && ck.verdict == Verdict::Undecidable && ck.steps_declared < 2 {
-            let like = alternatives(d, a).into_iter().find(|(name, alt)| {
-                same_wiring_name(name, w) && (alt.largest_step_w() - p).abs() <= tol(p)
-            });
-            if let Some((name, _)) = like {
-                return Some(format!("it has the size of {} on {name}, which was not seen switching where declared: either {} is wired on {name}, or this is another load", a.id, a.id));
-            }
-        }
-        if nameplate && same_wiring_name(&wiring_names(a), w) && a.largest_step_w() > 1.2 * p {
-            return Some(format!("it is smaller than {} ({:.0} W on the same connection, declared by one power only): it may be one of its elements or a lower setting", a.id, a.largest_step_w()));
-        }
+    if let Some(b) = d.generation.iter().find(|g| g.follows_home) {
+        return Some(format!("the home battery ({}, on {}) answers each change of the home's power within seconds, so steps there and elsewhere may be partly its answers", b.id, b.wiring.name()));
     }
-    None
+    let on = f.evidence["found"]
+        .as_str()
+        .or_else(|| f.evidence["wiring"].as_str())?;
+    let pv = d
+        .generation
+        .iter()
+        .find(|g| same_wiring_name(&g.wiring.name(), on))?;
+    Some(format!(
+        "{} on {on} changes its power by any amount while it produces, so steps on {on} may be its own",
+        pv.id
+    ))
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::audit::check::testkit::{on_off, split_phase};
-    use crate::contract::C64;
+    use crate::audit::check::testkit::split_phase;
+    use crate::contract::Wiring;
     use serde_json::json;
 
-    /// Undeclared-load stage: at a coarse interval placements and undeclared
-    /// loads are only possible, metering findings stand; a load smaller than
-    /// a one-power entry on its connection may be part of it.
+    /// At a coarse interval placements and undeclared loads are only
+    /// possible (an undeclared load has its own exception, in its stage),
+    /// metering findings stand.
     #[test]
-    fn undeclared_loads_another_account_fits_are_only_possible() {
+    fn placements_at_a_coarse_interval_are_only_possible() {
         let th = &Thresholds::STANDARD;
         assert!(coarse_doubt(Kind::UndeclaredLoad, 60.0, th).is_some());
         assert!(coarse_doubt(Kind::WrongLine, 60.0, th).is_some());
         assert!(coarse_doubt(Kind::ReversedCt, 60.0, th).is_none());
         assert!(coarse_doubt(Kind::UndeclaredLoad, 10.0, th).is_none());
-        let range = on_off("range", 0, C64::new(3000.0, 0.0));
-        let d = split_phase(vec![range.clone()]);
-        let ck = ApplianceCheck {
-            id: "range".into(),
-            declared: "L1-N".into(),
-            verdict: Verdict::AsDeclared,
-            seen: None,
-            reason: String::new(),
-            steps_declared: 9,
-            steps_best_other: 0,
-        };
-        let load = |p: f64, w: &str| Finding {
-            kind: Kind::UndeclaredLoad,
+    }
+
+    /// A home battery makes every placement and undeclared load possible
+    /// only; a PV inverter alone, those on its own wiring; metering
+    /// findings stand.
+    #[test]
+    fn findings_the_pv_or_the_battery_could_make_are_only_possible() {
+        use crate::audit::decl::Source;
+        let mut d = split_phase(vec![]);
+        let f = |kind: Kind, ev: serde_json::Value| Finding {
+            kind,
             subject: String::new(),
             message: String::new(),
             confidence: 1.0,
-            evidence: json!({ "p_w": p, "wiring": w }),
+            evidence: ev,
             doubt: None,
         };
-        let doubt = |f: &Finding| {
-            undeclared_doubt(
-                &d,
-                std::slice::from_ref(&range),
-                std::slice::from_ref(&ck),
-                f,
-            )
-        };
-        assert!(doubt(&load(900.0, "L1-N")).is_some());
-        assert!(doubt(&load(900.0, "L2-N")).is_none(), "another connection");
+        let on_ll = f(Kind::UndeclaredLoad, json!({ "wiring": "L2-L1" }));
+        let on_ln = f(Kind::WrongLine, json!({ "found": "L1-N" }));
+        let ct = f(Kind::ReversedCt, json!({}));
+        assert!(generation_doubt(&d, &on_ll).is_none(), "no generation");
+        d.generation.push(Source {
+            id: "pv".into(),
+            wiring: Wiring::LineLine(0, 1),
+            follows_home: false,
+        });
+        assert!(generation_doubt(&d, &on_ll).is_some());
         assert!(
-            doubt(&load(2900.0, "L1-N")).is_none(),
-            "about its size: not a part"
+            generation_doubt(&d, &on_ln).is_none(),
+            "not the PV's wiring"
         );
+        assert!(generation_doubt(&d, &ct).is_none());
+        d.generation.push(Source {
+            id: "battery".into(),
+            wiring: Wiring::LineLine(0, 1),
+            follows_home: true,
+        });
+        assert!(generation_doubt(&d, &on_ln).is_some());
+        assert!(generation_doubt(&d, &ct).is_none());
     }
 }

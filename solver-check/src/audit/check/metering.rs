@@ -5,7 +5,7 @@
 
 use super::finding::{Finding, Kind};
 use super::fit::{any_fits, explained, fits_of, predicted, steps_explained, Ctx, Fits};
-use super::placement::{alternatives, place, uncheckable_in, ApplianceCheck};
+use super::placement::{alternatives, place, uncheckable_in, ApplianceCheck, Window};
 use super::thresholds::Thresholds;
 use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::{ChannelStats, Event};
@@ -506,13 +506,13 @@ pub(super) fn place_under(
     mc: &MeteringChoice,
     hyp: usize,
     used: &[&Event],
-    interval_s: f64,
+    window: Window,
     th: &Thresholds,
 ) -> Placement {
     let m = &mc.hyps[hyp].0;
     let cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(d, m, e)).collect();
     let mut moves = Vec::new();
-    let (checks, placed) = place(d, m, used, &cxs, interval_s, &mut moves, th);
+    let (checks, placed) = place(d, m, used, &cxs, window, &mut moves, th);
     Placement {
         hyp,
         cxs,
@@ -548,7 +548,7 @@ pub(super) fn simpler_account(
     as_declared: &Placement,
     used: &[&Event],
     big: &[&Event],
-    interval_s: f64,
+    window: Window,
     th: &Thresholds,
 ) -> Option<Placement> {
     let explains = |p: &Placement| {
@@ -573,7 +573,7 @@ pub(super) fn simpler_account(
             if faults >= as_declared.moves.len() {
                 return None;
             }
-            let p = place_under(d, mc, s.i, used, interval_s, th);
+            let p = place_under(d, mc, s.i, used, window, th);
             let (mistakes, ex) = (faults + p.moves.len(), explains(&p));
             (mistakes < as_declared.moves.len() && ex >= bar).then_some((mistakes, ex, p))
         })

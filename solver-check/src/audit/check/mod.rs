@@ -48,9 +48,9 @@ use metering::{
     absent_channels, channel_findings, choose_metering, dispute, metering_confidence,
     metering_findings, place_under, silent_channel_accounts, simpler_account, Placement,
 };
-use placement::indistinct_notes;
+use placement::{indistinct_notes, Window};
 use serde_json::json;
-use undeclared::{coincidences, metered_energy_wh, steps_fit, undeclared};
+use undeclared::{coincidences, metered_energy_wh, steps_fit, UndeclaredStage};
 
 /// What the checks of a declaration against the data concluded.
 #[derive(Clone, Debug)]
@@ -110,10 +110,12 @@ pub fn check_with(
     // where a metering fault and fewer moves explain as much is the less
     // simple account.
     let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
-    let mut pl = place_under(d, &mc, chosen, &used, interval_s, th);
+    let hours = stats.iter().map(|s| s.rows).max().unwrap_or(0) as f64 * interval_s / 3600.0;
+    let window = Window { interval_s, hours };
+    let mut pl = place_under(d, &mc, chosen, &used, window, th);
     let mut replaced = 0;
     if chosen == decl_i && pl.moves.len() >= 2 {
-        if let Some(alt) = simpler_account(d, &mc, &pl, &used, &big, interval_s, th) {
+        if let Some(alt) = simpler_account(d, &mc, &pl, &used, &big, window, th) {
             replaced = pl.moves.len() - alt.moves.len();
             (chosen, pl) = (alt.hyp, alt);
         }
@@ -140,14 +142,25 @@ pub fn check_with(
     // 3. Undeclared recurring loads.
     let fit = steps_fit(d, &m, &used, &cxs, &placed, interval_s);
     let total_wh = metered_energy_wh(stats, &absent, &m, interval_s);
-    let hours = stats.iter().map(|s| s.rows).max().unwrap_or(0) as f64 * interval_s / 3600.0;
     let sums = coincidences(d, &m, &placed, &used, interval_s, hours);
-    undeclared(d, &m, &used, &fit, &sums, total_wh, &mut findings, th);
+    let stage = UndeclaredStage {
+        d,
+        m: &m,
+        events: &used,
+        cxs: &cxs,
+        explained: &fit,
+        sums: &sums,
+        total_wh,
+        placed: &placed,
+        checks: &checks,
+        interval_s,
+        th,
+    };
+    findings.extend(stage.findings());
     let steps_explained = fit.iter().filter(|x| **x).count();
-    let (findings, possible, unlisted) =
-        sort_findings(d, findings, &placed, &checks, interval_s, th);
+    let (findings, possible, unlisted) = sort_findings(d, findings, interval_s, th);
     if steps_explained * 2 < used.len() {
-        notes.push(format!("the declaration explains {steps_explained} of {} steps of 100 VA or more: many loads are not declared{}", used.len(), if d.partial { " (it says it is partial); the metering and placement checks rest on the declared appliances alone" } else { "; if it lists only some appliances, say so with [declaration] partial = true" }));
+        notes.push(format!("the declaration explains {steps_explained} of {} steps of 100 VA or more ({:.0} %): many loads are not declared{}", used.len(), 100.0 * steps_explained as f64 / used.len() as f64, if d.partial { " (it says it is partial); the metering and placement checks rest on the declared appliances alone" } else { "; if it lists only some appliances, say so with [declaration] partial = true" }));
     }
     Outcome {
         possible_below: th.possible,

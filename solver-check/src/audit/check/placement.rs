@@ -9,6 +9,7 @@ use super::fit::{
 };
 use super::metering::{permutations, Metering};
 use super::thresholds::Thresholds;
+use super::undeclared::poisson_tail;
 use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::Event;
 use crate::contract::{Wiring, C64};
@@ -218,7 +219,7 @@ pub(super) fn move_finding(
     // moves were wrong four times in five).
     let doubt = match n_d {
         None => Some(format!("{declared} cannot be checked, so a load of its size on {found} that is not {} would look the same", a.id)),
-        _ if d.partial => Some(format!("the declaration is partial, so a load it does not list, of this size on {found}, would look the same while {} was not used", a.id)),
+        Some(k) if d.partial && (k > 0 || n_a < th.partial_move) => Some(format!("the declaration is partial, so a load it does not list, of this size on {found}, would look the same while {} was not used", a.id)),
         Some(k) if k >= th.seen_where_declared => Some(format!("{k} of its steps show where declared too, so the steps on {found} may be another load of its size")),
         Some(_) => None,
     };
@@ -312,6 +313,17 @@ pub(super) struct Round<'a> {
     sigs: Vec<Pred>,
     /// Each step's distance from each appliance as placed.
     dj: Vec<Vec<f64>>,
+    /// How long the data runs, h.
+    hours: f64,
+}
+
+/// The data's reporting interval and how long it runs.
+#[derive(Clone, Copy, Debug)]
+pub(super) struct Window {
+    /// Seconds per row.
+    pub interval_s: f64,
+    /// Hours of rows.
+    pub hours: f64,
 }
 
 impl Round<'_> {
@@ -456,6 +468,48 @@ impl Round<'_> {
         None
     }
 
+    /// Why moving appliance `j` (as placed, `a`) from one line to neutral to
+    /// another (`alt`) may be two channels exchanged instead, in a partial
+    /// declaration (where the metering checks have few appliances to go
+    /// by): an appliance declared on the line it moves to is not seen there
+    /// (fewer than two steps) but two or more of its steps fit it on the
+    /// line it moves from. An exchange moves every appliance of both lines.
+    fn exchange_doubt(&self, j: usize, a: &DeclAppliance, alt: &DeclAppliance) -> Option<String> {
+        let (aw, bw) = (a.wirings(), alt.wirings());
+        let (from, to) = match (aw.as_slice(), bw.as_slice()) {
+            ([Wiring::LineNeutral(x)], [Wiring::LineNeutral(y)]) => (*x, *y),
+            _ => return None,
+        };
+        let other = (0..self.placed.len()).find(|&k| {
+            let b = &self.placed[k];
+            k != j
+                && b.wirings() == [Wiring::LineNeutral(to)]
+                && !b.steps.jumps().is_empty()
+                && self.excl(k, &self.sigs[k]).0 < self.th.seen_where_declared
+                && {
+                    let there = b.rewired_on(&self.d.supply, |_| Wiring::LineNeutral(from));
+                    let sg = Pred::of(self.d, self.m, &there);
+                    self.excl(k, &sg).1.len() >= self.th.seen_where_declared
+                }
+        })?;
+        let b = &self.placed[other].id;
+        Some(format!("{b}, declared on L{}-N, shows on L{}-N instead, so channels l{} and l{} may be exchanged rather than {} moved", to + 1, from + 1, from + 1, to + 1, a.id))
+    }
+
+    /// Why `n_a` steps of appliance `a` on `found` may be another load's:
+    /// they make more runs (each run at most one of each of its jumps) than
+    /// its declared habit starts in the data's span, beyond a Poisson chance
+    /// of `coincidence_p` (habit starts are random; the same cut-off as a
+    /// coincidence of two appliances).
+    fn habit_doubt(&self, a: &DeclAppliance, found: &str, n_a: usize) -> Option<String> {
+        let per_day = a.starts_per_day?;
+        let runs = n_a.div_ceil(a.steps.jumps().len().max(1));
+        let expected = per_day * self.hours / 24.0;
+        (poisson_tail(expected, runs) < self.th.coincidence_p).then(|| {
+            format!("{n_a} steps of its size on {found} make at least {runs} runs in {:.0} h, where it is declared to start about {per_day:.1} times a day: they are likelier another load's", self.hours)
+        })
+    }
+
     /// Appliance `j` (as placed, `a`; wired `declared`) weighed as declared
     /// against its best other wiring.
     fn weigh(
@@ -482,7 +536,16 @@ impl Round<'_> {
         let whole =
             moves && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
         if whole {
-            let f = move_finding(d, a, &alt, &name_a, Some(n_d), n_a, th);
+            let mut f = move_finding(d, a, &alt, &name_a, Some(n_d), n_a, th);
+            if d.partial && f.doubt.is_none() {
+                f.doubt = self.exchange_doubt(j, a, &alt);
+            }
+            // Steps far beyond its habit are another load's: left to the
+            // undeclared loads, not a move.
+            if let Some(why) = self.habit_doubt(a, &name_a, n_a) {
+                ck.reason = why;
+                return None;
+            }
             let cover = coverage(d, m, &alt, self.used, self.cxs, &mine, 0.0);
             ck.reason = format!("{n_a} steps fit it on {name_a}, {n_d} on {declared}");
             return Some((j, n_a, alt, f, mine, cover));
@@ -519,10 +582,11 @@ pub(super) fn place(
     m: &Metering,
     used: &[&Event],
     cxs: &[Ctx],
-    interval_s: f64,
+    window: Window,
     findings: &mut Vec<Finding>,
     th: &Thresholds,
 ) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>) {
+    let interval_s = window.interval_s;
     let n = d.supply.lines();
     let seen: Vec<bool> = (0..n)
         .map(|b| (0..n).any(|c| !m.absent[c] && m.map[c].src == b))
@@ -544,6 +608,7 @@ pub(super) fn place(
             placed: &placed,
             sigs,
             dj,
+            hours: window.hours,
         };
         let mut checks = Vec::new();
         let mut candidates: Vec<Candidate> = Vec::new();
@@ -602,8 +667,9 @@ mod tests {
     }
 
     /// Placement stage: a move is doubted (listed as possible) when the
-    /// declaration is partial, when the declared wiring cannot be read, or
-    /// when a run shows where declared too; not when nothing shows there.
+    /// declared wiring cannot be read, or when a run shows where declared
+    /// too; not when nothing shows there. In a partial declaration, also
+    /// when anything shows where declared or fewer than three runs elsewhere.
     #[test]
     fn a_move_another_account_fits_is_only_possible() {
         let th = &Thresholds::STANDARD;
@@ -619,8 +685,69 @@ mod tests {
         assert!(f(&d, Some(2)).doubt.is_some());
         assert!(f(&d, None).doubt.is_some());
         d.partial = true;
-        assert!(f(&d, Some(0)).doubt.is_some());
+        assert!(
+            f(&d, Some(0)).doubt.is_none(),
+            "20 steps, none where declared"
+        );
+        assert!(f(&d, Some(1)).doubt.is_some());
+        let few = move_finding(&d, &a, &alt, "L2-N", Some(0), th.partial_move - 1, th);
+        assert!(few.doubt.is_some(), "fewer than three runs");
         assert_eq!(f(&d, Some(0)).kind, Kind::WrongLine);
+    }
+
+    /// Placement stage, a partial declaration at 1 s: a 1.5 kW kettle
+    /// declared on L1-N switches eight times on L2, never on L1 (a 600 W
+    /// pump on L1-N shows where declared, so the channels are as declared):
+    /// the kettle is on L2-N, for certain. When an 800 W heater declared on
+    /// L2-N shows only on L1 instead, two channels exchanged would account
+    /// for both, and the move is only possible.
+    #[test]
+    fn a_partial_declarations_move_is_certain_unless_channels_may_be_exchanged() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::H;
+        use crate::audit::events::{ChannelStats, Event};
+        let mut d = split_phase(vec![
+            on_off("kettle", 0, C64::new(1500.0, 0.0)),
+            on_off("heater", 1, C64::new(800.0, 0.0)),
+            on_off("pump", 0, C64::new(600.0, 450.0)),
+        ]);
+        d.partial = true;
+        let step = |t: i64, l1: C64, l2: C64| Event {
+            time_ms: t,
+            delta: vec![l1, l2],
+            before: vec![C64::new(200.0, 0.0); 2],
+            v_before: vec![120.0; 2],
+            v_after: vec![120.0; 2],
+            se: vec![1.0; 2],
+        };
+        let run = |t: i64, l1: C64, l2: C64| [step(t, l1, l2), step(t + H / 10, -l1, -l2)];
+        let (kettle, heater, pump) = (
+            C64::new(1500.0, 0.0),
+            C64::new(800.0, 0.0),
+            C64::new(600.0, 450.0),
+        );
+        let mut events: Vec<Event> = (0..4)
+            .flat_map(|i| run(i * 5 * H, C64::ZERO, kettle))
+            .collect();
+        events.extend((0..3).flat_map(|i| run(i * 5 * H + 2 * H, pump, C64::ZERO)));
+        let stats = vec![
+            ChannelStats {
+                rows: 86_400,
+                null: 0,
+                zero: 0,
+                sum_p: 200.0 * 86_400.0,
+                negative: vec![[0, 86_400]; 2]
+            };
+            2
+        ];
+        let o = check(&d, &events, &stats, 1.0);
+        let subjects: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(subjects, ["kettle"], "{:?}", o.possible);
+        events.extend(run(3 * H, heater, C64::ZERO));
+        let o = check(&d, &events, &stats, 1.0);
+        assert!(o.findings.is_empty(), "{:?}", o.findings);
+        let kettle = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
+        assert!(kettle.doubt.as_ref().unwrap().contains("exchanged"));
     }
 
     /// Of moves claiming mostly the same steps, the one showing more of its
@@ -684,5 +811,52 @@ mod tests {
             Some(0),
             "other steps: not a rival"
         );
+    }
+
+    /// Placement stage: a 1.9 kW dishwasher declared on L1-N, to start once
+    /// a day, whose steps show six times on L2-N in two days (three runs) is
+    /// on L2-N; forty steps there (twenty runs where two are expected: a
+    /// Poisson chance far below 0.1 %) are likelier another load's: not a
+    /// move, but a load nobody declared (an undeclared load the size of an
+    /// entry not seen where declared, so only possible).
+    #[test]
+    fn steps_far_beyond_the_declared_habit_are_likelier_another_loads() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::H;
+        use crate::audit::events::{ChannelStats, Event};
+        let mut dishwasher = on_off("dishwasher", 0, C64::new(1900.0, 0.0));
+        dishwasher.starts_per_day = Some(1.0);
+        let d = split_phase(vec![dishwasher]);
+        let step = |t: i64, w: f64| Event {
+            time_ms: t,
+            delta: vec![C64::ZERO, C64::new(w, 0.0)],
+            before: vec![C64::new(200.0, 0.0); 2],
+            v_before: vec![120.0; 2],
+            v_after: vec![120.0; 2],
+            se: vec![1.0; 2],
+        };
+        let runs = |n: i64| -> Vec<Event> {
+            (0..n)
+                .flat_map(|i| [step(i * H, 1900.0), step(i * H + H / 4, -1900.0)])
+                .collect()
+        };
+        let stats = vec![
+            ChannelStats {
+                rows: 172_800,
+                null: 0,
+                zero: 0,
+                sum_p: 200.0 * 172_800.0,
+                negative: vec![[0, 172_800]; 2]
+            };
+            2
+        ];
+        let o = check(&d, &runs(3), &stats, 1.0);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(found, ["dishwasher"], "{:?}", o.possible);
+        let o = check(&d, &runs(20), &stats, 1.0);
+        assert!(o.findings.is_empty(), "{:?}", o.findings);
+        assert!(o.appliances[0].reason.contains("likelier another load"));
+        let subjects: Vec<&str> = o.possible.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(subjects, ["1900 W on L2-N"]);
     }
 }

@@ -29,6 +29,7 @@ pub(super) fn on_off_wired(id: &str, wiring: Wiring, s: C64) -> DeclAppliance {
             }],
         ],
         steps: Steps::Jumps(vec![(0, 1, 1.0, 1.0), (1, 0, 1.0, 1.0)]),
+        starts_per_day: None,
     }
 }
 
@@ -64,5 +65,6 @@ fn home(kind: SupplyKind, voltage_v: f64, appliances: Vec<DeclAppliance>) -> Dec
         partial: false,
         real_only: false,
         timezone: "UTC".into(),
+        generation: vec![],
     }
 }

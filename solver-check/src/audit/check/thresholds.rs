@@ -64,6 +64,22 @@ pub struct Thresholds {
     /// An appliance whose largest step is under this (W, on every connection
     /// it could be on) is not placed: smaller steps of many loads look alike.
     pub decide_w: f64,
+    /// Steps on another wiring, none where declared (its declared wiring
+    /// read by working CTs), that move an appliance of a partial declaration
+    /// for certain: three runs, the fault matrix's bar for a mistake the data
+    /// exercises (six state changes). An installer lists an appliance
+    /// because it is there; that it never switched where declared while a
+    /// load of its size and power factor switched three times on another
+    /// wiring is a simpler account than an unlisted look-alike beside an
+    /// appliance that was not used (common practice, no source).
+    pub partial_move: usize,
+    /// Runs seen whole (a start, then its stop) that make an undeclared load
+    /// at a coarse interval a finding rather than possible, when its starts
+    /// and stops balance and its size is neither a declared jump nor the sum
+    /// or difference of two: loads that happen to switch within one row do
+    /// not repeat at one size, starting and stopping alike, ten times
+    /// (common practice, no source).
+    pub coarse_runs: usize,
 }
 
 impl Thresholds {
@@ -79,6 +95,8 @@ impl Thresholds {
         whole_share: 0.25,
         coarse_interval_s: 30.0,
         decide_w: 300.0,
+        partial_move: 6,
+        coarse_runs: 10,
     };
 }
 
