@@ -317,6 +317,12 @@ pub(super) struct Round<'a> {
     hours: f64,
 }
 
+/// Whether an appliance is declared by one power only (off, or on at that
+/// power: a short entry), which may leave its other settings' steps unknown.
+pub(super) fn one_power(a: &DeclAppliance) -> bool {
+    a.states.len() == 2 && a.states.iter().all(|st| st.len() <= 1)
+}
+
 /// The data's reporting interval and how long it runs.
 #[derive(Clone, Copy, Debug)]
 pub(super) struct Window {
@@ -537,7 +543,10 @@ impl Round<'_> {
             moves && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
         if whole {
             let mut f = move_finding(d, a, &alt, &name_a, Some(n_d), n_a, th);
-            if d.partial && f.doubt.is_none() {
+            // A partial declaration or a one-power entry leaves steps the
+            // declaration does not give: a move may then be two channels
+            // exchanged that the metering checks had too little to find.
+            if (d.partial || one_power(a)) && f.doubt.is_none() {
                 f.doubt = self.exchange_doubt(j, a, &alt);
             }
             // Steps far beyond its habit are another load's: left to the

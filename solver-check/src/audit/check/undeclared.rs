@@ -7,7 +7,7 @@ use super::fit::{
     connection_of, dist_delta, distances, fits, predicted, shape_of, tol, Ctx, Pred, USE_STEP,
 };
 use super::metering::Metering;
-use super::placement::{alternatives, wiring_names, ApplianceCheck};
+use super::placement::{alternatives, one_power, wiring_names, ApplianceCheck};
 use super::thresholds::Thresholds;
 use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::{ChannelStats, Event};
@@ -459,8 +459,9 @@ impl UndeclaredStage<'_> {
         )
     }
 
-    /// Why the undeclared load of cluster `c` may be a declared appliance
-    /// after all. Only its size can tell a one-power appliance (one with
+    /// Why the undeclared load of cluster `c` may be no load of its own: its
+    /// parts on several lines at once may be two loads'; or it may be a
+    /// declared appliance after all. Only its size can tell a one-power appliance (one with
     /// several step sizes is told by whether its others show there too): it
     /// has the size of one that was not seen switching where declared, on a
     /// connection that one could be on (its own or another: either it is
@@ -471,9 +472,11 @@ impl UndeclaredStage<'_> {
     /// its entry does not give) and does not run apart from it.
     fn doubt(&self, c: &Cluster) -> Option<String> {
         let (p, w) = (c.s.re, c.wiring.as_str());
+        if w.contains('+') {
+            return Some(format!("it is drawn as line-to-neutral parts on {w} at once, as two loads switching together would be, or a line-to-line load read through a metering other than the one found"));
+        }
         for (a, ck) in self.placed.iter().zip(self.checks) {
-            let nameplate = a.states.len() == 2 && a.states.iter().all(|st| st.len() <= 1);
-            if !nameplate {
+            if !one_power(a) {
                 continue;
             }
             if ck.verdict == Verdict::Undecidable && ck.steps_declared < 2 {
