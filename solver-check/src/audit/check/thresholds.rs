@@ -127,7 +127,7 @@ impl Cutoff {
 }
 
 /// Every cut-off of [`Thresholds`], in the order of its fields.
-pub const CUTOFFS: [Cutoff; 10] = [
+pub const CUTOFFS: [Cutoff; 12] = [
     Cutoff {
         name: "possible",
         meaning: "confidence below which a finding is listed apart as possible",
@@ -194,7 +194,7 @@ pub const CUTOFFS: [Cutoff; 10] = [
     },
     Cutoff {
         name: "coarse_interval_s",
-        meaning: "reporting interval (s) from which placements and undeclared loads are only possible",
+        meaning: "reporting interval (s) from which placements and undeclared loads are only possible (an undeclared load of coarse_runs runs excepted)",
         range: (0.0, 86_400.0),
         count: false,
         get: |t| t.coarse_interval_s,
@@ -207,6 +207,22 @@ pub const CUTOFFS: [Cutoff; 10] = [
         count: false,
         get: |t| t.decide_w,
         set: |t, v| t.decide_w = v,
+    },
+    Cutoff {
+        name: "partial_move",
+        meaning: "steps on another wiring, none where declared, that move an appliance of a partial declaration for certain",
+        range: (0.0, 1e6),
+        count: true,
+        get: |t| t.partial_move as f64,
+        set: |t, v| t.partial_move = v as usize,
+    },
+    Cutoff {
+        name: "coarse_runs",
+        meaning: "runs seen whole that make an undeclared load at a coarse interval a finding (starts and stops alike, no declared jump's size nor two's)",
+        range: (0.0, 1e6),
+        count: true,
+        get: |t| t.coarse_runs as f64,
+        set: |t, v| t.coarse_runs = v as usize,
     },
 ];
 
