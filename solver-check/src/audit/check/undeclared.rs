@@ -467,7 +467,8 @@ impl UndeclaredStage<'_> {
     /// connection that one could be on (its own or another: either it is
     /// wired there or draws other than declared, or it was not used and this
     /// is another load); it is within a fifth of the size of one on the same
-    /// connection (its nameplate, not what it draws); or it is smaller than
+    /// connection not seen switching at its declared size (its nameplate, not
+    /// what it draws); or it is smaller than
     /// one on the same connection (one of its elements or settings, which
     /// its entry does not give) and does not run apart from it.
     fn doubt(&self, c: &Cluster) -> Option<String> {
@@ -495,8 +496,8 @@ impl UndeclaredStage<'_> {
                 continue;
             }
             let size = a.largest_step_w();
-            if (size - p).abs() <= 0.2 * size {
-                return Some(format!("it is within a fifth of the size of {} ({size:.0} W on the same connection, declared by one power only): it may be {} drawing other than its nameplate", a.id, a.id));
+            if (size - p).abs() <= 0.2 * size && ck.steps_declared < self.th.seen_where_declared {
+                return Some(format!("it is within a fifth of the size of {} ({size:.0} W on the same connection, declared by one power only, not seen switching at that size): it may be {} drawing other than its nameplate", a.id, a.id));
             }
             if size > 1.2 * p && !self.runs_apart(c, a, ck.steps_declared) {
                 return Some(format!("it is smaller than {} ({size:.0} W on the same connection, declared by one power only): it may be one of its elements or a lower setting", a.id));
