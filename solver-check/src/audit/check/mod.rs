@@ -159,9 +159,7 @@ pub fn check_with(
     findings.extend(stage.findings());
     let steps_explained = fit.iter().filter(|x| **x).count();
     let (findings, possible, unlisted) = sort_findings(d, findings, interval_s, th);
-    if steps_explained * 2 < used.len() {
-        notes.push(format!("the declaration explains {steps_explained} of {} steps of 100 VA or more ({:.0} %): many loads are not declared{}", used.len(), 100.0 * steps_explained as f64 / used.len() as f64, if d.partial { " (it says it is partial); the metering and placement checks rest on the declared appliances alone" } else { "; if it lists only some appliances, say so with [declaration] partial = true" }));
-    }
+    notes.extend(few_explained(d, steps_explained, used.len()));
     Outcome {
         possible_below: th.possible,
         findings,
@@ -173,6 +171,12 @@ pub fn check_with(
         steps_explained,
         notes,
     }
+}
+
+/// The warning when the declaration explains fewer than half of the
+/// `used` steps, with the share in per cent.
+fn few_explained(d: &Declared, explained: usize, used: usize) -> Option<String> {
+    (explained * 2 < used).then(|| format!("the declaration explains {explained} of {used} steps of 100 VA or more ({:.0} %): many loads are not declared{}", 100.0 * explained as f64 / used as f64, if d.partial { " (it says it is partial); the metering and placement checks rest on the declared appliances alone" } else { "; if it lists only some appliances, say so with [declaration] partial = true" }))
 }
 
 #[cfg(test)]
