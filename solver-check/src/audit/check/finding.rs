@@ -125,6 +125,25 @@ pub struct Finding {
     pub doubt: Option<String>,
 }
 
+/// The placement check of one declared appliance.
+#[derive(Clone, Debug)]
+pub struct ApplianceCheck {
+    /// The appliance id.
+    pub id: String,
+    /// Its wiring as declared (`L1-N`).
+    pub declared: String,
+    /// What the audit concluded about it.
+    pub verdict: Verdict,
+    /// The wiring the data shows, where it differs from the declared.
+    pub seen: Option<String>,
+    /// Why the verdict, in words.
+    pub reason: String,
+    /// Steps that fit it on its declared wiring.
+    pub steps_declared: usize,
+    /// Steps that fit it on the best other wiring.
+    pub steps_best_other: usize,
+}
+
 /// The findings, with their doubts, sorted into those listed, those
 /// listed as possible, and undeclared loads a partial declaration leaves
 /// unlisted.

@@ -2,7 +2,7 @@
 //! tolerances, the prediction at an event's measured voltages, and a
 //! step's least-squares connection.
 
-use super::metering::Metering;
+use super::hypothesis::Metering;
 use crate::audit::decl::{DeclAppliance, DeclDraw, Declared};
 use crate::audit::events::Event;
 use crate::contract::{Wiring, C64};
@@ -468,6 +468,16 @@ pub fn connection_of(d: &Declared, m: &Metering, delta: &[C64]) -> Vec<(Wiring, 
 /// one plus a wander each time needs one far more often.
 pub(super) fn coincidence_share(interval_s: f64) -> f64 {
     (0.25 * interval_s).clamp(0.25, 0.5)
+}
+
+/// P(X ≥ k) for X Poisson with mean `mean`.
+pub(super) fn poisson_tail(mean: f64, k: usize) -> f64 {
+    let (mut term, mut below) = ((-mean).exp(), 0.0);
+    for i in 0..k {
+        below += term;
+        term *= mean / (i + 1) as f64;
+    }
+    (1.0 - below).max(0.0)
 }
 
 /// Each event's distance from each appliance's steps (rows: events). A

@@ -3,97 +3,15 @@
 //! appliances' steps, the choice, and its findings (reversed CT, CT on
 //! another conductor, CTs or channels exchanged).
 
-use super::finding::{Finding, Kind};
+use super::finding::{ApplianceCheck, Finding, Kind};
 use super::fit::{any_fits, explained, fits_of, predicted, steps_explained, Ctx, Fits};
-use super::placement::{alternatives, place, uncheckable_in, ApplianceCheck, Window};
+use super::hypothesis::{alternatives, declared_metering, permutations, ChanMap, Metering};
+use super::placement::{place, uncheckable_in, Window};
 use super::thresholds::Thresholds;
 use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::{ChannelStats, Event};
-use crate::contract::{line_label, line_name, C64};
+use crate::contract::{line_label, line_name};
 use serde_json::{json, Value};
-
-/// How one channel reads: the conductor, the sign, and whether the power
-/// is turned by the angle between the channel's voltage and that conductor's.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct ChanMap {
-    /// The conductor (line index) whose current the channel's CT reads.
-    pub src: usize,
-    /// The sign it reads with: 1, or −1 for a CT clamped the wrong way round.
-    pub k: f64,
-    /// Whether the power is turned by the angle between the channel's
-    /// voltage and that conductor's (a CT on another line's conductor).
-    pub turned: bool,
-}
-
-/// A hypothesis of how the monitor's channels read the conductors.
-#[derive(Clone, Debug, PartialEq)]
-pub struct Metering {
-    /// How each channel reads, one per line channel.
-    pub map: Vec<ChanMap>,
-    /// Channels that read nothing (no CT): left out of every comparison.
-    pub absent: Vec<bool>,
-}
-
-impl Metering {
-    /// Complex factor from conductor power to channel reading.
-    fn factor(&self, d: &Declared, c: usize) -> C64 {
-        let m = self.map[c];
-        let u = if m.turned {
-            d.supply.unit(c) / d.supply.unit(m.src)
-        } else {
-            C64::new(1.0, 0.0)
-        };
-        u.scale(m.k)
-    }
-    /// Channel readings of per-conductor powers `t` (None: channel absent).
-    pub fn read(&self, d: &Declared, t: &[C64]) -> Vec<Option<C64>> {
-        (0..self.map.len())
-            .map(|c| {
-                (!self.absent[c]).then(|| {
-                    let r = t[self.map[c].src] * self.factor(d, c);
-                    if d.real_only {
-                        C64::new(r.re, 0.0)
-                    } else {
-                        r
-                    }
-                })
-            })
-            .collect()
-    }
-}
-
-/// The metering as declared.
-pub fn declared_metering(d: &Declared, absent: &[bool]) -> Metering {
-    let map = d
-        .channels
-        .iter()
-        .enumerate()
-        .map(|(c, ch)| ChanMap {
-            src: ch.conductor.unwrap_or(c),
-            k: if ch.reversed { -1.0 } else { 1.0 },
-            turned: true,
-        })
-        .collect();
-    Metering {
-        map,
-        absent: absent.to_vec(),
-    }
-}
-
-pub(super) fn permutations(n: usize) -> Vec<Vec<usize>> {
-    match n {
-        1 => vec![vec![0]],
-        2 => vec![vec![0, 1], vec![1, 0]],
-        _ => vec![
-            vec![0, 1, 2],
-            vec![0, 2, 1],
-            vec![1, 0, 2],
-            vec![1, 2, 0],
-            vec![2, 0, 1],
-            vec![2, 1, 0],
-        ],
-    }
-}
 
 /// Every metering hypothesis with its cost (mistakes it supposes against
 /// the declaration).
@@ -753,7 +671,7 @@ mod tests {
     use super::*;
     use crate::audit::check::testkit::{on_off, on_off_wired, three_phase, H};
     use crate::audit::check::{check, Outcome};
-    use crate::contract::Wiring;
+    use crate::contract::{Wiring, C64};
 
     /// A step of per-channel powers `delta` at `t` (230 V, steady).
     fn step(t: i64, delta: Vec<C64>) -> Event {

@@ -21,12 +21,14 @@
 //!    over the channels).
 //!
 //! One file per stage (`metering`, `placement`, `undeclared`), beside the
-//! matching of steps they share (`fit`), the findings and their doubts
-//! (`finding`) and the cut-offs (`thresholds`); this file runs the stages
-//! in order.
+//! matching of steps they share (`fit`), the meterings and wirings a
+//! declaration could have instead (`hypothesis`), the findings and their
+//! doubts (`finding`) and the cut-offs (`thresholds`); this file runs the
+//! stages in order.
 
 mod finding;
 mod fit;
+mod hypothesis;
 mod metering;
 mod placement;
 #[cfg(test)]
@@ -34,10 +36,10 @@ mod testkit;
 mod thresholds;
 mod undeclared;
 
-pub use finding::{Finding, Kind, Verdict};
+pub use finding::{ApplianceCheck, Finding, Kind, Verdict};
 pub use fit::{connection_of, TOL_ABS_V_W, TOL_ABS_W, TOL_REL, TOL_REL_V, USE_STEP};
-pub use metering::{declared_metering, ChanMap, Metering};
-pub use placement::{indistinct, uncheckable, uncheckable_in, ApplianceCheck};
+pub use hypothesis::{declared_metering, ChanMap, Metering};
+pub use placement::{indistinct, uncheckable, uncheckable_in};
 pub use thresholds::{Cutoff, CutoffError, Thresholds, CUTOFFS};
 
 use crate::audit::decl::Declared;

@@ -3,74 +3,17 @@
 //! declared line-to-neutral and back), rated draws at their size on every
 //! connection, and the moves made one at a time.
 
-use super::finding::{Finding, Kind, Verdict};
+use super::finding::{ApplianceCheck, Finding, Kind, Verdict};
 use super::fit::{
-    dist_model, distances, shape_of, visible, Ctx, Model, Pred, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
+    dist_model, distances, poisson_tail, shape_of, visible, Ctx, Model, Pred, TOL_ABS_V_W,
+    TOL_REL_V, USE_STEP,
 };
-use super::metering::{permutations, Metering};
+use super::hypothesis::{alternatives, wiring_names, Metering};
 use super::thresholds::Thresholds;
-use super::undeclared::poisson_tail;
 use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::Event;
 use crate::contract::{Wiring, C64};
 use serde_json::json;
-
-/// The placement check of one declared appliance.
-#[derive(Clone, Debug)]
-pub struct ApplianceCheck {
-    /// The appliance id.
-    pub id: String,
-    /// Its wiring as declared (`L1-N`).
-    pub declared: String,
-    /// What the audit concluded about it.
-    pub verdict: Verdict,
-    /// The wiring the data shows, where it differs from the declared.
-    pub seen: Option<String>,
-    /// Why the verdict, in words.
-    pub reason: String,
-    /// Steps that fit it on its declared wiring.
-    pub steps_declared: usize,
-    /// Steps that fit it on the best other wiring.
-    pub steps_best_other: usize,
-}
-
-/// Other wirings an appliance could have: for one connection, every other
-/// one of the supply; for several, the lines renamed.
-pub(super) fn alternatives(d: &Declared, a: &DeclAppliance) -> Vec<(String, DeclAppliance)> {
-    let n = d.supply.lines();
-    let ws = a.wirings();
-    if ws.len() == 1 {
-        Wiring::all(n)
-            .into_iter()
-            .filter(|w| *w != ws[0])
-            .map(|w| (w.name(), a.rewired_on(&d.supply, |_| w)))
-            .collect()
-    } else {
-        permutations(n)
-            .into_iter()
-            .skip(1)
-            .map(|p| {
-                let b = a.rewired_on(&d.supply, |w| w.permuted(&p));
-                (
-                    b.wirings()
-                        .iter()
-                        .map(|w| w.name())
-                        .collect::<Vec<_>>()
-                        .join(" + "),
-                    b,
-                )
-            })
-            .collect()
-    }
-}
-
-pub(super) fn wiring_names(a: &DeclAppliance) -> String {
-    a.wirings()
-        .iter()
-        .map(|w| w.name())
-        .collect::<Vec<_>>()
-        .join(" + ")
-}
 
 pub(super) fn kind_of(decl: &DeclAppliance, seen: &DeclAppliance) -> Kind {
     let (dw, sw) = (decl.wirings(), seen.wirings());

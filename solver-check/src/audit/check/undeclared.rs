@@ -2,12 +2,13 @@
 //! clustered by connection and size, tested against coincidences of two
 //! declared appliances, with their energy share.
 
-use super::finding::{coarse_doubt, same_wiring_name, Finding, Kind, Verdict};
+use super::finding::{coarse_doubt, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict};
 use super::fit::{
-    connection_of, dist_delta, distances, fits, predicted, shape_of, tol, Ctx, Pred, USE_STEP,
+    connection_of, dist_delta, distances, fits, poisson_tail, predicted, shape_of, tol, Ctx, Pred,
+    USE_STEP,
 };
-use super::metering::Metering;
-use super::placement::{alternatives, one_power, wiring_names, ApplianceCheck};
+use super::hypothesis::{alternatives, wiring_names, Metering};
+use super::placement::one_power;
 use super::thresholds::Thresholds;
 use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::{ChannelStats, Event};
@@ -194,16 +195,6 @@ pub(super) fn coincidences(
         }
     }
     out
-}
-
-/// P(X ≥ k) for X Poisson with mean `mean`.
-pub(super) fn poisson_tail(mean: f64, k: usize) -> f64 {
-    let (mut term, mut below) = ((-mean).exp(), 0.0);
-    for i in 0..k {
-        below += term;
-        term *= mean / (i + 1) as f64;
-    }
-    (1.0 - below).max(0.0)
 }
 
 /// Steps of one connection and size that nothing declared explains, gathered
@@ -527,7 +518,7 @@ fn runs_apart_of(mine: &[(i64, i64)], theirs: &[(i64, i64)], seen: usize) -> boo
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::audit::check::metering::declared_metering;
+    use crate::audit::check::hypothesis::declared_metering;
     use crate::audit::check::testkit::{on_off, split_phase, H};
 
     /// Starts each followed by a stop within 12 h pair up; a stop before
