@@ -3,7 +3,7 @@
 //! matrix that injects known installer mistakes into the demo homes,
 //! simulates them, audits them and scores the findings against the truth.
 
-use crate::behaviour::timelines;
+use crate::loads::timelines;
 use crate::scenario::{self, Behaviour, Dist, DropMode, Dropouts, Scenario};
 use crate::simulate::simulate;
 use serde_json::{json, Value};

@@ -24,6 +24,7 @@ pub mod difficulty;
 pub mod electrical;
 pub mod fleet;
 pub mod layouts;
+pub mod loads;
 pub mod matrix;
 pub mod meter;
 pub mod pipeline;

@@ -3,9 +3,9 @@
 //! chunk's tables to a writer thread; [`crate::dataset`] only writes what
 //! it is given.
 
-use crate::behaviour::timelines;
 use crate::dataset::tables::Tables;
 use crate::dataset::{encode_rows, folder, replace_dir, Files, Format, Layout, CHUNK_ROWS};
+use crate::loads::timelines;
 use crate::meter::MeterNoise;
 use crate::scenario::Scenario;
 use crate::simulate::{simulate_with, Chunk, SimulationRecord};

@@ -271,7 +271,7 @@ fn check_solution(
 /// Runs the simulation over `intervals` reporting intervals, handing each
 /// chunk of at most `chunk_rows` rows to `sink`.
 ///
-/// `timelines` come from [`crate::behaviour::timelines`]; `sink` returns an
+/// `timelines` come from [`crate::loads::timelines`]; `sink` returns an
 /// error of the caller's own type to stop the run (writing failed, …), and a
 /// solve that does not settle stops it with [`Diverged`].
 ///
@@ -281,7 +281,7 @@ fn check_solution(
 /// second:
 ///
 /// ```
-/// use loadloom::{behaviour, electrical::settle::Diverged, scenario, simulate};
+/// use loadloom::{electrical::settle::Diverged, loads, scenario, simulate};
 /// let text = r#"
 /// [home]
 /// supply = "split-phase"
@@ -297,7 +297,7 @@ fn check_solution(
 /// states = [{ power = "1500 W", pf = 1.0 }]
 /// "#;
 /// let home = scenario::load_str(std::path::Path::new("kettle.toml"), text.into())?;
-/// let timelines = behaviour::timelines(&home, home.run.steps());
+/// let timelines = loads::timelines(&home, home.run.steps());
 /// let mut kettle_w = Vec::new();
 /// let outcome = simulate::simulate(&home, &timelines, home.intervals(), 65_536, |chunk| {
 ///     kettle_w.extend_from_slice(&chunk.truth.app_p[0]); // W, one per interval

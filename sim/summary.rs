@@ -4,8 +4,8 @@
 //! current (every appliance in its largest state at once, an upper bound)
 //! against the service rating.
 
-use crate::behaviour::timelines;
 use crate::electrical::split::state_split;
+use crate::loads::timelines;
 use crate::pipeline::Written;
 use crate::scenario::Scenario;
 use solver_check::contract::line_label;

@@ -4,7 +4,7 @@
 //! figures the scenario cites (`[[reference]]`), and the year's weather
 //! against the normal of its climate.
 
-use crate::behaviour::timelines_with_record;
+use crate::loads::timelines_with_record;
 use crate::scenario::{Reference, Scenario};
 use crate::thermal::Record;
 use crate::weather::{climate::DegreeDays, WeatherSpec};

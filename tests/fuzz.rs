@@ -477,7 +477,7 @@ fn exercise(mut s: Scenario) -> Result<(), String> {
     let preview = loadloom::summary::Preview::of(&s);
     let _ = preview.to_text();
     let _ = preview.to_json();
-    let tl = loadloom::behaviour::timelines(&s, s.run.steps());
+    let tl = loadloom::loads::timelines(&s, s.run.steps());
     let tables = loadloom::dataset::tables::Tables::new(&s);
     let mut bad = None;
     let outcome = loadloom::simulate::simulate(&s, &tl, s.intervals(), 4096, |c| {

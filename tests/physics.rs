@@ -20,7 +20,7 @@ struct Run {
 
 fn run(toml: &str) -> (Scenario, Run) {
     let s = load_str(Path::new("test.toml"), toml.to_string()).unwrap_or_else(|e| panic!("{e}"));
-    let tl = loadloom::behaviour::timelines(&s, s.run.steps());
+    let tl = loadloom::loads::timelines(&s, s.run.steps());
     let lines = s.home.supply.lines();
     let mut r = Run {
         line_p: vec![vec![]; lines],

@@ -496,7 +496,7 @@ states = [{ power = "4 kW", pf = 1.0 }]
     fn lent_columns_come_back_with_their_room() {
         let s = home();
         let tables = Tables::new(&s);
-        let tl = crate::behaviour::timelines(&s, s.run.steps());
+        let tl = crate::loads::timelines(&s, s.run.steps());
         let mut chunks = 0;
         crate::simulate::simulate(&s, &tl, s.intervals(), 256, |c| {
             let rows = c.readings.rows();

@@ -398,7 +398,7 @@ fn check_generation_ids(
 /// The weather, the building and the cited references of a home.
 type Thermal = (
     Option<crate::weather::WeatherSpec>,
-    Option<crate::thermal::Building>,
+    Option<super::model::Building>,
     Vec<Reference>,
 );
 
@@ -515,7 +515,7 @@ fn check_thermostats(
             matches!(
                 a.behaviour,
                 Behaviour::Thermostat {
-                    role: crate::thermal::equipment::Equipment::HeatPump(_)
+                    role: super::model::Equipment::HeatPump(_)
                 }
             )
         })

@@ -443,8 +443,56 @@ pub enum Behaviour {
     /// timeline comes from the heat balance, not from draws of its own.
     Thermostat {
         /// Which part of the heating or cooling plant it is.
-        role: crate::thermal::equipment::Equipment,
+        role: Equipment,
     },
+}
+
+/// What a thermostatic appliance is, with its ratings.
+#[derive(Clone, Debug, Serialize)]
+#[serde(tag = "role", rename_all = "kebab-case")]
+pub enum Equipment {
+    /// Air-source heat pump; states off, heating, defrost (and cooling).
+    HeatPump(HeatPump),
+    /// Cooling only; states off, cooling.
+    AirConditioner {
+        /// Coefficient of performance at the cooling rating point (heat
+        /// moved over electricity drawn).
+        cop: f64,
+    },
+    /// Electric resistance (baseboards, a furnace's strips); states off,
+    /// heating. `backup`: the heat pump's second stage, not a heater of its own.
+    Resistance {
+        /// The heat pump's second stage rather than a heater of its own.
+        backup: bool,
+    },
+    /// A fuel-fired furnace: delivers `capacity_w` of heat; its electric
+    /// draw (blower, inducer) is the running state's.
+    Furnace {
+        /// Heat delivered while running, W.
+        capacity_w: f64,
+    },
+    /// An air handler's fan: runs whenever heat or cooling is delivered by air.
+    Blower,
+}
+
+/// An air-source heat pump's ratings.
+#[derive(Clone, Debug, Serialize)]
+pub struct HeatPump {
+    /// Heating COP at 8.33 °C outdoor.
+    pub cop: f64,
+    /// Heating capacity at −8.33 °C as a share of that at 8.33 °C.
+    pub low_capacity: f64,
+    /// Sink temperature of the published COP fit, °C (the condensing side:
+    /// about 35 °C for warm air or floor heating, 45–55 °C for radiators).
+    pub sink_c: f64,
+    /// Below this outdoor temperature the compressor is locked out, °C.
+    pub lockout_c: f64,
+    /// Cooling COP at the cooling rating point, if it also cools.
+    pub cooling_cop: Option<f64>,
+    /// Run time between defrosts when it is frosting, s (0: no defrost).
+    pub defrost_every_s: f64,
+    /// Length of a defrost, s.
+    pub defrost_length_s: f64,
 }
 
 impl Behaviour {
@@ -795,6 +843,35 @@ pub struct Reference {
     pub source: String,
 }
 
+/// The building's heat-loss and storage figures and its thermostat.
+#[derive(Clone, Debug, Serialize)]
+pub struct Building {
+    /// Heat loss coefficient in steady state (transmission and air change), W/K.
+    pub ua_w_k: f64,
+    /// Share of `ua_w_k` through windows and ventilation (no storage).
+    pub direct_share: f64,
+    /// Heat capacity of the interior node (air, furnishings, linings), J/K.
+    pub air_j_k: f64,
+    /// Heat capacity of the envelope node (the heavy structure), J/K.
+    pub mass_j_k: f64,
+    /// Conductance between the interior and the envelope node, W/K.
+    pub coupling_w_k: f64,
+    /// Heating setpoint, °C.
+    pub heating_c: f64,
+    /// Cooling setpoint, °C (None: no cooling).
+    pub cooling_c: Option<f64>,
+    /// Thermostat deadband (on below setpoint − half, off above + half), K.
+    pub deadband_k: f64,
+    /// Droop below the band that brings on the second stage (backup), K.
+    pub second_stage_k: f64,
+    /// Local hours of the night setback and its depth, K.
+    pub setback: Option<([bool; 24], f64)>,
+    /// Share of the other appliances' energy that warms the rooms.
+    pub gains_share: f64,
+    /// Solar aperture: area that lets the horizontal irradiance in, m².
+    pub aperture_m2: f64,
+}
+
 /// A home and everything to simulate about it, resolved: SI units inside,
 /// every default filled in.
 #[derive(Clone, Debug, Serialize)]
@@ -826,7 +903,7 @@ pub struct Scenario {
     pub weather: Option<crate::weather::WeatherSpec>,
     /// The building's heat balance and thermostat (`[building]`).
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub building: Option<crate::thermal::Building>,
+    pub building: Option<Building>,
     /// Published figures the scenario cites for a year of the home.
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub references: Vec<Reference>,

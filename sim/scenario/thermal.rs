@@ -1,12 +1,10 @@
 //! The scenario language of weather and heating: `[weather]`, `[building]`
 //! and the roles of `behaviour = "thermostat"` appliances.
 
-use super::model::{Appliance, Home, Reference, Run, State};
+use super::model::{Appliance, Building, Equipment, HeatPump, Home, Reference, Run, State};
 use super::reader::{Reader, TableReader};
 use super::source::{Error, Node, Val};
 use super::values::parse_hours;
-use crate::thermal::equipment::{Equipment, HeatPump};
-use crate::thermal::Building;
 use crate::units::QuantityKind;
 use crate::weather::{climate::NAMED, Climate, WeatherSpec};
 use std::path::Path;

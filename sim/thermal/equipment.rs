@@ -17,7 +17,7 @@
 //! and 26.7 °C indoor (AHRI 210/240 "A" conditions, from memory); capacity
 //! falling 1 % per K above 35 °C (from memory).
 
-use serde::Serialize;
+use crate::scenario::{Equipment, HeatPump};
 
 /// The heating rating point, °C (47 °F).
 pub const RATING_HIGH_C: f64 = 8.333;
@@ -25,34 +25,6 @@ pub const RATING_HIGH_C: f64 = 8.333;
 pub const RATING_LOW_C: f64 = -8.333;
 /// The cooling rating point: outdoor and indoor, °C (95 °F, 80 °F).
 pub const RATING_COOL_C: (f64, f64) = (35.0, 26.667);
-
-/// What a thermostatic appliance is, with its ratings.
-#[derive(Clone, Debug, Serialize)]
-#[serde(tag = "role", rename_all = "kebab-case")]
-pub enum Equipment {
-    /// Air-source heat pump; states off, heating, defrost (and cooling).
-    HeatPump(HeatPump),
-    /// Cooling only; states off, cooling.
-    AirConditioner {
-        /// Coefficient of performance at the cooling rating point (heat
-        /// moved over electricity drawn).
-        cop: f64,
-    },
-    /// Electric resistance (baseboards, a furnace's strips); states off,
-    /// heating. `backup`: the heat pump's second stage, not a heater of its own.
-    Resistance {
-        /// The heat pump's second stage rather than a heater of its own.
-        backup: bool,
-    },
-    /// A fuel-fired furnace: delivers `capacity_w` of heat; its electric
-    /// draw (blower, inducer) is the running state's.
-    Furnace {
-        /// Heat delivered while running, W.
-        capacity_w: f64,
-    },
-    /// An air handler's fan: runs whenever heat or cooling is delivered by air.
-    Blower,
-}
 
 impl Equipment {
     /// The role's name as written in the scenario (`heat-pump`, `blower`, …).
@@ -66,26 +38,6 @@ impl Equipment {
             Equipment::Blower => "blower",
         }
     }
-}
-
-/// An air-source heat pump's ratings.
-#[derive(Clone, Debug, Serialize)]
-pub struct HeatPump {
-    /// Heating COP at 8.33 °C outdoor.
-    pub cop: f64,
-    /// Heating capacity at −8.33 °C as a share of that at 8.33 °C.
-    pub low_capacity: f64,
-    /// Sink temperature of the published COP fit, °C (the condensing side:
-    /// about 35 °C for warm air or floor heating, 45–55 °C for radiators).
-    pub sink_c: f64,
-    /// Below this outdoor temperature the compressor is locked out, °C.
-    pub lockout_c: f64,
-    /// Cooling COP at the cooling rating point, if it also cools.
-    pub cooling_cop: Option<f64>,
-    /// Run time between defrosts when it is frosting, s (0: no defrost).
-    pub defrost_every_s: f64,
-    /// Length of a defrost, s.
-    pub defrost_length_s: f64,
 }
 
 /// Below this outdoor temperature an outdoor coil frosts (common practice,

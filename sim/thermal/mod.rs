@@ -16,39 +16,10 @@ pub mod equipment;
 
 use crate::behaviour::window::{self, Fit, Piece, Reach};
 use crate::behaviour::{Clock, Segment, Timeline};
-use crate::scenario::{Appliance, Behaviour, Scenario};
+use crate::scenario::{Appliance, Behaviour, Building, Equipment, HeatPump, Scenario};
 use crate::weather::Weather;
-use equipment::{Equipment, FROST_BELOW_C};
+use equipment::FROST_BELOW_C;
 use serde::Serialize;
-
-/// The building's heat-loss and storage figures and its thermostat.
-#[derive(Clone, Debug, Serialize)]
-pub struct Building {
-    /// Heat loss coefficient in steady state (transmission and air change), W/K.
-    pub ua_w_k: f64,
-    /// Share of `ua_w_k` through windows and ventilation (no storage).
-    pub direct_share: f64,
-    /// Heat capacity of the interior node (air, furnishings, linings), J/K.
-    pub air_j_k: f64,
-    /// Heat capacity of the envelope node (the heavy structure), J/K.
-    pub mass_j_k: f64,
-    /// Conductance between the interior and the envelope node, W/K.
-    pub coupling_w_k: f64,
-    /// Heating setpoint, °C.
-    pub heating_c: f64,
-    /// Cooling setpoint, °C (None: no cooling).
-    pub cooling_c: Option<f64>,
-    /// Thermostat deadband (on below setpoint − half, off above + half), K.
-    pub deadband_k: f64,
-    /// Droop below the band that brings on the second stage (backup), K.
-    pub second_stage_k: f64,
-    /// Local hours of the night setback and its depth, K.
-    pub setback: Option<([bool; 24], f64)>,
-    /// Share of the other appliances' energy that warms the rooms.
-    pub gains_share: f64,
-    /// Solar aperture: area that lets the horizontal irradiance in, m².
-    pub aperture_m2: f64,
-}
 
 impl Building {
     /// Conductance of the envelope node to outdoors (the part of `ua` not
@@ -253,7 +224,7 @@ impl Controls {
         set_h: f64,
         ti: f64,
         t_out: f64,
-        hp: Option<&equipment::HeatPump>,
+        hp: Option<&HeatPump>,
     ) -> Ask {
         let half = 0.5 * b.deadband_k;
         if ti <= set_h - half {
@@ -292,13 +263,7 @@ impl Controls {
         self.compressor_on || self.off_s >= MIN_OFF_S
     }
 
-    fn after_step(
-        &mut self,
-        running: bool,
-        frosting: bool,
-        dt: f64,
-        hp: Option<&equipment::HeatPump>,
-    ) {
+    fn after_step(&mut self, running: bool, frosting: bool, dt: f64, hp: Option<&HeatPump>) {
         if running {
             self.off_s = 0.0;
         } else {
@@ -552,7 +517,7 @@ struct Run<'a> {
     memo: Memo,
     loads: Vec<&'a Appliance>,
     skip: Vec<usize>,
-    hp: Option<equipment::HeatPump>,
+    hp: Option<HeatPump>,
     /// Steps per control step.
     k: u64,
     /// Start of the clock the other loads' timelines are on, ms.

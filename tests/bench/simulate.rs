@@ -63,7 +63,7 @@ fn sim(s: &Scenario, out: &Path) {
 fn floor(s: &Scenario, out: &Path) {
     let mut short = s.clone();
     short.run.length_s = CHUNK_ROWS as f64 * s.meter.interval_s;
-    let tl = loadloom::behaviour::timelines(&short, short.run.steps());
+    let tl = loadloom::loads::timelines(&short, short.run.steps());
     let mut kept = None;
     let outcome = loadloom::simulate::simulate(
         &short,
