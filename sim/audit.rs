@@ -9,7 +9,7 @@ use crate::simulate::simulate;
 use serde_json::{json, Value};
 use solver_check::audit::check::{self, Outcome};
 use solver_check::audit::decl::{
-    DeclAppliance, DeclChannel, DeclDraw, Declared, Source, Steps, Supply,
+    DeclAppliance, DeclChannel, DeclDraw, Declared, Inverter, Steps, Supply,
 };
 use solver_check::audit::events::{ChannelStats, Detector, Event};
 use solver_check::contract::{line_name, Wiring, C64};
@@ -131,7 +131,7 @@ pub fn declared(s: &Scenario) -> Declared {
             .appliances
             .iter()
             .filter(|a| a.role != crate::scenario::Role::Load)
-            .map(|a| Source {
+            .map(|a| Inverter {
                 id: a.id.clone(),
                 wiring: a.wiring,
                 follows_home: matches!(a.behaviour, Behaviour::Storage(_)),

@@ -238,12 +238,12 @@ pub struct Declared {
     pub timezone: String,
     /// The rooftop PV and home battery the declaration gives: sources whose
     /// power follows the sun or the home, not steps to place.
-    pub generation: Vec<Source>,
+    pub generation: Vec<Inverter>,
 }
 
 /// A PV inverter or a home battery as declared.
 #[derive(Clone, Debug)]
-pub struct Source {
+pub struct Inverter {
     /// Its id (`pv`, `battery`).
     pub id: String,
     /// The conductors it is connected between.

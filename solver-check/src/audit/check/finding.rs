@@ -242,7 +242,7 @@ mod tests {
     /// findings stand.
     #[test]
     fn findings_the_pv_or_the_battery_could_make_are_only_possible() {
-        use crate::audit::decl::Source;
+        use crate::audit::decl::Inverter;
         let mut d = split_phase(vec![]);
         let f = |kind: Kind, ev: serde_json::Value| Finding {
             kind,
@@ -256,7 +256,7 @@ mod tests {
         let on_ln = f(Kind::WrongLine, json!({ "found": "L1-N" }));
         let ct = f(Kind::ReversedCt, json!({}));
         assert!(generation_doubt(&d, &on_ll).is_none(), "no generation");
-        d.generation.push(Source {
+        d.generation.push(Inverter {
             id: "pv".into(),
             wiring: Wiring::LineLine(0, 1),
             follows_home: false,
@@ -267,7 +267,7 @@ mod tests {
             "not the PV's wiring"
         );
         assert!(generation_doubt(&d, &ct).is_none());
-        d.generation.push(Source {
+        d.generation.push(Inverter {
             id: "battery".into(),
             wiring: Wiring::LineLine(0, 1),
             follows_home: true,
