@@ -558,4 +558,24 @@ mod tests {
         assert_eq!(coincidence_share(10.0), 0.5);
         assert_eq!(coincidence_share(0.1), 0.25);
     }
+
+    /// Reference: scipy.stats.poisson.sf(k - 1, mean), scipy 1.14.1.
+    #[test]
+    fn the_poisson_tail_is_scipys() {
+        for (mean, k, sf) in [
+            (1.0, 1, 0.6321205588285577),
+            (3.5, 8, 0.026738922091319697),
+            (0.844, 5, 0.0017794855370407824),
+            (0.968, 6, 0.000502179831641417),
+            (20.0, 10, 0.9950045876916924),
+        ] {
+            assert!(
+                (poisson_tail(mean, k) - sf).abs() < 1e-12,
+                "{mean} {k}: {}",
+                poisson_tail(mean, k)
+            );
+        }
+        assert_eq!(poisson_tail(0.0, 1), 0.0);
+        assert_eq!(poisson_tail(2.0, 0), 1.0);
+    }
 }
