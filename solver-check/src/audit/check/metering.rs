@@ -190,15 +190,14 @@ pub(super) struct Dispute {
     pub(super) for_declared: usize,
 }
 
-/// A step's worth of evidence: one run is a start and a stop.
-const RUN_STEPS: usize = 2;
-
 /// The evidence of the declared appliances on which `found` and `decl`
 /// differ. A metering fault moves every appliance on the channels it
 /// concerns, so its evidence comes from several appliances; one busy
 /// appliance on another line, or a load of a declared one's size nobody
-/// declared, speaks through one.
-pub(super) fn dispute(found: &Scored, decl: &Scored) -> Dispute {
+/// declared, speaks through one. An appliance takes a side with
+/// `th.dispute_run_steps` steps there, `th.dispute_ratio` times those on
+/// the other.
+pub(super) fn dispute(found: &Scored, decl: &Scored, th: &Thresholds) -> Dispute {
     let n = found.owns.first().or(decl.owns.first()).map_or(0, Vec::len);
     let only_f: Vec<bool> = (0..n)
         .map(|k| found.explains(k) && !decl.explains(k))
@@ -209,12 +208,15 @@ pub(super) fn dispute(found: &Scored, decl: &Scored) -> Dispute {
     let count = |own: Option<&Vec<bool>>, only: &[bool]| {
         own.map_or(0, |o| (0..n).filter(|&k| o[k] && only[k]).count())
     };
+    let takes = |mine: usize, theirs: usize| {
+        mine >= th.dispute_run_steps && mine as f64 >= th.dispute_ratio * theirs as f64
+    };
     let (mut for_found, mut for_declared) = (0, 0);
     for j in 0..found.owns.len().max(decl.owns.len()) {
         let g = count(found.owns.get(j), &only_f);
         let l = count(decl.owns.get(j), &only_d);
-        for_found += (g >= RUN_STEPS && g >= 2 * l) as usize;
-        for_declared += (l >= RUN_STEPS && l >= 2 * g) as usize;
+        for_found += takes(g, l) as usize;
+        for_declared += takes(l, g) as usize;
     }
     Dispute {
         gained: only_f.iter().filter(|x| **x).count(),
@@ -225,23 +227,27 @@ pub(super) fn dispute(found: &Scored, decl: &Scored) -> Dispute {
 }
 
 impl Dispute {
-    /// Whether the evidence clearly favours the metering found: twice the
-    /// steps (and a run's worth) and twice the appliances, two at least.
-    fn favours_found(&self) -> bool {
-        self.gained >= 2 * (self.lost + RUN_STEPS)
-            && self.for_found >= 2
-            && self.for_found >= 2 * self.for_declared
+    /// Whether the evidence clearly favours the metering found:
+    /// `dispute_ratio` times the steps (and a run's worth more) and the
+    /// appliances, `dispute_apps` at least.
+    fn favours_found(&self, th: &Thresholds) -> bool {
+        let r = th.dispute_ratio;
+        self.gained as f64 >= r * (self.lost + th.dispute_run_steps) as f64
+            && self.for_found >= th.dispute_apps
+            && self.for_found as f64 >= r * self.for_declared as f64
     }
 
     /// The share of the disputed steps that speak for the metering found,
-    /// with two runs' steps of doubt, times the share of the appliances
-    /// that take sides that take its side (none: no evidence).
-    fn share(&self) -> f64 {
+    /// with the least evidence a fault needs as doubt (a run of each of
+    /// `dispute_apps` appliances), times the share of the appliances that
+    /// take sides that take its side (none: no evidence).
+    fn share(&self, th: &Thresholds) -> f64 {
         let sides = self.for_found + self.for_declared;
         if sides == 0 {
             return 0.0;
         }
-        self.gained as f64 / (self.gained + self.lost + 2 * RUN_STEPS) as f64
+        let doubt = th.dispute_apps * th.dispute_run_steps;
+        self.gained as f64 / (self.gained + self.lost + doubt) as f64
             * (self.for_found as f64 / sides as f64)
     }
 }
@@ -276,7 +282,7 @@ pub(super) fn best_admissible(scored: &[Scored], decl_i: usize, th: &Thresholds)
         .map_or(decl_i, |s| s.i);
     let keeps = decl.admissible(th)
         && decl.ex as f64 >= 0.9 * best_ex as f64
-        && !dispute(&scored[cand], decl).favours_found();
+        && !dispute(&scored[cand], decl, th).favours_found(th);
     if keeps {
         decl_i
     } else {
@@ -394,7 +400,7 @@ pub(super) fn metering_confidence(
     th: &Thresholds,
 ) -> f64 {
     let by_apps = 1.0 - (decl.apps as f64 + 1.0) / (ch.apps as f64 + 1.0);
-    let by_steps = dispute(ch, decl).share();
+    let by_steps = dispute(ch, decl, th).share(th);
     let by_moves = if replaced > 0 {
         1.0 - 1.0 / replaced as f64
     } else {
@@ -750,9 +756,10 @@ mod tests {
     /// appliance elsewhere (or a load of its size), not a metering fault.
     #[test]
     fn a_metering_fault_is_seen_through_several_appliances() {
+        let th = Thresholds::STANDARD;
         let decl = scored(0, &[&[0, 1], &[], &[], &[]], 20);
         let found = scored(1, &[&[0, 1], &[2, 3, 4, 5], &[6, 7], &[8, 9]], 20);
-        let d = dispute(&found, &decl);
+        let d = dispute(&found, &decl, &th);
         assert_eq!(
             d,
             Dispute {
@@ -762,20 +769,28 @@ mod tests {
                 for_declared: 0
             }
         );
-        assert!(d.favours_found());
-        assert!((d.share() - 8.0 / 12.0).abs() < 1e-12);
+        assert!(d.favours_found(&th));
+        assert!((d.share(&th) - 8.0 / 12.0).abs() < 1e-12);
+        // The rule's numbers are cut-offs: four appliances asked, three do
+        // not suffice, and the doubt grows to a run of each of the four.
+        let four = Thresholds {
+            dispute_apps: 4,
+            ..th
+        };
+        assert!(!d.favours_found(&four));
+        assert!((d.share(&four) - 8.0 / 16.0).abs() < 1e-12);
         let decl = scored(0, &[&[0, 1, 2], &[3, 4, 5], &[]], 20);
         let found = scored(1, &[&[], &[], &(6..20).collect::<Vec<_>>()], 20);
-        let d = dispute(&found, &decl);
+        let d = dispute(&found, &decl, &th);
         assert_eq!(
             (d.gained, d.lost, d.for_found, d.for_declared),
             (14, 6, 1, 2)
         );
-        assert!(!d.favours_found());
-        assert!((d.share() - 14.0 / 24.0 / 3.0).abs() < 1e-12);
+        assert!(!d.favours_found(&th));
+        assert!((d.share(&th) - 14.0 / 24.0 / 3.0).abs() < 1e-12);
         // Nothing disputed: no evidence either way.
-        let d = dispute(&decl, &decl);
-        assert!(!d.favours_found() && d.share() == 0.0);
+        let d = dispute(&decl, &decl, &th);
+        assert!(!d.favours_found(&th) && d.share(&th) == 0.0);
     }
 
     /// Channels l1 and l3 exchanged whole and the kettle declared on L3-N

@@ -133,7 +133,7 @@ pub fn check_with(
     let (ch_apps, ch_ex) = (mc.scored[chosen].apps, mc.scored[chosen].ex);
     if chosen != decl_i {
         let conf = metering_confidence(&mc.scored[decl_i], &mc.scored[chosen], replaced, th);
-        let dsp = dispute(&mc.scored[chosen], &mc.scored[decl_i]);
+        let dsp = dispute(&mc.scored[chosen], &mc.scored[decl_i], th);
         let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "explained_only_as_found": dsp.gained, "explained_only_as_declared": dsp.lost, "appliances_for_found": dsp.for_found, "appliances_for_declared": dsp.for_declared, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg, "appliance_moves_replaced": replaced });
         metering_findings(d, &mc.decl_m, &m, conf, ev, &mut findings);
         silent_channel_accounts(&m, &mut findings, &mut notes);

@@ -80,6 +80,20 @@ pub struct Thresholds {
     /// not repeat at one size, starting and stopping alike, ten times
     /// (common practice, no source).
     pub coarse_runs: usize,
+    /// Steps a declared appliance must explain under one of two meterings
+    /// and not the other to take that one's side in their dispute: one run
+    /// (a start and a stop); a single step is as likely another load's.
+    pub dispute_run_steps: usize,
+    /// How many times the other side's steps an appliance must explain to
+    /// take a side, and how many times the declared metering's steps and
+    /// appliances a metering fault needs to be chosen over it: twice
+    /// (common practice, no source: a clear majority, not a near tie).
+    pub dispute_ratio: f64,
+    /// Declared appliances that must take a metering fault's side for it to
+    /// be chosen over the declared metering: a fault moves every appliance
+    /// on the channels it concerns, while one busy appliance elsewhere (or
+    /// a load of its size nobody declared) speaks through one.
+    pub dispute_apps: usize,
 }
 
 impl Thresholds {
@@ -97,6 +111,9 @@ impl Thresholds {
         decide_w: 300.0,
         partial_move: 6,
         coarse_runs: 10,
+        dispute_run_steps: 2,
+        dispute_ratio: 2.0,
+        dispute_apps: 2,
     };
 }
 
@@ -127,7 +144,7 @@ impl Cutoff {
 }
 
 /// Every cut-off of [`Thresholds`], in the order of its fields.
-pub const CUTOFFS: [Cutoff; 12] = [
+pub const CUTOFFS: [Cutoff; 15] = [
     Cutoff {
         name: "possible",
         meaning: "confidence below which a finding is listed apart as possible",
@@ -223,6 +240,30 @@ pub const CUTOFFS: [Cutoff; 12] = [
         count: true,
         get: |t| t.coarse_runs as f64,
         set: |t, v| t.coarse_runs = v as usize,
+    },
+    Cutoff {
+        name: "dispute_run_steps",
+        meaning: "steps a declared appliance must explain under one of two meterings and not the other to take that one's side",
+        range: (1.0, 1e6),
+        count: true,
+        get: |t| t.dispute_run_steps as f64,
+        set: |t, v| t.dispute_run_steps = v as usize,
+    },
+    Cutoff {
+        name: "dispute_ratio",
+        meaning: "how many times the other side's steps an appliance must explain to take a side, and a metering fault's steps and appliances the declared metering's to be chosen",
+        range: (1.0, 100.0),
+        count: false,
+        get: |t| t.dispute_ratio,
+        set: |t, v| t.dispute_ratio = v,
+    },
+    Cutoff {
+        name: "dispute_apps",
+        meaning: "declared appliances that must take a metering fault's side for it to be chosen over the declared metering",
+        range: (1.0, 1e6),
+        count: true,
+        get: |t| t.dispute_apps as f64,
+        set: |t, v| t.dispute_apps = v as usize,
     },
 ];
 
