@@ -65,16 +65,20 @@ fn lakeshore() -> Climate {
 }
 
 fn harbour() -> Climate {
-    // NOAA NCEI U.S. Climate Normals 1991–2020, a Mid-Atlantic coastal city
-    // park station (monthly mean temperature, °F), from memory (January to
-    // March agree with New York Central Park's 1991–2020 normals; the rest
-    // not checked).
+    // NOAA NCEI U.S. Climate Normals 1991–2020 of New York Central Park
+    // (monthly mean temperature, °F). January to March as tabulated from
+    // them in Wikipedia's New York climate table (revision of 4 May 2021);
+    // April to December from memory (not found in a source).
     let f = [
         33.7, 35.9, 42.8, 53.7, 63.2, 72.0, 77.5, 76.1, 69.2, 57.9, 48.0, 38.1,
     ];
     Climate {
         monthly_mean_c: f.map(F),
-        daily_swing_k: 7.5,   // same normals, mean max − mean min, from memory
+        // Mean max − mean min = 2 × (mean max − mean): the same table's
+        // mean daily maxima give 6.4 K in January to 7.9 K in March, and
+        // with the April to December means above, 8.2 K in July and 7.7 K
+        // over the year (62.6 °F mean maximum).
+        daily_swing_k: 7.5,
         spread_k: (4.5, 2.5), // from memory
         persistence: 0.7,     // from memory
     }
@@ -115,11 +119,14 @@ pub const NAMED: [Named; 3] = [
         name: "harbour",
         about: "mild coastal winters, hot humid summers (Mid-Atlantic coast)",
         climate: harbour,
-        source: "NOAA NCEI U.S. Climate Normals 1991-2020, Mid-Atlantic city park station",
+        source: "NOAA NCEI U.S. Climate Normals 1991-2020, New York Central Park (January to March; the rest from memory)",
+        // NWS New York's Central Park climate report for 24 May 2023
+        // (CLINYC, normals 1991–2020): 4 522 °F·d from 1 July to 24 May,
+        // 3 a day by then; the five weeks to 30 June add a few tens.
         normal: DegreeDays {
             base_c: 18.333,
             heating_kd: 4600.0 * 5.0 / 9.0,
-            source: "NOAA NCEI 1991-2020 normals: about 4600 heating degree days (base 65 F), from memory",
+            source: "NOAA NCEI 1991-2020 normals, New York Central Park: about 4600 heating degree days (base 65 F); 4522 from 1 July to 24 May in NWS New York's climate report of 25 May 2023",
         },
     },
     Named {
@@ -127,8 +134,11 @@ pub const NAMED: [Named; 3] = [
         about: "temperate central European (German area mean)",
         climate: rhineland,
         source: "Deutscher Wetterdienst, German area mean 1991-2020",
-        // Eurostat's heating degree days (base 18 °C, counted on days
-        // below 15 °C), Germany, recent decades about 3 100, from memory.
+        // Eurostat's heating degree days: 18 °C − daily mean on days whose
+        // mean is below 15 °C (the definition as the European Environment
+        // Agency's indicator CLIM 047, 2012, quotes it); Germany, recent
+        // decades about 3 100, from memory (the EU as a whole: 3 126 in
+        // 2021, 2 858 in 2022, Eurostat news releases of 2022 and 2023).
         normal: DegreeDays {
             base_c: 18.0,
             heating_kd: 3100.0,

@@ -18,7 +18,8 @@ curves, typed again from their sources.
   which shares no code with sim/sun/.
 - Named climates: monthly means and heating degree days against the
   published normals (NOAA NCEI 1991-2020 normals, Deutscher Wetterdienst
-  1991-2020, Eurostat heating degree days; all from memory).
+  1991-2020, Eurostat heating degree days; each source beside its row in
+  NORMALS, and what is from memory said there).
 """
 import json
 
@@ -198,14 +199,17 @@ NORMALS = {
     # annual heating degree days, base 65 °F: National Weather Service
     # Chicago, "Chicago Monthly and Yearly Normals (1991-2020)".
     "lakeshore": ([25.2, 28.8, 39.0, 49.7, 60.6, 70.6, 75.4, 73.8, 66.3, 54.0, 41.3, 30.5], "F", 5974, "America/Chicago"),
-    # NOAA NCEI 1991-2020, Mid-Atlantic city park station (°F); HDD base
-    # 65 °F. From memory (January to March agree with New York Central
-    # Park's 1991-2020 normals).
+    # NOAA NCEI 1991-2020 normals of New York Central Park (°F): January to
+    # March as Wikipedia's New York climate table (revision of 4 May 2021)
+    # tabulates them, April to December from memory. HDD base 65 °F: NWS
+    # New York's climate report of 25 May 2023 gives a normal 4 522 from
+    # 1 July to 24 May; the rest of the season adds a few tens.
     "harbour": ([33.7, 35.9, 42.8, 53.7, 63.2, 72.0, 77.5, 76.1, 69.2, 57.9, 48.0, 38.1], "F", 4600, "America/New_York"),
     # Deutscher Wetterdienst, German area mean 1991-2020 (°C; as
     # republished from DWD's grid by monatsprognose.de and
     # wetterprognose-wettervorhersage.de); Eurostat HDD (base 18 °C, days
-    # under 15 °C), Germany, from memory.
+    # under 15 °C: the definition as EEA indicator CLIM 047 quotes it),
+    # Germany's 3 100 from memory.
     "rhineland": ([0.9, 1.5, 4.7, 9.0, 13.1, 16.4, 18.3, 17.9, 13.8, 9.4, 4.8, 1.8], "C", 3100, "Europe/Berlin"),
 }
 
