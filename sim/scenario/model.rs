@@ -868,8 +868,22 @@ pub struct Building {
     pub setback: Option<([bool; 24], f64)>,
     /// Share of the other appliances' energy that warms the rooms.
     pub gains_share: f64,
-    /// Solar aperture: area that lets the horizontal irradiance in, m².
+    /// Horizontal solar aperture: area that lets the global horizontal
+    /// irradiance in, m².
     pub aperture_m2: f64,
+    /// Apertures facing a direction (windows), each lit by the irradiance
+    /// on its own plane.
+    pub glazing: Vec<Glazing>,
+}
+
+/// An aperture facing a direction: a window, a roof light.
+#[derive(Clone, Debug, Serialize)]
+pub struct Glazing {
+    /// Area that lets the irradiance on its plane in (glass area times its
+    /// solar transmittance), m².
+    pub aperture_m2: f64,
+    /// Its plane: tilt, azimuth and the albedo of the ground in front.
+    pub surface: crate::sun::Surface,
 }
 
 /// A home and everything to simulate about it, resolved: SI units inside,

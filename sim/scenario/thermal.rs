@@ -1,10 +1,13 @@
 //! The scenario language of weather and heating: `[weather]`, `[building]`
 //! and the roles of `behaviour = "thermostat"` appliances.
 
-use super::model::{Appliance, Building, Equipment, HeatPump, Home, Reference, Run, State};
+use super::model::{
+    Appliance, Building, Equipment, Glazing, HeatPump, Home, Reference, Run, State,
+};
 use super::reader::{Reader, TableReader};
 use super::source::{Error, Node, Val};
 use super::values::parse_hours;
+use crate::sun::Surface;
 use crate::units::QuantityKind;
 use crate::weather::{climate::NAMED, Climate, WeatherSpec};
 use std::path::Path;
@@ -215,17 +218,29 @@ fn decode_file(ctx: &Reader, f: &Node, run: &Run) -> Result<WeatherSpec, Error> 
     })
 }
 
-/// Whether light reaches a building's aperture: the sun over the home's
-/// site, or the irradiance of a weather file.
-pub fn sunlit(home: &Home, weather: Option<&WeatherSpec>) -> bool {
-    let recorded =
-        matches!(weather, Some(WeatherSpec::File { data, .. }) if data.ghi_w_m2.is_some());
-    home.site.is_some() || recorded
+/// What light a building's apertures can have: the sun over the home's
+/// site, the irradiance of a weather file, both or neither.
+#[derive(Clone, Copy, Debug)]
+pub struct Sunlit {
+    /// The home's site (the sun's path: any plane's irradiance).
+    pub site: Option<crate::sun::Site>,
+    /// A weather file gives the global horizontal irradiance.
+    pub recorded: bool,
 }
 
-/// `[building]`: the envelope and the thermostat; `sunlit`: whether the home
-/// has light for an aperture ([`sunlit`]).
-pub fn decode_building(ctx: &Reader, node: &Node, sunlit: bool) -> Result<Building, Error> {
+/// What light reaches the home's apertures ([`Sunlit`]).
+pub fn sunlit(home: &Home, weather: Option<&WeatherSpec>) -> Sunlit {
+    let recorded =
+        matches!(weather, Some(WeatherSpec::File { data, .. }) if data.ghi_w_m2.is_some());
+    Sunlit {
+        site: home.site,
+        recorded,
+    }
+}
+
+/// `[building]`: the envelope, the thermostat and the apertures; `sunlit`:
+/// what light the home has for them ([`sunlit`]).
+pub fn decode_building(ctx: &Reader, node: &Node, sunlit: Sunlit) -> Result<Building, Error> {
     let t = ctx.table(node, "building")?;
     let ua_w_k = ctx.positive(
         t.req("ua", "the heat loss coefficient, e.g. \"250 W/K\"")?,
@@ -263,7 +278,7 @@ pub fn decode_building(ctx: &Reader, node: &Node, sunlit: bool) -> Result<Buildi
     let aperture_m2 = t
         .non_negative("aperture", QuantityKind::Area)?
         .unwrap_or(0.0);
-    if aperture_m2 > 0.0 && !sunlit {
+    if aperture_m2 > 0.0 && !(sunlit.site.is_some() || sunlit.recorded) {
         return Err(ctx.err(
             t.opt("aperture").unwrap_or(node),
             "building.aperture",
@@ -271,6 +286,10 @@ pub fn decode_building(ctx: &Reader, node: &Node, sunlit: bool) -> Result<Buildi
             "give [home] latitude and longitude (the sun's path; `sky` for clouds), or a weather file with a ghi_w_m2 column",
         ));
     }
+    let glazing = match t.opt("glazing") {
+        Some(n) => decode_glazing(ctx, n, sunlit)?,
+        None => Vec::new(),
+    };
     t.finish()?;
     Ok(Building {
         ua_w_k,
@@ -285,7 +304,66 @@ pub fn decode_building(ctx: &Reader, node: &Node, sunlit: bool) -> Result<Buildi
         setback: th.setback,
         gains_share,
         aperture_m2,
+        glazing,
     })
+}
+
+/// The light a pane's ground sees reflected: PVWatts' default albedo
+/// (from memory), as a `[pv]` array's default.
+const GLAZING_ALBEDO: f64 = 0.2;
+
+/// `[building] glazing`: apertures facing a direction, each with its
+/// `aperture` (m²), `azimuth` (default facing the equator) and `tilt`
+/// (default 90°, a wall's window). Their light depends on the sun's
+/// direction, so the home needs a site.
+fn decode_glazing(ctx: &Reader, node: &Node, sunlit: Sunlit) -> Result<Vec<Glazing>, Error> {
+    let items = ctx.array(node, "building.glazing")?;
+    let Some(site) = sunlit.site.filter(|_| !items.is_empty()) else {
+        if items.is_empty() {
+            return Ok(Vec::new());
+        }
+        return Err(ctx.err(
+            node,
+            "building.glazing",
+            "glazing facing a direction needs the sun's path, and this home has no site",
+            "give [home] latitude and longitude (a weather file's ghi_w_m2 then sets the light), or write a horizontal `aperture` instead",
+        ));
+    };
+    let equator = if site.latitude_deg >= 0.0 { 180.0 } else { 0.0 };
+    items
+        .iter()
+        .enumerate()
+        .map(|(i, n)| {
+            let path = format!("building.glazing[{i}]");
+            let g = ctx.table(n, &path)?;
+            let aperture_m2 = ctx.positive(
+                g.req("aperture", "the area that lets the light on its plane in, e.g. \"2 m²\"")?,
+                &g.path_of("aperture"),
+                QuantityKind::Area,
+            )?;
+            let tilt_deg = g.non_negative("tilt", QuantityKind::Angle)?.unwrap_or(90.0);
+            if tilt_deg > 90.0 {
+                return Err(ctx.err(
+                    g.opt("tilt").unwrap_or(n),
+                    &g.path_of("tilt"),
+                    format!("a tilt of {tilt_deg}° faces the ground"),
+                    "write a tilt from \"0 deg\" (a roof light) to \"90 deg\" (a wall's window, the default)",
+                ));
+            }
+            let azimuth_deg = g
+                .non_negative("azimuth", QuantityKind::Angle)?
+                .unwrap_or(equator);
+            g.finish()?;
+            Ok(Glazing {
+                aperture_m2,
+                surface: Surface {
+                    tilt_deg,
+                    azimuth_deg,
+                    albedo: GLAZING_ALBEDO,
+                },
+            })
+        })
+        .collect()
 }
 
 /// The thermostat's keys of `[building]`.

@@ -5,7 +5,7 @@ use super::Light;
 
 /// A plane receiving light: tilt from horizontal and azimuth clockwise from
 /// north (a south-facing roof: 180°), degrees; the ground's albedo.
-#[derive(Clone, Copy, Debug, PartialEq)]
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
 pub struct Surface {
     /// Tilt from horizontal, degrees (0 flat, 90 vertical).
     pub tilt_deg: f64,

@@ -374,12 +374,13 @@ fn operate(
     (q, compressor, frosting)
 }
 
-/// Where the horizontal irradiance on the building's aperture comes from.
+/// Where the light on the building's apertures comes from.
 enum Sunlight<'a> {
     /// No aperture: no solar gains to compute.
     None,
-    /// A weather file's measured irradiance.
-    Recorded(&'a Weather),
+    /// A weather file's measured global horizontal irradiance; with a site,
+    /// split by Erbs for the glazing's planes.
+    Recorded(&'a Weather, Option<crate::sun::Site>),
     /// The sun over the home's site and its sky (`sim/sun`: NOAA position,
     /// Haurwitz clear sky times the stochastic clear-sky index), the same
     /// sky a `[pv]` array sees.
@@ -388,11 +389,11 @@ enum Sunlight<'a> {
 
 impl<'a> Sunlight<'a> {
     fn of(s: &Scenario, weather: &'a Weather, b: &Building) -> Sunlight<'a> {
-        if b.aperture_m2 <= 0.0 {
+        if b.aperture_m2 <= 0.0 && b.glazing.is_empty() {
             return Sunlight::None;
         }
         if weather.ghi_w_m2.is_some() {
-            return Sunlight::Recorded(weather);
+            return Sunlight::Recorded(weather, s.home.site);
         }
         match s.home.site {
             Some(site) => Sunlight::Sun(
@@ -406,17 +407,35 @@ impl<'a> Sunlight<'a> {
         }
     }
 
-    /// Global horizontal irradiance at `t_ms` (UTC), W/m².
-    fn ghi(&mut self, t_ms: i64) -> f64 {
-        match self {
-            Sunlight::None => 0.0,
-            Sunlight::Recorded(w) => w.ghi_at(t_ms),
-            Sunlight::Sun(site, sky) => crate::sun::light(*site, sky, t_ms).1.ghi,
-        }
+    /// The solar gains of `b`'s apertures at `t_ms` (UTC), W: the horizontal
+    /// aperture times the global horizontal irradiance, each glazing's
+    /// aperture times the irradiance on its plane (isotropic sky, Liu &
+    /// Jordan, `sun::plane_of_array`).
+    fn gains_w(&mut self, b: &Building, t_ms: i64) -> f64 {
+        let (pos, light) = match self {
+            Sunlight::None => return 0.0,
+            Sunlight::Recorded(w, site) => {
+                let ghi = w.ghi_at(t_ms);
+                match site.filter(|_| !b.glazing.is_empty() && ghi > 0.0) {
+                    Some(site) => {
+                        let pos = crate::sun::position(site, t_ms);
+                        let (dni, dhi) = crate::sun::decompose(ghi, pos.zenith_deg, t_ms);
+                        (pos, crate::sun::Light { ghi, dni, dhi })
+                    }
+                    None => return b.aperture_m2 * ghi,
+                }
+            }
+            Sunlight::Sun(site, sky) => crate::sun::light(*site, sky, t_ms),
+        };
+        b.glazing.iter().fold(b.aperture_m2 * light.ghi, |q, g| {
+            let poa =
+                crate::sun::plane_of_array(&g.surface, &light, pos.zenith_deg, pos.azimuth_deg);
+            q + g.aperture_m2 * poa
+        })
     }
 }
 
-/// The irradiance of every whole minute from a first instant, computed once:
+/// The solar gains of every whole minute from a first instant, computed once:
 /// the day blocks overlap, and the sun's position is most of the heat
 /// balance's cost.
 struct Memo {
@@ -439,9 +458,9 @@ impl Memo {
         }
     }
 
-    /// The irradiance at `t_ms`, from the memo where `t_ms` falls on its
-    /// minutes, else from `sun`.
-    fn ghi(&mut self, sun: &mut Sunlight, t_ms: i64) -> f64 {
+    /// The solar gains of `b` at `t_ms`, W, from the memo where `t_ms` falls
+    /// on its minutes, else from `sun`.
+    fn gains_w(&mut self, sun: &mut Sunlight, b: &Building, t_ms: i64) -> f64 {
         const MINUTE_MS: i64 = 60_000;
         let base = *self.base_ms.get_or_insert_with(|| {
             t_ms - ((t_ms - self.wide_start_ms).div_euclid(MINUTE_MS) + 1) * MINUTE_MS
@@ -456,11 +475,11 @@ impl Memo {
         match slot {
             Some(i) if !self.values[i as usize].is_nan() => self.values[i as usize],
             Some(i) => {
-                let v = sun.ghi(t_ms);
+                let v = sun.gains_w(b, t_ms);
                 self.values[i as usize] = v;
                 v
             }
-            None => sun.ghi(t_ms),
+            None => sun.gains_w(b, t_ms),
         }
     }
 }
@@ -558,7 +577,7 @@ impl Run<'_> {
         for (i, gain) in gains.iter().enumerate() {
             let t_ms = start_ms + i as i64 * dt_ms + mid_ms;
             out += self.weather.temp_at(t_ms);
-            q += b.gains_share * gain + b.aperture_m2 * self.ghi(t_ms);
+            q += b.gains_share * gain + self.solar_w(t_ms);
         }
         let (out, q) = (out / n as f64, q / n as f64);
         let interior = (out + q / b.ua_w_k).clamp(b.heating_c, b.cooling_c.unwrap_or(f64::MAX));
@@ -588,11 +607,11 @@ impl Run<'_> {
         appliance_gains(&self.loads, tl, &self.skip, at, bin as u64, n)
     }
 
-    /// The irradiance on the aperture's plane at `t_ms`, W/m².
-    fn ghi(&mut self, t_ms: i64) -> f64 {
+    /// The solar gains of the building's apertures at `t_ms`, W.
+    fn solar_w(&mut self, t_ms: i64) -> f64 {
         match self.sun {
             Sunlight::None => 0.0,
-            _ => self.memo.ghi(&mut self.sun, t_ms),
+            _ => self.memo.gains_w(&mut self.sun, self.b, t_ms),
         }
     }
 
@@ -619,7 +638,7 @@ impl Run<'_> {
         for (i, gain) in gains.iter().enumerate() {
             let t_ms = clock.start_utc_ms + i as i64 * dt_ms + mid_ms;
             let t_out = self.weather.temp_at(t_ms);
-            let q = b.gains_share * gain + b.aperture_m2 * self.ghi(t_ms);
+            let q = b.gains_share * gain + self.solar_w(t_ms);
             let free = step(b, temps, t_out, q, dt);
             // The step is linear in the heat: what one more watt does.
             let per_w = step(b, temps, t_out, q + 1.0, dt).interior - free.interior;
@@ -677,7 +696,7 @@ impl Run<'_> {
             for (u, &(state, scale)) in units.iter_mut().zip(&ops) {
                 u.push_delayed(from, to, state, scale, delays);
             }
-            let q = q_hvac + b.gains_share * gain + b.aperture_m2 * self.ghi(t_ms);
+            let q = q_hvac + b.gains_share * gain + self.solar_w(t_ms);
             let span = (to - from) as f64 * dt_step;
             let before = temps;
             temps = step(b, temps, t_out, q, span);
@@ -888,6 +907,7 @@ mod tests {
             setback: None,
             gains_share: 1.0,
             aperture_m2: 0.0,
+            glazing: Vec::new(),
         }
     }
 

@@ -189,7 +189,7 @@ WEATHER = [
 ]
 BUILDING = ('[building]\nua = "220 W/K"\nmass = "25 MJ/K"\nair = "2.5 MJ/K"\ndirect = "35 %"\n'
             'coupling = "2200 W/K"\nheating = "21 °C"\ncooling = "25 °C"\ndeadband = "1 K"\n'
-            'second_stage = "1 K"\nsetback = { hours = "22-6", by = "2 K" }\ngains = "70 %"\naperture = "2 m²"\n')
+            'second_stage = "1 K"\nsetback = { hours = "22-6", by = "2 K" }\ngains = "70 %"\naperture = "1 m²"\nglazing = [ { aperture = "2 m²", azimuth = "200 deg" } ]\n')
 THERMOSTATIC = [
     '[[appliance]]\nid = "sweep_heat_pump"\nwiring = "L1-L2"\nload = "motor"\nbehaviour = "thermostat"\nrole = "heat-pump"\n'
     'cop = 3.4\nlow_capacity = "60 %"\ncooling_cop = 3.6\nlockout = "-18 °C"\ndefrost = { every = "1 h", length = "5 min" }\n'
