@@ -29,6 +29,7 @@
 mod finding;
 mod fit;
 mod hypothesis;
+mod lookalike;
 mod metering;
 mod placement;
 #[cfg(test)]
@@ -159,6 +160,16 @@ pub fn check_with(
         th,
     };
     findings.extend(stage.findings());
+    let lookalikes = lookalike::LookAlikes {
+        d,
+        m: &m,
+        events: &used,
+        cxs: &cxs,
+        placed: &placed,
+        interval_s,
+        th,
+    };
+    findings.extend(lookalikes.findings());
     let steps_explained = fit.iter().filter(|x| **x).count();
     let (findings, possible, unlisted) = sort_findings(d, findings, interval_s, th);
     notes.extend(few_explained(d, steps_explained, used.len()));

@@ -94,6 +94,14 @@ pub struct Thresholds {
     /// on the channels it concerns, while one busy appliance elsewhere (or
     /// a load of its size nobody declared) speaks through one.
     pub dispute_apps: usize,
+    /// Times a step of a declared appliance's size must come while it is
+    /// already on (two starts with no stop between, the channels it draws
+    /// through rising by twice its power) to make a load of its size beside
+    /// it a finding rather than possible: one such overlap may be a stop of
+    /// the appliance lost among other loads' changes with another load coming
+    /// on before its next start; three of them hardly (common practice, no
+    /// source).
+    pub overlap_runs: usize,
 }
 
 impl Thresholds {
@@ -114,6 +122,7 @@ impl Thresholds {
         dispute_run_steps: 2,
         dispute_ratio: 2.0,
         dispute_apps: 2,
+        overlap_runs: 3,
     };
 }
 
@@ -144,7 +153,7 @@ impl Cutoff {
 }
 
 /// Every cut-off of [`Thresholds`], in the order of its fields.
-pub const CUTOFFS: [Cutoff; 15] = [
+pub const CUTOFFS: [Cutoff; 16] = [
     Cutoff {
         name: "possible",
         meaning: "confidence below which a finding is listed apart as possible",
@@ -264,6 +273,14 @@ pub const CUTOFFS: [Cutoff; 15] = [
         count: true,
         get: |t| t.dispute_apps as f64,
         set: |t, v| t.dispute_apps = v as usize,
+    },
+    Cutoff {
+        name: "overlap_runs",
+        meaning: "times a step of a declared one-power appliance's size comes while it is already on (twice its power drawn) that make a load of its size beside it a finding",
+        range: (0.0, 1e6),
+        count: true,
+        get: |t| t.overlap_runs as f64,
+        set: |t, v| t.overlap_runs = v as usize,
     },
 ];
 

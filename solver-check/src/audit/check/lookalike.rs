@@ -1,0 +1,303 @@
+//! Stage 3, undeclared loads hidden behind a declared appliance: a load the
+//! size of a declared appliance, on its connection, makes steps that fit
+//! that appliance and would be taken for it. One appliance that is off or
+//! on at one power cannot start again while it is on, nor draw twice its
+//! power: two such starts with no stop between, the channels it draws
+//! through rising by twice its step, are two loads (common practice, no
+//! source: a load's power does not exceed its nameplate).
+
+use super::finding::{coarse_doubt, Finding, Kind};
+use super::fit::{Ctx, Pred};
+use super::hypothesis::{wiring_names, Metering};
+use super::thresholds::Thresholds;
+use super::undeclared::{first, first_local};
+use crate::audit::decl::{DeclAppliance, Declared};
+use crate::audit::events::Event;
+use crate::contract::C64;
+use serde_json::json;
+
+/// Two steps further apart than this are not taken as one overlap, ms.
+const OVERLAP_WITHIN_MS: i64 = 12 * 3_600_000;
+
+/// How far two starts (or two stops) must take the appliance's channels,
+/// in units of its step: twice it, less a tenth of tolerance on each step
+/// (the predicted step's relative tolerance) and as much again for other
+/// loads' small changes between them.
+const TWICE: f64 = 1.6;
+
+/// Appliances of smaller steps are not weighed: a look-alike is a
+/// recurring load of 500 W or more, as for the other undeclared loads.
+const BIG_W: f64 = 500.0;
+
+/// A change between two steps, along the appliance's start, from which the
+/// two are not taken as one overlap: a stop of the appliance that fell
+/// among other changes, or another load's change, may be in it.
+const QUIET: f64 = 0.3;
+
+/// A step that fits a declared appliance and no other as placed: when,
+/// whether it is a start, its real power, the level of the channels the
+/// appliance draws through before and after it, along its start (in units
+/// of its start), and the largest change along its start among the steps
+/// since the appliance's previous one.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(super) struct OwnStep {
+    /// When, ms.
+    pub t: i64,
+    /// A start (its power rising).
+    pub start: bool,
+    /// Its size in units of the appliance's start (positive).
+    pub size: f64,
+    /// The channels' level before it, in units of its start.
+    pub before: f64,
+    /// The channels' level after it, in units of its start.
+    pub after: f64,
+    /// The largest change along its start among the other steps since the
+    /// appliance's previous step, in units of its start.
+    pub between: f64,
+}
+
+/// The second step of each pair of steps of one way, with no other change
+/// of a third of its size on its channels between them, that take the
+/// channels through twice the step or more: a start while it was already
+/// on, or a stop after it had stopped.
+pub(super) fn overlaps(steps: &[OwnStep]) -> Vec<OwnStep> {
+    steps
+        .windows(2)
+        .filter(|w| {
+            let (a, b) = (w[0], w[1]);
+            let span = if a.start {
+                b.after - a.before
+            } else {
+                a.before - b.after
+            };
+            a.start == b.start && b.t - a.t <= OVERLAP_WITHIN_MS && b.between < QUIET && span >= TWICE
+        })
+        .map(|w| w[1])
+        .collect()
+}
+
+/// Real part of `v` along the real parts of `r`, in units of `r`.
+fn along(v: &[C64], r: &[Option<C64>]) -> Option<f64> {
+    let (num, den) = r
+        .iter()
+        .zip(v)
+        .filter_map(|(r, x)| r.map(|r| (x.re * r.re, r.re * r.re)))
+        .fold((0.0, 0.0), |(n, d), (a, b)| (n + a, d + b));
+    (den > 0.0).then(|| num / den)
+}
+
+/// What the look-alike check weighs: the steps, with the appliances as
+/// placed.
+pub(super) struct LookAlikes<'a> {
+    pub d: &'a Declared,
+    pub m: &'a Metering,
+    pub events: &'a [&'a Event],
+    pub cxs: &'a [Ctx],
+    pub placed: &'a [DeclAppliance],
+    pub interval_s: f64,
+    pub th: &'a Thresholds,
+}
+
+impl LookAlikes<'_> {
+    /// A finding for each declared appliance of one power (off, or on at one
+    /// power) seen starting while already on: a load of its size beside it.
+    pub fn findings(&self) -> Vec<Finding> {
+        let preds: Vec<Pred> = self
+            .placed
+            .iter()
+            .map(|a| Pred::of(self.d, self.m, a))
+            .collect();
+        (0..self.placed.len())
+            .filter(|&j| {
+                // Two states, off and on: it cannot draw more than on.
+                let a = &self.placed[j];
+                a.states.len() == 2 && !a.steps.jumps().is_empty() && a.largest_step_w() >= BIG_W
+            })
+            .filter_map(|j| {
+                let seen = overlaps(&self.own_steps(j, &preds));
+                (!seen.is_empty()).then(|| self.finding(&self.placed[j], &seen))
+            })
+            .collect()
+    }
+
+    /// The steps that fit appliance `j` and no other appliance as placed.
+    fn own_steps(&self, j: usize, preds: &[Pred]) -> Vec<OwnStep> {
+        let (d, m) = (self.d, self.m);
+        let Some(r) = preds[j].nom.first() else {
+            return vec![];
+        };
+        // The start: the jump with its real power rising.
+        let sign = if r.iter().flatten().map(|c| c.re).sum::<f64>() < 0.0 {
+            -1.0
+        } else {
+            1.0
+        };
+        let start: Vec<Option<C64>> = r.iter().map(|c| c.map(|c| c.scale(sign))).collect();
+        let mut out = Vec::new();
+        let mut between: f64 = 0.0;
+        for (k, e) in self.events.iter().enumerate() {
+            let cx = &self.cxs[k];
+            let (Some(step), Some(before)) = (along(&e.delta, &start), along(&e.before, &start))
+            else {
+                continue;
+            };
+            if preds[j].dist(d, m, e, cx) > 1.0
+                || preds
+                    .iter()
+                    .enumerate()
+                    .any(|(o, p)| o != j && p.dist(d, m, e, cx) <= 1.0)
+            {
+                between = between.max(step.abs());
+                continue;
+            }
+            out.push(OwnStep {
+                t: e.time_ms,
+                start: step > 0.0,
+                size: step.abs(),
+                before,
+                after: before + step,
+                between,
+            });
+            between = 0.0;
+        }
+        out
+    }
+
+    /// The finding that a load of the size of `a` runs beside it, from the
+    /// steps `seen` that came while it was already on (or already off).
+    fn finding(&self, a: &DeclAppliance, seen: &[OwnStep]) -> Finding {
+        let n = seen.len();
+        // Its real power: the declared step's, scaled as the channels read
+        // it (a channel sum would cancel on a CT the wrong way round).
+        let p = a.largest_step_w() * seen.iter().map(|s| s.size).sum::<f64>() / n as f64;
+        let w = wiring_names(a);
+        let times: Vec<i64> = seen.iter().map(|s| s.t).collect();
+        let starts: Vec<i64> = seen.iter().filter(|s| s.start).map(|s| s.t).collect();
+        let doubt = if n < self.th.overlap_runs {
+            Some(format!("{n} such overlaps only: a stop of {} lost among other loads' changes, then its next start, with another load coming on between, would look the same", a.id))
+        } else {
+            coarse_doubt(Kind::UndeclaredLoad, self.interval_s, self.th)
+        };
+        Finding {
+            kind: Kind::UndeclaredLoad,
+            subject: format!("{p:.0} W on {w}"),
+            message: format!("a load of about {p:.0} W on {w}, the size of {} and drawn beside it: {n} times a step of its size came while {} was already on (or stopped after it had stopped), taking {w} through twice its power, which {} alone cannot do; the steps of both are counted as {}'s", a.id, a.id, a.id, a.id),
+            confidence: (n as f64 / 5.0).min(1.0),
+            evidence: json!({ "overlaps": n, "like": a.id, "p_w": p, "wiring": w, "energy_share": null, "first_overlaps": first(&times), "first_starts_local": first_local(&starts, &self.d.timezone) }),
+            doubt,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::audit::check::testkit::H;
+
+    fn step(t: i64, start: bool, before: f64) -> OwnStep {
+        let after = if start { before + 1.0 } else { before - 1.0 };
+        OwnStep {
+            t,
+            start,
+            size: 1.0,
+            before,
+            after,
+            between: 0.0,
+        }
+    }
+
+    /// Start, stop, start, stop: one appliance. Start, start (the level
+    /// rising to twice its step), stop, stop: two loads, seen twice. A start
+    /// after a stop that was lost (the level back at zero before it) is no
+    /// overlap; nor two starts 13 h apart.
+    #[test]
+    fn two_starts_through_twice_the_step_are_two_loads() {
+        let one = [
+            step(0, true, 0.0),
+            step(H, false, 1.0),
+            step(2 * H, true, 0.0),
+            step(3 * H, false, 1.0),
+        ];
+        assert!(overlaps(&one).is_empty());
+        let two = [
+            step(0, true, 0.0),
+            step(H / 10, true, 1.0),
+            step(H / 5, false, 2.0),
+            step(H / 4, false, 1.0),
+        ];
+        let seen = overlaps(&two);
+        assert_eq!(seen.len(), 2);
+        assert!(seen[0].start && !seen[1].start);
+        let lost_stop = [step(0, true, 0.0), step(H, true, 0.05)];
+        assert!(overlaps(&lost_stop).is_empty());
+        let far = [step(0, true, 0.0), step(13 * H, true, 1.0)];
+        assert!(overlaps(&far).is_empty());
+        // Another change of half its size on its channels between the two
+        // starts: the stop may have fallen in it.
+        let mut busy = [step(0, true, 0.0), step(H, true, 1.0)];
+        busy[1].between = 0.5;
+        assert!(overlaps(&busy).is_empty());
+    }
+
+    /// A 1.5 kW heater declared by one power on L1-N, and a left-out load of
+    /// its size on the same line that runs four times while the heater is
+    /// on (at 1 s): the load is a finding, of the heater's size, on L1-N.
+    /// With one such overlap it is only possible; the heater's runs alone
+    /// give nothing.
+    #[test]
+    fn a_load_of_a_declared_appliances_size_beside_it_is_seen_when_they_overlap() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::{on_off, split_phase};
+        use crate::audit::events::ChannelStats;
+        let d = split_phase(vec![on_off("heater", 0, C64::new(1500.0, 0.0))]);
+        let w = C64::new(1500.0, 0.0);
+        let stats = vec![
+            ChannelStats {
+                rows: 86_400,
+                null: 0,
+                zero: 0,
+                sum_p: 500.0 * 86_400.0,
+                negative: vec![[0, 86_400]; 2]
+            };
+            2
+        ];
+        let with = |n: i64| -> Vec<Event> {
+            let mut level = 200.0;
+            let mut ev = Vec::new();
+            // Heater runs of 30 min every 3 h; the other load starts 10 min
+            // into `n` of them and stops 10 min after the heater.
+            let mut push = |t: i64, dw: f64, ev: &mut Vec<Event>| {
+                ev.push(Event {
+                    time_ms: t,
+                    delta: vec![w.scale(dw), C64::ZERO],
+                    before: vec![C64::new(level, 0.0), C64::new(200.0, 0.0)],
+                    v_before: vec![120.0; 2],
+                    v_after: vec![120.0; 2],
+                    se: vec![1.0; 2],
+                });
+                level += 1500.0 * dw;
+            };
+            for i in 0..8 {
+                let t = i * 3 * H;
+                push(t, 1.0, &mut ev);
+                if i < n {
+                    push(t + H / 6, 1.0, &mut ev);
+                    push(t + H / 2, -1.0, &mut ev);
+                    push(t + H / 2 + H / 6, -1.0, &mut ev);
+                } else {
+                    push(t + H / 2, -1.0, &mut ev);
+                }
+            }
+            ev
+        };
+        let o = check(&d, &with(0), &stats, 1.0);
+        assert!(o.findings.is_empty() && o.possible.is_empty(), "{:?}", o.findings);
+        let o = check(&d, &with(4), &stats, 1.0);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(found, ["1500 W on L1-N"], "{:?}", o.possible);
+        assert_eq!(o.findings[0].evidence["overlaps"], 8, "four starts and four stops");
+        let o = check(&d, &with(1), &stats, 1.0);
+        assert!(o.findings.is_empty(), "{:?}", o.findings);
+        assert_eq!(o.possible.len(), 1);
+    }
+}
