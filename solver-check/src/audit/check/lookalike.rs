@@ -70,7 +70,10 @@ pub(super) fn overlaps(steps: &[OwnStep]) -> Vec<OwnStep> {
             } else {
                 a.before - b.after
             };
-            a.start == b.start && b.t - a.t <= OVERLAP_WITHIN_MS && b.between < QUIET && span >= TWICE
+            a.start == b.start
+                && b.t - a.t <= OVERLAP_WITHIN_MS
+                && b.between < QUIET
+                && span >= TWICE
         })
         .map(|w| w[1])
         .collect()
@@ -291,11 +294,18 @@ mod tests {
             ev
         };
         let o = check(&d, &with(0), &stats, 1.0);
-        assert!(o.findings.is_empty() && o.possible.is_empty(), "{:?}", o.findings);
+        assert!(
+            o.findings.is_empty() && o.possible.is_empty(),
+            "{:?}",
+            o.findings
+        );
         let o = check(&d, &with(4), &stats, 1.0);
         let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(found, ["1500 W on L1-N"], "{:?}", o.possible);
-        assert_eq!(o.findings[0].evidence["overlaps"], 8, "four starts and four stops");
+        assert_eq!(
+            o.findings[0].evidence["overlaps"], 8,
+            "four starts and four stops"
+        );
         let o = check(&d, &with(1), &stats, 1.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
         assert_eq!(o.possible.len(), 1);

@@ -143,34 +143,10 @@ pub fn check_with(
     notes.push(format!("metering: {ch_apps} appliances and {ch_ex} of {} steps of 150 VA or more fit under the metering found ({decl_apps} and {decl_ex} as declared)", big.len()));
     notes.extend(indistinct_notes(d));
     // 3. Undeclared recurring loads.
-    let fit = steps_fit(d, &m, &used, &cxs, &placed, interval_s);
     let total_wh = metered_energy_wh(stats, &absent, &m, interval_s);
-    let sums = coincidences(d, &m, &placed, &used, interval_s, hours);
-    let stage = UndeclaredStage {
-        d,
-        m: &m,
-        events: &used,
-        cxs: &cxs,
-        explained: &fit,
-        sums: &sums,
-        total_wh,
-        placed: &placed,
-        checks: &checks,
-        interval_s,
-        th,
-    };
-    findings.extend(stage.findings());
-    let lookalikes = lookalike::LookAlikes {
-        d,
-        m: &m,
-        events: &used,
-        cxs: &cxs,
-        placed: &placed,
-        interval_s,
-        th,
-    };
-    findings.extend(lookalikes.findings());
-    let steps_explained = fit.iter().filter(|x| **x).count();
+    let (more, steps_explained) =
+        undeclared_loads(d, &m, &used, (&cxs, &checks, &placed), total_wh, window, th);
+    findings.extend(more);
     let (findings, possible, unlisted) = sort_findings(d, findings, interval_s, th);
     notes.extend(few_explained(d, steps_explained, used.len()));
     Outcome {
@@ -184,6 +160,54 @@ pub fn check_with(
         steps_explained,
         notes,
     }
+}
+
+/// Stage 3 on the appliances as placed (their steps' voltages, checks and
+/// wirings, `pl`): recurring loads no declared appliance explains, and
+/// loads hidden behind a declared one of their size; with how many of the
+/// steps `used` the appliances explain. `total_wh` is the energy read.
+fn undeclared_loads(
+    d: &Declared,
+    m: &Metering,
+    used: &[&Event],
+    pl: (
+        &[fit::Ctx],
+        &[ApplianceCheck],
+        &[crate::audit::decl::DeclAppliance],
+    ),
+    total_wh: f64,
+    window: Window,
+    th: &Thresholds,
+) -> (Vec<Finding>, usize) {
+    let (cxs, checks, placed) = pl;
+    let interval_s = window.interval_s;
+    let fit = steps_fit(d, m, used, cxs, placed, interval_s);
+    let sums = coincidences(d, m, placed, used, interval_s, window.hours);
+    let stage = UndeclaredStage {
+        d,
+        m,
+        events: used,
+        cxs,
+        explained: &fit,
+        sums: &sums,
+        total_wh,
+        placed,
+        checks,
+        interval_s,
+        th,
+    };
+    let lookalikes = lookalike::LookAlikes {
+        d,
+        m,
+        events: used,
+        cxs,
+        placed,
+        interval_s,
+        th,
+    };
+    let mut findings = stage.findings();
+    findings.extend(lookalikes.findings());
+    (findings, fit.iter().filter(|x| **x).count())
 }
 
 /// The warning when the declaration explains fewer than half of the
