@@ -104,10 +104,11 @@ pub fn threads() -> io::Result<usize> {
 
 /// Writes each chunk's meters and truth as it arrives: its intervals read
 /// through the meter's `noise` here, off the simulation's thread, and its
-/// columns lent to the batches (no copy). Sends the chunk back through
-/// `back` for the simulation to fill again, then finishes both files.
-/// Returns the meters rows written and the noise stage, which holds the
-/// current peaks read.
+/// columns lent to the batches (no copy), which `threads` encoding threads
+/// take while this thread reads the next chunk's noise. Sends each chunk
+/// back through `back`, once encoded, for the simulation to fill again,
+/// then finishes both files. Returns the meters rows written and the
+/// noise stage, which holds the current peaks read.
 pub fn encode_rows(
     rx: std::sync::mpsc::Receiver<Chunk>,
     back: std::sync::mpsc::Sender<Chunk>,
@@ -116,20 +117,46 @@ pub fn encode_rows(
     [mut meters, mut truth]: [Sink; 2],
     threads: usize,
 ) -> io::Result<(u64, MeterNoise)> {
+    let pool = parquet::Pool::new(threads)?;
     let mut rows = 0;
+    // The chunk being encoded, with what its columns were lent as.
+    let mut encoding: Option<(Chunk, tables::Lent, sink::Started)> = None;
     for mut chunk in rx {
         noise.read_all(&mut chunk.readings);
         let mut lent = tables::Lent::default();
         let [m, t] = tables.lend_batches(&mut chunk, &mut lent);
         rows += m.num_rows() as u64;
-        sink::write_all(vec![(&mut meters, m), (&mut truth, t)], threads)?;
-        lent.give_back(&mut chunk);
-        // The simulation may have ended already; the chunk is then dropped.
-        let _ = back.send(chunk);
+        if let Some(before) = encoding.take() {
+            give_back(before, [&mut meters, &mut truth], &back)?;
+        }
+        let started = sink::start_all(vec![(&mut meters, m), (&mut truth, t)], &pool)?;
+        // Row groups the last round closed go to the files while the
+        // encoding threads work on this one.
+        meters.append_closed()?;
+        truth.append_closed()?;
+        encoding = Some((chunk, lent, started));
     }
+    if let Some(last) = encoding {
+        give_back(last, [&mut meters, &mut truth], &back)?;
+    }
+    drop(pool);
     meters.close(threads)?;
     truth.close(threads)?;
     Ok((rows, noise))
+}
+
+/// Waits for a chunk's encoding, puts its lent vectors back and sends it
+/// to the simulation.
+fn give_back(
+    (mut chunk, lent, started): (Chunk, tables::Lent, sink::Started),
+    sinks: [&mut Sink; 2],
+    back: &std::sync::mpsc::Sender<Chunk>,
+) -> io::Result<()> {
+    started.finish(sinks)?;
+    lent.give_back(&mut chunk);
+    // The simulation may have ended already; the chunk is then dropped.
+    let _ = back.send(chunk);
+    Ok(())
 }
 
 /// The files of a dataset being written into a folder, placed by a

@@ -96,6 +96,15 @@ impl Sink {
         write_all(vec![(self, batch.clone())], threads)
     }
 
+    /// Appends the Parquet row groups closed by finished rounds to the
+    /// file (CSV is written as it comes).
+    pub fn append_closed(&mut self) -> io::Result<()> {
+        match self {
+            Sink::Parquet(t) => t.append_closed(),
+            Sink::Csv { .. } => Ok(()),
+        }
+    }
+
     /// Finishes the file (Parquet: the last row group and the footer) and
     /// syncs it.
     pub fn close(self, threads: usize) -> io::Result<()> {
@@ -113,6 +122,15 @@ impl Sink {
 /// among them are encoded together on `threads` threads; CSV is written
 /// as text, one sink after the other.
 pub fn write_all(writes: Vec<(&mut Sink, RecordBatch)>, threads: usize) -> io::Result<()> {
+    let mut tables = parquet_tables(writes)?;
+    super::parquet::write(&mut tables, threads)
+}
+
+/// Each batch checked ([`super::finite::check`]); CSV written here, the
+/// Parquet tables with their batches returned in the given order.
+fn parquet_tables(
+    writes: Vec<(&mut Sink, RecordBatch)>,
+) -> io::Result<Vec<(&mut super::parquet::ParquetFile, RecordBatch)>> {
     let mut tables = Vec::new();
     for (sink, batch) in writes {
         super::finite::check(&batch)?;
@@ -121,7 +139,38 @@ pub fn write_all(writes: Vec<(&mut Sink, RecordBatch)>, threads: usize) -> io::R
             Sink::Csv { out, tz } => write_csv(out, tz, &batch)?,
         }
     }
-    super::parquet::write(&mut tables, threads)
+    Ok(tables)
+}
+
+/// [`write_all`] without waiting for the encoding: the Parquet tables'
+/// columns go to `pool`, and [`Started::finish`] (with the same sinks, in
+/// the same order) takes their writers back. CSV is written at once.
+pub fn start_all(
+    writes: Vec<(&mut Sink, RecordBatch)>,
+    pool: &super::parquet::Pool,
+) -> io::Result<Started> {
+    let mut tables = parquet_tables(writes)?;
+    super::parquet::start(&mut tables, pool).map(Started)
+}
+
+/// Batches handed to the encoding threads by [`start_all`].
+#[must_use = "the column writers come back only through finish"]
+pub struct Started(super::parquet::Pending);
+
+impl Started {
+    /// Waits for the encoding and gives the sinks their column writers
+    /// back; row groups it closed are appended later
+    /// ([`Sink::append_closed`]).
+    pub fn finish(self, sinks: [&mut Sink; 2]) -> io::Result<()> {
+        let mut tables: Vec<_> = sinks
+            .into_iter()
+            .filter_map(|s| match s {
+                Sink::Parquet(t) => Some(&mut **t),
+                Sink::Csv { .. } => None,
+            })
+            .collect();
+        self.0.finish(&mut tables)
+    }
 }
 
 /// How a table's values vary, which decides its Parquet page size.
