@@ -920,6 +920,29 @@ def judge_finding(f, case, report):
     return None
 
 
+# The groups the table breaks the cases down by, each with its key.
+GROUPS = {
+    "by interval and declaration": lambda r: f'{r["interval"]} {r["style"]}',
+    "by home": lambda r: r["home"],
+    "by interval and data handed over": lambda r: f'{r["interval"]} {r.get("export", "dataset")}',
+}
+
+
+class Tally:
+    """Counts kept in several groups at once (`by["found"] += 1`)."""
+
+    def __init__(self, counters):
+        self.counters = counters
+
+    def __getitem__(self, k):
+        return self.counters[0][k]
+
+    def __setitem__(self, k, v):
+        delta = v - self.counters[0][k]
+        for c in self.counters:
+            c[k] += delta
+
+
 def numbers_out(text):
     """A reason with its counts and sizes replaced by N (line names kept),
     so reasons group."""
@@ -932,12 +955,11 @@ def score(results):
     unshown = collections.Counter()
     totals = collections.Counter()
     false = []
-    totals["by"] = collections.defaultdict(collections.Counter)
-    totals["by export"] = collections.Counter()
+    for g in GROUPS:
+        totals[g] = collections.defaultdict(collections.Counter)
     for r in results:
         clean = not r["mistakes"] and r["style"] != "partial"
-        by = totals["by"][f'{r["interval"]} {r["style"]}']
-        totals["by export"][r.get("export", "dataset")] += 1
+        by = Tally([totals[g][key(r)] for g, key in GROUPS.items()])
         by["cases"] += 1
         by["errors"] += "error" in r
         totals["cases"] += 1
@@ -1006,10 +1028,10 @@ def table(per, totals, reasons, false):
         out.append(row(kind, c, decided, fnd))
     decided = allk["injected"] - allk["not exercised"] - allk["undecidable"]
     out.append(row("all", allk, decided, allk["correct"] + allk["false"]))
-    out += ["", "data handed over: " + ", ".join(f"{k} {v}" for k, v in sorted(totals["by export"].items()))]
-    out += ["", "by interval and declaration (cases, refused, decided mistakes found, false findings):"]
-    out += [f"  {k}: {v['cases']} cases, {v['errors']} refused, {v['found']}/{v['decided']} found, {v['false']} false"
-            for k, v in sorted(totals["by"].items())]
+    for g in GROUPS:
+        out += ["", f"{g} (cases, refused, decided mistakes found, false findings):"]
+        out += [f"  {k}: {v['cases']} cases, {v['errors']} refused, {v['found']}/{v['decided']} found, {v['false']} false"
+                for k, v in sorted(totals[g].items())]
     out += ["", "not exercised (the data cannot show the mistake), by reason:"]
     out += [f"  {n} × {k}: {w}" for (k, w), n in sorted(totals["not shown"].items())]
     out += ["", "undecidable, by reason:"] + [f"  {n} × {r}" for r, n in reasons.most_common()]
