@@ -133,6 +133,19 @@ fn blower_delays(dt: f64) -> (u64, u64) {
     (((30.0 / dt).round() as u64), ((45.0 / dt).round() as u64))
 }
 
+/// Loads whose power is not heat given off in the rooms: the thermostatic
+/// units (their heat is the balance's own), and a PV inverter or a battery,
+/// whose power is exported or stored (a PV's negative power taken as gains
+/// would cool the house by the array's output).
+fn gains_skipped(s: &Scenario, units: &[Unit]) -> Vec<usize> {
+    let not_heat = s
+        .loads()
+        .enumerate()
+        .filter(|(_, a)| a.role != crate::scenario::Role::Load)
+        .map(|(k, _)| k);
+    units.iter().map(|u| u.load).chain(not_heat).collect()
+}
+
 /// The roles of a scenario's loads: (load index, role).
 fn units(s: &Scenario) -> Vec<Unit<'_>> {
     s.loads()
@@ -745,7 +758,7 @@ pub fn drive(
         sun: Sunlight::of(s, weather, b),
         memo: Memo::new(wide),
         loads: s.loads().collect(),
-        skip: units.iter().map(|u| u.load).collect(),
+        skip: gains_skipped(s, &units),
         hp: units.iter().find_map(|u| match u.role {
             Equipment::HeatPump(h) => Some(h.clone()),
             _ => None,

@@ -9,7 +9,7 @@ import pandas as pd
 import pyarrow.parquet as pq
 import pytest
 
-from conftest import loadloom
+from conftest import ROOT, loadloom
 
 SITE = dict(lat=44.65, lon=-63.57)  # an invented house near 44.65° N, 63.57° W
 
@@ -170,6 +170,25 @@ def test_battery_balance_and_self_consumption(simulate):
     taking = (truth["battery_state"] == "charging") & (p < 2950) & (soc < 0.98)
     assert (net[taking].abs() < 60).mean() > 0.95
     assert manifest["generation"][1]["soc_column"] == "battery_soc"
+
+
+def test_the_arrays_output_is_not_heat_in_the_rooms(simulate):
+    """A rooftop array's output leaves the home (or charges a battery): it
+    is no internal heat gain, so adding one leaves the heat balance and the
+    thermostat's calls alone (energy balance of the rooms: common practice,
+    no source). The split-phase demo over two July days, the demo's
+    cooling with and without a 7.6 kW array: the same states at every
+    second. Counted as gains, the array's negative power cooled the house
+    by up to 0.6 x 7.6 kW at noon and the cooling ran less."""
+    demo = (ROOT / "scenarios" / "split-phase-house.toml").read_text()
+    pv = demo + '\n[pv]\ndc = "8.4 kW"\ninverter = "7.6 kW"\ntilt = "30 deg"\n'
+    days = ("--start", "2027-07-10T00:00", "--length", "2d")
+    bare = pq.read_table(simulate(demo, name="demo", extra=days) / "truth.parquet").to_pandas()
+    with_pv = pq.read_table(simulate(pv, name="with_pv", extra=days) / "truth.parquet").to_pandas()
+    assert (with_pv["pv_p_w"] < -1000).sum() > 3600, "the array made power"
+    assert (bare["heat_pump_state"] == "cooling").sum() > 600, "the house was cooled"
+    for unit in ("heat_pump", "air_handler", "aux_heat"):
+        assert (bare[f"{unit}_state"] == with_pv[f"{unit}_state"]).all(), unit
 
 
 THREE_PHASE = """
