@@ -6,14 +6,24 @@
 use super::{window, Clock, Segment, Timeline};
 use crate::scenario::Pv;
 use crate::sun::pvwatts::{Array, OPEN_RACK, ROOF_MOUNT};
-use crate::sun::{light, plane_of_array, Sky, Surface};
+use crate::sun::{light_unless_dark, plane_of_array, Night, Sky, Surface};
 use crate::weather::Weather;
 
 const MINUTE_MS: i64 = 60_000;
 
-/// The array's AC output at `utc_ms` with the outdoor air at `air_c`, W.
-pub fn output(pv: &Pv, array: &Array, sky: &mut Sky, utc_ms: i64, air_c: f64) -> f64 {
-    let (pos, l) = light(pv.site, sky, utc_ms);
+/// The array's AC output at `utc_ms` with the outdoor air at `air_c()`
+/// (asked only while light falls), W. `night`: what is known dark so far
+/// (see [`light_unless_dark`]).
+pub fn output(
+    pv: &Pv,
+    array: &Array,
+    (sky, night): (&mut Sky, &mut Night),
+    utc_ms: i64,
+    air_c: impl FnOnce() -> f64,
+) -> f64 {
+    let Some((pos, l)) = light_unless_dark(pv.site, sky, night, utc_ms) else {
+        return 0.0;
+    };
     if l.ghi <= 0.0 {
         return 0.0;
     }
@@ -23,7 +33,7 @@ pub fn output(pv: &Pv, array: &Array, sky: &mut Sky, utc_ms: i64, air_c: f64) ->
         albedo: pv.albedo,
     };
     let poa = plane_of_array(&surface, &l, pos.zenith_deg, pos.azimuth_deg);
-    array.output(poa, air_c, pv.wind_m_s)
+    array.output(poa, air_c(), pv.wind_m_s)
 }
 
 /// The PVWatts array of a `[pv]` section.
@@ -51,6 +61,7 @@ pub fn generate(pv: &Pv, seed: u64, clock: &Clock, weather: Option<&Weather>) ->
         Some(mean) => Sky::new(seed, pv.site.longitude_deg, mean),
         None => Sky::clear(),
     };
+    let mut night = Night::default();
     let array = array(pv);
     let step_ms = (clock.step_s * 1000.0).round() as i64;
     let end_ms = clock.start_utc_ms + clock.steps as i64 * step_ms;
@@ -64,8 +75,8 @@ pub fn generate(pv: &Pv, seed: u64, clock: &Clock, weather: Option<&Weather>) ->
             continue;
         }
         let mid = minute - MINUTE_MS / 2;
-        let air_c = weather.map_or(pv.air_c, |w| w.temp_at(mid));
-        let ac = output(pv, &array, &mut sky, mid, air_c);
+        let air_c = || weather.map_or(pv.air_c, |w| w.temp_at(mid));
+        let ac = output(pv, &array, (&mut sky, &mut night), mid, air_c);
         let (state, scale) = if ac > 0.0 {
             (1, (ac / pv.ac_w) as f32)
         } else {

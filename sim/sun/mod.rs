@@ -58,3 +58,101 @@ pub fn light(site: Site, sky: &mut Sky, utc_ms: i64) -> (Position, Light) {
     let (dni, dhi) = decompose(ghi, pos.zenith_deg, utc_ms);
     (pos, Light { ghi, dni, dhi })
 }
+
+/// The geometric zenith angle beyond which no light reaches the ground,
+/// degrees: at 91° NOAA's refraction lifts the sun by about 0.33°, leaving
+/// it below the horizon, so the clear-sky irradiance is exactly zero.
+const DARK_ZENITH_DEG: f64 = 91.0;
+
+/// A bound on how fast the sun's zenith angle changes, degrees per
+/// millisecond. The zenith angle changes no faster than the sun moves
+/// across the sky, at most 0.2507°/min on its diurnal circle (360° per
+/// solar day times cos δ ≤ 1, the equation of time's drift included) plus
+/// under 0.0003°/min of declination (common practice, no source);
+/// 0.3°/min leaves room.
+const ZENITH_RATE_DEG_PER_MS: f64 = 0.3 / 60_000.0;
+
+/// A span of time known to be dark at a site, learnt from the last moment
+/// whose sun stood more than a degree below the horizon: the sun cannot
+/// climb back over it faster than [`ZENITH_RATE_DEG_PER_MS`].
+#[derive(Clone, Copy, Debug)]
+pub struct Night {
+    from_ms: i64,
+    to_ms: i64,
+}
+
+impl Default for Night {
+    fn default() -> Self {
+        Night {
+            from_ms: 1,
+            to_ms: 0,
+        }
+    }
+}
+
+/// [`light`], or `None` at a moment of a known [`Night`], where its global
+/// irradiance would be exactly zero: the sun's position is not computed
+/// again there. Each dark moment computed widens what `night` knows.
+pub fn light_unless_dark(
+    site: Site,
+    sky: &mut Sky,
+    night: &mut Night,
+    utc_ms: i64,
+) -> Option<(Position, Light)> {
+    if (night.from_ms..=night.to_ms).contains(&utc_ms) {
+        return None;
+    }
+    let (pos, l) = light(site, sky, utc_ms);
+    let below = pos.zenith_deg - DARK_ZENITH_DEG;
+    if below > 0.0 {
+        let reach = (below / ZENITH_RATE_DEG_PER_MS) as i64;
+        *night = Night {
+            from_ms: utc_ms - reach,
+            to_ms: utc_ms + reach,
+        };
+    }
+    Some((pos, l))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Every minute of a year at sites from the equator to beyond the polar
+    /// circles: where a known night says dark, the sun's light is exactly
+    /// zero, and the night is known over most of the dark minutes.
+    #[test]
+    fn a_known_night_is_dark_at_every_minute() {
+        const START: i64 = 1_798_761_600_000; // 2027-01-01T00:00Z
+        for (lat, lon) in [
+            (0.0, 0.0),
+            (41.98, -87.9),
+            (-33.9, 151.2),
+            (69.6, 18.9),
+            (-77.8, 166.7),
+        ] {
+            let site = Site {
+                latitude_deg: lat,
+                longitude_deg: lon,
+            };
+            let mut sky = Sky::new(3, lon, 0.5);
+            let mut night = Night::default();
+            let (mut dark, mut known) = (0, 0);
+            for minute in 0..525_600 {
+                let t = START + minute * 60_000 + 30_000;
+                let exact = light(site, &mut sky, t).1.ghi;
+                if exact == 0.0 {
+                    dark += 1;
+                }
+                match light_unless_dark(site, &mut sky, &mut night, t) {
+                    None => {
+                        assert_eq!(exact.to_bits(), 0.0f64.to_bits(), "{lat} {lon} {t}");
+                        known += 1;
+                    }
+                    Some((_, l)) => assert_eq!(l.ghi.to_bits(), exact.to_bits()),
+                }
+            }
+            assert!(known as f64 > 0.8 * dark as f64, "{lat}: {known} of {dark}");
+        }
+    }
+}

@@ -397,7 +397,7 @@ enum Sunlight<'a> {
     /// The sun over the home's site and its sky (`sim/sun`: NOAA position,
     /// Haurwitz clear sky times the stochastic clear-sky index), the same
     /// sky a `[pv]` array sees.
-    Sun(crate::sun::Site, crate::sun::Sky),
+    Sun(crate::sun::Site, crate::sun::Sky, crate::sun::Night),
 }
 
 impl<'a> Sunlight<'a> {
@@ -415,6 +415,7 @@ impl<'a> Sunlight<'a> {
                     Some(mean) => crate::sun::Sky::new(s.run.seed, site.longitude_deg, mean),
                     None => crate::sun::Sky::clear(),
                 },
+                crate::sun::Night::default(),
             ),
             None => Sunlight::None,
         }
@@ -438,7 +439,13 @@ impl<'a> Sunlight<'a> {
                     None => return b.aperture_m2 * ghi,
                 }
             }
-            Sunlight::Sun(site, sky) => crate::sun::light(*site, sky, t_ms),
+            // A known night lights no plane: every term below is a zero.
+            Sunlight::Sun(site, sky, night) => {
+                match crate::sun::light_unless_dark(*site, sky, night, t_ms) {
+                    Some(lit) => lit,
+                    None => return 0.0,
+                }
+            }
         };
         b.glazing.iter().fold(b.aperture_m2 * light.ghi, |q, g| {
             let poa =
