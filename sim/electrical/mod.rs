@@ -74,6 +74,10 @@ pub struct AppModel {
     pub inrush: Vec<Option<Inrush>>,
     /// The lines this appliance takes current from (its per-conductor truth columns).
     pub lines: Vec<usize>,
+    /// Per state: every element draws 0 W and 0 var at any voltage (or
+    /// there are none), so the state takes no current (a PV inverter at
+    /// night).
+    pub idle: Vec<bool>,
 }
 
 /// The home's circuit: the source behind the service impedances and every
@@ -112,14 +116,21 @@ impl Network {
     pub fn new(s: &Scenario) -> Network {
         let apps = s
             .loads()
-            .map(|a| AppModel {
-                states: a
+            .map(|a| {
+                let states: Vec<Vec<Elem>> = a
                     .states
                     .iter()
                     .map(|st| st.draws.iter().flat_map(elems_of).collect())
-                    .collect(),
-                inrush: a.states.iter().map(|st| st.inrush).collect(),
-                lines: a.lines(),
+                    .collect();
+                AppModel {
+                    idle: states
+                        .iter()
+                        .map(|els| els.iter().all(Elem::idle))
+                        .collect(),
+                    states,
+                    inrush: a.states.iter().map(|st| st.inrush).collect(),
+                    lines: a.lines(),
+                }
             })
             .collect();
         let src = &s.home.source;
@@ -151,6 +162,14 @@ impl Terminals {
             self.u[t as usize]
         }
     }
+    /// Whether every potential is below 1e50 V in both parts, so that an
+    /// [`Elem::idle`] element's power factors stay finite and it takes
+    /// exactly no current (it may be skipped). A NaN fails.
+    pub fn bounded(&self) -> bool {
+        let ok = |c: C64| c.re.abs() < 1e50 && c.im.abs() < 1e50;
+        self.u.iter().all(|&u| ok(u)) && ok(self.u_n)
+    }
+
     /// Whether `other` is within a nanovolt of these potentials on every terminal.
     pub fn settled(&self, other: &Terminals, lines: usize) -> bool {
         let near = |a: C64, b: C64| (a - b).norm_sqr() < 1e-18;
@@ -207,7 +226,11 @@ impl Network {
     /// `active[k] = (state, multiplier)` for appliance k.
     pub fn currents(&self, t: &Terminals, active: &[(usize, f64)]) -> [C64; 3] {
         let mut i = [C64::ZERO; 3];
+        let skip_idle = t.bounded();
         for (app, &(state, mult)) in self.apps.iter().zip(active) {
+            if skip_idle && app.idle[state] && mult.is_finite() {
+                continue;
+            }
             for el in &app.states[state] {
                 let (cur, _, _) = el.current(t, mult);
                 add_current(&mut i, el, cur);
@@ -217,12 +240,24 @@ impl Network {
     }
 
     /// Full step: currents, and each appliance's P, Q and per-line P.
+    ///
+    /// An idle state (see [`AppModel::idle`]) at a finite multiple is
+    /// skipped while the terminals are [`Terminals::bounded`]: its elements would add zero
+    /// currents to line currents that are never −0 (sums from +0), and
+    /// its P, Q and per-line P would be sums of zeros from +0, so +0.
     pub fn solve(&self, t: &Terminals, active: &[(usize, f64)], out: &mut StepOut) {
         out.i_line = [C64::ZERO; 3];
         for x in 0..self.lines {
             out.v_ln[x] = t.v_ln(x);
         }
+        let skip_idle = t.bounded();
         for (k, (app, &(state, mult))) in self.apps.iter().zip(active).enumerate() {
+            if skip_idle && app.idle[state] && mult.is_finite() {
+                out.app_p[k] = 0.0;
+                out.app_q[k] = 0.0;
+                out.app_line_p[k] = [0.0; 3];
+                continue;
+            }
             let (mut p, mut q) = (0.0, 0.0);
             let mut lp = [0.0; 3];
             for el in &app.states[state] {
@@ -255,6 +290,18 @@ fn add_current(i: &mut [C64; 3], el: &Elem, cur: C64) {
 }
 
 impl Elem {
+    /// Draws 0 W and 0 var at any voltage below 1e50 V: no power, a
+    /// nominal voltage of a millivolt or more and ZIP fractions below 1e100,
+    /// so that `mult · 0 · factor(u)` is a zero.
+    pub fn idle(&self) -> bool {
+        let small = |z: &Zip| [z.z, z.i, z.p].iter().all(|c| c.abs() < 1e100);
+        self.p_w == 0.0
+            && self.q_var == 0.0
+            && self.nominal_v >= 1e-3
+            && small(&self.zip_p)
+            && small(&self.zip_q)
+    }
+
     /// Current from terminal a to b, and the P, Q drawn, at potentials `t`.
     #[inline]
     pub fn current(&self, t: &Terminals, mult: f64) -> (C64, f64, f64) {
