@@ -17,10 +17,17 @@
 //!    an inverter across L1-L2): CPU time with weather and PV over CPU time
 //!    bare (target ≤ 1.10), and the weather alone on over off.
 //!
+//!    With LOADLOOM_BENCH_PAIRS=n the three runs are made n times over
+//!    (each round the three one after the other, so a busy machine slows
+//!    a round's runs alike) and the medians of the rounds' ratios printed.
+//!
 //! ```text
 //! cargo bench --bench simulate            # about 5 minutes
 //! LOADLOOM_BENCH_DAYS=30 LOADLOOM_BENCH_ROUNDS=5 cargo bench --bench simulate
+//! LOADLOOM_BENCH_PARTS=3 LOADLOOM_BENCH_PAIRS=3 cargo bench --bench simulate
 //! ```
+//!
+//! LOADLOOM_BENCH_PARTS picks the parts to run (default `123`).
 //!
 //! Each run is a child process of its own, so peak memory (VmHWM) is its own.
 
@@ -274,10 +281,7 @@ fn against_pyarrow(dir: &Path) {
         );
         return;
     }
-    let rounds: usize = std::env::var("LOADLOOM_BENCH_ROUNDS")
-        .ok()
-        .and_then(|v| v.parse().ok())
-        .unwrap_or(3);
+    let rounds: usize = setting("LOADLOOM_BENCH_ROUNDS", 3);
     let threads = loadloom::dataset::threads().unwrap();
     let days = 30.0;
     let s = scenario(days);
@@ -315,33 +319,23 @@ fn against_pyarrow(dir: &Path) {
     );
 }
 
-fn main() {
-    let args: Vec<String> = std::env::args().collect();
-    if let Some(i) = args.iter().position(|a| a == "--child") {
-        child(
-            &args[i + 1],
-            args[i + 2].parse().unwrap(),
-            Path::new(&args[i + 3]),
-        );
-        return;
-    }
-    let days: f64 = std::env::var("LOADLOOM_BENCH_DAYS")
+/// An environment setting, or its default.
+fn setting<T: std::str::FromStr>(name: &str, default: T) -> T {
+    std::env::var(name)
         .ok()
         .and_then(|v| v.parse().ok())
-        .unwrap_or(365.0);
-    let dir: PathBuf = std::env::temp_dir().join(format!("loadloom-bench-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    against_pyarrow(&dir);
+        .unwrap_or(default)
+}
+
+/// Part 2: the year against its floor; the year's run (wall s, CPU s).
+fn against_floor(days: f64, dir: &Path) -> (f64, f64) {
     let s = scenario(days);
     let samples = s.run.steps() as f64 * s.appliances.len() as f64;
-    let (t_floor, m_floor, _) = measure("floor", days, &dir);
+    let (t_floor, m_floor, _) = measure("floor", days, dir);
     let floor_bytes = dir_bytes(&dir.join("floor"));
-    let (t_sim, m_sim, c_sim) = measure("sim", days, &dir);
+    let (t_sim, m_sim, c_sim) = measure("sim", days, dir);
     let sim_bytes = dir_bytes(&dir.join(&s.name));
     let _ = std::fs::remove_dir_all(dir.join(&s.name));
-    let (t_pv, _, c_pv) = measure("sim-pv", days, &dir);
-    let _ = std::fs::remove_dir_all(dir.join(&s.name));
-    let (t_bare, _, c_bare) = measure("sim-bare", days, &dir);
     println!(
         "split-phase demo, {days} d at 1 s, {} appliances, {} rows",
         s.appliances.len(),
@@ -356,16 +350,69 @@ fn main() {
         "ratio simulate / floor:     {:8.2}   (target ≤ 1.5; peak memory target < 512 MB)",
         t_sim / t_floor
     );
-    println!("bare (no weather, no PV):   {t_bare:8.1} s  CPU {c_bare:.1} s");
-    println!("weather (the demo as is):   {t_sim:8.1} s  CPU {c_sim:.1} s");
-    println!("weather + 7.6 kW PV system: {t_pv:8.1} s  CPU {c_pv:.1} s");
+    (t_sim, c_sim)
+}
+
+/// Part 3 in `pairs` rounds, each the demo as is (the first round may take
+/// part 2's run, `first`), with PV and bare, one after the other; the
+/// medians of the rounds' ratios.
+fn weather_and_pv(days: f64, dir: &Path, pairs: usize, mut first: Option<(f64, f64)>) {
+    let s = scenario(days);
+    let (mut on_off, mut pv_bare) = (Vec::new(), Vec::new());
+    for r in 0..pairs {
+        let (t_sim, c_sim) = first.take().unwrap_or_else(|| {
+            let (t, _, c) = measure("sim", days, dir);
+            let _ = std::fs::remove_dir_all(dir.join(&s.name));
+            (t, c)
+        });
+        let (t_pv, _, c_pv) = measure("sim-pv", days, dir);
+        let _ = std::fs::remove_dir_all(dir.join(&s.name));
+        let (t_bare, _, c_bare) = measure("sim-bare", days, dir);
+        let _ = std::fs::remove_dir_all(dir.join("bare"));
+        println!("round {} of {pairs}, {days} d at 1 s", r + 1);
+        println!("bare (no weather, no PV):   {t_bare:8.1} s  CPU {c_bare:.1} s");
+        println!("weather (the demo as is):   {t_sim:8.1} s  CPU {c_sim:.1} s");
+        println!("weather + 7.6 kW PV system: {t_pv:8.1} s  CPU {c_pv:.1} s");
+        on_off.push(c_sim / c_bare);
+        pv_bare.push(c_pv / c_bare);
+    }
+    let median = |v: &mut Vec<f64>| {
+        v.sort_by(f64::total_cmp);
+        v[v.len() / 2]
+    };
+    let range = |v: &[f64]| format!("rounds {:.3} … {:.3}", v[0], v[v.len() - 1]);
+    let (m_on, m_pv) = (median(&mut on_off), median(&mut pv_bare));
     println!(
-        "ratio CPU weather on / off:            {:6.3}",
-        c_sim / c_bare
+        "ratio CPU weather on / off:            {m_on:6.3}   (median; {})",
+        range(&on_off)
     );
     println!(
-        "ratio CPU weather + PV / bare:         {:6.3}   (target ≤ 1.10)",
-        c_pv / c_bare
+        "ratio CPU weather + PV / bare:         {m_pv:6.3}   (median; {}; target ≤ 1.10)",
+        range(&pv_bare)
     );
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args().collect();
+    if let Some(i) = args.iter().position(|a| a == "--child") {
+        child(
+            &args[i + 1],
+            args[i + 2].parse().unwrap(),
+            Path::new(&args[i + 3]),
+        );
+        return;
+    }
+    let days: f64 = setting("LOADLOOM_BENCH_DAYS", 365.0);
+    let parts: String = setting("LOADLOOM_BENCH_PARTS", "123".to_string());
+    let pairs: usize = setting("LOADLOOM_BENCH_PAIRS", 1).max(1);
+    let dir: PathBuf = std::env::temp_dir().join(format!("loadloom-bench-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    if parts.contains('1') {
+        against_pyarrow(&dir);
+    }
+    let year = parts.contains('2').then(|| against_floor(days, &dir));
+    if parts.contains('3') {
+        weather_and_pv(days, &dir, pairs, year);
+    }
     let _ = std::fs::remove_dir_all(&dir);
 }
