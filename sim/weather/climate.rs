@@ -249,10 +249,14 @@ impl Course {
 
     /// The spread of daily departures at day-of-year `d`: the coldest
     /// month's at its middle, the warmest month's at its, a half cosine
-    /// between.
+    /// between. Twelve equal months have no coldest and warmest month
+    /// apart: the mean of the two spreads all year.
     pub fn spread_at(&self, d: f64) -> f64 {
         let (c, w) = (self.mid[self.cold.0], self.mid[self.warm.0]);
         let half = (w - c).rem_euclid(365.0);
+        if half == 0.0 {
+            return 0.5 * (self.spread.0 + self.spread.1);
+        }
         let x = (d - c).rem_euclid(365.0);
         let phase = if x <= half {
             x / half
@@ -305,6 +309,21 @@ mod tests {
         assert!((m[0] - 0.0).abs() < 1e-12);
         assert!((m[6] - 20.0).abs() < 1e-12);
         assert!((m.iter().sum::<f64>() / 12.0 - 10.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn twelve_equal_months_give_a_finite_spread() {
+        // Hostile input: `monthly` with one value twelve times made the
+        // coldest and warmest month the same one, and the spread NaN.
+        let c = Climate {
+            monthly_mean_c: [10.0; 12],
+            ..Climate::from_name("lakeshore").unwrap().1
+        };
+        let course = c.annual_course();
+        for d in 0..365 {
+            let s = course.spread_at(d as f64 + 0.5);
+            assert!(s.is_finite() && s > 0.0, "day {d}: {s}");
+        }
     }
 
     #[test]

@@ -134,11 +134,19 @@ pub enum Ended {
     Exited(std::process::ExitStatus),
     /// It ran past its time limit and was stopped.
     TimedOut,
+    /// Its output passed [`LOG_LIMIT`] and it was stopped.
+    Flooded,
 }
 
+/// The most a child may write to its log (stdout and stderr together): a
+/// log is for reading, and a child printing without end would fill the disk.
+/// Checked at every poll, so a fast writer overshoots by what it writes in
+/// 10 ms at most.
+pub const LOG_LIMIT: u64 = 64 << 20;
+
 /// Runs `args` confined by `sandbox`, stdout and stderr to `log` (already
-/// open), with `env` added; stops it at `timeout`, then stops everything it
-/// left behind. Err is a failure to start it: a line of the solver's failure
+/// open), with `env` added; stops it at `timeout` or when its log passes
+/// [`LOG_LIMIT`], then stops everything it left behind. Err is a failure to start it: a line of the solver's failure
 /// report (`Failure::Spawn`), not an error of the command, so a `String`.
 pub fn run(
     args: &[String],
@@ -148,6 +156,7 @@ pub fn run(
     timeout: Duration,
 ) -> Result<(Ended, usize), String> {
     let err = log.try_clone().map_err(|e| e.to_string())?;
+    let watched = log.try_clone().map_err(|e| e.to_string())?;
     let token = format!(
         "{}-{}",
         std::process::id(),
@@ -192,6 +201,11 @@ pub fn run(
                 let _ = child.kill();
                 let _ = child.wait();
                 break Ended::TimedOut;
+            }
+            Ok(None) if watched.metadata().is_ok_and(|m| m.len() > LOG_LIMIT) => {
+                let _ = child.kill();
+                let _ = child.wait();
+                break Ended::Flooded;
             }
             Ok(None) => std::thread::sleep(Duration::from_millis(10)),
             Err(e) => {

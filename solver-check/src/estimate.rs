@@ -196,9 +196,15 @@ fn check_coverage(
     Ok(())
 }
 
+/// The largest power, in size, an estimate may give: a thousand times the
+/// largest draw a scenario allows (1 MW), so a wild estimate is refused
+/// rather than scored, and no sum or square of the scores overflows to an
+/// infinity (3 years of 100 ms rows at this power squared stay near 1e27).
+pub const MAX_ESTIMATE_W: f64 = 1e9;
+
 /// What each streamed column must hold: appliance power finite and ≥ 0,
 /// per-conductor power finite (it may be negative: the two-wattmeter split),
-/// on-states 0 or 1.
+/// both at most [`MAX_ESTIMATE_W`] in size; on-states 0 or 1.
 #[derive(Clone, Copy, PartialEq)]
 pub enum Rule {
     /// An appliance's power: finite and ≥ 0.
@@ -240,7 +246,11 @@ pub fn values_check(
                 path,
                 Some(name),
                 Some(b.first + r),
-                format!("value {} is not a finite number", v[r]),
+                if v[r].is_nan() {
+                    "value NaN (or null) is not a finite number".to_string()
+                } else {
+                    format!("value {} is not a finite number", v[r])
+                },
                 "give every row a finite value (0 W where the appliance is off)",
             ));
         }
@@ -272,17 +282,27 @@ pub fn values_check(
             }
             Rule::Conductor => {}
         }
+        if let Some(r) = v.iter().position(|x| x.abs() > MAX_ESTIMATE_W) {
+            return Err(table_err(
+                path,
+                Some(name),
+                Some(b.first + r),
+                format!("power {} W is beyond 1 GW, no home's load", v[r]),
+                "give the power in W (a home's loads stay under 1 MW)",
+            ));
+        }
     }
     Ok(())
 }
 
-/// Whether every value of a column passes its rule: finite, and a power
-/// not negative, an on-state 0 or 1 (NaN fails every comparison).
+/// Whether every value of a column passes its rule: finite, a power within
+/// [`MAX_ESTIMATE_W`] and not negative, an on-state 0 or 1 (NaN fails every
+/// comparison).
 fn plausible(v: &[f64], rule: Rule) -> bool {
     let ok = |x: f64| match rule {
-        Rule::Power => (0.0..=f64::MAX).contains(&x),
+        Rule::Power => (0.0..=MAX_ESTIMATE_W).contains(&x),
         Rule::OnState => x == 0.0 || x == 1.0,
-        Rule::Conductor => x.abs() <= f64::MAX,
+        Rule::Conductor => x.abs() <= MAX_ESTIMATE_W,
     };
     v.chunks(256)
         .all(|c| c.iter().fold(true, |all, &x| all & ok(x)))

@@ -10,7 +10,7 @@
 //! with their sha256 in its manifest) and `solver/` (the estimate and a
 //! `scratch/` folder: all the solver may write).
 
-use crate::confine::{program_paths, Access, Sandbox};
+use crate::confine::{contains, program_paths, Access, Sandbox};
 use crate::contract::TASK_FORMAT;
 use crate::dataset::Dataset;
 use crate::score::{score, Options, Report, ScoreError};
@@ -165,6 +165,13 @@ pub enum Failure {
         /// The last lines of its log.
         tail: String,
     },
+    /// Its output passed the log's limit and it was stopped.
+    Flooded {
+        /// The limit in bytes.
+        limit: u64,
+        /// The last lines of its log.
+        tail: String,
+    },
     /// It exited without writing its estimate.
     NoEstimate {
         /// The last lines of its log.
@@ -196,6 +203,12 @@ impl std::fmt::Display for Failure {
                 f,
                 "the solver was stopped after the time limit of {:.0} s; {}",
                 after.as_secs_f64(),
+                tail(t)
+            ),
+            Failure::Flooded { limit, tail: t } => write!(
+                f,
+                "the solver was stopped when its output passed {} MiB (write data to files, not to stdout or stderr); {}",
+                limit >> 20,
                 tail(t)
             ),
             Failure::NoEstimate { tail: t } => write!(
@@ -511,12 +524,22 @@ fn refuse_gapped_meters(ds: &Dataset) -> std::io::Result<()> {
 }
 
 /// The last `lines` lines of a log, indented.
+/// Only the log's last 16 KiB are read (a flooded log can be large), each
+/// line cut to 300 characters, bytes that are not UTF-8 shown as U+FFFD.
 pub(crate) fn tail(path: &Path, lines: usize) -> String {
-    let text = std::fs::read_to_string(path).unwrap_or_default();
+    const LAST: u64 = 16 << 10;
+    let mut bytes = Vec::new();
+    if let Ok(mut f) = std::fs::File::open(path) {
+        use std::io::{Read, Seek, SeekFrom};
+        let len = f.metadata().map(|m| m.len()).unwrap_or(0);
+        let _ = f.seek(SeekFrom::Start(len.saturating_sub(LAST)));
+        let _ = f.take(LAST).read_to_end(&mut bytes);
+    }
+    let text = String::from_utf8_lossy(&bytes);
     let all: Vec<&str> = text.lines().collect();
     all[all.len().saturating_sub(lines)..]
         .iter()
-        .map(|l| format!("    {l}"))
+        .map(|l| format!("    {}", l.chars().take(300).collect::<String>()))
         .collect::<Vec<_>>()
         .join("\n")
 }
@@ -611,8 +634,16 @@ pub(crate) fn run_command(
         read: vec![run.task_dir.to_path_buf()],
         write: vec![run.out_dir.to_path_buf()],
     };
-    access.read.extend(program_paths(argv));
-    access.read.extend(extra_read.iter().cloned());
+    // A command word or an allowed path inside the truth's folders (a
+    // `--dataset` folder's truth.parquet, say) would open the truth to the
+    // solver: there only the task folder is granted.
+    let apart = |p: &PathBuf| !run.protect.iter().any(|x| contains(x, p));
+    access.read.extend(
+        program_paths(argv)
+            .into_iter()
+            .chain(extra_read.iter().cloned())
+            .filter(apart),
+    );
     let sandbox = Sandbox::new(&access, run.protect, run.confine);
     let (r, left) = match run_child(argv, run, &sandbox, timeout) {
         Ok(left) => (Ok(()), left),
@@ -645,7 +676,12 @@ pub(crate) fn score_checked(
     #[cfg(not(unix))]
     let links = 1;
     if !meta.file_type().is_file() || links != 1 {
-        return Err(Failure::Malformed(format!("error: the estimate is a link, not a file of its own\n  --> {}\n  = help: write the estimate itself to the path given", estimate.display())));
+        let what = if meta.file_type().is_symlink() || (meta.file_type().is_file() && links != 1) {
+            "a link, not a file of its own"
+        } else {
+            "not a regular file (a folder, FIFO or device)"
+        };
+        return Err(Failure::Malformed(format!("error: the estimate is {what}\n  --> {}\n  = help: write the estimate itself to the path given", estimate.display())));
     }
     let mpath = truth_dir.join("manifest.json");
     let recorded = std::fs::read_to_string(&mpath)
@@ -742,6 +778,13 @@ fn run_child(
         crate::child::Ended::TimedOut => Err((
             Failure::TimedOut {
                 after: timeout,
+                tail: tail(log, 10),
+            },
+            left,
+        )),
+        crate::child::Ended::Flooded => Err((
+            Failure::Flooded {
+                limit: crate::child::LOG_LIMIT,
                 tail: tail(log, 10),
             },
             left,

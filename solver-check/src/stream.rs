@@ -117,7 +117,7 @@ fn open(path: &Path) -> Result<std::fs::File, TableError> {
 
 /// Reads the schema (Parquet) or header (CSV) of `path`.
 pub fn header(path: &Path) -> Result<Header, TableError> {
-    match path.extension().and_then(|e| e.to_str()) {
+    let h = match path.extension().and_then(|e| e.to_str()) {
         Some("parquet") => parquet_header(path),
         Some("csv") => csv_header(path),
         _ => Err(table_err(
@@ -127,7 +127,27 @@ pub fn header(path: &Path) -> Result<Header, TableError> {
             "unknown file type",
             "give a .parquet or .csv file",
         )),
+    }?;
+    refuse_repeated_names(&h)?;
+    Ok(h)
+}
+
+/// A column name written twice (`time` included) would leave it open which
+/// of the two is read: refused, naming the name.
+fn refuse_repeated_names(h: &Header) -> Result<(), TableError> {
+    let mut seen = std::collections::HashSet::from([columns::TIME]);
+    for (name, _) in &h.columns {
+        if !seen.insert(name.as_str()) {
+            return Err(table_err(
+                &h.file,
+                Some(name),
+                None,
+                "this column name appears more than once",
+                "give each column a name of its own",
+            ));
+        }
     }
+    Ok(())
 }
 
 /// A Parquet file's columns (text or not) and its time column's unit and zone.
@@ -570,9 +590,43 @@ impl Stream<'_> {
                 batch
             }
         };
+        refuse_wild_values(path, &batch, &self.cols)?;
         self.row += batch.time_ms.len();
         Ok(Some(batch))
     }
+}
+
+/// The largest reading, in size, any table may hold: above every quantity
+/// of a home's dataset (an energy register of 3 years at 1 MW is 2.6e10 Wh),
+/// and small enough that sums and squares over any table stay finite.
+pub const MAX_READING: f64 = 1e15;
+
+/// An infinity or a number beyond [`MAX_READING`] in a numeric column is
+/// refused where it is read, naming the column and row, so no plot, score
+/// or audit computes with it. NaN (a missing reading) passes.
+fn refuse_wild_values(path: &Path, b: &Batch, cols: &[String]) -> Result<(), TableError> {
+    for (c, v) in b.cols.iter().enumerate() {
+        if v.iter().all(|x| x.abs() <= MAX_READING || x.is_nan()) {
+            continue;
+        }
+        let r = v
+            .iter()
+            .position(|x| x.abs() > MAX_READING)
+            .expect("one is beyond");
+        let what = if v[r].is_infinite() {
+            format!("value {} is not a finite number", v[r])
+        } else {
+            format!("value {:e} is beyond any reading (1e15 in size)", v[r])
+        };
+        return Err(table_err(
+            path,
+            Some(&cols[c]),
+            Some(b.first + r),
+            what,
+            "give every row a finite value in its column's unit (a missing reading empty or null)",
+        ));
+    }
+    Ok(())
 }
 
 /// One Parquet record batch as a [`Batch`]: `pos` holds where time, the

@@ -142,6 +142,12 @@ SPRING = "time,l1_p_w,l2_p_w\n2027-03-14 01:59:50,100,200\n2027-03-14 02:00:00,1
      ["column `l1_p_w`", "row 1", "not a number", "in W"]),
     ("order.csv", "time,l1_p_w,l2_p_w\n2027-01-04 00:00:10,1,2\n2027-01-04 00:00:00,1,2\n2027-01-04 00:00:20,1,2\n",
      ["column `time`", "row 1", "goes back", "sort the rows"]),
+    # Hostile: every row earlier than the one before (no forward step to
+    # take the interval from), and a column written twice.
+    ("reversed.csv", "time,l1_p_w,l2_p_w\n2027-01-04 00:00:20,1,2\n2027-01-04 00:00:10,1,2\n2027-01-04 00:00:00,1,2\n",
+     ["column `time`", "row 1", "goes back", "sort the rows"]),
+    ("twice.csv", "time,l1_p_w,l2_p_w,l1_p_w\n2027-01-04 00:00:00,1,2,3\n2027-01-04 00:00:10,1,2,3\n",
+     ["column `l1_p_w`", "more than once"]),
     ("notime.csv", "when,l1_p_w,l2_p_w\n2027-01-04 00:00:00,1,2\n", ["`time`"]),
     ("oneline.csv", "time,l1_p_w\n2027-01-04 00:00:00,1\n2027-01-04 00:00:10,1\n",
      ["does not fit", "conductor = \"none\""]),

@@ -6,6 +6,7 @@ at the population file's own line; and a seeded batch of mutated demo
 scenarios (tests/python/hostile.py, text mutations that share no code with
 the decoder) ends in exit 0 or 2, never a panic, a hang, a leftover or a
 non-finite number (read back with pyarrow)."""
+import json
 import os
 import pathlib
 import random
@@ -112,3 +113,68 @@ def test_seeded_hostile_batch_through_the_binary():
             for kind, detail in hostile.check_population(BIN, text, pathlib.Path(d), timeout=120):
                 faults.append((f"population {i}", what, kind, detail[:300]))
     assert not faults, "\n".join(map(str, faults[:10]))
+
+
+def test_twelve_equal_monthly_means_give_a_finite_year(tmp_path):
+    # Hostile but legal: `monthly` with one value twelve times has no
+    # coldest month apart from the warmest; the year's weather, the heat
+    # pump's energy and the mean indoor temperature must stay numbers.
+    text = (ROOT / "scenarios" / "split-phase-house.toml").read_text()
+    start = text.index("[weather]")
+    end = text.index("\n[", start + 1)
+    same = "[weather]\nmonthly = [" + ", ".join(['"10 °C"'] * 12) + "]\n"
+    scenario = tmp_path / "flat-year.toml"
+    scenario.write_text(text[:start] + same + text[end:])
+    p = loadloom("validate", scenario, "--year")
+    words = p.stdout.replace("|", " ").split()
+    assert not {"NaN", "inf", "-inf", "NaN%"} & set(words), p.stdout
+    # JSON writes a non-finite number as null: every mean must be there.
+    found = []
+
+    def means(node):
+        if isinstance(node, dict):
+            for k, v in node.items():
+                if k in ("mean_c", "mean_indoor_c"):
+                    found.append((k, v))
+                means(v)
+        elif isinstance(node, list):
+            for v in node:
+                means(v)
+
+    means(json.loads(loadloom("validate", scenario, "--year", "--json").stdout))
+    assert found and all(isinstance(v, float) for _, v in found), found
+
+
+def test_a_dataset_with_a_wild_reading_is_refused_by_every_reader(tmp_path):
+    # Hostile: a meters file edited to hold an infinity or 1e308 (finite,
+    # but its square is not) drew NaN coordinates into the plot and an
+    # infinite neutral current into the audit. Refused where it is read.
+    import numpy as np
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    scenario = tmp_path / "home.toml"
+    scenario.write_text((ROOT / "scenarios" / "apartment-208.toml").read_text().replace('length = "7 d"', 'length = "2 h"'))
+    loadloom("run", scenario, "--out", tmp_path / "out", "--quiet")
+    data = tmp_path / "out" / "home"
+    meters = data / "meters.parquet"
+    good = pq.read_table(meters)
+    # (The meters are float32: 1e30 is as wild as it gets there.)
+    for wild, says in [(np.inf, "value inf is not a finite number"), (1e30, "beyond any reading")]:
+        v = good.column("l1_p_w").to_numpy().copy()
+        v[100] = wild
+        pq.write_table(good.set_column(good.column_names.index("l1_p_w"), "l1_p_w", pa.array(v)), meters)
+        for args in (["plot", data, "--out", tmp_path / "p.svg"], ["audit", data, "--declared", scenario]):
+            p = loadloom(*args, check=False)
+            assert p.returncode == 2 and p.stdout == "", (args, p.returncode, p.stdout[-500:])
+            assert says in p.stderr and "`l1_p_w`" in p.stderr and "row 100" in p.stderr, p.stderr
+            assert not (tmp_path / "p.svg").exists()
+
+
+def test_a_plot_window_ending_before_it_starts_says_so(tmp_path):
+    scenario = tmp_path / "home.toml"
+    scenario.write_text((ROOT / "scenarios" / "apartment-208.toml").read_text().replace('length = "7 d"', 'length = "1 d"'))
+    loadloom("run", scenario, "--out", tmp_path / "out", "--quiet")
+    p = loadloom("plot", tmp_path / "out" / "home", "--from", "2027-01-04T10:00", "--to", "2027-01-04T09:00",
+                 "--out", tmp_path / "p.svg", check=False)
+    assert p.returncode == 2 and "--to is not after --from" in p.stderr, p.stderr

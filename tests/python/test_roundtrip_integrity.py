@@ -87,6 +87,41 @@ def test_an_estimate_linked_to_the_truth_gets_no_score(tmp_path):
     assert p.returncode == 1 and "a link, not a file" in p.stderr, p.stderr
 
 
+def test_a_truth_named_in_the_solver_command_stays_out_of_reach(tmp_path):
+    # Hostile: files named in the command are readable, and with --dataset
+    # the dataset's whole truth exists before the solver starts.
+    ds = tmp_path / "ds"
+    loadloom("run", DEMO, "--length", "2d", "--out", ds, "--quiet")
+    data = ds / "apartment-208"
+    truth = data / "truth.parquet"
+    p = loadloom("roundtrip", "--dataset", data, "--solver", cheat("read-named") + f" {truth}",
+                 "--train", "1d", "--test", "1d", "--out", tmp_path / "out", "--json", check=False)
+    r = score_of(p)
+    log = next((tmp_path / "out").rglob("solver.log")).read_text()
+    assert "denied" in log and "read the truth" not in log, log
+    assert r["overall"]["mae_w"] > 1
+
+
+def test_a_solver_flooding_its_log_is_stopped(tmp_path):
+    p = roundtrip(cheat("flood"), tmp_path)
+    assert p.returncode == 1 and "output passed 64 MiB" in p.stderr and "no score" in p.stderr, p.stderr[-2000:]
+    log = tmp_path / "apartment-208-roundtrip" / "solver.log"
+    # Checked at every 10 ms poll: the overshoot is what it prints in that time.
+    assert log.stat().st_size < 128 << 20, log.stat().st_size
+    assert len(p.stderr) < 20000, "the report quotes the log's last lines, cut short"
+
+
+@pytest.mark.parametrize("mode,needle", [
+    ("huge", "beyond any reading"),
+    ("gigawatt", "beyond 1 GW"),
+    ("repeated-column", "appears more than once"),
+])
+def test_wild_estimates_get_a_report_not_a_panic_or_an_infinity(tmp_path, mode, needle):
+    p = roundtrip(cheat(mode), tmp_path)
+    assert p.returncode == 1 and needle in p.stderr and "no score" in p.stderr, p.stderr
+    assert "panicked" not in p.stderr and "inf" not in p.stdout.split(), p.stdout
+
+
 def test_a_daemon_left_behind_is_stopped(tmp_path):
     p = roundtrip(cheat("daemon"), tmp_path)
     assert p.returncode == 0, p.stderr

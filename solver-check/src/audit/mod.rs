@@ -204,6 +204,11 @@ fn detect(h: &Header, m: &Measured, angles: &[f64]) -> Result<Detected, Error> {
     let (mut p, mut q, mut v) = (vec![f64::NAN; n], vec![f64::NAN; n], vec![f64::NAN; n]);
     let (mut rows, mut last) = (0u64, i64::MIN);
     while let Some(b) = st.next_batch()? {
+        // Before the interval is taken from the first rows: a reversed
+        // export has no forward step to take it from.
+        if let Some(k) = goes_back(&b.time_ms, last) {
+            return Err(crate::table::table_err(file, Some(columns::TIME), Some(b.first + k), "the time goes back from the row before", "sort the rows by time (a repeated hour at the end of summer time is read in file order, so keep the export's order there)").into());
+        }
         if det.is_none() {
             interval_s = interval_of(&b.time_ms)
                 .ok_or_else(|| short("fewer than two rows at distinct times"))?;
@@ -211,9 +216,6 @@ fn detect(h: &Header, m: &Measured, angles: &[f64]) -> Result<Detected, Error> {
         }
         let det = det.as_mut().expect("made above");
         for (k, &t) in b.time_ms.iter().enumerate() {
-            if t < last {
-                return Err(crate::table::table_err(file, Some(columns::TIME), Some(b.first + k), "the time goes back from the row before", "sort the rows by time (a repeated hour at the end of summer time is read in file order, so keep the export's order there)").into());
-            }
             last = t;
             let mut j = 0;
             for c in (0..n).filter(|&c| m.present[c]) {
@@ -232,6 +234,17 @@ fn detect(h: &Header, m: &Measured, angles: &[f64]) -> Result<Detected, Error> {
     let det = det.ok_or_else(|| short("no rows"))?;
     let (evs, stats) = det.finish();
     Ok((evs, stats, interval_s, rows, st.wall_clock()))
+}
+
+/// The first row of `t` earlier than the row before it (`last` before the
+/// first row).
+fn goes_back(t: &[i64], last: i64) -> Option<usize> {
+    let mut before = last;
+    t.iter().position(|&x| {
+        let back = x < before;
+        before = x;
+        back
+    })
 }
 
 /// Audits the meters of `data` (a dataset folder or meters file) against `d`.

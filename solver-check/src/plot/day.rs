@@ -102,6 +102,13 @@ fn window(
         }
         (None, None) => busiest_day(dataset, mh, tz)?,
     };
+    if w1 <= w0 {
+        return Err(err(
+            dataset,
+            "--to is not after --from",
+            "give a --to later than --from",
+        ));
+    }
     let (w0, w1) = (w0.max(t0), w1.min(end));
     if w1 <= w0 {
         return Err(err(

@@ -107,6 +107,37 @@ elif mode == "daemon":
             break
         time.sleep(0.05)
     write(honest())
+elif mode == "read-named":
+    # The truth named in the solver's own command (after the estimate):
+    # files of the command are readable, so naming the truth must not open it.
+    named = pathlib.Path(sys.argv[4])
+    try:
+        t = pd.read_parquet(named, columns=["time"] + [f"{i}_p_w" for i in ids])
+        t = t[t["time"] >= pd.Timestamp(spec["test"]["start"])].iloc[: spec["test"]["rows"]]
+        print(f"read the truth at {named}", flush=True)
+        write(t)
+    except Exception as e:  # pyarrow wraps the OS error in its own
+        print(f"denied: {named}: {e}", flush=True)
+        write(honest())
+elif mode == "flood":
+    # Print without end (here 80 MiB): the log must not fill the disk.
+    line = "x" * (1 << 20)
+    for _ in range(80):
+        print(line, flush=True)
+    write(honest())
+elif mode in ("huge", "gigawatt"):
+    # A finite power so large its square overflows (huge), or no home's
+    # load (gigawatt): no infinity in a score, no score for nonsense.
+    out = honest()
+    out[f"{ids[0]}_p_w"] = 1e308 if mode == "huge" else 2e9
+    write(out)
+elif mode == "repeated-column":
+    # One appliance's column written twice (pyarrow allows it).
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+    t = pa.Table.from_pandas(honest(), preserve_index=False)
+    c = f"{ids[0]}_p_w"
+    pq.write_table(t.append_column(c, t.column(c)), estimate)
 elif mode == "honest":
     write(honest())
 else:
