@@ -400,11 +400,19 @@ impl UndeclaredStage<'_> {
         let (most, fewest) = (c.on.len().max(c.off.len()), c.on.len().min(c.off.len()));
         let one_load =
             runs >= self.th.coarse_runs && 4 * fewest >= 3 * most && !c.wiring.contains('+');
+        // A declared appliance on any connection it could be on: one
+        // declared on the wrong connection, whose steps were not placed (at
+        // this interval its few steps as declared may be composites), draws
+        // there what its connection's voltage gives.
         let declared_size = self
             .placed
             .iter()
             .chain(&self.d.appliances)
-            .flat_map(|a| predicted(self.d, self.m, a))
+            .flat_map(|a| {
+                std::iter::once(a.clone())
+                    .chain(alternatives(self.d, a).into_iter().map(|(_, b)| b))
+            })
+            .flat_map(|a| predicted(self.d, self.m, &a))
             .any(|r| dist_delta(&c.v, &r) <= 2.0);
         let a_sum = self.sums.iter().any(|(r, _)| dist_delta(&c.v, r) <= 1.0);
         (!one_load || declared_size || a_sum).then_some(doubt)
@@ -450,6 +458,27 @@ impl UndeclaredStage<'_> {
         )
     }
 
+    /// Why cluster `c` may be a declared appliance not seen where declared
+    /// (undecidable, fewer than `seen_where_declared` steps there) on another
+    /// connection it could be on: its steps there, as the working CTs read
+    /// them, are the cluster's (within the tolerance).
+    fn unseen_elsewhere(&self, c: &Cluster) -> Option<String> {
+        self.placed
+            .iter()
+            .zip(self.checks)
+            .filter(|(_, ck)| {
+                ck.verdict == Verdict::Undecidable && ck.steps_declared < self.th.seen_where_declared
+            })
+            .find_map(|(a, _)| {
+                let (name, _) = alternatives(self.d, a).into_iter().find(|(_, alt)| {
+                    predicted(self.d, self.m, alt)
+                        .iter()
+                        .any(|r| dist_delta(&c.v, r) <= 1.0)
+                })?;
+                Some(format!("it has the size of {} wired on {name}, as the working CTs read it, and {} was not seen switching where declared: either {} is wired on {name}, or this is another load", a.id, a.id, a.id))
+            })
+    }
+
     /// Why the undeclared load of cluster `c` may be no load of its own: its
     /// parts on several lines at once may be two loads'; or it may be a
     /// declared appliance after all. Only its size can tell a one-power appliance (one with
@@ -466,6 +495,9 @@ impl UndeclaredStage<'_> {
         let (p, w) = (c.s.re, c.wiring.as_str());
         if w.contains('+') {
             return Some(format!("it is drawn as line-to-neutral parts on {w} at once, as two loads switching together would be, or a line-to-line load read through a metering other than the one found"));
+        }
+        if let Some(why) = self.unseen_elsewhere(c) {
+            return Some(why);
         }
         for (a, ck) in self.placed.iter().zip(self.checks) {
             if !one_power(a) {
@@ -682,5 +714,113 @@ mod tests {
         events.extend(runs(3, 1000.0, H));
         let o = check(&d, &events, &stats, 60.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
+    }
+
+    /// A 4.5 kW, 240 V water heater declared on L2-N (taken at a quarter of
+    /// that there, P = V²/R) where no CT reads L2, not seen: a load of
+    /// 2250 W on L1-N is what it draws across L1-L2 as the L1 CT reads it
+    /// (half its power on each line). The load is only possible, naming it;
+    /// a 1.5 kW load is not its size.
+    #[test]
+    fn a_load_an_unseen_appliance_draws_on_another_connection_is_only_possible() {
+        let mut wh = on_off("water_heater", 1, C64::new(4500.0 * 0.25, 0.0));
+        wh.states[1][0].rated_v = Some(240.0);
+        wh.states[1][0].zip_p = crate::contract::Zip {
+            z: 1.0,
+            i: 0.0,
+            p: 0.0,
+        };
+        let d = split_phase(vec![wh]);
+        let m = declared_metering(&d, &[false, true]);
+        let checks = [ApplianceCheck {
+            id: "water_heater".into(),
+            declared: "L2-N".into(),
+            verdict: Verdict::Undecidable,
+            seen: None,
+            reason: String::new(),
+            steps_declared: 0,
+            steps_best_other: 0,
+        }];
+        let stage = UndeclaredStage {
+            d: &d,
+            m: &m,
+            events: &[],
+            cxs: &[],
+            explained: &[],
+            sums: &[],
+            total_wh: 1e4,
+            placed: &d.appliances,
+            checks: &checks,
+            interval_s: 1.0,
+            th: &Thresholds::STANDARD,
+        };
+        let cluster = |w: f64| Cluster {
+            wiring: "L1-N".into(),
+            v: vec![C64::new(w, 0.0), C64::ZERO],
+            s: C64::new(w, 0.0),
+            on: vec![0, 2 * H],
+            off: vec![H / 4, 2 * H + H / 4],
+        };
+        let why = stage.doubt(&cluster(2250.0)).unwrap();
+        assert!(why.contains("water_heater wired on L1-L2"), "{why}");
+        assert_eq!(stage.doubt(&cluster(1500.0)), None);
+    }
+
+    /// At 1 min with real power only, a 1.5 kW heater declared across
+    /// L1-L2 that switches 12 times on L1-N (and four times as declared: two
+    /// loads of 750 W on each line within one minute) keeps its declared
+    /// wiring; the 1.5 kW load on L1-N repeats twelve whole runs, but it has
+    /// the heater's size on a connection the heater could be on, so it is
+    /// only possible.
+    #[test]
+    fn a_coarse_load_of_a_declared_appliances_size_elsewhere_is_only_possible() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::on_off_wired;
+        let mut d = split_phase(vec![on_off_wired(
+            "heater",
+            Wiring::LineLine(0, 1),
+            C64::new(1500.0, 0.0),
+        )]);
+        d.real_only = true;
+        let step = |t: i64, l1: f64, l2: f64| Event {
+            time_ms: t,
+            delta: vec![C64::new(l1, 0.0), C64::new(l2, 0.0)],
+            before: vec![C64::new(300.0, 0.0); 2],
+            v_before: vec![f64::NAN; 2],
+            v_after: vec![f64::NAN; 2],
+            se: vec![2.0; 2],
+        };
+        let mut events: Vec<Event> = (0..12)
+            .flat_map(|i| {
+                [
+                    step(i * 3 * H, 1500.0, 0.0),
+                    step(i * 3 * H + H / 6, -1500.0, 0.0),
+                ]
+            })
+            .collect();
+        events.extend((0..2).flat_map(|i| {
+            [
+                step(i * 3 * H + H, 750.0, 750.0),
+                step(i * 3 * H + H + H / 6, -750.0, -750.0),
+            ]
+        }));
+        events.sort_by_key(|e| e.time_ms);
+        let stats = vec![
+            ChannelStats {
+                rows: 1_440,
+                null: 0,
+                zero: 0,
+                sum_p: 500.0 * 1_440.0,
+                negative: vec![[0, 1_440]; 2]
+            };
+            2
+        ];
+        let o = check(&d, &events, &stats, 60.0);
+        assert!(o.findings.is_empty(), "{:?}", o.findings);
+        assert!(
+            o.possible.iter().any(|f| f.subject == "1500 W on L1-N"),
+            "{:?}",
+            o.possible
+        );
     }
 }
