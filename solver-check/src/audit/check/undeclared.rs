@@ -458,16 +458,21 @@ impl UndeclaredStage<'_> {
         )
     }
 
-    /// Why cluster `c` may be a declared appliance not seen where declared
-    /// (undecidable, fewer than `seen_where_declared` steps there) on another
+    /// Why cluster `c` may be a declared appliance of one step size not seen
+    /// where declared (undecidable, fewer than `seen_where_declared` steps
+    /// there) on another
     /// connection it could be on: its steps there, as the working CTs read
     /// them, are the cluster's (within the tolerance).
     fn unseen_elsewhere(&self, c: &Cluster) -> Option<String> {
         self.placed
             .iter()
             .zip(self.checks)
-            .filter(|(_, ck)| {
-                ck.verdict == Verdict::Undecidable && ck.steps_declared < self.th.seen_where_declared
+            // One step size: one with several is told by whether its others
+            // show there too (placement).
+            .filter(|(a, ck)| {
+                ck.verdict == Verdict::Undecidable
+                    && ck.steps_declared < self.th.seen_where_declared
+                    && self.d.signatures(a).len() == 1
             })
             .find_map(|(a, _)| {
                 let (name, _) = alternatives(self.d, a).into_iter().find(|(_, alt)| {
