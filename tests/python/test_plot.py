@@ -223,8 +223,10 @@ def test_monthly_energy_by_end_use_sums_the_appliances_of_each_use(tmp_path):
     want = kwh.T.groupby([use[c[: -len("_p_w")]] for c in kwh.columns]).sum().T
     parts = [r for r in ET.parse(out).getroot().iter("{http://www.w3.org/2000/svg}rect") if r.get("class") == "part"]
     assert len(parts) == sum((want.loc[mo] > 0).sum() for mo in want.index)
+    # `data-kwh` is written with six decimals: equal to within half the last
+    # digit, and to a millionth of the value for the float sums' order.
     for r in parts:
-        assert float(r.get("data-kwh")) == pytest.approx(want.loc[r.get("data-month"), r.get("data-end-use")], rel=1e-6)
+        assert float(r.get("data-kwh")) == pytest.approx(want.loc[r.get("data-month"), r.get("data-end-use")], rel=1e-6, abs=5e-7)
     bad = loadloom("plot", d, "--by", "end-use", "--out", out, check=False)
     assert bad.returncode == 2 and "--monthly" in bad.stderr
 
