@@ -74,7 +74,7 @@ const ZENITH_RATE_DEG_PER_MS: f64 = 0.3 / 60_000.0;
 
 /// A span of time known to be dark at a site, learnt from the last moment
 /// whose sun stood more than a degree below the horizon: the sun cannot
-/// climb back over it faster than [`ZENITH_RATE_DEG_PER_MS`].
+/// climb back over it faster than 0.3°/min (`ZENITH_RATE_DEG_PER_MS`).
 #[derive(Clone, Copy, Debug)]
 pub struct Night {
     from_ms: i64,
