@@ -210,11 +210,17 @@ def test_partial_phase_loads(ladders):
     total = t.loc[run, "heat_pump_p_w"]
     # 3P part 90 % split in thirds, the single-phase part 10 % on L1; each
     # draw follows its ZIP curve at its own terminal voltage, which the
-    # source's per-line variation and the sag move by a few tenths of a %.
+    # source's per-line variation and the sag move by a few tenths of a %
+    # (more while other heavy loads share a line).
     share = (l1 - l2) / total
     assert share.mean() == pytest.approx(0.10, abs=0.005)
     assert np.allclose(share, 0.10, atol=0.02)
-    assert np.allclose((l2 - l3) / total, 0.0, atol=0.01)
+    # Heavy single-phase loads on one line sag it by a few %: a kettle and
+    # a dryer on L2 together moved the L2 third 3.6 % from the L3 third
+    # (1.1 % of the total) in this home; on average the two stay equal.
+    even = (l2 - l3) / total
+    assert even.abs().mean() < 0.003
+    assert np.allclose(even, 0.0, atol=0.02)
 
 
 def resistive_peak(t, i):
