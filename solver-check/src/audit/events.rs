@@ -66,6 +66,22 @@ pub struct ChannelStats {
     /// For every conductor b and sign k: rows where the conductor power this
     /// channel would imply, were its CT on b with sign k, is clearly negative.
     pub negative: Vec<[u64; 2]>,
+    /// Rows read in the dark hours of the home's clock ([`dark_hour`]).
+    pub dark_rows: u64,
+    /// [`ChannelStats::negative`] over the dark hours alone, when no PV
+    /// array produces.
+    pub negative_dark: Vec<[u64; 2]>,
+}
+
+/// Whether a local clock time (hours since midnight) lies in the hours when
+/// no PV array produces anywhere people live below 58° of latitude: from
+/// 00:30 to 03:00 on the clock, summer time included, the sun is at least
+/// a degree or so below the horizon even at midsummer at the eastern edge
+/// of a time zone (sunrise at 58° N at midsummer is near 03:30 solar time;
+/// common practice, no source). Its negative rows tell a reversed CT in a
+/// home with PV, whose export makes every daytime row's sign moot.
+pub fn dark_hour(local_h: f64) -> bool {
+    (0.5..3.0).contains(&local_h)
 }
 
 /// Mean and variance of some rows (P, Q per channel, then V per channel).
@@ -135,6 +151,10 @@ pub struct Detector {
     pub events: Vec<Event>,
     /// Per channel: counts for the orientation and missing-CT checks so far.
     pub stats: Vec<ChannelStats>,
+    /// The home's time zone, for the dark hours ([`Detector::with_zone`]).
+    zone: Option<jiff::tz::TimeZone>,
+    /// The last UTC quarter-hour looked up, and whether it is dark.
+    hour_cache: (i64, bool),
 }
 
 /// Whether a row (P, Q per channel; the voltages after them are not
@@ -224,11 +244,41 @@ impl Detector {
             stats: vec![
                 ChannelStats {
                     negative: vec![[0, 0]; n],
+                    negative_dark: vec![[0, 0]; n],
                     ..Default::default()
                 };
                 n
             ],
+            zone: None,
+            hour_cache: (i64::MIN, false),
         }
+    }
+
+    /// Reads the rows' clock in `zone` so the dark hours' negative rows are
+    /// counted apart ([`ChannelStats::negative_dark`]).
+    pub fn with_zone(mut self, zone: jiff::tz::TimeZone) -> Detector {
+        self.zone = Some(zone);
+        self
+    }
+
+    /// Whether the row at `time_ms` (UTC) falls in a [`dark_hour`] of the
+    /// home's clock, the zone's offset looked up once per UTC quarter-hour
+    /// (offsets change on quarter-hours at most).
+    fn dark(&mut self, time_ms: i64) -> bool {
+        let Some(zone) = &self.zone else {
+            return false;
+        };
+        const QUARTER_MS: i64 = 900_000;
+        let q = time_ms.div_euclid(QUARTER_MS);
+        if self.hour_cache.0 != q {
+            let Ok(t) = jiff::Timestamp::from_millisecond(q * QUARTER_MS) else {
+                return false;
+            };
+            let off_s = i64::from(zone.to_offset(t).seconds());
+            let local_ms = (q * QUARTER_MS + off_s * 1000).rem_euclid(86_400_000);
+            self.hour_cache = (q, dark_hour(local_ms as f64 / 3_600_000.0));
+        }
+        self.hour_cache.1
     }
 
     /// Records the step into `seg`, if it waits, from the head seen so far.
@@ -374,6 +424,7 @@ impl Detector {
             }
         }
         self.last_ms = Some(time_ms);
+        let dark = self.dark(time_ms);
         let mut row = vec![0.0; 3 * n];
         // A voltage missing from a row is the last one read (a sum with a
         // NaN in it would stay NaN); never read, NaN throughout.
@@ -394,6 +445,7 @@ impl Detector {
             row[2 * c + 1] = q[c];
             let s = C64::new(p[c], q[c]);
             st.sum_p += p[c];
+            st.dark_rows += u64::from(dark);
             if s.abs() < 5.0 {
                 st.zero += 1;
             }
@@ -403,6 +455,7 @@ impl Detector {
                     // The conductor's power if this channel reads u · S_b.
                     if (s * u.conj()).re < thr {
                         st.negative[b][k] += 1;
+                        st.negative_dark[b][k] += u64::from(dark);
                     }
                 }
             }

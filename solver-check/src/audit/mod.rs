@@ -191,7 +191,8 @@ type Detected = (
 );
 
 /// Streams the table once through the step detector.
-fn detect(h: &Header, m: &Measured, angles: &[f64]) -> Result<Detected, Error> {
+fn detect(h: &Header, m: &Measured, d: &Declared) -> Result<Detected, Error> {
+    let angles = d.supply.angles_deg();
     let file = &h.file;
     let n = m.n;
     let mut st = h.stream(&m.cols)?;
@@ -212,7 +213,11 @@ fn detect(h: &Header, m: &Measured, angles: &[f64]) -> Result<Detected, Error> {
         if det.is_none() {
             interval_s = interval_of(&b.time_ms)
                 .ok_or_else(|| short("fewer than two rows at distinct times"))?;
-            det = Some(events::Detector::new(angles, interval_s));
+            let det0 = events::Detector::new(angles, interval_s);
+            det = Some(match jiff::tz::TimeZone::get(&d.timezone) {
+                Ok(zone) => det0.with_zone(zone),
+                Err(_) => det0,
+            });
         }
         let det = det.as_mut().expect("made above");
         for (k, &t) in b.time_ms.iter().enumerate() {
@@ -275,7 +280,7 @@ pub fn audit_with(data: &Path, d: &Declared, th: &Thresholds) -> Result<Audit, E
     } else {
         d.real_power_only()
     };
-    let (evs, stats, interval_s, rows, clock) = detect(&h, &m, d.supply.angles_deg())?;
+    let (evs, stats, interval_s, rows, clock) = detect(&h, &m, d)?;
     let mut outcome = check::check_with(d, &evs, &stats, interval_s, th);
     outcome
         .notes
@@ -361,7 +366,7 @@ pub fn interval_of(t: &[i64]) -> Option<f64> {
 
 /// What the audit takes for granted, printed with every report.
 pub const ASSUMPTIONS: [&str; 3] = [
-    "the home only consumes: a conductor power the metering implies must not be negative (a home with generation needs it declared, which this audit does not yet read)",
+    "the home only consumes, but for its declared PV and battery: a conductor power the metering implies must not be negative, on a conductor with declared PV only in the dark hours of the home's clock (00:30-03:00), on one with a declared battery never judged (a metering there is told by its steps, and one that fits with every reading negated as well is only possible)",
     "appliances switch between the declared states; loads whose power wanders or never switches cannot be placed from steps and are reported as undecidable",
     "steps are matched within 20 W plus 3 % of their size per channel where the voltages are measured (the expected step follows them), else within 30 W plus 10 %, widened by three standard errors of the rows either side of the step and, where the voltage changed, by the other loads' possible response to it",
 ];

@@ -30,7 +30,7 @@ pub struct Metering {
 
 impl Metering {
     /// Complex factor from conductor power to channel reading.
-    fn factor(&self, d: &Declared, c: usize) -> C64 {
+    pub(super) fn factor(&self, d: &Declared, c: usize) -> C64 {
         let m = self.map[c];
         let u = if m.turned {
             d.supply.unit(c) / d.supply.unit(m.src)

@@ -260,7 +260,8 @@ mod tests {
                 null: 0,
                 zero: 0,
                 sum_p: 500.0 * 86_400.0,
-                negative: vec![[0, 86_400]; 2]
+                negative: vec![[0, 86_400]; 2],
+                ..Default::default()
             };
             2
         ];

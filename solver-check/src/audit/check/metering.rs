@@ -83,17 +83,117 @@ pub(super) fn hypotheses(d: &Declared, absent: &[bool]) -> Vec<(Metering, usize)
 
 /// Share of rows where the conductor power a channel implies under `m` is
 /// clearly negative; the largest over channels.
-pub(super) fn negative_share(m: &Metering, stats: &[ChannelStats]) -> f64 {
+pub(super) fn negative_share(d: &Declared, m: &Metering, stats: &[ChannelStats]) -> f64 {
+    let sources = generation_on(d);
     (0..m.map.len())
         .filter(|&c| !m.absent[c])
         .map(|c| {
             let mm = m.map[c];
             let st = &stats[c];
-            let read = (st.rows - st.null).max(1) as f64;
             let b = if mm.turned { mm.src } else { c };
-            st.negative[b][if mm.k > 0.0 { 0 } else { 1 }] as f64 / read
+            let k = usize::from(mm.k < 0.0);
+            match sources[mm.src] {
+                Source::None => st.negative[b][k] as f64 / (st.rows - st.null).max(1) as f64,
+                // Export makes daytime rows negative: the dark hours judge.
+                Source::Sun if st.dark_rows >= MIN_DARK_ROWS => {
+                    st.negative_dark[b][k] as f64 / st.dark_rows as f64
+                }
+                // A battery may export at any hour; no dark hours read.
+                Source::Sun | Source::Battery => 0.0,
+            }
         })
         .fold(0.0, f64::max)
+}
+
+/// Why metering `chosen` may be its mirror image, every reading negated:
+/// where a home battery feeds every conductor its channels read, it may
+/// export at any hour, so no row's sign rules the mirror out, and a step
+/// fits both alike (a load switching on under one reads as one switching
+/// off under the other). On a split-phase supply two CTs exchanged and the
+/// two channels exchanged whole are such a pair. None where the mirror is
+/// not admissible or explains under 95 % of the steps `chosen` does.
+pub(super) fn mirror_doubt(
+    d: &Declared,
+    mc: &MeteringChoice,
+    chosen: usize,
+    th: &Thresholds,
+) -> Option<String> {
+    let sources = generation_on(d);
+    let m = &mc.hyps[chosen].0;
+    let read: Vec<usize> = (0..m.map.len()).filter(|&c| !m.absent[c]).collect();
+    if read.is_empty()
+        || read
+            .iter()
+            .any(|&c| sources[m.map[c].src] != Source::Battery)
+    {
+        return None;
+    }
+    // Several hypotheses may read alike (a channel exchanged whole, or its
+    // CT turned round): the one explaining most speaks for them.
+    let mirror = (0..mc.hyps.len())
+        .filter(|&i| {
+            let t = &mc.hyps[i].0;
+            read.iter().all(|&c| {
+                t.map[c].src == m.map[c].src && (t.factor(d, c) + m.factor(d, c)).abs() < 1e-9
+            })
+        })
+        .max_by_key(|&i| mc.scored[i].ex)?;
+    let (ch, mi) = (&mc.scored[chosen], &mc.scored[mirror]);
+    if !mi.admissible(th) || (mi.ex as f64) < 0.95 * ch.ex as f64 {
+        return None;
+    }
+    let mut theirs = Vec::new();
+    metering_findings(
+        d,
+        &mc.decl_m,
+        &mc.hyps[mirror].0,
+        0.0,
+        Value::Null,
+        &mut theirs,
+    );
+    let other = if theirs.is_empty() {
+        "the metering as declared".to_string()
+    } else {
+        theirs
+            .iter()
+            .map(|f| f.message.as_str())
+            .collect::<Vec<_>>()
+            .join("; ")
+    };
+    Some(format!("the home battery may export at any hour, so the data fit every reading negated as well ({other}); check both on site"))
+}
+
+/// Dark-hour rows a conductor with PV needs before its negative rows judge
+/// a metering: an hour at 1 min.
+const MIN_DARK_ROWS: u64 = 60;
+
+/// What may feed power back on a conductor, as declared.
+#[derive(Clone, Copy, PartialEq)]
+enum Source {
+    /// Nothing: the conductor's power is never negative.
+    None,
+    /// A PV inverter only: negative in daylight, never in the dark hours.
+    Sun,
+    /// A home battery (and perhaps PV): negative whenever it exports.
+    Battery,
+}
+
+/// Per conductor, what a declared PV inverter or battery connected to it
+/// may make negative (a load switching on still raises the conductor's
+/// power, export or not: its steps judge the metering where rows cannot).
+fn generation_on(d: &Declared) -> Vec<Source> {
+    let n = d.supply.lines();
+    let mut out = vec![Source::None; n];
+    for g in &d.generation {
+        for b in g.wiring.lines(n) {
+            out[b] = if g.follows_home || out[b] == Source::Battery {
+                Source::Battery
+            } else {
+                Source::Sun
+            };
+        }
+    }
+    out
 }
 
 /// The channel stats say a channel has no CT: null nearly always, or nothing
@@ -329,7 +429,7 @@ fn score(
     big: &[&Event],
     th: &Thresholds,
 ) -> Scored {
-    let neg = negative_share(m, stats);
+    let neg = negative_share(d, m, stats);
     let fits: Vec<Fits> = if neg <= th.negative_ok {
         d.appliances.iter().map(|a| fits_of(d, m, a, big)).collect()
     } else {
@@ -679,6 +779,129 @@ mod tests {
     use crate::audit::check::{check, Outcome};
     use crate::contract::{Wiring, C64};
 
+    /// Channel stats of a split-phase home: `rows` read, `neg` of them (and
+    /// `dark_neg` of the `dark` dark-hour rows) negative as labelled.
+    fn stats(rows: u64, neg: u64, dark: u64, dark_neg: u64) -> Vec<ChannelStats> {
+        let one = ChannelStats {
+            rows,
+            negative: vec![[neg, 0], [0, 0]],
+            dark_rows: dark,
+            negative_dark: vec![[dark_neg, 0], [0, 0]],
+            ..Default::default()
+        };
+        let mut two = one.clone();
+        two.negative = vec![[0, 0], [neg, 0]];
+        two.negative_dark = vec![[0, 0], [dark_neg, 0]];
+        vec![one, two]
+    }
+
+    /// Export makes a conductor with PV negative by day: its dark hours
+    /// judge the metering; with a battery no row does; without generation
+    /// every row does.
+    #[test]
+    fn generation_moves_the_negative_rows_that_judge_a_metering() {
+        use crate::audit::check::testkit::split_phase;
+        use crate::audit::decl::Inverter;
+        let mut d = split_phase(vec![]);
+        let m = declared_metering(&d, &[false, false]);
+        // A third of the rows negative (midday export), none in the dark.
+        let st = stats(3000, 1000, 600, 0);
+        assert!((negative_share(&d, &m, &st) - 1.0 / 3.0).abs() < 1e-12);
+        let pv = Inverter {
+            id: "pv".into(),
+            wiring: Wiring::LineLine(0, 1),
+            follows_home: false,
+        };
+        d.generation.push(pv.clone());
+        assert_eq!(negative_share(&d, &m, &st), 0.0);
+        // Negative in the dark as well: a reversed CT, PV or not.
+        let st = stats(3000, 2000, 600, 500);
+        assert!((negative_share(&d, &m, &st) - 500.0 / 600.0).abs() < 1e-12);
+        // Too few dark rows read: no judgement.
+        assert_eq!(negative_share(&d, &m, &stats(3000, 2000, 30, 30)), 0.0);
+        d.generation.push(Inverter {
+            id: "battery".into(),
+            follows_home: true,
+            ..pv
+        });
+        assert_eq!(negative_share(&d, &m, &st), 0.0);
+    }
+
+    /// With a battery on both lines, two CTs exchanged and the channels
+    /// exchanged whole (every reading negated, V2 = −V1) fit the steps alike:
+    /// the metering found names its mirror and is only possible.
+    #[test]
+    fn a_battery_leaves_a_split_phase_metering_and_its_mirror_apart_undecided() {
+        use crate::audit::check::testkit::split_phase;
+        use crate::audit::decl::Inverter;
+        let mut d = split_phase(vec![on_off("lamp", 0, C64::new(500.0, 0.0))]);
+        let absent = [false, false];
+        let hyps = hypotheses(&d, &absent);
+        let find = |src: [usize; 2], k: f64, turned: bool| {
+            hyps.iter()
+                .position(|(m, _)| {
+                    m.map
+                        .iter()
+                        .zip(src)
+                        .all(|(c, s)| c.src == s && c.k == k && c.turned == turned)
+                })
+                .expect("a hypothesis")
+        };
+        // Channel l1 reads L2's CT against its own voltage (−S2) and l2 L1's.
+        let cts = find([1, 0], 1.0, true);
+        // The channels exchanged whole read as that CT turned round: +S2.
+        assert_ne!(find([1, 0], 1.0, false), cts);
+        let scored: Vec<Scored> = (0..hyps.len())
+            .map(|i| Scored {
+                i,
+                apps: 1,
+                ex: if hyps[i].0.map.iter().map(|c| c.src).eq([1, 0]) {
+                    10
+                } else {
+                    2
+                },
+                neg: 0.0,
+                cost: hyps[i].1,
+                owns: vec![],
+            })
+            .collect();
+        let decl_m = declared_metering(&d, &absent);
+        let decl_i = hyps
+            .iter()
+            .position(|(m, _)| *m == decl_m)
+            .expect("declared");
+        let mc = MeteringChoice {
+            hyps,
+            scored,
+            decl_m,
+            decl_i,
+            chosen: cts,
+        };
+        let th = &Thresholds::STANDARD;
+        assert!(
+            mirror_doubt(&d, &mc, cts, th).is_none(),
+            "no generation: the sign judges"
+        );
+        d.generation.push(Inverter {
+            id: "battery".into(),
+            wiring: Wiring::LineLine(0, 1),
+            follows_home: true,
+        });
+        let why = mirror_doubt(&d, &mc, cts, th).expect("the mirror fits as well");
+        assert!(why.contains("exchanged"), "{why}");
+        // A PV array alone exports by day only: the dark hours judge.
+        d.generation[0].follows_home = false;
+        assert!(mirror_doubt(&d, &mc, cts, th).is_none());
+    }
+
+    /// The dark hours of the home's clock.
+    #[test]
+    fn dark_hours_are_half_past_midnight_to_three() {
+        use crate::audit::events::dark_hour;
+        assert!(!dark_hour(0.25) && dark_hour(0.5) && dark_hour(2.99) && !dark_hour(3.0));
+        assert!(!dark_hour(12.0) && !dark_hour(23.9));
+    }
+
     /// A step of per-channel powers `delta` at `t` (230 V, steady).
     fn step(t: i64, delta: Vec<C64>) -> Event {
         let n = delta.len();
@@ -700,7 +923,8 @@ mod tests {
                 null: 0,
                 zero: 0,
                 sum_p: 300.0 * 86_400.0,
-                negative: vec![[0, 86_400]; n]
+                negative: vec![[0, 86_400]; n],
+                ..Default::default()
             };
             n
         ]

@@ -49,7 +49,8 @@ use crate::contract::line_name;
 use finding::sort_findings;
 use metering::{
     absent_channels, channel_findings, choose_metering, dispute, metering_confidence,
-    metering_findings, place_under, silent_channel_accounts, simpler_account, Placement,
+    metering_findings, mirror_doubt, place_under, silent_channel_accounts, simpler_account,
+    Placement,
 };
 use placement::{indistinct_notes, Window};
 use serde_json::json;
@@ -136,7 +137,13 @@ pub fn check_with(
         let conf = metering_confidence(&mc.scored[decl_i], &mc.scored[chosen], replaced, th);
         let dsp = dispute(&mc.scored[chosen], &mc.scored[decl_i], th);
         let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "explained_only_as_found": dsp.gained, "explained_only_as_declared": dsp.lost, "appliances_for_found": dsp.for_found, "appliances_for_declared": dsp.for_declared, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg, "appliance_moves_replaced": replaced });
+        let first = findings.len();
         metering_findings(d, &mc.decl_m, &m, conf, ev, &mut findings);
+        if let Some(why) = mirror_doubt(d, &mc, chosen, th) {
+            for f in &mut findings[first..] {
+                f.doubt.get_or_insert_with(|| why.clone());
+            }
+        }
         silent_channel_accounts(&m, &mut findings, &mut notes);
     }
     findings.extend(moves);
@@ -256,7 +263,8 @@ mod tests {
                 null: 0,
                 zero: 0,
                 sum_p: 300.0 * 86_400.0,
-                negative: vec![[0, 86_400]; 2]
+                negative: vec![[0, 86_400]; 2],
+                ..Default::default()
             };
             2
         ];

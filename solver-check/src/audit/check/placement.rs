@@ -688,7 +688,8 @@ mod tests {
                 null: 0,
                 zero: 0,
                 sum_p: 200.0 * 86_400.0,
-                negative: vec![[0, 86_400]; 2]
+                negative: vec![[0, 86_400]; 2],
+                ..Default::default()
             };
             2
         ];
@@ -798,7 +799,8 @@ mod tests {
                 null: 0,
                 zero: 0,
                 sum_p: 200.0 * 172_800.0,
-                negative: vec![[0, 172_800]; 2]
+                negative: vec![[0, 172_800]; 2],
+                ..Default::default()
             };
             2
         ];

@@ -700,7 +700,8 @@ mod tests {
                 null: 0,
                 zero: 0,
                 sum_p: 500.0 * 86_400.0,
-                negative: vec![[0, 86_400]; 2]
+                negative: vec![[0, 86_400]; 2],
+                ..Default::default()
             };
             2
         ];
@@ -816,7 +817,8 @@ mod tests {
                 null: 0,
                 zero: 0,
                 sum_p: 500.0 * 1_440.0,
-                negative: vec![[0, 1_440]; 2]
+                negative: vec![[0, 1_440]; 2],
+                ..Default::default()
             };
             2
         ];
