@@ -3,7 +3,7 @@
 //! declared line-to-neutral and back), rated draws at their size on every
 //! connection, and the moves made one at a time.
 
-use super::finding::{ApplianceCheck, Finding, Kind, Verdict};
+use super::finding::{same_wiring_name, ApplianceCheck, Finding, Kind, Verdict};
 use super::fit::{
     dist_model, distances, poisson_tail, shape_of, visible, Ctx, Model, Pred, TOL_ABS_V_W,
     TOL_REL_V, USE_STEP,
@@ -176,11 +176,40 @@ pub(super) fn move_finding(
     }
 }
 
+/// Which of an appliance's distinct jumps (as [`Declared::distinct_jumps`]
+/// lists them) are one step at different inputs, as a group index per jump.
+/// A thermostat's compressor switches on at an input its outdoor temperature
+/// sets and off from the same input, so a jump between two states made both
+/// ways at a scale is one step of a size the weather picks: a few days show
+/// one or two of those sizes, not all. A jump made one way only (a
+/// modulating load starting at full power and stopping from its minimum) is
+/// a step of its own, which every run shows.
+pub(super) fn step_groups(d: &Declared, a: &DeclAppliance) -> Vec<usize> {
+    let all = a.steps.jumps();
+    let two_way = |&(f, t, kt, kf): &crate::audit::decl::Jump| {
+        all.iter()
+            .any(|&(g, u, ku, kg)| (g, u) == (t, f) && ku == kf && kg == kt)
+    };
+    let keys: Vec<Option<(usize, usize)>> = d
+        .distinct_jumps(a)
+        .iter()
+        .map(|(j, _)| two_way(j).then_some((j.0.min(j.1), j.0.max(j.1))))
+        .collect();
+    (0..keys.len())
+        .map(|i| match keys[i] {
+            Some(k) => keys.iter().position(|x| *x == Some(k)).unwrap_or(i),
+            None => i,
+        })
+        .collect()
+}
+
 /// Share of an appliance's step sizes (its distinct jumps of `USE_STEP`
 /// or more, and of `share` of its largest or more) that at least one of
 /// `steps` fits, under `a`'s wiring:
 /// a hair dryer whose half-heat steps fit but whose full-heat step is never
-/// seen is a poor account of those steps.
+/// seen is a poor account of those steps. The sizes of one step at the
+/// inputs the weather gives it ([`step_groups`]) count as one, seen when
+/// any of them is.
 pub(super) fn coverage(
     d: &Declared,
     m: &Metering,
@@ -196,25 +225,28 @@ pub(super) fn coverage(
         .iter()
         .map(|t| t.iter().map(|c| c.abs()).fold(0.0, f64::max))
         .collect();
+    let groups = step_groups(d, a);
     let top = sizes.iter().cloned().fold(0.0, f64::max);
-    let (mut big, mut seen) = (0, 0);
-    for (jump, size) in model.jumps.iter().zip(sizes) {
-        if size < USE_STEP || size < share * top {
+    let (mut big, mut seen) = (vec![false; groups.len()], vec![false; groups.len()]);
+    for ((jump, &size), &g) in model.jumps.iter().zip(&sizes).zip(&groups) {
+        if size < USE_STEP {
             continue;
         }
-        big += 1;
+        big[g] |= size >= share * top;
         let one = Model {
             jumps: vec![jump.clone()],
         };
-        seen += steps
-            .iter()
-            .any(|&k| dist_model(d, m, used[k], &cxs[k], &one, &[]).0 <= 1.0)
-            as usize;
+        seen[g] = seen[g]
+            || steps
+                .iter()
+                .any(|&k| dist_model(d, m, used[k], &cxs[k], &one, &[]).0 <= 1.0);
     }
-    if big == 0 {
+    let n_big = big.iter().filter(|&&b| b).count();
+    let n_seen = big.iter().zip(&seen).filter(|(&b, &s)| b && s).count();
+    if n_big == 0 {
         1.0
     } else {
-        seen as f64 / big as f64
+        n_seen as f64 / n_big as f64
     }
 }
 
@@ -459,6 +491,56 @@ impl Round<'_> {
         })
     }
 
+    /// Why the steps of a one-power appliance `j` moved from one line to
+    /// another (to `found`, `size` W there; `steps`, those that fit it
+    /// there) may be another one-power appliance's, one that could be on
+    /// `found` by a move of the same kind (line to line, at the same
+    /// voltage): one declared with `j` that fits half of those steps or
+    /// more (either of the two may be the one on `found`), or one declared
+    /// elsewhere, not seen switching there either (fewer than
+    /// `seen_where_declared` steps), with its size within `nameplate_band`
+    /// of theirs. A one-power entry gives a nameplate, not what the
+    /// appliance draws (a washer's heater step is not its entry's total; a
+    /// kettle draws with the square of the voltage), so only its size tells
+    /// it, and two entries of about one size account for the steps alike.
+    fn lookalike_doubt(&self, j: usize, found: &str, size: f64, steps: &[usize]) -> Option<String> {
+        let th = self.th;
+        let mine = wiring_names(&self.placed[j]);
+        (0..self.placed.len()).filter(|&y| y != j).find_map(|y| {
+            let b = &self.placed[y];
+            let own = wiring_names(b);
+            if !one_power(b) || b.steps.jumps().is_empty() || same_wiring_name(&own, found) {
+                return None;
+            }
+            let (_, there) = alternatives(self.d, b)
+                .into_iter()
+                .find(|(n, _)| same_wiring_name(n, found))?;
+            if kind_of(b, &there) != Kind::WrongLine {
+                return None;
+            }
+            let w = there.largest_step_w();
+            let why = if own == mine && 2 * self.fitting(&there, steps) >= steps.len() {
+                format!("{} is declared with it on {own} and fits them as well, so either may be the one on {found}", b.id)
+            } else if (w - size).abs() <= th.nameplate_band * w
+                && self.excl(y, &self.sigs[y]).0 < th.seen_where_declared
+            {
+                format!("{} was not seen switching where declared either and has about their size there ({w:.0} W)", b.id)
+            } else {
+                return None;
+            };
+            Some(format!("{why}, declared by one power only: the steps may be its own"))
+        })
+    }
+
+    /// How many of `steps` fit appliance `b` as wired.
+    fn fitting(&self, b: &DeclAppliance, steps: &[usize]) -> usize {
+        let sg = Pred::of(self.d, self.m, b);
+        steps
+            .iter()
+            .filter(|&&k| sg.dist(self.d, self.m, self.used[k], &self.cxs[k]) <= 1.0)
+            .count()
+    }
+
     /// Appliance `j` (as placed, `a`; wired `declared`) weighed as declared
     /// against its best other wiring.
     fn weigh(
@@ -491,6 +573,9 @@ impl Round<'_> {
             // exchanged that the metering checks had too little to find.
             if (d.partial || one_power(a)) && f.doubt.is_none() {
                 f.doubt = self.exchange_doubt(j, a, &alt);
+            }
+            if one_power(a) && f.doubt.is_none() && f.kind == Kind::WrongLine {
+                f.doubt = self.lookalike_doubt(j, &name_a, alt.largest_step_w(), &all_a);
             }
             // Steps far beyond its habit are another load's: left to the
             // undeclared loads, not a move.
@@ -583,7 +668,7 @@ pub(super) fn place(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::audit::check::testkit::{on_off, split_phase};
+    use crate::audit::check::testkit::{on_off, split_phase, H};
 
     /// The fault-matrix case the rule was made for (10 s): a hair dryer's
     /// half-heat step 0.22 tolerances from its own and 0.81 from a
@@ -595,6 +680,149 @@ mod tests {
         assert!(shares(0.35, 0.39, th));
         assert!(shares(0.9, 0.2, th));
         assert!(!shares(0.2, 1.05, th));
+    }
+
+    /// Steps on line `on` (of `lines`): `n` runs of `w` W, an hour apart,
+    /// each stopping ten minutes after it starts, at 1 s.
+    fn runs_on(lines: usize, on: usize, w: f64, n: i64, at: i64) -> Vec<Event> {
+        use crate::audit::check::testkit::H;
+        let v = if lines == 3 { 230.0 } else { 120.0 };
+        let step = |t: i64, p: f64| {
+            let mut delta = vec![C64::ZERO; lines];
+            delta[on] = C64::new(p, 0.0);
+            Event {
+                time_ms: t,
+                delta,
+                before: vec![C64::new(200.0, 0.0); lines],
+                v_before: vec![v; lines],
+                v_after: vec![v; lines],
+                se: vec![1.0; lines],
+            }
+        };
+        (0..n)
+            .flat_map(|i| [step(at + i * H, w), step(at + i * H + H / 6, -w)])
+            .collect()
+    }
+
+    /// A day of 1 s rows on `lines` channels, for the metering checks.
+    fn day_stats(lines: usize) -> Vec<crate::audit::events::ChannelStats> {
+        vec![
+            crate::audit::events::ChannelStats {
+                rows: 86_400,
+                null: 0,
+                zero: 0,
+                sum_p: 200.0 * 86_400.0,
+                negative: vec![[0, 86_400]; lines],
+                ..Default::default()
+            };
+            lines
+        ]
+    }
+
+    /// A heat pump's compressor switched at two inputs the outdoor
+    /// temperature gives it (0.8 and 1 of 2 kW, on and off at each): one
+    /// step size the weather picks, so its jumps make one group; a
+    /// modulating load starting at full power and stopping from 40 % makes
+    /// two steps, each seen every run.
+    #[test]
+    fn a_steps_sizes_at_the_weathers_inputs_count_as_one() {
+        use crate::audit::decl::Steps;
+        let d = split_phase(vec![]);
+        let mut hp = on_off("heat_pump", 0, C64::new(2000.0, 0.0));
+        hp.steps = Steps::Jumps(vec![
+            (0, 1, 0.8, 1.0),
+            (1, 0, 1.0, 0.8),
+            (0, 1, 1.0, 1.0),
+            (1, 0, 1.0, 1.0),
+        ]);
+        assert_eq!(step_groups(&d, &hp), [0, 0]);
+        let mut ev = on_off("ev", 0, C64::new(2000.0, 0.0));
+        ev.steps = Steps::Jumps(vec![(0, 1, 1.0, 1.0), (1, 0, 1.0, 0.4)]);
+        assert_eq!(step_groups(&d, &ev), [0, 1]);
+        assert_eq!(
+            step_groups(&d, &on_off("kettle", 0, C64::new(1500.0, 0.0))),
+            [0]
+        );
+    }
+
+    /// Placement stage, at 1 s: the heat pump above, declared on L1-N,
+    /// switches four times on L2-N at 1.6 kW (0.8 of its input, a mild
+    /// day) and never at 2 kW: it is on L2-N, although its 2 kW step never
+    /// shows (the weather did not ask for it).
+    #[test]
+    fn a_heat_pump_is_placed_by_the_input_the_weather_gave_it() {
+        use crate::audit::check::check;
+        use crate::audit::decl::Steps;
+        let mut hp = on_off("heat_pump", 0, C64::new(2000.0, 0.0));
+        hp.steps = Steps::Jumps(vec![
+            (0, 1, 0.8, 1.0),
+            (1, 0, 1.0, 0.8),
+            (0, 1, 1.0, 1.0),
+            (1, 0, 1.0, 1.0),
+        ]);
+        let d = split_phase(vec![hp]);
+        let o = check(&d, &runs_on(2, 1, 1600.0, 4, 0), &day_stats(2), 1.0);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(found, ["heat_pump"], "{:?} {:?}", o.possible, o.appliances);
+    }
+
+    /// Placement stage, at 1 s: a 1500 W kettle and a 1450 W microwave,
+    /// each declared by one power on L1-N; 1450 W steps show on L1-N and
+    /// 1500 W steps on L2-N. Either may be the one on L2-N (the microwave
+    /// fits those steps too), so the kettle's move is only possible. Beside
+    /// a 1165 W dishwasher instead, a fifth and more away, it is certain.
+    #[test]
+    fn a_move_a_lookalike_declared_with_it_accounts_for_is_only_possible() {
+        use crate::audit::check::check;
+        let kettle = on_off("kettle", 0, C64::new(1500.0, 0.0));
+        let mut events = runs_on(2, 1, 1500.0, 4, 0);
+        events.extend(runs_on(2, 0, 1450.0, 4, H / 2));
+        let d = split_phase(vec![
+            kettle.clone(),
+            on_off("microwave", 0, C64::new(1450.0, 0.0)),
+        ]);
+        let o = check(&d, &events, &day_stats(2), 1.0);
+        assert!(o.findings.is_empty(), "{:?}", o.findings);
+        let moved = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
+        assert!(
+            moved.doubt.as_ref().unwrap().contains("either may be"),
+            "{moved:?}"
+        );
+        let d = split_phase(vec![kettle, on_off("dishwasher", 0, C64::new(1165.0, 0.0))]);
+        let o = check(&d, &runs_on(2, 1, 1500.0, 4, 0), &day_stats(2), 1.0);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(found, ["kettle"], "{:?}", o.possible);
+    }
+
+    /// Placement stage, three-phase at 1 s: a 2 kW kettle declared on
+    /// L1-N switches four times on L2-N. A 2.1 kW washer declared on L3-N
+    /// by one power, not seen there, may be what switches on L2-N (drawing
+    /// 5 % under its nameplate), so the move is only possible; once the
+    /// washer shows where declared, the move is certain.
+    #[test]
+    fn a_move_an_unseen_lookalike_accounts_for_is_only_possible() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::three_phase;
+        let d = three_phase(vec![
+            on_off("kettle", 0, C64::new(2000.0, 0.0)),
+            on_off("washer", 2, C64::new(2100.0, 0.0)),
+        ]);
+        let mut events = runs_on(3, 1, 2000.0, 4, 0);
+        let o = check(&d, &events, &day_stats(3), 1.0);
+        assert!(o.findings.is_empty(), "{:?}", o.findings);
+        let moved = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
+        assert!(
+            moved
+                .doubt
+                .as_ref()
+                .unwrap()
+                .contains("washer was not seen"),
+            "{moved:?}"
+        );
+        events.extend(runs_on(3, 2, 2100.0, 3, H / 2));
+        let o = check(&d, &events, &day_stats(3), 1.0);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(found, ["kettle"], "{:?}", o.possible);
     }
 
     /// Placement stage: a 1 kW, 240 V heater declared on L1-N is taken at

@@ -102,6 +102,15 @@ pub struct Thresholds {
     /// on before its next start; three of them hardly (common practice, no
     /// source).
     pub overlap_runs: usize,
+    /// Share of a one-power entry's size within which a load may be that
+    /// entry drawing other than its nameplate: an entry gives one power, the
+    /// nameplate (an appliance's total, or a rating at another voltage),
+    /// while its steps are what it draws (a washer's heater alone, a
+    /// compressor at the input the weather gives it). A load within this of
+    /// an entry not seen switching where declared is only possibly another
+    /// load, and so is a one-power appliance's move when another such entry
+    /// has about the size of the steps (common practice, no source).
+    pub nameplate_band: f64,
 }
 
 impl Thresholds {
@@ -123,6 +132,7 @@ impl Thresholds {
         dispute_ratio: 2.0,
         dispute_apps: 2,
         overlap_runs: 3,
+        nameplate_band: 0.2,
     };
 }
 
@@ -153,7 +163,7 @@ impl Cutoff {
 }
 
 /// Every cut-off of [`Thresholds`], in the order of its fields.
-pub const CUTOFFS: [Cutoff; 16] = [
+pub const CUTOFFS: [Cutoff; 17] = [
     Cutoff {
         name: "possible",
         meaning: "confidence below which a finding is listed apart as possible",
@@ -281,6 +291,14 @@ pub const CUTOFFS: [Cutoff; 16] = [
         count: true,
         get: |t| t.overlap_runs as f64,
         set: |t, v| t.overlap_runs = v as usize,
+    },
+    Cutoff {
+        name: "nameplate_band",
+        meaning: "share of a one-power entry's size within which a load may be that entry drawing other than its nameplate (an undeclared load near an entry not seen where declared, or a move another such entry has the size of, is only possible)",
+        range: (0.0, 1.0),
+        count: false,
+        get: |t| t.nameplate_band,
+        set: |t, v| t.nameplate_band = v,
     },
 ];
 

@@ -508,13 +508,23 @@ impl UndeclaredStage<'_> {
             if !one_power(a) {
                 continue;
             }
+            // A rated entry's size on another connection is its nameplate
+            // scaled by a voltage law the entry does not give (a compressor
+            // across two lines of a 208 V supply does not draw (208/240)²
+            // of its 240 V nameplate): it is known within `nameplate_band`.
+            let band = |alt: &DeclAppliance, size: f64| {
+                let rated = alt.states.iter().flatten().any(|x| x.rated_v.is_some());
+                let share = if rated { self.th.nameplate_band } else { 0.0 };
+                tol(p).max(share * size)
+            };
             if ck.verdict == Verdict::Undecidable && ck.steps_declared < 2 {
                 let own = (wiring_names(a), a.clone());
                 let like =
                     std::iter::once(own)
                         .chain(alternatives(self.d, a))
                         .find(|(name, alt)| {
-                            same_wiring_name(name, w) && (alt.largest_step_w() - p).abs() <= tol(p)
+                            let size = alt.largest_step_w();
+                            same_wiring_name(name, w) && (size - p).abs() <= band(alt, size)
                         });
                 if let Some((name, _)) = like {
                     return Some(format!("it has the size of {} on {name}, which was not seen switching where declared: either {} is wired on {name} (or draws other than declared), or this is another load", a.id, a.id));
@@ -524,7 +534,9 @@ impl UndeclaredStage<'_> {
                 continue;
             }
             let size = a.largest_step_w();
-            if (size - p).abs() <= 0.2 * size && ck.steps_declared < self.th.seen_where_declared {
+            if (size - p).abs() <= self.th.nameplate_band * size
+                && ck.steps_declared < self.th.seen_where_declared
+            {
                 return Some(format!("it is within a fifth of the size of {} ({size:.0} W on the same connection, declared by one power only, not seen switching at that size): it may be {} drawing other than its nameplate", a.id, a.id));
             }
             if size > 1.2 * p && !self.runs_apart(c, a, ck.steps_declared) {
@@ -770,6 +782,66 @@ mod tests {
         let why = stage.doubt(&cluster(2250.0)).unwrap();
         assert!(why.contains("water_heater wired on L1-L2"), "{why}");
         assert_eq!(stage.doubt(&cluster(1500.0)), None);
+    }
+
+    /// A 2.1 kW, 240 V heat pump declared by one power on L1-N (taken at a
+    /// quarter of that there), not seen: a load of 1.8 kW across L1-L2 is
+    /// within a fifth of its 2.1 kW there (a compressor's input follows
+    /// the weather, and its rating at 240 V says little of the law it draws
+    /// by elsewhere), so it is only possible; 1.5 kW is not its size. An
+    /// entry with no rated voltage gives its power as it draws it, known
+    /// within the tolerance only.
+    #[test]
+    fn a_load_near_a_rated_entrys_size_on_another_connection_is_only_possible() {
+        let hp = |rated: Option<f64>| {
+            let mut a = on_off("heat_pump", 0, C64::new(2100.0 * 0.25, 0.0));
+            a.states[1][0].rated_v = rated;
+            a.states[1][0].zip_p = crate::contract::Zip {
+                z: 1.0,
+                i: 0.0,
+                p: 0.0,
+            };
+            a
+        };
+        let checks = [ApplianceCheck {
+            id: "heat_pump".into(),
+            declared: "L1-N".into(),
+            verdict: Verdict::Undecidable,
+            seen: None,
+            reason: String::new(),
+            steps_declared: 0,
+            steps_best_other: 0,
+        }];
+        let cluster = |w: f64| Cluster {
+            wiring: "L1-L2".into(),
+            v: vec![C64::new(w / 2.0, 0.0); 2],
+            s: C64::new(w, 0.0),
+            on: vec![0, 2 * H],
+            off: vec![H / 4, 2 * H + H / 4],
+        };
+        let doubt = |d: &Declared, w: f64| {
+            let m = declared_metering(d, &[false, false]);
+            let stage = UndeclaredStage {
+                d,
+                m: &m,
+                events: &[],
+                cxs: &[],
+                explained: &[],
+                sums: &[],
+                total_wh: 1e4,
+                placed: &d.appliances,
+                checks: &checks,
+                interval_s: 1.0,
+                th: &Thresholds::STANDARD,
+            };
+            stage.doubt(&cluster(w))
+        };
+        let d = split_phase(vec![hp(Some(240.0))]);
+        let why = doubt(&d, 1800.0).unwrap();
+        assert!(why.contains("heat_pump on L1-L2"), "{why}");
+        assert_eq!(doubt(&d, 1500.0), None);
+        let d = split_phase(vec![hp(None)]);
+        assert_eq!(doubt(&d, 1800.0), None);
     }
 
     /// At 1 min with real power only, a 1.5 kW heater declared across
