@@ -5,7 +5,7 @@
 use super::finding::{coarse_doubt, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict};
 use super::fit::{
     connection_of, dist_delta, distances, fits, poisson_tail, predicted, shape_of, tol, Ctx, Pred,
-    USE_STEP,
+    TOL_ABS_V_W, TOL_REL_V, USE_STEP,
 };
 use super::hypothesis::{alternatives, wiring_names, Metering};
 use super::placement::one_power;
@@ -458,6 +458,46 @@ impl UndeclaredStage<'_> {
         )
     }
 
+    /// Why the size of one-power appliance `a` (checked `ck`), on the
+    /// connection of cluster `c`, may not be what it draws there, if so: it
+    /// was not seen switching at that size (fewer than
+    /// `seen_where_declared` steps); it is rated at a voltage its connection
+    /// does not have (beyond the relative tolerance), so its size there is
+    /// its nameplate scaled by a voltage law the entry does not give (a
+    /// compressor's input follows the weather, not V²); or it draws
+    /// reactive power (a motor or a power supply, whose input is what its
+    /// load asks, where a resistance's is set by the voltage) and the
+    /// cluster, beyond the tolerance steps are fitted by (20 W + 3 %), does
+    /// not run apart from it (an
+    /// appliance's steps at sizes its entry does not give come while it
+    /// runs; a load within the tolerance of its size is told by drawing
+    /// twice its power, as the overlap runs count).
+    fn unsure_size(
+        &self,
+        c: &Cluster,
+        a: &DeclAppliance,
+        ck: &ApplianceCheck,
+    ) -> Option<&'static str> {
+        let supply = &self.d.supply;
+        let rated_away = a.states.iter().flatten().any(|x| {
+            x.rated_v
+                .is_some_and(|r| (supply.nominal_across(x.wiring) / r - 1.0).abs() > TOL_REL_V)
+        });
+        let reactive = a.states.iter().flatten().any(|x| x.s.im != 0.0);
+        if ck.steps_declared < self.th.seen_where_declared {
+            Some("not seen switching at that size")
+        } else if rated_away {
+            Some("rated at another voltage than its connection's")
+        } else if reactive
+            && (a.largest_step_w() - c.s.re).abs() > TOL_ABS_V_W + TOL_REL_V * c.s.re
+            && !self.runs_apart(c, a, ck.steps_declared)
+        {
+            Some("running when it runs")
+        } else {
+            None
+        }
+    }
+
     /// Why cluster `c` may be a declared appliance of one step size not seen
     /// where declared (undecidable, fewer than `seen_where_declared` steps
     /// there) on another
@@ -534,10 +574,10 @@ impl UndeclaredStage<'_> {
                 continue;
             }
             let size = a.largest_step_w();
-            if (size - p).abs() <= self.th.nameplate_band * size
-                && ck.steps_declared < self.th.seen_where_declared
-            {
-                return Some(format!("it is within a fifth of the size of {} ({size:.0} W on the same connection, declared by one power only, not seen switching at that size): it may be {} drawing other than its nameplate", a.id, a.id));
+            if (size - p).abs() <= self.th.nameplate_band * size {
+                if let Some(how) = self.unsure_size(c, a, ck) {
+                    return Some(format!("it is within {:.0} % of the size of {} ({size:.0} W on the same connection, declared by one power only, {how}): it may be {} drawing other than its nameplate", 100.0 * self.th.nameplate_band, a.id, a.id));
+                }
             }
             if size > 1.2 * p && !self.runs_apart(c, a, ck.steps_declared) {
                 return Some(format!("it is smaller than {} ({size:.0} W on the same connection, declared by one power only): it may be one of its elements or a lower setting", a.id));
@@ -720,7 +760,11 @@ mod tests {
         let d = split_phase(vec![on_off("oven", 0, C64::new(1300.0, 0.0))]);
         let o = check(&d, &runs(12, 1100.0, 0), &stats, 10.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
-        assert!(o.possible[0].doubt.as_ref().unwrap().contains("a fifth"));
+        assert!(o.possible[0]
+            .doubt
+            .as_ref()
+            .unwrap()
+            .contains("within 20 %"));
         let mut d = split_phase(vec![on_off("heater", 0, C64::new(1000.0, 0.0))]);
         d.real_only = true;
         let mut events = runs(12, 1600.0, 0);
@@ -842,6 +886,83 @@ mod tests {
         assert_eq!(doubt(&d, 1500.0), None);
         let d = split_phase(vec![hp(None)]);
         assert_eq!(doubt(&d, 1800.0), None);
+    }
+
+    /// A one-power entry seen six times where declared, across L1-L2 of a
+    /// 120/208 V supply: a load within a fifth of its size there is only
+    /// possible when the entry is rated at 240 V (its size at 208 V is its
+    /// nameplate scaled by a law the entry does not give), or when it draws
+    /// reactive power (a compressor) and the load runs no more often than
+    /// it switches (not apart from it); not so beside a resistance. An
+    /// unrated entry's load that runs apart from it, more often, stays a
+    /// finding, and so does one within the fit tolerance of the entry's
+    /// size (drawing twice its power decides that, as overlap runs).
+    #[test]
+    fn a_load_near_a_seen_entrys_size_is_only_possible_when_its_size_is_unsure() {
+        use crate::audit::check::testkit::three_phase;
+        let entry = |rated: Option<f64>, q: f64| {
+            let mut a = crate::audit::check::testkit::on_off_wired(
+                "heat_pump",
+                Wiring::LineLine(0, 1),
+                C64::new(1577.0, q),
+            );
+            a.states[1][0].rated_v = rated;
+            a
+        };
+        let checks = [ApplianceCheck {
+            id: "heat_pump".into(),
+            declared: "L1-L2".into(),
+            verdict: Verdict::AsDeclared,
+            seen: None,
+            reason: String::new(),
+            steps_declared: 6,
+            steps_best_other: 0,
+        }];
+        let cluster = |w: f64, runs: i64| Cluster {
+            wiring: "L1-L2".into(),
+            v: vec![C64::new(w / 2.0, 0.0), C64::new(w / 2.0, 0.0), C64::ZERO],
+            s: C64::new(w, 0.0),
+            on: (0..runs).map(|i| i * H).collect(),
+            off: (0..runs).map(|i| i * H + H / 4).collect(),
+        };
+        let doubt = |d: &Declared, c: Cluster| {
+            let m = declared_metering(d, &[false, false, false]);
+            let stage = UndeclaredStage {
+                d,
+                m: &m,
+                events: &[],
+                cxs: &[],
+                explained: &[],
+                sums: &[],
+                total_wh: 1e4,
+                placed: &d.appliances,
+                checks: &checks,
+                interval_s: 1.0,
+                th: &Thresholds::STANDARD,
+            };
+            stage.doubt(&c)
+        };
+        let mut d = three_phase(vec![entry(Some(240.0), 0.0)]);
+        d.supply.voltage_v = 120.0;
+        let why = doubt(&d, cluster(1769.0, 20)).unwrap();
+        assert!(why.contains("rated at another voltage"), "{why}");
+        let mut d = three_phase(vec![entry(None, 518.0)]);
+        d.supply.voltage_v = 120.0;
+        assert_eq!(
+            doubt(&d, cluster(1769.0, 20)),
+            None,
+            "apart, and more often"
+        );
+        let why = doubt(&d, cluster(1769.0, 4)).unwrap();
+        assert!(why.contains("running when it runs"), "{why}");
+        assert_eq!(
+            doubt(&d, cluster(1600.0, 4)),
+            None,
+            "within the fit tolerance"
+        );
+        let mut d = three_phase(vec![entry(None, 0.0)]);
+        d.supply.voltage_v = 120.0;
+        assert_eq!(doubt(&d, cluster(1769.0, 4)), None, "a resistance");
     }
 
     /// At 1 min with real power only, a 1.5 kW heater declared across
