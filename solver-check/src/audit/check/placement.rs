@@ -609,6 +609,38 @@ impl Round<'_> {
     }
 }
 
+/// The lines an appliance drawn from one line to neutral moves between
+/// (from, to), if `alt` is it drawn from another line to neutral.
+fn line_move(a: &DeclAppliance, alt: &DeclAppliance) -> Option<(usize, usize)> {
+    match (a.wirings().as_slice(), alt.wirings().as_slice()) {
+        ([Wiring::LineNeutral(x)], [Wiring::LineNeutral(y)]) if x != y => Some((*x, *y)),
+        _ => None,
+    }
+}
+
+/// Records move `new` (its finding's index, and from and to which line)
+/// among `moves`, and doubts it and an earlier one the other way between
+/// the same two lines: two channels exchanged (or their CTs) move every
+/// appliance of both lines, one mistake where two moves are two, and the
+/// metering checks may have missed it when lookalikes on the two lines
+/// speak for the declared metering.
+fn swapped_moves(
+    moves: &mut Vec<(usize, (usize, usize))>,
+    findings: &mut [Finding],
+    new: (usize, (usize, usize)),
+) {
+    let (k, (from, to)) = new;
+    if let Some(&(i, _)) = moves.iter().find(|(_, w)| *w == (to, from)) {
+        let why = |other: &Finding, (x, y): (usize, usize)| {
+            format!("{} moved the other way, from L{}-N to L{}-N: channels l{} and l{} exchanged (or their CTs) would account for both, one mistake rather than two", other.subject, x + 1, y + 1, from.min(to) + 1, from.max(to) + 1)
+        };
+        let (a, b) = (why(&findings[k], (from, to)), why(&findings[i], (to, from)));
+        findings[i].doubt.get_or_insert(a);
+        findings[k].doubt.get_or_insert(b);
+    }
+    moves.push(new);
+}
+
 /// Places every appliance: its wiring as declared, or another one the
 /// steps support much better. Greedy: the best-supported finding is taken
 /// first and the appliance moved before the others are weighed again, so
@@ -630,6 +662,7 @@ pub(super) fn place(
         .collect();
     let mut placed: Vec<DeclAppliance> = d.appliances.clone();
     let mut moved = vec![false; placed.len()];
+    let mut moves: Vec<(usize, (usize, usize))> = Vec::new();
     loop {
         let sigs: Vec<Pred> = placed.iter().map(|a| Pred::of(d, m, a)).collect();
         let shapes: Vec<Option<Vec<Option<C64>>>> =
@@ -656,9 +689,14 @@ pub(super) fn place(
         }
         match contest(candidates) {
             Some((j, _, alt, f, ..)) => {
+                let way = line_move(&placed[j], &alt);
                 placed[j] = alt;
                 moved[j] = true;
                 findings.push(f);
+                if let Some(w) = way {
+                    let k = findings.len() - 1;
+                    swapped_moves(&mut moves, findings, (k, w));
+                }
             }
             None => return (checks, placed),
         }
@@ -823,6 +861,40 @@ mod tests {
         let o = check(&d, &events, &day_stats(3), 1.0);
         let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(found, ["kettle"], "{:?}", o.possible);
+    }
+
+    /// Placement stage: a fridge moved from L1-N to L2-N, then a kettle from
+    /// L2-N to L1-N, are one mistake (two channels exchanged) as likely as
+    /// two: both moves are only possible, each naming the other. A third
+    /// move, from L1-N to L3-N, has no move the other way and stays.
+    #[test]
+    fn two_moves_the_opposite_ways_between_two_lines_are_an_exchange() {
+        let f = |who: &str| Finding {
+            kind: Kind::WrongLine,
+            subject: who.into(),
+            message: String::new(),
+            confidence: 0.9,
+            evidence: json!({}),
+            doubt: None,
+        };
+        let mut findings = vec![f("fridge"), f("kettle"), f("dryer")];
+        let mut moves = Vec::new();
+        swapped_moves(&mut moves, &mut findings, (0, (0, 1)));
+        assert!(findings[0].doubt.is_none(), "one move alone");
+        swapped_moves(&mut moves, &mut findings, (1, (1, 0)));
+        swapped_moves(&mut moves, &mut findings, (2, (0, 2)));
+        let why = findings[0].doubt.as_deref().unwrap();
+        assert!(
+            why.starts_with("kettle moved the other way, from L2-N to L1-N"),
+            "{why}"
+        );
+        assert!(why.contains("channels l1 and l2 exchanged"), "{why}");
+        let why = findings[1].doubt.as_deref().unwrap();
+        assert!(
+            why.starts_with("fridge moved the other way, from L1-N to L2-N"),
+            "{why}"
+        );
+        assert!(findings[2].doubt.is_none());
     }
 
     /// Placement stage: a 1 kW, 240 V heater declared on L1-N is taken at
