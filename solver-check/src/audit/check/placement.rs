@@ -491,45 +491,98 @@ impl Round<'_> {
         })
     }
 
-    /// Why the steps of a one-power appliance `j` moved from one line to
-    /// another (to `found`, `size` W there; `steps`, those that fit it
-    /// there) may be another one-power appliance's, one that could be on
-    /// `found` by a move of the same kind (line to line, at the same
-    /// voltage): one declared with `j` that fits half of those steps or
-    /// more (either of the two may be the one on `found`), or one declared
-    /// elsewhere, not seen switching there either (fewer than
-    /// `seen_where_declared` steps), with its size within `nameplate_band`
-    /// of theirs. A one-power entry gives a nameplate, not what the
-    /// appliance draws (a washer's heater step is not its entry's total; a
-    /// kettle draws with the square of the voltage), so only its size tells
-    /// it, and two entries of about one size account for the steps alike.
-    fn lookalike_doubt(&self, j: usize, found: &str, size: f64, steps: &[usize]) -> Option<String> {
-        let th = self.th;
-        let mine = wiring_names(&self.placed[j]);
+    /// Why the steps of a one-power appliance `j` moved to `found` (`size`
+    /// W there; `steps`, those that fit it there) may be another one-power
+    /// appliance's: one declared on `found`, not seen switching there
+    /// (fewer than `seen_where_declared` steps), with its size within
+    /// `nameplate_band` of theirs (it is there, drawing other than its
+    /// nameplate: no mistake at all); or, for a move from one line to
+    /// another (`line_to_line`), one that could be on `found` by a move of
+    /// that kind (at the same voltage): declared with `j` and fitting half
+    /// of those steps or more (either of the two may be the one on
+    /// `found`), or declared elsewhere, not seen switching there either,
+    /// with its size within `nameplate_band` of theirs. A one-power entry
+    /// gives a nameplate, not what the appliance draws (a washer's heater
+    /// step is not its entry's total; a kettle draws with the square of the
+    /// voltage; a heat pump's input follows the weather), so only its size
+    /// tells it, and entries of about one size account for the steps alike.
+    fn lookalike_doubt(
+        &self,
+        j: usize,
+        found: &str,
+        size: f64,
+        steps: &[usize],
+        line_to_line: bool,
+    ) -> Option<String> {
         (0..self.placed.len()).filter(|&y| y != j).find_map(|y| {
             let b = &self.placed[y];
-            let own = wiring_names(b);
-            if !one_power(b) || b.steps.jumps().is_empty() || same_wiring_name(&own, found) {
+            if !one_power(b) || b.steps.jumps().is_empty() {
                 return None;
             }
-            let (_, there) = alternatives(self.d, b)
-                .into_iter()
-                .find(|(n, _)| same_wiring_name(n, found))?;
-            if kind_of(b, &there) != Kind::WrongLine {
-                return None;
-            }
-            let w = there.largest_step_w();
-            let why = if own == mine && 2 * self.fitting(&there, steps) >= steps.len() {
-                format!("{} is declared with it on {own} and fits them as well, so either may be the one on {found}", b.id)
-            } else if (w - size).abs() <= th.nameplate_band * w
-                && self.excl(y, &self.sigs[y]).0 < th.seen_where_declared
-            {
-                format!("{} was not seen switching where declared either and has about their size there ({w:.0} W)", b.id)
+            let why = if same_wiring_name(&wiring_names(b), found) {
+                self.unseen_there(y, size, found, steps)
+            } else if line_to_line {
+                self.moved_lookalike(j, y, found, size, steps)
             } else {
-                return None;
-            };
-            Some(format!("{why}, declared by one power only: the steps may be its own"))
+                None
+            }?;
+            Some(format!(
+                "{why}, declared by one power only: the steps may be its own"
+            ))
         })
+    }
+
+    /// Whether appliance `y`, declared on `found`, accounts for the steps
+    /// there (`size` W, `steps`) as they are: it fits half of them or more,
+    /// or it was not seen switching there and has about their size.
+    fn unseen_there(&self, y: usize, size: f64, found: &str, steps: &[usize]) -> Option<String> {
+        let b = &self.placed[y];
+        let w = b.largest_step_w();
+        if 2 * self.fitting(b, steps) >= steps.len() {
+            Some(format!(
+                "{} is declared on {found} and fits them as well",
+                b.id
+            ))
+        } else if (w - size).abs() <= self.th.nameplate_band * w
+            && self.excl(y, &self.sigs[y]).0 < self.th.seen_where_declared
+        {
+            Some(format!("{} is declared on {found}, was not seen switching there and has about their size ({w:.0} W)", b.id))
+        } else {
+            None
+        }
+    }
+
+    /// Whether appliance `y` could be the one whose steps on `found` (`size`
+    /// W, `steps`) are taken for appliance `j` moved there from one line to
+    /// another: moved there by a move of that kind, declared with `j` and
+    /// fitting half of the steps or more, or not seen where declared and
+    /// within `nameplate_band` of their size.
+    fn moved_lookalike(
+        &self,
+        j: usize,
+        y: usize,
+        found: &str,
+        size: f64,
+        steps: &[usize],
+    ) -> Option<String> {
+        let b = &self.placed[y];
+        let own = wiring_names(b);
+        let (_, there) = alternatives(self.d, b)
+            .into_iter()
+            .find(|(n, _)| same_wiring_name(n, found))?;
+        if kind_of(b, &there) != Kind::WrongLine {
+            return None;
+        }
+        let w = there.largest_step_w();
+        if own == wiring_names(&self.placed[j]) && 2 * self.fitting(&there, steps) >= steps.len() {
+            Some(format!("{} is declared with it on {own} and fits them as well, so either may be the one on {found}", b.id))
+        } else if (w - size).abs() <= self.th.nameplate_band * w
+            && self.excl(y, &self.sigs[y]).0 < self.th.seen_where_declared
+        {
+            Some(format!("{} was not seen switching where declared either and has about their size there ({w:.0} W)", b.id))
+        } else {
+            None
+        }
     }
 
     /// How many of `steps` fit appliance `b` as wired.
@@ -574,8 +627,10 @@ impl Round<'_> {
             if (d.partial || one_power(a)) && f.doubt.is_none() {
                 f.doubt = self.exchange_doubt(j, a, &alt);
             }
-            if one_power(a) && f.doubt.is_none() && f.kind == Kind::WrongLine {
-                f.doubt = self.lookalike_doubt(j, &name_a, alt.largest_step_w(), &all_a);
+            if one_power(a) && f.doubt.is_none() {
+                let line_to_line = f.kind == Kind::WrongLine;
+                let size = alt.largest_step_w();
+                f.doubt = self.lookalike_doubt(j, &name_a, size, &all_a, line_to_line);
             }
             // Steps far beyond its habit are another load's: left to the
             // undeclared loads, not a move.
@@ -895,6 +950,28 @@ mod tests {
             "{why}"
         );
         assert!(findings[2].doubt.is_none());
+    }
+
+    /// Placement stage, at 1 s: a 1500 W kettle declared on L1-N, a
+    /// 1450 W heater on L2-N, each by one power; 1500 W steps show on L2-N
+    /// only. They fit the kettle better, but the heater, declared there,
+    /// fits them too (50 W off, within the tolerance): no mistake at all
+    /// accounts for them, so the kettle's move is only possible.
+    #[test]
+    fn a_move_onto_a_lookalike_declared_there_is_only_possible() {
+        use crate::audit::check::check;
+        let d = split_phase(vec![
+            on_off("kettle", 0, C64::new(1500.0, 0.0)),
+            on_off("heater", 1, C64::new(1450.0, 0.0)),
+        ]);
+        let o = check(&d, &runs_on(2, 1, 1500.0, 4, 0), &day_stats(2), 1.0);
+        assert!(o.findings.is_empty(), "{:?}", o.findings);
+        let moved = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
+        let why = moved.doubt.as_deref().unwrap();
+        assert!(
+            why.contains("heater is declared on L2-N and fits them as well"),
+            "{why}"
+        );
     }
 
     /// Placement stage: a 1 kW, 240 V heater declared on L1-N is taken at
