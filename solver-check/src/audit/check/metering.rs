@@ -478,6 +478,11 @@ pub(super) fn choose_metering(
     } else {
         chosen
     };
+    let chosen = if chosen == decl_i {
+        chosen
+    } else {
+        simplest_renaming(d, &hyps, &scored, chosen, th)
+    };
     MeteringChoice {
         hyps,
         scored,
@@ -485,6 +490,56 @@ pub(super) fn choose_metering(
         decl_i,
         chosen,
     }
+}
+
+/// Whether meterings `a` and `b` read the same channels by the same
+/// factors, from conductors that differ only by their names: with the
+/// conductors renamed one to one, `b` is `a`.
+pub(super) fn renamed(d: &Declared, a: &Metering, b: &Metering) -> bool {
+    let n = a.map.len();
+    let mut to: Vec<Option<usize>> = vec![None; n];
+    let mut from: Vec<Option<usize>> = vec![None; n];
+    (0..n).filter(|&c| !a.absent[c]).all(|c| {
+        let (x, y) = (a.map[c].src, b.map[c].src);
+        let one_to_one = to[x].unwrap_or(y) == y && from[y].unwrap_or(x) == x;
+        to[x] = Some(y);
+        from[y] = Some(x);
+        one_to_one && b.absent[c] == a.absent[c] && (a.factor(d, c) - b.factor(d, c)).abs() < 1e-9
+    })
+}
+
+/// Among the admissible renamings of metering `chosen` ([`renamed`]: the
+/// same channels reading alike, the conductors named otherwise), the one
+/// supposing fewest changes against the declaration, when it explains 90 %
+/// of the steps `chosen` does (the bar at which the declared metering
+/// stands against the best, [`best_admissible`]) or fits as many
+/// appliances (a busy one on the disputed line may explain many steps
+/// alone), and the declared
+/// appliances' evidence does not clearly favour `chosen`
+/// ([`Dispute::favours_found`]). Two CTs on one conductor read the same
+/// whichever conductor that is, save for its 120 V loads: where appliances
+/// of about one size sit on both lines, those alone cannot name it, and
+/// the account with fewer mistakes is the simpler one (common practice, no
+/// source).
+fn simplest_renaming(
+    d: &Declared,
+    hyps: &[(Metering, usize)],
+    scored: &[Scored],
+    chosen: usize,
+    th: &Thresholds,
+) -> usize {
+    let ch = &scored[chosen];
+    scored
+        .iter()
+        .filter(|s| {
+            s.cost < ch.cost
+                && s.admissible(th)
+                && (s.ex as f64 >= 0.9 * ch.ex as f64 || s.apps >= ch.apps)
+                && renamed(d, &hyps[chosen].0, &hyps[s.i].0)
+                && !dispute(ch, s, th).favours_found(th)
+        })
+        .min_by_key(|s| (s.cost, usize::MAX - s.ex))
+        .map_or(chosen, |s| s.i)
 }
 
 /// The confidence that the metering found (`ch`) and not the declared one
@@ -892,6 +947,77 @@ mod tests {
         // A PV array alone exports by day only: the dark hours judge.
         d.generation[0].follows_home = false;
         assert!(mirror_doubt(&d, &mc, cts, th).is_none());
+    }
+
+    /// Both CTs on L1 (l2's turned: it reads −S1) and both on L2 turned
+    /// round read alike from renamed conductors; CTs exchanged do not. The
+    /// renaming that supposes fewer changes wins unless several declared
+    /// appliances' steps clearly speak for the other.
+    #[test]
+    fn of_two_renamed_meterings_the_one_with_fewer_changes_wins() {
+        use crate::audit::check::testkit::split_phase;
+        let d = split_phase(vec![on_off("lamp", 0, C64::new(500.0, 0.0))]);
+        let absent = [false, false];
+        let hyps = hypotheses(&d, &absent);
+        let find = |src: [usize; 2], k: [f64; 2]| {
+            hyps.iter()
+                .position(|(m, _)| {
+                    m.map
+                        .iter()
+                        .zip(src.iter().zip(k))
+                        .all(|(c, (&s, k))| c.src == s && c.k == k && c.turned)
+                })
+                .expect("a hypothesis")
+        };
+        let (on_l1, on_l2) = (find([0, 0], [1.0, 1.0]), find([1, 1], [-1.0, -1.0]));
+        let exchanged = find([1, 0], [1.0, 1.0]);
+        assert_eq!((hyps[on_l1].1, hyps[on_l2].1), (1, 3), "changes supposed");
+        assert!(renamed(&d, &hyps[on_l2].0, &hyps[on_l1].0));
+        assert!(!renamed(&d, &hyps[on_l2].0, &hyps[exchanged].0));
+        assert!(!renamed(
+            &d,
+            &hyps[on_l2].0,
+            &hyps[find([0, 0], [-1.0, -1.0])].0
+        ));
+        // Steps 0..12; under L1 one appliance owns steps 0..2, another 6..8.
+        let owns = |runs: &[(usize, usize)]| -> Vec<Vec<bool>> {
+            runs.iter()
+                .map(|&(a, b)| (0..12).map(|k| (a..b).contains(&k)).collect())
+                .collect()
+        };
+        let scored = |l2_owns: Vec<Vec<bool>>, l1_apps: usize| -> Vec<Scored> {
+            (0..hyps.len())
+                .map(|i| {
+                    let (ex, apps, owns) = if i == on_l2 {
+                        (6, 3, l2_owns.clone())
+                    } else if i == on_l1 {
+                        (4, l1_apps, owns(&[(0, 2), (6, 8)]))
+                    } else {
+                        (0, 0, vec![])
+                    };
+                    Scored {
+                        i,
+                        apps,
+                        ex,
+                        neg: 0.0,
+                        cost: hyps[i].1,
+                        owns,
+                    }
+                })
+                .collect()
+        };
+        let th = &Thresholds::STANDARD;
+        // One busy appliance speaks for L2 (4 steps only there), one for L1:
+        // as many appliances fit under L1, which supposes fewer changes.
+        let s = scored(owns(&[(0, 6)]), 3);
+        assert_eq!(simplest_renaming(&d, &hyps, &s, on_l2, th), on_l1);
+        // Under L1 fewer appliances fit and under 90 % of the steps: L2.
+        let s = scored(owns(&[(0, 6)]), 2);
+        assert_eq!(simplest_renaming(&d, &hyps, &s, on_l2, th), on_l2);
+        // Two appliances own four steps each only under L2 (eight steps
+        // against one): the evidence clearly favours it.
+        let s = scored(owns(&[(0, 2), (2, 7), (8, 12)]), 3);
+        assert_eq!(simplest_renaming(&d, &hyps, &s, on_l2, th), on_l2);
     }
 
     /// The dark hours of the home's clock.
