@@ -660,6 +660,82 @@ pub(super) fn simpler_account(
         .map(|x| x.2)
 }
 
+/// The declared appliances metering `other` reads otherwise than the
+/// declared one that fit two steps or more under both: appliances of about
+/// one size on the lines it exchanges, which hide the fault.
+fn masked(d: &Declared, mc: &MeteringChoice, other: usize) -> usize {
+    let fitting = |s: &Scored, j: usize| {
+        s.owns
+            .get(j)
+            .map_or(0, |o| o.iter().filter(|x| **x).count())
+            >= 2
+    };
+    let (decl, alt) = (&mc.scored[mc.decl_i], &mc.scored[other]);
+    d.appliances
+        .iter()
+        .enumerate()
+        .filter(|(j, a)| {
+            fitting(decl, *j)
+                && fitting(alt, *j)
+                && predicted(d, &mc.decl_m, a) != predicted(d, &mc.hyps[other].0, a)
+        })
+        .count()
+}
+
+/// Why the appliance moves of `as_declared` may be a metering fault
+/// instead: a metering among the best few ([`SIMPLER_TRIED`]) that
+/// supposes as many mistakes as there are moves, moves no appliance,
+/// explains as many of `big`, and is hidden by `dispute_apps` appliances
+/// or more ([`masked`]; channels exchanged where appliances of about
+/// one size sit on the two lines, and one appliance alone tells them
+/// apart, look like that appliance moved). None where no such metering is.
+pub(super) fn metering_doubt(
+    d: &Declared,
+    mc: &MeteringChoice,
+    as_declared: &Placement,
+    used: &[&Event],
+    big: &[&Event],
+    window: Window,
+    th: &Thresholds,
+) -> Option<String> {
+    let explains = |p: &Placement| {
+        let dp = Declared {
+            appliances: p.placed.clone(),
+            ..d.clone()
+        };
+        explained(&dp, &mc.hyps[p.hyp].0, big).1
+    };
+    let bar = explains(as_declared);
+    let mut tried: Vec<&Scored> = mc
+        .scored
+        .iter()
+        .filter(|s| s.i != mc.decl_i && s.admissible(th))
+        .collect();
+    tried.sort_by_key(|s| (usize::MAX - s.ex, s.cost));
+    let other = tried.into_iter().take(SIMPLER_TRIED).find(|s| {
+        metering_mistakes(d, &mc.decl_m, &mc.hyps[s.i].0) == as_declared.moves.len()
+            && masked(d, mc, s.i) >= th.dispute_apps
+            && {
+                let p = place_under(d, mc, s.i, used, window, th);
+                p.moves.is_empty() && explains(&p) >= bar
+            }
+    })?;
+    let mut theirs = Vec::new();
+    metering_findings(
+        d,
+        &mc.decl_m,
+        &mc.hyps[other.i].0,
+        0.0,
+        Value::Null,
+        &mut theirs,
+    );
+    let names: Vec<&str> = theirs.iter().map(|f| f.message.as_str()).collect();
+    Some(format!(
+        "the steps fit as well with no appliance moved if {}; check both on site",
+        names.join("; ")
+    ))
+}
+
 pub(super) fn metering_findings(
     d: &Declared,
     decl: &Metering,
@@ -1141,6 +1217,66 @@ mod tests {
         // Nothing disputed: no evidence either way.
         let d = dispute(&decl, &decl, &th);
         assert!(!d.favours_found(&th) && d.share(&th) == 0.0);
+    }
+
+    /// Channels l1 and l2 exchanged whole, in a home (real power only)
+    /// whose two lamps of one size sit on L1-N and L2-N: only the water
+    /// heater on L2-L3 shows the exchange, and it looks as well like that
+    /// heater on L3-L1. One mistake each: the move is listed as possible,
+    /// naming the exchange.
+    #[test]
+    fn one_move_that_an_exchange_explains_as_well_is_possible() {
+        let w = |p: f64| C64::new(p, 0.0);
+        let mut d = three_phase(vec![
+            on_off("lamp1", 0, w(1000.0)),
+            on_off("lamp2", 1, w(1000.0)),
+            on_off_wired("water_heater", Wiring::LineLine(1, 2), w(3000.0)),
+        ]);
+        d.real_only = true;
+        let on = |wr: Wiring, p: f64| -> Vec<C64> {
+            d.supply
+                .split(wr, w(p))
+                .iter()
+                .map(|x| C64::new(x.re, 0.0))
+                .collect()
+        };
+        let loads = [
+            (on(Wiring::LineNeutral(0), 1000.0), 10),
+            (on(Wiring::LineNeutral(1), 1000.0), 10),
+            (on(Wiring::LineLine(1, 2), 3000.0), 10),
+        ];
+        let o = check(&d, &runs_of(&loads, &[1, 0, 2]), &consuming(3), 10.0);
+        assert!(o.findings.is_empty(), "{:?}", kinds(&o));
+        let moved: Vec<&Finding> = o
+            .possible
+            .iter()
+            .filter(|f| f.kind == Kind::WrongLine)
+            .collect();
+        assert_eq!(moved.len(), 1, "{:?}", o.possible);
+        let why = moved[0].doubt.as_deref().unwrap_or("");
+        assert!(why.contains("channels l1 and l2 are exchanged"), "{why}");
+        // Metered as declared: nothing to report.
+        let o = check(&d, &runs_of(&loads, &[0, 1, 2]), &consuming(3), 10.0);
+        assert!(
+            o.findings.is_empty() && o.possible.is_empty(),
+            "{:?}",
+            o.possible
+        );
+        // Lamps of two sizes rule the exchange out: the heater seen on
+        // L3-L1 is moved, with no doubt.
+        d.appliances[1] = on_off("lamp2", 1, w(1500.0));
+        let loads = [
+            loads[0].clone(),
+            (on(Wiring::LineNeutral(1), 1500.0), 10),
+            (on(Wiring::LineLine(2, 0), 3000.0), 10),
+        ];
+        let o = check(&d, &runs_of(&loads, &[0, 1, 2]), &consuming(3), 10.0);
+        assert_eq!(
+            kinds(&o),
+            [("wrong-line", "water_heater")],
+            "{:?}",
+            o.possible
+        );
     }
 
     /// Channels l1 and l3 exchanged whole and the kettle declared on L3-N

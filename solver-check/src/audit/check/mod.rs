@@ -49,8 +49,8 @@ use crate::contract::line_name;
 use finding::sort_findings;
 use metering::{
     absent_channels, channel_findings, choose_metering, dispute, metering_confidence,
-    metering_findings, mirror_doubt, place_under, silent_channel_accounts, simpler_account,
-    Placement,
+    metering_doubt, metering_findings, mirror_doubt, place_under, silent_channel_accounts,
+    simpler_account, Placement,
 };
 use placement::{indistinct_notes, Window};
 use serde_json::json;
@@ -122,6 +122,16 @@ pub fn check_with(
         if let Some(alt) = simpler_account(d, &mc, &pl, &used, &big, window, th) {
             replaced = pl.moves.len() - alt.moves.len();
             (chosen, pl) = (alt.hyp, alt);
+        }
+    }
+    let doubt = if chosen == decl_i && pl.moves.len() == 1 {
+        metering_doubt(d, &mc, &pl, &used, &big, window, th)
+    } else {
+        None
+    };
+    for f in &mut pl.moves {
+        if f.doubt.is_none() {
+            f.doubt.clone_from(&doubt);
         }
     }
     let Placement {
