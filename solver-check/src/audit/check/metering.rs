@@ -615,6 +615,30 @@ fn metering_mistakes(d: &Declared, decl: &Metering, m: &Metering) -> usize {
 /// try places every appliance again).
 const SIMPLER_TRIED: usize = 4;
 
+/// The steps of `big` placement `p` explains, its appliances as placed.
+fn steps_explained_by(d: &Declared, mc: &MeteringChoice, p: &Placement, big: &[&Event]) -> usize {
+    let dp = Declared {
+        appliances: p.placed.clone(),
+        ..d.clone()
+    };
+    explained(&dp, &mc.hyps[p.hyp].0, big).1
+}
+
+/// The admissible metering faults tried against appliance moves: the best
+/// [`SIMPLER_TRIED`] by the steps they explain, then the fewest changes.
+fn fault_candidates<'a>(
+    mc: &'a MeteringChoice,
+    th: &Thresholds,
+) -> impl Iterator<Item = &'a Scored> {
+    let mut tried: Vec<&Scored> = mc
+        .scored
+        .iter()
+        .filter(|s| s.i != mc.decl_i && s.admissible(th))
+        .collect();
+    tried.sort_by_key(|s| (usize::MAX - s.ex, s.cost));
+    tried.into_iter().take(SIMPLER_TRIED)
+}
+
 /// A metering fault with the appliances placed under it, when that account
 /// supposes fewer mistakes than the declared metering with the moves of
 /// `as_declared`, and explains at least as many of `big`: two channels
@@ -630,23 +654,9 @@ pub(super) fn simpler_account(
     window: Window,
     th: &Thresholds,
 ) -> Option<Placement> {
-    let explains = |p: &Placement| {
-        let dp = Declared {
-            appliances: p.placed.clone(),
-            ..d.clone()
-        };
-        explained(&dp, &mc.hyps[p.hyp].0, big).1
-    };
+    let explains = |p: &Placement| steps_explained_by(d, mc, p, big);
     let bar = explains(as_declared);
-    let mut tried: Vec<&Scored> = mc
-        .scored
-        .iter()
-        .filter(|s| s.i != mc.decl_i && s.admissible(th))
-        .collect();
-    tried.sort_by_key(|s| (usize::MAX - s.ex, s.cost));
-    tried
-        .into_iter()
-        .take(SIMPLER_TRIED)
+    fault_candidates(mc, th)
         .filter_map(|s| {
             let faults = metering_mistakes(d, &mc.decl_m, &mc.hyps[s.i].0);
             if faults >= as_declared.moves.len() {
@@ -698,21 +708,9 @@ pub(super) fn metering_doubt(
     window: Window,
     th: &Thresholds,
 ) -> Option<String> {
-    let explains = |p: &Placement| {
-        let dp = Declared {
-            appliances: p.placed.clone(),
-            ..d.clone()
-        };
-        explained(&dp, &mc.hyps[p.hyp].0, big).1
-    };
+    let explains = |p: &Placement| steps_explained_by(d, mc, p, big);
     let bar = explains(as_declared);
-    let mut tried: Vec<&Scored> = mc
-        .scored
-        .iter()
-        .filter(|s| s.i != mc.decl_i && s.admissible(th))
-        .collect();
-    tried.sort_by_key(|s| (usize::MAX - s.ex, s.cost));
-    let other = tried.into_iter().take(SIMPLER_TRIED).find(|s| {
+    let other = fault_candidates(mc, th).find(|s| {
         metering_mistakes(d, &mc.decl_m, &mc.hyps[s.i].0) == as_declared.moves.len()
             && masked(d, mc, s.i) >= th.dispute_apps
             && {
