@@ -155,6 +155,8 @@ pub struct Detector {
     zone: Option<jiff::tz::TimeZone>,
     /// The last UTC quarter-hour looked up, and whether it is dark.
     hour_cache: (i64, bool),
+    /// Rows with no power read on any channel (gaps, or no CT anywhere).
+    blank_rows: u64,
 }
 
 /// Whether a row (P, Q per channel; the voltages after them are not
@@ -251,6 +253,7 @@ impl Detector {
             ],
             zone: None,
             hour_cache: (i64::MIN, false),
+            blank_rows: 0,
         }
     }
 
@@ -414,6 +417,7 @@ impl Detector {
     pub fn push(&mut self, time_ms: i64, p: &[f64], q: &[f64], v: &[f64]) {
         let n = self.n;
         if p.iter().all(|x| x.is_nan()) {
+            self.blank_rows += 1;
             self.close();
             self.last_ms = None;
             return;
@@ -516,8 +520,19 @@ impl Detector {
     }
 
     /// Closes the last stretch and hands back the steps and the channels' figures.
+    ///
+    /// A row with no power on any channel is a gap in the meter's record
+    /// and counts for no channel, unless no row reads power at all: then
+    /// no channel has a working CT (one with a single channel writes only
+    /// such rows), and every row counts as an empty one of every channel.
     pub fn finish(mut self) -> (Vec<Event>, Vec<ChannelStats>) {
         self.close();
+        if self.stats.iter().all(|st| st.rows == 0) {
+            for st in &mut self.stats {
+                st.rows = self.blank_rows;
+                st.null = self.blank_rows;
+            }
+        }
         (self.events, self.stats)
     }
 }
@@ -592,5 +607,26 @@ mod tests {
         let s = steps(1.0, &rows);
         assert_eq!(s.len(), 1, "{s:?}");
         assert!(near(s[0].1, 1000.0) && near(s[0].2, 450.0), "{s:?}");
+    }
+
+    /// Rows with no power on any channel are gaps while another row reads
+    /// power; when no row does, every channel is empty in every row (a
+    /// one-channel meter with no CT writes nothing else).
+    #[test]
+    fn rows_with_no_power_anywhere_are_gaps_unless_no_row_reads_power() {
+        let nan = [f64::NAN, f64::NAN];
+        let stats = |rows: &[[f64; 2]]| {
+            let mut d = Detector::new(&[0.0, 180.0], 10.0);
+            for (i, p) in rows.iter().enumerate() {
+                d.push(i as i64 * 10_000, p, &[0.0, 0.0], &[120.0, 120.0]);
+            }
+            d.finish().1
+        };
+        let gap = stats(&[[100.0, 50.0], nan, nan, [100.0, 50.0]]);
+        assert_eq!((gap[0].rows, gap[0].null, gap[1].rows), (2, 0, 2));
+        let never = stats(&[nan, nan, nan]);
+        for st in &never {
+            assert_eq!((st.rows, st.null), (3, 3));
+        }
     }
 }
