@@ -9,7 +9,7 @@ use crate::simulate::simulate;
 use serde_json::{json, Value};
 use solver_check::audit::check::{self, Outcome};
 use solver_check::audit::decl::{
-    DeclAppliance, DeclChannel, DeclDraw, Declared, Inverter, Steps, Supply,
+    DeclAppliance, DeclChannel, DeclDraw, Declared, Inverter, Steps, SunUp, Supply,
 };
 use solver_check::audit::events::{ChannelStats, Detector, Event};
 use solver_check::contract::{line_name, Wiring, C64};
@@ -131,13 +131,31 @@ pub fn declared(s: &Scenario) -> Declared {
             .appliances
             .iter()
             .filter(|a| a.role != crate::scenario::Role::Load)
-            .map(|a| Inverter {
-                id: a.id.clone(),
-                wiring: a.wiring,
-                follows_home: matches!(a.behaviour, Behaviour::Storage(_)),
-            })
+            .map(inverter)
             .collect(),
     }
+}
+
+/// A PV array or home battery as the audit sees it: its rating and, for an
+/// array, when its sun is up (the simulator's sun position at its site;
+/// past [`crate::sun::DARK_ZENITH_DEG`] no light reaches the ground).
+fn inverter(a: &crate::scenario::Appliance) -> Inverter {
+    let mut inv = Inverter::new(&a.id, a.wiring, false);
+    match &a.behaviour {
+        Behaviour::Sun(pv) => {
+            let site = pv.site;
+            inv.rating_w = Some(pv.ac_w);
+            inv.sun_up = Some(SunUp(std::sync::Arc::new(move |ms| {
+                crate::sun::position(site, ms).zenith_deg <= crate::sun::DARK_ZENITH_DEG
+            })));
+        }
+        Behaviour::Storage(b) => {
+            inv.follows_home = true;
+            inv.rating_w = Some(b.power_w);
+        }
+        _ => {}
+    }
+    inv
 }
 
 /// How many runs a day the appliance's habit starts, the busier of

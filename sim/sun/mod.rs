@@ -62,7 +62,7 @@ pub fn light(site: Site, sky: &mut Sky, utc_ms: i64) -> (Position, Light) {
 /// The geometric zenith angle beyond which no light reaches the ground,
 /// degrees: at 91° NOAA's refraction lifts the sun by about 0.33°, leaving
 /// it below the horizon, so the clear-sky irradiance is exactly zero.
-const DARK_ZENITH_DEG: f64 = 91.0;
+pub const DARK_ZENITH_DEG: f64 = 91.0;
 
 /// A bound on how fast the sun's zenith angle changes, degrees per
 /// millisecond. The zenith angle changes no faster than the sun moves

@@ -251,6 +251,44 @@ pub struct Inverter {
     /// Whether it follows the home's power (a battery run for
     /// self-consumption answers every step within seconds) rather than the sun.
     pub follows_home: bool,
+    /// The most it can deliver, W (a PV inverter's AC rating, a battery's
+    /// power), if declared: a change of power larger than this is not its own.
+    pub rating_w: Option<f64>,
+    /// For a PV inverter whose site is known: whether its sun may be up at
+    /// a moment (UTC ms); a step when it is not cannot be the array's.
+    pub sun_up: Option<SunUp>,
+}
+
+impl Inverter {
+    /// An inverter with nothing known but its id, wiring and kind.
+    pub fn new(id: &str, wiring: Wiring, follows_home: bool) -> Inverter {
+        Inverter {
+            id: id.to_string(),
+            wiring,
+            follows_home,
+            rating_w: None,
+            sun_up: None,
+        }
+    }
+
+    /// Whether it cannot produce at `time_ms` (UTC): a PV array whose sun is
+    /// known to be below the horizon then. Unknown (no site, or a battery):
+    /// `false`.
+    pub fn dark_at(&self, time_ms: i64) -> bool {
+        !self.follows_home && self.sun_up.as_ref().is_some_and(|up| !(up.0)(time_ms))
+    }
+}
+
+/// Whether the sun may be up at a PV array's site at a moment (UTC ms):
+/// the simulator's sun position, handed to the audit (which has no
+/// astronomy of its own).
+#[derive(Clone)]
+pub struct SunUp(pub std::sync::Arc<dyn Fn(i64) -> bool + Send + Sync>);
+
+impl std::fmt::Debug for SunUp {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("SunUp(..)")
+    }
 }
 
 impl Declared {

@@ -1,6 +1,7 @@
 //! What the audit reports: the kinds of mistake and their JSON names,
 //! verdicts, findings, and the doubts that list a finding as possible.
 
+use super::fit::{TOL_ABS_W, TOL_REL};
 use super::thresholds::Thresholds;
 use crate::audit::decl::Declared;
 use serde_json::Value;
@@ -163,7 +164,7 @@ pub(super) fn sort_findings(
                     .then(|| coarse_doubt(f.kind, interval_s, th))
                     .flatten()
             })
-            .or_else(|| generation_doubt(d, f));
+            .or_else(|| generation_doubt(d, f, th));
     }
     let (findings, possible): (Vec<Finding>, Vec<Finding>) = findings
         .into_iter()
@@ -198,7 +199,12 @@ pub(super) fn same_wiring_name(a: &str, b: &str) -> bool {
 /// step of another shape; at 1 s its answer is a step of the same size on
 /// its wiring), and a PV inverter changes by any amount while it produces,
 /// so a step on its wiring may be its own.
-pub(super) fn generation_doubt(d: &Declared, f: &Finding) -> Option<String> {
+///
+/// A PV array's doing is ruled out by its steps' size or times: a step
+/// larger than the inverter's declared rating (beyond the tolerance steps
+/// are fitted by) is not its own, nor are `th.dark_steps` steps taken while
+/// its sun is down (evidence `dark_steps`, [`dark_steps`]).
+pub(super) fn generation_doubt(d: &Declared, f: &Finding, th: &Thresholds) -> Option<String> {
     if f.kind.is_metering() {
         return None;
     }
@@ -212,10 +218,36 @@ pub(super) fn generation_doubt(d: &Declared, f: &Finding) -> Option<String> {
         .generation
         .iter()
         .find(|g| same_wiring_name(&g.wiring.name(), on))?;
+    let size = f.evidence["step_w"]
+        .as_f64()
+        .or_else(|| f.evidence["p_w"].as_f64())
+        .unwrap_or(0.0);
+    let beyond = pv
+        .rating_w
+        .is_some_and(|r| size > r + TOL_ABS_W + TOL_REL * r);
+    let dark = f.evidence["dark_steps"].as_u64().unwrap_or(0) as usize;
+    if beyond || (th.dark_steps > 0 && dark >= th.dark_steps) {
+        return None;
+    }
     Some(format!(
         "{} on {on} changes its power by any amount while it produces, so steps on {on} may be its own",
         pv.id
     ))
+}
+
+/// How many of the moments `times` (UTC ms) every declared PV array on
+/// wiring `on` is known to be dark at (its sun below the horizon): steps
+/// then are not the arrays' doing. None on that wiring: 0.
+pub(super) fn dark_steps(d: &Declared, on: &str, times: impl Iterator<Item = i64>) -> usize {
+    let pvs: Vec<_> = d
+        .generation
+        .iter()
+        .filter(|g| !g.follows_home && same_wiring_name(&g.wiring.name(), on))
+        .collect();
+    if pvs.is_empty() {
+        return 0;
+    }
+    times.filter(|&t| pvs.iter().all(|g| g.dark_at(t))).count()
 }
 
 #[cfg(test)]
@@ -243,6 +275,7 @@ mod tests {
     #[test]
     fn findings_the_pv_or_the_battery_could_make_are_only_possible() {
         use crate::audit::decl::Inverter;
+        let th = &Thresholds::STANDARD;
         let mut d = split_phase(vec![]);
         let f = |kind: Kind, ev: serde_json::Value| Finding {
             kind,
@@ -255,24 +288,66 @@ mod tests {
         let on_ll = f(Kind::UndeclaredLoad, json!({ "wiring": "L2-L1" }));
         let on_ln = f(Kind::WrongLine, json!({ "found": "L1-N" }));
         let ct = f(Kind::ReversedCt, json!({}));
-        assert!(generation_doubt(&d, &on_ll).is_none(), "no generation");
-        d.generation.push(Inverter {
-            id: "pv".into(),
-            wiring: Wiring::LineLine(0, 1),
-            follows_home: false,
-        });
-        assert!(generation_doubt(&d, &on_ll).is_some());
+        assert!(generation_doubt(&d, &on_ll, th).is_none(), "no generation");
+        d.generation
+            .push(Inverter::new("pv", Wiring::LineLine(0, 1), false));
+        assert!(generation_doubt(&d, &on_ll, th).is_some());
         assert!(
-            generation_doubt(&d, &on_ln).is_none(),
+            generation_doubt(&d, &on_ln, th).is_none(),
             "not the PV's wiring"
         );
-        assert!(generation_doubt(&d, &ct).is_none());
-        d.generation.push(Inverter {
-            id: "battery".into(),
-            wiring: Wiring::LineLine(0, 1),
-            follows_home: true,
-        });
-        assert!(generation_doubt(&d, &on_ln).is_some());
-        assert!(generation_doubt(&d, &ct).is_none());
+        assert!(generation_doubt(&d, &ct, th).is_none());
+        d.generation
+            .push(Inverter::new("battery", Wiring::LineLine(0, 1), true));
+        assert!(generation_doubt(&d, &on_ln, th).is_some());
+        assert!(generation_doubt(&d, &ct, th).is_none());
+    }
+
+    /// A PV array cannot make a step larger than its inverter's rating,
+    /// nor steps while its sun is down: a load on its wiring that shows so
+    /// stands as a finding.
+    #[test]
+    fn steps_beyond_the_arrays_rating_or_in_its_dark_are_not_its_own() {
+        use crate::audit::decl::{Inverter, SunUp};
+        use std::sync::Arc;
+        const HOUR: i64 = 3_600_000;
+        let th = &Thresholds::STANDARD;
+        let mut d = split_phase(vec![]);
+        let mut pv = Inverter::new("pv", Wiring::LineNeutral(0), false);
+        pv.rating_w = Some(600.0);
+        // Daylight from 06:00 to 18:00 UTC every day.
+        pv.sun_up = Some(SunUp(Arc::new(|ms| (6..18).contains(&((ms / HOUR) % 24)))));
+        d.generation.push(pv);
+        let load = |p_w: f64, dark: usize| Finding {
+            kind: Kind::UndeclaredLoad,
+            subject: String::new(),
+            message: String::new(),
+            confidence: 1.0,
+            evidence: json!({ "wiring": "L1-N", "p_w": p_w, "dark_steps": dark }),
+            doubt: None,
+        };
+        assert!(
+            generation_doubt(&d, &load(650.0, 0), th).is_some(),
+            "within the tolerance of 600 W"
+        );
+        assert!(
+            generation_doubt(&d, &load(700.0, 0), th).is_none(),
+            "beyond it"
+        );
+        assert!(
+            generation_doubt(&d, &load(500.0, 1), th).is_some(),
+            "one step in the dark"
+        );
+        assert!(
+            generation_doubt(&d, &load(500.0, 2), th).is_none(),
+            "a run in the dark"
+        );
+        let times = [2 * HOUR, 7 * HOUR, 17 * HOUR, 23 * HOUR, 26 * HOUR];
+        assert_eq!(dark_steps(&d, "L1-N", times.into_iter()), 3);
+        assert_eq!(
+            dark_steps(&d, "L2-N", times.into_iter()),
+            0,
+            "no array there"
+        );
     }
 }

@@ -239,7 +239,7 @@ pub(super) fn channel_findings(
             findings.push(Finding {
                 kind: Kind::NoCt,
                 subject: line_name(c),
-                message: format!("channel {} reads no current although a CT on {} is declared: {:.0} % of its rows are empty, {:.0} % read nothing; line-to-line loads show at half power on the other line only", line_name(c), line_label(d.channels[c].conductor.unwrap_or(c)), 100.0 * st.null as f64 / read, 100.0 * st.zero as f64 / read),
+                message: format!("channel {} reads no current although a CT on {} is declared: {:.0} % of its rows are empty, {:.0} % read nothing{}", line_name(c), line_label(d.channels[c].conductor.unwrap_or(c)), 100.0 * st.null as f64 / read, 100.0 * st.zero as f64 / read, if n > 1 { "; line-to-line loads show at half power on the other line only" } else { "" }),
                 confidence: (st.null.max(st.zero) as f64 / read).min(1.0),
                 evidence: json!({ "rows": st.rows, "null_rows": st.null, "zero_rows": st.zero }),
                 doubt: None,
@@ -936,11 +936,7 @@ mod tests {
         // A third of the rows negative (midday export), none in the dark.
         let st = stats(3000, 1000, 600, 0);
         assert!((negative_share(&d, &m, &st) - 1.0 / 3.0).abs() < 1e-12);
-        let pv = Inverter {
-            id: "pv".into(),
-            wiring: Wiring::LineLine(0, 1),
-            follows_home: false,
-        };
+        let pv = Inverter::new("pv", Wiring::LineLine(0, 1), false);
         d.generation.push(pv.clone());
         assert_eq!(negative_share(&d, &m, &st), 0.0);
         // Negative in the dark as well: a reversed CT, PV or not.
@@ -1011,11 +1007,8 @@ mod tests {
             mirror_doubt(&d, &mc, cts, th).is_none(),
             "no generation: the sign judges"
         );
-        d.generation.push(Inverter {
-            id: "battery".into(),
-            wiring: Wiring::LineLine(0, 1),
-            follows_home: true,
-        });
+        d.generation
+            .push(Inverter::new("battery", Wiring::LineLine(0, 1), true));
         let why = mirror_doubt(&d, &mc, cts, th).expect("the mirror fits as well");
         assert!(why.contains("exchanged"), "{why}");
         // A PV array alone exports by day only: the dark hours judge.

@@ -3,7 +3,7 @@
 //! declared line-to-neutral and back), rated draws at their size on every
 //! connection, and the moves made one at a time.
 
-use super::finding::{same_wiring_name, ApplianceCheck, Finding, Kind, Verdict};
+use super::finding::{dark_steps, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict};
 use super::fit::{
     dist_model, distances, poisson_tail, shape_of, visible, Ctx, Model, Pred, TOL_ABS_V_W,
     TOL_REL_V, USE_STEP,
@@ -433,7 +433,8 @@ impl Round<'_> {
         let whole = n_a >= th.blind_move
             && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
         if whole {
-            let f = move_finding(d, a, &alt, &name_a, None, n_a, th);
+            let mut f = move_finding(d, a, &alt, &name_a, None, n_a, th);
+            self.count_dark(&mut f, &name_a, &mine);
             let cover = coverage(d, m, &alt, self.used, self.cxs, &mine, 0.0);
             ck.reason = format!("{n_a} steps fit it on {name_a}; its declared wiring goes through L{}, which no working CT reads", x + 1);
             return Some((j, n_a, alt, f, mine, cover));
@@ -447,6 +448,14 @@ impl Round<'_> {
             );
         }
         None
+    }
+
+    /// Adds to move finding `f` how many of its steps `steps` (the
+    /// exclusive ones on wiring `found`) came while a PV array on that
+    /// wiring was dark (evidence `dark_steps`, for the doubt a PV raises).
+    fn count_dark(&self, f: &mut Finding, found: &str, steps: &[usize]) {
+        let times = steps.iter().map(|&k| self.used[k].time_ms);
+        f.evidence["dark_steps"] = json!(dark_steps(self.d, found, times));
     }
 
     /// Why moving appliance `j` (as placed, `a`) from one line to neutral to
@@ -621,6 +630,7 @@ impl Round<'_> {
             moves && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
         if whole {
             let mut f = move_finding(d, a, &alt, &name_a, Some(n_d), n_a, th);
+            self.count_dark(&mut f, &name_a, &mine);
             // A partial declaration or a one-power entry leaves steps the
             // declaration does not give: a move may then be two channels
             // exchanged that the metering checks had too little to find.

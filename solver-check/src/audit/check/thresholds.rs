@@ -111,6 +111,12 @@ pub struct Thresholds {
     /// load, and so is a one-power appliance's move when another such entry
     /// has about the size of the steps (common practice, no source).
     pub nameplate_band: f64,
+    /// Steps of a placement or undeclared load, on the wiring of a declared
+    /// PV array, taken while the array's sun is below the horizon, that make
+    /// it no doing of the array's (which changes by any amount while it
+    /// produces): one run seen in the dark, a start and a stop (common
+    /// practice, no source).
+    pub dark_steps: usize,
 }
 
 impl Thresholds {
@@ -133,6 +139,7 @@ impl Thresholds {
         dispute_apps: 2,
         overlap_runs: 3,
         nameplate_band: 0.2,
+        dark_steps: 2,
     };
 }
 
@@ -163,7 +170,7 @@ impl Cutoff {
 }
 
 /// Every cut-off of [`Thresholds`], in the order of its fields.
-pub const CUTOFFS: [Cutoff; 17] = [
+pub const CUTOFFS: [Cutoff; 18] = [
     Cutoff {
         name: "possible",
         meaning: "confidence below which a finding is listed apart as possible",
@@ -299,6 +306,14 @@ pub const CUTOFFS: [Cutoff; 17] = [
         count: false,
         get: |t| t.nameplate_band,
         set: |t, v| t.nameplate_band = v,
+    },
+    Cutoff {
+        name: "dark_steps",
+        meaning: "steps of a placement or undeclared load on a declared PV array's wiring, taken while its sun is down, that make it no doing of the array's",
+        range: (0.0, 1e6),
+        count: true,
+        get: |t| t.dark_steps as f64,
+        set: |t, v| t.dark_steps = v as usize,
     },
 ];
 

@@ -2,7 +2,9 @@
 //! clustered by connection and size, tested against coincidences of two
 //! declared appliances, with their energy share.
 
-use super::finding::{coarse_doubt, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict};
+use super::finding::{
+    coarse_doubt, dark_steps, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict,
+};
 use super::fit::{
     connection_of, dist_delta, distances, fits, poisson_tail, predicted, shape_of, tol, Ctx, Pred,
     TOL_ABS_V_W, TOL_REL_V, USE_STEP,
@@ -345,7 +347,7 @@ pub(super) fn undeclared_finding(
         // start), a tenth each: steps seen one way only count for
         // nothing (at 10 s, starts of declared loads straddling rows).
         confidence: (start_stop_pairs(&c.on, &c.off).len() as f64 / 10.0).min(1.0),
-        evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "coincidences_expected": expected, "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring, "energy_share": share, "first_starts": first(&c.on), "first_stops": first(&c.off), "first_starts_local": first_local(&c.on, &d.timezone) }),
+        evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "coincidences_expected": expected, "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring, "energy_share": share, "first_starts": first(&c.on), "first_stops": first(&c.off), "first_starts_local": first_local(&c.on, &d.timezone), "dark_steps": dark_steps(d, &c.wiring, c.on.iter().chain(&c.off).copied()) }),
         doubt: None,
     })
 }
