@@ -71,6 +71,13 @@ pub struct ChannelStats {
     /// [`ChannelStats::negative`] over the dark hours alone, when no PV
     /// array produces.
     pub negative_dark: Vec<[u64; 2]>,
+    /// For every channel b and sign k: rows both read in which this
+    /// channel's reading is clearly not k · u · S_b, what it would read
+    /// were its CT on the conductor b's CT is on (u turning b's reading to
+    /// this channel's voltage). Empty: not counted.
+    pub apart: Vec<[u64; 2]>,
+    /// For every channel b: rows this channel and b both read.
+    pub paired: Vec<u64>,
 }
 
 /// Whether a local clock time (hours since midnight) lies in the hours when
@@ -247,6 +254,8 @@ impl Detector {
                 ChannelStats {
                     negative: vec![[0, 0]; n],
                     negative_dark: vec![[0, 0]; n],
+                    apart: vec![[0, 0]; n],
+                    paired: vec![0; n],
                     ..Default::default()
                 };
                 n
@@ -464,6 +473,7 @@ impl Detector {
                 }
             }
         }
+        self.count_pairs(p, q);
         let Some(mut seg) = self.seg.take() else {
             // No stretch yet: build a candidate.
             self.candidate(row, time_ms, None);
@@ -516,6 +526,30 @@ impl Detector {
             };
             self.inter.clear();
             self.start(rows, self.cand_ms, before);
+        }
+    }
+
+    /// Counts, for every two channels that read this row, whether they read
+    /// as two CTs on one conductor would ([`ChannelStats::apart`]): alike
+    /// up to the sign and the angle between their voltages, within 30 W
+    /// plus 5 % of the larger (the sign test's tolerance; two CTs differ by
+    /// their gain errors and the meter's noise).
+    fn count_pairs(&mut self, p: &[f64], q: &[f64]) {
+        let n = self.n;
+        let read = |c: usize| (!p[c].is_nan() && !q[c].is_nan()).then(|| C64::new(p[c], q[c]));
+        for c in 0..n {
+            let Some(sc) = read(c) else { continue };
+            for b in (0..n).filter(|&b| b != c) {
+                let Some(sb) = read(b) else { continue };
+                let tol = 30.0 + 0.05 * sc.abs().max(sb.abs());
+                let st = &mut self.stats[c];
+                st.paired[b] += 1;
+                for (k, u) in self.units[c][b].iter().enumerate() {
+                    if (sc - sb * *u).abs() > tol {
+                        st.apart[b][k] += 1;
+                    }
+                }
+            }
         }
     }
 
@@ -628,5 +662,38 @@ mod tests {
         for st in &never {
             assert_eq!((st.rows, st.null), (3, 3));
         }
+    }
+
+    /// Two channels whose CTs sit on one conductor of a split-phase supply
+    /// read opposite powers (their voltages are out of phase) row by row;
+    /// two on their own conductors read apart wherever either carries a
+    /// load.
+    #[test]
+    fn two_cts_on_one_conductor_read_alike_row_by_row() {
+        let pairs = |rows: &[[f64; 2]]| {
+            let mut d = Detector::new(&[0.0, 180.0], 10.0);
+            for (i, p) in rows.iter().enumerate() {
+                d.push(i as i64 * 10_000, p, &[0.0, 0.0], &[120.0, 120.0]);
+            }
+            let st = d.finish().1;
+            (st[0].paired[1], st[0].apart[1], st[1].apart[0])
+        };
+        let one = pairs(&[[500.0, -505.0], [1500.0, -1490.0], [200.0, -190.0]]);
+        assert_eq!(
+            one,
+            (3, [0, 3], [0, 3]),
+            "in sign: alike; the other sign: apart"
+        );
+        let two = pairs(&[
+            [500.0, 100.0],
+            [1500.0, 100.0],
+            [20.0, 900.0],
+            [0.0, f64::NAN],
+        ]);
+        assert_eq!(
+            two,
+            (3, [3, 3], [3, 3]),
+            "a row one channel misses is no pair"
+        );
     }
 }

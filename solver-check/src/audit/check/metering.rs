@@ -105,6 +105,35 @@ pub(super) fn negative_share(d: &Declared, m: &Metering, stats: &[ChannelStats])
         .fold(0.0, f64::max)
 }
 
+/// Share of the rows in which two channels that metering `m` has read one
+/// conductor (each through a CT on it, turned to its channel's voltage)
+/// read otherwise than two CTs on one conductor do: alike, row by row, up
+/// to the sign and the angle between their voltages
+/// ([`ChannelStats::apart`]); the largest over such pairs, 0 where there
+/// are none. With real power only, channels whose voltages are neither in
+/// nor out of phase cannot be compared so (a turn mixes P with the Q not
+/// read): 0 for them.
+pub(super) fn apart_share(d: &Declared, m: &Metering, stats: &[ChannelStats]) -> f64 {
+    let n = m.map.len();
+    let mut worst = 0.0_f64;
+    for a in (0..n).filter(|&a| !m.absent[a] && m.map[a].turned) {
+        for b in (a + 1..n).filter(|&b| !m.absent[b] && m.map[b].turned) {
+            let (ma, mb) = (m.map[a], m.map[b]);
+            let (Some(apart), Some(&paired)) = (stats[a].apart.get(b), stats[a].paired.get(b))
+            else {
+                continue;
+            };
+            let u = d.supply.unit(a) / d.supply.unit(b);
+            if ma.src != mb.src || paired == 0 || (d.real_only && u.im.abs() > 1e-9) {
+                continue;
+            }
+            let k = usize::from(ma.k * mb.k < 0.0);
+            worst = worst.max(apart[k] as f64 / paired as f64);
+        }
+    }
+    worst
+}
+
 /// Why metering `chosen` may be its mirror image, every reading negated:
 /// where a home battery feeds every conductor its channels read, it may
 /// export at any hour, so no row's sign rules the mirror out, and a step
@@ -259,6 +288,9 @@ pub(super) struct Scored {
     pub(super) ex: usize,
     /// Share of rows with a clearly negative implied conductor power.
     pub(super) neg: f64,
+    /// Share of rows in which two channels it reads from one conductor
+    /// read apart ([`apart_share`]).
+    pub(super) apart: f64,
     /// Conductors and signs it changes against the declared metering.
     pub(super) cost: usize,
     /// Per appliance, per step, whether the appliance explains the step
@@ -268,7 +300,7 @@ pub(super) struct Scored {
 
 impl Scored {
     fn admissible(&self, th: &Thresholds) -> bool {
-        self.neg <= th.negative_ok
+        self.neg <= th.negative_ok && self.apart <= th.apart_ok
     }
 
     fn explains(&self, k: usize) -> bool {
@@ -430,7 +462,8 @@ fn score(
     th: &Thresholds,
 ) -> Scored {
     let neg = negative_share(d, m, stats);
-    let fits: Vec<Fits> = if neg <= th.negative_ok {
+    let apart = apart_share(d, m, stats);
+    let fits: Vec<Fits> = if neg <= th.negative_ok && apart <= th.apart_ok {
         d.appliances.iter().map(|a| fits_of(d, m, a, big)).collect()
     } else {
         Vec::new()
@@ -441,6 +474,7 @@ fn score(
         apps: fits.iter().filter(|f| f.jumps_fitting() >= 2).count(),
         ex: steps_explained(&fits, big.len()),
         neg,
+        apart,
         cost,
         owns,
     }
@@ -463,7 +497,7 @@ pub(super) fn choose_metering(
         .collect();
     let decl_i = hyps.iter().position(|(m, _)| *m == decl_m).unwrap_or(0);
     let chosen = best_admissible(&scored, decl_i, th);
-    let (decl_ex, decl_neg) = (scored[decl_i].ex, scored[decl_i].neg);
+    let decl_ex = scored[decl_i].ex;
     // One appliance on another connection is a simpler mistake than a
     // metering fault: the declared metering stands when, with the one
     // appliance moved that helps most, it explains as many steps as the
@@ -471,7 +505,7 @@ pub(super) fn choose_metering(
     // can otherwise tip the choice; a lower bar, 90 %, kept the declared
     // metering where two channels were in fact exchanged.)
     let chosen = if chosen != decl_i
-        && decl_neg <= th.negative_ok
+        && scored[decl_i].admissible(th)
         && most_with_one_move(d, &decl_m, big, decl_ex) >= scored[chosen].ex
     {
         decl_i
@@ -986,6 +1020,7 @@ mod tests {
                     2
                 },
                 neg: 0.0,
+                apart: 0.0,
                 cost: hyps[i].1,
                 owns: vec![],
             })
@@ -1067,6 +1102,7 @@ mod tests {
                         apps,
                         ex,
                         neg: 0.0,
+                        apart: 0.0,
                         cost: hyps[i].1,
                         owns,
                     }
@@ -1161,6 +1197,7 @@ mod tests {
             apps: 0,
             ex: (0..n).filter(|&k| owns.iter().any(|o| o[k])).count(),
             neg: 0.0,
+            apart: 0.0,
             cost: 1,
             owns,
         }
@@ -1366,5 +1403,57 @@ mod tests {
         silent_channel_accounts(&m, &mut findings, &mut notes);
         assert_eq!(findings.len(), 1);
         assert_eq!(findings[0].kind, Kind::ChannelsExchanged);
+    }
+
+    /// A metering that has two channels read one conductor is measured by
+    /// how often they read apart; with real power only, channels whose
+    /// voltages are 120° apart cannot be compared so.
+    #[test]
+    fn a_metering_of_two_channels_on_one_conductor_is_judged_row_by_row() {
+        use crate::audit::check::testkit::split_phase;
+        let d = split_phase(vec![]);
+        let both_on_l1 = Metering {
+            map: vec![
+                ChanMap {
+                    src: 0,
+                    k: 1.0,
+                    turned: true,
+                },
+                ChanMap {
+                    src: 0,
+                    k: 1.0,
+                    turned: true,
+                },
+            ],
+            absent: vec![false; 2],
+        };
+        let st = |apart: [u64; 2]| ChannelStats {
+            apart: vec![[0, 0], apart],
+            paired: vec![0, 1000],
+            ..Default::default()
+        };
+        let stats = vec![st([900, 0]), st([900, 0])];
+        assert_eq!(apart_share(&d, &both_on_l1, &stats), 0.9);
+        let declared = declared_metering(&d, &[false; 2]);
+        assert_eq!(apart_share(&d, &declared, &stats), 0.0, "two conductors");
+        let mut reversed = both_on_l1.clone();
+        reversed.map[1].k = -1.0;
+        assert_eq!(
+            apart_share(&d, &reversed, &stats),
+            0.0,
+            "the other sign read alike"
+        );
+        let mut wye = three_phase(vec![]);
+        let three = |apart: [u64; 2]| ChannelStats {
+            apart: vec![[0, 0], apart, [0, 0]],
+            paired: vec![0, 1000, 0],
+            ..Default::default()
+        };
+        let stats = vec![three([900, 900]), three([900, 900]), three([0, 0])];
+        let mut on_l1 = declared_metering(&wye, &[false; 3]);
+        on_l1.map[1].src = 0;
+        assert_eq!(apart_share(&wye, &on_l1, &stats), 0.9);
+        wye.real_only = true;
+        assert_eq!(apart_share(&wye, &on_l1, &stats), 0.0, "P alone cannot say");
     }
 }

@@ -13,6 +13,13 @@ pub struct Thresholds {
     /// Largest share of rows with a negative implied power that still counts as
     /// a consuming home (noise around zero, brief export).
     pub negative_ok: f64,
+    /// Largest share of rows in which two channels a metering has read one
+    /// conductor may read otherwise than two CTs on one conductor do (alike
+    /// up to sign and the angle between their voltages): gaps in one
+    /// channel, a CT's gain error beyond the tolerance. Two CTs really on
+    /// one conductor read apart in hardly any row; channels on two
+    /// conductors, in most rows where either carries a load.
+    pub apart_ok: f64,
     /// A cluster of steps is a load of its own only when coincidences of
     /// declared appliances its size would make as many with a chance below
     /// this: 0.1 %, as every cluster that behaves as a load is tested, several
@@ -124,6 +131,7 @@ impl Thresholds {
     pub const STANDARD: Thresholds = Thresholds {
         possible: 0.5,
         negative_ok: 0.05,
+        apart_ok: 0.05,
         coincidence_p: 0.001,
         clearly_better: 0.5,
         blind_move: 12,
@@ -170,7 +178,7 @@ impl Cutoff {
 }
 
 /// Every cut-off of [`Thresholds`], in the order of its fields.
-pub const CUTOFFS: [Cutoff; 18] = [
+pub const CUTOFFS: [Cutoff; 19] = [
     Cutoff {
         name: "possible",
         meaning: "confidence below which a finding is listed apart as possible",
@@ -186,6 +194,14 @@ pub const CUTOFFS: [Cutoff; 18] = [
         count: false,
         get: |t| t.negative_ok,
         set: |t, v| t.negative_ok = v,
+    },
+    Cutoff {
+        name: "apart_ok",
+        meaning: "largest share of rows in which two channels a metering has read one conductor may read otherwise than two CTs on one conductor do",
+        range: (0.0, 1.0),
+        count: false,
+        get: |t| t.apart_ok,
+        set: |t, v| t.apart_ok = v,
     },
     Cutoff {
         name: "coincidence_p",
