@@ -257,7 +257,12 @@ pub(super) fn channel_findings(
             .iter()
             .any(|a| a.wirings().iter().any(|w| w.lines(n).contains(&c)));
         let empty = st.null as f64 / read > 0.9;
-        let silent = loaded && st.zero as f64 / read > 0.98;
+        // A channel whose CT is missing reads nothing, steps included; one
+        // that reads nothing in most rows but steps now and then has a CT
+        // (on a conductor that carries little, or one whose power, turned
+        // to this channel's voltage, nearly cancels: a metering question).
+        let steps = events.iter().filter(|e| e.delta[c].abs() >= 150.0).count();
+        let silent = loaded && st.zero as f64 / read > 0.98 && steps < 3;
         if d.channels[c].conductor.is_some()
             && silent
             && !empty
@@ -1455,5 +1460,42 @@ mod tests {
         assert_eq!(apart_share(&wye, &on_l1, &stats), 0.9);
         wye.real_only = true;
         assert_eq!(apart_share(&wye, &on_l1, &stats), 0.0, "P alone cannot say");
+    }
+
+    /// A channel that reads nothing in nearly every row is a missing CT
+    /// unless it steps now and then: then it has a CT, reading a conductor
+    /// that carries little or a power its voltage nearly cancels.
+    #[test]
+    fn a_channel_that_steps_now_and_then_has_a_ct() {
+        let d = three_phase(vec![on_off_wired(
+            "lamp",
+            Wiring::LineNeutral(2),
+            C64::new(900.0, 0.0),
+        )]);
+        let stats: Vec<ChannelStats> = (0..3)
+            .map(|c| ChannelStats {
+                rows: 10_000,
+                zero: if c == 2 { 9_950 } else { 0 },
+                ..Default::default()
+            })
+            .collect();
+        let step = |t: i64, on_l3: f64| Event {
+            time_ms: t,
+            delta: vec![C64::new(500.0, 0.0), C64::ZERO, C64::new(on_l3, 0.0)],
+            before: vec![C64::ZERO; 3],
+            v_before: vec![230.0; 3],
+            v_after: vec![230.0; 3],
+            se: vec![2.0; 3],
+        };
+        let th = &Thresholds::STANDARD;
+        let quiet: Vec<Event> = (0..6).map(|i| step(i * H, 0.0)).collect();
+        let (found, _) = channel_findings(&d, &quiet, &stats, th);
+        assert_eq!(found.len(), 1, "no step on l3: no CT");
+        assert_eq!(
+            (found[0].kind, found[0].subject.as_str()),
+            (Kind::NoCt, "l3")
+        );
+        let stepping: Vec<Event> = (0..6).map(|i| step(i * H, -250.0)).collect();
+        assert!(channel_findings(&d, &stepping, &stats, th).0.is_empty());
     }
 }
