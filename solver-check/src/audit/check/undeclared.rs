@@ -378,25 +378,39 @@ impl UndeclaredStage<'_> {
         // A cluster with no run seen whole (a start, then its stop) has no
         // confidence at all: at 10 s, starts of declared loads that straddle
         // two rows gather so; it is not listed, not even as possible.
-        unexplained_clusters(self.d, self.m, self.events, self.explained)
+        let clusters: Vec<Cluster> =
+            unexplained_clusters(self.d, self.m, self.events, self.explained)
+                .into_iter()
+                .filter(|c| {
+                    behaves_as_a_load(&c.on, &c.off) && !start_stop_pairs(&c.on, &c.off).is_empty()
+                })
+                .collect();
+        clusters
             .iter()
-            .filter(|c| {
-                behaves_as_a_load(&c.on, &c.off) && !start_stop_pairs(&c.on, &c.off).is_empty()
-            })
             .filter_map(|c| {
                 let mut f = undeclared_finding(self.d, c, self.sums, self.total_wh, self.th)?;
-                f.doubt = self.coarse(c).or_else(|| self.doubt(c));
+                f.doubt = self.coarse(c, &clusters).or_else(|| self.doubt(c));
                 Some(f)
             })
             .collect()
+    }
+
+    /// Whether cluster `c` may be the steps of a busier load in `all` merged
+    /// with other changes in their rows: one on its connection with more
+    /// runs seen whole, within `nameplate_band` of its size. At a coarse
+    /// interval a load's steps share rows with other loads' changes, so one
+    /// load leaves clusters around its size.
+    fn fragment(&self, c: &Cluster, all: &[Cluster]) -> bool {
+        fragment_of(c, all, self.th.nameplate_band)
     }
 
     /// At a coarse interval a step may be two loads' that switched within
     /// one row: the cluster is possible only, unless it repeats as one load
     /// does (`coarse_runs` runs seen whole, starts and stops within 3 to 4,
     /// on one connection) at a size that is no declared jump (within twice
-    /// its tolerance) nor the sum or difference of two.
-    fn coarse(&self, c: &Cluster) -> Option<String> {
+    /// its tolerance) nor the sum or difference of two, nor near a busier
+    /// cluster's of `all` on its connection ([`UndeclaredStage::fragment`]).
+    fn coarse(&self, c: &Cluster, all: &[Cluster]) -> Option<String> {
         let doubt = coarse_doubt(Kind::UndeclaredLoad, self.interval_s, self.th)?;
         let runs = start_stop_pairs(&c.on, &c.off).len();
         let (most, fewest) = (c.on.len().max(c.off.len()), c.on.len().min(c.off.len()));
@@ -417,7 +431,7 @@ impl UndeclaredStage<'_> {
             .flat_map(|a| predicted(self.d, self.m, &a))
             .any(|r| dist_delta(&c.v, &r) <= 2.0);
         let a_sum = self.sums.iter().any(|(r, _)| dist_delta(&c.v, r) <= 1.0);
-        (!one_load || declared_size || a_sum).then_some(doubt)
+        (!one_load || declared_size || a_sum || self.fragment(c, all)).then_some(doubt)
     }
 
     /// Steps of the one-power appliance `a` (as placed) among the events:
@@ -587,6 +601,17 @@ impl UndeclaredStage<'_> {
         }
         None
     }
+}
+
+/// Whether another cluster of `all` on the connection of `c`, with more runs
+/// seen whole, is within `band` (a share of its size) of the size of `c`.
+fn fragment_of(c: &Cluster, all: &[Cluster], band: f64) -> bool {
+    let runs = start_stop_pairs(&c.on, &c.off).len();
+    all.iter().any(|o| {
+        o.wiring == c.wiring
+            && start_stop_pairs(&o.on, &o.off).len() > runs
+            && (o.s.re - c.s.re).abs() <= band * o.s.re
+    })
 }
 
 /// Whether runs `mine` (start, stop; ms) are apart from runs `theirs` of an
@@ -1024,5 +1049,32 @@ mod tests {
             "{:?}",
             o.possible
         );
+    }
+
+    /// At a coarse interval a cluster near the size of a busier one on its
+    /// connection may be that load's steps merged with other changes.
+    #[test]
+    fn a_cluster_near_a_busier_one_on_its_connection_may_be_its_fragment() {
+        let cl = |w: &str, p: f64, runs: i64| Cluster {
+            wiring: w.into(),
+            v: vec![C64::new(p, 0.0), C64::ZERO],
+            s: C64::new(p, 0.0),
+            on: (0..runs).map(|i| i * H).collect(),
+            off: (0..runs).map(|i| i * H + H / 2).collect(),
+        };
+        let busy = cl("L2-N", 4300.0, 40);
+        let all = vec![
+            busy,
+            cl("L2-N", 5000.0, 20),
+            cl("L1-N", 5000.0, 20),
+            cl("L2-N", 2700.0, 10),
+        ];
+        assert!(
+            fragment_of(&all[1], &all, 0.2),
+            "within a fifth of a busier one"
+        );
+        assert!(!fragment_of(&all[2], &all, 0.2), "another connection");
+        assert!(!fragment_of(&all[3], &all, 0.2), "too far from it");
+        assert!(!fragment_of(&all[0], &all, 0.2), "the busiest itself");
     }
 }
