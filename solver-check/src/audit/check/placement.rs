@@ -682,28 +682,29 @@ fn scaled(a: &DeclAppliance, k: f64) -> DeclAppliance {
     b
 }
 
-/// Steps among `used` that fit appliance `b` as wired (its voltages `cxs`).
+/// Which of the steps `used` fit appliance `b` as wired (its voltages `cxs`).
 fn steps_fitting(
     d: &Declared,
     m: &Metering,
     used: &[&Event],
     cxs: &[Ctx],
     b: &DeclAppliance,
-) -> usize {
+) -> Vec<bool> {
     let sg = Pred::of(d, m, b);
     used.iter()
         .zip(cxs)
-        .filter(|(e, cx)| sg.dist(d, m, e, cx) <= 1.0)
-        .count()
+        .map(|(e, cx)| sg.dist(d, m, e, cx) <= 1.0)
+        .collect()
 }
 
 /// Steps among `used` that fit appliance `b` as wired, and how many steps
 /// a window that wide gets by chance: the mean of the steps that fit it
 /// scaled to the sizes just below and just above its tolerance (two
 /// tolerances away from its largest step, so the three windows do not
-/// overlap). A load of its size makes a peak over its neighbours; other
-/// loads' steps and their sums at a coarse interval fill every size about
-/// alike.
+/// overlap), those that fit it unscaled left out (one of its other step
+/// sizes, or a weather-driven input, may fall there). A load of its size
+/// makes a peak over its neighbours; other loads' steps and their sums at
+/// a coarse interval fill every size about alike.
 fn against_background(
     d: &Declared,
     m: &Metering,
@@ -713,8 +714,12 @@ fn against_background(
 ) -> (usize, f64) {
     let size = b.largest_step_w().abs().max(USE_STEP);
     let h = tol(size) / size;
-    let side = |k: f64| steps_fitting(d, m, used, cxs, &scaled(b, k)) as f64;
-    let n = steps_fitting(d, m, used, cxs, b);
+    let own = steps_fitting(d, m, used, cxs, b);
+    let side = |k: f64| {
+        let there = steps_fitting(d, m, used, cxs, &scaled(b, k));
+        there.iter().zip(&own).filter(|(t, o)| **t && !**o).count() as f64
+    };
+    let n = own.iter().filter(|x| **x).count();
     (n, 0.5 * (side(1.0 - 2.0 * h) + side(1.0 + 2.0 * h)))
 }
 
@@ -1423,5 +1428,36 @@ mod tests {
         several_moves_doubt(&mut fs, 3, 60.0);
         assert!(fs[0].doubt.as_ref().unwrap().contains("3 appliances"));
         assert!(fs[1].doubt.is_none());
+    }
+
+    /// A heat pump switched at 0.8 and 1 of 2 kW (the weather's inputs):
+    /// ten steps of 1.6 kW and four of 2 kW, nothing else. Its 1.6 kW steps
+    /// fall in the window below its tolerance (2 kW ∓ 2 · 11.5 %) but fit it
+    /// as declared, so they are its own, not chance: its 14 steps against a
+    /// background of none. Counted as background (ten below, and the four
+    /// 2 kW steps above, where the scaled 0.8 input is 1968 W), seven a
+    /// window, 14 would be within chance (P(X ≥ 14) for a Poisson mean of 7
+    /// is 1.3 %).
+    #[test]
+    fn an_appliances_own_other_sizes_are_no_background() {
+        use crate::audit::check::hypothesis::declared_metering;
+        use crate::audit::decl::Steps;
+        let mut hp = on_off("heat_pump", 0, C64::new(2000.0, 0.0));
+        hp.steps = Steps::Jumps(vec![
+            (0, 1, 0.8, 1.0),
+            (1, 0, 1.0, 0.8),
+            (0, 1, 1.0, 1.0),
+            (1, 0, 1.0, 1.0),
+        ]);
+        let d = split_phase(vec![hp.clone()]);
+        let m = declared_metering(&d, &[false, false]);
+        let mut events = runs_on(2, 0, 1600.0, 5, 0);
+        events.extend(runs_on(2, 0, 2000.0, 2, 10 * H));
+        let used: Vec<&Event> = events.iter().collect();
+        let cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(&d, &m, e)).collect();
+        let th = &Thresholds::STANDARD;
+        assert_eq!(against_background(&d, &m, &used, &cxs, &hp), (14, 0.0));
+        assert!(beyond_chance(&d, &m, &used, &cxs, &hp, th));
+        assert!(poisson_tail(7.0, 14) > th.coincidence_p);
     }
 }
