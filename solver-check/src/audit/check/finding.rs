@@ -151,19 +151,14 @@ pub struct ApplianceCheck {
 pub(super) fn sort_findings(
     d: &Declared,
     mut findings: Vec<Finding>,
-    interval_s: f64,
     th: &Thresholds,
 ) -> (Vec<Finding>, Vec<Finding>, Vec<Finding>) {
     for f in findings.iter_mut() {
         f.doubt = f
             .doubt
             .take()
-            // An undeclared load's doubts are its stage's (`undeclared`).
-            .or_else(|| {
-                (f.kind != Kind::UndeclaredLoad)
-                    .then(|| coarse_doubt(f.kind, interval_s, th))
-                    .flatten()
-            })
+            // A coarse interval's doubt is the stage's that found it
+            // (placement, undeclared loads): each narrows it by evidence.
             .or_else(|| generation_doubt(d, f, th));
     }
     let (findings, possible): (Vec<Finding>, Vec<Finding>) = findings
@@ -176,7 +171,9 @@ pub(super) fn sort_findings(
 }
 
 /// At a coarse interval, placements and undeclared loads rest on steps
-/// that may be composites: listed as possible, with why.
+/// that may be composites: listed as possible, with why, unless the stage
+/// that found them rules that out by evidence (placement:
+/// `coarse_move_doubt`; undeclared loads: `UndeclaredStage::coarse`).
 pub(super) fn coarse_doubt(kind: Kind, interval_s: f64, th: &Thresholds) -> Option<String> {
     (interval_s >= th.coarse_interval_s && !kind.is_metering()).then(|| {
         format!("at {interval_s:.0} s per row, loads that switch within one row make one step together, so a step of this size may be two loads'")

@@ -164,7 +164,7 @@ pub fn check_with(
     let (more, steps_explained) =
         undeclared_loads(d, &m, &used, (&cxs, &checks, &placed), total_wh, window, th);
     findings.extend(more);
-    let (findings, possible, unlisted) = sort_findings(d, findings, interval_s, th);
+    let (findings, possible, unlisted) = sort_findings(d, findings, th);
     notes.extend(few_explained(d, steps_explained, used.len()));
     Outcome {
         possible_below: th.possible,

@@ -3,13 +3,16 @@
 //! declared line-to-neutral and back), rated draws at their size on every
 //! connection, and the moves made one at a time.
 
-use super::finding::{dark_steps, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict};
+use super::finding::{
+    coarse_doubt, dark_steps, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict,
+};
 use super::fit::{
-    dist_model, distances, poisson_tail, shape_of, visible, Ctx, Model, Pred, TOL_ABS_V_W,
-    TOL_REL_V, USE_STEP,
+    dist_delta, dist_model, distances, poisson_tail, predicted, shape_of, tol, visible, Ctx, Model,
+    Pred, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
 };
 use super::hypothesis::{alternatives, wiring_names, Metering};
 use super::thresholds::Thresholds;
+use super::undeclared::coincidences;
 use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::Event;
 use crate::contract::{Wiring, C64};
@@ -290,6 +293,8 @@ pub(super) struct Round<'a> {
     dj: Vec<Vec<f64>>,
     /// How long the data runs, h.
     hours: f64,
+    /// Seconds per row.
+    interval_s: f64,
 }
 
 /// Whether an appliance is declared by one power only (off, or on at that
@@ -621,10 +626,12 @@ impl Round<'_> {
         // step sizes there, stays there: steps of its size elsewhere
         // are another load's (left to the undeclared loads), not a
         // reason to move it.
-        let stays = n_d >= th.shows_as_declared && {
-            let (.., mine_d) = self.excl(j, &self.sigs[j]);
-            coverage(d, m, a, self.used, self.cxs, &mine_d, th.whole_share) >= 1.0
-        };
+        let stays = n_d >= th.shows_as_declared
+            && {
+                let (.., mine_d) = self.excl(j, &self.sigs[j]);
+                coverage(d, m, a, self.used, self.cxs, &mine_d, th.whole_share) >= 1.0
+            }
+            && (!self.coarse() || self.beyond_chance(a));
         let moves = !stays && n_a >= 3 && n_a >= 3 * n_d + 2;
         let whole =
             moves && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
@@ -647,6 +654,9 @@ impl Round<'_> {
             if let Some(why) = self.habit_doubt(a, &name_a, n_a) {
                 ck.reason = why;
                 return None;
+            }
+            if f.doubt.is_none() {
+                f.doubt = self.coarse_move_doubt(a, &alt, n_a, f.kind);
             }
             let cover = coverage(d, m, &alt, self.used, self.cxs, &mine, 0.0);
             ck.reason = format!("{n_a} steps fit it on {name_a}, {n_d} on {declared}");
@@ -671,6 +681,138 @@ impl Round<'_> {
             ck.reason = format!("seen switching {n_d} times as declared and {n_a} times otherwise: too few to decide");
         }
         None
+    }
+}
+
+/// Appliance `a` with every draw's power scaled by `k`: a load of another
+/// size drawn the same way.
+fn scaled(a: &DeclAppliance, k: f64) -> DeclAppliance {
+    let mut b = a.clone();
+    for x in b.states.iter_mut().flatten() {
+        x.s = x.s.scale(k);
+    }
+    b
+}
+
+/// Which of the steps `used` fit appliance `b` as wired (its voltages `cxs`).
+fn steps_fitting(
+    d: &Declared,
+    m: &Metering,
+    used: &[&Event],
+    cxs: &[Ctx],
+    b: &DeclAppliance,
+) -> Vec<bool> {
+    let sg = Pred::of(d, m, b);
+    used.iter()
+        .zip(cxs)
+        .map(|(e, cx)| sg.dist(d, m, e, cx) <= 1.0)
+        .collect()
+}
+
+/// Steps among `used` that fit appliance `b` as wired, and how many steps
+/// a window that wide gets by chance: the mean of the steps that fit it
+/// scaled to the sizes just below and just above its tolerance (two
+/// tolerances away from its largest step, so the three windows do not
+/// overlap), those that fit it unscaled left out (one of its other step
+/// sizes, or a weather-driven input, may fall there). A load of its size
+/// makes a peak over its neighbours; other loads' steps and their sums at
+/// a coarse interval fill every size about alike.
+fn against_background(
+    d: &Declared,
+    m: &Metering,
+    used: &[&Event],
+    cxs: &[Ctx],
+    b: &DeclAppliance,
+) -> (usize, f64) {
+    let size = b.largest_step_w().abs().max(USE_STEP);
+    let h = tol(size) / size;
+    let own = steps_fitting(d, m, used, cxs, b);
+    let side = |k: f64| {
+        let there = steps_fitting(d, m, used, cxs, &scaled(b, k));
+        there.iter().zip(&own).filter(|(t, o)| **t && !**o).count() as f64
+    };
+    let n = own.iter().filter(|x| **x).count();
+    (n, 0.5 * (side(1.0 - 2.0 * h) + side(1.0 + 2.0 * h)))
+}
+
+/// Whether more steps fit appliance `b` as wired than its neighbouring
+/// sizes get by chance ([`against_background`]), beyond a Poisson chance
+/// of `coincidence_p` (the cut-off a cluster of steps is a load of its own
+/// by): a load of its size switches there.
+pub(super) fn beyond_chance(
+    d: &Declared,
+    m: &Metering,
+    used: &[&Event],
+    cxs: &[Ctx],
+    b: &DeclAppliance,
+    th: &Thresholds,
+) -> bool {
+    let (n, background) = against_background(d, m, used, cxs, b);
+    poisson_tail(background, n) < th.coincidence_p
+}
+
+/// The checks a coarse interval needs: at a row a minute or more, loads
+/// switching within one row make one step together, so steps of any size
+/// come by chance, and a count of steps that fit an appliance is evidence
+/// only beyond what its neighbouring sizes get.
+impl Round<'_> {
+    /// Whether the rows are `coarse_interval_s` or more apart.
+    fn coarse(&self) -> bool {
+        self.interval_s >= self.th.coarse_interval_s
+    }
+
+    /// Whether more steps fit appliance `b` as wired than its neighbouring
+    /// sizes get by chance ([`beyond_chance`]).
+    fn beyond_chance(&self, b: &DeclAppliance) -> bool {
+        beyond_chance(self.d, self.m, self.used, self.cxs, b, self.th)
+    }
+
+    /// How many steps of the size of appliance `alt` two declared
+    /// appliances switching within one row are expected to make in the
+    /// run: the Poisson rates of the sums and differences of their jumps
+    /// that have its size ([`coincidences`]).
+    fn composites_expected(&self, alt: &DeclAppliance) -> f64 {
+        let own = predicted(self.d, self.m, alt);
+        coincidences(
+            self.d,
+            self.m,
+            self.placed,
+            self.used,
+            self.interval_s,
+            self.hours,
+        )
+        .iter()
+        .filter(|(sum, _)| {
+            let delta: Vec<C64> = sum.iter().map(|x| x.unwrap_or(C64::ZERO)).collect();
+            own.iter().any(|r| dist_delta(&delta, r) <= 1.0)
+        })
+        .map(|(_, rate)| rate)
+        .sum()
+    }
+
+    /// Why a move of appliance `a` to `alt` (`n_a` steps fit it there, of
+    /// kind `kind`) may rest on composite steps at a coarse interval
+    /// ([`coarse_doubt`]), unless the steps rule that out: `coarse_runs`
+    /// runs' worth of steps (twice as many) fit it where found, beyond what
+    /// the neighbouring sizes get there by chance (a load of its size
+    /// switches there); those as declared are not beyond chance (it does
+    /// not switch there); and two declared appliances switching together
+    /// make steps of its size too seldom to account for them (`n_a` or more
+    /// under the Poisson rate of such coincidences has a chance below
+    /// `coincidence_p`).
+    fn coarse_move_doubt(
+        &self,
+        a: &DeclAppliance,
+        alt: &DeclAppliance,
+        n_a: usize,
+        kind: Kind,
+    ) -> Option<String> {
+        let doubt = coarse_doubt(kind, self.interval_s, self.th)?;
+        let stands = n_a >= 2 * self.th.coarse_runs
+            && self.beyond_chance(alt)
+            && !self.beyond_chance(a)
+            && poisson_tail(self.composites_expected(alt), n_a) < self.th.coincidence_p;
+        (!stands).then_some(doubt)
     }
 }
 
@@ -744,6 +886,7 @@ pub(super) fn place(
             sigs,
             dj,
             hours: window.hours,
+            interval_s,
         };
         let mut checks = Vec::new();
         let mut candidates: Vec<Candidate> = Vec::new();
@@ -763,8 +906,29 @@ pub(super) fn place(
                     swapped_moves(&mut moves, findings, (k, w));
                 }
             }
-            None => return (checks, placed),
+            None => {
+                let n_moved = moved.iter().filter(|&&x| x).count();
+                if interval_s >= th.coarse_interval_s {
+                    several_moves_doubt(findings, n_moved, interval_s);
+                }
+                return (checks, placed);
+            }
         }
+    }
+}
+
+/// At a coarse interval, a move that stands on its own steps
+/// (`coarse_move_doubt`) is only possible when `n_moved` appliances (two or
+/// more) moved in one placement: two CTs or channels exchanged move every
+/// appliance on the channels they concern, one mistake where the moves
+/// are several, and with a row a minute or more apart the metering checks
+/// may not tell it from the declared metering.
+fn several_moves_doubt(findings: &mut [Finding], n_moved: usize, interval_s: f64) {
+    if n_moved < 2 {
+        return;
+    }
+    for f in findings.iter_mut().filter(|f| !f.kind.is_metering()) {
+        f.doubt.get_or_insert_with(|| format!("{n_moved} appliances show moved at once: two CTs or channels exchanged would move them all, one mistake rather than {n_moved}, and at {interval_s:.0} s per row the data may not tell"));
     }
 }
 
@@ -1199,5 +1363,113 @@ mod tests {
         assert!(o.appliances[0].reason.contains("likelier another load"));
         let subjects: Vec<&str> = o.possible.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(subjects, ["1900 W on L2-N"]);
+    }
+
+    /// Placement stage, at 1 min: a 1.5 kW kettle declared on L1-N
+    /// switches 24 times on L2-N (12 runs) and never where declared, and
+    /// no two declared appliances make steps of its size: the move stands
+    /// whatever the interval. Six runs at 1 min are only possible (loads
+    /// switching within one row may have made them).
+    #[test]
+    fn a_coarse_move_of_many_steps_none_where_declared_is_a_finding() {
+        use crate::audit::check::check;
+        let d = split_phase(vec![on_off("kettle", 0, C64::new(1500.0, 0.0))]);
+        let o = check(&d, &runs_on(2, 1, 1500.0, 12, 0), &day_stats(2), 60.0);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(found, ["kettle"], "{:?}", o.possible);
+        let o = check(&d, &runs_on(2, 1, 1500.0, 6, 0), &day_stats(2), 60.0);
+        assert!(o.findings.is_empty(), "{:?}", o.findings);
+        let moved = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
+        assert!(
+            moved.doubt.as_ref().unwrap().contains("per row"),
+            "{moved:?}"
+        );
+    }
+
+    /// Placement stage: a 1 kW kettle declared on L1-N, where 1 kW steps
+    /// show five runs, and as many at 740 W and at 1260 W (the sizes just
+    /// beside its tolerance: 30 W + 10 % is 13 %, so 1 ∓ 2 · 13 %); twenty
+    /// runs of 1 kW on L2-N (40 steps, three times its 10 where declared
+    /// and two more). At 10 s its steps where declared keep it
+    /// there; at 1 min they are no more than its neighbouring sizes get by
+    /// chance, so they do not, and its move is listed (as possible: steps
+    /// of its size show where declared too).
+    #[test]
+    fn at_a_coarse_interval_steps_where_declared_count_beyond_chance_only() {
+        use crate::audit::check::check;
+        let d = split_phase(vec![on_off("kettle", 0, C64::new(1000.0, 0.0))]);
+        let mut events = runs_on(2, 1, 1000.0, 20, 0);
+        for (w, at) in [(1000.0, H / 4), (740.0, H / 2), (1260.0, 3 * H / 4)] {
+            events.extend(runs_on(2, 0, w, 5, at));
+        }
+        events.sort_by_key(|e| e.time_ms);
+        let o = check(&d, &events, &day_stats(2), 10.0);
+        assert_eq!(o.appliances[0].verdict, Verdict::AsDeclared);
+        assert!(!o.possible.iter().any(|f| f.subject == "kettle"));
+        let o = check(&d, &events, &day_stats(2), 60.0);
+        assert!(o.findings.iter().all(|f| f.subject != "kettle"));
+        let moved = o.possible.iter().find(|f| f.subject == "kettle");
+        let moved = moved.unwrap_or_else(|| panic!("{:?} {:?}", o.appliances, o.possible));
+        assert!(
+            moved
+                .doubt
+                .as_ref()
+                .unwrap()
+                .contains("show where declared"),
+            "{moved:?}"
+        );
+    }
+
+    /// At a coarse interval, moves standing on their own steps are only
+    /// possible when two appliances or more moved in one placement (two
+    /// CTs exchanged would move them all); one moved alone stands, and a
+    /// metering finding is not touched.
+    #[test]
+    fn several_moves_at_a_coarse_interval_are_only_possible() {
+        let f = |kind: Kind| Finding {
+            kind,
+            subject: String::new(),
+            message: String::new(),
+            confidence: 1.0,
+            evidence: json!({}),
+            doubt: None,
+        };
+        let mut fs = vec![f(Kind::WrongLine), f(Kind::ReversedCt)];
+        several_moves_doubt(&mut fs, 1, 60.0);
+        assert!(fs.iter().all(|f| f.doubt.is_none()));
+        several_moves_doubt(&mut fs, 3, 60.0);
+        assert!(fs[0].doubt.as_ref().unwrap().contains("3 appliances"));
+        assert!(fs[1].doubt.is_none());
+    }
+
+    /// A heat pump switched at 0.8 and 1 of 2 kW (the weather's inputs):
+    /// ten steps of 1.6 kW and four of 2 kW, nothing else. Its 1.6 kW steps
+    /// fall in the window below its tolerance (2 kW ∓ 2 · 11.5 %) but fit it
+    /// as declared, so they are its own, not chance: its 14 steps against a
+    /// background of none. Counted as background (ten below, and the four
+    /// 2 kW steps above, where the scaled 0.8 input is 1968 W), seven a
+    /// window, 14 would be within chance (P(X ≥ 14) for a Poisson mean of 7
+    /// is 1.3 %).
+    #[test]
+    fn an_appliances_own_other_sizes_are_no_background() {
+        use crate::audit::check::hypothesis::declared_metering;
+        use crate::audit::decl::Steps;
+        let mut hp = on_off("heat_pump", 0, C64::new(2000.0, 0.0));
+        hp.steps = Steps::Jumps(vec![
+            (0, 1, 0.8, 1.0),
+            (1, 0, 1.0, 0.8),
+            (0, 1, 1.0, 1.0),
+            (1, 0, 1.0, 1.0),
+        ]);
+        let d = split_phase(vec![hp.clone()]);
+        let m = declared_metering(&d, &[false, false]);
+        let mut events = runs_on(2, 0, 1600.0, 5, 0);
+        events.extend(runs_on(2, 0, 2000.0, 2, 10 * H));
+        let used: Vec<&Event> = events.iter().collect();
+        let cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(&d, &m, e)).collect();
+        let th = &Thresholds::STANDARD;
+        assert_eq!(against_background(&d, &m, &used, &cxs, &hp), (14, 0.0));
+        assert!(beyond_chance(&d, &m, &used, &cxs, &hp, th));
+        assert!(poisson_tail(7.0, 14) > th.coincidence_p);
     }
 }

@@ -67,6 +67,8 @@ pub struct Thresholds {
     /// interval are common enough that a step is often two loads' at once
     /// (measured in the outside validation at 1 min with real power only: four
     /// in five placements and most undeclared loads were such composites).
+    /// From it on, a count of steps that fit a load is evidence only beyond
+    /// what the sizes beside its own get by chance (`beyond_chance`).
     pub coarse_interval_s: f64,
     /// An appliance whose largest step is under this (W, on every connection
     /// it could be on) is not placed: smaller steps of many loads look alike.
@@ -85,7 +87,9 @@ pub struct Thresholds {
     /// and stops balance and its size is neither a declared jump nor the sum
     /// or difference of two: loads that happen to switch within one row do
     /// not repeat at one size, starting and stopping alike, ten times
-    /// (common practice, no source).
+    /// (common practice, no source). Twice as many steps, beyond chance where
+    /// found and not where declared, make a move at a coarse interval a
+    /// finding (`coarse_move_doubt`).
     pub coarse_runs: usize,
     /// Steps a declared appliance must explain under one of two meterings
     /// and not the other to take that one's side in their dispute: one run
@@ -253,7 +257,7 @@ pub const CUTOFFS: [Cutoff; 19] = [
     },
     Cutoff {
         name: "coarse_interval_s",
-        meaning: "reporting interval (s) from which placements and undeclared loads are only possible (an undeclared load of coarse_runs runs excepted)",
+        meaning: "reporting interval (s) from which placements and undeclared loads are only possible (a move or an undeclared load of coarse_runs runs, beyond chance, excepted)",
         range: (0.0, 86_400.0),
         count: false,
         get: |t| t.coarse_interval_s,
@@ -277,7 +281,7 @@ pub const CUTOFFS: [Cutoff; 19] = [
     },
     Cutoff {
         name: "coarse_runs",
-        meaning: "runs seen whole that make an undeclared load at a coarse interval a finding (starts and stops alike, no declared jump's size nor two's)",
+        meaning: "runs seen whole that make an undeclared load at a coarse interval a finding (starts and stops alike, no declared jump's size nor two's), and twice as many steps a move",
         range: (0.0, 1e6),
         count: true,
         get: |t| t.coarse_runs as f64,

@@ -10,7 +10,7 @@ use super::fit::{
     TOL_ABS_V_W, TOL_REL_V, USE_STEP,
 };
 use super::hypothesis::{alternatives, wiring_names, Metering};
-use super::placement::one_power;
+use super::placement::{beyond_chance, one_power};
 use super::thresholds::Thresholds;
 use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::{ChannelStats, Event};
@@ -410,6 +410,9 @@ impl UndeclaredStage<'_> {
     /// on one connection) at a size that is no declared jump (within twice
     /// its tolerance) nor the sum or difference of two, nor near a busier
     /// cluster's of `all` on its connection ([`UndeclaredStage::fragment`]).
+    /// An appliance whose steps show where it is placed beyond what its
+    /// neighbouring sizes get by chance ([`beyond_chance`]) is there: a load
+    /// of its size elsewhere is another, and its size does not count.
     fn coarse(&self, c: &Cluster, all: &[Cluster]) -> Option<String> {
         let doubt = coarse_doubt(Kind::UndeclaredLoad, self.interval_s, self.th)?;
         let runs = start_stop_pairs(&c.on, &c.off).len();
@@ -419,11 +422,14 @@ impl UndeclaredStage<'_> {
         // A declared appliance on any connection it could be on: one
         // declared on the wrong connection, whose steps were not placed (at
         // this interval its few steps as declared may be composites), draws
-        // there what its connection's voltage gives.
+        // there what its connection's voltage gives; unless it shows where
+        // placed beyond chance.
         let declared_size = self
             .placed
             .iter()
-            .chain(&self.d.appliances)
+            .zip(&self.d.appliances)
+            .filter(|(a, _)| !beyond_chance(self.d, self.m, self.events, self.cxs, a, self.th))
+            .flat_map(|(a, b)| [a, b])
             .flat_map(|a| {
                 std::iter::once(a.clone())
                     .chain(alternatives(self.d, a).into_iter().map(|(_, b)| b))
@@ -992,14 +998,12 @@ mod tests {
         assert_eq!(doubt(&d, cluster(1769.0, 4)), None, "a resistance");
     }
 
-    /// At 1 min with real power only, a 1.5 kW heater declared across
-    /// L1-L2 that switches 12 times on L1-N (and four times as declared: two
-    /// loads of 750 W on each line within one minute) keeps its declared
-    /// wiring; the 1.5 kW load on L1-N repeats twelve whole runs, but it has
-    /// the heater's size on a connection the heater could be on, so it is
-    /// only possible.
-    #[test]
-    fn a_coarse_load_of_a_declared_appliances_size_elsewhere_is_only_possible() {
+    /// A 1.5 kW heater declared across L1-L2 at 1 min with real power only,
+    /// switching 12 times on L1-N; as declared it makes `declared` runs
+    /// (750 W on each line), and with `neighbours` two runs each at the
+    /// sizes just below and above its tolerance (1140 W and 1860 W across
+    /// L1-L2: 30 W + 10 % of 1.5 kW is 180 W, 12 %, so 1 ∓ 2 · 12 %).
+    fn heater_beside_a_load(declared: i64, neighbours: bool) -> crate::audit::check::Outcome {
         use crate::audit::check::check;
         use crate::audit::check::testkit::on_off_wired;
         let mut d = split_phase(vec![on_off_wired(
@@ -1016,20 +1020,13 @@ mod tests {
             v_after: vec![f64::NAN; 2],
             se: vec![2.0; 2],
         };
-        let mut events: Vec<Event> = (0..12)
-            .flat_map(|i| {
-                [
-                    step(i * 3 * H, 1500.0, 0.0),
-                    step(i * 3 * H + H / 6, -1500.0, 0.0),
-                ]
-            })
-            .collect();
-        events.extend((0..2).flat_map(|i| {
-            [
-                step(i * 3 * H + H, 750.0, 750.0),
-                step(i * 3 * H + H + H / 6, -750.0, -750.0),
-            ]
-        }));
+        let run = |at: i64, l1: f64, l2: f64| [step(at, l1, l2), step(at + H / 6, -l1, -l2)];
+        let mut events: Vec<Event> = (0..12).flat_map(|i| run(i * 3 * H, 1500.0, 0.0)).collect();
+        events.extend((0..declared).flat_map(|i| run(i * 3 * H + H, 750.0, 750.0)));
+        if neighbours {
+            events.extend((0..2).flat_map(|i| run(i * 3 * H + 2 * H, 570.0, 570.0)));
+            events.extend((2..4).flat_map(|i| run(i * 3 * H + 2 * H, 930.0, 930.0)));
+        }
         events.sort_by_key(|e| e.time_ms);
         let stats = vec![
             ChannelStats {
@@ -1042,13 +1039,34 @@ mod tests {
             };
             2
         ];
-        let o = check(&d, &events, &stats, 60.0);
+        check(&d, &events, &stats, 60.0)
+    }
+
+    /// At 1 min with real power only, the heater above switches twice as
+    /// declared, as often as steps of the sizes beside its own show there
+    /// (two loads of 570 W or 750 W or 930 W on each line within one
+    /// minute): its steps there do not keep it there, and either account
+    /// of the 1.5 kW steps on L1-N, twelve whole runs, is only possible:
+    /// the heater on L1-N (its steps of its size show where declared too),
+    /// or a load of its size there.
+    #[test]
+    fn a_coarse_load_of_a_declared_appliances_size_elsewhere_is_only_possible() {
+        let o = heater_beside_a_load(2, true);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
-        assert!(
-            o.possible.iter().any(|f| f.subject == "1500 W on L1-N"),
-            "{:?}",
-            o.possible
-        );
+        let moved = o.possible.iter().find(|f| f.subject == "heater").unwrap();
+        assert_eq!(moved.evidence["found"], "L1-N", "{moved:?}");
+        assert!(moved.doubt.as_ref().unwrap().contains("where declared too"));
+    }
+
+    /// The same at 1 min, the heater switching four times as declared and
+    /// nothing of the sizes beside its own: its steps there are no chance
+    /// (P(X ≥ 8) for a Poisson mean of 0), so it is there, and the 1.5 kW
+    /// load on L1-N is another: a finding.
+    #[test]
+    fn a_coarse_load_beside_an_appliance_seen_where_declared_is_a_finding() {
+        let o = heater_beside_a_load(4, false);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(found, ["1500 W on L1-N"], "{:?}", o.possible);
     }
 
     /// At a coarse interval a cluster near the size of a busier one on its
