@@ -469,6 +469,10 @@ impl Round<'_> {
     /// by): an appliance declared on the line it moves to is not seen there
     /// (fewer than two steps) but two or more of its steps fit it on the
     /// line it moves from. An exchange moves every appliance of both lines.
+    /// That appliance must be one the audit places ([`uncheckable_in`]: a
+    /// step of `decide_w` or more somewhere): steps of a 100 W television
+    /// or of lights show on every line, many loads' alike, and say nothing
+    /// of where it is.
     fn exchange_doubt(&self, j: usize, a: &DeclAppliance, alt: &DeclAppliance) -> Option<String> {
         let (aw, bw) = (a.wirings(), alt.wirings());
         let (from, to) = match (aw.as_slice(), bw.as_slice()) {
@@ -479,7 +483,7 @@ impl Round<'_> {
             let b = &self.placed[k];
             k != j
                 && b.wirings() == [Wiring::LineNeutral(to)]
-                && !b.steps.jumps().is_empty()
+                && uncheckable_in(self.d, b, self.th).is_none()
                 && self.excl(k, &self.sigs[k]).0 < self.th.seen_where_declared
                 && {
                     let there = b.rewired_on(&self.d.supply, |_| Wiring::LineNeutral(from));
@@ -1203,7 +1207,8 @@ mod tests {
     /// pump on L1-N shows where declared, so the channels are as declared):
     /// the kettle is on L2-N, for certain. When an 800 W heater declared on
     /// L2-N shows only on L1 instead, two channels exchanged would account
-    /// for both, and the move is only possible.
+    /// for both, and the move is only possible; a 150 W television there
+    /// does not make it so.
     #[test]
     fn a_partial_declarations_move_is_certain_unless_channels_may_be_exchanged() {
         use crate::audit::check::check;
@@ -1252,6 +1257,13 @@ mod tests {
         assert!(o.findings.is_empty(), "{:?}", o.findings);
         let kettle = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
         assert!(kettle.doubt.as_ref().unwrap().contains("exchanged"));
+        // A 150 W television in the heater's place says nothing of where
+        // it is (below the 300 W the audit places by): the move stands.
+        d.appliances[1] = on_off("tv", 1, C64::new(150.0, 0.0));
+        events.extend(run(4 * H, C64::new(150.0, 0.0), C64::ZERO));
+        let o = check(&d, &events, &stats, 1.0);
+        let subjects: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(subjects, ["kettle"], "{:?}", o.possible);
     }
 
     /// Of moves claiming mostly the same steps, the one showing more of its
