@@ -47,6 +47,7 @@ use crate::audit::decl::Declared;
 use crate::audit::events::{ChannelStats, Event};
 use crate::contract::line_name;
 use finding::sort_findings;
+use fit::coincidences;
 use metering::{
     absent_channels, channel_findings, choose_metering, dispute, metering_confidence,
     metering_doubt, metering_findings, mirror_doubt, place_under, silent_channel_accounts,
@@ -54,7 +55,7 @@ use metering::{
 };
 use placement::{indistinct_notes, Window};
 use serde_json::json;
-use undeclared::{coincidences, metered_energy_wh, steps_fit, UndeclaredStage};
+use undeclared::{metered_energy_wh, steps_fit, UndeclaredStage};
 
 /// What the checks of a declaration against the data concluded.
 #[derive(Clone, Debug)]

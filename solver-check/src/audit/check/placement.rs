@@ -7,12 +7,12 @@ use super::finding::{
     coarse_doubt, dark_steps, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict,
 };
 use super::fit::{
-    dist_delta, dist_model, distances, poisson_tail, predicted, shape_of, tol, visible, Ctx, Model,
-    Pred, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
+    coincidences, dist_delta, dist_model, distances, poisson_tail, predicted, shape_of, tol,
+    visible, Ctx, Model, Pred, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
 };
 use super::hypothesis::{alternatives, wiring_names, Metering};
 use super::thresholds::Thresholds;
-use super::undeclared::coincidences;
+
 use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::Event;
 use crate::contract::{Wiring, C64};

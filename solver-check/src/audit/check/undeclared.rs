@@ -6,7 +6,7 @@ use super::finding::{
     coarse_doubt, dark_steps, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict,
 };
 use super::fit::{
-    connection_of, dist_delta, distances, fits, poisson_tail, predicted, shape_of, tol, Ctx, Pred,
+    connection_of, dist_delta, distances, poisson_tail, predicted, shape_of, tol, Ctx, Pred,
     TOL_ABS_V_W, TOL_REL_V, USE_STEP,
 };
 use super::hypothesis::{alternatives, wiring_names, Metering};
@@ -142,61 +142,6 @@ pub(super) fn energy_share(p_w: f64, on: &[i64], off: &[i64], total_wh: f64) -> 
 pub(super) fn behaves_as_a_load(on: &[i64], off: &[i64]) -> bool {
     let (most, fewest) = (on.len().max(off.len()), on.len().min(off.len()));
     most >= 3 && (4 * fewest <= most || start_stop_pairs(on, off).len() >= 2)
-}
-
-#[allow(clippy::too_many_arguments)]
-/// Two declared appliances switching in one interval make one step, their
-/// sum. Each sum of two jumps of two appliances (either the same way or
-/// opposite ways), with how often such a coincidence is expected in the
-/// run: n₁ n₂ w / 2T for jumps seen n₁ and n₂ times (starts and stops)
-/// in T, with a window w as wide as two steps merge in the detector
-/// (closer than `level_rows` either way), and half the pairs the same way
-/// round (independent switching: the rate of Poisson coincidences; common
-/// practice, no source).
-pub(super) fn coincidences(
-    d: &Declared,
-    m: &Metering,
-    placed: &[DeclAppliance],
-    events: &[&Event],
-    interval_s: f64,
-    hours: f64,
-) -> Vec<(Vec<Option<C64>>, f64)> {
-    let jumps: Vec<(usize, Vec<Option<C64>>, usize)> = placed
-        .iter()
-        .enumerate()
-        .flat_map(|(j, a)| predicted(d, m, a).into_iter().map(move |r| (j, r)))
-        .map(|(j, r)| {
-            let n = events.iter().filter(|e| fits(e, &r)).count();
-            (j, r, n)
-        })
-        .filter(|(_, _, n)| *n > 0)
-        .collect();
-    let t_s = hours * 3600.0;
-    if t_s <= 0.0 {
-        return vec![];
-    }
-    let w = 2.0 * crate::audit::events::level_rows(interval_s) as f64 * interval_s;
-    let mut out = Vec::new();
-    for (i, (ja, ra, na)) in jumps.iter().enumerate() {
-        for (jb, rb, nb) in &jumps[i + 1..] {
-            if ja == jb {
-                continue;
-            }
-            let rate = (*na * *nb) as f64 * w / (2.0 * t_s);
-            for sign in [1.0, -1.0] {
-                let sum: Vec<Option<C64>> = ra
-                    .iter()
-                    .zip(rb)
-                    .map(|(a, b)| match (a, b) {
-                        (Some(a), Some(b)) => Some(*a + b.scale(sign)),
-                        _ => None,
-                    })
-                    .collect();
-                out.push((sum, rate));
-            }
-        }
-    }
-    out
 }
 
 /// Steps of one connection and size that nothing declared explains, gathered
@@ -666,6 +611,7 @@ fn runs_apart_of(mine: &[(i64, i64)], theirs: &[(i64, i64)], seen: usize) -> boo
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::audit::check::fit::coincidences;
     use crate::audit::check::hypothesis::declared_metering;
     use crate::audit::check::testkit::{on_off, split_phase, H};
 
