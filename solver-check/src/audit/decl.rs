@@ -252,7 +252,8 @@ pub struct Inverter {
     /// self-consumption answers every step within seconds) rather than the sun.
     pub follows_home: bool,
     /// The most it can deliver, W (a PV inverter's AC rating, a battery's
-    /// power), if declared: a change of power larger than this is not its own.
+    /// power), if declared: a PV array's power changes by no more than this
+    /// (a battery's answers are doubted whatever their size).
     pub rating_w: Option<f64>,
     /// For a PV inverter whose site is known: whether its sun may be up at
     /// a moment (UTC ms); a step when it is not cannot be the array's.

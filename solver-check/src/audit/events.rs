@@ -51,6 +51,13 @@ pub const ABS_TOL_W: f64 = 25.0;
 pub const REL_TOL: f64 = 0.025;
 /// Steps smaller than this on every channel are not kept, W.
 pub const MIN_STEP_W: f64 = 60.0;
+/// Tolerance of the row tests (a conductor power clearly negative; two
+/// channels reading apart), W, plus [`ROW_TOL_REL`] of the power: above
+/// three standard deviations of a 1 %-noise meter with a CT's gain error
+/// (common practice, no source).
+pub const ROW_TOL_W: f64 = 30.0;
+/// The relative part of [`ROW_TOL_W`], share of the apparent power.
+pub const ROW_TOL_REL: f64 = 0.05;
 
 /// Per-channel counts for orientation and missing-CT checks.
 #[derive(Clone, Debug, Default)]
@@ -462,7 +469,7 @@ impl Detector {
             if s.abs() < 5.0 {
                 st.zero += 1;
             }
-            let thr = -(30.0 + 0.05 * s.abs());
+            let thr = -(ROW_TOL_W + ROW_TOL_REL * s.abs());
             for (b, us) in self.units[c].iter().enumerate() {
                 for (k, u) in us.iter().enumerate() {
                     // The conductor's power if this channel reads u · S_b.
@@ -529,23 +536,27 @@ impl Detector {
         }
     }
 
-    /// Counts, for every two channels that read this row, whether they read
-    /// as two CTs on one conductor would ([`ChannelStats::apart`]): alike
-    /// up to the sign and the angle between their voltages, within 30 W
-    /// plus 5 % of the larger (the sign test's tolerance; two CTs differ by
-    /// their gain errors and the meter's noise).
+    /// Counts, for every two channels c < b that read this row, whether
+    /// they read as two CTs on one conductor would ([`ChannelStats::apart`],
+    /// kept on the first of the two): alike up to the sign and the ratio of
+    /// their voltages (the angle between them, and their magnitudes where
+    /// measured: a load on one leg sags it), within [`ROW_TOL_W`] plus
+    /// [`ROW_TOL_REL`] of the larger (two CTs differ by their gain errors
+    /// and the meter's noise).
     fn count_pairs(&mut self, p: &[f64], q: &[f64]) {
         let n = self.n;
         let read = |c: usize| (!p[c].is_nan() && !q[c].is_nan()).then(|| C64::new(p[c], q[c]));
         for c in 0..n {
             let Some(sc) = read(c) else { continue };
-            for b in (0..n).filter(|&b| b != c) {
+            for b in c + 1..n {
                 let Some(sb) = read(b) else { continue };
-                let tol = 30.0 + 0.05 * sc.abs().max(sb.abs());
+                let (vc, vb) = (self.last_v[c], self.last_v[b]);
+                let ratio = if vc > 0.0 && vb > 0.0 { vc / vb } else { 1.0 };
+                let tol = ROW_TOL_W + ROW_TOL_REL * sc.abs().max(sb.abs());
                 let st = &mut self.stats[c];
                 st.paired[b] += 1;
                 for (k, u) in self.units[c][b].iter().enumerate() {
-                    if (sc - sb * *u).abs() > tol {
+                    if (sc - sb * u.scale(ratio)).abs() > tol {
                         st.apart[b][k] += 1;
                     }
                 }
@@ -676,12 +687,16 @@ mod tests {
                 d.push(i as i64 * 10_000, p, &[0.0, 0.0], &[120.0, 120.0]);
             }
             let st = d.finish().1;
-            (st[0].paired[1], st[0].apart[1], st[1].apart[0])
+            (
+                st[0].paired[1],
+                st[0].apart[1],
+                st[1].apart.first().copied(),
+            )
         };
         let one = pairs(&[[500.0, -505.0], [1500.0, -1490.0], [200.0, -190.0]]);
         assert_eq!(
             one,
-            (3, [0, 3], [0, 3]),
+            (3, [0, 3], Some([0, 0])),
             "in sign: alike; the other sign: apart"
         );
         let two = pairs(&[
@@ -692,8 +707,8 @@ mod tests {
         ]);
         assert_eq!(
             two,
-            (3, [3, 3], [3, 3]),
-            "a row one channel misses is no pair"
+            (3, [3, 3], Some([0, 0])),
+            "a row one channel misses is no pair; each pair is kept once"
         );
     }
 }

@@ -1,7 +1,7 @@
 //! What the audit reports: the kinds of mistake and their JSON names,
 //! verdicts, findings, and the doubts that list a finding as possible.
 
-use super::fit::{TOL_ABS_W, TOL_REL};
+use super::fit::tol;
 use super::thresholds::Thresholds;
 use crate::audit::decl::Declared;
 use serde_json::Value;
@@ -200,7 +200,8 @@ pub(super) fn same_wiring_name(a: &str, b: &str) -> bool {
 /// A PV array's doing is ruled out by its steps' size or times: a step
 /// larger than the inverter's declared rating (beyond the tolerance steps
 /// are fitted by) is not its own, nor are `th.dark_steps` steps taken while
-/// its sun is down (evidence `dark_steps`, [`dark_steps`]).
+/// its sun is down (evidence `dark_steps`, [`dark_steps_in`]); a
+/// `dark_steps` of 0 turns that test off.
 pub(super) fn generation_doubt(d: &Declared, f: &Finding, th: &Thresholds) -> Option<String> {
     if f.kind.is_metering() {
         return None;
@@ -211,17 +212,20 @@ pub(super) fn generation_doubt(d: &Declared, f: &Finding, th: &Thresholds) -> Op
     let on = f.evidence["found"]
         .as_str()
         .or_else(|| f.evidence["wiring"].as_str())?;
-    let pv = d
+    let pvs: Vec<_> = d
         .generation
         .iter()
-        .find(|g| same_wiring_name(&g.wiring.name(), on))?;
+        .filter(|g| same_wiring_name(&g.wiring.name(), on))
+        .collect();
+    let pv = pvs.first()?;
     let size = f.evidence["step_w"]
         .as_f64()
         .or_else(|| f.evidence["p_w"].as_f64())
-        .unwrap_or(0.0);
-    let beyond = pv
-        .rating_w
-        .is_some_and(|r| size > r + TOL_ABS_W + TOL_REL * r);
+        .unwrap_or(0.0)
+        .abs();
+    // Several arrays on one wiring may change together: their ratings add.
+    let rating: Option<f64> = pvs.iter().map(|g| g.rating_w).sum();
+    let beyond = rating.is_some_and(|r| size > r + tol(r));
     let dark = f.evidence["dark_steps"].as_u64().unwrap_or(0) as usize;
     if beyond || (th.dark_steps > 0 && dark >= th.dark_steps) {
         return None;
@@ -235,7 +239,7 @@ pub(super) fn generation_doubt(d: &Declared, f: &Finding, th: &Thresholds) -> Op
 /// How many of the moments `times` (UTC ms) every declared PV array on
 /// wiring `on` is known to be dark at (its sun below the horizon): steps
 /// then are not the arrays' doing. None on that wiring: 0.
-pub(super) fn dark_steps(d: &Declared, on: &str, times: impl Iterator<Item = i64>) -> usize {
+pub(super) fn dark_steps_in(d: &Declared, on: &str, times: impl Iterator<Item = i64>) -> usize {
     let pvs: Vec<_> = d
         .generation
         .iter()
@@ -340,9 +344,9 @@ mod tests {
             "a run in the dark"
         );
         let times = [2 * HOUR, 7 * HOUR, 17 * HOUR, 23 * HOUR, 26 * HOUR];
-        assert_eq!(dark_steps(&d, "L1-N", times.into_iter()), 3);
+        assert_eq!(dark_steps_in(&d, "L1-N", times.into_iter()), 3);
         assert_eq!(
-            dark_steps(&d, "L2-N", times.into_iter()),
+            dark_steps_in(&d, "L2-N", times.into_iter()),
             0,
             "no array there"
         );

@@ -536,7 +536,6 @@ pub(super) fn distances(
         .collect()
 }
 
-#[allow(clippy::too_many_arguments)]
 /// Two declared appliances switching in one interval make one step, their
 /// sum. Each sum of two jumps of two appliances (either the same way or
 /// opposite ways), with how often such a coincidence is expected in the

@@ -4,7 +4,7 @@
 //! connection, and the moves made one at a time.
 
 use super::finding::{
-    coarse_doubt, dark_steps, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict,
+    coarse_doubt, dark_steps_in, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict,
 };
 use super::fit::{
     coincidences, dist_delta, dist_model, distances, poisson_tail, predicted, shape_of, tol,
@@ -460,7 +460,7 @@ impl Round<'_> {
     /// wiring was dark (evidence `dark_steps`, for the doubt a PV raises).
     fn count_dark(&self, f: &mut Finding, found: &str, steps: &[usize]) {
         let times = steps.iter().map(|&k| self.used[k].time_ms);
-        f.evidence["dark_steps"] = json!(dark_steps(self.d, found, times));
+        f.evidence["dark_steps"] = json!(dark_steps_in(self.d, found, times));
     }
 
     /// Why moving appliance `j` (as placed, `a`) from one line to neutral to
@@ -715,9 +715,10 @@ fn steps_fitting(
 
 /// Steps among `used` that fit appliance `b` as wired, and how many steps
 /// a window that wide gets by chance: the mean of the steps that fit it
-/// scaled to the sizes just below and just above its tolerance (two
-/// tolerances away from its largest step, so the three windows do not
-/// overlap), those that fit it unscaled left out (one of its other step
+/// scaled to the sizes just below and just above its tolerance (its
+/// largest step scaled by two relative tolerances either way; the window
+/// above may reach into its own, so the steps that fit it unscaled are
+/// left out of both neighbours: one of its other step
 /// sizes, or a weather-driven input, may fall there). A load of its size
 /// makes a peak over its neighbours; other loads' steps and their sums at
 /// a coarse interval fill every size about alike.
@@ -742,7 +743,9 @@ fn against_background(
 /// Whether more steps fit appliance `b` as wired than its neighbouring
 /// sizes get by chance ([`against_background`]), beyond a Poisson chance
 /// of `coincidence_p` (the cut-off a cluster of steps is a load of its own
-/// by): a load of its size switches there.
+/// by): a load of its size switches there. The background is taken as half
+/// a step at least: estimated from two windows, none seen in them does not
+/// make a chance step impossible (with none, five steps are needed).
 pub(super) fn beyond_chance(
     d: &Declared,
     m: &Metering,
@@ -752,7 +755,7 @@ pub(super) fn beyond_chance(
     th: &Thresholds,
 ) -> bool {
     let (n, background) = against_background(d, m, used, cxs, b);
-    poisson_tail(background, n) < th.coincidence_p
+    poisson_tail(background.max(0.5), n) < th.coincidence_p
 }
 
 /// The checks a coarse interval needs: at a row a minute or more, loads

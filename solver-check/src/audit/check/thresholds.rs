@@ -15,7 +15,7 @@ pub struct Thresholds {
     pub negative_ok: f64,
     /// Largest share of rows in which two channels a metering has read one
     /// conductor may read otherwise than two CTs on one conductor do (alike
-    /// up to sign and the angle between their voltages): gaps in one
+    /// up to sign and the ratio of their voltages): gaps in one
     /// channel, a CT's gain error beyond the tolerance. Two CTs really on
     /// one conductor read apart in hardly any row; channels on two
     /// conductors, in most rows where either carries a load.
@@ -329,7 +329,7 @@ pub const CUTOFFS: [Cutoff; 19] = [
     },
     Cutoff {
         name: "dark_steps",
-        meaning: "steps of a placement or undeclared load on a declared PV array's wiring, taken while its sun is down, that make it no doing of the array's",
+        meaning: "steps of a placement or undeclared load on a declared PV array's wiring, taken while its sun is down, that make it no doing of the array's (0 turns the test off)",
         range: (0.0, 1e6),
         count: true,
         get: |t| t.dark_steps as f64,

@@ -3,7 +3,7 @@
 //! declared appliances, with their energy share.
 
 use super::finding::{
-    coarse_doubt, dark_steps, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict,
+    coarse_doubt, dark_steps_in, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict,
 };
 use super::fit::{
     connection_of, dist_delta, distances, poisson_tail, predicted, shape_of, tol, Ctx, Pred,
@@ -292,7 +292,7 @@ pub(super) fn undeclared_finding(
         // start), a tenth each: steps seen one way only count for
         // nothing (at 10 s, starts of declared loads straddling rows).
         confidence: (start_stop_pairs(&c.on, &c.off).len() as f64 / 10.0).min(1.0),
-        evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "coincidences_expected": expected, "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring, "energy_share": share, "first_starts": first(&c.on), "first_stops": first(&c.off), "first_starts_local": first_local(&c.on, &d.timezone), "dark_steps": dark_steps(d, &c.wiring, c.on.iter().chain(&c.off).copied()) }),
+        evidence: json!({ "starts": c.on.len(), "stops": c.off.len(), "coincidences_expected": expected, "p_w": c.s.re, "q_var": c.s.im, "wiring": c.wiring, "energy_share": share, "first_starts": first(&c.on), "first_stops": first(&c.off), "first_starts_local": first_local(&c.on, &d.timezone), "dark_steps": dark_steps_in(d, &c.wiring, c.on.iter().chain(&c.off).copied()) }),
         doubt: None,
     })
 }
@@ -334,7 +334,9 @@ impl UndeclaredStage<'_> {
             .iter()
             .filter_map(|c| {
                 let mut f = undeclared_finding(self.d, c, self.sums, self.total_wh, self.th)?;
-                f.doubt = self.coarse(c, &clusters).or_else(|| self.doubt(c));
+                f.doubt = self
+                    .coarse_load_doubt(c, &clusters)
+                    .or_else(|| self.doubt(c));
                 Some(f)
             })
             .collect()
@@ -358,7 +360,7 @@ impl UndeclaredStage<'_> {
     /// An appliance whose steps show where it is placed beyond what its
     /// neighbouring sizes get by chance ([`beyond_chance`]) is there: a load
     /// of its size elsewhere is another, and its size does not count.
-    fn coarse(&self, c: &Cluster, all: &[Cluster]) -> Option<String> {
+    fn coarse_load_doubt(&self, c: &Cluster, all: &[Cluster]) -> Option<String> {
         let doubt = coarse_doubt(Kind::UndeclaredLoad, self.interval_s, self.th)?;
         let runs = start_stop_pairs(&c.on, &c.off).len();
         let (most, fewest) = (c.on.len().max(c.off.len()), c.on.len().min(c.off.len()));
