@@ -942,7 +942,7 @@ fn several_moves_doubt(findings: &mut [Finding], n_moved: usize, interval_s: f64
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::audit::check::testkit::{on_off, split_phase, H};
+    use crate::audit::check::testkit::{day_stats, on_off, split_phase, H};
 
     /// The fault-matrix case the rule was made for (10 s): a hair dryer's
     /// half-heat step 0.22 tolerances from its own and 0.81 from a
@@ -978,19 +978,18 @@ mod tests {
             .collect()
     }
 
-    /// A day of 1 s rows on `lines` channels, for the metering checks.
-    fn day_stats(lines: usize) -> Vec<crate::audit::events::ChannelStats> {
-        vec![
-            crate::audit::events::ChannelStats {
-                rows: 86_400,
-                null: 0,
-                zero: 0,
-                sum_p: 200.0 * 86_400.0,
-                negative: vec![[0, 86_400]; lines],
-                ..Default::default()
-            };
-            lines
-        ]
+    /// A 2 kW heat pump on L1-N whose compressor starts at two inputs the
+    /// outdoor temperature gives it (0.8 and 1 of its power), stopping from
+    /// either.
+    fn weather_heat_pump() -> DeclAppliance {
+        let mut hp = on_off("heat_pump", 0, C64::new(2000.0, 0.0));
+        hp.steps = crate::audit::decl::Steps::Jumps(vec![
+            (0, 1, 0.8, 1.0),
+            (1, 0, 1.0, 0.8),
+            (0, 1, 1.0, 1.0),
+            (1, 0, 1.0, 1.0),
+        ]);
+        hp
     }
 
     /// A heat pump's compressor switched at two inputs the outdoor
@@ -1002,13 +1001,7 @@ mod tests {
     fn a_steps_sizes_at_the_weathers_inputs_count_as_one() {
         use crate::audit::decl::Steps;
         let d = split_phase(vec![]);
-        let mut hp = on_off("heat_pump", 0, C64::new(2000.0, 0.0));
-        hp.steps = Steps::Jumps(vec![
-            (0, 1, 0.8, 1.0),
-            (1, 0, 1.0, 0.8),
-            (0, 1, 1.0, 1.0),
-            (1, 0, 1.0, 1.0),
-        ]);
+        let hp = weather_heat_pump();
         assert_eq!(step_groups(&d, &hp), [0, 0]);
         let mut ev = on_off("ev", 0, C64::new(2000.0, 0.0));
         ev.steps = Steps::Jumps(vec![(0, 1, 1.0, 1.0), (1, 0, 1.0, 0.4)]);
@@ -1026,16 +1019,9 @@ mod tests {
     #[test]
     fn a_heat_pump_is_placed_by_the_input_the_weather_gave_it() {
         use crate::audit::check::check;
-        use crate::audit::decl::Steps;
-        let mut hp = on_off("heat_pump", 0, C64::new(2000.0, 0.0));
-        hp.steps = Steps::Jumps(vec![
-            (0, 1, 0.8, 1.0),
-            (1, 0, 1.0, 0.8),
-            (0, 1, 1.0, 1.0),
-            (1, 0, 1.0, 1.0),
-        ]);
+        let hp = weather_heat_pump();
         let d = split_phase(vec![hp]);
-        let o = check(&d, &runs_on(2, 1, 1600.0, 4, 0), &day_stats(2), 1.0);
+        let o = check(&d, &runs_on(2, 1, 1600.0, 4, 0), &day_stats(2, 200.0), 1.0);
         let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(found, ["heat_pump"], "{:?} {:?}", o.possible, o.appliances);
     }
@@ -1055,7 +1041,7 @@ mod tests {
             kettle.clone(),
             on_off("microwave", 0, C64::new(1450.0, 0.0)),
         ]);
-        let o = check(&d, &events, &day_stats(2), 1.0);
+        let o = check(&d, &events, &day_stats(2, 200.0), 1.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
         let moved = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
         assert!(
@@ -1063,7 +1049,7 @@ mod tests {
             "{moved:?}"
         );
         let d = split_phase(vec![kettle, on_off("dishwasher", 0, C64::new(1165.0, 0.0))]);
-        let o = check(&d, &runs_on(2, 1, 1500.0, 4, 0), &day_stats(2), 1.0);
+        let o = check(&d, &runs_on(2, 1, 1500.0, 4, 0), &day_stats(2, 200.0), 1.0);
         let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(found, ["kettle"], "{:?}", o.possible);
     }
@@ -1082,7 +1068,7 @@ mod tests {
             on_off("washer", 2, C64::new(2100.0, 0.0)),
         ]);
         let mut events = runs_on(3, 1, 2000.0, 4, 0);
-        let o = check(&d, &events, &day_stats(3), 1.0);
+        let o = check(&d, &events, &day_stats(3, 200.0), 1.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
         let moved = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
         assert!(
@@ -1094,7 +1080,7 @@ mod tests {
             "{moved:?}"
         );
         events.extend(runs_on(3, 2, 2100.0, 3, H / 2));
-        let o = check(&d, &events, &day_stats(3), 1.0);
+        let o = check(&d, &events, &day_stats(3, 200.0), 1.0);
         let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(found, ["kettle"], "{:?}", o.possible);
     }
@@ -1145,7 +1131,7 @@ mod tests {
             on_off("kettle", 0, C64::new(1500.0, 0.0)),
             on_off("heater", 1, C64::new(1450.0, 0.0)),
         ]);
-        let o = check(&d, &runs_on(2, 1, 1500.0, 4, 0), &day_stats(2), 1.0);
+        let o = check(&d, &runs_on(2, 1, 1500.0, 4, 0), &day_stats(2, 200.0), 1.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
         let moved = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
         let why = moved.doubt.as_deref().unwrap();
@@ -1388,10 +1374,15 @@ mod tests {
     fn a_coarse_move_of_many_steps_none_where_declared_is_a_finding() {
         use crate::audit::check::check;
         let d = split_phase(vec![on_off("kettle", 0, C64::new(1500.0, 0.0))]);
-        let o = check(&d, &runs_on(2, 1, 1500.0, 12, 0), &day_stats(2), 60.0);
+        let o = check(
+            &d,
+            &runs_on(2, 1, 1500.0, 12, 0),
+            &day_stats(2, 200.0),
+            60.0,
+        );
         let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(found, ["kettle"], "{:?}", o.possible);
-        let o = check(&d, &runs_on(2, 1, 1500.0, 6, 0), &day_stats(2), 60.0);
+        let o = check(&d, &runs_on(2, 1, 1500.0, 6, 0), &day_stats(2, 200.0), 60.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
         let moved = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
         assert!(
@@ -1417,10 +1408,10 @@ mod tests {
             events.extend(runs_on(2, 0, w, 5, at));
         }
         events.sort_by_key(|e| e.time_ms);
-        let o = check(&d, &events, &day_stats(2), 10.0);
+        let o = check(&d, &events, &day_stats(2, 200.0), 10.0);
         assert_eq!(o.appliances[0].verdict, Verdict::AsDeclared);
         assert!(!o.possible.iter().any(|f| f.subject == "kettle"));
-        let o = check(&d, &events, &day_stats(2), 60.0);
+        let o = check(&d, &events, &day_stats(2, 200.0), 60.0);
         assert!(o.findings.iter().all(|f| f.subject != "kettle"));
         let moved = o.possible.iter().find(|f| f.subject == "kettle");
         let moved = moved.unwrap_or_else(|| panic!("{:?} {:?}", o.appliances, o.possible));
@@ -1467,14 +1458,7 @@ mod tests {
     #[test]
     fn an_appliances_own_other_sizes_are_no_background() {
         use crate::audit::check::hypothesis::declared_metering;
-        use crate::audit::decl::Steps;
-        let mut hp = on_off("heat_pump", 0, C64::new(2000.0, 0.0));
-        hp.steps = Steps::Jumps(vec![
-            (0, 1, 0.8, 1.0),
-            (1, 0, 1.0, 0.8),
-            (0, 1, 1.0, 1.0),
-            (1, 0, 1.0, 1.0),
-        ]);
+        let hp = weather_heat_pump();
         let d = split_phase(vec![hp.clone()]);
         let m = declared_metering(&d, &[false, false]);
         let mut events = runs_on(2, 0, 1600.0, 5, 0);

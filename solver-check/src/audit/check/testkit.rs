@@ -68,3 +68,19 @@ fn home(kind: SupplyKind, voltage_v: f64, appliances: Vec<DeclAppliance>) -> Dec
         generation: vec![],
     }
 }
+
+/// A day of 1 s rows on `lines` channels, each reading `mean_w` on
+/// average and never negative, for the metering checks.
+pub(super) fn day_stats(lines: usize, mean_w: f64) -> Vec<crate::audit::events::ChannelStats> {
+    vec![
+        crate::audit::events::ChannelStats {
+            rows: 86_400,
+            null: 0,
+            zero: 0,
+            sum_p: mean_w * 86_400.0,
+            negative: vec![[0, 86_400]; lines],
+            ..Default::default()
+        };
+        lines
+    ]
+}

@@ -615,7 +615,7 @@ mod tests {
     use super::*;
     use crate::audit::check::fit::coincidences;
     use crate::audit::check::hypothesis::declared_metering;
-    use crate::audit::check::testkit::{on_off, split_phase, H};
+    use crate::audit::check::testkit::{day_stats, on_off, split_phase, H};
 
     /// Starts each followed by a stop within 12 h pair up; a stop before
     /// any start, or one more than 12 h later, does not.
@@ -1082,21 +1082,6 @@ mod tests {
         }
     }
 
-    /// Channel stats of a day at 1 s with 500 W on both lines.
-    fn day_stats() -> Vec<ChannelStats> {
-        vec![
-            ChannelStats {
-                rows: 86_400,
-                null: 0,
-                zero: 0,
-                sum_p: 500.0 * 86_400.0,
-                negative: vec![[0, 86_400]; 2],
-                ..Default::default()
-            };
-            2
-        ]
-    }
-
     /// A 1.3 kW microwave declared on L1-N, to start twice a day, not seen:
     /// a left-out 1.1 kW load there (within a fifth of its size) that runs
     /// thirty times in 45 h is not the microwave drawing other than its
@@ -1121,17 +1106,17 @@ mod tests {
             a.starts_per_day = habit;
             split_phase(vec![a])
         };
-        let o = check(&microwave(Some(2.0)), &runs(30), &day_stats(), 10.0);
+        let o = check(&microwave(Some(2.0)), &runs(30), &day_stats(2, 500.0), 10.0);
         let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(found, ["1100 W on L1-N"], "{:?}", o.possible);
-        let o = check(&microwave(Some(2.0)), &runs(8), &day_stats(), 10.0);
+        let o = check(&microwave(Some(2.0)), &runs(8), &day_stats(2, 500.0), 10.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
         assert!(o.possible[0]
             .doubt
             .as_ref()
             .unwrap()
             .contains("within 20 %"));
-        let o = check(&microwave(None), &runs(30), &day_stats(), 10.0);
+        let o = check(&microwave(None), &runs(30), &day_stats(2, 500.0), 10.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
     }
 }
