@@ -330,12 +330,22 @@ impl UndeclaredStage<'_> {
                     behaves_as_a_load(&c.on, &c.off) && !start_stop_pairs(&c.on, &c.off).is_empty()
                 })
                 .collect();
+        // Whether each appliance as placed shows there beyond chance: asked
+        // of every cluster at a coarse interval, counted once.
+        let placed_beyond: Vec<bool> = if self.interval_s >= self.th.coarse_interval_s {
+            self.placed
+                .iter()
+                .map(|a| beyond_chance(self.d, self.m, self.events, self.cxs, a, self.th))
+                .collect()
+        } else {
+            Vec::new()
+        };
         clusters
             .iter()
             .filter_map(|c| {
                 let mut f = undeclared_finding(self.d, c, self.sums, self.total_wh, self.th)?;
                 f.doubt = self
-                    .coarse_load_doubt(c, &clusters)
+                    .coarse_load_doubt(c, &clusters, &placed_beyond)
                     .or_else(|| self.doubt(c));
                 Some(f)
             })
@@ -359,8 +369,14 @@ impl UndeclaredStage<'_> {
     /// cluster's of `all` on its connection ([`UndeclaredStage::fragment`]).
     /// An appliance whose steps show where it is placed beyond what its
     /// neighbouring sizes get by chance ([`beyond_chance`]) is there: a load
-    /// of its size elsewhere is another, and its size does not count.
-    fn coarse_load_doubt(&self, c: &Cluster, all: &[Cluster]) -> Option<String> {
+    /// of its size elsewhere is another, and its size does not count
+    /// (`placed_beyond`, one per appliance as placed).
+    fn coarse_load_doubt(
+        &self,
+        c: &Cluster,
+        all: &[Cluster],
+        placed_beyond: &[bool],
+    ) -> Option<String> {
         let doubt = coarse_doubt(Kind::UndeclaredLoad, self.interval_s, self.th)?;
         let runs = start_stop_pairs(&c.on, &c.off).len();
         let (most, fewest) = (c.on.len().max(c.off.len()), c.on.len().min(c.off.len()));
@@ -375,8 +391,9 @@ impl UndeclaredStage<'_> {
             .placed
             .iter()
             .zip(&self.d.appliances)
-            .filter(|(a, _)| !beyond_chance(self.d, self.m, self.events, self.cxs, a, self.th))
-            .flat_map(|(a, b)| [a, b])
+            .zip(placed_beyond)
+            .filter(|(_, beyond)| !**beyond)
+            .flat_map(|((a, b), _)| [a, b])
             .flat_map(|a| {
                 std::iter::once(a.clone())
                     .chain(alternatives(self.d, a).into_iter().map(|(_, b)| b))
