@@ -28,7 +28,10 @@ monitor's export without a manifest: P and V per line in CSV with naive
 local times (10 s), P only in Parquet with zoned times or in CSV with naive
 local times (1 min).
 
-    .venv/bin/python tests/python/audit_outside.py --cases 300 --seed 1 [--jobs 2] [--json OUT]
+    .venv/bin/python tests/python/audit_outside.py --cases 300 --seed 1 [--jobs 2] [--json OUT] [--cutoff NAME=VALUE]…
+
+`--cutoff` hands a cut-off to every audit (as `loadloom audit --cutoff`
+does), so one can be swept against the development seeds.
 
 Seeds: 1 (the README's set), 2, 3 and 7 (CI's subset) are the development
 seeds the audit may be looked at against. Held out, each run once to
@@ -805,7 +808,7 @@ def export(case, data, d):
     return d / "export.csv"
 
 
-def run_case(case, work):
+def run_case(case, work, cutoffs=()):
     text = homes()[case["home"]]
     d = pathlib.Path(work) / f"case{case['i']}"
     d.mkdir(parents=True, exist_ok=True)
@@ -817,7 +820,9 @@ def run_case(case, work):
     data = d / "out" / "home"
     truth = pq.read_table(data / "truth.parquet")
     data = export(case, data, d)
-    p = subprocess.run([BIN, "audit", data, "--declared", d / "declared.toml", "--json"], capture_output=True, text=True)
+    cut = [x for c in cutoffs for x in ("--cutoff", c)]
+    p = subprocess.run([BIN, "audit", data, "--declared", d / "declared.toml", "--json", *cut],
+                       capture_output=True, text=True)
     shown = [shows(m, case, truth) for m in case["mistakes"]]
     out = {**case, "exercised": [why is None for why in shown], "why_not": shown,
            "unlisted": unlisted(case, text)}
@@ -1060,10 +1065,10 @@ def row(kind, c, decided, fnd):
             f"{c['found']} | {rec} | {fnd} | {c['correct']} | {prec} |")
 
 
-def run(cases, seed, jobs, work):
+def run(cases, seed, jobs, work, cutoffs=()):
     todo = [make_case(i, seed) for i in range(cases)]
     with concurrent.futures.ThreadPoolExecutor(jobs) as ex:
-        return list(ex.map(lambda c: run_case(c, work), todo))
+        return list(ex.map(lambda c: run_case(c, work, cutoffs), todo))
 
 
 def main():
@@ -1073,9 +1078,11 @@ def main():
     ap.add_argument("--jobs", type=int, default=2)
     ap.add_argument("--json", help="write every case with its report here")
     ap.add_argument("--keep", help="keep the cases' files in this folder")
+    ap.add_argument("--cutoff", action="append", default=[], metavar="NAME=VALUE",
+                    help="audit with this cut-off changed (`loadloom audit --cutoff`), to sweep one")
     a = ap.parse_args()
     with tempfile.TemporaryDirectory() as tmp:
-        res = run(a.cases, a.seed, a.jobs, a.keep or tmp)
+        res = run(a.cases, a.seed, a.jobs, a.keep or tmp, a.cutoff)
     print(table(*score(res)))
     errs = [r for r in res if "error" in r]
     for r in errs[:10]:

@@ -119,7 +119,7 @@ def test_a_bad_cutoff_exits_2_listing_the_names(case, bad):
     assert p.returncode == 2, p.stderr
     assert p.stdout == ""
     names = re.findall(r"(\w+) \(standard ([\d.]+),", p.stderr)
-    assert len(names) == 19, p.stderr
+    assert len(names) == 20, p.stderr
 
 
 def test_the_readme_lists_every_cutoff_with_its_standard_value(case):

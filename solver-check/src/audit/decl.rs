@@ -311,18 +311,22 @@ impl Declared {
         self.distinct_jumps(a).into_iter().map(|(_, d)| d).collect()
     }
 
+    /// Per-line step of jump `j` of appliance `a`, at nominal voltage.
+    pub fn jump_step(&self, a: &DeclAppliance, (from, to, kt, kf): Jump) -> Vec<C64> {
+        let (sf, st) = (self.state_split(a, from), self.state_split(a, to));
+        st.iter()
+            .zip(&sf)
+            .map(|(t, f)| t.scale(kt) - f.scale(kf))
+            .collect()
+    }
+
     /// The jumps that make a step of their own (a jump and its reverse, or
     /// two jumps with the same step, count once), each with its per-line
     /// step at nominal voltage.
     pub fn distinct_jumps(&self, a: &DeclAppliance) -> Vec<(Jump, Vec<C64>)> {
         let mut v: Vec<(Jump, Vec<C64>)> = Vec::new();
-        for &(from, to, kt, kf) in a.steps.jumps() {
-            let (sf, st) = (self.state_split(a, from), self.state_split(a, to));
-            let d: Vec<C64> = st
-                .iter()
-                .zip(&sf)
-                .map(|(t, f)| t.scale(kt) - f.scale(kf))
-                .collect();
+        for &jump in a.steps.jumps() {
+            let d = self.jump_step(a, jump);
             let size = d.iter().map(|c| c.abs()).fold(0.0, f64::max);
             if size > 0.0
                 && !v.iter().any(|(_, w)| {
@@ -331,7 +335,7 @@ impl Declared {
                         .all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)
                 })
             {
-                v.push(((from, to, kt, kf), d));
+                v.push((jump, d));
             }
         }
         v

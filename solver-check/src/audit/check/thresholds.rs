@@ -84,13 +84,21 @@ pub struct Thresholds {
     pub partial_move: usize,
     /// Runs seen whole (a start, then its stop) that make an undeclared load
     /// at a coarse interval a finding rather than possible, when its starts
-    /// and stops balance and its size is neither a declared jump nor the sum
-    /// or difference of two: loads that happen to switch within one row do
+    /// and stops balance, its size is no declared jump and coincidences of
+    /// two make few of its steps (`composite_share`): loads that happen to switch within one row do
     /// not repeat at one size, starting and stopping alike, ten times
     /// (common practice, no source). Twice as many steps, beyond chance where
     /// found and not where declared, make a move at a coarse interval a
     /// finding (`coarse_move_doubt`).
     pub coarse_runs: usize,
+    /// Share of a coarse cluster's steps that two declared appliances
+    /// switching within one row are expected to make (the summed rates of
+    /// the sums and differences of two declared jumps of its size) from
+    /// which it is possible only: a quarter. Steps of its size that
+    /// coincidences make at a fourth of its count or more leave too little
+    /// apart from them to call it a load of its own (common practice, no
+    /// source); far fewer expected than seen is a load repeating at its size.
+    pub composite_share: f64,
     /// Steps a declared appliance must explain under one of two meterings
     /// and not the other to take that one's side in their dispute: one run
     /// (a start and a stop); a single step is as likely another load's.
@@ -146,6 +154,7 @@ impl Thresholds {
         decide_w: 300.0,
         partial_move: 6,
         coarse_runs: 10,
+        composite_share: 0.25,
         dispute_run_steps: 2,
         dispute_ratio: 2.0,
         dispute_apps: 2,
@@ -182,7 +191,7 @@ impl Cutoff {
 }
 
 /// Every cut-off of [`Thresholds`], in the order of its fields.
-pub const CUTOFFS: [Cutoff; 19] = [
+pub const CUTOFFS: [Cutoff; 20] = [
     Cutoff {
         name: "possible",
         meaning: "confidence below which a finding is listed apart as possible",
@@ -281,11 +290,19 @@ pub const CUTOFFS: [Cutoff; 19] = [
     },
     Cutoff {
         name: "coarse_runs",
-        meaning: "runs seen whole that make an undeclared load at a coarse interval a finding (starts and stops alike, no declared jump's size nor two's), and twice as many steps a move",
+        meaning: "runs seen whole that make an undeclared load at a coarse interval a finding (starts and stops alike, no declared jump's size, far more than coincidences of two make), and twice as many steps a move",
         range: (0.0, 1e6),
         count: true,
         get: |t| t.coarse_runs as f64,
         set: |t, v| t.coarse_runs = v as usize,
+    },
+    Cutoff {
+        name: "composite_share",
+        meaning: "share of a coarse undeclared load's steps that two declared appliances switching within one row are expected to make, from which it is only possible",
+        range: (0.0, 1.0),
+        count: false,
+        get: |t| t.composite_share,
+        set: |t, v| t.composite_share = v,
     },
     Cutoff {
         name: "dispute_run_steps",
