@@ -4,13 +4,13 @@
 //! another conductor, CTs or channels exchanged).
 
 use super::finding::{ApplianceCheck, Finding, Kind};
-use super::fit::{any_fits, explained, fits_of, predicted, steps_explained, Ctx, Fits};
+use super::fit::{any_fits, explained, fits, fits_of, predicted, steps_explained, Ctx, Fits};
 use super::hypothesis::{alternatives, declared_metering, permutations, ChanMap, Metering};
 use super::placement::{place, uncheckable_in, Window};
 use super::thresholds::Thresholds;
 use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::{ChannelStats, Event};
-use crate::contract::{line_label, line_name};
+use crate::contract::{line_label, line_name, C64};
 use serde_json::{json, Value};
 
 /// Every metering hypothesis with its cost (mistakes it supposes against
@@ -134,19 +134,19 @@ pub(super) fn apart_share(d: &Declared, m: &Metering, stats: &[ChannelStats]) ->
     worst
 }
 
-/// Why metering `chosen` may be its mirror image, every reading negated:
-/// where a home battery feeds every conductor its channels read, it may
-/// export at any hour, so no row's sign rules the mirror out, and a step
-/// fits both alike (a load switching on under one reads as one switching
-/// off under the other). On a split-phase supply two CTs exchanged and the
-/// two channels exchanged whole are such a pair. None where the mirror is
-/// not admissible or explains under 95 % of the steps `chosen` does.
-pub(super) fn mirror_doubt(
+/// The mirror image of metering `chosen`, every reading negated, where
+/// the data cannot rule it out by sign: a home battery feeds every
+/// conductor its channels read (it may export at any hour, so no row's
+/// sign rules the mirror out, and a step fits both alike), and the mirror
+/// is admissible and explains 95 % of the steps `chosen` does or more.
+/// Of several hypotheses that read alike (a channel exchanged whole, or
+/// its CT turned round) the one explaining most.
+pub(super) fn mirror_of(
     d: &Declared,
     mc: &MeteringChoice,
     chosen: usize,
     th: &Thresholds,
-) -> Option<String> {
+) -> Option<usize> {
     let sources = generation_on(d);
     let m = &mc.hyps[chosen].0;
     let read: Vec<usize> = (0..m.map.len()).filter(|&c| !m.absent[c]).collect();
@@ -157,8 +157,6 @@ pub(super) fn mirror_doubt(
     {
         return None;
     }
-    // Several hypotheses may read alike (a channel exchanged whole, or its
-    // CT turned round): the one explaining most speaks for them.
     let mirror = (0..mc.hyps.len())
         .filter(|&i| {
             let t = &mc.hyps[i].0;
@@ -168,9 +166,148 @@ pub(super) fn mirror_doubt(
         })
         .max_by_key(|&i| mc.scored[i].ex)?;
     let (ch, mi) = (&mc.scored[chosen], &mc.scored[mirror]);
-    if !mi.admissible(th) || (mi.ex as f64) < 0.95 * ch.ex as f64 {
+    (mi.admissible(th) && mi.ex as f64 >= 0.95 * ch.ex as f64).then_some(mirror)
+}
+
+/// Hours the declared appliances spend on and off as metering `m` reads
+/// the steps `big`: for each appliance, its steps (those its jumps fit) in
+/// time order, each an onward jump (towards more power, as its declaration
+/// gives it) or a return as its reading under `m` says; a return after an
+/// onward jump closes a time on, an onward jump after a return a time off
+/// (each 12 h at most; two alike in a row, one missed between, count
+/// nothing). Also how many such times were counted. Under the mirror
+/// image every step reads the other way, so the two sums swap. Only
+/// appliances whose largest step is `decide_w` or more count (smaller
+/// steps of many loads look alike), and a step the other way within a
+/// minute of the last is passed over: a battery that follows the home
+/// answers a step within seconds with one of its size the other way,
+/// which fits an appliance wired like it too.
+pub(super) fn on_off_hours(
+    d: &Declared,
+    m: &Metering,
+    big: &[&Event],
+    decide_w: f64,
+) -> (f64, f64, usize) {
+    const CAP_MS: f64 = 12.0 * 3_600_000.0;
+    let (mut on, mut off, mut n) = (0.0, 0.0, 0);
+    const ANSWER_MS: i64 = 60_000;
+    for a in d
+        .appliances
+        .iter()
+        .filter(|a| a.largest_step_w().abs() >= decide_w)
+    {
+        let jumps: Vec<(Vec<Option<C64>>, bool)> = d
+            .distinct_jumps(a)
+            .into_iter()
+            .map(|(_, step)| {
+                let onward = step.iter().map(|c| c.re).sum::<f64>() > 0.0;
+                (m.read(d, &step), onward)
+            })
+            .collect();
+        let mut last: Option<(i64, bool)> = None;
+        for e in big {
+            let Some((r, onward)) = jumps.iter().find(|(r, _)| fits(e, r)) else {
+                continue;
+            };
+            let along: f64 = e
+                .delta
+                .iter()
+                .zip(r)
+                .filter_map(|(x, r)| r.map(|r| x.re * r.re + x.im * r.im))
+                .sum();
+            let up = (along > 0.0) == *onward;
+            if let Some((t, was_up)) = last {
+                if was_up != up && e.time_ms - t < ANSWER_MS {
+                    continue;
+                }
+                if was_up != up {
+                    let dt = ((e.time_ms - t) as f64).min(CAP_MS) / 3_600_000.0;
+                    if was_up {
+                        on += dt;
+                    } else {
+                        off += dt;
+                    }
+                    n += 1;
+                }
+            }
+            last = Some((e.time_ms, up));
+        }
+    }
+    (on, off, n)
+}
+
+/// Which of metering `chosen` and its mirror image `mirror` the
+/// appliances' times on and off speak for ([`on_off_hours`]): a home's
+/// appliances are off far longer than on (a kettle minutes a day, a
+/// washer an hour or two, a fridge's compressor under half the time;
+/// common practice, no source), so the reading whose appliances are off
+/// at least twice as long as on is the right way round, given six such
+/// times or more (three runs). None when neither is, or when `chosen` has
+/// two channels read one conductor: the appliances of the conductor no
+/// CT reads are not seen, and steps of others pass for theirs.
+pub(super) fn orientation(
+    d: &Declared,
+    mc: &MeteringChoice,
+    chosen: usize,
+    mirror: usize,
+    big: &[&Event],
+    th: &Thresholds,
+) -> Option<usize> {
+    let m = &mc.hyps[chosen].0;
+    let read: Vec<usize> = (0..m.map.len())
+        .filter(|&c| !m.absent[c])
+        .map(|c| m.map[c].src)
+        .collect();
+    if (1..read.len()).any(|k| read[..k].contains(&read[k])) {
         return None;
     }
+    let (on, off, n) = on_off_hours(d, m, big, th.decide_w);
+    if n < 6 {
+        None
+    } else if off >= 2.0 * on {
+        Some(chosen)
+    } else if on >= 2.0 * off {
+        Some(mirror)
+    } else {
+        None
+    }
+}
+
+/// The metering chosen (`mc.chosen`) turned the way round the appliances'
+/// times on and off read it ([`orientation`]) where a battery lets its
+/// mirror image fit as well ([`mirror_of`]), and whether that stays open
+/// (neither way told).
+pub(super) fn orient(
+    d: &Declared,
+    mc: &MeteringChoice,
+    big: &[&Event],
+    th: &Thresholds,
+) -> (usize, bool) {
+    let Some(mirror) = mirror_of(d, mc, mc.chosen, th) else {
+        return (mc.chosen, false);
+    };
+    match orientation(d, mc, mc.chosen, mirror, big, th) {
+        Some(o) => (o, false),
+        None => (mc.chosen, true),
+    }
+}
+
+/// Why metering `chosen` may be its mirror image, every reading negated:
+/// where a home battery feeds every conductor its channels read, it may
+/// export at any hour, so no row's sign rules the mirror out, and a step
+/// fits both alike (a load switching on under one reads as one switching
+/// off under the other). On a split-phase supply two CTs exchanged and the
+/// two channels exchanged whole are such a pair. None where there is no
+/// such mirror ([`mirror_of`]); the caller asks it only when the
+/// appliances' times on and off did not tell the two apart
+/// ([`orientation`]).
+pub(super) fn mirror_doubt(
+    d: &Declared,
+    mc: &MeteringChoice,
+    chosen: usize,
+    th: &Thresholds,
+) -> Option<String> {
+    let mirror = mirror_of(d, mc, chosen, th)?;
     let mut theirs = Vec::new();
     metering_findings(
         d,
@@ -1147,6 +1284,98 @@ mod tests {
             v_after: vec![230.0; n],
             se: vec![2.0; n],
         }
+    }
+
+    /// A 1.5 kW kettle on L1-N boiling four times, three minutes each, four
+    /// hours apart, each start answered ten seconds later by a step of its
+    /// size the other way on l1 (a battery following the home); a 200 W
+    /// lamp on L2-N switching alike. As declared the kettle is on 0.2 h and
+    /// off 11.85 h (three gaps of 3.95 h); the lamp, under the 300 W that
+    /// counts, and the answers, within a minute, count nothing; the mirror
+    /// image reads the same steps the other way: the two sums swap.
+    /// Orientation follows: the declared reading, or its mirror for the
+    /// steps negated; and none for a metering with both CTs on one
+    /// conductor.
+    #[test]
+    fn appliances_off_longer_than_on_tell_a_reading_from_its_mirror() {
+        use crate::audit::check::testkit::split_phase;
+        let d = split_phase(vec![
+            on_off("kettle", 0, C64::new(1500.0, 0.0)),
+            on_off("lamp", 1, C64::new(200.0, 0.0)),
+        ]);
+        let absent = [false, false];
+        let at = |l1: f64, l2: f64| vec![C64::new(l1, 0.0), C64::new(l2, 0.0)];
+        let mut events = Vec::new();
+        for i in 0..4 {
+            let t = i * 4 * H;
+            events.push(step(t, at(1500.0, 0.0)));
+            events.push(step(t + 10_000, at(-1500.0, 0.0)));
+            events.push(step(t + H / 20, at(-1500.0, 0.0)));
+            events.push(step(t + H, at(0.0, 200.0)));
+            events.push(step(t + 3 * H, at(0.0, -200.0)));
+        }
+        let mirrored: Vec<Event> = events
+            .iter()
+            .map(|e| step(e.time_ms, e.delta.iter().map(|x| -*x).collect()))
+            .collect();
+        fn refs(v: &[Event]) -> Vec<&Event> {
+            v.iter().collect()
+        }
+        let m = declared_metering(&d, &absent);
+        let (on, off, n) = on_off_hours(&d, &m, &refs(&events), 300.0);
+        assert_eq!(n, 7);
+        assert!(
+            (on - 0.2).abs() < 1e-9 && (off - 11.85).abs() < 1e-9,
+            "{on} {off}"
+        );
+        let (on_m, off_m, _) = on_off_hours(&d, &m, &refs(&mirrored), 300.0);
+        assert!((on_m - 11.85).abs() < 1e-9 && (off_m - 0.2).abs() < 1e-9);
+
+        let hyps = hypotheses(&d, &absent);
+        let find = |src: [usize; 2], k: Option<f64>| {
+            hyps.iter()
+                .position(|(m, _)| {
+                    m.map
+                        .iter()
+                        .zip(src)
+                        .all(|(c, s)| c.src == s && k.is_none_or(|k| c.k == k))
+                })
+                .expect("a hypothesis")
+        };
+        let decl_i = find([0, 1], Some(1.0));
+        let mirror = find([0, 1], Some(-1.0));
+        let both_on_l1 = find([0, 0], None);
+        let scored = (0..hyps.len())
+            .map(|i| Scored {
+                i,
+                apps: 1,
+                ex: 4,
+                neg: 0.0,
+                apart: 0.0,
+                cost: hyps[i].1,
+                owns: vec![],
+            })
+            .collect();
+        let mc = MeteringChoice {
+            hyps,
+            scored,
+            decl_m: m,
+            decl_i,
+            chosen: decl_i,
+        };
+        let th = &Thresholds::STANDARD;
+        assert_eq!(
+            orientation(&d, &mc, decl_i, mirror, &refs(&events), th),
+            Some(decl_i)
+        );
+        assert_eq!(
+            orientation(&d, &mc, decl_i, mirror, &refs(&mirrored), th),
+            Some(mirror)
+        );
+        assert_eq!(
+            orientation(&d, &mc, both_on_l1, mirror, &refs(&events), th),
+            None
+        );
     }
 
     /// Statistics of `n` channels of a home that only consumes.

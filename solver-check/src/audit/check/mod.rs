@@ -50,7 +50,7 @@ use finding::sort_findings;
 use fit::coincidences;
 use metering::{
     absent_channels, channel_findings, choose_metering, dispute, metering_confidence,
-    metering_doubt, metering_findings, mirror_doubt, place_under, silent_channel_accounts,
+    metering_doubt, metering_findings, mirror_doubt, orient, place_under, silent_channel_accounts,
     simpler_account, Placement,
 };
 use placement::{indistinct_notes, Window};
@@ -105,7 +105,8 @@ pub fn check_with(
     let big: Vec<&Event> = events.iter().filter(|e| e.size() >= 150.0).collect();
     // 1. Metering.
     let mc = choose_metering(d, stats, &absent, &big, th);
-    let (decl_i, mut chosen) = (mc.decl_i, mc.chosen);
+    let decl_i = mc.decl_i;
+    let (mut chosen, mirror_open) = orient(d, &mc, &big, th);
     let (decl_apps, decl_ex, decl_neg) = (
         mc.scored[decl_i].apps,
         mc.scored[decl_i].ex,
@@ -150,7 +151,7 @@ pub fn check_with(
         let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "explained_only_as_found": dsp.gained, "explained_only_as_declared": dsp.lost, "appliances_for_found": dsp.for_found, "appliances_for_declared": dsp.for_declared, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg, "appliance_moves_replaced": replaced });
         let first = findings.len();
         metering_findings(d, &mc.decl_m, &m, conf, ev, &mut findings);
-        if let Some(why) = mirror_doubt(d, &mc, chosen, th) {
+        if let Some(why) = mirror_doubt(d, &mc, chosen, th).filter(|_| mirror_open) {
             for f in &mut findings[first..] {
                 f.doubt.get_or_insert_with(|| why.clone());
             }
