@@ -825,7 +825,7 @@ def run_case(case, work, cutoffs=()):
                        capture_output=True, text=True)
     shown = [shows(m, case, truth) for m in case["mistakes"]]
     out = {**case, "exercised": [why is None for why in shown], "why_not": shown,
-           "unlisted": unlisted(case, text)}
+           "unlisted": unlisted(case, text), "cutoffs": list(cutoffs)}
     if p.returncode != 0:
         return {**out, "error": "audit: " + p.stderr[-400:]}
     return {**out, "report": json.loads(p.stdout)}

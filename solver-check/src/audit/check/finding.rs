@@ -175,7 +175,7 @@ pub(super) fn sort_findings(
 /// that found them rules that out by evidence (placement:
 /// `coarse_move_doubt`; undeclared loads: `UndeclaredStage::coarse_load_doubt`).
 pub(super) fn coarse_doubt(kind: Kind, interval_s: f64, th: &Thresholds) -> Option<String> {
-    (interval_s >= th.coarse_interval_s && !kind.is_metering()).then(|| {
+    (th.coarse(interval_s) && !kind.is_metering()).then(|| {
         format!("at {interval_s:.0} s per row, loads that switch within one row make one step together, so a step of this size may be two loads'")
     })
 }

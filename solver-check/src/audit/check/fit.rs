@@ -10,6 +10,10 @@ use crate::contract::{Wiring, C64};
 /// Steps smaller than this (largest channel, VA) are not used to decide.
 pub const USE_STEP: f64 = 100.0;
 
+/// Steps of this size or more (largest channel, VA) judge the metering: a
+/// fridge's compressor and larger, above the wander of small electronics.
+pub const METERING_STEP: f64 = 150.0;
+
 /// Tolerance of a predicted step: 30 W plus 10 % of its size per channel
 /// (a constant-impedance load moves ±10 % across a ±5 % supply band;
 /// common practice, no source).

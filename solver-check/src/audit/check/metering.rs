@@ -4,7 +4,9 @@
 //! another conductor, CTs or channels exchanged).
 
 use super::finding::{ApplianceCheck, Finding, Kind};
-use super::fit::{any_fits, explained, fits, fits_of, predicted, steps_explained, Ctx, Fits};
+use super::fit::{
+    any_fits, dist, explained, fits_of, predicted, steps_explained, Ctx, Fits, METERING_STEP,
+};
 use super::hypothesis::{alternatives, declared_metering, permutations, ChanMap, Metering};
 use super::placement::{place, uncheckable_in, Window};
 use super::thresholds::Thresholds;
@@ -176,10 +178,10 @@ pub(super) fn mirror_of(
 /// onward jump closes a time on, an onward jump after a return a time off
 /// (each 12 h at most; two alike in a row, one missed between, count
 /// nothing). Also how many such times were counted. Under the mirror
-/// image every step reads the other way, so the two sums swap. Only
-/// appliances whose largest step is `decide_w` or more count (smaller
-/// steps of many loads look alike), and a step the other way within a
-/// minute of the last is passed over: a battery that follows the home
+/// image every step reads the other way, so the two sums swap. Only jumps
+/// of `decide_w` or more count (smaller steps of many loads look alike),
+/// each step taken as the nearest that fits it, and a step the other way
+/// within a minute of the last is passed over: a battery that follows the home
 /// answers a step within seconds with one of its size the other way,
 /// which fits an appliance wired like it too.
 pub(super) fn on_off_hours(
@@ -189,16 +191,13 @@ pub(super) fn on_off_hours(
     decide_w: f64,
 ) -> (f64, f64, usize) {
     const CAP_MS: f64 = 12.0 * 3_600_000.0;
-    let (mut on, mut off, mut n) = (0.0, 0.0, 0);
     const ANSWER_MS: i64 = 60_000;
-    for a in d
-        .appliances
-        .iter()
-        .filter(|a| a.largest_step_w().abs() >= decide_w)
-    {
+    let (mut on, mut off, mut n) = (0.0, 0.0, 0);
+    for a in &d.appliances {
         let jumps: Vec<(Vec<Option<C64>>, bool)> = d
             .distinct_jumps(a)
             .into_iter()
+            .filter(|(_, step)| step.iter().map(|c| c.abs()).fold(0.0, f64::max) >= decide_w)
             .map(|(_, step)| {
                 let onward = step.iter().map(|c| c.re).sum::<f64>() > 0.0;
                 (m.read(d, &step), onward)
@@ -206,7 +205,11 @@ pub(super) fn on_off_hours(
             .collect();
         let mut last: Option<(i64, bool)> = None;
         for e in big {
-            let Some((r, onward)) = jumps.iter().find(|(r, _)| fits(e, r)) else {
+            let nearest = jumps
+                .iter()
+                .map(|(r, onward)| (dist(e, r), r, onward))
+                .min_by(|x, y| x.0.total_cmp(&y.0));
+            let Some((_, r, onward)) = nearest.filter(|x| x.0 <= 1.0) else {
                 continue;
             };
             let along: f64 = e
@@ -242,17 +245,23 @@ pub(super) fn on_off_hours(
 /// washer an hour or two, a fridge's compressor under half the time;
 /// common practice, no source), so the reading whose appliances are off
 /// at least twice as long as on is the right way round, given six such
-/// times or more (three runs). None when neither is, or when `chosen` has
-/// two channels read one conductor: the appliances of the conductor no
-/// CT reads are not seen, and steps of others pass for theirs.
+/// times or more (three runs). None when neither is; when `chosen` has
+/// two channels read one conductor (the appliances of the conductor no
+/// CT reads are not seen, and steps of others pass for theirs); and at a
+/// coarse interval (`interval_s`), where a battery's answer shares the row
+/// with the step it answers and the steps are no appliance's alone.
 pub(super) fn orientation(
     d: &Declared,
     mc: &MeteringChoice,
     chosen: usize,
     mirror: usize,
     big: &[&Event],
+    interval_s: f64,
     th: &Thresholds,
 ) -> Option<usize> {
+    if th.coarse(interval_s) {
+        return None;
+    }
     let m = &mc.hyps[chosen].0;
     let read: Vec<usize> = (0..m.map.len())
         .filter(|&c| !m.absent[c])
@@ -273,22 +282,60 @@ pub(super) fn orientation(
     }
 }
 
-/// The metering chosen (`mc.chosen`) turned the way round the appliances'
-/// times on and off read it ([`orientation`]) where a battery lets its
-/// mirror image fit as well ([`mirror_of`]), and whether that stays open
-/// (neither way told).
+/// The metering found (`mc.chosen`, where it is not the declared one)
+/// turned the way round the appliances' times on and off read it
+/// ([`orientation`]) where a battery lets its mirror image fit as well
+/// ([`mirror_of`]). The declared metering is not turned so: it stands
+/// by the rules that chose it.
 pub(super) fn orient(
     d: &Declared,
     mc: &MeteringChoice,
     big: &[&Event],
+    interval_s: f64,
     th: &Thresholds,
-) -> (usize, bool) {
-    let Some(mirror) = mirror_of(d, mc, mc.chosen, th) else {
-        return (mc.chosen, false);
-    };
-    match orientation(d, mc, mc.chosen, mirror, big, th) {
-        Some(o) => (o, false),
-        None => (mc.chosen, true),
+) -> usize {
+    if mc.chosen == mc.decl_i {
+        return mc.chosen;
+    }
+    mirror_of(d, mc, mc.chosen, th)
+        .and_then(|mirror| orientation(d, mc, mc.chosen, mirror, big, interval_s, th))
+        .unwrap_or(mc.chosen)
+}
+
+/// Whether metering `chosen` has a mirror image that fits as well
+/// ([`mirror_of`]) and the appliances' times on and off do not tell the
+/// two apart ([`orientation`]).
+fn mirror_undecided(
+    d: &Declared,
+    mc: &MeteringChoice,
+    chosen: usize,
+    big: &[&Event],
+    interval_s: f64,
+    th: &Thresholds,
+) -> bool {
+    mirror_of(d, mc, chosen, th)
+        .is_some_and(|mirror| orientation(d, mc, chosen, mirror, big, interval_s, th).is_none())
+}
+
+/// The doubt of `findings` (metering `chosen`'s) where its mirror image
+/// fits as well and the appliances' times on and off, on the steps `big`
+/// at `interval_s` (`steps`), do not tell the two apart
+/// ([`mirror_undecided`], [`mirror_doubt`]).
+pub(super) fn doubt_mirror(
+    d: &Declared,
+    mc: &MeteringChoice,
+    chosen: usize,
+    (big, interval_s): (&[&Event], f64),
+    th: &Thresholds,
+    findings: &mut [Finding],
+) {
+    if !mirror_undecided(d, mc, chosen, big, interval_s, th) {
+        return;
+    }
+    if let Some(why) = mirror_doubt(d, mc, chosen, th) {
+        for f in findings {
+            f.doubt.get_or_insert_with(|| why.clone());
+        }
     }
 }
 
@@ -298,9 +345,8 @@ pub(super) fn orient(
 /// fits both alike (a load switching on under one reads as one switching
 /// off under the other). On a split-phase supply two CTs exchanged and the
 /// two channels exchanged whole are such a pair. None where there is no
-/// such mirror ([`mirror_of`]); the caller asks it only when the
-/// appliances' times on and off did not tell the two apart
-/// ([`orientation`]).
+/// such mirror ([`mirror_of`]); asked only where the appliances' times
+/// on and off do not tell the two apart ([`mirror_undecided`]).
 pub(super) fn mirror_doubt(
     d: &Declared,
     mc: &MeteringChoice,
@@ -375,6 +421,11 @@ pub(super) fn absent_channels(d: &Declared, stats: &[ChannelStats]) -> Vec<bool>
         .collect()
 }
 
+/// Steps of `METERING_STEP` or more on a channel that reads nothing in
+/// nearly every row, from which it has a CT: three, one run and a step
+/// more; a lone pair may be noise or a neighbour's switching.
+const SILENT_STEPS: usize = 3;
+
 /// Channels that read nothing: a finding of a missing CT, or a note where
 /// every appliance declared through the line shows on another connection.
 pub(super) fn channel_findings(
@@ -398,8 +449,11 @@ pub(super) fn channel_findings(
         // that reads nothing in most rows but steps now and then has a CT
         // (on a conductor that carries little, or one whose power, turned
         // to this channel's voltage, nearly cancels: a metering question).
-        let steps = events.iter().filter(|e| e.delta[c].abs() >= 150.0).count();
-        let silent = loaded && st.zero as f64 / read > 0.98 && steps < 3;
+        let steps = events
+            .iter()
+            .filter(|e| e.delta[c].abs() >= METERING_STEP)
+            .count();
+        let silent = loaded && st.zero as f64 / read > 0.98 && steps < SILENT_STEPS;
         if d.channels[c].conductor.is_some()
             && silent
             && !empty
@@ -420,7 +474,7 @@ pub(super) fn channel_findings(
     (findings, notes)
 }
 
-/// A metering hypothesis as scored on the steps of 150 VA or more.
+/// A metering hypothesis as scored on the steps of `METERING_STEP` or more.
 pub(super) struct Scored {
     /// Its index among the hypotheses.
     pub(super) i: usize,
@@ -1365,15 +1419,15 @@ mod tests {
         };
         let th = &Thresholds::STANDARD;
         assert_eq!(
-            orientation(&d, &mc, decl_i, mirror, &refs(&events), th),
+            orientation(&d, &mc, decl_i, mirror, &refs(&events), 1.0, th),
             Some(decl_i)
         );
         assert_eq!(
-            orientation(&d, &mc, decl_i, mirror, &refs(&mirrored), th),
+            orientation(&d, &mc, decl_i, mirror, &refs(&mirrored), 1.0, th),
             Some(mirror)
         );
         assert_eq!(
-            orientation(&d, &mc, both_on_l1, mirror, &refs(&events), th),
+            orientation(&d, &mc, both_on_l1, mirror, &refs(&events), 1.0, th),
             None
         );
     }
@@ -1407,6 +1461,55 @@ mod tests {
         }
         events.sort_by_key(|e| e.time_ms);
         events
+    }
+
+    /// A battery home (120/240 V, a battery across L1-L2 following the
+    /// home) with a 1.5 kW kettle on L1-N and a 1 kW heater on L2-N, its
+    /// two CTs exchanged: channel l1 reads −S2 and l2 reads −S1
+    /// (V2 = −V1). No row's sign judges; the channels exchanged whole
+    /// (+S2, +S1) fit every step as well. Runs of 3 and 20 min every 4 h
+    /// read one way only as appliances mostly off: the CTs exchanged, for
+    /// certain; the same steps negated read as the channels exchanged.
+    /// Runs of 2 h every 4 h tell neither: listed as possible, naming the
+    /// other reading.
+    #[test]
+    fn in_a_battery_home_times_on_and_off_tell_a_metering_from_its_mirror() {
+        use crate::audit::check::testkit::split_phase;
+        use crate::audit::decl::Inverter;
+        let mut d = split_phase(vec![
+            on_off("kettle", 0, C64::new(1500.0, 0.0)),
+            on_off("heater", 1, C64::new(1000.0, 0.0)),
+        ]);
+        d.generation
+            .push(Inverter::new("battery", Wiring::LineLine(0, 1), true));
+        let data = |on_ms: [i64; 2], sign: f64| -> Vec<Event> {
+            let mut v = Vec::new();
+            for i in 0..6 {
+                let t = i * 4 * H;
+                for (k, (l1, l2)) in [(0.0, -1500.0), (-1000.0, 0.0)].into_iter().enumerate() {
+                    let at = t + k as i64 * 2 * H / 3;
+                    let on = vec![C64::new(sign * l1, 0.0), C64::new(sign * l2, 0.0)];
+                    v.push(step(at + on_ms[k], on.iter().map(|x| -*x).collect()));
+                    v.push(step(at, on));
+                }
+            }
+            v.sort_by_key(|e| e.time_ms);
+            v
+        };
+        let audit = |events: &[Event]| check(&d, events, &consuming(2), 1.0);
+        let o = audit(&data([3 * 60_000, 20 * 60_000], 1.0));
+        assert_eq!(kinds(&o), [("cts-exchanged", "l1+l2")], "{:?}", o.possible);
+        let o = audit(&data([3 * 60_000, 20 * 60_000], -1.0));
+        assert_eq!(
+            kinds(&o),
+            [("channels-exchanged", "l1+l2")],
+            "{:?}",
+            o.possible
+        );
+        let o = audit(&data([2 * H, 2 * H], 1.0));
+        assert!(o.findings.is_empty(), "{:?}", o.findings);
+        let doubt = o.possible[0].doubt.as_deref().unwrap_or_default();
+        assert!(doubt.contains("negated"), "{doubt}");
     }
 
     fn kinds(o: &Outcome) -> Vec<(&str, &str)> {

@@ -47,11 +47,11 @@ use crate::audit::decl::Declared;
 use crate::audit::events::{ChannelStats, Event};
 use crate::contract::line_name;
 use finding::sort_findings;
-use fit::coincidences;
+use fit::{coincidences, METERING_STEP};
 use metering::{
-    absent_channels, channel_findings, choose_metering, dispute, metering_confidence,
-    metering_doubt, metering_findings, mirror_doubt, orient, place_under, silent_channel_accounts,
-    simpler_account, Placement,
+    absent_channels, channel_findings, choose_metering, dispute, doubt_mirror, metering_confidence,
+    metering_doubt, metering_findings, orient, place_under, silent_channel_accounts,
+    simpler_account, MeteringChoice, Placement,
 };
 use placement::{indistinct_notes, Window};
 use serde_json::json;
@@ -86,6 +86,20 @@ pub fn check(d: &Declared, events: &[Event], stats: &[ChannelStats], interval_s:
     check_with(d, events, stats, interval_s, &Thresholds::STANDARD)
 }
 
+/// The evidence of metering `chosen` found against the declared one in
+/// `mc`, on `steps_used` steps, `replaced` appliance moves replaced.
+fn found_evidence(
+    mc: &MeteringChoice,
+    chosen: usize,
+    steps_used: usize,
+    replaced: usize,
+    th: &Thresholds,
+) -> serde_json::Value {
+    let (decl, ch) = (&mc.scored[mc.decl_i], &mc.scored[chosen]);
+    let dsp = dispute(ch, decl, th);
+    json!({ "steps_used": steps_used, "explained_as_declared": decl.ex, "explained_as_found": ch.ex, "explained_only_as_found": dsp.gained, "explained_only_as_declared": dsp.lost, "appliances_for_found": dsp.for_found, "appliances_for_declared": dsp.for_declared, "appliances_fitting_as_declared": decl.apps, "appliances_fitting_as_found": ch.apps, "negative_share_as_declared": decl.neg, "appliance_moves_replaced": replaced })
+}
+
 /// Metering, placement and undeclared loads, from the steps `events` and
 /// channel statistics of a meters table at `interval_s`, against
 /// declaration `d`, deciding by the cut-offs `th`.
@@ -102,16 +116,17 @@ pub fn check_with(
     let absent: Vec<bool> = (0..n)
         .map(|c| absent[c] || findings.iter().any(|f| f.subject == line_name(c)))
         .collect();
-    let big: Vec<&Event> = events.iter().filter(|e| e.size() >= 150.0).collect();
+    let big: Vec<&Event> = events
+        .iter()
+        .filter(|e| e.size() >= METERING_STEP)
+        .collect();
     // 1. Metering.
     let mc = choose_metering(d, stats, &absent, &big, th);
     let decl_i = mc.decl_i;
-    let (mut chosen, mirror_open) = orient(d, &mc, &big, th);
-    let (decl_apps, decl_ex, decl_neg) = (
-        mc.scored[decl_i].apps,
-        mc.scored[decl_i].ex,
-        mc.scored[decl_i].neg,
-    );
+    // A battery may let a metering found fit as well with every reading
+    // negated: the appliances' times on and off tell which way it reads.
+    let mut chosen = orient(d, &mc, &big, interval_s, th);
+    let (decl_apps, decl_ex) = (mc.scored[decl_i].apps, mc.scored[decl_i].ex);
     // 2. Appliances, under the metering chosen; several appliances moved
     // where a metering fault and fewer moves explain as much is the less
     // simple account.
@@ -147,19 +162,21 @@ pub fn check_with(
     let (ch_apps, ch_ex) = (mc.scored[chosen].apps, mc.scored[chosen].ex);
     if chosen != decl_i {
         let conf = metering_confidence(&mc.scored[decl_i], &mc.scored[chosen], replaced, th);
-        let dsp = dispute(&mc.scored[chosen], &mc.scored[decl_i], th);
-        let ev = json!({ "steps_used": big.len(), "explained_as_declared": decl_ex, "explained_as_found": ch_ex, "explained_only_as_found": dsp.gained, "explained_only_as_declared": dsp.lost, "appliances_for_found": dsp.for_found, "appliances_for_declared": dsp.for_declared, "appliances_fitting_as_declared": decl_apps, "appliances_fitting_as_found": ch_apps, "negative_share_as_declared": decl_neg, "appliance_moves_replaced": replaced });
+        let ev = found_evidence(&mc, chosen, big.len(), replaced, th);
         let first = findings.len();
         metering_findings(d, &mc.decl_m, &m, conf, ev, &mut findings);
-        if let Some(why) = mirror_doubt(d, &mc, chosen, th).filter(|_| mirror_open) {
-            for f in &mut findings[first..] {
-                f.doubt.get_or_insert_with(|| why.clone());
-            }
-        }
+        doubt_mirror(
+            d,
+            &mc,
+            chosen,
+            (&big, interval_s),
+            th,
+            &mut findings[first..],
+        );
         silent_channel_accounts(&m, &mut findings, &mut notes);
     }
     findings.extend(moves);
-    notes.push(format!("metering: {ch_apps} appliances and {ch_ex} of {} steps of 150 VA or more fit under the metering found ({decl_apps} and {decl_ex} as declared)", big.len()));
+    notes.push(format!("metering: {ch_apps} appliances and {ch_ex} of {} steps of {METERING_STEP:.0} VA or more fit under the metering found ({decl_apps} and {decl_ex} as declared)", big.len()));
     notes.extend(indistinct_notes(d));
     // 3. Undeclared recurring loads.
     let total_wh = metered_energy_wh(stats, &absent, &m, interval_s);

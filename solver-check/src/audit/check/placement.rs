@@ -765,7 +765,7 @@ pub(super) fn beyond_chance(
 impl Round<'_> {
     /// Whether the rows are `coarse_interval_s` or more apart.
     fn coarse(&self) -> bool {
-        self.interval_s >= self.th.coarse_interval_s
+        self.th.coarse(self.interval_s)
     }
 
     /// Whether more steps fit appliance `b` as wired than its neighbouring
@@ -915,7 +915,7 @@ pub(super) fn place(
             }
             None => {
                 let n_moved = moved.iter().filter(|&&x| x).count();
-                if interval_s >= th.coarse_interval_s {
+                if th.coarse(interval_s) {
                     several_moves_doubt(findings, n_moved, interval_s);
                 }
                 return (checks, placed);

@@ -364,6 +364,12 @@ pub struct CutoffError {
 }
 
 impl Thresholds {
+    /// Whether rows `interval_s` apart are coarse: `coarse_interval_s` or
+    /// more, where loads switching within one row make one step together.
+    pub fn coarse(&self, interval_s: f64) -> bool {
+        interval_s >= self.coarse_interval_s
+    }
+
     /// The standard cut-offs with each `NAME=VALUE` of `settings` applied,
     /// in order (a name given twice: the last value counts).
     pub fn with_settings<S: AsRef<str>>(settings: &[S]) -> Result<Thresholds, CutoffError> {
