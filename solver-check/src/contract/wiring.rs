@@ -50,12 +50,33 @@ impl SupplyKind {
 
     /// Unit phasor of line `x`'s voltage to neutral.
     pub fn unit(self, x: usize) -> C64 {
-        C64::polar_deg(1.0, self.angles_deg()[x])
+        self.unit_table()[x]
     }
 
     /// Unit phasors of its lines' voltages to neutral (nominal, balanced).
     pub fn units(self) -> Vec<C64> {
-        (0..self.lines()).map(|x| self.unit(x)).collect()
+        self.unit_table().to_vec()
+    }
+
+    /// The unit phasors of [`SupplyKind::angles_deg`], each computed once
+    /// (the audit asks for them for every step it weighs; a sine and a
+    /// cosine each time were a fifth of its work), the very values
+    /// `C64::polar_deg` gives.
+    fn unit_table(self) -> &'static [C64] {
+        use std::sync::OnceLock;
+        static TABLES: [OnceLock<Vec<C64>>; 3] =
+            [OnceLock::new(), OnceLock::new(), OnceLock::new()];
+        let k = match self {
+            SupplyKind::SplitPhase => 0,
+            SupplyKind::ThreePhase => 1,
+            SupplyKind::SinglePhase => 2,
+        };
+        TABLES[k].get_or_init(|| {
+            self.angles_deg()
+                .iter()
+                .map(|&a| C64::polar_deg(1.0, a))
+                .collect()
+        })
     }
 
     /// How a draw of complex power `s` on `w` shows on each line's meter
@@ -66,7 +87,7 @@ impl SupplyKind {
     /// relation); a balanced three-phase load s/3 per line.
     pub fn split(self, w: Wiring, s: C64) -> Vec<C64> {
         let mut out = vec![C64::ZERO; self.lines()];
-        w.add_line_split(&self.units(), s, &mut out);
+        w.add_line_split(self.unit_table(), s, &mut out);
         out
     }
 }
