@@ -181,8 +181,8 @@ pub(super) fn mirror_of(
 /// image every step reads the other way, so the two sums swap. Only jumps
 /// of `decide_w` or more count (smaller steps of many loads look alike),
 /// each step taken as the nearest that fits it, and a step the other way
-/// within a minute of the last is passed over: a battery that follows the home
-/// answers a step within seconds with one of its size the other way,
+/// within a minute of the last is passed over: a battery that follows the
+/// home answers a step within seconds with one of its size the other way,
 /// which fits an appliance wired like it too.
 pub(super) fn on_off_hours(
     d: &Declared,
@@ -319,7 +319,7 @@ fn mirror_undecided(
 
 /// The doubt of `findings` (metering `chosen`'s) where its mirror image
 /// fits as well and the appliances' times on and off, on the steps `big`
-/// at `interval_s` (`steps`), do not tell the two apart
+/// taken `interval_s` apart, do not tell the two apart
 /// ([`mirror_undecided`], [`mirror_doubt`]).
 pub(super) fn doubt_mirror(
     d: &Declared,
