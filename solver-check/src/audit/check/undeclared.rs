@@ -668,6 +668,28 @@ mod tests {
     use crate::audit::check::hypothesis::declared_metering;
     use crate::audit::check::testkit::{day_stats, on_off, split_phase, H};
 
+    /// The stage with no steps at all, 10 kWh read, at 1 s: for the
+    /// doubts weighed on one cluster and the appliances' checks alone.
+    fn bare_stage<'a>(
+        d: &'a Declared,
+        m: &'a Metering,
+        checks: &'a [ApplianceCheck],
+    ) -> UndeclaredStage<'a> {
+        UndeclaredStage {
+            d,
+            m,
+            events: &[],
+            cxs: &[],
+            explained: &[],
+            sums: &[],
+            total_wh: 1e4,
+            placed: &d.appliances,
+            checks,
+            interval_s: 1.0,
+            th: &Thresholds::STANDARD,
+        }
+    }
+
     /// Starts each followed by a stop within 12 h pair up; a stop before
     /// any start, or one more than 12 h later, does not.
     #[test]
@@ -861,19 +883,7 @@ mod tests {
             steps_declared: 0,
             steps_best_other: 0,
         }];
-        let stage = UndeclaredStage {
-            d: &d,
-            m: &m,
-            events: &[],
-            cxs: &[],
-            explained: &[],
-            sums: &[],
-            total_wh: 1e4,
-            placed: &d.appliances,
-            checks: &checks,
-            interval_s: 1.0,
-            th: &Thresholds::STANDARD,
-        };
+        let stage = bare_stage(&d, &m, &checks);
         let cluster = |w: f64| Cluster {
             wiring: "L1-N".into(),
             v: vec![C64::new(w, 0.0), C64::ZERO],
@@ -923,19 +933,7 @@ mod tests {
         };
         let doubt = |d: &Declared, w: f64| {
             let m = declared_metering(d, &[false, false]);
-            let stage = UndeclaredStage {
-                d,
-                m: &m,
-                events: &[],
-                cxs: &[],
-                explained: &[],
-                sums: &[],
-                total_wh: 1e4,
-                placed: &d.appliances,
-                checks: &checks,
-                interval_s: 1.0,
-                th: &Thresholds::STANDARD,
-            };
+            let stage = bare_stage(d, &m, &checks);
             stage.doubt(&cluster(w))
         };
         let d = split_phase(vec![hp(Some(240.0))]);
@@ -985,19 +983,7 @@ mod tests {
         };
         let doubt = |d: &Declared, c: Cluster| {
             let m = declared_metering(d, &[false, false, false]);
-            let stage = UndeclaredStage {
-                d,
-                m: &m,
-                events: &[],
-                cxs: &[],
-                explained: &[],
-                sums: &[],
-                total_wh: 1e4,
-                placed: &d.appliances,
-                checks: &checks,
-                interval_s: 1.0,
-                th: &Thresholds::STANDARD,
-            };
+            let stage = bare_stage(d, &m, &checks);
             stage.doubt(&c)
         };
         let mut d = three_phase(vec![entry(Some(240.0), 0.0)]);
