@@ -463,9 +463,9 @@ impl UndeclaredStage<'_> {
     /// size ([`UndeclaredStage::jumps_of_size`], one at least), so a load
     /// of its size, or one of its elements or settings, starts at most that
     /// often (its runs seen whole counted; a jump and its return both
-    /// count, so the bound on runs is twice as loose as it need be). A microwave declared to start twice a
-    /// day does not account for a load of about its size that started forty
-    /// times in two days. False for an appliance whose habit the declaration
+    /// count, so the bound on runs is twice as loose as it need be). A
+    /// microwave declared to start twice a day does not account for a load
+    /// of about its size that started forty times in two days. False for an appliance whose habit the declaration
     /// does not give (a thermostat, a cycle, a short entry).
     fn beyond_habit(&self, c: &Cluster, a: &DeclAppliance) -> bool {
         let Some(per_day) = a.starts_per_day else {
