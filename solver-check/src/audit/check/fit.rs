@@ -49,6 +49,17 @@ pub(super) fn dist_delta(delta: &[C64], r: &[Option<C64>]) -> f64 {
     one(1.0).min(one(-1.0))
 }
 
+/// How far a step `delta` goes along a predicted step `r`: the sum over
+/// the channels read of their dot products (positive: the same way round,
+/// a start where `r` is a start).
+pub(super) fn projection(delta: &[C64], r: &[Option<C64>]) -> f64 {
+    delta
+        .iter()
+        .zip(r)
+        .filter_map(|(x, r)| r.map(|r| x.re * r.re + x.im * r.im))
+        .sum()
+}
+
 pub(super) fn fits(e: &Event, r: &[Option<C64>]) -> bool {
     dist(e, r) <= 1.0
 }

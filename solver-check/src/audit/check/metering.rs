@@ -5,7 +5,8 @@
 
 use super::finding::{ApplianceCheck, Finding, Kind};
 use super::fit::{
-    any_fits, dist, explained, fits_of, predicted, steps_explained, Ctx, Fits, METERING_STEP,
+    any_fits, dist, explained, fits_of, predicted, projection, steps_explained, Ctx, Fits,
+    METERING_STEP,
 };
 use super::hypothesis::{alternatives, declared_metering, permutations, ChanMap, Metering};
 use super::placement::{place, uncheckable_in, Window};
@@ -212,13 +213,7 @@ pub(super) fn on_off_hours(
             let Some((_, r, onward)) = nearest.filter(|x| x.0 <= 1.0) else {
                 continue;
             };
-            let along: f64 = e
-                .delta
-                .iter()
-                .zip(r)
-                .filter_map(|(x, r)| r.map(|r| x.re * r.re + x.im * r.im))
-                .sum();
-            let up = (along > 0.0) == *onward;
+            let up = (projection(&e.delta, r) > 0.0) == *onward;
             if let Some((t, was_up)) = last {
                 if was_up != up && e.time_ms - t < ANSWER_MS {
                     continue;

@@ -6,8 +6,8 @@ use super::finding::{
     coarse_doubt, dark_steps_in, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict,
 };
 use super::fit::{
-    connection_of, dist_delta, distances, poisson_tail, predicted, shape_of, tol, Ctx, Pred,
-    TOL_ABS_V_W, TOL_REL_V, USE_STEP,
+    connection_of, dist_delta, distances, poisson_tail, predicted, projection, shape_of, tol, Ctx,
+    Pred, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
 };
 use super::hypothesis::{alternatives, wiring_names, Metering};
 use super::placement::{beyond_chance, one_power};
@@ -426,13 +426,7 @@ impl UndeclaredStage<'_> {
             if p.dist(self.d, self.m, e, &self.cxs[k]) > 1.0 {
                 continue;
             }
-            let along: f64 = e
-                .delta
-                .iter()
-                .zip(&start)
-                .filter_map(|(x, r)| r.map(|r| x.re * r.re + x.im * r.im))
-                .sum();
-            if along >= 0.0 {
+            if projection(&e.delta, &start) >= 0.0 {
                 on.push(e.time_ms);
             } else {
                 off.push(e.time_ms);
