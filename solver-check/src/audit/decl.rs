@@ -191,14 +191,47 @@ impl DeclAppliance {
         }
         a
     }
+
+    /// Whether any of its draws takes reactive power (a motor, a power
+    /// supply: its input is what its load asks), where a resistance's,
+    /// set by the voltage, takes none.
+    pub fn draws_reactive(&self) -> bool {
+        self.states.iter().flatten().any(|x| x.s.im != 0.0)
+    }
+
     /// Largest real-power step any of its jumps makes, W.
     pub fn largest_step_w(&self) -> f64 {
+        self.largest_step_by(|d| d.s.re)
+    }
+
+    /// Largest real-power step any of its jumps makes with each draw rated
+    /// at a voltage taken at that voltage (its nameplate), W: what a load
+    /// that holds its power (a motor, a power supply) draws on a connection
+    /// of another voltage, where [`Self::largest_step_w`] is what its
+    /// voltage law gives there.
+    pub fn nameplate_step_w(&self, supply: &Supply) -> f64 {
+        self.largest_step_by(|d| match d.rated_v {
+            Some(r) => {
+                let k = d.zip_p.factor(supply.nominal_across(d.wiring) / r);
+                if k > 0.0 {
+                    d.s.re / k
+                } else {
+                    d.s.re
+                }
+            }
+            None => d.s.re,
+        })
+    }
+
+    /// Largest real-power step any of its jumps makes, each draw's power
+    /// read by `p`, W.
+    fn largest_step_by(&self, p: impl Fn(&DeclDraw) -> f64) -> f64 {
         self.steps
             .jumps()
             .iter()
             .map(|&(a, b, kb, ka)| {
-                let pa: f64 = self.states[a].iter().map(|d| d.s.re).sum();
-                let pb: f64 = self.states[b].iter().map(|d| d.s.re).sum();
+                let pa: f64 = self.states[a].iter().map(&p).sum();
+                let pb: f64 = self.states[b].iter().map(&p).sum();
                 (pb * kb - pa * ka).abs()
             })
             .fold(0.0, f64::max)
@@ -404,6 +437,12 @@ mod tests {
         assert_eq!(moved.states[1][0].wiring, Wiring::LineLine(0, 1));
         let kept = app(None).rewired_on(&sp, |_| Wiring::LineLine(0, 1));
         assert!((kept.states[1][0].s.re - 1125.0).abs() < 1e-9);
+        // Its nameplate: the 4.5 kW it draws at its rated 240 V (the
+        // 1125 W at 120 V over (120/240)²); unrated, what it is declared at.
+        let rated = app(Some(240.0));
+        assert!((rated.largest_step_w() - 1125.0).abs() < 1e-9);
+        assert!((rated.nameplate_step_w(&sp) - 4500.0).abs() < 1e-9);
+        assert!((app(None).nameplate_step_w(&sp) - 1125.0).abs() < 1e-9);
     }
 
     fn supply(kind: SupplyKind) -> Supply {

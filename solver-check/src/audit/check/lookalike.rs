@@ -176,10 +176,15 @@ impl LookAlikes<'_> {
         let w = wiring_names(a);
         let times: Vec<i64> = seen.iter().map(|s| s.t).collect();
         let starts: Vec<i64> = seen.iter().filter(|s| s.start).map(|s| s.t).collect();
+        // At a coarse interval a lost stop is likelier (another load's
+        // change in its row takes it), so more overlaps are needed: as many
+        // as the runs a load of its own needs there.
         let doubt = if n < self.th.overlap_runs {
             Some(format!("{n} such overlaps only: a stop of {} lost among other loads' changes, then its next start, with another load coming on between, would look the same", a.id))
-        } else {
+        } else if n < self.th.coarse_runs {
             coarse_doubt(Kind::UndeclaredLoad, self.interval_s, self.th)
+        } else {
+            None
         };
         Finding {
             kind: Kind::UndeclaredLoad,
@@ -195,7 +200,7 @@ impl LookAlikes<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::audit::check::testkit::H;
+    use crate::audit::check::testkit::{day_stats, H};
 
     fn step(t: i64, start: bool, before: f64) -> OwnStep {
         let after = if start { before + 1.0 } else { before - 1.0 };
@@ -251,64 +256,71 @@ mod tests {
     fn a_load_of_a_declared_appliances_size_beside_it_is_seen_when_they_overlap() {
         use crate::audit::check::check;
         use crate::audit::check::testkit::{on_off, split_phase};
-        use crate::audit::events::ChannelStats;
         let d = split_phase(vec![on_off("heater", 0, C64::new(1500.0, 0.0))]);
-        let w = C64::new(1500.0, 0.0);
-        let stats = vec![
-            ChannelStats {
-                rows: 86_400,
-                null: 0,
-                zero: 0,
-                sum_p: 500.0 * 86_400.0,
-                negative: vec![[0, 86_400]; 2],
-                ..Default::default()
-            };
-            2
-        ];
-        let with = |n: i64| -> Vec<Event> {
-            let mut level = 200.0;
-            let mut ev = Vec::new();
-            // Heater runs of 30 min every 3 h; the other load starts 10 min
-            // into `n` of them and stops 10 min after the heater.
-            let mut push = |t: i64, dw: f64, ev: &mut Vec<Event>| {
-                ev.push(Event {
-                    time_ms: t,
-                    delta: vec![w.scale(dw), C64::ZERO],
-                    before: vec![C64::new(level, 0.0), C64::new(200.0, 0.0)],
-                    v_before: vec![120.0; 2],
-                    v_after: vec![120.0; 2],
-                    se: vec![1.0; 2],
-                });
-                level += 1500.0 * dw;
-            };
-            for i in 0..8 {
-                let t = i * 3 * H;
-                push(t, 1.0, &mut ev);
-                if i < n {
-                    push(t + H / 6, 1.0, &mut ev);
-                    push(t + H / 2, -1.0, &mut ev);
-                    push(t + H / 2 + H / 6, -1.0, &mut ev);
-                } else {
-                    push(t + H / 2, -1.0, &mut ev);
-                }
-            }
-            ev
-        };
-        let o = check(&d, &with(0), &stats, 1.0);
+        let o = check(&d, &heater_with_load(0), &day_stats(2, 500.0), 1.0);
         assert!(
             o.findings.is_empty() && o.possible.is_empty(),
             "{:?}",
             o.findings
         );
-        let o = check(&d, &with(4), &stats, 1.0);
+        let o = check(&d, &heater_with_load(4), &day_stats(2, 500.0), 1.0);
         let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(found, ["1500 W on L1-N"], "{:?}", o.possible);
         assert_eq!(
             o.findings[0].evidence["overlaps"], 8,
             "four starts and four stops"
         );
-        let o = check(&d, &with(1), &stats, 1.0);
+        let o = check(&d, &heater_with_load(1), &day_stats(2, 500.0), 1.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
         assert_eq!(o.possible.len(), 1);
+    }
+
+    /// The same at 1 min, where another load's change in the row of a stop
+    /// takes it: eight overlaps (four runs beside the heater) leave the load
+    /// possible; sixteen, more than the ten runs a load of its own needs
+    /// there (`coarse_runs`), make it a finding.
+    #[test]
+    fn at_a_coarse_interval_a_look_alike_needs_as_many_overlaps_as_a_load_needs_runs() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::{on_off, split_phase};
+        let d = split_phase(vec![on_off("heater", 0, C64::new(1500.0, 0.0))]);
+        let o = check(&d, &heater_with_load(4), &day_stats(2, 500.0), 60.0);
+        assert!(o.findings.is_empty(), "{:?}", o.findings);
+        assert!(o.possible.iter().any(|f| f.subject == "1500 W on L1-N"));
+        let o = check(&d, &heater_with_load(8), &day_stats(2, 500.0), 60.0);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(found, ["1500 W on L1-N"], "{:?}", o.possible);
+    }
+
+    /// A 1.5 kW heater on L1-N running 30 min every 3 h, eight times, and
+    /// another load of its size starting 10 min into `n` of its runs and
+    /// stopping 10 min after it.
+    fn heater_with_load(n: i64) -> Vec<Event> {
+        let w = C64::new(1500.0, 0.0);
+        let mut level = 200.0;
+        let mut ev = Vec::new();
+        let mut push = |t: i64, dw: f64, ev: &mut Vec<Event>| {
+            ev.push(Event {
+                time_ms: t,
+                delta: vec![w.scale(dw), C64::ZERO],
+                before: vec![C64::new(level, 0.0), C64::new(200.0, 0.0)],
+                v_before: vec![120.0; 2],
+                v_after: vec![120.0; 2],
+                se: vec![1.0; 2],
+            });
+            level += 1500.0 * dw;
+        };
+        for i in 0..8 {
+            let t = i * 3 * H;
+            push(t, 1.0, &mut ev);
+            if i < n {
+                push(t + H / 6, 1.0, &mut ev);
+                push(t + H / 2, -1.0, &mut ev);
+                push(t + H / 2 + H / 6, -1.0, &mut ev);
+            } else {
+                push(t + H / 2, -1.0, &mut ev);
+            }
+        }
+        ev
     }
 }

@@ -89,7 +89,8 @@ pub struct Thresholds {
     /// not repeat at one size, starting and stopping alike, ten times
     /// (common practice, no source). Twice as many steps, beyond chance where
     /// found and not where declared, make a move at a coarse interval a
-    /// finding (`coarse_move_doubt`).
+    /// finding (`coarse_move_doubt`); as many overlaps, a load of a
+    /// declared appliance's size beside it (a lost stop is likelier there).
     pub coarse_runs: usize,
     /// Share of a coarse cluster's steps that two declared appliances
     /// switching within one row are expected to make (the summed rates of
@@ -119,7 +120,9 @@ pub struct Thresholds {
     /// it a finding rather than possible: one such overlap may be a stop of
     /// the appliance lost among other loads' changes with another load coming
     /// on before its next start; three of them hardly (common practice, no
-    /// source).
+    /// source). As many runs of a smaller load within the appliance's runs,
+    /// and as many apart from them, make it another load than a setting or
+    /// a stage of the appliance.
     pub overlap_runs: usize,
     /// Share of a one-power entry's size within which a load may be that
     /// entry drawing other than its nameplate: an entry gives one power, the
@@ -290,7 +293,7 @@ pub const CUTOFFS: [Cutoff; 20] = [
     },
     Cutoff {
         name: "coarse_runs",
-        meaning: "runs seen whole that make an undeclared load at a coarse interval a finding (starts and stops alike, no declared jump's size, far more than coincidences of two make), and twice as many steps a move",
+        meaning: "runs seen whole that make an undeclared load at a coarse interval a finding (starts and stops alike, no declared jump's size, far more than coincidences of two make), overlaps a load of a declared appliance's size beside it, and twice as many steps a move",
         range: (0.0, 1e6),
         count: true,
         get: |t| t.coarse_runs as f64,
@@ -330,7 +333,7 @@ pub const CUTOFFS: [Cutoff; 20] = [
     },
     Cutoff {
         name: "overlap_runs",
-        meaning: "times a step of a declared one-power appliance's size comes while it is already on (twice its power drawn) that make a load of its size beside it a finding",
+        meaning: "times a step of a declared one-power appliance's size comes while it is already on (twice its power drawn) that make a load of its size beside it a finding (at a coarse interval, coarse_runs times); runs a smaller load needs both within its runs and apart from them to be another load",
         range: (0.0, 1e6),
         count: true,
         get: |t| t.overlap_runs as f64,

@@ -371,7 +371,9 @@ impl UndeclaredStage<'_> {
     /// one row: the cluster is possible only, unless it repeats as one load
     /// does (`coarse_runs` runs seen whole, starts and stops within 3 to 4,
     /// on one connection) at a size that is no declared jump (within twice
-    /// its tolerance), nor near a busier cluster's of `all` on its
+    /// its tolerance, on a connection other than where its appliance is
+    /// placed: a load near its size there is weighed by its nameplate,
+    /// [`UndeclaredStage::doubt`]), nor near a busier cluster's of `all` on its
     /// connection ([`UndeclaredStage::fragment`]), and coincidences of two
     /// declared appliances would make under `composite_share` of its steps
     /// ([`composites`]). An appliance whose steps show where it is placed
@@ -391,11 +393,13 @@ impl UndeclaredStage<'_> {
         let (most, fewest) = (c.on.len().max(c.off.len()), c.on.len().min(c.off.len()));
         let one_load =
             runs >= self.th.coarse_runs && 4 * fewest >= 3 * most && !c.wiring.contains('+');
-        // A declared appliance on any connection it could be on: one
+        // A declared appliance on any other connection it could be on: one
         // declared on the wrong connection, whose steps were not placed (at
         // this interval its few steps as declared may be composites), draws
         // there what its connection's voltage gives; unless it shows where
-        // placed beyond chance.
+        // placed beyond chance. Where it is placed, a load near its size is
+        // weighed by its nameplate (`doubt`): its steps there that fit it
+        // are its own, and the cluster's are not.
         let declared_size = self
             .placed
             .iter()
@@ -403,10 +407,15 @@ impl UndeclaredStage<'_> {
             .zip(placed_beyond)
             .filter(|(_, beyond)| !**beyond)
             .filter(|((a, _), _)| !self.beyond_habit(c, a))
-            .flat_map(|((a, b), _)| [a, b])
-            .flat_map(|a| {
-                std::iter::once(a.clone())
-                    .chain(alternatives(self.d, a).into_iter().map(|(_, b)| b))
+            .flat_map(|((a, b), _)| {
+                let here = wiring_names(a);
+                [a, b]
+                    .into_iter()
+                    .flat_map(|x| {
+                        std::iter::once(x.clone())
+                            .chain(alternatives(self.d, x).into_iter().map(|(_, y)| y))
+                    })
+                    .filter(move |x| !same_wiring_name(&wiring_names(x), &here))
             })
             .flat_map(|a| predicted(self.d, self.m, &a))
             .any(|r| dist_delta(&c.v, &r) <= 2.0);
@@ -448,6 +457,21 @@ impl UndeclaredStage<'_> {
             &start_stop_pairs(&on, &off),
             seen,
         )
+    }
+
+    /// Whether cluster `c` runs beside the one-power appliance `a` (as
+    /// placed) and apart from it alike: `overlap_runs` of its runs seen
+    /// whole start and stop within one run of `a`, while `a` is on at its
+    /// declared power, and as many start and stop while `a` is off. A
+    /// setting of `a` takes the place of its declared power, so it does not
+    /// run within its runs; an element or a stage of `a` beyond its
+    /// declared power (an entry of one power may give less than its most)
+    /// runs only within them. A load that does both is another.
+    fn runs_beside(&self, c: &Cluster, a: &DeclAppliance) -> bool {
+        let (on, off) = self.steps_of(a);
+        let (mine, theirs) = (start_stop_pairs(&c.on, &c.off), start_stop_pairs(&on, &off));
+        let n = self.th.overlap_runs;
+        runs_inside(&mine, &theirs) >= n && runs_away(&mine, &theirs) >= n
     }
 
     /// Whether cluster `c` runs more often than appliance `a`'s declared
@@ -520,7 +544,7 @@ impl UndeclaredStage<'_> {
             x.rated_v
                 .is_some_and(|r| (supply.nominal_across(x.wiring) / r - 1.0).abs() > TOL_REL_V)
         });
-        let reactive = a.states.iter().flatten().any(|x| x.s.im != 0.0);
+        let reactive = a.draws_reactive();
         if ck.steps_declared < self.th.seen_where_declared {
             Some("not seen switching at that size")
         } else if rated_away {
@@ -570,10 +594,12 @@ impl UndeclaredStage<'_> {
     /// connection that one could be on (its own or another: either it is
     /// wired there or draws other than declared, or it was not used and this
     /// is another load); it is within a fifth of the size of one on the same
-    /// connection not seen switching at its declared size (its nameplate, not
-    /// what it draws); or it is smaller than
-    /// one on the same connection (one of its elements or settings, which
-    /// its entry does not give) and does not run apart from it. No appliance
+    /// connection whose size there is unsure ([`Self::unsure_size`]; a
+    /// rated one that draws reactive power is known only between its size
+    /// there and its nameplate); or it is smaller than one on the same
+    /// connection (one of its elements or settings, which its entry does
+    /// not give) and runs neither apart from it nor both beside and apart
+    /// from it ([`Self::runs_beside`]). No appliance
     /// accounts for a cluster that runs beyond its declared habit
     /// ([`Self::beyond_habit`]).
     fn doubt(&self, c: &Cluster) -> Option<String> {
@@ -614,12 +640,33 @@ impl UndeclaredStage<'_> {
                 continue;
             }
             let size = a.largest_step_w();
-            if (size - p).abs() <= self.th.nameplate_band * size {
+            // A rated entry that draws reactive power (a motor, a power
+            // supply) on a connection of another voltage draws between its
+            // nameplate and what its voltage law gives there: its input is
+            // what its load asks. A resistance's is set by the voltage.
+            let plate = if a.draws_reactive() {
+                a.nameplate_step_w(&self.d.supply)
+            } else {
+                size
+            };
+            let (lo, hi) = (size.min(plate), size.max(plate));
+            let band = self.th.nameplate_band;
+            if p >= (1.0 - band) * lo && p <= (1.0 + band) * hi {
                 if let Some(how) = self.unsure_size(c, a, ck) {
-                    return Some(format!("it is within {:.0} % of the size of {} ({size:.0} W on the same connection, declared by one power only, {how}): it may be {} drawing other than its nameplate", 100.0 * self.th.nameplate_band, a.id, a.id));
+                    let sizes = if hi > lo {
+                        format!(
+                            "{size:.0} W on the same connection, {plate:.0} W at its rated voltage"
+                        )
+                    } else {
+                        format!("{size:.0} W on the same connection")
+                    };
+                    return Some(format!("it is within {:.0} % of the size of {} ({sizes}, declared by one power only, {how}): it may be {} drawing other than its nameplate", 100.0 * band, a.id, a.id));
                 }
             }
-            if size > 1.2 * p && !self.runs_apart(c, a, ck.steps_declared) {
+            if size > 1.2 * p
+                && !self.runs_apart(c, a, ck.steps_declared)
+                && !self.runs_beside(c, a)
+            {
                 return Some(format!("it is smaller than {} ({size:.0} W on the same connection, declared by one power only): it may be one of its elements or a lower setting", a.id));
             }
         }
@@ -643,16 +690,29 @@ fn fragment_of(c: &Cluster, all: &[Cluster], band: f64) -> bool {
 /// of `mine` ten minutes or more from every one of `theirs`, and more of
 /// `mine` than `seen`.
 fn runs_apart_of(mine: &[(i64, i64)], theirs: &[(i64, i64)], seen: usize) -> bool {
+    let apart = runs_away(mine, theirs);
+    seen >= 2 && 4 * apart >= 3 * mine.len() && mine.len() > seen
+}
+
+/// How many runs of `mine` (start, stop; ms) are ten minutes or more from
+/// every one of `theirs`.
+fn runs_away(mine: &[(i64, i64)], theirs: &[(i64, i64)]) -> usize {
     const MARGIN_MS: i64 = 600_000;
-    let apart = mine
-        .iter()
+    mine.iter()
         .filter(|(s, e)| {
             !theirs
                 .iter()
                 .any(|(x0, x1)| *s <= x1 + MARGIN_MS && *e >= x0 - MARGIN_MS)
         })
-        .count();
-    seen >= 2 && 4 * apart >= 3 * mine.len() && mine.len() > seen
+        .count()
+}
+
+/// How many runs of `mine` (start, stop; ms) lie inside one of `theirs`:
+/// started after its start and stopped before its stop.
+fn runs_inside(mine: &[(i64, i64)], theirs: &[(i64, i64)]) -> usize {
+    mine.iter()
+        .filter(|(s, e)| theirs.iter().any(|(x0, x1)| x0 < s && e < x1))
+        .count()
 }
 
 #[cfg(test)]
@@ -820,17 +880,7 @@ mod tests {
                 .flat_map(|i| [step(i * 3 * H + at, w), step(i * 3 * H + at + H / 6, -w)])
                 .collect()
         };
-        let stats = vec![
-            ChannelStats {
-                rows: 86_400,
-                null: 0,
-                zero: 0,
-                sum_p: 500.0 * 86_400.0,
-                negative: vec![[0, 86_400]; 2],
-                ..Default::default()
-            };
-            2
-        ];
+        let stats = day_stats(2, 500.0);
         let d = split_phase(vec![on_off("oven", 0, C64::new(1300.0, 0.0))]);
         let o = check(&d, &runs(12, 1100.0, 0), &stats, 10.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
@@ -1001,6 +1051,25 @@ mod tests {
         let mut d = three_phase(vec![entry(None, 0.0)]);
         d.supply.voltage_v = 120.0;
         assert_eq!(doubt(&d, cluster(1769.0, 4)), None, "a resistance");
+        // Rated at 240 V and taken by a resistance's law at 208 V (2.1 kW
+        // there is 1577 W): a motor's input lies anywhere between that and
+        // its nameplate, so 1962 W, a quarter above 1577 W, is within a
+        // fifth of that span; 2.6 kW is not. A resistance draws by its law.
+        let rated = |q: f64| {
+            let mut a = entry(Some(240.0), q);
+            a.states[1][0].zip_p = crate::contract::Zip {
+                z: 1.0,
+                i: 0.0,
+                p: 0.0,
+            };
+            let mut d = three_phase(vec![a]);
+            d.supply.voltage_v = 120.0;
+            d
+        };
+        let why = doubt(&rated(518.0), cluster(1962.0, 20)).unwrap();
+        assert!(why.contains("2103 W at its rated voltage"), "{why}");
+        assert_eq!(doubt(&rated(518.0), cluster(2600.0, 20)), None);
+        assert_eq!(doubt(&rated(0.0), cluster(1962.0, 20)), None);
     }
 
     /// A 1.5 kW heater declared across L1-L2 at 1 min with real power only,
@@ -1099,6 +1168,85 @@ mod tests {
         assert!(!fragment_of(&all[2], &all, 0.2), "another connection");
         assert!(!fragment_of(&all[3], &all, 0.2), "too far from it");
         assert!(!fragment_of(&all[0], &all, 0.2), "the busiest itself");
+    }
+
+    /// Runs inside another's start after it and stop before it; runs away
+    /// from another's are ten minutes or more from it.
+    #[test]
+    fn runs_inside_and_away_from_others_are_counted() {
+        let theirs = [(0, H), (4 * H, 5 * H)];
+        let mine = [
+            (H / 4, H / 2),
+            (H / 2, 2 * H),
+            (2 * H, 3 * H),
+            (H + H / 12, 2 * H),
+        ];
+        assert_eq!(runs_inside(&mine, &theirs), 1);
+        assert_eq!(
+            runs_away(&mine, &theirs),
+            1,
+            "five minutes after is not away"
+        );
+    }
+
+    /// A 1.5 kW heater declared on L1-N by one power, cycling (30 min on
+    /// in every 2 h, at 1 s), and a left-out 900 W load there that runs for
+    /// ten minutes eight times: all within the heater's runs, it may be an
+    /// element or a lower setting of the heater (possible); half within
+    /// them (the heater at full power, with 900 W more: no setting of the
+    /// heater does that) and half an hour after them, it is another load.
+    #[test]
+    fn a_smaller_load_both_beside_and_apart_from_an_appliance_is_another() {
+        use crate::audit::check::check;
+        let found = |away: i64| -> (Vec<String>, Vec<String>) {
+            let mut events = Vec::new();
+            for i in 0..12 {
+                let t = i * 2 * H;
+                events.extend([l1_step(t, 1500.0), l1_step(t + H / 2, -1500.0)]);
+            }
+            for i in 0..8 {
+                let t = i * 2 * H + if i < away { H } else { H / 12 };
+                events.extend([l1_step(t, 900.0), l1_step(t + H / 6, -900.0)]);
+            }
+            events.sort_by_key(|e| e.time_ms);
+            let d = split_phase(vec![on_off("heater", 0, C64::new(1500.0, 0.0))]);
+            let o = check(&d, &events, &day_stats(2, 500.0), 1.0);
+            let subjects = |v: &[Finding]| v.iter().map(|f| f.subject.clone()).collect();
+            (subjects(&o.findings), subjects(&o.possible))
+        };
+        let (findings, possible) = found(0);
+        assert!(findings.is_empty(), "{findings:?}");
+        assert_eq!(possible, ["900 W on L1-N"]);
+        let (findings, _) = found(4);
+        assert_eq!(findings, ["900 W on L1-N"]);
+    }
+
+    /// At 1 min with real power only, a 1.5 kW heater declared on L1-N
+    /// switches four times there, as often as steps of the sizes beside its
+    /// own show (so not beyond chance), and a left-out 1.3 kW load there
+    /// (beyond its fit tolerance of 180 W, within twice it) runs twelve
+    /// times: the heater's own steps fit it where it is, and a load near
+    /// its size beside it is weighed by its nameplate (within a fifth of
+    /// it, but seen switching at its size, and a resistance): a finding.
+    #[test]
+    fn a_coarse_load_near_the_size_of_an_appliance_where_it_is_is_weighed_by_its_nameplate() {
+        use crate::audit::check::check;
+        let run = |t: i64, w: f64| [l1_step(t, w), l1_step(t + H / 6, -w)];
+        let mut events: Vec<Event> = (0..12).flat_map(|i| run(i * 3 * H, 1300.0)).collect();
+        for (i, w) in [1500.0, 1500.0, 1140.0, 1140.0, 1860.0, 1860.0]
+            .into_iter()
+            .enumerate()
+        {
+            events.extend(run(i as i64 * 3 * H + H, w));
+        }
+        events.sort_by_key(|e| e.time_ms);
+        let mut d = split_phase(vec![on_off("heater", 0, C64::new(1500.0, 0.0))]);
+        d.real_only = true;
+        let o = check(&d, &events, &day_stats(2, 500.0), 60.0);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        // The load's steps gather the 1140 W ones near them: 24 at 1300 W
+        // and 4 at 1140 W make 1277 W.
+        assert_eq!(found, ["1277 W on L1-N"], "{:?}", o.possible);
     }
 
     /// A step at `t` of `w` W on L1-N of a split-phase home at 120 V.
