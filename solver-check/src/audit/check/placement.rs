@@ -131,19 +131,42 @@ pub(super) fn shares(me: f64, rival: f64, th: &Thresholds) -> bool {
     rival <= 1.0 && rival < me + th.clearly_better
 }
 
+/// What an appliance's declared wiring shows of it, for a move's finding.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(super) enum AsDeclared {
+    /// Its wiring goes through a conductor no working CT reads.
+    Unread,
+    /// This many steps fit it there.
+    Steps(usize),
+    /// This many steps fit it there, no more than loads switching within
+    /// one row make by chance (at a coarse interval, where
+    /// [`Round::coarse_move_doubt`] weighs them): they do not keep it there.
+    Chance(usize),
+}
+
+impl AsDeclared {
+    /// The steps that fit it there (None: not read).
+    fn steps(self) -> Option<usize> {
+        match self {
+            AsDeclared::Unread => None,
+            AsDeclared::Steps(k) | AsDeclared::Chance(k) => Some(k),
+        }
+    }
+}
+
 /// The finding that appliance `a` is on `alt` (named `found`): `n_a` steps
-/// fit it there, `n_d` as declared (None: the declared wiring goes through
-/// a conductor no working CT reads, and counts as `BLIND_MOVE` steps of
-/// doubt in the confidence).
+/// fit it there, `there` shows what fits it as declared (not read: its
+/// wiring counts as `BLIND_MOVE` steps of doubt in the confidence).
 pub(super) fn move_finding(
     d: &Declared,
     a: &DeclAppliance,
     alt: &DeclAppliance,
     found: &str,
-    n_d: Option<usize>,
+    there: AsDeclared,
     n_a: usize,
     th: &Thresholds,
 ) -> Finding {
+    let n_d = there.steps();
     let declared = wiring_names(a);
     let step_w = d
         .signatures(alt)
@@ -166,7 +189,7 @@ pub(super) fn move_finding(
     let doubt = match n_d {
         None => Some(format!("{declared} cannot be checked, so a load of its size on {found} that is not {} would look the same", a.id)),
         Some(k) if d.partial && (k > 0 || n_a < th.partial_move) => Some(format!("the declaration is partial, so a load it does not list, of this size on {found}, would look the same while {} was not used", a.id)),
-        Some(k) if k >= th.seen_where_declared => Some(format!("{k} of its steps show where declared too, so the steps on {found} may be another load of its size")),
+        Some(k) if k >= th.seen_where_declared && !matches!(there, AsDeclared::Chance(_)) => Some(format!("{k} of its steps show where declared too, so the steps on {found} may be another load of its size")),
         Some(_) => None,
     };
     Finding {
@@ -438,7 +461,7 @@ impl Round<'_> {
         let whole = n_a >= th.blind_move
             && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
         if whole {
-            let mut f = move_finding(d, a, &alt, &name_a, None, n_a, th);
+            let mut f = move_finding(d, a, &alt, &name_a, AsDeclared::Unread, n_a, th);
             self.count_dark(&mut f, &name_a, &mine);
             let cover = coverage(d, m, &alt, self.used, self.cxs, &mine, 0.0);
             ck.reason = format!("{n_a} steps fit it on {name_a}; its declared wiring goes through L{}, which no working CT reads", x + 1);
@@ -640,7 +663,12 @@ impl Round<'_> {
         let whole =
             moves && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
         if whole {
-            let mut f = move_finding(d, a, &alt, &name_a, Some(n_d), n_a, th);
+            let there = if self.coarse() && self.at_chance(a) {
+                AsDeclared::Chance(n_d)
+            } else {
+                AsDeclared::Steps(n_d)
+            };
+            let mut f = move_finding(d, a, &alt, &name_a, there, n_a, th);
             self.count_dark(&mut f, &name_a, &mine);
             // A partial declaration or a one-power entry leaves steps the
             // declaration does not give: a move may then be two channels
@@ -772,6 +800,14 @@ impl Round<'_> {
     /// sizes get by chance ([`beyond_chance`]).
     fn beyond_chance(&self, b: &DeclAppliance) -> bool {
         beyond_chance(self.d, self.m, self.used, self.cxs, b, self.th)
+    }
+
+    /// Whether no more steps fit appliance `b` as wired than its
+    /// neighbouring sizes get ([`against_background`]): what fits it there
+    /// is what chance makes of any size, no sign of it.
+    fn at_chance(&self, b: &DeclAppliance) -> bool {
+        let (n, background) = against_background(self.d, self.m, self.used, self.cxs, b);
+        n as f64 <= background
     }
 
     /// How many steps of the size of appliance `alt` two declared
@@ -1164,7 +1200,9 @@ mod tests {
 
     /// Placement stage: a move is doubted (listed as possible) when the
     /// declared wiring cannot be read, or when a run shows where declared
-    /// too; not when nothing shows there. In a partial declaration, also
+    /// too; not when nothing shows there, nor when what shows there is no
+    /// more than chance makes (at a coarse interval, where the coarse test
+    /// weighs the move instead). In a partial declaration, also
     /// when anything shows where declared or fewer than three runs elsewhere.
     #[test]
     fn a_move_another_account_fits_is_only_possible() {
@@ -1172,23 +1210,35 @@ mod tests {
         let a = on_off("kettle", 0, C64::new(1500.0, 0.0));
         let alt = on_off("kettle", 1, C64::new(1500.0, 0.0));
         let mut d = split_phase(vec![a.clone()]);
-        let f = |d: &Declared, n_d: Option<usize>| move_finding(d, &a, &alt, "L2-N", n_d, 20, th);
-        assert!(f(&d, Some(0)).doubt.is_none());
+        let f = |d: &Declared, there: AsDeclared| move_finding(d, &a, &alt, "L2-N", there, 20, th);
+        assert!(f(&d, AsDeclared::Steps(0)).doubt.is_none());
         assert!(
-            f(&d, Some(1)).doubt.is_none(),
+            f(&d, AsDeclared::Steps(1)).doubt.is_none(),
             "one step is as likely another load's"
         );
-        assert!(f(&d, Some(2)).doubt.is_some());
-        assert!(f(&d, None).doubt.is_some());
+        assert!(f(&d, AsDeclared::Steps(2)).doubt.is_some());
+        assert!(
+            f(&d, AsDeclared::Chance(2)).doubt.is_none(),
+            "steps where declared no more than chance"
+        );
+        assert!(f(&d, AsDeclared::Unread).doubt.is_some());
         d.partial = true;
         assert!(
-            f(&d, Some(0)).doubt.is_none(),
+            f(&d, AsDeclared::Steps(0)).doubt.is_none(),
             "20 steps, none where declared"
         );
-        assert!(f(&d, Some(1)).doubt.is_some());
-        let few = move_finding(&d, &a, &alt, "L2-N", Some(0), th.partial_move - 1, th);
+        assert!(f(&d, AsDeclared::Steps(1)).doubt.is_some());
+        let few = move_finding(
+            &d,
+            &a,
+            &alt,
+            "L2-N",
+            AsDeclared::Steps(0),
+            th.partial_move - 1,
+            th,
+        );
         assert!(few.doubt.is_some(), "fewer than three runs");
-        assert_eq!(f(&d, Some(0)).kind, Kind::WrongLine);
+        assert_eq!(f(&d, AsDeclared::Steps(0)).kind, Kind::WrongLine);
     }
 
     /// Placement stage, a partial declaration at 1 s: a 1.5 kW kettle
@@ -1395,34 +1445,34 @@ mod tests {
     /// show five runs, and as many at 740 W and at 1260 W (the sizes just
     /// beside its tolerance: 30 W + 10 % is 13 %, so 1 ∓ 2 · 13 %); twenty
     /// runs of 1 kW on L2-N (40 steps, three times its 10 where declared
-    /// and two more). At 10 s its steps where declared keep it
-    /// there; at 1 min they are no more than its neighbouring sizes get by
-    /// chance, so they do not, and its move is listed (as possible: steps
-    /// of its size show where declared too).
+    /// and two more). At 10 s its steps where declared keep it there; at
+    /// 1 min they are no more than its neighbouring sizes get by chance, so
+    /// they neither keep it there nor doubt its move: a finding. With
+    /// nothing beside its size where declared, its steps there are beyond
+    /// chance at 1 min too, and keep it there.
     #[test]
     fn at_a_coarse_interval_steps_where_declared_count_beyond_chance_only() {
         use crate::audit::check::check;
         let d = split_phase(vec![on_off("kettle", 0, C64::new(1000.0, 0.0))]);
-        let mut events = runs_on(2, 1, 1000.0, 20, 0);
-        for (w, at) in [(1000.0, H / 4), (740.0, H / 2), (1260.0, 3 * H / 4)] {
-            events.extend(runs_on(2, 0, w, 5, at));
-        }
-        events.sort_by_key(|e| e.time_ms);
-        let o = check(&d, &events, &day_stats(2, 200.0), 10.0);
+        let events = |neighbours: bool| {
+            let mut events = runs_on(2, 1, 1000.0, 20, 0);
+            events.extend(runs_on(2, 0, 1000.0, 5, H / 4));
+            if neighbours {
+                events.extend(runs_on(2, 0, 740.0, 5, H / 2));
+                events.extend(runs_on(2, 0, 1260.0, 5, 3 * H / 4));
+            }
+            events.sort_by_key(|e| e.time_ms);
+            events
+        };
+        let o = check(&d, &events(true), &day_stats(2, 200.0), 10.0);
         assert_eq!(o.appliances[0].verdict, Verdict::AsDeclared);
         assert!(!o.possible.iter().any(|f| f.subject == "kettle"));
-        let o = check(&d, &events, &day_stats(2, 200.0), 60.0);
-        assert!(o.findings.iter().all(|f| f.subject != "kettle"));
-        let moved = o.possible.iter().find(|f| f.subject == "kettle");
-        let moved = moved.unwrap_or_else(|| panic!("{:?} {:?}", o.appliances, o.possible));
-        assert!(
-            moved
-                .doubt
-                .as_ref()
-                .unwrap()
-                .contains("show where declared"),
-            "{moved:?}"
-        );
+        let o = check(&d, &events(true), &day_stats(2, 200.0), 60.0);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(found, ["kettle"], "{:?} {:?}", o.appliances, o.possible);
+        let o = check(&d, &events(false), &day_stats(2, 200.0), 60.0);
+        assert_eq!(o.appliances[0].verdict, Verdict::AsDeclared);
+        assert!(!o.possible.iter().any(|f| f.subject == "kettle"));
     }
 
     /// At a coarse interval, moves standing on their own steps are only
