@@ -54,28 +54,47 @@ pub(super) struct OwnStep {
     /// The largest change along its start among the other steps since the
     /// appliance's previous step, in units of its start.
     pub between: f64,
+    /// Whether one of those changes is a rise (`.0`) or a fall (`.1`) of
+    /// about twice its start: one load of twice its size switching at once.
+    pub twice: (bool, bool),
+}
+
+/// A change along an appliance's start, in units of it, that is about
+/// twice it (from [`TWICE`] to as far above two): one load of twice its
+/// size, or two of its size at once.
+fn about_twice(x: f64) -> bool {
+    (TWICE..=4.0 - TWICE).contains(&x.abs())
 }
 
 /// The second step of each pair of steps of one way, with no other change
 /// of a third of its size on its channels between them, that take the
 /// channels through twice the step or more: a start while it was already
-/// on, or a stop after it had stopped.
+/// on, or a stop after it had stopped. Not so when one change of about
+/// twice the step took the channels up before the two stops, or down after
+/// the two starts (before the appliance's next step): a load of twice its
+/// size (a hair dryer of two settings declared by its highest) started at
+/// once and stopped in two steps, or started in two and stopped at once.
 pub(super) fn overlaps(steps: &[OwnStep]) -> Vec<OwnStep> {
-    steps
-        .windows(2)
-        .filter(|w| {
-            let (a, b) = (w[0], w[1]);
+    (0..steps.len().saturating_sub(1))
+        .filter(|&i| {
+            let (a, b) = (steps[i], steps[i + 1]);
             let span = if a.start {
                 b.after - a.before
             } else {
                 a.before - b.after
             };
+            let staged = if a.start {
+                steps.get(i + 2).is_some_and(|c| c.twice.1)
+            } else {
+                a.twice.0
+            };
             a.start == b.start
                 && b.t - a.t <= OVERLAP_WITHIN_MS
                 && b.between < QUIET
                 && span >= TWICE
+                && !staged
         })
-        .map(|w| w[1])
+        .map(|i| steps[i + 1])
         .collect()
 }
 
@@ -138,6 +157,7 @@ impl LookAlikes<'_> {
         let start: Vec<Option<C64>> = r.iter().map(|c| c.map(|c| c.scale(sign))).collect();
         let mut out = Vec::new();
         let mut between: f64 = 0.0;
+        let mut twice = (false, false);
         for (k, e) in self.events.iter().enumerate() {
             let cx = &self.cxs[k];
             let (Some(step), Some(before)) = (along(&e.delta, &start), along(&e.before, &start))
@@ -151,6 +171,13 @@ impl LookAlikes<'_> {
                     .any(|(o, p)| o != j && p.dist(d, m, e, cx) <= 1.0)
             {
                 between = between.max(step.abs());
+                if about_twice(step) {
+                    if step > 0.0 {
+                        twice.0 = true;
+                    } else {
+                        twice.1 = true;
+                    }
+                }
                 continue;
             }
             out.push(OwnStep {
@@ -160,8 +187,10 @@ impl LookAlikes<'_> {
                 before,
                 after: before + step,
                 between,
+                twice,
             });
             between = 0.0;
+            twice = (false, false);
         }
         out
     }
@@ -211,6 +240,7 @@ mod tests {
             before,
             after,
             between: 0.0,
+            twice: (false, false),
         }
     }
 
@@ -245,6 +275,21 @@ mod tests {
         let mut busy = [step(0, true, 0.0), step(H, true, 1.0)];
         busy[1].between = 0.5;
         assert!(overlaps(&busy).is_empty());
+        // Two stops after one rise of twice its size: a load of twice it
+        // stopping in two steps; two starts, then one fall of twice it
+        // before the next step: one starting in two. Neither is an overlap.
+        let mut staged_stop = [step(H, false, 2.0), step(H + H / 60, false, 1.0)];
+        staged_stop[0].twice = (true, false);
+        assert!(overlaps(&staged_stop).is_empty());
+        let mut staged_start = [
+            step(0, true, 0.0),
+            step(H / 60, true, 1.0),
+            step(3 * H, true, 0.0),
+        ];
+        staged_start[2].twice = (false, true);
+        assert!(overlaps(&staged_start).is_empty());
+        staged_start[2].twice = (true, false);
+        assert_eq!(overlaps(&staged_start).len(), 1, "a rise is no stop");
     }
 
     /// A 1.5 kW heater declared by one power on L1-N, and a left-out load of
