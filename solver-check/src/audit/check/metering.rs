@@ -706,7 +706,7 @@ pub(super) fn choose_metering(
     let chosen = if chosen == decl_i {
         chosen
     } else {
-        simplest_renaming(d, &hyps, &scored, chosen, th)
+        simplest_renaming(d, &hyps, &scored, chosen, big, th)
     };
     MeteringChoice {
         hyps,
@@ -741,16 +741,20 @@ pub(super) fn renamed(d: &Declared, a: &Metering, b: &Metering) -> bool {
 /// appliances (a busy one on the disputed line may explain many steps
 /// alone), and the declared
 /// appliances' evidence does not clearly favour `chosen`
-/// ([`Dispute::favours_found`]). Two CTs on one conductor read the same
+/// ([`Dispute::favours_found`]), or it supposes two changes fewer and,
+/// with one appliance moved to another connection, explains as many of the
+/// steps `big` ([`most_with_one_move`]). Two CTs on one conductor read the same
 /// whichever conductor that is, save for its 120 V loads: where appliances
 /// of about one size sit on both lines, those alone cannot name it, and
-/// the account with fewer mistakes is the simpler one (common practice, no
-/// source).
+/// one misdeclared 120 V appliance can name it wrongly; the account with
+/// fewer mistakes, an appliance's move counted as one, is the simpler one
+/// (common practice, no source).
 fn simplest_renaming(
     d: &Declared,
     hyps: &[(Metering, usize)],
     scored: &[Scored],
     chosen: usize,
+    big: &[&Event],
     th: &Thresholds,
 ) -> usize {
     let ch = &scored[chosen];
@@ -759,9 +763,11 @@ fn simplest_renaming(
         .filter(|s| {
             s.cost < ch.cost
                 && s.admissible(th)
-                && (s.ex as f64 >= 0.9 * ch.ex as f64 || s.apps >= ch.apps)
                 && renamed(d, &hyps[chosen].0, &hyps[s.i].0)
-                && !dispute(ch, s, th).favours_found(th)
+                && ((s.ex as f64 >= 0.9 * ch.ex as f64 || s.apps >= ch.apps)
+                    && !dispute(ch, s, th).favours_found(th)
+                    || s.cost + 1 < ch.cost
+                        && most_with_one_move(d, &hyps[s.i].0, big, s.ex) >= ch.ex)
         })
         .min_by_key(|s| (s.cost, usize::MAX - s.ex))
         .map_or(chosen, |s| s.i)
@@ -1304,14 +1310,65 @@ mod tests {
         // One busy appliance speaks for L2 (4 steps only there), one for L1:
         // as many appliances fit under L1, which supposes fewer changes.
         let s = scored(owns(&[(0, 6)]), 3);
-        assert_eq!(simplest_renaming(&d, &hyps, &s, on_l2, th), on_l1);
+        assert_eq!(simplest_renaming(&d, &hyps, &s, on_l2, &[], th), on_l1);
         // Under L1 fewer appliances fit and under 90 % of the steps: L2.
         let s = scored(owns(&[(0, 6)]), 2);
-        assert_eq!(simplest_renaming(&d, &hyps, &s, on_l2, th), on_l2);
+        assert_eq!(simplest_renaming(&d, &hyps, &s, on_l2, &[], th), on_l2);
         // Two appliances own four steps each only under L2 (eight steps
         // against one): the evidence clearly favours it.
         let s = scored(owns(&[(0, 2), (2, 7), (8, 12)]), 3);
-        assert_eq!(simplest_renaming(&d, &hyps, &s, on_l2, th), on_l2);
+        assert_eq!(simplest_renaming(&d, &hyps, &s, on_l2, &[], th), on_l2);
+    }
+
+    /// Split phase, the CT of channel l1 on conductor L2 (l1 reads −S2, as
+    /// V1 = −V2; l2 reads S2); a 1 kW heater declared on L1-N that is on
+    /// L2-N, switching 20 times, and a 700 W toaster likewise, 4 times,
+    /// beside a 1.5 kW kettle on L2-N as declared, 8 times. Read as both
+    /// CTs on L1, both reversed (three changes), the heater and the toaster
+    /// fit as declared, two appliances for that reading, and explain more
+    /// steps than the kettle does under the one CT moved; but that one
+    /// change and the heater moved explain as many: the CT on L2 is found,
+    /// and the heater on L2-N (the toaster's four steps are too few to
+    /// place it).
+    #[test]
+    fn one_ct_moved_and_one_appliance_moved_beat_three_metering_changes() {
+        use crate::audit::check::testkit::split_phase;
+        let d = split_phase(vec![
+            on_off("heater", 0, C64::new(1000.0, 0.0)),
+            on_off("toaster", 0, C64::new(700.0, 0.0)),
+            on_off("kettle", 1, C64::new(1500.0, 0.0)),
+        ]);
+        let on_l2 = |w: f64| vec![C64::new(-w, 0.0), C64::new(w, 0.0)];
+        let mut events = Vec::new();
+        for (w, runs, at) in [(1000.0, 10, 0), (700.0, 2, H), (1500.0, 4, H / 2)] {
+            for r in 0..runs {
+                let t = r * 2 * H + at;
+                events.push(step(t, on_l2(w)));
+                events.push(step(t + H / 6, on_l2(-w)));
+            }
+        }
+        events.sort_by_key(|e| e.time_ms);
+        // Both channels read L2's 300 W and more: read as from L1 (a sign
+        // turned by V2 = −V1) with k = +1, or from L2 with k = −1, every row
+        // is negative.
+        let mut stats = consuming(2);
+        for st in &mut stats {
+            st.negative = vec![[86_400, 0], [0, 86_400]];
+        }
+        let o = check(&d, &events, &stats, 1.0);
+        let mut found: Vec<(&str, &str)> = o
+            .findings
+            .iter()
+            .chain(&o.possible)
+            .map(|f| (f.kind.name(), f.subject.as_str()))
+            .collect();
+        found.sort();
+        assert_eq!(
+            found,
+            [("ct-on-other-conductor", "l1"), ("wrong-line", "heater")],
+            "{:?}",
+            o.findings
+        );
     }
 
     /// The dark hours of the home's clock.

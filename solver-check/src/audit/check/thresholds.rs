@@ -122,7 +122,7 @@ pub struct Thresholds {
     /// on before its next start; three of them hardly (common practice, no
     /// source). As many runs of a smaller load within the appliance's runs,
     /// and as many apart from them, make it another load than a setting or
-    /// a stage of the appliance.
+    /// a stage of the appliance (0: every smaller load is another).
     pub overlap_runs: usize,
     /// Share of a one-power entry's size within which a load may be that
     /// entry drawing other than its nameplate: an entry gives one power, the
@@ -269,7 +269,7 @@ pub const CUTOFFS: [Cutoff; 20] = [
     },
     Cutoff {
         name: "coarse_interval_s",
-        meaning: "reporting interval (s) from which placements and undeclared loads are only possible (a move or an undeclared load of coarse_runs runs, beyond chance, excepted)",
+        meaning: "reporting interval (s) from which placements and undeclared loads are only possible (a move or an undeclared load of coarse_runs runs, beyond chance, or a look-alike of coarse_runs overlaps excepted)",
         range: (0.0, 86_400.0),
         count: false,
         get: |t| t.coarse_interval_s,

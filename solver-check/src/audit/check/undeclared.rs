@@ -371,9 +371,9 @@ impl UndeclaredStage<'_> {
     /// one row: the cluster is possible only, unless it repeats as one load
     /// does (`coarse_runs` runs seen whole, starts and stops within 3 to 4,
     /// on one connection) at a size that is no declared jump (within twice
-    /// its tolerance, on a connection other than where its appliance is
-    /// placed: a load near its size there is weighed by its nameplate,
-    /// [`UndeclaredStage::doubt`]), nor near a busier cluster's of `all` on its
+    /// its tolerance; for a one-power appliance, on a connection other than
+    /// where it is placed: a load near its size there is weighed by its
+    /// nameplate, [`UndeclaredStage::doubt`]), nor near a busier cluster's of `all` on its
     /// connection ([`UndeclaredStage::fragment`]), and coincidences of two
     /// declared appliances would make under `composite_share` of its steps
     /// ([`composites`]). An appliance whose steps show where it is placed
@@ -397,9 +397,11 @@ impl UndeclaredStage<'_> {
         // declared on the wrong connection, whose steps were not placed (at
         // this interval its few steps as declared may be composites), draws
         // there what its connection's voltage gives; unless it shows where
-        // placed beyond chance. Where it is placed, a load near its size is
-        // weighed by its nameplate (`doubt`): its steps there that fit it
-        // are its own, and the cluster's are not.
+        // placed beyond chance. Where a one-power appliance is placed, a
+        // load near its size is weighed by its nameplate (`doubt`): its
+        // steps there that fit it are its own, and the cluster's are not.
+        // (One of several step sizes counts where placed too: `doubt` does
+        // not weigh it.)
         let declared_size = self
             .placed
             .iter()
@@ -409,13 +411,14 @@ impl UndeclaredStage<'_> {
             .filter(|((a, _), _)| !self.beyond_habit(c, a))
             .flat_map(|((a, b), _)| {
                 let here = wiring_names(a);
+                let weighed = one_power(a);
                 [a, b]
                     .into_iter()
                     .flat_map(|x| {
                         std::iter::once(x.clone())
                             .chain(alternatives(self.d, x).into_iter().map(|(_, y)| y))
                     })
-                    .filter(move |x| !same_wiring_name(&wiring_names(x), &here))
+                    .filter(move |x| !weighed || !same_wiring_name(&wiring_names(x), &here))
             })
             .flat_map(|a| predicted(self.d, self.m, &a))
             .any(|r| dist_delta(&c.v, &r) <= 2.0);
@@ -462,12 +465,13 @@ impl UndeclaredStage<'_> {
     /// Whether cluster `c` runs beside the one-power appliance `a` (as
     /// placed) and apart from it alike: `overlap_runs` of its runs seen
     /// whole start and stop within one run of `a`, while `a` is on at its
-    /// declared power, and as many start and stop while `a` is off. A
+    /// declared power, and as many ten minutes or more from every run of
+    /// `a` ([`runs_away`]). A
     /// setting of `a` takes the place of its declared power, so it does not
     /// run within its runs; an element or a stage of `a` beyond its
     /// declared power (an entry of one power may give less than its most)
     /// runs only within them. A load that does both is another.
-    fn runs_beside(&self, c: &Cluster, a: &DeclAppliance) -> bool {
+    fn runs_beside_and_apart(&self, c: &Cluster, a: &DeclAppliance) -> bool {
         let (on, off) = self.steps_of(a);
         let (mine, theirs) = (start_stop_pairs(&c.on, &c.off), start_stop_pairs(&on, &off));
         let n = self.th.overlap_runs;
@@ -599,7 +603,7 @@ impl UndeclaredStage<'_> {
     /// there and its nameplate); or it is smaller than one on the same
     /// connection (one of its elements or settings, which its entry does
     /// not give) and runs neither apart from it nor both beside and apart
-    /// from it ([`Self::runs_beside`]). No appliance
+    /// from it ([`Self::runs_beside_and_apart`]). No appliance
     /// accounts for a cluster that runs beyond its declared habit
     /// ([`Self::beyond_habit`]).
     fn doubt(&self, c: &Cluster) -> Option<String> {
@@ -653,7 +657,7 @@ impl UndeclaredStage<'_> {
             let band = self.th.nameplate_band;
             if p >= (1.0 - band) * lo && p <= (1.0 + band) * hi {
                 if let Some(how) = self.unsure_size(c, a, ck) {
-                    let sizes = if hi > lo {
+                    let sizes = if hi > (1.0 + TOL_REL_V) * lo {
                         format!(
                             "{size:.0} W on the same connection, {plate:.0} W at its rated voltage"
                         )
@@ -665,7 +669,7 @@ impl UndeclaredStage<'_> {
             }
             if size > 1.2 * p
                 && !self.runs_apart(c, a, ck.steps_declared)
-                && !self.runs_beside(c, a)
+                && !self.runs_beside_and_apart(c, a)
             {
                 return Some(format!("it is smaller than {} ({size:.0} W on the same connection, declared by one power only): it may be one of its elements or a lower setting", a.id));
             }
@@ -1173,8 +1177,9 @@ mod tests {
         assert!(!fragment_of(&all[0], &all, 0.2), "the busiest itself");
     }
 
-    /// Runs inside another's start after it and stop before it; runs away
-    /// from another's are ten minutes or more from it.
+    /// A run lies inside another when it starts after that one starts and
+    /// stops before it stops; it is away from the others when it is ten
+    /// minutes or more from each of them.
     #[test]
     fn runs_inside_and_away_from_others_are_counted() {
         let theirs = [(0, H), (4 * H, 5 * H)];
