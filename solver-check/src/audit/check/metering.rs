@@ -613,24 +613,16 @@ pub(super) fn best_admissible(scored: &[Scored], decl_i: usize, th: &Thresholds)
     }
 }
 
-/// The most of `big` the declared metering explains with at most one
-/// appliance moved to another connection (`decl_ex` with none moved).
-pub(super) fn most_with_one_move(
-    d: &Declared,
-    decl_m: &Metering,
-    big: &[&Event],
-    decl_ex: usize,
-) -> usize {
+/// The most of `big` metering `m` explains with at most one declared
+/// appliance moved to another connection (`ex`, what it explains with
+/// none moved, at least).
+pub(super) fn most_with_one_move(d: &Declared, m: &Metering, big: &[&Event], ex: usize) -> usize {
     // The other appliances' fits stay as they are while one is moved.
-    let fits: Vec<Fits> = d
-        .appliances
-        .iter()
-        .map(|a| fits_of(d, decl_m, a, big))
-        .collect();
-    let mut most = decl_ex;
+    let fits: Vec<Fits> = d.appliances.iter().map(|a| fits_of(d, m, a, big)).collect();
+    let mut most = ex;
     for (j, a) in d.appliances.iter().enumerate() {
         for (_, alt) in alternatives(d, a) {
-            let moved = fits_of(d, decl_m, &alt, big);
+            let moved = fits_of(d, m, &alt, big);
             let others = fits
                 .iter()
                 .enumerate()
