@@ -16,6 +16,7 @@ use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::{ChannelStats, Event};
 use crate::contract::{Wiring, C64};
 use serde_json::json;
+use std::cell::OnceCell;
 
 /// Which of the steps `used` an appliance as placed explains.
 pub(super) fn steps_fit(
@@ -453,13 +454,22 @@ impl UndeclaredStage<'_> {
     /// either side of `a`'s runs), and it runs more often than `a`
     /// switches. An element or a lower setting of `a` draws while `a` runs;
     /// a load that mostly runs while `a` is off, and more often, is another.
-    fn runs_apart(&self, c: &Cluster, a: &DeclAppliance, seen: usize) -> bool {
-        let (on, off) = self.steps_of(a);
-        runs_apart_of(
-            &start_stop_pairs(&c.on, &c.off),
-            &start_stop_pairs(&on, &off),
-            seen,
-        )
+    /// (`theirs`: `a`'s runs seen whole, [`Self::runs_of`].)
+    fn runs_apart(&self, c: &Cluster, theirs: &[(i64, i64)], seen: usize) -> bool {
+        runs_apart_of(&start_stop_pairs(&c.on, &c.off), theirs, seen)
+    }
+
+    /// The runs seen whole (start, stop; ms) of the one-power appliance `a`
+    /// as placed, found once into `cell` however many tests ask for them.
+    fn runs_of<'c>(
+        &self,
+        a: &DeclAppliance,
+        cell: &'c OnceCell<Vec<(i64, i64)>>,
+    ) -> &'c [(i64, i64)] {
+        cell.get_or_init(|| {
+            let (on, off) = self.steps_of(a);
+            start_stop_pairs(&on, &off)
+        })
     }
 
     /// Whether cluster `c` runs beside the one-power appliance `a` (as
@@ -470,12 +480,12 @@ impl UndeclaredStage<'_> {
     /// setting of `a` takes the place of its declared power, so it does not
     /// run within its runs; an element or a stage of `a` beyond its
     /// declared power (an entry of one power may give less than its most)
-    /// runs only within them. A load that does both is another.
-    fn runs_beside_and_apart(&self, c: &Cluster, a: &DeclAppliance) -> bool {
-        let (on, off) = self.steps_of(a);
-        let (mine, theirs) = (start_stop_pairs(&c.on, &c.off), start_stop_pairs(&on, &off));
+    /// runs only within them. A load that does both is another. (`theirs`:
+    /// `a`'s runs seen whole, [`Self::runs_of`].)
+    fn runs_beside_and_apart(&self, c: &Cluster, theirs: &[(i64, i64)]) -> bool {
+        let mine = start_stop_pairs(&c.on, &c.off);
         let n = self.th.overlap_runs;
-        runs_inside(&mine, &theirs) >= n && runs_away(&mine, &theirs) >= n
+        runs_inside(&mine, theirs) >= n && runs_away(&mine, theirs) >= n
     }
 
     /// Whether cluster `c` runs more often than appliance `a`'s declared
@@ -536,12 +546,14 @@ impl UndeclaredStage<'_> {
     /// not run apart from it (an
     /// appliance's steps at sizes its entry does not give come while it
     /// runs; a load within the tolerance of its size is told by drawing
-    /// twice its power, as the overlap runs count).
+    /// twice its power, as the overlap runs count). `runs` keeps `a`'s runs
+    /// for the tests after this one ([`Self::runs_of`]).
     fn unsure_size(
         &self,
         c: &Cluster,
         a: &DeclAppliance,
         ck: &ApplianceCheck,
+        runs: &OnceCell<Vec<(i64, i64)>>,
     ) -> Option<&'static str> {
         let supply = &self.d.supply;
         let rated_away = a.states.iter().flatten().any(|x| {
@@ -555,7 +567,7 @@ impl UndeclaredStage<'_> {
             Some("rated at another voltage than its connection's")
         } else if reactive
             && (a.largest_step_w() - c.s.re).abs() > TOL_ABS_V_W + TOL_REL_V * c.s.re
-            && !self.runs_apart(c, a, ck.steps_declared)
+            && !self.runs_apart(c, self.runs_of(a, runs), ck.steps_declared)
         {
             Some("running when it runs")
         } else {
@@ -655,8 +667,9 @@ impl UndeclaredStage<'_> {
             };
             let (lo, hi) = (size.min(plate), size.max(plate));
             let band = self.th.nameplate_band;
+            let runs = OnceCell::new();
             if p >= (1.0 - band) * lo && p <= (1.0 + band) * hi {
-                if let Some(how) = self.unsure_size(c, a, ck) {
+                if let Some(how) = self.unsure_size(c, a, ck, &runs) {
                     let sizes = if hi > (1.0 + TOL_REL_V) * lo {
                         format!(
                             "{size:.0} W on the same connection, {plate:.0} W at its rated voltage"
@@ -668,8 +681,8 @@ impl UndeclaredStage<'_> {
                 }
             }
             if size > 1.2 * p
-                && !self.runs_apart(c, a, ck.steps_declared)
-                && !self.runs_beside_and_apart(c, a)
+                && !self.runs_apart(c, self.runs_of(a, &runs), ck.steps_declared)
+                && !self.runs_beside_and_apart(c, self.runs_of(a, &runs))
             {
                 return Some(format!("it is smaller than {} ({size:.0} W on the same connection, declared by one power only): it may be one of its elements or a lower setting", a.id));
             }
