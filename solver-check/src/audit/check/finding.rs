@@ -3,7 +3,7 @@
 
 use super::fit::tol;
 use super::thresholds::Thresholds;
-use crate::audit::decl::Declared;
+use crate::audit::decl::{Declared, Inverter};
 use serde_json::Value;
 
 /// A kind of installer mistake, as findings and the fault matrix name them.
@@ -151,6 +151,7 @@ pub struct ApplianceCheck {
 pub(super) fn sort_findings(
     d: &Declared,
     mut findings: Vec<Finding>,
+    answers_apart: bool,
     th: &Thresholds,
 ) -> (Vec<Finding>, Vec<Finding>, Vec<Finding>) {
     for f in findings.iter_mut() {
@@ -159,7 +160,7 @@ pub(super) fn sort_findings(
             .take()
             // A coarse interval's doubt is the stage's that found it
             // (placement, undeclared loads): each narrows it by evidence.
-            .or_else(|| generation_doubt(d, f, th));
+            .or_else(|| generation_doubt(d, f, answers_apart, th));
     }
     let (findings, possible): (Vec<Finding>, Vec<Finding>) = findings
         .into_iter()
@@ -194,24 +195,38 @@ pub(super) fn same_wiring_name(a: &str, b: &str) -> bool {
 /// doing: a battery run for self-consumption answers every change of the
 /// home's power within seconds on its own wiring (at 10 s the two make one
 /// step of another shape; at 1 s its answer is a step of the same size on
-/// its wiring), and a PV inverter changes by any amount while it produces,
-/// so a step on its wiring may be its own.
+/// its wiring), so a finding on its wiring, or on no one connection, may
+/// rest on its answers ([`battery_may_make`]; a finding without a wiring
+/// is doubted too, and every finding where the metering found leaves the
+/// answers no shape of their own: `answers_apart` false,
+/// `metering::answers_told_apart`); and a PV inverter changes by any amount while it
+/// produces, so a step on its wiring may be its own.
 ///
 /// A PV array's doing is ruled out by its steps' size or times: a step
 /// larger than the inverter's declared rating (beyond the tolerance steps
 /// are fitted by) is not its own, nor are `th.dark_steps` steps taken while
 /// its sun is down (evidence `dark_steps`, [`dark_steps_in`]); a
 /// `dark_steps` of 0 turns that test off.
-pub(super) fn generation_doubt(d: &Declared, f: &Finding, th: &Thresholds) -> Option<String> {
+pub(super) fn generation_doubt(
+    d: &Declared,
+    f: &Finding,
+    answers_apart: bool,
+    th: &Thresholds,
+) -> Option<String> {
     if f.kind.is_metering() {
         return None;
     }
-    if let Some(b) = d.generation.iter().find(|g| g.follows_home) {
-        return Some(format!("the home battery ({}, on {}) answers each change of the home's power within seconds, so steps there and elsewhere may be partly its answers", b.id, b.wiring.name()));
-    }
     let on = f.evidence["found"]
         .as_str()
-        .or_else(|| f.evidence["wiring"].as_str())?;
+        .or_else(|| f.evidence["wiring"].as_str());
+    if let Some(b) = d
+        .generation
+        .iter()
+        .find(|g| g.follows_home && (!answers_apart || on.is_none_or(|on| battery_may_make(g, on))))
+    {
+        return Some(format!("the home battery ({}, on {}) answers each change of the home's power within seconds, so steps on {} may be partly its answers", b.id, b.wiring.name(), b.wiring.name()));
+    }
+    let on = on?;
     let pvs: Vec<_> = d
         .generation
         .iter()
@@ -234,6 +249,20 @@ pub(super) fn generation_doubt(d: &Declared, f: &Finding, th: &Thresholds) -> Op
         "{} on {on} changes its power by any amount while it produces, so steps on {on} may be its own",
         pv.id
     ))
+}
+
+/// Whether the answers of battery `b` may make or shape the steps of a
+/// finding on wiring `on`: those of its own wiring, or of a shape no one
+/// connection makes (`+` in the name). A battery answers a step by drawing
+/// or feeding along its own wiring only: on a split-phase supply one across
+/// L1-L2 moves both lines' power alike (its current leaves on one line and
+/// returns on the other, whose voltage is the first's negated; textbook
+/// circuit relation), a three-phase one all three alike. An answer in the
+/// row of the step it answers leaves a shape that fits no one connection;
+/// an answer alone fits the battery's wiring. A step on one line alone, or
+/// on a pair of lines it is not across, is no answer of it.
+fn battery_may_make(b: &Inverter, on: &str) -> bool {
+    on.contains('+') || same_wiring_name(&b.wiring.name(), on)
 }
 
 /// How many of the moments `times` (UTC ms) every declared PV array on
@@ -270,12 +299,11 @@ mod tests {
         assert!(coarse_doubt(Kind::UndeclaredLoad, 10.0, th).is_none());
     }
 
-    /// A home battery makes every placement and undeclared load possible
-    /// only; a PV inverter alone, those on its own wiring; metering
-    /// findings stand.
+    /// A PV inverter or a home battery makes placements and undeclared
+    /// loads on its own wiring possible only (a battery also those of a
+    /// shape no one connection makes); metering findings stand.
     #[test]
     fn findings_the_pv_or_the_battery_could_make_are_only_possible() {
-        use crate::audit::decl::Inverter;
         let th = &Thresholds::STANDARD;
         let mut d = split_phase(vec![]);
         let f = |kind: Kind, ev: serde_json::Value| Finding {
@@ -289,19 +317,33 @@ mod tests {
         let on_ll = f(Kind::UndeclaredLoad, json!({ "wiring": "L2-L1" }));
         let on_ln = f(Kind::WrongLine, json!({ "found": "L1-N" }));
         let ct = f(Kind::ReversedCt, json!({}));
-        assert!(generation_doubt(&d, &on_ll, th).is_none(), "no generation");
+        assert!(
+            generation_doubt(&d, &on_ll, true, th).is_none(),
+            "no generation"
+        );
         d.generation
             .push(Inverter::new("pv", Wiring::LineLine(0, 1), false));
-        assert!(generation_doubt(&d, &on_ll, th).is_some());
+        assert!(generation_doubt(&d, &on_ll, true, th).is_some());
         assert!(
-            generation_doubt(&d, &on_ln, th).is_none(),
+            generation_doubt(&d, &on_ln, true, th).is_none(),
             "not the PV's wiring"
         );
-        assert!(generation_doubt(&d, &ct, th).is_none());
+        assert!(generation_doubt(&d, &ct, true, th).is_none());
+        d.generation.clear();
         d.generation
             .push(Inverter::new("battery", Wiring::LineLine(0, 1), true));
-        assert!(generation_doubt(&d, &on_ln, th).is_some());
-        assert!(generation_doubt(&d, &ct, th).is_none());
+        assert!(generation_doubt(&d, &on_ll, true, th).is_some());
+        let shapeless = f(Kind::UndeclaredLoad, json!({ "wiring": "L1-N+L2-N" }));
+        assert!(generation_doubt(&d, &shapeless, true, th).is_some());
+        assert!(
+            generation_doubt(&d, &on_ln, true, th).is_none(),
+            "a step on one line alone is no answer of a battery across both"
+        );
+        assert!(
+            generation_doubt(&d, &on_ln, false, th).is_some(),
+            "unless the metering leaves the battery's answers no shape of their own"
+        );
+        assert!(generation_doubt(&d, &ct, true, th).is_none());
     }
 
     /// A PV array cannot make a step larger than its inverter's rating,
@@ -309,7 +351,7 @@ mod tests {
     /// stands as a finding.
     #[test]
     fn steps_beyond_the_arrays_rating_or_in_its_dark_are_not_its_own() {
-        use crate::audit::decl::{Inverter, SunUp};
+        use crate::audit::decl::SunUp;
         use std::sync::Arc;
         const HOUR: i64 = 3_600_000;
         let th = &Thresholds::STANDARD;
@@ -328,19 +370,19 @@ mod tests {
             doubt: None,
         };
         assert!(
-            generation_doubt(&d, &load(650.0, 0), th).is_some(),
+            generation_doubt(&d, &load(650.0, 0), true, th).is_some(),
             "within the tolerance of 600 W"
         );
         assert!(
-            generation_doubt(&d, &load(700.0, 0), th).is_none(),
+            generation_doubt(&d, &load(700.0, 0), true, th).is_none(),
             "beyond it"
         );
         assert!(
-            generation_doubt(&d, &load(500.0, 1), th).is_some(),
+            generation_doubt(&d, &load(500.0, 1), true, th).is_some(),
             "one step in the dark"
         );
         assert!(
-            generation_doubt(&d, &load(500.0, 2), th).is_none(),
+            generation_doubt(&d, &load(500.0, 2), true, th).is_none(),
             "a run in the dark"
         );
         let times = [2 * HOUR, 7 * HOUR, 17 * HOUR, 23 * HOUR, 26 * HOUR];

@@ -297,6 +297,32 @@ pub(super) fn orient(
         .unwrap_or(mc.chosen)
 }
 
+/// Whether a home battery's answers keep a shape of their own under
+/// metering `chosen`, so that a step on one line alone is no answer of a
+/// battery across two (`finding::battery_may_make`): every line is read,
+/// each by one channel (a missing CT leaves a battery's share on the lines
+/// read looking like a load on one line; two channels on one conductor
+/// read a battery across both as such a load), and the steps settle which
+/// channel reads which conductor: no other admissible metering that reads
+/// them otherwise (signs aside) explains 95 % as many steps. A battery
+/// home's readings may be negative at any hour, so only its steps tell
+/// one metering from another; where one reading other conductors fits as
+/// well, an appliance that seems to have moved may be the metering's doing.
+pub(super) fn answers_told_apart(mc: &MeteringChoice, chosen: usize, th: &Thresholds) -> bool {
+    let m = &mc.hyps[chosen].0;
+    let srcs = |m: &Metering| -> Vec<usize> { m.map.iter().map(|c| c.src).collect() };
+    let mut lines = srcs(m);
+    lines.sort_unstable();
+    lines.dedup();
+    if m.absent.iter().any(|&a| a) || lines.len() < m.map.len() {
+        return false;
+    }
+    let ex = mc.scored[chosen].ex as f64;
+    !mc.scored.iter().enumerate().any(|(i, s)| {
+        srcs(&mc.hyps[i].0) != srcs(m) && s.admissible(th) && s.ex as f64 >= 0.95 * ex
+    })
+}
+
 /// Whether metering `chosen` has a mirror image that fits as well
 /// ([`mirror_of`]) and the appliances' times on and off do not tell the
 /// two apart ([`orientation`]).
@@ -1238,6 +1264,60 @@ mod tests {
         // A PV array alone exports by day only: the dark hours judge.
         d.generation[0].follows_home = false;
         assert!(mirror_doubt(&d, &mc, cts, th).is_none());
+    }
+
+    /// A battery's answers keep their shape where every line is read by
+    /// a channel of its own and the steps settle which channel reads which
+    /// conductor: not where a metering reading the conductors the other way
+    /// round explains as many steps (its mirror image, the same conductors
+    /// with every sign turned, does not count), nor where a CT is missing.
+    #[test]
+    fn a_battery_answers_keep_their_shape_only_under_a_settled_metering() {
+        use crate::audit::check::testkit::split_phase;
+        let d = split_phase(vec![on_off("lamp", 0, C64::new(500.0, 0.0))]);
+        let choice = |absent: [bool; 2], exchanged_ex: usize| {
+            let hyps = hypotheses(&d, &absent);
+            let decl_m = declared_metering(&d, &absent);
+            let decl_i = hyps
+                .iter()
+                .position(|(m, _)| *m == decl_m)
+                .expect("declared");
+            let scored = (0..hyps.len())
+                .map(|i| {
+                    let m = &hyps[i].0;
+                    let exchanged = m.map.iter().map(|c| c.src).eq([1, 0]);
+                    let mirror =
+                        m.map.iter().map(|c| c.src).eq([0, 1]) && m.map.iter().all(|c| c.k < 0.0);
+                    Scored {
+                        i,
+                        apps: 1,
+                        ex: match (i == decl_i || mirror, exchanged) {
+                            (true, _) => 10,
+                            (_, true) => exchanged_ex,
+                            _ => 2,
+                        },
+                        neg: 0.0,
+                        apart: 0.0,
+                        cost: hyps[i].1,
+                        owns: vec![],
+                    }
+                })
+                .collect();
+            MeteringChoice {
+                hyps,
+                scored,
+                decl_m,
+                decl_i,
+                chosen: decl_i,
+            }
+        };
+        let th = &Thresholds::STANDARD;
+        let settled = choice([false, false], 2);
+        assert!(answers_told_apart(&settled, settled.decl_i, th));
+        let rival = choice([false, false], 10);
+        assert!(!answers_told_apart(&rival, rival.decl_i, th));
+        let missing = choice([false, true], 2);
+        assert!(!answers_told_apart(&missing, missing.decl_i, th));
     }
 
     /// Both CTs on L1 (l2's turned: it reads −S1) and both on L2 turned
