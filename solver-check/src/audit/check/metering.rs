@@ -449,6 +449,9 @@ const SILENT_STEPS: usize = 3;
 
 /// Channels that read nothing: a finding of a missing CT, or a note where
 /// every appliance declared through the line shows on another connection.
+/// A channel reading zeros (not empty rows) with nothing declared through
+/// its conductor seen switching anywhere ([`seen_through`]) is a doubted
+/// finding: a CT in place on an idle conductor reads zeros too.
 pub(super) fn channel_findings(
     d: &Declared,
     events: &[Event],
@@ -482,13 +485,19 @@ pub(super) fn channel_findings(
         {
             notes.push(format!("channel {} reads nothing, and every appliance declared through {} shows on another connection: nothing seems to run on {}, and those appliances are placed from their steps", line_name(c), line_label(c), line_label(c)));
         } else if d.channels[c].conductor.is_some() && (empty || silent) {
+            // Zeros, unlike empty rows, are what a CT in place on an idle
+            // conductor reads too: only an appliance through it seen
+            // switching says that something runs there.
+            let doubt = (silent && !empty && !seen_through(d, events, c, th)).then(|| {
+                format!("{} reads zeros, not empty rows, and nothing declared through {} was seen switching on any connection: {} may carry no load, and a CT in place on an idle conductor reads nothing as well; check whether anything runs on {}", line_name(c), line_label(c), line_label(c), line_label(c))
+            });
             findings.push(Finding {
                 kind: Kind::NoCt,
                 subject: line_name(c),
                 message: format!("channel {} reads no current although a CT on {} is declared: {:.0} % of its rows are empty, {:.0} % read nothing{}", line_name(c), line_label(d.channels[c].conductor.unwrap_or(c)), 100.0 * st.null as f64 / read, 100.0 * st.zero as f64 / read, if n > 1 { "; line-to-line loads show at half power on the other line only" } else { "" }),
                 confidence: (st.null.max(st.zero) as f64 / read).min(1.0),
                 evidence: json!({ "rows": st.rows, "null_rows": st.null, "zero_rows": st.zero }),
-                doubt: None,
+                doubt,
             });
         }
     }
@@ -1074,27 +1083,70 @@ pub(super) fn declared_elsewhere(
     c: usize,
     th: &Thresholds,
 ) -> bool {
-    let n = d.supply.lines();
-    let through_c = |a: &DeclAppliance| a.wirings().iter().any(|w| w.lines(n).contains(&c));
-    let absent: Vec<bool> = (0..n)
-        .map(|x| x == c || d.channels[x].conductor.is_none())
-        .collect();
-    let m = declared_metering(d, &absent);
-    let there: Vec<&DeclAppliance> = d
-        .appliances
-        .iter()
-        .filter(|a| through_c(a) && uncheckable_in(d, a, th).is_none())
-        .collect();
-    !there.is_empty()
-        && there.iter().all(|a| {
+    let through = Through::new(d, c, th);
+    !through.there.is_empty()
+        && through.there.iter().all(|a| {
             alternatives(d, a)
                 .iter()
-                .filter(|(_, alt)| !through_c(alt))
-                .any(|(_, alt)| {
-                    let sigs = predicted(d, &m, alt);
-                    events.iter().filter(|e| any_fits(e, &sigs)).count() >= 3
-                })
+                .any(|(_, alt)| !through.goes(alt) && through.shows(alt, events))
         })
+}
+
+/// Whether an appliance declared through conductor `c` that has a step to
+/// place it by shows at its full size, three times or more, on any wiring
+/// (its own too: a line-to-line one shows on its other line with `c`
+/// unread): then something runs through `c`, and a channel on `c` that
+/// reads zeros has no CT there.
+fn seen_through(d: &Declared, events: &[Event], c: usize, th: &Thresholds) -> bool {
+    let through = Through::new(d, c, th);
+    through.there.iter().any(|a| {
+        std::iter::once((*a).clone())
+            .chain(alternatives(d, a).into_iter().map(|(_, alt)| alt))
+            .any(|alt| through.shows(&alt, events))
+    })
+}
+
+/// The declared appliances through one conductor, and the declared
+/// metering with that conductor's channel unread, for asking where they
+/// show ([`declared_elsewhere`], [`seen_through`]).
+struct Through<'a> {
+    d: &'a Declared,
+    c: usize,
+    m: Metering,
+    there: Vec<&'a DeclAppliance>,
+}
+
+impl<'a> Through<'a> {
+    fn new(d: &'a Declared, c: usize, th: &Thresholds) -> Through<'a> {
+        let n = d.supply.lines();
+        let absent: Vec<bool> = (0..n)
+            .map(|x| x == c || d.channels[x].conductor.is_none())
+            .collect();
+        let mut through = Through {
+            d,
+            c,
+            m: declared_metering(d, &absent),
+            there: Vec::new(),
+        };
+        through.there = d
+            .appliances
+            .iter()
+            .filter(|a| through.goes(a) && uncheckable_in(d, a, th).is_none())
+            .collect();
+        through
+    }
+
+    /// Whether appliance `a` as wired draws through the conductor.
+    fn goes(&self, a: &DeclAppliance) -> bool {
+        let n = self.d.supply.lines();
+        a.wirings().iter().any(|w| w.lines(n).contains(&self.c))
+    }
+
+    /// Whether three steps or more of `events` fit appliance `a` as wired.
+    fn shows(&self, a: &DeclAppliance, events: &[Event]) -> bool {
+        let sigs = predicted(self.d, &self.m, a);
+        events.iter().filter(|e| any_fits(e, &sigs)).count() >= 3
+    }
 }
 
 /// A channel that reads nothing (a "no CT" finding) while the metering found
@@ -1951,7 +2003,58 @@ mod tests {
             (found[0].kind, found[0].subject.as_str()),
             (Kind::NoCt, "l3")
         );
+        assert!(found[0].doubt.is_some(), "the lamp seen nowhere");
         let stepping: Vec<Event> = (0..6).map(|i| step(i * H, -250.0)).collect();
         assert!(channel_findings(&d, &stepping, &stats, th).0.is_empty());
+    }
+
+    /// A channel reading zeros is a missing CT only where something runs
+    /// through its conductor: an appliance declared through it seen
+    /// switching (a line-to-line one shows on its other line). With nothing
+    /// seen, an idle conductor reads zeros too: the finding is doubted.
+    /// Empty rows are no CT whatever runs.
+    #[test]
+    fn zeros_are_a_missing_ct_only_where_something_runs_through_it() {
+        let lamp = on_off_wired("lamp", Wiring::LineNeutral(2), C64::new(900.0, 0.0));
+        let heater = on_off_wired("heater", Wiring::LineLine(1, 2), C64::new(2000.0, 0.0));
+        let stats = |zero: u64, null: u64| -> Vec<ChannelStats> {
+            (0..3)
+                .map(|c| ChannelStats {
+                    rows: 10_000,
+                    zero: if c == 2 { zero } else { 0 },
+                    null: if c == 2 { null } else { 0 },
+                    ..Default::default()
+                })
+                .collect()
+        };
+        let th = &Thresholds::STANDARD;
+        let other = |t: i64| Event {
+            time_ms: t,
+            delta: vec![C64::new(500.0, 0.0), C64::ZERO, C64::ZERO],
+            before: vec![C64::ZERO; 3],
+            v_before: vec![230.0; 3],
+            v_after: vec![230.0; 3],
+            se: vec![2.0; 3],
+        };
+        let quiet: Vec<Event> = (0..6).map(|i| other(i * H)).collect();
+        let d = three_phase(vec![lamp.clone(), heater.clone()]);
+        let (found, _) = channel_findings(&d, &quiet, &stats(10_000, 0), th);
+        assert_eq!(found.len(), 1);
+        let why = found[0].doubt.as_deref().expect("nothing seen: doubted");
+        assert!(why.contains("idle conductor"), "{why}");
+        let (found, _) = channel_findings(&d, &quiet, &stats(0, 10_000), th);
+        assert!(found[0].doubt.is_none(), "empty rows: no CT");
+        // The heater across L2-L3, read with l3 unread: its share on l2.
+        let unread = declared_metering(&d, &[false, false, true]);
+        let share = predicted(&d, &unread, &heater)[0][1].expect("l2 reads");
+        let mut busy = quiet.clone();
+        for i in 0..4 {
+            let mut e = other(i * H + H / 2);
+            e.delta = vec![C64::ZERO, share, C64::ZERO];
+            busy.push(e);
+        }
+        let (found, _) = channel_findings(&d, &busy, &stats(10_000, 0), th);
+        assert_eq!(found.len(), 1);
+        assert!(found[0].doubt.is_none(), "{:?}", found[0].doubt);
     }
 }
