@@ -567,7 +567,29 @@ pub(super) fn coincidences(
     interval_s: f64,
     hours: f64,
 ) -> Vec<(Vec<Option<C64>>, f64)> {
-    let jumps: Vec<(usize, Vec<Option<C64>>, usize)> = placed
+    jumps_seen(d, m, placed, events, interval_s, hours).sums()
+}
+
+/// The declared jumps as placed, each read under a metering with how
+/// many steps it was seen in (`(appliance, reading, n)`), and the share
+/// `w / 2T` that turns two counts into the expected number of their
+/// coincidences ([`coincidences`]).
+pub(super) struct Jumps {
+    seen: Vec<(usize, Vec<Option<C64>>, usize)>,
+    per_pair: f64,
+}
+
+/// The jumps of the appliances `placed` seen in `events` under `m`, in a
+/// run of `hours` at `interval_s` ([`Jumps`]).
+pub(super) fn jumps_seen(
+    d: &Declared,
+    m: &Metering,
+    placed: &[DeclAppliance],
+    events: &[&Event],
+    interval_s: f64,
+    hours: f64,
+) -> Jumps {
+    let seen = placed
         .iter()
         .enumerate()
         .flat_map(|(j, a)| predicted(d, m, a).into_iter().map(move |r| (j, r)))
@@ -578,31 +600,55 @@ pub(super) fn coincidences(
         .filter(|(_, _, n)| *n > 0)
         .collect();
     let t_s = hours * 3600.0;
-    if t_s <= 0.0 {
-        return vec![];
-    }
     let w = 2.0 * crate::audit::events::level_rows(interval_s) as f64 * interval_s;
-    let mut out = Vec::new();
-    for (i, (ja, ra, na)) in jumps.iter().enumerate() {
-        for (jb, rb, nb) in &jumps[i + 1..] {
-            if ja == jb {
-                continue;
-            }
-            let rate = (*na * *nb) as f64 * w / (2.0 * t_s);
-            for sign in [1.0, -1.0] {
-                let sum: Vec<Option<C64>> = ra
-                    .iter()
-                    .zip(rb)
-                    .map(|(a, b)| match (a, b) {
-                        (Some(a), Some(b)) => Some(*a + b.scale(sign)),
-                        _ => None,
-                    })
-                    .collect();
-                out.push((sum, rate));
+    let per_pair = if t_s > 0.0 { w / (2.0 * t_s) } else { 0.0 };
+    Jumps { seen, per_pair }
+}
+
+/// `a` plus `b` (`sign` 1) or less it (−1), channel by channel; unread
+/// where either is.
+fn combine(a: &[Option<C64>], b: &[Option<C64>], sign: f64) -> Vec<Option<C64>> {
+    a.iter()
+        .zip(b)
+        .map(|(a, b)| match (a, b) {
+            (Some(a), Some(b)) => Some(*a + b.scale(sign)),
+            _ => None,
+        })
+        .collect()
+}
+
+impl Jumps {
+    /// Sums and differences of two jumps of two appliances, with their
+    /// expected counts in the run.
+    pub(super) fn sums(&self) -> Vec<(Vec<Option<C64>>, f64)> {
+        let mut out = Vec::new();
+        for (i, (ja, ra, na)) in self.seen.iter().enumerate() {
+            for (jb, rb, nb) in &self.seen[i + 1..] {
+                if ja == jb {
+                    continue;
+                }
+                let rate = (*na * *nb) as f64 * self.per_pair;
+                for sign in [1.0, -1.0] {
+                    out.push((combine(ra, rb, sign), rate));
+                }
             }
         }
+        out
     }
-    out
+
+    /// Sums and differences of a step `v`, seen `n` times, with each
+    /// declared jump, with their expected counts in the run: a load nobody
+    /// declared switching in one interval with a declared one.
+    pub(super) fn with(&self, v: &[Option<C64>], n: usize) -> Vec<(Vec<Option<C64>>, f64)> {
+        let mut out = Vec::new();
+        for (_, r, nr) in &self.seen {
+            let rate = (n * nr) as f64 * self.per_pair;
+            for sign in [1.0, -1.0] {
+                out.push((combine(v, r, sign), rate));
+            }
+        }
+        out
+    }
 }
 
 #[cfg(test)]

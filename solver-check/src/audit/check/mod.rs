@@ -47,7 +47,7 @@ use crate::audit::decl::Declared;
 use crate::audit::events::{ChannelStats, Event};
 use crate::contract::line_name;
 use finding::sort_findings;
-use fit::{coincidences, METERING_STEP};
+use fit::{jumps_seen, METERING_STEP};
 use metering::{
     absent_channels, answers_told_apart, channel_findings, choose_metering, dispute, doubt_mirror,
     metering_confidence, metering_doubt, metering_findings, orient, place_under,
@@ -219,7 +219,8 @@ fn undeclared_loads(
     let (cxs, checks, placed) = pl;
     let interval_s = window.interval_s;
     let fit = steps_fit(d, m, used, cxs, placed, interval_s);
-    let sums = coincidences(d, m, placed, used, interval_s, window.hours);
+    let jumps = jumps_seen(d, m, placed, used, interval_s, window.hours);
+    let sums = jumps.sums();
     let stage = UndeclaredStage {
         d,
         m,
@@ -227,6 +228,7 @@ fn undeclared_loads(
         cxs,
         explained: &fit,
         sums: &sums,
+        jumps: Some(&jumps),
         total_wh,
         placed,
         checks,

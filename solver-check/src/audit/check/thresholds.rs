@@ -21,7 +21,8 @@ pub struct Thresholds {
     /// conductors, in most rows where either carries a load.
     pub apart_ok: f64,
     /// A cluster of steps is a load of its own only when coincidences of
-    /// declared appliances its size would make as many with a chance below
+    /// two loads its size (declared appliances, or a declared one and a
+    /// busier cluster) would make as many with a chance below
     /// this: 0.1 %, as every cluster that behaves as a load is tested, several
     /// in one audit, and at most 2 % of clean audits may raise any false
     /// finding (Bonferroni: 1 % over ten tests). Measured in the fault matrix
@@ -92,9 +93,10 @@ pub struct Thresholds {
     /// finding (`coarse_move_doubt`); as many overlaps, a load of a
     /// declared appliance's size beside it (a lost stop is likelier there).
     pub coarse_runs: usize,
-    /// Share of a coarse cluster's steps that two declared appliances
-    /// switching within one row are expected to make (the summed rates of
-    /// the sums and differences of two declared jumps of its size) from
+    /// Share of a coarse cluster's steps that two loads switching within
+    /// one row are expected to make (the summed rates of the sums and
+    /// differences of its size of two declared jumps, or of a declared jump
+    /// and a busier cluster's step) from
     /// which it is possible only: a quarter. Steps of its size that
     /// coincidences make at a fourth of its count or more leave too little
     /// apart from them to call it a load of its own (common practice, no
@@ -221,7 +223,7 @@ pub const CUTOFFS: [Cutoff; 20] = [
     },
     Cutoff {
         name: "coincidence_p",
-        meaning: "chance, under the Poisson rate of coincidences of two declared appliances, below which a cluster of steps is a load of its own",
+        meaning: "chance, under the Poisson rate of coincidences of two loads (declared, or declared and a busier cluster), below which a cluster of steps is a load of its own",
         range: (0.0, 1.0),
         count: false,
         get: |t| t.coincidence_p,
@@ -301,7 +303,7 @@ pub const CUTOFFS: [Cutoff; 20] = [
     },
     Cutoff {
         name: "composite_share",
-        meaning: "share of a coarse undeclared load's steps that two declared appliances switching within one row are expected to make, from which it is only possible",
+        meaning: "share of a coarse undeclared load's steps that two loads (declared, or declared and a busier cluster) switching within one row are expected to make, from which it is only possible",
         range: (0.0, 1.0),
         count: false,
         get: |t| t.composite_share,

@@ -7,7 +7,7 @@ use super::finding::{
 };
 use super::fit::{
     connection_of, dist_delta, distances, poisson_tail, predicted, projection, shape_of, tol, Ctx,
-    Pred, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
+    Jumps, Pred, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
 };
 use super::hypothesis::{alternatives, wiring_names, Metering};
 use super::placement::{beyond_chance, one_power};
@@ -259,9 +259,11 @@ pub(super) fn unexplained_clusters(
     cl
 }
 
-/// How many steps of cluster `c`'s size two declared appliances switching
-/// together are expected to make in the run: the summed rates of the sums
-/// and differences of two declared jumps (`sums`) within its tolerance.
+/// How many steps of cluster `c`'s size two loads switching together are
+/// expected to make in the run: the summed rates of the sums and
+/// differences (`sums`) of two declared jumps, or of a declared jump and a
+/// busier cluster's step ([`UndeclaredStage::sums_with_busier`]), within
+/// its tolerance.
 fn composites(c: &Cluster, sums: &[(Vec<Option<C64>>, f64)]) -> f64 {
     sums.iter()
         .filter(|(r, _)| dist_delta(&c.v, r) <= 1.0)
@@ -270,7 +272,7 @@ fn composites(c: &Cluster, sums: &[(Vec<Option<C64>>, f64)]) -> f64 {
 }
 
 /// The finding for cluster `c` when it is no likely coincidence of two
-/// declared appliances (their step sums and rates `sums`).
+/// loads (their step sums and rates `sums`, [`composites`]).
 pub(super) fn undeclared_finding(
     d: &Declared,
     c: &Cluster,
@@ -278,8 +280,8 @@ pub(super) fn undeclared_finding(
     total_wh: f64,
     th: &Thresholds,
 ) -> Option<Finding> {
-    // As many coincidences of two declared appliances this size as
-    // seen are not unlikely: not a load of its own.
+    // As many coincidences of two loads this size as seen are not
+    // unlikely: not a load of its own.
     let expected = composites(c, sums);
     if poisson_tail(expected, c.on.len() + c.off.len()) > th.coincidence_p {
         return None;
@@ -294,7 +296,7 @@ pub(super) fn undeclared_finding(
     Some(Finding {
         kind: Kind::UndeclaredLoad,
         subject: format!("{:.0} W on {}", c.s.re, c.wiring),
-        message: format!("a recurring load of about {:.0} W (pf {:.2}) on {} that no declared appliance explains: started {} times, stopped {} times (two declared appliances switching together would make about {:.1} such steps), {share_text}", c.s.re, c.s.re / c.s.abs(), c.wiring, c.on.len(), c.off.len(), expected),
+        message: format!("a recurring load of about {:.0} W (pf {:.2}) on {} that no declared appliance explains: started {} times, stopped {} times (two loads switching together, declared or seen, would make about {:.1} such steps), {share_text}", c.s.re, c.s.re / c.s.abs(), c.wiring, c.on.len(), c.off.len(), expected),
         // Runs seen whole (a start, then its stop before the next
         // start), a tenth each: steps seen one way only count for
         // nothing (at 10 s, starts of declared loads straddling rows).
@@ -314,6 +316,9 @@ pub(super) struct UndeclaredStage<'a> {
     pub cxs: &'a [Ctx],
     pub explained: &'a [bool],
     pub sums: &'a [(Vec<Option<C64>>, f64)],
+    /// The declared jumps seen, to weigh a cluster as a busier undeclared
+    /// load switching in one interval with a declared one.
+    pub jumps: Option<&'a Jumps>,
     pub total_wh: f64,
     pub placed: &'a [DeclAppliance],
     pub checks: &'a [ApplianceCheck],
@@ -350,13 +355,35 @@ impl UndeclaredStage<'_> {
         clusters
             .iter()
             .filter_map(|c| {
-                let mut f = undeclared_finding(self.d, c, self.sums, self.total_wh, self.th)?;
+                let sums = self.sums_with_busier(c, &clusters);
+                let mut f = undeclared_finding(self.d, c, &sums, self.total_wh, self.th)?;
                 f.doubt = self
-                    .coarse_load_doubt(c, &clusters, &placed_beyond)
+                    .coarse_load_doubt(c, &clusters, &placed_beyond, &sums)
                     .or_else(|| self.doubt(c));
                 Some(f)
             })
             .collect()
+    }
+
+    /// The sums of two declared jumps with their expected counts, and those
+    /// of a declared jump with the step of each cluster of `all` on one
+    /// connection that switched more often than `c`: a load nobody declared
+    /// makes composites with the declared ones as they make them together
+    /// (a heater and an undeclared load of one line switching within one
+    /// row at 1 min), and a composite is rarer than its parts.
+    fn sums_with_busier(&self, c: &Cluster, all: &[Cluster]) -> Vec<(Vec<Option<C64>>, f64)> {
+        let mut sums = self.sums.to_vec();
+        let Some(jumps) = self.jumps else {
+            return sums;
+        };
+        let steps = |x: &Cluster| x.on.len() + x.off.len();
+        for o in all {
+            if steps(o) > steps(c) && !o.wiring.contains('+') {
+                let v: Vec<Option<C64>> = o.v.iter().map(|x| Some(*x)).collect();
+                sums.extend(jumps.with(&v, steps(o)));
+            }
+        }
+        sums
     }
 
     /// Whether cluster `c` may be the steps of a busier load in `all` merged
@@ -376,8 +403,8 @@ impl UndeclaredStage<'_> {
     /// where it is placed: a load near its size there is weighed by its
     /// nameplate, [`UndeclaredStage::doubt`]), nor near a busier cluster's of `all` on its
     /// connection ([`UndeclaredStage::fragment`]), and coincidences of two
-    /// declared appliances would make under `composite_share` of its steps
-    /// ([`composites`]). An appliance whose steps show where it is placed
+    /// loads (declared ones, or a declared one and a busier cluster) would
+    /// make under `composite_share` of its steps ([`composites`]). An appliance whose steps show where it is placed
     /// beyond what its neighbouring sizes get by chance ([`beyond_chance`])
     /// is there: a load of its size elsewhere is another, and its size does
     /// not count (`placed_beyond`, one per appliance as placed); nor does
@@ -388,6 +415,7 @@ impl UndeclaredStage<'_> {
         c: &Cluster,
         all: &[Cluster],
         placed_beyond: &[bool],
+        sums: &[(Vec<Option<C64>>, f64)],
     ) -> Option<String> {
         let doubt = coarse_doubt(Kind::UndeclaredLoad, self.interval_s, self.th)?;
         let runs = start_stop_pairs(&c.on, &c.off).len();
@@ -423,7 +451,7 @@ impl UndeclaredStage<'_> {
             })
             .flat_map(|a| predicted(self.d, self.m, &a))
             .any(|r| dist_delta(&c.v, &r) <= 2.0);
-        let expected = composites(c, self.sums);
+        let expected = composites(c, sums);
         let a_sum = expected > 0.0
             && expected >= self.th.composite_share * (c.on.len() + c.off.len()) as f64;
         (!one_load || declared_size || a_sum || self.fragment(c, all)).then_some(doubt)
@@ -753,6 +781,7 @@ mod tests {
             cxs: &[],
             explained: &[],
             sums: &[],
+            jumps: None,
             total_wh: 1e4,
             placed: &d.appliances,
             checks,
@@ -856,6 +885,80 @@ mod tests {
             rate(500.0)
         );
         assert_eq!(rate(2000.0), 0.0);
+    }
+
+    /// A step nobody declared coincides with a declared jump at the same
+    /// Poisson rate as two declared ones: 100 steps of a 700 W load and
+    /// 100 of a 1 kW heater in 100 h of 10 s rows (2τ = 40 s) make
+    /// 100 · 100 · 40 / (2 · 360 000) = 0.556 steps of each of their sum
+    /// and difference (any text on Poisson coincidences).
+    #[test]
+    fn a_left_out_load_coincides_with_a_declared_one_at_the_poisson_rate() {
+        use crate::audit::check::fit::jumps_seen;
+        let d = split_phase(vec![on_off("heater", 0, C64::new(1000.0, 0.0))]);
+        let m = declared_metering(&d, &[false, false]);
+        let events: Vec<Event> = (0..100)
+            .map(|i| l1_step(i * H, if i % 2 == 0 { 1000.0 } else { -1000.0 }))
+            .collect();
+        let refs: Vec<&Event> = events.iter().collect();
+        let jumps = jumps_seen(&d, &m, &d.appliances, &refs, 10.0, 100.0);
+        let v = [Some(C64::new(700.0, 0.0)), Some(C64::ZERO)];
+        let sums = jumps.with(&v, 100);
+        let rate = |w: f64| {
+            sums.iter()
+                .filter(|(r, _)| dist_delta(&[C64::new(w, 0.0), C64::ZERO], r) <= 0.2)
+                .map(|(_, x)| *x)
+                .sum::<f64>()
+        };
+        let expected = 100.0 * 100.0 * 40.0 / (2.0 * 360_000.0);
+        assert!((rate(1700.0) - expected).abs() < 1e-9, "{}", rate(1700.0));
+        assert!((rate(300.0) - expected).abs() < 1e-9, "{}", rate(300.0));
+        assert!(jumps.sums().is_empty(), "one appliance: no declared pair");
+    }
+
+    /// At 1 min with real power only, a 1.5 kW heater declared on L1-N and
+    /// a left-out 2 kW load there, each running 200 times in 100 h, and
+    /// twelve runs of 3.5 kW, their sum. The two switch within one row
+    /// about 200 · 2 · 400 · 240 s / (2 · 360 000 s) = 53 times, far more
+    /// than a quarter of the 24 steps (`composite_share`): the 3.5 kW steps
+    /// are no load of their own. Weighed against declared pairs alone
+    /// (there are none) they were.
+    #[test]
+    fn a_coarse_sum_of_a_declared_and_a_left_out_load_is_no_load() {
+        use crate::audit::check::check_with;
+        let d = {
+            let mut d = split_phase(vec![on_off("heater", 0, C64::new(1500.0, 0.0))]);
+            d.real_only = true;
+            d
+        };
+        const MIN: i64 = H / 60;
+        let runs = |at: i64, every: i64, w: f64, n: i64| -> Vec<Event> {
+            (0..n)
+                .flat_map(|i| {
+                    [
+                        l1_step(at + i * every, w),
+                        l1_step(at + i * every + 5 * MIN, -w),
+                    ]
+                })
+                .collect()
+        };
+        let mut events = runs(0, 30 * MIN, 1500.0, 200);
+        events.extend(runs(15 * MIN, 30 * MIN, 2000.0, 200));
+        events.extend(runs(8 * MIN, 8 * H, 3500.0, 12));
+        events.sort_by_key(|e| e.time_ms);
+        let mut stats = day_stats(2, 500.0);
+        for s in &mut stats {
+            s.rows = 6_000;
+        }
+        let o = check_with(&d, &events, &stats, 60.0, &Thresholds::STANDARD);
+        let all: Vec<&str> = o
+            .findings
+            .iter()
+            .chain(&o.possible)
+            .map(|f| f.subject.as_str())
+            .collect();
+        assert!(all.contains(&"2000 W on L1-N"), "{all:?}");
+        assert!(!all.contains(&"3500 W on L1-N"), "{all:?}");
     }
 
     /// Runs of a load apart from those of a one-power appliance: three in
