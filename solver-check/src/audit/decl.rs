@@ -376,6 +376,26 @@ impl Declared {
 }
 
 impl Declared {
+    /// How many of appliance `a`'s jumps make each of its distinct steps
+    /// ([`Declared::distinct_jumps`], in that order; a jump and its reverse
+    /// alike): the steps of that size one of its runs makes.
+    pub fn jumps_per_step(&self, a: &DeclAppliance) -> Vec<usize> {
+        let distinct = self.distinct_jumps(a);
+        let mut per = vec![0; distinct.len()];
+        for &jump in a.steps.jumps() {
+            let d = self.jump_step(a, jump);
+            let same = |w: &Vec<C64>| {
+                w.iter()
+                    .zip(&d)
+                    .all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)
+            };
+            if let Some(i) = distinct.iter().position(|(_, w)| same(w)) {
+                per[i] += 1;
+            }
+        }
+        per
+    }
+
     /// The same declaration checked against a meter that reads real power
     /// only: every expected reading is its real part.
     pub fn real_power_only(&self) -> Declared {

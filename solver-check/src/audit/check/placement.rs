@@ -7,7 +7,7 @@ use super::finding::{
     coarse_doubt, dark_steps_in, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict,
 };
 use super::fit::{
-    coincidences, dist_delta, dist_model, distances, poisson_tail, predicted, shape_of, tol,
+    coincidences, dist, dist_delta, dist_model, distances, poisson_tail, predicted, shape_of, tol,
     visible, Ctx, Model, Pred, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
 };
 use super::hypothesis::{alternatives, wiring_names, Metering};
@@ -518,14 +518,47 @@ impl Round<'_> {
         Some(format!("{b}, declared on L{}-N, shows on L{}-N instead, so channels l{} and l{} may be exchanged rather than {} moved", to + 1, from + 1, from + 1, to + 1, a.id))
     }
 
-    /// Why `n_a` steps of appliance `a` on `found` may be another load's:
-    /// they make more runs (each run at most one of each of its jumps) than
-    /// its declared habit starts in the data's span, beyond a Poisson chance
-    /// of `coincidence_p` (habit starts are random; the same cut-off as a
-    /// coincidence of two appliances).
-    fn habit_doubt(&self, a: &DeclAppliance, found: &str, n_a: usize) -> Option<String> {
+    /// Why the steps `mine` of appliance `a` wired as `alt` on `found` may
+    /// be another load's: they make more runs than its declared habit starts
+    /// in the data's span, beyond a Poisson chance of `coincidence_p` (habit
+    /// starts are random; the same cut-off as a coincidence of two
+    /// appliances). A run makes each of its step sizes as many times as its
+    /// jumps of that size ([`Declared::jumps_per_step`]; a dishwasher's
+    /// heater switches on and off in each of its heating phases), sizes
+    /// within the wide tolerance of each other taken as one (a step between
+    /// them may be either's), so the steps of each size, over that, are
+    /// runs at least.
+    fn habit_doubt(
+        &self,
+        a: &DeclAppliance,
+        alt: &DeclAppliance,
+        found: &str,
+        mine: &[usize],
+    ) -> Option<String> {
         let per_day = a.starts_per_day?;
-        let runs = n_a.div_ceil(a.steps.jumps().len().max(1));
+        let sizes = predicted(self.d, self.m, alt);
+        let per_run = self.d.jumps_per_step(alt);
+        let group = alike_sizes(&sizes);
+        let groups = group.iter().max().map_or(0, |g| g + 1);
+        let (mut seen, mut per) = (vec![0usize; groups], vec![0usize; groups]);
+        for (i, n) in per_run.iter().enumerate() {
+            per[group[i]] += n;
+        }
+        for &k in mine {
+            let e = self.used[k];
+            let nearest =
+                (0..sizes.len()).min_by(|&x, &y| dist(e, &sizes[x]).total_cmp(&dist(e, &sizes[y])));
+            if let Some(i) = nearest {
+                seen[group[i]] += 1;
+            }
+        }
+        let runs = seen
+            .iter()
+            .zip(&per)
+            .map(|(n, per_run)| n.div_ceil((*per_run).max(1)))
+            .max()
+            .unwrap_or(0);
+        let n_a = mine.len();
         let expected = per_day * self.hours / 24.0;
         (poisson_tail(expected, runs) < self.th.coincidence_p).then(|| {
             format!("{n_a} steps of its size on {found} make at least {runs} runs in {:.0} h, where it is declared to start about {per_day:.1} times a day: they are likelier another load's", self.hours)
@@ -683,7 +716,7 @@ impl Round<'_> {
             }
             // Steps far beyond its habit are another load's: left to the
             // undeclared loads, not a move.
-            if let Some(why) = self.habit_doubt(a, &name_a, n_a) {
+            if let Some(why) = self.habit_doubt(a, &alt, &name_a, &mine) {
                 ck.reason = why;
                 return None;
             }
@@ -859,6 +892,48 @@ impl Round<'_> {
     }
 }
 
+/// Which group each of the step sizes `sizes` (an appliance's readings)
+/// falls in: sizes within the wide fit tolerance (30 W + 10 %) of each
+/// other on every channel read, directly or through others, make one group
+/// (numbered from 0 in order of first member), since a step between them
+/// may be either's. (Not [`step_groups`], one step at the inputs the
+/// weather gives it.)
+fn alike_sizes(sizes: &[Vec<Option<C64>>]) -> Vec<usize> {
+    let near = |a: &[Option<C64>], b: &[Option<C64>]| {
+        a.iter().zip(b).all(|(x, y)| match (x, y) {
+            (Some(x), Some(y)) => {
+                let close = |y: C64| (*x - y).abs() <= tol(x.abs().max(y.abs()));
+                close(*y) || close(-*y)
+            }
+            _ => true,
+        })
+    };
+    let mut group: Vec<usize> = (0..sizes.len()).collect();
+    // Join until nothing changes: each size takes the smallest group of
+    // those near it, so chains of near sizes end in one group.
+    loop {
+        let mut changed = false;
+        for i in 0..sizes.len() {
+            for j in 0..sizes.len() {
+                if group[j] < group[i] && near(&sizes[i], &sizes[j]) {
+                    group[i] = group[j];
+                    changed = true;
+                }
+            }
+        }
+        if !changed {
+            break;
+        }
+    }
+    let mut ids: Vec<usize> = group.clone();
+    ids.sort_unstable();
+    ids.dedup();
+    group
+        .iter()
+        .map(|g| ids.iter().position(|x| x == g).unwrap_or(0))
+        .collect()
+}
+
 /// The lines an appliance drawn from one line to neutral moves between
 /// (from, to), if `alt` is it drawn from another line to neutral.
 fn line_move(a: &DeclAppliance, alt: &DeclAppliance) -> Option<(usize, usize)> {
@@ -1026,6 +1101,36 @@ mod tests {
             (1, 0, 1.0, 1.0),
         ]);
         hp
+    }
+
+    /// A dishwasher-like program, its pump (65 W) on, its heater (1.1 kW)
+    /// on and off twice, then all off (1165 W): its distinct steps are
+    /// made once, three times and once a run; the heater's step and the
+    /// last one, 65 W apart (within 30 W + 10 %), are one size; the pump's
+    /// is another.
+    #[test]
+    fn a_run_makes_each_step_size_as_often_as_its_jumps_of_that_size() {
+        use crate::audit::decl::Steps;
+        let d = split_phase(vec![]);
+        let mut dw = on_off("dishwasher", 0, C64::new(65.0, 0.0));
+        let heat = dw.states[1][0].clone();
+        dw.states.push(vec![
+            dw.states[1][0].clone(),
+            crate::audit::decl::DeclDraw {
+                s: C64::new(1100.0, 0.0),
+                ..heat
+            },
+        ]);
+        dw.steps = Steps::Jumps(vec![
+            (0, 1, 1.0, 1.0),
+            (1, 2, 1.0, 1.0),
+            (2, 1, 1.0, 1.0),
+            (1, 2, 1.0, 1.0),
+            (2, 0, 1.0, 1.0),
+        ]);
+        assert_eq!(d.jumps_per_step(&dw), [1, 3, 1]);
+        let m = crate::audit::check::hypothesis::declared_metering(&d, &[false, false]);
+        assert_eq!(alike_sizes(&predicted(&d, &m, &dw)), [0, 1, 1]);
     }
 
     /// A heat pump's compressor switched at two inputs the outdoor
@@ -1413,6 +1518,52 @@ mod tests {
         assert!(o.appliances[0].reason.contains("likelier another load"));
         let subjects: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(subjects, ["1900 W on L2-N"], "{:?}", o.possible);
+        // A program whose 1.1 kW heater goes on and off twice a run (six
+        // jumps: its pump's 65 W on and off besides): forty heater steps
+        // are ten runs (forty over four heater jumps a run), not seven
+        // (forty over all six jumps); ten where two are expected is beyond
+        // the habit, seven would not be (Poisson tails 5e-5 and 4.5e-3).
+        let mut program = on_off("dishwasher", 0, C64::new(65.0, 0.0));
+        let pump = program.states[1][0].clone();
+        program.states.push(vec![
+            pump.clone(),
+            crate::audit::decl::DeclDraw {
+                s: C64::new(1100.0, 0.0),
+                ..pump
+            },
+        ]);
+        program.steps = crate::audit::decl::Steps::Jumps(vec![
+            (0, 1, 1.0, 1.0),
+            (1, 2, 1.0, 1.0),
+            (2, 1, 1.0, 1.0),
+            (1, 2, 1.0, 1.0),
+            (2, 1, 1.0, 1.0),
+            (1, 0, 1.0, 1.0),
+        ]);
+        program.starts_per_day = Some(1.0);
+        let d = split_phase(vec![program]);
+        let heater = |n: i64| -> Vec<Event> {
+            (0..n)
+                .flat_map(|i| {
+                    let t = i * H;
+                    [
+                        step(t, 1100.0),
+                        step(t + H / 8, -1100.0),
+                        step(t + H / 4, 1100.0),
+                        step(t + 3 * H / 8, -1100.0),
+                    ]
+                })
+                .collect()
+        };
+        let o = check(&d, &heater(3), &stats, 1.0);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(found, ["dishwasher"], "{:?}", o.appliances[0].reason);
+        let o = check(&d, &heater(10), &stats, 1.0);
+        assert!(
+            o.appliances[0].reason.contains("likelier another load"),
+            "{}",
+            o.appliances[0].reason
+        );
     }
 
     /// Placement stage, at 1 min: a 1.5 kW kettle declared on L1-N
