@@ -1053,7 +1053,7 @@ fn several_moves_doubt(findings: &mut [Finding], n_moved: usize, interval_s: f64
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::audit::check::testkit::{day_stats, on_off, split_phase, H};
+    use crate::audit::check::testkit::{day_stats, heater_program, on_off, split_phase, H};
 
     /// The fault-matrix case the rule was made for (10 s): a hair dryer's
     /// half-heat step 0.22 tolerances from its own and 0.81 from a
@@ -1112,22 +1112,13 @@ mod tests {
     fn a_run_makes_each_step_size_as_often_as_its_jumps_of_that_size() {
         use crate::audit::decl::Steps;
         let d = split_phase(vec![]);
-        let mut dw = on_off("dishwasher", 0, C64::new(65.0, 0.0));
-        let heat = dw.states[1][0].clone();
-        dw.states.push(vec![
-            dw.states[1][0].clone(),
-            crate::audit::decl::DeclDraw {
-                s: C64::new(1100.0, 0.0),
-                ..heat
-            },
-        ]);
-        dw.steps = Steps::Jumps(vec![
-            (0, 1, 1.0, 1.0),
-            (1, 2, 1.0, 1.0),
-            (2, 1, 1.0, 1.0),
-            (1, 2, 1.0, 1.0),
-            (2, 0, 1.0, 1.0),
-        ]);
+        let mut dw = heater_program(0, 65.0, 1100.0, 1, 2);
+        // All off from the heater's state at the end: 1165 W, not 65 W.
+        let Steps::Jumps(jumps) = &mut dw.steps else {
+            unreachable!("a program's steps are jumps")
+        };
+        jumps.truncate(4);
+        jumps.push((2, 0, 1.0, 1.0));
         assert_eq!(d.jumps_per_step(&dw), [1, 3, 1]);
         let m = crate::audit::check::hypothesis::declared_metering(&d, &[false, false]);
         assert_eq!(alike_sizes(&predicted(&d, &m, &dw)), [0, 1, 1]);
@@ -1523,23 +1514,7 @@ mod tests {
         // are ten runs (forty over four heater jumps a run), not seven
         // (forty over all six jumps); ten where two are expected is beyond
         // the habit, seven would not be (Poisson tails 5e-5 and 4.5e-3).
-        let mut program = on_off("dishwasher", 0, C64::new(65.0, 0.0));
-        let pump = program.states[1][0].clone();
-        program.states.push(vec![
-            pump.clone(),
-            crate::audit::decl::DeclDraw {
-                s: C64::new(1100.0, 0.0),
-                ..pump
-            },
-        ]);
-        program.steps = crate::audit::decl::Steps::Jumps(vec![
-            (0, 1, 1.0, 1.0),
-            (1, 2, 1.0, 1.0),
-            (2, 1, 1.0, 1.0),
-            (1, 2, 1.0, 1.0),
-            (2, 1, 1.0, 1.0),
-            (1, 0, 1.0, 1.0),
-        ]);
+        let mut program = heater_program(0, 65.0, 1100.0, 1, 2);
         program.starts_per_day = Some(1.0);
         let d = split_phase(vec![program]);
         let heater = |n: i64| -> Vec<Event> {

@@ -33,6 +33,34 @@ pub(super) fn on_off_wired(id: &str, wiring: Wiring, s: C64) -> DeclAppliance {
     }
 }
 
+/// A dishwasher-like program on line `line` to neutral: a pump of
+/// `pump_w` (state 1), with a heater of `heater_w` besides (state 2); each
+/// of `washes` turns the pump on, the heater on and off `heats` times, and
+/// the pump off.
+pub(super) fn heater_program(
+    line: usize,
+    pump_w: f64,
+    heater_w: f64,
+    washes: usize,
+    heats: usize,
+) -> DeclAppliance {
+    let mut a = on_off("dishwasher", line, C64::new(pump_w, 0.0));
+    let pump = a.states[1][0].clone();
+    a.states.push(vec![
+        pump.clone(),
+        crate::audit::decl::DeclDraw {
+            s: C64::new(heater_w, 0.0),
+            ..pump
+        },
+    ]);
+    let wash = std::iter::once((0, 1, 1.0, 1.0))
+        .chain((0..heats).flat_map(|_| [(1, 2, 1.0, 1.0), (2, 1, 1.0, 1.0)]))
+        .chain(std::iter::once((1, 0, 1.0, 1.0)));
+    let jumps: Vec<crate::audit::decl::Jump> = (0..washes).flat_map(|_| wash.clone()).collect();
+    a.steps = crate::audit::decl::Steps::Jumps(jumps);
+    a
+}
+
 /// A 120/240 V home, a CT on each line as labelled.
 pub(super) fn split_phase(appliances: Vec<DeclAppliance>) -> Declared {
     home(SupplyKind::SplitPhase, 120.0, appliances)

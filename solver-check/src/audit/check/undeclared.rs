@@ -1436,31 +1436,9 @@ mod tests {
     #[test]
     fn a_habit_bounds_a_loads_runs_by_its_jumps_of_that_size() {
         use crate::audit::check::check;
-        use crate::audit::decl::{DeclDraw, Steps};
-        use crate::contract::Zip;
-        let draw = |w: f64| DeclDraw {
-            wiring: Wiring::LineNeutral(0),
-            s: C64::new(w, 0.0),
-            zip_p: Zip::POWER,
-            zip_q: Zip::POWER,
-            rated_v: None,
-        };
-        let program = DeclAppliance {
-            id: "dishwasher".into(),
-            label: "dishwasher".into(),
-            states: vec![vec![], vec![draw(65.0)], vec![draw(65.0), draw(1300.0)]],
-            steps: Steps::Jumps(vec![
-                (0, 1, 1.0, 1.0),
-                (1, 2, 1.0, 1.0),
-                (2, 1, 1.0, 1.0),
-                (1, 0, 1.0, 1.0),
-                (0, 1, 1.0, 1.0),
-                (1, 2, 1.0, 1.0),
-                (2, 1, 1.0, 1.0),
-                (1, 0, 1.0, 1.0),
-            ]),
-            starts_per_day: Some(2.0),
-        };
+        use crate::audit::check::testkit::heater_program;
+        let mut program = heater_program(0, 65.0, 1300.0, 2, 1);
+        program.starts_per_day = Some(2.0);
         let events: Vec<Event> = (0..36)
             .flat_map(|i| {
                 let t = i * 3 * H / 2;
