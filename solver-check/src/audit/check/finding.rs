@@ -4,6 +4,7 @@
 use super::fit::tol;
 use super::thresholds::Thresholds;
 use crate::audit::decl::{Declared, Inverter};
+use crate::contract::Wiring;
 use serde_json::Value;
 
 /// A kind of installer mistake, as findings and the fault matrix name them.
@@ -151,7 +152,7 @@ pub struct ApplianceCheck {
 pub(super) fn sort_findings(
     d: &Declared,
     mut findings: Vec<Finding>,
-    answers_apart: bool,
+    settled: bool,
     th: &Thresholds,
 ) -> (Vec<Finding>, Vec<Finding>, Vec<Finding>) {
     for f in findings.iter_mut() {
@@ -160,7 +161,7 @@ pub(super) fn sort_findings(
             .take()
             // A coarse interval's doubt is the stage's that found it
             // (placement, undeclared loads): each narrows it by evidence.
-            .or_else(|| generation_doubt(d, f, answers_apart, th));
+            .or_else(|| generation_doubt(d, f, settled, th));
     }
     let (findings, possible): (Vec<Finding>, Vec<Finding>) = findings
         .into_iter()
@@ -195,11 +196,11 @@ pub(super) fn same_wiring_name(a: &str, b: &str) -> bool {
 /// doing: a battery run for self-consumption answers every change of the
 /// home's power within seconds on its own wiring (at 10 s the two make one
 /// step of another shape; at 1 s its answer is a step of the same size on
-/// its wiring), so a finding on its wiring, or on no one connection, may
-/// rest on its answers ([`battery_may_make`]; a finding without a wiring
-/// is doubted too, and every finding where the metering found leaves the
-/// answers no shape of their own: `answers_apart` false,
-/// `metering::answers_told_apart`); and a PV inverter changes by any amount while it
+/// its wiring), so a finding on its wiring, or on several connections at
+/// once, may rest on its answers ([`battery_may_make`]; a finding without
+/// a wiring is doubted too, and every finding where the metering found
+/// leaves the answers no shape of their own: `settled` false,
+/// `metering::metering_settled`); and a PV inverter changes by any amount while it
 /// produces, so a step on its wiring may be its own.
 ///
 /// A PV array's doing is ruled out by its steps' size or times: a step
@@ -210,7 +211,7 @@ pub(super) fn same_wiring_name(a: &str, b: &str) -> bool {
 pub(super) fn generation_doubt(
     d: &Declared,
     f: &Finding,
-    answers_apart: bool,
+    settled: bool,
     th: &Thresholds,
 ) -> Option<String> {
     if f.kind.is_metering() {
@@ -219,12 +220,19 @@ pub(super) fn generation_doubt(
     let on = f.evidence["found"]
         .as_str()
         .or_else(|| f.evidence["wiring"].as_str());
-    if let Some(b) = d
-        .generation
-        .iter()
-        .find(|g| g.follows_home && (!answers_apart || on.is_none_or(|on| battery_may_make(g, on))))
-    {
-        return Some(format!("the home battery ({}, on {}) answers each change of the home's power within seconds, so steps on {} may be partly its answers", b.id, b.wiring.name(), b.wiring.name()));
+    if let Some(b) = d.generation.iter().find(|g| g.follows_home) {
+        let why = |tail: &str| {
+            format!("the home battery ({}, on {}) answers each change of the home's power within seconds, {tail}", b.id, b.wiring.name())
+        };
+        if !settled {
+            return Some(why("and the metering found does not keep its answers apart from other steps (a channel without a CT, two channels on one conductor, or another metering that fits the steps as well), so steps anywhere may be partly its answers"));
+        }
+        if on.is_none_or(|on| battery_may_make(b, on)) {
+            return Some(why(&format!(
+                "so steps on {} may be partly its answers",
+                b.wiring.name()
+            )));
+        }
     }
     let on = on?;
     let pvs: Vec<_> = d
@@ -252,17 +260,20 @@ pub(super) fn generation_doubt(
 }
 
 /// Whether the answers of battery `b` may make or shape the steps of a
-/// finding on wiring `on`: those of its own wiring, or of a shape no one
-/// connection makes (`+` in the name). A battery answers a step by drawing
-/// or feeding along its own wiring only: on a split-phase supply one across
-/// L1-L2 moves both lines' power alike (its current leaves on one line and
-/// returns on the other, whose voltage is the first's negated; textbook
-/// circuit relation), a three-phase one all three alike. An answer in the
-/// row of the step it answers leaves a shape that fits no one connection;
-/// an answer alone fits the battery's wiring. A step on one line alone, or
-/// on a pair of lines it is not across, is no answer of it.
+/// finding on wiring `on`: those of its own wiring, or on several
+/// connections at once (`+` in the name: a cluster of parts on several, or
+/// an appliance drawing on several). A battery answers a step by drawing
+/// or feeding along its own wiring only: across two lines, its current
+/// leaves on one and returns on the other, so on a split-phase supply
+/// (whose two voltages are each other's negatives) it moves both lines'
+/// power alike (textbook circuit relation); on one line to neutral, that
+/// line alone. An answer in the row of the step it answers leaves a shape
+/// that fits no one connection; an answer alone fits the battery's wiring.
+/// A step on one line alone, or on lines it is not across, is no answer of
+/// it. A three-phase battery may answer each line apart (a unit that
+/// balances each phase), so it may make any step.
 fn battery_may_make(b: &Inverter, on: &str) -> bool {
-    on.contains('+') || same_wiring_name(&b.wiring.name(), on)
+    b.wiring == Wiring::ThreePhase || on.contains('+') || same_wiring_name(&b.wiring.name(), on)
 }
 
 /// How many of the moments `times` (UTC ms) every declared PV array on
@@ -284,7 +295,6 @@ pub(super) fn dark_steps_in(d: &Declared, on: &str, times: impl Iterator<Item = 
 mod tests {
     use super::*;
     use crate::audit::check::testkit::split_phase;
-    use crate::contract::Wiring;
     use serde_json::json;
 
     /// At a coarse interval placements and undeclared loads are only
@@ -339,9 +349,18 @@ mod tests {
             generation_doubt(&d, &on_ln, true, th).is_none(),
             "a step on one line alone is no answer of a battery across both"
         );
+        let why = generation_doubt(&d, &on_ln, false, th)
+            .expect("unless the metering leaves the battery's answers no shape of their own");
+        assert!(why.contains("metering found"), "{why}");
+        let unplaced = f(Kind::UndeclaredLoad, json!({}));
         assert!(
-            generation_doubt(&d, &on_ln, false, th).is_some(),
-            "unless the metering leaves the battery's answers no shape of their own"
+            generation_doubt(&d, &unplaced, true, th).is_some(),
+            "no wiring to judge by"
+        );
+        d.generation[0].wiring = Wiring::ThreePhase;
+        assert!(
+            generation_doubt(&d, &on_ln, true, th).is_some(),
+            "a three-phase battery may answer each line apart"
         );
         assert!(generation_doubt(&d, &ct, true, th).is_none());
     }

@@ -571,16 +571,17 @@ pub(super) fn coincidences(
 }
 
 /// The declared jumps as placed, each read under a metering with how
-/// many steps it was seen in (`(appliance, reading, n)`), and the share
-/// `w / 2T` that turns two counts into the expected number of their
-/// coincidences ([`coincidences`]).
-pub(super) struct Jumps {
+/// many steps it was seen in (`(appliance, reading, n)`), and the factor
+/// `w / 2T` that turns two counts n₁, n₂ into the expected number of
+/// their coincidences of each shape (the sum, or the difference: n₁ n₂ w
+/// / T in all, half each; [`coincidences`]).
+pub(super) struct SeenJumps {
     seen: Vec<(usize, Vec<Option<C64>>, usize)>,
     per_pair: f64,
 }
 
 /// The jumps of the appliances `placed` seen in `events` under `m`, in a
-/// run of `hours` at `interval_s` ([`Jumps`]).
+/// run of `hours` at `interval_s` ([`SeenJumps`]).
 pub(super) fn jumps_seen(
     d: &Declared,
     m: &Metering,
@@ -588,7 +589,7 @@ pub(super) fn jumps_seen(
     events: &[&Event],
     interval_s: f64,
     hours: f64,
-) -> Jumps {
+) -> SeenJumps {
     let seen = placed
         .iter()
         .enumerate()
@@ -602,7 +603,7 @@ pub(super) fn jumps_seen(
     let t_s = hours * 3600.0;
     let w = 2.0 * crate::audit::events::level_rows(interval_s) as f64 * interval_s;
     let per_pair = if t_s > 0.0 { w / (2.0 * t_s) } else { 0.0 };
-    Jumps { seen, per_pair }
+    SeenJumps { seen, per_pair }
 }
 
 /// `a` plus `b` (`sign` 1) or less it (−1), channel by channel; unread
@@ -617,7 +618,7 @@ fn combine(a: &[Option<C64>], b: &[Option<C64>], sign: f64) -> Vec<Option<C64>> 
         .collect()
 }
 
-impl Jumps {
+impl SeenJumps {
     /// Sums and differences of two jumps of two appliances, with their
     /// expected counts in the run.
     pub(super) fn sums(&self) -> Vec<(Vec<Option<C64>>, f64)> {
@@ -637,11 +638,19 @@ impl Jumps {
     }
 
     /// Sums and differences of a step `v`, seen `n` times, with each
-    /// declared jump, with their expected counts in the run: a load nobody
-    /// declared switching in one interval with a declared one.
+    /// declared jump but those of its own size, with their expected counts
+    /// in the run: a load nobody declared switching in one interval with a
+    /// declared one. (Steps of a declared jump's size left unexplained are
+    /// likelier that appliance's own; pairing them with it would make
+    /// phantom composites of twice its size.)
     pub(super) fn with(&self, v: &[Option<C64>], n: usize) -> Vec<(Vec<Option<C64>>, f64)> {
         let mut out = Vec::new();
-        for (_, r, nr) in &self.seen {
+        let step: Vec<C64> = v.iter().map(|x| x.unwrap_or(C64::ZERO)).collect();
+        for (_, r, nr) in self
+            .seen
+            .iter()
+            .filter(|(_, r, _)| dist_delta(&step, r) > 1.0)
+        {
             let rate = (n * nr) as f64 * self.per_pair;
             for sign in [1.0, -1.0] {
                 out.push((combine(v, r, sign), rate));

@@ -169,7 +169,7 @@ pub(super) fn mirror_of(
         })
         .max_by_key(|&i| mc.scored[i].ex)?;
     let (ch, mi) = (&mc.scored[chosen], &mc.scored[mirror]);
-    (mi.admissible(th) && mi.ex as f64 >= 0.95 * ch.ex as f64).then_some(mirror)
+    (mi.admissible(th) && mi.ex as f64 >= th.fits_as_well * ch.ex as f64).then_some(mirror)
 }
 
 /// Hours the declared appliances spend on and off as metering `m` reads
@@ -297,18 +297,20 @@ pub(super) fn orient(
         .unwrap_or(mc.chosen)
 }
 
-/// Whether a home battery's answers keep a shape of their own under
-/// metering `chosen`, so that a step on one line alone is no answer of a
-/// battery across two (`finding::battery_may_make`): every line is read,
+/// Whether metering `chosen` is settled so that a home battery's answers
+/// keep a shape of their own under it, and a step on one line alone is no
+/// answer of a battery across two (`finding::battery_may_make`): every
+/// line is read (a channel that reads nothing, its CT missing or on an
+/// idle conductor, reads no line),
 /// each by one channel (a missing CT leaves a battery's share on the lines
 /// read looking like a load on one line; two channels on one conductor
 /// read a battery across both as such a load), and the steps settle which
 /// channel reads which conductor: no other admissible metering that reads
-/// them otherwise (signs aside) explains 95 % as many steps. A battery
+/// them otherwise (signs aside) explains as many steps (`fits_as_well`). A battery
 /// home's readings may be negative at any hour, so only its steps tell
 /// one metering from another; where one reading other conductors fits as
 /// well, an appliance that seems to have moved may be the metering's doing.
-pub(super) fn answers_told_apart(mc: &MeteringChoice, chosen: usize, th: &Thresholds) -> bool {
+pub(super) fn metering_settled(mc: &MeteringChoice, chosen: usize, th: &Thresholds) -> bool {
     let m = &mc.hyps[chosen].0;
     let srcs = |m: &Metering| -> Vec<usize> { m.map.iter().map(|c| c.src).collect() };
     let mut lines = srcs(m);
@@ -319,7 +321,7 @@ pub(super) fn answers_told_apart(mc: &MeteringChoice, chosen: usize, th: &Thresh
     }
     let ex = mc.scored[chosen].ex as f64;
     !mc.scored.iter().enumerate().any(|(i, s)| {
-        srcs(&mc.hyps[i].0) != srcs(m) && s.admissible(th) && s.ex as f64 >= 0.95 * ex
+        srcs(&mc.hyps[i].0) != srcs(m) && s.admissible(th) && s.ex as f64 >= th.fits_as_well * ex
     })
 }
 
@@ -635,7 +637,7 @@ pub(super) fn best_admissible(scored: &[Scored], decl_i: usize, th: &Thresholds)
         .unwrap_or(0);
     let cand = scored
         .iter()
-        .filter(|s| s.admissible(th) && s.ex as f64 >= 0.95 * best_ex as f64)
+        .filter(|s| s.admissible(th) && s.ex as f64 >= th.fits_as_well * best_ex as f64)
         .min_by_key(|s| (s.cost, usize::MAX - s.ex))
         .map_or(decl_i, |s| s.i);
     let keeps = decl.admissible(th)
@@ -1092,17 +1094,23 @@ pub(super) fn declared_elsewhere(
         })
 }
 
-/// Whether an appliance declared through conductor `c` that has a step to
-/// place it by shows at its full size, three times or more, on any wiring
-/// (its own too: a line-to-line one shows on its other line with `c`
-/// unread): then something runs through `c`, and a channel on `c` that
-/// reads zeros has no CT there.
+/// Whether something is seen to run through conductor `c`: a declared PV
+/// inverter or battery wired through it (it carries their current), or an
+/// appliance declared through it that has a step to place it by showing at
+/// its full size, three times or more, on a wiring through `c` (its own:
+/// a line-to-line one shows on its other line with `c` unread; or another
+/// through `c`). One seen only on wirings that avoid `c` says the
+/// opposite. Then a channel on `c` that reads zeros has no CT there.
 fn seen_through(d: &Declared, events: &[Event], c: usize, th: &Thresholds) -> bool {
+    let n = d.supply.lines();
+    if d.generation.iter().any(|g| g.wiring.lines(n).contains(&c)) {
+        return true;
+    }
     let through = Through::new(d, c, th);
     through.there.iter().any(|a| {
         std::iter::once((*a).clone())
             .chain(alternatives(d, a).into_iter().map(|(_, alt)| alt))
-            .any(|alt| through.shows(&alt, events))
+            .any(|alt| through.goes(&alt) && through.shows(&alt, events))
     })
 }
 
@@ -1365,11 +1373,20 @@ mod tests {
         };
         let th = &Thresholds::STANDARD;
         let settled = choice([false, false], 2);
-        assert!(answers_told_apart(&settled, settled.decl_i, th));
+        assert!(metering_settled(&settled, settled.decl_i, th));
         let rival = choice([false, false], 10);
-        assert!(!answers_told_apart(&rival, rival.decl_i, th));
+        assert!(!metering_settled(&rival, rival.decl_i, th));
         let missing = choice([false, true], 2);
-        assert!(!answers_told_apart(&missing, missing.decl_i, th));
+        assert!(!metering_settled(&missing, missing.decl_i, th));
+        let both_on_l1 = settled
+            .hyps
+            .iter()
+            .position(|(m, _)| m.map.iter().all(|c| c.src == 0 && c.k > 0.0))
+            .expect("both channels on L1");
+        assert!(
+            !metering_settled(&settled, both_on_l1, th),
+            "two channels on one conductor"
+        );
     }
 
     /// Both CTs on L1 (l2's turned: it reads −S1) and both on L2 turned
@@ -2055,6 +2072,28 @@ mod tests {
         }
         let (found, _) = channel_findings(&d, &busy, &stats(10_000, 0), th);
         assert_eq!(found.len(), 1);
+        assert!(found[0].doubt.is_none(), "{:?}", found[0].doubt);
+        // The lamp seen on L1-N (and the heater nowhere): what runs is not
+        // on L3, so the zeros still may be an idle conductor's.
+        let lamp_on_l1: Vec<Event> = (0..4)
+            .map(|i| {
+                let mut e = other(i * H + H / 2);
+                e.delta = vec![C64::new(900.0, 0.0), C64::ZERO, C64::ZERO];
+                e
+            })
+            .collect();
+        let (found, _) = channel_findings(&d, &lamp_on_l1, &stats(10_000, 0), th);
+        assert!(found.iter().all(|f| f.doubt.is_some()), "{found:?}");
+        // A battery across L2-L3 carries current on L3 whatever is seen.
+        let mut with_battery = d.clone();
+        with_battery
+            .generation
+            .push(crate::audit::decl::Inverter::new(
+                "battery",
+                Wiring::LineLine(1, 2),
+                true,
+            ));
+        let (found, _) = channel_findings(&with_battery, &quiet, &stats(10_000, 0), th);
         assert!(found[0].doubt.is_none(), "{:?}", found[0].doubt);
     }
 }

@@ -49,8 +49,8 @@ use crate::contract::line_name;
 use finding::sort_findings;
 use fit::{jumps_seen, METERING_STEP};
 use metering::{
-    absent_channels, answers_told_apart, channel_findings, choose_metering, dispute, doubt_mirror,
-    metering_confidence, metering_doubt, metering_findings, orient, place_under,
+    absent_channels, channel_findings, choose_metering, dispute, doubt_mirror, metering_confidence,
+    metering_doubt, metering_findings, metering_settled, orient, place_under,
     silent_channel_accounts, simpler_account, MeteringChoice, Placement,
 };
 use placement::{indistinct_notes, Window};
@@ -183,8 +183,8 @@ pub fn check_with(
     let (more, steps_explained) =
         undeclared_loads(d, &m, &used, (&cxs, &checks, &placed), total_wh, window, th);
     findings.extend(more);
-    let answers_apart = answers_told_apart(&mc, chosen, th);
-    let (findings, possible, unlisted) = sort_findings(d, findings, answers_apart, th);
+    let settled = metering_settled(&mc, chosen, th);
+    let (findings, possible, unlisted) = sort_findings(d, findings, settled, th);
     notes.extend(few_explained(d, steps_explained, used.len()));
     Outcome {
         possible_below: th.possible,

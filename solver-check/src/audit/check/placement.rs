@@ -544,6 +544,9 @@ impl Round<'_> {
         for (i, n) in per_run.iter().enumerate() {
             per[group[i]] += n;
         }
+        // Each step counts for the size it fits best (were none of `alt`'s
+        // sizes visible, every distance would be infinite and it would
+        // fall to the first, harmlessly: a move needs visible sizes).
         for &k in mine {
             let e = self.used[k];
             let nearest =
@@ -899,14 +902,21 @@ impl Round<'_> {
 /// may be either's. (Not [`step_groups`], one step at the inputs the
 /// weather gives it.)
 fn alike_sizes(sizes: &[Vec<Option<C64>>]) -> Vec<usize> {
+    // One sign for every channel (a jump and its reverse are one size);
+    // channels read by neither are passed over, and two readings with no
+    // channel in common are not near.
     let near = |a: &[Option<C64>], b: &[Option<C64>]| {
-        a.iter().zip(b).all(|(x, y)| match (x, y) {
-            (Some(x), Some(y)) => {
-                let close = |y: C64| (*x - y).abs() <= tol(x.abs().max(y.abs()));
-                close(*y) || close(-*y)
-            }
-            _ => true,
-        })
+        let pairs: Vec<(C64, C64)> = a
+            .iter()
+            .zip(b)
+            .filter_map(|(x, y)| Some(((*x)?, (*y)?)))
+            .collect();
+        let within = |sign: f64| {
+            pairs
+                .iter()
+                .all(|(x, y)| (*x - y.scale(sign)).abs() <= tol(x.abs().max(y.abs())))
+        };
+        !pairs.is_empty() && (within(1.0) || within(-1.0))
     };
     let mut group: Vec<usize> = (0..sizes.len()).collect();
     // Join until nothing changes: each size takes the smallest group of

@@ -141,6 +141,15 @@ pub struct Thresholds {
     /// produces): one run seen in the dark, a start and a stop (common
     /// practice, no source).
     pub dark_steps: usize,
+    /// Share of the steps one metering explains from which another
+    /// explains as many: a near tie, within 5 % (common practice, no
+    /// source). Of the meterings that explain as many steps as the best,
+    /// the one supposing fewest changes is weighed against the declared;
+    /// a battery home's mirror image (every reading negated) that explains
+    /// as many fits as well; and a metering that another, reading the
+    /// conductors otherwise, explains as many steps as is not settled by
+    /// the steps.
+    pub fits_as_well: f64,
 }
 
 impl Thresholds {
@@ -166,6 +175,7 @@ impl Thresholds {
         overlap_runs: 3,
         nameplate_band: 0.2,
         dark_steps: 2,
+        fits_as_well: 0.95,
     };
 }
 
@@ -196,7 +206,7 @@ impl Cutoff {
 }
 
 /// Every cut-off of [`Thresholds`], in the order of its fields.
-pub const CUTOFFS: [Cutoff; 20] = [
+pub const CUTOFFS: [Cutoff; 21] = [
     Cutoff {
         name: "possible",
         meaning: "confidence below which a finding is listed apart as possible",
@@ -356,6 +366,14 @@ pub const CUTOFFS: [Cutoff; 20] = [
         count: true,
         get: |t| t.dark_steps as f64,
         set: |t, v| t.dark_steps = v as usize,
+    },
+    Cutoff {
+        name: "fits_as_well",
+        meaning: "share of the steps one metering explains from which another explains as many (the cheapest of those as good as the best is weighed; a battery home's mirror image; a rival that leaves the metering unsettled)",
+        range: (0.0, 1.0),
+        count: false,
+        get: |t| t.fits_as_well,
+        set: |t, v| t.fits_as_well = v,
     },
 ];
 

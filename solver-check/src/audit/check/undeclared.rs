@@ -7,7 +7,7 @@ use super::finding::{
 };
 use super::fit::{
     connection_of, dist_delta, distances, poisson_tail, predicted, projection, shape_of, tol, Ctx,
-    Jumps, Pred, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
+    Pred, SeenJumps, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
 };
 use super::hypothesis::{alternatives, wiring_names, Metering};
 use super::placement::{beyond_chance, one_power};
@@ -318,7 +318,7 @@ pub(super) struct UndeclaredStage<'a> {
     pub sums: &'a [(Vec<Option<C64>>, f64)],
     /// The declared jumps seen, to weigh a cluster as a busier undeclared
     /// load switching in one interval with a declared one.
-    pub jumps: Option<&'a Jumps>,
+    pub jumps: Option<&'a SeenJumps>,
     pub total_wh: f64,
     pub placed: &'a [DeclAppliance],
     pub checks: &'a [ApplianceCheck],
@@ -355,10 +355,10 @@ impl UndeclaredStage<'_> {
         clusters
             .iter()
             .filter_map(|c| {
-                let sums = self.sums_with_busier(c, &clusters);
-                let mut f = undeclared_finding(self.d, c, &sums, self.total_wh, self.th)?;
+                let with_busier = self.sums_with_busier(c, &clusters);
+                let mut f = undeclared_finding(self.d, c, &with_busier, self.total_wh, self.th)?;
                 f.doubt = self
-                    .coarse_load_doubt(c, &clusters, &placed_beyond, &sums)
+                    .coarse_load_doubt(c, &clusters, &placed_beyond, &with_busier)
                     .or_else(|| self.doubt(c));
                 Some(f)
             })
@@ -891,7 +891,8 @@ mod tests {
     /// Poisson rate as two declared ones: 100 steps of a 700 W load and
     /// 100 of a 1 kW heater in 100 h of 10 s rows (2τ = 40 s) make
     /// 100 · 100 · 40 / (2 · 360 000) = 0.556 steps of each of their sum
-    /// and difference (any text on Poisson coincidences).
+    /// and difference (the accidental-coincidence rate 2τ r₁ r₂ of two
+    /// independent Poisson streams, as in counting statistics; from memory).
     #[test]
     fn a_left_out_load_coincides_with_a_declared_one_at_the_poisson_rate() {
         use crate::audit::check::fit::jumps_seen;
