@@ -325,6 +325,15 @@ impl std::fmt::Debug for SunUp {
     }
 }
 
+/// Whether two per-line steps are one step size: alike on every line up
+/// to that line's sign (a jump and its return among them), to within
+/// rounding.
+fn same_step(a: &[C64], b: &[C64]) -> bool {
+    a.iter()
+        .zip(b)
+        .all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)
+}
+
 impl Declared {
     /// Per-line complex power of state `k` of appliance `a`, at nominal voltage.
     pub fn state_split(&self, a: &DeclAppliance, k: usize) -> Vec<C64> {
@@ -361,13 +370,7 @@ impl Declared {
         for &jump in a.steps.jumps() {
             let d = self.jump_step(a, jump);
             let size = d.iter().map(|c| c.abs()).fold(0.0, f64::max);
-            if size > 0.0
-                && !v.iter().any(|(_, w)| {
-                    w.iter()
-                        .zip(&d)
-                        .all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)
-                })
-            {
+            if size > 0.0 && !v.iter().any(|(_, w)| same_step(w, &d)) {
                 v.push((jump, d));
             }
         }
@@ -384,12 +387,7 @@ impl Declared {
         let mut per = vec![0; distinct.len()];
         for &jump in a.steps.jumps() {
             let d = self.jump_step(a, jump);
-            let same = |w: &Vec<C64>| {
-                w.iter()
-                    .zip(&d)
-                    .all(|(x, y)| (*x - *y).abs() < 1e-6 || (*x + *y).abs() < 1e-6)
-            };
-            if let Some(i) = distinct.iter().position(|(_, w)| same(w)) {
+            if let Some(i) = distinct.iter().position(|(_, w)| same_step(w, &d)) {
                 per[i] += 1;
             }
         }

@@ -310,8 +310,10 @@ mod tests {
     }
 
     /// A PV inverter or a home battery makes placements and undeclared
-    /// loads on its own wiring possible only (a battery also those of a
-    /// shape no one connection makes); metering findings stand.
+    /// loads on its own wiring possible only; a battery also those on
+    /// several connections at once or with no wiring, and all of them
+    /// where it is three-phase or the metering is unsettled; metering
+    /// findings stand.
     #[test]
     fn findings_the_pv_or_the_battery_could_make_are_only_possible() {
         let th = &Thresholds::STANDARD;
