@@ -695,7 +695,8 @@ impl Round<'_> {
                 coverage(d, m, a, self.used, self.cxs, &mine_d, th.whole_share) >= 1.0
             }
             && (!self.coarse() || self.beyond_chance(a));
-        let moves = !stays && n_a >= 3 && n_a >= 3 * n_d + 2;
+        // As many steps to move it as to keep it where declared: two runs.
+        let moves = !stays && n_a >= th.shows_as_declared && n_a >= 3 * n_d + 2;
         let whole =
             moves && coverage(d, m, &alt, self.used, self.cxs, &all_a, th.whole_share) >= 1.0;
         if whole {
@@ -1549,6 +1550,39 @@ mod tests {
             "{}",
             o.appliances[0].reason
         );
+    }
+
+    /// Placement stage, at 1 s: a 1.5 kW kettle declared on L1-N that
+    /// switches on L2-N is moved there on four steps (two runs, as many as
+    /// keep an appliance where declared), not on three.
+    #[test]
+    fn a_move_needs_as_many_steps_as_staying() {
+        use crate::audit::check::check;
+        use crate::audit::events::Event;
+        let d = split_phase(vec![on_off("kettle", 0, C64::new(1500.0, 0.0))]);
+        let step = |t: i64, w: f64| Event {
+            time_ms: t,
+            delta: vec![C64::ZERO, C64::new(w, 0.0)],
+            before: vec![C64::new(200.0, 0.0); 2],
+            v_before: vec![120.0; 2],
+            v_after: vec![120.0; 2],
+            se: vec![1.0; 2],
+        };
+        let steps = |n: i64| -> Vec<Event> {
+            (0..n)
+                .map(|i| step(i * H, if i % 2 == 0 { 1500.0 } else { -1500.0 }))
+                .collect()
+        };
+        let stats = day_stats(2, 200.0);
+        let found = |n: i64| -> Vec<String> {
+            check(&d, &steps(n), &stats, 1.0)
+                .findings
+                .iter()
+                .map(|f| f.subject.clone())
+                .collect()
+        };
+        assert!(found(3).is_empty(), "{:?}", found(3));
+        assert_eq!(found(4), ["kettle"]);
     }
 
     /// Placement stage, at 1 min: a 1.5 kW kettle declared on L1-N
