@@ -551,30 +551,11 @@ pub(super) fn distances(
         .collect()
 }
 
-/// Two declared appliances switching in one interval make one step, their
-/// sum. Each sum of two jumps of two appliances (either the same way or
-/// opposite ways), with how often such a coincidence is expected in the
-/// run: n₁ n₂ w / 2T for jumps seen n₁ and n₂ times (starts and stops)
-/// in T, with a window w as wide as two steps merge in the detector
-/// (closer than `level_rows` either way), and half the pairs the same way
-/// round (independent switching: the rate of Poisson coincidences; common
-/// practice, no source).
-pub(super) fn coincidences(
-    d: &Declared,
-    m: &Metering,
-    placed: &[DeclAppliance],
-    events: &[&Event],
-    interval_s: f64,
-    hours: f64,
-) -> Vec<(Vec<Option<C64>>, f64)> {
-    jumps_seen(d, m, placed, events, interval_s, hours).sums()
-}
-
 /// The declared jumps as placed, each read under a metering with how
 /// many steps it was seen in (`(appliance, reading, n)`), and the factor
 /// `w / 2T` that turns two counts n₁, n₂ into the expected number of
 /// their coincidences of each shape (the sum, or the difference: n₁ n₂ w
-/// / T in all, half each; [`coincidences`]).
+/// / T in all, half each; [`SeenJumps::sums`]).
 pub(super) struct SeenJumps {
     seen: Vec<(usize, Vec<Option<C64>>, usize)>,
     per_pair: f64,
@@ -619,8 +600,14 @@ fn combine(a: &[Option<C64>], b: &[Option<C64>], sign: f64) -> Vec<Option<C64>> 
 }
 
 impl SeenJumps {
-    /// Sums and differences of two jumps of two appliances, with their
-    /// expected counts in the run.
+    /// Two declared appliances switching in one interval make one step,
+    /// their sum. Each sum of two jumps of two appliances (either the same
+    /// way or opposite ways), with how often such a coincidence is expected
+    /// in the run: n₁ n₂ w / 2T for jumps seen n₁ and n₂ times (starts and
+    /// stops) in T, with a window w as wide as two steps merge in the
+    /// detector (closer than `level_rows` either way), and half the pairs
+    /// the same way round (independent switching: the rate of Poisson
+    /// coincidences; common practice, no source).
     pub(super) fn sums(&self) -> Vec<(Vec<Option<C64>>, f64)> {
         let mut out = Vec::new();
         for (i, (ja, ra, na)) in self.seen.iter().enumerate() {

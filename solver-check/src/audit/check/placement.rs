@@ -7,7 +7,7 @@ use super::finding::{
     coarse_doubt, dark_steps_in, same_wiring_name, ApplianceCheck, Finding, Kind, Verdict,
 };
 use super::fit::{
-    coincidences, dist, dist_delta, dist_model, distances, poisson_tail, predicted, shape_of, tol,
+    dist, dist_delta, dist_model, distances, jumps_seen, poisson_tail, predicted, shape_of, tol,
     visible, Ctx, Model, Pred, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
 };
 use super::hypothesis::{alternatives, wiring_names, Metering};
@@ -850,10 +850,10 @@ impl Round<'_> {
     /// How many steps of the size of appliance `alt` two declared
     /// appliances switching within one row are expected to make in the
     /// run: the Poisson rates of the sums and differences of their jumps
-    /// that have its size ([`coincidences`]).
+    /// that have its size ([`SeenJumps::sums`](super::fit::SeenJumps::sums)).
     fn composites_expected(&self, alt: &DeclAppliance) -> f64 {
         let own = predicted(self.d, self.m, alt);
-        coincidences(
+        jumps_seen(
             self.d,
             self.m,
             self.placed,
@@ -861,6 +861,7 @@ impl Round<'_> {
             self.interval_s,
             self.hours,
         )
+        .sums()
         .iter()
         .filter(|(sum, _)| {
             let delta: Vec<C64> = sum.iter().map(|x| x.unwrap_or(C64::ZERO)).collect();
@@ -1475,6 +1476,19 @@ mod tests {
         );
     }
 
+    /// A step of `w` watts on L2 alone at `t` (ms), at 1 s over a steady
+    /// 200 W on each line at 120 V.
+    fn l2_step(t: i64, w: f64) -> crate::audit::events::Event {
+        crate::audit::events::Event {
+            time_ms: t,
+            delta: vec![C64::ZERO, C64::new(w, 0.0)],
+            before: vec![C64::new(200.0, 0.0); 2],
+            v_before: vec![120.0; 2],
+            v_after: vec![120.0; 2],
+            se: vec![1.0; 2],
+        }
+    }
+
     /// Placement stage: a 1.9 kW dishwasher declared on L1-N, to start once
     /// a day, whose steps show six times on L2-N in two days (three runs) is
     /// on L2-N; forty steps there (twenty runs where two are expected: a
@@ -1489,17 +1503,9 @@ mod tests {
         let mut dishwasher = on_off("dishwasher", 0, C64::new(1900.0, 0.0));
         dishwasher.starts_per_day = Some(1.0);
         let d = split_phase(vec![dishwasher]);
-        let step = |t: i64, w: f64| Event {
-            time_ms: t,
-            delta: vec![C64::ZERO, C64::new(w, 0.0)],
-            before: vec![C64::new(200.0, 0.0); 2],
-            v_before: vec![120.0; 2],
-            v_after: vec![120.0; 2],
-            se: vec![1.0; 2],
-        };
         let runs = |n: i64| -> Vec<Event> {
             (0..n)
-                .flat_map(|i| [step(i * H, 1900.0), step(i * H + H / 4, -1900.0)])
+                .flat_map(|i| [l2_step(i * H, 1900.0), l2_step(i * H + H / 4, -1900.0)])
                 .collect()
         };
         let stats = vec![
@@ -1533,10 +1539,10 @@ mod tests {
                 .flat_map(|i| {
                     let t = i * H;
                     [
-                        step(t, 1100.0),
-                        step(t + H / 8, -1100.0),
-                        step(t + H / 4, 1100.0),
-                        step(t + 3 * H / 8, -1100.0),
+                        l2_step(t, 1100.0),
+                        l2_step(t + H / 8, -1100.0),
+                        l2_step(t + H / 4, 1100.0),
+                        l2_step(t + 3 * H / 8, -1100.0),
                     ]
                 })
                 .collect()
@@ -1560,17 +1566,9 @@ mod tests {
         use crate::audit::check::check;
         use crate::audit::events::Event;
         let d = split_phase(vec![on_off("kettle", 0, C64::new(1500.0, 0.0))]);
-        let step = |t: i64, w: f64| Event {
-            time_ms: t,
-            delta: vec![C64::ZERO, C64::new(w, 0.0)],
-            before: vec![C64::new(200.0, 0.0); 2],
-            v_before: vec![120.0; 2],
-            v_after: vec![120.0; 2],
-            se: vec![1.0; 2],
-        };
         let steps = |n: i64| -> Vec<Event> {
             (0..n)
-                .map(|i| step(i * H, if i % 2 == 0 { 1500.0 } else { -1500.0 }))
+                .map(|i| l2_step(i * H, if i % 2 == 0 { 1500.0 } else { -1500.0 }))
                 .collect()
         };
         let stats = day_stats(2, 200.0);

@@ -763,7 +763,7 @@ fn runs_inside(mine: &[(i64, i64)], theirs: &[(i64, i64)]) -> usize {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::audit::check::fit::coincidences;
+    use crate::audit::check::fit::jumps_seen;
     use crate::audit::check::hypothesis::declared_metering;
     use crate::audit::check::testkit::{day_stats, on_off, split_phase, H};
 
@@ -867,7 +867,7 @@ mod tests {
             })
             .collect();
         let refs: Vec<&Event> = events.iter().collect();
-        let sums = coincidences(&d, &m, &d.appliances, &refs, 10.0, 100.0);
+        let sums = jumps_seen(&d, &m, &d.appliances, &refs, 10.0, 100.0).sums();
         let rate = |w: f64| {
             sums.iter()
                 .filter(|(r, _)| dist_delta(&[C64::new(w, 0.0), C64::ZERO], r) <= 0.2)
@@ -895,7 +895,6 @@ mod tests {
     /// independent Poisson streams, as in counting statistics; from memory).
     #[test]
     fn a_left_out_load_coincides_with_a_declared_one_at_the_poisson_rate() {
-        use crate::audit::check::fit::jumps_seen;
         let d = split_phase(vec![on_off("heater", 0, C64::new(1000.0, 0.0))]);
         let m = declared_metering(&d, &[false, false]);
         let events: Vec<Event> = (0..100)
