@@ -9,7 +9,7 @@ use crate::simulate::simulate;
 use serde_json::{json, Value};
 use solver_check::audit::check::{self, Outcome};
 use solver_check::audit::decl::{
-    DeclAppliance, DeclChannel, DeclDraw, Declared, Inverter, Steps, SunUp, Supply,
+    DeclAppliance, DeclChannel, DeclDraw, Declared, Inverter, StartHabit, Steps, SunUp, Supply,
 };
 use solver_check::audit::events::{ChannelStats, Detector, Event};
 use solver_check::contract::{line_name, Wiring, C64};
@@ -108,7 +108,7 @@ pub fn declared(s: &Scenario) -> Declared {
             label: a.label.clone(),
             states: declared_states(a),
             steps: declared_steps(a),
-            starts_per_day: starts_per_day(a),
+            habit: start_habit(a),
         })
         .collect();
     Declared {
@@ -158,9 +158,10 @@ fn inverter(a: &crate::scenario::Appliance) -> Inverter {
     inv
 }
 
-/// How many runs a day the appliance's habit starts, the busier of
-/// weekdays and weekends (a program, or a modulating load's sessions).
-fn starts_per_day(a: &crate::scenario::Appliance) -> Option<f64> {
+/// When the appliance's habit starts it (a program, or a modulating load's
+/// sessions): the busier of weekdays and weekends, and the share of starts
+/// in each local hour over a week (five weekdays, two weekend days).
+fn start_habit(a: &crate::scenario::Appliance) -> Option<StartHabit> {
     let habit = match &a.behaviour {
         Behaviour::Program { habit, .. } => habit,
         Behaviour::Modulating {
@@ -168,7 +169,22 @@ fn starts_per_day(a: &crate::scenario::Appliance) -> Option<f64> {
         } => &s.habit,
         _ => return None,
     };
-    Some(habit.starts_per_day.max(habit.weekend_starts_per_day))
+    let (wd, we) = (
+        5.0 * habit.starts_per_day,
+        2.0 * habit.weekend_starts_per_day,
+    );
+    let mut hour_share = [1.0 / 24.0; 24];
+    if wd + we > 0.0 {
+        for (h, share) in hour_share.iter_mut().enumerate() {
+            let w = |v: &[f64]| v.get(h).copied().unwrap_or(0.0);
+            *share =
+                (wd * w(&habit.hour_weights) + we * w(&habit.weekend_hour_weights)) / (wd + we);
+        }
+    }
+    Some(StartHabit {
+        per_day: habit.starts_per_day.max(habit.weekend_starts_per_day),
+        hour_share,
+    })
 }
 
 /// Each state's draws as the declaration gives them.

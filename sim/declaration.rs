@@ -85,7 +85,7 @@ impl Short {
             states,
             steps: Steps::Jumps(jumps),
             // A short entry gives no habit: how often it runs is not declared.
-            starts_per_day: None,
+            habit: None,
         }
     }
 }

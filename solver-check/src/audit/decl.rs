@@ -137,10 +137,28 @@ pub struct DeclAppliance {
     pub states: Vec<Vec<DeclDraw>>,
     /// How it changes state, as far as steps go.
     pub steps: Steps,
-    /// How many runs a day its declared habit starts (the busier of weekdays
-    /// and weekends), when a habit starts it; None for a thermostat, a cycle
+    /// When its declared habit starts it; None for a thermostat, a cycle
     /// or a short entry, whose use the declaration does not give.
-    pub starts_per_day: Option<f64>,
+    pub habit: Option<StartHabit>,
+}
+
+/// How often, and at which hours, a declared habit starts an appliance.
+#[derive(Clone, Debug, PartialEq)]
+pub struct StartHabit {
+    /// Runs a day, the busier of weekdays and weekends.
+    pub per_day: f64,
+    /// The share of its starts in each local hour (0 to 23), summing to 1.
+    pub hour_share: [f64; 24],
+}
+
+impl StartHabit {
+    /// `per_day` starts a day at any hour alike.
+    pub fn any_hour(per_day: f64) -> StartHabit {
+        StartHabit {
+            per_day,
+            hour_share: [1.0 / 24.0; 24],
+        }
+    }
 }
 
 impl DeclAppliance {
@@ -448,7 +466,7 @@ mod tests {
             label: "wh".into(),
             states: vec![vec![], vec![draw(rated_v)]],
             steps: Steps::Jumps(vec![(0, 1, 1.0, 1.0)]),
-            starts_per_day: None,
+            habit: None,
         };
         let moved = app(Some(240.0)).rewired_on(&sp, |_| Wiring::LineLine(0, 1));
         assert!((moved.states[1][0].s.re - 4500.0).abs() < 1e-9);

@@ -166,7 +166,7 @@ mod tests {
             label: id.into(),
             states: vec![vec![], vec![draw(wiring, p)]],
             steps: Steps::Jumps(vec![(0, 1, 1.0, 1.0), (1, 0, 1.0, 1.0)]),
-            starts_per_day: None,
+            habit: None,
         }
     }
 

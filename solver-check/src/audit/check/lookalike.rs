@@ -4,16 +4,22 @@
 //! on at one power cannot start again while it is on, nor draw twice its
 //! power: two such starts with no stop between, the channels it draws
 //! through rising by twice its step, are two loads (common practice, no
-//! source: a load's power does not exceed its nameplate).
+//! source: a load's power does not exceed its nameplate). Nor does one
+//! appliance run far more often than its declared habit starts it: runs of
+//! a declared size beyond what the habits of the appliances of that size
+//! start are another load's.
 
+use super::finding::dark_steps_in;
 use super::finding::{coarse_doubt, Finding, Kind};
-use super::fit::{Ctx, Pred};
+use super::fit::{dist, dist_delta, poisson_tail, predicted, shape_of, Ctx, Pred};
 use super::hypothesis::{wiring_names, Metering};
+use super::placement::alike_sizes;
 use super::thresholds::Thresholds;
-use super::undeclared::{first, first_local};
-use crate::audit::decl::{DeclAppliance, Declared};
+use super::undeclared::{first, first_local, start_stop_pairs};
+use crate::audit::decl::{DeclAppliance, Declared, Inverter, Jump, StartHabit};
 use crate::audit::events::Event;
 use crate::contract::C64;
+use crate::contract::{line_name, Wiring};
 use serde_json::json;
 
 /// Two steps further apart than this are not taken as one overlap, ms.
@@ -140,7 +146,87 @@ pub(super) struct LookAlikes<'a> {
     pub cxs: &'a [Ctx],
     pub placed: &'a [DeclAppliance],
     pub interval_s: f64,
+    /// Hours of rows.
+    pub hours: f64,
     pub th: &'a Thresholds,
+}
+
+/// A step size a declared appliance makes, as the channels read it.
+struct Size {
+    /// The appliance, among those placed.
+    app: usize,
+    /// Its reading.
+    reading: Vec<Option<C64>>,
+    /// Its real power, W.
+    p_w: f64,
+    /// The connections whose draws make it (a fan running on both sides of
+    /// a heater's jump does not).
+    wiring: String,
+    /// The steps of this size one run makes.
+    per_run: usize,
+}
+
+/// The steps of one size, their starts (ms) and the runs they make at
+/// least.
+struct SizeRuns<'e> {
+    steps: Vec<&'e Event>,
+    on: Vec<i64>,
+    runs: usize,
+}
+
+/// The connections of appliance `a` whose draws change by a fifth of the
+/// largest change or more in `jump` (as `wiring_names` writes them).
+fn jump_wiring(a: &DeclAppliance, (from, to, kt, kf): Jump) -> String {
+    let mut change: Vec<(Wiring, f64)> = Vec::new();
+    let draws = |k: usize, scale: f64| {
+        a.states
+            .get(k)
+            .into_iter()
+            .flatten()
+            .map(move |x| (x.wiring, scale * x.s.re))
+    };
+    for (w, p) in draws(to, kt).chain(draws(from, -kf)) {
+        match change.iter_mut().find(|(x, _)| *x == w) {
+            Some((_, sum)) => *sum += p,
+            None => change.push((w, p)),
+        }
+    }
+    let most = change.iter().map(|(_, p)| p.abs()).fold(0.0, f64::max);
+    let names: Vec<String> = change
+        .iter()
+        .filter(|(_, p)| p.abs() >= 0.2 * most)
+        .map(|(w, _)| w.name())
+        .collect();
+    if names.is_empty() {
+        wiring_names(a)
+    } else {
+        names.join(" + ")
+    }
+}
+
+/// The starts habit `h` makes from `from` to `to` (UTC ms) in the hours
+/// `keep` keeps (each hour judged at its middle), local hours in zone `tz`.
+fn habit_starts(
+    h: &StartHabit,
+    from: i64,
+    to: i64,
+    tz: &jiff::tz::TimeZone,
+    keep: impl Fn(i64) -> bool,
+) -> f64 {
+    const HOUR: i64 = 3_600_000;
+    let mut sum = 0.0;
+    let mut t = from;
+    while t < to {
+        let len = HOUR.min(to - t);
+        let mid = t + len / 2;
+        if keep(mid) {
+            let hour = jiff::Timestamp::from_millisecond(mid)
+                .map_or(0, |x| x.to_zoned(tz.clone()).hour() as usize);
+            sum += h.per_day * h.hour_share[hour.min(23)] * len as f64 / HOUR as f64;
+        }
+        t += len;
+    }
+    sum
 }
 
 impl LookAlikes<'_> {
@@ -152,7 +238,7 @@ impl LookAlikes<'_> {
             .iter()
             .map(|a| Pred::of(self.d, self.m, a))
             .collect();
-        (0..self.placed.len())
+        let mut out: Vec<Finding> = (0..self.placed.len())
             .filter(|&j| {
                 // Two states, off and on: it cannot draw more than on.
                 let a = &self.placed[j];
@@ -163,7 +249,248 @@ impl LookAlikes<'_> {
                 let seen = overlaps(&steps, tail);
                 (!seen.is_empty()).then(|| self.finding(&self.placed[j], &seen))
             })
+            .collect();
+        out.extend(self.beyond_habits());
+        out
+    }
+
+    /// Loads hidden behind declared appliances of their size by how often
+    /// that size switches: the steps of one size (the declared jumps within
+    /// the wide tolerance of each other, on the same channels, [`alike_sizes`])
+    /// make more runs seen whole than the habits of the appliances that make
+    /// it start, beyond a Poisson chance of `coincidence_p` and
+    /// `habit_margin` times over. Sizes an appliance without a habit makes
+    /// (a thermostat, a cycle, a short entry), or a wandering one may make,
+    /// are not bounded. A run is a start and the next stop of its size, as
+    /// for an undeclared load: several loads starting in one row (a
+    /// thermostat's setback ending) and an appliance's step between two of
+    /// its states make steps of a size, not runs of it. Where a PV array's
+    /// changes have the steps' shape, only the dark hours count, steps and
+    /// habits alike: in daylight it changes by any amount.
+    fn beyond_habits(&self) -> Vec<Finding> {
+        let sizes = self.sizes();
+        let readings: Vec<Vec<Option<C64>>> = sizes.iter().map(|s| s.reading.clone()).collect();
+        let group = alike_sizes(&readings);
+        let groups = group.iter().max().map_or(0, |g| g + 1);
+        (0..groups)
+            .filter_map(|g| {
+                let of = |inside: bool| -> Vec<&Size> {
+                    sizes
+                        .iter()
+                        .zip(&group)
+                        .filter(|(_, k)| (**k == g) == inside)
+                        .map(|(s, _)| s)
+                        .collect()
+                };
+                self.beyond_habit(&of(true), &of(false))
+            })
             .collect()
+    }
+
+    /// The step sizes of 500 W or more each placed appliance makes, as the
+    /// channels read them, with how many of each one run makes.
+    fn sizes(&self) -> Vec<Size> {
+        let (d, m) = (self.d, self.m);
+        let mut out = Vec::new();
+        for (app, a) in self.placed.iter().enumerate() {
+            let jumps = d.distinct_jumps(a);
+            let per_run = d.jumps_per_step(a);
+            for ((reading, per_run), (jump, sig)) in
+                predicted(d, m, a).into_iter().zip(per_run).zip(&jumps)
+            {
+                let p_w = sig.iter().map(|c| c.re).sum::<f64>().abs();
+                if p_w >= BIG_W {
+                    let wiring = jump_wiring(a, *jump);
+                    out.push(Size {
+                        app,
+                        reading,
+                        p_w,
+                        wiring,
+                        per_run,
+                    });
+                }
+            }
+        }
+        out
+    }
+
+    /// Whether a wandering appliance may make steps of size `s`: one whose
+    /// changes read on the same channels, as large or larger (within a
+    /// fifth).
+    fn wanders_to(&self, s: &Size) -> bool {
+        let strong = |r: &[Option<C64>]| -> Vec<bool> {
+            r.iter()
+                .map(|c| c.is_some_and(|c| c.abs() >= 0.2 * s.p_w))
+                .collect()
+        };
+        let mine = strong(&s.reading);
+        self.placed
+            .iter()
+            .filter_map(|a| shape_of(self.d, self.m, a))
+            .any(|r| {
+                let peak = r.iter().flatten().map(|c| c.abs()).fold(0.0, f64::max);
+                strong(&r) == mine && peak >= 0.8 * s.p_w
+            })
+    }
+
+    /// The declared PV arrays whose changes, at the size of `s`, read as
+    /// its steps do (within the tolerance steps are fitted by).
+    fn sun_shaped(&self, s: &Size) -> Vec<&Inverter> {
+        let (d, m) = (self.d, self.m);
+        let units = d.supply.kind.units();
+        d.generation
+            .iter()
+            .filter(|g| !g.follows_home)
+            .filter(|g| {
+                let mut split = vec![C64::ZERO; d.supply.lines()];
+                g.wiring
+                    .add_line_split(&units, C64::new(s.p_w, 0.0), &mut split);
+                let r: Vec<C64> = m
+                    .read(d, &split)
+                    .into_iter()
+                    .map(|c| c.unwrap_or(C64::ZERO))
+                    .collect();
+                dist_delta(&r, &s.reading) <= 1.0
+            })
+            .collect()
+    }
+
+    /// The finding for one group of alike sizes (`members`; `others`, the
+    /// other sizes), if its runs go beyond the habits that start it.
+    fn beyond_habit(&self, members: &[&Size], others: &[&Size]) -> Option<Finding> {
+        let first_m = *members.first()?;
+        let mut apps: Vec<usize> = members.iter().map(|s| s.app).collect();
+        apps.sort_unstable();
+        apps.dedup();
+        let habits: Vec<&StartHabit> = apps
+            .iter()
+            .map(|&a| self.placed[a].habit.as_ref())
+            .collect::<Option<_>>()?;
+        if members.iter().any(|s| self.wanders_to(s)) {
+            return None;
+        }
+        let sun = self.sun_shaped(first_m);
+        let dark = |t: i64| sun.iter().all(|g| g.dark_at(t));
+        let seen = self.runs_of_size(members, others, &apps, dark);
+        // The rows' span, from the first step (the stage is not told where
+        // the rows start).
+        let from = self.events.first()?.time_ms;
+        let to = from + (self.hours * 3_600_000.0) as i64;
+        let tz = jiff::tz::TimeZone::get(&self.d.timezone).unwrap_or(jiff::tz::TimeZone::UTC);
+        let expected: f64 = habits
+            .iter()
+            .map(|h| habit_starts(h, from, to, &tz, dark))
+            .sum();
+        let runs = seen.runs;
+        if runs < self.th.overlap_runs
+            || poisson_tail(expected, runs) >= self.th.coincidence_p
+            || (runs as f64) < self.th.habit_margin * expected
+        {
+            return None;
+        }
+        Some(self.habit_finding(first_m, &apps, &seen, expected, !sun.is_empty()))
+    }
+
+    /// The steps of a group of alike sizes (`members`, of appliances
+    /// `apps`) that fit no other size (`others`), at moments `keep` keeps,
+    /// with their starts and the runs they make at least.
+    fn runs_of_size(
+        &self,
+        members: &[&Size],
+        others: &[&Size],
+        apps: &[usize],
+        keep: impl Fn(i64) -> bool,
+    ) -> SizeRuns<'_> {
+        let reading = &members[0].reading;
+        let steps: Vec<&Event> = self
+            .events
+            .iter()
+            .copied()
+            .filter(|e| {
+                members.iter().any(|s| dist(e, &s.reading) <= 1.0)
+                    && !others.iter().any(|s| dist(e, &s.reading) <= 1.0)
+                    && keep(e.time_ms)
+            })
+            .collect();
+        let (mut on, mut off) = (Vec::new(), Vec::new());
+        for e in &steps {
+            if along(&e.delta, reading).is_some_and(|x| x > 0.0) {
+                on.push(e.time_ms);
+            } else {
+                off.push(e.time_ms);
+            }
+        }
+        // A run of an appliance makes at most half its steps of the size,
+        // rounded up, as runs of it.
+        let per_run = apps
+            .iter()
+            .map(|&a| {
+                members
+                    .iter()
+                    .filter(|s| s.app == a)
+                    .map(|s| s.per_run)
+                    .sum::<usize>()
+                    .div_ceil(2)
+            })
+            .max()
+            .unwrap_or(1)
+            .max(1);
+        let runs = start_stop_pairs(&on, &off).len().div_ceil(per_run);
+        SizeRuns { steps, on, runs }
+    }
+
+    /// The finding of a load of the size of `size` (of appliances `apps`)
+    /// whose runs `seen` go beyond the `expected` starts of their habits
+    /// (`dark_only`: counted in the dark hours of a PV array).
+    fn habit_finding(
+        &self,
+        size: &Size,
+        apps: &[usize],
+        seen: &SizeRuns,
+        expected: f64,
+        dark_only: bool,
+    ) -> Finding {
+        let along_size = seen
+            .steps
+            .iter()
+            .filter_map(|e| along(&e.delta, &size.reading))
+            .map(f64::abs)
+            .sum::<f64>()
+            / seen.steps.len().max(1) as f64;
+        let p = size.p_w * along_size;
+        let (w, runs) = (size.wiring.clone(), seen.runs);
+        let names: Vec<&str> = apps.iter().map(|&a| self.placed[a].id.as_str()).collect();
+        let like = names.join(", ");
+        let habits_start = if names.len() == 1 {
+            format!("its declared habit starts {like}")
+        } else {
+            format!("the declared habits of {like} start them")
+        };
+        let hours = if dark_only {
+            format!(
+                "the dark hours of {:.0} h (in daylight the PV changes by any amount)",
+                self.hours
+            )
+        } else {
+            format!("{:.0} h", self.hours)
+        };
+        let times = seen.steps.iter().map(|e| e.time_ms);
+        Finding {
+            kind: Kind::UndeclaredLoad,
+            subject: format!("{p:.0} W on {w}"),
+            message: format!("a load of about {p:.0} W on {w}, the size of {like}: steps of that size make {runs} runs in {hours}, where {habits_start} about {expected:.1} times; the runs beyond are another load's, counted as {like}'s"),
+            confidence: 1.0 - expected / runs.max(1) as f64,
+            evidence: json!({ "runs": runs, "runs_expected": expected, "like": names, "p_w": p, "wiring": w, "energy_share": null, "first_starts": first(&seen.on), "first_starts_local": first_local(&seen.on, &self.d.timezone), "dark_steps": dark_steps_in(self.d, &w, times) }),
+            doubt: self.unread_doubt().or_else(|| coarse_doubt(Kind::UndeclaredLoad, self.interval_s, self.th)),
+        }
+    }
+
+    /// Why steps of a size may come from loads of other sizes, where a
+    /// channel reads nothing (no CT): a line-to-line load through its
+    /// conductor shows as a part of its power on the other lines alone.
+    fn unread_doubt(&self) -> Option<String> {
+        let c = self.m.absent.iter().position(|a| *a)?;
+        Some(format!("channel {} reads nothing, so a line-to-line load through its conductor shows as a part of its power on the other lines, with steps that may have this size", line_name(c)))
     }
 
     /// The steps that fit appliance `j` and no other appliance as placed,
@@ -378,6 +705,174 @@ mod tests {
             let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
             assert_eq!(found, ["1500 W on L1-N"], "{n} runs: {:?}", o.possible);
         }
+    }
+
+    /// A 1.5 kW kettle on L1-N declared to start twice a day (any hour)
+    /// and a load of its size running 10 min every 90 min for 45 h, 30
+    /// runs, never beside it, in two days of rows: 4 starts are expected,
+    /// and 30 runs are far beyond (Poisson tail about 1e-15, seven times
+    /// the starts: a finding, once, not also a cluster of its own). Declared
+    /// to start eight a day (16 expected, 30 within three times that), or
+    /// with no habit (a thermostat's), the kettle accounts for them.
+    #[test]
+    fn runs_far_beyond_the_declared_habit_are_another_loads() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::{on_off, split_phase};
+        use crate::audit::decl::StartHabit;
+        let kettle = |habit: Option<f64>| {
+            let mut a = on_off("kettle", 0, C64::new(1500.0, 0.0));
+            a.habit = habit.map(StartHabit::any_hour);
+            split_phase(vec![a])
+        };
+        let ev = runs_of_1500_w(30, 0.0);
+        let stats = two_days();
+        let o = check(&kettle(Some(2.0)), &ev, &stats, 1.0);
+        let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(found, ["1500 W on L1-N"], "{:?}", o.possible);
+        let e = &o.findings[0].evidence;
+        assert_eq!(e["runs"], 30);
+        let expected = e["runs_expected"].as_f64().unwrap();
+        assert!((expected - 4.0).abs() < 1e-9, "{expected}");
+        for habit in [Some(8.0), None] {
+            let o = check(&kettle(habit), &ev, &stats, 1.0);
+            assert!(o.findings.is_empty(), "{habit:?}: {:?}", o.findings);
+        }
+    }
+
+    /// The same 30 runs where a PV array on L1-N changes by any amount
+    /// while its sun is up (here 06:00 to 18:00 UTC): the runs in daylight
+    /// do not count, nor do the kettle's habitual starts then; those in the
+    /// dark are still far beyond (15 of 30 runs). A PV array across L1-L2
+    /// reads on both lines, not as an L1-N step: every run counts.
+    #[test]
+    fn where_a_pv_array_makes_steps_of_the_size_only_the_dark_hours_count() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::{on_off, split_phase};
+        use crate::audit::decl::{Inverter, StartHabit, SunUp};
+        use crate::contract::Wiring;
+        use std::sync::Arc;
+        let home = |pv: Wiring| {
+            let mut a = on_off("kettle", 0, C64::new(1500.0, 0.0));
+            a.habit = Some(StartHabit::any_hour(2.0));
+            let mut d = split_phase(vec![a]);
+            let mut g = Inverter::new("pv", pv, false);
+            g.sun_up = Some(SunUp(Arc::new(|ms| (6..18).contains(&((ms / H) % 24)))));
+            d.generation.push(g);
+            d
+        };
+        let ev = runs_of_1500_w(30, 0.0);
+        let o = check(
+            &home(Wiring::LineNeutral(0)),
+            &ev,
+            &day_stats(2, 500.0),
+            1.0,
+        );
+        let runs: Vec<u64> = o
+            .findings
+            .iter()
+            .filter_map(|f| f.evidence["runs"].as_u64())
+            .collect();
+        let dark = ev
+            .iter()
+            .filter(|e| e.delta[0].re > 0.0 && !(6..18).contains(&((e.time_ms / H) % 24)))
+            .count() as u64;
+        assert_eq!(runs, [dark], "{:?}", o.findings);
+        let o = check(
+            &home(Wiring::LineLine(0, 1)),
+            &ev,
+            &day_stats(2, 500.0),
+            1.0,
+        );
+        assert_eq!(o.findings[0].evidence["runs"], 30);
+    }
+
+    /// A load beside a declared appliance makes both a cluster and runs
+    /// beyond the appliance's habit: one finding of the two.
+    #[test]
+    fn a_hidden_load_seen_two_ways_is_one_finding() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::{on_off, split_phase};
+        use crate::audit::decl::StartHabit;
+        let mut a = on_off("kettle", 0, C64::new(1500.0, 0.0));
+        a.habit = Some(StartHabit::any_hour(1.0));
+        let d = split_phase(vec![a]);
+        // 1650 W runs: beyond the fit tolerance of 1500 W for some steps
+        // (a cluster), within the wide one (alike sizes) for others.
+        let ev = runs_of_1500_w(30, 150.0);
+        let o = check(&d, &ev, &two_days(), 1.0);
+        let all = crate::audit::check::testkit::listed(&o);
+        assert_eq!(all.len(), 1, "{all:?}");
+    }
+
+    /// The element jump of a range whose fan runs on both sides of it is
+    /// the element's connection alone; a jump that starts the fan too is
+    /// both.
+    #[test]
+    fn a_jump_is_named_by_the_draws_that_change() {
+        use crate::audit::decl::{DeclDraw, Steps};
+        use crate::contract::{Wiring, Zip};
+        let draw = |wiring, p: f64| DeclDraw {
+            wiring,
+            s: C64::new(p, 0.0),
+            zip_p: Zip::POWER,
+            zip_q: Zip::POWER,
+            rated_v: None,
+        };
+        let (ll, ln) = (Wiring::LineLine(0, 1), Wiring::LineNeutral(0));
+        let range = DeclAppliance {
+            id: "range".into(),
+            label: "range".into(),
+            states: vec![
+                vec![],
+                vec![draw(ln, 35.0)],
+                vec![draw(ll, 3000.0), draw(ln, 35.0)],
+                vec![draw(ll, 2100.0)],
+            ],
+            steps: Steps::Jumps(vec![]),
+            habit: None,
+        };
+        assert_eq!(jump_wiring(&range, (1, 2, 1.0, 1.0)), "L1-L2");
+        assert_eq!(jump_wiring(&range, (0, 2, 1.0, 1.0)), "L1-L2");
+        assert_eq!(jump_wiring(&range, (3, 2, 1.0, 1.0)), "L1-L2");
+        let big_fan = DeclAppliance {
+            states: vec![vec![], vec![draw(ll, 3000.0), draw(ln, 900.0)]],
+            ..range
+        };
+        assert_eq!(jump_wiring(&big_fan, (0, 1, 1.0, 1.0)), "L1-L2 + L1-N");
+    }
+
+    /// Two days of 1 s rows on two channels, for the metering checks.
+    fn two_days() -> Vec<crate::audit::events::ChannelStats> {
+        let mut stats = day_stats(2, 500.0);
+        for s in stats.iter_mut() {
+            s.rows *= 2;
+            s.sum_p *= 2.0;
+            s.negative = vec![[0, s.rows]; 2];
+        }
+        stats
+    }
+
+    /// `n` runs of a load of 1500 W (plus `extra_w`) on L1-N, 10 min each,
+    /// one every 90 min, and a 300 W change on L2 between them.
+    fn runs_of_1500_w(n: i64, extra_w: f64) -> Vec<Event> {
+        let w = C64::new(1500.0 + extra_w, 0.0);
+        let mut ev = Vec::new();
+        let step = |t: i64, l1: C64, l2: C64, before: f64| Event {
+            time_ms: t,
+            delta: vec![l1, l2],
+            before: vec![C64::new(before, 0.0), C64::new(200.0, 0.0)],
+            v_before: vec![120.0; 2],
+            v_after: vec![120.0; 2],
+            se: vec![1.0; 2],
+        };
+        for i in 0..n {
+            let t = i * 3 * H / 2;
+            ev.push(step(t, w, C64::ZERO, 200.0));
+            ev.push(step(t + H / 6, -w, C64::ZERO, 200.0 + w.re));
+            let other = C64::new(if i % 2 == 0 { 300.0 } else { -300.0 }, 0.0);
+            ev.push(step(t + H / 2, C64::ZERO, other, 200.0));
+        }
+        ev
     }
 
     /// A 1.5 kW heater on L1-N running 30 min every 3 h, eight times, and

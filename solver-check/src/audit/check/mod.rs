@@ -46,7 +46,7 @@ pub use thresholds::{Cutoff, CutoffError, Thresholds, CUTOFFS};
 use crate::audit::decl::Declared;
 use crate::audit::events::{ChannelStats, Event};
 use crate::contract::line_name;
-use finding::sort_findings;
+use finding::{same_wiring_name, sort_findings};
 use fit::{jumps_seen, METERING_STEP};
 use metering::{
     absent_channels, channel_findings, choose_metering, dispute, doubt_mirror, metering_confidence,
@@ -242,11 +242,41 @@ fn undeclared_loads(
         cxs,
         placed,
         interval_s,
+        hours: window.hours,
         th,
     };
-    let mut findings = stage.findings();
-    findings.extend(lookalikes.findings());
+    let findings = one_per_load(stage.findings(), lookalikes.findings(), th);
     (findings, fit.iter().filter(|x| **x).count())
+}
+
+/// The undeclared loads of the two stages, one finding per load: a load
+/// hidden behind a declared appliance (`hidden`) may show as a cluster of
+/// its own too (its steps that fit no appliance), within `nameplate_band`
+/// of its size on the same connection; of the two, the one the report can
+/// stand on (no doubt, then the higher confidence) is kept.
+fn one_per_load(clusters: Vec<Finding>, hidden: Vec<Finding>, th: &Thresholds) -> Vec<Finding> {
+    let key = |f: &Finding| {
+        (
+            f.evidence["wiring"].as_str().unwrap_or("").to_string(),
+            f.evidence["p_w"].as_f64().unwrap_or(0.0),
+        )
+    };
+    let same = |a: &Finding, b: &Finding| {
+        let ((wa, pa), (wb, pb)) = (key(a), key(b));
+        same_wiring_name(&wa, &wb) && (pa - pb).abs() <= th.nameplate_band * pa.max(pb)
+    };
+    let better = |a: &Finding, b: &Finding| {
+        (a.doubt.is_none(), a.confidence) > (b.doubt.is_none(), b.confidence)
+    };
+    let mut out = clusters;
+    for h in hidden {
+        match out.iter().position(|c| same(c, &h)) {
+            Some(i) if better(&h, &out[i]) => out[i] = h,
+            Some(_) => {}
+            None => out.push(h),
+        }
+    }
+    out
 }
 
 /// The warning when the declaration explains fewer than half of the

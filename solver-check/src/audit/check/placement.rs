@@ -535,7 +535,7 @@ impl Round<'_> {
         found: &str,
         mine: &[usize],
     ) -> Option<String> {
-        let per_day = a.starts_per_day?;
+        let per_day = a.habit.as_ref()?.per_day;
         let sizes = predicted(self.d, self.m, alt);
         let per_run = self.d.jumps_per_step(alt);
         let group = alike_sizes(&sizes);
@@ -903,7 +903,7 @@ impl Round<'_> {
 /// (numbered from 0 in order of first member), since a step between them
 /// may be either's. (Not [`step_groups`], one step at the inputs the
 /// weather gives it.)
-fn alike_sizes(sizes: &[Vec<Option<C64>>]) -> Vec<usize> {
+pub(super) fn alike_sizes(sizes: &[Vec<Option<C64>>]) -> Vec<usize> {
     // One sign for every channel (a jump and its reverse are one size);
     // channels read by neither are passed over, and two readings with no
     // channel in common are not near.
@@ -1066,6 +1066,7 @@ fn several_moves_doubt(findings: &mut [Finding], n_moved: usize, interval_s: f64
 mod tests {
     use super::*;
     use crate::audit::check::testkit::{day_stats, heater_program, on_off, split_phase, H};
+    use crate::audit::decl::StartHabit;
 
     /// The fault-matrix case the rule was made for (10 s): a hair dryer's
     /// half-heat step 0.22 tolerances from its own and 0.81 from a
@@ -1501,7 +1502,7 @@ mod tests {
         use crate::audit::check::testkit::H;
         use crate::audit::events::{ChannelStats, Event};
         let mut dishwasher = on_off("dishwasher", 0, C64::new(1900.0, 0.0));
-        dishwasher.starts_per_day = Some(1.0);
+        dishwasher.habit = Some(StartHabit::any_hour(1.0));
         let d = split_phase(vec![dishwasher]);
         let runs = |n: i64| -> Vec<Event> {
             (0..n)
@@ -1532,7 +1533,7 @@ mod tests {
         // (forty over all six jumps); ten where two are expected is beyond
         // the habit, seven would not be (Poisson tails 5e-5 and 4.5e-3).
         let mut program = heater_program(0, 65.0, 1100.0, 1, 2);
-        program.starts_per_day = Some(1.0);
+        program.habit = Some(StartHabit::any_hour(1.0));
         let d = split_phase(vec![program]);
         let heater = |n: i64| -> Vec<Event> {
             (0..n)

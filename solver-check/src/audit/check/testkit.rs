@@ -29,7 +29,7 @@ pub(super) fn on_off_wired(id: &str, wiring: Wiring, s: C64) -> DeclAppliance {
             }],
         ],
         steps: Steps::Jumps(vec![(0, 1, 1.0, 1.0), (1, 0, 1.0, 1.0)]),
-        starts_per_day: None,
+        habit: None,
     }
 }
 
@@ -111,4 +111,13 @@ pub(super) fn day_stats(lines: usize, mean_w: f64) -> Vec<crate::audit::events::
         };
         lines
     ]
+}
+
+/// The subjects of an outcome's findings, then its possible ones.
+pub(super) fn listed(o: &super::Outcome) -> Vec<&str> {
+    o.findings
+        .iter()
+        .chain(&o.possible)
+        .map(|f| f.subject.as_str())
+        .collect()
 }

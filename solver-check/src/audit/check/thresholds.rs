@@ -153,6 +153,12 @@ pub struct Thresholds {
     /// conductors otherwise, explains as many steps as is not settled by
     /// the steps.
     pub fits_as_well: f64,
+    /// How many times the runs the declared habits of the appliances of one
+    /// step size start must the runs of that size be (besides beyond the
+    /// Poisson chance `coincidence_p`) for a load hidden among them: a
+    /// habit is an assumption, and a household may use an appliance twice
+    /// as often as declared.
+    pub habit_margin: f64,
 }
 
 impl Thresholds {
@@ -179,6 +185,7 @@ impl Thresholds {
         nameplate_band: 0.2,
         dark_steps: 2,
         fits_as_well: 0.95,
+        habit_margin: 3.0,
     };
 }
 
@@ -209,7 +216,7 @@ impl Cutoff {
 }
 
 /// Every cut-off of [`Thresholds`], in the order of its fields.
-pub const CUTOFFS: [Cutoff; 21] = [
+pub const CUTOFFS: [Cutoff; 22] = [
     Cutoff {
         name: "possible",
         meaning: "confidence below which a finding is listed apart as possible",
@@ -377,6 +384,14 @@ pub const CUTOFFS: [Cutoff; 21] = [
         count: false,
         get: |t| t.fits_as_well,
         set: |t, v| t.fits_as_well = v,
+    },
+    Cutoff {
+        name: "habit_margin",
+        meaning: "how many times the runs the declared habits of the appliances of one step size start the runs of that size must be (and beyond coincidence_p) to make a load of that size hidden among them",
+        range: (1.0, 1000.0),
+        count: false,
+        get: |t| t.habit_margin,
+        set: |t, v| t.habit_margin = v,
     },
 ];
 

@@ -528,7 +528,7 @@ impl UndeclaredStage<'_> {
     /// of about its size that started forty times in two days. False for an appliance whose habit the declaration
     /// does not give (a thermostat, a cycle, a short entry).
     fn beyond_habit(&self, c: &Cluster, a: &DeclAppliance) -> bool {
-        let Some(per_day) = a.starts_per_day else {
+        let Some(per_day) = a.habit.as_ref().map(|h| h.per_day) else {
             return false;
         };
         let times = self.events.iter().map(|e| e.time_ms);
@@ -766,6 +766,7 @@ mod tests {
     use crate::audit::check::fit::jumps_seen;
     use crate::audit::check::hypothesis::declared_metering;
     use crate::audit::check::testkit::{day_stats, on_off, split_phase, H};
+    use crate::audit::decl::StartHabit;
 
     /// The stage with no steps at all, 10 kWh read, at 1 s: for the
     /// doubts weighed on one cluster and the appliances' checks alone.
@@ -951,12 +952,7 @@ mod tests {
             s.rows = 6_000;
         }
         let o = check_with(&d, &events, &stats, 60.0, &Thresholds::STANDARD);
-        let all: Vec<&str> = o
-            .findings
-            .iter()
-            .chain(&o.possible)
-            .map(|f| f.subject.as_str())
-            .collect();
+        let all = crate::audit::check::testkit::listed(&o);
         assert!(all.contains(&"2000 W on L1-N"), "{all:?}");
         assert!(!all.contains(&"3500 W on L1-N"), "{all:?}");
     }
@@ -1406,7 +1402,7 @@ mod tests {
         };
         let microwave = |habit: Option<f64>| {
             let mut a = on_off("microwave", 0, C64::new(1300.0, 0.0));
-            a.starts_per_day = habit;
+            a.habit = habit.map(StartHabit::any_hour);
             split_phase(vec![a])
         };
         let o = check(&microwave(Some(2.0)), &runs(30), &day_stats(2, 500.0), 10.0);
@@ -1438,7 +1434,7 @@ mod tests {
         use crate::audit::check::check;
         use crate::audit::check::testkit::heater_program;
         let mut program = heater_program(0, 65.0, 1300.0, 2, 1);
-        program.starts_per_day = Some(2.0);
+        program.habit = Some(StartHabit::any_hour(2.0));
         let events: Vec<Event> = (0..36)
             .flat_map(|i| {
                 let t = i * 3 * H / 2;
