@@ -662,6 +662,16 @@ impl Round<'_> {
         }
     }
 
+    /// Why a move of appliance `j` to `found` in a partial declaration may
+    /// be a load it does not list: steps where declared fit `j` and
+    /// another appliance alike (none fit `j` alone), so it may have run
+    /// there unseen, its steps taken for the other's.
+    fn shared_doubt(&self, j: usize, found: &str) -> Option<String> {
+        let (_, all, who, _) = self.excl(j, &self.sigs[j]);
+        let other = who.first().map(|&o| self.placed[o].id.as_str())?;
+        Some(format!("the declaration is partial, and {} steps where declared fit {} and {other} alike, so it may have run there: a load the declaration does not list, of its size on {found}, would look the same", all.len(), self.placed[j].id))
+    }
+
     /// How many of `steps` fit appliance `b` as wired.
     fn fitting(&self, b: &DeclAppliance, steps: &[usize]) -> usize {
         let sg = Pred::of(self.d, self.m, b);
@@ -710,6 +720,9 @@ impl Round<'_> {
             // A partial declaration or a one-power entry leaves steps the
             // declaration does not give: a move may then be two channels
             // exchanged that the metering checks had too little to find.
+            if d.partial && f.doubt.is_none() {
+                f.doubt = self.shared_doubt(j, &name_a);
+            }
             if (d.partial || one_power(a)) && f.doubt.is_none() {
                 f.doubt = self.exchange_doubt(j, a, &alt);
             }
@@ -1412,6 +1425,57 @@ mod tests {
         let o = check(&d, &events, &stats, 1.0);
         let subjects: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(subjects, ["kettle"], "{:?}", o.possible);
+    }
+
+    /// Placement stage, a partial declaration: a 1.5 kW kettle declared on
+    /// L1-N switches eight times on L2. Where its size shows on L1 as well,
+    /// in steps a program's 1.5 kW heater declared there fits alike, the
+    /// kettle may have run where declared: the steps on L2-N may be a load
+    /// the declaration does not list, and the move is only possible.
+    #[test]
+    fn a_partial_declarations_move_is_possible_where_its_size_shows_shared() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::{day_stats, heater_program, H};
+        let mut d = split_phase(vec![
+            on_off("kettle", 0, C64::new(1500.0, 0.0)),
+            heater_program(0, 65.0, 1500.0, 1, 1),
+        ]);
+        d.partial = true;
+        let mut events: Vec<_> = (0..4)
+            .flat_map(|i| {
+                [
+                    l2_step(i * 5 * H, 1500.0),
+                    l2_step(i * 5 * H + H / 10, -1500.0),
+                ]
+            })
+            .collect();
+        let o = check(&d, &events, &day_stats(2, 200.0), 1.0);
+        let subjects: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(subjects, ["kettle"], "{:?}", o.possible);
+        let l1 = |t: i64, w: f64| {
+            let mut e = l2_step(t, 0.0);
+            e.delta = vec![C64::new(w, 0.0), C64::ZERO];
+            e
+        };
+        events.extend((0..3).flat_map(|i| {
+            [
+                l1(i * 5 * H + 2 * H, 1500.0),
+                l1(i * 5 * H + 2 * H + H / 10, -1500.0),
+            ]
+        }));
+        events.sort_by_key(|e| e.time_ms);
+        let o = check(&d, &events, &day_stats(2, 200.0), 1.0);
+        assert!(o.findings.is_empty(), "{:?}", o.findings);
+        let kettle = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
+        assert!(
+            kettle
+                .doubt
+                .as_ref()
+                .unwrap()
+                .contains("may have run there"),
+            "{:?}",
+            kettle.doubt
+        );
     }
 
     /// Of moves claiming mostly the same steps, the one showing more of its
