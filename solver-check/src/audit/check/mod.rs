@@ -161,18 +161,13 @@ pub fn check_with(
     let m = mc.hyps[chosen].0.clone();
     let (ch_apps, ch_ex) = (mc.scored[chosen].apps, mc.scored[chosen].ex);
     if chosen != decl_i {
-        let conf = metering_confidence(&mc.scored[decl_i], &mc.scored[chosen], replaced, th);
-        let ev = found_evidence(&mc, chosen, big.len(), replaced, th);
-        let first = findings.len();
-        metering_findings(d, &mc.decl_m, &m, conf, ev, &mut findings);
-        doubt_mirror(
+        findings.extend(found_metering(
             d,
             &mc,
-            chosen,
+            (chosen, replaced),
             (&big, interval_s),
             th,
-            &mut findings[first..],
-        );
+        ));
         silent_channel_accounts(&m, &mut findings, &mut notes);
     }
     findings.extend(moves);
@@ -249,6 +244,47 @@ fn undeclared_loads(
     (findings, fit.iter().filter(|x| **x).count())
 }
 
+/// The findings of metering `chosen` (that replaced `replaced` appliance
+/// moves), not the declared one, judged on the steps `big` taken
+/// `interval_s` apart: each mistake it makes, doubted where its mirror
+/// image fits as well or where it makes too many at once.
+fn found_metering(
+    d: &Declared,
+    mc: &MeteringChoice,
+    (chosen, replaced): (usize, usize),
+    (big, interval_s): (&[&Event], f64),
+    th: &Thresholds,
+) -> Vec<Finding> {
+    let conf = metering_confidence(&mc.scored[mc.decl_i], &mc.scored[chosen], replaced, th);
+    let ev = found_evidence(mc, chosen, big.len(), replaced, th);
+    let mut found = Vec::new();
+    metering_findings(d, &mc.decl_m, &mc.hyps[chosen].0, conf, ev, &mut found);
+    doubt_mirror(d, mc, chosen, (big, interval_s), th, &mut found);
+    doubt_many_faults(&mut found, th);
+    found
+}
+
+/// A metering found that differs from the declared one in more than
+/// `metering_faults` mistakes at once (`found`, its findings) is only
+/// possible: installers' mistakes come one or two at a time, and loads the
+/// declaration does not describe (not declared, or declared elsewhere) may
+/// fit so far-fetched an account as well (in the outside validation's
+/// development sets every metering found with three or more mistakes was
+/// wrong).
+fn doubt_many_faults(found: &mut [Finding], th: &Thresholds) {
+    if found.len() <= th.metering_faults {
+        return;
+    }
+    let what: Vec<String> = found
+        .iter()
+        .map(|f| format!("{} {}", f.kind.name(), f.subject))
+        .collect();
+    let why = format!("the metering found differs from the declared one in {} mistakes at once ({}); mistakes come one or two at a time, and loads the declaration does not describe may fit so many changes as well", found.len(), what.join(", "));
+    for f in found {
+        f.doubt.get_or_insert_with(|| why.clone());
+    }
+}
+
 /// The undeclared loads of the two stages, one finding per load: a load
 /// hidden behind a declared appliance (`hidden`) may show as a cluster of
 /// its own too (its steps that fit no appliance), within `nameplate_band`
@@ -290,6 +326,29 @@ mod tests {
     use super::*;
     use crate::audit::check::testkit::{on_off, split_phase, H};
     use crate::contract::C64;
+
+    /// Two metering mistakes at once are findings; three (three CTs
+    /// reversed) are possible only, each saying why.
+    #[test]
+    fn three_metering_mistakes_at_once_are_only_possible() {
+        let reversed = |c: &str| Finding {
+            kind: finding::Kind::ReversedCt,
+            subject: c.into(),
+            message: String::new(),
+            confidence: 0.99,
+            evidence: json!({}),
+            doubt: None,
+        };
+        let mut two = vec![reversed("l1"), reversed("l2")];
+        doubt_many_faults(&mut two, &Thresholds::STANDARD);
+        assert!(two.iter().all(|f| f.doubt.is_none()));
+        let mut three = vec![reversed("l1"), reversed("l2"), reversed("l3")];
+        doubt_many_faults(&mut three, &Thresholds::STANDARD);
+        assert!(three.iter().all(|f| f
+            .doubt
+            .as_ref()
+            .is_some_and(|d| d.contains("3 mistakes at once"))));
+    }
 
     /// A left-out 1100 W load on L1-N whose stops share their interval with
     /// a 140 W change on L2 is still one load; a declared 600 W pump on L2-N

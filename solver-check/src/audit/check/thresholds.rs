@@ -159,6 +159,11 @@ pub struct Thresholds {
     /// habit is an assumption, and a household may use an appliance twice
     /// as often as declared.
     pub habit_margin: f64,
+    /// The most metering mistakes a metering found may make at once and be
+    /// findings: installers' mistakes come one or two at a time, so an
+    /// account of more fits data the declaration does not describe (loads
+    /// not declared, or declared elsewhere) as well.
+    pub metering_faults: usize,
 }
 
 impl Thresholds {
@@ -186,6 +191,7 @@ impl Thresholds {
         dark_steps: 2,
         fits_as_well: 0.95,
         habit_margin: 3.0,
+        metering_faults: 2,
     };
 }
 
@@ -216,7 +222,7 @@ impl Cutoff {
 }
 
 /// Every cut-off of [`Thresholds`], in the order of its fields.
-pub const CUTOFFS: [Cutoff; 22] = [
+pub const CUTOFFS: [Cutoff; 23] = [
     Cutoff {
         name: "possible",
         meaning: "confidence below which a finding is listed apart as possible",
@@ -392,6 +398,14 @@ pub const CUTOFFS: [Cutoff; 22] = [
         count: false,
         get: |t| t.habit_margin,
         set: |t, v| t.habit_margin = v,
+    },
+    Cutoff {
+        name: "metering_faults",
+        meaning: "the most metering mistakes (a CT reversed, on another conductor, missing; CTs or channels exchanged) a metering found may make at once and be findings; more are listed as possible",
+        range: (0.0, 1e6),
+        count: true,
+        get: |t| t.metering_faults as f64,
+        set: |t, v| t.metering_faults = v as usize,
     },
 ];
 
