@@ -750,7 +750,7 @@ impl Round<'_> {
             ck.verdict = Verdict::AsDeclared;
             ck.reason =
                 format!("{n_d} steps fit it as declared, at most {n_a} on any other connection");
-        } else if all_a.len() >= 3 {
+        } else if all_a.len() >= 3 && !who.is_empty() {
             let mut who: Vec<String> = who.iter().map(|&o| self.placed[o].id.clone()).collect();
             who.sort();
             who.dedup();
@@ -1476,6 +1476,24 @@ mod tests {
             "{:?}",
             kettle.doubt
         );
+    }
+
+    /// Three steps of a kettle's size on L2, fitting no other appliance,
+    /// are too few to move it (four are needed), and the reason says so
+    /// rather than naming rivals it does not have.
+    #[test]
+    fn too_few_steps_elsewhere_are_too_few_to_decide() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::{day_stats, H};
+        let d = split_phase(vec![on_off("kettle", 0, C64::new(1500.0, 0.0))]);
+        let events = vec![
+            l2_step(0, 1500.0),
+            l2_step(H / 10, -1500.0),
+            l2_step(H, 1500.0),
+        ];
+        let o = check(&d, &events, &day_stats(2, 200.0), 1.0);
+        let reason = &o.appliances[0].reason;
+        assert!(reason.contains("too few to decide"), "{reason}");
     }
 
     /// Of moves claiming mostly the same steps, the one showing more of its
