@@ -279,7 +279,7 @@ fn doubt_many_faults(found: &mut [Finding], th: &Thresholds) {
         .iter()
         .map(|f| format!("{} {}", f.kind.name(), f.subject))
         .collect();
-    let why = format!("the metering found differs from the declared one in {} mistakes at once ({}); mistakes come one or two at a time, and loads the declaration does not describe may fit so many changes as well", found.len(), what.join(", "));
+    let why = format!("the metering found differs from the declared one in {} mistakes at once ({}); more than {} at once are rare, and loads the declaration does not describe may fit so many changes as well", found.len(), what.join(", "), th.metering_faults);
     for f in found {
         f.doubt.get_or_insert_with(|| why.clone());
     }
@@ -289,7 +289,12 @@ fn doubt_many_faults(found: &mut [Finding], th: &Thresholds) {
 /// hidden behind a declared appliance (`hidden`) may show as a cluster of
 /// its own too (its steps that fit no appliance), within `nameplate_band`
 /// of its size on the same connection; of the two, the one the report can
-/// stand on (no doubt, then the higher confidence) is kept.
+/// stand on (no doubt, then the higher confidence) is kept: its evidence (a
+/// start while the appliance is on, runs beyond its habit) answers the
+/// cluster's doubt that the load is that appliance drawing otherwise.
+/// (Carrying the other's doubt over cost the development sets 16 mistakes
+/// found for 3 false findings fewer; a cluster doubt naming a declared
+/// appliance misplaced is not weighed again.)
 fn one_per_load(clusters: Vec<Finding>, hidden: Vec<Finding>, th: &Thresholds) -> Vec<Finding> {
     let key = |f: &Finding| {
         (
@@ -326,6 +331,38 @@ mod tests {
     use super::*;
     use crate::audit::check::testkit::{on_off, split_phase, H};
     use crate::contract::C64;
+
+    /// One load seen by two stages is one finding: of a cluster only
+    /// possible and a finding of its size on its connection (within a
+    /// fifth), the finding; a finding of another size stays beside it.
+    #[test]
+    fn a_load_two_stages_see_is_one_finding() {
+        let load = |p_w: f64, doubt: Option<&str>| Finding {
+            kind: finding::Kind::UndeclaredLoad,
+            subject: format!("{p_w:.0} W on L1-N"),
+            message: String::new(),
+            confidence: 0.9,
+            evidence: json!({ "p_w": p_w, "wiring": "L1-N" }),
+            doubt: doubt.map(String::from),
+        };
+        let th = &Thresholds::STANDARD;
+        let kept = one_per_load(
+            vec![load(2100.0, Some("smaller"))],
+            vec![load(1950.0, None)],
+            th,
+        );
+        let subjects: Vec<&str> = kept.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(subjects, ["1950 W on L1-N"]);
+        let kept = one_per_load(
+            vec![load(2100.0, None)],
+            vec![load(1950.0, Some("few"))],
+            th,
+        );
+        let subjects: Vec<&str> = kept.iter().map(|f| f.subject.as_str()).collect();
+        assert_eq!(subjects, ["2100 W on L1-N"]);
+        let kept = one_per_load(vec![load(3000.0, None)], vec![load(1950.0, None)], th);
+        assert_eq!(kept.len(), 2);
+    }
 
     /// Two metering mistakes at once are findings; three (three CTs
     /// reversed) are possible only, each saying why.

@@ -663,13 +663,20 @@ impl Round<'_> {
     }
 
     /// Why a move of appliance `j` to `found` in a partial declaration may
-    /// be a load it does not list: steps where declared fit `j` and
-    /// another appliance alike (none fit `j` alone), so it may have run
-    /// there unseen, its steps taken for the other's.
+    /// be a load it does not list: `seen_where_declared` steps or more
+    /// where declared fit `j` and another appliance alike, so it may have
+    /// run there unseen, its steps taken for the other's (the one sharing
+    /// the most named).
     fn shared_doubt(&self, j: usize, found: &str) -> Option<String> {
-        let (_, all, who, _) = self.excl(j, &self.sigs[j]);
-        let other = who.first().map(|&o| self.placed[o].id.as_str())?;
-        Some(format!("the declaration is partial, and {} steps where declared fit {} and {other} alike, so it may have run there: a load the declaration does not list, of its size on {found}, would look the same", all.len(), self.placed[j].id))
+        let (_, _, who, _) = self.excl(j, &self.sigs[j]);
+        if who.len() < self.th.seen_where_declared {
+            return None;
+        }
+        let most = who
+            .iter()
+            .max_by_key(|&&o| who.iter().filter(|&&x| x == o).count())
+            .map(|&o| self.placed[o].id.as_str())?;
+        Some(format!("the declaration is partial, and {} steps where declared fit {} and {most} alike, so it may have run there: a load the declaration does not list, of its size on {found}, would look the same", who.len(), self.placed[j].id))
     }
 
     /// How many of `steps` fit appliance `b` as wired.
@@ -720,11 +727,11 @@ impl Round<'_> {
             // A partial declaration or a one-power entry leaves steps the
             // declaration does not give: a move may then be two channels
             // exchanged that the metering checks had too little to find.
-            if d.partial && f.doubt.is_none() {
-                f.doubt = self.shared_doubt(j, &name_a);
-            }
             if (d.partial || one_power(a)) && f.doubt.is_none() {
                 f.doubt = self.exchange_doubt(j, a, &alt);
+            }
+            if d.partial && f.doubt.is_none() {
+                f.doubt = self.shared_doubt(j, &name_a);
             }
             if one_power(a) && f.doubt.is_none() {
                 let line_to_line = f.kind == Kind::WrongLine;

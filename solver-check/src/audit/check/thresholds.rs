@@ -361,7 +361,7 @@ pub const CUTOFFS: [Cutoff; 23] = [
     },
     Cutoff {
         name: "overlap_runs",
-        meaning: "times a step of a declared one-power appliance's size comes while it is already on (twice its power drawn) that make a load of its size beside it a finding (at a coarse interval, coarse_runs times); runs a smaller load needs both within its runs and apart from them to be another load",
+        meaning: "times a step of a declared one-power appliance's size comes while it is already on (twice its power drawn) that make a load of its size beside it a finding (at a coarse interval, coarse_runs times); runs a smaller load needs both within its runs and apart from them to be another load; runs beyond the declared habits a load hidden among appliances of its size needs at least",
         range: (0.0, 1e6),
         count: true,
         get: |t| t.overlap_runs as f64,
@@ -401,7 +401,7 @@ pub const CUTOFFS: [Cutoff; 23] = [
     },
     Cutoff {
         name: "metering_faults",
-        meaning: "the most metering mistakes (a CT reversed, on another conductor, missing; CTs or channels exchanged) a metering found may make at once and be findings; more are listed as possible",
+        meaning: "the most metering mistakes (a CT reversed or on another conductor, CTs or channels exchanged) a metering found may make at once and be findings; more are listed as possible",
         range: (0.0, 1e6),
         count: true,
         get: |t| t.metering_faults as f64,
