@@ -834,6 +834,35 @@ mod tests {
         assert_eq!(all.len(), 1, "{all:?}");
     }
 
+    /// The same 30 runs where channel l2 reads nothing (no CT): a
+    /// line-to-line load shows as part of its power on L1 alone, so the
+    /// load is only possible, saying why.
+    #[test]
+    fn with_a_channel_unread_a_hidden_load_is_only_possible() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::{on_off, split_phase};
+        use crate::audit::decl::StartHabit;
+        let mut a = on_off("kettle", 0, C64::new(1500.0, 0.0));
+        a.habit = Some(StartHabit::any_hour(2.0));
+        let d = split_phase(vec![a]);
+        let mut stats = two_days();
+        stats[1].null = stats[1].rows;
+        stats[1].sum_p = 0.0;
+        let ev: Vec<Event> = runs_of_1500_w(30, 0.0)
+            .into_iter()
+            .filter(|e| e.delta[1].re == 0.0)
+            .collect();
+        let o = check(&d, &ev, &stats, 1.0);
+        let hidden: Vec<&Finding> = o
+            .possible
+            .iter()
+            .filter(|f| f.evidence["runs"].as_u64().is_some())
+            .collect();
+        assert_eq!(hidden.len(), 1, "{:?} {:?}", o.findings, o.possible);
+        let why = hidden[0].doubt.as_deref().unwrap_or("");
+        assert!(why.contains("channel l2 reads nothing"), "{why}");
+    }
+
     /// A kettle and a dishwasher whose 1.5 kW heater goes on and off twice
     /// a wash, on L1-N, each declared to start once a day: steps of 1.5 kW
     /// are theirs together, a wash making up to two runs of that size. 30
