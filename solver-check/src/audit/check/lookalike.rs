@@ -30,6 +30,10 @@ const OVERLAP_WITHIN_MS: i64 = 12 * 3_600_000;
 /// loads' small changes between them.
 const TWICE: f64 = 1.6;
 
+/// The longest span of steps (ms) the habits are weighed over, hour by
+/// hour: twenty years.
+const MAX_SPAN_MS: i64 = 20 * 366 * 86_400_000;
+
 /// Appliances of smaller steps are not weighed: a look-alike is a
 /// recurring load of 500 W or more, as for the other undeclared loads.
 const BIG_W: f64 = 500.0;
@@ -381,6 +385,11 @@ impl LookAlikes<'_> {
         // missing in between).
         let from = self.events.first()?.time_ms;
         let to = (from + (self.hours * 3_600_000.0) as i64).max(self.events.last()?.time_ms);
+        // No export spans decades: times that far apart are not weighed
+        // hour by hour.
+        if to - from > MAX_SPAN_MS {
+            return None;
+        }
         let tz = jiff::tz::TimeZone::get(&self.d.timezone).unwrap_or(jiff::tz::TimeZone::UTC);
         let expected: f64 = habits
             .iter()
