@@ -872,6 +872,39 @@ mod tests {
         assert!(why.contains("channel l2 reads nothing"), "{why}");
     }
 
+    /// The same 30 runs beside a declared charger on L1-N whose power
+    /// wanders up to 1.9 kW: its changes may be of the kettle's size, so
+    /// the size is not bounded by the kettle's habit; a charger on L2-N
+    /// changes nothing on L1 and bounds nothing.
+    #[test]
+    fn a_wandering_appliance_may_make_any_size_on_its_channels() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::{on_off, split_phase};
+        use crate::audit::decl::{StartHabit, Steps};
+        let home = |line: usize| {
+            let mut kettle = on_off("kettle", 0, C64::new(1500.0, 0.0));
+            kettle.habit = Some(StartHabit::any_hour(2.0));
+            let mut charger = on_off("charger", line, C64::new(1900.0, 0.0));
+            charger.steps = Steps::Wanders {
+                state: 1,
+                max: 1.0,
+                jumps: vec![],
+            };
+            split_phase(vec![kettle, charger])
+        };
+        let ev = runs_of_1500_w(30, 0.0);
+        let hidden = |line: usize| {
+            let o = check(&home(line), &ev, &two_days(), 1.0);
+            o.findings
+                .iter()
+                .chain(&o.possible)
+                .filter(|f| f.evidence["runs"].as_u64().is_some())
+                .count()
+        };
+        assert_eq!(hidden(0), 0);
+        assert_eq!(hidden(1), 1);
+    }
+
     /// A kettle and a dishwasher whose 1.5 kW heater goes on and off twice
     /// a wash, on L1-N, each declared to start once a day: steps of 1.5 kW
     /// are theirs together, a wash making up to two runs of that size. 30
