@@ -10,7 +10,7 @@
 //! start are another load's.
 
 use super::finding::{coarse_doubt, dark_steps_in, Finding, Kind};
-use super::fit::{dist, dist_delta, poisson_tail, predicted, shape_of, Ctx, Pred};
+use super::fit::{dist, dist_delta, poisson_tail, shape_of, Ctx, Pred};
 use super::hypothesis::{wiring_names, Metering};
 use super::placement::alike_sizes;
 use super::thresholds::Thresholds;
@@ -296,25 +296,20 @@ impl LookAlikes<'_> {
         let (d, m) = (self.d, self.m);
         let mut out = Vec::new();
         for (app, a) in self.placed.iter().enumerate() {
-            let jumps = d.distinct_jumps(a);
             let per_run = d.jumps_per_step(a);
-            for ((reading, per_run), (jump, sig)) in
-                predicted(d, m, a).into_iter().zip(per_run).zip(&jumps)
-            {
+            for ((jump, sig), per_run) in d.distinct_jumps(a).into_iter().zip(per_run) {
                 // Each size as a start (its real power rising), whichever
                 // way its first jump goes.
                 let total = sig.iter().map(|c| c.re).sum::<f64>();
                 let sign = if total < 0.0 { -1.0 } else { 1.0 };
-                let reading: Vec<Option<C64>> =
-                    reading.iter().map(|c| c.map(|c| c.scale(sign))).collect();
+                let start: Vec<C64> = sig.iter().map(|c| c.scale(sign)).collect();
                 let p_w = total.abs();
                 if p_w >= BIG_W {
-                    let wiring = jump_wiring(a, *jump);
                     out.push(Size {
                         app,
-                        reading,
+                        reading: m.read(d, &start),
                         p_w,
-                        wiring,
+                        wiring: jump_wiring(a, jump),
                         per_run,
                     });
                 }

@@ -1448,28 +1448,11 @@ mod tests {
             heater_program(0, 65.0, 1500.0, 1, 1),
         ]);
         d.partial = true;
-        let mut events: Vec<_> = (0..4)
-            .flat_map(|i| {
-                [
-                    l2_step(i * 5 * H, 1500.0),
-                    l2_step(i * 5 * H + H / 10, -1500.0),
-                ]
-            })
-            .collect();
+        let mut events = runs_on(2, 1, 1500.0, 4, 0);
         let o = check(&d, &events, &day_stats(2, 200.0), 1.0);
         let subjects: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(subjects, ["kettle"], "{:?}", o.possible);
-        let l1 = |t: i64, w: f64| {
-            let mut e = l2_step(t, 0.0);
-            e.delta = vec![C64::new(w, 0.0), C64::ZERO];
-            e
-        };
-        events.extend((0..3).flat_map(|i| {
-            [
-                l1(i * 5 * H + 2 * H, 1500.0),
-                l1(i * 5 * H + 2 * H + H / 10, -1500.0),
-            ]
-        }));
+        events.extend(runs_on(2, 0, 1500.0, 3, H / 2));
         events.sort_by_key(|e| e.time_ms);
         let o = check(&d, &events, &day_stats(2, 200.0), 1.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
