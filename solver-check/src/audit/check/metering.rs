@@ -240,11 +240,13 @@ pub(super) fn on_off_hours(
 /// washer an hour or two, a fridge's compressor under half the time;
 /// common practice, no source), so the reading whose appliances are off
 /// at least twice as long as on is the right way round, given six such
-/// times or more (three runs). None when neither is; when `chosen` has
-/// two channels read one conductor (the appliances of the conductor no
-/// CT reads are not seen, and steps of others pass for theirs); and at a
-/// coarse interval (`interval_s`), where a battery's answer shares the row
-/// with the step it answers and the steps are no appliance's alone.
+/// times or more (three runs). None when neither is, and at a coarse
+/// interval (`interval_s`), where a battery's answer shares the row with
+/// the step it answers and the steps are no appliance's alone. Where
+/// `chosen` has two channels read one conductor, the steps of the
+/// conductor read may pass for the other's appliances of their size, but
+/// read the way round their times on and off say ([`orient`] then
+/// renames).
 pub(super) fn orientation(
     d: &Declared,
     mc: &MeteringChoice,
@@ -258,13 +260,6 @@ pub(super) fn orientation(
         return None;
     }
     let m = &mc.hyps[chosen].0;
-    let read: Vec<usize> = (0..m.map.len())
-        .filter(|&c| !m.absent[c])
-        .map(|c| m.map[c].src)
-        .collect();
-    if (1..read.len()).any(|k| read[..k].contains(&read[k])) {
-        return None;
-    }
     let (on, off, n) = on_off_hours(d, m, big, th.decide_w);
     if n < 6 {
         None
@@ -281,7 +276,11 @@ pub(super) fn orientation(
 /// turned the way round the appliances' times on and off read it
 /// ([`orientation`]) where a battery lets its mirror image fit as well
 /// ([`mirror_of`]). The declared metering is not turned so: it stands
-/// by the rules that chose it.
+/// by the rules that chose it. A mirror taken is renamed as simply as the
+/// steps allow ([`simplest_renaming`]): with two CTs on one conductor, the
+/// readings of both CTs on the other conductor, both reversed (three
+/// changes), are those of the one CT moved (one change), the conductors
+/// renamed, save for which 120 V appliances they show.
 pub(super) fn orient(
     d: &Declared,
     mc: &MeteringChoice,
@@ -292,9 +291,12 @@ pub(super) fn orient(
     if mc.chosen == mc.decl_i {
         return mc.chosen;
     }
-    mirror_of(d, mc, mc.chosen, th)
+    match mirror_of(d, mc, mc.chosen, th)
         .and_then(|mirror| orientation(d, mc, mc.chosen, mirror, big, interval_s, th))
-        .unwrap_or(mc.chosen)
+    {
+        Some(o) if o != mc.chosen => simplest_renaming(d, &mc.hyps, &mc.scored, o, big, th),
+        o => o.unwrap_or(mc.chosen),
+    }
 }
 
 /// Whether metering `chosen` is settled so that a home battery's answers
@@ -1703,6 +1705,47 @@ mod tests {
         assert!(o.findings.is_empty(), "{:?}", o.findings);
         let doubt = o.possible[0].doubt.as_deref().unwrap_or_default();
         assert!(doubt.contains("negated"), "{doubt}");
+    }
+
+    /// Split phase with a battery, the CT of channel l2 on conductor L1:
+    /// l1 reads S1, l2 reads −S1 (V2 = −V1). A 1.5 kW kettle on L1-N runs
+    /// 3 min every 4 h, and a 700 W load nobody declared on L1 twice; a
+    /// second 1.5 kW kettle and a 700 W toaster are declared on L2-N. Read
+    /// as both CTs on L2 (one change), the L2 kettle and the toaster fit
+    /// every step, more than the L1 kettle does as read truly (one change
+    /// too), but as appliances on 4 h and off 3 min: the mirror, both CTs
+    /// on L2 reversed (three changes), reads them the right way round, and
+    /// the same readings renamed are the one CT on L1, the fewer changes.
+    #[test]
+    fn in_a_battery_home_times_on_and_off_name_the_conductor_two_cts_read() {
+        use crate::audit::check::testkit::split_phase;
+        use crate::audit::decl::Inverter;
+        let mut d = split_phase(vec![
+            on_off("kettle", 0, C64::new(1500.0, 0.0)),
+            on_off("kettle_2", 1, C64::new(1500.0, 0.0)),
+            on_off("toaster", 1, C64::new(700.0, 0.0)),
+        ]);
+        d.generation
+            .push(Inverter::new("battery", Wiring::LineLine(0, 1), true));
+        let on_l1 = |w: f64| vec![C64::new(w, 0.0), C64::new(-w, 0.0)];
+        let mut v = Vec::new();
+        for i in 0..12 {
+            let t = i * 4 * H;
+            v.push(step(t, on_l1(1500.0)));
+            v.push(step(t + 3 * 60_000, on_l1(-1500.0)));
+        }
+        for t in [H, 25 * H] {
+            v.push(step(t, on_l1(700.0)));
+            v.push(step(t + 5 * 60_000, on_l1(-700.0)));
+        }
+        v.sort_by_key(|e| e.time_ms);
+        let o = check(&d, &v, &consuming(2), 1.0);
+        assert_eq!(
+            kinds(&o),
+            [("ct-on-other-conductor", "l2")],
+            "{:?}",
+            o.possible
+        );
     }
 
     fn kinds(o: &Outcome) -> Vec<(&str, &str)> {
