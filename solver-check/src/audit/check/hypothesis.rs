@@ -119,6 +119,14 @@ pub(super) fn alternatives(d: &Declared, a: &DeclAppliance) -> Vec<(String, Decl
     }
 }
 
+/// Appliance `a` on each connection it could be on: as it is, then each
+/// of its [`alternatives`].
+pub(super) fn anywhere(d: &Declared, a: &DeclAppliance) -> Vec<DeclAppliance> {
+    std::iter::once(a.clone())
+        .chain(alternatives(d, a).into_iter().map(|(_, b)| b))
+        .collect()
+}
+
 pub(super) fn wiring_names(a: &DeclAppliance) -> String {
     a.wirings()
         .iter()

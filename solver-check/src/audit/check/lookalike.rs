@@ -10,9 +10,9 @@
 //! start are another load's.
 
 use super::finding::{coarse_doubt, dark_steps_in, Finding, Kind};
-use super::fit::{dist, dist_delta, poisson_tail, shape_of, Ctx, Pred};
-use super::hypothesis::{wiring_names, Metering};
-use super::placement::alike_sizes;
+use super::fit::{dist, dist_delta, poisson_tail, predicted, shape_of, Ctx, Pred};
+use super::hypothesis::{anywhere, wiring_names, Metering};
+use super::placement::{alike_sizes, beyond_chance};
 use super::thresholds::Thresholds;
 use super::undeclared::{first, first_local, start_stop_pairs};
 use crate::audit::decl::{DeclAppliance, Declared, Inverter, Jump, StartHabit};
@@ -394,14 +394,39 @@ impl LookAlikes<'_> {
         // A habit is an assumption: one start at least is allowed for,
         // however few it gives (one declared for the morning, counted in the
         // dark hours of a summer's PV, gives none).
-        let allowed = expected.max(1.0);
-        if runs < self.th.overlap_runs
-            || poisson_tail(allowed, runs) >= self.th.coincidence_p
-            || (runs as f64) < self.th.habit_margin * allowed
-        {
+        let beyond = |expected: f64| {
+            let allowed = expected.max(1.0);
+            runs >= self.th.overlap_runs
+                && poisson_tail(allowed, runs) < self.th.coincidence_p
+                && runs as f64 >= self.th.habit_margin * allowed
+        };
+        if !beyond(expected) {
             return None;
         }
-        Some(self.habit_finding(first_m, &apps, &seen, expected, !sun.is_empty()))
+        // At a coarse interval a step may be two loads' that switched
+        // within one row: the load is possible only, unless its size runs
+        // as one load does (`coarse_runs` runs) and beyond the habits of
+        // the appliances that could make it elsewhere too, each with one
+        // ([`Self::made_elsewhere`]).
+        let coarse_ok = !self.th.coarse(self.interval_s)
+            || runs >= self.th.coarse_runs
+                && self
+                    .made_elsewhere(first_m, &apps)
+                    .iter()
+                    .map(|a| {
+                        a.habit
+                            .as_ref()
+                            .map(|h| habit_starts(h, from, to, &tz, dark))
+                    })
+                    .sum::<Option<f64>>()
+                    .is_some_and(|more| beyond(expected + more));
+        let mut f = self.habit_finding(first_m, &apps, &seen, expected, !sun.is_empty());
+        if !coarse_ok {
+            f.doubt = f
+                .doubt
+                .or_else(|| coarse_doubt(Kind::UndeclaredLoad, self.interval_s, self.th));
+        }
+        Some(f)
     }
 
     /// The steps of a group of alike sizes (`members`, of appliances
@@ -505,8 +530,45 @@ impl LookAlikes<'_> {
             // whole gets (a tenth each).
             confidence: (1.0 - expected.max(1.0) / runs.max(1) as f64).min(runs as f64 / 10.0),
             evidence: json!({ "runs": runs, "runs_expected": expected, "like": names, "p_w": p, "wiring": w, "energy_share": null, "first_starts": first(&seen.on), "first_starts_local": first_local(&seen.on, &self.d.timezone), "dark_steps": dark_steps_in(self.d, &w, times) }),
-            doubt: self.unread_doubt().or_else(|| coarse_doubt(Kind::UndeclaredLoad, self.interval_s, self.th)),
+            doubt: self.unread_doubt(),
         }
+    }
+
+    /// The appliances other than `apps` (as placed) that make steps of
+    /// `size` (within twice the tolerance) as placed or as declared, or
+    /// would on another connection they could be on, unless they show
+    /// where placed beyond chance ([`beyond_chance`]): one declared on the
+    /// wrong connection, whose steps at a coarse interval were not placed
+    /// (its few steps as declared may be composites), or one moved away
+    /// from where declared by a load of its size there, may make the runs
+    /// beyond the habits.
+    fn made_elsewhere(&self, size: &Size, apps: &[usize]) -> Vec<&DeclAppliance> {
+        let v: Vec<C64> = size
+            .reading
+            .iter()
+            .map(|c| c.unwrap_or(C64::ZERO))
+            .collect();
+        self.placed
+            .iter()
+            .zip(&self.d.appliances)
+            .enumerate()
+            .filter(|(j, _)| !apps.contains(j))
+            .filter(|(_, (a, b))| {
+                let seen = beyond_chance(self.d, self.m, self.events, self.cxs, a, self.th);
+                [*a, *b]
+                    .into_iter()
+                    .flat_map(|x| {
+                        if seen {
+                            vec![x.clone()]
+                        } else {
+                            anywhere(self.d, x)
+                        }
+                    })
+                    .flat_map(|x| predicted(self.d, self.m, &x))
+                    .any(|r| dist_delta(&v, &r) <= 2.0)
+            })
+            .map(|(_, (a, _))| a)
+            .collect()
     }
 
     /// Why steps of a size may come from loads of other sizes, where a
@@ -923,6 +985,69 @@ mod tests {
         assert_eq!(o.findings[0].evidence["runs"], 15);
         let o = check(&d, &runs_of_1500_w(20, 0.0), &two_days(), 1.0);
         assert!(o.findings.is_empty(), "{:?}", o.findings);
+    }
+
+    /// The 30 runs beyond a kettle's habit of twice a day at 1 min per
+    /// row: 30 runs, `coarse_runs` or more, are a finding. Beside a 1.5 kW
+    /// heater declared on L2-N that switched there once, no more than
+    /// chance, it may be the heater's, on L1-N: weighed with the heater's
+    /// habit, once a day (2 more starts expected, 30 runs against 6), still
+    /// a finding; with five a day (10 more), 30 runs are within three times
+    /// 14, and with no habit nothing bounds the heater: possible only. With
+    /// `coarse_runs` raised to 31, the 30 runs are fewer than one load
+    /// shows at this interval: possible only.
+    #[test]
+    fn at_a_coarse_interval_runs_beyond_habits_weigh_what_could_make_them_elsewhere() {
+        use crate::audit::check::testkit::{on_off, split_phase};
+        use crate::audit::decl::StartHabit;
+        let home = |heater: Option<Option<f64>>| {
+            let mut kettle = on_off("kettle", 0, C64::new(1500.0, 0.0));
+            kettle.habit = Some(StartHabit::any_hour(2.0));
+            let mut all = vec![kettle];
+            if let Some(habit) = heater {
+                let mut h = on_off("heater", 1, C64::new(1500.0, 0.0));
+                h.habit = habit.map(StartHabit::any_hour);
+                all.push(h);
+            }
+            split_phase(all)
+        };
+        let mut ev = runs_of_1500_w(30, 0.0);
+        let w = C64::new(1500.0, 0.0);
+        for (t, s) in [(40 * H, w), (40 * H + H / 4, -w)] {
+            ev.push(Event {
+                time_ms: t,
+                delta: vec![C64::ZERO, s],
+                before: vec![C64::new(200.0, 0.0); 2],
+                v_before: vec![120.0; 2],
+                v_after: vec![120.0; 2],
+                se: vec![1.0; 2],
+            });
+        }
+        ev.sort_by_key(|e| e.time_ms);
+        let mut stats = two_days();
+        for s in stats.iter_mut() {
+            s.rows /= 60;
+            s.negative = vec![[0, s.rows]; 2];
+        }
+        let hidden = |d: &Declared, th: &Thresholds| {
+            let o = crate::audit::check::check_with(d, &ev, &stats, 60.0, th);
+            let runs = |v: &[Finding]| {
+                v.iter()
+                    .filter(|f| f.evidence["runs"].as_u64().is_some())
+                    .count()
+            };
+            (runs(&o.findings), runs(&o.possible))
+        };
+        let th = Thresholds::STANDARD;
+        assert_eq!(hidden(&home(None), &th), (1, 0));
+        assert_eq!(hidden(&home(Some(Some(1.0))), &th), (1, 0));
+        assert_eq!(hidden(&home(Some(Some(5.0))), &th), (0, 1));
+        assert_eq!(hidden(&home(Some(None)), &th), (0, 1));
+        let more_runs = Thresholds {
+            coarse_runs: 31,
+            ..th
+        };
+        assert_eq!(hidden(&home(None), &more_runs), (0, 1));
     }
 
     /// The element jump of a range whose fan runs on both sides of it is

@@ -94,7 +94,9 @@ pub struct Thresholds {
     /// (common practice, no source). Twice as many steps, beyond chance where
     /// found and not where declared, make a move at a coarse interval a
     /// finding (`coarse_move_doubt`); as many overlaps, a load of a
-    /// declared appliance's size beside it (a lost stop is likelier there).
+    /// declared appliance's size beside it (a lost stop is likelier there);
+    /// as many runs beyond the habits of what could make them, a load
+    /// hidden among appliances of its size.
     pub coarse_runs: usize,
     /// Share of a coarse cluster's steps that two loads switching within
     /// one row are expected to make (the summed rates of the sums and
@@ -297,7 +299,7 @@ pub const CUTOFFS: [Cutoff; 23] = [
     },
     Cutoff {
         name: "coarse_interval_s",
-        meaning: "reporting interval (s) from which placements and undeclared loads are only possible (a move or an undeclared load of coarse_runs runs, beyond chance, or a look-alike of coarse_runs overlaps excepted)",
+        meaning: "reporting interval (s) from which placements and undeclared loads are only possible (a move or an undeclared load of coarse_runs runs, beyond chance, a look-alike of coarse_runs overlaps, or a hidden load of coarse_runs runs beyond the habits of what could make it, excepted)",
         range: (0.0, 86_400.0),
         count: false,
         get: |t| t.coarse_interval_s,
@@ -321,7 +323,7 @@ pub const CUTOFFS: [Cutoff; 23] = [
     },
     Cutoff {
         name: "coarse_runs",
-        meaning: "runs seen whole that make an undeclared load at a coarse interval a finding (starts and stops alike, no declared jump's size, far more than coincidences of two make), overlaps a load of a declared appliance's size beside it, and twice as many steps a move",
+        meaning: "runs seen whole that make an undeclared load at a coarse interval a finding (starts and stops alike, no declared jump's size, far more than coincidences of two make), overlaps a load of a declared appliance's size beside it, runs beyond the habits a load hidden among appliances of its size, and twice as many steps a move",
         range: (0.0, 1e6),
         count: true,
         get: |t| t.coarse_runs as f64,

@@ -9,7 +9,7 @@ use super::fit::{
     connection_of, dist_delta, distances, poisson_tail, predicted, projection, shape_of, tol, Ctx,
     Pred, SeenJumps, TOL_ABS_V_W, TOL_REL_V, USE_STEP,
 };
-use super::hypothesis::{alternatives, wiring_names, Metering};
+use super::hypothesis::{alternatives, anywhere, wiring_names, Metering};
 use super::placement::{beyond_chance, one_power};
 use super::thresholds::Thresholds;
 use crate::audit::decl::{DeclAppliance, Declared};
@@ -443,10 +443,7 @@ impl UndeclaredStage<'_> {
                 let weighed = one_power(a);
                 [a, b]
                     .into_iter()
-                    .flat_map(|x| {
-                        std::iter::once(x.clone())
-                            .chain(alternatives(self.d, x).into_iter().map(|(_, y)| y))
-                    })
+                    .flat_map(|x| anywhere(self.d, x))
                     .filter(move |x| !weighed || !same_wiring_name(&wiring_names(x), &here))
             })
             .flat_map(|a| predicted(self.d, self.m, &a))
