@@ -169,6 +169,15 @@ struct Size {
     per_run: usize,
 }
 
+/// The starts the declared habits give a size in the rows' span: those of
+/// the appliances that make it, and (at a coarse interval) those of the
+/// appliances that could make it elsewhere.
+#[derive(Clone, Copy)]
+struct Starts {
+    habits: f64,
+    elsewhere: f64,
+}
+
 /// The steps of one size, their starts (ms) and the runs they make at
 /// least.
 struct SizeRuns<'e> {
@@ -408,20 +417,26 @@ impl LookAlikes<'_> {
         // as one load does (`coarse_runs` runs) and beyond the habits of
         // the appliances that could make it elsewhere too, each with one
         // ([`Self::made_elsewhere`]).
-        let coarse_ok = !self.th.coarse(self.interval_s)
-            || runs >= self.th.coarse_runs
-                && self
-                    .made_elsewhere(first_m, &apps)
-                    .iter()
-                    .map(|a| {
-                        a.habit
-                            .as_ref()
-                            .map(|h| habit_starts(h, from, to, &tz, dark))
-                    })
-                    .sum::<Option<f64>>()
-                    .is_some_and(|more| beyond(expected + more));
-        let mut f = self.habit_finding(first_m, &apps, &seen, expected, !sun.is_empty());
-        if !coarse_ok {
+        let coarse = self.th.coarse(self.interval_s);
+        let elsewhere: Option<f64> = if coarse && runs >= self.th.coarse_runs {
+            self.made_elsewhere(first_m, &apps)
+                .iter()
+                .map(|a| {
+                    a.habit
+                        .as_ref()
+                        .map(|h| habit_starts(h, from, to, &tz, dark))
+                })
+                .sum()
+        } else {
+            None
+        };
+        let lifted = elsewhere.filter(|more| beyond(expected + more));
+        let starts = Starts {
+            habits: expected,
+            elsewhere: lifted.unwrap_or(0.0),
+        };
+        let mut f = self.habit_finding(first_m, &apps, &seen, starts, !sun.is_empty());
+        if coarse && lifted.is_none() {
             f.doubt = f
                 .doubt
                 .or_else(|| coarse_doubt(Kind::UndeclaredLoad, self.interval_s, self.th));
@@ -478,16 +493,17 @@ impl LookAlikes<'_> {
     }
 
     /// The finding of a load of the size of `size` (of appliances `apps`)
-    /// whose runs `seen` go beyond the `expected` starts of their habits
-    /// (`dark_only`: counted in the dark hours of a PV array).
+    /// whose runs `seen` go beyond the `starts` of the habits that could
+    /// make them (`dark_only`: counted in the dark hours of a PV array).
     fn habit_finding(
         &self,
         size: &Size,
         apps: &[usize],
         seen: &SizeRuns,
-        expected: f64,
+        starts: Starts,
         dark_only: bool,
     ) -> Finding {
+        let expected = starts.habits;
         let along_size = seen
             .steps
             .iter()
@@ -521,15 +537,24 @@ impl LookAlikes<'_> {
             format!("{:.0} h", self.hours)
         };
         let times = seen.steps.iter().map(|e| e.time_ms);
+        let also = if starts.elsewhere > 0.0 {
+            format!(
+                " (and the habits of appliances that could make the size elsewhere about {:.1})",
+                starts.elsewhere
+            )
+        } else {
+            String::new()
+        };
+        let all = expected + starts.elsewhere;
         Finding {
             kind: Kind::UndeclaredLoad,
             subject: format!("{p:.0} W on {w}"),
-            message: format!("a load of about {p:.0} W on {w}, the size of {like}: steps of that size make {runs} runs in {hours}, where {habits_start} about {expected:.1} times; the runs beyond are another load's, counted as {like}'s"),
+            message: format!("a load of about {p:.0} W on {w}, the size of {like}: steps of that size make {runs} runs in {hours}, where {habits_start} about {expected:.1} times{also}; the runs beyond are another load's, counted as {like}'s"),
             // The share of the runs beyond the habits (one start allowed
             // for at least), and no more than a cluster of as many runs seen
             // whole gets (a tenth each).
-            confidence: (1.0 - expected.max(1.0) / runs.max(1) as f64).min(runs as f64 / 10.0),
-            evidence: json!({ "runs": runs, "runs_expected": expected, "like": names, "p_w": p, "wiring": w, "energy_share": null, "first_starts": first(&seen.on), "first_starts_local": first_local(&seen.on, &self.d.timezone), "dark_steps": dark_steps_in(self.d, &w, times) }),
+            confidence: (1.0 - all.max(1.0) / runs.max(1) as f64).min(runs as f64 / 10.0),
+            evidence: json!({ "runs": runs, "runs_expected": expected, "runs_expected_elsewhere": starts.elsewhere, "like": names, "p_w": p, "wiring": w, "energy_share": null, "first_starts": first(&seen.on), "first_starts_local": first_local(&seen.on, &self.d.timezone), "dark_steps": dark_steps_in(self.d, &w, times) }),
             doubt: self.unread_doubt(),
         }
     }
@@ -995,7 +1020,8 @@ mod tests {
     /// a finding; with five a day (10 more), 30 runs are within three times
     /// 14, and with no habit nothing bounds the heater: possible only. With
     /// `coarse_runs` raised to 31, the 30 runs are fewer than one load
-    /// shows at this interval: possible only.
+    /// shows at this interval: possible only. A heater seen on L2 beyond
+    /// chance (twelve runs) is there, and bounds nothing on L1.
     #[test]
     fn at_a_coarse_interval_runs_beyond_habits_weigh_what_could_make_them_elsewhere() {
         use crate::audit::check::testkit::{on_off, split_phase};
@@ -1011,26 +1037,34 @@ mod tests {
             }
             split_phase(all)
         };
-        let mut ev = runs_of_1500_w(30, 0.0);
-        let w = C64::new(1500.0, 0.0);
-        for (t, s) in [(40 * H, w), (40 * H + H / 4, -w)] {
-            ev.push(Event {
-                time_ms: t,
-                delta: vec![C64::ZERO, s],
-                before: vec![C64::new(200.0, 0.0); 2],
-                v_before: vec![120.0; 2],
-                v_after: vec![120.0; 2],
-                se: vec![1.0; 2],
-            });
-        }
-        ev.sort_by_key(|e| e.time_ms);
+        // The heater's runs on L2, 10 min each, between the load's.
+        let events = |heater_runs: i64| {
+            let mut ev = runs_of_1500_w(30, 0.0);
+            let w = C64::new(1500.0, 0.0);
+            for i in 0..heater_runs {
+                let t = 40 * H - i * 3 * H / 2 + 3 * H / 4;
+                for (t, s) in [(t, w), (t + H / 6, -w)] {
+                    ev.push(Event {
+                        time_ms: t,
+                        delta: vec![C64::ZERO, s],
+                        before: vec![C64::new(200.0, 0.0); 2],
+                        v_before: vec![120.0; 2],
+                        v_after: vec![120.0; 2],
+                        se: vec![1.0; 2],
+                    });
+                }
+            }
+            ev.sort_by_key(|e| e.time_ms);
+            ev
+        };
         let mut stats = two_days();
         for s in stats.iter_mut() {
             s.rows /= 60;
             s.negative = vec![[0, s.rows]; 2];
         }
-        let hidden = |d: &Declared, th: &Thresholds| {
-            let o = crate::audit::check::check_with(d, &ev, &stats, 60.0, th);
+        let ev = events(1);
+        let hidden_in = |ev: &[Event], d: &Declared, th: &Thresholds| {
+            let o = crate::audit::check::check_with(d, ev, &stats, 60.0, th);
             let runs = |v: &[Finding]| {
                 v.iter()
                     .filter(|f| f.evidence["runs"].as_u64().is_some())
@@ -1038,6 +1072,7 @@ mod tests {
             };
             (runs(&o.findings), runs(&o.possible))
         };
+        let hidden = |d: &Declared, th: &Thresholds| hidden_in(&ev, d, th);
         let th = Thresholds::STANDARD;
         assert_eq!(hidden(&home(None), &th), (1, 0));
         assert_eq!(hidden(&home(Some(Some(1.0))), &th), (1, 0));
@@ -1048,6 +1083,9 @@ mod tests {
             ..th
         };
         assert_eq!(hidden(&home(None), &more_runs), (0, 1));
+        // Twelve runs of the heater on L2 show it there beyond chance: it
+        // makes L1's size nowhere it is placed or declared, habit or none.
+        assert_eq!(hidden_in(&events(12), &home(Some(None)), &th), (1, 0));
     }
 
     /// The element jump of a range whose fan runs on both sides of it is

@@ -276,11 +276,15 @@ pub(super) fn orientation(
 /// turned the way round the appliances' times on and off read it
 /// ([`orientation`]) where a battery lets its mirror image fit as well
 /// ([`mirror_of`]). The declared metering is not turned so: it stands
-/// by the rules that chose it. A mirror taken is renamed as simply as the
-/// steps allow ([`simplest_renaming`]): with two CTs on one conductor, the
-/// readings of both CTs on the other conductor, both reversed (three
-/// changes), are those of the one CT moved (one change), the conductors
-/// renamed, save for which 120 V appliances they show.
+/// by the rules that chose it. A mirror taken with two CTs on one
+/// conductor is renamed as simply as the steps allow
+/// ([`simplest_renaming`]: as many steps explained, or as many appliances
+/// fitting, or with one appliance moved): the readings of both CTs on the
+/// other conductor, both reversed (three changes), are those of the one
+/// CT moved (one change), the conductors renamed, save for which 120 V
+/// appliances they show. (Renamings of a metering with each conductor
+/// read once include the declared one, which must not stand in for a
+/// fault found.)
 pub(super) fn orient(
     d: &Declared,
     mc: &MeteringChoice,
@@ -294,9 +298,20 @@ pub(super) fn orient(
     match mirror_of(d, mc, mc.chosen, th)
         .and_then(|mirror| orientation(d, mc, mc.chosen, mirror, big, interval_s, th))
     {
-        Some(o) if o != mc.chosen => simplest_renaming(d, &mc.hyps, &mc.scored, o, big, th),
+        Some(o) if o != mc.chosen && two_on_one(&mc.hyps[o].0) => {
+            simplest_renaming(d, &mc.hyps, &mc.scored, o, big, th)
+        }
         o => o.unwrap_or(mc.chosen),
     }
+}
+
+/// Whether metering `m` has two channels read one conductor.
+fn two_on_one(m: &Metering) -> bool {
+    let read: Vec<usize> = (0..m.map.len())
+        .filter(|&c| !m.absent[c])
+        .map(|c| m.map[c].src)
+        .collect();
+    (1..read.len()).any(|k| read[..k].contains(&read[k]))
 }
 
 /// Whether metering `chosen` is settled so that a home battery's answers
@@ -329,7 +344,8 @@ pub(super) fn metering_settled(mc: &MeteringChoice, chosen: usize, th: &Threshol
 
 /// Whether metering `chosen` has a mirror image that fits as well
 /// ([`mirror_of`]) and the appliances' times on and off do not tell the
-/// two apart ([`orientation`]).
+/// two apart ([`orientation`]), under it nor, with two CTs on one
+/// conductor, under a renaming of it.
 fn mirror_undecided(
     d: &Declared,
     mc: &MeteringChoice,
@@ -338,8 +354,21 @@ fn mirror_undecided(
     interval_s: f64,
     th: &Thresholds,
 ) -> bool {
-    mirror_of(d, mc, chosen, th)
-        .is_some_and(|mirror| orientation(d, mc, chosen, mirror, big, interval_s, th).is_none())
+    let decided = |c: usize| {
+        mirror_of(d, mc, c, th)
+            .is_some_and(|mirror| orientation(d, mc, c, mirror, big, interval_s, th) == Some(c))
+    };
+    // Two CTs on one conductor read alike whichever conductor is named: a
+    // renaming that the times on and off read the right way round settles
+    // the signs of this one too (the one [`orient`] took it from).
+    let renaming_decided = || {
+        two_on_one(&mc.hyps[chosen].0)
+            && (0..mc.hyps.len())
+                .any(|r| r != chosen && renamed(d, &mc.hyps[chosen].0, &mc.hyps[r].0) && decided(r))
+    };
+    mirror_of(d, mc, chosen, th).is_some_and(|mirror| {
+        orientation(d, mc, chosen, mirror, big, interval_s, th).is_none() && !renaming_decided()
+    })
 }
 
 /// The doubt of `findings` (metering `chosen`'s) where its mirror image
@@ -1543,8 +1572,9 @@ mod tests {
     /// counts, and the answers, within a minute, count nothing; the mirror
     /// image reads the same steps the other way: the two sums swap.
     /// Orientation follows: the declared reading, or its mirror for the
-    /// steps negated; and none for a metering with both CTs on one
-    /// conductor.
+    /// steps negated; and none for both CTs on L1 read straight, under
+    /// which no step fits the kettle (its steps would show negated on l2)
+    /// and no time on or off is counted.
     #[test]
     fn appliances_off_longer_than_on_tell_a_reading_from_its_mirror() {
         use crate::audit::check::testkit::split_phase;
