@@ -408,7 +408,7 @@ pub fn advice(f: &check::Finding) -> String {
 }
 
 /// What a confidence means, printed with the findings.
-pub const CONFIDENCE: &str = "confidence: for metering and wiring, the share of the evidence (steps, appliances, negative power) that only the finding explains and the declaration does not; for an undeclared load, a tenth for each run seen whole (a start, then its stop), or a fifth for each time it started while a declared appliance of its size was already on, or the share of its size's runs beyond what the declared habits of the appliances of that size start (no more than a tenth a run)";
+pub const CONFIDENCE: &str = "confidence: for metering and wiring, the share of the evidence (steps, appliances, negative power) that only the finding explains and the declaration does not; for an undeclared load, a tenth for each run seen whole (a start, then its stop), or a fifth for each time it started while a declared appliance of its size was already on, or the share of its size's runs beyond what the declared habits of the appliances of that size start (at a coarse interval, and of those that could make it elsewhere; no more than a tenth a run)";
 
 impl Audit {
     fn channel_rows(&self) -> Vec<[String; 3]> {
