@@ -9,7 +9,7 @@ use super::fit::{
     METERING_STEP,
 };
 use super::hypothesis::{alternatives, declared_metering, permutations, ChanMap, Metering};
-use super::placement::{place, uncheckable_in, Window};
+use super::placement::{place, uncheckable_in, Contested, Window};
 use super::thresholds::Thresholds;
 use crate::audit::decl::{DeclAppliance, Declared};
 use crate::audit::events::{ChannelStats, Event};
@@ -860,14 +860,15 @@ pub(super) fn metering_confidence(
 }
 
 /// The appliances placed under one metering hypothesis: its index, each
-/// step's context under it, the checks, the appliances as placed and the
-/// moves made.
+/// step's context under it, the checks, the appliances as placed, the
+/// moves made and those a rival accounts for as well.
 pub(super) struct Placement {
     pub(super) hyp: usize,
     pub(super) cxs: Vec<Ctx>,
     pub(super) checks: Vec<ApplianceCheck>,
     pub(super) placed: Vec<DeclAppliance>,
     pub(super) moves: Vec<Finding>,
+    pub(super) contested: Vec<Contested>,
 }
 
 /// Places the appliances under hypothesis `hyp` of `mc`.
@@ -882,13 +883,14 @@ pub(super) fn place_under(
     let m = &mc.hyps[hyp].0;
     let cxs: Vec<Ctx> = used.iter().map(|e| Ctx::of(d, m, e)).collect();
     let mut moves = Vec::new();
-    let (checks, placed) = place(d, m, used, &cxs, window, &mut moves, th);
+    let (checks, placed, contested) = place(d, m, used, &cxs, window, &mut moves, th);
     Placement {
         hyp,
         cxs,
         checks,
         placed,
         moves,
+        contested,
     }
 }
 

@@ -53,7 +53,7 @@ use metering::{
     metering_doubt, metering_findings, metering_settled, orient, place_under,
     silent_channel_accounts, simpler_account, MeteringChoice, Placement,
 };
-use placement::{indistinct_notes, Window};
+use placement::{indistinct_notes, settle_contested, Window};
 use serde_json::json;
 use undeclared::{metered_energy_wh, steps_fit, UndeclaredStage};
 
@@ -153,9 +153,10 @@ pub fn check_with(
     }
     let Placement {
         cxs,
-        checks,
+        mut checks,
         placed,
         moves,
+        contested,
         ..
     } = pl;
     let m = mc.hyps[chosen].0.clone();
@@ -178,6 +179,7 @@ pub fn check_with(
     let (more, steps_explained) =
         undeclared_loads(d, &m, &used, (&cxs, &checks, &placed), total_wh, window, th);
     findings.extend(more);
+    settle_contested(&mut checks, &contested, &placed);
     let settled = metering_settled(&mc, chosen, th);
     let (findings, possible, unlisted) = sort_findings(d, findings, settled, th);
     notes.extend(few_explained(d, steps_explained, used.len()));

@@ -285,20 +285,60 @@ pub(super) fn coverage(
 /// that is there (common practice, no source).
 pub(super) fn contest(mut c: Vec<Candidate>) -> Option<Candidate> {
     // Most steps first; the earlier appliance on a tie.
-    c.sort_by_key(|x| (usize::MAX - x.1, x.0));
+    c.sort_by_key(|x| (usize::MAX - x.steps, x.app));
     let top = c.first()?;
     let overlap = |x: &[usize], y: &[usize]| {
         x.iter().filter(|k| y.contains(k)).count() * 2 >= x.len().min(y.len())
     };
     let pick = (0..c.len())
-        .filter(|&i| i == 0 || overlap(&c[i].4, &top.4))
-        .max_by(|&i, &k| c[i].5.total_cmp(&c[k].5).then(k.cmp(&i)))?;
+        .filter(|&i| i == 0 || overlap(&c[i].mine, &top.mine))
+        .max_by(|&i, &k| c[i].cover.total_cmp(&c[k].cover).then(k.cmp(&i)))?;
     Some(c.swap_remove(pick))
 }
 
-/// A candidate move: (appliance, steps, wiring, finding, the steps, share
-/// of its step sizes among them).
-pub(super) type Candidate = (usize, usize, DeclAppliance, Finding, Vec<usize>, f64);
+/// A candidate move of one appliance.
+pub(super) struct Candidate {
+    /// The appliance, among those placed.
+    pub app: usize,
+    /// The steps it alone fits on the wiring it moves to.
+    pub steps: usize,
+    /// The appliance so wired.
+    pub alt: DeclAppliance,
+    /// The finding the move makes.
+    pub finding: Finding,
+    /// The steps that fit it there.
+    pub mine: Vec<usize>,
+    /// The share of its step sizes among them.
+    pub cover: f64,
+    /// Another declared appliance that fits those steps as well, if one
+    /// does (the move is then possible only).
+    pub rival: Option<Rival>,
+}
+
+/// A move whose steps a rival accounts for as well ([`Rival`]): the moved
+/// appliance, the rival, the wiring the steps show on and how many.
+#[derive(Clone, Debug, PartialEq)]
+pub(super) struct Contested {
+    /// The moved appliance, among those placed.
+    pub app: usize,
+    /// The appliance that fits its steps as well.
+    pub rival: Rival,
+    /// The wiring the steps show on (`L2-N`).
+    pub found: String,
+    /// How many steps.
+    pub steps: usize,
+}
+
+/// A declared one-power appliance that fits the steps a move stands on as
+/// well as the moved one does.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(super) struct Rival {
+    /// The rival, among those placed.
+    pub app: usize,
+    /// Whether it is declared with the moved one (either of the two may be
+    /// the one whose steps show elsewhere), rather than where they show.
+    pub alongside: bool,
+}
 
 /// One round of placement: the appliances as placed so far and each step's
 /// distance from them, against which every appliance is weighed.
@@ -438,6 +478,29 @@ impl Round<'_> {
         (ck, cand)
     }
 
+    /// The move of appliance `j` to `alt`, where `steps` steps fit it alone
+    /// (`mine`, those that fit it), making finding `f`.
+    fn candidate(
+        &self,
+        j: usize,
+        steps: usize,
+        alt: DeclAppliance,
+        f: Finding,
+        mine: Vec<usize>,
+        rival: Option<Rival>,
+    ) -> Candidate {
+        let cover = coverage(self.d, self.m, &alt, self.used, self.cxs, &mine, 0.0);
+        Candidate {
+            app: j,
+            steps,
+            alt,
+            finding: f,
+            mine,
+            cover,
+            rival,
+        }
+    }
+
     /// Appliance `j` declared through conductor `x`, which no working CT
     /// reads: its absence there cannot be seen, but its steps elsewhere
     /// can: many of them, fitting no other appliance, place it.
@@ -463,9 +526,8 @@ impl Round<'_> {
         if whole {
             let mut f = move_finding(d, a, &alt, &name_a, AsDeclared::Unread, n_a, th);
             self.count_dark(&mut f, &name_a, &mine);
-            let cover = coverage(d, m, &alt, self.used, self.cxs, &mine, 0.0);
             ck.reason = format!("{n_a} steps fit it on {name_a}; its declared wiring goes through L{}, which no working CT reads", x + 1);
-            return Some((j, n_a, alt, f, mine, cover));
+            return Some(self.candidate(j, n_a, alt, f, mine, None));
         }
         if n_a >= th.blind_move {
             ck.reason += &format!(" ({n_a} steps fit it on {name_a} and no other appliance, but not every one of its main step sizes shows there)");
@@ -590,40 +652,53 @@ impl Round<'_> {
         size: f64,
         steps: &[usize],
         line_to_line: bool,
-    ) -> Option<String> {
+    ) -> Option<(String, Option<Rival>)> {
         (0..self.placed.len()).filter(|&y| y != j).find_map(|y| {
             let b = &self.placed[y];
             if !one_power(b) || b.steps.jumps().is_empty() {
                 return None;
             }
-            let why = if same_wiring_name(&wiring_names(b), found) {
+            let there = same_wiring_name(&wiring_names(b), found);
+            let (why, fits) = if there {
                 self.unseen_there(y, size, found, steps)
             } else if line_to_line {
                 self.moved_lookalike(j, y, found, size, steps)
             } else {
                 None
             }?;
-            Some(format!(
-                "{why}, declared by one power only: the steps may be its own"
+            let rival = fits.then_some(Rival {
+                app: y,
+                alongside: !there,
+            });
+            Some((
+                format!("{why}, declared by one power only: the steps may be its own"),
+                rival,
             ))
         })
     }
 
     /// Whether appliance `y`, declared on `found`, accounts for the steps
-    /// there (`size` W, `steps`) as they are: it fits half of them or more,
-    /// or it was not seen switching there and has about their size.
-    fn unseen_there(&self, y: usize, size: f64, found: &str, steps: &[usize]) -> Option<String> {
+    /// there (`size` W, `steps`) as they are: it fits half of them or more
+    /// (true with the reason), or it was not seen switching there and has
+    /// about their size (false).
+    fn unseen_there(
+        &self,
+        y: usize,
+        size: f64,
+        found: &str,
+        steps: &[usize],
+    ) -> Option<(String, bool)> {
         let b = &self.placed[y];
         let w = b.largest_step_w();
         if 2 * self.fitting(b, steps) >= steps.len() {
-            Some(format!(
-                "{} is declared on {found} and fits them as well",
-                b.id
+            Some((
+                format!("{} is declared on {found} and fits them as well", b.id),
+                true,
             ))
         } else if (w - size).abs() <= self.th.nameplate_band * w
             && self.excl(y, &self.sigs[y]).0 < self.th.seen_where_declared
         {
-            Some(format!("{} is declared on {found}, was not seen switching there and has about their size ({w:.0} W)", b.id))
+            Some((format!("{} is declared on {found}, was not seen switching there and has about their size ({w:.0} W)", b.id), false))
         } else {
             None
         }
@@ -632,8 +707,9 @@ impl Round<'_> {
     /// Whether appliance `y` could be the one whose steps on `found` (`size`
     /// W, `steps`) are taken for appliance `j` moved there from one line to
     /// another: moved there by a move of that kind, declared with `j` and
-    /// fitting half of the steps or more, or not seen where declared and
-    /// within `nameplate_band` of their size.
+    /// fitting half of the steps or more (true with the reason), or not
+    /// seen where declared and within `nameplate_band` of their size
+    /// (false).
     fn moved_lookalike(
         &self,
         j: usize,
@@ -641,7 +717,7 @@ impl Round<'_> {
         found: &str,
         size: f64,
         steps: &[usize],
-    ) -> Option<String> {
+    ) -> Option<(String, bool)> {
         let b = &self.placed[y];
         let own = wiring_names(b);
         let (_, there) = alternatives(self.d, b)
@@ -652,11 +728,11 @@ impl Round<'_> {
         }
         let w = there.largest_step_w();
         if own == wiring_names(&self.placed[j]) && 2 * self.fitting(&there, steps) >= steps.len() {
-            Some(format!("{} is declared with it on {own} and fits them as well, so either may be the one on {found}", b.id))
+            Some((format!("{} is declared with it on {own} and fits them as well, so either may be the one on {found}", b.id), true))
         } else if (w - size).abs() <= self.th.nameplate_band * w
             && self.excl(y, &self.sigs[y]).0 < self.th.seen_where_declared
         {
-            Some(format!("{} was not seen switching where declared either and has about their size there ({w:.0} W)", b.id))
+            Some((format!("{} was not seen switching where declared either and has about their size there ({w:.0} W)", b.id), false))
         } else {
             None
         }
@@ -733,10 +809,15 @@ impl Round<'_> {
             if d.partial && f.doubt.is_none() {
                 f.doubt = self.shared_doubt(j, &name_a);
             }
+            let mut rival = None;
             if one_power(a) && f.doubt.is_none() {
                 let line_to_line = f.kind == Kind::WrongLine;
                 let size = alt.largest_step_w();
-                f.doubt = self.lookalike_doubt(j, &name_a, size, &all_a, line_to_line);
+                if let Some((why, r)) = self.lookalike_doubt(j, &name_a, size, &all_a, line_to_line)
+                {
+                    f.doubt = Some(why);
+                    rival = r;
+                }
             }
             // Steps far beyond its habit are another load's: left to the
             // undeclared loads, not a move.
@@ -747,9 +828,8 @@ impl Round<'_> {
             if f.doubt.is_none() {
                 f.doubt = self.coarse_move_doubt(a, &alt, n_a, f.kind);
             }
-            let cover = coverage(d, m, &alt, self.used, self.cxs, &mine, 0.0);
             ck.reason = format!("{n_a} steps fit it on {name_a}, {n_d} on {declared}");
-            return Some((j, n_a, alt, f, mine, cover));
+            return Some(self.candidate(j, n_a, alt, f, mine, rival));
         }
         if moves {
             ck.reason = format!("{n_a} steps fit it on {name_a} and no other appliance, {n_d} on {declared}, but not every one of its main step sizes shows there: too little to place it");
@@ -1002,7 +1082,8 @@ fn swapped_moves(
 /// steps support much better. Greedy: the best-supported finding is taken
 /// first and the appliance moved before the others are weighed again, so
 /// steps one misdeclared appliance leaves behind are not pinned on another.
-/// Returns the checks and the appliances as placed.
+/// Returns the checks, the appliances as placed and the moves a rival
+/// accounts for as well.
 pub(super) fn place(
     d: &Declared,
     m: &Metering,
@@ -1011,7 +1092,7 @@ pub(super) fn place(
     window: Window,
     findings: &mut Vec<Finding>,
     th: &Thresholds,
-) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>) {
+) -> (Vec<ApplianceCheck>, Vec<DeclAppliance>, Vec<Contested>) {
     let interval_s = window.interval_s;
     let n = d.supply.lines();
     let seen: Vec<bool> = (0..n)
@@ -1020,6 +1101,7 @@ pub(super) fn place(
     let mut placed: Vec<DeclAppliance> = d.appliances.clone();
     let mut moved = vec![false; placed.len()];
     let mut moves: Vec<(usize, (usize, usize))> = Vec::new();
+    let mut contested = Vec::new();
     loop {
         let sigs: Vec<Pred> = placed.iter().map(|a| Pred::of(d, m, a)).collect();
         let shapes: Vec<Option<Vec<Option<C64>>>> =
@@ -1046,8 +1128,23 @@ pub(super) fn place(
             candidates.extend(cand);
         }
         match contest(candidates) {
-            Some((j, _, alt, f, ..)) => {
+            Some(Candidate {
+                app: j,
+                steps,
+                alt,
+                finding: f,
+                rival,
+                ..
+            }) => {
                 let way = line_move(&placed[j], &alt);
+                if let Some(rival) = rival {
+                    contested.push(Contested {
+                        app: j,
+                        rival,
+                        found: wiring_names(&alt),
+                        steps,
+                    });
+                }
                 placed[j] = alt;
                 moved[j] = true;
                 findings.push(f);
@@ -1061,8 +1158,41 @@ pub(super) fn place(
                 if th.coarse(interval_s) {
                     several_moves_doubt(findings, n_moved, interval_s);
                 }
-                return (checks, placed);
+                return (checks, placed, contested);
             }
+        }
+    }
+}
+
+/// The checks of the appliances whose placement a rival makes undecidable
+/// ([`Contested`]): the moved one, its steps there fitting the rival as
+/// well, and a rival declared with it (either of the two may be the one
+/// whose steps show elsewhere) that stood as declared. Applied once the
+/// placement has been used (the later stages weigh the appliances as
+/// placed, the move included); `placed` names them.
+pub(super) fn settle_contested(
+    checks: &mut [ApplianceCheck],
+    contested: &[Contested],
+    placed: &[DeclAppliance],
+) {
+    for c in contested {
+        let (moved, rival) = (&placed[c.app].id, &placed[c.rival.app].id);
+        let (found, n) = (&c.found, c.steps);
+        let ck = &mut checks[c.app];
+        ck.verdict = Verdict::Undecidable;
+        ck.seen = None;
+        if c.rival.alongside {
+            let own = ck.declared.clone();
+            ck.reason = format!("{n} steps would fit it on {found}, but {rival}, declared with it on {own}, fits them as well: one of the two is on {found}, the data cannot tell which");
+            let other = &mut checks[c.rival.app];
+            if other.verdict == Verdict::AsDeclared {
+                other.verdict = Verdict::Undecidable;
+                other.reason = format!("{n} steps of its size show on {found}, and {moved}, declared with it on {own}, fits them as well: one of the two is on {found}, the data cannot tell which");
+            }
+        } else {
+            ck.reason = format!(
+                "{n} steps would fit it on {found}, but they fit {rival}, declared there, as well"
+            );
         }
     }
 }
@@ -1194,8 +1324,10 @@ mod tests {
     /// Placement stage, at 1 s: a 1500 W kettle and a 1450 W microwave,
     /// each declared by one power on L1-N; 1450 W steps show on L1-N and
     /// 1500 W steps on L2-N. Either may be the one on L2-N (the microwave
-    /// fits those steps too), so the kettle's move is only possible. Beside
-    /// a 1165 W dishwasher instead, a fifth and more away, it is certain.
+    /// fits those steps too), so the kettle's move is only possible, and
+    /// neither appliance is said to be as declared: both are undecidable,
+    /// each reason naming the other. Beside a 1165 W dishwasher instead, a
+    /// fifth and more away, the move is certain.
     #[test]
     fn a_move_a_lookalike_declared_with_it_accounts_for_is_only_possible() {
         use crate::audit::check::check;
@@ -1213,10 +1345,16 @@ mod tests {
             moved.doubt.as_ref().unwrap().contains("either may be"),
             "{moved:?}"
         );
+        for (ck, rival) in o.appliances.iter().zip(["microwave", "kettle"]) {
+            assert_eq!(ck.verdict, Verdict::Undecidable, "{ck:?}");
+            assert!(ck.reason.contains(rival), "{ck:?}");
+            assert!(ck.reason.contains("one of the two is on L2-N"), "{ck:?}");
+        }
         let d = split_phase(vec![kettle, on_off("dishwasher", 0, C64::new(1165.0, 0.0))]);
         let o = check(&d, &runs_on(2, 1, 1500.0, 4, 0), &day_stats(2, 200.0), 1.0);
         let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(found, ["kettle"], "{:?}", o.possible);
+        assert_eq!(o.appliances[0].verdict, Verdict::Finding);
     }
 
     /// Placement stage, three-phase at 1 s: a 2 kW kettle declared on
@@ -1288,7 +1426,8 @@ mod tests {
     /// 1450 W heater on L2-N, each by one power; 1500 W steps show on L2-N
     /// only. They fit the kettle better, but the heater, declared there,
     /// fits them too (50 W off, within the tolerance): no mistake at all
-    /// accounts for them, so the kettle's move is only possible.
+    /// accounts for them, so the kettle's move is only possible and its
+    /// placement undecidable; the heater's check is its own.
     #[test]
     fn a_move_onto_a_lookalike_declared_there_is_only_possible() {
         use crate::audit::check::check;
@@ -1304,6 +1443,15 @@ mod tests {
             why.contains("heater is declared on L2-N and fits them as well"),
             "{why}"
         );
+        let (kettle, heater) = (&o.appliances[0], &o.appliances[1]);
+        assert_eq!(kettle.verdict, Verdict::Undecidable, "{kettle:?}");
+        assert!(
+            kettle
+                .reason
+                .contains("they fit heater, declared there, as well"),
+            "{kettle:?}"
+        );
+        assert!(!heater.reason.contains("kettle"), "{heater:?}");
     }
 
     /// Placement stage: a 1 kW, 240 V heater declared on L1-N is taken at
@@ -1494,11 +1642,17 @@ mod tests {
                 evidence: json!({}),
                 doubt: None,
             };
-            (j, steps.len(), a, f, steps, cover)
+            Candidate {
+                app: j,
+                steps: steps.len(),
+                alt: a,
+                finding: f,
+                mine: steps,
+                cover,
+                rival: None,
+            }
         };
-        let pick = |c: Vec<(usize, usize, DeclAppliance, Finding, Vec<usize>, f64)>| {
-            contest(c).map(|x| x.0)
-        };
+        let pick = |c: Vec<Candidate>| contest(c).map(|x| x.app);
         assert_eq!(pick(vec![]), None);
         assert_eq!(
             pick(vec![
