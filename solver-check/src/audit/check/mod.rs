@@ -136,7 +136,8 @@ pub fn check_with(
     let mut pl = place_under(d, &mc, chosen, &used, window, th);
     let mut replaced = 0;
     if chosen == decl_i && pl.moves.len() >= 2 {
-        if let Some(alt) = simpler_account(d, &mc, &pl, &used, &big, window, th) {
+        let loads = |p: &Placement| loads_left(d, &mc, p, &used, (stats, &absent), window, th);
+        if let Some(alt) = simpler_account(d, &mc, &pl, (&used, &big), window, th, &loads) {
             replaced = pl.moves.len() - alt.moves.len();
             (chosen, pl) = (alt.hyp, alt);
         }
@@ -194,6 +195,27 @@ pub fn check_with(
         steps_explained,
         notes,
     }
+}
+
+/// The undeclared loads, listed or possible, that placement `p` leaves
+/// (the channels' `stats`, and which read nothing, for the energy shares).
+fn loads_left(
+    d: &Declared,
+    mc: &MeteringChoice,
+    p: &Placement,
+    used: &[&Event],
+    (stats, absent): (&[ChannelStats], &[bool]),
+    window: Window,
+    th: &Thresholds,
+) -> usize {
+    let m = &mc.hyps[p.hyp].0;
+    let total_wh = metered_energy_wh(stats, absent, m, window.interval_s);
+    let pl = (&p.cxs[..], &p.checks[..], &p.placed[..]);
+    let (found, _) = undeclared_loads(d, m, used, pl, total_wh, window, th);
+    found
+        .iter()
+        .filter(|f| f.kind == Kind::UndeclaredLoad)
+        .count()
 }
 
 /// Stage 3 on the appliances as placed (their steps' voltages, checks and
