@@ -211,11 +211,9 @@ fn loads_left(
     let m = &mc.hyps[p.hyp].0;
     let total_wh = metered_energy_wh(stats, absent, m, window.interval_s);
     let pl = (&p.cxs[..], &p.checks[..], &p.placed[..]);
-    let (found, _) = undeclared_loads(d, m, used, pl, total_wh, window, th);
-    found
-        .iter()
-        .filter(|f| f.kind == Kind::UndeclaredLoad)
-        .count()
+    undeclared_loads(d, m, used, pl, total_wh, window, th)
+        .0
+        .len()
 }
 
 /// Stage 3 on the appliances as placed (their steps' voltages, checks and

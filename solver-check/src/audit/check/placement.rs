@@ -645,6 +645,8 @@ impl Round<'_> {
     /// step is not its entry's total; a kettle draws with the square of the
     /// voltage; a heat pump's input follows the weather), so only its size
     /// tells it, and entries of about one size account for the steps alike.
+    /// One that fits the steps ([`Rival`]) is named before one that has
+    /// only about their size.
     fn lookalike_doubt(
         &self,
         j: usize,
@@ -653,28 +655,45 @@ impl Round<'_> {
         steps: &[usize],
         line_to_line: bool,
     ) -> Option<(String, Option<Rival>)> {
-        (0..self.placed.len()).filter(|&y| y != j).find_map(|y| {
-            let b = &self.placed[y];
-            if !one_power(b) || b.steps.jumps().is_empty() {
-                return None;
-            }
-            let there = same_wiring_name(&wiring_names(b), found);
-            let (why, fits) = if there {
-                self.unseen_there(y, size, found, steps)
-            } else if line_to_line {
-                self.moved_lookalike(j, y, found, size, steps)
-            } else {
-                None
-            }?;
-            let rival = fits.then_some(Rival {
-                app: y,
-                alongside: !there,
-            });
-            Some((
-                format!("{why}, declared by one power only: the steps may be its own"),
-                rival,
-            ))
-        })
+        let doubts: Vec<(String, Option<Rival>)> = (0..self.placed.len())
+            .filter(|&y| y != j)
+            .filter_map(|y| self.lookalike(j, y, found, size, steps, line_to_line))
+            .collect();
+        let pick = doubts.iter().position(|(_, r)| r.is_some()).unwrap_or(0);
+        doubts.into_iter().nth(pick)
+    }
+
+    /// Whether appliance `y` may make the steps of appliance `j` moved to
+    /// `found` ([`Self::lookalike_doubt`]): why, and whether it fits them.
+    fn lookalike(
+        &self,
+        j: usize,
+        y: usize,
+        found: &str,
+        size: f64,
+        steps: &[usize],
+        line_to_line: bool,
+    ) -> Option<(String, Option<Rival>)> {
+        let b = &self.placed[y];
+        if !one_power(b) || b.steps.jumps().is_empty() {
+            return None;
+        }
+        let there = same_wiring_name(&wiring_names(b), found);
+        let (why, fits) = if there {
+            self.unseen_there(y, size, found, steps)
+        } else if line_to_line {
+            self.moved_lookalike(j, y, found, size, steps)
+        } else {
+            None
+        }?;
+        let rival = fits.then_some(Rival {
+            app: y,
+            alongside: !there,
+        });
+        Some((
+            format!("{why}, declared by one power only: the steps may be its own"),
+            rival,
+        ))
     }
 
     /// Whether appliance `y`, declared on `found`, accounts for the steps
@@ -1137,7 +1156,8 @@ pub(super) fn place(
                 ..
             }) => {
                 let way = line_move(&placed[j], &alt);
-                if let Some(rival) = rival {
+                // A rival moved before is no longer where it was declared.
+                if let Some(rival) = rival.filter(|r| !moved[r.app]) {
                     contested.push(Contested {
                         app: j,
                         rival,
@@ -1167,15 +1187,21 @@ pub(super) fn place(
 /// The checks of the appliances whose placement a rival makes undecidable
 /// ([`Contested`]): the moved one, its steps there fitting the rival as
 /// well, and a rival declared with it (either of the two may be the one
-/// whose steps show elsewhere) that stood as declared. Applied once the
-/// placement has been used (the later stages weigh the appliances as
-/// placed, the move included); `placed` names them.
+/// whose steps show elsewhere) that stood as declared, its reason naming
+/// each moved appliance it rivals. A rival moved itself in a later round
+/// was placed by steps of its own, and leaves the move it rivalled as it
+/// is. Applied once the placement has been used (the later stages weigh
+/// the appliances as placed, the move included); `placed` names them.
 pub(super) fn settle_contested(
     checks: &mut [ApplianceCheck],
     contested: &[Contested],
     placed: &[DeclAppliance],
 ) {
+    let mut rivals_settled: Vec<usize> = Vec::new();
     for c in contested {
+        if checks[c.rival.app].verdict == Verdict::Finding {
+            continue;
+        }
         let (moved, rival) = (&placed[c.app].id, &placed[c.rival.app].id);
         let (found, n) = (&c.found, c.steps);
         let ck = &mut checks[c.app];
@@ -1184,10 +1210,14 @@ pub(super) fn settle_contested(
         if c.rival.alongside {
             let own = ck.declared.clone();
             ck.reason = format!("{n} steps would fit it on {found}, but {rival}, declared with it on {own}, fits them as well: one of the two is on {found}, the data cannot tell which");
+            let why = format!("{n} steps of its size show on {found}, and {moved}, declared with it on {own}, fits them as well: one of the two is on {found}, the data cannot tell which");
             let other = &mut checks[c.rival.app];
-            if other.verdict == Verdict::AsDeclared {
+            if rivals_settled.contains(&c.rival.app) {
+                other.reason = format!("{}; {why}", other.reason);
+            } else if other.verdict == Verdict::AsDeclared {
                 other.verdict = Verdict::Undecidable;
-                other.reason = format!("{n} steps of its size show on {found}, and {moved}, declared with it on {own}, fits them as well: one of the two is on {found}, the data cannot tell which");
+                other.reason = why;
+                rivals_settled.push(c.rival.app);
             }
         } else {
             ck.reason = format!(
@@ -1386,6 +1416,29 @@ mod tests {
         let o = check(&d, &events, &day_stats(3, 200.0), 1.0);
         let found: Vec<&str> = o.findings.iter().map(|f| f.subject.as_str()).collect();
         assert_eq!(found, ["kettle"], "{:?}", o.possible);
+    }
+
+    /// Placement stage, three-phase at 1 s: the kettle's move of the test
+    /// above, with a 2 kW microwave declared beside it on L1-N as well. The
+    /// washer, first in the declaration, has only about the size of the
+    /// steps; the microwave fits them: it is the one named, and the
+    /// kettle's placement is undecidable, its reason naming the microwave.
+    #[test]
+    fn a_lookalike_that_fits_the_steps_is_named_before_one_of_about_their_size() {
+        use crate::audit::check::check;
+        use crate::audit::check::testkit::three_phase;
+        let d = three_phase(vec![
+            on_off("kettle", 0, C64::new(2000.0, 0.0)),
+            on_off("washer", 2, C64::new(2100.0, 0.0)),
+            on_off("microwave", 0, C64::new(2000.0, 0.0)),
+        ]);
+        let o = check(&d, &runs_on(3, 1, 2000.0, 4, 0), &day_stats(3, 200.0), 1.0);
+        let moved = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
+        let why = moved.doubt.as_deref().unwrap();
+        assert!(why.contains("microwave is declared with it"), "{why}");
+        let kettle = &o.appliances[0];
+        assert_eq!(kettle.verdict, Verdict::Undecidable, "{kettle:?}");
+        assert!(kettle.reason.contains("microwave"), "{kettle:?}");
     }
 
     /// Placement stage: a fridge moved from L1-N to L2-N, then a kettle from

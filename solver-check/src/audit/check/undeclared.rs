@@ -1433,7 +1433,7 @@ mod tests {
     /// below the 0.1 % bar (scipy.stats.poisson.sf; counting its 65 W
     /// jumps and every jump's return too, 35 expected, it would not be).
     #[test]
-    fn a_habit_bounds_a_loads_runs_by_its_jumps_of_that_size() {
+    fn a_habit_bounds_a_loads_runs_by_its_rises_of_that_size() {
         use crate::audit::check::check;
         use crate::audit::check::testkit::heater_program;
         let mut program = heater_program(0, 65.0, 1300.0, 2, 1);
