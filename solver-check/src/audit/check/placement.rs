@@ -1197,9 +1197,14 @@ pub(super) fn settle_contested(
     contested: &[Contested],
     placed: &[DeclAppliance],
 ) {
+    // Which appliances the placement moved, before any verdict here changes.
+    let was_moved: Vec<bool> = checks
+        .iter()
+        .map(|c| c.verdict == Verdict::Finding)
+        .collect();
     let mut rivals_settled: Vec<usize> = Vec::new();
     for c in contested {
-        if checks[c.rival.app].verdict == Verdict::Finding {
+        if was_moved[c.rival.app] {
             continue;
         }
         let (moved, rival) = (&placed[c.app].id, &placed[c.rival.app].id);
