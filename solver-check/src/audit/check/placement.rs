@@ -828,13 +828,15 @@ impl Round<'_> {
             if d.partial && f.doubt.is_none() {
                 f.doubt = self.shared_doubt(j, &name_a);
             }
+            // A look-alike that fits the steps leaves the move undecidable
+            // whichever doubt is given first.
             let mut rival = None;
-            if one_power(a) && f.doubt.is_none() {
+            if one_power(a) {
                 let line_to_line = f.kind == Kind::WrongLine;
                 let size = alt.largest_step_w();
                 if let Some((why, r)) = self.lookalike_doubt(j, &name_a, size, &all_a, line_to_line)
                 {
-                    f.doubt = Some(why);
+                    f.doubt.get_or_insert(why);
                     rival = r;
                 }
             }
@@ -1384,6 +1386,20 @@ mod tests {
             assert_eq!(ck.verdict, Verdict::Undecidable, "{ck:?}");
             assert!(ck.reason.contains(rival), "{ck:?}");
             assert!(ck.reason.contains("one of the two is on L2-N"), "{ck:?}");
+        }
+        // Declared as partial, the move's first doubt is another (the steps
+        // where declared fit both alike); the look-alike still leaves both
+        // undecidable.
+        let mut partial = d.clone();
+        partial.partial = true;
+        let o = check(&partial, &events, &day_stats(2, 200.0), 1.0);
+        let moved = o.possible.iter().find(|f| f.subject == "kettle").unwrap();
+        assert!(
+            !moved.doubt.as_ref().unwrap().contains("either may be"),
+            "{moved:?}"
+        );
+        for ck in &o.appliances {
+            assert_eq!(ck.verdict, Verdict::Undecidable, "{ck:?}");
         }
         let d = split_phase(vec![kettle, on_off("dishwasher", 0, C64::new(1165.0, 0.0))]);
         let o = check(&d, &runs_on(2, 1, 1500.0, 4, 0), &day_stats(2, 200.0), 1.0);
