@@ -315,6 +315,16 @@ pub(super) struct Candidate {
     pub rival: Option<Rival>,
 }
 
+/// The steps a move stands on: the appliance moved (among those placed),
+/// the wiring they show on, their size there (W) and the steps.
+#[derive(Clone, Copy)]
+struct MovedSteps<'s> {
+    app: usize,
+    found: &'s str,
+    size: f64,
+    steps: &'s [usize],
+}
+
 /// A move whose steps a rival accounts for as well ([`Rival`]): the moved
 /// appliance, the rival, the wiring the steps show on and how many.
 #[derive(Clone, Debug, PartialEq)]
@@ -630,9 +640,8 @@ impl Round<'_> {
         })
     }
 
-    /// Why the steps of a one-power appliance `j` moved to `found` (`size`
-    /// W there; `steps`, those that fit it there) may be another one-power
-    /// appliance's: one declared on `found`, not seen switching there
+    /// Why the steps of a one-power appliance moved (`mv`) may be another
+    /// one-power appliance's: one declared on `found`, not seen switching there
     /// (fewer than `seen_where_declared` steps), with its size within
     /// `nameplate_band` of theirs (it is there, drawing other than its
     /// nameplate: no mistake at all); or, for a move from one line to
@@ -649,40 +658,34 @@ impl Round<'_> {
     /// only about their size.
     fn lookalike_doubt(
         &self,
-        j: usize,
-        found: &str,
-        size: f64,
-        steps: &[usize],
+        mv: &MovedSteps,
         line_to_line: bool,
     ) -> Option<(String, Option<Rival>)> {
         let doubts: Vec<(String, Option<Rival>)> = (0..self.placed.len())
-            .filter(|&y| y != j)
-            .filter_map(|y| self.lookalike(j, y, found, size, steps, line_to_line))
+            .filter(|&y| y != mv.app)
+            .filter_map(|y| self.lookalike(mv, y, line_to_line))
             .collect();
         let pick = doubts.iter().position(|(_, r)| r.is_some()).unwrap_or(0);
         doubts.into_iter().nth(pick)
     }
 
-    /// Whether appliance `y` may make the steps of appliance `j` moved to
-    /// `found` ([`Self::lookalike_doubt`]): why, and whether it fits them.
+    /// Whether appliance `y` may make the steps of a move (`mv`,
+    /// [`Self::lookalike_doubt`]): why, and whether it fits them.
     fn lookalike(
         &self,
-        j: usize,
+        mv: &MovedSteps,
         y: usize,
-        found: &str,
-        size: f64,
-        steps: &[usize],
         line_to_line: bool,
     ) -> Option<(String, Option<Rival>)> {
         let b = &self.placed[y];
         if !one_power(b) || b.steps.jumps().is_empty() {
             return None;
         }
-        let there = same_wiring_name(&wiring_names(b), found);
+        let there = same_wiring_name(&wiring_names(b), mv.found);
         let (why, fits) = if there {
-            self.unseen_there(y, size, found, steps)
+            self.unseen_there(mv, y)
         } else if line_to_line {
-            self.moved_lookalike(j, y, found, size, steps)
+            self.moved_lookalike(mv, y)
         } else {
             None
         }?;
@@ -696,17 +699,14 @@ impl Round<'_> {
         ))
     }
 
-    /// Whether appliance `y`, declared on `found`, accounts for the steps
-    /// there (`size` W, `steps`) as they are: it fits half of them or more
+    /// Whether appliance `y`, declared where the steps of a move (`mv`)
+    /// show, accounts for them as they are: it fits half of them or more
     /// (true with the reason), or it was not seen switching there and has
     /// about their size (false).
-    fn unseen_there(
-        &self,
-        y: usize,
-        size: f64,
-        found: &str,
-        steps: &[usize],
-    ) -> Option<(String, bool)> {
+    fn unseen_there(&self, mv: &MovedSteps, y: usize) -> Option<(String, bool)> {
+        let MovedSteps {
+            found, size, steps, ..
+        } = *mv;
         let b = &self.placed[y];
         let w = b.largest_step_w();
         if 2 * self.fitting(b, steps) >= steps.len() {
@@ -723,20 +723,18 @@ impl Round<'_> {
         }
     }
 
-    /// Whether appliance `y` could be the one whose steps on `found` (`size`
-    /// W, `steps`) are taken for appliance `j` moved there from one line to
-    /// another: moved there by a move of that kind, declared with `j` and
-    /// fitting half of the steps or more (true with the reason), or not
-    /// seen where declared and within `nameplate_band` of their size
-    /// (false).
-    fn moved_lookalike(
-        &self,
-        j: usize,
-        y: usize,
-        found: &str,
-        size: f64,
-        steps: &[usize],
-    ) -> Option<(String, bool)> {
+    /// Whether appliance `y` could be the one whose steps are taken for an
+    /// appliance moved from one line to another (`mv`): moved there by a
+    /// move of that kind, declared with the moved one and fitting half of
+    /// the steps or more (true with the reason), or not seen where declared
+    /// and within `nameplate_band` of their size (false).
+    fn moved_lookalike(&self, mv: &MovedSteps, y: usize) -> Option<(String, bool)> {
+        let MovedSteps {
+            app: j,
+            found,
+            size,
+            steps,
+        } = *mv;
         let b = &self.placed[y];
         let own = wiring_names(b);
         let (_, there) = alternatives(self.d, b)
@@ -834,8 +832,13 @@ impl Round<'_> {
             if one_power(a) {
                 let line_to_line = f.kind == Kind::WrongLine;
                 let size = alt.largest_step_w();
-                if let Some((why, r)) = self.lookalike_doubt(j, &name_a, size, &all_a, line_to_line)
-                {
+                let mv = MovedSteps {
+                    app: j,
+                    found: &name_a,
+                    size,
+                    steps: &all_a,
+                };
+                if let Some((why, r)) = self.lookalike_doubt(&mv, line_to_line) {
                     f.doubt.get_or_insert(why);
                     rival = r;
                 }
