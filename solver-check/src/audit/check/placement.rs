@@ -661,12 +661,17 @@ impl Round<'_> {
         mv: &MovedSteps,
         line_to_line: bool,
     ) -> Option<(String, Option<Rival>)> {
-        let doubts: Vec<(String, Option<Rival>)> = (0..self.placed.len())
-            .filter(|&y| y != mv.app)
-            .filter_map(|y| self.lookalike(mv, y, line_to_line))
-            .collect();
-        let pick = doubts.iter().position(|(_, r)| r.is_some()).unwrap_or(0);
-        doubts.into_iter().nth(pick)
+        let mut first = None;
+        for y in (0..self.placed.len()).filter(|&y| y != mv.app) {
+            let Some(doubt) = self.lookalike(mv, y, line_to_line) else {
+                continue;
+            };
+            if doubt.1.is_some() {
+                return Some(doubt);
+            }
+            first.get_or_insert(doubt);
+        }
+        first
     }
 
     /// Whether appliance `y` may make the steps of a move (`mv`,
