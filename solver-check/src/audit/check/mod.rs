@@ -49,9 +49,10 @@ use crate::contract::line_name;
 use finding::{same_wiring_name, sort_findings};
 use fit::{jumps_seen, METERING_STEP};
 use metering::{
-    absent_channels, channel_findings, choose_metering, dispute, doubt_mirror, metering_confidence,
-    metering_doubt, metering_findings, metering_settled, orient, place_under,
-    silent_channel_accounts, simpler_account, MeteringChoice, Placement,
+    absent_channels, channel_findings, choose_metering, dispute, metering_confidence,
+    metering_doubt, metering_findings, metering_settled, mirror_doubt, orient, place_under,
+    silent_channel_accounts, simpler_account, weigh_mirror, MeteringChoice, MirrorAccount,
+    Placement,
 };
 use placement::{indistinct_notes, settle_contested, Window};
 use serde_json::json;
@@ -125,23 +126,16 @@ pub fn check_with(
     let decl_i = mc.decl_i;
     // A battery may let a metering found fit as well with every reading
     // negated: the appliances' times on and off tell which way it reads.
-    let mut chosen = orient(d, &mc, &big, interval_s, th);
+    let chosen = orient(d, &mc, &big, interval_s, th);
     let (decl_apps, decl_ex) = (mc.scored[decl_i].apps, mc.scored[decl_i].ex);
-    // 2. Appliances, under the metering chosen; several appliances moved
-    // where a metering fault and fewer moves explain as much is the less
-    // simple account.
+    // 2. Appliances, under the metering chosen or the simpler account
+    // that stands against it (`settle_account`).
     let used: Vec<&Event> = events.iter().filter(|e| e.size() >= USE_STEP).collect();
     let hours = stats.iter().map(|s| s.rows).max().unwrap_or(0) as f64 * interval_s / 3600.0;
     let window = Window { interval_s, hours };
-    let mut pl = place_under(d, &mc, chosen, &used, window, th);
-    let mut replaced = 0;
-    if chosen == decl_i && pl.moves.len() >= 2 {
-        let loads = |p: &Placement| loads_left(d, &mc, p, &used, (stats, &absent), window, th);
-        if let Some(alt) = simpler_account(d, &mc, &pl, (&used, &big), window, th, &loads) {
-            replaced = pl.moves.len() - alt.moves.len();
-            (chosen, pl) = (alt.hyp, alt);
-        }
-    }
+    let (mut pl, replaced, mirror) =
+        settle_account(d, &mc, chosen, (&used, &big), (stats, &absent), window, th);
+    let chosen = pl.hyp;
     let doubt = if chosen == decl_i && pl.moves.len() == 1 {
         metering_doubt(d, &mc, &pl, &used, &big, window, th)
     } else {
@@ -167,7 +161,7 @@ pub fn check_with(
             d,
             &mc,
             (chosen, replaced),
-            (&big, interval_s),
+            (big.len(), mirror),
             th,
         ));
         silent_channel_accounts(&m, &mut findings, &mut notes);
@@ -194,6 +188,42 @@ pub fn check_with(
         steps: used.len(),
         steps_explained,
         notes,
+    }
+}
+
+/// The appliances placed under metering `chosen`, or the account that
+/// stands against it: several appliances moved where a metering fault and
+/// fewer moves explain as much is the less simple account
+/// ([`simpler_account`]); a battery may leave the metering found and its
+/// mirror image undecided by the times on and off, and then the account
+/// with fewer mistakes stands ([`weigh_mirror`]). With the appliance moves
+/// a metering fault replaced, and the mirror that fits as well with as
+/// many mistakes, which leaves the metering found only possible.
+fn settle_account(
+    d: &Declared,
+    mc: &MeteringChoice,
+    chosen: usize,
+    (used, big): (&[&Event], &[&Event]),
+    (stats, absent): (&[ChannelStats], &[bool]),
+    window: Window,
+    th: &Thresholds,
+) -> (Placement, usize, Option<usize>) {
+    let mut pl = place_under(d, mc, chosen, used, window, th);
+    let mut replaced = 0;
+    if chosen == mc.decl_i && pl.moves.len() >= 2 {
+        let loads = |p: &Placement| loads_left(d, mc, p, used, (stats, absent), window, th);
+        if let Some(alt) = simpler_account(d, mc, &pl, (used, big), window, th, &loads) {
+            replaced = pl.moves.len() - alt.moves.len();
+            pl = alt;
+        }
+    }
+    if pl.hyp == mc.decl_i {
+        return (pl, replaced, None);
+    }
+    match weigh_mirror(d, mc, &pl, (used, big), window, th) {
+        MirrorAccount::Simpler(alt) => (alt, replaced, None),
+        MirrorAccount::Rival(r) => (pl, replaced, Some(r)),
+        MirrorAccount::Apart => (pl, replaced, None),
     }
 }
 
@@ -267,21 +297,26 @@ fn undeclared_loads(
 }
 
 /// The findings of metering `chosen` (that replaced `replaced` appliance
-/// moves), not the declared one, judged on the steps `big` taken
-/// `interval_s` apart: each mistake it makes, doubted where its mirror
-/// image fits as well or where it makes too many at once.
+/// moves), not the declared one, judged on `steps` steps: each mistake it
+/// makes, doubted where its mirror image (`mirror`, [`weigh_mirror`])
+/// fits as well or where it makes too many at once.
 fn found_metering(
     d: &Declared,
     mc: &MeteringChoice,
     (chosen, replaced): (usize, usize),
-    (big, interval_s): (&[&Event], f64),
+    (steps, mirror): (usize, Option<usize>),
     th: &Thresholds,
 ) -> Vec<Finding> {
     let conf = metering_confidence(&mc.scored[mc.decl_i], &mc.scored[chosen], replaced, th);
-    let ev = found_evidence(mc, chosen, big.len(), replaced, th);
+    let ev = found_evidence(mc, chosen, steps, replaced, th);
     let mut found = Vec::new();
     metering_findings(d, &mc.decl_m, &mc.hyps[chosen].0, conf, ev, &mut found);
-    doubt_mirror(d, mc, chosen, (big, interval_s), th, &mut found);
+    if let Some(rival) = mirror {
+        let why = mirror_doubt(d, mc, rival);
+        for f in &mut found {
+            f.doubt.get_or_insert_with(|| why.clone());
+        }
+    }
     doubt_many_faults(&mut found, th);
     found
 }
