@@ -375,7 +375,8 @@ fn mirror_undecided(
 /// image where the appliances' times on and off leave the two undecided
 /// ([`weigh_mirror`]).
 pub(super) enum MirrorAccount {
-    /// No such mirror, or one that supposes more mistakes.
+    /// No mirror that fits as well, one the times on and off tell apart,
+    /// or one that supposes more mistakes.
     Apart,
     /// A mirror (as renamed) that supposes as many mistakes: the metering
     /// found is only possible, and the doubt names this one.
@@ -403,9 +404,10 @@ pub(super) enum MirrorAccount {
 /// there the mirror as renamed is a rival. Loads nobody declared are not counted: unlike a
 /// move, they contradict nothing the installer declared, and their count
 /// under one account or the other follows how the steps cluster (counting
-/// them left two of the six accounts this rule settles in the outside
+/// them left two of the five accounts this rule settles in the outside
 /// validation's development sets undecided, both rightly settled
-/// without).
+/// without). A mirror no renaming makes simpler (three changes against
+/// one) is no rival.
 pub(super) fn weigh_mirror(
     d: &Declared,
     mc: &MeteringChoice,
@@ -1403,7 +1405,8 @@ mod tests {
 
     /// With a battery on both lines, two CTs exchanged and the channels
     /// exchanged whole (every reading negated, V2 = −V1) fit the steps alike:
-    /// the metering found names its mirror and is only possible.
+    /// each is the other's mirror, and the doubt names it. Not without a
+    /// battery, nor with PV alone.
     #[test]
     fn a_battery_leaves_a_split_phase_metering_and_its_mirror_apart_undecided() {
         use crate::audit::check::testkit::split_phase;

@@ -196,7 +196,8 @@ pub fn check_with(
 /// fewer moves explain as much is the less simple account
 /// ([`simpler_account`]); a battery may leave the metering found and its
 /// mirror image undecided by the times on and off, and then the account
-/// with fewer mistakes stands ([`weigh_mirror`]). With the appliance moves
+/// with fewer mistakes stands ([`weigh_mirror`]; not in place of the
+/// declared metering, nor of a fault that replaced moves). With the appliance moves
 /// a metering fault replaced, and the mirror that fits as well with as
 /// many mistakes, which leaves the metering found only possible.
 fn settle_account(
@@ -221,7 +222,13 @@ fn settle_account(
         return (pl, replaced, None);
     }
     match weigh_mirror(d, mc, &pl, (used, big), window, th) {
-        MirrorAccount::Simpler(alt) => (alt, replaced, None),
+        // A fault that replaced appliance moves, or a mirror that is the
+        // declared metering, is left to the rules that chose it: the mirror
+        // then only doubts it.
+        MirrorAccount::Simpler(alt) if replaced > 0 || alt.hyp == mc.decl_i => {
+            (pl, replaced, Some(alt.hyp))
+        }
+        MirrorAccount::Simpler(alt) => (alt, 0, None),
         MirrorAccount::Rival(r) => (pl, replaced, Some(r)),
         MirrorAccount::Apart => (pl, replaced, None),
     }
@@ -299,7 +306,7 @@ fn undeclared_loads(
 /// The findings of metering `chosen` (that replaced `replaced` appliance
 /// moves), not the declared one, judged on `steps` steps: each mistake it
 /// makes, doubted where its mirror image (`mirror`, [`weigh_mirror`])
-/// fits as well or where it makes too many at once.
+/// fits as well with as many mistakes, or where it makes too many at once.
 fn found_metering(
     d: &Declared,
     mc: &MeteringChoice,

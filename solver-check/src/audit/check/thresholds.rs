@@ -75,7 +75,7 @@ pub struct Thresholds {
     /// what the sizes beside its own get by chance (`beyond_chance`), the
     /// undeclared loads an account leaves are no count of its mistakes, and
     /// a battery home's metering is not weighed against its mirror image
-    /// by the appliances each moves.
+    /// by their mistakes.
     pub coarse_interval_s: f64,
     /// An appliance whose largest step is under this (W, on every connection
     /// it could be on) is not placed: smaller steps of many loads look alike.
