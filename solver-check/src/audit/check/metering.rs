@@ -1942,7 +1942,14 @@ mod tests {
         let only_possible = |o: &Outcome| {
             assert!(o.findings.is_empty(), "{:?}", o.findings);
             let doubt = o.possible[0].doubt.as_deref().unwrap_or_default();
-            assert!(doubt.contains("negated") && doubt.contains("L2"), "{doubt}");
+            // The rival named is the mirror renamed (one change), not its
+            // three changes on L1.
+            assert!(
+                doubt.contains("negated")
+                    && doubt.contains("channel l1 is on conductor L2")
+                    && !doubt.contains("reversed"),
+                "{doubt}"
+            );
         };
         // At 1 min a move may be two loads switching within a row: not
         // weighed.
@@ -1994,6 +2001,56 @@ mod tests {
             (MirrorAccount::Rival(r), renamed) => assert_eq!(r, renamed),
             _ => panic!("one mistake each"),
         }
+    }
+
+    /// The account that stands ([`super::settle_account`]) is the renamed
+    /// mirror where it supposes fewer mistakes: its placement, no rival
+    /// left, no move replaced. Where the mirror is the declared metering
+    /// (both CTs found reversed, the declaration right), it only doubts
+    /// the fault found: the rules that chose that fault stand.
+    #[test]
+    fn the_account_that_stands_is_the_mirror_with_fewer_mistakes_unless_declared() {
+        let th = &Thresholds::STANDARD;
+        let window = Window {
+            interval_s: 1.0,
+            hours: 48.0,
+        };
+        let settle = |d: &Declared, v: &[Event], srcs: [usize; 2], maps: [ChanMap; 2]| {
+            let events: Vec<&Event> = v.iter().collect();
+            let mc = favouring(d, srcs, |hyps| metering_reading(hyps, maps));
+            let (pl, replaced, mirror) = super::super::settle_account(
+                d,
+                &mc,
+                mc.chosen,
+                (&events, &events),
+                (&consuming(2), &[false, false]),
+                window,
+                th,
+            );
+            (pl.hyp, replaced, mirror, mc)
+        };
+        let (src, k, turned) = (0, 1.0, true);
+        let on_l1 = [ChanMap { src, k, turned }, ChanMap { src, k, turned }];
+        let (d, v) = heater_and_lamp_on(1);
+        let (hyp, replaced, mirror, mc) = settle(&d, &v, [0, 0], on_l1);
+        let on_l2 = on_l1.map(|c| ChanMap { src: 1, ..c });
+        assert_eq!(hyp, metering_reading(&mc.hyps, on_l2));
+        assert_eq!((replaced, mirror), (0, None));
+        // Declared as read: the heater's halves on both lines, the lamp on
+        // L1-N; found with both CTs reversed, whose mirror is the declared.
+        let (d, _) = heater_and_lamp_on(0);
+        let mut v = Vec::new();
+        balanced_runs(0, 12, [1500.0, 1500.0], &mut v);
+        balanced_runs(H, 12, [500.0, 0.0], &mut v);
+        v.sort_by_key(|e| e.time_ms);
+        let reversed = [0, 1].map(|src| ChanMap {
+            src,
+            k: -1.0,
+            turned,
+        });
+        let (hyp, _, mirror, mc) = settle(&d, &v, [0, 1], reversed);
+        assert_eq!(hyp, metering_reading(&mc.hyps, reversed));
+        assert_eq!(mirror, Some(mc.decl_i));
     }
 
     fn kinds(o: &Outcome) -> Vec<(&str, &str)> {
