@@ -835,8 +835,16 @@ def run_case(case, work, cutoffs=()):
 
 
 def unread(case):
-    """Conductors no CT reads in this case (a missing CT injected)."""
-    return {l for m in case["mistakes"] if m["kind"] == "no-ct" for l in m["lines"]}
+    """Conductors no CT reads in this case: a missing CT injected, or a CT
+    moved onto another conductor, which leaves its own conductor read by
+    none (the first of its `lines`)."""
+    out = set()
+    for m in case["mistakes"]:
+        if m["kind"] == "no-ct":
+            out |= set(m["lines"])
+        elif m["kind"] == "ct-on-other-conductor":
+            out.add(m["lines"][0])
+    return out
 
 
 def lookalike(m, case):

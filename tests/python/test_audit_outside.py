@@ -65,6 +65,11 @@ def test_the_generator_counts_apart_what_the_data_cannot_show():
     # ... nor when its real line has no CT.
     no_ct = {"kind": "no-ct", "subject": {"l2"}, "lines": ["L2"]}
     assert ao.shows(moved, {**case, "mistakes": [moved, no_ct]}, many) == "on L2, which no CT reads"
+    # ... nor when the CT of its real line sits on another conductor.
+    away = {"kind": "ct-on-other-conductor", "subject": {"l2"}, "lines": ["L2", "L1"]}
+    assert ao.shows(moved, {**case, "mistakes": [moved, away]}, many) == "on L2, which no CT reads"
+    onto = {"kind": "ct-on-other-conductor", "subject": {"l1"}, "lines": ["L1", "L2"]}
+    assert ao.shows(moved, {**case, "mistakes": [moved, onto]}, many) is None
     # A CT moved onto a conductor that never carries 300 W reads as a missing CT.
     idle = {"kind": "ct-on-other-conductor", "subject": {"l1"}, "lines": ["L1", "L2"]}
     t = truth_of(a_l1_p_w=[0.0, 900.0], b_l2_p_w=[0.0, 120.0])
