@@ -40,7 +40,8 @@ once on main at abeaf6c to describe the classes of failure, with the
 generator before its homes and exports grew), 547 and 883, 9137, 5527,
 6421, 7919, 4409, 6113, 8807, 3301, 5119, 6271, 7351 and 2609, all
 seen since; 4157 (the README's held-out set, run on the audits of
-80b3395 and 47b5fb6, the same figures each time).
+80b3395 and 47b5fb6, the same figures each time, and on b5d19ab with
+this generator's fix for loads on a conductor whose CT is elsewhere).
 
 Scoring (common practice in detection tasks, no source): a finding is
 correct when it names an injected mistake (kind, subject, and for a wiring
