@@ -401,13 +401,14 @@ pub(super) enum MirrorAccount {
 /// practice, no source). Not at a coarse interval, where a move may be
 /// loads switching within one row (the one account so settled at 1 min
 /// in the development sets was right, the one in a held-out set wrong):
-/// there the mirror as renamed is a rival. Loads nobody declared are not counted: unlike a
-/// move, they contradict nothing the installer declared, and their count
-/// under one account or the other follows how the steps cluster (counting
-/// them left two of the five accounts this rule settles in the outside
-/// validation's development sets undecided, both rightly settled
-/// without). A mirror no renaming makes simpler (three changes against
-/// one) is no rival.
+/// there the mirror as renamed is a rival. Loads nobody declared are not
+/// counted: unlike a move, they contradict nothing the installer
+/// declared, and their count under one account or the other follows how
+/// the steps cluster (counting them left two of the five accounts this
+/// rule settles in the outside validation's development sets undecided,
+/// both rightly settled without). A mirror no renaming makes simpler is
+/// weighed with its three changes against the one of the metering found,
+/// and is no rival.
 pub(super) fn weigh_mirror(
     d: &Declared,
     mc: &MeteringChoice,
