@@ -342,18 +342,18 @@ pub(super) fn metering_settled(mc: &MeteringChoice, chosen: usize, th: &Threshol
     })
 }
 
-/// Whether metering `chosen` has a mirror image that fits as well
-/// ([`mirror_of`]) and the appliances' times on and off do not tell the
+/// The mirror image of metering `chosen` that fits as well
+/// ([`mirror_of`]), where the appliances' times on and off do not tell the
 /// two apart ([`orientation`]), under it nor, with two CTs on one
 /// conductor, under a renaming of it.
-fn mirror_undecided(
+fn undecided_mirror(
     d: &Declared,
     mc: &MeteringChoice,
     chosen: usize,
     big: &[&Event],
     interval_s: f64,
     th: &Thresholds,
-) -> bool {
+) -> Option<usize> {
     let decided = |c: usize| {
         mirror_of(d, mc, c, th)
             .is_some_and(|mirror| orientation(d, mc, c, mirror, big, interval_s, th) == Some(c))
@@ -366,7 +366,7 @@ fn mirror_undecided(
             && (0..mc.hyps.len())
                 .any(|r| r != chosen && renamed(d, &mc.hyps[chosen].0, &mc.hyps[r].0) && decided(r))
     };
-    mirror_of(d, mc, chosen, th).is_some_and(|mirror| {
+    mirror_of(d, mc, chosen, th).filter(|&mirror| {
         orientation(d, mc, chosen, mirror, big, interval_s, th).is_none() && !renaming_decided()
     })
 }
@@ -388,7 +388,7 @@ pub(super) enum MirrorAccount {
 
 /// Metering `chosen` (its appliances placed as `pl`) against its mirror
 /// image where the appliances' times on and off, on the steps `big`, do
-/// not tell the two apart ([`mirror_undecided`]). With two CTs on one
+/// not tell the two apart ([`undecided_mirror`]). With two CTs on one
 /// conductor the mirror is renamed as simply as the steps allow
 /// ([`simplest_renaming`]): both CTs on the other conductor, both
 /// reversed (three changes), read what one CT moved does (one change), the
@@ -418,9 +418,8 @@ pub(super) fn weigh_mirror(
     th: &Thresholds,
 ) -> MirrorAccount {
     let chosen = pl.hyp;
-    let mirror = match mirror_of(d, mc, chosen, th) {
-        Some(m) if mirror_undecided(d, mc, chosen, big, window.interval_s, th) => m,
-        _ => return MirrorAccount::Apart,
+    let Some(mirror) = undecided_mirror(d, mc, chosen, big, window.interval_s, th) else {
+        return MirrorAccount::Apart;
     };
     let rival = if two_on_one(&mc.hyps[mirror].0) {
         simplest_renaming(d, &mc.hyps, &mc.scored, mirror, big, th)
