@@ -571,14 +571,31 @@ pub(super) fn jumps_seen(
     interval_s: f64,
     hours: f64,
 ) -> SeenJumps {
-    let seen = placed
+    let jumps: Vec<(usize, Vec<Option<C64>>)> = placed
         .iter()
         .enumerate()
         .flat_map(|(j, a)| predicted(d, m, a).into_iter().map(move |r| (j, r)))
-        .map(|(j, r)| {
-            let n = events.iter().filter(|e| fits(e, &r)).count();
-            (j, r, n)
-        })
+        .collect();
+    // Each step counts once, for the jump it fits best: a step that fits
+    // several alike jumps (one appliance's states, or two look-alikes) is
+    // one switching, and counting it for each would multiply the
+    // coincidences expected of it.
+    let mut counts = vec![0usize; jumps.len()];
+    for e in events {
+        let best = jumps
+            .iter()
+            .enumerate()
+            .map(|(k, (_, r))| (k, dist(e, r)))
+            .filter(|(_, x)| *x <= 1.0)
+            .min_by(|a, b| a.1.total_cmp(&b.1));
+        if let Some((k, _)) = best {
+            counts[k] += 1;
+        }
+    }
+    let seen = jumps
+        .into_iter()
+        .zip(counts)
+        .map(|((j, r), n)| (j, r, n))
         .filter(|(_, _, n)| *n > 0)
         .collect();
     let t_s = hours * 3600.0;

@@ -886,6 +886,40 @@ mod tests {
         assert_eq!(rate(2000.0), 0.0);
     }
 
+    /// A step that fits two alike declared jumps is one switching: a 1 kW
+    /// heater and a 1.01 kW look-alike beside a 500 W one, with 100 steps
+    /// of each size seen, expect the 1.5 kW sum at the rate of one pair
+    /// (0.556, as above), not of two: each step counts for the jump it fits
+    /// best, and the look-alike, fitting none best, for none.
+    #[test]
+    fn a_step_that_fits_two_alike_jumps_counts_once() {
+        let heater = |id: &str, w: f64| on_off(id, 0, C64::new(w, 0.0));
+        let d = split_phase(vec![
+            heater("a", 1000.0),
+            heater("b", 500.0),
+            heater("c", 1010.0),
+        ]);
+        let m = declared_metering(&d, &[false, false, false]);
+        let events: Vec<Event> = (0..100)
+            .flat_map(|i| {
+                let sign = if i % 2 == 0 { 1.0 } else { -1.0 };
+                [
+                    l1_step(i * H, sign * 1000.0),
+                    l1_step(i * H + H / 2, sign * 500.0),
+                ]
+            })
+            .collect();
+        let refs: Vec<&Event> = events.iter().collect();
+        let sums = jumps_seen(&d, &m, &d.appliances, &refs, 10.0, 100.0).sums();
+        let near_1500: f64 = sums
+            .iter()
+            .filter(|(r, _)| dist_delta(&[C64::new(1500.0, 0.0), C64::ZERO], r) <= 1.0)
+            .map(|(_, x)| *x)
+            .sum();
+        let one_pair = 100.0 * 100.0 * 40.0 / (2.0 * 360_000.0);
+        assert!((near_1500 - one_pair).abs() < 1e-9, "{near_1500}");
+    }
+
     /// A step nobody declared coincides with a declared jump at the same
     /// Poisson rate as two declared ones: 100 steps of a 700 W load and
     /// 100 of a 1 kW heater in 100 h of 10 s rows (2τ = 40 s) make
