@@ -94,9 +94,11 @@ pub struct Thresholds {
     /// and stops balance, its size is no declared jump and coincidences of
     /// two make few of its steps (`composite_share`): loads that happen to switch within one row do
     /// not repeat at one size, starting and stopping alike, ten times
-    /// (common practice, no source). Twice as many steps, beyond chance where
-    /// found and not where declared, make a move at a coarse interval a
-    /// finding (`coarse_move_doubt`); as many overlaps, a load of a
+    /// (common practice, no source). As many steps (half as many runs),
+    /// beyond chance where found and not where declared, and beyond what
+    /// two declared loads switching together make, make a move at a coarse
+    /// interval a finding (`coarse_move_doubt`: the chances carry the
+    /// weight there); as many overlaps, a load of a
     /// declared appliance's size beside it (a lost stop is likelier there);
     /// as many runs beyond the habits of what could make them, a load
     /// hidden among appliances of its size.
@@ -302,7 +304,7 @@ pub const CUTOFFS: [Cutoff; 23] = [
     },
     Cutoff {
         name: "coarse_interval_s",
-        meaning: "reporting interval (s) from which placements and undeclared loads are only possible (a move or an undeclared load of coarse_runs runs, beyond chance, a look-alike of coarse_runs overlaps, or a hidden load of coarse_runs runs beyond the habits of what could make it, excepted), from which the undeclared loads an account of a metering fault leaves are not counted as its mistakes, and from which a battery home's metering and its mirror image are not weighed by their mistakes (the metering found stays possible)",
+        meaning: "reporting interval (s) from which placements and undeclared loads are only possible (a move of coarse_runs steps or an undeclared load of coarse_runs runs, beyond chance, a look-alike of coarse_runs overlaps, or a hidden load of coarse_runs runs beyond the habits of what could make it, excepted), from which the undeclared loads an account of a metering fault leaves are not counted as its mistakes, and from which a battery home's metering and its mirror image are not weighed by their mistakes (the metering found stays possible)",
         range: (0.0, 86_400.0),
         count: false,
         get: |t| t.coarse_interval_s,
@@ -326,7 +328,7 @@ pub const CUTOFFS: [Cutoff; 23] = [
     },
     Cutoff {
         name: "coarse_runs",
-        meaning: "runs seen whole that make an undeclared load at a coarse interval a finding (starts and stops alike, no declared jump's size, far more than coincidences of two make), overlaps a load of a declared appliance's size beside it, runs beyond the habits a load hidden among appliances of its size, and twice as many steps a move",
+        meaning: "runs seen whole that make an undeclared load at a coarse interval a finding (starts and stops alike, no declared jump's size, far more than coincidences of two make), overlaps a load of a declared appliance's size beside it, runs beyond the habits a load hidden among appliances of its size, and steps a move",
         range: (0.0, 1e6),
         count: true,
         get: |t| t.coarse_runs as f64,
