@@ -38,10 +38,10 @@ development seeds the audit may be looked at against (4 and 5 since the
 audit of 0f8a627). Held out, each run once to report: 11 and 23, 311 (run
 once on main at abeaf6c to describe the classes of failure, with the
 generator before its homes and exports grew), 547 and 883, 9137, 5527,
-6421, 7919, 4409, 6113, 8807, 3301, 5119, 6271, 7351 and 2609, all
-seen since; 4157 (the README's held-out set, run on the audits of
-80b3395 and 47b5fb6, the same figures each time, and on b5d19ab with
-this generator's fix for loads on a conductor whose CT is elsewhere).
+6421, 7919, 4409, 6113, 8807, 3301, 5119, 6271, 7351, 2609 and 4157 (on
+80b3395, 47b5fb6 and b5d19ab), all seen since; 6733 (the README's
+held-out set, run once on the audit of 84a8253, and on 91b7cf1, the
+audit before it, to tell what that change did).
 
 Scoring (common practice in detection tasks, no source): a finding is
 correct when it names an injected mistake (kind, subject, and for a wiring
