@@ -86,14 +86,18 @@ def test_a_partial_declaration_stays_right(simulate, tmp_path):
 
 def test_real_power_only_without_a_manifest(simulate, tmp_path):
     """A monitor export with P per line only, no manifest: the audit runs,
-    says what it could not use, and lists the misdeclared kettle as
-    possible: at 1 min two loads switching in one row make one step."""
+    says what it could not use, and finds the misdeclared kettle. At 1 min
+    two loads switching in one row make one step, so a move needs
+    `coarse_runs` steps where found (here 11), beyond chance there and
+    beyond what two declared loads switching together make."""
     d = simulate(home(interval="1 min", extra=""))
     t = pq.read_table(d / "meters.parquet").select(["time", "l1_p_w", "l2_p_w"])
     pq.write_table(t, tmp_path / "export.parquet")
     r = report(tmp_path / "export.parquet", SHORT.replace('power = "1500 W"\nwiring = "L2-N"', 'power = "1500 W"\nwiring = "L1-N"'), tmp_path)
-    assert ("wrong-line", "kettle") in [(f["kind"], f["subject"]) for f in r["possible"]]
-    assert kinds(r) == []
+    assert kinds(r) == [("wrong-line", "kettle")], r["possible"]
+    moved = r["findings"][0]["evidence"]
+    assert (moved["found"], moved["declared"]) == ("L2-N", "L1-N")
+    assert moved["steps_as_found"] >= 10, moved
     assert any("real power only" in n for n in r["notes"])
     assert r["loading"]["current_measured"] is False and r["loading"]["lines"][0]["peak_a"] > 0
     assert "not an inspection" in r["caution"]
