@@ -552,7 +552,8 @@ pub(super) fn distances(
 }
 
 /// The declared jumps as placed, each read under a metering with how
-/// many steps it was seen in (`(appliance, reading, n)`), and the factor
+/// many steps it was seen in (`(appliance, reading, n)`; a step counts
+/// for the one jump it fits best, [`jumps_seen`]), and the factor
 /// `w / 2T` that turns two counts n₁, n₂ into the expected number of
 /// their coincidences of each shape (the sum, or the difference: n₁ n₂ w
 /// / T in all, half each; [`SeenJumps::sums`]).
