@@ -55,7 +55,9 @@ undeclared load needs six state changes in the run and a working CT on its
 line; a misplaced one-power entry with an undeclared load of its size
 where it is declared reads the same as the declaration (both counted
 apart). A mistake whose appliance the audit calls undecidable is counted
-apart with its reason.
+apart with its reason. Possible findings are not scored; they are judged
+as findings are and tallied apart (`possible_tally`), to show what the
+"possible" list holds back.
 """
 import argparse
 import collections
@@ -1029,6 +1031,42 @@ def score(results):
     return per, totals, reasons, false
 
 
+def why_words(text, n=4):
+    """The first `n` words of why a finding is only possible, numbers out:
+    the class of its doubt ("it is smaller than", "at N s per"); a finding
+    with no doubt is possible for its confidence alone."""
+    return " ".join(numbers_out(text).split()[:n]) if text else "confidence below the line"
+
+
+def possible_tally(results):
+    """How often a possible finding would have been right as a finding
+    (judged as findings are), per kind, interval and class of doubt:
+    {(kind, interval, why): [real, listed]}. What the "possible" list
+    holds back, measured; not part of recall or precision."""
+    tally = collections.defaultdict(lambda: [0, 0])
+    for r in results:
+        if "error" in r:
+            continue
+        rep = r["report"]
+        for f in rep.get("possible", []):
+            t = tally[(f["kind"], r["interval"], why_words(f.get("possible_because")))]
+            t[0] += judge_finding(f, r, rep) is not None
+            t[1] += 1
+    return tally
+
+
+def possible_lines(tally, least=5):
+    """The tally's groups of `least` possible findings or more, largest
+    first, and the rest summed."""
+    rows = sorted(tally.items(), key=lambda kv: -kv[1][1])
+    out = [f"  {real} of {listed} real: {kind}, {interval}, \"{why} …\""
+           for (kind, interval, why), (real, listed) in rows if listed >= least]
+    rest = [v for v in tally.values() if v[1] < least]
+    if rest:
+        out.append(f"  {sum(v[0] for v in rest)} of {sum(v[1] for v in rest)} real: the other groups")
+    return out
+
+
 def table(per, totals, reasons, false):
     out = [f"cases {totals['cases']}, clean {totals['clean']}, clean with a finding {totals['clean with a finding']}, "
            f"refused by the audit {totals['errors']}, listed as possible (not scored) {totals['possible']}", "",
@@ -1096,6 +1134,8 @@ def main():
     with tempfile.TemporaryDirectory() as tmp:
         res = run(a.cases, a.seed, a.jobs, a.keep or tmp, a.cutoff)
     print(table(*score(res)))
+    print("\npossible findings (not scored) that name a real mistake or load, by kind, interval and why:")
+    print("\n".join(possible_lines(possible_tally(res))))
     errs = [r for r in res if "error" in r]
     for r in errs[:10]:
         print("error in case", r["i"], r["home"], r["interval"], r["style"], r["error"].strip().split("\n")[0], file=sys.stderr)

@@ -85,4 +85,24 @@ def test_the_generator_counts_apart_what_the_data_cannot_show():
     assert ao.shows(moved, {**short, "style": "complete"}, many) is None
 
 
+def test_possible_findings_are_tallied_as_findings_would_be_judged():
+    # A cottage at 1 min with a 1.5 kW load nobody declared on L2-N: a
+    # possible load of its size there is real, one on L1-N is not.
+    extra = {"kind": "undeclared-load", "subject": "extra_load", "wiring": "L2-N", "power_w": 1500.0}
+    case = {"i": 0, "home": "cottage", "interval": "1min-p", "style": "complete",
+            "mistakes": [extra], "exercised": [True], "unlisted": []}
+
+    def load(wiring, why):
+        return {"kind": "undeclared-load", "subject": f"1480 W on {wiring}", "confidence": 1.0,
+                "possible_because": why, "evidence": {"wiring": wiring, "p_w": 1480.0}}
+    why = "at 60 s per row, loads that switch within one row make one step together"
+    case["report"] = {"findings": [], "appliances": [],
+                      "possible": [load("L2-N", why), load("L1-N", why), load("L1-N", "it is smaller than kettle")]}
+    tally = ao.possible_tally([case, {"error": "refused"}])
+    assert tally[("undeclared-load", "1min-p", "at N s per")] == [1, 2]
+    assert tally[("undeclared-load", "1min-p", "it is smaller than")] == [0, 1]
+    assert ao.possible_lines(tally, least=2) == [
+        '  1 of 2 real: undeclared-load, 1min-p, "at N s per …"', "  0 of 1 real: the other groups"]
+
+
 FLOORS = {"recall": 0.55, "precision": 0.88, "clean with a finding": 0.0}
