@@ -553,12 +553,13 @@ pub(super) fn distances(
 
 /// The declared jumps as placed, each read under a metering with how
 /// many steps it was seen in (`(appliance, reading, n)`; a step counts
-/// for the one jump it fits best, [`jumps_seen`]), and the factor
+/// once in all, shared among the appliances it fits, [`jumps_seen`]), and
+/// the factor
 /// `w / 2T` that turns two counts n₁, n₂ into the expected number of
 /// their coincidences of each shape (the sum, or the difference: n₁ n₂ w
 /// / T in all, half each; [`SeenJumps::sums`]).
 pub(super) struct SeenJumps {
-    seen: Vec<(usize, Vec<Option<C64>>, usize)>,
+    seen: Vec<(usize, Vec<Option<C64>>, f64)>,
     per_pair: f64,
 }
 
@@ -577,27 +578,34 @@ pub(super) fn jumps_seen(
         .enumerate()
         .flat_map(|(j, a)| predicted(d, m, a).into_iter().map(move |r| (j, r)))
         .collect();
-    // Each step counts once, for the jump it fits best: a step that fits
-    // several alike jumps (one appliance's states, or two look-alikes) is
-    // one switching, and counting it for each would multiply the
-    // coincidences expected of it.
-    let mut counts = vec![0usize; jumps.len()];
+    // A step is one switching: it counts once in all. Within an appliance
+    // it counts for the jump it fits best (near-equal states); among the
+    // k appliances it fits (look-alikes), 1/k for each, so that twins
+    // seen n times together expect their two-at-once steps at the rate of
+    // n/2 and n/2, not of n and n, nor of n and none.
+    let mut counts = vec![0.0; jumps.len()];
     for e in events {
-        let best = jumps
-            .iter()
-            .enumerate()
-            .map(|(k, (_, r))| (k, dist(e, r)))
-            .filter(|(_, x)| *x <= 1.0)
-            .min_by(|a, b| a.1.total_cmp(&b.1));
-        if let Some((k, _)) = best {
-            counts[k] += 1;
+        let mut best: Vec<(usize, usize, f64)> = Vec::new();
+        for (k, (j, r)) in jumps.iter().enumerate() {
+            let x = dist(e, r);
+            if x > 1.0 {
+                continue;
+            }
+            match best.iter_mut().find(|b| b.0 == *j) {
+                Some(b) if x < b.2 => *b = (*j, k, x),
+                Some(_) => {}
+                None => best.push((*j, k, x)),
+            }
+        }
+        for (_, k, _) in &best {
+            counts[*k] += 1.0 / best.len() as f64;
         }
     }
     let seen = jumps
         .into_iter()
         .zip(counts)
         .map(|((j, r), n)| (j, r, n))
-        .filter(|(_, _, n)| *n > 0)
+        .filter(|(_, _, n)| *n > 0.0)
         .collect();
     let t_s = hours * 3600.0;
     let w = 2.0 * crate::audit::events::level_rows(interval_s) as f64 * interval_s;
@@ -633,7 +641,7 @@ impl SeenJumps {
                 if ja == jb {
                     continue;
                 }
-                let rate = (*na * *nb) as f64 * self.per_pair;
+                let rate = na * nb * self.per_pair;
                 for sign in [1.0, -1.0] {
                     out.push((combine(ra, rb, sign), rate));
                 }
@@ -656,7 +664,7 @@ impl SeenJumps {
             .iter()
             .filter(|(_, r, _)| dist_delta(&step, r) > 1.0)
         {
-            let rate = (n * nr) as f64 * self.per_pair;
+            let rate = n as f64 * nr * self.per_pair;
             for sign in [1.0, -1.0] {
                 out.push((combine(v, r, sign), rate));
             }

@@ -886,20 +886,18 @@ mod tests {
         assert_eq!(rate(2000.0), 0.0);
     }
 
-    /// A step that fits two alike declared jumps is one switching: a 1 kW
-    /// heater and a 1.01 kW look-alike beside a 500 W one, with 100 steps
-    /// of each size seen, expect the 1.5 kW sum at the rate of one pair
-    /// (0.556, as above), not of two: each step counts for the jump it fits
-    /// best, and the look-alike, fitting none best, for none.
+    /// A step is one switching, counted once in all: among the appliances
+    /// it fits, a share each (the accidental-coincidence rate of two
+    /// Poisson streams, as in the test above; from memory). A 1 kW heater
+    /// and a 1.01 kW look-alike beside a 500 W one, 100 steps of each size
+    /// seen in 100 h of 10 s rows, expect the 1.5 kW sum at the rate of
+    /// one pair (0.556), not of two. Twin 1 kW heaters share their 100
+    /// steps, 50 each, and expect their 2 kW sum at 50 · 50 · 40 /
+    /// (2 · 360 000) = 0.139: neither four times that (each step counted
+    /// for both) nor none (every step given to the first).
     #[test]
-    fn a_step_that_fits_two_alike_jumps_counts_once() {
+    fn a_step_counts_once_shared_among_the_appliances_it_fits() {
         let heater = |id: &str, w: f64| on_off(id, 0, C64::new(w, 0.0));
-        let d = split_phase(vec![
-            heater("a", 1000.0),
-            heater("b", 500.0),
-            heater("c", 1010.0),
-        ]);
-        let m = declared_metering(&d, &[false, false, false]);
         let events: Vec<Event> = (0..100)
             .flat_map(|i| {
                 let sign = if i % 2 == 0 { 1.0 } else { -1.0 };
@@ -910,14 +908,23 @@ mod tests {
             })
             .collect();
         let refs: Vec<&Event> = events.iter().collect();
-        let sums = jumps_seen(&d, &m, &d.appliances, &refs, 10.0, 100.0).sums();
-        let near_1500: f64 = sums
-            .iter()
-            .filter(|(r, _)| dist_delta(&[C64::new(1500.0, 0.0), C64::ZERO], r) <= 1.0)
-            .map(|(_, x)| *x)
-            .sum();
-        let one_pair = 100.0 * 100.0 * 40.0 / (2.0 * 360_000.0);
-        assert!((near_1500 - one_pair).abs() < 1e-9, "{near_1500}");
+        let rate_near = |appliances: Vec<DeclAppliance>, w: f64| {
+            let d = split_phase(appliances);
+            let m = declared_metering(&d, &vec![false; d.appliances.len()]);
+            jumps_seen(&d, &m, &d.appliances, &refs, 10.0, 100.0)
+                .sums()
+                .iter()
+                .filter(|(r, _)| dist_delta(&[C64::new(w, 0.0), C64::ZERO], r) <= 1.0)
+                .map(|(_, x)| *x)
+                .sum::<f64>()
+        };
+        let per_pair = 40.0 / (2.0 * 360_000.0);
+        let alike = vec![heater("a", 1000.0), heater("b", 500.0), heater("c", 1010.0)];
+        let sum = rate_near(alike, 1500.0);
+        assert!((sum - 100.0 * 100.0 * per_pair).abs() < 1e-9, "{sum}");
+        let twins = vec![heater("a", 1000.0), heater("a2", 1000.0)];
+        let both = rate_near(twins, 2000.0);
+        assert!((both - 50.0 * 50.0 * per_pair).abs() < 1e-9, "{both}");
     }
 
     /// A step nobody declared coincides with a declared jump at the same
