@@ -88,8 +88,8 @@ def test_real_power_only_without_a_manifest(simulate, tmp_path):
     """A monitor export with P per line only, no manifest: the audit runs,
     says what it could not use, and finds the misdeclared kettle. At 1 min
     two loads switching in one row make one step, so a move needs
-    `coarse_runs` steps where found (here 11), beyond chance there and
-    beyond what two declared loads switching together make."""
+    `coarse_runs` steps where found (10 by default; here 11), beyond chance
+    there and beyond what two declared loads switching together make."""
     d = simulate(home(interval="1 min", extra=""))
     t = pq.read_table(d / "meters.parquet").select(["time", "l1_p_w", "l2_p_w"])
     pq.write_table(t, tmp_path / "export.parquet")
@@ -97,7 +97,7 @@ def test_real_power_only_without_a_manifest(simulate, tmp_path):
     assert kinds(r) == [("wrong-line", "kettle")], r["possible"]
     moved = r["findings"][0]["evidence"]
     assert (moved["found"], moved["declared"]) == ("L2-N", "L1-N")
-    assert moved["steps_as_found"] >= 10, moved
+    assert moved["steps_as_found"] >= 10, moved  # coarse_runs, by default
     assert any("real power only" in n for n in r["notes"])
     assert r["loading"]["current_measured"] is False and r["loading"]["lines"][0]["peak_a"] > 0
     assert "not an inspection" in r["caution"]

@@ -94,14 +94,14 @@ pub struct Thresholds {
     /// and stops balance, its size is no declared jump and coincidences of
     /// two make few of its steps (`composite_share`): loads that happen to switch within one row do
     /// not repeat at one size, starting and stopping alike, ten times
-    /// (common practice, no source). As many steps (half as many runs),
-    /// beyond chance where found and not where declared, and beyond what
-    /// two declared loads switching together make, make a move at a coarse
-    /// interval a finding (`coarse_move_doubt`: the chances carry the
-    /// weight there); as many overlaps, a load of a
-    /// declared appliance's size beside it (a lost stop is likelier there);
-    /// as many runs beyond the habits of what could make them, a load
-    /// hidden among appliances of its size.
+    /// (common practice, no source). A move at a coarse interval is a
+    /// finding with as many steps (half as many runs) where found, beyond
+    /// chance there and not where declared, and beyond what two declared
+    /// loads switching together make (`coarse_move_doubt`: the chances
+    /// carry the weight there). As many overlaps make a load of a declared
+    /// appliance's size beside it a finding (a lost stop is likelier
+    /// there), and as many runs beyond the habits of what could make them a
+    /// load hidden among appliances of its size.
     pub coarse_runs: usize,
     /// Share of a coarse cluster's steps that two loads switching within
     /// one row are expected to make (the summed rates of the sums and
