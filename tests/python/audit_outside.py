@@ -1048,10 +1048,16 @@ def possible_tally(results):
         if "error" in r:
             continue
         rep = r["report"]
+        # As in `score`: a mistake named once is found; naming it again,
+        # after a finding or another possible one, is no more right.
+        found = {judge_finding(f, r, rep) for f in rep["findings"] + rep.get("unlisted_loads", [])}
         for f in rep.get("possible", []):
             t = tally[(f["kind"], r["interval"], why_words(f.get("possible_because")))]
-            t[0] += judge_finding(f, r, rep) is not None
+            k = judge_finding(f, r, rep)
+            real = k is not None and (k == "unlisted" or k not in found)
+            t[0] += real
             t[1] += 1
+            found.add(k)
     return tally
 
 

@@ -86,8 +86,10 @@ def test_the_generator_counts_apart_what_the_data_cannot_show():
 
 
 def test_possible_findings_are_tallied_as_findings_would_be_judged():
-    # A cottage at 1 min with a 1.5 kW load nobody declared on L2-N: a
-    # possible load of its size there is real, one on L1-N is not.
+    # Judged as findings are (common practice in detection tasks, no
+    # source). A cottage at 1 min with a 1.5 kW load nobody declared on
+    # L2-N: a possible load of its size there is real, one on L1-N is not,
+    # and a second one naming the same load is no more right.
     extra = {"kind": "undeclared-load", "subject": "extra_load", "wiring": "L2-N", "power_w": 1500.0}
     case = {"i": 0, "home": "cottage", "interval": "1min-p", "style": "complete",
             "mistakes": [extra], "exercised": [True], "unlisted": []}
@@ -100,6 +102,10 @@ def test_possible_findings_are_tallied_as_findings_would_be_judged():
                       "possible": [load("L2-N", why), load("L1-N", why), load("L1-N", "it is smaller than kettle")]}
     tally = ao.possible_tally([case, {"error": "refused"}])
     assert tally[("undeclared-load", "1min-p", "at N s per")] == [1, 2]
+    again = {**case, "report": {**case["report"], "possible": [load("L2-N", why), load("L2-N", why)]}}
+    assert ao.possible_tally([again])[("undeclared-load", "1min-p", "at N s per")] == [1, 2]
+    found = {**case, "report": {**case["report"], "findings": [load("L2-N", None)], "possible": [load("L2-N", why)]}}
+    assert ao.possible_tally([found])[("undeclared-load", "1min-p", "at N s per")] == [0, 1]
     assert tally[("undeclared-load", "1min-p", "it is smaller than")] == [0, 1]
     assert ao.possible_lines(tally, least=2) == [
         '  1 of 2 real: undeclared-load, 1min-p, "at N s per …"', "  0 of 1 real: the other groups"]
