@@ -197,9 +197,10 @@ pub fn check_with(
 /// ([`simpler_account`]); a battery may leave the metering found and its
 /// mirror image undecided by the times on and off, and then the account
 /// with fewer mistakes stands ([`weigh_mirror`]; not in place of the
-/// declared metering, nor of a fault that replaced moves). With the appliance moves
-/// a metering fault replaced, and the mirror that fits as well with as
-/// many mistakes, which leaves the metering found only possible.
+/// declared metering, nor of a fault that replaced moves). Returned with
+/// the count of appliance moves a metering fault replaced, and the mirror
+/// that fits as well with as many mistakes (which leaves the metering
+/// found only possible).
 fn settle_account(
     d: &Declared,
     mc: &MeteringChoice,
